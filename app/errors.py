@@ -1,0 +1,62 @@
+"""One family of errors for everything Posewright refuses to do.
+
+Every error carries a message that says what is wrong, where (file, record, field) and, when
+there is one, what to do about it. The command line prints ``str(error)`` as one line and exits
+with status 2; the desktop app shows it in a dialog.
+"""
+
+from __future__ import annotations
+
+
+class PosewrightError(Exception):
+    """Base of every error Posewright raises on purpose."""
+
+    exit_status = 2
+
+
+class BadInput(PosewrightError):
+    """Input that cannot be used: a malformed file, a wrong field, an impossible value.
+
+    Parameters
+    ----------
+    what
+        What is wrong, in a sentence fragment ("visibility 3 is not one of 0, 1, 2").
+    where
+        The file, and where useful the record and field ("labels.json: annotations[12]
+        (id 4410): field keypoints").
+    hint
+        What to do about it, if there is something useful to say.
+    """
+
+    def __init__(self, what: str, where: str | None = None, hint: str | None = None):
+        self.what = what
+        self.where = where
+        self.hint = hint
+        text = f"{where}: {what}" if where else what
+        if hint:
+            text = f"{text} ({hint})"
+        super().__init__(text)
+
+
+class UnsupportedFormat(BadInput):
+    """A file that is well formed but not one Posewright can read."""
+
+
+class NotFound(PosewrightError):
+    """A project, frame, person or file that does not exist."""
+
+
+class ProjectLocked(PosewrightError):
+    """The project is open for editing in another process; this one is read-only."""
+
+
+class ReadOnly(PosewrightError):
+    """An edit was attempted on a project opened read-only."""
+
+
+class EditRefused(PosewrightError):
+    """An edit that would make the labels inconsistent, refused with the reason."""
+
+
+class Cancelled(PosewrightError):
+    """Long work stopped on request; nothing of it was kept."""

@@ -1,0 +1,476 @@
+"""Edit operations: every change to labels is one of these, and each is one undo step.
+
+An edit looks at one frame's :class:`~app.model.labels.FrameLabels` and plans a list of atomic
+:class:`Change` records -- a target, its value before and its value after. Applying the changes
+gives the new labels; applying their inverses in reverse order gives the old labels back, so
+every edit can invert itself (the command pattern). The store writes the same changes to its
+append-only ledger, which is why undo survives a restart.
+
+Targets and their values (all JSON-ready):
+
+- ``("person", pid)``: the whole person (:meth:`Person.to_value`) or ``None`` when absent.
+- ``("joint", pid, j)``: ``[x, y, v, score, source]`` of one joint of an existing person.
+- ``("state",)``: the frame's state, a :class:`FrameState` value.
+- ``("note", nid)``: a note's value or ``None``.
+
+Edits are refused with :class:`~app.errors.EditRefused` (and nothing changes) when they would
+make the labels inconsistent; the message says why and what to do.
+"""
+
+from __future__ import annotations
+
+import time as _time
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass, field, replace
+from typing import Any, ClassVar
+
+import numpy as np
+
+from app.errors import EditRefused
+from app.model.labels import FrameLabels, FrameState, Note, Person
+
+Target = tuple[Any, ...]
+
+
+@dataclass(frozen=True)
+class Change:
+    """One atomic change: ``target`` goes from ``before`` to ``after``."""
+
+    target: Target
+    before: Any
+    after: Any
+
+    def inverted(self) -> Change:
+        return Change(self.target, self.after, self.before)
+
+    def describe(self) -> str:
+        """The target as text: ``person:12``, ``person:12/joint:9``, ``state``, ``note:3``."""
+        kind = self.target[0]
+        if kind == "joint":
+            return f"person:{self.target[1]}/joint:{self.target[2]}"
+        if kind in ("person", "note"):
+            return f"{kind}:{self.target[1]}"
+        return kind
+
+
+@dataclass(frozen=True)
+class EditContext:
+    """Who makes an edit and when; used for provenance and note authorship."""
+
+    author: str = ""
+    time: float = field(default_factory=_time.time)
+
+
+def _current(labels: FrameLabels, target: Target) -> Any:
+    kind = target[0]
+    if kind == "person":
+        p = labels.people.get(target[1])
+        return None if p is None else p.to_value()
+    if kind == "joint":
+        return labels.person(target[1]).joint_value(target[2])
+    if kind == "state":
+        return labels.state.value
+    if kind == "note":
+        n = labels.notes.get(target[1])
+        return None if n is None else n.to_value()
+    raise EditRefused(f"unknown change target {target!r}")
+
+
+def apply_changes(labels: FrameLabels, changes: Iterable[Change]) -> FrameLabels:
+    """The labels after ``changes``, applied in order (the input is not modified)."""
+    people = dict(labels.people)
+    notes = dict(labels.notes)
+    state = labels.state
+    for ch in changes:
+        kind = ch.target[0]
+        if kind == "person":
+            pid = ch.target[1]
+            if ch.after is None:
+                people.pop(pid, None)
+            else:
+                people[pid] = Person.from_value(pid, ch.after)
+        elif kind == "joint":
+            pid, j = ch.target[1], ch.target[2]
+            if pid not in people:
+                raise EditRefused(f"frame {labels.frame_id} has no person {pid}")
+            people[pid] = people[pid].with_joint(j, ch.after)
+        elif kind == "state":
+            state = FrameState(ch.after)
+        elif kind == "note":
+            nid = ch.target[1]
+            if ch.after is None:
+                notes.pop(nid, None)
+            else:
+                notes[nid] = Note.from_value(nid, labels.frame_id, ch.after)
+        else:
+            raise EditRefused(f"unknown change target {ch.target!r}")
+    return replace(labels, people=people, notes=notes, state=state)
+
+
+class Edit:
+    """Base of all edit operations. Subclasses implement :meth:`plan`."""
+
+    frame_id: int
+    #: Whether the edit changes labels (people or joints), as opposed to state or notes.
+    changes_labels: ClassVar[bool] = True
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        raise NotImplementedError
+
+    def apply(
+        self, labels: FrameLabels, ctx: EditContext | None = None
+    ) -> tuple[FrameLabels, list[Change]]:
+        """The new labels and the changes that lead there."""
+        if labels.frame_id != self.frame_id:
+            raise EditRefused(f"edit for frame {self.frame_id} applied to frame {labels.frame_id}")
+        changes = self.plan(labels, ctx or EditContext())
+        return apply_changes(labels, changes), changes
+
+    def invert(self, labels: FrameLabels, ctx: EditContext | None = None) -> Restore:
+        """An edit that undoes this one.
+
+        ``labels`` are the labels *before* this edit; the returned edit, applied to the labels
+        this one produced, gives ``labels`` back.
+        """
+        changes = self.plan(labels, ctx or EditContext())
+        return Restore(self.frame_id, tuple(c.inverted() for c in reversed(changes)))
+
+    def summary(self) -> str:
+        """A short human-readable description for the ledger."""
+        return type(self).__name__
+
+
+def _joint_change(person: Person, j: int, after: list[Any]) -> Change:
+    return Change(("joint", person.id, j), person.joint_value(j), after)
+
+
+def _check_joint(labels: FrameLabels, person: Person, joint: int) -> int:
+    if not 0 <= joint < labels.num_joints:
+        raise EditRefused(f"joint index {joint} is outside 0..{labels.num_joints - 1}")
+    return int(joint)
+
+
+def _finite(x: float, what: str) -> float:
+    x = float(x)
+    if not np.isfinite(x):
+        raise EditRefused(f"{what} must be a finite number, got {x}")
+    return x
+
+
+@dataclass(frozen=True)
+class MoveJoint(Edit):
+    """Place a joint at ``(x, y)`` image pixels. An unlabeled joint becomes visible (v=2)."""
+
+    frame_id: int
+    person_id: int
+    joint: int
+    x: float
+    y: float
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        p = labels.person(self.person_id)
+        j = _check_joint(labels, p, self.joint)
+        x, y = _finite(self.x, "x"), _finite(self.y, "y")
+        v = int(p.keypoints[j, 2]) or 2
+        return [_joint_change(p, j, [x, y, v, p.joint_value(j)[3], ctx.author])]
+
+    def summary(self) -> str:
+        return f"move joint {self.joint} of person {self.person_id} to ({self.x:.1f}, {self.y:.1f})"
+
+
+@dataclass(frozen=True)
+class SetVisibility(Edit):
+    """Set a joint's COCO visibility: 2 visible, 1 occluded, 0 unlabeled.
+
+    Unlabeling keeps the joint's last position in store (not exported, not trained on) so that
+    labelling it again is one step. A joint that never had a position cannot be made visible or
+    occluded; place it with :class:`MoveJoint` first.
+    """
+
+    frame_id: int
+    person_id: int
+    joint: int
+    v: int
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        if self.v not in (0, 1, 2):
+            raise EditRefused(f"visibility {self.v} is not one of 0, 1, 2")
+        p = labels.person(self.person_id)
+        j = _check_joint(labels, p, self.joint)
+        x, y, _, s, _src = p.joint_value(j)
+        if self.v > 0 and (x is None or y is None):
+            raise EditRefused(
+                f"joint {j} of person {p.id} has no position; place it before marking it"
+            )
+        return [_joint_change(p, j, [x, y, int(self.v), s, ctx.author])]
+
+    def summary(self) -> str:
+        word = {0: "unlabeled", 1: "occluded", 2: "visible"}.get(self.v, str(self.v))
+        return f"mark joint {self.joint} of person {self.person_id} {word}"
+
+
+@dataclass(frozen=True)
+class ReassignJoint(Edit):
+    """Give a joint to another person of the same frame.
+
+    The joint (position, visibility, score) moves to ``to_person_id`` and becomes unlabeled on
+    its old owner. If the receiver already has that joint labelled, the two joints are swapped:
+    the receiver's old joint goes to the giver, so no label is lost.
+    """
+
+    frame_id: int
+    person_id: int
+    joint: int
+    to_person_id: int
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        giver = labels.person(self.person_id)
+        taker = labels.person(self.to_person_id)
+        j = _check_joint(labels, giver, self.joint)
+        if giver.id == taker.id:
+            raise EditRefused(f"joint {j} already belongs to person {giver.id}")
+        if giver.keypoints[j, 2] <= 0:
+            raise EditRefused(f"joint {j} of person {giver.id} is unlabeled; nothing to give")
+        gx, gy, gv, gs, _ = giver.joint_value(j)
+        tx, ty, tv, ts, _ = taker.joint_value(j)
+        to_taker = [gx, gy, gv, gs, ctx.author]
+        if tv > 0:
+            to_giver = [tx, ty, tv, ts, ctx.author]
+        else:
+            to_giver = [gx, gy, 0, gs, ctx.author]
+        return [_joint_change(giver, j, to_giver), _joint_change(taker, j, to_taker)]
+
+    def summary(self) -> str:
+        return f"give joint {self.joint} of person {self.person_id} to person {self.to_person_id}"
+
+
+@dataclass(frozen=True)
+class NewPerson(Edit):
+    """Add a person, optionally with joints ``(K, 3)``; the store fills in a fresh id."""
+
+    frame_id: int
+    person_id: int | None = None
+    keypoints: tuple[tuple[float, float, int], ...] | None = None
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        if self.person_id is None:
+            raise EditRefused("a new person needs an id (the store assigns one)")
+        if self.person_id in labels.people:
+            raise EditRefused(f"person {self.person_id} already exists")
+        p = Person.blank(self.person_id, labels.num_joints, ctx.author)
+        if self.keypoints is not None:
+            kp = np.asarray(self.keypoints, dtype=np.float64)
+            if kp.shape != (labels.num_joints, 3):
+                raise EditRefused(f"keypoints must be ({labels.num_joints}, 3), got {kp.shape}")
+            if not np.isin(kp[:, 2], (0, 1, 2)).all():
+                raise EditRefused("visibility must be 0, 1 or 2")
+            if not np.isfinite(kp[kp[:, 2] > 0, :2]).all():
+                raise EditRefused("labelled joints need finite positions")
+            p = replace(p, keypoints=kp)
+        return [Change(("person", p.id), None, p.to_value())]
+
+    def summary(self) -> str:
+        return f"new person {self.person_id}"
+
+
+@dataclass(frozen=True)
+class DeletePerson(Edit):
+    """Remove a person and all of their joints."""
+
+    frame_id: int
+    person_id: int
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        p = labels.person(self.person_id)
+        return [Change(("person", p.id), p.to_value(), None)]
+
+    def summary(self) -> str:
+        return f"delete person {self.person_id}"
+
+
+@dataclass(frozen=True)
+class MergePeople(Edit):
+    """Merge ``other_id`` into ``person_id``: the other's labelled joints move over, the other
+    person is deleted. Refused when both have the same joint labelled (the message names the
+    joints), because one of the two labels would have to be thrown away silently."""
+
+    frame_id: int
+    person_id: int
+    other_id: int
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        keep = labels.person(self.person_id)
+        gone = labels.person(self.other_id)
+        if keep.id == gone.id:
+            raise EditRefused("cannot merge a person with themselves")
+        both = np.flatnonzero(keep.labelled & gone.labelled)
+        if both.size:
+            raise EditRefused(
+                f"person {keep.id} and person {gone.id} both have joint(s) "
+                f"{', '.join(map(str, both))} labelled; unlabel or reassign one of each first"
+            )
+        changes = []
+        for j in np.flatnonzero(gone.labelled):
+            x, y, v, s, _ = gone.joint_value(int(j))
+            changes.append(_joint_change(keep, int(j), [x, y, v, s, ctx.author]))
+        changes.append(Change(("person", gone.id), gone.to_value(), None))
+        return changes
+
+    def summary(self) -> str:
+        return f"merge person {self.other_id} into person {self.person_id}"
+
+
+@dataclass(frozen=True)
+class SplitPerson(Edit):
+    """Move the chosen joints of a person to a new person (the store fills in the new id)."""
+
+    frame_id: int
+    person_id: int
+    joints: tuple[int, ...]
+    new_person_id: int | None = None
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        p = labels.person(self.person_id)
+        if self.new_person_id is None:
+            raise EditRefused("a split needs an id for the new person (the store assigns one)")
+        if self.new_person_id in labels.people:
+            raise EditRefused(f"person {self.new_person_id} already exists")
+        joints = sorted({_check_joint(labels, p, j) for j in self.joints})
+        if not joints:
+            raise EditRefused("choose at least one joint to split off")
+        new = Person.blank(self.new_person_id, labels.num_joints, ctx.author)
+        kp, scores, sources = new.keypoints.copy(), new.scores.copy(), list(new.sources)
+        changes = []
+        for j in joints:
+            kp[j] = p.keypoints[j]
+            scores[j] = p.scores[j]
+            x, y, _, s, _ = p.joint_value(j)
+            changes.append(_joint_change(p, j, [x, y, 0, s, ctx.author]))
+        new = replace(new, keypoints=kp, scores=scores, sources=tuple(sources))
+        return [Change(("person", new.id), None, new.to_value()), *changes]
+
+    def summary(self) -> str:
+        return f"split joints {list(self.joints)} of person {self.person_id} into a new person"
+
+
+@dataclass(frozen=True)
+class SwapSides(Edit):
+    """Swap a person's left and right joints (the skeleton's flip pairs)."""
+
+    frame_id: int
+    person_id: int
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        p = labels.person(self.person_id)
+        perm = labels.skeleton.flip_index
+        changes = []
+        for j, src in enumerate(perm.tolist()):
+            if src != j:
+                x, y, v, s, _ = p.joint_value(src)
+                changes.append(_joint_change(p, j, [x, y, v, s, ctx.author]))
+        return changes
+
+    def summary(self) -> str:
+        return f"swap left and right of person {self.person_id}"
+
+
+@dataclass(frozen=True)
+class SetFrameState(Edit):
+    """Set the frame's state: untouched, corrected, disputed or signed-off."""
+
+    frame_id: int
+    state: FrameState
+    changes_labels: ClassVar[bool] = False
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        state = FrameState(self.state)
+        if state == labels.state:
+            return []
+        return [Change(("state",), labels.state.value, state.value)]
+
+    def summary(self) -> str:
+        return f"mark frame {FrameState(self.state).value}"
+
+
+@dataclass(frozen=True)
+class AddNote(Edit):
+    """Add a note to the frame's thread (optionally about one person)."""
+
+    frame_id: int
+    text: str
+    person_id: int | None = None
+    note_id: int | None = None
+    changes_labels: ClassVar[bool] = False
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        if self.note_id is None:
+            raise EditRefused("a note needs an id (the store assigns one)")
+        if not self.text.strip():
+            raise EditRefused("a note cannot be empty")
+        if self.person_id is not None:
+            labels.person(self.person_id)
+        note = Note(self.note_id, self.frame_id, ctx.author, ctx.time, self.text, self.person_id)
+        return [Change(("note", self.note_id), None, note.to_value())]
+
+    def summary(self) -> str:
+        return "add note"
+
+
+@dataclass(frozen=True)
+class Restore(Edit):
+    """Apply recorded changes verbatim, checking that each target still holds ``before``.
+
+    This is what undo, redo and "return to this point" apply; it is refused, with nothing
+    changed, if the labels have moved on since the changes were recorded.
+    """
+
+    frame_id: int
+    changes: tuple[Change, ...]
+    label: str = "restore"
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        staged = labels
+        for ch in self.changes:
+            try:
+                now = _current(staged, ch.target)
+            except EditRefused:
+                now = None
+            if not _same_value(now, ch.before):
+                raise EditRefused(
+                    f"frame {self.frame_id}: {ch.describe()} changed since it was recorded; "
+                    "cannot restore it"
+                )
+            staged = apply_changes(staged, [ch])
+        return list(self.changes)
+
+    def summary(self) -> str:
+        return self.label
+
+
+def _same_value(a: Any, b: Any) -> bool:
+    if isinstance(a, float) and isinstance(b, float):
+        return a == b or (a != a and b != b)
+    if isinstance(a, dict) and isinstance(b, dict):
+        return a.keys() == b.keys() and all(_same_value(a[k], b[k]) for k in a)
+    if isinstance(a, (list, tuple)) and isinstance(b, (list, tuple)):
+        return len(a) == len(b) and all(_same_value(x, y) for x, y in zip(a, b))
+    return bool(a == b)
+
+
+def needs_person_id(edit: Edit) -> bool:
+    """Whether the store must allocate a person id before planning this edit."""
+    return (isinstance(edit, NewPerson) and edit.person_id is None) or (
+        isinstance(edit, SplitPerson) and edit.new_person_id is None
+    )
+
+
+def with_person_id(edit: Edit, person_id: int) -> Edit:
+    if isinstance(edit, NewPerson):
+        return replace(edit, person_id=person_id)
+    if isinstance(edit, SplitPerson):
+        return replace(edit, new_person_id=person_id)
+    return edit
+
+
+def labels_changed(changes: Sequence[Change]) -> bool:
+    return any(c.target[0] in ("person", "joint") for c in changes)
