@@ -1,0 +1,109 @@
+"""Synthetic COCO-17 people for the analysis tests.
+
+Everything here is invented (synthetic data): no pose comes from a data set. A person is built
+from a standing body with random arm and leg angles. Segment lengths are fractions of stature
+after the Drillis and Contini (1966) table as reproduced in Winter, "Biomechanics and Motor
+Control of Human Movement" (from memory, rounded): upper arm 0.186, forearm 0.146, thigh 0.245,
+shank 0.246, shoulder width 0.259, hip width 0.191, shoulder above hip 0.288, nose above the
+shoulders about 0.11.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from app.model.skeleton import coco_body
+
+SKELETON = coco_body()
+LIMBS = np.asarray(SKELETON.limbs, dtype=np.int64)
+SIGMAS = SKELETON.sigma_array
+K = SKELETON.num_joints
+
+
+def person(
+    rng: np.random.Generator, centre: tuple[float, float], stature: float
+) -> np.ndarray:
+    """One plausible person, ``(17, 3)`` x, y, v (all v = 2), hips centred on ``centre``."""
+    facing = 1.0 if rng.random() < 0.7 else -1.0  # front view puts the left side on image right
+    pts = np.zeros((K, 2))
+    hip_c = np.zeros(2)
+    lean = np.radians(rng.uniform(-8, 8))
+    up = np.array([np.sin(lean), -np.cos(lean)])
+    side = np.array([np.cos(lean), np.sin(lean)]) * facing
+    shoulder_c = hip_c + 0.288 * up
+    nose = shoulder_c + 0.11 * up + side * rng.uniform(-0.02, 0.02)
+    turn = rng.uniform(-0.015, 0.015)
+    pts[0] = nose
+    for s, (eye, ear, sh, el, wr, hip, kn, an) in (
+        (1.0, (1, 3, 5, 7, 9, 11, 13, 15)),
+        (-1.0, (2, 4, 6, 8, 10, 12, 14, 16)),
+    ):
+        pts[eye] = nose + side * (s * 0.03 + turn) + up * 0.02
+        pts[ear] = nose + side * (s * 0.065 + turn) + up * 0.005
+        pts[sh] = shoulder_c + side * (s * 0.1295)
+        pts[hip] = hip_c + side * (s * 0.0955)
+        raise_ = np.radians(rng.uniform(-20, 110))
+        bend = np.radians(rng.uniform(0, 100))
+        d1 = -np.cos(raise_) * up + s * np.sin(raise_) * side
+        pts[el] = pts[sh] + 0.186 * d1
+        a2 = raise_ + bend * (1 if rng.random() < 0.5 else -1)
+        d2 = -np.cos(a2) * up + s * np.sin(a2) * side
+        pts[wr] = pts[el] + 0.146 * d2
+        splay = np.radians(rng.uniform(-5, 25))
+        d3 = -np.cos(splay) * up + s * np.sin(splay) * side
+        pts[kn] = pts[hip] + 0.245 * d3
+        knee = splay - np.radians(rng.uniform(0, 25))
+        d4 = -np.cos(knee) * up + s * np.sin(knee) * side
+        pts[an] = pts[kn] + 0.246 * d4
+    out = np.empty((K, 3))
+    out[:, :2] = np.asarray(centre) + stature * pts
+    out[:, 2] = 2.0
+    return out
+
+
+def crowd(
+    rng: np.random.Generator,
+    n: int,
+    image_size: tuple[int, int],
+    stature: tuple[float, float],
+    min_gap: float = 0.0,
+    margin: float = 0.0,
+) -> np.ndarray:
+    """``n`` random people in the image, ``(n, 17, 3)``.
+
+    ``min_gap`` is the least distance between two hip centres, in units of the larger stature;
+    ``margin`` keeps hip centres that many pixels from the image edges.
+    """
+    width, height = image_size
+    people: list[np.ndarray] = []
+    centres: list[np.ndarray] = []
+    tries = 0
+    while len(people) < n:
+        tries += 1
+        if tries > 100_000:
+            raise RuntimeError("cannot place that many people; lower min_gap")
+        size = rng.uniform(*stature)
+        c = np.array(
+            [rng.uniform(margin, width - margin), rng.uniform(margin, height - margin)]
+        )
+        if any(np.hypot(*(c - o)) < min_gap * stature[1] for o in centres):
+            continue
+        centres.append(c)
+        people.append(person(rng, (c[0], c[1]), size))
+    return np.stack(people) if people else np.zeros((0, K, 3))
+
+
+def hide(
+    rng: np.random.Generator, people: np.ndarray, p_unlabelled: float, p_occluded: float = 0.2
+) -> np.ndarray:
+    """A copy with joints randomly made unlabeled (v = 0, half of them NaN) or occluded (v = 1)."""
+    out = people.copy()
+    draw = rng.random(out.shape[:2])
+    occluded = draw < p_occluded
+    out[..., 2][occluded] = 1
+    gone = rng.random(out.shape[:2]) < p_unlabelled
+    out[..., 2][gone] = 0
+    wipe = gone & (rng.random(out.shape[:2]) < 0.5)
+    out[..., 0][wipe] = np.nan
+    out[..., 1][wipe] = np.nan
+    return out
