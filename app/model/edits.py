@@ -234,10 +234,8 @@ class ReassignJoint(Edit):
         gx, gy, gv, gs, _ = giver.joint_value(j)
         tx, ty, tv, ts, _ = taker.joint_value(j)
         to_taker = [gx, gy, gv, gs, ctx.author]
-        if tv > 0:
-            to_giver = [tx, ty, tv, ts, ctx.author]
-        else:
-            to_giver = [gx, gy, 0, gs, ctx.author]
+        # The giver keeps its old position in store (unlabeled) unless it receives a swap.
+        to_giver = [tx, ty, tv, ts, ctx.author] if tv > 0 else [gx, gy, 0, gs, ctx.author]
         return [_joint_change(giver, j, to_giver), _joint_change(taker, j, to_taker)]
 
     def summary(self) -> str:
@@ -405,6 +403,8 @@ class AddNote(Edit):
     def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
         if self.note_id is None:
             raise EditRefused("a note needs an id (the store assigns one)")
+        if self.note_id in labels.notes:
+            raise EditRefused(f"note {self.note_id} already exists")
         if not self.text.strip():
             raise EditRefused("a note cannot be empty")
         if self.person_id is not None:

@@ -1,0 +1,43 @@
+# Posewright: the two quick-start commands (`make run`, `make test`) and the benchmarks.
+# Each target sets up .venv first (created if missing, refreshed when pyproject.toml changes).
+
+PYTHON ?= python3
+VENV   := .venv
+BIN    := $(VENV)/bin
+RUN_STAMP  := $(VENV)/.installed-run
+TEST_STAMP := $(VENV)/.installed-test
+export QT_QPA_PLATFORM ?= $(if $(DISPLAY)$(WAYLAND_DISPLAY),,offscreen)
+
+.PHONY: run test bench lint demo clean
+
+$(BIN)/python:
+	$(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+
+$(RUN_STAMP): pyproject.toml | $(BIN)/python
+	$(BIN)/python -m pip install --quiet -e .
+	touch $@
+
+$(TEST_STAMP): pyproject.toml | $(BIN)/python
+	$(BIN)/python -m pip install --quiet -e '.[test,dev]'
+	touch $@ $(RUN_STAMP)
+
+run: $(RUN_STAMP)
+	$(BIN)/posewright summary demo_project
+
+test: $(TEST_STAMP)
+	QT_QPA_PLATFORM=offscreen $(BIN)/python -m pytest
+
+bench: $(TEST_STAMP)
+	QT_QPA_PLATFORM=offscreen $(BIN)/python -m tests.benchmarks.run
+
+lint: $(TEST_STAMP)
+	$(BIN)/ruff check app tests
+	$(BIN)/mypy app/model app/analysis app/store app/formats
+
+demo: $(RUN_STAMP)
+	rm -rf demo_project/images demo_project/maps demo_project/project.db*
+	$(BIN)/posewright demo demo_project
+
+clean:
+	rm -rf $(VENV) .pytest_cache .mypy_cache .ruff_cache .hypothesis bench-results.json

@@ -1,0 +1,229 @@
+"""The ``posewright`` command (also ``python -m app``).
+
+Every command that meets bad input exits with status 2 after one line on stderr that says what
+is wrong and where (file, record, field), without a traceback and without writing anything.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import logging
+import sys
+import time
+from collections.abc import Callable, Sequence
+from pathlib import Path
+from typing import Any, NoReturn
+
+from app.errors import BadInput, Cancelled, PosewrightError, ProjectLocked
+from app.model.labels import FrameState
+from app.progress import Progress
+
+log = logging.getLogger("posewright")
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse that reports a usage error in one line (status 2), like every other error."""
+
+    def error(self, message: str) -> NoReturn:
+        self.exit(2, f"{self.prog}: error: {message} (see --help)\n")
+
+
+def _stderr_progress(quiet: bool) -> Progress:
+    """Progress on stderr for work that takes more than a second (quick work stays quiet)."""
+    start = time.monotonic()
+    last = [start]
+
+    def show(done: int, total: int, label: str) -> None:
+        now = time.monotonic()
+        if quiet or now - start < 1.0 or (now - last[0] < 0.5 and done < total):
+            return
+        last[0] = now
+        pct = 100.0 * done / total if total else 100.0
+        print(f"{label}: {done}/{total} ({pct:.0f}%)", file=sys.stderr, flush=True)
+
+    return Progress(show)
+
+
+def _open(args: argparse.Namespace, write: bool = True):  # -> Project
+    from app.jobs import open_project
+
+    project = open_project(args.project, author=getattr(args, "author", None),
+                           progress=_stderr_progress(getattr(args, "quiet", False)))
+    if write and project.read_only:
+        reason = project.read_only_reason
+        project.close()
+        raise ProjectLocked(f"{args.project}: cannot change the project: it is {reason}")
+    return project
+
+
+def _print_json(data: Any) -> None:
+    json.dump(data, sys.stdout, indent=2, default=str)
+    sys.stdout.write("\n")
+
+
+# ---------------------------------------------------------------------- commands
+
+def cmd_new(args: argparse.Namespace) -> int:
+    from app.model.skeleton import load_skeleton
+    from app.store import Project
+
+    skeleton = load_skeleton(args.skeleton) if args.skeleton else None
+    if args.images is None:
+        raise BadInput("give --images DIR", where="new")
+    with Project.create(args.project, images=args.images, skeleton=skeleton, author=args.author,
+                        progress=_stderr_progress(args.quiet)) as project:
+        frames = project.frames()
+        bad = [f for f in frames if f.status != "ok"]
+        for f in bad:
+            print(f"posewright: warning: {f.path}: image is {f.status}; registered and marked",
+                  file=sys.stderr)
+        print(f"created {args.project}: {len(frames)} frames"
+              + (f", {len(bad)} unreadable" if bad else ""))
+    return 0
+
+
+def cmd_add(args: argparse.Namespace) -> int:
+    with _open(args) as project:
+        added = project.add_images(args.images, progress=_stderr_progress(args.quiet))
+        print(f"added {len(added)} frames to {args.project}")
+    return 0
+
+
+def cmd_import(args: argparse.Namespace) -> int:
+    from app.jobs import import_coco
+
+    with _open(args) as project:
+        stats = import_coco(project, args.file, progress=_stderr_progress(args.quiet))
+    if args.json:
+        _print_json(stats)
+    else:
+        print("imported " + ", ".join(f"{v} {k}" for k, v in stats.items()))
+    return 0
+
+
+def cmd_export(args: argparse.Namespace) -> int:
+    from app.jobs import export_coco
+
+    states = _states(args.states) if args.states else None
+    with _open(args, write=False) as project:
+        stats = export_coco(project, args.out, states=states)
+    print(f"wrote {args.out}: {stats['images']} images, {stats['people']} people")
+    return 0
+
+
+def cmd_history(args: argparse.Namespace) -> int:
+    with _open(args, write=False) as project:
+        frame_id = project.find_frame(args.frame).id if args.frame is not None else None
+        entries = project.history(frame_id=frame_id, limit=args.limit)
+    if args.json:
+        _print_json([e.__dict__ for e in entries])
+        return 0
+    for e in entries:
+        when = time.strftime("%Y-%m-%d %H:%M:%S", time.localtime(e.time))
+        frame = "-" if e.frame_id is None else str(e.frame_id)
+        print(f"{e.seq:>6}  {when}  {e.author:<12}  frame {frame:<6}  {e.kind:<6}  "
+              f"{e.target:<22}  {e.summary}")
+    return 0
+
+
+def cmd_summary(args: argparse.Namespace) -> int:
+    from app.jobs import summary
+
+    with _open(args, write=False) as project:
+        info = summary(project)
+    if args.json:
+        _print_json(info)
+    else:
+        for key, value in info.items():
+            if value is not None:
+                print(f"{key:>18}: {value}")
+    return 0
+
+
+def cmd_demo(args: argparse.Namespace) -> int:
+    from app.demo import generate
+
+    out = Path(args.dir)
+    generate(out, seed=args.seed, frames=args.frames)
+    print(f"wrote the demo scenario to {out}; open it with `posewright open {out}`")
+    return 0
+
+
+def _states(text: str) -> list[FrameState]:
+    try:
+        return [FrameState.parse(s) for s in text.split(",") if s.strip()]
+    except ValueError as exc:
+        raise BadInput(str(exc), where="--states") from None
+
+
+# ---------------------------------------------------------------------- wiring
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(prog="posewright", description=__doc__.splitlines()[0])
+    parser.add_argument("-v", "--verbose", action="store_true", help="log what happens")
+    sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND",
+                                parser_class=_Parser)
+
+    def command(name: str, fn: Callable[[argparse.Namespace], int], text: str,
+                project: bool = True) -> argparse.ArgumentParser:
+        p = sub.add_parser(name, help=text, description=text)
+        if project:
+            p.add_argument("project", metavar="PROJECT", help="the project folder")
+        p.add_argument("--author", help="who is working (default: $POSEWRIGHT_AUTHOR or the "
+                                        "login name)")
+        p.add_argument("-q", "--quiet", action="store_true", help="no progress on stderr")
+        p.set_defaults(fn=fn)
+        return p
+
+    p = command("new", cmd_new, "make a project from a folder of images")
+    p.add_argument("--images", metavar="DIR", help="folder of images (searched recursively)")
+    p.add_argument("--skeleton", metavar="FILE.json", help="custom skeleton (default: COCO body)")
+
+    p = command("add", cmd_add, "add the new images of a folder to a project")
+    p.add_argument("--images", metavar="DIR", required=True)
+
+    p = command("import", cmd_import, "import COCO keypoints labels (dataset or results list)")
+    p.add_argument("file", metavar="FILE.json")
+    p.add_argument("--json", action="store_true", help="print the counts as JSON")
+
+    p = command("export", cmd_export, "export the labels as a COCO keypoints dataset")
+    p.add_argument("--out", metavar="FILE.json", required=True)
+    p.add_argument("--states", metavar="LIST",
+                   help="only frames in these states, e.g. corrected,signed-off")
+
+    p = command("history", cmd_history, "show the ledger of edits, newest first")
+    p.add_argument("--frame", metavar="ID", help="only this frame (id or file name)")
+    p.add_argument("--limit", type=int, metavar="N")
+    p.add_argument("--json", action="store_true")
+
+    p = command("summary", cmd_summary, "what the project holds")
+    p.add_argument("--json", action="store_true")
+
+    p = command("demo", cmd_demo, "generate the synthetic demo scenario in DIR", project=False)
+    p.add_argument("dir", metavar="DIR")
+    p.add_argument("--seed", type=int, default=7)
+    p.add_argument("--frames", type=int, default=24)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    logging.basicConfig(level=logging.INFO if args.verbose else logging.WARNING,
+                        format="posewright: %(levelname)s: %(message)s")
+    try:
+        return int(args.fn(args))
+    except Cancelled as exc:
+        print(f"posewright: {exc}; nothing was changed", file=sys.stderr)
+        return 130
+    except PosewrightError as exc:
+        print(f"posewright: error: {exc}", file=sys.stderr)
+        return exc.exit_status
+    except KeyboardInterrupt:
+        print("posewright: interrupted; the action in flight was not kept", file=sys.stderr)
+        return 130
+    except OSError as exc:
+        where = f"{exc.filename}: " if exc.filename else ""
+        print(f"posewright: error: {where}{exc.strerror or exc}", file=sys.stderr)
+        return 2

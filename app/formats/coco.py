@@ -1,0 +1,517 @@
+"""COCO keypoints JSON, in and out.
+
+Two forms are read (the COCO keypoints standard, https://cocodataset.org/#format-data):
+
+- a **dataset**: ``{"images": [...], "annotations": [...], "categories": [...]}``;
+- a **results list**: ``[{"image_id", "category_id", "keypoints", "score"}, ...]`` (model output).
+
+Reading is strict and all-or-nothing: the first problem stops the import with a
+:class:`~app.errors.BadInput` naming the file, the record and the field. Checked: valid JSON,
+the shape of every record (pydantic), finite numbers, ``3 * K`` keypoint values for the
+project's skeleton, visibility in {0, 1, 2}, unique ids, known image and category ids, image
+sizes between 1 and 65,536 pixels, keypoints within one image size of the image.
+
+Conventions decided here:
+
+- Dataset annotations are labels (provenance ``"import"``); an annotation that carries a
+  ``score`` is model output and is stored as an auto-label with that score.
+- In a results list the third keypoint value is visibility when every such value in the file is
+  0, 1 or 2; otherwise it is read as the model's per-joint score in [0, 1] (a common practice of
+  detectors, no source), stored as the joint's score, with ``v = 2`` where the score is above 0
+  and ``v = 0`` where it is 0.
+- ``v = 0`` joints keep no position (COCO writes 0, 0 for them).
+- Crowd annotations (``iscrowd: 1``) are ignore regions, not people.
+
+Writing produces a dataset. Image ids, file names, the category record and every annotation
+field we do not compute are written back as they were read. Computed fields:
+``num_keypoints`` is the number of joints with ``v > 0``; ``bbox`` and ``area`` are the
+imported ones when the person came from a file (they describe the person's outline, which
+moving joints does not change), otherwise ``bbox`` is the tight box ``[x, y, w, h]`` around the
+labelled joints and ``area`` is ``w * h`` (common practice for keypoint-only labels, no source).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path, PurePosixPath
+from typing import Any
+
+import numpy as np
+from pydantic import (
+    BaseModel,
+    ConfigDict,
+    Field,
+    StrictFloat,
+    StrictInt,
+    StrictStr,
+    TypeAdapter,
+    ValidationError,
+)
+
+from app.errors import BadInput
+from app.formats.images import MAX_SIDE
+from app.model.labels import AUTO, IMPORTED, Frame, Person
+from app.model.skeleton import Skeleton
+
+Number = StrictInt | StrictFloat
+
+
+class _Image(BaseModel):
+    model_config = ConfigDict(extra="allow")
+    id: StrictInt
+    file_name: StrictStr = Field(min_length=1)
+    width: StrictInt | None = None
+    height: StrictInt | None = None
+
+
+class _Annotation(BaseModel):
+    model_config = ConfigDict(extra="allow")
+    id: StrictInt
+    image_id: StrictInt
+    category_id: StrictInt
+    keypoints: list[Number] = Field(default_factory=list)
+    iscrowd: StrictInt = 0
+    score: Number | None = None
+
+
+class _Category(BaseModel):
+    model_config = ConfigDict(extra="allow")
+    id: StrictInt
+    name: StrictStr
+    keypoints: list[StrictStr] = Field(default_factory=list)
+    skeleton: list[tuple[StrictInt, StrictInt]] = Field(default_factory=list)
+
+
+class _Dataset(BaseModel):
+    model_config = ConfigDict(extra="allow")
+    images: list[_Image]
+    annotations: list[_Annotation]
+    categories: list[_Category]
+
+
+class _Result(BaseModel):
+    model_config = ConfigDict(extra="allow")
+    image_id: StrictInt
+    category_id: StrictInt
+    keypoints: list[Number]
+    score: Number
+
+
+_DATASET = TypeAdapter(_Dataset)
+_RESULTS = TypeAdapter(list[_Result])
+
+
+@dataclass
+class CocoImport:
+    """A validated COCO file, matched against the project's frames, ready to write.
+
+    ``frame_ids`` maps each COCO image id to the project frame it matched; ``rekey`` gives the
+    frame ids that must change so that frames carry the COCO image ids; ``people`` are
+    ``(frame_id, Person)`` with frame ids *after* rekeying; ``regions`` are ignore regions
+    ``(frame_id, polygons, extra)``.
+    """
+
+    kind: str
+    path: str
+    frame_ids: dict[int, int] = field(default_factory=dict)
+    rekey: dict[int, int] = field(default_factory=dict)
+    file_names: dict[int, str] = field(default_factory=dict)
+    image_extra: dict[int, dict[str, Any]] = field(default_factory=dict)
+    people: list[tuple[int, Person]] = field(default_factory=list)
+    regions: list[tuple[int, list[list[float]], dict[str, Any]]] = field(default_factory=list)
+    category: dict[str, Any] | None = None
+    dataset_extra: dict[str, Any] = field(default_factory=dict)
+    fresh_people: int = 0  # people that need ids from the project (results lists)
+
+
+def read_coco(path: str | Path, skeleton: Skeleton, frames: Sequence[Frame]) -> CocoImport:
+    """Read and validate a COCO keypoints file against the project's skeleton and frames.
+
+    Nothing is written; the returned :class:`CocoImport` says what an import would do.
+
+    Raises
+    ------
+    BadInput
+        On the first problem, naming the file, the record and the field.
+    """
+    path = Path(path)
+    where = str(path)
+    try:
+        raw = path.read_bytes()
+    except OSError as exc:
+        raise BadInput(f"cannot read the file ({exc.strerror})", where=where) from None
+    try:
+        data = json.loads(raw)
+    except (json.JSONDecodeError, UnicodeDecodeError) as exc:
+        raise BadInput(f"not valid JSON ({exc})", where=where,
+                       hint="is the file complete?") from None
+    if isinstance(data, list):
+        return _read_results(data, where, skeleton, frames)
+    if isinstance(data, dict) and "annotations" in data:
+        return _read_dataset(data, where, skeleton, frames)
+    raise BadInput("neither a COCO dataset (images, annotations, categories) nor a results list",
+                   where=where)
+
+
+def _validation_error(exc: ValidationError, data: Any, where: str, root: str = "") -> BadInput:
+    err = exc.errors(include_url=False)[0]
+    loc = list(err["loc"])
+    record = root
+    value: Any = data
+    if len(loc) > 1 and isinstance(loc[0], str) and isinstance(loc[1], int) \
+            and isinstance(data, dict):
+        record = str(loc.pop(0))
+        value = data.get(record)
+    if loc and isinstance(loc[0], int):
+        i = int(loc.pop(0))
+        item = value[i] if isinstance(value, list) and i < len(value) else None
+        ident = item.get("id") if isinstance(item, dict) else None
+        record = f"{record}[{i}]" + (f" (id {ident})" if ident is not None else "")
+    field_name = ".".join(str(p) for p in loc) or "record"
+    msg = err["msg"][:1].lower() + err["msg"][1:]
+    if err.get("type") in ("int_type", "float_type", "int_parsing", "float_parsing"):
+        msg = f"{msg}, got {err.get('input')!r}"
+    prefix = f"{record}: " if record else ""
+    return BadInput(f"{prefix}field {field_name}: {msg}", where=where)
+
+
+def _check_keypoints(values: Sequence[float], k: int, where: str, record: str,
+                     visibility: bool = True) -> np.ndarray:
+    if len(values) != 3 * k:
+        raise BadInput(
+            f"{record}: field keypoints: {len(values)} values, the project's skeleton needs "
+            f"{3 * k} (x, y, v for {k} joints)", where=where)
+    kp = np.asarray(values, dtype=np.float64).reshape(k, 3)
+    if not np.isfinite(kp).all():
+        j = int(np.flatnonzero(~np.isfinite(kp).all(axis=1))[0])
+        raise BadInput(f"{record}: field keypoints: joint {j} is not a finite number",
+                       where=where)
+    if visibility:
+        bad = ~np.isin(kp[:, 2], (0, 1, 2))
+        if bad.any():
+            j = int(np.flatnonzero(bad)[0])
+            raise BadInput(
+                f"{record}: field keypoints: visibility {kp[j, 2]:g} of joint {j} is not one "
+                "of 0, 1, 2", where=where)
+    return kp
+
+
+def _check_range(kp: np.ndarray, frame: Frame, where: str, record: str) -> None:
+    if frame.width <= 0 or frame.height <= 0:
+        return
+    on = kp[:, 2] > 0
+    w, h = frame.width, frame.height
+    out = on & ((kp[:, 0] < -w) | (kp[:, 0] > 2 * w) | (kp[:, 1] < -h) | (kp[:, 1] > 2 * h))
+    if out.any():
+        j = int(np.flatnonzero(out)[0])
+        raise BadInput(
+            f"{record}: field keypoints: joint {j} at ({kp[j, 0]:g}, {kp[j, 1]:g}) is far "
+            f"outside the {w}x{h} image", where=where)
+
+
+def _unique(ids: Iterable[int], what: str, where: str) -> None:
+    seen: set[int] = set()
+    for i in ids:
+        if i in seen:
+            raise BadInput(f"{what} id {i} appears twice", where=where)
+        seen.add(i)
+
+
+def _check_category(cat: _Category, skeleton: Skeleton, where: str, i: int) -> None:
+    record = f"categories[{i}] (id {cat.id})"
+    if len(cat.keypoints) != skeleton.num_joints:
+        raise BadInput(
+            f"{record}: field keypoints: {len(cat.keypoints)} joints, the project's skeleton "
+            f"has {skeleton.num_joints}", where=where)
+    for j, (a, b) in enumerate(zip(cat.keypoints, skeleton.joints)):
+        if a != b:
+            raise BadInput(
+                f"{record}: field keypoints: joint {j} is {a!r} here and {b!r} in the project's "
+                "skeleton", where=where, hint="import into a project made with this skeleton")
+    for n, (end1, end2) in enumerate(cat.skeleton):
+        if not (1 <= end1 <= len(cat.keypoints) and 1 <= end2 <= len(cat.keypoints)):
+            raise BadInput(f"{record}: field skeleton.{n}: joint numbers are 1-based and must "
+                           f"lie in 1..{len(cat.keypoints)}", where=where)
+
+
+def _match_frames(images: Sequence[_Image], frames: Sequence[Frame],
+                  where: str) -> dict[int, Frame]:
+    by_name = {f.file_name: f for f in frames}
+    by_base: dict[str, list[Frame]] = {}
+    for f in frames:
+        by_base.setdefault(PurePosixPath(f.file_name).name, []).append(f)
+    matched: dict[int, Frame] = {}
+    used: dict[int, int] = {}
+    for i, img in enumerate(images):
+        record = f"images[{i}] (id {img.id})"
+        name = PurePosixPath(img.file_name.replace("\\", "/")).as_posix()
+        frame = by_name.get(name)
+        if frame is None:
+            candidates = by_base.get(PurePosixPath(name).name, [])
+            if len(candidates) > 1:
+                raise BadInput(
+                    f"{record}: field file_name: {img.file_name!r} matches {len(candidates)} "
+                    "project images by base name", where=where,
+                    hint="use file names relative to the project's images folder")
+            frame = candidates[0] if candidates else None
+        if frame is None:
+            raise BadInput(f"{record}: field file_name: {img.file_name!r} is not in the project",
+                           where=where, hint="register the images first (posewright new/add)")
+        if frame.id in used:
+            raise BadInput(f"{record}: field file_name: {img.file_name!r} is the same project "
+                           f"image as image id {used[frame.id]}", where=where)
+        used[frame.id] = img.id
+        for side, got, have in (("width", img.width, frame.width),
+                                ("height", img.height, frame.height)):
+            if got is None:
+                continue
+            if not 1 <= got <= MAX_SIDE:
+                raise BadInput(f"{record}: field {side}: {got} is not a plausible image size",
+                               where=where)
+            if frame.status == "ok" and got != have:
+                raise BadInput(
+                    f"{record}: field {side}: {got} here, but the image on disk is "
+                    f"{frame.width}x{frame.height}", where=where)
+        matched[img.id] = frame
+    return matched
+
+
+def _rekey(matched: Mapping[int, Frame], frames: Sequence[Frame]) -> dict[int, int]:
+    """Old -> new frame ids so that matched frames carry their COCO image ids. Unmatched frames
+    whose id a COCO image claims move to fresh ids above every other."""
+    mapping = {f.id: image_id for image_id, f in matched.items()}
+    claimed = set(mapping.values())
+    top = max([f.id for f in frames] + list(claimed) + [0])
+    for f in frames:
+        if f.id not in mapping and f.id in claimed:
+            top += 1
+            mapping[f.id] = top
+    return {o: n for o, n in mapping.items() if o != n}
+
+
+def _read_dataset(data: dict[str, Any], where: str, skeleton: Skeleton,
+                  frames: Sequence[Frame]) -> CocoImport:
+    try:
+        ds = _DATASET.validate_python(data)
+    except ValidationError as exc:
+        raise _validation_error(exc, data, where) from None
+    _unique((im.id for im in ds.images), "image", where)
+    _unique((a.id for a in ds.annotations), "annotation", where)
+    _unique((c.id for c in ds.categories), "category", where)
+    cats = {}
+    for i, c in enumerate(ds.categories):
+        _check_category(c, skeleton, where, i)
+        cats[c.id] = c
+    if not cats:
+        raise BadInput("field categories: no category", where=where)
+    matched = _match_frames(ds.images, frames, where)
+    rekey = _rekey(matched, frames)
+    out = CocoImport("dataset", where, rekey=rekey)
+    for img in ds.images:
+        out.frame_ids[img.id] = img.id
+        out.file_names[img.id] = img.file_name
+        extra = {k: v for k, v in (img.model_extra or {}).items()}
+        if extra:
+            out.image_extra[img.id] = extra
+    k = skeleton.num_joints
+    raw_annotations = data["annotations"]
+    for i, a in enumerate(ds.annotations):
+        record = f"annotations[{i}] (id {a.id})"
+        if a.image_id not in matched:
+            raise BadInput(f"{record}: field image_id: no image with id {a.image_id}",
+                           where=where)
+        if a.category_id not in cats:
+            raise BadInput(f"{record}: field category_id: no category with id {a.category_id}",
+                           where=where)
+        if a.score is not None and not math.isfinite(a.score):
+            raise BadInput(f"{record}: field score: not a finite number", where=where)
+        extra = {key: v for key, v in raw_annotations[i].items()
+                 if key not in ("id", "image_id", "keypoints", "score", "num_keypoints")}
+        if a.iscrowd:
+            kept = {key: v for key, v in raw_annotations[i].items() if key != "image_id"}
+            out.regions.append(
+                (a.image_id, _crowd_polygons(raw_annotations[i], where, record), kept))
+            continue
+        kp = _check_keypoints(a.keypoints, k, where, record)
+        _check_range(kp, matched[a.image_id], where, record)
+        kp[kp[:, 2] == 0, :2] = np.nan
+        source = AUTO if a.score is not None else IMPORTED
+        person = Person(a.id, kp, np.full(k, np.nan), (source,) * k,
+                        None if a.score is None else float(a.score), extra)
+        out.people.append((a.image_id, person))
+    cat = next(iter(cats.values()))
+    out.category = {key: v for key, v in data["categories"][0].items()}
+    out.category["id"] = cat.id
+    out.dataset_extra = {key: v for key, v in data.items()
+                         if key not in ("images", "annotations", "categories")}
+    return out
+
+
+def _crowd_polygons(raw: Mapping[str, Any], where: str, record: str) -> list[list[float]]:
+    seg = raw.get("segmentation")
+    polys: list[list[float]] = []
+    if isinstance(seg, list):
+        for n, poly in enumerate(seg):
+            ok = (isinstance(poly, list) and len(poly) >= 6 and len(poly) % 2 == 0 and
+                  all(isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
+                      for v in poly))
+            if not ok:
+                raise BadInput(f"{record}: field segmentation.{n}: a polygon needs an even "
+                               "number (at least 6) of finite coordinates", where=where)
+            polys.append([float(v) for v in poly])
+    if not polys:
+        # Run-length masks are kept verbatim for export; the region drawn is their bbox.
+        bbox = raw.get("bbox")
+        if not (isinstance(bbox, list) and len(bbox) == 4 and
+                all(isinstance(v, (int, float)) and math.isfinite(v) for v in bbox)):
+            raise BadInput(f"{record}: field bbox: a crowd annotation without polygons needs a "
+                           "bbox [x, y, w, h]", where=where)
+        x, y, w, h = (float(v) for v in bbox)
+        polys.append([x, y, x + w, y, x + w, y + h, x, y + h])
+    return polys
+
+
+def _read_results(data: list[Any], where: str, skeleton: Skeleton,
+                  frames: Sequence[Frame]) -> CocoImport:
+    try:
+        results = _RESULTS.validate_python(data)
+    except ValidationError as exc:
+        raise _validation_error(exc, data, where, root="results") from None
+    k = skeleton.num_joints
+    by_id = {f.id: f for f in frames}
+    out = CocoImport("results", where)
+    arrays = []
+    for i, r in enumerate(results):
+        record = f"results[{i}]"
+        if r.image_id not in by_id:
+            raise BadInput(f"{record}: field image_id: no project frame with id {r.image_id}",
+                           where=where, hint="import the dataset with these image ids first")
+        if not math.isfinite(r.score):
+            raise BadInput(f"{record}: field score: not a finite number", where=where)
+        arrays.append(_check_keypoints(r.keypoints, k, where, record, visibility=False))
+    third = np.concatenate([a[:, 2] for a in arrays]) if arrays else np.zeros(0)
+    as_visibility = bool(np.isin(third, (0, 1, 2)).all())
+    if not as_visibility and ((third < 0) | (third > 1)).any():
+        i = next(n for n, a in enumerate(arrays) if ((a[:, 2] < 0) | (a[:, 2] > 1)).any())
+        raise BadInput(
+            f"results[{i}]: field keypoints: third values must all be visibility (0, 1, 2) or "
+            "all be scores in [0, 1]", where=where)
+    for i, (r, kp) in enumerate(zip(results, arrays)):
+        frame = by_id[r.image_id]
+        if as_visibility:
+            scores = np.where(kp[:, 2] > 0, float(r.score), np.nan)
+        else:
+            scores = kp[:, 2].copy()
+            kp[:, 2] = np.where(scores > 0, 2, 0)
+        _check_range(kp, frame, where, f"results[{i}]")
+        kp[kp[:, 2] == 0, :2] = np.nan
+        extra = {key: v for key, v in data[i].items()
+                 if key not in ("image_id", "keypoints", "score", "id")}
+        out.people.append((frame.id, Person(0, kp, scores, (AUTO,) * k, float(r.score), extra)))
+    out.fresh_people = len(out.people)
+    return out
+
+
+# ---------------------------------------------------------------------- writing
+
+def person_box(keypoints: np.ndarray) -> list[float]:
+    """Tight ``[x, y, w, h]`` around the labelled joints (zeros when none is labelled).
+
+    Examples
+    --------
+    >>> person_box(np.array([[10., 20., 2], [30., 25., 1], [np.nan, np.nan, 0]]))
+    [10.0, 20.0, 20.0, 5.0]
+    """
+    on = keypoints[:, 2] > 0
+    if not on.any():
+        return [0.0, 0.0, 0.0, 0.0]
+    xy = keypoints[on, :2]
+    x0, y0 = xy.min(axis=0)
+    x1, y1 = xy.max(axis=0)
+    return [float(x0), float(y0), float(x1 - x0), float(y1 - y0)]
+
+
+def _clean_number(v: float) -> float | int:
+    return int(v) if float(v).is_integer() else float(v)
+
+
+def annotation(person: Person, image_id: int, category_id: int) -> dict[str, Any]:
+    """One COCO annotation for a person (see the module docstring for computed fields)."""
+    kp = person.keypoints
+    flat: list[float | int] = []
+    for x, y, v in kp:
+        if v > 0:
+            flat += [_clean_number(x), _clean_number(y), int(v)]
+        else:
+            flat += [0, 0, 0]
+    extra = dict(person.extra)
+    ann: dict[str, Any] = {"id": person.id, "image_id": image_id,
+                           "category_id": extra.pop("category_id", category_id)}
+    ann["keypoints"] = flat
+    ann["num_keypoints"] = int(np.count_nonzero(kp[:, 2] > 0))
+    if "bbox" not in extra:
+        box = person_box(kp)
+        extra["bbox"] = [round(b, 2) for b in box]
+        extra.setdefault("area", round(box[2] * box[3], 2))
+    extra.setdefault("area", round(extra["bbox"][2] * extra["bbox"][3], 2))
+    extra.setdefault("iscrowd", 0)
+    ann.update(extra)
+    if person.score is not None:
+        ann["score"] = person.score
+    return ann
+
+
+def dataset(
+    frames: Sequence[Frame],
+    people: Mapping[int, Sequence[Person]],
+    category: Mapping[str, Any],
+    regions: Mapping[int, Sequence[tuple[int, list[list[float]], Mapping[str, Any]]]] = {},
+    image_extra: Mapping[int, Mapping[str, Any]] = {},
+    dataset_extra: Mapping[str, Any] = {},
+) -> dict[str, Any]:
+    """A COCO keypoints dataset for ``frames`` and their people (and ignore regions)."""
+    cat_id = int(category["id"])
+    images, annotations = [], []
+    for f in frames:
+        image = {"id": f.id, "file_name": f.file_name, "width": f.width, "height": f.height}
+        image.update(image_extra.get(f.id, {}))
+        images.append(image)
+        for p in people.get(f.id, ()):
+            annotations.append(annotation(p, f.id, cat_id))
+        for region_id, polygons, extra in regions.get(f.id, ()):
+            annotations.append(crowd_annotation(region_id, f.id, cat_id, polygons, extra))
+    out: dict[str, Any] = dict(dataset_extra)
+    out.update({"images": images, "annotations": annotations, "categories": [dict(category)]})
+    return out
+
+
+def crowd_annotation(region_id: int, image_id: int, category_id: int,
+                     polygons: Sequence[Sequence[float]],
+                     extra: Mapping[str, Any]) -> dict[str, Any]:
+    """A COCO crowd annotation (``iscrowd: 1``) for an ignore region."""
+    ann = {"id": int(extra.get("id", region_id)), "image_id": image_id,
+           "category_id": int(extra.get("category_id", category_id)),
+           "iscrowd": 1, "num_keypoints": 0}
+    k_extra = {k: v for k, v in extra.items() if k not in ("id", "image_id", "category_id")}
+    if "segmentation" not in k_extra:
+        k_extra["segmentation"] = [list(p) for p in polygons]
+    if "bbox" not in k_extra:
+        xs = np.concatenate([np.asarray(p[0::2]) for p in polygons])
+        ys = np.concatenate([np.asarray(p[1::2]) for p in polygons])
+        k_extra["bbox"] = [float(xs.min()), float(ys.min()), float(np.ptp(xs)), float(np.ptp(ys))]
+    k_extra.setdefault("area", float(_polygons_area(polygons)))
+    ann.update(k_extra)
+    ann["iscrowd"] = 1
+    return ann
+
+
+def _polygons_area(polygons: Sequence[Sequence[float]]) -> float:
+    total = 0.0
+    for p in polygons:
+        x = np.asarray(p[0::2], dtype=np.float64)
+        y = np.asarray(p[1::2], dtype=np.float64)
+        total += 0.5 * abs(float(np.dot(x, np.roll(y, -1)) - np.dot(y, np.roll(x, -1))))
+    return total

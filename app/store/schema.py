@@ -1,0 +1,127 @@
+"""The SQLite schema of a project and its forward migrations.
+
+The schema version lives in ``PRAGMA user_version``. Each migration takes the database from
+version ``n - 1`` to ``n`` inside one transaction; opening an older project applies the missing
+ones in order, opening a newer one is refused (nothing is changed).
+
+Layout:
+
+- ``meta``: key/value facts about the project (its id, skeleton, COCO category, images folder).
+- ``frames``: one row per image; ``path`` relative to the project folder (or absolute),
+  ``file_name`` as it appears in COCO files, ``state`` in the correction loop, ``status`` of
+  the image file (ok / missing / corrupt).
+- ``people``: one row per person; ``keypoints`` is the ``(K, 3)`` float64 array ``x, y, v`` as
+  little-endian bytes (exact round trip of any JSON number), ``scores`` the ``(K,)`` float64
+  model scores (NULL when none), ``sources`` a JSON list of per-joint provenance (NULL when every
+  joint has the person's ``origin``), ``extra`` the imported fields kept for round trip.
+- ``ledger``: append-only; one row per atomic change, a ``group_id`` per user action.
+- ``undo_stack`` / ``redo_stack``: the groups that undo and redo act on next, kept in the
+  database so that undo survives a restart.
+- ``notes``: the review thread of each frame.
+- ``regions``: ignore regions (people too small or too packed to label), polygons in image
+  pixels (``polygons``: a JSON list of flat ``[x0, y0, x1, y1, ...]`` lists); imported from
+  and exported to COCO crowd annotations (``iscrowd: 1``).
+"""
+
+from __future__ import annotations
+
+import sqlite3
+
+SCHEMA_VERSION = 1
+
+_V1 = """
+CREATE TABLE meta (
+    key   TEXT PRIMARY KEY,
+    value TEXT NOT NULL
+);
+CREATE TABLE frames (
+    id          INTEGER PRIMARY KEY,
+    path        TEXT NOT NULL UNIQUE,
+    file_name   TEXT NOT NULL,
+    width       INTEGER NOT NULL,
+    height      INTEGER NOT NULL,
+    state       TEXT NOT NULL DEFAULT 'untouched',
+    status      TEXT NOT NULL DEFAULT 'ok',
+    video_index INTEGER,
+    timestamp   REAL,
+    extra       TEXT
+);
+CREATE INDEX frames_file_name ON frames(file_name);
+CREATE TABLE people (
+    id        INTEGER PRIMARY KEY,
+    frame_id  INTEGER NOT NULL REFERENCES frames(id) ON UPDATE CASCADE,
+    keypoints BLOB NOT NULL,
+    scores    BLOB,
+    sources   TEXT,
+    origin    TEXT NOT NULL,
+    score     REAL,
+    extra     TEXT
+);
+CREATE INDEX people_frame ON people(frame_id);
+CREATE TABLE ledger (
+    seq      INTEGER PRIMARY KEY,
+    group_id INTEGER NOT NULL,
+    kind     TEXT NOT NULL,
+    action   TEXT NOT NULL,
+    summary  TEXT NOT NULL DEFAULT '',
+    author   TEXT NOT NULL,
+    time     REAL NOT NULL,
+    frame_id INTEGER,
+    target   TEXT NOT NULL,
+    before   TEXT,
+    after    TEXT,
+    reverts  INTEGER
+);
+CREATE INDEX ledger_frame ON ledger(frame_id, seq);
+CREATE INDEX ledger_group ON ledger(group_id);
+CREATE TABLE undo_stack (pos INTEGER PRIMARY KEY, group_id INTEGER NOT NULL);
+CREATE TABLE redo_stack (pos INTEGER PRIMARY KEY, group_id INTEGER NOT NULL);
+CREATE TABLE notes (
+    id        INTEGER PRIMARY KEY,
+    frame_id  INTEGER NOT NULL REFERENCES frames(id) ON UPDATE CASCADE,
+    person_id INTEGER,
+    author    TEXT NOT NULL,
+    time      REAL NOT NULL,
+    text      TEXT NOT NULL
+);
+CREATE INDEX notes_frame ON notes(frame_id);
+CREATE TABLE regions (
+    id       INTEGER PRIMARY KEY,
+    frame_id INTEGER NOT NULL REFERENCES frames(id) ON UPDATE CASCADE,
+    polygons TEXT NOT NULL,
+    extra    TEXT
+);
+CREATE INDEX regions_frame ON regions(frame_id);
+"""
+
+#: ``MIGRATIONS[n]`` takes the schema from version ``n - 1`` to ``n``.
+MIGRATIONS: dict[int, str] = {1: _V1}
+
+
+def schema_version(conn: sqlite3.Connection) -> int:
+    return int(conn.execute("PRAGMA user_version").fetchone()[0])
+
+
+def migrate(conn: sqlite3.Connection, target: int = SCHEMA_VERSION) -> int:
+    """Apply the missing migrations up to ``target``, each in its own transaction.
+
+    Returns the version reached. The connection must be in autocommit mode
+    (``isolation_level=None``).
+    """
+    version = schema_version(conn)
+    for n in range(version + 1, target + 1):
+        conn.execute("BEGIN IMMEDIATE")
+        try:
+            for statement in _statements(MIGRATIONS[n]):
+                conn.execute(statement)
+            conn.execute(f"PRAGMA user_version = {n}")
+            conn.execute("COMMIT")
+        except BaseException:
+            conn.execute("ROLLBACK")
+            raise
+        version = n
+    return version
+
+
+def _statements(script: str) -> list[str]:
+    return [s.strip() for s in script.split(";") if s.strip()]

@@ -1,0 +1,246 @@
+"""COCO keypoints in and out: round trip checked with pycocotools, strict validation."""
+
+import copy
+import json
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from app.errors import BadInput
+from app.jobs import export_coco, import_coco
+from app.model import MoveJoint, SetVisibility
+from app.store import Project
+
+
+def _load(path):
+    return json.loads(path.read_text())
+
+
+def test_dataset_round_trip_is_exact(project, coco_file, tmp_path):
+    import_coco(project, coco_file)
+    out = tmp_path / "out.json"
+    export_coco(project, out)
+    assert _load(out) == _load(coco_file)
+
+
+def test_frames_take_the_coco_image_ids(project, coco_file):
+    import_coco(project, coco_file)
+    original = _load(coco_file)
+    by_name = {im["file_name"]: im["id"] for im in original["images"]}
+    for f in project.frames():
+        assert f.id == by_name[f.file_name]
+    assert {p.id for ps in project.people_by_frame().values() for p in ps} == \
+        {a["id"] for a in original["annotations"]}
+
+
+def test_export_is_evaluated_perfect_by_pycocotools(project, coco_file, tmp_path):
+    """Source: pycocotools COCO / COCOeval (keypoints): our export, read as detections with
+    score 1, against the original file gives AP 1.0."""
+    from pycocotools.coco import COCO
+    from pycocotools.cocoeval import COCOeval
+
+    import_coco(project, coco_file)
+    out = tmp_path / "out.json"
+    export_coco(project, out)
+    gt = COCO(str(coco_file))
+    exported = COCO(str(out))  # loads as a dataset
+    dets = [dict(a, score=1.0) for a in exported.dataset["annotations"] if a["num_keypoints"]]
+    ev = COCOeval(gt, gt.loadRes(dets), iouType="keypoints")
+    ev.evaluate()
+    ev.accumulate()
+    ev.summarize()
+    assert ev.stats[0] == pytest.approx(1.0)
+
+
+def test_edited_labels_export_with_recomputed_counts(project, coco_file, tmp_path):
+    import_coco(project, coco_file)
+    frame = project.frames()[0]
+    person = project.people(frame.id)[0]
+    j = int(np.flatnonzero(person.labelled)[0])
+    project.apply(SetVisibility(frame.id, person.id, j, 0))
+    project.apply(MoveJoint(frame.id, person.id, 16, 12.5, 13.5))
+    out = tmp_path / "out.json"
+    export_coco(project, out)
+    ann = next(a for a in _load(out)["annotations"] if a["id"] == person.id)
+    assert ann["keypoints"][3 * j: 3 * j + 3] == [0, 0, 0]
+    assert ann["keypoints"][48:51][:2] == [12.5, 13.5]
+    assert ann["num_keypoints"] == int((np.asarray(ann["keypoints"][2::3]) > 0).sum())
+
+
+def test_new_people_get_a_computed_box(project, tmp_path):
+    from app.model import NewPerson
+
+    kp = tuple((10.0 + 2 * j, 20.0 + j, 2 if j < 10 else 0) for j in range(17))
+    project.apply(NewPerson(1, None, kp))
+    out = tmp_path / "out.json"
+    export_coco(project, out)
+    ann = _load(out)["annotations"][0]
+    assert ann["bbox"] == [10.0, 20.0, 18.0, 9.0] and ann["area"] == 162.0
+    assert ann["num_keypoints"] == 10
+    assert _load(out)["categories"][0]["skeleton"][0] == [16, 14]  # 1-based
+
+
+def test_results_list_becomes_auto_labels_with_scores(project, coco_file, tmp_path):
+    import_coco(project, coco_file)
+    image_id = project.frames()[0].id
+    kp = []
+    for j in range(17):
+        kp += [30.0 + j, 40.0 + j, 0.9 if j != 3 else 0.0]  # per-joint scores
+    res = tmp_path / "res.json"
+    res.write_text(json.dumps([{"image_id": image_id, "category_id": 1, "keypoints": kp,
+                                "score": 0.77}]))
+    before = {p.id for p in project.people(image_id)}
+    stats = import_coco(project, res)
+    assert stats["people"] == 1
+    (new,) = [p for p in project.people(image_id) if p.id not in before]
+    assert new.sources[0] == "auto" and new.score == pytest.approx(0.77)
+    assert new.scores[0] == pytest.approx(0.9) and new.keypoints[3, 2] == 0
+    assert new.keypoints[0, 2] == 2
+
+
+def _write(tmp_path, data, name="bad.json"):
+    path = tmp_path / name
+    path.write_text(data if isinstance(data, str) else json.dumps(data))
+    return path
+
+
+def _bad_variants(ds):
+    def mutate(fn):
+        d = copy.deepcopy(ds)
+        fn(d)
+        return d
+
+    a0 = "annotations[0]"
+    return [
+        ("{ truncated", "not valid JSON"),
+        (mutate(lambda d: d["annotations"][0].update(keypoints=[1, 2, 2] * 16)),
+         f"{a0} (id 5000): field keypoints: 48 values"),
+        (mutate(lambda d: d["annotations"][0]["keypoints"].__setitem__(0, "12")),
+         f"{a0} (id 5000): field keypoints.0"),
+        (mutate(lambda d: d["annotations"][0]["keypoints"].__setitem__(2, 3)),
+         "visibility 3 of joint 0"),
+        (mutate(lambda d: d["annotations"][0].update(image_id=99999)), "no image with id 99999"),
+        (mutate(lambda d: d["annotations"][0].update(category_id=4)), "no category with id 4"),
+        (mutate(lambda d: d["annotations"][1].update(id=5000)), "annotation id 5000 appears twice"),
+        (mutate(lambda d: d["images"][0].update(file_name="elsewhere.jpg")),
+         "images[0] (id 100): field file_name: 'elsewhere.jpg' is not in the project"),
+        (mutate(lambda d: d["images"][0].update(width=10**7)), "not a plausible image size"),
+        (mutate(lambda d: d["images"][0].update(width=321)), "image on disk is 320x240"),
+        (mutate(lambda d: d["annotations"][0]["keypoints"].__setitem__(0, 10**6)),
+         "far outside"),
+        (mutate(lambda d: d["categories"][0]["keypoints"].__setitem__(1, "eye_l")),
+         "joint 1 is 'eye_l' here"),
+        (mutate(lambda d: d.pop("images")), "field images"),
+    ]
+
+
+def test_bad_files_are_refused_with_where_and_nothing_written(project, coco_file, tmp_path):
+    ds = _load(coco_file)
+    for n, (data, words) in enumerate(_bad_variants(ds)):
+        path = _write(tmp_path, data, f"bad{n}.json")
+        with pytest.raises(BadInput) as err:
+            import_coco(project, path)
+        assert words in str(err.value), (n, str(err.value))
+        assert f"bad{n}.json" in str(err.value)
+        assert project.counts()["people"] == 0 and project.history() == []
+        assert [f.id for f in project.frames()] == [1, 2, 3, 4, 5, 6]
+
+
+def test_nan_and_infinity_are_refused(project, coco_file, tmp_path):
+    text = coco_file.read_text()
+    first = json.dumps(_load(coco_file)["annotations"][0]["keypoints"][0])
+    for token in ("NaN", "Infinity", "-Infinity"):
+        path = _write(tmp_path, text.replace(first, token, 1), "nan.json")
+        with pytest.raises(BadInput, match=r"finite|valid number"):
+            import_coco(project, path)
+    assert project.counts()["people"] == 0
+
+
+def test_reimport_is_refused_as_a_whole(project, coco_file):
+    import_coco(project, coco_file)
+    n = project.counts()["people"]
+    with pytest.raises(BadInput, match="already in the project"):
+        import_coco(project, coco_file)
+    assert project.counts()["people"] == n
+
+
+def test_crowd_annotations_become_ignore_regions_and_round_trip(project, coco_file, tmp_path):
+    ds = _load(coco_file)
+    ds["annotations"].append({"id": 9000, "image_id": ds["images"][0]["id"], "category_id": 1,
+                              "iscrowd": 1, "segmentation": [[1, 1, 60, 1, 60, 50, 1, 50]],
+                              "bbox": [1, 1, 59, 49], "area": 2891.0, "num_keypoints": 0,
+                              "keypoints": [0] * 51})
+    path = _write(tmp_path, ds, "crowd.json")
+    import_coco(project, path)
+    assert project.regions(ds["images"][0]["id"])[0][1] == [[1, 1, 60, 1, 60, 50, 1, 50]]
+    out = tmp_path / "out.json"
+    export_coco(project, out)
+    got = _load(out)
+    assert sorted(got.pop("annotations"), key=lambda a: a["id"]) == \
+        sorted(ds.pop("annotations"), key=lambda a: a["id"])
+    assert got == ds
+
+
+# ---------------------------------------------------------------- fuzzing
+
+_json_values = st.recursive(
+    st.none() | st.booleans() | st.integers(-10**12, 10**12) | st.floats(allow_nan=True)
+    | st.text(max_size=6),
+    lambda inner: st.lists(inner, max_size=4) | st.dictionaries(st.text(max_size=8), inner,
+                                                                   max_size=4),
+    max_leaves=12)
+
+
+@settings(max_examples=120, deadline=None,
+          suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow])
+@given(st.data())
+def test_random_malformed_input_never_crashes_and_never_half_imports(
+        image_dir, coco_file, tmp_path_factory, data):
+    """Synthetic mutations of a valid file: replace one value anywhere, drop one key, or cut
+    the text; the import either succeeds whole or raises BadInput and writes nothing."""
+    ds = _load(coco_file)
+    paths = []
+
+    def collect(node, path):
+        paths.append(path)
+        if isinstance(node, dict):
+            for k, v in node.items():
+                collect(v, (*path, k))
+        elif isinstance(node, list):
+            for i, v in enumerate(node[:3]):
+                collect(v, (*path, i))
+
+    collect(ds, ())
+    mode = data.draw(st.sampled_from(["replace", "drop", "cut"]))
+    target = data.draw(st.sampled_from(paths[1:]))
+    if mode == "cut":
+        text = json.dumps(ds)
+        text = text[: data.draw(st.integers(0, len(text) - 1))]
+    else:
+        parent = ds
+        for key in target[:-1]:
+            parent = parent[key]
+        if mode == "replace":
+            parent[target[-1]] = data.draw(_json_values)
+        elif isinstance(parent, dict):
+            del parent[target[-1]]
+        else:
+            parent.pop(target[-1])
+        text = json.dumps(ds)
+    folder = tmp_path_factory.mktemp("fuzz")
+    path = folder / "fuzz.json"
+    path.write_text(text)
+    with Project.create(folder / "proj", images=image_dir) as project:
+        frames_before = project.frames()
+        try:
+            import_coco(project, path)
+        except BadInput as exc:
+            assert "fuzz.json" in str(exc) and "\n" not in str(exc)
+            assert project.counts()["people"] == 0 and project.history() == []
+            assert project.frames() == frames_before
+        else:
+            # Accepted whole: every person of the file is in.
+            people = [a for a in ds["annotations"] if not a.get("iscrowd")]
+            assert project.counts()["people"] == len(people)

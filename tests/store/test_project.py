@@ -1,0 +1,277 @@
+"""The store: durable edits, undo and redo through the ledger, locking, migrations."""
+
+import json
+import os
+import sqlite3
+import subprocess
+import sys
+import textwrap
+import time
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from app.errors import BadInput, EditRefused, NotFound, ReadOnly
+from app.model import (
+    AddNote,
+    DeletePerson,
+    FrameState,
+    MergePeople,
+    MoveJoint,
+    NewPerson,
+    ReassignJoint,
+    SetFrameState,
+    SetVisibility,
+    SplitPerson,
+    SwapSides,
+)
+from app.store import Project
+from app.store.schema import SCHEMA_VERSION
+
+ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
+
+
+def _snapshot(p):
+    return {f.id: (p.labels(f.id), f.state) for f in p.frames()}
+
+
+def _same(a, b):
+    return a.keys() == b.keys() and all(a[k][0].same_as(b[k][0]) and a[k][1] == b[k][1]
+                                        for k in a)
+
+
+def test_create_registers_images_with_sizes(project, image_dir):
+    frames = project.frames()
+    assert [f.id for f in frames] == [1, 2, 3, 4, 5, 6]
+    assert all((f.width, f.height, f.status) == (320, 240, "ok") for f in frames)
+    assert frames[0].file_name == "frame_0000.jpg"
+    assert project.image_path(frames[0]).resolve() == (image_dir / "frame_0000.jpg").resolve()
+
+
+def test_corrupt_and_unreadable_images_are_marked_not_fatal(tmp_path, image_dir):
+    (image_dir / "broken.png").write_bytes(b"\x89PNG not really")
+    with Project.create(tmp_path / "p2", images=image_dir) as p:
+        broken = p.find_frame("broken.png")
+        assert broken.status == "corrupt" and broken.width == 0
+
+
+def test_create_refuses_existing_project(project, tmp_path):
+    with pytest.raises(BadInput, match="already exists"):
+        Project.create(tmp_path / "proj")
+
+
+def test_open_missing_project_says_how_to_make_one(tmp_path):
+    with pytest.raises(NotFound, match="posewright new"):
+        Project.open(tmp_path)
+
+
+def test_edits_survive_reopen_with_ledger(project, tmp_path):
+    pid = project.apply(NewPerson(2)).edit.person_id
+    project.apply(MoveJoint(2, pid, 9, 33.5, 44.0))
+    project.apply(AddNote(2, "wrist belongs to the dancer behind"))
+    before = _snapshot(project)
+    ledger = project.history()
+    project.close()
+    with Project.open(tmp_path / "proj", author="ben") as again:
+        assert _same(_snapshot(again), before)
+        assert again.history() == ledger
+        assert again.frame(2).state is FrameState.CORRECTED
+        assert again.notes(2)[0].author == "ana"
+
+
+def test_first_label_edit_marks_frame_corrected_in_the_same_undo_step(project):
+    pid = project.apply(NewPerson(3)).edit.person_id
+    assert project.frame(3).state is FrameState.CORRECTED
+    project.undo()
+    assert project.frame(3).state is FrameState.UNTOUCHED
+    assert project.people(3) == []
+    project.redo()
+    assert project.frame(3).state is FrameState.CORRECTED
+    assert [p.id for p in project.people(3)] == [pid]
+
+
+def test_undo_and_redo_survive_restart(project, tmp_path):
+    pid = project.apply(NewPerson(1, None, tuple((10.0 + j, 20.0, 2) for j in range(17)))
+                        ).edit.person_id
+    project.apply(MoveJoint(1, pid, 0, 99.0, 98.0))
+    project.close()
+    with Project.open(tmp_path / "proj") as p:
+        assert p.undo() is not None
+        assert p.people(1)[0].keypoints[0, :2].tolist() == [10.0, 20.0]
+    with Project.open(tmp_path / "proj") as p:
+        assert p.redo() is not None
+        assert p.people(1)[0].keypoints[0, :2].tolist() == [99.0, 98.0]
+        kinds = [e.kind for e in p.history()]
+        assert kinds[:2] == ["redo", "undo"]  # nothing deleted, newest first
+
+
+def test_new_edit_clears_redo(project):
+    project.apply(NewPerson(1))
+    project.undo()
+    assert project.can_redo()
+    project.apply(NewPerson(1))
+    assert not project.can_redo()
+
+
+def test_refused_edit_changes_nothing(project):
+    before = _snapshot(project)
+    n = len(project.history())
+    with pytest.raises(EditRefused):
+        project.apply(DeletePerson(1, 12345))
+    assert _same(_snapshot(project), before) and len(project.history()) == n
+
+
+def test_reassign_is_one_undo_step(project):
+    a = project.apply(NewPerson(1, None, tuple((10.0 + j, 20.0, 2) for j in range(17))))
+    b = project.apply(NewPerson(1))
+    pa, pb = a.edit.person_id, b.edit.person_id
+    project.apply(ReassignJoint(1, pa, 9, pb))
+    people = {p.id: p for p in project.people(1)}
+    assert people[pb].keypoints[9, 2] == 2 and people[pa].keypoints[9, 2] == 0
+    project.undo()
+    people = {p.id: p for p in project.people(1)}
+    assert people[pa].keypoints[9, 2] == 2 and people[pb].keypoints[9, 2] == 0
+
+
+def test_return_to_a_point_is_itself_undoable(project):
+    pid = project.apply(NewPerson(1, None, tuple((10.0 + j, 20.0, 2) for j in range(17)))
+                        ).edit.person_id
+    point = project.history(limit=1)[0].seq
+    project.apply(MoveJoint(1, pid, 0, 1.0, 1.0))
+    project.apply(SwapSides(1, pid))
+    moved = project.people(1)[0].keypoints.copy()
+    project.return_to(point, frame_id=1)
+    assert project.people(1)[0].keypoints[0, :2].tolist() == [10.0, 20.0]
+    project.undo()
+    np.testing.assert_array_equal(project.people(1)[0].keypoints, moved)
+
+
+def test_second_process_gets_read_only_and_is_told_why(project, tmp_path):
+    code = textwrap.dedent(f"""
+        import sys; sys.path.insert(0, {ROOT!r})
+        from app.store import Project
+        p = Project.open({str(tmp_path / 'proj')!r})
+        print(p.read_only, p.read_only_reason)
+    """)
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True).stdout
+    assert out.startswith("True open for editing by ana")
+    assert f"process {os.getpid()}" in out
+
+
+def test_read_only_refuses_edits_in_the_same_process(project, tmp_path):
+    with Project.open(tmp_path / "proj") as second:
+        assert second.read_only
+        with pytest.raises(ReadOnly, match="read-only"):
+            second.apply(NewPerson(1))
+        assert [f.id for f in second.frames()] == [1, 2, 3, 4, 5, 6]
+
+
+def test_crashed_holder_leaves_no_stale_lock(project, tmp_path):
+    project.close()
+    code = textwrap.dedent(f"""
+        import sys, time; sys.path.insert(0, {ROOT!r})
+        from app.store import Project
+        p = Project.open({str(tmp_path / 'proj')!r})
+        print("held", flush=True)
+        time.sleep(60)
+    """)
+    child = subprocess.Popen([sys.executable, "-c", code], stdout=subprocess.PIPE, text=True)
+    assert child.stdout.readline().strip() == "held"
+    with Project.open(tmp_path / "proj") as p:
+        assert p.read_only
+    child.kill()
+    child.wait()
+    with Project.open(tmp_path / "proj") as p:
+        assert not p.read_only
+
+
+def test_newer_schema_is_refused_and_left_alone(project, tmp_path):
+    project.close()
+    db = tmp_path / "proj" / "project.db"
+    conn = sqlite3.connect(db)
+    conn.execute(f"PRAGMA user_version = {SCHEMA_VERSION + 1}")
+    conn.commit()
+    conn.close()
+    with pytest.raises(BadInput, match="newer Posewright"):
+        Project.open(tmp_path / "proj")
+    with sqlite3.connect(db) as conn:
+        assert conn.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION + 1
+
+
+def test_durability_settings(project):
+    """SQLite documentation: WAL with synchronous=FULL syncs the WAL at every commit."""
+    conn = project._conn
+    assert conn.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
+    assert conn.execute("PRAGMA synchronous").fetchone()[0] == 2  # FULL
+
+
+# ---------------------------------------------------------------- the algebra through the store
+
+def _edit(choice, project, frame_id):
+    kind, a, b, c, x, y = choice
+    ids = [p.id for p in project.people(frame_id)]
+    pid = ids[a % len(ids)] if ids else 999
+    other = ids[b % len(ids)] if ids else 999
+    j = c % 17
+    options = [
+        lambda: NewPerson(frame_id, None, tuple((x + k, y + k, 1 + k % 2) for k in range(17))),
+        lambda: MoveJoint(frame_id, pid, j, x, y),
+        lambda: SetVisibility(frame_id, pid, j, b % 3),
+        lambda: ReassignJoint(frame_id, pid, j, other),
+        lambda: DeletePerson(frame_id, pid),
+        lambda: MergePeople(frame_id, pid, other),
+        lambda: SplitPerson(frame_id, pid, (j,)),
+        lambda: SwapSides(frame_id, pid),
+        lambda: SetFrameState(frame_id, list(FrameState)[b % 4]),
+        lambda: AddNote(frame_id, f"note {a}", None),
+    ]
+    return options[kind % len(options)]()
+
+
+@settings(max_examples=25, deadline=None,
+          suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(st.lists(st.tuples(st.integers(0, 40), st.integers(0, 40), st.integers(0, 40),
+                          st.integers(0, 40), st.floats(0, 300), st.floats(0, 200)),
+                min_size=1, max_size=14),
+       st.integers(1, 2))
+def test_any_sequence_undo_all_gives_start_redo_all_gives_end(tmp_path_factory, image_dir,
+                                                              seq, frame_id):
+    """Synthetic random edit sequences through the real store on disk."""
+    folder = tmp_path_factory.mktemp("algebra")
+    with Project.create(folder, images=image_dir, author="ana") as p:
+        start = _snapshot(p)
+        applied = 0
+        for choice in seq:
+            try:
+                if p.apply(_edit(choice, p, frame_id)).group_id is not None:
+                    applied += 1
+            except EditRefused:
+                pass
+        end = _snapshot(p)
+        ledger_end = p.history()
+        for _ in range(applied):
+            assert p.undo() is not None
+        assert p.undo() is None
+        assert _same(_snapshot(p), start)
+        for _ in range(applied):
+            assert p.redo() is not None
+        assert _same(_snapshot(p), end)
+        ledger = p.history()
+        assert ledger[len(ledger) - len(ledger_end):] == ledger_end  # append-only
+    with Project.open(folder) as again:
+        assert _same(_snapshot(again), end)
+        assert again.history() == ledger
+
+
+def test_ledger_rows_record_author_time_target_before_after(project):
+    t0 = time.time()
+    pid = project.apply(NewPerson(1)).edit.person_id
+    project.apply(MoveJoint(1, pid, 4, 5.0, 6.0))
+    entry = project.history(limit=1)[0]
+    assert entry.author == "ana" and entry.time >= t0 - 1
+    assert entry.target == f"person:{pid}/joint:4"
+    assert entry.before[:3] == [None, None, 0] and entry.after[:3] == [5.0, 6.0, 2]
+    assert json.loads(json.dumps(entry.after)) == entry.after
