@@ -212,6 +212,33 @@ def _check_range(kp: np.ndarray, frame: Frame, where: str, record: str) -> None:
             f"outside the {w}x{h} image", where=where)
 
 
+def _keypoint_block(values: Sequence[Sequence[float]], k: int, where: str,
+                    records: Sequence[str], frames: Sequence[Frame],
+                    visibility: bool = True) -> np.ndarray:
+    """All keypoint lists as one ``(N, K, 3)`` array, checked at once; ``v = 0`` joints get NaN
+    positions. On a problem the first offending record is checked alone for its message."""
+    n = len(values)
+    lengths = np.fromiter((len(v) for v in values), dtype=np.int64, count=n)
+    for i in np.flatnonzero(lengths != 3 * k)[:1]:
+        _check_keypoints(values[i], k, where, records[i], visibility)
+    block = np.array(values, dtype=np.float64).reshape(n, k, 3)
+    bad = ~np.isfinite(block).all(axis=(1, 2))
+    if visibility:
+        bad |= ~np.isin(block[:, :, 2], (0, 1, 2)).all(axis=1)
+    for i in np.flatnonzero(bad)[:1]:
+        _check_keypoints(values[i], k, where, records[i], visibility)
+    sizes = np.array([(f.width, f.height) if f.status == "ok" and f.width > 0 else (np.inf, np.inf)
+                      for f in frames], dtype=np.float64).reshape(n, 2)
+    w, h = sizes[:, :1], sizes[:, 1:]
+    on = block[:, :, 2] > 0
+    x, y = block[:, :, 0], block[:, :, 1]
+    far = on & ((x < -w) | (x > 2 * w) | (y < -h) | (y > 2 * h))
+    for i in np.flatnonzero(far.any(axis=1))[:1]:
+        _check_range(block[i], frames[i], where, records[i])
+    block[~on] = np.where(np.arange(3) == 2, block[~on], np.nan)
+    return block
+
+
 def _unique(ids: Iterable[int], what: str, where: str) -> None:
     seen: set[int] = set()
     for i in ids:
@@ -318,6 +345,7 @@ def _read_dataset(data: dict[str, Any], where: str, skeleton: Skeleton,
             out.image_extra[img.id] = extra
     k = skeleton.num_joints
     raw_annotations = data["annotations"]
+    labels: list[tuple[int, _Annotation, dict[str, Any]]] = []
     for i, a in enumerate(ds.annotations):
         record = f"annotations[{i}] (id {a.id})"
         if a.image_id not in matched:
@@ -328,18 +356,22 @@ def _read_dataset(data: dict[str, Any], where: str, skeleton: Skeleton,
                            where=where)
         if a.score is not None and not math.isfinite(a.score):
             raise BadInput(f"{record}: field score: not a finite number", where=where)
-        extra = {key: v for key, v in raw_annotations[i].items()
-                 if key not in ("id", "image_id", "keypoints", "score", "num_keypoints")}
         if a.iscrowd:
             kept = {key: v for key, v in raw_annotations[i].items() if key != "image_id"}
             out.regions.append(
                 (a.image_id, _crowd_polygons(raw_annotations[i], where, record), kept))
             continue
-        kp = _check_keypoints(a.keypoints, k, where, record)
-        _check_range(kp, matched[a.image_id], where, record)
-        kp[kp[:, 2] == 0, :2] = np.nan
+        extra = {key: v for key, v in raw_annotations[i].items()
+                 if key not in ("id", "image_id", "keypoints", "score", "num_keypoints")}
+        labels.append((i, a, extra))
+    block = _keypoint_block(
+        [a.keypoints for _, a, _ in labels], k, where,
+        [f"annotations[{i}] (id {a.id})" for i, a, _ in labels],
+        [matched[a.image_id] for _, a, _ in labels])
+    no_scores = np.full(k, np.nan)
+    for (_, a, extra), kp in zip(labels, block):
         source = AUTO if a.score is not None else IMPORTED
-        person = Person(a.id, kp, np.full(k, np.nan), (source,) * k,
+        person = Person(a.id, kp, no_scores, (source,) * k,
                         None if a.score is None else float(a.score), extra)
         out.people.append((a.image_id, person))
     cat = next(iter(cats.values()))
@@ -383,7 +415,6 @@ def _read_results(data: list[Any], where: str, skeleton: Skeleton,
     k = skeleton.num_joints
     by_id = {f.id: f for f in frames}
     out = CocoImport("results", where)
-    arrays = []
     for i, r in enumerate(results):
         record = f"results[{i}]"
         if r.image_id not in by_id:
@@ -391,26 +422,26 @@ def _read_results(data: list[Any], where: str, skeleton: Skeleton,
                            where=where, hint="import the dataset with these image ids first")
         if not math.isfinite(r.score):
             raise BadInput(f"{record}: field score: not a finite number", where=where)
-        arrays.append(_check_keypoints(r.keypoints, k, where, record, visibility=False))
-    third = np.concatenate([a[:, 2] for a in arrays]) if arrays else np.zeros(0)
+    block = _keypoint_block([r.keypoints for r in results], k, where,
+                            [f"results[{i}]" for i in range(len(results))],
+                            [by_id[r.image_id] for r in results], visibility=False)
+    third = block[:, :, 2]
     as_visibility = bool(np.isin(third, (0, 1, 2)).all())
-    if not as_visibility and ((third < 0) | (third > 1)).any():
-        i = next(n for n, a in enumerate(arrays) if ((a[:, 2] < 0) | (a[:, 2] > 1)).any())
+    outside = ((third < 0) | (third > 1)).any(axis=1)
+    if not as_visibility and outside.any():
         raise BadInput(
-            f"results[{i}]: field keypoints: third values must all be visibility (0, 1, 2) or "
-            "all be scores in [0, 1]", where=where)
-    for i, (r, kp) in enumerate(zip(results, arrays)):
-        frame = by_id[r.image_id]
+            f"results[{int(np.flatnonzero(outside)[0])}]: field keypoints: third values must all "
+            "be visibility (0, 1, 2) or all be scores in [0, 1]", where=where)
+    for i, (r, kp) in enumerate(zip(results, block)):
         if as_visibility:
             scores = np.where(kp[:, 2] > 0, float(r.score), np.nan)
         else:
             scores = kp[:, 2].copy()
             kp[:, 2] = np.where(scores > 0, 2, 0)
-        _check_range(kp, frame, where, f"results[{i}]")
-        kp[kp[:, 2] == 0, :2] = np.nan
         extra = {key: v for key, v in data[i].items()
                  if key not in ("image_id", "keypoints", "score", "id")}
-        out.people.append((frame.id, Person(0, kp, scores, (AUTO,) * k, float(r.score), extra)))
+        out.people.append((r.image_id, Person(0, kp, scores, (AUTO,) * k, float(r.score),
+                                              extra)))
     out.fresh_people = len(out.people)
     return out
 

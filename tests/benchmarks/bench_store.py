@@ -1,0 +1,143 @@
+"""Store benchmarks: COCO import, edit and undo latency, opening a large project.
+
+Synthetic data only (random people on blank frames; no image files are read).
+"""
+
+from __future__ import annotations
+
+import json
+import sqlite3
+import subprocess
+import sys
+import tempfile
+import textwrap
+import time
+from pathlib import Path
+
+import numpy as np
+
+from app.jobs import import_coco
+from app.model import MoveJoint
+from app.store import Project
+from tests.benchmarks.common import median_seconds, row
+
+ROOT = Path(__file__).resolve().parents[2]
+
+
+def _coco(n_frames: int, per_frame: int, seed: int = 0) -> dict:
+    rng = np.random.default_rng(seed)
+    images = [{"id": 1 + i, "file_name": f"f{i:06d}.jpg", "width": 1920, "height": 1080}
+              for i in range(n_frames)]
+    n = n_frames * per_frame
+    xy = np.round(rng.uniform(0, 1900, (n, 17, 2)), 2)
+    v = rng.integers(0, 3, (n, 17))
+    anns = []
+    for a in range(n):
+        kp = np.column_stack([xy[a], v[a]])
+        kp[v[a] == 0, :2] = 0
+        flat = kp.ravel().tolist()
+        flat[2::3] = [int(x) for x in flat[2::3]]
+        anns.append({"id": 1 + a, "image_id": 1 + a // per_frame, "category_id": 1,
+                     "keypoints": flat, "num_keypoints": int((v[a] > 0).sum()),
+                     "bbox": [0, 0, 10, 10], "area": 100.0, "iscrowd": 0})
+    from app.model import coco_body
+
+    return {"images": images, "annotations": anns, "categories": [coco_body().coco_category()]}
+
+
+def _project_with_frames(folder: Path, n_frames: int) -> Project:
+    p = Project.create(folder, author="bench")
+    with p.bulk("Bench", "register synthetic frames", "bench") as b:
+        b.executemany(
+            "INSERT INTO frames (id, path, file_name, width, height) VALUES (?, ?, ?, ?, ?)",
+            [(1 + i, f"images/f{i:06d}.jpg", f"f{i:06d}.jpg", 1920, 1080)
+             for i in range(n_frames)])
+    return p
+
+
+def _baseline(path: Path, db: Path) -> float:
+    """json.load plus a bare executemany of the same rows into an empty table."""
+    t0 = time.perf_counter()
+    data = json.loads(path.read_bytes())
+    conn = sqlite3.connect(db, isolation_level=None)
+    conn.execute("PRAGMA journal_mode = WAL")
+    conn.execute("CREATE TABLE people (id INTEGER PRIMARY KEY, frame_id INTEGER, "
+                 "keypoints BLOB, scores BLOB, sources TEXT, origin TEXT, score REAL, extra TEXT)")
+    conn.execute("BEGIN")
+    conn.executemany("INSERT INTO people VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
+                     ((a["id"], a["image_id"], json.dumps(a["keypoints"]), None, None, "import",
+                       None, None) for a in data["annotations"]))
+    conn.execute("COMMIT")
+    conn.close()
+    return time.perf_counter() - t0
+
+
+def _bench_import(tmp: Path) -> list[dict]:
+    data = _coco(10_000, 15)
+    path = tmp / "big.json"
+    path.write_text(json.dumps(data))
+    base = _baseline(path, tmp / "baseline.db")
+    with _project_with_frames(tmp / "imp", 10_000) as p:
+        t0 = time.perf_counter()
+        import_coco(p, path)
+        took = time.perf_counter() - t0
+    ratio = took / base
+    return [row("import 10k frames x 15 people (COCO)", ratio, "x", "<= 3x baseline",
+                ratio <= 3.0, f"import {took:.2f} s; json.load + executemany {base:.2f} s")]
+
+
+def _bench_edits(tmp: Path) -> list[dict]:
+    with _project_with_frames(tmp / "edit", 100) as p:
+        from app.model import NewPerson
+
+        pid = p.apply(NewPerson(1, None, tuple((10.0, 10.0, 2) for _ in range(17)))).edit.person_id
+        n = [0]
+
+        def edit() -> None:
+            n[0] += 1
+            p.apply(MoveJoint(1, pid, n[0] % 17, float(n[0]), 5.0))
+
+        t_edit = median_seconds(edit, repeat=200, warmup=5)
+        for _ in range(300):
+            edit()
+        t_undo = median_seconds(p.undo, repeat=200, warmup=5)
+    return [
+        row("edit applied and durable (median)", t_edit * 1e3, "ms", "<= 5 ms", t_edit <= 5e-3,
+            "MoveJoint, WAL + synchronous=FULL, fsync per edit"),
+        row("undo applied and durable (median)", t_undo * 1e3, "ms", "<= 5 ms", t_undo <= 5e-3),
+    ]
+
+
+_OPEN = textwrap.dedent("""
+    import sys, time, resource
+    sys.path.insert(0, {root!r})
+    t0 = time.perf_counter()
+    from app.store import Project
+    t1 = time.perf_counter()
+    p = Project.open({folder!r})
+    frames = p.frames()
+    t2 = time.perf_counter()
+    rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    print(t2 - t1, rss, len(frames))
+""")
+
+
+def _bench_open(tmp: Path) -> list[dict]:
+    folder = tmp / "large"
+    with _project_with_frames(folder, 100_000):
+        pass
+    out = subprocess.run([sys.executable, "-c", _OPEN.format(root=str(ROOT), folder=str(folder))],
+                         capture_output=True, text=True, check=True).stdout.split()
+    took, rss, n = float(out[0]), float(out[1]), int(out[2])
+    return [
+        row("open 100k-frame project and list frames", took, "s", "<= 0.5 s", took <= 0.5,
+            f"{n} frames"),
+        row("resident memory after that open", rss, "MB", "<= 300 MB", rss <= 300,
+            "peak RSS of the process, imports included"),
+    ]
+
+
+def run() -> list[dict]:
+    with tempfile.TemporaryDirectory() as tmp:
+        tmp_path = Path(tmp)
+        return _bench_edits(tmp_path) + _bench_open(tmp_path) + _bench_import(tmp_path)
