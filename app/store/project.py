@@ -127,11 +127,14 @@ def _decode_person(row: Sequence[Any], num_joints: int) -> Person:
 
 
 _PERSON_COLUMNS = "id, keypoints, scores, sources, origin, score, extra"
-_FRAME_COLUMNS = "id, path, file_name, width, height, state, status, video_index, timestamp"
+_FRAME_COLUMNS = ("frames.id, path, file_name, width, height, state, status, video_index, "
+                  "timestamp, triage.score")
+_FRAME_FROM = "frames LEFT JOIN triage ON triage.frame_id = frames.id"
 
 
 def _frame_from_row(row: Sequence[Any]) -> Frame:
-    return Frame(row[0], row[1], row[2], row[3], row[4], FrameState(row[5]), row[6], row[7], row[8])
+    return Frame(row[0], row[1], row[2], row[3], row[4], FrameState(row[5]), row[6], row[7], row[8],
+                 row[9])
 
 
 class Project:
@@ -293,7 +296,8 @@ class Project:
 
     def subscribe(self, listener: Callable[[str, frozenset[int]], None]) -> None:
         """Call ``listener(kind, frame_ids)`` after every committed change
-        (``kind``: ``edit``, ``undo``, ``redo``, ``import``, ``frames``, ``meta``)."""
+        (``kind``: ``edit``, ``undo``, ``redo``, ``import``, ``frames``, ``meta``,
+        ``triage``)."""
         self._listeners.append(listener)
 
     def _notify(self, kind: str, frame_ids: Iterable[int]) -> None:
@@ -306,13 +310,15 @@ class Project:
     def frames(self) -> list[Frame]:
         """Every frame, by id."""
         with self._mutex:
-            rows = self._conn.execute(f"SELECT {_FRAME_COLUMNS} FROM frames ORDER BY id")
+            rows = self._conn.execute(f"SELECT {_FRAME_COLUMNS} FROM {_FRAME_FROM} "
+                                      "ORDER BY frames.id")
             return [_frame_from_row(r) for r in rows]
 
     def frame(self, frame_id: int) -> Frame:
         with self._mutex:
             row = self._conn.execute(
-                f"SELECT {_FRAME_COLUMNS} FROM frames WHERE id = ?", (int(frame_id),)
+                f"SELECT {_FRAME_COLUMNS} FROM {_FRAME_FROM} WHERE frames.id = ?",
+                (int(frame_id),)
             ).fetchone()
         if row is None:
             raise NotFound(f"the project has no frame {frame_id}")
@@ -328,13 +334,14 @@ class Project:
                 pass
         with self._mutex:
             rows = self._conn.execute(
-                f"SELECT {_FRAME_COLUMNS} FROM frames WHERE file_name = ? OR path = ?",
+                f"SELECT {_FRAME_COLUMNS} FROM {_FRAME_FROM} WHERE file_name = ? OR path = ?",
                 (text, text),
             ).fetchall()
             if not rows:
                 like = "%/" + text.replace("%", "").replace("_", "\\_")
                 rows = self._conn.execute(
-                    f"SELECT {_FRAME_COLUMNS} FROM frames WHERE file_name LIKE ? ESCAPE '\\'",
+                    f"SELECT {_FRAME_COLUMNS} FROM {_FRAME_FROM} "
+                    "WHERE file_name LIKE ? ESCAPE '\\'",
                     (like,),
                 ).fetchall()
         if len(rows) == 1:
@@ -392,6 +399,41 @@ class Project:
         with self._mutex:
             rows = self._conn.execute("SELECT id, extra FROM frames WHERE extra IS NOT NULL")
             return {r[0]: json.loads(r[1]) for r in rows}
+
+    def triage(self, frame_id: int) -> tuple[float, list[dict[str, Any]]] | None:
+        """The frame's suspicion score and reasons from the last triage, or None."""
+        with self._mutex:
+            row = self._conn.execute("SELECT score, reasons FROM triage WHERE frame_id = ?",
+                                     (int(frame_id),)).fetchone()
+        return None if row is None else (row[0], json.loads(row[1]))
+
+    def triage_all(self) -> dict[int, tuple[float, list[dict[str, Any]]]]:
+        """Every frame's triage result, by frame id."""
+        with self._mutex:
+            rows = self._conn.execute("SELECT frame_id, score, reasons FROM triage").fetchall()
+        return {r[0]: (r[1], json.loads(r[2])) for r in rows}
+
+    def store_triage(self, results: dict[int, tuple[float, list[dict[str, Any]]]]) -> None:
+        """Replace the triage results of the given frames (one transaction, not ledgered:
+        triage is derived from the labels and can be recomputed at any time)."""
+        self._check_writable()
+        now = time.time()
+        with self._mutex, self._transaction():
+            self._conn.executemany(
+                "INSERT OR REPLACE INTO triage VALUES (?, ?, ?, ?)",
+                [(f, float(score), json.dumps(reasons), now)
+                 for f, (score, reasons) in results.items()])
+        self._notify("triage", results.keys())
+
+    def maps_path(self, frame_id: int) -> tuple[Path, int] | None:
+        """Where the frame's network maps are (absolute path) and their stride, or None."""
+        with self._mutex:
+            row = self._conn.execute("SELECT path, stride FROM maps WHERE frame_id = ?",
+                                     (int(frame_id),)).fetchone()
+        if row is None:
+            return None
+        path = Path(row[0])
+        return (path if path.is_absolute() else self.folder / path), int(row[1])
 
     def notes(self, frame_id: int) -> list[Note]:
         with self._mutex:
@@ -744,6 +786,11 @@ class Bulk:
                 c.executemany(f"UPDATE {table} SET {col} = ? WHERE {col} = ?",
                               [(b, a) for a, b in pairs])
         self.frames_touched.update(mapping.values())
+
+    def set_maps(self, frame_id: int, path: Path, stride: int) -> None:
+        """Record where a frame's network maps are (stored relative to the project folder)."""
+        self._c.execute("INSERT OR REPLACE INTO maps VALUES (?, ?, ?)",
+                        (frame_id, _relative(path, self._p.folder), int(stride)))
 
     def set_file_name(self, frame_id: int, file_name: str) -> None:
         self._c.execute("UPDATE frames SET file_name = ? WHERE id = ?", (file_name, frame_id))

@@ -18,6 +18,10 @@ Layout:
 - ``undo_stack`` / ``redo_stack``: the groups that undo and redo act on next, kept in the
   database so that undo survives a restart.
 - ``notes``: the review thread of each frame.
+- ``triage`` (v2): each frame's suspicion score and its reasons (a JSON list), from
+  ``posewright triage``.
+- ``maps`` (v2): where each frame's network maps (``.npz``) are, relative to the project folder,
+  and their stride.
 - ``regions``: ignore regions (people too small or too packed to label), polygons in image
   pixels (``polygons``: a JSON list of flat ``[x0, y0, x1, y1, ...]`` lists); imported from
   and exported to COCO crowd annotations (``iscrowd: 1``).
@@ -27,7 +31,7 @@ from __future__ import annotations
 
 import sqlite3
 
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 
 _V1 = """
 CREATE TABLE meta (
@@ -94,8 +98,24 @@ CREATE TABLE regions (
 CREATE INDEX regions_frame ON regions(frame_id);
 """
 
+# Version 2: derived data kept for the Worklist and the Owners panel. Neither is part of the
+# labels, so neither goes through the ledger; both can be recomputed at any time.
+_V2 = """
+CREATE TABLE triage (
+    frame_id INTEGER PRIMARY KEY REFERENCES frames(id) ON UPDATE CASCADE,
+    score    REAL NOT NULL,
+    reasons  TEXT NOT NULL,
+    computed REAL NOT NULL
+);
+CREATE TABLE maps (
+    frame_id INTEGER PRIMARY KEY REFERENCES frames(id) ON UPDATE CASCADE,
+    path     TEXT NOT NULL,
+    stride   INTEGER NOT NULL
+);
+"""
+
 #: ``MIGRATIONS[n]`` takes the schema from version ``n - 1`` to ``n``.
-MIGRATIONS: dict[int, str] = {1: _V1}
+MIGRATIONS: dict[int, str] = {1: _V1, 2: _V2}
 
 
 def schema_version(conn: sqlite3.Connection) -> int:

@@ -275,3 +275,23 @@ def test_ledger_rows_record_author_time_target_before_after(project):
     assert entry.target == f"person:{pid}/joint:4"
     assert entry.before[:3] == [None, None, 0] and entry.after[:3] == [5.0, 6.0, 2]
     assert json.loads(json.dumps(entry.after)) == entry.after
+
+
+def test_older_project_is_migrated_forward(tmp_path, image_dir):
+    """A project written at schema 1 opens with its labels and gains the newer tables."""
+    with Project.create(tmp_path / "old", images=image_dir, author="ana") as p:
+        pid = p.apply(NewPerson(1)).edit.person_id
+    db = tmp_path / "old" / "project.db"
+    conn = sqlite3.connect(db, isolation_level=None)
+    conn.execute("DROP TABLE triage")
+    conn.execute("DROP TABLE maps")
+    conn.execute("PRAGMA user_version = 1")
+    conn.close()
+    with Project.open(tmp_path / "old") as p:
+        assert [q.id for q in p.people(1)] == [pid]
+        assert p.triage(1) is None
+        p.store_triage({1: (0.5, [{"kind": "test"}])})
+        assert p.frame(1).suspicion == 0.5
+    conn = sqlite3.connect(db)
+    assert conn.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION
+    conn.close()
