@@ -150,6 +150,18 @@ def cmd_demo(args: argparse.Namespace) -> int:
     return 0
 
 
+def cmd_open(args: argparse.Namespace) -> int:
+    from app.ui.commands import open_app
+
+    return open_app(args)
+
+
+def cmd_render(args: argparse.Namespace) -> int:
+    from app.ui.commands import render_frame
+
+    return render_frame(args)
+
+
 def _states(text: str) -> list[FrameState]:
     try:
         return [FrameState.parse(s) for s in text.split(",") if s.strip()]
@@ -199,6 +211,15 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = command("summary", cmd_summary, "what the project holds")
     p.add_argument("--json", action="store_true")
+
+    p = command("open", cmd_open, "open the project in the desktop app")
+    p.add_argument("--screenshot", metavar="FILE.png",
+                   help="render the window showing the most suspicious frame to FILE and exit")
+
+    p = command("render", cmd_render, "draw one frame with its labels, as the Canvas shows it")
+    p.add_argument("--frame", metavar="ID", required=True, help="frame id or image file name")
+    p.add_argument("--out", metavar="FILE.png", required=True)
+    p.add_argument("--focus", metavar="PERSON", type=int, help="dim everyone but this person")
 
     p = command("demo", cmd_demo, "generate the synthetic demo scenario in DIR", project=False)
     p.add_argument("dir", metavar="DIR")
