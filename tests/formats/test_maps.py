@@ -1,0 +1,66 @@
+"""Network maps in: the .npz layout is checked and bad files are refused with the key."""
+
+import numpy as np
+import pytest
+
+from app.errors import BadInput
+from app.formats.maps import match_map_files, read_maps
+from app.model import Frame, coco_body
+
+SK = coco_body()
+
+
+def _write(path, **arrays):
+    np.savez_compressed(path, **arrays)
+    return path
+
+
+def _good(h=30, w=40, stride=8):
+    return {"confidence_maps": np.zeros((17, h, w), np.float16),
+            "pafs": np.zeros((19, 2, h, w), np.float16), "stride": np.int64(stride)}
+
+
+def test_reads_a_good_file(tmp_path):
+    maps = read_maps(_write(tmp_path / "a.npz", **_good()), SK, (320, 240))
+    assert maps.stride == 8 and maps.confidence_maps.dtype == np.float32
+    assert maps.pafs.shape == (19, 2, 30, 40)
+
+
+@pytest.mark.parametrize("change, words", [
+    (lambda d: d.pop("pafs"), "key pafs is missing"),
+    (lambda d: d.update(stride=np.float64(7.5)), "not an integer"),
+    (lambda d: d.update(stride=np.arange(3)), "one integer"),
+    (lambda d: d.update(confidence_maps=np.zeros((16, 30, 40))), "key confidence_maps: shape"),
+    (lambda d: d.update(pafs=np.zeros((19, 2, 31, 40))), "key pafs: shape"),
+    (lambda d: d.update(pafs=np.full((19, 2, 30, 40), np.nan)), "not finite"),
+    (lambda d: d.update(confidence_maps=np.zeros((17, 30, 40), np.int32)), "not floating"),
+])
+def test_bad_files_name_the_key(tmp_path, change, words):
+    data = _good()
+    change(data)
+    with pytest.raises(BadInput) as err:
+        read_maps(_write(tmp_path / "a.npz", **data), SK, (320, 240))
+    assert words in str(err.value) and "a.npz" in str(err.value)
+
+
+def test_pickled_objects_and_junk_are_refused(tmp_path):
+    path = tmp_path / "p.npz"
+    np.savez(path, confidence_maps=np.array([object()], dtype=object), pafs=np.zeros(1),
+             stride=np.int64(8))
+    with pytest.raises(BadInput, match="not a readable"):
+        read_maps(path, SK, (320, 240))
+    (tmp_path / "junk.npz").write_bytes(b"PK\x03\x04 not a zip")
+    with pytest.raises(BadInput, match="not a readable"):
+        read_maps(tmp_path / "junk.npz", SK, (320, 240))
+
+
+def test_files_match_frames_by_name_and_strays_are_refused(tmp_path):
+    frames = [Frame(1, "i/a.jpg", "a.jpg", 320, 240), Frame(2, "i/sub/b.png", "sub/b.png", 320, 240)]
+    (tmp_path / "sub").mkdir()
+    _write(tmp_path / "a.npz", **_good())
+    _write(tmp_path / "sub" / "b.npz", **_good())
+    assert match_map_files(tmp_path, frames) == {1: tmp_path / "a.npz",
+                                                 2: tmp_path / "sub" / "b.npz"}
+    _write(tmp_path / "stray.npz", **_good())
+    with pytest.raises(BadInput, match="stray.npz: matches no image"):
+        match_map_files(tmp_path, frames)
