@@ -69,10 +69,10 @@ def crowd(
     min_gap: float = 0.0,
     margin: float = 0.0,
 ) -> np.ndarray:
-    """``n`` random people in the image, ``(n, 17, 3)``.
+    """``n`` random people wholly inside the image, ``(n, 17, 3)``.
 
     ``min_gap`` is the least distance between two hip centres, in units of the larger stature;
-    ``margin`` keeps hip centres that many pixels from the image edges.
+    ``margin`` keeps every joint that many pixels inside the image.
     """
     width, height = image_size
     people: list[np.ndarray] = []
@@ -83,13 +83,15 @@ def crowd(
         if tries > 100_000:
             raise RuntimeError("cannot place that many people; lower min_gap")
         size = rng.uniform(*stature)
-        c = np.array(
-            [rng.uniform(margin, width - margin), rng.uniform(margin, height - margin)]
-        )
+        c = np.array([rng.uniform(0, width), rng.uniform(0, height)])
         if any(np.hypot(*(c - o)) < min_gap * stature[1] for o in centres):
             continue
+        body = person(rng, (c[0], c[1]), size)
+        lo, hi = body[:, :2].min(axis=0), body[:, :2].max(axis=0)
+        if (lo < margin).any() or hi[0] > width - 1 - margin or hi[1] > height - 1 - margin:
+            continue
         centres.append(c)
-        people.append(person(rng, (c[0], c[1]), size))
+        people.append(body)
     return np.stack(people) if people else np.zeros((0, K, 3))
 
 
@@ -106,4 +108,22 @@ def hide(
     wipe = gone & (rng.random(out.shape[:2]) < 0.5)
     out[..., 0][wipe] = np.nan
     out[..., 1][wipe] = np.nan
+    return out
+
+
+#: Joints whose loss leaves the rest of a COCO body connected by limbs: wrists and ankles.
+ENDS = (9, 10, 15, 16)
+
+
+def hide_ends(rng: np.random.Generator, people: np.ndarray, p_unlabelled: float) -> np.ndarray:
+    """A copy with wrists and ankles randomly unlabeled (v = 0, NaN) and 20% of joints v = 1.
+
+    Grouping by part affinity fields can only join parts that a chain of labelled limbs
+    connects; hiding only limb ends keeps every person in one piece.
+    """
+    out = people.copy()
+    out[..., 2][rng.random(out.shape[:2]) < 0.2] = 1
+    gone = np.zeros(out.shape[:2], dtype=bool)
+    gone[:, ENDS] = rng.random((out.shape[0], len(ENDS))) < p_unlabelled
+    out[gone] = (np.nan, np.nan, 0)
     return out
