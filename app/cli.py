@@ -150,6 +150,55 @@ def cmd_demo(args: argparse.Namespace) -> int:
     return 0
 
 
+def cmd_import_maps(args: argparse.Namespace) -> int:
+    from app.jobs_analysis import import_maps
+
+    with _open(args) as project:
+        stats = import_maps(project, args.dir, progress=_stderr_progress(args.quiet))
+    if args.json:
+        _print_json(stats)
+    else:
+        print("imported " + ", ".join(f"{v} {k}" for k, v in stats.items()))
+    return 0
+
+
+def cmd_triage(args: argparse.Namespace) -> int:
+    from app.jobs_analysis import run_triage
+
+    with _open(args) as project:
+        results = run_triage(project, progress=_stderr_progress(args.quiet))
+        frames = {f.id: f for f in project.frames()}
+    ranked = sorted(results.items(), key=lambda kv: (-kv[1].score, kv[0]))
+    if args.limit is not None:
+        ranked = ranked[: args.limit]
+    if args.json:
+        _print_json([{"frame": fid, "file_name": frames[fid].file_name,
+                      "score": round(t.score, 4), "crowd_index": round(t.crowd_index, 4),
+                      "flagged_people": t.flagged,
+                      "reasons": [r.to_dict() for r in t.reasons]} for fid, t in ranked])
+        return 0
+    for fid, t in ranked:
+        kinds = sorted({r.kind for r in t.reasons})
+        print(f"{t.score:7.2f}  frame {fid:<6} {frames[fid].file_name:<28} "
+              f"{len(t.flagged)} flagged  {', '.join(kinds)}")
+    return 0
+
+
+def cmd_targets(args: argparse.Namespace) -> int:
+    from app.jobs_analysis import TargetSettings, export_targets
+
+    settings = TargetSettings(stride=args.stride, sigma=args.sigma, limb_width=args.limb_width,
+                              dtype=args.dtype)
+    settings.check()
+    states = None if args.states == "all" else _states(args.states)
+    with _open(args, write=False) as project:
+        stats = export_targets(project, args.out_dir, settings, states=states,
+                               progress=_stderr_progress(args.quiet))
+    print(f"wrote {stats['frames']} frames of training targets to {stats['out']}"
+          + (f" ({stats['skipped']} skipped: unreadable images)" if stats["skipped"] else ""))
+    return 0
+
+
 def cmd_open(args: argparse.Namespace) -> int:
     from app.ui.commands import open_app
 
@@ -211,6 +260,25 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = command("summary", cmd_summary, "what the project holds")
     p.add_argument("--json", action="store_true")
+
+    p = command("import-maps", cmd_import_maps,
+                "import network maps (.npz per image) and group them into auto-labels")
+    p.add_argument("dir", metavar="DIR")
+    p.add_argument("--json", action="store_true")
+
+    p = command("triage", cmd_triage, "rank frames by suspicion, with reasons (stored)")
+    p.add_argument("--json", action="store_true")
+    p.add_argument("--limit", type=int, metavar="N", help="show only the N worst frames")
+
+    p = command("targets", cmd_targets,
+                "write training targets (confidence maps, PAFs, loss masks) per frame")
+    p.add_argument("out_dir", metavar="OUT_DIR")
+    p.add_argument("--stride", type=int, default=8)
+    p.add_argument("--sigma", type=float, default=7.0, help="confidence-map sigma, image px")
+    p.add_argument("--limb-width", type=float, default=8.0, help="PAF half-width, image px")
+    p.add_argument("--dtype", choices=("float16", "float32"), default="float32")
+    p.add_argument("--states", default="corrected,signed-off",
+                   help="frames in these states (default corrected,signed-off), or 'all'")
 
     p = command("open", cmd_open, "open the project in the desktop app")
     p.add_argument("--screenshot", metavar="FILE.png",

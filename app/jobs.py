@@ -70,9 +70,10 @@ def build_from_sources(folder: Path, author: str | None = None,
             project.set_meta("name", str(sources["name"]))
         maps = sources.get("maps")
         if maps:
-            from app.jobs_analysis import import_maps  # analysis is optional for plain projects
+            from app.jobs_analysis import import_maps, run_triage
 
             import_maps(project, folder / str(maps), progress=progress)
+            run_triage(project, progress=progress)
 
 
 def import_coco(project: Project, path: str | Path,

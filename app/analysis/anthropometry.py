@@ -1,0 +1,122 @@
+"""How long a body's segments are, as fractions of stature, and a person's scale from their torso.
+
+A 2D projection can only shorten a segment, so a labelled limb much longer than the person's
+own scale allows is strong evidence of a wrong joint (usually one given to a neighbour). The
+scale comes from the person's torso (shoulders and hips), not from their height in the image,
+because in a crowd the legs or the head are often hidden or wrong.
+
+Segment lengths are the proportions of Drillis and Contini (1966), as tabulated in
+D. A. Winter, "Biomechanics and Motor Control of Human Movement", Fig. 4.1 (segment lengths as
+fractions of body height H). The values below are written from memory of that figure; the
+face distances (eyes, ears, nose) are not in the figure and are rough values from common
+practice, no source.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from app.model.skeleton import Skeleton
+
+#: Longest plausible length / stature of each limb, by the two joint names (order free). For
+#: body segments that is the segment's length, from memory of Winter, Fig. 4.1 (Drillis and
+#: Contini 1966); for the face see below.
+SEGMENT_FRACTIONS: dict[frozenset[str], float] = {
+    frozenset(("left_shoulder", "left_elbow")): 0.186,   # upper arm
+    frozenset(("right_shoulder", "right_elbow")): 0.186,
+    frozenset(("left_elbow", "left_wrist")): 0.146,      # forearm
+    frozenset(("right_elbow", "right_wrist")): 0.146,
+    frozenset(("left_hip", "left_knee")): 0.245,         # thigh
+    frozenset(("right_hip", "right_knee")): 0.245,
+    frozenset(("left_knee", "left_ankle")): 0.246,       # shank
+    frozenset(("right_knee", "right_ankle")): 0.246,
+    frozenset(("left_shoulder", "right_shoulder")): 0.259,  # shoulder width
+    frozenset(("left_hip", "right_hip")): 0.191,         # hip width
+    frozenset(("left_shoulder", "left_hip")): 0.288,     # shoulder height 0.818 - hip 0.530
+    frozenset(("right_shoulder", "right_hip")): 0.288,
+    # Face and neck: any two landmarks of one head lie within about a head's width (0.1 H),
+    # an ear within about 0.15 H of its shoulder (common practice, no source). These are upper
+    # bounds, not segment lengths: face landmarks are a few pixels apart, where detection
+    # jitter alone would make a ratio to their true spacing meaningless.
+    frozenset(("left_ear", "left_shoulder")): 0.15,
+    frozenset(("right_ear", "right_shoulder")): 0.15,
+    frozenset(("nose", "left_eye")): 0.1,
+    frozenset(("nose", "right_eye")): 0.1,
+    frozenset(("left_eye", "right_eye")): 0.1,
+    frozenset(("left_eye", "left_ear")): 0.1,
+    frozenset(("right_eye", "right_ear")): 0.1,
+}
+
+#: Segments whose length gives the person's scale (torso only).
+TORSO: tuple[frozenset[str], ...] = (
+    frozenset(("left_shoulder", "right_shoulder")),
+    frozenset(("left_hip", "right_hip")),
+    frozenset(("left_shoulder", "left_hip")),
+    frozenset(("right_shoulder", "right_hip")),
+)
+
+
+def limb_fractions(skeleton: Skeleton) -> np.ndarray:
+    """``(L,)`` expected length / stature of each limb of ``skeleton``; NaN where unknown.
+
+    Examples
+    --------
+    >>> from app.model.skeleton import coco_body
+    >>> f = limb_fractions(coco_body())
+    >>> float(f[0])  # left_ankle-left_knee: the shank
+    0.246
+    """
+    names = skeleton.joints
+    return np.array([SEGMENT_FRACTIONS.get(frozenset((names[a], names[b])), np.nan)
+                     for a, b in skeleton.limbs], dtype=np.float64)
+
+
+def torso_pairs(skeleton: Skeleton) -> list[tuple[int, int, float]]:
+    """The torso segments the skeleton has, as ``(joint a, joint b, fraction)``."""
+    index = {n: i for i, n in enumerate(skeleton.joints)}
+    out = []
+    for seg in TORSO:
+        a, b = sorted(seg)
+        if a in index and b in index:
+            out.append((index[a], index[b], SEGMENT_FRACTIONS[seg]))
+    return out
+
+
+def person_scale(keypoints: np.ndarray, skeleton: Skeleton) -> float:
+    """The person's stature in image pixels implied by their torso, NaN if no torso segment
+    is labelled.
+
+    Parameters
+    ----------
+    keypoints
+        ``(K, 3)`` ``x, y, v``.
+
+    Notes
+    -----
+    Each labelled torso segment (shoulder width, hip width, each side's shoulder to hip) gives
+    ``length / fraction``; projection only shortens, so the largest of them is the least
+    foreshortened estimate. A segment more than twice the median of the others is taken to hold a
+    wrong joint and left out (with two or more others to compare against).
+
+    Examples
+    --------
+    >>> from app.model.skeleton import coco_body
+    >>> kp = np.zeros((17, 3)); kp[[5, 6, 11, 12], 2] = 2
+    >>> kp[5, :2], kp[6, :2] = (100, 100), (74.1, 100)     # shoulders 25.9 px apart
+    >>> kp[11, :2], kp[12, :2] = (97, 128.8), (78, 128.8)
+    >>> round(person_scale(kp, coco_body()), 1)
+    100.9
+    """
+    kp = np.asarray(keypoints, dtype=np.float64)
+    implied = []
+    for a, b, frac in torso_pairs(skeleton):
+        if kp[a, 2] > 0 and kp[b, 2] > 0:
+            implied.append(float(np.hypot(*(kp[a, :2] - kp[b, :2]))) / frac)
+    if not implied:
+        return float("nan")
+    values = np.asarray(implied)
+    if values.size >= 3:
+        keep = [v for i, v in enumerate(values)
+                if v <= 2.0 * np.median(np.delete(values, i))]
+        values = np.asarray(keep) if keep else values
+    return float(values.max())

@@ -1,0 +1,248 @@
+"""Jobs that need the analysis core: import network maps, triage, export training targets.
+
+Shared by the command line and the app (which runs them off the UI thread with a
+:class:`~app.progress.Progress`). Every job that writes is all-or-nothing.
+"""
+
+from __future__ import annotations
+
+import json
+import logging
+import math
+import os
+import shutil
+import tempfile
+import time
+from collections.abc import Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from app.analysis.association import group_people
+from app.analysis.targets import confidence_maps, loss_mask, part_affinity_fields
+from app.errors import BadInput, NotFound
+from app.formats.maps import NetworkMaps, match_map_files, read_maps
+from app.model.labels import AUTO, Frame, FrameState, Person
+from app.progress import Progress
+from app.store.project import Project
+
+log = logging.getLogger(__name__)
+
+TARGETS_FORMAT = "posewright-training-targets"
+TARGETS_VERSION = 1
+
+
+def import_maps(project: Project, folder: str | Path,
+                progress: Progress | None = None) -> dict[str, int]:
+    """Import one ``.npz`` of network maps per image from ``folder`` (see
+    :mod:`app.formats.maps`), all or nothing.
+
+    The maps are kept (their location is recorded) for triage and owner suggestions. Frames
+    that have no people yet get auto-labels grouped from the maps with
+    :func:`app.analysis.association.group_people`; frames that already have people keep them
+    (re-importing maps never overwrites a correction).
+    """
+    progress = progress or Progress()
+    frames = {f.id: f for f in project.frames()}
+    files = match_map_files(folder, list(frames.values()))
+    has_people = set(project.people_by_frame())
+    grouped: list[tuple[int, Person]] = []
+    strides: dict[int, int] = {}
+    k = project.skeleton.num_joints
+    limbs = project.skeleton.limb_array
+    for n, (frame_id, path) in enumerate(sorted(files.items())):
+        progress.step(n, len(files), "reading maps")
+        frame = frames[frame_id]
+        if frame.status != "ok":
+            raise BadInput(f"the image of frame {frame_id} is {frame.status}; its size is unknown",
+                           where=str(path))
+        maps = read_maps(path, project.skeleton, (frame.width, frame.height))
+        strides[frame_id] = maps.stride
+        if frame_id in has_people:
+            continue
+        for found in group_people(maps.confidence_maps, maps.pafs, limbs, stride=maps.stride):
+            grouped.append((frame_id, _auto_person(found, k)))
+    progress.step(len(files), len(files), "reading maps")
+    with project.bulk("ImportMaps", f"import maps from {Path(folder).name}",
+                      f"folder:{Path(folder).name}") as b:
+        for frame_id, path in files.items():
+            b.set_maps(frame_id, path, strides[frame_id])
+        first = b.allocate_person_ids(len(grouped))
+        b.add_people((f, _with_id(p, first + n)) for n, (f, p) in enumerate(grouped))
+        b.count("frames with maps", len(files))
+        b.count("frames grouped", len({f for f, _ in grouped}))
+    return b.stats
+
+
+def _auto_person(found: np.ndarray, k: int) -> Person:
+    kp = np.full((k, 3), np.nan)
+    on = found[:, 2] > 0
+    kp[:, 2] = 0
+    kp[on, :2] = found[on, :2]
+    kp[on, 2] = 2
+    scores = np.where(on, found[:, 2], np.nan)
+    return Person(0, kp, scores, (AUTO,) * k, float(found[on, 2].mean()) if on.any() else 0.0)
+
+
+def _with_id(p: Person, pid: int) -> Person:
+    return Person(pid, p.keypoints, p.scores, p.sources, p.score, p.extra)
+
+
+def load_maps(project: Project, frame: Frame) -> NetworkMaps | None:
+    """The frame's network maps if the project has them and they still read, else None."""
+    where = project.maps_path(frame.id)
+    if where is None or frame.status != "ok":
+        return None
+    try:
+        return read_maps(where[0], project.skeleton, (frame.width, frame.height))
+    except BadInput as exc:
+        log.warning("maps of frame %s are not usable: %s", frame.id, exc)
+        return None
+
+
+# ---------------------------------------------------------------------- training targets
+
+@dataclass(frozen=True)
+class TargetSettings:
+    """Every parameter of a training-target export (all in image pixels)."""
+
+    stride: int = 8
+    sigma: float = 7.0
+    limb_width: float = 8.0
+    dtype: str = "float32"
+    box_margin: float = 0.25
+    min_margin: float | None = None  # default: 3 * sigma
+
+    def check(self) -> None:
+        if not (isinstance(self.stride, int) and 1 <= self.stride <= 256):
+            raise BadInput(f"stride {self.stride} must be an integer between 1 and 256",
+                           where="--stride")
+        for name in ("sigma", "limb_width"):
+            value = getattr(self, name)
+            if not (math.isfinite(value) and value > 0):
+                raise BadInput(f"{name} {value} must be a positive number",
+                               where="--" + name.replace("_", "-"))
+        if self.dtype not in ("float16", "float32"):
+            raise BadInput(f"dtype {self.dtype} is not float16 or float32", where="--dtype")
+
+
+def export_targets(project: Project, out_dir: str | Path, settings: TargetSettings | None = None,
+                   states: Sequence[FrameState] | None = (FrameState.CORRECTED,
+                                                          FrameState.SIGNED_OFF),
+                   progress: Progress | None = None) -> dict[str, Any]:
+    """Write training targets: one ``.npz`` per frame plus ``manifest.json``.
+
+    Each ``.npz`` holds ``confidence_maps (K, H, W)``, ``pafs (L, 2, H, W)`` and
+    ``loss_mask (K + 2L, H, W)`` (channel order: the K maps, then each limb's x and y field);
+    the manifest holds every parameter, the skeleton and the frame list, so a training script
+    needs nothing else. ``states`` picks the frames (None: all). The folder appears complete or
+    not at all: it is written beside ``out_dir`` and renamed at the end.
+    """
+    settings = settings or TargetSettings()
+    settings.check()
+    progress = progress or Progress()
+    out = Path(out_dir)
+    if out.exists() and (not out.is_dir() or any(out.iterdir())):
+        raise BadInput("the folder exists and is not empty", where=str(out),
+                       hint="choose a new folder for the export")
+    parent = out.parent if str(out.parent) else Path(".")
+    if not parent.is_dir():
+        raise NotFound(f"{out}: the folder {parent} does not exist")
+    frames = [f for f in project.frames()
+              if states is None or f.state in set(states)]
+    skipped = [f for f in frames if f.status != "ok" or f.width <= 0]
+    frames = [f for f in frames if f not in skipped]
+    people = project.people_by_frame()
+    regions = project.regions_by_frame()
+    sk = project.skeleton
+    limbs = sk.limb_array
+    dtype = np.float16 if settings.dtype == "float16" else np.float32
+    min_margin = settings.min_margin if settings.min_margin is not None else 3 * settings.sigma
+    work = Path(tempfile.mkdtemp(prefix=out.name + ".", suffix=".partial", dir=parent))
+    entries = []
+    try:
+        for n, f in enumerate(frames):
+            progress.step(n, len(frames), "writing training targets")
+            size = (f.width, f.height)
+            kp = np.stack([p.keypoints for p in people.get(f.id, [])]) if people.get(f.id) \
+                else np.zeros((0, sk.num_joints, 3))
+            polys = [poly for _, polygons, _ in regions.get(f.id, []) for poly in polygons]
+            cm = confidence_maps(kp, size, settings.stride, settings.sigma)
+            paf = part_affinity_fields(kp, limbs, size, settings.stride, settings.limb_width)
+            mask = loss_mask(kp, limbs, size, settings.stride, ignore=polys or None,
+                             box_margin=settings.box_margin, min_margin=min_margin)
+            name = f"{f.id}.npz"
+            np.savez_compressed(work / name, confidence_maps=cm.astype(dtype),
+                                pafs=paf.astype(dtype), loss_mask=mask.astype(dtype))
+            entries.append({"id": f.id, "file_name": f.file_name,
+                            "image": str(project.image_path(f).resolve()),
+                            "width": f.width, "height": f.height, "state": f.state.value,
+                            "targets": name, "people": len(people.get(f.id, [])),
+                            "grid": [cm.shape[1], cm.shape[2]]})
+        progress.step(len(frames), len(frames), "writing training targets")
+        manifest = {
+            "format": TARGETS_FORMAT,
+            "version": TARGETS_VERSION,
+            "created": time.strftime("%Y-%m-%dT%H:%M:%S%z"),
+            "project_id": project.project_id,
+            "parameters": {
+                "stride": settings.stride, "sigma": settings.sigma,
+                "limb_width": settings.limb_width, "dtype": settings.dtype,
+                "loss_mask_box_margin": settings.box_margin, "loss_mask_min_margin": min_margin,
+                "states": None if states is None else [s.value for s in states],
+                "grid": "H = ceil(height / stride), W = ceil(width / stride); cell (r, c) "
+                        "stands for the image point (c*stride + (stride-1)/2, "
+                        "r*stride + (stride-1)/2)",
+                "confidence_maps": "S_j(p) = max_k exp(-|p - x_jk|^2 / sigma^2) over people "
+                                   "whose joint j is labelled (v > 0)",
+                "pafs": "mean over the people covering p of the limb's unit vector; p is on "
+                        "a limb when 0 <= u.(p - x1) <= |x2 - x1| and |u_perp.(p - x1)| <= "
+                        "limb_width; channel order x then y",
+                "loss_mask": "channels: K confidence maps, then x and y of each limb; 0 in "
+                             "ignore regions and on an unlabeled joint's channels inside its "
+                             "person's box",
+            },
+            "skeleton": sk.to_dict(),
+            "frames": entries,
+            "skipped": [{"id": f.id, "file_name": f.file_name, "status": f.status}
+                        for f in skipped],
+        }
+        with open(work / "manifest.json", "w", encoding="utf-8") as fh:
+            json.dump(manifest, fh, indent=1)
+            fh.flush()
+            os.fsync(fh.fileno())
+        if out.exists():
+            out.rmdir()
+        os.replace(work, out)
+    except BaseException:
+        shutil.rmtree(work, ignore_errors=True)
+        raise
+    return {"frames": len(entries), "skipped": len(skipped), "out": str(out)}
+
+
+# ---------------------------------------------------------------------- triage
+
+def run_triage(project: Project, progress: Progress | None = None,
+               frame_ids: Sequence[int] | None = None) -> dict[int, Any]:
+    """Triage every frame (or the given ones), store the scores and reasons, and return the
+    :class:`~app.analysis.triage.FrameTriage` of each frame by id."""
+    from app.analysis.triage import triage_frame
+
+    progress = progress or Progress()
+    frames = [f for f in project.frames() if frame_ids is None or f.id in set(frame_ids)]
+    people = project.people_by_frame()
+    results = {}
+    for n, f in enumerate(frames):
+        progress.step(n, len(frames), "triage")
+        ps = people.get(f.id, [])
+        maps = load_maps(project, f)
+        results[f.id] = triage_frame(
+            {p.id: p.keypoints for p in ps}, project.skeleton,
+            scores={p.id: p.scores for p in ps}, maps=maps,
+            image_size=(f.width, f.height) if f.width > 0 else None)
+    progress.step(len(frames), len(frames), "triage")
+    project.store_triage({fid: (t.score, [r.to_dict() for r in t.reasons])
+                          for fid, t in results.items()})
+    return results
