@@ -152,6 +152,24 @@ def test_part_affinity_fields_with_coincident_ends_and_overlaps():
     assert np.abs(got[1]).max() == pytest.approx(1.0)  # only person 0's limb 1 counts
 
 
+@pytest.mark.parametrize("size, stride, sigma, width", [
+    ((37, 23), 1, 50.0, 3.0), ((37, 23), 8, 30.0, 10.0), ((5, 3), 8, 2.0, 4.0),
+    ((37, 23), 40, 3.0, 50.0),
+])
+def test_targets_with_wide_peaks_and_joints_outside_the_image(size, stride, sigma, width):
+    """Eq. 7-9 of Cao et al. 2017 when the Gaussian is wider than the grid, the grid is a single
+    cell, and joints lie outside the image (synthetic random points)."""
+    rng = np.random.default_rng(stride)
+    kp = np.zeros((3, 4, 3))
+    kp[..., :2] = rng.uniform(-60, 100, (3, 4, 2))
+    kp[..., 2] = 2
+    limbs = [(0, 1), (2, 3), (1, 3)]
+    got = confidence_maps(kp, size, stride, sigma)
+    assert np.abs(got - reference_maps(kp, size, stride, sigma)).max() <= 1e-6
+    np.testing.assert_allclose(part_affinity_fields(kp, limbs, size, stride, width),
+                               reference_pafs(kp, limbs, size, stride, width), atol=1e-6)
+
+
 def test_empty_frames_and_bad_input():
     """Shapes on a frame with no people; refusals name the field (common practice, no source)."""
     empty = np.zeros((0, 17, 3))
