@@ -141,7 +141,8 @@ def perceive(keypoints: np.ndarray, occlusion: np.ndarray, height: np.ndarray,
     Per person, in order: whole-person loss (small or mostly hidden people), left-right
     confusion, per-joint jitter ``N(0, (0.003 + 0.006 occ) h)`` per axis, invented spots for hidden
     joints, peak heights (``U(0.75, 1)(1 - 0.35 occ)`` for visible joints, ``U(0.3, 0.75)
-    (1 - 0.4 occ)`` for hidden ones), missed joints; per limb, a field gain
+    (1 - 0.4 occ)`` for hidden ones, ``U(0.75, 1)`` for invented spots: a confident guess),
+    missed joints; per limb, a field gain
     ``U(0.7, 1)(1 - 0.6 max occ)`` of its ends, halved when an end was missed. The rates are
     the module's constants.
 
@@ -173,11 +174,15 @@ def perceive(keypoints: np.ndarray, occlusion: np.ndarray, height: np.ndarray,
         noise = rng.normal(size=(num_joints, 2)) * (h * (_JITTER + _JITTER_OCCLUDED * occ))[:, None]
         kp[:, :2] += noise * labelled[:, None]
         invent = rng.random(num_joints) < _INVENT * occ
+        invented = np.zeros(num_joints, dtype=bool)
         for j in np.flatnonzero(invent & (kp[:, 2] == 1)):
             kp[j, :2] = _guess(kp, int(j), h, rng)
+            invented[j] = True
         visible = kp[:, 2] == 2
         peak = np.where(visible, rng.uniform(0.75, 1.0, num_joints) * (1 - 0.35 * occ),
                         rng.uniform(0.3, 0.75, num_joints) * (1 - 0.4 * occ))
+        # An invented spot is a confident guess: the network answers as if it saw the joint.
+        peak = np.where(invented, rng.uniform(0.75, 1.0, num_joints), peak)
         missed = rng.random(num_joints) < _MISS + _MISS_OCCLUDED * occ**2
         if lost:
             peak *= rng.uniform(0.1, 0.35)
