@@ -93,30 +93,41 @@ def person_scale(keypoints: np.ndarray, skeleton: Skeleton) -> float:
 
     Notes
     -----
-    Each labelled torso segment (shoulder width, hip width, each side's shoulder to hip) gives
-    ``length / fraction``; projection only shortens, so the largest of them is the least
-    foreshortened estimate. A segment more than twice the median of the others is taken to hold a
-    wrong joint and left out (with two or more others to compare against).
+    Each labelled torso segment gives ``length / fraction``. Projection only shortens, so the
+    largest estimate is the least foreshortened one -- but a wrong joint lengthens. The torso
+    is read as two like pairs that foreshorten together: the widths (shoulders, hips: a turn
+    about the vertical axis shortens both alike) and the sides (left and right shoulder to
+    hip: a bow shortens both alike). Within a pair, estimates more than 1.5 times apart mean
+    the longer holds a wrong joint, and the shorter is kept; otherwise the longer. The scale is
+    the larger of the two pairs' estimates (a person seen side on has short widths but full
+    sides; one bowing to the camera, the reverse).
 
     Examples
     --------
     >>> from app.model.skeleton import coco_body
     >>> kp = np.zeros((17, 3)); kp[[5, 6, 11, 12], 2] = 2
-    >>> kp[5, :2], kp[6, :2] = (100, 100), (74.1, 100)     # shoulders 25.9 px apart
-    >>> kp[11, :2], kp[12, :2] = (97, 128.8), (78, 128.8)
+    >>> kp[5, :2], kp[6, :2] = (100, 100), (90, 100)       # seen nearly side on
+    >>> kp[11, :2], kp[12, :2] = (98, 128.8), (91, 128.8)
     >>> round(person_scale(kp, coco_body()), 1)
-    100.9
+    100.2
+    >>> kp[11, :2] = (160, 128.8)                            # left hip on a neighbour
+    >>> round(person_scale(kp, coco_body()), 1)
+    100.1
     """
     kp = np.asarray(keypoints, dtype=np.float64)
-    implied = []
-    for a, b, frac in torso_pairs(skeleton):
-        if kp[a, 2] > 0 and kp[b, 2] > 0:
-            implied.append(float(np.hypot(*(kp[a, :2] - kp[b, :2]))) / frac)
-    if not implied:
-        return float("nan")
-    values = np.asarray(implied)
-    if values.size >= 3:
-        keep = [v for i, v in enumerate(values)
-                if v <= 2.0 * np.median(np.delete(values, i))]
-        values = np.asarray(keep) if keep else values
-    return float(values.max())
+    index = {n: i for i, n in enumerate(skeleton.joints)}
+    estimates = []
+    for pair in ((("left_shoulder", "right_shoulder"), ("left_hip", "right_hip")),
+                 (("left_shoulder", "left_hip"), ("right_shoulder", "right_hip"))):
+        values = []
+        for a_name, b_name in pair:
+            a, b = index.get(a_name), index.get(b_name)
+            if a is None or b is None or not (kp[a, 2] > 0 and kp[b, 2] > 0):
+                continue
+            frac = SEGMENT_FRACTIONS[frozenset((a_name, b_name))]
+            values.append(float(np.hypot(*(kp[a, :2] - kp[b, :2]))) / frac)
+        if len(values) == 2 and max(values) > 1.5 * min(values):
+            estimates.append(min(values))
+        elif values:
+            estimates.append(max(values))
+    return max(estimates) if estimates else float("nan")
