@@ -142,10 +142,11 @@ def cmd_summary(args: argparse.Namespace) -> int:
 
 
 def cmd_demo(args: argparse.Namespace) -> int:
-    from app.demo import generate
+    from app.demo import DEFAULT_SEED, generate
 
     out = Path(args.dir)
-    generate(out, seed=args.seed, frames=args.frames)
+    generate(out, seed=DEFAULT_SEED if args.seed is None else args.seed, frames=args.frames,
+             progress=_stderr_progress(args.quiet))
     print(f"wrote the demo scenario to {out}; open it with `posewright open {out}`")
     return 0
 
@@ -291,7 +292,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = command("demo", cmd_demo, "generate the synthetic demo scenario in DIR", project=False)
     p.add_argument("dir", metavar="DIR")
-    p.add_argument("--seed", type=int, default=7)
+    p.add_argument("--seed", type=int, default=None,
+                   help="another seed gives another rehearsal (default: the shipped one)")
     p.add_argument("--frames", type=int, default=24)
     return parser
 
