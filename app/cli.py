@@ -69,8 +69,11 @@ def cmd_new(args: argparse.Namespace) -> int:
     from app.store import Project
 
     skeleton = load_skeleton(args.skeleton) if args.skeleton else None
-    if args.images is None:
-        raise BadInput("give --images DIR", where="new")
+    if (args.images is None) == (args.video is None):
+        raise BadInput("give --images DIR or --video FILE", where="new")
+    video_options = _video_options(args)
+    if args.video is not None:
+        return _new_from_video(args, skeleton, video_options)
     with Project.create(args.project, images=args.images, skeleton=skeleton, author=args.author,
                         progress=_stderr_progress(args.quiet)) as project:
         frames = project.frames()
@@ -83,8 +86,60 @@ def cmd_new(args: argparse.Namespace) -> int:
     return 0
 
 
+def _video_options(args: argparse.Namespace) -> dict[str, Any]:
+    """``every``, ``start`` and ``end`` for a video (refused without ``--video``)."""
+    from app.formats.video import parse_time
+
+    given = [name for name in ("every", "start", "end") if getattr(args, name) is not None]
+    if given and args.video is None:
+        raise BadInput(f"--{given[0]} goes with --video FILE", where=args.command)
+    return {"every": 1 if args.every is None else args.every,
+            "start": None if args.start is None else parse_time(args.start, "--start"),
+            "end": None if args.end is None else parse_time(args.end, "--end")}
+
+
+def _new_from_video(args: argparse.Namespace, skeleton: Any, options: dict[str, Any]) -> int:
+    """``new --video``: the video is checked before the project exists, and a project whose
+    frames could not be extracted is removed again, so a failed ``new`` leaves nothing."""
+    from app.formats.video import probe_video
+    from app.store import Project
+    from app.store.project import DB_NAME, HOLDER_NAME, LOCK_NAME, VIDEO_FRAMES
+
+    probe_video(args.video)
+    folder = Path(args.project)
+    existed = folder.exists()
+    project = Project.create(folder, skeleton=skeleton, author=args.author)
+    try:
+        with project:
+            frames = project.add_video_frames(args.video, progress=_stderr_progress(args.quiet),
+                                              **options)
+    except BaseException:
+        for name in (DB_NAME, DB_NAME + "-wal", DB_NAME + "-shm", HOLDER_NAME, LOCK_NAME):
+            (folder / name).unlink(missing_ok=True)
+        for made in [folder / VIDEO_FRAMES] + ([] if existed else [folder]):
+            if made.is_dir() and not any(made.iterdir()):
+                made.rmdir()
+        raise
+    print(f"created {args.project}: {_video_summary(frames)}")
+    return 0
+
+
+def _video_summary(frames: Sequence[Any]) -> str:
+    if not frames:
+        return "no new frames (the project has them all)"
+    first, last = frames[0], frames[-1]
+    return (f"{len(frames)} frames (video frames {first.video_index} to {last.video_index}, "
+            f"{first.timestamp:.2f} s to {last.timestamp:.2f} s)")
+
+
 def cmd_add(args: argparse.Namespace) -> int:
+    options = _video_options(args)
     with _open(args) as project:
+        if args.video is not None:
+            added = project.add_video_frames(args.video, progress=_stderr_progress(args.quiet),
+                                             **options)
+            print(f"added to {args.project}: {_video_summary(added)}")
+            return 0
         added = project.add_images(args.images, progress=_stderr_progress(args.quiet))
         print(f"added {len(added)} frames to {args.project}")
     return 0
@@ -188,6 +243,10 @@ def cmd_triage(args: argparse.Namespace) -> int:
 def cmd_targets(args: argparse.Namespace) -> int:
     from app.jobs_analysis import TargetSettings, export_targets
 
+    if args.check:
+        return _check_targets(args)
+    if args.out_dir is None:
+        raise BadInput("give the OUT_DIR to write the targets to", where="targets")
     settings = TargetSettings(stride=args.stride, sigma=args.sigma, limb_width=args.limb_width,
                               dtype=args.dtype)
     settings.check()
@@ -197,6 +256,52 @@ def cmd_targets(args: argparse.Namespace) -> int:
                                progress=_stderr_progress(args.quiet))
     print(f"wrote {stats['frames']} frames of training targets to {stats['out']}"
           + (f" ({stats['skipped']} skipped: unreadable images)" if stats["skipped"] else ""))
+    return 0
+
+
+def _check_targets(args: argparse.Namespace) -> int:
+    """``targets --check OUT_DIR``, or ``targets PROJECT OUT_DIR --check``, which also checks
+    that the export was made from PROJECT with its skeleton. Writes nothing."""
+    from app.jobs_analysis import check_targets
+
+    out = Path(args.project if args.out_dir is None else args.out_dir)
+    report = check_targets(out, progress=_stderr_progress(args.quiet))
+    problems = list(report.problems)
+    if args.out_dir is not None:
+        manifest = json.loads((out / "manifest.json").read_text(encoding="utf-8"))
+        with _open(args, write=False) as project:
+            if manifest.get("project_id") != project.project_id:
+                problems.append(f"{out / 'manifest.json'}: field project_id: the export was "
+                                f"made from another project than {args.project}")
+            if manifest.get("skeleton") != project.skeleton.to_dict():
+                problems.append(f"{out / 'manifest.json'}: field skeleton: not the skeleton "
+                                f"of {args.project}")
+    for problem in problems:
+        print(f"posewright: error: {problem}", file=sys.stderr)
+    if problems:
+        return 2
+    print(f"ok: {report.frames} frames checked in {out}")
+    return 0
+
+
+def cmd_prelabel(args: argparse.Namespace) -> int:
+    from app.inference.prelabel import parse_frames, prelabel
+
+    with _open(args) as project:
+        frames = None
+        if args.frames is not None:
+            frames = [f.id for f in parse_frames(args.frames, project.frames())]
+        stats = prelabel(project, args.model, args.config, frames=frames,
+                         progress=_stderr_progress(args.quiet))
+    if args.json:
+        _print_json(stats)
+    else:
+        print(f"pre-labelled {stats.get('frames', 0)} frames with {Path(args.model).name}: "
+              f"{stats.get('people', 0)} people on {stats.get('frames grouped', 0)} frames"
+              + (f"; {stats['frames kept']} frames kept their labels"
+                 if stats.get("frames kept") else "")
+              + (f"; {stats['unreadable']} unreadable images skipped"
+                 if stats.get("unreadable") else ""))
     return 0
 
 
@@ -238,12 +343,25 @@ def build_parser() -> argparse.ArgumentParser:
         p.set_defaults(fn=fn)
         return p
 
-    p = command("new", cmd_new, "make a project from a folder of images")
+    def video_options(p: argparse.ArgumentParser) -> None:
+        p.add_argument("--every", type=int, metavar="N",
+                       help="with --video: keep every N-th frame (default 1)")
+        p.add_argument("--start", metavar="T",
+                       help="with --video: from this time (seconds, or m:ss or h:mm:ss)")
+        p.add_argument("--end", metavar="T", help="with --video: up to this time (excluded)")
+
+    p = command("new", cmd_new, "make a project from a folder of images or from a video")
     p.add_argument("--images", metavar="DIR", help="folder of images (searched recursively)")
+    p.add_argument("--video", metavar="FILE",
+                   help="video whose frames are extracted into PROJECT/frames/<name>/")
+    video_options(p)
     p.add_argument("--skeleton", metavar="FILE.json", help="custom skeleton (default: COCO body)")
 
-    p = command("add", cmd_add, "add the new images of a folder to a project")
-    p.add_argument("--images", metavar="DIR", required=True)
+    p = command("add", cmd_add, "add the new images of a folder, or frames of a video")
+    source = p.add_mutually_exclusive_group(required=True)
+    source.add_argument("--images", metavar="DIR")
+    source.add_argument("--video", metavar="FILE")
+    video_options(p)
 
     p = command("import", cmd_import, "import COCO keypoints labels (dataset or results list)")
     p.add_argument("file", metavar="FILE.json")
@@ -273,13 +391,27 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = command("targets", cmd_targets,
                 "write training targets (confidence maps, PAFs, loss masks) per frame")
-    p.add_argument("out_dir", metavar="OUT_DIR")
+    p.add_argument("out_dir", metavar="OUT_DIR", nargs="?")
+    p.add_argument("--check", action="store_true",
+                   help="re-read the export in OUT_DIR and verify shapes, ranges and the "
+                        "manifest; writes nothing (`targets --check OUT_DIR` needs no project)")
     p.add_argument("--stride", type=int, default=8)
     p.add_argument("--sigma", type=float, default=7.0, help="confidence-map sigma, image px")
     p.add_argument("--limb-width", type=float, default=8.0, help="PAF half-width, image px")
     p.add_argument("--dtype", choices=("float16", "float32"), default="float32")
     p.add_argument("--states", default="corrected,signed-off",
                    help="frames in these states (default corrected,signed-off), or 'all'")
+
+    p = command("prelabel", cmd_prelabel,
+                "run an ONNX pose model on the CPU and store what it finds as auto-labels")
+    p.add_argument("--model", metavar="FILE.onnx", required=True)
+    p.add_argument("--config", metavar="FILE.json",
+                   help="how to feed the model and read its outputs (default: FILE.json beside "
+                        "the model, else the built-in config; see "
+                        "assets/prelabel-config.example.json)")
+    p.add_argument("--frames", metavar="LIST",
+                   help="frame ids and ranges (1,2,5-9), 'untouched' or 'all' (default all)")
+    p.add_argument("--json", action="store_true", help="print the counts as JSON")
 
     p = command("open", cmd_open, "open the project in the desktop app")
     p.add_argument("--screenshot", metavar="FILE.png",

@@ -246,3 +246,139 @@ def run_triage(project: Project, progress: Progress | None = None,
     project.store_triage({fid: (t.score, [r.to_dict() for r in t.reasons])
                           for fid, t in results.items()})
     return results
+
+
+# ---------------------------------------------------------------------- checking an export
+
+@dataclass(frozen=True)
+class TargetsCheck:
+    """What :func:`check_targets` found: how many frames it read and every problem, each
+    naming the file (and the key) it is about."""
+
+    frames: int
+    problems: list[str]
+
+    @property
+    def ok(self) -> bool:
+        return not self.problems
+
+
+#: Slack for values stored as float16 (its spacing just below 1 is about 5e-4).
+_CHECK_TOLERANCE = {"float16": 2e-3, "float32": 1e-5}
+
+
+def check_targets(out_dir: str | Path, progress: Progress | None = None) -> TargetsCheck:
+    """Re-read a training-target export and check it against its own manifest.
+
+    Checks: the manifest is the export's format and version, its skeleton is valid and its
+    parameters hold a known dtype and a stride; every frame entry names a file that exists;
+    each file holds exactly ``confidence_maps (K, H, W)``, ``pafs (L, 2, H, W)`` and
+    ``loss_mask (K + 2L, H, W)`` for the skeleton's ``K`` joints and ``L`` limbs and the grid
+    ``H = ceil(height / stride)``, ``W = ceil(width / stride)`` of the frame's size, in the
+    manifest's dtype; every value is finite; confidence maps lie in [0, 1]; each field vector
+    is at most 1 long (both with a slack for float16 rounding); the loss mask is 0 or 1. A
+    ``.npz`` file that no frame entry names is a problem too. Files are read with
+    ``allow_pickle=False``.
+    """
+    from app.model.skeleton import skeleton_from_dict
+
+    progress = progress or Progress()
+    out = Path(out_dir)
+    where = out / "manifest.json"
+    try:
+        manifest = json.loads(where.read_text(encoding="utf-8"))
+    except OSError as exc:
+        raise BadInput(f"cannot read the manifest ({exc.strerror})", where=str(where)) from None
+    except (json.JSONDecodeError, UnicodeDecodeError) as exc:
+        raise BadInput(f"the manifest is not valid JSON ({exc})", where=str(where)) from None
+    if not isinstance(manifest, dict) or manifest.get("format") != TARGETS_FORMAT:
+        raise BadInput(f"field format: expected {TARGETS_FORMAT!r}", where=str(where))
+    if manifest.get("version") != TARGETS_VERSION:
+        raise BadInput(f"field version: {manifest.get('version')!r}, this Posewright reads "
+                       f"version {TARGETS_VERSION}", where=str(where))
+    skeleton = skeleton_from_dict(manifest.get("skeleton"), where=f"{where}: skeleton")
+    params = manifest.get("parameters")
+    if not isinstance(params, dict):
+        raise BadInput("field parameters is missing", where=str(where))
+    dtype, stride = params.get("dtype"), params.get("stride")
+    if dtype not in _CHECK_TOLERANCE:
+        raise BadInput(f"field parameters.dtype: {dtype!r} is not float16 or float32",
+                       where=str(where))
+    if not (isinstance(stride, int) and stride >= 1):
+        raise BadInput(f"field parameters.stride: {stride!r} is not a positive integer",
+                       where=str(where))
+    frames = manifest.get("frames")
+    if not isinstance(frames, list):
+        raise BadInput("field frames is not a list", where=str(where))
+    tol = _CHECK_TOLERANCE[dtype]
+    k, n_limbs = skeleton.num_joints, len(skeleton.limbs)
+    problems: list[str] = []
+    named: set[str] = set()
+    for n, entry in enumerate(frames):
+        progress.step(n, len(frames), "checking training targets")
+        record = f"{where}: frames[{n}]"
+        try:
+            name = str(entry["targets"])
+            width, height = int(entry["width"]), int(entry["height"])
+            grid = [int(v) for v in entry["grid"]]
+        except (KeyError, TypeError, ValueError) as exc:
+            problems.append(f"{record}: a field is missing or wrong ({exc})")
+            continue
+        if name in named:
+            problems.append(f"{record}: file {name} is named by two frames")
+            continue
+        named.add(name)
+        want = [math.ceil(height / stride), math.ceil(width / stride)]
+        if grid != want:
+            problems.append(f"{record}: field grid {grid}, expected {want} for a {width}x"
+                            f"{height} image at stride {stride}")
+        problems.extend(_check_target_file(out / name, (k, n_limbs, want[0], want[1]), dtype,
+                                           tol))
+    progress.step(len(frames), len(frames), "checking training targets")
+    for extra in sorted(p.name for p in out.glob("*.npz")):
+        if extra not in named:
+            problems.append(f"{out / extra}: no frame of the manifest names this file")
+    return TargetsCheck(len(frames), problems)
+
+
+def _check_target_file(path: Path, shape: tuple[int, int, int, int], dtype: str,
+                       tol: float) -> list[str]:
+    import zipfile
+
+    k, n_limbs, h, w = shape
+    expected = {"confidence_maps": (k, h, w), "pafs": (n_limbs, 2, h, w),
+                "loss_mask": (k + 2 * n_limbs, h, w)}
+    try:
+        with np.load(path, allow_pickle=False) as npz:
+            keys = set(npz.files)
+            if keys != set(expected):
+                return [f"{path}: keys {sorted(keys)}, expected {sorted(expected)}"]
+            arrays = {key: npz[key] for key in expected}
+    except (OSError, ValueError, EOFError, zipfile.BadZipFile) as exc:
+        return [f"{path}: not a readable .npz of arrays ({exc})"]
+    problems = []
+    for key, arr in arrays.items():
+        if arr.shape != expected[key]:
+            problems.append(f"{path}: key {key}: shape {arr.shape}, expected {expected[key]}")
+        elif arr.dtype != np.dtype(dtype):
+            problems.append(f"{path}: key {key}: dtype {arr.dtype}, the manifest says {dtype}")
+        else:
+            # numpy has no fast float16 loops: check in float32 (exact for float16 values).
+            arrays[key] = arr = arr.astype(np.float32, copy=False)
+            if not np.isfinite(arr).all():
+                problems.append(f"{path}: key {key}: holds values that are not finite")
+    if problems:
+        return problems
+    cm = arrays["confidence_maps"]
+    if cm.size and (cm.min() < -tol or cm.max() > 1 + tol):
+        problems.append(f"{path}: key confidence_maps: values from {cm.min():g} to "
+                        f"{cm.max():g}, outside [0, 1]")
+    paf = arrays["pafs"]
+    squared = paf[:, 0] * paf[:, 0] + paf[:, 1] * paf[:, 1]
+    if squared.size and squared.max() > (1 + tol) ** 2:
+        problems.append(f"{path}: key pafs: a vector is {math.sqrt(squared.max()):.3g} long, "
+                        "more than 1")
+    mask = arrays["loss_mask"]
+    if not ((mask == 0) | (mask == 1)).all():
+        problems.append(f"{path}: key loss_mask: holds values other than 0 and 1")
+    return problems

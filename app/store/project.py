@@ -19,8 +19,10 @@ import getpass
 import json
 import logging
 import os
+import shutil
 import socket
 import sqlite3
+import tempfile
 import threading
 import time
 import uuid
@@ -35,6 +37,7 @@ import numpy as np
 
 from app.errors import BadInput, NotFound, PosewrightError, ReadOnly
 from app.formats.images import ImageInfo, find_images, probe_image
+from app.formats.video import extract_frames, probe_video
 from app.model.edits import (
     AddNote,
     Change,
@@ -56,6 +59,7 @@ log = logging.getLogger(__name__)
 DB_NAME = "project.db"
 LOCK_NAME = "project.lock"
 HOLDER_NAME = "project.holder.json"
+VIDEO_FRAMES = "frames"  # where frames extracted from videos go, inside the project folder
 
 
 @dataclass(frozen=True)
@@ -701,6 +705,70 @@ class Project:
             ids = _insert_frames(self._conn, self.folder, images_dir, infos, first)
             if not self._meta.get("images_root"):
                 self._set_meta("images_root", _relative(images_dir, self.folder))
+        self._notify("frames", ids)
+        return [self.frame(i) for i in ids]
+
+    def add_video_frames(self, video: str | Path, every: int = 1, start: float | None = None,
+                         end: float | None = None,
+                         progress: Progress | None = None) -> list[Frame]:
+        """Extract frames of ``video`` into ``frames/<video stem>/`` and register them with
+        their index in the video and their time in seconds (see :mod:`app.formats.video` for
+        ``every``, ``start`` and ``end``). ``file_name`` is ``<video stem>/<index>.jpg``.
+
+        Frames the project already has (the same file) are not added again, so another range
+        of the same video can be added later; a different video with the same name is refused.
+        All or nothing: after a bad video, a failure or a cancel no file is left behind and no
+        frame is registered.
+        """
+        self._check_writable()
+        info = probe_video(video)
+        stem = Path(video).stem.lstrip(".") or "video"
+        rel_dir = f"{VIDEO_FRAMES}/{stem}"
+        videos = json.loads(self._meta.get("videos", "{}"))
+        if rel_dir in videos and videos[rel_dir]["fingerprint"] != info.fingerprint:
+            raise BadInput(f"the project has frames of another video named {stem!r} in "
+                           f"{rel_dir}", where=str(video), hint="rename the video to add it")
+        root = self.folder / VIDEO_FRAMES
+        target = root / stem
+        made_root, made_target = not root.exists(), not target.exists()
+        root.mkdir(exist_ok=True)
+        staging = Path(tempfile.mkdtemp(prefix=f".{stem}.", suffix=".partial", dir=root))
+        moved: list[Path] = []
+        try:
+            extracted = extract_frames(info.path, staging, every, start, end, progress)
+            known = {f.path for f in self.frames()}
+            target.mkdir(exist_ok=True)
+            rows = []
+            for vf in extracted:
+                final = target / vf.path.name
+                rel = _relative(final, self.folder)
+                if rel in known:
+                    continue
+                os.replace(vf.path, final)
+                moved.append(final)
+                rows.append([rel, f"{stem}/{final.name}", vf.width, vf.height, vf.index,
+                             vf.timestamp])
+            with self._mutex, self._transaction():
+                first = (self._conn.execute("SELECT max(id) FROM frames").fetchone()[0] or 0) + 1
+                ids = list(range(first, first + len(rows)))
+                self._conn.executemany(
+                    "INSERT INTO frames (id, path, file_name, width, height, video_index, "
+                    "timestamp) VALUES (?, ?, ?, ?, ?, ?, ?)",
+                    [(i, *r) for i, r in zip(ids, rows)])
+                videos[rel_dir] = {"source": str(info.path.resolve()),
+                                   "fingerprint": info.fingerprint}
+                self._set_meta("videos", json.dumps(videos))
+                if not self._meta.get("images_root"):
+                    self._set_meta("images_root", VIDEO_FRAMES)
+        except BaseException:
+            for path in moved:
+                path.unlink(missing_ok=True)
+            shutil.rmtree(staging, ignore_errors=True)
+            for made, folder in ((made_target, target), (made_root, root)):
+                if made and folder.is_dir() and not any(folder.iterdir()):
+                    folder.rmdir()
+            raise
+        shutil.rmtree(staging, ignore_errors=True)
         self._notify("frames", ids)
         return [self.frame(i) for i in ids]
 
