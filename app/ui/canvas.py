@@ -1,0 +1,611 @@
+"""The Canvas: the frame's image with every person drawn, pan and zoom, selection and dragging.
+
+Why a plain ``QWidget`` with its own transform rather than a ``QGraphicsView`` scene: the
+overlay is drawn in *screen* pixels (a joint is about 5 px across at any zoom) by the one
+painter function that the headless render also uses. A scene would scale every item with the
+view, so each of the hundreds of joints and limbs of a crowded frame would need to ignore the
+view transform and the drawing would live in item classes instead of that shared function.
+Here one transform (a scale and an offset, image pixels to widget pixels) feeds
+:func:`app.ui.overlay.paint_overlay`, and hit testing is one vectorised nearest-point query.
+
+The Canvas never edits: it emits :attr:`Canvas.editRequested` with an edit object and the main
+window applies it through the store.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from types import SimpleNamespace
+from typing import Any
+
+import numpy as np
+from PySide6.QtCore import QPointF, QRectF, QSizeF, Qt, Signal
+from PySide6.QtGui import (
+    QColor,
+    QImage,
+    QKeyEvent,
+    QMouseEvent,
+    QPainter,
+    QPaintEvent,
+    QResizeEvent,
+    QTransform,
+    QWheelEvent,
+)
+from PySide6.QtWidgets import QWidget
+
+from app.model.edits import MoveJoint
+from app.model.labels import Frame, Person
+from app.model.skeleton import Skeleton
+from app.ui.images import Decoded, qimage_view, shrink
+from app.ui.overlay import OverlayLayout, OverlayStyle, assign_colours, paint_overlay
+
+BACKGROUND = QColor("#262626")
+PLACEHOLDER = QColor("#3a3a3a")
+
+
+@dataclass
+class _Drag:
+    person_id: int
+    joint: int
+    press: QPointF
+    start_xy: tuple[float, float]
+    xy: tuple[float, float]
+    moved: bool = False
+
+
+class Canvas(QWidget):
+    """The central image view. See the module docstring for the design.
+
+    Signals
+    -------
+    selectionChanged()
+        The selected joints or person changed.
+    editRequested(object)
+        The user asked for an edit (a :class:`~app.model.edits.Edit`).
+    personPicked(int)
+        In pick mode (merging), the person clicked.
+    viewChanged()
+        Zoom or pan changed.
+    """
+
+    selectionChanged = Signal()
+    editRequested = Signal(object)
+    personPicked = Signal(int)
+    viewChanged = Signal()
+
+    #: How near (screen pixels) a click must be to a joint to hit it.
+    HIT_RADIUS = 9.0
+    #: How near to a limb, to hit its person.
+    LIMB_HIT = 4.0
+    #: How far the mouse must move before a press on a joint becomes a drag.
+    DRAG_START = 3.0
+    MIN_SCALE, MAX_SCALE = 0.02, 40.0
+
+    def __init__(self, skeleton: Skeleton, parent: QWidget | None = None):
+        super().__init__(parent)
+        self.skeleton = skeleton
+        self.setObjectName("Canvas")
+        self.setFocusPolicy(Qt.FocusPolicy.StrongFocus)
+        self.setMouseTracking(True)
+        self.setAttribute(Qt.WidgetAttribute.WA_OpaquePaintEvent, True)
+        self.setMinimumSize(200, 150)
+
+        self.frame: Frame | None = None
+        self.people: list[Person] = []
+        self.flags: dict[int, frozenset[int]] = {}
+        #: Person id -> palette index; kept while the frame is edited so colours do not jump.
+        self.colours: dict[int, int] = {}
+        self.read_only = False
+        self.show_unlabeled = False
+        self.show_tags = True
+        self.focus_mode = False
+        self.message = ""  # shown instead of the image when it cannot be shown
+
+        self._decoded: Decoded | None = None
+        self._scaled: tuple[Any, QImage] | None = None
+        self._scaled_key: tuple[int, float] | None = None
+        self._scale = 1.0
+        self._ox = 0.0
+        self._oy = 0.0
+        self._fit_mode = True
+
+        self._joints: list[tuple[int, int]] = []
+        self._person: int | None = None
+        self._hover: tuple[int, int | None] | None = None
+        self._drag: _Drag | None = None
+        self._pan: QPointF | None = None
+        self._pan_moved = False
+        self._pick: str | None = None
+        self._layout: OverlayLayout | None = None
+        self._hit_pts = np.zeros((0, 2))
+        self._hit_pid = np.zeros(0, int)
+        self._hit_joint = np.zeros(0, int)
+        self._hit_labelled = np.zeros(0, bool)
+        self._seg = np.zeros((0, 4))
+        self._seg_pid = np.zeros(0, int)
+        self._pointer: QPointF | None = None
+        #: The frame id whose image was last painted (None while only a placeholder shows).
+        self.painted_frame: int | None = None
+
+    # ------------------------------------------------------------------ content
+
+    def set_frame(self, frame: Frame, people: list[Person], flags: dict[int, frozenset[int]],
+                  decoded: Decoded | None = None) -> None:
+        """Show another frame: new people, no selection, the image if already decoded."""
+        keep_view = self.frame is not None and (self.frame.width, self.frame.height) == \
+            (frame.width, frame.height) and not self._fit_mode
+        self.frame = frame
+        self._decoded = None
+        self._scaled = None
+        self._scaled_key = None
+        self.painted_frame = None
+        self.message = ""
+        self._joints = []
+        self._person = None
+        self._hover = None
+        self._drag = None
+        self._pick = None
+        self.colours = {}
+        self._set_people(people, flags)
+        if decoded is not None:
+            self.set_image(decoded)
+        if not keep_view:
+            self.fit()
+        self.update()
+        self.selectionChanged.emit()
+
+    def set_people(self, people: list[Person], flags: dict[int, frozenset[int]]) -> None:
+        """New labels of the same frame (after an edit); keeps what is still selectable."""
+        self._set_people(people, flags)
+        ids = {p.id for p in people}
+        joints = [(p, j) for p, j in self._joints if p in ids]
+        person = self._person if self._person in ids else None
+        changed = joints != self._joints or person != self._person
+        self._joints, self._person = joints, person
+        if self._hover is not None and self._hover[0] not in ids:
+            self._hover = None
+        self._drag = None
+        self.update()
+        if changed:
+            self.selectionChanged.emit()
+
+    def set_image(self, decoded: Decoded | None, message: str = "") -> None:
+        """The decoded image of the current frame (None with a message when unreadable)."""
+        self._decoded = decoded
+        self._scaled = None
+        self._scaled_key = None
+        self.message = message
+        self.update()
+
+    @property
+    def has_image(self) -> bool:
+        return self._decoded is not None
+
+    def _set_people(self, people: list[Person], flags: dict[int, frozenset[int]]) -> None:
+        self.people = list(people)
+        self.flags = dict(flags)
+        ids = {p.id for p in self.people}
+        self.colours = assign_colours(
+            self.people, {p: c for p, c in self.colours.items() if p in ids})
+        pts, pid, joint, lab, seg, seg_pid = [], [], [], [], [], []
+        limbs = self.skeleton.limb_array
+        for p in self.people:
+            kp = p.keypoints
+            placed = np.isfinite(kp[:, :2]).all(axis=1)
+            idx = np.flatnonzero(placed)
+            pts.append(kp[idx, :2])
+            pid.append(np.full(len(idx), p.id))
+            joint.append(idx)
+            lab.append(kp[idx, 2] > 0)
+            if len(limbs):
+                on = placed[limbs[:, 0]] & placed[limbs[:, 1]] & (kp[limbs[:, 0], 2] > 0) \
+                    & (kp[limbs[:, 1], 2] > 0)
+                seg.append(np.column_stack([kp[limbs[on, 0], :2], kp[limbs[on, 1], :2]]))
+                seg_pid.append(np.full(int(on.sum()), p.id))
+        self._hit_pts = np.vstack(pts) if pts else np.zeros((0, 2))
+        self._hit_pid = np.concatenate(pid) if pid else np.zeros(0, int)
+        self._hit_joint = np.concatenate(joint) if joint else np.zeros(0, int)
+        self._hit_labelled = np.concatenate(lab) if lab else np.zeros(0, bool)
+        self._seg = np.vstack(seg) if seg else np.zeros((0, 4))
+        self._seg_pid = np.concatenate(seg_pid) if seg_pid else np.zeros(0, int)
+
+    def person(self, person_id: int) -> Person | None:
+        return next((p for p in self.people if p.id == person_id), None)
+
+    def number_of(self, person_id: int) -> int | None:
+        """The tag number of a person in this frame (1-based)."""
+        for n, p in enumerate(self.people):
+            if p.id == person_id:
+                return n + 1
+        return None
+
+    # ------------------------------------------------------------------ selection
+
+    @property
+    def selected_joints(self) -> list[tuple[int, int]]:
+        return list(self._joints)
+
+    @property
+    def selected_joint(self) -> tuple[int, int] | None:
+        """The joint selected last (the one single-joint actions work on)."""
+        return self._joints[-1] if self._joints else None
+
+    @property
+    def selected_person(self) -> int | None:
+        return self._person
+
+    def select_joint(self, person_id: int, joint: int, add: bool = False) -> None:
+        pair = (int(person_id), int(joint))
+        if add:
+            if pair in self._joints:
+                self._joints.remove(pair)
+            else:
+                self._joints.append(pair)
+        else:
+            self._joints = [pair]
+        self._person = self._joints[-1][0] if self._joints else int(person_id)
+        self.update()
+        self.selectionChanged.emit()
+
+    def select_person(self, person_id: int | None) -> None:
+        self._joints = []
+        self._person = person_id
+        self.update()
+        self.selectionChanged.emit()
+
+    def clear_selection(self) -> None:
+        self._pick = None
+        self.select_person(None)
+
+    def cycle_joint(self, step: int) -> bool:
+        """Select the next (``step`` 1) or previous (-1) joint of the selected person, placed
+        or not; returns False when no person is selected."""
+        if self._person is None:
+            return False
+        k = self.skeleton.num_joints
+        current = next((j for p, j in reversed(self._joints) if p == self._person), None)
+        j = (0 if step > 0 else k - 1) if current is None else (current + step) % k
+        self.select_joint(self._person, j)
+        return True
+
+    def set_pick_mode(self, mode: str | None) -> None:
+        """``"merge"``: the next click on a person emits :attr:`personPicked`."""
+        self._pick = mode
+        self.setCursor(Qt.CursorShape.CrossCursor if mode else Qt.CursorShape.ArrowCursor)
+
+    @property
+    def pick_mode(self) -> str | None:
+        return self._pick
+
+    # ------------------------------------------------------------------ view
+
+    def transform(self) -> QTransform:
+        """Image pixels (label coordinates) to widget pixels."""
+        return QTransform(self._scale, 0, 0, self._scale, self._ox, self._oy)
+
+    @property
+    def scale(self) -> float:
+        return self._scale
+
+    def image_to_screen(self, x: float, y: float) -> QPointF:
+        return QPointF(self._scale * x + self._ox, self._scale * y + self._oy)
+
+    def screen_to_image(self, pos: QPointF) -> tuple[float, float]:
+        return ((pos.x() - self._ox) / self._scale, (pos.y() - self._oy) / self._scale)
+
+    def fit(self) -> None:
+        """Fit the whole image into the Canvas (and keep fitting on resize)."""
+        self._fit_mode = True
+        if self.frame is None or self.frame.width <= 0 or self.frame.height <= 0:
+            return
+        w, h = self.frame.width, self.frame.height
+        margin = 8
+        avail_w = max(1, self.width() - 2 * margin)
+        avail_h = max(1, self.height() - 2 * margin)
+        self._scale = min(avail_w / w, avail_h / h)
+        self._ox = self.width() / 2 - self._scale * (w - 1) / 2
+        self._oy = self.height() / 2 - self._scale * (h - 1) / 2
+        self.update()
+        self.viewChanged.emit()
+
+    def actual_size(self) -> None:
+        """One image pixel per screen pixel, keeping the centre of the Canvas in place."""
+        self.zoom_at(1.0 / self._scale, QPointF(self.width() / 2, self.height() / 2))
+
+    def zoom_at(self, factor: float, pos: QPointF) -> None:
+        """Zoom by ``factor`` keeping the image point under ``pos`` where it is."""
+        new = float(np.clip(self._scale * factor, self.MIN_SCALE, self.MAX_SCALE))
+        x, y = self.screen_to_image(pos)
+        self._scale = new
+        self._ox = pos.x() - new * x
+        self._oy = pos.y() - new * y
+        self._fit_mode = False
+        self.update()
+        self.viewChanged.emit()
+
+    def zoom_in(self) -> None:
+        self.zoom_at(1.25, self._zoom_anchor())
+
+    def zoom_out(self) -> None:
+        self.zoom_at(0.8, self._zoom_anchor())
+
+    def _zoom_anchor(self) -> QPointF:
+        if self._joints:
+            p, j = self._joints[-1]
+            person = self.person(p)
+            if person is not None and np.isfinite(person.keypoints[j, :2]).all():
+                return self.image_to_screen(*person.keypoints[j, :2])
+        return QPointF(self.width() / 2, self.height() / 2)
+
+    def centre_on(self, x: float, y: float) -> None:
+        self._ox = self.width() / 2 - self._scale * x
+        self._oy = self.height() / 2 - self._scale * y
+        self._fit_mode = False
+        self.update()
+
+    # ------------------------------------------------------------------ hit testing
+
+    def joint_at(self, pos: QPointF) -> tuple[int, int] | None:
+        """The shown joint nearest to ``pos`` within :attr:`HIT_RADIUS` screen pixels."""
+        if not len(self._hit_pts):
+            return None
+        pts = self._hit_pts * self._scale + (self._ox, self._oy)
+        d = np.hypot(pts[:, 0] - pos.x(), pts[:, 1] - pos.y())
+        if not self.show_unlabeled:
+            d = np.where(self._hit_labelled, d, np.inf)
+        i = int(np.argmin(d))
+        if d[i] > self.HIT_RADIUS:
+            return None
+        return int(self._hit_pid[i]), int(self._hit_joint[i])
+
+    def person_at(self, pos: QPointF) -> int | None:
+        """The person whose joint, tag or limb is under ``pos``."""
+        hit = self.joint_at(pos)
+        if hit is not None:
+            return hit[0]
+        if self._layout is not None:
+            for pid, rect in self._layout.tags.items():
+                if rect.contains(pos):
+                    return pid
+        if len(self._seg):
+            seg = self._seg * self._scale + (self._ox, self._oy, self._ox, self._oy)
+            a, b = seg[:, :2], seg[:, 2:]
+            ab = b - a
+            ap = np.array([pos.x(), pos.y()]) - a
+            t = np.clip((ap * ab).sum(1) / np.maximum((ab * ab).sum(1), 1e-9), 0, 1)
+            d = np.hypot(*(ap - t[:, None] * ab).T)
+            i = int(np.argmin(d))
+            if d[i] <= self.LIMB_HIT:
+                return int(self._seg_pid[i])
+        return None
+
+    # ------------------------------------------------------------------ painting
+
+    def style(self) -> OverlayStyle:
+        focus = self._person if self.focus_mode else None
+        return OverlayStyle(
+            show_unlabeled=self.show_unlabeled, show_tags=self.show_tags, focus=focus,
+            flags=self.flags, selected_person=self._person,
+            selected_joints=frozenset(self._joints), hover=self._hover, colours=self.colours,
+        )
+
+    def paintEvent(self, event: QPaintEvent) -> None:
+        p = QPainter(self)
+        p.fillRect(self.rect(), BACKGROUND)
+        if self.frame is not None:
+            self._paint_image(p)
+            people: list[Any] = self.people
+            if self._drag is not None and self._drag.moved:
+                people = self._with_drag(people, self._drag)
+            self._layout = paint_overlay(p, people, self.skeleton, self.transform(), self.style(),
+                                         (self.frame.width, self.frame.height))
+            if self._decoded is not None:
+                self.painted_frame = self.frame.id
+        p.end()
+
+    def _paint_image(self, p: QPainter) -> None:
+        assert self.frame is not None
+        s = self._scale
+        w, h = self.frame.width, self.frame.height
+        top_left = QPointF(self._ox - 0.5 * s, self._oy - 0.5 * s)
+        target = QRectF(top_left, QSizeF(w * s, h * s))
+        if self._decoded is None:
+            p.fillRect(target, PLACEHOLDER)
+            p.setPen(QColor("#d0d0d0"))
+            p.drawText(target, Qt.AlignmentFlag.AlignCenter, self.message or "loading image\u2026")
+            return
+        if s < 0.999:
+            # Zoomed out: draw a copy shrunk once per zoom level rather than rescaling on every
+            # paint. The decoding thread already made one by area averaging (so costume
+            # patterns do not alias) for the zoom it was told; at another zoom a quick
+            # bilinear copy is made here.
+            d = self._decoded
+            if d.scaled_image is not None and abs(d.scale - s) < 1e-9:
+                p.drawImage(top_left, d.scaled_image)
+                return
+            key = (id(d), round(s, 9))
+            if self._scaled_key != key:
+                small = shrink(d.pixels, s, fast=True)
+                self._scaled = (small, qimage_view(small))
+                self._scaled_key = key
+            assert self._scaled is not None
+            p.drawImage(top_left, self._scaled[1])
+        else:
+            # Zoomed in: nearest neighbour, so the annotator sees the real pixels.
+            p.drawImage(target, self._decoded.image)
+
+    @staticmethod
+    def _with_drag(people: list[Person], drag: _Drag) -> list[Any]:
+        out: list[Any] = []
+        for person in people:
+            if person.id != drag.person_id:
+                out.append(person)
+                continue
+            kp = person.keypoints.copy()
+            kp[drag.joint, :2] = drag.xy
+            if kp[drag.joint, 2] <= 0:
+                kp[drag.joint, 2] = 2
+            out.append(SimpleNamespace(id=person.id, keypoints=kp))
+        return out
+
+    # ------------------------------------------------------------------ mouse
+
+    def mousePressEvent(self, event: QMouseEvent) -> None:
+        pos = event.position()
+        self._pointer = pos
+        button = event.button()
+        self.setFocus(Qt.FocusReason.MouseFocusReason)
+        if button in (Qt.MouseButton.MiddleButton, Qt.MouseButton.RightButton):
+            self._start_pan(pos)
+            return
+        if button != Qt.MouseButton.LeftButton or self.frame is None:
+            return
+        if self._pick is not None:
+            pid = self.person_at(pos)
+            if pid is not None:
+                self._pick = None
+                self.setCursor(Qt.CursorShape.ArrowCursor)
+                self.personPicked.emit(pid)
+            return
+        hit = self.joint_at(pos)
+        add = bool(event.modifiers() & Qt.KeyboardModifier.ControlModifier)
+        if hit is not None:
+            if add:
+                self.select_joint(*hit, add=True)
+                return
+            if hit not in self._joints or len(self._joints) == 1:
+                self.select_joint(*hit)
+            person = self.person(hit[0])
+            if person is not None and not self.read_only:
+                xy = (float(person.keypoints[hit[1], 0]), float(person.keypoints[hit[1], 1]))
+                self._drag = _Drag(hit[0], hit[1], pos, xy, xy)
+            return
+        pid = self.person_at(pos)
+        if pid is not None:
+            if not add:
+                self.select_person(pid)
+            return
+        self._start_pan(pos)
+
+    def _start_pan(self, pos: QPointF) -> None:
+        self._pan = pos
+        self._pan_moved = False
+        self.setCursor(Qt.CursorShape.ClosedHandCursor)
+
+    def mouseMoveEvent(self, event: QMouseEvent) -> None:
+        pos = event.position()
+        self._pointer = pos
+        if self._drag is not None:
+            d = self._drag
+            if not d.moved and (pos - d.press).manhattanLength() < self.DRAG_START:
+                return
+            d.moved = True
+            # Where the joint goes: its start plus the mouse travel, so grabbing a joint
+            # off-centre does not make it jump.
+            x0, y0 = d.start_xy
+            dx = (pos.x() - d.press.x()) / self._scale
+            dy = (pos.y() - d.press.y()) / self._scale
+            d.xy = self._clamp(x0 + dx, y0 + dy)
+            self.update()
+            return
+        if self._pan is not None:
+            delta = pos - self._pan
+            if delta.manhattanLength() > 0:
+                self._pan = pos
+                self._pan_moved = True
+                self._ox += delta.x()
+                self._oy += delta.y()
+                self._fit_mode = False
+                self.update()
+                self.viewChanged.emit()
+            return
+        hit = self.joint_at(pos)
+        hover = (hit[0], hit[1]) if hit is not None else None
+        if hover != self._hover:
+            self._hover = hover
+            if self._pick is None:
+                self.setCursor(Qt.CursorShape.PointingHandCursor if hover
+                               else Qt.CursorShape.ArrowCursor)
+            self.setToolTip(self._describe(hover) if hover else "")
+            self.update()
+
+    def mouseReleaseEvent(self, event: QMouseEvent) -> None:
+        if self._drag is not None:
+            d, self._drag = self._drag, None
+            if d.moved and self.frame is not None:
+                x, y = d.xy
+                self.editRequested.emit(MoveJoint(self.frame.id, d.person_id, d.joint,
+                                                  round(x, 2), round(y, 2)))
+            self.update()
+            return
+        if self._pan is not None:
+            self._pan = None
+            self.setCursor(Qt.CursorShape.CrossCursor if self._pick
+                           else Qt.CursorShape.ArrowCursor)
+            if not self._pan_moved and event.button() == Qt.MouseButton.LeftButton \
+                    and self._pick is None and not (
+                    event.modifiers() & Qt.KeyboardModifier.ControlModifier):
+                self.select_person(None)
+
+    def wheelEvent(self, event: QWheelEvent) -> None:
+        steps = event.angleDelta().y() / 120.0
+        if steps:
+            self.zoom_at(1.2 ** steps, event.position())
+
+    def leaveEvent(self, event: Any) -> None:
+        self._pointer = None
+        if self._hover is not None:
+            self._hover = None
+            self.update()
+
+    def resizeEvent(self, event: QResizeEvent) -> None:
+        if self._fit_mode:
+            self.fit()
+        super().resizeEvent(event)
+
+    def _describe(self, hit: tuple[int, int]) -> str:
+        """Whose joint this is, for the hover tip."""
+        pid, j = hit
+        person = self.person(pid)
+        if person is None:
+            return ""
+        word = {0: "unlabeled", 1: "occluded", 2: "visible"}[int(person.keypoints[j, 2])]
+        return f"{self.skeleton.joints[j]} of person {pid} (tag {self.number_of(pid)}), {word}"
+
+    # ------------------------------------------------------------------ keys
+
+    def keyPressEvent(self, event: QKeyEvent) -> None:
+        key = event.key()
+        arrows = {Qt.Key.Key_Left: (-1, 0), Qt.Key.Key_Right: (1, 0),
+                  Qt.Key.Key_Up: (0, -1), Qt.Key.Key_Down: (0, 1)}
+        if key in arrows and self.frame is not None:
+            step = 10.0 if event.modifiers() & Qt.KeyboardModifier.ShiftModifier else 1.0
+            hit = self.selected_joint
+            person = self.person(hit[0]) if hit else None
+            if hit and person is not None and not self.read_only \
+                    and np.isfinite(person.keypoints[hit[1], :2]).all():
+                dx, dy = arrows[key]
+                x, y = self._clamp(person.keypoints[hit[1], 0] + dx * step,
+                                   person.keypoints[hit[1], 1] + dy * step)
+                self.editRequested.emit(MoveJoint(self.frame.id, hit[0], hit[1], x, y))
+            event.accept()
+            return
+        super().keyPressEvent(event)
+
+    def focusNextPrevChild(self, next: bool) -> bool:
+        # Tab and Shift+Tab walk the joints of the selected person instead of the focus chain.
+        if self.hasFocus() and self.cycle_joint(1 if next else -1):
+            return True
+        return super().focusNextPrevChild(next)
+
+    def _clamp(self, x: float, y: float) -> tuple[float, float]:
+        if self.frame is None:
+            return float(x), float(y)
+        return (float(np.clip(x, -0.5, self.frame.width - 0.5)),
+                float(np.clip(y, -0.5, self.frame.height - 0.5)))
+
+    def pointer_image_position(self) -> tuple[float, float] | None:
+        """Where the mouse pointer was last seen over the Canvas, in image pixels."""
+        if self._pointer is None or self.frame is None:
+            return None
+        return self._clamp(*self.screen_to_image(self._pointer))

@@ -1,0 +1,172 @@
+"""Every key and mouse gesture of the app, in one table.
+
+The main window builds its actions from :data:`KEYS`, the shortcut sheet (F1) lists it, and the
+README's key table is checked against it by a test, so the three never disagree. Standard
+actions (undo, redo, zoom, open, quit) use the platform's own keys through
+:class:`~PySide6.QtGui.QKeySequence.StandardKey`.
+"""
+
+from __future__ import annotations
+
+import html
+from dataclasses import dataclass
+
+from PySide6.QtGui import QKeySequence
+
+StandardKey = QKeySequence.StandardKey
+
+
+@dataclass(frozen=True)
+class Key:
+    """One entry of the key table.
+
+    ``name`` names the window's action (empty for gestures the Canvas handles itself);
+    ``keys`` are key sequences in portable text or standard keys; ``gesture`` describes a
+    mouse gesture or a key family instead of ``keys``.
+    """
+
+    group: str
+    name: str
+    text: str
+    help: str
+    keys: tuple[str | QKeySequence.StandardKey, ...] = ()
+    gesture: str = ""
+
+
+def _digits() -> tuple[Key, ...]:
+    return tuple(
+        Key("Joints", f"give_{n}", f"Give to person {n}",
+            f"Give the selected joint(s) to person {n}", (str(n),))
+        for n in range(1, 10)
+    )
+
+
+KEYS: tuple[Key, ...] = (
+    # Frames
+    Key("Frames", "next_frame", "Next frame", "Next frame in the Worklist (most suspicious first)",
+        ("Space", "PgDown")),
+    Key("Frames", "prev_frame", "Previous frame", "Previous frame in the Worklist",
+        ("Shift+Space", "PgUp")),
+    Key("Frames", "mark_disputed", "Mark disputed",
+        "Mark the frame disputed; again: back to corrected", ("D",)),
+    Key("Frames", "sign_off", "Sign off", "Sign the frame off; again: back to corrected",
+        ("Ctrl+Return",)),
+    Key("Frames", "write_note", "Write a note", "Write a note in this frame's thread", ("C",)),
+    # Selection
+    Key("Selection", "", "", "Select a joint; on a limb or a tag, select the person",
+        gesture="Click"),
+    Key("Selection", "", "", "Add a joint to the selection, or take it out",
+        gesture="Ctrl+Click"),
+    Key("Selection", "", "", "Move the joint (one edit, on release)", gesture="Drag a joint"),
+    Key("Selection", "", "", "Next / previous joint of the selected person",
+        gesture="Tab / Shift+Tab"),
+    Key("Selection", "next_person", "Next person", "Select the next person", ("]",)),
+    Key("Selection", "prev_person", "Previous person", "Select the previous person", ("[",)),
+    Key("Selection", "clear_selection", "Clear selection",
+        "Clear the selection; cancel a merge in progress", ("Esc",)),
+    # Joints
+    *_digits(),
+    Key("Joints", "", "", "Person 10 and up: type both digits quickly",
+        gesture="Two digits"),
+    Key("Joints", "give_best", "Give to the top suggestion",
+        "Give the selected joint to the best-ranked other person in Owners", ("G",)),
+    Key("Joints", "mark_visible", "Mark visible", "Mark the selected joint(s) visible", ("V",)),
+    Key("Joints", "mark_occluded", "Mark occluded",
+        "Mark the selected joint(s) occluded (position known, hidden)", ("O",)),
+    Key("Joints", "mark_unlabeled", "Mark unlabeled",
+        "Mark the selected joint(s) unlabeled (position remembered, not trained on)",
+        ("U", "Del")),
+    Key("Joints", "place_joint", "Place at pointer",
+        "Place the selected joint where the mouse pointer is", ("P",)),
+    Key("Joints", "", "", "Nudge the selected joint by 1 image pixel (Shift: 10), one edit "
+        "per press", gesture="Arrow keys"),
+    # People
+    Key("People", "new_person", "New person from joint",
+        "New person from the selected joint(s); with nothing selected, an empty person",
+        ("N",)),
+    Key("People", "split_person", "Split off selected joints",
+        "Split the selected joints off their person into a new person", ("X",)),
+    Key("People", "swap_sides", "Swap left and right",
+        "Swap the left and right joints of the selected person", ("S",)),
+    Key("People", "merge_people", "Merge people\u2026",
+        "Merge: then click the person to merge into the selected one", ("M",)),
+    Key("People", "delete_person", "Delete person", "Delete the selected person",
+        ("Shift+Del",)),
+    # View
+    Key("View", "focus_mode", "Focus mode", "Dim everyone but the selected person", ("F",)),
+    Key("View", "show_unlabeled", "Show unlabeled joints",
+        "Show unlabeled joints as hollow crosses where they were", ("H",)),
+    Key("View", "show_tags", "Show number tags", "Show or hide the number tags", ("T",)),
+    Key("View", "fit", "Fit", "Fit the image to the Canvas", ("0",)),
+    Key("View", "actual_size", "Actual pixels (1:1)", "One image pixel per screen pixel",
+        ("Ctrl+0",)),
+    Key("View", "zoom_in", "Zoom in", "Zoom in", (StandardKey.ZoomIn,)),
+    Key("View", "zoom_out", "Zoom out", "Zoom out", (StandardKey.ZoomOut,)),
+    Key("View", "", "", "Zoom at the pointer", gesture="Wheel"),
+    Key("View", "", "", "Pan", gesture="Drag empty space, or middle/right drag"),
+    # Ledger
+    Key("Ledger", "undo", "Undo", "Undo the last edit (any frame; the Canvas follows)",
+        (StandardKey.Undo,)),
+    Key("Ledger", "redo", "Redo", "Redo", (StandardKey.Redo,)),
+    # Project
+    Key("Project", "open_project", "Open project\u2026", "Open another project",
+        (StandardKey.Open,)),
+    Key("Project", "import_labels", "Import labels\u2026", "Import COCO keypoints labels",
+        ("Ctrl+I",)),
+    Key("Project", "import_maps", "Import network maps\u2026",
+        "Import network maps (one .npz per image)", ("Ctrl+Shift+I",)),
+    Key("Project", "run_triage", "Run triage", "Rank the frames by suspicion", ("Ctrl+T",)),
+    Key("Project", "export_labels", "Export labels\u2026", "Export a COCO keypoints dataset",
+        ("Ctrl+E",)),
+    Key("Project", "export_targets", "Export training targets\u2026",
+        "Export confidence maps, part affinity fields and loss masks", ("Ctrl+Shift+E",)),
+    Key("Project", "shortcuts", "Shortcut sheet", "This sheet", ("F1",)),
+    Key("Project", "quit", "Quit", "Close the window", (StandardKey.Quit, "Ctrl+Q")),
+)
+
+
+def sequences(key: Key) -> list[QKeySequence]:
+    """The key sequences of an entry (standard keys expanded for this platform, which needs
+    a Qt application: a headless one is started if there is none)."""
+    if any(isinstance(k, QKeySequence.StandardKey) for k in key.keys):
+        from app.ui.render import gui_application
+
+        gui_application()
+    out: list[QKeySequence] = []
+    for k in key.keys:
+        if isinstance(k, QKeySequence.StandardKey):
+            out.extend(QKeySequence.keyBindings(k))
+        else:
+            out.append(QKeySequence(k))
+    return out
+
+
+def key_text(key: Key) -> str:
+    """How the sheet shows an entry's keys, e.g. ``"U, Del"`` or ``"Click"``.
+
+    Examples
+    --------
+    >>> key_text(next(k for k in KEYS if k.name == "mark_unlabeled"))
+    'U, Del'
+    """
+    if key.gesture:
+        return key.gesture
+    texts = [s.toString(QKeySequence.SequenceFormat.NativeText) for s in sequences(key)]
+    return ", ".join(dict.fromkeys(t for t in texts if t))
+
+
+def sheet_html() -> str:
+    """The shortcut sheet as an HTML table, one section per group."""
+    parts = ["<h2>Posewright keys</h2>"]
+    group = None
+    for key in KEYS:
+        if key.group != group:
+            if group is not None:
+                parts.append("</table>")
+            group = key.group
+            parts.append(f"<h3>{html.escape(group)}</h3>"
+                         "<table cellspacing='0' cellpadding='3'>")
+        parts.append(f"<tr><td width='190'><b>{html.escape(key_text(key))}</b></td>"
+                     f"<td>{html.escape(key.help)}</td></tr>")
+    parts.append("</table>")
+    return "\n".join(parts)

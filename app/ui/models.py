@@ -1,0 +1,561 @@
+"""Item models over store queries: the Worklist, the Owners (people and candidate owners), the
+Ledger and the Notes. Views show them; nothing is filled into widgets by hand.
+
+Each model reloads from the store when told that something changed (the main window forwards
+the store's change notifications); none of them writes.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+from PySide6.QtCore import (
+    QAbstractListModel,
+    QAbstractTableModel,
+    QModelIndex,
+    QPersistentModelIndex,
+    QSortFilterProxyModel,
+    Qt,
+)
+from PySide6.QtGui import QColor, QFont
+
+from app.model.labels import FrameState, Note, Person
+from app.store.project import LedgerEntry, Project
+from app.ui.overlay import WHOLE_PERSON, palette_colour
+
+Index = QModelIndex | QPersistentModelIndex
+_ROOT = QModelIndex()
+DisplayRole = Qt.ItemDataRole.DisplayRole
+ToolTipRole = Qt.ItemDataRole.ToolTipRole
+DecorationRole = Qt.ItemDataRole.DecorationRole
+ForegroundRole = Qt.ItemDataRole.ForegroundRole
+FontRole = Qt.ItemDataRole.FontRole
+AlignRole = Qt.ItemDataRole.TextAlignmentRole
+#: The role that carries each row's key (frame id, person id, ledger seq, note id).
+KeyRole = Qt.ItemDataRole.UserRole + 1
+
+STATE_TEXT = {
+    FrameState.UNTOUCHED: "untouched",
+    FrameState.CORRECTED: "corrected",
+    FrameState.DISPUTED: "disputed",
+    FrameState.SIGNED_OFF: "signed off",
+}
+
+
+def when(t: float) -> str:
+    """A ledger or note time as the annotator reads it: the clock time today, else the date.
+
+    Examples
+    --------
+    >>> when(time.time()).count(":")
+    2
+    """
+    lt = time.localtime(t)
+    if time.strftime("%Y-%m-%d", lt) == time.strftime("%Y-%m-%d"):
+        return time.strftime("%H:%M:%S", lt)
+    return time.strftime("%Y-%m-%d %H:%M", lt)
+
+
+def reason_label(kind: str) -> str:
+    """A triage reason kind as the Worklist's filter shows it.
+
+    Examples
+    --------
+    >>> reason_label("long_limb")
+    'long limb'
+    """
+    return str(kind).replace("_", " ").replace("-", " ").strip() or "other"
+
+
+# ---------------------------------------------------------------------------------- Worklist
+
+@dataclass
+class WorkRow:
+    """One frame as the Worklist shows it."""
+
+    frame_id: int
+    name: str
+    score: float | None
+    state: FrameState
+    kinds: frozenset[str]
+    summary: str
+    details: str
+
+
+class WorklistModel(QAbstractTableModel):
+    """Every frame, most suspicious first (frames without a triage score last, by id), with
+    its score, state and reasons."""
+
+    COLUMNS = ("frame and reasons", "score", "state")
+
+    def __init__(self, project: Project, parent: Any = None):
+        super().__init__(parent)
+        self._project = project
+        self._rows: list[WorkRow] = []
+        self._row_of: dict[int, int] = {}
+        self.reload()
+
+    # -- loading
+    def reload(self) -> None:
+        frames = self._project.frames()
+        triage = self._project.triage_all()
+        rows = []
+        for f in frames:
+            score, reasons = triage.get(f.id, (None, []))
+            rows.append(_work_row(f.id, f.file_name or f.path, score, f.state, reasons))
+        rows.sort(key=lambda r: (r.score is None, -(r.score or 0.0), r.frame_id))
+        self.beginResetModel()
+        self._rows = rows
+        self._row_of = {r.frame_id: i for i, r in enumerate(rows)}
+        self.endResetModel()
+
+    def refresh_states(self, frame_ids: Sequence[int]) -> None:
+        """Re-read the state of the given frames (after edits) without reordering."""
+        for fid in frame_ids:
+            i = self._row_of.get(fid)
+            if i is None:
+                continue
+            state = self._project.frame(fid).state
+            if state != self._rows[i].state:
+                self._rows[i].state = state
+                idx = self.index(i, 2)
+                self.dataChanged.emit(idx, idx)
+
+    # -- queries
+    def frame_ids(self) -> list[int]:
+        return [r.frame_id for r in self._rows]
+
+    def row_of(self, frame_id: int) -> int | None:
+        return self._row_of.get(frame_id)
+
+    def work_row(self, row: int) -> WorkRow:
+        return self._rows[row]
+
+    def has_triage(self) -> bool:
+        return any(r.score is not None for r in self._rows)
+
+    def reason_kinds(self) -> list[tuple[str, int]]:
+        """Every reason kind with the number of frames that have it, most frequent first."""
+        counts: dict[str, int] = {}
+        for r in self._rows:
+            for k in r.kinds:
+                counts[k] = counts.get(k, 0) + 1
+        return sorted(counts.items(), key=lambda kv: (-kv[1], kv[0]))
+
+    # -- Qt model
+    def rowCount(self, parent: Index = _ROOT) -> int:
+        return 0 if parent.isValid() else len(self._rows)
+
+    def columnCount(self, parent: Index = _ROOT) -> int:
+        return 0 if parent.isValid() else len(self.COLUMNS)
+
+    def headerData(self, section: int, orientation: Qt.Orientation, role: int = DisplayRole):
+        if role == DisplayRole and orientation == Qt.Orientation.Horizontal:
+            return self.COLUMNS[section]
+        return None
+
+    def data(self, index: Index, role: int = DisplayRole) -> Any:
+        if not index.isValid():
+            return None
+        r = self._rows[index.row()]
+        col = index.column()
+        if role == KeyRole:
+            return r.frame_id
+        if role == DisplayRole:
+            if col == 0:
+                # Two lines: the frame, then why it is suspicious (the reasons are what the
+                # annotator scans the list for, so they get a full line).
+                return f"{r.name}\n{r.summary}" if r.summary else r.name
+            if col == 1:
+                return "" if r.score is None else f"{r.score:.2f}"
+            return STATE_TEXT[r.state]
+        if role == ToolTipRole:
+            return f"frame {r.frame_id}: {r.name}\n{r.details}" if r.details else \
+                f"frame {r.frame_id}: {r.name}"
+        if role == AlignRole and col == 1:
+            return int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+        if role == AlignRole and col == 0:
+            return int(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignVCenter)
+        if role == FontRole and col == 2 and r.state is FrameState.DISPUTED:
+            font = QFont()
+            font.setBold(True)
+            return font
+        if role == ForegroundRole and col == 2 and r.state is FrameState.SIGNED_OFF:
+            return QColor("#2f7d4f")
+        return None
+
+
+def _work_row(frame_id: int, name: str, score: float | None, state: FrameState,
+              reasons: list[dict[str, Any]]) -> WorkRow:
+    kinds = frozenset(str(r.get("kind", "other")) for r in reasons)
+    ranked = sorted(reasons, key=lambda r: (r.get("person") is None,
+                                            -float(r.get("weight") or 0.0)))
+    texts = [str(r.get("text") or reason_label(r.get("kind", ""))) for r in ranked]
+    return WorkRow(frame_id, name, score, state, kinds, summarise_reasons(reasons),
+                   "\n".join(texts))
+
+
+def summarise_reasons(reasons: Sequence[dict[str, Any]]) -> str:
+    """One line for the Worklist: how many reasons of each kind, kinds about people first,
+    strongest evidence first (a single sure sign outranks many faint ones), frame-level kinds
+    (no person) last.
+
+    Examples
+    --------
+    >>> summarise_reasons([{"kind": "crowded", "person": None, "weight": 1.0},
+    ...                    {"kind": "weak-limb", "person": 3, "weight": 0.4},
+    ...                    {"kind": "weak-limb", "person": 5, "weight": 0.3},
+    ...                    {"kind": "stretched-limb", "person": 4, "weight": 0.9}])
+    'stretched limb \u00b7 weak limb 2 \u00b7 crowded'
+    """
+    kinds: dict[str, list[float]] = {}
+    for r in reasons:
+        kind = str(r.get("kind", "other"))
+        entry = kinds.setdefault(kind, [0.0, 0.0, 0.0])  # strongest, count, about the frame
+        entry[0] = max(entry[0], float(r.get("weight") or 0.0))
+        entry[1] += 1
+        entry[2] = max(entry[2], 1.0 if r.get("person") is None else 0.0)
+    order = sorted(kinds, key=lambda k: (kinds[k][2], -kinds[k][0], -kinds[k][1], k))
+    parts = [reason_label(k) + (f" {int(kinds[k][1])}" if kinds[k][1] > 1 else "")
+             for k in order]
+    return " \u00b7 ".join(parts)
+
+
+class WorklistFilter(QSortFilterProxyModel):
+    """Keeps the Worklist rows of one state and/or one reason kind (None: any)."""
+
+    def __init__(self, parent: Any = None):
+        super().__init__(parent)
+        self._state: FrameState | None = None
+        self._kind: str | None = None
+
+    def set_state(self, state: FrameState | None) -> None:
+        self.beginFilterChange()
+        self._state = state
+        self.endFilterChange()
+
+    def set_kind(self, kind: str | None) -> None:
+        self.beginFilterChange()
+        self._kind = kind
+        self.endFilterChange()
+
+    def filterAcceptsRow(self, source_row: int, source_parent: Index) -> bool:
+        model = self.sourceModel()
+        if not isinstance(model, WorklistModel):
+            return True
+        r = model.work_row(source_row)
+        if self._state is not None and r.state is not self._state:
+            return False
+        return self._kind is None or self._kind in r.kinds
+
+
+# ---------------------------------------------------------------------------------- Owners
+
+class PeopleModel(QAbstractTableModel):
+    """The people of the current frame: tag number and colour, id, joints, flags."""
+
+    COLUMNS = ("", "person", "labelled", "occluded", "flags")
+
+    def __init__(self, parent: Any = None):
+        super().__init__(parent)
+        self._people: list[Person] = []
+        self._flags: dict[int, frozenset[int]] = {}
+        self._colours: dict[int, int] = {}
+
+    def set_people(self, people: Sequence[Person], flags: dict[int, frozenset[int]],
+                   colours: dict[int, int]) -> None:
+        """The frame's people in tag order, their triage flags and palette indices."""
+        self.beginResetModel()
+        self._people = list(people)
+        self._flags = dict(flags)
+        self._colours = dict(colours)
+        self.endResetModel()
+
+    def person_id(self, row: int) -> int:
+        return self._people[row].id
+
+    def row_of(self, person_id: int) -> int | None:
+        for i, p in enumerate(self._people):
+            if p.id == person_id:
+                return i
+        return None
+
+    def rowCount(self, parent: Index = _ROOT) -> int:
+        return 0 if parent.isValid() else len(self._people)
+
+    def columnCount(self, parent: Index = _ROOT) -> int:
+        return 0 if parent.isValid() else len(self.COLUMNS)
+
+    def headerData(self, section: int, orientation: Qt.Orientation, role: int = DisplayRole):
+        if role == DisplayRole and orientation == Qt.Orientation.Horizontal:
+            return self.COLUMNS[section]
+        return None
+
+    _ROLES = frozenset({KeyRole, DecorationRole, DisplayRole, ToolTipRole, AlignRole})
+
+    def data(self, index: Index, role: int = DisplayRole) -> Any:
+        if role not in self._ROLES or not index.isValid():
+            return None
+        n = index.row() + 1
+        p = self._people[index.row()]
+        col = index.column()
+        if role == KeyRole:
+            return p.id
+        if role == DecorationRole and col == 0:
+            return palette_colour(self._colours.get(p.id, n - 1))
+        if role == DisplayRole:
+            v = p.keypoints[:, 2]
+            if col == 0:
+                return str(n)
+            if col == 1:
+                return str(p.id)
+            if col == 2:
+                return f"{int(np.count_nonzero(v > 0))}/{len(v)}"
+            if col == 3:
+                occluded = int(np.count_nonzero(v == 1))
+                return str(occluded) if occluded else ""
+            flags = self._flags.get(p.id, frozenset())
+            n_flags = len(flags - {WHOLE_PERSON}) + (1 if WHOLE_PERSON in flags else 0)
+            return str(n_flags) if n_flags else ""
+        if role == ToolTipRole:
+            return f"person {p.id} (tag {n}); number key {n} gives the selected joint to them" \
+                if n <= 9 else f"person {p.id} (tag {n})"
+        if role == AlignRole and col in (0, 2, 3, 4):
+            return int(Qt.AlignmentFlag.AlignCenter)
+        return None
+
+
+@dataclass(frozen=True)
+class OwnerChoice:
+    """One candidate owner of the selected joint: ``score`` in [0, 1] from the analysis, or
+    None when only the distance could be used."""
+
+    person_id: int
+    number: int
+    score: float | None
+    reason: str
+    is_owner: bool = False
+
+
+class CandidatesModel(QAbstractTableModel):
+    """The ranked candidate owners of the selected joint, best first."""
+
+    COLUMNS = ("", "person", "fit", "why")
+
+    def __init__(self, parent: Any = None):
+        super().__init__(parent)
+        self._rows: list[OwnerChoice] = []
+        self._colours: dict[int, int] = {}
+        self.note = ""
+
+    def set_choices(self, choices: Sequence[OwnerChoice], note: str = "",
+                    colours: dict[int, int] | None = None) -> None:
+        self.beginResetModel()
+        self._rows = list(choices)
+        self._colours = dict(colours or {})
+        self.note = note
+        self.endResetModel()
+
+    def choice(self, row: int) -> OwnerChoice:
+        return self._rows[row]
+
+    def choices(self) -> list[OwnerChoice]:
+        return list(self._rows)
+
+    def rowCount(self, parent: Index = _ROOT) -> int:
+        return 0 if parent.isValid() else len(self._rows)
+
+    def columnCount(self, parent: Index = _ROOT) -> int:
+        return 0 if parent.isValid() else len(self.COLUMNS)
+
+    def headerData(self, section: int, orientation: Qt.Orientation, role: int = DisplayRole):
+        if role == DisplayRole and orientation == Qt.Orientation.Horizontal:
+            return self.COLUMNS[section]
+        return None
+
+    def data(self, index: Index, role: int = DisplayRole) -> Any:
+        if not index.isValid():
+            return None
+        c = self._rows[index.row()]
+        col = index.column()
+        if role == KeyRole:
+            return c.person_id
+        if role == DecorationRole and col == 0:
+            return palette_colour(self._colours.get(c.person_id, c.number - 1))
+        if role == DisplayRole:
+            if col == 0:
+                return str(c.number)
+            if col == 1:
+                return f"{c.person_id} (owner)" if c.is_owner else str(c.person_id)
+            if col == 2:
+                return "" if c.score is None else f"{c.score:.2f}"
+            return c.reason
+        if role == ToolTipRole:
+            return c.reason if c.is_owner else \
+                f"click to give the joint to person {c.person_id}: {c.reason}"
+        if role == ForegroundRole and c.is_owner:
+            return QColor("#777777")
+        if role == AlignRole and col in (0, 2):
+            return int(Qt.AlignmentFlag.AlignCenter)
+        return None
+
+
+# ---------------------------------------------------------------------------------- Ledger
+
+@dataclass(frozen=True)
+class LedgerRow:
+    """One user action: the ledger entries of one group, shown as one row."""
+
+    group_id: int
+    seq: int
+    kind: str
+    summary: str
+    author: str
+    time: float
+    frames: tuple[int, ...]
+    changes: int
+
+
+class LedgerModel(QAbstractTableModel):
+    """The edits of one frame or of the whole project, newest first, one row per action."""
+
+    COLUMNS = ("when", "who", "frame", "what")
+    #: Ledger entries read for the whole-project view (the newest; older ones via the CLI).
+    PROJECT_LIMIT = 20_000
+
+    def __init__(self, project: Project, parent: Any = None):
+        super().__init__(parent)
+        self._project = project
+        self._frame_id: int | None = None
+        self._whole = False
+        self._rows: list[LedgerRow] = []
+
+    @property
+    def whole_project(self) -> bool:
+        return self._whole
+
+    def set_scope(self, frame_id: int | None, whole_project: bool) -> None:
+        self._frame_id = frame_id
+        self._whole = whole_project
+        self.reload()
+
+    def reload(self) -> None:
+        if self._whole:
+            entries = self._project.history(limit=self.PROJECT_LIMIT)
+        elif self._frame_id is not None:
+            entries = self._project.history(frame_id=self._frame_id)
+        else:
+            entries = []
+        self.beginResetModel()
+        self._rows = group_entries(entries)
+        self.endResetModel()
+
+    def ledger_row(self, row: int) -> LedgerRow:
+        return self._rows[row]
+
+    def rowCount(self, parent: Index = _ROOT) -> int:
+        return 0 if parent.isValid() else len(self._rows)
+
+    def columnCount(self, parent: Index = _ROOT) -> int:
+        return 0 if parent.isValid() else len(self.COLUMNS)
+
+    def headerData(self, section: int, orientation: Qt.Orientation, role: int = DisplayRole):
+        if role == DisplayRole and orientation == Qt.Orientation.Horizontal:
+            return self.COLUMNS[section]
+        return None
+
+    def data(self, index: Index, role: int = DisplayRole) -> Any:
+        if not index.isValid():
+            return None
+        r = self._rows[index.row()]
+        col = index.column()
+        if role == KeyRole:
+            return r.seq
+        if role == DisplayRole:
+            if col == 0:
+                return when(r.time)
+            if col == 1:
+                return r.author
+            if col == 2:
+                return ", ".join(map(str, r.frames[:3])) + ("\u2026" if len(r.frames) > 3 else "")
+            return r.summary
+        if role == ToolTipRole:
+            return (f"{r.kind}, {r.changes} change(s), ledger entry {r.seq}\n"
+                    f"{time.strftime('%Y-%m-%d %H:%M:%S', time.localtime(r.time))}")
+        if role == ForegroundRole and r.kind in ("undo", "redo"):
+            return QColor("#777777")
+        return None
+
+
+def group_entries(entries: Sequence[LedgerEntry]) -> list[LedgerRow]:
+    """Ledger entries (newest first) folded into one row per action, newest first.
+
+    Examples
+    --------
+    >>> e = lambda seq, g: LedgerEntry(seq, g, "edit", "MoveJoint", "move", "ana", 1.0, 3,
+    ...                                 "person:1/joint:2", None, None, None)
+    >>> [(r.group_id, r.seq, r.changes) for r in group_entries([e(5, 2), e(4, 2), e(3, 1)])]
+    [(2, 5, 2), (1, 3, 1)]
+    """
+    rows: dict[int, LedgerRow] = {}
+    order: list[int] = []
+    for e in entries:
+        row = rows.get(e.group_id)
+        frames = () if e.frame_id is None else (e.frame_id,)
+        if row is None:
+            rows[e.group_id] = LedgerRow(e.group_id, e.seq, e.kind, e.summary, e.author, e.time,
+                                         frames, 1)
+            order.append(e.group_id)
+        else:
+            merged = row.frames + tuple(f for f in frames if f not in row.frames)
+            rows[e.group_id] = LedgerRow(row.group_id, max(row.seq, e.seq), row.kind,
+                                         row.summary, row.author, row.time, merged,
+                                         row.changes + 1)
+    return [rows[g] for g in order]
+
+
+# ---------------------------------------------------------------------------------- Notes
+
+class NotesModel(QAbstractListModel):
+    """The note thread of the current frame, oldest first."""
+
+    def __init__(self, project: Project, parent: Any = None):
+        super().__init__(parent)
+        self._project = project
+        self._frame_id: int | None = None
+        self._notes: list[Note] = []
+        self._numbers: dict[int, int] = {}
+
+    def set_frame(self, frame_id: int | None, numbers: dict[int, int] | None = None) -> None:
+        self._frame_id = frame_id
+        self._numbers = dict(numbers or {})
+        self.reload()
+
+    def reload(self) -> None:
+        notes = [] if self._frame_id is None else self._project.notes(self._frame_id)
+        self.beginResetModel()
+        self._notes = notes
+        self.endResetModel()
+
+    def rowCount(self, parent: Index = _ROOT) -> int:
+        return 0 if parent.isValid() else len(self._notes)
+
+    def data(self, index: Index, role: int = DisplayRole) -> Any:
+        if not index.isValid():
+            return None
+        n = self._notes[index.row()]
+        if role == KeyRole:
+            return n.id
+        if role == DisplayRole:
+            about = ""
+            if n.person_id is not None:
+                tag = self._numbers.get(n.person_id)
+                about = f" about person {n.person_id}" + (f" (tag {tag})" if tag else "")
+            return f"{n.author}, {when(n.time)}{about}\n{n.text}"
+        if role == ToolTipRole:
+            return time.strftime("%Y-%m-%d %H:%M:%S", time.localtime(n.time))
+        return None

@@ -1,0 +1,879 @@
+"""The overlay painter: one function draws every person of a frame for the Canvas and for the
+headless ``render`` command alike, so what is exported is what was seen.
+
+Our visual language (DESIGN.md section 6):
+
+- *Colour says who.* Each person takes a colour of the Okabe and Ito (2008) colour-blind-safe
+  qualitative palette, black left out because black draws every outline. With more than seven
+  people colours repeat, as far apart as possible (:func:`assign_colours`), and the number tag
+  tells people apart.
+- *Shape says which side.* Left joints are filled discs, right joints rings, centre joints
+  diamonds; every glyph has a thin dark outline so it reads on light and dark images.
+- *Line style says how sure.* Occluded joints (``v = 1``) are see-through with a dashed edge and
+  their limbs are dashed; unlabeled joints (``v = 0``) are not drawn unless asked for, and then
+  as small hollow crosses where their position is remembered.
+- Triage flags draw a halo (a translucent ring) around the joint; a flag on the whole person
+  rings the number tag. Focus mode dims everyone but one person, and the image a little.
+
+Every size is in screen (device) pixels, independent of zoom, so the overlay stays readable
+when zoomed far out and does not swamp the image when zoomed in. Limbs of all people are drawn
+before any joint, so no joint hides under a limb, and limbs stop at the glyphs' edges.
+
+Only QtGui is used: the headless render runs under a bare ``QGuiApplication``.
+"""
+
+from __future__ import annotations
+
+from collections import OrderedDict
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any, Protocol
+
+import numpy as np
+from PySide6.QtCore import QLineF, QPointF, QRectF, Qt
+from PySide6.QtGui import (
+    QColor,
+    QFont,
+    QFontMetrics,
+    QImage,
+    QPainter,
+    QPen,
+    QPolygonF,
+    QTransform,
+)
+
+from app.model.skeleton import Side, Skeleton
+
+#: The eight colours of Okabe and Ito (2008), in the paper's order: black, orange, sky blue,
+#: bluish green, yellow, blue, vermillion, reddish purple.
+#:
+#: Okabe, M. and Ito, K. (2008). "Color Universal Design (CUD): How to make figures and
+#: presentations that are friendly to colorblind people." J*Fly, published online.
+OKABE_ITO: tuple[str, ...] = (
+    "#000000", "#E69F00", "#56B4E9", "#009E73", "#F0E442", "#0072B2", "#D55E00", "#CC79A7",
+)
+
+#: Person colours: the palette without black, which is kept for outlines.
+PERSON_COLOURS: tuple[str, ...] = OKABE_ITO[1:]
+
+#: The joint index that stands for "the whole person" in :attr:`OverlayStyle.flags`.
+WHOLE_PERSON = -1
+
+#: A person flagged at this many joints or more is flagged as a whole (ring on the tag).
+WHOLE_BODY_JOINTS = 8
+
+#: The colour of triage halos: translucent warm white.
+HALO = QColor(255, 246, 214, 150)
+HALO_RIM = QColor(20, 20, 20, 120)
+
+#: Triage reasons at least this strong draw a halo (the level at which triage flags a person).
+FLAG_WEIGHT = 0.5
+
+#: The dark outline around every glyph, limb and tag (near-black, so it stays visible on black).
+OUTLINE = "#141414"
+
+
+class _PersonLike(Protocol):
+    id: int
+    keypoints: np.ndarray
+
+
+def palette_colour(index: int) -> QColor:
+    """Colour ``index`` of :data:`PERSON_COLOURS` (indices wrap around).
+
+    Examples
+    --------
+    >>> palette_colour(0).name(), palette_colour(7).name()
+    ('#e69f00', '#e69f00')
+    """
+    return QColor(PERSON_COLOURS[int(index) % len(PERSON_COLOURS)])
+
+
+def assign_colours(people: Sequence[_PersonLike],
+                   keep: Mapping[int, int] | None = None) -> dict[int, int]:
+    """Give each person a palette index so that people close together differ in colour.
+
+    Parameters
+    ----------
+    people
+        The frame's people in tag order.
+    keep
+        Indices to keep (people already on screen keep their colour while the frame is
+        edited); only the others are assigned.
+
+    Returns
+    -------
+    dict
+        Person id to an index into :data:`PERSON_COLOURS`.
+
+    Notes
+    -----
+    Greedy in tag order. The distance between two people is the gap between the boxes around
+    their placed joints (0 when the boxes overlap), ties broken by the distance between the box
+    centres. Each person takes the colour whose nearest holder is farthest away (an unused
+    colour first, the lowest index among equals), so with seven people or fewer everyone differs
+    and in a crowd the repeats land far apart. Common practice for map colouring, no source.
+
+    Examples
+    --------
+    >>> from app.model.labels import Person
+    >>> far, near = Person.blank(1, 17), Person.blank(2, 17)
+    >>> far.keypoints[0] = (0, 0, 2); near.keypoints[0] = (5, 5, 2)
+    >>> assign_colours([far, near])
+    {1: 0, 2: 1}
+    """
+    n_colours = len(PERSON_COLOURS)
+    n = len(people)
+    boxes = np.full((n, 4), np.nan)
+    for i, p in enumerate(people):
+        xy = p.keypoints[:, :2]
+        xy = xy[np.isfinite(xy).all(axis=1)]
+        if len(xy):
+            boxes[i] = np.r_[xy.min(axis=0), xy.max(axis=0)]
+    # Pairwise box gap and centre distance, as whole arrays; unknown boxes are infinitely far.
+    lo, hi = boxes[:, None, :2], boxes[:, None, 2:]
+    gap_xy = np.maximum(np.maximum(lo - boxes[None, :, 2:], boxes[None, :, :2] - hi), 0)
+    centres = (boxes[:, :2] + boxes[:, 2:]) / 2
+    gap = np.hypot(gap_xy[..., 0], gap_xy[..., 1])
+    centre = np.hypot(*(centres[:, None, :] - centres[None, :, :]).transpose(2, 0, 1))
+    gap = np.where(np.isnan(gap), np.inf, gap)
+    centre = np.where(np.isnan(centre), np.inf, centre)
+    colour = np.full(n, -1)
+    keep = keep or {}
+    for i, p in enumerate(people):
+        if p.id in keep:
+            colour[i] = int(keep[p.id]) % n_colours
+    for i in range(n):
+        if colour[i] >= 0:
+            continue
+        held = np.flatnonzero(colour >= 0)
+        # For each colour, its nearest holder (by gap, ties by centre distance) ...
+        best = np.full((n_colours, 2), np.inf)
+        if len(held):
+            order = np.lexsort((centre[i, held], gap[i, held], colour[held]))
+            ranked = held[order]
+            first = np.r_[True, colour[ranked][1:] != colour[ranked][:-1]]
+            winners = ranked[first]
+            best[colour[winners]] = np.column_stack([gap[i, winners], centre[i, winners]])
+        # ... and the colour whose nearest holder is farthest wins (lowest index among equals).
+        order = np.lexsort((np.arange(n_colours), -best[:, 1], -best[:, 0]))
+        colour[i] = int(order[0])
+    return {p.id: int(colour[i]) for i, p in enumerate(people)}
+
+
+def relative_luminance(colour: QColor) -> float:
+    """Relative luminance of an sRGB colour.
+
+    Parameters
+    ----------
+    colour
+        An opaque colour.
+
+    Returns
+    -------
+    float
+        In [0, 1]; 0 for black, 1 for white.
+
+    Notes
+    -----
+    Each channel c in [0, 1] is linearised as ``c / 12.92`` if ``c <= 0.04045`` else
+    ``((c + 0.055) / 1.055) ** 2.4``; then ``L = 0.2126 R + 0.7152 G + 0.0722 B``.
+
+    References
+    ----------
+    W3C, Web Content Accessibility Guidelines (WCAG) 2.1, definition of "relative luminance".
+
+    Examples
+    --------
+    >>> round(relative_luminance(QColor("#ffffff")), 3), relative_luminance(QColor("#000000"))
+    (1.0, 0.0)
+    """
+    rgb = np.array([colour.redF(), colour.greenF(), colour.blueF()])
+    lin = np.where(rgb <= 0.04045, rgb / 12.92, ((rgb + 0.055) / 1.055) ** 2.4)
+    return float(lin @ np.array([0.2126, 0.7152, 0.0722]))
+
+
+def text_colour_on(colour: QColor) -> QColor:
+    """Black or white, whichever contrasts more with ``colour`` (WCAG 2.1 contrast ratio).
+
+    Notes
+    -----
+    Contrast ratio ``(L1 + 0.05) / (L2 + 0.05)`` with ``L1`` the lighter luminance.
+
+    References
+    ----------
+    W3C, Web Content Accessibility Guidelines (WCAG) 2.1, definition of "contrast ratio".
+
+    Examples
+    --------
+    >>> text_colour_on(QColor("#F0E442")).name(), text_colour_on(QColor("#0072B2")).name()
+    ('#000000', '#ffffff')
+    """
+    lum = relative_luminance(colour)
+    with_black = (lum + 0.05) / 0.05
+    with_white = 1.05 / (lum + 0.05)
+    return QColor("#000000") if with_black >= with_white else QColor("#ffffff")
+
+
+@dataclass(frozen=True)
+class OverlayStyle:
+    """How the overlay looks; every length in screen pixels.
+
+    ``flags`` maps a person id to the joints triage flagged (``WHOLE_PERSON`` flags the
+    person as a whole); ``focus`` is the person id focus mode keeps bright;
+    ``selected_joints`` holds ``(person_id, joint)`` pairs; ``hover`` is
+    ``(person_id, joint or None)``.
+    """
+
+    joint_radius: float = 5.0
+    limb_width: float = 2.5
+    outline: float = 1.0
+    show_unlabeled: bool = False
+    show_tags: bool = True
+    focus: int | None = None
+    dim_others: float = 0.25
+    dim_image: float = 0.35
+    flags: Mapping[int, frozenset[int]] = field(default_factory=dict)
+    selected_person: int | None = None
+    selected_joints: frozenset[tuple[int, int]] = frozenset()
+    hover: tuple[int, int | None] | None = None
+    tag_font_px: int = 11
+    colours: Mapping[int, int] | None = None  # person id -> palette index; None: assign
+
+
+@dataclass(frozen=True)
+class OverlayLayout:
+    """What the painter placed: each person's tag number, palette index and tag rectangle
+    (screen pixels)."""
+
+    numbers: dict[int, int]
+    colours: dict[int, int]
+    tags: dict[int, QRectF]
+
+
+def map_points(transform: QTransform, xy: np.ndarray) -> np.ndarray:
+    """Map ``(N, 2)`` image points through an affine ``transform`` to screen points.
+
+    Examples
+    --------
+    >>> t = QTransform.fromScale(2, 2) * QTransform.fromTranslate(10, 0)
+    >>> map_points(t, np.array([[1.0, 1.0]]))
+    array([[12.,  2.]])
+    """
+    xy = np.asarray(xy, dtype=np.float64).reshape(-1, 2)
+    x, y = xy[:, 0], xy[:, 1]
+    sx = transform.m11() * x + transform.m21() * y + transform.dx()
+    sy = transform.m12() * x + transform.m22() * y + transform.dy()
+    return np.column_stack([sx, sy])
+
+
+def layout_tags(anchors: np.ndarray, sizes: np.ndarray, gap: float,
+                obstacles: np.ndarray | None = None) -> np.ndarray:
+    """Place one tag above each anchor, moving tags aside so that they do not overlap.
+
+    Parameters
+    ----------
+    anchors
+        ``(N, 2)`` screen points the tags belong to (the top of each person).
+    sizes
+        ``(N, 2)`` tag width and height.
+    gap
+        Distance between an anchor and the bottom of its tag in the preferred place.
+    obstacles
+        ``(P, 2)`` points a tag should rather not cover (the joints), or None.
+
+    Returns
+    -------
+    numpy.ndarray
+        ``(N, 2)`` tag centres.
+
+    Notes
+    -----
+    Greedy, top to bottom: each tag tries a fixed list of places around its anchor (above,
+    above-left, above-right, left, right, higher up, below) and takes the first that overlaps
+    no tag placed before it; among places that all overlap, the one covering the least tag area,
+    then the fewest obstacle points. Common practice for label placement, no source.
+
+    Examples
+    --------
+    >>> c = layout_tags(np.array([[50.0, 50.0], [52.0, 50.0]]), np.full((2, 2), 10.0), 4.0)
+    >>> bool(abs(c[0, 0] - c[1, 0]) >= 10 or abs(c[0, 1] - c[1, 1]) >= 10)
+    True
+    """
+    anchors = np.asarray(anchors, dtype=np.float64).reshape(-1, 2)
+    sizes = np.asarray(sizes, dtype=np.float64).reshape(-1, 2)
+    n = len(anchors)
+    out = np.zeros((n, 2))
+    if n == 0:
+        return out
+    pts = np.zeros((0, 2)) if obstacles is None else np.asarray(obstacles, float).reshape(-1, 2)
+    placed = np.zeros((0, 4))  # x0, y0, x1, y1
+    for i in np.argsort(anchors[:, 1], kind="stable"):
+        w, h = sizes[i]
+        up = gap + h / 2
+        side = gap + w / 2
+        # Candidate offsets of the tag centre from the anchor, in order of preference.
+        offsets = np.array([
+            (0, -up), (-side, -up), (side, -up), (-side - 2, 0), (side + 2, 0),
+            (0, -up - h - 2), (-side, -up - h - 2), (side, -up - h - 2),
+            (-w - side, -up), (w + side, -up), (0, up), (0, -up - 2 * h - 4),
+        ])
+        centres = anchors[i] + offsets
+        half = np.array([w / 2, h / 2])
+        boxes = np.column_stack([centres - half, centres + half])
+        if len(placed):
+            ox = np.clip(np.minimum(boxes[:, None, 2], placed[None, :, 2])
+                         - np.maximum(boxes[:, None, 0], placed[None, :, 0]) + 2, 0, None)
+            oy = np.clip(np.minimum(boxes[:, None, 3], placed[None, :, 3])
+                         - np.maximum(boxes[:, None, 1], placed[None, :, 1]) + 2, 0, None)
+            overlap = (ox * oy).sum(axis=1)
+        else:
+            overlap = np.zeros(len(boxes))
+        if len(pts):
+            px, py = pts[None, :, 0], pts[None, :, 1]
+            inside = ((px >= boxes[:, None, 0]) & (px <= boxes[:, None, 2])
+                      & (py >= boxes[:, None, 1]) & (py <= boxes[:, None, 3]))
+            covered = inside.sum(axis=1)
+        else:
+            covered = np.zeros(len(boxes))
+        free = overlap == 0
+        if free.any():
+            # Among free places, prefer covering no joint, then the order of preference.
+            cost = np.where(free, covered * 1.0, np.inf) + np.arange(len(boxes)) * 1e-3
+        else:
+            cost = overlap * 1e3 + covered + np.arange(len(boxes)) * 1e-3
+        best = int(np.argmin(cost))
+        out[i] = centres[best]
+        placed = np.vstack([placed, boxes[best]])
+    return out
+
+
+def tag_anchor(points: np.ndarray, labelled: np.ndarray) -> np.ndarray | None:
+    """The screen point a person's tag hangs from: the top of their labelled joints, at the
+    horizontal centre of the topmost few (the head, for an upright person).
+
+    Examples
+    --------
+    >>> tag_anchor(np.array([[10.0, 5.0], [30.0, 50.0]]), np.array([True, True]))
+    array([10.,  5.])
+    """
+    if not labelled.any():
+        return None
+    pts = points[labelled]
+    top = pts[:, 1].min()
+    near_top = pts[pts[:, 1] <= top + 12]
+    return np.array([near_top[:, 0].mean(), top])
+
+
+def paint_overlay(painter: QPainter, people: Sequence[_PersonLike], skeleton: Skeleton,
+                  transform: QTransform, style: OverlayStyle | None = None,
+                  image_size: tuple[int, int] | None = None) -> OverlayLayout:
+    """Draw every person of a frame onto ``painter``.
+
+    Parameters
+    ----------
+    painter
+        An active painter on the Canvas or on a full-resolution image.
+    people
+        The frame's people (objects with ``id`` and ``keypoints`` ``(K, 3)`` x, y, v in image
+        pixels), in the order that numbers their tags 1, 2, ...
+    skeleton
+        Joint sides and limbs.
+    transform
+        Image pixels to device pixels (scale and translation). With the convention that
+        integer coordinates are pixel centres, a 1:1 render uses a translation of (0.5, 0.5).
+    style
+        Sizes, toggles, focus, flags, selection, hover and colours.
+    image_size
+        ``(width, height)`` of the image, for dimming it in focus mode.
+
+    Returns
+    -------
+    OverlayLayout
+        Tag numbers, colours and where the tags landed, for hit testing.
+
+    Notes
+    -----
+    Layers, bottom to top: the image veil (focus mode), triage halos, limbs of everyone,
+    joints, selection and hover rings, number tags. Dimmed people (focus mode) are painted
+    first with all their layers, then the others; the focused or selected person comes last.
+    Joint glyphs are drawn antialiased once per colour and kind and then copied (snapped to
+    the device pixel that holds the joint, so within half a pixel of it); the geometry of all
+    people is computed as whole arrays.
+
+    Examples
+    --------
+    >>> from PySide6.QtGui import QImage
+    >>> from app.ui.render import gui_application
+    >>> _ = gui_application()              # fonts need a (headless) Qt application
+    >>> from app.model.skeleton import coco_body
+    >>> from app.model.labels import Person
+    >>> p = Person.blank(7, 17); p.keypoints[5] = (20, 20, 2)
+    >>> img = QImage(40, 40, QImage.Format.Format_RGB32); img.fill(QColor("#808080"))
+    >>> qp = QPainter(img)
+    >>> layout = paint_overlay(qp, [p], coco_body(), QTransform.fromTranslate(0.5, 0.5))
+    >>> qp.end()
+    True
+    >>> layout.numbers, layout.colours, img.pixelColor(20, 20).name()
+    ({7: 1}, {7: 0}, '#e69f00')
+    """
+    style = style or OverlayStyle()
+    people = list(people)
+    numbers = {p.id: n + 1 for n, p in enumerate(people)}
+    colours = dict(style.colours) if style.colours is not None else {}
+    if any(p.id not in colours for p in people):
+        colours = assign_colours(people, colours)
+    geo = _Geometry(people, skeleton, transform, style)
+
+    painter.save()
+    painter.setWorldTransform(QTransform())
+    painter.setRenderHint(QPainter.RenderHint.Antialiasing, True)
+    painter.setRenderHint(QPainter.RenderHint.TextAntialiasing, True)
+    if style.focus is not None and image_size is not None and style.dim_image > 0:
+        w, h = image_size
+        veil = transform.mapRect(QRectF(-0.5, -0.5, float(w), float(h)))
+        painter.fillRect(veil, QColor(0, 0, 0, round(255 * style.dim_image)))
+
+    top = style.focus if style.focus is not None else style.selected_person
+    rest = [i for i, p in enumerate(people) if p.id != top]
+    first = [i for i, p in enumerate(people) if p.id == top]
+    dimmed = style.dim_others if style.focus is not None else 1.0
+    dpr = painter.device().devicePixelRatioF() if painter.device() is not None else 1.0
+    for group, opacity in ((rest, dimmed), (first, 1.0)):
+        if not group:
+            continue
+        painter.setOpacity(opacity)
+        for i in group:
+            _paint_halos(painter, geo, i, people[i].id, style, dpr)
+        for i in group:
+            _paint_limbs(painter, geo, i, palette_colour(colours[people[i].id]),
+                         people[i].id == style.selected_person, style)
+        for i in group:
+            _paint_joints(painter, geo, i, colours[people[i].id], style, dpr)
+        for i in group:
+            _paint_marks(painter, geo, i, people[i].id, style)
+    painter.setOpacity(1.0)
+
+    tags: dict[int, QRectF] = {}
+    if style.show_tags and people:
+        tags = _paint_tags(painter, geo, people, numbers, colours, transform, style, dpr)
+    painter.restore()
+    return OverlayLayout(numbers, colours, tags)
+
+
+class _Geometry:
+    """Screen geometry of all people at once: points, what is placed and labelled, and the
+    limb segments (cut back to the glyph edges), solid and dashed."""
+
+    def __init__(self, people: list[_PersonLike], skeleton: Skeleton, transform: QTransform,
+                 style: OverlayStyle):
+        k = skeleton.num_joints
+        n = len(people)
+        kp = np.stack([p.keypoints for p in people]) if n else np.zeros((0, k, 3))
+        self.pts = map_points(transform, kp[..., :2].reshape(-1, 2)).reshape(n, k, 2)
+        self.v = kp[..., 2]
+        self.placed = np.isfinite(self.pts).all(axis=2)
+        self.labelled = self.placed & (self.v > 0)
+        self.kind = np.array([_KIND[s] for s in skeleton.sides], dtype=np.int8)
+        limbs = skeleton.limb_array
+        a, b = limbs[:, 0], limbs[:, 1]
+        on = self.labelled[:, a] & self.labelled[:, b]
+        unsure = on & ((self.v[:, a] == 1) | (self.v[:, b] == 1))
+        with np.errstate(invalid="ignore", divide="ignore"):
+            p0, p1 = self.pts[:, a], self.pts[:, b]
+            d = p1 - p0
+            length = np.hypot(d[..., 0], d[..., 1])
+            u = d / np.maximum(length, 1e-9)[..., None]
+            cut = style.joint_radius
+            # Limbs stop at the edge of their joints' glyphs, so a ring's hole shows the image
+            # and never a limb end (which would make a right joint look like a left one).
+            self.ends = np.concatenate([p0 + u * cut, p1 - u * cut], axis=-1)
+            on &= length > 2 * cut + 1
+        self.sure = on & ~unsure
+        self.unsure = on & unsure
+
+
+_KIND = {Side.LEFT: 0, Side.RIGHT: 1, Side.CENTRE: 2}
+
+_PENS: dict[tuple[Any, ...], QPen] = {}
+
+
+def _pen(colour: QColor | str, width: float, cap: Qt.PenCapStyle = Qt.PenCapStyle.FlatCap,
+         dash: Sequence[float] | None = None) -> QPen:
+    """A pen, made once per look (making pens costs more than drawing with them)."""
+    c = QColor(colour)
+    key = (c.rgba(), float(width), cap, None if dash is None else tuple(dash))
+    pen = _PENS.get(key)
+    if pen is None:
+        pen = QPen(c, width)
+        pen.setCapStyle(cap)
+        pen.setJoinStyle(Qt.PenJoinStyle.RoundJoin)
+        if dash is not None:
+            pen.setDashPattern(list(dash))
+        if len(_PENS) > 512:
+            _PENS.clear()
+        _PENS[key] = pen
+    return pen
+
+
+# Dash pattern of occluded limbs in screen pixels: dash, gap.
+_DASH_PX = (5.0, 3.5)
+
+
+def _paint_limbs(painter: QPainter, geo: _Geometry, i: int, colour: QColor, selected: bool,
+                 style: OverlayStyle) -> None:
+    # The dark outline is drawn without antialiasing: a crisp, fully dark edge reads better
+    # on busy images than a soft grey one, and costs a fifth as much to draw; the coloured
+    # line on top is antialiased.
+    width = style.limb_width + (1.0 if selected else 0.0)
+    out_w = round(width + 2 * style.outline + 0.5)
+    sure, unsure = geo.sure[i], geo.unsure[i]
+    aa = QPainter.RenderHint.Antialiasing
+    if sure.any():
+        lines = [QLineF(*e) for e in geo.ends[i][sure].tolist()]
+        painter.setRenderHint(aa, False)
+        painter.setPen(_pen(OUTLINE, out_w))
+        painter.drawLines(lines)
+        painter.setRenderHint(aa, True)
+        painter.setPen(_pen(colour, width))
+        painter.drawLines(lines)
+    if unsure.any():
+        lines = [QLineF(*e) for e in geo.ends[i][unsure].tolist()]
+        # Qt dash patterns are in units of the pen width; scale so both pens dash alike.
+        painter.setRenderHint(aa, False)
+        painter.setPen(_pen(OUTLINE, out_w, dash=[d / out_w for d in _DASH_PX]))
+        painter.drawLines(lines)
+        painter.setRenderHint(aa, True)
+        painter.setPen(_pen(colour, width, dash=[d / width for d in _DASH_PX]))
+        painter.drawLines(lines)
+
+
+def _paint_halos(painter: QPainter, geo: _Geometry, i: int, pid: int, style: OverlayStyle,
+                 dpr: float) -> None:
+    flagged = style.flags.get(pid)
+    if not flagged:
+        return
+    image, half = _halo(style, dpr)
+    k = geo.pts.shape[1]
+    for j in sorted(flagged):
+        if 0 <= j < k and geo.placed[i, j] and (geo.labelled[i, j] or style.show_unlabeled):
+            dx, dy = np.floor(geo.pts[i, j] * dpr)
+            painter.drawImage(QPointF((dx - half) / dpr, (dy - half) / dpr), image)
+
+
+def _halo(style: OverlayStyle, dpr: float) -> tuple[QImage, int]:
+    """The triage halo, drawn once: a soft, wide, see-through ring with a faint dark rim
+    outside -- a glow that reads on light and dark images alike, larger and softer than the
+    crisp white selection ring."""
+    key = ("halo", style.joint_radius, dpr)
+    hit = _SPRITES.get(key)
+    if hit is not None:
+        return hit
+    r = style.joint_radius + 6.0
+    half = int(np.ceil((r + 5.0) * dpr))
+    image = QImage(2 * half + 1, 2 * half + 1, QImage.Format.Format_ARGB32_Premultiplied)
+    image.fill(0)
+    p = QPainter(image)
+    p.setRenderHint(QPainter.RenderHint.Antialiasing, True)
+    p.scale(dpr, dpr)
+    c = QPointF((half + 0.5) / dpr, (half + 0.5) / dpr)
+    p.setBrush(Qt.BrushStyle.NoBrush)
+    p.setPen(_pen(HALO, 5.0))
+    p.drawEllipse(c, r, r)
+    p.setPen(_pen(HALO_RIM, 1.0))
+    p.drawEllipse(c, r + 3.0, r + 3.0)
+    p.end()
+    image.setDevicePixelRatio(dpr)
+    _SPRITES[key] = (image, half)
+    return image, half
+
+
+_SPRITES: dict[tuple[Any, ...], tuple[QImage, int]] = {}
+
+
+def _glyph(colour_index: int, kind: int, occluded: bool, style: OverlayStyle,
+           dpr: float) -> tuple[QImage, int]:
+    """A joint glyph drawn once, antialiased, and the device pixel that is its centre."""
+    key = (colour_index, kind, occluded, style.joint_radius, style.outline, dpr)
+    hit = _SPRITES.get(key)
+    if hit is not None:
+        return hit
+    r = style.joint_radius
+    half = int(np.ceil((1.3 * r + 2 * style.outline + 1) * dpr))
+    size = 2 * half + 1
+    image = QImage(size, size, QImage.Format.Format_ARGB32_Premultiplied)
+    image.fill(0)
+    p = QPainter(image)
+    p.setRenderHint(QPainter.RenderHint.Antialiasing, True)
+    p.scale(dpr, dpr)
+    _draw_glyph(p, QPointF((half + 0.5) / dpr, (half + 0.5) / dpr), kind, occluded,
+                palette_colour(colour_index), style)
+    p.end()
+    image.setDevicePixelRatio(dpr)
+    if len(_SPRITES) > 1024:
+        _SPRITES.clear()
+    _SPRITES[key] = (image, half)
+    return image, half
+
+
+def _draw_glyph(painter: QPainter, c: QPointF, kind: int, occluded: bool, colour: QColor,
+                style: OverlayStyle) -> None:
+    r = style.joint_radius
+    ring_w = max(2.0, 0.4 * r)
+    faint = QColor(colour)
+    faint.setAlphaF(0.35)
+    if kind == _KIND[Side.RIGHT]:
+        # The ring's centre line sits on the disc's radius: its hole (about 3 px) keeps a
+        # ring from reading as a disc at this size.
+        painter.setBrush(Qt.BrushStyle.NoBrush)
+        painter.setPen(_pen(OUTLINE, ring_w + 2 * style.outline))
+        painter.drawEllipse(c, r, r)
+        dash = [2.2 / ring_w, 1.6 / ring_w] if occluded else None
+        painter.setPen(_pen(colour, ring_w, dash=dash))
+        painter.drawEllipse(c, r, r)
+        return
+    x, y = c.x(), c.y()
+    diamond = r * 1.3
+    shape = None if kind == _KIND[Side.LEFT] else QPolygonF([
+        QPointF(x, y - diamond), QPointF(x + diamond, y),
+        QPointF(x, y + diamond), QPointF(x - diamond, y)])
+    painter.setBrush(faint if occluded else colour)
+    painter.setPen(_pen(OUTLINE, style.outline))
+    if shape is None:
+        painter.drawEllipse(c, r, r)
+    else:
+        painter.drawPolygon(shape)
+    if occluded:
+        # See-through inside, the edge dashed in the full colour (so the colour still says
+        # who), on the solid dark edge (so the dashes read on any image).
+        edge_w = 2.0
+        painter.setBrush(Qt.BrushStyle.NoBrush)
+        painter.setPen(_pen(colour, edge_w, dash=[2.2 / edge_w, 1.6 / edge_w]))
+        inner = r - style.outline / 2 - edge_w / 2
+        if shape is None:
+            painter.drawEllipse(c, inner, inner)
+        else:
+            k = diamond - 1.4 * (style.outline / 2 + edge_w / 2)
+            painter.drawPolygon(QPolygonF([QPointF(x, y - k), QPointF(x + k, y),
+                                           QPointF(x, y + k), QPointF(x - k, y)]))
+
+
+def _paint_joints(painter: QPainter, geo: _Geometry, i: int, colour_index: int,
+                  style: OverlayStyle, dpr: float) -> None:
+    idx = np.flatnonzero(geo.labelled[i])
+    if len(idx):
+        # Snap each glyph's centre pixel onto the device pixel that holds the joint.
+        dev = np.floor(geo.pts[i, idx] * dpr).astype(np.int64)
+        code = geo.kind[idx] * 2 + (geo.v[i, idx] == 1)
+        sprites: dict[int, tuple[QImage, int]] = {}
+        for c in np.unique(code).tolist():
+            sprites[c] = _glyph(colour_index, c // 2, bool(c % 2), style, dpr)
+        draw = painter.drawImage
+        if dpr == 1.0:
+            for (dx, dy), c in zip(dev.tolist(), code.tolist()):
+                image, half = sprites[c]
+                draw(dx - half, dy - half, image)
+        else:
+            for (dx, dy), c in zip(dev.tolist(), code.tolist()):
+                image, half = sprites[c]
+                draw(QPointF((dx - half) / dpr, (dy - half) / dpr), image)
+    if style.show_unlabeled:
+        hidden = np.flatnonzero(geo.placed[i] & (geo.v[i] <= 0))
+        if len(hidden):
+            colour = palette_colour(colour_index)
+            k = 0.8 * style.joint_radius
+            crosses = []
+            for x, y in geo.pts[i, hidden].tolist():
+                crosses += [QLineF(x - k, y - k, x + k, y + k), QLineF(x - k, y + k, x + k, y - k)]
+            painter.setPen(_pen(OUTLINE, 3.2, Qt.PenCapStyle.RoundCap))
+            painter.drawLines(crosses)
+            painter.setPen(_pen(colour, 1.4, Qt.PenCapStyle.RoundCap))
+            painter.drawLines(crosses)
+
+
+def _paint_marks(painter: QPainter, geo: _Geometry, i: int, pid: int,
+                 style: OverlayStyle) -> None:
+    """Selection and hover rings."""
+    r = style.joint_radius
+    k = geo.pts.shape[1]
+    painter.setBrush(Qt.BrushStyle.NoBrush)
+    for p, j in style.selected_joints:
+        if p == pid and 0 <= j < k and geo.placed[i, j]:
+            c = QPointF(*geo.pts[i, j])
+            painter.setPen(_pen("#ffffff", 2.0))
+            painter.drawEllipse(c, r + 3.5, r + 3.5)
+            painter.setPen(_pen(OUTLINE, 1.0))
+            painter.drawEllipse(c, r + 5.0, r + 5.0)
+    if style.hover is not None and style.hover[0] == pid and style.hover[1] is not None:
+        j = style.hover[1]
+        if 0 <= j < k and geo.placed[i, j]:
+            painter.setPen(_pen(QColor(255, 255, 255, 200), 1.5))
+            painter.drawEllipse(QPointF(*geo.pts[i, j]), r + 2.5, r + 2.5)
+
+
+_TAG_LAYOUTS: OrderedDict[bytes, np.ndarray] = OrderedDict()
+
+
+def _cached_layout(anchors: np.ndarray, sizes: np.ndarray, gap: float, obstacles: np.ndarray,
+                   origin: np.ndarray) -> np.ndarray:
+    """:func:`layout_tags`, remembered: the layout does not change when the view pans, so it
+    is keyed on positions relative to the transform's origin."""
+    rel_a = np.round(anchors - origin, 2)
+    rel_o = np.round(obstacles - origin, 2)
+    key = b"".join([rel_a.tobytes(), sizes.tobytes(), rel_o.tobytes(),
+                    np.float64(gap).tobytes()])
+    hit = _TAG_LAYOUTS.get(key)
+    if hit is None:
+        hit = layout_tags(rel_a, sizes, gap, rel_o)
+        _TAG_LAYOUTS[key] = hit
+        if len(_TAG_LAYOUTS) > 16:
+            _TAG_LAYOUTS.popitem(last=False)
+    else:
+        _TAG_LAYOUTS.move_to_end(key)
+    return hit + origin
+
+
+def _paint_tags(painter: QPainter, geo: _Geometry, people: list[_PersonLike],
+                numbers: dict[int, int], colours: dict[int, int], transform: QTransform,
+                style: OverlayStyle, dpr: float) -> dict[int, QRectF]:
+    metrics = _tag_metrics(style.tag_font_px)
+    h = metrics.height() + 2
+    with_anchor: list[tuple[int, np.ndarray]] = []
+    for i in range(len(people)):
+        anchor = tag_anchor(geo.pts[i], geo.labelled[i])
+        if anchor is not None:
+            with_anchor.append((i, anchor))
+    if not with_anchor:
+        return {}
+    anchors = np.array([a for _, a in with_anchor])
+    sizes = np.array([(max(metrics.horizontalAdvance(str(numbers[people[i].id])) + 8, h), h)
+                      for i, _ in with_anchor], dtype=float)
+    obstacles = geo.pts[geo.labelled]
+    gap = style.joint_radius + 4
+    origin = np.array([transform.dx(), transform.dy()])
+    centres = _cached_layout(anchors, sizes, gap, obstacles, origin)
+    rects: dict[int, QRectF] = {}
+    for (i, anchor), (cx, cy), (w, hh) in zip(with_anchor, centres.tolist(), sizes.tolist()):
+        pid = people[i].id
+        rect = QRectF(cx - w / 2, cy - hh / 2, w, hh)
+        rects[pid] = rect
+        dimmed = style.focus is not None and pid != style.focus
+        painter.setOpacity(style.dim_others if dimmed else 1.0)
+        default_cy = anchor[1] - gap - hh / 2
+        if abs(cx - anchor[0]) > w or abs(cy - default_cy) > hh:
+            # Displaced tag: a thin leader line says whose it is.
+            leader = QLineF(cx, cy, float(anchor[0]), float(anchor[1]))
+            painter.setPen(_pen(OUTLINE, 2.2))
+            painter.drawLine(leader)
+            painter.setPen(_pen(palette_colour(colours[pid]), 1.0))
+            painter.drawLine(leader)
+        selected = pid == style.selected_person or pid == style.focus
+        flagged = WHOLE_PERSON in style.flags.get(pid, ())
+        image, margin = _tag(str(numbers[pid]), colours[pid], int(w), int(hh), selected,
+                             flagged, style.tag_font_px, dpr)
+        x0 = np.floor((cx - w / 2) * dpr) / dpr - margin
+        y0 = np.floor((cy - hh / 2) * dpr) / dpr - margin
+        painter.drawImage(QPointF(x0, y0), image)
+    painter.setOpacity(1.0)
+    return rects
+
+
+_METRICS: dict[int, QFontMetrics] = {}
+
+
+def _tag_font(px: int) -> QFont:
+    font = QFont()
+    font.setPixelSize(px)
+    font.setBold(True)
+    return font
+
+
+def _tag_metrics(px: int) -> QFontMetrics:
+    hit = _METRICS.get(px)
+    if hit is None:
+        hit = _METRICS[px] = QFontMetrics(_tag_font(px))
+    return hit
+
+
+def _tag(text: str, colour_index: int, w: int, h: int, selected: bool, flagged: bool,
+         font_px: int, dpr: float) -> tuple[QImage, int]:
+    """A number tag drawn once: rounded box in the person's colour, the number in black or
+    white (whichever reads better), a white edge when selected, a halo when the whole person
+    is flagged."""
+    key = ("tag", text, colour_index, w, h, selected, flagged, font_px, dpr)
+    hit = _SPRITES.get(key)
+    if hit is not None:
+        return hit
+    margin = 7
+    image = QImage(int(np.ceil((w + 2 * margin) * dpr)), int(np.ceil((h + 2 * margin) * dpr)),
+                   QImage.Format.Format_ARGB32_Premultiplied)
+    image.fill(0)
+    p = QPainter(image)
+    p.setRenderHint(QPainter.RenderHint.Antialiasing, True)
+    p.setRenderHint(QPainter.RenderHint.TextAntialiasing, True)
+    p.scale(dpr, dpr)
+    rect = QRectF(margin, margin, w, h)
+    colour = palette_colour(colour_index)
+    if flagged:
+        p.setBrush(Qt.BrushStyle.NoBrush)
+        p.setPen(_pen(HALO, 5.0))
+        p.drawRoundedRect(rect.adjusted(-3, -3, 3, 3), 5, 5)
+        p.setPen(_pen(HALO_RIM, 1.0))
+        p.drawRoundedRect(rect.adjusted(-6, -6, 6, 6), 7, 7)
+    p.setPen(_pen("#ffffff" if selected else OUTLINE, 2.0 if selected else 1.0))
+    p.setBrush(colour)
+    p.drawRoundedRect(rect.adjusted(0.5, 0.5, -0.5, -0.5), 3, 3)
+    p.setFont(_tag_font(font_px))
+    p.setPen(text_colour_on(colour))
+    p.drawText(rect, Qt.AlignmentFlag.AlignCenter, text)
+    p.end()
+    image.setDevicePixelRatio(dpr)
+    if len(_SPRITES) > 1024:
+        _SPRITES.clear()
+    _SPRITES[key] = (image, margin)
+    return image, margin
+
+
+def flags_from_reasons(reasons: Sequence[Mapping[str, Any]] | None,
+                       min_weight: float = FLAG_WEIGHT) -> dict[int, frozenset[int]]:
+    """Which joints of which people to halo, from the triage reasons of one frame.
+
+    Parameters
+    ----------
+    reasons
+        Triage reasons: dicts with ``person``, ``joints`` and ``weight`` (a missing weight
+        counts as 1).
+    min_weight
+        Reasons weaker than this draw nothing, so that the halos point at the few places worth
+        a look rather than at every joint with faint evidence against it.
+
+    Returns
+    -------
+    dict
+        Person id to flagged joints; a reason that names a person but no joint flags the whole
+        person, recorded as the joint ``WHOLE_PERSON`` (-1), and so does a person flagged at
+        ``WHOLE_BODY_JOINTS`` joints or more. Frame-level reasons (no person) draw nothing.
+
+    Examples
+    --------
+    >>> flags_from_reasons([{"kind": "long limb", "person": 4, "joints": [7, 9], "weight": 1},
+    ...                     {"kind": "weak", "person": 4, "joints": [3], "weight": 0.2},
+    ...                     {"kind": "duplicate", "person": 5, "joints": []},
+    ...                     {"kind": "crowd", "person": None}])
+    {4: frozenset({9, 7}), 5: frozenset({-1})}
+    """
+    out: dict[int, set[int]] = {}
+    for r in reasons or ():
+        pid = r.get("person")
+        weight = r.get("weight")
+        if pid is None or (weight is not None and float(weight) < min_weight):
+            continue
+        joints = [int(j) for j in (r.get("joints") or ())]
+        out.setdefault(int(pid), set()).update(joints or [WHOLE_PERSON])
+    for joints in out.values():
+        if len(joints - {WHOLE_PERSON}) >= WHOLE_BODY_JOINTS:
+            # Wrong nearly everywhere: one ring on the tag says it better than a halo on
+            # every joint, which would hide the body under the halos.
+            joints.clear()
+            joints.add(WHOLE_PERSON)
+    return {p: frozenset(j) for p, j in out.items()}

@@ -1,0 +1,378 @@
+"""The dock panels around the Canvas: Worklist, Owners, Ledger and Notes.
+
+Each panel is a view over the item models of :mod:`app.ui.models` plus a few controls; it
+emits what the user asked for and leaves the edits to the main window.
+"""
+
+from __future__ import annotations
+
+from PySide6.QtCore import QItemSelectionModel, QModelIndex, Qt, Signal
+from PySide6.QtGui import QAction
+from PySide6.QtWidgets import (
+    QAbstractItemView,
+    QComboBox,
+    QGridLayout,
+    QHBoxLayout,
+    QHeaderView,
+    QLabel,
+    QLineEdit,
+    QListView,
+    QPushButton,
+    QSizePolicy,
+    QTableView,
+    QToolButton,
+    QVBoxLayout,
+    QWidget,
+)
+
+from app.model.labels import FrameState
+from app.ui.models import (
+    STATE_TEXT,
+    CandidatesModel,
+    KeyRole,
+    LedgerModel,
+    NotesModel,
+    PeopleModel,
+    WorklistFilter,
+    WorklistModel,
+    reason_label,
+)
+
+
+def _table(model, stretch: int, widths: tuple[int, ...] | None = None) -> QTableView:
+    """A read-only row table. With ``widths`` the columns have those fixed starting widths
+    (resizable by hand), which keeps large models cheap: fitting columns to their contents
+    would visit every row on each change."""
+    view = QTableView()
+    view.setModel(model)
+    view.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
+    view.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
+    view.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
+    view.setAlternatingRowColors(True)
+    view.setShowGrid(False)
+    view.setWordWrap(False)
+    view.verticalHeader().hide()
+    view.verticalHeader().setDefaultSectionSize(view.fontMetrics().height() + 6)
+    header = view.horizontalHeader()
+    header.setHighlightSections(False)
+    if widths is None:
+        header.setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
+    else:
+        header.setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
+        for i, w in enumerate(widths):
+            header.resizeSection(i, w)
+    header.setSectionResizeMode(stretch, QHeaderView.ResizeMode.Stretch)
+    return view
+
+
+def _tight(layout: QVBoxLayout | QHBoxLayout | QGridLayout) -> None:
+    layout.setContentsMargins(4, 4, 4, 4)
+    layout.setSpacing(4)
+
+
+# ---------------------------------------------------------------------------------- Worklist
+
+class WorklistPanel(QWidget):
+    """Frames by suspicion with filters; emits :attr:`frameChosen` when the user picks one."""
+
+    frameChosen = Signal(int)
+
+    def __init__(self, model: WorklistModel, parent: QWidget | None = None):
+        super().__init__(parent)
+        self.model = model
+        self.proxy = WorklistFilter(self)
+        self.proxy.setSourceModel(model)
+        self._quiet = False
+
+        self.state_filter = QComboBox()
+        self.state_filter.addItem("all states", None)
+        for state in FrameState:
+            self.state_filter.addItem(STATE_TEXT[state], state.value)
+        self.reason_filter = QComboBox()
+        self.reason_filter.setSizeAdjustPolicy(
+            QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
+        self.reason_filter.setMinimumContentsLength(12)
+        self.hint = QLabel("No triage yet: Project \u25b8 Run triage (Ctrl+T) ranks the frames "
+                           "by suspicion.")
+        self.hint.setWordWrap(True)
+        self.view = _table(self.proxy, 0, (200, 46, 70))
+        self.view.setObjectName("WorklistView")
+        self.view.setTextElideMode(Qt.TextElideMode.ElideRight)
+        self.view.verticalHeader().setDefaultSectionSize(2 * self.view.fontMetrics().height()
+                                                         + 8)
+        self.count = QLabel()
+
+        filters = QHBoxLayout()
+        filters.addWidget(self.state_filter, 1)
+        filters.addWidget(self.reason_filter, 1)
+        layout = QVBoxLayout(self)
+        _tight(layout)
+        layout.addLayout(filters)
+        layout.addWidget(self.hint)
+        layout.addWidget(self.view, 1)
+        layout.addWidget(self.count)
+
+        self.state_filter.currentIndexChanged.connect(self._filter_state)
+        self.reason_filter.currentIndexChanged.connect(self._filter_reason)
+        self.view.selectionModel().currentRowChanged.connect(self._current_changed)
+        model.modelReset.connect(self._after_reset)
+        self._after_reset()
+
+    def _after_reset(self) -> None:
+        current = self.reason_filter.currentData()
+        self.reason_filter.blockSignals(True)
+        self.reason_filter.clear()
+        self.reason_filter.addItem("all reasons", None)
+        for kind, n in self.model.reason_kinds():
+            self.reason_filter.addItem(f"{reason_label(kind)} ({n})", kind)
+        i = self.reason_filter.findData(current)
+        self.reason_filter.setCurrentIndex(max(i, 0))
+        self.reason_filter.blockSignals(False)
+        if i < 0 and current is not None:
+            self.proxy.set_kind(None)
+        self.hint.setVisible(not self.model.has_triage())
+        self._update_count()
+
+    def _filter_state(self) -> None:
+        value = self.state_filter.currentData()
+        self.proxy.set_state(None if value is None else FrameState(value))
+        self._update_count()
+
+    def _filter_reason(self) -> None:
+        self.proxy.set_kind(self.reason_filter.currentData())
+        self._update_count()
+
+    def _update_count(self) -> None:
+        shown, total = self.proxy.rowCount(), self.model.rowCount()
+        self.count.setText(f"{shown} of {total} frames" if shown != total else f"{total} frames")
+
+    def _current_changed(self, current: QModelIndex, _previous: QModelIndex) -> None:
+        if self._quiet or not current.isValid():
+            return
+        self.frameChosen.emit(int(current.data(KeyRole)))
+
+    def ordered_ids(self) -> list[int]:
+        """Frame ids in the order shown (filters applied)."""
+        return [int(self.proxy.index(r, 0).data(KeyRole)) for r in range(self.proxy.rowCount())]
+
+    def neighbour(self, frame_id: int | None, step: int) -> int | None:
+        """The frame ``step`` rows after (or before) ``frame_id`` in the shown order."""
+        n = self.proxy.rowCount()
+        if n == 0:
+            return None
+        row = self.model.row_of(frame_id) if frame_id is not None else None
+        if row is not None:
+            pos = self.proxy.mapFromSource(self.model.index(row, 0)).row()
+            if pos >= 0:
+                nxt = pos + step
+                return int(self.proxy.index(nxt, 0).data(KeyRole)) if 0 <= nxt < n else None
+        return int(self.proxy.index(0 if step > 0 else n - 1, 0).data(KeyRole))
+
+    def show_frame(self, frame_id: int) -> None:
+        """Highlight a frame's row without emitting :attr:`frameChosen`."""
+        row = self.model.row_of(frame_id)
+        if row is None:
+            return
+        idx = self.proxy.mapFromSource(self.model.index(row, 0))
+        self._quiet = True
+        try:
+            if idx.isValid():
+                self.view.selectionModel().setCurrentIndex(
+                    idx, QItemSelectionModel.SelectionFlag.ClearAndSelect
+                    | QItemSelectionModel.SelectionFlag.Rows)
+                self.view.scrollTo(idx)
+            else:
+                self.view.clearSelection()
+        finally:
+            self._quiet = False
+
+
+# ---------------------------------------------------------------------------------- Owners
+
+class OwnersPanel(QWidget):
+    """The frame's people, the selected joint's candidate owners, and the person actions."""
+
+    personChosen = Signal(int)
+    candidateChosen = Signal(int)
+
+    ACTIONS = ("new_person", "split_person", "mark_visible", "mark_occluded", "mark_unlabeled",
+               "swap_sides", "merge_people", "delete_person")
+
+    def __init__(self, actions: dict[str, QAction], parent: QWidget | None = None):
+        super().__init__(parent)
+        self.people_model = PeopleModel(self)
+        self.candidates_model = CandidatesModel(self)
+        self._quiet = False
+
+        self.people = _table(self.people_model, 1, (52, 60, 62, 62, 40))
+        self.people.setObjectName("PeopleView")
+        self.selection = QLabel("Nothing selected.")
+        self.selection.setWordWrap(True)
+        self.selection.setTextFormat(Qt.TextFormat.RichText)
+        self.selection.setSizePolicy(QSizePolicy.Policy.Preferred, QSizePolicy.Policy.Minimum)
+        self.note = QLabel()
+        self.note.setWordWrap(True)
+        self.note.setStyleSheet("color: #8a5a00;")
+        self.candidates = _table(self.candidates_model, 3, (44, 56, 40))
+        self.candidates.setObjectName("CandidatesView")
+        self.candidates.setWordWrap(True)
+        # The reasons are sentences: let rows grow to show them whole (a few dozen rows).
+        self.candidates.verticalHeader().setSectionResizeMode(
+            QHeaderView.ResizeMode.ResizeToContents)
+        self.candidates.setToolTip("Click a person to give the selected joint to them")
+
+        grid = QGridLayout()
+        _tight(grid)
+        grid.setContentsMargins(0, 0, 0, 0)
+        for i, name in enumerate(self.ACTIONS):
+            button = QToolButton()
+            button.setDefaultAction(actions[name])
+            button.setToolButtonStyle(Qt.ToolButtonStyle.ToolButtonTextOnly)
+            button.setSizePolicy(QSizePolicy.Policy.Expanding, QSizePolicy.Policy.Fixed)
+            grid.addWidget(button, i // 2, i % 2)
+
+        give = QLabel("<b>Give the joint to</b> (click, or press the tag number)")
+        give.setWordWrap(True)
+        layout = QVBoxLayout(self)
+        _tight(layout)
+        layout.addWidget(self.people, 2)
+        layout.addWidget(self.selection)
+        layout.addWidget(give)
+        layout.addWidget(self.note)
+        layout.addWidget(self.candidates, 3)
+        layout.addLayout(grid)
+
+        self.people.selectionModel().currentRowChanged.connect(self._person_changed)
+        self.people.clicked.connect(self._person_clicked)
+        self.candidates.clicked.connect(self._candidate_clicked)
+
+    def _person_changed(self, current: QModelIndex, _previous: QModelIndex) -> None:
+        if not self._quiet and current.isValid():
+            self.personChosen.emit(int(current.data(KeyRole)))
+
+    def _person_clicked(self, index: QModelIndex) -> None:
+        if not self._quiet and index.isValid():
+            self.personChosen.emit(int(index.data(KeyRole)))
+
+    def _candidate_clicked(self, index: QModelIndex) -> None:
+        if index.isValid():
+            self.candidateChosen.emit(int(index.data(KeyRole)))
+
+    def show_person(self, person_id: int | None) -> None:
+        """Highlight a person's row without emitting :attr:`personChosen`."""
+        self._quiet = True
+        try:
+            row = None if person_id is None else self.people_model.row_of(person_id)
+            if row is None:
+                self.people.clearSelection()
+                self.people.selectionModel().clearCurrentIndex()
+            else:
+                idx = self.people_model.index(row, 0)
+                self.people.selectionModel().setCurrentIndex(
+                    idx, QItemSelectionModel.SelectionFlag.ClearAndSelect
+                    | QItemSelectionModel.SelectionFlag.Rows)
+                self.people.scrollTo(idx)
+        finally:
+            self._quiet = False
+
+    def candidate_row(self, person_id: int) -> int | None:
+        for i, c in enumerate(self.candidates_model.choices()):
+            if c.person_id == person_id:
+                return i
+        return None
+
+
+# ---------------------------------------------------------------------------------- Ledger
+
+class LedgerPanel(QWidget):
+    """The ledger of this frame or of the whole project, with undo, redo and return-to."""
+
+    returnRequested = Signal(int, bool)  # ledger seq, whole project
+    scopeChanged = Signal(bool)
+
+    def __init__(self, model: LedgerModel, actions: dict[str, QAction],
+                 parent: QWidget | None = None):
+        super().__init__(parent)
+        self.model = model
+        self.scope = QComboBox()
+        self.scope.addItem("this frame", False)
+        self.scope.addItem("whole project", True)
+        self.view = _table(model, 3, (80, 70, 60))
+        self.view.setObjectName("LedgerView")
+        self.back = QPushButton("Return to this point")
+        self.back.setToolTip("Bring the labels back to how they were right after the selected "
+                             "action (recorded as a new, undoable action)")
+        self.back.setEnabled(False)
+        self.editable = True
+
+        top = QHBoxLayout()
+        top.addWidget(QLabel("Edits of"))
+        top.addWidget(self.scope)
+        top.addStretch(1)
+        for name in ("undo", "redo"):
+            b = QToolButton()
+            b.setDefaultAction(actions[name])
+            top.addWidget(b)
+        top.addWidget(self.back)
+        layout = QVBoxLayout(self)
+        _tight(layout)
+        layout.addLayout(top)
+        layout.addWidget(self.view, 1)
+
+        self.scope.currentIndexChanged.connect(
+            lambda _i: self.scopeChanged.emit(bool(self.scope.currentData())))
+        self.view.selectionModel().currentRowChanged.connect(lambda *_: self._update_back())
+        model.modelReset.connect(self._update_back)
+        self.back.clicked.connect(self._return)
+
+    def set_editable(self, editable: bool) -> None:
+        self.editable = editable
+        self._update_back()
+
+    def _update_back(self) -> None:
+        self.back.setEnabled(self.editable and self.view.currentIndex().isValid())
+
+    def _return(self) -> None:
+        idx = self.view.currentIndex()
+        if idx.isValid():
+            self.returnRequested.emit(int(idx.data(KeyRole)), self.model.whole_project)
+
+
+# ---------------------------------------------------------------------------------- Notes
+
+class NotesPanel(QWidget):
+    """The frame's note thread and a line to add to it."""
+
+    noteSubmitted = Signal(str)
+
+    def __init__(self, model: NotesModel, parent: QWidget | None = None):
+        super().__init__(parent)
+        self.model = model
+        self.view = QListView()
+        self.view.setModel(model)
+        self.view.setWordWrap(True)
+        self.view.setAlternatingRowColors(True)
+        self.view.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
+        self.view.setObjectName("NotesView")
+        self.entry = QLineEdit()
+        self.entry.setObjectName("NoteEntry")
+        self.entry.setPlaceholderText("Write a note on this frame, then Return")
+        self.add = QPushButton("Add note")
+        row = QHBoxLayout()
+        row.addWidget(self.entry, 1)
+        row.addWidget(self.add)
+        layout = QVBoxLayout(self)
+        _tight(layout)
+        layout.addWidget(self.view, 1)
+        layout.addLayout(row)
+        self.entry.returnPressed.connect(self._submit)
+        self.add.clicked.connect(self._submit)
+
+    def set_editable(self, editable: bool) -> None:
+        self.entry.setEnabled(editable)
+        self.add.setEnabled(editable)
+
+    def _submit(self) -> None:
+        text = self.entry.text().strip()
+        if text:
+            self.noteSubmitted.emit(text)

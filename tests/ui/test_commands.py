@@ -1,0 +1,167 @@
+"""``posewright open --screenshot`` and ``posewright render``, the author prompt, the key
+table (F1 sheet and README), and long work off the UI thread.
+
+Data: the synthetic project of tests/ui/conftest.py (invented for these tests). Exit status 2
+with one line on stderr for bad input is our own command-line convention (DESIGN.md section 7).
+"""
+
+from __future__ import annotations
+
+import argparse
+import re
+import threading
+from pathlib import Path
+
+import cv2
+import pytest
+from PySide6.QtGui import QKeySequence
+
+from app.cli import main
+from app.errors import Cancelled
+from app.ui import commands
+from app.ui.keys import KEYS, key_text, sequences, sheet_html
+from tests.ui.conftest import HEIGHT, WIDTH, make_project
+
+ROOT = Path(__file__).resolve().parents[2]
+
+
+@pytest.fixture
+def closed_project(tmp_path):
+    p = make_project(tmp_path)
+    folder = p.folder
+    p.close()
+    return folder
+
+
+def test_screenshot_renders_the_window_offscreen(qapp, closed_project, tmp_path):
+    out = tmp_path / "window.png"
+    assert main(["open", str(closed_project), "--author", "ana", "--screenshot", str(out)]) == 0
+    img = cv2.imread(str(out))
+    assert img.shape[:2] == (commands.SCREENSHOT_SIZE[1], commands.SCREENSHOT_SIZE[0])
+    assert img.std() > 10, "a real picture of the window, not a blank"
+
+
+def test_render_by_file_name_at_full_resolution(qapp, closed_project, tmp_path, capsys):
+    out = tmp_path / "one.png"
+    assert main(["render", str(closed_project), "--frame", "frame_0002.jpg",
+                 "--out", str(out)]) == 0
+    assert cv2.imread(str(out)).shape == (HEIGHT, WIDTH, 3)
+    assert "frame 3" in capsys.readouterr().out
+
+
+def test_render_refuses_an_unknown_person_in_one_line(qapp, closed_project, tmp_path, capsys):
+    out = tmp_path / "x.png"
+    assert main(["render", str(closed_project), "--frame", "2", "--out", str(out),
+                 "--focus", "999999"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "no person 999999" in err[0]
+    assert not out.exists(), "nothing written"
+
+
+def test_render_refuses_a_non_png_output(qapp, closed_project, tmp_path, capsys):
+    assert main(["render", str(closed_project), "--frame", "2", "--out",
+                 str(tmp_path / "x.jpg")]) == 2
+    assert ".png" in capsys.readouterr().err
+
+
+def test_first_run_asks_the_author_once(qapp, monkeypatch):
+    from PySide6.QtWidgets import QInputDialog
+
+    asked = []
+
+    def ask(*_a, **_k):
+        asked.append(1)
+        return "zoe", True
+
+    monkeypatch.setattr(QInputDialog, "getText", ask)
+    args = argparse.Namespace(author=None)
+    assert commands._author(args, ask=True) == "zoe"
+    assert commands._author(args, ask=True) == "zoe"
+    assert asked == [1], "asked once, then remembered"
+    assert commands._author(argparse.Namespace(author="kim"), ask=True) == "kim"
+
+
+def test_every_action_has_its_own_keys(qapp):
+    """No two actions share a key sequence (a clash would make Qt fire neither)."""
+    seen: dict[str, str] = {}
+    for key in KEYS:
+        if not key.name:
+            continue
+        for seq in sequences(key):
+            text = seq.toString(QKeySequence.SequenceFormat.PortableText)
+            assert text not in seen, f"{text}: {seen.get(text)} and {key.name}"
+            seen[text] = key.name
+
+
+def test_shortcut_sheet_and_readme_list_every_key(qapp):
+    sheet = sheet_html()
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    section = readme.split("## The desktop app", 1)[1].split("\n## ", 1)[0]
+    table = "\n".join(line for line in section.splitlines() if line.startswith("|"))
+    cells = {c.strip() for line in table.splitlines() for c in line.split("|")}
+    keys_in_readme = set()
+    for cell in cells:
+        keys_in_readme.update(p.strip() for p in re.split(r" / |, ", cell))
+    for key in KEYS:
+        assert key.help.replace("'", "&#x27;") in sheet or key.help in sheet
+        if key.gesture:
+            assert key.gesture in cells, key.gesture
+            continue
+        if key.name.startswith("give_"):
+            assert "1 \u2013 9" in cells
+            continue
+        first = sequences(key)[0].toString(QKeySequence.SequenceFormat.PortableText)
+        assert first in keys_in_readme, f"{key.name}: {first} missing from the README"
+        assert key_text(key) and key_text(key) in sheet.replace("&amp;", "&")
+
+
+def test_long_work_runs_off_the_ui_thread_and_cancels(qtbot, window):
+    ui_thread = threading.get_ident()
+    ran_on = []
+    started = threading.Event()
+
+    def job(progress):
+        ran_on.append(threading.get_ident())
+        started.set()
+        for i in range(10_000):
+            progress.step(i, 10_000, "waiting")
+            threading.Event().wait(0.001)
+        return "finished"
+
+    window.run_long("Testing", job)
+    (running,) = window._jobs
+    assert started.wait(5)
+    running.cancel()
+    qtbot.waitUntil(lambda: not window._jobs, timeout=5000)
+    qtbot.waitUntil(lambda: "cancelled" in window.statusBar().currentMessage(), timeout=5000)
+    assert ran_on and ran_on[0] != ui_thread
+
+
+def test_an_import_in_the_background_reaches_the_worklist(qtbot, window, tmp_path):
+    """A job's store notifications arrive on the UI thread (queued) and refresh the views."""
+    from app.model.labels import AUTO, Person
+
+    def job(progress):
+        with window.project.bulk("ImportTest", "one more person", "test") as b:
+            pid = b.allocate_person_ids(1)
+            p = Person.blank(pid, 17, AUTO)
+            p.keypoints[:, :2] = 30.0
+            p.keypoints[:, 2] = 2
+            b.add_people([(window.frame_id, p)])
+        progress.step(1, 1, "done")
+        return pid
+
+    got = []
+    window.run_long("Importing", job, got.append)
+    qtbot.waitUntil(lambda: bool(got), timeout=5000)
+    qtbot.waitUntil(lambda: len(window.canvas.people) == 4, timeout=5000)
+    assert window.owners.people_model.rowCount() == 4
+
+
+def test_cancelled_is_reported_not_raised(qtbot, window):
+    def job(progress):
+        raise Cancelled("cancelled during test")
+
+    window.run_long("Testing", job)
+    qtbot.waitUntil(lambda: "nothing was changed" in window.statusBar().currentMessage(),
+                    timeout=5000)

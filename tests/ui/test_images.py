@@ -1,0 +1,100 @@
+"""Decoding off the UI thread, prefetching and the memory-bounded cache.
+
+Data: synthetic images (invented for these tests). The cache's bound is checked by plain byte
+arithmetic: an RGB32 pixel takes 4 bytes (common practice, no source).
+"""
+
+from __future__ import annotations
+
+import threading
+
+import cv2
+import numpy as np
+from PySide6.QtCore import Qt, QThread
+
+from app.ui.images import Decoded, ImageCache, ImageLoader, decode_for_display, qimage_view
+
+
+def _item(i, w=100, h=10):
+    px = np.zeros((h, w, 4), np.uint8)
+    return Decoded(i, px, qimage_view(px))
+
+
+def test_cache_evicts_least_recently_used_beyond_the_byte_bound():
+    cache = ImageCache(max_bytes=3 * 100 * 10 * 4)
+    for i in range(3):
+        cache.put(_item(i))
+    assert cache.get(0) is not None  # 0 is now the most recent
+    cache.put(_item(3))
+    assert sorted(cache.keys()) == [0, 2, 3]
+    assert cache.nbytes == 3 * 4000
+
+
+def test_decode_matches_opencv_pixels(tmp_path):
+    """The Canvas shows exactly what OpenCV decodes (reference: cv2.imread)."""
+    rng = np.random.default_rng(3)
+    img = rng.integers(0, 255, (24, 32, 3), dtype=np.uint8)
+    path = tmp_path / "a.png"
+    cv2.imwrite(str(path), img)
+    decoded = decode_for_display(7, path)
+    ref = cv2.imread(str(path))
+    np.testing.assert_array_equal(decoded.pixels[..., :3], ref)
+    x, y = 5, 9
+    c = decoded.image.pixelColor(x, y)
+    assert (c.blue(), c.green(), c.red()) == tuple(int(v) for v in ref[y, x])
+
+
+def test_loader_decodes_off_the_ui_thread_and_reports_missing(qtbot, tmp_path, monkeypatch):
+    cv2.imwrite(str(tmp_path / "b.png"), np.zeros((8, 8, 3), np.uint8))
+    threads = []
+    import app.ui.images as images
+
+    real = images.decode_image
+
+    def spy(path):
+        threads.append(threading.get_ident())
+        return real(path)
+
+    monkeypatch.setattr(images, "decode_image", spy)
+    loader = ImageLoader(ImageCache())
+    assert loader.request(1, tmp_path / "b.png") is None
+    with qtbot.waitSignal(loader.ready, timeout=5000) as got:
+        pass
+    assert got.args == [1]
+    assert threads and threads[0] != threading.get_ident()
+    assert loader.request(1, tmp_path / "b.png") is not None, "now served from the cache"
+    with qtbot.waitSignal(loader.failed, timeout=5000) as missing:
+        loader.request(2, tmp_path / "nope.png")
+    assert missing.args == [2, "missing"]
+    loader.shutdown()
+    assert QThread.currentThread() is not None
+
+
+def test_window_prefetches_the_next_frames(qtbot, window):
+    ids = window.worklist.ordered_ids()
+    qtbot.waitUntil(lambda: ids[1] in window.loader.cache and ids[2] in window.loader.cache,
+                    timeout=5000)
+    qtbot.keyClick(window.canvas, Qt.Key.Key_Space)
+    assert window.canvas.has_image, "a prefetched frame shows its image at once"
+
+
+def test_urgent_frames_are_shrunk_quickly_then_refined(qtbot, tmp_path):
+    """The copy shrunk for the Canvas ends up as OpenCV's area average (reference:
+    cv2.resize with INTER_AREA on the decoded pixels)."""
+    rng = np.random.default_rng(5)
+    cv2.imwrite(str(tmp_path / "c.png"), rng.integers(0, 255, (90, 160, 3), dtype=np.uint8))
+    loader = ImageLoader(ImageCache())
+    loader.display_scale = 0.6
+    with qtbot.waitSignal(loader.ready, timeout=5000):
+        loader.request(1, tmp_path / "c.png", urgent=True)
+    quick = loader.cache.get(1)
+    assert quick.scale == 0.6 and not quick.refined
+    with qtbot.waitSignal(loader.refined, timeout=5000):
+        loader.refine(1)
+    better = loader.cache.get(1)
+    assert better.refined and better.pixels is quick.pixels
+    ref = cv2.resize(cv2.cvtColor(cv2.imread(str(tmp_path / "c.png")), cv2.COLOR_BGR2BGRA),
+                     (96, 54), interpolation=cv2.INTER_AREA)
+    np.testing.assert_array_equal(better.scaled, ref)
+    assert loader.cache.nbytes == better.nbytes
+    loader.shutdown()

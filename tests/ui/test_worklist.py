@@ -1,0 +1,84 @@
+"""Worklist: frames by suspicion, next/previous frame keys, filters, frame states.
+
+Data: the synthetic project of tests/ui/conftest.py (invented for these tests), whose triage
+scores are 0.2, 0.9, 0.5 for frames 1-3 and none for frame 4; the expected order is by score,
+highest first, unscored last (our own rule).
+"""
+
+from __future__ import annotations
+
+from PySide6.QtCore import Qt
+
+from app.model.labels import FrameState
+from tests.ui.conftest import person_id, screen_point
+
+
+def test_frames_are_ordered_by_suspicion(window):
+    assert window.worklist.ordered_ids() == [2, 3, 1, 4]
+    assert window.frame_id == 2, "the window opens on the most suspicious frame"
+    model = window.worklist_model
+    assert [model.index(r, 1).data() for r in range(4)] == ["0.90", "0.50", "0.20", ""]
+
+
+def test_next_and_previous_suspicious_frame_by_keys(qtbot, window):
+    seen = [window.frame_id]
+    for _ in range(3):
+        qtbot.keyClick(window.canvas, Qt.Key.Key_Space)
+        seen.append(window.frame_id)
+    assert seen == [2, 3, 1, 4]
+    qtbot.keyClick(window.canvas, Qt.Key.Key_Space)
+    assert window.frame_id == 4, "past the end it stays on the last frame"
+    qtbot.keyClick(window.canvas, Qt.Key.Key_PageUp)
+    assert window.frame_id == 1
+    qtbot.keyClick(window.canvas, Qt.Key.Key_Space, Qt.KeyboardModifier.ShiftModifier)
+    assert window.frame_id == 3
+    assert window.status_frame.text().startswith("frame 2 of 4")
+
+
+def test_clicking_a_row_shows_the_frame(qtbot, window):
+    view = window.worklist.view
+    rect = view.visualRect(view.model().index(2, 0))
+    qtbot.mouseClick(view.viewport(), Qt.MouseButton.LeftButton, pos=rect.center())
+    assert window.frame_id == 1
+    assert window.canvas.frame.id == 1
+
+
+def test_editing_marks_the_frame_corrected_and_the_row_shows_it(qtbot, window, ui_project):
+    pid = person_id(window, 2)
+    qtbot.mouseClick(window.canvas, Qt.MouseButton.LeftButton, pos=screen_point(window, pid, 0))
+    qtbot.keyClick(window.canvas, Qt.Key.Key_O)
+    assert ui_project.frame(2).state is FrameState.CORRECTED
+    assert window.worklist_model.index(0, 2).data() == "corrected"
+    assert window.worklist_model.index(0, 0).data().splitlines()[1] == \
+        "stretched limb \u00b7 crowded", "the second line says why the frame is suspicious"
+
+
+def test_disputed_and_signed_off_are_set_by_hand(qtbot, window, ui_project):
+    qtbot.keyClick(window.canvas, Qt.Key.Key_D)
+    assert ui_project.frame(2).state is FrameState.DISPUTED
+    assert window.worklist_model.index(0, 2).data() == "disputed"
+    qtbot.keyClick(window.canvas, Qt.Key.Key_Return, Qt.KeyboardModifier.ControlModifier)
+    assert ui_project.frame(2).state is FrameState.SIGNED_OFF
+    qtbot.keyClick(window.canvas, Qt.Key.Key_Return, Qt.KeyboardModifier.ControlModifier)
+    assert ui_project.frame(2).state is FrameState.CORRECTED
+
+
+def test_filter_by_state_and_by_reason(qtbot, window, ui_project):
+    qtbot.keyClick(window.canvas, Qt.Key.Key_D)  # frame 2 disputed
+    panel = window.worklist
+    panel.state_filter.setCurrentIndex(panel.state_filter.findData("disputed"))
+    assert panel.ordered_ids() == [2]
+    panel.state_filter.setCurrentIndex(0)
+    panel.reason_filter.setCurrentIndex(panel.reason_filter.findData("low-score"))
+    assert panel.ordered_ids() == [3]
+    assert panel.count.text() == "1 of 4 frames"
+    # Next frame walks the filtered list.
+    window.show_frame(3)
+    qtbot.keyClick(window.canvas, Qt.Key.Key_Space)
+    assert window.frame_id == 3
+
+
+def test_triage_results_arriving_reorder_the_worklist(qtbot, window, ui_project):
+    ui_project.store_triage({4: (5.0, [])})
+    qtbot.waitUntil(lambda: window.worklist.ordered_ids()[0] == 4, timeout=3000)
+    assert window.frame_id == 2, "the current frame stays"
