@@ -1,0 +1,286 @@
+"""Desktop app benchmarks (offscreen): Canvas paint, frame switch, memory of a large project.
+
+Synthetic data only: procedurally drawn 1920 x 1080 JPEG frames and people made from a
+standing template at random places (invented for the benchmarks).
+
+- Canvas paint: a 1920 x 1080 frame with 40 people, the Canvas at a typical 1400 x 800, the
+  median of ``repaint()``; the baseline is the same paint with no people (the image alone).
+- Frame switch: from asking for a frame to its first paint with the image; cold (nothing
+  cached: decode in the pool, then paint) and prefetched (decoded while the previous frame was
+  shown). The baseline is OpenCV's decode of the same file alone.
+- Memory: the resident set of a separate process that opens a 10,000-frame project (15 people
+  per frame, triage for every frame) in the main window and walks through 60 frames.
+"""
+
+from __future__ import annotations
+
+import os
+import statistics
+import subprocess
+import sys
+import tempfile
+import textwrap
+import time
+from collections.abc import Callable
+from pathlib import Path
+
+import numpy as np
+
+os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+
+from tests.benchmarks.common import median_seconds, row
+
+ROOT = Path(__file__).resolve().parents[2]
+W, H = 1920, 1080
+
+# A standing person, 17 COCO joints, in units of stature, feet at the origin, y up (synthetic).
+_TEMPLATE = np.array([
+    [0.00, 0.94], [-0.02, 0.96], [0.02, 0.96], [-0.05, 0.95], [0.05, 0.95],
+    [-0.13, 0.82], [0.13, 0.82], [-0.16, 0.63], [0.16, 0.63], [-0.17, 0.48], [0.17, 0.48],
+    [-0.08, 0.52], [0.08, 0.52], [-0.09, 0.28], [0.09, 0.28], [-0.09, 0.04], [0.09, 0.04],
+])
+
+
+def synthetic_people(n: int, seed: int = 0) -> list[np.ndarray]:
+    """``n`` people ``(17, 3)`` spread over a 1920 x 1080 frame, a few joints occluded."""
+    rng = np.random.default_rng(seed)
+    out = []
+    for _ in range(n):
+        stature = rng.uniform(250, 450)
+        feet = np.array([rng.uniform(100, W - 100), rng.uniform(stature + 20, H - 10)])
+        xy = feet + _TEMPLATE * [stature, -stature] + rng.normal(0, 4, (17, 2))
+        v = np.where(rng.random(17) < 0.15, 1, 2)
+        out.append(np.column_stack([xy, v]).astype(np.float64))
+    return out
+
+
+def write_frame_jpeg(path: Path, seed: int) -> None:
+    """A 1920 x 1080 JPEG with smooth shading, shapes and grain (so decoding costs what a
+    photo's does, unlike a flat image)."""
+    import cv2
+
+    rng = np.random.default_rng(seed)
+    yy, xx = np.mgrid[0:H, 0:W].astype(np.float32)
+    img = np.dstack([60 + 80 * xx / W, 50 + 90 * yy / H, 120 + 60 * np.sin(xx / 150.0)])
+    img = img.astype(np.uint8)
+    for _ in range(60):
+        c = tuple(int(v) for v in rng.integers(0, 255, 3))
+        x, y = int(rng.integers(0, W)), int(rng.integers(0, H))
+        cv2.circle(img, (x, y), int(rng.integers(10, 120)), c, -1)
+    img = cv2.add(img, rng.integers(0, 12, img.shape, dtype=np.uint8))
+    cv2.imwrite(str(path), img, [cv2.IMWRITE_JPEG_QUALITY, 90])
+
+
+def _bench_paint() -> list[dict]:
+    from PySide6.QtWidgets import QApplication
+
+    from app.model.labels import Frame, Person
+    from app.model.skeleton import coco_body
+    from app.ui.canvas import Canvas
+    from app.ui.images import decode_for_display
+
+    app = QApplication.instance() or QApplication(["bench"])
+    with tempfile.TemporaryDirectory() as tmp:
+        path = Path(tmp) / "f.jpg"
+        write_frame_jpeg(path, 1)
+        decoded = decode_for_display(1, path)
+    people = []
+    for n, kp in enumerate(synthetic_people(40)):
+        p = Person.blank(n + 1, 17)
+        p.keypoints[:] = kp
+        people.append(p)
+    flags = {people[k].id: frozenset({7, 9}) for k in range(0, 40, 5)}
+    canvas = Canvas(coco_body())
+    canvas.resize(1400, 800)
+    canvas.show()
+    app.processEvents()
+    frame = Frame(1, "f.jpg", "f.jpg", W, H)
+
+    canvas.set_frame(frame, [], {}, decoded)
+    t_base = median_seconds(canvas.repaint, repeat=40, warmup=3)
+    canvas.set_frame(frame, people, flags, decoded)
+    canvas.select_joint(people[3].id, 9)
+    t_paint = median_seconds(canvas.repaint, repeat=60, warmup=3)
+    cpu = _median_thread_time(canvas.repaint, 60)
+    canvas.close()
+    return [row("Canvas paint, 1920x1080 frame, 40 people (median)", t_paint * 1e3, "ms",
+                "<= 8 ms", t_paint <= 8e-3,
+                f"Canvas 1400x800, fit zoom; image alone {t_base * 1e3:.2f} ms; CPU time of "
+                f"the painting thread {cpu * 1e3:.2f} ms; {_load()}")]
+
+
+def _median_thread_time(fn: Callable[[], object], repeat: int) -> float:
+    """Median CPU time of the calling thread per call: what the paint costs, whatever else
+    the machine is doing (the wall time above also counts waiting for a core)."""
+    times = []
+    for _ in range(repeat):
+        t0 = time.thread_time()
+        fn()
+        times.append(time.thread_time() - t0)
+    return statistics.median(times)
+
+
+def _load() -> str:
+    one = os.getloadavg()[0]
+    return f"load average {one:.1f} (1 min) on {os.cpu_count()} cores"
+
+
+def _bench_switch() -> list[dict]:
+    import cv2
+    from PySide6.QtWidgets import QApplication
+
+    from app.store import Project
+    from app.ui.window import MainWindow
+
+    app = QApplication.instance() or QApplication(["bench"])
+    results: list[dict] = []
+    with tempfile.TemporaryDirectory() as tmp:
+        folder = Path(tmp)
+        images = folder / "images"
+        images.mkdir()
+        n_frames = 14
+        for i in range(n_frames):
+            write_frame_jpeg(images / f"f{i:03d}.jpg", i)
+        os.environ["XDG_CONFIG_HOME"] = str(folder / "settings")
+        project = Project.create(folder / "proj", images=images, author="bench")
+        from app.model.labels import AUTO, Person
+
+        with project.bulk("Bench", "synthetic people", "bench") as b:
+            first = b.allocate_person_ids(n_frames * 15)
+            rows = []
+            for f in range(n_frames):
+                for k, kp in enumerate(synthetic_people(15, seed=f)):
+                    p = Person.blank(first + 15 * f + k, 17, AUTO)
+                    p.keypoints[:] = kp
+                    rows.append((f + 1, p))
+            b.add_people(rows)
+        window = MainWindow(project, restore_layout=False)
+        window.resize(1600, 1000)
+        window.show()
+        app.processEvents()
+
+        def shown(fid: int) -> float:
+            t0 = time.perf_counter()
+            window.show_frame(fid)
+            while True:
+                app.processEvents()
+                if window.canvas.painted_frame == fid:
+                    break
+                if window.canvas.has_image:
+                    window.canvas.repaint()
+                else:
+                    time.sleep(0.0005)
+            return time.perf_counter() - t0
+
+        shown(1)
+        cold, warm = [], []
+        ids = window.worklist.ordered_ids()
+        for fid in ids[1:]:
+            window.loader.wait()
+            app.processEvents()
+            window.loader.cache.clear()
+            cold.append(shown(fid))
+        for fid in ids:
+            # The neighbours of the shown frame are being prefetched; wait for them as an
+            # annotator looking at a frame for a moment would.
+            window.loader.wait()
+            app.processEvents()
+            warm.append(shown(fid))
+        decode = median_seconds(lambda: cv2.imread(str(images / "f003.jpg")), repeat=10)
+        window.shutdown()
+        window.close()
+        project.close()
+    t_cold, t_warm = statistics.median(cold), statistics.median(warm)
+    results.append(row("frame switch, cold: decode + first paint (median)", t_cold * 1e3, "ms",
+                       "<= 60 ms", t_cold <= 60e-3,
+                       f"1920x1080 JPEG, 15 people; cv2.imread alone {decode * 1e3:.1f} ms; "
+                       f"{_load()}"))
+    results.append(row("frame switch, prefetched: first paint (median)", t_warm * 1e3, "ms",
+                       "<= 16 ms", t_warm <= 16e-3, f"{len(warm)} switches; {_load()}"))
+    return results
+
+
+_MEMORY = textwrap.dedent("""
+    import os, sys, time
+    os.environ["QT_QPA_PLATFORM"] = "offscreen"
+    os.environ["XDG_CONFIG_HOME"] = {settings!r}
+    sys.path.insert(0, {root!r})
+    from PySide6.QtWidgets import QApplication
+    app = QApplication(["bench"])
+    from app.store import Project
+    from app.ui.window import MainWindow
+    p = Project.open({folder!r})
+    w = MainWindow(p, restore_layout=False)
+    w.resize(1600, 1000)
+    w.show()
+    for k in range(60):
+        w.step_frame(1)
+        deadline = time.monotonic() + 2
+        while w.canvas.painted_frame != w.frame_id and time.monotonic() < deadline:
+            app.processEvents()
+            w.canvas.repaint()
+    w.loader.wait()
+    app.processEvents()
+    # VmRSS now and VmHWM, this process's own peak (ru_maxrss would include the parent's
+    # peak, which a forked child inherits across exec on Linux).
+    status = dict(line.split(":", 1) for line in open("/proc/self/status"))
+    rss = int(status["VmRSS"].split()[0]) / 1024
+    peak = int(status["VmHWM"].split()[0]) / 1024
+    print(rss, peak, w.worklist_model.rowCount(), w.loader.cache.nbytes / 2**20)
+""")
+
+
+def _bench_memory() -> list[dict]:
+    from app.model.labels import AUTO, Person
+    from app.store import Project
+
+    with tempfile.TemporaryDirectory() as tmp:
+        folder = Path(tmp)
+        images = folder / "images"
+        images.mkdir()
+        for i in range(8):
+            write_frame_jpeg(images / f"src{i}.jpg", 100 + i)
+        n_frames, per_frame = 10_000, 15
+        frames_dir = folder / "frames"
+        frames_dir.mkdir()
+        for i in range(n_frames):  # every frame its own file name, eight real images behind
+            os.symlink(images / f"src{i % 8}.jpg", frames_dir / f"f{i:06d}.jpg")
+        project = Project.create(folder / "large", author="bench")
+        with project.bulk("Bench", "register synthetic frames", "bench") as b:
+            b.executemany(
+                "INSERT INTO frames (id, path, file_name, width, height) VALUES (?, ?, ?, ?, ?)",
+                [(1 + i, str(frames_dir / f"f{i:06d}.jpg"), f"f{i:06d}.jpg", W, H)
+                 for i in range(n_frames)])
+            first = b.allocate_person_ids(n_frames * per_frame)
+            base = synthetic_people(per_frame)
+            rows = []
+            for f in range(n_frames):
+                for k in range(per_frame):
+                    p = Person.blank(first + per_frame * f + k, 17, AUTO)
+                    p.keypoints[:] = base[k]
+                    rows.append((f + 1, p))
+            b.add_people(rows)
+        rng = np.random.default_rng(0)
+        project.store_triage({f + 1: (float(rng.uniform(0, 10)), [
+            {"kind": "stretched-limb", "text": "left forearm too long", "person": first + 15 * f,
+             "joints": [7, 9], "weight": 0.9},
+            {"kind": "crowded", "text": "crowded", "person": None, "joints": [], "weight": 0.3},
+        ]) for f in range(n_frames)})
+        project.close()
+        script = _MEMORY.format(root=str(ROOT), folder=str(folder / "large"),
+                                settings=str(folder / "settings"))
+        out = subprocess.run([sys.executable, "-c", script], capture_output=True, text=True,
+                             check=True).stdout.split()
+    rss, peak, n, cache_mb = float(out[0]), float(out[1]), int(out[2]), float(out[3])
+    return [row("resident memory, 10,000-frame project open", rss, "MB", "<= 500 MB",
+                rss <= 500, f"{n} frames x {per_frame} people, 60 frames viewed, image cache "
+                f"{cache_mb:.0f} MB; the process's peak {peak:.0f} MB")]
+
+
+def run() -> list[dict]:
+    return _bench_paint() + _bench_switch() + _bench_memory()
+
+
+if __name__ == "__main__":
+    for r in run():
+        print(f"{r['name']}: {r['value']:.2f} {r['unit']} ({r['target']}) {r['detail']}")
