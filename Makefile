@@ -23,7 +23,7 @@ $(TEST_STAMP): pyproject.toml | $(BIN)/python
 	touch $@ $(RUN_STAMP)
 
 run: $(RUN_STAMP)
-	$(BIN)/posewright summary demo_project
+	$(BIN)/posewright open demo_project
 
 test: $(TEST_STAMP)
 	QT_QPA_PLATFORM=offscreen $(BIN)/python -m pytest
