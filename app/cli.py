@@ -427,6 +427,11 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--seed", type=int, default=None,
                    help="another seed gives another rehearsal (default: the shipped one)")
     p.add_argument("--frames", type=int, default=24)
+
+    # Review packets and comparing labels: app/review/commands.py.
+    from app.review.commands import register as register_review
+
+    register_review(sub, command)
     return parser
 
 

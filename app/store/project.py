@@ -447,6 +447,14 @@ class Project:
             ).fetchall()
         return [Note(*r) for r in rows]
 
+    def query(self, sql: str, args: Sequence[Any] = ()) -> list[tuple[Any, ...]]:
+        """The rows of one ``SELECT`` on the project's tables, for modules that keep tables of
+        their own (review packets and alternatives); they write through :meth:`bulk`."""
+        if not sql.lstrip().upper().startswith("SELECT"):
+            raise PosewrightError("Project.query reads only; write through Project.bulk")
+        with self._mutex:
+            return self._conn.execute(sql, tuple(args)).fetchall()
+
     def labels(self, frame_id: int) -> FrameLabels:
         """Everything an edit can touch in one frame."""
         frame = self.frame(frame_id)
@@ -501,12 +509,13 @@ class Project:
 
     # ------------------------------------------------------------------ editing
 
-    def apply(self, edit: Edit) -> Applied:
+    def apply(self, edit: Edit, *, author: str | None = None) -> Applied:
         """Apply one edit as one transaction; returns once it is durable on disk.
 
         The first label edit of an untouched frame also marks the frame corrected (in the same
         undo step). An edit that changes nothing records nothing. Refused edits raise
-        :class:`~app.errors.EditRefused` and change nothing.
+        :class:`~app.errors.EditRefused` and change nothing. ``author`` credits the edit to
+        someone other than :attr:`author` (a merged review packet credits its reviewer).
         """
         self._check_writable()
         with self._mutex, self._transaction():
@@ -515,7 +524,7 @@ class Project:
             if isinstance(edit, AddNote) and edit.note_id is None:
                 edit = replace(edit, note_id=self._allocate("next_note_id"))
             labels = self.labels(edit.frame_id)
-            ctx = EditContext(self.author, time.time())
+            ctx = EditContext(author or self.author, time.time())
             new_labels, changes = edit.apply(labels, ctx)
             if not changes:
                 return Applied(None, (), edit)

@@ -25,13 +25,25 @@ Layout:
 - ``regions``: ignore regions (people too small or too packed to label), polygons in image
   pixels (``polygons``: a JSON list of flat ``[x0, y0, x1, y1, ...]`` lists); imported from
   and exported to COCO crowd annotations (``iscrowd: 1``).
+- ``packets`` (v3): review packets this project sent out (``direction`` ``exported``, with
+  the SHA-256 of the base labels it sent) and returns it merged (``merged``, with the SHA-256
+  of the returned labels and decisions, so merging the same return again changes nothing),
+  the frames, the reviewer, a JSON ``report`` and, for returns, the reviewer's ledger rows
+  (``audit``).
+- ``alternatives`` (v3): the reviewer's version of a person whose merge conflicted
+  (``theirs``, a person value, NULL when the reviewer deleted the person; ``base`` likewise),
+  kept for settling; ``kind`` is ``joints``, ``deleted-here`` or ``deleted-there``; ``kept``
+  lists the joints settled by keeping ours; ``retired`` is set when a later merge of a frame
+  that was no longer disputed replaced them.
+- ``review_decisions`` (v3): in a project opened from a review packet, the reviewer's
+  decision on each frame (agree, needs-change, signed-off), who made it and when.
 """
 
 from __future__ import annotations
 
 import sqlite3
 
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
 
 _V1 = """
 CREATE TABLE meta (
@@ -114,8 +126,47 @@ CREATE TABLE maps (
 );
 """
 
+# Version 3: review packets (app/review). Packets and alternatives are written in the same
+# transactions as the ledger rows that report them; decisions live only in review projects.
+# IF NOT EXISTS, so that a database whose version number was set back while it kept these
+# tables (as tests/store does to stand in for an old project) still migrates.
+_V3 = """
+CREATE TABLE IF NOT EXISTS packets (
+    packet_id TEXT NOT NULL,
+    direction TEXT NOT NULL,
+    sha256    TEXT NOT NULL,
+    reviewer  TEXT NOT NULL DEFAULT '',
+    time      REAL NOT NULL,
+    frames    TEXT NOT NULL,
+    report    TEXT,
+    audit     TEXT,
+    PRIMARY KEY (packet_id, direction, sha256)
+);
+CREATE TABLE IF NOT EXISTS alternatives (
+    id        INTEGER PRIMARY KEY,
+    frame_id  INTEGER NOT NULL REFERENCES frames(id) ON UPDATE CASCADE,
+    person_id INTEGER NOT NULL,
+    packet_id TEXT NOT NULL,
+    reviewer  TEXT NOT NULL,
+    created   REAL NOT NULL,
+    kind      TEXT NOT NULL,
+    base      TEXT,
+    theirs    TEXT,
+    kept      TEXT NOT NULL DEFAULT '[]',
+    retired   REAL,
+    UNIQUE (packet_id, frame_id, person_id)
+);
+CREATE INDEX IF NOT EXISTS alternatives_frame ON alternatives(frame_id);
+CREATE TABLE IF NOT EXISTS review_decisions (
+    frame_id INTEGER PRIMARY KEY REFERENCES frames(id) ON UPDATE CASCADE,
+    decision TEXT NOT NULL,
+    author   TEXT NOT NULL,
+    time     REAL NOT NULL
+);
+"""
+
 #: ``MIGRATIONS[n]`` takes the schema from version ``n - 1`` to ``n``.
-MIGRATIONS: dict[int, str] = {1: _V1, 2: _V2}
+MIGRATIONS: dict[int, str] = {1: _V1, 2: _V2, 3: _V3}
 
 
 def schema_version(conn: sqlite3.Connection) -> int:

@@ -1,0 +1,14 @@
+"""Review with a colleague: packets out and back, the three-way merge, settling, comparing.
+
+- :mod:`app.review.packet` -- the packet format, :func:`~app.review.packet.export_packet`,
+  :func:`~app.review.packet.read_packet` (every check of :mod:`app.review.safezip`).
+- :mod:`app.review.review` -- the reviewer's side: :func:`~app.review.review.open_packet`,
+  :func:`~app.review.review.set_decision`, :func:`~app.review.review.return_packet`.
+- :mod:`app.review.merge` -- :func:`~app.review.merge.merge_packet`, three ways per joint.
+- :mod:`app.review.settle` -- differences of a disputed frame and the edits that settle it.
+- :mod:`app.review.compare` -- two label sets over the same images, by OKS.
+- :mod:`app.review.blur` -- heads blurred in packet images.
+
+Nothing here imports Qt. The submodules are imported where used, so that the command line
+builds its parser without loading them.
+"""

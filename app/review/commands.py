@@ -1,0 +1,258 @@
+"""The ``packet`` and ``compare`` commands of ``posewright`` (registered by app/cli.py).
+
+Nothing heavy is imported until a command runs, so building the parser stays quick.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import sys
+import time
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+from app.errors import BadInput, ProjectLocked
+
+Command = Callable[..., argparse.ArgumentParser]
+
+
+def register(sub: Any, command: Command) -> None:
+    """Add ``packet export|show|decide|return|merge`` and ``compare`` to the parser.
+
+    ``sub`` is the top-level subparsers object, ``command`` app/cli.py's helper that adds a
+    command with ``PROJECT``, ``--author`` and ``-q``.
+    """
+    p = command("compare", cmd_compare,
+                "compare two projects or COCO datasets over the same images, by OKS",
+                project=False)
+    p.add_argument("a", metavar="A", help="project folder or COCO dataset (the reference)")
+    p.add_argument("b", metavar="B", help="project folder or COCO dataset")
+    p.add_argument("--json", action="store_true", help="print the whole comparison as JSON")
+    p.add_argument("--csv", metavar="FILE", help="write one row per image to FILE")
+    p.add_argument("--dispute-below", metavar="OKS", type=float,
+                   help="mark A's frames with a mean OKS below this disputed (A: a project)")
+    p.add_argument("--match-oks", metavar="OKS", type=float, default=0.2,
+                   help="least OKS for two people to be paired (default 0.2)")
+    p.add_argument("--skeleton", metavar="FILE.json",
+                   help="skeleton of COCO files that are not the 17-joint COCO body")
+
+    group = sub.add_parser("packet", help="review packets: export, show, decide, return, merge",
+                           description="send frames to a colleague for review and merge "
+                                       "their answer")
+    actions = group.add_subparsers(dest="packet_command", required=True, metavar="ACTION",
+                                   parser_class=type(group))
+
+    def action(name: str, fn: Callable[[argparse.Namespace], int],
+               text: str) -> argparse.ArgumentParser:
+        q = actions.add_parser(name, help=text, description=text)
+        q.add_argument("--author", help="who is working (default: the reviewer the packet "
+                                        "names, $POSEWRIGHT_AUTHOR or the login name)")
+        q.add_argument("-q", "--quiet", action="store_true", help="no progress on stderr")
+        q.set_defaults(fn=fn)
+        return q
+
+    q = action("export", cmd_export, "write frames, labels and notes to a review packet (zip)")
+    q.add_argument("project", metavar="PROJECT")
+    q.add_argument("--frames", required=True, metavar="WHICH",
+                   help="a state (disputed, untouched, ...) or frame ids 3,7,12")
+    q.add_argument("--out", required=True, metavar="FILE.zip")
+    q.add_argument("--images", choices=("none", "full", "blurred-heads"), default="none",
+                   help="send no images (default), the images, or the images with heads "
+                        "blurred")
+    q.add_argument("--reviewer", metavar="NAME", help="who is to review")
+
+    q = action("show", cmd_show, "check a packet and say what it holds")
+    q.add_argument("packet", metavar="FILE.zip")
+    q.add_argument("--json", action="store_true")
+
+    q = action("decide", cmd_decide, "record the reviewer's decision on a frame of a packet")
+    q.add_argument("packet", metavar="FILE.zip")
+    q.add_argument("--frame", required=True, type=int, metavar="ID")
+    q.add_argument("--decision", required=True,
+                   help="agree, needs-change, signed-off, or none to withdraw")
+
+    q = action("return", cmd_return, "write FILE-returned.zip from the reviewed packet")
+    q.add_argument("packet", metavar="FILE.zip")
+    q.add_argument("--out", metavar="FILE", help="default: FILE-returned.zip beside FILE.zip")
+
+    q = action("merge", cmd_merge, "merge a returned packet into the project (three-way)")
+    q.add_argument("project", metavar="PROJECT")
+    q.add_argument("returned", metavar="RETURNED.zip")
+    q.add_argument("--json", action="store_true", help="print the merge report as JSON")
+
+
+def _print_json(data: Any) -> None:
+    json.dump(data, sys.stdout, indent=2, default=str)
+    sys.stdout.write("\n")
+
+
+def _open_project(folder: str, author: str | None, write: bool):  # -> Project
+    """Open for editing when possible; ``write`` makes read-only (another process holds the
+    project) an error."""
+    from app.jobs import open_project
+
+    project = open_project(folder, author=author)
+    if write and project.read_only:
+        reason = project.read_only_reason
+        project.close()
+        raise ProjectLocked(f"{folder}: cannot change the project: it is {reason}")
+    return project
+
+
+def _progress(quiet: bool):  # -> Progress
+    from app.progress import Progress
+
+    start = time.monotonic()
+
+    def show(done: int, total: int, label: str) -> None:
+        if not quiet and time.monotonic() - start > 1.0 and done == total:
+            print(f"{label}: {done}/{total}", file=sys.stderr, flush=True)
+
+    return Progress(show)
+
+
+def cmd_export(args: argparse.Namespace) -> int:
+    from app.review.packet import export_packet, select_frames
+
+    with _open_project(args.project, args.author, write=False) as project:
+        frames = select_frames(project, args.frames)
+        stats = export_packet(project, args.out, frames, images=args.images,
+                              reviewer=args.reviewer, progress=_progress(args.quiet))
+    if stats["missing_images"]:
+        print(f"posewright: warning: {stats['missing_images']} frames went without their "
+              "image (missing or unreadable)", file=sys.stderr)
+    if stats["unplaced_heads"]:
+        print(f"posewright: warning: {stats['unplaced_heads']} people have no labelled joint, "
+              "so their heads could not be blurred", file=sys.stderr)
+    print(f"wrote {args.out}: {stats['frames']} frames, {stats['people']} people, "
+          f"{stats['images']} images ({args.images})")
+    return 0
+
+
+def cmd_show(args: argparse.Namespace) -> int:
+    from app.review.packet import read_packet
+
+    packet = read_packet(args.packet)
+    info = {
+        "packet_id": packet.packet_id, "project_id": packet.project_id,
+        "returned": packet.returned is not None,
+        "exported_by": packet.exported_by, "reviewer": packet.reviewer,
+        "images": packet.images, "frames": [f.id for f in packet.frames],
+        "people": sum(len(c.people) for c in packet.base.values()),
+    }
+    if packet.returned is not None:
+        info["returned_by"] = packet.returned.reviewer
+        info["decisions"] = {str(d.frame_id): d.decision
+                             for d in packet.returned.decisions.values()}
+    if args.json:
+        _print_json(info)
+    else:
+        for key, value in info.items():
+            print(f"{key:>12}: {value}")
+    return 0
+
+
+def cmd_decide(args: argparse.Namespace) -> int:
+    from app.review.review import open_packet, set_decision
+
+    decision = None if args.decision.strip().lower() == "none" else args.decision
+    with open_packet(args.packet, reviewer=args.author) as project:
+        made = set_decision(project, args.frame, decision)
+    print(f"frame {args.frame}: " + (made.decision if made else "decision withdrawn"))
+    return 0
+
+
+def cmd_return(args: argparse.Namespace) -> int:
+    from app.review.review import open_packet, return_packet
+
+    with open_packet(args.packet, reviewer=args.author) as project:
+        out = return_packet(project, args.out)
+    print(f"wrote {out}; send it back to be merged")
+    return 0
+
+
+def cmd_merge(args: argparse.Namespace) -> int:
+    from app.review.merge import merge_packet
+
+    with _open_project(args.project, args.author, write=True) as project:
+        report = merge_packet(project, args.returned, progress=_progress(args.quiet))
+    if args.json:
+        _print_json(report.to_dict())
+        return 0
+    if report.already_merged:
+        when = time.strftime("%Y-%m-%d %H:%M", time.localtime(report.merged_at or 0))
+        print(f"{args.returned}: already merged on {when}; nothing changed")
+        return 0
+    print(f"merged {args.returned} from {report.reviewer}: {report.frames} frames, "
+          f"{report.joints_taken} joints taken, {report.people_added} people added, "
+          f"{report.people_deleted} deleted, {report.notes_added} notes, "
+          f"{len(report.conflicts)} conflicts")
+    for c in report.conflicts:
+        what = c["kind"] if c["kind"] != "joints" else "joints " + ", ".join(map(str,
+                                                                                c["joints"]))
+        print(f"  conflict: frame {c['frame']}, person {c['person']}: {what}")
+    if report.disputed:
+        print("  disputed: frames " + ", ".join(map(str, report.disputed)))
+    if report.signed_off:
+        print("  signed off: frames " + ", ".join(map(str, report.signed_off)))
+    if not report.base_checked:
+        print("posewright: warning: the packet was not recorded when it was sent, so its base "
+              "labels could not be checked", file=sys.stderr)
+    return 0
+
+
+def cmd_compare(args: argparse.Namespace) -> int:
+    from app.model.skeleton import load_skeleton
+    from app.review.compare import compare, load_labels, mark_disputed, write_csv
+
+    threshold = args.dispute_below
+    if threshold is not None and not 0 <= threshold <= 1:
+        raise BadInput(f"{threshold} is not an OKS in [0, 1]", where="--dispute-below")
+    if not 0 <= args.match_oks <= 1:
+        raise BadInput(f"{args.match_oks} is not an OKS in [0, 1]", where="--match-oks")
+    if threshold is not None and not Path(args.a).is_dir():
+        raise BadInput("--dispute-below marks frames of A, which must be a project",
+                       where=args.a)
+    skeleton = load_skeleton(args.skeleton) if args.skeleton else None
+    a = load_labels(args.a, skeleton)
+    b = load_labels(args.b, skeleton)
+    result = compare(a, b, skeleton or a.skeleton, match_oks=args.match_oks)
+    if args.csv:
+        write_csv(result, args.csv)
+    marked: list[int] = []
+    if threshold is not None:
+        with _open_project(args.a, args.author, write=True) as project:
+            marked = mark_disputed(project, result, threshold, Path(args.b).name)
+    if args.json:
+        data = result.to_dict()
+        data["marked_disputed"] = marked
+        _print_json(data)
+        return 0
+    _print_comparison(result, threshold, marked)
+    return 0
+
+
+def _fmt(x: float, spec: str = ".3f") -> str:
+    return "-" if math.isnan(x) else format(x, spec)
+
+
+def _print_comparison(result: Any, threshold: float | None, marked: list[int]) -> None:
+    print(f"A: {result.a}\nB: {result.b}")
+    print(f"images compared: {len(result.frames)} (only in A: {len(result.only_a)}, "
+          f"only in B: {len(result.only_b)}); mean OKS {_fmt(result.mean_oks)}")
+    print(f"{'joint':<16}{'compared':>9}{'one side':>9}{'agree':>8}{'mean error':>11}"
+          f"{'mean KS':>9}")
+    for row in result.joints:
+        print(f"{row.name:<16}{row.compared:>9}{row.one_side:>9}{_fmt(row.agreement, '.1%'):>8}"
+              f"{_fmt(row.mean_error):>11}{_fmt(row.mean_similarity):>9}")
+    worst = sorted(result.frames, key=lambda f: f.mean_oks)[:10]
+    print("lowest mean OKS:")
+    for f in worst:
+        print(f"  {f.mean_oks:.3f}  {f.file_name:<28} {len(f.pairs)} pairs, "
+              f"{len(f.unpaired_a)}+{len(f.unpaired_b)} unpaired, "
+              f"{len(f.disagreements)} joints disagree")
+    if threshold is not None:
+        print(f"marked {len(marked)} frames of A disputed (mean OKS below {threshold:g})")

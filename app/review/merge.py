@@ -1,0 +1,468 @@
+"""Merging a returned review packet: three ways per joint, base against ours now against theirs.
+
+For each frame of the packet, each person and each joint, the *base* (the labels the packet
+was made from), *ours* (the project now) and *theirs* (the reviewer's final labels) are
+compared by their label: position and visibility of a labelled joint, or "unlabeled" (a
+position remembered for an unlabeled joint, a score or a provenance is not a label).
+
+- Only theirs changed the joint: theirs is taken (its position, visibility, score and
+  provenance, so the joint is credited to the reviewer).
+- Only ours changed it, or both changed it alike: ours stays.
+- Both changed it, differently: a **conflict**. Ours stays; the reviewer's version of the
+  person is kept as an *alternative* (see :mod:`app.review.settle`) and the frame becomes
+  disputed.
+- A person deleted on one side and changed on the other is a conflict of the whole person
+  (``deleted-here``: we deleted, they edited; ``deleted-there``: the reverse). Deleted on one
+  side and untouched on the other: the deletion is taken.
+- People the reviewer added come over with fresh ids of the project; notes the reviewer added
+  come over with their author and time. Notes are never removed.
+
+The reviewer's decision on a frame: ``needs-change`` makes it disputed; ``signed-off`` signs
+it off when nothing conflicts and the frame has not changed here since the packet was made
+(so what is signed off is exactly what the reviewer saw); ``agree`` on a disputed frame, under
+the same two conditions, settles it as corrected, and changes no other state.
+
+Every change is an ordinary edit through :meth:`Project.apply`, credited to the reviewer:
+per frame one step for the joints and deletions, one per added person, one per note and one
+for the state, each undoable. A last transaction records the alternatives and the packet
+(with its SHA-256) and writes one ledger entry for the merge, so merging the same returned
+packet again changes nothing. A merge cut short (a crash between frames) is finished by
+merging again: frames already merged find both sides alike, notes and people already brought
+over are recognised.
+"""
+
+from __future__ import annotations
+
+import json
+import logging
+import time
+from collections.abc import Mapping, Sequence
+from dataclasses import asdict, dataclass, field, replace
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from app.errors import BadInput, EditRefused, NotFound
+from app.model.edits import AddNote, Change, EditContext, NewPerson, Restore, SetFrameState
+from app.model.labels import FrameLabels, FrameState, Note, Person
+from app.progress import Progress
+from app.review import safezip
+from app.review.packet import FrameContent, Packet, read_packet
+from app.store import Project
+
+log = logging.getLogger(__name__)
+
+#: Two coordinates closer than this (pixels) are the same label.
+TOLERANCE = 1e-6
+
+__all__ = [
+    "Conflict", "FramePlan", "MergeReport", "MergeReview", "ReviewNote", "ReviewPerson",
+    "merge_packet", "plan_frame", "same_joints",
+]
+
+
+def same_joints(a: np.ndarray, b: np.ndarray, tolerance: float = TOLERANCE) -> np.ndarray:
+    """Which joints carry the same label in two versions of a person.
+
+    Parameters
+    ----------
+    a, b
+        ``(K, 3)`` ``x, y, v``.
+    tolerance
+        Largest coordinate difference, in pixels, still counted the same.
+
+    Returns
+    -------
+    numpy.ndarray
+        ``(K,)`` bool: same visibility, and for labelled joints the same position.
+
+    Notes
+    -----
+    An unlabeled joint (``v = 0``) equals any other unlabeled joint whatever position it
+    remembers: training and export ignore that position.
+
+    Examples
+    --------
+    >>> a = np.array([[1.0, 2.0, 2], [5.0, 5.0, 0], [3.0, 3.0, 1]])
+    >>> b = np.array([[1.0, 2.0, 2], [9.0, 9.0, 0], [3.0, 3.0, 2]])
+    >>> same_joints(a, b)
+    array([ True,  True, False])
+    """
+    va, vb = a[:, 2], b[:, 2]
+    with np.errstate(invalid="ignore"):
+        near = (np.abs(a[:, :2] - b[:, :2]) <= tolerance).all(axis=1)
+    return (va == vb) & ((va == 0) | near)
+
+
+# ---------------------------------------------------------------------- the plan (pure)
+
+@dataclass(frozen=True)
+class Conflict:
+    """A person both sides changed differently (``joints``) or one deleted (``deleted-here``,
+    ``deleted-there``). ``theirs`` is the reviewer's version to keep as the alternative (None
+    when they deleted the person); for ``joints`` it is ours with the reviewer's conflicting
+    joints, so that it differs from ours exactly on ``joints``."""
+
+    frame_id: int
+    person_id: int
+    kind: str
+    joints: tuple[int, ...]
+    base: Person | None
+    theirs: Person | None
+
+
+@dataclass
+class FramePlan:
+    """What merging one frame does (see :func:`plan_frame`)."""
+
+    frame_id: int
+    changes: list[Change] = field(default_factory=list)
+    new_people: list[Person] = field(default_factory=list)
+    notes: list[Note] = field(default_factory=list)
+    conflicts: list[Conflict] = field(default_factory=list)
+    state: FrameState | None = None
+    was_disputed: bool = False
+    changed_here: bool = False
+    joints_taken: int = 0
+    people_deleted: int = 0
+
+
+def plan_frame(base: FrameContent, ours: FrameLabels, theirs: FrameContent,
+               decision: str | None = None) -> FramePlan:
+    """The three-way merge of one frame, as changes to make to ``ours``.
+
+    Parameters
+    ----------
+    base
+        The frame's people and notes when the packet was made.
+    ours
+        The frame in the project now.
+    theirs
+        The frame as the reviewer returned it.
+    decision
+        The reviewer's decision on the frame, if any.
+
+    Returns
+    -------
+    FramePlan
+        ``changes`` (joint changes and deletions, to apply as one step), ``new_people`` (the
+        reviewer's, with the reviewer's ids; the store gives fresh ones), ``notes`` to add,
+        ``conflicts`` and the frame ``state`` to set (None: leave it).
+
+    Notes
+    -----
+    Per joint, with ``S(a, b)`` the label equality of :func:`same_joints`: take theirs where
+    ``S(ours, base) and not S(theirs, base)``; conflict where none of ``S(ours, base)``,
+    ``S(theirs, base)``, ``S(ours, theirs)`` holds; keep ours otherwise. See the module
+    docstring for people and notes (common practice of three-way merges, no source).
+
+    Examples
+    --------
+    >>> from app.model.skeleton import coco_body
+    >>> kp = np.zeros((17, 3)); kp[0] = (10, 10, 2)
+    >>> p = Person(1, kp, np.full(17, np.nan), ("import",) * 17)
+    >>> moved = p.with_joint(0, [12.0, 10.0, 2, None, "bea"])
+    >>> base, theirs = FrameContent(5, {1: p}, {}), FrameContent(5, {1: moved}, {})
+    >>> plan = plan_frame(base, FrameLabels(5, coco_body(), {1: p}), theirs)
+    >>> [c.describe() for c in plan.changes], plan.conflicts
+    (['person:1/joint:0'], [])
+    """
+    plan = FramePlan(ours.frame_id, was_disputed=ours.state is FrameState.DISPUTED)
+    base_ids = set(base.people)
+    for pid in sorted(base_ids | set(theirs.people)):
+        b = base.people.get(pid)
+        o = ours.people.get(pid)
+        t = theirs.people.get(pid)
+        if b is None:
+            if t is not None and not _already_added(t, ours, base_ids):
+                plan.new_people.append(t)
+            continue
+        if o is not None and (o.keypoints.shape != b.keypoints.shape
+                              or not same_joints(o.keypoints, b.keypoints).all()):
+            plan.changed_here = True
+        if o is None and t is None:
+            continue
+        if o is None:
+            if t is not None and not same_joints(t.keypoints, b.keypoints).all():
+                plan.conflicts.append(Conflict(ours.frame_id, pid, "deleted-here",
+                                               _changed(t, b), b, t))
+            continue
+        if t is None:
+            if same_joints(o.keypoints, b.keypoints).all():
+                plan.changes.append(Change(("person", pid), o.to_value(), None))
+                plan.people_deleted += 1
+            else:
+                plan.conflicts.append(Conflict(ours.frame_id, pid, "deleted-there",
+                                               _changed(o, b), b, None))
+            continue
+        _plan_person(plan, b, o, t)
+    plan.changed_here |= any(pid not in ours.people for pid in base_ids)
+    plan.changed_here |= any(pid not in base_ids for pid in ours.people)
+    seen = {(n.author, n.time, n.text) for n in ours.notes.values()}
+    for nid, note in sorted(theirs.notes.items()):
+        if nid not in base.notes and (note.author, note.time, note.text) not in seen:
+            plan.notes.append(note)
+    if plan.conflicts or decision == "needs-change":
+        plan.state = FrameState.DISPUTED
+    elif decision == "signed-off" and not plan.changed_here:
+        plan.state = FrameState.SIGNED_OFF
+    elif decision == "agree" and plan.was_disputed and not plan.changed_here:
+        plan.state = FrameState.CORRECTED
+    if plan.state is ours.state:
+        plan.state = None
+    return plan
+
+
+def _plan_person(plan: FramePlan, b: Person, o: Person, t: Person) -> None:
+    ob = same_joints(o.keypoints, b.keypoints)
+    tb = same_joints(t.keypoints, b.keypoints)
+    ot = same_joints(o.keypoints, t.keypoints)
+    take = ob & ~tb
+    clash = ~ob & ~tb & ~ot
+    merged = o
+    for j in np.flatnonzero(take).tolist():
+        after = t.joint_value(j)
+        plan.changes.append(Change(("joint", o.id, j), o.joint_value(j), after))
+        merged = merged.with_joint(j, after)
+    plan.joints_taken += int(take.sum())
+    if clash.any():
+        alternative = merged
+        for j in np.flatnonzero(clash).tolist():
+            alternative = alternative.with_joint(j, t.joint_value(j))
+        plan.conflicts.append(Conflict(plan.frame_id, o.id, "joints",
+                                       tuple(np.flatnonzero(clash).tolist()), b, alternative))
+
+
+def _changed(p: Person, b: Person) -> tuple[int, ...]:
+    return tuple(np.flatnonzero(~same_joints(p.keypoints, b.keypoints)).tolist())
+
+
+def _already_added(t: Person, ours: FrameLabels, base_ids: set[int]) -> bool:
+    """Whether ours already has a person, new since the base, labelled exactly like ``t``
+    (brought over by an earlier, interrupted merge of the same packet)."""
+    return any(pid not in base_ids and p.keypoints.shape == t.keypoints.shape
+               and same_joints(p.keypoints, t.keypoints).all()
+               for pid, p in ours.people.items())
+
+
+# ---------------------------------------------------------------------- edits of a merge
+
+@dataclass(frozen=True)
+class MergeReview(Restore):
+    """The reviewer's joint changes and deletions in one frame, applied verbatim (refused if
+    the frame moved on since the merge was planned)."""
+
+
+@dataclass(frozen=True)
+class ReviewPerson(NewPerson):
+    """A person the reviewer added, brought over whole (joints, scores, provenance); the store
+    gives the id."""
+
+    value: Mapping[str, Any] | None = None
+    label: str = ""
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        if self.person_id is None:
+            raise EditRefused("a new person needs an id (the store assigns one)")
+        if self.person_id in labels.people:
+            raise EditRefused(f"person {self.person_id} already exists")
+        if self.value is None:
+            raise EditRefused("no person to add")
+        person = Person.from_value(self.person_id, self.value)
+        if person.keypoints.shape != (labels.num_joints, 3):
+            raise EditRefused(f"keypoints must be ({labels.num_joints}, 3)")
+        return [Change(("person", person.id), None, person.to_value())]
+
+    def summary(self) -> str:
+        return self.label or f"new person {self.person_id}"
+
+
+@dataclass(frozen=True)
+class ReviewNote(AddNote):
+    """A note the reviewer wrote, brought over with its own author and time."""
+
+    note_author: str = ""
+    note_time: float = 0.0
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        changes = super().plan(labels, ctx)
+        value = dict(changes[0].after)
+        value["author"] = self.note_author or ctx.author
+        value["time"] = self.note_time or ctx.time
+        return [replace(changes[0], after=value)]
+
+    def summary(self) -> str:
+        return f"add note by {self.note_author} from review"
+
+
+# ---------------------------------------------------------------------- the whole merge
+
+@dataclass
+class MergeReport:
+    """What :func:`merge_packet` did."""
+
+    packet_id: str
+    reviewer: str
+    already_merged: bool = False
+    base_checked: bool = False
+    frames: int = 0
+    joints_taken: int = 0
+    people_added: int = 0
+    people_deleted: int = 0
+    notes_added: int = 0
+    conflicts: list[dict[str, Any]] = field(default_factory=list)
+    disputed: list[int] = field(default_factory=list)
+    signed_off: list[int] = field(default_factory=list)
+    changed_here: list[int] = field(default_factory=list)
+    merged_at: float | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        return asdict(self)
+
+
+def merge_packet(project: Project, path: str | Path,
+                 limits: safezip.Limits = safezip.DEFAULT_LIMITS,
+                 progress: Progress | None = None) -> MergeReport:
+    """Merge a returned review packet into ``project``.
+
+    Parameters
+    ----------
+    project
+        The project the packet was made from, open for editing.
+    path
+        The returned packet (``FILE-returned.zip``).
+    limits
+        Bounds on the archive (:class:`app.review.safezip.Limits`).
+    progress
+        Progress and cancel (a cancel between frames leaves the frames merged so far; merging
+        again finishes the job).
+
+    Returns
+    -------
+    MergeReport
+        Counts, conflicts, and ``already_merged`` when this exact return was merged before
+        (then nothing changed).
+
+    Raises
+    ------
+    BadInput
+        Before anything changes: a packet that is damaged, altered, unsafe, not returned,
+        from another project or skeleton, or whose base differs from what was sent.
+    """
+    packet = read_packet(path, returned=True, limits=limits)
+    assert packet.returned is not None
+    where = str(path)
+    if packet.project_id != project.project_id:
+        raise BadInput(f"the packet belongs to another project ({packet.project_id}, this "
+                       f"one is {project.project_id})", where=where,
+                       hint="merge it into the project it was exported from")
+    if packet.skeleton.joints != project.skeleton.joints:
+        raise BadInput("the packet's skeleton differs from the project's", where=where)
+    reviewer = packet.returned.reviewer
+    report = MergeReport(packet.packet_id, reviewer, frames=len(packet.frames))
+    done = project.query("SELECT time FROM packets WHERE packet_id = ? AND direction = 'merged' "
+                         "AND sha256 = ?", (packet.packet_id, packet.sha256))
+    if done:
+        report.already_merged, report.merged_at = True, float(done[0][0])
+        return report
+    sent = project.query("SELECT sha256 FROM packets WHERE packet_id = ? AND "
+                         "direction = 'exported'", (packet.packet_id,))
+    if sent and sent[0][0] != packet.base_sha256:
+        raise BadInput("the base labels differ from the ones this project sent",
+                       where=f"{where}: member 'labels.json'",
+                       hint="the packet was altered; ask the reviewer for it again")
+    report.base_checked = bool(sent)
+    if not sent:
+        log.warning("packet %s was not recorded when it was sent; its base is not checked",
+                    packet.packet_id)
+    plans = []
+    for frame in packet.frames:
+        try:
+            ours = project.labels(frame.id)
+        except NotFound:
+            raise BadInput(f"frame {frame.id} ({frame.file_name}) is not in the project",
+                           where=where) from None
+        decision = packet.returned.decisions.get(frame.id)
+        plans.append(plan_frame(packet.base[frame.id], ours, packet.returned.final[frame.id],
+                                decision.decision if decision else None))
+    progress = progress or Progress()
+    for n, plan in enumerate(plans):
+        progress.step(n, len(plans), "merging frames")
+        _apply_plan(project, packet, plan, report)
+    progress.step(len(plans), len(plans), "merging frames")
+    _record(project, packet, plans, report)
+    return report
+
+
+def _apply_plan(project: Project, packet: Packet, plan: FramePlan,
+                report: MergeReport) -> None:
+    reviewer = packet.returned.reviewer if packet.returned else ""
+    fid = plan.frame_id
+    if plan.changes:
+        project.apply(MergeReview(fid, tuple(plan.changes),
+                                  label=f"take {reviewer}'s review: {plan.joints_taken} joints, "
+                                        f"{plan.people_deleted} people deleted"),
+                      author=reviewer)
+    ids: dict[int, int] = {}
+    for person in plan.new_people:
+        applied = project.apply(ReviewPerson(fid, value=person.to_value(),
+                                             label=f"new person from {reviewer}'s review"),
+                                author=reviewer)
+        assert isinstance(applied.edit, ReviewPerson) and applied.edit.person_id is not None
+        ids[person.id] = applied.edit.person_id
+    present = {p.id for p in project.people(fid)}
+    for note in plan.notes:
+        pid = ids.get(note.person_id, note.person_id) if note.person_id is not None else None
+        text = note.text
+        if pid is not None and pid not in present:
+            text, pid = f"(about person {note.person_id}) {text}", None
+        project.apply(ReviewNote(fid, text, person_id=pid, note_author=note.author,
+                                 note_time=note.time), author=note.author or reviewer)
+    if plan.state is not None:
+        project.apply(SetFrameState(fid, plan.state), author=reviewer)
+    report.joints_taken += plan.joints_taken
+    report.people_deleted += plan.people_deleted
+    report.people_added += len(plan.new_people)
+    report.notes_added += len(plan.notes)
+    if plan.changed_here:
+        report.changed_here.append(fid)
+    if plan.state is FrameState.DISPUTED:
+        report.disputed.append(fid)
+    if plan.state is FrameState.SIGNED_OFF:
+        report.signed_off.append(fid)
+    report.conflicts += [{"frame": c.frame_id, "person": c.person_id, "kind": c.kind,
+                          "joints": list(c.joints)} for c in plan.conflicts]
+
+
+def _record(project: Project, packet: Packet, plans: Sequence[FramePlan],
+            report: MergeReport) -> None:
+    assert packet.returned is not None
+    now = time.time()
+    report.merged_at = now
+    summary = (f"merge review packet from {packet.returned.reviewer}: {report.frames} frames, "
+               f"{report.joints_taken} joints taken, {len(report.conflicts)} conflicts")
+    with project.bulk("MergePacket", summary, f"packet:{packet.packet_id}") as b:
+        for plan in plans:
+            if plan.conflicts and not plan.was_disputed:
+                b.execute("UPDATE alternatives SET retired = ? WHERE frame_id = ? AND "
+                          "retired IS NULL AND packet_id != ?",
+                          (now, plan.frame_id, packet.packet_id))
+            for c in plan.conflicts:
+                b.execute(
+                    "INSERT OR REPLACE INTO alternatives (frame_id, person_id, packet_id, "
+                    "reviewer, created, kind, base, theirs, kept, retired) "
+                    "VALUES (?, ?, ?, ?, ?, ?, ?, ?, '[]', NULL)",
+                    (c.frame_id, c.person_id, packet.packet_id, packet.returned.reviewer, now,
+                     c.kind, _value(c.base), _value(c.theirs)))
+        b.execute("INSERT INTO packets (packet_id, direction, sha256, reviewer, time, frames, "
+                  "report, audit) VALUES (?, 'merged', ?, ?, ?, ?, ?, ?)",
+                  (packet.packet_id, packet.sha256, packet.returned.reviewer, now,
+                   json.dumps([f.id for f in packet.frames]), json.dumps(report.to_dict()),
+                   json.dumps(list(packet.returned.ledger))))
+        b.stats.update({"frames": report.frames, "joints taken": report.joints_taken,
+                        "conflicts": len(report.conflicts)})
+
+
+def _value(person: Person | None) -> str | None:
+    return None if person is None else json.dumps(person.to_value())

@@ -1,0 +1,685 @@
+"""Review packets: our own zip format for sending frames to a colleague and getting them back.
+
+A packet is a zip archive holding:
+
+``manifest.json``
+    ``{"format": "posewright-review-packet", "version": 1, "packet_id", "project_id",
+    "skeleton", "created", "exported_by", "reviewer", "images": "none" | "full" |
+    "blurred-heads", "frames": [{"id", "file_name", "width", "height", "state", "base_seq",
+    "image"}], "members": {name: sha256}}``. ``base_seq`` is the newest ledger entry touching
+    the frame when the packet was made (0 when none); ``image`` is ``images/<id>.<ext>`` or
+    null. ``members`` lists every other member with its SHA-256; a member not listed is refused.
+``labels.json``
+    The labels at the base: ``{"frames": [{"id", "people": [{"id", ...person value}],
+    "notes": [{"id", "author", "time", "text", "person"}]}]}`` (person values as
+    :meth:`app.model.labels.Person.to_value` writes them).
+``images/<id>.<ext>``
+    Optional: the original image file (``full``) or a PNG with every head blurred
+    (``blurred-heads``, see :mod:`app.review.blur`).
+
+A returned packet (``FILE-returned.zip``) carries the same manifest plus a ``returned``
+section (``reviewer``, ``time``, ``decisions``: ``[{"frame", "decision", "author", "time"}]``,
+``base_sha256``), the same ``labels.json``, no images, and ``returned.json``: the reviewer's
+final labels ``{"frames": [{"id", "state", "people", "notes"}], "ledger": [rows]}``.
+
+The SHA-256 sums find damage and careless edits; they are not a signature (anyone can
+recompute them). The base labels are also checked against the sum the project recorded when
+it exported the packet, when it could record one.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import logging
+import math
+import os
+import tempfile
+import time
+import uuid
+import zipfile
+from collections.abc import Iterator, Mapping, Sequence
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Literal
+
+import cv2
+import numpy as np
+from pydantic import (
+    BaseModel,
+    ConfigDict,
+    Field,
+    StrictFloat,
+    StrictInt,
+    StrictStr,
+    TypeAdapter,
+    ValidationError,
+)
+
+from app.errors import BadInput, NotFound
+from app.formats.images import IMAGE_SUFFIXES, MAX_SIDE, decode_image
+from app.model.labels import Frame, FrameState, Note, Person
+from app.model.skeleton import Skeleton, skeleton_from_dict
+from app.progress import Progress
+from app.review import safezip
+from app.review.blur import blur_heads
+from app.store import Project
+
+log = logging.getLogger(__name__)
+
+FORMAT = "posewright-review-packet"
+VERSION = 1
+IMAGE_MODES = ("none", "full", "blurred-heads")
+DECISIONS = ("agree", "needs-change", "signed-off")
+
+MANIFEST = "manifest.json"
+LABELS = "labels.json"
+RETURNED = "returned.json"
+
+#: Largest manifest and largest JSON member read into memory.
+MAX_MANIFEST = 64 << 20
+MAX_JSON = 512 << 20
+
+Number = StrictInt | StrictFloat
+ImageMode = Literal["none", "full", "blurred-heads"]
+Decision = Literal["agree", "needs-change", "signed-off"]
+
+
+# ---------------------------------------------------------------------- what a packet holds
+
+@dataclass(frozen=True)
+class PacketFrame:
+    """One frame as the manifest lists it."""
+
+    id: int
+    file_name: str
+    width: int
+    height: int
+    state: FrameState
+    base_seq: int
+    image: str | None
+
+
+@dataclass(frozen=True)
+class FrameContent:
+    """One frame's people and notes in a packet (at the base, or as the reviewer left them)."""
+
+    frame_id: int
+    people: Mapping[int, Person]
+    notes: Mapping[int, Note]
+    state: FrameState | None = None
+
+
+@dataclass(frozen=True)
+class FrameDecision:
+    """The reviewer's verdict on a frame: agree, needs-change or signed-off."""
+
+    frame_id: int
+    decision: str
+    author: str
+    time: float
+
+
+@dataclass(frozen=True)
+class ReturnedPart:
+    """What a returned packet adds: who returned it, their decisions and final labels."""
+
+    reviewer: str
+    time: float
+    decisions: Mapping[int, FrameDecision]
+    final: Mapping[int, FrameContent]
+    ledger: Sequence[Mapping[str, Any]]
+
+
+@dataclass(frozen=True)
+class Packet:
+    """A packet read from disk, every member checked (images are checked, not loaded)."""
+
+    path: Path
+    packet_id: str
+    project_id: str
+    skeleton: Skeleton
+    images: str
+    reviewer: str | None
+    exported_by: str
+    created: float
+    frames: Sequence[PacketFrame]
+    base: Mapping[int, FrameContent]
+    members: Mapping[str, str]
+    manifest: Mapping[str, Any]
+    base_json: bytes = field(repr=False)
+    #: What a merge remembers to merge a return once: for a returned packet the SHA-256 of
+    #: ``returned.json`` and the decisions (so returning an unchanged review again gives the
+    #: same sum), otherwise of ``manifest.json``.
+    sha256: str = ""
+    returned: ReturnedPart | None = None
+
+    @property
+    def base_sha256(self) -> str:
+        return hashlib.sha256(self.base_json).hexdigest()
+
+
+def parse_decision(text: str) -> str:
+    """A decision from a relaxed spelling ("signed off", "needs_change").
+
+    Examples
+    --------
+    >>> parse_decision("Signed off")
+    'signed-off'
+    """
+    norm = text.strip().lower().replace("_", "-").replace(" ", "-")
+    if norm not in DECISIONS:
+        raise BadInput(f"unknown decision {text!r}; one of " + ", ".join(DECISIONS),
+                       where="decision")
+    return norm
+
+
+# ---------------------------------------------------------------------- validation models
+
+class _Strict(BaseModel):
+    model_config = ConfigDict(extra="forbid")
+
+
+class _FrameModel(_Strict):
+    id: StrictInt
+    file_name: StrictStr = Field(min_length=1)
+    width: StrictInt = Field(ge=0, le=MAX_SIDE)
+    height: StrictInt = Field(ge=0, le=MAX_SIDE)
+    state: StrictStr
+    base_seq: StrictInt = Field(ge=0)
+    image: StrictStr | None
+
+
+class _DecisionModel(_Strict):
+    frame: StrictInt
+    decision: Decision
+    author: StrictStr
+    time: Number
+
+
+class _ReturnedModel(_Strict):
+    reviewer: StrictStr
+    time: Number
+    decisions: list[_DecisionModel]
+    base_sha256: StrictStr = Field(pattern=r"^[0-9a-f]{64}$")
+
+
+class _ManifestModel(_Strict):
+    format: Literal["posewright-review-packet"]
+    version: StrictInt
+    packet_id: StrictStr = Field(min_length=1, max_length=64)
+    project_id: StrictStr = Field(min_length=1, max_length=64)
+    skeleton: dict[str, Any]
+    created: Number
+    exported_by: StrictStr
+    reviewer: StrictStr | None
+    images: ImageMode
+    frames: list[_FrameModel] = Field(min_length=1)
+    members: dict[StrictStr, StrictStr]
+    returned: _ReturnedModel | None = None
+
+
+class _PersonModel(_Strict):
+    id: StrictInt
+    keypoints: list[tuple[Number | None, Number | None, StrictInt]]
+    scores: list[Number | None]
+    sources: list[StrictStr]
+    score: Number | None = None
+    extra: dict[str, Any] = Field(default_factory=dict)
+
+
+class _NoteModel(_Strict):
+    id: StrictInt
+    author: StrictStr
+    time: Number
+    text: StrictStr
+    person: StrictInt | None = None
+
+
+class _FrameLabelsModel(_Strict):
+    id: StrictInt
+    people: list[_PersonModel]
+    notes: list[_NoteModel]
+    state: StrictStr | None = None
+
+
+class _LedgerRowModel(_Strict):
+    seq: StrictInt
+    group_id: StrictInt
+    kind: StrictStr
+    action: StrictStr
+    summary: StrictStr
+    author: StrictStr
+    time: Number
+    frame_id: StrictInt | None
+    target: StrictStr
+    before: Any = None
+    after: Any = None
+    reverts: StrictInt | None = None
+
+
+class _LabelsModel(_Strict):
+    frames: list[_FrameLabelsModel]
+
+
+class _ReturnedLabelsModel(_Strict):
+    frames: list[_FrameLabelsModel]
+    ledger: list[_LedgerRowModel]
+
+
+_MANIFEST = TypeAdapter(_ManifestModel)
+_LABELS = TypeAdapter(_LabelsModel)
+_RETURNED_LABELS = TypeAdapter(_ReturnedLabelsModel)
+
+
+def _no_constant(name: str) -> Any:
+    raise ValueError(f"{name} is not a JSON number")
+
+
+def _finite(text: str) -> float:
+    value = float(text)
+    if not math.isfinite(value):
+        raise ValueError(f"{text} is too large a number")
+    return value
+
+
+def _parse_json(raw: bytes, where: str) -> Any:
+    """JSON with every number finite (no NaN, Infinity or 1e999), nesting within Python's
+    recursion limit."""
+    try:
+        return json.loads(raw.decode("utf-8"), parse_constant=_no_constant,
+                          parse_float=_finite)
+    except (UnicodeDecodeError, ValueError) as exc:
+        raise BadInput(f"not valid JSON ({exc})", where=where) from None
+    except RecursionError:
+        raise BadInput("the JSON is nested too deeply", where=where) from None
+
+
+def _validate(adapter: TypeAdapter[Any], data: Any, where: str) -> Any:
+    try:
+        return adapter.validate_python(data)
+    except ValidationError as exc:
+        err = exc.errors(include_url=False)[0]
+        loc = ".".join(str(p) for p in err["loc"]) or "record"
+        raise BadInput(f"field {loc}: {err['msg'][:1].lower()}{err['msg'][1:]}",
+                       where=where) from None
+
+
+# ---------------------------------------------------------------------- reading
+
+def read_packet(path: str | Path, returned: bool | None = None,
+                limits: safezip.Limits = safezip.DEFAULT_LIMITS) -> Packet:
+    """Read and check a packet; nothing is extracted or written.
+
+    Parameters
+    ----------
+    path
+        The zip file.
+    returned
+        ``True`` to require a returned packet, ``False`` to require one not yet returned,
+        ``None`` to accept either.
+    limits
+        Bounds on the archive's size (:class:`app.review.safezip.Limits`).
+
+    Returns
+    -------
+    Packet
+        The manifest, the base labels and (for a return) the reviewer's part, all checked.
+
+    Raises
+    ------
+    BadInput
+        One line naming the zip and the member for anything wrong: see
+        :mod:`app.review.safezip` for the archive rules; besides, a missing or unknown member,
+        a SHA-256 that does not match, a manifest or labels file of the wrong shape, a person
+        whose joints do not fit the skeleton.
+    """
+    path = Path(path)
+    where = str(path)
+    with safezip.open_archive(path) as archive:
+        entries = safezip.check_archive(archive, where, limits)
+        if MANIFEST not in entries:
+            raise BadInput(f"no {MANIFEST}; not a review packet", where=where)
+        raw_manifest = safezip.read_member(archive, entries[MANIFEST], where,
+                                           limit=MAX_MANIFEST)
+        mwhere = f"{where}: member {MANIFEST!r}"
+        data = _parse_json(raw_manifest, mwhere)
+        if isinstance(data, dict) and data.get("format") == FORMAT \
+                and data.get("version") != VERSION:
+            raise BadInput(f"packet version {data.get('version')!r}; this Posewright reads "
+                           f"version {VERSION}", where=mwhere, hint="update Posewright")
+        manifest = _validate(_MANIFEST, data, mwhere)
+        skeleton = skeleton_from_dict(manifest.skeleton, where=mwhere + ": skeleton")
+        frames = _frames(manifest, mwhere)
+        expected = {LABELS} | {f.image for f in frames if f.image}
+        if manifest.returned is not None:
+            expected = {LABELS, RETURNED}
+        _check_members(manifest.members, set(entries) - {MANIFEST}, expected, where)
+        if returned is True and manifest.returned is None:
+            raise BadInput("this packet has not been returned yet", where=where,
+                           hint="merge the FILE-returned.zip the reviewer sends back")
+        if returned is False and manifest.returned is not None:
+            raise BadInput("this is a returned packet", where=where,
+                           hint="merge it with `posewright packet merge PROJECT FILE`")
+        for name in sorted(set(entries) - {MANIFEST, LABELS, RETURNED}):
+            safezip.check_digest(safezip.hash_member(archive, entries[name], where),
+                                 manifest.members[name], entries[name], where)
+        base_json = safezip.read_member(archive, entries[LABELS], where,
+                                        manifest.members[LABELS], MAX_JSON)
+        ids = [f.id for f in frames]
+        base = _frame_contents(base_json, _LABELS, f"{where}: member {LABELS!r}", skeleton,
+                               ids)[0]
+        part = None
+        digest = hashlib.sha256(raw_manifest).hexdigest()
+        if manifest.returned is not None:
+            if hashlib.sha256(base_json).hexdigest() != manifest.returned.base_sha256:
+                raise BadInput("the base labels differ from those the reviewer started from",
+                               where=f"{where}: member {LABELS!r}")
+            raw = safezip.read_member(archive, entries[RETURNED], where,
+                                      manifest.members[RETURNED], MAX_JSON)
+            final, ledger = _frame_contents(raw, _RETURNED_LABELS,
+                                            f"{where}: member {RETURNED!r}", skeleton, ids)
+            decisions = {}
+            for d in manifest.returned.decisions:
+                if d.frame not in base:
+                    raise BadInput(f"field returned.decisions: frame {d.frame} is not in the "
+                                   "packet", where=mwhere)
+                decisions[d.frame] = FrameDecision(d.frame, d.decision, d.author, float(d.time))
+            part = ReturnedPart(manifest.returned.reviewer, float(manifest.returned.time),
+                                decisions, final, ledger)
+            content = hashlib.sha256(raw)
+            content.update(json.dumps(data["returned"]["decisions"], sort_keys=True).encode())
+            digest = content.hexdigest()
+    return Packet(
+        path=path, packet_id=manifest.packet_id, project_id=manifest.project_id,
+        skeleton=skeleton, images=manifest.images, reviewer=manifest.reviewer,
+        exported_by=manifest.exported_by, created=float(manifest.created), frames=frames,
+        base=base, members=dict(manifest.members), manifest=data, base_json=base_json,
+        sha256=digest, returned=part,
+    )
+
+
+def _frames(manifest: _ManifestModel, where: str) -> list[PacketFrame]:
+    frames = []
+    seen: set[int] = set()
+    for i, f in enumerate(manifest.frames):
+        record = f"field frames.{i}"
+        if f.id in seen:
+            raise BadInput(f"{record}.id: frame {f.id} appears twice", where=where)
+        seen.add(f.id)
+        try:
+            state = FrameState(f.state)
+        except ValueError:
+            raise BadInput(f"{record}.state: unknown frame state {f.state!r}",
+                           where=where) from None
+        if f.image is not None:
+            safezip.check_name(f.image, where)
+            stem, dot, ext = f.image.removeprefix("images/").partition(".")
+            if not (f.image.startswith("images/") and stem == str(f.id) and dot
+                    and "." + ext in IMAGE_SUFFIXES):
+                raise BadInput(f"{record}.image: {f.image!r} is not images/{f.id}.<image "
+                               "suffix>", where=where)
+        frames.append(PacketFrame(f.id, f.file_name, f.width, f.height, state, f.base_seq,
+                                  f.image))
+    return frames
+
+
+def _check_members(listed: Mapping[str, str], present: set[str], expected: set[str],
+                   where: str) -> None:
+    for name, digest in listed.items():
+        safezip.check_name(name, where)
+        if len(digest) != 64 or any(c not in "0123456789abcdef" for c in digest):
+            raise BadInput(f"field members: {name!r} has no SHA-256", where=where)
+    unlisted = sorted(present - set(listed))
+    if unlisted:
+        raise BadInput("the member is not listed in the manifest",
+                       where=f"{where}: member {unlisted[0]!r}",
+                       hint="the packet was altered; ask for it again")
+    absent = sorted(set(listed) - present)
+    if absent:
+        raise BadInput("the manifest lists it but the archive lacks it",
+                       where=f"{where}: member {absent[0]!r}")
+    misplaced = sorted(set(listed) ^ expected)
+    if misplaced:
+        raise BadInput("the member does not belong in this kind of packet",
+                       where=f"{where}: member {misplaced[0]!r}")
+
+
+def _frame_contents(raw: bytes, adapter: TypeAdapter[Any], where: str, skeleton: Skeleton,
+                    frame_ids: Sequence[int]) -> tuple[dict[int, FrameContent], list[Any]]:
+    data = _validate(adapter, _parse_json(raw, where), where)
+    k = skeleton.num_joints
+    out: dict[int, FrameContent] = {}
+    person_ids: set[int] = set()
+    for i, fl in enumerate(data.frames):
+        record = f"frames.{i} (frame {fl.id})"
+        if fl.id in out:
+            raise BadInput(f"{record}: the frame appears twice", where=where)
+        people = {}
+        for n, pm in enumerate(fl.people):
+            prec = f"{record}: people.{n} (person {pm.id})"
+            if pm.id in person_ids:
+                raise BadInput(f"{prec}: the person id appears twice", where=where)
+            person_ids.add(pm.id)
+            people[pm.id] = _person(pm, k, prec, where)
+        notes = {}
+        for nm in fl.notes:
+            if nm.id in notes:
+                raise BadInput(f"{record}: note {nm.id} appears twice", where=where)
+            notes[nm.id] = Note(nm.id, fl.id, nm.author, float(nm.time), nm.text, nm.person)
+        state = None
+        if fl.state is not None:
+            try:
+                state = FrameState(fl.state)
+            except ValueError:
+                raise BadInput(f"{record}: field state: unknown frame state {fl.state!r}",
+                               where=where) from None
+        out[fl.id] = FrameContent(fl.id, people, notes, state)
+    if set(out) != set(frame_ids):
+        missing = sorted(set(frame_ids) - set(out)) or sorted(set(out) - set(frame_ids))
+        raise BadInput(f"frames do not match the manifest (frame {missing[0]})", where=where)
+    ledger = [row.model_dump() for row in getattr(data, "ledger", [])]
+    return out, ledger
+
+
+def _person(pm: _PersonModel, k: int, record: str, where: str) -> Person:
+    if len(pm.keypoints) != k or len(pm.scores) != k or len(pm.sources) != k:
+        raise BadInput(f"{record}: field keypoints: the skeleton has {k} joints", where=where)
+    for j, (x, y, v) in enumerate(pm.keypoints):
+        if v not in (0, 1, 2):
+            raise BadInput(f"{record}: field keypoints.{j}: visibility {v} is not one of 0, 1, 2",
+                           where=where)
+        if v > 0 and (x is None or y is None or not math.isfinite(x) or not math.isfinite(y)):
+            raise BadInput(f"{record}: field keypoints.{j}: a labelled joint needs a position",
+                           where=where)
+        if x is not None and y is not None and not (abs(x) < 1e7 and abs(y) < 1e7):
+            raise BadInput(f"{record}: field keypoints.{j}: position far outside any image",
+                           where=where)
+    return Person.from_value(pm.id, pm.model_dump())
+
+
+# ---------------------------------------------------------------------- writing
+
+def select_frames(project: Project, spec: str) -> list[Frame]:
+    """The frames a ``--frames`` value names: a frame state (``disputed``, ``untouched``...),
+    or a comma-separated list of frame ids (or file names).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> with Project.create(tempfile.mkdtemp()) as p:
+    ...     select_frames(p, "disputed")
+    []
+    """
+    text = spec.strip()
+    try:
+        state = FrameState.parse(text)
+    except ValueError:
+        state = None
+    if state is not None:
+        return [f for f in project.frames() if f.state is state]
+    items = [s.strip() for s in text.split(",") if s.strip()]
+    if not items:
+        raise BadInput("no frames named", where="--frames",
+                       hint="give a state (disputed, untouched, ...) or frame ids 3,7,12")
+    frames: dict[int, Frame] = {}
+    for item in items:
+        try:
+            frame = project.find_frame(item)
+        except NotFound as exc:
+            raise BadInput(str(exc), where="--frames") from None
+        frames[frame.id] = frame
+    return sorted(frames.values(), key=lambda f: f.id)
+
+
+def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
+                  images: str = "none", reviewer: str | None = None,
+                  progress: Progress | None = None) -> dict[str, Any]:
+    """Write a review packet for ``frames`` to ``out`` (atomically).
+
+    Parameters
+    ----------
+    project
+        The project; when it is open for editing the packet is recorded in it (so that the
+        return can be checked against what was sent).
+    out
+        The zip file to write.
+    frames
+        The frames to send (see :func:`select_frames`).
+    images
+        ``none``, ``full`` (the image files as they are) or ``blurred-heads``.
+    reviewer
+        Who is to review (written in the manifest; the reviewer's name when they open it).
+    progress
+        Progress and cancel.
+
+    Returns
+    -------
+    dict
+        ``packet_id``, ``frames``, ``people``, ``images`` (how many images went in),
+        ``missing_images`` and ``unplaced_heads`` (people whose head could not be placed).
+    """
+    if images not in IMAGE_MODES:
+        raise BadInput(f"images {images!r} is not one of " + ", ".join(IMAGE_MODES),
+                       where="--images")
+    if not frames:
+        raise BadInput("no frames to send", where="--frames",
+                       hint="choose frames by state (disputed, untouched) or by id")
+    progress = progress or Progress()
+    out = Path(out)
+    packet_id = str(uuid.uuid4())
+    stats: dict[str, Any] = {"packet_id": packet_id, "frames": len(frames), "people": 0,
+                             "images": 0, "missing_images": 0, "unplaced_heads": 0}
+    entries, base_frames = [], []
+    with atomic_zip(out) as archive:
+        members: dict[str, str] = {}
+        for n, frame in enumerate(frames):
+            progress.step(n, len(frames), "writing the packet")
+            labels = project.labels(frame.id)
+            people = list(labels.people.values())
+            stats["people"] += len(people)
+            image = None
+            if images != "none":
+                image = _write_image(archive, project, frame, people, images, members, stats)
+            history = project.history(frame_id=frame.id, limit=1)
+            entries.append({"id": frame.id, "file_name": frame.file_name, "width": frame.width,
+                            "height": frame.height, "state": frame.state.value,
+                            "base_seq": history[0].seq if history else 0, "image": image})
+            base_frames.append({
+                "id": frame.id,
+                "people": [{"id": p.id, **p.to_value()} for p in people],
+                "notes": [{"id": note.id, **note.to_value()} for note in labels.notes.values()],
+            })
+        base_json = dumps_json({"frames": base_frames})
+        members[LABELS] = write_member(archive, LABELS, base_json)
+        manifest = {
+            "format": FORMAT, "version": VERSION, "packet_id": packet_id,
+            "project_id": project.project_id, "skeleton": project.skeleton.to_dict(),
+            "created": time.time(), "exported_by": project.author, "reviewer": reviewer,
+            "images": images, "frames": entries, "members": members,
+        }
+        write_member(archive, MANIFEST, dumps_json(manifest))
+        progress.step(len(frames), len(frames), "writing the packet")
+        if project.read_only:
+            log.warning("%s is read-only; packet %s is not recorded in it, so its return "
+                        "cannot be checked against what was sent", project.folder, packet_id)
+            return stats
+        record = {k: v for k, v in stats.items() if k != "packet_id"}
+        with project.bulk("ExportPacket",
+                          f"send {len(frames)} frames for review"
+                          + (f" by {reviewer}" if reviewer else "") + f" (images {images})",
+                          f"packet:{packet_id}") as b:
+            b.execute("INSERT INTO packets (packet_id, direction, sha256, reviewer, time, "
+                      "frames, report) VALUES (?, 'exported', ?, ?, ?, ?, ?)",
+                      (packet_id, hashlib.sha256(base_json).hexdigest(), reviewer or "",
+                       manifest["created"], json.dumps([f.id for f in frames]),
+                       json.dumps(record)))
+            b.stats.update(record)
+    return stats
+
+
+def _write_image(archive: zipfile.ZipFile, project: Project, frame: Frame,
+                 people: Sequence[Person], mode: str, members: dict[str, str],
+                 stats: dict[str, Any]) -> str | None:
+    path = project.image_path(frame)
+    if mode == "full":
+        suffix = path.suffix.lower()
+        if not path.is_file() or suffix not in IMAGE_SUFFIXES:
+            log.warning("frame %s: image %s is missing; sent without it", frame.id, path)
+            stats["missing_images"] += 1
+            return None
+        name = f"images/{frame.id}{suffix}"
+        members[name] = write_member(archive, name, path.read_bytes(), zipfile.ZIP_STORED)
+    else:
+        pixels = decode_image(path)
+        if pixels is None:
+            log.warning("frame %s: image %s cannot be read; sent without it", frame.id, path)
+            stats["missing_images"] += 1
+            return None
+        blurred, missed = blur_heads(pixels, [p.keypoints for p in people], project.skeleton)
+        stats["unplaced_heads"] += missed
+        ok, encoded = cv2.imencode(".png", blurred)
+        if not ok:
+            raise BadInput("cannot encode the blurred image", where=str(path))
+        name = f"images/{frame.id}.png"
+        members[name] = write_member(archive, name, np.asarray(encoded).tobytes(),
+                                      zipfile.ZIP_STORED)
+    stats["images"] += 1
+    return name
+
+
+def dumps_json(data: Any) -> bytes:
+    return json.dumps(data, separators=(",", ":"), allow_nan=False).encode("utf-8")
+
+
+def write_member(archive: zipfile.ZipFile, name: str, data: bytes,
+                  method: int = zipfile.ZIP_DEFLATED) -> str:
+    info = zipfile.ZipInfo(name, date_time=time.localtime()[:6])
+    info.compress_type = method
+    info.external_attr = 0o100644 << 16  # a regular file, rw-r--r--
+    archive.writestr(info, data)
+    return hashlib.sha256(data).hexdigest()
+
+
+@contextmanager
+def atomic_zip(out: Path) -> Iterator[zipfile.ZipFile]:
+    """A zip written to a temporary file beside ``out`` and renamed over it only when the
+    block succeeds, so ``out`` is never half written."""
+    folder = out.parent if str(out.parent) else Path(".")
+    if not folder.is_dir():
+        raise NotFound(f"{out}: the folder {folder} does not exist")
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=out.name + ".", suffix=".tmp", dir=folder)
+    except OSError as exc:
+        raise BadInput(f"cannot write here ({exc.strerror})", where=str(out)) from None
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            with zipfile.ZipFile(fh, "w") as archive:
+                yield archive
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, out)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise

@@ -1,0 +1,273 @@
+"""The reviewer's side: open a packet as a small project, decide on frames, return it.
+
+``open_packet("rehearsal.zip")`` checks the packet and builds ``rehearsal.review/`` beside it:
+a real project (``project.db``) holding the packet's frames (with their ids and file names),
+people (with their ids), notes, and images when the packet has them. The desktop app opens it
+with the same window and edits it with the same ledger; every edit is credited to the
+reviewer. Opening the same packet again reopens that folder.
+
+People the reviewer creates get ids from :data:`REVIEW_ID_BASE` up, and notes likewise, so
+they can never be mistaken for the project's own; the merge gives them fresh ids of the
+project anyway.
+
+``return_packet(project)`` writes ``rehearsal-returned.zip`` beside the folder: the manifest
+with a ``returned`` section (reviewer, time, decisions), the base labels exactly as received,
+and ``returned.json`` with the final labels and the reviewer's ledger rows.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import logging
+import os
+import shutil
+import tempfile
+import time
+from pathlib import Path
+from typing import Any
+
+from app.errors import BadInput, NotFound
+from app.review import safezip
+from app.review.packet import (
+    LABELS,
+    MANIFEST,
+    RETURNED,
+    FrameDecision,
+    Packet,
+    atomic_zip,
+    dumps_json,
+    parse_decision,
+    read_packet,
+    write_member,
+)
+from app.store import Project
+from app.store.project import DB_NAME
+
+log = logging.getLogger(__name__)
+
+#: First id of people and notes the reviewer creates.
+REVIEW_ID_BASE = 1_000_000_000
+
+_META_PACKET = "review_packet_id"
+_META_MANIFEST = "review_manifest"
+_META_BASE = "review_base_labels"
+
+__all__ = ["REVIEW_ID_BASE", "decisions", "is_review", "open_packet", "return_packet",
+           "returned_path", "review_folder", "set_decision"]
+
+
+def review_folder(path: str | Path) -> Path:
+    """Where a packet is opened for review: ``FILE.zip`` -> ``FILE.review``.
+
+    Examples
+    --------
+    >>> review_folder("/tmp/rehearsal.zip").as_posix()
+    '/tmp/rehearsal.review'
+    """
+    path = Path(path)
+    return path.with_name(path.stem + ".review")
+
+
+def returned_path(folder: str | Path) -> Path:
+    """Where a review folder is returned to: ``FILE.review`` -> ``FILE-returned.zip``.
+
+    Examples
+    --------
+    >>> returned_path("/tmp/rehearsal.review").as_posix()
+    '/tmp/rehearsal-returned.zip'
+    """
+    folder = Path(folder)
+    return folder.with_name(folder.name.removesuffix(".review") + "-returned.zip")
+
+
+def is_review(project: Project) -> bool:
+    """Whether ``project`` was opened from a review packet."""
+    return project.meta(_META_PACKET) is not None
+
+
+def open_packet(path: str | Path, reviewer: str | None = None,
+                limits: safezip.Limits = safezip.DEFAULT_LIMITS) -> Project:
+    """Open a review packet for reviewing; returns the review project, open for editing.
+
+    Parameters
+    ----------
+    path
+        The packet (``FILE.zip``), as exported (not a returned one).
+    reviewer
+        Who reviews (the ledger's author); default the reviewer the packet names, else
+        ``$POSEWRIGHT_AUTHOR`` or the login name.
+    limits
+        Bounds on the archive.
+
+    Returns
+    -------
+    Project
+        The project in ``FILE.review/`` (built on first opening, reopened afterwards). The
+        caller closes it.
+
+    Raises
+    ------
+    BadInput
+        A packet that fails any check of :func:`app.review.packet.read_packet` (nothing is
+        written then), or a ``FILE.review`` folder that holds something else.
+    """
+    path = Path(path)
+    folder = review_folder(path)
+    if (folder / DB_NAME).exists():
+        project = Project.open(folder, author=reviewer)
+        if project.meta(_META_PACKET) is None:
+            project.close()
+            raise BadInput("the folder holds a project that is not a review", where=str(folder))
+        if path.exists():
+            packet = read_packet(path, returned=False, limits=limits)
+            if packet.packet_id != project.meta(_META_PACKET):
+                project.close()
+                raise BadInput(f"the folder holds the review of another packet than {path.name}",
+                               where=str(folder), hint="move the folder away or rename the zip")
+        return project
+    packet = read_packet(path, returned=False, limits=limits)
+    if folder.exists():
+        raise BadInput("the folder exists and holds no review project", where=str(folder),
+                       hint="move it away, then open the packet again")
+    build = Path(tempfile.mkdtemp(prefix=folder.name + ".", suffix=".new", dir=folder.parent))
+    try:
+        _build(build, packet, reviewer or packet.reviewer, limits)
+        os.rename(build, folder)
+    except BaseException:
+        shutil.rmtree(build, ignore_errors=True)
+        raise
+    return Project.open(folder, author=reviewer or packet.reviewer)
+
+
+def _build(folder: Path, packet: Packet, reviewer: str | None,
+           limits: safezip.Limits) -> None:
+    images = folder / "images"
+    images.mkdir()
+    _extract_images(packet, images, limits)
+    with Project.create(folder, skeleton=packet.skeleton, author=reviewer) as project, \
+            project.bulk("OpenPacket", f"open review packet from {packet.exported_by}",
+                         f"packet:{packet.packet_id}") as b:
+        rows = []
+        for f in packet.frames:
+            name = Path(f.image).name if f.image else f"{f.id}"
+            status = "ok" if f.image else "missing"
+            rows.append((f.id, f"images/{name}", f.file_name, f.width, f.height, f.state.value,
+                         status))
+        b.executemany("INSERT INTO frames (id, path, file_name, width, height, state, status) "
+                      "VALUES (?, ?, ?, ?, ?, ?, ?)", rows)
+        people = [(fid, p) for fid, c in packet.base.items() for p in c.people.values()]
+        b.add_people(people)
+        notes = [(n.id, fid, n.person_id, n.author, n.time, n.text)
+                 for fid, c in packet.base.items() for n in c.notes.values()]
+        b.executemany("INSERT INTO notes VALUES (?, ?, ?, ?, ?, ?)", notes)
+        top_person = max([p.id for _, p in people], default=0)
+        top_note = max([n[0] for n in notes], default=0)
+        b.set_meta("next_person_id", str(max(REVIEW_ID_BASE, top_person + 1)))
+        b.set_meta("next_note_id", str(max(REVIEW_ID_BASE, top_note + 1)))
+        b.set_meta("images_root", "images")
+        b.set_meta("name", f"review of {packet.path.name}")
+        b.set_meta(_META_PACKET, packet.packet_id)
+        b.set_meta(_META_MANIFEST, json.dumps(packet.manifest))
+        b.set_meta(_META_BASE, packet.base_json.decode("utf-8"))
+        b.count("frames", len(rows))
+
+
+def _extract_images(packet: Packet, images: Path, limits: safezip.Limits) -> None:
+    """Copy the packet's images into ``images``, each under a name we make from the frame id
+    (never from the archive), checking each SHA-256 again as it is written."""
+    wanted = [f for f in packet.frames if f.image]
+    if not wanted:
+        return
+    where = str(packet.path)
+    with safezip.open_archive(packet.path) as archive:
+        entries = safezip.check_archive(archive, where, limits)
+        for f in wanted:
+            assert f.image is not None
+            info = entries.get(f.image)
+            if info is None:
+                raise BadInput("the manifest lists it but the archive lacks it",
+                               where=f"{where}: member {f.image!r}")
+            target = images / f"{f.id}{Path(f.image).suffix}"
+            with open(target, "xb") as out:
+                safezip.copy_member(archive, info, where, out, packet.members[f.image])
+
+
+def _require_review(project: Project) -> None:
+    if not is_review(project):
+        raise BadInput("not a project opened from a review packet", where=str(project.folder),
+                       hint="open the packet with `posewright open FILE.zip`")
+
+
+def set_decision(project: Project, frame_id: int, decision: str | None) -> FrameDecision | None:
+    """Record the reviewer's decision on a frame (``agree``, ``needs-change``, ``signed-off``;
+    ``None`` withdraws it), credited to the project's author. One transaction and one ledger
+    entry; returns the decision recorded."""
+    _require_review(project)
+    frame = project.frame(frame_id)
+    if decision is None:
+        with project.bulk("ReviewDecision", f"withdraw the decision on frame {frame.id}",
+                          f"frame:{frame.id}") as b:
+            b.execute("DELETE FROM review_decisions WHERE frame_id = ?", (frame.id,))
+        return None
+    value = parse_decision(decision)
+    made = FrameDecision(frame.id, value, project.author, time.time())
+    with project.bulk("ReviewDecision", f"frame {frame.id}: {value}", f"frame:{frame.id}") as b:
+        b.execute("INSERT OR REPLACE INTO review_decisions VALUES (?, ?, ?, ?)",
+                  (made.frame_id, made.decision, made.author, made.time))
+    return made
+
+
+def decisions(project: Project) -> dict[int, FrameDecision]:
+    """The reviewer's decisions so far, by frame id."""
+    rows = project.query("SELECT frame_id, decision, author, time FROM review_decisions "
+                         "ORDER BY frame_id")
+    return {r[0]: FrameDecision(*r) for r in rows}
+
+
+def return_packet(project: Project, out: str | Path | None = None) -> Path:
+    """Write the returned packet of a review project (atomically) and return its path.
+
+    Parameters
+    ----------
+    project
+        A project made by :func:`open_packet`.
+    out
+        Where to write; default ``FILE-returned.zip`` beside ``FILE.review``.
+
+    Returns
+    -------
+    pathlib.Path
+        The returned packet, ready to send back and merge with
+        :func:`app.review.merge.merge_packet`.
+    """
+    _require_review(project)
+    out = Path(out) if out is not None else returned_path(project.folder)
+    manifest: dict[str, Any] = json.loads(project.meta(_META_MANIFEST) or "{}")
+    base_json = (project.meta(_META_BASE) or "").encode("utf-8")
+    frames = []
+    for entry in manifest["frames"]:
+        try:
+            labels = project.labels(entry["id"])
+        except NotFound:
+            raise BadInput(f"frame {entry['id']} of the packet is gone from the review",
+                           where=str(project.folder)) from None
+        frames.append({
+            "id": labels.frame_id, "state": labels.state.value,
+            "people": [{"id": p.id, **p.to_value()} for p in labels.people.values()],
+            "notes": [{"id": n.id, **n.to_value()} for n in labels.notes.values()],
+        })
+    ledger = [e.__dict__ for e in reversed(project.history())]
+    returned_json = dumps_json({"frames": frames, "ledger": ledger})
+    with atomic_zip(out) as archive:
+        members = {LABELS: write_member(archive, LABELS, base_json),
+                   RETURNED: write_member(archive, RETURNED, returned_json)}
+        manifest = {**manifest, "members": members, "returned": {
+            "reviewer": project.author, "time": time.time(),
+            "decisions": [{"frame": d.frame_id, "decision": d.decision, "author": d.author,
+                           "time": d.time} for d in decisions(project).values()],
+            "base_sha256": hashlib.sha256(base_json).hexdigest(),
+        }}
+        write_member(archive, MANIFEST, dumps_json(manifest))
+    log.info("returned %d frames to %s", len(frames), out)
+    return out

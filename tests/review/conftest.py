@@ -1,0 +1,60 @@
+"""Fixtures for the review tests: a labelled project and the packet round trip.
+
+All labels are synthetic (tests/synthetic.py); the reviewer "bea" and the annotator "ana" are
+invented names.
+"""
+
+from __future__ import annotations
+
+import zipfile
+from collections.abc import Callable, Sequence
+from pathlib import Path
+
+import pytest
+
+from app.jobs import import_coco
+from app.review.packet import export_packet
+from app.review.review import open_packet, return_packet, set_decision
+from app.store import Project
+
+
+@pytest.fixture
+def labelled(project: Project, coco_file: Path) -> Project:
+    """The shared ``project`` (6 frames, author "ana") with 3 synthetic people per frame."""
+    import_coco(project, coco_file)
+    return project
+
+
+def send(project: Project, out: Path, frames: list[int] | None = None,
+         images: str = "none") -> Path:
+    """Export a packet of ``frames`` (default: the first two) for reviewer "bea"."""
+    chosen = [f for f in project.frames() if frames is None or f.id in frames]
+    if frames is None:
+        chosen = chosen[:2]
+    export_packet(project, out, chosen, images=images, reviewer="bea")
+    return out
+
+
+def review(packet: Path, edit: Callable[[Project], None] | None = None,
+           decisions: dict[int, str] | None = None, reviewer: str = "bea") -> Path:
+    """Open ``packet`` as the reviewer, make ``edit``, record ``decisions`` and return it."""
+    with open_packet(packet, reviewer=reviewer) as reviewed:
+        if edit is not None:
+            edit(reviewed)
+        for frame_id, decision in (decisions or {}).items():
+            set_decision(reviewed, frame_id, decision)
+        return return_packet(reviewed)
+
+
+def rewrite(src: Path, dst: Path, change: Callable[[str, bytes], bytes | None],
+            extra: Sequence[tuple[zipfile.ZipInfo | str, bytes]] = ()) -> Path:
+    """Copy a zip member by member through ``change(name, data)`` (None drops the member),
+    then add ``extra`` members. Used to craft damaged and hostile packets."""
+    with zipfile.ZipFile(src) as zin, zipfile.ZipFile(dst, "w", zipfile.ZIP_DEFLATED) as zout:
+        for info in zin.infolist():
+            data = change(info.filename, zin.read(info))
+            if data is not None:
+                zout.writestr(info, data)
+        for info, data in extra:
+            zout.writestr(info, data)
+    return dst

@@ -1,0 +1,265 @@
+"""Review packets: what goes in, what comes back, and every way a hostile or damaged zip is
+refused with one line and nothing written.
+
+The zip rules checked follow PKWARE's APPNOTE (external attributes carry the Unix mode, so a
+symbolic link is visible before extraction); the bounds (4 GiB, 200:1) are our own choice,
+common practice, no source. All labels and images are synthetic.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import zipfile
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from app.errors import BadInput
+from app.formats.images import decode_image
+from app.model.edits import MoveJoint
+from app.review import safezip
+from app.review.blur import head_ellipses
+from app.review.merge import merge_packet
+from app.review.packet import read_packet, select_frames
+from app.review.review import open_packet, review_folder
+from app.store import Project
+from tests.review.conftest import rewrite, send
+
+
+def test_manifest_lists_frames_base_revisions_and_member_hashes(labelled, tmp_path):
+    f1, f2 = labelled.frames()[:2]
+    person = labelled.people(f1.id)[0]
+    labelled.apply(MoveJoint(f1.id, person.id, 0, 50.0, 60.0))
+    path = send(labelled, tmp_path / "p.zip", images="full")
+    with zipfile.ZipFile(path) as z:
+        manifest = json.loads(z.read("manifest.json"))
+        names = set(z.namelist())
+        for name, digest in manifest["members"].items():
+            assert hashlib.sha256(z.read(name)).hexdigest() == digest
+    assert manifest["format"] == "posewright-review-packet" and manifest["version"] == 1
+    assert manifest["project_id"] == labelled.project_id
+    frames = {f["id"]: f for f in manifest["frames"]}
+    newest = labelled.history(frame_id=f1.id, limit=1)[0].seq
+    assert frames[f1.id]["base_seq"] == newest and frames[f2.id]["base_seq"] == 0
+    assert frames[f1.id]["state"] == "corrected"
+    assert names == {"manifest.json", "labels.json", f"images/{f1.id}.jpg", f"images/{f2.id}.jpg"}
+    packet = read_packet(path)
+    assert packet.base[f1.id].people[person.id].keypoints[0, :2].tolist() == [50.0, 60.0]
+    # full images travel byte for byte
+    with zipfile.ZipFile(path) as z:
+        assert z.read(f"images/{f1.id}.jpg") == labelled.image_path(f1).read_bytes()
+
+
+def test_select_frames_by_state_or_ids(labelled):
+    frames = labelled.frames()
+    assert [f.id for f in select_frames(labelled, "untouched")] == [f.id for f in frames]
+    assert [f.id for f in select_frames(labelled, f"{frames[3].id}, {frames[1].id}")] == \
+        [frames[1].id, frames[3].id]
+    assert select_frames(labelled, "disputed") == []
+    with pytest.raises(BadInput, match="no frame 'nope'"):
+        select_frames(labelled, "nope")
+
+
+def test_open_builds_a_review_project_with_the_same_ids(labelled, tmp_path):
+    path = send(labelled, tmp_path / "p.zip", images="blurred-heads")
+    f1 = labelled.frames()[0]
+    with open_packet(path) as reviewed:
+        assert reviewed.folder == review_folder(path) == tmp_path / "p.review"
+        assert reviewed.author == "bea"  # the packet names its reviewer
+        assert [f.id for f in reviewed.frames()] == [f.id for f in labelled.frames()[:2]]
+        assert {p.id for p in reviewed.people(f1.id)} == {p.id for p in labelled.people(f1.id)}
+        image = decode_image(reviewed.image_path(reviewed.frame(f1.id)))
+        assert image is not None and image.shape[:2] == (f1.height, f1.width)
+        assert int(reviewed.meta("next_person_id") or 0) >= 1_000_000_000
+    with open_packet(path, reviewer="cleo") as again:  # reopened, not rebuilt
+        assert again.author == "cleo" and len(again.history()) == 1
+
+
+def _valid(labelled: Project, tmp_path: Path) -> Path:
+    return send(labelled, tmp_path / "p.zip", images="full")
+
+
+def _with_member(labelled, tmp_path, info, data=b"x"):
+    return rewrite(_valid(labelled, tmp_path), tmp_path / "bad.zip", lambda n, d: d,
+                   extra=[(info, data)])
+
+
+def _symlink(name: str) -> zipfile.ZipInfo:
+    info = zipfile.ZipInfo(name)
+    info.external_attr = 0o120777 << 16
+    return info
+
+
+@pytest.mark.filterwarnings("ignore:Duplicate name")
+@pytest.mark.parametrize("make, words", [
+    (lambda lp, t: _with_member(lp, t, "../outside.txt"), "'../outside.txt': the name leaves"),
+    (lambda lp, t: _with_member(lp, t, "images/../../x"), "the name leaves the packet's folder"),
+    (lambda lp, t: _with_member(lp, t, "/etc/passwd"), "'/etc/passwd': the name is an absolute"),
+    (lambda lp, t: _with_member(lp, t, "C:/x.txt"), "the name is an absolute path"),
+    (lambda lp, t: _with_member(lp, t, "images\\..\\..\\x"), "holds a backslash"),
+    (lambda lp, t: _with_member(lp, t, _symlink("images/link.jpg"), b"/etc/passwd"),
+     "'images/link.jpg': the member is a symbolic link"),
+    (lambda lp, t: _with_member(lp, t, "notes.txt"), "'notes.txt': the member is not listed"),
+    (lambda lp, t: _with_member(lp, t, "labels.json"), "'labels.json': the name appears twice"),
+])
+def test_hostile_names_are_refused_before_anything_is_written(labelled, tmp_path, make, words):
+    bad = make(labelled, tmp_path)
+    with pytest.raises(BadInput, match=r"bad.zip: member") as exc:
+        open_packet(bad)
+    assert words in str(exc.value) and "\n" not in str(exc.value)
+    assert not review_folder(bad).exists()
+    assert not (tmp_path / "outside.txt").exists()
+
+
+def test_a_zip_bomb_is_refused_unread(labelled, tmp_path):
+    """100 MB of zeros deflate to about 100 kB: 1000:1, beyond the 200:1 bound."""
+    info = zipfile.ZipInfo("images/bomb.jpg")
+    info.compress_type = zipfile.ZIP_DEFLATED
+    bad = _with_member(labelled, tmp_path, info, bytes(100 << 20))
+    assert bad.stat().st_size < 2 << 20
+    with pytest.raises(BadInput, match=r"'images/bomb.jpg': the member inflates .* zip bomb"):
+        read_packet(bad)
+    assert not review_folder(bad).exists()
+
+
+def test_the_total_size_bound_holds(labelled, tmp_path):
+    path = _valid(labelled, tmp_path)
+    with pytest.raises(BadInput, match="inflates past 1000 bytes"):
+        read_packet(path, limits=safezip.Limits(max_total=1000))
+
+
+@pytest.mark.parametrize("cut", [0.5, 0.97])
+def test_a_truncated_packet_is_refused(labelled, tmp_path, cut):
+    data = _valid(labelled, tmp_path).read_bytes()
+    bad = tmp_path / "cut.zip"
+    bad.write_bytes(data[: int(len(data) * cut)])
+    with pytest.raises(BadInput, match=r"cut.zip: not a readable zip archive"):
+        open_packet(bad)
+    assert not review_folder(bad).exists()
+
+
+def test_tampered_members_are_refused(labelled, tmp_path):
+    path = _valid(labelled, tmp_path)
+
+    def move_a_joint(name: str, data: bytes) -> bytes:
+        if name != "labels.json":
+            return data
+        labels = json.loads(data)
+        labels["frames"][0]["people"][0]["keypoints"][0][0] += 40
+        return json.dumps(labels).encode()
+
+    bad = rewrite(path, tmp_path / "t.zip", move_a_joint)
+    with pytest.raises(BadInput, match=r"'labels.json': the member's SHA-256 does not match"):
+        open_packet(bad)
+    image = next(n for n in zipfile.ZipFile(path).namelist() if n.startswith("images/"))
+    bad = rewrite(path, tmp_path / "t2.zip", lambda n, d: d[:-10] + bytes(10) if n == image
+                  else d)
+    with pytest.raises(BadInput, match=f"'{image}': the member's SHA-256"):
+        open_packet(bad)
+    dropped = rewrite(path, tmp_path / "t3.zip", lambda n, d: None if n == image else d)
+    with pytest.raises(BadInput, match="lists it but the archive lacks it"):
+        open_packet(dropped)
+
+
+def test_corrupt_compressed_bytes_fail_their_crc(labelled, tmp_path):
+    path = _valid(labelled, tmp_path)
+    with zipfile.ZipFile(path) as z:
+        info = z.getinfo("labels.json")
+    data = bytearray(path.read_bytes())
+    start = info.header_offset + 30 + len(info.filename.encode()) + len(info.extra)
+    data[start + info.compress_size // 2] ^= 0xFF
+    bad = tmp_path / "crc.zip"
+    bad.write_bytes(bytes(data))
+    with pytest.raises(BadInput, match=r"'labels.json': the member cannot be read"):
+        read_packet(bad)
+
+
+def test_a_packet_from_another_project_is_refused_and_nothing_changes(labelled, tmp_path,
+                                                                      image_dir, coco_file):
+    from tests.review.conftest import review
+
+    returned = review(send(labelled, tmp_path / "p.zip"),
+                      lambda r: r.apply(MoveJoint(r.frames()[0].id,
+                                                  r.people(r.frames()[0].id)[0].id, 0, 9, 9)))
+    with Project.create(tmp_path / "other", images=image_dir, author="ana") as other:
+        from app.jobs import import_coco
+
+        import_coco(other, coco_file)
+        before = len(other.history())
+        with pytest.raises(BadInput, match="belongs to another project"):
+            merge_packet(other, returned)
+        assert len(other.history()) == before
+
+
+def test_a_packet_not_yet_returned_cannot_be_merged(labelled, tmp_path):
+    with pytest.raises(BadInput, match="has not been returned yet"):
+        merge_packet(labelled, send(labelled, tmp_path / "p.zip"))
+
+
+def test_values_that_do_not_fit_the_skeleton_are_refused(labelled, tmp_path):
+    path = _valid(labelled, tmp_path)
+    with zipfile.ZipFile(path) as z:
+        manifest = json.loads(z.read("manifest.json"))
+        labels = json.loads(z.read("labels.json"))
+    labels["frames"][0]["people"][0]["keypoints"][3] = [1.0, 2.0, 3]
+    raw = json.dumps(labels).encode()
+    manifest["members"]["labels.json"] = hashlib.sha256(raw).hexdigest()
+
+    def swap(name: str, data: bytes) -> bytes:
+        return {"labels.json": raw, "manifest.json": json.dumps(manifest).encode()}.get(name,
+                                                                                         data)
+
+    bad = rewrite(path, tmp_path / "v.zip", swap)
+    with pytest.raises(BadInput, match=r"keypoints.3: visibility 3 is not one of 0, 1, 2"):
+        read_packet(bad)
+
+
+def test_blurred_heads_packet_changes_heads_only(labelled, tmp_path):
+    """The sent image differs from the original inside the head ellipses and is the decoded
+    original, pixel for pixel, everywhere else (the image is synthetic noise, so a blur shows)."""
+    import cv2
+
+    frame = labelled.frames()[0]
+    noise = np.random.default_rng(3).integers(0, 256, (frame.height, frame.width, 3), np.uint8)
+    cv2.imwrite(str(labelled.image_path(frame)), noise)
+    original = decode_image(labelled.image_path(frame))
+    path = send(labelled, tmp_path / "p.zip", frames=[frame.id], images="blurred-heads")
+    with zipfile.ZipFile(path) as z:
+        sent = cv2.imdecode(np.frombuffer(z.read(f"images/{frame.id}.png"), np.uint8),
+                            cv2.IMREAD_COLOR)
+    ellipses = head_ellipses([p.keypoints for p in labelled.people(frame.id)],
+                             labelled.skeleton, (frame.width, frame.height))
+    yy, xx = np.mgrid[: frame.height, : frame.width]
+    inside = np.zeros((frame.height, frame.width), bool)
+    for cx, cy, ax, ay in ellipses:
+        inside |= ((xx - cx) / ax) ** 2 + ((yy - cy) / ay) ** 2 <= 1
+    core = np.zeros_like(inside)
+    for cx, cy, ax, ay in ellipses:
+        core |= ((xx - cx) / (ax * 0.8)) ** 2 + ((yy - cy) / (ay * 0.8)) ** 2 <= 1
+    assert original is not None and core.any() and not inside.all()
+    assert np.array_equal(sent[~inside], original[~inside])
+    assert (sent[core] != original[core]).any(axis=1).mean() > 0.9
+
+
+@pytest.mark.parametrize("labels_text, words", [
+    ('{"frames": [' * 20_000, "nested too deeply"),
+    ('{"frames": [{"id": 1, "people": [], "notes": [], "x": 1e999}]}', "too large a number"),
+    ('{"frames": NaN}', "NaN is not a JSON number"),
+])
+def test_hostile_json_is_refused_in_one_line(labelled, tmp_path, labels_text, words):
+    path = _valid(labelled, tmp_path)
+    raw = labels_text.encode()
+    with zipfile.ZipFile(path) as z:
+        manifest = json.loads(z.read("manifest.json"))
+    manifest["members"]["labels.json"] = hashlib.sha256(raw).hexdigest()
+
+    def swap(name: str, data: bytes) -> bytes:
+        return {"labels.json": raw, "manifest.json": json.dumps(manifest).encode()}.get(name,
+                                                                                         data)
+
+    bad = rewrite(path, tmp_path / "j.zip", swap)
+    with pytest.raises(BadInput, match=r"j.zip: member 'labels.json'") as exc:
+        read_packet(bad)
+    assert words in str(exc.value)
