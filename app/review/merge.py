@@ -442,7 +442,8 @@ def _record(project: Project, packet: Packet, plans: Sequence[FramePlan],
     report.merged_at = now
     summary = (f"merge review packet from {packet.returned.reviewer}: {report.frames} frames, "
                f"{report.joints_taken} joints taken, {len(report.conflicts)} conflicts")
-    with project.bulk("MergePacket", summary, f"packet:{packet.packet_id}") as b:
+    with project.bulk("MergePacket", summary, f"packet:{packet.packet_id}",
+                      kind="review") as b:
         for plan in plans:
             if plan.conflicts and not plan.was_disputed:
                 b.execute("UPDATE alternatives SET retired = ? WHERE frame_id = ? AND "

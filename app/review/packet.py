@@ -609,7 +609,7 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
         with project.bulk("ExportPacket",
                           f"send {len(frames)} frames for review"
                           + (f" by {reviewer}" if reviewer else "") + f" (images {images})",
-                          f"packet:{packet_id}") as b:
+                          f"packet:{packet_id}", kind="review") as b:
             b.execute("INSERT INTO packets (packet_id, direction, sha256, reviewer, time, "
                       "frames, report) VALUES (?, 'exported', ?, ?, ?, ?, ?)",
                       (packet_id, hashlib.sha256(base_json).hexdigest(), reviewer or "",

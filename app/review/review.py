@@ -147,7 +147,7 @@ def _build(folder: Path, packet: Packet, reviewer: str | None,
     _extract_images(packet, images, limits)
     with Project.create(folder, skeleton=packet.skeleton, author=reviewer) as project, \
             project.bulk("OpenPacket", f"open review packet from {packet.exported_by}",
-                         f"packet:{packet.packet_id}") as b:
+                         f"packet:{packet.packet_id}", kind="review") as b:
         rows = []
         for f in packet.frames:
             name = Path(f.image).name if f.image else f"{f.id}"
@@ -207,12 +207,13 @@ def set_decision(project: Project, frame_id: int, decision: str | None) -> Frame
     frame = project.frame(frame_id)
     if decision is None:
         with project.bulk("ReviewDecision", f"withdraw the decision on frame {frame.id}",
-                          f"frame:{frame.id}") as b:
+                          f"frame:{frame.id}", kind="review", frame_id=frame.id) as b:
             b.execute("DELETE FROM review_decisions WHERE frame_id = ?", (frame.id,))
         return None
     value = parse_decision(decision)
     made = FrameDecision(frame.id, value, project.author, time.time())
-    with project.bulk("ReviewDecision", f"frame {frame.id}: {value}", f"frame:{frame.id}") as b:
+    with project.bulk("ReviewDecision", f"frame {frame.id}: {value}", f"frame:{frame.id}",
+                      kind="review", frame_id=frame.id) as b:
         b.execute("INSERT OR REPLACE INTO review_decisions VALUES (?, ?, ?, ?)",
                   (made.frame_id, made.decision, made.author, made.time))
     return made

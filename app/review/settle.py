@@ -333,7 +333,7 @@ def keep_ours(project: Project, frame_id: int, person_id: int | None = None,
             f"person {person_id}" if joint is None else
             f"joint {labels.skeleton.joints[joint]} of person {person_id}")
     with project.bulk("KeepOurs", f"frame {frame_id}: keep ours for {what}",
-                      f"frame:{frame_id}") as b:
+                      f"frame:{frame_id}", kind="review", frame_id=frame_id) as b:
         b.executemany("UPDATE alternatives SET kept = ? WHERE id = ?", updates)
         b.count("joints kept", settled)
     return settled

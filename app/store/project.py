@@ -556,12 +556,12 @@ class Project:
 
         With ``frame_id`` only that frame's changes are reverted, otherwise the whole project's.
         The return is itself one new undoable action (nothing is deleted from the ledger).
-        Imports are not reverted.
+        Bulk work (imports, packet records) is not reverted.
         """
         self._check_writable()
         with self._mutex, self._transaction():
             sql = ("SELECT frame_id, target, before, after FROM ledger WHERE seq > ? "
-                   "AND kind != 'import'")
+                   "AND kind IN ('edit', 'undo', 'redo')")
             args: list[Any] = [int(seq)]
             if frame_id is not None:
                 sql += " AND frame_id = ?"
@@ -674,9 +674,12 @@ class Project:
     # ------------------------------------------------------------------ bulk work (importers)
 
     @contextmanager
-    def bulk(self, action: str, summary: str, target: str) -> Iterator[Bulk]:
-        """One all-or-nothing transaction for importers: everything written through the
-        yielded :class:`Bulk` lands together with one ``import`` ledger entry, or nothing does.
+    def bulk(self, action: str, summary: str, target: str, kind: str = "import",
+             frame_id: int | None = None) -> Iterator[Bulk]:
+        """One all-or-nothing transaction for bulk writers: everything written through the
+        yielded :class:`Bulk` lands together with one ledger entry of ``kind`` (``import`` for
+        importers, ``review`` for packet work), or nothing does. Such entries record what was
+        done; they are not on the undo stack.
         """
         self._check_writable()
         with self._mutex, self._transaction():
@@ -687,8 +690,9 @@ class Project:
             self._conn.execute(
                 "INSERT INTO ledger (group_id, kind, action, summary, author, time, frame_id, "
                 "target, before, after, reverts) "
-                "VALUES (?, 'import', ?, ?, ?, ?, NULL, ?, NULL, ?, NULL)",
-                (group, action, summary, ctx.author, ctx.time, target, json.dumps(bulk.stats)),
+                "VALUES (?, ?, ?, ?, ?, ?, ?, ?, NULL, ?, NULL)",
+                (group, kind, action, summary, ctx.author, ctx.time, frame_id, target,
+                 json.dumps(bulk.stats)),
             )
         self._notify("import", bulk.frames_touched)
 
