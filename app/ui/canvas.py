@@ -14,6 +14,7 @@ window applies it through the store.
 
 from __future__ import annotations
 
+import time
 from dataclasses import dataclass
 from types import SimpleNamespace
 from typing import Any
@@ -66,12 +67,15 @@ class Canvas(QWidget):
         In pick mode (merging), the person clicked.
     viewChanged()
         Zoom or pan changed.
+    framePainted(int)
+        A frame's image has been painted for the first time.
     """
 
     selectionChanged = Signal()
     editRequested = Signal(object)
     personPicked = Signal(int)
     viewChanged = Signal()
+    framePainted = Signal(int)
 
     #: How near (screen pixels) a click must be to a joint to hit it.
     HIT_RADIUS = 9.0
@@ -102,8 +106,9 @@ class Canvas(QWidget):
         self.message = ""  # shown instead of the image when it cannot be shown
 
         self._decoded: Decoded | None = None
-        self._scaled: tuple[Any, QImage] | None = None
-        self._scaled_key: tuple[int, float] | None = None
+        # A quick shrunk copy for a zoom the decoder did not prepare: (for which decoded
+        # image, at which scale, pixels, image).
+        self._scaled: tuple[Decoded, float, Any, QImage] | None = None
         self._scale = 1.0
         self._ox = 0.0
         self._oy = 0.0
@@ -124,8 +129,10 @@ class Canvas(QWidget):
         self._seg = np.zeros((0, 4))
         self._seg_pid = np.zeros(0, int)
         self._pointer: QPointF | None = None
-        #: The frame id whose image was last painted (None while only a placeholder shows).
+        #: The frame id whose image was last painted (None while only a placeholder shows),
+        #: and when (``time.perf_counter``) it was first painted.
         self.painted_frame: int | None = None
+        self.painted_at = 0.0
 
     # ------------------------------------------------------------------ content
 
@@ -136,8 +143,6 @@ class Canvas(QWidget):
             (frame.width, frame.height) and not self._fit_mode
         self.frame = frame
         self._decoded = None
-        self._scaled = None
-        self._scaled_key = None
         self.painted_frame = None
         self.message = ""
         self._joints = []
@@ -172,8 +177,6 @@ class Canvas(QWidget):
     def set_image(self, decoded: Decoded | None, message: str = "") -> None:
         """The decoded image of the current frame (None with a message when unreadable)."""
         self._decoded = decoded
-        self._scaled = None
-        self._scaled_key = None
         self.message = message
         self.update()
 
@@ -187,27 +190,28 @@ class Canvas(QWidget):
         ids = {p.id for p in self.people}
         self.colours = assign_colours(
             self.people, {p: c for p, c in self.colours.items() if p in ids})
-        pts, pid, joint, lab, seg, seg_pid = [], [], [], [], [], []
+        # Hit-testing arrays for all people at once: placed joints, and labelled limbs.
+        k = self.skeleton.num_joints
+        n = len(self.people)
+        kp = np.stack([p.keypoints for p in self.people]) if n else np.zeros((0, k, 3))
+        pid = np.repeat(np.array([p.id for p in self.people], dtype=np.int64), k)
+        placed = np.isfinite(kp[..., :2]).all(axis=2)
+        flat = placed.ravel()
+        self._hit_pts = kp[..., :2].reshape(-1, 2)[flat]
+        self._hit_pid = pid[flat]
+        self._hit_joint = np.tile(np.arange(k), n)[flat]
+        self._hit_labelled = (kp[..., 2] > 0).ravel()[flat]
         limbs = self.skeleton.limb_array
-        for p in self.people:
-            kp = p.keypoints
-            placed = np.isfinite(kp[:, :2]).all(axis=1)
-            idx = np.flatnonzero(placed)
-            pts.append(kp[idx, :2])
-            pid.append(np.full(len(idx), p.id))
-            joint.append(idx)
-            lab.append(kp[idx, 2] > 0)
-            if len(limbs):
-                on = placed[limbs[:, 0]] & placed[limbs[:, 1]] & (kp[limbs[:, 0], 2] > 0) \
-                    & (kp[limbs[:, 1], 2] > 0)
-                seg.append(np.column_stack([kp[limbs[on, 0], :2], kp[limbs[on, 1], :2]]))
-                seg_pid.append(np.full(int(on.sum()), p.id))
-        self._hit_pts = np.vstack(pts) if pts else np.zeros((0, 2))
-        self._hit_pid = np.concatenate(pid) if pid else np.zeros(0, int)
-        self._hit_joint = np.concatenate(joint) if joint else np.zeros(0, int)
-        self._hit_labelled = np.concatenate(lab) if lab else np.zeros(0, bool)
-        self._seg = np.vstack(seg) if seg else np.zeros((0, 4))
-        self._seg_pid = np.concatenate(seg_pid) if seg_pid else np.zeros(0, int)
+        if len(limbs) and n:
+            a, b = limbs[:, 0], limbs[:, 1]
+            lab = placed & (kp[..., 2] > 0)
+            on = lab[:, a] & lab[:, b]
+            seg = np.concatenate([kp[:, a, :2], kp[:, b, :2]], axis=2)
+            self._seg = seg[on]
+            self._seg_pid = np.repeat(pid[::k], len(limbs)).reshape(n, -1)[on]
+        else:
+            self._seg = np.zeros((0, 4))
+            self._seg_pid = np.zeros(0, int)
 
     def person(self, person_id: int) -> Person | None:
         return next((p for p in self.people if p.id == person_id), None)
@@ -399,8 +403,10 @@ class Canvas(QWidget):
                 people = self._with_drag(people, self._drag)
             self._layout = paint_overlay(p, people, self.skeleton, self.transform(), self.style(),
                                          (self.frame.width, self.frame.height))
-            if self._decoded is not None:
+            if self._decoded is not None and self.painted_frame != self.frame.id:
                 self.painted_frame = self.frame.id
+                self.painted_at = time.perf_counter()
+                self.framePainted.emit(self.frame.id)
         p.end()
 
     def _paint_image(self, p: QPainter) -> None:
@@ -423,13 +429,10 @@ class Canvas(QWidget):
             if d.scaled_image is not None and abs(d.scale - s) < 1e-9:
                 p.drawImage(top_left, d.scaled_image)
                 return
-            key = (id(d), round(s, 9))
-            if self._scaled_key != key:
+            if self._scaled is None or self._scaled[0] is not d or self._scaled[1] != s:
                 small = shrink(d.pixels, s, fast=True)
-                self._scaled = (small, qimage_view(small))
-                self._scaled_key = key
-            assert self._scaled is not None
-            p.drawImage(top_left, self._scaled[1])
+                self._scaled = (d, s, small, qimage_view(small))
+            p.drawImage(top_left, self._scaled[3])
         else:
             # Zoomed in: nearest neighbour, so the annotator sees the real pixels.
             p.drawImage(target, self._decoded.image)

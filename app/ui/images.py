@@ -277,6 +277,7 @@ class ImageLoader(QObject):
         self._pool = QThreadPool(self)
         self._pool.setMaxThreadCount(max(1, threads))
         self._pending: set[int] = set()
+        self._queued: dict[int, _DecodeTask] = {}
         #: The Canvas's zoom; decoded frames come with a copy shrunk to it (when < 1).
         self.display_scale: float | None = None
         self._sink = _Sink(self)
@@ -289,11 +290,26 @@ class ImageLoader(QObject):
         item = self.cache.get(frame_id)
         if item is not None:
             return item
+        if urgent:
+            # The annotator waits for this one: withdraw prefetches that have not started.
+            for fid, task in list(self._queued.items()):
+                if fid != frame_id and self._pool.tryTake(task):
+                    self._pending.discard(fid)
+                    del self._queued[fid]
         if frame_id not in self._pending:
             self._pending.add(frame_id)
-            self._pool.start(_DecodeTask(frame_id, Path(path), self.display_scale, urgent,
-                                         self._sink), 10 if urgent else 0)
+            task = _DecodeTask(frame_id, Path(path), self.display_scale, urgent, self._sink)
+            if not urgent:
+                # Kept (not deleted by the pool when done) until it reports back, so that it
+                # can be withdrawn safely while it waits.
+                task.setAutoDelete(False)
+                self._queued[frame_id] = task
+            self._pool.start(task, 10 if urgent else 0)
         return None
+
+    def idle(self) -> bool:
+        """Nothing scheduled or running."""
+        return not self._pending and self._pool.activeThreadCount() == 0
 
     def refine(self, frame_id: int) -> None:
         """Replace a quickly shrunk copy by an area-averaged one, in the background."""
@@ -321,6 +337,7 @@ class ImageLoader(QObject):
 
     def _finished(self, frame_id: int, decoded: Decoded | None, status: str) -> None:
         self._pending.discard(frame_id)
+        self._queued.pop(frame_id, None)
         if decoded is None:
             self.failed.emit(frame_id, status)
             return

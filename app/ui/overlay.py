@@ -124,12 +124,15 @@ def assign_colours(people: Sequence[_PersonLike],
     """
     n_colours = len(PERSON_COLOURS)
     n = len(people)
-    boxes = np.full((n, 4), np.nan)
-    for i, p in enumerate(people):
-        xy = p.keypoints[:, :2]
-        xy = xy[np.isfinite(xy).all(axis=1)]
-        if len(xy):
-            boxes[i] = np.r_[xy.min(axis=0), xy.max(axis=0)]
+    if n == 0:
+        return {}
+    xy = np.stack([p.keypoints[:, :2] for p in people])
+    placed = np.isfinite(xy).all(axis=2, keepdims=True)
+    with np.errstate(invalid="ignore"):
+        lo = np.where(placed, xy, np.inf).min(axis=1)
+        hi = np.where(placed, xy, -np.inf).max(axis=1)
+    boxes = np.hstack([lo, hi])
+    boxes[~placed.any(axis=1)[:, 0]] = np.nan
     # Pairwise box gap and centre distance, as whole arrays; unknown boxes are infinitely far.
     lo, hi = boxes[:, None, :2], boxes[:, None, 2:]
     gap_xy = np.maximum(np.maximum(lo - boxes[None, :, 2:], boxes[None, :, :2] - hi), 0)
@@ -152,7 +155,8 @@ def assign_colours(people: Sequence[_PersonLike],
         if len(held):
             order = np.lexsort((centre[i, held], gap[i, held], colour[held]))
             ranked = held[order]
-            first = np.r_[True, colour[ranked][1:] != colour[ranked][:-1]]
+            first = np.ones(len(ranked), dtype=bool)
+            first[1:] = colour[ranked][1:] != colour[ranked][:-1]
             winners = ranked[first]
             best[colour[winners]] = np.column_stack([gap[i, winners], centre[i, winners]])
         # ... and the colour whose nearest holder is farthest wins (lowest index among equals).
@@ -307,45 +311,68 @@ def layout_tags(anchors: np.ndarray, sizes: np.ndarray, gap: float,
     if n == 0:
         return out
     pts = np.zeros((0, 2)) if obstacles is None else np.asarray(obstacles, float).reshape(-1, 2)
-    placed = np.zeros((0, 4))  # x0, y0, x1, y1
-    for i in np.argsort(anchors[:, 1], kind="stable"):
-        w, h = sizes[i]
-        up = gap + h / 2
-        side = gap + w / 2
-        # Candidate offsets of the tag centre from the anchor, in order of preference.
-        offsets = np.array([
-            (0, -up), (-side, -up), (side, -up), (-side - 2, 0), (side + 2, 0),
-            (0, -up - h - 2), (-side, -up - h - 2), (side, -up - h - 2),
-            (-w - side, -up), (w + side, -up), (0, up), (0, -up - 2 * h - 4),
-        ])
-        centres = anchors[i] + offsets
-        half = np.array([w / 2, h / 2])
-        boxes = np.column_stack([centres - half, centres + half])
-        if len(placed):
-            ox = np.clip(np.minimum(boxes[:, None, 2], placed[None, :, 2])
-                         - np.maximum(boxes[:, None, 0], placed[None, :, 0]) + 2, 0, None)
-            oy = np.clip(np.minimum(boxes[:, None, 3], placed[None, :, 3])
-                         - np.maximum(boxes[:, None, 1], placed[None, :, 1]) + 2, 0, None)
-            overlap = (ox * oy).sum(axis=1)
+    w, h = sizes[:, 0:1], sizes[:, 1:2]
+    up = gap + h / 2
+    side = gap + w / 2
+    zero = np.zeros_like(w)
+    # Candidate offsets of each tag's centre from its anchor, in order of preference: (N, 12).
+    dx = np.hstack([zero, -side, side, -side - 2, side + 2, zero, -side, side,
+                    -w - side, w + side, zero, zero])
+    dy = np.hstack([-up, -up, -up, zero, zero, -up - h - 2, -up - h - 2, -up - h - 2,
+                    -up, -up, up, -up - 2 * h - 4])
+    cx = anchors[:, 0:1] + dx
+    cy = anchors[:, 1:2] + dy
+    boxes = np.stack([cx - w / 2, cy - h / 2, cx + w / 2, cy + h / 2], axis=2)  # (N, 12, 4)
+    covered = _points_in_boxes(pts, boxes)
+    preference = np.arange(boxes.shape[1]) * 1e-3
+    placed = np.zeros((n, 4))  # x0, y0, x1, y1 of the tags placed so far
+    for m, i in enumerate(np.argsort(anchors[:, 1], kind="stable")):
+        b = boxes[i]
+        if m:
+            q = placed[:m]
+            ox = np.minimum(b[:, None, 2], q[None, :, 2]) - np.maximum(b[:, None, 0], q[None, :, 0])
+            oy = np.minimum(b[:, None, 3], q[None, :, 3]) - np.maximum(b[:, None, 1], q[None, :, 1])
+            overlap = (np.clip(ox + 2, 0, None) * np.clip(oy + 2, 0, None)).sum(axis=1)
         else:
-            overlap = np.zeros(len(boxes))
-        if len(pts):
-            px, py = pts[None, :, 0], pts[None, :, 1]
-            inside = ((px >= boxes[:, None, 0]) & (px <= boxes[:, None, 2])
-                      & (py >= boxes[:, None, 1]) & (py <= boxes[:, None, 3]))
-            covered = inside.sum(axis=1)
-        else:
-            covered = np.zeros(len(boxes))
+            overlap = np.zeros(len(b))
         free = overlap == 0
         if free.any():
             # Among free places, prefer covering no joint, then the order of preference.
-            cost = np.where(free, covered * 1.0, np.inf) + np.arange(len(boxes)) * 1e-3
+            cost = np.where(free, covered[i], np.inf) + preference
         else:
-            cost = overlap * 1e3 + covered + np.arange(len(boxes)) * 1e-3
+            cost = overlap * 1e3 + covered[i] + preference
         best = int(np.argmin(cost))
-        out[i] = centres[best]
-        placed = np.vstack([placed, boxes[best]])
+        out[i] = (cx[i, best], cy[i, best])
+        placed[m] = b[best]
     return out
+
+
+def _points_in_boxes(pts: np.ndarray, boxes: np.ndarray, cell: float = 4.0) -> np.ndarray:
+    """How many of ``pts`` ``(P, 2)`` fall in each box of ``boxes`` ``(..., 4)``, counted on a
+    grid of ``cell`` pixels (a summed-area table: four lookups per box).
+
+    Examples
+    --------
+    >>> pts = np.array([[10.0, 10.0], [11.0, 12.0], [50.0, 50.0]])
+    >>> _points_in_boxes(pts, np.array([[0.0, 0.0, 20.0, 20.0], [40.0, 40.0, 60.0, 60.0]]))
+    array([2, 1])
+    """
+    shape = boxes.shape[:-1]
+    if not len(pts):
+        return np.zeros(shape, dtype=np.int64)
+    lo = np.minimum(pts.min(axis=0), boxes[..., :2].reshape(-1, 2).min(axis=0)) - cell
+    hi = np.maximum(pts.max(axis=0), boxes[..., 2:].reshape(-1, 2).max(axis=0)) + cell
+    nx, ny = (np.ceil((hi - lo) / cell).astype(int) + 1).tolist()
+    gx = ((pts[:, 0] - lo[0]) // cell).astype(int)
+    gy = ((pts[:, 1] - lo[1]) // cell).astype(int)
+    grid = np.bincount(gy * nx + gx, minlength=nx * ny).reshape(ny, nx)
+    table = np.zeros((ny + 1, nx + 1), dtype=np.int64)
+    table[1:, 1:] = grid.cumsum(axis=0).cumsum(axis=1)
+    x0 = ((boxes[..., 0] - lo[0]) // cell).astype(int)
+    y0 = ((boxes[..., 1] - lo[1]) // cell).astype(int)
+    x1 = ((boxes[..., 2] - lo[0]) // cell).astype(int) + 1
+    y1 = ((boxes[..., 3] - lo[1]) // cell).astype(int) + 1
+    return table[y1, x1] - table[y0, x1] - table[y1, x0] + table[y0, x0]
 
 
 def tag_anchor(points: np.ndarray, labelled: np.ndarray) -> np.ndarray | None:
@@ -423,7 +450,7 @@ def paint_overlay(painter: QPainter, people: Sequence[_PersonLike], skeleton: Sk
     colours = dict(style.colours) if style.colours is not None else {}
     if any(p.id not in colours for p in people):
         colours = assign_colours(people, colours)
-    geo = _Geometry(people, skeleton, transform, style)
+    geo = _geometry(people, skeleton, transform, style)
 
     painter.save()
     painter.setWorldTransform(QTransform())
@@ -491,9 +518,51 @@ class _Geometry:
             on &= length > 2 * cut + 1
         self.sure = on & ~unsure
         self.unsure = on & unsure
+        self._lines: dict[tuple[int, bool], list[QLineF]] = {}
+
+    def lines(self, i: int, dashed: bool) -> list[QLineF]:
+        """Person ``i``'s solid (or dashed) limbs as line objects, made once."""
+        key = (i, dashed)
+        got = self._lines.get(key)
+        if got is None:
+            mask = self.unsure[i] if dashed else self.sure[i]
+            got = self._lines[key] = [QLineF(*e) for e in self.ends[i][mask].tolist()]
+        return got
+
+    def anchors(self) -> tuple[np.ndarray, np.ndarray]:
+        """Where each person's tag hangs (see :func:`tag_anchor`), for all people at once,
+        and which people have one."""
+        y = np.where(self.labelled, self.pts[..., 1], np.inf)
+        top = y.min(axis=1)
+        has = np.isfinite(top)
+        near = self.labelled & (self.pts[..., 1] <= top[:, None] + 12)
+        count = np.maximum(near.sum(axis=1), 1)
+        x = np.where(near, self.pts[..., 0], 0).sum(axis=1) / count
+        return np.column_stack([x, np.where(has, top, 0)]), has
 
 
 _KIND = {Side.LEFT: 0, Side.RIGHT: 1, Side.CENTRE: 2}
+
+_GEOMETRY: OrderedDict[tuple[Any, ...], tuple[_Geometry, list[Any]]] = OrderedDict()
+
+
+def _geometry(people: list[_PersonLike], skeleton: Skeleton, transform: QTransform,
+              style: OverlayStyle) -> _Geometry:
+    """:class:`_Geometry`, remembered while the people and the view stay the same (repaints
+    for hover, selection or exposure then skip the arithmetic and the line lists)."""
+    key = (tuple((p.id, id(p.keypoints)) for p in people), id(skeleton),
+           transform.m11(), transform.m12(), transform.m21(), transform.m22(),
+           transform.dx(), transform.dy(), style.joint_radius)
+    hit = _GEOMETRY.get(key)
+    if hit is not None:
+        _GEOMETRY.move_to_end(key)
+        return hit[0]
+    geo = _Geometry(people, skeleton, transform, style)
+    # The arrays are kept with the entry so that their ids cannot be reused meanwhile.
+    _GEOMETRY[key] = (geo, [p.keypoints for p in people])
+    if len(_GEOMETRY) > 4:
+        _GEOMETRY.popitem(last=False)
+    return geo
 
 _PENS: dict[tuple[Any, ...], QPen] = {}
 
@@ -530,7 +599,7 @@ def _paint_limbs(painter: QPainter, geo: _Geometry, i: int, colour: QColor, sele
     sure, unsure = geo.sure[i], geo.unsure[i]
     aa = QPainter.RenderHint.Antialiasing
     if sure.any():
-        lines = [QLineF(*e) for e in geo.ends[i][sure].tolist()]
+        lines = geo.lines(i, False)
         painter.setRenderHint(aa, False)
         painter.setPen(_pen(OUTLINE, out_w))
         painter.drawLines(lines)
@@ -538,7 +607,7 @@ def _paint_limbs(painter: QPainter, geo: _Geometry, i: int, colour: QColor, sele
         painter.setPen(_pen(colour, width))
         painter.drawLines(lines)
     if unsure.any():
-        lines = [QLineF(*e) for e in geo.ends[i][unsure].tolist()]
+        lines = geo.lines(i, True)
         # Qt dash patterns are in units of the pen width; scale so both pens dash alike.
         painter.setRenderHint(aa, False)
         painter.setPen(_pen(OUTLINE, out_w, dash=[d / out_w for d in _DASH_PX]))
@@ -738,15 +807,12 @@ def _paint_tags(painter: QPainter, geo: _Geometry, people: list[_PersonLike],
                 style: OverlayStyle, dpr: float) -> dict[int, QRectF]:
     metrics = _tag_metrics(style.tag_font_px)
     h = metrics.height() + 2
-    with_anchor: list[tuple[int, np.ndarray]] = []
-    for i in range(len(people)):
-        anchor = tag_anchor(geo.pts[i], geo.labelled[i])
-        if anchor is not None:
-            with_anchor.append((i, anchor))
+    all_anchors, has = geo.anchors()
+    with_anchor = [(int(i), all_anchors[i]) for i in np.flatnonzero(has)]
     if not with_anchor:
         return {}
-    anchors = np.array([a for _, a in with_anchor])
-    sizes = np.array([(max(metrics.horizontalAdvance(str(numbers[people[i].id])) + 8, h), h)
+    anchors = all_anchors[has]
+    sizes = np.array([(max(_advance(metrics, str(numbers[people[i].id])) + 8, h), h)
                       for i, _ in with_anchor], dtype=float)
     obstacles = geo.pts[geo.labelled]
     gap = style.joint_radius + 4
@@ -779,6 +845,15 @@ def _paint_tags(painter: QPainter, geo: _Geometry, people: list[_PersonLike],
 
 
 _METRICS: dict[int, QFontMetrics] = {}
+_ADVANCES: dict[tuple[int, str], int] = {}
+
+
+def _advance(metrics: QFontMetrics, text: str) -> int:
+    key = (id(metrics), text)
+    got = _ADVANCES.get(key)
+    if got is None:
+        got = _ADVANCES[key] = metrics.horizontalAdvance(text)
+    return got
 
 
 def _tag_font(px: int) -> QFont:

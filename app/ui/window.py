@@ -115,6 +115,7 @@ class MainWindow(QMainWindow):
         self._closed = False
         self._remember_layout = restore_layout
         self._layout_restored = True
+        self._panels_for: int | None = None
 
         self.actions_by_name: dict[str, QAction] = {}
         self._build_actions()
@@ -145,6 +146,7 @@ class MainWindow(QMainWindow):
         self.loader.ready.connect(self._image_ready)
         self.loader.failed.connect(self._image_failed)
         self.loader.refined.connect(self._image_refined)
+        self.canvas.framePainted.connect(self._frame_painted, Qt.ConnectionType.QueuedConnection)
         self.canvas.selectionChanged.connect(self._selection_changed)
         self.canvas.editRequested.connect(self._canvas_edit)
         self.canvas.personPicked.connect(self._merge_picked)
@@ -361,16 +363,22 @@ class MainWindow(QMainWindow):
         flags = self._flags(frame.id)
         decoded = self.loader.request(frame.id, self.project.image_path(frame), urgent=True)
         self.canvas.set_frame(frame, people, flags, decoded)
-        if decoded is not None:
-            self._prefetch(frame.id)
-        # Otherwise the neighbours wait until this frame's image is in: on a busy machine
-        # their decoding would compete with the one the annotator is waiting for.
+        # The neighbours are decoded once this frame is on screen (framePainted): on a busy
+        # machine their decoding would compete with the frame the annotator is waiting for.
         self.owners.people_model.set_people(people, flags, self.canvas.colours)
-        self.notes_model.set_frame(frame.id, {p.id: n + 1 for n, p in enumerate(people)})
-        self.ledger_model.set_scope(frame.id, self.ledger_model.whole_project)
         self.worklist.show_frame(frame.id)
         self._selection_changed()
         self._update_status()
+        # The Ledger and Notes follow a moment later, after the Canvas has shown the frame.
+        self._panels_for = frame.id
+        QTimer.singleShot(0, self._refresh_side_panels)
+
+    def _refresh_side_panels(self) -> None:
+        if self._closed or self.frame_id is None or self._panels_for != self.frame_id:
+            return
+        self.notes_model.set_frame(self.frame_id,
+                                   {p.id: n + 1 for n, p in enumerate(self.canvas.people)})
+        self.ledger_model.set_scope(self.frame_id, self.ledger_model.whole_project)
 
     def _prefetch(self, frame_id: int) -> None:
         """Decode the frames the annotator is likely to want next: the next two of the
@@ -412,6 +420,10 @@ class MainWindow(QMainWindow):
     def _image_ready(self, frame_id: int) -> None:
         if frame_id == self.frame_id and not self.canvas.has_image:
             self.canvas.set_image(self.loader.cache.get(frame_id))
+
+    def _frame_painted(self, frame_id: int) -> None:
+        """The frame is on screen: now improve its picture and prepare the next ones."""
+        if frame_id == self.frame_id and not self._closed:
             self.loader.refine(frame_id)
             self._prefetch(frame_id)
 

@@ -102,11 +102,26 @@ def _bench_paint() -> list[dict]:
     canvas.select_joint(people[3].id, 9)
     t_paint = median_seconds(canvas.repaint, repeat=60, warmup=3)
     cpu = _median_thread_time(canvas.repaint, 60)
+
+    from app.ui import overlay
+
+    def first_paint() -> None:
+        # Nothing remembered: screen geometry, tag layout and colours are worked out anew.
+        overlay._GEOMETRY.clear()
+        overlay._TAG_LAYOUTS.clear()
+        canvas.set_frame(frame, people, flags, decoded)
+        canvas.repaint()
+
+    t_first = median_seconds(first_paint, repeat=30, warmup=2)
     canvas.close()
     return [row("Canvas paint, 1920x1080 frame, 40 people (median)", t_paint * 1e3, "ms",
                 "<= 8 ms", t_paint <= 8e-3,
                 f"Canvas 1400x800, fit zoom; image alone {t_base * 1e3:.2f} ms; CPU time of "
-                f"the painting thread {cpu * 1e3:.2f} ms; {_load()}")]
+                f"the painting thread {cpu * 1e3:.2f} ms; {_load()}"),
+            row("Canvas first paint of that frame, nothing remembered (median)",
+                t_first * 1e3, "ms", "<= 16 ms", t_first <= 16e-3,
+                "colours, screen geometry and tag layout worked out anew: the paint part of a "
+                "frame switch, so held to the switch budget")]
 
 
 def _median_thread_time(fn: Callable[[], object], repeat: int) -> float:
@@ -160,31 +175,36 @@ def _bench_switch() -> list[dict]:
         app.processEvents()
 
         def shown(fid: int) -> float:
+            """From asking for the frame to the end of the Canvas's first paint with its
+            image (the Canvas stamps that moment)."""
             t0 = time.perf_counter()
             window.show_frame(fid)
-            while True:
+            while window.canvas.painted_frame != fid:
                 app.processEvents()
-                if window.canvas.painted_frame == fid:
-                    break
-                if window.canvas.has_image:
+                if window.canvas.has_image and window.canvas.painted_frame != fid:
                     window.canvas.repaint()
-                else:
+                elif not window.canvas.has_image:
                     time.sleep(0.0005)
-            return time.perf_counter() - t0
+            return window.canvas.painted_at - t0
 
         shown(1)
         cold, warm = [], []
         ids = window.worklist.ordered_ids()
+        def settle() -> None:
+            """Let the background work of the frame on screen (refining its picture,
+            prefetching its neighbours) finish, as it does while an annotator looks."""
+            for _ in range(100):
+                window.loader.wait()
+                app.processEvents()
+                if window.loader.idle():
+                    return
+
         for fid in ids[1:]:
-            window.loader.wait()
-            app.processEvents()
+            settle()
             window.loader.cache.clear()
             cold.append(shown(fid))
         for fid in ids:
-            # The neighbours of the shown frame are being prefetched; wait for them as an
-            # annotator looking at a frame for a moment would.
-            window.loader.wait()
-            app.processEvents()
+            settle()
             warm.append(shown(fid))
         decode = median_seconds(lambda: cv2.imread(str(images / "f003.jpg")), repeat=10)
         window.shutdown()

@@ -98,3 +98,35 @@ def test_urgent_frames_are_shrunk_quickly_then_refined(qtbot, tmp_path):
     np.testing.assert_array_equal(better.scaled, ref)
     assert loader.cache.nbytes == better.nbytes
     loader.shutdown()
+
+
+def test_an_urgent_frame_does_not_wait_behind_prefetches(qtbot, tmp_path, monkeypatch):
+    import time
+
+    import app.ui.images as images
+
+    for i in range(1, 5):
+        cv2.imwrite(str(tmp_path / f"{i}.png"), np.full((8, 8, 3), i, np.uint8))
+    real = images.decode_image
+    started = threading.Event()
+
+    def slow_first(path):
+        if path.name == "1.png":
+            started.set()
+            time.sleep(0.3)
+        return real(path)
+
+    monkeypatch.setattr(images, "decode_image", slow_first)
+    loader = ImageLoader(ImageCache(), threads=1)
+    for i in (1, 2, 3):
+        loader.request(i, tmp_path / f"{i}.png")
+    assert started.wait(5)
+    order = []
+    loader.ready.connect(order.append)
+    with qtbot.waitSignal(loader.ready, timeout=5000, check_params_cb=lambda f: f == 4):
+        loader.request(4, tmp_path / "4.png", urgent=True)
+    assert not loader.is_pending(2) and not loader.is_pending(3), "queued prefetches withdrawn"
+    assert 2 not in order and 3 not in order
+    with qtbot.waitSignal(loader.ready, timeout=5000, check_params_cb=lambda f: f == 2):
+        loader.request(2, tmp_path / "2.png")  # and can be asked for again
+    loader.shutdown()
