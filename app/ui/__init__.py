@@ -12,7 +12,3 @@ one overlay painter shared by the Canvas and the headless ``render`` command.
 Every change goes through :meth:`app.store.Project.apply` (or undo, redo, return-to); nothing
 here writes to the database directly.
 """
-
-from app.ui._compat import shield_singletons
-
-shield_singletons()
