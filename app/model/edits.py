@@ -12,6 +12,7 @@ Targets and their values (all JSON-ready):
 - ``("joint", pid, j)``: ``[x, y, v, score, source]`` of one joint of an existing person.
 - ``("state",)``: the frame's state, a :class:`FrameState` value.
 - ``("note", nid)``: a note's value or ``None``.
+- ``("region", rid)``: an ignore region's value (:meth:`Region.to_value`) or ``None``.
 
 Edits are refused with :class:`~app.errors.EditRefused` (and nothing changes) when they would
 make the labels inconsistent; the message says why and what to do.
@@ -27,7 +28,7 @@ from typing import Any, ClassVar
 import numpy as np
 
 from app.errors import EditRefused
-from app.model.labels import FrameLabels, FrameState, Note, Person
+from app.model.labels import FrameLabels, FrameState, Note, Person, Region
 
 Target = tuple[Any, ...]
 
@@ -48,7 +49,7 @@ class Change:
         kind = self.target[0]
         if kind == "joint":
             return f"person:{self.target[1]}/joint:{self.target[2]}"
-        if kind in ("person", "note"):
+        if kind in ("person", "note", "region"):
             return f"{kind}:{self.target[1]}"
         return kind
 
@@ -73,6 +74,9 @@ def _current(labels: FrameLabels, target: Target) -> Any:
     if kind == "note":
         n = labels.notes.get(target[1])
         return None if n is None else n.to_value()
+    if kind == "region":
+        r = labels.regions.get(target[1])
+        return None if r is None else r.to_value()
     raise EditRefused(f"unknown change target {target!r}")
 
 
@@ -80,6 +84,7 @@ def apply_changes(labels: FrameLabels, changes: Iterable[Change]) -> FrameLabels
     """The labels after ``changes``, applied in order (the input is not modified)."""
     people = dict(labels.people)
     notes = dict(labels.notes)
+    regions = dict(labels.regions)
     state = labels.state
     for ch in changes:
         kind = ch.target[0]
@@ -102,9 +107,15 @@ def apply_changes(labels: FrameLabels, changes: Iterable[Change]) -> FrameLabels
                 notes.pop(nid, None)
             else:
                 notes[nid] = Note.from_value(nid, labels.frame_id, ch.after)
+        elif kind == "region":
+            rid = ch.target[1]
+            if ch.after is None:
+                regions.pop(rid, None)
+            else:
+                regions[rid] = Region.from_value(rid, labels.frame_id, ch.after)
         else:
             raise EditRefused(f"unknown change target {ch.target!r}")
-    return replace(labels, people=people, notes=notes, state=state)
+    return replace(labels, people=people, notes=notes, state=state, regions=regions)
 
 
 class Edit:
@@ -416,6 +427,78 @@ class AddNote(Edit):
         return "add note"
 
 
+def _polygons(polygons: Any) -> tuple[tuple[float, ...], ...]:
+    out = []
+    for n, poly in enumerate(polygons):
+        flat = np.asarray(poly, dtype=np.float64).reshape(-1)
+        if flat.size < 6 or flat.size % 2 or not np.isfinite(flat).all():
+            raise EditRefused(f"region polygon {n} needs at least three finite (x, y) points")
+        out.append(tuple(float(v) for v in flat))
+    if not out:
+        raise EditRefused("a region needs at least one polygon")
+    return tuple(out)
+
+
+@dataclass(frozen=True)
+class AddRegion(Edit):
+    """Add an ignore region (one or more polygons, flat ``[x0, y0, x1, y1, ...]`` in image
+    pixels; the store fills in a fresh id). Training ignores everything inside it."""
+
+    frame_id: int
+    polygons: tuple[tuple[float, ...], ...]
+    region_id: int | None = None
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        if self.region_id is None:
+            raise EditRefused("a region needs an id (the store assigns one)")
+        if self.region_id in labels.regions:
+            raise EditRefused(f"region {self.region_id} already exists")
+        region = Region(self.region_id, self.frame_id, _polygons(self.polygons))
+        return [Change(("region", self.region_id), None, region.to_value())]
+
+    def summary(self) -> str:
+        return "add an ignore region"
+
+
+@dataclass(frozen=True)
+class ReshapeRegion(Edit):
+    """Give an ignore region new polygons (its imported fields are kept)."""
+
+    frame_id: int
+    region_id: int
+    polygons: tuple[tuple[float, ...], ...]
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        old = labels.regions.get(self.region_id)
+        if old is None:
+            raise EditRefused(f"frame {self.frame_id} has no region {self.region_id}")
+        extra = {k: v for k, v in old.extra.items() if k not in ("segmentation", "bbox", "area")}
+        new = Region(old.id, old.frame_id, _polygons(self.polygons), extra)
+        if new == old:
+            return []
+        return [Change(("region", old.id), old.to_value(), new.to_value())]
+
+    def summary(self) -> str:
+        return f"reshape ignore region {self.region_id}"
+
+
+@dataclass(frozen=True)
+class DeleteRegion(Edit):
+    """Remove an ignore region."""
+
+    frame_id: int
+    region_id: int
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        old = labels.regions.get(self.region_id)
+        if old is None:
+            raise EditRefused(f"frame {self.frame_id} has no region {self.region_id}")
+        return [Change(("region", old.id), old.to_value(), None)]
+
+    def summary(self) -> str:
+        return f"delete ignore region {self.region_id}"
+
+
 @dataclass(frozen=True)
 class Restore(Edit):
     """Apply recorded changes verbatim, checking that each target still holds ``before``.
@@ -473,4 +556,5 @@ def with_person_id(edit: Edit, person_id: int) -> Edit:
 
 
 def labels_changed(changes: Sequence[Change]) -> bool:
-    return any(c.target[0] in ("person", "joint") for c in changes)
+    """Whether any change touches what training sees: people, joints or ignore regions."""
+    return any(c.target[0] in ("person", "joint", "region") for c in changes)

@@ -163,6 +163,29 @@ class Note:
 
 
 @dataclass(frozen=True)
+class Region:
+    """An ignore region: part of a frame too crowded or too small to label, left out of training.
+
+    ``polygons`` are flat ``[x0, y0, x1, y1, ...]`` lists in image pixels (a rectangle is four
+    corners); ``extra`` keeps the fields of an imported COCO crowd annotation for the round trip.
+    """
+
+    id: int
+    frame_id: int
+    polygons: tuple[tuple[float, ...], ...]
+    extra: Mapping[str, Any] = field(default_factory=dict)
+
+    def to_value(self) -> dict[str, Any]:
+        return {"polygons": [list(p) for p in self.polygons], "extra": dict(self.extra)}
+
+    @staticmethod
+    def from_value(region_id: int, frame_id: int, value: Mapping[str, Any]) -> Region:
+        return Region(region_id, frame_id,
+                      tuple(tuple(float(v) for v in p) for p in value["polygons"]),
+                      dict(value.get("extra") or {}))
+
+
+@dataclass(frozen=True)
 class Frame:
     """One image of the project.
 
@@ -185,13 +208,14 @@ class Frame:
 
 @dataclass(frozen=True)
 class FrameLabels:
-    """Everything an edit can touch in one frame: its people, its state and its notes."""
+    """Everything an edit can touch in one frame: its people, state, notes and ignore regions."""
 
     frame_id: int
     skeleton: Skeleton
     people: Mapping[int, Person]
     state: FrameState = FrameState.UNTOUCHED
     notes: Mapping[int, Note] = field(default_factory=dict)
+    regions: Mapping[int, Region] = field(default_factory=dict)
 
     @property
     def num_joints(self) -> int:
@@ -210,4 +234,5 @@ class FrameLabels:
             and self.people.keys() == other.people.keys()
             and all(p.same_as(other.people[i]) for i, p in self.people.items())
             and dict(self.notes) == dict(other.notes)
+            and dict(self.regions) == dict(other.regions)
         )

@@ -40,6 +40,7 @@ from app.formats.images import ImageInfo, find_images, probe_image
 from app.formats.video import extract_frames, probe_video
 from app.model.edits import (
     AddNote,
+    AddRegion,
     Change,
     Edit,
     EditContext,
@@ -49,7 +50,7 @@ from app.model.edits import (
     needs_person_id,
     with_person_id,
 )
-from app.model.labels import Frame, FrameLabels, FrameState, Note, Person
+from app.model.labels import Frame, FrameLabels, FrameState, Note, Person, Region
 from app.model.skeleton import Skeleton, coco_body, skeleton_from_dict
 from app.progress import Progress
 from app.store.schema import SCHEMA_VERSION, migrate, schema_version
@@ -105,7 +106,7 @@ def _parse_target(text: str) -> tuple[Any, ...]:
     kind, _, ident = parts[0].partition(":")
     if kind == "person" and len(parts) == 2:
         return ("joint", int(ident), int(parts[1].partition(":")[2]))
-    if kind in ("person", "note"):
+    if kind in ("person", "note", "region"):
         return (kind, int(ident))
     raise PosewrightError(f"ledger target {text!r} is not a change")
 
@@ -461,6 +462,8 @@ class Project:
         return FrameLabels(
             frame.id, self.skeleton, {p.id: p for p in self.people(frame.id)}, frame.state,
             {n.id: n for n in self.notes(frame.id)},
+            {rid: Region(rid, frame.id, tuple(tuple(p) for p in polys), extra)
+             for rid, polys, extra in self.regions(frame.id)},
         )
 
     def history(self, frame_id: int | None = None, limit: int | None = None) -> list[LedgerEntry]:
@@ -523,6 +526,8 @@ class Project:
                 edit = with_person_id(edit, self._allocate("next_person_id"))
             if isinstance(edit, AddNote) and edit.note_id is None:
                 edit = replace(edit, note_id=self._allocate("next_note_id"))
+            if isinstance(edit, AddRegion) and edit.region_id is None:
+                edit = replace(edit, region_id=self._next_region_id())
             labels = self.labels(edit.frame_id)
             ctx = EditContext(author or self.author, time.time())
             new_labels, changes = edit.apply(labels, ctx)
@@ -625,6 +630,13 @@ class Project:
                     "VALUES (?, ?, ?, ?, ?, ?, ?, ?)", (new.frame_id, *_encode_person(person)))
         if new.state != old.state:
             c.execute("UPDATE frames SET state = ? WHERE id = ?", (new.state.value, new.frame_id))
+        for rid in {ch.target[1] for ch in changes if ch.target[0] == "region"}:
+            region = new.regions.get(rid)
+            c.execute("DELETE FROM regions WHERE id = ?", (rid,))
+            if region is not None:
+                c.execute("INSERT INTO regions (id, frame_id, polygons, extra) VALUES (?, ?, ?, ?)",
+                          (rid, new.frame_id, json.dumps([list(p) for p in region.polygons]),
+                           json.dumps(dict(region.extra))))
         for nid in {ch.target[1] for ch in changes if ch.target[0] == "note"}:
             note = new.notes.get(nid)
             c.execute("DELETE FROM notes WHERE id = ?", (nid,))
@@ -643,6 +655,14 @@ class Project:
               json.dumps(c.before), json.dumps(c.after), reverts) for f, c in changes],
         )
         return group
+
+    def _next_region_id(self) -> int:
+        # Imported regions take their ids from SQLite; edits must never reuse one, even one
+        # whose region was deleted (the ledger would then name two regions alike).
+        top = self._conn.execute("SELECT max(id) FROM regions").fetchone()[0] or 0
+        value = max(int(self._meta.get("next_region_id", "1")), top + 1)
+        self._set_meta("next_region_id", str(value + 1))
+        return value
 
     def _allocate(self, key: str) -> int:
         value = int(self._meta.get(key, "1"))

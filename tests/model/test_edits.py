@@ -8,7 +8,9 @@ from hypothesis import strategies as st
 from app.errors import EditRefused
 from app.model import (
     AddNote,
+    AddRegion,
     DeletePerson,
+    DeleteRegion,
     EditContext,
     FrameLabels,
     FrameState,
@@ -17,6 +19,7 @@ from app.model import (
     NewPerson,
     Person,
     ReassignJoint,
+    ReshapeRegion,
     SetFrameState,
     SetVisibility,
     SplitPerson,
@@ -139,6 +142,9 @@ def _edit_from(choice, labels):
         lambda: SwapSides(1, pid),
         lambda: SetFrameState(1, list(FrameState)[b % 4]),
         lambda: AddNote(1, f"note {a}", None, 100 + a),
+        lambda: AddRegion(1, ((x, y, x + 5, y, x, y + 5),), 200 + a),
+        lambda: DeleteRegion(1, 200 + b),
+        lambda: ReshapeRegion(1, 200 + b, ((x, y, x + 7, y, x, y + 3),)),
     ]
     return options[kind % len(options)]()
 

@@ -16,12 +16,15 @@ from hypothesis import strategies as st
 from app.errors import BadInput, EditRefused, NotFound, ReadOnly
 from app.model import (
     AddNote,
+    AddRegion,
     DeletePerson,
+    DeleteRegion,
     FrameState,
     MergePeople,
     MoveJoint,
     NewPerson,
     ReassignJoint,
+    ReshapeRegion,
     SetFrameState,
     SetVisibility,
     SplitPerson,
@@ -213,6 +216,8 @@ def test_durability_settings(project):
 def _edit(choice, project, frame_id):
     kind, a, b, c, x, y = choice
     ids = [p.id for p in project.people(frame_id)]
+    regions = [r[0] for r in project.regions(frame_id)]
+    region = regions[c % len(regions)] if regions else 999
     pid = ids[a % len(ids)] if ids else 999
     other = ids[b % len(ids)] if ids else 999
     j = c % 17
@@ -227,6 +232,9 @@ def _edit(choice, project, frame_id):
         lambda: SwapSides(frame_id, pid),
         lambda: SetFrameState(frame_id, list(FrameState)[b % 4]),
         lambda: AddNote(frame_id, f"note {a}", None),
+        lambda: AddRegion(frame_id, ((x, y, x + 40, y, x + 40, y + 30),)),
+        lambda: DeleteRegion(frame_id, region),
+        lambda: ReshapeRegion(frame_id, region, ((x, y, x + 9, y + 2, x + 3, y + 8),)),
     ]
     return options[kind % len(options)]()
 
@@ -295,3 +303,23 @@ def test_older_project_is_migrated_forward(tmp_path, image_dir):
     conn = sqlite3.connect(db)
     assert conn.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION
     conn.close()
+
+
+def test_ignore_regions_are_undoable_edits_and_export_as_crowd(project, tmp_path):
+    """COCO keypoints format: an ignore region leaves as an ``iscrowd: 1`` annotation."""
+    from app.jobs import export_coco
+
+    rid = project.apply(AddRegion(2, ((10.0, 10.0, 60.0, 10.0, 60.0, 40.0, 10.0, 40.0),))
+                        ).edit.region_id
+    assert project.frame(2).state is FrameState.CORRECTED
+    project.apply(ReshapeRegion(2, rid, ((10.0, 10.0, 90.0, 10.0, 50.0, 70.0),)))
+    out = tmp_path / "out.json"
+    export_coco(project, out)
+    crowd = [a for a in json.loads(out.read_text())["annotations"] if a["iscrowd"]]
+    assert crowd[0]["segmentation"] == [[10.0, 10.0, 90.0, 10.0, 50.0, 70.0]]
+    assert crowd[0]["area"] == pytest.approx(0.5 * 80 * 60)
+    project.undo()
+    project.undo()
+    assert project.regions(2) == [] and project.frame(2).state is FrameState.UNTOUCHED
+    project.redo()
+    assert project.regions(2)[0][0] == rid
