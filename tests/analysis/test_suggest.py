@@ -38,7 +38,7 @@ def test_with_maps_the_field_settles_an_equidistant_joint():
     b = np.zeros((17, 3))
     torso = np.array([[0, 0], [-52, 0], [0, 58], [-38, 58]], dtype=float)  # shoulders, hips
     for kp, x0 in ((a, 100.0), (b, 180.0)):
-        kp[[5, 6, 11, 12], :2] = torso + (x0, 100.0)
+        kp[[5, 6, 11, 12], :2] = torso + np.array([x0, 100.0])
         kp[[5, 6, 11, 12], 2] = 2
     a[LE] = (100.0, 150.0, 2)
     b[LE] = (180.0, 150.0, 2)
@@ -67,6 +67,6 @@ def test_exclude_and_people_without_neighbours():
 
 
 def test_a_receiver_that_has_the_joint_is_marked_as_a_swap():
-    a, b = _two_people_side_by_side(gap=220.0)
+    _, b = _two_people_side_by_side(gap=220.0)
     ranked = candidate_owners({2: b}, LW, b[LW, :2], SK)
     assert "swap" in ranked[0].reason and ranked[0].score <= 0.8

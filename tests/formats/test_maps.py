@@ -55,12 +55,13 @@ def test_pickled_objects_and_junk_are_refused(tmp_path):
 
 
 def test_files_match_frames_by_name_and_strays_are_refused(tmp_path):
-    frames = [Frame(1, "i/a.jpg", "a.jpg", 320, 240), Frame(2, "i/sub/b.png", "sub/b.png", 320, 240)]
+    frames = [Frame(1, "i/a.jpg", "a.jpg", 320, 240),
+              Frame(2, "i/sub/b.png", "sub/b.png", 320, 240)]
     (tmp_path / "sub").mkdir()
     _write(tmp_path / "a.npz", **_good())
     _write(tmp_path / "sub" / "b.npz", **_good())
     assert match_map_files(tmp_path, frames) == {1: tmp_path / "a.npz",
                                                  2: tmp_path / "sub" / "b.npz"}
     _write(tmp_path / "stray.npz", **_good())
-    with pytest.raises(BadInput, match="stray.npz: matches no image"):
+    with pytest.raises(BadInput, match=r"stray\.npz: matches no image"):
         match_map_files(tmp_path, frames)
