@@ -15,8 +15,23 @@ practice, no source.
 from __future__ import annotations
 
 import numpy as np
+from scipy.sparse.csgraph import shortest_path
 
 from app.model.skeleton import Skeleton
+
+#: Heights of body landmarks above the floor as fractions of stature, for a person standing
+#: upright: Drillis and Contini (1966) as drawn in Winter's Fig. 4.1, from memory. Triage reads
+#: from it how far the shoulders stand above the ankles (0.818 - 0.039 = 0.779 of stature).
+LANDMARK_HEIGHTS: dict[str, float] = {
+    "eye": 0.936,
+    "chin": 0.870,
+    "shoulder": 0.818,
+    "elbow": 0.630,
+    "hip": 0.530,
+    "wrist": 0.485,
+    "knee": 0.285,
+    "ankle": 0.039,
+}
 
 #: Longest plausible length / stature of each limb, by the two joint names (order free). For
 #: body segments that is the segment's length, from memory of Winter, Fig. 4.1 (Drillis and
@@ -131,3 +146,41 @@ def person_scale(keypoints: np.ndarray, skeleton: Skeleton) -> float:
         elif values:
             estimates.append(max(values))
     return max(estimates) if estimates else float("nan")
+
+
+def reach_matrix(skeleton: Skeleton) -> np.ndarray:
+    """``(K, K)`` the longest plausible distance between every two joints, as a fraction of
+    stature: the shortest chain of limbs joining them, each at its :data:`SEGMENT_FRACTIONS`
+    length. Infinite where no chain of known limbs joins the two; 0 on the diagonal.
+
+    Notes
+    -----
+    Two joints of one body cannot lie farther apart than the segments between them laid end
+    to end (the triangle inequality, applied along the chain), and a 2D projection only
+    shortens. So ``|x_a - x_b| <= reach[a, b] * stature`` holds for every pair of a correctly
+    labelled body, adjacent or not: a wrist farther from the hip than upper arm + forearm +
+    the shoulder-hip side is on someone else. The chain lengths are the shortest paths of the
+    limb graph (``scipy.sparse.csgraph.shortest_path``, Dijkstra).
+
+    References
+    ----------
+    Segment lengths: Drillis and Contini (1966), via Winter, Fig. 4.1 (see the module
+    docstring; from memory).
+
+    Examples
+    --------
+    >>> from app.model.skeleton import coco_body
+    >>> sk = coco_body()
+    >>> reach = reach_matrix(sk)
+    >>> round(float(reach[sk.index("left_hip"), sk.index("left_ankle")]), 3)  # thigh + shank
+    0.491
+    >>> round(float(reach[sk.index("left_shoulder"), sk.index("left_ankle")]), 3)
+    0.779
+    """
+    k = skeleton.num_joints
+    fractions = limb_fractions(skeleton)
+    graph = np.zeros((k, k))
+    for (a, b), f in zip(skeleton.limbs, fractions):
+        if np.isfinite(f) and a != b:
+            graph[a, b] = graph[b, a] = f
+    return np.asarray(shortest_path(graph, method="D", directed=False), dtype=np.float64)

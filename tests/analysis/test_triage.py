@@ -1,0 +1,439 @@
+"""Triage: does it find the wrong auto-labels, and does each check do what it says?
+
+The acceptance measurement (issue 3) runs the whole pipeline on the shipped synthetic demo
+(`demo_project/`, our own invented rehearsal) and judges every grouped person against the
+demo's true poses with an outside referee: OKS as ``pycocotools.cocoeval.COCOeval.computeOks``
+computes it, and a one-to-one pairing by ``scipy.optimize.linear_sum_assignment``. A person is
+wrong when no pairing gives it OKS >= 0.8. The requirement: at least 90 % of the wrong people
+flagged (suspicion >= FLAG_AT) and at least 70 % of the flagged people wrong.
+
+The unit tests use synthetic people (tests/analysis/synth.py, invented) built with the
+Drillis and Contini segment fractions as tabulated in Winter, "Biomechanics and Motor Control
+of Human Movement" (from memory), so that a correct body has exactly the table's proportions.
+"""
+
+from __future__ import annotations
+
+import json
+import shutil
+from collections import Counter
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pytest
+from pycocotools.coco import COCO
+from pycocotools.cocoeval import COCOeval
+from scipy.optimize import linear_sum_assignment
+
+from app.analysis import triage
+from app.analysis.anthropometry import SEGMENT_FRACTIONS, person_scale
+from app.analysis.targets import part_affinity_fields
+from app.analysis.triage import (
+    FLAG_AT,
+    PRIOR,
+    Reason,
+    crowd_index,
+    limb_support,
+    triage_frame,
+)
+from app.demo import generate
+from app.demo.evaluate import wrong_people
+from app.formats.maps import NetworkMaps
+from app.jobs import open_project
+from app.jobs_analysis import run_triage
+from app.model.skeleton import coco_body
+from tests.analysis.synth import person
+
+SK = coco_body()
+J = {name: i for i, name in enumerate(SK.joints)}
+DEMO = Path(__file__).resolve().parents[2] / "demo_project"
+#: Where a missing auto-label joint is put for pycocotools, which reads no visibility from
+#: detections: far enough from every true joint that its similarity is 0, as OKS counts it.
+FAR = -1.0e5
+
+
+# ------------------------------------------------------------------ the acceptance measure
+
+@dataclass
+class Figures:
+    """Triage against the truth: counts, recall, precision, and per reason kind."""
+
+    people: int = 0
+    wrong: int = 0
+    flagged: int = 0
+    hits: int = 0
+    per_kind: Counter = field(default_factory=Counter)
+    per_kind_wrong: Counter = field(default_factory=Counter)
+    ours_agree: bool = True
+
+    @property
+    def recall(self) -> float:
+        return self.hits / self.wrong
+
+    @property
+    def precision(self) -> float:
+        return self.hits / self.flagged
+
+    def report(self, name: str) -> str:
+        lines = [f"{name}: {self.people} people, {self.wrong} wrong, {self.flagged} flagged, "
+                 f"{self.hits} of them wrong: recall {self.recall:.3f}, precision "
+                 f"{self.precision:.3f}"]
+        for kind in sorted(self.per_kind):
+            n, w = self.per_kind[kind], self.per_kind_wrong[kind]
+            lines.append(f"    {kind:15s} on {n:3d} people, {w / n:.2f} of them wrong")
+        return "\n".join(lines)
+
+
+def _coco_wrong(truth: dict, auto: dict[int, list[np.ndarray]]) -> dict[int, np.ndarray]:
+    """Per image id, which auto-labelled people are wrong, judged by pycocotools' OKS and an
+    optimal one-to-one pairing (scipy): wrong unless paired at OKS >= 0.8."""
+    gt = COCO()
+    gt.dataset = truth
+    gt.createIndex()
+    results = []
+    for image_id, people in auto.items():
+        for n, kp in enumerate(people):
+            xy = np.where(kp[:, 2:3] > 0, kp[:, :2], FAR)
+            flat = np.column_stack([xy, np.ones(len(kp))]).ravel().tolist()
+            # Distinct falling scores keep pycocotools' sort (by score) in our order.
+            results.append({"image_id": image_id, "category_id": 1, "keypoints": flat,
+                            "score": 1.0 - 1e-3 * n})
+    dt = gt.loadRes(results) if results else COCO()
+    judge = COCOeval(gt, dt, iouType="keypoints")
+    judge.params.imgIds = sorted(auto)
+    judge.params.maxDets = [100]
+    judge._prepare()
+    out = {}
+    for image_id, people in auto.items():
+        wrong = np.ones(len(people), dtype=bool)
+        oks = np.asarray(judge.computeOks(image_id, 1), dtype=np.float64)
+        if oks.size:
+            weight = np.where(oks >= 0.8, oks, 0.0)
+            for i, j in zip(*linear_sum_assignment(weight, maximize=True)):
+                if oks[i, j] >= 0.8:
+                    wrong[i] = False
+        out[image_id] = wrong
+    return out
+
+
+def measure(folder: Path) -> Figures:
+    """Build the project from ``folder`` (a copy), triage it and judge it against its truth."""
+    truth = json.loads((folder / "truth.json").read_text(encoding="utf-8"))
+    image_of = {im["file_name"]: im["id"] for im in truth["images"]}
+    anns: dict[int, list[dict]] = {}
+    for a in truth["annotations"]:
+        anns.setdefault(a["image_id"], []).append(a)
+    with open_project(folder) as project:
+        results = run_triage(project)
+        people = project.people_by_frame()
+        frames = project.frames()
+    auto = {image_of[Path(f.file_name).name]: [p.keypoints for p in people.get(f.id, [])]
+            for f in frames}
+    judged = _coco_wrong(truth, auto)
+    fig = Figures()
+    for f in frames:
+        image_id = image_of[Path(f.file_name).name]
+        verdict = results[f.id]
+        ours = wrong_people(auto[image_id],
+                            [np.reshape(a["keypoints"], (-1, 3)) for a in anns[image_id]],
+                            [a["area"] for a in anns[image_id]], SK.sigma_array)
+        fig.ours_agree &= bool(np.array_equal(ours, judged[image_id]))
+        kinds: dict[int, set[str]] = {}
+        for r in verdict.reasons:
+            if r.person is not None:
+                kinds.setdefault(r.person, set()).add(r.kind)
+        for p, wrong in zip(people.get(f.id, []), judged[image_id]):
+            flagged = verdict.suspicion[p.id] >= FLAG_AT
+            fig.people += 1
+            fig.wrong += int(wrong)
+            fig.flagged += int(flagged)
+            fig.hits += int(flagged and wrong)
+            for kind in kinds.get(p.id, ()):
+                fig.per_kind[kind] += 1
+                fig.per_kind_wrong[kind] += int(wrong)
+    return fig
+
+
+def _copy(source: Path, dest: Path) -> Path:
+    """A copy of a demo folder without any project database, so the project is built fresh."""
+    shutil.copytree(source, dest, ignore=shutil.ignore_patterns("project.db*"))
+    return dest
+
+
+def test_triage_finds_the_wrong_people_of_the_demo(tmp_path):
+    """Issue 3's measurement on the shipped demo (synthetic; seed 1966, which took no part in
+    fitting the weights): recall >= 0.9 and precision >= 0.7 of flagged (suspicion >= FLAG_AT)
+    against wrong (no pairing at OKS >= 0.8 by pycocotools' OKS and scipy's assignment).
+    Measured when written: 365 people, 91 wrong, 105 flagged, 86 of them wrong: recall 0.945,
+    precision 0.819."""
+    if not (DEMO / "truth.json").exists():
+        pytest.fail("demo_project/ is missing: regenerate it with app.demo.generate")
+    fig = measure(_copy(DEMO, tmp_path / "demo"))
+    print(fig.report("shipped demo (seed 1966)"))
+    assert fig.ours_agree, "app.demo.evaluate.wrong_people disagrees with pycocotools"
+    assert fig.recall >= 0.9
+    assert fig.precision >= 0.7
+
+
+@pytest.mark.slow
+def test_triage_holds_on_a_held_out_seed(tmp_path):
+    """The same measurement on a rehearsal the weights never saw: seed 9, first 12 frames
+    (synthetic; the weights were fitted on seeds 1-4). Measured when written: 178 people,
+    51 wrong, 58 flagged, 47 of them wrong: recall 0.922, precision 0.810."""
+    folder = tmp_path / "seed9"
+    generate(folder, seed=9, frames=12)
+    fig = measure(folder)
+    print(fig.report("held-out seed 9, 12 frames"))
+    assert fig.recall >= 0.9
+    assert fig.precision >= 0.7
+
+
+# ------------------------------------------------------------------ crafted people
+
+def _body(seed: int = 7, centre=(640.0, 400.0), stature: float = 300.0,
+          front: bool = True) -> np.ndarray:
+    """A synthetic upright person (all joints visible), facing the camera if ``front``."""
+    rng = np.random.default_rng(seed)
+    while True:
+        kp = person(rng, centre, stature)
+        up = (kp[5, :2] + kp[6, :2]) / 2 - (kp[11, :2] + kp[12, :2]) / 2
+        d = kp[5, :2] - kp[6, :2]
+        if (up[0] * d[1] - up[1] * d[0] > 0) == front:
+            return kp
+
+
+def _kinds(t, pid: int) -> set[str]:
+    return {r.kind for r in t.reasons if r.person == pid}
+
+
+def test_a_clean_person_is_not_flagged():
+    """A correct synthetic body, scores 0.9 everywhere: no reason at all, suspicion PRIOR."""
+    body = _body()
+    t = triage_frame({1: body}, SK, scores={1: np.full(17, 0.9)}, image_size=(1280, 720))
+    assert [r for r in t.reasons if r.person == 1] == []
+    assert t.suspicion[1] == pytest.approx(1 / (1 + np.exp(-PRIOR)))
+    assert t.flagged == []
+
+
+def _floor_crowd(n: int = 7) -> dict[int, np.ndarray]:
+    """Synthetic people on one floor: stature = 0.8 * (feet row - 200) (a camera above the
+    floor sees nearer people lower and larger), spaced well apart."""
+    rng = np.random.default_rng(11)
+    people = {}
+    for i in range(n):
+        feet = 420.0 + 40.0 * (i % 4)
+        stature = 0.8 * (feet - 200.0)
+        hips = feet - 0.49 * stature
+        body = person(rng, (120.0 + 160.0 * i, hips), stature)
+        people[i + 1] = body
+    return people
+
+
+def test_a_clean_crowd_on_one_floor_is_not_flagged():
+    """Seven correct synthetic people standing on one floor, full labels, equal scores."""
+    people = _floor_crowd()
+    t = triage_frame(people, SK, scores={p: np.full(17, 0.9) for p in people},
+                     image_size=(1280, 720))
+    assert t.flagged == []
+    assert max(t.suspicion.values()) < FLAG_AT
+
+
+def test_a_limb_longer_than_winters_table_allows_is_stretched():
+    """Winter's table (Drillis and Contini): forearm 0.146 of stature. A forearm drawn 1.6x
+    that long gives a stretched-limb reason on the elbow and wrist with strength
+    (1.6 - 1.2) / (1.8 - 1.2); at 2x (a wrist on a neighbour) the person is flagged."""
+    body = _body()
+    scale = person_scale(body, SK)
+    assert scale == pytest.approx(300.0, rel=0.01)  # the synthetic torso: the table's
+    elbow, wrist = J["left_elbow"], J["left_wrist"]
+    fraction = SEGMENT_FRACTIONS[frozenset(("left_elbow", "left_wrist"))]
+    assert fraction == pytest.approx(0.146)
+    for factor, flagged in ((1.6, None), (2.0, True)):
+        kp = body.copy()
+        u = (kp[wrist, :2] - kp[elbow, :2]) / np.hypot(*(kp[wrist, :2] - kp[elbow, :2]))
+        kp[wrist, :2] = kp[elbow, :2] + u * factor * fraction * scale
+        t = triage_frame({1: kp}, SK, image_size=(1280, 720))
+        limb = [r for r in t.reasons if r.kind == "stretched-limb" and r.joints == (7, 9)]
+        assert len(limb) == 1
+        assert limb[0].strength == pytest.approx(min((factor - 1.2) / 0.6, 1.0), abs=1e-6)
+        if flagged:
+            assert t.flagged == [1]
+
+
+def test_crowd_index_is_li_et_als_formula():
+    """Li et al. (CVPR 2019): CI = (1/n) sum_i N_b(i) / N_a(i), N_a the person's labelled
+    joints, N_b the other people's joints inside the person's box. Crafted scene, computed by
+    hand: A's box [0, 10]^2 holds B's (5, 5) and C's (8, 2): 2/3; B's box [5, 20]^2 holds A's
+    (10, 10) and C's (8, 12): 2/2; C's box [8, 30] x [2, 12] holds A's (10, 10), B's (20, 20)
+    is outside (y 20 > 12): 1/3. CI = (2/3 + 1 + 1/3) / 3 = 2/3."""
+    a = np.array([[0.0, 0, 2], [10, 10, 2], [3, 7, 2]])
+    b = np.array([[5.0, 5, 2], [20, 20, 2], [0, 0, 0]])
+    c = np.array([[8.0, 2, 2], [30, 12, 2], [8, 12, 2]])
+    assert crowd_index({1: a, 2: b, 3: c}) == pytest.approx(2 / 3)
+
+
+def test_frame_score_is_the_expected_number_of_wrong_people_plus_crowding():
+    """The documented combination (log-odds add, each kind once; Good 1950): each person's
+    suspicion is 1 / (1 + exp(-(PRIOR + sum of the strongest evidence per kind))), each
+    reason's weight is what it alone would give, and the frame's score is the sum of the
+    suspicions plus 0.5 * crowd index."""
+    people = _floor_crowd()
+    people[3] = people[3].copy()
+    people[3][J["left_wrist"], 0] += 150.0
+    t = triage_frame(people, SK, image_size=(1280, 720))
+    for pid in people:
+        best: dict[str, float] = {}
+        for r in t.reasons:
+            if r.person == pid:
+                best[r.kind] = max(best.get(r.kind, 0.0), r.evidence)
+                assert r.weight == pytest.approx(1 / (1 + np.exp(-(PRIOR + r.evidence))))
+                assert r.evidence == pytest.approx(triage.WEIGHTS[r.kind] * r.strength)
+        assert t.suspicion[pid] == pytest.approx(1 / (1 + np.exp(-(PRIOR + sum(best.values())))))
+    assert t.score == pytest.approx(sum(t.suspicion.values()) + 0.5 * t.crowd_index)
+    assert t.flagged == [3]
+
+
+def test_a_person_found_twice_is_a_duplicate():
+    """A faint copy of a body shifted by 0.08 of its stature (OKS to the original about 0.3,
+    which a rule of OKS >= 0.5 would miss) is the duplicate; the original is not flagged."""
+    body = _body()
+    echo = body.copy()
+    echo[:, :2] += (0.08 * 300.0 / np.sqrt(2), 0.08 * 300.0 / np.sqrt(2))
+    t = triage_frame({1: body, 2: echo}, SK,
+                     scores={1: np.full(17, 0.9), 2: np.full(17, 0.55)}, image_size=(1280, 720))
+    assert "duplicate" in _kinds(t, 2) and "duplicate" not in _kinds(t, 1)
+    assert t.flagged == [2]
+
+
+def test_a_body_cut_in_two_is_a_split():
+    """Upper body (face, shoulders, arms) and lower body (hips, legs) of one synthetic person
+    as two people: both are split, both flagged (each also misses half its joints)."""
+    body = _body()
+    upper, lower = body.copy(), body.copy()
+    upper[11:, 2] = 0
+    lower[:11, 2] = 0
+    t = triage_frame({1: upper, 2: lower}, SK, image_size=(1280, 720))
+    assert "split" in _kinds(t, 1) and "split" in _kinds(t, 2)
+    assert sorted(t.flagged) == [1, 2]
+
+
+def test_a_mirrored_body_is_flagged():
+    """Labelled as facing the camera while the model barely sees its face (nose and eyes
+    scored 0.3, ears and shoulders 0.9): seen from behind with left and right swapped.
+    The same body with its face well seen is not flagged. Common practice, no source."""
+    body = _body(front=True)
+    hidden = np.full(17, 0.9)
+    hidden[[J["nose"], J["left_eye"], J["right_eye"]]] = 0.3
+    t = triage_frame({1: body}, SK, scores={1: hidden}, image_size=(1280, 720))
+    assert "mirrored" in _kinds(t, 1) and t.flagged == [1]
+    t = triage_frame({1: body}, SK, scores={1: np.full(17, 0.9)}, image_size=(1280, 720))
+    assert "mirrored" not in _kinds(t, 1) and t.flagged == []
+
+
+def test_crossed_hips_are_crossed_sides():
+    """Left and right hip swapped on a body facing the camera: the hips' side disagrees with
+    the shoulders' and the face's."""
+    body = _body()
+    body[[J["left_hip"], J["right_hip"]]] = body[[J["right_hip"], J["left_hip"]]]
+    t = triage_frame({1: body}, SK, image_size=(1280, 720))
+    crossed = [r for r in t.reasons if r.kind == "crossed-sides"]
+    assert [r.joints for r in crossed] == [(J["left_hip"], J["right_hip"])]
+
+
+def test_missing_joints_count_only_inside_the_picture():
+    """Knees and ankles missing (4 of 17): OKS can reach at most 13/17 = 0.76 < 0.8, so the
+    person is flagged, unless they stand so low that those joints would be below the image."""
+    body = _body(centre=(640.0, 300.0))
+    legs = [J["left_knee"], J["right_knee"], J["left_ankle"], J["right_ankle"]]
+    cut = body.copy()
+    cut[legs, 2] = 0
+    t = triage_frame({1: cut}, SK, image_size=(1280, 720))
+    missing = [r for r in t.reasons if r.kind == "missing-joints"]
+    assert [sorted(r.joints) for r in missing] == [sorted(legs)]
+    assert missing[0].strength == pytest.approx(1.0) and t.flagged == [1]
+    low = cut.copy()
+    low[:, 1] += 720 - 1 - low[[J["left_hip"], J["right_hip"]], 1].max()  # hips on the border
+    t = triage_frame({1: low}, SK, image_size=(1280, 720))
+    assert "missing-joints" not in _kinds(t, 1)
+
+
+def test_feet_off_the_floor_of_the_others():
+    """People on one floor (Hoiem et al., CVPR 2006: image height proportional to the feet's
+    distance below the horizon): a person drawn 1.6x too large for where their feet stand is
+    off the ground with strength (ln 1.6 - 0.2) / 0.3, and flagged."""
+    people = _floor_crowd()
+    big = people[4].copy()
+    feet = big[[J["left_ankle"], J["right_ankle"]], :2].mean(axis=0)
+    big[:, :2] = feet + 1.6 * (big[:, :2] - feet)
+    people[4] = big
+    t = triage_frame(people, SK, image_size=(1280, 720))
+    off = [r for r in t.reasons if r.kind == "off-ground"]
+    assert [r.person for r in off] == [4]
+    assert off[0].strength == pytest.approx((np.log(1.6) - 0.2) / 0.3, abs=0.05)
+    assert 4 in t.flagged
+
+
+def test_hips_beside_the_shoulders_and_short_legs():
+    """An upright body's hips stand under its shoulders and its ankles 0.779 of stature below
+    them (Drillis and Contini landmark heights via Winter: 0.818 - 0.039). Hips and legs moved
+    0.15 of stature sideways give a tilted torso whose strength is the documented ramp of the
+    offset computed here by hand, (tilt - 0.05) / 0.15; ankles raised to 0.6 of the span give
+    short legs at full strength."""
+    body = _body()
+    lower = [J[n] for n in ("left_hip", "right_hip", "left_knee", "right_knee",
+                            "left_ankle", "right_ankle")]
+    tilted = body.copy()
+    tilted[lower, 0] += 0.15 * 300.0
+    t = triage_frame({1: tilted}, SK, image_size=(1280, 720))
+    tilt = [r for r in t.reasons if r.kind == "tilted-torso"]
+    shoulders = tilted[[J["left_shoulder"], J["right_shoulder"]], 0].mean()
+    hips = tilted[[J["left_hip"], J["right_hip"]], 0].mean()
+    by_hand = abs(hips - shoulders) / person_scale(tilted, SK)
+    assert by_hand > 0.09
+    assert len(tilt) == 1 and tilt[0].strength == pytest.approx((by_hand - 0.05) / 0.15)
+    short = body.copy()
+    top = short[[J["left_shoulder"], J["right_shoulder"]], 1].mean()
+    for j in (J["left_ankle"], J["right_ankle"]):
+        short[j, 1] = top + 0.6 * 0.779 * 300.0
+    t = triage_frame({1: short}, SK, image_size=(1280, 720))
+    legs = [r for r in t.reasons if r.kind == "short-legs"]
+    assert len(legs) == 1 and legs[0].strength == pytest.approx(1.0)
+
+
+def test_limb_support_and_weak_limbs_on_drawn_fields():
+    """Fields drawn from three synthetic people by our target functions (Cao et al. 2017,
+    Sec. 2.3): each person's own limbs integrate to E near 1 (the field is the limb's unit
+    vector all along it; the two end samples, read bilinearly, fall partly off the band). A
+    person whose left forearm is labelled off its field has weak-limb support naming the
+    elbow and wrist."""
+    rng = np.random.default_rng(5)
+    people = np.stack([person(rng, (100.0 + 150.0 * i, 220.0), 250.0) for i in range(3)])
+    fields = part_affinity_fields(people, SK.limbs, (480, 400), 1, 8.0)
+    maps = NetworkMaps(np.zeros((17, 400, 480), np.float32), fields, 1)
+    e = limb_support(people, SK, maps)
+    assert np.isfinite(e).all() and e.min() > 0.8 and e.max() <= 1.0 + 1e-9
+    labels = {i + 1: people[i].copy() for i in range(3)}
+    labels[2][J["left_wrist"], :2] = labels[2][J["left_elbow"], :2] + (0.0, -36.0)
+    t = triage_frame(labels, SK, maps=maps, image_size=(480, 400))
+    weak = [r for r in t.reasons if r.kind == "weak-limb"]
+    assert [r.person for r in weak] == [2]
+    assert {J["left_elbow"], J["left_wrist"]} <= set(weak[0].joints)
+
+
+def test_low_scores_compare_with_the_frames_people():
+    """Four synthetic people; one scored 0.3 where the others score 0.9: a low-score reason
+    at full strength for that one only."""
+    people = {i + 1: _body(seed=20 + i, centre=(200.0 + 250.0 * i, 400.0)) for i in range(4)}
+    scores = {p: np.full(17, 0.9) for p in people}
+    scores[3] = np.full(17, 0.3)
+    t = triage_frame(people, SK, scores=scores, image_size=(1280, 720))
+    low = [r for r in t.reasons if r.kind == "low-score"]
+    assert [(r.person, r.strength) for r in low] == [(3, 1.0)]
+
+
+def test_reasons_serialise_for_the_store():
+    """Each reason is stored as a dict with the keys the app reads."""
+    r = Reason("tangled", "text", 4, (1, 2), 0.25, 0.5, 2.0)
+    assert r.to_dict() == {"kind": "tangled", "text": "text", "person": 4, "joints": [1, 2],
+                           "weight": 0.25, "evidence": 2.0}
