@@ -1278,6 +1278,39 @@ def combine(reasons: list[Reason], people: Any) -> dict[int, float]:
     return {p: _sigmoid(PRIOR + sum(kinds.values())) for p, kinds in best.items()}
 
 
+def stored_suspicion(reasons: Any) -> dict[int, float]:
+    """Each person's suspicion from a frame's reasons as stored (:meth:`Reason.to_dict`).
+
+    Parameters
+    ----------
+    reasons
+        A list of dicts with ``kind``, ``person`` and ``evidence`` (what
+        :func:`app.jobs_analysis.run_triage` keeps in the project).
+
+    Returns
+    -------
+    dict
+        Person id -> suspicion, for every person named by a reason; a person is flagged when
+        it reaches :data:`FLAG_AT`. People without reasons are at ``1 / (1 + exp(-PRIOR))``.
+
+    Notes
+    -----
+    The same combination as :func:`combine`; stored evidence is rounded to 4 decimals.
+
+    Examples
+    --------
+    >>> stored = [{"kind": "off-ground", "person": 3, "evidence": 4.0, "weight": 0.42},
+    ...           {"kind": "tangled", "person": 3, "evidence": 1.0, "weight": 0.04},
+    ...           {"kind": "crowded", "person": None, "evidence": 0.0, "weight": 0.8}]
+    >>> {p: round(v, 3) for p, v in stored_suspicion(stored).items()}
+    {3: 0.668}
+    """
+    rebuilt = [Reason(str(r.get("kind", "")), "", int(r["person"]),
+                      evidence=float(r.get("evidence") or 0.0))
+               for r in reasons or () if r.get("person") is not None]
+    return combine(rebuilt, sorted({r.person for r in rebuilt if r.person is not None}))
+
+
 def triage_frame(
     people: Mapping[int, Any],
     skeleton: Skeleton,

@@ -35,6 +35,7 @@ from app.analysis.triage import (
     Reason,
     crowd_index,
     limb_support,
+    stored_suspicion,
     triage_frame,
 )
 from app.demo import generate
@@ -433,7 +434,18 @@ def test_low_scores_compare_with_the_frames_people():
 
 
 def test_reasons_serialise_for_the_store():
-    """Each reason is stored as a dict with the keys the app reads."""
+    """Each reason is stored as a dict with the keys the app reads, and the people's
+    suspicions can be read back from the stored reasons (to 4 decimals of evidence)."""
     r = Reason("tangled", "text", 4, (1, 2), 0.25, 0.5, 2.0)
     assert r.to_dict() == {"kind": "tangled", "text": "text", "person": 4, "joints": [1, 2],
                            "weight": 0.25, "evidence": 2.0}
+    people = _floor_crowd()
+    people[2] = people[2].copy()
+    people[2][J["right_ankle"], 2] = 0
+    people[5] = people[5].copy()
+    people[5][J["left_elbow"], 1] += 90.0
+    t = triage_frame(people, SK, image_size=(1280, 720))
+    back = stored_suspicion([x.to_dict() for x in t.reasons])
+    assert sorted(back) == [2, 5]
+    for pid, value in back.items():
+        assert value == pytest.approx(t.suspicion[pid], abs=1e-3)
