@@ -9,14 +9,13 @@ from __future__ import annotations
 
 import json
 import logging
-import os
-import tempfile
 from collections.abc import Sequence
 from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
-from app.errors import BadInput, NotFound
+from app.errors import BadInput
+from app.fileio import read_json, write_json_atomic
 from app.formats import coco
 from app.model.labels import FrameState
 from app.model.skeleton import skeleton_from_dict
@@ -48,10 +47,7 @@ def build_from_sources(folder: Path, author: str | None = None,
     the skeleton; network maps, when named, are imported and grouped into auto-labels.
     """
     where = str(folder / SOURCES_NAME)
-    try:
-        sources = json.loads((folder / SOURCES_NAME).read_text(encoding="utf-8"))
-    except (OSError, ValueError) as exc:
-        raise BadInput(f"cannot read the project sources ({exc})", where=where) from None
+    sources = read_json(folder / SOURCES_NAME, "the project sources")
     if not isinstance(sources, dict) or sources.get("format") != SOURCES_FORMAT:
         raise BadInput(f"field format: expected {SOURCES_FORMAT!r}", where=where)
     skeleton = skeleton_from_dict(sources.get("skeleton"), where=where + ": skeleton") \
@@ -142,28 +138,6 @@ def export_coco(project: Project, out: str | Path,
     write_json_atomic(out, dataset)
     n_people = sum(len(people.get(f.id, ())) for f in frames)
     return {"images": len(frames), "people": n_people}
-
-
-def write_json_atomic(path: str | Path, data: Any) -> None:
-    """Write JSON to ``path`` through a temporary file in the same folder, so a reader never
-    sees half a file and a failure leaves the old file as it was."""
-    path = Path(path)
-    folder = path.parent if str(path.parent) else Path(".")
-    if not folder.is_dir():
-        raise NotFound(f"{path}: the folder {folder} does not exist")
-    try:
-        fd, tmp = tempfile.mkstemp(prefix=path.name + ".", suffix=".tmp", dir=folder)
-    except OSError as exc:
-        raise BadInput(f"cannot write here ({exc.strerror})", where=str(path)) from None
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            json.dump(data, fh, separators=(",", ":"), allow_nan=False)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
 
 
 def summary(project: Project) -> dict[str, Any]:

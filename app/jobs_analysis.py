@@ -23,6 +23,7 @@ import numpy as np
 from app.analysis.association import group_people
 from app.analysis.targets import confidence_maps, loss_mask, part_affinity_fields
 from app.errors import BadInput, NotFound
+from app.fileio import read_json
 from app.formats.maps import NetworkMaps, match_map_files, read_maps
 from app.model.labels import AUTO, Frame, FrameState, Person
 from app.progress import Progress
@@ -285,12 +286,7 @@ def check_targets(out_dir: str | Path, progress: Progress | None = None) -> Targ
     progress = progress or Progress()
     out = Path(out_dir)
     where = out / "manifest.json"
-    try:
-        manifest = json.loads(where.read_text(encoding="utf-8"))
-    except OSError as exc:
-        raise BadInput(f"cannot read the manifest ({exc.strerror})", where=str(where)) from None
-    except (json.JSONDecodeError, UnicodeDecodeError) as exc:
-        raise BadInput(f"the manifest is not valid JSON ({exc})", where=str(where)) from None
+    manifest = read_json(where, "the manifest")
     if not isinstance(manifest, dict) or manifest.get("format") != TARGETS_FORMAT:
         raise BadInput(f"field format: expected {TARGETS_FORMAT!r}", where=str(where))
     if manifest.get("version") != TARGETS_VERSION:

@@ -75,7 +75,6 @@ Fields
 
 from __future__ import annotations
 
-import json
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Literal
@@ -84,6 +83,7 @@ import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
 
 from app.errors import BadInput
+from app.fileio import read_json
 from app.model.skeleton import Skeleton
 
 __all__ = [
@@ -237,14 +237,7 @@ def load_config(path: str | Path) -> PrelabelConfig:
         When the file cannot be read, is not JSON, or a field is wrong (the message names the
         file and the field).
     """
-    path = Path(path)
-    try:
-        data = json.loads(path.read_text(encoding="utf-8"))
-    except OSError as exc:
-        raise BadInput(f"cannot read the config ({exc.strerror})", where=str(path)) from None
-    except (json.JSONDecodeError, UnicodeDecodeError) as exc:
-        raise BadInput(f"not valid JSON ({exc})", where=str(path)) from None
-    return config_from_dict(data, where=str(path))
+    return config_from_dict(read_json(path, "the config"), where=str(path))
 
 
 def default_config(skeleton: Skeleton) -> PrelabelConfig:

@@ -22,7 +22,6 @@ swapping sides would be undefined for it.
 
 from __future__ import annotations
 
-import json
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from enum import Enum
@@ -34,6 +33,7 @@ import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
 
 from app.errors import BadInput
+from app.fileio import read_json
 
 
 class Side(str, Enum):
@@ -274,11 +274,4 @@ def load_skeleton(path: str | Path) -> Skeleton:
         When the file cannot be read or does not describe a valid skeleton; the message names
         the file and the field.
     """
-    path = Path(path)
-    try:
-        data = json.loads(path.read_text(encoding="utf-8"))
-    except OSError as exc:
-        raise BadInput(f"cannot read the file ({exc.strerror})", where=str(path)) from None
-    except (json.JSONDecodeError, UnicodeDecodeError) as exc:
-        raise BadInput(f"not valid JSON ({exc})", where=str(path)) from None
-    return skeleton_from_dict(data, where=str(path))
+    return skeleton_from_dict(read_json(path, "the skeleton"), where=str(path))

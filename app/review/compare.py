@@ -17,8 +17,6 @@ import csv
 import io
 import json
 import math
-import os
-import tempfile
 from collections.abc import Mapping, Sequence
 from dataclasses import asdict, dataclass, field
 from pathlib import Path, PurePosixPath
@@ -28,6 +26,7 @@ import numpy as np
 
 from app.analysis.similarity import match_people, person_area
 from app.errors import BadInput, NotFound
+from app.fileio import atomic_write
 from app.formats.coco import read_coco
 from app.model.edits import AddNote, SetFrameState
 from app.model.labels import Frame, FrameState, Person
@@ -433,15 +432,5 @@ def write_csv(comparison: Comparison, out: str | Path) -> None:
             len(f.unpaired_a), len(f.unpaired_b), f"{f.mean_oks:.6f}", len(f.disagreements),
             ";".join(f"{pa}/{pb}:{name}" for pa, pb, _, name, _ in f.disagreements),
         ])
-    out = Path(out)
-    folder = out.parent if str(out.parent) else Path(".")
-    if not folder.is_dir():
-        raise NotFound(f"{out}: the folder {folder} does not exist")
-    fd, tmp = tempfile.mkstemp(prefix=out.name + ".", suffix=".tmp", dir=folder)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="") as fh:
-            fh.write(buffer.getvalue())
-        os.replace(tmp, out)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+    with atomic_write(out, "w", encoding="utf-8", newline="") as fh:
+        fh.write(buffer.getvalue())

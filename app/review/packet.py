@@ -33,8 +33,6 @@ import hashlib
 import json
 import logging
 import math
-import os
-import tempfile
 import time
 import uuid
 import zipfile
@@ -58,6 +56,7 @@ from pydantic import (
 )
 
 from app.errors import BadInput, NotFound
+from app.fileio import atomic_write
 from app.formats.images import IMAGE_SUFFIXES, MAX_SIDE, decode_image
 from app.model.labels import Frame, FrameState, Note, Person
 from app.model.skeleton import Skeleton, skeleton_from_dict
@@ -666,20 +665,5 @@ def write_member(archive: zipfile.ZipFile, name: str, data: bytes,
 def atomic_zip(out: Path) -> Iterator[zipfile.ZipFile]:
     """A zip written to a temporary file beside ``out`` and renamed over it only when the
     block succeeds, so ``out`` is never half written."""
-    folder = out.parent if str(out.parent) else Path(".")
-    if not folder.is_dir():
-        raise NotFound(f"{out}: the folder {folder} does not exist")
-    try:
-        fd, tmp = tempfile.mkstemp(prefix=out.name + ".", suffix=".tmp", dir=folder)
-    except OSError as exc:
-        raise BadInput(f"cannot write here ({exc.strerror})", where=str(out)) from None
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            with zipfile.ZipFile(fh, "w") as archive:
-                yield archive
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, out)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+    with atomic_write(out, "wb") as fh, zipfile.ZipFile(fh, "w") as archive:
+        yield archive
