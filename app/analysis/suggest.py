@@ -109,7 +109,7 @@ def candidate_owners(
                 mean, _ = limb_scores(maps.pafs[c], start[None], end[None], maps.stride)
                 values.append(max(float(mean[0, 0]), 0.0))
             score = float(np.mean(values))
-            reason = f"field support {score:.2f} over {len(values)} limb(s)"
+            reason = f"the model's field along {len(values)} limb" + ("s" if len(values) > 1 else "")
         else:
             scale = person_scale(kp, skeleton)
             costs, lengths = [], []
@@ -120,7 +120,7 @@ def candidate_owners(
                     costs.append(max(length / (fractions[c] * scale) - SLACK, 0.0))
             if costs:
                 score = float(np.exp(-4.0 * np.mean(costs)))
-                reason = f"limb lengths {np.mean(costs) + SLACK:.2f}x what the torso allows" \
+                reason = f"limbs {np.mean(costs) + SLACK:.1f}x as long as the torso allows" \
                     if np.mean(costs) > 0 else "limb lengths fit the torso"
             else:
                 # No torso to compare against: the nearest neighbour joint decides.
@@ -128,7 +128,7 @@ def candidate_owners(
                 reason = f"{min(lengths):.0f} px from the nearest joint (no torso to compare)"
         if kp[joint, 2] > 0:
             score *= 0.8
-            reason += "; would swap with the joint they have"
+            reason += " · swaps with theirs"
         out.append(Candidate(int(pid), score, reason))
     out.sort(key=lambda c: (-c.score, c.person_id))
     return out
