@@ -10,6 +10,16 @@ Here one transform (a scale and an offset, image pixels to widget pixels) feeds
 
 The Canvas never edits: it emits :attr:`Canvas.editRequested` with an edit object and the main
 window applies it through the store.
+
+Two more things it shows:
+
+- *Ignore regions*, always drawn (hatched, by the overlay painter). In *region mode* the mouse
+  works on them instead of on joints: drag draws a rectangle, clicks place the corners of a
+  polygon (Return or a double click closes it, Backspace takes back a corner, Esc cancels),
+  a click inside a region selects it, dragging one of its corners reshapes it and dragging
+  inside it moves it (one edit on release), Del deletes it.
+- On a *disputed* frame, the marks where ours and the reviewer's version differ, and on request
+  the reviewer's version itself in place of ours (read-only: nothing is edited while it shows).
 """
 
 from __future__ import annotations
@@ -20,9 +30,10 @@ from types import SimpleNamespace
 from typing import Any
 
 import numpy as np
-from PySide6.QtCore import QPointF, QRectF, QSizeF, Qt, Signal
+from PySide6.QtCore import QEvent, QPointF, QRectF, QSizeF, Qt, Signal
 from PySide6.QtGui import (
     QColor,
+    QFont,
     QImage,
     QKeyEvent,
     QMouseEvent,
@@ -34,9 +45,10 @@ from PySide6.QtGui import (
 )
 from PySide6.QtWidgets import QWidget
 
-from app.model.edits import MoveJoint
+from app.model.edits import AddRegion, DeleteRegion, MoveJoint, ReshapeRegion
 from app.model.labels import Frame, Person
 from app.model.skeleton import Skeleton
+from app.ui import regions as geometry
 from app.ui.images import Decoded, qimage_view, shrink
 from app.ui.overlay import OverlayLayout, OverlayStyle, assign_colours, paint_overlay
 
@@ -54,6 +66,24 @@ class _Drag:
     moved: bool = False
 
 
+@dataclass
+class _RegionDrag:
+    """A press in region mode: ``kind`` is ``press`` (a click, or a rectangle once it moves),
+    ``rect``, ``corner`` (reshaping), ``move`` or ``point`` (a polygon corner)."""
+
+    kind: str
+    press: QPointF
+    start: tuple[float, float]
+    now: tuple[float, float]
+    region_id: int | None = None
+    polygons: geometry.Polygons = ()
+    corner: tuple[int, int] = (0, 0)
+    moved: bool = False
+
+
+Marks = dict[tuple[int, int], tuple[float, float] | None]
+
+
 class Canvas(QWidget):
     """The central image view. See the module docstring for the design.
 
@@ -69,6 +99,8 @@ class Canvas(QWidget):
         Zoom or pan changed.
     framePainted(int)
         A frame's image has been painted for the first time.
+    regionChanged()
+        The selected region, region mode, or the region being drawn changed.
     """
 
     selectionChanged = Signal()
@@ -76,6 +108,7 @@ class Canvas(QWidget):
     personPicked = Signal(int)
     viewChanged = Signal()
     framePainted = Signal(int)
+    regionChanged = Signal()
 
     #: How near (screen pixels) a click must be to a joint to hit it.
     HIT_RADIUS = 9.0
@@ -104,6 +137,23 @@ class Canvas(QWidget):
         self.show_tags = True
         self.focus_mode = False
         self.message = ""  # shown instead of the image when it cannot be shown
+        #: The frame's ignore regions ``(id, polygons)`` and region mode.
+        self.regions: list[tuple[int, geometry.Polygons]] = []
+        self.region_mode = False
+        self._region: int | None = None
+        self._draft: list[tuple[float, float]] = []
+        self._region_drag: _RegionDrag | None = None
+        self._double_clicked = False
+        #: A disputed frame: our people, the reviewer's version (people in our tag order;
+        #: someone they deleted is an empty placeholder), the difference marks of each, and
+        #: whether the reviewer's version is the one shown.
+        self._ours: list[Person] = []
+        self._flags_in: dict[int, frozenset[int]] = {}
+        self._theirs: list[Any] | None = None
+        self._marks: Marks = {}
+        self._theirs_marks: Marks = {}
+        self.theirs_name = ""
+        self.showing_theirs = False
 
         self._decoded: Decoded | None = None
         # A quick shrunk copy for a zoom the decoder did not prepare: (for which decoded
@@ -151,6 +201,15 @@ class Canvas(QWidget):
         self._drag = None
         self._pick = None
         self.colours = {}
+        self.regions = []
+        self._region = None
+        self._draft = []
+        self._region_drag = None
+        self._theirs = None
+        self._marks, self._theirs_marks = {}, {}
+        self.showing_theirs = False
+        self._ours = list(people)
+        self._flags_in = dict(flags)
         self._set_people(people, flags)
         if decoded is not None:
             self.set_image(decoded)
@@ -161,7 +220,15 @@ class Canvas(QWidget):
 
     def set_people(self, people: list[Person], flags: dict[int, frozenset[int]]) -> None:
         """New labels of the same frame (after an edit); keeps what is still selectable."""
-        self._set_people(people, flags)
+        self._ours = list(people)
+        self._flags_in = dict(flags)
+        self._show_people()
+
+    def _show_people(self) -> None:
+        """Show ours, or the reviewer's version when asked, keeping the selection."""
+        people: list[Any] = self._theirs if self.showing_theirs and self._theirs is not None \
+            else self._ours
+        self._set_people(people, self._flags_in)
         ids = {p.id for p in people}
         joints = [(p, j) for p, j in self._joints if p in ids]
         person = self._person if self._person in ids else None
@@ -183,6 +250,134 @@ class Canvas(QWidget):
     @property
     def has_image(self) -> bool:
         return self._decoded is not None
+
+    # ------------------------------------------------------------------ disputes
+
+    def set_dispute(self, marks: Marks, theirs: list[Any] | None, theirs_marks: Marks,
+                    who: str = "") -> None:
+        """The differences of a disputed frame: ``marks`` on our people (joint -> where the
+        reviewer has it), the reviewer's people ``theirs`` and their marks (joint -> where we
+        have it); ``theirs`` None when the frame is not in dispute."""
+        self._marks = dict(marks)
+        self._theirs = None if theirs is None else list(theirs)
+        self._theirs_marks = dict(theirs_marks)
+        self.theirs_name = who
+        if self.showing_theirs:
+            # Their people changed, or they are gone (then ours come back).
+            self.showing_theirs = self._theirs is not None
+            self._show_people()
+        else:
+            self.update()  # ours are on screen already; only the marks changed
+
+    @property
+    def has_theirs(self) -> bool:
+        return self._theirs is not None
+
+    @property
+    def ours(self) -> list[Person]:
+        """Our people of the frame (what :attr:`people` holds unless the reviewer's version
+        is shown)."""
+        return list(self._ours)
+
+    @property
+    def marks(self) -> Marks:
+        """The difference marks as drawn now (on whichever version is shown)."""
+        return dict(self._theirs_marks if self.showing_theirs else self._marks)
+
+    def show_theirs(self, on: bool) -> bool:
+        """Show the reviewer's version (or ours again); False when there is none."""
+        on = bool(on) and self._theirs is not None
+        if on != self.showing_theirs:
+            self.showing_theirs = on
+            self._show_people()
+        return on
+
+    @property
+    def editable(self) -> bool:
+        """Whether gestures may turn into edits (not read-only, ours shown)."""
+        return not self.read_only and not self.showing_theirs
+
+    # ------------------------------------------------------------------ ignore regions
+
+    def set_regions(self, regions: list[tuple[int, geometry.Polygons]]) -> None:
+        """The frame's ignore regions (after any change); keeps the selection if it is still
+        there."""
+        self.regions = [(int(r), tuple(tuple(float(v) for v in p) for p in polys))
+                        for r, polys in regions]
+        if self._region is not None and self._region not in {r for r, _ in self.regions}:
+            self._region = None
+            self.regionChanged.emit()
+        self._region_drag = None
+        self.update()
+
+    @property
+    def selected_region(self) -> int | None:
+        return self._region
+
+    @property
+    def drafting(self) -> bool:
+        """Whether a polygon is being drawn."""
+        return bool(self._draft)
+
+    def select_region(self, region_id: int | None) -> None:
+        self._region = region_id
+        self.update()
+        self.regionChanged.emit()
+
+    def set_region_mode(self, on: bool) -> None:
+        """Enter or leave region mode (leaving drops a polygon being drawn)."""
+        on = bool(on)
+        if on == self.region_mode:
+            return
+        self.region_mode = on
+        self._draft = []
+        self._region_drag = None
+        self._drag = None
+        if on:
+            self._joints = []
+            self._hover = None
+            self.selectionChanged.emit()
+        else:
+            self._region = None
+        self.setCursor(Qt.CursorShape.CrossCursor if on else Qt.CursorShape.ArrowCursor)
+        self.update()
+        self.regionChanged.emit()
+
+    def region_escape(self) -> None:
+        """Esc in region mode: cancel the polygon, else drop the selection, else leave."""
+        if self._draft:
+            self._draft = []
+            self.update()
+            self.regionChanged.emit()
+        elif self._region is not None:
+            self.select_region(None)
+        else:
+            self.set_region_mode(False)
+
+    def close_polygon(self) -> bool:
+        """Finish the polygon being drawn (three corners or more): asks for the edit."""
+        corners = geometry.tidy_polygon(self._draft)
+        if not corners or self.frame is None:
+            return False
+        self._draft = []
+        self.update()
+        self.regionChanged.emit()
+        if self.editable:
+            self.editRequested.emit(AddRegion(self.frame.id, (corners,)))
+        return True
+
+    def delete_selected_region(self) -> bool:
+        if self._region is None or self.frame is None or not self.editable:
+            return False
+        self.editRequested.emit(DeleteRegion(self.frame.id, self._region))
+        return True
+
+    def _region_polygons(self, region_id: int | None) -> geometry.Polygons:
+        return next((polys for rid, polys in self.regions if rid == region_id), ())
+
+    def _bounds(self) -> tuple[float, float, float, float]:
+        assert self.frame is not None
+        return (-0.5, -0.5, self.frame.width - 0.5, self.frame.height - 0.5)
 
     def _set_people(self, people: list[Person], flags: dict[int, frozenset[int]]) -> None:
         self.people = list(people)
@@ -341,6 +536,14 @@ class Canvas(QWidget):
                 return self.image_to_screen(*person.keypoints[j, :2])
         return QPointF(self.width() / 2, self.height() / 2)
 
+    def ensure_visible(self, x: float, y: float, margin: float = 40.0) -> None:
+        """Centre the view on image point ``(x, y)`` if it is not well inside the Canvas."""
+        pos = self.image_to_screen(x, y)
+        inside = QRectF(self.rect()).adjusted(margin, margin, -margin, -margin)
+        if not inside.contains(pos):
+            self.centre_on(x, y)
+            self.viewChanged.emit()
+
     def centre_on(self, x: float, y: float) -> None:
         self._ox = self.width() / 2 - self._scale * x
         self._oy = self.height() / 2 - self._scale * y
@@ -387,11 +590,34 @@ class Canvas(QWidget):
 
     def style(self) -> OverlayStyle:
         focus = self._person if self.focus_mode else None
+        regions = self.regions
+        draft: tuple[tuple[float, float], ...] = ()
+        closed = False
+        d = self._region_drag
+        if d is not None and d.moved and d.kind in ("corner", "move"):
+            shape = self._dragged_shape(d)
+            regions = [(rid, shape if rid == d.region_id else polys) for rid, polys in regions]
+        elif d is not None and d.kind == "rect":
+            flat = geometry.rectangle(*d.start, *d.now)
+            draft, closed = tuple(zip(flat[::2], flat[1::2])), True
+        elif self._draft:
+            draft = tuple(self._draft)
+            pointer = self.pointer_image_position()
+            if pointer is not None and self.region_mode:
+                draft += (pointer,)
         return OverlayStyle(
             show_unlabeled=self.show_unlabeled, show_tags=self.show_tags, focus=focus,
             flags=self.flags, selected_person=self._person,
             selected_joints=frozenset(self._joints), hover=self._hover, colours=self.colours,
+            regions=tuple(regions), selected_region=self._region, region_draft=draft,
+            region_draft_closed=closed, differences=self.marks,
         )
+
+    def _dragged_shape(self, d: _RegionDrag) -> geometry.Polygons:
+        if d.kind == "corner":
+            return geometry.with_corner(d.polygons, *d.corner, *d.now)
+        return geometry.moved(d.polygons, d.now[0] - d.start[0], d.now[1] - d.start[1],
+                              self._bounds())
 
     def paintEvent(self, event: QPaintEvent) -> None:
         p = QPainter(self)
@@ -403,11 +629,28 @@ class Canvas(QWidget):
                 people = self._with_drag(people, self._drag)
             self._layout = paint_overlay(p, people, self.skeleton, self.transform(), self.style(),
                                          (self.frame.width, self.frame.height))
+            if self.showing_theirs:
+                self._paint_banner(p)
             if self._decoded is not None and self.painted_frame != self.frame.id:
                 self.painted_frame = self.frame.id
                 self.painted_at = time.perf_counter()
                 self.framePainted.emit(self.frame.id)
         p.end()
+
+    def _paint_banner(self, p: QPainter) -> None:
+        """Say plainly that the reviewer's version is on screen, not ours."""
+        font = QFont(self.font())
+        font.setBold(True)
+        p.setFont(font)
+        who = self.theirs_name or "the reviewer"
+        text = f"{who}\u2019s version (read-only) \u2014 B shows ours"
+        rect = p.fontMetrics().boundingRect(text).adjusted(-10, -5, 10, 5)
+        rect.moveTopLeft(self.rect().topLeft() + QPointF(10, 10).toPoint())
+        p.setRenderHint(QPainter.RenderHint.Antialiasing, True)
+        p.setPen(QColor("#141414"))
+        p.setBrush(QColor("#f2c14e"))
+        p.drawRoundedRect(QRectF(rect), 4, 4)
+        p.drawText(rect, Qt.AlignmentFlag.AlignCenter, text)
 
     def _paint_image(self, p: QPainter) -> None:
         assert self.frame is not None
@@ -456,12 +699,16 @@ class Canvas(QWidget):
     def mousePressEvent(self, event: QMouseEvent) -> None:
         pos = event.position()
         self._pointer = pos
+        self._double_clicked = False
         button = event.button()
         self.setFocus(Qt.FocusReason.MouseFocusReason)
         if button in (Qt.MouseButton.MiddleButton, Qt.MouseButton.RightButton):
             self._start_pan(pos)
             return
         if button != Qt.MouseButton.LeftButton or self.frame is None:
+            return
+        if self.region_mode:
+            self._region_press(pos)
             return
         if self._pick is not None:
             pid = self.person_at(pos)
@@ -479,7 +726,7 @@ class Canvas(QWidget):
             if hit not in self._joints or len(self._joints) == 1:
                 self.select_joint(*hit)
             person = self.person(hit[0])
-            if person is not None and not self.read_only:
+            if person is not None and self.editable:
                 xy = (float(person.keypoints[hit[1], 0]), float(person.keypoints[hit[1], 1]))
                 self._drag = _Drag(hit[0], hit[1], pos, xy, xy)
             return
@@ -498,6 +745,9 @@ class Canvas(QWidget):
     def mouseMoveEvent(self, event: QMouseEvent) -> None:
         pos = event.position()
         self._pointer = pos
+        if self.region_mode and self._pan is None:
+            self._region_move(pos)
+            return
         if self._drag is not None:
             d = self._drag
             if not d.moved and (pos - d.press).manhattanLength() < self.DRAG_START:
@@ -533,6 +783,12 @@ class Canvas(QWidget):
             self.update()
 
     def mouseReleaseEvent(self, event: QMouseEvent) -> None:
+        if self._region_drag is not None:
+            self._region_release(event.position())
+            return
+        if self._double_clicked:
+            self._double_clicked = False
+            return
         if self._drag is not None:
             d, self._drag = self._drag, None
             if d.moved and self.frame is not None:
@@ -546,9 +802,95 @@ class Canvas(QWidget):
             self.setCursor(Qt.CursorShape.CrossCursor if self._pick
                            else Qt.CursorShape.ArrowCursor)
             if not self._pan_moved and event.button() == Qt.MouseButton.LeftButton \
-                    and self._pick is None and not (
+                    and self._pick is None and not self.region_mode and not (
                     event.modifiers() & Qt.KeyboardModifier.ControlModifier):
                 self.select_person(None)
+
+    def mouseDoubleClickEvent(self, event: QMouseEvent) -> None:
+        if self.region_mode and event.button() == Qt.MouseButton.LeftButton:
+            # The double click's spot is the last corner (the first click of the pair has
+            # usually placed it already; the repeat is dropped); the release that ends the
+            # double click places none.
+            self._region_drag = None
+            self._double_clicked = True
+            if self._draft:
+                self._draft.append(self._clamp(*self.screen_to_image(event.position())))
+                self.close_polygon()
+            return
+        super().mouseDoubleClickEvent(event)
+
+    # ------------------------------------------------------------------ region gestures
+
+    def _region_press(self, pos: QPointF) -> None:
+        xy = self._clamp(*self.screen_to_image(pos))
+        if self._draft:
+            self._region_drag = _RegionDrag("point", pos, xy, xy)
+            return
+        polys = self._region_polygons(self._region)
+        if polys and self.editable:
+            to_screen = np.array([self._scale, self._ox, self._oy])
+            corner = geometry.nearest_corner(polys, np.array([pos.x(), pos.y()]),
+                                             self.HIT_RADIUS, to_screen)
+            if corner is not None:
+                n, i = corner
+                at = (polys[n][2 * i], polys[n][2 * i + 1])
+                self._region_drag = _RegionDrag("corner", pos, at, at, self._region, polys,
+                                                corner)
+                return
+            if geometry.region_at([(self._region, polys)], *xy) is not None:
+                self._region_drag = _RegionDrag("move", pos, xy, xy, self._region, polys)
+                return
+        self._region_drag = _RegionDrag("press", pos, xy, xy)
+
+    def _region_move(self, pos: QPointF) -> None:
+        d = self._region_drag
+        if d is None:
+            if self._draft:
+                self.update()  # the edge being drawn follows the pointer
+            return
+        if not d.moved and (pos - d.press).manhattanLength() < self.DRAG_START:
+            return
+        d.moved = True
+        if d.kind == "press":
+            d.kind = "rect" if self.editable else "none"
+        if d.kind == "corner":
+            # The corner follows the mouse travel, so grabbing it off-centre does not jump.
+            d.now = self._clamp(d.start[0] + (pos.x() - d.press.x()) / self._scale,
+                                d.start[1] + (pos.y() - d.press.y()) / self._scale)
+        else:
+            d.now = self._clamp(*self.screen_to_image(pos))
+        self.update()
+
+    def _region_release(self, pos: QPointF) -> None:
+        d, self._region_drag = self._region_drag, None
+        assert d is not None
+        if self._double_clicked:
+            self._double_clicked = False
+            return
+        if self.frame is None:
+            return
+        fid = self.frame.id
+        if d.kind == "point":
+            self._draft.append(d.now if d.moved else d.start)
+            self.regionChanged.emit()
+        elif d.kind == "rect":
+            corners = geometry.rectangle(*d.start, *d.now)
+            w, h = corners[2] - corners[0], corners[5] - corners[1]
+            if min(w, h) * self._scale >= self.DRAG_START:
+                self.editRequested.emit(AddRegion(fid, (corners,)))
+        elif d.kind in ("corner", "move") and d.moved and d.region_id is not None:
+            self.editRequested.emit(ReshapeRegion(fid, d.region_id, self._dragged_shape(d)))
+        elif d.kind in ("press", "move") and not d.moved:
+            rid = geometry.region_at(self.regions, *d.start)
+            if rid is not None:
+                self.select_region(rid)
+            elif self.editable:
+                self._region = None
+                self._draft = [d.start]
+                self.regionChanged.emit()
+            else:
+                self.select_region(None)
+        self.update()
 
     def wheelEvent(self, event: QWheelEvent) -> None:
         steps = event.angleDelta().y() / 120.0
@@ -577,15 +919,42 @@ class Canvas(QWidget):
 
     # ------------------------------------------------------------------ keys
 
+    _REGION_KEYS = frozenset({Qt.Key.Key_Delete, Qt.Key.Key_Backspace, Qt.Key.Key_Escape,
+                              Qt.Key.Key_Return, Qt.Key.Key_Enter})
+
+    def event(self, event: QEvent) -> bool:
+        # In region mode Del, Backspace and Esc work on the regions here rather than reaching
+        # the window's shortcuts for joints (accepting the override turns the shortcut off).
+        if event.type() == QEvent.Type.ShortcutOverride and self.region_mode \
+                and isinstance(event, QKeyEvent) and event.key() in self._REGION_KEYS \
+                and event.modifiers() == Qt.KeyboardModifier.NoModifier:
+            event.accept()
+            return True
+        return super().event(event)
+
     def keyPressEvent(self, event: QKeyEvent) -> None:
         key = event.key()
+        if self.region_mode and key in self._REGION_KEYS \
+                and event.modifiers() == Qt.KeyboardModifier.NoModifier:
+            if key in (Qt.Key.Key_Return, Qt.Key.Key_Enter):
+                self.close_polygon()
+            elif key == Qt.Key.Key_Backspace and self._draft:
+                self._draft.pop()
+                self.update()
+                self.regionChanged.emit()
+            elif key == Qt.Key.Key_Delete:
+                self.delete_selected_region()
+            elif key == Qt.Key.Key_Escape:
+                self.region_escape()
+            event.accept()
+            return
         arrows = {Qt.Key.Key_Left: (-1, 0), Qt.Key.Key_Right: (1, 0),
                   Qt.Key.Key_Up: (0, -1), Qt.Key.Key_Down: (0, 1)}
         if key in arrows and self.frame is not None:
             step = 10.0 if event.modifiers() & Qt.KeyboardModifier.ShiftModifier else 1.0
             hit = self.selected_joint
             person = self.person(hit[0]) if hit else None
-            if hit and person is not None and not self.read_only \
+            if hit and person is not None and self.editable and not self.region_mode \
                     and np.isfinite(person.keypoints[hit[1], :2]).all():
                 dx, dy = arrows[key]
                 x, y = self._clamp(person.keypoints[hit[1], 0] + dx * step,

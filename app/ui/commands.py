@@ -38,7 +38,9 @@ def render_frame(args: argparse.Namespace) -> int:
 
 
 def open_app(args: argparse.Namespace) -> int:
-    """``posewright open PROJECT [--author NAME] [--screenshot FILE]``."""
+    """``posewright open PROJECT [--author NAME] [--screenshot FILE]``; ``PROJECT`` may be a
+    review packet (``FILE.zip``), opened for reviewing in a folder beside it
+    (:func:`app.review.review.open_packet`)."""
     from PySide6.QtWidgets import QApplication
 
     app = QApplication.instance() or QApplication([sys.argv[0] if sys.argv else "posewright"])
@@ -46,8 +48,13 @@ def open_app(args: argparse.Namespace) -> int:
     headless = QApplication.platformName() in ("offscreen", "minimal")
     screenshot = getattr(args, "screenshot", None)
     author = _author(args, ask=not screenshot and not headless)
-    project = _open(args.project, author, quiet=getattr(args, "quiet", False),
-                    with_dialog=not screenshot and not headless)
+    if is_packet(args.project):
+        from app.review.review import open_packet
+
+        project = open_packet(args.project, reviewer=author)
+    else:
+        project = _open(args.project, author, quiet=getattr(args, "quiet", False),
+                        with_dialog=not screenshot and not headless)
 
     from app.ui.window import MainWindow, keep_open
 
@@ -61,6 +68,18 @@ def open_app(args: argparse.Namespace) -> int:
     keep_open(window)
     window.show()
     return int(app.exec())
+
+
+def is_packet(target: str) -> bool:
+    """Whether ``posewright open`` was given a review packet rather than a project folder.
+
+    Examples
+    --------
+    >>> is_packet("rehearsal.zip"), is_packet("rehearsal")
+    (True, False)
+    """
+    path = Path(target)
+    return path.suffix.lower() == ".zip" and not path.is_dir()
 
 
 def _author(args: argparse.Namespace, ask: bool) -> str | None:

@@ -23,7 +23,7 @@ from PySide6.QtCore import (
 )
 from PySide6.QtGui import QColor, QFont
 
-from app.model.labels import FrameState, Note, Person
+from app.model.labels import Frame, FrameState, Note, Person
 from app.store.project import LedgerEntry, Project
 from app.ui.overlay import WHOLE_PERSON, palette_colour
 
@@ -44,6 +44,40 @@ STATE_TEXT = {
     FrameState.DISPUTED: "disputed",
     FrameState.SIGNED_OFF: "signed off",
 }
+
+
+#: A reviewer's decision on a frame, as the Worklist and the status bar say it.
+DECISION_TEXT = {"agree": "agree", "needs-change": "needs change", "signed-off": "signed off"}
+
+
+def clock(seconds: float) -> str:
+    """A time in a video as ``m:ss.ss`` (``h:mm:ss.ss`` from an hour on).
+
+    Examples
+    --------
+    >>> clock(0.48), clock(75.5), clock(3723.25)
+    ('0:00.48', '1:15.50', '1:02:03.25')
+    """
+    cents = round(float(seconds) * 100)
+    minutes, cs = divmod(cents, 6000)
+    hours, minutes = divmod(minutes, 60)
+    sec = f"{cs // 100:02d}.{cs % 100:02d}"
+    return f"{hours}:{minutes:02d}:{sec}" if hours else f"{minutes}:{sec}"
+
+
+def video_position(frame: Frame) -> str:
+    """Where a frame comes from in its video ("" for a still image).
+
+    Examples
+    --------
+    >>> video_position(Frame(7, "frames/clip/000012.jpg", "clip/000012.jpg", 64, 48,
+    ...                      video_index=12, timestamp=0.48))
+    'video frame 12 at 0:00.48'
+    """
+    if frame.video_index is None:
+        return ""
+    at = f" at {clock(frame.timestamp)}" if frame.timestamp is not None else ""
+    return f"video frame {frame.video_index}{at}"
 
 
 def when(t: float) -> str:
@@ -84,6 +118,8 @@ class WorkRow:
     kinds: frozenset[str]
     summary: str
     details: str
+    video: str = ""
+    decision: str = ""
 
 
 class WorklistModel(QAbstractTableModel):
@@ -92,9 +128,11 @@ class WorklistModel(QAbstractTableModel):
 
     COLUMNS = ("frame and reasons", "score", "state")
 
-    def __init__(self, project: Project, parent: Any = None):
+    def __init__(self, project: Project, parent: Any = None, review: bool = False):
         super().__init__(parent)
         self._project = project
+        #: A review project: each frame also shows the reviewer's decision.
+        self._review = review
         self._rows: list[WorkRow] = []
         self._row_of: dict[int, int] = {}
         self.reload()
@@ -103,10 +141,18 @@ class WorklistModel(QAbstractTableModel):
     def reload(self) -> None:
         frames = self._project.frames()
         triage = self._project.triage_all()
+        decided = {}
+        if self._review:
+            from app.review.review import decisions
+
+            decided = {fid: d.decision for fid, d in decisions(self._project).items()}
         rows = []
         for f in frames:
             score, reasons = triage.get(f.id, (None, []))
-            rows.append(_work_row(f.id, f.file_name or f.path, score, f.state, reasons))
+            row = _work_row(f.id, f.file_name or f.path, score, f.state, reasons)
+            row.video = video_position(f)
+            row.decision = DECISION_TEXT.get(decided.get(f.id, ""), "")
+            rows.append(row)
         rows.sort(key=lambda r: (r.score is None, -(r.score or 0.0), r.frame_id))
         self.beginResetModel()
         self._rows = rows
@@ -172,10 +218,15 @@ class WorklistModel(QAbstractTableModel):
                 return f"{r.name}\n{r.summary}" if r.summary else r.name
             if col == 1:
                 return "" if r.score is None else f"{r.score:.2f}"
+            if self._review:
+                return f"{STATE_TEXT[r.state]}\n{r.decision}" if r.decision else \
+                    STATE_TEXT[r.state]
             return STATE_TEXT[r.state]
         if role == ToolTipRole:
-            return f"frame {r.frame_id}: {r.name}\n{r.details}" if r.details else \
-                f"frame {r.frame_id}: {r.name}"
+            head = f"frame {r.frame_id}: {r.name}" + (f"\n{r.video}" if r.video else "")
+            if self._review:
+                head += f"\nyour decision: {r.decision or 'none yet'}"
+            return f"{head}\n{r.details}" if r.details else head
         if role == AlignRole and col == 1:
             return int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
         if role == AlignRole and col == 0:

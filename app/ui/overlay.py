@@ -14,6 +14,13 @@ Our visual language (DESIGN.md section 6):
   as small hollow crosses where their position is remembered.
 - Triage flags draw a halo (a translucent ring) around the joint; a flag on the whole person
   rings the number tag. Focus mode dims everyone but one person, and the image a little.
+- *Ignore regions* (parts of a frame left out of training) lie under everything else: a light
+  grey wash crossed by a two-tone diagonal hatch (a light line with a dark shadow, so it reads
+  on any image) inside a thin light edge; the selected region has a white edge and square
+  handles at its corners.
+- *Differences* of a disputed frame (ours against a reviewer's version): a white square frame
+  around the joint as shown, and a connector of white dashes on a dark line to a small hollow
+  square in the person's colour where the other version has it.
 
 Every size is in screen (device) pixels, independent of zoom, so the overlay stays readable
 when zoomed far out and does not swamp the image when zoomed in. Limbs of all people are drawn
@@ -32,6 +39,7 @@ from typing import Any, Protocol
 import numpy as np
 from PySide6.QtCore import QLineF, QPointF, QRectF, Qt
 from PySide6.QtGui import (
+    QBrush,
     QColor,
     QFont,
     QFontMetrics,
@@ -243,6 +251,17 @@ class OverlayStyle:
     hover: tuple[int, int | None] | None = None
     tag_font_px: int = 11
     colours: Mapping[int, int] | None = None  # person id -> palette index; None: assign
+    #: Ignore regions ``(region id, polygons)``, each polygon flat ``(x0, y0, x1, y1, ...)``
+    #: in image pixels.
+    regions: tuple[tuple[int, tuple[tuple[float, ...], ...]], ...] = ()
+    selected_region: int | None = None
+    #: The corners of a region being drawn (image pixels), closed when it is a rectangle.
+    region_draft: tuple[tuple[float, float], ...] = ()
+    region_draft_closed: bool = False
+    #: ``(person id, joint)`` -> where the other version has that joint (image pixels), or
+    #: None when it is not labelled there: the differences of a disputed frame.
+    differences: Mapping[tuple[int, int], tuple[float, float] | None] = field(
+        default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -421,9 +440,10 @@ def paint_overlay(painter: QPainter, people: Sequence[_PersonLike], skeleton: Sk
 
     Notes
     -----
-    Layers, bottom to top: the image veil (focus mode), triage halos, limbs of everyone,
-    joints, selection and hover rings, number tags. Dimmed people (focus mode) are painted
-    first with all their layers, then the others; the focused or selected person comes last.
+    Layers, bottom to top: the image veil (focus mode), ignore regions, triage halos, limbs
+    of everyone, joints, selection and hover rings, difference marks, number tags. Dimmed
+    people (focus mode) are painted first with all their layers, then the others; the focused
+    or selected person comes last.
     Joint glyphs are drawn antialiased once per colour and kind and then copied (snapped to
     the device pixel that holds the joint, so within half a pixel of it); the geometry of all
     people is computed as whole arrays.
@@ -460,6 +480,8 @@ def paint_overlay(painter: QPainter, people: Sequence[_PersonLike], skeleton: Sk
         w, h = image_size
         veil = transform.mapRect(QRectF(-0.5, -0.5, float(w), float(h)))
         painter.fillRect(veil, QColor(0, 0, 0, round(255 * style.dim_image)))
+    if style.regions or style.region_draft:
+        _paint_regions(painter, transform, style)
 
     top = style.focus if style.focus is not None else style.selected_person
     rest = [i for i, p in enumerate(people) if p.id != top]
@@ -480,6 +502,8 @@ def paint_overlay(painter: QPainter, people: Sequence[_PersonLike], skeleton: Sk
         for i in group:
             _paint_marks(painter, geo, i, people[i].id, style)
     painter.setOpacity(1.0)
+    if style.differences:
+        _paint_differences(painter, geo, people, colours, transform, style)
 
     tags: dict[int, QRectF] = {}
     if style.show_tags and people:
@@ -778,6 +802,131 @@ def _paint_marks(painter: QPainter, geo: _Geometry, i: int, pid: int,
         if 0 <= j < k and geo.placed[i, j]:
             painter.setPen(_pen(QColor(255, 255, 255, 200), 1.5))
             painter.drawEllipse(QPointF(*geo.pts[i, j]), r + 2.5, r + 2.5)
+
+
+#: Ignore regions: the edge (light), its shadow (dark) and the wash inside.
+REGION_EDGE = QColor(236, 236, 236, 230)
+REGION_SHADOW = QColor(20, 20, 20, 170)
+REGION_WASH = QColor(210, 210, 210, 56)
+#: Spacing of the hatch lines (screen pixels).
+HATCH_PX = 9
+
+
+def _hatch_brush() -> QBrush:
+    """The two-tone diagonal hatch, one tile drawn once: a light line with a dark shadow
+    beside it, rising to the right, every :data:`HATCH_PX` pixels."""
+    key = ("hatch", HATCH_PX)
+    hit = _SPRITES.get(key)
+    if hit is None:
+        s = HATCH_PX
+        tile = QImage(s, s, QImage.Format.Format_ARGB32_Premultiplied)
+        tile.fill(REGION_WASH)
+        p = QPainter(tile)
+        p.setRenderHint(QPainter.RenderHint.Antialiasing, True)
+        # Each line is drawn at three offsets so it runs on seamlessly across tiles.
+        for dx in (-s, 0, s):
+            p.setPen(_pen(REGION_SHADOW, 1.2))
+            p.drawLine(QLineF(dx + 1.0, s + 1.0, dx + s + 1.0, 1.0))
+            p.setPen(_pen(REGION_EDGE, 1.2))
+            p.drawLine(QLineF(dx, s, dx + s, 0.0))
+        p.end()
+        hit = _SPRITES[key] = (tile, 0)
+    return QBrush(hit[0])
+
+
+def _paint_regions(painter: QPainter, transform: QTransform, style: OverlayStyle) -> None:
+    """Ignore regions under everything else, and the one being drawn."""
+    painter.setBrushOrigin(transform.map(QPointF(0.0, 0.0)))
+    hatch = _hatch_brush()
+    handles: list[QPointF] = []
+    for rid, polygons in style.regions:
+        selected = rid == style.selected_region
+        for poly in polygons:
+            pts = map_points(transform, np.asarray(poly, dtype=np.float64))
+            shape = QPolygonF([QPointF(x, y) for x, y in pts.tolist()])
+            painter.setPen(Qt.PenStyle.NoPen)
+            painter.setBrush(hatch)
+            painter.drawPolygon(shape, Qt.FillRule.OddEvenFill)
+            painter.setBrush(Qt.BrushStyle.NoBrush)
+            painter.setPen(_pen(REGION_SHADOW, 3.4 if selected else 3.0))
+            painter.drawPolygon(shape)
+            painter.setPen(_pen("#ffffff" if selected else REGION_EDGE,
+                                2.0 if selected else 1.2))
+            painter.drawPolygon(shape)
+            if selected:
+                handles.extend(shape)
+    if style.region_draft:
+        pts = map_points(transform, np.asarray(style.region_draft, dtype=np.float64))
+        shape = QPolygonF([QPointF(x, y) for x, y in pts.tolist()])
+        if style.region_draft_closed:
+            painter.setPen(Qt.PenStyle.NoPen)
+            painter.setBrush(hatch)
+            painter.drawPolygon(shape)
+        painter.setBrush(Qt.BrushStyle.NoBrush)
+        dash = [d / 1.6 for d in _DASH_PX]
+        for pen in (_pen(REGION_SHADOW, 3.4), _pen("#ffffff", 1.6, dash=dash)):
+            painter.setPen(pen)
+            if style.region_draft_closed:
+                painter.drawPolygon(shape)
+            else:
+                painter.drawPolyline(shape)
+        if not style.region_draft_closed:
+            handles.extend(shape)
+    half = 3.5
+    painter.setPen(_pen(OUTLINE, 1.0))
+    painter.setBrush(QColor("#ffffff"))
+    for c in handles:
+        painter.drawRect(QRectF(c.x() - half, c.y() - half, 2 * half, 2 * half))
+    painter.setBrushOrigin(QPointF(0.0, 0.0))
+
+
+def _paint_differences(painter: QPainter, geo: _Geometry, people: list[_PersonLike],
+                       colours: Mapping[int, int], transform: QTransform,
+                       style: OverlayStyle) -> None:
+    """Mark where ours and the other version differ: a white square frame around the joint as
+    shown, a connector of white dashes, and a small hollow square in the person's colour where
+    the other version has the joint."""
+    row = {p.id: i for i, p in enumerate(people)}
+    r = style.joint_radius
+    frame_half = r + 4.0
+    ghost_half = 0.8 * r
+    painter.setBrush(Qt.BrushStyle.NoBrush)
+    for (pid, j), other in style.differences.items():
+        colour = palette_colour(colours.get(pid, 0))
+        i = row.get(pid)
+        here = None
+        if i is not None and 0 <= j < geo.pts.shape[1] and geo.placed[i, j] and (
+                geo.labelled[i, j] or style.show_unlabeled):
+            here = geo.pts[i, j]
+        there = None
+        if other is not None and np.isfinite(other).all():
+            there = map_points(transform, np.asarray(other, dtype=np.float64))[0]
+        if here is not None and there is not None:
+            d = there - here
+            length = float(np.hypot(*d))
+            if length > frame_half + ghost_half + 2:
+                u = d / length
+                # White dashes on a dark line: unlike any limb (limbs are solid or dashed in
+                # the person's colour), so a connector never reads as part of a skeleton.
+                line = QLineF(*(here + u * frame_half), *(there - u * ghost_half))
+                painter.setPen(_pen(OUTLINE, 3.6))
+                painter.drawLine(line)
+                painter.setPen(_pen("#ffffff", 1.8, dash=[3.0 / 1.8, 3.0 / 1.8]))
+                painter.drawLine(line)
+        if there is not None:
+            box = QRectF(there[0] - ghost_half, there[1] - ghost_half, 2 * ghost_half,
+                         2 * ghost_half)
+            painter.setPen(_pen(OUTLINE, 4.0))
+            painter.drawRect(box)
+            painter.setPen(_pen(colour, 2.0))
+            painter.drawRect(box)
+        if here is not None:
+            box = QRectF(here[0] - frame_half, here[1] - frame_half, 2 * frame_half,
+                         2 * frame_half)
+            painter.setPen(_pen(OUTLINE, 3.4))
+            painter.drawRect(box)
+            painter.setPen(_pen("#ffffff", 1.6))
+            painter.drawRect(box)
 
 
 _TAG_LAYOUTS: OrderedDict[bytes, np.ndarray] = OrderedDict()

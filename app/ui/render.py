@@ -77,7 +77,8 @@ def render_overlay(bgr: np.ndarray, people: Sequence[Any], skeleton: Skeleton,
 
 
 def render_frame_image(project: Project, frame: Frame, focus: int | None = None) -> QImage:
-    """The frame's image with its people drawn as the Canvas draws them (flags included).
+    """The frame's image with its people drawn as the Canvas draws them (flags and ignore
+    regions included).
 
     ``focus`` is a person id of the frame; everyone else is dimmed.
     """
@@ -90,5 +91,8 @@ def render_frame_image(project: Project, frame: Frame, focus: int | None = None)
         listing = ", ".join(f"{p.id} (tag {n + 1})" for n, p in enumerate(people)) or "none"
         raise NotFound(f"frame {frame.id} has no person {focus}; its people are: {listing}")
     triage = project.triage(frame.id)
-    style = OverlayStyle(focus=focus, flags=flags_from_reasons(triage[1] if triage else None))
+    regions = tuple((rid, tuple(tuple(p) for p in polys))
+                    for rid, polys, _ in project.regions(frame.id))
+    style = OverlayStyle(focus=focus, flags=flags_from_reasons(triage[1] if triage else None),
+                         regions=regions)
     return render_overlay(bgr, people, project.skeleton, style)

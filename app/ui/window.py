@@ -4,11 +4,23 @@ The window is the one place that turns what the user asked for into edits and ha
 :meth:`app.store.Project.apply` (or undo, redo, return-to). It learns about every committed
 change through :class:`ProjectEvents`, which turns the store's listener calls into a Qt signal,
 and then refreshes the models and the Canvas; nothing polls.
+
+The same window serves three situations, each with a strip above the Canvas
+(:mod:`app.ui.strips`) that names it and offers its actions:
+
+- *Reviewing a packet* (a project opened from a review packet, :mod:`app.review.review`): a
+  Review menu records a decision per frame and returns the packet.
+- *A disputed frame* in the main project, after a returned packet was merged: the Canvas marks
+  where ours and the reviewer's version differ and can show theirs instead of ours; taking
+  theirs or keeping ours works per joint, per person or for the whole frame
+  (:mod:`app.review.settle`), and settling ends the dispute.
+- *Region mode*: the mouse draws, selects, reshapes and deletes ignore regions.
 """
 
 from __future__ import annotations
 
 import logging
+import time
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
@@ -31,6 +43,7 @@ from PySide6.QtWidgets import (
 from app.errors import Cancelled, EditRefused, PosewrightError
 from app.model.edits import (
     AddNote,
+    AddRegion,
     DeletePerson,
     Edit,
     MergePeople,
@@ -45,15 +58,25 @@ from app.model.edits import (
 from app.model.labels import FrameState
 from app.model.skeleton import Skeleton
 from app.progress import Progress
+from app.review.review import is_review
 from app.store.project import Applied, Project
 from app.ui.batch import Batch
 from app.ui.canvas import Canvas
 from app.ui.images import ImageCache, ImageLoader
 from app.ui.keys import KEYS, sequences, sheet_html
-from app.ui.models import STATE_TEXT, LedgerModel, NotesModel, WorklistModel
+from app.ui.models import (
+    DECISION_TEXT,
+    STATE_TEXT,
+    LedgerModel,
+    NotesModel,
+    WorklistModel,
+    video_position,
+)
 from app.ui.overlay import WHOLE_PERSON, flags_from_reasons
 from app.ui.panels import LedgerPanel, NotesPanel, OwnersPanel, WorklistPanel
 from app.ui.settings import cache_bytes, settings
+from app.ui.settling import Dispute, describe_difference, load_dispute, step_difference
+from app.ui.strips import Strip
 from app.ui.suggestions import rank_owners
 from app.ui.work import describe_error, run_job
 
@@ -116,16 +139,34 @@ class MainWindow(QMainWindow):
         self._remember_layout = restore_layout
         self._layout_restored = True
         self._panels_for: int | None = None
+        #: Opened from a review packet: the reviewer's side (decisions, return).
+        self.review_mode = is_review(project)
+        #: The open differences of the frame shown, when it is disputed (main project).
+        self.dispute: Dispute | None = None
 
         self.actions_by_name: dict[str, QAction] = {}
         self._build_actions()
 
         self.canvas = Canvas(self.skeleton, self)
-        self.setCentralWidget(self.canvas)
-        self.worklist_model = WorklistModel(project, self)
+        self.strips = self._build_strips()
+        centre = QWidget(self)
+        centre.setObjectName("CanvasArea")
+        column = QVBoxLayout(centre)
+        column.setContentsMargins(0, 0, 0, 0)
+        column.setSpacing(0)
+        for strip in self.strips.values():
+            column.addWidget(strip)
+        column.addWidget(self.canvas, 1)
+        self.setCentralWidget(centre)
+        self.worklist_model = WorklistModel(project, self, review=self.review_mode)
         self.ledger_model = LedgerModel(project, self)
         self.notes_model = NotesModel(project, self)
         self.worklist = WorklistPanel(self.worklist_model)
+        if self.review_mode:
+            # The state column also carries the decision; a reviewer has no triage to run.
+            self.worklist.view.horizontalHeader().resizeSection(2, 104)
+            self.worklist.hint.setText("The frames of the packet. Ctrl+1 agree, Ctrl+2 needs "
+                                       "change, Ctrl+3 signed off; Ctrl+Shift+R returns it.")
         self.owners = OwnersPanel(self.actions_by_name)
         self.ledger = LedgerPanel(self.ledger_model, self.actions_by_name)
         self.notes = NotesPanel(self.notes_model)
@@ -151,6 +192,7 @@ class MainWindow(QMainWindow):
         self.canvas.editRequested.connect(self._canvas_edit)
         self.canvas.personPicked.connect(self._merge_picked)
         self.canvas.viewChanged.connect(self._view_changed)
+        self.canvas.regionChanged.connect(self._region_changed)
         self.worklist.frameChosen.connect(self.show_frame)
         self.owners.personChosen.connect(self._owner_person_chosen)
         self.owners.candidateChosen.connect(self.give_to_person)
@@ -214,12 +256,33 @@ class MainWindow(QMainWindow):
             "run_triage": self._run_triage,
             "export_labels": self._export_labels,
             "export_targets": self._export_targets,
+            "add_images": self._add_images,
+            "add_video": self._add_video,
+            "prelabel": self._prelabel,
+            "export_packet": self._export_packet,
+            "merge_packet": self._merge_packet,
+            "region_mode": self._toggle_region_mode,
+            "show_theirs": self._toggle_theirs,
+            "next_difference": lambda: self.step_difference(1),
+            "prev_difference": lambda: self.step_difference(-1),
+            "take_theirs_joint": lambda: self.take_theirs("joint"),
+            "take_theirs_person": lambda: self.take_theirs("person"),
+            "take_theirs_frame": lambda: self.take_theirs("frame"),
+            "keep_ours_joint": lambda: self.keep_ours("joint"),
+            "keep_ours_person": lambda: self.keep_ours("person"),
+            "keep_ours_frame": lambda: self.keep_ours("frame"),
+            "settle_frame": self.settle,
+            "decide_agree": lambda: self.decide("agree"),
+            "decide_needs_change": lambda: self.decide("needs-change"),
+            "decide_signed_off": lambda: self.decide("signed-off"),
+            "return_packet": self._return_packet,
             "shortcuts": self.show_shortcuts,
             "quit": self.close,
         }
         for n in range(1, 10):
             handlers[f"give_{n}"] = lambda n=n: self._type_digit(str(n))
-        checkable = {"focus_mode", "show_unlabeled", "show_tags"}
+        checkable = {"focus_mode", "show_unlabeled", "show_tags", "region_mode", "show_theirs",
+                     "decide_agree", "decide_needs_change", "decide_signed_off"}
         for key in KEYS:
             if not key.name:
                 continue
@@ -239,22 +302,39 @@ class MainWindow(QMainWindow):
                             ("mark_visible", "Visible (V)"), ("mark_occluded", "Occluded (O)"),
                             ("mark_unlabeled", "Unlabeled (U)"), ("swap_sides", "Swap L/R (S)"),
                             ("merge_people", "Merge\u2026 (M)"),
-                            ("delete_person", "Delete person")):
+                            ("delete_person", "Delete person"),
+                            ("show_theirs", "Show theirs (B)"), ("next_difference", "Next (J)"),
+                            ("take_theirs_joint", "Take theirs (A)"),
+                            ("keep_ours_joint", "Keep ours (K)"),
+                            ("settle_frame", "Settle (Shift+Return)"),
+                            ("region_mode", "Leave region mode (R)"),
+                            ("decide_agree", "Agree (Ctrl+1)"),
+                            ("decide_needs_change", "Needs change (Ctrl+2)"),
+                            ("decide_signed_off", "Signed off (Ctrl+3)"),
+                            ("return_packet", "Return the packet\u2026")):
             self.actions_by_name[name].setIconText(short)
 
     def _build_menus(self) -> None:
         a = self.actions_by_name
         bar = self.menuBar()
+        review = (["decide_agree", "decide_needs_change", "decide_signed_off", None,
+                   "return_packet"] if self.review_mode else
+                  ["show_theirs", "next_difference", "prev_difference", None,
+                   "take_theirs_joint", "take_theirs_person", "take_theirs_frame", None,
+                   "keep_ours_joint", "keep_ours_person", "keep_ours_frame", None,
+                   "settle_frame"])
         menus = {
-            "&Project": ["open_project", None, "import_labels", "import_maps", "run_triage",
-                         None, "export_labels", "export_targets", None, "quit"],
+            "&Project": ["open_project", None, "add_images", "add_video", "prelabel", None,
+                         "import_labels", "import_maps", "run_triage", None, "export_labels",
+                         "export_targets", None, "export_packet", "merge_packet", None, "quit"],
             "&Edit": ["undo", "redo", None, "give_best", "mark_visible", "mark_occluded",
                       "mark_unlabeled", "place_joint", None, "new_person", "split_person",
-                      "swap_sides", "merge_people", "delete_person"],
+                      "swap_sides", "merge_people", "delete_person", None, "region_mode"],
             "&Frame": ["next_frame", "prev_frame", None, "mark_disputed", "sign_off",
                        "write_note", None, "next_person", "prev_person", "clear_selection"],
             "&View": ["focus_mode", "show_unlabeled", "show_tags", None, "fit", "actual_size",
                       "zoom_in", "zoom_out"],
+            "&Review": review,
             "&Help": ["shortcuts"],
         }
         for title, names in menus.items():
@@ -270,6 +350,17 @@ class MainWindow(QMainWindow):
                     menu.addAction(dock.toggleViewAction())
                 reset = menu.addAction("Reset panel layout")
                 reset.triggered.connect(self._reset_layout)
+
+    def _build_strips(self) -> dict[str, Strip]:
+        a = self.actions_by_name
+        return {
+            "review": Strip("review", [a["decide_agree"], a["decide_needs_change"],
+                                       a["decide_signed_off"], a["return_packet"]]),
+            "dispute": Strip("dispute", [a["show_theirs"], a["next_difference"],
+                                         a["take_theirs_joint"], a["keep_ours_joint"],
+                                         a["settle_frame"]]),
+            "regions": Strip("regions", [a["region_mode"]]),
+        }
 
     def _build_status(self) -> None:
         bar = self.statusBar()
@@ -363,9 +454,12 @@ class MainWindow(QMainWindow):
         flags = self._flags(frame.id)
         decoded = self.loader.request(frame.id, self.project.image_path(frame), urgent=True)
         self.canvas.set_frame(frame, people, flags, decoded)
+        self._load_frame_extras()
         # The neighbours are decoded once this frame is on screen (framePainted): on a busy
         # machine their decoding would compete with the frame the annotator is waiting for.
-        self.owners.people_model.set_people(people, flags, self.canvas.colours)
+        self.owners.people_model.set_people(self.canvas.people, flags, self.canvas.colours)
+        if self.dispute is not None:
+            self.canvas.select_joint(*self.dispute.joints[0])  # where the settling starts
         self.worklist.show_frame(frame.id)
         self._selection_changed()
         self._update_status()
@@ -412,10 +506,33 @@ class MainWindow(QMainWindow):
         flags = self._flags(frame.id)
         self.canvas.frame = frame
         self.canvas.set_people(people, flags)
-        self.owners.people_model.set_people(people, flags, self.canvas.colours)
+        self._load_frame_extras()
+        self.owners.people_model.set_people(self.canvas.people, flags, self.canvas.colours)
         self.notes_model.set_frame(frame.id, {p.id: n + 1 for n, p in enumerate(people)})
         self._selection_changed()
         self._update_status()
+
+    def _load_frame_extras(self) -> None:
+        """The shown frame's ignore regions and, when it is disputed, its differences."""
+        frame = self.canvas.frame
+        if frame is None:
+            return
+        self.canvas.set_regions([(rid, polys) for rid, polys, _ in
+                                 self.project.regions(frame.id)])
+        dispute = None
+        if not self.review_mode and frame.state is FrameState.DISPUTED:
+            try:
+                dispute = load_dispute(self.project, frame.id, self.canvas.ours)
+            except PosewrightError:  # a damaged alternative must not stop the annotator
+                log.exception("reading the differences of frame %s failed", frame.id)
+        self.dispute = dispute
+        if dispute is None:
+            self.canvas.set_dispute({}, None, {})
+        else:
+            self.canvas.set_dispute(dispute.ours_marks, list(dispute.theirs),
+                                    dispute.theirs_marks, dispute.who)
+        self.actions_by_name["show_theirs"].setChecked(self.canvas.showing_theirs)
+        self._update_strips()
 
     def _image_ready(self, frame_id: int) -> None:
         if frame_id == self.frame_id and not self.canvas.has_image:
@@ -436,7 +553,10 @@ class MainWindow(QMainWindow):
         if frame.status != status:
             self.project.mark_image_status(frame_id, status)
         if frame_id == self.frame_id:
-            self.canvas.set_image(None, f"image {status}: {self.project.image_path(frame)}")
+            message = f"image {status}: {self.project.image_path(frame)}"
+            if self.review_mode and status == "missing":
+                message = "the packet came without this frame's image (labels only)"
+            self.canvas.set_image(None, message)
             self._prefetch(frame_id)
 
     # ------------------------------------------------------------------ store changes
@@ -472,6 +592,10 @@ class MainWindow(QMainWindow):
         if self.project.read_only:
             self._message(f"read-only: {self.project.read_only_reason}")
             return None
+        if self.canvas.showing_theirs and not isinstance(edit, (AddNote, SetFrameState)):
+            self._message(f"showing {self.canvas.theirs_name}'s version, which is not edited "
+                          "here: B goes back to ours")
+            return None
         try:
             return self.project.apply(edit)
         except EditRefused as exc:
@@ -480,8 +604,25 @@ class MainWindow(QMainWindow):
             self._error(str(exc))
         return None
 
+    def _attempt(self, fn: Callable[[], Any]) -> tuple[bool, Any]:
+        """Run a back-end call that changes the project (settling, decisions) as the window
+        runs an edit: read-only and refusals go to the status bar, other errors to a box."""
+        if self.project.read_only:
+            self._message(f"read-only: {self.project.read_only_reason}")
+            return False, None
+        try:
+            return True, fn()
+        except EditRefused as exc:
+            self._message(f"not done: {exc}")
+        except PosewrightError as exc:
+            self._error(str(exc))
+        return False, None
+
     def _canvas_edit(self, edit: Edit) -> None:
-        self.apply(edit)
+        done = self.apply(edit)
+        if done is not None and isinstance(done.edit, AddRegion):
+            self.canvas.select_region(done.edit.region_id)
+            self._message("ignore region added (Ctrl+Z takes it back)")
 
     def _selection(self) -> tuple[int | None, list[tuple[int, int]], int | None]:
         return self.frame_id, self.canvas.selected_joints, self.canvas.selected_person
@@ -710,6 +851,9 @@ class MainWindow(QMainWindow):
             self.canvas.set_pick_mode(None)
             self._message("merge cancelled")
             return
+        if self.canvas.region_mode:
+            self.canvas.region_escape()
+            return
         self.canvas.clear_selection()
 
     def _owner_person_chosen(self, pid: int) -> None:
@@ -739,7 +883,11 @@ class MainWindow(QMainWindow):
             self.owners.candidates_model.set_choices(choices, note, self.canvas.colours)
             self.owners.note.setText(note)
             self.owners.note.setVisible(bool(note))
-        self.owners.selection.setText(self._selection_text())
+        text = self._selection_text()
+        differs = self._difference_text()
+        if differs:
+            text += f"<br><span style='color:#8a4b00'><b>differs</b> \u2014 {differs}</span>"
+        self.owners.selection.setText(text)
         self._update_actions()
 
     def _frame_maps(self) -> Any:
@@ -764,7 +912,8 @@ class MainWindow(QMainWindow):
             return "Nothing selected."
         n = self.canvas.number_of(pid)
         person = self.canvas.person(pid)
-        head = f"<b>person {pid}</b> (tag {n})"
+        head = f"<b>person {pid}</b> " + (f"(tag {n})" if n is not None else
+                                         "(not in the version shown)")
         joints = self.canvas.selected_joints
         if not joints or person is None:
             labelled = 0 if person is None else person.num_labelled
@@ -783,6 +932,210 @@ class MainWindow(QMainWindow):
         flag = ", <b>flagged by triage</b>" if flagged else ""
         return (f"{head} \u00b7 {name} \u00b7 {_VISIBILITY_WORD[int(v)]} at ({x:.1f}, {y:.1f})"
                 f"{extra}, by {person.sources[j] or 'unknown'}{flag}")
+
+    def _difference_text(self) -> str:
+        """What ours and the reviewer's version say about the selection ("" if they agree)."""
+        joint = self.canvas.selected_joint
+        pid = self.canvas.selected_person
+        if self.dispute is None or pid is None:
+            return ""
+        if joint is not None:
+            found = self.dispute.joint(*joint)
+            if found is not None:
+                return describe_difference(found[1], found[0].reviewer)
+            return ""
+        person = self.dispute.person(pid)
+        if person is None:
+            return ""
+        if person.alternative.kind == "deleted-there":
+            return f"{person.reviewer} deleted this person; we kept editing it"
+        if person.alternative.kind == "deleted-here":
+            return f"we deleted this person; {person.reviewer} kept editing it"
+        return f"{len(person.joints)} joint(s) differ from {person.reviewer}'s version"
+
+    # ------------------------------------------------------------------ ignore regions
+
+    def _toggle_region_mode(self) -> None:
+        on = self.actions_by_name["region_mode"].isChecked()
+        if on and self.canvas.showing_theirs:
+            self.canvas.show_theirs(False)
+        self._cancel_typing()
+        self.canvas.set_region_mode(on)
+        if on:
+            self.canvas.setFocus()
+
+    def _region_changed(self) -> None:
+        self.actions_by_name["region_mode"].setChecked(self.canvas.region_mode)
+        self._update_strips()
+        self._update_status()
+
+    # ------------------------------------------------------------------ settling a dispute
+
+    def _toggle_theirs(self) -> None:
+        want = self.actions_by_name["show_theirs"].isChecked()
+        if want and self.canvas.region_mode:
+            self.canvas.set_region_mode(False)
+        shown = self.canvas.show_theirs(want)
+        if want and not shown:
+            self._message("this frame has no reviewer's version to show")
+        self.owners.people_model.set_people(self.canvas.people, self.canvas.flags,
+                                            self.canvas.colours)
+        self._selection_changed()
+        self._update_strips()
+
+    def step_difference(self, step: int) -> None:
+        """Select the next (1) or previous (-1) joint where ours and theirs differ."""
+        if self.dispute is None:
+            self._message("no differences to walk in this frame")
+            return
+        target = step_difference(self.dispute.joints, self.canvas.selected_joint, step)
+        if target is not None:
+            self._select_difference(target)
+
+    def _select_difference(self, target: tuple[int, int]) -> None:
+        """Select a differing joint and bring it into view (ours, or theirs if ours has no
+        position for it)."""
+        self.canvas.select_joint(*target)
+        marks = self.canvas.marks
+        person = self.canvas.person(target[0])
+        xy = None
+        if person is not None and np.isfinite(person.keypoints[target[1], :2]).all():
+            xy = tuple(person.keypoints[target[1], :2])
+        elif marks.get(target) is not None:
+            xy = marks[target]
+        if xy is not None:
+            self.canvas.ensure_visible(*xy)
+
+    def _settling_scope(self, scope: str) -> tuple[int, int | None, int | None, str] | None:
+        """The frame, person and joint an action settles, and how to name them."""
+        if self.frame_id is None or self.dispute is None:
+            self._message("this frame has no differences with a reviewer's version")
+            return None
+        if scope == "joint":
+            joint = self.canvas.selected_joint
+            if joint is None or self.dispute.joint(*joint) is None:
+                self._message("select a joint that differs first (J walks them)")
+                return None
+            return self.frame_id, joint[0], joint[1], \
+                f"{self.skeleton.joints[joint[1]]} of person {joint[0]}"
+        if scope == "person":
+            pid = self.canvas.selected_person
+            if pid is None or self.dispute.person(pid) is None:
+                self._message("select a person whose joints differ first")
+                return None
+            return self.frame_id, pid, None, f"person {pid}"
+        return self.frame_id, None, None, "the whole frame"
+
+    def take_theirs(self, scope: str) -> None:
+        """Take the reviewer's version of the selected joint, person, or the frame: one
+        edit, one undo step."""
+        from app.review.settle import take_theirs
+
+        found = self._settling_scope(scope)
+        if found is None:
+            return
+        fid, pid, joint, what = found
+        who, was = self.dispute.who if self.dispute else "", self._current_difference()
+        ok, _ = self._attempt(lambda: take_theirs(self.project, fid, pid, joint))
+        if ok:
+            self._after_settling(was, f"took {who}'s version of {what} (Ctrl+Z takes it back)")
+
+    def keep_ours(self, scope: str) -> None:
+        """Keep our version of the selected joint, person, or the frame (the labels stay;
+        the choice is recorded in the Ledger)."""
+        from app.review.settle import keep_ours
+
+        found = self._settling_scope(scope)
+        if found is None:
+            return
+        fid, pid, joint, what = found
+        was = self._current_difference()
+        ok, settled = self._attempt(lambda: keep_ours(self.project, fid, pid, joint))
+        if ok:
+            # The back end records this choice in the Ledger but not as an undo step.
+            self._after_settling(was, f"kept ours for {what} ({settled} joint(s)); recorded "
+                                      "in the Ledger, not an undo step")
+
+    def _current_difference(self) -> tuple[int, int] | None:
+        joint = self.canvas.selected_joint
+        if joint is None and self.dispute is not None:
+            pid = self.canvas.selected_person
+            return next((pj for pj in self.dispute.joints if pj[0] == pid), None)
+        return joint
+
+    def _after_settling(self, was: tuple[int, int] | None, said: str) -> None:
+        """After a take or a keep (the frame has reloaded): select the next open difference,
+        or say that the frame can be settled."""
+        d = self.dispute
+        if d is None:
+            self._message(f"{said}; no differences left: Shift+Return settles the frame", 10000)
+            return
+        self._message(said)
+        joint = self.canvas.selected_joint
+        if joint is not None and d.joint(*joint) is not None:
+            return
+        self._select_difference(self._following(was, d.joints))
+
+    @staticmethod
+    def _following(was: tuple[int, int] | None,
+                   joints: tuple[tuple[int, int], ...]) -> tuple[int, int]:
+        """The first open difference after ``was`` in walking order (wrapping around)."""
+        if was is not None:
+            later = [pj for pj in joints if pj > was]
+            if later:
+                return later[0]
+        return joints[0]
+
+    def settle(self) -> None:
+        """End the dispute: the frame becomes corrected (undo makes it disputed again)."""
+        from app.review.settle import settle_frame
+
+        frame = self.canvas.frame
+        if frame is None or self.frame_id is None:
+            return
+        if frame.state is not FrameState.DISPUTED:
+            self._message("this frame is not disputed")
+            return
+        left = len(self.dispute.joints) if self.dispute is not None else 0
+        fid = self.frame_id
+        ok, _ = self._attempt(lambda: settle_frame(self.project, fid))
+        if ok:
+            self._message("settled: the frame is corrected" + (
+                f"; {left} open difference(s) keep ours" if left else "")
+                + " (Ctrl+Z takes it back)")
+
+    # ------------------------------------------------------------------ reviewing a packet
+
+    def decide(self, decision: str) -> None:
+        """Record the reviewer's decision on the frame; the same decision again withdraws
+        it."""
+        from app.review.review import set_decision
+
+        if not self.review_mode or self.frame_id is None:
+            return
+        fid = self.frame_id
+        now = self._decision()
+        value = None if now == decision else decision
+        ok, _ = self._attempt(lambda: set_decision(self.project, fid, value))
+        if ok:
+            self._message(f"frame {fid}: " + (
+                f"{DECISION_TEXT[decision]} (the same key again withdraws it)" if value
+                else "decision withdrawn"))
+        self._update_review_actions()
+        self._update_status()
+
+    def _return_packet(self) -> None:
+        from app.review.review import return_packet
+
+        if not self.review_mode:
+            return
+        self.run_long("Returning the packet", lambda _pr: return_packet(self.project),
+                      self._packet_returned)
+
+    def _packet_returned(self, path: Any) -> None:
+        self._message(f"wrote {path}", 0)
+        self._inform(f"Wrote the returned packet:\n\n{path}\n\nSend it back to whoever sent "
+                     "it; they merge it with Project \u25b8 Merge a returned packet.")
 
     # ------------------------------------------------------------------ view toggles
 
@@ -853,6 +1206,100 @@ class MainWindow(QMainWindow):
         a["redo"].setEnabled(writable and self.project.can_redo())
         for name in ("import_labels", "import_maps", "run_triage"):
             a[name].setEnabled(writable)
+        main = writable and not self.review_mode
+        for name in ("add_images", "add_video", "prelabel", "merge_packet"):
+            a[name].setEnabled(main)
+        a["export_packet"].setEnabled(not self.review_mode and bool(self.worklist_model
+                                                                    .rowCount()))
+        a["region_mode"].setEnabled(self.frame_id is not None)
+        a["region_mode"].setChecked(self.canvas.region_mode)
+        self._update_settling_actions()
+        self._update_review_actions()
+
+    def _update_settling_actions(self) -> None:
+        a = self.actions_by_name
+        d = self.dispute
+        writable = not self.project.read_only
+        joint = self.canvas.selected_joint
+        pid = self.canvas.selected_person
+        a["show_theirs"].setEnabled(self.canvas.has_theirs)
+        a["show_theirs"].setChecked(self.canvas.showing_theirs)
+        for name in ("next_difference", "prev_difference"):
+            a[name].setEnabled(d is not None)
+        on_joint = d is not None and joint is not None and d.joint(*joint) is not None
+        on_person = d is not None and pid is not None and d.person(pid) is not None
+        for side in ("take_theirs", "keep_ours"):
+            a[f"{side}_joint"].setEnabled(writable and on_joint)
+            a[f"{side}_person"].setEnabled(writable and on_person)
+            a[f"{side}_frame"].setEnabled(writable and d is not None)
+        frame = self.canvas.frame
+        a["settle_frame"].setEnabled(writable and not self.review_mode and frame is not None
+                                     and frame.state is FrameState.DISPUTED)
+
+    def _update_review_actions(self) -> None:
+        a = self.actions_by_name
+        decided = self._decision()
+        for name, value in (("decide_agree", "agree"), ("decide_needs_change", "needs-change"),
+                            ("decide_signed_off", "signed-off")):
+            a[name].setEnabled(self.review_mode and not self.project.read_only
+                               and self.frame_id is not None)
+            a[name].setChecked(decided == value)
+        a["return_packet"].setEnabled(self.review_mode)
+
+    def _decision(self) -> str | None:
+        """The reviewer's decision on the frame shown (review mode), else None."""
+        if not self.review_mode or self.frame_id is None:
+            return None
+        from app.review.review import decisions
+
+        made = decisions(self.project).get(self.frame_id)
+        return made.decision if made is not None else None
+
+    def _update_strips(self) -> None:
+        frame = self.canvas.frame
+        if self.review_mode and frame is not None:
+            decided = self._decision()
+            word = f"<b>{DECISION_TEXT[decided]}</b>" if decided else "none yet"
+            packet = self.project.folder.name.removesuffix(".review") + ".zip"
+            self.strips["review"].say(
+                f"<b>Reviewing</b> {packet} \u00b7 your decision on this frame: {word}")
+        else:
+            self.strips["review"].say("")
+        self.strips["dispute"].say(self._dispute_strip_text())
+        self.strips["regions"].say(self._region_strip_text())
+
+    def _dispute_strip_text(self) -> str:
+        frame = self.canvas.frame
+        if self.review_mode or frame is None or frame.state is not FrameState.DISPUTED:
+            return ""
+        d = self.dispute
+        if d is None:
+            return ("<b>Disputed</b> \u00b7 no open differences with a reviewer's version "
+                    "\u00b7 Shift+Return settles the frame (marks it corrected)")
+        joints, people = len(d.joints), len(d.people)
+        if self.canvas.showing_theirs:
+            return (f"<b>Showing {d.who}'s version</b> (read-only) \u00b7 squares mark "
+                    f"{joints} joint(s) that differ; dashed lines lead to ours \u00b7 "
+                    "A takes theirs, K keeps ours, B shows ours")
+        return (f"<b>Disputed</b> \u00b7 {d.who}'s review differs on {joints} joint(s) of "
+                f"{people} person(s): white squares mark ours, dashed lines lead to theirs "
+                "\u00b7 A takes theirs, K keeps ours (Shift: the person, Ctrl+Shift: the frame)")
+
+    def _region_strip_text(self) -> str:
+        if not self.canvas.region_mode:
+            return ""
+        n = len(self.canvas.regions)
+        count = f"{n} ignore region{'s' if n != 1 else ''} in this frame"
+        if self.canvas.drafting:
+            return ("<b>Drawing a polygon</b>: click the next corner \u00b7 Return or a double "
+                    "click closes it \u00b7 Backspace takes back a corner \u00b7 Esc cancels")
+        rid = self.canvas.selected_region
+        if rid is not None:
+            return (f"<b>Region {rid}</b> selected: drag a corner to reshape it, drag inside "
+                    "to move it \u00b7 Del deletes it \u00b7 Esc lets go \u00b7 " + count)
+        return ("<b>Region mode</b>: drag a rectangle, or click the corners of a polygon "
+                "\u00b7 click a region to select it \u00b7 training ignores these areas "
+                "\u00b7 " + count)
 
     def _update_status(self) -> None:
         shown = self.worklist.proxy.rowCount()
@@ -864,14 +1311,23 @@ class MainWindow(QMainWindow):
             row = self.worklist_model.row_of(self.frame_id)
             pos = (row + 1) if row is not None else 0
             name = frame.file_name if frame is not None else ""
-            self.status_frame.setText(f"frame {pos} of {total} \u00b7 {name}")
+            video = video_position(frame) if frame is not None else ""
+            self.status_frame.setText(f"frame {pos} of {total} \u00b7 {name}"
+                                      + (f" \u00b7 {video}" if video else ""))
             self.status_frame.setToolTip(
                 f"{shown} frames shown by the Worklist filters" if shown != total else "")
-        self.status_people.setText(f"{len(self.canvas.people)} people")
+        regions = len(self.canvas.regions)
+        self.status_people.setText(f"{len(self.canvas.ours)} people" + (
+            f" \u00b7 {regions} ignore region{'s' if regions != 1 else ''}" if regions else ""))
         flagged = sum(1 for v in self.canvas.flags.values() if v)
         self.status_flags.setText(f"flags on {flagged} people" if flagged else "no flags")
         frame = self.canvas.frame
-        self.status_state.setText(STATE_TEXT[frame.state] if frame is not None else "")
+        state = STATE_TEXT[frame.state] if frame is not None else ""
+        if self.review_mode and frame is not None:
+            decided = self._decision()
+            state += f" \u00b7 decision: {DECISION_TEXT[decided] if decided else 'none'}"
+        self.status_state.setText(state)
+        self._update_strips()
         self.status_author.setText(f"author: {self.project.author}")
         self._update_zoom()
 
@@ -889,6 +1345,14 @@ class MainWindow(QMainWindow):
     def _error(self, text: str) -> None:
         box = QMessageBox(QMessageBox.Icon.Warning, "Posewright", text,
                           QMessageBox.StandardButton.Ok, self)
+        box.setObjectName("ErrorBox")
+        box.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
+        box.open()
+
+    def _inform(self, text: str) -> None:
+        box = QMessageBox(QMessageBox.Icon.Information, "Posewright", text,
+                          QMessageBox.StandardButton.Ok, self)
+        box.setObjectName("InfoBox")
         box.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
         box.open()
 
@@ -968,6 +1432,148 @@ class MainWindow(QMainWindow):
             self.run_long("Exporting training targets",
                           lambda pr: fn(self.project, folder, progress=pr),
                           lambda _r: self._message(f"training targets written to {folder}"))
+
+    def _frames_added(self, frames: Any, what: str) -> None:
+        if not frames:
+            self._message(f"no new frames: the project has every {what} already")
+            return
+        self._message(f"added {len(frames)} frames from {what}")
+        self.show_frame(frames[0].id)
+
+    def _add_images(self) -> None:
+        folder = QFileDialog.getExistingDirectory(self, "Add the images of a folder",
+                                                  str(self.project.folder))
+        if folder:
+            self.run_long("Adding images", lambda pr: self.project.add_images(folder, pr),
+                          lambda frames: self._frames_added(frames, f"image of {folder}"))
+
+    def _add_video(self) -> None:
+        from app.ui.dialogs import VideoDialog
+
+        dialog = VideoDialog(self.project.folder, self)
+        dialog.setObjectName("VideoDialog")
+        dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
+
+        def go() -> None:
+            video, every, start, end = dialog.values()
+            name = Path(video).name
+            self.run_long(f"Adding frames of {name}",
+                          lambda pr: self.project.add_video_frames(video, every, start, end,
+                                                                   progress=pr),
+                          lambda frames: self._frames_added(frames, f"frame of {name} asked "
+                                                                    "for"))
+
+        dialog.accepted.connect(go)
+        dialog.open()
+
+    def _prelabel(self) -> None:
+        from app.ui.dialogs import PrelabelDialog
+
+        frames = self.project.frames()
+        counts = {"all": len(frames),
+                  "untouched": sum(f.state is FrameState.UNTOUCHED for f in frames),
+                  "this": int(self.frame_id is not None)}
+        dialog = PrelabelDialog(self.project.folder, counts, self)
+        dialog.setObjectName("PrelabelDialog")
+        dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
+
+        def go() -> None:
+            from app.inference import prelabel
+
+            model, config, which = dialog.values()
+            chosen: list[int] | None = None
+            if which == "untouched":
+                chosen = [f.id for f in self.project.frames()
+                          if f.state is FrameState.UNTOUCHED]
+            elif which == "this" and self.frame_id is not None:
+                chosen = [self.frame_id]
+            self.run_long(f"Pre-labelling with {Path(model).name}",
+                          lambda pr: prelabel(self.project, model, config, chosen, pr),
+                          self._prelabelled)
+
+        dialog.accepted.connect(go)
+        dialog.open()
+
+    def _prelabelled(self, stats: dict[str, Any]) -> None:
+        parts = [f"pre-labelled {stats.get('frames', 0)} frames: "
+                 f"{stats.get('people', 0)} people found"]
+        if stats.get("frames kept"):
+            parts.append(f"{stats['frames kept']} frames kept their people")
+        if stats.get("unreadable"):
+            parts.append(f"{stats['unreadable']} unreadable images skipped")
+        self._message("; ".join(parts) + " (Ctrl+T ranks the frames)", 0)
+
+    def _export_packet(self) -> None:
+        from app.ui.dialogs import PacketDialog
+
+        frames = self.project.frames()
+        counts: dict[str, int] = {}
+        for f in frames:
+            counts[f.state.value] = counts.get(f.state.value, 0) + 1
+        dialog = PacketDialog(self.project.folder, counts, self.frame_id, self)
+        dialog.setObjectName("PacketDialog")
+        dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
+        current = self.frame_id
+
+        def go() -> None:
+            from app.review.packet import export_packet, select_frames
+
+            which, images, reviewer, out = dialog.values()
+
+            def job(pr: Progress) -> dict[str, Any]:
+                chosen = [self.project.frame(current)] if which == "this" and current \
+                    is not None else select_frames(self.project, which)
+                return export_packet(self.project, out, chosen, images=images,
+                                     reviewer=reviewer, progress=pr)
+
+            self.run_long("Writing the review packet", job,
+                          lambda stats: self._packet_written(out, stats))
+
+        dialog.accepted.connect(go)
+        dialog.open()
+
+    def _packet_written(self, out: str, stats: dict[str, Any]) -> None:
+        text = (f"Wrote the review packet:\n\n{out}\n\n{stats['frames']} frames, "
+                f"{stats['people']} people, {stats['images']} images.")
+        if stats.get("missing_images"):
+            text += f"\n{stats['missing_images']} frames went without their image."
+        if stats.get("unplaced_heads"):
+            text += (f"\n{stats['unplaced_heads']} people have no labelled joint, so their "
+                     "heads could not be blurred.")
+        self._message(f"wrote {out}")
+        self._inform(text)
+
+    def _merge_packet(self) -> None:
+        path, _ = QFileDialog.getOpenFileName(self, "Merge a returned review packet",
+                                              str(self.project.folder),
+                                              "Returned packets (*.zip)")
+        if path:
+            from app.review.merge import merge_packet
+
+            self.run_long("Merging the returned packet",
+                          lambda pr: merge_packet(self.project, path, progress=pr),
+                          self._packet_merged)
+
+    def _packet_merged(self, report: Any) -> None:
+        if report.already_merged:
+            when = time.strftime("%Y-%m-%d %H:%M", time.localtime(report.merged_at or 0))
+            self._inform(f"This packet was merged already, on {when}; nothing changed.")
+            return
+        text = (f"Merged the review by {report.reviewer}: {report.frames} frames, "
+                f"{report.joints_taken} joints taken, {report.people_added} people added, "
+                f"{report.people_deleted} deleted, {report.notes_added} notes.")
+        if report.disputed:
+            text += (f"\n\n{len(report.disputed)} frame(s) are disputed: "
+                     + ", ".join(map(str, report.disputed[:12]))
+                     + ("\u2026" if len(report.disputed) > 12 else "")
+                     + ". The first is shown; B flips between ours and theirs, A takes theirs, "
+                       "K keeps ours, Shift+Return settles.")
+            self.show_frame(report.disputed[0])
+        if not report.base_checked:
+            text += ("\n\nThe packet was not recorded when it was sent, so its base labels "
+                     "could not be checked.")
+        self._message(f"merged the review by {report.reviewer}")
+        self._inform(text)
 
     def _open_other(self) -> None:
         folder = QFileDialog.getExistingDirectory(self, "Open project",
