@@ -109,7 +109,8 @@ def candidate_owners(
                 mean, _ = limb_scores(maps.pafs[c], start[None], end[None], maps.stride)
                 values.append(max(float(mean[0, 0]), 0.0))
             score = float(np.mean(values))
-            reason = f"the model's field along {len(values)} limb" + ("s" if len(values) > 1 else "")
+            plural = "s" if len(values) > 1 else ""
+            reason = f"the model's field along {len(values)} limb{plural}"
         else:
             scale = person_scale(kp, skeleton)
             costs, lengths = [], []

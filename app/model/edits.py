@@ -13,6 +13,7 @@ Targets and their values (all JSON-ready):
 - ``("state",)``: the frame's state, a :class:`FrameState` value.
 - ``("note", nid)``: a note's value or ``None``.
 - ``("region", rid)``: an ignore region's value (:meth:`Region.to_value`) or ``None``.
+- ``("kept", aid)``: the sorted joints of the reviewer's version ``aid`` settled as ours.
 
 Edits are refused with :class:`~app.errors.EditRefused` (and nothing changes) when they would
 make the labels inconsistent; the message says why and what to do.
@@ -49,7 +50,7 @@ class Change:
         kind = self.target[0]
         if kind == "joint":
             return f"person:{self.target[1]}/joint:{self.target[2]}"
-        if kind in ("person", "note", "region"):
+        if kind in ("person", "note", "region", "kept"):
             return f"{kind}:{self.target[1]}"
         return kind
 
@@ -77,6 +78,9 @@ def _current(labels: FrameLabels, target: Target) -> Any:
     if kind == "region":
         r = labels.regions.get(target[1])
         return None if r is None else r.to_value()
+    if kind == "kept":
+        kept = labels.kept.get(target[1])
+        return None if kept is None else sorted(kept)
     raise EditRefused(f"unknown change target {target!r}")
 
 
@@ -85,6 +89,7 @@ def apply_changes(labels: FrameLabels, changes: Iterable[Change]) -> FrameLabels
     people = dict(labels.people)
     notes = dict(labels.notes)
     regions = dict(labels.regions)
+    kept = dict(labels.kept)
     state = labels.state
     for ch in changes:
         kind = ch.target[0]
@@ -113,9 +118,14 @@ def apply_changes(labels: FrameLabels, changes: Iterable[Change]) -> FrameLabels
                 regions.pop(rid, None)
             else:
                 regions[rid] = Region.from_value(rid, labels.frame_id, ch.after)
+        elif kind == "kept":
+            if ch.after is None:
+                kept.pop(ch.target[1], None)
+            else:
+                kept[ch.target[1]] = frozenset(int(j) for j in ch.after)
         else:
             raise EditRefused(f"unknown change target {ch.target!r}")
-    return replace(labels, people=people, notes=notes, state=state, regions=regions)
+    return replace(labels, people=people, notes=notes, state=state, regions=regions, kept=kept)
 
 
 class Edit:
@@ -497,6 +507,33 @@ class DeleteRegion(Edit):
 
     def summary(self) -> str:
         return f"delete ignore region {self.region_id}"
+
+
+@dataclass(frozen=True)
+class KeepOurs(Edit):
+    """Settle differences of a disputed frame by keeping our version: the labels stay, and
+    the named joints of each reviewer's version no longer count as open differences.
+
+    ``choices`` pairs a reviewer's version (by id) with the joints kept as ours.
+    """
+
+    frame_id: int
+    choices: tuple[tuple[int, tuple[int, ...]], ...]
+    changes_labels: ClassVar[bool] = False
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        changes = []
+        for alt, joints in self.choices:
+            if alt not in labels.kept:
+                raise EditRefused(f"frame {self.frame_id} has no reviewer's version {alt}")
+            before = sorted(labels.kept[alt])
+            after = sorted(set(before) | {int(j) for j in joints})
+            if after != before:
+                changes.append(Change(("kept", alt), before, after))
+        return changes
+
+    def summary(self) -> str:
+        return "keep ours"
 
 
 @dataclass(frozen=True)

@@ -216,6 +216,9 @@ class FrameLabels:
     state: FrameState = FrameState.UNTOUCHED
     notes: Mapping[int, Note] = field(default_factory=dict)
     regions: Mapping[int, Region] = field(default_factory=dict)
+    #: For each reviewer's version kept beside a disputed frame (by its id), the joints for
+    #: which ours was chosen (see :class:`app.model.edits.KeepOurs`).
+    kept: Mapping[int, frozenset[int]] = field(default_factory=dict)
 
     @property
     def num_joints(self) -> int:
@@ -235,4 +238,5 @@ class FrameLabels:
             and all(p.same_as(other.people[i]) for i, p in self.people.items())
             and dict(self.notes) == dict(other.notes)
             and dict(self.regions) == dict(other.regions)
+            and dict(self.kept) == dict(other.kept)
         )

@@ -25,7 +25,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from app.errors import EditRefused
-from app.model.edits import Change, Restore, SetFrameState
+from app.model.edits import Change, KeepOurs, Restore, SetFrameState
 from app.model.labels import FrameLabels, FrameState, Person
 from app.review.merge import same_joints
 from app.store import Applied, Project
@@ -305,8 +305,9 @@ def keep_ours(project: Project, frame_id: int, person_id: int | None = None,
     """Settle a joint, a person or (with neither) the whole frame by keeping ours.
 
     The labels do not change; the alternatives remember the kept joints, so they no longer
-    show as differences, and the ledger records the choice. Returns how many differing joints
-    were settled (0: nothing differed there).
+    show as differences. The choice is one :class:`~app.model.edits.KeepOurs` edit: in the
+    ledger and on the undo stack. Returns how many differing joints were settled (0: nothing
+    differed there).
     """
     if joint is not None and person_id is None:
         raise EditRefused("name the person whose joint to keep")
@@ -322,20 +323,14 @@ def keep_ours(project: Project, frame_id: int, person_id: int | None = None,
             differ = [j for j in differ if j == joint]
         if not differ:
             continue
-        kept = alt.kept | set(differ)
+        kept = set(differ)
         if alt.kind != "joints":
-            kept = frozenset(range(labels.num_joints))  # a person-level choice
-        updates.append((json.dumps(sorted(kept)), alt.id))
+            kept = set(range(labels.num_joints))  # a person-level choice
+        updates.append((alt.id, tuple(sorted(kept))))
         settled += len(differ)
     if not updates:
         return 0
-    what = ("the frame" if person_id is None else
-            f"person {person_id}" if joint is None else
-            f"joint {labels.skeleton.joints[joint]} of person {person_id}")
-    with project.bulk("KeepOurs", f"frame {frame_id}: keep ours for {what}",
-                      f"frame:{frame_id}", kind="review", frame_id=frame_id) as b:
-        b.executemany("UPDATE alternatives SET kept = ? WHERE id = ?", updates)
-        b.count("joints kept", settled)
+    project.apply(KeepOurs(frame_id, tuple(updates)))
     return settled
 
 

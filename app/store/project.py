@@ -106,7 +106,7 @@ def _parse_target(text: str) -> tuple[Any, ...]:
     kind, _, ident = parts[0].partition(":")
     if kind == "person" and len(parts) == 2:
         return ("joint", int(ident), int(parts[1].partition(":")[2]))
-    if kind in ("person", "note", "region"):
+    if kind in ("person", "note", "region", "kept"):
         return (kind, int(ident))
     raise PosewrightError(f"ledger target {text!r} is not a change")
 
@@ -464,7 +464,16 @@ class Project:
             {n.id: n for n in self.notes(frame.id)},
             {rid: Region(rid, frame.id, tuple(tuple(p) for p in polys), extra)
              for rid, polys, extra in self.regions(frame.id)},
+            self._kept(frame.id),
         )
+
+    def _kept(self, frame_id: int) -> dict[int, frozenset[int]]:
+        """Joints settled as ours, per reviewer's version still standing beside the frame."""
+        with self._mutex:
+            rows = self._conn.execute(
+                "SELECT id, kept FROM alternatives WHERE frame_id = ? AND retired IS NULL",
+                (int(frame_id),)).fetchall()
+        return {r[0]: frozenset(json.loads(r[1])) for r in rows}
 
     def history(self, frame_id: int | None = None, limit: int | None = None) -> list[LedgerEntry]:
         """Ledger entries, newest first; only those of one frame when ``frame_id`` is given."""
@@ -630,6 +639,9 @@ class Project:
                     "VALUES (?, ?, ?, ?, ?, ?, ?, ?)", (new.frame_id, *_encode_person(person)))
         if new.state != old.state:
             c.execute("UPDATE frames SET state = ? WHERE id = ?", (new.state.value, new.frame_id))
+        for aid in {ch.target[1] for ch in changes if ch.target[0] == "kept"}:
+            c.execute("UPDATE alternatives SET kept = ? WHERE id = ?",
+                      (json.dumps(sorted(new.kept.get(aid, ()))), aid))
         for rid in {ch.target[1] for ch in changes if ch.target[0] == "region"}:
             region = new.regions.get(rid)
             c.execute("DELETE FROM regions WHERE id = ?", (rid,))

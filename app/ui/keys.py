@@ -134,7 +134,7 @@ KEYS: tuple[Key, ...] = (
     Key("Settling", "take_theirs_frame", "Take theirs: whole frame",
         "Take the reviewer's version of every difference in the frame", ("Ctrl+Shift+A",)),
     Key("Settling", "keep_ours_joint", "Keep ours: joint",
-        "Keep our version of the selected joint (recorded in the Ledger, not an undo step)",
+        "Keep our version of the selected joint",
         ("K",)),
     Key("Settling", "keep_ours_person", "Keep ours: person",
         "Keep our version of the selected person", ("Shift+K",)),

@@ -1042,7 +1042,7 @@ class MainWindow(QMainWindow):
 
     def keep_ours(self, scope: str) -> None:
         """Keep our version of the selected joint, person, or the frame (the labels stay;
-        the choice is recorded in the Ledger)."""
+        the choice is one undo step)."""
         from app.review.settle import keep_ours
 
         found = self._settling_scope(scope)
@@ -1052,9 +1052,8 @@ class MainWindow(QMainWindow):
         was = self._current_difference()
         ok, settled = self._attempt(lambda: keep_ours(self.project, fid, pid, joint))
         if ok:
-            # The back end records this choice in the Ledger but not as an undo step.
-            self._after_settling(was, f"kept ours for {what} ({settled} joint(s)); recorded "
-                                      "in the Ledger, not an undo step")
+            self._after_settling(was, f"kept ours for {what} ({settled} joint(s); Ctrl+Z "
+                                      "takes it back)")
 
     def _current_difference(self) -> tuple[int, int] | None:
         joint = self.canvas.selected_joint

@@ -111,11 +111,14 @@ def test_settle_a_disputed_frame_joint_by_joint(qtbot, dispute, ui_project):
     assert differences(ui_project, fid) == [] and window.dispute is None
     assert "Shift+Return" in window.strips["dispute"].text.text()
 
-    # Undo by key takes back the take (keeping ours is recorded, not an undo step).
+    # Undo by key takes back the keep, then the take: each was one step.
+    QTest.keySequence(canvas, QKeySequence(QKeySequence.StandardKey.Undo))
+    assert window.dispute is not None and window.dispute.joints == ((b, 10),)
+    np.testing.assert_allclose(_kp(ui_project, fid, b)[9, :2], theirs[9])
     QTest.keySequence(canvas, QKeySequence(QKeySequence.StandardKey.Undo))
     np.testing.assert_allclose(_kp(ui_project, fid, b)[9, :2], ours[9])
-    assert window.dispute is not None and window.dispute.joints == ((b, 9),)
-    assert set(canvas.marks) == {(b, 9)}
+    assert set(window.dispute.joints) == {(b, 9), (b, 10)}
+    assert set(canvas.marks) == {(b, 9), (b, 10)}
 
     # Settle: the frame is corrected and the marks go; undo brings the dispute back.
     qtbot.keyClick(canvas, Qt.Key.Key_Return, Qt.KeyboardModifier.ShiftModifier)
@@ -123,7 +126,7 @@ def test_settle_a_disputed_frame_joint_by_joint(qtbot, dispute, ui_project):
     assert canvas.marks == {} and not window.strips["dispute"].isVisible()
     QTest.keySequence(canvas, QKeySequence(QKeySequence.StandardKey.Undo))
     assert ui_project.frame(fid).state is FrameState.DISPUTED
-    assert set(canvas.marks) == {(b, 9)}
+    assert set(canvas.marks) == {(b, 9), (b, 10)}
 
 
 def test_take_a_whole_person_and_the_whole_frame_are_one_undo_step_each(qtbot, dispute,
