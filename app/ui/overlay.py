@@ -1065,18 +1065,21 @@ def flags_from_reasons(reasons: Sequence[Mapping[str, Any]] | None,
     Parameters
     ----------
     reasons
-        Triage reasons: dicts with ``person``, ``joints`` and ``weight`` (a missing weight
-        counts as 1).
+        Triage reasons as stored: dicts with ``person``, ``joints``, ``weight`` and, from the
+        triage that flags people (:func:`app.analysis.triage.stored_suspicion`), ``evidence``.
     min_weight
-        Reasons weaker than this draw nothing, so that the halos point at the few places worth
-        a look rather than at every joint with faint evidence against it.
+        Within a flagged person, reasons weaker than this draw no halo on their joints, so
+        that the halos point at the few places worth a look.
 
     Returns
     -------
     dict
-        Person id to flagged joints; a reason that names a person but no joint flags the whole
-        person, recorded as the joint ``WHOLE_PERSON`` (-1), and so does a person flagged at
-        ``WHOLE_BODY_JOINTS`` joints or more. Frame-level reasons (no person) draw nothing.
+        Person id to flagged joints. A person is flagged exactly when triage flags them (their
+        suspicion reaches :data:`app.analysis.triage.FLAG_AT`); their halos go on the joints of
+        their strong reasons, or, when none is strong on its own (several weak signs together)
+        or the reason names no joint, on the whole person (the joint ``WHOLE_PERSON``, -1), as
+        does a person flagged at ``WHOLE_BODY_JOINTS`` joints or more. Reasons stored without
+        ``evidence`` (older triage) flag by weight alone. Frame-level reasons draw nothing.
 
     Examples
     --------
@@ -1085,19 +1088,31 @@ def flags_from_reasons(reasons: Sequence[Mapping[str, Any]] | None,
     ...                     {"kind": "duplicate", "person": 5, "joints": []},
     ...                     {"kind": "crowd", "person": None}])
     {4: frozenset({9, 7}), 5: frozenset({-1})}
+    >>> flags_from_reasons([{"kind": "off-ground", "person": 3, "joints": [15], "weight": 0.4,
+    ...                      "evidence": 2.8}, {"kind": "tangled", "person": 3, "joints": [9],
+    ...                      "weight": 0.3, "evidence": 1.2}])
+    {3: frozenset({-1})}
     """
-    out: dict[int, set[int]] = {}
-    for r in reasons or ():
-        pid = r.get("person")
+    from app.analysis.triage import FLAG_AT, stored_suspicion
+
+    reasons = [r for r in reasons or () if r.get("person") is not None]
+    if reasons and all("evidence" in r for r in reasons):
+        flagged = {p for p, s in stored_suspicion(reasons).items() if s >= FLAG_AT}
+    else:
+        flagged = {int(r["person"]) for r in reasons
+                   if r.get("weight") is None or float(r["weight"]) >= min_weight}
+    out: dict[int, set[int]] = {int(p): set() for p in flagged}
+    for r in reasons:
+        pid = int(r["person"])
         weight = r.get("weight")
-        if pid is None or (weight is not None and float(weight) < min_weight):
+        if pid not in out or (weight is not None and float(weight) < min_weight):
             continue
         joints = [int(j) for j in (r.get("joints") or ())]
-        out.setdefault(int(pid), set()).update(joints or [WHOLE_PERSON])
+        out[pid].update(joints or [WHOLE_PERSON])
     for joints in out.values():
-        if len(joints - {WHOLE_PERSON}) >= WHOLE_BODY_JOINTS:
-            # Wrong nearly everywhere: one ring on the tag says it better than a halo on
-            # every joint, which would hide the body under the halos.
+        if not joints or len(joints - {WHOLE_PERSON}) >= WHOLE_BODY_JOINTS:
+            # Wrong nearly everywhere, or by several weak signs at once: one ring on the tag
+            # says it better than a halo on every joint, which would hide the body.
             joints.clear()
             joints.add(WHOLE_PERSON)
     return {p: frozenset(j) for p, j in out.items()}

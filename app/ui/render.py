@@ -13,6 +13,7 @@ from typing import Any
 
 import numpy as np
 from PySide6.QtGui import QGuiApplication, QImage, QPainter, QTransform
+from PySide6.QtWidgets import QApplication
 
 from app.errors import BadInput, NotFound
 from app.formats.images import decode_image
@@ -24,11 +25,15 @@ from app.ui.overlay import OverlayStyle, flags_from_reasons, paint_overlay
 
 
 def gui_application() -> QGuiApplication:
-    """The running Qt application, or a new headless one (offscreen unless told otherwise)."""
+    """The running Qt application, or a new headless one (offscreen unless told otherwise).
+
+    A new one is a widgets application even though rendering needs none: Qt allows one
+    application object per process, and a later window (the app, a test) needs widgets.
+    """
     app = QGuiApplication.instance()
     if app is None:
         os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
-        app = QGuiApplication(["posewright"])
+        app = QApplication(["posewright"])
     return app  # type: ignore[return-value]
 
 
