@@ -43,10 +43,13 @@ def open_app(args: argparse.Namespace) -> int:
     (:func:`app.review.review.open_packet`)."""
     from PySide6.QtWidgets import QApplication
 
+    screenshot = getattr(args, "screenshot", None)
+    _choose_platform(bool(screenshot))
     app = QApplication.instance() or QApplication([sys.argv[0] if sys.argv else "posewright"])
     app.setApplicationName("Posewright")
     headless = QApplication.platformName() in ("offscreen", "minimal")
-    screenshot = getattr(args, "screenshot", None)
+    if headless:
+        _quiet_platform_notices()
     author = _author(args, ask=not screenshot and not headless)
     if is_packet(args.project):
         from app.review.review import open_packet
@@ -68,6 +71,33 @@ def open_app(args: argparse.Namespace) -> int:
     keep_open(window)
     window.show()
     return int(app.exec())
+
+
+def _choose_platform(screenshot: bool) -> None:
+    """Pick Qt's platform before the application exists: a screenshot needs no display (render
+    offscreen); a window does, and without one say so in a line instead of letting Qt abort."""
+    if os.environ.get("QT_QPA_PLATFORM") or sys.platform != "linux":
+        return
+    if os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY"):
+        return
+    if screenshot:
+        os.environ["QT_QPA_PLATFORM"] = "offscreen"
+        return
+    raise PosewrightError(
+        "there is no display to open the window on; use --screenshot FILE.png to render the "
+        "window without one, or run under a virtual display (xvfb-run -a posewright open ...)")
+
+
+def _quiet_platform_notices() -> None:
+    """Drop the offscreen platform's notice that it cannot pass window size hints on (there is
+    no window manager to pass them to); every other Qt message still reaches stderr."""
+    from PySide6.QtCore import QtMsgType, qInstallMessageHandler
+
+    def handler(kind: QtMsgType, context: object, message: str) -> None:
+        if "propagateSizeHints" not in message:
+            print(message, file=sys.stderr)
+
+    qInstallMessageHandler(handler)
 
 
 def is_packet(target: str) -> bool:
