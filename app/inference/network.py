@@ -39,6 +39,64 @@ log = logging.getLogger(__name__)
 __all__ = ["PoseNetwork"]
 
 
+def onnx_output_names(path: str | Path) -> list[str] | None:
+    """The graph's output names in the order the ONNX file declares them, or None if the file
+    cannot be read that far.
+
+    Notes
+    -----
+    Reads just enough of the protocol-buffer encoding (ModelProto field 7 ``graph``,
+    GraphProto field 12 ``output``, ValueInfoProto field 1 ``name``; ONNX ``onnx.proto``),
+    skipping every other field by its length, so no ONNX package is needed at run time.
+    """
+    try:
+        data = memoryview(Path(path).read_bytes())
+        graph = _fields(data, 7)
+        if not graph:
+            return None
+        return [bytes(_fields(value, 1)[0]).decode("utf-8")
+                for value in _fields(graph[0], 12)]
+    except (OSError, ValueError, IndexError, UnicodeDecodeError):
+        return None
+
+
+def _varint(data: memoryview, i: int) -> tuple[int, int]:
+    value = shift = 0
+    while True:
+        byte = data[i]
+        i += 1
+        value |= (byte & 0x7F) << shift
+        if byte < 0x80:
+            return value, i
+        shift += 7
+        if shift > 63:
+            raise ValueError("varint too long")
+
+
+def _fields(data: memoryview, number: int) -> list[memoryview]:
+    """Every length-delimited field ``number`` of one protocol-buffer message."""
+    out, i = [], 0
+    while i < len(data):
+        key, i = _varint(data, i)
+        wire = key & 7
+        if wire == 0:
+            _, i = _varint(data, i)
+        elif wire == 1:
+            i += 8
+        elif wire == 5:
+            i += 4
+        elif wire == 2:
+            size, i = _varint(data, i)
+            if i + size > len(data):
+                raise ValueError("truncated field")
+            if key >> 3 == number:
+                out.append(data[i:i + size])
+            i += size
+        else:
+            raise ValueError(f"unsupported wire type {wire}")
+    return out
+
+
 class PoseNetwork:
     """Load an ONNX model for pre-labelling.
 
@@ -70,6 +128,11 @@ class PoseNetwork:
         self.channels = resolve_channels(config, skeleton, where=config_where)
         self._net = _load(self.model)
         names = [str(n) for n in self._net.getUnconnectedOutLayersNames()]
+        # OpenCV 4 lists outputs sorted, OpenCV 5 in the model's order; an index in the config
+        # means the model's own order, so read that from the file when it can be read.
+        declared = onnx_output_names(self.model)
+        if declared is not None and sorted(declared) == sorted(names):
+            names = declared
         self.output_names = names
         self._cm = self._output(config.outputs.confidence_maps, names, "confidence_maps")
         self._paf = self._output(config.outputs.pafs, names, "pafs")

@@ -285,14 +285,20 @@ class WorklistFilter(QSortFilterProxyModel):
         self._kind: str | None = None
 
     def set_state(self, state: FrameState | None) -> None:
-        self.beginFilterChange()
-        self._state = state
-        self.endFilterChange()
+        self._change_filter(lambda: setattr(self, "_state", state))
 
     def set_kind(self, kind: str | None) -> None:
-        self.beginFilterChange()
-        self._kind = kind
-        self.endFilterChange()
+        self._change_filter(lambda: setattr(self, "_kind", kind))
+
+    def _change_filter(self, change: Any) -> None:
+        # Qt 6.9 added begin/endFilterChange; older Qt re-filters with invalidateFilter.
+        if hasattr(self, "beginFilterChange"):
+            self.beginFilterChange()
+            change()
+            self.endFilterChange()
+        else:
+            change()
+            self.invalidateFilter()
 
     def filterAcceptsRow(self, source_row: int, source_parent: Index) -> bool:
         model = self.sourceModel()

@@ -39,6 +39,7 @@ from PySide6.QtWidgets import (
     QVBoxLayout,
     QWidget,
 )
+from shiboken6 import isValid as shiboken_is_valid
 
 from app.errors import Cancelled, EditRefused, PosewrightError
 from app.model.edits import (
@@ -434,6 +435,8 @@ class MainWindow(QMainWindow):
         self.events.detach()
         self.loader.shutdown()
         for job in list(self._jobs):
+            if not shiboken_is_valid(job):  # finished and already deleted by Qt
+                continue
             job.cancel()
             job.wait()
         if self._owns_project:
