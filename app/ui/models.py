@@ -105,6 +105,25 @@ def reason_label(kind: str) -> str:
     return str(kind).replace("_", " ").replace("-", " ").strip() or "other"
 
 
+class _TableModel(QAbstractTableModel):
+    """A table over a Python list of rows (``_rows``) with fixed column titles
+    (``COLUMNS``); subclasses give ``data``."""
+
+    COLUMNS: tuple[str, ...] = ()
+    _rows: Sequence[Any] = ()
+
+    def rowCount(self, parent: Index = _ROOT) -> int:
+        return 0 if parent.isValid() else len(self._rows)
+
+    def columnCount(self, parent: Index = _ROOT) -> int:
+        return 0 if parent.isValid() else len(self.COLUMNS)
+
+    def headerData(self, section: int, orientation: Qt.Orientation, role: int = DisplayRole):
+        if role == DisplayRole and orientation == Qt.Orientation.Horizontal:
+            return self.COLUMNS[section]
+        return None
+
+
 # ---------------------------------------------------------------------------------- Worklist
 
 @dataclass
@@ -122,7 +141,7 @@ class WorkRow:
     decision: str = ""
 
 
-class WorklistModel(QAbstractTableModel):
+class WorklistModel(_TableModel):
     """Every frame, most suspicious first (frames without a triage score last, by id), with
     its score, state and reasons."""
 
@@ -193,17 +212,6 @@ class WorklistModel(QAbstractTableModel):
         return sorted(counts.items(), key=lambda kv: (-kv[1], kv[0]))
 
     # -- Qt model
-    def rowCount(self, parent: Index = _ROOT) -> int:
-        return 0 if parent.isValid() else len(self._rows)
-
-    def columnCount(self, parent: Index = _ROOT) -> int:
-        return 0 if parent.isValid() else len(self.COLUMNS)
-
-    def headerData(self, section: int, orientation: Qt.Orientation, role: int = DisplayRole):
-        if role == DisplayRole and orientation == Qt.Orientation.Horizontal:
-            return self.COLUMNS[section]
-        return None
-
     def data(self, index: Index, role: int = DisplayRole) -> Any:
         if not index.isValid():
             return None
@@ -312,7 +320,7 @@ class WorklistFilter(QSortFilterProxyModel):
 
 # ---------------------------------------------------------------------------------- Owners
 
-class PeopleModel(QAbstractTableModel):
+class PeopleModel(_TableModel):
     """The people of the current frame: tag number and colour, id, joints, flags."""
 
     COLUMNS = ("", "person", "labelled", "occluded", "flags")
@@ -343,14 +351,6 @@ class PeopleModel(QAbstractTableModel):
 
     def rowCount(self, parent: Index = _ROOT) -> int:
         return 0 if parent.isValid() else len(self._people)
-
-    def columnCount(self, parent: Index = _ROOT) -> int:
-        return 0 if parent.isValid() else len(self.COLUMNS)
-
-    def headerData(self, section: int, orientation: Qt.Orientation, role: int = DisplayRole):
-        if role == DisplayRole and orientation == Qt.Orientation.Horizontal:
-            return self.COLUMNS[section]
-        return None
 
     _ROLES = frozenset({KeyRole, DecorationRole, DisplayRole, ToolTipRole, AlignRole})
 
@@ -398,7 +398,7 @@ class OwnerChoice:
     is_owner: bool = False
 
 
-class CandidatesModel(QAbstractTableModel):
+class CandidatesModel(_TableModel):
     """The ranked candidate owners of the selected joint, best first."""
 
     COLUMNS = ("", "person", "fit", "why")
@@ -422,17 +422,6 @@ class CandidatesModel(QAbstractTableModel):
 
     def choices(self) -> list[OwnerChoice]:
         return list(self._rows)
-
-    def rowCount(self, parent: Index = _ROOT) -> int:
-        return 0 if parent.isValid() else len(self._rows)
-
-    def columnCount(self, parent: Index = _ROOT) -> int:
-        return 0 if parent.isValid() else len(self.COLUMNS)
-
-    def headerData(self, section: int, orientation: Qt.Orientation, role: int = DisplayRole):
-        if role == DisplayRole and orientation == Qt.Orientation.Horizontal:
-            return self.COLUMNS[section]
-        return None
 
     def data(self, index: Index, role: int = DisplayRole) -> Any:
         if not index.isValid():
@@ -477,7 +466,7 @@ class LedgerRow:
     changes: int
 
 
-class LedgerModel(QAbstractTableModel):
+class LedgerModel(_TableModel):
     """The edits of one frame or of the whole project, newest first, one row per action."""
 
     COLUMNS = ("when", "who", "frame", "what")
@@ -513,17 +502,6 @@ class LedgerModel(QAbstractTableModel):
 
     def ledger_row(self, row: int) -> LedgerRow:
         return self._rows[row]
-
-    def rowCount(self, parent: Index = _ROOT) -> int:
-        return 0 if parent.isValid() else len(self._rows)
-
-    def columnCount(self, parent: Index = _ROOT) -> int:
-        return 0 if parent.isValid() else len(self.COLUMNS)
-
-    def headerData(self, section: int, orientation: Qt.Orientation, role: int = DisplayRole):
-        if role == DisplayRole and orientation == Qt.Orientation.Horizontal:
-            return self.COLUMNS[section]
-        return None
 
     def data(self, index: Index, role: int = DisplayRole) -> Any:
         if not index.isValid():
