@@ -62,6 +62,15 @@ def _print_json(data: Any) -> None:
     sys.stdout.write("\n")
 
 
+def _report_counts(args: argparse.Namespace, stats: dict[str, Any]) -> int:
+    """What an import added: JSON with ``--json``, else one line."""
+    if args.json:
+        _print_json(stats)
+    else:
+        print("imported " + ", ".join(f"{v} {k}" for k, v in stats.items()))
+    return 0
+
+
 # ---------------------------------------------------------------------- commands
 
 def cmd_new(args: argparse.Namespace) -> int:
@@ -150,11 +159,7 @@ def cmd_import(args: argparse.Namespace) -> int:
 
     with _open(args) as project:
         stats = import_coco(project, args.file, progress=_stderr_progress(args.quiet))
-    if args.json:
-        _print_json(stats)
-    else:
-        print("imported " + ", ".join(f"{v} {k}" for k, v in stats.items()))
-    return 0
+    return _report_counts(args, stats)
 
 
 def cmd_export(args: argparse.Namespace) -> int:
@@ -211,11 +216,7 @@ def cmd_import_maps(args: argparse.Namespace) -> int:
 
     with _open(args) as project:
         stats = import_maps(project, args.dir, progress=_stderr_progress(args.quiet))
-    if args.json:
-        _print_json(stats)
-    else:
-        print("imported " + ", ".join(f"{v} {k}" for k, v in stats.items()))
-    return 0
+    return _report_counts(args, stats)
 
 
 def cmd_triage(args: argparse.Namespace) -> int:

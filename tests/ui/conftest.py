@@ -105,12 +105,11 @@ def wait_for_image(qtbot, window) -> None:
     qtbot.waitUntil(painted, timeout=10_000)
 
 
-@pytest.fixture
-def window(qtbot, ui_project: Project):
-    """The main window over :func:`ui_project`, shown and active, image painted."""
+def show_window(qtbot, project: Project):
+    """A main window over ``project``, shown and active, its image painted."""
     from app.ui.window import MainWindow
 
-    w = MainWindow(ui_project)
+    w = MainWindow(project)
     qtbot.addWidget(w)
     w.resize(1200, 800)
     w.show()
@@ -118,6 +117,13 @@ def window(qtbot, ui_project: Project):
     w.activateWindow()
     w.canvas.setFocus()
     wait_for_image(qtbot, w)
+    return w
+
+
+@pytest.fixture
+def window(qtbot, ui_project: Project):
+    """The main window over :func:`ui_project`, shown and active, image painted."""
+    w = show_window(qtbot, ui_project)
     yield w
     w.shutdown()
 

@@ -9,8 +9,7 @@ import pytest
 from PySide6.QtCore import QPoint, Qt
 
 from app.store import Project
-from app.ui.window import MainWindow
-from tests.ui.conftest import person_id, screen_point, wait_for_image
+from tests.ui.conftest import person_id, screen_point, show_window
 
 
 @pytest.fixture
@@ -18,14 +17,7 @@ def locked_window(qtbot, ui_project):
     # ui_project holds the lock; a second open of the same folder is read-only.
     second = Project.open(ui_project.folder, author="ben")
     assert second.read_only
-    w = MainWindow(second)
-    qtbot.addWidget(w)
-    w.resize(1200, 800)
-    w.show()
-    qtbot.waitExposed(w)
-    w.activateWindow()
-    w.canvas.setFocus()
-    wait_for_image(qtbot, w)
+    w = show_window(qtbot, second)
     yield w
     w.shutdown()
     second.close()
