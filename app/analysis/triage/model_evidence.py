@@ -1,0 +1,248 @@
+"""Model-evidence checks: what the network's own output says about a person's labels.
+
+With the network's maps, the line integral ``E`` of each labelled limb on its part affinity
+field says how well the model supports it; the per-joint scores say how sure the model was of
+each part. Both are compared with the frame's other people, so that the checks do not depend
+on how strong a given network's outputs are.
+
+References
+----------
+Z. Cao et al., "Realtime Multi-Person 2D Pose Estimation using Part Affinity Fields",
+CVPR 2017, Sec. 2.4.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+from app.analysis.association import limb_scores
+from app.analysis.triage.combine import Reason, make_reason, ramp
+from app.model.skeleton import Skeleton
+
+#: Weak limbs: the mean shortfall of the person's ``E`` below the frame's typical ``E`` for
+#: each limb counts from 0 and is sure at 0.12; a single limb below by more is named.
+WEAK_FROM, WEAK_SURE = 0.0, 0.12
+#: Low scores: the person's mean joint score below the frame's median person counts from 0 and
+#: is sure at 0.15; with fewer than three people, below the absolute ``LOW_SCORE``.
+LOW_FROM, LOW_SURE = 0.0, 0.15
+LOW_SCORE = 0.45
+
+
+def limb_index(skeleton: Skeleton, a: int, b: int) -> tuple[int, bool] | None:
+    """The limb joining joints a and b, and whether its field points from a to b."""
+    for c, (p, q) in enumerate(skeleton.limbs):
+        if (p, q) == (a, b):
+            return c, True
+        if (p, q) == (b, a):
+            return c, False
+    return None
+
+
+def limb_e(maps: Any, limb: tuple[int, bool], first: np.ndarray, second: np.ndarray) -> float:
+    """E of a connection first -> second along the field of ``limb`` (its direction kept)."""
+    c, forward = limb
+    start, end = (first, second) if forward else (second, first)
+    mean, _ = limb_scores(maps.pafs[c], start[None, :2], end[None, :2], maps.stride)
+    return max(float(mean[0, 0]), 0.0)
+
+
+def limb_support(people: np.ndarray, skeleton: Skeleton, maps: Any) -> np.ndarray:
+    """``(P, L)`` the line integral ``E`` of each person's labelled limbs on the model's field.
+
+    Parameters
+    ----------
+    people
+        ``(P, K, 3)`` ``x, y, v``.
+    skeleton
+        The project's skeleton (limbs in the order of ``maps.pafs``).
+    maps
+        Network maps with ``.pafs`` ``(L, 2, H, W)`` and ``.stride``.
+
+    Returns
+    -------
+    numpy.ndarray
+        ``(P, L)`` float64; NaN where an end is unlabeled or both ends coincide.
+
+    Notes
+    -----
+    ``E`` from :func:`app.analysis.association.limb_scores` (10 samples, bilinear), along the
+    limb's own direction. All people's limb ``c`` are scored in one call.
+
+    References
+    ----------
+    Cao et al., CVPR 2017, Sec. 2.4, Eq. 10-11.
+
+    Examples
+    --------
+    >>> from types import SimpleNamespace
+    >>> from app.model.skeleton import coco_body
+    >>> sk = coco_body()
+    >>> fields = np.zeros((19, 2, 20, 20)); fields[0, 1] = -1.0     # ankle -> knee points up
+    >>> kp = np.zeros((1, 17, 3)); kp[0, [15, 13]] = [[50, 120, 2], [50, 60, 2]]
+    >>> e = limb_support(kp, sk, SimpleNamespace(pafs=fields, stride=8))
+    >>> float(e[0, 0]), bool(np.isnan(e[0, 1]))
+    (1.0, True)
+    """
+    arr = np.asarray(people, dtype=np.float64).reshape(-1, skeleton.num_joints, 3)
+    out = np.full((arr.shape[0], len(skeleton.limbs)), np.nan)
+    if arr.shape[0] == 0:
+        return out
+    for c, (a, b) in enumerate(skeleton.limbs):
+        ok = (arr[:, a, 2] > 0) & (arr[:, b, 2] > 0) & \
+            np.any(arr[:, a, :2] != arr[:, b, :2], axis=1)
+        rows = np.flatnonzero(ok)
+        if rows.size == 0:
+            continue
+        mean, _ = limb_scores(maps.pafs[c], arr[rows, a, :2], arr[rows, b, :2], maps.stride)
+        out[rows, c] = np.diagonal(mean)
+    return out
+
+
+def typical_support(support: np.ndarray) -> np.ndarray:
+    """The frame's typical ``E`` of each limb.
+
+    Parameters
+    ----------
+    support
+        ``(P, L)`` from :func:`limb_support`.
+
+    Returns
+    -------
+    numpy.ndarray
+        ``(L,)``: per limb, the median ``E`` over the people who have it when at least three
+        do; otherwise the median over all the frame's scored limbs when there are at least
+        three; otherwise NaN.
+
+    Notes
+    -----
+    The median of the frame's own people is the reference a limb is weak against: a
+    minority of wrong people cannot move it. Common practice, no source.
+
+    Examples
+    --------
+    >>> typical_support(np.array([[0.9, np.nan], [0.7, 0.2], [0.8, np.nan]])).tolist()
+    [0.8, 0.7]
+    """
+    values = np.asarray(support, dtype=np.float64)
+    finite = np.isfinite(values)
+    count = finite.sum(axis=0)
+    pooled = values[finite]
+    fallback = float(np.median(pooled)) if pooled.size >= 3 else np.nan
+    per_limb = np.full(values.shape[1], np.nan)
+    for c in np.flatnonzero(count >= 3).tolist():
+        per_limb[c] = float(np.median(values[finite[:, c], c]))
+    return np.where(count >= 3, per_limb, fallback)
+
+
+def weak_limbs(pid: int, kp: np.ndarray, skeleton: Skeleton, support: np.ndarray,
+               typical: np.ndarray) -> list[Reason]:
+    """A person whose limbs the model's own fields support less than the frame's others.
+
+    Parameters
+    ----------
+    pid
+        The person's id.
+    kp
+        ``(K, 3)`` ``x, y, v`` (joints named in the reason).
+    skeleton
+        The project's skeleton.
+    support
+        ``(L,)`` this person's ``E`` per limb (a row of :func:`limb_support`).
+    typical
+        ``(L,)`` the frame's typical ``E`` per limb (:func:`typical_support`).
+
+    Returns
+    -------
+    list of Reason
+        At most one ``weak-limb`` reason naming the ends of the limbs below the typical ``E``
+        by more than ``WEAK_SURE``.
+
+    Notes
+    -----
+    ``shortfall = mean over the person's scored limbs of (typical_c - E_c)``; strength:
+    ``shortfall`` ramped from ``WEAK_FROM`` (0) to ``WEAK_SURE`` (0.12). Comparing with the
+    frame's own people rather than an absolute ``E`` makes the check independent of how
+    strong a given network's fields are; a body whose limbs the field does not carry is often
+    assembled from parts of several people, or half hidden. Common practice, no source.
+
+    References
+    ----------
+    ``E``: Cao et al., CVPR 2017, Sec. 2.4.
+
+    Examples
+    --------
+    >>> from app.model.skeleton import coco_body
+    >>> sk = coco_body()
+    >>> kp = np.zeros((17, 3)); kp[:, 2] = 2
+    >>> typical = np.full(19, 0.8)
+    >>> support = typical.copy(); support[[0, 1]] = 0.0     # left leg unsupported
+    >>> r = weak_limbs(1, kp, sk, support, typical)
+    >>> r[0].kind, r[0].joints, round(r[0].strength, 2)
+    ('weak-limb', (11, 13, 15), 0.7)
+    """
+    ok = np.isfinite(support) & np.isfinite(typical)
+    if not ok.any():
+        return []
+    gap = typical - support
+    shortfall = float(gap[ok].mean())
+    strength = ramp(shortfall, WEAK_FROM, WEAK_SURE)
+    if strength <= 0:
+        return []
+    limbs = [c for c in np.flatnonzero(ok & (gap > WEAK_SURE)).tolist()]
+    joints = sorted({j for c in limbs for j in skeleton.limbs[c]})
+    names = ", ".join(skeleton.limb_names()[c] for c in limbs[:3]) + \
+        (" ..." if len(limbs) > 3 else "")
+    return [make_reason("weak-limb",
+                    f"the model's fields support this body {shortfall:.2f} less than the "
+                    f"frame's others" + (f" (weakest: {names})" if limbs else ""),
+                    pid, joints, strength)]
+
+
+def low_scores(pid: int, kp: np.ndarray, scores: np.ndarray | None,
+               typical: float | None = None) -> list[Reason]:
+    """A person whose joints the model scored lower than the frame's other people.
+
+    Parameters
+    ----------
+    pid
+        The person's id.
+    kp
+        ``(K, 3)`` ``x, y, v``.
+    scores
+        ``(K,)`` model score per joint, NaN where none; None: no check.
+    typical
+        The frame's median of people's mean scores, or None (fewer than three people): then
+        the absolute ``LOW_SCORE`` (0.45) stands in.
+
+    Returns
+    -------
+    list of Reason
+        At most one ``low-score`` reason naming the joints scored below the reference.
+
+    Notes
+    -----
+    Strength: ``reference - mean score`` ramped from ``LOW_FROM`` (0) to ``LOW_SURE`` (0.15).
+    Common practice, no source.
+
+    Examples
+    --------
+    >>> kp = np.zeros((3, 3)); kp[:, 2] = 2
+    >>> r = low_scores(1, kp, np.array([0.2, 0.3, 0.4]), typical=0.6)
+    >>> r[0].kind, round(r[0].strength, 2), r[0].joints
+    ('low-score', 1.0, (0, 1, 2))
+    """
+    if scores is None:
+        return []
+    on = (kp[:, 2] > 0) & np.isfinite(scores)
+    if not on.any():
+        return []
+    mean = float(scores[on].mean())
+    reference = LOW_SCORE if typical is None else float(typical)
+    strength = ramp(reference - mean, LOW_FROM, LOW_SURE)
+    if strength <= 0:
+        return []
+    weakest = np.flatnonzero(on & (scores < reference))
+    return [make_reason("low-score", f"the model scored this person's joints {mean:.2f} on average "
+                    f"(the frame's people: {reference:.2f})", pid, weakest, strength)]
