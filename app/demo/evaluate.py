@@ -1,16 +1,24 @@
-"""How many grouped people are wrong: OKS against the true poses, matched one to one.
+"""How wrong labels are: people and joints judged against the true poses.
 
-Used to calibrate the simulated network maps (:mod:`app.demo.maps`) and to report how many
-auto-labels in the demo need correcting.
+:func:`wrong_people` (a person is right at OKS >= 0.8 to its one-to-one partner) calibrated
+the simulated network maps (:mod:`app.demo.maps`) and triage. :func:`judge_joints` judges
+every labelled joint, which is what retraining sees: wrong labelled joints are what hurt it.
+It is the measure of the findings and their fixes (:mod:`app.demo.calibrate`, the findings'
+acceptance test and ``make bench``).
 """
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
+from scipy.optimize import linear_sum_assignment
 
-from app.analysis.similarity import match_people
+from app.analysis.similarity import match_people, oks_matrix
+
+#: A labelled joint is correct when its per-joint similarity to its partner's is at least this.
+KS_CORRECT = 0.5
 
 
 def wrong_people(auto_people: Any, truth_people: Any, truth_areas: Any, sigmas: Any,
@@ -67,6 +75,104 @@ def wrong_people(auto_people: Any, truth_people: Any, truth_areas: Any, sigmas: 
     for i, _, _ in match_people(auto, truth, truth_areas, sigmas, threshold=oks_threshold):
         wrong[i] = False
     return wrong
+
+
+def judge_joints(labelled_people: Any, truth_people: Any, truth_areas: Any,
+                 sigmas: Any) -> np.ndarray:
+    """Every labelled joint judged against the true poses: correct, wrong or not labelled.
+
+    Parameters
+    ----------
+    labelled_people
+        ``(N, K, 3)`` (or a list of ``(K, 3)``) labels ``x, y, v``; joints with ``v > 0``
+        are labelled (an unlabeled joint's remembered position is not read).
+    truth_people
+        ``(M, K, 3)`` true ``x, y, v`` (COCO visibility).
+    truth_areas
+        ``(M,)`` the true people's areas in square pixels (COCO ``area``).
+    sigmas
+        ``(K,)`` per-joint OKS sigmas.
+
+    Returns
+    -------
+    numpy.ndarray
+        ``(N, K)`` int8: ``1`` correct, ``-1`` wrong, ``0`` not labelled.
+
+    Notes
+    -----
+    Labelled and true people are paired one to one by the assignment that maximises the
+    summed OKS (as pycocotools computes it, :func:`app.analysis.similarity.oks_matrix`) over
+    the pairs with OKS above 0 (a labelled person nothing true resembles stays unpaired). A
+    labelled joint ``i`` is *correct* when its person's true partner labels joint ``i`` and
+    the COCO per-joint similarity ``ks_i = exp(-d_i^2 / (2 area (2 sigma_i)^2))`` is at least
+    0.5 (``d_i`` the distance to the partner's joint, ``area`` the partner's); otherwise it is
+    *wrong*: a joint of an unpaired person (a duplicate, a fragment, a phantom), a joint the
+    truth does not label, or a joint placed elsewhere (a neighbour's, the other side's, an
+    invented spot). A pairing by OKS rather than at a threshold judges each joint on its own:
+    a person with one wrong arm keeps its other joints correct.
+
+    References
+    ----------
+    COCO keypoint evaluation (OKS, per-joint similarity ``ks``) and
+    ``pycocotools.cocoeval.COCOeval.computeOks``; optimal assignment by
+    ``scipy.optimize.linear_sum_assignment``.
+
+    Examples
+    --------
+    >>> truth = np.array([[[10.0, 10.0, 2], [20.0, 30.0, 2]], [[60.0, 10.0, 2], [70.0, 30.0, 0]]])
+    >>> labels = np.array([[[10.5, 10.0, 2], [70.0, 30.0, 2]],    # second joint: a neighbour's
+    ...                    [[60.0, 10.0, 2], [70.0, 30.0, 1]],    # second: truth has none
+    ...                    [[10.0, 11.0, 2], [0.0, 0.0, 0]]])     # found twice
+    >>> judge_joints(labels, truth, [400.0, 400.0], [0.1, 0.1]).tolist()
+    [[1, -1], [1, -1], [-1, 0]]
+    """
+    labels = _stack(labelled_people)
+    truth = _stack(truth_people)
+    if labels.size == 0:
+        return np.zeros(labels.shape[:2], dtype=np.int8)
+    on = labels[:, :, 2] > 0
+    out = np.where(on, -1, 0).astype(np.int8)
+    if truth.size == 0:
+        return out
+    xy = np.where(on[:, :, None], labels[:, :, :2], np.nan)
+    areas = np.asarray(truth_areas, dtype=np.float64).reshape(-1)
+    sig = np.asarray(sigmas, dtype=np.float64).reshape(-1)
+    similarity = oks_matrix(np.concatenate([xy, labels[:, :, 2:]], axis=2), truth, areas, sig)
+    rows, cols = linear_sum_assignment(np.where(similarity > 0, similarity, 0.0), maximize=True)
+    for i, j in zip(rows.tolist(), cols.tolist()):
+        if similarity[i, j] <= 0:
+            continue
+        d2 = ((xy[i] - truth[j, :, :2]) ** 2).sum(axis=1)
+        with np.errstate(invalid="ignore"):
+            ks = np.exp(-d2 / (2.0 * areas[j] * (2.0 * sig) ** 2 + np.spacing(1)))
+        right = on[i] & (truth[j, :, 2] > 0) & (ks >= KS_CORRECT)
+        out[i] = np.where(right, 1, out[i])
+    return out
+
+
+@dataclass(frozen=True)
+class JointTally:
+    """How many labelled joints are correct and how many wrong (:func:`judge_joints`)."""
+
+    correct: int = 0
+    wrong: int = 0
+
+    def __add__(self, other: JointTally) -> JointTally:
+        return JointTally(self.correct + other.correct, self.wrong + other.wrong)
+
+
+def tally_joints(labelled_people: Any, truth_people: Any, truth_areas: Any,
+                 sigmas: Any) -> JointTally:
+    """Counts of :func:`judge_joints`.
+
+    Examples
+    --------
+    >>> truth = np.array([[[10.0, 10.0, 2], [20.0, 30.0, 2]]])
+    >>> tally_joints([[[10.0, 10.0, 2], [90.0, 30.0, 2]]], truth, [400.0], [0.1, 0.1])
+    JointTally(correct=1, wrong=1)
+    """
+    verdict = judge_joints(labelled_people, truth_people, truth_areas, sigmas)
+    return JointTally(int((verdict == 1).sum()), int((verdict == -1).sum()))
 
 
 def _stack(people: Any) -> np.ndarray:

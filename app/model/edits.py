@@ -14,6 +14,8 @@ Targets and their values (all JSON-ready):
 - ``("note", nid)``: a note's value or ``None``.
 - ``("region", rid)``: an ignore region's value (:meth:`Region.to_value`) or ``None``.
 - ``("kept", aid)``: the sorted joints of the reviewer's version ``aid`` settled as ours.
+- ``("dismissal", key)``: a finding dismissed as not a problem (``{"kind", "finding", "text",
+  "author", "time"}``) or ``None``; ``key`` is the fingerprint of the labels it was about.
 
 Edits are refused with :class:`~app.errors.EditRefused` (and nothing changes) when they would
 make the labels inconsistent; the message says why and what to do.
@@ -50,7 +52,7 @@ class Change:
         kind = self.target[0]
         if kind == "joint":
             return f"person:{self.target[1]}/joint:{self.target[2]}"
-        if kind in ("person", "note", "region", "kept"):
+        if kind in ("person", "note", "region", "kept", "dismissal"):
             return f"{kind}:{self.target[1]}"
         return kind
 
@@ -81,6 +83,9 @@ def _current(labels: FrameLabels, target: Target) -> Any:
     if kind == "kept":
         kept = labels.kept.get(target[1])
         return None if kept is None else sorted(kept)
+    if kind == "dismissal":
+        value = labels.dismissed.get(target[1])
+        return None if value is None else dict(value)
     raise EditRefused(f"unknown change target {target!r}")
 
 
@@ -90,6 +95,7 @@ def apply_changes(labels: FrameLabels, changes: Iterable[Change]) -> FrameLabels
     notes = dict(labels.notes)
     regions = dict(labels.regions)
     kept = dict(labels.kept)
+    dismissed = dict(labels.dismissed)
     state = labels.state
     for ch in changes:
         kind = ch.target[0]
@@ -123,9 +129,15 @@ def apply_changes(labels: FrameLabels, changes: Iterable[Change]) -> FrameLabels
                 kept.pop(ch.target[1], None)
             else:
                 kept[ch.target[1]] = frozenset(int(j) for j in ch.after)
+        elif kind == "dismissal":
+            if ch.after is None:
+                dismissed.pop(ch.target[1], None)
+            else:
+                dismissed[ch.target[1]] = dict(ch.after)
         else:
             raise EditRefused(f"unknown change target {ch.target!r}")
-    return replace(labels, people=people, notes=notes, state=state, regions=regions, kept=kept)
+    return replace(labels, people=people, notes=notes, state=state, regions=regions, kept=kept,
+                   dismissed=dismissed)
 
 
 class Edit:
@@ -537,6 +549,64 @@ class KeepOurs(Edit):
 
 
 @dataclass(frozen=True)
+class DismissFinding(Edit):
+    """Record that a finding is not a problem, so that it is not raised again while the labels
+    it was about stay the same.
+
+    ``key`` is the finding's fingerprint (a digest of its kind and of the labels it was about,
+    see :func:`app.analysis.triage.findings.fingerprint`); ``finding`` its id and ``text`` its
+    sentence, kept for the ledger. Undoing the dismissal raises the finding again.
+    """
+
+    frame_id: int
+    key: str
+    kind: str
+    finding: str = ""
+    text: str = ""
+    changes_labels: ClassVar[bool] = False
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        if not self.key:
+            raise EditRefused("a dismissal needs the finding's fingerprint")
+        if self.key in labels.dismissed:
+            return []
+        value = {"kind": self.kind, "finding": self.finding, "text": self.text,
+                 "author": ctx.author, "time": ctx.time}
+        return [Change(("dismissal", self.key), None, value)]
+
+    def summary(self) -> str:
+        return f"dismiss finding {self.finding or self.key[:8]} ({self.kind}): not a problem"
+
+
+@dataclass(frozen=True)
+class EditGroup(Edit):
+    """Several edits of one frame as one action: one ledger group, one undo step.
+
+    The edits are planned in order, each on the labels the ones before it leave, and the
+    group is refused as a whole (nothing changes) when any of them is refused. Edits that need
+    a new person id get one each from the store before planning.
+    """
+
+    frame_id: int
+    edits: tuple[Edit, ...]
+    label: str = ""
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        staged = labels
+        changes: list[Change] = []
+        for edit in self.edits:
+            if edit.frame_id != self.frame_id:
+                raise EditRefused(f"a group for frame {self.frame_id} holds an edit for frame "
+                                  f"{edit.frame_id}")
+            staged, planned = edit.apply(staged, ctx)
+            changes += planned
+        return changes
+
+    def summary(self) -> str:
+        return self.label or "; ".join(e.summary() for e in self.edits)
+
+
+@dataclass(frozen=True)
 class Restore(Edit):
     """Apply recorded changes verbatim, checking that each target still holds ``before``.
 
@@ -578,18 +648,99 @@ def _same_value(a: Any, b: Any) -> bool:
 
 
 def needs_person_id(edit: Edit) -> bool:
-    """Whether the store must allocate a person id before planning this edit."""
+    """Whether the store must allocate a person id before planning this edit (for a group:
+    before planning one of its edits)."""
+    if isinstance(edit, EditGroup):
+        return any(needs_person_id(e) for e in edit.edits)
     return (isinstance(edit, NewPerson) and edit.person_id is None) or (
         isinstance(edit, SplitPerson) and edit.new_person_id is None
     )
 
 
 def with_person_id(edit: Edit, person_id: int) -> Edit:
+    """The edit with ``person_id`` filled in (in a group: in its first edit that needs one)."""
+    if isinstance(edit, EditGroup):
+        edits = list(edit.edits)
+        for n, e in enumerate(edits):
+            if needs_person_id(e):
+                edits[n] = with_person_id(e, person_id)
+                break
+        return replace(edit, edits=tuple(edits))
     if isinstance(edit, NewPerson):
         return replace(edit, person_id=person_id)
     if isinstance(edit, SplitPerson):
         return replace(edit, new_person_id=person_id)
     return edit
+
+
+#: The edits a finding's fix is made of, by name (see :func:`edit_to_value`).
+_SERIALISABLE: dict[str, type[Edit]] = {}
+
+
+def edit_to_value(edit: Edit) -> dict[str, Any]:
+    """A JSON-ready dict of an edit: ``{"op": class name, field: value, ...}``.
+
+    Label edits, state, dismissal and group edits serialise; :func:`edit_from_value` reads
+    them back.
+
+    Examples
+    --------
+    >>> edit_to_value(ReassignJoint(3, 12, 9, 14))
+    {'op': 'ReassignJoint', 'frame_id': 3, 'person_id': 12, 'joint': 9, 'to_person_id': 14}
+    >>> edit_from_value(edit_to_value(SetVisibility(3, 12, 9, 0)))
+    SetVisibility(frame_id=3, person_id=12, joint=9, v=0)
+    """
+    name = type(edit).__name__
+    if name not in _SERIALISABLE:
+        raise EditRefused(f"{name} edits are not written out")
+    out: dict[str, Any] = {"op": name}
+    for key, value in edit.__dict__.items():
+        if isinstance(edit, EditGroup) and key == "edits":
+            out[key] = [edit_to_value(e) for e in value]
+        elif isinstance(value, FrameState):
+            out[key] = value.value
+        elif isinstance(value, tuple):
+            out[key] = _plain(value)
+        else:
+            out[key] = value
+    return out
+
+
+def edit_from_value(value: Any) -> Edit:
+    """The edit :func:`edit_to_value` wrote.
+
+    Raises
+    ------
+    EditRefused
+        When ``value`` is not such a dict (an unknown ``op`` or fields).
+    """
+    if not isinstance(value, dict) or value.get("op") not in _SERIALISABLE:
+        raise EditRefused(f"not an edit: {value!r}")
+    cls = _SERIALISABLE[value["op"]]
+    fields = {k: v for k, v in value.items() if k != "op"}
+    if cls is EditGroup:
+        fields["edits"] = tuple(edit_from_value(e) for e in fields.get("edits", ()))
+    elif cls is NewPerson and fields.get("keypoints") is not None:
+        fields["keypoints"] = tuple(tuple(row) for row in fields["keypoints"])
+    elif cls is SplitPerson:
+        fields["joints"] = tuple(fields.get("joints", ()))
+    elif cls is SetFrameState:
+        fields["state"] = FrameState(fields["state"])
+    try:
+        return cls(**fields)
+    except TypeError as exc:
+        raise EditRefused(f"not a {value['op']} edit: {exc}") from None
+
+
+def _plain(value: Any) -> Any:
+    if isinstance(value, (tuple, list)):
+        return [_plain(v) for v in value]
+    return value
+
+
+_SERIALISABLE.update({cls.__name__: cls for cls in (
+    MoveJoint, SetVisibility, ReassignJoint, NewPerson, DeletePerson, MergePeople,
+    SplitPerson, SwapSides, SetFrameState, DismissFinding, EditGroup)})
 
 
 def labels_changed(changes: Sequence[Change]) -> bool:

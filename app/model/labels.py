@@ -219,6 +219,9 @@ class FrameLabels:
     #: For each reviewer's version kept beside a disputed frame (by its id), the joints for
     #: which ours was chosen (see :class:`app.model.edits.KeepOurs`).
     kept: Mapping[int, frozenset[int]] = field(default_factory=dict)
+    #: Findings dismissed as "not a problem", by the fingerprint of the labels they were about
+    #: (see :class:`app.model.edits.DismissFinding`): what was dismissed, by whom and when.
+    dismissed: Mapping[str, Mapping[str, Any]] = field(default_factory=dict)
 
     @property
     def num_joints(self) -> int:
@@ -239,4 +242,5 @@ class FrameLabels:
             and dict(self.notes) == dict(other.notes)
             and dict(self.regions) == dict(other.regions)
             and dict(self.kept) == dict(other.kept)
+            and dict(self.dismissed) == dict(other.dismissed)
         )

@@ -108,6 +108,8 @@ def _parse_target(text: str) -> tuple[Any, ...]:
         return ("joint", int(ident), int(parts[1].partition(":")[2]))
     if kind in ("person", "note", "region", "kept"):
         return (kind, int(ident))
+    if kind == "dismissal" and ident:
+        return (kind, ident)
     raise PosewrightError(f"ledger target {text!r} is not a change")
 
 
@@ -464,7 +466,7 @@ class Project:
             {n.id: n for n in self.notes(frame.id)},
             {rid: Region(rid, frame.id, tuple(tuple(p) for p in polys), extra)
              for rid, polys, extra in self.regions(frame.id)},
-            self._kept(frame.id),
+            self._kept(frame.id), self._dismissed(frame.id),
         )
 
     def _kept(self, frame_id: int) -> dict[int, frozenset[int]]:
@@ -474,6 +476,48 @@ class Project:
                 "SELECT id, kept FROM alternatives WHERE frame_id = ? AND retired IS NULL",
                 (int(frame_id),)).fetchall()
         return {r[0]: frozenset(json.loads(r[1])) for r in rows}
+
+    def _dismissed(self, frame_id: int) -> dict[str, dict[str, Any]]:
+        with self._mutex:
+            rows = self._conn.execute("SELECT key, value FROM dismissals WHERE frame_id = ?",
+                                      (int(frame_id),)).fetchall()
+        return {r[0]: json.loads(r[1]) for r in rows}
+
+    def dismissed(self) -> dict[int, set[str]]:
+        """The fingerprints of the dismissed findings, by frame id."""
+        out: dict[int, set[str]] = {}
+        with self._mutex:
+            for frame_id, key in self._conn.execute("SELECT frame_id, key FROM dismissals"):
+                out.setdefault(frame_id, set()).add(key)
+        return out
+
+    def findings(self, frame_id: int | None = None) -> dict[int, list[dict[str, Any]]]:
+        """The stored findings (as :meth:`app.analysis.triage.findings.Finding.to_dict`
+        wrote them), worst first, by frame id; only one frame's with ``frame_id``."""
+        sql = "SELECT frame_id, data FROM findings"
+        args: list[Any] = []
+        if frame_id is not None:
+            sql += " WHERE frame_id = ?"
+            args.append(int(frame_id))
+        out: dict[int, list[dict[str, Any]]] = {}
+        with self._mutex:
+            for f, data in self._conn.execute(sql + " ORDER BY frame_id, position", args):
+                out.setdefault(f, []).append(json.loads(data))
+        return out
+
+    def store_findings(self, results: dict[int, list[dict[str, Any]]]) -> None:
+        """Replace the findings of the given frames (one transaction, not ledgered: findings
+        are derived from the labels and the maps and can be recomputed at any time)."""
+        self._check_writable()
+        with self._mutex, self._transaction():
+            self._conn.executemany("DELETE FROM findings WHERE frame_id = ?",
+                                   [(int(f),) for f in results])
+            self._conn.executemany(
+                "INSERT INTO findings VALUES (?, ?, ?, ?, ?, ?, ?)",
+                [(int(f), n, str(d["id"]), str(d["kind"]), d.get("person_id"),
+                  float(d.get("confidence") or 0.0), json.dumps(d))
+                 for f, found in results.items() for n, d in enumerate(found)])
+        self._notify("triage", results.keys())
 
     def history(self, frame_id: int | None = None, limit: int | None = None) -> list[LedgerEntry]:
         """Ledger entries, newest first; only those of one frame when ``frame_id`` is given."""
@@ -531,7 +575,7 @@ class Project:
         """
         self._check_writable()
         with self._mutex, self._transaction():
-            if needs_person_id(edit):
+            while needs_person_id(edit):
                 edit = with_person_id(edit, self._allocate("next_person_id"))
             if isinstance(edit, AddNote) and edit.note_id is None:
                 edit = replace(edit, note_id=self._allocate("next_note_id"))
@@ -642,6 +686,12 @@ class Project:
         for aid in {ch.target[1] for ch in changes if ch.target[0] == "kept"}:
             c.execute("UPDATE alternatives SET kept = ? WHERE id = ?",
                       (json.dumps(sorted(new.kept.get(aid, ()))), aid))
+        for key in {ch.target[1] for ch in changes if ch.target[0] == "dismissal"}:
+            value = new.dismissed.get(key)
+            c.execute("DELETE FROM dismissals WHERE key = ?", (key,))
+            if value is not None:
+                c.execute("INSERT INTO dismissals VALUES (?, ?, ?)",
+                          (key, new.frame_id, json.dumps(dict(value))))
         for rid in {ch.target[1] for ch in changes if ch.target[0] == "region"}:
             region = new.regions.get(rid)
             c.execute("DELETE FROM regions WHERE id = ?", (rid,))

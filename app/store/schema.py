@@ -37,13 +37,20 @@ Layout:
   that was no longer disputed replaced them.
 - ``review_decisions`` (v3): in a project opened from a review packet, the reviewer's
   decision on each frame (agree, needs-change, signed-off), who made it and when.
+- ``findings`` (v4): each frame's findings from the last triage, worst first (``position``),
+  each a JSON object (:meth:`app.analysis.triage.findings.Finding.to_dict`). Derived data,
+  replaced whenever triage runs, never in the ledger.
+- ``dismissals`` (v4): findings dismissed as not a problem, keyed by the fingerprint of the
+  labels they were about (``value``: kind, finding id, text, author, time). Written only by
+  :class:`app.model.edits.DismissFinding` edits, so every dismissal is in the ledger and undo
+  takes it back.
 """
 
 from __future__ import annotations
 
 import sqlite3
 
-SCHEMA_VERSION = 3
+SCHEMA_VERSION = 4
 
 _V1 = """
 CREATE TABLE meta (
@@ -165,8 +172,28 @@ CREATE TABLE IF NOT EXISTS review_decisions (
 );
 """
 
+# Version 4: findings with proposed fixes (derived, like triage) and their dismissals (edits).
+_V4 = """
+CREATE TABLE IF NOT EXISTS findings (
+    frame_id   INTEGER NOT NULL REFERENCES frames(id) ON UPDATE CASCADE,
+    position   INTEGER NOT NULL,
+    id         TEXT NOT NULL,
+    kind       TEXT NOT NULL,
+    person_id  INTEGER,
+    confidence REAL NOT NULL,
+    data       TEXT NOT NULL,
+    PRIMARY KEY (frame_id, position)
+);
+CREATE TABLE IF NOT EXISTS dismissals (
+    key      TEXT PRIMARY KEY,
+    frame_id INTEGER NOT NULL REFERENCES frames(id) ON UPDATE CASCADE,
+    value    TEXT NOT NULL
+);
+CREATE INDEX IF NOT EXISTS dismissals_frame ON dismissals(frame_id);
+"""
+
 #: ``MIGRATIONS[n]`` takes the schema from version ``n - 1`` to ``n``.
-MIGRATIONS: dict[int, str] = {1: _V1, 2: _V2, 3: _V3}
+MIGRATIONS: dict[int, str] = {1: _V1, 2: _V2, 3: _V3, 4: _V4}
 
 
 def schema_version(conn: sqlite3.Connection) -> int:
