@@ -25,6 +25,7 @@ from app.analysis.anthropometry import (
 )
 from app.analysis.triage.combine import Reason, make_reason, ramp
 from app.analysis.triage.model_evidence import limb_e, limb_index
+from app.model.naming import joint_name
 from app.model.skeleton import Skeleton
 
 #: The OKS a label must reach to count as right (the acceptance measure of issue 3).
@@ -189,7 +190,7 @@ def missing_joints(pid: int, kp: np.ndarray, skeleton: Skeleton,
     strength = ramp(need, NEED_FROM, NEED_SURE)
     if strength <= 0:
         return []
-    names = ", ".join(skeleton.joints[j] for j in inside[:4]) + (" ..." if m > 4 else "")
+    names = ", ".join(joint_name(skeleton, j) for j in inside[:4]) + (" ..." if m > 4 else "")
     return [make_reason("missing-joints",
                     f"{m} joint{'s' if m > 1 else ''} in the picture not labelled ({names}); "
                     f"the label can score at most OKS {n / (n + m):.2f}",
@@ -263,8 +264,9 @@ def stretched_limbs(pid: int, kp: np.ndarray, skeleton: Skeleton, scale: float,
                 bad_limbs.update((a, b))
                 out.append(make_reason(
                     "stretched-limb",
-                    f"{skeleton.joints[a]}-{skeleton.joints[b]} is {r:.1f}x as long as this "
-                    "body's torso allows", pid, (a, b), ramp(r, STRETCH_FROM, STRETCH_SURE)))
+                    f"{joint_name(skeleton, a)} to {joint_name(skeleton, b)} is {r:.1f}x as "
+                    "long as this body's torso allows", pid, (a, b),
+                    ramp(r, STRETCH_FROM, STRETCH_SURE)))
     chains = np.where(adjacent[np.ix_(on, on)], 0.0, np.triu(ratio, 1))
     i, j = np.unravel_index(int(np.argmax(chains)), chains.shape)
     r = float(chains[i, j])
@@ -272,8 +274,8 @@ def stretched_limbs(pid: int, kp: np.ndarray, skeleton: Skeleton, scale: float,
     if r > STRETCH_FROM and not ({a, b} & bad_limbs):
         out.append(make_reason(
             "stretched-limb",
-            f"{skeleton.joints[a]} and {skeleton.joints[b]} are {r:.1f}x as far apart as the "
-            "limbs between them reach on this body", pid, (a, b),
+            f"{joint_name(skeleton, a)} and {joint_name(skeleton, b)} are {r:.1f}x as far "
+            "apart as the limbs between them reach on this body", pid, (a, b),
             ramp(r, STRETCH_FROM, STRETCH_SURE)))
     return out
 

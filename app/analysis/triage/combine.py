@@ -60,7 +60,7 @@ class Reason:
     ``strength`` in [0, 1] says how far the measurement lies into its range; ``evidence`` is
     ``WEIGHTS[kind] * strength`` in log-odds; ``weight`` is the suspicion this reason alone
     gives, ``1 / (1 + exp(-(PRIOR + evidence)))`` (for the frame-level ``crowded``, the crowd
-    index, at most 1).
+    index, at most 1). ``other`` is the other person a reason about a pair names.
     """
 
     kind: str
@@ -70,11 +70,15 @@ class Reason:
     weight: float = 0.0
     strength: float = 0.0
     evidence: float = 0.0
+    other: int | None = None
 
     def to_dict(self) -> dict[str, Any]:
-        return {"kind": self.kind, "text": self.text, "person": self.person,
-                "joints": list(self.joints), "weight": round(float(self.weight), 4),
-                "evidence": round(float(self.evidence), 4)}
+        out = {"kind": self.kind, "text": self.text, "person": self.person,
+               "joints": list(self.joints), "weight": round(float(self.weight), 4),
+               "evidence": round(float(self.evidence), 4)}
+        if self.other is not None:
+            out["other"] = self.other
+        return out
 
 
 @dataclass
@@ -102,10 +106,12 @@ def sigmoid(x: float) -> float:
     return 1.0 / (1.0 + math.exp(-x))
 
 
-def make_reason(kind: str, text: str, pid: int, joints: Any, strength: float) -> Reason:
+def make_reason(kind: str, text: str, pid: int, joints: Any, strength: float,
+                other: int | None = None) -> Reason:
+    """A reason of ``kind`` about person ``pid`` with its evidence and weight filled in."""
     evidence = WEIGHTS[kind] * strength
     return Reason(kind, text, pid, tuple(int(j) for j in joints),
-                  sigmoid(PRIOR + evidence), strength, evidence)
+                  sigmoid(PRIOR + evidence), strength, evidence, other)
 
 
 def combine(reasons: list[Reason], people: Any) -> dict[int, float]:

@@ -21,6 +21,7 @@ from scipy.stats import theilslopes
 from app.analysis.anthropometry import limb_fractions, person_scale
 from app.analysis.triage.body import feet_y, pair_index, stretched_limbs
 from app.analysis.triage.combine import Reason, make_reason, ramp
+from app.model.naming import Names
 from app.model.skeleton import Skeleton
 
 #: Two people whose shared joints lie a median of less than this fraction of stature apart
@@ -144,7 +145,8 @@ def off_ground(pid: int, kp: np.ndarray, skeleton: Skeleton, scale: float,
 
 def duplicates_and_splits(people: Mapping[int, np.ndarray], skeleton: Skeleton,
                           scales: Mapping[int, float],
-                          scores: Mapping[int, np.ndarray] | None = None) -> list[Reason]:
+                          scores: Mapping[int, np.ndarray] | None = None,
+                          names: Names | None = None) -> list[Reason]:
     """Pairs of people that are really one body, or that share parts.
 
     Parameters
@@ -157,12 +159,15 @@ def duplicates_and_splits(people: Mapping[int, np.ndarray], skeleton: Skeleton,
         Person id -> stature in pixels (:func:`body_scale`; NaN where unknown).
     scores
         Person id -> ``(K,)`` model scores, to tell the weaker of a duplicate pair.
+    names
+        How the frame's people are named in the text (default: tags in the order of
+        ``people``).
 
     Returns
     -------
     list of Reason
         ``tangled`` for both of a close pair, ``duplicate`` for its weaker member, ``split``
-        for both halves of a body cut in two.
+        for both halves of a body cut in two; ``other`` is the other person of the pair.
 
     Notes
     -----
@@ -191,6 +196,7 @@ def duplicates_and_splits(people: Mapping[int, np.ndarray], skeleton: Skeleton,
     """
     out: list[Reason] = []
     ids = list(people)
+    names = names or Names.of_frame(skeleton, ids)
     fractions = limb_fractions(skeleton)
     for i, p in enumerate(ids):
         for q in ids[i + 1:]:
@@ -210,17 +216,18 @@ def duplicates_and_splits(people: Mapping[int, np.ndarray], skeleton: Skeleton,
                 if strength > 0:
                     for pid, mate in ((p, q), (q, p)):
                         out.append(make_reason("tangled",
-                                           f"its joints lie a median {d:.2f} of a body height "
-                                           f"from person {mate}'s: parts may be swapped "
-                                           "between them", pid, shared, strength))
+                                               f"its joints lie a median {d:.2f} of a body "
+                                               f"height from {names.person(mate)}'s: parts may "
+                                               "be swapped between them", pid, shared,
+                                               strength, other=mate))
                 strength = ramp(d, DUPLICATE_FROM, DUPLICATE_SURE)
                 if strength > 0:
                     weaker = q if _strength(b, scores, q) <= _strength(a, scores, p) else p
                     keeper = p if weaker == q else q
                     out.append(make_reason("duplicate",
-                                       f"the same body as person {keeper}, found twice "
-                                       f"(joints a median {d:.2f} of a body height apart)",
-                                       weaker, shared, strength))
+                                           f"the same body as {names.person(keeper)}, found "
+                                           f"twice (joints a median {d:.2f} of a body height "
+                                           "apart)", weaker, shared, strength, other=keeper))
                 continue
             if both.any():
                 continue
@@ -230,9 +237,9 @@ def duplicates_and_splits(people: Mapping[int, np.ndarray], skeleton: Skeleton,
                 for pid, j in ((p, j1), (q, j2)):
                     mate = q if pid == p else p
                     out.append(make_reason("split",
-                                       f"looks like the rest of person {mate}'s body (joined "
-                                       f"at {skeleton.joints[j1]}-{skeleton.joints[j2]})",
-                                       pid, (j,), 1.0))
+                                           f"looks like the rest of {names.person(mate)}'s "
+                                           f"body (joined at {names.joint(j1)} to "
+                                           f"{names.joint(j2)})", pid, (j,), 1.0, other=mate))
     return out
 
 

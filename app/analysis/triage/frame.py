@@ -27,6 +27,7 @@ from app.analysis.triage.combine import (
 )
 from app.analysis.triage.crowd import crowd_index, duplicates_and_splits, ground_line, off_ground
 from app.analysis.triage.model_evidence import limb_support, low_scores, typical_support, weak_limbs
+from app.model.naming import Names
 from app.model.skeleton import Skeleton
 
 
@@ -110,7 +111,7 @@ def triage_frame(
             reasons += weak_limbs(pid, kp, skeleton, support[n], typical)
         reasons += low_scores(pid, kp, own, typical_score)
     reasons += duplicates_and_splits({p: arrays[p] for p in present}, skeleton, scales,
-                                     score_arrays)
+                                     score_arrays, Names.of_frame(skeleton, arrays))
     reasons = [r for r in reasons if r.strength >= MIN_STRENGTH]
     suspicion = combine(reasons, arrays)
     ci = crowd_index(arrays)

@@ -19,6 +19,7 @@ import numpy as np
 
 from app.analysis.association import limb_scores
 from app.analysis.triage.combine import Reason, make_reason, ramp
+from app.model.naming import joint_name
 from app.model.skeleton import Skeleton
 
 #: Weak limbs: the mean shortfall of the person's ``E`` below the frame's typical ``E`` for
@@ -40,10 +41,48 @@ def limb_index(skeleton: Skeleton, a: int, b: int) -> tuple[int, bool] | None:
     return None
 
 
+class FieldMemo:
+    """Network maps that remember every line integral ``E`` they were asked for.
+
+    Checks run many times on small variations of one frame's labels (the fixes try joints on
+    other people) ask for the same limbs again and again; wrapped in a ``FieldMemo`` the maps
+    compute each ``E`` once. It stands in for the maps wherever the checks take them.
+
+    Examples
+    --------
+    >>> from types import SimpleNamespace
+    >>> fields = np.zeros((1, 2, 10, 10)); fields[0, 0] = 1.0       # points along +x
+    >>> memo = FieldMemo(SimpleNamespace(pafs=fields, stride=1))
+    >>> memo.e(0, np.array([1.0, 1.0]), np.array([8.0, 1.0])), len(memo._known)
+    (1.0, 1)
+    """
+
+    def __init__(self, maps: Any):
+        self.maps = maps
+        self.pafs = maps.pafs
+        self.stride = maps.stride
+        self.confidence_maps = getattr(maps, "confidence_maps", None)
+        self._known: dict[tuple[Any, ...], float] = {}
+
+    def e(self, limb: int, start: np.ndarray, end: np.ndarray) -> float:
+        """``E`` of limb ``limb`` from ``start`` to ``end`` (image pixels), as
+        :func:`app.analysis.association.limb_scores` computes it."""
+        key = (limb, round(float(start[0]), 3), round(float(start[1]), 3),
+               round(float(end[0]), 3), round(float(end[1]), 3))
+        value = self._known.get(key)
+        if value is None:
+            mean, _ = limb_scores(self.pafs[limb], np.asarray(start, dtype=np.float64)[None, :2],
+                                  np.asarray(end, dtype=np.float64)[None, :2], self.stride)
+            value = self._known[key] = float(mean[0, 0])
+        return value
+
+
 def limb_e(maps: Any, limb: tuple[int, bool], first: np.ndarray, second: np.ndarray) -> float:
     """E of a connection first -> second along the field of ``limb`` (its direction kept)."""
     c, forward = limb
     start, end = (first, second) if forward else (second, first)
+    if isinstance(maps, FieldMemo):
+        return max(maps.e(c, start, end), 0.0)
     mean, _ = limb_scores(maps.pafs[c], start[None, :2], end[None, :2], maps.stride)
     return max(float(mean[0, 0]), 0.0)
 
@@ -94,6 +133,9 @@ def limb_support(people: np.ndarray, skeleton: Skeleton, maps: Any) -> np.ndarra
             np.any(arr[:, a, :2] != arr[:, b, :2], axis=1)
         rows = np.flatnonzero(ok)
         if rows.size == 0:
+            continue
+        if isinstance(maps, FieldMemo):
+            out[rows, c] = [maps.e(c, arr[r, a], arr[r, b]) for r in rows.tolist()]
             continue
         mean, _ = limb_scores(maps.pafs[c], arr[rows, a, :2], arr[rows, b, :2], maps.stride)
         out[rows, c] = np.diagonal(mean)
@@ -192,7 +234,8 @@ def weak_limbs(pid: int, kp: np.ndarray, skeleton: Skeleton, support: np.ndarray
         return []
     limbs = [c for c in np.flatnonzero(ok & (gap > WEAK_SURE)).tolist()]
     joints = sorted({j for c in limbs for j in skeleton.limbs[c]})
-    names = ", ".join(skeleton.limb_names()[c] for c in limbs[:3]) + \
+    names = ", ".join(f"{joint_name(skeleton, skeleton.limbs[c][0])} to "
+                      f"{joint_name(skeleton, skeleton.limbs[c][1])}" for c in limbs[:3]) + \
         (" ..." if len(limbs) > 3 else "")
     return [make_reason("weak-limb",
                     f"the model's fields support this body {shortfall:.2f} less than the "

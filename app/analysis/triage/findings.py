@@ -1,0 +1,415 @@
+"""Findings: one problem at one place, said in a sentence, with the correction to accept.
+
+A :class:`Finding` names the frame, the person (stable id and on-screen tag), the joints by
+name, its kind, one short sentence, the evidence as numbers, a proposed :class:`Fix` made of
+the edit operations of :mod:`app.model.edits` (``None`` when no fix can be proposed) and a
+*confidence*: the estimated probability that applying the fix makes the labels more right
+(:mod:`app.analysis.triage.calibration`). :func:`frame_findings` computes a frame's findings
+from its labels, the model's scores and maps and the skeleton; the proposers are in
+:mod:`app.analysis.triage.fixes`.
+
+A finding's ``id`` says which problem at which place (its frame, kind, person, joints and the
+other people its fix touches) and stays the same while the problem is found there; its
+``fingerprint`` also covers the labels of every person it is about, so that a finding
+dismissed as not a problem (:class:`app.model.edits.DismissFinding`, keyed by the
+fingerprint) is not raised again while those labels stay the same, and is raised again once
+they change.
+
+Examples
+--------
+>>> from app.model.skeleton import coco_body
+>>> body = np.zeros((17, 3)); body[:, 2] = 2
+>>> body[:, :2] = [[50, 20], [52, 18], [48, 18], [55, 19], [45, 19], [60, 35], [40, 35],
+...                [63, 55], [37, 55], [64, 72], [36, 72], [56, 68], [44, 68], [57, 95],
+...                [43, 95], [57, 120], [43, 120]]
+>>> frame_findings(1, {4: body}, coco_body())
+[]
+>>> twice = body.copy(); twice[:, 0] += 3                 # the same body, found again
+>>> found = frame_findings(1, {4: body, 9: twice}, coco_body(),
+...                        scores={4: np.full(17, 0.9), 9: np.full(17, 0.5)})
+>>> [(f.kind, f.person_id, f.tag, f.fix.summary) for f in found]
+[('duplicate', 9, 2, 'delete person 2')]
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from app.analysis.triage.calibration import PROPOSE_AT, confidence
+from app.analysis.triage.combine import FrameTriage
+from app.analysis.triage.fixes import KINDS, FrameView, Proposal, propose
+from app.analysis.triage.frame import triage_frame
+from app.model.edits import (
+    Edit,
+    MergePeople,
+    edit_from_value,
+    edit_to_value,
+    needs_person_id,
+    with_person_id,
+)
+from app.model.labels import FrameLabels, Person
+from app.model.naming import Names
+from app.model.skeleton import Skeleton
+
+
+@dataclass(frozen=True)
+class FixPreview:
+    """What a fix would do, for showing it before it is accepted.
+
+    Attributes
+    ----------
+    placed
+        ``(person id, joint, x, y, v)`` of every joint that gets a new place or a new owner.
+    unlabeled
+        ``(person id, joint)`` of every joint that becomes unlabeled.
+    occluded
+        ``(person id, joint)`` of every joint that becomes occluded where it is.
+    deleted
+        Ids of the people deleted (merged people included).
+    merged
+        ``(kept id, merged id)`` of every merge.
+    created
+        The keypoints ``((x, y, v), ...)`` of every new person.
+    """
+
+    placed: tuple[tuple[int, int, float, float, int], ...] = ()
+    unlabeled: tuple[tuple[int, int], ...] = ()
+    occluded: tuple[tuple[int, int], ...] = ()
+    deleted: tuple[int, ...] = ()
+    merged: tuple[tuple[int, int], ...] = ()
+    created: tuple[tuple[tuple[float, float, int], ...], ...] = ()
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"placed": [list(p) for p in self.placed],
+                "unlabeled": [list(p) for p in self.unlabeled],
+                "occluded": [list(p) for p in self.occluded],
+                "deleted": list(self.deleted), "merged": [list(m) for m in self.merged],
+                "created": [[list(j) for j in kp] for kp in self.created]}
+
+    @staticmethod
+    def from_dict(value: Mapping[str, Any]) -> FixPreview:
+        return FixPreview(
+            tuple((int(p), int(j), float(x), float(y), int(v))
+                  for p, j, x, y, v in value.get("placed", ())),
+            tuple((int(p), int(j)) for p, j in value.get("unlabeled", ())),
+            tuple((int(p), int(j)) for p, j in value.get("occluded", ())),
+            tuple(int(p) for p in value.get("deleted", ())),
+            tuple((int(a), int(b)) for a, b in value.get("merged", ())),
+            tuple(tuple((_num(x), _num(y), int(v)) for x, y, v in kp)
+                  for kp in value.get("created", ())))
+
+
+def _num(x: Any) -> float:
+    return float("nan") if x is None else float(x)
+
+
+@dataclass(frozen=True)
+class Fix:
+    """A proposed correction: the edits to apply together (one ledger group) and what they
+    would do."""
+
+    summary: str
+    edits: tuple[Edit, ...]
+    preview: FixPreview
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"summary": self.summary, "edits": [edit_to_value(e) for e in self.edits],
+                "preview": self.preview.to_dict()}
+
+    @staticmethod
+    def from_dict(value: Mapping[str, Any]) -> Fix:
+        return Fix(str(value["summary"]), tuple(edit_from_value(e) for e in value["edits"]),
+                   FixPreview.from_dict(value.get("preview") or {}))
+
+
+@dataclass(frozen=True)
+class Finding:
+    """One problem at one place, and the fix for it.
+
+    Attributes
+    ----------
+    id
+        Stable while the same problem is found at the same place.
+    frame_id
+        The frame.
+    kind
+        One of :data:`app.analysis.triage.fixes.KINDS`.
+    person_id, tag
+        The person (stable id, and the number tag the Canvas shows); None for a missed person.
+    joints, joint_names
+        The joints concerned, as skeleton indices and as text (``left wrist``).
+    text
+        One sentence naming the person by tag and the joints by name.
+    evidence
+        The numbers behind it, as ``(name, value)`` pairs.
+    strength
+        How far the evidence lies into its range, in [0, 1] (what confidence is fitted on).
+    confidence
+        Estimated probability that applying the fix makes the labels more right.
+    fix
+        The proposed fix, or None when none can be proposed.
+    people
+        Every person the finding is about (their labels are in the fingerprint).
+    fingerprint
+        Digest of the kind, the place and those people's labels (dismissals are keyed on it).
+    """
+
+    id: str
+    frame_id: int
+    kind: str
+    person_id: int | None
+    tag: int | None
+    joints: tuple[int, ...]
+    joint_names: tuple[str, ...]
+    text: str
+    evidence: tuple[tuple[str, float], ...]
+    strength: float
+    confidence: float
+    fix: Fix | None
+    people: tuple[int, ...]
+    fingerprint: str
+
+    def to_dict(self, file_name: str | None = None) -> dict[str, Any]:
+        """A JSON-ready dict (``file_name`` added when given); :meth:`from_dict` reads it."""
+        out: dict[str, Any] = {"id": self.id, "frame_id": self.frame_id}
+        if file_name is not None:
+            out["file_name"] = file_name
+        out.update({
+            "kind": self.kind, "person_id": self.person_id, "tag": self.tag,
+            "joints": list(self.joint_names), "joint_ids": list(self.joints),
+            "text": self.text, "confidence": round(float(self.confidence), 4),
+            "strength": round(float(self.strength), 4),
+            "evidence": {k: round(float(v), 4) for k, v in self.evidence},
+            "fix": None if self.fix is None else self.fix.to_dict(),
+            "people": list(self.people), "fingerprint": self.fingerprint,
+        })
+        return out
+
+    @staticmethod
+    def from_dict(value: Mapping[str, Any]) -> Finding:
+        fix = value.get("fix")
+        return Finding(
+            str(value["id"]), int(value["frame_id"]), str(value["kind"]),
+            None if value.get("person_id") is None else int(value["person_id"]),
+            None if value.get("tag") is None else int(value["tag"]),
+            tuple(int(j) for j in value.get("joint_ids", ())),
+            tuple(str(n) for n in value.get("joints", ())), str(value["text"]),
+            tuple((str(k), float(v)) for k, v in (value.get("evidence") or {}).items()),
+            float(value.get("strength") or 0.0), float(value.get("confidence") or 0.0),
+            None if fix is None else Fix.from_dict(fix),
+            tuple(int(p) for p in value.get("people", ())), str(value["fingerprint"]))
+
+
+def fingerprint(kind: str, people: Mapping[int, np.ndarray], about: Iterable[int],
+                place: Any = ()) -> str:
+    """A digest of a finding's kind, its place and the labels of the people it is about.
+
+    Parameters
+    ----------
+    kind
+        The finding's kind.
+    people
+        Person id -> ``(K, 3)`` ``x, y, v``.
+    about
+        The ids of the people the finding is about.
+    place
+        Anything JSON-ready that says where (joints; for a missed person, its parts).
+
+    Returns
+    -------
+    str
+        16 hex digits of SHA-256 over the kind, the place and each person's id with the
+        positions (to 0.01 pixel) and visibilities of their labelled joints.
+
+    Examples
+    --------
+    >>> kp = np.array([[10.0, 20.0, 2], [0.0, 0.0, 0]])
+    >>> a = fingerprint("invented", {3: kp}, [3], [0])
+    >>> moved = kp.copy(); moved[0, 0] += 1
+    >>> a == fingerprint("invented", {3: kp.copy()}, [3], [0]), a == fingerprint(
+    ...     "invented", {3: moved}, [3], [0])
+    (True, False)
+    """
+    labels = []
+    for pid in sorted(set(int(p) for p in about)):
+        kp = np.asarray(people[pid], dtype=np.float64)
+        on = kp[:, 2] > 0
+        labels.append([pid, np.flatnonzero(on).tolist(),
+                       np.round(kp[on, :2], 2).tolist(), kp[on, 2].astype(int).tolist()])
+    text = json.dumps([kind, _plain(place), labels], separators=(",", ":"))
+    return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+
+def _plain(value: Any) -> Any:
+    if isinstance(value, np.ndarray):
+        return value.tolist()
+    if isinstance(value, (tuple, list)):
+        return [_plain(v) for v in value]
+    if isinstance(value, np.generic):
+        return value.item()
+    return value
+
+
+def preview(labels: FrameLabels, edits: Sequence[Edit]) -> FixPreview:
+    """What applying ``edits`` in order to ``labels`` would do.
+
+    Parameters
+    ----------
+    labels
+        The frame's labels now.
+    edits
+        The fix's edits; new people get stand-in ids (they are listed in ``created``).
+
+    Returns
+    -------
+    FixPreview
+
+    Examples
+    --------
+    >>> from app.model.edits import ReassignJoint
+    >>> from app.model.skeleton import coco_body
+    >>> a = Person.blank(1, 17); b = Person.blank(2, 17)
+    >>> a = a.with_joint(9, [40.0, 60.0, 2, 0.9, "auto"])
+    >>> labels = FrameLabels(5, coco_body(), {1: a, 2: b})
+    >>> preview(labels, [ReassignJoint(5, 1, 9, 2)]).placed
+    ((2, 9, 40.0, 60.0, 2),)
+    """
+    staged = labels
+    stand_in = max(list(labels.people) + [0]) + 1
+    merged = []
+    for edit in edits:
+        while needs_person_id(edit):
+            edit = with_person_id(edit, stand_in)
+            stand_in += 1
+        if isinstance(edit, MergePeople):
+            merged.append((edit.person_id, edit.other_id))
+        staged, _ = edit.apply(staged)
+    placed, unlabeled, occluded, created = [], [], [], []
+    for pid, after in staged.people.items():
+        before = labels.people.get(pid)
+        if before is None:
+            created.append(tuple((float(x), float(y), int(v)) for x, y, v in after.keypoints))
+            continue
+        for j in range(labels.num_joints):
+            (bx, by, bv), (ax, ay, av) = before.keypoints[j], after.keypoints[j]
+            same_place = bool(np.isclose(bx, ax) and np.isclose(by, ay))
+            if bv > 0 and av <= 0:
+                unlabeled.append((pid, j))
+            elif av > 0 and (bv <= 0 or not same_place):
+                placed.append((pid, j, float(ax), float(ay), int(av)))
+            elif av == 1 and bv == 2:
+                occluded.append((pid, j))
+    for pid, before in labels.people.items():
+        if pid in staged.people:
+            continue
+        given = next((k for k, m in merged if m == pid), None)
+        if given is not None:
+            for j in np.flatnonzero(before.labelled).tolist():
+                if (given, j) not in {(p, jj) for p, jj, *_ in placed}:
+                    x, y, v = before.keypoints[j]
+                    placed.append((given, j, float(x), float(y), int(v)))
+    deleted = tuple(sorted(p for p in labels.people if p not in staged.people))
+    return FixPreview(tuple(placed), tuple(unlabeled), tuple(occluded), deleted,
+                      tuple(merged), tuple(created))
+
+
+def frame_findings(
+    frame_id: int,
+    people: Mapping[int, Any],
+    skeleton: Skeleton,
+    scores: Mapping[int, Any] | None = None,
+    maps: Any = None,
+    image_size: tuple[int, int] | None = None,
+    triage: FrameTriage | None = None,
+    dismissed: Iterable[str] = (),
+    kinds: Iterable[str] | None = None,
+) -> list[Finding]:
+    """A frame's findings, worst first.
+
+    Parameters
+    ----------
+    frame_id
+        The frame (the fixes' edits name it).
+    people
+        Person id -> ``(K, 3)`` ``x, y, v`` in the project's order (tags follow it).
+    skeleton
+        The project's skeleton.
+    scores
+        Person id -> ``(K,)`` model score per joint (NaN where none), optional.
+    maps
+        Network maps (``confidence_maps``, ``pafs``, ``stride``), optional: without them the
+        field evidence is left out and no peaks can be added.
+    image_size
+        ``(width, height)``, optional.
+    triage
+        The frame's :func:`~app.analysis.triage.frame.triage_frame` result (computed if None).
+    dismissed
+        Fingerprints of dismissed findings: those findings are left out.
+    kinds
+        Only these kinds (default: all of :data:`~app.analysis.triage.fixes.KINDS`).
+
+    Returns
+    -------
+    list of Finding
+        Most confident first; findings of one frame never share an id.
+
+    Notes
+    -----
+    A fix is proposed when its confidence reaches
+    :data:`~app.analysis.triage.calibration.PROPOSE_AT`; below it the finding still says
+    where the problem is, with ``fix`` None.
+    """
+    arrays = {int(p): np.asarray(v, dtype=np.float64) for p, v in people.items()}
+    score_arrays = None if scores is None else {int(p): np.asarray(v, dtype=np.float64)
+                                                 for p, v in scores.items()}
+    if triage is None:
+        triage = triage_frame(arrays, skeleton, score_arrays, maps, image_size)
+    view = FrameView(frame_id, arrays, skeleton, score_arrays, maps, image_size, triage)
+    wanted = set(KINDS if kinds is None else kinds)
+    labels = _labels(frame_id, skeleton, arrays, score_arrays)
+    skip = set(dismissed)
+    out: dict[str, Finding] = {}
+    for proposal in propose(view):
+        if proposal.kind not in wanted:
+            continue
+        finding = _finding(view, labels, proposal)
+        if finding.fingerprint in skip:
+            continue
+        known = out.get(finding.id)
+        if known is None or finding.confidence > known.confidence:
+            out[finding.id] = finding
+    return sorted(out.values(), key=lambda f: (-f.confidence, KINDS.index(f.kind), f.id))
+
+
+def _labels(frame_id: int, skeleton: Skeleton, people: Mapping[int, np.ndarray],
+            scores: Mapping[int, np.ndarray] | None) -> FrameLabels:
+    k = skeleton.num_joints
+    made = {}
+    for pid, kp in people.items():
+        s = scores.get(pid) if scores is not None else None
+        made[pid] = Person(pid, kp.copy(), np.full(k, np.nan) if s is None else s.copy(),
+                           ("auto",) * k)
+    return FrameLabels(frame_id, skeleton, made)
+
+
+def _finding(view: FrameView, labels: FrameLabels, p: Proposal) -> Finding:
+    names: Names = view.names
+    conf = confidence(p.kind, p.strength)
+    fix = None
+    if p.edits and conf >= PROPOSE_AT:
+        fix = Fix(p.summary, p.edits, preview(labels, p.edits))
+    touched = sorted({pid for pid in p.people} | ({p.person} if p.person is not None else set()))
+    place = [list(p.joints), [list(r) for r in p.extra]]
+    key = json.dumps([view.frame_id, p.kind, p.person, list(p.joints), touched])
+    ident = "F" + hashlib.sha256(key.encode()).hexdigest()[:10]
+    return Finding(
+        ident, view.frame_id, p.kind, p.person,
+        None if p.person is None else names.tag(p.person), p.joints,
+        tuple(names.joint(j) for j in p.joints), p.text, p.evidence, p.strength, conf, fix,
+        tuple(touched), fingerprint(p.kind, view.people, touched, place))

@@ -1,0 +1,992 @@
+"""Fixes: for each kind of problem triage sees, where it is and the correction to propose.
+
+Each proposer looks at one frame (a :class:`FrameView`: the people, their scores, the maps and
+what triage found) and returns :class:`Proposal` records: the kind, the person, the joints,
+one sentence naming the person by tag and the joints by name, the evidence as numbers, a
+*strength* in [0, 1] and the fix as a list of edit operations of :mod:`app.model.edits`
+(empty when none can be proposed). :mod:`app.analysis.triage.findings` turns proposals into
+findings with a calibrated confidence.
+
+=================  =============================================  ============================
+kind               the problem                                    the fix
+=================  =============================================  ============================
+``wrong-owner``    joints given to a neighbour                    give them to the owner the
+                                                                  evidence supports (swapping
+                                                                  with the receiver's), or
+                                                                  unlabel them
+``invented``       a hidden joint placed at an invented spot      unlabel it
+``hidden``         joints labelled visible that a nearer person   mark them occluded (their
+                   hides                                          place is known)
+``mirrored``       left and right swapped on the whole body       swap the person's sides
+``crossed-sides``  one pair, arm or leg on the wrong side         swap those joints' sides
+``duplicate``      one person found twice                         delete the weaker, keeping
+                                                                  the joints only it has
+``split``          one body cut in two                            merge the two
+``phantom``        a person where there is no one                 delete it
+``missing-joint``  an unused peak the field joins to a person     add the joint there
+``missed-person``  someone made of unused peaks                   a new person
+=================  =============================================  ============================
+
+The measure that chose the thresholds (which labelled joints are right, against the demo's
+true poses) and the figures are in :mod:`app.analysis.triage.calibration`.
+
+References
+----------
+Z. Cao et al., "Realtime Multi-Person 2D Pose Estimation using Part Affinity Fields",
+CVPR 2017, Sec. 2.4 (the line integral ``E`` and grouping). D. Hoiem, A. A. Efros, M. Hebert,
+"Putting Objects in Perspective", CVPR 2006 (the floor: nearer people stand lower).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from functools import cached_property
+from typing import Any
+
+import numpy as np
+
+from app.analysis.anthropometry import limb_fractions, person_scale, reach_matrix
+from app.analysis.association import find_peaks, group_people
+from app.analysis.triage.body import (
+    body_scale,
+    crossed_sides,
+    feet_y,
+    pair_index,
+    stretched_limbs,
+    upright_body,
+)
+from app.analysis.triage.combine import WEIGHTS, FrameTriage, Reason, ramp
+from app.analysis.triage.crowd import ground_line, off_ground
+from app.analysis.triage.model_evidence import (
+    FieldMemo,
+    limb_support,
+    typical_support,
+    weak_limbs,
+)
+from app.model.edits import (
+    DeletePerson,
+    Edit,
+    MergePeople,
+    MoveJoint,
+    NewPerson,
+    ReassignJoint,
+    SetVisibility,
+    SwapSides,
+)
+from app.model.naming import Names, join_words
+from app.model.skeleton import Skeleton
+
+#: The kinds of finding, in the order they are proposed (and accepted) within a frame: first
+#: whole people (duplicates, fragments, phantoms), then sides, then joints, then additions.
+KINDS: tuple[str, ...] = ("duplicate", "split", "phantom", "mirrored", "crossed-sides",
+                          "wrong-owner", "invented", "hidden", "missing-joint", "missed-person")
+
+#: Body evidence a hypothesis is judged by (triage's geometric and field checks, in log-odds).
+_BODY_KINDS = ("stretched-limb", "short-legs", "tilted-torso", "off-ground", "crossed-sides",
+               "weak-limb")
+#: Wrong owner: a hypothesis must lower the people's summed body evidence by this much (log
+#: odds: the labels become at least e^1.5 = 4.5 times as likely by triage's weights).
+OWNER_GAIN = 1.5
+#: Wrong owner: unlabeling a joint rather than giving it away costs this much evidence per
+#: joint (the prior that a labelled joint is right: most are).
+UNLABEL_COST = 0.75
+#: Wrong owner: a receiver's link to the chain may be this many times its expected length.
+LINK_SLACK = 1.3
+#: Duplicate: two people whose like joints lie a median of less than this fraction of
+#: stature apart, and scatter about one shift by less than ``SHAPE_FROM`` (sure at
+#: ``SHAPE_SURE``), are one body found twice.
+DUPLICATE_FROM = 0.2
+SHAPE_FROM, SHAPE_SURE = 0.02, 0.005
+#: Invented: a joint inside a nearer person's body scored at least this fraction of the
+#: frame's typical score for a visible joint is a confident guess at a spot it cannot see.
+INVENTED_FROM, INVENTED_SURE = 0.85, 1.1
+#: Missing joint and missed person: a peak counts as used when a labelled joint of its type
+#: lies within this fraction of the nearest person's stature.
+USED_WITHIN = 0.04
+#: Missing joint: a peak is joined to a person when the field along every limb to it reaches
+#: this share of the frame's typical ``E`` of that limb, and its length fits.
+JOIN_FROM, JOIN_SURE = 0.6, 1.0
+#: Missed person: at least this many unused parts that group into one plausible body.
+MISSED_PARTS = 5
+
+
+@dataclass(frozen=True)
+class Proposal:
+    """One problem at one place and the fix for it (before calibration).
+
+    ``people`` are every person the finding is about (their labels are what a dismissal is
+    keyed on); ``edits`` is empty when no fix can be proposed.
+    """
+
+    kind: str
+    person: int | None
+    joints: tuple[int, ...]
+    text: str
+    strength: float
+    evidence: tuple[tuple[str, float], ...]
+    edits: tuple[Edit, ...] = ()
+    people: tuple[int, ...] = ()
+    summary: str = ""
+    #: For a proposal about no existing person (a missed person): what it would add.
+    extra: tuple[tuple[float, float, int], ...] = ()
+
+
+@dataclass
+class FrameView:
+    """One frame as the proposers see it: labels, scores, maps and triage's verdict.
+
+    Parameters
+    ----------
+    frame_id
+        The frame's id (edits name it).
+    people
+        Person id -> ``(K, 3)`` ``x, y, v``, in the project's order (tags follow it).
+    skeleton
+        The project's skeleton.
+    scores
+        Person id -> ``(K,)`` model scores (NaN where none), or None.
+    maps
+        Network maps (``confidence_maps``, ``pafs``, ``stride``) or None.
+    image_size
+        ``(width, height)`` or None.
+    triage
+        The frame's :class:`~app.analysis.triage.combine.FrameTriage`.
+    """
+
+    frame_id: int
+    people: Mapping[int, np.ndarray]
+    skeleton: Skeleton
+    scores: Mapping[int, np.ndarray] | None
+    maps: Any
+    image_size: tuple[int, int] | None
+    triage: FrameTriage
+    names: Names = field(init=False)
+    _evidence: dict[tuple[int, bytes], float] = field(init=False, default_factory=dict)
+
+    def __post_init__(self) -> None:
+        self.people = {int(p): np.asarray(kp, dtype=np.float64) for p, kp in self.people.items()}
+        if self.maps is not None and not isinstance(self.maps, FieldMemo):
+            self.maps = FieldMemo(self.maps)
+        if self.scores is not None:
+            self.scores = {int(p): np.asarray(s, dtype=np.float64)
+                           for p, s in self.scores.items()}
+        self.names = Names.of_frame(self.skeleton, self.people)
+
+    # -- per frame, computed once
+    @cached_property
+    def fractions(self) -> np.ndarray:
+        return limb_fractions(self.skeleton)
+
+    @cached_property
+    def reach(self) -> np.ndarray:
+        return reach_matrix(self.skeleton)
+
+    @cached_property
+    def present(self) -> list[int]:
+        return [p for p, kp in self.people.items() if (kp[:, 2] > 0).any()]
+
+    @cached_property
+    def torso(self) -> dict[int, float]:
+        return {p: person_scale(self.people[p], self.skeleton) for p in self.present}
+
+    @cached_property
+    def stature(self) -> dict[int, float]:
+        return {p: body_scale(self.people[p], self.skeleton, self.fractions)
+                for p in self.present}
+
+    @cached_property
+    def line(self) -> tuple[float, float] | None:
+        feet = np.array([feet_y(self.people[p], self.skeleton) for p in self.present])
+        return ground_line(feet, np.array([self.torso[p] for p in self.present]))
+
+    @cached_property
+    def typical(self) -> np.ndarray | None:
+        if self.maps is None or not self.present:
+            return None
+        support = limb_support(np.stack([self.people[p] for p in self.present]),
+                               self.skeleton, self.maps)
+        return typical_support(support)
+
+    @cached_property
+    def reasons(self) -> dict[int, list[Reason]]:
+        out: dict[int, list[Reason]] = {}
+        for r in self.triage.reasons:
+            if r.person is not None:
+                out.setdefault(r.person, []).append(r)
+        return out
+
+    @cached_property
+    def typical_score(self) -> float:
+        """The frame's median score of a labelled joint (NaN without scores)."""
+        if self.scores is None:
+            return float("nan")
+        values = [self.scores[p][self.people[p][:, 2] > 0] for p in self.present
+                  if p in self.scores]
+        pooled = np.concatenate(values) if values else np.zeros(0)
+        pooled = pooled[np.isfinite(pooled)]
+        return float(np.median(pooled)) if pooled.size else float("nan")
+
+    @cached_property
+    def depth(self) -> dict[int, float]:
+        """Where each person stands on the floor: the image row of their feet, read from the
+        ankles, else from their size on the fitted floor; NaN when neither is known. Lower in
+        the image (larger) is nearer the camera."""
+        out = {}
+        for p in self.present:
+            y = feet_y(self.people[p], self.skeleton)
+            if not np.isfinite(y) and self.line is not None and np.isfinite(self.torso[p]):
+                y = (self.torso[p] - self.line[1]) / self.line[0]
+            out[p] = float(y)
+        return out
+
+    @cached_property
+    def chains(self) -> list[tuple[int, ...]]:
+        return body_chains(self.skeleton)
+
+    def scale(self, pid: int) -> float:
+        """The person's stature: from the torso, else from the longest limb."""
+        s = self.torso.get(pid, float("nan"))
+        return s if np.isfinite(s) else self.stature.get(pid, float("nan"))
+
+    def body_evidence(self, pid: int, kp: np.ndarray) -> float:
+        """Triage's body evidence against labels ``kp`` of person ``pid``: the summed
+        log-odds, each kind once at its strongest, over :data:`_BODY_KINDS`."""
+        key = (pid, kp.tobytes())
+        known = self._evidence.get(key)
+        if known is None:
+            known = self._evidence[key] = self._body_evidence(pid, kp)
+        return known
+
+    def _body_evidence(self, pid: int, kp: np.ndarray) -> float:
+        sk = self.skeleton
+        on = kp[:, 2] > 0
+        if not on.any():
+            return 0.0
+        scale = person_scale(kp, sk)
+        reasons = stretched_limbs(pid, kp, sk, scale, self.reach)
+        reasons += upright_body(pid, kp, sk, scale)
+        reasons += off_ground(pid, kp, sk, scale, self.line)
+        reasons += crossed_sides(pid, kp, sk, scale, self.maps)
+        if self.typical is not None:
+            support = limb_support(kp[None], sk, self.maps)[0]
+            reasons += weak_limbs(pid, kp, sk, support, self.typical)
+        best: dict[str, float] = {}
+        for r in reasons:
+            if r.kind in _BODY_KINDS:
+                best[r.kind] = max(best.get(r.kind, 0.0), r.evidence)
+        return float(sum(best.values()))
+
+
+def body_chains(skeleton: Skeleton) -> list[tuple[int, ...]]:
+    """The parts a body's labels can be wrong by as a whole: each joint with everything it
+    carries away from the torso, and the like parts of both sides together.
+
+    Parameters
+    ----------
+    skeleton
+        The project's skeleton; its torso is its shoulders and hips (without them, its first
+        joint).
+
+    Returns
+    -------
+    list of tuple of int
+        Sorted joint tuples, distinct.
+
+    Notes
+    -----
+    ``carried(j)``: ``j`` and the joints that lose their path to the torso when ``j`` is
+    removed from the limb graph (the elbow carries the wrist; the left hip its knee and
+    ankle). Added: the union of the two sides' ``carried`` for every left-right pair (both
+    legs from the hips: a lower body given to the wrong torso). Common practice, no source.
+
+    Examples
+    --------
+    >>> from app.model.skeleton import coco_body
+    >>> sk = coco_body()
+    >>> chains = body_chains(sk)
+    >>> (7, 9) in chains, (11, 12, 13, 14, 15, 16) in chains
+    (True, True)
+    """
+    k = skeleton.num_joints
+    adjacency = [set() for _ in range(k)]
+    for a, b in skeleton.limbs:
+        adjacency[a].add(b)
+        adjacency[b].add(a)
+    torso = {j for pair in pair_index(skeleton, "shoulder", "hip") for j in pair} or {0}
+
+    def reachable(removed: int) -> set[int]:
+        seen = {t for t in torso if t != removed}
+        todo = list(seen)
+        while todo:
+            j = todo.pop()
+            for n in adjacency[j]:
+                if n != removed and n not in seen:
+                    seen.add(n)
+                    todo.append(n)
+        return seen
+
+    carried = {}
+    for j in range(k):
+        carried[j] = tuple(sorted({j} | (set(range(k)) - reachable(j) - {j})))
+    chains = set(carried.values())
+    for a, b in skeleton.flip_pairs:
+        chains.add(tuple(sorted(set(carried[a]) | set(carried[b]))))
+    return sorted(chains, key=lambda c: (len(c), c))
+
+
+# ---------------------------------------------------------------------- whole people
+
+def _mean_score(view: FrameView, pid: int, joints: np.ndarray) -> float:
+    if view.scores is None or pid not in view.scores:
+        return float("nan")
+    values = view.scores[pid][joints]
+    values = values[np.isfinite(values)]
+    return float(values.mean()) if values.size else float("nan")
+
+
+def duplicates(view: FrameView) -> list[Proposal]:
+    """People found twice: two people of one shape at a small offset; the weaker is the copy.
+
+    Notes
+    -----
+    For two people with at least three joint types labelled in both, ``d_j`` is the offset
+    of their joint ``j`` and ``shift`` the median offset. Two bodies of a crowd that stand
+    close differ in pose and size, so their offsets scatter; a network's second response to
+    one body repeats its shape at one shift. ``residual``: the median distance of the
+    ``d_j`` from ``shift``, over the larger stature; ``near``: the median ``|d_j|`` over the
+    larger stature. Strength: ``residual`` ramped from ``SHAPE_FROM`` (0.02) to
+    ``SHAPE_SURE`` (0.005), when ``near`` is below ``DUPLICATE_FROM`` (0.2). The copy is the
+    one the model scored lower on the shared joints (else the one with fewer joints). Fix:
+    give the keeper the joints only the copy has, carried over by the shift (where they fit
+    the keeper's body), and delete the copy. Common practice, no source.
+    """
+    out = []
+    ids = view.present
+    for i, p in enumerate(ids):
+        for q in ids[i + 1:]:
+            a, b = view.people[p], view.people[q]
+            both = (a[:, 2] > 0) & (b[:, 2] > 0)
+            if both.sum() < 3:
+                continue
+            scales = [s for s in (view.scale(p), view.scale(q)) if np.isfinite(s)]
+            if not scales:
+                continue
+            offsets = a[both, :2] - b[both, :2]
+            near = float(np.median(np.hypot(*offsets.T))) / max(scales)
+            if near >= DUPLICATE_FROM:
+                continue
+            shift = np.median(offsets, axis=0)
+            residual = float(np.median(np.hypot(*(offsets - shift).T))) / max(scales)
+            strength = ramp(residual, SHAPE_FROM, SHAPE_SURE)
+            if strength <= 0:
+                continue
+            shared = np.flatnonzero(both)
+            sp, sq = _mean_score(view, p, shared), _mean_score(view, q, shared)
+            if np.isfinite(sp) and np.isfinite(sq) and sp != sq:
+                copy, keeper = (q, p) if sq < sp else (p, q)
+            else:
+                copy, keeper = (q, p) if b[:, 2].astype(bool).sum() <= \
+                    a[:, 2].astype(bool).sum() else (p, q)
+            gap = abs(sp - sq) if np.isfinite(sp) and np.isfinite(sq) else 0.0
+            carry = shift if keeper == p else -shift
+            kept = view.people[keeper].copy()
+            edits: list[Edit] = []
+            given = []
+            for j in np.flatnonzero((view.people[copy][:, 2] > 0) & (kept[:, 2] <= 0)).tolist():
+                trial = kept.copy()
+                x, y, v = view.people[copy][j]
+                trial[j] = (x + carry[0], y + carry[1], v)
+                if not _stretches(view, keeper, trial, j):
+                    kept = trial
+                    given.append(j)
+                    edits.append(MoveJoint(view.frame_id, keeper, j, float(trial[j, 0]),
+                                           float(trial[j, 1])))
+                    if v != 2:
+                        edits.append(SetVisibility(view.frame_id, keeper, j, int(v)))
+            edits.append(DeletePerson(view.frame_id, copy))
+            n = view.names
+            text = (f"{n.person(copy)} is {n.person(keeper)} found twice: the same shape "
+                    f"(joints within {residual:.3f} of a body height of one shift of "
+                    f"{near:.2f}), scored {gap:.2f} lower")
+            summary = f"delete {n.person(copy)}" + (
+                f", giving {n.person(keeper)} its {n.joints(given)}" if given else "")
+            out.append(Proposal("duplicate", copy, tuple(int(j) for j in shared), text,
+                                strength, (("residual", residual), ("offset", near),
+                                           ("score_gap", gap)),
+                                tuple(edits), (copy, keeper), summary))
+    return out
+
+
+def _stretches(view: FrameView, pid: int, kp: np.ndarray, joint: int) -> bool:
+    """Whether joint ``joint`` of ``kp`` stretches a limb or chain of the body."""
+    scale = view.scale(pid)
+    found = stretched_limbs(pid, kp, view.skeleton, scale, view.reach)
+    return any(joint in r.joints for r in found)
+
+
+def splits(view: FrameView) -> list[Proposal]:
+    """One body cut in two: triage's ``split`` pairs, merged into the larger part.
+
+    Notes
+    -----
+    Triage names both halves of a pair that share no joint type, join at a plausible limb
+    length and together stretch no limb (:func:`app.analysis.triage.crowd.duplicates_and_splits`).
+    Strength: 1 when both halves name each other, and the link's plausibility otherwise.
+    """
+    out = []
+    pairs: dict[tuple[int, int], list[Reason]] = {}
+    for r in view.triage.reasons:
+        if r.kind == "split" and r.person is not None and r.other is not None:
+            key = tuple(sorted((r.person, r.other)))
+            pairs.setdefault((key[0], key[1]), []).append(r)
+    for (p, q), reasons in sorted(pairs.items()):
+        keep, gone = (p, q) if view.people[p][:, 2].astype(bool).sum() >= \
+            view.people[q][:, 2].astype(bool).sum() else (q, p)
+        n = view.names
+        joints = tuple(sorted({j for r in reasons for j in r.joints}))
+        text = (f"{n.person(gone)} looks like the rest of {n.person(keep)}'s body: they share "
+                f"no joint and join at {n.joints(joints)}")
+        strength = 1.0 if len(reasons) >= 2 else 0.5
+        out.append(Proposal("split", gone, joints, text, strength, (("halves", len(reasons)),),
+                            (MergePeople(view.frame_id, keep, gone),), (keep, gone),
+                            f"merge {n.person(gone)} into {n.person(keep)}"))
+    return out
+
+
+def phantoms(view: FrameView) -> list[Proposal]:
+    """A person where there is no body: a few faint parts that fit no body, and no split.
+
+    Notes
+    -----
+    A phantom has fewer than half the skeleton's joints labelled, scores below the frame's
+    typical joint, no torso or a torso that stretches its own limbs at full strength, and is
+    not half of a split. Strength: how far its mean score lies below the frame's typical
+    score, ramped from 0 to 0.3. Fix: delete it.
+    """
+    out = []
+    in_split = {r.person for r in view.triage.reasons if r.kind == "split"}
+    for p in view.present:
+        kp = view.people[p]
+        on = kp[:, 2] > 0
+        if p in in_split or on.sum() * 2 >= view.skeleton.num_joints:
+            continue
+        reasons = view.reasons.get(p, [])
+        body_wrong = any(r.kind in ("stretched-limb", "off-ground") and r.strength >= 1.0
+                         for r in reasons)
+        if np.isfinite(view.torso.get(p, np.nan)) and not body_wrong:
+            continue
+        mean = _mean_score(view, p, np.flatnonzero(on))
+        gap = view.typical_score - mean if np.isfinite(mean) else 0.0
+        strength = ramp(gap, 0.0, 0.3)
+        if strength <= 0:
+            continue
+        n = view.names
+        text = (f"{n.person(p)} has {int(on.sum())} faint joints ({mean:.2f} against the "
+                f"frame's {view.typical_score:.2f}) that make no body")
+        out.append(Proposal("phantom", p, tuple(np.flatnonzero(on).tolist()), text, strength,
+                            (("score_gap", gap), ("joints", float(on.sum()))),
+                            (DeletePerson(view.frame_id, p),), (p,), f"delete {n.person(p)}"))
+    return out
+
+
+# ---------------------------------------------------------------------- sides
+
+def mirrored_people(view: FrameView) -> list[Proposal]:
+    """A body labelled as facing the camera whose face the model hardly sees: swap sides.
+
+    Notes
+    -----
+    Triage's ``mirrored`` check (:func:`app.analysis.triage.body.mirrored`): the face score
+    ratio against the ears and shoulders. Strength: that reason's strength. Fix: swap the
+    person's left and right joints.
+    """
+    out = []
+    for p in view.present:
+        found = [r for r in view.reasons.get(p, []) if r.kind == "mirrored"]
+        if not found:
+            continue
+        r = found[0]
+        n = view.names
+        text = (f"{n.person(p)} is labelled as facing the camera, but the model hardly sees "
+                "the face: seen from behind, with left and right swapped")
+        out.append(Proposal("mirrored", p, r.joints, text, r.strength,
+                            (("strength", r.strength),), (SwapSides(view.frame_id, p),), (p,),
+                            f"swap the left and right joints of {n.person(p)}"))
+    return out
+
+
+def crossed(view: FrameView) -> list[Proposal]:
+    """One pair, arm or leg on the wrong side: swap the sides of just those joints.
+
+    Notes
+    -----
+    For each of triage's ``crossed-sides`` reasons (a left-right pair), the candidate swaps
+    are the pair alone and the pair with all it carries away from the torso (the hips with the
+    knees and ankles); the one that leaves the least body evidence is proposed when it removes
+    the crossing. Strength: 1 minus the body evidence left, over triage's weight of
+    ``crossed-sides``.
+    """
+    out = []
+    sk = view.skeleton
+    flip = sk.flip_index
+    for p in view.present:
+        kp = view.people[p]
+        done: set[int] = set()
+        for r in view.reasons.get(p, []):
+            if r.kind != "crossed-sides" or len(r.joints) != 2 or set(r.joints) & done:
+                continue
+            a, b = r.joints
+            options = [(a,)]
+            for chain in view.chains:
+                if a in chain and flip[a] == b and all(
+                        (j in chain) == (flip[j] in chain) or flip[j] == j for j in chain):
+                    options.append(tuple(j for j in chain if flip[j] != j
+                                         and view.skeleton.sides[j].value == "left"))
+            before = view.body_evidence(p, kp)
+            best = None
+            for lefts in options:
+                pairs = [(int(j), int(flip[j])) for j in lefts if flip[j] != j]
+                trial = kp.copy()
+                for left, right in pairs:
+                    trial[[left, right]] = trial[[right, left]]
+                after = view.body_evidence(p, trial)
+                if best is None or after < best[0]:
+                    best = (after, pairs, trial)
+            if best is None or best[0] >= before:
+                continue
+            after, pairs, trial = best
+            if any(set(x.joints) & {a, b} for x in crossed_sides(
+                    p, trial, view.skeleton, view.scale(p), view.maps)):
+                continue
+            joints = tuple(sorted(j for pair in pairs for j in pair))
+            done.update(joints)
+            n = view.names
+            strength = float(np.clip((before - after) / WEIGHTS["crossed-sides"], 0.0, 1.0))
+            parts = join_words([_part(sk, j) for j, _ in pairs])
+            text = (f"{n.person(p)}'s left and right {parts} are the other way round from the "
+                    "rest of the body")
+            out.append(Proposal("crossed-sides", p, joints, text, strength,
+                                (("evidence_before", before), ("evidence_after", after)),
+                                tuple(_swap_edits(view.frame_id, p, kp, pairs)), (p,),
+                                f"swap {n.person(p)}'s left and right {parts}"))
+    return out
+
+
+def _part(skeleton: Skeleton, joint: int) -> str:
+    """``left_knee`` -> ``knee``: the name of a sided joint without its side."""
+    name = skeleton.joints[joint]
+    for side in ("left_", "right_"):
+        if name.startswith(side):
+            return name[len(side):].replace("_", " ")
+    return name.replace("_", " ")
+
+
+def _swap_edits(frame_id: int, pid: int, kp: np.ndarray,
+                pairs: Sequence[tuple[int, int]]) -> list[Edit]:
+    """Edits that exchange the labels of each joint pair of one person."""
+    edits: list[Edit] = []
+    for a, b in pairs:
+        for to, src in ((a, b), (b, a)):
+            v = int(kp[src, 2])
+            if v > 0:
+                edits.append(MoveJoint(frame_id, pid, to, float(kp[src, 0]), float(kp[src, 1])))
+                if v != 2:
+                    edits.append(SetVisibility(frame_id, pid, to, v))
+            elif kp[to, 2] > 0:
+                edits.append(SetVisibility(frame_id, pid, to, 0))
+    return edits
+
+
+# ---------------------------------------------------------------------- joints
+
+def _links(view: FrameView, chain: Sequence[int], pid: int, xy: np.ndarray) -> list[float]:
+    """For each limb joining a joint of ``chain`` (at ``xy[j]``) to a labelled joint of
+    person ``pid`` outside the chain, its length over the length the person's scale allows."""
+    scale = view.scale(pid)
+    kp = view.people[pid]
+    out = []
+    inside = set(chain)
+    for c, (a, b) in enumerate(view.skeleton.limbs):
+        for x, y in ((a, b), (b, a)):
+            if x in inside and y not in inside and kp[y, 2] > 0 and np.isfinite(view.fractions[c]):
+                length = float(np.hypot(*(xy[x] - kp[y, :2])))
+                out.append(length / (view.fractions[c] * scale) if scale > 0 else np.inf)
+    return out
+
+
+def wrong_owners(view: FrameView, people: Sequence[int] | None = None) -> list[Proposal]:
+    """Joints given to a neighbour: the chain of joints that belongs to someone else.
+
+    Notes
+    -----
+    For each person triage flags with body evidence (a stretched limb, short legs, a tilted
+    torso, feet off the floor, weak field support), every chain of labelled joints
+    (:func:`body_chains`) is tried elsewhere: given to each other person it links to at a
+    plausible length (at most ``LINK_SLACK`` times the expected limb, on that person's scale;
+    a receiver that has those joints gives its own in exchange), or unlabeled. A hypothesis is
+    judged by triage's body evidence of both people before and after
+    (:meth:`FrameView.body_evidence`, log-odds), unlabeling costing ``UNLABEL_COST`` per
+    joint. The best hypothesis that lowers the evidence by at least ``OWNER_GAIN`` is
+    proposed; strength: that drop ramped from ``OWNER_GAIN`` to three times it. With maps
+    the evidence includes the field's support of every limb (Cao et al.'s ``E``), without
+    them geometry alone decides.
+    """
+    out = []
+    candidates = people if people is not None else [
+        p for p in view.present
+        if any(r.kind in _BODY_KINDS or r.kind == "tangled" for r in view.reasons.get(p, []))]
+    for p in candidates:
+        kp = view.people[p]
+        on = kp[:, 2] > 0
+        base_p = view.body_evidence(p, kp)
+        if base_p <= 0:
+            continue
+        named = {j for r in view.reasons.get(p, []) if r.kind in _BODY_KINDS for j in r.joints}
+        best = None
+        for chain in view.chains:
+            mine = tuple(j for j in chain if on[j])
+            if not mine or len(mine) == on.sum() or not named & set(mine):
+                continue
+            without = kp.copy()
+            without[list(mine), 2] = 0
+            after_p = view.body_evidence(p, without)
+            drop = base_p - after_p - UNLABEL_COST * len(mine)
+            if best is None or drop > best[0]:
+                best = (drop, mine, None, after_p, 0.0)
+            xy = kp[:, :2]
+            for q in view.present:
+                if q == p:
+                    continue
+                links = _links(view, mine, q, xy)
+                if not links or max(links) > LINK_SLACK:
+                    continue
+                taker = view.people[q]
+                new_q = taker.copy()
+                new_p = without.copy()
+                for j in mine:
+                    new_q[j] = kp[j]
+                    if taker[j, 2] > 0:
+                        new_p[j] = taker[j]
+                before_q = view.body_evidence(q, taker)
+                drop = (base_p + before_q - view.body_evidence(p, new_p)
+                        - view.body_evidence(q, new_q))
+                if drop > best[0]:
+                    best = (drop, mine, q, base_p - drop, before_q)
+        if best is None or best[0] < OWNER_GAIN:
+            continue
+        drop, mine, q, _, _ = best
+        n = view.names
+        strength = ramp(drop, OWNER_GAIN, 3 * OWNER_GAIN)
+        joints = n.joints(mine)
+        if q is None:
+            edits: list[Edit] = [SetVisibility(view.frame_id, p, j, 0) for j in mine]
+            text = (f"{n.person(p)}'s {joints} fit no one's body here: without them the labels "
+                    f"are {np.exp(drop):.0f} times as likely")
+            summary = f"mark {n.person(p)}'s {joints} unlabeled"
+            involved: tuple[int, ...] = (p,)
+        else:
+            edits = [ReassignJoint(view.frame_id, p, j, q) for j in mine]
+            swap = [j for j in mine if view.people[q][j, 2] > 0]
+            text = (f"{n.person(p)}'s {joints} belong to {n.person(q)}: given to "
+                    f"{n.person(q)} both bodies are {np.exp(drop):.0f} times as likely")
+            summary = f"give {n.person(p)}'s {joints} to {n.person(q)}" + (
+                f", taking {n.person(q)}'s {n.joints(swap)} in exchange" if swap else "")
+            involved = (p, q)
+        out.append(Proposal("wrong-owner", p, tuple(mine), text, strength,
+                            (("evidence_drop", drop),), tuple(edits), involved, summary))
+    return out
+
+
+def _body_regions(view: FrameView, pid: int) -> list[tuple[np.ndarray, np.ndarray, float]]:
+    """Capsules ``(a, b, radius)`` covering the person's trunk and thighs, image pixels."""
+    sk = view.skeleton
+    kp = view.people[pid]
+    scale = view.scale(pid)
+    out = []
+    if not np.isfinite(scale):
+        return out
+    shoulders, hips = pair_index(sk, "shoulder"), pair_index(sk, "hip")
+    for (ls, rs), (lh, rh) in zip(shoulders, hips):
+        if (kp[[ls, rs, lh, rh], 2] > 0).all():
+            top = kp[[ls, rs], :2].mean(axis=0)
+            bottom = kp[[lh, rh], :2].mean(axis=0)
+            half = 0.5 * max(np.hypot(*(kp[ls, :2] - kp[rs, :2])),
+                             np.hypot(*(kp[lh, :2] - kp[rh, :2])))
+            out.append((top, bottom, 0.8 * half))
+    return out
+
+
+def _inside(point: np.ndarray, a: np.ndarray, b: np.ndarray, radius: float) -> bool:
+    d = b - a
+    t = float(np.clip((point - a) @ d / max(float(d @ d), 1e-9), 0.0, 1.0))
+    return bool(np.hypot(*(point - a - t * d)) < radius)
+
+
+def covered_joints(view: FrameView) -> dict[int, list[tuple[int, int]]]:
+    """Joints that a nearer person's trunk hides: person id -> ``[(joint, coverer), ...]``.
+
+    Notes
+    -----
+    A person standing lower on the frame's floor is nearer the camera (their feet, or where
+    the fitted floor puts the feet of a body of their size; Hoiem et al. 2006). A labelled
+    joint of a farther person (by more than 0.02 of their stature) that falls inside the
+    nearer one's trunk (the capsule from the shoulder centre to the hip centre, as wide as
+    0.8 of the wider of the shoulders and the hips) cannot be seen.
+    """
+    regions = {p: _body_regions(view, p) for p in view.present}
+    out: dict[int, list[tuple[int, int]]] = {}
+    for p in view.present:
+        kp = view.people[p]
+        if not np.isfinite(view.depth.get(p, np.nan)):
+            continue
+        nearer = [q for q in view.present if q != p and regions[q]
+                  and view.depth.get(q, np.nan) > view.depth[p] + 0.02 * view.scale(p)]
+        for j in np.flatnonzero(kp[:, 2] > 0).tolist():
+            for q in nearer:
+                if any(_inside(kp[j, :2], a, b, r) for a, b, r in regions[q]):
+                    out.setdefault(p, []).append((j, q))
+                    break
+    return out
+
+
+def invented_joints(view: FrameView,
+                    covered: dict[int, list[tuple[int, int]]] | None = None) -> list[Proposal]:
+    """Hidden joints at an invented spot: covered by a nearer person, yet scored as seen.
+
+    Notes
+    -----
+    A joint a nearer person's trunk hides (:func:`covered_joints`) cannot be seen; a network
+    that still scores it as confidently as the frame's typical labelled joint has guessed
+    where it is. ``ratio = score / typical score``, ramped from ``INVENTED_FROM`` (0.85) to
+    ``INVENTED_SURE`` (1.1). Fix: mark it unlabeled (the place is a guess).
+    """
+    out: list[Proposal] = []
+    if view.scores is None or not np.isfinite(view.typical_score):
+        return out
+    covered = covered if covered is not None else covered_joints(view)
+    n = view.names
+    for p, joints in covered.items():
+        mine = view.scores.get(p)
+        if mine is None:
+            continue
+        for j, cover in joints:
+            if not np.isfinite(mine[j]):
+                continue
+            ratio = float(mine[j]) / view.typical_score
+            strength = ramp(ratio, INVENTED_FROM, INVENTED_SURE)
+            if strength <= 0:
+                continue
+            text = (f"{n.whose(p, j)} lies inside {n.person(cover)}'s body, who stands nearer, "
+                    f"yet the model scores it {mine[j]:.2f}, as if seen: an invented spot")
+            out.append(Proposal("invented", p, (j,), text, strength, (("score_ratio", ratio),),
+                                (SetVisibility(view.frame_id, p, j, 0),), (p, cover),
+                                f"mark {n.whose(p, j)} unlabeled"))
+    return out
+
+
+def hidden_joints(view: FrameView,
+                  covered: dict[int, list[tuple[int, int]]] | None = None) -> list[Proposal]:
+    """Joints labelled visible that a nearer person hides, where the model agrees they are
+    hidden: mark them occluded (their place is known; COCO ``v = 1``).
+
+    Notes
+    -----
+    The joints of :func:`covered_joints` labelled visible (``v = 2``) that the model scores
+    below ``INVENTED_FROM`` of the frame's typical joint, one finding per person. Strength:
+    the share of the person's covered joints that the model scores that low.
+    """
+    out: list[Proposal] = []
+    covered = covered if covered is not None else covered_joints(view)
+    n = view.names
+    for p, joints in covered.items():
+        kp = view.people[p]
+        mine = view.scores.get(p) if view.scores is not None else None
+        faint = [(j, q) for j, q in joints if kp[j, 2] == 2 and (
+            mine is None or not np.isfinite(view.typical_score) or not np.isfinite(mine[j])
+            or mine[j] / view.typical_score < INVENTED_FROM)]
+        if not faint:
+            continue
+        hidden = tuple(sorted(j for j, _ in faint))
+        covers = sorted({q for _, q in faint})
+        strength = len(faint) / len(joints)
+        text = (f"{n.person(p)}'s {n.joints(hidden)} lie inside "
+                f"{join_words([n.person(q) for q in covers])}'s body, who stands nearer: "
+                "hidden, not visible")
+        out.append(Proposal("hidden", p, hidden, text, strength,
+                            (("covered", float(len(joints))), ("faint", float(len(faint)))),
+                            tuple(SetVisibility(view.frame_id, p, j, 1) for j in hidden),
+                            (p, *covers), f"mark {n.person(p)}'s {n.joints(hidden)} occluded"))
+    return out
+
+
+# ---------------------------------------------------------------------- additions
+
+@dataclass(frozen=True)
+class _Peaks:
+    """Each joint type's peaks not used by any labelled joint: ``(n, 3)`` x, y, score."""
+
+    unused: list[np.ndarray]
+
+
+def _unused_peaks(view: FrameView) -> _Peaks:
+    peaks = find_peaks(view.maps.confidence_maps, threshold=0.05, stride=view.maps.stride)
+    unused = []
+    for j, found in enumerate(peaks):
+        keep = np.ones(len(found), dtype=bool)
+        for p in view.present:
+            kp = view.people[p]
+            if kp[j, 2] > 0 and len(found):
+                radius = USED_WITHIN * view.scale(p) if np.isfinite(view.scale(p)) else 8.0
+                keep &= np.hypot(*(found[:, :2] - kp[j, :2]).T) > max(radius, view.maps.stride)
+        unused.append(found[keep])
+    return _Peaks(unused)
+
+
+def _e(view: FrameView, limb: int, start: np.ndarray, end: np.ndarray) -> float:
+    return float(view.maps.e(limb, start, end))
+
+
+def missing_joints(view: FrameView, peaks: _Peaks | None = None) -> list[Proposal]:
+    """Unlabeled joints where the model has an unused peak that its field joins to the person.
+
+    Notes
+    -----
+    For an unlabeled joint ``j`` of a person and every unused peak of ``j``: each limb from
+    ``j`` to a labelled joint of the person must fit (length at most ``LINK_SLACK`` times
+    expected) and its ``E`` (Cao et al. 2017, Eq. 10, along the limb's field) must reach
+    ``JOIN_FROM`` (0.6) of the frame's typical ``E`` of that limb; the peak must join this
+    person better than anyone else who lacks the joint. Strength: the weakest limb's share of
+    the typical ``E``, ramped from ``JOIN_FROM`` to ``JOIN_SURE`` (1). Fix: place the joint
+    at the peak (visible).
+    """
+    out: list[Proposal] = []
+    if view.maps is None or view.typical is None:
+        return out
+    peaks = peaks or _unused_peaks(view)
+    offers: dict[tuple[int, int], list[tuple[float, int]]] = {}
+    for p in view.present:
+        kp = view.people[p]
+        for j in np.flatnonzero(kp[:, 2] <= 0).tolist():
+            for n, (x, y, _) in enumerate(peaks.unused[j].tolist()):
+                share = _join_share(view, p, j, np.array([x, y]))
+                if share is not None and share >= JOIN_FROM:
+                    offers.setdefault((j, n), []).append((share, p))
+    taken: set[tuple[int, int]] = set()
+    for (j, n), bids in sorted(offers.items(), key=lambda kv: -max(kv[1])[0]):
+        share, p = max(bids)
+        if (p, j) in taken:
+            continue
+        taken.add((p, j))
+        x, y, score = peaks.unused[j][n]
+        strength = ramp(share, JOIN_FROM, JOIN_SURE)
+        names = view.names
+        text = (f"{names.whose(p, j)} is not labelled, but the model has a peak ({score:.2f}) "
+                f"that its field joins to {names.person(p)} at {share:.0%} of the frame's "
+                "typical support")
+        out.append(Proposal("missing-joint", p, (j,), text, strength,
+                            (("support_share", share), ("peak", float(score))),
+                            (MoveJoint(view.frame_id, p, j, float(x), float(y)),), (p,),
+                            f"place {names.whose(p, j)} at ({x:.0f}, {y:.0f})"))
+    return out
+
+
+def _join_share(view: FrameView, pid: int, joint: int, xy: np.ndarray) -> float | None:
+    """The least share of the typical ``E`` over the limbs joining ``xy`` (as ``joint``) to
+    the person's labelled joints, None when no limb fits."""
+    kp = view.people[pid]
+    scale = view.scale(pid)
+    shares = []
+    for c, (a, b) in enumerate(view.skeleton.limbs):
+        if joint not in (a, b):
+            continue
+        other = b if a == joint else a
+        if kp[other, 2] <= 0 or not np.isfinite(view.fractions[c]):
+            continue
+        length = float(np.hypot(*(xy - kp[other, :2])))
+        if not (np.isfinite(scale) and length <= LINK_SLACK * view.fractions[c] * scale):
+            return None
+        start, end = (xy, kp[other, :2]) if a == joint else (kp[other, :2], xy)
+        typical = view.typical[c] if view.typical is not None else np.nan
+        if not (np.isfinite(typical) and typical > 0):
+            continue
+        shares.append(max(_e(view, c, start, end), 0.0) / typical)
+    return min(shares) if shares else None
+
+
+def missed_people(view: FrameView, peaks: _Peaks | None = None) -> list[Proposal]:
+    """People the labels miss: unused peaks that the fields group into one plausible body.
+
+    Notes
+    -----
+    The maps are grouped again (:func:`app.analysis.association.group_people`, Cao et al.
+    2017) with a low peak threshold (0.05) and no least mean score; a grouped body whose
+    parts are all unused, at least ``MISSED_PARTS`` of them, with no stretched limb and a
+    torso, is a missed person. Strength: its mean part score over the frame's typical score,
+    ramped from 0.2 to 0.6. Fix: a new person with those joints (visible).
+    """
+    out: list[Proposal] = []
+    if view.maps is None:
+        return out
+    peaks = peaks or _unused_peaks(view)
+    sk = view.skeleton
+    found = group_people(view.maps.confidence_maps, view.maps.pafs, sk.limb_array,
+                         stride=view.maps.stride, peak_threshold=0.05, min_mean_score=0.0,
+                         min_parts=MISSED_PARTS)
+    for body in found:
+        on = body[:, 2] > 0
+        if on.sum() < MISSED_PARTS:
+            continue
+        unused = all(
+            any(np.hypot(*(u[:2] - body[j, :2])) < 1e-6 for u in peaks.unused[j])
+            for j in np.flatnonzero(on).tolist())
+        if not unused:
+            continue
+        kp = np.zeros((sk.num_joints, 3))
+        kp[on, :2] = body[on, :2]
+        kp[on, 2] = 2
+        scale = person_scale(kp, sk)
+        if not np.isfinite(scale) or stretched_limbs(-1, kp, sk, scale) or any(
+                _same_body(kp, view.people[p], max(scale, view.scale(p)))
+                for p in view.present):
+            continue
+        mean = float(body[on, 2].mean())
+        typical = view.typical_score if np.isfinite(view.typical_score) else 0.7
+        strength = ramp(mean / typical, 0.2, 0.6)
+        if strength <= 0:
+            continue
+        rows = tuple((float(x), float(y), int(v)) for x, y, v in
+                     np.where(on[:, None], kp, [np.nan, np.nan, 0]).tolist())
+        names = view.names
+        centre = body[on, :2].mean(axis=0)
+        text = (f"someone at ({centre[0]:.0f}, {centre[1]:.0f}) is not labelled: the model has "
+                f"{int(on.sum())} unused parts there ({mean:.2f} on average) that its fields "
+                "join into one body")
+        out.append(Proposal("missed-person", None, tuple(np.flatnonzero(on).tolist()), text,
+                            strength, (("parts", float(on.sum())), ("mean_peak", mean)),
+                            (NewPerson(view.frame_id, None, rows),), (),
+                            f"add a person with {names.joints(np.flatnonzero(on).tolist())}",
+                            rows))
+    return out
+
+
+def _same_body(a: np.ndarray, b: np.ndarray, scale: float) -> bool:
+    """Whether ``a`` repeats ``b`` at a small shift (the test of :func:`duplicates`)."""
+    both = (a[:, 2] > 0) & (b[:, 2] > 0)
+    if both.sum() < 3 or not np.isfinite(scale):
+        return False
+    offsets = a[both, :2] - b[both, :2]
+    if float(np.median(np.hypot(*offsets.T))) / scale >= DUPLICATE_FROM:
+        return False
+    shift = np.median(offsets, axis=0)
+    return float(np.median(np.hypot(*(offsets - shift).T))) / scale < SHAPE_FROM
+
+
+def propose(view: FrameView) -> list[Proposal]:
+    """Every proposer on one frame, in the order of :data:`KINDS`."""
+    peaks = _unused_peaks(view) if view.maps is not None else None
+    covered = covered_joints(view)
+    return (duplicates(view) + splits(view) + phantoms(view) + mirrored_people(view)
+            + crossed(view) + wrong_owners(view) + invented_joints(view, covered)
+            + hidden_joints(view, covered) + missing_joints(view, peaks)
+            + missed_people(view, peaks))
