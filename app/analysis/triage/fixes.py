@@ -98,6 +98,13 @@ LINK_SLACK = 1.3
 #: ``SHAPE_SURE``), are one body found twice.
 DUPLICATE_FROM = 0.2
 SHAPE_FROM, SHAPE_SURE = 0.02, 0.005
+#: Mirrored: the weaker side's mean ear and shoulder score over the stronger side's; below
+#: ``BALANCE_FROM`` one side is hidden (which explains a faint face), from ``BALANCE_SURE``
+#: both show as they do from behind.
+BALANCE_FROM, BALANCE_SURE = 0.45, 0.65
+#: Split: the union of two halves is one body when triage's body evidence against it falls
+#: from ``SPLIT_FROM`` to ``SPLIT_SURE`` (log-odds).
+SPLIT_FROM, SPLIT_SURE = 4.0, 0.5
 #: Invented: a joint inside a nearer person's body scored at least this fraction of the
 #: frame's typical score for a visible joint is a confident guess at a spot it cannot see.
 INVENTED_FROM, INVENTED_SURE = 0.85, 1.1
@@ -432,23 +439,30 @@ def splits(view: FrameView) -> list[Proposal]:
     -----
     Triage names both halves of a pair that share no joint type, join at a plausible limb
     length and together stretch no limb (:func:`app.analysis.triage.crowd.duplicates_and_splits`).
-    Strength: 1 when both halves name each other, and the link's plausibility otherwise.
+    Whether the two make one body is judged on the union: triage's body evidence against it
+    (:meth:`FrameView.body_evidence`: its proportions, poise, floor and field support).
+    Strength: that evidence ramped from ``SPLIT_FROM`` (4, in log-odds) down to
+    ``SPLIT_SURE`` (0.5). Fix: merge the smaller half into the larger.
     """
     out = []
-    pairs: dict[tuple[int, int], list[Reason]] = {}
+    pairs: set[tuple[int, int]] = set()
     for r in view.triage.reasons:
         if r.kind == "split" and r.person is not None and r.other is not None:
-            key = tuple(sorted((r.person, r.other)))
-            pairs.setdefault((key[0], key[1]), []).append(r)
-    for (p, q), reasons in sorted(pairs.items()):
-        keep, gone = (p, q) if view.people[p][:, 2].astype(bool).sum() >= \
-            view.people[q][:, 2].astype(bool).sum() else (q, p)
+            a, b = sorted((r.person, r.other))
+            pairs.add((a, b))
+    for p, q in sorted(pairs):
+        a, b = view.people[p], view.people[q]
+        keep, gone = (p, q) if (a[:, 2] > 0).sum() >= (b[:, 2] > 0).sum() else (q, p)
+        union = np.where((view.people[gone][:, 2] > 0)[:, None], view.people[gone],
+                         view.people[keep])
+        evidence = view.body_evidence(keep, union)
+        strength = ramp(evidence, SPLIT_FROM, SPLIT_SURE)
         n = view.names
-        joints = tuple(sorted({j for r in reasons for j in r.joints}))
+        joints = tuple(np.flatnonzero(view.people[gone][:, 2] > 0).tolist())
         text = (f"{n.person(gone)} looks like the rest of {n.person(keep)}'s body: they share "
-                f"no joint and join at {n.joints(joints)}")
-        strength = 1.0 if len(reasons) >= 2 else 0.5
-        out.append(Proposal("split", gone, joints, text, strength, (("halves", len(reasons)),),
+                f"no joint and together make one plausible body (evidence {evidence:.1f})")
+        out.append(Proposal("split", gone, joints, text, strength,
+                            (("union_evidence", evidence),),
                             (MergePeople(view.frame_id, keep, gone),), (keep, gone),
                             f"merge {n.person(gone)} into {n.person(keep)}"))
     return out
@@ -497,21 +511,36 @@ def mirrored_people(view: FrameView) -> list[Proposal]:
 
     Notes
     -----
-    Triage's ``mirrored`` check (:func:`app.analysis.triage.body.mirrored`): the face score
-    ratio against the ears and shoulders. Strength: that reason's strength. Fix: swap the
-    person's left and right joints.
+    Triage's ``mirrored`` check (:func:`app.analysis.triage.body.mirrored`) compares the face
+    scores with the ears' and shoulders'. Seen from behind, both shoulders and both ears show
+    about equally; when one side scores far lower than the other, that side is partly hidden
+    (by a neighbour, or a turn), which explains a faint face as well. ``balance``: the weaker
+    side's mean score (ear and shoulder) over the stronger side's, ramped from
+    ``BALANCE_FROM`` (0.45) to ``BALANCE_SURE`` (0.65). Strength: the reason's strength times
+    that ramp. Fix: swap the person's left and right joints.
     """
-    out = []
+    out: list[Proposal] = []
+    sides = pair_index(view.skeleton, "ear", "shoulder")
     for p in view.present:
         found = [r for r in view.reasons.get(p, []) if r.kind == "mirrored"]
-        if not found:
+        mine = view.scores.get(p) if view.scores is not None else None
+        if not found or mine is None:
             continue
-        r = found[0]
+        on = (view.people[p][:, 2] > 0) & np.isfinite(mine)
+        left = [mine[a] for a, _ in sides if on[a]]
+        right = [mine[b] for _, b in sides if on[b]]
+        balance = 1.0
+        if left and right:
+            lo, hi = sorted((float(np.mean(left)), float(np.mean(right))))
+            balance = lo / hi if hi > 0 else 0.0
+        strength = found[0].strength * ramp(balance, BALANCE_FROM, BALANCE_SURE)
         n = view.names
         text = (f"{n.person(p)} is labelled as facing the camera, but the model hardly sees "
-                "the face: seen from behind, with left and right swapped")
-        out.append(Proposal("mirrored", p, r.joints, text, r.strength,
-                            (("strength", r.strength),), (SwapSides(view.frame_id, p),), (p,),
+                f"its face while it sees both shoulders alike ({balance:.2f}): seen from "
+                "behind, with left and right swapped")
+        out.append(Proposal("mirrored", p, found[0].joints, text, strength,
+                            (("face_strength", found[0].strength), ("side_balance", balance)),
+                            (SwapSides(view.frame_id, p),), (p,),
                             f"swap the left and right joints of {n.person(p)}"))
     return out
 
@@ -636,6 +665,7 @@ def wrong_owners(view: FrameView, people: Sequence[int] | None = None) -> list[P
     candidates = people if people is not None else [
         p for p in view.present
         if any(r.kind in _BODY_KINDS or r.kind == "tangled" for r in view.reasons.get(p, []))]
+    hypotheses: list[tuple[float, int, tuple[int, ...], int | None]] = []
     for p in candidates:
         kp = view.people[p]
         on = kp[:, 2] > 0
@@ -643,59 +673,64 @@ def wrong_owners(view: FrameView, people: Sequence[int] | None = None) -> list[P
         if base_p <= 0:
             continue
         named = {j for r in view.reasons.get(p, []) if r.kind in _BODY_KINDS for j in r.joints}
-        best = None
         for chain in view.chains:
             mine = tuple(j for j in chain if on[j])
             if not mine or len(mine) == on.sum() or not named & set(mine):
                 continue
             without = kp.copy()
             without[list(mine), 2] = 0
-            after_p = view.body_evidence(p, without)
-            drop = base_p - after_p - UNLABEL_COST * len(mine)
-            if best is None or drop > best[0]:
-                best = (drop, mine, None, after_p, 0.0)
-            xy = kp[:, :2]
+            drop = base_p - view.body_evidence(p, without) - UNLABEL_COST * len(mine)
+            hypotheses.append((drop, p, mine, None))
             for q in view.present:
                 if q == p:
                     continue
-                links = _links(view, mine, q, xy)
+                links = _links(view, mine, q, kp[:, :2])
                 if not links or max(links) > LINK_SLACK:
                     continue
                 taker = view.people[q]
-                new_q = taker.copy()
-                new_p = without.copy()
-                for j in mine:
-                    new_q[j] = kp[j]
-                    if taker[j, 2] > 0:
-                        new_p[j] = taker[j]
-                before_q = view.body_evidence(q, taker)
-                drop = (base_p + before_q - view.body_evidence(p, new_p)
+                new_p, new_q = _exchange(kp, taker, chain)
+                drop = (base_p + view.body_evidence(q, taker) - view.body_evidence(p, new_p)
                         - view.body_evidence(q, new_q))
-                if drop > best[0]:
-                    best = (drop, mine, q, base_p - drop, before_q)
-        if best is None or best[0] < OWNER_GAIN:
+                hypotheses.append((drop, p, tuple(chain), q))
+    # The best hypotheses of the frame that leave each other's people alone.
+    hypotheses.sort(key=lambda h: (-h[0], h[1], h[2], -1 if h[3] is None else h[3]))
+    used: set[int] = set()
+    n = view.names
+    for drop, p, chain, q in hypotheses:
+        if drop < OWNER_GAIN:
+            break
+        involved: tuple[int, ...] = (p,) if q is None else (p, q)
+        if used & set(involved):
             continue
-        drop, mine, q, _, _ = best
-        n = view.names
+        used.update(involved)
         strength = ramp(drop, OWNER_GAIN, 3 * OWNER_GAIN)
+        mine = tuple(j for j in chain if view.people[p][j, 2] > 0)
         joints = n.joints(mine)
         if q is None:
             edits: list[Edit] = [SetVisibility(view.frame_id, p, j, 0) for j in mine]
             text = (f"{n.person(p)}'s {joints} fit no one's body here: without them the labels "
                     f"are {np.exp(drop):.0f} times as likely")
             summary = f"mark {n.person(p)}'s {joints} unlabeled"
-            involved: tuple[int, ...] = (p,)
         else:
+            theirs = tuple(j for j in chain if view.people[q][j, 2] > 0)
             edits = [ReassignJoint(view.frame_id, p, j, q) for j in mine]
-            swap = [j for j in mine if view.people[q][j, 2] > 0]
+            edits += [ReassignJoint(view.frame_id, q, j, p) for j in theirs if j not in mine]
             text = (f"{n.person(p)}'s {joints} belong to {n.person(q)}: given to "
                     f"{n.person(q)} both bodies are {np.exp(drop):.0f} times as likely")
             summary = f"give {n.person(p)}'s {joints} to {n.person(q)}" + (
-                f", taking {n.person(q)}'s {n.joints(swap)} in exchange" if swap else "")
-            involved = (p, q)
-        out.append(Proposal("wrong-owner", p, tuple(mine), text, strength,
+                f", taking {n.person(q)}'s {n.joints(theirs)} in exchange" if theirs else "")
+        out.append(Proposal("wrong-owner", p, mine, text, strength,
                             (("evidence_drop", drop),), tuple(edits), involved, summary))
     return out
+
+
+def _exchange(giver: np.ndarray, taker: np.ndarray,
+              chain: Sequence[int]) -> tuple[np.ndarray, np.ndarray]:
+    """Both people's labels once they have exchanged the joints of ``chain``."""
+    new_giver, new_taker = giver.copy(), taker.copy()
+    for j in chain:
+        new_giver[j], new_taker[j] = taker[j], giver[j]
+    return new_giver, new_taker
 
 
 def _body_regions(view: FrameView, pid: int) -> list[tuple[np.ndarray, np.ndarray, float]]:
