@@ -29,6 +29,7 @@ from __future__ import annotations
 import logging
 import math
 import os
+import warnings
 from collections.abc import Iterator
 from dataclasses import dataclass
 from pathlib import Path
@@ -45,6 +46,9 @@ log = logging.getLogger(__name__)
 # programs that decode with it. Posewright reads only headers with Pillow and applies its own
 # limit, which the user can raise above Pillow's, before OpenCV decodes anything.
 Image.MAX_IMAGE_PIXELS = None
+# Pillow warns about damaged Exif blocks while it parses them; for a header reader the answer
+# is simply "no orientation", so those warnings would only be noise on the user's terminal.
+warnings.filterwarnings("ignore", category=UserWarning, module=r"PIL\.")
 
 #: File name endings registered as images (lower case).
 IMAGE_SUFFIXES = (".jpg", ".jpeg", ".png", ".bmp", ".tif", ".tiff", ".webp")
