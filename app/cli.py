@@ -55,7 +55,8 @@ def _open(args: argparse.Namespace, write: bool = True, say_why: bool = True):  
         project.close()
         raise ProjectLocked(f"{args.project}: cannot change the project: it is {reason}")
     if project.read_only and say_why:
-        print(f"posewright: note: {args.project}: {project.read_only_reason}", file=sys.stderr)
+        print(f"posewright: note: {args.project} is read-only: {project.read_only_reason}",
+              file=sys.stderr)
     return project
 
 

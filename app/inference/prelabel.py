@@ -32,7 +32,7 @@ import numpy as np
 
 from app.analysis.association import group_people
 from app.errors import BadInput, NotFound
-from app.formats.images import read_image
+from app.formats.images import max_pixels, read_image
 from app.inference.budget import check_budget
 from app.inference.config import PrelabelConfig, default_config, load_config
 from app.inference.network import PoseNetwork
@@ -146,8 +146,12 @@ def prelabel(project: Project, model: str | Path, config: str | Path | None = No
         if missing:
             raise NotFound(f"the project has no frame {min(missing)}")
         every = [f for f in every if f.id in wanted]
-    check_budget(cfg, [(f.width, f.height) for f in every if f.status == "ok"],
-                 project.skeleton.num_joints, len(project.skeleton.limbs), where=where)
+    # Frames registered over the pixel limit run once the limit is raised above them.
+    limit = max_pixels()
+    sizes = [(f.width, f.height) for f in every
+             if f.status == "ok" or (f.status == "oversized" and f.width * f.height <= limit)]
+    check_budget(cfg, sizes, project.skeleton.num_joints, len(project.skeleton.limbs),
+                 where=where)
     network = PoseNetwork(model, cfg, project.skeleton, config_where=where)
     if not every:
         return {"frames": 0, "unreadable": 0}
@@ -163,7 +167,7 @@ def prelabel(project: Project, model: str | Path, config: str | Path | None = No
         for n, frame in enumerate(every):
             progress.step(n, len(every), "pre-labelling")
             try:
-                if frame.status != "ok":
+                if frame.status in ("missing", "corrupt"):
                     raise BadInput(f"the image is {frame.status}", where=frame.path)
                 image = read_image(project.image_path(frame))
             except (BadInput, NotFound) as exc:

@@ -264,8 +264,7 @@ class Project:
             except OSError as exc:
                 if exc.errno not in _NOT_WRITABLE:
                     raise
-                reason = (f"read-only because the folder {folder} cannot be written "
-                          f"({exc.strerror or exc})")
+                reason = f"in a folder that cannot be written ({exc.strerror or exc})"
             else:
                 if lock is not None:
                     return cls._open_locked(folder, lock, author)
@@ -285,10 +284,9 @@ class Project:
             lock.release()
             conn = _connect(db, read_only=True)
             _check_version(conn, folder)
-            what = "the folder" if blocked == folder else "the database"
+            where = "in a folder" if blocked == folder else f"stored in a {DB_NAME}"
             return cls(folder, conn, None, _author(author),
-                       f"read-only because {what} {blocked} cannot be written"
-                       + _unread_changes(folder))
+                       f"{where} that cannot be written" + _unread_changes(folder))
         try:
             conn = _connect(db, read_only=False)
             _check_version(conn, folder)

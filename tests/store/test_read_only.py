@@ -50,14 +50,14 @@ def _check_commands(run, folder, out, because):
     assert json.loads(stdout)["people"] == 18
     status, stdout, stderr = run("history", folder)
     assert status == 0 and "import" in stdout
-    assert stderr.strip().splitlines() == [f"posewright: note: {folder}: read-only because the "
-                                           f"folder {folder} cannot be written ({because})"]
+    assert stderr.strip().splitlines() == [f"posewright: note: {folder} is read-only: in a "
+                                           f"folder that cannot be written ({because})"]
     status, stdout, stderr = run("export", folder, "--out", out)
     assert status == 0 and len(json.loads(Path(out).read_text())["annotations"]) == 18
     status, stdout, stderr = run("import", folder, out)
     lines = stderr.strip().splitlines()
     assert status == 2 and len(lines) == 1
-    assert "cannot change the project: it is read-only because the folder" in lines[0]
+    assert "cannot change the project: it is in a folder that cannot be written" in lines[0]
 
 
 def test_unwritable_folder_simulated_at_the_os_boundary(labelled, tmp_path, monkeypatch,
