@@ -121,7 +121,7 @@ def test_sweep_takes_only_the_destinations_own_temporaries(tmp_path, live):
     held = live(tmp_path / "labels.json.zzzz9999.tmp")
     assert [p.name for p in sweep(tmp_path / "labels.json", ".tmp")] == [
         "labels.json.k3x9q0ab.tmp"]
-    assert sorted(p.name for p in tmp_path.iterdir()) == sorted(keep + [held.name])
+    assert sorted(p.name for p in tmp_path.iterdir()) == sorted([*keep, held.name])
 
 
 def test_a_claim_is_released_with_its_block(tmp_path):

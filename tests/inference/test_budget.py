@@ -12,6 +12,7 @@ import numpy as np
 import pytest
 
 from app.cli import main
+from app.errors import BadInput
 from app.inference.budget import check_budget, planned_bytes, set_budget_mb
 from app.inference.config import default_config
 from app.inference.network import PoseNetwork
@@ -87,10 +88,10 @@ def test_the_budget_is_settable_and_checked(monkeypatch):
     monkeypatch.setenv("POSEWRIGHT_MEMORY_BUDGET_MB", str(need / 2**20 * 1.01))
     assert check_budget(cfg, [(640, 480)], 4, 3).total == need
     monkeypatch.setenv("POSEWRIGHT_MEMORY_BUDGET_MB", str(need / 2**20 * 0.99))
-    with pytest.raises(Exception, match="field input_height: the run would need"):
+    with pytest.raises(BadInput, match="field input_height: the run would need"):
         check_budget(cfg, [(640, 480)], 4, 3)
     monkeypatch.setenv("POSEWRIGHT_MEMORY_BUDGET_MB", "-3")
-    with pytest.raises(Exception, match="POSEWRIGHT_MEMORY_BUDGET_MB: -3.0 is not a positive"):
+    with pytest.raises(BadInput, match=r"POSEWRIGHT_MEMORY_BUDGET_MB: -3\.0 is not a positive"):
         check_budget(cfg, [(640, 480)], 4, 3)
     assert planned_bytes(cfg, [], 4, 3).total == 0
     assert np.isfinite(planned_bytes(cfg, [(0, 0), (64, 48)], 4, 3).total)
