@@ -222,7 +222,7 @@ def _store(project: Project, model: Path, cfg: PrelabelConfig, run: Path,
     and the run's record (which names the folder)."""
     record = {"model": str(model.resolve()), "model_sha256": _sha256(model),
               "config": cfg.model_dump(mode="json"),
-              "maps": run.relative_to(project.folder).as_posix()}
+              "maps": run.relative_to(project.folder).as_posix() if strides else None}
     with project.bulk("Prelabel", f"pre-label with {model.name}",
                       f"model:{model.name}") as b:
         first = b.allocate_person_ids(len(found))

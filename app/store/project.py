@@ -250,8 +250,9 @@ class Project:
         """Open the project in ``folder``.
 
         If another process is editing it, or its folder cannot be written, the project opens
-        read-only and :attr:`read_only_reason` says why (who holds it; which folder and the
-        system's reason); ask with ``read_only=True`` to never take the lock.
+        read-only and :attr:`read_only_reason` says why (who holds it; or that the folder
+        cannot be written, with the system's reason); ask with ``read_only=True`` to never take
+        the lock.
         """
         folder = Path(folder)
         if not (folder / DB_NAME).is_file():
@@ -508,7 +509,13 @@ class Project:
     def _sweep_maps(self) -> None:
         """Delete map files that the last commit superseded (see :mod:`app.store.recovery`)."""
         with self._mutex:
-            recovery.sweep(self.folder, self._conn)
+            try:
+                recovery.sweep(self.folder, self._conn)
+            except OSError as exc:
+                # The work itself is committed; the list of folders to sweep stays in the
+                # database, so the next open finishes this.
+                log.warning("%s: old maps not deleted yet (%s); the next open will", self.folder,
+                            exc)
             self._meta.update(self._conn.execute(
                 "SELECT key, value FROM meta WHERE key IN (?, ?)",
                 (recovery.MAP_RUNS_KEY, recovery.SWEEP_KEY)).fetchall())
