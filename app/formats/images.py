@@ -56,7 +56,7 @@ IMAGE_SUFFIXES = (".jpg", ".jpeg", ".png", ".bmp", ".tif", ".tiff", ".webp")
 #: Larger than any camera makes today; a bigger size means a broken header or a hostile file.
 MAX_SIDE = 65_536
 
-#: The default pixel limit, in megapixels: well above any camera frame (a 8K UHD frame is 33
+#: The default pixel limit, in megapixels: well above any camera frame (an 8K UHD frame is 33
 #: megapixels) and, decoded as 8-bit BGR, 300 MB of memory.
 DEFAULT_MAX_MEGAPIXELS = 100.0
 
