@@ -1,28 +1,22 @@
-"""``posewright open --screenshot`` and ``posewright render``, the author prompt, the key
-table (F1 sheet and README), and long work off the UI thread.
+"""``posewright open --screenshot`` and ``posewright render``, the author prompt, and long work
+off the UI thread (the key table: tests/ui/test_keys.py).
 
 Data: the synthetic project of tests/ui/conftest.py (invented for these tests). Exit status 2
-with one line on stderr for bad input is our own command-line convention (DESIGN.md section 7).
+with one line on stderr for bad input is our own command-line convention (README, "Commands").
 """
 
 from __future__ import annotations
 
 import argparse
-import re
 import threading
-from pathlib import Path
 
 import cv2
 import pytest
-from PySide6.QtGui import QKeySequence
 
 from app.cli import main
 from app.errors import Cancelled
 from app.ui import commands
-from app.ui.keys import KEYS, key_text, sequences, sheet_html
 from tests.ui.conftest import HEIGHT, WIDTH, make_project
-
-ROOT = Path(__file__).resolve().parents[2]
 
 
 @pytest.fixture
@@ -79,40 +73,6 @@ def test_first_run_asks_the_author_once(qapp, monkeypatch):
     assert commands._author(args, ask=True) == "zoe"
     assert asked == [1], "asked once, then remembered"
     assert commands._author(argparse.Namespace(author="kim"), ask=True) == "kim"
-
-
-def test_every_action_has_its_own_keys(qapp):
-    """No two actions share a key sequence (a clash would make Qt fire neither)."""
-    seen: dict[str, str] = {}
-    for key in KEYS:
-        if not key.name:
-            continue
-        for seq in sequences(key):
-            text = seq.toString(QKeySequence.SequenceFormat.PortableText)
-            assert text not in seen, f"{text}: {seen.get(text)} and {key.name}"
-            seen[text] = key.name
-
-
-def test_shortcut_sheet_and_readme_list_every_key(qapp):
-    sheet = sheet_html()
-    readme = (ROOT / "README.md").read_text(encoding="utf-8")
-    section = readme.split("## The desktop app", 1)[1].split("\n## ", 1)[0]
-    table = "\n".join(line for line in section.splitlines() if line.startswith("|"))
-    cells = {c.strip() for line in table.splitlines() for c in line.split("|")}
-    keys_in_readme = set()
-    for cell in cells:
-        keys_in_readme.update(p.strip() for p in re.split(r" / |, ", cell))
-    for key in KEYS:
-        assert key.help.replace("'", "&#x27;") in sheet or key.help in sheet
-        if key.gesture:
-            assert key.gesture in cells, key.gesture
-            continue
-        if key.name.startswith("give_"):
-            assert "1 \u2013 9" in cells
-            continue
-        first = sequences(key)[0].toString(QKeySequence.SequenceFormat.PortableText)
-        assert first in keys_in_readme, f"{key.name}: {first} missing from the README"
-        assert key_text(key) and key_text(key) in sheet.replace("&amp;", "&")
 
 
 def test_long_work_runs_off_the_ui_thread_and_cancels(qtbot, window):
