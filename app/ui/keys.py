@@ -57,7 +57,9 @@ KEYS: tuple[Key, ...] = (
         "Mark the frame disputed; again: back to corrected", ("D",)),
     Key("Frames", "sign_off", "Sign off", "Sign the frame off; again: back to corrected",
         ("Ctrl+Return",)),
-    Key("Frames", "write_note", "Write a note", "Write a note in this frame's thread", ("C",)),
+    Key("Frames", "write_note", "Write a note",
+        "Write a note in this frame's thread: Return adds it, Esc keeps it as a draft; either "
+        "way the keys go back to the Canvas", ("C",)),
     # Selection
     Key("Selection", "", "", "Select a joint; on a limb or a tag, select the person",
         gesture="Click"),
