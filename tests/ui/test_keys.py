@@ -9,7 +9,7 @@ Alt+Backspace, X11 the F14 key of some keyboards); Redo is Ctrl+Shift+Z on X11, 
 macOS and Ctrl+Y, Alt+Shift+Backspace or Ctrl+Shift+Z on Windows; Quit is Ctrl+Q on X11,
 GNOME, KDE and macOS and has no key on Windows; Open, Zoom in and Zoom out are Ctrl+O, Ctrl++
 and Ctrl+- everywhere. The suite's offscreen platform uses Qt's default, the Windows scheme
-(checked below against Qt itself), so the other schemes are fed in from that table. A key
+(checked below against Qt itself), so every scheme is fed in from that table. A key
 bound twice in one context fires neither binding (Qt's shortcut map reports "Ambiguous
 shortcut overload"). Data: the synthetic project of tests/ui/conftest.py.
 """
@@ -57,13 +57,16 @@ def scheme(request, monkeypatch):
     return request.param
 
 
-def test_the_windows_scheme_of_the_table_is_what_qt_says(qapp):
-    """The offscreen platform uses Qt's Windows scheme: the table's row for it must agree with
-    what Qt itself binds (Qt 6 adds the dedicated Undo, Redo, Open and zoom keys)."""
-    for standard, expected in SCHEMES["windows"].items():
-        live = {s.toString(PORTABLE) for s in QKeySequence.keyBindings(standard)}
-        assert set(expected) <= live, (standard, live)
-        assert not live - set(expected) - {"Undo", "Redo", "Open", "Zoom In", "Zoom Out"}
+def test_the_table_agrees_with_qt_on_this_platform(qapp):
+    """Qt's live bindings here are one scheme of the table (offscreen: Qt's default, the
+    Windows scheme; an X server without a desktop: X11). Qt 6 adds the dedicated Undo, Redo,
+    Open, zoom and Exit keys of some keyboards, which the table leaves out."""
+    dedicated = {"Undo", "Redo", "Open", "Zoom In", "Zoom Out", "Exit"}
+    live = {k: {s.toString(PORTABLE) for s in QKeySequence.keyBindings(k)}
+            for k in SCHEMES["windows"]}
+    matching = [name for name, table in SCHEMES.items()
+                if all(live[k] - dedicated == set(v) for k, v in table.items())]
+    assert matching, live
 
 
 def _bindings(window) -> list[tuple[str, str, str]]:
