@@ -4,8 +4,8 @@ decisions by key, the packet returned) and settling a disputed frame joint by jo
 
 Data: the synthetic project of tests/ui/conftest.py (invented for these tests); the reviewer
 "bea" is an invented name. Disputes are built through the real back end (export, review,
-return, merge: app/review). The merge rules are our own (DESIGN.md section 8: three ways per
-joint); no outside source.
+return, merge: app/review). The merge rules are our own (three ways per joint, README
+"Commands" and app/review/merge.py); no outside source.
 """
 
 from __future__ import annotations
