@@ -1,11 +1,12 @@
 """From a frame to the network input and from the network's output grid back to the frame.
 
-Coordinates follow DESIGN.md section 3: pixels, x to the right, y down, integer values on pixel
-centres. Resizing an image of ``w`` columns to ``w'`` columns by OpenCV maps the image point
-``x`` to ``(x + 0.5) * w' / w - 0.5`` (pixel centres aligned, the convention of ``cv2.resize``);
-a letterbox then shifts it by the left padding. The network's output cell ``(r, c)`` stands for
-the input point ``(c * S + (S - 1) / 2, r * S + (S - 1) / 2)`` at stride ``S``, and the maps kept
-in the project use the same rule on the image at their own stride (DESIGN.md section 4).
+Coordinates are those of the labels (:mod:`app.model.labels`): pixels, x to the right, y down,
+integer values on pixel centres. Resizing an image of ``w`` columns to ``w'`` columns by OpenCV
+maps the image point ``x`` to ``(x + 0.5) * w' / w - 0.5`` (pixel centres aligned, the
+convention of ``cv2.resize``); a letterbox then shifts it by the left padding. The network's
+output cell ``(r, c)`` stands for the input point ``(c * S + (S - 1) / 2, r * S + (S - 1) / 2)``
+at stride ``S``, and the maps kept in the project use the same rule on the image at their own
+stride (the grid of cell centres of :mod:`app.analysis.targets`).
 """
 
 from __future__ import annotations
