@@ -28,6 +28,7 @@ from app.formats.maps import NetworkMaps, match_map_files, read_maps
 from app.model.labels import AUTO, Frame, FrameState, Person
 from app.progress import Progress
 from app.store.project import Project
+from app.workfiles import Claim, sweep
 
 log = logging.getLogger(__name__)
 
@@ -139,7 +140,8 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
     ``loss_mask (K + 2L, H, W)`` (channel order: the K maps, then each limb's x and y field);
     the manifest holds every parameter, the skeleton and the frame list, so a training script
     needs nothing else. ``states`` picks the frames (None: all). The folder appears complete or
-    not at all: it is written beside ``out_dir`` and renamed at the end.
+    not at all: it is written beside ``out_dir`` (``OUT_DIR.<random>.partial``) and renamed at
+    the end; such folders that a killed run left are removed first (:mod:`app.workfiles`).
     """
     settings = settings or TargetSettings()
     settings.check()
@@ -161,7 +163,9 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
     limbs = sk.limb_array
     dtype = np.float16 if settings.dtype == "float16" else np.float32
     min_margin = settings.min_margin if settings.min_margin is not None else 3 * settings.sigma
+    sweep(out, ".partial")
     work = Path(tempfile.mkdtemp(prefix=out.name + ".", suffix=".partial", dir=parent))
+    claim = Claim(work)  # so that a later run can tell this folder from a killed run's
     entries = []
     try:
         for n, f in enumerate(frames):
@@ -220,6 +224,8 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
     except BaseException:
         shutil.rmtree(work, ignore_errors=True)
         raise
+    finally:
+        claim.release()
     return {"frames": len(entries), "skipped": len(skipped), "out": str(out)}
 
 
