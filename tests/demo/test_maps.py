@@ -149,14 +149,14 @@ def test_a_run_ends_when_its_cause_goes() -> None:
 
 
 def _behind(frames: int, facing_of: np.ndarray, seed: int = 2) -> np.ndarray:
-    """Whether each of 30 synthetic dancers had left and right swapped, frame by frame."""
+    """Whether each of 20 synthetic dancers had left and right swapped, frame by frame."""
     rng = np.random.default_rng(seed)
-    truth = _crowd(30, np.random.default_rng(1))
+    truth = _crowd(20, np.random.default_rng(1))
     runs = ErrorRuns()
-    flipped = np.zeros((30, frames), bool)
+    flipped = np.zeros((20, frames), bool)
     for f in range(frames):
-        seen = perceive(truth, np.zeros((30, 17)), np.full(30, 300.0), facing_of[:, f],
-                        SKELETON, rng, np.arange(101, 131), runs)[:30]
+        seen = perceive(truth, np.zeros((20, 17)), np.full(20, 300.0), facing_of[:, f],
+                        SKELETON, rng, np.arange(101, 121), runs)[:20]
         # Left shoulder drawn where the right one is: the body is seen mirrored.
         flipped[:, f] = [np.hypot(*(s.keypoints[5, :2] - t[6, :2])) < 10
                          for s, t in zip(seen, truth)]
@@ -164,12 +164,12 @@ def _behind(frames: int, facing_of: np.ndarray, seed: int = 2) -> np.ndarray:
 
 
 def test_a_dancer_seen_from_behind_stays_mirrored_for_a_run() -> None:
-    """Thirty synthetic dancers with their backs to the camera for 150 frames: the body is
+    """Twenty synthetic dancers with their backs to the camera for 150 frames: the body is
     mirrored on about maps._FLIP_BODY of the frames, in runs of mean MEAN_RUN["flip-body"]
     (not frame by frame: a frame-by-frame draw would give runs of mean 1 / (1 - share), about
     1.2); turned to the camera, the mirroring stops at once (our error model)."""
     frames = 150
-    facing = np.full((30, frames), -1.0)
+    facing = np.full((20, frames), -1.0)
     facing[:, 100:] = 1.0
     flipped = _behind(frames, facing)
     share = flipped[:, :100].mean()
