@@ -48,8 +48,10 @@ def register(sub: Any, command: Command) -> None:
     def action(name: str, fn: Callable[[argparse.Namespace], int],
                text: str) -> argparse.ArgumentParser:
         q = actions.add_parser(name, help=text, description=text)
-        q.add_argument("--author", help="who is working (default: the reviewer the packet "
-                                        "names, $POSEWRIGHT_AUTHOR or the login name)")
+        q.add_argument("--author", help="who is working; reviewing, the reviewer (default: "
+                                        "the one the review was first opened for, else the "
+                                        "reviewer the packet names, $POSEWRIGHT_AUTHOR or "
+                                        "the login name)")
         q.add_argument("-q", "--quiet", action="store_true", help="no progress on stderr")
         q.set_defaults(fn=fn)
         return q

@@ -142,3 +142,41 @@ def test_packet_members_are_what_the_manifest_says(folder, tmp_path, capsys):
     with zipfile.ZipFile(packet) as z:
         manifest = json.loads(z.read("manifest.json"))
         assert set(z.namelist()) == {"manifest.json", *manifest["members"]}
+
+
+def test_the_reviewer_the_packet_names_is_credited_on_every_call(folder, tmp_path, capsys,
+                                                                 monkeypatch):
+    """Issue item 14: ``decide`` and ``return`` without ``--author`` credit the reviewer the
+    packet names on every call, not the login name ("root" here) after the first one."""
+    monkeypatch.delenv("POSEWRIGHT_AUTHOR", raising=False)
+    monkeypatch.setattr("getpass.getuser", lambda: "root")
+    packet = tmp_path / "rehearsal.zip"
+    assert _run(capsys, "packet", "export", folder, "--frames", "100,107,114", "--out", packet,
+                "--images", "none", "--reviewer", "bea")[0] == 0
+    for frame, decision in ((100, "agree"), (107, "needs-change"), (114, "signed-off")):
+        assert _run(capsys, "packet", "decide", packet, "--frame", frame, "--decision",
+                    decision)[0] == 0
+    assert _run(capsys, "packet", "return", packet)[0] == 0
+    with Project.open(tmp_path / "rehearsal.review", read_only=True) as reviewed:
+        assert {e.author for e in reviewed.history()} == {"bea"}
+    returned = tmp_path / "rehearsal-returned.zip"
+    code, out, _ = _run(capsys, "packet", "show", returned, "--json")
+    info = json.loads(out)
+    assert code == 0 and info["returned_by"] == "bea"
+    code, out, _ = _run(capsys, "packet", "merge", folder, returned)
+    assert code == 0 and "from bea:" in out
+    with Project.open(folder, read_only=True) as p:
+        # every change the review brought is bea's; the merge itself is the merger's act
+        merged = [e for e in p.history() if e.kind not in ("import", "review")]
+        assert merged and {e.author for e in merged} == {"bea"}
+
+
+def test_a_later_call_naming_another_reviewer_is_refused(folder, tmp_path, capsys):
+    """One review folder, one reviewer: a second name would split the credit."""
+    packet = tmp_path / "p.zip"
+    assert _run(capsys, "packet", "export", folder, "--frames", "100", "--out", packet,
+                "--images", "none", "--reviewer", "bea")[0] == 0
+    assert _run(capsys, "packet", "decide", packet, "--frame", 100, "--decision", "agree")[0] == 0
+    code, _, err = _run(capsys, "packet", "return", packet, "--author", "cai")
+    assert code == 2 and "reviewed by bea" in _one_line(err)
+    assert not (tmp_path / "p-returned.zip").exists()

@@ -73,8 +73,10 @@ def test_open_builds_a_review_project_with_the_same_ids(labelled, tmp_path):
         image = decode_image(reviewed.image_path(reviewed.frame(f1.id)))
         assert image is not None and image.shape[:2] == (f1.height, f1.width)
         assert int(reviewed.meta("next_person_id") or 0) >= 1_000_000_000
-    with open_packet(path, reviewer="cleo") as again:  # reopened, not rebuilt
-        assert again.author == "cleo" and len(again.history()) == 1
+    with open_packet(path) as again:  # reopened, not rebuilt, for the same reviewer
+        assert again.author == "bea" and len(again.history()) == 1
+    with pytest.raises(BadInput, match="reviewed by bea, not cleo"):
+        open_packet(path, reviewer="cleo")
 
 
 def _valid(labelled: Project, tmp_path: Path) -> Path:
