@@ -2,6 +2,8 @@
 
 Every command that meets bad input exits with status 2 after one line on stderr that says what
 is wrong and where (file, record, field), without a traceback and without writing anything.
+Text that came from a file (names, file names, ledger entries, messages quoting them) is
+printed through :func:`app.safetext.shown`, so a file cannot drive the terminal.
 """
 
 from __future__ import annotations
@@ -18,6 +20,7 @@ from typing import Any, NoReturn
 from app.errors import BadInput, Cancelled, PosewrightError, ProjectLocked
 from app.model.labels import FrameState
 from app.progress import Progress
+from app.safetext import shown
 
 log = logging.getLogger("posewright")
 
@@ -88,8 +91,8 @@ def cmd_new(args: argparse.Namespace) -> int:
         frames = project.frames()
         bad = [f for f in frames if f.status != "ok"]
         for f in bad:
-            print(f"posewright: warning: {f.path}: image is {f.status}; registered and marked",
-                  file=sys.stderr)
+            print(f"posewright: warning: {shown(f.path)}: image is {f.status}; registered and "
+                  "marked", file=sys.stderr)
         print(f"created {args.project}: {len(frames)} frames"
               + (f", {len(bad)} unreadable" if bad else ""))
     return 0
@@ -182,8 +185,8 @@ def cmd_history(args: argparse.Namespace) -> int:
     for e in entries:
         when = time.strftime("%Y-%m-%d %H:%M:%S", time.localtime(e.time))
         frame = "-" if e.frame_id is None else str(e.frame_id)
-        print(f"{e.seq:>6}  {when}  {e.author:<12}  frame {frame:<6}  {e.kind:<6}  "
-              f"{e.target:<22}  {e.summary}")
+        print(f"{e.seq:>6}  {when}  {shown(e.author):<12}  frame {frame:<6}  {e.kind:<6}  "
+              f"{shown(e.target):<22}  {shown(e.summary)}")
     return 0
 
 
@@ -197,7 +200,7 @@ def cmd_summary(args: argparse.Namespace) -> int:
     else:
         for key, value in info.items():
             if value is not None:
-                print(f"{key:>18}: {value}")
+                print(f"{key:>18}: {shown(value)}")
     return 0
 
 
@@ -236,7 +239,7 @@ def cmd_triage(args: argparse.Namespace) -> int:
         return 0
     for fid, t in ranked:
         kinds = sorted({r.kind for r in t.reasons})
-        print(f"{t.score:7.2f}  frame {fid:<6} {frames[fid].file_name:<28} "
+        print(f"{t.score:7.2f}  frame {fid:<6} {shown(frames[fid].file_name):<28} "
               f"{len(t.flagged)} flagged  {', '.join(kinds)}")
     return 0
 
@@ -278,7 +281,7 @@ def _check_targets(args: argparse.Namespace) -> int:
                 problems.append(f"{out / 'manifest.json'}: field skeleton: not the skeleton "
                                 f"of {args.project}")
     for problem in problems:
-        print(f"posewright: error: {problem}", file=sys.stderr)
+        print(f"posewright: error: {shown(problem)}", file=sys.stderr)
     if problems:
         return 2
     print(f"ok: {report.frames} frames checked in {out}")
@@ -436,23 +439,33 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+class _ShownFormatter(logging.Formatter):
+    """Log lines on the terminal, escaped like everything else printed (library code logs
+    file names and paths as they are)."""
+
+    def format(self, record: logging.LogRecord) -> str:
+        return shown(super().format(record))
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
+    handler = logging.StreamHandler()
+    handler.setFormatter(_ShownFormatter("posewright: %(levelname)s: %(message)s"))
     logging.basicConfig(level=logging.INFO if args.verbose else logging.WARNING,
-                        format="posewright: %(levelname)s: %(message)s")
+                        handlers=[handler])
     try:
         return int(args.fn(args))
     except Cancelled as exc:
-        print(f"posewright: {exc}; nothing was changed", file=sys.stderr)
+        print(f"posewright: {shown(exc)}; nothing was changed", file=sys.stderr)
         return 130
     except PosewrightError as exc:
-        print(f"posewright: error: {exc}", file=sys.stderr)
+        print(f"posewright: error: {shown(exc)}", file=sys.stderr)
         return exc.exit_status
     except KeyboardInterrupt:
         print("posewright: interrupted; the action in flight was not kept", file=sys.stderr)
         return 130
     except OSError as exc:
         where = f"{exc.filename}: " if exc.filename else ""
-        print(f"posewright: error: {where}{exc.strerror or exc}", file=sys.stderr)
+        print(f"posewright: error: {shown(where)}{shown(exc.strerror or exc)}", file=sys.stderr)
         return 2

@@ -1,6 +1,8 @@
 """The ``packet`` and ``compare`` commands of ``posewright`` (registered by app/cli.py).
 
-Nothing heavy is imported until a command runs, so building the parser stays quick.
+Nothing heavy is imported until a command runs, so building the parser stays quick. Text that
+came from a file (names, file names, joint names) is printed through
+:func:`app.safetext.shown`.
 """
 
 from __future__ import annotations
@@ -15,6 +17,7 @@ from pathlib import Path
 from typing import Any
 
 from app.errors import BadInput, ProjectLocked
+from app.safetext import shown
 
 Command = Callable[..., argparse.ArgumentParser]
 
@@ -153,7 +156,7 @@ def cmd_show(args: argparse.Namespace) -> int:
         _print_json(info)
     else:
         for key, value in info.items():
-            print(f"{key:>12}: {value}")
+            print(f"{key:>12}: {shown(value)}")
     return 0
 
 
@@ -186,9 +189,9 @@ def cmd_merge(args: argparse.Namespace) -> int:
         return 0
     if report.already_merged:
         when = time.strftime("%Y-%m-%d %H:%M", time.localtime(report.merged_at or 0))
-        print(f"{args.returned}: already merged on {when}; nothing changed")
+        print(f"{shown(args.returned)}: already merged on {when}; nothing changed")
         return 0
-    print(f"merged {args.returned} from {report.reviewer}: {report.frames} frames, "
+    print(f"merged {shown(args.returned)} from {shown(report.reviewer)}: {report.frames} frames, "
           f"{report.joints_taken} joints taken, {report.people_added} people added, "
           f"{report.people_deleted} deleted, {report.notes_added} notes, "
           f"{len(report.conflicts)} conflicts")
@@ -242,18 +245,19 @@ def _fmt(x: float, spec: str = ".3f") -> str:
 
 
 def _print_comparison(result: Any, threshold: float | None, marked: list[int]) -> None:
-    print(f"A: {result.a}\nB: {result.b}")
+    print(f"A: {shown(result.a)}\nB: {shown(result.b)}")
     print(f"images compared: {len(result.frames)} (only in A: {len(result.only_a)}, "
           f"only in B: {len(result.only_b)}); mean OKS {_fmt(result.mean_oks)}")
     print(f"{'joint':<16}{'compared':>9}{'one side':>9}{'agree':>8}{'mean error':>11}"
           f"{'mean KS':>9}")
     for row in result.joints:
-        print(f"{row.name:<16}{row.compared:>9}{row.one_side:>9}{_fmt(row.agreement, '.1%'):>8}"
-              f"{_fmt(row.mean_error):>11}{_fmt(row.mean_similarity):>9}")
+        print(f"{shown(row.name):<16}{row.compared:>9}{row.one_side:>9}"
+              f"{_fmt(row.agreement, '.1%'):>8}{_fmt(row.mean_error):>11}"
+              f"{_fmt(row.mean_similarity):>9}")
     worst = sorted(result.frames, key=lambda f: f.mean_oks)[:10]
     print("lowest mean OKS:")
     for f in worst:
-        print(f"  {f.mean_oks:.3f}  {f.file_name:<28} {len(f.pairs)} pairs, "
+        print(f"  {f.mean_oks:.3f}  {shown(f.file_name):<28} {len(f.pairs)} pairs, "
               f"{len(f.unpaired_a)}+{len(f.unpaired_b)} unpaired, "
               f"{len(f.disagreements)} joints disagree")
     if threshold is not None:

@@ -25,6 +25,12 @@ final labels ``{"frames": [{"id", "state", "people", "notes"}], "ledger": [rows]
 The SHA-256 sums find damage and careless edits; they are not a signature (anyone can
 recompute them). The base labels are also checked against the sum the project recorded when
 it exported the packet, when it could record one.
+
+Every name of a person a packet carries (``exported_by``, ``reviewer``, the authors of
+decisions, notes and ledger rows, the provenance of each joint) must be printable text of at
+most :data:`app.safetext.MAX_NAME` characters, and packet and project ids letters, digits and
+``-._``: a packet is text from someone else's computer, and these end up in the ledger and
+on a terminal (see :mod:`app.safetext`).
 """
 
 from __future__ import annotations
@@ -40,11 +46,12 @@ from collections.abc import Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Literal
+from typing import Annotated, Any, Literal
 
 import cv2
 import numpy as np
 from pydantic import (
+    AfterValidator,
     BaseModel,
     ConfigDict,
     Field,
@@ -54,6 +61,7 @@ from pydantic import (
     TypeAdapter,
     ValidationError,
 )
+from pydantic_core import PydanticCustomError
 
 from app.errors import BadInput, NotFound
 from app.fileio import atomic_write
@@ -63,6 +71,7 @@ from app.model.skeleton import Skeleton, skeleton_from_dict
 from app.progress import Progress
 from app.review import safezip
 from app.review.blur import blur_heads
+from app.safetext import check_name, name_problem
 from app.store import Project
 
 log = logging.getLogger(__name__)
@@ -180,6 +189,21 @@ class _Strict(BaseModel):
     model_config = ConfigDict(extra="forbid")
 
 
+def _name(value: str) -> str:
+    problem = name_problem(value)
+    if problem is not None:
+        raise PydanticCustomError("name", "{problem}", {"problem": problem})
+    return value
+
+
+#: A person's name (author, reviewer, a joint's provenance): see :mod:`app.safetext`.
+Name = Annotated[StrictStr, AfterValidator(_name)]
+#: Someone who must be named: a name that is not empty.
+Someone = Annotated[StrictStr, Field(min_length=1), AfterValidator(_name)]
+#: A packet's or a project's id: we write UUIDs; letters, digits and ``-._`` are accepted.
+Ident = Annotated[StrictStr, Field(pattern=r"^[0-9A-Za-z._-]{1,64}$")]
+
+
 class _FrameModel(_Strict):
     id: StrictInt
     file_name: StrictStr = Field(min_length=1)
@@ -193,12 +217,12 @@ class _FrameModel(_Strict):
 class _DecisionModel(_Strict):
     frame: StrictInt
     decision: Decision
-    author: StrictStr
+    author: Someone
     time: Number
 
 
 class _ReturnedModel(_Strict):
-    reviewer: StrictStr
+    reviewer: Someone
     time: Number
     decisions: list[_DecisionModel]
     base_sha256: StrictStr = Field(pattern=r"^[0-9a-f]{64}$")
@@ -207,12 +231,12 @@ class _ReturnedModel(_Strict):
 class _ManifestModel(_Strict):
     format: Literal["posewright-review-packet"]
     version: StrictInt
-    packet_id: StrictStr = Field(min_length=1, max_length=64)
-    project_id: StrictStr = Field(min_length=1, max_length=64)
+    packet_id: Ident
+    project_id: Ident
     skeleton: dict[str, Any]
     created: Number
-    exported_by: StrictStr
-    reviewer: StrictStr | None
+    exported_by: Someone
+    reviewer: Someone | None
     images: ImageMode
     frames: list[_FrameModel] = Field(min_length=1)
     members: dict[StrictStr, StrictStr]
@@ -223,14 +247,14 @@ class _PersonModel(_Strict):
     id: StrictInt
     keypoints: list[tuple[Number | None, Number | None, StrictInt]]
     scores: list[Number | None]
-    sources: list[StrictStr]
+    sources: list[Name]
     score: Number | None = None
     extra: dict[str, Any] = Field(default_factory=dict)
 
 
 class _NoteModel(_Strict):
     id: StrictInt
-    author: StrictStr
+    author: Name
     time: Number
     text: StrictStr
     person: StrictInt | None = None
@@ -249,7 +273,7 @@ class _LedgerRowModel(_Strict):
     kind: StrictStr
     action: StrictStr
     summary: StrictStr
-    author: StrictStr
+    author: Someone
     time: Number
     frame_id: StrictInt | None
     target: StrictStr
@@ -565,6 +589,9 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
     if not frames:
         raise BadInput("no frames to send", where="--frames",
                        hint="choose frames by state (disputed, untouched) or by id")
+    if reviewer is not None:
+        check_name(reviewer, "--reviewer")
+    check_name(project.author, "--author")
     progress = progress or Progress()
     out = Path(out)
     packet_id = str(uuid.uuid4())

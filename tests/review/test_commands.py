@@ -180,3 +180,20 @@ def test_a_later_call_naming_another_reviewer_is_refused(folder, tmp_path, capsy
     code, _, err = _run(capsys, "packet", "return", packet, "--author", "cai")
     assert code == 2 and "reviewed by bea" in _one_line(err)
     assert not (tmp_path / "p-returned.zip").exists()
+
+
+def test_packet_lines_show_file_names_escaped(folder, tmp_path, capsys):
+    """Issue item 8: a returned packet saved under a name that holds an escape sequence
+    (ECMA-48 CSI "clear the screen"; synthetic) is merged and shown with the sequence as
+    text."""
+    packet = tmp_path / "p.zip"
+    assert _run(capsys, "packet", "export", folder, "--frames", "100", "--out", packet,
+                "--images", "none", "--reviewer", "bea")[0] == 0
+    returned = tmp_path / "p\x1b[2J-returned.zip"
+    assert _run(capsys, "packet", "return", packet, "--out", returned)[0] == 0
+    code, out, err = _run(capsys, "packet", "show", returned)
+    assert code == 0 and "\x1b" not in out + err and "returned_by: bea" in out
+    for merged in ("merged ", "already merged"):  # first merge, then the repeat
+        code, out, err = _run(capsys, "packet", "merge", folder, returned)
+        assert code == 0 and merged in out and "\x1b" not in out + err
+        assert "p\\x1b[2J-returned.zip" in out

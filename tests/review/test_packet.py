@@ -11,7 +11,9 @@ from __future__ import annotations
 import hashlib
 import json
 import zipfile
+from collections.abc import Callable
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pytest
@@ -22,10 +24,10 @@ from app.model.edits import MoveJoint
 from app.review import safezip
 from app.review.blur import head_ellipses
 from app.review.merge import merge_packet
-from app.review.packet import read_packet, select_frames
+from app.review.packet import export_packet, read_packet, select_frames
 from app.review.review import open_packet, review_folder
 from app.store import Project
-from tests.review.conftest import rewrite, send
+from tests.review.conftest import rewrite, rewrite_json, send
 
 
 def test_manifest_lists_frames_base_revisions_and_member_hashes(labelled, tmp_path):
@@ -265,3 +267,80 @@ def test_hostile_json_is_refused_in_one_line(labelled, tmp_path, labels_text, wo
     with pytest.raises(BadInput, match=r"j.zip: member 'labels.json'") as exc:
         read_packet(bad)
     assert words in str(exc.value)
+
+
+# ---------------------------------------------------------------------- names from a packet
+
+#: An invented hostile name: retitles a terminal window, then clears the screen.
+_HOSTILE = "bea\x1b]0;owned\x07\x1b[2J"
+
+
+def _returned_with_everything(labelled: Project, tmp_path: Path) -> Path:
+    """A returned packet with a decision, a note and ledger rows (synthetic)."""
+    from app.model.edits import AddNote
+    from tests.review.conftest import review
+
+    fid = labelled.frames()[0].id
+    pid = labelled.people(fid)[0].id
+
+    def edit(r: Project) -> None:
+        r.apply(MoveJoint(fid, pid, 3, 20.0, 21.0))
+        r.apply(AddNote(fid, "the wrist is the neighbour's"))
+
+    return review(send(labelled, tmp_path / "p.zip"), edit, decisions={fid: "agree"})
+
+
+def _put(path: list[Any], value: Any) -> Callable[[Any], None]:
+    def change(data: Any) -> None:
+        for key in path[:-1]:
+            data = data[key]
+        data[path[-1]] = value
+    return change
+
+
+@pytest.mark.parametrize("member, path, value, words", [
+    ("manifest.json", ["reviewer"], _HOSTILE, "field reviewer: a name must be printable"),
+    ("manifest.json", ["exported_by"], _HOSTILE, "field exported_by: a name must be"),
+    ("manifest.json", ["returned", "reviewer"], _HOSTILE, "field returned.reviewer: a name"),
+    ("manifest.json", ["returned", "decisions", 0, "author"], "bea\u202egnp.exe",
+     "field returned.decisions.0.author: a name must be printable text; this one holds "
+     "\\u202e"),
+    ("manifest.json", ["reviewer"], "b" * 101, "a name must be at most 100 characters"),
+    ("manifest.json", ["returned", "reviewer"], "", "field returned.reviewer"),
+    ("manifest.json", ["packet_id"], "p\x1b[2J", "field packet_id"),
+    ("returned.json", ["ledger", 0, "author"], _HOSTILE, "field ledger.0.author: a name"),
+    ("returned.json", ["frames", 0, "notes", 0, "author"], _HOSTILE,
+     "field frames.0.notes.0.author: a name"),
+    ("returned.json", ["frames", 0, "people", 0, "sources", 3], _HOSTILE,
+     "field frames.0.people.0.sources.3: a name"),
+    ("labels.json", ["frames", 0, "people", 0, "sources", 0], "x\ny",
+     "this one holds \\n"),
+])
+def test_names_that_are_not_printable_text_are_refused_on_reading(labelled, tmp_path, member,
+                                                                 path, value, words):
+    """Issue item 8: a name read from a packet (exporter, reviewer, decision, note and ledger
+    authors, joint provenance) is printable text of at most 100 characters, else the packet
+    is refused in one line that shows the offending character escaped and nothing changes.
+    "Printable" is Python's str.isprintable (Unicode categories Other and Separator are not;
+    U+202E is the right-to-left override, category Cf); the bound is our own choice."""
+    returned = _returned_with_everything(labelled, tmp_path)
+    bad = rewrite_json(returned, tmp_path / "bad-returned.zip", member, _put(path, value))
+    ledger = len(labelled.history())
+    with pytest.raises(BadInput) as exc:
+        merge_packet(labelled, bad)
+    message = str(exc.value)
+    assert words in message and "bad-returned.zip" in message
+    assert message.isprintable()
+    assert len(labelled.history()) == ledger
+
+
+def test_an_exported_packet_never_names_someone_it_would_refuse(labelled, tmp_path):
+    """The same rule at the writing end: nothing is written for a name a reader refuses."""
+    frames = labelled.frames()[:1]
+    with pytest.raises(BadInput, match="--reviewer: a name must be printable"):
+        export_packet(labelled, tmp_path / "p.zip", frames, images="none", reviewer=_HOSTILE)
+    assert not (tmp_path / "p.zip").exists()
+    with Project.open(labelled.folder, author=_HOSTILE, read_only=True) as shared, \
+            pytest.raises(BadInput, match="--author: a name must be printable"):
+        export_packet(shared, tmp_path / "p.zip", frames, images="none")
+    assert not (tmp_path / "p.zip").exists()
