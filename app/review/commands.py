@@ -129,6 +129,9 @@ def cmd_export(args: argparse.Namespace) -> int:
     if stats["missing_images"]:
         print(f"posewright: warning: {stats['missing_images']} frames went without their "
               "image (missing or unreadable)", file=sys.stderr)
+    if stats["outside_images"]:
+        print(f"posewright: warning: {stats['outside_images']} frames went without their "
+              "image: it is a link to a file outside the images folder", file=sys.stderr)
     if stats["unplaced_heads"]:
         print(f"posewright: warning: {stats['unplaced_heads']} people have no labelled joint, "
               "so their heads could not be blurred", file=sys.stderr)

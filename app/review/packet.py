@@ -39,6 +39,7 @@ import hashlib
 import json
 import logging
 import math
+import os
 import time
 import uuid
 import zipfile
@@ -65,7 +66,7 @@ from pydantic_core import PydanticCustomError
 
 from app.errors import BadInput, NotFound
 from app.fileio import atomic_write
-from app.formats.images import IMAGE_SUFFIXES, MAX_SIDE, decode_image
+from app.formats.images import IMAGE_SUFFIXES, MAX_SIDE
 from app.model.labels import Frame, FrameState, Note, Person
 from app.model.skeleton import Skeleton, skeleton_from_dict
 from app.progress import Progress
@@ -581,7 +582,17 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
     -------
     dict
         ``packet_id``, ``frames``, ``people``, ``images`` (how many images went in),
-        ``missing_images`` and ``unplaced_heads`` (people whose head could not be placed).
+        ``missing_images`` (frames sent without their image: missing, marked unreadable, or
+        no longer decoding), ``outside_images`` (sent without it because the image file,
+        links followed, lies outside the images folder) and ``unplaced_heads`` (people whose
+        head could not be placed).
+
+    Notes
+    -----
+    An image travels only when it decodes, and only from inside the images folder it was
+    registered under: a link is followed, and an image it leads to outside that folder stays
+    home (a link in an images folder must not carry another file into a packet). The bytes
+    sent (``full``) or blurred (``blurred-heads``) are the ones that were decoded.
     """
     if images not in IMAGE_MODES:
         raise BadInput(f"images {images!r} is not one of " + ", ".join(IMAGE_MODES),
@@ -596,7 +607,8 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
     out = Path(out)
     packet_id = str(uuid.uuid4())
     stats: dict[str, Any] = {"packet_id": packet_id, "frames": len(frames), "people": 0,
-                             "images": 0, "missing_images": 0, "unplaced_heads": 0}
+                             "images": 0, "missing_images": 0, "outside_images": 0,
+                             "unplaced_heads": 0}
     entries, base_frames = [], []
     with atomic_zip(out) as archive:
         members: dict[str, str] = {}
@@ -648,31 +660,75 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
 def _write_image(archive: zipfile.ZipFile, project: Project, frame: Frame,
                  people: Sequence[Person], mode: str, members: dict[str, str],
                  stats: dict[str, Any]) -> str | None:
-    path = project.image_path(frame)
+    read = _image_bytes(project, frame)
+    if isinstance(read, _Unsent):
+        log.warning("frame %s: %s; sent without it", frame.id, read.reason)
+        stats[read.counter] += 1
+        return None
+    data, pixels = read
     if mode == "full":
-        suffix = path.suffix.lower()
-        if not path.is_file() or suffix not in IMAGE_SUFFIXES:
-            log.warning("frame %s: image %s is missing; sent without it", frame.id, path)
-            stats["missing_images"] += 1
-            return None
-        name = f"images/{frame.id}{suffix}"
-        members[name] = write_member(archive, name, path.read_bytes(), zipfile.ZIP_STORED)
+        name = f"images/{frame.id}{Path(frame.path).suffix.lower()}"
     else:
-        pixels = decode_image(path)
-        if pixels is None:
-            log.warning("frame %s: image %s cannot be read; sent without it", frame.id, path)
-            stats["missing_images"] += 1
-            return None
         blurred, missed = blur_heads(pixels, [p.keypoints for p in people], project.skeleton)
         stats["unplaced_heads"] += missed
         ok, encoded = cv2.imencode(".png", blurred)
         if not ok:
-            raise BadInput("cannot encode the blurred image", where=str(path))
-        name = f"images/{frame.id}.png"
-        members[name] = write_member(archive, name, np.asarray(encoded).tobytes(),
-                                      zipfile.ZIP_STORED)
+            raise BadInput("cannot encode the blurred image", where=str(project.image_path(frame)))
+        name, data = f"images/{frame.id}.png", np.asarray(encoded).tobytes()
+    members[name] = write_member(archive, name, data, zipfile.ZIP_STORED)
     stats["images"] += 1
     return name
+
+
+@dataclass(frozen=True)
+class _Unsent:
+    """Why an image stays home, and which count of the export's report it adds to."""
+
+    counter: str
+    reason: str
+
+
+def _image_bytes(project: Project, frame: Frame) -> tuple[bytes, np.ndarray] | _Unsent:
+    """A frame's image file and its pixels, or why it cannot travel.
+
+    Only an image registered as readable, whose file, links followed, lies inside the images
+    folder it was registered under (:func:`_image_root`), and whose bytes decode now is sent;
+    the bytes sent are the bytes decoded, read once.
+    """
+    path = Path(os.path.abspath(project.image_path(frame)))
+    if frame.status != "ok" or path.suffix.lower() not in IMAGE_SUFFIXES:
+        what = frame.status if frame.status != "ok" else "not named as an image"
+        return _Unsent("missing_images", f"image {path} is {what}")
+    root = _image_root(project, frame, path)
+    try:
+        real = path.resolve(strict=True)
+        inside = real.is_relative_to(root.resolve(strict=True))
+        data = real.read_bytes() if inside else b""
+    except OSError as exc:
+        return _Unsent("missing_images", f"image {path} cannot be read "
+                                         f"({exc.strerror or exc})")
+    if not inside:
+        return _Unsent("outside_images", f"image {path} leads outside the images folder "
+                                         f"{root}, to {real}")
+    pixels = cv2.imdecode(np.frombuffer(data, np.uint8), cv2.IMREAD_COLOR) if data else None
+    if pixels is None or pixels.ndim != 3:
+        return _Unsent("missing_images", f"image {path} does not decode")
+    return data, pixels
+
+
+def _image_root(project: Project, frame: Frame, path: Path) -> Path:
+    """The folder a frame's image was registered under, links not followed: the project's
+    images folder when the image lies in it, else the folder its ``file_name`` is relative to
+    (images added from another folder, video frames), else the image's own folder."""
+    meta = project.meta("images_root")
+    if meta:
+        root = Path(os.path.abspath(project.folder / meta))
+        if path.is_relative_to(root):
+            return root
+    parts = Path(frame.file_name).parts
+    if parts and ".." not in parts and path.parts[-len(parts):] == parts:
+        return Path(*path.parts[: -len(parts)])
+    return path.parent
 
 
 def dumps_json(data: Any) -> bytes:

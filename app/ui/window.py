@@ -1539,6 +1539,9 @@ class MainWindow(QMainWindow):
                 f"{stats['people']} people, {stats['images']} images.")
         if stats.get("missing_images"):
             text += f"\n{stats['missing_images']} frames went without their image."
+        if stats.get("outside_images"):
+            text += (f"\n{stats['outside_images']} frames went without their image: it is a "
+                     "link to a file outside the images folder.")
         if stats.get("unplaced_heads"):
             text += (f"\n{stats['unplaced_heads']} people have no labelled joint, so their "
                      "heads could not be blurred.")

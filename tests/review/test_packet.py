@@ -344,3 +344,68 @@ def test_an_exported_packet_never_names_someone_it_would_refuse(labelled, tmp_pa
             pytest.raises(BadInput, match="--author: a name must be printable"):
         export_packet(shared, tmp_path / "p.zip", frames, images="none")
     assert not (tmp_path / "p.zip").exists()
+
+
+# ---------------------------------------------------------------------- which images travel
+
+def _images_in(path: Path) -> set[str]:
+    with zipfile.ZipFile(path) as z:
+        return {n for n in z.namelist() if n.startswith("images/")}
+
+
+@pytest.fixture
+def linked(tmp_path):
+    """A project over synthetic images where frame 2 is a link to a decodable image outside
+    the images folder, frame 3 a link to another image inside it, frame 4 an unreadable file
+    (registered and marked), and frame 5 decoded fine when registered but not any more."""
+    import cv2
+
+    from tests import synthetic
+
+    images = tmp_path / "images"
+    synthetic.write_images(images, 6)
+    private = tmp_path / "private"
+    private.mkdir()
+    cv2.imwrite(str(private / "someone.png"), np.full((24, 32, 3), 200, np.uint8))
+    (images / "frame_0001.jpg").unlink()
+    (images / "frame_0001.jpg").symlink_to(private / "someone.png")
+    (images / "frame_0002.jpg").unlink()
+    (images / "frame_0002.jpg").symlink_to(images / "frame_0005.jpg")
+    (images / "frame_0003.jpg").write_bytes(b"\xff\xd8 not a JPEG after all")
+    project = Project.create(tmp_path / "proj", images=images, author="ana")
+    (images / "frame_0004.jpg").write_bytes(b"\xff\xd8 truncated since")
+    yield project
+    project.close()
+
+
+@pytest.mark.parametrize("mode", ["full", "blurred-heads"])
+def test_only_images_that_decode_inside_the_images_folder_travel(linked, tmp_path, mode):
+    """Issue item 9: no raw bytes of an unreadable or no longer decodable image, nothing a
+    link brings in from outside the images folder; a link that stays inside it is followed.
+    Synthetic images; the rule is our own."""
+    frames = linked.frames()
+    assert [f.status for f in frames] == ["ok", "ok", "ok", "corrupt", "ok", "ok"]
+    stats = export_packet(linked, tmp_path / "p.zip", frames, images=mode)
+    suffix = ".jpg" if mode == "full" else ".png"
+    assert _images_in(tmp_path / "p.zip") == {f"images/{f.id}{suffix}"
+                                              for f in frames if f.id in (1, 3, 6)}
+    assert stats["images"] == 3 and stats["missing_images"] == 2
+    assert stats["outside_images"] == 1
+    if mode == "full":
+        with zipfile.ZipFile(tmp_path / "p.zip") as z:
+            assert z.read("images/3.jpg") == (tmp_path / "images" / "frame_0005.jpg") \
+                .read_bytes()
+    manifest = read_packet(tmp_path / "p.zip").frames
+    assert [f.image is not None for f in manifest] == [True, False, True, False, False, True]
+
+
+def test_a_linked_images_folder_is_its_own_root(tmp_path):
+    """The images folder itself may be a link (footage kept on another disk): its images
+    travel."""
+    from tests import synthetic
+
+    synthetic.write_images(tmp_path / "disk" / "footage", 2)
+    (tmp_path / "images").symlink_to(tmp_path / "disk" / "footage")
+    with Project.create(tmp_path / "proj", images=tmp_path / "images", author="ana") as p:
+        stats = export_packet(p, tmp_path / "p.zip", p.frames(), images="full")
+    assert stats["images"] == 2 and stats["outside_images"] == 0
