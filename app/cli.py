@@ -166,13 +166,22 @@ def cmd_import(args: argparse.Namespace) -> int:
 
 
 def cmd_export(args: argparse.Namespace) -> int:
-    from app.jobs import export_coco
+    from app.jobs import export_coco, left_out_note
 
-    states = _states(args.states) if args.states else None
     with _open(args, write=False) as project:
-        stats = export_coco(project, args.out, states=states)
-    print(f"wrote {args.out}: {stats['images']} images, {stats['people']} people")
+        stats = export_coco(project, args.out, states=_states(args.states))
+    _warn_export(stats)
+    note = left_out_note(stats)
+    print(f"wrote {args.out}: {stats['images']} images, {stats['people']} people"
+          + (f"; {note} (--states all takes every state)" if note else ""))
     return 0
+
+
+def _warn_export(stats: dict[str, Any]) -> None:
+    from app.jobs import export_warnings
+
+    for line in export_warnings(stats):
+        print(f"posewright: warning: {line}", file=sys.stderr)
 
 
 def cmd_history(args: argparse.Namespace) -> int:
@@ -245,6 +254,7 @@ def cmd_triage(args: argparse.Namespace) -> int:
 
 
 def cmd_targets(args: argparse.Namespace) -> int:
+    from app.jobs import left_out_note
     from app.jobs_analysis import TargetSettings, export_targets
 
     if args.check:
@@ -254,12 +264,13 @@ def cmd_targets(args: argparse.Namespace) -> int:
     settings = TargetSettings(stride=args.stride, sigma=args.sigma, limb_width=args.limb_width,
                               dtype=args.dtype)
     settings.check()
-    states = None if args.states == "all" else _states(args.states)
     with _open(args, write=False) as project:
-        stats = export_targets(project, args.out_dir, settings, states=states,
+        stats = export_targets(project, args.out_dir, settings, states=_states(args.states),
                                progress=_stderr_progress(args.quiet))
+    _warn_export(stats)
+    note = left_out_note(stats)
     print(f"wrote {stats['frames']} frames of training targets to {stats['out']}"
-          + (f" ({stats['skipped']} skipped: unreadable images)" if stats["skipped"] else ""))
+          + (f"; {note} (--states all takes every state)" if note else ""))
     return 0
 
 
@@ -321,11 +332,24 @@ def cmd_render(args: argparse.Namespace) -> int:
     return render_frame(args)
 
 
-def _states(text: str) -> list[FrameState]:
+def _states(text: str) -> list[FrameState] | None:
+    """The states an export takes: ``all`` (None), or a comma-separated list."""
+    if text.strip().lower() == "all":
+        return None
     try:
-        return [FrameState.parse(s) for s in text.split(",") if s.strip()]
+        states = [FrameState.parse(s) for s in text.split(",") if s.strip()]
     except ValueError as exc:
         raise BadInput(str(exc), where="--states") from None
+    if not states:
+        raise BadInput("no states named", where="--states", hint="e.g. corrected,signed-off")
+    return states
+
+
+#: What ``--states`` says in the help of every command that exports.
+_STATES_HELP = ("frames in these states, e.g. corrected,signed-off,disputed (default "
+                "corrected,signed-off: the frames a person has checked), or 'all'; a frame "
+                "whose image cannot be read is never exported; a warning names untouched or "
+                "disputed frames in the export")
 
 
 # ---------------------------------------------------------------------- wiring
@@ -371,10 +395,11 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("file", metavar="FILE.json")
     p.add_argument("--json", action="store_true", help="print the counts as JSON")
 
-    p = command("export", cmd_export, "export the labels as a COCO keypoints dataset")
+    p = command("export", cmd_export, "export the labels as a COCO keypoints dataset (by "
+                "default of the corrected and signed-off frames)")
     p.add_argument("--out", metavar="FILE.json", required=True)
-    p.add_argument("--states", metavar="LIST",
-                   help="only frames in these states, e.g. corrected,signed-off")
+    p.add_argument("--states", metavar="LIST", default="corrected,signed-off",
+                   help=_STATES_HELP)
 
     p = command("history", cmd_history, "show the ledger of edits, newest first")
     p.add_argument("--frame", metavar="ID", help="only this frame (id or file name)")
@@ -394,7 +419,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--limit", type=int, metavar="N", help="show only the N worst frames")
 
     p = command("targets", cmd_targets,
-                "write training targets (confidence maps, PAFs, loss masks) per frame")
+                "write training targets (confidence maps, PAFs, loss masks) per frame (by "
+                "default of the corrected and signed-off frames)")
     p.add_argument("out_dir", metavar="OUT_DIR", nargs="?")
     p.add_argument("--check", action="store_true",
                    help="re-read the export in OUT_DIR and verify shapes, ranges and the "
@@ -403,8 +429,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--sigma", type=float, default=7.0, help="confidence-map sigma, image px")
     p.add_argument("--limb-width", type=float, default=8.0, help="PAF half-width, image px")
     p.add_argument("--dtype", choices=("float16", "float32"), default="float32")
-    p.add_argument("--states", default="corrected,signed-off",
-                   help="frames in these states (default corrected,signed-off), or 'all'")
+    p.add_argument("--states", metavar="LIST", default="corrected,signed-off",
+                   help=_STATES_HELP)
 
     p = command("prelabel", cmd_prelabel,
                 "run an ONNX pose model on the CPU and store what it finds as auto-labels")

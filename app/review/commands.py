@@ -17,6 +17,7 @@ from pathlib import Path
 from typing import Any
 
 from app.errors import BadInput, ProjectLocked
+from app.review import DEFAULT_IMAGES, IMAGE_MODES
 from app.safetext import shown
 
 Command = Callable[..., argparse.ArgumentParser]
@@ -64,9 +65,10 @@ def register(sub: Any, command: Command) -> None:
     q.add_argument("--frames", required=True, metavar="WHICH",
                    help="a state (disputed, untouched, ...) or frame ids 3,7,12")
     q.add_argument("--out", required=True, metavar="FILE.zip")
-    q.add_argument("--images", choices=("none", "full", "blurred-heads"), default="none",
-                   help="send no images (default), the images, or the images with heads "
-                        "blurred")
+    q.add_argument("--images", choices=IMAGE_MODES, default=DEFAULT_IMAGES,
+                   help="send the images with heads blurred (default), the images as they "
+                        "are, or none; an image that cannot be read, or that a link brings "
+                        "from outside the images folder, is never sent")
     q.add_argument("--reviewer", metavar="NAME", help="who is to review")
 
     q = action("show", cmd_show, "check a packet and say what it holds")

@@ -70,7 +70,7 @@ from app.formats.images import IMAGE_SUFFIXES, MAX_SIDE
 from app.model.labels import Frame, FrameState, Note, Person
 from app.model.skeleton import Skeleton, skeleton_from_dict
 from app.progress import Progress
-from app.review import safezip
+from app.review import DEFAULT_IMAGES, IMAGE_MODES, safezip
 from app.review.blur import blur_heads
 from app.safetext import check_name, name_problem
 from app.store import Project
@@ -79,7 +79,6 @@ log = logging.getLogger(__name__)
 
 FORMAT = "posewright-review-packet"
 VERSION = 1
-IMAGE_MODES = ("none", "full", "blurred-heads")
 DECISIONS = ("agree", "needs-change", "signed-off")
 
 MANIFEST = "manifest.json"
@@ -558,7 +557,7 @@ def select_frames(project: Project, spec: str) -> list[Frame]:
 
 
 def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
-                  images: str = "none", reviewer: str | None = None,
+                  images: str = DEFAULT_IMAGES, reviewer: str | None = None,
                   progress: Progress | None = None) -> dict[str, Any]:
     """Write a review packet for ``frames`` to ``out`` (atomically).
 
@@ -572,7 +571,8 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
     frames
         The frames to send (see :func:`select_frames`).
     images
-        ``none``, ``full`` (the image files as they are) or ``blurred-heads``.
+        ``blurred-heads`` (the default, :data:`app.review.DEFAULT_IMAGES`), ``full`` (the
+        image files as they are) or ``none``.
     reviewer
         Who is to review (written in the manifest; the reviewer's name when they open it).
     progress
