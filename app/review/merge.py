@@ -297,6 +297,11 @@ def _content_to_record(content: FrameContent) -> dict[str, Any]:
             "notes": [{"id": n.id, **n.to_value()} for n in content.notes.values()]}
 
 
+def _same_people(a: FrameContent, b: FrameContent) -> bool:
+    return a.people.keys() == b.people.keys() and all(
+        a.people[pid].same_as(b.people[pid]) for pid in a.people)
+
+
 def _content_from_record(frame_id: int, value: Mapping[str, Any]) -> FrameContent:
     return FrameContent(
         frame_id, {p["id"]: Person.from_value(p["id"], p) for p in value["people"]},
@@ -568,10 +573,12 @@ def _record(project: Project, packet: Packet, plans: Sequence[FramePlan],
     report.merged_at = now
     summary = (f"merge review packet from {packet.returned.reviewer}: {report.frames} frames, "
                f"{report.joints_taken} joints taken, {len(report.conflicts)} conflicts")
+    # Frames the reviewer left as sent need no record: their base stays the packet's.
     record = {
         **report.to_dict(), "returned_time": packet.returned.time,
         "reviewer_labels": {str(fid): _content_to_record(c)
-                            for fid, c in packet.returned.final.items()},
+                            for fid, c in packet.returned.final.items()
+                            if not _same_people(c, packet.base[fid])},
         "person_ids": {str(p.frame_id): {str(r): h for r, h in p.person_ids.items()}
                        for p in plans},
     }
