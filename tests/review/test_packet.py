@@ -409,3 +409,14 @@ def test_a_linked_images_folder_is_its_own_root(tmp_path):
     with Project.create(tmp_path / "proj", images=tmp_path / "images", author="ana") as p:
         stats = export_packet(p, tmp_path / "p.zip", p.frames(), images="full")
     assert stats["images"] == 2 and stats["outside_images"] == 0
+
+
+def test_a_review_folder_from_before_names_were_recorded_keeps_its_reviewer(labelled,
+                                                                           tmp_path):
+    """A review folder built without the recorded name credits whoever it was built for
+    (the author of its first ledger entry), not the login name."""
+    path = send(labelled, tmp_path / "p.zip", images="none")
+    with open_packet(path) as reviewed, reviewed.bulk("Test", "forget the name", "test") as b:
+        b.execute("DELETE FROM meta WHERE key = 'review_reviewer'")
+    with open_packet(path) as again:
+        assert again.meta("review_reviewer") is None and again.author == "bea"

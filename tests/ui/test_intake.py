@@ -164,4 +164,6 @@ def test_add_images_of_a_folder(qtbot, window, ui_project, tmp_path, monkeypatch
     _press(window.canvas, "add_images")
     qtbot.waitUntil(lambda: len(ui_project.frames()) == before + 2, timeout=20_000)
     qtbot.waitUntil(lambda: window.worklist_model.rowCount() == before + 2, timeout=5000)
-    assert "added 2 frames" in window.statusBar().currentMessage()
+    # The store and the Worklist change on the worker's commit; the report comes after.
+    qtbot.waitUntil(lambda: "added 2 frames" in window.statusBar().currentMessage(),
+                    timeout=5000)
