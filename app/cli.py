@@ -48,7 +48,7 @@ def _stderr_progress(quiet: bool) -> Progress:
     return Progress(show)
 
 
-def _open(args: argparse.Namespace, write: bool = True):  # -> Project
+def _open(args: argparse.Namespace, write: bool = True, say_why: bool = True):  # -> Project
     from app.jobs import open_project
 
     project = open_project(args.project, author=getattr(args, "author", None),
@@ -57,6 +57,9 @@ def _open(args: argparse.Namespace, write: bool = True):  # -> Project
         reason = project.read_only_reason
         project.close()
         raise ProjectLocked(f"{args.project}: cannot change the project: it is {reason}")
+    if project.read_only and say_why:
+        print(f"posewright: note: {args.project} is read-only: {project.read_only_reason}",
+              file=sys.stderr)
     return project
 
 
@@ -202,7 +205,7 @@ def cmd_history(args: argparse.Namespace) -> int:
 def cmd_summary(args: argparse.Namespace) -> int:
     from app.jobs import summary
 
-    with _open(args, write=False) as project:
+    with _open(args, write=False, say_why=False) as project:  # the summary says it
         info = summary(project)
     if args.json:
         _print_json(info)
@@ -352,6 +355,18 @@ _STATES_HELP = ("frames in these states, e.g. corrected,signed-off,disputed (def
                 "disputed frames in the export")
 
 
+def _limits(args: argparse.Namespace) -> None:
+    """Apply ``--max-megapixels`` and ``--memory-budget-mb`` to this process."""
+    if getattr(args, "max_megapixels", None) is not None:
+        from app.formats.images import set_max_megapixels
+
+        set_max_megapixels(args.max_megapixels)
+    if getattr(args, "memory_budget_mb", None) is not None:
+        from app.inference.budget import set_budget_mb
+
+        set_budget_mb(args.memory_budget_mb)
+
+
 # ---------------------------------------------------------------------- wiring
 
 def build_parser() -> argparse.ArgumentParser:
@@ -371,6 +386,11 @@ def build_parser() -> argparse.ArgumentParser:
         p.set_defaults(fn=fn)
         return p
 
+    def pixel_limit(p: argparse.ArgumentParser) -> None:
+        p.add_argument("--max-megapixels", type=float, metavar="N",
+                       help="refuse to decode images over N megapixels (default: "
+                            "$POSEWRIGHT_MAX_MEGAPIXELS, else 100); larger ones are unreadable")
+
     def video_options(p: argparse.ArgumentParser) -> None:
         p.add_argument("--every", type=int, metavar="N",
                        help="with --video: keep every N-th frame (default 1)")
@@ -384,12 +404,14 @@ def build_parser() -> argparse.ArgumentParser:
                    help="video whose frames are extracted into PROJECT/frames/<name>/")
     video_options(p)
     p.add_argument("--skeleton", metavar="FILE.json", help="custom skeleton (default: COCO body)")
+    pixel_limit(p)
 
     p = command("add", cmd_add, "add the new images of a folder, or frames of a video")
     source = p.add_mutually_exclusive_group(required=True)
     source.add_argument("--images", metavar="DIR")
     source.add_argument("--video", metavar="FILE")
     video_options(p)
+    pixel_limit(p)
 
     p = command("import", cmd_import, "import COCO keypoints labels (dataset or results list)")
     p.add_argument("file", metavar="FILE.json")
@@ -442,15 +464,21 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--frames", metavar="LIST",
                    help="frame ids and ranges (1,2,5-9), 'untouched' or 'all' (default all)")
     p.add_argument("--json", action="store_true", help="print the counts as JSON")
+    p.add_argument("--memory-budget-mb", type=float, metavar="MB",
+                   help="refuse a config whose tensors would need more than MB megabytes "
+                        "(default: $POSEWRIGHT_MEMORY_BUDGET_MB, else 2048)")
+    pixel_limit(p)
 
     p = command("open", cmd_open, "open the project in the desktop app")
     p.add_argument("--screenshot", metavar="FILE.png",
                    help="render the window showing the most suspicious frame to FILE and exit")
+    pixel_limit(p)
 
     p = command("render", cmd_render, "draw one frame with its labels, as the Canvas shows it")
     p.add_argument("--frame", metavar="ID", required=True, help="frame id or image file name")
     p.add_argument("--out", metavar="FILE.png", required=True)
     p.add_argument("--focus", metavar="PERSON", type=int, help="dim everyone but this person")
+    pixel_limit(p)
 
     p = command("demo", cmd_demo, "generate the synthetic demo scenario in DIR", project=False)
     p.add_argument("dir", metavar="DIR")
@@ -481,6 +509,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     logging.basicConfig(level=logging.INFO if args.verbose else logging.WARNING,
                         handlers=[handler])
     try:
+        _limits(args)
         return int(args.fn(args))
     except Cancelled as exc:
         print(f"posewright: {shown(exc)}; nothing was changed", file=sys.stderr)

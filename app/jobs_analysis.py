@@ -29,6 +29,7 @@ from app.jobs import EXPORT_STATES, choose_frames
 from app.model.labels import AUTO, Frame, FrameState, Person
 from app.progress import Progress
 from app.store.project import Project
+from app.workfiles import Claim, sweep
 
 log = logging.getLogger(__name__)
 
@@ -141,8 +142,9 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
     needs nothing else. ``states`` picks the frames (None: all); a frame whose image cannot be
     read is never written but listed in the manifest's ``skipped`` (the rule of
     :func:`app.jobs.choose_frames`, shared with the COCO export). The folder appears complete
-    or not at all: it is written beside ``out_dir`` and renamed at the end. Returns ``frames``
-    written, ``skipped``, ``out`` and :meth:`app.jobs.ExportChoice.counts`.
+    or not at all: it is written beside ``out_dir`` (``OUT_DIR.<random>.partial``) and renamed
+    at the end; such folders that a killed run left are removed first (:mod:`app.workfiles`).
+    Returns ``frames`` written, ``skipped``, ``out`` and :meth:`app.jobs.ExportChoice.counts`.
     """
     settings = settings or TargetSettings()
     settings.check()
@@ -162,7 +164,9 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
     limbs = sk.limb_array
     dtype = np.float16 if settings.dtype == "float16" else np.float32
     min_margin = settings.min_margin if settings.min_margin is not None else 3 * settings.sigma
+    sweep(out, ".partial")
     work = Path(tempfile.mkdtemp(prefix=out.name + ".", suffix=".partial", dir=parent))
+    claim = Claim(work)  # so that a later run can tell this folder from a killed run's
     entries = []
     try:
         for n, f in enumerate(frames):
@@ -221,6 +225,8 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
     except BaseException:
         shutil.rmtree(work, ignore_errors=True)
         raise
+    finally:
+        claim.release()
     return {"frames": len(entries), "skipped": len(skipped), "out": str(out),
             **choice.counts()}
 

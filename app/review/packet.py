@@ -66,7 +66,7 @@ from pydantic_core import PydanticCustomError
 
 from app.errors import BadInput, NotFound
 from app.fileio import atomic_write
-from app.formats.images import IMAGE_SUFFIXES, MAX_SIDE
+from app.formats.images import IMAGE_SUFFIXES, MAX_SIDE, read_image
 from app.model.labels import Frame, FrameState, Note, Person
 from app.model.skeleton import Skeleton, skeleton_from_dict
 from app.progress import Progress
@@ -591,8 +591,9 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
     -----
     An image travels only when it decodes, and only from inside the images folder it was
     registered under: a link is followed, and an image it leads to outside that folder stays
-    home (a link in an images folder must not carry another file into a packet). The bytes
-    sent (``full``) or blurred (``blurred-heads``) are the ones that were decoded.
+    home (a link in an images folder must not carry another file into a packet). An image is
+    decoded as everywhere else in Posewright (pixel limit, Exif orientation), so the heads
+    blurred are where the labels put them.
     """
     if images not in IMAGE_MODES:
         raise BadInput(f"images {images!r} is not one of " + ", ".join(IMAGE_MODES),
@@ -660,14 +661,15 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
 def _write_image(archive: zipfile.ZipFile, project: Project, frame: Frame,
                  people: Sequence[Person], mode: str, members: dict[str, str],
                  stats: dict[str, Any]) -> str | None:
-    read = _image_bytes(project, frame)
-    if isinstance(read, _Unsent):
-        log.warning("frame %s: %s; sent without it", frame.id, read.reason)
-        stats[read.counter] += 1
+    source = _image_source(project, frame)
+    if isinstance(source, _Unsent):
+        log.warning("frame %s: %s; sent without it", frame.id, source.reason)
+        stats[source.counter] += 1
         return None
-    data, pixels = read
+    real, pixels = source
     if mode == "full":
         name = f"images/{frame.id}{Path(frame.path).suffix.lower()}"
+        data = real.read_bytes()
     else:
         blurred, missed = blur_heads(pixels, [p.keypoints for p in people], project.skeleton)
         stats["unplaced_heads"] += missed
@@ -688,12 +690,13 @@ class _Unsent:
     reason: str
 
 
-def _image_bytes(project: Project, frame: Frame) -> tuple[bytes, np.ndarray] | _Unsent:
-    """A frame's image file and its pixels, or why it cannot travel.
+def _image_source(project: Project, frame: Frame) -> tuple[Path, np.ndarray] | _Unsent:
+    """A frame's image file, links followed, and its pixels; or why it cannot travel.
 
-    Only an image registered as readable, whose file, links followed, lies inside the images
-    folder it was registered under (:func:`_image_root`), and whose bytes decode now is sent;
-    the bytes sent are the bytes decoded, read once.
+    Only an image registered as readable, whose file lies inside the images folder it was
+    registered under (:func:`_image_root`) and which decodes now
+    (:func:`app.formats.images.read_image`: within the pixel limit, turned as its Exif
+    orientation says, as everywhere else) is sent.
     """
     path = Path(os.path.abspath(project.image_path(frame)))
     if frame.status != "ok" or path.suffix.lower() not in IMAGE_SUFFIXES:
@@ -703,17 +706,16 @@ def _image_bytes(project: Project, frame: Frame) -> tuple[bytes, np.ndarray] | _
     try:
         real = path.resolve(strict=True)
         inside = real.is_relative_to(root.resolve(strict=True))
-        data = real.read_bytes() if inside else b""
     except OSError as exc:
         return _Unsent("missing_images", f"image {path} cannot be read "
                                          f"({exc.strerror or exc})")
     if not inside:
         return _Unsent("outside_images", f"image {path} leads outside the images folder "
                                          f"{root}, to {real}")
-    pixels = cv2.imdecode(np.frombuffer(data, np.uint8), cv2.IMREAD_COLOR) if data else None
-    if pixels is None or pixels.ndim != 3:
-        return _Unsent("missing_images", f"image {path} does not decode")
-    return data, pixels
+    try:
+        return real, read_image(real)
+    except (BadInput, NotFound) as exc:
+        return _Unsent("missing_images", f"image {path} does not decode ({exc})")
 
 
 def _image_root(project: Project, frame: Frame, path: Path) -> Path:

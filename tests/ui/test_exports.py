@@ -10,6 +10,7 @@ from PySide6.QtWidgets import QFileDialog, QMessageBox
 
 from app.model.edits import SetFrameState
 from app.model.labels import FrameState
+from tests.ui.conftest import WAIT_MS
 
 
 def test_export_labels_writes_checked_frames_and_says_what_it_left_out(qtbot, window,
@@ -22,10 +23,11 @@ def test_export_labels_writes_checked_frames_and_says_what_it_left_out(qtbot, wi
     out = tmp_path / "labels.json"
     monkeypatch.setattr(QFileDialog, "getSaveFileName", lambda *a, **k: (str(out), ""))
     window.actions_by_name["export_labels"].trigger()
-    qtbot.waitUntil(lambda: "wrote" in window.statusBar().currentMessage(), timeout=10_000)
+    qtbot.waitUntil(lambda: "wrote" in window.status_log, timeout=WAIT_MS)
     assert [i["id"] for i in json.loads(out.read_text())["images"]] == [2]
-    message = window.statusBar().currentMessage()
-    assert "1 images, 3 people; 2 frames left out by their state" in message
+    assert "1 images, 3 people; 2 frames left out by their state" in window.status_log.last
+    qtbot.waitUntil(lambda: any(b.objectName() == "InfoBox"
+                                for b in window.findChildren(QMessageBox)), timeout=WAIT_MS)
     (box,) = [b for b in window.findChildren(QMessageBox) if b.objectName() == "InfoBox"]
     assert box.text() == "1 frame not exported: its image cannot be read."
     box.close()
