@@ -25,6 +25,7 @@ from app.analysis.targets import confidence_maps, loss_mask, part_affinity_field
 from app.errors import BadInput, NotFound
 from app.fileio import read_json
 from app.formats.maps import NetworkMaps, match_map_files, read_maps
+from app.jobs import EXPORT_STATES, choose_frames
 from app.model.labels import AUTO, Frame, FrameState, Person
 from app.progress import Progress
 from app.store.project import Project
@@ -131,17 +132,19 @@ class TargetSettings:
 
 
 def export_targets(project: Project, out_dir: str | Path, settings: TargetSettings | None = None,
-                   states: Sequence[FrameState] | None = (FrameState.CORRECTED,
-                                                          FrameState.SIGNED_OFF),
+                   states: Sequence[FrameState] | None = EXPORT_STATES,
                    progress: Progress | None = None) -> dict[str, Any]:
     """Write training targets: one ``.npz`` per frame plus ``manifest.json``.
 
     Each ``.npz`` holds ``confidence_maps (K, H, W)``, ``pafs (L, 2, H, W)`` and
     ``loss_mask (K + 2L, H, W)`` (channel order: the K maps, then each limb's x and y field);
     the manifest holds every parameter, the skeleton and the frame list, so a training script
-    needs nothing else. ``states`` picks the frames (None: all). The folder appears complete or
-    not at all: it is written beside ``out_dir`` (``OUT_DIR.<random>.partial``) and renamed at
-    the end; such folders that a killed run left are removed first (:mod:`app.workfiles`).
+    needs nothing else. ``states`` picks the frames (None: all); a frame whose image cannot be
+    read is never written but listed in the manifest's ``skipped`` (the rule of
+    :func:`app.jobs.choose_frames`, shared with the COCO export). The folder appears complete
+    or not at all: it is written beside ``out_dir`` (``OUT_DIR.<random>.partial``) and renamed
+    at the end; such folders that a killed run left are removed first (:mod:`app.workfiles`).
+    Returns ``frames`` written, ``skipped``, ``out`` and :meth:`app.jobs.ExportChoice.counts`.
     """
     settings = settings or TargetSettings()
     settings.check()
@@ -153,10 +156,8 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
     parent = out.parent if str(out.parent) else Path(".")
     if not parent.is_dir():
         raise NotFound(f"{out}: the folder {parent} does not exist")
-    frames = [f for f in project.frames()
-              if states is None or f.state in set(states)]
-    skipped = [f for f in frames if f.status != "ok" or f.width <= 0]
-    frames = [f for f in frames if f not in skipped]
+    choice = choose_frames(project, states)
+    frames, skipped = choice.frames, choice.unreadable
     people = project.people_by_frame()
     regions = project.regions_by_frame()
     sk = project.skeleton
@@ -226,7 +227,8 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
         raise
     finally:
         claim.release()
-    return {"frames": len(entries), "skipped": len(skipped), "out": str(out)}
+    return {"frames": len(entries), "skipped": len(skipped), "out": str(out),
+            **choice.counts()}
 
 
 # ---------------------------------------------------------------------- triage

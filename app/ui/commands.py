@@ -58,7 +58,10 @@ def open_app(args: argparse.Namespace) -> int:
     if is_packet(args.project):
         from app.review.review import open_packet
 
-        project = open_packet(args.project, reviewer=author)
+        # The name given on the first run only stands in when neither --author nor the
+        # packet names the reviewer, so a review keeps one reviewer from call to call.
+        project = open_packet(args.project, reviewer=getattr(args, "author", None) or None,
+                              fallback=author)
     else:
         project = _open(args.project, author, quiet=getattr(args, "quiet", False),
                         with_dialog=not screenshot and not headless)

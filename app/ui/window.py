@@ -1436,8 +1436,8 @@ class MainWindow(QMainWindow):
                 pr.step(0, 1, "writing")
                 return export_coco(self.project, path)
 
-            self.run_long("Exporting labels", job, lambda stats: self._message(
-                f"wrote {path}: {stats['images']} images, {stats['people']} people"))
+            self.run_long("Exporting labels", job, lambda stats: self._exported(
+                f"wrote {path}: {stats['images']} images, {stats['people']} people", stats))
 
     def _export_targets(self) -> None:
         fn = self._analysis_job("export_targets")
@@ -1446,7 +1446,20 @@ class MainWindow(QMainWindow):
         if fn and folder:
             self.run_long("Exporting training targets",
                           lambda pr: fn(self.project, folder, progress=pr),
-                          lambda _r: self._message(f"training targets written to {folder}"))
+                          lambda stats: self._exported(
+                              f"training targets of {stats['frames']} frames written to "
+                              f"{folder}", stats))
+
+    def _exported(self, text: str, stats: dict[str, Any]) -> None:
+        """Say what an export wrote and what it left out (corrected and signed-off frames are
+        exported, the command line's default); warn about what nobody checked."""
+        from app.jobs import export_warnings, left_out_note
+
+        note = left_out_note(stats)
+        self._message(text + (f"; {note}" if note else ""), 0)
+        warnings = export_warnings(stats)
+        if warnings:
+            self._inform("\n".join(line[:1].upper() + line[1:] + "." for line in warnings))
 
     def _frames_added(self, frames: Any, what: str) -> None:
         if not frames:
@@ -1552,6 +1565,9 @@ class MainWindow(QMainWindow):
                 f"{stats['people']} people, {stats['images']} images.")
         if stats.get("missing_images"):
             text += f"\n{stats['missing_images']} frames went without their image."
+        if stats.get("outside_images"):
+            text += (f"\n{stats['outside_images']} frames went without their image: it is a "
+                     "link to a file outside the images folder.")
         if stats.get("unplaced_heads"):
             text += (f"\n{stats['unplaced_heads']} people have no labelled joint, so their "
                      "heads could not be blurred.")

@@ -52,7 +52,7 @@ def _check_commands(run, folder, out, because):
     assert status == 0 and "import" in stdout
     assert stderr.strip().splitlines() == [f"posewright: note: {folder} is read-only: in a "
                                            f"folder that cannot be written ({because})"]
-    status, stdout, stderr = run("export", folder, "--out", out)
+    status, stdout, stderr = run("export", folder, "--out", out, "--states", "all")
     assert status == 0 and len(json.loads(Path(out).read_text())["annotations"]) == 18
     status, stdout, stderr = run("import", folder, out)
     lines = stderr.strip().splitlines()
