@@ -2,6 +2,8 @@
 
 Every command that meets bad input exits with status 2 after one line on stderr that says what
 is wrong and where (file, record, field), without a traceback and without writing anything.
+Text that came from a file (names, file names, ledger entries, messages quoting them) is
+printed through :func:`app.safetext.shown`, so a file cannot drive the terminal.
 """
 
 from __future__ import annotations
@@ -18,6 +20,7 @@ from typing import Any, NoReturn
 from app.errors import BadInput, Cancelled, PosewrightError, ProjectLocked
 from app.model.labels import FrameState
 from app.progress import Progress
+from app.safetext import shown
 
 log = logging.getLogger("posewright")
 
@@ -45,7 +48,7 @@ def _stderr_progress(quiet: bool) -> Progress:
     return Progress(show)
 
 
-def _open(args: argparse.Namespace, write: bool = True):  # -> Project
+def _open(args: argparse.Namespace, write: bool = True, say_why: bool = True):  # -> Project
     from app.jobs import open_project
 
     project = open_project(args.project, author=getattr(args, "author", None),
@@ -54,6 +57,9 @@ def _open(args: argparse.Namespace, write: bool = True):  # -> Project
         reason = project.read_only_reason
         project.close()
         raise ProjectLocked(f"{args.project}: cannot change the project: it is {reason}")
+    if project.read_only and say_why:
+        print(f"posewright: note: {args.project} is read-only: {project.read_only_reason}",
+              file=sys.stderr)
     return project
 
 
@@ -88,8 +94,8 @@ def cmd_new(args: argparse.Namespace) -> int:
         frames = project.frames()
         bad = [f for f in frames if f.status != "ok"]
         for f in bad:
-            print(f"posewright: warning: {f.path}: image is {f.status}; registered and marked",
-                  file=sys.stderr)
+            print(f"posewright: warning: {shown(f.path)}: image is {f.status}; registered and "
+                  "marked", file=sys.stderr)
         print(f"created {args.project}: {len(frames)} frames"
               + (f", {len(bad)} unreadable" if bad else ""))
     return 0
@@ -163,13 +169,22 @@ def cmd_import(args: argparse.Namespace) -> int:
 
 
 def cmd_export(args: argparse.Namespace) -> int:
-    from app.jobs import export_coco
+    from app.jobs import export_coco, left_out_note
 
-    states = _states(args.states) if args.states else None
     with _open(args, write=False) as project:
-        stats = export_coco(project, args.out, states=states)
-    print(f"wrote {args.out}: {stats['images']} images, {stats['people']} people")
+        stats = export_coco(project, args.out, states=_states(args.states))
+    _warn_export(stats)
+    note = left_out_note(stats)
+    print(f"wrote {args.out}: {stats['images']} images, {stats['people']} people"
+          + (f"; {note} (--states all takes every state)" if note else ""))
     return 0
+
+
+def _warn_export(stats: dict[str, Any]) -> None:
+    from app.jobs import export_warnings
+
+    for line in export_warnings(stats):
+        print(f"posewright: warning: {line}", file=sys.stderr)
 
 
 def cmd_history(args: argparse.Namespace) -> int:
@@ -182,22 +197,22 @@ def cmd_history(args: argparse.Namespace) -> int:
     for e in entries:
         when = time.strftime("%Y-%m-%d %H:%M:%S", time.localtime(e.time))
         frame = "-" if e.frame_id is None else str(e.frame_id)
-        print(f"{e.seq:>6}  {when}  {e.author:<12}  frame {frame:<6}  {e.kind:<6}  "
-              f"{e.target:<22}  {e.summary}")
+        print(f"{e.seq:>6}  {when}  {shown(e.author):<12}  frame {frame:<6}  {e.kind:<6}  "
+              f"{shown(e.target):<22}  {shown(e.summary)}")
     return 0
 
 
 def cmd_summary(args: argparse.Namespace) -> int:
     from app.jobs import summary
 
-    with _open(args, write=False) as project:
+    with _open(args, write=False, say_why=False) as project:  # the summary says it
         info = summary(project)
     if args.json:
         _print_json(info)
     else:
         for key, value in info.items():
             if value is not None:
-                print(f"{key:>18}: {value}")
+                print(f"{key:>18}: {shown(value)}")
     return 0
 
 
@@ -236,12 +251,13 @@ def cmd_triage(args: argparse.Namespace) -> int:
         return 0
     for fid, t in ranked:
         kinds = sorted({r.kind for r in t.reasons})
-        print(f"{t.score:7.2f}  frame {fid:<6} {frames[fid].file_name:<28} "
+        print(f"{t.score:7.2f}  frame {fid:<6} {shown(frames[fid].file_name):<28} "
               f"{len(t.flagged)} flagged  {', '.join(kinds)}")
     return 0
 
 
 def cmd_targets(args: argparse.Namespace) -> int:
+    from app.jobs import left_out_note
     from app.jobs_analysis import TargetSettings, export_targets
 
     if args.check:
@@ -251,12 +267,13 @@ def cmd_targets(args: argparse.Namespace) -> int:
     settings = TargetSettings(stride=args.stride, sigma=args.sigma, limb_width=args.limb_width,
                               dtype=args.dtype)
     settings.check()
-    states = None if args.states == "all" else _states(args.states)
     with _open(args, write=False) as project:
-        stats = export_targets(project, args.out_dir, settings, states=states,
+        stats = export_targets(project, args.out_dir, settings, states=_states(args.states),
                                progress=_stderr_progress(args.quiet))
+    _warn_export(stats)
+    note = left_out_note(stats)
     print(f"wrote {stats['frames']} frames of training targets to {stats['out']}"
-          + (f" ({stats['skipped']} skipped: unreadable images)" if stats["skipped"] else ""))
+          + (f"; {note} (--states all takes every state)" if note else ""))
     return 0
 
 
@@ -278,7 +295,7 @@ def _check_targets(args: argparse.Namespace) -> int:
                 problems.append(f"{out / 'manifest.json'}: field skeleton: not the skeleton "
                                 f"of {args.project}")
     for problem in problems:
-        print(f"posewright: error: {problem}", file=sys.stderr)
+        print(f"posewright: error: {shown(problem)}", file=sys.stderr)
     if problems:
         return 2
     print(f"ok: {report.frames} frames checked in {out}")
@@ -318,11 +335,36 @@ def cmd_render(args: argparse.Namespace) -> int:
     return render_frame(args)
 
 
-def _states(text: str) -> list[FrameState]:
+def _states(text: str) -> list[FrameState] | None:
+    """The states an export takes: ``all`` (None), or a comma-separated list."""
+    if text.strip().lower() == "all":
+        return None
     try:
-        return [FrameState.parse(s) for s in text.split(",") if s.strip()]
+        states = [FrameState.parse(s) for s in text.split(",") if s.strip()]
     except ValueError as exc:
         raise BadInput(str(exc), where="--states") from None
+    if not states:
+        raise BadInput("no states named", where="--states", hint="e.g. corrected,signed-off")
+    return states
+
+
+#: What ``--states`` says in the help of every command that exports.
+_STATES_HELP = ("frames in these states, e.g. corrected,signed-off,disputed (default "
+                "corrected,signed-off: the frames a person has checked), or 'all'; a frame "
+                "whose image cannot be read is never exported; a warning names untouched or "
+                "disputed frames in the export")
+
+
+def _limits(args: argparse.Namespace) -> None:
+    """Apply ``--max-megapixels`` and ``--memory-budget-mb`` to this process."""
+    if getattr(args, "max_megapixels", None) is not None:
+        from app.formats.images import set_max_megapixels
+
+        set_max_megapixels(args.max_megapixels)
+    if getattr(args, "memory_budget_mb", None) is not None:
+        from app.inference.budget import set_budget_mb
+
+        set_budget_mb(args.memory_budget_mb)
 
 
 # ---------------------------------------------------------------------- wiring
@@ -344,6 +386,11 @@ def build_parser() -> argparse.ArgumentParser:
         p.set_defaults(fn=fn)
         return p
 
+    def pixel_limit(p: argparse.ArgumentParser) -> None:
+        p.add_argument("--max-megapixels", type=float, metavar="N",
+                       help="refuse to decode images over N megapixels (default: "
+                            "$POSEWRIGHT_MAX_MEGAPIXELS, else 100); larger ones are unreadable")
+
     def video_options(p: argparse.ArgumentParser) -> None:
         p.add_argument("--every", type=int, metavar="N",
                        help="with --video: keep every N-th frame (default 1)")
@@ -357,21 +404,24 @@ def build_parser() -> argparse.ArgumentParser:
                    help="video whose frames are extracted into PROJECT/frames/<name>/")
     video_options(p)
     p.add_argument("--skeleton", metavar="FILE.json", help="custom skeleton (default: COCO body)")
+    pixel_limit(p)
 
     p = command("add", cmd_add, "add the new images of a folder, or frames of a video")
     source = p.add_mutually_exclusive_group(required=True)
     source.add_argument("--images", metavar="DIR")
     source.add_argument("--video", metavar="FILE")
     video_options(p)
+    pixel_limit(p)
 
     p = command("import", cmd_import, "import COCO keypoints labels (dataset or results list)")
     p.add_argument("file", metavar="FILE.json")
     p.add_argument("--json", action="store_true", help="print the counts as JSON")
 
-    p = command("export", cmd_export, "export the labels as a COCO keypoints dataset")
+    p = command("export", cmd_export, "export the labels as a COCO keypoints dataset (by "
+                "default of the corrected and signed-off frames)")
     p.add_argument("--out", metavar="FILE.json", required=True)
-    p.add_argument("--states", metavar="LIST",
-                   help="only frames in these states, e.g. corrected,signed-off")
+    p.add_argument("--states", metavar="LIST", default="corrected,signed-off",
+                   help=_STATES_HELP)
 
     p = command("history", cmd_history, "show the ledger of edits, newest first")
     p.add_argument("--frame", metavar="ID", help="only this frame (id or file name)")
@@ -391,7 +441,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--limit", type=int, metavar="N", help="show only the N worst frames")
 
     p = command("targets", cmd_targets,
-                "write training targets (confidence maps, PAFs, loss masks) per frame")
+                "write training targets (confidence maps, PAFs, loss masks) per frame (by "
+                "default of the corrected and signed-off frames)")
     p.add_argument("out_dir", metavar="OUT_DIR", nargs="?")
     p.add_argument("--check", action="store_true",
                    help="re-read the export in OUT_DIR and verify shapes, ranges and the "
@@ -400,8 +451,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--sigma", type=float, default=7.0, help="confidence-map sigma, image px")
     p.add_argument("--limb-width", type=float, default=8.0, help="PAF half-width, image px")
     p.add_argument("--dtype", choices=("float16", "float32"), default="float32")
-    p.add_argument("--states", default="corrected,signed-off",
-                   help="frames in these states (default corrected,signed-off), or 'all'")
+    p.add_argument("--states", metavar="LIST", default="corrected,signed-off",
+                   help=_STATES_HELP)
 
     p = command("prelabel", cmd_prelabel,
                 "run an ONNX pose model on the CPU and store what it finds as auto-labels")
@@ -413,15 +464,21 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--frames", metavar="LIST",
                    help="frame ids and ranges (1,2,5-9), 'untouched' or 'all' (default all)")
     p.add_argument("--json", action="store_true", help="print the counts as JSON")
+    p.add_argument("--memory-budget-mb", type=float, metavar="MB",
+                   help="refuse a config whose tensors would need more than MB megabytes "
+                        "(default: $POSEWRIGHT_MEMORY_BUDGET_MB, else 2048)")
+    pixel_limit(p)
 
     p = command("open", cmd_open, "open the project in the desktop app")
     p.add_argument("--screenshot", metavar="FILE.png",
                    help="render the window showing the most suspicious frame to FILE and exit")
+    pixel_limit(p)
 
     p = command("render", cmd_render, "draw one frame with its labels, as the Canvas shows it")
     p.add_argument("--frame", metavar="ID", required=True, help="frame id or image file name")
     p.add_argument("--out", metavar="FILE.png", required=True)
     p.add_argument("--focus", metavar="PERSON", type=int, help="dim everyone but this person")
+    pixel_limit(p)
 
     p = command("demo", cmd_demo, "generate the synthetic demo scenario in DIR", project=False)
     p.add_argument("dir", metavar="DIR")
@@ -436,23 +493,34 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+class _ShownFormatter(logging.Formatter):
+    """Log lines on the terminal, escaped like everything else printed (library code logs
+    file names and paths as they are)."""
+
+    def format(self, record: logging.LogRecord) -> str:
+        return shown(super().format(record))
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
+    handler = logging.StreamHandler()
+    handler.setFormatter(_ShownFormatter("posewright: %(levelname)s: %(message)s"))
     logging.basicConfig(level=logging.INFO if args.verbose else logging.WARNING,
-                        format="posewright: %(levelname)s: %(message)s")
+                        handlers=[handler])
     try:
+        _limits(args)
         return int(args.fn(args))
     except Cancelled as exc:
-        print(f"posewright: {exc}; nothing was changed", file=sys.stderr)
+        print(f"posewright: {shown(exc)}; nothing was changed", file=sys.stderr)
         return 130
     except PosewrightError as exc:
-        print(f"posewright: error: {exc}", file=sys.stderr)
+        print(f"posewright: error: {shown(exc)}", file=sys.stderr)
         return exc.exit_status
     except KeyboardInterrupt:
         print("posewright: interrupted; the action in flight was not kept", file=sys.stderr)
         return 130
     except OSError as exc:
         where = f"{exc.filename}: " if exc.filename else ""
-        print(f"posewright: error: {where}{exc.strerror or exc}", file=sys.stderr)
+        print(f"posewright: error: {shown(where)}{shown(exc.strerror or exc)}", file=sys.stderr)
         return 2

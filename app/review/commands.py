@@ -1,6 +1,8 @@
 """The ``packet`` and ``compare`` commands of ``posewright`` (registered by app/cli.py).
 
-Nothing heavy is imported until a command runs, so building the parser stays quick.
+Nothing heavy is imported until a command runs, so building the parser stays quick. Text that
+came from a file (names, file names, joint names) is printed through
+:func:`app.safetext.shown`.
 """
 
 from __future__ import annotations
@@ -15,6 +17,8 @@ from pathlib import Path
 from typing import Any
 
 from app.errors import BadInput, ProjectLocked
+from app.review import DEFAULT_IMAGES, IMAGE_MODES
+from app.safetext import shown
 
 Command = Callable[..., argparse.ArgumentParser]
 
@@ -48,8 +52,10 @@ def register(sub: Any, command: Command) -> None:
     def action(name: str, fn: Callable[[argparse.Namespace], int],
                text: str) -> argparse.ArgumentParser:
         q = actions.add_parser(name, help=text, description=text)
-        q.add_argument("--author", help="who is working (default: the reviewer the packet "
-                                        "names, $POSEWRIGHT_AUTHOR or the login name)")
+        q.add_argument("--author", help="who is working; reviewing, the reviewer (default: "
+                                        "the one the review was first opened for, else the "
+                                        "reviewer the packet names, $POSEWRIGHT_AUTHOR or "
+                                        "the login name)")
         q.add_argument("-q", "--quiet", action="store_true", help="no progress on stderr")
         q.set_defaults(fn=fn)
         return q
@@ -59,9 +65,10 @@ def register(sub: Any, command: Command) -> None:
     q.add_argument("--frames", required=True, metavar="WHICH",
                    help="a state (disputed, untouched, ...) or frame ids 3,7,12")
     q.add_argument("--out", required=True, metavar="FILE.zip")
-    q.add_argument("--images", choices=("none", "full", "blurred-heads"), default="none",
-                   help="send no images (default), the images, or the images with heads "
-                        "blurred")
+    q.add_argument("--images", choices=IMAGE_MODES, default=DEFAULT_IMAGES,
+                   help="send the images with heads blurred (default), the images as they "
+                        "are, or none; an image that cannot be read, or that a link brings "
+                        "from outside the images folder, is never sent")
     q.add_argument("--reviewer", metavar="NAME", help="who is to review")
 
     q = action("show", cmd_show, "check a packet and say what it holds")
@@ -124,6 +131,9 @@ def cmd_export(args: argparse.Namespace) -> int:
     if stats["missing_images"]:
         print(f"posewright: warning: {stats['missing_images']} frames went without their "
               "image (missing or unreadable)", file=sys.stderr)
+    if stats["outside_images"]:
+        print(f"posewright: warning: {stats['outside_images']} frames went without their "
+              "image: it is a link to a file outside the images folder", file=sys.stderr)
     if stats["unplaced_heads"]:
         print(f"posewright: warning: {stats['unplaced_heads']} people have no labelled joint, "
               "so their heads could not be blurred", file=sys.stderr)
@@ -151,7 +161,7 @@ def cmd_show(args: argparse.Namespace) -> int:
         _print_json(info)
     else:
         for key, value in info.items():
-            print(f"{key:>12}: {value}")
+            print(f"{key:>12}: {shown(value)}")
     return 0
 
 
@@ -184,9 +194,9 @@ def cmd_merge(args: argparse.Namespace) -> int:
         return 0
     if report.already_merged:
         when = time.strftime("%Y-%m-%d %H:%M", time.localtime(report.merged_at or 0))
-        print(f"{args.returned}: already merged on {when}; nothing changed")
+        print(f"{shown(args.returned)}: already merged on {when}; nothing changed")
         return 0
-    print(f"merged {args.returned} from {report.reviewer}: {report.frames} frames, "
+    print(f"merged {shown(args.returned)} from {shown(report.reviewer)}: {report.frames} frames, "
           f"{report.joints_taken} joints taken, {report.people_added} people added, "
           f"{report.people_deleted} deleted, {report.notes_added} notes, "
           f"{len(report.conflicts)} conflicts")
@@ -240,18 +250,19 @@ def _fmt(x: float, spec: str = ".3f") -> str:
 
 
 def _print_comparison(result: Any, threshold: float | None, marked: list[int]) -> None:
-    print(f"A: {result.a}\nB: {result.b}")
+    print(f"A: {shown(result.a)}\nB: {shown(result.b)}")
     print(f"images compared: {len(result.frames)} (only in A: {len(result.only_a)}, "
           f"only in B: {len(result.only_b)}); mean OKS {_fmt(result.mean_oks)}")
     print(f"{'joint':<16}{'compared':>9}{'one side':>9}{'agree':>8}{'mean error':>11}"
           f"{'mean KS':>9}")
     for row in result.joints:
-        print(f"{row.name:<16}{row.compared:>9}{row.one_side:>9}{_fmt(row.agreement, '.1%'):>8}"
-              f"{_fmt(row.mean_error):>11}{_fmt(row.mean_similarity):>9}")
+        print(f"{shown(row.name):<16}{row.compared:>9}{row.one_side:>9}"
+              f"{_fmt(row.agreement, '.1%'):>8}{_fmt(row.mean_error):>11}"
+              f"{_fmt(row.mean_similarity):>9}")
     worst = sorted(result.frames, key=lambda f: f.mean_oks)[:10]
     print("lowest mean OKS:")
     for f in worst:
-        print(f"  {f.mean_oks:.3f}  {f.file_name:<28} {len(f.pairs)} pairs, "
+        print(f"  {f.mean_oks:.3f}  {shown(f.file_name):<28} {len(f.pairs)} pairs, "
               f"{len(f.unpaired_a)}+{len(f.unpaired_b)} unpaired, "
               f"{len(f.disagreements)} joints disagree")
     if threshold is not None:

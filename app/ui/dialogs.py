@@ -27,6 +27,7 @@ from PySide6.QtWidgets import (
 
 from app.errors import BadInput
 from app.formats.video import parse_time
+from app.review import DEFAULT_IMAGES
 
 
 class PathField(QWidget):
@@ -218,6 +219,7 @@ class PacketDialog(_Form):
         self.images = QComboBox()
         for value, text in IMAGE_CHOICES:
             self.images.addItem(text, value)
+        self.images.setCurrentIndex(self.images.findData(DEFAULT_IMAGES))
         self.reviewer = QLineEdit()
         self.reviewer.setPlaceholderText("who is to review (optional)")
         self.out = PathField("Write the packet to", folder, "Review packets (*.zip)",

@@ -20,7 +20,7 @@ def test_new_import_export_history(tmp_path, image_dir, coco_file, capsys):
     assert _run(capsys, "new", proj, "--images", image_dir, "-q")[0] == 0
     code, out, _ = _run(capsys, "import", proj, coco_file, "-q", "--json")
     assert code == 0 and json.loads(out)["people"] == 18
-    assert _run(capsys, "export", proj, "--out", tmp_path / "o.json")[0] == 0
+    assert _run(capsys, "export", proj, "--out", tmp_path / "o.json", "--states", "all")[0] == 0
     assert json.loads((tmp_path / "o.json").read_text()) == json.loads(coco_file.read_text())
     code, out, _ = _run(capsys, "history", proj, "--json")
     assert code == 0 and json.loads(out)[0]["kind"] == "import"

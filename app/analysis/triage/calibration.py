@@ -11,6 +11,7 @@ demo's true poses by :func:`app.demo.evaluate.judge_joints`.
 
 from __future__ import annotations
 
+import itertools
 import math
 from typing import Any
 
@@ -127,7 +128,7 @@ def reliability_table(predicted: Any, helped: Any,
     y = np.asarray(helped, dtype=np.float64).reshape(-1)
     bounds = list(edges)
     out = []
-    for n, (lo, hi) in enumerate(zip(bounds, bounds[1:])):
+    for n, (lo, hi) in enumerate(itertools.pairwise(bounds)):
         last = n == len(bounds) - 2
         inside = (p >= lo) & ((p <= hi) if last else (p < hi))
         if not inside.any():

@@ -281,7 +281,7 @@ def preview(labels: FrameLabels, edits: Sequence[Edit]) -> FixPreview:
     ((2, 9, 40.0, 60.0, 2),)
     """
     staged = labels
-    stand_in = max(list(labels.people) + [0]) + 1
+    stand_in = max([*labels.people, 0]) + 1
     merged = []
     for edit in edits:
         while needs_person_id(edit):
