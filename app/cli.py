@@ -490,6 +490,10 @@ def build_parser() -> argparse.ArgumentParser:
     from app.review.commands import register as register_review
 
     register_review(sub, command)
+    # Findings with proposed fixes, and undo/redo: app/findings_commands.py.
+    from app.findings_commands import register as register_findings
+
+    register_findings(sub, command)
     return parser
 
 

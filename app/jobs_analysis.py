@@ -235,25 +235,35 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
 
 def run_triage(project: Project, progress: Progress | None = None,
                frame_ids: Sequence[int] | None = None) -> dict[int, Any]:
-    """Triage every frame (or the given ones), store the scores and reasons, and return the
-    :class:`~app.analysis.triage.FrameTriage` of each frame by id."""
+    """Triage every frame (or the given ones), store the scores and reasons and the findings
+    with their proposed fixes, and return the :class:`~app.analysis.triage.FrameTriage` of
+    each frame by id (its ``findings`` filled in)."""
     from app.analysis.triage import triage_frame
+    from app.analysis.triage.findings import labels_digest
+    from app.jobs_findings import findings_of_frame
 
     progress = progress or Progress()
     frames = [f for f in project.frames() if frame_ids is None or f.id in set(frame_ids)]
-    people = project.people_by_frame()
     results = {}
+    digests = {}
     for n, f in enumerate(frames):
         progress.step(n, len(frames), "triage")
-        ps = people.get(f.id, [])
+        labels = project.labels(f.id)
+        ps = list(labels.people.values())
         maps = load_maps(project, f)
-        results[f.id] = triage_frame(
+        verdict = triage_frame(
             {p.id: p.keypoints for p in ps}, project.skeleton,
             scores={p.id: p.scores for p in ps}, maps=maps,
             image_size=(f.width, f.height) if f.width > 0 else None)
+        verdict.findings = findings_of_frame(project, f, labels, maps, verdict)
+        results[f.id] = verdict
+        digests[f.id] = labels_digest(labels)
     progress.step(len(frames), len(frames), "triage")
     project.store_triage({fid: (t.score, [r.to_dict() for r in t.reasons])
                           for fid, t in results.items()})
+    names = {f.id: f.file_name for f in frames}
+    project.store_findings({fid: (digests[fid], [x.to_dict(names[fid]) for x in t.findings])
+                            for fid, t in results.items()})
     return results
 
 

@@ -573,30 +573,41 @@ class Project:
 
     def findings(self, frame_id: int | None = None) -> dict[int, list[dict[str, Any]]]:
         """The stored findings (as :meth:`app.analysis.triage.findings.Finding.to_dict`
-        wrote them), worst first, by frame id; only one frame's with ``frame_id``."""
-        sql = "SELECT frame_id, data FROM findings"
-        args: list[Any] = []
-        if frame_id is not None:
-            sql += " WHERE frame_id = ?"
-            args.append(int(frame_id))
-        out: dict[int, list[dict[str, Any]]] = {}
+        wrote them), worst first, by frame id; only one frame's with ``frame_id``. A frame
+        whose findings were computed and found none maps to an empty list."""
+        where, args = ("", []) if frame_id is None else (" WHERE frame_id = ?", [int(frame_id)])
         with self._mutex:
-            for f, data in self._conn.execute(sql + " ORDER BY frame_id, position", args):
+            out: dict[int, list[dict[str, Any]]] = {
+                f: [] for (f,) in self._conn.execute(
+                    "SELECT frame_id FROM findings_state" + where, args)}
+            for f, data in self._conn.execute(
+                    "SELECT frame_id, data FROM findings" + where + " ORDER BY frame_id, position",
+                    args):
                 out.setdefault(f, []).append(json.loads(data))
         return out
 
-    def store_findings(self, results: dict[int, list[dict[str, Any]]]) -> None:
-        """Replace the findings of the given frames (one transaction, not ledgered: findings
-        are derived from the labels and the maps and can be recomputed at any time)."""
+    def findings_digests(self) -> dict[int, str]:
+        """Per frame, the digest of the labels its stored findings were computed from."""
+        with self._mutex:
+            return dict(self._conn.execute("SELECT frame_id, digest FROM findings_state"))
+
+    def store_findings(self, results: dict[int, tuple[str, list[dict[str, Any]]]]) -> None:
+        """Replace the findings of the given frames, each with the digest of the labels they
+        were computed from (one transaction, not ledgered: findings are derived from the
+        labels and the maps and can be recomputed at any time)."""
         self._check_writable()
+        now = time.time()
         with self._mutex, self._transaction():
             self._conn.executemany("DELETE FROM findings WHERE frame_id = ?",
                                    [(int(f),) for f in results])
             self._conn.executemany(
+                "INSERT OR REPLACE INTO findings_state VALUES (?, ?, ?)",
+                [(int(f), digest, now) for f, (digest, _) in results.items()])
+            self._conn.executemany(
                 "INSERT INTO findings VALUES (?, ?, ?, ?, ?, ?, ?)",
                 [(int(f), n, str(d["id"]), str(d["kind"]), d.get("person_id"),
                   float(d.get("confidence") or 0.0), json.dumps(d))
-                 for f, found in results.items() for n, d in enumerate(found)])
+                 for f, (_, found) in results.items() for n, d in enumerate(found)])
         self._notify("triage", results.keys())
 
     def history(self, frame_id: int | None = None, limit: int | None = None) -> list[LedgerEntry]:

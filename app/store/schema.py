@@ -39,8 +39,10 @@ Layout:
 - ``review_decisions`` (v3): in a project opened from a review packet, the reviewer's
   decision on each frame (agree, needs-change, signed-off), who made it and when.
 - ``findings`` (v4): each frame's findings from the last triage, worst first (``position``),
-  each a JSON object (:meth:`app.analysis.triage.findings.Finding.to_dict`). Derived data,
-  replaced whenever triage runs, never in the ledger.
+  each a JSON object (:meth:`app.analysis.triage.findings.Finding.to_dict`); beside them in
+  ``findings_state`` the digest of the labels they were computed from
+  (:func:`app.analysis.triage.findings.labels_digest`), so that stale ones are recomputed.
+  Derived data, replaced whenever triage runs, never in the ledger.
 - ``dismissals`` (v4): findings dismissed as not a problem, keyed by the fingerprint of the
   labels they were about (``value``: kind, finding id, text, author, time). Written only by
   :class:`app.model.edits.DismissFinding` edits, so every dismissal is in the ledger and undo
@@ -184,6 +186,11 @@ CREATE TABLE IF NOT EXISTS findings (
     confidence REAL NOT NULL,
     data       TEXT NOT NULL,
     PRIMARY KEY (frame_id, position)
+);
+CREATE TABLE IF NOT EXISTS findings_state (
+    frame_id INTEGER PRIMARY KEY REFERENCES frames(id) ON UPDATE CASCADE,
+    digest   TEXT NOT NULL,
+    computed REAL NOT NULL
 );
 CREATE TABLE IF NOT EXISTS dismissals (
     key      TEXT PRIMARY KEY,

@@ -13,30 +13,54 @@ from __future__ import annotations
 
 import itertools
 import math
+from collections.abc import Mapping
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 
-#: Per kind ``(a, b)``: ``confidence = sigmoid(a + b * strength)``.
-COEFFICIENTS: dict[str, tuple[float, float]] = {}
-#: Kinds without coefficients (not seen often enough in the fit) take this.
-DEFAULT: tuple[float, float] = (0.0, 0.0)
-#: A fix is proposed (and accepted by ``--accept``) only from this confidence on.
+#: A kind without coefficients (too rare in the fit) gets this confidence, below
+#: :data:`PROPOSE_AT`: without evidence that its fixes help, none is proposed.
+UNFITTED = (-2.0, 0.0)
+#: A fix is proposed (and accepted by ``--accept``) from this confidence on: when it is more
+#: likely to make the labels more right than not.
 PROPOSE_AT = 0.5
-#: The demo seeds the coefficients were fitted on.
-FITTED_ON: tuple[int, ...] = ()
+
+
+@dataclass(frozen=True)
+class Calibration:
+    """Per kind ``(a, b)`` of ``confidence = 1 / (1 + exp(-(a + b * strength)))``, the
+    confidence from which a fix is proposed, and the demo seeds it was fitted on."""
+
+    coefficients: Mapping[str, tuple[float, float]] = field(default_factory=dict)
+    propose_at: float = PROPOSE_AT
+    fitted_on: tuple[int, ...] = ()
+
+    def confidence(self, kind: str, strength: float) -> float:
+        """The probability that a fix of ``kind`` at ``strength`` helps.
+
+        Examples
+        --------
+        >>> round(Calibration({"split": (-1.0, 2.0)}).confidence("split", 1.0), 3)
+        0.731
+        """
+        a, b = self.coefficients.get(kind, UNFITTED)
+        return 1.0 / (1.0 + math.exp(-(a + b * float(strength))))
+
+
+#: The calibration the findings use, fitted by :mod:`app.demo.calibrate`.
+SHIPPED = Calibration({}, PROPOSE_AT, ())
 
 
 def confidence(kind: str, strength: float) -> float:
-    """The calibrated probability that a fix of ``kind`` at ``strength`` helps.
+    """:meth:`Calibration.confidence` of the shipped calibration.
 
     Examples
     --------
     >>> 0.0 < confidence("duplicate", 1.0) < 1.0
     True
     """
-    a, b = COEFFICIENTS.get(kind, DEFAULT)
-    return 1.0 / (1.0 + math.exp(-(a + b * float(strength))))
+    return SHIPPED.confidence(kind, strength)
 
 
 def fit_logistic(x: Any, y: Any, ridge: float = 1e-2, iterations: int = 50) -> tuple[float, float]:

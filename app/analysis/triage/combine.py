@@ -89,6 +89,8 @@ class FrameTriage:
     reasons: list[Reason]
     suspicion: dict[int, float] = field(default_factory=dict)
     crowd_index: float = 0.0
+    #: The frame's findings (:class:`app.analysis.triage.findings.Finding`), when computed.
+    findings: list[Any] = field(default_factory=list)
 
     @property
     def flagged(self) -> list[int]:

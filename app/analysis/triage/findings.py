@@ -41,7 +41,7 @@ from typing import Any
 
 import numpy as np
 
-from app.analysis.triage.calibration import PROPOSE_AT, confidence
+from app.analysis.triage.calibration import SHIPPED, Calibration
 from app.analysis.triage.combine import FrameTriage
 from app.analysis.triage.fixes import KINDS, FrameView, Proposal, propose
 from app.analysis.triage.frame import triage_frame
@@ -246,6 +246,31 @@ def fingerprint(kind: str, people: Mapping[int, np.ndarray], about: Iterable[int
     return hashlib.sha256(text.encode()).hexdigest()[:16]
 
 
+#: Changes whenever what findings are computed changes, so that stored findings made by an
+#: older version count as stale (:func:`labels_digest`).
+FINDINGS_VERSION = 1
+
+
+def labels_digest(labels: FrameLabels) -> str:
+    """A digest of what a frame's findings are computed from and filtered by: its people's
+    labels and its dismissals (and :data:`FINDINGS_VERSION`).
+
+    Examples
+    --------
+    >>> from app.model.skeleton import coco_body
+    >>> a = FrameLabels(1, coco_body(), {3: Person.blank(3, 17)})
+    >>> b = FrameLabels(1, coco_body(), {3: Person.blank(3, 17).with_joint(
+    ...     0, [5.0, 5.0, 2, None, "ana"])})
+    >>> labels_digest(a) == labels_digest(a), labels_digest(a) == labels_digest(b)
+    (True, False)
+    """
+    people = sorted(labels.people.items())
+    text = json.dumps([FINDINGS_VERSION, labels.frame_id, sorted(labels.dismissed),
+                       [[pid, np.round(np.nan_to_num(p.keypoints, nan=-1.0), 3).tolist()]
+                        for pid, p in people]], separators=(",", ":"))
+    return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+
 def _plain(value: Any) -> Any:
     if isinstance(value, np.ndarray):
         return value.tolist()
@@ -329,6 +354,7 @@ def frame_findings(
     triage: FrameTriage | None = None,
     dismissed: Iterable[str] = (),
     kinds: Iterable[str] | None = None,
+    calibration: Calibration = SHIPPED,
 ) -> list[Finding]:
     """A frame's findings, worst first.
 
@@ -353,6 +379,9 @@ def frame_findings(
         Fingerprints of dismissed findings: those findings are left out.
     kinds
         Only these kinds (default: all of :data:`~app.analysis.triage.fixes.KINDS`).
+    calibration
+        Turns a finding's strength into its confidence (default: the shipped one, see
+        :mod:`app.analysis.triage.calibration`).
 
     Returns
     -------
@@ -361,9 +390,9 @@ def frame_findings(
 
     Notes
     -----
-    A fix is proposed when its confidence reaches
-    :data:`~app.analysis.triage.calibration.PROPOSE_AT`; below it the finding still says
-    where the problem is, with ``fix`` None.
+    A fix is proposed when its confidence reaches the calibration's ``propose_at``; below it
+    the finding still says where the problem is, with ``fix`` None. Proposals of one kind
+    whose fixes would do the same (a swap found from both of its people) are one finding.
     """
     arrays = {int(p): np.asarray(v, dtype=np.float64) for p, v in people.items()}
     score_arrays = None if scores is None else {int(p): np.asarray(v, dtype=np.float64)
@@ -378,12 +407,14 @@ def frame_findings(
     for proposal in propose(view):
         if proposal.kind not in wanted:
             continue
-        finding = _finding(view, labels, proposal)
+        effect = preview(labels, proposal.edits) if proposal.edits else None
+        finding = _finding(view, labels, proposal, calibration, effect)
         if finding.fingerprint in skip:
             continue
-        known = out.get(finding.id)
+        key = finding.id if effect is None else json.dumps([finding.kind, effect.to_dict()])
+        known = out.get(key)
         if known is None or finding.confidence > known.confidence:
-            out[finding.id] = finding
+            out[key] = finding
     return sorted(out.values(), key=lambda f: (-f.confidence, KINDS.index(f.kind), f.id))
 
 
@@ -398,12 +429,13 @@ def _labels(frame_id: int, skeleton: Skeleton, people: Mapping[int, np.ndarray],
     return FrameLabels(frame_id, skeleton, made)
 
 
-def _finding(view: FrameView, labels: FrameLabels, p: Proposal) -> Finding:
+def _finding(view: FrameView, labels: FrameLabels, p: Proposal, calibration: Calibration,
+             effect: FixPreview | None) -> Finding:
     names: Names = view.names
-    conf = confidence(p.kind, p.strength)
+    conf = calibration.confidence(p.kind, p.strength)
     fix = None
-    if p.edits and conf >= PROPOSE_AT:
-        fix = Fix(p.summary, p.edits, preview(labels, p.edits))
+    if effect is not None and conf >= calibration.propose_at:
+        fix = Fix(p.summary, p.edits, effect)
     touched = sorted({pid for pid in p.people} | ({p.person} if p.person is not None else set()))
     place = [list(p.joints), [list(r) for r in p.extra]]
     key = json.dumps([view.frame_id, p.kind, p.person, list(p.joints), touched])
@@ -411,5 +443,6 @@ def _finding(view: FrameView, labels: FrameLabels, p: Proposal) -> Finding:
     return Finding(
         ident, view.frame_id, p.kind, p.person,
         None if p.person is None else names.tag(p.person), p.joints,
-        tuple(names.joint(j) for j in p.joints), p.text, p.evidence, p.strength, conf, fix,
-        tuple(touched), fingerprint(p.kind, view.people, touched, place))
+        tuple(names.joint(j) for j in p.joints), p.text,
+        tuple((k, round(float(v), 4)) for k, v in p.evidence), round(float(p.strength), 4),
+        round(conf, 4), fix, tuple(touched), fingerprint(p.kind, view.people, touched, place))

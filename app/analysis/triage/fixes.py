@@ -316,7 +316,7 @@ def body_chains(skeleton: Skeleton) -> list[tuple[int, ...]]:
     (True, True)
     """
     k = skeleton.num_joints
-    adjacency = [set() for _ in range(k)]
+    adjacency: list[set[int]] = [set() for _ in range(k)]
     for a, b in skeleton.limbs:
         adjacency[a].add(b)
         adjacency[b].add(a)
@@ -451,8 +451,8 @@ def splits(view: FrameView) -> list[Proposal]:
             a, b = sorted((r.person, r.other))
             pairs.add((a, b))
     for p, q in sorted(pairs):
-        a, b = view.people[p], view.people[q]
-        keep, gone = (p, q) if (a[:, 2] > 0).sum() >= (b[:, 2] > 0).sum() else (q, p)
+        first, second = view.people[p], view.people[q]
+        keep, gone = (p, q) if (first[:, 2] > 0).sum() >= (second[:, 2] > 0).sum() else (q, p)
         union = np.where((view.people[gone][:, 2] > 0)[:, None], view.people[gone],
                          view.people[keep])
         evidence = view.body_evidence(keep, union)
@@ -566,7 +566,7 @@ def crossed(view: FrameView) -> list[Proposal]:
             if r.kind != "crossed-sides" or len(r.joints) != 2 or set(r.joints) & done:
                 continue
             a, b = r.joints
-            options = [(a,)]
+            options: list[tuple[int, ...]] = [(a,)]
             for chain in view.chains:
                 if a in chain and flip[a] == b and all(
                         (j in chain) == (flip[j] in chain) or flip[j] == j for j in chain):
@@ -696,22 +696,23 @@ def wrong_owners(view: FrameView, people: Sequence[int] | None = None) -> list[P
     hypotheses.sort(key=lambda h: (-h[0], h[1], h[2], -1 if h[3] is None else h[3]))
     used: set[int] = set()
     n = view.names
-    for drop, p, chain, q in hypotheses:
+    for drop, p, chain, receiver in hypotheses:
         if drop < OWNER_GAIN:
             break
-        involved: tuple[int, ...] = (p,) if q is None else (p, q)
+        involved: tuple[int, ...] = (p,) if receiver is None else (p, receiver)
         if used & set(involved):
             continue
         used.update(involved)
         strength = ramp(drop, OWNER_GAIN, 3 * OWNER_GAIN)
         mine = tuple(j for j in chain if view.people[p][j, 2] > 0)
         joints = n.joints(mine)
-        if q is None:
+        if receiver is None:
             edits: list[Edit] = [SetVisibility(view.frame_id, p, j, 0) for j in mine]
             text = (f"{n.person(p)}'s {joints} fit no one's body here: without them the labels "
                     f"are {np.exp(drop):.0f} times as likely")
             summary = f"mark {n.person(p)}'s {joints} unlabeled"
         else:
+            q = receiver
             theirs = tuple(j for j in chain if view.people[q][j, 2] > 0)
             edits = [ReassignJoint(view.frame_id, p, j, q) for j in mine]
             edits += [ReassignJoint(view.frame_id, q, j, p) for j in theirs if j not in mine]
@@ -738,7 +739,7 @@ def _body_regions(view: FrameView, pid: int) -> list[tuple[np.ndarray, np.ndarra
     sk = view.skeleton
     kp = view.people[pid]
     scale = view.scale(pid)
-    out = []
+    out: list[tuple[np.ndarray, np.ndarray, float]] = []
     if not np.isfinite(scale):
         return out
     shoulders, hips = pair_index(sk, "shoulder"), pair_index(sk, "hip")

@@ -1,0 +1,239 @@
+"""Jobs on findings: compute and keep them, accept their fixes in bulk, dismiss them.
+
+Shared by the command line and (later) the app. Findings are derived data: triage computes and
+stores them beside its scores (:func:`app.jobs_analysis.run_triage`), each frame's with the
+digest of the labels they came from, so that a frame whose labels (or dismissals) changed since
+is recomputed when its findings are next read. Accepting a fix applies its edits as one ledger
+group credited to the project's author; dismissing a finding is a
+:class:`~app.model.edits.DismissFinding` edit. Both can be undone.
+"""
+
+from __future__ import annotations
+
+import logging
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+from app.analysis.triage.findings import Finding, frame_findings, labels_digest
+from app.analysis.triage.fixes import KINDS
+from app.errors import BadInput, EditRefused, NotFound
+from app.model.edits import DismissFinding, EditGroup
+from app.model.labels import Frame, FrameLabels
+from app.progress import Progress
+from app.store.project import Project
+
+log = logging.getLogger(__name__)
+
+#: Rounds of accepting: after each, the frames that changed are triaged again and the fixes
+#: that are still proposed (those an earlier fix of the round kept back) are accepted next.
+ACCEPT_ROUNDS = 3
+
+
+def findings_of_frame(project: Project, frame: Frame, labels: FrameLabels | None = None,
+                      maps: Any = None, triage: Any = None) -> list[Finding]:
+    """One frame's findings computed now from its labels, scores, maps and dismissals.
+
+    ``maps`` default to the frame's stored network maps; ``triage`` (its
+    :class:`~app.analysis.triage.FrameTriage`) is computed when not given.
+    """
+    from app.jobs_analysis import load_maps
+
+    labels = labels or project.labels(frame.id)
+    if maps is None:
+        maps = load_maps(project, frame)
+    return frame_findings(
+        frame.id, {p.id: p.keypoints for p in labels.people.values()}, project.skeleton,
+        scores={p.id: p.scores for p in labels.people.values()}, maps=maps,
+        image_size=(frame.width, frame.height) if frame.width > 0 else None, triage=triage,
+        dismissed=labels.dismissed)
+
+
+def current_findings(project: Project, frame_ids: Iterable[int] | None = None,
+                     progress: Progress | None = None) -> dict[int, list[Finding]]:
+    """Every (or the given) frame's findings, worst first, as they stand now.
+
+    Stored findings are used where the frame's labels and dismissals are those they were
+    computed from; the other frames are triaged again (and stored, unless the project is
+    read-only). A project without any triage result is triaged first.
+    """
+    from app.jobs_analysis import run_triage
+
+    frames = [f for f in project.frames() if frame_ids is None or f.id in set(frame_ids)]
+    stored = project.findings()
+    digests = project.findings_digests()
+    stale = [f for f in frames
+             if f.id not in stored or digests.get(f.id) != labels_digest(project.labels(f.id))]
+    fresh: dict[int, list[Finding]] = {}
+    if stale:
+        if project.read_only:
+            for f in stale:
+                fresh[f.id] = findings_of_frame(project, f)
+        else:
+            for fid, verdict in run_triage(project, progress,
+                                           frame_ids=[f.id for f in stale]).items():
+                fresh[fid] = verdict.findings
+    return {f.id: fresh[f.id] if f.id in fresh else
+            [Finding.from_dict(d) for d in stored.get(f.id, [])] for f in frames}
+
+
+def parse_kinds(text: str | None, where: str = "--kinds") -> set[str] | None:
+    """``all`` (None), or a comma-separated list of kinds of finding.
+
+    Examples
+    --------
+    >>> sorted(parse_kinds("duplicate, split"))
+    ['duplicate', 'split']
+    >>> parse_kinds("all") is None
+    True
+    """
+    if text is None or text.strip().lower() == "all":
+        return None
+    kinds = {k.strip().lower() for k in text.split(",") if k.strip()}
+    unknown = sorted(kinds - set(KINDS))
+    if unknown or not kinds:
+        raise BadInput(f"{', '.join(unknown) or 'nothing'} is not a kind of finding; one of "
+                       f"{', '.join(KINDS)} or 'all'", where=where)
+    return kinds
+
+
+@dataclass
+class Accepted:
+    """What :func:`accept_fixes` did (or, for a dry run, would do)."""
+
+    fixes: list[Finding] = field(default_factory=list)
+    #: Fixes left for a later round because an earlier fix changed one of their people.
+    held_back: int = 0
+    #: Fixes the store refused (the labels had moved on); nothing of them was applied.
+    refused: int = 0
+
+    @property
+    def frames(self) -> list[int]:
+        return sorted({f.frame_id for f in self.fixes})
+
+
+def select_fixes(findings: Sequence[Finding], kinds: set[str] | None = None,
+                 min_confidence: float = 0.0) -> tuple[list[Finding], int]:
+    """The fixes of one frame to accept together, and how many were held back.
+
+    Notes
+    -----
+    Fixes go in the order of :data:`~app.analysis.triage.fixes.KINDS` (whole people first,
+    then sides, owners, visibility, additions), most confident first within a kind; a fix
+    about a person an earlier chosen fix changes waits for the next round, when the frame's
+    findings are computed again from the changed labels.
+    """
+    ready = [f for f in findings if f.fix is not None and f.confidence >= min_confidence
+             and (kinds is None or f.kind in kinds)]
+    ready.sort(key=lambda f: (KINDS.index(f.kind), -f.confidence, f.id))
+    chosen: list[Finding] = []
+    busy: set[int] = set()
+    held = 0
+    for f in ready:
+        if busy & set(f.people):
+            held += 1
+            continue
+        busy.update(f.people)
+        chosen.append(f)
+    return chosen, held
+
+
+def accept_fixes(project: Project, kinds: set[str] | None = None, min_confidence: float = 0.0,
+                 frame_ids: Iterable[int] | None = None, dry_run: bool = False,
+                 progress: Progress | None = None) -> Accepted:
+    """Apply the proposed fixes of the given kinds, each as one ledger group.
+
+    Parameters
+    ----------
+    project
+        The project (writable unless ``dry_run``).
+    kinds
+        Only fixes of these kinds (None: all).
+    min_confidence
+        Only fixes at least this confident.
+    frame_ids
+        Only these frames (None: all).
+    dry_run
+        List what would be accepted in the first round and change nothing.
+    progress
+        Told about each frame.
+
+    Returns
+    -------
+    Accepted
+
+    Notes
+    -----
+    Each fix is all or nothing: its edits go in as one :class:`~app.model.edits.EditGroup`,
+    which the store refuses whole when the labels have moved on. Per frame the fixes are
+    chosen by :func:`select_fixes`; after a round the changed frames are triaged again and up
+    to :data:`ACCEPT_ROUNDS` rounds accept what is still proposed. A project without triage
+    results is triaged first.
+    """
+    from app.jobs_analysis import run_triage
+
+    progress = progress or Progress()
+    wanted = None if frame_ids is None else set(frame_ids)
+    found = current_findings(project, wanted, progress)
+    out = Accepted()
+    todo = sorted(found)
+    for _ in range(1 if dry_run else ACCEPT_ROUNDS):
+        changed = []
+        out.held_back = 0
+        for n, fid in enumerate(todo):
+            progress.step(n, len(todo), "accepting fixes")
+            chosen, held = select_fixes(found.get(fid, []), kinds, min_confidence)
+            out.held_back += held
+            for finding in chosen:
+                if dry_run:
+                    out.fixes.append(finding)
+                    continue
+                assert finding.fix is not None
+                group = EditGroup(fid, finding.fix.edits,
+                                  f"accept finding {finding.id}: {finding.fix.summary}")
+                try:
+                    project.apply(group)
+                except EditRefused as exc:
+                    log.warning("fix of finding %s not applied: %s", finding.id, exc)
+                    out.refused += 1
+                    continue
+                out.fixes.append(finding)
+                if fid not in changed:
+                    changed.append(fid)
+        progress.step(len(todo), len(todo), "accepting fixes")
+        if dry_run or not changed:
+            break
+        again = run_triage(project, frame_ids=changed)
+        found = {fid: verdict.findings for fid, verdict in again.items()}
+        todo = changed
+    return out
+
+
+def find_finding(project: Project, finding_id: str) -> Finding:
+    """A current finding by its id (the ids :func:`current_findings` gives)."""
+    for found in current_findings(project).values():
+        for f in found:
+            if f.id == finding_id:
+                return f
+    raise NotFound(f"no current finding {finding_id!r}; list them with `posewright findings`")
+
+
+def dismiss(project: Project, finding_ids: Iterable[str]) -> list[Finding]:
+    """Record each finding as not a problem (one undoable ledger edit each).
+
+    A dismissed finding is not raised again while the labels it was about stay the same.
+    """
+    wanted = [str(i).strip() for i in finding_ids if str(i).strip()]
+    current = {f.id: f for found in current_findings(project).values() for f in found}
+    missing = [i for i in wanted if i not in current]
+    if missing:
+        raise NotFound(f"no current finding {missing[0]!r}; list them with "
+                       "`posewright findings`")
+    done = []
+    for i in wanted:
+        f = current[i]
+        project.apply(DismissFinding(f.frame_id, f.fingerprint, f.kind, f.id, f.text))
+        done.append(f)
+    if done and not project.read_only:
+        current_findings(project, {f.frame_id for f in done})
+    return done
