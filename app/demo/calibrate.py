@@ -321,7 +321,8 @@ def format_table(figures: Sequence[AcceptFigure]) -> str:
     """The accept-all figure per demo and the per-kind table of their sum, as Markdown."""
     lines = ["| demo | wrong before | wrong after | removed | correct before | correct after "
              "| change |", "|---|---:|---:|---:|---:|---:|---:|"]
-    for f in [*figures, sum(figures[1:], figures[0])] if figures else []:
+    rows = [*figures, sum(figures[1:], figures[0])] if len(figures) > 1 else list(figures)
+    for f in rows:
         lines.append(f"| {f.demo} | {f.before.wrong} | {f.after.wrong} | "
                      f"{f.removed_share:.1%} | {f.before.correct} | {f.after.correct} | "
                      f"{f.correct_change:+.1%} |")

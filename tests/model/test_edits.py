@@ -11,7 +11,9 @@ from app.model import (
     AddRegion,
     DeletePerson,
     DeleteRegion,
+    DismissFinding,
     EditContext,
+    EditGroup,
     FrameLabels,
     FrameState,
     MergePeople,
@@ -25,6 +27,8 @@ from app.model import (
     SplitPerson,
     SwapSides,
     coco_body,
+    edit_from_value,
+    edit_to_value,
 )
 
 SK = coco_body()
@@ -145,6 +149,9 @@ def _edit_from(choice, labels):
         lambda: AddRegion(1, ((x, y, x + 5, y, x, y + 5),), 200 + a),
         lambda: DeleteRegion(1, 200 + b),
         lambda: ReshapeRegion(1, 200 + b, ((x, y, x + 7, y, x, y + 3),)),
+        lambda: DismissFinding(1, f"key{b % 3}", "duplicate", f"F{a}"),
+        lambda: EditGroup(1, (MoveJoint(1, pid, j, x, y), SetVisibility(1, pid, j, a % 3),
+                              ReassignJoint(1, pid, (j + 1) % 17, other))),
     ]
     return options[kind % len(options)]()
 
@@ -170,3 +177,49 @@ def test_any_edit_sequence_inverted_in_reverse_gives_the_start(seq):
     for inverse in reversed(inverses):
         labels, _ = inverse.apply(labels, CTX)
     assert labels.same_as(start)
+
+
+def test_a_group_is_planned_in_order_and_refused_whole():
+    """Each edit of a group sees the labels the ones before it leave; a refused edit refuses
+    the whole group, the labels unchanged."""
+    labels = _frame(_person(1, (10, 10)), _person(2, (50, 20), labelled=[0]))
+    group = EditGroup(1, (MoveJoint(1, 1, 9, 5.0, 6.0), ReassignJoint(1, 1, 9, 2)))
+    new, changes = group.apply(labels, CTX)
+    assert new.people[2].keypoints[9].tolist() == [5.0, 6.0, 2]
+    assert new.people[1].keypoints[9, 2] == 0
+    assert len(changes) == 3
+    refused = EditGroup(1, (MoveJoint(1, 1, 9, 5.0, 6.0), ReassignJoint(1, 2, 9, 1)))
+    with pytest.raises(EditRefused):
+        refused.apply(labels, CTX)
+    with pytest.raises(EditRefused):
+        EditGroup(1, (MoveJoint(2, 1, 9, 5.0, 6.0),)).apply(labels, CTX)
+
+
+def test_a_dismissal_records_who_and_is_undone_by_its_inverse():
+    labels = _frame(_person(1, (10, 10)))
+    edit = DismissFinding(1, "abc123", "duplicate", "F1", "person 1 is found twice")
+    new, _ = edit.apply(labels, CTX)
+    assert new.dismissed["abc123"] == {"kind": "duplicate", "finding": "F1",
+                                       "text": "person 1 is found twice", "author": "ana",
+                                       "time": 1000.0}
+    assert edit.apply(new, CTX)[1] == []  # dismissing again changes nothing
+    back, _ = edit.invert(labels, CTX).apply(new, CTX)
+    assert back.same_as(labels)
+
+
+def test_edits_round_trip_through_their_values():
+    """The edits a fix is made of survive the JSON the store keeps them in."""
+    import json
+
+    edits = [MoveJoint(3, 12, 9, 40.5, 60.25), SetVisibility(3, 12, 9, 0),
+             ReassignJoint(3, 12, 9, 14), NewPerson(3, None, ((1.0, 2.0, 2),) * 17),
+             DeletePerson(3, 12), MergePeople(3, 12, 14), SplitPerson(3, 12, (1, 2)),
+             SwapSides(3, 12), SetFrameState(3, FrameState.CORRECTED),
+             DismissFinding(3, "k", "split", "F2", "t"),
+             EditGroup(3, (MoveJoint(3, 12, 9, 1.0, 2.0), DeletePerson(3, 14)), "fix")]
+    for edit in edits:
+        assert edit_from_value(json.loads(json.dumps(edit_to_value(edit)))) == edit
+    with pytest.raises(EditRefused):
+        edit_to_value(AddNote(3, "a note"))
+    with pytest.raises(EditRefused):
+        edit_from_value({"op": "Nothing"})
