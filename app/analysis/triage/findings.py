@@ -321,15 +321,14 @@ def preview(labels: FrameLabels, edits: Sequence[Edit]) -> FixPreview:
         if before is None:
             created.append(tuple((float(x), float(y), int(v)) for x, y, v in after.keypoints))
             continue
-        for j in range(labels.num_joints):
-            (bx, by, bv), (ax, ay, av) = before.keypoints[j], after.keypoints[j]
-            same_place = bool(np.isclose(bx, ax) and np.isclose(by, ay))
-            if bv > 0 and av <= 0:
-                unlabeled.append((pid, j))
-            elif av > 0 and (bv <= 0 or not same_place):
-                placed.append((pid, j, float(ax), float(ay), int(av)))
-            elif av == 1 and bv == 2:
-                occluded.append((pid, j))
+        b, a = before.keypoints, after.keypoints
+        same_place = np.isclose(b[:, 0], a[:, 0]) & np.isclose(b[:, 1], a[:, 1])
+        for j in np.flatnonzero((b[:, 2] > 0) & (a[:, 2] <= 0)).tolist():
+            unlabeled.append((pid, j))
+        for j in np.flatnonzero((a[:, 2] > 0) & ((b[:, 2] <= 0) | ~same_place)).tolist():
+            placed.append((pid, j, float(a[j, 0]), float(a[j, 1]), int(a[j, 2])))
+        for j in np.flatnonzero((a[:, 2] == 1) & (b[:, 2] == 2) & same_place).tolist():
+            occluded.append((pid, j))
     for pid, before in labels.people.items():
         if pid in staged.people:
             continue

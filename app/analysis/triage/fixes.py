@@ -98,10 +98,12 @@ LINK_SLACK = 1.3
 #: ``SHAPE_SURE``), are one body found twice.
 DUPLICATE_FROM = 0.2
 SHAPE_FROM, SHAPE_SURE = 0.02, 0.005
-#: Mirrored: the weaker side's mean ear and shoulder score over the stronger side's; below
-#: ``BALANCE_FROM`` one side is hidden (which explains a faint face), from ``BALANCE_SURE``
-#: both show as they do from behind.
-BALANCE_FROM, BALANCE_SURE = 0.45, 0.65
+#: Mirrored: the face's median score over the ears' and shoulders' counts from ``FACE_FROM``
+#: and is sure at ``FACE_SURE``; the faintest of the ears and shoulders over the brightest
+#: counts from ``BALANCE_FROM`` (below, a side is hidden, which explains a faint face) and is
+#: sure at ``BALANCE_SURE`` (both sides show, as they do from behind).
+FACE_FROM, FACE_SURE = 0.75, 0.55
+BALANCE_FROM, BALANCE_SURE = 0.2, 0.45
 #: Split: the union of two halves is one body when triage's body evidence against it falls
 #: from ``SPLIT_FROM`` to ``SPLIT_SURE`` (log-odds).
 SPLIT_FROM, SPLIT_SURE = 4.0, 0.5
@@ -511,35 +513,44 @@ def mirrored_people(view: FrameView) -> list[Proposal]:
 
     Notes
     -----
-    Triage's ``mirrored`` check (:func:`app.analysis.triage.body.mirrored`) compares the face
-    scores with the ears' and shoulders'. Seen from behind, both shoulders and both ears show
-    about equally; when one side scores far lower than the other, that side is partly hidden
-    (by a neighbour, or a turn), which explains a faint face as well. ``balance``: the weaker
-    side's mean score (ear and shoulder) over the stronger side's, ramped from
-    ``BALANCE_FROM`` (0.45) to ``BALANCE_SURE`` (0.65). Strength: the reason's strength times
-    that ramp. Fix: swap the person's left and right joints.
+    Triage's ``mirrored`` check (:func:`app.analysis.triage.body.mirrored`) finds a body
+    labelled as facing the camera whose face scores low against its ears and shoulders. The
+    fix weighs two things. Seen from behind the face is hidden as a whole: ``q``, the median
+    score of the face joints (nose, eyes) over the mean of the ears' and shoulders', ramped
+    from ``FACE_FROM`` (0.75) to ``FACE_SURE`` (0.55). Seen from behind both ears and both
+    shoulders show: ``balance``, the faintest of the four over the brightest, ramped from
+    ``BALANCE_FROM`` (0.2) to ``BALANCE_SURE`` (0.45); a side far fainter than the other is
+    hidden (by a neighbour, or a turn), which explains a faint face as well. Strength: the
+    product of the two ramps. Fix: swap the person's left and right joints. Common practice,
+    no source.
     """
     out: list[Proposal] = []
-    sides = pair_index(view.skeleton, "ear", "shoulder")
+    if view.scores is None:
+        return out
+    sk = view.skeleton
+    idx = {name: i for i, name in enumerate(sk.joints)}
+    face = [idx[name] for name in ("nose", "left_eye", "right_eye") if name in idx]
+    sides = [j for pair in pair_index(sk, "ear", "shoulder") for j in pair]
     for p in view.present:
         found = [r for r in view.reasons.get(p, []) if r.kind == "mirrored"]
-        mine = view.scores.get(p) if view.scores is not None else None
+        mine = view.scores.get(p)
         if not found or mine is None:
             continue
         on = (view.people[p][:, 2] > 0) & np.isfinite(mine)
-        left = [mine[a] for a, _ in sides if on[a]]
-        right = [mine[b] for _, b in sides if on[b]]
-        balance = 1.0
-        if left and right:
-            lo, hi = sorted((float(np.mean(left)), float(np.mean(right))))
-            balance = lo / hi if hi > 0 else 0.0
-        strength = found[0].strength * ramp(balance, BALANCE_FROM, BALANCE_SURE)
+        seen = [j for j in face if on[j]]
+        rest = [j for j in sides if on[j]]
+        if not seen or not rest or float(np.max(mine[rest])) <= 0:
+            continue
+        q = float(np.median(mine[seen])) / float(np.mean(mine[rest]))
+        balance = float(np.min(mine[rest])) / float(np.max(mine[rest])) \
+            if len(rest) == len(sides) else 0.0
+        strength = ramp(q, FACE_FROM, FACE_SURE) * ramp(balance, BALANCE_FROM, BALANCE_SURE)
         n = view.names
-        text = (f"{n.person(p)} is labelled as facing the camera, but the model hardly sees "
-                f"its face while it sees both shoulders alike ({balance:.2f}): seen from "
+        text = (f"{n.person(p)} is labelled as facing the camera, but the model sees its face "
+                f"{q:.2f} as well as its ears and shoulders, and both sides alike: seen from "
                 "behind, with left and right swapped")
         out.append(Proposal("mirrored", p, found[0].joints, text, strength,
-                            (("face_strength", found[0].strength), ("side_balance", balance)),
+                            (("face_ratio", q), ("side_balance", balance)),
                             (SwapSides(view.frame_id, p),), (p,),
                             f"swap the left and right joints of {n.person(p)}"))
     return out
@@ -753,10 +764,11 @@ def _body_regions(view: FrameView, pid: int) -> list[tuple[np.ndarray, np.ndarra
     return out
 
 
-def _inside(point: np.ndarray, a: np.ndarray, b: np.ndarray, radius: float) -> bool:
+def _inside(points: np.ndarray, a: np.ndarray, b: np.ndarray, radius: float) -> np.ndarray:
+    """``(n,)`` whether each point ``(n, 2)`` lies within ``radius`` of the segment a-b."""
     d = b - a
-    t = float(np.clip((point - a) @ d / max(float(d @ d), 1e-9), 0.0, 1.0))
-    return bool(np.hypot(*(point - a - t * d)) < radius)
+    t = np.clip((points - a) @ d / max(float(d @ d), 1e-9), 0.0, 1.0)
+    return np.hypot(*(points - a - t[:, None] * d).T) < radius
 
 
 def covered_joints(view: FrameView) -> dict[int, list[tuple[int, int]]]:
@@ -778,11 +790,15 @@ def covered_joints(view: FrameView) -> dict[int, list[tuple[int, int]]]:
             continue
         nearer = [q for q in view.present if q != p and regions[q]
                   and view.depth.get(q, np.nan) > view.depth[p] + 0.02 * view.scale(p)]
-        for j in np.flatnonzero(kp[:, 2] > 0).tolist():
-            for q in nearer:
-                if any(_inside(kp[j, :2], a, b, r) for a, b, r in regions[q]):
-                    out.setdefault(p, []).append((j, q))
-                    break
+        joints = np.flatnonzero(kp[:, 2] > 0)
+        cover = np.full(len(joints), -1)
+        for q in nearer:
+            for a, b, radius in regions[q]:
+                inside = _inside(kp[joints, :2], a, b, radius) & (cover < 0)
+                cover[inside] = q
+        found = [(int(j), int(q)) for j, q in zip(joints.tolist(), cover.tolist()) if q >= 0]
+        if found:
+            out[p] = found
     return out
 
 
