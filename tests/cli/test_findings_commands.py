@@ -1,0 +1,137 @@
+"""``findings``, ``undo`` and ``redo`` from the command line, on a project of synthetic people
+(tests/analysis/synth.py, invented): on frame 1 a body and a faint copy of its upper body at
+one shift (found twice), on frame 2 a body cut into upper and lower halves, elsewhere plain
+bodies. The one-line errors with status 2 are our own command-line convention (README,
+"Commands").
+"""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+
+from app.cli import main
+from app.model import Person
+from app.store import Project
+from tests.analysis.synth import person
+
+KEYS = {"id", "frame_id", "file_name", "kind", "person_id", "tag", "joints", "text",
+        "confidence", "fix"}
+
+
+@pytest.fixture
+def proj(tmp_path, image_dir):
+    rng = np.random.default_rng(5)
+    folder = tmp_path / "p"
+    with Project.create(folder, images=image_dir, author="ana") as project:
+        frames = project.frames()
+        body = person(rng, (110.0, 120.0), 120.0)
+        copy = body.copy()
+        copy[:, :2] += (6.0, 5.0)
+        copy[11:, 2] = 0
+        whole = person(rng, (220.0, 120.0), 120.0)
+        upper, lower = whole.copy(), whole.copy()
+        upper[11:, 2] = 0
+        lower[:11, 2] = 0
+        rows = [(frames[0].id, body, 0.9), (frames[0].id, copy, 0.5),
+                (frames[1].id, upper, 0.9), (frames[1].id, lower, 0.9)]
+        rows += [(f.id, person(rng, (160.0, 120.0), 120.0), 0.9) for f in frames[2:]]
+        with project.bulk("SyntheticPeople", "synthetic people", "test") as b:
+            first = b.allocate_person_ids(len(rows))
+            b.add_people([(fid, Person(first + n, kp, np.where(kp[:, 2] > 0, s, np.nan),
+                                       ("auto",) * 17)) for n, (fid, kp, s) in enumerate(rows)])
+    return folder
+
+
+def _people(folder):
+    with Project.open(folder, read_only=True) as p:
+        return {f.id: {q.id: q.keypoints.copy() for q in p.people(f.id)} for f in p.frames()}
+
+
+def _same(a, b):
+    assert a.keys() == b.keys()
+    for f in a:
+        assert a[f].keys() == b[f].keys()
+        for pid in a[f]:
+            np.testing.assert_array_equal(a[f][pid], b[f][pid])
+
+
+def test_findings_json_lists_each_problem_with_its_fix(proj, capsys):
+    assert main(["findings", str(proj), "--json", "-q"]) == 0
+    rows = json.loads(capsys.readouterr().out)
+    assert rows and all(KEYS <= set(r) for r in rows)
+    confidences = [r["confidence"] for r in rows]
+    assert confidences == sorted(confidences, reverse=True)
+    kinds = {(r["frame_id"], r["kind"]) for r in rows if r["fix"] is not None}
+    assert (1, "duplicate") in kinds and (2, "split") in kinds
+    dup = next(r for r in rows if r["kind"] == "duplicate")
+    assert dup["file_name"] == "frame_0000.jpg" and dup["tag"] == 2
+    assert dup["fix"]["summary"].startswith("delete person 2")
+    assert [e["op"] for e in dup["fix"]["edits"]][-1] == "DeletePerson"
+    assert main(["findings", str(proj), "--json", "-q", "--kinds", "split"]) == 0
+    assert {r["kind"] for r in json.loads(capsys.readouterr().out)} == {"split"}
+
+
+def test_accept_dry_run_then_accept_then_undo(proj, capsys):
+    """--dry-run lists and changes nothing; --accept applies each fix as one group credited
+    to the author and says how many in how many frames; undo --steps takes them back."""
+    before = _people(proj)
+    assert main(["findings", str(proj), "--accept", "duplicate,split", "--dry-run",
+                 "-q"]) == 0
+    out = capsys.readouterr().out
+    assert "would apply 2 fixes in 2 frames" in out
+    _same(_people(proj), before)
+    assert main(["findings", str(proj), "--accept", "duplicate,split", "--author", "bo",
+                 "-q"]) == 0
+    assert "applied 2 fixes in 2 frames" in capsys.readouterr().out
+    after = _people(proj)
+    assert len(after[1]) == 1 and len(after[2]) == 1
+    with Project.open(proj, read_only=True) as p:
+        edits = [e for e in p.history() if e.kind == "edit"]
+    assert {e.author for e in edits} == {"bo"} and len({e.group_id for e in edits}) == 2
+    assert main(["findings", str(proj), "--accept", "duplicate,split", "-q"]) == 0
+    assert "applied 0 fixes in 0 frames" in capsys.readouterr().out
+    assert main(["undo", str(proj), "--steps", "2", "-q"]) == 0
+    out = capsys.readouterr().out
+    assert out.count("undid") == 2 and "accept finding" in out
+    _same(_people(proj), before)
+    assert main(["redo", str(proj), "-q"]) == 0
+    assert capsys.readouterr().out.startswith("redid")
+
+
+def test_dismiss_from_the_command_line(proj, capsys):
+    main(["findings", str(proj), "--json", "-q"])
+    dup = next(r for r in json.loads(capsys.readouterr().out) if r["kind"] == "duplicate")
+    assert main(["findings", str(proj), "--dismiss", dup["id"], "-q"]) == 0
+    assert capsys.readouterr().out.startswith(f"dismissed {dup['id']}")
+    status = main(["findings", str(proj), "--json", "-q"])
+    got = capsys.readouterr()
+    assert status == 0, got.err
+    assert dup["id"] not in {r["id"] for r in json.loads(got.out)}
+    assert main(["undo", str(proj), "-q"]) == 0
+    assert "dismiss finding" in capsys.readouterr().out
+    main(["findings", str(proj), "--json", "-q"])
+    assert dup["id"] in {r["id"] for r in json.loads(capsys.readouterr().out)}
+
+
+@pytest.mark.parametrize("argv, says", [
+    (["--kinds", "nonsense"], "--kinds: nonsense is not a kind of finding"),
+    (["--accept", "all", "--min-confidence", "2"], "--min-confidence: 2.0 is not between"),
+    (["--dry-run"], "--dry-run and --min-confidence go with --accept"),
+    (["--dismiss", "F0000000000"], "no current finding 'F0000000000'"),
+])
+def test_bad_input_is_one_line_and_status_2(proj, capsys, argv, says):
+    before = _people(proj)
+    assert main(["findings", str(proj), "-q", *argv]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and says in err[0] and "Traceback" not in err[0]
+    _same(_people(proj), before)
+
+
+def test_undo_steps_must_be_positive_and_stop_when_nothing_is_left(proj, capsys):
+    assert main(["undo", str(proj), "--steps", "0", "-q"]) == 2
+    assert "--steps" in capsys.readouterr().err
+    assert main(["undo", str(proj), "-q"]) == 0
+    assert "nothing more to undo" in capsys.readouterr().out
