@@ -33,7 +33,9 @@ def test_without_maps_the_right_person_wins():
 
 def test_with_maps_the_field_settles_an_equidistant_joint():
     """Both elbows are equally far from the wrist; only the field (drawn by our target
-    functions from the true poses, Cao et al. 2017 Sec. 2.3) says whose forearm it ends."""
+    functions from the true poses, Cao et al. 2017 Sec. 2.3) says whose forearm it ends. When
+    the two wrists trade owners in the poses the field is drawn from, the same wrist goes to
+    the other person: the field, not the geometry, decides."""
     a = np.zeros((17, 3))
     b = np.zeros((17, 3))
     torso = np.array([[0, 0], [-52, 0], [0, 58], [-38, 58]], dtype=float)  # shoulders, hips
@@ -43,18 +45,23 @@ def test_with_maps_the_field_settles_an_equidistant_joint():
     a[LE] = (100.0, 150.0, 2)
     b[LE] = (180.0, 150.0, 2)
     wrist = np.array([140.0, 180.0])  # 50 px from both elbows
-    truth_a, truth_b = a.copy(), b.copy()
-    truth_a[LW] = (*wrist, 2)
-    truth_b[LW] = (220.0, 190.0, 2)
-    pafs = part_affinity_fields(np.stack([truth_a, truth_b]), SK.limbs, (400, 300), 4, 6.0)
-    maps = NetworkMaps(np.zeros((17, 75, 100), np.float32), pafs, 4)
+    other = np.array([220.0, 190.0])
     people = {1: a, 2: b}
-    with_maps = candidate_owners(people, LW, wrist, SK, maps=maps)
+
+    def fields(wrist_a, wrist_b):
+        truth_a, truth_b = a.copy(), b.copy()
+        truth_a[LW] = (*wrist_a, 2)
+        truth_b[LW] = (*wrist_b, 2)
+        pafs = part_affinity_fields(np.stack([truth_a, truth_b]), SK.limbs, (400, 300), 4, 6.0)
+        return NetworkMaps(np.zeros((17, 75, 100), np.float32), pafs, 4)
+
+    with_maps = candidate_owners(people, LW, wrist, SK, maps=fields(wrist, other))
     assert with_maps[0].person_id == 1
     assert with_maps[0].score > 0.8 and with_maps[1].score < 0.2
-    flipped = part_affinity_fields(np.stack([truth_b, truth_a]), SK.limbs, (400, 300), 4, 6.0)
-    assert candidate_owners(people, LW, (220.0, 190.0), SK,
-                            maps=NetworkMaps(maps.confidence_maps, flipped, 4))[0].person_id == 2
+    traded = candidate_owners(people, LW, wrist, SK, maps=fields(other, wrist))
+    assert traded[0].person_id == 2
+    # The traded forearms cross, and where they cross the field is their average.
+    assert traded[0].score > 2 * traded[1].score
 
 
 def test_exclude_and_people_without_neighbours():

@@ -26,12 +26,10 @@ from pycocotools.coco import COCO
 from pycocotools.cocoeval import COCOeval
 from scipy.optimize import linear_sum_assignment
 
-from app.analysis import triage
-from app.analysis.anthropometry import SEGMENT_FRACTIONS, person_scale
+from app.analysis.anthropometry import person_scale
 from app.analysis.targets import part_affinity_fields
 from app.analysis.triage import (
     FLAG_AT,
-    PRIOR,
     Reason,
     crowd_index,
     limb_support,
@@ -210,12 +208,16 @@ def _kinds(t, pid: int) -> set[str]:
 
 
 def test_a_clean_person_is_not_flagged():
-    """A correct synthetic body, scores 0.9 everywhere: no reason at all, suspicion PRIOR."""
+    """A correct synthetic body, scores 0.9 everywhere: no reason at all, not flagged, and
+    less suspicious than the same body with its left wrist on a neighbour."""
     body = _body()
     t = triage_frame({1: body}, SK, scores={1: np.full(17, 0.9)}, image_size=(1280, 720))
     assert [r for r in t.reasons if r.person == 1] == []
-    assert t.suspicion[1] == pytest.approx(1 / (1 + np.exp(-PRIOR)))
     assert t.flagged == []
+    wrong = body.copy()
+    wrong[J["left_wrist"], 0] += 150.0
+    worse = triage_frame({1: wrong}, SK, scores={1: np.full(17, 0.9)}, image_size=(1280, 720))
+    assert worse.suspicion[1] > t.suspicion[1]
 
 
 def _floor_crowd(n: int = 7) -> dict[int, np.ndarray]:
@@ -242,19 +244,20 @@ def test_a_clean_crowd_on_one_floor_is_not_flagged():
 
 
 def test_a_limb_longer_than_winters_table_allows_is_stretched():
-    """Winter's table (Drillis and Contini): forearm 0.146 of stature. A forearm drawn 1.6x
-    that long gives a stretched-limb reason on the elbow and wrist with strength
-    (1.6 - 1.2) / (1.8 - 1.2); at 2x (a wrist on a neighbour) the person is flagged."""
+    """Winter's table (Drillis and Contini): forearm 0.146 of stature (from memory). A forearm
+    drawn 1.6x the table's length gives a stretched-limb reason on the elbow and wrist with
+    strength (1.6 - 1.2) / (1.8 - 1.2), as documented; at 2x (a wrist on a neighbour) the
+    person is flagged. The lengths come from the handbook's figure, not from our table, so a
+    table that disagreed with the handbook would fail here."""
     body = _body()
     scale = person_scale(body, SK)
     assert scale == pytest.approx(300.0, rel=0.01)  # the synthetic torso: the table's
     elbow, wrist = J["left_elbow"], J["left_wrist"]
-    fraction = SEGMENT_FRACTIONS[frozenset(("left_elbow", "left_wrist"))]
-    assert fraction == pytest.approx(0.146)
+    forearm = 0.146  # of stature: Winter, Fig. 4.1
     for factor, flagged in ((1.6, None), (2.0, True)):
         kp = body.copy()
         u = (kp[wrist, :2] - kp[elbow, :2]) / np.hypot(*(kp[wrist, :2] - kp[elbow, :2]))
-        kp[wrist, :2] = kp[elbow, :2] + u * factor * fraction * scale
+        kp[wrist, :2] = kp[elbow, :2] + u * factor * forearm * scale
         t = triage_frame({1: kp}, SK, image_size=(1280, 720))
         limb = [r for r in t.reasons if r.kind == "stretched-limb" and r.joints == (7, 9)]
         assert len(limb) == 1
@@ -276,24 +279,38 @@ def test_crowd_index_is_li_et_als_formula():
 
 
 def test_frame_score_is_the_expected_number_of_wrong_people_plus_crowding():
-    """The documented combination (log-odds add, each kind once; Good 1950): each person's
-    suspicion is 1 / (1 + exp(-(PRIOR + sum of the strongest evidence per kind))), each
-    reason's weight is what it alone would give, and the frame's score is the sum of the
-    suspicions plus 0.5 * crowd index."""
+    """The documented combination (log-odds add, each kind once; Good 1950): a person's
+    log-odds of being wrong are those of a person without evidence plus, for each kind, what
+    its strongest reason alone adds; and the frame's score is the sum of the suspicions plus
+    a fixed multiple of the crowd index, the same multiple in a crowded and a sparse frame."""
     people = _floor_crowd()
     people[3] = people[3].copy()
     people[3][J["left_wrist"], 0] += 150.0
     t = triage_frame(people, SK, image_size=(1280, 720))
+
+    def logit(p):
+        return np.log(p / (1 - p))
+
+    clean = [pid for pid in people if not any(r.person == pid for r in t.reasons)]
+    base = logit(t.suspicion[clean[0]])
     for pid in people:
-        best: dict[str, float] = {}
+        added: dict[str, float] = {}
         for r in t.reasons:
             if r.person == pid:
-                best[r.kind] = max(best.get(r.kind, 0.0), r.evidence)
-                assert r.weight == pytest.approx(1 / (1 + np.exp(-(PRIOR + r.evidence))))
-                assert r.evidence == pytest.approx(triage.WEIGHTS[r.kind] * r.strength)
-        assert t.suspicion[pid] == pytest.approx(1 / (1 + np.exp(-(PRIOR + sum(best.values())))))
-    assert t.score == pytest.approx(sum(t.suspicion.values()) + 0.5 * t.crowd_index)
+                added[r.kind] = max(added.get(r.kind, 0.0), logit(r.weight) - base)
+        assert logit(t.suspicion[pid]) == pytest.approx(base + sum(added.values()), abs=1e-6)
     assert t.flagged == [3]
+    sparse = triage_frame({p: people[p] for p in (1, 4, 7)}, SK, image_size=(1280, 720))
+    crowded = dict(people)
+    crowded[8] = people[2].copy()
+    crowded[8][:, :2] += (40.0, 0.0)
+    dense = triage_frame(crowded, SK, image_size=(1280, 720))
+    multiples = [(v.score - sum(v.suspicion.values())) / v.crowd_index
+                 for v in (t, dense) if v.crowd_index > 0]
+    assert len(multiples) == 2 and multiples[0] > 0
+    assert multiples[0] == pytest.approx(multiples[1])
+    assert sparse.score == pytest.approx(sum(sparse.suspicion.values())
+                                         + multiples[0] * sparse.crowd_index)
 
 
 def test_a_person_found_twice_is_a_duplicate():
