@@ -54,7 +54,7 @@ SHIPPED = Calibration({
     "duplicate": (-0.925, 2.236),
     "hidden": (2.306, 2.98),
     "invented": (-0.625, 0.187),
-    "mirrored": (-0.879, 3.339),
+    "mirrored": (-0.508, 3.971),
     "missed-person": (4.899, 0.945),
     "missing-joint": (-2.01, 0.255),
     "phantom": (2.142, -1.864),

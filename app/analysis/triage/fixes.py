@@ -93,10 +93,11 @@ OWNER_GAIN = 1.5
 UNLABEL_COST = 0.75
 #: Wrong owner: a receiver's link to the chain may be this many times its expected length.
 LINK_SLACK = 1.3
-#: Duplicate: two people whose like joints lie a median of less than this fraction of
-#: stature apart, and scatter about one shift by less than ``SHAPE_FROM`` (sure at
-#: ``SHAPE_SURE``), are one body found twice.
-DUPLICATE_FROM = 0.2
+#: Duplicate: two people whose like joints scatter about one shift by less than
+#: ``SHAPE_FROM`` of stature (sure at ``SHAPE_SURE``) are one body found twice; the farther
+#: apart the two, the less sure (people of a crowd moving alike look alike): the shift counts
+#: fully up to ``NEAR_SURE`` of stature and not at all from ``DUPLICATE_FROM``.
+DUPLICATE_FROM, NEAR_SURE = 0.45, 0.2
 SHAPE_FROM, SHAPE_SURE = 0.02, 0.005
 #: Mirrored: the face's median score over the ears' and shoulders' counts from ``FACE_FROM``
 #: and is sure at ``FACE_SURE``; the faintest of the ears and shoulders over the brightest
@@ -365,8 +366,10 @@ def duplicates(view: FrameView) -> list[Proposal]:
     one body repeats its shape at one shift. ``residual``: the median distance of the
     ``d_j`` from ``shift``, over the larger stature; ``near``: the median ``|d_j|`` over the
     larger stature. Strength: ``residual`` ramped from ``SHAPE_FROM`` (0.02) to
-    ``SHAPE_SURE`` (0.005), when ``near`` is below ``DUPLICATE_FROM`` (0.2). The copy is the
-    one the model scored lower on the shared joints (else the one with fewer joints). Fix:
+    ``SHAPE_SURE`` (0.005), times ``near`` ramped from ``DUPLICATE_FROM`` (0.45) to
+    ``NEAR_SURE`` (0.2): far apart, two people of a crowd that moves alike look alike. The
+    copy is the one the model scored lower on the shared joints (else the one with fewer
+    joints). Fix:
     give the keeper the joints only the copy has, carried over by the shift (where they fit
     the keeper's body), and delete the copy. Common practice, no source.
     """
@@ -387,7 +390,8 @@ def duplicates(view: FrameView) -> list[Proposal]:
                 continue
             shift = np.median(offsets, axis=0)
             residual = float(np.median(np.hypot(*(offsets - shift).T))) / max(scales)
-            strength = ramp(residual, SHAPE_FROM, SHAPE_SURE)
+            strength = ramp(residual, SHAPE_FROM, SHAPE_SURE) * \
+                ramp(near, DUPLICATE_FROM, NEAR_SURE)
             if strength <= 0:
                 continue
             shared = np.flatnonzero(both)
@@ -508,7 +512,8 @@ def phantoms(view: FrameView) -> list[Proposal]:
 
 # ---------------------------------------------------------------------- sides
 
-def mirrored_people(view: FrameView) -> list[Proposal]:
+def mirrored_people(view: FrameView,
+                    covered: dict[int, list[tuple[int, int]]] | None = None) -> list[Proposal]:
     """A body labelled as facing the camera whose face the model hardly sees: swap sides.
 
     Notes
@@ -520,9 +525,11 @@ def mirrored_people(view: FrameView) -> list[Proposal]:
     from ``FACE_FROM`` (0.75) to ``FACE_SURE`` (0.55). Seen from behind both ears and both
     shoulders show: ``balance``, the faintest of the four over the brightest, ramped from
     ``BALANCE_FROM`` (0.2) to ``BALANCE_SURE`` (0.45); a side far fainter than the other is
-    hidden (by a neighbour, or a turn), which explains a faint face as well. Strength: the
-    product of the two ramps. Fix: swap the person's left and right joints. Common practice,
-    no source.
+    hidden (by a neighbour, or a turn), which explains a faint face as well. A person who
+    stands behind someone nearer (joints inside the nearer one's trunk,
+    :func:`covered_joints`) may owe a faint face to the people in front: ``exposed``, the
+    number of such joints ramped from 2 down to 0. Strength: the product of the three ramps.
+    Fix: swap the person's left and right joints. Common practice, no source.
     """
     out: list[Proposal] = []
     if view.scores is None:
@@ -531,6 +538,7 @@ def mirrored_people(view: FrameView) -> list[Proposal]:
     idx = {name: i for i, name in enumerate(sk.joints)}
     face = [idx[name] for name in ("nose", "left_eye", "right_eye") if name in idx]
     sides = [j for pair in pair_index(sk, "ear", "shoulder") for j in pair]
+    covered = covered if covered is not None else covered_joints(view)
     for p in view.present:
         found = [r for r in view.reasons.get(p, []) if r.kind == "mirrored"]
         mine = view.scores.get(p)
@@ -544,13 +552,16 @@ def mirrored_people(view: FrameView) -> list[Proposal]:
         q = float(np.median(mine[seen])) / float(np.mean(mine[rest]))
         balance = float(np.min(mine[rest])) / float(np.max(mine[rest])) \
             if len(rest) == len(sides) else 0.0
-        strength = ramp(q, FACE_FROM, FACE_SURE) * ramp(balance, BALANCE_FROM, BALANCE_SURE)
+        exposed = ramp(len(covered.get(p, [])), 2.0, 0.0)
+        strength = ramp(q, FACE_FROM, FACE_SURE) * ramp(balance, BALANCE_FROM, BALANCE_SURE) \
+            * exposed
         n = view.names
         text = (f"{n.person(p)} is labelled as facing the camera, but the model sees its face "
                 f"{q:.2f} as well as its ears and shoulders, and both sides alike: seen from "
                 "behind, with left and right swapped")
         out.append(Proposal("mirrored", p, found[0].joints, text, strength,
-                            (("face_ratio", q), ("side_balance", balance)),
+                            (("face_ratio", q), ("side_balance", balance),
+                             ("covered_joints", float(len(covered.get(p, []))))),
                             (SwapSides(view.frame_id, p),), (p,),
                             f"swap the left and right joints of {n.person(p)}"))
     return out
@@ -1038,7 +1049,7 @@ def propose(view: FrameView) -> list[Proposal]:
     """Every proposer on one frame, in the order of :data:`KINDS`."""
     peaks = _unused_peaks(view) if view.maps is not None else None
     covered = covered_joints(view)
-    return (duplicates(view) + splits(view) + phantoms(view) + mirrored_people(view)
+    return (duplicates(view) + splits(view) + phantoms(view) + mirrored_people(view, covered)
             + crossed(view) + wrong_owners(view) + invented_joints(view, covered)
             + hidden_joints(view, covered) + missing_joints(view, peaks)
             + missed_people(view, peaks))
