@@ -209,6 +209,32 @@ def accept_fixes(project: Project, kinds: set[str] | None = None, min_confidence
     return out
 
 
+def accept_finding(project: Project, finding: Finding) -> Any:
+    """Apply one finding's fix as one ledger group credited to the project's author.
+
+    Returns the store's :class:`~app.store.project.Applied`.
+
+    Raises
+    ------
+    EditRefused
+        When the finding has no fix, or is no longer current: its frame's labels or
+        dismissals changed since its findings were computed (read them again with
+        :func:`current_findings`); nothing is applied.
+    """
+    if finding.fix is None:
+        raise EditRefused(f"finding {finding.id} proposes no fix")
+    labels = project.labels(finding.frame_id)
+    stored = project.findings(finding.frame_id).get(finding.frame_id, [])
+    current = project.findings_digests().get(finding.frame_id) == labels_digest(labels) and any(
+        d.get("id") == finding.id and d.get("fingerprint") == finding.fingerprint
+        for d in stored)
+    if not current:
+        raise EditRefused(f"frame {finding.frame_id} changed since finding {finding.id} was "
+                          "found; read the findings again")
+    return project.apply(EditGroup(finding.frame_id, finding.fix.edits,
+                                   f"accept finding {finding.id}: {finding.fix.summary}"))
+
+
 def find_finding(project: Project, finding_id: str) -> Finding:
     """A current finding by its id (the ids :func:`current_findings` gives)."""
     for found in current_findings(project).values():

@@ -164,3 +164,23 @@ def test_unknown_findings_and_kinds_are_refused(scene):
 
     with pytest.raises(BadInput, match="not a kind of finding"):
         parse_kinds("duplicate,nonsense")
+
+
+def test_one_finding_is_accepted_only_while_it_is_current(scene):
+    """accept_finding (what a walk through the findings accepts with one key) applies a
+    current finding's fix as one group, and refuses one whose frame changed since."""
+    from app.jobs_findings import accept_finding
+
+    project, frames, made = scene
+    found = current_findings(project)
+    split = next(f for f in found[frames[1].id] if f.kind == "split")
+    dup = next(f for f in found[frames[0].id] if f.kind == "duplicate")
+    body = made["ids"][0]
+    x, y = project.labels(frames[0].id).people[body].keypoints[0, :2]
+    project.apply(MoveJoint(frames[0].id, body, 0, x + 1.0, y))
+    ledger = project.counts()["ledger"]
+    with pytest.raises(EditRefused, match="changed since"):
+        accept_finding(project, dup)
+    assert project.counts()["ledger"] == ledger
+    applied = accept_finding(project, split)
+    assert applied.group_id is not None and len(project.people(frames[1].id)) == 1
