@@ -305,6 +305,35 @@ def test_older_project_is_migrated_forward(tmp_path, image_dir):
     conn.close()
 
 
+def test_a_schema_3_project_gains_findings_and_dismissals(tmp_path, image_dir):
+    """A project written at schema 3 (before findings) opens with its ledger, migrates to
+    schema 4, keeps findings as derived data and records a dismissal as an undoable edit."""
+    from app.model import DismissFinding
+
+    with Project.create(tmp_path / "old", images=image_dir, author="ana") as p:
+        pid = p.apply(NewPerson(1)).edit.person_id
+    db = tmp_path / "old" / "project.db"
+    conn = sqlite3.connect(db, isolation_level=None)
+    for table in ("findings", "findings_state", "dismissals"):
+        conn.execute(f"DROP TABLE {table}")
+    conn.execute("PRAGMA user_version = 3")
+    conn.close()
+    with Project.open(tmp_path / "old", author="ana") as p:
+        assert [q.id for q in p.people(1)] == [pid] and p.findings() == {}
+        p.store_findings({1: ("digest", [{"id": "F1", "kind": "split", "person_id": pid,
+                                          "confidence": 0.9}])})
+        assert p.findings() == {1: [{"id": "F1", "kind": "split", "person_id": pid,
+                                     "confidence": 0.9}]}
+        p.apply(DismissFinding(1, "key", "split", "F1", "text"))
+        assert p.labels(1).dismissed["key"]["author"] == "ana" and p.dismissed() == {1: {"key"}}
+        p.undo()
+        assert p.labels(1).dismissed == {} and p.dismissed() == {}
+        assert p.history(limit=1)[0].target == "dismissal:key"
+    conn = sqlite3.connect(db)
+    assert conn.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION == 4
+    conn.close()
+
+
 def test_ignore_regions_are_undoable_edits_and_export_as_crowd(project, tmp_path):
     """COCO keypoints format: an ignore region leaves as an ``iscrowd: 1`` annotation."""
     from app.jobs import export_coco
