@@ -368,8 +368,8 @@ def duplicates(view: FrameView) -> list[Proposal]:
     larger stature. Strength: ``residual`` ramped from ``SHAPE_FROM`` (0.02) to
     ``SHAPE_SURE`` (0.005), times ``near`` ramped from ``DUPLICATE_FROM`` (0.45) to
     ``NEAR_SURE`` (0.2): far apart, two people of a crowd that moves alike look alike. The
-    copy is the one the model scored lower on the shared joints (else the one with fewer
-    joints). Fix:
+    copy is the one with fewer labelled joints (the other carries more of the body); of two
+    as complete, the one the model scored lower on the shared joints. Fix:
     give the keeper the joints only the copy has, carried over by the shift (where they fit
     the keeper's body), and delete the copy. Common practice, no source.
     """
@@ -396,11 +396,12 @@ def duplicates(view: FrameView) -> list[Proposal]:
                 continue
             shared = np.flatnonzero(both)
             sp, sq = _mean_score(view, p, shared), _mean_score(view, q, shared)
-            if np.isfinite(sp) and np.isfinite(sq) and sp != sq:
-                copy, keeper = (q, p) if sq < sp else (p, q)
+            np_, nq = int((a[:, 2] > 0).sum()), int((b[:, 2] > 0).sum())
+            if np_ != nq:
+                copy, keeper = (q, p) if nq < np_ else (p, q)
             else:
-                copy, keeper = (q, p) if b[:, 2].astype(bool).sum() <= \
-                    a[:, 2].astype(bool).sum() else (p, q)
+                copy, keeper = (p, q) if np.isfinite(sp) and np.isfinite(sq) and sp < sq \
+                    else (q, p)
             gap = abs(sp - sq) if np.isfinite(sp) and np.isfinite(sq) else 0.0
             carry = shift if keeper == p else -shift
             kept = view.people[keeper].copy()
@@ -421,7 +422,7 @@ def duplicates(view: FrameView) -> list[Proposal]:
             n = view.names
             text = (f"{n.person(copy)} is {n.person(keeper)} found twice: the same shape "
                     f"(joints within {residual:.3f} of a body height of one shift of "
-                    f"{near:.2f}), scored {gap:.2f} lower")
+                    f"{near:.2f}), with fewer joints or scored lower")
             summary = f"delete {n.person(copy)}" + (
                 f", giving {n.person(keeper)} its {n.joints(given)}" if given else "")
             out.append(Proposal("duplicate", copy, tuple(int(j) for j in shared), text,
