@@ -688,7 +688,7 @@ def wrong_owners(view: FrameView, people: Sequence[int] | None = None) -> list[P
     candidates = people if people is not None else [
         p for p in view.present
         if any(r.kind in _BODY_KINDS or r.kind == "tangled" for r in view.reasons.get(p, []))]
-    hypotheses: list[tuple[float, int, tuple[int, ...], int | None]] = []
+    hypotheses: list[tuple[float, int, tuple[int, ...], int | None, float, float]] = []
     for p in candidates:
         kp = view.people[p]
         on = kp[:, 2] > 0
@@ -702,8 +702,9 @@ def wrong_owners(view: FrameView, people: Sequence[int] | None = None) -> list[P
                 continue
             without = kp.copy()
             without[list(mine), 2] = 0
-            drop = base_p - view.body_evidence(p, without) - UNLABEL_COST * len(mine)
-            hypotheses.append((drop, p, mine, None))
+            after = view.body_evidence(p, without)
+            drop = base_p - after - UNLABEL_COST * len(mine)
+            hypotheses.append((drop, p, mine, None, base_p, after))
             for q in view.present:
                 if q == p:
                     continue
@@ -712,14 +713,14 @@ def wrong_owners(view: FrameView, people: Sequence[int] | None = None) -> list[P
                     continue
                 taker = view.people[q]
                 new_p, new_q = _exchange(kp, taker, chain)
-                drop = (base_p + view.body_evidence(q, taker) - view.body_evidence(p, new_p)
-                        - view.body_evidence(q, new_q))
-                hypotheses.append((drop, p, tuple(chain), q))
+                before = base_p + view.body_evidence(q, taker)
+                after = view.body_evidence(p, new_p) + view.body_evidence(q, new_q)
+                hypotheses.append((before - after, p, tuple(chain), q, before, after))
     # The best hypotheses of the frame that leave each other's people alone.
     hypotheses.sort(key=lambda h: (-h[0], h[1], h[2], -1 if h[3] is None else h[3]))
     used: set[int] = set()
     n = view.names
-    for drop, p, chain, receiver in hypotheses:
+    for drop, p, chain, receiver, before, after in hypotheses:
         if drop < OWNER_GAIN:
             break
         involved: tuple[int, ...] = (p,) if receiver is None else (p, receiver)
@@ -729,23 +730,57 @@ def wrong_owners(view: FrameView, people: Sequence[int] | None = None) -> list[P
         strength = ramp(drop, OWNER_GAIN, 3 * OWNER_GAIN)
         mine = tuple(j for j in chain if view.people[p][j, 2] > 0)
         joints = n.joints(mine)
+        evidence: tuple[tuple[str, float], ...] = (
+            ("evidence_before", before), ("evidence_after", after), ("evidence_drop", drop))
         if receiver is None:
             edits: list[Edit] = [SetVisibility(view.frame_id, p, j, 0) for j in mine]
-            text = (f"{n.person(p)}'s {joints} fit no one's body here: without them the labels "
-                    f"are {np.exp(drop):.0f} times as likely")
+            text = (f"{n.person(p)}'s {joints} fit no one's body here: without them, triage's "
+                    f"evidence against {n.person(p)} falls from {before:.1f} to {after:.1f}")
             summary = f"mark {n.person(p)}'s {joints} unlabeled"
         else:
             q = receiver
             theirs = tuple(j for j in chain if view.people[q][j, 2] > 0)
             edits = [ReassignJoint(view.frame_id, p, j, q) for j in mine]
             edits += [ReassignJoint(view.frame_id, q, j, p) for j in theirs if j not in mine]
-            text = (f"{n.person(p)}'s {joints} belong to {n.person(q)}: given to "
-                    f"{n.person(q)} both bodies are {np.exp(drop):.0f} times as likely")
+            field_clause = ""
+            joined = _joining_field(view, chain, p, q)
+            if joined is not None and joined[1] > joined[0]:
+                evidence += (("field_own", joined[0]), ("field_receiver", joined[1]))
+                field_clause = (f"; the model's field joins them to {n.person(q)} "
+                                f"({joined[1]:.2f}) more than to {n.person(p)} "
+                                f"({joined[0]:.2f})")
+            text = (f"{n.person(p)}'s {joints} belong to {n.person(q)}: so given, triage's "
+                    f"evidence against the two falls from {before:.1f} to {after:.1f}"
+                    + field_clause)
             summary = f"give {n.person(p)}'s {joints} to {n.person(q)}" + (
                 f", taking {n.person(q)}'s {n.joints(theirs)} in exchange" if theirs else "")
-        out.append(Proposal("wrong-owner", p, mine, text, strength,
-                            (("evidence_drop", drop),), tuple(edits), involved, summary))
+        out.append(Proposal("wrong-owner", p, mine, text, strength, evidence, tuple(edits),
+                            involved, summary))
     return out
+
+
+def _joining_field(view: FrameView, chain: Sequence[int], giver: int,
+                   taker: int) -> tuple[float, float] | None:
+    """Mean ``E`` of the limbs that join the giver's chain to the rest of the giver's body,
+    and to the taker's body: ``(own, taker)``, None without maps or such limbs."""
+    if view.maps is None:
+        return None
+    kp = view.people[giver]
+    inside = set(chain)
+    own: list[float] = []
+    theirs: list[float] = []
+    for c, (a, b) in enumerate(view.skeleton.limbs):
+        for x, y in ((a, b), (b, a)):
+            if x not in inside or y in inside or kp[x, 2] <= 0:
+                continue
+            forward = x == a
+            for body, values in ((kp, own), (view.people[taker], theirs)):
+                if body[y, 2] > 0:
+                    start, end = (kp[x, :2], body[y, :2]) if forward else (body[y, :2], kp[x, :2])
+                    values.append(max(_e(view, c, start, end), 0.0))
+    if not own or not theirs:
+        return None
+    return float(np.mean(own)), float(np.mean(theirs))
 
 
 def _exchange(giver: np.ndarray, taker: np.ndarray,
@@ -841,8 +876,9 @@ def invented_joints(view: FrameView,
             strength = ramp(ratio, INVENTED_FROM, INVENTED_SURE)
             if strength <= 0:
                 continue
-            text = (f"{n.whose(p, j)} lies inside {n.person(cover)}'s body, who stands nearer, "
-                    f"yet the model scores it {mine[j]:.2f}, as if seen: an invented spot")
+            text = (f"{n.whose(p, j)} lies inside the body of {n.person(cover)}, who stands "
+                    f"nearer, yet the model scores it {mine[j]:.2f}, as if seen: an invented "
+                    "spot")
             out.append(Proposal("invented", p, (j,), text, strength, (("score_ratio", ratio),),
                                 (SetVisibility(view.frame_id, p, j, 0),), (p, cover),
                                 f"mark {n.whose(p, j)} unlabeled"))
@@ -874,9 +910,11 @@ def hidden_joints(view: FrameView,
         hidden = tuple(sorted(j for j, _ in faint))
         covers = sorted({q for _, q in faint})
         strength = len(faint) / len(joints)
-        text = (f"{n.person(p)}'s {n.joints(hidden)} lie inside "
-                f"{join_words([n.person(q) for q in covers])}'s body, who stands nearer: "
-                "hidden, not visible")
+        verb = "lies" if len(hidden) == 1 else "lie"
+        stand = "stands" if len(covers) == 1 else "stand"
+        text = (f"{n.person(p)}'s {n.joints(hidden)} {verb} inside the body of "
+                f"{join_words([n.person(q) for q in covers])}, who {stand} nearer: hidden, "
+                "not visible")
         out.append(Proposal("hidden", p, hidden, text, strength,
                             (("covered", float(len(joints))), ("faint", float(len(faint)))),
                             tuple(SetVisibility(view.frame_id, p, j, 1) for j in hidden),
