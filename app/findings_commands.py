@@ -90,7 +90,7 @@ def cmd_findings(args: argparse.Namespace) -> int:
         found = current_findings(project, frame_ids, _progress(args))
         names = {f.id: f.file_name for f in project.frames()}
     rows = [f for fid in sorted(found) for f in found[fid] if kinds is None or f.kind in kinds]
-    rows.sort(key=lambda f: (-f.confidence, f.frame_id, f.id))
+    rows.sort(key=lambda f: (-f.worth, f.frame_id, f.id))
     if args.json:
         _print_json([f.to_dict(names[f.frame_id]) for f in rows])
         return 0

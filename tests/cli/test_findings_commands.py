@@ -62,8 +62,9 @@ def test_findings_json_lists_each_problem_with_its_fix(proj, capsys):
     assert main(["findings", str(proj), "--json", "-q"]) == 0
     rows = json.loads(capsys.readouterr().out)
     assert rows and all(set(r) >= KEYS for r in rows)
-    confidences = [r["confidence"] for r in rows]
-    assert confidences == sorted(confidences, reverse=True)
+    worth = [r["confidence"] * max(len(r["joints"]), 1) * (0.25 if r["kind"] == "hidden" else 1)
+             for r in rows]
+    assert worth == sorted(worth, reverse=True)
     kinds = {(r["frame_id"], r["kind"]) for r in rows if r["fix"] is not None}
     assert (1, "duplicate") in kinds and (2, "split") in kinds
     dup = next(r for r in rows if r["kind"] == "duplicate")

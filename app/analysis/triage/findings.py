@@ -175,6 +175,14 @@ class Finding:
     people: tuple[int, ...]
     fingerprint: str
 
+    @property
+    def worth(self) -> float:
+        """How much accepting the fix is expected to do: the confidence times the number of
+        joints concerned (a quarter of a joint each when only their visibility changes).
+        Findings are listed worst first: by this, highest first."""
+        per_joint = 0.25 if self.kind == "hidden" else 1.0
+        return self.confidence * per_joint * max(len(self.joints), 1)
+
     def to_dict(self, file_name: str | None = None) -> dict[str, Any]:
         """A JSON-ready dict (``file_name`` added when given); :meth:`from_dict` reads it."""
         out: dict[str, Any] = {"id": self.id, "frame_id": self.frame_id}
@@ -385,7 +393,7 @@ def frame_findings(
     Returns
     -------
     list of Finding
-        Most confident first; findings of one frame never share an id.
+        Worst first (:attr:`Finding.worth`); findings of one frame never share an id.
 
     Notes
     -----
@@ -414,7 +422,7 @@ def frame_findings(
         known = out.get(key)
         if known is None or finding.confidence > known.confidence:
             out[key] = finding
-    return sorted(out.values(), key=lambda f: (-f.confidence, KINDS.index(f.kind), f.id))
+    return sorted(out.values(), key=lambda f: (-f.worth, KINDS.index(f.kind), f.id))
 
 
 def _labels(frame_id: int, skeleton: Skeleton, people: Mapping[int, np.ndarray],

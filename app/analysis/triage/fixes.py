@@ -734,8 +734,10 @@ def wrong_owners(view: FrameView, people: Sequence[int] | None = None) -> list[P
             ("evidence_before", before), ("evidence_after", after), ("evidence_drop", drop))
         if receiver is None:
             edits: list[Edit] = [SetVisibility(view.frame_id, p, j, 0) for j in mine]
-            text = (f"{n.person(p)}'s {joints} fit no one's body here: without them, triage's "
-                    f"evidence against {n.person(p)} falls from {before:.1f} to {after:.1f}")
+            fit = "fits" if len(mine) == 1 else "fit"
+            text = (f"{n.person(p)}'s {joints} {fit} no one's body here: without them, "
+                    f"triage's evidence against {n.person(p)} falls from {before:.1f} to "
+                    f"{after:.1f}")
             summary = f"mark {n.person(p)}'s {joints} unlabeled"
         else:
             q = receiver
@@ -749,7 +751,8 @@ def wrong_owners(view: FrameView, people: Sequence[int] | None = None) -> list[P
                 field_clause = (f"; the model's field joins them to {n.person(q)} "
                                 f"({joined[1]:.2f}) more than to {n.person(p)} "
                                 f"({joined[0]:.2f})")
-            text = (f"{n.person(p)}'s {joints} belong to {n.person(q)}: so given, triage's "
+            belong = "belongs" if len(mine) == 1 else "belong"
+            text = (f"{n.person(p)}'s {joints} {belong} to {n.person(q)}: so given, triage's "
                     f"evidence against the two falls from {before:.1f} to {after:.1f}"
                     + field_clause)
             summary = f"give {n.person(p)}'s {joints} to {n.person(q)}" + (
