@@ -39,9 +39,9 @@ from app.analysis.triage import (
 from app.demo import generate
 from app.demo.evaluate import wrong_people
 from app.formats.maps import NetworkMaps
-from app.jobs import open_project
-from app.jobs_analysis import run_triage
-from app.model.skeleton import coco_body
+from app.jobs_analysis import import_maps, run_triage
+from app.model.skeleton import coco_body, skeleton_from_dict
+from app.store import Project
 from tests.analysis.synth import person
 
 SK = coco_body()
@@ -117,13 +117,17 @@ def _coco_wrong(truth: dict, auto: dict[int, list[np.ndarray]]) -> dict[int, np.
 
 
 def measure(folder: Path) -> Figures:
-    """Build the project from ``folder`` (a copy), triage it and judge it against its truth."""
+    """Build the project from ``folder`` (a copy: images and maps), triage it once and judge
+    it against its truth."""
     truth = json.loads((folder / "truth.json").read_text(encoding="utf-8"))
     image_of = {im["file_name"]: im["id"] for im in truth["images"]}
     anns: dict[int, list[dict]] = {}
     for a in truth["annotations"]:
         anns.setdefault(a["image_id"], []).append(a)
-    with open_project(folder) as project:
+    sources = json.loads((folder / "project-sources.json").read_text(encoding="utf-8"))
+    with Project.create(folder, images=folder / sources["images"],
+                        skeleton=skeleton_from_dict(sources["skeleton"])) as project:
+        import_maps(project, folder / sources["maps"])
         results = run_triage(project)
         people = project.people_by_frame()
         frames = project.frames()

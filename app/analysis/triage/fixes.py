@@ -98,7 +98,7 @@ LINK_SLACK = 1.3
 #: apart the two, the less sure (people of a crowd moving alike look alike): the shift counts
 #: fully up to ``NEAR_SURE`` of stature and not at all from ``DUPLICATE_FROM``.
 DUPLICATE_FROM, NEAR_SURE = 0.45, 0.2
-SHAPE_FROM, SHAPE_SURE = 0.02, 0.005
+SHAPE_FROM, SHAPE_SURE = 0.012, 0.004
 #: Mirrored: the face's median score over the ears' and shoulders' counts from ``FACE_FROM``
 #: and is sure at ``FACE_SURE``; the faintest of the ears and shoulders over the brightest
 #: counts from ``BALANCE_FROM`` (below, a side is hidden, which explains a faint face) and is
@@ -365,13 +365,14 @@ def duplicates(view: FrameView) -> list[Proposal]:
     close differ in pose and size, so their offsets scatter; a network's second response to
     one body repeats its shape at one shift. ``residual``: the median distance of the
     ``d_j`` from ``shift``, over the larger stature; ``near``: the median ``|d_j|`` over the
-    larger stature. Strength: ``residual`` ramped from ``SHAPE_FROM`` (0.02) to
-    ``SHAPE_SURE`` (0.005), times ``near`` ramped from ``DUPLICATE_FROM`` (0.45) to
-    ``NEAR_SURE`` (0.2): far apart, two people of a crowd that moves alike look alike. The
-    copy is the one with fewer labelled joints (the other carries more of the body); of two
-    as complete, the one the model scored lower on the shared joints. Fix:
-    give the keeper the joints only the copy has, carried over by the shift (where they fit
-    the keeper's body), and delete the copy. Common practice, no source.
+    larger stature. Strength: ``residual`` ramped from ``SHAPE_FROM`` (0.012) to
+    ``SHAPE_SURE`` (0.004; a network's jitter on a joint is about 1 % of stature), times
+    ``near`` ramped from ``DUPLICATE_FROM`` (0.45) to ``NEAR_SURE`` (0.2): far apart, two
+    people of a crowd that moves alike look alike. The copy is the one with fewer labelled
+    joints (the other carries more of the body); of two as complete, the one the model scored
+    lower on the shared joints. Fix: give the keeper the joints only the copy has, carried
+    over by the shift (where they fit the keeper's body), and delete the copy. Common
+    practice, no source.
     """
     out = []
     ids = view.present
