@@ -234,10 +234,12 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
 # ---------------------------------------------------------------------- triage
 
 def run_triage(project: Project, progress: Progress | None = None,
-               frame_ids: Sequence[int] | None = None) -> dict[int, Any]:
-    """Triage every frame (or the given ones), store the scores and reasons and the findings
-    with their proposed fixes, and return the :class:`~app.analysis.triage.FrameTriage` of
-    each frame by id (its ``findings`` filled in)."""
+               frame_ids: Sequence[int] | None = None,
+               findings: bool = True) -> dict[int, Any]:
+    """Triage every frame (or the given ones), store the scores and reasons and (unless
+    ``findings`` is False) the findings with their proposed fixes, and return the
+    :class:`~app.analysis.triage.FrameTriage` of each frame by id (its ``findings`` filled
+    in)."""
     from app.analysis.triage import triage_frame
     from app.analysis.triage.findings import labels_digest
     from app.jobs_findings import findings_of_frame
@@ -255,15 +257,18 @@ def run_triage(project: Project, progress: Progress | None = None,
             {p.id: p.keypoints for p in ps}, project.skeleton,
             scores={p.id: p.scores for p in ps}, maps=maps,
             image_size=(f.width, f.height) if f.width > 0 else None)
-        verdict.findings = findings_of_frame(project, f, labels, maps, verdict)
+        if findings:
+            verdict.findings = findings_of_frame(project, f, labels, maps, verdict)
         results[f.id] = verdict
         digests[f.id] = labels_digest(labels)
     progress.step(len(frames), len(frames), "triage")
     project.store_triage({fid: (t.score, [r.to_dict() for r in t.reasons])
                           for fid, t in results.items()})
-    names = {f.id: f.file_name for f in frames}
-    project.store_findings({fid: (digests[fid], [x.to_dict(names[fid]) for x in t.findings])
-                            for fid, t in results.items()})
+    if findings:
+        names = {f.id: f.file_name for f in frames}
+        project.store_findings({fid: (digests[fid], [x.to_dict(names[fid])
+                                                     for x in t.findings])
+                                for fid, t in results.items()})
     return results
 
 

@@ -39,6 +39,15 @@ and uses to halo joints) is the suspicion that reason alone would give. A frame'
 expected number of wrong people, ``sum_p suspicion_p``, plus ``CROWD_WEIGHT * crowd_index``
 (0.5), so that among frames with the same evidence the more crowded one comes first.
 
+The package, by concern: :mod:`~app.analysis.triage.body` (one person's proportions and
+poise), :mod:`~app.analysis.triage.crowd` (one person against the others: the floor,
+duplicates, splits, crowding), :mod:`~app.analysis.triage.model_evidence` (the network's own
+fields and scores), :mod:`~app.analysis.triage.combine` (evidence in log-odds) and
+:mod:`~app.analysis.triage.frame` (every check on one frame). Beyond saying *that* a person
+looks wrong, :mod:`~app.analysis.triage.findings` says what is wrong at one place and proposes
+the fix (:mod:`~app.analysis.triage.fixes`), with a calibrated confidence
+(:mod:`~app.analysis.triage.calibration`).
+
 The thresholds of each check come from the principle stated beside it (mostly the body
 proportions of :mod:`app.analysis.anthropometry`). ``PRIOR`` and ``WEIGHTS`` were fitted by
 logistic regression of "wrong" on the strongest strength of each kind (weights constrained to

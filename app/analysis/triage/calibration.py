@@ -50,17 +50,17 @@ class Calibration:
 
 #: The calibration the findings use, fitted by :mod:`app.demo.calibrate` on the seeds named.
 SHIPPED = Calibration({
-    "crossed-sides": (-3.626, 1.483),
-    "duplicate": (-0.925, 2.236),
-    "hidden": (2.306, 2.98),
-    "invented": (-0.625, 0.187),
-    "mirrored": (-0.508, 3.971),
-    "missed-person": (4.899, 0.945),
-    "missing-joint": (-2.01, 0.255),
-    "phantom": (2.142, -1.864),
-    "split": (-1.983, 4.823),
-    "wrong-owner": (-0.396, 1.964),
-}, PROPOSE_AT, (1, 2, 3, 4, 5))
+    "crossed-sides": (-3.274, 0.938),
+    "duplicate": (0.303, 1.522),
+    "hidden": (2.726, 2.77),
+    "invented": (-0.477, -0.105),
+    "mirrored": (-0.747, 5.237),
+    "missed-person": (5.585, 0.835),
+    "missing-joint": (-2.019, 0.427),
+    "phantom": (1.614, -1.188),
+    "split": (-1.67, 4.582),
+    "wrong-owner": (-0.591, 2.166),
+}, PROPOSE_AT, (1, 2, 3, 4, 5, 6, 7, 8))
 
 
 def confidence(kind: str, strength: float) -> float:
