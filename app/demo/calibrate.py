@@ -46,10 +46,10 @@ from app.analysis.triage.calibration import (
 from app.analysis.triage.findings import frame_findings
 from app.analysis.triage.fixes import KINDS, FrameView, propose
 from app.analysis.triage.frame import triage_frame
+from app.analysis.triage.model_evidence import FieldMemo
 from app.demo.evaluate import JointTally, judge_joints
 from app.errors import EditRefused
 from app.fileio import read_json
-from app.formats.maps import NetworkMaps
 from app.model.edits import Edit, EditGroup, SetVisibility, needs_person_id, with_person_id
 from app.model.labels import Frame, FrameLabels
 from app.model.skeleton import Skeleton
@@ -66,7 +66,9 @@ class DemoFrame:
 
     frame: Frame
     labels: FrameLabels
-    maps: NetworkMaps | None
+    #: The network maps, remembering the line integrals asked of them (every fix tried on
+    #: the frame asks again).
+    maps: FieldMemo | None
     truth: np.ndarray
     areas: np.ndarray
 
@@ -148,8 +150,9 @@ def demo_frames(folder: str | Path) -> list[DemoFrame]:
         k = project.skeleton.num_joints
         for f in project.frames():
             anns = by_image.get(image_of[Path(f.file_name).name], [])
+            maps = load_maps(project, f)
             out.append(DemoFrame(
-                f, project.labels(f.id), load_maps(project, f),
+                f, project.labels(f.id), None if maps is None else FieldMemo(maps),
                 np.array([np.reshape(a["keypoints"], (k, 3)) for a in anns],
                          dtype=np.float64).reshape(-1, k, 3),
                 np.array([a["area"] for a in anns], dtype=np.float64)))
