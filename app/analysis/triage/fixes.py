@@ -305,18 +305,20 @@ def body_chains(skeleton: Skeleton) -> list[tuple[int, ...]]:
 
     Notes
     -----
-    ``carried(j)``: ``j`` and the joints that lose their path to the torso when ``j`` is
-    removed from the limb graph (the elbow carries the wrist; the left hip its knee and
-    ankle). Added: the union of the two sides' ``carried`` for every left-right pair (both
-    legs from the hips: a lower body given to the wrong torso). Common practice, no source.
+    ``carried(S)``: the joints ``S`` and those that lose their path to the torso when ``S``
+    is removed from the limb graph (the elbow carries the wrist; the left hip its knee and
+    ankle). The chains are ``carried({j})`` of every joint, and for every left-right pair
+    the union of the two sides' chains (both legs from the hips: a lower body given to the
+    wrong torso) and, for a pair outside the torso, ``carried`` of the pair (both ears carry
+    the face: a head given to the wrong body). Common practice, no source.
 
     Examples
     --------
     >>> from app.model.skeleton import coco_body
     >>> sk = coco_body()
     >>> chains = body_chains(sk)
-    >>> (7, 9) in chains, (11, 12, 13, 14, 15, 16) in chains
-    (True, True)
+    >>> (7, 9) in chains, (11, 12, 13, 14, 15, 16) in chains, (0, 1, 2, 3, 4) in chains
+    (True, True, True)
     """
     k = skeleton.num_joints
     adjacency: list[set[int]] = [set() for _ in range(k)]
@@ -325,23 +327,23 @@ def body_chains(skeleton: Skeleton) -> list[tuple[int, ...]]:
         adjacency[b].add(a)
     torso = {j for pair in pair_index(skeleton, "shoulder", "hip") for j in pair} or {0}
 
-    def reachable(removed: int) -> set[int]:
-        seen = {t for t in torso if t != removed}
+    def carried(removed: set[int]) -> tuple[int, ...]:
+        """``removed`` and the joints that lose their path to the torso without it."""
+        seen = {t for t in torso if t not in removed}
         todo = list(seen)
         while todo:
             j = todo.pop()
             for n in adjacency[j]:
-                if n != removed and n not in seen:
+                if n not in removed and n not in seen:
                     seen.add(n)
                     todo.append(n)
-        return seen
+        return tuple(sorted(set(range(k)) - seen))
 
-    carried = {}
-    for j in range(k):
-        carried[j] = tuple(sorted({j} | (set(range(k)) - reachable(j) - {j})))
-    chains = set(carried.values())
+    chains = {carried({j}) for j in range(k)}
     for a, b in skeleton.flip_pairs:
-        chains.add(tuple(sorted(set(carried[a]) | set(carried[b]))))
+        chains.add(tuple(sorted(set(carried({a})) | set(carried({b})))))
+        if a not in torso:
+            chains.add(carried({a, b}))
     return sorted(chains, key=lambda c: (len(c), c))
 
 
@@ -718,7 +720,9 @@ def wrong_owners(view: FrameView, people: Sequence[int] | None = None) -> list[P
                 after = view.body_evidence(p, new_p) + view.body_evidence(q, new_q)
                 hypotheses.append((before - after, p, tuple(chain), q, before, after))
     # The best hypotheses of the frame that leave each other's people alone.
-    hypotheses.sort(key=lambda h: (-h[0], h[1], h[2], -1 if h[3] is None else h[3]))
+    # Best first; of hypotheses that explain the labels as well, the one that moves less.
+    hypotheses.sort(key=lambda h: (-round(h[0], 6), len(h[2]), h[1], h[2],
+                                   -1 if h[3] is None else h[3]))
     used: set[int] = set()
     n = view.names
     for drop, p, chain, receiver, before, after in hypotheses:
