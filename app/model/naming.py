@@ -91,6 +91,15 @@ def join_words(words: Sequence[str]) -> str:
     return ", ".join(items[:-1]) + " and " + items[-1]
 
 
+def _plural(noun: str) -> str:
+    """English plural of a joint's name, by the regular rules (``hip`` -> ``hips``)."""
+    if noun.endswith(("s", "x", "ch", "sh")):
+        return noun + "es"
+    if noun.endswith("y") and noun[-2:-1] not in ("a", "e", "i", "o", "u"):
+        return noun[:-1] + "ies"
+    return noun + "s"
+
+
 @dataclass(frozen=True)
 class Names:
     """The names of one frame's people and of the skeleton's joints.
@@ -128,8 +137,28 @@ class Names:
         return joint_name(self.skeleton, joint)
 
     def joints(self, joints: Iterable[int]) -> str:
-        """Several joints in the given order: ``left wrist, left elbow and left shoulder``."""
-        return join_words([self.joint(j) for j in joints])
+        """Several joints in the given order: ``left wrist, left elbow and left shoulder``;
+        a joint named with both of its sides is written once, in the plural (``hips``).
+
+        Examples
+        --------
+        >>> from app.model.skeleton import coco_body
+        >>> Names.of_frame(coco_body(), []).joints([11, 12, 13, 14, 15])
+        'hips, knees and left ankle'
+        """
+        chosen = [int(j) for j in joints]
+        flip = self.skeleton.flip_index
+        words, done = [], set()
+        for j in chosen:
+            if j in done:
+                continue
+            mate = int(flip[j])
+            if mate != j and mate in chosen:
+                done.add(mate)
+                words.append(_plural(self.skeleton.joints[j].split("_", 1)[1].replace("_", " ")))
+            else:
+                words.append(self.joint(j))
+        return join_words(words)
 
     def whose(self, person_id: int, joint: int) -> str:
         """``person 3's left wrist``."""

@@ -81,13 +81,15 @@ def test_judging_joints_agrees_with_pycocotools_and_scipy(frames, shipped):
 
 def test_accepting_every_fix_removes_half_the_wrong_joints(frames):
     """The acceptance figure on the shipped demo (synthetic, seed 1966, not among the
-    calibration seeds): measured when written, see the README's "Findings" section."""
+    calibration seeds 1-8). Measured when written (README, "Findings"): 727 wrong labelled
+    joints down to 246 (66.2 % removed), 5,220 correct up to 5,488 (+5.1 %), 203 of the 211
+    accepted fixes helped (0.96)."""
     figure = accept_all(frames, demo="shipped")
     print(json.dumps(figure.to_dict(), indent=1))
-    assert figure.removed_share >= 0.45
-    assert figure.correct_change >= -0.02
+    assert figure.removed_share >= 0.6
+    assert figure.correct_change >= 0.03
     helped = sum(figure.helped.values()) / sum(figure.fixes.values())
-    assert helped >= 0.8
+    assert helped >= 0.9
 
 
 def test_the_logistic_fit_is_the_maximum_likelihood():

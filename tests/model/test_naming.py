@@ -29,6 +29,7 @@ def test_joints_are_written_with_the_skeletons_names():
     assert joint_name(SK, SK.index("right_ankle")) == "right ankle"
     assert names.whose(3, SK.index("left_wrist")) == "person 1's left wrist"
     assert names.joints([9, 7, 5]) == "left wrist, left elbow and left shoulder"
+    assert names.joints([1, 2, 0]) == "eyes and nose"  # both sides: once, in the plural
     assert join_words([]) == "" and join_words(["nose", "neck"]) == "nose and neck"
 
 

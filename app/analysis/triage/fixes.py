@@ -760,8 +760,12 @@ def wrong_owners(view: FrameView, people: Sequence[int] | None = None) -> list[P
             text = (f"{n.person(p)}'s {joints} {belong} to {n.person(q)}: so given, triage's "
                     f"evidence against the two falls from {before:.1f} to {after:.1f}"
                     + field_clause)
-            summary = f"give {n.person(p)}'s {joints} to {n.person(q)}" + (
-                f", taking {n.person(q)}'s {n.joints(theirs)} in exchange" if theirs else "")
+            if theirs and set(theirs) == set(mine):
+                summary = f"exchange the {joints} of {n.person(p)} and {n.person(q)}"
+            else:
+                summary = f"give {n.person(p)}'s {joints} to {n.person(q)}" + (
+                    f", taking {n.person(q)}'s {n.joints(theirs)} in exchange" if theirs
+                    else "")
         out.append(Proposal("wrong-owner", p, mine, text, strength, evidence, tuple(edits),
                             involved, summary))
     return out
