@@ -8,7 +8,7 @@ and lost no correct ones, and changed at least one of the two counts (a change o
 alone helped when the true visibility agrees); "correct" and "wrong" are judged against the
 demo's true poses by :func:`app.demo.evaluate.judge_joints`.
 
-The coefficients of :data:`SHIPPED` were fitted on demo seeds 1-8 (192 frames, 3,279 fixes
+The coefficients of :data:`SHIPPED` were fitted on demo seeds 1-8 (192 frames, 3,281 fixes
 tried). On seeds 20, 21 and 22, which neither the thresholds of the proposers nor this fit
 saw, accepting every proposed fix removed 59.0 % of the wrong labelled joints (2,323 to 953;
 per seed 50.6 %, 62.8 %, 62.8 %) while the correct ones rose by 5.0 % (14,831 to 15,578); on
