@@ -80,8 +80,8 @@ def _report_counts(args: argparse.Namespace, stats: dict[str, Any]) -> int:
 # ---------------------------------------------------------------------- commands
 
 def cmd_new(args: argparse.Namespace) -> int:
+    from app.jobs import new_project
     from app.model.skeleton import load_skeleton
-    from app.store import Project
 
     skeleton = load_skeleton(args.skeleton) if args.skeleton else None
     if (args.images is None) == (args.video is None):
@@ -89,8 +89,8 @@ def cmd_new(args: argparse.Namespace) -> int:
     video_options = _video_options(args)
     if args.video is not None:
         return _new_from_video(args, skeleton, video_options)
-    with Project.create(args.project, images=args.images, skeleton=skeleton, author=args.author,
-                        progress=_stderr_progress(args.quiet)) as project:
+    with new_project(args.project, images=args.images, skeleton=skeleton, author=args.author,
+                     progress=_stderr_progress(args.quiet)) as project:
         frames = project.frames()
         bad = [f for f in frames if f.status != "ok"]
         for f in bad:
@@ -117,6 +117,7 @@ def _new_from_video(args: argparse.Namespace, skeleton: Any, options: dict[str, 
     """``new --video``: the video is checked before the project exists, and a project whose
     frames could not be extracted is removed again, so a failed ``new`` leaves nothing."""
     from app.formats.video import probe_video
+    from app.jobs import add_video_frames
     from app.store import Project
     from app.store.project import DB_NAME, HOLDER_NAME, LOCK_NAME, VIDEO_FRAMES
 
@@ -126,8 +127,8 @@ def _new_from_video(args: argparse.Namespace, skeleton: Any, options: dict[str, 
     project = Project.create(folder, skeleton=skeleton, author=args.author)
     try:
         with project:
-            frames = project.add_video_frames(args.video, progress=_stderr_progress(args.quiet),
-                                              **options)
+            frames = add_video_frames(project, args.video,
+                                      progress=_stderr_progress(args.quiet), **options)
     except BaseException:
         for name in (DB_NAME, DB_NAME + "-wal", DB_NAME + "-shm", HOLDER_NAME, LOCK_NAME):
             (folder / name).unlink(missing_ok=True)
@@ -148,14 +149,16 @@ def _video_summary(frames: Sequence[Any]) -> str:
 
 
 def cmd_add(args: argparse.Namespace) -> int:
+    from app.jobs import add_images, add_video_frames
+
     options = _video_options(args)
     with _open(args) as project:
         if args.video is not None:
-            added = project.add_video_frames(args.video, progress=_stderr_progress(args.quiet),
-                                             **options)
+            added = add_video_frames(project, args.video, progress=_stderr_progress(args.quiet),
+                                     **options)
             print(f"added to {args.project}: {_video_summary(added)}")
             return 0
-        added = project.add_images(args.images, progress=_stderr_progress(args.quiet))
+        added = add_images(project, args.images, progress=_stderr_progress(args.quiet))
         print(f"added {len(added)} frames to {args.project}")
     return 0
 

@@ -1,5 +1,6 @@
-"""Whole jobs shared by the command line and the app: open (building a project from its
-sources when needed), import and export labels.
+"""Whole jobs shared by the command line and the app: make a project and register its images
+or video frames (intake), open (building a project from its sources when needed), import and
+export labels.
 
 Each job takes an optional :class:`~app.progress.Progress` so the app can show progress and
 cancel it from a worker thread; every job that writes is all-or-nothing.
@@ -15,6 +16,9 @@ from __future__ import annotations
 
 import json
 import logging
+import os
+import shutil
+import tempfile
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
 from pathlib import Path
@@ -23,10 +27,13 @@ from typing import Any
 from app.errors import BadInput
 from app.fileio import read_json, write_json_atomic
 from app.formats import coco
+from app.formats.images import ImageInfo, find_images, probe_image
+from app.formats.video import extract_frames, probe_video
 from app.model.labels import Frame, FrameState
-from app.model.skeleton import skeleton_from_dict
+from app.model.skeleton import Skeleton, skeleton_from_dict
 from app.progress import Progress
-from app.store.project import DB_NAME, Project
+from app.store import NewFrame
+from app.store.project import DB_NAME, VIDEO_FRAMES, Project, relative_path
 
 log = logging.getLogger(__name__)
 
@@ -37,11 +44,128 @@ SOURCES_NAME = "project-sources.json"
 SOURCES_FORMAT = "posewright-project-sources"
 
 
-def open_project(folder: str | Path, author: str | None = None, read_only: bool = False,
-                 progress: Progress | None = None) -> Project:
-    """Open a project; a folder that holds only project sources (``project-sources.json``,
-    as the demo does) is first built into a project."""
+def new_project(folder: str | Path, images: str | Path | None = None,
+                skeleton: Skeleton | None = None, author: str | None = None,
+                progress: Progress | None = None) -> Project:
+    """Make a new project in ``folder`` and open it for editing.
+
+    ``images``, if given, is a folder whose images are registered (recursively, sorted by
+    relative path, ids 1, 2, ...), each with the size its header gives; unreadable images are
+    registered and marked. The project appears complete or not at all.
+    """
     folder = Path(folder)
+    frames: list[NewFrame] = []
+    images_dir = Path(images) if images is not None else None
+    if images_dir is not None:
+        if (folder / DB_NAME).exists():
+            raise BadInput("a project already exists here", where=str(folder))
+        if not images_dir.is_dir():
+            raise BadInput("not a folder of images", where=str(images_dir))
+        frames = _new_frames(folder, images_dir, _probe_all(find_images(images_dir), progress))
+    return Project.create(folder, skeleton=skeleton, author=author, frames=frames,
+                          images_root=images_dir)
+
+
+def add_images(project: Project, images: str | Path,
+               progress: Progress | None = None) -> list[Frame]:
+    """Register the images under ``images`` that the project does not have yet."""
+    images_dir = Path(images)
+    if not images_dir.is_dir():
+        raise BadInput("not a folder of images", where=str(images_dir))
+    known = {Path(f.path) for f in project.frames()}
+    new = [p for p in find_images(images_dir)
+           if Path(relative_path(p, project.folder)) not in known]
+    infos = _probe_all(new, progress)
+    return project.add_frames(_new_frames(project.folder, images_dir, infos),
+                              images_root=images_dir)
+
+
+def add_video_frames(project: Project, video: str | Path, every: int = 1,
+                     start: float | None = None, end: float | None = None,
+                     progress: Progress | None = None) -> list[Frame]:
+    """Extract frames of ``video`` into ``frames/<video stem>/`` of the project's folder and
+    register them with their index in the video and their time in seconds (see
+    :mod:`app.formats.video` for ``every``, ``start`` and ``end``). ``file_name`` is
+    ``<video stem>/<index>.jpg``.
+
+    Frames the project already has (the same file) are not added again, so another range
+    of the same video can be added later; a different video with the same name is refused.
+    All or nothing: after a bad video, a failure or a cancel no file is left behind and no
+    frame is registered.
+    """
+    project.check_writable()
+    info = probe_video(video)
+    stem = Path(video).stem.lstrip(".") or "video"
+    rel_dir = f"{VIDEO_FRAMES}/{stem}"
+    videos = json.loads(project.meta("videos") or "{}")
+    if rel_dir in videos and videos[rel_dir]["fingerprint"] != info.fingerprint:
+        raise BadInput(f"the project has frames of another video named {stem!r} in "
+                       f"{rel_dir}", where=str(video), hint="rename the video to add it")
+    root = project.folder / VIDEO_FRAMES
+    target = root / stem
+    made_root, made_target = not root.exists(), not target.exists()
+    root.mkdir(exist_ok=True)
+    staging = Path(tempfile.mkdtemp(prefix=f".{stem}.", suffix=".partial", dir=root))
+    moved: list[Path] = []
+    try:
+        extracted = extract_frames(info.path, staging, every, start, end, progress)
+        known = {f.path for f in project.frames()}
+        target.mkdir(exist_ok=True)
+        rows = []
+        for vf in extracted:
+            final = target / vf.path.name
+            rel = relative_path(final, project.folder)
+            if rel in known:
+                continue
+            os.replace(vf.path, final)
+            moved.append(final)
+            rows.append(NewFrame(rel, f"{stem}/{final.name}", vf.width, vf.height,
+                                 video_index=vf.index, timestamp=vf.timestamp))
+        videos[rel_dir] = {"source": str(info.path.resolve()), "fingerprint": info.fingerprint}
+        added = project.add_frames(rows, images_root=project.folder / VIDEO_FRAMES,
+                                   settings={"videos": json.dumps(videos)})
+    except BaseException:
+        for path in moved:
+            path.unlink(missing_ok=True)
+        shutil.rmtree(staging, ignore_errors=True)
+        for made, folder in ((made_target, target), (made_root, root)):
+            if made and folder.is_dir() and not any(folder.iterdir()):
+                folder.rmdir()
+        raise
+    shutil.rmtree(staging, ignore_errors=True)
+    return added
+
+
+def _probe_all(paths: Sequence[Path], progress: Progress | None) -> list[ImageInfo]:
+    progress = progress or Progress()
+    infos = []
+    for i, p in enumerate(paths):
+        progress.step(i, len(paths), "reading images")
+        info = probe_image(p)
+        if info.status != "ok":
+            log.warning("image %s is %s (%s); registered and marked", p, info.status, info.reason)
+        infos.append(info)
+    progress.step(len(paths), len(paths), "reading images")
+    return infos
+
+
+def _new_frames(folder: Path, images_dir: Path, infos: Sequence[ImageInfo]) -> list[NewFrame]:
+    return [NewFrame(relative_path(info.path, folder),
+                     info.path.relative_to(images_dir).as_posix(), info.width, info.height,
+                     info.status) for info in infos]
+
+
+def open_project(place: str | Path, author: str | None = None, read_only: bool = False,
+                 progress: Progress | None = None,
+                 images: str | Path | None = None) -> Project:
+    """Open a project (a folder, or a hosted project's URL); a folder that holds only project
+    sources (``project-sources.json``, as the demo does) is first built into a project.
+    ``images``: the images root on this machine, for a hosted project."""
+    from app.store.hosted import is_database_url
+
+    if is_database_url(str(place)):
+        return Project.open(place, author=author, read_only=read_only, images=images)
+    folder = Path(place)
     if not (folder / DB_NAME).exists() and (folder / SOURCES_NAME).is_file():
         build_from_sources(folder, author=author, progress=progress)
     return Project.open(folder, author=author, read_only=read_only)
@@ -64,8 +188,8 @@ def build_from_sources(folder: Path, author: str | None = None,
     images = folder / str(sources.get("images", "images"))
     log.info("building the project in %s from its sources", folder)
     try:
-        project = Project.create(folder, images=images, skeleton=skeleton, author=author,
-                                 progress=progress)
+        project = new_project(folder, images=images, skeleton=skeleton, author=author,
+                              progress=progress)
     except BadInput:
         if (folder / DB_NAME).exists():  # another process built it first
             return
@@ -104,8 +228,7 @@ def import_coco(project: Project, path: str | Path,
             for image_id, file_name in plan.file_names.items():
                 b.set_file_name(image_id, file_name)
             for image_id, extra in plan.image_extra.items():
-                b.execute("UPDATE frames SET extra = ? WHERE id = ?",
-                          (json.dumps(extra), image_id))
+                b.set_frame_extra(image_id, extra)
             if plan.category is not None:
                 b.set_meta("coco_category", json.dumps(plan.category))
             if plan.dataset_extra:
@@ -113,9 +236,7 @@ def import_coco(project: Project, path: str | Path,
             b.reserve_person_ids(ids)
             progress.step(2, 3, "writing labels")
             b.add_people(plan.people)
-            b.executemany(
-                "INSERT INTO regions (frame_id, polygons, extra) VALUES (?, ?, ?)",
-                [(f, json.dumps(polys), json.dumps(extra)) for f, polys, extra in plan.regions])
+            b.regions.add(plan.regions)
             b.count("frames", len(plan.file_names))
             b.count("ignore regions", len(plan.regions))
         else:
@@ -240,7 +361,7 @@ def summary(project: Project) -> dict[str, Any]:
     """What a person wants to know on opening a project."""
     counts = project.counts()
     return {
-        "project": str(project.folder),
+        "project": project.location,
         "name": project.meta("name") or project.folder.name,
         "skeleton": project.skeleton.name,
         "joints": project.skeleton.num_joints,

@@ -7,7 +7,7 @@ from pathlib import Path
 
 import pytest
 
-from app.store import Project
+from app.jobs import new_project
 from tests import synthetic
 
 
@@ -22,7 +22,7 @@ def image_dir(tmp_path: Path) -> Path:
 @pytest.fixture
 def project(tmp_path: Path, image_dir: Path):
     """A fresh project over ``image_dir``, open for editing by author "ana"."""
-    p = Project.create(tmp_path / "proj", images=image_dir, author="ana")
+    p = new_project(tmp_path / "proj", images=image_dir, author="ana")
     yield p
     p.close()
 

@@ -18,10 +18,9 @@ import pytest
 
 from app.analysis.targets import cell_centres, confidence_maps, part_affinity_fields
 from app.cli import main
-from app.jobs import import_coco
+from app.jobs import import_coco, new_project
 from app.jobs_analysis import check_targets
 from app.model import coco_body
-from app.store import Project
 
 SK = coco_body()
 W, H, STRIDE, SIGMA, WIDTH = 160, 120, 4, 3.0, 4.0
@@ -63,7 +62,7 @@ def export(tmp_path):
                                   "annotations": anns,
                                   "categories": [SK.coco_category()]}))
     proj = tmp_path / "p"
-    with Project.create(proj, images=images, author="ana") as p:
+    with new_project(proj, images=images, author="ana") as p:
         import_coco(p, labels)
     out = tmp_path / "targets"
     assert main(["targets", str(proj), str(out), "--states", "all", "--stride", str(STRIDE),

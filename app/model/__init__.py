@@ -32,6 +32,16 @@ from app.model.labels import (
     Region,
 )
 from app.model.skeleton import Side, Skeleton, coco_body, load_skeleton, skeleton_from_dict
+from app.model.targets import (
+    JointTarget,
+    KeptTarget,
+    NoteTarget,
+    PersonTarget,
+    RecordTarget,
+    RegionTarget,
+    StateTarget,
+    Target,
+)
 
 __all__ = [
     "AUTO",
@@ -46,14 +56,20 @@ __all__ = [
     "Frame",
     "FrameLabels",
     "FrameState",
+    "JointTarget",
     "KeepOurs",
+    "KeptTarget",
     "MergePeople",
     "MoveJoint",
     "NewPerson",
     "Note",
+    "NoteTarget",
     "Person",
+    "PersonTarget",
     "ReassignJoint",
+    "RecordTarget",
     "Region",
+    "RegionTarget",
     "ReshapeRegion",
     "Restore",
     "SetFrameState",
@@ -61,7 +77,9 @@ __all__ = [
     "Side",
     "Skeleton",
     "SplitPerson",
+    "StateTarget",
     "SwapSides",
+    "Target",
     "apply_changes",
     "coco_body",
     "load_skeleton",

@@ -68,6 +68,7 @@ from app.errors import BadInput, NotFound
 from app.fileio import atomic_write
 from app.formats.images import IMAGE_SUFFIXES, MAX_SIDE, read_image
 from app.model.labels import Frame, FrameState, Note, Person
+from app.model.records import FrameDecision, PacketRecord
 from app.model.skeleton import Skeleton, skeleton_from_dict
 from app.progress import Progress
 from app.review import DEFAULT_IMAGES, IMAGE_MODES, safezip
@@ -117,16 +118,6 @@ class FrameContent:
     people: Mapping[int, Person]
     notes: Mapping[int, Note]
     state: FrameState | None = None
-
-
-@dataclass(frozen=True)
-class FrameDecision:
-    """The reviewer's verdict on a frame: agree, needs-change or signed-off."""
-
-    frame_id: int
-    decision: str
-    author: str
-    time: float
 
 
 @dataclass(frozen=True)
@@ -642,18 +633,16 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
         progress.step(len(frames), len(frames), "writing the packet")
         if project.read_only:
             log.warning("%s is read-only; packet %s is not recorded in it, so its return "
-                        "cannot be checked against what was sent", project.folder, packet_id)
+                        "cannot be checked against what was sent", project.location, packet_id)
             return stats
         record = {k: v for k, v in stats.items() if k != "packet_id"}
         with project.bulk("ExportPacket",
                           f"send {len(frames)} frames for review"
                           + (f" by {reviewer}" if reviewer else "") + f" (images {images})",
                           f"packet:{packet_id}", kind="review") as b:
-            b.execute("INSERT INTO packets (packet_id, direction, sha256, reviewer, time, "
-                      "frames, report) VALUES (?, 'exported', ?, ?, ?, ?, ?)",
-                      (packet_id, hashlib.sha256(base_json).hexdigest(), reviewer or "",
-                       manifest["created"], json.dumps([f.id for f in frames]),
-                       json.dumps(record)))
+            b.packets.add(PacketRecord(packet_id, "exported", hashlib.sha256(base_json).hexdigest(),
+                                       reviewer or "", manifest["created"],
+                                       tuple(f.id for f in frames), record))
             b.stats.update(record)
     return stats
 
@@ -722,9 +711,9 @@ def _image_root(project: Project, frame: Frame, path: Path) -> Path:
     """The folder a frame's image was registered under, links not followed: the project's
     images folder when the image lies in it, else the folder its ``file_name`` is relative to
     (images added from another folder, video frames), else the image's own folder."""
-    meta = project.meta("images_root")
-    if meta:
-        root = Path(os.path.abspath(project.folder / meta))
+    images_root = project.images_root
+    if images_root is not None:
+        root = Path(os.path.abspath(images_root))
         if path.is_relative_to(root):
             return root
     parts = Path(frame.file_name).parts

@@ -44,6 +44,7 @@ from PySide6.QtWidgets import (
 from shiboken6 import isValid as shiboken_is_valid
 
 from app.errors import Cancelled, EditRefused, PosewrightError
+from app.jobs import add_images, add_video_frames
 from app.model.edits import (
     AddNote,
     AddRegion,
@@ -1472,7 +1473,7 @@ class MainWindow(QMainWindow):
         folder = QFileDialog.getExistingDirectory(self, "Add the images of a folder",
                                                   str(self.project.folder))
         if folder:
-            self.run_long("Adding images", lambda pr: self.project.add_images(folder, pr),
+            self.run_long("Adding images", lambda pr: add_images(self.project, folder, pr),
                           lambda frames: self._frames_added(frames, f"image of {folder}"))
 
     def _add_video(self) -> None:
@@ -1486,8 +1487,8 @@ class MainWindow(QMainWindow):
             video, every, start, end = dialog.values()
             name = Path(video).name
             self.run_long(f"Adding frames of {name}",
-                          lambda pr: self.project.add_video_frames(video, every, start, end,
-                                                                   progress=pr),
+                          lambda pr: add_video_frames(self.project, video, every, start, end,
+                                                      progress=pr),
                           lambda frames: self._frames_added(frames, f"frame of {name} asked "
                                                                     "for"))
 

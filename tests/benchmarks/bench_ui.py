@@ -144,7 +144,7 @@ def _bench_switch() -> list[dict]:
     import cv2
     from PySide6.QtWidgets import QApplication
 
-    from app.store import Project
+    from app.jobs import new_project
     from app.ui.window import MainWindow
 
     app = QApplication.instance() or QApplication(["bench"])
@@ -157,7 +157,7 @@ def _bench_switch() -> list[dict]:
         for i in range(n_frames):
             write_frame_jpeg(images / f"f{i:03d}.jpg", i)
         os.environ["XDG_CONFIG_HOME"] = str(folder / "settings")
-        project = Project.create(folder / "proj", images=images, author="bench")
+        project = new_project(folder / "proj", images=images, author="bench")
         from app.model.labels import AUTO, Person
 
         with project.bulk("Bench", "synthetic people", "bench") as b:

@@ -7,6 +7,7 @@ import sys
 import pytest
 
 from app.cli import main
+from app.jobs import new_project
 
 
 def _run(capsys, *argv):
@@ -81,9 +82,8 @@ def test_python_dash_m_app_is_the_same_command(tmp_path, image_dir):
 
 
 def test_second_writer_is_refused_with_the_reason(tmp_path, image_dir, coco_file, capsys):
-    from app.store import Project
 
-    with Project.create(tmp_path / "p", images=image_dir, author="ana"):
+    with new_project(tmp_path / "p", images=image_dir, author="ana"):
         code, _, err = _run(capsys, "import", tmp_path / "p", coco_file, "-q")
         assert code == 2 and "open for editing by ana" in err
         # Reading still works while someone edits.

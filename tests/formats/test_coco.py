@@ -9,9 +9,8 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from app.errors import BadInput
-from app.jobs import export_coco, import_coco
+from app.jobs import export_coco, import_coco, new_project
 from app.model import MoveJoint, SetVisibility
-from app.store import Project
 
 
 def _load(path):
@@ -232,7 +231,7 @@ def test_random_malformed_input_never_crashes_and_never_half_imports(
     folder = tmp_path_factory.mktemp("fuzz")
     path = folder / "fuzz.json"
     path.write_text(text)
-    with Project.create(folder / "proj", images=image_dir) as project:
+    with new_project(folder / "proj", images=image_dir) as project:
         frames_before = project.frames()
         try:
             import_coco(project, path)

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+import sqlite3
 import zipfile
 from collections.abc import Callable
 from pathlib import Path
@@ -20,6 +21,7 @@ import pytest
 
 from app.errors import BadInput
 from app.formats.images import decode_image
+from app.jobs import new_project
 from app.model.edits import MoveJoint
 from app.review import safezip
 from app.review.blur import head_ellipses
@@ -187,7 +189,7 @@ def test_a_packet_from_another_project_is_refused_and_nothing_changes(labelled, 
     returned = review(send(labelled, tmp_path / "p.zip"),
                       lambda r: r.apply(MoveJoint(r.frames()[0].id,
                                                   r.people(r.frames()[0].id)[0].id, 0, 9, 9)))
-    with Project.create(tmp_path / "other", images=image_dir, author="ana") as other:
+    with new_project(tmp_path / "other", images=image_dir, author="ana") as other:
         from app.jobs import import_coco
 
         import_coco(other, coco_file)
@@ -372,7 +374,7 @@ def linked(tmp_path):
     (images / "frame_0002.jpg").unlink()
     (images / "frame_0002.jpg").symlink_to(images / "frame_0005.jpg")
     (images / "frame_0003.jpg").write_bytes(b"\xff\xd8 not a JPEG after all")
-    project = Project.create(tmp_path / "proj", images=images, author="ana")
+    project = new_project(tmp_path / "proj", images=images, author="ana")
     (images / "frame_0004.jpg").write_bytes(b"\xff\xd8 truncated since")
     yield project
     project.close()
@@ -406,7 +408,7 @@ def test_a_linked_images_folder_is_its_own_root(tmp_path):
 
     synthetic.write_images(tmp_path / "disk" / "footage", 2)
     (tmp_path / "images").symlink_to(tmp_path / "disk" / "footage")
-    with Project.create(tmp_path / "proj", images=tmp_path / "images", author="ana") as p:
+    with new_project(tmp_path / "proj", images=tmp_path / "images", author="ana") as p:
         stats = export_packet(p, tmp_path / "p.zip", p.frames(), images="full")
     assert stats["images"] == 2 and stats["outside_images"] == 0
 
@@ -416,7 +418,10 @@ def test_a_review_folder_from_before_names_were_recorded_keeps_its_reviewer(labe
     """A review folder built without the recorded name credits whoever it was built for
     (the author of its first ledger entry), not the login name."""
     path = send(labelled, tmp_path / "p.zip", images="none")
-    with open_packet(path) as reviewed, reviewed.bulk("Test", "forget the name", "test") as b:
-        b.execute("DELETE FROM meta WHERE key = 'review_reviewer'")
+    with open_packet(path) as reviewed:
+        db = reviewed.folder / "project.db"
+    with sqlite3.connect(db) as conn:  # as a folder built before the name was recorded
+        conn.execute("DELETE FROM meta WHERE key = 'review_reviewer'")
+    conn.close()
     with open_packet(path) as again:
         assert again.meta("review_reviewer") is None and again.author == "bea"

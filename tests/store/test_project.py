@@ -14,12 +14,14 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from app.errors import BadInput, EditRefused, NotFound, ReadOnly
+from app.jobs import new_project
 from app.model import (
     AddNote,
     AddRegion,
     DeletePerson,
     DeleteRegion,
     FrameState,
+    JointTarget,
     MergePeople,
     MoveJoint,
     NewPerson,
@@ -55,7 +57,7 @@ def test_create_registers_images_with_sizes(project, image_dir):
 
 def test_corrupt_and_unreadable_images_are_marked_not_fatal(tmp_path, image_dir):
     (image_dir / "broken.png").write_bytes(b"\x89PNG not really")
-    with Project.create(tmp_path / "p2", images=image_dir) as p:
+    with new_project(tmp_path / "p2", images=image_dir) as p:
         broken = p.find_frame("broken.png")
         assert broken.status == "corrupt" and broken.width == 0
 
@@ -206,7 +208,7 @@ def test_newer_schema_is_refused_and_left_alone(project, tmp_path):
 
 def test_durability_settings(project):
     """SQLite documentation: WAL with synchronous=FULL syncs the WAL at every commit."""
-    conn = project._conn
+    conn = project.db.conn
     assert conn.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
     assert conn.execute("PRAGMA synchronous").fetchone()[0] == 2  # FULL
 
@@ -249,7 +251,7 @@ def test_any_sequence_undo_all_gives_start_redo_all_gives_end(tmp_path_factory, 
                                                               seq, frame_id):
     """Synthetic random edit sequences through the real store on disk."""
     folder = tmp_path_factory.mktemp("algebra")
-    with Project.create(folder, images=image_dir, author="ana") as p:
+    with new_project(folder, images=image_dir, author="ana") as p:
         start = _snapshot(p)
         applied = 0
         for choice in seq:
@@ -280,14 +282,14 @@ def test_ledger_rows_record_author_time_target_before_after(project):
     project.apply(MoveJoint(1, pid, 4, 5.0, 6.0))
     entry = project.history(limit=1)[0]
     assert entry.author == "ana" and entry.time >= t0 - 1
-    assert entry.target == f"person:{pid}/joint:4"
+    assert entry.target == JointTarget(pid, 4) and str(entry.target) == f"person:{pid}/joint:4"
     assert entry.before[:3] == [None, None, 0] and entry.after[:3] == [5.0, 6.0, 2]
     assert json.loads(json.dumps(entry.after)) == entry.after
 
 
 def test_older_project_is_migrated_forward(tmp_path, image_dir):
     """A project written at schema 1 opens with its labels and gains the newer tables."""
-    with Project.create(tmp_path / "old", images=image_dir, author="ana") as p:
+    with new_project(tmp_path / "old", images=image_dir, author="ana") as p:
         pid = p.apply(NewPerson(1)).edit.person_id
     db = tmp_path / "old" / "project.db"
     conn = sqlite3.connect(db, isolation_level=None)
