@@ -58,5 +58,10 @@ class EditRefused(PosewrightError):
     """An edit that would make the labels inconsistent, refused with the reason."""
 
 
+class StorageFailed(PosewrightError):
+    """The disk or the database refused to read or write (a full disk, an I/O error, a damaged
+    file); the action in flight was not kept."""
+
+
 class Cancelled(PosewrightError):
     """Long work stopped on request; nothing of it was kept."""

@@ -1,5 +1,5 @@
 """Whole jobs shared by the command line and the app: open (building a project from its
-sources when needed), import and export labels.
+sources when needed), import and export labels, mend numbers JSON cannot hold.
 
 Each job takes an optional :class:`~app.progress.Progress` so the app can show progress and
 cancel it from a worker thread; every job that writes is all-or-nothing.
@@ -10,14 +10,15 @@ from __future__ import annotations
 import json
 import logging
 from collections.abc import Sequence
-from dataclasses import replace
+from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import Any
+from typing import Any, ClassVar
 
 from app.errors import BadInput
-from app.fileio import read_json, write_json_atomic
+from app.fileio import json_ready, read_json, write_json_atomic
 from app.formats import coco
-from app.model.labels import FrameState
+from app.model.edits import Change, Restore
+from app.model.labels import FrameState, Region
 from app.model.skeleton import skeleton_from_dict
 from app.progress import Progress
 from app.store.project import DB_NAME, Project
@@ -95,8 +96,7 @@ def import_coco(project: Project, path: str | Path,
             for image_id, file_name in plan.file_names.items():
                 b.set_file_name(image_id, file_name)
             for image_id, extra in plan.image_extra.items():
-                b.execute("UPDATE frames SET extra = ? WHERE id = ?",
-                          (json.dumps(extra), image_id))
+                b.set_frame_extra(image_id, extra)
             if plan.category is not None:
                 b.set_meta("coco_category", json.dumps(plan.category))
             if plan.dataset_extra:
@@ -121,7 +121,10 @@ def export_coco(project: Project, out: str | Path,
                 states: Sequence[FrameState] | None = None) -> dict[str, int]:
     """Write the project's labels as a COCO keypoints dataset to ``out`` (atomically).
 
-    ``states``, when given, keeps only frames in those states.
+    ``states``, when given, keeps only frames in those states. A non-finite number kept from
+    an import made before such numbers were refused is written as
+    :func:`app.formats.coco.json_ready_dataset` says, with a warning naming the record and
+    how to mend the project (:func:`mend_numbers`).
     """
     frames = project.frames()
     if states is not None:
@@ -135,9 +138,89 @@ def export_coco(project: Project, out: str | Path,
         image_extra=project.frame_extras(),
         dataset_extra=json.loads(project.meta("coco_dataset_extra") or "{}"),
     )
+    dataset, notes = coco.json_ready_dataset(dataset)
+    for note in notes:
+        log.warning("%s: %s; `posewright mend %s` mends the project", out, note, project.folder)
     write_json_atomic(out, dataset)
     n_people = sum(len(people.get(f.id, ())) for f in frames)
     return {"images": len(frames), "people": n_people}
+
+
+@dataclass(frozen=True)
+class MendNumbers(Restore):
+    """Replace non-finite numbers in the fields a person or region keeps from an import: an
+    undoable edit that leaves the frame's state alone (no label a person drew changes)."""
+
+    changes_labels: ClassVar[bool] = False
+    label: str = "mend numbers that JSON cannot hold"
+
+
+def mend_numbers(project: Project) -> list[str]:
+    """Replace the NaN and infinite numbers that the project keeps from an import made before
+    they were refused, so that exports write what the project holds.
+
+    A person's ``bbox`` or ``area`` that is not finite is dropped, so exports compute it from
+    the joints (as for a person that did not come from a file); any other such field of a
+    person, crowd region, image, category or the dataset becomes ``null``. People and regions
+    are mended by one undoable :class:`MendNumbers` edit per frame, the image, category and
+    dataset fields in one transaction with one ``MendNumbers`` ledger entry. Running it again
+    finds nothing to do.
+
+    Returns
+    -------
+    list of str
+        One line per field mended, e.g. ``frame 100: person 5002: field area: dropped``.
+    """
+    notes: list[str] = []
+    edits: dict[int, list[Change]] = {}
+    for frame_id, persons in project.people_by_frame().items():
+        for p in persons:
+            extra, found = json_ready(dict(p.extra))
+            for path in found:
+                if path[0] in ("bbox", "area"):
+                    extra.pop(path[0], None)
+                notes.append(f"frame {frame_id}: person {p.id}: {_field(path)}: "
+                             + ("dropped" if path[0] in ("bbox", "area") else "null"))
+            if found:
+                edits.setdefault(frame_id, []).append(Change(
+                    ("person", p.id), p.to_value(), replace(p, extra=extra).to_value()))
+    for frame_id, rows in project.regions_by_frame().items():
+        for rid, polygons, extra in rows:
+            clean, found = json_ready(extra)
+            notes += [f"frame {frame_id}: region {rid}: {_field(path)}: null"
+                      for path in found]
+            if found:
+                before = Region(rid, frame_id, polygons, extra).to_value()
+                edits.setdefault(frame_id, []).append(Change(
+                    ("region", rid), before, {**before, "extra": clean}))
+    for frame_id, changes in sorted(edits.items()):
+        project.apply(MendNumbers(frame_id, tuple(changes)))
+    in_edits = len(notes)
+    frames: dict[int, dict[str, Any]] = {}
+    for frame_id, extra in project.frame_extras().items():
+        clean, found = json_ready(extra)
+        if found:
+            frames[frame_id] = clean
+            notes += [f"image {frame_id}: {_field(path)}: null" for path in found]
+    meta: dict[str, str] = {}
+    for key, name in (("coco_category", "category"), ("coco_dataset_extra", "dataset")):
+        value = json.loads(project.meta(key) or "null")
+        clean, found = json_ready(value)
+        if found:
+            meta[key] = json.dumps(clean)
+            notes += [f"{name}: {_field(path)}: null" for path in found]
+    if frames or meta:
+        with project.bulk("MendNumbers", "mend numbers that JSON cannot hold", "project") as b:
+            for frame_id, extra in frames.items():
+                b.set_frame_extra(frame_id, extra)
+            for key, text in meta.items():
+                b.set_meta(key, text)
+            b.count("fields mended", len(notes) - in_edits)
+    return notes
+
+
+def _field(path: Sequence[str | int]) -> str:
+    return "field " + ".".join(str(p) for p in path)
 
 
 def summary(project: Project) -> dict[str, Any]:

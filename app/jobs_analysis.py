@@ -24,7 +24,7 @@ from app.analysis.association import group_people
 from app.analysis.targets import confidence_maps, loss_mask, part_affinity_fields
 from app.errors import BadInput, NotFound
 from app.fileio import read_json
-from app.formats.maps import NetworkMaps, match_map_files, read_maps
+from app.formats.maps import NetworkMaps, match_map_files, read_maps, read_npz
 from app.model.labels import AUTO, Frame, FrameState, Person
 from app.progress import Progress
 from app.store.project import Project
@@ -279,7 +279,7 @@ def check_targets(out_dir: str | Path, progress: Progress | None = None) -> Targ
     manifest's dtype; every value is finite; confidence maps lie in [0, 1]; each field vector
     is at most 1 long (both with a slack for float16 rounding); the loss mask is 0 or 1. A
     ``.npz`` file that no frame entry names is a problem too. Files are read with
-    ``allow_pickle=False``.
+    :func:`app.formats.maps.read_npz` (no pickles, no size taken on trust).
     """
     from app.model.skeleton import skeleton_from_dict
 
@@ -339,19 +339,15 @@ def check_targets(out_dir: str | Path, progress: Progress | None = None) -> Targ
 
 def _check_target_file(path: Path, shape: tuple[int, int, int, int], dtype: str,
                        tol: float) -> list[str]:
-    import zipfile
-
     k, n_limbs, h, w = shape
     expected = {"confidence_maps": (k, h, w), "pafs": (n_limbs, 2, h, w),
                 "loss_mask": (k + 2 * n_limbs, h, w)}
     try:
-        with np.load(path, allow_pickle=False) as npz:
-            keys = set(npz.files)
-            if keys != set(expected):
-                return [f"{path}: keys {sorted(keys)}, expected {sorted(expected)}"]
-            arrays = {key: npz[key] for key in expected}
-    except (OSError, ValueError, EOFError, zipfile.BadZipFile) as exc:
-        return [f"{path}: not a readable .npz of arrays ({exc})"]
+        arrays = read_npz(path)
+    except BadInput as exc:
+        return [str(exc)]
+    if set(arrays) != set(expected):
+        return [f"{path}: keys {sorted(arrays)}, expected {sorted(expected)}"]
     problems = []
     for key, arr in arrays.items():
         if arr.shape != expected[key]:

@@ -96,7 +96,7 @@ def test_export_round_trip(export, capsys):
     assert check_targets(out).problems == []
     capsys.readouterr()
     assert main(["targets", "--check", str(out)]) == 0
-    assert capsys.readouterr().out == f"ok: 1 frames checked in {out}\n"
+    assert capsys.readouterr().out == f"ok: 1 frame checked in {out}\n"
     assert main(["targets", str(proj), str(out), "--check", "-q"]) == 0
 
 

@@ -35,7 +35,7 @@ from typing import Any
 import filelock
 import numpy as np
 
-from app.errors import BadInput, NotFound, PosewrightError, ReadOnly
+from app.errors import BadInput, NotFound, PosewrightError, ReadOnly, StorageFailed
 from app.formats.images import ImageInfo, find_images, probe_image
 from app.formats.video import extract_frames, probe_video
 from app.model.edits import (
@@ -61,6 +61,10 @@ DB_NAME = "project.db"
 LOCK_NAME = "project.lock"
 HOLDER_NAME = "project.holder.json"
 VIDEO_FRAMES = "frames"  # where frames extracted from videos go, inside the project folder
+#: The first 16 bytes of every SQLite database file (https://sqlite.org/fileformat.html, 1.3.1).
+SQLITE_HEADER = b"SQLite format 3\x00"
+#: Frame and person ids are SQLite integers (64-bit, signed).
+_SQLITE_INT = (-(2**63), 2**63 - 1)
 
 
 @dataclass(frozen=True)
@@ -186,19 +190,43 @@ class Project:
         relative path, ids 1, 2, ...). Refused if ``folder`` already holds a project.
         """
         folder = Path(folder)
-        folder.mkdir(parents=True, exist_ok=True)
+        made = [p for p in (folder, *folder.parents) if not p.exists()]
+        try:
+            folder.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise BadInput(f"cannot make the folder ({exc.strerror})", where=str(folder)) \
+                from None
         db = folder / DB_NAME
         if db.exists():
             raise BadInput("a project already exists here", where=str(folder))
         images_dir = Path(images) if images is not None else None
         if images_dir is not None and not images_dir.is_dir():
+            _remove_made(made)
             raise BadInput("not a folder of images", where=str(images_dir))
         skeleton = skeleton or coco_body()
         lock = _take_lock(folder)
         if lock is None:
             raise BadInput("another process is creating or editing a project here",
                            where=str(folder))
+        try:
+            return cls._create_locked(folder, lock, images_dir, skeleton, author, progress)
+        except BaseException as exc:
+            # A project appears complete or not at all: nothing of a failed one stays.
+            for name in (DB_NAME, DB_NAME + "-wal", DB_NAME + "-shm", HOLDER_NAME):
+                (folder / name).unlink(missing_ok=True)
+            lock.release()
+            (folder / LOCK_NAME).unlink(missing_ok=True)
+            _remove_made(made)
+            if isinstance(exc, sqlite3.Error):
+                raise _storage_failed(exc, folder) from None
+            raise
+
+    @classmethod
+    def _create_locked(cls, folder: Path, lock: filelock.BaseFileLock, images_dir: Path | None,
+                       skeleton: Skeleton, author: str | None,
+                       progress: Progress | None) -> Project:
         tmp = folder / (DB_NAME + ".new")
+        conn = None
         try:
             for stale in folder.glob(DB_NAME + ".new*"):
                 stale.unlink()
@@ -217,13 +245,13 @@ class Project:
                 infos = _probe_all(find_images(images_dir), progress)
                 _insert_frames(conn, folder, images_dir, infos, first_id=1)
             conn.close()
-            # A project appears complete or not at all.
-            os.replace(tmp, db)
-        except BaseException:
+            conn = None
+            os.replace(tmp, folder / DB_NAME)
+        finally:
+            if conn is not None:
+                conn.close()
             for leftover in folder.glob(DB_NAME + ".new*"):
                 leftover.unlink()
-            lock.release()
-            raise
         return cls._open_locked(folder, lock, author)
 
     @classmethod
@@ -239,6 +267,7 @@ class Project:
         if not (folder / DB_NAME).is_file():
             raise NotFound(f"{folder}: no project here (no {DB_NAME}); make one with "
                            "`posewright new`")
+        _check_database(folder / DB_NAME)
         lock = None if read_only else _take_lock(folder)
         if lock is None:
             reason = "opened read-only on request" if read_only else _holder_reason(folder)
@@ -258,8 +287,10 @@ class Project:
             holder = {"pid": os.getpid(), "host": socket.gethostname(), "author": who,
                       "since": time.time()}
             (folder / HOLDER_NAME).write_text(json.dumps(holder))
-        except BaseException:
+        except BaseException as exc:
             lock.release()
+            if isinstance(exc, sqlite3.Error):
+                raise _storage_failed(exc, folder) from None
             raise
         return cls(folder, conn, lock, who, None)
 
@@ -320,6 +351,8 @@ class Project:
             return [_frame_from_row(r) for r in rows]
 
     def frame(self, frame_id: int) -> Frame:
+        if not _SQLITE_INT[0] <= int(frame_id) <= _SQLITE_INT[1]:
+            raise NotFound(f"the project has no frame {frame_id}")
         with self._mutex:
             row = self._conn.execute(
                 f"SELECT {_FRAME_COLUMNS} FROM {_FRAME_FROM} WHERE frames.id = ?",
@@ -693,15 +726,25 @@ class Project:
 
     @contextmanager
     def _transaction(self) -> Iterator[None]:
+        """One ``BEGIN IMMEDIATE ... COMMIT``; on any failure (a full disk at the commit
+        included) nothing of it is kept, and a failure of SQLite itself is raised as
+        :class:`~app.errors.StorageFailed`."""
         meta_before = dict(self._meta)
-        self._conn.execute("BEGIN IMMEDIATE")
         try:
-            yield
-        except BaseException:
-            self._conn.execute("ROLLBACK")
+            self._conn.execute("BEGIN IMMEDIATE")
+            try:
+                yield
+                self._conn.execute("COMMIT")
+            except BaseException:
+                # SQLite has already rolled back after some errors (a full disk, for one).
+                if self._conn.in_transaction:
+                    self._conn.execute("ROLLBACK")
+                raise
+        except BaseException as exc:
             self._meta = meta_before
+            if isinstance(exc, sqlite3.Error) and not isinstance(exc, sqlite3.IntegrityError):
+                raise _storage_failed(exc, self.folder) from None
             raise
-        self._conn.execute("COMMIT")
 
     # ------------------------------------------------------------------ bulk work (importers)
 
@@ -892,9 +935,13 @@ class Bulk:
         if not mapping:
             return
         c = self._c
-        # Two steps through negative ids so that swaps and chains cannot collide.
-        for step in (lambda o, n: (o, -n - 1), lambda o, n: (-n - 1, n)):
-            pairs = [step(o, n) for o, n in mapping.items()]
+        # Two steps through temporary ids below every id in use and every new one, so that
+        # swaps, chains and negative ids cannot collide.
+        low = min(c.execute("SELECT min(id) FROM frames").fetchone()[0] or 0, *mapping.values(),
+                  0)
+        temporary = {o: low - 1 - n for n, o in enumerate(mapping)}
+        for pairs in ([(o, temporary[o]) for o in mapping],
+                      [(temporary[o], n) for o, n in mapping.items()]):
             for table, col in _frame_columns(c):
                 c.executemany(f"UPDATE {table} SET {col} = ? WHERE {col} = ?",
                               [(b, a) for a, b in pairs])
@@ -904,6 +951,11 @@ class Bulk:
         """Record where a frame's network maps are (stored relative to the project folder)."""
         self._c.execute("INSERT OR REPLACE INTO maps VALUES (?, ?, ?)",
                         (frame_id, _relative(path, self._p.folder), int(stride)))
+
+    def set_frame_extra(self, frame_id: int, extra: dict[str, Any]) -> None:
+        """Replace the fields of an imported COCO image record kept for the round trip."""
+        self._c.execute("UPDATE frames SET extra = ? WHERE id = ?",
+                        (json.dumps(extra, allow_nan=False), int(frame_id)))
 
     def set_file_name(self, frame_id: int, file_name: str) -> None:
         self._c.execute("UPDATE frames SET file_name = ? WHERE id = ?", (file_name, frame_id))
@@ -959,8 +1011,67 @@ def _connect(path: Path, read_only: bool) -> sqlite3.Connection:
     return conn
 
 
+def _check_database(path: Path) -> None:
+    """Refuse a ``project.db`` that is not an SQLite database before SQLite sees it: SQLite
+    would take an empty file for a new database and write a schema into it."""
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(len(SQLITE_HEADER))
+    except OSError as exc:
+        raise StorageFailed(f"{path}: cannot read the project database ({exc.strerror})") \
+            from None
+    if head != SQLITE_HEADER:
+        what = "empty (0 bytes)" if not head else "not an SQLite database"
+        raise BadInput(f"the project database is {what}", where=str(path),
+                       hint="restore it from a backup; Posewright leaves it as it is")
+
+
+def _storage_failed(exc: sqlite3.Error, folder: Path) -> StorageFailed:
+    """The one-line error for a failure of SQLite; a disk nearly full is named as the likely
+    cause (SQLite reports it in several ways: "database or disk is full", "disk I/O error")."""
+    try:
+        free = shutil.disk_usage(next(p for p in (folder, *folder.parents) if p.exists())).free
+    except (OSError, StopIteration):
+        free = None
+    hint = f"; the disk has {free // 1024} KiB free" if free is not None and free < 2**24 \
+        else ""
+    return StorageFailed(f"{folder / DB_NAME}: {exc}; the action was not kept{hint}")
+
+
+def _remove_made(made: Sequence[Path]) -> None:
+    """Remove the folders in ``made`` (deepest first) while they are empty."""
+    for path in made:
+        try:
+            path.rmdir()
+        except OSError:
+            return
+
+
+def project_in_use(folder: str | Path) -> str | None:
+    """Who has the project in ``folder`` open for editing (as :attr:`Project.read_only_reason`
+    says it), or None when no process does."""
+    folder = Path(folder)
+    lock = _take_lock(folder)
+    if lock is None:
+        return _holder_reason(folder)
+    lock.release()
+    return None
+
+
 def _check_version(conn: sqlite3.Connection, folder: Path) -> None:
-    version = schema_version(conn)
+    try:
+        version = schema_version(conn)
+        has_meta = version > 0 and conn.execute(
+            "SELECT 1 FROM meta WHERE key = 'skeleton'").fetchone() is not None
+    except sqlite3.DatabaseError as exc:
+        conn.close()
+        raise BadInput(f"the project database cannot be read ({exc})",
+                       where=str(folder / DB_NAME),
+                       hint="restore it from a backup; Posewright leaves it as it is") from None
+    if not has_meta:
+        conn.close()
+        raise BadInput("an SQLite database, but not a Posewright project (no project record)",
+                       where=str(folder / DB_NAME))
     if version > SCHEMA_VERSION:
         conn.close()
         raise BadInput(
@@ -1007,7 +1118,7 @@ def _probe_all(paths: Sequence[Path], progress: Progress | None) -> list[ImageIn
         progress.step(i, len(paths), "reading images")
         info = probe_image(p)
         if info.status != "ok":
-            log.warning("image %s is %s; registered and marked", p, info.status)
+            log.warning("%s: image is %s; registered and marked", p, info.status)
         infos.append(info)
     progress.step(len(paths), len(paths), "reading images")
     return infos

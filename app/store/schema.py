@@ -188,7 +188,8 @@ def migrate(conn: sqlite3.Connection, target: int = SCHEMA_VERSION) -> int:
             conn.execute(f"PRAGMA user_version = {n}")
             conn.execute("COMMIT")
         except BaseException:
-            conn.execute("ROLLBACK")
+            if conn.in_transaction:  # SQLite may have rolled back already (a full disk)
+                conn.execute("ROLLBACK")
             raise
         version = n
     return version
