@@ -28,8 +28,6 @@ from app.model.labels import FrameState
 from app.progress import Progress
 from app.wording import count
 
-log = logging.getLogger("posewright")
-
 #: Exit status when the reader of our output went away (128 + SIGPIPE).
 BROKEN_PIPE_STATUS = 141
 
@@ -558,6 +556,32 @@ class _Format(logging.Formatter):
         return f"posewright: {record.levelname.lower()}: {record.getMessage()}"
 
 
+class _Stderr(logging.StreamHandler):  # type: ignore[type-arg]
+    """A handler writing to whatever ``sys.stderr`` is when a record comes (so a caller that
+    redirects stderr, as tests do, gets the lines)."""
+
+    @property  # type: ignore[override]
+    def stream(self) -> Any:
+        return sys.stderr
+
+    @stream.setter
+    def stream(self, _value: Any) -> None:
+        pass
+
+
+_HANDLER = _Stderr()
+_HANDLER.setFormatter(_Format())
+
+
+def _log_to_stderr(verbose: bool) -> None:
+    """Show the log lines of Posewright's modules (``app.*``) on stderr, with one handler
+    however often :func:`main` runs in a process."""
+    logger = logging.getLogger("app")
+    logger.setLevel(logging.INFO if verbose else logging.WARNING)
+    if _HANDLER not in logger.handlers:
+        logger.addHandler(_HANDLER)
+
+
 def _stdout_gone() -> int:
     """The reader of stdout went away: point stdout at the null device so that the flush at
     exit cannot fail again, and end with :data:`BROKEN_PIPE_STATUS`."""
@@ -572,10 +596,7 @@ def _stdout_gone() -> int:
 def main(argv: Sequence[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
-    handler = logging.StreamHandler()
-    handler.setFormatter(_Format())
-    logging.basicConfig(level=logging.INFO if args.verbose else logging.WARNING,
-                        handlers=[handler])
+    _log_to_stderr(args.verbose)
     try:
         status = int(args.fn(args))
         sys.stdout.flush()

@@ -138,8 +138,10 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
     Each ``.npz`` holds ``confidence_maps (K, H, W)``, ``pafs (L, 2, H, W)`` and
     ``loss_mask (K + 2L, H, W)`` (channel order: the K maps, then each limb's x and y field);
     the manifest holds every parameter, the skeleton and the frame list, so a training script
-    needs nothing else. ``states`` picks the frames (None: all). The folder appears complete or
-    not at all: it is written beside ``out_dir`` and renamed at the end.
+    needs nothing else. Image paths in it are relative to ``out_dir`` (each frame's ``image``,
+    and ``images_root``, the project's images folder, to which ``file_name`` is relative).
+    ``states`` picks the frames (None: all). The folder appears complete or not at all: it is
+    written beside ``out_dir`` and renamed at the end.
     """
     settings = settings or TargetSettings()
     settings.check()
@@ -178,7 +180,7 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
             np.savez_compressed(work / name, confidence_maps=cm.astype(dtype),
                                 pafs=paf.astype(dtype), loss_mask=mask.astype(dtype))
             entries.append({"id": f.id, "file_name": f.file_name,
-                            "image": str(project.image_path(f).resolve()),
+                            "image": _relative_to(project.image_path(f), out),
                             "width": f.width, "height": f.height, "state": f.state.value,
                             "targets": name, "people": len(people.get(f.id, [])),
                             "grid": [cm.shape[1], cm.shape[2]]})
@@ -206,12 +208,14 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
                              "person's box",
             },
             "skeleton": sk.to_dict(),
+            "images_root": None if project.images_root is None
+            else _relative_to(project.images_root, out),
             "frames": entries,
             "skipped": [{"id": f.id, "file_name": f.file_name, "status": f.status}
                         for f in skipped],
         }
         with open(work / "manifest.json", "w", encoding="utf-8") as fh:
-            json.dump(manifest, fh, indent=1)
+            json.dump(manifest, fh, indent=1, allow_nan=False)
             fh.flush()
             os.fsync(fh.fileno())
         if out.exists():
@@ -221,6 +225,16 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
         shutil.rmtree(work, ignore_errors=True)
         raise
     return {"frames": len(entries), "skipped": len(skipped), "out": str(out)}
+
+
+def _relative_to(path: Path, folder: Path) -> str:
+    """``path`` relative to ``folder`` (POSIX separators), so that the manifest names no home
+    folder and survives moving the export together with the project; absolute only when no
+    relative path exists (another drive)."""
+    try:
+        return Path(os.path.relpath(path.resolve(), folder.resolve())).as_posix()
+    except ValueError:
+        return path.resolve().as_posix()
 
 
 # ---------------------------------------------------------------------- triage

@@ -20,8 +20,8 @@ def test_non_finite_numbers_are_refused_naming_the_record_and_field(token, shown
     (such as Infinity and NaN) are not permitted". Python's json module reads them anyway (its
     documentation calls this an extension), and reads numbers past the range of an IEEE 754
     double as infinity. Synthetic data."""
-    text = ('{"info": {"year": 1}, "images": [{"id": 3, "extra": {"deep": [0, 1, %s]}}]}'
-            % token)
+    text = '{"info": {"year": 1}, "images": [{"id": 3, "extra": {"deep": [0, 1, @]}}]}'
+    text = text.replace("@", token)
     with pytest.raises(BadInput) as err:
         parse_json(text.encode(), "labels.json")
     assert str(err.value).startswith(

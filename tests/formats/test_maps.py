@@ -2,6 +2,8 @@
 
 import numpy as np
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 from app.errors import BadInput
 from app.formats.maps import match_map_files, read_maps
@@ -47,7 +49,7 @@ def test_pickled_objects_and_junk_are_refused(tmp_path):
     path = tmp_path / "p.npz"
     np.savez(path, confidence_maps=np.array([object()], dtype=object), pafs=np.zeros(1),
              stride=np.int64(8))
-    with pytest.raises(BadInput, match="confidence_maps.npy': holds Python objects"):
+    with pytest.raises(BadInput, match=r"confidence_maps\.npy': holds Python objects"):
         read_maps(path, SK, (320, 240))
     (tmp_path / "junk.npz").write_bytes(b"PK\x03\x04 not a zip")
     with pytest.raises(BadInput, match="not a readable"):
@@ -111,3 +113,24 @@ def test_a_member_that_is_not_npy_is_refused_by_name(tmp_path):
         "stride.npy": _npy(good["stride"])})
     with pytest.raises(BadInput, match=r"odd\.npz: member 'confidence_maps' is not a \.npy"):
         read_maps(path, SK, (320, 240))
+
+
+@settings(max_examples=60, deadline=None,
+          suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(shape=st.lists(st.integers(0, 10**7), max_size=4).map(tuple),
+       descr=st.sampled_from(["<f4", "<f2", ">f8", "<i8", "|u1", "|O", "<U3", "|V8"]),
+       data=st.binary(max_size=256), name=st.sampled_from(["pafs.npy", "pafs", "a/b.npy"]))
+def test_random_npy_headers_never_crash_or_allocate_more_than_the_file(tmp_path, shape, descr,
+                                                                      data, name):
+    """Synthetic members with random headers and data: reading either refuses them with
+    BadInput naming the file, or returns arrays no larger than the data the file holds."""
+    from app.formats.maps import read_npz
+
+    path = _zip(tmp_path / "f.npz", {name: _npy({"descr": descr, "fortran_order": False,
+                                                 "shape": shape}, data)})
+    try:
+        arrays = read_npz(path)
+    except BadInput as exc:
+        assert "f.npz" in str(exc) and "\n" not in str(exc)
+    else:
+        assert sum(a.nbytes for a in arrays.values()) <= len(data)
