@@ -23,7 +23,7 @@ from typing import Any, NoReturn
 
 from app import __version__
 from app.errors import BadInput, Cancelled, PosewrightError, ProjectLocked
-from app.fileio import MAX_ID, json_ready
+from app.fileio import MAX_ID, json_ready, read_json
 from app.model.labels import FrameState
 from app.progress import Progress
 from app.wording import count
@@ -333,9 +333,9 @@ def cmd_triage(args: argparse.Namespace) -> int:
         ranked = ranked[: args.limit]
     if args.json:
         print_json([{"frame": fid, "file_name": frames[fid].file_name,
-                      "score": round(t.score, 4), "crowd_index": round(t.crowd_index, 4),
-                      "flagged_people": t.flagged,
-                      "reasons": [r.to_dict() for r in t.reasons]} for fid, t in ranked])
+                     "score": round(t.score, 4), "crowd_index": round(t.crowd_index, 4),
+                     "flagged_people": t.flagged,
+                     "reasons": [r.to_dict() for r in t.reasons]} for fid, t in ranked])
         return 0
     for fid, t in ranked:
         kinds = sorted({r.kind for r in t.reasons})
@@ -372,7 +372,7 @@ def _check_targets(args: argparse.Namespace) -> int:
     report = check_targets(out, progress=_stderr_progress(args.quiet))
     problems = list(report.problems)
     if args.out_dir is not None:
-        manifest = json.loads((out / "manifest.json").read_text(encoding="utf-8"))
+        manifest = read_json(out / "manifest.json", "the manifest")
         with _open(args, write=False) as project:
             if manifest.get("project_id") != project.project_id:
                 problems.append(f"{out / 'manifest.json'}: field project_id: the export was "

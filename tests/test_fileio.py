@@ -1,8 +1,11 @@
 """Reading JSON strictly and writing it safely: every file the tool reads goes through here."""
 
 import json
+import sys
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from app.errors import BadInput
 from app.fileio import MAX_DEPTH, json_ready, parse_json, read_json, write_json_atomic
@@ -47,10 +50,12 @@ def test_deep_nesting_is_refused_in_one_line_at_any_depth():
         parse_json(too_deep, "x.json")
 
 
+@pytest.mark.skipif(not hasattr(sys, "get_int_max_str_digits"),
+                    reason="this Python converts integers of any length")
 def test_an_integer_too_long_to_convert_is_bad_input():
-    """CPython 3.11+ refuses to convert integers of more than 4300 digits (a ValueError that is
-    not a JSONDecodeError; Python documentation, "Integer string conversion length
-    limitation")."""
+    """CPython 3.11 (and 3.10.7) refuse to convert integers of more than 4300 digits (a
+    ValueError that is not a JSONDecodeError; Python documentation, "Integer string conversion
+    length limitation")."""
     with pytest.raises(BadInput, match="not valid JSON"):
         parse_json(b"[" + b"7" * 5000 + b"]", "x.json")
 
@@ -76,3 +81,28 @@ def test_write_json_refuses_non_finite_numbers_and_writes_nothing(tmp_path):
     assert out.read_text() == "old" and [p.name for p in tmp_path.iterdir()] == ["o.json"]
     write_json_atomic(out, {"x": [1, 2.5]})
     assert json.loads(out.read_text()) == {"x": [1, 2.5]}
+
+
+_TOKENS = ["NaN", "Infinity", "-Infinity", "1e309", "1" + "0" * 5000, "[" * 3000, "{", "\ud800"]
+
+
+@settings(max_examples=80, deadline=None)
+@given(value=st.recursive(
+    st.none() | st.booleans() | st.integers() | st.floats(allow_nan=False, allow_infinity=False)
+    | st.text(max_size=5),
+    lambda inner: st.lists(inner, max_size=3) | st.dictionaries(st.text(max_size=4), inner,
+                                                                   max_size=3),
+    max_leaves=15), token=st.sampled_from([None, *_TOKENS]), cut=st.integers(0, 3))
+def test_any_text_parses_to_what_json_reads_or_is_refused_in_one_line(value, token, cut):
+    """Synthetic JSON text, sometimes with a hostile token spliced in: parse_json returns what
+    Python's json module reads, or refuses it with BadInput naming the file; nothing else."""
+    text = json.dumps({"records": [value, "@@"]})
+    if token is not None:
+        text = text.replace('"@@"', token)
+    text = text[: len(text) - cut]
+    try:
+        data = parse_json(text.encode("utf-8", "surrogatepass"), "f.json")
+    except BadInput as exc:
+        assert str(exc).startswith("f.json: ") and "\n" not in str(exc)
+    else:
+        assert data == json.loads(text)

@@ -208,6 +208,9 @@ class Project:
         if lock is None:
             raise BadInput("another process is creating or editing a project here",
                            where=str(folder))
+        if db.exists():  # made by another process between the first look and the lock
+            lock.release()
+            raise BadInput("a project already exists here", where=str(folder))
         try:
             return cls._create_locked(folder, lock, images_dir, skeleton, author, progress)
         except BaseException as exc:
@@ -1095,7 +1098,7 @@ def _holder_reason(folder: Path) -> str:
         since = time.strftime("%Y-%m-%d %H:%M", time.localtime(holder["since"]))
         return (f"open for editing by {holder.get('author') or 'someone'} "
                 f"(process {holder['pid']} on {holder['host']}) since {since}")
-    except (OSError, ValueError, KeyError, TypeError):
+    except (OSError, ValueError, KeyError, TypeError, RecursionError):
         return "open for editing in another process"
 
 
