@@ -161,7 +161,9 @@ def test_add_images_of_a_folder(qtbot, window, ui_project, tmp_path, monkeypatch
     synthetic.write_images(folder, 2)
     before = len(ui_project.frames())
     monkeypatch.setattr(QFileDialog, "getExistingDirectory", lambda *a, **k: str(folder))
+    messages = []  # every message shown, however soon the status bar clears it again
+    window.statusBar().messageChanged.connect(messages.append)
     _press(window.canvas, "add_images")
     qtbot.waitUntil(lambda: len(ui_project.frames()) == before + 2, timeout=20_000)
     qtbot.waitUntil(lambda: window.worklist_model.rowCount() == before + 2, timeout=5000)
-    assert "added 2 frames" in window.statusBar().currentMessage()
+    qtbot.waitUntil(lambda: any("added 2 frames" in m for m in messages), timeout=5000)
