@@ -5,6 +5,8 @@ is wrong and where (file, record, field), without a traceback and without writin
 Output cut short by its reader (``posewright history P | head``) ends the command quietly with
 status 141, what a shell reports for a command stopped by SIGPIPE (128 + 13), as the other
 commands of such a pipeline do (common practice, no source).
+Text that came from a file (names, file names, ledger entries, messages quoting them) is
+printed through :func:`app.safetext.shown`, so a file cannot drive the terminal.
 """
 
 from __future__ import annotations
@@ -26,6 +28,7 @@ from app.errors import BadInput, Cancelled, PosewrightError, ProjectLocked
 from app.fileio import MAX_ID, json_ready, read_json
 from app.model.labels import FrameState
 from app.progress import Progress
+from app.safetext import shown
 from app.wording import count
 
 #: Exit status when the reader of our output went away (128 + SIGPIPE).
@@ -112,7 +115,7 @@ def _stderr_progress(quiet: bool) -> Progress:
     return Progress(show)
 
 
-def _open(args: argparse.Namespace, write: bool = True):  # -> Project
+def _open(args: argparse.Namespace, write: bool = True, say_why: bool = True):  # -> Project
     from app.jobs import open_project
 
     project = open_project(args.project, author=getattr(args, "author", None),
@@ -121,6 +124,9 @@ def _open(args: argparse.Namespace, write: bool = True):  # -> Project
         reason = project.read_only_reason
         project.close()
         raise ProjectLocked(f"{args.project}: cannot change the project: it is {reason}")
+    if project.read_only and say_why:
+        print(f"posewright: note: {shown(args.project)} is read-only: "
+              f"{shown(project.read_only_reason)}", file=sys.stderr)
     return project
 
 
@@ -156,7 +162,7 @@ def cmd_new(args: argparse.Namespace) -> int:
                         progress=_stderr_progress(args.quiet)) as project:
         frames = project.frames()
         bad = [f for f in frames if f.status != "ok"]  # each was warned about as it was read
-        print(f"created {args.project}: {count(len(frames), 'frames')}"
+        print(f"created {shown(args.project)}: {count(len(frames), 'frames')}"
               + (f", {len(bad)} unreadable" if bad else ""))
     return 0
 
@@ -195,7 +201,7 @@ def _new_from_video(args: argparse.Namespace, skeleton: Any, options: dict[str, 
             if made.is_dir() and not any(made.iterdir()):
                 made.rmdir()
         raise
-    print(f"created {args.project}: {_video_summary(frames)}")
+    print(f"created {shown(args.project)}: {_video_summary(frames)}")
     return 0
 
 
@@ -214,10 +220,10 @@ def cmd_add(args: argparse.Namespace) -> int:
         if args.video is not None:
             added = project.add_video_frames(args.video, progress=_stderr_progress(args.quiet),
                                              **options)
-            print(f"added to {args.project}: {_video_summary(added)}")
+            print(f"added to {shown(args.project)}: {_video_summary(added)}")
             return 0
         added = project.add_images(args.images, progress=_stderr_progress(args.quiet))
-        print(f"added {count(len(added), 'frames')} to {args.project}")
+        print(f"added {count(len(added), 'frames')} to {shown(args.project)}")
     return 0
 
 
@@ -230,14 +236,23 @@ def cmd_import(args: argparse.Namespace) -> int:
 
 
 def cmd_export(args: argparse.Namespace) -> int:
-    from app.jobs import export_coco
+    from app.jobs import export_coco, left_out_note
 
-    states = _states(args.states) if args.states else None
     with _open(args, write=False) as project:
-        stats = export_coco(project, args.out, states=states)
-    print(f"wrote {args.out}: {count(stats['images'], 'images')}, "
-          f"{count(stats['people'], 'people')}")
+        stats = export_coco(project, args.out, states=_states(args.states))
+    _warn_export(stats)
+    note = left_out_note(stats)
+    print(f"wrote {shown(args.out)}: {count(stats['images'], 'images')}, "
+          f"{count(stats['people'], 'people')}"
+          + (f"; {note} (--states all takes every state)" if note else ""))
     return 0
+
+
+def _warn_export(stats: dict[str, Any]) -> None:
+    from app.jobs import export_warnings
+
+    for line in export_warnings(stats):
+        print(f"posewright: warning: {line}", file=sys.stderr)
 
 
 def cmd_history(args: argparse.Namespace) -> int:
@@ -250,22 +265,22 @@ def cmd_history(args: argparse.Namespace) -> int:
     for e in entries:
         when = time.strftime("%Y-%m-%d %H:%M:%S", time.localtime(e.time))
         frame = "-" if e.frame_id is None else str(e.frame_id)
-        print(f"{e.seq:>6}  {when}  {e.author:<12}  frame {frame:<6}  {e.kind:<6}  "
-              f"{e.target:<22}  {e.summary}")
+        print(f"{e.seq:>6}  {when}  {shown(e.author):<12}  frame {frame:<6}  {e.kind:<6}  "
+              f"{shown(e.target):<22}  {shown(e.summary)}")
     return 0
 
 
 def cmd_summary(args: argparse.Namespace) -> int:
     from app.jobs import summary
 
-    with _open(args, write=False) as project:
+    with _open(args, write=False, say_why=False) as project:  # the summary says it
         info = summary(project)
     if args.json:
         print_json(info)
     else:
         for key, value in info.items():
             if value is not None:
-                print(f"{key:>18}: {value}")
+                print(f"{key:>18}: {shown(value)}")
     return 0
 
 
@@ -275,9 +290,9 @@ def cmd_mend(args: argparse.Namespace) -> int:
     with _open(args) as project:
         notes = mend_numbers(project)
     for note in notes:
-        print(f"mended {note}")
-    print(f"{args.project}: " + (f"mended {count(len(notes), 'fields')}" if notes
-                                 else "every number is finite; nothing to mend"))
+        print(f"mended {shown(note)}")
+    print(f"{shown(args.project)}: " + (f"mended {count(len(notes), 'fields')}" if notes
+                                        else "every number is finite; nothing to mend"))
     return 0
 
 
@@ -288,7 +303,8 @@ def cmd_demo(args: argparse.Namespace) -> int:
     _check_demo_target(out, args.force)
     generate(out, seed=DEFAULT_SEED if args.seed is None else args.seed, frames=args.frames,
              progress=_stderr_progress(args.quiet))
-    print(f"wrote the demo scenario to {out}; open it with `posewright open {out}`")
+    print(f"wrote the demo scenario to {shown(out)}; open it with "
+          f"`posewright open {shown(out)}`")
     return 0
 
 
@@ -339,12 +355,13 @@ def cmd_triage(args: argparse.Namespace) -> int:
         return 0
     for fid, t in ranked:
         kinds = sorted({r.kind for r in t.reasons})
-        print(f"{t.score:7.2f}  frame {fid:<6} {frames[fid].file_name:<28} "
+        print(f"{t.score:7.2f}  frame {fid:<6} {shown(frames[fid].file_name):<28} "
               f"{len(t.flagged)} flagged  {', '.join(kinds)}")
     return 0
 
 
 def cmd_targets(args: argparse.Namespace) -> int:
+    from app.jobs import left_out_note
     from app.jobs_analysis import TargetSettings, export_targets
 
     if args.check:
@@ -354,12 +371,14 @@ def cmd_targets(args: argparse.Namespace) -> int:
     settings = TargetSettings(stride=args.stride, sigma=args.sigma, limb_width=args.limb_width,
                               dtype=args.dtype)
     settings.check()
-    states = None if args.states == "all" else _states(args.states)
     with _open(args, write=False) as project:
-        stats = export_targets(project, args.out_dir, settings, states=states,
+        stats = export_targets(project, args.out_dir, settings, states=_states(args.states),
                                progress=_stderr_progress(args.quiet))
-    print(f"wrote {count(stats['frames'], 'frames')} of training targets to {stats['out']}"
-          + (f" ({stats['skipped']} skipped: unreadable images)" if stats["skipped"] else ""))
+    _warn_export(stats)
+    note = left_out_note(stats)
+    print(f"wrote {count(stats['frames'], 'frames')} of training targets to "
+          f"{shown(stats['out'])}"
+          + (f"; {note} (--states all takes every state)" if note else ""))
     return 0
 
 
@@ -381,10 +400,10 @@ def _check_targets(args: argparse.Namespace) -> int:
                 problems.append(f"{out / 'manifest.json'}: field skeleton: not the skeleton "
                                 f"of {args.project}")
     for problem in problems:
-        print(f"posewright: error: {problem}", file=sys.stderr)
+        print(f"posewright: error: {shown(problem)}", file=sys.stderr)
     if problems:
         return 2
-    print(f"ok: {count(report.frames, 'frames')} checked in {out}")
+    print(f"ok: {count(report.frames, 'frames')} checked in {shown(out)}")
     return 0
 
 
@@ -401,7 +420,7 @@ def cmd_prelabel(args: argparse.Namespace) -> int:
         print_json(stats)
     else:
         print(f"pre-labelled {count(stats.get('frames', 0), 'frames')} with "
-              f"{Path(args.model).name}: {count(stats.get('people', 0), 'people')} on "
+              f"{shown(Path(args.model).name)}: {count(stats.get('people', 0), 'people')} on "
               f"{count(stats.get('frames grouped', 0), 'frames')}"
               + (f"; {count(stats['frames kept'], 'frames')} kept their labels"
                  if stats.get("frames kept") else "")
@@ -422,11 +441,36 @@ def cmd_render(args: argparse.Namespace) -> int:
     return render_frame(args)
 
 
-def _states(text: str) -> list[FrameState]:
+def _states(text: str) -> list[FrameState] | None:
+    """The states an export takes: ``all`` (None), or a comma-separated list."""
+    if text.strip().lower() == "all":
+        return None
     try:
-        return [FrameState.parse(s) for s in text.split(",") if s.strip()]
+        states = [FrameState.parse(s) for s in text.split(",") if s.strip()]
     except ValueError as exc:
         raise BadInput(str(exc), where="--states") from None
+    if not states:
+        raise BadInput("no states named", where="--states", hint="e.g. corrected,signed-off")
+    return states
+
+
+#: What ``--states`` says in the help of every command that exports.
+_STATES_HELP = ("frames in these states, e.g. corrected,signed-off,disputed (default "
+                "corrected,signed-off: the frames a person has checked), or 'all'; a frame "
+                "whose image cannot be read is never exported; a warning names untouched or "
+                "disputed frames in the export")
+
+
+def _limits(args: argparse.Namespace) -> None:
+    """Apply ``--max-megapixels`` and ``--memory-budget-mb`` to this process."""
+    if getattr(args, "max_megapixels", None) is not None:
+        from app.formats.images import set_max_megapixels
+
+        set_max_megapixels(args.max_megapixels)
+    if getattr(args, "memory_budget_mb", None) is not None:
+        from app.inference.budget import set_budget_mb
+
+        set_budget_mb(args.memory_budget_mb)
 
 
 # ---------------------------------------------------------------------- wiring
@@ -449,6 +493,11 @@ def build_parser() -> argparse.ArgumentParser:
         p.set_defaults(fn=fn)
         return p
 
+    def pixel_limit(p: argparse.ArgumentParser) -> None:
+        p.add_argument("--max-megapixels", type=float, metavar="N",
+                       help="refuse to decode images over N megapixels (default: "
+                            "$POSEWRIGHT_MAX_MEGAPIXELS, else 100); larger ones are unreadable")
+
     def video_options(p: argparse.ArgumentParser) -> None:
         p.add_argument("--every", type=whole_number(), metavar="N",
                        help="with --video: keep every N-th frame (default 1)")
@@ -462,21 +511,24 @@ def build_parser() -> argparse.ArgumentParser:
                    help="video whose frames are extracted into PROJECT/frames/<name>/")
     video_options(p)
     p.add_argument("--skeleton", metavar="FILE.json", help="custom skeleton (default: COCO body)")
+    pixel_limit(p)
 
     p = command("add", cmd_add, "add the new images of a folder, or frames of a video")
     source = p.add_mutually_exclusive_group(required=True)
     source.add_argument("--images", metavar="DIR")
     source.add_argument("--video", metavar="FILE")
     video_options(p)
+    pixel_limit(p)
 
     p = command("import", cmd_import, "import COCO keypoints labels (dataset or results list)")
     p.add_argument("file", metavar="FILE.json")
     p.add_argument("--json", action="store_true", help="print the counts as JSON")
 
-    p = command("export", cmd_export, "export the labels as a COCO keypoints dataset")
+    p = command("export", cmd_export, "export the labels as a COCO keypoints dataset (by "
+                "default of the corrected and signed-off frames)")
     p.add_argument("--out", metavar="FILE.json", required=True)
-    p.add_argument("--states", metavar="LIST",
-                   help="only frames in these states, e.g. corrected,signed-off")
+    p.add_argument("--states", metavar="LIST", default="corrected,signed-off",
+                   help=_STATES_HELP)
 
     p = command("history", cmd_history, "show the ledger of edits, newest first")
     p.add_argument("--frame", metavar="ID", help="only this frame (id or file name)")
@@ -497,7 +549,8 @@ def build_parser() -> argparse.ArgumentParser:
                    help="show only the N worst frames")
 
     p = command("targets", cmd_targets,
-                "write training targets (confidence maps, PAFs, loss masks) per frame")
+                "write training targets (confidence maps, PAFs, loss masks) per frame (by "
+                "default of the corrected and signed-off frames)")
     p.add_argument("out_dir", metavar="OUT_DIR", nargs="?")
     p.add_argument("--check", action="store_true",
                    help="re-read the export in OUT_DIR and verify shapes, ranges and the "
@@ -506,8 +559,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--sigma", type=float, default=7.0, help="confidence-map sigma, image px")
     p.add_argument("--limb-width", type=float, default=8.0, help="PAF half-width, image px")
     p.add_argument("--dtype", choices=("float16", "float32"), default="float32")
-    p.add_argument("--states", default="corrected,signed-off",
-                   help="frames in these states (default corrected,signed-off), or 'all'")
+    p.add_argument("--states", metavar="LIST", default="corrected,signed-off",
+                   help=_STATES_HELP)
 
     p = command("prelabel", cmd_prelabel,
                 "run an ONNX pose model on the CPU and store what it finds as auto-labels")
@@ -519,16 +572,22 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--frames", metavar="LIST",
                    help="frame ids and ranges (1,2,5-9), 'untouched' or 'all' (default all)")
     p.add_argument("--json", action="store_true", help="print the counts as JSON")
+    p.add_argument("--memory-budget-mb", type=float, metavar="MB",
+                   help="refuse a config whose tensors would need more than MB megabytes "
+                        "(default: $POSEWRIGHT_MEMORY_BUDGET_MB, else 2048)")
+    pixel_limit(p)
 
     p = command("open", cmd_open, "open the project in the desktop app")
     p.add_argument("--screenshot", metavar="FILE.png",
                    help="render the window showing the most suspicious frame to FILE and exit")
+    pixel_limit(p)
 
     p = command("render", cmd_render, "draw one frame with its labels, as the Canvas shows it")
     p.add_argument("--frame", metavar="ID", required=True, help="frame id or image file name")
     p.add_argument("--out", metavar="FILE.png", required=True)
     p.add_argument("--focus", metavar="PERSON", type=whole_number(),
                    help="dim everyone but this person")
+    pixel_limit(p)
 
     p = command("mend", cmd_mend, "replace NaN and infinite numbers kept from an import made "
                                   "before they were refused, so exports write what it holds")
@@ -549,11 +608,12 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
-class _Format(logging.Formatter):
-    """Log lines as the command's other messages: ``posewright: warning: ...``."""
+class _ShownFormatter(logging.Formatter):
+    """Log lines as the command's other messages (``posewright: warning: ...``), escaped like
+    everything else printed (library code logs file names and paths as they are)."""
 
     def format(self, record: logging.LogRecord) -> str:
-        return f"posewright: {record.levelname.lower()}: {record.getMessage()}"
+        return shown(f"posewright: {record.levelname.lower()}: {record.getMessage()}")
 
 
 class _Stderr(logging.StreamHandler):  # type: ignore[type-arg]
@@ -570,7 +630,7 @@ class _Stderr(logging.StreamHandler):  # type: ignore[type-arg]
 
 
 _HANDLER = _Stderr()
-_HANDLER.setFormatter(_Format())
+_HANDLER.setFormatter(_ShownFormatter())
 
 
 def _log_to_stderr(verbose: bool) -> None:
@@ -598,25 +658,26 @@ def main(argv: Sequence[str] | None = None) -> int:
     args = parser.parse_args(argv)
     _log_to_stderr(args.verbose)
     try:
+        _limits(args)
         status = int(args.fn(args))
         sys.stdout.flush()
         return status
     except BrokenPipeError:
         return _stdout_gone()
     except Cancelled as exc:
-        print(f"posewright: {exc}; nothing was changed", file=sys.stderr)
+        print(f"posewright: {shown(exc)}; nothing was changed", file=sys.stderr)
         return 130
     except PosewrightError as exc:
-        print(f"posewright: error: {exc}", file=sys.stderr)
+        print(f"posewright: error: {shown(exc)}", file=sys.stderr)
         return exc.exit_status
     except KeyboardInterrupt:
         print("posewright: interrupted; the action in flight was not kept", file=sys.stderr)
         return 130
     except OSError as exc:
         where = f"{exc.filename}: " if exc.filename else ""
-        print(f"posewright: error: {where}{exc.strerror or exc}", file=sys.stderr)
+        print(f"posewright: error: {shown(where)}{shown(exc.strerror or exc)}", file=sys.stderr)
         return 2
     except sqlite3.Error as exc:
         # The store turns failed writes into errors of our own; this is a read that failed.
-        print(f"posewright: error: the project database: {exc}", file=sys.stderr)
+        print(f"posewright: error: the project database: {shown(exc)}", file=sys.stderr)
         return 2

@@ -10,7 +10,8 @@ where they were.
 
 An atomic write goes to a temporary file in the destination's folder, is flushed and fsynced,
 and only then renamed over the destination; a reader never sees half a file and a failure
-leaves the old file as it was.
+leaves the old file as it was. The temporary is claimed while it is written, and temporaries of
+the same destination that a killed process left are removed first (:mod:`app.workfiles`).
 """
 
 from __future__ import annotations
@@ -27,6 +28,7 @@ from typing import IO, Annotated, Any
 from pydantic import Field, StrictInt
 
 from app.errors import BadInput, NotFound
+from app.workfiles import Claim, sweep
 
 #: Deepest nesting of arrays and objects accepted in a JSON file. The files Posewright reads
 #: nest five or six levels; the limit keeps every later step (validation, storing, writing
@@ -215,16 +217,18 @@ def atomic_write(path: str | Path, mode: str = "wb", **open_args: Any) -> Iterat
     folder = path.parent if str(path.parent) else Path(".")
     if not folder.is_dir():
         raise NotFound(f"{path}: the folder {folder} does not exist")
+    sweep(path, ".tmp")
     try:
         fd, tmp = tempfile.mkstemp(prefix=path.name + ".", suffix=".tmp", dir=folder)
     except OSError as exc:
         raise BadInput(f"cannot write here ({exc.strerror})", where=str(path)) from None
     try:
-        with os.fdopen(fd, mode, **open_args) as fh:
-            yield fh
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
+        with Claim(tmp):
+            with os.fdopen(fd, mode, **open_args) as fh:
+                yield fh
+                fh.flush()
+                os.fsync(fh.fileno())
+            os.replace(tmp, path)
     except BaseException:
         Path(tmp).unlink(missing_ok=True)
         raise

@@ -3,13 +3,19 @@ sources when needed), import and export labels, mend numbers JSON cannot hold.
 
 Each job takes an optional :class:`~app.progress.Progress` so the app can show progress and
 cancel it from a worker thread; every job that writes is all-or-nothing.
+
+What leaves the project follows one rule, for the COCO export and the training targets alike
+(:func:`choose_frames`): the frames in :data:`EXPORT_STATES` (corrected and signed off: the
+frames a person has checked) unless other states are asked for, and never a frame whose image
+cannot be read (its size is unknown and training could not load it). :func:`export_warnings`
+words what an export should tell its user about the rest.
 """
 
 from __future__ import annotations
 
 import json
 import logging
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any, ClassVar
@@ -18,12 +24,16 @@ from app.errors import BadInput
 from app.fileio import json_ready, read_json, write_json_atomic
 from app.formats import coco
 from app.model.edits import Change, Restore
-from app.model.labels import FrameState, Region
+from app.model.labels import Frame, FrameState, Region
 from app.model.skeleton import skeleton_from_dict
 from app.progress import Progress
 from app.store.project import DB_NAME, Project
+from app.wording import count
 
 log = logging.getLogger(__name__)
+
+#: The states an export takes unless told otherwise: the frames a person has checked.
+EXPORT_STATES: tuple[FrameState, ...] = (FrameState.CORRECTED, FrameState.SIGNED_OFF)
 
 SOURCES_NAME = "project-sources.json"
 SOURCES_FORMAT = "posewright-project-sources"
@@ -117,18 +127,104 @@ def import_coco(project: Project, path: str | Path,
     return b.stats
 
 
-def export_coco(project: Project, out: str | Path,
-                states: Sequence[FrameState] | None = None) -> dict[str, int]:
-    """Write the project's labels as a COCO keypoints dataset to ``out`` (atomically).
+@dataclass(frozen=True)
+class ExportChoice:
+    """The frames an export writes (``frames``), those of the chosen states it cannot write
+    (``unreadable``: the image cannot be read) and how many it leaves out by their state."""
 
-    ``states``, when given, keeps only frames in those states. A non-finite number kept from
-    an import made before such numbers were refused is written as
-    :func:`app.formats.coco.json_ready_dataset` says, with a warning naming the record and
-    how to mend the project (:func:`mend_numbers`).
+    frames: list[Frame]
+    unreadable: list[Frame]
+    left_out: int
+
+    def counts(self) -> dict[str, int]:
+        """``left_out``, ``unreadable``, and how many written frames are ``untouched`` and
+        ``disputed`` (the frames :func:`export_warnings` warns about)."""
+        return {"left_out": self.left_out, "unreadable": len(self.unreadable),
+                "untouched": sum(f.state is FrameState.UNTOUCHED for f in self.frames),
+                "disputed": sum(f.state is FrameState.DISPUTED for f in self.frames)}
+
+
+def choose_frames(project: Project,
+                  states: Sequence[FrameState] | None = EXPORT_STATES) -> ExportChoice:
+    """The frames an export takes: those in ``states`` (None: every state) whose image can be
+    read.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> with Project.create(tempfile.mkdtemp()) as p:
+    ...     choose_frames(p).counts()
+    {'left_out': 0, 'unreadable': 0, 'untouched': 0, 'disputed': 0}
     """
     frames = project.frames()
-    if states is not None:
-        frames = [f for f in frames if f.state in set(states)]
+    wanted = set(FrameState) if states is None else set(states)
+    chosen = [f for f in frames if f.state in wanted]
+    readable = [f for f in chosen if f.status == "ok" and f.width > 0 and f.height > 0]
+    unreadable = [f for f in chosen if f not in readable]
+    return ExportChoice(readable, unreadable, len(frames) - len(chosen))
+
+
+def export_warnings(counts: Mapping[str, int]) -> list[str]:
+    """What an export should warn its user about, one line each: frames it could not write,
+    and frames it wrote that nobody has checked (untouched) or that are in dispute.
+
+    Examples
+    --------
+    >>> export_warnings({"unreadable": 1, "untouched": 2, "disputed": 1, "left_out": 0})
+    ['1 frame not exported: its image cannot be read', 'the export holds 2 untouched frames \
+and 1 disputed frame: labels nobody has checked or still in dispute']
+    """
+    lines = []
+    if counts.get("unreadable"):
+        n = counts["unreadable"]
+        lines.append(f"{count(n, 'frames')} not exported: "
+                     + ("its image cannot be read" if n == 1 else "their images cannot be read"))
+    held = [count(counts[k], f"{k} frames") for k in ("untouched", "disputed") if counts.get(k)]
+    if held:
+        lines.append("the export holds " + " and ".join(held)
+                     + ": labels nobody has checked or still in dispute")
+    return lines
+
+
+def left_out_note(counts: Mapping[str, int]) -> str:
+    """How many frames an export left out by their state ("" if none).
+
+    Examples
+    --------
+    >>> left_out_note({"left_out": 3})
+    '3 frames left out by their state'
+    """
+    n = counts.get("left_out", 0)
+    return f"{count(n, 'frames')} left out by their state" if n else ""
+
+
+def export_coco(project: Project, out: str | Path,
+                states: Sequence[FrameState] | None = EXPORT_STATES) -> dict[str, int]:
+    """Write the project's labels as a COCO keypoints dataset to ``out`` (atomically).
+
+    Parameters
+    ----------
+    project
+        The project.
+    out
+        The JSON file to write.
+    states
+        The frames to take, by state (None: every state). Frames whose image cannot be read
+        are never written (see :func:`choose_frames`).
+
+    Returns
+    -------
+    dict
+        ``images`` and ``people`` written, and :meth:`ExportChoice.counts`.
+
+    Notes
+    -----
+    A non-finite number kept from an import made before such numbers were refused is written
+    as :func:`app.formats.coco.json_ready_dataset` says, with a warning naming the record and
+    how to mend the project (:func:`mend_numbers`).
+    """
+    choice = choose_frames(project, states)
+    frames = choice.frames
     people = project.people_by_frame()
     category = json.loads(project.meta("coco_category") or "null") or \
         project.skeleton.coco_category()
@@ -143,7 +239,7 @@ def export_coco(project: Project, out: str | Path,
         log.warning("%s: %s; `posewright mend %s` mends the project", out, note, project.folder)
     write_json_atomic(out, dataset)
     n_people = sum(len(people.get(f.id, ())) for f in frames)
-    return {"images": len(frames), "people": n_people}
+    return {"images": len(frames), "people": n_people, **choice.counts()}
 
 
 @dataclass(frozen=True)

@@ -25,9 +25,11 @@ from app.analysis.targets import confidence_maps, loss_mask, part_affinity_field
 from app.errors import BadInput, NotFound
 from app.fileio import read_json
 from app.formats.maps import NetworkMaps, match_map_files, read_maps, read_npz
+from app.jobs import EXPORT_STATES, choose_frames
 from app.model.labels import AUTO, Frame, FrameState, Person
 from app.progress import Progress
 from app.store.project import Project
+from app.workfiles import Claim, sweep
 
 log = logging.getLogger(__name__)
 
@@ -130,8 +132,7 @@ class TargetSettings:
 
 
 def export_targets(project: Project, out_dir: str | Path, settings: TargetSettings | None = None,
-                   states: Sequence[FrameState] | None = (FrameState.CORRECTED,
-                                                          FrameState.SIGNED_OFF),
+                   states: Sequence[FrameState] | None = EXPORT_STATES,
                    progress: Progress | None = None) -> dict[str, Any]:
     """Write training targets: one ``.npz`` per frame plus ``manifest.json``.
 
@@ -140,8 +141,12 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
     the manifest holds every parameter, the skeleton and the frame list, so a training script
     needs nothing else. Image paths in it are relative to ``out_dir`` (each frame's ``image``,
     and ``images_root``, the project's images folder, to which ``file_name`` is relative).
-    ``states`` picks the frames (None: all). The folder appears complete or not at all: it is
-    written beside ``out_dir`` and renamed at the end.
+    ``states`` picks the frames (None: all); a frame whose image cannot be read is never
+    written but listed in the manifest's ``skipped`` (the rule of
+    :func:`app.jobs.choose_frames`, shared with the COCO export). The folder appears complete
+    or not at all: it is written beside ``out_dir`` (``OUT_DIR.<random>.partial``) and renamed
+    at the end; such folders that a killed run left are removed first (:mod:`app.workfiles`).
+    Returns ``frames`` written, ``skipped``, ``out`` and :meth:`app.jobs.ExportChoice.counts`.
     """
     settings = settings or TargetSettings()
     settings.check()
@@ -153,17 +158,17 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
     parent = out.parent if str(out.parent) else Path(".")
     if not parent.is_dir():
         raise NotFound(f"{out}: the folder {parent} does not exist")
-    frames = [f for f in project.frames()
-              if states is None or f.state in set(states)]
-    skipped = [f for f in frames if f.status != "ok" or f.width <= 0]
-    frames = [f for f in frames if f not in skipped]
+    choice = choose_frames(project, states)
+    frames, skipped = choice.frames, choice.unreadable
     people = project.people_by_frame()
     regions = project.regions_by_frame()
     sk = project.skeleton
     limbs = sk.limb_array
     dtype = np.float16 if settings.dtype == "float16" else np.float32
     min_margin = settings.min_margin if settings.min_margin is not None else 3 * settings.sigma
+    sweep(out, ".partial")
     work = Path(tempfile.mkdtemp(prefix=out.name + ".", suffix=".partial", dir=parent))
+    claim = Claim(work)  # so that a later run can tell this folder from a killed run's
     entries = []
     try:
         for n, f in enumerate(frames):
@@ -224,7 +229,10 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
     except BaseException:
         shutil.rmtree(work, ignore_errors=True)
         raise
-    return {"frames": len(entries), "skipped": len(skipped), "out": str(out)}
+    finally:
+        claim.release()
+    return {"frames": len(entries), "skipped": len(skipped), "out": str(out),
+            **choice.counts()}
 
 
 def _relative_to(path: Path, folder: Path) -> str:

@@ -2,8 +2,8 @@
 README's numpy-only loader, and `targets --check` finding what is wrong with an export.
 
 Formulas: Cao et al., "Realtime Multi-Person 2D Pose Estimation using Part Affinity Fields",
-CVPR 2017, Sec. 2.2-2.3 (maps and fields; the loss mask of Sec. 2.1 with the box rule of
-DESIGN.md section 4 and app/analysis/targets.loss_mask). The frames and people are synthetic.
+CVPR 2017, Sec. 2.2-2.3 (maps and fields; the loss mask of Sec. 2.1 with our own box rule,
+documented in app/analysis/targets.loss_mask). The frames and people are synthetic.
 """
 
 import json

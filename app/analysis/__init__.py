@@ -6,6 +6,8 @@
   parts into people (Cao et al., CVPR 2017, Sec. 2.4).
 - :mod:`app.analysis.similarity` -- COCO object keypoint similarity (OKS), matching people
   between two sets of labels, per-joint disagreement.
+- :mod:`app.analysis.tracks` -- linking the people of consecutive frames into tracks (OKS
+  against each track's predicted pose, optimal assignment, gaps bridged).
 
 Arrays in, arrays out: nothing here reads files, touches the store or imports Qt.
 """

@@ -14,6 +14,37 @@ people. The constants below set the rates; they were tuned so that grouping thes
 :func:`app.analysis.association.group_people` makes the crowd errors at a realistic rate (the
 figures are in the docstring of :mod:`app.demo`).
 
+Errors that last
+----------------
+On video a network's crowd errors are not drawn afresh each frame: the picture barely changes
+from one frame to the next, so the same two dancers' wrists stay swapped, and the same hidden
+knee stays at the same invented spot, for as long as the dancers stay tangled. Each error kind
+below is therefore a *run*: it starts on a frame, lasts a number of frames and is then drawn
+afresh. :class:`ErrorRuns` carries the runs in progress from frame to frame, keyed by the
+dancer's track id (and the joint, and for a neighbour's hand the neighbour's track id).
+
+- Onset is tied to what causes the error: a hidden joint (its occlusion), a neighbour's joint
+  within reach, a back or a side turned to the camera, a covered hip, a mostly hidden or small
+  dancer. The *share* of frames showing an error under that cause is the calibrated rate of
+  the constants below (the same rates as when each frame was drawn alone).
+- A run's length is geometric, ``P(L = n) = q (1 - q)^(n - 1)`` for ``n = 1, 2, ...``, with
+  mean ``1 / q`` given per kind in :data:`MEAN_RUN`: the run length of a two-state chain that
+  clears with the same chance every frame, the simplest model of an error that persists, and
+  memoryless, so a sequence can start anywhere.
+- A run ends early when its cause goes: the joint comes into view, the neighbour moves away,
+  the dancer turns. Otherwise runs are independent of each other.
+- Between runs an error starts with the chance ``h = s / (m (1 - s) + s)`` per frame, for a
+  share ``s`` and a mean run ``m``: with runs of mean ``m`` separated by waits of mean
+  ``(1 - h) / h`` frames, the share of frames in a run is ``m h / (m h + 1 - h) = s``. A
+  dancer seen for the first time starts in a run with chance ``s`` (the chain's stationary
+  state; by memorylessness the rest of that run is again geometric with mean ``m``).
+
+The mean runs are our choice, about half a second of footage: the dance moves four frames to
+a count, and at a moderate tempo of two counts a second a frame lasts about an eighth of a
+second. A back seen from behind stays a back for longer (6 frames), a crossing step crosses
+the legs for about a count (3). Jitter of the peaks and joints missed by a hair flicker from
+frame to frame (drawn afresh), as a network's do.
+
 The error model is our own (no published source); it is meant to look like network output to
 the grouping and to a person reading the maps, not to reproduce a particular network.
 """
@@ -22,7 +53,7 @@ from __future__ import annotations
 
 import io
 import zipfile
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import cv2
@@ -35,37 +66,50 @@ from app.model.skeleton import Skeleton
 # full occlusion adds.
 _JITTER = 0.003
 _JITTER_OCCLUDED = 0.006
-# Chance that an occluded joint is placed at an invented spot, times its occlusion.
+# Share of frames on which an occluded joint is placed at an invented spot, times its
+# occlusion.
 _INVENT = 0.03
 # Chance that a joint is missed: base, and times occlusion squared.
 _MISS = 0.002
 _MISS_OCCLUDED = 0.02
-# Chances of left-right confusion: the whole body of someone seen from behind, the legs of
+# Shares of left-right confusion: the whole body of someone seen from behind, the legs of
 # someone side-on (the crossing step makes legs hard to tell apart).
 _FLIP_BODY = 0.15
 _FLIP_LEGS = 0.06
-# Chance per wrist, elbow and ankle of an extra peak in its channel at a neighbour's joint of the
-# other side (linked arms and crossing legs invite it).
+# Share per wrist, elbow and ankle of an extra peak in its channel at a neighbour's joint of
+# the other side, while that joint is within reach (linked arms and crossing legs invite it).
 _SPURIOUS = 0.02
-# Chance that the fields joining shoulders to hips fail (more so when the hips are covered):
-# the person falls apart into an upper and a lower body.
+# Share of frames on which the fields joining shoulders to hips fail (more so when the hips are
+# covered): the person falls apart into an upper and a lower body.
 _SPLIT = 0.015
-# Chance of a faint second copy of someone's upper body (a person found twice).
+# Share of frames with a faint second copy of someone's upper body (a person found twice).
 _ECHO = 0.08
 # People shorter than this many pixels, or with most joints hidden, are often missed.
 _SMALL = 150.0
+
+#: Mean length in frames of a run of each error kind (see the module docstring).
+MEAN_RUN: dict[str, float] = {
+    "lost": 4.0,
+    "flip-body": 6.0,
+    "flip-legs": 3.0,
+    "invent": 4.0,
+    "spurious": 4.0,
+    "split": 3.0,
+    "echo": 3.0,
+}
 
 _FACE = (0, 1, 2, 3, 4)
 _CHAINS = {7: (5, 9), 8: (6, 10), 13: (11, 15), 14: (12, 16)}
 _ENDS = {9: (7, 5), 10: (8, 6), 15: (13, 11), 16: (14, 12)}
 _ARMS = (5, 7, 9, 6, 8, 10)
+_LEGS = (11, 13, 15, 12, 14, 16)
+_SPURIOUS_JOINTS = (7, 8, 9, 10, 15, 16)
 
 
 def _trunk_limbs(limbs: np.ndarray) -> np.ndarray:
     """Mask of the limbs joining a shoulder to a hip."""
     ends = np.sort(limbs, axis=1)
     return np.isin(ends[:, 0], (5, 6)) & np.isin(ends[:, 1], (11, 12))
-_LEGS = (11, 13, 15, 12, 14, 16)
 
 
 @dataclass(frozen=True)
@@ -91,28 +135,126 @@ class NetworkPerson:
     limb_width: float
 
 
-def _guess(kp: np.ndarray, j: int, height: float, rng: np.random.Generator) -> np.ndarray:
-    """An invented but plausible position for hidden joint ``j`` given the others."""
+@dataclass
+class ErrorRuns:
+    """The simulated network's errors in progress, carried from one frame to the next.
+
+    Each entry holds the frames a run has still to last after the current one (0: no run),
+    and what the run needs to look the same on every frame. Keys are track ids (and joints).
+
+    Attributes
+    ----------
+    seen
+        Track ids met so far (a dancer met for the first time starts in the chain's
+        stationary state).
+    left
+        ``(track id, kind) -> frames left`` for the per-dancer kinds ``lost``, ``flip-body``,
+        ``flip-legs``, ``split`` and ``echo``.
+    invent
+        ``track id -> ((K,) frames left, (K, 3) the draws that place each invented spot)``.
+    echo_shift
+        ``track id -> (2,)`` the echo's offset, in units of the person's height.
+    spurious
+        ``(track id, joint) -> (frames left, the neighbour's track id)``.
+
+    Examples
+    --------
+    >>> runs = ErrorRuns()
+    >>> len(runs.seen), runs.left
+    (0, {})
+    """
+
+    seen: set[int] = field(default_factory=set)
+    left: dict[tuple[int, str], int] = field(default_factory=dict)
+    invent: dict[int, tuple[np.ndarray, np.ndarray]] = field(default_factory=dict)
+    echo_shift: dict[int, np.ndarray] = field(default_factory=dict)
+    spurious: dict[tuple[int, int], tuple[int, int]] = field(default_factory=dict)
+
+    def step(self, key: tuple[int, str], share: float, fresh: bool,
+             rng: np.random.Generator) -> int:
+        """Advance one per-dancer run by a frame; the frames it lasts from this one (0: none)."""
+        active = int(run_lengths(self.left.get(key, 0), share, MEAN_RUN[key[1]], fresh, rng))
+        self.left[key] = max(active - 1, 0)
+        return active
+
+
+def run_lengths(left: np.ndarray | int, share: np.ndarray | float, mean: float, fresh: bool,
+                rng: np.random.Generator) -> np.ndarray:
+    """Advance error runs by one frame.
+
+    Parameters
+    ----------
+    left
+        Frames each run has still to last after the previous frame (0: not in a run).
+    share
+        Share of frames in a run while the error's cause holds, in [0, 1]; 0 where the cause
+        is gone, which ends a run.
+    mean
+        Mean run length in frames (at least 1).
+    fresh
+        True on a dancer's first frame: start in a run with chance ``share``.
+    rng
+        Random source (one uniform and one geometric draw per entry, in this order).
+
+    Returns
+    -------
+    numpy.ndarray
+        Frames each run lasts counting this one (0: no error on this frame), the shape of
+        ``share``.
+
+    Notes
+    -----
+    A run continues while frames are left and its cause holds. Otherwise one starts with the
+    chance ``h = s / (m (1 - s) + s)`` (``s`` the share, ``m`` the mean; ``h = s`` when fresh)
+    and lasts ``L ~ Geometric(1 / m)`` frames, ``L >= 1``. Runs of mean ``m`` separated by
+    waits of mean ``(1 - h) / h`` fill the share ``m h / (m h + 1 - h) = s`` of the frames.
+
+    References
+    ----------
+    The two-state chain and its geometric sojourn times: any text on Markov chains, e.g.
+    Feller, "An Introduction to Probability Theory and Its Applications", vol. 1, Ch. XV (from
+    memory). The use for a network's errors is ours.
+
+    Examples
+    --------
+    >>> rng = np.random.default_rng(0)
+    >>> run_lengths(np.array([3, 0, 2]), np.array([0.5, 0.0, 0.0]), 4.0, False, rng).tolist()
+    [3, 0, 0]
+    """
+    share = np.clip(np.asarray(share, dtype=np.float64), 0.0, 1.0)
+    onset = share if fresh else share / (mean * (1.0 - share) + share + 1e-12)
+    start = rng.random(share.shape) < onset
+    length = rng.geometric(1.0 / mean, share.shape)
+    active = np.where(np.asarray(left) > 0, left, np.where(start, length, 0))
+    return np.where(share > 0, active, 0).astype(np.int64)
+
+
+def _guess(kp: np.ndarray, j: int, height: float, draw: np.ndarray) -> np.ndarray:
+    """An invented but plausible position for hidden joint ``j`` given the others.
+
+    ``draw`` is ``(3,)``: two standard normal values and one uniform in [0, 1), kept for a
+    run so that the invented spot sits at the same place relative to the body on every frame.
+    """
     if j in _CHAINS:
         a, b = _CHAINS[j]
-        bend = rng.normal(0, 0.04 * height, 2)
-        return 0.5 * (kp[a, :2] + kp[b, :2]) + bend
+        return 0.5 * (kp[a, :2] + kp[b, :2]) + draw[:2] * (0.04 * height)
     if j in _ENDS:
         mid, root = _ENDS[j]
         step = kp[mid, :2] - kp[root, :2]
-        return kp[mid, :2] + step * rng.uniform(0.7, 1.1)
+        return kp[mid, :2] + step * (0.7 + 0.4 * draw[2])
     if j in _FACE:
         shown = [f for f in _FACE if f != j and kp[f, 2] > 0]
         centre = kp[shown, :2].mean(axis=0) if shown else kp[j, :2]
-        return centre + rng.normal(0, 0.02 * height, 2)
+        return centre + draw[:2] * (0.02 * height)
     # Shoulders and hips: a torso-length away from the other end of the trunk, same side.
     other = {5: 11, 6: 12, 11: 5, 12: 6}[j]
     up = -1.0 if j in (5, 6) else 1.0
-    return kp[other, :2] + np.array([rng.normal(0, 0.03 * height), up * 0.28 * height])
+    return kp[other, :2] + np.array([draw[0] * 0.03 * height, up * 0.28 * height])
 
 
 def perceive(keypoints: np.ndarray, occlusion: np.ndarray, height: np.ndarray,
-             facing: np.ndarray, skeleton: Skeleton, rng: np.random.Generator
+             facing: np.ndarray, skeleton: Skeleton, rng: np.random.Generator,
+             track_ids: np.ndarray | None = None, runs: ErrorRuns | None = None
              ) -> list[NetworkPerson]:
     """Turn true poses into the people a crowd-confused network would respond to.
 
@@ -130,6 +272,11 @@ def perceive(keypoints: np.ndarray, occlusion: np.ndarray, height: np.ndarray,
         The joint layout (flip pairs and limbs).
     rng
         Random source (consumed in a fixed order, so results are reproducible).
+    track_ids
+        ``(P,)`` which dancer each row is (default ``1..P``): the key of the error runs.
+    runs
+        The error runs of the previous frames of the same sequence, advanced in place; a
+        fresh :class:`ErrorRuns` (a sequence's first frame) when not given.
 
     Returns
     -------
@@ -143,41 +290,62 @@ def perceive(keypoints: np.ndarray, occlusion: np.ndarray, height: np.ndarray,
     joints, peak heights (``U(0.75, 1)(1 - 0.35 occ)`` for visible joints, ``U(0.3, 0.75)
     (1 - 0.4 occ)`` for hidden ones, ``U(0.75, 1)`` for invented spots: a confident guess),
     missed joints; per limb, a field gain
-    ``U(0.7, 1)(1 - 0.6 max occ)`` of its ends, halved when an end was missed. The rates are
-    the module's constants.
+    ``U(0.7, 1)(1 - 0.6 max occ)`` of its ends, halved when an end was missed. Loss, left-right
+    confusion, invented spots, the split trunk, the echo and the neighbour's peak are runs
+    (:func:`run_lengths`, see the module docstring) with the module's constants as shares.
 
     References
     ----------
     None: the error model is ours, calibrated against
     :func:`app.analysis.association.group_people` (see :mod:`app.demo`).
+
+    Examples
+    --------
+    A dancer seen from behind has left and right swapped (``x``) on runs of frames:
+
+    >>> from app.model.skeleton import coco_body
+    >>> body = np.zeros((1, 17, 3))
+    >>> body[0, :, 0], body[0, :, 1], body[0, :, 2] = np.arange(17) * 10.0, 300.0, 2
+    >>> runs, rng = ErrorRuns(), np.random.default_rng(6)
+    >>> swapped = [perceive(body, np.zeros((1, 17)), np.array([400.0]), np.array([-1.0]),
+    ...                     coco_body(), rng, runs=runs)[0].keypoints[5, 0] > 55
+    ...            for _ in range(40)]
+    >>> "".join("x" if s else "." for s in swapped)
+    '...xxx..............................xxxx'
     """
+    runs = ErrorRuns() if runs is None else runs
     out: list[NetworkPerson] = []
     extras: list[NetworkPerson] = []
     num_people, num_joints = keypoints.shape[:2]
+    tracks = (np.arange(1, num_people + 1) if track_ids is None
+              else np.asarray(track_ids, dtype=np.int64))
     limbs = skeleton.limb_array
     flip = skeleton.flip_index
     for p in range(num_people):
+        tid = int(tracks[p])
+        fresh = tid not in runs.seen
+        runs.seen.add(tid)
         kp = keypoints[p].copy()
         occ = occlusion[p].copy()
         labelled = kp[:, 2] > 0
         h = float(height[p])
         hidden = float(np.mean(kp[labelled, 2] == 1)) if labelled.any() else 1.0
         lose = np.clip(1.6 * (hidden - 0.6), 0, 0.8) + (0.3 if h < _SMALL else 0.0)
-        lost = rng.random() < lose
-        if facing[p] < -0.3 and rng.random() < _FLIP_BODY:
+        lost = runs.step((tid, "lost"), float(lose), fresh, rng) > 0
+        flip_body = runs.step((tid, "flip-body"), _FLIP_BODY if facing[p] < -0.3 else 0.0,
+                              fresh, rng) > 0
+        flip_legs = runs.step((tid, "flip-legs"),
+                              _FLIP_LEGS if abs(facing[p]) < 0.45 else 0.0, fresh, rng) > 0
+        if flip_body:
             kp, occ = kp[flip], occ[flip]
-        elif abs(facing[p]) < 0.45 and rng.random() < _FLIP_LEGS:
+        elif flip_legs:
             legs = np.array(_LEGS)
             swapped = flip[legs]
             kp[legs], occ[legs] = kp[swapped], occ[swapped]
         labelled = kp[:, 2] > 0
         noise = rng.normal(size=(num_joints, 2)) * (h * (_JITTER + _JITTER_OCCLUDED * occ))[:, None]
         kp[:, :2] += noise * labelled[:, None]
-        invent = rng.random(num_joints) < _INVENT * occ
-        invented = np.zeros(num_joints, dtype=bool)
-        for j in np.flatnonzero(invent & (kp[:, 2] == 1)):
-            kp[j, :2] = _guess(kp, int(j), h, rng)
-            invented[j] = True
+        invented = _invent(runs, tid, kp, occ, h, fresh, rng)
         visible = kp[:, 2] == 2
         peak = np.where(visible, rng.uniform(0.75, 1.0, num_joints) * (1 - 0.35 * occ),
                         rng.uniform(0.3, 0.75, num_joints) * (1 - 0.4 * occ))
@@ -191,46 +359,100 @@ def perceive(keypoints: np.ndarray, occlusion: np.ndarray, height: np.ndarray,
         gain *= np.where(missed[limbs[:, 0]] | missed[limbs[:, 1]], 0.5, 1.0)
         if lost:
             gain *= 0.3
-        if rng.random() < _SPLIT * (1 + 2 * occ[[11, 12]].mean()):
+        if runs.step((tid, "split"), _SPLIT * (1 + 2 * occ[[11, 12]].mean()), fresh, rng):
             gain[_trunk_limbs(limbs)] = 0.0
         peak = np.where(missed | ~labelled, 0.0, peak)
         sigma = float(np.clip(0.03 * h, 5.0, 12.0))
         width = float(np.clip(0.035 * h, 6.0, 14.0))
         out.append(NetworkPerson(kp, peak, gain, sigma, width))
 
-        if not lost and h > 2 * _SMALL and rng.random() < _ECHO:
+        shift = rng.normal(0, 0.08, 2)
+        echo_share = _ECHO if not lost and h > 2 * _SMALL else 0.0
+        if runs.step((tid, "echo"), echo_share, fresh, rng):
             # A second, fainter response to the upper body, shifted: the person found twice.
+            shift = runs.echo_shift.setdefault(tid, shift)
             echo = kp.copy()
-            echo[:, :2] += rng.normal(0, 0.08 * h, 2)
+            echo[:, :2] += shift * h
             upper = np.zeros(num_joints, bool)
             upper[list(_FACE) + list(_ARMS) + [11, 12]] = True
             extras.append(NetworkPerson(
                 echo, np.where(upper & labelled, rng.uniform(0.4, 0.7, num_joints), 0.0),
                 np.where(upper[limbs[:, 0]] & upper[limbs[:, 1]], 0.6, 0.0), sigma, width))
-        for joint in (7, 8, 9, 10, 15, 16):
-            if not labelled[joint] or rng.random() >= _SPURIOUS:
-                continue
-            other = _nearest_other(keypoints, p, int(flip[joint]), kp[joint, :2], 0.35 * h)
-            if other is None:
-                continue
-            fake = np.zeros((num_joints, 3))
-            fake[joint] = (*other, 2)
-            amp = np.zeros(num_joints)
-            amp[joint] = rng.uniform(0.35, 0.7)
-            extras.append(NetworkPerson(fake, amp, np.zeros(len(limbs)), sigma, width))
+        else:
+            runs.echo_shift.pop(tid, None)
+        extras.extend(_spurious(runs, keypoints, tracks, p, kp, labelled, h, fresh, sigma,
+                                width, flip, len(limbs), rng))
     return out + extras
 
 
+def _invent(runs: ErrorRuns, tid: int, kp: np.ndarray, occ: np.ndarray, h: float,
+            fresh: bool, rng: np.random.Generator) -> np.ndarray:
+    """Move the hidden joints that are in an invented-spot run there (``kp`` in place);
+    return which joints were moved."""
+    num_joints = len(kp)
+    left, draws = runs.invent.get(tid, (np.zeros(num_joints, np.int64),
+                                        np.zeros((num_joints, 3))))
+    active = run_lengths(left, np.where(kp[:, 2] == 1, _INVENT * occ, 0.0), MEAN_RUN["invent"],
+                         fresh, rng)
+    new = np.column_stack([rng.normal(size=(num_joints, 2)), rng.random(num_joints)])
+    draws = np.where(((active > 0) & (left == 0))[:, None], new, draws)
+    runs.invent[tid] = (np.maximum(active - 1, 0), draws)
+    for j in np.flatnonzero(active):
+        kp[j, :2] = _guess(kp, int(j), h, draws[j])
+    return active > 0
+
+
+def _spurious(runs: ErrorRuns, keypoints: np.ndarray, tracks: np.ndarray, p: int,
+              kp: np.ndarray, labelled: np.ndarray, h: float, fresh: bool, sigma: float,
+              width: float, flip: np.ndarray, num_limbs: int, rng: np.random.Generator
+              ) -> list[NetworkPerson]:
+    """Single peaks in person ``p``'s wrist, elbow and ankle channels at a neighbour's joint of
+    the other side, in runs that last while that neighbour's joint stays within reach."""
+    tid = int(tracks[p])
+    reach = 0.35 * h
+    out = []
+    for joint in _SPURIOUS_JOINTS:
+        theirs = int(flip[joint])
+        left, neighbour = runs.spurious.get((tid, joint), (0, 0))
+        other = None
+        if left:
+            rows = np.flatnonzero(tracks == neighbour)
+            if len(rows) and _reaches(keypoints[rows[0], theirs], kp[joint, :2], reach):
+                other = int(rows[0])
+        if other is None:
+            # The tangled neighbour moved away (or there was none): a new run may start.
+            left = 0
+            other = _nearest_other(keypoints, p, theirs, kp[joint, :2], reach)
+        share = _SPURIOUS if labelled[joint] and other is not None else 0.0
+        active = int(run_lengths(left, share, MEAN_RUN["spurious"], fresh, rng))
+        runs.spurious[(tid, joint)] = (max(active - 1, 0),
+                                       -1 if other is None else int(tracks[other]))
+        if not active or other is None:
+            continue
+        fake = np.zeros((len(kp), 3))
+        fake[joint] = (*keypoints[other, theirs, :2], 2)
+        amp = np.zeros(len(kp))
+        amp[joint] = rng.uniform(0.35, 0.7)
+        out.append(NetworkPerson(fake, amp, np.zeros(num_limbs), sigma, width))
+    return out
+
+
+def _reaches(point: np.ndarray, near: np.ndarray, radius: float) -> bool:
+    """Whether a labelled ``(x, y, v)`` point lies within ``radius`` of ``near``."""
+    return bool(point[2] > 0 and np.hypot(*(point[:2] - near)) <= radius)
+
+
 def _nearest_other(keypoints: np.ndarray, p: int, joint: int, near: np.ndarray,
-                   radius: float) -> np.ndarray | None:
-    """Position of the closest other person's ``joint`` within ``radius`` of ``near``."""
-    cand = np.delete(keypoints[:, joint], p, axis=0)
-    cand = cand[cand[:, 2] > 0]
-    if len(cand) == 0:
+                   radius: float) -> int | None:
+    """Row of the person other than ``p`` whose labelled ``joint`` lies closest to ``near``,
+    if within ``radius``."""
+    d = np.hypot(*(keypoints[:, joint, :2] - near).T)
+    d[keypoints[:, joint, 2] <= 0] = np.inf
+    d[p] = np.inf
+    if len(d) == 0 or not np.isfinite(d.min()):
         return None
-    d = np.hypot(*(cand[:, :2] - near).T)
     k = int(np.argmin(d))
-    return cand[k, :2].copy() if d[k] <= radius else None
+    return k if d[k] <= radius else None
 
 
 def draw(people: list[NetworkPerson], skeleton: Skeleton, image_size: tuple[int, int],

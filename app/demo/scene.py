@@ -25,7 +25,7 @@ import cv2
 import numpy as np
 
 from app.demo.camera import Camera
-from app.demo.maps import draw, perceive, save_maps
+from app.demo.maps import ErrorRuns, draw, perceive, save_maps
 from app.demo.poses import (
     COUNTS_PER_PHRASE,
     NUM_BODY_JOINTS,
@@ -310,6 +310,8 @@ def generate(out_dir: str | Path, seed: int = DEFAULT_SEED, frames: int = 24,
     width, height = scene.camera.size
     images: list[dict[str, Any]] = []
     annotations: list[dict[str, Any]] = []
+    # The network's errors last over frames while their cause does (see app.demo.maps).
+    runs = ErrorRuns()
     for f in range(frames):
         rendered, poses = render_frame(scene, f, background)
         truth = label_frame(scene, poses, rendered)
@@ -318,7 +320,7 @@ def generate(out_dir: str | Path, seed: int = DEFAULT_SEED, frames: int = 24,
                     [cv2.IMWRITE_JPEG_QUALITY, int(jpeg_quality)])
         rng = np.random.default_rng(np.random.SeedSequence([seed, 2, f]))
         seen = perceive(truth.keypoints, truth.occlusion, truth.height, truth.facing, skeleton,
-                        rng)
+                        rng, truth.track_ids, runs)
         confidence, fields = draw(seen, skeleton, (width, height), stride, rng)
         save_maps(maps_dir / f"{stem}.npz", confidence, fields, stride)
         images.append({"id": f + 1, "file_name": f"{stem}.jpg", "width": width,

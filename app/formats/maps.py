@@ -1,12 +1,13 @@
 """Network maps in: one ``.npz`` per image with what a bottom-up estimator outputs.
 
 Keys: ``confidence_maps`` ``(K, H, W)``, ``pafs`` ``(L, 2, H, W)`` (x channel, then y) and
-``stride`` (image pixels per grid cell, an integer). The grid follows DESIGN.md section 4:
-``H = ceil(height / stride)``, ``W = ceil(width / stride)``, cell ``(r, c)`` standing for the
-image point ``(c * stride + (stride - 1) / 2, r * stride + (stride - 1) / 2)``. Files are read
-by :func:`read_npz`: never a pickle, and a file whose arrays would inflate past
-:data:`MAX_BYTES`, or whose headers declare more than the file holds, is refused before
-anything is decompressed or allocated.
+``stride`` (image pixels per grid cell, an integer). The grid is the one of the training
+targets (:mod:`app.analysis.targets`): ``H = ceil(height / stride)``,
+``W = ceil(width / stride)``, cell ``(r, c)`` standing for the image point
+``(c * stride + (stride - 1) / 2, r * stride + (stride - 1) / 2)``. Files are read by
+:func:`read_npz`: never a pickle, and a file whose arrays would inflate past :data:`MAX_BYTES`,
+or whose headers declare more than the file holds, is refused before anything is decompressed
+or allocated.
 """
 
 from __future__ import annotations

@@ -45,7 +45,8 @@ Fields
 ``stride``
     Network input pixels per output cell. An output is ``floor`` or ``ceil`` of the input size
     over the stride; cell ``(r, c)`` stands for the input point
-    ``(c * stride + (stride - 1) / 2, r * stride + (stride - 1) / 2)`` (DESIGN.md section 4).
+    ``(c * stride + (stride - 1) / 2, r * stride + (stride - 1) / 2)`` (the grid of cell
+    centres of :mod:`app.analysis.targets`).
 ``joint_order``
     One entry per confidence-map channel, in the model's order: the project joint it holds, or
     ``null`` for a channel to skip (a background channel, a joint the project does not have).

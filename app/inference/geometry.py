@@ -1,11 +1,12 @@
 """From a frame to the network input and from the network's output grid back to the frame.
 
-Coordinates follow DESIGN.md section 3: pixels, x to the right, y down, integer values on pixel
-centres. Resizing an image of ``w`` columns to ``w'`` columns by OpenCV maps the image point
-``x`` to ``(x + 0.5) * w' / w - 0.5`` (pixel centres aligned, the convention of ``cv2.resize``);
-a letterbox then shifts it by the left padding. The network's output cell ``(r, c)`` stands for
-the input point ``(c * S + (S - 1) / 2, r * S + (S - 1) / 2)`` at stride ``S``, and the maps kept
-in the project use the same rule on the image at their own stride (DESIGN.md section 4).
+Coordinates are those of the labels (:mod:`app.model.labels`): pixels, x to the right, y down,
+integer values on pixel centres. Resizing an image of ``w`` columns to ``w'`` columns by OpenCV
+maps the image point ``x`` to ``(x + 0.5) * w' / w - 0.5`` (pixel centres aligned, the
+convention of ``cv2.resize``); a letterbox then shifts it by the left padding. The network's
+output cell ``(r, c)`` stands for the input point ``(c * S + (S - 1) / 2, r * S + (S - 1) / 2)``
+at stride ``S``, and the maps kept in the project use the same rule on the image at their own
+stride (the grid of cell centres of :mod:`app.analysis.targets`).
 """
 
 from __future__ import annotations
@@ -24,6 +25,7 @@ __all__ = [
     "fields_to_image",
     "input_geometry",
     "interpolation_matrix",
+    "kept_map_stride",
     "prepare_input",
     "resample_to_grid",
 ]
@@ -306,3 +308,20 @@ def fields_to_image(pafs: np.ndarray, geometry: InputGeometry) -> np.ndarray:
     with np.errstate(invalid="ignore", divide="ignore"):
         factor = np.where(turned > 0, length / turned, 0.0)
     return np.stack([vx * factor, vy * factor], axis=1).astype(np.float32)
+
+
+def kept_map_stride(image_size: tuple[int, int], config: PrelabelConfig) -> int:
+    """Image pixels per cell of the maps kept for a frame of ``image_size = (width, height)``:
+    the config's ``map_stride``, else the model's stride in image pixels at scale 1, rounded
+    (between 1 and 256).
+
+    Examples
+    --------
+    >>> kept_map_stride((1920, 1080), _letterbox(368, 368))  # 4 input px = 20.9 image px
+    21
+    """
+    if config.map_stride is not None:
+        return config.map_stride
+    g = input_geometry(image_size, config)
+    cells = config.stride / max(g.scale_x, g.scale_y)
+    return int(min(256, max(1, round(cells))))

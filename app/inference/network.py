@@ -29,6 +29,7 @@ from app.inference.geometry import (
     InputGeometry,
     fields_to_image,
     input_geometry,
+    kept_map_stride,
     prepare_input,
     resample_to_grid,
 )
@@ -166,11 +167,7 @@ class PoseNetwork:
     def map_stride(self, image_size: tuple[int, int]) -> int:
         """Image pixels per cell of the maps kept for a frame of this size: the config's
         ``map_stride``, else the model's stride in image pixels at scale 1, rounded."""
-        if self.config.map_stride is not None:
-            return self.config.map_stride
-        g = input_geometry(image_size, self.config)
-        cells = self.config.stride / max(g.scale_x, g.scale_y)
-        return int(min(256, max(1, round(cells))))
+        return kept_map_stride(image_size, self.config)
 
     def maps(self, image: np.ndarray, where: str = "") -> NetworkMaps:
         """The network maps of one frame, in the project's order, on its map grid.

@@ -3,12 +3,19 @@
 For each selected frame the model's maps (:class:`~app.inference.network.PoseNetwork`) are
 grouped into people with :func:`app.analysis.association.group_people` and stored as
 auto-labels (per-joint scores, provenance ``auto``); the maps are kept in the project
-(``maps/prelabel/<frame id>.npz``, float16) for triage and owner suggestions. Frames that
-already have people keep them (a correction is never overwritten); their maps are still kept.
+(``maps/prelabel-<run id>/<frame id>.npz``, float16) for triage and owner suggestions. Frames
+that already have people keep them (a correction is never overwritten); their maps are still
+kept.
 
-All or nothing: the maps are written to a staging folder first and everything lands in one
-transaction at the end, so a model that fails on frame 900, a cancel or a crash changes
-nothing.
+All or nothing: each run writes its maps into a folder of its own beside the earlier runs'
+(:meth:`app.store.Project.new_map_run`), and the people, the frames' map rows and the run's
+record land in one transaction at the end; the maps the run replaces are deleted only after
+that commit. A model that fails on frame 900, a cancel or a crash at any moment changes
+nothing, and the maps on disk are always those the database names (a kill -9 at the wrong
+moment is settled by the next open, see :mod:`app.store.recovery`).
+
+Before the model is even loaded, the config's planned tensors are checked against the memory
+budget (:mod:`app.inference.budget`).
 """
 
 from __future__ import annotations
@@ -17,8 +24,6 @@ import hashlib
 import json
 import logging
 import os
-import shutil
-import tempfile
 from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
@@ -27,7 +32,8 @@ import numpy as np
 
 from app.analysis.association import group_people
 from app.errors import BadInput, NotFound
-from app.formats.images import decode_image
+from app.formats.images import max_pixels, read_image
+from app.inference.budget import check_budget
 from app.inference.config import PrelabelConfig, default_config, load_config
 from app.inference.network import PoseNetwork
 from app.jobs_analysis import _auto_person
@@ -37,10 +43,10 @@ from app.store.project import Project
 
 log = logging.getLogger(__name__)
 
-__all__ = ["MAPS_FOLDER", "find_config", "parse_frames", "prelabel"]
+__all__ = ["RUN_KIND", "find_config", "parse_frames", "prelabel"]
 
-#: Where the maps of pre-labelled frames are kept, relative to the project folder.
-MAPS_FOLDER = Path("maps") / "prelabel"
+#: Each run keeps its maps in ``maps/<RUN_KIND>-<run id>/`` of the project folder.
+RUN_KIND = "prelabel"
 
 
 def parse_frames(text: str, frames: Sequence[Frame]) -> list[Frame]:
@@ -128,12 +134,11 @@ def prelabel(project: Project, model: str | Path, config: str | Path | None = No
     Raises
     ------
     BadInput
-        The model does not load, the config is wrong, or the outputs do not fit the config
-        (nothing is written).
+        The model does not load, the config is wrong or would need more memory than the
+        budget, or the outputs do not fit the config (nothing is written).
     """
     progress = progress or Progress()
     cfg, where = find_config(model, config, project)
-    network = PoseNetwork(model, cfg, project.skeleton, config_where=where)
     every = project.frames()
     if frames is not None:
         wanted = {int(i) for i in frames}
@@ -141,32 +146,36 @@ def prelabel(project: Project, model: str | Path, config: str | Path | None = No
         if missing:
             raise NotFound(f"the project has no frame {min(missing)}")
         every = [f for f in every if f.id in wanted]
+    # Frames registered over the pixel limit run once the limit is raised above them.
+    limit = max_pixels()
+    sizes = [(f.width, f.height) for f in every
+             if f.status == "ok" or (f.status == "oversized" and f.width * f.height <= limit)]
+    check_budget(cfg, sizes, project.skeleton.num_joints, len(project.skeleton.limbs),
+                 where=where)
+    network = PoseNetwork(model, cfg, project.skeleton, config_where=where)
     if not every:
         return {"frames": 0, "unreadable": 0}
     has_people = set(project.people_by_frame())
     k = project.skeleton.num_joints
     limbs = project.skeleton.limb_array
     grouping = cfg.grouping.model_dump()
-    maps_dir = project.folder / MAPS_FOLDER
-    made = [d for d in (maps_dir, maps_dir.parent) if not d.exists()]
-    maps_dir.mkdir(parents=True, exist_ok=True)
-    staging = Path(tempfile.mkdtemp(prefix=".staging-", dir=maps_dir))
+    run = project.new_map_run(RUN_KIND)
     try:
         found: list[tuple[int, Person]] = []
         strides: dict[int, int] = {}
         unreadable = kept = 0
         for n, frame in enumerate(every):
             progress.step(n, len(every), "pre-labelling")
-            image = decode_image(project.image_path(frame)) if frame.status == "ok" else None
-            if image is None:
-                log.warning("frame %s: image %s is not readable; skipped", frame.id, frame.path)
+            try:
+                if frame.status in ("missing", "corrupt"):
+                    raise BadInput(f"the image is {frame.status}", where=frame.path)
+                image = read_image(project.image_path(frame))
+            except (BadInput, NotFound) as exc:
+                log.warning("frame %s: %s; skipped", frame.id, exc)
                 unreadable += 1
                 continue
             maps = network.maps(image, where=f"frame {frame.id}")
-            np.savez_compressed(staging / f"{frame.id}.npz",
-                                confidence_maps=maps.confidence_maps.astype(np.float16),
-                                pafs=maps.pafs.astype(np.float16),
-                                stride=np.int64(maps.stride))
+            _write_maps(run / f"{frame.id}.npz", maps.confidence_maps, maps.pafs, maps.stride)
             strides[frame.id] = maps.stride
             if frame.id in has_people:
                 kept += 1
@@ -175,53 +184,55 @@ def prelabel(project: Project, model: str | Path, config: str | Path | None = No
                                        stride=maps.stride, **grouping):
                 found.append((frame.id, _auto_person(person, k)))
         progress.step(len(every), len(every), "pre-labelling")
-        stats = _store(project, Path(model), cfg, staging, maps_dir, strides, found,
-                       kept)
-    except BaseException:
-        shutil.rmtree(staging, ignore_errors=True)
-        for folder in made:
-            if not any(folder.iterdir()):
-                folder.rmdir()
-        raise
-    shutil.rmtree(staging, ignore_errors=True)
+        _sync_folder(run)
+        stats = _store(project, Path(model), cfg, run, strides, found, kept)
+    finally:
+        project.drop_map_run(run)
     stats["unreadable"] = unreadable
     return stats
 
 
-def _store(project: Project, model: Path, cfg: PrelabelConfig, staging: Path, maps_dir: Path,
+def _write_maps(path: Path, confidence_maps: np.ndarray, pafs: np.ndarray, stride: int) -> None:
+    """One frame's maps as float16, on disk (fsynced) before the run's commit names them."""
+    with open(path, "wb") as fh:
+        np.savez_compressed(fh, confidence_maps=confidence_maps.astype(np.float16),
+                            pafs=pafs.astype(np.float16), stride=np.int64(stride))
+        fh.flush()
+        os.fsync(fh.fileno())
+
+
+def _sync_folder(folder: Path) -> None:
+    """Make the folder's new entries durable (where the system allows opening a folder)."""
+    try:
+        fd = os.open(folder, os.O_RDONLY)
+    except OSError:
+        return
+    try:
+        os.fsync(fd)
+    except OSError:
+        pass  # some systems cannot sync a folder; the files themselves are synced
+    finally:
+        os.close(fd)
+
+
+def _store(project: Project, model: Path, cfg: PrelabelConfig, run: Path,
            strides: dict[int, int], found: list[tuple[int, Person]],
            kept: int) -> dict[str, Any]:
-    """One transaction: people, map locations and the run's record; the map files are swapped
-    in before the commit and swapped back if it does not happen."""
-    swapped: list[tuple[Path, Path | None]] = []  # (final path, previous file moved aside)
-    aside = staging / "previous"
-    aside.mkdir()
+    """One transaction: the people, each frame's maps row pointing into the run's folder,
+    and the run's record (which names the folder)."""
     record = {"model": str(model.resolve()), "model_sha256": _sha256(model),
-              "config": cfg.model_dump(mode="json")}
-    try:
-        with project.bulk("Prelabel", f"pre-label with {model.name}",
-                          f"model:{model.name}") as b:
-            first = b.allocate_person_ids(len(found))
-            b.add_people((f, _with_id(p, first + n)) for n, (f, p) in enumerate(found))
-            for frame_id, stride in strides.items():
-                final = maps_dir / f"{frame_id}.npz"
-                previous = None
-                if final.exists():
-                    previous = aside / final.name
-                    os.replace(final, previous)
-                swapped.append((final, previous))
-                os.replace(staging / final.name, final)
-                b.set_maps(frame_id, final, stride)
-            b.set_meta("last_prelabel", json.dumps(record))
-            b.count("frames", len(strides))
-            b.count("frames grouped", len({f for f, _ in found}))
-            b.count("frames kept", kept)
-    except BaseException:
-        for final, previous in reversed(swapped):
-            final.unlink(missing_ok=True)
-            if previous is not None:
-                os.replace(previous, final)
-        raise
+              "config": cfg.model_dump(mode="json"),
+              "maps": run.relative_to(project.folder).as_posix() if strides else None}
+    with project.bulk("Prelabel", f"pre-label with {model.name}",
+                      f"model:{model.name}") as b:
+        first = b.allocate_person_ids(len(found))
+        b.add_people((f, _with_id(p, first + n)) for n, (f, p) in enumerate(found))
+        for frame_id, stride in strides.items():
+            b.set_maps(frame_id, run / f"{frame_id}.npz", stride)
+        b.set_meta("last_prelabel", json.dumps(record))
+        b.count("frames", len(strides))
+        b.count("frames grouped", len({f for f, _ in found}))
+        b.count("frames kept", kept)
     return dict(b.stats)
 
 

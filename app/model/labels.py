@@ -191,7 +191,8 @@ class Frame:
 
     ``path`` is relative to the project folder (or absolute); ``file_name`` is the name the
     frame has in COCO files (relative to the images folder it was registered from). ``status``
-    is ``"ok"``, ``"missing"`` or ``"corrupt"``. Video frames carry their index and time (s).
+    is ``"ok"``, ``"missing"``, ``"corrupt"`` or ``"oversized"`` (over the pixel limit). Video
+    frames carry their index and time (s).
     """
 
     id: int

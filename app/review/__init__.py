@@ -10,5 +10,14 @@
 - :mod:`app.review.blur` -- heads blurred in packet images.
 
 Nothing here imports Qt. The submodules are imported where used, so that the command line
-builds its parser without loading them.
+builds its parser without loading them; the two constants below, shared by the command line
+and the app's form, are all this package itself holds.
 """
+
+#: How a packet may carry its frames' images: none, the files as they are, or with every head
+#: blurred.
+IMAGE_MODES = ("none", "full", "blurred-heads")
+
+#: What a packet carries unless told otherwise, on the command line and in the app alike:
+#: frames of people are personal data, and blurred heads are enough to review poses.
+DEFAULT_IMAGES = "blurred-heads"

@@ -1,6 +1,8 @@
 """The ``packet`` and ``compare`` commands of ``posewright`` (registered by app/cli.py).
 
-Nothing heavy is imported until a command runs, so building the parser stays quick.
+Nothing heavy is imported until a command runs, so building the parser stays quick. Text that
+came from a file (names, file names, joint names) is printed through
+:func:`app.safetext.shown`.
 """
 
 from __future__ import annotations
@@ -15,6 +17,8 @@ from typing import Any
 
 from app.cli import print_json, whole_number
 from app.errors import BadInput, NotFound, ProjectLocked
+from app.review import DEFAULT_IMAGES, IMAGE_MODES
+from app.safetext import shown
 from app.wording import count
 
 Command = Callable[..., argparse.ArgumentParser]
@@ -49,8 +53,10 @@ def register(sub: Any, command: Command) -> None:
     def action(name: str, fn: Callable[[argparse.Namespace], int],
                text: str) -> argparse.ArgumentParser:
         q = actions.add_parser(name, help=text, description=text)
-        q.add_argument("--author", help="who is working (default: the reviewer the packet "
-                                        "names, $POSEWRIGHT_AUTHOR or the login name)")
+        q.add_argument("--author", help="who is working; reviewing, the reviewer (default: "
+                                        "the one the review was first opened for, else the "
+                                        "reviewer the packet names, $POSEWRIGHT_AUTHOR or "
+                                        "the login name)")
         q.add_argument("-q", "--quiet", action="store_true", help="no progress on stderr")
         q.set_defaults(fn=fn)
         return q
@@ -60,9 +66,10 @@ def register(sub: Any, command: Command) -> None:
     q.add_argument("--frames", required=True, metavar="WHICH",
                    help="a state (disputed, untouched, ...) or frame ids 3,7,12")
     q.add_argument("--out", required=True, metavar="FILE.zip")
-    q.add_argument("--images", choices=("none", "full", "blurred-heads"), default="none",
-                   help="send no images (default), the images, or the images with heads "
-                        "blurred")
+    q.add_argument("--images", choices=IMAGE_MODES, default=DEFAULT_IMAGES,
+                   help="send the images with heads blurred (default), the images as they "
+                        "are, or none; an image that cannot be read, or that a link brings "
+                        "from outside the images folder, is never sent")
     q.add_argument("--reviewer", metavar="NAME", help="who is to review")
 
     q = action("show", cmd_show, "check a packet and say what it holds")
@@ -120,10 +127,13 @@ def cmd_export(args: argparse.Namespace) -> int:
     if stats["missing_images"]:
         print(f"posewright: warning: {count(stats['missing_images'], 'frames')} went without "
               "their image (missing or unreadable)", file=sys.stderr)
+    if stats["outside_images"]:
+        print(f"posewright: warning: {count(stats['outside_images'], 'frames')} went without "
+              "their image: it is a link to a file outside the images folder", file=sys.stderr)
     if stats["unplaced_heads"]:
         print(f"posewright: warning: {count(stats['unplaced_heads'], 'people')} with no "
               "labelled joint: no head to blur", file=sys.stderr)
-    print(f"wrote {args.out}: {count(stats['frames'], 'frames')}, "
+    print(f"wrote {shown(args.out)}: {count(stats['frames'], 'frames')}, "
           f"{count(stats['people'], 'people')}, {count(stats['images'], 'images')} "
           f"({args.images})")
     return 0
@@ -148,7 +158,7 @@ def cmd_show(args: argparse.Namespace) -> int:
         print_json(info)
     else:
         for key, value in info.items():
-            print(f"{key:>12}: {value}")
+            print(f"{key:>12}: {shown(value)}")
     return 0
 
 
@@ -159,9 +169,9 @@ def cmd_decide(args: argparse.Namespace) -> int:
     with open_packet(args.packet, reviewer=args.author) as project:
         held = [f.id for f in project.frames()]
         if args.frame not in held:
-            shown = ", ".join(map(str, held[:12])) + (", ..." if len(held) > 12 else "")
+            listed = ", ".join(map(str, held[:12])) + (", ..." if len(held) > 12 else "")
             raise NotFound(f"{args.packet}: the packet has no frame {args.frame}; it holds "
-                           f"{count(len(held), 'frames')}: {shown}")
+                           f"{count(len(held), 'frames')}: {listed}")
         made = set_decision(project, args.frame, decision)
     print(f"frame {args.frame}: " + (made.decision if made else "decision withdrawn"))
     return 0
@@ -172,7 +182,7 @@ def cmd_return(args: argparse.Namespace) -> int:
 
     with open_packet(args.packet, reviewer=args.author) as project:
         out = return_packet(project, args.out)
-    print(f"wrote {out}; send it back to be merged")
+    print(f"wrote {shown(out)}; send it back to be merged")
     return 0
 
 
@@ -186,10 +196,10 @@ def cmd_merge(args: argparse.Namespace) -> int:
         return 0
     if report.already_merged:
         when = time.strftime("%Y-%m-%d %H:%M", time.localtime(report.merged_at or 0))
-        print(f"{args.returned}: already merged on {when}; nothing changed")
+        print(f"{shown(args.returned)}: already merged on {when}; nothing changed")
         return 0
-    print(f"merged {args.returned} from {report.reviewer}: {count(report.frames, 'frames')}, "
-          f"{count(report.joints_taken, 'joints')} taken, "
+    print(f"merged {shown(args.returned)} from {shown(report.reviewer)}: "
+          f"{count(report.frames, 'frames')}, {count(report.joints_taken, 'joints')} taken, "
           f"{count(report.people_added, 'people')} added, {report.people_deleted} deleted, "
           f"{count(report.notes_added, 'notes')}, {count(len(report.conflicts), 'conflicts')}")
     for c in report.conflicts:
@@ -242,18 +252,19 @@ def _fmt(x: float, spec: str = ".3f") -> str:
 
 
 def _print_comparison(result: Any, threshold: float | None, marked: list[int]) -> None:
-    print(f"A: {result.a}\nB: {result.b}")
+    print(f"A: {shown(result.a)}\nB: {shown(result.b)}")
     print(f"images compared: {len(result.frames)} (only in A: {len(result.only_a)}, "
           f"only in B: {len(result.only_b)}); mean OKS {_fmt(result.mean_oks)}")
     print(f"{'joint':<16}{'compared':>9}{'one side':>9}{'agree':>8}{'mean error':>11}"
           f"{'mean KS':>9}")
     for row in result.joints:
-        print(f"{row.name:<16}{row.compared:>9}{row.one_side:>9}{_fmt(row.agreement, '.1%'):>8}"
-              f"{_fmt(row.mean_error):>11}{_fmt(row.mean_similarity):>9}")
+        print(f"{shown(row.name):<16}{row.compared:>9}{row.one_side:>9}"
+              f"{_fmt(row.agreement, '.1%'):>8}{_fmt(row.mean_error):>11}"
+              f"{_fmt(row.mean_similarity):>9}")
     worst = sorted(result.frames, key=lambda f: f.mean_oks)[:10]
     print("lowest mean OKS:")
     for f in worst:
-        print(f"  {f.mean_oks:.3f}  {f.file_name:<28} {count(len(f.pairs), 'pairs')}, "
+        print(f"  {f.mean_oks:.3f}  {shown(f.file_name):<28} {count(len(f.pairs), 'pairs')}, "
               f"{len(f.unpaired_a)}+{len(f.unpaired_b)} unpaired, "
               f"{count(len(f.disagreements), 'joints')} disagree")
     if threshold is not None:

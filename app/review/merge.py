@@ -22,6 +22,18 @@ it off when nothing conflicts and the frame has not changed here since the packe
 (so what is signed off is exactly what the reviewer saw); ``agree`` on a disputed frame, under
 the same two conditions, settles it as corrected, and changes no other state.
 
+**Returning again.** A reviewer may edit more and return the same packet again. A later return
+of the same packet by the same reviewer supersedes their earlier one: its base is their
+earlier return as merged, not the packet's base, so their own earlier change is not "ours"
+against their newer "theirs". Precisely, per joint the base is the earlier return's label,
+except on joints still in open dispute from that return, whose base stays the packet's (so
+the dispute is judged again on the newer word: kept if they left it, dropped if they now
+agree with ours, renewed if they moved it again). What changed here since, with the
+reviewer's side unchanged, stays ours; changed on both sides, it conflicts. People the
+reviewer added and the earlier merge brought over keep the ids they were given here. A return
+older than one already merged from the same reviewer is refused. What a merge needs for this
+(the reviewer's labels, the ids given, the return's time) is kept in the packet's record.
+
 Every change is an ordinary edit through :meth:`Project.apply`, credited to the reviewer:
 per frame one step for the joints and deletions, one per added person, one per note and one
 for the state, each undoable. A last transaction records the alternatives and the packet
@@ -126,6 +138,8 @@ class FramePlan:
     changed_here: bool = False
     joints_taken: int = 0
     people_deleted: int = 0
+    #: People of the reviewer's, by their id in the review, to their id here.
+    person_ids: dict[int, int] = field(default_factory=dict)
 
 
 def plan_frame(base: FrameContent, ours: FrameLabels, theirs: FrameContent,
@@ -175,8 +189,12 @@ def plan_frame(base: FrameContent, ours: FrameLabels, theirs: FrameContent,
         o = ours.people.get(pid)
         t = theirs.people.get(pid)
         if b is None:
-            if t is not None and not _already_added(t, ours, base_ids):
-                plan.new_people.append(t)
+            if t is not None:
+                known = _already_added(t, ours, base_ids)
+                if known is None:
+                    plan.new_people.append(t)
+                else:
+                    plan.person_ids[t.id] = known
             continue
         if o is not None and (o.keypoints.shape != b.keypoints.shape
                               or not same_joints(o.keypoints, b.keypoints).all()):
@@ -238,12 +256,101 @@ def _changed(p: Person, b: Person) -> tuple[int, ...]:
     return tuple(np.flatnonzero(~same_joints(p.keypoints, b.keypoints)).tolist())
 
 
-def _already_added(t: Person, ours: FrameLabels, base_ids: set[int]) -> bool:
-    """Whether ours already has a person, new since the base, labelled exactly like ``t``
-    (brought over by an earlier, interrupted merge of the same packet)."""
-    return any(pid not in base_ids and p.keypoints.shape == t.keypoints.shape
-               and same_joints(p.keypoints, t.keypoints).all()
-               for pid, p in ours.people.items())
+def _already_added(t: Person, ours: FrameLabels, base_ids: set[int]) -> int | None:
+    """The id of a person of ours, new since the base, labelled exactly like ``t`` (brought
+    over by an earlier, interrupted merge of the same packet), if there is one."""
+    return next((pid for pid, p in ours.people.items()
+                 if pid not in base_ids and p.keypoints.shape == t.keypoints.shape
+                 and same_joints(p.keypoints, t.keypoints).all()), None)
+
+
+# ---------------------------------------------------------------------- returning again
+
+@dataclass(frozen=True)
+class _Earlier:
+    """The newest merged return of a packet by one reviewer: when it was returned and merged,
+    the reviewer's labels in it, and the ids the merge gave the people they added."""
+
+    returned: float
+    merged: float
+    labels: Mapping[int, FrameContent]
+    person_ids: Mapping[int, Mapping[int, int]]
+
+
+def _earlier_return(project: Project, packet_id: str, reviewer: str) -> _Earlier | None:
+    rows = project.query("SELECT time, report FROM packets WHERE packet_id = ? AND "
+                         "direction = 'merged' AND reviewer = ? ORDER BY time DESC",
+                         (packet_id, reviewer))
+    for merged, text in rows:
+        record = json.loads(text or "{}")
+        if "reviewer_labels" in record:
+            labels = {int(fid): _content_from_record(int(fid), value)
+                      for fid, value in record["reviewer_labels"].items()}
+            ids = {int(fid): {int(r): int(h) for r, h in pairs.items()}
+                   for fid, pairs in record["person_ids"].items()}
+            return _Earlier(float(record["returned_time"]), float(merged), labels, ids)
+    return None
+
+
+def _content_to_record(content: FrameContent) -> dict[str, Any]:
+    return {"people": [{"id": p.id, **p.to_value()} for p in content.people.values()],
+            "notes": [{"id": n.id, **n.to_value()} for n in content.notes.values()]}
+
+
+def _same_people(a: FrameContent, b: FrameContent) -> bool:
+    return a.people.keys() == b.people.keys() and all(
+        a.people[pid].same_as(b.people[pid]) for pid in a.people)
+
+
+def _content_from_record(frame_id: int, value: Mapping[str, Any]) -> FrameContent:
+    return FrameContent(
+        frame_id, {p["id"]: Person.from_value(p["id"], p) for p in value["people"]},
+        {n["id"]: Note.from_value(n["id"], frame_id, n) for n in value["notes"]})
+
+
+def _renumbered(content: FrameContent, ids: Mapping[int, int]) -> FrameContent:
+    """``content`` with the reviewer's people (and the notes about them) under their ids
+    here."""
+    if not ids:
+        return content
+    people = {ids.get(pid, pid): replace(p, id=ids.get(pid, pid))
+              for pid, p in content.people.items()}
+    notes = {nid: replace(n, person_id=ids.get(n.person_id, n.person_id))
+             if n.person_id is not None else n for nid, n in content.notes.items()}
+    return replace(content, people=people, notes=notes)
+
+
+def _rebased(base: FrameContent, earlier: FrameContent,
+             open_disputes: Mapping[int, frozenset[int] | None]) -> FrameContent:
+    """The base of a later return: the reviewer's earlier return, except where a dispute it
+    raised is still open (``open_disputes``: joints by person, None for the whole person),
+    where the packet's base stays."""
+    people: dict[int, Person] = {}
+    for pid in sorted(set(base.people) | set(earlier.people)):
+        b, e = base.people.get(pid), earlier.people.get(pid)
+        person = e
+        joints = open_disputes.get(pid, frozenset())
+        if pid in open_disputes and (joints is None or b is None or e is None):
+            person = b
+        elif joints and b is not None and e is not None:
+            person = e
+            for j in sorted(joints):
+                person = person.with_joint(j, b.joint_value(j))
+        if person is not None:
+            people[pid] = person
+    return FrameContent(base.frame_id, people, {**base.notes, **earlier.notes})
+
+
+def _open_disputes(project: Project, frame_id: int, packet_id: str,
+                   reviewer: str) -> dict[int, frozenset[int] | None]:
+    """Disputes the reviewer's earlier return of this packet raised in the frame that are still
+    open: the differing joints by person, None where a whole person is disputed."""
+    from app.review.settle import differences  # settle builds on this module
+
+    return {d.person_id: None if d.ours is None or d.theirs is None
+            else frozenset(jd.joint for jd in d.joints)
+            for d in differences(project, frame_id)
+            if d.alternative.packet_id == packet_id and d.alternative.reviewer == reviewer}
 
 
 # ---------------------------------------------------------------------- edits of a merge
@@ -348,7 +455,13 @@ def merge_packet(project: Project, path: str | Path,
     ------
     BadInput
         Before anything changes: a packet that is damaged, altered, unsafe, not returned,
-        from another project or skeleton, or whose base differs from what was sent.
+        from another project or skeleton, whose base differs from what was sent, or that is
+        older than a return of the same packet by the same reviewer merged already.
+
+    Notes
+    -----
+    A later return of a packet by the reviewer whose earlier return was merged is merged
+    against that earlier return (see "Returning again" in the module docstring).
     """
     packet = read_packet(path, returned=True, limits=limits)
     assert packet.returned is not None
@@ -366,6 +479,12 @@ def merge_packet(project: Project, path: str | Path,
     if done:
         report.already_merged, report.merged_at = True, float(done[0][0])
         return report
+    earlier = _earlier_return(project, packet.packet_id, reviewer)
+    if earlier is not None and packet.returned.time < earlier.returned:
+        merged = time.strftime("%Y-%m-%d %H:%M", time.localtime(earlier.merged))
+        raise BadInput(f"an older return of this packet by {reviewer}: their newer return, "
+                       f"merged on {merged}, supersedes it", where=where,
+                       hint="nothing to merge; merge the newest return only")
     sent = project.query("SELECT sha256 FROM packets WHERE packet_id = ? AND "
                          "direction = 'exported'", (packet.packet_id,))
     if sent and sent[0][0] != packet.base_sha256:
@@ -384,14 +503,22 @@ def merge_packet(project: Project, path: str | Path,
             raise BadInput(f"frame {frame.id} ({frame.file_name}) is not in the project",
                            where=where) from None
         decision = packet.returned.decisions.get(frame.id)
-        plans.append(plan_frame(packet.base[frame.id], ours, packet.returned.final[frame.id],
-                                decision.decision if decision else None))
+        base, theirs = packet.base[frame.id], packet.returned.final[frame.id]
+        ids: Mapping[int, int] = {}
+        if earlier is not None and frame.id in earlier.labels:
+            ids = earlier.person_ids.get(frame.id, {})
+            base = _rebased(base, _renumbered(earlier.labels[frame.id], ids),
+                            _open_disputes(project, frame.id, packet.packet_id, reviewer))
+            theirs = _renumbered(theirs, ids)
+        plan = plan_frame(base, ours, theirs, decision.decision if decision else None)
+        plan.person_ids.update(ids)
+        plans.append(plan)
     progress = progress or Progress()
     for n, plan in enumerate(plans):
         progress.step(n, len(plans), "merging frames")
         _apply_plan(project, packet, plan, report)
     progress.step(len(plans), len(plans), "merging frames")
-    _record(project, packet, plans, report)
+    _record(project, packet, plans, report, again=earlier is not None)
     return report
 
 
@@ -404,7 +531,7 @@ def _apply_plan(project: Project, packet: Packet, plan: FramePlan,
                                   label=f"take {reviewer}'s review: {plan.joints_taken} joints, "
                                         f"{plan.people_deleted} people deleted"),
                       author=reviewer)
-    ids: dict[int, int] = {}
+    ids = plan.person_ids
     for person in plan.new_people:
         applied = project.apply(ReviewPerson(fid, value=person.to_value(),
                                              label=f"new person from {reviewer}'s review"),
@@ -436,15 +563,32 @@ def _apply_plan(project: Project, packet: Packet, plan: FramePlan,
 
 
 def _record(project: Project, packet: Packet, plans: Sequence[FramePlan],
-            report: MergeReport) -> None:
+            report: MergeReport, again: bool = False) -> None:
+    """Record the merge: alternatives for the conflicts, and the packet with what a later
+    return of it needs (the reviewer's labels, the ids given to their people, the return's
+    time). ``again``: the reviewer's earlier return of this packet was merged before; its
+    alternatives are replaced by this return's."""
     assert packet.returned is not None
     now = time.time()
     report.merged_at = now
     summary = (f"merge review packet from {packet.returned.reviewer}: {report.frames} frames, "
                f"{report.joints_taken} joints taken, {len(report.conflicts)} conflicts")
+    # Frames the reviewer left as sent need no record: their base stays the packet's.
+    record = {
+        **report.to_dict(), "returned_time": packet.returned.time,
+        "reviewer_labels": {str(fid): _content_to_record(c)
+                            for fid, c in packet.returned.final.items()
+                            if not _same_people(c, packet.base[fid])},
+        "person_ids": {str(p.frame_id): {str(r): h for r, h in p.person_ids.items()}
+                       for p in plans},
+    }
     with project.bulk("MergePacket", summary, f"packet:{packet.packet_id}",
                       kind="review") as b:
         for plan in plans:
+            if again:
+                b.execute("UPDATE alternatives SET retired = ? WHERE frame_id = ? AND "
+                          "retired IS NULL AND packet_id = ? AND reviewer = ?",
+                          (now, plan.frame_id, packet.packet_id, packet.returned.reviewer))
             if plan.conflicts and not plan.was_disputed:
                 b.execute("UPDATE alternatives SET retired = ? WHERE frame_id = ? AND "
                           "retired IS NULL AND packet_id != ?",
@@ -459,7 +603,7 @@ def _record(project: Project, packet: Packet, plans: Sequence[FramePlan],
         b.execute("INSERT INTO packets (packet_id, direction, sha256, reviewer, time, frames, "
                   "report, audit) VALUES (?, 'merged', ?, ?, ?, ?, ?, ?)",
                   (packet.packet_id, packet.sha256, packet.returned.reviewer, now,
-                   json.dumps([f.id for f in packet.frames]), json.dumps(report.to_dict()),
+                   json.dumps([f.id for f in packet.frames]), json.dumps(record),
                    json.dumps(list(packet.returned.ledger))))
         b.stats.update({"frames": report.frames, "joints taken": report.joints_taken,
                         "conflicts": len(report.conflicts)})

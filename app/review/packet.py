@@ -25,6 +25,12 @@ final labels ``{"frames": [{"id", "state", "people", "notes"}], "ledger": [rows]
 The SHA-256 sums find damage and careless edits; they are not a signature (anyone can
 recompute them). The base labels are also checked against the sum the project recorded when
 it exported the packet, when it could record one.
+
+Every name of a person a packet carries (``exported_by``, ``reviewer``, the authors of
+decisions, notes and ledger rows, the provenance of each joint) must be printable text of at
+most :data:`app.safetext.MAX_NAME` characters, and packet and project ids letters, digits and
+``-._``: a packet is text from someone else's computer, and these end up in the ledger and
+on a terminal (see :mod:`app.safetext`).
 """
 
 from __future__ import annotations
@@ -33,6 +39,7 @@ import hashlib
 import json
 import logging
 import math
+import os
 import time
 import uuid
 import zipfile
@@ -40,11 +47,12 @@ from collections.abc import Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Literal
+from typing import Annotated, Any, Literal
 
 import cv2
 import numpy as np
 from pydantic import (
+    AfterValidator,
     BaseModel,
     ConfigDict,
     Field,
@@ -54,22 +62,23 @@ from pydantic import (
     TypeAdapter,
     ValidationError,
 )
+from pydantic_core import PydanticCustomError
 
 from app.errors import BadInput, NotFound
 from app.fileio import MAX_ID, JsonId, atomic_write, describe, json_ready, parse_json
-from app.formats.images import IMAGE_SUFFIXES, MAX_SIDE, decode_image
+from app.formats.images import IMAGE_SUFFIXES, MAX_SIDE, read_image
 from app.model.labels import Frame, FrameState, Note, Person
 from app.model.skeleton import Skeleton, skeleton_from_dict
 from app.progress import Progress
-from app.review import safezip
+from app.review import DEFAULT_IMAGES, IMAGE_MODES, safezip
 from app.review.blur import blur_heads
+from app.safetext import check_name, name_problem
 from app.store import Project
 
 log = logging.getLogger(__name__)
 
 FORMAT = "posewright-review-packet"
 VERSION = 1
-IMAGE_MODES = ("none", "full", "blurred-heads")
 DECISIONS = ("agree", "needs-change", "signed-off")
 
 MANIFEST = "manifest.json"
@@ -180,6 +189,21 @@ class _Strict(BaseModel):
     model_config = ConfigDict(extra="forbid")
 
 
+def _name(value: str) -> str:
+    problem = name_problem(value)
+    if problem is not None:
+        raise PydanticCustomError("name", "{problem}", {"problem": problem})
+    return value
+
+
+#: A person's name (author, reviewer, a joint's provenance): see :mod:`app.safetext`.
+Name = Annotated[StrictStr, AfterValidator(_name)]
+#: Someone who must be named: a name that is not empty.
+Someone = Annotated[StrictStr, Field(min_length=1), AfterValidator(_name)]
+#: A packet's or a project's id: we write UUIDs; letters, digits and ``-._`` are accepted.
+Ident = Annotated[StrictStr, Field(pattern=r"^[0-9A-Za-z._-]{1,64}$")]
+
+
 class _FrameModel(_Strict):
     id: JsonId
     file_name: StrictStr = Field(min_length=1)
@@ -193,12 +217,12 @@ class _FrameModel(_Strict):
 class _DecisionModel(_Strict):
     frame: JsonId
     decision: Decision
-    author: StrictStr
+    author: Someone
     time: Number
 
 
 class _ReturnedModel(_Strict):
-    reviewer: StrictStr
+    reviewer: Someone
     time: Number
     decisions: list[_DecisionModel]
     base_sha256: StrictStr = Field(pattern=r"^[0-9a-f]{64}$")
@@ -207,12 +231,12 @@ class _ReturnedModel(_Strict):
 class _ManifestModel(_Strict):
     format: Literal["posewright-review-packet"]
     version: StrictInt
-    packet_id: StrictStr = Field(min_length=1, max_length=64)
-    project_id: StrictStr = Field(min_length=1, max_length=64)
+    packet_id: Ident
+    project_id: Ident
     skeleton: dict[str, Any]
     created: Number
-    exported_by: StrictStr
-    reviewer: StrictStr | None
+    exported_by: Someone
+    reviewer: Someone | None
     images: ImageMode
     frames: list[_FrameModel] = Field(min_length=1)
     members: dict[StrictStr, StrictStr]
@@ -223,14 +247,14 @@ class _PersonModel(_Strict):
     id: JsonId
     keypoints: list[tuple[Number | None, Number | None, StrictInt]]
     scores: list[Number | None]
-    sources: list[StrictStr]
+    sources: list[Name]
     score: Number | None = None
     extra: dict[str, Any] = Field(default_factory=dict)
 
 
 class _NoteModel(_Strict):
     id: JsonId
-    author: StrictStr
+    author: Name
     time: Number
     text: StrictStr
     person: JsonId | None = None
@@ -249,7 +273,7 @@ class _LedgerRowModel(_Strict):
     kind: StrictStr
     action: StrictStr
     summary: StrictStr
-    author: StrictStr
+    author: Someone
     time: Number
     frame_id: JsonId | None
     target: StrictStr
@@ -510,7 +534,7 @@ def select_frames(project: Project, spec: str) -> list[Frame]:
 
 
 def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
-                  images: str = "none", reviewer: str | None = None,
+                  images: str = DEFAULT_IMAGES, reviewer: str | None = None,
                   progress: Progress | None = None) -> dict[str, Any]:
     """Write a review packet for ``frames`` to ``out`` (atomically).
 
@@ -524,7 +548,8 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
     frames
         The frames to send (see :func:`select_frames`).
     images
-        ``none``, ``full`` (the image files as they are) or ``blurred-heads``.
+        ``blurred-heads`` (the default, :data:`app.review.DEFAULT_IMAGES`), ``full`` (the
+        image files as they are) or ``none``.
     reviewer
         Who is to review (written in the manifest; the reviewer's name when they open it).
     progress
@@ -534,7 +559,18 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
     -------
     dict
         ``packet_id``, ``frames``, ``people``, ``images`` (how many images went in),
-        ``missing_images`` and ``unplaced_heads`` (people whose head could not be placed).
+        ``missing_images`` (frames sent without their image: missing, marked unreadable, or
+        no longer decoding), ``outside_images`` (sent without it because the image file,
+        links followed, lies outside the images folder) and ``unplaced_heads`` (people whose
+        head could not be placed).
+
+    Notes
+    -----
+    An image travels only when it decodes, and only from inside the images folder it was
+    registered under: a link is followed, and an image it leads to outside that folder stays
+    home (a link in an images folder must not carry another file into a packet). An image is
+    decoded as everywhere else in Posewright (pixel limit, Exif orientation), so the heads
+    blurred are where the labels put them.
     """
     if images not in IMAGE_MODES:
         raise BadInput(f"images {images!r} is not one of " + ", ".join(IMAGE_MODES),
@@ -542,11 +578,15 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
     if not frames:
         raise BadInput("no frames to send", where="--frames",
                        hint="choose frames by state (disputed, untouched) or by id")
+    if reviewer is not None:
+        check_name(reviewer, "--reviewer")
+    check_name(project.author, "--author")
     progress = progress or Progress()
     out = Path(out)
     packet_id = str(uuid.uuid4())
     stats: dict[str, Any] = {"packet_id": packet_id, "frames": len(frames), "people": 0,
-                             "images": 0, "missing_images": 0, "unplaced_heads": 0}
+                             "images": 0, "missing_images": 0, "outside_images": 0,
+                             "unplaced_heads": 0}
     entries, base_frames = [], []
     with atomic_zip(out) as archive:
         members: dict[str, str] = {}
@@ -598,31 +638,76 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
 def _write_image(archive: zipfile.ZipFile, project: Project, frame: Frame,
                  people: Sequence[Person], mode: str, members: dict[str, str],
                  stats: dict[str, Any]) -> str | None:
-    path = project.image_path(frame)
+    source = _image_source(project, frame)
+    if isinstance(source, _Unsent):
+        log.warning("frame %s: %s; sent without it", frame.id, source.reason)
+        stats[source.counter] += 1
+        return None
+    real, pixels = source
     if mode == "full":
-        suffix = path.suffix.lower()
-        if not path.is_file() or suffix not in IMAGE_SUFFIXES:
-            log.warning("frame %s: image %s is missing; sent without it", frame.id, path)
-            stats["missing_images"] += 1
-            return None
-        name = f"images/{frame.id}{suffix}"
-        members[name] = write_member(archive, name, path.read_bytes(), zipfile.ZIP_STORED)
+        name = f"images/{frame.id}{Path(frame.path).suffix.lower()}"
+        data = real.read_bytes()
     else:
-        pixels = decode_image(path)
-        if pixels is None:
-            log.warning("frame %s: image %s cannot be read; sent without it", frame.id, path)
-            stats["missing_images"] += 1
-            return None
         blurred, missed = blur_heads(pixels, [p.keypoints for p in people], project.skeleton)
         stats["unplaced_heads"] += missed
         ok, encoded = cv2.imencode(".png", blurred)
         if not ok:
-            raise BadInput("cannot encode the blurred image", where=str(path))
-        name = f"images/{frame.id}.png"
-        members[name] = write_member(archive, name, np.asarray(encoded).tobytes(),
-                                      zipfile.ZIP_STORED)
+            raise BadInput("cannot encode the blurred image", where=str(project.image_path(frame)))
+        name, data = f"images/{frame.id}.png", np.asarray(encoded).tobytes()
+    members[name] = write_member(archive, name, data, zipfile.ZIP_STORED)
     stats["images"] += 1
     return name
+
+
+@dataclass(frozen=True)
+class _Unsent:
+    """Why an image stays home, and which count of the export's report it adds to."""
+
+    counter: str
+    reason: str
+
+
+def _image_source(project: Project, frame: Frame) -> tuple[Path, np.ndarray] | _Unsent:
+    """A frame's image file, links followed, and its pixels; or why it cannot travel.
+
+    Only an image registered as readable, whose file lies inside the images folder it was
+    registered under (:func:`_image_root`) and which decodes now
+    (:func:`app.formats.images.read_image`: within the pixel limit, turned as its Exif
+    orientation says, as everywhere else) is sent.
+    """
+    path = Path(os.path.abspath(project.image_path(frame)))
+    if frame.status != "ok" or path.suffix.lower() not in IMAGE_SUFFIXES:
+        what = frame.status if frame.status != "ok" else "not named as an image"
+        return _Unsent("missing_images", f"image {path} is {what}")
+    root = _image_root(project, frame, path)
+    try:
+        real = path.resolve(strict=True)
+        inside = real.is_relative_to(root.resolve(strict=True))
+    except OSError as exc:
+        return _Unsent("missing_images", f"image {path} cannot be read "
+                                         f"({exc.strerror or exc})")
+    if not inside:
+        return _Unsent("outside_images", f"image {path} leads outside the images folder "
+                                         f"{root}, to {real}")
+    try:
+        return real, read_image(real)
+    except (BadInput, NotFound) as exc:
+        return _Unsent("missing_images", f"image {path} does not decode ({exc})")
+
+
+def _image_root(project: Project, frame: Frame, path: Path) -> Path:
+    """The folder a frame's image was registered under, links not followed: the project's
+    images folder when the image lies in it, else the folder its ``file_name`` is relative to
+    (images added from another folder, video frames), else the image's own folder."""
+    meta = project.meta("images_root")
+    if meta:
+        root = Path(os.path.abspath(project.folder / meta))
+        if path.is_relative_to(root):
+            return root
+    parts = Path(frame.file_name).parts
+    if parts and ".." not in parts and path.parts[-len(parts):] == parts:
+        return Path(*path.parts[: -len(parts)])
+    return path.parent
 
 
 def dumps_json(data: Any) -> bytes:

@@ -4,7 +4,9 @@
 a real project (``project.db``) holding the packet's frames (with their ids and file names),
 people (with their ids), notes, and images when the packet has them. The desktop app opens it
 with the same window and edits it with the same ledger; every edit is credited to the
-reviewer. Opening the same packet again reopens that folder.
+reviewer. Opening the same packet again reopens that folder, for the same reviewer: the one
+named when it was first opened (else the reviewer the packet names, else the default author),
+recorded in the folder so that every later decision, edit and the return credit them.
 
 People the reviewer creates get ids from :data:`REVIEW_ID_BASE` up, and notes likewise, so
 they can never be mistaken for the project's own; the merge gives them fresh ids of the
@@ -41,6 +43,7 @@ from app.review.packet import (
     read_packet,
     write_member,
 )
+from app.safetext import check_name, shown
 from app.store import Project
 from app.store.project import DB_NAME
 
@@ -52,9 +55,10 @@ REVIEW_ID_BASE = 1_000_000_000
 _META_PACKET = "review_packet_id"
 _META_MANIFEST = "review_manifest"
 _META_BASE = "review_base_labels"
+_META_REVIEWER = "review_reviewer"
 
 __all__ = ["REVIEW_ID_BASE", "decisions", "is_review", "open_packet", "return_packet",
-           "returned_path", "review_folder", "set_decision"]
+           "returned_path", "review_folder", "reviewer_of", "set_decision"]
 
 
 def review_folder(path: str | Path) -> Path:
@@ -87,7 +91,8 @@ def is_review(project: Project) -> bool:
 
 
 def open_packet(path: str | Path, reviewer: str | None = None,
-                limits: safezip.Limits = safezip.DEFAULT_LIMITS) -> Project:
+                limits: safezip.Limits = safezip.DEFAULT_LIMITS,
+                fallback: str | None = None) -> Project:
     """Open a review packet for reviewing; returns the review project, open for editing.
 
     Parameters
@@ -95,30 +100,40 @@ def open_packet(path: str | Path, reviewer: str | None = None,
     path
         The packet (``FILE.zip``), as exported (not a returned one).
     reviewer
-        Who reviews (the ledger's author); default the reviewer the packet names, else
-        ``$POSEWRIGHT_AUTHOR`` or the login name.
+        Who reviews, as named on purpose (``--author``). On first opening the default is the
+        reviewer the packet names, else ``fallback``, else ``$POSEWRIGHT_AUTHOR`` or the
+        login name; later openings default to the reviewer recorded then.
     limits
         Bounds on the archive.
+    fallback
+        The name to use when neither ``reviewer`` nor the packet names one (the app passes
+        the name its user gave on the first run).
 
     Returns
     -------
     Project
-        The project in ``FILE.review/`` (built on first opening, reopened afterwards). The
-        caller closes it.
+        The project in ``FILE.review/`` (built on first opening, reopened afterwards), its
+        :attr:`~app.store.Project.author` the review's reviewer. The caller closes it.
 
     Raises
     ------
     BadInput
         A packet that fails any check of :func:`app.review.packet.read_packet` (nothing is
-        written then), or a ``FILE.review`` folder that holds something else.
+        written then), a ``FILE.review`` folder that holds something else, a reviewer's name
+        that is not printable text (see :func:`app.safetext.check_name`), or a ``reviewer``
+        other than the one the review was opened for.
     """
     path = Path(path)
     folder = review_folder(path)
+    if reviewer is not None:
+        check_name(reviewer, "--author")
     if (folder / DB_NAME).exists():
-        project = Project.open(folder, author=reviewer)
-        if project.meta(_META_PACKET) is None:
-            project.close()
-            raise BadInput("the folder holds a project that is not a review", where=str(folder))
+        recorded = _recorded_reviewer(folder)
+        if reviewer is not None and reviewer != recorded:
+            raise BadInput(f"the review in this folder is reviewed by {shown(recorded)}, not "
+                           f"{shown(reviewer)}", where=str(folder),
+                           hint="leave out --author, or ask for a packet of your own")
+        project = Project.open(folder, author=recorded)
         if path.exists():
             packet = read_packet(path, returned=False, limits=limits)
             if packet.packet_id != project.meta(_META_PACKET):
@@ -132,20 +147,39 @@ def open_packet(path: str | Path, reviewer: str | None = None,
                        hint="move it away, then open the packet again")
     build = Path(tempfile.mkdtemp(prefix=folder.name + ".", suffix=".new", dir=folder.parent))
     try:
-        _build(build, packet, reviewer or packet.reviewer, limits)
+        who = _build(build, packet, reviewer or packet.reviewer or fallback, limits)
         os.rename(build, folder)
     except BaseException:
         shutil.rmtree(build, ignore_errors=True)
         raise
-    return Project.open(folder, author=reviewer or packet.reviewer)
+    return Project.open(folder, author=who)
 
 
-def _build(folder: Path, packet: Packet, reviewer: str | None,
-           limits: safezip.Limits) -> None:
+def _recorded_reviewer(folder: Path) -> str:
+    """The reviewer a review folder was opened for, read without taking its lock."""
+    with Project.open(folder, read_only=True) as peek:
+        if peek.meta(_META_PACKET) is None:
+            raise BadInput("the folder holds a project that is not a review", where=str(folder))
+        return reviewer_of(peek)
+
+
+def reviewer_of(project: Project) -> str:
+    """Who reviews a project made by :func:`open_packet`: the name recorded when it was first
+    opened (for a folder built before names were recorded, the author of its first ledger
+    entry, which is the same person)."""
+    recorded = project.meta(_META_REVIEWER)
+    if recorded:
+        return recorded
+    history = project.history()
+    return history[-1].author if history else project.author
+
+
+def _build(folder: Path, packet: Packet, who: str | None, limits: safezip.Limits) -> str:
+    """Build the review project in ``folder``; returns the reviewer's name it records."""
     images = folder / "images"
     images.mkdir()
     _extract_images(packet, images, limits)
-    with Project.create(folder, skeleton=packet.skeleton, author=reviewer) as project, \
+    with Project.create(folder, skeleton=packet.skeleton, author=who) as project, \
             project.bulk("OpenPacket", f"open review packet from {packet.exported_by}",
                          f"packet:{packet.packet_id}", kind="review") as b:
         rows = []
@@ -168,9 +202,11 @@ def _build(folder: Path, packet: Packet, reviewer: str | None,
         b.set_meta("images_root", "images")
         b.set_meta("name", f"review of {packet.path.name}")
         b.set_meta(_META_PACKET, packet.packet_id)
+        b.set_meta(_META_REVIEWER, check_name(project.author, "the reviewer's name"))
         b.set_meta(_META_MANIFEST, json.dumps(packet.manifest))
         b.set_meta(_META_BASE, packet.base_json.decode("utf-8"))
         b.count("frames", len(rows))
+    return project.author
 
 
 def _extract_images(packet: Packet, images: Path, limits: safezip.Limits) -> None:
@@ -201,7 +237,7 @@ def _require_review(project: Project) -> None:
 
 def set_decision(project: Project, frame_id: int, decision: str | None) -> FrameDecision | None:
     """Record the reviewer's decision on a frame (``agree``, ``needs-change``, ``signed-off``;
-    ``None`` withdraws it), credited to the project's author. One transaction and one ledger
+    ``None`` withdraws it), credited to the review's reviewer. One transaction and one ledger
     entry; returns the decision recorded."""
     _require_review(project)
     frame = project.frame(frame_id)
@@ -211,7 +247,7 @@ def set_decision(project: Project, frame_id: int, decision: str | None) -> Frame
             b.execute("DELETE FROM review_decisions WHERE frame_id = ?", (frame.id,))
         return None
     value = parse_decision(decision)
-    made = FrameDecision(frame.id, value, project.author, time.time())
+    made = FrameDecision(frame.id, value, reviewer_of(project), time.time())
     with project.bulk("ReviewDecision", f"frame {frame.id}: {value}", f"frame:{frame.id}",
                       kind="review", frame_id=frame.id) as b:
         b.execute("INSERT OR REPLACE INTO review_decisions VALUES (?, ?, ?, ?)",
@@ -264,7 +300,7 @@ def return_packet(project: Project, out: str | Path | None = None) -> Path:
         members = {LABELS: write_member(archive, LABELS, base_json),
                    RETURNED: write_member(archive, RETURNED, returned_json)}
         manifest = {**manifest, "members": members, "returned": {
-            "reviewer": project.author, "time": time.time(),
+            "reviewer": reviewer_of(project), "time": time.time(),
             "decisions": [{"frame": d.frame_id, "decision": d.decision, "author": d.author,
                            "time": d.time} for d in decisions(project).values()],
             "base_sha256": hashlib.sha256(base_json).hexdigest(),

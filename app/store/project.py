@@ -10,11 +10,19 @@ lose at most the action in flight.
 Locking: one process at a time edits a project. The writer holds an advisory lock
 (``filelock``, an OS-level ``flock`` that the kernel releases when the process dies, so a crash
 leaves no stale lock) on ``project.lock``; a second process gets the project read-only, with the
-reason (who holds it, since when) in :attr:`Project.read_only_reason`.
+reason (who holds it, since when) in :attr:`Project.read_only_reason`. A project in a folder
+that cannot be written (a read-only file system or folder) cannot be locked; it opens read-only
+and the reason says so.
+
+Interrupted runs: the process that takes the lock first makes the files beside the database
+agree with it again (:mod:`app.store.recovery`: map runs rolled back or forward, unfinished
+video extractions and stale lock notes removed) and says so in one log line.
 """
 
 from __future__ import annotations
 
+import contextlib
+import errno
 import getpass
 import json
 import logging
@@ -53,6 +61,7 @@ from app.model.edits import (
 from app.model.labels import Frame, FrameLabels, FrameState, Note, Person, Region
 from app.model.skeleton import Skeleton, coco_body, skeleton_from_dict
 from app.progress import Progress
+from app.store import recovery
 from app.store.schema import SCHEMA_VERSION, migrate, schema_version
 
 log = logging.getLogger(__name__)
@@ -65,6 +74,8 @@ VIDEO_FRAMES = "frames"  # where frames extracted from videos go, inside the pro
 SQLITE_HEADER = b"SQLite format 3\x00"
 #: Frame and person ids are SQLite integers (64-bit, signed).
 _SQLITE_INT = (-(2**63), 2**63 - 1)
+# What opening for writing meets in a folder that cannot be written.
+_NOT_WRITABLE = (errno.EROFS, errno.EACCES, errno.EPERM)
 
 
 @dataclass(frozen=True)
@@ -168,6 +179,8 @@ class Project:
         self._lock = lock
         self.author = author
         self.read_only_reason = read_only_reason
+        #: What opening cleaned up after an interrupted run (a phrase each; empty if nothing).
+        self.recovered: tuple[str, ...] = ()
         self._mutex = threading.RLock()
         self._listeners: list[Callable[[str, frozenset[int]], None]] = []
         self._meta = dict(conn.execute("SELECT key, value FROM meta").fetchall())
@@ -217,8 +230,9 @@ class Project:
             # A project appears complete or not at all: nothing of a failed one stays.
             for name in (DB_NAME, DB_NAME + "-wal", DB_NAME + "-shm", HOLDER_NAME):
                 (folder / name).unlink(missing_ok=True)
-            lock.release()
+            # The lock file goes while still held, so no other process takes it meanwhile.
             (folder / LOCK_NAME).unlink(missing_ok=True)
+            lock.release()
             _remove_made(made)
             if isinstance(exc, sqlite3.Error):
                 raise _storage_failed(exc, folder) from None
@@ -262,8 +276,9 @@ class Project:
              read_only: bool = False) -> Project:
         """Open the project in ``folder``.
 
-        If another process is editing it, the project opens read-only and
-        :attr:`read_only_reason` says who holds it; ask with ``read_only=True`` to never take
+        If another process is editing it, or its folder cannot be written, the project opens
+        read-only and :attr:`read_only_reason` says why (who holds it; or that the folder
+        cannot be written, with the system's reason); ask with ``read_only=True`` to never take
         the lock.
         """
         folder = Path(folder)
@@ -271,22 +286,45 @@ class Project:
             raise NotFound(f"{folder}: no project here (no {DB_NAME}); make one with "
                            "`posewright new`")
         _check_database(folder / DB_NAME)
-        lock = None if read_only else _take_lock(folder)
-        if lock is None:
-            reason = "opened read-only on request" if read_only else _holder_reason(folder)
-            conn = _connect(folder / DB_NAME, read_only=True)
-            _check_version(conn, folder)
-            return cls(folder, conn, None, _author(author), reason)
-        return cls._open_locked(folder, lock, author)
+        reason = "opened read-only on request"
+        if not read_only:
+            try:
+                lock = _take_lock(folder)
+            except OSError as exc:
+                if exc.errno not in _NOT_WRITABLE:
+                    raise
+                reason = f"in a folder that cannot be written ({exc.strerror or exc})"
+            else:
+                if lock is not None:
+                    return cls._open_locked(folder, lock, author)
+                reason = _holder_reason(folder)
+        conn = _connect(folder / DB_NAME, read_only=True)
+        _check_version(conn, folder)
+        return cls(folder, conn, None, _author(author), reason + _unread_changes(folder))
 
     @classmethod
     def _open_locked(cls, folder: Path, lock: filelock.BaseFileLock,
                      author: str | None) -> Project:
+        db = folder / DB_NAME
+        # The lock file may exist and be writable in a folder or beside a database that are
+        # not (SQLite needs both to write); such a project is read-only like any other.
+        blocked = next((p for p in (folder, db) if not os.access(p, os.W_OK)), None)
+        if blocked is not None:
+            lock.release()
+            conn = _connect(db, read_only=True)
+            _check_version(conn, folder)
+            where = "in a folder" if blocked == folder else f"stored in a {DB_NAME}"
+            return cls(folder, conn, None, _author(author),
+                       f"{where} that cannot be written" + _unread_changes(folder))
         try:
-            conn = _connect(folder / DB_NAME, read_only=False)
+            conn = _connect(db, read_only=False)
             _check_version(conn, folder)
             migrate(conn)
             who = _author(author)
+            done = recovery.settle(folder, conn)
+            stale = _stale_holder(folder)
+            if stale:
+                done.append(stale)
             holder = {"pid": os.getpid(), "host": socket.gethostname(), "author": who,
                       "since": time.time()}
             (folder / HOLDER_NAME).write_text(json.dumps(holder))
@@ -295,7 +333,11 @@ class Project:
             if isinstance(exc, sqlite3.Error):
                 raise _storage_failed(exc, folder) from None
             raise
-        return cls(folder, conn, lock, who, None)
+        if done:
+            log.warning("%s: cleaned up after an interrupted run: %s", folder, "; ".join(done))
+        project = cls(folder, conn, lock, who, None)
+        project.recovered = tuple(done)
+        return project
 
     def close(self) -> None:
         """Close the database and release the lock (safe to call twice)."""
@@ -475,6 +517,40 @@ class Project:
             return None
         path = Path(row[0])
         return (path if path.is_absolute() else self.folder / path), int(row[1])
+
+    def new_map_run(self, kind: str) -> Path:
+        """A new, empty folder ``maps/<kind>-<run id>/`` for the map files of one run.
+
+        Its files count once a :meth:`Bulk.set_maps` in a committed :meth:`bulk` names them;
+        until then they are the run's alone, and if the process dies first the next open
+        removes the folder (see :mod:`app.store.recovery`). Call :meth:`drop_map_run` when the
+        run is over, whether it landed or not.
+        """
+        self._check_writable()
+        return recovery.new_run_folder(self.folder, kind)
+
+    def drop_map_run(self, folder: Path) -> None:
+        """Remove a run folder from :meth:`new_map_run` unless a committed run uses it."""
+        rel = _relative(folder, self.folder)
+        with self._mutex:
+            if rel not in recovery.meta_list(self._conn, recovery.MAP_RUNS_KEY):
+                shutil.rmtree(folder, ignore_errors=True)
+                with contextlib.suppress(OSError):  # only when nothing else is in maps/
+                    folder.parent.rmdir()
+
+    def _sweep_maps(self) -> None:
+        """Delete map files that the last commit superseded (see :mod:`app.store.recovery`)."""
+        with self._mutex:
+            try:
+                recovery.sweep(self.folder, self._conn)
+            except OSError as exc:
+                # The work itself is committed; the list of folders to sweep stays in the
+                # database, so the next open finishes this.
+                log.warning("%s: old maps not deleted yet (%s); the next open will", self.folder,
+                            exc)
+            self._meta.update(self._conn.execute(
+                "SELECT key, value FROM meta WHERE key IN (?, ?)",
+                (recovery.MAP_RUNS_KEY, recovery.SWEEP_KEY)).fetchall())
 
     def notes(self, frame_id: int) -> list[Note]:
         with self._mutex:
@@ -763,6 +839,7 @@ class Project:
         with self._mutex, self._transaction():
             bulk = Bulk(self)
             yield bulk
+            bulk.record_map_runs()
             ctx = EditContext(self.author, time.time())
             group = self._allocate("next_group_id")
             self._conn.execute(
@@ -772,6 +849,8 @@ class Project:
                 (group, kind, action, summary, ctx.author, ctx.time, frame_id, target,
                  json.dumps(bulk.stats)),
             )
+        if bulk.superseded:
+            self._sweep_maps()
         self._notify("import", bulk.frames_touched)
 
     def set_meta(self, key: str, value: str) -> None:
@@ -864,7 +943,7 @@ class Project:
         return [self.frame(i) for i in ids]
 
     def mark_image_status(self, frame_id: int, status: str) -> None:
-        """Record that a frame's image is ok, missing or corrupt (found when decoding)."""
+        """Record that a frame's image is ok, missing, corrupt or oversized (found on decoding)."""
         if self.read_only:
             return
         with self._mutex, self._transaction():
@@ -880,6 +959,10 @@ class Bulk:
         self._c = project._conn
         self.stats: dict[str, int] = {}
         self.frames_touched: set[int] = set()
+        #: Folders of map runs whose files this transaction replaces, and that it writes to.
+        self.superseded: set[str] = set()
+        self._runs_used: set[str] = set()
+        self._is_run: dict[str, bool] = {}
 
     def count(self, key: str, n: int = 1) -> None:
         self.stats[key] = self.stats.get(key, 0) + n
@@ -951,9 +1034,34 @@ class Bulk:
         self.frames_touched.update(mapping.values())
 
     def set_maps(self, frame_id: int, path: Path, stride: int) -> None:
-        """Record where a frame's network maps are (stored relative to the project folder)."""
+        """Record where a frame's network maps are (stored relative to the project folder).
+
+        A map file of a run folder (:meth:`Project.new_map_run`) that this replaces is deleted
+        after the commit, never before."""
+        rel = _relative(path, self._p.folder)
+        old = self._c.execute("SELECT path FROM maps WHERE frame_id = ?",
+                              (frame_id,)).fetchone()
+        if old is not None and old[0] != rel and self._in_run(old[0]):
+            self.superseded.add(old[0].rpartition("/")[0])
+        if self._in_run(rel):
+            self._runs_used.add(rel.rpartition("/")[0])
         self._c.execute("INSERT OR REPLACE INTO maps VALUES (?, ?, ?)",
-                        (frame_id, _relative(path, self._p.folder), int(stride)))
+                        (frame_id, rel, int(stride)))
+
+    def _in_run(self, rel: str) -> bool:
+        folder = rel.rpartition("/")[0]
+        if folder not in self._is_run:
+            self._is_run[folder] = recovery.is_run_folder(self._p.folder, folder)
+        return self._is_run[folder]
+
+    def record_map_runs(self) -> None:
+        """Write, in the transaction, which run folders rows may name and which to sweep."""
+        if self._runs_used:
+            runs = set(json.loads(self._p._meta.get(recovery.MAP_RUNS_KEY, "[]")))
+            self._p._set_meta(recovery.MAP_RUNS_KEY, json.dumps(sorted(runs | self._runs_used)))
+        if self.superseded:
+            pending = set(json.loads(self._p._meta.get(recovery.SWEEP_KEY, "[]")))
+            self._p._set_meta(recovery.SWEEP_KEY, json.dumps(sorted(pending | self.superseded)))
 
     def set_frame_extra(self, frame_id: int, extra: dict[str, Any]) -> None:
         """Replace the fields of an imported COCO image record kept for the round trip."""
@@ -1005,6 +1113,17 @@ def _connect(path: Path, read_only: bool) -> sqlite3.Connection:
     if read_only:
         uri = path.resolve().as_uri() + "?mode=ro"
         conn = sqlite3.connect(uri, uri=True, isolation_level=None, check_same_thread=False)
+        try:
+            conn.execute("SELECT count(*) FROM sqlite_master").fetchone()
+        except sqlite3.OperationalError:
+            if os.access(path.parent, os.W_OK):
+                raise
+            # A WAL database needs its shared-memory file beside it even to be read; in a
+            # folder nobody can write, nobody can change the database either, so SQLite may
+            # read it as immutable (no locks, no shared memory).
+            conn.close()
+            conn = sqlite3.connect(uri + "&immutable=1", uri=True, isolation_level=None,
+                                   check_same_thread=False)
     else:
         conn = sqlite3.connect(str(path), isolation_level=None, check_same_thread=False)
         conn.execute("PRAGMA journal_mode = WAL")
@@ -1012,6 +1131,18 @@ def _connect(path: Path, read_only: bool) -> sqlite3.Connection:
     conn.execute("PRAGMA foreign_keys = ON")
     conn.execute("PRAGMA busy_timeout = 5000")
     return conn
+
+
+def _unread_changes(folder: Path) -> str:
+    """What a reader must be told when the database was opened as immutable with committed
+    changes still in its write-ahead log, which SQLite cannot read without its shared-memory
+    file (one that nobody could create in this folder)."""
+    wal = folder / (DB_NAME + "-wal")
+    shm = folder / (DB_NAME + "-shm")
+    if os.access(folder, os.W_OK) or shm.exists() or not wal.is_file() or not wal.stat().st_size:
+        return ""
+    return (f"; the last changes, still in {wal.name}, cannot be read until the project is "
+            "opened once where its folder can be written")
 
 
 def _check_database(path: Path) -> None:
@@ -1102,6 +1233,20 @@ def _holder_reason(folder: Path) -> str:
         return "open for editing in another process"
 
 
+def _stale_holder(folder: Path) -> str | None:
+    """A lock note left by a process that died holding the lock (we hold it now), described."""
+    path = folder / HOLDER_NAME
+    if not path.exists():
+        return None
+    try:
+        holder = json.loads(path.read_text())
+        who = f"process {holder['pid']} on {holder['host']}"
+    except (OSError, ValueError, KeyError, TypeError):
+        who = "a process"
+    path.unlink(missing_ok=True)
+    return f"removed the stale {HOLDER_NAME} of {who}, which ended without closing the project"
+
+
 def _relative(path: Path, folder: Path) -> str:
     """``path`` relative to ``folder`` when it lies inside it (or beside it), else absolute."""
     path = Path(os.path.abspath(path))
@@ -1121,7 +1266,8 @@ def _probe_all(paths: Sequence[Path], progress: Progress | None) -> list[ImageIn
         progress.step(i, len(paths), "reading images")
         info = probe_image(p)
         if info.status != "ok":
-            log.warning("%s: image is %s; registered and marked", p, info.status)
+            log.warning("%s: image is %s (%s); registered and marked", p, info.status,
+                        info.reason)
         infos.append(info)
     progress.step(len(paths), len(paths), "reading images")
     return infos

@@ -6,10 +6,11 @@ ones in order, opening a newer one is refused (nothing is changed).
 
 Layout:
 
-- ``meta``: key/value facts about the project (its id, skeleton, COCO category, images folder).
+- ``meta``: key/value facts about the project (its id, skeleton, COCO category, images folder,
+  and which folders of map runs the ``maps`` rows may name, see :mod:`app.store.recovery`).
 - ``frames``: one row per image; ``path`` relative to the project folder (or absolute),
   ``file_name`` as it appears in COCO files, ``state`` in the correction loop, ``status`` of
-  the image file (ok / missing / corrupt).
+  the image file (ok / missing / corrupt / oversized).
 - ``people``: one row per person; ``keypoints`` is the ``(K, 3)`` float64 array ``x, y, v`` as
   little-endian bytes (exact round trip of any JSON number), ``scores`` the ``(K,)`` float64
   model scores (NULL when none), ``sources`` a JSON list of per-joint provenance (NULL when every

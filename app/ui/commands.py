@@ -11,6 +11,7 @@ import time
 from pathlib import Path
 
 from app.errors import BadInput, PosewrightError
+from app.ui import syslibs
 
 log = logging.getLogger(__name__)
 
@@ -22,6 +23,9 @@ SCREENSHOT_WAIT = 30.0
 
 def render_frame(args: argparse.Namespace) -> int:
     """``posewright render PROJECT --frame ID --out FILE.png [--focus PERSON]``."""
+    # Rendering starts Qt offscreen unless told otherwise (app.ui.render.gui_application).
+    syslibs.check_platform(syslibs.first_platform(os.environ.get("QT_QPA_PLATFORM")
+                                                  or "offscreen"))
     from app.jobs import open_project
     from app.ui.render import gui_application, render_frame_image
 
@@ -41,10 +45,10 @@ def open_app(args: argparse.Namespace) -> int:
     """``posewright open PROJECT [--author NAME] [--screenshot FILE]``; ``PROJECT`` may be a
     review packet (``FILE.zip``), opened for reviewing in a folder beside it
     (:func:`app.review.review.open_packet`)."""
-    from PySide6.QtWidgets import QApplication
-
     screenshot = getattr(args, "screenshot", None)
     _choose_platform(bool(screenshot))
+    from PySide6.QtWidgets import QApplication
+
     app = QApplication.instance() or QApplication([sys.argv[0] if sys.argv else "posewright"])
     app.setApplicationName("Posewright")
     headless = QApplication.platformName() in ("offscreen", "minimal")
@@ -54,7 +58,10 @@ def open_app(args: argparse.Namespace) -> int:
     if is_packet(args.project):
         from app.review.review import open_packet
 
-        project = open_packet(args.project, reviewer=author)
+        # The name given on the first run only stands in when neither --author nor the
+        # packet names the reviewer, so a review keeps one reviewer from call to call.
+        project = open_packet(args.project, reviewer=getattr(args, "author", None) or None,
+                              fallback=author)
     else:
         project = _open(args.project, author, quiet=getattr(args, "quiet", False),
                         with_dialog=not screenshot and not headless)
@@ -74,18 +81,36 @@ def open_app(args: argparse.Namespace) -> int:
 
 
 def _choose_platform(screenshot: bool) -> None:
-    """Pick Qt's platform before the application exists: a screenshot needs no display (render
-    offscreen); a window does, and without one say so in a line instead of letting Qt abort."""
-    if os.environ.get("QT_QPA_PLATFORM") or sys.platform != "linux":
+    """Pick Qt's platform before the application exists, and check that the system has the
+    libraries it needs: where Qt would abort, say so in a line instead.
+
+    A screenshot needs no display: without one, or without the desktop's libraries, it renders
+    offscreen. A window needs a display, and on a Linux desktop the xcb libraries
+    (:mod:`app.ui.syslibs`).
+    """
+    if sys.platform != "linux":
         return
-    if os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY"):
+    env = os.environ
+    chosen = bool(env.get("QT_QPA_PLATFORM"))
+    if not chosen and not (env.get("DISPLAY") or env.get("WAYLAND_DISPLAY")):
+        if not screenshot:
+            raise PosewrightError(
+                "there is no display to open the window on; use --screenshot FILE.png to "
+                "render the window without one, or run under a virtual display (xvfb-run -a "
+                "posewright open ...)")
+        env["QT_QPA_PLATFORM"] = "offscreen"
+    platform = syslibs.expected_platform(env)
+    if platform is None:
         return
-    if screenshot:
-        os.environ["QT_QPA_PLATFORM"] = "offscreen"
-        return
-    raise PosewrightError(
-        "there is no display to open the window on; use --screenshot FILE.png to render the "
-        "window without one, or run under a virtual display (xvfb-run -a posewright open ...)")
+    try:
+        syslibs.check_platform(platform)
+    except PosewrightError:
+        if not screenshot or chosen or platform == "offscreen":
+            raise
+        log.info("the %s platform cannot start here; the screenshot renders offscreen",
+                 platform)
+        env["QT_QPA_PLATFORM"] = "offscreen"
+        syslibs.check_platform("offscreen")
 
 
 def _quiet_platform_notices() -> None:

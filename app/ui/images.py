@@ -23,7 +23,7 @@ import numpy as np
 from PySide6.QtCore import QObject, QRunnable, QThreadPool, Signal
 from PySide6.QtGui import QImage
 
-from app.formats.images import decode_image
+from app.formats.images import decode_image, unreadable_status
 
 log = logging.getLogger(__name__)
 
@@ -233,8 +233,7 @@ class _DecodeTask(QRunnable):
         except Exception:  # a worker must always report back, whatever the file does
             log.exception("decoding %s failed", self._path)
             decoded = None
-        status = "ok" if decoded is not None else (
-            "corrupt" if self._path.is_file() else "missing")
+        status = "ok" if decoded is not None else unreadable_status(self._path)
         self._sink.done.emit(self._frame_id, decoded, status)
 
 
@@ -258,7 +257,7 @@ class ImageLoader(QObject):
     """Decode frames in a thread pool into an :class:`ImageCache`.
 
     ``ready(frame_id)`` is emitted on the UI thread when a frame is in the cache;
-    ``failed(frame_id, status)`` when its file is ``missing`` or ``corrupt``;
+    ``failed(frame_id, status)`` when its file is ``missing``, ``oversized`` or ``corrupt``;
     ``refined(frame_id)`` when its quickly shrunk copy has been replaced by a better one.
 
     A frame asked for *urgently* (the one the annotator waits for) is shrunk quickly (bilinear)

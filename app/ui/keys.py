@@ -3,7 +3,13 @@
 The main window builds its actions from :data:`KEYS`, the shortcut sheet (F1) lists it, and the
 README's key table is checked against it by a test, so the three never disagree. Standard
 actions (undo, redo, zoom, open, quit) use the platform's own keys through
-:class:`~PySide6.QtGui.QKeySequence.StandardKey`.
+:class:`~PySide6.QtGui.QKeySequence.StandardKey`, plus the keys the README promises on every
+platform (Ctrl+Y and Ctrl+Shift+Z redo, Ctrl+Q quits).
+
+The standard keys differ by keyboard scheme: Quit is Ctrl+Q on Linux desktops and macOS but
+has no key on Windows, Redo is Ctrl+Shift+Z on Linux but also Ctrl+Y on Windows. So a key
+listed explicitly may be the platform's own as well; :func:`sequences` drops such repeats,
+because Qt fires neither binding of a key bound twice ("Ambiguous shortcut overload").
 """
 
 from __future__ import annotations
@@ -51,7 +57,9 @@ KEYS: tuple[Key, ...] = (
         "Mark the frame disputed; again: back to corrected", ("D",)),
     Key("Frames", "sign_off", "Sign off", "Sign the frame off; again: back to corrected",
         ("Ctrl+Return",)),
-    Key("Frames", "write_note", "Write a note", "Write a note in this frame's thread", ("C",)),
+    Key("Frames", "write_note", "Write a note",
+        "Write a note in this frame's thread: Return adds it, Esc keeps it as a draft; either "
+        "way the keys go back to the Canvas", ("C",)),
     # Selection
     Key("Selection", "", "", "Select a joint; on a limb or a tag, select the person",
         gesture="Click"),
@@ -156,7 +164,7 @@ KEYS: tuple[Key, ...] = (
     # Ledger
     Key("Ledger", "undo", "Undo", "Undo the last edit (any frame; the Canvas follows)",
         (StandardKey.Undo,)),
-    Key("Ledger", "redo", "Redo", "Redo", (StandardKey.Redo,)),
+    Key("Ledger", "redo", "Redo", "Redo", (StandardKey.Redo, "Ctrl+Y", "Ctrl+Shift+Z")),
     # Project
     Key("Project", "open_project", "Open project\u2026", "Open another project",
         (StandardKey.Open,)),
@@ -186,19 +194,34 @@ KEYS: tuple[Key, ...] = (
 
 
 def sequences(key: Key) -> list[QKeySequence]:
-    """The key sequences of an entry (standard keys expanded for this platform, which needs
-    a Qt application: a headless one is started if there is none)."""
+    """The key sequences of an entry, each once: standard keys expanded for this platform
+    (which needs a Qt application: a headless one is started if there is none), then the
+    entry's own keys that the platform does not bind already.
+
+    Examples
+    --------
+    >>> [s.toString() for s in sequences(next(k for k in KEYS if k.name == "mark_unlabeled"))]
+    ['U', 'Del']
+    """
     if any(isinstance(k, QKeySequence.StandardKey) for k in key.keys):
         from app.ui.render import gui_application
 
         gui_application()
-    out: list[QKeySequence] = []
+    found: list[QKeySequence] = []
     for k in key.keys:
         if isinstance(k, QKeySequence.StandardKey):
-            out.extend(QKeySequence.keyBindings(k))
+            found.extend(_standard_bindings(k))
         else:
-            out.append(QKeySequence(k))
-    return out
+            found.append(QKeySequence(k))
+    unique: dict[str, QKeySequence] = {}
+    for seq in found:
+        unique.setdefault(seq.toString(QKeySequence.SequenceFormat.PortableText), seq)
+    return list(unique.values())
+
+
+def _standard_bindings(key: QKeySequence.StandardKey) -> list[QKeySequence]:
+    """The keys this platform's keyboard scheme binds to a standard key."""
+    return list(QKeySequence.keyBindings(key))
 
 
 def key_text(key: Key) -> str:

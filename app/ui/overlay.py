@@ -1,7 +1,7 @@
 """The overlay painter: one function draws every person of a frame for the Canvas and for the
 headless ``render`` command alike, so what is exported is what was seen.
 
-Our visual language (DESIGN.md section 6):
+Our visual language (defined here; DEVELOPERS.md, "Conventions", sums it up):
 
 - *Colour says who.* Each person takes a colour of the Okabe and Ito (2008) colour-blind-safe
   qualitative palette, black left out because black draws every outline. With more than seven

@@ -6,8 +6,8 @@ emits what the user asked for and leaves the edits to the main window.
 
 from __future__ import annotations
 
-from PySide6.QtCore import QItemSelectionModel, QModelIndex, Qt, Signal
-from PySide6.QtGui import QAction
+from PySide6.QtCore import QEvent, QItemSelectionModel, QModelIndex, Qt, Signal
+from PySide6.QtGui import QAction, QKeyEvent
 from PySide6.QtWidgets import (
     QAbstractItemView,
     QComboBox,
@@ -342,10 +342,39 @@ class LedgerPanel(QWidget):
 
 # ---------------------------------------------------------------------------------- Notes
 
+class NoteEntry(QLineEdit):
+    """The line a note is written in. Esc leaves it with the draft kept (instead of reaching
+    the window's Esc, which would clear the Canvas's selection) and emits :attr:`left`."""
+
+    left = Signal()
+
+    def event(self, event: QEvent) -> bool:
+        # Accepting the override keeps the window's Esc shortcut from firing while writing.
+        if event.type() == QEvent.Type.ShortcutOverride and isinstance(event, QKeyEvent) \
+                and event.key() == Qt.Key.Key_Escape \
+                and event.modifiers() == Qt.KeyboardModifier.NoModifier:
+            event.accept()
+            return True
+        return super().event(event)
+
+    def keyPressEvent(self, event: QKeyEvent) -> None:
+        if event.key() == Qt.Key.Key_Escape:
+            self.left.emit()
+            event.accept()
+            return
+        super().keyPressEvent(event)
+
+
 class NotesPanel(QWidget):
-    """The frame's note thread and a line to add to it."""
+    """The frame's note thread and a line to add to it.
+
+    Writing a note is a short trip away from the Canvas: :attr:`done` says the writer is
+    finished with the line without adding a note (Return on an empty line, or Esc), so that the
+    window can give the keys back to the Canvas.
+    """
 
     noteSubmitted = Signal(str)
+    done = Signal()
 
     def __init__(self, model: NotesModel, parent: QWidget | None = None):
         super().__init__(parent)
@@ -356,7 +385,7 @@ class NotesPanel(QWidget):
         self.view.setAlternatingRowColors(True)
         self.view.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
         self.view.setObjectName("NotesView")
-        self.entry = QLineEdit()
+        self.entry = NoteEntry()
         self.entry.setObjectName("NoteEntry")
         self.entry.setPlaceholderText("Write a note on this frame, then Return")
         self.add = QPushButton("Add note")
@@ -368,6 +397,7 @@ class NotesPanel(QWidget):
         layout.addWidget(self.view, 1)
         layout.addLayout(row)
         self.entry.returnPressed.connect(self._submit)
+        self.entry.left.connect(self.done)
         self.add.clicked.connect(self._submit)
 
     def set_editable(self, editable: bool) -> None:
@@ -378,3 +408,5 @@ class NotesPanel(QWidget):
         text = self.entry.text().strip()
         if text:
             self.noteSubmitted.emit(text)
+        else:
+            self.done.emit()

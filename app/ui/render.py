@@ -15,8 +15,8 @@ import numpy as np
 from PySide6.QtGui import QGuiApplication, QImage, QPainter, QTransform
 from PySide6.QtWidgets import QApplication
 
-from app.errors import BadInput, NotFound
-from app.formats.images import decode_image
+from app.errors import NotFound
+from app.formats.images import read_image
 from app.model.labels import Frame
 from app.model.skeleton import Skeleton
 from app.store.project import Project
@@ -87,10 +87,7 @@ def render_frame_image(project: Project, frame: Frame, focus: int | None = None)
 
     ``focus`` is a person id of the frame; everyone else is dimmed.
     """
-    path = project.image_path(frame)
-    bgr = decode_image(path)
-    if bgr is None:
-        raise BadInput("the image is missing or cannot be decoded", where=str(path))
+    bgr = read_image(project.image_path(frame))
     people = project.people(frame.id)
     if focus is not None and focus not in {p.id for p in people}:
         listing = ", ".join(f"{p.id} (tag {n + 1})" for n, p in enumerate(people)) or "none"

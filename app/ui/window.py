@@ -26,14 +26,16 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
-from PySide6.QtCore import QObject, Qt, QTimer, Signal
-from PySide6.QtGui import QAction, QCloseEvent, QKeySequence
+from PySide6.QtCore import QEvent, QObject, Qt, QTimer, Signal
+from PySide6.QtGui import QAction, QCloseEvent, QKeyEvent, QKeySequence
 from PySide6.QtWidgets import (
+    QApplication,
     QDialog,
     QDockWidget,
     QFileDialog,
     QLabel,
     QMainWindow,
+    QMenu,
     QMessageBox,
     QTextBrowser,
     QVBoxLayout,
@@ -148,6 +150,7 @@ class MainWindow(QMainWindow):
 
         self.actions_by_name: dict[str, QAction] = {}
         self._build_actions()
+        self._menu_escape = _MenuEscape(self)
 
         self.canvas = Canvas(self.skeleton, self)
         self.strips = self._build_strips()
@@ -201,6 +204,11 @@ class MainWindow(QMainWindow):
         self.ledger.returnRequested.connect(self._return_to)
         self.ledger.scopeChanged.connect(self._ledger_scope)
         self.notes.noteSubmitted.connect(self._add_note)
+        # A trip to a note, a menu or Owners ends with the keys back on the Canvas (Tab, the
+        # arrows and the region keys work only there).
+        self.notes.done.connect(self._back_to_canvas)
+        self.owners.people.clicked.connect(self._back_to_canvas)
+        self.owners.candidates.clicked.connect(self._back_to_canvas)
 
         self._restore_layout(restore_layout)
         self._apply_read_only()
@@ -341,6 +349,7 @@ class MainWindow(QMainWindow):
         }
         for title, names in menus.items():
             menu = bar.addMenu(title)
+            menu.installEventFilter(self._menu_escape)
             for name in names:
                 if name is None:
                     menu.addSeparator()
@@ -764,6 +773,10 @@ class MainWindow(QMainWindow):
         if self.apply(AddNote(self.frame_id, text, person_id=person)) is not None:
             self.notes.entry.clear()
             self.notes.view.scrollToBottom()
+            self._back_to_canvas()
+
+    def _back_to_canvas(self, *_args: Any) -> None:
+        self.canvas.setFocus(Qt.FocusReason.OtherFocusReason)
 
     def undo(self) -> None:
         self._unwind(self.project.undo, "undone", "nothing to undo")
@@ -1425,9 +1438,9 @@ class MainWindow(QMainWindow):
                 pr.step(0, 1, "writing")
                 return export_coco(self.project, path)
 
-            self.run_long("Exporting labels", job, lambda stats: self._message(
+            self.run_long("Exporting labels", job, lambda stats: self._exported(
                 f"wrote {path}: {count(stats['images'], 'images')}, "
-                f"{count(stats['people'], 'people')}"))
+                f"{count(stats['people'], 'people')}", stats))
 
     def _export_targets(self) -> None:
         fn = self._analysis_job("export_targets")
@@ -1436,7 +1449,20 @@ class MainWindow(QMainWindow):
         if fn and folder:
             self.run_long("Exporting training targets",
                           lambda pr: fn(self.project, folder, progress=pr),
-                          lambda _r: self._message(f"training targets written to {folder}"))
+                          lambda stats: self._exported(
+                              f"training targets of {count(stats['frames'], 'frames')} "
+                              f"written to {folder}", stats))
+
+    def _exported(self, text: str, stats: dict[str, Any]) -> None:
+        """Say what an export wrote and what it left out (corrected and signed-off frames are
+        exported, the command line's default); warn about what nobody checked."""
+        from app.jobs import export_warnings, left_out_note
+
+        note = left_out_note(stats)
+        self._message(text + (f"; {note}" if note else ""), 0)
+        warnings = export_warnings(stats)
+        if warnings:
+            self._inform("\n".join(line[:1].upper() + line[1:] + "." for line in warnings))
 
     def _frames_added(self, frames: Any, what: str) -> None:
         if not frames:
@@ -1542,6 +1568,9 @@ class MainWindow(QMainWindow):
                 f"{count(stats['people'], 'people')}, {count(stats['images'], 'images')}.")
         if stats.get("missing_images"):
             text += f"\n{count(stats['missing_images'], 'frames')} went without their image."
+        if stats.get("outside_images"):
+            text += (f"\n{count(stats['outside_images'], 'frames')} went without their image: "
+                     "it is a link to a file outside the images folder.")
         if stats.get("unplaced_heads"):
             text += (f"\n{count(stats['unplaced_heads'], 'people')} with no labelled joint: "
                      "no head to blur.")
@@ -1567,7 +1596,7 @@ class MainWindow(QMainWindow):
         text = (f"Merged the review by {report.reviewer}: {count(report.frames, 'frames')}, "
                 f"{count(report.joints_taken, 'joints')} taken, "
                 f"{count(report.people_added, 'people')} added, "
-                f"{report.people_deleted} deleted, {report.notes_added} notes.")
+                f"{report.people_deleted} deleted, {count(report.notes_added, 'notes')}.")
         if report.disputed:
             text += (f"\n\n{len(report.disputed)} frame(s) are disputed: "
                      + ", ".join(map(str, report.disputed[:12]))
@@ -1623,6 +1652,29 @@ class MainWindow(QMainWindow):
             if pid in ids:
                 self.canvas.select_person(int(pid))
                 return
+
+
+class _MenuEscape(QObject):
+    """Esc closes a menu of the window's menu bar and nothing more.
+
+    Qt's own Esc leaves the menu bar holding the keyboard, title highlighted, so the next Tab
+    or arrow meant for the Canvas would walk the menu bar or the panels instead. Here the keys
+    go back to where they were before the menu opened (the Canvas when the menu bar had them).
+    """
+
+    def __init__(self, window: MainWindow):
+        super().__init__(window)
+        self._window = window
+
+    def eventFilter(self, watched: QObject, event: QEvent) -> bool:
+        if event.type() == QEvent.Type.KeyPress and isinstance(watched, QMenu) \
+                and isinstance(event, QKeyEvent) and event.key() == Qt.Key.Key_Escape \
+                and event.modifiers() == Qt.KeyboardModifier.NoModifier:
+            watched.hide()
+            if QApplication.focusWidget() is self._window.menuBar():
+                self._window.canvas.setFocus(Qt.FocusReason.OtherFocusReason)
+            return True
+        return super().eventFilter(watched, event)
 
 
 _OPEN_WINDOWS: set[MainWindow] = set()

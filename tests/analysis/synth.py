@@ -127,3 +127,47 @@ def hide_ends(rng: np.random.Generator, people: np.ndarray, p_unlabelled: float)
     gone[:, ENDS] = rng.random((out.shape[0], len(ENDS))) < p_unlabelled
     out[gone] = (np.nan, np.nan, 0)
     return out
+
+
+def walkers(
+    rng: np.random.Generator,
+    n: int,
+    frames: int,
+    image_size: tuple[int, int],
+    stature: tuple[float, float] = (200.0, 320.0),
+    speed: float = 0.03,
+    jitter: float = 0.004,
+) -> tuple[list[np.ndarray], list[np.ndarray]]:
+    """``n`` people walking across the image for ``frames`` frames, and who is who.
+
+    Each person keeps one body from :func:`person`, starts anywhere in the image with a heading
+    at random and a speed of about ``speed`` statures per frame, turns a little every frame and
+    bounces off the image's edges; every joint jitters by ``jitter`` statures (normal, per
+    axis). People pass in front of each other freely, so paths cross. Returns per frame the
+    ``(n, 17, 3)`` people in a shuffled order and the ``(n,)`` identity (0 to ``n - 1``) of
+    each row.
+    """
+    width, height = image_size
+    size = rng.uniform(*stature, n)
+    bodies = np.stack([person(rng, (0.0, 0.0), s) for s in size])
+    pos = np.column_stack([rng.uniform(0, width, n), rng.uniform(0, height, n)])
+    heading = rng.uniform(0, 2 * np.pi, n)
+    pace = speed * size * rng.uniform(0.6, 1.4, n)
+    people, identities = [], []
+    for _ in range(frames):
+        heading += rng.normal(0, 0.08, n)
+        step = pace[:, None] * np.column_stack([np.cos(heading), np.sin(heading)])
+        pos += step
+        # Bounce: mirror the heading about the edge that was crossed.
+        out_x = (pos[:, 0] < 0) | (pos[:, 0] > width)
+        out_y = (pos[:, 1] < 0) | (pos[:, 1] > height)
+        heading = np.where(out_x, np.pi - heading, heading)
+        heading = np.where(out_y, -heading, heading)
+        pos = np.clip(pos, 0, [width, height])
+        frame = bodies.copy()
+        wobble = rng.normal(0, 1, (n, K, 2)) * (jitter * size)[:, None, None]
+        frame[..., :2] += pos[:, None, :] + wobble
+        order = rng.permutation(n)
+        people.append(frame[order])
+        identities.append(order)
+    return people, identities

@@ -2,8 +2,9 @@
 
 Source: Cao, Simon, Wei, Sheikh, "Realtime Multi-Person 2D Pose Estimation using Part Affinity
 Fields", CVPR 2017: Sec. 2.2 (confidence maps, Eq. 6-7) and Sec. 2.3 (part affinity fields,
-Eq. 8-9). The reference implementations below loop over people and grid cells one at a time, with
-the grid convention of DESIGN.md section 3-4. All poses are synthetic (tests/analysis/synth.py).
+Eq. 8-9). The reference implementations below loop over people and grid cells one at a time, on
+the grid of cell centres (app/analysis/targets.py). All poses are synthetic
+(tests/analysis/synth.py).
 """
 
 from __future__ import annotations
@@ -209,8 +210,8 @@ def test_rasterize_regions_agrees_with_opencv():
 
 
 def test_loss_mask_zeroes_ignore_regions_on_every_channel():
-    """The loss-mask rule of DESIGN.md section 4 (after Cao et al. 2017 Sec. 2.1) on a crafted
-    synthetic frame: a rectangle in pixels and the same cells as a grid mask agree."""
+    """Our loss-mask rule (app/analysis/targets.loss_mask, after Cao et al. 2017 Sec. 2.1) on a
+    crafted synthetic frame: a rectangle in pixels and the same cells as a grid mask agree."""
     kp = synth.person(np.random.default_rng(3), (40, 40), 50)[None]
     limbs = synth.LIMBS
     rect = [[(60.5, 4.5), (90.5, 4.5), (90.5, 30.5), (60.5, 30.5)]]
@@ -227,9 +228,9 @@ def test_loss_mask_zeroes_ignore_regions_on_every_channel():
 
 
 def test_loss_mask_zeroes_an_unlabeled_joint_around_its_person_only():
-    """The loss-mask rule of DESIGN.md section 4 on a crafted synthetic frame: the left wrist of
-    the first person is unlabeled; its channel and the left forearm's PAF channels are 0 inside
-    that person's grown box and 1 elsewhere; every other channel is 1."""
+    """Our loss-mask rule (app/analysis/targets.loss_mask) on a crafted synthetic frame: the left
+    wrist of the first person is unlabeled; its channel and the left forearm's PAF channels are 0
+    inside that person's grown box and 1 elsewhere; every other channel is 1."""
     rng = np.random.default_rng(11)
     a = synth.person(rng, (50, 60), 60)
     b = synth.person(rng, (170, 60), 60)

@@ -73,6 +73,19 @@ def test_numbers_too_large_for_the_database_are_one_line(proj, capsys, argv, wha
     _one_line(err, what)
 
 
+@pytest.mark.parametrize("option, value, unit", [
+    ("--max-megapixels", "1e305", "megapixels"), ("--max-megapixels", "nan", "megapixels"),
+    ("--memory-budget-mb", "1e305", "megabytes"), ("--memory-budget-mb", "-inf", "megabytes"),
+])
+def test_limits_too_large_to_count_are_one_line(proj, tmp_path, capsys, option, value, unit):
+    """1e305 megapixels is a finite float whose pixel count (times 10**6) overflows to
+    infinity (IEEE 754 doubles end near 1.8e308), which raised OverflowError before."""
+    code, _, err = _run(capsys, "prelabel", proj, "--model", tmp_path / "m.onnx",
+                        f"{option}={value}")
+    assert code == 2
+    _one_line(err, f"{option}: {float(value)} is not a positive number of {unit}")
+
+
 class _Same:
     value = None
 

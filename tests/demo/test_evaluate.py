@@ -3,14 +3,18 @@
 from __future__ import annotations
 
 import json
+from dataclasses import dataclass
+from itertools import pairwise
 from pathlib import Path
 
 import numpy as np
+import pytest
 from pycocotools.coco import COCO
 from pycocotools.cocoeval import COCOeval
 from scipy.optimize import linear_sum_assignment
 
 from app.analysis.association import group_people
+from app.analysis.similarity import match_people
 from app.demo.evaluate import wrong_people
 from app.model.skeleton import coco_body
 
@@ -77,28 +81,67 @@ def test_empty_sides() -> None:
     assert wrong_people(np.zeros((0, 17, 3)), person, [100.0], SIGMAS).shape == (0,)
 
 
-def test_grouping_the_shipped_maps_makes_crowd_errors(shipped: Path) -> None:
-    """Grouping the shipped maps with app.analysis.association.group_people gets most dancers
-    right but not all: between 15% and 45% of the grouped people are wrong (OKS < 0.8 or
-    unmatched), the rate the simulation was tuned for (our brief: 20-40% on the shipped
-    demo, with margin for changes in the grouping)."""
+@dataclass
+class _Grouped:
+    """The shipped demo grouped frame by frame: per frame the grouped people, the true people,
+    their areas and track ids."""
+
+    auto: list[np.ndarray]
+    truth: list[np.ndarray]
+    areas: list[np.ndarray]
+    tracks: list[np.ndarray]
+
+
+@pytest.fixture(scope="module")
+def grouped(shipped: Path) -> _Grouped:
     truth = json.loads((shipped / "truth.json").read_text())
     per_image: dict[int, list[dict]] = {im["id"]: [] for im in truth["images"]}
     for ann in truth["annotations"]:
         per_image[ann["image_id"]].append(ann)
-    grouped = wrong = dancers = 0
     limbs = coco_body().limb_array
+    out = _Grouped([], [], [], [])
     for image in truth["images"]:
         anns = per_image[image["id"]]
-        people = np.array([np.reshape(a["keypoints"], (17, 3)) for a in anns], float)
-        areas = np.array([a["area"] for a in anns], float)
         stem = Path(image["file_name"]).stem
         with np.load(shipped / "maps" / f"{stem}.npz", allow_pickle=False) as npz:
             found = group_people(npz["confidence_maps"], npz["pafs"], limbs,
                                  stride=int(npz["stride"]))
-        auto = np.array(found).reshape(-1, 17, 3)
-        grouped += len(auto)
+        out.auto.append(np.array(found).reshape(-1, 17, 3))
+        out.truth.append(np.array([np.reshape(a["keypoints"], (17, 3)) for a in anns], float))
+        out.areas.append(np.array([a["area"] for a in anns], float))
+        out.tracks.append(np.array([a["track_id"] for a in anns]))
+    return out
+
+
+def test_grouping_the_shipped_maps_makes_crowd_errors(grouped: _Grouped) -> None:
+    """Grouping the shipped maps with app.analysis.association.group_people gets most dancers
+    right but not all: between 15% and 45% of the grouped people are wrong (OKS < 0.8 or
+    unmatched), the rate the simulation was tuned for (our brief: 20-40% on the shipped
+    demo, with margin for changes in the grouping)."""
+    found = wrong = dancers = 0
+    for auto, people, areas in zip(grouped.auto, grouped.truth, grouped.areas):
+        found += len(auto)
         dancers += len(people)
         wrong += int(wrong_people(auto, people, areas, SIGMAS).sum())
-    assert 0.8 * dancers <= grouped <= 1.2 * dancers
-    assert 0.15 <= wrong / grouped <= 0.45
+    assert 0.8 * dancers <= found <= 1.2 * dancers
+    assert 0.15 <= wrong / found <= 0.45
+
+
+def test_the_shipped_demos_errors_last_over_frames(grouped: _Grouped) -> None:
+    """A network's crowd errors persist while the dancers stay tangled, and so do the demo's:
+    of the dancers not labelled right in one frame (no grouped person paired with them at
+    OKS >= 0.8, pairing as in wrong_people: OKS as pycocotools computes it, scipy's optimal
+    assignment), at least 45 % are still not right in the next frame, at least 1.5 times the
+    share of dancers not right in any frame. Measured when written: 0.50 against 0.27; the
+    same scene with every frame's errors drawn afresh gave 0.33 against 0.24 (our brief)."""
+    bad: list[dict[int, bool]] = []
+    for auto, people, areas, tracks in zip(grouped.auto, grouped.truth, grouped.areas,
+                                           grouped.tracks):
+        right = {int(tracks[j]) for _, j, _ in match_people(auto, people, areas, SIGMAS,
+                                                            threshold=0.8)}
+        bad.append({int(t): int(t) not in right for t in tracks})
+    then = [now[t] for now in bad[:-1] for t in now]
+    still = [nxt[t] for now, nxt in pairwise(bad) for t in now if now[t] and t in nxt]
+    assert len(still) >= 50
+    assert np.mean(still) >= 0.45
+    assert np.mean(still) >= 1.5 * np.mean(then)

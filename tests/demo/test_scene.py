@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import dataclasses
 import json
+from itertools import pairwise
 from pathlib import Path
 
 import cv2
@@ -15,7 +16,7 @@ from app.demo import DEFAULT_SEED, generate
 from app.demo.camera import Camera
 from app.demo.poses import NUM_BODY_JOINTS
 from app.demo.render import hall, render
-from app.demo.scene import label_frame, make_scene, render_frame
+from app.demo.scene import label_frame, make_scene, poses_at, render_frame
 from app.formats.maps import read_maps
 from app.model.skeleton import coco_body
 
@@ -255,3 +256,41 @@ def test_box_and_area_are_the_visible_pixels(frame0: tuple) -> None:
         seen = kp[kp[:, 2] == 2]
         assert ((seen[:, 0] > x - 1) & (seen[:, 0] < x + w) & (seen[:, 1] > y - 1)
                 & (seen[:, 1] < y + h)).all()
+
+
+def test_track_id_names_the_same_dancer_in_every_frame(shipped: Path) -> None:
+    """truth.json's track_id is the dancer: in every frame each labelled joint is where the
+    scene's dancer of that id projects (OpenCV's pinhole projection, cv2.projectPoints), and
+    from one frame to the next each dancer's joints lie closer to their own previous place
+    than to any other dancer's (common practice for track ids, no source)."""
+    truth = json.loads((shipped / "truth.json").read_text())
+    scene = make_scene(json.loads((shipped / "project-sources.json").read_text())["seed"])
+    cam = scene.camera
+    k = np.array([[cam.focal, 0, cam.principal_point[0]], [0, cam.focal, cam.principal_point[1]],
+                  [0, 0, 1]])
+    rvec, _ = cv2.Rodrigues(cam.rotation)
+    tvec = -cam.rotation @ cam.centre
+    frames: list[dict[int, np.ndarray]] = []
+    for image_id, anns in sorted(_per_image(truth).items()):
+        poses = poses_at(scene, image_id - 1)
+        people = {}
+        for ann in anns:
+            kp = np.reshape(ann["keypoints"], (NUM_BODY_JOINTS, 3))
+            body = poses[ann["track_id"] - 1].points[:NUM_BODY_JOINTS]
+            uv, _ = cv2.projectPoints(body, rvec, tvec, k, None)
+            seen = kp[:, 2] > 0
+            np.testing.assert_allclose(kp[seen, :2], uv.reshape(-1, 2)[seen], atol=0.01)
+            people[ann["track_id"]] = kp
+        frames.append(people)
+    for before, after in pairwise(frames):
+        for track, kp in after.items():
+            if track not in before:
+                continue
+
+            def gap(other: np.ndarray, kp: np.ndarray = kp) -> float:
+                both = (other[:, 2] > 0) & (kp[:, 2] > 0)
+                return float(np.hypot(*(other[both, :2] - kp[both, :2]).T).mean()
+                             if both.any() else np.inf)
+
+            nearest = min(before, key=lambda t: gap(before[t]))
+            assert nearest == track

@@ -21,7 +21,7 @@ def _load(path):
 def test_dataset_round_trip_is_exact(project, coco_file, tmp_path):
     import_coco(project, coco_file)
     out = tmp_path / "out.json"
-    export_coco(project, out)
+    export_coco(project, out, states=None)  # every state, untouched frames included
     assert _load(out) == _load(coco_file)
 
 
@@ -43,7 +43,7 @@ def test_export_is_evaluated_perfect_by_pycocotools(project, coco_file, tmp_path
 
     import_coco(project, coco_file)
     out = tmp_path / "out.json"
-    export_coco(project, out)
+    export_coco(project, out, states=None)  # every state, untouched frames included
     gt = COCO(str(coco_file))
     exported = COCO(str(out))  # loads as a dataset
     dets = [dict(a, score=1.0) for a in exported.dataset["annotations"] if a["num_keypoints"]]
@@ -62,7 +62,7 @@ def test_edited_labels_export_with_recomputed_counts(project, coco_file, tmp_pat
     project.apply(SetVisibility(frame.id, person.id, j, 0))
     project.apply(MoveJoint(frame.id, person.id, 16, 12.5, 13.5))
     out = tmp_path / "out.json"
-    export_coco(project, out)
+    export_coco(project, out, states=None)  # every state, untouched frames included
     ann = next(a for a in _load(out)["annotations"] if a["id"] == person.id)
     assert ann["keypoints"][3 * j: 3 * j + 3] == [0, 0, 0]
     assert ann["keypoints"][48:51][:2] == [12.5, 13.5]
@@ -75,7 +75,7 @@ def test_new_people_get_a_computed_box(project, tmp_path):
     kp = tuple((10.0 + 2 * j, 20.0 + j, 2 if j < 10 else 0) for j in range(17))
     project.apply(NewPerson(1, None, kp))
     out = tmp_path / "out.json"
-    export_coco(project, out)
+    export_coco(project, out, states=None)  # every state, untouched frames included
     ann = _load(out)["annotations"][0]
     assert ann["bbox"] == [10.0, 20.0, 18.0, 9.0] and ann["area"] == 162.0
     assert ann["num_keypoints"] == 10
@@ -240,7 +240,7 @@ def test_negative_image_ids_in_any_order_are_taken(project, coco_file, tmp_path)
     import_coco(project, path)
     assert [f.id for f in project.frames()] == sorted(new_ids)
     out = tmp_path / "out.json"
-    export_coco(project, out)
+    export_coco(project, out, states=None)  # every state, untouched frames included
     got = _load(out)
     for key, order in (("images", "id"), ("annotations", "id")):
         assert sorted(got.pop(key), key=lambda r: r[order]) == \
@@ -284,7 +284,7 @@ def test_a_project_holding_non_finite_numbers_still_exports(project, tmp_path, c
 
     _holding_non_finite(project)
     out = tmp_path / "out.json"
-    export_coco(project, out)
+    export_coco(project, out, states=None)  # every state, untouched frames included
     ds = _strict(out.read_text())
     ann = ds["annotations"][0]
     assert ann["bbox"] == [10.0, 20.0, 20.0, 24.0] and ann["area"] == 480.0
@@ -306,7 +306,7 @@ def test_mend_replaces_them_for_good_and_the_export_does_not_change(project, tmp
 
     person = _holding_non_finite(project)
     before = tmp_path / "before.json"
-    export_coco(project, before)
+    export_coco(project, before, states=None)  # every state, untouched frames included
     notes = mend_numbers(project)
     assert sorted(notes) == sorted([
         "frame 1: person 41: field bbox.2: dropped", "frame 1: person 41: field area: dropped",
@@ -315,7 +315,7 @@ def test_mend_replaces_them_for_good_and_the_export_does_not_change(project, tmp
     assert project.frame(1).state.value == "untouched"
     caplog.clear()
     after = tmp_path / "after.json"
-    export_coco(project, after)
+    export_coco(project, after, states=None)  # every state, untouched frames included
     assert not [r for r in caplog.records if r.levelname == "WARNING"]
     assert _strict(after.read_text()) == _strict(before.read_text())
     assert mend_numbers(project) == []
@@ -342,7 +342,7 @@ def test_crowd_annotations_become_ignore_regions_and_round_trip(project, coco_fi
     import_coco(project, path)
     assert project.regions(ds["images"][0]["id"])[0][1] == [[1, 1, 60, 1, 60, 50, 1, 50]]
     out = tmp_path / "out.json"
-    export_coco(project, out)
+    export_coco(project, out, states=None)  # every state, untouched frames included
     got = _load(out)
     assert sorted(got.pop("annotations"), key=lambda a: a["id"]) == \
         sorted(ds.pop("annotations"), key=lambda a: a["id"])
@@ -419,7 +419,7 @@ def test_random_malformed_input_never_crashes_and_never_half_imports(
             # Accepted whole: every person of the file is in, and it all exports.
             people = [a for a in ds["annotations"] if not a.get("iscrowd")]
             assert project.counts()["people"] == len(people)
-            export_coco(project, folder / "out.json")
+            export_coco(project, folder / "out.json", states=None)
             json.loads((folder / "out.json").read_text(), parse_constant=_refuse_constant)
 
 

@@ -105,7 +105,8 @@ def test_interpolation_matrix_agrees_with_scipy():
 @pytest.mark.parametrize("resize", ["letterbox", "stretch"])
 def test_resampling_to_the_frame_grid_agrees_with_scipy(resize):
     """Reference: scipy.ndimage.map_coordinates (bilinear, edge values kept) at the output
-    grid positions worked out by hand from DESIGN.md section 4 and the resize rule."""
+    grid positions worked out by hand from the grid of cell centres (DEVELOPERS.md,
+    "Conventions") and the resize rule."""
     rng = np.random.default_rng(5)
     cfg = _config(resize=resize)
     size, model_stride, map_stride = (203, 117), 4, 5

@@ -10,7 +10,7 @@ import pytest
 
 from app.errors import Cancelled, NotFound
 from app.formats.maps import read_maps
-from app.inference.prelabel import MAPS_FOLDER, parse_frames, prelabel
+from app.inference.prelabel import parse_frames, prelabel
 from app.jobs_analysis import load_maps
 from app.model import MoveJoint
 from app.progress import Progress
@@ -49,6 +49,7 @@ def _match(found, truth):
 def test_auto_labels_are_stored_with_scores_provenance_and_maps(setup):
     project, model, config, truth = setup
     stats = prelabel(project, model, config)
+    run = project.folder / json.loads(project.meta("last_prelabel"))["maps"]
     assert stats == {"people": 9, "frames": 3, "frames grouped": 3, "frames kept": 0,
                      "unreadable": 0}
     for f in project.frames():
@@ -61,7 +62,7 @@ def test_auto_labels_are_stored_with_scores_provenance_and_maps(setup):
             assert np.all((p.scores[:3] > 0.2) & (p.scores[:3] <= 1)) and np.isnan(p.scores[3])
             assert p.sources == ("auto",) * 4 and p.score == pytest.approx(p.scores[:3].mean())
         path, stride = project.maps_path(f.id)
-        assert path == project.folder / MAPS_FOLDER / f"{f.id}.npz" and stride == 8
+        assert path == run / f"{f.id}.npz" and stride == 8
         maps = read_maps(path, SK, (f.width, f.height))
         assert maps.confidence_maps.shape == (4, 15, 20)
         assert load_maps(project, f) is not None
@@ -71,8 +72,9 @@ def test_auto_labels_are_stored_with_scores_provenance_and_maps(setup):
     assert entry.kind == "import" and entry.summary == "pre-label with dots.onnx"
     record = json.loads(project.meta("last_prelabel"))
     assert record["config"]["stride"] == 4 and len(record["model_sha256"]) == 64
-    assert [p.name for p in (project.folder / MAPS_FOLDER).iterdir()] != []
-    assert not list((project.folder / MAPS_FOLDER).glob(".staging-*"))
+    assert run.parent == project.folder / "maps" and run.name.startswith("prelabel-")
+    assert list((project.folder / "maps").iterdir()) == [run]
+    assert sorted(p.name for p in run.glob("*.npz")) == ["1.npz", "2.npz", "3.npz"]
 
 
 def test_frames_with_people_keep_them_and_get_new_maps(setup):
@@ -115,12 +117,12 @@ def test_cancel_writes_nothing(setup):
     assert _state(project) == before
 
 
-def test_a_failure_while_storing_restores_the_previous_maps(setup, monkeypatch):
-    """The maps files are swapped in inside the transaction; when the transaction fails the
-    previous files come back and the project is as it was."""
+def test_a_failure_while_storing_keeps_the_previous_maps(setup, monkeypatch):
+    """The new maps are written beside the previous run's; when the transaction that would
+    name them fails, they are removed and the project is as it was."""
     project, model, config, _ = setup
     prelabel(project, model, config, frames=[1])
-    path = project.folder / MAPS_FOLDER / "1.npz"
+    path, _ = project.maps_path(1)
     old = path.read_bytes()
     before = _state(project)
     other = _config(extra_scales=[1.5]).model_dump_json()

@@ -6,14 +6,17 @@ invented names.
 
 from __future__ import annotations
 
+import hashlib
+import json
 import zipfile
 from collections.abc import Callable, Sequence
 from pathlib import Path
+from typing import Any
 
 import pytest
 
 from app.jobs import import_coco
-from app.review.packet import export_packet
+from app.review.packet import LABELS, MANIFEST, export_packet
 from app.review.review import open_packet, return_packet, set_decision
 from app.store import Project
 
@@ -58,3 +61,21 @@ def rewrite(src: Path, dst: Path, change: Callable[[str, bytes], bytes | None],
         for info, data in extra:
             zout.writestr(info, data)
     return dst
+
+
+def rewrite_json(src: Path, dst: Path, member: str, change: Callable[[Any], None]) -> Path:
+    """Copy a packet with ``change`` applied to the parsed JSON ``member``, its SHA-256 in the
+    manifest (and a return's ``base_sha256``) updated to match: a packet crafted by someone
+    who knows the format, which only the checks of the content can refuse."""
+    with zipfile.ZipFile(src) as z:
+        manifest = json.loads(z.read(MANIFEST))
+        data = manifest if member == MANIFEST else json.loads(z.read(member))
+    change(data)
+    raw = json.dumps(data).encode()
+    if member != MANIFEST:
+        digest = hashlib.sha256(raw).hexdigest()
+        manifest["members"][member] = digest
+        if member == LABELS and manifest.get("returned"):
+            manifest["returned"]["base_sha256"] = digest
+    replaced = {member: raw, MANIFEST: json.dumps(manifest).encode()}
+    return rewrite(src, dst, lambda name, old: replaced.get(name, old))

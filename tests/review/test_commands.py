@@ -142,3 +142,58 @@ def test_packet_members_are_what_the_manifest_says(folder, tmp_path, capsys):
     with zipfile.ZipFile(packet) as z:
         manifest = json.loads(z.read("manifest.json"))
         assert set(z.namelist()) == {"manifest.json", *manifest["members"]}
+
+
+def test_the_reviewer_the_packet_names_is_credited_on_every_call(folder, tmp_path, capsys,
+                                                                 monkeypatch):
+    """Issue item 14: ``decide`` and ``return`` without ``--author`` credit the reviewer the
+    packet names on every call, not the login name ("root" here) after the first one."""
+    monkeypatch.delenv("POSEWRIGHT_AUTHOR", raising=False)
+    monkeypatch.setattr("getpass.getuser", lambda: "root")
+    packet = tmp_path / "rehearsal.zip"
+    assert _run(capsys, "packet", "export", folder, "--frames", "100,107,114", "--out", packet,
+                "--images", "none", "--reviewer", "bea")[0] == 0
+    for frame, decision in ((100, "agree"), (107, "needs-change"), (114, "signed-off")):
+        assert _run(capsys, "packet", "decide", packet, "--frame", frame, "--decision",
+                    decision)[0] == 0
+    assert _run(capsys, "packet", "return", packet)[0] == 0
+    with Project.open(tmp_path / "rehearsal.review", read_only=True) as reviewed:
+        assert {e.author for e in reviewed.history()} == {"bea"}
+    returned = tmp_path / "rehearsal-returned.zip"
+    code, out, _ = _run(capsys, "packet", "show", returned, "--json")
+    info = json.loads(out)
+    assert code == 0 and info["returned_by"] == "bea"
+    code, out, _ = _run(capsys, "packet", "merge", folder, returned)
+    assert code == 0 and "from bea:" in out
+    with Project.open(folder, read_only=True) as p:
+        # every change the review brought is bea's; the merge itself is the merger's act
+        merged = [e for e in p.history() if e.kind not in ("import", "review")]
+        assert merged and {e.author for e in merged} == {"bea"}
+
+
+def test_a_later_call_naming_another_reviewer_is_refused(folder, tmp_path, capsys):
+    """One review folder, one reviewer: a second name would split the credit."""
+    packet = tmp_path / "p.zip"
+    assert _run(capsys, "packet", "export", folder, "--frames", "100", "--out", packet,
+                "--images", "none", "--reviewer", "bea")[0] == 0
+    assert _run(capsys, "packet", "decide", packet, "--frame", 100, "--decision", "agree")[0] == 0
+    code, _, err = _run(capsys, "packet", "return", packet, "--author", "cai")
+    assert code == 2 and "reviewed by bea" in _one_line(err)
+    assert not (tmp_path / "p-returned.zip").exists()
+
+
+def test_packet_lines_show_file_names_escaped(folder, tmp_path, capsys):
+    """Issue item 8: a returned packet saved under a name that holds an escape sequence
+    (ECMA-48 CSI "clear the screen"; synthetic) is merged and shown with the sequence as
+    text."""
+    packet = tmp_path / "p.zip"
+    assert _run(capsys, "packet", "export", folder, "--frames", "100", "--out", packet,
+                "--images", "none", "--reviewer", "bea")[0] == 0
+    returned = tmp_path / "p\x1b[2J-returned.zip"
+    assert _run(capsys, "packet", "return", packet, "--out", returned)[0] == 0
+    code, out, err = _run(capsys, "packet", "show", returned)
+    assert code == 0 and "\x1b" not in out + err and "returned_by: bea" in out
+    for merged in ("merged ", "already merged"):  # first merge, then the repeat
+        code, out, err = _run(capsys, "packet", "merge", folder, returned)
+        assert code == 0 and merged in out and "\x1b" not in out + err
+        assert "p\\x1b[2J-returned.zip" in out

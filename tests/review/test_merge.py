@@ -11,7 +11,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from app.errors import PosewrightError
+from app.errors import BadInput, PosewrightError
 from app.model.edits import (
     AddNote,
     DeletePerson,
@@ -253,6 +253,151 @@ def test_decisions_set_the_frame_state(labelled, tmp_path, decision, disputed, c
     report = merge_packet(labelled, review(packet, decisions={fid: decision}))
     assert labelled.frame(fid).state is state
     assert (fid in report.signed_off) is (state is FrameState.SIGNED_OFF)
+
+
+# ---------------------------------------------------------------------- returning again
+
+def _again(packet, edit=None, decisions=None, keep=None):
+    """The reviewer reopens the same packet, edits more and returns it again; ``keep`` saves
+    a copy of the return (the next one overwrites the file)."""
+    returned = review(packet, edit, decisions)
+    if keep is not None:
+        keep.write_bytes(returned.read_bytes())
+        return keep
+    return returned
+
+
+def test_a_later_return_by_the_same_reviewer_supersedes_the_earlier(labelled, tmp_path):
+    """Issue item 5: bea's second return moves a joint she moved in her first, merged return,
+    and adds an edit: both are taken, nothing is disputed. The base of her second return is
+    her first, as merged (the usual rule of repeated merges in version control: the base
+    moves to what was merged; common practice, no source)."""
+    fid, people = _first(labelled)
+    pid = people[0].id
+    packet = send(labelled, tmp_path / "p.zip")
+    first = merge_packet(labelled, _again(packet, lambda r: r.apply(
+        MoveJoint(fid, pid, 7, 90.0, 90.0)), keep=tmp_path / "first.zip"))
+    assert first.joints_taken == 1 and first.conflicts == []
+
+    def more(r):
+        r.apply(MoveJoint(fid, pid, 7, 95.0, 96.0))
+        r.apply(MoveJoint(fid, pid, 8, 50.0, 51.0))
+
+    second = merge_packet(labelled, _again(packet, more))
+    assert second.conflicts == [] and second.joints_taken == 2
+    now = _labels(labelled, fid)[pid]
+    assert _joint(now, 7) == [95.0, 96.0, 2] and _joint(now, 8) == [50.0, 51.0, 2]
+    assert labelled.frame(fid).state is FrameState.CORRECTED
+    # merging the first return again is the repeat it is: nothing changes
+    assert merge_packet(labelled, tmp_path / "first.zip").already_merged
+
+
+def test_an_older_return_arriving_after_a_newer_one_is_refused(labelled, tmp_path):
+    fid, people = _first(labelled)
+    pid = people[0].id
+    packet = send(labelled, tmp_path / "p.zip")
+    older = _again(packet, lambda r: r.apply(MoveJoint(fid, pid, 7, 90.0, 90.0)),
+                   keep=tmp_path / "older.zip")
+    merge_packet(labelled, _again(packet, lambda r: r.apply(MoveJoint(fid, pid, 7, 95.0,
+                                                                      95.0))))
+    ledger = len(labelled.history())
+    with pytest.raises(BadInput, match=r"their newer return, merged on .*, supersedes it"):
+        merge_packet(labelled, older)
+    assert len(labelled.history()) == ledger
+    assert _joint(_labels(labelled, fid)[pid], 7) == [95.0, 95.0, 2]
+
+
+def test_a_change_made_here_between_two_returns_still_conflicts(labelled, tmp_path):
+    """Issue item 5: what we changed at home after merging bea's first return meets her
+    second return as "ours" against "theirs"; a joint she left alone since keeps ours."""
+    fid, people = _first(labelled)
+    pid = people[0].id
+    packet = send(labelled, tmp_path / "p.zip")
+
+    def first(r):
+        r.apply(MoveJoint(fid, pid, 7, 90.0, 90.0))
+        r.apply(MoveJoint(fid, pid, 9, 70.0, 70.0))
+
+    merge_packet(labelled, _again(packet, first))
+    labelled.apply(MoveJoint(fid, pid, 7, 10.0, 10.0))  # at home, after the first merge
+    labelled.apply(MoveJoint(fid, pid, 9, 11.0, 11.0))
+    report = merge_packet(labelled, _again(packet, lambda r: r.apply(
+        MoveJoint(fid, pid, 7, 95.0, 95.0))))
+    assert report.conflicts == [{"frame": fid, "person": pid, "kind": "joints", "joints": [7]}]
+    assert labelled.frame(fid).state is FrameState.DISPUTED
+    now = _labels(labelled, fid)[pid]
+    assert _joint(now, 7) == [10.0, 10.0, 2] and _joint(now, 9) == [11.0, 11.0, 2]
+    (diff,) = differences(labelled, fid)
+    assert [(d.joint, d.theirs) for d in diff.joints] == [(7, (95.0, 95.0, 2))]
+
+
+def test_a_person_the_reviewer_added_is_edited_by_the_next_return(labelled, tmp_path):
+    """The person bea added comes over with a new id once; her later edit of that person
+    lands on it, with no second copy and no conflict."""
+    fid, people = _first(labelled)
+    packet = send(labelled, tmp_path / "p.zip")
+    added = {}
+
+    def add(r):
+        made = r.apply(NewPerson(fid, keypoints=tuple((60.0 + j, 70.0, 2) for j in range(17))))
+        added["id"] = made.edit.person_id
+
+    assert merge_packet(labelled, _again(packet, add)).people_added == 1
+    (home,) = {p.id for p in labelled.people(fid)} - {p.id for p in people}
+    second = merge_packet(labelled, _again(packet, lambda r: r.apply(
+        MoveJoint(fid, added["id"], 0, 5.0, 6.0))))
+    assert second.people_added == 0 and second.conflicts == [] and second.joints_taken == 1
+    assert {p.id for p in labelled.people(fid)} == {p.id for p in people} | {home}
+    assert _joint(_labels(labelled, fid)[home], 0) == [5.0, 6.0, 2]
+
+
+@pytest.mark.parametrize("then, disputed_joints", [
+    ("leaves it", [7]),          # her view stands: still disputed
+    ("agrees with ours", []),    # she withdrew it
+    ("insists anew", [7]),       # a new position of hers: disputed against it
+])
+def test_an_open_dispute_follows_the_reviewers_latest_word(labelled, tmp_path, then,
+                                                           disputed_joints):
+    fid, people = _first(labelled)
+    pid = people[0].id
+    packet = send(labelled, tmp_path / "p.zip")
+    labelled.apply(MoveJoint(fid, pid, 7, 10.0, 10.0))
+    first = merge_packet(labelled, _again(packet, lambda r: r.apply(
+        MoveJoint(fid, pid, 7, 90.0, 90.0))))
+    assert [c["joints"] for c in first.conflicts] == [[7]]
+    position = {"leaves it": None, "agrees with ours": (10.0, 10.0),
+                "insists anew": (80.0, 80.0)}[then]
+
+    def second(r):
+        r.apply(MoveJoint(fid, pid, 8, 50.0, 50.0))
+        if position is not None:
+            r.apply(MoveJoint(fid, pid, 7, *position))
+
+    merge_packet(labelled, _again(packet, second))
+    assert _joint(_labels(labelled, fid)[pid], 8) == [50.0, 50.0, 2]
+    diffs = differences(labelled, fid)
+    assert [d.joint for diff in diffs for d in diff.joints] == disputed_joints
+    if then == "insists anew":
+        assert diffs[0].joints[0].theirs == (80.0, 80.0, 2)
+
+
+def test_a_settled_dispute_stays_settled_when_the_reviewer_returns_again(labelled, tmp_path):
+    """We kept ours on the joint bea disputed and settled the frame; her next return, which
+    does not touch that joint again, reopens nothing."""
+    from app.review.settle import keep_ours, settle_frame
+
+    fid, people = _first(labelled)
+    pid = people[0].id
+    packet = send(labelled, tmp_path / "p.zip")
+    labelled.apply(MoveJoint(fid, pid, 7, 10.0, 10.0))
+    merge_packet(labelled, _again(packet, lambda r: r.apply(
+        MoveJoint(fid, pid, 7, 90.0, 90.0))))
+    assert keep_ours(labelled, fid) == 1
+    settle_frame(labelled, fid)
+    report = merge_packet(labelled, _again(packet, lambda r: r.apply(
+        MoveJoint(fid, pid, 8, 50.0, 50.0))))
+    assert report.conflicts == [] and labelled.frame(fid).state is FrameState.CORRECTED
+    assert _joint(_labels(labelled, fid)[pid], 7) == [10.0, 10.0, 2]
 
 
 # ---------------------------------------------------------------------- pure plan properties

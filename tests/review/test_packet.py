@@ -11,7 +11,9 @@ from __future__ import annotations
 import hashlib
 import json
 import zipfile
+from collections.abc import Callable
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pytest
@@ -22,10 +24,10 @@ from app.model.edits import MoveJoint
 from app.review import safezip
 from app.review.blur import head_ellipses
 from app.review.merge import merge_packet
-from app.review.packet import read_packet, select_frames
+from app.review.packet import export_packet, read_packet, select_frames
 from app.review.review import open_packet, review_folder
 from app.store import Project
-from tests.review.conftest import rewrite, send
+from tests.review.conftest import rewrite, rewrite_json, send
 
 
 def test_manifest_lists_frames_base_revisions_and_member_hashes(labelled, tmp_path):
@@ -73,8 +75,10 @@ def test_open_builds_a_review_project_with_the_same_ids(labelled, tmp_path):
         image = decode_image(reviewed.image_path(reviewed.frame(f1.id)))
         assert image is not None and image.shape[:2] == (f1.height, f1.width)
         assert int(reviewed.meta("next_person_id") or 0) >= 1_000_000_000
-    with open_packet(path, reviewer="cleo") as again:  # reopened, not rebuilt
-        assert again.author == "cleo" and len(again.history()) == 1
+    with open_packet(path) as again:  # reopened, not rebuilt, for the same reviewer
+        assert again.author == "bea" and len(again.history()) == 1
+    with pytest.raises(BadInput, match="reviewed by bea, not cleo"):
+        open_packet(path, reviewer="cleo")
 
 
 def _valid(labelled: Project, tmp_path: Path) -> Path:
@@ -264,3 +268,156 @@ def test_hostile_json_is_refused_in_one_line(labelled, tmp_path, labels_text, wo
     with pytest.raises(BadInput, match=r"j.zip: member 'labels.json'") as exc:
         read_packet(bad)
     assert words in str(exc.value)
+
+
+# ---------------------------------------------------------------------- names from a packet
+
+#: An invented hostile name: retitles a terminal window, then clears the screen.
+_HOSTILE = "bea\x1b]0;owned\x07\x1b[2J"
+
+
+def _returned_with_everything(labelled: Project, tmp_path: Path) -> Path:
+    """A returned packet with a decision, a note and ledger rows (synthetic)."""
+    from app.model.edits import AddNote
+    from tests.review.conftest import review
+
+    fid = labelled.frames()[0].id
+    pid = labelled.people(fid)[0].id
+
+    def edit(r: Project) -> None:
+        r.apply(MoveJoint(fid, pid, 3, 20.0, 21.0))
+        r.apply(AddNote(fid, "the wrist is the neighbour's"))
+
+    return review(send(labelled, tmp_path / "p.zip"), edit, decisions={fid: "agree"})
+
+
+def _put(path: list[Any], value: Any) -> Callable[[Any], None]:
+    def change(data: Any) -> None:
+        for key in path[:-1]:
+            data = data[key]
+        data[path[-1]] = value
+    return change
+
+
+@pytest.mark.parametrize("member, path, value, words", [
+    ("manifest.json", ["reviewer"], _HOSTILE, "field reviewer: a name must be printable"),
+    ("manifest.json", ["exported_by"], _HOSTILE, "field exported_by: a name must be"),
+    ("manifest.json", ["returned", "reviewer"], _HOSTILE, "field returned.reviewer: a name"),
+    ("manifest.json", ["returned", "decisions", 0, "author"], "bea\u202egnp.exe",
+     "field returned.decisions.0.author: a name must be printable text; this one holds "
+     "\\u202e"),
+    ("manifest.json", ["reviewer"], "b" * 101, "a name must be at most 100 characters"),
+    ("manifest.json", ["returned", "reviewer"], "", "field returned.reviewer"),
+    ("manifest.json", ["packet_id"], "p\x1b[2J", "field packet_id"),
+    ("returned.json", ["ledger", 0, "author"], _HOSTILE, "field ledger.0.author: a name"),
+    ("returned.json", ["frames", 0, "notes", 0, "author"], _HOSTILE,
+     "field frames.0.notes.0.author: a name"),
+    ("returned.json", ["frames", 0, "people", 0, "sources", 3], _HOSTILE,
+     "field frames.0.people.0.sources.3: a name"),
+    ("labels.json", ["frames", 0, "people", 0, "sources", 0], "x\ny",
+     "this one holds \\n"),
+])
+def test_names_that_are_not_printable_text_are_refused_on_reading(labelled, tmp_path, member,
+                                                                 path, value, words):
+    """Issue item 8: a name read from a packet (exporter, reviewer, decision, note and ledger
+    authors, joint provenance) is printable text of at most 100 characters, else the packet
+    is refused in one line that shows the offending character escaped and nothing changes.
+    "Printable" is Python's str.isprintable (Unicode categories Other and Separator are not;
+    U+202E is the right-to-left override, category Cf); the bound is our own choice."""
+    returned = _returned_with_everything(labelled, tmp_path)
+    bad = rewrite_json(returned, tmp_path / "bad-returned.zip", member, _put(path, value))
+    ledger = len(labelled.history())
+    with pytest.raises(BadInput) as exc:
+        merge_packet(labelled, bad)
+    message = str(exc.value)
+    assert words in message and "bad-returned.zip" in message
+    assert message.isprintable()
+    assert len(labelled.history()) == ledger
+
+
+def test_an_exported_packet_never_names_someone_it_would_refuse(labelled, tmp_path):
+    """The same rule at the writing end: nothing is written for a name a reader refuses."""
+    frames = labelled.frames()[:1]
+    with pytest.raises(BadInput, match="--reviewer: a name must be printable"):
+        export_packet(labelled, tmp_path / "p.zip", frames, images="none", reviewer=_HOSTILE)
+    assert not (tmp_path / "p.zip").exists()
+    with Project.open(labelled.folder, author=_HOSTILE, read_only=True) as shared, \
+            pytest.raises(BadInput, match="--author: a name must be printable"):
+        export_packet(shared, tmp_path / "p.zip", frames, images="none")
+    assert not (tmp_path / "p.zip").exists()
+
+
+# ---------------------------------------------------------------------- which images travel
+
+def _images_in(path: Path) -> set[str]:
+    with zipfile.ZipFile(path) as z:
+        return {n for n in z.namelist() if n.startswith("images/")}
+
+
+@pytest.fixture
+def linked(tmp_path):
+    """A project over synthetic images where frame 2 is a link to a decodable image outside
+    the images folder, frame 3 a link to another image inside it, frame 4 an unreadable file
+    (registered and marked), and frame 5 decoded fine when registered but not any more."""
+    import cv2
+
+    from tests import synthetic
+
+    images = tmp_path / "images"
+    synthetic.write_images(images, 6)
+    private = tmp_path / "private"
+    private.mkdir()
+    cv2.imwrite(str(private / "someone.png"), np.full((24, 32, 3), 200, np.uint8))
+    (images / "frame_0001.jpg").unlink()
+    (images / "frame_0001.jpg").symlink_to(private / "someone.png")
+    (images / "frame_0002.jpg").unlink()
+    (images / "frame_0002.jpg").symlink_to(images / "frame_0005.jpg")
+    (images / "frame_0003.jpg").write_bytes(b"\xff\xd8 not a JPEG after all")
+    project = Project.create(tmp_path / "proj", images=images, author="ana")
+    (images / "frame_0004.jpg").write_bytes(b"\xff\xd8 truncated since")
+    yield project
+    project.close()
+
+
+@pytest.mark.parametrize("mode", ["full", "blurred-heads"])
+def test_only_images_that_decode_inside_the_images_folder_travel(linked, tmp_path, mode):
+    """Issue item 9: no raw bytes of an unreadable or no longer decodable image, nothing a
+    link brings in from outside the images folder; a link that stays inside it is followed.
+    Synthetic images; the rule is our own."""
+    frames = linked.frames()
+    assert [f.status for f in frames] == ["ok", "ok", "ok", "corrupt", "ok", "ok"]
+    stats = export_packet(linked, tmp_path / "p.zip", frames, images=mode)
+    suffix = ".jpg" if mode == "full" else ".png"
+    assert _images_in(tmp_path / "p.zip") == {f"images/{f.id}{suffix}"
+                                              for f in frames if f.id in (1, 3, 6)}
+    assert stats["images"] == 3 and stats["missing_images"] == 2
+    assert stats["outside_images"] == 1
+    if mode == "full":
+        with zipfile.ZipFile(tmp_path / "p.zip") as z:
+            assert z.read("images/3.jpg") == (tmp_path / "images" / "frame_0005.jpg") \
+                .read_bytes()
+    manifest = read_packet(tmp_path / "p.zip").frames
+    assert [f.image is not None for f in manifest] == [True, False, True, False, False, True]
+
+
+def test_a_linked_images_folder_is_its_own_root(tmp_path):
+    """The images folder itself may be a link (footage kept on another disk): its images
+    travel."""
+    from tests import synthetic
+
+    synthetic.write_images(tmp_path / "disk" / "footage", 2)
+    (tmp_path / "images").symlink_to(tmp_path / "disk" / "footage")
+    with Project.create(tmp_path / "proj", images=tmp_path / "images", author="ana") as p:
+        stats = export_packet(p, tmp_path / "p.zip", p.frames(), images="full")
+    assert stats["images"] == 2 and stats["outside_images"] == 0
+
+
+def test_a_review_folder_from_before_names_were_recorded_keeps_its_reviewer(labelled,
+                                                                           tmp_path):
+    """A review folder built without the recorded name credits whoever it was built for
+    (the author of its first ledger entry), not the login name."""
+    path = send(labelled, tmp_path / "p.zip", images="none")
+    with open_packet(path) as reviewed, reviewed.bulk("Test", "forget the name", "test") as b:
+        b.execute("DELETE FROM meta WHERE key = 'review_reviewer'")
+    with open_packet(path) as again:
+        assert again.meta("review_reviewer") is None and again.author == "bea"

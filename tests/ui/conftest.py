@@ -28,6 +28,11 @@ TEMPLATE = np.array([
 #: apart that their joints never come within a click of each other's.
 PLACES = [(70.0, 220.0, 150.0), (160.0, 220.0, 150.0), (250.0, 220.0, 150.0)]
 
+#: The longest a UI test waits for work in the background (decoding, jobs, queued signals), in
+#: ms. A safety net only: every wait ends as soon as its condition holds, so a loaded machine
+#: makes a test slower, never red.
+WAIT_MS = 120_000
+
 #: Triage scores of frames 1..4 (None: frame 4 has no triage), so the Worklist order is 2, 3, 1, 4.
 SUSPICION = {1: 0.2, 2: 0.9, 3: 0.5}
 
@@ -96,20 +101,50 @@ def ui_project(tmp_path: Path):
     project.close()
 
 
+class StatusLog:
+    """Every message a window's status bar has shown, kept after the bar clears it.
+
+    A message times out after a few seconds, and on a loaded machine a test that waits for
+    background work can read the bar after that; the log does not forget.
+    ``"text" in log`` asks whether any message so far contained ``text``.
+    """
+
+    def __init__(self, window):
+        self.lines: list[str] = []
+        window.statusBar().messageChanged.connect(self._shown)
+
+    def _shown(self, text: str) -> None:
+        if text:
+            self.lines.append(text)
+
+    def __contains__(self, fragment: str) -> bool:
+        return any(fragment in line for line in self.lines)
+
+    def __repr__(self) -> str:
+        return f"StatusLog({self.lines!r})"
+
+    @property
+    def last(self) -> str:
+        """The latest message (even if the bar has cleared it since)."""
+        return self.lines[-1] if self.lines else ""
+
+
 def wait_for_image(qtbot, window) -> None:
     """Wait until the Canvas has painted the current frame's decoded image."""
     def painted() -> None:
         window.canvas.repaint()
         assert window.canvas.painted_frame == window.frame_id
 
-    qtbot.waitUntil(painted, timeout=10_000)
+    qtbot.waitUntil(painted, timeout=WAIT_MS)
 
 
-def show_window(qtbot, project: Project):
-    """A main window over ``project``, shown and active, its image painted."""
+def show_window(qtbot, project: Project, **options):
+    """A main window over ``project`` (``options`` go to the window), shown and active, its
+    image painted; ``window.status_log`` is its :class:`StatusLog`."""
     from app.ui.window import MainWindow
 
-    w = MainWindow(project)
+    w = MainWindow(project, **options)
+    w.status_log = StatusLog(w)
     qtbot.addWidget(w)
     w.resize(1200, 800)
     w.show()

@@ -13,6 +13,7 @@ import numpy as np
 from PySide6.QtCore import Qt, QThread
 
 from app.ui.images import Decoded, ImageCache, ImageLoader, decode_for_display, qimage_view
+from tests.ui.conftest import WAIT_MS
 
 
 def _item(i, w=100, h=10):
@@ -58,12 +59,12 @@ def test_loader_decodes_off_the_ui_thread_and_reports_missing(qtbot, tmp_path, m
     monkeypatch.setattr(images, "decode_image", spy)
     loader = ImageLoader(ImageCache())
     assert loader.request(1, tmp_path / "b.png") is None
-    with qtbot.waitSignal(loader.ready, timeout=5000) as got:
+    with qtbot.waitSignal(loader.ready, timeout=WAIT_MS) as got:
         pass
     assert got.args == [1]
     assert threads and threads[0] != threading.get_ident()
     assert loader.request(1, tmp_path / "b.png") is not None, "now served from the cache"
-    with qtbot.waitSignal(loader.failed, timeout=5000) as missing:
+    with qtbot.waitSignal(loader.failed, timeout=WAIT_MS) as missing:
         loader.request(2, tmp_path / "nope.png")
     assert missing.args == [2, "missing"]
     loader.shutdown()
@@ -73,7 +74,7 @@ def test_loader_decodes_off_the_ui_thread_and_reports_missing(qtbot, tmp_path, m
 def test_window_prefetches_the_next_frames(qtbot, window):
     ids = window.worklist.ordered_ids()
     qtbot.waitUntil(lambda: ids[1] in window.loader.cache and ids[2] in window.loader.cache,
-                    timeout=5000)
+                    timeout=WAIT_MS)
     qtbot.keyClick(window.canvas, Qt.Key.Key_Space)
     assert window.canvas.has_image, "a prefetched frame shows its image at once"
 
@@ -85,11 +86,11 @@ def test_urgent_frames_are_shrunk_quickly_then_refined(qtbot, tmp_path):
     cv2.imwrite(str(tmp_path / "c.png"), rng.integers(0, 255, (90, 160, 3), dtype=np.uint8))
     loader = ImageLoader(ImageCache())
     loader.display_scale = 0.6
-    with qtbot.waitSignal(loader.ready, timeout=5000):
+    with qtbot.waitSignal(loader.ready, timeout=WAIT_MS):
         loader.request(1, tmp_path / "c.png", urgent=True)
     quick = loader.cache.get(1)
     assert quick.scale == 0.6 and not quick.refined
-    with qtbot.waitSignal(loader.refined, timeout=5000):
+    with qtbot.waitSignal(loader.refined, timeout=WAIT_MS):
         loader.refine(1)
     better = loader.cache.get(1)
     assert better.refined and better.pixels is quick.pixels
@@ -101,32 +102,33 @@ def test_urgent_frames_are_shrunk_quickly_then_refined(qtbot, tmp_path):
 
 
 def test_an_urgent_frame_does_not_wait_behind_prefetches(qtbot, tmp_path, monkeypatch):
-    import time
-
+    """The one decoder is held busy on frame 1 until the urgent request is in (an event, not a
+    pause, so the outcome does not depend on the machine's load)."""
     import app.ui.images as images
 
     for i in range(1, 5):
         cv2.imwrite(str(tmp_path / f"{i}.png"), np.full((8, 8, 3), i, np.uint8))
     real = images.decode_image
-    started = threading.Event()
+    started, release = threading.Event(), threading.Event()
 
     def slow_first(path):
         if path.name == "1.png":
             started.set()
-            time.sleep(0.3)
+            release.wait(WAIT_MS / 1000)
         return real(path)
 
     monkeypatch.setattr(images, "decode_image", slow_first)
     loader = ImageLoader(ImageCache(), threads=1)
     for i in (1, 2, 3):
         loader.request(i, tmp_path / f"{i}.png")
-    assert started.wait(5)
+    assert started.wait(WAIT_MS / 1000)
     order = []
     loader.ready.connect(order.append)
-    with qtbot.waitSignal(loader.ready, timeout=5000, check_params_cb=lambda f: f == 4):
+    with qtbot.waitSignal(loader.ready, timeout=WAIT_MS, check_params_cb=lambda f: f == 4):
         loader.request(4, tmp_path / "4.png", urgent=True)
+        release.set()
     assert not loader.is_pending(2) and not loader.is_pending(3), "queued prefetches withdrawn"
     assert 2 not in order and 3 not in order
-    with qtbot.waitSignal(loader.ready, timeout=5000, check_params_cb=lambda f: f == 2):
+    with qtbot.waitSignal(loader.ready, timeout=WAIT_MS, check_params_cb=lambda f: f == 2):
         loader.request(2, tmp_path / "2.png")  # and can be asked for again
     loader.shutdown()

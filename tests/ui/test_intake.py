@@ -23,7 +23,7 @@ from app.ui.models import KeyRole
 from tests.formats.test_video import FPS, write_video
 from tests.inference.onnx_models import colour_dot_model
 from tests.inference.test_network import FIELDS, MAPS_FROM, SK, _config, _people_at
-from tests.ui.conftest import wait_for_image
+from tests.ui.conftest import WAIT_MS, show_window
 
 XS = ([30.3, 80.7, 131.2], [25.0, 95.0])
 
@@ -32,20 +32,6 @@ def _press(widget, name):
     from PySide6.QtTest import QTest
 
     QTest.keySequence(widget, sequences(next(k for k in KEYS if k.name == name))[0])
-
-
-def _open_window(qtbot, project):
-    from app.ui.window import MainWindow
-
-    window = MainWindow(project)
-    qtbot.addWidget(window)
-    window.resize(1200, 800)
-    window.show()
-    qtbot.waitExposed(window)
-    window.activateWindow()
-    wait_for_image(qtbot, window)
-    window.canvas.setFocus()
-    return window
 
 
 @pytest.fixture
@@ -61,7 +47,7 @@ def dots(qtbot, tmp_path):
     config = tmp_path / "dots-config.json"
     config.write_text(_config().model_dump_json())
     project = Project.create(tmp_path / "proj", images=images, skeleton=SK, author="ana")
-    window = _open_window(qtbot, project)
+    window = show_window(qtbot, project)
     yield window, project, model, config
     window.shutdown()
     project.close()
@@ -80,12 +66,11 @@ def test_prelabel_from_the_menu_runs_in_the_worker_and_fills_the_frames(qtbot, d
     window, project, model, config = dots
     dialog = _prelabel_form(window, model, config)
     dialog.accept()
-    qtbot.waitUntil(lambda: "pre-labelled" in window.statusBar().currentMessage(),
-                    timeout=20_000)
+    qtbot.waitUntil(lambda: "pre-labelled" in window.status_log, timeout=WAIT_MS)
     found = {f.file_name: len(project.people(f.id)) for f in project.frames()}
     assert found == {"f0.png": 3, "f1.png": 2}
     assert all(project.maps_path(f.id) is not None for f in project.frames())
-    assert "5 people found" in window.statusBar().currentMessage()
+    assert "5 people found" in window.status_log
     assert len(window.canvas.people) == found[window.canvas.frame.file_name], \
         "the Canvas shows the new people"
 
@@ -103,7 +88,7 @@ def test_a_model_that_does_not_fit_its_config_says_so_and_changes_nothing(qtbot,
         boxes = [b for b in window.findChildren(QMessageBox) if b.isVisible()]
         assert boxes and "no output 'maps'" in boxes[0].text()
 
-    qtbot.waitUntil(error_shown, timeout=20_000)
+    qtbot.waitUntil(error_shown, timeout=WAIT_MS)
     assert project.counts() == before
     assert not (project.folder / "maps").exists()
 
@@ -124,13 +109,13 @@ def test_add_video_frames_with_their_index_and_time(qtbot, window, ui_project, t
     dialog.video.set_text(str(video))
     dialog.every.setValue(3)
     dialog.accept()
-    qtbot.waitUntil(lambda: len(ui_project.frames()) == before + 4, timeout=20_000)
+    qtbot.waitUntil(lambda: len(ui_project.frames()) == before + 4, timeout=WAIT_MS)
     added = [f for f in ui_project.frames() if f.video_index is not None]
     assert [f.video_index for f in added] == [0, 3, 6, 9]
     assert [f.timestamp for f in added] == pytest.approx([i / FPS for i in (0, 3, 6, 9)])
 
     third = added[1]
-    qtbot.waitUntil(lambda: window.frame_id == added[0].id, timeout=5000)
+    qtbot.waitUntil(lambda: window.frame_id == added[0].id, timeout=WAIT_MS)
     window.show_frame(third.id)
     assert "video frame 3 at 0:00.30" in window.status_frame.text()
     model = window.worklist_model
@@ -161,9 +146,8 @@ def test_add_images_of_a_folder(qtbot, window, ui_project, tmp_path, monkeypatch
     synthetic.write_images(folder, 2)
     before = len(ui_project.frames())
     monkeypatch.setattr(QFileDialog, "getExistingDirectory", lambda *a, **k: str(folder))
-    messages = []  # every message shown, however soon the status bar clears it again
-    window.statusBar().messageChanged.connect(messages.append)
     _press(window.canvas, "add_images")
-    qtbot.waitUntil(lambda: len(ui_project.frames()) == before + 2, timeout=20_000)
-    qtbot.waitUntil(lambda: window.worklist_model.rowCount() == before + 2, timeout=5000)
-    qtbot.waitUntil(lambda: any("added 2 frames" in m for m in messages), timeout=5000)
+    qtbot.waitUntil(lambda: len(ui_project.frames()) == before + 2, timeout=WAIT_MS)
+    qtbot.waitUntil(lambda: window.worklist_model.rowCount() == before + 2, timeout=WAIT_MS)
+    # The report comes when the job ends, after the Worklist heard of the frames.
+    qtbot.waitUntil(lambda: "added 2 frames" in window.status_log, timeout=WAIT_MS)

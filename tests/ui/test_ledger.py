@@ -13,7 +13,7 @@ from PySide6.QtCore import Qt
 from PySide6.QtGui import QKeySequence
 from PySide6.QtTest import QTest
 
-from tests.ui.conftest import person_id, screen_point
+from tests.ui.conftest import WAIT_MS, person_id, screen_point
 
 
 def _kp(project, frame_id, pid):
@@ -88,7 +88,7 @@ def test_whole_project_scope_lists_every_frame(qtbot, window):
     qtbot.keyClick(window.canvas, Qt.Key.Key_O)
     qtbot.keyClick(window.canvas, Qt.Key.Key_Space)
     # The Ledger follows the Canvas to the new frame a moment later.
-    qtbot.waitUntil(lambda: window.ledger_model.rowCount() == 0, timeout=3000)
+    qtbot.waitUntil(lambda: window.ledger_model.rowCount() == 0, timeout=WAIT_MS)
     window.ledger.scope.setCurrentIndex(1)
     rows = [window.ledger_model.index(r, 3).data() for r in range(window.ledger_model.rowCount())]
     assert rows[0] == f"mark joint 9 of person {pid} occluded"

@@ -4,7 +4,7 @@ Sources: the palette is Okabe and Ito (2008), "Color Universal Design (CUD): How
 figures and presentations that are friendly to colorblind people", J*Fly (RGB values from
 memory of the paper's table). Contrast follows the WCAG 2.1 definitions of relative luminance
 and contrast ratio (W3C); the grey #767676 at 4.54:1 on white is WebAIM's often-quoted lightest
-AA grey (from memory). Label coordinates are pixel centres (DESIGN.md section 3). Data: the
+AA grey (from memory). Label coordinates are pixel centres (app/model/labels.py). Data: the
 synthetic project of tests/ui/conftest.py and synthetic people made here (invented for these
 tests).
 """

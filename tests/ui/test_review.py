@@ -4,8 +4,8 @@ decisions by key, the packet returned) and settling a disputed frame joint by jo
 
 Data: the synthetic project of tests/ui/conftest.py (invented for these tests); the reviewer
 "bea" is an invented name. Disputes are built through the real back end (export, review,
-return, merge: app/review). The merge rules are our own (DESIGN.md section 8: three ways per
-joint); no outside source.
+return, merge: app/review). The merge rules are our own (three ways per joint, README
+"Commands" and app/review/merge.py); no outside source.
 """
 
 from __future__ import annotations
@@ -25,7 +25,7 @@ from app.review.packet import export_packet, read_packet
 from app.review.review import decisions, open_packet, return_packet, review_folder
 from app.review.settle import differences
 from app.ui.keys import KEYS, sequences
-from tests.ui.conftest import person_id, wait_for_image
+from tests.ui.conftest import WAIT_MS, person_id, show_window
 
 #: The reviewer's and our moves of person B's wrists (joints 9 and 10), image pixels.
 THEIRS = {9: (6.0, -4.0), 10: (-5.0, 7.0)}
@@ -67,8 +67,7 @@ def dispute(qtbot, window, ui_project, tmp_path, monkeypatch):
 
     monkeypatch.setattr(QFileDialog, "getOpenFileName", lambda *a, **k: (str(returned), ""))
     _press(window.canvas, "merge_packet")
-    qtbot.waitUntil(lambda: "merged the review by bea" in window.statusBar().currentMessage(),
-                    timeout=10_000)
+    qtbot.waitUntil(lambda: "merged the review by bea" in window.status_log, timeout=WAIT_MS)
     _close_boxes(window)
     assert window.dispute is not None
     assert ui_project.frame(fid).state is FrameState.DISPUTED
@@ -164,7 +163,7 @@ def test_a_person_the_reviewer_deleted_is_taken_whole(qtbot, window, ui_project,
     assert "deleted" in window.owners.selection.text()
     qtbot.keyClick(canvas, Qt.Key.Key_A)
     assert c in {p.id for p in ui_project.people(fid)}
-    assert "take the whole person" in window.statusBar().currentMessage()
+    assert "take the whole person" in window.status_log.last
     qtbot.keyClick(canvas, Qt.Key.Key_A, Qt.KeyboardModifier.ShiftModifier)
     assert c not in {p.id for p in ui_project.people(fid)} and window.dispute is None
     QTest.keySequence(canvas, QKeySequence(QKeySequence.StandardKey.Undo))
@@ -177,7 +176,7 @@ def test_the_reviewer_version_is_not_edited(qtbot, dispute, ui_project):
     qtbot.keyClick(window.canvas, Qt.Key.Key_B)
     qtbot.keyClick(window.canvas, Qt.Key.Key_U)  # mark unlabeled: refused while theirs shows
     np.testing.assert_array_equal(_kp(ui_project, fid, b), before)
-    assert "B goes back to ours" in window.statusBar().currentMessage()
+    assert "B goes back to ours" in window.status_log.last
 
 
 def test_send_frames_for_review_from_the_project_menu(qtbot, window, ui_project, tmp_path):
@@ -190,8 +189,8 @@ def test_send_frames_for_review_from_the_project_menu(qtbot, window, ui_project,
     dialog.reviewer.setText("bea")
     dialog.out.set_text(str(out))
     dialog.accept()
-    qtbot.waitUntil(out.exists, timeout=10_000)
-    qtbot.waitUntil(lambda: "wrote" in window.statusBar().currentMessage(), timeout=5000)
+    qtbot.waitUntil(out.exists, timeout=WAIT_MS)
+    qtbot.waitUntil(lambda: "wrote" in window.status_log, timeout=WAIT_MS)
     packet = read_packet(out)
     assert [f.id for f in packet.frames] == [window.frame_id] and packet.reviewer == "bea"
     _close_boxes(window)
@@ -205,15 +204,8 @@ def test_review_mode_opens_a_zip_decides_and_returns_it(qtbot, ui_project, tmp_p
     assert main(["open", str(packet), "--author", "bea", "--screenshot", str(shot)]) == 0
     assert shot.exists() and (review_folder(packet) / "project.db").exists()
 
-    from app.ui.window import MainWindow
-
     project = open_packet(packet, reviewer="bea")
-    window = MainWindow(project, owns_project=True)
-    qtbot.addWidget(window)
-    window.resize(1200, 800)
-    window.show()
-    qtbot.waitExposed(window)
-    wait_for_image(qtbot, window)
+    window = show_window(qtbot, project, owns_project=True)
     try:
         canvas, fid = window.canvas, window.frame_id
         assert window.review_mode and window.strips["review"].isVisible()
@@ -233,9 +225,8 @@ def test_review_mode_opens_a_zip_decides_and_returns_it(qtbot, ui_project, tmp_p
 
         _press(canvas, "return_packet")
         returned = tmp_path / "rehearsal-returned.zip"
-        qtbot.waitUntil(returned.exists, timeout=10_000)
-        qtbot.waitUntil(lambda: str(returned) in window.statusBar().currentMessage(),
-                        timeout=5000)
+        qtbot.waitUntil(returned.exists, timeout=WAIT_MS)
+        qtbot.waitUntil(lambda: str(returned) in window.status_log, timeout=WAIT_MS)
         back = read_packet(returned, returned=True)
         assert back.returned.reviewer == "bea"
         assert back.returned.decisions[fid].decision == "needs-change"

@@ -10,7 +10,7 @@ from __future__ import annotations
 from PySide6.QtCore import Qt
 
 from app.model.labels import FrameState
-from tests.ui.conftest import person_id, screen_point
+from tests.ui.conftest import WAIT_MS, person_id, screen_point
 
 
 def test_frames_are_ordered_by_suspicion(window):
@@ -80,7 +80,7 @@ def test_filter_by_state_and_by_reason(qtbot, window, ui_project):
 
 def test_triage_results_arriving_reorder_the_worklist(qtbot, window, ui_project):
     ui_project.store_triage({4: (5.0, [])})
-    qtbot.waitUntil(lambda: window.worklist.ordered_ids()[0] == 4, timeout=3000)
+    qtbot.waitUntil(lambda: window.worklist.ordered_ids()[0] == 4, timeout=WAIT_MS)
     assert window.frame_id == 2, "the current frame stays"
 
 
