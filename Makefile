@@ -35,7 +35,7 @@ else
 endif
 
 test: $(TEST_STAMP)
-	QT_QPA_PLATFORM=offscreen $(BIN)/python -m pytest
+	QT_QPA_PLATFORM=offscreen $(BIN)/python -m pytest -n auto
 
 bench: $(TEST_STAMP)
 	QT_QPA_PLATFORM=offscreen $(BIN)/python -m tests.benchmarks.run
