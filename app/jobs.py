@@ -1,6 +1,6 @@
 """Whole jobs shared by the command line and the app: make a project and register its images
 or video frames (intake), open (building a project from its sources when needed), import and
-export labels.
+export labels, mend numbers JSON cannot hold.
 
 Each job takes an optional :class:`~app.progress.Progress` so the app can show progress and
 cancel it from a worker thread; every job that writes is all-or-nothing.
@@ -22,18 +22,21 @@ import tempfile
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import Any
+from typing import Any, ClassVar
 
 from app.errors import BadInput
-from app.fileio import read_json, write_json_atomic
+from app.fileio import json_ready, read_json, write_json_atomic
 from app.formats import coco
 from app.formats.images import ImageInfo, find_images, probe_image
 from app.formats.video import extract_frames, probe_video
-from app.model.labels import Frame, FrameState
+from app.model.edits import Change, Restore
+from app.model.labels import Frame, FrameState, Region
 from app.model.skeleton import Skeleton, skeleton_from_dict
+from app.model.targets import PersonTarget, RegionTarget
 from app.progress import Progress
 from app.store import NewFrame
 from app.store.project import DB_NAME, VIDEO_FRAMES, Project, relative_path
+from app.wording import count
 
 log = logging.getLogger(__name__)
 
@@ -143,7 +146,8 @@ def _probe_all(paths: Sequence[Path], progress: Progress | None) -> list[ImageIn
         progress.step(i, len(paths), "reading images")
         info = probe_image(p)
         if info.status != "ok":
-            log.warning("image %s is %s (%s); registered and marked", p, info.status, info.reason)
+            log.warning("%s: image is %s (%s); registered and marked", p, info.status,
+                        info.reason)
         infos.append(info)
     progress.step(len(paths), len(paths), "reading images")
     return infos
@@ -297,9 +301,9 @@ and 1 disputed frame: labels nobody has checked or still in dispute']
     lines = []
     if counts.get("unreadable"):
         n = counts["unreadable"]
-        lines.append(f"{_count(n, 'frame')} not exported: "
+        lines.append(f"{count(n, 'frames')} not exported: "
                      + ("its image cannot be read" if n == 1 else "their images cannot be read"))
-    held = [_count(counts[k], f"{k} frame") for k in ("untouched", "disputed") if counts.get(k)]
+    held = [count(counts[k], f"{k} frames") for k in ("untouched", "disputed") if counts.get(k)]
     if held:
         lines.append("the export holds " + " and ".join(held)
                      + ": labels nobody has checked or still in dispute")
@@ -315,11 +319,7 @@ def left_out_note(counts: Mapping[str, int]) -> str:
     '3 frames left out by their state'
     """
     n = counts.get("left_out", 0)
-    return f"{_count(n, 'frame')} left out by their state" if n else ""
-
-
-def _count(n: int, what: str) -> str:
-    return f"{n} {what}" + ("" if n == 1 else "s")
+    return f"{count(n, 'frames')} left out by their state" if n else ""
 
 
 def export_coco(project: Project, out: str | Path,
@@ -340,6 +340,12 @@ def export_coco(project: Project, out: str | Path,
     -------
     dict
         ``images`` and ``people`` written, and :meth:`ExportChoice.counts`.
+
+    Notes
+    -----
+    A non-finite number kept from an import made before such numbers were refused is written
+    as :func:`app.formats.coco.json_ready_dataset` says, with a warning naming the record and
+    how to mend the project (:func:`mend_numbers`).
     """
     choice = choose_frames(project, states)
     frames = choice.frames
@@ -352,9 +358,89 @@ def export_coco(project: Project, out: str | Path,
         image_extra=project.frame_extras(),
         dataset_extra=json.loads(project.meta("coco_dataset_extra") or "{}"),
     )
+    dataset, notes = coco.json_ready_dataset(dataset)
+    for note in notes:
+        log.warning("%s: %s; `posewright mend %s` mends the project", out, note, project.folder)
     write_json_atomic(out, dataset)
     n_people = sum(len(people.get(f.id, ())) for f in frames)
     return {"images": len(frames), "people": n_people, **choice.counts()}
+
+
+@dataclass(frozen=True)
+class MendNumbers(Restore):
+    """Replace non-finite numbers in the fields a person or region keeps from an import: an
+    undoable edit that leaves the frame's state alone (no label a person drew changes)."""
+
+    changes_labels: ClassVar[bool] = False
+    label: str = "mend numbers that JSON cannot hold"
+
+
+def mend_numbers(project: Project) -> list[str]:
+    """Replace the NaN and infinite numbers that the project keeps from an import made before
+    they were refused, so that exports write what the project holds.
+
+    A person's ``bbox`` or ``area`` that is not finite is dropped, so exports compute it from
+    the joints (as for a person that did not come from a file); any other such field of a
+    person, crowd region, image, category or the dataset becomes ``null``. People and regions
+    are mended by one undoable :class:`MendNumbers` edit per frame, the image, category and
+    dataset fields in one transaction with one ``MendNumbers`` ledger entry. Running it again
+    finds nothing to do.
+
+    Returns
+    -------
+    list of str
+        One line per field mended, e.g. ``frame 100: person 5002: field area: dropped``.
+    """
+    notes: list[str] = []
+    edits: dict[int, list[Change]] = {}
+    for frame_id, persons in project.people_by_frame().items():
+        for p in persons:
+            extra, found = json_ready(dict(p.extra))
+            for path in found:
+                if path[0] in ("bbox", "area"):
+                    extra.pop(path[0], None)
+                notes.append(f"frame {frame_id}: person {p.id}: {_field(path)}: "
+                             + ("dropped" if path[0] in ("bbox", "area") else "null"))
+            if found:
+                edits.setdefault(frame_id, []).append(Change(
+                    PersonTarget(p.id), p.to_value(), replace(p, extra=extra).to_value()))
+    for frame_id, rows in project.regions_by_frame().items():
+        for rid, polygons, extra in rows:
+            clean, found = json_ready(extra)
+            notes += [f"frame {frame_id}: region {rid}: {_field(path)}: null"
+                      for path in found]
+            if found:
+                before = Region(rid, frame_id, polygons, extra).to_value()
+                edits.setdefault(frame_id, []).append(Change(
+                    RegionTarget(rid), before, {**before, "extra": clean}))
+    for frame_id, changes in sorted(edits.items()):
+        project.apply(MendNumbers(frame_id, tuple(changes)))
+    in_edits = len(notes)
+    frames: dict[int, dict[str, Any]] = {}
+    for frame_id, extra in project.frame_extras().items():
+        clean, found = json_ready(extra)
+        if found:
+            frames[frame_id] = clean
+            notes += [f"image {frame_id}: {_field(path)}: null" for path in found]
+    meta: dict[str, str] = {}
+    for key, name in (("coco_category", "category"), ("coco_dataset_extra", "dataset")):
+        value = json.loads(project.meta(key) or "null")
+        clean, found = json_ready(value)
+        if found:
+            meta[key] = json.dumps(clean)
+            notes += [f"{name}: {_field(path)}: null" for path in found]
+    if frames or meta:
+        with project.bulk("MendNumbers", "mend numbers that JSON cannot hold", "project") as b:
+            for frame_id, extra in frames.items():
+                b.set_frame_extra(frame_id, extra)
+            for key, text in meta.items():
+                b.set_meta(key, text)
+            b.count("fields mended", len(notes) - in_edits)
+    return notes
+
+
+def _field(path: Sequence[str | int]) -> str:
+    return "field " + ".".join(str(p) for p in path)
 
 
 def summary(project: Project) -> dict[str, Any]:

@@ -30,10 +30,14 @@ from app.model.targets import (
     KeptTarget,
     NoteTarget,
     PersonTarget,
+    RecordTarget,
     RegionTarget,
     StateTarget,
     Target,
 )
+
+TARGET_TYPES = (PersonTarget, JointTarget, StateTarget, NoteTarget, RegionTarget, KeptTarget,
+                RecordTarget)
 
 
 @dataclass(frozen=True)
@@ -43,6 +47,11 @@ class Change:
     target: Target
     before: Any
     after: Any
+
+    def __post_init__(self) -> None:
+        if not isinstance(self.target, TARGET_TYPES):
+            raise TypeError(f"a change's target must be one of app.model.targets' types, "
+                            f"not {self.target!r}")
 
     def inverted(self) -> Change:
         return Change(self.target, self.after, self.before)

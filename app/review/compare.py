@@ -15,7 +15,6 @@ from __future__ import annotations
 
 import csv
 import io
-import json
 import math
 from collections.abc import Mapping, Sequence
 from dataclasses import asdict, dataclass, field
@@ -26,7 +25,7 @@ import numpy as np
 
 from app.analysis.similarity import match_people, person_area
 from app.errors import BadInput, NotFound
-from app.fileio import atomic_write
+from app.fileio import atomic_write, read_json
 from app.formats.coco import read_coco
 from app.model.edits import AddNote, SetFrameState
 from app.model.labels import Frame, FrameState, Person
@@ -76,12 +75,7 @@ def load_labels(path: str | Path, skeleton: Skeleton | None = None) -> LabelSet:
                         for f in project.frames()}
             return LabelSet(str(path), "project", project.skeleton, labelled)
     where = str(path)
-    try:
-        data = json.loads(path.read_bytes())
-    except OSError as exc:
-        raise BadInput(f"cannot read the file ({exc.strerror})", where=where) from None
-    except ValueError as exc:
-        raise BadInput(f"not valid JSON ({exc})", where=where) from None
+    data = read_json(path)
     if not (isinstance(data, dict) and isinstance(data.get("images"), list)):
         raise BadInput("not a COCO keypoints dataset (images, annotations, categories)",
                        where=where, hint="compare needs file names; a results list has none")

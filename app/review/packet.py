@@ -65,7 +65,7 @@ from pydantic import (
 from pydantic_core import PydanticCustomError
 
 from app.errors import BadInput, NotFound
-from app.fileio import atomic_write
+from app.fileio import MAX_ID, JsonId, atomic_write, describe, json_ready, parse_json
 from app.formats.images import IMAGE_SUFFIXES, MAX_SIDE, read_image
 from app.model.labels import Frame, FrameState, Note, Person
 from app.model.records import FrameDecision, PacketRecord
@@ -196,17 +196,17 @@ Ident = Annotated[StrictStr, Field(pattern=r"^[0-9A-Za-z._-]{1,64}$")]
 
 
 class _FrameModel(_Strict):
-    id: StrictInt
+    id: JsonId
     file_name: StrictStr = Field(min_length=1)
     width: StrictInt = Field(ge=0, le=MAX_SIDE)
     height: StrictInt = Field(ge=0, le=MAX_SIDE)
     state: StrictStr
-    base_seq: StrictInt = Field(ge=0)
+    base_seq: StrictInt = Field(ge=0, le=MAX_ID)
     image: StrictStr | None
 
 
 class _DecisionModel(_Strict):
-    frame: StrictInt
+    frame: JsonId
     decision: Decision
     author: Someone
     time: Number
@@ -235,7 +235,7 @@ class _ManifestModel(_Strict):
 
 
 class _PersonModel(_Strict):
-    id: StrictInt
+    id: JsonId
     keypoints: list[tuple[Number | None, Number | None, StrictInt]]
     scores: list[Number | None]
     sources: list[Name]
@@ -244,33 +244,33 @@ class _PersonModel(_Strict):
 
 
 class _NoteModel(_Strict):
-    id: StrictInt
+    id: JsonId
     author: Name
     time: Number
     text: StrictStr
-    person: StrictInt | None = None
+    person: JsonId | None = None
 
 
 class _FrameLabelsModel(_Strict):
-    id: StrictInt
+    id: JsonId
     people: list[_PersonModel]
     notes: list[_NoteModel]
     state: StrictStr | None = None
 
 
 class _LedgerRowModel(_Strict):
-    seq: StrictInt
-    group_id: StrictInt
+    seq: JsonId
+    group_id: JsonId
     kind: StrictStr
     action: StrictStr
     summary: StrictStr
     author: Someone
     time: Number
-    frame_id: StrictInt | None
+    frame_id: JsonId | None
     target: StrictStr
     before: Any = None
     after: Any = None
-    reverts: StrictInt | None = None
+    reverts: JsonId | None = None
 
 
 class _LabelsModel(_Strict):
@@ -285,29 +285,6 @@ class _ReturnedLabelsModel(_Strict):
 _MANIFEST = TypeAdapter(_ManifestModel)
 _LABELS = TypeAdapter(_LabelsModel)
 _RETURNED_LABELS = TypeAdapter(_ReturnedLabelsModel)
-
-
-def _no_constant(name: str) -> Any:
-    raise ValueError(f"{name} is not a JSON number")
-
-
-def _finite(text: str) -> float:
-    value = float(text)
-    if not math.isfinite(value):
-        raise ValueError(f"{text} is too large a number")
-    return value
-
-
-def _parse_json(raw: bytes, where: str) -> Any:
-    """JSON with every number finite (no NaN, Infinity or 1e999), nesting within Python's
-    recursion limit."""
-    try:
-        return json.loads(raw.decode("utf-8"), parse_constant=_no_constant,
-                          parse_float=_finite)
-    except (UnicodeDecodeError, ValueError) as exc:
-        raise BadInput(f"not valid JSON ({exc})", where=where) from None
-    except RecursionError:
-        raise BadInput("the JSON is nested too deeply", where=where) from None
 
 
 def _validate(adapter: TypeAdapter[Any], data: Any, where: str) -> Any:
@@ -358,7 +335,7 @@ def read_packet(path: str | Path, returned: bool | None = None,
         raw_manifest = safezip.read_member(archive, entries[MANIFEST], where,
                                            limit=MAX_MANIFEST)
         mwhere = f"{where}: member {MANIFEST!r}"
-        data = _parse_json(raw_manifest, mwhere)
+        data = parse_json(raw_manifest, mwhere, "the member")
         if isinstance(data, dict) and data.get("format") == FORMAT \
                 and data.get("version") != VERSION:
             raise BadInput(f"packet version {data.get('version')!r}; this Posewright reads "
@@ -462,7 +439,7 @@ def _check_members(listed: Mapping[str, str], present: set[str], expected: set[s
 
 def _frame_contents(raw: bytes, adapter: TypeAdapter[Any], where: str, skeleton: Skeleton,
                     frame_ids: Sequence[int]) -> tuple[dict[int, FrameContent], list[Any]]:
-    data = _validate(adapter, _parse_json(raw, where), where)
+    data = _validate(adapter, parse_json(raw, where, "the member"), where)
     k = skeleton.num_joints
     out: dict[int, FrameContent] = {}
     person_ids: set[int] = set()
@@ -723,7 +700,12 @@ def _image_root(project: Project, frame: Frame, path: Path) -> Path:
 
 
 def dumps_json(data: Any) -> bytes:
-    return json.dumps(data, separators=(",", ":"), allow_nan=False).encode("utf-8")
+    """Compact JSON for a member; a non-finite number (kept from an import made before such
+    numbers were refused) is written as null, with a warning."""
+    clean, found = json_ready(data)
+    for path in found:
+        log.warning("%s: not a finite number; written to the packet as null", describe(path, data))
+    return json.dumps(clean, separators=(",", ":"), allow_nan=False).encode("utf-8")
 
 
 def write_member(archive: zipfile.ZipFile, name: str, data: bytes,

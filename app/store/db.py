@@ -17,6 +17,7 @@ Two databases sit behind :class:`Database`:
 
 from __future__ import annotations
 
+import shutil
 import sqlite3
 import threading
 from collections.abc import Iterable, Iterator, Sequence
@@ -36,6 +37,19 @@ if TYPE_CHECKING:
     from app.store.notes import NotesGateway, RegionsGateway
     from app.store.people import PeopleGateway
     from app.store.reviews import AlternativesGateway, DecisionsGateway, PacketsGateway
+
+
+def storage_failed_text(exc: Exception, path: Path) -> str:
+    """``PATH: what the database said; the action was not kept`` and, when the disk is nearly
+    full, how much is free (SQLite reports a full disk in several ways: "database or disk is
+    full", "disk I/O error")."""
+    try:
+        free = shutil.disk_usage(next(p for p in (path, *path.parents) if p.exists())).free
+    except (OSError, StopIteration):
+        free = None
+    hint = f"; the disk has {free // 1024} KiB free" if free is not None and free < 2**24 \
+        else ""
+    return f"{path}: {exc}; the action was not kept{hint}"
 
 
 class Dialect:
@@ -301,7 +315,7 @@ class SqliteDatabase(Database):
                 raise BadInput(f"{self.where}: the change breaks a rule of the project's "
                                f"tables ({exc})") from None
             except sqlite3.Error as exc:
-                raise StorageFailed(f"{self.where}: {exc}; the action was not kept") from None
+                raise StorageFailed(storage_failed_text(exc, self.path)) from None
 
     def close(self) -> None:
         with self.mutex:

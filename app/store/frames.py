@@ -155,7 +155,7 @@ class FramesGateway:
     def set_extra(self, frame_id: int, extra: dict[str, Any]) -> None:
         """Replace the fields of an imported COCO image record kept for the round trip."""
         self._tx.run("UPDATE frames SET extra = ? WHERE id = ?",
-                     (json.dumps(extra), int(frame_id)))
+                     (json.dumps(extra, allow_nan=False), int(frame_id)))
 
     def extras(self) -> dict[int, dict[str, Any]]:
         """Fields of imported COCO image records kept for the round trip, by frame id."""

@@ -46,14 +46,14 @@ from typing import Any
 
 import filelock
 
-from app.errors import BadInput, NotFound, ReadOnly
+from app.errors import BadInput, NotFound, ReadOnly, StorageFailed
 from app.model.edits import Edit, EditContext
 from app.model.labels import Frame, FrameLabels, Note, Person
 from app.model.records import Alternative, FrameDecision, PacketRecord
 from app.model.skeleton import Skeleton, coco_body, skeleton_from_dict
 from app.store import ledger, recovery
 from app.store.claims import Claim
-from app.store.db import SQLITE, Database, SqliteDatabase, Tx
+from app.store.db import SQLITE, Database, SqliteDatabase, Tx, storage_failed_text
 from app.store.derived import TriageResult
 from app.store.frames import FrameQuery, NewFrame
 from app.store.ledger import Applied, LedgerEntry
@@ -66,6 +66,10 @@ DB_NAME = "project.db"
 LOCK_NAME = "project.lock"
 HOLDER_NAME = "project.holder.json"
 VIDEO_FRAMES = "frames"  # where frames extracted from videos go, inside the project folder
+#: The first 16 bytes of every SQLite database file (https://sqlite.org/fileformat.html, 1.3.1).
+SQLITE_HEADER = b"SQLite format 3\x00"
+#: Frame and person ids are database integers (64-bit, signed).
+_INT64 = (-(2**63), 2**63 - 1)
 # What opening for writing meets in a folder that cannot be written.
 _NOT_WRITABLE = (errno.EROFS, errno.EACCES, errno.EPERM)
 
@@ -134,8 +138,12 @@ class Project:
         holds a project.
         """
         folder = Path(folder)
-        made = not folder.exists()
-        folder.mkdir(parents=True, exist_ok=True)
+        made = [p for p in (folder, *folder.parents) if not p.exists()]
+        try:
+            folder.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise BadInput(f"cannot make the folder ({exc.strerror})", where=str(folder)) \
+                from None
         db = folder / DB_NAME
         if db.exists():
             raise BadInput("a project already exists here", where=str(folder))
@@ -144,14 +152,35 @@ class Project:
         if lock is None:
             raise BadInput("another process is creating or editing a project here",
                            where=str(folder))
+        if db.exists():  # made by another process between the first look and the lock
+            lock.release()
+            raise BadInput("a project already exists here", where=str(folder))
+        try:
+            return cls._create_locked(folder, lock, skeleton, author, frames, images_root)
+        except BaseException as exc:
+            # A project appears complete or not at all: nothing of a failed one stays.
+            for name in (DB_NAME, DB_NAME + "-wal", DB_NAME + "-shm", HOLDER_NAME):
+                (folder / name).unlink(missing_ok=True)
+            # The lock file goes while still held, so no other process takes it meanwhile.
+            (folder / LOCK_NAME).unlink(missing_ok=True)
+            lock.release()
+            _remove_made(made)
+            if isinstance(exc, sqlite3.Error):
+                raise _storage_failed(exc, folder) from None
+            raise
+
+    @classmethod
+    def _create_locked(cls, folder: Path, lock: filelock.BaseFileLock, skeleton: Skeleton,
+                       author: str | None, frames: Sequence[NewFrame],
+                       images_root: str | Path | None) -> Project:
         tmp = folder / (DB_NAME + ".new")
+        conn = None
         try:
             for stale in folder.glob(DB_NAME + ".new*"):
                 stale.unlink()
             conn = SqliteDatabase.connect(tmp, read_only=False)
             migrate_sqlite(conn)
-            new = SqliteDatabase(conn, tmp)
-            with new.write() as tx:
+            with SqliteDatabase(conn, tmp).write() as tx:
                 tx.meta.set_many({
                     "project_id": str(uuid.uuid4()),
                     "created": str(time.time()),
@@ -163,17 +192,14 @@ class Project:
                 })
                 tx.frames.insert(frames, first_id=1)
             conn.close()
+            conn = None
             # A project appears complete or not at all.
-            os.replace(tmp, db)
-        except BaseException:
+            os.replace(tmp, folder / DB_NAME)
+        finally:
+            if conn is not None:
+                conn.close()
             for leftover in folder.glob(DB_NAME + ".new*"):
                 leftover.unlink()
-            # Nothing of a failed create stays: no lock file, no folder it made.
-            (folder / LOCK_NAME).unlink(missing_ok=True)
-            lock.release()
-            if made and not any(folder.iterdir()):
-                folder.rmdir()
-            raise
         return cls._open_locked(folder, lock, author)
 
     @classmethod
@@ -197,6 +223,7 @@ class Project:
         if not (folder / DB_NAME).is_file():
             raise NotFound(f"{folder}: no project here (no {DB_NAME}); make one with "
                            "`posewright new`")
+        _check_database(folder / DB_NAME)
         reason = "opened read-only on request"
         if not read_only:
             try:
@@ -236,8 +263,10 @@ class Project:
             holder = {"pid": os.getpid(), "host": socket.gethostname(), "author": who,
                       "since": time.time()}
             (folder / HOLDER_NAME).write_text(json.dumps(holder))
-        except BaseException:
+        except BaseException as exc:
             lock.release()
+            if isinstance(exc, sqlite3.Error):
+                raise _storage_failed(exc, folder) from None
             raise
         if done:
             log.warning("%s: cleaned up after an interrupted run: %s", folder, "; ".join(done))
@@ -339,6 +368,8 @@ class Project:
             return tx.frames.page(query)
 
     def frame(self, frame_id: int) -> Frame:
+        if not _INT64[0] <= int(frame_id) <= _INT64[1]:
+            raise NotFound(f"the project has no frame {frame_id}")
         with self._read() as tx:
             found = tx.frames.get(frame_id)
         if found is None:
@@ -786,12 +817,65 @@ def _unread_changes(folder: Path) -> str:
             "opened once where its folder can be written")
 
 
+def _check_database(path: Path) -> None:
+    """Refuse a ``project.db`` that is not an SQLite database before SQLite sees it: SQLite
+    would take an empty file for a new database and write a schema into it."""
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(len(SQLITE_HEADER))
+    except OSError as exc:
+        raise StorageFailed(f"{path}: cannot read the project database ({exc.strerror})") \
+            from None
+    if head != SQLITE_HEADER:
+        what = "empty (0 bytes)" if not head else "not an SQLite database"
+        raise BadInput(f"the project database is {what}", where=str(path),
+                       hint="restore it from a backup; Posewright leaves it as it is")
+
+
+def _storage_failed(exc: sqlite3.Error, folder: Path) -> StorageFailed:
+    """The one-line error for a failure of SQLite; a disk nearly full is named as the likely
+    cause (SQLite reports it in several ways: "database or disk is full", "disk I/O error")."""
+    return StorageFailed(storage_failed_text(exc, folder / DB_NAME))
+
+
+def _remove_made(made: Sequence[Path]) -> None:
+    """Remove the folders in ``made`` (deepest first) while they are empty."""
+    for path in made:
+        try:
+            path.rmdir()
+        except OSError:
+            return
+
+
+def project_in_use(folder: str | Path) -> str | None:
+    """Who has the project in ``folder`` open for editing (as :attr:`Project.read_only_reason`
+    says it), or None when no process does."""
+    folder = Path(folder)
+    lock = _take_lock(folder)
+    if lock is None:
+        return _holder_reason(folder)
+    lock.release()
+    return None
+
+
 def _check_version(conn: sqlite3.Connection, folder: Path) -> None:
     cursor = conn.cursor()
     try:
-        version = schema_version(Tx(cursor, SQLITE, writing=False))
+        tx = Tx(cursor, SQLITE, writing=False)
+        version = schema_version(tx)
+        has_meta = version > 0 and tx.row(
+            "SELECT 1 FROM meta WHERE key = 'skeleton'") is not None
+    except sqlite3.DatabaseError as exc:
+        conn.close()
+        raise BadInput(f"the project database cannot be read ({exc})",
+                       where=str(folder / DB_NAME),
+                       hint="restore it from a backup; Posewright leaves it as it is") from None
     finally:
         cursor.close()
+    if not has_meta:
+        conn.close()
+        raise BadInput("an SQLite database, but not a Posewright project (no project record)",
+                       where=str(folder / DB_NAME))
     if version > SCHEMA_VERSION:
         conn.close()
         raise BadInput(
@@ -815,7 +899,7 @@ def _holder_reason(folder: Path) -> str:
         since = time.strftime("%Y-%m-%d %H:%M", time.localtime(holder["since"]))
         return (f"open for editing by {holder.get('author') or 'someone'} "
                 f"(process {holder['pid']} on {holder['host']}) since {since}")
-    except (OSError, ValueError, KeyError, TypeError):
+    except (OSError, ValueError, KeyError, TypeError, RecursionError):
         return "open for editing in another process"
 
 

@@ -164,6 +164,12 @@ def _open(folder: str, author: str | None, quiet: bool, with_dialog: bool):  # -
 
     path = Path(folder)
     needs_build = not (path / DB_NAME).exists() and (path / SOURCES_NAME).is_file()
+    if needs_build and author is None and not os.environ.get("POSEWRIGHT_AUTHOR"):
+        # Nobody was asked for a name (no screen, or --screenshot): say whose it is.
+        author = getpass.getuser()
+        print(f"posewright: note: building {path} records it in the ledger as by {author!r}, "
+              "the login name; give --author NAME or set POSEWRIGHT_AUTHOR to record another",
+              file=sys.stderr)
     if needs_build and with_dialog:
         from PySide6.QtCore import QEventLoop
 

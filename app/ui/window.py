@@ -83,6 +83,7 @@ from app.ui.settling import Dispute, describe_difference, load_dispute, step_dif
 from app.ui.strips import Strip
 from app.ui.suggestions import rank_owners
 from app.ui.work import describe_error, run_job
+from app.wording import count
 
 log = logging.getLogger(__name__)
 
@@ -1304,18 +1305,17 @@ class MainWindow(QMainWindow):
     def _region_strip_text(self) -> str:
         if not self.canvas.region_mode:
             return ""
-        n = len(self.canvas.regions)
-        count = f"{n} ignore region{'s' if n != 1 else ''} in this frame"
+        held = f"{count(len(self.canvas.regions), 'ignore regions')} in this frame"
         if self.canvas.drafting:
             return ("<b>Drawing a polygon</b>: click the next corner \u00b7 Return or a double "
                     "click closes it \u00b7 Backspace takes back a corner \u00b7 Esc cancels")
         rid = self.canvas.selected_region
         if rid is not None:
             return (f"<b>Region {rid}</b> selected: drag a corner to reshape it, drag inside "
-                    "to move it \u00b7 Del deletes it \u00b7 Esc lets go \u00b7 " + count)
+                    "to move it \u00b7 Del deletes it \u00b7 Esc lets go \u00b7 " + held)
         return ("<b>Region mode</b>: drag a rectangle, or click the corners of a polygon "
                 "\u00b7 click a region to select it \u00b7 training ignores these areas "
-                "\u00b7 " + count)
+                "\u00b7 " + held)
 
     def _update_status(self) -> None:
         shown = self.worklist.proxy.rowCount()
@@ -1331,12 +1331,14 @@ class MainWindow(QMainWindow):
             self.status_frame.setText(f"frame {pos} of {total} \u00b7 {name}"
                                       + (f" \u00b7 {video}" if video else ""))
             self.status_frame.setToolTip(
-                f"{shown} frames shown by the Worklist filters" if shown != total else "")
+                f"{count(shown, 'frames')} shown by the Worklist filters" if shown != total
+                else "")
         regions = len(self.canvas.regions)
-        self.status_people.setText(f"{len(self.canvas.ours)} people" + (
-            f" \u00b7 {regions} ignore region{'s' if regions != 1 else ''}" if regions else ""))
+        self.status_people.setText(count(len(self.canvas.ours), "people") + (
+            f" \u00b7 {count(regions, 'ignore regions')}" if regions else ""))
         flagged = sum(1 for v in self.canvas.flags.values() if v)
-        self.status_flags.setText(f"flags on {flagged} people" if flagged else "no flags")
+        self.status_flags.setText(f"flags on {count(flagged, 'people')}" if flagged
+                                  else "no flags")
         frame = self.canvas.frame
         state = STATE_TEXT[frame.state] if frame is not None else ""
         if self.review_mode and frame is not None:
@@ -1438,7 +1440,8 @@ class MainWindow(QMainWindow):
                 return export_coco(self.project, path)
 
             self.run_long("Exporting labels", job, lambda stats: self._exported(
-                f"wrote {path}: {stats['images']} images, {stats['people']} people", stats))
+                f"wrote {path}: {count(stats['images'], 'images')}, "
+                f"{count(stats['people'], 'people')}", stats))
 
     def _export_targets(self) -> None:
         fn = self._analysis_job("export_targets")
@@ -1448,8 +1451,8 @@ class MainWindow(QMainWindow):
             self.run_long("Exporting training targets",
                           lambda pr: fn(self.project, folder, progress=pr),
                           lambda stats: self._exported(
-                              f"training targets of {stats['frames']} frames written to "
-                              f"{folder}", stats))
+                              f"training targets of {count(stats['frames'], 'frames')} "
+                              f"written to {folder}", stats))
 
     def _exported(self, text: str, stats: dict[str, Any]) -> None:
         """Say what an export wrote and what it left out (corrected and signed-off frames are
@@ -1466,7 +1469,7 @@ class MainWindow(QMainWindow):
         if not frames:
             self._message(f"no new frames: the project has every {what} already")
             return
-        self._message(f"added {len(frames)} frames from {what}")
+        self._message(f"added {count(len(frames), 'frames')} from {what}")
         self.show_frame(frames[0].id)
 
     def _add_images(self) -> None:
@@ -1524,10 +1527,10 @@ class MainWindow(QMainWindow):
         dialog.open()
 
     def _prelabelled(self, stats: dict[str, Any]) -> None:
-        parts = [f"pre-labelled {stats.get('frames', 0)} frames: "
-                 f"{stats.get('people', 0)} people found"]
+        parts = [f"pre-labelled {count(stats.get('frames', 0), 'frames')}: "
+                 f"{count(stats.get('people', 0), 'people')} found"]
         if stats.get("frames kept"):
-            parts.append(f"{stats['frames kept']} frames kept their people")
+            parts.append(f"{count(stats['frames kept'], 'frames')} kept their people")
         if stats.get("unreadable"):
             parts.append(f"{stats['unreadable']} unreadable images skipped")
         self._message("; ".join(parts) + " (Ctrl+T ranks the frames)", 0)
@@ -1562,16 +1565,16 @@ class MainWindow(QMainWindow):
         dialog.open()
 
     def _packet_written(self, out: str, stats: dict[str, Any]) -> None:
-        text = (f"Wrote the review packet:\n\n{out}\n\n{stats['frames']} frames, "
-                f"{stats['people']} people, {stats['images']} images.")
+        text = (f"Wrote the review packet:\n\n{out}\n\n{count(stats['frames'], 'frames')}, "
+                f"{count(stats['people'], 'people')}, {count(stats['images'], 'images')}.")
         if stats.get("missing_images"):
-            text += f"\n{stats['missing_images']} frames went without their image."
+            text += f"\n{count(stats['missing_images'], 'frames')} went without their image."
         if stats.get("outside_images"):
-            text += (f"\n{stats['outside_images']} frames went without their image: it is a "
-                     "link to a file outside the images folder.")
+            text += (f"\n{count(stats['outside_images'], 'frames')} went without their image: "
+                     "it is a link to a file outside the images folder.")
         if stats.get("unplaced_heads"):
-            text += (f"\n{stats['unplaced_heads']} people have no labelled joint, so their "
-                     "heads could not be blurred.")
+            text += (f"\n{count(stats['unplaced_heads'], 'people')} with no labelled joint: "
+                     "no head to blur.")
         self._message(f"wrote {out}")
         self._inform(text)
 
@@ -1591,9 +1594,10 @@ class MainWindow(QMainWindow):
             when = time.strftime("%Y-%m-%d %H:%M", time.localtime(report.merged_at or 0))
             self._inform(f"This packet was merged already, on {when}; nothing changed.")
             return
-        text = (f"Merged the review by {report.reviewer}: {report.frames} frames, "
-                f"{report.joints_taken} joints taken, {report.people_added} people added, "
-                f"{report.people_deleted} deleted, {report.notes_added} notes.")
+        text = (f"Merged the review by {report.reviewer}: {count(report.frames, 'frames')}, "
+                f"{count(report.joints_taken, 'joints')} taken, "
+                f"{count(report.people_added, 'people')} added, "
+                f"{report.people_deleted} deleted, {count(report.notes_added, 'notes')}.")
         if report.disputed:
             text += (f"\n\n{len(report.disputed)} frame(s) are disputed: "
                      + ", ".join(map(str, report.disputed[:12]))

@@ -251,8 +251,9 @@ def test_blurred_heads_packet_changes_heads_only(labelled, tmp_path):
 
 @pytest.mark.parametrize("labels_text, words", [
     ('{"frames": [' * 20_000, "nested too deeply"),
-    ('{"frames": [{"id": 1, "people": [], "notes": [], "x": 1e999}]}', "too large a number"),
-    ('{"frames": NaN}', "NaN is not a JSON number"),
+    ('{"frames": [{"id": 1, "people": [], "notes": [], "x": 1e999}]}',
+     "frames[0] (id 1): field x: Infinity is not a finite number"),
+    ('{"frames": NaN}', "field frames: NaN is not a finite number"),
 ])
 def test_hostile_json_is_refused_in_one_line(labelled, tmp_path, labels_text, words):
     path = _valid(labelled, tmp_path)
