@@ -119,7 +119,8 @@ def _open(args: argparse.Namespace, write: bool = True, say_why: bool = True):  
     from app.jobs import open_project
 
     project = open_project(args.project, author=getattr(args, "author", None),
-                           progress=_stderr_progress(getattr(args, "quiet", False)))
+                           progress=_stderr_progress(getattr(args, "quiet", False)),
+                           images=getattr(args, "images_root", None))
     if write and project.read_only:
         reason = project.read_only_reason
         project.close()
@@ -432,6 +433,16 @@ def cmd_prelabel(args: argparse.Namespace) -> int:
     return 0
 
 
+def cmd_host(args: argparse.Namespace) -> int:
+    from app.store.hosted import redact
+    from app.store.hosting import host
+
+    counts = host(args.project, args.url, progress=_stderr_progress(args.quiet))
+    print(f"hosted {shown(args.project)} at {shown(redact(args.url))}: "
+          + ", ".join(count(n, what) for what, n in counts.items()))
+    return 0
+
+
 def cmd_open(args: argparse.Namespace) -> int:
     from app.ui.commands import open_app
 
@@ -489,7 +500,8 @@ def build_parser() -> argparse.ArgumentParser:
                 project: bool = True) -> argparse.ArgumentParser:
         p = sub.add_parser(name, help=text, description=text)
         if project:
-            p.add_argument("project", metavar="PROJECT", help="the project folder")
+            p.add_argument("project", metavar="PROJECT",
+                           help="the project folder, or a hosted project's database URL")
         p.add_argument("--author", help="who is working (default: $POSEWRIGHT_AUTHOR or the "
                                         "login name)")
         p.add_argument("-q", "--quiet", action="store_true", help="no progress on stderr")
@@ -595,6 +607,12 @@ def build_parser() -> argparse.ArgumentParser:
     p = command("mend", cmd_mend, "replace NaN and infinite numbers kept from an import made "
                                   "before they were refused, so exports write what it holds")
 
+    p = command("host", cmd_host, "copy a folder project into an empty PostgreSQL database, "
+                "for a team to edit at once")
+    p.add_argument("url", metavar="URL", help="the database: postgresql://USER@HOST:PORT/DB or "
+                   "any libpq form (host=... dbname=..., service=NAME); the password comes "
+                   "from PGPASSWORD, the password file or a service file, never the URL")
+
     p = command("demo", cmd_demo, "generate the synthetic demo scenario in DIR", project=False)
     p.add_argument("dir", metavar="DIR")
     p.add_argument("--force", action="store_true",
@@ -608,7 +626,25 @@ def build_parser() -> argparse.ArgumentParser:
     from app.review.commands import register as register_review
 
     register_review(sub, command)
+    _images_root_option(sub)
     return parser
+
+
+def _images_root_option(sub: Any) -> None:
+    """Give every command that takes a project ``--images-root DIR`` (and ``--images DIR``
+    where ``--images`` means nothing else): a hosted project's images root on this machine."""
+    for parser in sub.choices.values():
+        nested = [a for a in parser._actions if isinstance(a, argparse._SubParsersAction)]
+        for action in nested:
+            _images_root_option(action)
+        if not any(a.dest == "project" for a in parser._actions):
+            continue
+        names = ["--images-root"]
+        if "--images" not in parser._option_string_actions:
+            names.insert(0, "--images")
+        parser.add_argument(*names, dest="images_root", metavar="DIR",
+                            help="for a hosted project: where its images are on this machine "
+                                 "(default: $POSEWRIGHT_IMAGES, else the folder it records)")
 
 
 class _ShownFormatter(logging.Formatter):

@@ -92,12 +92,13 @@ def register(sub: Any, command: Command) -> None:
     q.add_argument("--json", action="store_true", help="print the merge report as JSON")
 
 
-def _open_project(folder: str, author: str | None, write: bool):  # -> Project
+def _open_project(folder: str, author: str | None, write: bool,
+                  images: str | None = None):  # -> Project
     """Open for editing when possible; ``write`` makes read-only (another process holds the
-    project) an error."""
+    project) an error. ``images``: a hosted project's images root on this machine."""
     from app.jobs import open_project
 
-    project = open_project(folder, author=author)
+    project = open_project(folder, author=author, images=images)
     if write and project.read_only:
         reason = project.read_only_reason
         project.close()
@@ -120,7 +121,8 @@ def _progress(quiet: bool):  # -> Progress
 def cmd_export(args: argparse.Namespace) -> int:
     from app.review.packet import export_packet, select_frames
 
-    with _open_project(args.project, args.author, write=False) as project:
+    with _open_project(args.project, args.author, write=False,
+                       images=args.images_root) as project:
         frames = select_frames(project, args.frames)
         stats = export_packet(project, args.out, frames, images=args.images,
                               reviewer=args.reviewer, progress=_progress(args.quiet))
@@ -189,7 +191,8 @@ def cmd_return(args: argparse.Namespace) -> int:
 def cmd_merge(args: argparse.Namespace) -> int:
     from app.review.merge import merge_packet
 
-    with _open_project(args.project, args.author, write=True) as project:
+    with _open_project(args.project, args.author, write=True,
+                       images=args.images_root) as project:
         report = merge_packet(project, args.returned, progress=_progress(args.quiet))
     if args.json:
         print_json(report.to_dict())

@@ -7,7 +7,7 @@ from collections.abc import Iterable
 from app.store.db import Tx
 
 #: Counter name -> the ``meta`` key a folder project keeps it in.
-_META_KEYS = {"person_ids": "next_person_id", "note_ids": "next_note_id",
+META_COUNTERS = {"person_ids": "next_person_id", "note_ids": "next_note_id",
               "group_ids": "next_group_id", "region_ids": "next_region_id"}
 
 
@@ -66,7 +66,7 @@ class Counters:
             if n > 1:
                 tx.run("SELECT setval(?, ?)", (seq, first + n - 1))
             return first
-        key = _META_KEYS[name]
+        key = META_COUNTERS[name]
         value = max(int(tx.meta.get(key, "1") or 1), at_least)
         if name == "region_ids":
             # Imported regions take their ids from SQLite; edits must never reuse one, even
@@ -82,7 +82,7 @@ class Counters:
             self._tx.run(f"SELECT setval(?, greatest(?, (SELECT last_value FROM "
                          f"{_sequence_table(name)})))", (self._sequence(name), top))
             return
-        key = _META_KEYS[name]
+        key = META_COUNTERS[name]
         if top >= int(self._tx.meta.get(key, "1") or 1):
             self._tx.meta.set(key, str(top + 1))
 

@@ -319,6 +319,10 @@ class Project:
     def meta(self, key: str, default: str | None = None) -> str | None:
         return self._meta.get(key, default)
 
+    def settings(self) -> dict[str, str]:
+        """Every project setting (a copy)."""
+        return dict(self._meta)
+
     def subscribe(self, listener: Listener) -> None:
         """Call ``listener(kind, frame_ids)`` after every committed change, this process's
         and, for a hosted project, other annotators' (``kind``: ``edit``, ``undo``, ``redo``,
@@ -330,6 +334,16 @@ class Project:
         ids = frozenset(int(f) for f in frame_ids if f is not None)
         for listener in list(self._listeners):
             listener(kind, ids)
+
+    def _remote_change(self, kind: str, frame_ids: frozenset[int], session: str) -> None:
+        """A change committed to a hosted project's database, by anyone (called on the
+        listener's thread); this process's own changes were told already."""
+        if session and session == getattr(self._db, "session", None):
+            return
+        if kind in ("meta", "import") and self._db is not None:
+            with contextlib.suppress(StorageFailed), self._db.read() as tx:
+                self._meta.update(tx.meta.all())
+        self._notify(kind, frame_ids)
 
     # ------------------------------------------------------------------ transactions
 

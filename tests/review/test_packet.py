@@ -29,6 +29,7 @@ from app.review.merge import merge_packet
 from app.review.packet import export_packet, read_packet, select_frames
 from app.review.review import open_packet, review_folder
 from app.store import Project
+from tests.conftest import place
 from tests.review.conftest import rewrite, rewrite_json, send
 
 
@@ -343,7 +344,7 @@ def test_an_exported_packet_never_names_someone_it_would_refuse(labelled, tmp_pa
     with pytest.raises(BadInput, match="--reviewer: a name must be printable"):
         export_packet(labelled, tmp_path / "p.zip", frames, images="none", reviewer=_HOSTILE)
     assert not (tmp_path / "p.zip").exists()
-    with Project.open(labelled.folder, author=_HOSTILE, read_only=True) as shared, \
+    with Project.open(place(labelled), author=_HOSTILE, read_only=True) as shared, \
             pytest.raises(BadInput, match="--author: a name must be printable"):
         export_packet(shared, tmp_path / "p.zip", frames, images="none")
     assert not (tmp_path / "p.zip").exists()

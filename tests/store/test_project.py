@@ -34,6 +34,7 @@ from app.model import (
 )
 from app.store import Project
 from app.store.schema import SCHEMA_VERSION
+from tests.conftest import place
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 
@@ -79,7 +80,7 @@ def test_edits_survive_reopen_with_ledger(project, tmp_path):
     before = _snapshot(project)
     ledger = project.history()
     project.close()
-    with Project.open(tmp_path / "proj", author="ben") as again:
+    with Project.open(place(project), author="ben") as again:
         assert _same(_snapshot(again), before)
         assert again.history() == ledger
         assert again.frame(2).state is FrameState.CORRECTED
@@ -102,10 +103,12 @@ def test_undo_and_redo_survive_restart(project, tmp_path):
                         ).edit.person_id
     project.apply(MoveJoint(1, pid, 0, 99.0, 98.0))
     project.close()
-    with Project.open(tmp_path / "proj") as p:
+    # A folder has one undo stack for whoever opens it; on a server each author has theirs.
+    who = "ana" if project.hosted else None
+    with Project.open(place(project), author=who) as p:
         assert p.undo() is not None
         assert p.people(1)[0].keypoints[0, :2].tolist() == [10.0, 20.0]
-    with Project.open(tmp_path / "proj") as p:
+    with Project.open(place(project), author=who) as p:
         assert p.redo() is not None
         assert p.people(1)[0].keypoints[0, :2].tolist() == [99.0, 98.0]
         kinds = [e.kind for e in p.history()]
@@ -153,6 +156,7 @@ def test_return_to_a_point_is_itself_undoable(project):
     np.testing.assert_array_equal(project.people(1)[0].keypoints, moved)
 
 
+@pytest.mark.folder_only
 def test_second_process_gets_read_only_and_is_told_why(project, tmp_path):
     code = textwrap.dedent(f"""
         import sys; sys.path.insert(0, {ROOT!r})
@@ -166,6 +170,7 @@ def test_second_process_gets_read_only_and_is_told_why(project, tmp_path):
     assert f"process {os.getpid()}" in out
 
 
+@pytest.mark.folder_only
 def test_read_only_refuses_edits_in_the_same_process(project, tmp_path):
     with Project.open(tmp_path / "proj") as second:
         assert second.read_only
@@ -206,6 +211,7 @@ def test_newer_schema_is_refused_and_left_alone(project, tmp_path):
         assert conn.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION + 1
 
 
+@pytest.mark.folder_only
 def test_durability_settings(project):
     """SQLite documentation: WAL with synchronous=FULL syncs the WAL at every commit."""
     conn = project.db.conn

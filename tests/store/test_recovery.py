@@ -13,6 +13,9 @@ from app.jobs import new_project
 from app.store import Project
 from app.store.project import HOLDER_NAME, LOCK_NAME
 
+# What the lock holder of a folder finds on opening; a server has no such folder.
+pytestmark = pytest.mark.folder_only
+
 
 def _run(project, contents):
     """One committed run: ``{frame id: bytes}`` written into a new run folder and named."""
