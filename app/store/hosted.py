@@ -144,13 +144,17 @@ class PostgresDatabase(Database):
                                    check=ConnectionPool.check_connection,
                                    name="posewright")
         try:
+            # One plain connection first: it fails at once, with libpq's reason, where the
+            # pool would keep trying until its timeout.
+            psycopg.connect(conninfo, connect_timeout=int(CONNECT_SECONDS)).close()
             self.pool.open(wait=True, timeout=CONNECT_SECONDS)
         except (PoolTimeout, psycopg.Error) as exc:
             self.pool.close()
             raise StorageFailed(self._unreachable(exc)) from None
 
     def _unreachable(self, exc: BaseException) -> str:
-        cause = self._last_error() or str(exc)
+        cause = _first_line(exc) if isinstance(exc, self._psycopg.Error) else \
+            self._last_error() or str(exc)
         return (f"{self.where}: cannot reach the database server "
                 f"({_scrub(cause, self._conninfo).strip()})")
 
