@@ -55,6 +55,13 @@ class ClaimsGateway:
                            (int(frame_id),))
         return None if row is None else Claim(row[0], row[1], float(row[2]))
 
+    def renew(self, frame_id: int, author: str, seconds: float = CLAIM_SECONDS) -> None:
+        """Extend ``author``'s claim on ``frame_id``, if they hold it (an edit's transaction
+        does this; it touches no other claim, so two editors never wait on each other in a
+        circle)."""
+        self._tx.run("UPDATE claims SET expires = extract(epoch FROM clock_timestamp()) + ? "
+                     "WHERE frame_id = ? AND author = ?", (seconds, int(frame_id), author))
+
     def release(self, author: str) -> list[int]:
         """Give up ``author``'s claims; returns the frames they were on."""
         frames = [r[0] for r in self._tx.rows("SELECT frame_id FROM claims WHERE author = ?",

@@ -140,6 +140,17 @@ class Tx:
         if rows:
             self._cur.executemany(self.dialect.sql(sql), rows)
 
+    @contextmanager
+    def batch(self) -> Iterator[None]:
+        """Statements whose results nobody reads, sent together: on a server one round trip
+        instead of one each (psycopg's pipeline mode); errors surface when the block ends."""
+        connection = getattr(self._cur, "connection", None)
+        if self.hosted and connection is not None and hasattr(connection, "pipeline"):
+            with connection.pipeline():
+                yield
+        else:
+            yield
+
     def event(self, kind: str, frame_ids: Iterable[int | None] = ()) -> None:
         """Record that this transaction changed ``frame_ids`` (told to listeners on commit)."""
         self.events.append((kind, frozenset(int(f) for f in frame_ids if f is not None)))

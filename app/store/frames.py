@@ -61,8 +61,11 @@ class FramesGateway:
         return [_frame(r) for r in self._tx.rows(
             f"SELECT {_COLUMNS} FROM {_FROM} ORDER BY frames.id")]
 
-    def get(self, frame_id: int) -> Frame | None:
-        row = self._tx.row(f"SELECT {_COLUMNS} FROM {_FROM} WHERE frames.id = ?",
+    def get(self, frame_id: int, lock: bool = False) -> Frame | None:
+        """The frame; ``lock`` keeps other writers off its row until the transaction ends
+        (on a server)."""
+        lock_sql = " FOR UPDATE OF frames" if lock and self._tx.hosted else ""
+        row = self._tx.row(f"SELECT {_COLUMNS} FROM {_FROM} WHERE frames.id = ?" + lock_sql,
                            (int(frame_id),))
         return None if row is None else _frame(row)
 

@@ -124,6 +124,11 @@ def _scrub(text: str, conninfo: str) -> str:
     return text.replace(password, "***") if password else text
 
 
+class TryAgain(StorageFailed):
+    """The server gave up a transaction to break a deadlock with another annotator's; nothing
+    of it was kept, and running it again is safe."""
+
+
 class PostgresDatabase(Database):
     """A hosted project's database: a pool of connections, locked rows, notifications."""
 
@@ -179,6 +184,9 @@ class PostgresDatabase(Database):
         except psycopg.errors.InsufficientPrivilege as exc:
             raise ReadOnly(f"{self.where}: the database refused the change "
                            f"({_first_line(exc)})") from None
+        except (psycopg.errors.DeadlockDetected, psycopg.errors.SerializationFailure) as exc:
+            raise TryAgain(f"{self.where}: {_first_line(exc)}; the action was not kept") \
+                from None
         except psycopg.errors.IntegrityError as exc:
             raise BadInput(f"{self.where}: the change breaks a rule of the project's tables "
                            f"({_first_line(exc)})") from None
@@ -202,11 +210,10 @@ class PostgresDatabase(Database):
             cur.execute(f"SELECT {lock}(%s)", (_BULK_LOCK,))
             tx = Tx(cur, POSTGRES, writing=True)
             yield tx
-            for kind, ids in tx.events:
-                # Delivered to listeners only if the transaction commits (PostgreSQL holds
-                # notifications until then).
-                cur.execute("SELECT pg_notify(%s, %s)", (CHANNEL, _payload(kind, ids,
-                                                                            self.session)))
+            # Delivered to listeners only if the transaction commits (PostgreSQL holds
+            # notifications until then).
+            tx.run_many("SELECT pg_notify(?, ?)", [(CHANNEL, _payload(kind, ids, self.session))
+                                                   for kind, ids in tx.events])
 
     def listen(self, deliver: Deliver) -> None:
         """Start a thread that calls ``deliver(kind, frame_ids, session)`` for every change

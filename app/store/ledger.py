@@ -234,7 +234,7 @@ def _stack(name: str) -> str:
 def load_labels(tx: Tx, frame_id: int, skeleton: Skeleton, lock: bool = False) -> FrameLabels:
     """Everything an edit can touch in one frame; ``lock`` keeps other writers off its rows
     until the transaction ends."""
-    frame = tx.frames.get(frame_id)
+    frame = tx.frames.get(frame_id, lock=lock)
     if frame is None:
         raise NotFound(f"the project has no frame {frame_id}")
     people = tx.people.of_frame(frame.id, skeleton.num_joints, lock=lock)
@@ -256,7 +256,6 @@ def apply_edit(tx: Tx, edit: Edit, skeleton: Skeleton, author: str, owner: str,
         edit = replace(edit, note_id=tx.counters.take("note_ids"))
     if isinstance(edit, AddRegion) and edit.region_id is None:
         edit = replace(edit, region_id=tx.counters.take("region_ids"))
-    tx.frames.lock([edit.frame_id])
     now = load_labels(tx, edit.frame_id, skeleton, lock=True)
     base = now if seen is None or seen.frame_id != now.frame_id else seen
     ctx = EditContext(author, time.time())
@@ -274,11 +273,13 @@ def apply_edit(tx: Tx, edit: Edit, skeleton: Skeleton, author: str, owner: str,
         state = Change(StateTarget(), FrameState.UNTOUCHED.value, FrameState.CORRECTED.value)
         changes.append(state)
         new = apply_changes(new, [state])
-    write_changes(tx, now, new, changes)
-    group = record(tx, "edit", type(edit).__name__, edit.summary(),
-                   [(edit.frame_id, c) for c in changes], ctx)
-    tx.ledger.push("undo_stack", group, owner)
-    tx.ledger.clear("redo_stack", owner)
+    group = tx.counters.take("group_ids")
+    with tx.batch():
+        write_changes(tx, now, new, changes)
+        tx.ledger.add(group, "edit", type(edit).__name__, edit.summary(), ctx,
+                      [(edit.frame_id, c) for c in changes])
+        tx.ledger.push("undo_stack", group, owner)
+        tx.ledger.clear("redo_stack", owner)
     tx.event("edit", [edit.frame_id])
     return Applied(group, tuple(changes), edit)
 

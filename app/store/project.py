@@ -42,7 +42,7 @@ import uuid
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Any
+from typing import Any, TypeVar
 
 import filelock
 
@@ -74,6 +74,7 @@ _INT64 = (-(2**63), 2**63 - 1)
 _NOT_WRITABLE = (errno.EROFS, errno.EACCES, errno.EPERM)
 
 Listener = Callable[[str, frozenset[int]], None]
+_T = TypeVar("_T")
 
 __all__ = ["DB_NAME", "HOLDER_NAME", "LOCK_NAME", "VIDEO_FRAMES", "Applied", "Bulk",
            "LedgerEntry", "Project", "relative_path"]
@@ -557,10 +558,11 @@ class Project:
         that has not run out. A folder project has one editor, and no claims."""
         if not self.hosted or self.read_only:
             return None
-        with self._write() as tx:
-            claim = tx.claims.take(frame_id, self.author)
+        def run(tx: Tx) -> Claim | None:
             tx.event("claims", [frame_id])
-        return claim
+            return tx.claims.take(frame_id, self.author)
+
+        return self._transact(run)
 
     def release_claim(self) -> None:
         """Give up this annotator's claim (on closing the frame or the project)."""
@@ -591,32 +593,27 @@ class Project:
         changed what and when) if what it changes no longer holds what they show. Without
         ``seen`` the edit is planned from the labels as they are.
         """
-        with self._write(frames=[edit.frame_id]) as tx:
+        def run(tx: Tx) -> Applied:
             applied = ledger.apply_edit(tx, edit, self.skeleton, author or self.author,
                                         self._owner, seen)
             if applied.group_id is not None and self.hosted:
-                tx.claims.take(edit.frame_id, self.author)
-        self._tell(tx)
-        return applied
+                tx.claims.renew(edit.frame_id, self.author)
+            return applied
+
+        return self._transact(run, frames=[edit.frame_id])
 
     def undo(self) -> int | None:
         """Undo the newest action still on the undo stack; returns the new ledger group or
         None when there is nothing to undo. Recorded in the ledger, so it survives a restart.
         On a server each annotator undoes their own actions; one whose changes a colleague has
         changed since is refused, naming who and when."""
-        with self._write() as tx:
-            group = ledger.unwind(tx, "undo_stack", "redo_stack", "undo", self.skeleton,
-                                  self.author, self._owner)
-        self._tell(tx)
-        return group
+        return self._transact(lambda tx: ledger.unwind(
+            tx, "undo_stack", "redo_stack", "undo", self.skeleton, self.author, self._owner))
 
     def redo(self) -> int | None:
         """Redo the newest undone action; returns the new ledger group or None."""
-        with self._write() as tx:
-            group = ledger.unwind(tx, "redo_stack", "undo_stack", "redo", self.skeleton,
-                                  self.author, self._owner)
-        self._tell(tx)
-        return group
+        return self._transact(lambda tx: ledger.unwind(
+            tx, "redo_stack", "undo_stack", "redo", self.skeleton, self.author, self._owner))
 
     def return_to(self, seq: int, frame_id: int | None = None) -> int | None:
         """Bring the labels back to how they were right after ledger entry ``seq``.
@@ -625,11 +622,28 @@ class Project:
         The return is itself one new undoable action (nothing is deleted from the ledger).
         Bulk work (imports, packet records) is not reverted.
         """
-        with self._write() as tx:
-            group = ledger.return_to(tx, seq, frame_id, self.skeleton, self.author,
-                                     self._owner)
-        self._tell(tx)
-        return group
+        return self._transact(lambda tx: ledger.return_to(
+            tx, seq, frame_id, self.skeleton, self.author, self._owner))
+
+    def _transact(self, work: Callable[[Tx], _T], frames: Iterable[int] = ()) -> _T:
+        """Run ``work`` in one write transaction and tell the listeners; a transaction the
+        server gave up to break a deadlock is run again (a few times)."""
+        from app.store.hosted import TryAgain
+
+        attempts = 0
+        while True:
+            try:
+                with self._write(frames) as tx:
+                    result = work(tx)
+            except TryAgain:
+                attempts += 1
+                if attempts > 3:
+                    raise
+                log.info("%s: a transaction was given up to break a deadlock; running it "
+                         "again", self.location)
+                continue
+            self._tell(tx)
+            return result
 
     def _tell(self, tx: Tx) -> None:
         """Tell the listeners what a committed transaction changed."""
