@@ -59,7 +59,7 @@ from app.model.edits import (
     SplitPerson,
     SwapSides,
 )
-from app.model.labels import FrameState
+from app.model.labels import FrameLabels, FrameState, Person
 from app.model.skeleton import Skeleton
 from app.progress import Progress
 from app.review.review import is_review
@@ -90,6 +90,8 @@ log = logging.getLogger(__name__)
 _VISIBILITY_WORD = {0: "unlabeled", 1: "occluded", 2: "visible"}
 #: How long a first digit waits for a second one when there are ten or more people (ms).
 DIGIT_WAIT_MS = 700
+#: How often a hosted project's Worklist looks again at the claims, some of which run out (ms).
+CLAIMS_REFRESH_MS = 30_000
 
 
 class ProjectEvents(QObject):
@@ -139,6 +141,9 @@ class MainWindow(QMainWindow):
         self._typed_timer.setInterval(DIGIT_WAIT_MS)
         self._typed_timer.timeout.connect(self._commit_typed)
         self._maps: tuple[int, Any] | None = None
+        #: The shown frame's labels as read (hosted projects), and the frame claimed.
+        self._seen: FrameLabels | None = None
+        self._claimed: int | None = None
         self._jobs: list[Any] = []
         self._closed = False
         self._remember_layout = restore_layout
@@ -211,6 +216,13 @@ class MainWindow(QMainWindow):
         self.owners.people.clicked.connect(self._back_to_canvas)
         self.owners.candidates.clicked.connect(self._back_to_canvas)
 
+        if project.hosted:
+            # Colleagues' claims run out without a word from the server: look again now and
+            # then (their new claims arrive at once, as notifications).
+            self._claims_timer = QTimer(self)
+            self._claims_timer.setInterval(CLAIMS_REFRESH_MS)
+            self._claims_timer.timeout.connect(self.worklist_model.reload_claims)
+            self._claims_timer.start()
         self._restore_layout(restore_layout)
         self._apply_read_only()
         ids = self.worklist.ordered_ids()
@@ -451,6 +463,10 @@ class MainWindow(QMainWindow):
             job.cancel()
             job.wait()
         if self._owns_project:
+            try:
+                self.project.release_claim()
+            except PosewrightError as exc:  # the server may be gone; the claim runs out
+                log.warning("%s", exc)
             self.project.close()
 
     # ------------------------------------------------------------------ frames
@@ -464,7 +480,7 @@ class MainWindow(QMainWindow):
             return
         self._cancel_typing()
         self.frame_id = frame.id
-        people = self.project.people(frame.id)
+        people = self._read_people(frame.id)
         flags = self._flags(frame.id)
         decoded = self.loader.request(frame.id, self.project.image_path(frame), urgent=True)
         self.canvas.set_frame(frame, people, flags, decoded)
@@ -480,6 +496,22 @@ class MainWindow(QMainWindow):
         # The Ledger and Notes follow a moment later, after the Canvas has shown the frame.
         self._panels_for = frame.id
         QTimer.singleShot(0, self._refresh_side_panels)
+
+    def _read_people(self, frame_id: int) -> list[Person]:
+        """The frame's people as the Canvas will show them. On a hosted project the labels
+        read are kept as what this annotator saw: edits are planned from them, and refused if
+        a colleague changed what they change meanwhile. Opening a frame there claims it."""
+        if not self.project.hosted:
+            self._seen = None
+            return self.project.people(frame_id)
+        self._seen = self.project.labels(frame_id)
+        if frame_id != self._claimed and not self.project.read_only:
+            self._claimed = frame_id
+            try:
+                self.project.claim(frame_id)
+            except PosewrightError as exc:
+                self._message(f"not claimed: {exc}")
+        return list(self._seen.people.values())
 
     def _refresh_side_panels(self) -> None:
         if self._closed or self.frame_id is None or self._panels_for != self.frame_id:
@@ -516,7 +548,7 @@ class MainWindow(QMainWindow):
         if self.frame_id is None:
             return
         frame = self.project.frame(self.frame_id)
-        people = self.project.people(frame.id)
+        people = self._read_people(frame.id)
         flags = self._flags(frame.id)
         self.canvas.frame = frame
         self.canvas.set_people(people, flags)
@@ -578,6 +610,9 @@ class MainWindow(QMainWindow):
     def _on_changed(self, kind: str, frame_ids: frozenset[int]) -> None:
         if self._closed:
             return
+        if kind == "claims":
+            self.worklist_model.reload_claims()
+            return
         if kind in ("import", "frames", "triage"):
             self.worklist_model.reload()
             if self.frame_id is not None:
@@ -611,7 +646,7 @@ class MainWindow(QMainWindow):
                           "here: B goes back to ours")
             return None
         try:
-            return self.project.apply(edit)
+            return self.project.apply(edit, seen=self._seen)
         except EditRefused as exc:
             self._message(f"not done: {exc}")
         except PosewrightError as exc:
