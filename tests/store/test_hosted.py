@@ -326,3 +326,28 @@ def test_a_restarted_server_keeps_every_acknowledged_edit_and_the_client_reconne
             assert person.keypoints[7, 0] != 7.0
     finally:
         server.stop()
+
+
+def test_the_command_line_hosts_and_takes_the_url_wherever_it_takes_a_project(
+        tmp_path, image_dir, coco_file, pg_server, capsys):
+    from app.cli import main
+
+    proj = tmp_path / "proj"
+    assert main(["new", str(proj), "--images", str(image_dir), "-q"]) == 0
+    assert main(["import", str(proj), str(coco_file), "-q"]) == 0
+    url = pg_server.new_database()
+    secret = pg_server.url(url.rpartition("/")[2], password="never-shown")
+    capsys.readouterr()
+    assert main(["host", str(proj), secret, "-q"]) == 0
+    out = capsys.readouterr().out
+    assert out.startswith(f"hosted {proj} at postgresql://") and "never-shown" not in out
+    assert main(["summary", url, "--json", "--images", str(image_dir)]) == 0
+    summary = json.loads(capsys.readouterr().out)
+    assert summary["people"] == 18 and summary["project"] == redact(url)
+    for place, name in ((str(proj), "folder.json"), (url, "hosted.json")):
+        assert main(["export", place, "--out", str(tmp_path / name), "--states", "all"]) == 0
+    assert (tmp_path / "folder.json").read_bytes() == (tmp_path / "hosted.json").read_bytes()
+    capsys.readouterr()
+    assert main(["host", str(proj), url]) == 2  # not empty any more: one line, status 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "not empty" in err and "Traceback" not in err
