@@ -3,7 +3,8 @@
 The store and review suites run against both backends: every test there that takes the
 ``project`` fixture runs once on a folder project (SQLite) and once on a hosted project
 (PostgreSQL, a throwaway server from :mod:`tests.pg`), unless it is marked ``folder_only``
-(it tests what only a folder has: its lock, its files, its read-only folder).
+(it tests what only a folder has: its lock, its files, its read-only folder; or what no
+backend changes, such as a packet's format).
 """
 
 from __future__ import annotations
@@ -22,8 +23,8 @@ BOTH_BACKENDS = ("store", "review")
 
 
 def pytest_configure(config: pytest.Config) -> None:
-    config.addinivalue_line("markers", "folder_only: a store test about what only a folder "
-                                       "project has (runs on SQLite alone)")
+    config.addinivalue_line("markers", "folder_only: a store or review test about what only a "
+                                       "folder has or no backend changes (runs on SQLite alone)")
 
 
 def pytest_generate_tests(metafunc: pytest.Metafunc) -> None:

@@ -96,6 +96,8 @@ class Server:
     def new_database(self) -> str:
         """A fresh, empty database; returns its URL (as the admin role)."""
         name = f"t{os.getpid()}_{next(self._names)}"
-        self.admin(f"CREATE DATABASE {name}")
+        # FILE_COPY: a plain copy of the template's files, the quickest way for a small
+        # database (PostgreSQL 15 documentation, CREATE DATABASE).
+        self.admin(f"CREATE DATABASE {name} STRATEGY = FILE_COPY")
         self.admin(f"GRANT ALL ON SCHEMA public TO {PASSWORD_ROLE}", name)
         return self.url(name)

@@ -271,7 +271,7 @@ class _Listener(threading.Thread):
                         self._deliver("import", frozenset(), "")
                     wait, lost = 0.2, False
                     while not self._stopping.is_set():
-                        for note in conn.notifies(timeout=0.25):
+                        for note in conn.notifies(timeout=0.1):
                             self._dispatch(note.payload)
             except psycopg.Error as exc:
                 if not lost:

@@ -99,6 +99,7 @@ def _symlink(name: str) -> zipfile.ZipInfo:
     return info
 
 
+@pytest.mark.folder_only  # the packet's format: no backend changes it
 @pytest.mark.filterwarnings("ignore:Duplicate name")
 @pytest.mark.parametrize("make, words", [
     (lambda lp, t: _with_member(lp, t, "../outside.txt"), "'../outside.txt': the name leaves"),
@@ -131,12 +132,14 @@ def test_a_zip_bomb_is_refused_unread(labelled, tmp_path):
     assert not review_folder(bad).exists()
 
 
+@pytest.mark.folder_only  # the packet's format: no backend changes it
 def test_the_total_size_bound_holds(labelled, tmp_path):
     path = _valid(labelled, tmp_path)
     with pytest.raises(BadInput, match="inflates past 1000 bytes"):
         read_packet(path, limits=safezip.Limits(max_total=1000))
 
 
+@pytest.mark.folder_only  # the packet's format: no backend changes it
 @pytest.mark.parametrize("cut", [0.5, 0.97])
 def test_a_truncated_packet_is_refused(labelled, tmp_path, cut):
     data = _valid(labelled, tmp_path).read_bytes()
@@ -147,6 +150,7 @@ def test_a_truncated_packet_is_refused(labelled, tmp_path, cut):
     assert not review_folder(bad).exists()
 
 
+@pytest.mark.folder_only  # the packet's format: no backend changes it
 def test_tampered_members_are_refused(labelled, tmp_path):
     path = _valid(labelled, tmp_path)
 
@@ -205,6 +209,7 @@ def test_a_packet_not_yet_returned_cannot_be_merged(labelled, tmp_path):
         merge_packet(labelled, send(labelled, tmp_path / "p.zip"))
 
 
+@pytest.mark.folder_only  # the packet's format: no backend changes it
 def test_values_that_do_not_fit_the_skeleton_are_refused(labelled, tmp_path):
     path = _valid(labelled, tmp_path)
     with zipfile.ZipFile(path) as z:
@@ -250,6 +255,7 @@ def test_blurred_heads_packet_changes_heads_only(labelled, tmp_path):
     assert (sent[core] != original[core]).any(axis=1).mean() > 0.9
 
 
+@pytest.mark.folder_only  # the packet's format: no backend changes it
 @pytest.mark.parametrize("labels_text, words", [
     ('{"frames": [' * 20_000, "nested too deeply"),
     ('{"frames": [{"id": 1, "people": [], "notes": [], "x": 1e999}]}',
@@ -302,6 +308,7 @@ def _put(path: list[Any], value: Any) -> Callable[[Any], None]:
     return change
 
 
+@pytest.mark.folder_only  # the packet's format: no backend changes it
 @pytest.mark.parametrize("member, path, value, words", [
     ("manifest.json", ["reviewer"], _HOSTILE, "field reviewer: a name must be printable"),
     ("manifest.json", ["exported_by"], _HOSTILE, "field exported_by: a name must be"),
