@@ -119,7 +119,7 @@ class Tx:
 
     def rows(self, sql: str, args: Sequence[Any] = ()) -> list[tuple[Any, ...]]:
         self._cur.execute(self.dialect.sql(sql), tuple(args))
-        return [tuple(r) for r in self._cur.fetchall()]
+        return self._cur.fetchall()  # tuples from both drivers
 
     def row(self, sql: str, args: Sequence[Any] = ()) -> tuple[Any, ...] | None:
         self._cur.execute(self.dialect.sql(sql), tuple(args))
