@@ -22,7 +22,7 @@ from app.progress import Progress
 from app.store.db import Tx
 from app.store.hosted import PostgresDatabase
 from app.store.meta import META_COUNTERS
-from app.store.project import Project, relative_path
+from app.store.project import Project, project_in_use, relative_path
 from app.store.schema import SCHEMA_VERSION, apply_migration
 
 #: Settings that belong to the folder (its counters are sequences on a server, its map runs
@@ -38,7 +38,13 @@ def host(folder: str | Path, url: str, progress: Progress | None = None) -> dict
     project is a review packet's, or when the project is open for editing elsewhere.
     """
     progress = progress or Progress()
-    with Project.open(folder, read_only=True) as source:
+    # Held for editing while it is copied, so that the copy is of one moment (a folder that
+    # cannot be written is copied read-only: nobody can change it either).
+    with Project.open(folder, author="posewright host") as source:
+        holder = project_in_use(folder) if source.read_only else None
+        if holder is not None:
+            raise BadInput(f"the project is {holder}", where=str(folder),
+                           hint="close it there first, then host it")
         if source.meta("review_packet") is not None:
             raise BadInput("a project opened from a review packet stays a folder",
                            where=str(folder), hint="host the project the packet came from")

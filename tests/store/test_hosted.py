@@ -145,6 +145,28 @@ def test_host_refuses_a_database_that_is_not_empty_and_writes_nothing(hosted, tm
         assert p.counts()["people"] == 18
 
 
+def test_host_refuses_a_project_open_for_editing_elsewhere(tmp_path, image_dir, pg_url):
+    code = textwrap.dedent(f"""
+        import sys, time
+        sys.path.insert(0, {ROOT!r})
+        from app.store import Project
+        p = Project.open({str(tmp_path / 'proj')!r}, author="bea")
+        print("held", flush=True)
+        time.sleep(60)
+    """)
+    new_project(tmp_path / "proj", images=image_dir, author="ana").close()
+    child = subprocess.Popen([sys.executable, "-c", code], stdout=subprocess.PIPE, text=True)
+    try:
+        assert child.stdout.readline().strip() == "held"
+        with pytest.raises(BadInput, match="open for editing by bea"):
+            host(tmp_path / "proj", pg_url)
+    finally:
+        child.kill()
+        child.wait()
+    with pytest.raises(NotFound):  # nothing was written
+        Project.open(pg_url, author="ana")
+
+
 def test_an_empty_database_is_no_project(pg_url):
     with pytest.raises(NotFound, match="posewright host"):
         Project.open(pg_url, author="ana")
