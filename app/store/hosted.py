@@ -29,12 +29,15 @@ mapping layer would add a second description of the tables and nothing else.
 
 from __future__ import annotations
 
+import contextlib
 import json
 import logging
 import os
 import re
 import threading
+import time
 import uuid
+import weakref
 from collections.abc import Callable, Iterable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
@@ -60,6 +63,8 @@ _BULK_LOCK = 0x506F7365
 _MAX_NOTIFIED = 400
 #: How long an action waits for a connection before saying the server cannot be reached.
 CONNECT_SECONDS = 5.0
+#: A pooled connection used this recently is handed out without asking the server first.
+_FRESH_SECONDS = 2.0
 
 #: What the listener thread delivers: ``(kind, frame ids, session)``; an empty set of frame ids
 #: for bulk work means "any frame".
@@ -136,6 +141,7 @@ class PostgresDatabase(Database):
 
     def __init__(self, conninfo: str, pool_size: int = 4):
         import psycopg
+        import psycopg_pool
         from psycopg_pool import ConnectionPool, PoolTimeout
 
         self._conninfo = conninfo
@@ -143,10 +149,11 @@ class PostgresDatabase(Database):
         #: Tells this process's own notifications from other annotators'.
         self.session = uuid.uuid4().hex
         self._psycopg = psycopg
+        self._psycopg_pool = psycopg_pool
         self._listener: _Listener | None = None
+        self._used: weakref.WeakKeyDictionary[Any, float] = weakref.WeakKeyDictionary()
         self.pool = ConnectionPool(conninfo, min_size=1, max_size=pool_size, open=False,
-                                   kwargs={"autocommit": True},
-                                   check=ConnectionPool.check_connection,
+                                   kwargs={"autocommit": True}, check=self._check,
                                    name="posewright")
         try:
             # One plain connection first: it fails at once, with libpq's reason, where the
@@ -156,6 +163,15 @@ class PostgresDatabase(Database):
         except (PoolTimeout, psycopg.Error) as exc:
             self.pool.close()
             raise StorageFailed(self._unreachable(exc)) from None
+
+    def _check(self, conn: Any) -> None:
+        """Before a connection is handed out: one that has been idle for a while is asked
+        whether it still works (a restarted server dropped it), and replaced if not; one
+        used a moment ago is not, which saves each busy annotator a round trip per action."""
+        now = time.monotonic()
+        if now - self._used.get(conn, -1e9) > _FRESH_SECONDS:
+            self._psycopg_pool.ConnectionPool.check_connection(conn)
+        self._used[conn] = now
 
     def _unreachable(self, exc: BaseException) -> str:
         cause = _first_line(exc) if isinstance(exc, self._psycopg.Error) else \
@@ -172,13 +188,25 @@ class PostgresDatabase(Database):
         return ""
 
     @contextmanager
-    def _connection(self) -> Iterator[Any]:
+    def _connection(self, begin: bool = False) -> Iterator[Any]:
+        """A pooled connection, the driver's errors turned into ours. ``begin`` starts a
+        transaction on it; a connection the server dropped (a restart) fails right there,
+        before anything of the transaction was sent, and is replaced by a fresh one."""
         psycopg = self._psycopg
         from psycopg_pool import PoolTimeout
 
         try:
-            with self.pool.connection(timeout=CONNECT_SECONDS) as conn:
-                yield conn
+            for attempt in range(2):
+                with self.pool.connection(timeout=CONNECT_SECONDS) as conn:
+                    if begin:
+                        try:
+                            conn.execute("BEGIN")
+                        except psycopg.OperationalError:
+                            if attempt:
+                                raise
+                            continue  # the pool drops the broken connection on its return
+                    yield conn
+                    return
         except PoolTimeout as exc:
             raise StorageFailed(self._unreachable(exc) + "; the action was not kept") from None
         except psycopg.errors.InsufficientPrivilege as exc:
@@ -205,15 +233,23 @@ class PostgresDatabase(Database):
 
     @contextmanager
     def write(self, frames: Iterable[int] = (), exclusive: bool = False) -> Iterator[Tx]:
-        with self._connection() as conn, conn.transaction(), conn.cursor() as cur:
-            lock = "pg_advisory_xact_lock" if exclusive else "pg_advisory_xact_lock_shared"
-            cur.execute(f"SELECT {lock}(%s)", (_BULK_LOCK,))
-            tx = Tx(cur, POSTGRES, writing=True)
-            yield tx
-            # Delivered to listeners only if the transaction commits (PostgreSQL holds
-            # notifications until then).
-            tx.run_many("SELECT pg_notify(?, ?)", [(CHANNEL, _payload(kind, ids, self.session))
-                                                   for kind, ids in tx.events])
+        with self._connection(begin=True) as conn, conn.cursor() as cur:
+            try:
+                lock = "pg_advisory_xact_lock" if exclusive else "pg_advisory_xact_lock_shared"
+                cur.execute(f"SELECT {lock}(%s)", (_BULK_LOCK,))
+                tx = Tx(cur, POSTGRES, writing=True)
+                yield tx
+                # Delivered to listeners only if the transaction commits (PostgreSQL holds
+                # notifications until then).
+                tx.run_many("SELECT pg_notify(?, ?)",
+                            [(CHANNEL, _payload(kind, ids, self.session))
+                             for kind, ids in tx.events])
+                cur.execute("COMMIT")
+            except BaseException:
+                if not conn.closed:
+                    with contextlib.suppress(self._psycopg.Error):
+                        conn.execute("ROLLBACK")
+                raise
 
     def listen(self, deliver: Deliver) -> None:
         """Start a thread that calls ``deliver(kind, frame_ids, session)`` for every change

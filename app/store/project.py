@@ -75,6 +75,8 @@ _NOT_WRITABLE = (errno.EROFS, errno.EACCES, errno.EPERM)
 
 Listener = Callable[[str, frozenset[int]], None]
 _T = TypeVar("_T")
+#: An edit renews its annotator's claim at most this often (a claim stands for minutes).
+_RENEW_SECONDS = 30.0
 
 __all__ = ["DB_NAME", "HOLDER_NAME", "LOCK_NAME", "VIDEO_FRAMES", "Applied", "Bulk",
            "LedgerEntry", "Project", "relative_path"]
@@ -121,6 +123,8 @@ class Project:
         #: What opening cleaned up after an interrupted run (a phrase each; empty if nothing).
         self.recovered: tuple[str, ...] = ()
         self._listeners: list[Listener] = []
+        #: When this annotator's claim on a frame was last renewed by an edit (monotonic s).
+        self._renewed: dict[int, float] = {}
         with db.read() as tx:
             self._meta = tx.meta.all()
         self.skeleton: Skeleton = skeleton_from_dict(json.loads(self._meta["skeleton"]))
@@ -593,14 +597,20 @@ class Project:
         changed what and when) if what it changes no longer holds what they show. Without
         ``seen`` the edit is planned from the labels as they are.
         """
+        renew = self.hosted and time.monotonic() - self._renewed.get(edit.frame_id, -1e9) \
+            > _RENEW_SECONDS
+
         def run(tx: Tx) -> Applied:
             applied = ledger.apply_edit(tx, edit, self.skeleton, author or self.author,
                                         self._owner, seen)
-            if applied.group_id is not None and self.hosted:
+            if applied.group_id is not None and renew:
                 tx.claims.renew(edit.frame_id, self.author)
             return applied
 
-        return self._transact(run, frames=[edit.frame_id])
+        applied = self._transact(run, frames=[edit.frame_id])
+        if renew and applied.group_id is not None:
+            self._renewed = {edit.frame_id: time.monotonic()}
+        return applied
 
     def undo(self) -> int | None:
         """Undo the newest action still on the undo stack; returns the new ledger group or
