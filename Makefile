@@ -35,7 +35,7 @@ else
 endif
 
 test: $(TEST_STAMP)
-	QT_QPA_PLATFORM=offscreen $(BIN)/python -m pytest
+	QT_QPA_PLATFORM=offscreen $(BIN)/python -m pytest -n auto
 
 bench: $(TEST_STAMP)
 	QT_QPA_PLATFORM=offscreen $(BIN)/python -m tests.benchmarks.run
@@ -46,7 +46,7 @@ lint: $(TEST_STAMP)
 
 demo: $(RUN_STAMP)
 	rm -rf demo_project/images demo_project/maps demo_project/project.db*
-	$(BIN)/posewright demo demo_project
+	$(BIN)/posewright demo demo_project --force
 
 clean:
 	rm -rf $(VENV) .pytest_cache .mypy_cache .ruff_cache .hypothesis bench-results.json

@@ -2,6 +2,9 @@
 
 Every command that meets bad input exits with status 2 after one line on stderr that says what
 is wrong and where (file, record, field), without a traceback and without writing anything.
+Output cut short by its reader (``posewright history P | head``) ends the command quietly with
+status 141, what a shell reports for a command stopped by SIGPIPE (128 + 13), as the other
+commands of such a pipeline do (common practice, no source).
 Text that came from a file (names, file names, ledger entries, messages quoting them) is
 printed through :func:`app.safetext.shown`, so a file cannot drive the terminal.
 """
@@ -9,27 +12,91 @@ printed through :func:`app.safetext.shown`, so a file cannot drive the terminal.
 from __future__ import annotations
 
 import argparse
+import difflib
 import json
 import logging
+import os
+import sqlite3
 import sys
 import time
 from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any, NoReturn
 
+from app import __version__
 from app.errors import BadInput, Cancelled, PosewrightError, ProjectLocked
+from app.fileio import MAX_ID, json_ready, read_json
 from app.model.labels import FrameState
 from app.progress import Progress
 from app.safetext import shown
+from app.wording import count
 
-log = logging.getLogger("posewright")
+#: Exit status when the reader of our output went away (128 + SIGPIPE).
+BROKEN_PIPE_STATUS = 141
 
 
 class _Parser(argparse.ArgumentParser):
-    """argparse that reports a usage error in one line (status 2), like every other error."""
+    """argparse that reports a usage error in one line (status 2), like every other error, and
+    names a mistyped option rather than the required one it hides."""
+
+    _given: Sequence[str] = ()
+
+    def parse_known_args(self, args: Sequence[str] | None = None,  # type: ignore[override]
+                         namespace: argparse.Namespace | None = None,
+                         ) -> tuple[argparse.Namespace, list[str]]:
+        self._given = list(sys.argv[1:] if args is None else args)
+        return super().parse_known_args(args, namespace)
 
     def error(self, message: str) -> NoReturn:
+        unknown = self._unknown_option()
+        if unknown is not None and message.startswith("the following arguments are required"):
+            # argparse checks required options before it reports unknown ones, so `--outt`
+            # would read as a missing `--out`.
+            near = difflib.get_close_matches(unknown, list(self._option_string_actions), n=1)
+            message = f"unrecognized argument {unknown}" + \
+                (f" (did you mean {near[0]}?)" if near else "")
         self.exit(2, f"{self.prog}: error: {message} (see --help)\n")
+
+    def _unknown_option(self) -> str | None:
+        """The first option string given to this parser that it does not know."""
+        known = self._option_string_actions
+        for arg in self._given:
+            if arg == "--":
+                return None
+            if not arg.startswith("-") or arg == "-" or self._negative_number_matcher.match(arg):
+                continue
+            name = arg.split("=", 1)[0]
+            if name in known or (self.allow_abbrev and name.startswith("--") and
+                                 sum(option.startswith(name) for option in known) == 1):
+                continue
+            return name
+        return None
+
+
+def whole_number(low: int = -MAX_ID, high: int = MAX_ID) -> Callable[[str], int]:
+    """An argparse ``type`` for a whole-number option between ``low`` and ``high`` (by default
+    the ids a project can hold, :data:`app.fileio.MAX_ID`), so that no number too large for
+    the database or the work it sizes gets past the command line.
+
+    Examples
+    --------
+    >>> whole_number(1, 9)("4")
+    4
+    >>> whole_number(1, 9)("12")
+    Traceback (most recent call last):
+    ...
+    argparse.ArgumentTypeError: 12 is not between 1 and 9
+    """
+    def parse(text: str) -> int:
+        try:
+            value = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text[:40]!r} is not a whole number") from None
+        if not low <= value <= high:
+            raise argparse.ArgumentTypeError(f"{value} is not between {low} and {high}")
+        return value
+
+    return parse
 
 
 def _stderr_progress(quiet: bool) -> Progress:
@@ -52,36 +119,39 @@ def _open(args: argparse.Namespace, write: bool = True, say_why: bool = True):  
     from app.jobs import open_project
 
     project = open_project(args.project, author=getattr(args, "author", None),
-                           progress=_stderr_progress(getattr(args, "quiet", False)))
+                           progress=_stderr_progress(getattr(args, "quiet", False)),
+                           images=getattr(args, "images_root", None))
     if write and project.read_only:
         reason = project.read_only_reason
         project.close()
         raise ProjectLocked(f"{args.project}: cannot change the project: it is {reason}")
     if project.read_only and say_why:
-        print(f"posewright: note: {args.project} is read-only: {project.read_only_reason}",
-              file=sys.stderr)
+        print(f"posewright: note: {shown(args.project)} is read-only: "
+              f"{shown(project.read_only_reason)}", file=sys.stderr)
     return project
 
 
-def _print_json(data: Any) -> None:
-    json.dump(data, sys.stdout, indent=2, default=str)
+def print_json(data: Any) -> None:
+    """``data`` as JSON on stdout for a program to read: a number that is not defined (a NaN,
+    such as the mean of nothing) or not finite is ``null``."""
+    json.dump(json_ready(data)[0], sys.stdout, indent=2, default=str, allow_nan=False)
     sys.stdout.write("\n")
 
 
 def _report_counts(args: argparse.Namespace, stats: dict[str, Any]) -> int:
     """What an import added: JSON with ``--json``, else one line."""
     if args.json:
-        _print_json(stats)
+        print_json(stats)
     else:
-        print("imported " + ", ".join(f"{v} {k}" for k, v in stats.items()))
+        print("imported " + ", ".join(count(v, k) for k, v in stats.items()))
     return 0
 
 
 # ---------------------------------------------------------------------- commands
 
 def cmd_new(args: argparse.Namespace) -> int:
+    from app.jobs import new_project
     from app.model.skeleton import load_skeleton
-    from app.store import Project
 
     skeleton = load_skeleton(args.skeleton) if args.skeleton else None
     if (args.images is None) == (args.video is None):
@@ -89,14 +159,11 @@ def cmd_new(args: argparse.Namespace) -> int:
     video_options = _video_options(args)
     if args.video is not None:
         return _new_from_video(args, skeleton, video_options)
-    with Project.create(args.project, images=args.images, skeleton=skeleton, author=args.author,
-                        progress=_stderr_progress(args.quiet)) as project:
+    with new_project(args.project, images=args.images, skeleton=skeleton, author=args.author,
+                     progress=_stderr_progress(args.quiet)) as project:
         frames = project.frames()
-        bad = [f for f in frames if f.status != "ok"]
-        for f in bad:
-            print(f"posewright: warning: {shown(f.path)}: image is {f.status}; registered and "
-                  "marked", file=sys.stderr)
-        print(f"created {args.project}: {len(frames)} frames"
+        bad = [f for f in frames if f.status != "ok"]  # each was warned about as it was read
+        print(f"created {shown(args.project)}: {count(len(frames), 'frames')}"
               + (f", {len(bad)} unreadable" if bad else ""))
     return 0
 
@@ -117,6 +184,7 @@ def _new_from_video(args: argparse.Namespace, skeleton: Any, options: dict[str, 
     """``new --video``: the video is checked before the project exists, and a project whose
     frames could not be extracted is removed again, so a failed ``new`` leaves nothing."""
     from app.formats.video import probe_video
+    from app.jobs import add_video_frames
     from app.store import Project
     from app.store.project import DB_NAME, HOLDER_NAME, LOCK_NAME, VIDEO_FRAMES
 
@@ -126,8 +194,8 @@ def _new_from_video(args: argparse.Namespace, skeleton: Any, options: dict[str, 
     project = Project.create(folder, skeleton=skeleton, author=args.author)
     try:
         with project:
-            frames = project.add_video_frames(args.video, progress=_stderr_progress(args.quiet),
-                                              **options)
+            frames = add_video_frames(project, args.video,
+                                      progress=_stderr_progress(args.quiet), **options)
     except BaseException:
         for name in (DB_NAME, DB_NAME + "-wal", DB_NAME + "-shm", HOLDER_NAME, LOCK_NAME):
             (folder / name).unlink(missing_ok=True)
@@ -135,7 +203,7 @@ def _new_from_video(args: argparse.Namespace, skeleton: Any, options: dict[str, 
             if made.is_dir() and not any(made.iterdir()):
                 made.rmdir()
         raise
-    print(f"created {args.project}: {_video_summary(frames)}")
+    print(f"created {shown(args.project)}: {_video_summary(frames)}")
     return 0
 
 
@@ -143,20 +211,23 @@ def _video_summary(frames: Sequence[Any]) -> str:
     if not frames:
         return "no new frames (the project has them all)"
     first, last = frames[0], frames[-1]
-    return (f"{len(frames)} frames (video frames {first.video_index} to {last.video_index}, "
+    return (f"{count(len(frames), 'frames')} (video frames {first.video_index} to "
+            f"{last.video_index}, "
             f"{first.timestamp:.2f} s to {last.timestamp:.2f} s)")
 
 
 def cmd_add(args: argparse.Namespace) -> int:
+    from app.jobs import add_images, add_video_frames
+
     options = _video_options(args)
     with _open(args) as project:
         if args.video is not None:
-            added = project.add_video_frames(args.video, progress=_stderr_progress(args.quiet),
-                                             **options)
-            print(f"added to {args.project}: {_video_summary(added)}")
+            added = add_video_frames(project, args.video, progress=_stderr_progress(args.quiet),
+                                     **options)
+            print(f"added to {shown(args.project)}: {_video_summary(added)}")
             return 0
-        added = project.add_images(args.images, progress=_stderr_progress(args.quiet))
-        print(f"added {len(added)} frames to {args.project}")
+        added = add_images(project, args.images, progress=_stderr_progress(args.quiet))
+        print(f"added {count(len(added), 'frames')} to {shown(args.project)}")
     return 0
 
 
@@ -175,7 +246,8 @@ def cmd_export(args: argparse.Namespace) -> int:
         stats = export_coco(project, args.out, states=_states(args.states))
     _warn_export(stats)
     note = left_out_note(stats)
-    print(f"wrote {args.out}: {stats['images']} images, {stats['people']} people"
+    print(f"wrote {shown(args.out)}: {count(stats['images'], 'images')}, "
+          f"{count(stats['people'], 'people')}"
           + (f"; {note} (--states all takes every state)" if note else ""))
     return 0
 
@@ -192,7 +264,7 @@ def cmd_history(args: argparse.Namespace) -> int:
         frame_id = project.find_frame(args.frame).id if args.frame is not None else None
         entries = project.history(frame_id=frame_id, limit=args.limit)
     if args.json:
-        _print_json([e.__dict__ for e in entries])
+        print_json([e.__dict__ for e in entries])
         return 0
     for e in entries:
         when = time.strftime("%Y-%m-%d %H:%M:%S", time.localtime(e.time))
@@ -208,7 +280,7 @@ def cmd_summary(args: argparse.Namespace) -> int:
     with _open(args, write=False, say_why=False) as project:  # the summary says it
         info = summary(project)
     if args.json:
-        _print_json(info)
+        print_json(info)
     else:
         for key, value in info.items():
             if value is not None:
@@ -216,14 +288,50 @@ def cmd_summary(args: argparse.Namespace) -> int:
     return 0
 
 
+def cmd_mend(args: argparse.Namespace) -> int:
+    from app.jobs import mend_numbers
+
+    with _open(args) as project:
+        notes = mend_numbers(project)
+    for note in notes:
+        print(f"mended {shown(note)}")
+    print(f"{shown(args.project)}: " + (f"mended {count(len(notes), 'fields')}" if notes
+                                        else "every number is finite; nothing to mend"))
+    return 0
+
+
 def cmd_demo(args: argparse.Namespace) -> int:
     from app.demo import DEFAULT_SEED, generate
 
     out = Path(args.dir)
+    _check_demo_target(out, args.force)
     generate(out, seed=DEFAULT_SEED if args.seed is None else args.seed, frames=args.frames,
              progress=_stderr_progress(args.quiet))
-    print(f"wrote the demo scenario to {out}; open it with `posewright open {out}`")
+    print(f"wrote the demo scenario to {shown(out)}; open it with "
+          f"`posewright open {shown(out)}`")
     return 0
+
+
+def _check_demo_target(out: Path, force: bool) -> None:
+    """Refuse to write the demo over a project or an earlier demo unless ``force``; with it, a
+    project database built from the old sources is removed, so the next open builds it from
+    the new ones (refused while another process has the project open)."""
+    from app.jobs import SOURCES_NAME
+    from app.store.project import DB_NAME, project_in_use
+
+    if not out.is_dir():
+        return
+    ours = [name for name in (DB_NAME, SOURCES_NAME, "truth.json", "images", "maps")
+            if (out / name).exists()]
+    if ours and not force:
+        raise BadInput(f"already holds {ours[0]}; the demo would replace its images, maps and "
+                       "true poses", where=str(out), hint="give --force to write it anyway")
+    if (out / DB_NAME).exists():
+        holder = project_in_use(out)
+        if holder:
+            raise ProjectLocked(f"{out}: cannot replace the project: it is {holder}")
+        for name in (DB_NAME, DB_NAME + "-wal", DB_NAME + "-shm"):
+            (out / name).unlink(missing_ok=True)
 
 
 def cmd_import_maps(args: argparse.Namespace) -> int:
@@ -244,10 +352,10 @@ def cmd_triage(args: argparse.Namespace) -> int:
     if args.limit is not None:
         ranked = ranked[: args.limit]
     if args.json:
-        _print_json([{"frame": fid, "file_name": frames[fid].file_name,
-                      "score": round(t.score, 4), "crowd_index": round(t.crowd_index, 4),
-                      "flagged_people": t.flagged,
-                      "reasons": [r.to_dict() for r in t.reasons]} for fid, t in ranked])
+        print_json([{"frame": fid, "file_name": frames[fid].file_name,
+                     "score": round(t.score, 4), "crowd_index": round(t.crowd_index, 4),
+                     "flagged_people": t.flagged,
+                     "reasons": [r.to_dict() for r in t.reasons]} for fid, t in ranked])
         return 0
     for fid, t in ranked:
         kinds = sorted({r.kind for r in t.reasons})
@@ -272,7 +380,8 @@ def cmd_targets(args: argparse.Namespace) -> int:
                                progress=_stderr_progress(args.quiet))
     _warn_export(stats)
     note = left_out_note(stats)
-    print(f"wrote {stats['frames']} frames of training targets to {stats['out']}"
+    print(f"wrote {count(stats['frames'], 'frames')} of training targets to "
+          f"{shown(stats['out'])}"
           + (f"; {note} (--states all takes every state)" if note else ""))
     return 0
 
@@ -286,7 +395,7 @@ def _check_targets(args: argparse.Namespace) -> int:
     report = check_targets(out, progress=_stderr_progress(args.quiet))
     problems = list(report.problems)
     if args.out_dir is not None:
-        manifest = json.loads((out / "manifest.json").read_text(encoding="utf-8"))
+        manifest = read_json(out / "manifest.json", "the manifest")
         with _open(args, write=False) as project:
             if manifest.get("project_id") != project.project_id:
                 problems.append(f"{out / 'manifest.json'}: field project_id: the export was "
@@ -298,7 +407,7 @@ def _check_targets(args: argparse.Namespace) -> int:
         print(f"posewright: error: {shown(problem)}", file=sys.stderr)
     if problems:
         return 2
-    print(f"ok: {report.frames} frames checked in {out}")
+    print(f"ok: {count(report.frames, 'frames')} checked in {shown(out)}")
     return 0
 
 
@@ -312,14 +421,25 @@ def cmd_prelabel(args: argparse.Namespace) -> int:
         stats = prelabel(project, args.model, args.config, frames=frames,
                          progress=_stderr_progress(args.quiet))
     if args.json:
-        _print_json(stats)
+        print_json(stats)
     else:
-        print(f"pre-labelled {stats.get('frames', 0)} frames with {Path(args.model).name}: "
-              f"{stats.get('people', 0)} people on {stats.get('frames grouped', 0)} frames"
-              + (f"; {stats['frames kept']} frames kept their labels"
+        print(f"pre-labelled {count(stats.get('frames', 0), 'frames')} with "
+              f"{shown(Path(args.model).name)}: {count(stats.get('people', 0), 'people')} on "
+              f"{count(stats.get('frames grouped', 0), 'frames')}"
+              + (f"; {count(stats['frames kept'], 'frames')} kept their labels"
                  if stats.get("frames kept") else "")
-              + (f"; {stats['unreadable']} unreadable images skipped"
+              + (f"; {count(stats['unreadable'], 'unreadable images')} skipped"
                  if stats.get("unreadable") else ""))
+    return 0
+
+
+def cmd_host(args: argparse.Namespace) -> int:
+    from app.store.hosted import redact
+    from app.store.hosting import host
+
+    counts = host(args.project, args.url, progress=_stderr_progress(args.quiet))
+    print(f"hosted {shown(args.project)} at {shown(redact(args.url))}: "
+          + ", ".join(count(n, what) for what, n in counts.items()))
     return 0
 
 
@@ -372,6 +492,7 @@ def _limits(args: argparse.Namespace) -> None:
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="posewright", description=__doc__.splitlines()[0])
     parser.add_argument("-v", "--verbose", action="store_true", help="log what happens")
+    parser.add_argument("--version", action="version", version=f"%(prog)s {__version__}")
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND",
                                 parser_class=_Parser)
 
@@ -379,7 +500,8 @@ def build_parser() -> argparse.ArgumentParser:
                 project: bool = True) -> argparse.ArgumentParser:
         p = sub.add_parser(name, help=text, description=text)
         if project:
-            p.add_argument("project", metavar="PROJECT", help="the project folder")
+            p.add_argument("project", metavar="PROJECT",
+                           help="the project folder, or a hosted project's database URL")
         p.add_argument("--author", help="who is working (default: $POSEWRIGHT_AUTHOR or the "
                                         "login name)")
         p.add_argument("-q", "--quiet", action="store_true", help="no progress on stderr")
@@ -392,7 +514,7 @@ def build_parser() -> argparse.ArgumentParser:
                             "$POSEWRIGHT_MAX_MEGAPIXELS, else 100); larger ones are unreadable")
 
     def video_options(p: argparse.ArgumentParser) -> None:
-        p.add_argument("--every", type=int, metavar="N",
+        p.add_argument("--every", type=whole_number(), metavar="N",
                        help="with --video: keep every N-th frame (default 1)")
         p.add_argument("--start", metavar="T",
                        help="with --video: from this time (seconds, or m:ss or h:mm:ss)")
@@ -425,7 +547,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = command("history", cmd_history, "show the ledger of edits, newest first")
     p.add_argument("--frame", metavar="ID", help="only this frame (id or file name)")
-    p.add_argument("--limit", type=int, metavar="N")
+    p.add_argument("--limit", type=whole_number(0), metavar="N")
     p.add_argument("--json", action="store_true")
 
     p = command("summary", cmd_summary, "what the project holds")
@@ -438,7 +560,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = command("triage", cmd_triage, "rank frames by suspicion, with reasons (stored)")
     p.add_argument("--json", action="store_true")
-    p.add_argument("--limit", type=int, metavar="N", help="show only the N worst frames")
+    p.add_argument("--limit", type=whole_number(0), metavar="N",
+                   help="show only the N worst frames")
 
     p = command("targets", cmd_targets,
                 "write training targets (confidence maps, PAFs, loss masks) per frame (by "
@@ -447,7 +570,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--check", action="store_true",
                    help="re-read the export in OUT_DIR and verify shapes, ranges and the "
                         "manifest; writes nothing (`targets --check OUT_DIR` needs no project)")
-    p.add_argument("--stride", type=int, default=8)
+    p.add_argument("--stride", type=whole_number(), default=8)
     p.add_argument("--sigma", type=float, default=7.0, help="confidence-map sigma, image px")
     p.add_argument("--limb-width", type=float, default=8.0, help="PAF half-width, image px")
     p.add_argument("--dtype", choices=("float16", "float32"), default="float32")
@@ -477,14 +600,27 @@ def build_parser() -> argparse.ArgumentParser:
     p = command("render", cmd_render, "draw one frame with its labels, as the Canvas shows it")
     p.add_argument("--frame", metavar="ID", required=True, help="frame id or image file name")
     p.add_argument("--out", metavar="FILE.png", required=True)
-    p.add_argument("--focus", metavar="PERSON", type=int, help="dim everyone but this person")
+    p.add_argument("--focus", metavar="PERSON", type=whole_number(),
+                   help="dim everyone but this person")
     pixel_limit(p)
+
+    p = command("mend", cmd_mend, "replace NaN and infinite numbers kept from an import made "
+                                  "before they were refused, so exports write what it holds")
+
+    p = command("host", cmd_host, "copy a folder project into an empty PostgreSQL database, "
+                "for a team to edit at once")
+    p.add_argument("url", metavar="URL", help="the database: postgresql://USER@HOST:PORT/DB or "
+                   "any libpq form (host=... dbname=..., service=NAME); the password comes "
+                   "from PGPASSWORD, the password file or a service file, never the URL")
 
     p = command("demo", cmd_demo, "generate the synthetic demo scenario in DIR", project=False)
     p.add_argument("dir", metavar="DIR")
-    p.add_argument("--seed", type=int, default=None,
+    p.add_argument("--force", action="store_true",
+                   help="write over a project or an earlier demo in DIR (its project database "
+                        "is rebuilt from the new sources when next opened)")
+    p.add_argument("--seed", type=whole_number(0), default=None,
                    help="another seed gives another rehearsal (default: the shipped one)")
-    p.add_argument("--frames", type=int, default=24)
+    p.add_argument("--frames", type=whole_number(1, 10_000), default=24)
 
     # Review packets and comparing labels: app/review/commands.py.
     from app.review.commands import register as register_review
@@ -494,27 +630,83 @@ def build_parser() -> argparse.ArgumentParser:
     from app.findings_commands import register as register_findings
 
     register_findings(sub, command)
+    _images_root_option(sub)
     return parser
 
 
+def _images_root_option(sub: Any) -> None:
+    """Give every command that takes a project ``--images-root DIR`` (and ``--images DIR``
+    where ``--images`` means nothing else): a hosted project's images root on this machine."""
+    for parser in sub.choices.values():
+        nested = [a for a in parser._actions if isinstance(a, argparse._SubParsersAction)]
+        for action in nested:
+            _images_root_option(action)
+        if not any(a.dest == "project" for a in parser._actions):
+            continue
+        names = ["--images-root"]
+        if "--images" not in parser._option_string_actions:
+            names.insert(0, "--images")
+        parser.add_argument(*names, dest="images_root", metavar="DIR",
+                            help="for a hosted project: where its images are on this machine "
+                                 "(default: $POSEWRIGHT_IMAGES, else the folder it records)")
+
+
 class _ShownFormatter(logging.Formatter):
-    """Log lines on the terminal, escaped like everything else printed (library code logs
-    file names and paths as they are)."""
+    """Log lines as the command's other messages (``posewright: warning: ...``), escaped like
+    everything else printed (library code logs file names and paths as they are)."""
 
     def format(self, record: logging.LogRecord) -> str:
-        return shown(super().format(record))
+        return shown(f"posewright: {record.levelname.lower()}: {record.getMessage()}")
+
+
+class _Stderr(logging.StreamHandler):  # type: ignore[type-arg]
+    """A handler writing to whatever ``sys.stderr`` is when a record comes (so a caller that
+    redirects stderr, as tests do, gets the lines)."""
+
+    @property  # type: ignore[override]
+    def stream(self) -> Any:
+        return sys.stderr
+
+    @stream.setter
+    def stream(self, _value: Any) -> None:
+        pass
+
+
+_HANDLER = _Stderr()
+_HANDLER.setFormatter(_ShownFormatter())
+
+
+def _log_to_stderr(verbose: bool) -> None:
+    """Show the log lines of Posewright's modules (``app.*``) on stderr, with one handler
+    however often :func:`main` runs in a process."""
+    logger = logging.getLogger("app")
+    logger.setLevel(logging.INFO if verbose else logging.WARNING)
+    if _HANDLER not in logger.handlers:
+        logger.addHandler(_HANDLER)
+
+
+def _stdout_gone() -> int:
+    """The reader of stdout went away: point stdout at the null device so that the flush at
+    exit cannot fail again, and end with :data:`BROKEN_PIPE_STATUS`."""
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+    except (OSError, ValueError, AttributeError):  # stdout is not a file (captured)
+        pass
+    return BROKEN_PIPE_STATUS
 
 
 def main(argv: Sequence[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
-    handler = logging.StreamHandler()
-    handler.setFormatter(_ShownFormatter("posewright: %(levelname)s: %(message)s"))
-    logging.basicConfig(level=logging.INFO if args.verbose else logging.WARNING,
-                        handlers=[handler])
+    _log_to_stderr(args.verbose)
     try:
         _limits(args)
-        return int(args.fn(args))
+        status = int(args.fn(args))
+        sys.stdout.flush()
+        return status
+    except BrokenPipeError:
+        return _stdout_gone()
     except Cancelled as exc:
         print(f"posewright: {shown(exc)}; nothing was changed", file=sys.stderr)
         return 130
@@ -527,4 +719,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     except OSError as exc:
         where = f"{exc.filename}: " if exc.filename else ""
         print(f"posewright: error: {shown(where)}{shown(exc.strerror or exc)}", file=sys.stderr)
+        return 2
+    except sqlite3.Error as exc:
+        # The store turns failed writes into errors of our own; this is a read that failed.
+        print(f"posewright: error: the project database: {shown(exc)}", file=sys.stderr)
         return 2

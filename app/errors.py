@@ -58,5 +58,21 @@ class EditRefused(PosewrightError):
     """An edit that would make the labels inconsistent, refused with the reason."""
 
 
+class ChangedMeanwhile(EditRefused):
+    """An edit, undo or redo refused because what it would change no longer holds the value it
+    was planned from: someone (or something) changed it in between. ``frame_id`` and
+    ``target`` name what changed, so the store can say who changed it and when."""
+
+    def __init__(self, message: str, frame_id: int | None = None, target: object = None):
+        super().__init__(message)
+        self.frame_id = frame_id
+        self.target = target
+
+
+class StorageFailed(PosewrightError):
+    """The disk, the database or the database server refused to read or write (a full disk,
+    an I/O error, a server that cannot be reached); the action in flight was not kept."""
+
+
 class Cancelled(PosewrightError):
     """Long work stopped on request; nothing of it was kept."""

@@ -46,10 +46,12 @@ def register(sub: Any, command: Command) -> None:
                    help="record these findings as not a problem (undoable); they are not "
                         "raised again while the labels they are about stay the same")
 
-    for name, fn, text in (("undo", cmd_undo, "take back the newest actions (one step each)"),
-                           ("redo", cmd_redo, "do again the newest actions taken back")):
+    from app.cli import whole_number
+
+    for name, fn, text in (("undo", cmd_undo, "take back your newest actions (one step each)"),
+                           ("redo", cmd_redo, "do again your newest actions taken back")):
         p = command(name, fn, text)
-        p.add_argument("--steps", metavar="N", type=int, default=1,
+        p.add_argument("--steps", metavar="N", type=whole_number(1, 10_000), default=1,
                        help="how many actions (default 1)")
 
 
@@ -66,7 +68,7 @@ def _progress(args: argparse.Namespace) -> Any:
 
 
 def cmd_findings(args: argparse.Namespace) -> int:
-    from app.cli import _print_json
+    from app.cli import print_json
     from app.jobs_findings import current_findings, dismiss, parse_kinds
 
     kinds = parse_kinds(args.kinds)
@@ -92,7 +94,7 @@ def cmd_findings(args: argparse.Namespace) -> int:
     rows = [f for fid in sorted(found) for f in found[fid] if kinds is None or f.kind in kinds]
     rows.sort(key=lambda f: (-f.worth, f.frame_id, f.id))
     if args.json:
-        _print_json([f.to_dict(names[f.frame_id]) for f in rows])
+        print_json([f.to_dict(names[f.frame_id]) for f in rows])
         return 0
     if not rows:
         print("no findings")
@@ -145,14 +147,8 @@ def _frame_ids(project: Any, spec: str | None) -> list[int] | None:
     return [f.id for f in parse_frames(spec, project.frames())]
 
 
-def _steps(args: argparse.Namespace) -> int:
-    if args.steps < 1:
-        raise BadInput(f"{args.steps} is not a number of steps (1 or more)", where="--steps")
-    return int(args.steps)
-
-
 def _unwind(args: argparse.Namespace, redo: bool) -> int:
-    steps = _steps(args)
+    steps = int(args.steps)
     word = "redid" if redo else "undid"
     done = 0
     with _open(args, write=True) as project:

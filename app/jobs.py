@@ -1,5 +1,6 @@
-"""Whole jobs shared by the command line and the app: open (building a project from its
-sources when needed), import and export labels.
+"""Whole jobs shared by the command line and the app: make a project and register its images
+or video frames (intake), open (building a project from its sources when needed), import and
+export labels, mend numbers JSON cannot hold.
 
 Each job takes an optional :class:`~app.progress.Progress` so the app can show progress and
 cancel it from a worker thread; every job that writes is all-or-nothing.
@@ -15,18 +16,27 @@ from __future__ import annotations
 
 import json
 import logging
+import os
+import shutil
+import tempfile
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import Any
+from typing import Any, ClassVar
 
 from app.errors import BadInput
-from app.fileio import read_json, write_json_atomic
+from app.fileio import json_ready, read_json, write_json_atomic
 from app.formats import coco
-from app.model.labels import Frame, FrameState
-from app.model.skeleton import skeleton_from_dict
+from app.formats.images import ImageInfo, find_images, probe_image
+from app.formats.video import extract_frames, probe_video
+from app.model.edits import Change, Restore
+from app.model.labels import Frame, FrameState, Region
+from app.model.skeleton import Skeleton, skeleton_from_dict
+from app.model.targets import PersonTarget, RegionTarget
 from app.progress import Progress
-from app.store.project import DB_NAME, Project
+from app.store import NewFrame
+from app.store.project import DB_NAME, VIDEO_FRAMES, Project, relative_path
+from app.wording import count
 
 log = logging.getLogger(__name__)
 
@@ -37,11 +47,129 @@ SOURCES_NAME = "project-sources.json"
 SOURCES_FORMAT = "posewright-project-sources"
 
 
-def open_project(folder: str | Path, author: str | None = None, read_only: bool = False,
-                 progress: Progress | None = None) -> Project:
-    """Open a project; a folder that holds only project sources (``project-sources.json``,
-    as the demo does) is first built into a project."""
+def new_project(folder: str | Path, images: str | Path | None = None,
+                skeleton: Skeleton | None = None, author: str | None = None,
+                progress: Progress | None = None) -> Project:
+    """Make a new project in ``folder`` and open it for editing.
+
+    ``images``, if given, is a folder whose images are registered (recursively, sorted by
+    relative path, ids 1, 2, ...), each with the size its header gives; unreadable images are
+    registered and marked. The project appears complete or not at all.
+    """
     folder = Path(folder)
+    frames: list[NewFrame] = []
+    images_dir = Path(images) if images is not None else None
+    if images_dir is not None:
+        if (folder / DB_NAME).exists():
+            raise BadInput("a project already exists here", where=str(folder))
+        if not images_dir.is_dir():
+            raise BadInput("not a folder of images", where=str(images_dir))
+        frames = _new_frames(folder, images_dir, _probe_all(find_images(images_dir), progress))
+    return Project.create(folder, skeleton=skeleton, author=author, frames=frames,
+                          images_root=images_dir)
+
+
+def add_images(project: Project, images: str | Path,
+               progress: Progress | None = None) -> list[Frame]:
+    """Register the images under ``images`` that the project does not have yet."""
+    images_dir = Path(images)
+    if not images_dir.is_dir():
+        raise BadInput("not a folder of images", where=str(images_dir))
+    known = {Path(f.path) for f in project.frames()}
+    new = [p for p in find_images(images_dir)
+           if Path(relative_path(p, project.folder)) not in known]
+    infos = _probe_all(new, progress)
+    return project.add_frames(_new_frames(project.folder, images_dir, infos),
+                              images_root=images_dir)
+
+
+def add_video_frames(project: Project, video: str | Path, every: int = 1,
+                     start: float | None = None, end: float | None = None,
+                     progress: Progress | None = None) -> list[Frame]:
+    """Extract frames of ``video`` into ``frames/<video stem>/`` of the project's folder and
+    register them with their index in the video and their time in seconds (see
+    :mod:`app.formats.video` for ``every``, ``start`` and ``end``). ``file_name`` is
+    ``<video stem>/<index>.jpg``.
+
+    Frames the project already has (the same file) are not added again, so another range
+    of the same video can be added later; a different video with the same name is refused.
+    All or nothing: after a bad video, a failure or a cancel no file is left behind and no
+    frame is registered.
+    """
+    project.check_writable()
+    info = probe_video(video)
+    stem = Path(video).stem.lstrip(".") or "video"
+    rel_dir = f"{VIDEO_FRAMES}/{stem}"
+    videos = json.loads(project.meta("videos") or "{}")
+    if rel_dir in videos and videos[rel_dir]["fingerprint"] != info.fingerprint:
+        raise BadInput(f"the project has frames of another video named {stem!r} in "
+                       f"{rel_dir}", where=str(video), hint="rename the video to add it")
+    root = project.folder / VIDEO_FRAMES
+    target = root / stem
+    made_root, made_target = not root.exists(), not target.exists()
+    root.mkdir(exist_ok=True)
+    staging = Path(tempfile.mkdtemp(prefix=f".{stem}.", suffix=".partial", dir=root))
+    moved: list[Path] = []
+    try:
+        extracted = extract_frames(info.path, staging, every, start, end, progress)
+        known = {f.path for f in project.frames()}
+        target.mkdir(exist_ok=True)
+        rows = []
+        for vf in extracted:
+            final = target / vf.path.name
+            rel = relative_path(final, project.folder)
+            if rel in known:
+                continue
+            os.replace(vf.path, final)
+            moved.append(final)
+            rows.append(NewFrame(rel, f"{stem}/{final.name}", vf.width, vf.height,
+                                 video_index=vf.index, timestamp=vf.timestamp))
+        videos[rel_dir] = {"source": str(info.path.resolve()), "fingerprint": info.fingerprint}
+        added = project.add_frames(rows, images_root=project.folder / VIDEO_FRAMES,
+                                   settings={"videos": json.dumps(videos)})
+    except BaseException:
+        for path in moved:
+            path.unlink(missing_ok=True)
+        shutil.rmtree(staging, ignore_errors=True)
+        for made, folder in ((made_target, target), (made_root, root)):
+            if made and folder.is_dir() and not any(folder.iterdir()):
+                folder.rmdir()
+        raise
+    shutil.rmtree(staging, ignore_errors=True)
+    return added
+
+
+def _probe_all(paths: Sequence[Path], progress: Progress | None) -> list[ImageInfo]:
+    progress = progress or Progress()
+    infos = []
+    for i, p in enumerate(paths):
+        progress.step(i, len(paths), "reading images")
+        info = probe_image(p)
+        if info.status != "ok":
+            log.warning("%s: image is %s (%s); registered and marked", p, info.status,
+                        info.reason)
+        infos.append(info)
+    progress.step(len(paths), len(paths), "reading images")
+    return infos
+
+
+def _new_frames(folder: Path, images_dir: Path, infos: Sequence[ImageInfo]) -> list[NewFrame]:
+    return [NewFrame(relative_path(info.path, folder),
+                     info.path.relative_to(images_dir).as_posix(), info.width, info.height,
+                     info.status) for info in infos]
+
+
+def open_project(place: str | Path, author: str | None = None, read_only: bool = False,
+                 progress: Progress | None = None,
+                 images: str | Path | None = None) -> Project:
+    """Open a project (a folder, or a hosted project's URL); a folder that holds only project
+    sources (``project-sources.json``, as the demo does) is first built into a project.
+    ``images``: the images root on this machine, for a hosted project."""
+    from app.store.hosted import is_database_url
+
+    if is_database_url(str(place)):
+        return Project.open(place, author=author, read_only=read_only, images=images)
+    folder = Path(place)
     if not (folder / DB_NAME).exists() and (folder / SOURCES_NAME).is_file():
         build_from_sources(folder, author=author, progress=progress)
     return Project.open(folder, author=author, read_only=read_only)
@@ -64,8 +192,8 @@ def build_from_sources(folder: Path, author: str | None = None,
     images = folder / str(sources.get("images", "images"))
     log.info("building the project in %s from its sources", folder)
     try:
-        project = Project.create(folder, images=images, skeleton=skeleton, author=author,
-                                 progress=progress)
+        project = new_project(folder, images=images, skeleton=skeleton, author=author,
+                              progress=progress)
     except BadInput:
         if (folder / DB_NAME).exists():  # another process built it first
             return
@@ -104,8 +232,7 @@ def import_coco(project: Project, path: str | Path,
             for image_id, file_name in plan.file_names.items():
                 b.set_file_name(image_id, file_name)
             for image_id, extra in plan.image_extra.items():
-                b.execute("UPDATE frames SET extra = ? WHERE id = ?",
-                          (json.dumps(extra), image_id))
+                b.set_frame_extra(image_id, extra)
             if plan.category is not None:
                 b.set_meta("coco_category", json.dumps(plan.category))
             if plan.dataset_extra:
@@ -113,9 +240,7 @@ def import_coco(project: Project, path: str | Path,
             b.reserve_person_ids(ids)
             progress.step(2, 3, "writing labels")
             b.add_people(plan.people)
-            b.executemany(
-                "INSERT INTO regions (frame_id, polygons, extra) VALUES (?, ?, ?)",
-                [(f, json.dumps(polys), json.dumps(extra)) for f, polys, extra in plan.regions])
+            b.regions.add(plan.regions)
             b.count("frames", len(plan.file_names))
             b.count("ignore regions", len(plan.regions))
         else:
@@ -176,9 +301,9 @@ and 1 disputed frame: labels nobody has checked or still in dispute']
     lines = []
     if counts.get("unreadable"):
         n = counts["unreadable"]
-        lines.append(f"{_count(n, 'frame')} not exported: "
+        lines.append(f"{count(n, 'frames')} not exported: "
                      + ("its image cannot be read" if n == 1 else "their images cannot be read"))
-    held = [_count(counts[k], f"{k} frame") for k in ("untouched", "disputed") if counts.get(k)]
+    held = [count(counts[k], f"{k} frames") for k in ("untouched", "disputed") if counts.get(k)]
     if held:
         lines.append("the export holds " + " and ".join(held)
                      + ": labels nobody has checked or still in dispute")
@@ -194,11 +319,7 @@ def left_out_note(counts: Mapping[str, int]) -> str:
     '3 frames left out by their state'
     """
     n = counts.get("left_out", 0)
-    return f"{_count(n, 'frame')} left out by their state" if n else ""
-
-
-def _count(n: int, what: str) -> str:
-    return f"{n} {what}" + ("" if n == 1 else "s")
+    return f"{count(n, 'frames')} left out by their state" if n else ""
 
 
 def export_coco(project: Project, out: str | Path,
@@ -219,6 +340,12 @@ def export_coco(project: Project, out: str | Path,
     -------
     dict
         ``images`` and ``people`` written, and :meth:`ExportChoice.counts`.
+
+    Notes
+    -----
+    A non-finite number kept from an import made before such numbers were refused is written
+    as :func:`app.formats.coco.json_ready_dataset` says, with a warning naming the record and
+    how to mend the project (:func:`mend_numbers`).
     """
     choice = choose_frames(project, states)
     frames = choice.frames
@@ -231,16 +358,96 @@ def export_coco(project: Project, out: str | Path,
         image_extra=project.frame_extras(),
         dataset_extra=json.loads(project.meta("coco_dataset_extra") or "{}"),
     )
+    dataset, notes = coco.json_ready_dataset(dataset)
+    for note in notes:
+        log.warning("%s: %s; `posewright mend %s` mends the project", out, note, project.folder)
     write_json_atomic(out, dataset)
     n_people = sum(len(people.get(f.id, ())) for f in frames)
     return {"images": len(frames), "people": n_people, **choice.counts()}
+
+
+@dataclass(frozen=True)
+class MendNumbers(Restore):
+    """Replace non-finite numbers in the fields a person or region keeps from an import: an
+    undoable edit that leaves the frame's state alone (no label a person drew changes)."""
+
+    changes_labels: ClassVar[bool] = False
+    label: str = "mend numbers that JSON cannot hold"
+
+
+def mend_numbers(project: Project) -> list[str]:
+    """Replace the NaN and infinite numbers that the project keeps from an import made before
+    they were refused, so that exports write what the project holds.
+
+    A person's ``bbox`` or ``area`` that is not finite is dropped, so exports compute it from
+    the joints (as for a person that did not come from a file); any other such field of a
+    person, crowd region, image, category or the dataset becomes ``null``. People and regions
+    are mended by one undoable :class:`MendNumbers` edit per frame, the image, category and
+    dataset fields in one transaction with one ``MendNumbers`` ledger entry. Running it again
+    finds nothing to do.
+
+    Returns
+    -------
+    list of str
+        One line per field mended, e.g. ``frame 100: person 5002: field area: dropped``.
+    """
+    notes: list[str] = []
+    edits: dict[int, list[Change]] = {}
+    for frame_id, persons in project.people_by_frame().items():
+        for p in persons:
+            extra, found = json_ready(dict(p.extra))
+            for path in found:
+                if path[0] in ("bbox", "area"):
+                    extra.pop(path[0], None)
+                notes.append(f"frame {frame_id}: person {p.id}: {_field(path)}: "
+                             + ("dropped" if path[0] in ("bbox", "area") else "null"))
+            if found:
+                edits.setdefault(frame_id, []).append(Change(
+                    PersonTarget(p.id), p.to_value(), replace(p, extra=extra).to_value()))
+    for frame_id, rows in project.regions_by_frame().items():
+        for rid, polygons, extra in rows:
+            clean, found = json_ready(extra)
+            notes += [f"frame {frame_id}: region {rid}: {_field(path)}: null"
+                      for path in found]
+            if found:
+                before = Region(rid, frame_id, polygons, extra).to_value()
+                edits.setdefault(frame_id, []).append(Change(
+                    RegionTarget(rid), before, {**before, "extra": clean}))
+    for frame_id, changes in sorted(edits.items()):
+        project.apply(MendNumbers(frame_id, tuple(changes)))
+    in_edits = len(notes)
+    frames: dict[int, dict[str, Any]] = {}
+    for frame_id, extra in project.frame_extras().items():
+        clean, found = json_ready(extra)
+        if found:
+            frames[frame_id] = clean
+            notes += [f"image {frame_id}: {_field(path)}: null" for path in found]
+    meta: dict[str, str] = {}
+    for key, name in (("coco_category", "category"), ("coco_dataset_extra", "dataset")):
+        value = json.loads(project.meta(key) or "null")
+        clean, found = json_ready(value)
+        if found:
+            meta[key] = json.dumps(clean)
+            notes += [f"{name}: {_field(path)}: null" for path in found]
+    if frames or meta:
+        with project.bulk("MendNumbers", "mend numbers that JSON cannot hold", "project") as b:
+            for frame_id, extra in frames.items():
+                b.set_frame_extra(frame_id, extra)
+            for key, text in meta.items():
+                b.set_meta(key, text)
+            b.count("fields mended", len(notes) - in_edits)
+    return notes
+
+
+def _field(path: Sequence[str | int]) -> str:
+    return "field " + ".".join(str(p) for p in path)
 
 
 def summary(project: Project) -> dict[str, Any]:
     """What a person wants to know on opening a project."""
     counts = project.counts()
     return {
-        "project": str(project.folder),
+        "project": project.location,
         "name": project.meta("name") or project.folder.name,
         "skeleton": project.skeleton.name,
         "joints": project.skeleton.num_joints,

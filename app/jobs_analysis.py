@@ -24,7 +24,7 @@ from app.analysis.association import group_people
 from app.analysis.targets import confidence_maps, loss_mask, part_affinity_fields
 from app.errors import BadInput, NotFound
 from app.fileio import read_json
-from app.formats.maps import NetworkMaps, match_map_files, read_maps
+from app.formats.maps import NetworkMaps, match_map_files, read_maps, read_npz
 from app.jobs import EXPORT_STATES, choose_frames
 from app.model.labels import AUTO, Frame, FrameState, Person
 from app.progress import Progress
@@ -139,8 +139,10 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
     Each ``.npz`` holds ``confidence_maps (K, H, W)``, ``pafs (L, 2, H, W)`` and
     ``loss_mask (K + 2L, H, W)`` (channel order: the K maps, then each limb's x and y field);
     the manifest holds every parameter, the skeleton and the frame list, so a training script
-    needs nothing else. ``states`` picks the frames (None: all); a frame whose image cannot be
-    read is never written but listed in the manifest's ``skipped`` (the rule of
+    needs nothing else. Image paths in it are relative to ``out_dir`` (each frame's ``image``,
+    and ``images_root``, the project's images folder, to which ``file_name`` is relative).
+    ``states`` picks the frames (None: all); a frame whose image cannot be read is never
+    written but listed in the manifest's ``skipped`` (the rule of
     :func:`app.jobs.choose_frames`, shared with the COCO export). The folder appears complete
     or not at all: it is written beside ``out_dir`` (``OUT_DIR.<random>.partial``) and renamed
     at the end; such folders that a killed run left are removed first (:mod:`app.workfiles`).
@@ -183,7 +185,7 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
             np.savez_compressed(work / name, confidence_maps=cm.astype(dtype),
                                 pafs=paf.astype(dtype), loss_mask=mask.astype(dtype))
             entries.append({"id": f.id, "file_name": f.file_name,
-                            "image": str(project.image_path(f).resolve()),
+                            "image": _relative_to(project.image_path(f), out),
                             "width": f.width, "height": f.height, "state": f.state.value,
                             "targets": name, "people": len(people.get(f.id, [])),
                             "grid": [cm.shape[1], cm.shape[2]]})
@@ -211,12 +213,14 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
                              "person's box",
             },
             "skeleton": sk.to_dict(),
+            "images_root": None if project.images_root is None
+            else _relative_to(project.images_root, out),
             "frames": entries,
             "skipped": [{"id": f.id, "file_name": f.file_name, "status": f.status}
                         for f in skipped],
         }
         with open(work / "manifest.json", "w", encoding="utf-8") as fh:
-            json.dump(manifest, fh, indent=1)
+            json.dump(manifest, fh, indent=1, allow_nan=False)
             fh.flush()
             os.fsync(fh.fileno())
         if out.exists():
@@ -229,6 +233,16 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
         claim.release()
     return {"frames": len(entries), "skipped": len(skipped), "out": str(out),
             **choice.counts()}
+
+
+def _relative_to(path: Path, folder: Path) -> str:
+    """``path`` relative to ``folder`` (POSIX separators), so that the manifest names no home
+    folder and survives moving the export together with the project; absolute only when no
+    relative path exists (another drive)."""
+    try:
+        return Path(os.path.relpath(path.resolve(), folder.resolve())).as_posix()
+    except ValueError:
+        return path.resolve().as_posix()
 
 
 # ---------------------------------------------------------------------- triage
@@ -302,7 +316,7 @@ def check_targets(out_dir: str | Path, progress: Progress | None = None) -> Targ
     manifest's dtype; every value is finite; confidence maps lie in [0, 1]; each field vector
     is at most 1 long (both with a slack for float16 rounding); the loss mask is 0 or 1. A
     ``.npz`` file that no frame entry names is a problem too. Files are read with
-    ``allow_pickle=False``.
+    :func:`app.formats.maps.read_npz` (no pickles, no size taken on trust).
     """
     from app.model.skeleton import skeleton_from_dict
 
@@ -362,19 +376,15 @@ def check_targets(out_dir: str | Path, progress: Progress | None = None) -> Targ
 
 def _check_target_file(path: Path, shape: tuple[int, int, int, int], dtype: str,
                        tol: float) -> list[str]:
-    import zipfile
-
     k, n_limbs, h, w = shape
     expected = {"confidence_maps": (k, h, w), "pafs": (n_limbs, 2, h, w),
                 "loss_mask": (k + 2 * n_limbs, h, w)}
     try:
-        with np.load(path, allow_pickle=False) as npz:
-            keys = set(npz.files)
-            if keys != set(expected):
-                return [f"{path}: keys {sorted(keys)}, expected {sorted(expected)}"]
-            arrays = {key: npz[key] for key in expected}
-    except (OSError, ValueError, EOFError, zipfile.BadZipFile) as exc:
-        return [f"{path}: not a readable .npz of arrays ({exc})"]
+        arrays = read_npz(path)
+    except BadInput as exc:
+        return [str(exc)]
+    if set(arrays) != set(expected):
+        return [f"{path}: keys {sorted(arrays)}, expected {sorted(expected)}"]
     problems = []
     for key, arr in arrays.items():
         if arr.shape != expected[key]:

@@ -18,10 +18,9 @@ import pytest
 
 from app.analysis.targets import cell_centres, confidence_maps, part_affinity_fields
 from app.cli import main
-from app.jobs import import_coco
+from app.jobs import import_coco, new_project
 from app.jobs_analysis import check_targets
 from app.model import coco_body
-from app.store import Project
 
 SK = coco_body()
 W, H, STRIDE, SIGMA, WIDTH = 160, 120, 4, 3.0, 4.0
@@ -63,7 +62,7 @@ def export(tmp_path):
                                   "annotations": anns,
                                   "categories": [SK.coco_category()]}))
     proj = tmp_path / "p"
-    with Project.create(proj, images=images, author="ana") as p:
+    with new_project(proj, images=images, author="ana") as p:
         import_coco(p, labels)
     out = tmp_path / "targets"
     assert main(["targets", str(proj), str(out), "--states", "all", "--stride", str(STRIDE),
@@ -96,8 +95,48 @@ def test_export_round_trip(export, capsys):
     assert check_targets(out).problems == []
     capsys.readouterr()
     assert main(["targets", "--check", str(out)]) == 0
-    assert capsys.readouterr().out == f"ok: 1 frames checked in {out}\n"
+    assert capsys.readouterr().out == f"ok: 1 frame checked in {out}\n"
     assert main(["targets", str(proj), str(out), "--check", "-q"]) == 0
+
+
+def test_manifest_paths_are_relative_to_the_export(export, tmp_path):
+    """No absolute path (a home folder, a user name) in the manifest: each image is named
+    relative to the export, the images folder beside it, and both still lead to the image
+    after the export and the project move together."""
+    _, out = export
+    manifest = json.loads((out / "manifest.json").read_text())
+    entry = manifest["frames"][0]
+    assert entry["image"] == "../images/a.png" and manifest["images_root"] == "../images"
+    assert str(tmp_path) not in (out / "manifest.json").read_text()
+    moved = tmp_path / "moved"
+    moved.mkdir()
+    for name in ("images", "targets"):
+        shutil.move(str(tmp_path / name), str(moved / name))
+    assert (moved / "targets" / entry["image"]).is_file()
+    assert (moved / "targets" / manifest["images_root"] / entry["file_name"]).is_file()
+
+
+def test_check_reports_hostile_target_files_without_allocating(export):
+    """Synthetic hostile file: a loss_mask whose .npy header declares 633 GiB; the check
+    names the file and member instead of asking numpy for the memory."""
+    import io
+    import zipfile
+
+    _, out = export
+    name = json.loads((out / "manifest.json").read_text())["frames"][0]["targets"]
+    arrays = _arrays(out)
+    header = io.BytesIO()
+    np.lib.format.write_array_header_1_0(
+        header, {"descr": "<f4", "fortran_order": False, "shape": (17, 300_000, 33_333)})
+    with zipfile.ZipFile(out / name, "w") as z:
+        for key in ("confidence_maps", "pafs"):
+            buffer = io.BytesIO()
+            np.save(buffer, arrays[key])
+            z.writestr(f"{key}.npy", buffer.getvalue())
+        z.writestr("loss_mask.npy", header.getvalue() + b"\0" * 64)
+    problems = check_targets(out).problems
+    assert len(problems) == 1
+    assert "member 'loss_mask.npy': its header declares 679,993,200,000 bytes" in problems[0]
 
 
 def test_loss_mask_rule_on_crafted_frames(export):

@@ -128,7 +128,7 @@ def demo_frames(folder: str | Path) -> list[DemoFrame]:
 
     The project is built in ``folder`` the first time (images and maps imported, no triage).
     """
-    from app.jobs import SOURCES_NAME
+    from app.jobs import SOURCES_NAME, new_project
     from app.jobs_analysis import import_maps, load_maps
     from app.model.skeleton import skeleton_from_dict
     from app.store.project import DB_NAME, Project
@@ -137,8 +137,8 @@ def demo_frames(folder: str | Path) -> list[DemoFrame]:
     sources = read_json(folder / SOURCES_NAME, "the project sources")
     if not (folder / DB_NAME).exists():
         skeleton = skeleton_from_dict(sources["skeleton"])
-        with Project.create(folder, images=folder / sources["images"],
-                            skeleton=skeleton) as project:
+        with new_project(folder, images=folder / sources["images"],
+                         skeleton=skeleton) as project:
             import_maps(project, folder / sources["maps"])
     truth = read_json(folder / sources["truth"], "the true poses")
     image_of = {im["file_name"]: im["id"] for im in truth["images"]}

@@ -6,9 +6,11 @@ Two forms are read (the COCO keypoints standard, https://cocodataset.org/#format
 - a **results list**: ``[{"image_id", "category_id", "keypoints", "score"}, ...]`` (model output).
 
 Reading is strict and all-or-nothing: the first problem stops the import with a
-:class:`~app.errors.BadInput` naming the file, the record and the field. Checked: valid JSON,
-the shape of every record (pydantic), finite numbers, ``3 * K`` keypoint values for the
-project's skeleton, visibility in {0, 1, 2}, unique ids, known image and category ids, image
+:class:`~app.errors.BadInput` naming the file, the record and the field. Checked: valid JSON
+(:func:`app.fileio.parse_json`: every number finite, anywhere in the file, and nesting within
+limits), the shape of every record (pydantic), ids within the integers every JSON reader holds
+exactly (:data:`app.fileio.JsonId`), ``3 * K`` keypoint values for the project's skeleton,
+visibility in {0, 1, 2}, ``iscrowd`` 0 or 1, unique ids, known image and category ids, image
 sizes between 1 and 65,536 pixels, keypoints within one image size of the image.
 
 Conventions decided here:
@@ -28,6 +30,9 @@ field we do not compute are written back as they were read. Computed fields:
 imported ones when the person came from a file (they describe the person's outline, which
 moving joints does not change), otherwise ``bbox`` is the tight box ``[x, y, w, h]`` around the
 labelled joints and ``area`` is ``w * h`` (common practice for keypoint-only labels, no source).
+A project imported before non-finite numbers were refused may hold one in a field kept for the
+round trip; :func:`json_ready_dataset` writes it as ``null``, or, for a person's ``bbox`` and
+``area``, computes them as for a new person, and says where.
 """
 
 from __future__ import annotations
@@ -52,6 +57,7 @@ from pydantic import (
 )
 
 from app.errors import BadInput
+from app.fileio import JsonId, describe, json_ready, read_json
 from app.formats.images import MAX_SIDE
 from app.model.labels import AUTO, IMPORTED, Frame, Person
 from app.model.skeleton import Skeleton
@@ -61,7 +67,7 @@ Number = StrictInt | StrictFloat
 
 class _Image(BaseModel):
     model_config = ConfigDict(extra="allow")
-    id: StrictInt
+    id: JsonId
     file_name: StrictStr = Field(min_length=1)
     width: StrictInt | None = None
     height: StrictInt | None = None
@@ -69,9 +75,9 @@ class _Image(BaseModel):
 
 class _Annotation(BaseModel):
     model_config = ConfigDict(extra="allow")
-    id: StrictInt
-    image_id: StrictInt
-    category_id: StrictInt
+    id: JsonId
+    image_id: JsonId
+    category_id: JsonId
     keypoints: list[Number] = Field(default_factory=list)
     iscrowd: StrictInt = 0
     score: Number | None = None
@@ -79,7 +85,7 @@ class _Annotation(BaseModel):
 
 class _Category(BaseModel):
     model_config = ConfigDict(extra="allow")
-    id: StrictInt
+    id: JsonId
     name: StrictStr
     keypoints: list[StrictStr] = Field(default_factory=list)
     skeleton: list[tuple[StrictInt, StrictInt]] = Field(default_factory=list)
@@ -94,8 +100,8 @@ class _Dataset(BaseModel):
 
 class _Result(BaseModel):
     model_config = ConfigDict(extra="allow")
-    image_id: StrictInt
-    category_id: StrictInt
+    image_id: JsonId
+    category_id: JsonId
     keypoints: list[Number]
     score: Number
 
@@ -139,15 +145,7 @@ def read_coco(path: str | Path, skeleton: Skeleton, frames: Sequence[Frame]) -> 
     """
     path = Path(path)
     where = str(path)
-    try:
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise BadInput(f"cannot read the file ({exc.strerror})", where=where) from None
-    try:
-        data = json.loads(raw)
-    except (json.JSONDecodeError, UnicodeDecodeError) as exc:
-        raise BadInput(f"not valid JSON ({exc})", where=where,
-                       hint="is the file complete?") from None
+    data = read_json(path, root="results")
     if isinstance(data, list):
         return _read_results(data, where, skeleton, frames)
     if isinstance(data, dict) and "annotations" in data:
@@ -158,24 +156,12 @@ def read_coco(path: str | Path, skeleton: Skeleton, frames: Sequence[Frame]) -> 
 
 def _validation_error(exc: ValidationError, data: Any, where: str, root: str = "") -> BadInput:
     err = exc.errors(include_url=False)[0]
-    loc = list(err["loc"])
-    record = root
-    value: Any = data
-    if len(loc) > 1 and isinstance(loc[0], str) and isinstance(loc[1], int) \
-            and isinstance(data, dict):
-        record = str(loc.pop(0))
-        value = data.get(record)
-    if loc and isinstance(loc[0], int):
-        i = int(loc.pop(0))
-        item = value[i] if isinstance(value, list) and i < len(value) else None
-        ident = item.get("id") if isinstance(item, dict) else None
-        record = f"{record}[{i}]" + (f" (id {ident})" if ident is not None else "")
-    field_name = ".".join(str(p) for p in loc) or "record"
+    place = describe(tuple(err["loc"]), data, root, field="record")
     msg = err["msg"][:1].lower() + err["msg"][1:]
-    if err.get("type") in ("int_type", "float_type", "int_parsing", "float_parsing"):
+    if err.get("type") in ("int_type", "float_type", "int_parsing", "float_parsing",
+                           "less_than_equal", "greater_than_equal"):
         msg = f"{msg}, got {err.get('input')!r}"
-    prefix = f"{record}: " if record else ""
-    return BadInput(f"{prefix}field {field_name}: {msg}", where=where)
+    return BadInput(f"{place}: {msg}", where=where)
 
 
 def _check_keypoints(values: Sequence[float], k: int, where: str, record: str,
@@ -185,10 +171,6 @@ def _check_keypoints(values: Sequence[float], k: int, where: str, record: str,
             f"{record}: field keypoints: {len(values)} values, the project's skeleton needs "
             f"{3 * k} (x, y, v for {k} joints)", where=where)
     kp = np.asarray(values, dtype=np.float64).reshape(k, 3)
-    if not np.isfinite(kp).all():
-        j = int(np.flatnonzero(~np.isfinite(kp).all(axis=1))[0])
-        raise BadInput(f"{record}: field keypoints: joint {j} is not a finite number",
-                       where=where)
     if visibility:
         bad = ~np.isin(kp[:, 2], (0, 1, 2))
         if bad.any():
@@ -222,11 +204,9 @@ def _keypoint_block(values: Sequence[Sequence[float]], k: int, where: str,
     for i in np.flatnonzero(lengths != 3 * k)[:1]:
         _check_keypoints(values[i], k, where, records[i], visibility)
     block = np.array(values, dtype=np.float64).reshape(n, k, 3)
-    bad = ~np.isfinite(block).all(axis=(1, 2))
     if visibility:
-        bad |= ~np.isin(block[:, :, 2], (0, 1, 2)).all(axis=1)
-    for i in np.flatnonzero(bad)[:1]:
-        _check_keypoints(values[i], k, where, records[i], visibility)
+        for i in np.flatnonzero(~np.isin(block[:, :, 2], (0, 1, 2)).all(axis=1))[:1]:
+            _check_keypoints(values[i], k, where, records[i], visibility)
     sizes = np.array([(f.width, f.height) if f.status == "ok" and f.width > 0 else (np.inf, np.inf)
                       for f in frames], dtype=np.float64).reshape(n, 2)
     w, h = sizes[:, :1], sizes[:, 1:]
@@ -354,8 +334,9 @@ def _read_dataset(data: dict[str, Any], where: str, skeleton: Skeleton,
         if a.category_id not in cats:
             raise BadInput(f"{record}: field category_id: no category with id {a.category_id}",
                            where=where)
-        if a.score is not None and not math.isfinite(a.score):
-            raise BadInput(f"{record}: field score: not a finite number", where=where)
+        if a.iscrowd not in (0, 1):
+            raise BadInput(f"{record}: field iscrowd: {a.iscrowd} is not 0 (a person) or 1 "
+                           "(a crowd region)", where=where)
         if a.iscrowd:
             kept = {key: v for key, v in raw_annotations[i].items() if key != "image_id"}
             out.regions.append(
@@ -420,8 +401,6 @@ def _read_results(data: list[Any], where: str, skeleton: Skeleton,
         if r.image_id not in by_id:
             raise BadInput(f"{record}: field image_id: no project frame with id {r.image_id}",
                            where=where, hint="import the dataset with these image ids first")
-        if not math.isfinite(r.score):
-            raise BadInput(f"{record}: field score: not a finite number", where=where)
     block = _keypoint_block([r.keypoints for r in results], k, where,
                             [f"results[{i}]" for i in range(len(results))],
                             [by_id[r.image_id] for r in results], visibility=False)
@@ -484,10 +463,13 @@ def annotation(person: Person, image_id: int, category_id: int) -> dict[str, Any
     ann["keypoints"] = flat
     ann["num_keypoints"] = int(np.count_nonzero(kp[:, 2] > 0))
     if "bbox" not in extra:
-        box = person_box(kp)
-        extra["bbox"] = [round(b, 2) for b in box]
-        extra.setdefault("area", round(box[2] * box[3], 2))
-    extra.setdefault("area", round(extra["bbox"][2] * extra["bbox"][3], 2))
+        extra["bbox"] = [round(b, 2) for b in person_box(kp)]
+    if "area" not in extra:
+        box = extra["bbox"]
+        if not (isinstance(box, list) and len(box) == 4 and
+                all(isinstance(b, (int, float)) and not isinstance(b, bool) for b in box)):
+            box = person_box(kp)  # an imported box kept as it came, but not one to measure
+        extra["area"] = round(box[2] * box[3], 2)
     extra.setdefault("iscrowd", 0)
     ann.update(extra)
     if person.score is not None:
@@ -517,6 +499,58 @@ def dataset(
     out: dict[str, Any] = dict(dataset_extra)
     out.update({"images": images, "annotations": annotations, "categories": [dict(category)]})
     return out
+
+
+def json_ready_dataset(ds: Mapping[str, Any]) -> tuple[dict[str, Any], list[str]]:
+    """``ds`` (a :func:`dataset`) with its non-finite numbers mended, and where each was.
+
+    A person's ``bbox`` that is not finite becomes the tight box around the labelled joints,
+    an ``area`` that is not finite the box's width times height (as for a person that did not
+    come from a file); any other non-finite number becomes ``null``.
+
+    Returns
+    -------
+    dataset, notes
+        The mended dataset (``ds`` itself when there was nothing to mend) and one line per
+        field mended: ``annotations[3] (id 5002): field area: Infinity, written as 1650.5``.
+
+    Examples
+    --------
+    >>> ann = {"id": 7, "keypoints": [10, 20, 2, 30, 25, 1], "bbox": [0, 0, 9, float("inf")],
+    ...        "area": float("nan"), "note": float("inf")}
+    >>> clean, notes = json_ready_dataset({"annotations": [ann]})
+    >>> clean["annotations"][0]["bbox"], clean["annotations"][0]["area"]
+    ([10.0, 20.0, 20.0, 5.0], 100.0)
+    >>> for note in notes:
+    ...     print(note)
+    annotations[0] (id 7): field area: NaN, written as 100.0
+    annotations[0] (id 7): field note: Infinity, written as null
+    annotations[0] (id 7): field bbox.3: Infinity, written as [10.0, 20.0, 20.0, 5.0]
+    """
+    clean, paths = json_ready(ds)
+    boxed = sorted({path[:3] for path in paths if len(path) > 2 and path[0] == "annotations"
+                    and path[2] in ("bbox", "area")
+                    and not clean["annotations"][path[1]].get("iscrowd")},
+                   key=lambda p: p[2] != "bbox")  # the box first: the area follows from it
+    for _, i, key in boxed:
+        ann = clean["annotations"][i]
+        if key == "bbox":
+            kp = np.asarray(ann.get("keypoints") or [], dtype=np.float64).reshape(-1, 3)
+            ann["bbox"] = [round(b, 2) for b in person_box(kp)]
+        else:
+            box = ann.get("bbox")
+            ann["area"] = round(box[2] * box[3], 2) if isinstance(box, list) and len(box) == 4 \
+                and None not in box else None
+    notes = []
+    for path in paths:
+        value: Any = ds
+        for step in path:
+            value = value[step]
+        written = json.dumps(clean["annotations"][path[1]][path[2]]) if path[:3] in boxed \
+            else "null"
+        token = "NaN" if value != value else ("-Infinity" if value < 0 else "Infinity")
+        notes.append(f"{describe(path, ds)}: {token}, written as {written}")
+    return clean, notes
 
 
 def crowd_annotation(region_id: int, image_id: int, category_id: int,

@@ -36,7 +36,7 @@ from pathlib import Path
 
 import cv2
 import numpy as np
-from PIL import Image
+from PIL import Image, UnidentifiedImageError
 
 from app.errors import BadInput, NotFound
 
@@ -135,7 +135,8 @@ def max_pixels() -> int:
 
 
 def _check_megapixels(value: float, where: str) -> None:
-    if not (math.isfinite(value) and value > 0):
+    # The limit is kept in pixels: a value whose pixel count overflows a float is refused too.
+    if not (math.isfinite(value * 1_000_000) and value > 0):
         raise BadInput(f"{value} is not a positive number of megapixels", where=where)
 
 
@@ -174,6 +175,8 @@ def probe_image(path: str | Path) -> ImageInfo:
         with Image.open(path) as image:
             width, height = image.size
             orientation = _orientation(image)
+    except UnidentifiedImageError:  # its message only repeats the path, which warnings name
+        return ImageInfo(path, 0, 0, "corrupt", "not an image Posewright can read")
     # Any failure of the header parser on a damaged or hostile file (Pillow raises OSError,
     # SyntaxError, ValueError, struct.error and others) means the same thing: unreadable.
     except Exception as exc:

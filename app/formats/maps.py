@@ -4,9 +4,10 @@ Keys: ``confidence_maps`` ``(K, H, W)``, ``pafs`` ``(L, 2, H, W)`` (x channel, t
 ``stride`` (image pixels per grid cell, an integer). The grid is the one of the training
 targets (:mod:`app.analysis.targets`): ``H = ceil(height / stride)``,
 ``W = ceil(width / stride)``, cell ``(r, c)`` standing for the image point
-``(c * stride + (stride - 1) / 2, r * stride + (stride - 1) / 2)``. Files are read with
-``allow_pickle=False`` always, and a file whose arrays would inflate past :data:`MAX_BYTES` is
-refused before anything is decompressed.
+``(c * stride + (stride - 1) / 2, r * stride + (stride - 1) / 2)``. Files are read by
+:func:`read_npz`: never a pickle, and a file whose arrays would inflate past :data:`MAX_BYTES`,
+or whose headers declare more than the file holds, is refused before anything is decompressed
+or allocated.
 """
 
 from __future__ import annotations
@@ -47,23 +48,11 @@ def read_maps(path: str | Path, skeleton: Skeleton, image_size: tuple[int, int])
     """
     path = Path(path)
     where = str(path)
-    try:
-        with zipfile.ZipFile(path) as zf:
-            total = sum(info.file_size for info in zf.infolist())
-        if total > MAX_BYTES:
-            raise BadInput(f"the arrays would take {total / 2**30:.1f} GiB; refused", where=where)
-        with np.load(path, allow_pickle=False) as npz:
-            missing = [k for k in ("confidence_maps", "pafs", "stride") if k not in npz.files]
-            if missing:
-                raise BadInput(f"key {missing[0]} is missing (keys: {', '.join(npz.files)})",
-                               where=where)
-            cmaps = npz["confidence_maps"]
-            pafs = npz["pafs"]
-            stride_arr = npz["stride"]
-    except BadInput:
-        raise
-    except (OSError, ValueError, EOFError, zipfile.BadZipFile, KeyError) as exc:
-        raise BadInput(f"not a readable .npz of arrays ({exc})", where=where) from None
+    arrays = read_npz(path)
+    missing = [k for k in ("confidence_maps", "pafs", "stride") if k not in arrays]
+    if missing:
+        raise BadInput(f"key {missing[0]} is missing (keys: {', '.join(arrays)})", where=where)
+    cmaps, pafs, stride_arr = arrays["confidence_maps"], arrays["pafs"], arrays["stride"]
     if stride_arr.shape not in ((), (1,)) or not np.issubdtype(stride_arr.dtype, np.number):
         raise BadInput("key stride: must be one integer", where=where)
     stride_value = float(stride_arr.reshape(-1)[0])
@@ -86,6 +75,73 @@ def read_maps(path: str | Path, skeleton: Skeleton, image_size: tuple[int, int])
             raise BadInput(f"key {key}: holds values that are not finite numbers", where=where)
     return NetworkMaps(cmaps.astype(np.float32, copy=False), pafs.astype(np.float32, copy=False),
                        stride)
+
+
+def read_npz(path: str | Path, max_bytes: int = MAX_BYTES) -> dict[str, np.ndarray]:
+    """Every array of an ``.npz`` file by key, read without pickles and without trusting the
+    sizes the file declares.
+
+    Each member must be a ``.npy`` array (``KEY.npy``, format version 1 or 2) of a plain dtype
+    (no Python objects), and its header may declare no more data than the member holds; the
+    members together may inflate to at most ``max_bytes``. Everything is checked before an
+    array is allocated, so a header declaring a huge shape costs nothing.
+
+    Raises
+    ------
+    BadInput
+        Naming the file and, where it is about one, the member.
+
+    Examples
+    --------
+    >>> import os, tempfile
+    >>> path = os.path.join(tempfile.mkdtemp(), "m.npz")
+    >>> np.savez(path, stride=np.array(8), pafs=np.zeros((1, 2, 3, 4), np.float32))
+    >>> {k: v.shape for k, v in read_npz(path).items()}
+    {'stride': (), 'pafs': (1, 2, 3, 4)}
+    """
+    where = str(path)
+    arrays: dict[str, np.ndarray] = {}
+    try:
+        with zipfile.ZipFile(path) as zf:
+            infos = zf.infolist()
+            total = sum(info.file_size for info in infos)
+            if total > max_bytes:
+                raise BadInput(f"the arrays would take {total / 2**30:.1f} GiB; refused",
+                               where=where)
+            for info in infos:
+                _check_member(zf, info, where)
+                with zf.open(info) as fh:
+                    arrays[info.filename[:-len(".npy")]] = np.lib.format.read_array(
+                        fh, allow_pickle=False)
+    except BadInput:
+        raise
+    except (OSError, ValueError, EOFError, zipfile.BadZipFile, KeyError) as exc:
+        raise BadInput(f"not a readable .npz of arrays ({exc})", where=where) from None
+    return arrays
+
+
+def _check_member(zf: zipfile.ZipFile, info: zipfile.ZipInfo, where: str) -> None:
+    """Refuse a member that is not a ``.npy`` array of a plain dtype whose data fits in it."""
+    name = info.filename
+    if not name.endswith(".npy"):
+        raise BadInput(f"member {name!r} is not a .npy array", where=where)
+    with zf.open(info) as fh:
+        version = np.lib.format.read_magic(fh)
+        if version == (1, 0):
+            shape, _, dtype = np.lib.format.read_array_header_1_0(fh)
+        elif version == (2, 0):
+            shape, _, dtype = np.lib.format.read_array_header_2_0(fh)
+        else:
+            raise BadInput(f"member {name!r}: .npy format version {version} is not read",
+                           where=where, hint="save it with numpy.savez")
+        header = fh.tell()
+    if dtype.hasobject:
+        raise BadInput(f"member {name!r}: holds Python objects, which are never loaded",
+                       where=where)
+    declared = math.prod(shape) * dtype.itemsize
+    if declared > info.file_size - header:
+        raise BadInput(f"member {name!r}: its header declares {declared:,} bytes of shape "
+                       f"{shape}, but it holds {info.file_size - header:,}", where=where)
 
 
 def match_map_files(folder: str | Path, frames: list[Frame]) -> dict[int, Path]:

@@ -194,7 +194,7 @@ def extract_frames(video: str | Path, out_dir: str | Path, every: int = 1,
             ok, data = cv2.imencode(suffix, image, params)
             if not ok:
                 raise BadInput(f"cannot encode frame {index} as {suffix}", where=str(path))
-            data.tofile(str(path))
+            _write_bytes(path, data.tobytes())
             written.append(VideoFrame(path, index, float(seconds), int(image.shape[1]),
                                       int(image.shape[0])))
         progress.step(index + 1, index + 1, "extracting video frames")
@@ -211,6 +211,16 @@ def extract_frames(video: str | Path, out_dir: str | Path, every: int = 1,
     finally:
         cap.release()
     return written
+
+
+def _write_bytes(path: Path, data: bytes) -> None:
+    """Write a frame's file; a full disk raises OSError with its errno and the file name
+    (``ndarray.tofile`` reports only the counts of bytes)."""
+    try:
+        with open(path, "wb") as fh:
+            fh.write(data)
+    except OSError as exc:
+        raise OSError(exc.errno, exc.strerror, str(path)) from None
 
 
 def _open(path: Path) -> cv2.VideoCapture:

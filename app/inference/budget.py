@@ -83,7 +83,8 @@ def budget_bytes() -> int:
 
 
 def _check_mb(value: float, where: str) -> None:
-    if not (math.isfinite(value) and value > 0):
+    # The budget is kept in bytes: a value whose byte count overflows a float is refused too.
+    if not (math.isfinite(value * _MB) and value > 0):
         raise BadInput(f"{value} is not a positive number of megabytes", where=where)
 
 

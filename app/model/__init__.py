@@ -36,6 +36,16 @@ from app.model.labels import (
     Region,
 )
 from app.model.skeleton import Side, Skeleton, coco_body, load_skeleton, skeleton_from_dict
+from app.model.targets import (
+    JointTarget,
+    KeptTarget,
+    NoteTarget,
+    PersonTarget,
+    RecordTarget,
+    RegionTarget,
+    StateTarget,
+    Target,
+)
 
 __all__ = [
     "AUTO",
@@ -52,14 +62,20 @@ __all__ = [
     "Frame",
     "FrameLabels",
     "FrameState",
+    "JointTarget",
     "KeepOurs",
+    "KeptTarget",
     "MergePeople",
     "MoveJoint",
     "NewPerson",
     "Note",
+    "NoteTarget",
     "Person",
+    "PersonTarget",
     "ReassignJoint",
+    "RecordTarget",
     "Region",
+    "RegionTarget",
     "ReshapeRegion",
     "Restore",
     "SetFrameState",
@@ -67,7 +83,9 @@ __all__ = [
     "Side",
     "Skeleton",
     "SplitPerson",
+    "StateTarget",
     "SwapSides",
+    "Target",
     "apply_changes",
     "coco_body",
     "edit_from_value",

@@ -6,16 +6,9 @@ gives the new labels; applying their inverses in reverse order gives the old lab
 every edit can invert itself (the command pattern). The store writes the same changes to its
 append-only ledger, which is why undo survives a restart.
 
-Targets and their values (all JSON-ready):
-
-- ``("person", pid)``: the whole person (:meth:`Person.to_value`) or ``None`` when absent.
-- ``("joint", pid, j)``: ``[x, y, v, score, source]`` of one joint of an existing person.
-- ``("state",)``: the frame's state, a :class:`FrameState` value.
-- ``("note", nid)``: a note's value or ``None``.
-- ``("region", rid)``: an ignore region's value (:meth:`Region.to_value`) or ``None``.
-- ``("kept", aid)``: the sorted joints of the reviewer's version ``aid`` settled as ours.
-- ``("dismissal", key)``: a finding dismissed as not a problem (``{"kind", "finding", "text",
-  "author", "time"}``) or ``None``; ``key`` is the fingerprint of the labels it was about.
+Targets are small typed values (:mod:`app.model.targets`): :class:`PersonTarget`,
+:class:`JointTarget`, :class:`StateTarget`, :class:`NoteTarget`, :class:`RegionTarget`,
+:class:`KeptTarget` and :class:`DismissalTarget`; that module says which value each carries.
 
 Edits are refused with :class:`~app.errors.EditRefused` (and nothing changes) when they would
 make the labels inconsistent; the message says why and what to do.
@@ -30,10 +23,22 @@ from typing import Any, ClassVar
 
 import numpy as np
 
-from app.errors import EditRefused
+from app.errors import ChangedMeanwhile, EditRefused
 from app.model.labels import FrameLabels, FrameState, Note, Person, Region
+from app.model.targets import (
+    DismissalTarget,
+    JointTarget,
+    KeptTarget,
+    NoteTarget,
+    PersonTarget,
+    RecordTarget,
+    RegionTarget,
+    StateTarget,
+    Target,
+)
 
-Target = tuple[Any, ...]
+TARGET_TYPES = (PersonTarget, JointTarget, StateTarget, NoteTarget, RegionTarget, KeptTarget,
+                DismissalTarget, RecordTarget)
 
 
 @dataclass(frozen=True)
@@ -44,17 +49,17 @@ class Change:
     before: Any
     after: Any
 
+    def __post_init__(self) -> None:
+        if not isinstance(self.target, TARGET_TYPES):
+            raise TypeError(f"a change's target must be one of app.model.targets' types, "
+                            f"not {self.target!r}")
+
     def inverted(self) -> Change:
         return Change(self.target, self.after, self.before)
 
     def describe(self) -> str:
         """The target as text: ``person:12``, ``person:12/joint:9``, ``state``, ``note:3``."""
-        kind = self.target[0]
-        if kind == "joint":
-            return f"person:{self.target[1]}/joint:{self.target[2]}"
-        if kind in ("person", "note", "region", "kept", "dismissal"):
-            return f"{kind}:{self.target[1]}"
-        return kind
+        return str(self.target)
 
 
 @dataclass(frozen=True)
@@ -66,27 +71,36 @@ class EditContext:
 
 
 def _current(labels: FrameLabels, target: Target) -> Any:
-    kind = target[0]
-    if kind == "person":
-        p = labels.people.get(target[1])
+    """The value ``target`` holds in ``labels`` now (None when absent)."""
+    if isinstance(target, PersonTarget):
+        p = labels.people.get(target.person)
         return None if p is None else p.to_value()
-    if kind == "joint":
-        return labels.person(target[1]).joint_value(target[2])
-    if kind == "state":
+    if isinstance(target, JointTarget):
+        return labels.person(target.person).joint_value(target.joint)
+    if isinstance(target, StateTarget):
         return labels.state.value
-    if kind == "note":
-        n = labels.notes.get(target[1])
+    if isinstance(target, NoteTarget):
+        n = labels.notes.get(target.note)
         return None if n is None else n.to_value()
-    if kind == "region":
-        r = labels.regions.get(target[1])
+    if isinstance(target, RegionTarget):
+        r = labels.regions.get(target.region)
         return None if r is None else r.to_value()
-    if kind == "kept":
-        kept = labels.kept.get(target[1])
+    if isinstance(target, KeptTarget):
+        kept = labels.kept.get(target.alternative)
         return None if kept is None else sorted(kept)
-    if kind == "dismissal":
-        value = labels.dismissed.get(target[1])
+    if isinstance(target, DismissalTarget):
+        value = labels.dismissed.get(target.key)
         return None if value is None else dict(value)
     raise EditRefused(f"unknown change target {target!r}")
+
+
+def current_value(labels: FrameLabels, target: Target) -> Any:
+    """The value ``target`` holds in ``labels`` now; None when it is absent (a person, note or
+    region that does not exist, or a joint of such a person)."""
+    try:
+        return _current(labels, target)
+    except EditRefused:
+        return None
 
 
 def apply_changes(labels: FrameLabels, changes: Iterable[Change]) -> FrameLabels:
@@ -98,44 +112,40 @@ def apply_changes(labels: FrameLabels, changes: Iterable[Change]) -> FrameLabels
     dismissed = dict(labels.dismissed)
     state = labels.state
     for ch in changes:
-        kind = ch.target[0]
-        if kind == "person":
-            pid = ch.target[1]
+        t = ch.target
+        if isinstance(t, PersonTarget):
             if ch.after is None:
-                people.pop(pid, None)
+                people.pop(t.person, None)
             else:
-                people[pid] = Person.from_value(pid, ch.after)
-        elif kind == "joint":
-            pid, j = ch.target[1], ch.target[2]
-            if pid not in people:
-                raise EditRefused(f"frame {labels.frame_id} has no person {pid}")
-            people[pid] = people[pid].with_joint(j, ch.after)
-        elif kind == "state":
+                people[t.person] = Person.from_value(t.person, ch.after)
+        elif isinstance(t, JointTarget):
+            if t.person not in people:
+                raise EditRefused(f"frame {labels.frame_id} has no person {t.person}")
+            people[t.person] = people[t.person].with_joint(t.joint, ch.after)
+        elif isinstance(t, StateTarget):
             state = FrameState(ch.after)
-        elif kind == "note":
-            nid = ch.target[1]
+        elif isinstance(t, NoteTarget):
             if ch.after is None:
-                notes.pop(nid, None)
+                notes.pop(t.note, None)
             else:
-                notes[nid] = Note.from_value(nid, labels.frame_id, ch.after)
-        elif kind == "region":
-            rid = ch.target[1]
+                notes[t.note] = Note.from_value(t.note, labels.frame_id, ch.after)
+        elif isinstance(t, RegionTarget):
             if ch.after is None:
-                regions.pop(rid, None)
+                regions.pop(t.region, None)
             else:
-                regions[rid] = Region.from_value(rid, labels.frame_id, ch.after)
-        elif kind == "kept":
+                regions[t.region] = Region.from_value(t.region, labels.frame_id, ch.after)
+        elif isinstance(t, KeptTarget):
             if ch.after is None:
-                kept.pop(ch.target[1], None)
+                kept.pop(t.alternative, None)
             else:
-                kept[ch.target[1]] = frozenset(int(j) for j in ch.after)
-        elif kind == "dismissal":
+                kept[t.alternative] = frozenset(int(j) for j in ch.after)
+        elif isinstance(t, DismissalTarget):
             if ch.after is None:
-                dismissed.pop(ch.target[1], None)
+                dismissed.pop(t.key, None)
             else:
-                dismissed[ch.target[1]] = dict(ch.after)
+                dismissed[t.key] = dict(ch.after)
         else:
-            raise EditRefused(f"unknown change target {ch.target!r}")
+            raise EditRefused(f"unknown change target {t!r}")
     return replace(labels, people=people, notes=notes, state=state, regions=regions, kept=kept,
                    dismissed=dismissed)
 
@@ -174,7 +184,7 @@ class Edit:
 
 
 def _joint_change(person: Person, j: int, after: list[Any]) -> Change:
-    return Change(("joint", person.id, j), person.joint_value(j), after)
+    return Change(JointTarget(person.id, j), person.joint_value(j), after)
 
 
 def _check_joint(labels: FrameLabels, person: Person, joint: int) -> int:
@@ -298,7 +308,7 @@ class NewPerson(Edit):
             if not np.isfinite(kp[kp[:, 2] > 0, :2]).all():
                 raise EditRefused("labelled joints need finite positions")
             p = replace(p, keypoints=kp)
-        return [Change(("person", p.id), None, p.to_value())]
+        return [Change(PersonTarget(p.id), None, p.to_value())]
 
     def summary(self) -> str:
         return f"new person {self.person_id}"
@@ -313,7 +323,7 @@ class DeletePerson(Edit):
 
     def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
         p = labels.person(self.person_id)
-        return [Change(("person", p.id), p.to_value(), None)]
+        return [Change(PersonTarget(p.id), p.to_value(), None)]
 
     def summary(self) -> str:
         return f"delete person {self.person_id}"
@@ -344,7 +354,7 @@ class MergePeople(Edit):
         for j in np.flatnonzero(gone.labelled):
             x, y, v, s, _ = gone.joint_value(int(j))
             changes.append(_joint_change(keep, int(j), [x, y, v, s, ctx.author]))
-        changes.append(Change(("person", gone.id), gone.to_value(), None))
+        changes.append(Change(PersonTarget(gone.id), gone.to_value(), None))
         return changes
 
     def summary(self) -> str:
@@ -378,7 +388,7 @@ class SplitPerson(Edit):
             x, y, _, s, _ = p.joint_value(j)
             changes.append(_joint_change(p, j, [x, y, 0, s, ctx.author]))
         new = replace(new, keypoints=kp, scores=scores, sources=tuple(sources))
-        return [Change(("person", new.id), None, new.to_value()), *changes]
+        return [Change(PersonTarget(new.id), None, new.to_value()), *changes]
 
     def summary(self) -> str:
         return f"split joints {list(self.joints)} of person {self.person_id} into a new person"
@@ -417,7 +427,7 @@ class SetFrameState(Edit):
         state = FrameState(self.state)
         if state == labels.state:
             return []
-        return [Change(("state",), labels.state.value, state.value)]
+        return [Change(StateTarget(), labels.state.value, state.value)]
 
     def summary(self) -> str:
         return f"mark frame {FrameState(self.state).value}"
@@ -443,7 +453,7 @@ class AddNote(Edit):
         if self.person_id is not None:
             labels.person(self.person_id)
         note = Note(self.note_id, self.frame_id, ctx.author, ctx.time, self.text, self.person_id)
-        return [Change(("note", self.note_id), None, note.to_value())]
+        return [Change(NoteTarget(self.note_id), None, note.to_value())]
 
     def summary(self) -> str:
         return "add note"
@@ -476,7 +486,7 @@ class AddRegion(Edit):
         if self.region_id in labels.regions:
             raise EditRefused(f"region {self.region_id} already exists")
         region = Region(self.region_id, self.frame_id, _polygons(self.polygons))
-        return [Change(("region", self.region_id), None, region.to_value())]
+        return [Change(RegionTarget(self.region_id), None, region.to_value())]
 
     def summary(self) -> str:
         return "add an ignore region"
@@ -498,7 +508,7 @@ class ReshapeRegion(Edit):
         new = Region(old.id, old.frame_id, _polygons(self.polygons), extra)
         if new == old:
             return []
-        return [Change(("region", old.id), old.to_value(), new.to_value())]
+        return [Change(RegionTarget(old.id), old.to_value(), new.to_value())]
 
     def summary(self) -> str:
         return f"reshape ignore region {self.region_id}"
@@ -515,7 +525,7 @@ class DeleteRegion(Edit):
         old = labels.regions.get(self.region_id)
         if old is None:
             raise EditRefused(f"frame {self.frame_id} has no region {self.region_id}")
-        return [Change(("region", old.id), old.to_value(), None)]
+        return [Change(RegionTarget(old.id), old.to_value(), None)]
 
     def summary(self) -> str:
         return f"delete ignore region {self.region_id}"
@@ -541,7 +551,7 @@ class KeepOurs(Edit):
             before = sorted(labels.kept[alt])
             after = sorted(set(before) | {int(j) for j in joints})
             if after != before:
-                changes.append(Change(("kept", alt), before, after))
+                changes.append(Change(KeptTarget(alt), before, after))
         return changes
 
     def summary(self) -> str:
@@ -572,7 +582,7 @@ class DismissFinding(Edit):
             return []
         value = {"kind": self.kind, "finding": self.finding, "text": self.text,
                  "author": ctx.author, "time": ctx.time}
-        return [Change(("dismissal", self.key), None, value)]
+        return [Change(DismissalTarget(self.key), None, value)]
 
     def summary(self) -> str:
         return f"dismiss finding {self.finding or self.key[:8]} ({self.kind}): not a problem"
@@ -621,15 +631,10 @@ class Restore(Edit):
     def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
         staged = labels
         for ch in self.changes:
-            try:
-                now = _current(staged, ch.target)
-            except EditRefused:
-                now = None
-            if not _same_value(now, ch.before):
-                raise EditRefused(
+            if not same_value(current_value(staged, ch.target), ch.before):
+                raise ChangedMeanwhile(
                     f"frame {self.frame_id}: {ch.describe()} changed since it was recorded; "
-                    "cannot restore it"
-                )
+                    "cannot restore it", frame_id=self.frame_id, target=ch.target)
             staged = apply_changes(staged, [ch])
         return list(self.changes)
 
@@ -637,13 +642,14 @@ class Restore(Edit):
         return self.label
 
 
-def _same_value(a: Any, b: Any) -> bool:
+def same_value(a: Any, b: Any) -> bool:
+    """Equal JSON-ready values, NaN equal to NaN."""
     if isinstance(a, float) and isinstance(b, float):
         return a == b or (a != a and b != b)
     if isinstance(a, dict) and isinstance(b, dict):
-        return a.keys() == b.keys() and all(_same_value(a[k], b[k]) for k in a)
+        return a.keys() == b.keys() and all(same_value(a[k], b[k]) for k in a)
     if isinstance(a, (list, tuple)) and isinstance(b, (list, tuple)):
-        return len(a) == len(b) and all(_same_value(x, y) for x, y in zip(a, b))
+        return len(a) == len(b) and all(same_value(x, y) for x, y in zip(a, b))
     return bool(a == b)
 
 
@@ -745,4 +751,4 @@ _SERIALISABLE.update({cls.__name__: cls for cls in (
 
 def labels_changed(changes: Sequence[Change]) -> bool:
     """Whether any change touches what training sees: people, joints or ignore regions."""
-    return any(c.target[0] in ("person", "joint", "region") for c in changes)
+    return any(isinstance(c.target, (PersonTarget, JointTarget, RegionTarget)) for c in changes)

@@ -8,7 +8,6 @@ came from a file (names, file names, joint names) is printed through
 from __future__ import annotations
 
 import argparse
-import json
 import math
 import sys
 import time
@@ -16,9 +15,11 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
-from app.errors import BadInput, ProjectLocked
+from app.cli import print_json, whole_number
+from app.errors import BadInput, NotFound, ProjectLocked
 from app.review import DEFAULT_IMAGES, IMAGE_MODES
 from app.safetext import shown
+from app.wording import count
 
 Command = Callable[..., argparse.ArgumentParser]
 
@@ -77,7 +78,7 @@ def register(sub: Any, command: Command) -> None:
 
     q = action("decide", cmd_decide, "record the reviewer's decision on a frame of a packet")
     q.add_argument("packet", metavar="FILE.zip")
-    q.add_argument("--frame", required=True, type=int, metavar="ID")
+    q.add_argument("--frame", required=True, type=whole_number(), metavar="ID")
     q.add_argument("--decision", required=True,
                    help="agree, needs-change, signed-off, or none to withdraw")
 
@@ -91,17 +92,13 @@ def register(sub: Any, command: Command) -> None:
     q.add_argument("--json", action="store_true", help="print the merge report as JSON")
 
 
-def _print_json(data: Any) -> None:
-    json.dump(data, sys.stdout, indent=2, default=str)
-    sys.stdout.write("\n")
-
-
-def _open_project(folder: str, author: str | None, write: bool):  # -> Project
+def _open_project(folder: str, author: str | None, write: bool,
+                  images: str | None = None):  # -> Project
     """Open for editing when possible; ``write`` makes read-only (another process holds the
-    project) an error."""
+    project) an error. ``images``: a hosted project's images root on this machine."""
     from app.jobs import open_project
 
-    project = open_project(folder, author=author)
+    project = open_project(folder, author=author, images=images)
     if write and project.read_only:
         reason = project.read_only_reason
         project.close()
@@ -124,21 +121,23 @@ def _progress(quiet: bool):  # -> Progress
 def cmd_export(args: argparse.Namespace) -> int:
     from app.review.packet import export_packet, select_frames
 
-    with _open_project(args.project, args.author, write=False) as project:
+    with _open_project(args.project, args.author, write=False,
+                       images=args.images_root) as project:
         frames = select_frames(project, args.frames)
         stats = export_packet(project, args.out, frames, images=args.images,
                               reviewer=args.reviewer, progress=_progress(args.quiet))
     if stats["missing_images"]:
-        print(f"posewright: warning: {stats['missing_images']} frames went without their "
-              "image (missing or unreadable)", file=sys.stderr)
+        print(f"posewright: warning: {count(stats['missing_images'], 'frames')} went without "
+              "their image (missing or unreadable)", file=sys.stderr)
     if stats["outside_images"]:
-        print(f"posewright: warning: {stats['outside_images']} frames went without their "
-              "image: it is a link to a file outside the images folder", file=sys.stderr)
+        print(f"posewright: warning: {count(stats['outside_images'], 'frames')} went without "
+              "their image: it is a link to a file outside the images folder", file=sys.stderr)
     if stats["unplaced_heads"]:
-        print(f"posewright: warning: {stats['unplaced_heads']} people have no labelled joint, "
-              "so their heads could not be blurred", file=sys.stderr)
-    print(f"wrote {args.out}: {stats['frames']} frames, {stats['people']} people, "
-          f"{stats['images']} images ({args.images})")
+        print(f"posewright: warning: {count(stats['unplaced_heads'], 'people')} with no "
+              "labelled joint: no head to blur", file=sys.stderr)
+    print(f"wrote {shown(args.out)}: {count(stats['frames'], 'frames')}, "
+          f"{count(stats['people'], 'people')}, {count(stats['images'], 'images')} "
+          f"({args.images})")
     return 0
 
 
@@ -158,7 +157,7 @@ def cmd_show(args: argparse.Namespace) -> int:
         info["decisions"] = {str(d.frame_id): d.decision
                              for d in packet.returned.decisions.values()}
     if args.json:
-        _print_json(info)
+        print_json(info)
     else:
         for key, value in info.items():
             print(f"{key:>12}: {shown(value)}")
@@ -170,6 +169,11 @@ def cmd_decide(args: argparse.Namespace) -> int:
 
     decision = None if args.decision.strip().lower() == "none" else args.decision
     with open_packet(args.packet, reviewer=args.author) as project:
+        held = [f.id for f in project.frames()]
+        if args.frame not in held:
+            listed = ", ".join(map(str, held[:12])) + (", ..." if len(held) > 12 else "")
+            raise NotFound(f"{args.packet}: the packet has no frame {args.frame}; it holds "
+                           f"{count(len(held), 'frames')}: {listed}")
         made = set_decision(project, args.frame, decision)
     print(f"frame {args.frame}: " + (made.decision if made else "decision withdrawn"))
     return 0
@@ -180,26 +184,27 @@ def cmd_return(args: argparse.Namespace) -> int:
 
     with open_packet(args.packet, reviewer=args.author) as project:
         out = return_packet(project, args.out)
-    print(f"wrote {out}; send it back to be merged")
+    print(f"wrote {shown(out)}; send it back to be merged")
     return 0
 
 
 def cmd_merge(args: argparse.Namespace) -> int:
     from app.review.merge import merge_packet
 
-    with _open_project(args.project, args.author, write=True) as project:
+    with _open_project(args.project, args.author, write=True,
+                       images=args.images_root) as project:
         report = merge_packet(project, args.returned, progress=_progress(args.quiet))
     if args.json:
-        _print_json(report.to_dict())
+        print_json(report.to_dict())
         return 0
     if report.already_merged:
         when = time.strftime("%Y-%m-%d %H:%M", time.localtime(report.merged_at or 0))
         print(f"{shown(args.returned)}: already merged on {when}; nothing changed")
         return 0
-    print(f"merged {shown(args.returned)} from {shown(report.reviewer)}: {report.frames} frames, "
-          f"{report.joints_taken} joints taken, {report.people_added} people added, "
-          f"{report.people_deleted} deleted, {report.notes_added} notes, "
-          f"{len(report.conflicts)} conflicts")
+    print(f"merged {shown(args.returned)} from {shown(report.reviewer)}: "
+          f"{count(report.frames, 'frames')}, {count(report.joints_taken, 'joints')} taken, "
+          f"{count(report.people_added, 'people')} added, {report.people_deleted} deleted, "
+          f"{count(report.notes_added, 'notes')}, {count(len(report.conflicts), 'conflicts')}")
     for c in report.conflicts:
         what = c["kind"] if c["kind"] != "joints" else "joints " + ", ".join(map(str,
                                                                                 c["joints"]))
@@ -239,7 +244,7 @@ def cmd_compare(args: argparse.Namespace) -> int:
     if args.json:
         data = result.to_dict()
         data["marked_disputed"] = marked
-        _print_json(data)
+        print_json(data)
         return 0
     _print_comparison(result, threshold, marked)
     return 0
@@ -262,8 +267,9 @@ def _print_comparison(result: Any, threshold: float | None, marked: list[int]) -
     worst = sorted(result.frames, key=lambda f: f.mean_oks)[:10]
     print("lowest mean OKS:")
     for f in worst:
-        print(f"  {f.mean_oks:.3f}  {shown(f.file_name):<28} {len(f.pairs)} pairs, "
+        print(f"  {f.mean_oks:.3f}  {shown(f.file_name):<28} {count(len(f.pairs), 'pairs')}, "
               f"{len(f.unpaired_a)}+{len(f.unpaired_b)} unpaired, "
-              f"{len(f.disagreements)} joints disagree")
+              f"{count(len(f.disagreements), 'joints')} disagree")
     if threshold is not None:
-        print(f"marked {len(marked)} frames of A disputed (mean OKS below {threshold:g})")
+        print(f"marked {count(len(marked), 'frames')} of A disputed (mean OKS below "
+              f"{threshold:g})")

@@ -15,7 +15,6 @@ from __future__ import annotations
 
 import csv
 import io
-import json
 import math
 from collections.abc import Mapping, Sequence
 from dataclasses import asdict, dataclass, field
@@ -26,12 +25,13 @@ import numpy as np
 
 from app.analysis.similarity import match_people, person_area
 from app.errors import BadInput, NotFound
-from app.fileio import atomic_write
+from app.fileio import atomic_write, read_json
 from app.formats.coco import read_coco
 from app.model.edits import AddNote, SetFrameState
 from app.model.labels import Frame, FrameState, Person
 from app.model.skeleton import Skeleton, coco_body
 from app.store import Project
+from app.store.hosted import is_database_url
 from app.store.project import DB_NAME
 
 __all__ = [
@@ -66,22 +66,17 @@ def load_labels(path: str | Path, skeleton: Skeleton | None = None) -> LabelSet:
     ``skeleton`` is needed for a COCO file whose category is not the 17-joint COCO body (its
     OKS sigmas are not in the file).
     """
-    path = Path(path)
-    if path.is_dir():
-        if not (path / DB_NAME).is_file():
+    if is_database_url(str(path)) or Path(path).is_dir():
+        if not is_database_url(str(path)) and not (Path(path) / DB_NAME).is_file():
             raise NotFound(f"{path}: no project here (no {DB_NAME})")
         with Project.open(path, read_only=True) as project:
             people = project.people_by_frame()
             labelled = {_norm(f.file_name): (f.id, people.get(f.id, []))
                         for f in project.frames()}
-            return LabelSet(str(path), "project", project.skeleton, labelled)
+            return LabelSet(project.location, "project", project.skeleton, labelled)
+    path = Path(path)
     where = str(path)
-    try:
-        data = json.loads(path.read_bytes())
-    except OSError as exc:
-        raise BadInput(f"cannot read the file ({exc.strerror})", where=where) from None
-    except ValueError as exc:
-        raise BadInput(f"not valid JSON ({exc})", where=where) from None
+    data = read_json(path)
     if not (isinstance(data, dict) and isinstance(data.get("images"), list)):
         raise BadInput("not a COCO keypoints dataset (images, annotations, categories)",
                        where=where, hint="compare needs file names; a results list has none")

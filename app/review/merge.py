@@ -45,7 +45,6 @@ over are recognised.
 
 from __future__ import annotations
 
-import json
 import logging
 import time
 from collections.abc import Mapping, Sequence
@@ -58,6 +57,8 @@ import numpy as np
 from app.errors import BadInput, EditRefused, NotFound
 from app.model.edits import AddNote, Change, EditContext, NewPerson, Restore, SetFrameState
 from app.model.labels import FrameLabels, FrameState, Note, Person
+from app.model.records import PacketRecord
+from app.model.targets import JointTarget, PersonTarget
 from app.progress import Progress
 from app.review import safezip
 from app.review.packet import FrameContent, Packet, read_packet
@@ -208,7 +209,7 @@ def plan_frame(base: FrameContent, ours: FrameLabels, theirs: FrameContent,
             continue
         if t is None:
             if same_joints(o.keypoints, b.keypoints).all():
-                plan.changes.append(Change(("person", pid), o.to_value(), None))
+                plan.changes.append(Change(PersonTarget(pid), o.to_value(), None))
                 plan.people_deleted += 1
             else:
                 plan.conflicts.append(Conflict(ours.frame_id, pid, "deleted-there",
@@ -241,7 +242,7 @@ def _plan_person(plan: FramePlan, b: Person, o: Person, t: Person) -> None:
     merged = o
     for j in np.flatnonzero(take).tolist():
         after = t.joint_value(j)
-        plan.changes.append(Change(("joint", o.id, j), o.joint_value(j), after))
+        plan.changes.append(Change(JointTarget(o.id, j), o.joint_value(j), after))
         merged = merged.with_joint(j, after)
     plan.joints_taken += int(take.sum())
     if clash.any():
@@ -278,11 +279,8 @@ class _Earlier:
 
 
 def _earlier_return(project: Project, packet_id: str, reviewer: str) -> _Earlier | None:
-    rows = project.query("SELECT time, report FROM packets WHERE packet_id = ? AND "
-                         "direction = 'merged' AND reviewer = ? ORDER BY time DESC",
-                         (packet_id, reviewer))
-    for merged, text in rows:
-        record = json.loads(text or "{}")
+    for found in project.packet_records(packet_id, "merged", reviewer=reviewer):
+        record, merged = found.report, found.time
         if "reviewer_labels" in record:
             labels = {int(fid): _content_from_record(int(fid), value)
                       for fid, value in record["reviewer_labels"].items()}
@@ -379,7 +377,7 @@ class ReviewPerson(NewPerson):
         person = Person.from_value(self.person_id, self.value)
         if person.keypoints.shape != (labels.num_joints, 3):
             raise EditRefused(f"keypoints must be ({labels.num_joints}, 3)")
-        return [Change(("person", person.id), None, person.to_value())]
+        return [Change(PersonTarget(person.id), None, person.to_value())]
 
     def summary(self) -> str:
         return self.label or f"new person {self.person_id}"
@@ -474,10 +472,9 @@ def merge_packet(project: Project, path: str | Path,
         raise BadInput("the packet's skeleton differs from the project's", where=where)
     reviewer = packet.returned.reviewer
     report = MergeReport(packet.packet_id, reviewer, frames=len(packet.frames))
-    done = project.query("SELECT time FROM packets WHERE packet_id = ? AND direction = 'merged' "
-                         "AND sha256 = ?", (packet.packet_id, packet.sha256))
+    done = project.packet_records(packet.packet_id, "merged", sha256=packet.sha256)
     if done:
-        report.already_merged, report.merged_at = True, float(done[0][0])
+        report.already_merged, report.merged_at = True, done[0].time
         return report
     earlier = _earlier_return(project, packet.packet_id, reviewer)
     if earlier is not None and packet.returned.time < earlier.returned:
@@ -485,9 +482,8 @@ def merge_packet(project: Project, path: str | Path,
         raise BadInput(f"an older return of this packet by {reviewer}: their newer return, "
                        f"merged on {merged}, supersedes it", where=where,
                        hint="nothing to merge; merge the newest return only")
-    sent = project.query("SELECT sha256 FROM packets WHERE packet_id = ? AND "
-                         "direction = 'exported'", (packet.packet_id,))
-    if sent and sent[0][0] != packet.base_sha256:
+    sent = project.packet_records(packet.packet_id, "exported")
+    if sent and sent[0].sha256 != packet.base_sha256:
         raise BadInput("the base labels differ from the ones this project sent",
                        where=f"{where}: member 'labels.json'",
                        hint="the packet was altered; ask the reviewer for it again")
@@ -584,30 +580,18 @@ def _record(project: Project, packet: Packet, plans: Sequence[FramePlan],
     }
     with project.bulk("MergePacket", summary, f"packet:{packet.packet_id}",
                       kind="review") as b:
+        reviewer = packet.returned.reviewer
         for plan in plans:
             if again:
-                b.execute("UPDATE alternatives SET retired = ? WHERE frame_id = ? AND "
-                          "retired IS NULL AND packet_id = ? AND reviewer = ?",
-                          (now, plan.frame_id, packet.packet_id, packet.returned.reviewer))
+                b.alternatives.retire(plan.frame_id, now, packet_id=packet.packet_id,
+                                      reviewer=reviewer)
             if plan.conflicts and not plan.was_disputed:
-                b.execute("UPDATE alternatives SET retired = ? WHERE frame_id = ? AND "
-                          "retired IS NULL AND packet_id != ?",
-                          (now, plan.frame_id, packet.packet_id))
+                b.alternatives.retire(plan.frame_id, now, other_packets_than=packet.packet_id)
             for c in plan.conflicts:
-                b.execute(
-                    "INSERT OR REPLACE INTO alternatives (frame_id, person_id, packet_id, "
-                    "reviewer, created, kind, base, theirs, kept, retired) "
-                    "VALUES (?, ?, ?, ?, ?, ?, ?, ?, '[]', NULL)",
-                    (c.frame_id, c.person_id, packet.packet_id, packet.returned.reviewer, now,
-                     c.kind, _value(c.base), _value(c.theirs)))
-        b.execute("INSERT INTO packets (packet_id, direction, sha256, reviewer, time, frames, "
-                  "report, audit) VALUES (?, 'merged', ?, ?, ?, ?, ?, ?)",
-                  (packet.packet_id, packet.sha256, packet.returned.reviewer, now,
-                   json.dumps([f.id for f in packet.frames]), json.dumps(record),
-                   json.dumps(list(packet.returned.ledger))))
+                b.alternatives.put(c.frame_id, c.person_id, packet.packet_id, reviewer, now,
+                                   c.kind, c.base, c.theirs)
+        b.packets.add(PacketRecord(packet.packet_id, "merged", packet.sha256, reviewer, now,
+                                   tuple(f.id for f in packet.frames), record,
+                                   tuple(packet.returned.ledger)))
         b.stats.update({"frames": report.frames, "joints taken": report.joints_taken,
                         "conflicts": len(report.conflicts)})
-
-
-def _value(person: Person | None) -> str | None:
-    return None if person is None else json.dumps(person.to_value())

@@ -65,9 +65,10 @@ from pydantic import (
 from pydantic_core import PydanticCustomError
 
 from app.errors import BadInput, NotFound
-from app.fileio import atomic_write
+from app.fileio import MAX_ID, JsonId, atomic_write, describe, json_ready, parse_json
 from app.formats.images import IMAGE_SUFFIXES, MAX_SIDE, read_image
 from app.model.labels import Frame, FrameState, Note, Person
+from app.model.records import FrameDecision, PacketRecord
 from app.model.skeleton import Skeleton, skeleton_from_dict
 from app.progress import Progress
 from app.review import DEFAULT_IMAGES, IMAGE_MODES, safezip
@@ -117,16 +118,6 @@ class FrameContent:
     people: Mapping[int, Person]
     notes: Mapping[int, Note]
     state: FrameState | None = None
-
-
-@dataclass(frozen=True)
-class FrameDecision:
-    """The reviewer's verdict on a frame: agree, needs-change or signed-off."""
-
-    frame_id: int
-    decision: str
-    author: str
-    time: float
 
 
 @dataclass(frozen=True)
@@ -205,17 +196,17 @@ Ident = Annotated[StrictStr, Field(pattern=r"^[0-9A-Za-z._-]{1,64}$")]
 
 
 class _FrameModel(_Strict):
-    id: StrictInt
+    id: JsonId
     file_name: StrictStr = Field(min_length=1)
     width: StrictInt = Field(ge=0, le=MAX_SIDE)
     height: StrictInt = Field(ge=0, le=MAX_SIDE)
     state: StrictStr
-    base_seq: StrictInt = Field(ge=0)
+    base_seq: StrictInt = Field(ge=0, le=MAX_ID)
     image: StrictStr | None
 
 
 class _DecisionModel(_Strict):
-    frame: StrictInt
+    frame: JsonId
     decision: Decision
     author: Someone
     time: Number
@@ -244,7 +235,7 @@ class _ManifestModel(_Strict):
 
 
 class _PersonModel(_Strict):
-    id: StrictInt
+    id: JsonId
     keypoints: list[tuple[Number | None, Number | None, StrictInt]]
     scores: list[Number | None]
     sources: list[Name]
@@ -253,33 +244,33 @@ class _PersonModel(_Strict):
 
 
 class _NoteModel(_Strict):
-    id: StrictInt
+    id: JsonId
     author: Name
     time: Number
     text: StrictStr
-    person: StrictInt | None = None
+    person: JsonId | None = None
 
 
 class _FrameLabelsModel(_Strict):
-    id: StrictInt
+    id: JsonId
     people: list[_PersonModel]
     notes: list[_NoteModel]
     state: StrictStr | None = None
 
 
 class _LedgerRowModel(_Strict):
-    seq: StrictInt
-    group_id: StrictInt
+    seq: JsonId
+    group_id: JsonId
     kind: StrictStr
     action: StrictStr
     summary: StrictStr
     author: Someone
     time: Number
-    frame_id: StrictInt | None
+    frame_id: JsonId | None
     target: StrictStr
     before: Any = None
     after: Any = None
-    reverts: StrictInt | None = None
+    reverts: JsonId | None = None
 
 
 class _LabelsModel(_Strict):
@@ -294,29 +285,6 @@ class _ReturnedLabelsModel(_Strict):
 _MANIFEST = TypeAdapter(_ManifestModel)
 _LABELS = TypeAdapter(_LabelsModel)
 _RETURNED_LABELS = TypeAdapter(_ReturnedLabelsModel)
-
-
-def _no_constant(name: str) -> Any:
-    raise ValueError(f"{name} is not a JSON number")
-
-
-def _finite(text: str) -> float:
-    value = float(text)
-    if not math.isfinite(value):
-        raise ValueError(f"{text} is too large a number")
-    return value
-
-
-def _parse_json(raw: bytes, where: str) -> Any:
-    """JSON with every number finite (no NaN, Infinity or 1e999), nesting within Python's
-    recursion limit."""
-    try:
-        return json.loads(raw.decode("utf-8"), parse_constant=_no_constant,
-                          parse_float=_finite)
-    except (UnicodeDecodeError, ValueError) as exc:
-        raise BadInput(f"not valid JSON ({exc})", where=where) from None
-    except RecursionError:
-        raise BadInput("the JSON is nested too deeply", where=where) from None
 
 
 def _validate(adapter: TypeAdapter[Any], data: Any, where: str) -> Any:
@@ -367,7 +335,7 @@ def read_packet(path: str | Path, returned: bool | None = None,
         raw_manifest = safezip.read_member(archive, entries[MANIFEST], where,
                                            limit=MAX_MANIFEST)
         mwhere = f"{where}: member {MANIFEST!r}"
-        data = _parse_json(raw_manifest, mwhere)
+        data = parse_json(raw_manifest, mwhere, "the member")
         if isinstance(data, dict) and data.get("format") == FORMAT \
                 and data.get("version") != VERSION:
             raise BadInput(f"packet version {data.get('version')!r}; this Posewright reads "
@@ -471,7 +439,7 @@ def _check_members(listed: Mapping[str, str], present: set[str], expected: set[s
 
 def _frame_contents(raw: bytes, adapter: TypeAdapter[Any], where: str, skeleton: Skeleton,
                     frame_ids: Sequence[int]) -> tuple[dict[int, FrameContent], list[Any]]:
-    data = _validate(adapter, _parse_json(raw, where), where)
+    data = _validate(adapter, parse_json(raw, where, "the member"), where)
     k = skeleton.num_joints
     out: dict[int, FrameContent] = {}
     person_ids: set[int] = set()
@@ -642,18 +610,16 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
         progress.step(len(frames), len(frames), "writing the packet")
         if project.read_only:
             log.warning("%s is read-only; packet %s is not recorded in it, so its return "
-                        "cannot be checked against what was sent", project.folder, packet_id)
+                        "cannot be checked against what was sent", project.location, packet_id)
             return stats
         record = {k: v for k, v in stats.items() if k != "packet_id"}
         with project.bulk("ExportPacket",
                           f"send {len(frames)} frames for review"
                           + (f" by {reviewer}" if reviewer else "") + f" (images {images})",
                           f"packet:{packet_id}", kind="review") as b:
-            b.execute("INSERT INTO packets (packet_id, direction, sha256, reviewer, time, "
-                      "frames, report) VALUES (?, 'exported', ?, ?, ?, ?, ?)",
-                      (packet_id, hashlib.sha256(base_json).hexdigest(), reviewer or "",
-                       manifest["created"], json.dumps([f.id for f in frames]),
-                       json.dumps(record)))
+            b.packets.add(PacketRecord(packet_id, "exported", hashlib.sha256(base_json).hexdigest(),
+                                       reviewer or "", manifest["created"],
+                                       tuple(f.id for f in frames), record))
             b.stats.update(record)
     return stats
 
@@ -722,9 +688,9 @@ def _image_root(project: Project, frame: Frame, path: Path) -> Path:
     """The folder a frame's image was registered under, links not followed: the project's
     images folder when the image lies in it, else the folder its ``file_name`` is relative to
     (images added from another folder, video frames), else the image's own folder."""
-    meta = project.meta("images_root")
-    if meta:
-        root = Path(os.path.abspath(project.folder / meta))
+    images_root = project.images_root
+    if images_root is not None:
+        root = Path(os.path.abspath(images_root))
         if path.is_relative_to(root):
             return root
     parts = Path(frame.file_name).parts
@@ -734,7 +700,12 @@ def _image_root(project: Project, frame: Frame, path: Path) -> Path:
 
 
 def dumps_json(data: Any) -> bytes:
-    return json.dumps(data, separators=(",", ":"), allow_nan=False).encode("utf-8")
+    """Compact JSON for a member; a non-finite number (kept from an import made before such
+    numbers were refused) is written as null, with a warning."""
+    clean, found = json_ready(data)
+    for path in found:
+        log.warning("%s: not a finite number; written to the packet as null", describe(path, data))
+    return json.dumps(clean, separators=(",", ":"), allow_nan=False).encode("utf-8")
 
 
 def write_member(archive: zipfile.ZipFile, name: str, data: bytes,

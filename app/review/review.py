@@ -44,7 +44,7 @@ from app.review.packet import (
     write_member,
 )
 from app.safetext import check_name, shown
-from app.store import Project
+from app.store import NewFrame, Project
 from app.store.project import DB_NAME
 
 log = logging.getLogger(__name__)
@@ -182,21 +182,18 @@ def _build(folder: Path, packet: Packet, who: str | None, limits: safezip.Limits
     with Project.create(folder, skeleton=packet.skeleton, author=who) as project, \
             project.bulk("OpenPacket", f"open review packet from {packet.exported_by}",
                          f"packet:{packet.packet_id}", kind="review") as b:
-        rows = []
+        frames = []
         for f in packet.frames:
             name = Path(f.image).name if f.image else f"{f.id}"
-            status = "ok" if f.image else "missing"
-            rows.append((f.id, f"images/{name}", f.file_name, f.width, f.height, f.state.value,
-                         status))
-        b.executemany("INSERT INTO frames (id, path, file_name, width, height, state, status) "
-                      "VALUES (?, ?, ?, ?, ?, ?, ?)", rows)
+            frames.append((f.id, NewFrame(f"images/{name}", f.file_name, f.width, f.height,
+                                          "ok" if f.image else "missing", state=f.state)))
+        b.frames.insert_with_ids(frames)
         people = [(fid, p) for fid, c in packet.base.items() for p in c.people.values()]
         b.add_people(people)
-        notes = [(n.id, fid, n.person_id, n.author, n.time, n.text)
-                 for fid, c in packet.base.items() for n in c.notes.values()]
-        b.executemany("INSERT INTO notes VALUES (?, ?, ?, ?, ?, ?)", notes)
+        notes = [n for c in packet.base.values() for n in c.notes.values()]
+        b.notes.insert(notes)
         top_person = max([p.id for _, p in people], default=0)
-        top_note = max([n[0] for n in notes], default=0)
+        top_note = max([n.id for n in notes], default=0)
         b.set_meta("next_person_id", str(max(REVIEW_ID_BASE, top_person + 1)))
         b.set_meta("next_note_id", str(max(REVIEW_ID_BASE, top_note + 1)))
         b.set_meta("images_root", "images")
@@ -205,7 +202,7 @@ def _build(folder: Path, packet: Packet, who: str | None, limits: safezip.Limits
         b.set_meta(_META_REVIEWER, check_name(project.author, "the reviewer's name"))
         b.set_meta(_META_MANIFEST, json.dumps(packet.manifest))
         b.set_meta(_META_BASE, packet.base_json.decode("utf-8"))
-        b.count("frames", len(rows))
+        b.count("frames", len(frames))
     return project.author
 
 
@@ -244,22 +241,19 @@ def set_decision(project: Project, frame_id: int, decision: str | None) -> Frame
     if decision is None:
         with project.bulk("ReviewDecision", f"withdraw the decision on frame {frame.id}",
                           f"frame:{frame.id}", kind="review", frame_id=frame.id) as b:
-            b.execute("DELETE FROM review_decisions WHERE frame_id = ?", (frame.id,))
+            b.decisions.drop(frame.id)
         return None
     value = parse_decision(decision)
     made = FrameDecision(frame.id, value, reviewer_of(project), time.time())
     with project.bulk("ReviewDecision", f"frame {frame.id}: {value}", f"frame:{frame.id}",
                       kind="review", frame_id=frame.id) as b:
-        b.execute("INSERT OR REPLACE INTO review_decisions VALUES (?, ?, ?, ?)",
-                  (made.frame_id, made.decision, made.author, made.time))
+        b.decisions.put(made)
     return made
 
 
 def decisions(project: Project) -> dict[int, FrameDecision]:
     """The reviewer's decisions so far, by frame id."""
-    rows = project.query("SELECT frame_id, decision, author, time FROM review_decisions "
-                         "ORDER BY frame_id")
-    return {r[0]: FrameDecision(*r) for r in rows}
+    return project.decisions()
 
 
 def return_packet(project: Project, out: str | Path | None = None) -> Path:
@@ -294,7 +288,7 @@ def return_packet(project: Project, out: str | Path | None = None) -> Path:
             "people": [{"id": p.id, **p.to_value()} for p in labels.people.values()],
             "notes": [{"id": n.id, **n.to_value()} for n in labels.notes.values()],
         })
-    ledger = [e.__dict__ for e in reversed(project.history())]
+    ledger = [e.to_dict() for e in reversed(project.history())]
     returned_json = dumps_json({"frames": frames, "ledger": ledger})
     with atomic_zip(out) as archive:
         members = {LABELS: write_member(archive, LABELS, base_json),

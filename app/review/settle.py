@@ -18,7 +18,6 @@ them back. Nothing here imports Qt; the desktop app wires these functions to the
 
 from __future__ import annotations
 
-import json
 from collections.abc import Sequence
 from dataclasses import dataclass, replace
 
@@ -27,6 +26,8 @@ import numpy as np
 from app.errors import EditRefused
 from app.model.edits import Change, KeepOurs, Restore, SetFrameState
 from app.model.labels import FrameLabels, FrameState, Person
+from app.model.records import Alternative
+from app.model.targets import JointTarget, PersonTarget
 from app.review.merge import same_joints
 from app.store import Applied, Project
 
@@ -35,28 +36,6 @@ __all__ = [
     "differences", "keep_ours", "person_differences", "settle_frame", "take_theirs",
     "take_theirs_changes", "take_theirs_edit", "theirs_labels",
 ]
-
-
-@dataclass(frozen=True)
-class Alternative:
-    """The reviewer's version of one person of a disputed frame.
-
-    ``theirs`` is None when the reviewer deleted the person; ``kind`` is ``joints`` (both
-    changed joints differently), ``deleted-here`` (we deleted, they edited) or
-    ``deleted-there`` (they deleted, we edited). ``kept`` are the joints settled by keeping
-    ours.
-    """
-
-    id: int
-    frame_id: int
-    person_id: int
-    packet_id: str
-    reviewer: str
-    kind: str
-    base: Person | None
-    theirs: Person | None
-    kept: frozenset[int]
-    created: float
 
 
 @dataclass(frozen=True)
@@ -100,16 +79,7 @@ def alternatives(project: Project, frame_id: int) -> list[Alternative]:
     """The alternatives in play for a frame: none unless the frame is disputed."""
     if project.frame(frame_id).state is not FrameState.DISPUTED:
         return []
-    rows = project.query(
-        "SELECT id, frame_id, person_id, packet_id, reviewer, kind, base, theirs, kept, created "
-        "FROM alternatives WHERE frame_id = ? AND retired IS NULL ORDER BY person_id, id",
-        (int(frame_id),))
-    return [Alternative(r[0], r[1], r[2], r[3], r[4], r[5], _person(r[2], r[6]),
-                        _person(r[2], r[7]), frozenset(json.loads(r[8])), r[9]) for r in rows]
-
-
-def _person(pid: int, text: str | None) -> Person | None:
-    return None if text is None else Person.from_value(pid, json.loads(text))
+    return project.alternatives(frame_id)
 
 
 def person_differences(ours: Person | None, alternative: Alternative,
@@ -256,12 +226,12 @@ def take_theirs_changes(labels: FrameLabels, alts: Sequence[Alternative],
                 raise EditRefused(f"person {pid} is deleted on one side; take the whole person")
             if not person_differences(ours, alt, labels.skeleton.joints):
                 continue
-            changes.append(Change(("person", pid), None if ours is None else ours.to_value(),
+            changes.append(Change(PersonTarget(pid), None if ours is None else ours.to_value(),
                                   None if theirs is None else theirs.to_value()))
             continue
         for d in person_differences(ours, alt, labels.skeleton.joints):
             if joint is None or d.joint == joint:
-                changes.append(Change(("joint", pid, d.joint), ours.joint_value(d.joint),
+                changes.append(Change(JointTarget(pid, d.joint), ours.joint_value(d.joint),
                                       theirs.joint_value(d.joint)))
     return changes
 

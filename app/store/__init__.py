@@ -1,5 +1,8 @@
-"""The project on disk: :class:`Project` (SQLite store, edit ledger, undo and redo, locking)."""
+"""The project on disk or on a server: :class:`Project` (store, edit ledger, undo and redo,
+locking), behind one seam for SQLite folders and PostgreSQL databases."""
 
-from app.store.project import Applied, LedgerEntry, Project
+from app.store.frames import FrameQuery, NewFrame
+from app.store.ledger import Applied, LedgerEntry
+from app.store.project import Project
 
-__all__ = ["Applied", "LedgerEntry", "Project"]
+__all__ = ["Applied", "FrameQuery", "LedgerEntry", "NewFrame", "Project"]

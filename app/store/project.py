@@ -1,22 +1,29 @@
-"""The project on disk: a folder with ``project.db`` (SQLite, WAL) and images beside it.
+"""A project: the one facade the rest of Posewright uses, over a folder or a server.
 
-Durability: the database runs in WAL mode with ``synchronous=FULL``. Every user action is one
-``BEGIN IMMEDIATE ... COMMIT`` transaction, and with FULL the WAL is fsynced at each commit, so
-an edit for which :meth:`Project.apply` has returned survives a kill -9 *and* a power cut (with
-``synchronous=NORMAL`` WAL mode stays consistent but may lose the last commits on power loss,
-which would break "never loses an edit"). SQLite's journal makes a crash at any other moment
-lose at most the action in flight.
+A **folder project** is a folder with ``project.db`` (SQLite, WAL) and images beside it; a
+**hosted project** lives in a PostgreSQL database that a team shares (:mod:`app.store.hosted`),
+its images stay files on each machine. :meth:`Project.open` takes either (a folder, or a URL
+as :func:`app.store.hosted.is_database_url` recognises it) and returns the same API. The
+tables are written through gateways (:mod:`app.store.frames`, :mod:`app.store.people`, ...)
+and every label change through the ledger (:mod:`app.store.ledger`).
 
-Locking: one process at a time edits a project. The writer holds an advisory lock
+Durability (folder): the database runs in WAL mode with ``synchronous=FULL``. Every user action
+is one ``BEGIN IMMEDIATE ... COMMIT`` transaction, and with FULL the WAL is fsynced at each
+commit, so an edit for which :meth:`Project.apply` has returned survives a kill -9 *and* a
+power cut (with ``synchronous=NORMAL`` WAL mode stays consistent but may lose the last commits
+on power loss, which would break "never loses an edit"). SQLite's journal makes a crash at any
+other moment lose at most the action in flight.
+
+Locking (folder): one process at a time edits a project. The writer holds an advisory lock
 (``filelock``, an OS-level ``flock`` that the kernel releases when the process dies, so a crash
 leaves no stale lock) on ``project.lock``; a second process gets the project read-only, with the
 reason (who holds it, since when) in :attr:`Project.read_only_reason`. A project in a folder
 that cannot be written (a read-only file system or folder) cannot be locked; it opens read-only
 and the reason says so.
 
-Interrupted runs: the process that takes the lock first makes the files beside the database
-agree with it again (:mod:`app.store.recovery`: map runs rolled back or forward, unfinished
-video extractions and stale lock notes removed) and says so in one log line.
+Interrupted runs (folder): the process that takes the lock first makes the files beside the
+database agree with it again (:mod:`app.store.recovery`: map runs rolled back or forward,
+unfinished video extractions and stale lock notes removed) and says so in one log line.
 """
 
 from __future__ import annotations
@@ -30,39 +37,28 @@ import os
 import shutil
 import socket
 import sqlite3
-import tempfile
-import threading
 import time
 import uuid
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from contextlib import contextmanager
-from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import Any
+from typing import Any, TypeVar
 
 import filelock
-import numpy as np
 
-from app.errors import BadInput, NotFound, PosewrightError, ReadOnly
-from app.formats.images import ImageInfo, find_images, probe_image
-from app.formats.video import extract_frames, probe_video
-from app.model.edits import (
-    AddNote,
-    AddRegion,
-    Change,
-    Edit,
-    EditContext,
-    Restore,
-    apply_changes,
-    labels_changed,
-    needs_person_id,
-    with_person_id,
-)
-from app.model.labels import Frame, FrameLabels, FrameState, Note, Person, Region
+from app.errors import BadInput, NotFound, ReadOnly, StorageFailed
+from app.model.edits import Edit, EditContext
+from app.model.labels import Frame, FrameLabels, Note, Person
+from app.model.records import Alternative, FrameDecision, PacketRecord
 from app.model.skeleton import Skeleton, coco_body, skeleton_from_dict
-from app.progress import Progress
-from app.store import recovery
-from app.store.schema import SCHEMA_VERSION, migrate, schema_version
+from app.store import ledger, recovery
+from app.store.claims import Claim
+from app.store.db import SQLITE, Database, SqliteDatabase, Tx, storage_failed_text
+from app.store.derived import TriageResult
+from app.store.frames import FrameQuery, NewFrame
+from app.store.ledger import Applied, LedgerEntry
+from app.store.notes import RegionRow
+from app.store.schema import SCHEMA_VERSION, migrate_sqlite, schema_version
 
 log = logging.getLogger(__name__)
 
@@ -70,96 +66,38 @@ DB_NAME = "project.db"
 LOCK_NAME = "project.lock"
 HOLDER_NAME = "project.holder.json"
 VIDEO_FRAMES = "frames"  # where frames extracted from videos go, inside the project folder
+#: The first 16 bytes of every SQLite database file (https://sqlite.org/fileformat.html, 1.3.1).
+SQLITE_HEADER = b"SQLite format 3\x00"
+#: Frame and person ids are database integers (64-bit, signed).
+_INT64 = (-(2**63), 2**63 - 1)
 # What opening for writing meets in a folder that cannot be written.
 _NOT_WRITABLE = (errno.EROFS, errno.EACCES, errno.EPERM)
 
+Listener = Callable[[str, frozenset[int]], None]
+_T = TypeVar("_T")
+#: An edit renews its annotator's claim at most this often (a claim stands for minutes).
+_RENEW_SECONDS = 30.0
 
-@dataclass(frozen=True)
-class LedgerEntry:
-    """One row of the ledger: an atomic change, part of the user action ``group_id``.
-
-    ``kind`` is ``edit``, ``undo``, ``redo`` or ``import``; ``reverts`` names the group an
-    undo or redo entry reverses.
-    """
-
-    seq: int
-    group_id: int
-    kind: str
-    action: str
-    summary: str
-    author: str
-    time: float
-    frame_id: int | None
-    target: str
-    before: Any
-    after: Any
-    reverts: int | None
-
-
-@dataclass(frozen=True)
-class Applied:
-    """What :meth:`Project.apply` did: the ledger group (None if nothing changed) and the
-    changes, with ids the store filled in."""
-
-    group_id: int | None
-    changes: tuple[Change, ...]
-    edit: Edit
-
-
-def _target_text(target: tuple[Any, ...]) -> str:
-    return Change(target, None, None).describe()
-
-
-def _parse_target(text: str) -> tuple[Any, ...]:
-    if text == "state":
-        return ("state",)
-    parts = text.split("/")
-    kind, _, ident = parts[0].partition(":")
-    if kind == "person" and len(parts) == 2:
-        return ("joint", int(ident), int(parts[1].partition(":")[2]))
-    if kind in ("person", "note", "region", "kept"):
-        return (kind, int(ident))
-    if kind == "dismissal" and ident:
-        return (kind, ident)
-    raise PosewrightError(f"ledger target {text!r} is not a change")
-
-
-def _encode_person(p: Person) -> tuple[Any, ...]:
-    kp = np.ascontiguousarray(p.keypoints, dtype="<f8")
-    scores = None if np.isnan(p.scores).all() else np.ascontiguousarray(p.scores, "<f8").tobytes()
-    origin = p.sources[0] if p.sources else ""
-    sources = None if all(s == origin for s in p.sources) else json.dumps(list(p.sources))
-    extra = json.dumps(dict(p.extra)) if p.extra else None
-    return (p.id, kp.tobytes(), scores, sources, origin, p.score, extra)
-
-
-def _decode_person(row: Sequence[Any], num_joints: int) -> Person:
-    pid, kp_blob, scores_blob, sources, origin, score, extra = row
-    kp = np.frombuffer(kp_blob, dtype="<f8").reshape(num_joints, 3).copy()
-    if scores_blob is None:
-        scores = np.full(num_joints, np.nan)
-    else:
-        scores = np.frombuffer(scores_blob, dtype="<f8").copy()
-    src = tuple(json.loads(sources)) if sources else (origin,) * num_joints
-    return Person(pid, kp, scores, src, score, json.loads(extra) if extra else {})
-
-
-_PERSON_COLUMNS = "id, keypoints, scores, sources, origin, score, extra"
-_FRAME_COLUMNS = ("frames.id, path, file_name, width, height, state, status, video_index, "
-                  "timestamp, triage.score")
-_FRAME_FROM = "frames LEFT JOIN triage ON triage.frame_id = frames.id"
-
-
-def _frame_from_row(row: Sequence[Any]) -> Frame:
-    return Frame(row[0], row[1], row[2], row[3], row[4], FrameState(row[5]), row[6], row[7], row[8],
-                 row[9])
+__all__ = ["DB_NAME", "HOLDER_NAME", "LOCK_NAME", "VIDEO_FRAMES", "Applied", "Bulk",
+           "LedgerEntry", "Project", "relative_path"]
 
 
 class Project:
     """A Posewright project. Open with :meth:`open`, make with :meth:`create`.
 
-    The object is safe to use from several threads (calls are serialised); long work should
-    still run off the UI thread.
+    The object is safe to use from several threads (calls are serialised, or on a server
+    each runs on a connection of its own); long work should still run off the UI thread.
+
+    Attributes
+    ----------
+    folder
+        Where the paths of frames and maps are relative to: the project folder, or for a
+        hosted project the images root on this machine.
+    location
+        Where the project is, for messages: the folder, or the server's URL without its
+        password.
+    hosted
+        Whether the project is on a server, shared by a team.
 
     Examples
     --------
@@ -170,96 +108,127 @@ class Project:
     (False, 0)
     """
 
-    def __init__(self, folder: Path, conn: sqlite3.Connection, lock: filelock.BaseFileLock | None,
-                 author: str, read_only_reason: str | None):
+    def __init__(self, db: Database, folder: Path, author: str, read_only_reason: str | None,
+                 lock: filelock.BaseFileLock | None = None, location: str | None = None):
+        self._db: Database | None = db
         self.folder = folder
-        self._conn = conn
+        self.location = location or str(folder)
         self._lock = lock
         self.author = author
         self.read_only_reason = read_only_reason
+        self.hosted = db.dialect.hosted
+        # A folder project has one undo stack for whoever edits it; on a server, each
+        # annotator has their own.
+        self._owner = author if self.hosted else ""
         #: What opening cleaned up after an interrupted run (a phrase each; empty if nothing).
         self.recovered: tuple[str, ...] = ()
-        self._mutex = threading.RLock()
-        self._listeners: list[Callable[[str, frozenset[int]], None]] = []
-        self._meta = dict(conn.execute("SELECT key, value FROM meta").fetchall())
+        self._listeners: list[Listener] = []
+        #: When this annotator's claim on a frame was last renewed by an edit (monotonic s).
+        self._renewed: dict[int, float] = {}
+        with db.read() as tx:
+            self._meta = tx.meta.all()
         self.skeleton: Skeleton = skeleton_from_dict(json.loads(self._meta["skeleton"]))
 
     # ------------------------------------------------------------------ opening and closing
 
     @classmethod
-    def create(
-        cls,
-        folder: str | Path,
-        images: str | Path | None = None,
-        skeleton: Skeleton | None = None,
-        author: str | None = None,
-        progress: Progress | None = None,
-    ) -> Project:
+    def create(cls, folder: str | Path, skeleton: Skeleton | None = None,
+               author: str | None = None, frames: Sequence[NewFrame] = (),
+               images_root: str | Path | None = None) -> Project:
         """Make a new project in ``folder`` (created if needed) and open it for editing.
 
-        ``images``, if given, is a folder whose images are registered (recursively, sorted by
-        relative path, ids 1, 2, ...). Refused if ``folder`` already holds a project.
+        ``frames`` are registered with ids 1, 2, ... and ``images_root`` (a folder) is where
+        the project's images are (:func:`app.jobs.new_project` finds and reads the images of
+        a folder). The project appears complete or not at all; refused if ``folder`` already
+        holds a project.
         """
         folder = Path(folder)
-        made = not folder.exists()
-        folder.mkdir(parents=True, exist_ok=True)
+        made = [p for p in (folder, *folder.parents) if not p.exists()]
+        try:
+            folder.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise BadInput(f"cannot make the folder ({exc.strerror})", where=str(folder)) \
+                from None
         db = folder / DB_NAME
         if db.exists():
             raise BadInput("a project already exists here", where=str(folder))
-        images_dir = Path(images) if images is not None else None
-        if images_dir is not None and not images_dir.is_dir():
-            raise BadInput("not a folder of images", where=str(images_dir))
         skeleton = skeleton or coco_body()
         lock = _take_lock(folder)
         if lock is None:
             raise BadInput("another process is creating or editing a project here",
                            where=str(folder))
+        if db.exists():  # made by another process between the first look and the lock
+            lock.release()
+            raise BadInput("a project already exists here", where=str(folder))
+        try:
+            return cls._create_locked(folder, lock, skeleton, author, frames, images_root)
+        except BaseException as exc:
+            # A project appears complete or not at all: nothing of a failed one stays.
+            for name in (DB_NAME, DB_NAME + "-wal", DB_NAME + "-shm", HOLDER_NAME):
+                (folder / name).unlink(missing_ok=True)
+            # The lock file goes while still held, so no other process takes it meanwhile.
+            (folder / LOCK_NAME).unlink(missing_ok=True)
+            lock.release()
+            _remove_made(made)
+            if isinstance(exc, sqlite3.Error):
+                raise _storage_failed(exc, folder) from None
+            raise
+
+    @classmethod
+    def _create_locked(cls, folder: Path, lock: filelock.BaseFileLock, skeleton: Skeleton,
+                       author: str | None, frames: Sequence[NewFrame],
+                       images_root: str | Path | None) -> Project:
         tmp = folder / (DB_NAME + ".new")
+        conn = None
         try:
             for stale in folder.glob(DB_NAME + ".new*"):
                 stale.unlink()
-            conn = _connect(tmp, read_only=False)
-            migrate(conn)
-            meta = {
-                "project_id": str(uuid.uuid4()),
-                "created": str(time.time()),
-                "skeleton": json.dumps(skeleton.to_dict()),
-                "images_root": _relative(images_dir, folder) if images_dir else "",
-                "next_person_id": "1",
-                "next_note_id": "1",
-            }
-            conn.executemany("INSERT INTO meta VALUES (?, ?)", meta.items())
-            if images_dir is not None:
-                infos = _probe_all(find_images(images_dir), progress)
-                _insert_frames(conn, folder, images_dir, infos, first_id=1)
+            conn = SqliteDatabase.connect(tmp, read_only=False)
+            migrate_sqlite(conn)
+            with SqliteDatabase(conn, tmp).write() as tx:
+                tx.meta.set_many({
+                    "project_id": str(uuid.uuid4()),
+                    "created": str(time.time()),
+                    "skeleton": json.dumps(skeleton.to_dict()),
+                    "images_root": relative_path(Path(images_root), folder)
+                    if images_root is not None else "",
+                    "next_person_id": "1",
+                    "next_note_id": "1",
+                })
+                tx.frames.insert(frames, first_id=1)
             conn.close()
+            conn = None
             # A project appears complete or not at all.
-            os.replace(tmp, db)
-        except BaseException:
+            os.replace(tmp, folder / DB_NAME)
+        finally:
+            if conn is not None:
+                conn.close()
             for leftover in folder.glob(DB_NAME + ".new*"):
                 leftover.unlink()
-            # Nothing of a failed create stays: no lock file, no folder it made.
-            (folder / LOCK_NAME).unlink(missing_ok=True)
-            lock.release()
-            if made and not any(folder.iterdir()):
-                folder.rmdir()
-            raise
         return cls._open_locked(folder, lock, author)
 
     @classmethod
-    def open(cls, folder: str | Path, author: str | None = None,
-             read_only: bool = False) -> Project:
-        """Open the project in ``folder``.
+    def open(cls, place: str | Path, author: str | None = None, read_only: bool = False,
+             images: str | Path | None = None) -> Project:
+        """Open the project in a folder, or on a server (``place`` a PostgreSQL URL or libpq
+        connection string; see :mod:`app.store.hosted`).
 
-        If another process is editing it, or its folder cannot be written, the project opens
-        read-only and :attr:`read_only_reason` says why (who holds it; or that the folder
-        cannot be written, with the system's reason); ask with ``read_only=True`` to never take
-        the lock.
+        A folder project that another process is editing, or whose folder cannot be written,
+        opens read-only and :attr:`read_only_reason` says why (who holds it; or that the folder
+        cannot be written, with the system's reason); a hosted project opens read-only when
+        the database role may only read it. Ask with ``read_only=True`` to never write.
+        ``images`` is the images root on this machine (hosted projects only; default
+        ``$POSEWRIGHT_IMAGES``, else the one the project records).
         """
-        folder = Path(folder)
+        from app.store.hosted import is_database_url, open_hosted
+
+        if is_database_url(str(place)):
+            return open_hosted(cls, str(place), _author(author), read_only, images)
+        folder = Path(place)
         if not (folder / DB_NAME).is_file():
             raise NotFound(f"{folder}: no project here (no {DB_NAME}); make one with "
                            "`posewright new`")
+        _check_database(folder / DB_NAME)
         reason = "opened read-only on request"
         if not read_only:
             try:
@@ -272,9 +241,8 @@ class Project:
                 if lock is not None:
                     return cls._open_locked(folder, lock, author)
                 reason = _holder_reason(folder)
-        conn = _connect(folder / DB_NAME, read_only=True)
-        _check_version(conn, folder)
-        return cls(folder, conn, None, _author(author), reason + _unread_changes(folder))
+        return cls(_read_only_db(folder), folder, _author(author),
+                   reason + _unread_changes(folder))
 
     @classmethod
     def _open_locked(cls, folder: Path, lock: filelock.BaseFileLock,
@@ -285,15 +253,13 @@ class Project:
         blocked = next((p for p in (folder, db) if not os.access(p, os.W_OK)), None)
         if blocked is not None:
             lock.release()
-            conn = _connect(db, read_only=True)
-            _check_version(conn, folder)
             where = "in a folder" if blocked == folder else f"stored in a {DB_NAME}"
-            return cls(folder, conn, None, _author(author),
+            return cls(_read_only_db(folder), folder, _author(author),
                        f"{where} that cannot be written" + _unread_changes(folder))
         try:
-            conn = _connect(db, read_only=False)
+            conn = SqliteDatabase.connect(db, read_only=False)
             _check_version(conn, folder)
-            migrate(conn)
+            migrate_sqlite(conn)
             who = _author(author)
             done = recovery.settle(folder, conn)
             stale = _stale_holder(folder)
@@ -302,28 +268,29 @@ class Project:
             holder = {"pid": os.getpid(), "host": socket.gethostname(), "author": who,
                       "since": time.time()}
             (folder / HOLDER_NAME).write_text(json.dumps(holder))
-        except BaseException:
+        except BaseException as exc:
             lock.release()
+            if isinstance(exc, sqlite3.Error):
+                raise _storage_failed(exc, folder) from None
             raise
         if done:
             log.warning("%s: cleaned up after an interrupted run: %s", folder, "; ".join(done))
-        project = cls(folder, conn, lock, who, None)
+        project = cls(SqliteDatabase(conn, db), folder, who, None, lock=lock)
         project.recovered = tuple(done)
         return project
 
     def close(self) -> None:
         """Close the database and release the lock (safe to call twice)."""
-        with self._mutex:
-            if self._conn is None:
-                return
-            self._conn.close()
-            self._conn = None  # type: ignore[assignment]
-            if self._lock is not None:
-                try:
-                    (self.folder / HOLDER_NAME).unlink(missing_ok=True)
-                finally:
-                    self._lock.release()
-                    self._lock = None
+        db, self._db = self._db, None
+        if db is None:
+            return
+        db.close()
+        if self._lock is not None:
+            try:
+                (self.folder / HOLDER_NAME).unlink(missing_ok=True)
+            finally:
+                self._lock.release()
+                self._lock = None
 
     def __enter__(self) -> Project:
         return self
@@ -341,41 +308,92 @@ class Project:
 
     @property
     def images_root(self) -> Path | None:
+        """The folder the project's images were registered from, links not followed (None if
+        none was); for a hosted project, the images root on this machine."""
         root = self._meta.get("images_root", "")
-        return (self.folder / root).resolve() if root else None
+        if self.hosted:
+            return self.folder
+        return Path(os.path.abspath(self.folder / root)) if root else None
+
+    @property
+    def db(self) -> Database:
+        if self._db is None:
+            raise ReadOnly(f"{self.location}: the project is closed")
+        return self._db
 
     def meta(self, key: str, default: str | None = None) -> str | None:
         return self._meta.get(key, default)
 
-    def subscribe(self, listener: Callable[[str, frozenset[int]], None]) -> None:
-        """Call ``listener(kind, frame_ids)`` after every committed change
-        (``kind``: ``edit``, ``undo``, ``redo``, ``import``, ``frames``, ``meta``,
-        ``triage``)."""
+    def settings(self) -> dict[str, str]:
+        """Every project setting (a copy)."""
+        return dict(self._meta)
+
+    def subscribe(self, listener: Listener) -> None:
+        """Call ``listener(kind, frame_ids)`` after every committed change, this process's
+        and, for a hosted project, other annotators' (``kind``: ``edit``, ``undo``, ``redo``,
+        ``import``, ``frames``, ``meta``, ``triage``, ``claims``). Others' changes arrive on
+        another thread."""
         self._listeners.append(listener)
 
-    def _notify(self, kind: str, frame_ids: Iterable[int]) -> None:
+    def _notify(self, kind: str, frame_ids: Iterable[int | None]) -> None:
         ids = frozenset(int(f) for f in frame_ids if f is not None)
         for listener in list(self._listeners):
             listener(kind, ids)
+
+    def _remote_change(self, kind: str, frame_ids: frozenset[int], session: str) -> None:
+        """A change committed to a hosted project's database, by anyone (called on the
+        listener's thread); this process's own changes were told already."""
+        if session and session == getattr(self._db, "session", None):
+            return
+        if kind in ("meta", "import") and self._db is not None:
+            with contextlib.suppress(StorageFailed), self._db.read() as tx:
+                self._meta.update(tx.meta.all())
+        self._notify(kind, frame_ids)
+
+    # ------------------------------------------------------------------ transactions
+
+    @contextmanager
+    def _write(self, frames: Iterable[int] = (), exclusive: bool = False) -> Iterator[Tx]:
+        """One write transaction; its writes to ``meta`` reach :meth:`meta` once it commits.
+        Listeners hear of what it changed after the commit (and, on a server, so do other
+        annotators)."""
+        self.check_writable()
+        with self.db.write(frames, exclusive) as tx:
+            yield tx
+        self._meta.update(tx.meta.written)
+
+    def _read(self) -> contextlib.AbstractContextManager[Tx]:
+        return self.db.read()
+
+    def check_writable(self) -> None:
+        """Raise :class:`~app.errors.ReadOnly`, with the reason, unless the project can be
+        changed."""
+        if self.read_only_reason is not None:
+            raise ReadOnly(f"{self.location}: read-only ({self.read_only_reason})")
+        if self._db is None:
+            raise ReadOnly(f"{self.location}: the project is closed")
 
     # ------------------------------------------------------------------ reading
 
     def frames(self) -> list[Frame]:
         """Every frame, by id."""
-        with self._mutex:
-            rows = self._conn.execute(f"SELECT {_FRAME_COLUMNS} FROM {_FRAME_FROM} "
-                                      "ORDER BY frames.id")
-            return [_frame_from_row(r) for r in rows]
+        with self._read() as tx:
+            return tx.frames.all()
+
+    def frame_page(self, query: FrameQuery) -> list[Frame]:
+        """One page of frames, sorted and filtered by the database (see
+        :class:`~app.store.frames.FrameQuery`)."""
+        with self._read() as tx:
+            return tx.frames.page(query)
 
     def frame(self, frame_id: int) -> Frame:
-        with self._mutex:
-            row = self._conn.execute(
-                f"SELECT {_FRAME_COLUMNS} FROM {_FRAME_FROM} WHERE frames.id = ?",
-                (int(frame_id),)
-            ).fetchone()
-        if row is None:
+        if not _INT64[0] <= int(frame_id) <= _INT64[1]:
             raise NotFound(f"the project has no frame {frame_id}")
-        return _frame_from_row(row)
+        with self._read() as tx:
+            found = tx.frames.get(frame_id)
+        if found is None:
+            raise NotFound(f"the project has no frame {frame_id}")
+        return found
 
     def find_frame(self, ref: str | int) -> Frame:
         """A frame by id, or by file name (relative to the images folder) or base name."""
@@ -385,22 +403,12 @@ class Project:
                 return self.frame(int(text))
             except NotFound:
                 pass
-        with self._mutex:
-            rows = self._conn.execute(
-                f"SELECT {_FRAME_COLUMNS} FROM {_FRAME_FROM} WHERE file_name = ? OR path = ?",
-                (text, text),
-            ).fetchall()
-            if not rows:
-                like = "%/" + text.replace("%", "").replace("_", "\\_")
-                rows = self._conn.execute(
-                    f"SELECT {_FRAME_COLUMNS} FROM {_FRAME_FROM} "
-                    "WHERE file_name LIKE ? ESCAPE '\\'",
-                    (like,),
-                ).fetchall()
-        if len(rows) == 1:
-            return _frame_from_row(rows[0])
-        if len(rows) > 1:
-            raise NotFound(f"{text!r} names {len(rows)} frames; give the frame id")
+        with self._read() as tx:
+            found = tx.frames.by_name(text)
+        if len(found) == 1:
+            return found[0]
+        if len(found) > 1:
+            raise NotFound(f"{text!r} names {len(found)} frames; give the frame id")
         raise NotFound(f"the project has no frame {text!r} (neither an id nor a file name)")
 
     def image_path(self, frame: Frame) -> Path:
@@ -410,83 +418,78 @@ class Project:
 
     def people(self, frame_id: int) -> list[Person]:
         """The people of a frame, by id."""
-        k = self.skeleton.num_joints
-        with self._mutex:
-            rows = self._conn.execute(
-                f"SELECT {_PERSON_COLUMNS} FROM people WHERE frame_id = ? ORDER BY id",
-                (int(frame_id),),
-            ).fetchall()
-        return [_decode_person(r, k) for r in rows]
+        with self._read() as tx:
+            return tx.people.of_frame(frame_id, self.skeleton.num_joints)
 
     def people_by_frame(self) -> dict[int, list[Person]]:
         """Every person of the project grouped by frame id (for export and batch analysis)."""
-        k = self.skeleton.num_joints
-        out: dict[int, list[Person]] = {}
-        with self._mutex:
-            rows = self._conn.execute(
-                f"SELECT frame_id, {_PERSON_COLUMNS} FROM people ORDER BY frame_id, id"
-            ).fetchall()
-        for row in rows:
-            out.setdefault(row[0], []).append(_decode_person(row[1:], k))
-        return out
+        with self._read() as tx:
+            return tx.people.by_frame(self.skeleton.num_joints)
 
-    def regions(self, frame_id: int) -> list[tuple[int, list[list[float]], dict[str, Any]]]:
+    def regions(self, frame_id: int) -> list[RegionRow]:
         """The frame's ignore regions: ``(region_id, polygons, extra)``."""
-        with self._mutex:
-            rows = self._conn.execute(
-                "SELECT id, polygons, extra FROM regions WHERE frame_id = ? ORDER BY id",
-                (int(frame_id),)).fetchall()
-        return [(r[0], json.loads(r[1]), json.loads(r[2] or "{}")) for r in rows]
+        with self._read() as tx:
+            return tx.regions.of_frame(frame_id)
 
-    def regions_by_frame(self) -> dict[int, list[tuple[int, list[list[float]], dict[str, Any]]]]:
-        out: dict[int, list[tuple[int, list[list[float]], dict[str, Any]]]] = {}
-        with self._mutex:
-            rows = self._conn.execute(
-                "SELECT frame_id, id, polygons, extra FROM regions ORDER BY frame_id, id")
-            for f, rid, polys, extra in rows:
-                out.setdefault(f, []).append((rid, json.loads(polys), json.loads(extra or "{}")))
-        return out
+    def regions_by_frame(self) -> dict[int, list[RegionRow]]:
+        with self._read() as tx:
+            return tx.regions.by_frame()
 
     def frame_extras(self) -> dict[int, dict[str, Any]]:
         """Fields of imported COCO image records kept for the round trip, by frame id."""
-        with self._mutex:
-            rows = self._conn.execute("SELECT id, extra FROM frames WHERE extra IS NOT NULL")
-            return {r[0]: json.loads(r[1]) for r in rows}
+        with self._read() as tx:
+            return tx.frames.extras()
 
-    def triage(self, frame_id: int) -> tuple[float, list[dict[str, Any]]] | None:
+    def triage(self, frame_id: int) -> TriageResult | None:
         """The frame's suspicion score and reasons from the last triage, or None."""
-        with self._mutex:
-            row = self._conn.execute("SELECT score, reasons FROM triage WHERE frame_id = ?",
-                                     (int(frame_id),)).fetchone()
-        return None if row is None else (row[0], json.loads(row[1]))
+        with self._read() as tx:
+            return tx.triage.of_frame(frame_id)
 
-    def triage_all(self) -> dict[int, tuple[float, list[dict[str, Any]]]]:
+    def triage_all(self) -> dict[int, TriageResult]:
         """Every frame's triage result, by frame id."""
-        with self._mutex:
-            rows = self._conn.execute("SELECT frame_id, score, reasons FROM triage").fetchall()
-        return {r[0]: (r[1], json.loads(r[2])) for r in rows}
+        with self._read() as tx:
+            return tx.triage.all()
 
-    def store_triage(self, results: dict[int, tuple[float, list[dict[str, Any]]]]) -> None:
+    def store_triage(self, results: dict[int, TriageResult]) -> None:
         """Replace the triage results of the given frames (one transaction, not ledgered:
         triage is derived from the labels and can be recomputed at any time)."""
-        self._check_writable()
-        now = time.time()
-        with self._mutex, self._transaction():
-            self._conn.executemany(
-                "INSERT OR REPLACE INTO triage VALUES (?, ?, ?, ?)",
-                [(f, float(score), json.dumps(reasons), now)
-                 for f, (score, reasons) in results.items()])
-        self._notify("triage", results.keys())
+        with self._write() as tx:
+            tx.triage.store(results, time.time())
+        self._tell(tx)
+
+    def findings(self, frame_id: int | None = None) -> dict[int, list[dict[str, Any]]]:
+        """The stored findings (as :meth:`app.analysis.triage.findings.Finding.to_dict`
+        wrote them), worst first, by frame id; only one frame's with ``frame_id``. A frame
+        whose findings were computed and found none maps to an empty list."""
+        with self._read() as tx:
+            return tx.findings.of_frames(frame_id)
+
+    def findings_digests(self) -> dict[int, str]:
+        """Per frame, the digest of the labels its stored findings were computed from."""
+        with self._read() as tx:
+            return tx.findings.digests()
+
+    def store_findings(self, results: dict[int, tuple[str, list[dict[str, Any]]]]) -> None:
+        """Replace the findings of the given frames, each with the digest of the labels they
+        were computed from (one transaction, not ledgered: findings are derived from the
+        labels and the maps and can be recomputed at any time)."""
+        with self._write() as tx:
+            tx.findings.store(results, time.time())
+        self._tell(tx)
+
+    def dismissed(self) -> dict[int, set[str]]:
+        """The fingerprints of the dismissed findings, by frame id."""
+        with self._read() as tx:
+            return tx.dismissals.keys()
 
     def maps_path(self, frame_id: int) -> tuple[Path, int] | None:
         """Where the frame's network maps are (absolute path) and their stride, or None."""
-        with self._mutex:
-            row = self._conn.execute("SELECT path, stride FROM maps WHERE frame_id = ?",
-                                     (int(frame_id),)).fetchone()
-        if row is None:
+        with self._read() as tx:
+            found = tx.maps.of_frame(frame_id)
+        if found is None:
             return None
-        path = Path(row[0])
-        return (path if path.is_absolute() else self.folder / path), int(row[1])
+        path = Path(found[0])
+        return (path if path.is_absolute() else self.folder / path), found[1]
 
     def new_map_run(self, kind: str) -> Path:
         """A new, empty folder ``maps/<kind>-<run id>/`` for the map files of one run.
@@ -496,209 +499,156 @@ class Project:
         removes the folder (see :mod:`app.store.recovery`). Call :meth:`drop_map_run` when the
         run is over, whether it landed or not.
         """
-        self._check_writable()
+        self.check_writable()
         return recovery.new_run_folder(self.folder, kind)
 
     def drop_map_run(self, folder: Path) -> None:
         """Remove a run folder from :meth:`new_map_run` unless a committed run uses it."""
-        rel = _relative(folder, self.folder)
-        with self._mutex:
-            if rel not in recovery.meta_list(self._conn, recovery.MAP_RUNS_KEY):
-                shutil.rmtree(folder, ignore_errors=True)
-                with contextlib.suppress(OSError):  # only when nothing else is in maps/
-                    folder.parent.rmdir()
+        rel = relative_path(folder, self.folder)
+        if rel not in json.loads(self._meta.get(recovery.MAP_RUNS_KEY, "[]")):
+            shutil.rmtree(folder, ignore_errors=True)
+            with contextlib.suppress(OSError):  # only when nothing else is in maps/
+                folder.parent.rmdir()
 
     def _sweep_maps(self) -> None:
-        """Delete map files that the last commit superseded (see :mod:`app.store.recovery`)."""
-        with self._mutex:
+        """Delete map files that the last commit superseded (see :mod:`app.store.recovery`).
+        On a server other annotators may still read them; they stay."""
+        db = self.db
+        if not isinstance(db, SqliteDatabase):
+            return
+        with db.mutex:
             try:
-                recovery.sweep(self.folder, self._conn)
+                recovery.sweep(self.folder, db.conn)
             except OSError as exc:
                 # The work itself is committed; the list of folders to sweep stays in the
                 # database, so the next open finishes this.
                 log.warning("%s: old maps not deleted yet (%s); the next open will", self.folder,
                             exc)
-            self._meta.update(self._conn.execute(
-                "SELECT key, value FROM meta WHERE key IN (?, ?)",
-                (recovery.MAP_RUNS_KEY, recovery.SWEEP_KEY)).fetchall())
+            with db.read() as tx:
+                for key in (recovery.MAP_RUNS_KEY, recovery.SWEEP_KEY):
+                    value = tx.meta.get(key)
+                    if value is not None:
+                        self._meta[key] = value
 
     def notes(self, frame_id: int) -> list[Note]:
-        with self._mutex:
-            rows = self._conn.execute(
-                "SELECT id, frame_id, author, time, text, person_id FROM notes "
-                "WHERE frame_id = ? ORDER BY time, id", (int(frame_id),)
-            ).fetchall()
-        return [Note(*r) for r in rows]
-
-    def query(self, sql: str, args: Sequence[Any] = ()) -> list[tuple[Any, ...]]:
-        """The rows of one ``SELECT`` on the project's tables, for modules that keep tables of
-        their own (review packets and alternatives); they write through :meth:`bulk`."""
-        if not sql.lstrip().upper().startswith("SELECT"):
-            raise PosewrightError("Project.query reads only; write through Project.bulk")
-        with self._mutex:
-            return self._conn.execute(sql, tuple(args)).fetchall()
+        with self._read() as tx:
+            return tx.notes.of_frame(frame_id)
 
     def labels(self, frame_id: int) -> FrameLabels:
-        """Everything an edit can touch in one frame."""
-        frame = self.frame(frame_id)
-        return FrameLabels(
-            frame.id, self.skeleton, {p.id: p for p in self.people(frame.id)}, frame.state,
-            {n.id: n for n in self.notes(frame.id)},
-            {rid: Region(rid, frame.id, tuple(tuple(p) for p in polys), extra)
-             for rid, polys, extra in self.regions(frame.id)},
-            self._kept(frame.id), self._dismissed(frame.id),
-        )
+        """Everything an edit can touch in one frame (pass it to :meth:`apply` as ``seen``
+        to have an edit refused if another annotator changed what it changes meanwhile)."""
+        with self._read() as tx:
+            return ledger.load_labels(tx, frame_id, self.skeleton)
 
-    def _kept(self, frame_id: int) -> dict[int, frozenset[int]]:
-        """Joints settled as ours, per reviewer's version still standing beside the frame."""
-        with self._mutex:
-            rows = self._conn.execute(
-                "SELECT id, kept FROM alternatives WHERE frame_id = ? AND retired IS NULL",
-                (int(frame_id),)).fetchall()
-        return {r[0]: frozenset(json.loads(r[1])) for r in rows}
+    def alternatives(self, frame_id: int) -> list[Alternative]:
+        """The reviewers' versions of the frame's people that still stand (see
+        :mod:`app.review.settle`)."""
+        with self._read() as tx:
+            return tx.alternatives.open_for(frame_id)
 
-    def _dismissed(self, frame_id: int) -> dict[str, dict[str, Any]]:
-        with self._mutex:
-            rows = self._conn.execute("SELECT key, value FROM dismissals WHERE frame_id = ?",
-                                      (int(frame_id),)).fetchall()
-        return {r[0]: json.loads(r[1]) for r in rows}
+    def packet_records(self, packet_id: str, direction: str, reviewer: str | None = None,
+                       sha256: str | None = None) -> list[PacketRecord]:
+        """This project's records of a review packet, newest first (see
+        :class:`~app.model.records.PacketRecord`)."""
+        with self._read() as tx:
+            return tx.packets.find(packet_id, direction, reviewer, sha256)
 
-    def dismissed(self) -> dict[int, set[str]]:
-        """The fingerprints of the dismissed findings, by frame id."""
-        out: dict[int, set[str]] = {}
-        with self._mutex:
-            for frame_id, key in self._conn.execute("SELECT frame_id, key FROM dismissals"):
-                out.setdefault(frame_id, set()).add(key)
-        return out
-
-    def findings(self, frame_id: int | None = None) -> dict[int, list[dict[str, Any]]]:
-        """The stored findings (as :meth:`app.analysis.triage.findings.Finding.to_dict`
-        wrote them), worst first, by frame id; only one frame's with ``frame_id``. A frame
-        whose findings were computed and found none maps to an empty list."""
-        where, args = ("", []) if frame_id is None else (" WHERE frame_id = ?", [int(frame_id)])
-        with self._mutex:
-            out: dict[int, list[dict[str, Any]]] = {
-                f: [] for (f,) in self._conn.execute(
-                    "SELECT frame_id FROM findings_state" + where, args)}
-            for f, data in self._conn.execute(
-                    "SELECT frame_id, data FROM findings" + where + " ORDER BY frame_id, position",
-                    args):
-                out.setdefault(f, []).append(json.loads(data))
-        return out
-
-    def findings_digests(self) -> dict[int, str]:
-        """Per frame, the digest of the labels its stored findings were computed from."""
-        with self._mutex:
-            return dict(self._conn.execute("SELECT frame_id, digest FROM findings_state"))
-
-    def store_findings(self, results: dict[int, tuple[str, list[dict[str, Any]]]]) -> None:
-        """Replace the findings of the given frames, each with the digest of the labels they
-        were computed from (one transaction, not ledgered: findings are derived from the
-        labels and the maps and can be recomputed at any time)."""
-        self._check_writable()
-        now = time.time()
-        with self._mutex, self._transaction():
-            self._conn.executemany("DELETE FROM findings WHERE frame_id = ?",
-                                   [(int(f),) for f in results])
-            self._conn.executemany(
-                "INSERT OR REPLACE INTO findings_state VALUES (?, ?, ?)",
-                [(int(f), digest, now) for f, (digest, _) in results.items()])
-            self._conn.executemany(
-                "INSERT INTO findings VALUES (?, ?, ?, ?, ?, ?, ?)",
-                [(int(f), n, str(d["id"]), str(d["kind"]), d.get("person_id"),
-                  float(d.get("confidence") or 0.0), json.dumps(d))
-                 for f, (_, found) in results.items() for n, d in enumerate(found)])
-        self._notify("triage", results.keys())
+    def decisions(self) -> dict[int, FrameDecision]:
+        """In a project opened from a review packet: the reviewer's decisions, by frame."""
+        with self._read() as tx:
+            return tx.decisions.all()
 
     def history(self, frame_id: int | None = None, limit: int | None = None) -> list[LedgerEntry]:
         """Ledger entries, newest first; only those of one frame when ``frame_id`` is given."""
-        sql = ("SELECT seq, group_id, kind, action, summary, author, time, frame_id, target, "
-               "before, after, reverts FROM ledger")
-        args: list[Any] = []
-        if frame_id is not None:
-            sql += " WHERE frame_id = ?"
-            args.append(int(frame_id))
-        sql += " ORDER BY seq DESC"
-        if limit is not None:
-            sql += " LIMIT ?"
-            args.append(int(limit))
-        with self._mutex:
-            rows = self._conn.execute(sql, args).fetchall()
-        return [
-            LedgerEntry(r[0], r[1], r[2], r[3], r[4], r[5], r[6], r[7], r[8],
-                        _loads(r[9]), _loads(r[10]), r[11])
-            for r in rows
-        ]
+        with self._read() as tx:
+            return tx.ledger.entries(frame_id=frame_id, limit=limit)
 
     def can_undo(self) -> bool:
-        with self._mutex:
-            return self._conn.execute("SELECT 1 FROM undo_stack LIMIT 1").fetchone() is not None
+        with self._read() as tx:
+            return tx.ledger.top("undo_stack", self._owner) is not None
 
     def can_redo(self) -> bool:
-        with self._mutex:
-            return self._conn.execute("SELECT 1 FROM redo_stack LIMIT 1").fetchone() is not None
+        with self._read() as tx:
+            return tx.ledger.top("redo_stack", self._owner) is not None
 
     def counts(self) -> dict[str, int]:
         """How many frames, people, labelled joints, ledger entries and frames per state."""
-        with self._mutex:
-            c = self._conn
-            out = {
-                "frames": c.execute("SELECT count(*) FROM frames").fetchone()[0],
-                "people": c.execute("SELECT count(*) FROM people").fetchone()[0],
-                "ledger": c.execute("SELECT count(*) FROM ledger").fetchone()[0],
-                "notes": c.execute("SELECT count(*) FROM notes").fetchone()[0],
-                "unreadable images": c.execute(
-                    "SELECT count(*) FROM frames WHERE status != 'ok'").fetchone()[0],
-            }
-            for state, n in c.execute("SELECT state, count(*) FROM frames GROUP BY state"):
-                out[state] = n
-        return out
+        with self._read() as tx:
+            frames = tx.frames.counts()
+            return {"frames": frames.pop("frames"), "people": tx.people.count(),
+                    "ledger": tx.ledger.count(), "notes": tx.notes.count(),
+                    "unreadable images": frames.pop("unreadable images"), **frames}
+
+    # ------------------------------------------------------------------ claims
+
+    def claim(self, frame_id: int) -> Claim | None:
+        """Say that this annotator is working on ``frame_id`` (hosted projects; renewed by
+        every edit on it). Returns the claim that stands on the frame: ours, or a colleague's
+        that has not run out. A folder project has one editor, and no claims."""
+        if not self.hosted or self.read_only:
+            return None
+        def run(tx: Tx) -> Claim | None:
+            tx.event("claims", [frame_id])
+            return tx.claims.take(frame_id, self.author)
+
+        return self._transact(run)
+
+    def release_claim(self) -> None:
+        """Give up this annotator's claim (on closing the frame or the project)."""
+        if not self.hosted or self.read_only or self._db is None:
+            return
+        with self._write() as tx:
+            tx.event("claims", tx.claims.release(self.author))
+
+    def claims(self) -> dict[int, Claim]:
+        """The claims that stand, by frame id (empty for a folder project)."""
+        if not self.hosted:
+            return {}
+        with self._read() as tx:
+            return tx.claims.standing()
 
     # ------------------------------------------------------------------ editing
 
-    def apply(self, edit: Edit, *, author: str | None = None) -> Applied:
-        """Apply one edit as one transaction; returns once it is durable on disk.
+    def apply(self, edit: Edit, *, author: str | None = None,
+              seen: FrameLabels | None = None) -> Applied:
+        """Apply one edit as one transaction; returns once it is durable.
 
         The first label edit of an untouched frame also marks the frame corrected (in the same
         undo step). An edit that changes nothing records nothing. Refused edits raise
         :class:`~app.errors.EditRefused` and change nothing. ``author`` credits the edit to
         someone other than :attr:`author` (a merged review packet credits its reviewer).
+        ``seen``: the frame's labels as the editor saw them (:meth:`labels`); the edit is
+        planned from them and refused (:class:`~app.errors.ChangedMeanwhile`, naming who
+        changed what and when) if what it changes no longer holds what they show. Without
+        ``seen`` the edit is planned from the labels as they are.
         """
-        self._check_writable()
-        with self._mutex, self._transaction():
-            while needs_person_id(edit):
-                edit = with_person_id(edit, self._allocate("next_person_id"))
-            if isinstance(edit, AddNote) and edit.note_id is None:
-                edit = replace(edit, note_id=self._allocate("next_note_id"))
-            if isinstance(edit, AddRegion) and edit.region_id is None:
-                edit = replace(edit, region_id=self._next_region_id())
-            labels = self.labels(edit.frame_id)
-            ctx = EditContext(author or self.author, time.time())
-            new_labels, changes = edit.apply(labels, ctx)
-            if not changes:
-                return Applied(None, (), edit)
-            if (type(edit).changes_labels and labels.state is FrameState.UNTOUCHED
-                    and labels_changed(changes)):
-                state = Change(("state",), FrameState.UNTOUCHED.value,
-                               FrameState.CORRECTED.value)
-                changes.append(state)
-                new_labels = apply_changes(new_labels, [state])
-            self._write(labels, new_labels, changes)
-            group = self._record("edit", type(edit).__name__, edit.summary(),
-                                 [(edit.frame_id, c) for c in changes], ctx)
-            self._conn.execute("INSERT INTO undo_stack (group_id) VALUES (?)", (group,))
-            self._conn.execute("DELETE FROM redo_stack")
-        self._notify("edit", [edit.frame_id])
-        return Applied(group, tuple(changes), edit)
+        renew = self.hosted and time.monotonic() - self._renewed.get(edit.frame_id, -1e9) \
+            > _RENEW_SECONDS
+
+        def run(tx: Tx) -> Applied:
+            applied = ledger.apply_edit(tx, edit, self.skeleton, author or self.author,
+                                        self._owner, seen)
+            if applied.group_id is not None and renew:
+                tx.claims.renew(edit.frame_id, self.author)
+            return applied
+
+        applied = self._transact(run, frames=[edit.frame_id])
+        if renew and applied.group_id is not None:
+            self._renewed = {edit.frame_id: time.monotonic()}
+        return applied
 
     def undo(self) -> int | None:
         """Undo the newest action still on the undo stack; returns the new ledger group or
-        None when there is nothing to undo. Recorded in the ledger, so it survives a restart."""
-        return self._unwind("undo_stack", "redo_stack", "undo")
+        None when there is nothing to undo. Recorded in the ledger, so it survives a restart.
+        On a server each annotator undoes their own actions; one whose changes a colleague has
+        changed since is refused, naming who and when."""
+        return self._transact(lambda tx: ledger.unwind(
+            tx, "undo_stack", "redo_stack", "undo", self.skeleton, self.author, self._owner))
 
     def redo(self) -> int | None:
         """Redo the newest undone action; returns the new ledger group or None."""
-        return self._unwind("redo_stack", "undo_stack", "redo")
+        return self._transact(lambda tx: ledger.unwind(
+            tx, "redo_stack", "undo_stack", "redo", self.skeleton, self.author, self._owner))
 
     def return_to(self, seq: int, frame_id: int | None = None) -> int | None:
         """Bring the labels back to how they were right after ledger entry ``seq``.
@@ -707,142 +657,33 @@ class Project:
         The return is itself one new undoable action (nothing is deleted from the ledger).
         Bulk work (imports, packet records) is not reverted.
         """
-        self._check_writable()
-        with self._mutex, self._transaction():
-            sql = ("SELECT frame_id, target, before, after FROM ledger WHERE seq > ? "
-                   "AND kind IN ('edit', 'undo', 'redo')")
-            args: list[Any] = [int(seq)]
-            if frame_id is not None:
-                sql += " AND frame_id = ?"
-                args.append(int(frame_id))
-            rows = self._conn.execute(sql + " ORDER BY seq", args).fetchall()
-            if not rows:
-                return None
-            inverse = [(f, Change(_parse_target(t), _loads(a), _loads(b)))
-                       for f, t, b, a in reversed(rows)]
-            ctx = EditContext(self.author, time.time())
-            self._restore(inverse, ctx)
-            group = self._record("edit", "ReturnTo", f"return to ledger entry {seq}", inverse,
-                                 ctx)
-            self._conn.execute("INSERT INTO undo_stack (group_id) VALUES (?)", (group,))
-            self._conn.execute("DELETE FROM redo_stack")
-        self._notify("edit", {f for f, _ in inverse})
-        return group
+        return self._transact(lambda tx: ledger.return_to(
+            tx, seq, frame_id, self.skeleton, self.author, self._owner))
 
-    def _unwind(self, source: str, dest: str, kind: str) -> int | None:
-        self._check_writable()
-        with self._mutex, self._transaction():
-            top = self._conn.execute(
-                f"SELECT pos, group_id FROM {source} ORDER BY pos DESC LIMIT 1").fetchone()
-            if top is None:
-                return None
-            pos, group = top
-            rows = self._conn.execute(
-                "SELECT frame_id, target, before, after, action, summary FROM ledger "
-                "WHERE group_id = ? ORDER BY seq", (group,)).fetchall()
-            inverse = [(f, Change(_parse_target(t), _loads(a), _loads(b)))
-                       for f, t, b, a, _, _ in reversed(rows)]
-            ctx = EditContext(self.author, time.time())
-            self._restore(inverse, ctx)
-            action, summary = (rows[0][4], rows[0][5]) if rows else ("", "")
-            new_group = self._record(kind, action, f"{kind}: {summary}", inverse, ctx,
-                                     reverts=group)
-            self._conn.execute(f"DELETE FROM {source} WHERE pos = ?", (pos,))
-            self._conn.execute(f"INSERT INTO {dest} (group_id) VALUES (?)", (new_group,))
-        self._notify(kind, {f for f, _ in inverse})
-        return new_group
+    def _transact(self, work: Callable[[Tx], _T], frames: Iterable[int] = ()) -> _T:
+        """Run ``work`` in one write transaction and tell the listeners; a transaction the
+        server gave up to break a deadlock is run again (a few times)."""
+        from app.store.hosted import TryAgain
 
-    def _restore(self, changes: list[tuple[int, Change]], ctx: EditContext) -> None:
-        by_frame: dict[int, list[Change]] = {}
-        for f, ch in changes:
-            by_frame.setdefault(f, []).append(ch)
-        for f, chs in by_frame.items():
-            labels = self.labels(f)
-            new_labels, _ = Restore(f, tuple(chs)).apply(labels, ctx)
-            self._write(labels, new_labels, chs)
+        attempts = 0
+        while True:
+            try:
+                with self._write(frames) as tx:
+                    result = work(tx)
+            except TryAgain:
+                attempts += 1
+                if attempts > 3:
+                    raise
+                log.info("%s: a transaction was given up to break a deadlock; running it "
+                         "again", self.location)
+                continue
+            self._tell(tx)
+            return result
 
-    def _write(self, old: FrameLabels, new: FrameLabels, changes: Sequence[Change]) -> None:
-        c = self._conn
-        touched_people = {ch.target[1] for ch in changes if ch.target[0] in ("person", "joint")}
-        for pid in sorted(touched_people):
-            person = new.people.get(pid)
-            if person is None:
-                c.execute("DELETE FROM people WHERE id = ?", (pid,))
-            else:
-                c.execute(
-                    f"INSERT OR REPLACE INTO people (frame_id, {_PERSON_COLUMNS}) "
-                    "VALUES (?, ?, ?, ?, ?, ?, ?, ?)", (new.frame_id, *_encode_person(person)))
-        if new.state != old.state:
-            c.execute("UPDATE frames SET state = ? WHERE id = ?", (new.state.value, new.frame_id))
-        for aid in {ch.target[1] for ch in changes if ch.target[0] == "kept"}:
-            c.execute("UPDATE alternatives SET kept = ? WHERE id = ?",
-                      (json.dumps(sorted(new.kept.get(aid, ()))), aid))
-        for key in {ch.target[1] for ch in changes if ch.target[0] == "dismissal"}:
-            value = new.dismissed.get(key)
-            c.execute("DELETE FROM dismissals WHERE key = ?", (key,))
-            if value is not None:
-                c.execute("INSERT INTO dismissals VALUES (?, ?, ?)",
-                          (key, new.frame_id, json.dumps(dict(value))))
-        for rid in {ch.target[1] for ch in changes if ch.target[0] == "region"}:
-            region = new.regions.get(rid)
-            c.execute("DELETE FROM regions WHERE id = ?", (rid,))
-            if region is not None:
-                c.execute("INSERT INTO regions (id, frame_id, polygons, extra) VALUES (?, ?, ?, ?)",
-                          (rid, new.frame_id, json.dumps([list(p) for p in region.polygons]),
-                           json.dumps(dict(region.extra))))
-        for nid in {ch.target[1] for ch in changes if ch.target[0] == "note"}:
-            note = new.notes.get(nid)
-            c.execute("DELETE FROM notes WHERE id = ?", (nid,))
-            if note is not None:
-                c.execute("INSERT INTO notes VALUES (?, ?, ?, ?, ?, ?)",
-                          (nid, new.frame_id, note.person_id, note.author, note.time, note.text))
-
-    def _record(self, kind: str, action: str, summary: str,
-                changes: Sequence[tuple[int | None, Change]], ctx: EditContext,
-                reverts: int | None = None) -> int:
-        group = self._allocate("next_group_id")
-        self._conn.executemany(
-            "INSERT INTO ledger (group_id, kind, action, summary, author, time, frame_id, "
-            "target, before, after, reverts) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
-            [(group, kind, action, summary, ctx.author, ctx.time, f, c.describe(),
-              json.dumps(c.before), json.dumps(c.after), reverts) for f, c in changes],
-        )
-        return group
-
-    def _next_region_id(self) -> int:
-        # Imported regions take their ids from SQLite; edits must never reuse one, even one
-        # whose region was deleted (the ledger would then name two regions alike).
-        top = self._conn.execute("SELECT max(id) FROM regions").fetchone()[0] or 0
-        value = max(int(self._meta.get("next_region_id", "1")), top + 1)
-        self._set_meta("next_region_id", str(value + 1))
-        return value
-
-    def _allocate(self, key: str) -> int:
-        value = int(self._meta.get(key, "1"))
-        self._set_meta(key, str(value + 1))
-        return value
-
-    def _set_meta(self, key: str, value: str) -> None:
-        self._conn.execute("INSERT OR REPLACE INTO meta VALUES (?, ?)", (key, value))
-        self._meta[key] = value
-
-    def _check_writable(self) -> None:
-        if self.read_only_reason is not None:
-            raise ReadOnly(f"{self.folder}: read-only ({self.read_only_reason})")
-        if self._conn is None:
-            raise ReadOnly(f"{self.folder}: the project is closed")
-
-    @contextmanager
-    def _transaction(self) -> Iterator[None]:
-        meta_before = dict(self._meta)
-        self._conn.execute("BEGIN IMMEDIATE")
-        try:
-            yield
-        except BaseException:
-            self._conn.execute("ROLLBACK")
-            self._meta = meta_before
-            raise
-        self._conn.execute("COMMIT")
+    def _tell(self, tx: Tx) -> None:
+        """Tell the listeners what a committed transaction changed."""
+        for kind, ids in tx.events:
+            self._notify(kind, ids)
 
     # ------------------------------------------------------------------ bulk work (importers)
 
@@ -852,216 +693,123 @@ class Project:
         """One all-or-nothing transaction for bulk writers: everything written through the
         yielded :class:`Bulk` lands together with one ledger entry of ``kind`` (``import`` for
         importers, ``review`` for packet work), or nothing does. Such entries record what was
-        done; they are not on the undo stack.
+        done; they are not on the undo stack. On a server no edit interleaves with it.
         """
-        self._check_writable()
-        with self._mutex, self._transaction():
-            bulk = Bulk(self)
+        with self._write(exclusive=True) as tx:
+            bulk = Bulk(self, tx)
             yield bulk
             bulk.record_map_runs()
-            ctx = EditContext(self.author, time.time())
-            group = self._allocate("next_group_id")
-            self._conn.execute(
-                "INSERT INTO ledger (group_id, kind, action, summary, author, time, frame_id, "
-                "target, before, after, reverts) "
-                "VALUES (?, ?, ?, ?, ?, ?, ?, ?, NULL, ?, NULL)",
-                (group, kind, action, summary, ctx.author, ctx.time, frame_id, target,
-                 json.dumps(bulk.stats)),
-            )
+            ledger.record_bulk(tx, kind, action, summary, EditContext(self.author, time.time()),
+                               frame_id, target, bulk.stats)
+            touched = set(bulk.frames_touched)
+            for event, ids in tx.events:
+                if event in ("import", "frames"):
+                    touched |= ids
+            tx.events[:] = [("import", frozenset(touched))]
         if bulk.superseded:
             self._sweep_maps()
-        self._notify("import", bulk.frames_touched)
+        self._tell(tx)
 
     def set_meta(self, key: str, value: str) -> None:
         """Record a project setting (one transaction)."""
-        self._check_writable()
-        with self._mutex, self._transaction():
-            self._set_meta(key, value)
-        self._notify("meta", ())
+        with self._write() as tx:
+            tx.meta.set(key, value)
+            tx.event("meta")
+        self._tell(tx)
 
-    def add_images(self, images: str | Path, progress: Progress | None = None) -> list[Frame]:
-        """Register the images under ``images`` that the project does not have yet."""
-        self._check_writable()
-        images_dir = Path(images)
-        if not images_dir.is_dir():
-            raise BadInput("not a folder of images", where=str(images_dir))
-        known = {Path(f.path) for f in self.frames()}
-        new = [p for p in find_images(images_dir)
-               if Path(_relative(p, self.folder)) not in known]
-        infos = _probe_all(new, progress)
-        with self._mutex, self._transaction():
-            first = (self._conn.execute("SELECT max(id) FROM frames").fetchone()[0] or 0) + 1
-            ids = _insert_frames(self._conn, self.folder, images_dir, infos, first)
-            if not self._meta.get("images_root"):
-                self._set_meta("images_root", _relative(images_dir, self.folder))
-        self._notify("frames", ids)
-        return [self.frame(i) for i in ids]
-
-    def add_video_frames(self, video: str | Path, every: int = 1, start: float | None = None,
-                         end: float | None = None,
-                         progress: Progress | None = None) -> list[Frame]:
-        """Extract frames of ``video`` into ``frames/<video stem>/`` and register them with
-        their index in the video and their time in seconds (see :mod:`app.formats.video` for
-        ``every``, ``start`` and ``end``). ``file_name`` is ``<video stem>/<index>.jpg``.
-
-        Frames the project already has (the same file) are not added again, so another range
-        of the same video can be added later; a different video with the same name is refused.
-        All or nothing: after a bad video, a failure or a cancel no file is left behind and no
-        frame is registered.
-        """
-        self._check_writable()
-        info = probe_video(video)
-        stem = Path(video).stem.lstrip(".") or "video"
-        rel_dir = f"{VIDEO_FRAMES}/{stem}"
-        videos = json.loads(self._meta.get("videos", "{}"))
-        if rel_dir in videos and videos[rel_dir]["fingerprint"] != info.fingerprint:
-            raise BadInput(f"the project has frames of another video named {stem!r} in "
-                           f"{rel_dir}", where=str(video), hint="rename the video to add it")
-        root = self.folder / VIDEO_FRAMES
-        target = root / stem
-        made_root, made_target = not root.exists(), not target.exists()
-        root.mkdir(exist_ok=True)
-        staging = Path(tempfile.mkdtemp(prefix=f".{stem}.", suffix=".partial", dir=root))
-        moved: list[Path] = []
-        try:
-            extracted = extract_frames(info.path, staging, every, start, end, progress)
-            known = {f.path for f in self.frames()}
-            target.mkdir(exist_ok=True)
-            rows = []
-            for vf in extracted:
-                final = target / vf.path.name
-                rel = _relative(final, self.folder)
-                if rel in known:
-                    continue
-                os.replace(vf.path, final)
-                moved.append(final)
-                rows.append([rel, f"{stem}/{final.name}", vf.width, vf.height, vf.index,
-                             vf.timestamp])
-            with self._mutex, self._transaction():
-                first = (self._conn.execute("SELECT max(id) FROM frames").fetchone()[0] or 0) + 1
-                ids = list(range(first, first + len(rows)))
-                self._conn.executemany(
-                    "INSERT INTO frames (id, path, file_name, width, height, video_index, "
-                    "timestamp) VALUES (?, ?, ?, ?, ?, ?, ?)",
-                    [(i, *r) for i, r in zip(ids, rows)])
-                videos[rel_dir] = {"source": str(info.path.resolve()),
-                                   "fingerprint": info.fingerprint}
-                self._set_meta("videos", json.dumps(videos))
-                if not self._meta.get("images_root"):
-                    self._set_meta("images_root", VIDEO_FRAMES)
-        except BaseException:
-            for path in moved:
-                path.unlink(missing_ok=True)
-            shutil.rmtree(staging, ignore_errors=True)
-            for made, folder in ((made_target, target), (made_root, root)):
-                if made and folder.is_dir() and not any(folder.iterdir()):
-                    folder.rmdir()
-            raise
-        shutil.rmtree(staging, ignore_errors=True)
-        self._notify("frames", ids)
+    def add_frames(self, frames: Sequence[NewFrame], images_root: str | Path | None = None,
+                   settings: dict[str, str] | None = None) -> list[Frame]:
+        """Register new frames (ids after the highest one) in one transaction, with project
+        ``settings`` that go with them; ``images_root`` becomes the project's images folder
+        if it has none yet. :mod:`app.jobs` finds and reads the images and videos."""
+        with self._write(exclusive=True) as tx:
+            ids = tx.frames.insert(frames, tx.frames.top_id() + 1)
+            if images_root is not None and not self._meta.get("images_root"):
+                tx.meta.set("images_root", relative_path(Path(images_root), self.folder))
+            tx.meta.set_many(settings or {})
+        self._tell(tx)
         return [self.frame(i) for i in ids]
 
     def mark_image_status(self, frame_id: int, status: str) -> None:
-        """Record that a frame's image is ok, missing, corrupt or oversized (found on decoding)."""
-        if self.read_only:
+        """Record that a frame's image is ok, missing, corrupt or oversized (found on
+        decoding). On a server the status belongs to this machine's copy of the image, so it
+        is not written for everyone."""
+        if self.read_only or self.hosted:
             return
-        with self._mutex, self._transaction():
-            self._conn.execute("UPDATE frames SET status = ? WHERE id = ?", (status, frame_id))
-        self._notify("frames", [frame_id])
+        with self._write() as tx:
+            tx.frames.set_status(frame_id, status)
+        self._tell(tx)
 
 
 class Bulk:
-    """Writes inside one :meth:`Project.bulk` transaction (for importers)."""
+    """Writes inside one :meth:`Project.bulk` transaction (for importers and review work).
 
-    def __init__(self, project: Project):
+    Besides its own methods it offers the gateways importers write through: ``frames``,
+    ``notes``, ``regions``, ``packets``, ``alternatives`` and ``decisions``.
+    """
+
+    def __init__(self, project: Project, tx: Tx):
         self._p = project
-        self._c = project._conn
+        self._tx = tx
         self.stats: dict[str, int] = {}
         self.frames_touched: set[int] = set()
         #: Folders of map runs whose files this transaction replaces, and that it writes to.
         self.superseded: set[str] = set()
         self._runs_used: set[str] = set()
         self._is_run: dict[str, bool] = {}
+        self.frames = tx.frames
+        self.notes = tx.notes
+        self.regions = tx.regions
+        self.packets = tx.packets
+        self.alternatives = tx.alternatives
+        self.decisions = tx.decisions
 
     def count(self, key: str, n: int = 1) -> None:
         self.stats[key] = self.stats.get(key, 0) + n
 
     def allocate_person_ids(self, n: int, at_least: int = 1) -> int:
         """Reserve ``n`` fresh person ids; returns the first."""
-        first = max(int(self._p._meta.get("next_person_id", "1")), at_least)
-        self._p._set_meta("next_person_id", str(first + n))
-        return first
+        return self._tx.counters.take("person_ids", n, at_least)
 
     def reserve_person_ids(self, ids: Iterable[int]) -> None:
         """Make sure later allocations never hand out any of ``ids``."""
-        top = max(ids, default=0)
-        if top >= int(self._p._meta.get("next_person_id", "1")):
-            self._p._set_meta("next_person_id", str(top + 1))
+        self._tx.counters.reserve("person_ids", ids)
+
+    def reserve_note_ids(self, ids: Iterable[int]) -> None:
+        self._tx.counters.reserve("note_ids", ids)
 
     def existing_person_ids(self, ids: Iterable[int]) -> set[int]:
-        ids = list(ids)
-        found: set[int] = set()
-        for i in range(0, len(ids), 900):
-            chunk = ids[i:i + 900]
-            q = ",".join("?" * len(chunk))
-            found.update(r[0] for r in self._c.execute(
-                f"SELECT id FROM people WHERE id IN ({q})", chunk))
-        return found
+        return self._tx.people.existing_ids(ids)
 
     def add_people(self, rows: Iterable[tuple[int, Person]]) -> None:
-        """Insert people ``(frame_id, person)``; ids must be new."""
-        encoded = []
-        for frame_id, person in rows:
-            encoded.append((frame_id, *_encode_person(person)))
-            self.frames_touched.add(frame_id)
-        try:
-            self._c.executemany(
-                f"INSERT INTO people (frame_id, {_PERSON_COLUMNS}) VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
-                encoded)
-        except sqlite3.IntegrityError as exc:
-            raise BadInput(f"a person id is already in the project ({exc})") from None
-        self.count("people", len(encoded))
+        """Insert people ``(frame_id, person)`` in batches; ids must be new."""
+        rows = list(rows)
+        self.count("people", self._tx.people.insert(rows))
+        self.frames_touched.update(f for f, _ in rows)
 
     def add_people_raw(self, rows: list[tuple[Any, ...]]) -> None:
         """Insert pre-encoded rows ``(frame_id, id, keypoints, scores, sources, origin, score,
         extra)`` (the importers' fast path)."""
-        try:
-            self._c.executemany(
-                f"INSERT INTO people (frame_id, {_PERSON_COLUMNS}) VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
-                rows)
-        except sqlite3.IntegrityError as exc:
-            raise BadInput(f"a person id is already in the project ({exc})") from None
+        self.count("people", self._tx.people.insert_encoded(rows))
         self.frames_touched.update(r[0] for r in rows)
-        self.count("people", len(rows))
 
     def rekey_frames(self, mapping: dict[int, int]) -> None:
         """Give frames new ids (``old -> new``), everywhere they are referenced."""
-        mapping = {o: n for o, n in mapping.items() if o != n}
-        if not mapping:
-            return
-        c = self._c
-        # Two steps through negative ids so that swaps and chains cannot collide.
-        for step in (lambda o, n: (o, -n - 1), lambda o, n: (-n - 1, n)):
-            pairs = [step(o, n) for o, n in mapping.items()]
-            for table, col in _frame_columns(c):
-                c.executemany(f"UPDATE {table} SET {col} = ? WHERE {col} = ?",
-                              [(b, a) for a, b in pairs])
-        self.frames_touched.update(mapping.values())
+        self._tx.frames.rekey(mapping)
+        self.frames_touched.update(n for o, n in mapping.items() if o != n)
 
     def set_maps(self, frame_id: int, path: Path, stride: int) -> None:
         """Record where a frame's network maps are (stored relative to the project folder).
 
         A map file of a run folder (:meth:`Project.new_map_run`) that this replaces is deleted
         after the commit, never before."""
-        rel = _relative(path, self._p.folder)
-        old = self._c.execute("SELECT path FROM maps WHERE frame_id = ?",
-                              (frame_id,)).fetchone()
+        rel = relative_path(path, self._p.folder)
+        old = self._tx.maps.of_frame(frame_id)
         if old is not None and old[0] != rel and self._in_run(old[0]):
             self.superseded.add(old[0].rpartition("/")[0])
         if self._in_run(rel):
             self._runs_used.add(rel.rpartition("/")[0])
-        self._c.execute("INSERT OR REPLACE INTO maps VALUES (?, ?, ?)",
-                        (frame_id, rel, int(stride)))
+        self._tx.maps.put(frame_id, rel, stride)
 
     def _in_run(self, rel: str) -> bool:
         folder = rel.rpartition("/")[0]
@@ -1072,40 +820,24 @@ class Bulk:
     def record_map_runs(self) -> None:
         """Write, in the transaction, which run folders rows may name and which to sweep."""
         if self._runs_used:
-            runs = set(json.loads(self._p._meta.get(recovery.MAP_RUNS_KEY, "[]")))
-            self._p._set_meta(recovery.MAP_RUNS_KEY, json.dumps(sorted(runs | self._runs_used)))
+            runs = set(json.loads(self._p.meta(recovery.MAP_RUNS_KEY) or "[]"))
+            self.set_meta(recovery.MAP_RUNS_KEY, json.dumps(sorted(runs | self._runs_used)))
         if self.superseded:
-            pending = set(json.loads(self._p._meta.get(recovery.SWEEP_KEY, "[]")))
-            self._p._set_meta(recovery.SWEEP_KEY, json.dumps(sorted(pending | self.superseded)))
+            pending = set(json.loads(self._p.meta(recovery.SWEEP_KEY) or "[]"))
+            self.set_meta(recovery.SWEEP_KEY, json.dumps(sorted(pending | self.superseded)))
 
     def set_file_name(self, frame_id: int, file_name: str) -> None:
-        self._c.execute("UPDATE frames SET file_name = ? WHERE id = ?", (file_name, frame_id))
+        self._tx.frames.set_file_name(frame_id, file_name)
+
+    def set_frame_extra(self, frame_id: int, extra: dict[str, Any]) -> None:
+        """Replace the fields of an imported COCO image record kept for the round trip."""
+        self._tx.frames.set_extra(frame_id, extra)
 
     def set_meta(self, key: str, value: str) -> None:
-        self._p._set_meta(key, value)
-
-    def execute(self, sql: str, args: Sequence[Any] = ()) -> sqlite3.Cursor:
-        return self._c.execute(sql, args)
-
-    def executemany(self, sql: str, rows: Iterable[Sequence[Any]]) -> sqlite3.Cursor:
-        return self._c.executemany(sql, rows)
+        self._tx.meta.set(key, value)
 
 
 # ---------------------------------------------------------------------- module helpers
-
-def _frame_columns(conn: sqlite3.Connection) -> list[tuple[str, str]]:
-    """Every ``(table, column)`` holding a frame id: ``frames.id`` and each ``frame_id``."""
-    out = [("frames", "id")]
-    tables = [r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")]
-    for table in tables:
-        if any(col[1] == "frame_id" for col in conn.execute(f"PRAGMA table_info({table})")):
-            out.append((table, "frame_id"))
-    return out
-
-
-def _loads(text: str | None) -> Any:
-    return None if text is None else json.loads(text)
-
 
 def _author(author: str | None) -> str:
     if author:
@@ -1119,28 +851,21 @@ def _author(author: str | None) -> str:
         return "unknown"
 
 
-def _connect(path: Path, read_only: bool) -> sqlite3.Connection:
-    if read_only:
-        uri = path.resolve().as_uri() + "?mode=ro"
-        conn = sqlite3.connect(uri, uri=True, isolation_level=None, check_same_thread=False)
-        try:
-            conn.execute("SELECT count(*) FROM sqlite_master").fetchone()
-        except sqlite3.OperationalError:
-            if os.access(path.parent, os.W_OK):
-                raise
-            # A WAL database needs its shared-memory file beside it even to be read; in a
-            # folder nobody can write, nobody can change the database either, so SQLite may
-            # read it as immutable (no locks, no shared memory).
-            conn.close()
-            conn = sqlite3.connect(uri + "&immutable=1", uri=True, isolation_level=None,
-                                   check_same_thread=False)
-    else:
-        conn = sqlite3.connect(str(path), isolation_level=None, check_same_thread=False)
-        conn.execute("PRAGMA journal_mode = WAL")
-        conn.execute("PRAGMA synchronous = FULL")
-    conn.execute("PRAGMA foreign_keys = ON")
-    conn.execute("PRAGMA busy_timeout = 5000")
-    return conn
+def _read_only_db(folder: Path) -> SqliteDatabase:
+    path = folder / DB_NAME
+    conn = SqliteDatabase.connect(path, read_only=True)
+    try:
+        conn.execute("SELECT count(*) FROM sqlite_master").fetchone()
+    except sqlite3.OperationalError:
+        if os.access(folder, os.W_OK):
+            raise
+        # A WAL database needs its shared-memory file beside it even to be read; in a
+        # folder nobody can write, nobody can change the database either, so SQLite may
+        # read it as immutable (no locks, no shared memory).
+        conn.close()
+        conn = SqliteDatabase.connect(path, read_only=True, immutable=True)
+    _check_version(conn, folder)
+    return SqliteDatabase(conn, path)
 
 
 def _unread_changes(folder: Path) -> str:
@@ -1155,8 +880,65 @@ def _unread_changes(folder: Path) -> str:
             "opened once where its folder can be written")
 
 
+def _check_database(path: Path) -> None:
+    """Refuse a ``project.db`` that is not an SQLite database before SQLite sees it: SQLite
+    would take an empty file for a new database and write a schema into it."""
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(len(SQLITE_HEADER))
+    except OSError as exc:
+        raise StorageFailed(f"{path}: cannot read the project database ({exc.strerror})") \
+            from None
+    if head != SQLITE_HEADER:
+        what = "empty (0 bytes)" if not head else "not an SQLite database"
+        raise BadInput(f"the project database is {what}", where=str(path),
+                       hint="restore it from a backup; Posewright leaves it as it is")
+
+
+def _storage_failed(exc: sqlite3.Error, folder: Path) -> StorageFailed:
+    """The one-line error for a failure of SQLite; a disk nearly full is named as the likely
+    cause (SQLite reports it in several ways: "database or disk is full", "disk I/O error")."""
+    return StorageFailed(storage_failed_text(exc, folder / DB_NAME))
+
+
+def _remove_made(made: Sequence[Path]) -> None:
+    """Remove the folders in ``made`` (deepest first) while they are empty."""
+    for path in made:
+        try:
+            path.rmdir()
+        except OSError:
+            return
+
+
+def project_in_use(folder: str | Path) -> str | None:
+    """Who has the project in ``folder`` open for editing (as :attr:`Project.read_only_reason`
+    says it), or None when no process does."""
+    folder = Path(folder)
+    lock = _take_lock(folder)
+    if lock is None:
+        return _holder_reason(folder)
+    lock.release()
+    return None
+
+
 def _check_version(conn: sqlite3.Connection, folder: Path) -> None:
-    version = schema_version(conn)
+    cursor = conn.cursor()
+    try:
+        tx = Tx(cursor, SQLITE, writing=False)
+        version = schema_version(tx)
+        has_meta = version > 0 and tx.row(
+            "SELECT 1 FROM meta WHERE key = 'skeleton'") is not None
+    except sqlite3.DatabaseError as exc:
+        conn.close()
+        raise BadInput(f"the project database cannot be read ({exc})",
+                       where=str(folder / DB_NAME),
+                       hint="restore it from a backup; Posewright leaves it as it is") from None
+    finally:
+        cursor.close()
+    if not has_meta:
+        conn.close()
+        raise BadInput("an SQLite database, but not a Posewright project (no project record)",
+                       where=str(folder / DB_NAME))
     if version > SCHEMA_VERSION:
         conn.close()
         raise BadInput(
@@ -1180,7 +962,7 @@ def _holder_reason(folder: Path) -> str:
         since = time.strftime("%Y-%m-%d %H:%M", time.localtime(holder["since"]))
         return (f"open for editing by {holder.get('author') or 'someone'} "
                 f"(process {holder['pid']} on {holder['host']}) since {since}")
-    except (OSError, ValueError, KeyError, TypeError):
+    except (OSError, ValueError, KeyError, TypeError, RecursionError):
         return "open for editing in another process"
 
 
@@ -1198,8 +980,16 @@ def _stale_holder(folder: Path) -> str | None:
     return f"removed the stale {HOLDER_NAME} of {who}, which ended without closing the project"
 
 
-def _relative(path: Path, folder: Path) -> str:
-    """``path`` relative to ``folder`` when it lies inside it (or beside it), else absolute."""
+def relative_path(path: Path, folder: Path) -> str:
+    """``path`` relative to ``folder`` when it lies inside it (or beside it), else absolute.
+
+    Examples
+    --------
+    >>> relative_path(Path("/data/p/images/a.jpg"), Path("/data/p"))
+    'images/a.jpg'
+    >>> relative_path(Path("/elsewhere/a.jpg"), Path("/data/p"))
+    '/elsewhere/a.jpg'
+    """
     path = Path(os.path.abspath(path))
     try:
         rel = os.path.relpath(path, os.path.abspath(folder))
@@ -1208,29 +998,3 @@ def _relative(path: Path, folder: Path) -> str:
     if rel.startswith(".." + os.sep + ".." + os.sep):
         return path.as_posix()
     return Path(rel).as_posix()
-
-
-def _probe_all(paths: Sequence[Path], progress: Progress | None) -> list[ImageInfo]:
-    progress = progress or Progress()
-    infos = []
-    for i, p in enumerate(paths):
-        progress.step(i, len(paths), "reading images")
-        info = probe_image(p)
-        if info.status != "ok":
-            log.warning("image %s is %s (%s); registered and marked", p, info.status, info.reason)
-        infos.append(info)
-    progress.step(len(paths), len(paths), "reading images")
-    return infos
-
-
-def _insert_frames(conn: sqlite3.Connection, folder: Path, images_dir: Path,
-                   infos: Sequence[ImageInfo], first_id: int) -> list[int]:
-    rows = []
-    for n, info in enumerate(infos):
-        rows.append((first_id + n, _relative(info.path, folder),
-                     info.path.relative_to(images_dir).as_posix(), info.width, info.height,
-                     info.status))
-    conn.executemany(
-        "INSERT INTO frames (id, path, file_name, width, height, status) VALUES (?, ?, ?, ?, ?, ?)",
-        rows)
-    return [r[0] for r in rows]

@@ -31,8 +31,8 @@ def render_frame(args: argparse.Namespace) -> int:
 
     gui_application()
     out = Path(args.out)
-    with open_project(args.project, author=getattr(args, "author", None),
-                      read_only=True) as project:
+    with open_project(args.project, author=getattr(args, "author", None), read_only=True,
+                      images=getattr(args, "images_root", None)) as project:
         frame = project.find_frame(args.frame)
         image = render_frame_image(project, frame, focus=getattr(args, "focus", None))
     _save(image, out)
@@ -64,7 +64,8 @@ def open_app(args: argparse.Namespace) -> int:
                               fallback=author)
     else:
         project = _open(args.project, author, quiet=getattr(args, "quiet", False),
-                        with_dialog=not screenshot and not headless)
+                        with_dialog=not screenshot and not headless,
+                        images=getattr(args, "images_root", None))
 
     from app.ui.window import MainWindow, keep_open
 
@@ -156,14 +157,24 @@ def _author(args: argparse.Namespace, ask: bool) -> str | None:
     return name
 
 
-def _open(folder: str, author: str | None, quiet: bool, with_dialog: bool):  # -> Project
+def _open(folder: str, author: str | None, quiet: bool, with_dialog: bool,
+          images: str | None = None):  # -> Project
     """Open the project; a folder of sources is built first, off the UI thread with a
     progress dialog when there is a screen, else with progress on stderr."""
     from app.jobs import SOURCES_NAME, build_from_sources, open_project
+    from app.store.hosted import is_database_url
     from app.store.project import DB_NAME
 
+    if is_database_url(folder):
+        return open_project(folder, author=author, images=images)
     path = Path(folder)
     needs_build = not (path / DB_NAME).exists() and (path / SOURCES_NAME).is_file()
+    if needs_build and author is None and not os.environ.get("POSEWRIGHT_AUTHOR"):
+        # Nobody was asked for a name (no screen, or --screenshot): say whose it is.
+        author = getpass.getuser()
+        print(f"posewright: note: building {path} records it in the ledger as by {author!r}, "
+              "the login name; give --author NAME or set POSEWRIGHT_AUTHOR to record another",
+              file=sys.stderr)
     if needs_build and with_dialog:
         from PySide6.QtCore import QEventLoop
 

@@ -28,6 +28,7 @@ from PySide6.QtWidgets import (
 from app.errors import BadInput
 from app.formats.video import parse_time
 from app.review import DEFAULT_IMAGES
+from app.wording import count
 
 
 class PathField(QWidget):
@@ -117,8 +118,9 @@ class PrelabelDialog(_Form):
         self.config = PathField("Choose the config", folder, "Config (*.json)",
                                 placeholder="optional: MODEL.json beside it, else built-in")
         self.frames = QComboBox()
-        self.frames.addItem(f"all {counts.get('all', 0)} frames", "all")
-        self.frames.addItem(f"the {counts.get('untouched', 0)} untouched frames", "untouched")
+        self.frames.addItem(f"all {count(counts.get('all', 0), 'frames')}", "all")
+        untouched = count(counts.get("untouched", 0), "untouched frames")
+        self.frames.addItem(f"the {untouched}", "untouched")
         if counts.get("this"):
             self.frames.addItem("this frame only", "this")
         self.form.addRow("Model (.onnx)", self.model)
@@ -209,7 +211,7 @@ class PacketDialog(_Form):
             self.frames.addItem(f"this frame ({current})", "this")
         for state in ("disputed", "untouched", "corrected"):
             if counts.get(state):
-                self.frames.addItem(f"the {counts[state]} {state} frames", state)
+                self.frames.addItem(f"the {count(counts[state], f'{state} frames')}", state)
         self.frames.addItem("frames by id\u2026", "ids")
         self.ids = QLineEdit()
         self.ids.setPlaceholderText("frame ids, e.g. 3, 7, 12")

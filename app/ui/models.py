@@ -7,6 +7,7 @@ the store's change notifications); none of them writes.
 
 from __future__ import annotations
 
+import contextlib
 import time
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -139,6 +140,8 @@ class WorkRow:
     details: str
     video: str = ""
     decision: str = ""
+    #: On a hosted project: the colleague working on this frame now (their claim).
+    claimed_by: str = ""
 
 
 class WorklistModel(_TableModel):
@@ -154,6 +157,7 @@ class WorklistModel(_TableModel):
         self._review = review
         self._rows: list[WorkRow] = []
         self._row_of: dict[int, int] = {}
+        self._claims: dict[int, Any] = {}
         self.reload()
 
     # -- loading
@@ -173,10 +177,31 @@ class WorklistModel(_TableModel):
             row.decision = DECISION_TEXT.get(decided.get(f.id, ""), "")
             rows.append(row)
         rows.sort(key=lambda r: (r.score is None, -(r.score or 0.0), r.frame_id))
+        claims = self._others_claims()
+        for row in rows:
+            row.claimed_by = claims.get(row.frame_id, "")
         self.beginResetModel()
         self._rows = rows
         self._row_of = {r.frame_id: i for i, r in enumerate(rows)}
         self.endResetModel()
+
+    def _others_claims(self) -> dict[int, str]:
+        """Who else is working on which frame (a hosted project's claims, ours left out)."""
+        from app.errors import PosewrightError
+
+        # The server may be gone for a moment; the last claims read stay until it is back.
+        with contextlib.suppress(PosewrightError):
+            self._claims = self._project.claims()
+        return {f: c.author for f, c in self._claims.items() if c.author != self._project.author}
+
+    def reload_claims(self) -> None:
+        """Re-read the claims and mark the rows whose claim changed."""
+        claims = self._others_claims()
+        for i, row in enumerate(self._rows):
+            who = claims.get(row.frame_id, "")
+            if who != row.claimed_by:
+                row.claimed_by = who
+                self.dataChanged.emit(self.index(i, 0), self.index(i, 2))
 
     def refresh_states(self, frame_ids: Sequence[int]) -> None:
         """Re-read the state of the given frames (after edits) without reordering."""
@@ -229,9 +254,13 @@ class WorklistModel(_TableModel):
             if self._review:
                 return f"{STATE_TEXT[r.state]}\n{r.decision}" if r.decision else \
                     STATE_TEXT[r.state]
+            if r.claimed_by:
+                return f"{STATE_TEXT[r.state]}\n\u270e {r.claimed_by}"
             return STATE_TEXT[r.state]
         if role == ToolTipRole:
             head = f"frame {r.frame_id}: {r.name}" + (f"\n{r.video}" if r.video else "")
+            if r.claimed_by:
+                head += f"\n{r.claimed_by} is working on this frame"
             if self._review:
                 head += f"\nyour decision: {r.decision or 'none yet'}"
             return f"{head}\n{r.details}" if r.details else head
@@ -243,6 +272,8 @@ class WorklistModel(_TableModel):
             font = QFont()
             font.setBold(True)
             return font
+        if role == ForegroundRole and col == 2 and r.claimed_by:
+            return QColor("#8a4f00")
         if role == ForegroundRole and col == 2 and r.state is FrameState.SIGNED_OFF:
             return QColor("#2f7d4f")
         return None

@@ -37,6 +37,7 @@ from app.ui.models import (
     WorklistModel,
     reason_label,
 )
+from app.wording import count
 
 
 def _table(model, stretch: int, widths: tuple[int, ...] | None = None) -> QTableView:
@@ -144,7 +145,8 @@ class WorklistPanel(QWidget):
 
     def _update_count(self) -> None:
         shown, total = self.proxy.rowCount(), self.model.rowCount()
-        self.count.setText(f"{shown} of {total} frames" if shown != total else f"{total} frames")
+        self.count.setText(f"{shown} of {count(total, 'frames')}" if shown != total
+                           else count(total, "frames"))
 
     def _current_changed(self, current: QModelIndex, _previous: QModelIndex) -> None:
         if self._quiet or not current.isValid():

@@ -44,6 +44,7 @@ from PySide6.QtWidgets import (
 from shiboken6 import isValid as shiboken_is_valid
 
 from app.errors import Cancelled, EditRefused, PosewrightError
+from app.jobs import add_images, add_video_frames
 from app.model.edits import (
     AddNote,
     AddRegion,
@@ -58,7 +59,7 @@ from app.model.edits import (
     SplitPerson,
     SwapSides,
 )
-from app.model.labels import FrameState
+from app.model.labels import FrameLabels, FrameState, Person
 from app.model.skeleton import Skeleton
 from app.progress import Progress
 from app.review.review import is_review
@@ -82,12 +83,15 @@ from app.ui.settling import Dispute, describe_difference, load_dispute, step_dif
 from app.ui.strips import Strip
 from app.ui.suggestions import rank_owners
 from app.ui.work import describe_error, run_job
+from app.wording import count
 
 log = logging.getLogger(__name__)
 
 _VISIBILITY_WORD = {0: "unlabeled", 1: "occluded", 2: "visible"}
 #: How long a first digit waits for a second one when there are ten or more people (ms).
 DIGIT_WAIT_MS = 700
+#: How often a hosted project's Worklist looks again at the claims, some of which run out (ms).
+CLAIMS_REFRESH_MS = 30_000
 
 
 class ProjectEvents(QObject):
@@ -137,6 +141,9 @@ class MainWindow(QMainWindow):
         self._typed_timer.setInterval(DIGIT_WAIT_MS)
         self._typed_timer.timeout.connect(self._commit_typed)
         self._maps: tuple[int, Any] | None = None
+        #: The shown frame's labels as read (hosted projects), and the frame claimed.
+        self._seen: FrameLabels | None = None
+        self._claimed: int | None = None
         self._jobs: list[Any] = []
         self._closed = False
         self._remember_layout = restore_layout
@@ -209,6 +216,13 @@ class MainWindow(QMainWindow):
         self.owners.people.clicked.connect(self._back_to_canvas)
         self.owners.candidates.clicked.connect(self._back_to_canvas)
 
+        if project.hosted:
+            # Colleagues' claims run out without a word from the server: look again now and
+            # then (their new claims arrive at once, as notifications).
+            self._claims_timer = QTimer(self)
+            self._claims_timer.setInterval(CLAIMS_REFRESH_MS)
+            self._claims_timer.timeout.connect(self.worklist_model.reload_claims)
+            self._claims_timer.start()
         self._restore_layout(restore_layout)
         self._apply_read_only()
         ids = self.worklist.ordered_ids()
@@ -449,6 +463,10 @@ class MainWindow(QMainWindow):
             job.cancel()
             job.wait()
         if self._owns_project:
+            try:
+                self.project.release_claim()
+            except PosewrightError as exc:  # the server may be gone; the claim runs out
+                log.warning("%s", exc)
             self.project.close()
 
     # ------------------------------------------------------------------ frames
@@ -462,7 +480,7 @@ class MainWindow(QMainWindow):
             return
         self._cancel_typing()
         self.frame_id = frame.id
-        people = self.project.people(frame.id)
+        people = self._read_people(frame.id)
         flags = self._flags(frame.id)
         decoded = self.loader.request(frame.id, self.project.image_path(frame), urgent=True)
         self.canvas.set_frame(frame, people, flags, decoded)
@@ -478,6 +496,22 @@ class MainWindow(QMainWindow):
         # The Ledger and Notes follow a moment later, after the Canvas has shown the frame.
         self._panels_for = frame.id
         QTimer.singleShot(0, self._refresh_side_panels)
+
+    def _read_people(self, frame_id: int) -> list[Person]:
+        """The frame's people as the Canvas will show them. On a hosted project the labels
+        read are kept as what this annotator saw: edits are planned from them, and refused if
+        a colleague changed what they change meanwhile. Opening a frame there claims it."""
+        if not self.project.hosted:
+            self._seen = None
+            return self.project.people(frame_id)
+        self._seen = self.project.labels(frame_id)
+        if frame_id != self._claimed and not self.project.read_only:
+            self._claimed = frame_id
+            try:
+                self.project.claim(frame_id)
+            except PosewrightError as exc:
+                self._message(f"not claimed: {exc}")
+        return list(self._seen.people.values())
 
     def _refresh_side_panels(self) -> None:
         if self._closed or self.frame_id is None or self._panels_for != self.frame_id:
@@ -514,7 +548,7 @@ class MainWindow(QMainWindow):
         if self.frame_id is None:
             return
         frame = self.project.frame(self.frame_id)
-        people = self.project.people(frame.id)
+        people = self._read_people(frame.id)
         flags = self._flags(frame.id)
         self.canvas.frame = frame
         self.canvas.set_people(people, flags)
@@ -576,6 +610,9 @@ class MainWindow(QMainWindow):
     def _on_changed(self, kind: str, frame_ids: frozenset[int]) -> None:
         if self._closed:
             return
+        if kind == "claims":
+            self.worklist_model.reload_claims()
+            return
         if kind in ("import", "frames", "triage"):
             self.worklist_model.reload()
             if self.frame_id is not None:
@@ -609,7 +646,7 @@ class MainWindow(QMainWindow):
                           "here: B goes back to ours")
             return None
         try:
-            return self.project.apply(edit)
+            return self.project.apply(edit, seen=self._seen)
         except EditRefused as exc:
             self._message(f"not done: {exc}")
         except PosewrightError as exc:
@@ -1303,18 +1340,17 @@ class MainWindow(QMainWindow):
     def _region_strip_text(self) -> str:
         if not self.canvas.region_mode:
             return ""
-        n = len(self.canvas.regions)
-        count = f"{n} ignore region{'s' if n != 1 else ''} in this frame"
+        held = f"{count(len(self.canvas.regions), 'ignore regions')} in this frame"
         if self.canvas.drafting:
             return ("<b>Drawing a polygon</b>: click the next corner \u00b7 Return or a double "
                     "click closes it \u00b7 Backspace takes back a corner \u00b7 Esc cancels")
         rid = self.canvas.selected_region
         if rid is not None:
             return (f"<b>Region {rid}</b> selected: drag a corner to reshape it, drag inside "
-                    "to move it \u00b7 Del deletes it \u00b7 Esc lets go \u00b7 " + count)
+                    "to move it \u00b7 Del deletes it \u00b7 Esc lets go \u00b7 " + held)
         return ("<b>Region mode</b>: drag a rectangle, or click the corners of a polygon "
                 "\u00b7 click a region to select it \u00b7 training ignores these areas "
-                "\u00b7 " + count)
+                "\u00b7 " + held)
 
     def _update_status(self) -> None:
         shown = self.worklist.proxy.rowCount()
@@ -1330,12 +1366,14 @@ class MainWindow(QMainWindow):
             self.status_frame.setText(f"frame {pos} of {total} \u00b7 {name}"
                                       + (f" \u00b7 {video}" if video else ""))
             self.status_frame.setToolTip(
-                f"{shown} frames shown by the Worklist filters" if shown != total else "")
+                f"{count(shown, 'frames')} shown by the Worklist filters" if shown != total
+                else "")
         regions = len(self.canvas.regions)
-        self.status_people.setText(f"{len(self.canvas.ours)} people" + (
-            f" \u00b7 {regions} ignore region{'s' if regions != 1 else ''}" if regions else ""))
+        self.status_people.setText(count(len(self.canvas.ours), "people") + (
+            f" \u00b7 {count(regions, 'ignore regions')}" if regions else ""))
         flagged = sum(1 for v in self.canvas.flags.values() if v)
-        self.status_flags.setText(f"flags on {flagged} people" if flagged else "no flags")
+        self.status_flags.setText(f"flags on {count(flagged, 'people')}" if flagged
+                                  else "no flags")
         frame = self.canvas.frame
         state = STATE_TEXT[frame.state] if frame is not None else ""
         if self.review_mode and frame is not None:
@@ -1437,7 +1475,8 @@ class MainWindow(QMainWindow):
                 return export_coco(self.project, path)
 
             self.run_long("Exporting labels", job, lambda stats: self._exported(
-                f"wrote {path}: {stats['images']} images, {stats['people']} people", stats))
+                f"wrote {path}: {count(stats['images'], 'images')}, "
+                f"{count(stats['people'], 'people')}", stats))
 
     def _export_targets(self) -> None:
         fn = self._analysis_job("export_targets")
@@ -1447,8 +1486,8 @@ class MainWindow(QMainWindow):
             self.run_long("Exporting training targets",
                           lambda pr: fn(self.project, folder, progress=pr),
                           lambda stats: self._exported(
-                              f"training targets of {stats['frames']} frames written to "
-                              f"{folder}", stats))
+                              f"training targets of {count(stats['frames'], 'frames')} "
+                              f"written to {folder}", stats))
 
     def _exported(self, text: str, stats: dict[str, Any]) -> None:
         """Say what an export wrote and what it left out (corrected and signed-off frames are
@@ -1465,14 +1504,14 @@ class MainWindow(QMainWindow):
         if not frames:
             self._message(f"no new frames: the project has every {what} already")
             return
-        self._message(f"added {len(frames)} frames from {what}")
+        self._message(f"added {count(len(frames), 'frames')} from {what}")
         self.show_frame(frames[0].id)
 
     def _add_images(self) -> None:
         folder = QFileDialog.getExistingDirectory(self, "Add the images of a folder",
                                                   str(self.project.folder))
         if folder:
-            self.run_long("Adding images", lambda pr: self.project.add_images(folder, pr),
+            self.run_long("Adding images", lambda pr: add_images(self.project, folder, pr),
                           lambda frames: self._frames_added(frames, f"image of {folder}"))
 
     def _add_video(self) -> None:
@@ -1486,8 +1525,8 @@ class MainWindow(QMainWindow):
             video, every, start, end = dialog.values()
             name = Path(video).name
             self.run_long(f"Adding frames of {name}",
-                          lambda pr: self.project.add_video_frames(video, every, start, end,
-                                                                   progress=pr),
+                          lambda pr: add_video_frames(self.project, video, every, start, end,
+                                                      progress=pr),
                           lambda frames: self._frames_added(frames, f"frame of {name} asked "
                                                                     "for"))
 
@@ -1523,10 +1562,10 @@ class MainWindow(QMainWindow):
         dialog.open()
 
     def _prelabelled(self, stats: dict[str, Any]) -> None:
-        parts = [f"pre-labelled {stats.get('frames', 0)} frames: "
-                 f"{stats.get('people', 0)} people found"]
+        parts = [f"pre-labelled {count(stats.get('frames', 0), 'frames')}: "
+                 f"{count(stats.get('people', 0), 'people')} found"]
         if stats.get("frames kept"):
-            parts.append(f"{stats['frames kept']} frames kept their people")
+            parts.append(f"{count(stats['frames kept'], 'frames')} kept their people")
         if stats.get("unreadable"):
             parts.append(f"{stats['unreadable']} unreadable images skipped")
         self._message("; ".join(parts) + " (Ctrl+T ranks the frames)", 0)
@@ -1561,16 +1600,16 @@ class MainWindow(QMainWindow):
         dialog.open()
 
     def _packet_written(self, out: str, stats: dict[str, Any]) -> None:
-        text = (f"Wrote the review packet:\n\n{out}\n\n{stats['frames']} frames, "
-                f"{stats['people']} people, {stats['images']} images.")
+        text = (f"Wrote the review packet:\n\n{out}\n\n{count(stats['frames'], 'frames')}, "
+                f"{count(stats['people'], 'people')}, {count(stats['images'], 'images')}.")
         if stats.get("missing_images"):
-            text += f"\n{stats['missing_images']} frames went without their image."
+            text += f"\n{count(stats['missing_images'], 'frames')} went without their image."
         if stats.get("outside_images"):
-            text += (f"\n{stats['outside_images']} frames went without their image: it is a "
-                     "link to a file outside the images folder.")
+            text += (f"\n{count(stats['outside_images'], 'frames')} went without their image: "
+                     "it is a link to a file outside the images folder.")
         if stats.get("unplaced_heads"):
-            text += (f"\n{stats['unplaced_heads']} people have no labelled joint, so their "
-                     "heads could not be blurred.")
+            text += (f"\n{count(stats['unplaced_heads'], 'people')} with no labelled joint: "
+                     "no head to blur.")
         self._message(f"wrote {out}")
         self._inform(text)
 
@@ -1590,9 +1629,10 @@ class MainWindow(QMainWindow):
             when = time.strftime("%Y-%m-%d %H:%M", time.localtime(report.merged_at or 0))
             self._inform(f"This packet was merged already, on {when}; nothing changed.")
             return
-        text = (f"Merged the review by {report.reviewer}: {report.frames} frames, "
-                f"{report.joints_taken} joints taken, {report.people_added} people added, "
-                f"{report.people_deleted} deleted, {report.notes_added} notes.")
+        text = (f"Merged the review by {report.reviewer}: {count(report.frames, 'frames')}, "
+                f"{count(report.joints_taken, 'joints')} taken, "
+                f"{count(report.people_added, 'people')} added, "
+                f"{report.people_deleted} deleted, {count(report.notes_added, 'notes')}.")
         if report.disputed:
             text += (f"\n\n{len(report.disputed)} frame(s) are disputed: "
                      + ", ".join(map(str, report.disputed[:12]))

@@ -39,9 +39,9 @@ from app.analysis.triage import (
 from app.demo import generate
 from app.demo.evaluate import wrong_people
 from app.formats.maps import NetworkMaps
+from app.jobs import new_project
 from app.jobs_analysis import import_maps, run_triage
 from app.model.skeleton import coco_body, skeleton_from_dict
-from app.store import Project
 from tests.analysis.synth import person
 
 SK = coco_body()
@@ -125,8 +125,8 @@ def measure(folder: Path) -> Figures:
     for a in truth["annotations"]:
         anns.setdefault(a["image_id"], []).append(a)
     sources = json.loads((folder / "project-sources.json").read_text(encoding="utf-8"))
-    with Project.create(folder, images=folder / sources["images"],
-                        skeleton=skeleton_from_dict(sources["skeleton"])) as project:
+    with new_project(folder, images=folder / sources["images"],
+                     skeleton=skeleton_from_dict(sources["skeleton"])) as project:
         import_maps(project, folder / sources["maps"])
         results = run_triage(project, findings=False)
         people = project.people_by_frame()

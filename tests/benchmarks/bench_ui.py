@@ -144,7 +144,7 @@ def _bench_switch() -> list[dict]:
     import cv2
     from PySide6.QtWidgets import QApplication
 
-    from app.store import Project
+    from app.jobs import new_project
     from app.ui.window import MainWindow
 
     app = QApplication.instance() or QApplication(["bench"])
@@ -157,7 +157,7 @@ def _bench_switch() -> list[dict]:
         for i in range(n_frames):
             write_frame_jpeg(images / f"f{i:03d}.jpg", i)
         os.environ["XDG_CONFIG_HOME"] = str(folder / "settings")
-        project = Project.create(folder / "proj", images=images, author="bench")
+        project = new_project(folder / "proj", images=images, author="bench")
         from app.model.labels import AUTO, Person
 
         with project.bulk("Bench", "synthetic people", "bench") as b:
@@ -252,7 +252,7 @@ _MEMORY = textwrap.dedent("""
 
 def _bench_memory() -> list[dict]:
     from app.model.labels import AUTO, Person
-    from app.store import Project
+    from app.store import NewFrame, Project
 
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
@@ -267,10 +267,8 @@ def _bench_memory() -> list[dict]:
             os.symlink(images / f"src{i % 8}.jpg", frames_dir / f"f{i:06d}.jpg")
         project = Project.create(folder / "large", author="bench")
         with project.bulk("Bench", "register synthetic frames", "bench") as b:
-            b.executemany(
-                "INSERT INTO frames (id, path, file_name, width, height) VALUES (?, ?, ?, ?, ?)",
-                [(1 + i, str(frames_dir / f"f{i:06d}.jpg"), f"f{i:06d}.jpg", W, H)
-                 for i in range(n_frames)])
+            b.frames.insert([NewFrame(str(frames_dir / f"f{i:06d}.jpg"), f"f{i:06d}.jpg", W, H)
+                             for i in range(n_frames)], first_id=1)
             first = b.allocate_person_ids(n_frames * per_frame)
             base = synthetic_people(per_frame)
             rows = []

@@ -65,6 +65,17 @@ def test_export_of_every_state_warns_and_still_leaves_the_unreadable_image(mixed
     assert code == 0 and "holds 2 untouched frames" in err and "disputed" not in err
 
 
+def test_an_export_of_one_frame_counts_in_the_singular(mixed, tmp_path, capsys):
+    """The merge of the export rule with singular counts: "1 images" read wrong (our own
+    wording rule, app/wording.py)."""
+    out = tmp_path / "labels.json"
+    code, printed, _ = _run(capsys, "export", mixed, "--out", out, "--states", "signed-off")
+    assert code == 0 and printed.startswith(f"wrote {out}: 1 image, 3 people; 5 frames left out")
+    code, printed, _ = _run(capsys, "targets", mixed, tmp_path / "t", "--states", "signed-off",
+                            "-q")
+    assert code == 0 and printed.startswith("wrote 1 frame of training targets to ")
+
+
 def test_targets_follow_the_same_rule(mixed, tmp_path, capsys):
     code, _, err = _run(capsys, "targets", mixed, tmp_path / "t1", "-q")
     manifest = json.loads((tmp_path / "t1" / "manifest.json").read_text())

@@ -13,6 +13,7 @@ import numpy as np
 import pytest
 
 from app.cli import main
+from app.jobs import new_project
 from app.model import Person
 from app.store import Project
 from tests.analysis.synth import person
@@ -25,7 +26,7 @@ KEYS = {"id", "frame_id", "file_name", "kind", "person_id", "tag", "joints", "te
 def proj(tmp_path, image_dir):
     rng = np.random.default_rng(5)
     folder = tmp_path / "p"
-    with Project.create(folder, images=image_dir, author="ana") as project:
+    with new_project(folder, images=image_dir, author="ana") as project:
         frames = project.frames()
         body = person(rng, (110.0, 120.0), 120.0)
         copy = body.copy()
@@ -132,7 +133,10 @@ def test_bad_input_is_one_line_and_status_2(proj, capsys, argv, says):
 
 
 def test_undo_steps_must_be_positive_and_stop_when_nothing_is_left(proj, capsys):
-    assert main(["undo", str(proj), "--steps", "0", "-q"]) == 2
-    assert "--steps" in capsys.readouterr().err
+    with pytest.raises(SystemExit) as stop:
+        main(["undo", str(proj), "--steps", "0", "-q"])
+    assert stop.value.code == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "--steps: 0 is not between 1" in err[0]
     assert main(["undo", str(proj), "-q"]) == 0
     assert "nothing more to undo" in capsys.readouterr().out

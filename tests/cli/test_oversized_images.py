@@ -74,7 +74,7 @@ def test_an_oversized_image_is_unreadable_everywhere_and_never_decoded(tmp_path,
     packet = tmp_path / "send.zip"
     assert main(["packet", "export", str(proj), "--frames", "1,2,3", "--out", str(packet),
                  "--images", "blurred-heads", "-q"]) == 0
-    assert "1 frames went without their image" in capsys.readouterr().err
+    assert "1 frame went without their image" in capsys.readouterr().err
     assert len(decodes) == 4 and packet.is_file()
 
 

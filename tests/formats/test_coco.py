@@ -2,6 +2,7 @@
 
 import copy
 import json
+import sqlite3
 
 import numpy as np
 import pytest
@@ -9,9 +10,8 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from app.errors import BadInput
-from app.jobs import export_coco, import_coco
+from app.jobs import export_coco, import_coco, new_project
 from app.model import MoveJoint, SetVisibility
-from app.store import Project
 
 
 def _load(path):
@@ -158,6 +158,175 @@ def test_nan_and_infinity_are_refused(project, coco_file, tmp_path):
     assert project.counts()["people"] == 0
 
 
+_NON_FINITE_PLACES = [
+    (("annotations", 0, "area"), "annotations[0] (id 5000): field area"),
+    (("annotations", 1, "bbox", 2), "annotations[1] (id 5001): field bbox.2"),
+    (("annotations", 2, "attributes"), "annotations[2] (id 5002): field attributes"),
+    (("images", 3, "taken"), "images[3] (id 121): field taken"),
+    (("info", "year"), "field info.year"),
+    (("categories", 0, "weight"), "categories[0] (id 1): field weight"),
+]
+
+
+@pytest.mark.parametrize("token", ["NaN", "Infinity", "-Infinity", "1e309"])
+@pytest.mark.parametrize("place, named", _NON_FINITE_PLACES)
+def test_non_finite_numbers_anywhere_are_refused_naming_record_and_field(
+        project, coco_file, tmp_path, place, named, token):
+    """RFC 8259, section 6: JSON has no NaN or Infinity; a number past the range of a double
+    (1e309) would be read as Infinity. Fields Posewright passes through unchanged were let in
+    before, and their export then failed. Synthetic data."""
+    ds = _load(coco_file)
+    parent = ds
+    for key in place[:-1]:
+        parent = parent[key]
+    parent[place[-1]] = "@@"
+    path = _write(tmp_path, json.dumps(ds).replace('"@@"', token), "odd.json")
+    with pytest.raises(BadInput) as err:
+        import_coco(project, path)
+    assert str(err.value).startswith(f"{path}: {named}: ")
+    assert "is not a finite number" in str(err.value)
+    assert project.counts()["people"] == 0 and project.history() == []
+
+
+@pytest.mark.parametrize("value", [7, 2, -1, True, 1.0, "1", None])
+def test_iscrowd_other_than_0_and_1_is_refused(project, coco_file, tmp_path, value):
+    """COCO data format (https://cocodataset.org/#format-data): iscrowd is 0 or 1; 7 used to
+    come back as 1. Synthetic data."""
+    ds = _load(coco_file)
+    ds["annotations"][0]["iscrowd"] = value
+    with pytest.raises(BadInput, match=r"annotations\[0\] \(id 5000\): field iscrowd"):
+        import_coco(project, _write(tmp_path, ds, "crowd.json"))
+    assert project.counts()["people"] == 0
+
+
+@pytest.mark.parametrize("record, field", [
+    ("annotations", "id"), ("annotations", "image_id"), ("images", "id"),
+    ("categories", "id")])
+@pytest.mark.parametrize("value", [2**63, 2**64 + 5, -(2**63) - 1, 2**53])
+def test_ids_beyond_what_json_holds_exactly_are_refused(project, coco_file, tmp_path, record,
+                                                        field, value):
+    """RFC 8259, section 6: integers in [-(2**53)+1, 2**53-1] are interoperable; SQLite
+    integers are 64-bit (2**63 raised OverflowError before). Synthetic data."""
+    ds = _load(coco_file)
+    ds[record][0][field] = value
+    with pytest.raises(BadInput, match=rf"{record}\[0\] .*field {field}: input should be") \
+            as err:
+        import_coco(project, _write(tmp_path, ds, "big.json"))
+    assert str(value) in str(err.value)
+    assert project.counts()["people"] == 0
+
+
+def test_the_largest_exact_id_is_accepted(project, coco_file, tmp_path):
+    ds = _load(coco_file)
+    ds["annotations"][0]["id"] = 2**53 - 1
+    import_coco(project, _write(tmp_path, ds, "top.json"))
+    assert 2**53 - 1 in {p.id for ps in project.people_by_frame().values() for p in ps}
+
+
+def test_negative_image_ids_in_any_order_are_taken(project, coco_file, tmp_path):
+    """Frames take the image ids of the file; renumbering went through temporary ids that
+    negative image ids could collide with (IntegrityError). Synthetic data; checked with
+    pycocotools (it reads the export with the same ids)."""
+    from pycocotools.coco import COCO
+
+    ds = _load(coco_file)
+    new_ids = [-3, -5, 2, -2, 1, -1]  # -3 and -2 once landed on the temporary ids of 2 and 1
+    old_ids = [im["id"] for im in ds["images"]]
+    for image, new in zip(ds["images"], new_ids):
+        image["id"] = new
+    for ann in ds["annotations"]:
+        ann["image_id"] = new_ids[old_ids.index(ann["image_id"])]
+    path = _write(tmp_path, ds, "negative.json")
+    import_coco(project, path)
+    assert [f.id for f in project.frames()] == sorted(new_ids)
+    out = tmp_path / "out.json"
+    export_coco(project, out, states=None)  # every state, untouched frames included
+    got = _load(out)
+    for key, order in (("images", "id"), ("annotations", "id")):
+        assert sorted(got.pop(key), key=lambda r: r[order]) == \
+            sorted(ds.pop(key), key=lambda r: r[order])
+    assert got == ds
+    assert sorted(COCO(str(out)).getImgIds()) == sorted(new_ids)
+
+
+def _holding_non_finite(project):
+    """A project as an import made before non-finite numbers were refused left it: NaN and
+    infinity in the fields kept for the round trip (written here through the store's bulk
+    writer, as that import did). Synthetic data."""
+    from app.model import Person
+
+    kp = np.zeros((17, 3))
+    kp[:4] = [[10, 20, 2], [30, 25, 1], [22, 40, 2], [12, 44, 2]]
+    person = Person(41, kp, np.full(17, np.nan), ("import",) * 17, None,
+                    {"bbox": [0, 0, float("inf"), 3], "area": float("nan"), "iscrowd": 0,
+                     "attributes": {"weight": float("-inf")}})
+    with project.bulk("ImportCoco", "import dataset old.json", "file:old.json") as b:
+        b.add_people([(1, person)])
+        b.set_meta("coco_dataset_extra", json.dumps({"info": {"year": float("nan")}}))
+    # Written as an import before such numbers were refused wrote it (the store now refuses).
+    with sqlite3.connect(project.folder / "project.db") as conn:
+        conn.execute("UPDATE frames SET extra = ? WHERE id = 2",
+                     (json.dumps({"taken": float("inf")}),))
+    conn.close()
+    return person
+
+
+def _strict(text):
+    def refuse(token):
+        raise ValueError(f"{token} in the output")
+
+    return json.loads(text, parse_constant=refuse)
+
+
+def test_a_project_holding_non_finite_numbers_still_exports(project, tmp_path, caplog):
+    """The export is strict JSON (RFC 8259) that pycocotools reads; the box and area of the
+    person are computed as for a person without imported ones (tight box around the labelled
+    joints, area w * h: common practice, no source); every other such value is null, and a
+    warning names the record, the field and the mend."""
+    from pycocotools.coco import COCO
+
+    _holding_non_finite(project)
+    out = tmp_path / "out.json"
+    export_coco(project, out, states=None)  # every state, untouched frames included
+    ds = _strict(out.read_text())
+    ann = ds["annotations"][0]
+    assert ann["bbox"] == [10.0, 20.0, 20.0, 24.0] and ann["area"] == 480.0
+    assert ann["attributes"] == {"weight": None}
+    assert ds["images"][1]["taken"] is None and ds["info"] == {"year": None}
+    COCO(str(out))
+    warned = [r.getMessage() for r in caplog.records if r.levelname == "WARNING"]
+    assert len(warned) == 5
+    assert any("annotations[0] (id 41): field bbox.2: Infinity, written as [10.0, 20.0, 20.0, "
+               "24.0]" in w for w in warned)
+    assert any("annotations[0] (id 41): field area: NaN, written as 480.0" in w for w in warned)
+    assert any("images[1] (id 2): field taken: Infinity, written as null" in w for w in warned)
+    assert all(f"`posewright mend {project.folder}` mends the project" in w for w in warned)
+
+
+def test_mend_replaces_them_for_good_and_the_export_does_not_change(project, tmp_path,
+                                                                   caplog):
+    from app.jobs import mend_numbers
+
+    person = _holding_non_finite(project)
+    before = tmp_path / "before.json"
+    export_coco(project, before, states=None)  # every state, untouched frames included
+    notes = mend_numbers(project)
+    assert sorted(notes) == sorted([
+        "frame 1: person 41: field bbox.2: dropped", "frame 1: person 41: field area: dropped",
+        "frame 1: person 41: field attributes.weight: null",
+        "image 2: field taken: null", "dataset: field info.year: null"])
+    assert project.frame(1).state.value == "untouched"
+    caplog.clear()
+    after = tmp_path / "after.json"
+    export_coco(project, after, states=None)  # every state, untouched frames included
+    assert not [r for r in caplog.records if r.levelname == "WARNING"]
+    assert _strict(after.read_text()) == _strict(before.read_text())
+    assert mend_numbers(project) == []
+    project.undo()  # the people's part is an ordinary undoable edit
+    assert project.people(1)[0].extra["bbox"][2] == float("inf")
+    assert person.id == 41
+
+
 def test_reimport_is_refused_as_a_whole(project, coco_file):
     import_coco(project, coco_file)
     n = project.counts()["people"]
@@ -187,10 +356,15 @@ def test_crowd_annotations_become_ignore_regions_and_round_trip(project, coco_fi
 
 _json_values = st.recursive(
     st.none() | st.booleans() | st.integers(-10**12, 10**12) | st.floats(allow_nan=True)
-    | st.text(max_size=6),
+    | st.text(max_size=6)
+    | st.sampled_from([7, -1, 2**53, 2**63, -(2**63) - 1, 2**64 + 1, 10**400]),
     lambda inner: st.lists(inner, max_size=4) | st.dictionaries(st.text(max_size=8), inner,
                                                                    max_size=4),
     max_leaves=12)
+
+#: Raw JSON text put in place of a value: what json.dumps never writes but a file may hold.
+_RAW_TOKENS = ["NaN", "-Infinity", "1e309", "-1e999", "1" + "0" * 5000,
+               "[" * 70 + "]" * 70, "[" * 50_000 + "]" * 50_000, '{"a": ' * 3000 + "1" + "}" * 3000]
 
 
 @settings(max_examples=120, deadline=None,
@@ -198,8 +372,10 @@ _json_values = st.recursive(
 @given(st.data())
 def test_random_malformed_input_never_crashes_and_never_half_imports(
         image_dir, coco_file, tmp_path_factory, data):
-    """Synthetic mutations of a valid file: replace one value anywhere, drop one key, or cut
-    the text; the import either succeeds whole or raises BadInput and writes nothing."""
+    """Synthetic mutations of a valid file: replace one value anywhere (also by raw text such
+    as NaN, 1e309 or deep nesting), drop one key, or cut the text; the import either succeeds
+    whole, and then the project exports strict JSON (RFC 8259), or raises BadInput in one line
+    and writes nothing."""
     ds = _load(coco_file)
     paths = []
 
@@ -213,7 +389,7 @@ def test_random_malformed_input_never_crashes_and_never_half_imports(
                 collect(v, (*path, i))
 
     collect(ds, ())
-    mode = data.draw(st.sampled_from(["replace", "drop", "cut"]))
+    mode = data.draw(st.sampled_from(["replace", "raw", "drop", "cut"]))
     target = data.draw(st.sampled_from(paths[1:]))
     if mode == "cut":
         text = json.dumps(ds)
@@ -224,15 +400,17 @@ def test_random_malformed_input_never_crashes_and_never_half_imports(
             parent = parent[key]
         if mode == "replace":
             parent[target[-1]] = data.draw(_json_values)
+        elif mode == "raw":
+            parent[target[-1]] = "@@raw@@"
         elif isinstance(parent, dict):
             del parent[target[-1]]
         else:
             parent.pop(target[-1])
-        text = json.dumps(ds)
+        text = json.dumps(ds).replace('"@@raw@@"', data.draw(st.sampled_from(_RAW_TOKENS)))
     folder = tmp_path_factory.mktemp("fuzz")
     path = folder / "fuzz.json"
     path.write_text(text)
-    with Project.create(folder / "proj", images=image_dir) as project:
+    with new_project(folder / "proj", images=image_dir) as project:
         frames_before = project.frames()
         try:
             import_coco(project, path)
@@ -241,6 +419,12 @@ def test_random_malformed_input_never_crashes_and_never_half_imports(
             assert project.counts()["people"] == 0 and project.history() == []
             assert project.frames() == frames_before
         else:
-            # Accepted whole: every person of the file is in.
+            # Accepted whole: every person of the file is in, and it all exports.
             people = [a for a in ds["annotations"] if not a.get("iscrowd")]
             assert project.counts()["people"] == len(people)
+            export_coco(project, folder / "out.json", states=None)
+            json.loads((folder / "out.json").read_text(), parse_constant=_refuse_constant)
+
+
+def _refuse_constant(token):
+    raise AssertionError(f"{token} in a file that must be strict JSON")

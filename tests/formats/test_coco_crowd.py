@@ -11,9 +11,8 @@ from pycocotools import mask as mask_utils
 from pycocotools.coco import COCO
 
 from app.analysis.targets import rasterize_regions
-from app.jobs import export_coco, import_coco
+from app.jobs import export_coco, import_coco, new_project
 from app.model import coco_body
-from app.store import Project
 
 W, H = 200, 150
 #: A synthetic concave polygon and a rectangle on one frame.
@@ -51,7 +50,7 @@ def test_exported_crowd_annotations_load_in_pycocotools_and_match_our_polygons(t
     cv2.imwrite(str(images / "a.png"), np.zeros((H, W, 3), np.uint8))
     source = tmp_path / "in.json"
     source.write_text(json.dumps(_dataset()))
-    with Project.create(tmp_path / "p", images=images, author="ana") as p:
+    with new_project(tmp_path / "p", images=images, author="ana") as p:
         import_coco(p, source)
         exported = tmp_path / "out.json"
         export_coco(p, exported, states=None)  # every state, untouched frames included
@@ -68,6 +67,6 @@ def test_exported_crowd_annotations_load_in_pycocotools_and_match_our_polygons(t
     assert np.all(np.minimum(inside, outside)[disagree] <= 1.5)
     area = float(mask_utils.area(coco.annToRLE(crowd[0])))
     assert abs(area - crowd[0]["area"]) <= 0.02 * crowd[0]["area"]
-    with Project.create(tmp_path / "q", images=images, author="ana") as q:
+    with new_project(tmp_path / "q", images=images, author="ana") as q:
         import_coco(q, exported)
         assert [polys for _, polys, _ in q.regions(3)] == [POLYGONS]

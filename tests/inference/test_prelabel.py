@@ -11,10 +11,10 @@ import pytest
 from app.errors import Cancelled, NotFound
 from app.formats.maps import read_maps
 from app.inference.prelabel import parse_frames, prelabel
+from app.jobs import new_project
 from app.jobs_analysis import load_maps
 from app.model import MoveJoint
 from app.progress import Progress
-from app.store import Project
 from tests.inference.onnx_models import colour_dot_model
 from tests.inference.test_network import FIELDS, MAPS_FROM, SK, _config, _people_at
 
@@ -36,7 +36,7 @@ def setup(tmp_path):
                              channel_order="bgr", mean=(10, 20, 30), scale=(0.5, 0.25, 0.125))
     config = tmp_path / "dots-config.json"
     config.write_text(_config().model_dump_json())
-    project = Project.create(tmp_path / "proj", images=images, skeleton=SK, author="ana")
+    project = new_project(tmp_path / "proj", images=images, skeleton=SK, author="ana")
     yield project, model, config, truth
     project.close()
 

@@ -49,7 +49,7 @@ def test_the_round_trip_from_the_command_line(folder, tmp_path, capsys):
     returned = tmp_path / "rehearsal-returned.zip"
     assert code == 0 and returned.is_file() and str(returned) in out
     code, out, _ = _run(capsys, "packet", "merge", folder, returned)
-    assert code == 0 and "1 joints taken" in out and "0 conflicts" in out
+    assert code == 0 and "1 joint taken" in out and "0 conflicts" in out
     with Project.open(folder, read_only=True) as p:
         assert p.people(100)[0].keypoints[0, :2].tolist() == [11.0, 12.0]
         assert p.frame(107).state is FrameState.SIGNED_OFF

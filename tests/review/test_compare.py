@@ -23,6 +23,7 @@ from app.model.labels import Person
 from app.model.skeleton import coco_body
 from app.review.compare import compare, compare_frame, load_labels, write_csv
 from tests import synthetic
+from tests.conftest import place
 
 SK = coco_body()
 
@@ -162,7 +163,7 @@ def _labelset(name, frames):
 
 
 def test_project_against_coco_file_and_refusals(labelled, tmp_path, coco_file):
-    result = compare(load_labels(labelled.folder), load_labels(coco_file))
+    result = compare(load_labels(place(labelled)), load_labels(coco_file))
     assert len(result.frames) == 6 and result.mean_oks == pytest.approx(1.0)
     results_list = tmp_path / "results.json"
     results_list.write_text("[]")

@@ -12,6 +12,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from app.errors import BadInput, PosewrightError
+from app.jobs import new_project
 from app.model.edits import (
     AddNote,
     DeletePerson,
@@ -450,7 +451,7 @@ def test_plan_properties(versions):
     assert conflicted == (set(swapped.conflicts[0].joints) if swapped.conflicts else set())
     merged = _person(7, ours)
     for change in plan.changes:
-        merged = merged.with_joint(change.target[2], change.after)
+        merged = merged.with_joint(change.target.joint, change.after)
     if same_joints(ours, base).all():
         assert not conflicted and same_joints(merged.keypoints, theirs).all()
     if same_joints(theirs, base).all():
@@ -471,7 +472,7 @@ def test_a_schema_2_project_gains_the_review_tables(tmp_path, image_dir):
     from app.store import Project
     from app.store.schema import SCHEMA_VERSION
 
-    with Project.create(tmp_path / "old", images=image_dir, author="ana"):
+    with new_project(tmp_path / "old", images=image_dir, author="ana"):
         pass
     db = tmp_path / "old" / "project.db"
     conn = sqlite3.connect(db, isolation_level=None)
@@ -481,7 +482,8 @@ def test_a_schema_2_project_gains_the_review_tables(tmp_path, image_dir):
     conn.close()
     with Project.open(tmp_path / "old") as p:
         send(p, tmp_path / "p.zip")
-        assert len(p.query("SELECT packet_id FROM packets WHERE direction = 'exported'")) == 1
+        assert len(p.packet_records(p.history()[0].target.what[len("packet:"):],
+                                    "exported")) == 1
     conn = sqlite3.connect(db)
-    assert conn.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION >= 3
+    assert conn.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION >= 4
     conn.close()

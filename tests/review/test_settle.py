@@ -10,6 +10,7 @@ import pytest
 from app.errors import EditRefused
 from app.model.edits import DeletePerson, MoveJoint
 from app.model.labels import FrameState
+from app.model.targets import JointTarget, PersonTarget
 from app.review.merge import merge_packet
 from app.review.settle import (
     differences,
@@ -76,7 +77,7 @@ def test_take_a_person_and_the_whole_frame(disputed):
     take_theirs(project, fid, a)
     assert a not in _joints(project, fid)
     applied = take_theirs(project, fid)  # what is left: B's deletion
-    assert [c.target for c in applied.changes] == [("person", b)]
+    assert [c.target for c in applied.changes] == [PersonTarget(b)]
     assert b not in {p.id for p in project.people(fid)}
     assert differences(project, fid) == []
     project.undo()
@@ -86,7 +87,8 @@ def test_take_a_person_and_the_whole_frame(disputed):
 def test_the_whole_frame_in_one_step(disputed):
     project, fid, a, b = disputed
     edit = take_theirs_edit(project, fid)
-    assert [c.target for c in edit.changes] == [("joint", a, 3), ("joint", a, 4), ("person", b)]
+    assert [c.target for c in edit.changes] == [JointTarget(a, 3), JointTarget(a, 4),
+                                                PersonTarget(b)]
     group = project.apply(edit).group_id
     assert differences(project, fid) == []
     assert len([e for e in project.history(frame_id=fid) if e.group_id == group]) == 3

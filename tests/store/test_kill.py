@@ -16,7 +16,8 @@ import cv2
 import numpy as np
 import pytest
 
-from app.model import NewPerson
+from app.jobs import new_project
+from app.model import JointTarget, NewPerson
 from app.store import Project
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
@@ -44,7 +45,7 @@ CHILD = textwrap.dedent("""
 @pytest.mark.slow
 def test_sigkill_at_random_moments(tmp_path, image_dir):
     folder = tmp_path / "proj"
-    with Project.create(folder, images=image_dir, author="setup") as p:
+    with new_project(folder, images=image_dir, author="setup") as p:
         for f in p.frames():
             p.apply(NewPerson(f.id, None, tuple((10.0, 10.0, 2) for _ in range(17))))
     script = CHILD.format(root=ROOT, folder=str(folder))
@@ -75,19 +76,17 @@ def test_sigkill_at_random_moments(tmp_path, image_dir):
         with Project.open(folder, author="checker") as p:
             assert not p.read_only
             moved = {int(e.after[0]) for e in p.history()
-                     if e.kind == "edit" and e.target.endswith(tuple(f"joint:{j}"
-                                                                      for j in range(17)))}
+                     if e.kind == "edit" and isinstance(e.target, JointTarget)}
             missing = reported - moved
             assert not missing, f"edits reported done but lost: {sorted(missing)[:5]}"
             # The stored labels equal the newest ledger value of each joint.
             newest = {}
             for e in reversed(p.history()):
-                if "/joint:" in e.target:
+                if isinstance(e.target, JointTarget):
                     newest[(e.frame_id, e.target)] = e.after
             for (frame_id, target), after in newest.items():
-                pid, j = int(target.split("/")[0][7:]), int(target.split(":")[-1])
-                person = next(q for q in p.people(frame_id) if q.id == pid)
-                assert person.joint_value(j)[:3] == after[:3]
+                person = next(q for q in p.people(frame_id) if q.id == target.person)
+                assert person.joint_value(target.joint)[:3] == after[:3]
     assert len(reported) > 30
 
 
@@ -118,14 +117,14 @@ PRELABEL_CHILD = textwrap.dedent("""
     elif point == "recording the run":
         store.Bulk.set_maps = on_call(2, store.Bulk.set_maps)
     else:  # right after the run's transaction commits, before anything else
-        original = store.Project._transaction
+        original = store.Project._write
 
         @contextlib.contextmanager
-        def transaction(self):
-            with original(self):
-                yield
+        def transaction(self, *args, **kwargs):
+            with original(self, *args, **kwargs) as tx:
+                yield tx
             die()
-        store.Project._transaction = transaction
+        store.Project._write = transaction
     project = Project.open({folder!r}, author="child")
     prelabel(project, {model!r}, {config!r})
 """)
@@ -173,7 +172,7 @@ def test_sigkill_during_prelabel_leaves_exactly_the_run_the_database_names(
     first.write_text(_config().model_dump_json())
     second.write_text(_config(extra_scales=[1.5]).model_dump_json())
     base = tmp_path / "base"
-    with Project.create(base, images=images, skeleton=SK, author="setup") as p:
+    with new_project(base, images=images, skeleton=SK, author="setup") as p:
         prelabel(p, model, first)
         expected = {"first": _maps_named(p)}
     shutil.copytree(base, tmp_path / "clean")

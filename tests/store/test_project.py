@@ -14,12 +14,14 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from app.errors import BadInput, EditRefused, NotFound, ReadOnly
+from app.jobs import new_project
 from app.model import (
     AddNote,
     AddRegion,
     DeletePerson,
     DeleteRegion,
     FrameState,
+    JointTarget,
     MergePeople,
     MoveJoint,
     NewPerson,
@@ -32,6 +34,7 @@ from app.model import (
 )
 from app.store import Project
 from app.store.schema import SCHEMA_VERSION
+from tests.conftest import place
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 
@@ -55,7 +58,7 @@ def test_create_registers_images_with_sizes(project, image_dir):
 
 def test_corrupt_and_unreadable_images_are_marked_not_fatal(tmp_path, image_dir):
     (image_dir / "broken.png").write_bytes(b"\x89PNG not really")
-    with Project.create(tmp_path / "p2", images=image_dir) as p:
+    with new_project(tmp_path / "p2", images=image_dir) as p:
         broken = p.find_frame("broken.png")
         assert broken.status == "corrupt" and broken.width == 0
 
@@ -77,7 +80,7 @@ def test_edits_survive_reopen_with_ledger(project, tmp_path):
     before = _snapshot(project)
     ledger = project.history()
     project.close()
-    with Project.open(tmp_path / "proj", author="ben") as again:
+    with Project.open(place(project), author="ben") as again:
         assert _same(_snapshot(again), before)
         assert again.history() == ledger
         assert again.frame(2).state is FrameState.CORRECTED
@@ -100,10 +103,12 @@ def test_undo_and_redo_survive_restart(project, tmp_path):
                         ).edit.person_id
     project.apply(MoveJoint(1, pid, 0, 99.0, 98.0))
     project.close()
-    with Project.open(tmp_path / "proj") as p:
+    # A folder has one undo stack for whoever opens it; on a server each author has theirs.
+    who = "ana" if project.hosted else None
+    with Project.open(place(project), author=who) as p:
         assert p.undo() is not None
         assert p.people(1)[0].keypoints[0, :2].tolist() == [10.0, 20.0]
-    with Project.open(tmp_path / "proj") as p:
+    with Project.open(place(project), author=who) as p:
         assert p.redo() is not None
         assert p.people(1)[0].keypoints[0, :2].tolist() == [99.0, 98.0]
         kinds = [e.kind for e in p.history()]
@@ -151,6 +156,7 @@ def test_return_to_a_point_is_itself_undoable(project):
     np.testing.assert_array_equal(project.people(1)[0].keypoints, moved)
 
 
+@pytest.mark.folder_only
 def test_second_process_gets_read_only_and_is_told_why(project, tmp_path):
     code = textwrap.dedent(f"""
         import sys; sys.path.insert(0, {ROOT!r})
@@ -164,6 +170,7 @@ def test_second_process_gets_read_only_and_is_told_why(project, tmp_path):
     assert f"process {os.getpid()}" in out
 
 
+@pytest.mark.folder_only
 def test_read_only_refuses_edits_in_the_same_process(project, tmp_path):
     with Project.open(tmp_path / "proj") as second:
         assert second.read_only
@@ -204,9 +211,10 @@ def test_newer_schema_is_refused_and_left_alone(project, tmp_path):
         assert conn.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION + 1
 
 
+@pytest.mark.folder_only
 def test_durability_settings(project):
     """SQLite documentation: WAL with synchronous=FULL syncs the WAL at every commit."""
-    conn = project._conn
+    conn = project.db.conn
     assert conn.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
     assert conn.execute("PRAGMA synchronous").fetchone()[0] == 2  # FULL
 
@@ -249,7 +257,7 @@ def test_any_sequence_undo_all_gives_start_redo_all_gives_end(tmp_path_factory, 
                                                               seq, frame_id):
     """Synthetic random edit sequences through the real store on disk."""
     folder = tmp_path_factory.mktemp("algebra")
-    with Project.create(folder, images=image_dir, author="ana") as p:
+    with new_project(folder, images=image_dir, author="ana") as p:
         start = _snapshot(p)
         applied = 0
         for choice in seq:
@@ -280,14 +288,14 @@ def test_ledger_rows_record_author_time_target_before_after(project):
     project.apply(MoveJoint(1, pid, 4, 5.0, 6.0))
     entry = project.history(limit=1)[0]
     assert entry.author == "ana" and entry.time >= t0 - 1
-    assert entry.target == f"person:{pid}/joint:4"
+    assert entry.target == JointTarget(pid, 4) and str(entry.target) == f"person:{pid}/joint:4"
     assert entry.before[:3] == [None, None, 0] and entry.after[:3] == [5.0, 6.0, 2]
     assert json.loads(json.dumps(entry.after)) == entry.after
 
 
 def test_older_project_is_migrated_forward(tmp_path, image_dir):
     """A project written at schema 1 opens with its labels and gains the newer tables."""
-    with Project.create(tmp_path / "old", images=image_dir, author="ana") as p:
+    with new_project(tmp_path / "old", images=image_dir, author="ana") as p:
         pid = p.apply(NewPerson(1)).edit.person_id
     db = tmp_path / "old" / "project.db"
     conn = sqlite3.connect(db, isolation_level=None)
@@ -305,18 +313,18 @@ def test_older_project_is_migrated_forward(tmp_path, image_dir):
     conn.close()
 
 
-def test_a_schema_3_project_gains_findings_and_dismissals(tmp_path, image_dir):
-    """A project written at schema 3 (before findings) opens with its ledger, migrates to
-    schema 4, keeps findings as derived data and records a dismissal as an undoable edit."""
+def test_a_schema_4_project_gains_findings_and_dismissals(tmp_path, image_dir):
+    """A project written at schema 4 (before findings) opens with its ledger, migrates to
+    schema 5, keeps findings as derived data and records a dismissal as an undoable edit."""
     from app.model import DismissFinding
 
-    with Project.create(tmp_path / "old", images=image_dir, author="ana") as p:
+    with new_project(tmp_path / "old", images=image_dir, author="ana") as p:
         pid = p.apply(NewPerson(1)).edit.person_id
     db = tmp_path / "old" / "project.db"
     conn = sqlite3.connect(db, isolation_level=None)
     for table in ("findings", "findings_state", "dismissals"):
         conn.execute(f"DROP TABLE {table}")
-    conn.execute("PRAGMA user_version = 3")
+    conn.execute("PRAGMA user_version = 4")
     conn.close()
     with Project.open(tmp_path / "old", author="ana") as p:
         assert [q.id for q in p.people(1)] == [pid] and p.findings() == {}
@@ -328,9 +336,9 @@ def test_a_schema_3_project_gains_findings_and_dismissals(tmp_path, image_dir):
         assert p.labels(1).dismissed["key"]["author"] == "ana" and p.dismissed() == {1: {"key"}}
         p.undo()
         assert p.labels(1).dismissed == {} and p.dismissed() == {}
-        assert p.history(limit=1)[0].target == "dismissal:key"
+        assert str(p.history(limit=1)[0].target) == "dismissal:key"
     conn = sqlite3.connect(db)
-    assert conn.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION == 4
+    assert conn.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION == 5
     conn.close()
 
 

@@ -23,8 +23,7 @@ from pathlib import Path
 import pytest
 
 from app.cli import main
-from app.jobs import import_coco
-from app.store import Project
+from app.jobs import import_coco, new_project
 
 ROOT = str(Path(__file__).resolve().parents[2])
 
@@ -33,7 +32,7 @@ ROOT = str(Path(__file__).resolve().parents[2])
 def labelled(tmp_path, image_dir, coco_file):
     """A closed project with 18 synthetic people."""
     folder = tmp_path / "proj"
-    with Project.create(folder, images=image_dir, author="ana") as p:
+    with new_project(folder, images=image_dir, author="ana") as p:
         import_coco(p, coco_file)
     return folder
 
@@ -105,7 +104,7 @@ def test_real_read_only_file_system(tmp_path, image_dir, coco_file):
         pytest.skip("this machine does not let the tests mount a file system")
     try:
         folder = mnt / "proj"
-        with Project.create(folder, images=image_dir, author="ana") as p:
+        with new_project(folder, images=image_dir, author="ana") as p:
             import_coco(p, coco_file)
         subprocess.run(["mount", "-o", "remount,ro", str(mnt)], check=True)
         before = _snapshot(folder)

@@ -9,8 +9,12 @@ import os
 
 import pytest
 
+from app.jobs import new_project
 from app.store import Project
 from app.store.project import HOLDER_NAME, LOCK_NAME
+
+# What the lock holder of a folder finds on opening; a server has no such folder.
+pytestmark = pytest.mark.folder_only
 
 
 def _run(project, contents):
@@ -142,12 +146,12 @@ def test_a_failed_create_leaves_no_lock_file_and_no_folder_it_made(tmp_path, ima
     if existed:
         folder.mkdir()
 
-    def broken(path):
+    def broken(self, frames, first_id):
         raise RuntimeError("the disk went away")
 
-    monkeypatch.setattr("app.store.project.probe_image", broken)
+    monkeypatch.setattr("app.store.frames.FramesGateway.insert", broken)
     with pytest.raises(RuntimeError):
-        Project.create(folder, images=image_dir)
+        new_project(folder, images=image_dir)
     assert folder.exists() == existed
     assert not existed or list(folder.iterdir()) == []
     assert not (tmp_path / "new" / LOCK_NAME).exists()

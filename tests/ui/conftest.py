@@ -10,6 +10,7 @@ import numpy as np
 import pytest
 from PySide6.QtCore import QPoint, QSettings
 
+from app.jobs import new_project
 from app.model.labels import AUTO, Person
 from app.store import Project
 from tests import synthetic
@@ -68,7 +69,7 @@ def make_project(folder: Path, frames: int = 4, author: str = "ana") -> Project:
     position the model guessed), and triage scores for frames 1-3."""
     images = folder / "images"
     synthetic.write_images(images, frames, WIDTH, HEIGHT)
-    project = Project.create(folder / "proj", images=images, author=author)
+    project = new_project(folder / "proj", images=images, author=author)
     with project.bulk("ImportTest", "synthetic people", "test") as b:
         first = b.allocate_person_ids(3 * frames)
         rows = []

@@ -75,6 +75,32 @@ def test_first_run_asks_the_author_once(qapp, monkeypatch):
     assert commands._author(argparse.Namespace(author="kim"), ask=True) == "kim"
 
 
+def test_a_build_without_a_name_says_whose_name_the_ledger_records(tmp_path, image_dir,
+                                                                     monkeypatch, capsys):
+    """Headless `make run` builds the demo from its sources with nobody asked for a name: the
+    ledger takes the login name, and the command now says so. Synthetic project sources."""
+    import json
+
+    import numpy as np
+
+    folder = tmp_path / "sources"
+    (folder / "maps").mkdir(parents=True)
+    for image in image_dir.iterdir():  # empty network maps: the import is in the ledger
+        np.savez(folder / "maps" / f"{image.stem}.npz", stride=np.array(8),
+                 confidence_maps=np.zeros((17, 30, 40), np.float32),
+                 pafs=np.zeros((19, 2, 30, 40), np.float32))
+    (folder / "project-sources.json").write_text(json.dumps(
+        {"format": "posewright-project-sources", "version": 1, "images": str(image_dir),
+         "maps": "maps"}))
+    monkeypatch.delenv("POSEWRIGHT_AUTHOR", raising=False)
+    monkeypatch.setenv("LOGNAME", "login-name")
+    with commands._open(str(folder), None, quiet=True, with_dialog=False) as project:
+        assert {e.author for e in project.history()} == {"login-name"}
+    err = capsys.readouterr().err
+    assert "ledger as by 'login-name', the login name; give --author NAME" in err
+    assert err.count("\n") == 1
+
+
 def test_long_work_runs_off_the_ui_thread_and_cancels(qtbot, window):
     ui_thread = threading.get_ident()
     ran_on = []

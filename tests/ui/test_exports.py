@@ -25,7 +25,7 @@ def test_export_labels_writes_checked_frames_and_says_what_it_left_out(qtbot, wi
     window.actions_by_name["export_labels"].trigger()
     qtbot.waitUntil(lambda: "wrote" in window.status_log, timeout=WAIT_MS)
     assert [i["id"] for i in json.loads(out.read_text())["images"]] == [2]
-    assert "1 images, 3 people; 2 frames left out by their state" in window.status_log.last
+    assert "1 image, 3 people; 2 frames left out by their state" in window.status_log.last
     qtbot.waitUntil(lambda: any(b.objectName() == "InfoBox"
                                 for b in window.findChildren(QMessageBox)), timeout=WAIT_MS)
     (box,) = [b for b in window.findChildren(QMessageBox) if b.objectName() == "InfoBox"]

@@ -17,7 +17,7 @@ import pytest
 from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QDialog, QFileDialog, QMessageBox
 
-from app.store import Project
+from app.jobs import new_project
 from app.ui.keys import KEYS, sequences
 from app.ui.models import KeyRole
 from tests.formats.test_video import FPS, write_video
@@ -46,7 +46,7 @@ def dots(qtbot, tmp_path):
                              channel_order="bgr", mean=(10, 20, 30), scale=(0.5, 0.25, 0.125))
     config = tmp_path / "dots-config.json"
     config.write_text(_config().model_dump_json())
-    project = Project.create(tmp_path / "proj", images=images, skeleton=SK, author="ana")
+    project = new_project(tmp_path / "proj", images=images, skeleton=SK, author="ana")
     window = show_window(qtbot, project)
     yield window, project, model, config
     window.shutdown()

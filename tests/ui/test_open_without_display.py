@@ -7,7 +7,7 @@ import sys
 
 import pytest
 
-from app.store import Project
+from app.jobs import new_project
 
 
 @pytest.fixture
@@ -21,7 +21,7 @@ def bare_env():
 @pytest.mark.skipif(sys.platform != "linux", reason="the display check is for Linux")
 def test_screenshot_needs_no_display_and_a_window_is_refused_in_one_line(
         tmp_path, image_dir, bare_env):
-    Project.create(tmp_path / "p", images=image_dir).close()
+    new_project(tmp_path / "p", images=image_dir).close()
     shot = tmp_path / "shot.png"
     done = subprocess.run([sys.executable, "-m", "app", "open", str(tmp_path / "p"),
                            "--screenshot", str(shot)], env=bare_env, capture_output=True,

@@ -20,7 +20,7 @@ from pathlib import Path
 import pytest
 
 from app.errors import PosewrightError
-from app.store import Project
+from app.jobs import new_project
 from app.ui import commands, syslibs
 
 linux_only = pytest.mark.skipif(sys.platform != "linux" or shutil.which("ldd") is None,
@@ -145,7 +145,7 @@ def test_open_stops_before_qt_starts_in_one_line(tmp_path, image_dir):
     plugins = tmp_path / "platforms"
     plugins.mkdir()
     shutil.copy(plugin, plugins / plugin.name)
-    Project.create(tmp_path / "p", images=image_dir).close()
+    new_project(tmp_path / "p", images=image_dir).close()
     env = {k: v for k, v in os.environ.items()
            if k not in ("QT_QPA_PLATFORM", "WAYLAND_DISPLAY", "XDG_SESSION_TYPE")}
     env.update(DISPLAY=":987", QT_QPA_PLATFORM_PLUGIN_PATH=str(plugins),

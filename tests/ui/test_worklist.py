@@ -82,3 +82,23 @@ def test_triage_results_arriving_reorder_the_worklist(qtbot, window, ui_project)
     ui_project.store_triage({4: (5.0, [])})
     qtbot.waitUntil(lambda: window.worklist.ordered_ids()[0] == 4, timeout=WAIT_MS)
     assert window.frame_id == 2, "the current frame stays"
+
+
+def test_counts_of_one_read_in_the_singular(qtbot, tmp_path):
+    """A one-frame project: the Worklist says "1 frame", and the status bar counts the frame's
+    people and flags, one of them singular once the others are deleted. Synthetic project."""
+    from app.model import DeletePerson
+    from tests.ui.conftest import make_project, show_window
+
+    project = make_project(tmp_path, frames=1)
+    w = show_window(qtbot, project)
+    try:
+        assert w.worklist.count.text() == "1 frame"
+        assert w.status_people.text() == "3 people"
+        for person in project.people(1)[::2]:  # the flagged one (the second) stays
+            w.apply(DeletePerson(1, person.id))
+        qtbot.waitUntil(lambda: w.status_people.text() == "1 person", timeout=5000)
+        assert w.status_flags.text() == "flags on 1 person"
+    finally:
+        w.shutdown()
+        project.close()

@@ -1,0 +1,124 @@
+"""The people of a project: one row per person, joints as exact little-endian float64 bytes."""
+
+from __future__ import annotations
+
+import json
+from collections import Counter
+from collections.abc import Iterable, Sequence
+from typing import Any
+
+import numpy as np
+
+from app.errors import BadInput
+from app.model.labels import Person
+from app.store.db import Tx
+
+COLUMNS = "id, keypoints, scores, sources, origin, score, extra"
+#: How many rows one batch of a bulk insert sends (a streaming import writes in such batches
+#: inside one transaction).
+BATCH = 2000
+
+
+def encode_person(p: Person) -> tuple[Any, ...]:
+    """``(id, keypoints, scores, sources, origin, score, extra)`` as stored."""
+    kp = np.ascontiguousarray(p.keypoints, dtype="<f8")
+    scores = None if np.isnan(p.scores).all() else np.ascontiguousarray(p.scores, "<f8").tobytes()
+    origin = p.sources[0] if p.sources else ""
+    sources = None if all(s == origin for s in p.sources) else json.dumps(list(p.sources))
+    extra = json.dumps(dict(p.extra)) if p.extra else None
+    return (p.id, kp.tobytes(), scores, sources, origin, p.score, extra)
+
+
+def decode_person(row: Sequence[Any], num_joints: int) -> Person:
+    pid, kp_blob, scores_blob, sources, origin, score, extra = row
+    kp = np.frombuffer(bytes(kp_blob), dtype="<f8").reshape(num_joints, 3).copy()
+    if scores_blob is None:
+        scores = np.full(num_joints, np.nan)
+    else:
+        scores = np.frombuffer(bytes(scores_blob), dtype="<f8").copy()
+    src = tuple(json.loads(sources)) if sources else (origin,) * num_joints
+    return Person(pid, kp, scores, src, score, json.loads(extra) if extra else {})
+
+
+class PeopleGateway:
+    def __init__(self, tx: Tx):
+        self._tx = tx
+
+    def of_frame(self, frame_id: int, num_joints: int, lock: bool = False) -> list[Person]:
+        """The people of a frame, by id; ``lock`` keeps other writers off their rows until
+        the transaction ends (on a server)."""
+        lock_sql = " FOR UPDATE" if lock and self._tx.hosted else ""
+        rows = self._tx.rows(f"SELECT {COLUMNS} FROM people WHERE frame_id = ? ORDER BY id"
+                             + lock_sql, (int(frame_id),))
+        return [decode_person(r, num_joints) for r in rows]
+
+    def by_frame(self, num_joints: int) -> dict[int, list[Person]]:
+        """Every person grouped by frame id."""
+        out: dict[int, list[Person]] = {}
+        for row in self._tx.rows(f"SELECT frame_id, {COLUMNS} FROM people "
+                                 "ORDER BY frame_id, id"):
+            out.setdefault(row[0], []).append(decode_person(row[1:], num_joints))
+        return out
+
+    def frames_with_people(self) -> set[int]:
+        return {r[0] for r in self._tx.rows("SELECT DISTINCT frame_id FROM people")}
+
+    def count(self) -> int:
+        return int(self._tx.value("SELECT count(*) FROM people", default=0))
+
+    def existing_ids(self, ids: Iterable[int]) -> set[int]:
+        ids = [int(i) for i in ids]
+        found: set[int] = set()
+        for i in range(0, len(ids), 900):
+            chunk = ids[i:i + 900]
+            found.update(r[0] for r in self._tx.rows(
+                f"SELECT id FROM people WHERE id IN ({','.join('?' * len(chunk))})", chunk))
+        return found
+
+    def insert(self, rows: Iterable[tuple[int, Person]]) -> int:
+        """Insert people ``(frame_id, person)`` whose ids are new, in batches; returns how
+        many."""
+        return self.insert_encoded((f, *encode_person(p)) for f, p in rows)
+
+    def insert_encoded(self, rows: Iterable[Sequence[Any]]) -> int:
+        """Insert pre-encoded rows ``(frame_id, id, keypoints, scores, sources, origin, score,
+        extra)`` in batches of :data:`BATCH`; returns how many. A person id already in the
+        project is refused (:class:`~app.errors.BadInput`)."""
+        n = 0
+        batch: list[Sequence[Any]] = []
+        frames: set[int] = set()
+        for row in rows:
+            batch.append(row)
+            frames.add(int(row[0]))
+            if len(batch) == BATCH:
+                n += self._insert(batch)
+                batch = []
+        n += self._insert(batch)
+        self._tx.event("import", frames)
+        return n
+
+    def _insert(self, rows: list[Sequence[Any]]) -> int:
+        if not rows:
+            return 0
+        ids = [int(r[1]) for r in rows]
+        dup = self.existing_ids(ids) | {i for i, n in Counter(ids).items() if n > 1}
+        if dup:
+            raise BadInput(f"a person id is already in the project (id {min(dup)})")
+        self._tx.run_many(f"INSERT INTO people (frame_id, {COLUMNS}) "
+                          "VALUES (?, ?, ?, ?, ?, ?, ?, ?)", rows)
+        return len(rows)
+
+    def put(self, frame_id: int, person: Person) -> None:
+        """Write a person (new or changed)."""
+        self._tx.run(
+            f"INSERT INTO people (frame_id, {COLUMNS}) VALUES (?, ?, ?, ?, ?, ?, ?, ?) "
+            "ON CONFLICT (id) DO UPDATE SET frame_id = excluded.frame_id, "
+            "keypoints = excluded.keypoints, scores = excluded.scores, "
+            "sources = excluded.sources, origin = excluded.origin, score = excluded.score, "
+            "extra = excluded.extra", (int(frame_id), *encode_person(person)))
+
+    def delete(self, person_id: int) -> None:
+        self._tx.run("DELETE FROM people WHERE id = ?", (int(person_id),))
+
+    def rows_for_copy(self) -> list[tuple[Any, ...]]:
+        return self._tx.rows(f"SELECT frame_id, {COLUMNS} FROM people ORDER BY id")
