@@ -18,7 +18,7 @@ fix that removes three wrong joints and one correct joint helped; one that trade
 joint for a wrong one did not). A fix that only marks joints occluded changes neither count;
 it helped when the truth marks more of those joints occluded than visible.
 
-Run ``python -m app.demo.calibrate --calibrate 1-6 --measure 12-14 --cache DIR``; demos are
+Run ``python -m app.demo.calibrate --calibrate 1-8 --measure 20-22 --cache DIR``; demos are
 generated into the cache folder once (about 30 s each) and reused.
 """
 
