@@ -111,9 +111,14 @@ class AcceptFigure:
         return (self.after.correct - self.before.correct) / max(self.before.correct, 1)
 
     def __add__(self, other: AcceptFigure) -> AcceptFigure:
+        def total(a: Counter, b: Counter) -> Counter:
+            out = Counter(a)
+            out.update(b)  # unlike ``a + b``, keeps negative counts (fixes that add joints)
+            return out
+
         return AcceptFigure(f"{self.demo}+{other.demo}", self.before + other.before,
-                            self.after + other.after, self.fixes + other.fixes,
-                            self.helped + other.helped, self.removed + other.removed)
+                            self.after + other.after, total(self.fixes, other.fixes),
+                            total(self.helped, other.helped), total(self.removed, other.removed))
 
     def to_dict(self) -> dict[str, Any]:
         return {"demo": self.demo, "before": asdict(self.before), "after": asdict(self.after),
