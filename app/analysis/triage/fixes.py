@@ -423,9 +423,9 @@ def duplicates(view: FrameView) -> list[Proposal]:
                         edits.append(SetVisibility(view.frame_id, keeper, j, int(v)))
             edits.append(DeletePerson(view.frame_id, copy))
             n = view.names
-            text = (f"{n.person(copy)} is {n.person(keeper)} found twice: the same shape "
-                    f"(joints within {residual:.3f} of a body height of one shift of "
-                    f"{near:.2f}), with fewer joints or scored lower")
+            text = (f"{n.person(copy)} is {n.person(keeper)} found twice: the same pose "
+                    f"shifted by {near:.2f} of a body height (every joint within "
+                    f"{residual:.3f}), with fewer joints or lower scores")
             summary = f"delete {n.person(copy)}" + (
                 f", giving {n.person(keeper)} its {n.joints(given)}" if given else "")
             out.append(Proposal("duplicate", copy, tuple(int(j) for j in shared), text,
@@ -470,7 +470,8 @@ def splits(view: FrameView) -> list[Proposal]:
         n = view.names
         joints = tuple(np.flatnonzero(view.people[gone][:, 2] > 0).tolist())
         text = (f"{n.person(gone)} looks like the rest of {n.person(keep)}'s body: they share "
-                f"no joint and together make one plausible body (evidence {evidence:.1f})")
+                f"no joint and, joined, make one plausible body (triage's evidence against "
+                f"it: {evidence:.1f})")
         out.append(Proposal("split", gone, joints, text, strength,
                             (("union_evidence", evidence),),
                             (MergePeople(view.frame_id, keep, gone),), (keep, gone),
@@ -560,9 +561,9 @@ def mirrored_people(view: FrameView,
         strength = ramp(q, FACE_FROM, FACE_SURE) * ramp(balance, BALANCE_FROM, BALANCE_SURE) \
             * exposed
         n = view.names
-        text = (f"{n.person(p)} is labelled as facing the camera, but the model sees its face "
-                f"{q:.2f} as well as its ears and shoulders, and both sides alike: seen from "
-                "behind, with left and right swapped")
+        text = (f"{n.person(p)} is labelled as facing the camera, but the model scores its "
+                f"face only {q:.2f} times as high as its ears and shoulders, which it sees alike "
+                "on both sides: seen from behind, with left and right swapped")
         out.append(Proposal("mirrored", p, found[0].joints, text, strength,
                             (("face_ratio", q), ("side_balance", balance),
                              ("covered_joints", float(len(covered.get(p, []))))),
@@ -757,9 +758,9 @@ def wrong_owners(view: FrameView, people: Sequence[int] | None = None) -> list[P
                                 f"({joined[1]:.2f}) more than to {n.person(p)} "
                                 f"({joined[0]:.2f})")
             belong = "belongs" if len(mine) == 1 else "belong"
-            text = (f"{n.person(p)}'s {joints} {belong} to {n.person(q)}: so given, triage's "
-                    f"evidence against the two falls from {before:.1f} to {after:.1f}"
-                    + field_clause)
+            text = (f"{n.person(p)}'s {joints} {belong} to {n.person(q)}: given to "
+                    f"{n.person(q)}, triage's evidence against the two bodies falls from "
+                    f"{before:.1f} to {after:.1f}" + field_clause)
             if theirs and set(theirs) == set(mine):
                 summary = f"exchange the {joints} of {n.person(p)} and {n.person(q)}"
             else:
