@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 
 from app.model.skeleton import coco_body
-from app.review.blur import blur_heads, head_ellipses
+from app.review.blur import blur_frame, head_ellipses
 
 SK = coco_body()
 
@@ -51,15 +51,16 @@ def test_without_face_joints_the_head_sits_above_the_shoulders_away_from_the_hip
 
 def test_a_person_with_no_labelled_joint_is_counted_and_left_alone():
     img = np.random.default_rng(0).integers(0, 256, (120, 160, 3), np.uint8)
-    out, missed = blur_heads(img, [np.zeros((17, 3))], SK)
-    assert missed == 1 and np.array_equal(out, img)
+    out, plan = blur_frame(img, [np.zeros((17, 3))], SK)
+    assert plan.unplaced == 1 and np.array_equal(out, img)
 
 
 def test_only_pixels_inside_the_ellipses_change_and_fine_detail_is_gone():
     rng = np.random.default_rng(1)
     img = rng.integers(0, 256, (300, 400, 3), np.uint8)
     second = UPRIGHT + np.array([120.0, 10.0, 0.0])  # a second person to the right
-    out, missed = blur_heads(img, [UPRIGHT, second], SK)
+    out, plan = blur_frame(img, [UPRIGHT, second], SK)
+    missed = plan.unplaced
     ellipses = head_ellipses([UPRIGHT, second], SK, (400, 300))
     yy, xx = np.mgrid[:300, :400]
     inside = np.zeros((300, 400), bool)
@@ -75,6 +76,6 @@ def test_only_pixels_inside_the_ellipses_change_and_fine_detail_is_gone():
 def test_a_head_partly_outside_the_image_is_clipped():
     img = np.random.default_rng(2).integers(0, 256, (100, 100, 3), np.uint8)
     kp = _person(nose=(2, 3), left_shoulder=(20, 40), right_shoulder=(-20, 40))
-    out, _ = blur_heads(img, [kp], SK)
+    out, _ = blur_frame(img, [kp], SK)
     assert out.shape == img.shape and (out[:5, :5] != img[:5, :5]).any()
     assert np.array_equal(out[60:], img[60:])

@@ -33,7 +33,8 @@ def folder(tmp_path, image_dir, coco_file, capsys):
 def test_the_round_trip_from_the_command_line(folder, tmp_path, capsys):
     packet = tmp_path / "rehearsal.zip"
     code, out, _ = _run(capsys, "packet", "export", folder, "--frames", "100,107", "--out",
-                        packet, "--images", "blurred-heads", "--reviewer", "bea")
+                        packet, "--images", "blurred-heads", "--reviewer", "bea",
+                        "--accept-risk")
     assert code == 0 and "2 frames, 6 people, 2 images (blurred-heads)" in out
     code, out, _ = _run(capsys, "packet", "show", packet, "--json")
     assert code == 0 and json.loads(out)["frames"] == [100, 107]
@@ -71,7 +72,7 @@ def test_a_hostile_returned_packet_is_refused_in_one_line_and_nothing_changes(fo
                                                                               capsys):
     packet = tmp_path / "p.zip"
     assert _run(capsys, "packet", "export", folder, "--frames", "untouched", "--out",
-                packet)[0] == 0
+                packet, "--images", "none")[0] == 0
     assert _run(capsys, "packet", "return", packet, "--author", "bea")[0] == 0
     returned = tmp_path / "p-returned.zip"
     bad = rewrite(returned, tmp_path / "evil.zip", lambda n, d: d,
@@ -107,7 +108,8 @@ def test_bad_input_is_one_line_status_2(folder, tmp_path, capsys, argv, words):
 
 def test_an_unknown_decision_is_refused(folder, tmp_path, capsys):
     packet = tmp_path / "p.zip"
-    assert _run(capsys, "packet", "export", folder, "--frames", "100", "--out", packet)[0] == 0
+    assert _run(capsys, "packet", "export", folder, "--frames", "100", "--out", packet,
+                "--images", "none")[0] == 0
     code, _, err = _run(capsys, "packet", "decide", packet, "--frame", 100, "--decision", "meh")
     assert code == 2 and "unknown decision 'meh'" in _one_line(err)
 
