@@ -40,7 +40,8 @@ from app.model.skeleton import Skeleton
 from app.wording import count
 
 __all__ = ["MODES", "SOURCES", "BlurPlan", "Region", "blur_frame", "blur_regions",
-           "face_ellipses", "head_ellipses", "local_stature", "map_head_ellipses",
+           "face_ellipses", "head_ellipses", "label_head_ellipses", "local_stature",
+           "map_head_ellipses",
            "place_regions", "region_mask"]
 
 #: What a blurred image hides: heads, or whole people.
@@ -56,6 +57,9 @@ HALF_HEIGHT = 0.115
 #: How far above the face landmarks' mean the head's centre lies, and above the shoulders.
 FACE_LIFT = 0.02
 NECK_LIFT = 0.117
+#: Margin around the face joints an ellipse holds, as a fraction of stature (half a head's
+#: width).
+REACH_MARGIN = 0.05
 #: Shoulder width as a fraction of stature (the torso table of app.analysis.anthropometry).
 SHOULDER_WIDTH = 0.259
 #: Gaussian sigma of the blur as a fraction of stature: half the head ellipse's smaller
@@ -67,11 +71,21 @@ OWNED = 0.05
 #: Head-joint peaks this close (share of the local stature) belong to one head: any two
 #: landmarks of one head lie within about a head's width (app.analysis.anthropometry).
 SAME_HEAD = 0.12
-#: Least confidence of a map peak: the default of app.analysis.association.find_peaks, the
-#: value grouping uses too.
+#: Least confidence of a map peak that marks a head alone: the default of
+#: app.analysis.association.find_peaks, the value grouping uses too.
 PEAK_THRESHOLD = 0.1
+#: Least peak of the sum of the face joints' maps that marks a head: a network that barely
+#: sees a person still agrees with itself across channels, where the noise of one channel
+#: does not, so the sum finds faint heads that no single channel shows above
+#: :data:`PEAK_THRESHOLD` (tuned on demo seed 2, see app/demo/blurcheck.py).
+HEAD_SUM = 0.2
+#: A peak of the face sum is owned by a person with any face joint within this share of
+#: their stature (the sum peaks between a head's landmarks).
+OWNED_SUM = 0.08
 #: Stature assumed, as a share of the image height, when a frame has no labelled person.
 DEFAULT_STATURE = 0.5
+#: Widest plausible face box, as a fraction of the local stature: three heads' widths.
+MAX_FACE = 0.3
 #: Two pieces merge when the overlap of their boxes covers this share of the smaller box.
 MERGE_OVERLAP = 0.3
 #: In ``people`` mode, how far a person's region reaches beyond their joints (share of
@@ -125,8 +139,8 @@ class BlurPlan:
     """Where a frame is blurred and how far that can be trusted.
 
     ``unplaced``: labelled people with no labelled joint (nothing of the labels locates them).
-    ``unsure``: labelled people whose head the labels only guess (no face joint labelled) and
-    no other source confirms. ``maps`` and ``detector`` say whether those sources were there.
+    ``unsure``: without maps, labelled people whose head the labels only guess (no face joint
+    labelled). ``maps`` and ``detector`` say whether those sources were there.
     ``share``: the fraction of the image's pixels inside a region.
     """
 
@@ -142,8 +156,9 @@ class BlurPlan:
         """Why people may stay recognisable, in a few words, or None.
 
         Without maps, a person the labels miss is found only by the face detector, which sees
-        no face turned away or covered; the people the labels place by a guess (or not at all)
-        that the detector did not confirm are counted.
+        no face turned away or covered, so such a frame is always at risk; the people whose
+        head the labels place by a guess (or not at all) are counted. A face the detector finds
+        is blurred, but it clears no one: it may be another person's.
 
         Examples
         --------
@@ -187,12 +202,21 @@ def head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
     a labelled torso segment it is the spread of the face joints over 0.1 (a head is about
     0.1 H wide), else the larger side of the box around the labelled joints.
 
+    Face joints more than ``0.12 H`` apart are taken for two heads (a label given to a
+    neighbour, a face put on the wrong copy of a person found twice): they are gathered as
+    map peaks are (:func:`map_head_ellipses`), nose first, and the person's head is the
+    group with the most joints; :func:`label_head_ellipses` gives the others too. Within one
+    head, ``H`` is at least the group's spread over 0.1 (a torso seen side on or bowing
+    understates the scale).
+
     The head is about 0.13 H from chin to crown and 0.1 H wide (chin to crown from memory of
     Winter, "Biomechanics and Motor Control of Human Movement", Fig. 4.1, after Drillis and
     Contini 1966; the width common practice, no source). The ellipse is larger than the head,
     ``0.085 H`` by ``0.115 H`` half-axes, to cover hair and labels a few pixels off. Its centre
     is the mean of the labelled face joints lifted by ``0.02 H`` (eyes and ears lie near the
-    middle of the head, the nose a little below). With no face joint labelled, the centre is
+    middle of the head, the nose a little below), and each half-axis is widened where needed
+    to hold every face joint of the group with a margin of ``0.05 H``. With no face joint
+    labelled, the centre is
     ``0.117 H`` from the middle of the shoulders (shoulders at 0.818 H, the head's middle at
     about 0.935 H, Winter Fig. 4.1 from memory), perpendicular to the shoulder line, on the
     side away from the hips (image up when the hips are unlabeled); with one shoulder, straight
@@ -207,12 +231,32 @@ def head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
     >>> head_ellipses([kp], coco_body(), (640, 480)).round(1)
     array([[100.,  46.,  17.,  23.]])
     """
-    w, h = image_size
-    floor = _floor((w, h))
+    return label_head_ellipses(people, skeleton, image_size)[0]
+
+
+def label_head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
+                        image_size: tuple[int, int]
+                        ) -> tuple[np.ndarray, list[tuple[int, np.ndarray]]]:
+    """Every head the labels show: each person's (:func:`head_ellipses`), and the other heads
+    their face joints lie on, as ``(person index, ellipse)`` pairs.
+
+    Examples
+    --------
+    >>> from app.model.skeleton import coco_body
+    >>> kp = np.zeros((17, 3))
+    >>> kp[[0, 1, 2], :] = [[100, 50, 2], [95, 45, 2], [105, 45, 2]]    # a face
+    >>> kp[[3], :] = [[200, 48, 2]]                                     # an ear of another
+    >>> kp[[5, 6], :] = [[74.1, 90, 2], [125.9, 90, 2]]                 # H = 200
+    >>> main, extra = label_head_ellipses([kp], coco_body(), (640, 480))
+    >>> main.round(1), [(n, e.round(1)) for n, e in extra]
+    (array([[100. ,  42.7,  17. ,  23. ]]), [(0, array([200.,  44.,  17.,  23.]))])
+    """
+    floor = _floor(image_size)
     face = _indices(skeleton, FACE_JOINTS)
     shoulders = _indices(skeleton, ("left_shoulder", "right_shoulder"))
     hips = _indices(skeleton, ("left_hip", "right_hip"))
     out = np.full((len(people), 4), np.nan)
+    extra: list[tuple[int, np.ndarray]] = []
     for n, person in enumerate(people):
         kp = np.asarray(person, dtype=np.float64)
         on = _labelled(kp)
@@ -222,14 +266,31 @@ def head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
         face_on = [j for j in face if on[j]]
         shoulders_on = [j for j in shoulders if on[j]]
         if face_on:
-            centre = kp[face_on, :2].mean(axis=0) - [0.0, FACE_LIFT * stature]
-        elif shoulders_on:
+            xy = kp[face_on, :2]
+            groups = _heads(xy, -np.arange(len(xy), dtype=np.float64),
+                            np.full(len(xy), SAME_HEAD * stature))
+            groups.sort(key=len, reverse=True)  # stable: of equal groups, the nose's first
+            ellipses = [_group_ellipse(xy[g], stature, floor) for g in groups]
+            out[n] = ellipses[0]
+            extra += [(n, e) for e in ellipses[1:]]
+            continue
+        if shoulders_on:
             centre = _above_shoulders(kp, shoulders_on, [j for j in hips if on[j]], stature)
         else:
             xy = kp[on, :2]
             centre = np.array([xy[:, 0].mean(), xy[:, 1].min() - NECK_LIFT * stature])
         out[n] = (*centre, max(floor, HALF_WIDTH * stature), max(floor, HALF_HEIGHT * stature))
-    return out
+    return out, extra
+
+
+def _group_ellipse(xy: np.ndarray, stature: float, floor: float) -> np.ndarray:
+    """The ellipse of one head from its landmarks (see :func:`head_ellipses`)."""
+    if len(xy) >= 2:
+        stature = max(stature, float(np.ptp(xy, axis=0).max()) / 0.1)
+    centre = xy.mean(axis=0) - [0.0, FACE_LIFT * stature]
+    reach = np.abs(xy - centre).max(axis=0) + REACH_MARGIN * stature
+    return np.array([*centre, max(floor, HALF_WIDTH * stature, reach[0]),
+                     max(floor, HALF_HEIGHT * stature, reach[1])])
 
 
 def _floor(size: tuple[int, int]) -> float:
@@ -302,9 +363,12 @@ def local_stature(points: np.ndarray, centres: np.ndarray, statures: np.ndarray,
 
     Notes
     -----
-    Near people: the median stature of the people whose head lies within 1.5 of their own
-    stature of the point. Else the floor: people stand on one floor, and in a perspective view
-    of it a person's image size grows linearly with how far down the image they stand (for a
+    Near people: distances are counted in the statures of the people they lead to; the
+    median stature of the people whose head lies within 1.5 of those statures of the point,
+    and no farther than half a stature or 1.5 times the nearest one's distance (so a large
+    person two bodies away does not size the head beside a small one). Else the floor:
+    people stand on one floor, and in a perspective view of it a person's image size grows
+    linearly with how far down the image they stand (for a
     level camera, ``H_image = f H / Z`` and ``y - y_horizon = f h_camera / Z``, so both are
     proportional to ``1 / Z``); a straight line fitted to stature against head height over the
     frame's people (at least three, spread over a tenth of the image height), clipped to half
@@ -330,17 +394,19 @@ def local_stature(points: np.ndarray, centres: np.ndarray, statures: np.ndarray,
     if len(s) >= 3 and np.ptp(c[:, 1]) >= 0.1 * image_size[1]:
         fit = np.polyfit(c[:, 1], s, 1)
     d = np.hypot(points[:, None, 0] - c[None, :, 0], points[:, None, 1] - c[None, :, 1])
-    near = d <= 1.5 * s[None, :]
+    r = d / s[None, :]
     for i in range(len(points)):
-        if near[i].any():
-            out[i] = np.median(s[near[i]])
+        near = r[i] <= min(1.5, max(0.5, 1.5 * r[i].min()))
+        if near.any():
+            out[i] = np.median(s[near])
         elif fit is not None:
             out[i] = np.clip(np.polyval(fit, points[i, 1]), 0.5 * s.min(), 2.0 * s.max())
     return out
 
 
 def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
-                      skeleton: Skeleton, image_size: tuple[int, int]) -> np.ndarray:
+                      skeleton: Skeleton, image_size: tuple[int, int],
+                      head_peaks: np.ndarray | None = None) -> np.ndarray:
     """Heads the network sees that no labelled person owns, as ellipses.
 
     Parameters
@@ -354,6 +420,9 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
         The joint layout.
     image_size
         ``(width, height)``.
+    head_peaks
+        ``(n, 3)`` ``x, y, score``: peaks of the sum of the face joints' confidence maps
+        above :data:`HEAD_SUM`, or None.
 
     Returns
     -------
@@ -363,12 +432,15 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
     Notes
     -----
     A peak of a face joint (nose, eyes, ears) is owned when a labelled person has that joint
-    within ``0.05 H`` of it (H the person's stature, half a head's width). Unowned peaks
-    closer than ``0.12 H`` (H the local stature, :func:`local_stature`) are one head: any two
-    landmarks of a head lie within about a head's width. Each head gets the ellipse the labels
+    within ``0.05 H`` of it (H the person's stature, half a head's width); a peak of the face
+    sum when any labelled face joint lies within ``0.08 H``. Unowned peaks are gathered into
+    heads, strongest first: a peak joins the first head whose first peak lies within
+    ``0.12 H`` of it (H the local stature, :func:`local_stature`; any two landmarks of a head
+    lie within about a head's width), else starts a head of its own, so a head never reaches
+    along a chain of peaks. Each head gets the ellipse the labels
     would give it (:func:`head_ellipses`: centre the peaks' mean lifted by ``0.02 H``,
-    half-axes ``0.085 H`` and ``0.115 H``), widened to hold every peak with a margin of
-    ``0.05 H``.
+    half-axes ``0.085 H`` and ``0.115 H``, widened to hold every peak with a margin of
+    ``0.05 H``).
 
     Examples
     --------
@@ -379,11 +451,14 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
     array([[300. , 115.2,  20.4,  27.6]])
     """
     face = _indices(skeleton, FACE_JOINTS)
-    found = [(j, p) for j in face for p in np.asarray(peaks[j]).reshape(-1, 3)[:, :2]]
+    found = [(j, p) for j in face for p in np.asarray(peaks[j]).reshape(-1, 3)]
+    if head_peaks is not None:
+        found += [(-1, p) for p in np.asarray(head_peaks).reshape(-1, 3)]
     if not found:
         return np.zeros((0, 4))
     kinds = np.array([j for j, _ in found])
-    xy = np.array([p for _, p in found])
+    xy = np.array([p[:2] for _, p in found])
+    score = np.array([p[2] for _, p in found])
     centres, statures = _people_scale(people, skeleton, image_size)
     owned = np.zeros(len(xy), dtype=bool)
     for person, stature in zip(people, statures):
@@ -391,23 +466,22 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
         on = _labelled(kp)
         if not np.isfinite(stature) or stature <= 0:
             continue
+        face_xy = kp[[j for j in face if on[j]], :2].reshape(-1, 2)
         for i, j in enumerate(kinds):
-            if on[j] and np.hypot(*(kp[j, :2] - xy[i])) <= OWNED * stature:
+            if j < 0:
+                owned[i] |= bool(len(face_xy)) and bool(
+                    (np.hypot(*(face_xy - xy[i]).T) <= OWNED_SUM * stature).any())
+            elif on[j] and np.hypot(*(kp[j, :2] - xy[i])) <= OWNED * stature:
                 owned[i] = True
-    xy = xy[~owned]
+    xy, score = xy[~owned], score[~owned]
     if not len(xy):
         return np.zeros((0, 4))
     scale = local_stature(xy, centres, statures, image_size)
-    heads = _components(xy, SAME_HEAD * scale)
     floor = _floor(image_size)
     out = []
-    for members in heads:
-        pts, s = xy[members], float(np.median(scale[members]))
-        centre = pts.mean(axis=0) - [0.0, FACE_LIFT * s]
-        reach = np.abs(pts - centre).max(axis=0) + 0.05 * s
-        out.append((*centre, max(floor, HALF_WIDTH * s, reach[0]),
-                    max(floor, HALF_HEIGHT * s, reach[1])))
-    return np.array(out, dtype=np.float64)
+    for members in _heads(xy, score, SAME_HEAD * scale):
+        out.append(_group_ellipse(xy[members], float(np.median(scale[members])), floor))
+    return np.array(out, dtype=np.float64).reshape(-1, 4)
 
 
 def _people_scale(people: Sequence[np.ndarray], skeleton: Skeleton,
@@ -424,18 +498,20 @@ def _people_scale(people: Sequence[np.ndarray], skeleton: Skeleton,
     return centres, statures
 
 
-def _components(xy: np.ndarray, reach: np.ndarray) -> list[np.ndarray]:
-    """Groups of points joined by links shorter than the mean of their two reaches."""
-    n = len(xy)
-    d = np.hypot(xy[:, None, 0] - xy[None, :, 0], xy[:, None, 1] - xy[None, :, 1])
-    linked = d <= (reach[:, None] + reach[None, :]) / 2
-    label = np.arange(n)
-    changed = True
-    while changed:  # label propagation: each point takes the smallest label it links to
-        new = np.where(linked, label[None, :], n).min(axis=1)
-        changed = bool((new != label).any())
-        label = new
-    return [np.flatnonzero(label == k) for k in np.unique(label)]
+def _heads(xy: np.ndarray, score: np.ndarray, reach: np.ndarray) -> list[np.ndarray]:
+    """Peaks gathered strongest first around the strongest peak of each head (no chains: a
+    head never reaches past ``reach`` of its first peak)."""
+    seeds: list[int] = []
+    members: list[list[int]] = []
+    for i in np.argsort(-score, kind="stable"):
+        for k, seed in enumerate(seeds):
+            if np.hypot(*(xy[i] - xy[seed])) <= reach[seed]:
+                members[k].append(int(i))
+                break
+        else:
+            seeds.append(int(i))
+            members.append([int(i)])
+    return [np.array(m) for m in members]
 
 
 # ---------------------------------------------------------------------- heads from faces
@@ -463,7 +539,7 @@ def face_ellipses(boxes: np.ndarray) -> np.ndarray:
     Examples
     --------
     >>> face_ellipses(np.array([[100.0, 50.0, 40.0, 40.0]]))
-    array([[120., 66.,  30., 38.]])
+    array([[120.,  66.,  30.,  38.]])
     """
     b = np.asarray(boxes, dtype=np.float64).reshape(-1, 4)
     return np.column_stack([b[:, 0] + b[:, 2] / 2, b[:, 1] + 0.4 * b[:, 3],
@@ -549,6 +625,7 @@ def _merge(pieces: Sequence[_Piece]) -> tuple[Region, ...]:
 def place_regions(people: Sequence[np.ndarray], skeleton: Skeleton,
                   image_size: tuple[int, int], *, ids: Sequence[int] | None = None,
                   peaks: Sequence[np.ndarray] | None = None,
+                  head_peaks: np.ndarray | None = None,
                   map_people: Sequence[np.ndarray] | None = None,
                   faces: np.ndarray | None = None, mode: str = "heads") -> BlurPlan:
     """Where to blur a frame, from every source of evidence.
@@ -566,6 +643,8 @@ def place_regions(people: Sequence[np.ndarray], skeleton: Skeleton,
     peaks
         The frame's confidence-map peaks per joint, image pixels
         (:func:`app.analysis.association.find_peaks`); None when the frame has no maps.
+    head_peaks
+        Peaks of the sum of the face joints' maps (see :func:`map_head_ellipses`).
     map_people
         The people the maps group into (:func:`app.analysis.association.group_people`),
         ``(K, 3)`` ``x, y, score`` with NaN for a missing joint; read in ``people`` mode.
@@ -590,15 +669,17 @@ def place_regions(people: Sequence[np.ndarray], skeleton: Skeleton,
     heads tall, common practice, no source). A person's region is blurred with
     :data:`SIGMA` of their stature.
 
-    A labelled person whose head the labels place by a guess (no face joint labelled) is
-    confirmed when the maps are there or a face's centre lies in the guessed ellipse; those
-    confirmed by nothing are counted in :attr:`BlurPlan.unsure`.
+    A face box wider than :data:`MAX_FACE` of the local stature (:func:`local_stature`, when
+    any labelled person gives a scale) is taken for a false detection and dropped.
+
+    Without maps, a labelled person whose head the labels place by a guess (no face joint
+    labelled) is counted in :attr:`BlurPlan.unsure`.
     """
     if mode not in MODES:
         raise ValueError(f"mode {mode!r} is not one of {MODES}")
     w, h = image_size
     ids = list(range(len(people))) if ids is None else list(ids)
-    heads = head_ellipses(people, skeleton, image_size)
+    heads, extra_heads = label_head_ellipses(people, skeleton, image_size)
     _, statures = _people_scale(people, skeleton, image_size)
     face = _indices(skeleton, FACE_JOINTS)
     pieces: list[_Piece] = []
@@ -611,9 +692,7 @@ def place_regions(people: Sequence[np.ndarray], skeleton: Skeleton,
             unplaced += 1
             continue
         if peaks is None and not _labelled(kp)[face].any():
-            inside = ((face_heads[:, 0] - head[0]) / head[2]) ** 2 \
-                + ((face_heads[:, 1] - head[1]) / head[3]) ** 2 <= 1
-            unsure += int(not inside.any())
+            unsure += 1
         if mode == "heads":
             pieces.append(_Piece(head, None, min(head[2], head[3]) / 2, "labels", ids[n]))
         else:
@@ -621,8 +700,10 @@ def place_regions(people: Sequence[np.ndarray], skeleton: Skeleton,
             polygon = _body_polygon(kp, head, stature)
             if polygon is not None:
                 pieces.append(_Piece(None, polygon, SIGMA * stature, "labels", ids[n]))
+    for n, e in extra_heads:
+        pieces.append(_Piece(e, None, min(e[2], e[3]) / 2, "labels", ids[n]))
     if peaks is not None:
-        for e in map_head_ellipses(peaks, people, skeleton, image_size):
+        for e in map_head_ellipses(peaks, people, skeleton, image_size, head_peaks):
             pieces.append(_Piece(e, None, min(e[2], e[3]) / 2, "maps", None))
         if mode == "people":
             for kp in map_people or ():
@@ -636,8 +717,12 @@ def place_regions(people: Sequence[np.ndarray], skeleton: Skeleton,
                 polygon = _body_polygon(as_labels, head, stature)
                 if polygon is not None:
                     pieces.append(_Piece(None, polygon, SIGMA * stature, "maps", None))
-    for box, e in zip(np.asarray(faces if faces is not None else np.zeros((0, 4))).reshape(-1, 4),
-                      face_heads):
+    boxes = np.asarray(faces if faces is not None else np.zeros((0, 4))).reshape(-1, 4)
+    if len(boxes) and np.isfinite(statures).any():
+        expected = local_stature(face_heads[:, :2], heads[:, :2], statures, image_size)
+        plausible = boxes[:, 2] <= MAX_FACE * expected
+        boxes, face_heads = boxes[plausible], face_heads[plausible]
+    for box, e in zip(boxes, face_heads):
         pieces.append(_Piece(e, None, min(e[2], e[3]) / 2, "detector", None))
         if mode == "people":
             x, y, bw, bh = box
@@ -778,8 +863,10 @@ def blur_frame(image: np.ndarray, people: Sequence[np.ndarray], skeleton: Skelet
 
     Notes
     -----
-    Peaks are found at :data:`PEAK_THRESHOLD`; in ``people`` mode the maps are also grouped
-    into people (:func:`app.analysis.association.group_people`, its defaults). The detector
+    Peaks are found above :data:`PEAK_THRESHOLD` in each map and above :data:`HEAD_SUM` in
+    the sum of the face joints' maps (:func:`map_head_ellipses`); in ``people`` mode the
+    maps are also grouped into people (:func:`app.analysis.association.group_people`, its
+    defaults). The detector
     looks for faces down to 2 % of the image's shorter side (at least 12 pixels).
 
     Examples
@@ -794,14 +881,17 @@ def blur_frame(image: np.ndarray, people: Sequence[np.ndarray], skeleton: Skelet
     from app.analysis.association import find_peaks, group_people
 
     h, w = image.shape[:2]
-    peaks = map_people = faces = None
+    peaks = head_peaks = map_people = faces = None
     if maps is not None:
         peaks = find_peaks(maps.confidence_maps, PEAK_THRESHOLD, maps.stride)
+        face = _indices(skeleton, FACE_JOINTS)
+        head_peaks = find_peaks(maps.confidence_maps[face].sum(axis=0)[None], HEAD_SUM,
+                                maps.stride)[0]
         if mode == "people":
             map_people = group_people(maps.confidence_maps, maps.pafs, skeleton.limb_array,
                                       stride=maps.stride)
     if detector is not None:
         faces = detector(image, max(12, int(0.02 * min(w, h))))
     plan = place_regions(people, skeleton, (w, h), ids=ids, peaks=peaks,
-                         map_people=map_people, faces=faces, mode=mode)
+                         head_peaks=head_peaks, map_people=map_people, faces=faces, mode=mode)
     return blur_regions(image, plan.regions), plan

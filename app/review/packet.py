@@ -85,7 +85,7 @@ from app.model.records import FrameDecision, PacketRecord
 from app.model.skeleton import Skeleton, skeleton_from_dict
 from app.progress import Progress
 from app.review import DEFAULT_IMAGES, IMAGE_MODES, safezip
-from app.review.blur import SOURCES, BlurPlan, blur_frame
+from app.review.blur import SOURCES, BlurPlan, blur_frame, place_regions
 from app.review.faces import face_detector
 from app.safetext import check_name, name_problem
 from app.store import Project
@@ -566,9 +566,10 @@ def blur_risks(project: Project, frames: Sequence[Frame], images: str = DEFAULT_
 
     A frame is at risk when it has no network maps (see :meth:`app.review.blur.BlurPlan.risk`):
     its labels may miss people, and only the face detector looks for them. Frames whose image
-    cannot travel are left out. :func:`export_packet` refuses a blurred packet with such
-    frames unless told to accept the risk; the command line and the app's send dialog show
-    these lines first.
+    is registered unreadable are left out. The lines come from the labels and the project's
+    record of maps alone (no image is decoded), so the command line and the app's send dialog
+    show them before anything is written; :func:`export_packet` refuses a blurred packet with
+    such frames unless told to accept the risk.
     """
     if images not in BLUR_MODES:
         return []
@@ -576,12 +577,11 @@ def blur_risks(project: Project, frames: Sequence[Frame], images: str = DEFAULT_
     lines = []
     for n, frame in enumerate(frames):
         progress.step(n, len(frames), "looking for people the blur may miss")
-        if frame.status != "ok" or _frame_maps(project, frame) is not None:
+        if frame.status != "ok" or project.maps_path(frame.id) is not None:
             continue
-        source = _image_source(project, frame)
-        if isinstance(source, _Unsent):
-            continue
-        plan = _blur(project, frame, source[1], images)[1]
+        people = list(project.labels(frame.id).people.values())
+        plan = place_regions([p.keypoints for p in people], project.skeleton,
+                             (frame.width, frame.height), mode=BLUR_MODES[images])
         risk = plan.risk()
         if risk:
             lines.append(f"frame {frame.id}: {risk}")
