@@ -71,6 +71,8 @@ OWNED = 0.05
 #: Head-joint peaks this close (share of the local stature) belong to one head: any two
 #: landmarks of one head lie within about a head's width (app.analysis.anthropometry).
 SAME_HEAD = 0.12
+#: Face joints of one person this far apart (share of their stature) lie on two heads.
+OTHER_HEAD = 0.2
 #: Least confidence of a map peak that marks a head alone: the default of
 #: app.analysis.association.find_peaks, the value grouping uses too.
 PEAK_THRESHOLD = 0.1
@@ -202,12 +204,15 @@ def head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
     a labelled torso segment it is the spread of the face joints over 0.1 (a head is about
     0.1 H wide), else the larger side of the box around the labelled joints.
 
-    Face joints more than ``0.12 H`` apart are taken for two heads (a label given to a
-    neighbour, a face put on the wrong copy of a person found twice): they are gathered as
-    map peaks are (:func:`map_head_ellipses`), nose first, and the person's head is the
-    group with the most joints; :func:`label_head_ellipses` gives the others too. Within one
-    head, ``H`` is at least the group's spread over 0.1 (a torso seen side on or bowing
-    understates the scale).
+    Face joints more than ``0.2 H`` apart are taken for two heads (a label given to a
+    neighbour, a face put on the wrong copy of a person found twice; two heads side by side
+    are about a shoulder width, 0.26 H, apart, while one head's landmarks lie within 0.1 H
+    and a torso seen side on understates H): they are gathered as map peaks are
+    (:func:`map_head_ellipses`), nose first, and the person's head is the group with the most
+    joints; :func:`label_head_ellipses` gives the others too. Within one
+    head, ``H`` is raised to the group's spread over 0.1, by at most half (a torso seen side
+    on or bowing understates the scale; a wide spread is also a sign of wrong joints, which
+    the held landmarks cover anyway).
 
     The head is about 0.13 H from chin to crown and 0.1 H wide (chin to crown from memory of
     Winter, "Biomechanics and Motor Control of Human Movement", Fig. 4.1, after Drillis and
@@ -268,7 +273,7 @@ def label_head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
         if face_on:
             xy = kp[face_on, :2]
             groups = _heads(xy, -np.arange(len(xy), dtype=np.float64),
-                            np.full(len(xy), SAME_HEAD * stature))
+                            np.full(len(xy), OTHER_HEAD * stature))
             groups.sort(key=len, reverse=True)  # stable: of equal groups, the nose's first
             ellipses = [_group_ellipse(xy[g], stature, floor) for g in groups]
             out[n] = ellipses[0]
@@ -286,7 +291,7 @@ def label_head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
 def _group_ellipse(xy: np.ndarray, stature: float, floor: float) -> np.ndarray:
     """The ellipse of one head from its landmarks (see :func:`head_ellipses`)."""
     if len(xy) >= 2:
-        stature = max(stature, float(np.ptp(xy, axis=0).max()) / 0.1)
+        stature = max(stature, min(float(np.ptp(xy, axis=0).max()) / 0.1, 1.5 * stature))
     centre = xy.mean(axis=0) - [0.0, FACE_LIFT * stature]
     reach = np.abs(xy - centre).max(axis=0) + REACH_MARGIN * stature
     return np.array([*centre, max(floor, HALF_WIDTH * stature, reach[0]),
@@ -533,17 +538,17 @@ def face_ellipses(boxes: np.ndarray) -> np.ndarray:
     -----
     A frontal cascade's box spans about brows to chin and cheek to cheek (common practice, no
     source); the head reaches past it to the crown, the hair and the ears. The ellipse is
-    centred a tenth of the box above its centre with half-axes 0.75 of the box's width and
-    0.95 of its height, so the box's corners lie inside it.
+    centred a tenth of the box above its centre with half-axes 0.6 of the box's width and
+    0.75 of its height: a head 1.2 boxes wide and 1.5 boxes tall.
 
     Examples
     --------
     >>> face_ellipses(np.array([[100.0, 50.0, 40.0, 40.0]]))
-    array([[120.,  66.,  30.,  38.]])
+    array([[120.,  66.,  24.,  30.]])
     """
     b = np.asarray(boxes, dtype=np.float64).reshape(-1, 4)
     return np.column_stack([b[:, 0] + b[:, 2] / 2, b[:, 1] + 0.4 * b[:, 3],
-                            0.75 * b[:, 2], 0.95 * b[:, 3]])
+                            0.6 * b[:, 2], 0.75 * b[:, 3]])
 
 
 # ---------------------------------------------------------------------- whole people
