@@ -132,7 +132,7 @@ class BlurFigures:
 
 
 def measure_demo(folder: str | Path, images: str = "blurred-heads",
-                 work: str | Path | None = None) -> BlurFigures:
+                 packet: str | Path | None = None) -> BlurFigures:
     """Export a packet of every frame of a demo and measure its images against the truth.
 
     Parameters
@@ -141,8 +141,8 @@ def measure_demo(folder: str | Path, images: str = "blurred-heads",
         A generated demo (``posewright demo DIR``); its project is built when missing.
     images
         ``blurred-heads`` or ``blurred-people``.
-    work
-        Where the packet is written (default: a temporary folder).
+    packet
+        Where the packet is written and kept (default: a temporary file, removed).
     """
     from app.formats.images import read_image
     from app.jobs import open_project
@@ -160,8 +160,8 @@ def measure_demo(folder: str | Path, images: str = "blurred-heads",
     heads = blurred = 0
     least = 1.0
     shares, missed = [], []
-    with tempfile.TemporaryDirectory(dir=work) as tmp:
-        packet = Path(tmp) / "packet.zip"
+    with tempfile.TemporaryDirectory() as tmp:
+        packet = Path(packet) if packet is not None else Path(tmp) / "packet.zip"
         with open_project(folder) as project:
             frames = project.frames()
             export_packet(project, packet, frames, images=images)
