@@ -91,8 +91,9 @@ MAX_FACE = 0.3
 #: Two pieces merge when the overlap of their boxes covers this share of the smaller box.
 MERGE_OVERLAP = 0.3
 #: In ``people`` mode, how far a person's region reaches beyond their joints (share of
-#: stature): about half the width of a torso seen side on, more than half of a limb's.
-BODY_MARGIN = 0.07
+#: stature): more than half a torso's width, and clothes and feet reach past the joints (a
+#: skirt's hem, a coat, the foot beyond the ankle).
+BODY_MARGIN = 0.1
 
 
 # ---------------------------------------------------------------------- what is blurred
