@@ -78,7 +78,9 @@ def register(sub: Any, command: Command) -> None:
                         "warning)")
     q.add_argument("--reviewer", metavar="NAME", help="who is to review")
 
-    q = action("show", cmd_show, "check a packet and say what it holds")
+    q = action("show", cmd_show, "check a packet and say what it holds (for blurred images: "
+                                 "regions by what placed them, the largest share of a frame "
+                                 "blurred, frames sent at risk)")
     q.add_argument("packet", metavar="FILE.zip")
     q.add_argument("--json", action="store_true")
 
@@ -170,6 +172,18 @@ def cmd_show(args: argparse.Namespace) -> int:
         "images": packet.images, "frames": [f.id for f in packet.frames],
         "people": sum(len(c.people) for c in packet.base.values()),
     }
+    blurs = [f["blur"] for f in packet.manifest.get("frames", []) if f.get("blur")]
+    if blurs:
+        placed = {"labels": 0, "maps": 0, "detector": 0}
+        for blur in blurs:
+            for region in blur["regions"]:
+                for source in region["sources"]:
+                    placed[source] += 1
+        info["blurred_regions"] = placed
+        info["blurred_share"] = round(max(b["share"] for b in blurs), 4)
+        info["blur_risks"] = [f"frame {f['id']}: {f['blur']['risk']}"
+                              for f in packet.manifest["frames"]
+                              if f.get("blur") and f["blur"]["risk"]]
     if packet.returned is not None:
         info["returned_by"] = packet.returned.reviewer
         info["decisions"] = {str(d.frame_id): d.decision

@@ -68,6 +68,29 @@ def _one_line(err: str) -> str:
     return lines[0]
 
 
+def test_blurred_images_of_frames_without_maps_need_the_risk_accepted(folder, tmp_path, capsys):
+    """Issue 17: without maps only the face detector looks for people the labels miss; one
+    line per frame, then a refusal that writes nothing, unless --accept-risk."""
+    packet = tmp_path / "p.zip"
+    code, _, err = _run(capsys, "packet", "export", folder, "--frames", "100,107", "--out",
+                        packet, "-q")
+    lines = err.strip().splitlines()
+    assert code == 2 and not packet.exists() and len(lines) == 3
+    assert lines[:2] == [f"posewright: warning: frame {f}: people the labels miss may be "
+                         "unblurred: no maps" for f in (100, 107)]
+    assert "2 frames may show people unblurred; nothing written" in lines[2]
+    assert "--accept-risk" in lines[2]
+    code, _, err = _run(capsys, "packet", "export", folder, "--frames", "100", "--out", packet,
+                        "--images", "blurred-people", "--accept-risk", "-q")
+    assert code == 0 and "frame 100: people the labels miss" in err
+    code, out, _ = _run(capsys, "packet", "show", packet, "--json")
+    info = json.loads(out)
+    assert code == 0 and info["images"] == "blurred-people"
+    assert info["blurred_regions"]["labels"] >= 1 and info["blurred_regions"]["maps"] == 0
+    assert info["blur_risks"] == ["frame 100: people the labels miss may be unblurred: no maps"]
+    assert 0 < info["blurred_share"] < 1
+
+
 def test_a_hostile_returned_packet_is_refused_in_one_line_and_nothing_changes(folder, tmp_path,
                                                                               capsys):
     packet = tmp_path / "p.zip"
