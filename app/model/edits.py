@@ -7,7 +7,7 @@ every edit can invert itself (the command pattern). The store writes the same ch
 append-only ledger, which is why undo survives a restart.
 
 Targets are small typed values (:mod:`app.model.targets`): :class:`PersonTarget`,
-:class:`JointTarget`, :class:`StateTarget`, :class:`NoteTarget`, :class:`RegionTarget`,
+:class:`JointTarget`, :class:`TrackTarget`, :class:`StateTarget`, :class:`NoteTarget`, :class:`RegionTarget`,
 :class:`KeptTarget` and :class:`DismissalTarget`; that module says which value each carries.
 
 Edits are refused with :class:`~app.errors.EditRefused` (and nothing changes) when they would
@@ -35,9 +35,10 @@ from app.model.targets import (
     RegionTarget,
     StateTarget,
     Target,
+    TrackTarget,
 )
 
-TARGET_TYPES = (PersonTarget, JointTarget, StateTarget, NoteTarget, RegionTarget, KeptTarget,
+TARGET_TYPES = (PersonTarget, JointTarget, TrackTarget, StateTarget, NoteTarget, RegionTarget, KeptTarget,
                 DismissalTarget, RecordTarget)
 
 
@@ -77,6 +78,8 @@ def _current(labels: FrameLabels, target: Target) -> Any:
         return None if p is None else p.to_value()
     if isinstance(target, JointTarget):
         return labels.person(target.person).joint_value(target.joint)
+    if isinstance(target, TrackTarget):
+        return labels.person(target.person).track_value()
     if isinstance(target, StateTarget):
         return labels.state.value
     if isinstance(target, NoteTarget):
@@ -122,6 +125,10 @@ def apply_changes(labels: FrameLabels, changes: Iterable[Change]) -> FrameLabels
             if t.person not in people:
                 raise EditRefused(f"frame {labels.frame_id} has no person {t.person}")
             people[t.person] = people[t.person].with_joint(t.joint, ch.after)
+        elif isinstance(t, TrackTarget):
+            if t.person not in people:
+                raise EditRefused(f"frame {labels.frame_id} has no person {t.person}")
+            people[t.person] = people[t.person].with_track(ch.after)
         elif isinstance(t, StateTarget):
             state = FrameState(ch.after)
         elif isinstance(t, NoteTarget):
@@ -413,6 +420,37 @@ class SwapSides(Edit):
 
     def summary(self) -> str:
         return f"swap left and right of person {self.person_id}"
+
+
+@dataclass(frozen=True)
+class SetTrack(Edit):
+    """Put a person on a track (``track`` None takes them off every track).
+
+    Tracks say who is who across the frames of a sequence; joining two tracks or splitting
+    one is a batch of these over the frames concerned (:mod:`app.model.tracks`). A track set
+    here is credited to the author, and linking again keeps it. Tracks are not what training
+    sees, so setting one does not mark the frame corrected.
+    """
+
+    frame_id: int
+    person_id: int
+    track: int | None
+    changes_labels: ClassVar[bool] = False
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        p = labels.person(self.person_id)
+        if self.track is not None and int(self.track) < 1:
+            raise EditRefused(f"track {self.track} is not a track id (1 or more)")
+        after = [None if self.track is None else int(self.track),
+                 "" if self.track is None else ctx.author]
+        if same_value(p.track_value(), after):
+            return []
+        return [Change(TrackTarget(p.id), p.track_value(), after)]
+
+    def summary(self) -> str:
+        if self.track is None:
+            return f"take person {self.person_id} off their track"
+        return f"put person {self.person_id} on track {self.track}"
 
 
 @dataclass(frozen=True)
@@ -746,7 +784,7 @@ def _plain(value: Any) -> Any:
 
 _SERIALISABLE.update({cls.__name__: cls for cls in (
     MoveJoint, SetVisibility, ReassignJoint, NewPerson, DeletePerson, MergePeople,
-    SplitPerson, SwapSides, SetFrameState, DismissFinding, EditGroup)})
+    SplitPerson, SwapSides, SetTrack, SetFrameState, DismissFinding, EditGroup)})
 
 
 def labels_changed(changes: Sequence[Change]) -> bool:
