@@ -7,8 +7,9 @@ every edit can invert itself (the command pattern). The store writes the same ch
 append-only ledger, which is why undo survives a restart.
 
 Targets are small typed values (:mod:`app.model.targets`): :class:`PersonTarget`,
-:class:`JointTarget`, :class:`TrackTarget`, :class:`StateTarget`, :class:`NoteTarget`, :class:`RegionTarget`,
-:class:`KeptTarget` and :class:`DismissalTarget`; that module says which value each carries.
+:class:`JointTarget`, :class:`TrackTarget`, :class:`StateTarget`, :class:`NoteTarget`,
+:class:`RegionTarget`, :class:`KeptTarget` and :class:`DismissalTarget`; that module says
+which value each carries.
 
 Edits are refused with :class:`~app.errors.EditRefused` (and nothing changes) when they would
 make the labels inconsistent; the message says why and what to do.
@@ -38,8 +39,8 @@ from app.model.targets import (
     TrackTarget,
 )
 
-TARGET_TYPES = (PersonTarget, JointTarget, TrackTarget, StateTarget, NoteTarget, RegionTarget, KeptTarget,
-                DismissalTarget, RecordTarget)
+TARGET_TYPES = (PersonTarget, JointTarget, TrackTarget, StateTarget, NoteTarget, RegionTarget,
+                KeptTarget, DismissalTarget, RecordTarget)
 
 
 @dataclass(frozen=True)

@@ -9,8 +9,8 @@ FOLDER``), and their frames are never linked.
 Examples
 --------
 >>> from app.model.labels import Frame
->>> frames = [Frame(1, "img/a/f10.jpg", "a/f10.jpg", 9, 9), Frame(2, "img/a/f2.jpg", "a/f2.jpg", 9, 9),
-...           Frame(3, "img/b/x.jpg", "b/x.jpg", 9, 9)]
+>>> frames = [Frame(1, "img/a/f10.jpg", "a/f10.jpg", 9, 9),
+...           Frame(2, "img/a/f2.jpg", "a/f2.jpg", 9, 9), Frame(3, "img/b/x.jpg", "b/x.jpg", 9, 9)]
 >>> [(s.key, s.frame_ids) for s in sequences(frames)]
 [('a', (2, 1)), ('b', (3,))]
 >>> [(s.key, s.frame_ids) for s in sequences(frames, not_sequences={"a"})]

@@ -138,8 +138,8 @@ class RecordTarget:
         return self.what
 
 
-Target = (PersonTarget | JointTarget | TrackTarget | StateTarget | NoteTarget | RegionTarget | KeptTarget
-          | DismissalTarget | RecordTarget)
+Target = (PersonTarget | JointTarget | TrackTarget | StateTarget | NoteTarget | RegionTarget
+          | KeptTarget | DismissalTarget | RecordTarget)
 
 #: The targets whose value is keyed by one integer id, by kind.
 _BY_ITEM: dict[str, type[NoteTarget] | type[RegionTarget] | type[KeptTarget]] = {

@@ -86,8 +86,8 @@ class PeopleGateway:
 
     def insert_encoded(self, rows: Iterable[Sequence[Any]]) -> int:
         """Insert pre-encoded rows ``(frame_id, id, keypoints, scores, sources, origin, score,
-        extra, track, track_source)`` in batches of :data:`BATCH`; returns how many. A person id already in the
-        project is refused (:class:`~app.errors.BadInput`)."""
+        extra, track, track_source)`` in batches of :data:`BATCH`; returns how many. A person
+        id already in the project is refused (:class:`~app.errors.BadInput`)."""
         n = 0
         batch: list[Sequence[Any]] = []
         frames: set[int] = set()
@@ -125,10 +125,10 @@ class PeopleGateway:
     def set_tracks(self, rows: Iterable[tuple[int, int | None, str]]) -> int:
         """Write ``(person id, track, who set it)`` for many people at once (linking a whole
         sequence); returns how many rows were given."""
-        rows = [(None if t is None else int(t), s if t is not None else None, int(pid))
-                for pid, t, s in rows]
-        self._tx.run_many("UPDATE people SET track = ?, track_source = ? WHERE id = ?", rows)
-        return len(rows)
+        params = [(None if t is None else int(t), s if t is not None else None, int(pid))
+                  for pid, t, s in rows]
+        self._tx.run_many("UPDATE people SET track = ?, track_source = ? WHERE id = ?", params)
+        return len(params)
 
     def delete(self, person_id: int) -> None:
         self._tx.run("DELETE FROM people WHERE id = ?", (int(person_id),))

@@ -28,8 +28,9 @@ Layout:
   :class:`app.model.labels.Person`.
 - ``ledger``: append-only; one row per atomic change, a ``group_id`` per user action. The
   change's target is in structured columns (v4): ``target_kind`` (person, joint, track, state,
-  note, region, kept, dismissal, record), ``person_id``, ``joint``, ``item_id`` (note, region or reviewer's
-  version) and ``target_key`` (what a bulk entry was about), see :mod:`app.model.targets`.
+  note, region, kept, dismissal, record), ``person_id``, ``joint``, ``item_id`` (note, region
+  or reviewer's version) and ``target_key`` (what a bulk entry was about), see
+  :mod:`app.model.targets`.
 - ``undo_stack`` / ``redo_stack``: the groups that undo and redo act on next, kept in the
   database so that undo survives a restart; ``author`` (v4) owns the entry: empty in a folder
   project (one stack for whoever edits it), the annotator in a hosted project (each undoes
