@@ -630,6 +630,10 @@ def build_parser() -> argparse.ArgumentParser:
     from app.findings_commands import register as register_findings
 
     register_findings(sub, command)
+    # Sequences and tracks: app/track_commands.py.
+    from app.track_commands import register as register_tracks
+
+    register_tracks(sub, command)
     _images_root_option(sub)
     return parser
 

@@ -440,8 +440,8 @@ class SetTrack(Edit):
 
     def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
         p = labels.person(self.person_id)
-        if self.track is not None and int(self.track) < 1:
-            raise EditRefused(f"track {self.track} is not a track id (1 or more)")
+        if self.track is not None and int(self.track) < 0:
+            raise EditRefused(f"track {self.track} is not a track id (0 or more)")
         after = [None if self.track is None else int(self.track),
                  "" if self.track is None else ctx.author]
         if same_value(p.track_value(), after):
