@@ -39,6 +39,9 @@ from app.model.targets import (
     TrackTarget,
 )
 
+#: The provenance of joints interpolated from neighbouring frames, not yet checked by anyone.
+INTERPOLATED = "interpolated"
+
 TARGET_TYPES = (PersonTarget, JointTarget, TrackTarget, StateTarget, NoteTarget, RegionTarget,
                 KeptTarget, DismissalTarget, RecordTarget)
 
@@ -295,18 +298,27 @@ class ReassignJoint(Edit):
 
 @dataclass(frozen=True)
 class NewPerson(Edit):
-    """Add a person, optionally with joints ``(K, 3)``; the store fills in a fresh id."""
+    """Add a person, optionally with joints ``(K, 3)``; the store fills in a fresh id.
+
+    ``source`` names the joints' provenance when it is not the author: a person interpolated
+    from neighbouring frames is :data:`INTERPOLATED` until someone edits its joints, which is
+    how it stays marked for checking. ``track`` puts the new person on a track.
+    """
 
     frame_id: int
     person_id: int | None = None
     keypoints: tuple[tuple[float, float, int], ...] | None = None
+    source: str | None = None
+    track: int | None = None
 
     def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
         if self.person_id is None:
             raise EditRefused("a new person needs an id (the store assigns one)")
         if self.person_id in labels.people:
             raise EditRefused(f"person {self.person_id} already exists")
-        p = Person.blank(self.person_id, labels.num_joints, ctx.author)
+        p = Person.blank(self.person_id, labels.num_joints, self.source or ctx.author)
+        if self.track is not None:
+            p = replace(p, track=int(self.track), track_source=ctx.author)
         if self.keypoints is not None:
             kp = np.asarray(self.keypoints, dtype=np.float64)
             if kp.shape != (labels.num_joints, 3):
