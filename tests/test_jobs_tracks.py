@@ -3,11 +3,14 @@ sequences (tests/sequences.py)."""
 
 import json
 
+import numpy as np
 import pytest
 
 from app.cli import main
 from app.jobs_tracks import link_project, project_sequences
 from app.model import SetTrack
+from app.model.skeleton import coco_body
+from app.store import Project
 from tests import sequences
 from tests.sequences import pid
 
@@ -61,3 +64,39 @@ def test_a_folder_that_is_not_a_sequence_is_not_linked(walk, capsys):
     assert out["tracks"][0]["frames"] == list(range(1, 13))
     assert main(["track", str(where), "--not-a-sequence", "elsewhere", "-q"]) == 2
     assert "no folder of frames is called 'elsewhere'" in capsys.readouterr().err
+
+
+def test_findings_over_time_join_triage_and_findings_once_tracks_exist(tmp_path, capsys):
+    """A synthetic dancer flipped left-right for three frames: nothing over time before
+    linking; after `track`, `findings` lists a flipped stretch, `--accept` swaps the three
+    frames back as one undo step, and `undo` takes it back whole."""
+    people = sequences.dancers()
+    people[3:6, 0] = people[3:6, 0][:, coco_body().flip_index]
+    project, _ = sequences.make_project(tmp_path, people)
+    where = str(project.folder)
+    project.close()
+    kinds = ["--kinds", "flipped-stretch", "-q"]
+    assert main(["findings", where, "--json", *kinds]) == 0
+    assert json.loads(capsys.readouterr().out) == []
+    assert main(["track", where, "-q"]) == 0
+    capsys.readouterr()
+    assert main(["triage", where, "--json", "-q"]) == 0
+    over = {r["frame"]: [f["kind"] for f in r["over_time"]]
+            for r in json.loads(capsys.readouterr().out)}
+    assert over[4] == ["flipped-stretch"]
+    assert main(["findings", where, "--json", *kinds]) == 0
+    (found,) = json.loads(capsys.readouterr().out)
+    assert (found["frame_id"], found["kind"], found["person_id"]) == (4, "flipped-stretch",
+                                                                    pid(3, 0))
+    assert [e["op"] for e in found["fix"]["edits"]] == ["SwapSides"] * 3
+    assert main(["findings", where, "--accept", "flipped-stretch", *kinds[2:]]) == 0
+    capsys.readouterr()
+    with Project.open(where) as p:
+        for t in range(12):
+            (dancer,) = [q for q in p.people(t + 1) if q.id == pid(t, 0)]
+            assert np.allclose(dancer.keypoints[:, :2], sequences.dancers()[t, 0, :, :2])
+    assert main(["undo", where, "-q"]) == 0
+    with Project.open(where) as p:
+        (dancer,) = [q for q in p.people(5) if q.id == pid(4, 0)]
+        assert np.allclose(dancer.keypoints[:, :2], people[4, 0, :, :2])
+        assert p.can_undo() is False
