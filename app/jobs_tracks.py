@@ -6,6 +6,9 @@ an import), keeping every track someone set by hand or that came from a label fi
 given to the linking, which links the other people around them. :func:`sequence_people` reads a
 sequence's people in order, the form :mod:`app.model.tracks` edits and
 :mod:`app.analysis.triage.temporal` checks take.
+
+:func:`propose_carry` carries a correction to the frames around it that show the same error
+(:mod:`app.analysis.carry`); :func:`take_batch` applies such a batch as one action.
 """
 
 from __future__ import annotations
@@ -13,15 +16,19 @@ from __future__ import annotations
 import json
 import logging
 from collections.abc import Iterable
+from collections.abc import Sequence as Seq
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 
+from app.analysis.carry import MAX_FRAMES, CarriedBatch, carry_changes
 from app.analysis.tracks import link_tracks
 from app.errors import BadInput
-from app.model.labels import AUTO, Person
+from app.model.edits import Change
+from app.model.labels import AUTO, FrameLabels, Person
 from app.model.sequences import NOT_SEQUENCES, Sequence, parse_not_sequences, sequences
+from app.model.targets import StateTarget
 from app.progress import Progress
 from app.store.project import Project
 
@@ -155,3 +162,66 @@ def tracks_of(project: Project) -> list[TrackInfo]:
                 t["edited"] |= _kept(p)
     return [TrackInfo(k, v["sequence"], tuple(v["frames"]), tuple(v["people"]), v["edited"])
             for k, v in sorted(out.items())]
+
+
+# ---------------------------------------------------------------------- carrying a correction
+
+
+def sequence_labels(project: Project, frame_id: int) -> tuple[list[FrameLabels], int]:
+    """The labels of every frame of ``frame_id``'s sequence, in order, and where
+    ``frame_id`` is among them.
+
+    Raises
+    ------
+    BadInput
+        When the frame belongs to no sequence (its folder is marked as not a sequence).
+    """
+    for seq in project_sequences(project):
+        if frame_id in seq.frame_ids:
+            return [project.labels(f) for f in seq.frame_ids], seq.frame_ids.index(frame_id)
+    raise BadInput(f"frame {frame_id} belongs to no sequence (its folder is marked as not "
+                   "a sequence)", where="carry")
+
+
+def propose_carry(project: Project, frame_id: int, changes: Seq[Change],
+                  max_frames: int = MAX_FRAMES) -> CarriedBatch:
+    """The batch that carries a correction of ``frame_id`` (its changes, as applied) to the
+    frames around it that show the same error; nothing is changed. What the app calls after
+    each correction, to show where the batch would end."""
+    frames, at = sequence_labels(project, frame_id)
+    return carry_changes(changes, frames, at, max_frames)
+
+
+def last_correction(project: Project, group: int | None = None) -> tuple[int, int,
+                                                                        list[Change]]:
+    """``(group, frame, changes)`` of an action: ``group``, or the newest edit (on a server,
+    the author's own newest; an undo or redo, a batch over several frames and bulk work are
+    not corrections to carry)."""
+    if group is None:
+        newest = next((e for e in project.history(limit=2000)
+                       if e.kind == "edit" and e.action not in ("Batch", "CarryForward")
+                       and (not project.hosted or e.author == project.author)), None)
+        if newest is None:
+            raise BadInput(f"{project.author or 'you'} made no correction to carry yet",
+                           where="carry")
+        group = newest.group_id
+    entries = project.action(group)
+    frames = {e.frame_id for e in entries}
+    if not entries or len(frames) != 1 or None in frames:
+        raise BadInput(f"action {group} is not a correction of one frame", where="carry")
+    frame = entries[0].frame_id
+    assert frame is not None
+    changes = [Change(e.target, e.before, e.after) for e in entries
+               if not isinstance(e.target, StateTarget)]
+    return group, frame, changes
+
+
+def take_batch(project: Project, batch: CarriedBatch) -> Any:
+    """Apply a carried batch as one action (one undo step); returns the store's
+    :class:`~app.store.ledger.Applied` (its group None when the batch is empty)."""
+    if not batch.edits:
+        return None
+    frames = len(batch.edits)
+    return project.apply_batch(batch.edits, f"carry the correction of frame {batch.origin} to "
+                               f"{frames} frame{'s' if frames > 1 else ''}",
+                               action="CarryForward")

@@ -563,6 +563,11 @@ class Project:
         with self._read() as tx:
             return tx.ledger.entries(frame_id=frame_id, limit=limit)
 
+    def action(self, group: int) -> list[LedgerEntry]:
+        """The ledger entries of one action (group), oldest first."""
+        with self._read() as tx:
+            return list(reversed(tx.ledger.entries(group=group)))
+
     def can_undo(self) -> bool:
         with self._read() as tx:
             return tx.ledger.top("undo_stack", self._owner) is not None
