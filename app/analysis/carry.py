@@ -21,7 +21,8 @@ Each changed joint ``(P, j)`` of the correction is one of
 
 The error is present in a frame when every changed joint of ``P'`` (and every copied-from
 joint of ``Q'``) lies within :data:`TOLERANCE` of a body of where it stood before the
-correction, moved along with its body, and is labelled as it was. A body's move from one
+correction, moved along with its body, is labelled as it was and, for a joint that got a new
+place, lies nearer its old place than its new one. A body's move from one
 frame to the next is the median over its unchanged joints of their displacement.
 
 Examples
@@ -237,7 +238,10 @@ def _carry_once(steps: list[_Step], deleted: list[int], before: FrameLabels,
             return None
         motion[pid] = (u, size)
 
-    def stands(pid: int, j: int, old: tuple[float, float, int]) -> bool:
+    def stands(pid: int, j: int, old: tuple[float, float, int],
+               new: tuple[float, float, int] | None = None) -> bool:
+        """Joint ``j`` of ``pid``'s person there stands where ``old`` stood (moved with the
+        body), labelled as it was, and nearer there than where ``new`` stands."""
         p = who[pid]
         x, y, v = p.keypoints[j]
         if (v > 0) != (old[2] > 0):
@@ -245,11 +249,17 @@ def _carry_once(steps: list[_Step], deleted: list[int], before: FrameLabels,
         if old[2] <= 0:
             return True
         u, size = motion[pid]
-        return bool(np.hypot(x - old[0] - u[0], y - old[1] - u[1]) <= TOLERANCE * size)
+        off = np.hypot(x - old[0] - u[0], y - old[1] - u[1])
+        if off > TOLERANCE * size:
+            return False
+        if new is None or not np.isfinite(new[0]) or new[2] <= 0:
+            return True
+        return bool(off < np.hypot(x - new[0] - u[0], y - new[1] - u[1]))
 
     olds = {(s.person, s.joint): s.before for s in steps}
     for s in steps:
-        if not stands(s.person, s.joint, s.before):
+        if not stands(s.person, s.joint, s.before,
+                      s.after if s.kind in ("move", "copy") else None):
             return None
         if s.source and not stands(s.source[0], s.source[1], olds[s.source]):
             return None
