@@ -16,9 +16,11 @@ takes one action at a time (:func:`next_action`), each one edit of the app:
 *Frame by frame* counts every such action. *With carrying*, after each action the
 correction is carried forward (:func:`app.analysis.carry.carry_changes`, the people linked
 into tracks by :func:`app.analysis.tracks.link_tracks` first); the annotator looks at the
-batch and takes it as far as it helps (each carried frame's edits remove a wrong joint and add
-none; the first frame where they do not is where the batch is trimmed), which is one more
-action when anything is taken. Frames later in the dance then start with fewer errors.
+batch and takes it as far as it helps (each carried frame's edits remove a wrong joint, add
+none and lose no correct one; the first frame where they do not is where the batch is
+trimmed), which is one more action, when it spans at least :data:`MIN_BATCH` frames (a batch
+of one frame spares nothing; it is left alone and the frame fixed when its turn comes). Frames
+later in the dance then start with fewer errors.
 
 ``python -m app.demo.carrying --seeds 23-25 --shipped --cache /tmp/demos`` prints the table
 of the README's "Sequences" section.
@@ -54,6 +56,8 @@ from app.model.labels import FrameLabels
 
 #: The most actions the oracle takes in one frame (a guard; the demo needs far fewer).
 MAX_ACTIONS = 400
+#: The fewest frames of a batch the annotator takes: a batch of one frame spares nothing.
+MIN_BATCH = 2
 
 
 def _judge(labels: FrameLabels, truth: np.ndarray, areas: np.ndarray) -> tuple[list[int],
@@ -236,7 +240,7 @@ def count_actions(frames: Sequence[FrameLabels], truth: Sequence[np.ndarray],
             labels[i], changes = edit.apply(labels[i])
             corrections += 1
             batch = carry_changes(changes, labels, i)
-            taken = 0
+            staged: dict[int, FrameLabels] = {}
             for group in batch.edits:
                 k = next(n for n, f in enumerate(labels) if f.frame_id == group.frame_id)
                 if k < i:
@@ -244,11 +248,13 @@ def count_actions(frames: Sequence[FrameLabels], truth: Sequence[np.ndarray],
                 after = _helps(group, labels[k], truth[k], areas[k])
                 if after is None:
                     break
-                labels[k] = after
-                taken += 1
-            if taken:
+                staged[k] = after
+            # A batch of one frame spares nothing (taking it is an action too): left alone.
+            if len(staged) >= MIN_BATCH:
+                for k, after in staged.items():
+                    labels[k] = after
                 batches += 1
-                carried += taken
+                carried += len(staged)
     left_carry = sum(_wrong(f, t, a) for f, t, a in zip(labels, truth, areas, strict=True))
     return ActionCount(demo, wrong_before, plain, corrections + batches, corrections, batches,
                        carried, left_plain, left_carry, repeated)
@@ -301,7 +307,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     if args.shipped:
         targets.insert(0, ("shipped (seed 1966)", None))
     rows = [demo_count(demo_folder(args.cache, seed), name) for name, seed in targets]
-    total = ActionCount("**all**", *(sum(getattr(r, f) for r in rows) for f in (
+    seeds = [r for r, (_, seed) in zip(rows, targets, strict=True) if seed is not None]
+    total = ActionCount(f"**seeds {args.seeds}**", *(sum(getattr(r, f) for r in seeds) for f in (
         "wrong_before", "frame_by_frame", "carrying", "corrections", "batches",
         "carried_frames", "wrong_left_frame_by_frame", "wrong_left_carrying", "repeated")))
     if args.json:
