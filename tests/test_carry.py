@@ -11,6 +11,7 @@ from app.analysis.carry import carry_changes
 from app.cli import main
 from app.jobs_tracks import link_project, propose_carry, sequence_labels, take_batch
 from app.model import ReassignJoint, SwapSides
+from app.model.skeleton import coco_body
 from app.store import Project
 from tests import sequences
 from tests.sequences import pid
@@ -64,12 +65,31 @@ def test_a_trimmed_batch_takes_only_the_frames_up_to_where_it_is_cut(walk):
     assert [g.frame_id for g in batch.until(4).edits] == [4, 6, 7]
 
 
-def test_a_correction_where_nothing_around_shows_the_error_carries_nothing(walk):
-    """Swapping a dancer's sides in a frame where no neighbour is flipped: the frames around
-    hold the dancer unflipped, so nothing is carried."""
-    applied = walk.apply(SwapSides(10, pid(9, 2)))
-    batch = propose_carry(walk, 10, applied.changes)
+def test_a_correction_where_nothing_around_shows_the_error_carries_nothing(tmp_path):
+    """A dancer flipped left-right in one frame only: swapping it back there carries to no
+    other frame (the frames around hold the dancer unflipped, unlike the frame before its
+    correction)."""
+    people = sequences.dancers()
+    people[9, 2] = people[9, 2][coco_body().flip_index]
+    project, _ = sequences.make_project(tmp_path, people)
+    with project:
+        link_project(project)
+        applied = project.apply(SwapSides(10, pid(9, 2)))
+        batch = propose_carry(project, 10, applied.changes)
     assert batch.edits == () and batch.stopped_forward == 11 and batch.stopped_backward == 9
+
+
+def test_a_side_swap_is_carried_over_the_frames_that_show_it(tmp_path):
+    """A dancer flipped for frames 5-8: swapping it back in frame 6 carries to 5, 7 and 8."""
+    people = sequences.dancers()
+    people[4:8, 2] = people[4:8, 2][:, coco_body().flip_index]
+    project, _ = sequences.make_project(tmp_path, people)
+    with project:
+        link_project(project)
+        applied = project.apply(SwapSides(6, pid(5, 2)))
+        batch = propose_carry(project, 6, applied.changes)
+    assert [g.frame_id for g in batch.edits] == [5, 7, 8]
+    assert (batch.stopped_backward, batch.stopped_forward) == (4, 9)
 
 
 def test_carry_from_the_command_line(walk, capsys):

@@ -22,8 +22,11 @@ Each changed joint ``(P, j)`` of the correction is one of
 The error is present in a frame when every changed joint of ``P'`` (and every copied-from
 joint of ``Q'``) lies within :data:`TOLERANCE` of a body of where it stood before the
 correction, moved along with its body, is labelled as it was and, for a joint that got a new
-place, lies nearer its old place than its new one. A body's move from one
-frame to the next is the median over its unchanged joints of their displacement.
+place, lies nearer its old place than its new one. An exchange of :data:`WHOLE` joints or more
+(a side swap) is judged on the mean of its joints' offsets instead, so that one joint near the
+middle of the body, where both sides are close, does not decide for all. A body's move from one
+frame to the next is the median over its joints of their displacement, taking each changed
+joint where it stood before the correction.
 
 Examples
 --------
@@ -81,6 +84,8 @@ from app.model.targets import JointTarget, PersonTarget
 TOLERANCE = 0.1
 #: The most frames a correction is carried in each direction.
 MAX_FRAMES = 50
+#: An exchange of at least this many joints is judged as a whole (their mean offsets).
+WHOLE = 4
 
 
 @dataclass(frozen=True)
@@ -231,8 +236,13 @@ def _carry_once(steps: list[_Step], deleted: list[int], before: FrameLabels,
             changed.setdefault(s.source[0], set()).add(s.source[1])
     motion = {}
     for pid, p in who.items():
-        ref = (after.people.get(pid) or before.people[pid]).keypoints
-        u = _motion(ref, p.keypoints, changed.get(pid, set()))
+        # Where each joint was: as corrected where the correction left it alone, as it was
+        # before the correction where it changed it (the error, if it persists, is there).
+        ref = (after.people.get(pid) or before.people[pid]).keypoints.copy()
+        mine = sorted(changed.get(pid, set()))
+        if mine and pid in before.people:
+            ref[mine] = before.people[pid].keypoints[mine]
+        u = _motion(ref, p.keypoints, set())
         size = _size(before.people[pid].keypoints) if pid in before.people else 0.0
         if u is None or size <= 0:
             return None
@@ -257,7 +267,16 @@ def _carry_once(steps: list[_Step], deleted: list[int], before: FrameLabels,
         return bool(off < np.hypot(x - new[0] - u[0], y - new[1] - u[1]))
 
     olds = {(s.person, s.joint): s.before for s in steps}
-    for s in steps:
+    copies = [s for s in steps if s.kind == "copy"]
+    if len(copies) >= WHOLE:
+        # Many joints exchanged at once (a side swap, a chain given over): judged together,
+        # so that one joint near the body's middle does not decide for all.
+        if not _stand_together(copies, who, motion):
+            return None
+        steps_alone = [s for s in steps if s.kind != "copy"]
+    else:
+        steps_alone = steps
+    for s in steps_alone:
         if not stands(s.person, s.joint, s.before,
                       s.after if s.kind in ("move", "copy") else None):
             return None
@@ -286,6 +305,24 @@ def _carry_once(steps: list[_Step], deleted: list[int], before: FrameLabels,
     for pid in deleted:
         edits.append(DeletePerson(there.frame_id, who[pid].id))
     return edits, new_steps, [who[pid].id for pid in deleted]
+
+
+def _stand_together(copies: Sequence[_Step], who: dict[int, Person],
+                    motion: dict[int, tuple[np.ndarray, float]]) -> bool:
+    """Whether the joints of an exchange of many joints stand, on average, within
+    :data:`TOLERANCE` of where they stood before it and nearer there than where it put them
+    (joints labelled on one side only are left out)."""
+    old_off, new_off = [], []
+    for s in copies:
+        x, y, v = who[s.person].keypoints[s.joint]
+        if v <= 0 or s.before[2] <= 0 or not np.isfinite(s.after[0]):
+            continue
+        u, size = motion[s.person]
+        old_off.append(np.hypot(x - s.before[0] - u[0], y - s.before[1] - u[1]) / size)
+        new_off.append(np.hypot(x - s.after[0] - u[0], y - s.after[1] - u[1]) / size)
+    if len(old_off) < WHOLE // 2:
+        return False
+    return bool(np.mean(old_off) <= TOLERANCE and np.mean(old_off) < np.mean(new_off))
 
 
 def carry_changes(changes: Sequence[Change], frames: Sequence[FrameLabels], at: int,
