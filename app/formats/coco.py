@@ -23,6 +23,8 @@ Conventions decided here:
   and ``v = 0`` where it is 0.
 - ``v = 0`` joints keep no position (COCO writes 0, 0 for them).
 - Crowd annotations (``iscrowd: 1``) are ignore regions, not people.
+- ``track_id`` (a whole number from 0 up), when present, is the person's track: who they are
+  across the frames of a sequence. It is written back for every person on a track.
 
 Writing produces a dataset. Image ids, file names, the category record and every annotation
 field we do not compute are written back as they were read. Computed fields:
@@ -57,7 +59,7 @@ from pydantic import (
 )
 
 from app.errors import BadInput
-from app.fileio import JsonId, JsonStream, describe, describe_item, json_ready
+from app.fileio import MAX_ID, JsonId, JsonStream, describe, describe_item, json_ready
 from app.formats.images import MAX_SIDE
 from app.model.labels import AUTO, IMPORTED, Frame, Person
 from app.model.skeleton import Skeleton
@@ -360,10 +362,12 @@ class _DatasetPlan:
             [f"annotations[{i}] (id {a.id})" for i, a, _ in labels],
             [self.matched[a.image_id] for _, a, _ in labels])
         no_scores = np.full(k, np.nan)
-        for (_, a, extra), kp in zip(labels, block):
+        for (i, a, extra), kp in zip(labels, block):
             source = AUTO if a.score is not None else IMPORTED
+            track = _track_id(extra, where, f"annotations[{i}] (id {a.id})")
             person = Person(a.id, kp, no_scores, (source,) * k,
-                            None if a.score is None else float(a.score), extra)
+                            None if a.score is None else float(a.score), extra, track,
+                            "" if track is None else IMPORTED)
             out.people.append((a.image_id, person))
         return out
 
@@ -385,7 +389,7 @@ def _stream_results(path: str | Path, where: str, skeleton: Skeleton, frames: Se
         raise BadInput(f"results[{outside}]: field keypoints: third values must all be "
                        "visibility (0, 1, 2) or all be scores in [0, 1]", where=where)
     first = True
-    for _, raw, results, block, read in _results_batches(path, where, k, by_id, batch):
+    for start, raw, results, block, read in _results_batches(path, where, k, by_id, batch):
         out = CocoImport("results", where, read=read)
         for n, (r, kp) in enumerate(zip(results, block)):
             if as_visibility:
@@ -395,8 +399,10 @@ def _stream_results(path: str | Path, where: str, skeleton: Skeleton, frames: Se
                 kp[:, 2] = np.where(scores > 0, 2, 0)
             extra = {key: v for key, v in raw[n].items()
                      if key not in ("image_id", "keypoints", "score", "id")}
+            track = _track_id(extra, where, f"results[{start + n}]")
             out.people.append((r.image_id, Person(0, kp, scores, (AUTO,) * k, float(r.score),
-                                                  extra)))
+                                                  extra, track,
+                                                  "" if track is None else IMPORTED)))
         out.fresh_people = len(out.people)
         first = False
         yield out
@@ -620,6 +626,20 @@ def _crowd_polygons(raw: Mapping[str, Any], where: str, record: str) -> list[lis
     return polys
 
 
+def _track_id(extra: dict[str, Any], where: str, record: str) -> int | None:
+    """Take ``track_id`` out of an annotation's kept fields: the person's track (who they are
+    across a sequence's frames), a whole number from 0 up, or absent."""
+    if "track_id" not in extra:
+        return None
+    value = extra.pop("track_id")
+    if value is None:
+        return None
+    if isinstance(value, bool) or not isinstance(value, int) or not 0 <= value <= MAX_ID:
+        raise BadInput(f"{record}: field track_id: {value!r} is not a whole number from 0 to "
+                       f"{MAX_ID}", where=where)
+    return int(value)
+
+
 # ---------------------------------------------------------------------- writing
 
 def person_box(keypoints: np.ndarray) -> list[float]:
@@ -667,6 +687,8 @@ def annotation(person: Person, image_id: int, category_id: int) -> dict[str, Any
         extra["area"] = round(box[2] * box[3], 2)
     extra.setdefault("iscrowd", 0)
     ann.update(extra)
+    if person.track is not None:
+        ann["track_id"] = int(person.track)
     if person.score is not None:
         ann["score"] = person.score
     return ann
