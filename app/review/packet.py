@@ -68,19 +68,19 @@ from app.errors import BadInput, NotFound
 from app.fileio import MAX_ID, JsonId, atomic_write, describe, json_ready, parse_json
 from app.formats.images import IMAGE_SUFFIXES, MAX_SIDE, read_image
 from app.model.labels import Frame, FrameState, Note, Person
-from app.model.records import FrameDecision, PacketRecord
+from app.model.records import DECISIONS, OLD_DECISIONS, FrameDecision, PacketRecord
 from app.model.skeleton import Skeleton, skeleton_from_dict
 from app.progress import Progress
 from app.review import DEFAULT_IMAGES, IMAGE_MODES, safezip
 from app.review.blur import blur_heads
 from app.safetext import check_name, name_problem
 from app.store import Project
+from app.wording import count
 
 log = logging.getLogger(__name__)
 
 FORMAT = "posewright-review-packet"
 VERSION = 1
-DECISIONS = ("agree", "needs-change", "signed-off")
 
 MANIFEST = "manifest.json"
 LABELS = "labels.json"
@@ -92,7 +92,8 @@ MAX_JSON = 512 << 20
 
 Number = StrictInt | StrictFloat
 ImageMode = Literal["none", "full", "blurred-heads"]
-Decision = Literal["agree", "needs-change", "signed-off"]
+#: A decision as a returned packet holds it: today's, or as version 0.1.0 wrote it.
+Decision = Literal["looks-right", "query", "ready", "agree", "needs-change", "signed-off"]
 
 
 # ---------------------------------------------------------------------- what a packet holds
@@ -160,14 +161,16 @@ class Packet:
 
 
 def parse_decision(text: str) -> str:
-    """A decision from a relaxed spelling ("signed off", "needs_change").
+    """A decision from a relaxed spelling ("Looks right", "looks_right"); the words of
+    version 0.1.0 ("agree", "needs-change", "signed-off") are read as today's.
 
     Examples
     --------
-    >>> parse_decision("Signed off")
-    'signed-off'
+    >>> parse_decision("Looks right"), parse_decision("Signed off")
+    ('looks-right', 'ready')
     """
     norm = text.strip().lower().replace("_", "-").replace(" ", "-")
+    norm = OLD_DECISIONS.get(norm, norm)
     if norm not in DECISIONS:
         raise BadInput(f"unknown decision {text!r}; one of " + ", ".join(DECISIONS),
                        where="decision")
@@ -476,7 +479,8 @@ def _frame_contents(raw: bytes, adapter: TypeAdapter[Any], where: str, skeleton:
 
 def _person(pm: _PersonModel, k: int, record: str, where: str) -> Person:
     if len(pm.keypoints) != k or len(pm.scores) != k or len(pm.sources) != k:
-        raise BadInput(f"{record}: field keypoints: the skeleton has {k} joints", where=where)
+        raise BadInput(f"{record}: field keypoints: the skeleton has {count(k, 'joint')}",
+                       where=where)
     for j, (x, y, v) in enumerate(pm.keypoints):
         if v not in (0, 1, 2):
             raise BadInput(f"{record}: field keypoints.{j}: visibility {v} is not one of 0, 1, 2",
@@ -614,7 +618,7 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
             return stats
         record = {k: v for k, v in stats.items() if k != "packet_id"}
         with project.bulk("ExportPacket",
-                          f"send {len(frames)} frames for review"
+                          f"send {count(len(frames), 'frame')} for review"
                           + (f" by {reviewer}" if reviewer else "") + f" (images {images})",
                           f"packet:{packet_id}", kind="review") as b:
             b.packets.add(PacketRecord(packet_id, "exported", hashlib.sha256(base_json).hexdigest(),

@@ -233,7 +233,7 @@ def _require_review(project: Project) -> None:
 
 
 def set_decision(project: Project, frame_id: int, decision: str | None) -> FrameDecision | None:
-    """Record the reviewer's decision on a frame (``agree``, ``needs-change``, ``signed-off``;
+    """Record the reviewer's decision on a frame (``looks-right``, ``query``, ``ready``;
     ``None`` withdraws it), credited to the review's reviewer. One transaction and one ledger
     entry; returns the decision recorded."""
     _require_review(project)
