@@ -29,7 +29,7 @@ from app.fileio import MAX_ID, json_ready, read_json
 from app.model.labels import FrameState
 from app.progress import Progress
 from app.safetext import shown
-from app.wording import count
+from app.wording import count, ledger_text
 
 #: Exit status when the reader of our output went away (128 + SIGPIPE).
 BROKEN_PIPE_STATUS = 141
@@ -270,7 +270,7 @@ def cmd_ledger(args: argparse.Namespace) -> int:
         when = time.strftime("%Y-%m-%d %H:%M:%S", time.localtime(e.time))
         frame = "-" if e.frame_id is None else str(e.frame_id)
         print(f"{e.seq:>6}  {when}  {shown(e.author):<12}  frame {frame:<6}  {e.kind:<6}  "
-              f"{shown(e.target):<22}  {shown(e.summary)}")
+              f"{shown(e.target):<22}  {shown(ledger_text(e.summary))}")
     return 0
 
 

@@ -15,6 +15,8 @@ The spelling is British, as in the rest of the app: "labelled", "unlabelled".
 
 from __future__ import annotations
 
+import re
+
 #: Nouns whose plural is not made with "s" (singular -> plural).
 IRREGULAR = {"person": "people", "child": "children", "index": "indices", "is": "are",
              "was": "were", "has": "have", "this": "these", "that": "those"}
@@ -169,3 +171,26 @@ def reason_count(kind: str, n: int) -> str:
     if str(kind) not in REASONS:      # a kind without a noun: the name and how many times
         return f"{reason_label(kind)} \u00d7{n}"
     return count(n, *REASONS[str(kind)])
+
+
+# ---------------------------------------------------------------------- older ledger entries
+
+#: Words that Ledger summaries recorded before version 0.2 used, and what we say now. The
+#: Ledger keeps what it recorded; only what is shown changes.
+_OLD_LEDGER_WORDS = ((r"\bkeep ours\b", "keep mine"),
+                     (r"\breturn to ledger entry\b", "rewind to ledger entry"),
+                     (r"\bunlabeled\b", "unlabelled"))
+
+
+def ledger_text(summary: str) -> str:
+    """A Ledger entry's summary in today's words (entries recorded earlier said "keep ours",
+    "return to ledger entry" and "unlabeled").
+
+    Examples
+    --------
+    >>> ledger_text("undo: keep ours"), ledger_text("mark joint 9 of person 5 unlabeled")
+    ('undo: keep mine', 'mark joint 9 of person 5 unlabelled')
+    """
+    for old, new in _OLD_LEDGER_WORDS:
+        summary = re.sub(old, new, summary)
+    return summary

@@ -59,3 +59,14 @@ def test_a_reason_count_reads_as_a_count_not_as_an_id():
         assert reason_count(kind, 2) == f"2 {many}", kind
         assert count(1, one, many) == f"1 {one}", kind
         assert not reason_count(kind, 3).endswith(" 3"), kind
+
+
+def test_older_ledger_entries_are_shown_in_todays_words():
+    """The Ledger keeps what it recorded; what is shown of entries recorded before the words
+    changed says "keep mine", "rewind" and "unlabelled" (our own vocabulary)."""
+    from app.wording import ledger_text
+
+    assert ledger_text("keep ours") == "keep mine"
+    assert ledger_text("redo: return to ledger entry 12") == "redo: rewind to ledger entry 12"
+    assert ledger_text("mark 3 joints unlabeled") == "mark 3 joints unlabelled"
+    assert ledger_text("give joint 9 to person 4") == "give joint 9 to person 4"

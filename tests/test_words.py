@@ -47,6 +47,7 @@ FORBIDDEN = {
 STORED = {
     "unlabeled",  # the key of a finding's preview in stored findings (app/analysis/triage)
     "theirs",     # the column of the reviewer's version (app/store/schema.py)
+    r"\bkeep ours\b", r"\bunlabeled\b",  # older Ledger entries' words (app/wording.py)
 }
 
 

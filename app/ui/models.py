@@ -27,7 +27,7 @@ from PySide6.QtGui import QColor, QFont
 from app.model.labels import Frame, FrameState, Note, Person
 from app.store.project import LedgerEntry, Project
 from app.ui.overlay import WHOLE_PERSON, palette_colour
-from app.wording import count, reason_count, reason_label
+from app.wording import count, ledger_text, reason_count, reason_label
 
 Index = QModelIndex | QPersistentModelIndex
 _ROOT = QModelIndex()
@@ -562,8 +562,8 @@ def group_entries(entries: Sequence[LedgerEntry]) -> list[LedgerRow]:
         row = rows.get(e.group_id)
         frames = () if e.frame_id is None else (e.frame_id,)
         if row is None:
-            rows[e.group_id] = LedgerRow(e.group_id, e.seq, e.kind, e.summary, e.author, e.time,
-                                         frames, 1)
+            rows[e.group_id] = LedgerRow(e.group_id, e.seq, e.kind, ledger_text(e.summary),
+                                         e.author, e.time, frames, 1)
             order.append(e.group_id)
         else:
             merged = row.frames + tuple(f for f in frames if f not in row.frames)
