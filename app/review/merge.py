@@ -482,9 +482,9 @@ def merge_packet(project: Project, path: str | Path,
     earlier = _earlier_return(project, packet.packet_id, reviewer)
     if earlier is not None and packet.returned.time < earlier.returned:
         merged = time.strftime("%Y-%m-%d %H:%M", time.localtime(earlier.merged))
-        raise BadInput(f"an older return of this packet by {reviewer}: their newer return, "
-                       f"merged on {merged}, supersedes it", where=where,
-                       hint="nothing to merge; merge the newest return only")
+        raise BadInput(f"{reviewer} sent this packet back again later: that newer review, "
+                       f"merged on {merged}, supersedes this one", where=where,
+                       hint="nothing to merge; merge the newest one only")
     sent = project.packet_records(packet.packet_id, "exported")
     if sent and sent[0].sha256 != packet.base_sha256:
         raise BadInput("the base labels differ from the ones this project sent",

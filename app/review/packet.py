@@ -351,10 +351,10 @@ def read_packet(path: str | Path, returned: bool | None = None,
             expected = {LABELS, RETURNED}
         _check_members(manifest.members, set(entries) - {MANIFEST}, expected, where)
         if returned is True and manifest.returned is None:
-            raise BadInput("this packet has not been returned yet", where=where,
+            raise BadInput("this packet has not been sent back yet", where=where,
                            hint="merge the FILE-returned.zip the reviewer sends back")
         if returned is False and manifest.returned is not None:
-            raise BadInput("this is a returned packet", where=where,
+            raise BadInput("this packet was reviewed and sent back already", where=where,
                            hint="merge it with `posewright packet merge PROJECT FILE`")
         for name in sorted(set(entries) - {MANIFEST, LABELS, RETURNED}):
             safezip.check_digest(safezip.hash_member(archive, entries[name], where),
@@ -613,8 +613,9 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
         write_member(archive, MANIFEST, dumps_json(manifest))
         progress.step(len(frames), len(frames), "writing the packet")
         if project.read_only:
-            log.warning("%s is read-only; packet %s is not recorded in it, so its return "
-                        "cannot be checked against what was sent", project.location, packet_id)
+            log.warning("%s is read-only; packet %s is not recorded in it, so when it comes "
+                        "back it cannot be checked against what was sent", project.location,
+                        packet_id)
             return stats
         record = {k: v for k, v in stats.items() if k != "packet_id"}
         with project.bulk("ExportPacket",

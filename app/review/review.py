@@ -300,5 +300,5 @@ def return_packet(project: Project, out: str | Path | None = None) -> Path:
             "base_sha256": hashlib.sha256(base_json).hexdigest(),
         }}
         write_member(archive, MANIFEST, dumps_json(manifest))
-    log.info("returned %d frames to %s", len(frames), out)
+    log.info("sent %d frames back in %s", len(frames), out)
     return out

@@ -306,7 +306,7 @@ def test_an_older_return_arriving_after_a_newer_one_is_refused(labelled, tmp_pat
     merge_packet(labelled, _again(packet, lambda r: r.apply(MoveJoint(fid, pid, 7, 95.0,
                                                                       95.0))))
     ledger = len(labelled.history())
-    with pytest.raises(BadInput, match=r"their newer return, merged on .*, supersedes it"):
+    with pytest.raises(BadInput, match=r"that newer review, merged on .*, supersedes this one"):
         merge_packet(labelled, older)
     assert len(labelled.history()) == ledger
     assert _joint(_labels(labelled, fid)[pid], 7) == [95.0, 95.0, 2]

@@ -206,7 +206,7 @@ def test_a_packet_from_another_project_is_refused_and_nothing_changes(labelled, 
 
 
 def test_a_packet_not_yet_returned_cannot_be_merged(labelled, tmp_path):
-    with pytest.raises(BadInput, match="has not been returned yet"):
+    with pytest.raises(BadInput, match="has not been sent back yet"):
         merge_packet(labelled, send(labelled, tmp_path / "p.zip"))
 
 
