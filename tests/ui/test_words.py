@@ -13,10 +13,33 @@ from __future__ import annotations
 import re
 
 from PySide6.QtCore import QAbstractListModel, QModelIndex, Qt
-from PySide6.QtWidgets import QAbstractButton, QAbstractItemView, QComboBox, QLabel, QLineEdit
+from PySide6.QtWidgets import (
+    QAbstractButton,
+    QAbstractItemView,
+    QComboBox,
+    QLabel,
+    QLineEdit,
+    QSpinBox,
+)
 
 from app.ui.keys import KEYS, sheet_html
 from tests.test_words import FORBIDDEN
+
+
+def _widget_texts(top, add) -> None:
+    """The words of a widget and its children: buttons, labels, fields, lists, spin boxes."""
+    for w in top.findChildren(QAbstractButton):
+        add("button", w.text())
+        add("button tip", w.toolTip())
+    for w in top.findChildren(QLabel):
+        add("label", w.text())
+    for w in top.findChildren(QLineEdit):
+        add("placeholder", w.placeholderText())
+    for w in top.findChildren(QComboBox):
+        for i in range(w.count()):
+            add("list item", w.itemText(i))
+    for w in top.findChildren(QSpinBox):
+        add("number field", f"{w.prefix()}{w.value()}{w.suffix()}")
 
 
 def _texts(window) -> dict[str, str]:
@@ -36,16 +59,7 @@ def _texts(window) -> dict[str, str]:
         add(f"action {name}", a.text())
         add(f"action {name} (short)", a.iconText())
         add(f"action {name} (tip)", a.statusTip() or a.toolTip())
-    for w in window.findChildren(QAbstractButton):
-        add("button", w.text())
-        add("button tip", w.toolTip())
-    for w in window.findChildren(QLabel):
-        add("label", w.text())
-    for w in window.findChildren(QLineEdit):
-        add("placeholder", w.placeholderText())
-    for w in window.findChildren(QComboBox):
-        for i in range(w.count()):
-            add("list item", w.itemText(i))
+    _widget_texts(window, add)
     for view in window.findChildren(QAbstractItemView):
         model = view.model()
         if model is None:
@@ -103,3 +117,30 @@ def test_return_names_the_key_only(window):
     names += [b.text() for b in window.findChildren(QAbstractButton)]
     used = [n for n in names if re.search(r"(?i)\breturn", re.sub(r"\w+\+Return\b", "", n))]
     assert not used, used
+
+
+def test_the_project_forms_say_counts_in_our_words(qtbot, tmp_path):
+    """The forms of the Project menu, with one frame and with several in each choice."""
+    from app.ui.dialogs import PacketDialog, PrelabelDialog, VideoDialog
+
+    found: dict[str, str] = {}
+
+    def add(where: str, text: object) -> None:
+        if text and isinstance(text, str):
+            found[f"{where}: {text[:50]}"] = text
+
+    for n in (1, 2):
+        counts = {"all": n, "untouched": n, "disputed": n, "corrected": n}
+        for dialog in (PacketDialog(tmp_path, counts, 7), PrelabelDialog(tmp_path, counts),
+                       VideoDialog(tmp_path)):
+            qtbot.addWidget(dialog)
+            if isinstance(dialog, VideoDialog):
+                dialog.every.setValue(n)
+            add("title", dialog.windowTitle())
+            _widget_texts(dialog, add)
+    fields = [t for k, t in found.items() if k.startswith("number field")]
+    assert any(t.endswith("1 frame") for t in fields), fields
+    assert any(t.endswith("2 frames") for t in fields), fields
+    offenders = [f"{where}: {why}" for where, text in found.items()
+                 for pattern, why in FORBIDDEN.items() if re.search(pattern, text)]
+    assert not offenders, "\n".join(offenders)
