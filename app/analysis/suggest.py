@@ -129,7 +129,7 @@ def candidate_owners(
                 reason = f"{min(lengths):.0f} px from the nearest joint (no torso to compare)"
         if kp[joint, 2] > 0:
             score *= 0.8
-            reason += " · has this joint already: the two are exchanged"
+            reason += " · swaps with its own"
         out.append(Candidate(int(pid), score, reason))
     out.sort(key=lambda c: (-c.score, c.person_id))
     return out

@@ -175,7 +175,7 @@ class MainWindow(QMainWindow):
         self.worklist = WorklistPanel(self.worklist_model)
         if self.review_mode:
             # The state column also carries the decision; a reviewer has no triage to run.
-            self.worklist.view.horizontalHeader().resizeSection(2, 104)
+            self.worklist.view.horizontalHeader().resizeSection(2, 128)
             self.worklist.hint.setText("The frames of the packet. Ctrl+1 looks right, Ctrl+2 "
                                        "query, Ctrl+3 ready for training; Ctrl+Shift+R sends "
                                        "the packet back.")
