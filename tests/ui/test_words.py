@@ -95,9 +95,11 @@ def test_the_window_says_everything_in_our_words(qtbot, window):
     offenders = [f"{where}: {why}" for where, text in texts.items()
                  for pattern, why in FORBIDDEN.items() if re.search(pattern, text)]
     assert not offenders, "\n".join(offenders)
+    _no_two_actions_share_a_name(window)
+    _return_names_the_key_only(window)
 
 
-def test_no_two_actions_share_a_name(window):
+def _no_two_actions_share_a_name(window) -> None:
     """Within the menus, and among the short names the strips and panels show."""
     in_menus = [a.text().replace("&", "") for m in window.menuBar().actions()
                 for a in m.menu().actions() if not a.isSeparator()]
@@ -109,7 +111,7 @@ def test_no_two_actions_share_a_name(window):
     assert len(short) == len(set(short)), sorted(t for t in short if short.count(t) > 1)
 
 
-def test_return_names_the_key_only(window):
+def _return_names_the_key_only(window) -> None:
     """An action or a button is never called "return ..." (the packet is sent back, the
     Ledger rewinds); the word is left to the Return key, as in "Shift+Return"."""
     names = [a.text() for a in window.actions_by_name.values()]
