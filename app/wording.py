@@ -133,7 +133,7 @@ REASONS: dict[str, tuple[str, str]] = {
     "split": ("split person", "split people"),
     "tangled": ("tangled person", "tangled people"),
     "low-score": ("low-scored person", "low-scored people"),
-    "off-ground": ("person off the floor", "people off the floor"),
+    "off-ground": ("person off the ground", "people off the ground"),
     "short-legs": ("person with short legs", "people with short legs"),
     "tilted-torso": ("tilted torso", "tilted torsos"),
     "crowded": ("crowded frame", "crowded frames"),
