@@ -173,6 +173,13 @@ def reason_count(kind: str, n: int) -> str:
     return count(n, *REASONS[str(kind)])
 
 
+# ---------------------------------------------------------------------- reviewers' decisions
+
+#: A reviewer's decision (as stored, see :data:`app.model.records.DECISIONS`) as a person
+#: reads it in the Worklist, the status bar and the Ledger.
+DECISION_WORDS = {"looks-right": "looks right", "query": "queried", "ready": "ready for training"}
+
+
 # ---------------------------------------------------------------------- older ledger entries
 
 #: Words that Ledger summaries recorded before version 0.2 used, and what we say now. The

@@ -20,7 +20,7 @@ import pytest
 
 from app.cli import build_parser
 from app.model.records import DECISIONS, OLD_DECISIONS
-from app.wording import REASONS
+from app.wording import DECISION_WORDS, REASONS
 
 APP = Path(__file__).resolve().parents[1] / "app"
 
@@ -184,6 +184,9 @@ def test_decisions_are_our_own_words_and_no_frame_state():
     assert not states & set(DECISIONS)
     assert not {"agree", "approve", "approved", "needs-change", "request-changes"} & set(DECISIONS)
     assert sorted(OLD_DECISIONS.values()) == sorted(DECISIONS)
+    shown = set(DECISION_WORDS.values())
+    assert set(DECISION_WORDS) == set(DECISIONS) and len(shown) == len(DECISIONS)
+    assert not shown & states
 
 
 def test_every_kind_of_reason_has_a_noun_to_count_it_by():

@@ -46,6 +46,7 @@ from app.review.packet import (
 from app.safetext import check_name, shown
 from app.store import NewFrame, Project
 from app.store.project import DB_NAME
+from app.wording import DECISION_WORDS
 
 log = logging.getLogger(__name__)
 
@@ -245,7 +246,8 @@ def set_decision(project: Project, frame_id: int, decision: str | None) -> Frame
         return None
     value = parse_decision(decision)
     made = FrameDecision(frame.id, value, reviewer_of(project), time.time())
-    with project.bulk("ReviewDecision", f"frame {frame.id}: {value}", f"frame:{frame.id}",
+    with project.bulk("ReviewDecision", f"frame {frame.id}: {DECISION_WORDS[value]}",
+                      f"frame:{frame.id}",
                       kind="review", frame_id=frame.id) as b:
         b.decisions.put(made)
     return made

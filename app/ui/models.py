@@ -27,7 +27,7 @@ from PySide6.QtGui import QColor, QFont
 from app.model.labels import Frame, FrameState, Note, Person
 from app.store.project import LedgerEntry, Project
 from app.ui.overlay import WHOLE_PERSON, palette_colour
-from app.wording import count, ledger_text, reason_count, reason_label
+from app.wording import DECISION_WORDS, count, ledger_text, reason_count, reason_label
 
 Index = QModelIndex | QPersistentModelIndex
 _ROOT = QModelIndex()
@@ -49,7 +49,7 @@ STATE_TEXT = {
 
 
 #: A reviewer's decision on a frame, as the Worklist and the status bar say it.
-DECISION_TEXT = {"looks-right": "looks right", "query": "queried", "ready": "ready for training"}
+DECISION_TEXT = DECISION_WORDS
 
 
 def clock(seconds: float) -> str:
