@@ -142,6 +142,10 @@ REASONS: dict[str, tuple[str, str]] = {
     "invented": ("invented joint", "invented joints"),
     "hidden": ("hidden joint labelled visible", "hidden joints labelled visible"),
     "missed-person": ("missed person", "missed people"),
+    "exchanged-tracks": ("exchanged pair of tracks", "exchanged pairs of tracks"),
+    "flipped-stretch": ("stretch flipped left to right", "stretches flipped left to right"),
+    "missing-frames": ("track missing for a while", "tracks missing for a while"),
+    "jumping-joint": ("jumping joint", "jumping joints"),
 }
 
 
