@@ -209,7 +209,8 @@ def head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
     torso holds a joint of another person, a smaller one is a fragment of a person (the face
     joints are held whatever the scale, see below).
 
-    Face joints more than ``0.2 H`` apart are taken for two heads (a label given to a
+    Face joints more than ``0.2 H`` apart (H here at least the frame's median stature, as a
+    small torso is the commoner error) are taken for two heads (a label given to a
     neighbour, a face put on the wrong copy of a person found twice; two heads side by side
     are about a shoulder width, 0.26 H, apart, while one head's landmarks lie within 0.1 H
     and a torso seen side on understates H): they are gathered as map peaks are
@@ -279,8 +280,9 @@ def label_head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
         shoulders_on = [j for j in shoulders if on[j]]
         if face_on:
             xy = kp[face_on, :2]
+            typical = high / 2 if np.isfinite(high) else stature  # the frame's median
             groups = _heads(xy, -np.arange(len(xy), dtype=np.float64),
-                            np.full(len(xy), OTHER_HEAD * stature))
+                            np.full(len(xy), OTHER_HEAD * max(stature, typical)))
             groups.sort(key=len, reverse=True)  # stable: of equal groups, the nose's first
             ellipses = [_group_ellipse(xy[g], stature, floor) for g in groups]
             out[n] = ellipses[0]
