@@ -306,8 +306,8 @@ def cmd_demo(args: argparse.Namespace) -> int:
     out = Path(args.dir)
     _check_demo_target(out, args.force)
     generate(out, seed=DEFAULT_SEED if args.seed is None else args.seed, frames=args.frames,
-             progress=_stderr_progress(args.quiet))
-    print(f"wrote the demo scenario to {shown(out)}; open it with "
+             progress=_stderr_progress(args.quiet), scene=args.scene)
+    print(f"wrote the {args.scene} demo scenario to {shown(out)}; open it with "
           f"`posewright open {shown(out)}`")
     return 0
 
@@ -625,6 +625,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--seed", type=whole_number(0), default=None,
                    help="another seed gives another rehearsal (default: the shipped one)")
     p.add_argument("--frames", type=whole_number(1, 10_000), default=24)
+    p.add_argument("--scene", choices=("dance", "choir"), default="dance",
+                   help="the folk-dance rehearsal (default) or a choir on stepped risers")
 
     # Review packets and comparing labels: app/review/commands.py.
     from app.review.commands import register as register_review
