@@ -643,7 +643,7 @@ class Canvas(QWidget):
         font.setBold(True)
         p.setFont(font)
         who = self.theirs_name or "the reviewer"
-        text = f"{who}\u2019s version (read-only) \u2014 B shows ours"
+        text = f"{who}\u2019s version (read-only) \u2014 B shows mine"
         rect = p.fontMetrics().boundingRect(text).adjusted(-10, -5, 10, 5)
         rect.moveTopLeft(self.rect().topLeft() + QPointF(10, 10).toPoint())
         p.setRenderHint(QPainter.RenderHint.Antialiasing, True)
@@ -672,8 +672,11 @@ class Canvas(QWidget):
             if d.scaled_image is not None and abs(d.scale - s) < 1e-9:
                 p.drawImage(top_left, d.scaled_image)
                 return
+            if s * d.reduction >= 0.999:  # a reduced decode, until the whole one comes
+                p.drawImage(target, d.image)
+                return
             if self._scaled is None or self._scaled[0] is not d or self._scaled[1] != s:
-                small = shrink(d.pixels, s, fast=True)
+                small = shrink(d.pixels, s * d.reduction, fast=True)
                 self._scaled = (d, s, small, qimage_view(small))
             p.drawImage(top_left, self._scaled[3])
         else:
@@ -914,7 +917,7 @@ class Canvas(QWidget):
         person = self.person(pid)
         if person is None:
             return ""
-        word = {0: "unlabeled", 1: "occluded", 2: "visible"}[int(person.keypoints[j, 2])]
+        word = {0: "unlabelled", 1: "occluded", 2: "visible"}[int(person.keypoints[j, 2])]
         return f"{self.skeleton.joints[j]} of person {pid} (tag {self.number_of(pid)}), {word}"
 
     # ------------------------------------------------------------------ keys
