@@ -61,6 +61,7 @@ from app.model.edits import (
 )
 from app.model.labels import FrameLabels, FrameState, Person
 from app.model.skeleton import Skeleton
+from app.parallel import check_workers
 from app.progress import Progress
 from app.review.review import is_review
 from app.store.project import Applied, Project
@@ -1505,13 +1506,15 @@ class MainWindow(QMainWindow):
         folder = fn and QFileDialog.getExistingDirectory(self, "Import network maps",
                                                          str(self.project.folder))
         if fn and folder:
-            self.run_long("Importing network maps", lambda pr: fn(self.project, folder, pr),
+            self.run_long("Importing network maps",
+                          lambda pr: fn(self.project, folder, pr, workers=check_workers(None)),
                           lambda _r: self._message("network maps imported"))
 
     def _run_triage(self) -> None:
         fn = self._analysis_job("run_triage")
         if fn is not None:
-            self.run_long("Running triage", lambda pr: fn(self.project, progress=pr),
+            self.run_long("Running triage",
+                          lambda pr: fn(self.project, progress=pr, workers=check_workers(None)),
                           lambda _r: self._message("triage done; the Worklist is re-ranked"))
 
     def _export_labels(self) -> None:
@@ -1535,7 +1538,8 @@ class MainWindow(QMainWindow):
                                                          str(self.project.folder))
         if fn and folder:
             self.run_long("Exporting training targets",
-                          lambda pr: fn(self.project, folder, progress=pr),
+                          lambda pr: fn(self.project, folder, progress=pr,
+                                        workers=check_workers(None)),
                           lambda stats: self._exported(
                               f"training targets of {count(stats['frames'], 'frames')} "
                               f"written to {folder}", stats))
@@ -1606,7 +1610,8 @@ class MainWindow(QMainWindow):
             elif which == "this" and self.frame_id is not None:
                 chosen = [self.frame_id]
             self.run_long(f"Pre-labelling with {Path(model).name}",
-                          lambda pr: prelabel(self.project, model, config, chosen, pr),
+                          lambda pr: prelabel(self.project, model, config, chosen, pr,
+                                              workers=check_workers(None)),
                           self._prelabelled)
 
         dialog.accepted.connect(go)
