@@ -1,4 +1,5 @@
-"""Store benchmarks: COCO import, edit and undo latency, opening a large project.
+"""Store benchmarks: COCO import (whole and streamed, time and peak memory), edit and undo
+latency, opening a large project.
 
 Synthetic data only (random people on blank frames; no image files are read).
 """
