@@ -2,7 +2,7 @@
 
 Every command that meets bad input exits with status 2 after one line on stderr that says what
 is wrong and where (file, record, field), without a traceback and without writing anything.
-Output cut short by its reader (``posewright history P | head``) ends the command quietly with
+Output cut short by its reader (``posewright ledger P | head``) ends the command quietly with
 status 141, what a shell reports for a command stopped by SIGPIPE (128 + 13), as the other
 commands of such a pipeline do (common practice, no source).
 Text that came from a file (names, file names, ledger entries, messages quoting them) is
@@ -27,9 +27,10 @@ from app import __version__
 from app.errors import BadInput, Cancelled, PosewrightError, ProjectLocked
 from app.fileio import MAX_ID, json_ready, read_json
 from app.model.labels import FrameState
+from app.parallel import check_workers
 from app.progress import Progress
 from app.safetext import shown
-from app.wording import count
+from app.wording import count, ledger_text
 
 #: Exit status when the reader of our output went away (128 + SIGPIPE).
 BROKEN_PIPE_STATUS = 141
@@ -259,7 +260,7 @@ def _warn_export(stats: dict[str, Any]) -> None:
         print(f"posewright: warning: {line}", file=sys.stderr)
 
 
-def cmd_history(args: argparse.Namespace) -> int:
+def cmd_ledger(args: argparse.Namespace) -> int:
     with _open(args, write=False) as project:
         frame_id = project.find_frame(args.frame).id if args.frame is not None else None
         entries = project.history(frame_id=frame_id, limit=args.limit)
@@ -270,7 +271,7 @@ def cmd_history(args: argparse.Namespace) -> int:
         when = time.strftime("%Y-%m-%d %H:%M:%S", time.localtime(e.time))
         frame = "-" if e.frame_id is None else str(e.frame_id)
         print(f"{e.seq:>6}  {when}  {shown(e.author):<12}  frame {frame:<6}  {e.kind:<6}  "
-              f"{shown(e.target):<22}  {shown(e.summary)}")
+              f"{shown(e.target):<22}  {shown(ledger_text(e.summary))}")
     return 0
 
 
@@ -338,16 +339,20 @@ def cmd_import_maps(args: argparse.Namespace) -> int:
     from app.jobs_analysis import import_maps
 
     with _open(args) as project:
-        stats = import_maps(project, args.dir, progress=_stderr_progress(args.quiet))
+        stats = import_maps(project, args.dir, progress=_stderr_progress(args.quiet),
+                            workers=check_workers(args.workers))
     return _report_counts(args, stats)
 
 
 def cmd_triage(args: argparse.Namespace) -> int:
     from app.jobs_analysis import run_triage
+    from app.jobs_findings import time_findings
 
     with _open(args) as project:
-        results = run_triage(project, progress=_stderr_progress(args.quiet))
+        results = run_triage(project, progress=_stderr_progress(args.quiet),
+                             workers=check_workers(args.workers))
         frames = {f.id: f for f in project.frames()}
+        over_time = time_findings(project)
     ranked = sorted(results.items(), key=lambda kv: (-kv[1].score, kv[0]))
     if args.limit is not None:
         ranked = ranked[: args.limit]
@@ -355,10 +360,12 @@ def cmd_triage(args: argparse.Namespace) -> int:
         print_json([{"frame": fid, "file_name": frames[fid].file_name,
                      "score": round(t.score, 4), "crowd_index": round(t.crowd_index, 4),
                      "flagged_people": t.flagged,
-                     "reasons": [r.to_dict() for r in t.reasons]} for fid, t in ranked])
+                     "reasons": [r.to_dict() for r in t.reasons],
+                     "over_time": [f.to_dict() for f in over_time.get(fid, [])]}
+                    for fid, t in ranked])
         return 0
     for fid, t in ranked:
-        kinds = sorted({r.kind for r in t.reasons})
+        kinds = sorted({r.kind for r in t.reasons} | {f.kind for f in over_time.get(fid, [])})
         print(f"{t.score:7.2f}  frame {fid:<6} {shown(frames[fid].file_name):<28} "
               f"{len(t.flagged)} flagged  {', '.join(kinds)}")
     return 0
@@ -377,7 +384,8 @@ def cmd_targets(args: argparse.Namespace) -> int:
     settings.check()
     with _open(args, write=False) as project:
         stats = export_targets(project, args.out_dir, settings, states=_states(args.states),
-                               progress=_stderr_progress(args.quiet))
+                               progress=_stderr_progress(args.quiet),
+                               workers=check_workers(args.workers))
     _warn_export(stats)
     note = left_out_note(stats)
     print(f"wrote {count(stats['frames'], 'frames')} of training targets to "
@@ -419,7 +427,8 @@ def cmd_prelabel(args: argparse.Namespace) -> int:
         if args.frames is not None:
             frames = [f.id for f in parse_frames(args.frames, project.frames())]
         stats = prelabel(project, args.model, args.config, frames=frames,
-                         progress=_stderr_progress(args.quiet))
+                         progress=_stderr_progress(args.quiet),
+                         workers=check_workers(args.workers))
     if args.json:
         print_json(stats)
     else:
@@ -497,8 +506,8 @@ def build_parser() -> argparse.ArgumentParser:
                                 parser_class=_Parser)
 
     def command(name: str, fn: Callable[[argparse.Namespace], int], text: str,
-                project: bool = True) -> argparse.ArgumentParser:
-        p = sub.add_parser(name, help=text, description=text)
+                project: bool = True, aliases: Sequence[str] = ()) -> argparse.ArgumentParser:
+        p = sub.add_parser(name, help=text, description=text, aliases=list(aliases))
         if project:
             p.add_argument("project", metavar="PROJECT",
                            help="the project folder, or a hosted project's database URL")
@@ -512,6 +521,11 @@ def build_parser() -> argparse.ArgumentParser:
         p.add_argument("--max-megapixels", type=float, metavar="N",
                        help="refuse to decode images over N megapixels (default: "
                             "$POSEWRIGHT_MAX_MEGAPIXELS, else 100); larger ones are unreadable")
+
+    def workers(p: argparse.ArgumentParser) -> None:
+        p.add_argument("--workers", type=whole_number(1, 1024), metavar="N",
+                       help="processes to compute in (default: $POSEWRIGHT_WORKERS, else "
+                            "every core); the result is the same whatever N")
 
     def video_options(p: argparse.ArgumentParser) -> None:
         p.add_argument("--every", type=whole_number(), metavar="N",
@@ -545,7 +559,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--states", metavar="LIST", default="corrected,signed-off",
                    help=_STATES_HELP)
 
-    p = command("history", cmd_history, "show the ledger of edits, newest first")
+    p = command("ledger", cmd_ledger, "show the Ledger: every edit, newest first (`history`, "
+                "its name until version 0.1.0, still works for one more release)",
+                aliases=["history"])
     p.add_argument("--frame", metavar="ID", help="only this frame (id or file name)")
     p.add_argument("--limit", type=whole_number(0), metavar="N")
     p.add_argument("--json", action="store_true")
@@ -557,11 +573,13 @@ def build_parser() -> argparse.ArgumentParser:
                 "import network maps (.npz per image) and group them into auto-labels")
     p.add_argument("dir", metavar="DIR")
     p.add_argument("--json", action="store_true")
+    workers(p)
 
     p = command("triage", cmd_triage, "rank frames by suspicion, with reasons (stored)")
     p.add_argument("--json", action="store_true")
     p.add_argument("--limit", type=whole_number(0), metavar="N",
                    help="show only the N worst frames")
+    workers(p)
 
     p = command("targets", cmd_targets,
                 "write training targets (confidence maps, PAFs, loss masks) per frame (by "
@@ -576,6 +594,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--dtype", choices=("float16", "float32"), default="float32")
     p.add_argument("--states", metavar="LIST", default="corrected,signed-off",
                    help=_STATES_HELP)
+    workers(p)
 
     p = command("prelabel", cmd_prelabel,
                 "run an ONNX pose model on the CPU and store what it finds as auto-labels")
@@ -591,6 +610,7 @@ def build_parser() -> argparse.ArgumentParser:
                    help="refuse a config whose tensors would need more than MB megabytes "
                         "(default: $POSEWRIGHT_MEMORY_BUDGET_MB, else 2048)")
     pixel_limit(p)
+    workers(p)
 
     p = command("open", cmd_open, "open the project in the desktop app")
     p.add_argument("--screenshot", metavar="FILE.png",
@@ -632,6 +652,10 @@ def build_parser() -> argparse.ArgumentParser:
     from app.findings_commands import register as register_findings
 
     register_findings(sub, command)
+    # Sequences and tracks: app/track_commands.py.
+    from app.track_commands import register as register_tracks
+
+    register_tracks(sub, command)
     _images_root_option(sub)
     return parser
 
@@ -639,7 +663,7 @@ def build_parser() -> argparse.ArgumentParser:
 def _images_root_option(sub: Any) -> None:
     """Give every command that takes a project ``--images-root DIR`` (and ``--images DIR``
     where ``--images`` means nothing else): a hosted project's images root on this machine."""
-    for parser in sub.choices.values():
+    for parser in {id(p): p for p in sub.choices.values()}.values():  # aliases: once each
         nested = [a for a in parser._actions if isinstance(a, argparse._SubParsersAction)]
         for action in nested:
             _images_root_option(action)

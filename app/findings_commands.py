@@ -15,6 +15,7 @@ from typing import Any
 
 from app.errors import BadInput
 from app.safetext import shown
+from app.wording import count
 
 Command = Callable[..., argparse.ArgumentParser]
 
@@ -25,7 +26,8 @@ def register(sub: Any, command: Command) -> None:
     ``sub`` is the top-level subparsers object, ``command`` app/cli.py's helper that adds a
     command with ``PROJECT``, ``--author`` and ``-q``.
     """
-    from app.analysis.triage.fixes import KINDS
+    from app.cli import whole_number
+    from app.jobs_findings import ALL_KINDS
 
     p = command("findings", cmd_findings,
                 "each problem triage found, where it is and the fix it proposes, worst first; "
@@ -33,7 +35,8 @@ def register(sub: Any, command: Command) -> None:
     p.add_argument("--frames", metavar="LIST",
                    help="frame ids and ranges (1,2,5-9), 'untouched' or 'all' (default all)")
     p.add_argument("--kinds", metavar="K,K",
-                   help="only these kinds: " + ", ".join(KINDS) + " (default all)")
+                   help="only these kinds: " + ", ".join(ALL_KINDS) + " (default all; the "
+                        "kinds over time once the project has tracks, see `posewright track`)")
     p.add_argument("--json", action="store_true", help="print the findings as JSON")
     p.add_argument("--accept", metavar="all|K,K",
                    help="apply the proposed fixes of all kinds or of these kinds, each as one "
@@ -45,8 +48,11 @@ def register(sub: Any, command: Command) -> None:
     p.add_argument("--dismiss", metavar="ID,ID",
                    help="record these findings as not a problem (undoable); they are not "
                         "raised again while the labels they are about stay the same")
+    p.add_argument("--workers", type=whole_number(1, 1024), metavar="N",
+                   help="processes to triage the frames whose findings are out of date in "
+                        "(default: $POSEWRIGHT_WORKERS, else every core); the same findings "
+                        "whatever N")
 
-    from app.cli import whole_number
 
     for name, fn, text in (("undo", cmd_undo, "take back your newest actions (one step each)"),
                            ("redo", cmd_redo, "do again your newest actions taken back")):
@@ -70,6 +76,7 @@ def _progress(args: argparse.Namespace) -> Any:
 def cmd_findings(args: argparse.Namespace) -> int:
     from app.cli import print_json
     from app.jobs_findings import current_findings, dismiss, parse_kinds
+    from app.parallel import check_workers
 
     kinds = parse_kinds(args.kinds)
     if args.accept is None and (args.dry_run or args.min_confidence != 0.0):
@@ -89,7 +96,8 @@ def cmd_findings(args: argparse.Namespace) -> int:
         return _accept(args, kinds)
     with _open(args, write=False) as project:
         frame_ids = _frame_ids(project, args.frames)
-        found = current_findings(project, frame_ids, _progress(args))
+        found = current_findings(project, frame_ids, _progress(args),
+                                 workers=check_workers(args.workers))
         names = {f.id: f.file_name for f in project.frames()}
     rows = [f for fid in sorted(found) for f in found[fid] if kinds is None or f.kind in kinds]
     rows.sort(key=lambda f: (-f.worth, f.frame_id, f.id))
@@ -107,8 +115,8 @@ def cmd_findings(args: argparse.Namespace) -> int:
         print(f"      fix: {shown(f.fix.summary)}" if f.fix is not None else
               "      fix: none proposed")
     with_fix = sum(f.fix is not None for f in rows)
-    print(f"{len(rows)} findings in {len({f.frame_id for f in rows})} frames, {with_fix} with "
-          "a proposed fix")
+    print(f"{count(len(rows), 'finding')} in {count(len({f.frame_id for f in rows}), 'frame')}, "
+          f"{with_fix} with a proposed fix")
     return 0
 
 
@@ -127,7 +135,7 @@ def _accept(args: argparse.Namespace, kinds: set[str] | None) -> int:
         print(f"{f.confidence:4.2f}  {f.id}  frame {f.frame_id} {shown(names[f.frame_id])}  "
               f"{f.kind}: {shown(f.fix.summary if f.fix else '')}")
     verb = "would apply" if args.dry_run else "applied"
-    line = f"{verb} {len(report.fixes)} fixes in {len(report.frames)} frames"
+    line = f"{verb} {count(len(report.fixes), 'fix')} in {count(len(report.frames), 'frame')}"
     extra = []
     if report.held_back:
         extra.append(f"{report.held_back} held back by an overlapping fix")
@@ -163,7 +171,7 @@ def _unwind(args: argparse.Namespace, redo: bool) -> int:
             print(f"{word}{frame}: {shown(summary)}")
     if done < steps:
         print(f"nothing more to {'redo' if redo else 'undo'}"
-              + (f" after {done} step{'s' if done != 1 else ''}" if done else ""),
+              + (f" after {count(done, 'step')}" if done else ""),
               file=sys.stderr if done else sys.stdout)
     return 0
 

@@ -17,6 +17,7 @@ import numpy as np
 from app.analysis.anthropometry import limb_fractions, person_scale
 from app.analysis.association import limb_scores
 from app.model.skeleton import Skeleton
+from app.wording import count
 
 #: A limb up to this many times its expected length costs nothing (projection shortens limbs,
 #: people differ by about 10 %, and the scale estimate itself is rough).
@@ -109,8 +110,7 @@ def candidate_owners(
                 mean, _ = limb_scores(maps.pafs[c], start[None], end[None], maps.stride)
                 values.append(max(float(mean[0, 0]), 0.0))
             score = float(np.mean(values))
-            plural = "s" if len(values) > 1 else ""
-            reason = f"the model's field along {len(values)} limb{plural}"
+            reason = f"the model's field along {count(len(values), 'limb')}"
         else:
             scale = person_scale(kp, skeleton)
             costs, lengths = [], []
@@ -129,7 +129,7 @@ def candidate_owners(
                 reason = f"{min(lengths):.0f} px from the nearest joint (no torso to compare)"
         if kp[joint, 2] > 0:
             score *= 0.8
-            reason += " · swaps with theirs"
+            reason += " · swaps with its own"
         out.append(Candidate(int(pid), score, reason))
     out.sort(key=lambda c: (-c.score, c.person_id))
     return out

@@ -7,8 +7,9 @@ every edit can invert itself (the command pattern). The store writes the same ch
 append-only ledger, which is why undo survives a restart.
 
 Targets are small typed values (:mod:`app.model.targets`): :class:`PersonTarget`,
-:class:`JointTarget`, :class:`StateTarget`, :class:`NoteTarget`, :class:`RegionTarget`,
-:class:`KeptTarget` and :class:`DismissalTarget`; that module says which value each carries.
+:class:`JointTarget`, :class:`TrackTarget`, :class:`StateTarget`, :class:`NoteTarget`,
+:class:`RegionTarget`, :class:`KeptTarget` and :class:`DismissalTarget`; that module says
+which value each carries.
 
 Edits are refused with :class:`~app.errors.EditRefused` (and nothing changes) when they would
 make the labels inconsistent; the message says why and what to do.
@@ -35,10 +36,15 @@ from app.model.targets import (
     RegionTarget,
     StateTarget,
     Target,
+    TrackTarget,
 )
+from app.wording import plural
 
-TARGET_TYPES = (PersonTarget, JointTarget, StateTarget, NoteTarget, RegionTarget, KeptTarget,
-                DismissalTarget, RecordTarget)
+#: The provenance of joints interpolated from neighbouring frames, not yet checked by anyone.
+INTERPOLATED = "interpolated"
+
+TARGET_TYPES = (PersonTarget, JointTarget, TrackTarget, StateTarget, NoteTarget, RegionTarget,
+                KeptTarget, DismissalTarget, RecordTarget)
 
 
 @dataclass(frozen=True)
@@ -77,6 +83,8 @@ def _current(labels: FrameLabels, target: Target) -> Any:
         return None if p is None else p.to_value()
     if isinstance(target, JointTarget):
         return labels.person(target.person).joint_value(target.joint)
+    if isinstance(target, TrackTarget):
+        return labels.person(target.person).track_value()
     if isinstance(target, StateTarget):
         return labels.state.value
     if isinstance(target, NoteTarget):
@@ -122,6 +130,10 @@ def apply_changes(labels: FrameLabels, changes: Iterable[Change]) -> FrameLabels
             if t.person not in people:
                 raise EditRefused(f"frame {labels.frame_id} has no person {t.person}")
             people[t.person] = people[t.person].with_joint(t.joint, ch.after)
+        elif isinstance(t, TrackTarget):
+            if t.person not in people:
+                raise EditRefused(f"frame {labels.frame_id} has no person {t.person}")
+            people[t.person] = people[t.person].with_track(ch.after)
         elif isinstance(t, StateTarget):
             state = FrameState(ch.after)
         elif isinstance(t, NoteTarget):
@@ -248,7 +260,7 @@ class SetVisibility(Edit):
         return [_joint_change(p, j, [x, y, int(self.v), s, ctx.author])]
 
     def summary(self) -> str:
-        word = {0: "unlabeled", 1: "occluded", 2: "visible"}.get(self.v, str(self.v))
+        word = {0: "unlabelled", 1: "occluded", 2: "visible"}.get(self.v, str(self.v))
         return f"mark joint {self.joint} of person {self.person_id} {word}"
 
 
@@ -273,7 +285,7 @@ class ReassignJoint(Edit):
         if giver.id == taker.id:
             raise EditRefused(f"joint {j} already belongs to person {giver.id}")
         if giver.keypoints[j, 2] <= 0:
-            raise EditRefused(f"joint {j} of person {giver.id} is unlabeled; nothing to give")
+            raise EditRefused(f"joint {j} of person {giver.id} is unlabelled; nothing to give")
         gx, gy, gv, gs, _ = giver.joint_value(j)
         tx, ty, tv, ts, _ = taker.joint_value(j)
         to_taker = [gx, gy, gv, gs, ctx.author]
@@ -287,18 +299,27 @@ class ReassignJoint(Edit):
 
 @dataclass(frozen=True)
 class NewPerson(Edit):
-    """Add a person, optionally with joints ``(K, 3)``; the store fills in a fresh id."""
+    """Add a person, optionally with joints ``(K, 3)``; the store fills in a fresh id.
+
+    ``source`` names the joints' provenance when it is not the author: a person interpolated
+    from neighbouring frames is :data:`INTERPOLATED` until someone edits its joints, which is
+    how it stays marked for checking. ``track`` puts the new person on a track.
+    """
 
     frame_id: int
     person_id: int | None = None
     keypoints: tuple[tuple[float, float, int], ...] | None = None
+    source: str | None = None
+    track: int | None = None
 
     def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
         if self.person_id is None:
             raise EditRefused("a new person needs an id (the store assigns one)")
         if self.person_id in labels.people:
             raise EditRefused(f"person {self.person_id} already exists")
-        p = Person.blank(self.person_id, labels.num_joints, ctx.author)
+        p = Person.blank(self.person_id, labels.num_joints, self.source or ctx.author)
+        if self.track is not None:
+            p = replace(p, track=int(self.track), track_source=ctx.author)
         if self.keypoints is not None:
             kp = np.asarray(self.keypoints, dtype=np.float64)
             if kp.shape != (labels.num_joints, 3):
@@ -347,8 +368,9 @@ class MergePeople(Edit):
         both = np.flatnonzero(keep.labelled & gone.labelled)
         if both.size:
             raise EditRefused(
-                f"person {keep.id} and person {gone.id} both have joint(s) "
-                f"{', '.join(map(str, both))} labelled; unlabel or reassign one of each first"
+                f"person {keep.id} and person {gone.id} both have "
+                f"{plural(both.size, 'joint')} {', '.join(map(str, both))} labelled; unlabel or "
+                "reassign one of each first"
             )
         changes = []
         for j in np.flatnonzero(gone.labelled):
@@ -413,6 +435,37 @@ class SwapSides(Edit):
 
     def summary(self) -> str:
         return f"swap left and right of person {self.person_id}"
+
+
+@dataclass(frozen=True)
+class SetTrack(Edit):
+    """Put a person on a track (``track`` None takes them off every track).
+
+    Tracks say who is who across the frames of a sequence; joining two tracks or splitting
+    one is a batch of these over the frames concerned (:mod:`app.model.tracks`). A track set
+    here is credited to the author, and linking again keeps it. Tracks are not what training
+    sees, so setting one does not mark the frame corrected.
+    """
+
+    frame_id: int
+    person_id: int
+    track: int | None
+    changes_labels: ClassVar[bool] = False
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        p = labels.person(self.person_id)
+        if self.track is not None and int(self.track) < 0:
+            raise EditRefused(f"track {self.track} is not a track id (0 or more)")
+        after = [None if self.track is None else int(self.track),
+                 "" if self.track is None else ctx.author]
+        if same_value(p.track_value(), after):
+            return []
+        return [Change(TrackTarget(p.id), p.track_value(), after)]
+
+    def summary(self) -> str:
+        if self.track is None:
+            return f"take person {self.person_id} off their track"
+        return f"put person {self.person_id} on track {self.track}"
 
 
 @dataclass(frozen=True)
@@ -555,7 +608,7 @@ class KeepOurs(Edit):
         return changes
 
     def summary(self) -> str:
-        return "keep ours"
+        return "keep mine"
 
 
 @dataclass(frozen=True)
@@ -698,7 +751,7 @@ def edit_to_value(edit: Edit) -> dict[str, Any]:
     """
     name = type(edit).__name__
     if name not in _SERIALISABLE:
-        raise EditRefused(f"{name} edits are not written out")
+        raise EditRefused(f"an edit of type {name} is not written out")
     out: dict[str, Any] = {"op": name}
     for key, value in edit.__dict__.items():
         if isinstance(edit, EditGroup) and key == "edits":
@@ -735,7 +788,7 @@ def edit_from_value(value: Any) -> Edit:
     try:
         return cls(**fields)
     except TypeError as exc:
-        raise EditRefused(f"not a {value['op']} edit: {exc}") from None
+        raise EditRefused(f"not an edit of type {value['op']}: {exc}") from None
 
 
 def _plain(value: Any) -> Any:
@@ -746,7 +799,7 @@ def _plain(value: Any) -> Any:
 
 _SERIALISABLE.update({cls.__name__: cls for cls in (
     MoveJoint, SetVisibility, ReassignJoint, NewPerson, DeletePerson, MergePeople,
-    SplitPerson, SwapSides, SetFrameState, DismissFinding, EditGroup)})
+    SplitPerson, SwapSides, SetTrack, SetFrameState, DismissFinding, EditGroup)})
 
 
 def labels_changed(changes: Sequence[Change]) -> bool:

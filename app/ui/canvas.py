@@ -84,6 +84,39 @@ class _RegionDrag:
 Marks = dict[tuple[int, int], tuple[float, float] | None]
 
 
+class _OverlayLayer:
+    """The overlay of the frame on screen, painted once into a transparent image and copied
+    onto the Canvas while nothing it shows changes (people, selection, hover, zoom, size,
+    style): a repaint for any other reason (an exposed window, the picture refined, the
+    status of a neighbour) then costs one copy instead of painting every person again."""
+
+    def __init__(self) -> None:
+        self._key: tuple[Any, ...] | None = None
+        self._image: QImage | None = None
+        self._layout: OverlayLayout | None = None
+
+    def paint(self, p: QPainter, canvas: Canvas, people: list[Any]) -> OverlayLayout:
+        assert canvas.frame is not None
+        style = canvas.style()
+        t = canvas.transform()
+        dpr = canvas.devicePixelRatioF()
+        key = (canvas.frame.id, canvas.width(), canvas.height(), dpr,
+               (t.m11(), t.m22(), t.dx(), t.dy()), repr(style), id(canvas.skeleton),
+               tuple((q.id, np.asarray(q.keypoints).tobytes()) for q in people))
+        if key != self._key or self._image is None or self._layout is None:
+            image = QImage(round(canvas.width() * dpr), round(canvas.height() * dpr),
+                           QImage.Format.Format_ARGB32_Premultiplied)
+            image.setDevicePixelRatio(dpr)
+            image.fill(Qt.GlobalColor.transparent)
+            painter = QPainter(image)
+            self._layout = paint_overlay(painter, people, canvas.skeleton, t, style,
+                                         (canvas.frame.width, canvas.frame.height))
+            painter.end()
+            self._image, self._key = image, key
+        p.drawImage(QPointF(0, 0), self._image)
+        return self._layout
+
+
 class Canvas(QWidget):
     """The central image view. See the module docstring for the design.
 
@@ -155,6 +188,7 @@ class Canvas(QWidget):
         self.theirs_name = ""
         self.showing_theirs = False
 
+        self._overlay = _OverlayLayer()
         self._decoded: Decoded | None = None
         # A quick shrunk copy for a zoom the decoder did not prepare: (for which decoded
         # image, at which scale, pixels, image).
@@ -193,6 +227,7 @@ class Canvas(QWidget):
             (frame.width, frame.height) and not self._fit_mode
         self.frame = frame
         self._decoded = None
+        self._overlay = _OverlayLayer()  # a frame shown anew is painted anew
         self.painted_frame = None
         self.message = ""
         self._joints = []
@@ -627,8 +662,7 @@ class Canvas(QWidget):
             people: list[Any] = self.people
             if self._drag is not None and self._drag.moved:
                 people = self._with_drag(people, self._drag)
-            self._layout = paint_overlay(p, people, self.skeleton, self.transform(), self.style(),
-                                         (self.frame.width, self.frame.height))
+            self._layout = self._overlay.paint(p, self, people)
             if self.showing_theirs:
                 self._paint_banner(p)
             if self._decoded is not None and self.painted_frame != self.frame.id:
@@ -643,7 +677,7 @@ class Canvas(QWidget):
         font.setBold(True)
         p.setFont(font)
         who = self.theirs_name or "the reviewer"
-        text = f"{who}\u2019s version (read-only) \u2014 B shows ours"
+        text = f"{who}\u2019s version (read-only) \u2014 B shows mine"
         rect = p.fontMetrics().boundingRect(text).adjusted(-10, -5, 10, 5)
         rect.moveTopLeft(self.rect().topLeft() + QPointF(10, 10).toPoint())
         p.setRenderHint(QPainter.RenderHint.Antialiasing, True)
@@ -672,8 +706,11 @@ class Canvas(QWidget):
             if d.scaled_image is not None and abs(d.scale - s) < 1e-9:
                 p.drawImage(top_left, d.scaled_image)
                 return
+            if s * d.reduction >= 0.999:  # a reduced decode, until the whole one comes
+                p.drawImage(target, d.image)
+                return
             if self._scaled is None or self._scaled[0] is not d or self._scaled[1] != s:
-                small = shrink(d.pixels, s, fast=True)
+                small = shrink(d.pixels, s * d.reduction, fast=True)
                 self._scaled = (d, s, small, qimage_view(small))
             p.drawImage(top_left, self._scaled[3])
         else:
@@ -914,7 +951,7 @@ class Canvas(QWidget):
         person = self.person(pid)
         if person is None:
             return ""
-        word = {0: "unlabeled", 1: "occluded", 2: "visible"}[int(person.keypoints[j, 2])]
+        word = {0: "unlabelled", 1: "occluded", 2: "visible"}[int(person.keypoints[j, 2])]
         return f"{self.skeleton.joints[j]} of person {pid} (tag {self.number_of(pid)}), {word}"
 
     # ------------------------------------------------------------------ keys

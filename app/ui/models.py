@@ -27,6 +27,7 @@ from PySide6.QtGui import QColor, QFont
 from app.model.labels import Frame, FrameState, Note, Person
 from app.store.project import LedgerEntry, Project
 from app.ui.overlay import WHOLE_PERSON, palette_colour
+from app.wording import DECISION_WORDS, count, ledger_text, reason_count, reason_label
 
 Index = QModelIndex | QPersistentModelIndex
 _ROOT = QModelIndex()
@@ -48,7 +49,7 @@ STATE_TEXT = {
 
 
 #: A reviewer's decision on a frame, as the Worklist and the status bar say it.
-DECISION_TEXT = {"agree": "agree", "needs-change": "needs change", "signed-off": "signed off"}
+DECISION_TEXT = DECISION_WORDS
 
 
 def clock(seconds: float) -> str:
@@ -93,17 +94,6 @@ def when(t: float) -> str:
     if time.strftime("%Y-%m-%d", lt) == time.strftime("%Y-%m-%d"):
         return time.strftime("%H:%M:%S", lt)
     return time.strftime("%Y-%m-%d %H:%M", lt)
-
-
-def reason_label(kind: str) -> str:
-    """A triage reason kind as the Worklist's filter shows it.
-
-    Examples
-    --------
-    >>> reason_label("long_limb")
-    'long limb'
-    """
-    return str(kind).replace("_", " ").replace("-", " ").strip() or "other"
 
 
 class _TableModel(QAbstractTableModel):
@@ -300,7 +290,7 @@ def summarise_reasons(reasons: Sequence[dict[str, Any]]) -> str:
     ...                    {"kind": "weak-limb", "person": 3, "weight": 0.4},
     ...                    {"kind": "weak-limb", "person": 5, "weight": 0.3},
     ...                    {"kind": "stretched-limb", "person": 4, "weight": 0.9}])
-    'stretched limb \u00b7 weak limb 2 \u00b7 crowded'
+    'stretched limb \u00b7 2 weak limbs \u00b7 crowded'
     """
     kinds: dict[str, list[float]] = {}
     for r in reasons:
@@ -310,8 +300,7 @@ def summarise_reasons(reasons: Sequence[dict[str, Any]]) -> str:
         entry[1] += 1
         entry[2] = max(entry[2], 1.0 if r.get("person") is None else 0.0)
     order = sorted(kinds, key=lambda k: (kinds[k][2], -kinds[k][0], -kinds[k][1], k))
-    parts = [reason_label(k) + (f" {int(kinds[k][1])}" if kinds[k][1] > 1 else "")
-             for k in order]
+    parts = [reason_count(k, int(kinds[k][1])) for k in order]
     return " \u00b7 ".join(parts)
 
 
@@ -550,7 +539,7 @@ class LedgerModel(_TableModel):
                 return ", ".join(map(str, r.frames[:3])) + ("\u2026" if len(r.frames) > 3 else "")
             return r.summary
         if role == ToolTipRole:
-            return (f"{r.kind}, {r.changes} change(s), ledger entry {r.seq}\n"
+            return (f"{r.kind}, {count(r.changes, 'change')}, ledger entry {r.seq}\n"
                     f"{time.strftime('%Y-%m-%d %H:%M:%S', time.localtime(r.time))}")
         if role == ForegroundRole and r.kind in ("undo", "redo"):
             return QColor("#777777")
@@ -573,8 +562,8 @@ def group_entries(entries: Sequence[LedgerEntry]) -> list[LedgerRow]:
         row = rows.get(e.group_id)
         frames = () if e.frame_id is None else (e.frame_id,)
         if row is None:
-            rows[e.group_id] = LedgerRow(e.group_id, e.seq, e.kind, e.summary, e.author, e.time,
-                                         frames, 1)
+            rows[e.group_id] = LedgerRow(e.group_id, e.seq, e.kind, ledger_text(e.summary),
+                                         e.author, e.time, frames, 1)
             order.append(e.group_id)
         else:
             merged = row.frames + tuple(f for f in frames if f not in row.frames)

@@ -125,7 +125,7 @@ class WorklistPanel(QWidget):
         self.reason_filter.clear()
         self.reason_filter.addItem("all reasons", None)
         for kind, n in self.model.reason_kinds():
-            self.reason_filter.addItem(f"{reason_label(kind)} ({n})", kind)
+            self.reason_filter.addItem(f"{reason_label(kind)} \u00b7 {count(n, 'frame')}", kind)
         i = self.reason_filter.findData(current)
         self.reason_filter.setCurrentIndex(max(i, 0))
         self.reason_filter.blockSignals(False)
@@ -287,7 +287,7 @@ class OwnersPanel(QWidget):
 # ---------------------------------------------------------------------------------- Ledger
 
 class LedgerPanel(QWidget):
-    """The ledger of this frame or of the whole project, with undo, redo and return-to."""
+    """The ledger of this frame or of the whole project, with undo, redo and rewind."""
 
     returnRequested = Signal(int, bool)  # ledger seq, whole project
     scopeChanged = Signal(bool)
@@ -301,7 +301,7 @@ class LedgerPanel(QWidget):
         self.scope.addItem("whole project", True)
         self.view = _table(model, 3, (80, 70, 60))
         self.view.setObjectName("LedgerView")
-        self.back = QPushButton("Return to this point")
+        self.back = QPushButton("Rewind to this point")
         self.back.setToolTip("Bring the labels back to how they were right after the selected "
                              "action (recorded as a new, undoable action)")
         self.back.setEnabled(False)

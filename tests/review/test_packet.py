@@ -23,6 +23,7 @@ from app.errors import BadInput
 from app.formats.images import decode_image
 from app.jobs import new_project
 from app.model.edits import MoveJoint
+from app.model.labels import FrameState
 from app.review import safezip
 from app.review.blur import head_ellipses
 from app.review.merge import merge_packet
@@ -205,7 +206,7 @@ def test_a_packet_from_another_project_is_refused_and_nothing_changes(labelled, 
 
 
 def test_a_packet_not_yet_returned_cannot_be_merged(labelled, tmp_path):
-    with pytest.raises(BadInput, match="has not been returned yet"):
+    with pytest.raises(BadInput, match="has not been sent back yet"):
         merge_packet(labelled, send(labelled, tmp_path / "p.zip"))
 
 
@@ -396,7 +397,7 @@ def test_only_images_that_decode_inside_the_images_folder_travel(linked, tmp_pat
     Synthetic images; the rule is our own."""
     frames = linked.frames()
     assert [f.status for f in frames] == ["ok", "ok", "ok", "corrupt", "ok", "ok"]
-    stats = export_packet(linked, tmp_path / "p.zip", frames, images=mode)
+    stats = export_packet(linked, tmp_path / "p.zip", frames, images=mode, accept_risk=True)
     suffix = ".jpg" if mode == "full" else ".png"
     assert _images_in(tmp_path / "p.zip") == {f"images/{f.id}{suffix}"
                                               for f in frames if f.id in (1, 3, 6)}
@@ -434,3 +435,44 @@ def test_a_review_folder_from_before_names_were_recorded_keeps_its_reviewer(labe
     conn.close()
     with open_packet(path) as again:
         assert again.meta("review_reviewer") is None and again.author == "bea"
+
+
+@pytest.mark.folder_only  # the packet's format: no backend changes it
+@pytest.mark.parametrize(("old", "new", "state"), [
+    ("agree", "looks-right", None), ("needs-change", "query", FrameState.DISPUTED),
+    ("signed-off", "ready", FrameState.SIGNED_OFF)])
+def test_a_packet_returned_with_the_decisions_of_version_0_1_0_still_merges(
+        labelled, tmp_path, old, new, state):
+    """A returned packet written before the decisions were renamed (its manifest holds
+    ``agree``, ``needs-change`` or ``signed-off``) reads as today's words and sets the same
+    state (synthetic packet; our own format)."""
+    returned = _returned_with_everything(labelled, tmp_path)
+    older = rewrite_json(returned, tmp_path / "old-returned.zip", "manifest.json",
+                         _put(["returned", "decisions", 0, "decision"], old))
+    packet = read_packet(older, returned=True)
+    fid = labelled.frames()[0].id
+    assert packet.returned.decisions[fid].decision == new
+    merge_packet(labelled, older)
+    assert labelled.frame(fid).state is (state or FrameState.CORRECTED)
+
+
+@pytest.mark.folder_only  # a review project is always a folder
+def test_a_review_project_that_holds_decisions_of_version_0_1_0_reads_them_as_today(
+        labelled, tmp_path):
+    """A review opened with version 0.1.0 stored "needs-change" in its project; opened again
+    it reads as "query", and the same key withdraws it (synthetic project; our own rule)."""
+    from app.review.review import decisions, set_decision
+
+    path = send(labelled, tmp_path / "p.zip", images="none")
+    fid = labelled.frames()[0].id
+    with open_packet(path) as reviewed:
+        set_decision(reviewed, fid, "query")
+    db = sqlite3.connect(review_folder(path) / "project.db")
+    with db:
+        db.execute("UPDATE review_decisions SET decision = 'needs-change'")
+    db.close()
+    with open_packet(path) as reviewed:
+        assert decisions(reviewed)[fid].decision == "query"
+        assert set_decision(reviewed, fid, "needs change").decision == "query"
+        set_decision(reviewed, fid, None)
+        assert fid not in decisions(reviewed)

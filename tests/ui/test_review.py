@@ -57,7 +57,7 @@ def dispute(qtbot, window, ui_project, tmp_path, monkeypatch):
     b = person_id(window, 2)
     start = _kp(ui_project, fid, b)
     packet = tmp_path / "to-bea.zip"
-    export_packet(ui_project, packet, [ui_project.frame(fid)], reviewer="bea")
+    export_packet(ui_project, packet, [ui_project.frame(fid)], reviewer="bea", images="none")
     with open_packet(packet, reviewer="bea") as reviewed:
         for j, (dx, dy) in THEIRS.items():
             reviewed.apply(MoveJoint(fid, b, j, start[j, 0] + dx, start[j, 1] + dy))
@@ -150,7 +150,7 @@ def test_a_person_the_reviewer_deleted_is_taken_whole(qtbot, window, ui_project,
     fid = window.frame_id
     c = person_id(window, 3)
     packet = tmp_path / "to-bea.zip"
-    export_packet(ui_project, packet, [ui_project.frame(fid)], reviewer="bea")
+    export_packet(ui_project, packet, [ui_project.frame(fid)], reviewer="bea", images="none")
     with open_packet(packet, reviewer="bea") as reviewed:
         reviewed.apply(DeletePerson(fid, c))
         returned = return_packet(reviewed)
@@ -176,7 +176,7 @@ def test_the_reviewer_version_is_not_edited(qtbot, dispute, ui_project):
     qtbot.keyClick(window.canvas, Qt.Key.Key_B)
     qtbot.keyClick(window.canvas, Qt.Key.Key_U)  # mark unlabeled: refused while theirs shows
     np.testing.assert_array_equal(_kp(ui_project, fid, b), before)
-    assert "B goes back to ours" in window.status_log.last
+    assert "B goes back to mine" in window.status_log.last
 
 
 def test_send_frames_for_review_from_the_project_menu(qtbot, window, ui_project, tmp_path):
@@ -196,6 +196,33 @@ def test_send_frames_for_review_from_the_project_menu(qtbot, window, ui_project,
     _close_boxes(window)
 
 
+def test_the_send_form_warns_of_frames_without_maps_and_sends_blurred_only_if_accepted(
+        qtbot, window, ui_project, tmp_path):
+    """Issue 17: without maps the labels are all that places a blur (with the face
+    detector); the form shows the command line's lines and needs "Send anyway"."""
+    out = tmp_path / "blurred.zip"
+    _press(window.canvas, "export_packet")
+    dialog = window.findChild(QDialog, "PacketDialog")
+    dialog.frames.setCurrentIndex(dialog.frames.findData("this"))
+    dialog.images.setCurrentIndex(dialog.images.findData("blurred-heads"))
+    line = f"frame {window.frame_id}: people the labels miss may be unblurred: no maps"
+    assert dialog.risk_lines == [line] and line in dialog.warning.text()
+    assert dialog.warning.isVisible() and dialog.accept_risk.isVisible()
+    dialog.out.set_text(str(out))
+    dialog.accept()
+    assert dialog.isVisible() and "may show people unblurred" in dialog.problem.text()
+    dialog.images.setCurrentIndex(dialog.images.findData("none"))
+    assert not dialog.warning.isVisible()
+    dialog.images.setCurrentIndex(dialog.images.findData("blurred-heads"))
+    dialog.accept_risk.setChecked(True)
+    dialog.accept()
+    qtbot.waitUntil(out.exists, timeout=WAIT_MS)
+    qtbot.waitUntil(lambda: "wrote" in window.status_log, timeout=WAIT_MS)
+    frame, = read_packet(out).manifest["frames"]
+    assert frame["blur"]["risk"] == line.split(": ", 1)[1]
+    _close_boxes(window)
+
+
 def test_review_mode_opens_a_zip_decides_and_returns_it(qtbot, ui_project, tmp_path):
     packet = tmp_path / "rehearsal.zip"
     export_packet(ui_project, packet, [ui_project.frame(2), ui_project.frame(3)],
@@ -212,15 +239,15 @@ def test_review_mode_opens_a_zip_decides_and_returns_it(qtbot, ui_project, tmp_p
         assert "&Review" in [a.text() for a in window.menuBar().actions()]
 
         qtbot.keyClick(canvas, Qt.Key.Key_1, Qt.KeyboardModifier.ControlModifier)
-        assert decisions(project)[fid].decision == "agree"
+        assert decisions(project)[fid].decision == "looks-right"
         assert decisions(project)[fid].author == "bea"
         row = window.worklist_model.row_of(fid)
-        assert "agree" in window.worklist_model.index(row, 2).data()
+        assert "looks right" in window.worklist_model.index(row, 2).data()
         qtbot.keyClick(canvas, Qt.Key.Key_1, Qt.KeyboardModifier.ControlModifier)
         assert fid not in decisions(project), "the same key again withdraws it"
         qtbot.keyClick(canvas, Qt.Key.Key_2, Qt.KeyboardModifier.ControlModifier)
-        assert decisions(project)[fid].decision == "needs-change"
-        assert "needs change" in window.status_state.text()
+        assert decisions(project)[fid].decision == "query"
+        assert "queried" in window.status_state.text()
         assert window.actions_by_name["decide_needs_change"].isChecked()
 
         _press(canvas, "return_packet")
@@ -229,7 +256,7 @@ def test_review_mode_opens_a_zip_decides_and_returns_it(qtbot, ui_project, tmp_p
         qtbot.waitUntil(lambda: str(returned) in window.status_log, timeout=WAIT_MS)
         back = read_packet(returned, returned=True)
         assert back.returned.reviewer == "bea"
-        assert back.returned.decisions[fid].decision == "needs-change"
+        assert back.returned.decisions[fid].decision == "query"
         _close_boxes(window)
     finally:
         window.shutdown()
