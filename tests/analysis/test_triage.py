@@ -169,8 +169,9 @@ def test_triage_finds_the_wrong_people_of_the_demo(tmp_path):
     """Issue 3's measurement on the shipped demo (synthetic; seed 1966, which took no part in
     fitting the weights): recall >= 0.9 and precision >= 0.7 of flagged (suspicion >= FLAG_AT)
     against wrong (no pairing at OKS >= 0.8 by pycocotools' OKS and scipy's assignment).
-    Measured on the demo with errors that last over frames: 384 people, 121 wrong, 147
-    flagged, 117 of them wrong: recall 0.967, precision 0.796."""
+    Measured on the demo with errors that last over frames: 384 people, 121 wrong, 143
+    flagged, 117 of them wrong: recall 0.967, precision 0.818 (0.796 before the floor and
+    short-leg checks learnt to notice several floor levels and seated people)."""
     if not (DEMO / "truth.json").exists():
         pytest.fail("demo_project/ is missing: regenerate it with app.demo.generate")
     fig = measure(_copy(DEMO, tmp_path / "demo"))
@@ -192,6 +193,32 @@ def test_triage_holds_on_a_held_out_seed(tmp_path):
     print(fig.report("held-out seed 9, 12 frames"))
     assert fig.recall >= 0.9
     assert fig.precision >= 0.7
+
+
+@pytest.mark.slow
+def test_triage_and_fixes_on_the_choir(tmp_path):
+    """The same measurement on the second scenario, a choir on stepped risers (synthetic;
+    app.demo.choir, seed 21, first 8 frames), which no weight, threshold or calibration was
+    fitted on; and the findings' accept-all figure there (judged joint by joint as in
+    tests/demo/test_calibrate.py). The issue's goal (recall >= 0.85, precision >= 0.7; fixes
+    losing <= 2 % of correct joints and removing >= 40 % of wrong ones) is not met yet; the
+    thresholds sit a little below the figures measured when written: 273 people, 127 wrong,
+    134 flagged, 95 of them wrong (recall 0.748, precision 0.709); accepting every fix took
+    wrong labelled joints from 603 to 475 (21.2 % removed) and correct ones from 3,567 to
+    3,547 (-0.6 %)."""
+    from app.demo.calibrate import accept_all, demo_frames
+
+    folder = tmp_path / "choir21"
+    generate(folder, seed=21, frames=8, scene="choir")
+    fig = measure(folder)
+    print(fig.report("choir seed 21, 8 frames"))
+    assert fig.ours_agree
+    assert fig.recall >= 0.72
+    assert fig.precision >= 0.68
+    figure = accept_all(demo_frames(folder), demo="choir seed 21")
+    print(json.dumps(figure.to_dict(), indent=1))
+    assert figure.removed_share >= 0.18
+    assert figure.correct_change >= -0.015
 
 
 # ------------------------------------------------------------------ crafted people
