@@ -47,8 +47,12 @@ from PySide6.QtWidgets import QWidget
 
 from app.model.edits import AddRegion, DeleteRegion, MoveJoint, ReshapeRegion
 from app.model.labels import Frame, Person
+from app.model.naming import Names
 from app.model.skeleton import Skeleton
+from app.session.owners import OwnerRanking
+from app.session.walk import Stop
 from app.ui import regions as geometry
+from app.ui.callouts import WalkCard, paint_owner_list, paint_preview, paint_walk_card, stop_points
 from app.ui.images import Decoded, qimage_view, shrink
 from app.ui.overlay import OverlayLayout, OverlayStyle, assign_colours, paint_overlay
 
@@ -101,6 +105,8 @@ class Canvas(QWidget):
         A frame's image has been painted for the first time.
     regionChanged()
         The selected region, region mode, or the region being drawn changed.
+    ownerChosen(int)
+        A row of the owner list beside the selected joint was clicked: give it to that person.
     """
 
     selectionChanged = Signal()
@@ -109,6 +115,7 @@ class Canvas(QWidget):
     viewChanged = Signal()
     framePainted = Signal(int)
     regionChanged = Signal()
+    ownerChosen = Signal(int)
 
     #: How near (screen pixels) a click must be to a joint to hit it.
     HIT_RADIUS = 9.0
@@ -183,6 +190,11 @@ class Canvas(QWidget):
         #: and when (``time.perf_counter``) it was first painted.
         self.painted_frame: int | None = None
         self.painted_at = 0.0
+        #: The walk's stop shown beside its people, with the fix previewed.
+        self.walk_card: WalkCard | None = None
+        #: The ranked owners of the selected joint, listed beside it, and the rows' rectangles.
+        self.owners: OwnerRanking | None = None
+        self.owner_rows: list[tuple[QRectF, int]] = []
 
     # ------------------------------------------------------------------ content
 
@@ -200,6 +212,9 @@ class Canvas(QWidget):
         self._hover = None
         self._drag = None
         self._pick = None
+        self.walk_card = None
+        self.owners = None
+        self.owner_rows = []
         self.colours = {}
         self.regions = []
         self._region = None
@@ -544,6 +559,47 @@ class Canvas(QWidget):
             self.centre_on(x, y)
             self.viewChanged.emit()
 
+    def show_stop(self, stop: Stop | None, where: str = "") -> None:
+        """Show a stop of the walk: its sentence beside its people and its fix previewed;
+        centre on it when it is not well inside the view, and zoom out when it does not fit
+        (in when it would be too small to correct)."""
+        self.walk_card = None if stop is None else WalkCard(stop, where)
+        if stop is not None:
+            pts = stop_points(stop, self.people)
+            if len(pts):
+                self._frame_points(pts)
+        self.update()
+
+    def _frame_points(self, pts: np.ndarray) -> None:
+        lo, hi = pts.min(axis=0), pts.max(axis=0)
+        size = np.maximum(hi - lo, 1.0)
+        margin = 60.0
+        view = np.array([max(self.width() - 2 * margin, 50), max(self.height() - 2 * margin, 50)])
+        fits = float(np.min(view / size))
+        inside = QRectF(self.rect()).adjusted(margin, margin, -margin, -margin)
+        visible = inside.contains(self.image_to_screen(*lo)) and \
+            inside.contains(self.image_to_screen(*hi))
+        scale = self._scale
+        if scale > fits:
+            scale = fits
+        elif float(np.max(size)) * scale < 0.15 * float(np.min(view)):
+            scale = min(fits, 0.3 * float(np.min(view)) / float(np.max(size)), 4.0)
+        if visible and scale == self._scale:
+            return
+        self._scale = float(np.clip(scale, self.MIN_SCALE, self.MAX_SCALE))
+        self.centre_on(*((lo + hi) / 2))
+        self.viewChanged.emit()
+
+    def set_owners(self, ranking: OwnerRanking | None) -> None:
+        """The ranked owners of the selected joint (None: no list)."""
+        self.owners = ranking
+        self.owner_rows = []
+        self.update()
+
+    def owner_row_at(self, pos: QPointF) -> int | None:
+        """The person of the owner-list row under ``pos``, if any."""
+        return next((pid for rect, pid in self.owner_rows if rect.contains(pos)), None)
+
     def centre_on(self, x: float, y: float) -> None:
         self._ox = self.width() / 2 - self._scale * x
         self._oy = self.height() / 2 - self._scale * y
@@ -629,6 +685,7 @@ class Canvas(QWidget):
                 people = self._with_drag(people, self._drag)
             self._layout = paint_overlay(p, people, self.skeleton, self.transform(), self.style(),
                                          (self.frame.width, self.frame.height))
+            self._paint_callouts(p)
             if self.showing_theirs:
                 self._paint_banner(p)
             if self._decoded is not None and self.painted_frame != self.frame.id:
@@ -636,6 +693,32 @@ class Canvas(QWidget):
                 self.painted_at = time.perf_counter()
                 self.framePainted.emit(self.frame.id)
         p.end()
+
+    def _paint_callouts(self, p: QPainter) -> None:
+        """The walk's card with its fix previewed, and the owner list beside the joint."""
+        card = None
+        names = Names.of_frame(self.skeleton, [q.id for q in self.people])
+        if self.walk_card is not None and not self.showing_theirs:
+            stop = self.walk_card.stop
+            if stop.fix is not None:
+                paint_preview(p, stop.fix.preview, self.people, self.skeleton, self.colours,
+                              self.image_to_screen)
+            pts = stop_points(stop, self.people)
+            if len(pts):
+                a, b = self.image_to_screen(*pts.min(axis=0)), \
+                    self.image_to_screen(*pts.max(axis=0))
+                box = QRectF(a, b).adjusted(-8, -8, 8, 8)
+            else:
+                box = QRectF(self.width() / 2 - 1, 40.0, 2.0, 2.0)
+            card = paint_walk_card(p, self.walk_card, box, QRectF(self.rect()), self.font())
+        self.owner_rows = []
+        joint = self.selected_joint
+        if self.owners is not None and joint is not None and len(self._joints) == 1:
+            person = self.person(joint[0])
+            if person is not None and np.isfinite(person.keypoints[joint[1], :2]).all():
+                at = self.image_to_screen(*person.keypoints[joint[1], :2])
+                self.owner_rows = paint_owner_list(p, self.owners, names, self.colours, at,
+                                                    QRectF(self.rect()), self.font(), card)
 
     def _paint_banner(self, p: QPainter) -> None:
         """Say plainly that the reviewer's version is on screen, not ours."""
@@ -709,6 +792,10 @@ class Canvas(QWidget):
             return
         if self.region_mode:
             self._region_press(pos)
+            return
+        chosen = self.owner_row_at(pos)
+        if chosen is not None and self._pick is None:
+            self.ownerChosen.emit(chosen)
             return
         if self._pick is not None:
             pid = self.person_at(pos)

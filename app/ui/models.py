@@ -25,6 +25,7 @@ from PySide6.QtCore import (
 from PySide6.QtGui import QColor, QFont
 
 from app.model.labels import Frame, FrameState, Note, Person
+from app.model.naming import person_text
 from app.store.project import LedgerEntry, Project
 from app.ui.overlay import WHOLE_PERSON, palette_colour
 
@@ -352,9 +353,10 @@ class WorklistFilter(QSortFilterProxyModel):
 # ---------------------------------------------------------------------------------- Owners
 
 class PeopleModel(_TableModel):
-    """The people of the current frame: tag number and colour, id, joints, flags."""
+    """The people of the current frame: tag (with colour) and stable number, then how many of
+    their joints are labelled, occluded and flagged by triage."""
 
-    COLUMNS = ("", "person", "labelled", "occluded", "flags")
+    COLUMNS = ("person", "labelled", "occluded", "flagged")
 
     def __init__(self, parent: Any = None):
         super().__init__(parent)
@@ -398,85 +400,20 @@ class PeopleModel(_TableModel):
         if role == DisplayRole:
             v = p.keypoints[:, 2]
             if col == 0:
-                return str(n)
+                return f"{n} (#{p.id})"
             if col == 1:
-                return str(p.id)
-            if col == 2:
                 return f"{int(np.count_nonzero(v > 0))}/{len(v)}"
-            if col == 3:
+            if col == 2:
                 occluded = int(np.count_nonzero(v == 1))
                 return str(occluded) if occluded else ""
             flags = self._flags.get(p.id, frozenset())
             n_flags = len(flags - {WHOLE_PERSON}) + (1 if WHOLE_PERSON in flags else 0)
             return str(n_flags) if n_flags else ""
         if role == ToolTipRole:
-            return f"person {p.id} (tag {n}); number key {n} gives the selected joint to them" \
-                if n <= 9 else f"person {p.id} (tag {n})"
-        if role == AlignRole and col in (0, 2, 3, 4):
-            return int(Qt.AlignmentFlag.AlignCenter)
-        return None
-
-
-@dataclass(frozen=True)
-class OwnerChoice:
-    """One candidate owner of the selected joint: ``score`` in [0, 1] from the analysis, or
-    None when only the distance could be used."""
-
-    person_id: int
-    number: int
-    score: float | None
-    reason: str
-    is_owner: bool = False
-
-
-class CandidatesModel(_TableModel):
-    """The ranked candidate owners of the selected joint, best first."""
-
-    COLUMNS = ("", "person", "fit", "why")
-
-    def __init__(self, parent: Any = None):
-        super().__init__(parent)
-        self._rows: list[OwnerChoice] = []
-        self._colours: dict[int, int] = {}
-        self.note = ""
-
-    def set_choices(self, choices: Sequence[OwnerChoice], note: str = "",
-                    colours: dict[int, int] | None = None) -> None:
-        self.beginResetModel()
-        self._rows = list(choices)
-        self._colours = dict(colours or {})
-        self.note = note
-        self.endResetModel()
-
-    def choice(self, row: int) -> OwnerChoice:
-        return self._rows[row]
-
-    def choices(self) -> list[OwnerChoice]:
-        return list(self._rows)
-
-    def data(self, index: Index, role: int = DisplayRole) -> Any:
-        if not index.isValid():
-            return None
-        c = self._rows[index.row()]
-        col = index.column()
-        if role == KeyRole:
-            return c.person_id
-        if role == DecorationRole and col == 0:
-            return palette_colour(self._colours.get(c.person_id, c.number - 1))
-        if role == DisplayRole:
-            if col == 0:
-                return str(c.number)
-            if col == 1:
-                return f"{c.person_id} (owner)" if c.is_owner else str(c.person_id)
-            if col == 2:
-                return "" if c.score is None else f"{c.score:.2f}"
-            return c.reason
-        if role == ToolTipRole:
-            return c.reason if c.is_owner else \
-                f"click to give the joint to person {c.person_id}: {c.reason}"
-        if role == ForegroundRole and c.is_owner:
-            return QColor("#777777")
-        if role == AlignRole and col in (0, 2):
+            name = person_text(n, p.id)
+            return f"{name}; number key {n} gives the selected joint to them" \
+                if n <= 9 else name
+        if role == AlignRole and col in (1, 2, 3):
             return int(Qt.AlignmentFlag.AlignCenter)
         return None
 
