@@ -92,6 +92,8 @@ class Session:
         self._passed: dict[int, set[str]] = defaultdict(set)
         #: Per frame, the labels digest right after the walk's own last edit there.
         self._own: dict[int, str] = {}
+        #: Frames the walk is editing right now (their change notices are its own).
+        self._applying: set[int] = set()
 
     # ------------------------------------------------------------------ frame
 
@@ -226,13 +228,6 @@ class Session:
         return self.step(1)
 
     def _edited(self, stop: Stop, edit: Edit) -> Any:
-        try:
-            done = self._apply(edit)
-        except EditRefused as exc:
-            self.events.emit("message", f"not done: {exc}")
-            return None
-        if done is None:
-            return None
         touched = set(stop.people)
         fix = stop.fix
         if fix is not None and not isinstance(edit, DismissFinding):
@@ -240,8 +235,18 @@ class Session:
             touched |= {a for a, *_ in p.placed} | {a for a, _ in p.unlabeled} \
                 | {a for a, _ in p.occluded} | set(p.deleted) | {a for m in p.merged for a in m}
         fid = stop.frame_id
-        self._stops[fid] = [s for s in self.stops(fid)
-                            if s.key != stop.key and not touched & set(s.people)]
+        kept = [s for s in self.stops(fid) if s.key != stop.key and not touched & set(s.people)]
+        self._applying.add(fid)
+        try:
+            done = self._apply(edit)
+        except EditRefused as exc:
+            self.events.emit("message", f"not done: {exc}")
+            return None
+        finally:
+            self._applying.discard(fid)
+        if done is None:
+            return None
+        self._stops[fid] = kept
         self._dirty.add(fid)
         try:
             self._own[fid] = labels_digest(self.project.labels(fid))
@@ -257,6 +262,8 @@ class Session:
         """Labels changed outside the walk (an edit by hand, undo, a colleague): the stops of
         those frames are read again when next needed."""
         for fid in frame_ids:
+            if fid in self._applying:
+                continue
             own = self._own.get(fid)
             if own is not None and own == labels_digest(self.project.labels(fid)):
                 continue

@@ -88,6 +88,7 @@ class Walk:
         self._order = order
         self._stops = stops
         self.current: Stop | None = None
+        self._snapshot: list[int] | None = None
         #: Where the cursor is in its frame's list (kept when its stop goes away).
         self._index = 0
 
@@ -99,7 +100,12 @@ class Walk:
         the cursor's, the walk starts there (at its first stop going forward, at the stop
         before it going back).
         """
-        order = list(self._order())
+        moved_by_hand = self.current is not None and self.current.frame_id != shown
+        if self._snapshot is None or moved_by_hand:
+            # The order is taken once per walk: frames that get corrected sink in the
+            # Worklist, and following them there would skip the frames they pass.
+            self._snapshot = list(self._order())
+        order = self._snapshot
         if not order:
             return None
         if self.current is not None and self.current.frame_id == shown:
@@ -129,6 +135,11 @@ class Walk:
         return None
 
     def forget(self) -> None:
-        """Let the next step start from the frame on screen."""
+        """Let the next step start from the frame on screen (in the same order)."""
         self.current = None
         self._index = 0
+
+    def restart(self) -> None:
+        """Start again from the frame on screen, in the order the Worklist shows now."""
+        self.forget()
+        self._snapshot = None
