@@ -202,7 +202,7 @@ class OwnersPanel(QWidget):
         self.people_model = PeopleModel(self)
         self._quiet = False
 
-        self.people = _table(self.people_model, 3, (84, 62, 62))
+        self.people = _table(self.people_model, 3, (100, 62, 62))
         self.people.setObjectName("PeopleView")
         self.people.setToolTip("Click a person to select them; number keys give the selected "
                                "joint to the person with that tag")
