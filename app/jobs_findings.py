@@ -190,7 +190,7 @@ def accept_fixes(project: Project, kinds: set[str] | None = None, min_confidence
                     continue
                 assert finding.fix is not None
                 group = EditGroup(fid, finding.fix.edits,
-                                  f"accept finding {finding.id}: {finding.fix.summary}")
+                                  accept_label(finding.id, finding.fix.edits))
                 try:
                     project.apply(group)
                 except EditRefused as exc:
@@ -232,7 +232,15 @@ def accept_finding(project: Project, finding: Finding) -> Any:
         raise EditRefused(f"frame {finding.frame_id} changed since finding {finding.id} was "
                           "found; read the findings again")
     return project.apply(EditGroup(finding.frame_id, finding.fix.edits,
-                                   f"accept finding {finding.id}: {finding.fix.summary}"))
+                                   accept_label(finding.id, finding.fix.edits)))
+
+
+def accept_label(finding_id: str, edits: Sequence[Any]) -> str:
+    """The ledger's summary of an accepted fix: its edits' own summaries, which name people by
+    stable id (the ledger shows them with the tags of the day, see
+    :func:`app.model.naming.ledger_text`); a fix's own summary names them by the tags they had
+    when it was found."""
+    return f"accept finding {finding_id}: " + "; ".join(e.summary() for e in edits)
 
 
 def find_finding(project: Project, finding_id: str) -> Finding:

@@ -22,6 +22,7 @@ from typing import Any
 
 from app.analysis.triage.findings import Finding, labels_digest
 from app.errors import EditRefused, PosewrightError
+from app.jobs_findings import accept_label
 from app.model.edits import DismissFinding, Edit, EditGroup
 from app.model.labels import Person
 from app.model.naming import Names
@@ -204,7 +205,7 @@ class Session:
             self.events.emit("message", "this finding proposes no fix: correct it by hand, or "
                              "dismiss it as not a problem")
             return None
-        group = EditGroup(stop.frame_id, fix.edits, f"accept finding {stop.key}: {fix.summary}")
+        group = EditGroup(stop.frame_id, fix.edits, accept_label(stop.key, fix.edits))
         if self._edited(stop, group) is None:
             return None
         self.events.emit("message", f"done: {fix.summary} (Ctrl+Z takes it back)")

@@ -461,6 +461,15 @@ class Canvas(QWidget):
         self.update()
         self.selectionChanged.emit()
 
+    def select_joints(self, pairs: list[tuple[int, int]]) -> None:
+        """Select these joints at once (one selection change); the person of the last."""
+        if not pairs:
+            return
+        self._joints = [(int(p), int(j)) for p, j in pairs]
+        self._person = self._joints[-1][0]
+        self.update()
+        self.selectionChanged.emit()
+
     def select_person(self, person_id: int | None) -> None:
         self._joints = []
         self._person = person_id
@@ -1002,7 +1011,8 @@ class Canvas(QWidget):
         if person is None:
             return ""
         word = {0: "unlabeled", 1: "occluded", 2: "visible"}[int(person.keypoints[j, 2])]
-        return f"{self.skeleton.joints[j]} of person {pid} (tag {self.number_of(pid)}), {word}"
+        names = Names.of_frame(self.skeleton, [p.id for p in self.people])
+        return f"{names.whose(pid, j)} (#{pid}), {word}"
 
     # ------------------------------------------------------------------ keys
 

@@ -24,10 +24,12 @@ from PySide6.QtCore import (
 )
 from PySide6.QtGui import QColor, QFont
 
+from app.errors import PosewrightError
 from app.model.labels import Frame, FrameState, Note, Person
-from app.model.naming import person_text
+from app.model.naming import Names, ledger_text, person_text
 from app.store.project import LedgerEntry, Project
 from app.ui.overlay import WHOLE_PERSON, palette_colour
+from app.wording import count
 
 Index = QModelIndex | QPersistentModelIndex
 _ROOT = QModelIndex()
@@ -188,7 +190,6 @@ class WorklistModel(_TableModel):
 
     def _others_claims(self) -> dict[int, str]:
         """Who else is working on which frame (a hosted project's claims, ours left out)."""
-        from app.errors import PosewrightError
 
         # The server may be gone for a moment; the last claims read stay until it is back.
         with contextlib.suppress(PosewrightError):
@@ -447,6 +448,8 @@ class LedgerModel(_TableModel):
         self._frame_id: int | None = None
         self._whole = False
         self._rows: list[LedgerRow] = []
+        #: Per frame, the names of its people now (the summaries are written with them).
+        self._names: dict[int, Names] = {}
 
     @property
     def whole_project(self) -> bool:
@@ -466,7 +469,25 @@ class LedgerModel(_TableModel):
             entries = []
         self.beginResetModel()
         self._rows = group_entries(entries)
+        self._names = {}
+        if self._rows and not self._whole:
+            self.text(self._rows[0])  # the frame's names read now, not while painting
         self.endResetModel()
+
+    def text(self, row: LedgerRow) -> str:
+        """The row's summary with people by tag and number and joints by name."""
+        if not row.frames:
+            return row.summary
+        fid = row.frames[0]
+        names = self._names.get(fid)
+        if names is None:
+            try:
+                names = Names.of_frame(self._project.skeleton,
+                                       [p.id for p in self._project.people(fid)])
+            except PosewrightError:  # closed or gone: the summary as recorded
+                return row.summary
+            self._names[fid] = names
+        return ledger_text(row.summary, names)
 
     def ledger_row(self, row: int) -> LedgerRow:
         return self._rows[row]
@@ -485,9 +506,9 @@ class LedgerModel(_TableModel):
                 return r.author
             if col == 2:
                 return ", ".join(map(str, r.frames[:3])) + ("\u2026" if len(r.frames) > 3 else "")
-            return r.summary
+            return self.text(r)
         if role == ToolTipRole:
-            return (f"{r.kind}, {r.changes} change(s), ledger entry {r.seq}\n"
+            return (f"{r.kind}, {count(r.changes, 'changes')}, ledger entry {r.seq}\n"
                     f"{time.strftime('%Y-%m-%d %H:%M:%S', time.localtime(r.time))}")
         if role == ForegroundRole and r.kind in ("undo", "redo"):
             return QColor("#777777")
@@ -556,8 +577,7 @@ class NotesModel(QAbstractListModel):
         if role == DisplayRole:
             about = ""
             if n.person_id is not None:
-                tag = self._numbers.get(n.person_id)
-                about = f" about person {n.person_id}" + (f" (tag {tag})" if tag else "")
+                about = " about " + person_text(self._numbers.get(n.person_id), n.person_id)
             return f"{n.author}, {when(n.time)}{about}\n{n.text}"
         if role == ToolTipRole:
             return time.strftime("%Y-%m-%d %H:%M:%S", time.localtime(n.time))

@@ -702,17 +702,14 @@ class MainWindow(QMainWindow):
             self._message(f"the selected joint already belongs to "
                           f"{self.session.names.person(target)}")
             return
-        names = ", ".join(self.skeleton.joints[e.joint] for e in edits)
-        edit: Edit = edits[0] if len(edits) == 1 else EditGroup(
-            frame_id, tuple(edits), f"give {names} to {self.session.names.person(target, True)}")
+        # The group's summary is its edits' (ids and joint indices): the Ledger names them.
+        edit: Edit = edits[0] if len(edits) == 1 else EditGroup(frame_id, tuple(edits))
         swaps = swap_warning(self.canvas.people, joints, target, self.skeleton)
         if self.apply(edit) is not None:
             if swaps:
                 self._message(f"swapped: {swaps.split(': ', 1)[0]}, so the two were exchanged "
                               "(Ctrl+Z takes it back)")
-            moved = [(target, e.joint) for e in edits]
-            for n, (p, j) in enumerate(moved):
-                self.canvas.select_joint(p, j, add=n > 0)
+            self.canvas.select_joints([(target, e.joint) for e in edits])
 
     def give_to_number(self, number: int) -> None:
         people = self.canvas.people
@@ -792,9 +789,8 @@ class MainWindow(QMainWindow):
             self._message("select the person to keep first, then press M")
             return
         self.canvas.set_pick_mode("merge")
-        n = self.canvas.number_of(pid)
         self._message(f"merge: click the person (on the Canvas or in Owners) to merge into "
-                      f"person {pid} (tag {n}); Esc cancels", 0)
+                      f"{self.session.names.person(pid, with_id=True)}; Esc cancels", 0)
 
     def _merge_picked(self, other: int) -> None:
         frame_id, _, keep = self._selection()
@@ -984,8 +980,7 @@ class MainWindow(QMainWindow):
             joints = [j for j in stop.joints
                       if self.canvas.person(stop.person_id).keypoints[j, 2] > 0]
             if joints:
-                for n, j in enumerate(joints):
-                    self.canvas.select_joint(stop.person_id, j, add=n > 0)
+                self.canvas.select_joints([(stop.person_id, j) for j in joints])
             else:
                 self.canvas.select_person(stop.person_id)
         stops = self.session.stops(stop.frame_id)
@@ -1123,13 +1118,13 @@ class MainWindow(QMainWindow):
                 self._message("select a joint that differs first (J walks them)")
                 return None
             return self.frame_id, joint[0], joint[1], \
-                f"{self.skeleton.joints[joint[1]]} of person {joint[0]}"
+                self.session.names.whose(joint[0], joint[1])
         if scope == "person":
             pid = self.canvas.selected_person
             if pid is None or self.dispute.person(pid) is None:
                 self._message("select a person whose joints differ first")
                 return None
-            return self.frame_id, pid, None, f"person {pid}"
+            return self.frame_id, pid, None, self.session.names.person(pid, with_id=True)
         return self.frame_id, None, None, "the whole frame"
 
     def take_theirs(self, scope: str) -> None:

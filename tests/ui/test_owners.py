@@ -220,4 +220,4 @@ def test_two_digit_tags(qtbot, window, ui_project):
 def test_hovering_a_joint_names_it(qtbot, window):
     pid = person_id(window, 2)
     qtbot.mouseMove(window.canvas, screen_point(window, pid, 9))
-    assert window.canvas.toolTip().startswith(f"left_wrist of person {pid} (tag 2)")
+    assert window.canvas.toolTip().startswith(f"person 2's left wrist (#{pid})")
