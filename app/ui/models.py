@@ -27,6 +27,7 @@ from PySide6.QtGui import QColor, QFont
 from app.errors import PosewrightError
 from app.model.labels import Frame, FrameState, Note, Person
 from app.model.naming import Names, ledger_text, person_text
+from app.session.worklist import people_summary, reason_label, separating_kinds
 from app.store.project import LedgerEntry, Project
 from app.ui.overlay import WHOLE_PERSON, palette_colour
 from app.wording import count
@@ -98,17 +99,6 @@ def when(t: float) -> str:
     return time.strftime("%Y-%m-%d %H:%M", lt)
 
 
-def reason_label(kind: str) -> str:
-    """A triage reason kind as the Worklist's filter shows it.
-
-    Examples
-    --------
-    >>> reason_label("long_limb")
-    'long limb'
-    """
-    return str(kind).replace("_", " ").replace("-", " ").strip() or "other"
-
-
 class _TableModel(QAbstractTableModel):
     """A table over a Python list of rows (``_rows``) with fixed column titles
     (``COLUMNS``); subclasses give ``data``."""
@@ -140,11 +130,14 @@ class WorkRow:
     state: FrameState
     kinds: frozenset[str]
     summary: str
-    details: str
     video: str = ""
     decision: str = ""
     #: On a hosted project: the colleague working on this frame now (their claim).
     claimed_by: str = ""
+    #: The frame's open findings, as last computed (None: never computed).
+    findings: int | None = None
+    #: The triage reasons, for the per-person tooltip.
+    reasons: tuple[dict[str, Any], ...] = ()
 
 
 class WorklistModel(_TableModel):
@@ -172,10 +165,12 @@ class WorklistModel(_TableModel):
             from app.review.review import decisions
 
             decided = {fid: d.decision for fid, d in decisions(self._project).items()}
+        found = {fid: len(items) for fid, items in self._project.findings().items()}
         rows = []
         for f in frames:
             score, reasons = triage.get(f.id, (None, []))
             row = _work_row(f.id, f.file_name or f.path, score, f.state, reasons)
+            row.findings = found.get(f.id)
             row.video = video_position(f)
             row.decision = DECISION_TEXT.get(decided.get(f.id, ""), "")
             rows.append(row)
@@ -231,12 +226,18 @@ class WorklistModel(_TableModel):
         return any(r.score is not None for r in self._rows)
 
     def reason_kinds(self) -> list[tuple[str, int]]:
-        """Every reason kind with the number of frames that have it, most frequent first."""
-        counts: dict[str, int] = {}
-        for r in self._rows:
-            for k in r.kinds:
-                counts[k] = counts.get(k, 0) + 1
-        return sorted(counts.items(), key=lambda kv: (-kv[1], kv[0]))
+        """The reason kinds that tell frames apart, with the number of frames that have each,
+        most frequent first: a kind every frame has would filter nothing out."""
+        return separating_kinds([r.kinds for r in self._rows])
+
+    def _people_summary(self, row: WorkRow) -> str:
+        """The tooltip's per-person lines (people named by their tags now)."""
+        try:
+            names = Names.of_frame(self._project.skeleton,
+                                   [p.id for p in self._project.people(row.frame_id)])
+        except PosewrightError:
+            names = None
+        return people_summary(row.reasons, names)
 
     # -- Qt model
     def data(self, index: Index, role: int = DisplayRole) -> Any:
@@ -250,7 +251,11 @@ class WorklistModel(_TableModel):
             if col == 0:
                 # Two lines: the frame, then why it is suspicious (the reasons are what the
                 # annotator scans the list for, so they get a full line).
-                return f"{r.name}\n{r.summary}" if r.summary else r.name
+                line = r.summary
+                if r.findings:
+                    line = f"{count(r.findings, 'findings')} \u00b7 {line}" if line else \
+                        count(r.findings, "findings")
+                return f"{r.name}\n{line}" if line else r.name
             if col == 1:
                 return "" if r.score is None else f"{r.score:.2f}"
             if self._review:
@@ -265,7 +270,10 @@ class WorklistModel(_TableModel):
                 head += f"\n{r.claimed_by} is working on this frame"
             if self._review:
                 head += f"\nyour decision: {r.decision or 'none yet'}"
-            return f"{head}\n{r.details}" if r.details else head
+            if r.findings is not None:
+                head += f"\n{count(r.findings, 'open findings')} (W walks them)"
+            details = self._people_summary(r)
+            return f"{head}\n{details}" if details else head
         if role == AlignRole and col == 1:
             return int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
         if role == AlignRole and col == 0:
@@ -284,11 +292,8 @@ class WorklistModel(_TableModel):
 def _work_row(frame_id: int, name: str, score: float | None, state: FrameState,
               reasons: list[dict[str, Any]]) -> WorkRow:
     kinds = frozenset(str(r.get("kind", "other")) for r in reasons)
-    ranked = sorted(reasons, key=lambda r: (r.get("person") is None,
-                                            -float(r.get("weight") or 0.0)))
-    texts = [str(r.get("text") or reason_label(r.get("kind", ""))) for r in ranked]
     return WorkRow(frame_id, name, score, state, kinds, summarise_reasons(reasons),
-                   "\n".join(texts))
+                   reasons=tuple(reasons))
 
 
 def summarise_reasons(reasons: Sequence[dict[str, Any]]) -> str:
