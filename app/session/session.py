@@ -26,7 +26,7 @@ from app.jobs_findings import accept_label
 from app.model.edits import DismissFinding, Edit, EditGroup
 from app.model.labels import Person
 from app.model.naming import Names
-from app.session.walk import Stop, Walk
+from app.session.walk import Stop, Walk, group_findings
 from app.store.project import Project
 
 log = logging.getLogger(__name__)
@@ -130,7 +130,7 @@ class Session:
             from app.jobs_findings import current_findings
 
             found = current_findings(self.project, [frame_id]).get(frame_id, [])
-        return [Stop(f.frame_id, f.id, f.person_id, f.joints, f.text, f) for f in found]
+        return group_findings(frame_id, found)
 
     def _reason_stops(self, frame_id: int) -> list[Stop]:
         triage = self.project.triage(frame_id)
@@ -217,13 +217,14 @@ class Session:
         if stop is None or stop.frame_id != self.frame_id:
             self.events.emit("message", "no finding chosen: W goes to the next one")
             return None
-        if stop.finding is None:
+        if not stop.findings:
             self.events.emit("message", "a triage reason cannot be dismissed; run triage to "
                              "get findings")
             return None
-        f = stop.finding
-        if self._edited(stop, DismissFinding(f.frame_id, f.fingerprint, f.kind, f.id,
-                                             f.text)) is None:
+        marks = tuple(DismissFinding(f.frame_id, f.fingerprint, f.kind, f.id, f.text)
+                      for f in stop.findings)
+        edit = marks[0] if len(marks) == 1 else EditGroup(stop.frame_id, marks)
+        if self._edited(stop, edit) is None:
             return None
         self.events.emit("message", "dismissed as not a problem (Ctrl+Z takes it back)")
         return self.step(1)
@@ -231,7 +232,9 @@ class Session:
     def _edited(self, stop: Stop, edit: Edit) -> Any:
         touched = set(stop.people)
         fix = stop.fix
-        if fix is not None and not isinstance(edit, DismissFinding):
+        if fix is not None and not isinstance(edit, DismissFinding) and not (
+                isinstance(edit, EditGroup)
+                and all(isinstance(e, DismissFinding) for e in edit.edits)):
             p = fix.preview
             touched |= {a for a, *_ in p.placed} | {a for a, _ in p.unlabeled} \
                 | {a for a, _ in p.occluded} | set(p.deleted) | {a for m in p.merged for a in m}

@@ -29,7 +29,8 @@ from __future__ import annotations
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
-from app.analysis.triage.findings import Finding, Fix
+from app.analysis.triage.findings import Finding, Fix, FixPreview
+from app.model.naming import join_words
 
 
 @dataclass(frozen=True)
@@ -49,7 +50,9 @@ class Stop:
     text
         One sentence naming the person by tag and the joints by name.
     finding
-        The finding, when the stop is one (None for a triage reason).
+        The finding, when the stop is one (None for a triage reason or a group).
+    group
+        Several findings shown and accepted as one stop (see :func:`group_findings`).
     """
 
     frame_id: int
@@ -58,18 +61,95 @@ class Stop:
     joints: tuple[int, ...]
     text: str
     finding: Finding | None = None
+    group: tuple[Finding, ...] = ()
 
     @property
     def fix(self) -> Fix | None:
-        """The proposed fix, or None."""
+        """The proposed fix (a group's fixes as one), or None."""
+        if self.group:
+            return _joined(self.group)
         return None if self.finding is None else self.finding.fix
+
+    @property
+    def findings(self) -> tuple[Finding, ...]:
+        """The findings the stop stands for (none for a triage reason)."""
+        return self.group or (() if self.finding is None else (self.finding,))
 
     @property
     def people(self) -> tuple[int, ...]:
         """Every person the stop is about (the fix's people for a finding)."""
-        if self.finding is not None:
-            return self.finding.people
+        if self.findings:
+            return tuple(sorted({p for f in self.findings for p in f.people}))
         return () if self.person_id is None else (self.person_id,)
+
+
+#: Kinds found joint by joint without a fix, and how a person's several are said at once.
+PER_PERSON_KINDS = {"invented": "lie inside nearer people's bodies yet the model scores "
+                                "them as seen: invented spots"}
+
+#: Kinds whose fixes only change visibility: many per frame, a quarter of a joint's worth
+#: each (:attr:`Finding.worth`); a frame's are one stop, judged together from their preview.
+GROUPED_KINDS = ("hidden",)
+
+
+def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
+    """A frame's findings as stops, worst first; two or more of a :data:`GROUPED_KINDS` kind
+    with fixes become one stop where the first of them was.
+
+    Examples
+    --------
+    >>> from app.analysis.triage.findings import FixPreview
+    >>> def f(i, kind, person):
+    ...     fix = Fix(f"mark person {person}'s knees occluded", (), FixPreview())
+    ...     return Finding(i, 1, kind, person, person, (13, 14), ("left knee", "right knee"),
+    ...                    "t", (), 1.0, 0.9, fix, (person,), i)
+    >>> [s.key for s in group_findings(1, [f("a", "split", 1), f("b", "hidden", 2),
+    ...                                    f("c", "duplicate", 3), f("d", "hidden", 4)])]
+    ['a', 'G:hidden', 'c']
+    """
+    stops: list[Stop] = []
+    for kind in GROUPED_KINDS:
+        members = tuple(f for f in found if f.kind == kind and f.fix is not None)
+        if len(members) < 2:
+            continue
+        found = [f for f in found if f not in members or f is members[0]]
+        text = (f"{len(members)} people have joints the model sees as hidden: "
+                + "; ".join(m.fix.summary.removeprefix("mark ") for m in members[:4] if m.fix)
+                + (f"; and {len(members) - 4} more" if len(members) > 4 else ""))
+        stops.append(Stop(frame_id, f"G:{kind}", None, (), text, None, members))
+    by_person: dict[int, list[Finding]] = {}
+    for f in found:
+        if f.kind in PER_PERSON_KINDS and f.fix is None and f.person_id is not None:
+            by_person.setdefault(f.person_id, []).append(f)
+    for pid, items in by_person.items():
+        if len(items) < 2:
+            continue
+        members = tuple(items)
+        found = [f for f in found if f not in members or f is members[0]]
+        joints = tuple(j for m in members for j in m.joints)
+        names = join_words([n for m in members for n in m.joint_names])
+        text = (f"person {members[0].tag}'s {names} {PER_PERSON_KINDS[members[0].kind]} "
+                f"({len(members)} findings)")
+        stops.append(Stop(frame_id, f"G:{members[0].kind}:{pid}", pid, joints, text, None,
+                          members))
+    out = []
+    for f in found:
+        grouped = next((g for g in stops if g.group[0] is f), None)
+        out.append(grouped or Stop(f.frame_id, f.id, f.person_id, f.joints, f.text, f))
+    return out
+
+
+def _joined(findings: Sequence[Finding]) -> Fix | None:
+    fixes = [f.fix for f in findings if f.fix is not None]
+    if not fixes:
+        return None
+    p = [x.preview for x in fixes]
+    preview = FixPreview(
+        tuple(v for x in p for v in x.placed), tuple(v for x in p for v in x.unlabeled),
+        tuple(v for x in p for v in x.occluded), tuple(v for x in p for v in x.deleted),
+        tuple(v for x in p for v in x.merged), tuple(v for x in p for v in x.created))
+    return Fix(f"{len(fixes)} fixes: " + "; ".join(x.summary for x in fixes),
+               tuple(e for x in fixes for e in x.edits), preview)
 
 
 class Walk:

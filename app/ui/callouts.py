@@ -19,7 +19,7 @@ colour, tag number, fit, one reason), each row a click target.
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -58,15 +58,18 @@ def stop_points(stop: Stop, people: Sequence[Person]) -> np.ndarray:
     """``(N, 2)`` image points a stop is about: its joints (the whole person when it names
     none), and where its fix would put joints. Empty when nothing is placed."""
     by_id = {p.id: p for p in people}
+    about: list[tuple[int, tuple[int, ...]]] = []
+    for f in stop.findings:
+        about += [(pid, f.joints if pid == f.person_id else ()) for pid in f.people]
+    if not stop.findings and stop.person_id is not None:
+        about.append((stop.person_id, stop.joints))
     pts: list[np.ndarray] = []
-    for pid in stop.people:
+    for pid, joints in about:
         person = by_id.get(pid)
         if person is None:
             continue
         kp = person.keypoints
-        chosen = list(stop.joints) if pid == stop.person_id and stop.joints else \
-            range(len(kp))
-        sel = kp[list(chosen)]
+        sel = kp[list(joints)] if joints else kp
         pts.append(sel[(sel[:, 2] > 0) & np.isfinite(sel[:, :2]).all(axis=1), :2])
     fix = stop.fix
     if fix is not None:
@@ -80,7 +83,7 @@ def stop_points(stop: Stop, people: Sequence[Person]) -> np.ndarray:
 
 def paint_preview(painter: QPainter, preview: FixPreview, people: Sequence[Person],
                   skeleton: Skeleton, colours: Mapping[int, int],
-                  to_screen: callable) -> None:  # type: ignore[valid-type]
+                  to_screen: Callable[[float, float], QPointF]) -> None:
     """Draw what a fix would do (see the module docstring). ``to_screen(x, y)`` maps image
     pixels to a screen ``QPointF``."""
     by_id = {p.id: p for p in people}
@@ -215,12 +218,16 @@ def paint_walk_card(painter: QPainter, card: WalkCard, box: QRectF, bounds: QRec
     pixels). Returns where the card went."""
     stop = card.stop
     fix = stop.fix
-    head = "Finding" + (f" {card.where}" if card.where else "") if stop.finding is not None \
-        else "Triage" + (f" {card.where}" if card.where else "")
+    where = f" {card.where}" if card.where else ""
+    head = ("Findings" if stop.group else "Finding" if stop.finding is not None
+            else "Triage") + where
     if fix is not None:
-        conf = f" ({stop.finding.confidence:.0%} sure)" if stop.finding is not None else ""
-        tail = f"Fix{conf}: {fix.summary}.  Y accepts \u00b7 I not a problem \u00b7 W skips"
-    elif stop.finding is not None:
+        sure = [f.confidence for f in stop.findings]
+        conf = f" ({min(sure):.0%} sure or more)" if stop.group else \
+            f" ({sure[0]:.0%} sure)" if sure else ""
+        summary = "mark them occluded" if stop.group else fix.summary
+        tail = f"Fix{conf}: {summary}.  Y accepts \u00b7 I not a problem \u00b7 W skips"
+    elif stop.findings:
         tail = "No fix proposed: correct it by hand.  I not a problem \u00b7 W next"
     else:
         tail = "W next \u00b7 Shift+W back"

@@ -1301,7 +1301,7 @@ class MainWindow(QMainWindow):
         stop = self.session.current
         here = stop is not None and stop.frame_id == self.frame_id
         a["accept_fix"].setEnabled(editable and here and stop.fix is not None)
-        a["dismiss_finding"].setEnabled(editable and here and stop.finding is not None)
+        a["dismiss_finding"].setEnabled(editable and here and bool(stop.findings))
         a["new_person"].setEnabled(editable)
         for name in ("swap_sides", "merge_people", "delete_person"):
             a[name].setEnabled(editable and person)
