@@ -26,6 +26,7 @@ from app.jobs_findings import accept_label
 from app.model.edits import DismissFinding, Edit, EditGroup
 from app.model.labels import Person
 from app.model.naming import Names
+from app.session.selection import Selection
 from app.session.walk import Stop, Walk, group_findings
 from app.store.project import Project
 
@@ -83,6 +84,8 @@ class Session:
         self.frame_id: int | None = None
         self.people: list[Person] = []
         self.names = Names.of_frame(self.skeleton, [])
+        #: What is selected in the frame (the Canvas shows and changes it).
+        self.selection = Selection()
         self._order = order or self._suspicion_order
         self._apply = apply or project.apply
         self.walk = Walk(lambda: self._order(), self.stops)

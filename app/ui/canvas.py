@@ -50,6 +50,7 @@ from app.model.labels import Frame, Person
 from app.model.naming import Names
 from app.model.skeleton import Skeleton
 from app.session.owners import OwnerRanking
+from app.session.selection import Selection
 from app.session.walk import Stop
 from app.ui import regions as geometry
 from app.ui.callouts import WalkCard, paint_owner_list, paint_preview, paint_walk_card, stop_points
@@ -171,8 +172,8 @@ class Canvas(QWidget):
         self._oy = 0.0
         self._fit_mode = True
 
-        self._joints: list[tuple[int, int]] = []
-        self._person: int | None = None
+        #: The selection (the window shares its session's, app/session/selection.py).
+        self.selection = Selection()
         self._hover: tuple[int, int | None] | None = None
         self._drag: _Drag | None = None
         self._pan: QPointF | None = None
@@ -207,8 +208,7 @@ class Canvas(QWidget):
         self._decoded = None
         self.painted_frame = None
         self.message = ""
-        self._joints = []
-        self._person = None
+        self.selection.select_person(None)
         self._hover = None
         self._drag = None
         self._pick = None
@@ -245,10 +245,7 @@ class Canvas(QWidget):
             else self._ours
         self._set_people(people, self._flags_in)
         ids = {p.id for p in people}
-        joints = [(p, j) for p, j in self._joints if p in ids]
-        person = self._person if self._person in ids else None
-        changed = joints != self._joints or person != self._person
-        self._joints, self._person = joints, person
+        changed = self.selection.keep_only(ids)
         if self._hover is not None and self._hover[0] not in ids:
             self._hover = None
         self._drag = None
@@ -349,7 +346,7 @@ class Canvas(QWidget):
         self._region_drag = None
         self._drag = None
         if on:
-            self._joints = []
+            self.selection.joints = []
             self._hover = None
             self.selectionChanged.emit()
         else:
@@ -437,27 +434,19 @@ class Canvas(QWidget):
 
     @property
     def selected_joints(self) -> list[tuple[int, int]]:
-        return list(self._joints)
+        return list(self.selection.joints)
 
     @property
     def selected_joint(self) -> tuple[int, int] | None:
         """The joint selected last (the one single-joint actions work on)."""
-        return self._joints[-1] if self._joints else None
+        return self.selection.joint
 
     @property
     def selected_person(self) -> int | None:
-        return self._person
+        return self.selection.person
 
     def select_joint(self, person_id: int, joint: int, add: bool = False) -> None:
-        pair = (int(person_id), int(joint))
-        if add:
-            if pair in self._joints:
-                self._joints.remove(pair)
-            else:
-                self._joints.append(pair)
-        else:
-            self._joints = [pair]
-        self._person = self._joints[-1][0] if self._joints else int(person_id)
+        self.selection.select_joint(person_id, joint, add)
         self.update()
         self.selectionChanged.emit()
 
@@ -465,14 +454,12 @@ class Canvas(QWidget):
         """Select these joints at once (one selection change); the person of the last."""
         if not pairs:
             return
-        self._joints = [(int(p), int(j)) for p, j in pairs]
-        self._person = self._joints[-1][0]
+        self.selection.select_joints(pairs)
         self.update()
         self.selectionChanged.emit()
 
     def select_person(self, person_id: int | None) -> None:
-        self._joints = []
-        self._person = person_id
+        self.selection.select_person(person_id)
         self.update()
         self.selectionChanged.emit()
 
@@ -483,12 +470,10 @@ class Canvas(QWidget):
     def cycle_joint(self, step: int) -> bool:
         """Select the next (``step`` 1) or previous (-1) joint of the selected person, placed
         or not; returns False when no person is selected."""
-        if self._person is None:
+        nxt = self.selection.cycled(step, self.skeleton.num_joints)
+        if nxt is None:
             return False
-        k = self.skeleton.num_joints
-        current = next((j for p, j in reversed(self._joints) if p == self._person), None)
-        j = (0 if step > 0 else k - 1) if current is None else (current + step) % k
-        self.select_joint(self._person, j)
+        self.select_joint(*nxt)
         return True
 
     def set_pick_mode(self, mode: str | None) -> None:
@@ -553,8 +538,8 @@ class Canvas(QWidget):
         self.zoom_at(0.8, self._zoom_anchor())
 
     def _zoom_anchor(self) -> QPointF:
-        if self._joints:
-            p, j = self._joints[-1]
+        if self.selection.joints:
+            p, j = self.selection.joints[-1]
             person = self.person(p)
             if person is not None and np.isfinite(person.keypoints[j, :2]).all():
                 return self.image_to_screen(*person.keypoints[j, :2])
@@ -654,7 +639,7 @@ class Canvas(QWidget):
     # ------------------------------------------------------------------ painting
 
     def style(self) -> OverlayStyle:
-        focus = self._person if self.focus_mode else None
+        focus = self.selection.person if self.focus_mode else None
         regions = self.regions
         draft: tuple[tuple[float, float], ...] = ()
         closed = False
@@ -672,8 +657,9 @@ class Canvas(QWidget):
                 draft += (pointer,)
         return OverlayStyle(
             show_unlabeled=self.show_unlabeled, show_tags=self.show_tags, focus=focus,
-            flags=self.flags, selected_person=self._person,
-            selected_joints=frozenset(self._joints), hover=self._hover, colours=self.colours,
+            flags=self.flags, selected_person=self.selection.person,
+            selected_joints=frozenset(self.selection.joints), hover=self._hover,
+            colours=self.colours,
             regions=tuple(regions), selected_region=self._region, region_draft=draft,
             region_draft_closed=closed, differences=self.marks,
         )
@@ -722,7 +708,7 @@ class Canvas(QWidget):
             card = paint_walk_card(p, self.walk_card, box, QRectF(self.rect()), self.font())
         self.owner_rows = []
         joint = self.selected_joint
-        if self.owners is not None and joint is not None and len(self._joints) == 1:
+        if self.owners is not None and joint is not None and len(self.selection.joints) == 1:
             person = self.person(joint[0])
             if person is not None and np.isfinite(person.keypoints[joint[1], :2]).all():
                 at = self.image_to_screen(*person.keypoints[joint[1], :2])
@@ -819,7 +805,7 @@ class Canvas(QWidget):
             if add:
                 self.select_joint(*hit, add=True)
                 return
-            if hit not in self._joints or len(self._joints) == 1:
+            if hit not in self.selection.joints or len(self.selection.joints) == 1:
                 self.select_joint(*hit)
             person = self.person(hit[0])
             if person is not None and self.editable:

@@ -181,10 +181,12 @@ class MainWindow(QMainWindow):
             self.worklist.hint.setText("The frames of the packet. Ctrl+1 agree, Ctrl+2 needs "
                                        "change, Ctrl+3 signed off; Ctrl+Shift+R returns it.")
         self.owners = OwnersPanel(self.actions_by_name)
-        #: The Qt-free state of the walk and the frame's names (app/session).
+        #: The Qt-free state (app/session): the frame's names, the selection the Canvas
+        #: shows, the walk.
         self.session = Session(project, order=self.worklist.ordered_ids, apply=self.apply)
         self.session.events.connect("stop", self._show_stop)
         self.session.events.connect("message", self._message)
+        self.canvas.selection = self.session.selection
         #: The selected joint's owner and candidates (None without one selected joint).
         self.owner_ranking: OwnerRanking | None = None
         self.ledger = LedgerPanel(self.ledger_model, self.actions_by_name)
