@@ -310,8 +310,8 @@ def cmd_demo(args: argparse.Namespace) -> int:
     out = Path(args.dir)
     _check_demo_target(out, args.force)
     generate(out, seed=DEFAULT_SEED if args.seed is None else args.seed, frames=args.frames,
-             progress=_stderr_progress(args.quiet))
-    print(f"wrote the demo scenario to {shown(out)}; open it with "
+             progress=_stderr_progress(args.quiet), scene=args.scene)
+    print(f"wrote the {args.scene} demo scenario to {shown(out)}; open it with "
           f"`posewright open {shown(out)}`")
     return 0
 
@@ -348,10 +348,12 @@ def cmd_import_maps(args: argparse.Namespace) -> int:
 
 def cmd_triage(args: argparse.Namespace) -> int:
     from app.jobs_analysis import run_triage
+    from app.jobs_findings import time_findings
 
     with _open(args) as project:
         results = run_triage(project, progress=_stderr_progress(args.quiet))
         frames = {f.id: f for f in project.frames()}
+        over_time = time_findings(project)
     ranked = sorted(results.items(), key=lambda kv: (-kv[1].score, kv[0]))
     if args.limit is not None:
         ranked = ranked[: args.limit]
@@ -359,10 +361,12 @@ def cmd_triage(args: argparse.Namespace) -> int:
         print_json([{"frame": fid, "file_name": frames[fid].file_name,
                      "score": round(t.score, 4), "crowd_index": round(t.crowd_index, 4),
                      "flagged_people": t.flagged,
-                     "reasons": [r.to_dict() for r in t.reasons]} for fid, t in ranked])
+                     "reasons": [r.to_dict() for r in t.reasons],
+                     "over_time": [f.to_dict() for f in over_time.get(fid, [])]}
+                    for fid, t in ranked])
         return 0
     for fid, t in ranked:
-        kinds = sorted({r.kind for r in t.reasons})
+        kinds = sorted({r.kind for r in t.reasons} | {f.kind for f in over_time.get(fid, [])})
         print(f"{t.score:7.2f}  frame {fid:<6} {shown(frames[fid].file_name):<28} "
               f"{len(t.flagged)} flagged  {', '.join(kinds)}")
     return 0
@@ -625,6 +629,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--seed", type=whole_number(0), default=None,
                    help="another seed gives another rehearsal (default: the shipped one)")
     p.add_argument("--frames", type=whole_number(1, 10_000), default=24)
+    p.add_argument("--scene", choices=("dance", "choir"), default="dance",
+                   help="the folk-dance rehearsal (default) or a choir on stepped risers")
 
     # Review packets and comparing labels: app/review/commands.py.
     from app.review.commands import register as register_review
@@ -634,6 +640,10 @@ def build_parser() -> argparse.ArgumentParser:
     from app.findings_commands import register as register_findings
 
     register_findings(sub, command)
+    # Sequences and tracks: app/track_commands.py.
+    from app.track_commands import register as register_tracks
+
+    register_tracks(sub, command)
     _images_root_option(sub)
     return parser
 

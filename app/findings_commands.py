@@ -25,7 +25,7 @@ def register(sub: Any, command: Command) -> None:
     ``sub`` is the top-level subparsers object, ``command`` app/cli.py's helper that adds a
     command with ``PROJECT``, ``--author`` and ``-q``.
     """
-    from app.analysis.triage.fixes import KINDS
+    from app.jobs_findings import ALL_KINDS
 
     p = command("findings", cmd_findings,
                 "each problem triage found, where it is and the fix it proposes, worst first; "
@@ -33,7 +33,8 @@ def register(sub: Any, command: Command) -> None:
     p.add_argument("--frames", metavar="LIST",
                    help="frame ids and ranges (1,2,5-9), 'untouched' or 'all' (default all)")
     p.add_argument("--kinds", metavar="K,K",
-                   help="only these kinds: " + ", ".join(KINDS) + " (default all)")
+                   help="only these kinds: " + ", ".join(ALL_KINDS) + " (default all; the "
+                        "kinds over time once the project has tracks, see `posewright track`)")
     p.add_argument("--json", action="store_true", help="print the findings as JSON")
     p.add_argument("--accept", metavar="all|K,K",
                    help="apply the proposed fixes of all kinds or of these kinds, each as one "

@@ -6,6 +6,11 @@ digest of the labels they came from, so that a frame whose labels (or dismissals
 is recomputed when its findings are next read. Accepting a fix applies its edits as one ledger
 group credited to the project's author; dismissing a finding is a
 :class:`~app.model.edits.DismissFinding` edit. Both can be undone.
+
+Once a project's people are linked into tracks (:mod:`app.jobs_tracks`), the findings over
+time (:mod:`app.analysis.triage.temporal`) join each frame's findings. They are computed when
+read, from the whole sequence, and never stored; a fix of theirs that names several frames is
+applied as one action over all of them (:meth:`~app.store.project.Project.apply_batch`).
 """
 
 from __future__ import annotations
@@ -17,6 +22,7 @@ from typing import Any
 
 from app.analysis.triage.findings import Finding, frame_findings, labels_digest
 from app.analysis.triage.fixes import KINDS
+from app.analysis.triage.temporal import TIME_KINDS, TrackedFrame, sequence_findings
 from app.errors import BadInput, EditRefused, NotFound
 from app.model.edits import DismissFinding, EditGroup
 from app.model.labels import Frame, FrameLabels
@@ -28,6 +34,9 @@ log = logging.getLogger(__name__)
 #: Rounds of accepting: after each, the frames that changed are triaged again and the fixes
 #: that are still proposed (those an earlier fix of the round kept back) are accepted next.
 ACCEPT_ROUNDS = 3
+#: Every kind of finding, in the order fixes are accepted: a frame's own kinds, then those
+#: over time.
+ALL_KINDS: tuple[str, ...] = KINDS + TIME_KINDS
 
 
 def findings_of_frame(project: Project, frame: Frame, labels: FrameLabels | None = None,
@@ -73,8 +82,38 @@ def current_findings(project: Project, frame_ids: Iterable[int] | None = None,
             for fid, verdict in run_triage(project, progress,
                                            frame_ids=[f.id for f in stale]).items():
                 fresh[fid] = verdict.findings
-    return {f.id: fresh[f.id] if f.id in fresh else
-            [Finding.from_dict(d) for d in stored.get(f.id, [])] for f in frames}
+    out = {f.id: fresh[f.id] if f.id in fresh else
+           [Finding.from_dict(d) for d in stored.get(f.id, [])] for f in frames}
+    for fid, more in time_findings(project, out).items():
+        out[fid] = sorted(out[fid] + more, key=lambda f: (-f.worth, ALL_KINDS.index(f.kind),
+                                                           f.id))
+    return out
+
+
+def time_findings(project: Project, frame_ids: Iterable[int] | None = None
+                  ) -> dict[int, list[Finding]]:
+    """The findings over time of the sequences that hold the given frames (None: all), for
+    those frames; empty until someone in the project is on a track."""
+    from app.jobs_tracks import project_sequences
+
+    people = project.people_by_frame()
+    if not any(p.track is not None for ps in people.values() for p in ps):
+        return {}
+    wanted = None if frame_ids is None else set(frame_ids)
+    dismissed = project.dismissed()
+    out: dict[int, list[Finding]] = {}
+    for seq in project_sequences(project):
+        if wanted is not None and not wanted & set(seq.frame_ids):
+            continue
+        frames = [TrackedFrame(fid, {p.id: p.keypoints for p in people.get(fid, [])},
+                               {p.id: p.track for p in people.get(fid, [])
+                                if p.track is not None},
+                               frozenset(dismissed.get(fid, ())))
+                  for fid in seq.frame_ids]
+        for fid, found in sequence_findings(frames, project.skeleton).items():
+            if wanted is None or fid in wanted:
+                out[fid] = found
+    return out
 
 
 def parse_kinds(text: str | None, where: str = "--kinds") -> set[str] | None:
@@ -90,10 +129,10 @@ def parse_kinds(text: str | None, where: str = "--kinds") -> set[str] | None:
     if text is None or text.strip().lower() == "all":
         return None
     kinds = {k.strip().lower() for k in text.split(",") if k.strip()}
-    unknown = sorted(kinds - set(KINDS))
+    unknown = sorted(kinds - set(ALL_KINDS))
     if unknown or not kinds:
         raise BadInput(f"{', '.join(unknown) or 'nothing'} is not a kind of finding; one of "
-                       f"{', '.join(KINDS)} or 'all'", where=where)
+                       f"{', '.join(ALL_KINDS)} or 'all'", where=where)
     return kinds
 
 
@@ -113,21 +152,22 @@ class Accepted:
 
 
 def select_fixes(findings: Sequence[Finding], kinds: set[str] | None = None,
-                 min_confidence: float = 0.0) -> tuple[list[Finding], int]:
+                 min_confidence: float = 0.0,
+                 busy: Iterable[int] = ()) -> tuple[list[Finding], int]:
     """The fixes of one frame to accept together, and how many were held back.
 
     Notes
     -----
-    Fixes go in the order of :data:`~app.analysis.triage.fixes.KINDS` (whole people first,
-    then sides, owners, visibility, additions), most confident first within a kind; a fix
-    about a person an earlier chosen fix changes waits for the next round, when the frame's
-    findings are computed again from the changed labels.
+    Fixes go in the order of :data:`ALL_KINDS` (whole people first, then sides, owners,
+    visibility, additions, then the kinds over time), most confident first within a kind; a
+    fix about a person an earlier chosen fix changes (or one of ``busy``) waits for the next
+    round, when the frame's findings are computed again from the changed labels.
     """
     ready = [f for f in findings if f.fix is not None and f.confidence >= min_confidence
              and (kinds is None or f.kind in kinds)]
-    ready.sort(key=lambda f: (KINDS.index(f.kind), -f.confidence, f.id))
+    ready.sort(key=lambda f: (ALL_KINDS.index(f.kind), -f.confidence, f.id))
     chosen: list[Finding] = []
-    busy: set[int] = set()
+    busy = set(busy)
     held = 0
     for f in ready:
         if busy & set(f.people):
@@ -180,26 +220,28 @@ def accept_fixes(project: Project, kinds: set[str] | None = None, min_confidence
     for _ in range(1 if dry_run else ACCEPT_ROUNDS):
         changed = []
         out.held_back = 0
+        # People a fix over several frames changed in frames after its own (a flip swapped
+        # back): a frame's own fix about them waits for the next round.
+        claimed: set[int] = set()
         for n, fid in enumerate(todo):
             progress.step(n, len(todo), "accepting fixes")
-            chosen, held = select_fixes(found.get(fid, []), kinds, min_confidence)
+            chosen, held = select_fixes(found.get(fid, []), kinds, min_confidence, claimed)
             out.held_back += held
             for finding in chosen:
                 if dry_run:
                     out.fixes.append(finding)
                     continue
-                assert finding.fix is not None
-                group = EditGroup(fid, finding.fix.edits,
-                                  accept_label(finding.id, finding.fix.edits))
                 try:
-                    project.apply(group)
+                    _apply_fix(project, finding)
                 except EditRefused as exc:
                     log.warning("fix of finding %s not applied: %s", finding.id, exc)
                     out.refused += 1
                     continue
                 out.fixes.append(finding)
-                if fid not in changed:
-                    changed.append(fid)
+                claimed.update(finding.people)
+                for frame in fix_frames(finding):
+                    if frame not in changed:
+                        changed.append(frame)
         progress.step(len(todo), len(todo), "accepting fixes")
         if dry_run or not changed:
             break
@@ -223,16 +265,20 @@ def accept_finding(project: Project, finding: Finding) -> Any:
     """
     if finding.fix is None:
         raise EditRefused(f"finding {finding.id} proposes no fix")
-    labels = project.labels(finding.frame_id)
-    stored = project.findings(finding.frame_id).get(finding.frame_id, [])
-    current = project.findings_digests().get(finding.frame_id) == labels_digest(labels) and any(
-        d.get("id") == finding.id and d.get("fingerprint") == finding.fingerprint
-        for d in stored)
+    if finding.kind in TIME_KINDS:
+        now = time_findings(project, [finding.frame_id]).get(finding.frame_id, [])
+        current = any(f.id == finding.id and f.fingerprint == finding.fingerprint
+                      and f.fix == finding.fix for f in now)
+    else:
+        labels = project.labels(finding.frame_id)
+        stored = project.findings(finding.frame_id).get(finding.frame_id, [])
+        current = project.findings_digests().get(finding.frame_id) == labels_digest(
+            labels) and any(d.get("id") == finding.id and d.get("fingerprint") ==
+                            finding.fingerprint for d in stored)
     if not current:
         raise EditRefused(f"frame {finding.frame_id} changed since finding {finding.id} was "
                           "found; read the findings again")
-    return project.apply(EditGroup(finding.frame_id, finding.fix.edits,
-                                   accept_label(finding.id, finding.fix.edits)))
+    return _apply_fix(project, finding)
 
 
 def accept_label(finding_id: str, edits: Sequence[Any]) -> str:
@@ -241,6 +287,23 @@ def accept_label(finding_id: str, edits: Sequence[Any]) -> str:
     :func:`app.model.naming.ledger_text`); a fix's own summary names them by the tags they had
     when it was found."""
     return f"accept finding {finding_id}: " + "; ".join(e.summary() for e in edits)
+
+
+def fix_frames(finding: Finding) -> list[int]:
+    """The frames a finding's fix changes (its own first)."""
+    assert finding.fix is not None
+    others = sorted({e.frame_id for e in finding.fix.edits} - {finding.frame_id})
+    return [finding.frame_id, *others]
+
+
+def _apply_fix(project: Project, finding: Finding) -> Any:
+    """Apply a finding's fix as one action: one frame's edits as one group, a fix over
+    several frames as one batch."""
+    assert finding.fix is not None
+    summary = accept_label(finding.id, finding.fix.edits)
+    if len(fix_frames(finding)) > 1:
+        return project.apply_batch(finding.fix.edits, summary, action="AcceptFinding")
+    return project.apply(EditGroup(finding.frame_id, finding.fix.edits, summary))
 
 
 def find_finding(project: Project, finding_id: str) -> Finding:

@@ -71,7 +71,8 @@ SMOOTHING = 0.6
 
 def link_tracks(frames: Sequence[Any], sigmas: Any, areas: Sequence[Any] | None = None, *,
                 max_gap: int = MAX_GAP, min_similarity: float = MIN_SIMILARITY,
-                smoothing: float = SMOOTHING) -> list[np.ndarray]:
+                smoothing: float = SMOOTHING,
+                given: Sequence[Any] | None = None) -> list[np.ndarray]:
     """Link the people of consecutive frames into tracks.
 
     Parameters
@@ -93,12 +94,17 @@ def link_tracks(frames: Sequence[Any], sigmas: Any, areas: Sequence[Any] | None 
         track (default 0.2); otherwise the person starts a new track.
     smoothing
         Weight in (0, 1] of the newest velocity in a track's running velocity (default 0.6).
+    given
+        Optional, one ``(N_t,)`` int array per frame: a track id someone chose for the person
+        (0 or more), or -1 where the linking is free to choose. People with a given track keep
+        it and carry that track's motion on; the others are linked around them.
 
     Returns
     -------
     list of numpy.ndarray
         One ``(N_t,)`` int64 array per frame: each person's track id, numbered from 1 in the
-        order the tracks start. Two people of one frame never share a track.
+        order the tracks start (after the highest given id, when some are given). Two people
+        of one frame never share a track that the linking chose.
 
     Notes
     -----
@@ -143,21 +149,39 @@ def link_tracks(frames: Sequence[Any], sigmas: Any, areas: Sequence[Any] | None 
     """
     sig = np.asarray(sigmas, dtype=np.float64).reshape(-1)
     people = [_frame(f, len(sig), t) for t, f in enumerate(frames)]
-    given = None if areas is None else [np.asarray(a, dtype=np.float64).reshape(-1)
-                                        for a in areas]
-    if given is not None and [len(a) for a in given] != [len(p) for p in people]:
+    areas_given = None if areas is None else [np.asarray(a, dtype=np.float64).reshape(-1)
+                                              for a in areas]
+    if areas_given is not None and [len(a) for a in areas_given] != [len(p) for p in people]:
         raise BadInput("areas do not give one area per person of each frame", where="areas")
     if max_gap < 0 or not 0 < smoothing <= 1:
         raise BadInput(f"max_gap {max_gap} or smoothing {smoothing} out of range",
                        where="link_tracks", hint="max_gap >= 0, 0 < smoothing <= 1")
+    fixed = [np.full(len(p), -1, dtype=np.int64) for p in people] if given is None else \
+        [np.asarray(g, dtype=np.int64).reshape(-1) for g in given]
+    if [len(g) for g in fixed] != [len(p) for p in people]:
+        raise BadInput("given does not give one track (or -1) per person of each frame",
+                       where="given")
     state = _Tracks(len(sig))
+    by_given: dict[int, int] = {}
     out = []
     for t, dets in enumerate(people):
         ids = np.zeros(len(dets), dtype=np.int64)
-        det_area = None if given is None else given[t]
+        det_area = None if areas_given is None else areas_given[t]
+        chosen = np.flatnonzero(fixed[t] >= 0)
+        for i in chosen:
+            g = int(fixed[t][i])
+            area = None if det_area is None else det_area[[i]]
+            if g in by_given:
+                state.update(np.array([by_given[g]]), dets[[i]], t, smoothing, area)
+            else:
+                by_given[g] = int(state.start(dets[[i]], t, area)[0])
+            ids[i] = by_given[g] + 1
         live = np.flatnonzero(t - state.last_seen[:state.count] <= max_gap + 1)
-        free = np.ones(len(dets), dtype=bool)
-        if len(live) and len(dets):
+        if len(chosen):
+            busy = [by_given[int(g)] for g in fixed[t][chosen]]
+            live = live[~np.isin(live, busy)]
+        free = fixed[t] < 0
+        if len(live) and free.any():
             similarity = _similarity(state, live, dets, det_area, sig, t, max_gap)
             age = t - state.last_seen[live]
             for a in np.unique(age):
@@ -177,6 +201,14 @@ def link_tracks(frames: Sequence[Any], sigmas: Any, areas: Sequence[Any] | None 
         new = np.flatnonzero(free)
         ids[new] = state.start(dets[new], t, None if det_area is None else det_area[new]) + 1
         out.append(ids)
+    if by_given:
+        # Internal track k prints as its given id, or as the next free id in start order.
+        names = np.zeros(state.count, dtype=np.int64)
+        for g, k in by_given.items():
+            names[k] = g
+        auto = np.setdiff1d(np.arange(state.count), list(by_given.values()))
+        names[auto] = max(by_given) + 1 + np.arange(len(auto))
+        out = [names[ids - 1] for ids in out]
     return out
 
 

@@ -1,6 +1,8 @@
-"""The synthetic demo: a folk-dance rehearsal rendered procedurally, with true poses and maps.
+"""The synthetic demos: a folk-dance rehearsal (the default, shipped in ``demo_project/``) and a
+choir on stepped risers (:mod:`app.demo.choir`), rendered procedurally, with true poses and maps.
 
-``generate(out_dir)`` writes everything ``demo_project/`` holds (see :func:`generate`): 24
+``generate(out_dir)`` writes everything ``demo_project/`` holds (see :func:`generate`; with
+``scene="choir"`` the choir instead): 24
 frames of one continuous phrase of a circle dance, the true poses as a COCO keypoints dataset
 (each dancer keeps one ``track_id`` in every frame) and one file of simulated network maps per
 frame. Everything is invented: no real people,
@@ -13,6 +15,7 @@ Modules
 - :mod:`app.demo.camera`: the pinhole camera.
 - :mod:`app.demo.render`: the hall and the shaded figures, with per-figure masks and depth.
 - :mod:`app.demo.scene`: the cast, the true labels read from the render, and the files.
+- :mod:`app.demo.choir`: the second scenario, a choir on risers, and its network's errors.
 - :mod:`app.demo.maps`: simulated network output with a crowd's errors.
 - :mod:`app.demo.evaluate`: which grouped people are wrong.
 

@@ -15,6 +15,7 @@ All colours are RGB floats in [0, 1] until the final conversion to an 8-bit BGR 
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 import cv2
@@ -520,8 +521,29 @@ class Facets:
     far: np.ndarray
 
 
-def figures(camera: Camera, poses: list[BodyPose], costumes: list[Costume]) -> Facets:
-    """Build, light and sort the facets of every figure (see :class:`Facets`)."""
+@dataclass(frozen=True)
+class Prop:
+    """A rigid thing drawn with the figures: a folder a figure holds, a riser or a bench.
+
+    Attributes
+    ----------
+    quads
+        ``(F, 4, 3)`` world corners, metres.
+    colour
+        RGB in [0, 1].
+    owner
+        The figure that holds it (its pixels count as that figure's), or -1 for the room (its
+        pixels show the room, but it still hides what lies behind it).
+    """
+
+    quads: np.ndarray
+    colour: tuple[float, float, float]
+    owner: int = -1
+
+
+def figures(camera: Camera, poses: list[BodyPose], costumes: list[Costume],
+            props: Sequence[Prop] = ()) -> Facets:
+    """Build, light and sort the facets of every figure and prop (see :class:`Facets`)."""
     mesh = _Mesh()
     for who, (pose, look) in enumerate(zip(poses, costumes)):
         _legs(mesh, pose, look, who)
@@ -530,6 +552,8 @@ def figures(camera: Camera, poses: list[BodyPose], costumes: list[Costume]) -> F
         _trunk(mesh, pose, look, who)
         _arms(mesh, pose, look, who)
         _head(mesh, pose, look, who)
+    for prop in props:
+        mesh.add(prop.quads, prop.colour, prop.owner, two_sided=True)
     quads, albedo, owner, two_sided = mesh.arrays()
     colour, keep = _shade(quads, albedo, two_sided, camera.centre)
     quads, colour, owner = quads[keep], colour[keep], owner[keep]
@@ -739,8 +763,8 @@ def _rasterise(camera: Camera, facets: Facets, shape: tuple[int, int]
 
 
 def render(camera: Camera, poses: list[BodyPose], costumes: list[Costume],
-           background: np.ndarray) -> Rendered:
-    """Draw the dancers over the hall.
+           background: np.ndarray, props: Sequence[Prop] = ()) -> Rendered:
+    """Draw the dancers (and any props) over the hall.
 
     Parameters
     ----------
@@ -750,6 +774,8 @@ def render(camera: Camera, poses: list[BodyPose], costumes: list[Costume],
         One per figure; the figure's index is its owner value.
     background
         The hall from :func:`hall` (not modified).
+    props
+        Rigid things drawn with the figures (:class:`Prop`), none by default.
 
     Returns
     -------
@@ -758,7 +784,7 @@ def render(camera: Camera, poses: list[BodyPose], costumes: list[Costume],
     """
     shape = background.shape[:2]
     img = background * (1 - 0.55 * _shadows(camera, poses, shape))[..., None]
-    facets = figures(camera, poses, costumes)
+    facets = figures(camera, poses, costumes, props)
     index, z = _rasterise(camera, facets, shape)
     hit = index >= 0
     shown = index[hit]

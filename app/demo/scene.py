@@ -8,9 +8,9 @@ the near side of the rings from behind, the far side from the front and the rest
 rows of dancers stand one behind another and neighbours' arms cross.
 
 True labels come from the render: a joint is occluded (``v = 1``) when the pixel it projects to
-shows another figure nearer than the joint, or a part of the same figure clearly in front of it
-(the far arm behind the chest, the back of the head over the face); ``v = 0`` when it falls
-outside the picture.
+shows another figure (or a prop of the room, such as a riser) nearer than the joint, or a part
+of the same figure clearly in front of it (the far arm behind the chest, the back of the head
+over the face, a folder the figure holds); ``v = 0`` when it falls outside the picture.
 """
 
 from __future__ import annotations
@@ -25,6 +25,10 @@ import cv2
 import numpy as np
 
 from app.demo.camera import Camera
+from app.demo.choir import DESCRIPTION as CHOIR_DESCRIPTION
+from app.demo.choir import NAME as CHOIR_NAME
+from app.demo.choir import ChoirNetwork, make_choir, render_choir
+from app.demo.choir import perceive as perceive_choir
 from app.demo.maps import ErrorRuns, draw, perceive, save_maps
 from app.demo.poses import (
     COUNTS_PER_PHRASE,
@@ -177,8 +181,11 @@ def render_frame(scene: Scene, frame: int, background: np.ndarray | None = None
     return render(scene.camera, poses, list(scene.costumes), background), poses
 
 
-def label_frame(scene: Scene, poses: list[BodyPose], rendered: Rendered) -> FrameTruth:
+def label_frame(scene: Any, poses: list[BodyPose], rendered: Rendered) -> FrameTruth:
     """The true labels of a rendered frame (see the module docstring for visibility).
+
+    ``scene`` is anything with the ``camera`` that rendered it (a :class:`Scene`, a
+    :class:`app.demo.choir.ChoirScene`).
 
     Dancers with no pixel in the picture are left out.
     """
@@ -205,14 +212,14 @@ def label_frame(scene: Scene, poses: list[BodyPose], rendered: Rendered) -> Fram
         for j in np.flatnonzero(inside):
             c, r = round(float(uv[j, 0])), round(float(uv[j, 1]))
             o, d = int(owner[r, c]), float(zbuf[r, c])
-            hidden = (o == i and d < z[j] - margin[j]) or (o not in (i, -1) and d < z[j] + 0.05)
+            hidden = (o == i and d < z[j] - margin[j]) or (o != i and d < z[j] + 0.05)
             kp[j] = (uv[j, 0], uv[j, 1], 1 if hidden else 2)
             r0, r1 = max(r - radius, 0), min(r + radius + 1, h)
             c0, c1 = max(c - radius, 0), min(c + radius + 1, w)
             gy, gx = np.ogrid[r0:r1, c0:c1]
             disc = (gy - r) ** 2 + (gx - c) ** 2 <= radius**2
             win_o, win_z = owner[r0:r1, c0:c1], zbuf[r0:r1, c0:c1]
-            cover = (((win_o != i) & (win_o >= 0) & (win_z < z[j] + 0.05))
+            cover = (((win_o != i) & (win_z < z[j] + 0.05))
                      | ((win_o == i) & (win_z < z[j] - margin[j])))
             occ[j] = float(cover[disc].mean())
         ys, xs = np.nonzero(mask)
@@ -249,10 +256,15 @@ DESCRIPTION = (
 )
 
 
+#: The scenarios :func:`generate` writes: the folk dance (the default) and the choir on
+#: risers (:mod:`app.demo.choir`).
+SCENES = ("dance", "choir")
+
+
 def generate(out_dir: str | Path, seed: int = DEFAULT_SEED, frames: int = 24,
              stride: int = STRIDE, jpeg_quality: int = JPEG_QUALITY,
-             progress: Progress | None = None) -> Path:
-    """Write the synthetic folk-dance rehearsal: frames, true poses, simulated network maps.
+             progress: Progress | None = None, scene: str = "dance") -> Path:
+    """Write a synthetic rehearsal: frames, true poses, simulated network maps.
 
     Parameters
     ----------
@@ -271,6 +283,10 @@ def generate(out_dir: str | Path, seed: int = DEFAULT_SEED, frames: int = 24,
         OpenCV JPEG quality of the frames.
     progress
         Told ``(done, total, "frames")`` after each frame; may cancel.
+    scene
+        ``"dance"``, the folk-dance rehearsal of this module, or ``"choir"``, the choir on
+        stepped risers of :mod:`app.demo.choir` (its frames are 1/8 s apart, its ``track_id``
+        1 is the conductor, and its maps carry the choir's errors as well as the dance's).
 
     Returns
     -------
@@ -304,23 +320,37 @@ def generate(out_dir: str | Path, seed: int = DEFAULT_SEED, frames: int = 24,
         folder.mkdir(parents=True, exist_ok=True)
         for stale in folder.glob(pattern):
             stale.unlink()
+    if scene not in SCENES:
+        raise ValueError(f"no demo scene {scene!r}; there are {', '.join(SCENES)}")
     skeleton = coco_body()
-    scene = make_scene(seed)
-    background = hall(scene.camera)
-    width, height = scene.camera.size
+    choir = scene == "choir"
+    cast: Any = make_choir(seed) if choir else make_scene(seed)
+    background = hall(cast.camera)
+    width, height = cast.camera.size
     images: list[dict[str, Any]] = []
     annotations: list[dict[str, Any]] = []
     # The network's errors last over frames while their cause does (see app.demo.maps).
     runs = ErrorRuns()
+    network = ChoirNetwork()
     for f in range(frames):
-        rendered, poses = render_frame(scene, f, background)
-        truth = label_frame(scene, poses, rendered)
+        if choir:
+            rendered, poses = render_choir(cast, f, background)
+        else:
+            rendered, poses = render_frame(cast, f, background)
+        truth = label_frame(cast, poses, rendered)
         stem = f"rehearsal_{f + 1:04d}"
         cv2.imwrite(str(images_dir / f"{stem}.jpg"), rendered.image,
                     [cv2.IMWRITE_JPEG_QUALITY, int(jpeg_quality)])
-        rng = np.random.default_rng(np.random.SeedSequence([seed, 2, f]))
-        seen = perceive(truth.keypoints, truth.occlusion, truth.height, truth.facing, skeleton,
-                        rng, truth.track_ids, runs)
+        if choir:
+            rng = np.random.default_rng(np.random.SeedSequence([seed, 12, f]))
+            holders = np.array([cast.singers[t - 1].folder for t in truth.track_ids], bool)
+            seen = perceive_choir(truth.keypoints, truth.occlusion, truth.height,
+                                  truth.facing, skeleton, rng, truth.track_ids, holders,
+                                  network)
+        else:
+            rng = np.random.default_rng(np.random.SeedSequence([seed, 2, f]))
+            seen = perceive(truth.keypoints, truth.occlusion, truth.height, truth.facing,
+                            skeleton, rng, truth.track_ids, runs)
         confidence, fields = draw(seen, skeleton, (width, height), stride, rng)
         save_maps(maps_dir / f"{stem}.npz", confidence, fields, stride)
         images.append({"id": f + 1, "file_name": f"{stem}.jpg", "width": width,
@@ -342,8 +372,9 @@ def generate(out_dir: str | Path, seed: int = DEFAULT_SEED, frames: int = 24,
         log.debug("frame %d: %d dancers", f + 1, len(truth.track_ids))
         if progress is not None:
             progress.step(f + 1, frames, "frames")
+    name, description = (CHOIR_NAME, CHOIR_DESCRIPTION) if choir else (NAME, DESCRIPTION)
     dataset = {
-        "info": {"description": NAME, "version": "1", "year": 2026,
+        "info": {"description": name, "version": "1", "year": 2026,
                  "contributor": "posewright demo generator (synthetic)"},
         "images": images,
         "annotations": annotations,
@@ -353,13 +384,14 @@ def generate(out_dir: str | Path, seed: int = DEFAULT_SEED, frames: int = 24,
     sources = {
         "format": "posewright-project-sources",
         "version": 1,
-        "name": NAME,
+        "name": name,
         "images": "images",
         "maps": "maps",
         "truth": "truth.json",
         "skeleton": skeleton.to_dict(),
         "seed": int(seed),
-        "description": DESCRIPTION,
+        "scene": scene,
+        "description": description,
     }
     path = out / "project-sources.json"
     path.write_text(json.dumps(sources, indent=2) + "\n", encoding="utf-8")

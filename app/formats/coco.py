@@ -23,6 +23,8 @@ Conventions decided here:
   and ``v = 0`` where it is 0.
 - ``v = 0`` joints keep no position (COCO writes 0, 0 for them).
 - Crowd annotations (``iscrowd: 1``) are ignore regions, not people.
+- ``track_id`` (a whole number from 0 up), when present, is the person's track: who they are
+  across the frames of a sequence. It is written back for every person on a track.
 
 Writing produces a dataset. Image ids, file names, the category record and every annotation
 field we do not compute are written back as they were read. Computed fields:
@@ -57,7 +59,7 @@ from pydantic import (
 )
 
 from app.errors import BadInput
-from app.fileio import JsonId, describe, json_ready, read_json
+from app.fileio import MAX_ID, JsonId, describe, json_ready, read_json
 from app.formats.images import MAX_SIDE
 from app.model.labels import AUTO, IMPORTED, Frame, Person
 from app.model.skeleton import Skeleton
@@ -350,10 +352,12 @@ def _read_dataset(data: dict[str, Any], where: str, skeleton: Skeleton,
         [f"annotations[{i}] (id {a.id})" for i, a, _ in labels],
         [matched[a.image_id] for _, a, _ in labels])
     no_scores = np.full(k, np.nan)
-    for (_, a, extra), kp in zip(labels, block):
+    for (i, a, extra), kp in zip(labels, block):
         source = AUTO if a.score is not None else IMPORTED
+        track = _track_id(extra, where, f"annotations[{i}] (id {a.id})")
         person = Person(a.id, kp, no_scores, (source,) * k,
-                        None if a.score is None else float(a.score), extra)
+                        None if a.score is None else float(a.score), extra, track,
+                        "" if track is None else IMPORTED)
         out.people.append((a.image_id, person))
     cat = next(iter(cats.values()))
     out.category = {key: v for key, v in data["categories"][0].items()}
@@ -419,10 +423,25 @@ def _read_results(data: list[Any], where: str, skeleton: Skeleton,
             kp[:, 2] = np.where(scores > 0, 2, 0)
         extra = {key: v for key, v in data[i].items()
                  if key not in ("image_id", "keypoints", "score", "id")}
+        track = _track_id(extra, where, f"results[{i}]")
         out.people.append((r.image_id, Person(0, kp, scores, (AUTO,) * k, float(r.score),
-                                              extra)))
+                                              extra, track, "" if track is None else IMPORTED)))
     out.fresh_people = len(out.people)
     return out
+
+
+def _track_id(extra: dict[str, Any], where: str, record: str) -> int | None:
+    """Take ``track_id`` out of an annotation's kept fields: the person's track (who they are
+    across a sequence's frames), a whole number from 0 up, or absent."""
+    if "track_id" not in extra:
+        return None
+    value = extra.pop("track_id")
+    if value is None:
+        return None
+    if isinstance(value, bool) or not isinstance(value, int) or not 0 <= value <= MAX_ID:
+        raise BadInput(f"{record}: field track_id: {value!r} is not a whole number from 0 to "
+                       f"{MAX_ID}", where=where)
+    return int(value)
 
 
 # ---------------------------------------------------------------------- writing
@@ -472,6 +491,8 @@ def annotation(person: Person, image_id: int, category_id: int) -> dict[str, Any
         extra["area"] = round(box[2] * box[3], 2)
     extra.setdefault("iscrowd", 0)
     ann.update(extra)
+    if person.track is not None:
+        ann["track_id"] = int(person.track)
     if person.score is not None:
         ann["score"] = person.score
     return ann

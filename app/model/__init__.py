@@ -18,6 +18,7 @@ from app.model.edits import (
     ReshapeRegion,
     Restore,
     SetFrameState,
+    SetTrack,
     SetVisibility,
     SplitPerson,
     SwapSides,
@@ -45,6 +46,7 @@ from app.model.targets import (
     RegionTarget,
     StateTarget,
     Target,
+    TrackTarget,
 )
 
 __all__ = [
@@ -79,6 +81,7 @@ __all__ = [
     "ReshapeRegion",
     "Restore",
     "SetFrameState",
+    "SetTrack",
     "SetVisibility",
     "Side",
     "Skeleton",
@@ -86,6 +89,7 @@ __all__ = [
     "StateTarget",
     "SwapSides",
     "Target",
+    "TrackTarget",
     "apply_changes",
     "coco_body",
     "edit_from_value",

@@ -7,8 +7,9 @@ every edit can invert itself (the command pattern). The store writes the same ch
 append-only ledger, which is why undo survives a restart.
 
 Targets are small typed values (:mod:`app.model.targets`): :class:`PersonTarget`,
-:class:`JointTarget`, :class:`StateTarget`, :class:`NoteTarget`, :class:`RegionTarget`,
-:class:`KeptTarget` and :class:`DismissalTarget`; that module says which value each carries.
+:class:`JointTarget`, :class:`TrackTarget`, :class:`StateTarget`, :class:`NoteTarget`,
+:class:`RegionTarget`, :class:`KeptTarget` and :class:`DismissalTarget`; that module says
+which value each carries.
 
 Edits are refused with :class:`~app.errors.EditRefused` (and nothing changes) when they would
 make the labels inconsistent; the message says why and what to do.
@@ -35,10 +36,14 @@ from app.model.targets import (
     RegionTarget,
     StateTarget,
     Target,
+    TrackTarget,
 )
 
-TARGET_TYPES = (PersonTarget, JointTarget, StateTarget, NoteTarget, RegionTarget, KeptTarget,
-                DismissalTarget, RecordTarget)
+#: The provenance of joints interpolated from neighbouring frames, not yet checked by anyone.
+INTERPOLATED = "interpolated"
+
+TARGET_TYPES = (PersonTarget, JointTarget, TrackTarget, StateTarget, NoteTarget, RegionTarget,
+                KeptTarget, DismissalTarget, RecordTarget)
 
 
 @dataclass(frozen=True)
@@ -77,6 +82,8 @@ def _current(labels: FrameLabels, target: Target) -> Any:
         return None if p is None else p.to_value()
     if isinstance(target, JointTarget):
         return labels.person(target.person).joint_value(target.joint)
+    if isinstance(target, TrackTarget):
+        return labels.person(target.person).track_value()
     if isinstance(target, StateTarget):
         return labels.state.value
     if isinstance(target, NoteTarget):
@@ -122,6 +129,10 @@ def apply_changes(labels: FrameLabels, changes: Iterable[Change]) -> FrameLabels
             if t.person not in people:
                 raise EditRefused(f"frame {labels.frame_id} has no person {t.person}")
             people[t.person] = people[t.person].with_joint(t.joint, ch.after)
+        elif isinstance(t, TrackTarget):
+            if t.person not in people:
+                raise EditRefused(f"frame {labels.frame_id} has no person {t.person}")
+            people[t.person] = people[t.person].with_track(ch.after)
         elif isinstance(t, StateTarget):
             state = FrameState(ch.after)
         elif isinstance(t, NoteTarget):
@@ -287,18 +298,27 @@ class ReassignJoint(Edit):
 
 @dataclass(frozen=True)
 class NewPerson(Edit):
-    """Add a person, optionally with joints ``(K, 3)``; the store fills in a fresh id."""
+    """Add a person, optionally with joints ``(K, 3)``; the store fills in a fresh id.
+
+    ``source`` names the joints' provenance when it is not the author: a person interpolated
+    from neighbouring frames is :data:`INTERPOLATED` until someone edits its joints, which is
+    how it stays marked for checking. ``track`` puts the new person on a track.
+    """
 
     frame_id: int
     person_id: int | None = None
     keypoints: tuple[tuple[float, float, int], ...] | None = None
+    source: str | None = None
+    track: int | None = None
 
     def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
         if self.person_id is None:
             raise EditRefused("a new person needs an id (the store assigns one)")
         if self.person_id in labels.people:
             raise EditRefused(f"person {self.person_id} already exists")
-        p = Person.blank(self.person_id, labels.num_joints, ctx.author)
+        p = Person.blank(self.person_id, labels.num_joints, self.source or ctx.author)
+        if self.track is not None:
+            p = replace(p, track=int(self.track), track_source=ctx.author)
         if self.keypoints is not None:
             kp = np.asarray(self.keypoints, dtype=np.float64)
             if kp.shape != (labels.num_joints, 3):
@@ -413,6 +433,37 @@ class SwapSides(Edit):
 
     def summary(self) -> str:
         return f"swap left and right of person {self.person_id}"
+
+
+@dataclass(frozen=True)
+class SetTrack(Edit):
+    """Put a person on a track (``track`` None takes them off every track).
+
+    Tracks say who is who across the frames of a sequence; joining two tracks or splitting
+    one is a batch of these over the frames concerned (:mod:`app.model.tracks`). A track set
+    here is credited to the author, and linking again keeps it. Tracks are not what training
+    sees, so setting one does not mark the frame corrected.
+    """
+
+    frame_id: int
+    person_id: int
+    track: int | None
+    changes_labels: ClassVar[bool] = False
+
+    def plan(self, labels: FrameLabels, ctx: EditContext) -> list[Change]:
+        p = labels.person(self.person_id)
+        if self.track is not None and int(self.track) < 0:
+            raise EditRefused(f"track {self.track} is not a track id (0 or more)")
+        after = [None if self.track is None else int(self.track),
+                 "" if self.track is None else ctx.author]
+        if same_value(p.track_value(), after):
+            return []
+        return [Change(TrackTarget(p.id), p.track_value(), after)]
+
+    def summary(self) -> str:
+        if self.track is None:
+            return f"take person {self.person_id} off their track"
+        return f"put person {self.person_id} on track {self.track}"
 
 
 @dataclass(frozen=True)
@@ -746,7 +797,7 @@ def _plain(value: Any) -> Any:
 
 _SERIALISABLE.update({cls.__name__: cls for cls in (
     MoveJoint, SetVisibility, ReassignJoint, NewPerson, DeletePerson, MergePeople,
-    SplitPerson, SwapSides, SetFrameState, DismissFinding, EditGroup)})
+    SplitPerson, SwapSides, SetTrack, SetFrameState, DismissFinding, EditGroup)})
 
 
 def labels_changed(changes: Sequence[Change]) -> bool:

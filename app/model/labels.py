@@ -61,6 +61,13 @@ class Person:
         The model's score for the whole person, if any.
     extra
         Fields carried through from an imported file (``bbox``, ``area``, ``iscrowd``...).
+    track
+        The track the person belongs to in its sequence (the same dancer in every frame of
+        one video or image folder carries one track id), or None when not linked.
+    track_source
+        Who set the track: ``"auto"`` (linked by :mod:`app.analysis.tracks`), ``"import"``
+        (a label file's ``track_id``) or the author who edited it. Linking again keeps the
+        tracks that someone edited.
     """
 
     id: int
@@ -69,6 +76,8 @@ class Person:
     sources: tuple[str, ...]
     score: float | None = None
     extra: Mapping[str, Any] = field(default_factory=dict)
+    track: int | None = None
+    track_source: str = ""
 
     @staticmethod
     def blank(person_id: int, num_joints: int, source: str = "") -> Person:
@@ -86,14 +95,19 @@ class Person:
         return int(np.count_nonzero(self.labelled))
 
     def to_value(self) -> dict[str, Any]:
-        """A JSON-ready dict (NaN as None); :meth:`from_value` reads it back exactly."""
-        return {
+        """A JSON-ready dict (NaN as None); :meth:`from_value` reads it back exactly. The
+        track is written only when the person has one, so values written before tracks
+        existed read the same."""
+        out = {
             "keypoints": [[_num(x), _num(y), int(v)] for x, y, v in self.keypoints],
             "scores": [_num(s) for s in self.scores],
             "sources": list(self.sources),
             "score": self.score,
             "extra": dict(self.extra),
         }
+        if self.track is not None:
+            out["track"] = [int(self.track), self.track_source]
+        return out
 
     @staticmethod
     def from_value(person_id: int, value: Mapping[str, Any]) -> Person:
@@ -103,10 +117,22 @@ class Person:
             dtype=np.float64,
         ).reshape(-1, 3)
         scores = np.array([np.nan if s is None else s for s in value["scores"]], dtype=np.float64)
+        track = value.get("track")
         return Person(
             person_id, kp, scores, tuple(value["sources"]), value.get("score"),
             dict(value.get("extra") or {}),
+            None if track is None else int(track[0]), "" if track is None else str(track[1]),
         )
+
+    def track_value(self) -> list[Any]:
+        """The track as ``[track id or None, who set it]``."""
+        return [None if self.track is None else int(self.track), self.track_source]
+
+    def with_track(self, value: list[Any]) -> Person:
+        """A copy with the track set from ``[track id or None, who set it]``."""
+        track, source = value
+        return replace(self, track=None if track is None else int(track),
+                       track_source="" if track is None else str(source))
 
     def joint_value(self, j: int) -> list[Any]:
         """One joint as ``[x, y, v, score, source]`` (NaN as None)."""
@@ -133,6 +159,8 @@ class Person:
             and bool(np.array_equal(self.scores, other.scores, equal_nan=True))
             and self.sources == other.sources
             and self.score == other.score
+            and self.track == other.track
+            and self.track_source == other.track_source
         )
 
 

@@ -12,6 +12,7 @@ Targets and the values their changes carry (all JSON-ready):
 - :class:`PersonTarget`: the whole person (:meth:`app.model.labels.Person.to_value`) or
   ``None`` when absent.
 - :class:`JointTarget`: ``[x, y, v, score, source]`` of one joint of an existing person.
+- :class:`TrackTarget`: ``[track id or None, who set it]`` of one existing person.
 - :class:`StateTarget`: the frame's state, a :class:`~app.model.labels.FrameState` value.
 - :class:`NoteTarget`: a note's value or ``None``.
 - :class:`RegionTarget`: an ignore region's value or ``None``.
@@ -59,6 +60,17 @@ class JointTarget:
 
     def __str__(self) -> str:
         return f"person:{self.person}/joint:{self.joint}"
+
+
+@dataclass(frozen=True)
+class TrackTarget:
+    """The track label of one person (who they are across the frames of a sequence)."""
+
+    person: int
+    kind: ClassVar[str] = "track"
+
+    def __str__(self) -> str:
+        return f"person:{self.person}/track"
 
 
 @dataclass(frozen=True)
@@ -126,8 +138,8 @@ class RecordTarget:
         return self.what
 
 
-Target = (PersonTarget | JointTarget | StateTarget | NoteTarget | RegionTarget | KeptTarget
-          | DismissalTarget | RecordTarget)
+Target = (PersonTarget | JointTarget | TrackTarget | StateTarget | NoteTarget | RegionTarget
+          | KeptTarget | DismissalTarget | RecordTarget)
 
 #: The targets whose value is keyed by one integer id, by kind.
 _BY_ITEM: dict[str, type[NoteTarget] | type[RegionTarget] | type[KeptTarget]] = {
@@ -142,6 +154,8 @@ def to_columns(target: Target) -> Columns:
         return ("joint", target.person, target.joint, None, None)
     if isinstance(target, PersonTarget):
         return ("person", target.person, None, None, None)
+    if isinstance(target, TrackTarget):
+        return ("track", target.person, None, None, None)
     if isinstance(target, StateTarget):
         return ("state", None, None, None, None)
     if isinstance(target, NoteTarget):
@@ -162,6 +176,8 @@ def from_columns(kind: str, person: int | None, joint: int | None, item: int | N
         return JointTarget(int(person), int(joint))
     if kind == "person" and person is not None:
         return PersonTarget(int(person))
+    if kind == "track" and person is not None:
+        return TrackTarget(int(person))
     if kind == "state":
         return StateTarget()
     if kind in _BY_ITEM and item is not None:
@@ -179,6 +195,8 @@ def parse_target(text: str) -> Target:
         return StateTarget()
     parts = text.split("/")
     kind, _, ident = parts[0].partition(":")
+    if kind == "person" and parts[1:] == ["track"] and ident.isdigit():
+        return TrackTarget(int(ident))
     if kind == "person" and len(parts) == 2 and ident.isdigit():
         return JointTarget(int(ident), int(parts[1].partition(":")[2]))
     if kind == "person" and ident.isdigit():

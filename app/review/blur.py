@@ -1,22 +1,53 @@
-"""Blurring heads in a frame before it leaves the project in a review packet.
+"""Blurring the people in a frame before it leaves the project in a review packet.
 
-Each person gets an ellipse around the head, placed from the face joints when any is
-labelled and otherwise from the top of the torso, and sized from the person's own scale. Pixels
-inside any ellipse are replaced by a strong Gaussian blur of the image; every pixel outside all
-ellipses is left exactly as it was.
+Auto-labels in a crowd are exactly what is wrong (a missed person, a head given to a
+neighbour), so a blur placed from the labels alone cannot be trusted. Regions come from every
+source of evidence, each recorded as a *source* of the region it places:
+
+``labels``
+    Every labelled person: an ellipse around the head placed from the face joints, else from
+    the shoulders (:func:`head_ellipses`).
+``maps``
+    The network's confidence maps kept with the frame: every head-joint peak (nose, eyes, ears)
+    that no labelled person owns, grouped into heads and sized from the local scale of the
+    labelled people nearby or, away from them, from the frame's floor in perspective
+    (:func:`map_head_ellipses`).
+``detector``
+    A general-purpose face detector (:mod:`app.review.faces`) as the last net
+    (:func:`face_ellipses`).
+
+Pieces that overlap merge into one region, which remembers its sources
+and the labelled people behind it; :func:`blur_regions` blurs the union of each region's
+shapes. With ``mode="people"`` every person's whole region is blurred instead: the hull of a
+person's labelled joints, of each person the maps group, and a body box under each face the
+detector finds (:func:`place_regions`).
+
+Without maps nothing but the detector can find a person the labels miss, and it finds only
+faces turned to the camera: :class:`BlurPlan` says so (:meth:`BlurPlan.risk`).
 """
 
 from __future__ import annotations
 
 from collections.abc import Sequence
+from dataclasses import dataclass, field
+from typing import Any
 
 import cv2
 import numpy as np
 
 from app.analysis.anthropometry import person_scale
 from app.model.skeleton import Skeleton
+from app.wording import count
 
-__all__ = ["blur_heads", "head_ellipses"]
+__all__ = ["MODES", "SOURCES", "BlurPlan", "Region", "blur_frame", "blur_regions",
+           "face_ellipses", "head_ellipses", "label_head_ellipses", "local_stature",
+           "map_head_ellipses",
+           "place_regions", "region_mask"]
+
+#: What a blurred image hides: heads, or whole people.
+MODES = ("heads", "people")
+#: What may place a region, in the order they are tried.
+SOURCES = ("labels", "maps", "detector")
 
 FACE_JOINTS = ("nose", "left_eye", "right_eye", "left_ear", "right_ear")
 
@@ -26,9 +57,128 @@ HALF_HEIGHT = 0.115
 #: How far above the face landmarks' mean the head's centre lies, and above the shoulders.
 FACE_LIFT = 0.02
 NECK_LIFT = 0.117
+#: Margin around the face joints an ellipse holds, as a fraction of stature (half a head's
+#: width).
+REACH_MARGIN = 0.05
 #: Shoulder width as a fraction of stature (the torso table of app.analysis.anthropometry).
 SHOULDER_WIDTH = 0.259
+#: Gaussian sigma of the blur as a fraction of stature: half the head ellipse's smaller
+#: half-axis, about 0.42 of a head's width (see :func:`blur_regions`).
+SIGMA = HALF_WIDTH / 2
+#: A map peak is owned by a person whose joint of the same kind lies within this share of
+#: the person's stature (half a head's width).
+OWNED = 0.05
+#: Head-joint peaks this close (share of the local stature) belong to one head: any two
+#: landmarks of one head lie within about a head's width (app.analysis.anthropometry).
+SAME_HEAD = 0.12
+#: Face joints of one person this far apart (share of their stature) lie on two heads.
+OTHER_HEAD = 0.2
+#: Least confidence of a map peak that marks a head alone: the default of
+#: app.analysis.association.find_peaks, the value grouping uses too.
+PEAK_THRESHOLD = 0.1
+#: Least peak of the sum of the face joints' maps that marks a head: a network that barely
+#: sees a person still agrees with itself across channels, where the noise of one channel
+#: does not, so the sum finds faint heads that no single channel shows above
+#: :data:`PEAK_THRESHOLD` (tuned on demo seed 2, see app/demo/blurcheck.py).
+HEAD_SUM = 0.2
+#: A peak of the face sum is owned by a person with any face joint within this share of
+#: their stature (the sum peaks between a head's landmarks).
+OWNED_SUM = 0.08
+#: Stature assumed, as a share of the image height, when a frame has no labelled person.
+DEFAULT_STATURE = 0.5
+#: Widest plausible face box, as a fraction of the local stature: three heads' widths.
+MAX_FACE = 0.3
+#: Two pieces merge when the overlap of their boxes covers this share of the smaller box.
+MERGE_OVERLAP = 0.3
+#: In ``people`` mode, how far a person's region reaches beyond their joints (share of
+#: stature): more than half a torso's width, and clothes and feet reach past the joints (a
+#: skirt's hem, a coat, the foot beyond the ankle).
+BODY_MARGIN = 0.1
 
+
+# ---------------------------------------------------------------------- what is blurred
+
+@dataclass(frozen=True)
+class Region:
+    """One place blurred: the union of its shapes, and what placed it.
+
+    ``ellipses`` is ``(n, 4)`` ``cx, cy, half_width, half_height`` (axis-aligned) and
+    ``polygons`` a tuple of ``(m, 2)`` ``x, y`` arrays, all in image pixels; ``sigma`` the
+    Gaussian blur's standard deviation in pixels; ``sources`` a subset of :data:`SOURCES`;
+    ``people`` the ids of the labelled people whose labels placed a part of it.
+    """
+
+    ellipses: np.ndarray
+    polygons: tuple[np.ndarray, ...]
+    sigma: float
+    sources: frozenset[str]
+    people: frozenset[int] = frozenset()
+
+    def bounds(self) -> tuple[float, float, float, float]:
+        """``x0, y0, x1, y1``: the box around every shape (not clipped to the image)."""
+        corners = [np.column_stack([e[:, 0] - e[:, 2], e[:, 1] - e[:, 3],
+                                    e[:, 0] + e[:, 2], e[:, 1] + e[:, 3]])
+                   for e in (self.ellipses,) if len(e)]
+        corners += [np.concatenate([p.min(axis=0), p.max(axis=0)])[None] for p in self.polygons]
+        box = np.concatenate(corners, axis=0)
+        return (float(box[:, 0].min()), float(box[:, 1].min()), float(box[:, 2].max()),
+                float(box[:, 3].max()))
+
+    def to_value(self) -> dict[str, Any]:
+        """The region as the packet's manifest records it (see :mod:`app.review.packet`)."""
+        x0, y0, x1, y1 = self.bounds()
+        return {
+            "sources": [s for s in SOURCES if s in self.sources],
+            "people": sorted(self.people),
+            "box": [round(x0, 1), round(y0, 1), round(x1, 1), round(y1, 1)],
+            "sigma": round(self.sigma, 2),
+            "ellipses": np.round(self.ellipses, 1).tolist(),
+            "polygons": [np.round(p, 1).tolist() for p in self.polygons],
+        }
+
+
+@dataclass(frozen=True)
+class BlurPlan:
+    """Where a frame is blurred and how far that can be trusted.
+
+    ``unplaced``: labelled people with no labelled joint (nothing of the labels locates them).
+    ``unsure``: without maps, labelled people whose head the labels only guess (no face joint
+    labelled). ``maps`` and ``detector`` say whether those sources were there.
+    ``share``: the fraction of the image's pixels inside a region.
+    """
+
+    regions: tuple[Region, ...]
+    unplaced: int = 0
+    unsure: int = 0
+    maps: bool = False
+    detector: bool = False
+    share: float = 0.0
+    size: tuple[int, int] = field(default=(0, 0))
+
+    def risk(self) -> str | None:
+        """Why people may stay recognisable, in a few words, or None.
+
+        Without maps, a person the labels miss is found only by the face detector, which sees
+        no face turned away or covered, so such a frame is always at risk; the people whose
+        head the labels place by a guess (or not at all) are counted. A face the detector finds
+        is blurred, but it clears no one: it may be another person's.
+
+        Examples
+        --------
+        >>> BlurPlan((), unsure=2).risk()
+        '2 people may be unblurred: no maps'
+        >>> BlurPlan((), maps=True).risk() is None
+        True
+        """
+        if self.maps:
+            return None
+        at_risk = self.unplaced + self.unsure
+        if at_risk:
+            return f"{count(at_risk, 'people')} may be unblurred: no maps"
+        return "people the labels miss may be unblurred: no maps"
+
+
+# ---------------------------------------------------------------------- heads from labels
 
 def head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
                   image_size: tuple[int, int]) -> np.ndarray:
@@ -55,12 +205,24 @@ def head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
     a labelled torso segment it is the spread of the face joints over 0.1 (a head is about
     0.1 H wide), else the larger side of the box around the labelled joints.
 
+    Face joints more than ``0.2 H`` apart are taken for two heads (a label given to a
+    neighbour, a face put on the wrong copy of a person found twice; two heads side by side
+    are about a shoulder width, 0.26 H, apart, while one head's landmarks lie within 0.1 H
+    and a torso seen side on understates H): they are gathered as map peaks are
+    (:func:`map_head_ellipses`), nose first, and the person's head is the group with the most
+    joints; :func:`label_head_ellipses` gives the others too. Within one
+    head, ``H`` is raised to the group's spread over 0.1, by at most half (a torso seen side
+    on or bowing understates the scale; a wide spread is also a sign of wrong joints, which
+    the held landmarks cover anyway).
+
     The head is about 0.13 H from chin to crown and 0.1 H wide (chin to crown from memory of
     Winter, "Biomechanics and Motor Control of Human Movement", Fig. 4.1, after Drillis and
     Contini 1966; the width common practice, no source). The ellipse is larger than the head,
     ``0.085 H`` by ``0.115 H`` half-axes, to cover hair and labels a few pixels off. Its centre
     is the mean of the labelled face joints lifted by ``0.02 H`` (eyes and ears lie near the
-    middle of the head, the nose a little below). With no face joint labelled, the centre is
+    middle of the head, the nose a little below), and each half-axis is widened where needed
+    to hold every face joint of the group with a margin of ``0.05 H``. With no face joint
+    labelled, the centre is
     ``0.117 H`` from the middle of the shoulders (shoulders at 0.818 H, the head's middle at
     about 0.935 H, Winter Fig. 4.1 from memory), perpendicular to the shoulder line, on the
     side away from the hips (image up when the hips are unlabeled); with one shoulder, straight
@@ -75,30 +237,79 @@ def head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
     >>> head_ellipses([kp], coco_body(), (640, 480)).round(1)
     array([[100.,  46.,  17.,  23.]])
     """
-    w, h = image_size
-    floor = max(3.0, 0.02 * min(w, h))
-    index = {n: i for i, n in enumerate(skeleton.joints)}
-    face = [index[n] for n in FACE_JOINTS if n in index]
-    shoulders = [index[n] for n in ("left_shoulder", "right_shoulder") if n in index]
-    hips = [index[n] for n in ("left_hip", "right_hip") if n in index]
+    return label_head_ellipses(people, skeleton, image_size)[0]
+
+
+def label_head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
+                        image_size: tuple[int, int]
+                        ) -> tuple[np.ndarray, list[tuple[int, np.ndarray]]]:
+    """Every head the labels show: each person's (:func:`head_ellipses`), and the other heads
+    their face joints lie on, as ``(person index, ellipse)`` pairs.
+
+    Examples
+    --------
+    >>> from app.model.skeleton import coco_body
+    >>> kp = np.zeros((17, 3))
+    >>> kp[[0, 1, 2], :] = [[100, 50, 2], [95, 45, 2], [105, 45, 2]]    # a face
+    >>> kp[[3], :] = [[200, 48, 2]]                                     # an ear of another
+    >>> kp[[5, 6], :] = [[74.1, 90, 2], [125.9, 90, 2]]                 # H = 200
+    >>> main, extra = label_head_ellipses([kp], coco_body(), (640, 480))
+    >>> main.round(1), [(n, e.round(1)) for n, e in extra]
+    (array([[100. ,  42.7,  17. ,  23. ]]), [(0, array([200.,  44.,  17.,  23.]))])
+    """
+    floor = _floor(image_size)
+    face = _indices(skeleton, FACE_JOINTS)
+    shoulders = _indices(skeleton, ("left_shoulder", "right_shoulder"))
+    hips = _indices(skeleton, ("left_hip", "right_hip"))
     out = np.full((len(people), 4), np.nan)
+    extra: list[tuple[int, np.ndarray]] = []
     for n, person in enumerate(people):
         kp = np.asarray(person, dtype=np.float64)
-        on = (kp[:, 2] > 0) & np.isfinite(kp[:, :2]).all(axis=1)
+        on = _labelled(kp)
         if not on.any():
             continue
         stature = _stature(kp, on, face, skeleton)
         face_on = [j for j in face if on[j]]
         shoulders_on = [j for j in shoulders if on[j]]
         if face_on:
-            centre = kp[face_on, :2].mean(axis=0) - [0.0, FACE_LIFT * stature]
-        elif shoulders_on:
+            xy = kp[face_on, :2]
+            groups = _heads(xy, -np.arange(len(xy), dtype=np.float64),
+                            np.full(len(xy), OTHER_HEAD * stature))
+            groups.sort(key=len, reverse=True)  # stable: of equal groups, the nose's first
+            ellipses = [_group_ellipse(xy[g], stature, floor) for g in groups]
+            out[n] = ellipses[0]
+            extra += [(n, e) for e in ellipses[1:]]
+            continue
+        if shoulders_on:
             centre = _above_shoulders(kp, shoulders_on, [j for j in hips if on[j]], stature)
         else:
             xy = kp[on, :2]
             centre = np.array([xy[:, 0].mean(), xy[:, 1].min() - NECK_LIFT * stature])
         out[n] = (*centre, max(floor, HALF_WIDTH * stature), max(floor, HALF_HEIGHT * stature))
-    return out
+    return out, extra
+
+
+def _group_ellipse(xy: np.ndarray, stature: float, floor: float) -> np.ndarray:
+    """The ellipse of one head from its landmarks (see :func:`head_ellipses`)."""
+    if len(xy) >= 2:
+        stature = max(stature, min(float(np.ptp(xy, axis=0).max()) / 0.1, 1.5 * stature))
+    centre = xy.mean(axis=0) - [0.0, FACE_LIFT * stature]
+    reach = np.abs(xy - centre).max(axis=0) + REACH_MARGIN * stature
+    return np.array([*centre, max(floor, HALF_WIDTH * stature, reach[0]),
+                     max(floor, HALF_HEIGHT * stature, reach[1])])
+
+
+def _floor(size: tuple[int, int]) -> float:
+    return max(3.0, 0.02 * min(size))
+
+
+def _indices(skeleton: Skeleton, names: Sequence[str]) -> list[int]:
+    index = {n: i for i, n in enumerate(skeleton.joints)}
+    return [index[n] for n in names if n in index]
+
+
+def _labelled(kp: np.ndarray) -> np.ndarray:
+    return np.asarray((kp[:, 2] > 0) & np.isfinite(kp[:, :2]).all(axis=1))
 
 
 def _stature(kp: np.ndarray, on: np.ndarray, face: list[int], skeleton: Skeleton) -> float:
@@ -134,59 +345,559 @@ def _above_shoulders(kp: np.ndarray, shoulders: list[int], hips: list[int],
     return np.asarray(base + up * NECK_LIFT * stature)
 
 
-def blur_heads(image: np.ndarray, people: Sequence[np.ndarray],
-               skeleton: Skeleton) -> tuple[np.ndarray, int]:
-    """A copy of ``image`` with every person's head blurred.
+# ---------------------------------------------------------------------- heads from the maps
+
+def local_stature(points: np.ndarray, centres: np.ndarray, statures: np.ndarray,
+                  image_size: tuple[int, int]) -> np.ndarray:
+    """The stature of a person standing at each point, from the labelled people around it.
+
+    Parameters
+    ----------
+    points
+        ``(n, 2)`` image points.
+    centres
+        ``(P, 2)`` the labelled people's head centres.
+    statures
+        ``(P,)`` their statures in pixels (NaN or 0 where unknown).
+    image_size
+        ``(width, height)``.
+
+    Returns
+    -------
+    numpy.ndarray
+        ``(n,)`` statures in pixels.
+
+    Notes
+    -----
+    Near people: distances are counted in the statures of the people they lead to; the
+    median stature of the people whose head lies within 1.5 of those statures of the point,
+    and no farther than half a stature or 1.5 times the nearest one's distance (so a large
+    person two bodies away does not size the head beside a small one). Else the floor:
+    people stand on one floor, and in a perspective view of it a person's image size grows
+    linearly with how far down the image they stand (for a
+    level camera, ``H_image = f H / Z`` and ``y - y_horizon = f h_camera / Z``, so both are
+    proportional to ``1 / Z``); a straight line fitted to stature against head height over the
+    frame's people (at least three, spread over a tenth of the image height), clipped to half
+    the smallest and twice the largest stature seen. Else the median of all, else
+    :data:`DEFAULT_STATURE` of the image height. The pinhole relation is the standard
+    perspective projection (common practice, no source).
+
+    Examples
+    --------
+    >>> centres = np.array([[100.0, 100.0], [600.0, 300.0], [900.0, 500.0]])
+    >>> local_stature(np.array([[110.0, 95.0], [300.0, 400.0]]), centres,
+    ...               np.array([100.0, 200.0, 300.0]), (1280, 720)).round()
+    array([100., 250.])
+    """
+    points = np.asarray(points, dtype=np.float64).reshape(-1, 2)
+    known = np.isfinite(statures) & (np.asarray(statures) > 0) & np.isfinite(centres).all(axis=1)
+    c, s = np.asarray(centres, dtype=np.float64)[known], np.asarray(statures, float)[known]
+    out = np.full(len(points), DEFAULT_STATURE * image_size[1])
+    if not len(s):
+        return out
+    out[:] = np.median(s)
+    fit = None
+    if len(s) >= 3 and np.ptp(c[:, 1]) >= 0.1 * image_size[1]:
+        fit = np.polyfit(c[:, 1], s, 1)
+    d = np.hypot(points[:, None, 0] - c[None, :, 0], points[:, None, 1] - c[None, :, 1])
+    r = d / s[None, :]
+    for i in range(len(points)):
+        near = r[i] <= min(1.5, max(0.5, 1.5 * r[i].min()))
+        if near.any():
+            out[i] = np.median(s[near])
+        elif fit is not None:
+            out[i] = np.clip(np.polyval(fit, points[i, 1]), 0.5 * s.min(), 2.0 * s.max())
+    return out
+
+
+def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
+                      skeleton: Skeleton, image_size: tuple[int, int],
+                      head_peaks: np.ndarray | None = None) -> np.ndarray:
+    """Heads the network sees that no labelled person owns, as ellipses.
+
+    Parameters
+    ----------
+    peaks
+        Per joint of the skeleton, ``(n_j, 3)`` ``x, y, score`` in image pixels
+        (:func:`app.analysis.association.find_peaks`).
+    people
+        The labelled people, ``(K, 3)`` ``x, y, v`` each.
+    skeleton
+        The joint layout.
+    image_size
+        ``(width, height)``.
+    head_peaks
+        ``(n, 3)`` ``x, y, score``: peaks of the sum of the face joints' confidence maps
+        above :data:`HEAD_SUM`, or None.
+
+    Returns
+    -------
+    numpy.ndarray
+        ``(M, 4)`` ``cx, cy, half_width, half_height``, one per head.
+
+    Notes
+    -----
+    A peak of a face joint (nose, eyes, ears) is owned when a labelled person has that joint
+    within ``0.05 H`` of it (H the person's stature, half a head's width); a peak of the face
+    sum when any labelled face joint lies within ``0.08 H``. Unowned peaks are gathered into
+    heads, strongest first: a peak joins the first head whose first peak lies within
+    ``0.12 H`` of it (H the local stature, :func:`local_stature`; any two landmarks of a head
+    lie within about a head's width), else starts a head of its own, so a head never reaches
+    along a chain of peaks. Each head gets the ellipse the labels
+    would give it (:func:`head_ellipses`: centre the peaks' mean lifted by ``0.02 H``,
+    half-axes ``0.085 H`` and ``0.115 H``, widened to hold every peak with a margin of
+    ``0.05 H``).
+
+    Examples
+    --------
+    >>> from app.model.skeleton import coco_body
+    >>> peaks = [np.zeros((0, 3)) for _ in range(17)]
+    >>> peaks[0] = np.array([[300.0, 120.0, 0.9]])            # a nose nobody has
+    >>> map_head_ellipses(peaks, [], coco_body(), (640, 480)).round(1)
+    array([[300. , 115.2,  20.4,  27.6]])
+    """
+    face = _indices(skeleton, FACE_JOINTS)
+    found = [(j, p) for j in face for p in np.asarray(peaks[j]).reshape(-1, 3)]
+    if head_peaks is not None:
+        found += [(-1, p) for p in np.asarray(head_peaks).reshape(-1, 3)]
+    if not found:
+        return np.zeros((0, 4))
+    kinds = np.array([j for j, _ in found])
+    xy = np.array([p[:2] for _, p in found])
+    score = np.array([p[2] for _, p in found])
+    centres, statures = _people_scale(people, skeleton, image_size)
+    owned = np.zeros(len(xy), dtype=bool)
+    for person, stature in zip(people, statures):
+        kp = np.asarray(person, dtype=np.float64)
+        on = _labelled(kp)
+        if not np.isfinite(stature) or stature <= 0:
+            continue
+        face_xy = kp[[j for j in face if on[j]], :2].reshape(-1, 2)
+        for i, j in enumerate(kinds):
+            if j < 0:
+                owned[i] |= bool(len(face_xy)) and bool(
+                    (np.hypot(*(face_xy - xy[i]).T) <= OWNED_SUM * stature).any())
+            elif on[j] and np.hypot(*(kp[j, :2] - xy[i])) <= OWNED * stature:
+                owned[i] = True
+    xy, score = xy[~owned], score[~owned]
+    if not len(xy):
+        return np.zeros((0, 4))
+    scale = local_stature(xy, centres, statures, image_size)
+    floor = _floor(image_size)
+    out = []
+    for members in _heads(xy, score, SAME_HEAD * scale):
+        out.append(_group_ellipse(xy[members], float(np.median(scale[members])), floor))
+    return np.array(out, dtype=np.float64).reshape(-1, 4)
+
+
+def _people_scale(people: Sequence[np.ndarray], skeleton: Skeleton,
+                  image_size: tuple[int, int]) -> tuple[np.ndarray, np.ndarray]:
+    """Each labelled person's head centre and stature (NaN where nothing places them)."""
+    face = _indices(skeleton, FACE_JOINTS)
+    centres = head_ellipses(people, skeleton, image_size)[:, :2].reshape(-1, 2)
+    statures = np.full(len(people), np.nan)
+    for n, person in enumerate(people):
+        kp = np.asarray(person, dtype=np.float64)
+        on = _labelled(kp)
+        if on.any():
+            statures[n] = _stature(kp, on, face, skeleton)
+    return centres, statures
+
+
+def _heads(xy: np.ndarray, score: np.ndarray, reach: np.ndarray) -> list[np.ndarray]:
+    """Peaks gathered strongest first around the strongest peak of each head (no chains: a
+    head never reaches past ``reach`` of its first peak)."""
+    seeds: list[int] = []
+    members: list[list[int]] = []
+    for i in np.argsort(-score, kind="stable"):
+        for k, seed in enumerate(seeds):
+            if np.hypot(*(xy[i] - xy[seed])) <= reach[seed]:
+                members[k].append(int(i))
+                break
+        else:
+            seeds.append(int(i))
+            members.append([int(i)])
+    return [np.array(m) for m in members]
+
+
+# ---------------------------------------------------------------------- heads from faces
+
+def face_ellipses(boxes: np.ndarray) -> np.ndarray:
+    """Head ellipses around face boxes of a detector.
+
+    Parameters
+    ----------
+    boxes
+        ``(N, 4)`` ``x, y, width, height`` (:class:`app.review.faces.FaceDetector`).
+
+    Returns
+    -------
+    numpy.ndarray
+        ``(N, 4)`` ``cx, cy, half_width, half_height``.
+
+    Notes
+    -----
+    A frontal cascade's box spans about brows to chin and cheek to cheek (common practice, no
+    source); the head reaches past it to the crown, the hair and the ears. The ellipse is
+    centred a tenth of the box above its centre with half-axes 0.6 of the box's width and
+    0.75 of its height: a head 1.2 boxes wide and 1.5 boxes tall.
+
+    Examples
+    --------
+    >>> face_ellipses(np.array([[100.0, 50.0, 40.0, 40.0]]))
+    array([[120.,  66.,  24.,  30.]])
+    """
+    b = np.asarray(boxes, dtype=np.float64).reshape(-1, 4)
+    return np.column_stack([b[:, 0] + b[:, 2] / 2, b[:, 1] + 0.4 * b[:, 3],
+                            0.6 * b[:, 2], 0.75 * b[:, 3]])
+
+
+# ---------------------------------------------------------------------- whole people
+
+def _ellipse_polygon(e: np.ndarray) -> np.ndarray:
+    t = np.linspace(0, 2 * np.pi, 24, endpoint=False)
+    return np.column_stack([e[0] + e[2] * np.cos(t), e[1] + e[3] * np.sin(t)])
+
+
+def _body_polygon(kp: np.ndarray, head: np.ndarray, stature: float) -> np.ndarray | None:
+    """The convex hull of a person's labelled joints, each widened to a disc of
+    :data:`BODY_MARGIN` of their stature, and of their head ellipse."""
+    on = _labelled(kp)
+    parts = []
+    if on.any() and stature > 0:
+        t = np.linspace(0, 2 * np.pi, 12, endpoint=False)
+        ring = BODY_MARGIN * stature * np.column_stack([np.cos(t), np.sin(t)])
+        parts.append((kp[on, None, :2] + ring[None]).reshape(-1, 2))
+    if np.isfinite(head).all():
+        parts.append(_ellipse_polygon(head))
+    if not parts:
+        return None
+    pts = np.concatenate(parts).astype(np.float32)
+    return np.asarray(cv2.convexHull(pts).reshape(-1, 2), dtype=np.float64)
+
+
+# ---------------------------------------------------------------------- all together
+
+@dataclass(frozen=True)
+class _Piece:
+    ellipse: np.ndarray | None
+    polygon: np.ndarray | None
+    sigma: float
+    source: str
+    person: int | None
+
+    def box(self) -> np.ndarray:
+        if self.ellipse is not None:
+            cx, cy, ax, ay = self.ellipse
+            return np.array([cx - ax, cy - ay, cx + ax, cy + ay])
+        assert self.polygon is not None
+        return np.concatenate([self.polygon.min(axis=0), self.polygon.max(axis=0)])
+
+
+def _merge(pieces: Sequence[_Piece]) -> tuple[Region, ...]:
+    """Regions from pieces: pieces whose boxes overlap by at least :data:`MERGE_OVERLAP` of
+    the smaller box (directly or through others) are one region, blurred with the largest of
+    their sigmas, recording every source and person behind them."""
+    if not pieces:
+        return ()
+    boxes = np.array([p.box() for p in pieces])
+    ix = np.clip(np.minimum(boxes[:, None, 2], boxes[None, :, 2])
+                 - np.maximum(boxes[:, None, 0], boxes[None, :, 0]), 0, None)
+    iy = np.clip(np.minimum(boxes[:, None, 3], boxes[None, :, 3])
+                 - np.maximum(boxes[:, None, 1], boxes[None, :, 1]), 0, None)
+    area = (boxes[:, 2] - boxes[:, 0]) * (boxes[:, 3] - boxes[:, 1])
+    smaller = np.maximum(np.minimum(area[:, None], area[None, :]), 1e-9)
+    linked = ix * iy >= MERGE_OVERLAP * smaller
+    n = len(pieces)
+    label = np.arange(n)
+    changed = True
+    while changed:
+        new = np.where(linked, label[None, :], n).min(axis=1)
+        changed = bool((new != label).any())
+        label = new
+    regions = []
+    for k in np.unique(label):
+        group = [pieces[int(i)] for i in np.flatnonzero(label == k)]
+        ellipses = [p.ellipse for p in group if p.ellipse is not None]
+        regions.append(Region(
+            ellipses=np.array(ellipses, dtype=np.float64).reshape(-1, 4),
+            polygons=tuple(p.polygon for p in group if p.polygon is not None),
+            sigma=max(p.sigma for p in group),
+            sources=frozenset(p.source for p in group),
+            people=frozenset(p.person for p in group if p.person is not None)))
+    return tuple(regions)
+
+
+def place_regions(people: Sequence[np.ndarray], skeleton: Skeleton,
+                  image_size: tuple[int, int], *, ids: Sequence[int] | None = None,
+                  peaks: Sequence[np.ndarray] | None = None,
+                  head_peaks: np.ndarray | None = None,
+                  map_people: Sequence[np.ndarray] | None = None,
+                  faces: np.ndarray | None = None, mode: str = "heads") -> BlurPlan:
+    """Where to blur a frame, from every source of evidence.
+
+    Parameters
+    ----------
+    people
+        The labelled people, ``(K, 3)`` ``x, y, v`` each.
+    skeleton
+        The joint layout.
+    image_size
+        ``(width, height)``.
+    ids
+        The people's ids (default: their positions), recorded in the regions.
+    peaks
+        The frame's confidence-map peaks per joint, image pixels
+        (:func:`app.analysis.association.find_peaks`); None when the frame has no maps.
+    head_peaks
+        Peaks of the sum of the face joints' maps (see :func:`map_head_ellipses`).
+    map_people
+        The people the maps group into (:func:`app.analysis.association.group_people`),
+        ``(K, 3)`` ``x, y, score`` with NaN for a missing joint; read in ``people`` mode.
+    faces
+        ``(N, 4)`` face boxes ``x, y, width, height``; None when no detector ran.
+    mode
+        ``heads`` or ``people`` (:data:`MODES`).
+
+    Returns
+    -------
+    BlurPlan
+        The merged regions, and the counts that say how far they can be trusted.
+
+    Notes
+    -----
+    Heads: :func:`head_ellipses` of the labels, :func:`map_head_ellipses` of the peaks,
+    :func:`face_ellipses` of the faces; each blurred with ``sigma`` half its smaller half-axis.
+    People: per labelled person and per person the maps group, the convex hull of the joints
+    widened by :data:`BODY_MARGIN` of the person's stature and of the head ellipse; the head
+    ellipses of unowned map peaks and of faces as for heads; under each face a body box
+    three face-widths wide reaching eight face-heights down (a standing body is about 7.5
+    heads tall, common practice, no source). A person's region is blurred with
+    :data:`SIGMA` of their stature.
+
+    A face box wider than :data:`MAX_FACE` of the local stature (:func:`local_stature`, when
+    any labelled person gives a scale) is taken for a false detection and dropped.
+
+    Without maps, a labelled person whose head the labels place by a guess (no face joint
+    labelled) is counted in :attr:`BlurPlan.unsure`.
+    """
+    if mode not in MODES:
+        raise ValueError(f"mode {mode!r} is not one of {MODES}")
+    w, h = image_size
+    ids = list(range(len(people))) if ids is None else list(ids)
+    heads, extra_heads = label_head_ellipses(people, skeleton, image_size)
+    _, statures = _people_scale(people, skeleton, image_size)
+    face = _indices(skeleton, FACE_JOINTS)
+    pieces: list[_Piece] = []
+    unplaced = unsure = 0
+    face_heads = face_ellipses(faces) if faces is not None else np.zeros((0, 4))
+    for n, person in enumerate(people):
+        kp = np.asarray(person, dtype=np.float64)
+        head = heads[n]
+        if not np.isfinite(head).all():
+            unplaced += 1
+            continue
+        if peaks is None and not _labelled(kp)[face].any():
+            unsure += 1
+        if mode == "heads":
+            pieces.append(_Piece(head, None, min(head[2], head[3]) / 2, "labels", ids[n]))
+        else:
+            stature = statures[n] if np.isfinite(statures[n]) else 2 * head[3] / HALF_HEIGHT
+            polygon = _body_polygon(kp, head, stature)
+            if polygon is not None:
+                pieces.append(_Piece(None, polygon, SIGMA * stature, "labels", ids[n]))
+    for n, e in extra_heads:
+        pieces.append(_Piece(e, None, min(e[2], e[3]) / 2, "labels", ids[n]))
+    if peaks is not None:
+        for e in map_head_ellipses(peaks, people, skeleton, image_size, head_peaks):
+            pieces.append(_Piece(e, None, min(e[2], e[3]) / 2, "maps", None))
+        if mode == "people":
+            for kp in map_people or ():
+                kp = np.asarray(kp, dtype=np.float64)
+                as_labels = np.column_stack([kp[:, :2], np.isfinite(kp[:, :2]).all(axis=1)])
+                head = head_ellipses([as_labels], skeleton, image_size)[0]
+                on = _labelled(as_labels)
+                if not on.any():
+                    continue
+                stature = _stature(as_labels, on, face, skeleton) or 2 * head[3] / HALF_HEIGHT
+                polygon = _body_polygon(as_labels, head, stature)
+                if polygon is not None:
+                    pieces.append(_Piece(None, polygon, SIGMA * stature, "maps", None))
+    boxes = np.asarray(faces if faces is not None else np.zeros((0, 4))).reshape(-1, 4)
+    if len(boxes) and np.isfinite(statures).any():
+        expected = local_stature(face_heads[:, :2], heads[:, :2], statures, image_size)
+        plausible = boxes[:, 2] <= MAX_FACE * expected
+        boxes, face_heads = boxes[plausible], face_heads[plausible]
+    for box, e in zip(boxes, face_heads):
+        pieces.append(_Piece(e, None, min(e[2], e[3]) / 2, "detector", None))
+        if mode == "people":
+            x, y, bw, bh = box
+            body = np.array([[x - bw, y - 0.5 * bh], [x + 2 * bw, y - 0.5 * bh],
+                             [x + 2 * bw, y + 8 * bh], [x - bw, y + 8 * bh]])
+            pieces.append(_Piece(None, body, min(e[2], e[3]) / 2, "detector", None))
+    regions = _merge(pieces)
+    share = float(region_mask(regions, (w, h)).mean()) if w and h else 0.0
+    return BlurPlan(regions, unplaced, unsure, peaks is not None, faces is not None, share,
+                    (w, h))
+
+
+# ---------------------------------------------------------------------- pixels
+
+def _shape_mask(region: Region, x0: int, y0: int, x1: int, y1: int) -> np.ndarray:
+    """``(y1 - y0, x1 - x0)`` bool: which pixel centres of the window lie in the region."""
+    ys, xs = np.ogrid[y0:y1, x0:x1]
+    inside = np.zeros((y1 - y0, x1 - x0), dtype=bool)
+    for cx, cy, ax, ay in region.ellipses:
+        inside |= ((xs - cx) / ax) ** 2 + ((ys - cy) / ay) ** 2 <= 1.0
+    if region.polygons:
+        canvas = np.zeros(inside.shape, dtype=np.uint8)
+        shift = 4  # sub-pixel vertices: 1/16 pixel
+        for poly in region.polygons:
+            pts = np.round((poly - [x0, y0]) * (1 << shift)).astype(np.int32)
+            cv2.fillPoly(canvas, [pts], 1, lineType=cv2.LINE_8, shift=shift)
+        inside |= canvas.astype(bool)
+    return inside
+
+
+def _window(region: Region, pad: float, size: tuple[int, int]) -> tuple[int, int, int, int]:
+    w, h = size
+    bx0, by0, bx1, by1 = region.bounds()
+    return (int(max(0, np.floor(bx0 - pad))), int(max(0, np.floor(by0 - pad))),
+            int(min(w, np.ceil(bx1 + pad) + 1)), int(min(h, np.ceil(by1 + pad) + 1)))
+
+
+def region_mask(regions: Sequence[Region], image_size: tuple[int, int]) -> np.ndarray:
+    """``(height, width)`` bool: the pixels :func:`blur_regions` changes may lie in.
+
+    Examples
+    --------
+    >>> r = Region(np.array([[5.0, 5.0, 2.0, 2.0]]), (), 1.0, frozenset({"labels"}))
+    >>> int(region_mask([r], (10, 10)).sum())
+    13
+    """
+    w, h = image_size
+    mask = np.zeros((h, w), dtype=bool)
+    for region in regions:
+        x0, y0, x1, y1 = _window(region, 0, (w, h))
+        if x0 < x1 and y0 < y1:
+            mask[y0:y1, x0:x1] |= _shape_mask(region, x0, y0, x1, y1)
+    return mask
+
+
+def blur_regions(image: np.ndarray, regions: Sequence[Region]) -> np.ndarray:
+    """A copy of ``image`` with every region blurred and every other pixel as it was.
 
     Parameters
     ----------
     image
         ``(H, W, 3)`` (or ``(H, W)``) uint8.
-    people
-        ``(K, 3)`` ``x, y, v`` arrays in the image's pixels.
-    skeleton
-        The joint layout.
+    regions
+        What to blur (:func:`place_regions`).
 
     Returns
     -------
-    tuple of (numpy.ndarray, int)
-        The blurred copy (same shape and dtype) and how many people had no labelled joint
-        and so could not be placed.
+    numpy.ndarray
+        The blurred copy (same shape and dtype).
 
     Notes
     -----
-    Inside an ellipse of :func:`head_ellipses` with smaller half-axis ``r`` the pixels become
-    a Gaussian blur of the image with ``sigma = r / 2`` (OpenCV ``GaussianBlur``, kernel of
-    6 sigma, reflected border): features smaller than about a quarter of a head -- eyes, mouth,
-    the line of a nose -- are gone. A pixel centre ``(x, y)`` is inside when
-    ``((x - cx) / half_width)^2 + ((y - cy) / half_height)^2 <= 1``. The blur is computed on
-    the ellipse's box widened by 3 sigma, so what lies just outside an ellipse feeds the blur
-    but is never changed.
+    Inside a region the pixels become a Gaussian blur of the image (OpenCV ``GaussianBlur``,
+    kernel of 6 sigma, reflected border) with the region's sigma: half the head ellipse's
+    smaller half-axis, ``0.0425 H``, which is about 0.42 of a head's width (0.1 H). Why so
+    strong: a Gaussian keeps a pattern of ``f`` cycles per face width by the factor
+    ``exp(-2 pi^2 sigma^2 f^2)`` (its Fourier transform), which with ``sigma = 0.42`` face
+    widths is 0.03 at 1 cycle, 1e-6 at 2 cycles and 1e-24 at 4; once the result is rounded
+    to 8 bits nothing finer than about 1.5 cycles per face width is left to recover, while
+    recognising a face takes detail of about 8 to 16 cycles per face width (Costen, Parker
+    and Craw, "Effects of high-pass and low-pass spatial filtering on face identification",
+    Perception & Psychophysics 58, 1996, from memory). A mere pixelation or a small kernel is
+    known to be undone by matching against candidate faces; this leaves a patch of smooth
+    colour the size of a head. The blur is computed on the region's box widened by 3 sigma, so
+    what lies just outside a region feeds the blur but is never changed. A pixel centre is
+    inside an ellipse when ``((x - cx) / half_width)^2 + ((y - cy) / half_height)^2 <= 1``.
+
+    Examples
+    --------
+    >>> img = np.random.default_rng(0).integers(0, 256, (120, 160, 3), dtype=np.uint8)
+    >>> r = Region(np.array([[80.0, 40.0, 15.0, 20.0]]), (), 7.5, frozenset({"labels"}))
+    >>> out = blur_regions(img, [r])
+    >>> bool((out[70:] == img[70:]).all()), bool((out[40, 80] != img[40, 80]).any())
+    (True, True)
+    """
+    out = image.copy()
+    h, w = image.shape[:2]
+    for region in regions:
+        sigma = max(region.sigma, 0.5)
+        x0, y0, x1, y1 = _window(region, 3 * sigma, (w, h))
+        if x0 >= x1 or y0 >= y1:
+            continue  # the region lies wholly outside the image
+        window = out[y0:y1, x0:x1]
+        blurred = cv2.GaussianBlur(window, (0, 0), sigmaX=sigma, sigmaY=sigma,
+                                   borderType=cv2.BORDER_REFLECT)
+        inside = _shape_mask(region, x0, y0, x1, y1)
+        window[inside] = blurred[inside]
+    return out
+
+
+def blur_frame(image: np.ndarray, people: Sequence[np.ndarray], skeleton: Skeleton, *,
+               ids: Sequence[int] | None = None, maps: Any = None, detector: Any = None,
+               mode: str = "heads") -> tuple[np.ndarray, BlurPlan]:
+    """Blur a frame's heads (or whole people) from its labels, maps and a face detector.
+
+    Parameters
+    ----------
+    image
+        ``(H, W, 3)`` uint8 BGR.
+    people
+        The labelled people, ``(K, 3)`` ``x, y, v`` each, in the image's pixels.
+    skeleton
+        The joint layout.
+    ids
+        The people's ids, recorded in the regions.
+    maps
+        The frame's :class:`app.formats.maps.NetworkMaps`, or None.
+    detector
+        A callable ``(image, min_size) -> (N, 4) boxes`` such as
+        :class:`app.review.faces.FaceDetector`, or None.
+    mode
+        ``heads`` or ``people``.
+
+    Returns
+    -------
+    tuple of (numpy.ndarray, BlurPlan)
+        The blurred copy and the plan it followed.
+
+    Notes
+    -----
+    Peaks are found above :data:`PEAK_THRESHOLD` in each map and above :data:`HEAD_SUM` in
+    the sum of the face joints' maps (:func:`map_head_ellipses`); in ``people`` mode the
+    maps are also grouped into people (:func:`app.analysis.association.group_people`, its
+    defaults). The detector
+    looks for faces down to 2 % of the image's shorter side (at least 12 pixels).
 
     Examples
     --------
     >>> from app.model.skeleton import coco_body
     >>> img = np.random.default_rng(0).integers(0, 256, (120, 160, 3), dtype=np.uint8)
     >>> kp = np.zeros((17, 3)); kp[0] = (80, 40, 2); kp[[5, 6]] = [[60, 70, 2], [100, 70, 2]]
-    >>> out, missed = blur_heads(img, [kp], coco_body())
-    >>> bool((out[110:] == img[110:]).all()), bool((out[40, 80] != img[40, 80]).any()), missed
-    (True, True, 0)
+    >>> out, plan = blur_frame(img, [kp], coco_body())
+    >>> bool((out[110:] == img[110:]).all()), [sorted(r.sources) for r in plan.regions]
+    (True, [['labels']])
     """
-    out = image.copy()
+    from app.analysis.association import find_peaks, group_people
+
     h, w = image.shape[:2]
-    ellipses = head_ellipses(people, skeleton, (w, h))
-    missed = int(np.isnan(ellipses[:, 0]).sum())
-    for cx, cy, ax, ay in ellipses[~np.isnan(ellipses[:, 0])]:
-        sigma = min(ax, ay) / 2
-        pad = 3 * sigma
-        x0, x1 = int(max(0, np.floor(cx - ax - pad))), int(min(w, np.ceil(cx + ax + pad) + 1))
-        y0, y1 = int(max(0, np.floor(cy - ay - pad))), int(min(h, np.ceil(cy + ay + pad) + 1))
-        if x0 >= x1 or y0 >= y1:
-            continue  # the head lies wholly outside the image
-        window = out[y0:y1, x0:x1]
-        blurred = cv2.GaussianBlur(window, (0, 0), sigmaX=sigma, sigmaY=sigma,
-                                   borderType=cv2.BORDER_REFLECT)
-        ys, xs = np.ogrid[y0:y1, x0:x1]
-        inside = ((xs - cx) / ax) ** 2 + ((ys - cy) / ay) ** 2 <= 1.0
-        window[inside] = blurred[inside]
-    return out, missed
+    peaks = head_peaks = map_people = faces = None
+    if maps is not None:
+        peaks = find_peaks(maps.confidence_maps, PEAK_THRESHOLD, maps.stride)
+        face = _indices(skeleton, FACE_JOINTS)
+        head_peaks = find_peaks(maps.confidence_maps[face].sum(axis=0)[None], HEAD_SUM,
+                                maps.stride)[0]
+        if mode == "people":
+            map_people = group_people(maps.confidence_maps, maps.pafs, skeleton.limb_array,
+                                      stride=maps.stride)
+    if detector is not None:
+        faces = detector(image, max(12, int(0.02 * min(w, h))))
+    plan = place_regions(people, skeleton, (w, h), ids=ids, peaks=peaks,
+                         head_peaks=head_peaks, map_people=map_people, faces=faces, mode=mode)
+    return blur_regions(image, plan.regions), plan

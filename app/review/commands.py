@@ -67,12 +67,20 @@ def register(sub: Any, command: Command) -> None:
                    help="a state (disputed, untouched, ...) or frame ids 3,7,12")
     q.add_argument("--out", required=True, metavar="FILE.zip")
     q.add_argument("--images", choices=IMAGE_MODES, default=DEFAULT_IMAGES,
-                   help="send the images with heads blurred (default), the images as they "
-                        "are, or none; an image that cannot be read, or that a link brings "
-                        "from outside the images folder, is never sent")
+                   help="send the images with heads blurred (default), with every "
+                        "person blurred whole, as they are, or none; blurs are placed from "
+                        "the labels, the network maps and a face detector; an image that "
+                        "cannot be read, or that a link brings from outside the images "
+                        "folder, is never sent")
+    q.add_argument("--accept-risk", action="store_true",
+                   help="send blurred images even of frames without network maps, where "
+                        "people the labels miss may stay recognisable (each is named in a "
+                        "warning)")
     q.add_argument("--reviewer", metavar="NAME", help="who is to review")
 
-    q = action("show", cmd_show, "check a packet and say what it holds")
+    q = action("show", cmd_show, "check a packet and say what it holds (for blurred images: "
+                                 "regions by what placed them, the largest share of a frame "
+                                 "blurred, frames sent at risk)")
     q.add_argument("packet", metavar="FILE.zip")
     q.add_argument("--json", action="store_true")
 
@@ -119,13 +127,22 @@ def _progress(quiet: bool):  # -> Progress
 
 
 def cmd_export(args: argparse.Namespace) -> int:
-    from app.review.packet import export_packet, select_frames
+    from app.review.packet import blur_risks, export_packet, select_frames
 
     with _open_project(args.project, args.author, write=False,
                        images=args.images_root) as project:
         frames = select_frames(project, args.frames)
+        risks = blur_risks(project, frames, args.images, _progress(args.quiet))
+        for line in risks:
+            print(f"posewright: warning: {line}", file=sys.stderr)
+        if risks and not args.accept_risk:
+            raise BadInput(f"{count(len(risks), 'frames')} may show people unblurred; nothing "
+                           "written", where="--images " + args.images,
+                           hint="add their maps (import-maps, prelabel), send --images none, "
+                                "or pass --accept-risk")
         stats = export_packet(project, args.out, frames, images=args.images,
-                              reviewer=args.reviewer, progress=_progress(args.quiet))
+                              reviewer=args.reviewer, progress=_progress(args.quiet),
+                              accept_risk=args.accept_risk)
     if stats["missing_images"]:
         print(f"posewright: warning: {count(stats['missing_images'], 'frames')} went without "
               "their image (missing or unreadable)", file=sys.stderr)
@@ -135,6 +152,9 @@ def cmd_export(args: argparse.Namespace) -> int:
     if stats["unplaced_heads"]:
         print(f"posewright: warning: {count(stats['unplaced_heads'], 'people')} with no "
               "labelled joint: no head to blur", file=sys.stderr)
+    if args.images.startswith("blurred") and stats["images"] and not stats["detector"]:
+        print("posewright: warning: no face detector (install opencv-python-headless<5): "
+              "blurred from the labels and maps only", file=sys.stderr)
     print(f"wrote {shown(args.out)}: {count(stats['frames'], 'frames')}, "
           f"{count(stats['people'], 'people')}, {count(stats['images'], 'images')} "
           f"({args.images})")
@@ -152,6 +172,18 @@ def cmd_show(args: argparse.Namespace) -> int:
         "images": packet.images, "frames": [f.id for f in packet.frames],
         "people": sum(len(c.people) for c in packet.base.values()),
     }
+    blurs = [f["blur"] for f in packet.manifest.get("frames", []) if f.get("blur")]
+    if blurs:
+        placed = {"labels": 0, "maps": 0, "detector": 0}
+        for blur in blurs:
+            for region in blur["regions"]:
+                for source in region["sources"]:
+                    placed[source] += 1
+        info["blurred_regions"] = placed
+        info["blurred_share"] = round(max(b["share"] for b in blurs), 4)
+        info["blur_risks"] = [f"frame {f['id']}: {f['blur']['risk']}"
+                              for f in packet.manifest["frames"]
+                              if f.get("blur") and f["blur"]["risk"]]
     if packet.returned is not None:
         info["returned_by"] = packet.returned.reviewer
         info["decisions"] = {str(d.frame_id): d.decision

@@ -5,17 +5,29 @@ A packet is a zip archive holding:
 ``manifest.json``
     ``{"format": "posewright-review-packet", "version": 1, "packet_id", "project_id",
     "skeleton", "created", "exported_by", "reviewer", "images": "none" | "full" |
-    "blurred-heads", "frames": [{"id", "file_name", "width", "height", "state", "base_seq",
-    "image"}], "members": {name: sha256}}``. ``base_seq`` is the newest ledger entry touching
-    the frame when the packet was made (0 when none); ``image`` is ``images/<id>.<ext>`` or
-    null. ``members`` lists every other member with its SHA-256; a member not listed is refused.
+    "blurred-heads" | "blurred-people", "frames": [{"id", "file_name", "width", "height",
+    "state", "base_seq", "image", "blur"}], "members": {name: sha256}}``. ``base_seq`` is the
+    newest ledger entry touching the frame when the packet was made (0 when none); ``image`` is
+    ``images/<id>.<ext>`` or null. ``members`` lists every other member with its SHA-256; a
+    member not listed is refused.
+
+    ``blur`` (blurred images only, else absent) records where the image was blurred and what
+    placed each region, for a reviewer's tool to show and an audit to check: ``{"sources":
+    [what was there to look with: "labels", "maps", "detector"], "share": fraction of the
+    image's pixels blurred, "risk": null or why people may stay recognisable ("2 people may
+    be unblurred: no maps"), "regions": [{"sources": [what placed it], "people": [ids of the
+    labelled people whose labels placed it], "box": [x0, y0, x1, y1], "sigma": the Gaussian's
+    standard deviation in pixels, "ellipses": [[cx, cy, half_width, half_height]],
+    "polygons": [[[x, y], ...]]}]}`` in image pixels; a region is the union of its ellipses
+    and polygons (see :mod:`app.review.blur`).
 ``labels.json``
     The labels at the base: ``{"frames": [{"id", "people": [{"id", ...person value}],
     "notes": [{"id", "author", "time", "text", "person"}]}]}`` (person values as
     :meth:`app.model.labels.Person.to_value` writes them).
 ``images/<id>.<ext>``
     Optional: the original image file (``full``) or a PNG with every head blurred
-    (``blurred-heads``, see :mod:`app.review.blur`).
+    (``blurred-heads``) or every person blurred whole (``blurred-people``), see
+    :mod:`app.review.blur`.
 
 A returned packet (``FILE-returned.zip``) carries the same manifest plus a ``returned``
 section (``reviewer``, ``time``, ``decisions``: ``[{"frame", "decision", "author", "time"}]``,
@@ -67,12 +79,14 @@ from pydantic_core import PydanticCustomError
 from app.errors import BadInput, NotFound, PosewrightError
 from app.fileio import MAX_ID, JsonId, atomic_write, describe, json_ready, parse_json
 from app.formats.images import IMAGE_SUFFIXES, MAX_SIDE, read_image
+from app.formats.maps import NetworkMaps, read_maps
 from app.model.labels import Frame, FrameState, Note, Person
 from app.model.records import FrameDecision, PacketRecord
 from app.model.skeleton import Skeleton, skeleton_from_dict
 from app.progress import Progress
 from app.review import DEFAULT_IMAGES, IMAGE_MODES, safezip
-from app.review.blur import blur_heads
+from app.review.blur import SOURCES, BlurPlan, blur_frame, place_regions
+from app.review.faces import face_detector
 from app.safetext import check_name, name_problem
 from app.store import Project
 
@@ -94,7 +108,7 @@ MAX_MANIFEST = 64 << 20
 MAX_JSON = 512 << 20
 
 Number = StrictInt | StrictFloat
-ImageMode = Literal["none", "full", "blurred-heads"]
+ImageMode = Literal["none", "full", "blurred-heads", "blurred-people"]
 Decision = Literal["agree", "needs-change", "signed-off"]
 
 
@@ -201,6 +215,22 @@ Someone = Annotated[StrictStr, Field(min_length=1), AfterValidator(_name)]
 Ident = Annotated[StrictStr, Field(pattern=r"^[0-9A-Za-z._-]{1,64}$")]
 
 
+class _RegionModel(_Strict):
+    sources: list[Literal["labels", "maps", "detector"]]
+    people: list[JsonId]
+    box: list[Number] = Field(min_length=4, max_length=4)
+    sigma: Number
+    ellipses: list[list[Number]]
+    polygons: list[list[list[Number]]]
+
+
+class _BlurModel(_Strict):
+    sources: list[Literal["labels", "maps", "detector"]]
+    share: Number
+    risk: StrictStr | None
+    regions: list[_RegionModel]
+
+
 class _FrameModel(_Strict):
     id: JsonId
     file_name: StrictStr = Field(min_length=1)
@@ -209,6 +239,7 @@ class _FrameModel(_Strict):
     state: StrictStr
     base_seq: StrictInt = Field(ge=0, le=MAX_ID)
     image: StrictStr | None
+    blur: _BlurModel | None = None
 
 
 class _DecisionModel(_Strict):
@@ -573,9 +604,44 @@ def select_frames(project: Project, spec: str) -> list[Frame]:
     return sorted(frames.values(), key=lambda f: f.id)
 
 
+#: How each blurred image mode names what it blurs (:data:`app.review.blur.MODES`).
+BLUR_MODES = {"blurred-heads": "heads", "blurred-people": "people"}
+
+
+def blur_risks(project: Project, frames: Sequence[Frame], images: str = DEFAULT_IMAGES,
+               progress: Progress | None = None) -> list[str]:
+    """One line per frame whose blurred image may leave someone recognisable, e.g.
+    ``"frame 12: 2 people may be unblurred: no maps"``; none unless ``images`` blurs.
+
+    A frame is at risk when it has no network maps (see :meth:`app.review.blur.BlurPlan.risk`):
+    its labels may miss people, and only the face detector looks for them. Frames whose image
+    is registered unreadable are left out. The lines come from the labels and the project's
+    record of maps alone (no image is decoded), so the command line and the app's send dialog
+    show them before anything is written; :func:`export_packet` refuses a blurred packet with
+    such frames unless told to accept the risk.
+    """
+    if images not in BLUR_MODES:
+        return []
+    progress = progress or Progress()
+    lines = []
+    for n, frame in enumerate(frames):
+        progress.step(n, len(frames), "looking for people the blur may miss")
+        if frame.status != "ok" or project.maps_path(frame.id) is not None:
+            continue
+        people = list(project.labels(frame.id).people.values())
+        plan = place_regions([p.keypoints for p in people], project.skeleton,
+                             (frame.width, frame.height), mode=BLUR_MODES[images])
+        risk = plan.risk()
+        if risk:
+            lines.append(f"frame {frame.id}: {risk}")
+    progress.step(len(frames), len(frames), "looking for people the blur may miss")
+    return lines
+
+
 def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
                   images: str = DEFAULT_IMAGES, reviewer: str | None = None,
-                  progress: Progress | None = None) -> dict[str, Any]:
+                  progress: Progress | None = None,
+                  accept_risk: bool = False) -> dict[str, Any]:
     """Write a review packet for ``frames`` to ``out`` (atomically).
 
     Parameters
@@ -588,12 +654,16 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
     frames
         The frames to send (see :func:`select_frames`).
     images
-        ``blurred-heads`` (the default, :data:`app.review.DEFAULT_IMAGES`), ``full`` (the
-        image files as they are) or ``none``.
+        ``blurred-heads`` (the default, :data:`app.review.DEFAULT_IMAGES`),
+        ``blurred-people`` (every person blurred whole), ``full`` (the image files as they
+        are) or ``none``.
     reviewer
         Who is to review (written in the manifest; the reviewer's name when they open it).
     progress
         Progress and cancel.
+    accept_risk
+        Send blurred images even of frames where people may stay recognisable (see
+        :func:`blur_risks`); without it such a packet is refused and nothing is written.
 
     Returns
     -------
@@ -601,8 +671,16 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
         ``packet_id``, ``frames``, ``people``, ``images`` (how many images went in),
         ``missing_images`` (frames sent without their image: missing, marked unreadable, or
         no longer decoding), ``outside_images`` (sent without it because the image file,
-        links followed, lies outside the images folder) and ``unplaced_heads`` (people whose
-        head could not be placed).
+        links followed, lies outside the images folder), ``unplaced_heads`` (labelled people
+        with no labelled joint), ``risks`` (the lines of :func:`blur_risks` for the frames
+        sent), ``regions`` (blurred regions, by what placed them: ``labels``, ``maps``,
+        ``detector``) and ``detector`` (whether the face detector was there).
+
+    Raises
+    ------
+    BadInput
+        For a blurred packet with frames at risk, unless ``accept_risk``: naming the first
+        frame and the option.
 
     Notes
     -----
@@ -610,7 +688,9 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
     registered under: a link is followed, and an image it leads to outside that folder stays
     home (a link in an images folder must not carry another file into a packet). An image is
     decoded as everywhere else in Posewright (pixel limit, Exif orientation), so the heads
-    blurred are where the labels put them.
+    blurred are where the labels put them. Blurred images are placed from the labels, the
+    frame's network maps when the project keeps them, and a face detector
+    (:mod:`app.review.blur`); the manifest records each region and its sources.
     """
     if images not in IMAGE_MODES:
         raise BadInput(f"images {images!r} is not one of " + ", ".join(IMAGE_MODES),
@@ -626,7 +706,9 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
     packet_id = str(uuid.uuid4())
     stats: dict[str, Any] = {"packet_id": packet_id, "frames": len(frames), "people": 0,
                              "images": 0, "missing_images": 0, "outside_images": 0,
-                             "unplaced_heads": 0}
+                             "unplaced_heads": 0, "risks": [],
+                             "regions": {source: 0 for source in SOURCES},
+                             "detector": face_detector() is not None}
     entries, base_frames = [], []
     with atomic_zip(out) as archive:
         members: dict[str, str] = {}
@@ -635,13 +717,24 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
             labels = project.labels(frame.id)
             people = list(labels.people.values())
             stats["people"] += len(people)
-            image = None
+            image, plan = None, None
             if images != "none":
-                image = _write_image(archive, project, frame, people, images, members, stats)
+                image, plan = _write_image(archive, project, frame, images, members, stats)
             history = project.history(frame_id=frame.id, limit=1)
-            entries.append({"id": frame.id, "file_name": frame.file_name, "width": frame.width,
-                            "height": frame.height, "state": frame.state.value,
-                            "base_seq": history[0].seq if history else 0, "image": image})
+            entry = {"id": frame.id, "file_name": frame.file_name, "width": frame.width,
+                     "height": frame.height, "state": frame.state.value,
+                     "base_seq": history[0].seq if history else 0, "image": image}
+            if plan is not None:
+                entry["blur"] = _blur_record(plan)
+                risk = plan.risk()
+                if risk:
+                    stats["risks"].append(f"frame {frame.id}: {risk}")
+                    if not accept_risk:
+                        raise BadInput(f"frame {frame.id}: {risk}; refused: a blurred image "
+                                       "must hide everyone", where="--images",
+                                       hint="add maps (import-maps, prelabel), send "
+                                            "--images none, or pass --accept-risk")
+            entries.append(entry)
             base_frames.append({
                 "id": frame.id,
                 "people": [{"id": p.id, **p.to_value()} for p in people],
@@ -672,7 +765,8 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
             b.packets.add(PacketRecord(packet_id, "exported", hashlib.sha256(base_json).hexdigest(),
                                        reviewer or "", manifest["created"],
                                        tuple(f.id for f in frames), record))
-            b.stats.update(record)
+            b.stats.update({k: v for k, v in record.items()
+                            if isinstance(v, int) and not isinstance(v, bool)})
     return stats
 
 
@@ -690,28 +784,61 @@ def _triage_of(project: Project, frames: Sequence[Frame]) -> list[dict[str, Any]
     return out
 
 
-def _write_image(archive: zipfile.ZipFile, project: Project, frame: Frame,
-                 people: Sequence[Person], mode: str, members: dict[str, str],
-                 stats: dict[str, Any]) -> str | None:
+def _write_image(archive: zipfile.ZipFile, project: Project, frame: Frame, mode: str,
+                 members: dict[str, str],
+                 stats: dict[str, Any]) -> tuple[str | None, BlurPlan | None]:
     source = _image_source(project, frame)
     if isinstance(source, _Unsent):
         log.warning("frame %s: %s; sent without it", frame.id, source.reason)
         stats[source.counter] += 1
-        return None
+        return None, None
     real, pixels = source
+    plan = None
     if mode == "full":
         name = f"images/{frame.id}{Path(frame.path).suffix.lower()}"
         data = real.read_bytes()
     else:
-        blurred, missed = blur_heads(pixels, [p.keypoints for p in people], project.skeleton)
-        stats["unplaced_heads"] += missed
+        blurred, plan = _blur(project, frame, pixels, mode)
+        stats["unplaced_heads"] += plan.unplaced
+        for region in plan.regions:
+            for s in region.sources:
+                stats["regions"][s] += 1
         ok, encoded = cv2.imencode(".png", blurred)
         if not ok:
             raise BadInput("cannot encode the blurred image", where=str(project.image_path(frame)))
         name, data = f"images/{frame.id}.png", np.asarray(encoded).tobytes()
     members[name] = write_member(archive, name, data, zipfile.ZIP_STORED)
     stats["images"] += 1
-    return name
+    return name, plan
+
+
+def _blur(project: Project, frame: Frame, pixels: np.ndarray,
+          mode: str) -> tuple[np.ndarray, BlurPlan]:
+    """The frame's image blurred from its labels, its maps and the face detector."""
+    people = list(project.labels(frame.id).people.values())
+    return blur_frame(pixels, [p.keypoints for p in people], project.skeleton,
+                      ids=[p.id for p in people], maps=_frame_maps(project, frame),
+                      detector=face_detector(), mode=BLUR_MODES[mode])
+
+
+def _frame_maps(project: Project, frame: Frame) -> NetworkMaps | None:
+    """The network maps kept with the frame, or None (with a warning when they no longer
+    read)."""
+    where = project.maps_path(frame.id)
+    if where is None:
+        return None
+    try:
+        return read_maps(where[0], project.skeleton, (frame.width, frame.height))
+    except BadInput as exc:
+        log.warning("maps of frame %s are not usable: %s", frame.id, exc)
+        return None
+
+
+def _blur_record(plan: BlurPlan) -> dict[str, Any]:
+    """What the manifest records of a frame's blur (see the module's docstring)."""
+    there = {"labels": True, "maps": plan.maps, "detector": plan.detector}
+    return {"sources": [s for s in SOURCES if there[s]], "share": round(plan.share, 4),
+            "risk": plan.risk(), "regions": [r.to_value() for r in plan.regions]}
 
 
 @dataclass(frozen=True)

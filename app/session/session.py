@@ -18,6 +18,7 @@ from __future__ import annotations
 import logging
 from collections import defaultdict
 from collections.abc import Callable, Sequence
+from functools import partial
 from typing import Any
 
 from app.analysis.triage.findings import Finding, labels_digest
@@ -208,8 +209,14 @@ class Session:
             self.events.emit("message", "this finding proposes no fix: correct it by hand, or "
                              "dismiss it as not a problem")
             return None
-        group = EditGroup(stop.frame_id, fix.edits, accept_label(stop.key, fix.edits))
-        if self._edited(stop, group) is None:
+        label = accept_label(stop.key, fix.edits)
+        if len({e.frame_id for e in fix.edits}) > 1:
+            # A fix over several frames (along a track) is one batch, one undo step.
+            run: Callable[[], Any] = partial(self.project.apply_batch, fix.edits, label,
+                                             action="AcceptFinding")
+        else:
+            run = partial(self._apply, EditGroup(stop.frame_id, fix.edits, label))
+        if self._edited(stop, run, changes_labels=True) is None:
             return None
         self.events.emit("message", f"done: {fix.summary} (Ctrl+Z takes it back)")
         return self.step(1)
@@ -227,17 +234,16 @@ class Session:
         marks = tuple(DismissFinding(f.frame_id, f.fingerprint, f.kind, f.id, f.text)
                       for f in stop.findings)
         edit = marks[0] if len(marks) == 1 else EditGroup(stop.frame_id, marks)
-        if self._edited(stop, edit) is None:
+        if self._edited(stop, partial(self._apply, edit), changes_labels=False) is None:
             return None
         self.events.emit("message", "dismissed as not a problem (Ctrl+Z takes it back)")
         return self.step(1)
 
-    def _edited(self, stop: Stop, edit: Edit) -> Any:
+    def _edited(self, stop: Stop, run: Callable[[], Any], changes_labels: bool) -> Any:
+        """Run the edit of a stop; keep the frame's stops about other people."""
         touched = set(stop.people)
         fix = stop.fix
-        if fix is not None and not isinstance(edit, DismissFinding) and not (
-                isinstance(edit, EditGroup)
-                and all(isinstance(e, DismissFinding) for e in edit.edits)):
+        if fix is not None and changes_labels:
             p = fix.preview
             touched |= {a for a, *_ in p.placed} | {a for a, _ in p.unlabeled} \
                 | {a for a, _ in p.occluded} | set(p.deleted) | {a for m in p.merged for a in m}
@@ -245,7 +251,7 @@ class Session:
         kept = [s for s in self.stops(fid) if s.key != stop.key and not touched & set(s.people)]
         self._applying.add(fid)
         try:
-            done = self._apply(edit)
+            done = run()
         except EditRefused as exc:
             self.events.emit("message", f"not done: {exc}")
             return None

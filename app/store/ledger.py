@@ -24,7 +24,7 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, replace
 from typing import Any
 
-from app.errors import ChangedMeanwhile, NotFound
+from app.errors import ChangedMeanwhile, EditRefused, NotFound
 from app.model.edits import (
     AddNote,
     AddRegion,
@@ -51,6 +51,7 @@ from app.model.targets import (
     RegionTarget,
     StateTarget,
     Target,
+    TrackTarget,
     from_columns,
     to_columns,
 )
@@ -160,7 +161,10 @@ class LedgerGateway:
                     "(target_kind = 'person' AND person_id = ?))")
             args += [target.person, target.joint, target.person]
         elif isinstance(target, PersonTarget):
-            sql += "target_kind IN ('joint', 'person') AND person_id = ?"
+            sql += "target_kind IN ('joint', 'person', 'track') AND person_id = ?"
+            args.append(target.person)
+        elif isinstance(target, TrackTarget):
+            sql += "target_kind IN ('track', 'person') AND person_id = ?"
             args.append(target.person)
         elif isinstance(target, (NoteTarget, RegionTarget, KeptTarget)):
             kind, _, _, item, _ = to_columns(target)
@@ -285,6 +289,58 @@ def apply_edit(tx: Tx, edit: Edit, skeleton: Skeleton, author: str, owner: str,
     return Applied(group, tuple(changes), edit)
 
 
+def apply_batch(tx: Tx, edits: Sequence[Edit], skeleton: Skeleton, author: str, owner: str,
+                action: str, summary: str) -> Applied:
+    """Apply edits of several frames as one action: one ledger group, one undo step (a track
+    joined over a sequence, a correction carried over the frames that show the same error).
+
+    Each edit is planned on the labels the ones before it (of its frame) leave; the whole
+    batch is refused, with nothing changed, when any edit is. Frames whose labels change and
+    were untouched become corrected, as with :func:`apply_edit`. When nothing changes nothing
+    is recorded (the group is None).
+    """
+    if not edits:
+        raise EditRefused("a batch needs at least one edit")
+    frames = sorted({e.frame_id for e in edits})
+    tx.frames.lock(frames)
+    now = {f: load_labels(tx, f, skeleton, lock=True) for f in frames}
+    staged = dict(now)
+    ctx = EditContext(author, time.time())
+    planned: dict[int, list[Change]] = {f: [] for f in frames}
+    relabelled: set[int] = set()
+    for edit in edits:
+        while needs_person_id(edit):
+            edit = with_person_id(edit, tx.counters.take("person_ids"))
+        staged[edit.frame_id], changes = edit.apply(staged[edit.frame_id], ctx)
+        planned[edit.frame_id] += changes
+        if type(edit).changes_labels and labels_changed(changes):
+            relabelled.add(edit.frame_id)
+    rows: list[tuple[int | None, Change]] = []
+    writes = []
+    for f in frames:
+        changes, new = planned[f], staged[f]
+        if not changes:
+            continue
+        if f in relabelled and now[f].state is FrameState.UNTOUCHED:
+            state = Change(StateTarget(), FrameState.UNTOUCHED.value,
+                           FrameState.CORRECTED.value)
+            changes.append(state)
+            new = apply_changes(new, [state])
+        writes.append((now[f], new, changes))
+        rows += [(f, c) for c in changes]
+    if not rows:
+        return Applied(None, (), edits[-1])
+    group = tx.counters.take("group_ids")
+    with tx.batch():
+        for old, new, changes in writes:
+            write_changes(tx, old, new, changes)
+        tx.ledger.add(group, "edit", action, summary, ctx, rows)
+        tx.ledger.push("undo_stack", group, owner)
+        tx.ledger.clear("redo_stack", owner)
+    tx.event("edit", [w[0].frame_id for w in writes])
+    return Applied(group, tuple(c for _, c in rows), edits[-1])
+
+
 def unwind(tx: Tx, source: str, dest: str, kind: str, skeleton: Skeleton, author: str,
            owner: str) -> int | None:
     """Undo (``source`` the undo stack) or redo the owner's newest action; returns the new
@@ -350,7 +406,7 @@ def write_changes(tx: Tx, old: FrameLabels, new: FrameLabels,
     """Write the rows ``changes`` touched, as they are in ``new``."""
     changes = list(changes)
     people = sorted({c.target.person for c in changes
-                     if isinstance(c.target, (PersonTarget, JointTarget))})
+                     if isinstance(c.target, (PersonTarget, JointTarget, TrackTarget))})
     for pid in people:
         person = new.people.get(pid)
         if person is None:
@@ -427,6 +483,8 @@ def describe_target(target: Any) -> str:
         return f"joint {target.joint} of person {target.person}"
     if isinstance(target, PersonTarget):
         return f"person {target.person}"
+    if isinstance(target, TrackTarget):
+        return f"the track of person {target.person}"
     if isinstance(target, StateTarget):
         return "the frame's state"
     if isinstance(target, NoteTarget):

@@ -13,31 +13,35 @@ from app.errors import BadInput
 from app.model.labels import Person
 from app.store.db import Tx
 
-COLUMNS = "id, keypoints, scores, sources, origin, score, extra"
+COLUMNS = "id, keypoints, scores, sources, origin, score, extra, track, track_source"
 #: How many rows one batch of a bulk insert sends (a streaming import writes in such batches
 #: inside one transaction).
 BATCH = 2000
 
 
 def encode_person(p: Person) -> tuple[Any, ...]:
-    """``(id, keypoints, scores, sources, origin, score, extra)`` as stored."""
+    """``(id, keypoints, scores, sources, origin, score, extra, track, track_source)`` as
+    stored."""
     kp = np.ascontiguousarray(p.keypoints, dtype="<f8")
     scores = None if np.isnan(p.scores).all() else np.ascontiguousarray(p.scores, "<f8").tobytes()
     origin = p.sources[0] if p.sources else ""
     sources = None if all(s == origin for s in p.sources) else json.dumps(list(p.sources))
     extra = json.dumps(dict(p.extra)) if p.extra else None
-    return (p.id, kp.tobytes(), scores, sources, origin, p.score, extra)
+    return (p.id, kp.tobytes(), scores, sources, origin, p.score, extra,
+            None if p.track is None else int(p.track), p.track_source or None)
 
 
 def decode_person(row: Sequence[Any], num_joints: int) -> Person:
-    pid, kp_blob, scores_blob, sources, origin, score, extra = row
+    pid, kp_blob, scores_blob, sources, origin, score, extra, track, track_source = row
     kp = np.frombuffer(bytes(kp_blob), dtype="<f8").reshape(num_joints, 3).copy()
     if scores_blob is None:
         scores = np.full(num_joints, np.nan)
     else:
         scores = np.frombuffer(bytes(scores_blob), dtype="<f8").copy()
     src = tuple(json.loads(sources)) if sources else (origin,) * num_joints
-    return Person(pid, kp, scores, src, score, json.loads(extra) if extra else {})
+    return Person(pid, kp, scores, src, score, json.loads(extra) if extra else {},
+                  None if track is None else int(track),
+                  "" if track is None else (track_source or ""))
 
 
 class PeopleGateway:
@@ -82,8 +86,8 @@ class PeopleGateway:
 
     def insert_encoded(self, rows: Iterable[Sequence[Any]]) -> int:
         """Insert pre-encoded rows ``(frame_id, id, keypoints, scores, sources, origin, score,
-        extra)`` in batches of :data:`BATCH`; returns how many. A person id already in the
-        project is refused (:class:`~app.errors.BadInput`)."""
+        extra, track, track_source)`` in batches of :data:`BATCH`; returns how many. A person
+        id already in the project is refused (:class:`~app.errors.BadInput`)."""
         n = 0
         batch: list[Sequence[Any]] = []
         frames: set[int] = set()
@@ -105,17 +109,26 @@ class PeopleGateway:
         if dup:
             raise BadInput(f"a person id is already in the project (id {min(dup)})")
         self._tx.run_many(f"INSERT INTO people (frame_id, {COLUMNS}) "
-                          "VALUES (?, ?, ?, ?, ?, ?, ?, ?)", rows)
+                          "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)", rows)
         return len(rows)
 
     def put(self, frame_id: int, person: Person) -> None:
         """Write a person (new or changed)."""
         self._tx.run(
-            f"INSERT INTO people (frame_id, {COLUMNS}) VALUES (?, ?, ?, ?, ?, ?, ?, ?) "
+            f"INSERT INTO people (frame_id, {COLUMNS}) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?) "
             "ON CONFLICT (id) DO UPDATE SET frame_id = excluded.frame_id, "
             "keypoints = excluded.keypoints, scores = excluded.scores, "
             "sources = excluded.sources, origin = excluded.origin, score = excluded.score, "
-            "extra = excluded.extra", (int(frame_id), *encode_person(person)))
+            "extra = excluded.extra, track = excluded.track, "
+            "track_source = excluded.track_source", (int(frame_id), *encode_person(person)))
+
+    def set_tracks(self, rows: Iterable[tuple[int, int | None, str]]) -> int:
+        """Write ``(person id, track, who set it)`` for many people at once (linking a whole
+        sequence); returns how many rows were given."""
+        params = [(None if t is None else int(t), s if t is not None else None, int(pid))
+                  for pid, t, s in rows]
+        self._tx.run_many("UPDATE people SET track = ?, track_source = ? WHERE id = ?", params)
+        return len(params)
 
     def delete(self, person_id: int) -> None:
         self._tx.run("DELETE FROM people WHERE id = ?", (int(person_id),))

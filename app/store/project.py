@@ -563,6 +563,11 @@ class Project:
         with self._read() as tx:
             return tx.ledger.entries(frame_id=frame_id, limit=limit)
 
+    def action(self, group: int) -> list[LedgerEntry]:
+        """The ledger entries of one action (group), oldest first."""
+        with self._read() as tx:
+            return list(reversed(tx.ledger.entries(group=group)))
+
     def can_undo(self) -> bool:
         with self._read() as tx:
             return tx.ledger.top("undo_stack", self._owner) is not None
@@ -636,6 +641,26 @@ class Project:
         if renew and applied.group_id is not None:
             self._renewed = {edit.frame_id: time.monotonic()}
         return applied
+
+    def apply_batch(self, edits: Sequence[Edit], summary: str, *,
+                    action: str = "Batch") -> Applied:
+        """Apply edits of several frames as one action (one transaction, one ledger group, one
+        undo step): a track joined or split over a sequence, a correction carried forward.
+        Refused whole, with nothing changed, when any edit is."""
+        edits = list(edits)
+        return self._transact(lambda tx: ledger.apply_batch(
+            tx, edits, self.skeleton, self.author, self._owner, action, summary),
+            frames=[e.frame_id for e in edits])
+
+    def set_tracks(self, rows: Iterable[tuple[int, int | None, str]], summary: str,
+                   target: str = "tracks") -> int:
+        """Write many people's tracks at once, ``(person id, track, who set it)``, as bulk
+        work (one ledger record, not undone, like an import): what linking a whole project
+        does. Returns how many people were written."""
+        rows = list(rows)
+        with self.bulk("LinkTracks", summary, target, kind="import") as b:
+            b.set_tracks(rows)
+        return len(rows)
 
     def undo(self) -> int | None:
         """Undo the newest action still on the undo stack; returns the new ledger group or
@@ -774,6 +799,10 @@ class Bulk:
     def reserve_person_ids(self, ids: Iterable[int]) -> None:
         """Make sure later allocations never hand out any of ``ids``."""
         self._tx.counters.reserve("person_ids", ids)
+
+    def set_tracks(self, rows: Sequence[tuple[int, int | None, str]]) -> None:
+        """Write ``(person id, track, who set it)`` of many people."""
+        self.count("people", self._tx.people.set_tracks(rows))
 
     def reserve_note_ids(self, ids: Iterable[int]) -> None:
         self._tx.counters.reserve("note_ids", ids)

@@ -22,12 +22,15 @@ Layout:
 - ``people``: one row per person; ``keypoints`` is the ``(K, 3)`` float64 array ``x, y, v`` as
   little-endian bytes (exact round trip of any JSON number), ``scores`` the ``(K,)`` float64
   model scores (NULL when none), ``sources`` a JSON list of per-joint provenance (NULL when every
-  joint has the person's ``origin``), ``extra`` the imported fields kept for round trip. Room is
-  left for a ``track`` label per person (sequences) as a later column.
+  joint has the person's ``origin``), ``extra`` the imported fields kept for round trip;
+  ``track`` (v6) the person's track in its sequence (NULL when not linked) and
+  ``track_source`` who set it (``auto``, ``import`` or an author), see
+  :class:`app.model.labels.Person`.
 - ``ledger``: append-only; one row per atomic change, a ``group_id`` per user action. The
-  change's target is in structured columns (v4): ``target_kind`` (person, joint, state, note,
-  region, kept, record), ``person_id``, ``joint``, ``item_id`` (note, region or reviewer's
-  version) and ``target_key`` (what a bulk entry was about), see :mod:`app.model.targets`.
+  change's target is in structured columns (v4): ``target_kind`` (person, joint, track, state,
+  note, region, kept, dismissal, record), ``person_id``, ``joint``, ``item_id`` (note, region
+  or reviewer's version) and ``target_key`` (what a bulk entry was about), see
+  :mod:`app.model.targets`.
 - ``undo_stack`` / ``redo_stack``: the groups that undo and redo act on next, kept in the
   database so that undo survives a restart; ``author`` (v4) owns the entry: empty in a folder
   project (one stack for whoever edits it), the annotator in a hosted project (each undoes
@@ -312,8 +315,24 @@ _V5 = [
     _index(Index("dismissals_frame", "dismissals", ("frame_id",))),
 ]
 
+
+def _track_columns(tx: Tx) -> None:
+    have = columns(tx, "people")
+    if "track" not in have:
+        tx.run("ALTER TABLE people ADD COLUMN track " + tx.dialect.type_name("int"))
+    if "track_source" not in have:
+        tx.run("ALTER TABLE people ADD COLUMN track_source " + tx.dialect.type_name("text"))
+
+
+# Version 6: sequences. A person's track (who they are across a sequence's frames) is a label
+# of its own, changed by edits (so in the ledger) or written whole by linking.
+_V6 = [
+    _track_columns,
+    _index(Index("people_track", "people", ("track",))),
+]
+
 #: ``MIGRATIONS[n]`` takes the schema from version ``n - 1`` to ``n``.
-MIGRATIONS: dict[int, list[Step]] = {1: _V1, 2: _V2, 3: _V3, 4: _V4, 5: _V5}
+MIGRATIONS: dict[int, list[Step]] = {1: _V1, 2: _V2, 3: _V3, 4: _V4, 5: _V5, 6: _V6}
 SCHEMA_VERSION = max(MIGRATIONS)
 
 

@@ -8,9 +8,11 @@ worker, with progress and Cancel) once the dialog is accepted. They open window-
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from pathlib import Path
 
 from PySide6.QtWidgets import (
+    QCheckBox,
     QComboBox,
     QDialog,
     QDialogButtonBox,
@@ -193,14 +195,25 @@ class VideoDialog(_Form):
 
 #: How a packet carries images, as the packet format names them and as the form says it.
 IMAGE_CHOICES = (("blurred-heads", "images with every head blurred"),
+                 ("blurred-people", "images with every person blurred whole"),
                  ("full", "images as they are"), ("none", "no images (labels only)"))
+
+#: How many of the frames at risk the form names one by one.
+RISK_LINES = 6
 
 
 class PacketDialog(_Form):
-    """Which frames go to which reviewer, with or without images, into which file."""
+    """Which frames go to which reviewer, with or without images, into which file.
+
+    ``risks(frames, images)`` gives the lines of :func:`app.review.packet.blur_risks` for a
+    choice (the frames as :meth:`values` gives them); when there are any, the form shows them
+    and sends blurred images only once "Send anyway" is ticked, as the command line does with
+    ``--accept-risk``.
+    """
 
     def __init__(self, folder: Path, counts: dict[str, int], current: int | None,
-                 parent: QWidget | None = None):
+                 parent: QWidget | None = None,
+                 risks: Callable[[str, str], list[str]] | None = None):
         super().__init__("Send frames for review", (
             "Writes a review packet: the frames' labels and notes as they are now, for a "
             "colleague to open with `posewright open FILE.zip`. Frames of people are personal "
@@ -227,15 +240,57 @@ class PacketDialog(_Form):
         self.out = PathField("Write the packet to", folder, "Review packets (*.zip)",
                              save=True)
         self.out.set_text(str(folder / "review-packet.zip"))
+        self._risks = risks
+        self.risk_lines: list[str] = []
+        self.warning = QLabel()
+        self.warning.setObjectName("BlurWarning")
+        self.warning.setStyleSheet("color: #8a4b00;")
+        self.warning.hide()
+        self.accept_risk = QCheckBox("Send anyway: I accept that these people may be "
+                                     "recognisable")
+        self.accept_risk.hide()
         self.form.addRow("Frames", self.frames)
         self.form.addRow("", self.ids)
         self.form.addRow("Images", self.images)
         self.form.addRow("Reviewer", self.reviewer)
         self.form.addRow("Packet file", self.out)
+        below = self.layout()
+        assert isinstance(below, QVBoxLayout)
+        below.insertSpacing(2, 6)
+        below.insertWidget(3, self.warning)
+        below.insertWidget(4, self.accept_risk)
+        self.frames.currentIndexChanged.connect(lambda _i: self.check_risks())
+        self.images.currentIndexChanged.connect(lambda _i: self.check_risks())
+        self.ids.editingFinished.connect(self.check_risks)
+        self.check_risks()
+
+    def check_risks(self) -> None:
+        """Show the frames whose blurred images may leave people recognisable."""
+        frames, images = self.values()[:2]
+        lines: list[str] = []
+        if self._risks is not None and images.startswith("blurred") and frames:
+            try:
+                lines = self._risks(frames, images)
+            except BadInput:
+                lines = []  # frame ids still being typed: problems() says what is wrong
+        self.risk_lines = lines
+        if lines:
+            shown_lines = lines[:RISK_LINES]
+            if len(lines) > RISK_LINES:
+                shown_lines.append(f"and {count(len(lines) - RISK_LINES, 'more frames')}")
+            self.warning.setText("Without network maps only the face detector looks for people "
+                                 "the labels miss:\n" + "\n".join(shown_lines))
+        self.warning.setVisible(bool(lines))
+        self.accept_risk.setVisible(bool(lines))
+        self.adjustSize()
 
     def problems(self) -> str:
         if self.frames.currentData() == "ids" and not self.ids.text().strip():
             return "Give the frame ids to send."
+        self.check_risks()
+        if self.risk_lines and not self.accept_risk.isChecked():
+            return (f"{count(len(self.risk_lines), 'frames')} may show people unblurred: add "
+                    "their maps, send no images, or tick \u201cSend anyway\u201d.")
         out = self.out.text()
         if not out.lower().endswith(".zip"):
             return "The packet file must end in .zip."
@@ -243,10 +298,11 @@ class PacketDialog(_Form):
             return f"No such folder: {Path(out).parent}"
         return ""
 
-    def values(self) -> tuple[str, str, str | None, str]:
-        """Frames (``this``, a state, or the typed ids), images mode, reviewer, packet path."""
+    def values(self) -> tuple[str, str, str | None, str, bool]:
+        """Frames (``this``, a state, or the typed ids), images mode, reviewer, packet path,
+        and whether the risk shown is accepted."""
         frames = str(self.frames.currentData())
         if frames == "ids":
             frames = self.ids.text().strip()
         return frames, str(self.images.currentData()), self.reviewer.text().strip() or None, \
-            self.out.text()
+            self.out.text(), bool(self.risk_lines) and self.accept_risk.isChecked()

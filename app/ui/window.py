@@ -1633,21 +1633,31 @@ class MainWindow(QMainWindow):
         counts: dict[str, int] = {}
         for f in frames:
             counts[f.state.value] = counts.get(f.state.value, 0) + 1
-        dialog = PacketDialog(self.project.folder, counts, self.frame_id, self)
-        dialog.setObjectName("PacketDialog")
-        dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
         current = self.frame_id
 
-        def go() -> None:
-            from app.review.packet import export_packet, select_frames
+        def chosen(which: str) -> list[Any]:
+            from app.review.packet import select_frames
 
-            which, images, reviewer, out = dialog.values()
+            return [self.project.frame(current)] if which == "this" and current is not None \
+                else select_frames(self.project, which)
+
+        def risks(which: str, images: str) -> list[str]:
+            from app.review.packet import blur_risks
+
+            return blur_risks(self.project, chosen(which), images)
+
+        dialog = PacketDialog(self.project.folder, counts, self.frame_id, self, risks)
+        dialog.setObjectName("PacketDialog")
+        dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
+
+        def go() -> None:
+            from app.review.packet import export_packet
+
+            which, images, reviewer, out, accept_risk = dialog.values()
 
             def job(pr: Progress) -> dict[str, Any]:
-                chosen = [self.project.frame(current)] if which == "this" and current \
-                    is not None else select_frames(self.project, which)
-                return export_packet(self.project, out, chosen, images=images,
-                                     reviewer=reviewer, progress=pr)
+                return export_packet(self.project, out, chosen(which), images=images,
+                                     reviewer=reviewer, progress=pr, accept_risk=accept_risk)
 
             self.run_long("Writing the review packet", job,
                           lambda stats: self._packet_written(out, stats))
@@ -1666,6 +1676,9 @@ class MainWindow(QMainWindow):
         if stats.get("unplaced_heads"):
             text += (f"\n{count(stats['unplaced_heads'], 'people')} with no labelled joint: "
                      "no head to blur.")
+        if stats.get("risks"):
+            text += "\nSent accepting the risk:\n" + "\n".join(stats["risks"][:6]) + \
+                ("\n\u2026" if len(stats["risks"]) > 6 else "")
         self._message(f"wrote {out}")
         self._inform(text)
 

@@ -111,6 +111,21 @@ def test_a_person_found_twice_is_deleted_keeping_the_joint_only_it_has():
     np.testing.assert_array_equal(after.people[1].keypoints[:9], body[:9])
 
 
+def test_two_people_standing_alike_a_shoulder_width_apart_are_two():
+    """Two synthetic people of one pose side by side, one missing a hand and scored a little
+    lower (a choir's neighbours): a shoulder width apart (0.259 of stature, Drillis and
+    Contini via Winter, from memory) nobody is a copy; the same pair at a tenth of a stature
+    is one body found twice."""
+    body = _body()
+    for gap, expected in ((0.27, []), (0.1, [2])):
+        other = body.copy()
+        other[:, 0] += gap * 300.0
+        other[J["left_wrist"], 2] = 0
+        people = {1: body, 2: other}
+        scores = {1: np.full(17, 0.9), 2: np.full(17, 0.85)}
+        assert [f.person_id for f in _find(people, "duplicate", scores)] == expected
+
+
 def test_a_body_cut_in_two_is_merged_into_one():
     """Upper body (face, shoulders, arms) and lower body (hips, legs) of one person as two
     people: merged, the labels are the body's again."""

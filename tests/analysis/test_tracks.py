@@ -220,3 +220,26 @@ def test_tracks_link_the_shipped_demo() -> None:
     print(f"true poses: {truth}\ngrouped people: {auto}")
     assert truth.accuracy >= 0.99 and truth.recall >= 0.99
     assert auto.accuracy >= 0.95 and auto.recall >= 0.9
+
+
+def test_given_tracks_are_kept_and_the_rest_linked_around_them() -> None:
+    """Tracks someone chose stay as chosen, and their motion carries on to the frames where
+    the linking is free: two synthetic dancers crossing, the walker's track set to 40 in the
+    first frame only, is 40 all along; the other's new ids start after the highest given."""
+    rng = np.random.default_rng(3)
+    a, b = synth.person(rng, (200.0, 400.0), 250.0), synth.person(rng, (800.0, 400.0), 250.0)
+    frames = [np.stack([a + np.array([20.0 * t, 0, 0]), b - np.array([20.0 * t, 0, 0])])
+              for t in range(31)]
+    given = [np.array([40, -1])] + [np.array([-1, -1])] * 30
+    ids = link_tracks(frames, SIGMAS, given=given)
+    assert [tuple(int(i) for i in f) for f in ids] == [(40, 41)] * 31
+    # A given track wins over what the linking would choose: the second dancer is put on
+    # track 1 from frame 20 on (an edit); the walker keeps one track all along, and the
+    # second dancer's frames before the edit stay one track of their own.
+    given = [np.array([-1, -1])] * 20 + [np.array([-1, 1])] * 11
+    ids = link_tracks(frames, SIGMAS, given=given)
+    assert [int(f[1]) for f in ids[20:]] == [1] * 11
+    assert len({int(f[0]) for f in ids}) == 1 and len({int(f[1]) for f in ids[:20]}) == 1
+    assert len({int(ids[0][0]), int(ids[0][1]), 1}) == 3
+    with pytest.raises(BadInput, match="given"):
+        link_tracks(frames, SIGMAS, given=given[:3])

@@ -205,7 +205,7 @@ def test_deciding_on_a_frame_not_in_the_packet_names_the_packet(tmp_path, image_
     assert main(["import", str(proj), str(coco_file), "-q"]) == 0
     packet = tmp_path / "r.zip"
     assert main(["packet", "export", str(proj), "--frames", "100,107", "--out", str(packet),
-                 "-q"]) == 0
+                 "--images", "none", "-q"]) == 0
     capsys.readouterr()
     code, _, err = _run(capsys, "packet", "decide", packet, "--frame", "7", "--decision",
                         "agree")
@@ -246,7 +246,7 @@ def test_a_project_holding_infinity_exports_says_where_and_mends(tmp_path, image
                    + unchecked)
     json.loads(out.read_text(), parse_constant=_refuse)
     code, _, err = _run(capsys, "packet", "export", proj, "--frames", "1", "--out",
-                        tmp_path / "r.zip", "-q")
+                        tmp_path / "r.zip", "--images", "none", "-q")
     assert code == 0 and "field people.0.extra.area: not a finite number" in err
     code, out_text, _ = _run(capsys, "mend", proj)
     assert code == 0 and out_text == ("mended frame 1: person 77: field area: dropped\n"

@@ -103,7 +103,7 @@ def test_packet_export_blurs_heads_by_default(mixed, tmp_path, capsys):
     import zipfile
 
     code, printed, _ = _run(capsys, "packet", "export", mixed, "--frames", "100,107", "--out",
-                            tmp_path / "p.zip")
+                            tmp_path / "p.zip", "--accept-risk")  # no maps in this project
     assert code == 0 and "(blurred-heads)" in printed
     with zipfile.ZipFile(tmp_path / "p.zip") as z:
         assert sorted(n for n in z.namelist() if n.startswith("images/")) == \

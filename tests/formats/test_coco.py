@@ -428,3 +428,50 @@ def test_random_malformed_input_never_crashes_and_never_half_imports(
 
 def _refuse_constant(token):
     raise AssertionError(f"{token} in a file that must be strict JSON")
+
+
+def test_track_ids_round_trip_and_pycocotools_still_loads_the_file(project, coco_file,
+                                                                  tmp_path):
+    """Source: pycocotools COCO reads our export with ``track_id`` on each annotation (an
+    extra field, as track-annotated COCO-style datasets carry it; common practice, no
+    source) and evaluates it against the original as perfect. Data synthetic."""
+    from pycocotools.coco import COCO
+    from pycocotools.cocoeval import COCOeval
+
+    from app.model import SetTrack
+
+    ds = _load(coco_file)
+    for n, a in enumerate(ds["annotations"]):
+        a["track_id"] = n % 3  # from 0, as some datasets number them
+    tracked = _write(tmp_path, ds, "tracked.json")
+    import_coco(project, tracked)
+    people = [p for ps in project.people_by_frame().values() for p in ps]
+    assert {(p.track, p.track_source) for p in people} == {(0, "import"), (1, "import"),
+                                                          (2, "import")}
+    assert all("track_id" not in p.extra for p in people)
+    out = tmp_path / "out.json"
+    export_coco(project, out, states=None)
+    assert _load(out) == ds
+    # An edited track is exported as edited.
+    frame = project.frames()[0].id
+    moved = project.people(frame)[0]
+    project.apply(SetTrack(frame, moved.id, 40))
+    export_coco(project, out, states=None)
+    exported = COCO(str(out))
+    assert exported.anns[moved.id]["track_id"] == 40
+    gt = COCO(str(tracked))
+    dets = [dict(a, score=1.0) for a in exported.dataset["annotations"] if a["num_keypoints"]]
+    ev = COCOeval(gt, gt.loadRes(dets), iouType="keypoints")
+    ev.evaluate()
+    ev.accumulate()
+    ev.summarize()
+    assert ev.stats[0] == pytest.approx(1.0)
+
+
+@pytest.mark.parametrize("value", [-1, 1.5, "7", True])
+def test_a_track_id_that_is_not_a_whole_number_is_refused(project, coco_file, tmp_path, value):
+    ds = _load(coco_file)
+    ds["annotations"][4]["track_id"] = value
+    with pytest.raises(BadInput, match=r"annotations\[4\].*field track_id"):
+        import_coco(project, _write(tmp_path, ds, "bad.json"))
+    assert project.counts()["people"] == 0

@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 
 from app.model.skeleton import coco_body
-from app.review.blur import blur_heads, head_ellipses
+from app.review.blur import blur_frame, head_ellipses
 
 SK = coco_body()
 
@@ -51,15 +51,16 @@ def test_without_face_joints_the_head_sits_above_the_shoulders_away_from_the_hip
 
 def test_a_person_with_no_labelled_joint_is_counted_and_left_alone():
     img = np.random.default_rng(0).integers(0, 256, (120, 160, 3), np.uint8)
-    out, missed = blur_heads(img, [np.zeros((17, 3))], SK)
-    assert missed == 1 and np.array_equal(out, img)
+    out, plan = blur_frame(img, [np.zeros((17, 3))], SK)
+    assert plan.unplaced == 1 and np.array_equal(out, img)
 
 
 def test_only_pixels_inside_the_ellipses_change_and_fine_detail_is_gone():
     rng = np.random.default_rng(1)
     img = rng.integers(0, 256, (300, 400, 3), np.uint8)
     second = UPRIGHT + np.array([120.0, 10.0, 0.0])  # a second person to the right
-    out, missed = blur_heads(img, [UPRIGHT, second], SK)
+    out, plan = blur_frame(img, [UPRIGHT, second], SK)
+    missed = plan.unplaced
     ellipses = head_ellipses([UPRIGHT, second], SK, (400, 300))
     yy, xx = np.mgrid[:300, :400]
     inside = np.zeros((300, 400), bool)
@@ -75,6 +76,208 @@ def test_only_pixels_inside_the_ellipses_change_and_fine_detail_is_gone():
 def test_a_head_partly_outside_the_image_is_clipped():
     img = np.random.default_rng(2).integers(0, 256, (100, 100, 3), np.uint8)
     kp = _person(nose=(2, 3), left_shoulder=(20, 40), right_shoulder=(-20, 40))
-    out, _ = blur_heads(img, [kp], SK)
+    out, _ = blur_frame(img, [kp], SK)
     assert out.shape == img.shape and (out[:5, :5] != img[:5, :5]).any()
     assert np.array_equal(out[60:], img[60:])
+
+
+# ---------------------------------------------------------------------- every source of evidence
+#
+# The scenes below are synthetic: people standing in a row, drawn as joints from body
+# proportions (Winter, Fig. 4.1 from memory, as in app/review/blur.py), on an image of noise so
+# that any blur changes the pixels; network maps are the Gaussian confidence maps of Cao et al.,
+# CVPR 2017, Sec. 2.2 (app.analysis.targets.confidence_maps) drawn at the true joints.
+
+from app.analysis.targets import confidence_maps, part_affinity_fields  # noqa: E402
+from app.demo.blurcheck import changed_share, face_boxes  # noqa: E402
+from app.formats.maps import NetworkMaps  # noqa: E402
+from app.review.blur import place_regions  # noqa: E402
+
+#: Joint offsets from the head's centre as fractions of stature, COCO order, facing the camera
+#: (the person's left is the image's right).
+_BODY = np.array([
+    [0, 0.012], [0.02, -0.01], [-0.02, -0.01], [0.045, 0.0], [-0.045, 0.0],
+    [0.13, 0.117], [-0.13, 0.117], [0.15, 0.3], [-0.15, 0.3], [0.16, 0.45], [-0.16, 0.45],
+    [0.095, 0.405], [-0.095, 0.405], [0.09, 0.65], [-0.09, 0.65], [0.09, 0.9], [-0.09, 0.9]])
+SIZE = (640, 360)
+
+
+def _standing(cx: float, cy: float, stature: float = 300.0) -> np.ndarray:
+    kp = np.ones((17, 3)) * 2
+    kp[:, :2] = (cx, cy) + _BODY * stature
+    return kp
+
+
+def _noise(seed: int = 0) -> np.ndarray:
+    w, h = SIZE
+    return np.random.default_rng(seed).integers(0, 256, (h, w, 3), np.uint8)
+
+
+def _maps(truth: list[np.ndarray]) -> NetworkMaps:
+    cmaps = confidence_maps(np.stack(truth), SIZE, stride=8, sigma=7.0)
+    fields = part_affinity_fields(np.stack(truth), SK.limb_array, SIZE, stride=8,
+                                  limb_width=8.0)
+    return NetworkMaps(cmaps, fields, 8)
+
+
+def _blurred(before: np.ndarray, after: np.ndarray, truth: list[np.ndarray]) -> np.ndarray:
+    """Share of each true face box's pixels changed (app/demo/blurcheck.py's measure)."""
+    boxes = face_boxes(np.stack(truth), np.tile([0.0, 0.0, 0.0, 300.0], (len(truth), 1)), SK)
+    return changed_share(before, after, boxes)
+
+
+A, B = _standing(200, 60), _standing(420, 60)
+
+
+def test_a_person_the_labels_miss_is_blurred_from_the_maps():
+    img = _noise()
+    out, plan = blur_frame(img, [A], SK, ids=[7], maps=_maps([A, B]))
+    assert _blurred(img, out, [A, B]).min() == 1.0
+    sources = sorted(sorted(r.sources) for r in plan.regions)
+    assert sources == [["labels"], ["maps"]] and plan.risk() is None
+    labelled = next(r for r in plan.regions if "labels" in r.sources)
+    assert labelled.people == {7}
+    # Without the maps B's face stays as it was: the maps are what found it.
+    out, plan = blur_frame(img, [A], SK)
+    assert _blurred(img, out, [B])[0] == 0.0
+
+
+def test_a_head_given_to_a_neighbour_is_blurred_where_it_is_and_where_the_label_went():
+    """A's face joints were given to B; A and B are each labelled once (synthetic)."""
+    a_with_b_face, b_without_face = A.copy(), B.copy()
+    a_with_b_face[:5] = B[:5]
+    b_without_face[:5, 2] = 0
+    img = _noise(1)
+    out, plan = blur_frame(img, [a_with_b_face, b_without_face], SK, maps=_maps([A, B]))
+    assert _blurred(img, out, [A, B]).min() == 1.0
+    assert any(r.sources == {"maps"} for r in plan.regions)  # A's own head: no label owns it
+
+
+def test_face_joints_on_two_heads_blur_both_from_the_labels_alone():
+    """A face put together from two heads (A's nose and eyes, B's ears): no maps needed."""
+    mixed = A.copy()
+    mixed[3:5] = B[3:5]
+    img = _noise(2)
+    out, plan = blur_frame(img, [mixed], SK)
+    assert _blurred(img, out, [A])[0] == 1.0
+    ears = face_boxes(B[None], np.array([[0.0, 0.0, 0.0, 300.0]]), SK)  # B's visible face box
+    b = B.copy()
+    b[:3, 2] = 0  # only B's ears are where the labels put a face joint
+    assert changed_share(img, out, face_boxes(b[None], np.array([[0, 0, 0, 300.0]]), SK))[0] \
+        == 1.0 and ears.shape == (1, 4)
+    assert len(plan.regions) == 2 and all(r.people == {0} for r in plan.regions)
+
+
+def test_without_maps_the_risk_is_counted_per_frame():
+    shoulders_only = A.copy()
+    shoulders_only[:5, 2] = 0
+    plan = place_regions([shoulders_only, B], SK, SIZE)
+    assert plan.risk() == "1 person may be unblurred: no maps"
+    plan = place_regions([B], SK, SIZE)
+    assert plan.risk() == "people the labels miss may be unblurred: no maps"
+    # A face the detector finds is blurred but clears no one: it may be another person's.
+    head = head_ellipses([shoulders_only], SK, SIZE)[0]
+    face = np.array([[head[0] - 15, head[1] - 15, 30, 30]])
+    plan = place_regions([shoulders_only], SK, SIZE, faces=face)
+    assert plan.unsure == 1 and any("detector" in r.sources for r in plan.regions)
+    assert place_regions([B], SK, SIZE, peaks=[np.zeros((0, 3))] * 17).risk() is None
+
+
+def test_the_maps_size_a_head_from_the_people_near_it():
+    """A far person (small, high in the frame) and a near one (large, low): an unowned peak
+    beside each is sized like them (perspective of a floor, common practice, no source)."""
+    far, near = _standing(100, 40, 150), _standing(440, 120, 300)
+    loose_far, loose_near = _standing(150, 40, 150), _standing(540, 120, 300)
+    maps = _maps([far, near, loose_far, loose_near])
+    from app.analysis.association import find_peaks
+
+    peaks = find_peaks(maps.confidence_maps, 0.1, 8)
+    plan = place_regions([far, near], SK, SIZE, peaks=peaks)
+    from_maps = sorted((r for r in plan.regions if r.sources == {"maps"}),
+                       key=lambda r: r.ellipses[0, 0])
+    (small,), (large,) = (r.ellipses for r in from_maps)
+    assert small[3] == pytest.approx(0.115 * 150, rel=0.15)
+    assert large[3] == pytest.approx(0.115 * 300, rel=0.15)
+
+
+def test_the_blur_leaves_no_detail_a_face_is_recognised_by():
+    """A grating of 4 cycles per face width (the band faces are identified by lies at about
+    8-16: Costen, Parker and Craw 1996, from memory) survives a Gaussian by
+    exp(-2 pi^2 sigma^2 f^2) (its Fourier transform): with sigma at least 0.0425 H it is gone to
+    less than a grey level."""
+    stature = 300.0
+    face_width = 0.1 * stature
+    w, h = SIZE
+    xx = np.arange(w)[None, :].repeat(h, axis=0)
+    grating = 128 + 100 * np.sin(2 * np.pi * 4 * xx / face_width)
+    img = np.repeat(grating[:, :, None], 3, axis=2).astype(np.uint8)
+    out, plan = blur_frame(img, [_standing(320, 100, stature)], SK)
+    (cx, cy, ax, ay), = plan.regions[0].ellipses
+    core = out[int(cy - ay / 2):int(cy + ay / 2), int(cx - ax / 2):int(cx + ax / 2)].astype(float)
+    assert plan.regions[0].sigma >= 0.0425 * stature
+    assert core.std() < 1.0 < img[int(cy), int(cx - ax):int(cx + ax)].std()
+
+
+# ---------------------------------------------------------------------- the face detector
+
+def _drawn_face(scale: float = 1.0, size: tuple[int, int] = (300, 300)) -> np.ndarray:
+    """A face drawn with ellipses (synthetic): light skin, dark hair, eye sockets, eyes,
+    brows, a lit nose bridge, nostrils and a mouth, softened like a photograph."""
+    im = np.full((size[1], size[0]), 90, np.uint8)
+    c = np.array([size[0] / 2, size[1] / 2])
+
+    def at(x: float, y: float) -> tuple[int, int]:
+        return int(c[0] + x * scale), int(c[1] + y * scale)
+
+    def axes(a: float, b: float) -> tuple[int, int]:
+        return int(a * scale), int(b * scale)
+
+    for centre, ax, start, end, grey in (
+            ((0, 0), (50, 66), 0, 360, 200), ((0, -52), (54, 30), 180, 360, 40),
+            ((-20, -12), (15, 9), 0, 360, 110), ((20, -12), (15, 9), 0, 360, 110),
+            ((-20, -12), (8, 4), 0, 360, 40), ((20, -12), (8, 4), 0, 360, 40),
+            ((-20, -26), (14, 3), 0, 360, 60), ((20, -26), (14, 3), 0, 360, 60),
+            ((0, 8), (6, 14), 0, 360, 215), ((0, 20), (9, 4), 0, 360, 120),
+            ((0, 38), (18, 5), 0, 360, 80), ((-40, 10), (8, 30), 0, 360, 150),
+            ((40, 10), (8, 30), 0, 360, 150)):
+        cv2.ellipse(im, at(*centre), axes(*ax), 0, start, end, grey, -1)
+    im = cv2.GaussianBlur(im, (0, 0), 2.0 * scale)
+    return cv2.cvtColor(im, cv2.COLOR_GRAY2BGR)
+
+
+def test_the_bundled_cascades_find_a_drawn_face_and_the_blur_covers_it():
+    """OpenCV's Haar cascades (Viola and Jones 2001) as the opencv-python-headless wheel ships
+    them, on a synthetic drawn face."""
+    from app.review.faces import FaceDetector
+
+    detector = FaceDetector()
+    img = _drawn_face()
+    (x, y, bw, bh), = detector(img)
+    assert 100 < x + bw / 2 < 200 and 100 < y + bh / 2 < 200 and 80 < bw < 200
+    out, plan = blur_frame(img, [], SK, detector=detector)
+    assert [sorted(r.sources) for r in plan.regions] == [["detector"]]
+    eyes = (slice(130, 145), slice(120, 180))
+    assert (out[eyes] != img[eyes]).any(axis=2).mean() > 0.9
+    assert not detector(out).size  # the blurred face is no longer found
+    assert not detector(np.full_like(img, 90)).size
+
+
+def test_a_face_box_far_too_big_for_the_people_around_is_dropped():
+    big = np.array([[100.0, 20.0, 250.0, 250.0]])  # 250 px: over 0.3 of a 300 px stature
+    plan = place_regions([B], SK, SIZE, faces=big)
+    assert all("detector" not in r.sources for r in plan.regions)
+
+
+# ---------------------------------------------------------------------- whole people
+
+def test_blurred_people_covers_every_person_whole_and_nothing_far_from_them():
+    img = _noise(3)
+    out, plan = blur_frame(img, [A], SK, maps=_maps([A, B]), mode="people")
+    changed = (out != img).any(axis=2)
+    for person in (A, B):  # B only in the maps
+        for x, y, _ in person:
+            if 0 <= x < SIZE[0] and 0 <= y < SIZE[1]:
+                assert changed[int(y), int(x)]
+    assert _blurred(img, out, [A, B]).min() == 1.0
+    assert not changed[:, :100].any() and not changed[:, 560:].any()
+    assert {s for r in plan.regions for s in r.sources} == {"labels", "maps"}

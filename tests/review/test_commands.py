@@ -33,7 +33,8 @@ def folder(tmp_path, image_dir, coco_file, capsys):
 def test_the_round_trip_from_the_command_line(folder, tmp_path, capsys):
     packet = tmp_path / "rehearsal.zip"
     code, out, _ = _run(capsys, "packet", "export", folder, "--frames", "100,107", "--out",
-                        packet, "--images", "blurred-heads", "--reviewer", "bea")
+                        packet, "--images", "blurred-heads", "--reviewer", "bea",
+                        "--accept-risk")
     assert code == 0 and "2 frames, 6 people, 2 images (blurred-heads)" in out
     code, out, _ = _run(capsys, "packet", "show", packet, "--json")
     assert code == 0 and json.loads(out)["frames"] == [100, 107]
@@ -67,11 +68,34 @@ def _one_line(err: str) -> str:
     return lines[0]
 
 
+def test_blurred_images_of_frames_without_maps_need_the_risk_accepted(folder, tmp_path, capsys):
+    """Issue 17: without maps only the face detector looks for people the labels miss; one
+    line per frame, then a refusal that writes nothing, unless --accept-risk."""
+    packet = tmp_path / "p.zip"
+    code, _, err = _run(capsys, "packet", "export", folder, "--frames", "100,107", "--out",
+                        packet, "-q")
+    lines = err.strip().splitlines()
+    assert code == 2 and not packet.exists() and len(lines) == 3
+    assert lines[:2] == [f"posewright: warning: frame {f}: people the labels miss may be "
+                         "unblurred: no maps" for f in (100, 107)]
+    assert "2 frames may show people unblurred; nothing written" in lines[2]
+    assert "--accept-risk" in lines[2]
+    code, _, err = _run(capsys, "packet", "export", folder, "--frames", "100", "--out", packet,
+                        "--images", "blurred-people", "--accept-risk", "-q")
+    assert code == 0 and "frame 100: people the labels miss" in err
+    code, out, _ = _run(capsys, "packet", "show", packet, "--json")
+    info = json.loads(out)
+    assert code == 0 and info["images"] == "blurred-people"
+    assert info["blurred_regions"]["labels"] >= 1 and info["blurred_regions"]["maps"] == 0
+    assert info["blur_risks"] == ["frame 100: people the labels miss may be unblurred: no maps"]
+    assert 0 < info["blurred_share"] < 1
+
+
 def test_a_hostile_returned_packet_is_refused_in_one_line_and_nothing_changes(folder, tmp_path,
                                                                               capsys):
     packet = tmp_path / "p.zip"
     assert _run(capsys, "packet", "export", folder, "--frames", "untouched", "--out",
-                packet)[0] == 0
+                packet, "--images", "none")[0] == 0
     assert _run(capsys, "packet", "return", packet, "--author", "bea")[0] == 0
     returned = tmp_path / "p-returned.zip"
     bad = rewrite(returned, tmp_path / "evil.zip", lambda n, d: d,
@@ -107,7 +131,8 @@ def test_bad_input_is_one_line_status_2(folder, tmp_path, capsys, argv, words):
 
 def test_an_unknown_decision_is_refused(folder, tmp_path, capsys):
     packet = tmp_path / "p.zip"
-    assert _run(capsys, "packet", "export", folder, "--frames", "100", "--out", packet)[0] == 0
+    assert _run(capsys, "packet", "export", folder, "--frames", "100", "--out", packet,
+                "--images", "none")[0] == 0
     code, _, err = _run(capsys, "packet", "decide", packet, "--frame", 100, "--decision", "meh")
     assert code == 2 and "unknown decision 'meh'" in _one_line(err)
 

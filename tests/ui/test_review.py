@@ -57,7 +57,7 @@ def dispute(qtbot, window, ui_project, tmp_path, monkeypatch):
     b = person_id(window, 2)
     start = _kp(ui_project, fid, b)
     packet = tmp_path / "to-bea.zip"
-    export_packet(ui_project, packet, [ui_project.frame(fid)], reviewer="bea")
+    export_packet(ui_project, packet, [ui_project.frame(fid)], reviewer="bea", images="none")
     with open_packet(packet, reviewer="bea") as reviewed:
         for j, (dx, dy) in THEIRS.items():
             reviewed.apply(MoveJoint(fid, b, j, start[j, 0] + dx, start[j, 1] + dy))
@@ -150,7 +150,7 @@ def test_a_person_the_reviewer_deleted_is_taken_whole(qtbot, window, ui_project,
     fid = window.frame_id
     c = person_id(window, 3)
     packet = tmp_path / "to-bea.zip"
-    export_packet(ui_project, packet, [ui_project.frame(fid)], reviewer="bea")
+    export_packet(ui_project, packet, [ui_project.frame(fid)], reviewer="bea", images="none")
     with open_packet(packet, reviewer="bea") as reviewed:
         reviewed.apply(DeletePerson(fid, c))
         returned = return_packet(reviewed)
@@ -193,6 +193,33 @@ def test_send_frames_for_review_from_the_project_menu(qtbot, window, ui_project,
     qtbot.waitUntil(lambda: "wrote" in window.status_log, timeout=WAIT_MS)
     packet = read_packet(out)
     assert [f.id for f in packet.frames] == [window.frame_id] and packet.reviewer == "bea"
+    _close_boxes(window)
+
+
+def test_the_send_form_warns_of_frames_without_maps_and_sends_blurred_only_if_accepted(
+        qtbot, window, ui_project, tmp_path):
+    """Issue 17: without maps the labels are all that places a blur (with the face
+    detector); the form shows the command line's lines and needs "Send anyway"."""
+    out = tmp_path / "blurred.zip"
+    _press(window.canvas, "export_packet")
+    dialog = window.findChild(QDialog, "PacketDialog")
+    dialog.frames.setCurrentIndex(dialog.frames.findData("this"))
+    dialog.images.setCurrentIndex(dialog.images.findData("blurred-heads"))
+    line = f"frame {window.frame_id}: people the labels miss may be unblurred: no maps"
+    assert dialog.risk_lines == [line] and line in dialog.warning.text()
+    assert dialog.warning.isVisible() and dialog.accept_risk.isVisible()
+    dialog.out.set_text(str(out))
+    dialog.accept()
+    assert dialog.isVisible() and "may show people unblurred" in dialog.problem.text()
+    dialog.images.setCurrentIndex(dialog.images.findData("none"))
+    assert not dialog.warning.isVisible()
+    dialog.images.setCurrentIndex(dialog.images.findData("blurred-heads"))
+    dialog.accept_risk.setChecked(True)
+    dialog.accept()
+    qtbot.waitUntil(out.exists, timeout=WAIT_MS)
+    qtbot.waitUntil(lambda: "wrote" in window.status_log, timeout=WAIT_MS)
+    frame, = read_packet(out).manifest["frames"]
+    assert frame["blur"]["risk"] == line.split(": ", 1)[1]
     _close_boxes(window)
 
 

@@ -20,6 +20,7 @@ import numpy as np
 
 from app.analysis.anthropometry import (
     LANDMARK_HEIGHTS,
+    SEGMENT_FRACTIONS,
     person_scale,
     reach_matrix,
 )
@@ -312,11 +313,17 @@ def upright_body(pid: int, kp: np.ndarray, skeleton: Skeleton, scale: float) -> 
     shoulder y) / (0.779 * scale)``, image y down; bent knees, a lifted leg and a camera far
     above shorten it, which is why it counts only from ``SPAN_FROM`` (0.82, sure at 0.65).
     Much shorter, the legs are usually those of a person farther away (smaller in the image)
-    whom the grouping joined to this torso. ``tilt = |x(hip centre) - x(shoulder centre)| /
+    whom the grouping joined to this torso. Such legs are small in every segment, while a
+    posture that shortens the span (sitting, with the thighs pointing at the camera; bent
+    knees; a raised leg) leaves at least one segment near its full length: a projection only
+    shortens, so a thigh or shank that reaches ``legs`` of this body's length belongs to a
+    body at least that large. The strength is therefore the smaller of ``span`` and ``legs``
+    (the longest labelled thigh or shank over its length at this scale) ramped alike; without
+    a labelled knee, ``span`` alone. ``tilt = |x(hip centre) - x(shoulder centre)| /
     scale`` ramped from ``TILT_FROM`` (0.05) to ``TILT_SURE`` (0.2): a torso leaning sideways
     by more than a few degrees is rare in a standing crowd, and hips beside the shoulders are
-    usually a neighbour's. Both assume people stand upright in the image, as in a dance,
-    sports or street crowd; they mislead on people lying, sitting or bending sideways.
+    usually a neighbour's. The tilt assumes people stand or sit upright in the image, as in a
+    dance, a choir, a sports or street crowd; it misleads on people lying or bending sideways.
 
     References
     ----------
@@ -327,10 +334,14 @@ def upright_body(pid: int, kp: np.ndarray, skeleton: Skeleton, scale: float) -> 
     >>> from app.model.skeleton import coco_body
     >>> sk = coco_body()
     >>> kp = np.zeros((17, 3)); kp[:, 2] = 2
-    >>> kp[[5, 6, 11, 12, 15, 16], :2] = [[110, 100], [90, 100], [108, 129], [92, 129],
-    ...                                    [108, 150], [92, 150]]   # ankles far too high
+    >>> kp[[5, 6, 11, 12, 13, 14, 15, 16], :2] = [[110, 100], [90, 100], [108, 129],
+    ...     [92, 129], [108, 140], [92, 140], [108, 150], [92, 150]]   # small legs
     >>> [(r.kind, round(r.strength, 2)) for r in upright_body(1, kp, sk, 100.0)]
     [('short-legs', 1.0)]
+    >>> kp[[13, 14], :2] = [[108, 133], [92, 133]]    # seated: thighs at the camera, shanks full
+    >>> kp[[15, 16], 1] = 158
+    >>> upright_body(1, kp, sk, 100.0)
+    []
     """
     if not (np.isfinite(scale) and scale > 0):
         return []
@@ -343,6 +354,9 @@ def upright_body(pid: int, kp: np.ndarray, skeleton: Skeleton, scale: float) -> 
     if top is not None and bottom is not None:
         span = float(bottom[1] - top[1]) / (_SHOULDER_TO_ANKLE * scale)
         strength = ramp(span, SPAN_FROM, SPAN_SURE)
+        legs = _leg_size(kp, skeleton)
+        if np.isfinite(legs):
+            strength = min(strength, ramp(legs / scale, SPAN_FROM, SPAN_SURE))
         if strength > 0:
             joints = [j for pair in shoulders + ankles for j in pair if kp[j, 2] > 0]
             out.append(make_reason("short-legs",
@@ -359,6 +373,23 @@ def upright_body(pid: int, kp: np.ndarray, skeleton: Skeleton, scale: float) -> 
                                f"the hips sit {tilt:.2f} of a body height beside the shoulders",
                                pid, shoulders[0] + hips[0], strength))
     return out
+
+
+def _leg_size(kp: np.ndarray, skeleton: Skeleton) -> float:
+    """The stature in pixels that the longest labelled thigh or shank implies (its length over
+    its fraction of stature), NaN without one."""
+    best = float("nan")
+    names = skeleton.joints
+    for parent, child in (("hip", "knee"), ("knee", "ankle")):
+        pairs = pair_index(skeleton, parent, child)
+        if len(pairs) != 2:
+            continue
+        for a, b in zip(*pairs):
+            fraction = SEGMENT_FRACTIONS.get(frozenset((names[a], names[b])))
+            if fraction and kp[a, 2] > 0 and kp[b, 2] > 0:
+                size = float(np.hypot(*(kp[a, :2] - kp[b, :2]))) / fraction
+                best = size if not best >= size else best
+    return best
 
 
 def feet_y(kp: np.ndarray, skeleton: Skeleton) -> float:

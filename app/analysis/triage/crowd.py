@@ -1,8 +1,9 @@
 """Crowd checks: one person against the others of the frame.
 
-People in a crowd stand on one floor (a person's size in the image follows from where their
-feet stand), are not found twice, are not cut in two, and the frame as a whole is more or
-less crowded. Each check returns :class:`~app.analysis.triage.combine.Reason` records.
+People in a crowd often stand on one floor (a person's size in the image then follows from
+where their feet stand; when it does not, the floor is not used), are not found twice, are
+not cut in two, and the frame as a whole is more or less crowded. Each check returns
+:class:`~app.analysis.triage.combine.Reason` records.
 
 References
 ----------
@@ -33,6 +34,10 @@ DUPLICATE_FROM, DUPLICATE_SURE = 0.10, 0.04
 #: the floor is fitted when at least ``GROUND_PEOPLE`` people show torso and ankles.
 GROUND_FROM, GROUND_SURE = 0.2, 0.5
 GROUND_PEOPLE = 5
+#: One floor: the fitted floor must put at least this share of the people it was fitted on
+#: within ``GROUND_FROM`` of their size; fewer, and they do not stand on one floor (risers,
+#: a stage, stairs, people seated and standing), and the floor is not used.
+GROUND_AGREE = 0.75
 
 
 def ground_line(feet_y: np.ndarray, scales: np.ndarray) -> tuple[float, float] | None:
@@ -48,8 +53,9 @@ def ground_line(feet_y: np.ndarray, scales: np.ndarray) -> tuple[float, float] |
     Returns
     -------
     tuple of float or None
-        ``(slope, intercept)``; None with fewer than ``GROUND_PEOPLE`` usable people or a
-        slope that is not positive (people nearer the camera stand lower and look larger).
+        ``(slope, intercept)``; None with fewer than ``GROUND_PEOPLE`` usable people, a
+        slope that is not positive (people nearer the camera stand lower and look larger), or
+        people who do not stand on one floor.
 
     Notes
     -----
@@ -59,6 +65,13 @@ def ground_line(feet_y: np.ndarray, scales: np.ndarray) -> tuple[float, float] |
     fitted with the Theil-Sen estimator (slope: the median of the pairwise slopes; intercept:
     the median of ``scale - slope * feet_y``; ``scipy.stats.theilslopes(..., method="joint")``),
     which a minority of wrongly labelled people cannot pull.
+
+    The line stands for one floor only if it explains most people: a wrong label is the
+    exception, so when fewer than ``GROUND_AGREE`` (3/4) of the people lie within
+    ``GROUND_FROM`` of it (``|ln(scale / (slope feet_y + intercept))|``), they stand on
+    several floor levels (risers, a stage, stairs) or do not stand at all (seated), and no
+    floor is returned: :func:`off_ground` then says nothing rather than flag the people of
+    every level but one.
 
     References
     ----------
@@ -73,12 +86,20 @@ def ground_line(feet_y: np.ndarray, scales: np.ndarray) -> tuple[float, float] |
     >>> scales[2] = 500.0                                 # one outlier
     >>> [round(v, 2) for v in ground_line(feet, scales)]
     [0.8, -160.0]
+    >>> risers = np.concatenate([scales[:3], 1.6 * scales[3:]])   # half of them a step up
+    >>> ground_line(feet, risers) is None
+    True
     """
     ok = np.isfinite(feet_y) & np.isfinite(scales)
     if ok.sum() < GROUND_PEOPLE:
         return None
     slope, intercept, _, _ = theilslopes(scales[ok], feet_y[ok], method="joint")
     if not slope > 0:
+        return None
+    expected = slope * feet_y[ok] + intercept
+    with np.errstate(divide="ignore", invalid="ignore"):
+        agree = np.abs(np.log(scales[ok] / expected)) <= GROUND_FROM
+    if np.mean(agree & (expected > 0)) < GROUND_AGREE:
         return None
     return float(slope), float(intercept)
 

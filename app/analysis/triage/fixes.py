@@ -95,9 +95,11 @@ UNLABEL_COST = 0.75
 LINK_SLACK = 1.3
 #: Duplicate: two people whose like joints scatter about one shift by less than
 #: ``SHAPE_FROM`` of stature (sure at ``SHAPE_SURE``) are one body found twice; the farther
-#: apart the two, the less sure (people of a crowd moving alike look alike): the shift counts
-#: fully up to ``NEAR_SURE`` of stature and not at all from ``DUPLICATE_FROM``.
-DUPLICATE_FROM, NEAR_SURE = 0.45, 0.2
+#: apart the two, the less sure (people of a crowd moving or standing alike look alike): the
+#: shift counts fully up to ``NEAR_SURE`` of stature and not at all from ``DUPLICATE_FROM``,
+#: a shoulder width (0.259 of stature, Drillis and Contini via Winter, from memory): two
+#: bodies side by side stand at least that far apart, so alike at that shift they are two.
+DUPLICATE_FROM, NEAR_SURE = 0.26, 0.2
 SHAPE_FROM, SHAPE_SURE = 0.012, 0.004
 #: Mirrored: the face's median score over the ears' and shoulders' counts from ``FACE_FROM``
 #: and is sure at ``FACE_SURE``; the faintest of the ears and shoulders over the brightest
@@ -369,8 +371,9 @@ def duplicates(view: FrameView) -> list[Proposal]:
     ``d_j`` from ``shift``, over the larger stature; ``near``: the median ``|d_j|`` over the
     larger stature. Strength: ``residual`` ramped from ``SHAPE_FROM`` (0.012) to
     ``SHAPE_SURE`` (0.004; a network's jitter on a joint is about 1 % of stature), times
-    ``near`` ramped from ``DUPLICATE_FROM`` (0.45) to ``NEAR_SURE`` (0.2): far apart, two
-    people of a crowd that moves alike look alike. The copy is the one with fewer labelled
+    ``near`` ramped from ``DUPLICATE_FROM`` (0.26, a shoulder width: neighbours side by side
+    stand at least that far apart) to ``NEAR_SURE`` (0.2): far apart, two people of a crowd
+    that moves or stands alike look alike. The copy is the one with fewer labelled
     joints (the other carries more of the body); of two as complete, the one the model scored
     lower on the shared joints. Fix: give the keeper the joints only the copy has, carried
     over by the shift (where they fit the keeper's body), and delete the copy. Common

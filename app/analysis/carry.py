@@ -1,0 +1,388 @@
+"""Carry a correction forward: propose the same correction on the frames around it where the
+same people show the same error.
+
+A model's errors in a crowd persist: the same two dancers' wrists stay swapped while they stay
+tangled. After a correction in frame ``t`` (its changes, as the ledger records them), the
+people it touched are followed along their tracks to frame ``t + 1``; when their joints there
+stand where the corrected joints stood before the correction (moved along with each body),
+the error is the same, and the same correction is proposed there; then on to ``t + 2``, and so
+on, stopping at the first frame where the error is absent. The same runs backwards from
+``t - 1``. What is proposed is one batch, for the annotator to take, trim or leave with one
+key (:meth:`app.store.project.Project.apply_batch` applies it as one undo step).
+
+Each changed joint ``(P, j)`` of the correction is one of
+
+- a *copy*: its new value is the old value of a joint ``(Q, k)`` the correction also changed
+  (a joint given to its owner, a side swap): carried as "``P'`` takes ``Q'``'s joint ``k``
+  as it is in that frame" (``P'``, ``Q'`` the same tracks' people there);
+- a *visibility* change where it stands: carried as the same visibility;
+- a *move* to a new place: carried to that place moved along with ``P``'s body;
+- a person deleted: carried as deleting the same track's person.
+
+The error is present in a frame when every changed joint of ``P'`` (and every copied-from
+joint of ``Q'``) lies within :data:`TOLERANCE` of a body of where it stood before the
+correction, moved along with its body, is labelled as it was and, for a joint that got a new
+place, lies nearer its old place than its new one. An exchange of :data:`WHOLE` joints or more
+(a side swap) is judged on the mean of its joints' offsets instead, so that one joint near the
+middle of the body, where both sides are close, does not decide for all. A body's move from one
+frame to the next is the median over its joints of their displacement, taking each changed
+joint where it stood before the correction.
+
+Examples
+--------
+A wrist given to its owner in frame 2 of four frames (synthetic): the same two tracks hold
+the same mistake in frame 3 but not in frame 4, and frame 1 was already right.
+
+>>> import numpy as np
+>>> from app.model.edits import ReassignJoint
+>>> from app.model.labels import FrameLabels, Person
+>>> from app.model.skeleton import coco_body
+>>> def person(pid, track, x, wrist):
+...     kp = np.zeros((17, 3)); kp[:, 0] = x + np.arange(17); kp[:, 1] = 100 + 8 * np.arange(17)
+...     kp[:, 2] = 2; kp[9, :2] = wrist
+...     return Person(pid, kp, np.full(17, np.nan), ("auto",) * 17, track=track)
+>>> def frame(f, a_wrist, b_wrist):
+...     x = 10.0 * f
+...     return FrameLabels(f, coco_body(), {10 * f: person(10 * f, 1, x, a_wrist(x)),
+...                                        10 * f + 1: person(10 * f + 1, 2, x + 200, b_wrist(x))})
+>>> own, other = (lambda x: (x + 9, 172)), (lambda x: (x + 209, 172))
+>>> frames = [frame(1, own, other), frame(2, other, own), frame(3, other, own),
+...           frame(4, own, other)]
+>>> after, changes = ReassignJoint(2, 20, 9, 21).apply(frames[1])
+>>> frames[1] = after
+>>> batch = carry_changes(changes, frames, 1)
+>>> [e.frame_id for e in batch.edits], batch.last_forward, batch.stopped_forward
+([3], 3, 4)
+>>> batch.stopped_backward
+1
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from app.errors import EditRefused
+from app.model.edits import (
+    Change,
+    DeletePerson,
+    Edit,
+    EditGroup,
+    MoveJoint,
+    SetVisibility,
+    apply_changes,
+)
+from app.model.labels import FrameLabels, Person
+from app.model.targets import JointTarget, PersonTarget
+
+#: A carried joint must stand within this share of its body's size of where the corrected
+#: joint stood, moved along with the body (common practice for "the same place" on a body is
+#: a tenth of its size; chosen on the demo's calibration seeds 1-3).
+TOLERANCE = 0.1
+#: The most frames a correction is carried in each direction.
+MAX_FRAMES = 50
+#: An exchange of at least this many joints is judged as a whole (their mean offsets).
+WHOLE = 4
+
+
+@dataclass(frozen=True)
+class CarriedBatch:
+    """What carrying one correction proposes.
+
+    Attributes
+    ----------
+    origin
+        The frame of the correction.
+    edits
+        One :class:`~app.model.edits.EditGroup` per frame the error is carried to, backward
+        frames (nearest first) then forward frames (nearest first).
+    last_forward, last_backward
+        The last frame carried to in each direction (None when none).
+    stopped_forward, stopped_backward
+        The first frame in each direction where the error is absent (None when the
+        sequence, or the track, ended first): where the batch ends.
+    """
+
+    origin: int
+    edits: tuple[EditGroup, ...]
+    last_forward: int | None
+    last_backward: int | None
+    stopped_forward: int | None
+    stopped_backward: int | None
+
+    def until(self, frame_id: int | None) -> CarriedBatch:
+        """The batch trimmed to the frames up to ``frame_id`` in each direction (None: the
+        whole batch); what taking it only so far proposes."""
+        if frame_id is None:
+            return self
+        ids = [e.frame_id for e in self.edits]
+        if frame_id not in ids:
+            return self
+        keep_to = ids.index(frame_id)
+        # Backward groups come first: trimming at a forward frame keeps every backward one.
+        backward = [e for e in self.edits if e.frame_id in self._backward_ids()]
+        forward = [e for e in self.edits if e not in backward]
+        if self.edits[keep_to] in backward:
+            backward = backward[:backward.index(self.edits[keep_to]) + 1]
+        else:
+            forward = forward[:forward.index(self.edits[keep_to]) + 1]
+        return CarriedBatch(self.origin, tuple(backward + forward),
+                            forward[-1].frame_id if forward else None,
+                            backward[-1].frame_id if backward else None,
+                            self.stopped_forward, self.stopped_backward)
+
+    def _backward_ids(self) -> set[int]:
+        ids = [e.frame_id for e in self.edits]
+        if self.last_backward is None:
+            return set()
+        return set(ids[:ids.index(self.last_backward) + 1])
+
+
+@dataclass(frozen=True)
+class _Step:
+    """One changed joint: ``kind`` is copy, visibility or move."""
+
+    person: int
+    joint: int
+    kind: str
+    before: tuple[float, float, int]
+    after: tuple[float, float, int]
+    source: tuple[int, int] | None = None
+
+
+def _xyv(value: Any) -> tuple[float, float, int]:
+    x, y, v = value[0], value[1], value[2]
+    return (np.nan if x is None else float(x), np.nan if y is None else float(y), int(v))
+
+
+def _plan(changes: Sequence[Change]) -> tuple[list[_Step], list[int]] | None:
+    """The correction as steps and deleted people; None when it cannot be carried (it makes
+    a person, changes notes or regions only...)."""
+    joints: dict[tuple[int, int], tuple[Any, Any]] = {}
+    deleted = []
+    for ch in changes:
+        t = ch.target
+        if isinstance(t, JointTarget):
+            first = joints.get((t.person, t.joint), (ch.before, ch.after))[0]
+            joints[(t.person, t.joint)] = (first, ch.after)
+        elif isinstance(t, PersonTarget):
+            if ch.after is not None:
+                return None
+            deleted.append(t.person)
+    steps = []
+    olds = {key: _xyv(b) for key, (b, _) in joints.items()}
+    for (pid, j), (b, a) in joints.items():
+        before, after = _xyv(b), _xyv(a)
+        same_place = _close(before[:2], after[:2])
+        source = None
+        if not same_place:
+            source = next((key for key, old in olds.items() if key != (pid, j)
+                           and _close(old[:2], after[:2])), None)
+        kind = "visibility" if same_place else "copy" if source is not None else "move"
+        steps.append(_Step(pid, j, kind, before, after, source))
+    if not steps and not deleted:
+        return None
+    return steps, deleted
+
+
+def _close(a: Sequence[float], b: Sequence[float]) -> bool:
+    if any(np.isnan(v) for v in (*a, *b)):
+        return all(np.isnan(v) for v in (*a, *b))
+    return bool(np.hypot(a[0] - b[0], a[1] - b[1]) < 1e-6)
+
+
+def _size(kp: np.ndarray) -> float:
+    on = (kp[:, 2] > 0) & np.isfinite(kp[:, :2]).all(axis=1)
+    if on.sum() < 2:
+        return 0.0
+    return float((kp[on, :2].max(axis=0) - kp[on, :2].min(axis=0)).max())
+
+
+def _motion(a: np.ndarray, b: np.ndarray, skip: set[int]) -> np.ndarray | None:
+    both = (a[:, 2] > 0) & (b[:, 2] > 0) & np.isfinite(a[:, :2]).all(axis=1) \
+        & np.isfinite(b[:, :2]).all(axis=1)
+    for j in skip:
+        both[j] = False
+    if both.sum() < 2:
+        return None
+    return np.median(b[both, :2] - a[both, :2], axis=0)
+
+
+def _by_track(labels: FrameLabels) -> dict[int, Person]:
+    return {p.track: p for p in labels.people.values() if p.track is not None}
+
+
+def _carry_once(steps: list[_Step], deleted: list[int], before: FrameLabels,
+                after: FrameLabels, there: FrameLabels) -> tuple[list[Edit], list[_Step],
+                                                                  list[int]] | None:
+    """The correction's edits in ``there`` when it shows the same error, with the steps and
+    deletions as they are there (for carrying on); None when the error is absent."""
+    people = _by_track(there)
+    who: dict[int, Person] = {}
+    for pid in {s.person for s in steps} | {s.source[0] for s in steps if s.source} \
+            | set(deleted):
+        known = after.people.get(pid) or before.people.get(pid)
+        found = None if known is None or known.track is None else people.get(known.track)
+        if found is None:
+            return None
+        who[pid] = found
+    changed: dict[int, set[int]] = {}
+    for s in steps:
+        changed.setdefault(s.person, set()).add(s.joint)
+        if s.source:
+            changed.setdefault(s.source[0], set()).add(s.source[1])
+    motion = {}
+    for pid, p in who.items():
+        # Where each joint was: as corrected where the correction left it alone, as it was
+        # before the correction where it changed it (the error, if it persists, is there).
+        ref = (after.people.get(pid) or before.people[pid]).keypoints.copy()
+        mine = sorted(changed.get(pid, set()))
+        if mine and pid in before.people:
+            ref[mine] = before.people[pid].keypoints[mine]
+        u = _motion(ref, p.keypoints, set())
+        size = _size(before.people[pid].keypoints) if pid in before.people else 0.0
+        if u is None or size <= 0:
+            return None
+        motion[pid] = (u, size)
+
+    def stands(pid: int, j: int, old: tuple[float, float, int],
+               new: tuple[float, float, int] | None = None) -> bool:
+        """Joint ``j`` of ``pid``'s person there stands where ``old`` stood (moved with the
+        body), labelled as it was, and nearer there than where ``new`` stands."""
+        p = who[pid]
+        x, y, v = p.keypoints[j]
+        if (v > 0) != (old[2] > 0):
+            return False
+        if old[2] <= 0:
+            return True
+        u, size = motion[pid]
+        off = np.hypot(x - old[0] - u[0], y - old[1] - u[1])
+        if off > TOLERANCE * size:
+            return False
+        if new is None or not np.isfinite(new[0]) or new[2] <= 0:
+            return True
+        return bool(off < np.hypot(x - new[0] - u[0], y - new[1] - u[1]))
+
+    olds = {(s.person, s.joint): s.before for s in steps}
+    copies = [s for s in steps if s.kind == "copy"]
+    if len(copies) >= WHOLE:
+        # Many joints exchanged at once (a side swap, a chain given over): judged together,
+        # so that one joint near the body's middle does not decide for all.
+        if not _stand_together(copies, who, motion):
+            return None
+        steps_alone = [s for s in steps if s.kind != "copy"]
+    else:
+        steps_alone = steps
+    for s in steps_alone:
+        if not stands(s.person, s.joint, s.before,
+                      s.after if s.kind in ("move", "copy") else None):
+            return None
+        if s.source and not stands(s.source[0], s.source[1], olds[s.source]):
+            return None
+    edits: list[Edit] = []
+    new_steps = []
+    for s in steps:
+        p = who[s.person]
+        x, y, v = (float(c) for c in p.keypoints[s.joint])
+        if s.kind == "copy" and s.source is not None:
+            q = who[s.source[0]]
+            nx, ny = (float(c) for c in q.keypoints[s.source[1], :2])
+        elif s.kind == "move":
+            u, _ = motion[s.person]
+            nx, ny = s.after[0] + float(u[0]), s.after[1] + float(u[1])
+        else:
+            nx, ny = x, y
+        nv = s.after[2]
+        if np.isfinite(nx) and np.isfinite(ny) and not (nx == x and ny == y):
+            edits.append(MoveJoint(there.frame_id, p.id, s.joint, nx, ny))
+        if nv != int(v) or (nv > 0 and int(v) == 0):
+            edits.append(SetVisibility(there.frame_id, p.id, s.joint, nv))
+        source = None if s.source is None else (who[s.source[0]].id, s.source[1])
+        new_steps.append(_Step(p.id, s.joint, s.kind, (x, y, int(v)), (nx, ny, nv), source))
+    for pid in deleted:
+        edits.append(DeletePerson(there.frame_id, who[pid].id))
+    return edits, new_steps, [who[pid].id for pid in deleted]
+
+
+def _stand_together(copies: Sequence[_Step], who: dict[int, Person],
+                    motion: dict[int, tuple[np.ndarray, float]]) -> bool:
+    """Whether the joints of an exchange of many joints stand, on average, within
+    :data:`TOLERANCE` of where they stood before it and nearer there than where it put them
+    (joints labelled on one side only are left out)."""
+    old_off, new_off = [], []
+    for s in copies:
+        x, y, v = who[s.person].keypoints[s.joint]
+        if v <= 0 or s.before[2] <= 0 or not np.isfinite(s.after[0]):
+            continue
+        u, size = motion[s.person]
+        old_off.append(np.hypot(x - s.before[0] - u[0], y - s.before[1] - u[1]) / size)
+        new_off.append(np.hypot(x - s.after[0] - u[0], y - s.after[1] - u[1]) / size)
+    if len(old_off) < WHOLE // 2:
+        return False
+    return bool(np.mean(old_off) <= TOLERANCE and np.mean(old_off) < np.mean(new_off))
+
+
+def carry_changes(changes: Sequence[Change], frames: Sequence[FrameLabels], at: int,
+                  max_frames: int = MAX_FRAMES) -> CarriedBatch:
+    """Carry a correction of ``frames[at]`` to the frames around it that show the same error.
+
+    Parameters
+    ----------
+    changes
+        The correction's changes in ``frames[at]`` (an :class:`~app.store.ledger.Applied`'s
+        changes, or one ledger group's entries of that frame), in order.
+    frames
+        A sequence's frames, in order, as they are now: ``frames[at]`` after the correction,
+        every person that has a track carrying it (:attr:`app.model.labels.Person.track`).
+    at
+        The index of the corrected frame.
+    max_frames
+        The most frames carried to in each direction.
+
+    Returns
+    -------
+    CarriedBatch
+        Empty when the correction cannot be carried (it makes a person, or touches people
+        without a track) or no frame around shows the same error.
+    """
+    origin = frames[at].frame_id
+    plan = _plan(changes)
+    empty = CarriedBatch(origin, (), None, None, None, None)
+    if plan is None:
+        return empty
+    undo = [c.inverted() for c in reversed(changes)]
+    start_before = apply_changes(frames[at], undo)
+    found: dict[int, tuple[list[EditGroup], int | None, int | None]] = {}
+    for step in (1, -1):
+        steps, deleted = plan
+        before, after = start_before, frames[at]
+        groups: list[EditGroup] = []
+        stopped = None
+        k = at + step
+        while 0 <= k < len(frames) and len(groups) < max_frames:
+            there = frames[k]
+            carried = _carry_once(steps, deleted, before, after, there)
+            if carried is None:
+                stopped = there.frame_id
+                break
+            edits, steps, deleted = carried
+            if not edits:
+                stopped = there.frame_id
+                break
+            group = EditGroup(there.frame_id, tuple(edits), "carried from frame "
+                              f"{origin}")
+            try:
+                new, _ = group.apply(there)
+            except EditRefused:  # a proposal that cannot apply there ends the batch
+                stopped = there.frame_id
+                break
+            groups.append(group)
+            before, after = there, new
+            k += step
+        found[step] = (groups, groups[-1].frame_id if groups else None, stopped)
+    back, last_back, stop_back = found[-1]
+    fwd, last_fwd, stop_fwd = found[1]
+    return CarriedBatch(origin, tuple(back + fwd), last_fwd, last_back, stop_fwd, stop_back)

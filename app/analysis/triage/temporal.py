@@ -1,0 +1,414 @@
+"""Findings over time: problems that show only when a track is followed across frames.
+
+Once the people of a sequence are linked into tracks (:mod:`app.analysis.tracks`), four
+problems show that no single frame reveals. Each becomes a :class:`~app.analysis.triage.
+findings.Finding` of the same form as a frame's findings, at the frame where it starts, with
+a proposed fix:
+
+``exchanged-tracks``
+    Two tracks exchange identities between two frames: each person of the later frame fits
+    where the *other* track was heading far better than where its own was. Fix: exchange the
+    two tracks back from that frame on (edits over every later frame of the sequence).
+``jumping-joint``
+    A joint jumps much further than the body moves and comes back in the next frame. Fix:
+    place it where the neighbouring frames put it (moved along with the body), or mark it
+    unlabeled when the neighbours do not agree on where that is.
+``missing-frames``
+    A track is missing in one or two frames between frames that have it. Fix: a new person
+    on that track, its joints interpolated from the neighbours, with the provenance
+    ``interpolated`` (:data:`app.model.edits.INTERPOLATED`) until someone checks them.
+``flipped-stretch``
+    Left and right flip for a few frames (at most :data:`MAX_FLIP`) and flip back. Fix: swap
+    the person's sides in every frame of the stretch.
+
+Fixes of the first and last kinds name more than one frame; the store applies them as one
+action (:meth:`app.store.project.Project.apply_batch`).
+
+Body motion from one frame to the next is the median over joints of their displacement (a
+joint given to a neighbour does not drag it along); a body's size is the longer side of the
+box round its labelled joints.
+
+Confidence: these kinds are not calibrated on the demo yet; their confidence is set by hand
+from their strength (:data:`CONFIDENCE`), chosen on the synthetic sequences of the tests, so
+that a clear case is proposed (at least 0.5) and a marginal one is listed without a fix only
+when its strength is low.
+
+References
+----------
+Object keypoint similarity as in the COCO keypoint evaluation (``pycocotools``); constant
+velocity prediction, as in the linking (:mod:`app.analysis.tracks`).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import itertools
+import json
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from app.analysis.similarity import oks_matrix
+from app.analysis.triage.findings import Finding, Fix, FixPreview, _labels, fingerprint, preview
+from app.model.edits import (
+    INTERPOLATED,
+    Edit,
+    MoveJoint,
+    NewPerson,
+    SetTrack,
+    SetVisibility,
+    SwapSides,
+)
+from app.model.naming import Names
+from app.model.skeleton import Skeleton
+
+#: The kinds of finding over time, in the order their fixes are accepted.
+TIME_KINDS: tuple[str, ...] = ("exchanged-tracks", "flipped-stretch", "missing-frames",
+                               "jumping-joint")
+#: Exchanged tracks: how much more the exchanged pairing must score than the kept one
+#: (summed OKS of the two people against the two tracks' predicted poses).
+EXCHANGE_GAIN = 0.4
+#: A jump: the joint's move against the body's, in and out, each at least this share of the
+#: body's size.
+JUMP = 0.2
+#: The neighbours agree on where a jumping joint belongs within this share of the body.
+AGREE = 0.08
+#: A flip: swapping sides brings the side joints closer to the frame before by at least this
+#: share of the body (mean over the side joints).
+FLIP = 0.05
+#: The longest stretch of flipped frames found (a longer one is likelier a turn).
+MAX_FLIP = 5
+#: The most frames a track may miss for the gap to be filled.
+MAX_MISSING = 2
+#: A person already in a missing frame where the interpolated one would go (OKS at least
+#: this) means the track is not missing there, only unlinked.
+PRESENT_OKS = 0.5
+#: Confidence by kind: ``(at strength 0, at strength 1)``, linear in between (set by hand).
+CONFIDENCE: dict[str, tuple[float, float]] = {
+    "exchanged-tracks": (0.55, 0.95), "flipped-stretch": (0.5, 0.9),
+    "missing-frames": (0.55, 0.8), "jumping-joint": (0.5, 0.9)}
+
+
+@dataclass(frozen=True)
+class TrackedFrame:
+    """One frame of a sequence: its people ``(K, 3)`` ``x, y, v`` by id (in the project's
+    order, which the tags follow) and each linked person's track."""
+
+    frame_id: int
+    people: Mapping[int, np.ndarray]
+    tracks: Mapping[int, int]
+    dismissed: frozenset[str] = field(default_factory=frozenset)
+
+
+def sequence_findings(frames: Sequence[TrackedFrame], skeleton: Skeleton,
+                      kinds: Iterable[str] | None = None) -> dict[int, list[Finding]]:
+    """The findings over time of one sequence, by the frame each is found at.
+
+    Parameters
+    ----------
+    frames
+        The sequence's frames in order.
+    skeleton
+        The project's skeleton (sigmas, flip pairs, joint names).
+    kinds
+        Only these kinds (default all of :data:`TIME_KINDS`).
+
+    Returns
+    -------
+    dict
+        Frame id -> its findings over time (frames without any are left out); a finding
+        dismissed in its frame is left out.
+    """
+    wanted = set(TIME_KINDS if kinds is None else kinds)
+    seq = _Sequence(frames, skeleton)
+    found: list[Finding] = []
+    if "exchanged-tracks" in wanted:
+        found += seq.exchanges()
+    flipped: set[tuple[int, int]] = set()
+    if "flipped-stretch" in wanted:
+        more, flipped = seq.flips()
+        found += more
+    if "missing-frames" in wanted:
+        found += seq.gaps()
+    if "jumping-joint" in wanted:
+        found += seq.jumps(flipped)
+    out: dict[int, list[Finding]] = {}
+    dismissed = {f.frame_id: f.dismissed for f in frames}
+    for f in found:
+        if f.fingerprint not in dismissed.get(f.frame_id, frozenset()):
+            out.setdefault(f.frame_id, []).append(f)
+    return out
+
+
+def _confidence(kind: str, strength: float) -> float:
+    lo, hi = CONFIDENCE[kind]
+    return round(lo + (hi - lo) * float(np.clip(strength, 0.0, 1.0)), 4)
+
+
+def _size(kp: np.ndarray) -> float:
+    on = (kp[:, 2] > 0) & np.isfinite(kp[:, :2]).all(axis=1)
+    if on.sum() < 2:
+        return 0.0
+    span = kp[on, :2].max(axis=0) - kp[on, :2].min(axis=0)
+    return float(span.max())
+
+
+def _motion(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Median displacement ``(2,)`` from ``a`` to ``b`` over joints labelled in both."""
+    both = (a[:, 2] > 0) & (b[:, 2] > 0)
+    if not both.any():
+        return np.zeros(2)
+    return np.median(b[both, :2] - a[both, :2], axis=0)
+
+
+class _Sequence:
+    def __init__(self, frames: Sequence[TrackedFrame], skeleton: Skeleton):
+        self.frames = list(frames)
+        self.skeleton = skeleton
+        self.sigmas = np.asarray(skeleton.sigmas, dtype=np.float64)
+        #: track -> {index in the sequence: person id}
+        self.tracks: dict[int, dict[int, int]] = {}
+        for i, f in enumerate(self.frames):
+            for pid, t in f.tracks.items():
+                if pid in f.people:
+                    self.tracks.setdefault(int(t), {})[i] = int(pid)
+
+    # ------------------------------------------------------------------ helpers
+
+    def kp(self, i: int, pid: int) -> np.ndarray:
+        return np.asarray(self.frames[i].people[pid], dtype=np.float64)
+
+    def finding(self, i: int, kind: str, pid: int | None, joints: Sequence[int], text: str,
+                evidence: Sequence[tuple[str, float]], strength: float, edits: Sequence[Edit],
+                people: Sequence[int], place: Any, summary: str) -> Finding:
+        frame = self.frames[i]
+        names = Names.of_frame(self.skeleton, frame.people)
+        arrays = {p: np.asarray(v, dtype=np.float64) for p, v in frame.people.items()}
+        here = [e for e in edits if e.frame_id == frame.frame_id]
+        effect = preview(_labels(frame.frame_id, self.skeleton, arrays, None), here) \
+            if here else FixPreview()
+        conf = _confidence(kind, strength)
+        fix = Fix(summary, tuple(edits), effect) if edits and conf >= 0.5 else None
+        touched = sorted({int(p) for p in people})
+        joints = [int(j) for j in joints]
+        key = json.dumps([frame.frame_id, kind, pid, joints, touched])
+        return Finding(
+            "F" + hashlib.sha256(key.encode()).hexdigest()[:10], frame.frame_id, kind, pid,
+            None if pid is None else names.tag(pid), tuple(int(j) for j in joints),
+            tuple(names.joint(j) for j in joints), text,
+            tuple((k, round(float(v), 4)) for k, v in evidence), round(float(strength), 4),
+            conf, fix, tuple(touched),
+            fingerprint(kind, arrays, [p for p in touched if p in arrays], [place, touched]))
+
+    def names(self, i: int) -> Names:
+        return Names.of_frame(self.skeleton, self.frames[i].people)
+
+    # ------------------------------------------------------------------ exchanged tracks
+
+    def exchanges(self) -> list[Finding]:
+        out = []
+        for i in range(1, len(self.frames)):
+            both = sorted(t for t, at in self.tracks.items() if i in at and i - 1 in at)
+            if len(both) < 2:
+                continue
+            predicted, actual, areas = [], [], []
+            for t in both:
+                at = self.tracks[t]
+                last = self.kp(i - 1, at[i - 1])
+                step = _motion(self.kp(i - 2, at[i - 2]), last) if i - 2 in at else np.zeros(2)
+                guess = last.copy()
+                guess[:, :2] += step
+                predicted.append(guess)
+                actual.append(self.kp(i, at[i]))
+                areas.append(max(_size(guess), 1.0) ** 2 * 0.5)
+            sim = oks_matrix(np.stack(actual), np.stack(predicted), np.array(areas),
+                             self.sigmas)  # [person of track a, track b's prediction]
+            keep = np.diag(sim)
+            gain = sim + sim.T - keep[:, None] - keep[None, :]
+            np.fill_diagonal(gain, -np.inf)
+            used: set[int] = set()
+            for flat in np.argsort(-gain, axis=None):
+                a, b = np.unravel_index(flat, gain.shape)
+                if a >= b or gain[a, b] < EXCHANGE_GAIN:
+                    if gain[a, b] < EXCHANGE_GAIN:
+                        break
+                    continue
+                if a in used or b in used or sim[a, b] <= keep[a] or sim[b, a] <= keep[b]:
+                    continue
+                used |= {int(a), int(b)}
+                out.append(self._exchange(i, both[a], both[b], float(gain[a, b]),
+                                          float(keep[a] + keep[b]),
+                                          float(sim[a, b] + sim[b, a])))
+        return out
+
+    def _exchange(self, i: int, ta: int, tb: int, gain: float, kept: float,
+                  exchanged: float) -> Finding:
+        swap = {ta: tb, tb: ta}
+        edits: list[Edit] = []
+        for t in (ta, tb):
+            for k, pid in sorted(self.tracks[t].items()):
+                if k >= i:
+                    edits.append(SetTrack(self.frames[k].frame_id, pid, swap[t]))
+        pa, pb = self.tracks[ta][i], self.tracks[tb][i]
+        names = self.names(i)
+        text = (f"{names.person(pa)} and {names.person(pb)} exchange tracks {ta} and {tb} "
+                f"here: each fits where the other track was heading (OKS {exchanged:.2f} in "
+                f"all against {kept:.2f} as linked)")
+        later = len({e.frame_id for e in edits})
+        return self.finding(
+            i, "exchanged-tracks", pa, (), text,
+            (("oks as linked", kept), ("oks exchanged", exchanged)),
+            min((gain - EXCHANGE_GAIN) / 1.0, 1.0), edits, (pa, pb),
+            [ta, tb], f"exchange tracks {ta} and {tb} from here on ({later} frames)")
+
+    # ------------------------------------------------------------------ flipped stretch
+
+    def flips(self) -> tuple[list[Finding], set[tuple[int, int]]]:
+        flip = np.asarray(self.skeleton.flip_index)
+        side = flip != np.arange(len(flip))
+        out, covered = [], set()
+        for t, at in sorted(self.tracks.items()):
+            idx = sorted(at)
+            rel: dict[int, float] = {}  # i -> how much better flipped against frame i - 1
+            for i in idx:
+                if i - 1 not in at:
+                    continue
+                prev, now = self.kp(i - 1, at[i - 1]), self.kp(i, at[i])
+                size = _size(now)
+                if size <= 0:
+                    continue
+                moved = now.copy()
+                moved[:, :2] -= _motion(prev, now)
+                flipped = moved[flip]
+                ok = side & (prev[:, 2] > 0) & (moved[:, 2] > 0) & (flipped[:, 2] > 0)
+                if ok.sum() < 4:
+                    continue
+                keep = np.linalg.norm(moved[ok, :2] - prev[ok, :2], axis=1).mean()
+                swap = np.linalg.norm(flipped[ok, :2] - prev[ok, :2], axis=1).mean()
+                rel[i] = (keep - swap) / size
+            starts = [i for i, r in rel.items() if r > FLIP]
+            for s in starts:
+                ends = [e for e in starts if s < e <= s + MAX_FLIP]
+                if not ends or any(k not in at for k in range(s - 1, ends[0] + 1)):
+                    continue
+                e = ends[0] - 1  # the stretch is s..e; frame e + 1 flips back
+                stretch = range(s, e + 1)
+                if any((t, k) in covered for k in stretch):
+                    continue
+                covered |= {(t, k) for k in stretch}
+                out.append(self._flip(t, s, e, rel[s], rel[e + 1]))
+        return out, covered
+
+    def _flip(self, t: int, s: int, e: int, into: float, back: float) -> Finding:
+        at = self.tracks[t]
+        pid = at[s]
+        edits = [SwapSides(self.frames[k].frame_id, at[k]) for k in range(s, e + 1)]
+        n = e - s + 1
+        names = self.names(s)
+        joints = [j for j, f in enumerate(self.skeleton.flip_index) if f != j]
+        text = (f"{names.person(pid)} (track {t}) has left and right flipped for "
+                f"{n} frame{'s' if n > 1 else ''} and back: swapped, the side joints lie "
+                f"{into:.2f} and {back:.2f} of a body nearer the frames around")
+        return self.finding(s, "flipped-stretch", pid, joints, text,
+                            (("nearer flipped in", into), ("nearer flipped back", back)),
+                            min(min(into, back) / (4 * FLIP), 1.0), edits,
+                            [at[k] for k in range(s, e + 1)], [t, n],
+                            f"swap the sides of track {t} in {n} frame{'s' if n > 1 else ''}")
+
+    # ------------------------------------------------------------------ missing frames
+
+    def gaps(self) -> list[Finding]:
+        out = []
+        for t, at in sorted(self.tracks.items()):
+            idx = sorted(at)
+            for i0, i1 in itertools.pairwise(idx):
+                if not 2 <= i1 - i0 <= MAX_MISSING + 1:
+                    continue
+                a, b = self.kp(i0, at[i0]), self.kp(i1, at[i1])
+                both = (a[:, 2] > 0) & (b[:, 2] > 0)
+                if both.sum() < 3:
+                    continue
+                for m in range(i0 + 1, i1):
+                    w = (m - i0) / (i1 - i0)
+                    kp = np.zeros_like(a)
+                    kp[:, :2] = np.nan
+                    kp[both, :2] = (1 - w) * a[both, :2] + w * b[both, :2]
+                    kp[both, 2] = np.minimum(a[both, 2], b[both, 2])
+                    if self._present(m, kp):
+                        continue
+                    out.append(self._gap(t, m, i0, i1, kp, int(both.sum())))
+        return out
+
+    def _present(self, m: int, kp: np.ndarray) -> bool:
+        people = self.frames[m].people
+        if not people:
+            return False
+        others = np.stack([np.asarray(p, dtype=np.float64) for p in people.values()])
+        area = np.array([max(_size(kp), 1.0) ** 2 * 0.5])
+        return bool(oks_matrix(others, kp[None], area, self.sigmas).max() >= PRESENT_OKS)
+
+    def _gap(self, t: int, m: int, i0: int, i1: int, kp: np.ndarray, joints: int) -> Finding:
+        f0, f1 = self.frames[i0].frame_id, self.frames[i1].frame_id
+        frame = self.frames[m].frame_id
+        rows = tuple((float(x), float(y), int(v)) if v > 0 else (float("nan"), float("nan"), 0)
+                     for x, y, v in kp)
+        edits = [NewPerson(frame, keypoints=rows, source=INTERPOLATED, track=t)]
+        text = (f"track {t} is missing here between frames {f0} and {f1}: a person "
+                f"interpolated from them ({joints} joints), to check")
+        missing = i1 - i0 - 1
+        return self.finding(m, "missing-frames", None, np.flatnonzero(kp[:, 2] > 0).tolist(),
+                            text, (("frames missing", missing), ("joints", joints)),
+                            joints / len(kp) * (1.0 if missing == 1 else 0.7), edits,
+                            (self.tracks[t][i0], self.tracks[t][i1]), [t, f0, f1],
+                            f"add track {t}'s person interpolated from frames {f0} and {f1}")
+
+    # ------------------------------------------------------------------ jumping joints
+
+    def jumps(self, skip: set[tuple[int, int]]) -> list[Finding]:
+        out = []
+        for t, at in sorted(self.tracks.items()):
+            for i in sorted(at):
+                if i - 1 not in at or i + 1 not in at or (t, i) in skip:
+                    continue
+                before, now, after = (self.kp(k, at[k]) for k in (i - 1, i, i + 1))
+                size = _size(now)
+                if size <= 0:
+                    continue
+                u_in, u_out = _motion(before, now), _motion(now, after)
+                on = (before[:, 2] > 0) & (now[:, 2] > 0) & (after[:, 2] > 0)
+                e_in = now[:, :2] - before[:, :2] - u_in
+                e_out = after[:, :2] - now[:, :2] - u_out
+                n_in, n_out = np.linalg.norm(e_in, axis=1), np.linalg.norm(e_out, axis=1)
+                back = -(e_in * e_out).sum(axis=1) / np.maximum(n_in * n_out, 1e-9)
+                jumped = on & (n_in > JUMP * size) & (n_out > JUMP * size) & (back > 0.5)
+                for j in np.flatnonzero(jumped).tolist():
+                    from_before = before[j, :2] + u_in
+                    from_after = after[j, :2] - u_out
+                    out.append(self._jump(t, i, j, size, float(min(n_in[j], n_out[j])),
+                                          from_before, from_after))
+        return out
+
+    def _jump(self, t: int, i: int, j: int, size: float, jump: float, from_before: np.ndarray,
+              from_after: np.ndarray) -> Finding:
+        pid = self.tracks[t][i]
+        frame = self.frames[i].frame_id
+        apart = float(np.linalg.norm(from_before - from_after)) / size
+        names = self.names(i)
+        joint = names.joint(j)
+        if apart <= AGREE:
+            x, y = (0.5 * (from_before + from_after)).tolist()
+            edits: list[Edit] = [MoveJoint(frame, pid, j, x, y)]
+            fix = f"place {names.person(pid)}'s {joint} where the frames around put it"
+        else:
+            edits = [SetVisibility(frame, pid, j, 0)]
+            fix = f"mark {names.person(pid)}'s {joint} unlabeled"
+        text = (f"{names.person(pid)}'s {joint} jumps {jump / size:.2f} of a body away from "
+                f"where the body moves and comes back; the frames around "
+                f"{'agree' if apart <= AGREE else 'do not agree'} where it is "
+                f"({apart:.2f} of a body apart)")
+        return self.finding(i, "jumping-joint", pid, (j,), text,
+                            (("jump", jump / size), ("neighbours apart", apart)),
+                            min((jump / size - JUMP) / (2 * JUMP), 1.0), edits, (pid,),
+                            [t, j], fix)

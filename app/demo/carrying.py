@@ -1,0 +1,323 @@
+"""How many annotator actions carrying corrections forward saves, measured on demo rehearsals.
+
+An annotator fixes every wrong labelled joint of a demo's auto-labels (wrong as
+:func:`app.demo.evaluate.judge_joints` judges it against the true poses), frame by frame in
+the order of the dance. The annotator is simulated by an *oracle* that knows the truth and
+takes one action at a time (:func:`next_action`), each one edit of the app:
+
+1. delete a labelled person that pairs with no true dancer (a duplicate, a fragment, a
+   phantom);
+2. swap a person's sides when that makes at least two of its wrong joints right;
+3. for a wrong joint of a person paired with a dancer: give it the joint of another person
+   that stands where the dancer's joint is and is wrong on that person (one
+   :class:`~app.model.edits.ReassignJoint`, which hands the wrong one back), else place it at
+   the dancer's joint, or mark it unlabeled when the dancer's joint is not labelled.
+
+*Frame by frame* counts every such action. *With carrying*, after each action the
+correction is carried forward (:func:`app.analysis.carry.carry_changes`, the people linked
+into tracks by :func:`app.analysis.tracks.link_tracks` first); the annotator looks at the
+batch and takes it as far as it helps (each carried frame's edits remove a wrong joint, add
+none and lose no correct one; the first frame where they do not is where the batch is
+trimmed), which is one more action, when it spans at least :data:`MIN_BATCH` frames (a batch
+of one frame spares nothing; it is left alone and the frame fixed when its turn comes). Frames
+later in the dance then start with fewer errors.
+
+``python -m app.demo.carrying --seeds 23-25 --shipped --cache /tmp/demos`` prints the table
+of the README's "Sequences" section.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from collections.abc import Sequence
+from dataclasses import asdict, dataclass, replace
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+from scipy.optimize import linear_sum_assignment
+
+from app.analysis.carry import carry_changes
+from app.analysis.similarity import oks_matrix
+from app.analysis.tracks import link_tracks
+from app.demo.evaluate import KS_CORRECT, judge_joints
+from app.model.edits import (
+    DeletePerson,
+    Edit,
+    EditGroup,
+    MoveJoint,
+    ReassignJoint,
+    SetVisibility,
+    SwapSides,
+)
+from app.model.labels import FrameLabels
+
+#: The most actions the oracle takes in one frame (a guard; the demo needs far fewer).
+MAX_ACTIONS = 400
+#: The fewest frames of a batch the annotator takes: a batch of one frame spares nothing.
+MIN_BATCH = 2
+
+
+def _judge(labels: FrameLabels, truth: np.ndarray, areas: np.ndarray) -> tuple[list[int],
+                                                                                np.ndarray]:
+    order = sorted(labels.people)
+    k = labels.num_joints
+    people = np.array([labels.people[p].keypoints for p in order]).reshape(-1, k, 3)
+    return order, judge_joints(people, truth, areas, labels.skeleton.sigma_array)
+
+
+def _pairs(labels: FrameLabels, order: list[int], truth: np.ndarray,
+           areas: np.ndarray) -> dict[int, int]:
+    """Labelled person -> true dancer (index), as :func:`judge_joints` pairs them."""
+    if not order or not len(truth):
+        return {}
+    k = labels.num_joints
+    kp = np.array([labels.people[p].keypoints for p in order]).reshape(-1, k, 3)
+    on = kp[:, :, 2] > 0
+    xy = np.where(on[:, :, None], kp[:, :, :2], np.nan)
+    sim = oks_matrix(np.concatenate([xy, kp[:, :, 2:]], axis=2), truth, areas,
+                     labels.skeleton.sigma_array)
+    rows, cols = linear_sum_assignment(np.where(sim > 0, sim, 0.0), maximize=True)
+    return {order[i]: int(j) for i, j in zip(rows.tolist(), cols.tolist()) if sim[i, j] > 0}
+
+
+def _ks(xy: np.ndarray, true_xy: np.ndarray, area: float, sigma: float) -> float:
+    d2 = float(((xy - true_xy) ** 2).sum())
+    return float(np.exp(-d2 / (2.0 * area * (2.0 * sigma) ** 2 + np.spacing(1))))
+
+
+def next_action(labels: FrameLabels, truth: np.ndarray, areas: np.ndarray) -> Edit | None:
+    """The oracle's next correction of one frame (see the module docstring), or None when
+    no labelled joint is wrong."""
+    order, verdict = _judge(labels, truth, areas)
+    wrong = {p: np.flatnonzero(verdict[n] == -1) for n, p in enumerate(order)}
+    if not any(len(w) for w in wrong.values()):
+        return None
+    pairs = _pairs(labels, order, truth, areas)
+    fid = labels.frame_id
+    for p in order:
+        if len(wrong[p]) and p not in pairs:
+            return DeletePerson(fid, p)
+    sig = labels.skeleton.sigma_array
+    for p in order:
+        if len(wrong[p]) >= 2:
+            swapped, _ = SwapSides(fid, p).apply(labels)
+            _, after = _judge(swapped, truth, areas)
+            if (verdict == -1).sum() - (after == -1).sum() >= 2:
+                return SwapSides(fid, p)
+    for p in order:
+        d = pairs[p]
+        given: dict[int, list[int]] = {}
+        for j in wrong[p].tolist():
+            if truth[d, j, 2] <= 0:
+                continue
+            for n, q in enumerate(order):
+                other = labels.people[q].keypoints[j]
+                if q != p and verdict[n, j] == -1 and _ks(other[:2], truth[d, j, :2], areas[d],
+                                                       sig[j]) >= KS_CORRECT:
+                    given.setdefault(q, []).append(j)
+                    break
+        if given:
+            q, joints = max(given.items(), key=lambda kv: (len(kv[1]), -kv[0]))
+            return _one(EditGroup(fid, tuple(ReassignJoint(fid, q, j, p) for j in joints)))
+        unseen = [j for j in wrong[p].tolist() if truth[d, j, 2] <= 0]
+        if unseen:
+            return _one(EditGroup(fid, tuple(SetVisibility(fid, p, j, 0) for j in unseen)))
+        for j in wrong[p].tolist():
+            x, y = (float(c) for c in truth[d, j, :2])
+            return MoveJoint(fid, p, j, x, y)
+    return None
+
+
+def _one(group: EditGroup) -> Edit:
+    return group.edits[0] if len(group.edits) == 1 else group
+
+
+@dataclass(frozen=True)
+class ActionCount:
+    """Actions to fix every wrong labelled joint of a demo, frame by frame and carrying."""
+
+    demo: str
+    wrong_before: int
+    frame_by_frame: int
+    carrying: int
+    corrections: int
+    batches: int
+    carried_frames: int
+    wrong_left_frame_by_frame: int
+    wrong_left_carrying: int
+    #: Frame-by-frame actions that repeat an action of the frame before on the same tracks
+    #: (the same gesture on the same joints): the most that carrying could spare.
+    repeated: int = 0
+
+    @property
+    def saved(self) -> float:
+        return 1.0 - self.carrying / max(self.frame_by_frame, 1)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {**asdict(self), "saved": round(self.saved, 4)}
+
+
+def _fix_frame(labels: FrameLabels, truth: np.ndarray,
+               areas: np.ndarray) -> tuple[FrameLabels, list[Any]]:
+    """The frame fixed by the oracle, and each action's gesture on tracks (:func:`_gesture`)."""
+    done = []
+    while len(done) < MAX_ACTIONS:
+        edit = next_action(labels, truth, areas)
+        if edit is None:
+            break
+        done.append(_gesture(edit, labels))
+        labels, _ = edit.apply(labels)
+    return labels, done
+
+
+def _gesture(edit: Edit, labels: FrameLabels) -> Any:
+    """What an action does, in terms that carry over frames: its kind, joints and tracks."""
+    if isinstance(edit, EditGroup):
+        return tuple(_gesture(e, labels) for e in edit.edits)
+    people = [getattr(edit, name) for name in ("person_id", "to_person_id")
+              if getattr(edit, name, None) is not None]
+    return (type(edit).__name__, getattr(edit, "joint", None),
+            tuple(labels.people[p].track for p in people))
+
+
+def _wrong(labels: FrameLabels, truth: np.ndarray, areas: np.ndarray) -> int:
+    return int((_judge(labels, truth, areas)[1] == -1).sum())
+
+
+def _correct(labels: FrameLabels, truth: np.ndarray, areas: np.ndarray) -> int:
+    return int((_judge(labels, truth, areas)[1] == 1).sum())
+
+
+def with_tracks(frames: Sequence[FrameLabels]) -> list[FrameLabels]:
+    """The frames with their people linked into tracks (as ``posewright track`` does)."""
+    sigmas = frames[0].skeleton.sigma_array if frames else None
+    arrays = [np.array([f.people[p].keypoints for p in sorted(f.people)]).reshape(
+        -1, f.num_joints, 3) for f in frames]
+    ids = link_tracks(arrays, sigmas)
+    out = []
+    for f, tracks in zip(frames, ids, strict=True):
+        people = {p: replace(f.people[p], track=int(t), track_source="auto")
+                  for p, t in zip(sorted(f.people), tracks.tolist(), strict=True)}
+        out.append(replace(f, people=people))
+    return out
+
+
+def count_actions(frames: Sequence[FrameLabels], truth: Sequence[np.ndarray],
+                  areas: Sequence[np.ndarray], demo: str = "") -> ActionCount:
+    """Actions to fix every wrong labelled joint of a sequence, frame by frame and with
+    carrying forward (see the module docstring).
+
+    Parameters
+    ----------
+    frames
+        The sequence's labels, in order.
+    truth, areas
+        Per frame, the true poses ``(M, K, 3)`` and their areas ``(M,)``.
+    demo
+        A name for the row.
+    """
+    wrong_before = sum(_wrong(f, t, a) for f, t, a in zip(frames, truth, areas, strict=True))
+    plain = repeated = 0
+    left_plain = 0
+    before: set[Any] = set()
+    for f, t, a in zip(with_tracks(frames), truth, areas, strict=True):
+        fixed, done = _fix_frame(f, t, a)
+        plain += len(done)
+        repeated += sum(g in before for g in done)
+        before = set(done)
+        left_plain += _wrong(fixed, t, a)
+    labels = with_tracks(frames)
+    corrections = batches = carried = 0
+    for i in range(len(labels)):
+        t, a = truth[i], areas[i]
+        while corrections < MAX_ACTIONS * len(labels):
+            edit = next_action(labels[i], t, a)
+            if edit is None:
+                break
+            labels[i], changes = edit.apply(labels[i])
+            corrections += 1
+            batch = carry_changes(changes, labels, i)
+            staged: dict[int, FrameLabels] = {}
+            for group in batch.edits:
+                k = next(n for n, f in enumerate(labels) if f.frame_id == group.frame_id)
+                if k < i:
+                    continue  # frames already fixed: the error is absent there
+                after = _helps(group, labels[k], truth[k], areas[k])
+                if after is None:
+                    break
+                staged[k] = after
+            # A batch of one frame spares nothing (taking it is an action too): left alone.
+            if len(staged) >= MIN_BATCH:
+                for k, after in staged.items():
+                    labels[k] = after
+                batches += 1
+                carried += len(staged)
+    left_carry = sum(_wrong(f, t, a) for f, t, a in zip(labels, truth, areas, strict=True))
+    return ActionCount(demo, wrong_before, plain, corrections + batches, corrections, batches,
+                       carried, left_plain, left_carry, repeated)
+
+
+def _helps(group: EditGroup, labels: FrameLabels, truth: np.ndarray,
+           areas: np.ndarray) -> FrameLabels | None:
+    """The frame after a carried group when it removes a wrong joint and adds none, and
+    loses no correct one; else None (where the annotator trims the batch)."""
+    after, _ = group.apply(labels)
+    w0, w1 = _wrong(labels, truth, areas), _wrong(after, truth, areas)
+    if w1 < w0 and _correct(after, truth, areas) >= _correct(labels, truth, areas):
+        return after
+    return None
+
+
+def demo_count(folder: str | Path, demo: str = "") -> ActionCount:
+    """:func:`count_actions` on a generated demo (built into a project the first time)."""
+    from app.demo.calibrate import demo_frames
+
+    frames = demo_frames(folder)
+    return count_actions([f.labels for f in frames], [f.truth for f in frames],
+                         [f.areas for f in frames], demo)
+
+
+def format_table(rows: Sequence[ActionCount]) -> str:
+    """The README's table, as Markdown."""
+    lines = ["| demo | wrong joints | actions frame by frame | of which repeat the frame "
+             "before | with carrying | of which batches taken | frames carried to | saved |",
+             "|---|---:|---:|---:|---:|---:|---:|---:|"]
+    for r in rows:
+        lines.append(f"| {r.demo} | {r.wrong_before:,} | {r.frame_by_frame:,} | "
+                     f"{r.repeated:,} | {r.carrying:,} | {r.batches:,} | "
+                     f"{r.carried_frames:,} | {100 * r.saved:.1f} % |")
+    return "\n".join(lines)
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    from app.demo.calibrate import _seeds, demo_folder
+
+    parser = argparse.ArgumentParser(prog="python -m app.demo.carrying",
+                                     description=__doc__.split("\n\n")[0])
+    parser.add_argument("--seeds", default="23-25", help="demo seeds (1-3,7)")
+    parser.add_argument("--shipped", action="store_true", help="also the shipped demo")
+    parser.add_argument("--cache", default="/tmp/posewright-demos",
+                        help="where demos are generated (once)")
+    parser.add_argument("--json", action="store_true")
+    args = parser.parse_args(argv)
+    targets: list[tuple[str, int | None]] = [(f"seed {s}", s) for s in _seeds(args.seeds)]
+    if args.shipped:
+        targets.insert(0, ("shipped (seed 1966)", None))
+    rows = [demo_count(demo_folder(args.cache, seed), name) for name, seed in targets]
+    seeds = [r for r, (_, seed) in zip(rows, targets, strict=True) if seed is not None]
+    total = ActionCount(f"**seeds {args.seeds}**", *(sum(getattr(r, f) for r in seeds) for f in (
+        "wrong_before", "frame_by_frame", "carrying", "corrections", "batches",
+        "carried_frames", "wrong_left_frame_by_frame", "wrong_left_carrying", "repeated")))
+    if args.json:
+        json.dump([r.to_dict() for r in [*rows, total]], sys.stdout, indent=2)
+        print()
+    else:
+        print(format_table([*rows, total]))
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

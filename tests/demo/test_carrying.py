@@ -1,0 +1,44 @@
+"""Counting annotator actions with and without carrying corrections forward, on a synthetic
+sequence (tests/sequences.py) whose one error lasts four frames: two dancers' left wrists
+exchanged. Truth is judged by :func:`app.demo.evaluate.judge_joints` (COCO per-joint
+similarity, pycocotools' formula). Data synthetic."""
+
+import numpy as np
+
+from app.demo.carrying import count_actions, next_action
+from app.model.edits import ReassignJoint
+from app.model.labels import FrameLabels, Person
+from app.model.skeleton import coco_body
+from tests import sequences
+
+WRIST = 9
+
+
+def _labels(people):
+    return [FrameLabels(t + 1, coco_body(), {
+        sequences.pid(t, p): Person(sequences.pid(t, p), people[t, p].copy(),
+                                    np.full(17, np.nan), ("auto",) * 17)
+        for p in range(people.shape[1])}) for t in range(len(people))]
+
+
+def test_an_error_that_lasts_four_frames_takes_four_actions_or_two_with_carrying():
+    truth = sequences.dancers()
+    wrong = truth.copy()
+    for t in range(3, 7):
+        wrong[t, [0, 1], WRIST] = wrong[t, [1, 0], WRIST]
+    areas = [np.full(3, 0.5 * 150.0**2)] * 12
+    frames = _labels(wrong)
+    first = next_action(frames[3], truth[3], areas[3])
+    assert isinstance(first, ReassignJoint) and first.joint == WRIST
+    count = count_actions(frames, list(truth), areas, "synthetic")
+    assert count.wrong_before == 8
+    assert (count.frame_by_frame, count.repeated) == (4, 3)
+    assert (count.corrections, count.batches, count.carried_frames) == (1, 1, 3)
+    assert count.carrying == 2 and count.saved == 0.5
+    assert count.wrong_left_frame_by_frame == count.wrong_left_carrying == 0
+
+
+def test_nothing_wrong_takes_no_action():
+    truth = sequences.dancers(frames=4)
+    count = count_actions(_labels(truth), list(truth), [np.full(3, 0.5 * 150.0**2)] * 4)
+    assert (count.frame_by_frame, count.carrying, count.wrong_before) == (0, 0, 0)
