@@ -72,7 +72,7 @@ class Session:
     Events
     ------
     ``stop(Stop | None)``
-        The walk moved (None: it reached the end).
+        The walk moved (None: it reached the end and the stop it was on is gone).
     ``message(str)``
         Something to tell the annotator.
     """
@@ -151,9 +151,10 @@ class Session:
                             f"{names.person(int(pid))}: {r.get('text', r.get('kind', ''))}"))
         return out
 
-    def open_findings(self, frame_id: int) -> int:
-        """How many stops the frame has now (its open findings)."""
-        return len(self.stops(frame_id))
+    def known_stops(self, frame_id: int) -> list[Stop] | None:
+        """The frame's stops if they have been read (None: not yet; reading can take a
+        frame's triage)."""
+        return self._stops.get(frame_id)
 
     # ------------------------------------------------------------------ walking
 
@@ -171,6 +172,10 @@ class Session:
         if stop is None:
             self.events.emit("message", "no more findings in the Worklist" if step > 0 else
                              "this is the first finding of the Worklist")
+            here = self.walk.current
+            if here is not None and here.key not in {s.key for s in self.stops(here.frame_id)}:
+                self.walk.forget()  # its fix was accepted or it was dismissed: nothing to show
+                self.events.emit("stop", None)
         else:
             self.events.emit("stop", stop)
         return stop

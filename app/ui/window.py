@@ -973,9 +973,13 @@ class MainWindow(QMainWindow):
         self._cancel_typing()
         self.session.dismiss()
 
-    def _show_stop(self, stop: Stop) -> None:
+    def _show_stop(self, stop: Stop | None) -> None:
         """The walk arrived at a stop: show its frame, select what it is about, centre on it
-        and say the finding beside it, with the fix previewed."""
+        and say the finding beside it, with the fix previewed (None: nothing left to show)."""
+        if stop is None:
+            self.canvas.show_stop(None)
+            self._update_actions()
+            return
         if stop.frame_id != self.frame_id:
             self.show_frame(stop.frame_id)
         if stop.person_id is not None and self.canvas.person(stop.person_id) is not None:
@@ -990,6 +994,7 @@ class MainWindow(QMainWindow):
         where = f"{keys.index(stop.key) + 1} of {len(stops)}" if stop.key in keys else ""
         self.canvas.show_stop(stop, where)
         self._update_actions()
+        self._update_status()
 
     def _frame_maps(self) -> Any:
 
@@ -1428,8 +1433,11 @@ class MainWindow(QMainWindow):
         self.status_people.setText(count(len(self.canvas.ours), "people") + (
             f" \u00b7 {count(regions, 'ignore regions')}" if regions else ""))
         flagged = sum(1 for v in self.canvas.flags.values() if v)
-        self.status_flags.setText(f"flags on {count(flagged, 'people')}" if flagged
-                                  else "no flags")
+        stops = None if self.frame_id is None else self.session.known_stops(self.frame_id)
+        self.status_flags.setText((f"flags on {count(flagged, 'people')}" if flagged
+                                   else "no flags")
+                                  + ("" if stops is None else
+                                     f" \u00b7 {count(len(stops), 'open findings')}"))
         frame = self.canvas.frame
         state = STATE_TEXT[frame.state] if frame is not None else ""
         if self.review_mode and frame is not None:
