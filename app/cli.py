@@ -28,6 +28,7 @@ from app.errors import BadInput, Cancelled, PosewrightError, ProjectLocked
 from app.fileio import MAX_ID, json_ready, read_json
 from app.model.labels import FrameState
 from app.model.naming import Names, ledger_text
+from app.parallel import check_workers
 from app.progress import Progress
 from app.safetext import shown
 from app.wording import count
@@ -342,7 +343,8 @@ def cmd_import_maps(args: argparse.Namespace) -> int:
     from app.jobs_analysis import import_maps
 
     with _open(args) as project:
-        stats = import_maps(project, args.dir, progress=_stderr_progress(args.quiet))
+        stats = import_maps(project, args.dir, progress=_stderr_progress(args.quiet),
+                            workers=check_workers(args.workers))
     return _report_counts(args, stats)
 
 
@@ -351,7 +353,8 @@ def cmd_triage(args: argparse.Namespace) -> int:
     from app.jobs_findings import time_findings
 
     with _open(args) as project:
-        results = run_triage(project, progress=_stderr_progress(args.quiet))
+        results = run_triage(project, progress=_stderr_progress(args.quiet),
+                             workers=check_workers(args.workers))
         frames = {f.id: f for f in project.frames()}
         over_time = time_findings(project)
     ranked = sorted(results.items(), key=lambda kv: (-kv[1].score, kv[0]))
@@ -385,7 +388,8 @@ def cmd_targets(args: argparse.Namespace) -> int:
     settings.check()
     with _open(args, write=False) as project:
         stats = export_targets(project, args.out_dir, settings, states=_states(args.states),
-                               progress=_stderr_progress(args.quiet))
+                               progress=_stderr_progress(args.quiet),
+                               workers=check_workers(args.workers))
     _warn_export(stats)
     note = left_out_note(stats)
     print(f"wrote {count(stats['frames'], 'frames')} of training targets to "
@@ -427,7 +431,8 @@ def cmd_prelabel(args: argparse.Namespace) -> int:
         if args.frames is not None:
             frames = [f.id for f in parse_frames(args.frames, project.frames())]
         stats = prelabel(project, args.model, args.config, frames=frames,
-                         progress=_stderr_progress(args.quiet))
+                         progress=_stderr_progress(args.quiet),
+                         workers=check_workers(args.workers))
     if args.json:
         print_json(stats)
     else:
@@ -521,6 +526,11 @@ def build_parser() -> argparse.ArgumentParser:
                        help="refuse to decode images over N megapixels (default: "
                             "$POSEWRIGHT_MAX_MEGAPIXELS, else 100); larger ones are unreadable")
 
+    def workers(p: argparse.ArgumentParser) -> None:
+        p.add_argument("--workers", type=whole_number(1, 1024), metavar="N",
+                       help="processes to compute in (default: $POSEWRIGHT_WORKERS, else "
+                            "every core); the result is the same whatever N")
+
     def video_options(p: argparse.ArgumentParser) -> None:
         p.add_argument("--every", type=whole_number(), metavar="N",
                        help="with --video: keep every N-th frame (default 1)")
@@ -565,11 +575,13 @@ def build_parser() -> argparse.ArgumentParser:
                 "import network maps (.npz per image) and group them into auto-labels")
     p.add_argument("dir", metavar="DIR")
     p.add_argument("--json", action="store_true")
+    workers(p)
 
     p = command("triage", cmd_triage, "rank frames by suspicion, with reasons (stored)")
     p.add_argument("--json", action="store_true")
     p.add_argument("--limit", type=whole_number(0), metavar="N",
                    help="show only the N worst frames")
+    workers(p)
 
     p = command("targets", cmd_targets,
                 "write training targets (confidence maps, PAFs, loss masks) per frame (by "
@@ -584,6 +596,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--dtype", choices=("float16", "float32"), default="float32")
     p.add_argument("--states", metavar="LIST", default="corrected,signed-off",
                    help=_STATES_HELP)
+    workers(p)
 
     p = command("prelabel", cmd_prelabel,
                 "run an ONNX pose model on the CPU and store what it finds as auto-labels")
@@ -599,6 +612,7 @@ def build_parser() -> argparse.ArgumentParser:
                    help="refuse a config whose tensors would need more than MB megabytes "
                         "(default: $POSEWRIGHT_MEMORY_BUDGET_MB, else 2048)")
     pixel_limit(p)
+    workers(p)
 
     p = command("open", cmd_open, "open the project in the desktop app")
     p.add_argument("--screenshot", metavar="FILE.png",

@@ -37,6 +37,10 @@ class BadInput(PosewrightError):
             text = f"{text} ({hint})"
         super().__init__(text)
 
+    def __reduce__(self) -> tuple[type, tuple[str, str | None, str | None]]:
+        # Raised in a worker process and raised again in the one that waits for it.
+        return (type(self), (self.what, self.where, self.hint))
+
 
 class UnsupportedFormat(BadInput):
     """A file that is well formed but not one Posewright can read."""

@@ -19,6 +19,7 @@ from __future__ import annotations
 import json
 import math
 import os
+import re
 import tempfile
 from collections.abc import Iterator
 from contextlib import contextmanager
@@ -130,16 +131,37 @@ def describe(path: Path_, data: Any, root: str = "", field: str = "") -> str:
     >>> describe((3, "score"), [{}] * 4, root="results")
     'results[3]: field score'
     """
-    rest = list(path)
-    record = root if isinstance(data, list) else ""
     node = data
-    if len(rest) > 1 and isinstance(rest[0], str) and isinstance(rest[1], int) \
-            and isinstance(node, dict):
+    keyed = len(path) > 1 and isinstance(path[0], str) and isinstance(path[1], int) \
+        and isinstance(data, dict)
+    if keyed:
+        node = data.get(path[0])
+    at = 1 if keyed else 0
+    item = None
+    if len(path) > at and isinstance(path[at], int):
+        i = int(path[at])
+        item = node[i] if isinstance(node, list) and 0 <= i < len(node) else None
+    return describe_item(path, item, root if isinstance(data, list) else "", field)
+
+
+def describe_item(path: Path_, item: Any, root: str = "", field: str = "") -> str:
+    """:func:`describe` for a reader that holds only the record ``path`` goes through
+    (``item``: the value at ``path[:2]`` in a top-level object, at ``path[:1]`` in a top-level
+    list named ``root``).
+
+    Examples
+    --------
+    >>> describe_item(("annotations", 7, "area"), {"id": 12, "area": 1})
+    'annotations[7] (id 12): field area'
+    >>> describe_item((3,), {"id": 2}, root="results", field="record")
+    'results[3] (id 2): field record'
+    """
+    rest = list(path)
+    record = root
+    if not root and len(rest) > 1 and isinstance(rest[0], str) and isinstance(rest[1], int):
         record = str(rest.pop(0))
-        node = node.get(record)
     if rest and isinstance(rest[0], int):
         i = int(rest.pop(0))
-        item = node[i] if isinstance(node, list) and 0 <= i < len(node) else None
         ident = item.get("id") if isinstance(item, dict) else None
         record = f"{record}[{i}]" + (f" (id {ident})" if isinstance(ident, int) else "")
     name = ".".join(str(p) for p in rest) or field
@@ -173,12 +195,15 @@ def _non_finite(value: float) -> str:
             "±1.8e308, such as 1e309, read as Infinity)")
 
 
-def _scan(data: Any, first_only: bool) -> list[tuple[Path_, float | None]]:
-    """Places in ``data`` that hold a non-finite number ``(path, value)`` or that nest too
-    deeply ``(path, None)``. Iterative, so any nesting is safe to scan."""
+def _scan(data: Any, first_only: bool, at: Path_ = ()) -> list[tuple[Path_, float | None]]:
+    """Places in ``data`` (found at ``at`` in its file) that hold a non-finite number
+    ``(path, value)`` or that nest too deeply ``(path, None)``. Iterative, so any nesting is
+    safe to scan."""
     found: list[tuple[Path_, float | None]] = []
     isfinite = math.isfinite
-    stack: list[tuple[Any, Path_]] = [(data, ())]
+    if isinstance(data, float) and not isfinite(data):
+        return [(at, data)]
+    stack: list[tuple[Any, Path_]] = [(data, at)]
     while stack:
         node, path = stack.pop()
         if not isinstance(node, (list, tuple, dict)):
@@ -207,6 +232,241 @@ def _scan(data: Any, first_only: bool) -> list[tuple[Path_, float | None]]:
                     return found
         stack.extend(reversed(children))
     return found
+
+
+class JsonStream:
+    """Read a large JSON file piece by piece, with the checks of :func:`parse_json`.
+
+    A top-level object is read key by key (:meth:`members`), and any value either whole
+    (:meth:`value`) or, when it is an array, item by item (:meth:`items`); so is a top-level
+    array. Each value is parsed by Python's own JSON reader, the one :func:`parse_json` uses,
+    from a window of the file that moves on as it is read, so memory stays within about the
+    largest single item whatever the size of the file, and the same text is accepted and
+    refused with the same messages (a syntax error names the line, column and character in
+    the whole file). Every value read is checked for non-finite numbers and nesting as a whole
+    file is, and the problem is named by record and field (:func:`describe_item`).
+
+    Examples
+    --------
+    >>> import io
+    >>> s = JsonStream(io.StringIO('{"info": {"v": 1}, "annotations": [{"id": 4}, {"id": 5}]}'))
+    >>> for key in s.members():
+    ...     print(key, s.value(key) if key != "annotations" else list(s.items(key)))
+    info {'v': 1}
+    annotations [{'id': 4}, {'id': 5}]
+    """
+
+    #: Characters read at a time.
+    CHUNK = 1 << 20
+    _WS = re.compile(r"[ \t\n\r]*")
+
+    def __init__(self, source: str | Path | IO[str], what: str = "the file", root: str = ""):
+        self.what = what
+        self.root = root
+        if isinstance(source, (str, Path)):
+            self.where = str(source)
+            try:
+                self._fh: IO[str] = open(source, encoding="utf-8", newline="")  # noqa: SIM115
+            except OSError as exc:
+                raise BadInput(f"cannot read {what} ({exc.strerror})", where=self.where) \
+                    from None
+        else:
+            self.where = getattr(source, "name", "the file")
+            self._fh = source
+        self._buf = ""
+        self._pos = 0  # where reading goes on, in _buf
+        self._offset = 0  # characters of the file before _buf
+        self._line = 1  # line of the file where _buf starts
+        self._column = 0  # characters of that line before _buf
+        self._eof = False
+        self._decoder = json.JSONDecoder()
+        self._started = False
+
+    def close(self) -> None:
+        self._fh.close()
+
+    def __enter__(self) -> JsonStream:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    @property
+    def done(self) -> int:
+        """Characters read so far (for progress)."""
+        return self._offset + self._pos
+
+    def _more(self) -> bool:
+        """Read the next chunk, dropping what has been read; False at the end of the file."""
+        if self._eof:
+            return False
+        try:
+            text = self._fh.read(self.CHUNK)
+        except UnicodeDecodeError as exc:
+            raise BadInput(f"{self.what} is not valid JSON ({exc})", where=self.where,
+                           hint="is the file complete?") from None
+        except OSError as exc:
+            raise BadInput(f"cannot read {self.what} ({exc.strerror})", where=self.where) \
+                from None
+        if not self._started:
+            self._started = True
+            if text.startswith("\ufeff"):
+                raise self._syntax("Unexpected UTF-8 BOM (decode using utf-8-sig)", 0, text)
+        if not text:
+            self._eof = True
+            return False
+        gone = self._buf[: self._pos]
+        lines = gone.count("\n")
+        if lines:
+            self._line += lines
+            self._column = len(gone) - gone.rfind("\n") - 1
+        else:
+            self._column += len(gone)
+        self._offset += self._pos
+        self._buf = self._buf[self._pos:] + text
+        self._pos = 0
+        return True
+
+    def _syntax(self, msg: str, pos: int, buf: str | None = None) -> BadInput:
+        """The error :func:`parse_json` gives for a syntax error at ``pos`` of the window."""
+        before = (self._buf if buf is None else buf)[:pos]
+        lines = before.count("\n")
+        line = self._line + lines
+        column = pos - before.rfind("\n") if lines else self._column + pos + 1
+        return BadInput(f"{self.what} is not valid JSON ({msg}: line {line} column {column} "
+                        f"(char {self._offset + pos}))", where=self.where,
+                        hint="is the file complete?")
+
+    def _next(self) -> str:
+        """The next character that is not white space ("" at the end of the file)."""
+        while True:
+            match = self._WS.match(self._buf, self._pos)
+            self._pos = match.end() if match else self._pos
+            if self._pos < len(self._buf):
+                return self._buf[self._pos]
+            if not self._more():
+                return ""
+
+    def _decode(self) -> Any:
+        self._next()
+        while True:
+            try:
+                value, end = self._decoder.raw_decode(self._buf, self._pos)
+            except json.JSONDecodeError as exc:
+                # Cut off by the window's end rather than wrong: read on and try again.
+                if (exc.pos >= len(self._buf) - 16 or exc.msg.startswith("Unterminated")) \
+                        and self._more():
+                    continue
+                raise self._syntax(exc.msg, exc.pos) from None
+            except RecursionError:
+                raise BadInput(f"{self.what} is nested too deeply (more than {MAX_DEPTH} "
+                               "levels of arrays and objects)", where=self.where) from None
+            except ValueError as exc:  # e.g. an integer of more digits than Python converts
+                raise BadInput(f"{self.what} is not valid JSON ({exc})", where=self.where,
+                               hint="is the file complete?") from None
+            if end > len(self._buf) - 8 and self._more():
+                continue  # a number cut at the window's end ("12", "1.", "1e") may go on
+            self._pos = end
+            return value
+
+    def _check(self, value: Any, at: Path_) -> None:
+        problem = _scan(value, first_only=True, at=at)
+        if problem:
+            path, bad = problem[0]
+            record = value  # the item of the top-level array, or of a top-level key's array
+            for key in path[len(at): 1 if self.root else 2]:
+                ok = (isinstance(record, list) and isinstance(key, int)) \
+                    or (isinstance(record, dict) and key in record)
+                record = record[key] if ok else None
+            place = describe_item(path, record, self.root)
+            if bad is None:
+                raise BadInput(f"{place}: nested more than {MAX_DEPTH} levels deep",
+                               where=self.where)
+            raise BadInput(f"{place}: {_non_finite(bad)}", where=self.where)
+
+    def kind(self) -> str:
+        """``object``, ``array`` or ``value``: what the file holds at its top level."""
+        c = self._next()
+        if not c:
+            raise self._syntax("Expecting value", self._pos)
+        if c != "[":
+            self.root = ""  # names only a top-level array's items
+        return {"{": "object", "[": "array"}.get(c, "value")
+
+    def value(self, *at: str | int) -> Any:
+        """The next value, whole, checked; ``at`` is where it is in the file (for messages)."""
+        value = self._decode()
+        self._check(value, at)
+        return value
+
+    def members(self) -> Iterator[str]:
+        """The keys of the top-level object; read each key's value before asking for the
+        next (:meth:`value` or :meth:`items`)."""
+        self._next()
+        self._pos += 1
+        c = self._next()
+        if c == "}":
+            self._pos += 1
+            self._end()
+            return
+        while True:
+            if c != '"':
+                raise self._syntax("Expecting property name enclosed in double quotes",
+                                   self._pos)
+            key = self._decode()
+            if self._next() != ":":
+                raise self._syntax("Expecting ':' delimiter", self._pos)
+            self._pos += 1
+            yield key
+            c = self._next()
+            if c == ",":
+                self._pos += 1
+                c = self._next()
+                continue
+            if c == "}":
+                self._pos += 1
+                self._end()
+                return
+            raise self._syntax("Expecting ',' delimiter", self._pos)
+
+    def items(self, *at: str) -> Iterator[Any]:
+        """The items of the array that comes next (the top level, or the value of key
+        ``at``), each checked (ask :meth:`is_array` first)."""
+        self._next()
+        self._pos += 1
+        c = self._next()
+        n = 0
+        if c == "]":
+            self._pos += 1
+            if not at:
+                self._end()
+            return
+        while True:
+            if not c:
+                raise self._syntax("Expecting value", self._pos)
+            item = self._decode()
+            self._check(item, (*at, n))
+            yield item
+            n += 1
+            c = self._next()
+            if c == ",":
+                self._pos += 1
+                c = self._next()
+                continue
+            if c == "]":
+                self._pos += 1
+                if not at:
+                    self._end()
+                return
+            raise self._syntax("Expecting ',' delimiter", self._pos)
+
+    def is_array(self) -> bool:
+        """Whether the value that comes next is an array."""
+        return self._next() == "["
+
+    def _end(self) -> None:
+        if self._next():
+            raise self._syntax("Extra data", self._pos)
 
 
 @contextmanager

@@ -14,6 +14,7 @@ words what an export should tell its user about the rest.
 
 from __future__ import annotations
 
+import itertools
 import json
 import logging
 import os
@@ -213,41 +214,55 @@ def import_coco(project: Project, path: str | Path,
                 progress: Progress | None = None) -> dict[str, Any]:
     """Import a COCO keypoints file (dataset or results list), all or nothing.
 
-    Returns counts of what was added. See :mod:`app.formats.coco` for the rules.
+    The file is read piece by piece (:func:`app.formats.coco.stream_coco`) and written in
+    batches inside one transaction, so memory stays bounded whatever its size and a problem
+    in its last record still leaves the project as it was. Returns counts of what was added.
+    See :mod:`app.formats.coco` for the rules.
     """
     progress = progress or Progress()
-    progress.step(0, 3, "reading labels")
-    plan = coco.read_coco(path, project.skeleton, project.frames())
-    progress.step(1, 3, "checking labels")
     name = Path(path).name
-    with project.bulk("ImportCoco", f"import {plan.kind} {name}", f"file:{name}") as b:
-        if plan.kind == "dataset":
-            ids = [p.id for _, p in plan.people]
-            clash = b.existing_person_ids(ids)
-            if clash:
-                raise BadInput(
-                    f"annotation id {min(clash)} is already in the project", where=plan.path,
-                    hint="was this file imported before?")
-            b.rekey_frames(plan.rekey)
-            for image_id, file_name in plan.file_names.items():
+    try:
+        total = max(1, Path(path).stat().st_size)
+    except OSError:
+        total = 1
+    parts = coco.stream_coco(path, project.skeleton, project.frames())
+    progress.step(0, total, "reading labels")
+    first = next(parts)  # the images and categories checked, before anything is written
+    with project.bulk("ImportCoco", f"import {first.kind} {name}", f"file:{name}") as b:
+        if first.kind == "dataset":
+            b.rekey_frames(first.rekey)
+            for image_id, file_name in first.file_names.items():
                 b.set_file_name(image_id, file_name)
-            for image_id, extra in plan.image_extra.items():
+            for image_id, extra in first.image_extra.items():
                 b.set_frame_extra(image_id, extra)
-            if plan.category is not None:
-                b.set_meta("coco_category", json.dumps(plan.category))
-            if plan.dataset_extra:
-                b.set_meta("coco_dataset_extra", json.dumps(plan.dataset_extra))
-            b.reserve_person_ids(ids)
-            progress.step(2, 3, "writing labels")
-            b.add_people(plan.people)
-            b.regions.add(plan.regions)
-            b.count("frames", len(plan.file_names))
-            b.count("ignore regions", len(plan.regions))
-        else:
-            progress.step(2, 3, "writing labels")
-            first = b.allocate_person_ids(len(plan.people))
-            b.add_people((f, replace(p, id=first + n)) for n, (f, p) in enumerate(plan.people))
-    progress.step(3, 3, "writing labels")
+        extra: dict[str, Any] = {}
+        frames: set[int] = set()
+        for part in itertools.chain([first], parts):
+            progress.step(min(total - 1, part.read), total, "importing labels")
+            extra.update(part.dataset_extra)
+            if part.category is not None:
+                b.set_meta("coco_category", json.dumps(part.category))
+            if first.kind == "dataset":
+                ids = [p.id for _, p in part.people]
+                clash = b.existing_person_ids(ids)
+                if clash:
+                    raise BadInput(
+                        f"annotation id {min(clash)} is already in the project",
+                        where=part.path, hint="was this file imported before?")
+                b.reserve_person_ids(ids)
+                b.add_people(part.people)
+                b.regions.add(part.regions)
+                b.count("ignore regions", len(part.regions))
+            else:
+                start = b.allocate_person_ids(len(part.people))
+                b.add_people((f, replace(p, id=start + n))
+                             for n, (f, p) in enumerate(part.people))
+            frames.update(f for f, _ in part.people)
+        if first.kind == "dataset":
+            if extra:
+                b.set_meta("coco_dataset_extra", json.dumps(extra))
+            b.count("frames", len(first.file_names))
+    progress.step(total, total, "importing labels")
     return b.stats
 
 

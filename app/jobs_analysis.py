@@ -6,6 +6,7 @@ Shared by the command line and the app (which runs them off the UI thread with a
 
 from __future__ import annotations
 
+import contextlib
 import json
 import logging
 import math
@@ -13,7 +14,7 @@ import os
 import shutil
 import tempfile
 import time
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -26,7 +27,9 @@ from app.errors import BadInput, NotFound
 from app.fileio import read_json
 from app.formats.maps import NetworkMaps, match_map_files, read_maps, read_npz
 from app.jobs import EXPORT_STATES, choose_frames
-from app.model.labels import AUTO, Frame, FrameState, Person
+from app.model.labels import AUTO, Frame, FrameLabels, FrameState, Person
+from app.model.skeleton import Skeleton
+from app.parallel import ordered_map
 from app.progress import Progress
 from app.store.project import Project
 from app.workfiles import Claim, sweep
@@ -38,35 +41,35 @@ TARGETS_VERSION = 1
 
 
 def import_maps(project: Project, folder: str | Path,
-                progress: Progress | None = None) -> dict[str, int]:
+                progress: Progress | None = None, workers: int = 1) -> dict[str, int]:
     """Import one ``.npz`` of network maps per image from ``folder`` (see
     :mod:`app.formats.maps`), all or nothing.
 
     The maps are kept (their location is recorded) for triage and owner suggestions. Frames
     that have no people yet get auto-labels grouped from the maps with
     :func:`app.analysis.association.group_people`; frames that already have people keep them
-    (re-importing maps never overwrites a correction).
+    (re-importing maps never overwrites a correction). ``workers`` processes read and group
+    the maps (:mod:`app.parallel`); this one stores them, with the same result whatever the
+    number.
     """
     progress = progress or Progress()
     frames = {f.id: f for f in project.frames()}
     files = match_map_files(folder, list(frames.values()))
     has_people = set(project.people_by_frame())
+    order = sorted(files.items())
+    for frame_id, path in order:
+        if frames[frame_id].status != "ok":
+            raise BadInput(f"the image of frame {frame_id} is {frames[frame_id].status}; its "
+                           "size is unknown", where=str(path))
+    items = [(str(path), frames[frame_id], project.skeleton, frame_id not in has_people)
+             for frame_id, path in order]
     grouped: list[tuple[int, Person]] = []
     strides: dict[int, int] = {}
-    k = project.skeleton.num_joints
-    limbs = project.skeleton.limb_array
-    for n, (frame_id, path) in enumerate(sorted(files.items())):
-        progress.step(n, len(files), "reading maps")
-        frame = frames[frame_id]
-        if frame.status != "ok":
-            raise BadInput(f"the image of frame {frame_id} is {frame.status}; its size is unknown",
-                           where=str(path))
-        maps = read_maps(path, project.skeleton, (frame.width, frame.height))
-        strides[frame_id] = maps.stride
-        if frame_id in has_people:
-            continue
-        for found in group_people(maps.confidence_maps, maps.pafs, limbs, stride=maps.stride):
-            grouped.append((frame_id, _auto_person(found, k)))
+    for (frame_id, _), (stride, found) in zip(
+            order, ordered_map(_group_maps, items, workers, progress, "reading maps"),
+            strict=True):
+        strides[frame_id] = stride
+        grouped.extend((frame_id, person) for person in found)
     progress.step(len(files), len(files), "reading maps")
     with project.bulk("ImportMaps", f"import maps from {Path(folder).name}",
                       f"folder:{Path(folder).name}") as b:
@@ -77,6 +80,18 @@ def import_maps(project: Project, folder: str | Path,
         b.count("frames with maps", len(files))
         b.count("frames grouped", len({f for f, _ in grouped}))
     return b.stats
+
+
+def _group_maps(item: tuple[str, Frame, Skeleton, bool]) -> tuple[int, list[Person]]:
+    """Read one frame's maps and (when ``group``) the people grouped from them: the stride
+    and the people without ids; run in a worker process (:func:`import_maps`)."""
+    path, frame, skeleton, group = item
+    maps = read_maps(path, skeleton, (frame.width, frame.height))
+    if not group:
+        return maps.stride, []
+    found = group_people(maps.confidence_maps, maps.pafs, skeleton.limb_array,
+                         stride=maps.stride)
+    return maps.stride, [_auto_person(f, skeleton.num_joints) for f in found]
 
 
 def _auto_person(found: np.ndarray, k: int) -> Person:
@@ -96,10 +111,15 @@ def _with_id(p: Person, pid: int) -> Person:
 def load_maps(project: Project, frame: Frame) -> NetworkMaps | None:
     """The frame's network maps if the project has them and they still read, else None."""
     where = project.maps_path(frame.id)
-    if where is None or frame.status != "ok":
+    return _usable_maps(None if where is None else where[0], frame, project.skeleton)
+
+
+def _usable_maps(path: str | Path | None, frame: Frame, skeleton: Skeleton) -> NetworkMaps | None:
+    """The maps in ``path`` for ``frame``, or None when there are none or they do not read."""
+    if path is None or frame.status != "ok":
         return None
     try:
-        return read_maps(where[0], project.skeleton, (frame.width, frame.height))
+        return read_maps(path, skeleton, (frame.width, frame.height))
     except BadInput as exc:
         log.warning("maps of frame %s are not usable: %s", frame.id, exc)
         return None
@@ -133,7 +153,7 @@ class TargetSettings:
 
 def export_targets(project: Project, out_dir: str | Path, settings: TargetSettings | None = None,
                    states: Sequence[FrameState] | None = EXPORT_STATES,
-                   progress: Progress | None = None) -> dict[str, Any]:
+                   progress: Progress | None = None, workers: int = 1) -> dict[str, Any]:
     """Write training targets: one ``.npz`` per frame plus ``manifest.json``.
 
     Each ``.npz`` holds ``confidence_maps (K, H, W)``, ``pafs (L, 2, H, W)`` and
@@ -146,7 +166,9 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
     :func:`app.jobs.choose_frames`, shared with the COCO export). The folder appears complete
     or not at all: it is written beside ``out_dir`` (``OUT_DIR.<random>.partial``) and renamed
     at the end; such folders that a killed run left are removed first (:mod:`app.workfiles`).
-    Returns ``frames`` written, ``skipped``, ``out`` and :meth:`app.jobs.ExportChoice.counts`.
+    ``workers`` processes compute and write the frames' files (:mod:`app.parallel`), the same
+    files whatever the number. Returns ``frames`` written, ``skipped``, ``out`` and
+    :meth:`app.jobs.ExportChoice.counts`.
     """
     settings = settings or TargetSettings()
     settings.check()
@@ -164,31 +186,31 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
     regions = project.regions_by_frame()
     sk = project.skeleton
     limbs = sk.limb_array
-    dtype = np.float16 if settings.dtype == "float16" else np.float32
     min_margin = settings.min_margin if settings.min_margin is not None else 3 * settings.sigma
     sweep(out, ".partial")
     work = Path(tempfile.mkdtemp(prefix=out.name + ".", suffix=".partial", dir=parent))
     claim = Claim(work)  # so that a later run can tell this folder from a killed run's
     entries = []
-    try:
-        for n, f in enumerate(frames):
-            progress.step(n, len(frames), "writing training targets")
-            size = (f.width, f.height)
-            kp = np.stack([p.keypoints for p in people.get(f.id, [])]) if people.get(f.id) \
-                else np.zeros((0, sk.num_joints, 3))
+    empty = np.zeros((0, sk.num_joints, 3))
+
+    def items() -> Iterator[tuple[Any, ...]]:
+        for f in frames:
+            kp = np.stack([p.keypoints for p in people[f.id]]) if people.get(f.id) else empty
             polys = [poly for _, polygons, _ in regions.get(f.id, []) for poly in polygons]
-            cm = confidence_maps(kp, size, settings.stride, settings.sigma)
-            paf = part_affinity_fields(kp, limbs, size, settings.stride, settings.limb_width)
-            mask = loss_mask(kp, limbs, size, settings.stride, ignore=polys or None,
-                             box_margin=settings.box_margin, min_margin=min_margin)
-            name = f"{f.id}.npz"
-            np.savez_compressed(work / name, confidence_maps=cm.astype(dtype),
-                                pafs=paf.astype(dtype), loss_mask=mask.astype(dtype))
-            entries.append({"id": f.id, "file_name": f.file_name,
-                            "image": _relative_to(project.image_path(f), out),
-                            "width": f.width, "height": f.height, "state": f.state.value,
-                            "targets": name, "people": len(people.get(f.id, [])),
-                            "grid": [cm.shape[1], cm.shape[2]]})
+            yield (str(work / f"{f.id}.npz"), (f.width, f.height), kp, polys, limbs, settings,
+                   min_margin)
+
+    try:
+        # closing: no worker may still be writing when a failure removes the folder.
+        with contextlib.closing(ordered_map(_write_targets, items(), workers, progress,
+                                            "writing training targets",
+                                            total=len(frames))) as grids:
+            for f, grid in zip(frames, grids, strict=True):
+                entries.append({"id": f.id, "file_name": f.file_name,
+                                "image": _relative_to(project.image_path(f), out),
+                                "width": f.width, "height": f.height, "state": f.state.value,
+                                "targets": f"{f.id}.npz", "people": len(people.get(f.id, [])),
+                                "grid": list(grid)})
         progress.step(len(frames), len(frames), "writing training targets")
         manifest = {
             "format": TARGETS_FORMAT,
@@ -235,6 +257,20 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
             **choice.counts()}
 
 
+def _write_targets(item: tuple[Any, ...]) -> tuple[int, int]:
+    """Compute one frame's targets and write its ``.npz``; returns the grid ``(H, W)``. Run
+    in a worker process (:func:`export_targets`)."""
+    path, size, kp, polys, limbs, settings, min_margin = item
+    dtype = np.float16 if settings.dtype == "float16" else np.float32
+    cm = confidence_maps(kp, size, settings.stride, settings.sigma)
+    paf = part_affinity_fields(kp, limbs, size, settings.stride, settings.limb_width)
+    mask = loss_mask(kp, limbs, size, settings.stride, ignore=polys or None,
+                     box_margin=settings.box_margin, min_margin=min_margin)
+    np.savez_compressed(path, confidence_maps=cm.astype(dtype), pafs=paf.astype(dtype),
+                        loss_mask=mask.astype(dtype))
+    return cm.shape[1], cm.shape[2]
+
+
 def _relative_to(path: Path, folder: Path) -> str:
     """``path`` relative to ``folder`` (POSIX separators), so that the manifest names no home
     folder and survives moving the export together with the project; absolute only when no
@@ -249,32 +285,34 @@ def _relative_to(path: Path, folder: Path) -> str:
 
 def run_triage(project: Project, progress: Progress | None = None,
                frame_ids: Sequence[int] | None = None,
-               findings: bool = True) -> dict[int, Any]:
+               findings: bool = True, workers: int = 1) -> dict[int, Any]:
     """Triage every frame (or the given ones), store the scores and reasons and (unless
     ``findings`` is False) the findings with their proposed fixes, and return the
     :class:`~app.analysis.triage.FrameTriage` of each frame by id (its ``findings`` filled
-    in)."""
-    from app.analysis.triage import triage_frame
-    from app.analysis.triage.findings import labels_digest
-    from app.jobs_findings import findings_of_frame
+    in).
 
+    With ``workers`` above 1 the frames are triaged in that many processes (this one reads
+    each frame's labels and stores every result, see :mod:`app.parallel`); the results are the
+    same whatever the number.
+    """
     progress = progress or Progress()
-    frames = [f for f in project.frames() if frame_ids is None or f.id in set(frame_ids)]
+    wanted = None if frame_ids is None else set(frame_ids)
+    frames = [f for f in project.frames() if wanted is None or f.id in wanted]
+    skeleton = project.skeleton
+
+    def items() -> Iterator[tuple[Frame, FrameLabels, str | None, Skeleton, bool]]:
+        for f in frames:
+            where = project.maps_path(f.id)
+            yield (f, project.labels(f.id), None if where is None else str(where[0]),
+                   skeleton, findings)
+
     results = {}
     digests = {}
-    for n, f in enumerate(frames):
-        progress.step(n, len(frames), "triage")
-        labels = project.labels(f.id)
-        ps = list(labels.people.values())
-        maps = load_maps(project, f)
-        verdict = triage_frame(
-            {p.id: p.keypoints for p in ps}, project.skeleton,
-            scores={p.id: p.scores for p in ps}, maps=maps,
-            image_size=(f.width, f.height) if f.width > 0 else None)
-        if findings:
-            verdict.findings = findings_of_frame(project, f, labels, maps, verdict)
+    for f, (verdict, digest) in zip(
+            frames, ordered_map(_triage_one, items(), workers, progress, "triage",
+                                total=len(frames)), strict=True):
         results[f.id] = verdict
-        digests[f.id] = labels_digest(labels)
+        digests[f.id] = digest
     progress.step(len(frames), len(frames), "triage")
     project.store_triage({fid: (t.score, [r.to_dict() for r in t.reasons])
                           for fid, t in results.items()})
@@ -284,6 +322,25 @@ def run_triage(project: Project, progress: Progress | None = None,
                                                      for x in t.findings])
                                 for fid, t in results.items()})
     return results
+
+
+def _triage_one(item: tuple[Frame, FrameLabels, str | None, Skeleton, bool]) -> tuple[Any, str]:
+    """One frame's verdict (with its findings when asked) and the digest of the labels it
+    was computed from; run in a worker process (:func:`run_triage`)."""
+    from app.analysis.triage import triage_frame
+    from app.analysis.triage.findings import labels_digest
+    from app.jobs_findings import findings_from_labels
+
+    frame, labels, maps_path, skeleton, findings = item
+    ps = list(labels.people.values())
+    maps = _usable_maps(maps_path, frame, skeleton)
+    verdict = triage_frame(
+        {p.id: p.keypoints for p in ps}, skeleton,
+        scores={p.id: p.scores for p in ps}, maps=maps,
+        image_size=(frame.width, frame.height) if frame.width > 0 else None)
+    if findings:
+        verdict.findings = findings_from_labels(frame, labels, skeleton, maps, verdict)
+    return verdict, labels_digest(labels)
 
 
 # ---------------------------------------------------------------------- checking an export

@@ -26,6 +26,7 @@ from app.analysis.triage.temporal import TIME_KINDS, TrackedFrame, sequence_find
 from app.errors import BadInput, EditRefused, NotFound
 from app.model.edits import DismissFinding, EditGroup
 from app.model.labels import Frame, FrameLabels
+from app.model.skeleton import Skeleton
 from app.progress import Progress
 from app.store.project import Project
 
@@ -51,8 +52,15 @@ def findings_of_frame(project: Project, frame: Frame, labels: FrameLabels | None
     labels = labels or project.labels(frame.id)
     if maps is None:
         maps = load_maps(project, frame)
+    return findings_from_labels(frame, labels, project.skeleton, maps, triage)
+
+
+def findings_from_labels(frame: Frame, labels: FrameLabels, skeleton: Skeleton, maps: Any,
+                         triage: Any = None) -> list[Finding]:
+    """One frame's findings from what :func:`findings_of_frame` reads from the project (no
+    project needed: triage's worker processes call it)."""
     return frame_findings(
-        frame.id, {p.id: p.keypoints for p in labels.people.values()}, project.skeleton,
+        frame.id, {p.id: p.keypoints for p in labels.people.values()}, skeleton,
         scores={p.id: p.scores for p in labels.people.values()}, maps=maps,
         image_size=(frame.width, frame.height) if frame.width > 0 else None, triage=triage,
         dismissed=labels.dismissed)

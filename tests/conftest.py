@@ -10,6 +10,7 @@ backend changes, such as a packet's format).
 from __future__ import annotations
 
 import json
+import os
 from pathlib import Path
 
 import pytest
@@ -17,6 +18,11 @@ import pytest
 from app.jobs import new_project
 from app.store import Project
 from tests import pg, synthetic
+
+# Batch commands compute on every core unless told otherwise; the suite already runs one test
+# per core, so they use one process here, and tests/test_parallel_jobs.py checks that more
+# workers give the same results.
+os.environ["POSEWRIGHT_WORKERS"] = "1"
 
 #: The suites whose ``project`` runs on both backends.
 BOTH_BACKENDS = ("store", "review")

@@ -106,3 +106,55 @@ def test_any_text_parses_to_what_json_reads_or_is_refused_in_one_line(value, tok
         assert str(exc).startswith("f.json: ") and "\n" not in str(exc)
     else:
         assert data == json.loads(text)
+
+
+@pytest.mark.parametrize("chunk", [1, 5, 64, 1 << 20])
+@pytest.mark.parametrize("text", [
+    '{"images": [1, 2],\n "annotations": [{"id": 1}, {"id": 2}\n {"id": 3}]}',
+    '{"a": [1, 2, 3],\n\n "b": [tru]}',
+    '[{"x": "abc"}, {"x": "unterminated}]',
+    '{"a": 1} {"b": 2}',
+    '{"a": [1, 2,]}',
+    '{"a" 1}',
+    '  ',
+    '\ufeff{"a": 1}',
+])
+def test_json_stream_refuses_as_the_whole_file_reader_does(tmp_path, chunk, text, monkeypatch):
+    """Python's json module (the reader parse_json uses) is the reference: a file read piece by
+    piece, at any size of piece, is refused with the same message, line, column and character
+    as the whole text (synthetic texts)."""
+    from app.fileio import JsonStream, parse_json
+
+    monkeypatch.setattr(JsonStream, "CHUNK", chunk)
+    path = tmp_path / "t.json"
+    path.write_text(text, encoding="utf-8")
+    with pytest.raises(BadInput) as whole:
+        parse_json(path.read_bytes(), str(path))
+    with pytest.raises(BadInput) as pieces, JsonStream(path) as stream:
+        if stream.kind() == "object":
+            for key in stream.members():
+                if stream.is_array():
+                    list(stream.items(key))
+                else:
+                    stream.value(key)
+        else:
+            list(stream.items())
+    assert str(pieces.value) == str(whole.value)
+
+
+def test_json_stream_reads_what_json_reads(tmp_path, monkeypatch):
+    """Items and values equal json.loads of the same text, read 3 characters at a time
+    (synthetic text with numbers split across pieces, escapes and nesting)."""
+    from app.fileio import JsonStream
+
+    monkeypatch.setattr(JsonStream, "CHUNK", 3)
+    data = {"a": [12345678901234567, -1.5e-300, "x\u00e9\\\"y", {"n": [[], {}]}],
+            "b": {"c": None, "d": True}, "e": [0.1] * 7}
+    path = tmp_path / "t.json"
+    path.write_text(json.dumps(data), encoding="utf-8")
+    got = {}
+    with JsonStream(path) as stream:
+        assert stream.kind() == "object"
+        for key in stream.members():
+            got[key] = list(stream.items(key)) if stream.is_array() else stream.value(key)
+    assert got == data

@@ -102,11 +102,12 @@ def test_killed_targets_and_packet_export_are_cleaned_up_by_the_next_run(tmp_pat
 
     zipped = tmp_path / "send.zip"
     _killed("app.review.packet", "write_member",
-            ["packet", "export", folder, "--frames", "untouched", "--out", zipped])
+            ["packet", "export", folder, "--frames", "untouched", "--images", "none",
+             "--out", zipped])
     stale = sorted(tmp_path.glob("send.zip.*.tmp"))
     assert len(stale) == 1 and not zipped.exists()
-    code, err = _posewright("packet", "export", folder, "--frames", "untouched", "--out", zipped,
-                            "-q")
+    code, err = _posewright("packet", "export", folder, "--frames", "untouched",
+                            "--images", "none", "--out", zipped, "-q")
     assert code == 0 and len(err) == 2 and stale[0].name in err[1], err
     assert zipped.is_file() and not list(tmp_path.glob("send.zip.*.tmp"))
 

@@ -41,7 +41,7 @@ from __future__ import annotations
 
 import json
 import math
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path, PurePosixPath
 from typing import Any
@@ -59,7 +59,7 @@ from pydantic import (
 )
 
 from app.errors import BadInput
-from app.fileio import MAX_ID, JsonId, describe, json_ready, read_json
+from app.fileio import MAX_ID, JsonId, JsonStream, describe, describe_item, json_ready
 from app.formats.images import MAX_SIDE
 from app.model.labels import AUTO, IMPORTED, Frame, Person
 from app.model.skeleton import Skeleton
@@ -93,13 +93,6 @@ class _Category(BaseModel):
     skeleton: list[tuple[StrictInt, StrictInt]] = Field(default_factory=list)
 
 
-class _Dataset(BaseModel):
-    model_config = ConfigDict(extra="allow")
-    images: list[_Image]
-    annotations: list[_Annotation]
-    categories: list[_Category]
-
-
 class _Result(BaseModel):
     model_config = ConfigDict(extra="allow")
     image_id: JsonId
@@ -108,7 +101,9 @@ class _Result(BaseModel):
     score: Number
 
 
-_DATASET = TypeAdapter(_Dataset)
+_IMAGES = TypeAdapter(list[_Image])
+_CATEGORIES = TypeAdapter(list[_Category])
+_ANNOTATIONS = TypeAdapter(list[_Annotation])
 _RESULTS = TypeAdapter(list[_Result])
 
 
@@ -133,32 +128,338 @@ class CocoImport:
     category: dict[str, Any] | None = None
     dataset_extra: dict[str, Any] = field(default_factory=dict)
     fresh_people: int = 0  # people that need ids from the project (results lists)
+    read: int = 0  # characters of the file read when this part was made (for progress)
+
+
+#: Records validated and written together when a file is read piece by piece.
+BATCH = 10_000
 
 
 def read_coco(path: str | Path, skeleton: Skeleton, frames: Sequence[Frame]) -> CocoImport:
     """Read and validate a COCO keypoints file against the project's skeleton and frames.
 
-    Nothing is written; the returned :class:`CocoImport` says what an import would do.
+    Nothing is written; the returned :class:`CocoImport` says what an import would do. (An
+    import reads the file piece by piece instead, :func:`stream_coco`.)
 
     Raises
     ------
     BadInput
         On the first problem, naming the file, the record and the field.
     """
-    path = Path(path)
+    plan: CocoImport | None = None
+    for part in stream_coco(path, skeleton, frames):
+        if plan is None:
+            plan = part
+        else:
+            plan.people.extend(part.people)
+            plan.regions.extend(part.regions)
+            plan.dataset_extra.update(part.dataset_extra)
+            plan.category = part.category or plan.category
+    assert plan is not None  # stream_coco yields at least its first part
+    plan.fresh_people = len(plan.people) if plan.kind == "results" else 0
+    return plan
+
+
+def stream_coco(path: str | Path, skeleton: Skeleton, frames: Sequence[Frame],
+                batch: int | None = None) -> Iterator[CocoImport]:
+    """Read and validate a COCO keypoints file piece by piece, for an import of any size.
+
+    Yields :class:`CocoImport` parts: the first holds the frame matching (ids, file names)
+    and a first batch of people; each later part holds up to ``batch`` (default
+    :data:`BATCH`) people and ignore regions; the last holds the ``category`` and
+    ``dataset_extra`` (the other top-level keys). Records are checked as
+    :func:`read_coco` checks them, and the first problem raises :class:`BadInput` at the
+    batch it is in, so a writer must keep everything in one transaction (all or nothing). A
+    dataset is read once when its images come before its annotations (as COCO files are
+    written), else twice; a results list is read twice (whether its third
+    keypoint values are visibility or scores depends on all of them). Memory stays within a
+    batch and the frame list, whatever the size of the file.
+    """
     where = str(path)
-    data = read_json(path, root="results")
-    if isinstance(data, list):
-        return _read_results(data, where, skeleton, frames)
-    if isinstance(data, dict) and "annotations" in data:
-        return _read_dataset(data, where, skeleton, frames)
-    raise BadInput("neither a COCO dataset (images, annotations, categories) nor a results list",
-                   where=where)
+    batch = batch or BATCH
+    with JsonStream(path, root="results") as stream:
+        top = stream.kind()
+        if top == "array":
+            yield from _stream_results(path, where, skeleton, frames, batch)
+            return
+        if top != "object":
+            stream.value()
+            raise BadInput("neither a COCO dataset (images, annotations, categories) nor a "
+                           "results list", where=where)
+        yield from _stream_dataset(stream, path, where, skeleton, frames, batch)
+
+
+def _read_list(stream: JsonStream, key: str, adapter: TypeAdapter[Any], where: str) -> Any:
+    value = stream.value(key)
+    try:
+        return adapter.validate_python(value), value
+    except ValidationError as exc:
+        err = exc.errors(include_url=False)[0]
+        loc = (key, *err["loc"])
+        place = describe(loc, {key: value}, field="record")
+        raise _message(err, place, where) from None
+
+
+def _stream_dataset(stream: JsonStream, path: str | Path, where: str, skeleton: Skeleton,
+                    frames: Sequence[Frame], batch: int) -> Iterator[CocoImport]:
+    head: dict[str, Any] = {}
+    extra: dict[str, Any] = {}
+    plan: _DatasetPlan | None = None
+    seen = False
+    for key in stream.members():
+        if key in ("images", "categories"):
+            head[key] = _read_list(stream, key, _IMAGES if key == "images" else _CATEGORIES,
+                                   where)
+            if key == "categories" and plan is not None:
+                plan.set_categories(*head[key])
+        elif key == "annotations":
+            seen = True
+            if not stream.is_array():
+                _read_list(stream, key, _ANNOTATIONS, where)  # raises: not a list
+            if "images" in head:
+                plan = _DatasetPlan(where, skeleton, frames, head)
+                yield from plan.annotations(stream, "annotations", batch)
+            else:
+                for _ in stream.items("annotations"):
+                    pass  # read again once the images are known
+        else:
+            extra[key] = stream.value(key)
+    if not seen:
+        raise BadInput("neither a COCO dataset (images, annotations, categories) nor a "
+                       "results list", where=where)
+    for key in ("images", "categories"):
+        if key not in head:
+            raise BadInput(f"field {key}: field required", where=where)
+    if plan is None:
+        plan = _DatasetPlan(where, skeleton, frames, head)
+        with JsonStream(path) as again:
+            again.kind()
+            for key in again.members():
+                if key == "annotations":
+                    yield from plan.annotations(again, "annotations", batch)
+                else:
+                    again.value(key)
+    yield plan.tail(extra)
+
+
+class _DatasetPlan:
+    """A dataset's images (and categories, when they come first) checked and matched, then
+    its annotations read in batches (:func:`stream_coco`). Categories that come after the
+    annotations (as in COCO's own files) are checked when they come, and so are the
+    annotations' category ids then."""
+
+    def __init__(self, where: str, skeleton: Skeleton, frames: Sequence[Frame],
+                 head: dict[str, Any]):
+        self.where = where
+        self.k = skeleton.num_joints
+        self._skeleton = skeleton
+        self._frames = frames
+        self._head = head
+        self.cats: dict[int, _Category] | None = None
+        self.category: dict[str, Any] | None = None
+        self.matched: dict[int, Frame] = {}
+        self.first = CocoImport("dataset", where)
+        self.ids: set[int] = set()
+        #: Category ids of annotations read before the categories: the first record of each.
+        self.pending: dict[int, str] = {}
+        self.started = False
+
+    def _check_head(self) -> None:
+        """The checks of the images (and categories) against the project, made once the
+        first annotations have the right shape (a misshapen record is named first, as when
+        the whole file is checked at once)."""
+        where = self.where
+        images, _ = self._head["images"]
+        _unique((im.id for im in images), "image", where)
+        if "categories" in self._head:
+            self.set_categories(*self._head["categories"])
+        self.matched = _match_frames(images, self._frames, where)
+        self.first.rekey = _rekey(self.matched, self._frames)
+        for img in images:
+            self.first.frame_ids[img.id] = img.id
+            self.first.file_names[img.id] = img.file_name
+            kept = dict(img.model_extra or {})
+            if kept:
+                self.first.image_extra[img.id] = kept
+
+    def set_categories(self, categories: list[_Category], raw: list[Any]) -> None:
+        where = self.where
+        _unique((c.id for c in categories), "category", where)
+        cats = {}
+        for i, c in enumerate(categories):
+            _check_category(c, self._skeleton, where, i)
+            cats[c.id] = c
+        if not cats:
+            raise BadInput("field categories: no category", where=where)
+        for cid, record in self.pending.items():
+            if cid not in cats:
+                raise BadInput(f"{record}: field category_id: no category with id {cid}",
+                               where=where)
+        self.cats = cats
+        self.category = dict(raw[0])
+        self.category["id"] = categories[0].id
+
+    def annotations(self, stream: JsonStream, key: str, batch: int) -> Iterator[CocoImport]:
+        raw: list[Any] = []
+        start = 0
+        for item in stream.items(key):
+            raw.append(item)
+            if len(raw) == batch:
+                yield self._batch(raw, start, stream.done)
+                start += len(raw)
+                raw = []
+        if raw or not self.started:
+            yield self._batch(raw, start, stream.done)
+
+    def tail(self, extra: dict[str, Any]) -> CocoImport:
+        part = CocoImport("dataset", self.where, category=self.category)
+        part.dataset_extra = extra
+        return part
+
+    def _batch(self, raw: list[Any], start: int, read: int) -> CocoImport:
+        where = self.where
+        try:
+            anns = _ANNOTATIONS.validate_python(raw)
+        except ValidationError as exc:
+            err = exc.errors(include_url=False)[0]
+            loc = list(err["loc"])
+            loc[0] = int(loc[0]) + start
+            raise _validation_error_at(err, ("annotations", *loc), raw[int(err["loc"][0])],
+                                       where) from None
+        if not self.started:
+            self._check_head()
+        out = self.first if not self.started else CocoImport("dataset", where)
+        out.read = read
+        self.started = True
+        labels: list[tuple[int, _Annotation, dict[str, Any]]] = []
+        for n, a in enumerate(anns):
+            i = start + n
+            if a.id in self.ids:
+                raise BadInput(f"annotation id {a.id} appears twice", where=where)
+            self.ids.add(a.id)
+            record = f"annotations[{i}] (id {a.id})"
+            if a.image_id not in self.matched:
+                raise BadInput(f"{record}: field image_id: no image with id {a.image_id}",
+                               where=where)
+            if self.cats is None:
+                self.pending.setdefault(a.category_id, record)
+            elif a.category_id not in self.cats:
+                raise BadInput(f"{record}: field category_id: no category with id "
+                               f"{a.category_id}", where=where)
+            if a.iscrowd not in (0, 1):
+                raise BadInput(f"{record}: field iscrowd: {a.iscrowd} is not 0 (a person) or 1 "
+                               "(a crowd region)", where=where)
+            if a.iscrowd:
+                kept = {key: v for key, v in raw[n].items() if key != "image_id"}
+                out.regions.append((a.image_id, _crowd_polygons(raw[n], where, record), kept))
+                continue
+            extra = {key: v for key, v in raw[n].items()
+                     if key not in ("id", "image_id", "keypoints", "score", "num_keypoints")}
+            labels.append((i, a, extra))
+        k = self.k
+        block = _keypoint_block(
+            [a.keypoints for _, a, _ in labels], k, where,
+            [f"annotations[{i}] (id {a.id})" for i, a, _ in labels],
+            [self.matched[a.image_id] for _, a, _ in labels])
+        no_scores = np.full(k, np.nan)
+        for (i, a, extra), kp in zip(labels, block):
+            source = AUTO if a.score is not None else IMPORTED
+            track = _track_id(extra, where, f"annotations[{i}] (id {a.id})")
+            person = Person(a.id, kp, no_scores, (source,) * k,
+                            None if a.score is None else float(a.score), extra, track,
+                            "" if track is None else IMPORTED)
+            out.people.append((a.image_id, person))
+        return out
+
+
+def _stream_results(path: str | Path, where: str, skeleton: Skeleton, frames: Sequence[Frame],
+                    batch: int) -> Iterator[CocoImport]:
+    k = skeleton.num_joints
+    by_id = {f.id: f for f in frames}
+    as_visibility = True
+    outside: int | None = None
+    # First pass: check every record and learn what the third keypoint values are.
+    for start, _raw, _results, block, _read in _results_batches(path, where, k, by_id, batch):
+        third = block[:, :, 2]
+        as_visibility = as_visibility and bool(np.isin(third, (0, 1, 2)).all())
+        if outside is None:
+            bad = np.flatnonzero(((third < 0) | (third > 1)).any(axis=1))
+            outside = start + int(bad[0]) if bad.size else None
+    if not as_visibility and outside is not None:
+        raise BadInput(f"results[{outside}]: field keypoints: third values must all be "
+                       "visibility (0, 1, 2) or all be scores in [0, 1]", where=where)
+    first = True
+    for start, raw, results, block, read in _results_batches(path, where, k, by_id, batch):
+        out = CocoImport("results", where, read=read)
+        for n, (r, kp) in enumerate(zip(results, block)):
+            if as_visibility:
+                scores = np.where(kp[:, 2] > 0, float(r.score), np.nan)
+            else:
+                scores = kp[:, 2].copy()
+                kp[:, 2] = np.where(scores > 0, 2, 0)
+            extra = {key: v for key, v in raw[n].items()
+                     if key not in ("image_id", "keypoints", "score", "id")}
+            track = _track_id(extra, where, f"results[{start + n}]")
+            out.people.append((r.image_id, Person(0, kp, scores, (AUTO,) * k, float(r.score),
+                                                  extra, track,
+                                                  "" if track is None else IMPORTED)))
+        out.fresh_people = len(out.people)
+        first = False
+        yield out
+    if first:
+        yield CocoImport("results", where)
+
+
+def _results_batches(path: str | Path, where: str, k: int, by_id: Mapping[int, Frame],
+                     batch: int
+                     ) -> Iterator[tuple[int, list[Any], list[_Result], np.ndarray, int]]:
+    with JsonStream(path, root="results") as stream:
+        stream.kind()
+        raw: list[Any] = []
+        start = 0
+        for item in stream.items():
+            raw.append(item)
+            if len(raw) == batch:
+                yield start, raw, *_check_results(raw, start, where, k, by_id), stream.done
+                start += len(raw)
+                raw = []
+        if raw:
+            yield start, raw, *_check_results(raw, start, where, k, by_id), stream.done
+
+
+def _check_results(raw: list[Any], start: int, where: str, k: int,
+                   by_id: Mapping[int, Frame]) -> tuple[list[_Result], np.ndarray]:
+    try:
+        results = _RESULTS.validate_python(raw)
+    except ValidationError as exc:
+        err = exc.errors(include_url=False)[0]
+        loc = list(err["loc"])
+        at = int(loc[0])
+        loc[0] = at + start
+        raise _validation_error_at(err, tuple(loc), raw[at], where, root="results") from None
+    for n, r in enumerate(results):
+        if r.image_id not in by_id:
+            raise BadInput(f"results[{start + n}]: field image_id: no project frame with id "
+                           f"{r.image_id}", where=where,
+                           hint="import the dataset with these image ids first")
+    block = _keypoint_block([r.keypoints for r in results], k, where,
+                            [f"results[{start + n}]" for n in range(len(results))],
+                            [by_id[r.image_id] for r in results], visibility=False)
+    return results, block
 
 
 def _validation_error(exc: ValidationError, data: Any, where: str, root: str = "") -> BadInput:
     err = exc.errors(include_url=False)[0]
-    place = describe(tuple(err["loc"]), data, root, field="record")
+    return _message(err, describe(tuple(err["loc"]), data, root, field="record"), where)
+
+
+def _validation_error_at(err: Any, loc: tuple[Any, ...], item: Any, where: str,
+                         root: str = "") -> BadInput:
+    """:func:`_validation_error` for an error of one record of a batch, ``loc`` in the file."""
+    return _message(err, describe_item(loc, item, root, field="record"), where)
+
+
+def _message(err: Any, place: str, where: str) -> BadInput:
     msg = err["msg"][:1].lower() + err["msg"][1:]
     if err.get("type") in ("int_type", "float_type", "int_parsing", "float_parsing",
                            "less_than_equal", "greater_than_equal"):
@@ -301,72 +602,6 @@ def _rekey(matched: Mapping[int, Frame], frames: Sequence[Frame]) -> dict[int, i
     return {o: n for o, n in mapping.items() if o != n}
 
 
-def _read_dataset(data: dict[str, Any], where: str, skeleton: Skeleton,
-                  frames: Sequence[Frame]) -> CocoImport:
-    try:
-        ds = _DATASET.validate_python(data)
-    except ValidationError as exc:
-        raise _validation_error(exc, data, where) from None
-    _unique((im.id for im in ds.images), "image", where)
-    _unique((a.id for a in ds.annotations), "annotation", where)
-    _unique((c.id for c in ds.categories), "category", where)
-    cats = {}
-    for i, c in enumerate(ds.categories):
-        _check_category(c, skeleton, where, i)
-        cats[c.id] = c
-    if not cats:
-        raise BadInput("field categories: no category", where=where)
-    matched = _match_frames(ds.images, frames, where)
-    rekey = _rekey(matched, frames)
-    out = CocoImport("dataset", where, rekey=rekey)
-    for img in ds.images:
-        out.frame_ids[img.id] = img.id
-        out.file_names[img.id] = img.file_name
-        extra = {k: v for k, v in (img.model_extra or {}).items()}
-        if extra:
-            out.image_extra[img.id] = extra
-    k = skeleton.num_joints
-    raw_annotations = data["annotations"]
-    labels: list[tuple[int, _Annotation, dict[str, Any]]] = []
-    for i, a in enumerate(ds.annotations):
-        record = f"annotations[{i}] (id {a.id})"
-        if a.image_id not in matched:
-            raise BadInput(f"{record}: field image_id: no image with id {a.image_id}",
-                           where=where)
-        if a.category_id not in cats:
-            raise BadInput(f"{record}: field category_id: no category with id {a.category_id}",
-                           where=where)
-        if a.iscrowd not in (0, 1):
-            raise BadInput(f"{record}: field iscrowd: {a.iscrowd} is not 0 (a person) or 1 "
-                           "(a crowd region)", where=where)
-        if a.iscrowd:
-            kept = {key: v for key, v in raw_annotations[i].items() if key != "image_id"}
-            out.regions.append(
-                (a.image_id, _crowd_polygons(raw_annotations[i], where, record), kept))
-            continue
-        extra = {key: v for key, v in raw_annotations[i].items()
-                 if key not in ("id", "image_id", "keypoints", "score", "num_keypoints")}
-        labels.append((i, a, extra))
-    block = _keypoint_block(
-        [a.keypoints for _, a, _ in labels], k, where,
-        [f"annotations[{i}] (id {a.id})" for i, a, _ in labels],
-        [matched[a.image_id] for _, a, _ in labels])
-    no_scores = np.full(k, np.nan)
-    for (i, a, extra), kp in zip(labels, block):
-        source = AUTO if a.score is not None else IMPORTED
-        track = _track_id(extra, where, f"annotations[{i}] (id {a.id})")
-        person = Person(a.id, kp, no_scores, (source,) * k,
-                        None if a.score is None else float(a.score), extra, track,
-                        "" if track is None else IMPORTED)
-        out.people.append((a.image_id, person))
-    cat = next(iter(cats.values()))
-    out.category = {key: v for key, v in data["categories"][0].items()}
-    out.category["id"] = cat.id
-    out.dataset_extra = {key: v for key, v in data.items()
-                         if key not in ("images", "annotations", "categories")}
-    return out
-
-
 def _crowd_polygons(raw: Mapping[str, Any], where: str, record: str) -> list[list[float]]:
     seg = raw.get("segmentation")
     polys: list[list[float]] = []
@@ -389,45 +624,6 @@ def _crowd_polygons(raw: Mapping[str, Any], where: str, record: str) -> list[lis
         x, y, w, h = (float(v) for v in bbox)
         polys.append([x, y, x + w, y, x + w, y + h, x, y + h])
     return polys
-
-
-def _read_results(data: list[Any], where: str, skeleton: Skeleton,
-                  frames: Sequence[Frame]) -> CocoImport:
-    try:
-        results = _RESULTS.validate_python(data)
-    except ValidationError as exc:
-        raise _validation_error(exc, data, where, root="results") from None
-    k = skeleton.num_joints
-    by_id = {f.id: f for f in frames}
-    out = CocoImport("results", where)
-    for i, r in enumerate(results):
-        record = f"results[{i}]"
-        if r.image_id not in by_id:
-            raise BadInput(f"{record}: field image_id: no project frame with id {r.image_id}",
-                           where=where, hint="import the dataset with these image ids first")
-    block = _keypoint_block([r.keypoints for r in results], k, where,
-                            [f"results[{i}]" for i in range(len(results))],
-                            [by_id[r.image_id] for r in results], visibility=False)
-    third = block[:, :, 2]
-    as_visibility = bool(np.isin(third, (0, 1, 2)).all())
-    outside = ((third < 0) | (third > 1)).any(axis=1)
-    if not as_visibility and outside.any():
-        raise BadInput(
-            f"results[{int(np.flatnonzero(outside)[0])}]: field keypoints: third values must all "
-            "be visibility (0, 1, 2) or all be scores in [0, 1]", where=where)
-    for i, (r, kp) in enumerate(zip(results, block)):
-        if as_visibility:
-            scores = np.where(kp[:, 2] > 0, float(r.score), np.nan)
-        else:
-            scores = kp[:, 2].copy()
-            kp[:, 2] = np.where(scores > 0, 2, 0)
-        extra = {key: v for key, v in data[i].items()
-                 if key not in ("image_id", "keypoints", "score", "id")}
-        track = _track_id(extra, where, f"results[{i}]")
-        out.people.append((r.image_id, Person(0, kp, scores, (AUTO,) * k, float(r.score),
-                                              extra, track, "" if track is None else IMPORTED)))
-    out.fresh_people = len(out.people)
-    return out
 
 
 def _track_id(extra: dict[str, Any], where: str, record: str) -> int | None:

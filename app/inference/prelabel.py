@@ -20,6 +20,7 @@ budget (:mod:`app.inference.budget`).
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import json
 import logging
@@ -32,12 +33,14 @@ import numpy as np
 
 from app.analysis.association import group_people
 from app.errors import BadInput, NotFound
-from app.formats.images import max_pixels, read_image
+from app.formats.images import max_pixels, read_image, set_max_megapixels
 from app.inference.budget import check_budget
 from app.inference.config import PrelabelConfig, default_config, load_config
 from app.inference.network import PoseNetwork
 from app.jobs_analysis import _auto_person
 from app.model.labels import Frame, FrameState, Person
+from app.model.skeleton import Skeleton
+from app.parallel import default_workers, ordered_map
 from app.progress import Progress
 from app.store.project import Project
 
@@ -107,7 +110,7 @@ def find_config(model: str | Path, config: str | Path | None,
 
 def prelabel(project: Project, model: str | Path, config: str | Path | None = None,
              frames: Sequence[int] | None = None,
-             progress: Progress | None = None) -> dict[str, Any]:
+             progress: Progress | None = None, workers: int = 1) -> dict[str, Any]:
     """Run ``model`` over the frames and store auto-labels and maps, all or nothing.
 
     Parameters
@@ -124,6 +127,10 @@ def prelabel(project: Project, model: str | Path, config: str | Path | None = No
         skipped and counted.
     progress
         Progress per frame; cancelling leaves the project unchanged.
+    workers
+        Processes that each load the model and run it on frames, write their maps and group
+        them (:mod:`app.parallel`); this one stores the people. The result is the same
+        whatever the number.
 
     Returns
     -------
@@ -156,40 +163,84 @@ def prelabel(project: Project, model: str | Path, config: str | Path | None = No
     if not every:
         return {"frames": 0, "unreadable": 0}
     has_people = set(project.people_by_frame())
-    k = project.skeleton.num_joints
-    limbs = project.skeleton.limb_array
     grouping = cfg.grouping.model_dump()
     run = project.new_map_run(RUN_KIND)
+    items = [(frame, str(project.image_path(frame)), str(run / f"{frame.id}.npz"),
+              frame.id not in has_people, grouping) for frame in every]
+    if workers > 1:
+        start: Any = _start_worker
+        start_args: tuple[Any, ...] = (model, cfg, project.skeleton, where, limit,
+                                       max(1, default_workers() // workers))
+    else:
+        start, start_args = _use_network, (network,)
     try:
         found: list[tuple[int, Person]] = []
         strides: dict[int, int] = {}
         unreadable = kept = 0
-        for n, frame in enumerate(every):
-            progress.step(n, len(every), "pre-labelling")
-            try:
-                if frame.status in ("missing", "corrupt"):
-                    raise BadInput(f"the image is {frame.status}", where=frame.path)
-                image = read_image(project.image_path(frame))
-            except (BadInput, NotFound) as exc:
-                log.warning("frame %s: %s; skipped", frame.id, exc)
-                unreadable += 1
-                continue
-            maps = network.maps(image, where=f"frame {frame.id}")
-            _write_maps(run / f"{frame.id}.npz", maps.confidence_maps, maps.pafs, maps.stride)
-            strides[frame.id] = maps.stride
-            if frame.id in has_people:
-                kept += 1
-                continue
-            for person in group_people(maps.confidence_maps, maps.pafs, limbs,
-                                       stride=maps.stride, **grouping):
-                found.append((frame.id, _auto_person(person, k)))
+        # closing: no worker may still be writing maps when a failure drops the run.
+        with contextlib.closing(ordered_map(_prelabel_one, items, workers, progress,
+                                            "pre-labelling", start, start_args)) as results:
+            for frame, (stride, people) in zip(every, results, strict=True):
+                if stride is None:
+                    unreadable += 1
+                    continue
+                strides[frame.id] = stride
+                if frame.id in has_people:
+                    kept += 1
+                found.extend((frame.id, person) for person in people)
         progress.step(len(every), len(every), "pre-labelling")
         _sync_folder(run)
         stats = _store(project, Path(model), cfg, run, strides, found, kept)
     finally:
+        _use_network(None)
         project.drop_map_run(run)
     stats["unreadable"] = unreadable
     return stats
+
+
+#: The model of this process: the caller's with one worker, loaded by each worker process.
+_network: PoseNetwork | None = None
+
+
+def _use_network(network: PoseNetwork | None) -> None:
+    global _network
+    _network = network
+
+
+def _start_worker(model: str | Path, cfg: PrelabelConfig, skeleton: Skeleton, where: str,
+                  pixel_limit: int, threads: int) -> None:
+    """Set up a worker process: the caller's pixel limit, OpenCV's threads shared out between
+    the workers, and the model."""
+    import cv2
+
+    set_max_megapixels(pixel_limit / 1e6)
+    cv2.setNumThreads(threads)
+    _use_network(PoseNetwork(model, cfg, skeleton, config_where=where))
+
+
+def _prelabel_one(item: tuple[Frame, str, str, bool, dict[str, Any]]
+                  ) -> tuple[int | None, list[Person]]:
+    """Run the model on one frame, write its maps and group them (when ``group``): the
+    stride and the people found (without ids), or ``(None, [])`` when the image does not
+    read. Run in a worker process (:func:`prelabel`)."""
+    frame, image_path, maps_path, group, grouping = item
+    if _network is None:
+        raise RuntimeError("pre-labelling worker without a model")
+    try:
+        if frame.status in ("missing", "corrupt"):
+            raise BadInput(f"the image is {frame.status}", where=frame.path)
+        image = read_image(image_path)
+    except (BadInput, NotFound) as exc:
+        log.warning("frame %s: %s; skipped", frame.id, exc)
+        return None, []
+    maps = _network.maps(image, where=f"frame {frame.id}")
+    _write_maps(Path(maps_path), maps.confidence_maps, maps.pafs, maps.stride)
+    if not group:
+        return maps.stride, []
+    k = _network.skeleton.num_joints
+    people = group_people(maps.confidence_maps, maps.pafs, _network.skeleton.limb_array,
+                          stride=maps.stride, **grouping)
+    return maps.stride, [_auto_person(person, k) for person in people]
 
 
 def _write_maps(path: Path, confidence_maps: np.ndarray, pafs: np.ndarray, stride: int) -> None:

@@ -750,8 +750,11 @@ class Canvas(QWidget):
             if d.scaled_image is not None and abs(d.scale - s) < 1e-9:
                 p.drawImage(top_left, d.scaled_image)
                 return
+            if s * d.reduction >= 0.999:  # a reduced decode, until the whole one comes
+                p.drawImage(target, d.image)
+                return
             if self._scaled is None or self._scaled[0] is not d or self._scaled[1] != s:
-                small = shrink(d.pixels, s, fast=True)
+                small = shrink(d.pixels, s * d.reduction, fast=True)
                 self._scaled = (d, s, small, qimage_view(small))
             p.drawImage(top_left, self._scaled[3])
         else:

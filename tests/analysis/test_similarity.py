@@ -98,6 +98,27 @@ def test_oks_matrix_equals_pycocotools(seed):
             want[i, j], rel=1e-12, abs=1e-15)
 
 
+def test_oks_matrix_equals_pycocotools_across_chunks_and_far_pairs():
+    """pycocotools COCOeval.computeOks on a synthetic crowd large enough to be computed in
+    several chunks of references, spread over a wide frame so that most pairs are far apart
+    (terms that underflow in pycocotools must come out 0 here too), called twice so that the
+    second call reuses the scratch buffers of the first."""
+    rng = np.random.default_rng(99)
+    ref = synth.crowd(rng, 90, (6000, 1500), (40, 300))
+    ref = synth.hide_ends(rng, ref, 0.3)
+    ref[..., :2] = np.nan_to_num(ref[..., :2])
+    pred = ref[rng.permutation(90)[:50]].copy()
+    pred[..., :2] += rng.normal(0, 4, pred[..., :2].shape)
+    areas = person_area(ref)
+    boxes = np.zeros((90, 4))
+    want = pycocotools_oks(pred, ref, areas, boxes, synth.SIGMAS)
+    assert (want == 0).mean() > 0.3 and (want > 0.5).sum() >= 45
+    for _ in range(2):
+        got = oks_matrix(pred, ref, areas, synth.SIGMAS, boxes)
+        np.testing.assert_allclose(got, want, rtol=1e-12, atol=1e-300)
+        assert (got[want == 0] == 0).all()
+
+
 def test_oks_of_a_reference_without_labelled_joints_uses_the_enlarged_box():
     """pycocotools COCOeval.computeOks: with no labelled reference joint, distances are taken to
     the box enlarged to [x - w, x + 2w] x [y - h, y + 2h] (synthetic person)."""

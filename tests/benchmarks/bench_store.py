@@ -91,6 +91,76 @@ def _bench_import(tmp: Path) -> list[dict]:
                 f"parse_json {strict:.2f} s; json.loads {plain:.2f} s; {len(raw) / 2**20:.0f} MiB")]
 
 
+#: Streamed import: frames x people of the big file (1,000,000 people, about 300 MB).
+STREAM_FRAMES, STREAM_PEOPLE = 100_000, 10
+
+_STREAM_IMPORT = """
+import resource, sys, time
+sys.path.insert(0, {root!r})
+from app.jobs import import_coco
+from app.store import Project
+with Project.open({folder!r}, author="bench") as p:
+    t0 = time.perf_counter()
+    import_coco(p, {path!r})
+    took = time.perf_counter() - t0
+print(took, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024)
+"""
+
+_STREAM_BASELINE = """
+import resource, sys, time
+sys.path.insert(0, {root!r})
+from pathlib import Path
+from tests.benchmarks.bench_store import _baseline
+took = _baseline(Path({path!r}), Path({db!r}))
+print(took, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024)
+"""
+
+
+def _write_big_coco(path: Path, n_frames: int, per_frame: int, seed: int = 0) -> None:
+    """The file of :func:`_coco`, written a thousand frames at a time (synthetic people)."""
+    from app.model import coco_body
+
+    with open(path, "w", encoding="utf-8") as fh:
+        fh.write('{"images": ')
+        fh.write(json.dumps([{"id": 1 + i, "file_name": f"f{i:06d}.jpg", "width": 1920,
+                              "height": 1080} for i in range(n_frames)]))
+        fh.write(', "annotations": [')
+        for lo in range(0, n_frames, 1000):
+            part = _coco(min(1000, n_frames - lo), per_frame, seed + lo)["annotations"]
+            for a in part:
+                a["id"] += lo * per_frame
+                a["image_id"] += lo
+            text = json.dumps(part)[1:-1]
+            fh.write(("" if lo == 0 else ", ") + text)
+        fh.write('], "categories": ' + json.dumps([coco_body().coco_category()]) + "}")
+
+
+def _bench_stream(tmp: Path) -> list[dict]:
+    path = tmp / "huge.json"
+    _write_big_coco(path, STREAM_FRAMES, STREAM_PEOPLE)
+    with _project_with_frames(tmp / "huge", STREAM_FRAMES):
+        pass
+
+    def child(code: str, **names: str) -> tuple[float, float]:
+        out = subprocess.run([sys.executable, "-c", code.format(root=str(ROOT), **names)],
+                             capture_output=True, text=True, check=True).stdout.split()
+        return float(out[0]), float(out[1])
+
+    took, rss = child(_STREAM_IMPORT, folder=str(tmp / "huge"), path=str(path))
+    base, base_rss = child(_STREAM_BASELINE, path=str(path), db=str(tmp / "huge-base.db"))
+    size = path.stat().st_size / 2**20
+    people = STREAM_FRAMES * STREAM_PEOPLE
+    return [
+        row(f"import {people:,} people streamed: peak memory", rss, "MB", "<= 500 MB",
+            rss <= 500, f"{size:.0f} MiB file; json.load + executemany peaks at "
+                        f"{base_rss:.0f} MB (peak RSS of each process)"),
+        row(f"import {people:,} people streamed: time / baseline", took / base, "x",
+            "<= 2x baseline", took / base <= 2,
+            f"import {took:.1f} s (all checks, one transaction); json.load + bare "
+            f"executemany {base:.1f} s"),
+    ]
+
+
 def _bench_edits(tmp: Path) -> list[dict]:
     with _project_with_frames(tmp / "edit", 100) as p:
         from app.model import NewPerson
@@ -145,4 +215,5 @@ def _bench_open(tmp: Path) -> list[dict]:
 def run() -> list[dict]:
     with tempfile.TemporaryDirectory() as tmp:
         tmp_path = Path(tmp)
-        return _bench_edits(tmp_path) + _bench_open(tmp_path) + _bench_import(tmp_path)
+        return (_bench_edits(tmp_path) + _bench_open(tmp_path) + _bench_import(tmp_path)
+                + _bench_stream(tmp_path))

@@ -430,6 +430,77 @@ def _refuse_constant(token):
     raise AssertionError(f"{token} in a file that must be strict JSON")
 
 
+@pytest.fixture
+def small_pieces(monkeypatch):
+    """Read files 7 characters at a time and write 2 people per batch, so that the small
+    synthetic files cross every boundary a large file does."""
+    from app.fileio import JsonStream
+    from app.formats import coco
+
+    monkeypatch.setattr(JsonStream, "CHUNK", 7)
+    monkeypatch.setattr(coco, "BATCH", 2)
+
+
+def _people_of(project):
+    return sorted((p.id, f.id, np.nan_to_num(p.keypoints, nan=-1).tolist())
+                  for f in project.frames() for p in project.people(f.id))
+
+
+def test_read_in_pieces_imports_what_a_whole_read_does(project, coco_file, tmp_path,
+                                                       image_dir, small_pieces):
+    """Synthetic data. Read 7 characters at a time in batches of 2 people, with the annotations
+    before the images (a second reading), a crowd region and keys after the annotations, the
+    import equals the whole-file reading of the same file (pycocotools-checked elsewhere)."""
+    from app.formats.coco import read_coco
+
+    ds = _load(coco_file)
+    ds["annotations"].append({"id": 6000, "image_id": ds["images"][0]["id"], "category_id": 1,
+                              "iscrowd": 1, "segmentation": [[1, 1, 30, 1, 30, 20]]})
+    reordered = {"info": {"note": "synthetic"}, "annotations": ds["annotations"],
+                 "images": ds["images"], "categories": ds["categories"],
+                 "licenses": [{"id": 1}]}
+    path = _write(tmp_path, json.dumps(reordered, indent=1), "reordered.json")
+    whole = read_coco(path, project.skeleton, project.frames())
+    stats = import_coco(project, path)
+    assert stats["people"] == len(whole.people) == 18 and stats["ignore regions"] == 1
+    assert _people_of(project) == sorted(
+        (p.id, f, np.nan_to_num(p.keypoints, nan=-1).tolist()) for f, p in whole.people)
+    out = tmp_path / "out.json"
+    export_coco(project, out, states=None)
+    back = _load(out)
+    assert back["info"] == {"note": "synthetic"} and back["licenses"] == [{"id": 1}]
+
+
+def test_a_problem_in_the_last_batch_leaves_nothing(project, coco_file, tmp_path,
+                                                    small_pieces):
+    """All or nothing across batches: the 18th of 18 people is wrong (synthetic data)."""
+    ds = _load(coco_file)
+    ds["annotations"][-1]["keypoints"][2] = 3
+    path = _write(tmp_path, json.dumps(ds), "late.json")
+    with pytest.raises(BadInput, match=r"annotations\[17\] \(id \d+\): field keypoints: "
+                                       "visibility 3 of joint 0"):
+        import_coco(project, path)
+    assert project.counts()["people"] == 0 and project.history() == []
+    assert [f.id for f in project.frames()] == [1, 2, 3, 4, 5, 6]
+
+
+def test_results_read_in_pieces_decide_scores_on_the_whole_file(project, coco_file, tmp_path,
+                                                                 small_pieces):
+    """The third keypoint values are scores when any of them, in any batch, is not 0, 1 or
+    2 (synthetic results)."""
+    import_coco(project, coco_file)
+    image_id = project.frames()[0].id
+    results = [{"image_id": image_id, "category_id": 1, "score": 0.5,
+                "keypoints": [10.0 + j, 20.0, 1] * 17} for j in range(5)]
+    results[4]["keypoints"][2] = 0.25  # only the last batch holds a score
+    path = _write(tmp_path, json.dumps(results), "res.json")
+    before = project.counts()["people"]
+    assert import_coco(project, path)["people"] == 5
+    new = sorted((p for p in project.people(image_id) if p.sources[0] == "auto"),
+                 key=lambda p: p.id)
+    assert len(new) == 5 and project.counts()["people"] == before + 5
+    assert new[0].scores[0] == 1.0 and new[4].scores[0] == 0.25
+    assert new[0].keypoints[0, 2] == 2
 def test_track_ids_round_trip_and_pycocotools_still_loads_the_file(project, coco_file,
                                                                   tmp_path):
     """Source: pycocotools COCO reads our export with ``track_id`` on each annotation (an

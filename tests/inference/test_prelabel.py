@@ -161,3 +161,25 @@ def test_frame_lists():
                        ("7-3", "the range 7-3 is empty"), ("10-12", "no frame in 10-12")):
         with pytest.raises(BadInput, match=words):
             parse_frames(bad, frames)
+
+
+def test_two_workers_store_what_one_does(setup, tmp_path):
+    """Pre-labelling in two worker processes stores the same people and writes the same maps
+    as in one (synthetic frames and model, as above)."""
+    project, model, config, _ = setup
+    other = new_project(tmp_path / "proj2", images=tmp_path / "images", skeleton=SK,
+                        author="ana")
+    try:
+        assert prelabel(project, model, config, workers=1) == prelabel(other, model, config,
+                                                                        workers=2)
+        for f in project.frames():
+            mine, theirs = project.people(f.id), other.people(f.id)
+            assert [p.id for p in mine] == [p.id for p in theirs] and mine
+            for a, b in zip(mine, theirs, strict=True):
+                np.testing.assert_array_equal(a.keypoints, b.keypoints)
+                np.testing.assert_array_equal(a.scores, b.scores)
+            with np.load(project.maps_path(f.id)[0]) as x, np.load(other.maps_path(f.id)[0]) as y:
+                for key in ("confidence_maps", "pafs", "stride"):
+                    np.testing.assert_array_equal(x[key], y[key])
+    finally:
+        other.close()

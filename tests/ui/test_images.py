@@ -132,3 +132,40 @@ def test_an_urgent_frame_does_not_wait_behind_prefetches(qtbot, tmp_path, monkey
     with qtbot.waitSignal(loader.ready, timeout=WAIT_MS, check_params_cb=lambda f: f == 2):
         loader.request(2, tmp_path / "2.png")  # and can be asked for again
     loader.shutdown()
+
+
+def test_a_jpeg_shown_small_is_decoded_reduced_then_whole(qtbot, tmp_path):
+    """At a quarter zoom the waited-for JPEG is first decoded at 1/4 (reference: OpenCV's
+    own IMREAD_REDUCED_COLOR_4 of the same file; libjpeg's scaled decode is close to an area
+    average of the whole image, common practice), and refining replaces it by the whole image
+    shrunk by area averaging (reference: cv2.imread and cv2.resize INTER_AREA). A synthetic
+    smooth image with an odd size (libjpeg rounds the reduced size up)."""
+    yy, xx = np.mgrid[0:203, 0:322]
+    img = np.stack([xx % 256, yy % 256, (xx + yy) // 3 % 256], axis=2).astype(np.uint8)
+    path = tmp_path / "d.jpg"
+    cv2.imwrite(str(path), img, [cv2.IMWRITE_JPEG_QUALITY, 95])
+    loader = ImageLoader(ImageCache())
+    loader.display_scale = 0.25
+    with qtbot.waitSignal(loader.ready, timeout=WAIT_MS):
+        loader.request(1, path, urgent=True)
+    quick = loader.cache.get(1)
+    assert quick.reduction == 4 and not quick.refined and quick.pixels.shape == (51, 81, 4)
+    reduced = cv2.imread(str(path), cv2.IMREAD_REDUCED_COLOR_4)
+    np.testing.assert_array_equal(quick.pixels[..., :3], reduced)
+    whole = cv2.imread(str(path))
+    area = cv2.resize(whole, (81, 51), interpolation=cv2.INTER_AREA)
+    assert np.abs(quick.pixels[..., :3].astype(int) - area).mean() < 4
+    with qtbot.waitSignal(loader.refined, timeout=WAIT_MS):
+        loader.refine(1)
+    better = loader.cache.get(1)
+    assert better.reduction == 1 and better.refined
+    np.testing.assert_array_equal(better.pixels[..., :3], whole)
+    np.testing.assert_array_equal(
+        better.scaled[..., :3], cv2.resize(whole, (80, 51), interpolation=cv2.INTER_AREA))
+    # Prefetched frames, and PNGs, are decoded whole at once.
+    loader.request(2, path)
+    cv2.imwrite(str(tmp_path / "e.png"), img)
+    loader.request(3, tmp_path / "e.png", urgent=True)
+    qtbot.waitUntil(lambda: 2 in loader.cache and 3 in loader.cache, timeout=WAIT_MS)
+    assert loader.cache.get(2).reduction == 1 and loader.cache.get(3).reduction == 1
+    loader.shutdown()

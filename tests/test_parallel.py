@@ -1,0 +1,120 @@
+"""Batch jobs on several worker processes give what one process gives.
+
+``import-maps``, ``triage`` (with its findings) and ``targets`` run on the synthetic maps of
+tests/cli/test_analysis_commands.py (people drawn with the Cao et al. 2017 target formulas; no
+real data), once with one worker and once with two, and must store and write the same
+numbers. Pre-labelling is checked the same way in tests/inference/test_prelabel.py. Each pool
+costs a second or so to start, so the jobs share one test.
+"""
+
+from __future__ import annotations
+
+import json
+import threading
+
+import numpy as np
+import pytest
+
+from app.cli import main
+from app.errors import BadInput, Cancelled
+from app.model import MoveJoint
+from app.parallel import check_workers, ordered_map
+from app.progress import Progress
+from app.store import Project
+from tests.cli.test_analysis_commands import SK, maps_dir  # noqa: F401  (a fixture)
+
+
+def _cube(n: int) -> int:
+    if n == 7:
+        raise BadInput("seven is refused", where="item 7", hint="give another number")
+    return n**3
+
+
+def _snapshot(proj):
+    """Every person, triage score, reason and finding the project holds, in a fixed order."""
+    with Project.open(proj) as p:
+        frames = p.frames()
+        people = {f.id: [(q.id, q.keypoints.tolist(), q.scores.tolist()) for q in p.people(f.id)]
+                  for f in frames}
+        triage = {f.id: f.suspicion for f in frames}
+        findings = p.findings()
+    return people, triage, findings
+
+
+def test_two_workers_store_and_write_what_one_does(tmp_path, image_dir, maps_dir, capsys):  # noqa: F811
+    folder, _ = maps_dir
+    outputs = []
+    for workers in ("1", "2"):
+        proj = tmp_path / f"p{workers}"
+        assert main(["new", str(proj), "--images", str(image_dir), "-q"]) == 0
+        assert main(["import-maps", str(proj), str(folder), "-q", "--workers", workers]) == 0
+        with Project.open(proj, author="ana") as p:
+            f = p.frames()[1]
+            q = p.people(f.id)[0]
+            x, y = q.keypoints[SK.index("left_ankle"), :2]
+            p.apply(MoveJoint(f.id, q.id, SK.index("left_ankle"), x + 150.0, y))
+        capsys.readouterr()
+        assert main(["triage", str(proj), "-q", "--json", "--workers", workers]) == 0
+        ranked = json.loads(capsys.readouterr().out)
+        out = tmp_path / f"targets{workers}"
+        assert main(["targets", str(proj), str(out), "--states", "all", "-q",
+                     "--workers", workers]) == 0
+        manifest = json.loads((out / "manifest.json").read_text())
+        arrays = {}
+        for entry in manifest["frames"]:
+            with np.load(out / entry["targets"], allow_pickle=False) as npz:
+                arrays[entry["id"]] = {k: npz[k] for k in npz.files}
+        for volatile in ("created", "project_id"):
+            manifest.pop(volatile)
+        outputs.append((_snapshot(proj), ranked, manifest, arrays))
+    (people1, triage1, findings1), ranked1, manifest1, arrays1 = outputs[0]
+    (people2, triage2, findings2), ranked2, manifest2, arrays2 = outputs[1]
+    assert sum(len(v) for v in people1.values()) >= 12
+    assert ranked1[0]["reasons"]  # the stretched ankle gives triage something to say
+    assert people1 == people2 and triage1 == triage2 and findings1 == findings2
+    assert ranked1 == ranked2
+    assert manifest1 == manifest2
+    assert arrays1.keys() == arrays2.keys()
+    for fid, got in arrays2.items():
+        for key, value in got.items():
+            np.testing.assert_array_equal(value, arrays1[fid][key])
+
+
+def test_results_come_in_order_and_errors_keep_their_place():
+    """Order of the items whatever the finishing order; an error of a worker is raised again
+    here with its message intact, after every earlier result."""
+    got = list(ordered_map(_cube, range(7), workers=2))
+    assert got == [n**3 for n in range(7)]
+    taken = []
+    with pytest.raises(BadInput) as raised:
+        for value in ordered_map(_cube, range(12), workers=2, total=12):
+            taken.append(value)
+    assert taken == [n**3 for n in range(7)]
+    assert str(raised.value) == "item 7: seven is refused (give another number)"
+    assert raised.value.where == "item 7"
+
+
+def test_cancel_stops_the_workers():
+    """A cancel request set while results come in raises Cancelled at the next result."""
+    stop = threading.Event()
+    seen = []
+
+    def tell(done, total, label):
+        seen.append(done)
+        if done == 3:
+            stop.set()
+
+    with pytest.raises(Cancelled):
+        list(ordered_map(_cube, range(100), workers=2, progress=Progress(tell, stop),
+                         label="cubes"))
+    assert seen[:4] == [0, 1, 2, 3] and max(seen) == 3
+
+
+def test_worker_counts_are_checked(monkeypatch):
+    monkeypatch.setenv("POSEWRIGHT_WORKERS", "3")
+    assert check_workers(None) == 3
+    monkeypatch.setenv("POSEWRIGHT_WORKERS", "many")
+    with pytest.raises(BadInput, match="POSEWRIGHT_WORKERS"):
+        check_workers(None)
+    monkeypatch.delenv("POSEWRIGHT_WORKERS")
+    assert check_workers(None) >= 1
