@@ -25,9 +25,10 @@ from app.analysis.triage.findings import Finding, labels_digest
 from app.errors import EditRefused, PosewrightError
 from app.jobs_findings import accept_label
 from app.model.edits import DismissFinding, Edit, EditGroup
-from app.model.labels import Person
+from app.model.labels import Frame, FrameState, Person
 from app.model.naming import Names
 from app.session.selection import Selection
+from app.session.settling import Dispute, load_dispute
 from app.session.walk import Stop, Walk, group_findings
 from app.store.project import Project
 
@@ -87,6 +88,8 @@ class Session:
         self.names = Names.of_frame(self.skeleton, [])
         #: What is selected in the frame (the Canvas shows and changes it).
         self.selection = Selection()
+        #: The open differences of the frame shown, when it is disputed.
+        self.dispute: Dispute | None = None
         self._order = order or self._suspicion_order
         self._apply = apply or project.apply
         self.walk = Walk(lambda: self._order(), self.stops)
@@ -107,6 +110,20 @@ class Session:
         self.frame_id = int(frame_id)
         self.people = list(self.project.people(frame_id) if people is None else people)
         self.names = Names.of_frame(self.skeleton, [p.id for p in self.people])
+
+    def read_dispute(self, frame: Frame, ours: Sequence[Person],
+                     settles: bool = True) -> Dispute | None:
+        """Read the shown frame's open differences when it is disputed and ``settles`` (the
+        main project settles; a reviewer does not). A damaged alternative is logged and
+        read as none: it must not stop the annotator."""
+        dispute = None
+        if settles and frame.state is FrameState.DISPUTED:
+            try:
+                dispute = load_dispute(self.project, frame.id, ours)
+            except PosewrightError:
+                log.exception("reading the differences of frame %s failed", frame.id)
+        self.dispute = dispute
+        return dispute
 
     def _suspicion_order(self) -> list[int]:
         scores = {fid: t[0] for fid, t in self.project.triage_all().items()}

@@ -41,6 +41,9 @@ ACCENT = QColor("#f2c14e")
 GHOST = QColor("#ffffff")
 #: Widest a card gets before its text wraps (screen pixels).
 CARD_WIDTH = 380
+#: The owner list's last line: what its numbers mean.
+FIT_NOTE = ("fit 0-1: how well the joint would attach (the model's field, or limb lengths); "
+            "click to give")
 #: How many candidates the owner list shows (the rest have no chance worth a look).
 OWNER_ROWS = 3
 
@@ -288,8 +291,9 @@ def paint_owner_list(painter: QPainter, ranking: OwnerRanking, names: Names,
     width = 14 + 12 + who_w + 10 + fit_w + 10 + reason_w + 8
     row_h = m_row.height() + 4
     head = ranking.verdict
-    width = max(width, m_head.horizontalAdvance(head) + 16)
-    height = m_head.height() + 8 + row_h * len(lines) + 6
+    foot = FIT_NOTE
+    width = max(width, m_head.horizontalAdvance(head) + 16, m_row.horizontalAdvance(foot) + 16)
+    height = m_head.height() + 8 + row_h * len(lines) + m_row.height() + 10
     anchor = QRectF(joint_at - QPointF(8, 8), joint_at + QPointF(8, 8))
     rect = _place(anchor, (width, height), bounds, below=True)
     if avoid is not None and rect.intersects(avoid):
@@ -324,5 +328,7 @@ def paint_owner_list(painter: QPainter, ranking: OwnerRanking, names: Names,
         painter.drawText(QRectF(x, y, reason_w, row_h), int(Qt.AlignmentFlag.AlignVCenter),
                          m_row.elidedText(reason, Qt.TextElideMode.ElideRight, int(reason_w)))
         y += row_h
+    painter.setPen(CARD_DIM)
+    painter.drawText(QRectF(rect.left() + 8, y + 2, width - 16, m_row.height()), 0, foot)
     painter.restore()
     return targets

@@ -67,7 +67,7 @@ from app.progress import Progress
 from app.review.review import is_review
 from app.session import Session, Stop
 from app.session.owners import FIT_MEANING, OwnerRanking, rank_owners, swap_warning
-from app.session.settling import Dispute, describe_difference, load_dispute, step_difference
+from app.session.settling import Dispute, describe_difference, step_difference
 from app.store.project import Applied, Project
 from app.ui.canvas import Canvas
 from app.ui.images import ImageCache, ImageLoader
@@ -153,8 +153,6 @@ class MainWindow(QMainWindow):
         self._panels_for: int | None = None
         #: Opened from a review packet: the reviewer's side (decisions, return).
         self.review_mode = is_review(project)
-        #: The open differences of the frame shown, when it is disputed (main project).
-        self.dispute: Dispute | None = None
 
         self.actions_by_name: dict[str, QAction] = {}
         self._build_actions()
@@ -240,6 +238,11 @@ class MainWindow(QMainWindow):
         else:
             self._selection_changed()
             self._update_status()
+
+    @property
+    def dispute(self) -> Dispute | None:
+        """The open differences of the frame shown, when it is disputed (the session's)."""
+        return self.session.dispute
 
     # ------------------------------------------------------------------ building
 
@@ -580,13 +583,8 @@ class MainWindow(QMainWindow):
             return
         self.canvas.set_regions([(rid, polys) for rid, polys, _ in
                                  self.project.regions(frame.id)])
-        dispute = None
-        if not self.review_mode and frame.state is FrameState.DISPUTED:
-            try:
-                dispute = load_dispute(self.project, frame.id, self.canvas.ours)
-            except PosewrightError:  # a damaged alternative must not stop the annotator
-                log.exception("reading the differences of frame %s failed", frame.id)
-        self.dispute = dispute
+        dispute = self.session.read_dispute(frame, self.canvas.ours,
+                                            settles=not self.review_mode)
         if dispute is None:
             self.canvas.set_dispute({}, None, {})
         else:
