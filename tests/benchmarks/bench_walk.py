@@ -13,7 +13,9 @@ end of the Worklist. Figures:
   window's own work: the edit committed, the frame shown, the callouts drawn), median and
   95th percentile over the walk, apart for steps that stay in a frame and steps that end one
   (the frame's findings computed again once, before the walk leaves it). Goal: the next
-  finding shown within 50 ms. Wall clock on a shared machine; no baseline exists.
+  finding shown within 50 ms. Wall clock, and the process's CPU time beside it, since a
+  shared machine's load inflates the wall clock (the load average is reported); no baseline
+  exists.
 """
 
 from __future__ import annotations
@@ -69,7 +71,8 @@ def walk_demo(folder: Path) -> dict:
     presses = accepted = skipped = 0
     inside: list[float] = []
     ends: list[float] = []
-    cpu: list[float] = []
+    cpu_inside: list[float] = []
+    cpu_ends: list[float] = []
     press = "next_finding"
     for _ in range(5000):
         stop_was = window.session.current
@@ -78,12 +81,14 @@ def walk_demo(folder: Path) -> dict:
         actions[press].trigger()
         window.canvas.repaint()
         dt = time.perf_counter() - t0
-        cpu.append(time.process_time() - c0)
+        dc = time.process_time() - c0
         presses += 1
         stop = window.session.current
         if stop is stop_was and press == "next_finding":
             break  # the end of the walk: nothing new shown
-        (inside if window.frame_id == frame_was else ends).append(dt)
+        same = window.frame_id == frame_was
+        (inside if same else ends).append(dt)
+        (cpu_inside if same else cpu_ends).append(dc)
         if stop is None:
             break
         if stop.fix is not None and actions["accept_fix"].isEnabled() and not (
@@ -99,7 +104,8 @@ def walk_demo(folder: Path) -> dict:
     window.shutdown()
     project.close()
     return {"presses": presses, "accepted": accepted, "skipped": skipped, "before": before,
-            "after": after, "inside": inside, "ends": ends, "cpu": cpu}
+            "after": after, "inside": inside, "ends": ends,
+            "cpu_inside": cpu_inside, "cpu_ends": cpu_ends}
 
 
 def _p95(xs: list[float]) -> float:
@@ -113,19 +119,26 @@ def run() -> list[dict]:
         got = walk_demo(demo_folder(Path(tmp), None))
     fixed = got["before"] - got["after"]
     per = got["presses"] / fixed if fixed > 0 else float("inf")
-    inside_ms = 1000 * statistics.median(got["inside"]) if got["inside"] else float("nan")
-    ends_ms = 1000 * statistics.median(got["ends"]) if got["ends"] else float("nan")
     detail = (f"shipped demo: {got['presses']} presses ({got['accepted']} accepts, "
               f"{got['skipped']} skips, the first W), wrong people {got['before']} -> "
               f"{got['after']} (OKS 0.8 against the truth)")
+    ms = {k: 1000 * statistics.median(got[k]) if got[k] else float("nan")
+          for k in ("inside", "ends", "cpu_inside", "cpu_ends")}
+    load = os.getloadavg()[0]
+    where = f"load average {load:.1f} on {os.cpu_count()} cores"
     return [
         row("walk: key presses per wrong person fixed", per, "keys", "<= 2.5", per <= 2.5,
             detail),
-        row("walk: next finding shown, same frame (median)", inside_ms, "ms", "<= 50 ms",
-            inside_ms <= 50, f"95th percentile {1000 * _p95(got['inside']):.0f} ms over "
-            f"{len(got['inside'])} steps; accept or skip, edit committed, Canvas painted; "
-            f"CPU median {1000 * statistics.median(got['cpu']):.0f} ms over all steps"),
-        row("walk: next finding shown, next frame (median)", ends_ms, "ms", "<= 50 ms",
-            ends_ms <= 50, f"95th percentile {1000 * _p95(got['ends']):.0f} ms over "
-            f"{len(got['ends'])} steps; includes the left frame's findings computed again"),
+        row("walk: next finding shown, same frame (median wall)", ms["inside"], "ms",
+            "<= 50 ms", ms["inside"] <= 50,
+            f"95th percentile {1000 * _p95(got['inside']):.0f} ms over {len(got['inside'])} "
+            f"steps (accept or skip: edit committed, Canvas painted); {where}"),
+        row("walk: same frame, CPU time of the step (median)", ms["cpu_inside"], "ms",
+            "<= 50 ms", ms["cpu_inside"] <= 50,
+            "the process's CPU seconds, which a shared machine's load does not inflate"),
+        row("walk: next finding shown, next frame (median wall)", ms["ends"], "ms",
+            "<= 50 ms", ms["ends"] <= 50,
+            f"95th percentile {1000 * _p95(got['ends']):.0f} ms over {len(got['ends'])} "
+            f"steps; includes the left frame's findings computed again; CPU median "
+            f"{ms['cpu_ends']:.0f} ms"),
     ]
