@@ -226,7 +226,7 @@ def paint_walk_card(painter: QPainter, card: WalkCard, box: QRectF, bounds: QRec
             else "Triage") + where
     if fix is not None:
         sure = [f.confidence for f in stop.findings]
-        conf = f" ({min(sure):.0%} sure or more)" if stop.group else \
+        conf = f" (each at least {min(sure):.0%} sure)" if stop.group else \
             f" ({sure[0]:.0%} sure)" if sure else ""
         summary = "mark them occluded" if stop.group else fix.summary
         tail = f"Fix{conf}: {summary}.  Y accepts \u00b7 I not a problem \u00b7 W skips"

@@ -987,6 +987,8 @@ class MainWindow(QMainWindow):
                 self.canvas.select_joints([(stop.person_id, j) for j in joints])
             else:
                 self.canvas.select_person(stop.person_id)
+        else:  # a frame's group of findings: what they are about is marked, not selected
+            self.canvas.select_person(None)
         stops = self.session.stops(stop.frame_id)
         keys = [s.key for s in stops]
         where = f"{keys.index(stop.key) + 1} of {len(stops)}" if stop.key in keys else ""
@@ -995,7 +997,6 @@ class MainWindow(QMainWindow):
         self._update_status()
 
     def _frame_maps(self) -> Any:
-
         if self.frame_id is None:
             return None
         if self._maps is not None and self._maps[0] == self.frame_id:
