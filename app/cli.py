@@ -2,7 +2,7 @@
 
 Every command that meets bad input exits with status 2 after one line on stderr that says what
 is wrong and where (file, record, field), without a traceback and without writing anything.
-Output cut short by its reader (``posewright history P | head``) ends the command quietly with
+Output cut short by its reader (``posewright ledger P | head``) ends the command quietly with
 status 141, what a shell reports for a command stopped by SIGPIPE (128 + 13), as the other
 commands of such a pipeline do (common practice, no source).
 Text that came from a file (names, file names, ledger entries, messages quoting them) is
@@ -27,11 +27,11 @@ from app import __version__
 from app.errors import BadInput, Cancelled, PosewrightError, ProjectLocked
 from app.fileio import MAX_ID, json_ready, read_json
 from app.model.labels import FrameState
-from app.model.naming import Names, ledger_text
+from app.model.naming import Names, ledger_names
 from app.parallel import check_workers
 from app.progress import Progress
 from app.safetext import shown
-from app.wording import count
+from app.wording import count, ledger_text
 
 #: Exit status when the reader of our output went away (128 + SIGPIPE).
 BROKEN_PIPE_STATUS = 141
@@ -261,7 +261,7 @@ def _warn_export(stats: dict[str, Any]) -> None:
         print(f"posewright: warning: {line}", file=sys.stderr)
 
 
-def cmd_history(args: argparse.Namespace) -> int:
+def cmd_ledger(args: argparse.Namespace) -> int:
     with _open(args, write=False) as project:
         frame_id = project.find_frame(args.frame).id if args.frame is not None else None
         entries = project.history(frame_id=frame_id, limit=args.limit)
@@ -273,7 +273,9 @@ def cmd_history(args: argparse.Namespace) -> int:
     for e in entries:
         when = time.strftime("%Y-%m-%d %H:%M:%S", time.localtime(e.time))
         frame = "-" if e.frame_id is None else str(e.frame_id)
-        what = e.summary if e.frame_id is None else ledger_text(e.summary, names[e.frame_id])
+        what = ledger_text(e.summary)
+        if e.frame_id is not None:
+            what = ledger_names(what, names[e.frame_id])
         print(f"{e.seq:>6}  {when}  {shown(e.author):<12}  frame {frame:<6}  {e.kind:<6}  "
               f"{shown(e.target):<22}  {shown(what)}")
     return 0
@@ -510,8 +512,8 @@ def build_parser() -> argparse.ArgumentParser:
                                 parser_class=_Parser)
 
     def command(name: str, fn: Callable[[argparse.Namespace], int], text: str,
-                project: bool = True) -> argparse.ArgumentParser:
-        p = sub.add_parser(name, help=text, description=text)
+                project: bool = True, aliases: Sequence[str] = ()) -> argparse.ArgumentParser:
+        p = sub.add_parser(name, help=text, description=text, aliases=list(aliases))
         if project:
             p.add_argument("project", metavar="PROJECT",
                            help="the project folder, or a hosted project's database URL")
@@ -563,7 +565,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--states", metavar="LIST", default="corrected,signed-off",
                    help=_STATES_HELP)
 
-    p = command("history", cmd_history, "show the ledger of edits, newest first")
+    p = command("ledger", cmd_ledger, "show the Ledger: every edit, newest first (`history`, "
+                "its name until version 0.1.0, still works for one more release)",
+                aliases=["history"])
     p.add_argument("--frame", metavar="ID", help="only this frame (id or file name)")
     p.add_argument("--limit", type=whole_number(0), metavar="N")
     p.add_argument("--json", action="store_true")
@@ -665,7 +669,7 @@ def build_parser() -> argparse.ArgumentParser:
 def _images_root_option(sub: Any) -> None:
     """Give every command that takes a project ``--images-root DIR`` (and ``--images DIR``
     where ``--images`` means nothing else): a hosted project's images root on this machine."""
-    for parser in sub.choices.values():
+    for parser in {id(p): p for p in sub.choices.values()}.values():  # aliases: once each
         nested = [a for a in parser._actions if isinstance(a, argparse._SubParsersAction)]
         for action in nested:
             _images_root_option(action)

@@ -15,6 +15,7 @@ from typing import Any
 
 from app.errors import BadInput
 from app.safetext import shown
+from app.wording import count
 
 Command = Callable[..., argparse.ArgumentParser]
 
@@ -108,8 +109,8 @@ def cmd_findings(args: argparse.Namespace) -> int:
         print(f"      fix: {shown(f.fix.summary)}" if f.fix is not None else
               "      fix: none proposed")
     with_fix = sum(f.fix is not None for f in rows)
-    print(f"{len(rows)} findings in {len({f.frame_id for f in rows})} frames, {with_fix} with "
-          "a proposed fix")
+    print(f"{count(len(rows), 'finding')} in {count(len({f.frame_id for f in rows}), 'frame')}, "
+          f"{with_fix} with a proposed fix")
     return 0
 
 
@@ -128,7 +129,7 @@ def _accept(args: argparse.Namespace, kinds: set[str] | None) -> int:
         print(f"{f.confidence:4.2f}  {f.id}  frame {f.frame_id} {shown(names[f.frame_id])}  "
               f"{f.kind}: {shown(f.fix.summary if f.fix else '')}")
     verb = "would apply" if args.dry_run else "applied"
-    line = f"{verb} {len(report.fixes)} fixes in {len(report.frames)} frames"
+    line = f"{verb} {count(len(report.fixes), 'fix')} in {count(len(report.frames), 'frame')}"
     extra = []
     if report.held_back:
         extra.append(f"{report.held_back} held back by an overlapping fix")
@@ -164,7 +165,7 @@ def _unwind(args: argparse.Namespace, redo: bool) -> int:
             print(f"{word}{frame}: {shown(summary)}")
     if done < steps:
         print(f"nothing more to {'redo' if redo else 'undo'}"
-              + (f" after {done} step{'s' if done != 1 else ''}" if done else ""),
+              + (f" after {count(done, 'step')}" if done else ""),
               file=sys.stderr if done else sys.stdout)
     return 0
 

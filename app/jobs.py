@@ -316,9 +316,9 @@ and 1 disputed frame: labels nobody has checked or still in dispute']
     lines = []
     if counts.get("unreadable"):
         n = counts["unreadable"]
-        lines.append(f"{count(n, 'frames')} not exported: "
+        lines.append(f"{count(n, 'frame')} not exported: "
                      + ("its image cannot be read" if n == 1 else "their images cannot be read"))
-    held = [count(counts[k], f"{k} frames") for k in ("untouched", "disputed") if counts.get(k)]
+    held = [count(counts[k], f"{k} frame") for k in ("untouched", "disputed") if counts.get(k)]
     if held:
         lines.append("the export holds " + " and ".join(held)
                      + ": labels nobody has checked or still in dispute")

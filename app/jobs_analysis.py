@@ -231,7 +231,7 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
                         "a limb when 0 <= u.(p - x1) <= |x2 - x1| and |u_perp.(p - x1)| <= "
                         "limb_width; channel order x then y",
                 "loss_mask": "channels: K confidence maps, then x and y of each limb; 0 in "
-                             "ignore regions and on an unlabeled joint's channels inside its "
+                             "ignore regions and on an unlabelled joint's channels inside its "
                              "person's box",
             },
             "skeleton": sk.to_dict(),

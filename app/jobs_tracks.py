@@ -31,6 +31,7 @@ from app.model.sequences import NOT_SEQUENCES, Sequence, parse_not_sequences, se
 from app.model.targets import StateTarget
 from app.progress import Progress
 from app.store.project import Project
+from app.wording import count
 
 log = logging.getLogger(__name__)
 
@@ -138,8 +139,8 @@ def link_project(project: Project, progress: Progress | None = None,
         out.people += sum(len(ps) for ps in frames.values())
     progress.step(len(seqs), len(seqs), "linking tracks")
     if write and rows:
-        project.set_tracks(rows, f"link {len(rows)} people of {out.sequences} sequences into "
-                                 "tracks")
+        project.set_tracks(rows, f"link {count(len(rows), 'person')} of "
+                                 f"{count(out.sequences, 'sequence')} into tracks")
     out.tracks = tracks_of(project) if write else []
     out.links = sum(len(t.frames) - 1 for t in out.tracks)
     return out
@@ -223,5 +224,5 @@ def take_batch(project: Project, batch: CarriedBatch) -> Any:
         return None
     frames = len(batch.edits)
     return project.apply_batch(batch.edits, f"carry the correction of frame {batch.origin} to "
-                               f"{frames} frame{'s' if frames > 1 else ''}",
+                               f"{count(frames, 'frame')}",
                                action="CarryForward")

@@ -21,6 +21,7 @@ import numpy as np
 from scipy.optimize import linear_sum_assignment
 
 from app.errors import BadInput
+from app.wording import count
 
 __all__ = ["joint_disagreement", "match_people", "oks", "oks_matrix", "person_area"]
 
@@ -180,14 +181,17 @@ def oks_matrix(
     ref = _people(reference, "reference")
     k = ref.shape[1]
     if pred.shape[1] != k:
-        raise BadInput(f"predicted people have {pred.shape[1]} joints, references {k}",
+        raise BadInput(f"predicted people have {count(pred.shape[1], 'joint')}, "
+                       f"references {k}",
                        where="predicted")
     sig = np.asarray(sigmas, dtype=np.float64).reshape(-1)
     if sig.size != k:
-        raise BadInput(f"{sig.size} sigmas for {k} joints", where="sigmas")
+        raise BadInput(f"{count(sig.size, 'sigma')} for {count(k, 'joint')}", where="sigmas")
     area = np.asarray(areas, dtype=np.float64).reshape(-1)
     if area.size != ref.shape[0]:
-        raise BadInput(f"{area.size} areas for {ref.shape[0]} reference people", where="areas")
+        raise BadInput(f"{count(area.size, 'area')} for "
+                       f"{count(ref.shape[0], 'reference person', 'reference people')}",
+                       where="areas")
     n, m = pred.shape[0], ref.shape[0]
     labelled = ref[:, :, 2] > 0  # (M, K)
     num_labelled = labelled.sum(axis=1)
@@ -206,7 +210,8 @@ def oks_matrix(
     if empty.any() and boxes is not None:
         box = np.asarray(boxes, dtype=np.float64).reshape(-1, 4)
         if box.shape[0] != m:
-            raise BadInput(f"{box.shape[0]} boxes for {m} reference people", where="boxes")
+            raise BadInput(f"{count(box.shape[0], 'box')} for "
+                           f"{count(m, 'reference person', 'reference people')}", where="boxes")
         cols = np.flatnonzero(empty)
         out[:, cols] = _box_oks(pred, box[cols], area[cols], sig)
     return out
@@ -383,7 +388,8 @@ def joint_disagreement(a: Any, b: Any, scale: float) -> np.ndarray:
     pa = _people(a, "a")[0]
     pb = _people(b, "b")[0]
     if pa.shape != pb.shape:
-        raise BadInput(f"the two people have {pa.shape[0]} and {pb.shape[0]} joints", where="b")
+        raise BadInput(f"the two people have {pa.shape[0]} and {count(pb.shape[0], 'joint')}",
+                       where="b")
     scale = float(scale)
     if not scale > 0:
         raise BadInput(f"scale {scale} must be positive", where="scale")

@@ -132,7 +132,7 @@ def candidate_owners(
                 reason = f"{lengths[near]:.0f} px from the {names[near]} (no torso to compare)"
         if kp[joint, 2] > 0:
             score *= 0.8
-            reason += f"; already has a {skeleton.joints[joint].replace('_', ' ')} (a swap)"
+            reason += " · swaps with its own"
         out.append(Candidate(int(pid), score, reason))
     out.sort(key=lambda c: (-c.score, c.person_id))
     return out

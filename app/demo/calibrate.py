@@ -53,6 +53,7 @@ from app.fileio import read_json
 from app.model.edits import Edit, EditGroup, SetVisibility, needs_person_id, with_person_id
 from app.model.labels import Frame, FrameLabels
 from app.model.skeleton import Skeleton
+from app.wording import count
 
 log = logging.getLogger(__name__)
 
@@ -363,7 +364,7 @@ def main(argv: Sequence[str] | None = None) -> int:
                              "shipped calibration")
     parser.add_argument("--measure", metavar="SEEDS", default="",
                         help="seeds to measure on (e.g. 20-22); the reliability table is "
-                             "theirs")
+                             "measured on them")
     parser.add_argument("--shipped", action="store_true", help="also measure the shipped demo")
     parser.add_argument("--cache", metavar="DIR", required=True,
                         help="where generated demos are kept")
@@ -377,7 +378,8 @@ def main(argv: Sequence[str] | None = None) -> int:
         effects = []
         for seed in seeds:
             effects += fix_effects(demo_frames(demo_folder(args.cache, seed)), f"seed {seed}")
-            print(f"seed {seed}: {len(effects)} fixes so far", file=sys.stderr, flush=True)
+            print(f"seed {seed}: {count(len(effects), 'fix')} so far", file=sys.stderr,
+                  flush=True)
         calibration = fit_calibration(effects, seeds)
         report["calibration"] = {"coefficients": dict(calibration.coefficients),
                                  "fitted_on": list(calibration.fitted_on),

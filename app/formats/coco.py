@@ -63,6 +63,7 @@ from app.fileio import MAX_ID, JsonId, JsonStream, describe, describe_item, json
 from app.formats.images import MAX_SIDE
 from app.model.labels import AUTO, IMPORTED, Frame, Person
 from app.model.skeleton import Skeleton
+from app.wording import count
 
 Number = StrictInt | StrictFloat
 
@@ -472,7 +473,7 @@ def _check_keypoints(values: Sequence[float], k: int, where: str, record: str,
     if len(values) != 3 * k:
         raise BadInput(
             f"{record}: field keypoints: {len(values)} values, the project's skeleton needs "
-            f"{3 * k} (x, y, v for {k} joints)", where=where)
+            f"{3 * k} (x, y, v for {count(k, 'joint')})", where=where)
     kp = np.asarray(values, dtype=np.float64).reshape(k, 3)
     if visibility:
         bad = ~np.isin(kp[:, 2], (0, 1, 2))
@@ -534,8 +535,8 @@ def _check_category(cat: _Category, skeleton: Skeleton, where: str, i: int) -> N
     record = f"categories[{i}] (id {cat.id})"
     if len(cat.keypoints) != skeleton.num_joints:
         raise BadInput(
-            f"{record}: field keypoints: {len(cat.keypoints)} joints, the project's skeleton "
-            f"has {skeleton.num_joints}", where=where)
+            f"{record}: field keypoints: {count(len(cat.keypoints), 'joint')}, the project's "
+            f"skeleton has {skeleton.num_joints}", where=where)
     for j, (a, b) in enumerate(zip(cat.keypoints, skeleton.joints)):
         if a != b:
             raise BadInput(
@@ -563,8 +564,8 @@ def _match_frames(images: Sequence[_Image], frames: Sequence[Frame],
             candidates = by_base.get(PurePosixPath(name).name, [])
             if len(candidates) > 1:
                 raise BadInput(
-                    f"{record}: field file_name: {img.file_name!r} matches {len(candidates)} "
-                    "project images by base name", where=where,
+                    f"{record}: field file_name: {img.file_name!r} matches "
+                    f"{count(len(candidates), 'project image')} by base name", where=where,
                     hint="use file names relative to the project's images folder")
             frame = candidates[0] if candidates else None
         if frame is None:

@@ -22,6 +22,7 @@ import numpy as np
 from app.errors import BadInput
 from app.model.labels import Frame
 from app.model.skeleton import Skeleton
+from app.wording import count
 
 #: Largest uncompressed size of one file's arrays (2 GiB).
 MAX_BYTES = 2 * 2**30
@@ -69,8 +70,9 @@ def read_maps(path: str | Path, skeleton: Skeleton, image_size: tuple[int, int])
             raise BadInput(f"key {key}: dtype {arr.dtype} is not floating point", where=where)
         if arr.shape != want:
             raise BadInput(
-                f"key {key}: shape {arr.shape}, expected {want} for {k} joints, {n_limbs} limbs "
-                f"and a {width}x{height} image at stride {stride}", where=where)
+                f"key {key}: shape {arr.shape}, expected {want} for {count(k, 'joint')}, "
+                f"{count(n_limbs, 'limb')} and a {width}x{height} image at stride {stride}",
+                where=where)
         if not np.isfinite(arr).all():
             raise BadInput(f"key {key}: holds values that are not finite numbers", where=where)
     return NetworkMaps(cmaps.astype(np.float32, copy=False), pafs.astype(np.float32, copy=False),

@@ -23,6 +23,7 @@ import cv2
 
 from app.errors import BadInput
 from app.progress import Progress
+from app.wording import count
 
 log = logging.getLogger(__name__)
 
@@ -201,7 +202,7 @@ def extract_frames(video: str | Path, out_dir: str | Path, every: int = 1,
         if not written:
             raise BadInput(f"no frame between {begin:g} s and "
                            f"{'the end' if end is None else f'{end:g} s'} "
-                           f"(the video has {index + 1} frames"
+                           f"(the video has {count(index + 1, 'frame')}"
                            + (f", {(index + 1) / info.fps:.2f} s" if info.fps else "") + ")",
                            where=str(info.path))
     except BaseException:

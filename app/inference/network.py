@@ -34,6 +34,7 @@ from app.inference.geometry import (
     resample_to_grid,
 )
 from app.model.skeleton import Skeleton
+from app.wording import count, plural
 
 log = logging.getLogger(__name__)
 
@@ -233,13 +234,15 @@ class PoseNetwork:
         cm = self._channels(by_name[self._cm[0]], self._cm, "confidence_maps")
         paf = self._channels(by_name[self._paf[0]], self._paf, "pafs")
         if cm.shape[0] != len(cfg.joint_order):
-            raise BadInput(f"field joint_order: {len(cfg.joint_order)} entries, but the "
-                           f"confidence maps have {cm.shape[0]} channels", where=self._where,
+            raise BadInput(f"field joint_order: {count(len(cfg.joint_order), 'entry')}, but "
+                           f"the confidence maps have {count(cm.shape[0], 'channel')}",
+                           where=self._where,
                            hint="give one entry (a joint name or null) per channel")
         if paf.shape[0] != 2 * len(cfg.limb_order):
-            raise BadInput(f"field limb_order: {len(cfg.limb_order)} entries need "
-                           f"{2 * len(cfg.limb_order)} field channels, but the model gives "
-                           f"{paf.shape[0]}", where=self._where,
+            raise BadInput(f"field limb_order: {count(len(cfg.limb_order), 'entry')} "
+                           f"{plural(len(cfg.limb_order), 'needs', 'need')} "
+                           f"{count(2 * len(cfg.limb_order), 'field channel')}, but the model "
+                           f"gives {paf.shape[0]}", where=self._where,
                            hint="give one entry (a joint pair or null) per field")
         if cm.shape[1:] != paf.shape[1:]:
             raise BadInput(f"field outputs: the confidence maps are {cm.shape[1]}x{cm.shape[2]} "
@@ -284,7 +287,7 @@ class PoseNetwork:
             first, stop = channels
             if stop > arr.shape[0]:
                 raise BadInput(f"field outputs.{key}.channels: [{first}, {stop}] reaches past "
-                               f"the {arr.shape[0]} channels of output {name!r}",
+                               f"the {count(arr.shape[0], 'channel')} of output {name!r}",
                                where=self._where)
             arr = arr[first:stop]
         return arr.astype(np.float32, copy=False)

@@ -38,6 +38,7 @@ from app.model.targets import (
     Target,
     TrackTarget,
 )
+from app.wording import plural
 
 #: The provenance of joints interpolated from neighbouring frames, not yet checked by anyone.
 INTERPOLATED = "interpolated"
@@ -259,7 +260,7 @@ class SetVisibility(Edit):
         return [_joint_change(p, j, [x, y, int(self.v), s, ctx.author])]
 
     def summary(self) -> str:
-        word = {0: "unlabeled", 1: "occluded", 2: "visible"}.get(self.v, str(self.v))
+        word = {0: "unlabelled", 1: "occluded", 2: "visible"}.get(self.v, str(self.v))
         return f"mark joint {self.joint} of person {self.person_id} {word}"
 
 
@@ -284,7 +285,7 @@ class ReassignJoint(Edit):
         if giver.id == taker.id:
             raise EditRefused(f"joint {j} already belongs to person {giver.id}")
         if giver.keypoints[j, 2] <= 0:
-            raise EditRefused(f"joint {j} of person {giver.id} is unlabeled; nothing to give")
+            raise EditRefused(f"joint {j} of person {giver.id} is unlabelled; nothing to give")
         gx, gy, gv, gs, _ = giver.joint_value(j)
         tx, ty, tv, ts, _ = taker.joint_value(j)
         to_taker = [gx, gy, gv, gs, ctx.author]
@@ -367,8 +368,9 @@ class MergePeople(Edit):
         both = np.flatnonzero(keep.labelled & gone.labelled)
         if both.size:
             raise EditRefused(
-                f"person {keep.id} and person {gone.id} both have joint(s) "
-                f"{', '.join(map(str, both))} labelled; unlabel or reassign one of each first"
+                f"person {keep.id} and person {gone.id} both have "
+                f"{plural(both.size, 'joint')} {', '.join(map(str, both))} labelled; unlabel or "
+                "reassign one of each first"
             )
         changes = []
         for j in np.flatnonzero(gone.labelled):
@@ -606,7 +608,7 @@ class KeepOurs(Edit):
         return changes
 
     def summary(self) -> str:
-        return "keep ours"
+        return "keep mine"
 
 
 @dataclass(frozen=True)
@@ -749,7 +751,7 @@ def edit_to_value(edit: Edit) -> dict[str, Any]:
     """
     name = type(edit).__name__
     if name not in _SERIALISABLE:
-        raise EditRefused(f"{name} edits are not written out")
+        raise EditRefused(f"an edit of type {name} is not written out")
     out: dict[str, Any] = {"op": name}
     for key, value in edit.__dict__.items():
         if isinstance(edit, EditGroup) and key == "edits":
@@ -786,7 +788,7 @@ def edit_from_value(value: Any) -> Edit:
     try:
         return cls(**fields)
     except TypeError as exc:
-        raise EditRefused(f"not a {value['op']} edit: {exc}") from None
+        raise EditRefused(f"not an edit of type {value['op']}: {exc}") from None
 
 
 def _plain(value: Any) -> Any:

@@ -172,7 +172,7 @@ _LEDGER_NAMES = re.compile(r"\bjoints? (\[[\d, ]*\]|\d+) of person (\d+)"
                            r"|\bperson (?:\d+ )?\(#(\d+)\)|\bperson #(\d+)|\bperson (\d+)\b")
 
 
-def ledger_text(summary: str, names: Names) -> str:
+def ledger_names(summary: str, names: Names) -> str:
     """A ledger summary as people read it: each person by tag and stable number, each joint
     by name.
 
@@ -184,11 +184,11 @@ def ledger_text(summary: str, names: Names) -> str:
     --------
     >>> from app.model.skeleton import coco_body
     >>> names = Names.of_frame(coco_body(), [7, 49])
-    >>> ledger_text("give joint 9 of person 49 to person 7", names)
+    >>> ledger_names("give joint 9 of person 49 to person 7", names)
     "give person 2 (#49)'s left wrist to person 1 (#7)"
-    >>> ledger_text("split joints [11, 12] of person 49 into a new person", names)
+    >>> ledger_names("split joints [11, 12] of person 49 into a new person", names)
     "split person 2 (#49)'s hips into a new person"
-    >>> ledger_text("delete person 3 (#80)", names)
+    >>> ledger_names("delete person 3 (#80)", names)
     'delete person #80'
     """
     def named(m: re.Match[str]) -> str:

@@ -9,15 +9,33 @@ from typing import Any
 
 from app.model.labels import Person
 
+#: A reviewer's decisions on a frame: the labels look right; the labels are queried (the
+#: frame comes back disputed); the frame is ready for training (it comes back signed off).
+#: None repeats the name of a frame state.
+DECISIONS = ("looks-right", "query", "ready")
+#: The decisions as version 0.1.0 wrote them into review projects and returned packets;
+#: they are read as today's (see :class:`FrameDecision`).
+OLD_DECISIONS = {"agree": "looks-right", "needs-change": "query", "signed-off": "ready"}
+
 
 @dataclass(frozen=True)
 class FrameDecision:
-    """The reviewer's verdict on a frame: agree, needs-change or signed-off."""
+    """The reviewer's decision on a frame, one of :data:`DECISIONS` (an old spelling from
+    :data:`OLD_DECISIONS` is read as today's).
+
+    Examples
+    --------
+    >>> FrameDecision(3, "needs-change", "bea", 0.0).decision
+    'query'
+    """
 
     frame_id: int
     decision: str
     author: str
     time: float
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "decision", OLD_DECISIONS.get(self.decision, self.decision))
 
 
 @dataclass(frozen=True)

@@ -11,7 +11,7 @@ import argparse
 import math
 import sys
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
 
@@ -25,7 +25,7 @@ Command = Callable[..., argparse.ArgumentParser]
 
 
 def register(sub: Any, command: Command) -> None:
-    """Add ``packet export|show|decide|return|merge`` and ``compare`` to the parser.
+    """Add ``packet export|show|decide|send-back|merge`` and ``compare`` to the parser.
 
     ``sub`` is the top-level subparsers object, ``command`` app/cli.py's helper that adds a
     command with ``PROJECT``, ``--author`` and ``-q``.
@@ -44,15 +44,16 @@ def register(sub: Any, command: Command) -> None:
     p.add_argument("--skeleton", metavar="FILE.json",
                    help="skeleton of COCO files that are not the 17-joint COCO body")
 
-    group = sub.add_parser("packet", help="review packets: export, show, decide, return, merge",
+    group = sub.add_parser("packet", help="review packets: export, show, decide, send-back, "
+                           "merge",
                            description="send frames to a colleague for review and merge "
                                        "their answer")
     actions = group.add_subparsers(dest="packet_command", required=True, metavar="ACTION",
                                    parser_class=type(group))
 
     def action(name: str, fn: Callable[[argparse.Namespace], int],
-               text: str) -> argparse.ArgumentParser:
-        q = actions.add_parser(name, help=text, description=text)
+               text: str, aliases: Sequence[str] = ()) -> argparse.ArgumentParser:
+        q = actions.add_parser(name, help=text, description=text, aliases=list(aliases))
         q.add_argument("--author", help="who is working; reviewing, the reviewer (default: "
                                         "the one the review was first opened for, else the "
                                         "reviewer the packet names, $POSEWRIGHT_AUTHOR or "
@@ -88,13 +89,18 @@ def register(sub: Any, command: Command) -> None:
     q.add_argument("packet", metavar="FILE.zip")
     q.add_argument("--frame", required=True, type=whole_number(), metavar="ID")
     q.add_argument("--decision", required=True,
-                   help="agree, needs-change, signed-off, or none to withdraw")
+                   help="looks-right, query (it comes back disputed), ready (for training: "
+                   "it comes back signed off), or none to withdraw; agree, needs-change and "
+                   "signed-off, the words of version 0.1.0, still work")
 
-    q = action("return", cmd_return, "write FILE-returned.zip from the reviewed packet")
+    q = action("send-back", cmd_send_back, "write FILE-returned.zip from the reviewed packet, "
+               "to send back (`return`, its name until version 0.1.0, still works for one "
+               "more release)", aliases=["return"])
     q.add_argument("packet", metavar="FILE.zip")
     q.add_argument("--out", metavar="FILE", help="default: FILE-returned.zip beside FILE.zip")
 
-    q = action("merge", cmd_merge, "merge a returned packet into the project (three-way)")
+    q = action("merge", cmd_merge, "merge a packet sent back into the project, joint by joint "
+               "(the packet's base, the project now, the reviewer's)")
     q.add_argument("project", metavar="PROJECT")
     q.add_argument("returned", metavar="RETURNED.zip")
     q.add_argument("--json", action="store_true", help="print the merge report as JSON")
@@ -211,7 +217,7 @@ def cmd_decide(args: argparse.Namespace) -> int:
     return 0
 
 
-def cmd_return(args: argparse.Namespace) -> int:
+def cmd_send_back(args: argparse.Namespace) -> int:
     from app.review.review import open_packet, return_packet
 
     with open_packet(args.packet, reviewer=args.author) as project:

@@ -33,6 +33,7 @@ from app.model.skeleton import Skeleton, coco_body
 from app.store import Project
 from app.store.hosted import is_database_url
 from app.store.project import DB_NAME
+from app.wording import count
 
 __all__ = [
     "Comparison", "FrameComparison", "JointRow", "LabelSet", "compare", "compare_frame",
@@ -400,8 +401,8 @@ def mark_disputed(project: Project, comparison: Comparison, threshold: float,
 def _note(fc: FrameComparison, other: str) -> str:
     parts = [f"compared with {other}: mean OKS {fc.mean_oks:.2f}"]
     if fc.unpaired_a or fc.unpaired_b:
-        parts.append(f"{len(fc.unpaired_a)} people here and {len(fc.unpaired_b)} there "
-                     "without a counterpart")
+        parts.append(f"{count(len(fc.unpaired_a), 'person')} here and "
+                     f"{len(fc.unpaired_b)} there without a counterpart")
     if fc.disagreements:
         joints = ", ".join(f"{name} of person {pa}" for pa, _, _, name, _ in
                            fc.disagreements[:8])

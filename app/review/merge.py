@@ -17,10 +17,11 @@ position remembered for an unlabeled joint, a score or a provenance is not a lab
 - People the reviewer added come over with fresh ids of the project; notes the reviewer added
   come over with their author and time. Notes are never removed.
 
-The reviewer's decision on a frame: ``needs-change`` makes it disputed; ``signed-off`` signs
-it off when nothing conflicts and the frame has not changed here since the packet was made
-(so what is signed off is exactly what the reviewer saw); ``agree`` on a disputed frame, under
-the same two conditions, settles it as corrected, and changes no other state.
+The reviewer's decision on a frame: ``query`` makes it disputed; ``ready`` (for training)
+signs it off when nothing conflicts and the frame has not changed here since the packet was
+made (so what is signed off is exactly what the reviewer saw); ``looks-right`` on a disputed
+frame, under the same two conditions, settles it as corrected, and changes no other state.
+The words of version 0.1.0 (``needs-change``, ``signed-off``, ``agree``) mean the same.
 
 **Returning again.** A reviewer may edit more and return the same packet again. A later return
 of the same packet by the same reviewer supersedes their earlier one: its base is their
@@ -57,12 +58,13 @@ import numpy as np
 from app.errors import BadInput, EditRefused, NotFound
 from app.model.edits import AddNote, Change, EditContext, NewPerson, Restore, SetFrameState
 from app.model.labels import FrameLabels, FrameState, Note, Person
-from app.model.records import PacketRecord
+from app.model.records import OLD_DECISIONS, PacketRecord
 from app.model.targets import JointTarget, PersonTarget
 from app.progress import Progress
 from app.review import safezip
 from app.review.packet import FrameContent, Packet, read_packet
 from app.store import Project
+from app.wording import count
 
 log = logging.getLogger(__name__)
 
@@ -222,11 +224,12 @@ def plan_frame(base: FrameContent, ours: FrameLabels, theirs: FrameContent,
     for nid, note in sorted(theirs.notes.items()):
         if nid not in base.notes and (note.author, note.time, note.text) not in seen:
             plan.notes.append(note)
-    if plan.conflicts or decision == "needs-change":
+    decision = OLD_DECISIONS.get(decision or "", decision)
+    if plan.conflicts or decision == "query":
         plan.state = FrameState.DISPUTED
-    elif decision == "signed-off" and not plan.changed_here:
+    elif decision == "ready" and not plan.changed_here:
         plan.state = FrameState.SIGNED_OFF
-    elif decision == "agree" and plan.was_disputed and not plan.changed_here:
+    elif decision == "looks-right" and plan.was_disputed and not plan.changed_here:
         plan.state = FrameState.CORRECTED
     if plan.state is ours.state:
         plan.state = None
@@ -479,9 +482,9 @@ def merge_packet(project: Project, path: str | Path,
     earlier = _earlier_return(project, packet.packet_id, reviewer)
     if earlier is not None and packet.returned.time < earlier.returned:
         merged = time.strftime("%Y-%m-%d %H:%M", time.localtime(earlier.merged))
-        raise BadInput(f"an older return of this packet by {reviewer}: their newer return, "
-                       f"merged on {merged}, supersedes it", where=where,
-                       hint="nothing to merge; merge the newest return only")
+        raise BadInput(f"{reviewer} sent this packet back again later: that newer review, "
+                       f"merged on {merged}, supersedes this one", where=where,
+                       hint="nothing to merge; merge the newest one only")
     sent = project.packet_records(packet.packet_id, "exported")
     if sent and sent[0].sha256 != packet.base_sha256:
         raise BadInput("the base labels differ from the ones this project sent",
@@ -524,8 +527,9 @@ def _apply_plan(project: Project, packet: Packet, plan: FramePlan,
     fid = plan.frame_id
     if plan.changes:
         project.apply(MergeReview(fid, tuple(plan.changes),
-                                  label=f"take {reviewer}'s review: {plan.joints_taken} joints, "
-                                        f"{plan.people_deleted} people deleted"),
+                                  label=f"take {reviewer}'s review: "
+                                        f"{count(plan.joints_taken, 'joint')}, "
+                                        f"{count(plan.people_deleted, 'person')} deleted"),
                       author=reviewer)
     ids = plan.person_ids
     for person in plan.new_people:
@@ -567,8 +571,9 @@ def _record(project: Project, packet: Packet, plans: Sequence[FramePlan],
     assert packet.returned is not None
     now = time.time()
     report.merged_at = now
-    summary = (f"merge review packet from {packet.returned.reviewer}: {report.frames} frames, "
-               f"{report.joints_taken} joints taken, {len(report.conflicts)} conflicts")
+    summary = (f"merge review packet from {packet.returned.reviewer}: "
+               f"{count(report.frames, 'frame')}, {count(report.joints_taken, 'joint')} taken, "
+               f"{count(len(report.conflicts), 'conflict')}")
     # Frames the reviewer left as sent need no record: their base stays the packet's.
     record = {
         **report.to_dict(), "returned_time": packet.returned.time,

@@ -81,7 +81,7 @@ from app.fileio import MAX_ID, JsonId, atomic_write, describe, json_ready, parse
 from app.formats.images import IMAGE_SUFFIXES, MAX_SIDE, read_image
 from app.formats.maps import NetworkMaps, read_maps
 from app.model.labels import Frame, FrameState, Note, Person
-from app.model.records import FrameDecision, PacketRecord
+from app.model.records import DECISIONS, OLD_DECISIONS, FrameDecision, PacketRecord
 from app.model.skeleton import Skeleton, skeleton_from_dict
 from app.progress import Progress
 from app.review import DEFAULT_IMAGES, IMAGE_MODES, safezip
@@ -89,12 +89,12 @@ from app.review.blur import SOURCES, BlurPlan, blur_frame, place_regions
 from app.review.faces import face_detector
 from app.safetext import check_name, name_problem
 from app.store import Project
+from app.wording import count
 
 log = logging.getLogger(__name__)
 
 FORMAT = "posewright-review-packet"
 VERSION = 1
-DECISIONS = ("agree", "needs-change", "signed-off")
 
 MANIFEST = "manifest.json"
 LABELS = "labels.json"
@@ -109,7 +109,8 @@ MAX_JSON = 512 << 20
 
 Number = StrictInt | StrictFloat
 ImageMode = Literal["none", "full", "blurred-heads", "blurred-people"]
-Decision = Literal["agree", "needs-change", "signed-off"]
+#: A decision as a returned packet holds it: today's, or as version 0.1.0 wrote it.
+Decision = Literal["looks-right", "query", "ready", "agree", "needs-change", "signed-off"]
 
 
 # ---------------------------------------------------------------------- what a packet holds
@@ -180,14 +181,16 @@ class Packet:
 
 
 def parse_decision(text: str) -> str:
-    """A decision from a relaxed spelling ("signed off", "needs_change").
+    """A decision from a relaxed spelling ("Looks right", "looks_right"); the words of
+    version 0.1.0 ("agree", "needs-change", "signed-off") are read as today's.
 
     Examples
     --------
-    >>> parse_decision("Signed off")
-    'signed-off'
+    >>> parse_decision("Looks right"), parse_decision("Signed off")
+    ('looks-right', 'ready')
     """
     norm = text.strip().lower().replace("_", "-").replace(" ", "-")
+    norm = OLD_DECISIONS.get(norm, norm)
     if norm not in DECISIONS:
         raise BadInput(f"unknown decision {text!r}; one of " + ", ".join(DECISIONS),
                        where="decision")
@@ -400,10 +403,10 @@ def read_packet(path: str | Path, returned: bool | None = None,
             expected = {LABELS, RETURNED}
         _check_members(manifest.members, set(entries) - {MANIFEST}, expected, where)
         if returned is True and manifest.returned is None:
-            raise BadInput("this packet has not been returned yet", where=where,
+            raise BadInput("this packet has not been sent back yet", where=where,
                            hint="merge the FILE-returned.zip the reviewer sends back")
         if returned is False and manifest.returned is not None:
-            raise BadInput("this is a returned packet", where=where,
+            raise BadInput("this packet was reviewed and sent back already", where=where,
                            hint="merge it with `posewright packet merge PROJECT FILE`")
         for name in sorted(set(entries) - {MANIFEST, LABELS, RETURNED}):
             safezip.check_digest(safezip.hash_member(archive, entries[name], where),
@@ -556,7 +559,8 @@ def _frame_contents(raw: bytes, adapter: TypeAdapter[Any], where: str, skeleton:
 
 def _person(pm: _PersonModel, k: int, record: str, where: str) -> Person:
     if len(pm.keypoints) != k or len(pm.scores) != k or len(pm.sources) != k:
-        raise BadInput(f"{record}: field keypoints: the skeleton has {k} joints", where=where)
+        raise BadInput(f"{record}: field keypoints: the skeleton has {count(k, 'joint')}",
+                       where=where)
     for j, (x, y, v) in enumerate(pm.keypoints):
         if v not in (0, 1, 2):
             raise BadInput(f"{record}: field keypoints.{j}: visibility {v} is not one of 0, 1, 2",
@@ -754,12 +758,13 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
         write_member(archive, MANIFEST, dumps_json(manifest))
         progress.step(len(frames), len(frames), "writing the packet")
         if project.read_only:
-            log.warning("%s is read-only; packet %s is not recorded in it, so its return "
-                        "cannot be checked against what was sent", project.location, packet_id)
+            log.warning("%s is read-only; packet %s is not recorded in it, so when it comes "
+                        "back it cannot be checked against what was sent", project.location,
+                        packet_id)
             return stats
         record = {k: v for k, v in stats.items() if k != "packet_id"}
         with project.bulk("ExportPacket",
-                          f"send {len(frames)} frames for review"
+                          f"send {count(len(frames), 'frame')} for review"
                           + (f" by {reviewer}" if reviewer else "") + f" (images {images})",
                           f"packet:{packet_id}", kind="review") as b:
             b.packets.add(PacketRecord(packet_id, "exported", hashlib.sha256(base_json).hexdigest(),

@@ -47,6 +47,7 @@ from app.review.packet import (
 from app.safetext import check_name, shown
 from app.store import NewFrame, Project
 from app.store.project import DB_NAME
+from app.wording import DECISION_WORDS
 
 log = logging.getLogger(__name__)
 
@@ -247,7 +248,7 @@ def _require_review(project: Project) -> None:
 
 
 def set_decision(project: Project, frame_id: int, decision: str | None) -> FrameDecision | None:
-    """Record the reviewer's decision on a frame (``agree``, ``needs-change``, ``signed-off``;
+    """Record the reviewer's decision on a frame (``looks-right``, ``query``, ``ready``;
     ``None`` withdraws it), credited to the review's reviewer. One transaction and one ledger
     entry; returns the decision recorded."""
     _require_review(project)
@@ -259,7 +260,8 @@ def set_decision(project: Project, frame_id: int, decision: str | None) -> Frame
         return None
     value = parse_decision(decision)
     made = FrameDecision(frame.id, value, reviewer_of(project), time.time())
-    with project.bulk("ReviewDecision", f"frame {frame.id}: {value}", f"frame:{frame.id}",
+    with project.bulk("ReviewDecision", f"frame {frame.id}: {DECISION_WORDS[value]}",
+                      f"frame:{frame.id}",
                       kind="review", frame_id=frame.id) as b:
         b.decisions.put(made)
     return made
@@ -314,5 +316,5 @@ def return_packet(project: Project, out: str | Path | None = None) -> Path:
             "base_sha256": hashlib.sha256(base_json).hexdigest(),
         }}
         write_member(archive, MANIFEST, dumps_json(manifest))
-    log.info("returned %d frames to %s", len(frames), out)
+    log.info("sent %d frames back in %s", len(frames), out)
     return out

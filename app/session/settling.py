@@ -21,7 +21,7 @@ __all__ = ["Dispute", "describe_difference", "load_dispute", "step_difference"]
 
 Marks = dict[tuple[int, int], tuple[float, float] | None]
 
-_WORD = {0: "unlabeled", 1: "occluded", 2: "visible"}
+_WORD = {0: "unlabelled", 1: "occluded", 2: "visible"}
 
 
 @dataclass(frozen=True)
@@ -126,15 +126,15 @@ def step_difference(joints: Sequence[tuple[int, int]], current: tuple[int, int] 
 
 
 def describe_difference(jd: JointDifference, reviewer: str) -> str:
-    """One line for the Owners panel: ours and theirs of a joint.
+    """One line for the Owners panel: mine and the reviewer's version of a joint.
 
     Examples
     --------
     >>> describe_difference(JointDifference(9, "left_wrist", (10.0, 20.0, 2),
     ...                                     (14.5, 20.0, 1)), "bea")
-    'ours: visible at (10.0, 20.0) \u00b7 bea: occluded at (14.5, 20.0)'
+    'mine: visible at (10.0, 20.0) \u00b7 bea: occluded at (14.5, 20.0)'
     """
-    return f"ours: {_side(jd.ours)} \u00b7 {reviewer}: {_side(jd.theirs)}"
+    return f"mine: {_side(jd.ours)} \u00b7 {reviewer}: {_side(jd.theirs)}"
 
 
 def _side(xyv: tuple[float, float, int] | None) -> str:
@@ -142,5 +142,5 @@ def _side(xyv: tuple[float, float, int] | None) -> str:
         return "person deleted"
     x, y, v = xyv
     if v <= 0:
-        return "unlabeled"
+        return "unlabelled"
     return f"{_WORD[int(v)]} at ({x:.1f}, {y:.1f})"

@@ -1,5 +1,5 @@
-"""The Worklist's words, without Qt: reason kinds as labels, the kinds that tell frames apart,
-and the compact per-person summary of a frame's reasons."""
+"""The Worklist's words, without Qt: the reason kinds that tell frames apart, and the compact
+per-person summary of a frame's reasons (the kinds' names are :mod:`app.wording`'s)."""
 
 from __future__ import annotations
 
@@ -7,18 +7,7 @@ from collections.abc import Sequence
 from typing import Any
 
 from app.model.naming import Names, person_text
-from app.wording import count
-
-
-def reason_label(kind: str) -> str:
-    """A triage reason kind as the Worklist's filter shows it.
-
-    Examples
-    --------
-    >>> reason_label("long_limb")
-    'long limb'
-    """
-    return str(kind).replace("_", " ").replace("-", " ").strip() or "other"
+from app.wording import count, reason_label
 
 
 def separating_kinds(kinds: Sequence[frozenset[str]]) -> list[tuple[str, int]]:

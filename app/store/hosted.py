@@ -325,7 +325,7 @@ class _Listener(threading.Thread):
             ids = frozenset(int(f) for f in frames) if frames is not None else frozenset()
             self._deliver(str(note["kind"]), ids, str(note.get("session", "")))
         except (ValueError, KeyError, TypeError):
-            log.warning("%s: a notification that is not ours: %.60r", self._where, payload)
+            log.warning("%s: a notification not sent by Posewright: %.60r", self._where, payload)
 
 
 def images_root_for(db: PostgresDatabase, images: str | Path | None) -> Path:

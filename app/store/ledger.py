@@ -377,9 +377,9 @@ def return_to(tx: Tx, seq: int, frame_id: int | None, skeleton: Skeleton, author
     try:
         restore(tx, inverse, skeleton, ctx)
     except ChangedMeanwhile as exc:
-        raise refusal(tx, exc.frame_id, exc.target, f"cannot return to ledger entry {seq}",
+        raise refusal(tx, exc.frame_id, exc.target, f"cannot rewind to ledger entry {seq}",
                       "; nothing was changed") from None
-    group = record(tx, "edit", "ReturnTo", f"return to ledger entry {seq}", inverse, ctx)
+    group = record(tx, "edit", "ReturnTo", f"rewind to ledger entry {seq}", inverse, ctx)
     tx.ledger.push("undo_stack", group, owner)
     tx.ledger.clear("redo_stack", owner)
     tx.event("edit", (f for f, _ in inverse))

@@ -59,6 +59,7 @@ from app.store.frames import FrameQuery, NewFrame
 from app.store.ledger import Applied, LedgerEntry
 from app.store.notes import RegionRow
 from app.store.schema import SCHEMA_VERSION, migrate_sqlite, schema_version
+from app.wording import count
 
 log = logging.getLogger(__name__)
 
@@ -408,7 +409,7 @@ class Project:
         if len(found) == 1:
             return found[0]
         if len(found) > 1:
-            raise NotFound(f"{text!r} names {len(found)} frames; give the frame id")
+            raise NotFound(f"{text!r} names {count(len(found), 'frame')}; give the frame id")
         raise NotFound(f"the project has no frame {text!r} (neither an id nor a file name)")
 
     def image_path(self, frame: Frame) -> Path:

@@ -54,7 +54,8 @@ Layout:
   lists the joints settled by keeping ours; ``retired`` is set when a later merge of a frame
   that was no longer disputed replaced them.
 - ``review_decisions`` (v3): in a project opened from a review packet, the reviewer's
-  decision on each frame (agree, needs-change, signed-off), who made it and when.
+  decision on each frame (looks-right, query, ready; version 0.1.0 wrote agree,
+  needs-change, signed-off, read as those), who made it and when.
 - ``claims`` (v4): in a hosted project, the frame each annotator is working on and when the
   claim runs out (seconds since the epoch, server time).
 - ``findings`` (v5): each frame's findings from the last triage, worst first (``position``),

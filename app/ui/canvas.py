@@ -721,7 +721,7 @@ class Canvas(QWidget):
         font.setBold(True)
         p.setFont(font)
         who = self.theirs_name or "the reviewer"
-        text = f"{who}\u2019s version (read-only) \u2014 B shows ours"
+        text = f"{who}\u2019s version (read-only) \u2014 B shows mine"
         rect = p.fontMetrics().boundingRect(text).adjusted(-10, -5, 10, 5)
         rect.moveTopLeft(self.rect().topLeft() + QPointF(10, 10).toPoint())
         p.setRenderHint(QPainter.RenderHint.Antialiasing, True)
@@ -999,7 +999,7 @@ class Canvas(QWidget):
         person = self.person(pid)
         if person is None:
             return ""
-        word = {0: "unlabeled", 1: "occluded", 2: "visible"}[int(person.keypoints[j, 2])]
+        word = {0: "unlabelled", 1: "occluded", 2: "visible"}[int(person.keypoints[j, 2])]
         names = Names.of_frame(self.skeleton, [p.id for p in self.people])
         return f"{names.whose(pid, j)} (#{pid}), {word}"
 

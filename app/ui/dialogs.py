@@ -30,7 +30,7 @@ from PySide6.QtWidgets import (
 from app.errors import BadInput
 from app.formats.video import parse_time
 from app.review import DEFAULT_IMAGES
-from app.wording import count
+from app.wording import count, plural
 
 
 class PathField(QWidget):
@@ -159,7 +159,8 @@ class VideoDialog(_Form):
         self.every = QSpinBox()
         self.every.setRange(1, 100_000)
         self.every.setValue(1)
-        self.every.setSuffix(" frame(s)")
+        self.every.setSuffix(" frame")
+        self.every.valueChanged.connect(lambda n: self.every.setSuffix(f" {plural(n, 'frame')}"))
         self.start = QLineEdit()
         self.start.setPlaceholderText("the beginning (seconds, m:ss or h:mm:ss)")
         self.end = QLineEdit()
@@ -224,7 +225,7 @@ class PacketDialog(_Form):
             self.frames.addItem(f"this frame ({current})", "this")
         for state in ("disputed", "untouched", "corrected"):
             if counts.get(state):
-                self.frames.addItem(f"the {count(counts[state], f'{state} frames')}", state)
+                self.frames.addItem(f"the {count(counts[state], f'{state} frame')}", state)
         self.frames.addItem("frames by id\u2026", "ids")
         self.ids = QLineEdit()
         self.ids.setPlaceholderText("frame ids, e.g. 3, 7, 12")

@@ -26,11 +26,11 @@ from PySide6.QtGui import QColor, QFont
 
 from app.errors import PosewrightError
 from app.model.labels import Frame, FrameState, Note, Person
-from app.model.naming import Names, ledger_text, person_text
-from app.session.worklist import people_summary, reason_label, separating_kinds
+from app.model.naming import Names, ledger_names, person_text
+from app.session.worklist import people_summary, separating_kinds
 from app.store.project import LedgerEntry, Project
 from app.ui.overlay import WHOLE_PERSON, palette_colour
-from app.wording import count
+from app.wording import DECISION_WORDS, count, ledger_text, reason_count
 
 Index = QModelIndex | QPersistentModelIndex
 _ROOT = QModelIndex()
@@ -52,7 +52,7 @@ STATE_TEXT = {
 
 
 #: A reviewer's decision on a frame, as the Worklist and the status bar say it.
-DECISION_TEXT = {"agree": "agree", "needs-change": "needs change", "signed-off": "signed off"}
+DECISION_TEXT = DECISION_WORDS
 
 
 def clock(seconds: float) -> str:
@@ -307,7 +307,7 @@ def summarise_reasons(reasons: Sequence[dict[str, Any]]) -> str:
     ...                    {"kind": "weak-limb", "person": 3, "weight": 0.4},
     ...                    {"kind": "weak-limb", "person": 5, "weight": 0.3},
     ...                    {"kind": "stretched-limb", "person": 4, "weight": 0.9}])
-    'stretched limb \u00b7 weak limb 2 \u00b7 crowded'
+    'stretched limb \u00b7 2 weak limbs \u00b7 crowded'
     """
     kinds: dict[str, list[float]] = {}
     for r in reasons:
@@ -317,8 +317,7 @@ def summarise_reasons(reasons: Sequence[dict[str, Any]]) -> str:
         entry[1] += 1
         entry[2] = max(entry[2], 1.0 if r.get("person") is None else 0.0)
     order = sorted(kinds, key=lambda k: (kinds[k][2], -kinds[k][0], -kinds[k][1], k))
-    parts = [reason_label(k) + (f" {int(kinds[k][1])}" if kinds[k][1] > 1 else "")
-             for k in order]
+    parts = [reason_count(k, int(kinds[k][1])) for k in order]
     return " \u00b7 ".join(parts)
 
 
@@ -492,7 +491,7 @@ class LedgerModel(_TableModel):
             except PosewrightError:  # closed or gone: the summary as recorded
                 return row.summary
             self._names[fid] = names
-        return ledger_text(row.summary, names)
+        return ledger_names(row.summary, names)
 
     def ledger_row(self, row: int) -> LedgerRow:
         return self._rows[row]
@@ -513,7 +512,7 @@ class LedgerModel(_TableModel):
                 return ", ".join(map(str, r.frames[:3])) + ("\u2026" if len(r.frames) > 3 else "")
             return self.text(r)
         if role == ToolTipRole:
-            return (f"{r.kind}, {count(r.changes, 'changes')}, ledger entry {r.seq}\n"
+            return (f"{r.kind}, {count(r.changes, 'change')}, ledger entry {r.seq}\n"
                     f"{time.strftime('%Y-%m-%d %H:%M:%S', time.localtime(r.time))}")
         if role == ForegroundRole and r.kind in ("undo", "redo"):
             return QColor("#777777")
@@ -536,8 +535,8 @@ def group_entries(entries: Sequence[LedgerEntry]) -> list[LedgerRow]:
         row = rows.get(e.group_id)
         frames = () if e.frame_id is None else (e.frame_id,)
         if row is None:
-            rows[e.group_id] = LedgerRow(e.group_id, e.seq, e.kind, e.summary, e.author, e.time,
-                                         frames, 1)
+            rows[e.group_id] = LedgerRow(e.group_id, e.seq, e.kind, ledger_text(e.summary),
+                                         e.author, e.time, frames, 1)
             order.append(e.group_id)
         else:
             merged = row.frames + tuple(f for f in frames if f not in row.frames)

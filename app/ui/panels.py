@@ -34,9 +34,8 @@ from app.ui.models import (
     PeopleModel,
     WorklistFilter,
     WorklistModel,
-    reason_label,
 )
-from app.wording import count
+from app.wording import count, reason_label
 
 
 def _table(model, stretch: int, widths: tuple[int, ...] | None = None) -> QTableView:
@@ -124,7 +123,7 @@ class WorklistPanel(QWidget):
         self.reason_filter.clear()
         self.reason_filter.addItem("all reasons", None)
         for kind, n in self.model.reason_kinds():
-            self.reason_filter.addItem(f"{reason_label(kind)} ({n})", kind)
+            self.reason_filter.addItem(f"{reason_label(kind)} \u00b7 {count(n, 'frame')}", kind)
         i = self.reason_filter.findData(current)
         self.reason_filter.setCurrentIndex(max(i, 0))
         self.reason_filter.blockSignals(False)
@@ -252,7 +251,7 @@ class OwnersPanel(QWidget):
 # ---------------------------------------------------------------------------------- Ledger
 
 class LedgerPanel(QWidget):
-    """The ledger of this frame or of the whole project, with undo, redo and return-to."""
+    """The ledger of this frame or of the whole project, with undo, redo and rewind."""
 
     returnRequested = Signal(int, bool)  # ledger seq, whole project
     scopeChanged = Signal(bool)
@@ -266,7 +265,7 @@ class LedgerPanel(QWidget):
         self.scope.addItem("whole project", True)
         self.view = _table(model, 3, (80, 70, 60))
         self.view.setObjectName("LedgerView")
-        self.back = QPushButton("Return to this point")
+        self.back = QPushButton("Rewind to this point")
         self.back.setToolTip("Bring the labels back to how they were right after the selected "
                              "action (recorded as a new, undoable action)")
         self.back.setEnabled(False)

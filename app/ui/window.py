@@ -9,10 +9,10 @@ The same window serves three situations, each with a strip above the Canvas
 (:mod:`app.ui.strips`) that names it and offers its actions:
 
 - *Reviewing a packet* (a project opened from a review packet, :mod:`app.review.review`): a
-  Review menu records a decision per frame and returns the packet.
+  Review menu records a decision per frame and sends the packet back.
 - *A disputed frame* in the main project, after a returned packet was merged: the Canvas marks
-  where ours and the reviewer's version differ and can show theirs instead of ours; taking
-  theirs or keeping ours works per joint, per person or for the whole frame
+  where mine and the reviewer's version differ and can show the reviewer's instead of mine;
+  taking the reviewer's or keeping mine works per joint, per person or for the whole frame
   (:mod:`app.review.settle`), and settling ends the dispute.
 - *Region mode*: the mouse draws, selects, reshapes and deletes ignore regions.
 """
@@ -85,11 +85,11 @@ from app.ui.panels import LedgerPanel, NotesPanel, OwnersPanel, WorklistPanel
 from app.ui.settings import cache_bytes, settings
 from app.ui.strips import Strip
 from app.ui.work import describe_error, run_job
-from app.wording import count
+from app.wording import count, plural
 
 log = logging.getLogger(__name__)
 
-_VISIBILITY_WORD = {0: "unlabeled", 1: "occluded", 2: "visible"}
+_VISIBILITY_WORD = {0: "unlabelled", 1: "occluded", 2: "visible"}
 #: How long a first digit waits for a second one when there are ten or more people (ms).
 DIGIT_WAIT_MS = 700
 #: How often a hosted project's Worklist looks again at the claims, some of which run out (ms).
@@ -175,9 +175,10 @@ class MainWindow(QMainWindow):
         self.worklist = WorklistPanel(self.worklist_model)
         if self.review_mode:
             # The state column also carries the decision; a reviewer has no triage to run.
-            self.worklist.view.horizontalHeader().resizeSection(2, 104)
-            self.worklist.hint.setText("The frames of the packet. Ctrl+1 agree, Ctrl+2 needs "
-                                       "change, Ctrl+3 signed off; Ctrl+Shift+R returns it.")
+            self.worklist.view.horizontalHeader().resizeSection(2, 128)
+            self.worklist.hint.setText("The frames of the packet. Ctrl+1 looks right, Ctrl+2 "
+                                       "query, Ctrl+3 ready for training; Ctrl+Shift+R sends "
+                                       "the packet back.")
         self.owners = OwnersPanel(self.actions_by_name)
         #: The Qt-free state (app/session): the frame's names, the selection the Canvas
         #: shows, the walk.
@@ -311,9 +312,9 @@ class MainWindow(QMainWindow):
             "keep_ours_person": lambda: self.keep_ours("person"),
             "keep_ours_frame": lambda: self.keep_ours("frame"),
             "settle_frame": self.settle,
-            "decide_agree": lambda: self.decide("agree"),
-            "decide_needs_change": lambda: self.decide("needs-change"),
-            "decide_signed_off": lambda: self.decide("signed-off"),
+            "decide_agree": lambda: self.decide("looks-right"),
+            "decide_needs_change": lambda: self.decide("query"),
+            "decide_signed_off": lambda: self.decide("ready"),
             "return_packet": self._return_packet,
             "shortcuts": self.show_shortcuts,
             "quit": self.close,
@@ -339,18 +340,19 @@ class MainWindow(QMainWindow):
         self.actions_by_name["show_tags"].setChecked(True)
         for name, short in (("new_person", "New person (N)"), ("split_person", "Split off (X)"),
                             ("mark_visible", "Visible (V)"), ("mark_occluded", "Occluded (O)"),
-                            ("mark_unlabeled", "Unlabeled (U)"), ("swap_sides", "Swap L/R (S)"),
+                            ("mark_unlabeled", "Unlabelled (U)"), ("swap_sides", "Swap L/R (S)"),
                             ("merge_people", "Merge\u2026 (M)"),
                             ("delete_person", "Delete person"),
-                            ("show_theirs", "Show theirs (B)"), ("next_difference", "Next (J)"),
-                            ("take_theirs_joint", "Take theirs (A)"),
-                            ("keep_ours_joint", "Keep ours (K)"),
+                            ("show_theirs", "Reviewer's version (B)"),
+                            ("next_difference", "Next (J)"),
+                            ("take_theirs_joint", "Take the reviewer's (A)"),
+                            ("keep_ours_joint", "Keep mine (K)"),
                             ("settle_frame", "Settle (Shift+Return)"),
                             ("region_mode", "Leave region mode (R)"),
-                            ("decide_agree", "Agree (Ctrl+1)"),
-                            ("decide_needs_change", "Needs change (Ctrl+2)"),
-                            ("decide_signed_off", "Signed off (Ctrl+3)"),
-                            ("return_packet", "Return the packet\u2026")):
+                            ("decide_agree", "Looks right (Ctrl+1)"),
+                            ("decide_needs_change", "Query (Ctrl+2)"),
+                            ("decide_signed_off", "Ready for training (Ctrl+3)"),
+                            ("return_packet", "Send the packet back\u2026")):
             self.actions_by_name[name].setIconText(short)
 
     def _build_menus(self) -> None:
@@ -658,7 +660,7 @@ class MainWindow(QMainWindow):
             return None
         if self.canvas.showing_theirs and not isinstance(edit, (AddNote, SetFrameState)):
             self._message(f"showing {self.canvas.theirs_name}'s version, which is not edited "
-                          "here: B goes back to ours")
+                          "here: B goes back to mine")
             return None
         try:
             return self.project.apply(edit, seen=self._seen)
@@ -733,7 +735,7 @@ class MainWindow(QMainWindow):
         edits = [SetVisibility(frame_id, p, j, v) for p, j in joints]
         word = _VISIBILITY_WORD[v]
         edit: Edit = edits[0] if len(edits) == 1 else EditGroup(
-            frame_id, tuple(edits), f"mark {len(edits)} joints {word}")
+            frame_id, tuple(edits), f"mark {count(len(edits), 'joint')} {word}")
         self.apply(edit)
 
     def place_joint(self) -> None:
@@ -871,7 +873,7 @@ class MainWindow(QMainWindow):
             self._error(str(exc))
             return
         self._message("already there" if group is None else
-                      f"returned to ledger entry {seq} (Undo takes it back)")
+                      f"rewound to ledger entry {seq} (Undo takes it back)")
 
     # ------------------------------------------------------------------ digits
 
@@ -1024,9 +1026,9 @@ class MainWindow(QMainWindow):
         joints = self.canvas.selected_joints
         if not joints or person is None:
             labelled = 0 if person is None else person.num_labelled
-            return f"{head}: {count(labelled, 'labelled joints')}"
+            return f"{head}: {count(labelled, 'labelled joint')}"
         if len(joints) > 1:
-            return f"{head}: {count(len(joints), 'joints')} selected"
+            return f"{head}: {count(len(joints), 'joint')} selected"
         j = joints[0][1]
         x, y, v = person.keypoints[j]
         name = names.joint(j)
@@ -1041,7 +1043,7 @@ class MainWindow(QMainWindow):
                 f"{extra}, by {person.sources[j] or 'unknown'}{flag}")
 
     def _difference_text(self) -> str:
-        """What ours and the reviewer's version say about the selection ("" if they agree)."""
+        """What mine and the reviewer's version say about the selection ("" if they agree)."""
         joint = self.canvas.selected_joint
         pid = self.canvas.selected_person
         if self.dispute is None or pid is None:
@@ -1055,10 +1057,11 @@ class MainWindow(QMainWindow):
         if person is None:
             return ""
         if person.alternative.kind == "deleted-there":
-            return f"{person.reviewer} deleted this person; we kept editing it"
+            return f"{person.reviewer} deleted this person; it was edited here since"
         if person.alternative.kind == "deleted-here":
-            return f"we deleted this person; {person.reviewer} kept editing it"
-        return f"{len(person.joints)} joint(s) differ from {person.reviewer}'s version"
+            return f"deleted here; {person.reviewer} kept editing this person"
+        n = len(person.joints)
+        return f"{count(n, 'joint')} {plural(n, 'differs', 'differ')} from {person.reviewer}'s"
 
     # ------------------------------------------------------------------ ignore regions
 
@@ -1159,8 +1162,8 @@ class MainWindow(QMainWindow):
         was = self._current_difference()
         ok, settled = self._attempt(lambda: keep_ours(self.project, fid, pid, joint))
         if ok:
-            self._after_settling(was, f"kept ours for {what} ({settled} joint(s); Ctrl+Z "
-                                      "takes it back)")
+            self._after_settling(was, f"kept mine for {what} ({count(settled, 'joint')}; "
+                                      "Ctrl+Z takes it back)")
 
     def _current_difference(self) -> tuple[int, int] | None:
         joint = self.canvas.selected_joint
@@ -1207,7 +1210,8 @@ class MainWindow(QMainWindow):
         ok, _ = self._attempt(lambda: settle_frame(self.project, fid))
         if ok:
             self._message("settled: the frame is corrected" + (
-                f"; {left} open difference(s) keep ours" if left else "")
+                f"; {count(left, 'open difference')} {plural(left, 'keeps', 'keep')} mine"
+                if left else "")
                 + " (Ctrl+Z takes it back)")
 
     # ------------------------------------------------------------------ reviewing a packet
@@ -1235,13 +1239,13 @@ class MainWindow(QMainWindow):
 
         if not self.review_mode:
             return
-        self.run_long("Returning the packet", lambda _pr: return_packet(self.project),
+        self.run_long("Sending the packet back", lambda _pr: return_packet(self.project),
                       self._packet_returned)
 
     def _packet_returned(self, path: Any) -> None:
         self._message(f"wrote {path}", 0)
-        self._inform(f"Wrote the returned packet:\n\n{path}\n\nSend it back to whoever sent "
-                     "it; they merge it with Project \u25b8 Merge a returned packet.")
+        self._inform(f"Wrote the reviewed packet:\n\n{path}\n\nSend it to whoever sent you "
+                     "the packet; they merge it with Project \u25b8 Merge a packet sent back.")
 
     # ------------------------------------------------------------------ view toggles
 
@@ -1351,8 +1355,8 @@ class MainWindow(QMainWindow):
     def _update_review_actions(self) -> None:
         a = self.actions_by_name
         decided = self._decision()
-        for name, value in (("decide_agree", "agree"), ("decide_needs_change", "needs-change"),
-                            ("decide_signed_off", "signed-off")):
+        for name, value in (("decide_agree", "looks-right"), ("decide_needs_change", "query"),
+                            ("decide_signed_off", "ready")):
             a[name].setEnabled(self.review_mode and not self.project.read_only
                                and self.frame_id is not None)
             a[name].setChecked(decided == value)
@@ -1391,11 +1395,13 @@ class MainWindow(QMainWindow):
         joints, people = len(d.joints), len(d.people)
         if self.canvas.showing_theirs:
             return (f"<b>Showing {d.who}'s version</b> (read-only) \u00b7 squares mark "
-                    f"{joints} joint(s) that differ; dashed lines lead to ours \u00b7 "
-                    "A takes theirs, K keeps ours, B shows ours")
-        return (f"<b>Disputed</b> \u00b7 {d.who}'s review differs on {joints} joint(s) of "
-                f"{people} person(s): white squares mark ours, dashed lines lead to theirs "
-                "\u00b7 A takes theirs, K keeps ours (Shift: the person, Ctrl+Shift: the frame)")
+                    f"{count(joints, 'joint')} that {plural(joints, 'differs', 'differ')}; "
+                    "dashed lines lead to mine \u00b7 A takes the reviewer's, K keeps mine, "
+                    "B shows mine")
+        return (f"<b>Disputed</b> \u00b7 {d.who}'s review differs on {count(joints, 'joint')} "
+                f"of {count(people, 'person')}: white squares mark mine, dashed lines lead to "
+                f"{d.who}'s \u00b7 A takes the reviewer's, K keeps mine (Shift: the person, "
+                "Ctrl+Shift: the frame)")
 
     def _region_strip_text(self) -> str:
         if not self.canvas.region_mode:
@@ -1630,7 +1636,7 @@ class MainWindow(QMainWindow):
         if stats.get("frames kept"):
             parts.append(f"{count(stats['frames kept'], 'frames')} kept their people")
         if stats.get("unreadable"):
-            parts.append(f"{stats['unreadable']} unreadable images skipped")
+            parts.append(f"{count(stats['unreadable'], 'unreadable image')} skipped")
         self._message("; ".join(parts) + " (Ctrl+T ranks the frames)", 0)
 
     def _export_packet(self) -> None:
@@ -1690,13 +1696,13 @@ class MainWindow(QMainWindow):
         self._inform(text)
 
     def _merge_packet(self) -> None:
-        path, _ = QFileDialog.getOpenFileName(self, "Merge a returned review packet",
+        path, _ = QFileDialog.getOpenFileName(self, "Merge a review packet sent back",
                                               str(self.project.folder),
-                                              "Returned packets (*.zip)")
+                                              "Review packets sent back (*.zip)")
         if path:
             from app.review.merge import merge_packet
 
-            self.run_long("Merging the returned packet",
+            self.run_long("Merging the packet sent back",
                           lambda pr: merge_packet(self.project, path, progress=pr),
                           self._packet_merged)
 
@@ -1710,11 +1716,12 @@ class MainWindow(QMainWindow):
                 f"{count(report.people_added, 'people')} added, "
                 f"{report.people_deleted} deleted, {count(report.notes_added, 'notes')}.")
         if report.disputed:
-            text += (f"\n\n{len(report.disputed)} frame(s) are disputed: "
+            n = len(report.disputed)
+            text += (f"\n\n{count(n, 'frame')} {plural(n, 'is', 'are')} disputed: "
                      + ", ".join(map(str, report.disputed[:12]))
                      + ("\u2026" if len(report.disputed) > 12 else "")
-                     + ". The first is shown; B flips between ours and theirs, A takes theirs, "
-                       "K keeps ours, Shift+Return settles.")
+                     + ". The first is shown; B flips between mine and the reviewer's, A "
+                       "takes the reviewer's, K keeps mine, Shift+Return settles.")
             self.show_frame(report.disputed[0])
         if not report.base_checked:
             text += ("\n\nThe packet was not recorded when it was sent, so its base labels "

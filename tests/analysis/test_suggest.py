@@ -76,4 +76,4 @@ def test_exclude_and_people_without_neighbours():
 def test_a_receiver_that_has_the_joint_is_marked_as_a_swap():
     _, b = _two_people_side_by_side(gap=220.0)
     ranked = candidate_owners({2: b}, LW, b[LW, :2], SK)
-    assert "swap" in ranked[0].reason and ranked[0].score <= 0.8
+    assert "swaps with its own" in ranked[0].reason and ranked[0].score <= 0.8

@@ -184,7 +184,7 @@ def test_a_model_that_does_not_load_is_refused(tmp_path):
     ({"joint_order": ["bottom", "top", "middle"]},
      "field joint_order: 3 entries, but the confidence maps have 4 channels"),
     ({"limb_order": [["middle", "top"]]},
-     "field limb_order: 1 entries need 2 field channels, but the model gives 4"),
+     "field limb_order: 1 entry needs 2 field channels, but the model gives 4"),
     ({"stride": 8}, "field stride: the outputs are 20x20 cells for a 80x80 input, which does "
                     "not fit stride 8"),
     ({"outputs": {"confidence_maps": {"output": "heat", "channels": [0, 6]}, "pafs": 1}},

@@ -41,12 +41,16 @@ def test_the_round_trip_from_the_command_line(folder, tmp_path, capsys):
     with Project.open(folder, read_only=True) as p:
         pid = p.people(100)[0].id
     # the reviewer edits in the review project (the app would do this), then decides
+    # "signed off", the decision's name in version 0.1.0, is still read: as "ready"
     code, out, _ = _run(capsys, "packet", "decide", packet, "--frame", 107, "--decision",
                         "signed off")
-    assert code == 0 and out.strip() == "frame 107: signed-off"
+    assert code == 0 and out.strip() == "frame 107: ready"
+    code, out, _ = _run(capsys, "packet", "decide", packet, "--frame", 107, "--decision",
+                        "Ready")
+    assert code == 0 and out.strip() == "frame 107: ready"
     with Project.open(tmp_path / "rehearsal.review", author="bea") as reviewed:
         reviewed.apply(MoveJoint(100, pid, 0, 11.0, 12.0))
-    code, out, _ = _run(capsys, "packet", "return", packet)
+    code, out, _ = _run(capsys, "packet", "send-back", packet)
     returned = tmp_path / "rehearsal-returned.zip"
     assert code == 0 and returned.is_file() and str(returned) in out
     code, out, _ = _run(capsys, "packet", "merge", folder, returned)

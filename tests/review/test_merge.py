@@ -236,12 +236,16 @@ def test_an_interrupted_merge_is_finished_by_merging_again(labelled, tmp_path, m
 
 
 @pytest.mark.parametrize("decision, disputed, changed_here, state", [
+    ("ready", False, False, FrameState.SIGNED_OFF),
+    ("ready", False, True, FrameState.CORRECTED),
+    ("query", False, False, FrameState.DISPUTED),
+    ("looks-right", False, False, FrameState.UNTOUCHED),
+    ("looks-right", True, False, FrameState.CORRECTED),
+    ("looks-right", True, True, FrameState.DISPUTED),
+    # the words of version 0.1.0 mean the same
     ("signed-off", False, False, FrameState.SIGNED_OFF),
-    ("signed-off", False, True, FrameState.CORRECTED),
     ("needs-change", False, False, FrameState.DISPUTED),
-    ("agree", False, False, FrameState.UNTOUCHED),
     ("agree", True, False, FrameState.CORRECTED),
-    ("agree", True, True, FrameState.DISPUTED),
 ])
 def test_decisions_set_the_frame_state(labelled, tmp_path, decision, disputed, changed_here,
                                        state):
@@ -302,7 +306,7 @@ def test_an_older_return_arriving_after_a_newer_one_is_refused(labelled, tmp_pat
     merge_packet(labelled, _again(packet, lambda r: r.apply(MoveJoint(fid, pid, 7, 95.0,
                                                                       95.0))))
     ledger = len(labelled.history())
-    with pytest.raises(BadInput, match=r"their newer return, merged on .*, supersedes it"):
+    with pytest.raises(BadInput, match=r"that newer review, merged on .*, supersedes this one"):
         merge_packet(labelled, older)
     assert len(labelled.history()) == ledger
     assert _joint(_labels(labelled, fid)[pid], 7) == [95.0, 95.0, 2]

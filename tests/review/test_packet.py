@@ -23,6 +23,7 @@ from app.errors import BadInput
 from app.formats.images import decode_image
 from app.jobs import new_project
 from app.model.edits import MoveJoint
+from app.model.labels import FrameState
 from app.review import safezip
 from app.review.blur import head_ellipses
 from app.review.merge import merge_packet
@@ -227,7 +228,7 @@ def test_a_packet_from_another_project_is_refused_and_nothing_changes(labelled, 
 
 
 def test_a_packet_not_yet_returned_cannot_be_merged(labelled, tmp_path):
-    with pytest.raises(BadInput, match="has not been returned yet"):
+    with pytest.raises(BadInput, match="has not been sent back yet"):
         merge_packet(labelled, send(labelled, tmp_path / "p.zip"))
 
 
@@ -456,3 +457,22 @@ def test_a_review_folder_from_before_names_were_recorded_keeps_its_reviewer(labe
     conn.close()
     with open_packet(path) as again:
         assert again.meta("review_reviewer") is None and again.author == "bea"
+
+
+@pytest.mark.folder_only  # the packet's format: no backend changes it
+@pytest.mark.parametrize(("old", "new", "state"), [
+    ("agree", "looks-right", None), ("needs-change", "query", FrameState.DISPUTED),
+    ("signed-off", "ready", FrameState.SIGNED_OFF)])
+def test_a_packet_returned_with_the_decisions_of_version_0_1_0_still_merges(
+        labelled, tmp_path, old, new, state):
+    """A returned packet written before the decisions were renamed (its manifest holds
+    ``agree``, ``needs-change`` or ``signed-off``) reads as today's words and sets the same
+    state (synthetic packet; our own format)."""
+    returned = _returned_with_everything(labelled, tmp_path)
+    older = rewrite_json(returned, tmp_path / "old-returned.zip", "manifest.json",
+                         _put(["returned", "decisions", 0, "decision"], old))
+    packet = read_packet(older, returned=True)
+    fid = labelled.frames()[0].id
+    assert packet.returned.decisions[fid].decision == new
+    merge_packet(labelled, older)
+    assert labelled.frame(fid).state is (state or FrameState.CORRECTED)

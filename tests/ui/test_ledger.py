@@ -54,7 +54,7 @@ def test_ledger_lists_the_frame_edits_newest_first_with_author(qtbot, window):
     model = window.ledger_model
     assert model.rowCount() == 2
     # People by tag and stable number, joints by name (never a 0-based index).
-    assert model.index(0, 3).data() == f"mark person 2 (#{pid})'s left wrist unlabeled"
+    assert model.index(0, 3).data() == f"mark person 2 (#{pid})'s left wrist unlabelled"
     assert model.index(1, 3).data() == f"mark person 2 (#{pid})'s left wrist occluded"
     assert model.index(0, 1).data() == "ana"
     assert model.index(0, 0).data().count(":") == 2  # today: the clock time
@@ -77,7 +77,7 @@ def test_return_to_a_point_is_recorded_and_undoable(qtbot, window, ui_project):
     assert panel.back.isEnabled()
     qtbot.mouseClick(panel.back, Qt.MouseButton.LeftButton)
     np.testing.assert_array_equal(_kp(ui_project, fid, pid), after_first)
-    assert window.ledger_model.index(0, 3).data().startswith("return to ledger entry")
+    assert window.ledger_model.index(0, 3).data().startswith("rewind to ledger entry")
     assert not np.array_equal(after_first, start)
     window.undo()  # the return itself is one undoable action
     np.testing.assert_array_equal(_kp(ui_project, fid, pid), latest)

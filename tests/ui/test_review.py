@@ -176,7 +176,7 @@ def test_the_reviewer_version_is_not_edited(qtbot, dispute, ui_project):
     qtbot.keyClick(window.canvas, Qt.Key.Key_B)
     qtbot.keyClick(window.canvas, Qt.Key.Key_U)  # mark unlabeled: refused while theirs shows
     np.testing.assert_array_equal(_kp(ui_project, fid, b), before)
-    assert "B goes back to ours" in window.status_log.last
+    assert "B goes back to mine" in window.status_log.last
 
 
 def test_send_frames_for_review_from_the_project_menu(qtbot, window, ui_project, tmp_path):
@@ -239,15 +239,15 @@ def test_review_mode_opens_a_zip_decides_and_returns_it(qtbot, ui_project, tmp_p
         assert "&Review" in [a.text() for a in window.menuBar().actions()]
 
         qtbot.keyClick(canvas, Qt.Key.Key_1, Qt.KeyboardModifier.ControlModifier)
-        assert decisions(project)[fid].decision == "agree"
+        assert decisions(project)[fid].decision == "looks-right"
         assert decisions(project)[fid].author == "bea"
         row = window.worklist_model.row_of(fid)
-        assert "agree" in window.worklist_model.index(row, 2).data()
+        assert "looks right" in window.worklist_model.index(row, 2).data()
         qtbot.keyClick(canvas, Qt.Key.Key_1, Qt.KeyboardModifier.ControlModifier)
         assert fid not in decisions(project), "the same key again withdraws it"
         qtbot.keyClick(canvas, Qt.Key.Key_2, Qt.KeyboardModifier.ControlModifier)
-        assert decisions(project)[fid].decision == "needs-change"
-        assert "needs change" in window.status_state.text()
+        assert decisions(project)[fid].decision == "query"
+        assert "queried" in window.status_state.text()
         assert window.actions_by_name["decide_needs_change"].isChecked()
 
         _press(canvas, "return_packet")
@@ -256,7 +256,7 @@ def test_review_mode_opens_a_zip_decides_and_returns_it(qtbot, ui_project, tmp_p
         qtbot.waitUntil(lambda: str(returned) in window.status_log, timeout=WAIT_MS)
         back = read_packet(returned, returned=True)
         assert back.returned.reviewer == "bea"
-        assert back.returned.decisions[fid].decision == "needs-change"
+        assert back.returned.decisions[fid].decision == "query"
         _close_boxes(window)
     finally:
         window.shutdown()

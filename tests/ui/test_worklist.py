@@ -55,6 +55,8 @@ def test_editing_marks_the_frame_corrected_and_the_row_shows_it(qtbot, window, u
 
 def test_disputed_and_signed_off_are_set_by_hand(qtbot, window, ui_project):
     qtbot.keyClick(window.canvas, Qt.Key.Key_D)
+    assert ui_project.frame(2).state is FrameState.UNTOUCHED, "D alone (a habit) does nothing"
+    qtbot.keyClick(window.canvas, Qt.Key.Key_D, Qt.KeyboardModifier.ControlModifier)
     assert ui_project.frame(2).state is FrameState.DISPUTED
     assert window.worklist_model.index(0, 2).data() == "disputed"
     qtbot.keyClick(window.canvas, Qt.Key.Key_Return, Qt.KeyboardModifier.ControlModifier)
@@ -64,7 +66,7 @@ def test_disputed_and_signed_off_are_set_by_hand(qtbot, window, ui_project):
 
 
 def test_filter_by_state_and_by_reason(qtbot, window, ui_project):
-    qtbot.keyClick(window.canvas, Qt.Key.Key_D)  # frame 2 disputed
+    qtbot.keyClick(window.canvas, Qt.Key.Key_D, Qt.KeyboardModifier.ControlModifier)  # disputed
     panel = window.worklist
     panel.state_filter.setCurrentIndex(panel.state_filter.findData("disputed"))
     assert panel.ordered_ids() == [2]

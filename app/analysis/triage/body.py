@@ -28,6 +28,7 @@ from app.analysis.triage.combine import Reason, make_reason, ramp
 from app.analysis.triage.model_evidence import limb_e, limb_index
 from app.model.naming import joint_name
 from app.model.skeleton import Skeleton
+from app.wording import count
 
 #: The OKS a label must reach to count as right (the acceptance measure of issue 3).
 OKS_RIGHT = 0.8
@@ -193,7 +194,7 @@ def missing_joints(pid: int, kp: np.ndarray, skeleton: Skeleton,
         return []
     names = ", ".join(joint_name(skeleton, j) for j in inside[:4]) + (" ..." if m > 4 else "")
     return [make_reason("missing-joints",
-                    f"{m} joint{'s' if m > 1 else ''} in the picture not labelled ({names}); "
+                    f"{count(m, 'joint')} in the picture not labelled ({names}); "
                     f"the label can score at most OKS {n / (n + m):.2f}",
                     pid, inside, strength)]
 

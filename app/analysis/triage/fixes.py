@@ -76,6 +76,7 @@ from app.model.edits import (
 )
 from app.model.naming import Names, join_words
 from app.model.skeleton import Skeleton
+from app.wording import count
 
 #: The kinds of finding, in the order they are proposed (and accepted) within a frame: first
 #: whole people (duplicates, fragments, phantoms), then sides, then joints, then additions.
@@ -510,7 +511,7 @@ def phantoms(view: FrameView) -> list[Proposal]:
         if strength <= 0:
             continue
         n = view.names
-        text = (f"{n.person(p)} has {int(on.sum())} faint joints ({mean:.2f} against the "
+        text = (f"{n.person(p)} has {count(int(on.sum()), 'faint joint')} ({mean:.2f} against the "
                 f"frame's {view.typical_score:.2f}) that make no body")
         out.append(Proposal("phantom", p, tuple(np.flatnonzero(on).tolist()), text, strength,
                             (("score_gap", gap), ("joints", float(on.sum()))),
@@ -747,7 +748,7 @@ def wrong_owners(view: FrameView, people: Sequence[int] | None = None) -> list[P
             text = (f"{n.person(p)}'s {joints} {fit} no one's body here: without them, "
                     f"triage's evidence against {n.person(p)} falls from {before:.1f} to "
                     f"{after:.1f}")
-            summary = f"mark {n.person(p)}'s {joints} unlabeled"
+            summary = f"mark {n.person(p)}'s {joints} unlabelled"
         else:
             q = receiver
             theirs = tuple(j for j in chain if view.people[q][j, 2] > 0)
@@ -897,7 +898,7 @@ def invented_joints(view: FrameView,
                     "spot")
             out.append(Proposal("invented", p, (j,), text, strength, (("score_ratio", ratio),),
                                 (SetVisibility(view.frame_id, p, j, 0),), (p, cover),
-                                f"mark {n.whose(p, j)} unlabeled"))
+                                f"mark {n.whose(p, j)} unlabelled"))
     return out
 
 

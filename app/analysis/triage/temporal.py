@@ -63,6 +63,7 @@ from app.model.edits import (
 )
 from app.model.naming import Names
 from app.model.skeleton import Skeleton
+from app.wording import count
 
 #: The kinds of finding over time, in the order their fixes are accepted.
 TIME_KINDS: tuple[str, ...] = ("exchanged-tracks", "flipped-stretch", "missing-frames",
@@ -261,7 +262,7 @@ class _Sequence:
             i, "exchanged-tracks", pa, (), text,
             (("oks as linked", kept), ("oks exchanged", exchanged)),
             min((gain - EXCHANGE_GAIN) / 1.0, 1.0), edits, (pa, pb),
-            [ta, tb], f"exchange tracks {ta} and {tb} from here on ({later} frames)")
+            [ta, tb], f"exchange tracks {ta} and {tb} from here on ({count(later, 'frame')})")
 
     # ------------------------------------------------------------------ flipped stretch
 
@@ -309,13 +310,13 @@ class _Sequence:
         names = self.names(s)
         joints = [j for j, f in enumerate(self.skeleton.flip_index) if f != j]
         text = (f"{names.person(pid)} (track {t}) has left and right flipped for "
-                f"{n} frame{'s' if n > 1 else ''} and back: swapped, the side joints lie "
+                f"{count(n, 'frame')} and back: swapped, the side joints lie "
                 f"{into:.2f} and {back:.2f} of a body nearer the frames around")
         return self.finding(s, "flipped-stretch", pid, joints, text,
                             (("nearer flipped in", into), ("nearer flipped back", back)),
                             min(min(into, back) / (4 * FLIP), 1.0), edits,
                             [at[k] for k in range(s, e + 1)], [t, n],
-                            f"swap the sides of track {t} in {n} frame{'s' if n > 1 else ''}")
+                            f"swap the sides of track {t} in {count(n, 'frame')}")
 
     # ------------------------------------------------------------------ missing frames
 
@@ -356,7 +357,7 @@ class _Sequence:
                      for x, y, v in kp)
         edits = [NewPerson(frame, keypoints=rows, source=INTERPOLATED, track=t)]
         text = (f"track {t} is missing here between frames {f0} and {f1}: a person "
-                f"interpolated from them ({joints} joints), to check")
+                f"interpolated from them ({count(joints, 'joint')}), to check")
         missing = i1 - i0 - 1
         return self.finding(m, "missing-frames", None, np.flatnonzero(kp[:, 2] > 0).tolist(),
                             text, (("frames missing", missing), ("joints", joints)),
@@ -403,7 +404,7 @@ class _Sequence:
             fix = f"place {names.person(pid)}'s {joint} where the frames around put it"
         else:
             edits = [SetVisibility(frame, pid, j, 0)]
-            fix = f"mark {names.person(pid)}'s {joint} unlabeled"
+            fix = f"mark {names.person(pid)}'s {joint} unlabelled"
         text = (f"{names.person(pid)}'s {joint} jumps {jump / size:.2f} of a body away from "
                 f"where the body moves and comes back; the frames around "
                 f"{'agree' if apart <= AGREE else 'do not agree'} where it is "
