@@ -31,6 +31,7 @@ from dataclasses import dataclass
 
 from app.analysis.triage.findings import Finding, Fix, FixPreview
 from app.model.naming import join_words
+from app.wording import count
 
 
 @dataclass(frozen=True)
@@ -113,9 +114,10 @@ def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
         if len(members) < 2:
             continue
         found = [f for f in found if f not in members or f is members[0]]
-        text = (f"{len(members)} people have joints the model sees as hidden: "
+        text = (f"joints the model sees as hidden, on {count(len(members), 'people')}: "
                 + "; ".join(m.fix.summary.removeprefix("mark ") for m in members[:4] if m.fix)
-                + (f"; and {len(members) - 4} more" if len(members) > 4 else ""))
+                + (f"; and {count(len(members) - 4, 'more person')}"
+                   if len(members) > 4 else ""))
         stops.append(Stop(frame_id, f"G:{kind}", None, (), text, None, members))
     by_person: dict[int, list[Finding]] = {}
     for f in found:
@@ -129,7 +131,7 @@ def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
         joints = tuple(j for m in members for j in m.joints)
         names = join_words([n for m in members for n in m.joint_names])
         text = (f"person {members[0].tag}'s {names} {PER_PERSON_KINDS[members[0].kind]} "
-                f"({len(members)} findings)")
+                f"({count(len(members), 'findings')})")
         stops.append(Stop(frame_id, f"G:{members[0].kind}:{pid}", pid, joints, text, None,
                           members))
     out = []
@@ -148,7 +150,7 @@ def _joined(findings: Sequence[Finding]) -> Fix | None:
         tuple(v for x in p for v in x.placed), tuple(v for x in p for v in x.unlabeled),
         tuple(v for x in p for v in x.occluded), tuple(v for x in p for v in x.deleted),
         tuple(v for x in p for v in x.merged), tuple(v for x in p for v in x.created))
-    return Fix(f"{len(fixes)} fixes: " + "; ".join(x.summary for x in fixes),
+    return Fix(f"{count(len(fixes), 'fixes')}: " + "; ".join(x.summary for x in fixes),
                tuple(e for x in fixes for e in x.edits), preview)
 
 
