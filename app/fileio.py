@@ -234,6 +234,12 @@ def _scan(data: Any, first_only: bool, at: Path_ = ()) -> list[tuple[Path_, floa
     return found
 
 
+#: Text that may read as a non-finite number: the constants Python's reader accepts, and an
+#: exponent or a run of digits long enough to pass a double's range (a looser test than
+#: needed; what it lets through is checked value by value).
+_SUSPECT = re.compile(r"NaN|Infinity|[eE][+-]?\d{3}|\d{300}")
+
+
 class JsonStream:
     """Read a large JSON file piece by piece, with the checks of :func:`parse_json`.
 
@@ -281,6 +287,7 @@ class JsonStream:
         self._eof = False
         self._decoder = json.JSONDecoder()
         self._started = False
+        self._text = (0, 0)  # where the value read last is in _buf
 
     def close(self) -> None:
         self._fh.close()
@@ -366,10 +373,16 @@ class JsonStream:
                                hint="is the file complete?") from None
             if end > len(self._buf) - 8 and self._more():
                 continue  # a number cut at the window's end ("12", "1.", "1e") may go on
+            self._text = (self._pos, end)
             self._pos = end
             return value
 
     def _check(self, value: Any, at: Path_) -> None:
+        start, end = self._text
+        text = self._buf[start:end]
+        if not _SUSPECT.search(text) and \
+                text.count("[") + text.count("{") < MAX_DEPTH - len(at):
+            return  # no NaN, Infinity or huge exponent, and too few brackets to nest deeply
         problem = _scan(value, first_only=True, at=at)
         if problem:
             path, bad = problem[0]

@@ -26,6 +26,7 @@ def register(sub: Any, command: Command) -> None:
     ``sub`` is the top-level subparsers object, ``command`` app/cli.py's helper that adds a
     command with ``PROJECT``, ``--author`` and ``-q``.
     """
+    from app.cli import whole_number
     from app.jobs_findings import ALL_KINDS
 
     p = command("findings", cmd_findings,
@@ -47,8 +48,11 @@ def register(sub: Any, command: Command) -> None:
     p.add_argument("--dismiss", metavar="ID,ID",
                    help="record these findings as not a problem (undoable); they are not "
                         "raised again while the labels they are about stay the same")
+    p.add_argument("--workers", type=whole_number(1, 1024), metavar="N",
+                   help="processes to triage the frames whose findings are out of date in "
+                        "(default: $POSEWRIGHT_WORKERS, else every core); the same findings "
+                        "whatever N")
 
-    from app.cli import whole_number
 
     for name, fn, text in (("undo", cmd_undo, "take back your newest actions (one step each)"),
                            ("redo", cmd_redo, "do again your newest actions taken back")):
@@ -72,6 +76,7 @@ def _progress(args: argparse.Namespace) -> Any:
 def cmd_findings(args: argparse.Namespace) -> int:
     from app.cli import print_json
     from app.jobs_findings import current_findings, dismiss, parse_kinds
+    from app.parallel import check_workers
 
     kinds = parse_kinds(args.kinds)
     if args.accept is None and (args.dry_run or args.min_confidence != 0.0):
@@ -91,7 +96,8 @@ def cmd_findings(args: argparse.Namespace) -> int:
         return _accept(args, kinds)
     with _open(args, write=False) as project:
         frame_ids = _frame_ids(project, args.frames)
-        found = current_findings(project, frame_ids, _progress(args))
+        found = current_findings(project, frame_ids, _progress(args),
+                                 workers=check_workers(args.workers))
         names = {f.id: f.file_name for f in project.frames()}
     rows = [f for fid in sorted(found) for f in found[fid] if kinds is None or f.kind in kinds]
     rows.sort(key=lambda f: (-f.worth, f.frame_id, f.id))

@@ -67,12 +67,14 @@ def findings_from_labels(frame: Frame, labels: FrameLabels, skeleton: Skeleton, 
 
 
 def current_findings(project: Project, frame_ids: Iterable[int] | None = None,
-                     progress: Progress | None = None) -> dict[int, list[Finding]]:
+                     progress: Progress | None = None,
+                     workers: int = 1) -> dict[int, list[Finding]]:
     """Every (or the given) frame's findings, worst first, as they stand now.
 
     Stored findings are used where the frame's labels and dismissals are those they were
     computed from; the other frames are triaged again (and stored, unless the project is
-    read-only). A project without any triage result is triaged first.
+    read-only), in ``workers`` processes (:func:`app.jobs_analysis.run_triage`). A project
+    without any triage result is triaged first.
     """
     from app.jobs_analysis import run_triage
 
@@ -87,8 +89,8 @@ def current_findings(project: Project, frame_ids: Iterable[int] | None = None,
             for f in stale:
                 fresh[f.id] = findings_of_frame(project, f)
         else:
-            for fid, verdict in run_triage(project, progress,
-                                           frame_ids=[f.id for f in stale]).items():
+            for fid, verdict in run_triage(project, progress, frame_ids=[f.id for f in stale],
+                                           workers=workers).items():
                 fresh[fid] = verdict.findings
     out = {f.id: fresh[f.id] if f.id in fresh else
            [Finding.from_dict(d) for d in stored.get(f.id, [])] for f in frames}

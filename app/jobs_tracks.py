@@ -226,3 +226,25 @@ def take_batch(project: Project, batch: CarriedBatch) -> Any:
     return project.apply_batch(batch.edits, f"carry the correction of frame {batch.origin} to "
                                f"{count(frames, 'frame')}",
                                action="CarryForward")
+
+
+def track_step(project: Project, frame_id: int, person_id: int,
+               step: int) -> tuple[int, int, int, int] | None:
+    """The frame before (``step`` -1) or after (1) ``frame_id`` in its sequence where
+    ``person_id``'s track has someone: ``(frame id, person id there, its place in the track
+    counting from 1, the track's length)``; None when there is none, or the person has no
+    track. What the app's keys for stepping along a track call."""
+    person = next((p for p in project.people(frame_id) if p.id == person_id), None)
+    if person is None or person.track is None:
+        return None
+    seq = next((s for s in project_sequences(project) if frame_id in s.frame_ids), None)
+    if seq is None:
+        return None
+    people = project.people_by_frame()
+    on = [(f, p.id) for f in seq.frame_ids for p in people.get(f, []) if p.track == person.track]
+    frames = [f for f, _ in on]
+    here = frames.index(frame_id) if frame_id in frames else None
+    if here is None or not 0 <= here + step < len(on):
+        return None
+    fid, pid = on[here + step]
+    return fid, pid, here + step + 1, len(on)

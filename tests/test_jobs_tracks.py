@@ -7,8 +7,8 @@ import numpy as np
 import pytest
 
 from app.cli import main
-from app.jobs_tracks import link_project, project_sequences
-from app.model import SetTrack
+from app.jobs_tracks import link_project, project_sequences, track_step
+from app.model import DeletePerson, SetTrack
 from app.model.skeleton import coco_body
 from app.store import Project
 from tests import sequences
@@ -100,3 +100,13 @@ def test_findings_over_time_join_triage_and_findings_once_tracks_exist(tmp_path,
         (dancer,) = [q for q in p.people(5) if q.id == pid(4, 0)]
         assert np.allclose(dancer.keypoints[:, :2], people[4, 0, :, :2])
         assert p.can_undo() is False
+
+
+def test_stepping_along_a_track_goes_to_the_frames_where_it_has_someone(walk):
+    project, _ = walk
+    link_project(project)
+    assert track_step(project, 1, pid(0, 1), 1) == (2, pid(1, 1), 2, 12)
+    assert track_step(project, 5, pid(4, 1), -1) == (4, pid(3, 1), 4, 12)
+    assert track_step(project, 12, pid(11, 1), 1) is None
+    project.apply(DeletePerson(3, pid(2, 1)))  # the track skips frame 3 now
+    assert track_step(project, 2, pid(1, 1), 1) == (4, pid(3, 1), 3, 11)

@@ -79,8 +79,8 @@ from app.model.labels import FrameLabels, Person
 from app.model.targets import JointTarget, PersonTarget
 
 #: A carried joint must stand within this share of its body's size of where the corrected
-#: joint stood, moved along with the body (common practice for "the same place" on a body is
-#: a tenth of its size; chosen on the demo's calibration seeds 1-3).
+#: joint stood, moved along with the body (a tenth of a body: our choice, no source; on demo
+#: seeds 1-3 a twentieth gave the same counts of :mod:`app.demo.carrying`).
 TOLERANCE = 0.1
 #: The most frames a correction is carried in each direction.
 MAX_FRAMES = 50

@@ -298,9 +298,10 @@ def accept_all(frames: Iterable[DemoFrame], calibration: Calibration = SHIPPED,
     return figure
 
 
-def demo_folder(cache: str | Path, seed: int | None) -> Path:
+def demo_folder(cache: str | Path, seed: int | None, scene: str = "dance") -> Path:
     """The demo of ``seed`` in the cache folder, generated the first time (None: the shipped
-    ``demo_project``, copied without its database)."""
+    ``demo_project``, copied without its database); ``scene`` ``"choir"`` for the choir on
+    risers (:mod:`app.demo.choir`)."""
     import shutil
 
     from app.demo import generate
@@ -312,9 +313,9 @@ def demo_folder(cache: str | Path, seed: int | None) -> Path:
             shipped = Path(__file__).resolve().parents[2] / "demo_project"
             shutil.copytree(shipped, folder, ignore=shutil.ignore_patterns("project.*"))
         return folder
-    folder = cache / f"seed-{seed}"
+    folder = cache / (f"seed-{seed}" if scene == "dance" else f"{scene}-seed-{seed}")
     if not (folder / "truth.json").exists():
-        generate(folder, seed=seed)
+        generate(folder, seed=seed, scene=scene)
     return folder
 
 
@@ -366,6 +367,9 @@ def main(argv: Sequence[str] | None = None) -> int:
                         help="seeds to measure on (e.g. 20-22); the reliability table is "
                              "measured on them")
     parser.add_argument("--shipped", action="store_true", help="also measure the shipped demo")
+    parser.add_argument("--scene", choices=("dance", "choir"), default="dance",
+                        help="the scenario of the seeds to measure (default: the dance; "
+                             "calibration seeds are always the dance's)")
     parser.add_argument("--cache", metavar="DIR", required=True,
                         help="where generated demos are kept")
     parser.add_argument("--json", metavar="FILE", help="write every figure to FILE")
@@ -387,13 +391,15 @@ def main(argv: Sequence[str] | None = None) -> int:
         print("coefficients (a, b):")
         for kind, ab in sorted(calibration.coefficients.items()):
             print(f"    {kind!r}: {ab},")
-    demos: list[tuple[str, int | None]] = [(f"seed {s}", s) for s in _seeds(args.measure)] \
+    label = "seed" if args.scene == "dance" else f"{args.scene} seed"
+    demos: list[tuple[str, int | None]] = [(f"{label} {s}", s) for s in _seeds(args.measure)] \
         if args.measure else []
     if args.shipped:
         demos.insert(0, ("shipped", None))
     figures, held_out = [], []
     for name, seed in demos:
-        frames = demo_frames(demo_folder(args.cache, seed))
+        frames = demo_frames(demo_folder(args.cache, seed,
+                                         "dance" if seed is None else args.scene))
         figures.append(accept_all(frames, calibration, name))
         if seed is not None:
             held_out += fix_effects(frames, name)

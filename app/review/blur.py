@@ -34,6 +34,7 @@ from typing import Any
 
 import cv2
 import numpy as np
+from scipy.stats import theilslopes
 
 from app.analysis.anthropometry import person_scale
 from app.model.skeleton import Skeleton
@@ -203,7 +204,9 @@ def head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
     -----
     Stature ``H`` is :func:`app.analysis.anthropometry.person_scale` (from the torso); without
     a labelled torso segment it is the spread of the face joints over 0.1 (a head is about
-    0.1 H wide), else the larger side of the box around the labelled joints.
+    0.1 H wide), else the larger side of the box around the labelled joints. With three or
+    more people in the frame, ``H`` is at most twice their median: a larger torso holds a
+    joint of another person (the face joints are still held, see below).
 
     Face joints more than ``0.2 H`` apart are taken for two heads (a label given to a
     neighbour, a face put on the wrong copy of a person found twice; two heads side by side
@@ -263,12 +266,14 @@ def label_head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
     hips = _indices(skeleton, ("left_hip", "right_hip"))
     out = np.full((len(people), 4), np.nan)
     extra: list[tuple[int, np.ndarray]] = []
+    statures = _statures(people, skeleton)
+    cap = _cap(statures)
     for n, person in enumerate(people):
         kp = np.asarray(person, dtype=np.float64)
         on = _labelled(kp)
         if not on.any():
             continue
-        stature = _stature(kp, on, face, skeleton)
+        stature = min(float(statures[n]), cap)
         face_on = [j for j in face if on[j]]
         shoulders_on = [j for j in shoulders if on[j]]
         if face_on:
@@ -297,6 +302,25 @@ def _group_ellipse(xy: np.ndarray, stature: float, floor: float) -> np.ndarray:
     reach = np.abs(xy - centre).max(axis=0) + REACH_MARGIN * stature
     return np.array([*centre, max(floor, HALF_WIDTH * stature, reach[0]),
                      max(floor, HALF_HEIGHT * stature, reach[1])])
+
+
+def _statures(people: Sequence[np.ndarray], skeleton: Skeleton) -> np.ndarray:
+    """``(N,)`` each person's stature (:func:`head_ellipses`), NaN with no labelled joint."""
+    face = _indices(skeleton, FACE_JOINTS)
+    out = np.full(len(people), np.nan)
+    for n, person in enumerate(people):
+        kp = np.asarray(person, dtype=np.float64)
+        on = _labelled(kp)
+        if on.any():
+            out[n] = _stature(kp, on, face, skeleton)
+    return out
+
+
+def _cap(statures: np.ndarray) -> float:
+    """Twice the median of a frame's statures when three or more are known, else infinity:
+    a torso twice the size of the frame's typical one holds a wrong joint."""
+    known = statures[np.isfinite(statures) & (statures > 0)]
+    return float(2 * np.median(known)) if len(known) >= 3 else np.inf
 
 
 def _floor(size: tuple[int, int]) -> float:
@@ -377,8 +401,10 @@ def local_stature(points: np.ndarray, centres: np.ndarray, statures: np.ndarray,
     linearly with how far down the image they stand (for a
     level camera, ``H_image = f H / Z`` and ``y - y_horizon = f h_camera / Z``, so both are
     proportional to ``1 / Z``); a straight line fitted to stature against head height over the
-    frame's people (at least three, spread over a tenth of the image height), clipped to half
-    the smallest and twice the largest stature seen. Else the median of all, else
+    frame's people (at least three, spread over a tenth of the image height) by the
+    Theil-Sen estimator (the median of the pairwise slopes, so a person with wrong joints does
+    not tilt it; Sen 1968, ``scipy.stats.theilslopes``), clipped to half the smallest and twice
+    the largest stature seen. Else the median of all, else
     :data:`DEFAULT_STATURE` of the image height. The pinhole relation is the standard
     perspective projection (common practice, no source).
 
@@ -398,7 +424,8 @@ def local_stature(points: np.ndarray, centres: np.ndarray, statures: np.ndarray,
     out[:] = np.median(s)
     fit = None
     if len(s) >= 3 and np.ptp(c[:, 1]) >= 0.1 * image_size[1]:
-        fit = np.polyfit(c[:, 1], s, 1)
+        slope, intercept = theilslopes(s, c[:, 1])[:2]
+        fit = (slope, intercept)
     d = np.hypot(points[:, None, 0] - c[None, :, 0], points[:, None, 1] - c[None, :, 1])
     r = d / s[None, :]
     for i in range(len(points)):
@@ -493,15 +520,9 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
 def _people_scale(people: Sequence[np.ndarray], skeleton: Skeleton,
                   image_size: tuple[int, int]) -> tuple[np.ndarray, np.ndarray]:
     """Each labelled person's head centre and stature (NaN where nothing places them)."""
-    face = _indices(skeleton, FACE_JOINTS)
     centres = head_ellipses(people, skeleton, image_size)[:, :2].reshape(-1, 2)
-    statures = np.full(len(people), np.nan)
-    for n, person in enumerate(people):
-        kp = np.asarray(person, dtype=np.float64)
-        on = _labelled(kp)
-        if on.any():
-            statures[n] = _stature(kp, on, face, skeleton)
-    return centres, statures
+    statures = _statures(people, skeleton)
+    return centres, np.minimum(statures, _cap(statures))
 
 
 def _heads(xy: np.ndarray, score: np.ndarray, reach: np.ndarray) -> list[np.ndarray]:

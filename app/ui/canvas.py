@@ -89,6 +89,39 @@ class _RegionDrag:
 Marks = dict[tuple[int, int], tuple[float, float] | None]
 
 
+class _OverlayLayer:
+    """The overlay of the frame on screen, painted once into a transparent image and copied
+    onto the Canvas while nothing it shows changes (people, selection, hover, zoom, size,
+    style): a repaint for any other reason (an exposed window, the picture refined, the
+    status of a neighbour) then costs one copy instead of painting every person again."""
+
+    def __init__(self) -> None:
+        self._key: tuple[Any, ...] | None = None
+        self._image: QImage | None = None
+        self._layout: OverlayLayout | None = None
+
+    def paint(self, p: QPainter, canvas: Canvas, people: list[Any]) -> OverlayLayout:
+        assert canvas.frame is not None
+        style = canvas.style()
+        t = canvas.transform()
+        dpr = canvas.devicePixelRatioF()
+        key = (canvas.frame.id, canvas.width(), canvas.height(), dpr,
+               (t.m11(), t.m22(), t.dx(), t.dy()), repr(style), id(canvas.skeleton),
+               tuple((q.id, np.asarray(q.keypoints).tobytes()) for q in people))
+        if key != self._key or self._image is None or self._layout is None:
+            image = QImage(round(canvas.width() * dpr), round(canvas.height() * dpr),
+                           QImage.Format.Format_ARGB32_Premultiplied)
+            image.setDevicePixelRatio(dpr)
+            image.fill(Qt.GlobalColor.transparent)
+            painter = QPainter(image)
+            self._layout = paint_overlay(painter, people, canvas.skeleton, t, style,
+                                         (canvas.frame.width, canvas.frame.height))
+            painter.end()
+            self._image, self._key = image, key
+        p.drawImage(QPointF(0, 0), self._image)
+        return self._layout
+
+
 class Canvas(QWidget):
     """The central image view. See the module docstring for the design.
 
@@ -163,6 +196,7 @@ class Canvas(QWidget):
         self.theirs_name = ""
         self.showing_theirs = False
 
+        self._overlay = _OverlayLayer()
         self._decoded: Decoded | None = None
         # A quick shrunk copy for a zoom the decoder did not prepare: (for which decoded
         # image, at which scale, pixels, image).
@@ -206,6 +240,7 @@ class Canvas(QWidget):
             (frame.width, frame.height) and not self._fit_mode
         self.frame = frame
         self._decoded = None
+        self._overlay = _OverlayLayer()  # a frame shown anew is painted anew
         self.painted_frame = None
         self.message = ""
         self.selection.select_person(None)
@@ -678,8 +713,7 @@ class Canvas(QWidget):
             people: list[Any] = self.people
             if self._drag is not None and self._drag.moved:
                 people = self._with_drag(people, self._drag)
-            self._layout = paint_overlay(p, people, self.skeleton, self.transform(), self.style(),
-                                         (self.frame.width, self.frame.height))
+            self._layout = self._overlay.paint(p, self, people)
             self._paint_callouts(p)
             if self.showing_theirs:
                 self._paint_banner(p)

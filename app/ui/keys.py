@@ -57,6 +57,15 @@ KEYS: tuple[Key, ...] = (
         "Mark the frame disputed; again: back to corrected", ("Ctrl+D",)),
     Key("Frames", "sign_off", "Sign off", "Sign the frame off; again: back to corrected",
         ("Ctrl+Return",)),
+    Key("Frames", "next_in_track", "Next frame of the track",
+        "The next frame of the selected person's track, the same person selected",
+        ("Alt+Right",)),
+    Key("Frames", "prev_in_track", "Previous frame of the track",
+        "The previous frame of the selected person's track, the same person selected",
+        ("Alt+Left",)),
+    Key("Frames", "carry_forward", "Carry the correction",
+        "Carry your newest correction to the frames around it where the same tracks show "
+        "the same error (one undo step)", ("Ctrl+Shift+C",)),
     Key("Frames", "write_note", "Write a note",
         "Write a note in this frame's thread: Return adds it, Esc keeps it as a draft; either "
         "way the keys go back to the Canvas", ("C",)),

@@ -63,6 +63,7 @@ from app.model.edits import (
 )
 from app.model.labels import FrameLabels, FrameState, Person
 from app.model.skeleton import Skeleton
+from app.parallel import check_workers
 from app.progress import Progress
 from app.review.review import is_review
 from app.session import Session, Stop
@@ -266,6 +267,9 @@ class MainWindow(QMainWindow):
             "write_note": self._focus_note,
             "next_person": lambda: self.step_person(1),
             "prev_person": lambda: self.step_person(-1),
+            "next_in_track": lambda: self.step_track(1),
+            "prev_in_track": lambda: self.step_track(-1),
+            "carry_forward": self.carry_forward,
             "clear_selection": self._escape,
             "give_best": self.give_to_best,
             "next_finding": lambda: self.session.step(1),
@@ -371,8 +375,9 @@ class MainWindow(QMainWindow):
             "&Edit": ["undo", "redo", None, "give_best", "mark_visible", "mark_occluded",
                       "mark_unlabeled", "place_joint", None, "new_person", "split_person",
                       "swap_sides", "merge_people", "delete_person", None, "region_mode"],
-            "&Frame": ["next_frame", "prev_frame", None, "mark_disputed", "sign_off",
-                       "write_note", None, "next_person", "prev_person", "clear_selection"],
+            "&Frame": ["next_frame", "prev_frame", "next_in_track", "prev_in_track", None,
+                       "mark_disputed", "sign_off", "write_note", "carry_forward", None,
+                       "next_person", "prev_person", "clear_selection"],
             "&View": ["focus_mode", "show_unlabeled", "show_tags", None, "fit", "actual_size",
                       "zoom_in", "zoom_out"],
             "&Review": review,
@@ -906,6 +911,47 @@ class MainWindow(QMainWindow):
             self.canvas.fit()
 
     # ------------------------------------------------------------------ selection
+
+    def step_track(self, step: int) -> None:
+        """Go to the next (1) or previous (-1) frame of the selected person's track, with the
+        same track's person selected there."""
+        from app.jobs_tracks import track_step
+
+        pid = self.canvas.selected_person
+        if self.frame_id is None or pid is None:
+            self._message("select a person on a track first (run `posewright track`)")
+            return
+        found = track_step(self.project, self.frame_id, pid, step)
+        if found is None:
+            self._message("no later frame on this track" if step > 0 else
+                          "no earlier frame on this track")
+            return
+        fid, there, place, length = found
+        self.show_frame(fid)
+        self.canvas.select_person(there)
+        track = next((p.track for p in self.canvas.people if p.id == there), None)
+        self._message(f"track {track}: frame {place} of {length}")
+
+    def carry_forward(self) -> None:
+        """Carry the newest correction to the frames around it that show the same error, as
+        one undo step, and say where the batch ends."""
+        from app.jobs_tracks import last_correction, propose_carry, take_batch
+
+        ok, batch = self._attempt(lambda: propose_carry(
+            self.project, *last_correction(self.project)[1:]))
+        if not ok:
+            return
+        if not batch.edits:
+            self._message(f"the correction of frame {batch.origin} shows in no frame around it")
+            return
+        ok, _ = self._attempt(lambda: take_batch(self.project, batch))
+        if ok:
+            ends = [str(f) for f in (batch.stopped_backward, batch.stopped_forward)
+                    if f is not None]
+            self._message(f"carried the correction of frame {batch.origin} to "
+                          f"{count(len(batch.edits), 'frames')}"
+                          + (f"; the error is absent from frame {' and '.join(ends)}"
+                             if ends else ""))
 
     def step_person(self, step: int) -> None:
         people = self.canvas.people
@@ -1523,13 +1569,15 @@ class MainWindow(QMainWindow):
         folder = fn and QFileDialog.getExistingDirectory(self, "Import network maps",
                                                          str(self.project.folder))
         if fn and folder:
-            self.run_long("Importing network maps", lambda pr: fn(self.project, folder, pr),
+            self.run_long("Importing network maps",
+                          lambda pr: fn(self.project, folder, pr, workers=check_workers(None)),
                           lambda _r: self._message("network maps imported"))
 
     def _run_triage(self) -> None:
         fn = self._analysis_job("run_triage")
         if fn is not None:
-            self.run_long("Running triage", lambda pr: fn(self.project, progress=pr),
+            self.run_long("Running triage",
+                          lambda pr: fn(self.project, progress=pr, workers=check_workers(None)),
                           lambda _r: self._message("triage done; the Worklist is re-ranked"))
 
     def _export_labels(self) -> None:
@@ -1553,7 +1601,8 @@ class MainWindow(QMainWindow):
                                                          str(self.project.folder))
         if fn and folder:
             self.run_long("Exporting training targets",
-                          lambda pr: fn(self.project, folder, progress=pr),
+                          lambda pr: fn(self.project, folder, progress=pr,
+                                        workers=check_workers(None)),
                           lambda stats: self._exported(
                               f"training targets of {count(stats['frames'], 'frames')} "
                               f"written to {folder}", stats))
@@ -1624,7 +1673,8 @@ class MainWindow(QMainWindow):
             elif which == "this" and self.frame_id is not None:
                 chosen = [self.frame_id]
             self.run_long(f"Pre-labelling with {Path(model).name}",
-                          lambda pr: prelabel(self.project, model, config, chosen, pr),
+                          lambda pr: prelabel(self.project, model, config, chosen, pr,
+                                              workers=check_workers(None)),
                           self._prelabelled)
 
         dialog.accepted.connect(go)

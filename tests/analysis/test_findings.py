@@ -126,6 +126,20 @@ def test_two_people_standing_alike_a_shoulder_width_apart_are_two():
         assert [f.person_id for f in _find(people, "duplicate", scores)] == expected
 
 
+def test_a_torso_inflated_by_a_wrong_hip_makes_no_one_a_copy():
+    """A synthetic neighbour 0.3 of a stature aside whose hips are a much larger person's
+    (its torso scale doubles): measured against the larger body the pair would look 0.15
+    apart and alike; a copy is as large as its body, so against the smaller they are two."""
+    body = _body()
+    other = body.copy()
+    other[:, 0] += 0.3 * 300.0
+    for side in ("left", "right"):
+        other[J[f"{side}_hip"], 1] += 0.3 * 300.0
+    people = {1: body, 2: other}
+    scores = {1: np.full(17, 0.9), 2: np.full(17, 0.9)}
+    assert _find(people, "duplicate", scores) == []
+
+
 def test_a_body_cut_in_two_is_merged_into_one():
     """Upper body (face, shoulders, arms) and lower body (hips, legs) of one person as two
     people: merged, the labels are the body's again."""

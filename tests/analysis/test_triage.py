@@ -194,6 +194,32 @@ def test_triage_holds_on_a_held_out_seed(tmp_path):
     assert fig.precision >= 0.7
 
 
+@pytest.mark.slow
+def test_triage_and_fixes_on_the_choir(tmp_path):
+    """The same measurement on the second scenario, a choir on stepped risers (synthetic;
+    app.demo.choir, seed 21, first 8 frames), which no weight, threshold or calibration was
+    fitted on; and the findings' accept-all figure there (judged joint by joint as in
+    tests/demo/test_calibrate.py). The issue's goal (recall >= 0.85, precision >= 0.7; fixes
+    losing <= 2 % of correct joints and removing >= 40 % of wrong ones) is not met yet; the
+    thresholds sit a little below the figures measured when written: 273 people, 127 wrong,
+    134 flagged, 95 of them wrong (recall 0.748, precision 0.709); accepting every fix took
+    wrong labelled joints from 603 to 476 (21.1 % removed) and correct ones from 3,567 to
+    3,544 (-0.6 %)."""
+    from app.demo.calibrate import accept_all, demo_frames
+
+    folder = tmp_path / "choir21"
+    generate(folder, seed=21, frames=8, scene="choir")
+    fig = measure(folder)
+    print(fig.report("choir seed 21, 8 frames"))
+    assert fig.ours_agree
+    assert fig.recall >= 0.72
+    assert fig.precision >= 0.68
+    figure = accept_all(demo_frames(folder), demo="choir seed 21")
+    print(json.dumps(figure.to_dict(), indent=1))
+    assert figure.removed_share >= 0.18
+    assert figure.correct_change >= -0.015
+
+
 # ------------------------------------------------------------------ crafted people
 
 def _body(seed: int = 7, centre=(640.0, 400.0), stature: float = 300.0,

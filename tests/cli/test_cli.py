@@ -190,6 +190,23 @@ def test_demo_refuses_to_write_over_a_project_unless_forced(tmp_path, image_dir,
     assert written == [(proj, 1)] and not (proj / "project.db").exists()
 
 
+def test_demo_writes_the_choir_when_asked_and_the_dance_by_default(tmp_path, capsys,
+                                                                    monkeypatch):
+    """`posewright demo DIR --scene choir --seed N` asks the generator for the choir with that
+    seed; without --scene it asks for the dance; an unknown scene is refused with status 2."""
+    import app.demo
+
+    asked = []
+    monkeypatch.setattr(app.demo, "generate",
+                        lambda out, **kw: asked.append((kw["scene"], kw["seed"])))
+    assert _run(capsys, "demo", tmp_path / "a", "--scene", "choir", "--seed", "3", "-q")[0] == 0
+    assert _run(capsys, "demo", tmp_path / "b", "-q")[0] == 0
+    assert asked == [("choir", 3), ("dance", app.demo.DEFAULT_SEED)]
+    with pytest.raises(SystemExit) as exit_:
+        main(["demo", str(tmp_path / "c"), "--scene", "opera", "-q"])
+    assert exit_.value.code == 2 and "--scene" in capsys.readouterr().err
+
+
 def test_demo_force_refuses_a_project_open_for_editing(tmp_path, image_dir, capsys):
 
     with new_project(tmp_path / "p", images=image_dir, author="ana"):

@@ -476,3 +476,25 @@ def test_a_packet_returned_with_the_decisions_of_version_0_1_0_still_merges(
     assert packet.returned.decisions[fid].decision == new
     merge_packet(labelled, older)
     assert labelled.frame(fid).state is (state or FrameState.CORRECTED)
+
+
+@pytest.mark.folder_only  # a review project is always a folder
+def test_a_review_project_that_holds_decisions_of_version_0_1_0_reads_them_as_today(
+        labelled, tmp_path):
+    """A review opened with version 0.1.0 stored "needs-change" in its project; opened again
+    it reads as "query", and the same key withdraws it (synthetic project; our own rule)."""
+    from app.review.review import decisions, set_decision
+
+    path = send(labelled, tmp_path / "p.zip", images="none")
+    fid = labelled.frames()[0].id
+    with open_packet(path) as reviewed:
+        set_decision(reviewed, fid, "query")
+    db = sqlite3.connect(review_folder(path) / "project.db")
+    with db:
+        db.execute("UPDATE review_decisions SET decision = 'needs-change'")
+    db.close()
+    with open_packet(path) as reviewed:
+        assert decisions(reviewed)[fid].decision == "query"
+        assert set_decision(reviewed, fid, "needs change").decision == "query"
+        set_decision(reviewed, fid, None)
+        assert fid not in decisions(reviewed)

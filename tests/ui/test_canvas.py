@@ -140,3 +140,29 @@ def test_place_puts_the_selected_joint_at_the_pointer(qtbot, window, ui_project)
     x, y, v = _joint(ui_project, window.frame_id, pid, 13)
     ex, ey = canvas.screen_to_image(QPointF(target))
     assert (round(x, 2), round(y, 2), v) == (round(ex, 2), round(ey, 2), 2)
+
+
+def test_the_remembered_overlay_layer_shows_what_painting_anew_shows(qtbot, window):
+    """A repaint that copies the overlay layer gives the picture a repaint that paints every
+    person again gives (to 1 of 255 per channel: premultiplied rounding), and a selection
+    or a moved joint is painted, not the remembered layer (synthetic project)."""
+    canvas = window.canvas
+    qtbot.waitUntil(lambda: canvas.has_image, timeout=5000)
+
+    def grab(fresh):
+        if fresh:
+            canvas._overlay._key = None
+        return canvas.grab().toImage()
+
+    def pixels(image):
+        image = image.convertToFormat(image.Format.Format_RGB32)
+        rows = np.frombuffer(image.constBits(), np.uint8).reshape(image.height(), -1)
+        return rows[:, : image.width() * 4].copy()  # a copy: the image goes with this call
+
+    copied, painted = pixels(grab(False)), pixels(grab(True))
+    assert np.abs(copied.astype(int) - painted).max() <= 1
+    pid = person_id(window, 2)
+    qtbot.mouseClick(canvas, Qt.MouseButton.LeftButton, pos=screen_point(window, pid, 9))
+    selected = pixels(grab(False))
+    assert np.abs(selected.astype(int) - pixels(grab(True))).max() <= 1
+    assert np.abs(selected.astype(int) - painted).max() > 50  # the selection ring shows

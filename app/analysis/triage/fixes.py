@@ -365,20 +365,20 @@ def duplicates(view: FrameView) -> list[Proposal]:
 
     Notes
     -----
-    For two people with at least three joint types labelled in both, ``d_j`` is the offset
-    of their joint ``j`` and ``shift`` the median offset. Two bodies of a crowd that stand
-    close differ in pose and size, so their offsets scatter; a network's second response to
-    one body repeats its shape at one shift. ``residual``: the median distance of the
-    ``d_j`` from ``shift``, over the larger stature; ``near``: the median ``|d_j|`` over the
-    larger stature. Strength: ``residual`` ramped from ``SHAPE_FROM`` (0.012) to
-    ``SHAPE_SURE`` (0.004; a network's jitter on a joint is about 1 % of stature), times
-    ``near`` ramped from ``DUPLICATE_FROM`` (0.26, a shoulder width: neighbours side by side
-    stand at least that far apart) to ``NEAR_SURE`` (0.2): far apart, two people of a crowd
-    that moves or stands alike look alike. The copy is the one with fewer labelled
-    joints (the other carries more of the body); of two as complete, the one the model scored
-    lower on the shared joints. Fix: give the keeper the joints only the copy has, carried
-    over by the shift (where they fit the keeper's body), and delete the copy. Common
-    practice, no source.
+    For two people with at least three joint types labelled in both, ``d_j`` is the offset of
+    their joint ``j`` and ``shift`` the median offset. Two bodies of a crowd that stand close
+    differ in pose and size, so their offsets scatter; a network's second response to one body
+    repeats its shape, and its size, at one shift. ``residual``: the median distance of the
+    ``d_j`` from ``shift``, over the smaller stature; ``near``: the median ``|d_j|`` over the
+    smaller stature (a copy is as large as its body, so a torso inflated by a wrong joint must
+    not make its neighbours look near). Strength: ``residual`` ramped from ``SHAPE_FROM``
+    (0.012) to ``SHAPE_SURE`` (0.004; a network's jitter on a joint is about 1 % of stature),
+    times ``near`` ramped from ``DUPLICATE_FROM`` (0.26, a shoulder width: neighbours side by
+    side stand at least that far apart) to ``NEAR_SURE`` (0.2): far apart, two people of a crowd
+    that moves or stands alike look alike. The copy is the one with fewer labelled joints (the
+    other carries more of the body); of two as complete, the one the model scored lower on the
+    shared joints. Fix: give the keeper the joints only the copy has, carried over by the shift
+    (where they fit the keeper's body), and delete the copy. Common practice, no source.
     """
     out = []
     ids = view.present
@@ -392,11 +392,13 @@ def duplicates(view: FrameView) -> list[Proposal]:
             if not scales:
                 continue
             offsets = a[both, :2] - b[both, :2]
-            near = float(np.median(np.hypot(*offsets.T))) / max(scales)
+            # A copy repeats its body's size: measured against the smaller body, a torso that
+            # a wrong joint inflates does not make everyone round it look near and alike.
+            near = float(np.median(np.hypot(*offsets.T))) / min(scales)
             if near >= DUPLICATE_FROM:
                 continue
             shift = np.median(offsets, axis=0)
-            residual = float(np.median(np.hypot(*(offsets - shift).T))) / max(scales)
+            residual = float(np.median(np.hypot(*(offsets - shift).T))) / min(scales)
             strength = ramp(residual, SHAPE_FROM, SHAPE_SURE) * \
                 ramp(near, DUPLICATE_FROM, NEAR_SURE)
             if strength <= 0:
