@@ -205,10 +205,12 @@ def head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
     Stature ``H`` is :func:`app.analysis.anthropometry.person_scale` (from the torso); without
     a labelled torso segment it is the spread of the face joints over 0.1 (a head is about
     0.1 H wide), else the larger side of the box around the labelled joints. With three or
-    more people in the frame, ``H`` is at most twice their median: a larger torso holds a
-    joint of another person (the face joints are still held, see below).
+    more people in the frame, ``H`` is kept between half and twice their median: a larger
+    torso holds a joint of another person, a smaller one is a fragment of a person (the face
+    joints are held whatever the scale, see below).
 
-    Face joints more than ``0.2 H`` apart are taken for two heads (a label given to a
+    Face joints more than ``0.2 H`` apart (H here at least the frame's median stature, as a
+    small torso is the commoner error) are taken for two heads (a label given to a
     neighbour, a face put on the wrong copy of a person found twice; two heads side by side
     are about a shoulder width, 0.26 H, apart, while one head's landmarks lie within 0.1 H
     and a torso seen side on understates H): they are gathered as map peaks are
@@ -267,19 +269,20 @@ def label_head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
     out = np.full((len(people), 4), np.nan)
     extra: list[tuple[int, np.ndarray]] = []
     statures = _statures(people, skeleton)
-    cap = _cap(statures)
+    low, high = _bounds(statures)
     for n, person in enumerate(people):
         kp = np.asarray(person, dtype=np.float64)
         on = _labelled(kp)
         if not on.any():
             continue
-        stature = min(float(statures[n]), cap)
+        stature = float(np.clip(statures[n], low, high))
         face_on = [j for j in face if on[j]]
         shoulders_on = [j for j in shoulders if on[j]]
         if face_on:
             xy = kp[face_on, :2]
+            typical = high / 2 if np.isfinite(high) else stature  # the frame's median
             groups = _heads(xy, -np.arange(len(xy), dtype=np.float64),
-                            np.full(len(xy), OTHER_HEAD * stature))
+                            np.full(len(xy), OTHER_HEAD * max(stature, typical)))
             groups.sort(key=len, reverse=True)  # stable: of equal groups, the nose's first
             ellipses = [_group_ellipse(xy[g], stature, floor) for g in groups]
             out[n] = ellipses[0]
@@ -316,11 +319,15 @@ def _statures(people: Sequence[np.ndarray], skeleton: Skeleton) -> np.ndarray:
     return out
 
 
-def _cap(statures: np.ndarray) -> float:
-    """Twice the median of a frame's statures when three or more are known, else infinity:
-    a torso twice the size of the frame's typical one holds a wrong joint."""
+def _bounds(statures: np.ndarray) -> tuple[float, float]:
+    """Half and twice the median of a frame's statures when three or more are known, else
+    no bounds: a torso twice the size of the frame's typical one holds a wrong joint, one
+    less than half of it is a fragment of a person or seen end on."""
     known = statures[np.isfinite(statures) & (statures > 0)]
-    return float(2 * np.median(known)) if len(known) >= 3 else np.inf
+    if len(known) < 3:
+        return 0.0, np.inf
+    median = float(np.median(known))
+    return 0.5 * median, 2 * median
 
 
 def _floor(size: tuple[int, int]) -> float:
@@ -522,7 +529,7 @@ def _people_scale(people: Sequence[np.ndarray], skeleton: Skeleton,
     """Each labelled person's head centre and stature (NaN where nothing places them)."""
     centres = head_ellipses(people, skeleton, image_size)[:, :2].reshape(-1, 2)
     statures = _statures(people, skeleton)
-    return centres, np.minimum(statures, _cap(statures))
+    return centres, np.clip(statures, *_bounds(statures))
 
 
 def _heads(xy: np.ndarray, score: np.ndarray, reach: np.ndarray) -> list[np.ndarray]:
