@@ -27,6 +27,7 @@ from app import __version__
 from app.errors import BadInput, Cancelled, PosewrightError, ProjectLocked
 from app.fileio import MAX_ID, json_ready, read_json
 from app.model.labels import FrameState
+from app.model.naming import Names, ledger_names
 from app.parallel import check_workers
 from app.progress import Progress
 from app.safetext import shown
@@ -264,14 +265,19 @@ def cmd_ledger(args: argparse.Namespace) -> int:
     with _open(args, write=False) as project:
         frame_id = project.find_frame(args.frame).id if args.frame is not None else None
         entries = project.history(frame_id=frame_id, limit=args.limit)
+        names = {fid: Names.of_frame(project.skeleton, [p.id for p in project.people(fid)])
+                 for fid in {e.frame_id for e in entries if e.frame_id is not None}}
     if args.json:
         print_json([e.__dict__ for e in entries])
         return 0
     for e in entries:
         when = time.strftime("%Y-%m-%d %H:%M:%S", time.localtime(e.time))
         frame = "-" if e.frame_id is None else str(e.frame_id)
+        what = ledger_text(e.summary)
+        if e.frame_id is not None:
+            what = ledger_names(what, names[e.frame_id])
         print(f"{e.seq:>6}  {when}  {shown(e.author):<12}  frame {frame:<6}  {e.kind:<6}  "
-              f"{shown(e.target):<22}  {shown(ledger_text(e.summary))}")
+              f"{shown(e.target):<22}  {shown(what)}")
     return 0
 
 

@@ -249,7 +249,7 @@ def accept_fixes(project: Project, kinds: set[str] | None = None, min_confidence
                     continue
                 out.fixes.append(finding)
                 claimed.update(finding.people)
-                for frame in _frames_of(finding):
+                for frame in fix_frames(finding):
                     if frame not in changed:
                         changed.append(frame)
         progress.step(len(todo), len(todo), "accepting fixes")
@@ -291,7 +291,15 @@ def accept_finding(project: Project, finding: Finding) -> Any:
     return _apply_fix(project, finding)
 
 
-def _frames_of(finding: Finding) -> list[int]:
+def accept_label(finding_id: str, edits: Sequence[Any]) -> str:
+    """The ledger's summary of an accepted fix: its edits' own summaries, which name people by
+    stable id (the ledger shows them with the tags of the day, see
+    :func:`app.model.naming.ledger_text`); a fix's own summary names them by the tags they had
+    when it was found."""
+    return f"accept finding {finding_id}: " + "; ".join(e.summary() for e in edits)
+
+
+def fix_frames(finding: Finding) -> list[int]:
     """The frames a finding's fix changes (its own first)."""
     assert finding.fix is not None
     others = sorted({e.frame_id for e in finding.fix.edits} - {finding.frame_id})
@@ -302,8 +310,8 @@ def _apply_fix(project: Project, finding: Finding) -> Any:
     """Apply a finding's fix as one action: one frame's edits as one group, a fix over
     several frames as one batch."""
     assert finding.fix is not None
-    summary = f"accept finding {finding.id}: {finding.fix.summary}"
-    if len(_frames_of(finding)) > 1:
+    summary = accept_label(finding.id, finding.fix.edits)
+    if len(fix_frames(finding)) > 1:
         return project.apply_batch(finding.fix.edits, summary, action="AcceptFinding")
     return project.apply(EditGroup(finding.frame_id, finding.fix.edits, summary))
 

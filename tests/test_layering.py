@@ -47,3 +47,42 @@ def test_no_module_outside_the_store_holds_sql_or_calls_a_driver():
         offenders += [f"{path.relative_to(APP.parent)}:{hit}"
                       for hit in sql_found(path.read_text(encoding="utf-8"))]
     assert not offenders, "SQL outside app/store:\n" + "\n".join(offenders)
+
+
+def qt_imports(source: str, ui_too: bool = False) -> list[str]:
+    """Where ``source`` imports Qt (PySide6, shiboken6), and with ``ui_too`` the app's Qt
+    layer (``app.ui``): ``line: module`` each."""
+    banned = ("PySide6", "shiboken6") + (("app.ui",) if ui_too else ())
+    found = []
+    for node in ast.walk(ast.parse(source)):
+        names = []
+        if isinstance(node, ast.Import):
+            names = [a.name for a in node.names]
+        elif isinstance(node, ast.ImportFrom) and node.module:
+            names = [node.module]
+        found += [f"{node.lineno}: {n}" for n in names
+                  if any(n == b or n.startswith(b + ".") for b in banned)]
+    return found
+
+
+def test_the_qt_detector_finds_imports():
+    """Synthetic snippets: the check can fail."""
+    assert qt_imports("from PySide6.QtCore import Qt")
+    assert qt_imports("import shiboken6")
+    assert qt_imports("from app.ui.canvas import Canvas", ui_too=True)
+    assert not qt_imports("from app.ui.canvas import Canvas")
+    assert not qt_imports("from app.session import Session", ui_too=True)
+
+
+def test_qt_is_imported_only_under_app_ui_and_the_session_layer_needs_no_window():
+    """Qt lives in app/ui alone (DEVELOPERS.md, "Layout"); app/session holds the state a
+    window shows and must not reach the window's modules either, so that every behaviour
+    there is testable without one (common practice of a presentation model, no source)."""
+    offenders = []
+    for path in sorted(APP.rglob("*.py")):
+        part = path.relative_to(APP).parts[0]
+        if part == "ui":
+            continue
+        offenders += [f"{path.relative_to(APP.parent)}:{hit}" for hit in
+                      qt_imports(path.read_text(encoding="utf-8"), ui_too=part == "session")]
+    assert not offenders, "Qt outside app/ui:\n" + "\n".join(offenders)

@@ -17,7 +17,6 @@ import numpy as np
 from app.analysis.anthropometry import limb_fractions, person_scale
 from app.analysis.association import limb_scores
 from app.model.skeleton import Skeleton
-from app.wording import count
 
 #: A limb up to this many times its expected length costs nothing (projection shortens limbs,
 #: people differ by about 10 %, and the scale estimate itself is rough).
@@ -103,6 +102,7 @@ def candidate_owners(
         if not usable:
             out.append(Candidate(int(pid), 0.0, "no labelled joint next to this one"))
             continue
+        names = [skeleton.joints[o].replace("_", " ") for _, o, _ in usable]
         if maps is not None:
             values = []
             for c, o, forward in usable:
@@ -110,7 +110,7 @@ def candidate_owners(
                 mean, _ = limb_scores(maps.pafs[c], start[None], end[None], maps.stride)
                 values.append(max(float(mean[0, 0]), 0.0))
             score = float(np.mean(values))
-            reason = f"the model's field along {count(len(values), 'limb')}"
+            reason = "field " + _listed(f"{v:.2f} to the {n}" for v, n in zip(values, names))
         else:
             scale = person_scale(kp, skeleton)
             costs, lengths = [], []
@@ -121,15 +121,23 @@ def candidate_owners(
                     costs.append(max(length / (fractions[c] * scale) - SLACK, 0.0))
             if costs:
                 score = float(np.exp(-4.0 * np.mean(costs)))
-                reason = f"limbs {np.mean(costs) + SLACK:.1f}x as long as the torso allows" \
-                    if np.mean(costs) > 0 else "limb lengths fit the torso"
+                worst = int(np.argmax(costs))
+                reason = (f"the limb to the {names[worst]} would be {costs[worst] + SLACK:.1f}x "
+                          "as long as the torso allows" if costs[worst] > 0 else
+                          "limbs to the " + _listed(names) + " fit the torso")
             else:
                 # No torso to compare against: the nearest neighbour joint decides.
-                score = float(np.exp(-min(lengths) / 100.0))
-                reason = f"{min(lengths):.0f} px from the nearest joint (no torso to compare)"
+                near = int(np.argmin(lengths))
+                score = float(np.exp(-lengths[near] / 100.0))
+                reason = f"{lengths[near]:.0f} px from the {names[near]} (no torso to compare)"
         if kp[joint, 2] > 0:
             score *= 0.8
             reason += " · swaps with its own"
         out.append(Candidate(int(pid), score, reason))
     out.sort(key=lambda c: (-c.score, c.person_id))
     return out
+
+
+def _listed(words: Any) -> str:
+    items = list(words)
+    return items[0] if len(items) == 1 else ", ".join(items[:-1]) + " and " + items[-1]

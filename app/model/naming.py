@@ -23,6 +23,7 @@ Examples
 
 from __future__ import annotations
 
+import re
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 
@@ -163,3 +164,41 @@ class Names:
     def whose(self, person_id: int, joint: int) -> str:
         """``person 3's left wrist``."""
         return f"{self.person(person_id)}'s {self.joint(joint)}"
+
+
+#: How the edits' ledger summaries name people and joints (``app.model.edits``: by stable id
+#: and joint index), and how a person is written with a tag and an id.
+_LEDGER_NAMES = re.compile(r"\bjoints? (\[[\d, ]*\]|\d+) of person (\d+)"
+                           r"|\bperson (?:\d+ )?\(#(\d+)\)|\bperson #(\d+)|\bperson (\d+)\b")
+
+
+def ledger_names(summary: str, names: Names) -> str:
+    """A ledger summary as people read it: each person by tag and stable number, each joint
+    by name.
+
+    The edits record people by stable id and joints by index (``give joint 9 of person 49
+    to person 7``), so that the ledger stays true whatever happens to the frame's list; this
+    writes them with the tags the frame shows now.
+
+    Examples
+    --------
+    >>> from app.model.skeleton import coco_body
+    >>> names = Names.of_frame(coco_body(), [7, 49])
+    >>> ledger_names("give joint 9 of person 49 to person 7", names)
+    "give person 2 (#49)'s left wrist to person 1 (#7)"
+    >>> ledger_names("split joints [11, 12] of person 49 into a new person", names)
+    "split person 2 (#49)'s hips into a new person"
+    >>> ledger_names("delete person 3 (#80)", names)
+    'delete person #80'
+    """
+    def named(m: re.Match[str]) -> str:
+        if m.group(1) is not None:
+            joints = [int(x) for x in re.findall(r"\d+", m.group(1))]
+            pid = int(m.group(2))
+            if any(j >= names.skeleton.num_joints for j in joints):
+                return m.group(0)
+            return f"{names.person(pid, with_id=True)}'s {names.joints(joints)}"
+        pid = int(next(g for g in m.groups()[2:] if g is not None))
+        return names.person(pid, with_id=True)
+
+    return _LEDGER_NAMES.sub(named, summary)

@@ -76,7 +76,7 @@ from pydantic import (
 )
 from pydantic_core import PydanticCustomError
 
-from app.errors import BadInput, NotFound
+from app.errors import BadInput, NotFound, PosewrightError
 from app.fileio import MAX_ID, JsonId, atomic_write, describe, json_ready, parse_json
 from app.formats.images import IMAGE_SUFFIXES, MAX_SIDE, read_image
 from app.formats.maps import NetworkMaps, read_maps
@@ -99,6 +99,9 @@ VERSION = 1
 MANIFEST = "manifest.json"
 LABELS = "labels.json"
 RETURNED = "returned.json"
+#: Optional member: triage's scores, reasons and findings of the frames sent, so that the
+#: reviewer sees why each frame was sent.
+TRIAGE = "triage.json"
 
 #: Largest manifest and largest JSON member read into memory.
 MAX_MANIFEST = 64 << 20
@@ -163,6 +166,9 @@ class Packet:
     members: Mapping[str, str]
     manifest: Mapping[str, Any]
     base_json: bytes = field(repr=False)
+    #: Per frame, triage's score, reasons and findings as the sender had them (may be empty).
+    triage: Mapping[int, tuple[float | None, list[dict[str, Any]], list[dict[str, Any]]]] = \
+        field(default_factory=dict)
     #: What a merge remembers to merge a return once: for a returned packet the SHA-256 of
     #: ``returned.json`` and the decisions (so returning an unchanged review again gives the
     #: same sum), otherwise of ``manifest.json``.
@@ -251,6 +257,20 @@ class _ReturnedModel(_Strict):
     time: Number
     decisions: list[_DecisionModel]
     base_sha256: StrictStr = Field(pattern=r"^[0-9a-f]{64}$")
+
+
+class _TriageFrameModel(_Strict):
+    id: JsonId
+    score: Number | None
+    reasons: list[dict[str, Any]]
+    findings: list[dict[str, Any]]
+
+
+class _TriageModel(_Strict):
+    frames: list[_TriageFrameModel]
+
+
+_TRIAGE = TypeAdapter(_TriageModel)
 
 
 class _ManifestModel(_Strict):
@@ -377,7 +397,8 @@ def read_packet(path: str | Path, returned: bool | None = None,
         manifest = _validate(_MANIFEST, data, mwhere)
         skeleton = skeleton_from_dict(manifest.skeleton, where=mwhere + ": skeleton")
         frames = _frames(manifest, mwhere)
-        expected = {LABELS} | {f.image for f in frames if f.image}
+        expected = {LABELS} | {f.image for f in frames if f.image} | \
+            ({TRIAGE} & set(manifest.members))
         if manifest.returned is not None:
             expected = {LABELS, RETURNED}
         _check_members(manifest.members, set(entries) - {MANIFEST}, expected, where)
@@ -395,6 +416,11 @@ def read_packet(path: str | Path, returned: bool | None = None,
         ids = [f.id for f in frames]
         base = _frame_contents(base_json, _LABELS, f"{where}: member {LABELS!r}", skeleton,
                                ids)[0]
+        triage = {}
+        if TRIAGE in manifest.members and manifest.returned is None:
+            raw = safezip.read_member(archive, entries[TRIAGE], where,
+                                      manifest.members[TRIAGE], MAX_JSON)
+            triage = _triage(raw, f"{where}: member {TRIAGE!r}", set(ids))
         part = None
         digest = hashlib.sha256(raw_manifest).hexdigest()
         if manifest.returned is not None:
@@ -421,8 +447,31 @@ def read_packet(path: str | Path, returned: bool | None = None,
         skeleton=skeleton, images=manifest.images, reviewer=manifest.reviewer,
         exported_by=manifest.exported_by, created=float(manifest.created), frames=frames,
         base=base, members=dict(manifest.members), manifest=data, base_json=base_json,
-        sha256=digest, returned=part,
+        sha256=digest, returned=part, triage=triage,
     )
+
+
+def _triage(raw: bytes, where: str, ids: set[int]) -> dict[int, tuple[float | None,
+                                                                     list[dict[str, Any]],
+                                                                     list[dict[str, Any]]]]:
+    """The triage member: each frame's score, reasons and findings, every finding readable."""
+    from app.analysis.triage.findings import Finding
+
+    model = _validate(_TRIAGE, parse_json(raw, where, "the member"), where)
+    out = {}
+    for i, f in enumerate(model.frames):
+        if f.id not in ids:
+            raise BadInput(f"field frames.{i}.id: frame {f.id} is not in the packet",
+                           where=where)
+        for n, d in enumerate(f.findings):
+            try:
+                Finding.from_dict(d)
+            except (KeyError, TypeError, ValueError, PosewrightError) as exc:
+                raise BadInput(f"field frames.{i}.findings.{n}: not a finding ({exc})",
+                               where=where) from None
+        out[f.id] = (None if f.score is None else float(f.score), list(f.reasons),
+                     list(f.findings))
+    return out
 
 
 def _frames(manifest: _ManifestModel, where: str) -> list[PacketFrame]:
@@ -697,6 +746,9 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
             })
         base_json = dumps_json({"frames": base_frames})
         members[LABELS] = write_member(archive, LABELS, base_json)
+        triaged = _triage_of(project, frames)
+        if triaged:
+            members[TRIAGE] = write_member(archive, TRIAGE, dumps_json({"frames": triaged}))
         manifest = {
             "format": FORMAT, "version": VERSION, "packet_id": packet_id,
             "project_id": project.project_id, "skeleton": project.skeleton.to_dict(),
@@ -721,6 +773,20 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
             b.stats.update({k: v for k, v in record.items()
                             if isinstance(v, int) and not isinstance(v, bool)})
     return stats
+
+
+def _triage_of(project: Project, frames: Sequence[Frame]) -> list[dict[str, Any]]:
+    """The frames' triage (score and reasons) and stored findings, for the reviewer."""
+    found = project.findings()
+    out = []
+    for frame in frames:
+        triage = project.triage(frame.id)
+        if triage is None and frame.id not in found:
+            continue
+        score, reasons = triage if triage is not None else (None, [])
+        out.append({"id": frame.id, "score": score, "reasons": list(reasons),
+                    "findings": list(found.get(frame.id, []))})
+    return out
 
 
 def _write_image(archive: zipfile.ZipFile, project: Project, frame: Frame, mode: str,

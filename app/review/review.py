@@ -29,6 +29,7 @@ import time
 from pathlib import Path
 from typing import Any
 
+from app.analysis.triage.findings import labels_digest
 from app.errors import BadInput, NotFound
 from app.review import safezip
 from app.review.packet import (
@@ -180,9 +181,23 @@ def _build(folder: Path, packet: Packet, who: str | None, limits: safezip.Limits
     images = folder / "images"
     images.mkdir()
     _extract_images(packet, images, limits)
-    with Project.create(folder, skeleton=packet.skeleton, author=who) as project, \
-            project.bulk("OpenPacket", f"open review packet from {packet.exported_by}",
-                         f"packet:{packet.packet_id}", kind="review") as b:
+    with Project.create(folder, skeleton=packet.skeleton, author=who) as project:
+        _fill(project, packet)
+        if packet.triage:
+            # Why each frame was sent: the sender's scores, reasons and findings (derived
+            # data, kept beside the labels as triage keeps them; not in the ledger).
+            project.store_triage({fid: (score, reasons)
+                                  for fid, (score, reasons, _) in packet.triage.items()
+                                  if score is not None})
+            project.store_findings({fid: (labels_digest(project.labels(fid)), found)
+                                    for fid, (_, _, found) in packet.triage.items()})
+    return project.author
+
+
+def _fill(project: Project, packet: Packet) -> None:
+    """The packet's frames, people and notes, and what the review remembers of it."""
+    with project.bulk("OpenPacket", f"open review packet from {packet.exported_by}",
+                      f"packet:{packet.packet_id}", kind="review") as b:
         frames = []
         for f in packet.frames:
             name = Path(f.image).name if f.image else f"{f.id}"
@@ -204,7 +219,6 @@ def _build(folder: Path, packet: Packet, who: str | None, limits: safezip.Limits
         b.set_meta(_META_MANIFEST, json.dumps(packet.manifest))
         b.set_meta(_META_BASE, packet.base_json.decode("utf-8"))
         b.count("frames", len(frames))
-    return project.author
 
 
 def _extract_images(packet: Packet, images: Path, limits: safezip.Limits) -> None:

@@ -47,8 +47,13 @@ from PySide6.QtWidgets import QWidget
 
 from app.model.edits import AddRegion, DeleteRegion, MoveJoint, ReshapeRegion
 from app.model.labels import Frame, Person
+from app.model.naming import Names
 from app.model.skeleton import Skeleton
+from app.session.owners import OwnerRanking
+from app.session.selection import Selection
+from app.session.walk import Stop
 from app.ui import regions as geometry
+from app.ui.callouts import WalkCard, paint_owner_list, paint_preview, paint_walk_card, stop_points
 from app.ui.images import Decoded, qimage_view, shrink
 from app.ui.overlay import OverlayLayout, OverlayStyle, assign_colours, paint_overlay
 
@@ -134,6 +139,8 @@ class Canvas(QWidget):
         A frame's image has been painted for the first time.
     regionChanged()
         The selected region, region mode, or the region being drawn changed.
+    ownerChosen(int)
+        A row of the owner list beside the selected joint was clicked: give it to that person.
     """
 
     selectionChanged = Signal()
@@ -142,6 +149,7 @@ class Canvas(QWidget):
     viewChanged = Signal()
     framePainted = Signal(int)
     regionChanged = Signal()
+    ownerChosen = Signal(int)
 
     #: How near (screen pixels) a click must be to a joint to hit it.
     HIT_RADIUS = 9.0
@@ -198,8 +206,8 @@ class Canvas(QWidget):
         self._oy = 0.0
         self._fit_mode = True
 
-        self._joints: list[tuple[int, int]] = []
-        self._person: int | None = None
+        #: The selection (the window shares its session's, app/session/selection.py).
+        self.selection = Selection()
         self._hover: tuple[int, int | None] | None = None
         self._drag: _Drag | None = None
         self._pan: QPointF | None = None
@@ -217,6 +225,11 @@ class Canvas(QWidget):
         #: and when (``time.perf_counter``) it was first painted.
         self.painted_frame: int | None = None
         self.painted_at = 0.0
+        #: The walk's stop shown beside its people, with the fix previewed.
+        self.walk_card: WalkCard | None = None
+        #: The ranked owners of the selected joint, listed beside it, and the rows' rectangles.
+        self.owners: OwnerRanking | None = None
+        self.owner_rows: list[tuple[QRectF, int]] = []
 
     # ------------------------------------------------------------------ content
 
@@ -230,11 +243,13 @@ class Canvas(QWidget):
         self._overlay = _OverlayLayer()  # a frame shown anew is painted anew
         self.painted_frame = None
         self.message = ""
-        self._joints = []
-        self._person = None
+        self.selection.select_person(None)
         self._hover = None
         self._drag = None
         self._pick = None
+        self.walk_card = None
+        self.owners = None
+        self.owner_rows = []
         self.colours = {}
         self.regions = []
         self._region = None
@@ -265,10 +280,7 @@ class Canvas(QWidget):
             else self._ours
         self._set_people(people, self._flags_in)
         ids = {p.id for p in people}
-        joints = [(p, j) for p, j in self._joints if p in ids]
-        person = self._person if self._person in ids else None
-        changed = joints != self._joints or person != self._person
-        self._joints, self._person = joints, person
+        changed = self.selection.keep_only(ids)
         if self._hover is not None and self._hover[0] not in ids:
             self._hover = None
         self._drag = None
@@ -369,7 +381,7 @@ class Canvas(QWidget):
         self._region_drag = None
         self._drag = None
         if on:
-            self._joints = []
+            self.selection.joints = []
             self._hover = None
             self.selectionChanged.emit()
         else:
@@ -457,33 +469,32 @@ class Canvas(QWidget):
 
     @property
     def selected_joints(self) -> list[tuple[int, int]]:
-        return list(self._joints)
+        return list(self.selection.joints)
 
     @property
     def selected_joint(self) -> tuple[int, int] | None:
         """The joint selected last (the one single-joint actions work on)."""
-        return self._joints[-1] if self._joints else None
+        return self.selection.joint
 
     @property
     def selected_person(self) -> int | None:
-        return self._person
+        return self.selection.person
 
     def select_joint(self, person_id: int, joint: int, add: bool = False) -> None:
-        pair = (int(person_id), int(joint))
-        if add:
-            if pair in self._joints:
-                self._joints.remove(pair)
-            else:
-                self._joints.append(pair)
-        else:
-            self._joints = [pair]
-        self._person = self._joints[-1][0] if self._joints else int(person_id)
+        self.selection.select_joint(person_id, joint, add)
+        self.update()
+        self.selectionChanged.emit()
+
+    def select_joints(self, pairs: list[tuple[int, int]]) -> None:
+        """Select these joints at once (one selection change); the person of the last."""
+        if not pairs:
+            return
+        self.selection.select_joints(pairs)
         self.update()
         self.selectionChanged.emit()
 
     def select_person(self, person_id: int | None) -> None:
-        self._joints = []
-        self._person = person_id
+        self.selection.select_person(person_id)
         self.update()
         self.selectionChanged.emit()
 
@@ -494,12 +505,10 @@ class Canvas(QWidget):
     def cycle_joint(self, step: int) -> bool:
         """Select the next (``step`` 1) or previous (-1) joint of the selected person, placed
         or not; returns False when no person is selected."""
-        if self._person is None:
+        nxt = self.selection.cycled(step, self.skeleton.num_joints)
+        if nxt is None:
             return False
-        k = self.skeleton.num_joints
-        current = next((j for p, j in reversed(self._joints) if p == self._person), None)
-        j = (0 if step > 0 else k - 1) if current is None else (current + step) % k
-        self.select_joint(self._person, j)
+        self.select_joint(*nxt)
         return True
 
     def set_pick_mode(self, mode: str | None) -> None:
@@ -564,8 +573,8 @@ class Canvas(QWidget):
         self.zoom_at(0.8, self._zoom_anchor())
 
     def _zoom_anchor(self) -> QPointF:
-        if self._joints:
-            p, j = self._joints[-1]
+        if self.selection.joints:
+            p, j = self.selection.joints[-1]
             person = self.person(p)
             if person is not None and np.isfinite(person.keypoints[j, :2]).all():
                 return self.image_to_screen(*person.keypoints[j, :2])
@@ -578,6 +587,47 @@ class Canvas(QWidget):
         if not inside.contains(pos):
             self.centre_on(x, y)
             self.viewChanged.emit()
+
+    def show_stop(self, stop: Stop | None, where: str = "") -> None:
+        """Show a stop of the walk: its sentence beside its people and its fix previewed;
+        centre on it when it is not well inside the view, and zoom out when it does not fit
+        (in when it would be too small to correct)."""
+        self.walk_card = None if stop is None else WalkCard(stop, where)
+        if stop is not None:
+            pts = stop_points(stop, self.people)
+            if len(pts):
+                self._frame_points(pts)
+        self.update()
+
+    def _frame_points(self, pts: np.ndarray) -> None:
+        lo, hi = pts.min(axis=0), pts.max(axis=0)
+        size = np.maximum(hi - lo, 1.0)
+        margin = 60.0
+        view = np.array([max(self.width() - 2 * margin, 50), max(self.height() - 2 * margin, 50)])
+        fits = float(np.min(view / size))
+        inside = QRectF(self.rect()).adjusted(margin, margin, -margin, -margin)
+        visible = inside.contains(self.image_to_screen(*lo)) and \
+            inside.contains(self.image_to_screen(*hi))
+        scale = self._scale
+        if scale > fits:
+            scale = fits
+        elif float(np.max(size)) * scale < 0.15 * float(np.min(view)):
+            scale = min(fits, 0.3 * float(np.min(view)) / float(np.max(size)), 4.0)
+        if visible and scale == self._scale:
+            return
+        self._scale = float(np.clip(scale, self.MIN_SCALE, self.MAX_SCALE))
+        self.centre_on(*((lo + hi) / 2))
+        self.viewChanged.emit()
+
+    def set_owners(self, ranking: OwnerRanking | None) -> None:
+        """The ranked owners of the selected joint (None: no list)."""
+        self.owners = ranking
+        self.owner_rows = []
+        self.update()
+
+    def owner_row_at(self, pos: QPointF) -> int | None:
+        """The person of the owner-list row under ``pos``, if any."""
+        return next((pid for rect, pid in self.owner_rows if rect.contains(pos)), None)
 
     def centre_on(self, x: float, y: float) -> None:
         self._ox = self.width() / 2 - self._scale * x
@@ -624,7 +674,7 @@ class Canvas(QWidget):
     # ------------------------------------------------------------------ painting
 
     def style(self) -> OverlayStyle:
-        focus = self._person if self.focus_mode else None
+        focus = self.selection.person if self.focus_mode else None
         regions = self.regions
         draft: tuple[tuple[float, float], ...] = ()
         closed = False
@@ -642,8 +692,9 @@ class Canvas(QWidget):
                 draft += (pointer,)
         return OverlayStyle(
             show_unlabeled=self.show_unlabeled, show_tags=self.show_tags, focus=focus,
-            flags=self.flags, selected_person=self._person,
-            selected_joints=frozenset(self._joints), hover=self._hover, colours=self.colours,
+            flags=self.flags, selected_person=self.selection.person,
+            selected_joints=frozenset(self.selection.joints), hover=self._hover,
+            colours=self.colours,
             regions=tuple(regions), selected_region=self._region, region_draft=draft,
             region_draft_closed=closed, differences=self.marks,
         )
@@ -663,6 +714,7 @@ class Canvas(QWidget):
             if self._drag is not None and self._drag.moved:
                 people = self._with_drag(people, self._drag)
             self._layout = self._overlay.paint(p, self, people)
+            self._paint_callouts(p)
             if self.showing_theirs:
                 self._paint_banner(p)
             if self._decoded is not None and self.painted_frame != self.frame.id:
@@ -670,6 +722,32 @@ class Canvas(QWidget):
                 self.painted_at = time.perf_counter()
                 self.framePainted.emit(self.frame.id)
         p.end()
+
+    def _paint_callouts(self, p: QPainter) -> None:
+        """The walk's card with its fix previewed, and the owner list beside the joint."""
+        card = None
+        names = Names.of_frame(self.skeleton, [q.id for q in self.people])
+        if self.walk_card is not None and not self.showing_theirs:
+            stop = self.walk_card.stop
+            if stop.fix is not None:
+                paint_preview(p, stop.fix.preview, self.people, self.skeleton, self.colours,
+                              self.image_to_screen)
+            pts = stop_points(stop, self.people)
+            if len(pts):
+                a, b = self.image_to_screen(*pts.min(axis=0)), \
+                    self.image_to_screen(*pts.max(axis=0))
+                box = QRectF(a, b).adjusted(-8, -8, 8, 8)
+            else:
+                box = QRectF(self.width() / 2 - 1, 40.0, 2.0, 2.0)
+            card = paint_walk_card(p, self.walk_card, box, QRectF(self.rect()), self.font())
+        self.owner_rows = []
+        joint = self.selected_joint
+        if self.owners is not None and joint is not None and len(self.selection.joints) == 1:
+            person = self.person(joint[0])
+            if person is not None and np.isfinite(person.keypoints[joint[1], :2]).all():
+                at = self.image_to_screen(*person.keypoints[joint[1], :2])
+                self.owner_rows = paint_owner_list(p, self.owners, names, self.colours, at,
+                                                    QRectF(self.rect()), self.font(), card)
 
     def _paint_banner(self, p: QPainter) -> None:
         """Say plainly that the reviewer's version is on screen, not ours."""
@@ -747,6 +825,10 @@ class Canvas(QWidget):
         if self.region_mode:
             self._region_press(pos)
             return
+        chosen = self.owner_row_at(pos)
+        if chosen is not None and self._pick is None:
+            self.ownerChosen.emit(chosen)
+            return
         if self._pick is not None:
             pid = self.person_at(pos)
             if pid is not None:
@@ -760,7 +842,7 @@ class Canvas(QWidget):
             if add:
                 self.select_joint(*hit, add=True)
                 return
-            if hit not in self._joints or len(self._joints) == 1:
+            if hit not in self.selection.joints or len(self.selection.joints) == 1:
                 self.select_joint(*hit)
             person = self.person(hit[0])
             if person is not None and self.editable:
@@ -952,7 +1034,8 @@ class Canvas(QWidget):
         if person is None:
             return ""
         word = {0: "unlabelled", 1: "occluded", 2: "visible"}[int(person.keypoints[j, 2])]
-        return f"{self.skeleton.joints[j]} of person {pid} (tag {self.number_of(pid)}), {word}"
+        names = Names.of_frame(self.skeleton, [p.id for p in self.people])
+        return f"{names.whose(pid, j)} (#{pid}), {word}"
 
     # ------------------------------------------------------------------ keys
 

@@ -69,6 +69,16 @@ KEYS: tuple[Key, ...] = (
     Key("Frames", "write_note", "Write a note",
         "Write a note in this frame's thread: Return adds it, Esc keeps it as a draft; either "
         "way the keys go back to the Canvas", ("C",)),
+    # The walk through the findings
+    Key("Walk", "next_finding", "Next finding",
+        "Walk to the next finding (across frames in Worklist order); skips the one shown",
+        ("W",)),
+    Key("Walk", "prev_finding", "Previous finding", "Walk back to the previous finding",
+        ("Shift+W",)),
+    Key("Walk", "accept_fix", "Accept the fix",
+        "Accept the shown finding's proposed fix (one undo step), then walk on", ("Y",)),
+    Key("Walk", "dismiss_finding", "Not a problem",
+        "Dismiss the shown finding as not a problem (undoable), then walk on", ("I",)),
     # Selection
     Key("Selection", "", "", "Select a joint; on a limb or a tag, select the person",
         gesture="Click"),
@@ -86,7 +96,7 @@ KEYS: tuple[Key, ...] = (
     Key("Joints", "", "", "Person 10 and up: type both digits quickly",
         gesture="Two digits"),
     Key("Joints", "give_best", "Give to the top suggestion",
-        "Give the selected joint to the best-ranked other person in Owners", ("G",)),
+        "Give the selected joint to the best-ranked other person listed beside it", ("G",)),
     Key("Joints", "mark_visible", "Mark visible", "Mark the selected joints visible", ("V",)),
     Key("Joints", "mark_occluded", "Mark occluded",
         "Mark the selected joints occluded (position known, hidden)", ("O",)),

@@ -24,10 +24,13 @@ from PySide6.QtCore import (
 )
 from PySide6.QtGui import QColor, QFont
 
+from app.errors import PosewrightError
 from app.model.labels import Frame, FrameState, Note, Person
+from app.model.naming import Names, ledger_names, person_text
+from app.session.worklist import people_summary, separating_kinds
 from app.store.project import LedgerEntry, Project
 from app.ui.overlay import WHOLE_PERSON, palette_colour
-from app.wording import DECISION_WORDS, count, ledger_text, reason_count, reason_label
+from app.wording import DECISION_WORDS, count, ledger_text, reason_count
 
 Index = QModelIndex | QPersistentModelIndex
 _ROOT = QModelIndex()
@@ -127,11 +130,14 @@ class WorkRow:
     state: FrameState
     kinds: frozenset[str]
     summary: str
-    details: str
     video: str = ""
     decision: str = ""
     #: On a hosted project: the colleague working on this frame now (their claim).
     claimed_by: str = ""
+    #: The frame's open findings, as last computed (None: never computed).
+    findings: int | None = None
+    #: The triage reasons, for the per-person tooltip.
+    reasons: tuple[dict[str, Any], ...] = ()
 
 
 class WorklistModel(_TableModel):
@@ -159,10 +165,12 @@ class WorklistModel(_TableModel):
             from app.review.review import decisions
 
             decided = {fid: d.decision for fid, d in decisions(self._project).items()}
+        found = {fid: len(items) for fid, items in self._project.findings().items()}
         rows = []
         for f in frames:
             score, reasons = triage.get(f.id, (None, []))
             row = _work_row(f.id, f.file_name or f.path, score, f.state, reasons)
+            row.findings = found.get(f.id)
             row.video = video_position(f)
             row.decision = DECISION_TEXT.get(decided.get(f.id, ""), "")
             rows.append(row)
@@ -177,7 +185,6 @@ class WorklistModel(_TableModel):
 
     def _others_claims(self) -> dict[int, str]:
         """Who else is working on which frame (a hosted project's claims, ours left out)."""
-        from app.errors import PosewrightError
 
         # The server may be gone for a moment; the last claims read stay until it is back.
         with contextlib.suppress(PosewrightError):
@@ -219,12 +226,18 @@ class WorklistModel(_TableModel):
         return any(r.score is not None for r in self._rows)
 
     def reason_kinds(self) -> list[tuple[str, int]]:
-        """Every reason kind with the number of frames that have it, most frequent first."""
-        counts: dict[str, int] = {}
-        for r in self._rows:
-            for k in r.kinds:
-                counts[k] = counts.get(k, 0) + 1
-        return sorted(counts.items(), key=lambda kv: (-kv[1], kv[0]))
+        """The reason kinds that tell frames apart, with the number of frames that have each,
+        most frequent first: a kind every frame has would filter nothing out."""
+        return separating_kinds([r.kinds for r in self._rows])
+
+    def _people_summary(self, row: WorkRow) -> str:
+        """The tooltip's per-person lines (people named by their tags now)."""
+        try:
+            names = Names.of_frame(self._project.skeleton,
+                                   [p.id for p in self._project.people(row.frame_id)])
+        except PosewrightError:
+            names = None
+        return people_summary(row.reasons, names)
 
     # -- Qt model
     def data(self, index: Index, role: int = DisplayRole) -> Any:
@@ -238,7 +251,11 @@ class WorklistModel(_TableModel):
             if col == 0:
                 # Two lines: the frame, then why it is suspicious (the reasons are what the
                 # annotator scans the list for, so they get a full line).
-                return f"{r.name}\n{r.summary}" if r.summary else r.name
+                line = r.summary
+                if r.findings:
+                    line = f"{count(r.findings, 'findings')} \u00b7 {line}" if line else \
+                        count(r.findings, "findings")
+                return f"{r.name}\n{line}" if line else r.name
             if col == 1:
                 return "" if r.score is None else f"{r.score:.2f}"
             if self._review:
@@ -253,7 +270,10 @@ class WorklistModel(_TableModel):
                 head += f"\n{r.claimed_by} is working on this frame"
             if self._review:
                 head += f"\nyour decision: {r.decision or 'none yet'}"
-            return f"{head}\n{r.details}" if r.details else head
+            if r.findings is not None:
+                head += f"\n{count(r.findings, 'open findings')} (W walks them)"
+            details = self._people_summary(r)
+            return f"{head}\n{details}" if details else head
         if role == AlignRole and col == 1:
             return int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
         if role == AlignRole and col == 0:
@@ -272,11 +292,8 @@ class WorklistModel(_TableModel):
 def _work_row(frame_id: int, name: str, score: float | None, state: FrameState,
               reasons: list[dict[str, Any]]) -> WorkRow:
     kinds = frozenset(str(r.get("kind", "other")) for r in reasons)
-    ranked = sorted(reasons, key=lambda r: (r.get("person") is None,
-                                            -float(r.get("weight") or 0.0)))
-    texts = [str(r.get("text") or reason_label(r.get("kind", ""))) for r in ranked]
     return WorkRow(frame_id, name, score, state, kinds, summarise_reasons(reasons),
-                   "\n".join(texts))
+                   reasons=tuple(reasons))
 
 
 def summarise_reasons(reasons: Sequence[dict[str, Any]]) -> str:
@@ -341,9 +358,10 @@ class WorklistFilter(QSortFilterProxyModel):
 # ---------------------------------------------------------------------------------- Owners
 
 class PeopleModel(_TableModel):
-    """The people of the current frame: tag number and colour, id, joints, flags."""
+    """The people of the current frame: tag (with colour) and stable number, then how many of
+    their joints are labelled, occluded and flagged by triage."""
 
-    COLUMNS = ("", "person", "labelled", "occluded", "flags")
+    COLUMNS = ("person", "labelled", "occluded", "flagged")
 
     def __init__(self, parent: Any = None):
         super().__init__(parent)
@@ -387,85 +405,20 @@ class PeopleModel(_TableModel):
         if role == DisplayRole:
             v = p.keypoints[:, 2]
             if col == 0:
-                return str(n)
+                return f"{n} (#{p.id})"
             if col == 1:
-                return str(p.id)
-            if col == 2:
                 return f"{int(np.count_nonzero(v > 0))}/{len(v)}"
-            if col == 3:
+            if col == 2:
                 occluded = int(np.count_nonzero(v == 1))
                 return str(occluded) if occluded else ""
             flags = self._flags.get(p.id, frozenset())
             n_flags = len(flags - {WHOLE_PERSON}) + (1 if WHOLE_PERSON in flags else 0)
             return str(n_flags) if n_flags else ""
         if role == ToolTipRole:
-            return f"person {p.id} (tag {n}); number key {n} gives the selected joint to them" \
-                if n <= 9 else f"person {p.id} (tag {n})"
-        if role == AlignRole and col in (0, 2, 3, 4):
-            return int(Qt.AlignmentFlag.AlignCenter)
-        return None
-
-
-@dataclass(frozen=True)
-class OwnerChoice:
-    """One candidate owner of the selected joint: ``score`` in [0, 1] from the analysis, or
-    None when only the distance could be used."""
-
-    person_id: int
-    number: int
-    score: float | None
-    reason: str
-    is_owner: bool = False
-
-
-class CandidatesModel(_TableModel):
-    """The ranked candidate owners of the selected joint, best first."""
-
-    COLUMNS = ("", "person", "fit", "why")
-
-    def __init__(self, parent: Any = None):
-        super().__init__(parent)
-        self._rows: list[OwnerChoice] = []
-        self._colours: dict[int, int] = {}
-        self.note = ""
-
-    def set_choices(self, choices: Sequence[OwnerChoice], note: str = "",
-                    colours: dict[int, int] | None = None) -> None:
-        self.beginResetModel()
-        self._rows = list(choices)
-        self._colours = dict(colours or {})
-        self.note = note
-        self.endResetModel()
-
-    def choice(self, row: int) -> OwnerChoice:
-        return self._rows[row]
-
-    def choices(self) -> list[OwnerChoice]:
-        return list(self._rows)
-
-    def data(self, index: Index, role: int = DisplayRole) -> Any:
-        if not index.isValid():
-            return None
-        c = self._rows[index.row()]
-        col = index.column()
-        if role == KeyRole:
-            return c.person_id
-        if role == DecorationRole and col == 0:
-            return palette_colour(self._colours.get(c.person_id, c.number - 1))
-        if role == DisplayRole:
-            if col == 0:
-                return str(c.number)
-            if col == 1:
-                return f"{c.person_id} (owner)" if c.is_owner else str(c.person_id)
-            if col == 2:
-                return "" if c.score is None else f"{c.score:.2f}"
-            return c.reason
-        if role == ToolTipRole:
-            return c.reason if c.is_owner else \
-                f"click to give the joint to person {c.person_id}: {c.reason}"
-        if role == ForegroundRole and c.is_owner:
-            return QColor("#777777")
-        if role == AlignRole and col in (0, 2):
+            name = person_text(n, p.id)
+            return f"{name}; number key {n} gives the selected joint to them" \
+                if n <= 9 else name
+        if role == AlignRole and col in (1, 2, 3):
             return int(Qt.AlignmentFlag.AlignCenter)
         return None
 
@@ -499,6 +452,8 @@ class LedgerModel(_TableModel):
         self._frame_id: int | None = None
         self._whole = False
         self._rows: list[LedgerRow] = []
+        #: Per frame, the names of its people now (the summaries are written with them).
+        self._names: dict[int, Names] = {}
 
     @property
     def whole_project(self) -> bool:
@@ -518,7 +473,25 @@ class LedgerModel(_TableModel):
             entries = []
         self.beginResetModel()
         self._rows = group_entries(entries)
+        self._names = {}
+        if self._rows and not self._whole:
+            self.text(self._rows[0])  # the frame's names read now, not while painting
         self.endResetModel()
+
+    def text(self, row: LedgerRow) -> str:
+        """The row's summary with people by tag and number and joints by name."""
+        if not row.frames:
+            return row.summary
+        fid = row.frames[0]
+        names = self._names.get(fid)
+        if names is None:
+            try:
+                names = Names.of_frame(self._project.skeleton,
+                                       [p.id for p in self._project.people(fid)])
+            except PosewrightError:  # closed or gone: the summary as recorded
+                return row.summary
+            self._names[fid] = names
+        return ledger_names(row.summary, names)
 
     def ledger_row(self, row: int) -> LedgerRow:
         return self._rows[row]
@@ -537,7 +510,7 @@ class LedgerModel(_TableModel):
                 return r.author
             if col == 2:
                 return ", ".join(map(str, r.frames[:3])) + ("\u2026" if len(r.frames) > 3 else "")
-            return r.summary
+            return self.text(r)
         if role == ToolTipRole:
             return (f"{r.kind}, {count(r.changes, 'change')}, ledger entry {r.seq}\n"
                     f"{time.strftime('%Y-%m-%d %H:%M:%S', time.localtime(r.time))}")
@@ -608,8 +581,7 @@ class NotesModel(QAbstractListModel):
         if role == DisplayRole:
             about = ""
             if n.person_id is not None:
-                tag = self._numbers.get(n.person_id)
-                about = f" about person {n.person_id}" + (f" (tag {tag})" if tag else "")
+                about = " about " + person_text(self._numbers.get(n.person_id), n.person_id)
             return f"{n.author}, {when(n.time)}{about}\n{n.text}"
         if role == ToolTipRole:
             return time.strftime("%Y-%m-%d %H:%M:%S", time.localtime(n.time))

@@ -28,16 +28,14 @@ from PySide6.QtWidgets import (
 from app.model.labels import FrameState
 from app.ui.models import (
     STATE_TEXT,
-    CandidatesModel,
     KeyRole,
     LedgerModel,
     NotesModel,
     PeopleModel,
     WorklistFilter,
     WorklistModel,
-    reason_label,
 )
-from app.wording import count
+from app.wording import count, reason_label
 
 
 def _table(model, stretch: int, widths: tuple[int, ...] | None = None) -> QTableView:
@@ -192,61 +190,37 @@ class WorklistPanel(QWidget):
 # ---------------------------------------------------------------------------------- Owners
 
 class OwnersPanel(QWidget):
-    """The frame's people, the selected joint's candidate owners, and the person actions."""
+    """The frame's people (tag, labelled, occluded and flagged joints), what is selected, and
+    whether anybody fits the selected joint better than its owner. The ranked owners
+    themselves are listed beside the joint on the Canvas."""
 
     personChosen = Signal(int)
-    candidateChosen = Signal(int)
-
-    ACTIONS = ("new_person", "split_person", "mark_visible", "mark_occluded", "mark_unlabeled",
-               "swap_sides", "merge_people", "delete_person")
 
     def __init__(self, actions: dict[str, QAction], parent: QWidget | None = None):
         super().__init__(parent)
         self.people_model = PeopleModel(self)
-        self.candidates_model = CandidatesModel(self)
         self._quiet = False
 
-        self.people = _table(self.people_model, 1, (52, 60, 62, 62, 40))
+        self.people = _table(self.people_model, 3, (100, 62, 62))
         self.people.setObjectName("PeopleView")
+        self.people.setToolTip("Click a person to select them; number keys give the selected "
+                               "joint to the person with that tag")
         self.selection = QLabel("Nothing selected.")
         self.selection.setWordWrap(True)
         self.selection.setTextFormat(Qt.TextFormat.RichText)
         self.selection.setSizePolicy(QSizePolicy.Policy.Preferred, QSizePolicy.Policy.Minimum)
         self.note = QLabel()
         self.note.setWordWrap(True)
-        self.note.setStyleSheet("color: #8a5a00;")
-        self.candidates = _table(self.candidates_model, 3, (44, 56, 40))
-        self.candidates.setObjectName("CandidatesView")
-        self.candidates.setWordWrap(True)
-        # The reasons are sentences: let rows grow to show them whole (a few dozen rows).
-        self.candidates.verticalHeader().setSectionResizeMode(
-            QHeaderView.ResizeMode.ResizeToContents)
-        self.candidates.setToolTip("Click a person to give the selected joint to them")
+        self.note.setTextFormat(Qt.TextFormat.RichText)
 
-        grid = QGridLayout()
-        _tight(grid)
-        grid.setContentsMargins(0, 0, 0, 0)
-        for i, name in enumerate(self.ACTIONS):
-            button = QToolButton()
-            button.setDefaultAction(actions[name])
-            button.setToolButtonStyle(Qt.ToolButtonStyle.ToolButtonTextOnly)
-            button.setSizePolicy(QSizePolicy.Policy.Expanding, QSizePolicy.Policy.Fixed)
-            grid.addWidget(button, i // 2, i % 2)
-
-        give = QLabel("<b>Give the joint to</b> (click, or press the tag number)")
-        give.setWordWrap(True)
         layout = QVBoxLayout(self)
         _tight(layout)
-        layout.addWidget(self.people, 2)
         layout.addWidget(self.selection)
-        layout.addWidget(give)
         layout.addWidget(self.note)
-        layout.addWidget(self.candidates, 3)
-        layout.addLayout(grid)
+        layout.addWidget(self.people, 1)
 
         self.people.selectionModel().currentRowChanged.connect(self._person_changed)
         self.people.clicked.connect(self._person_clicked)
-        self.candidates.clicked.connect(self._candidate_clicked)
 
     def _person_changed(self, current: QModelIndex, _previous: QModelIndex) -> None:
         if not self._quiet and current.isValid():
@@ -255,10 +229,6 @@ class OwnersPanel(QWidget):
     def _person_clicked(self, index: QModelIndex) -> None:
         if not self._quiet and index.isValid():
             self.personChosen.emit(int(index.data(KeyRole)))
-
-    def _candidate_clicked(self, index: QModelIndex) -> None:
-        if index.isValid():
-            self.candidateChosen.emit(int(index.data(KeyRole)))
 
     def show_person(self, person_id: int | None) -> None:
         """Highlight a person's row without emitting :attr:`personChosen`."""
@@ -276,12 +246,6 @@ class OwnersPanel(QWidget):
                 self.people.scrollTo(idx)
         finally:
             self._quiet = False
-
-    def candidate_row(self, person_id: int) -> int | None:
-        for i, c in enumerate(self.candidates_model.choices()):
-            if c.person_id == person_id:
-                return i
-        return None
 
 
 # ---------------------------------------------------------------------------------- Ledger

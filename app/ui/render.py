@@ -90,7 +90,7 @@ def render_frame_image(project: Project, frame: Frame, focus: int | None = None)
     bgr = read_image(project.image_path(frame))
     people = project.people(frame.id)
     if focus is not None and focus not in {p.id for p in people}:
-        listing = ", ".join(f"{p.id} (tag {n + 1})" for n, p in enumerate(people)) or "none"
+        listing = ", ".join(f"#{p.id} (tag {n + 1})" for n, p in enumerate(people)) or "none"
         raise NotFound(f"frame {frame.id} has no person {focus}; its people are: {listing}")
     triage = project.triage(frame.id)
     regions = tuple((rid, tuple(tuple(p) for p in polys))

@@ -19,6 +19,7 @@ The same window serves three situations, each with a strip above the Canvas
 
 from __future__ import annotations
 
+import html
 import logging
 import time
 from collections.abc import Callable
@@ -50,6 +51,7 @@ from app.model.edits import (
     AddRegion,
     DeletePerson,
     Edit,
+    EditGroup,
     MergePeople,
     MoveJoint,
     NewPerson,
@@ -64,8 +66,10 @@ from app.model.skeleton import Skeleton
 from app.parallel import check_workers
 from app.progress import Progress
 from app.review.review import is_review
+from app.session import Session, Stop
+from app.session.owners import FIT_MEANING, OwnerRanking, rank_owners, swap_warning
+from app.session.settling import Dispute, describe_difference, step_difference
 from app.store.project import Applied, Project
-from app.ui.batch import Batch
 from app.ui.canvas import Canvas
 from app.ui.images import ImageCache, ImageLoader
 from app.ui.keys import KEYS, sequences, sheet_html
@@ -80,9 +84,7 @@ from app.ui.models import (
 from app.ui.overlay import WHOLE_PERSON, flags_from_reasons
 from app.ui.panels import LedgerPanel, NotesPanel, OwnersPanel, WorklistPanel
 from app.ui.settings import cache_bytes, settings
-from app.ui.settling import Dispute, describe_difference, load_dispute, step_difference
 from app.ui.strips import Strip
-from app.ui.suggestions import rank_owners
 from app.ui.work import describe_error, run_job
 from app.wording import count, plural
 
@@ -152,8 +154,6 @@ class MainWindow(QMainWindow):
         self._panels_for: int | None = None
         #: Opened from a review packet: the reviewer's side (decisions, return).
         self.review_mode = is_review(project)
-        #: The open differences of the frame shown, when it is disputed (main project).
-        self.dispute: Dispute | None = None
 
         self.actions_by_name: dict[str, QAction] = {}
         self._build_actions()
@@ -181,6 +181,14 @@ class MainWindow(QMainWindow):
                                        "query, Ctrl+3 ready for training; Ctrl+Shift+R sends "
                                        "the packet back.")
         self.owners = OwnersPanel(self.actions_by_name)
+        #: The Qt-free state (app/session): the frame's names, the selection the Canvas
+        #: shows, the walk.
+        self.session = Session(project, order=self.worklist.ordered_ids, apply=self.apply)
+        self.session.events.connect("stop", self._show_stop)
+        self.session.events.connect("message", self._message)
+        self.canvas.selection = self.session.selection
+        #: The selected joint's owner and candidates (None without one selected joint).
+        self.owner_ranking: OwnerRanking | None = None
         self.ledger = LedgerPanel(self.ledger_model, self.actions_by_name)
         self.notes = NotesPanel(self.notes_model)
         self.docks = {
@@ -204,11 +212,11 @@ class MainWindow(QMainWindow):
         self.canvas.selectionChanged.connect(self._selection_changed)
         self.canvas.editRequested.connect(self._canvas_edit)
         self.canvas.personPicked.connect(self._merge_picked)
+        self.canvas.ownerChosen.connect(self.give_to_person)
         self.canvas.viewChanged.connect(self._view_changed)
         self.canvas.regionChanged.connect(self._region_changed)
         self.worklist.frameChosen.connect(self.show_frame)
         self.owners.personChosen.connect(self._owner_person_chosen)
-        self.owners.candidateChosen.connect(self.give_to_person)
         self.ledger.returnRequested.connect(self._return_to)
         self.ledger.scopeChanged.connect(self._ledger_scope)
         self.notes.noteSubmitted.connect(self._add_note)
@@ -216,7 +224,6 @@ class MainWindow(QMainWindow):
         # arrows and the region keys work only there).
         self.notes.done.connect(self._back_to_canvas)
         self.owners.people.clicked.connect(self._back_to_canvas)
-        self.owners.candidates.clicked.connect(self._back_to_canvas)
 
         if project.hosted:
             # Colleagues' claims run out without a word from the server: look again now and
@@ -233,6 +240,11 @@ class MainWindow(QMainWindow):
         else:
             self._selection_changed()
             self._update_status()
+
+    @property
+    def dispute(self) -> Dispute | None:
+        """The open differences of the frame shown, when it is disputed (the session's)."""
+        return self.session.dispute
 
     # ------------------------------------------------------------------ building
 
@@ -260,6 +272,10 @@ class MainWindow(QMainWindow):
             "carry_forward": self.carry_forward,
             "clear_selection": self._escape,
             "give_best": self.give_to_best,
+            "next_finding": lambda: self.session.step(1),
+            "prev_finding": lambda: self.session.step(-1),
+            "accept_fix": self.session_accept,
+            "dismiss_finding": self.session_dismiss,
             "mark_visible": lambda: self.set_visibility(2),
             "mark_occluded": lambda: self.set_visibility(1),
             "mark_unlabeled": lambda: self.set_visibility(0),
@@ -488,6 +504,7 @@ class MainWindow(QMainWindow):
         self._cancel_typing()
         self.frame_id = frame.id
         people = self._read_people(frame.id)
+        self.session.open_frame(frame.id, people)
         flags = self._flags(frame.id)
         decoded = self.loader.request(frame.id, self.project.image_path(frame), urgent=True)
         self.canvas.set_frame(frame, people, flags, decoded)
@@ -556,6 +573,7 @@ class MainWindow(QMainWindow):
             return
         frame = self.project.frame(self.frame_id)
         people = self._read_people(frame.id)
+        self.session.open_frame(frame.id, people)
         flags = self._flags(frame.id)
         self.canvas.frame = frame
         self.canvas.set_people(people, flags)
@@ -572,13 +590,8 @@ class MainWindow(QMainWindow):
             return
         self.canvas.set_regions([(rid, polys) for rid, polys, _ in
                                  self.project.regions(frame.id)])
-        dispute = None
-        if not self.review_mode and frame.state is FrameState.DISPUTED:
-            try:
-                dispute = load_dispute(self.project, frame.id, self.canvas.ours)
-            except PosewrightError:  # a damaged alternative must not stop the annotator
-                log.exception("reading the differences of frame %s failed", frame.id)
-        self.dispute = dispute
+        dispute = self.session.read_dispute(frame, self.canvas.ours,
+                                            settles=not self.review_mode)
         if dispute is None:
             self.canvas.set_dispute({}, None, {})
         else:
@@ -621,10 +634,12 @@ class MainWindow(QMainWindow):
             self.worklist_model.reload_claims()
             return
         if kind in ("import", "frames", "triage"):
+            self.session.findings_changed()
             self.worklist_model.reload()
             if self.frame_id is not None:
                 self.worklist.show_frame(self.frame_id)
         else:
+            self.session.labels_changed(sorted(frame_ids))
             self.worklist_model.refresh_states(sorted(frame_ids))
         if self.frame_id is None:
             ids = self.worklist.ordered_ids()
@@ -691,15 +706,17 @@ class MainWindow(QMainWindow):
             return
         edits = [ReassignJoint(frame_id, p, j, target) for p, j in joints if p != target]
         if not edits:
-            self._message(f"the selected joint already belongs to person {target}")
+            self._message(f"the selected joint already belongs to "
+                          f"{self.session.names.person(target)}")
             return
-        names = ", ".join(self.skeleton.joints[e.joint] for e in edits)
-        edit: Edit = edits[0] if len(edits) == 1 else Batch(
-            frame_id, tuple(edits), f"give {names} to person {target}")
+        # The group's summary is its edits' (ids and joint indices): the Ledger names them.
+        edit: Edit = edits[0] if len(edits) == 1 else EditGroup(frame_id, tuple(edits))
+        swaps = swap_warning(self.canvas.people, joints, target, self.skeleton)
         if self.apply(edit) is not None:
-            moved = [(target, e.joint) for e in edits]
-            for n, (p, j) in enumerate(moved):
-                self.canvas.select_joint(p, j, add=n > 0)
+            if swaps:
+                self._message(f"swapped: {swaps.split(': ', 1)[0]}, so the two were exchanged "
+                              "(Ctrl+Z takes it back)")
+            self.canvas.select_joints([(target, e.joint) for e in edits])
 
     def give_to_number(self, number: int) -> None:
         people = self.canvas.people
@@ -709,11 +726,11 @@ class MainWindow(QMainWindow):
         self.give_to_person(people[number - 1].id)
 
     def give_to_best(self) -> None:
-        choices = self.owners.candidates_model.choices()
-        if not choices:
+        best = None if self.owner_ranking is None else self.owner_ranking.best
+        if best is None:
             self._message("no suggestion for the selection")
             return
-        self.give_to_person(choices[0].person_id)
+        self.give_to_person(best.person_id)
 
     def set_visibility(self, v: int) -> None:
         frame_id, joints, _ = self._selection()
@@ -722,7 +739,7 @@ class MainWindow(QMainWindow):
             return
         edits = [SetVisibility(frame_id, p, j, v) for p, j in joints]
         word = _VISIBILITY_WORD[v]
-        edit: Edit = edits[0] if len(edits) == 1 else Batch(
+        edit: Edit = edits[0] if len(edits) == 1 else EditGroup(
             frame_id, tuple(edits), f"mark {count(len(edits), 'joint')} {word}")
         self.apply(edit)
 
@@ -779,9 +796,8 @@ class MainWindow(QMainWindow):
             self._message("select the person to keep first, then press M")
             return
         self.canvas.set_pick_mode("merge")
-        n = self.canvas.number_of(pid)
         self._message(f"merge: click the person (on the Canvas or in Owners) to merge into "
-                      f"person {pid} (tag {n}); Esc cancels", 0)
+                      f"{self.session.names.person(pid, with_id=True)}; Esc cancels", 0)
 
     def _merge_picked(self, other: int) -> None:
         frame_id, _, keep = self._selection()
@@ -969,27 +985,64 @@ class MainWindow(QMainWindow):
         pid = self.canvas.selected_person
         joint = self.canvas.selected_joint
         self.owners.show_person(pid)
-        if joint is None or self.frame_id is None:
-            self.owners.candidates_model.set_choices([])
-            self.owners.note.setText("Select a joint to see who it could belong to."
-                                     if pid is None or joint is None else "")
-            self.owners.note.setVisible(True)
-        else:
+        ranking = None
+        if joint is not None and self.frame_id is not None and not self.canvas.showing_theirs:
             try:
-                choices, note = rank_owners(self.canvas.people, joint[0], joint[1],
-                                            self.skeleton, self._frame_maps())
+                ranking = rank_owners(self.canvas.people, joint[0], joint[1], self.skeleton,
+                                      self._frame_maps())
             except Exception:  # a ranking failure must not stop the annotator
                 log.exception("ranking candidate owners failed")
-                choices, note = [], "suggestions unavailable for this joint"
-            self.owners.candidates_model.set_choices(choices, note, self.canvas.colours)
-            self.owners.note.setText(note)
-            self.owners.note.setVisible(bool(note))
+        self.owner_ranking = ranking if ranking is not None and ranking.owner is not None else None
+        self.canvas.set_owners(self.owner_ranking)
+        if self.owner_ranking is None or len(self.canvas.selected_joints) != 1:
+            self.owners.note.setText("Select a joint to see who it could belong to."
+                                     if joint is None else "")
+        else:
+            self.owners.note.setText(
+                f"<b>{html.escape(self.owner_ranking.verdict)}</b><br>"
+                f"<span style='color:#555'>{html.escape(FIT_MEANING)}; click a row "
+                "beside the joint or press its tag number to give the joint</span>")
         text = self._selection_text()
         differs = self._difference_text()
         if differs:
             text += f"<br><span style='color:#8a4b00'><b>differs</b> \u2014 {differs}</span>"
         self.owners.selection.setText(text)
         self._update_actions()
+
+    # ------------------------------------------------------------------ the walk
+
+    def session_accept(self) -> None:
+        self._cancel_typing()
+        self.session.accept()
+
+    def session_dismiss(self) -> None:
+        self._cancel_typing()
+        self.session.dismiss()
+
+    def _show_stop(self, stop: Stop | None) -> None:
+        """The walk arrived at a stop: show its frame, select what it is about, centre on it
+        and say the finding beside it, with the fix previewed (None: nothing left to show)."""
+        if stop is None:
+            self.canvas.show_stop(None)
+            self._update_actions()
+            return
+        if stop.frame_id != self.frame_id:
+            self.show_frame(stop.frame_id)
+        if stop.person_id is not None and self.canvas.person(stop.person_id) is not None:
+            joints = [j for j in stop.joints
+                      if self.canvas.person(stop.person_id).keypoints[j, 2] > 0]
+            if joints:
+                self.canvas.select_joints([(stop.person_id, j) for j in joints])
+            else:
+                self.canvas.select_person(stop.person_id)
+        else:  # a frame's group of findings: what they are about is marked, not selected
+            self.canvas.select_person(None)
+        stops = self.session.stops(stop.frame_id)
+        keys = [s.key for s in stops]
+        where = f"{keys.index(stop.key) + 1} of {len(stops)}" if stop.key in keys else ""
+        self.canvas.show_stop(stop, where)
+        self._update_actions()
+        self._update_status()
 
     def _frame_maps(self) -> Any:
         if self.frame_id is None:
@@ -1011,10 +1064,11 @@ class MainWindow(QMainWindow):
         pid = self.canvas.selected_person
         if pid is None:
             return "Nothing selected."
-        n = self.canvas.number_of(pid)
+        names = self.session.names
         person = self.canvas.person(pid)
-        head = f"<b>person {pid}</b> " + (f"(tag {n})" if n is not None else
-                                         "(not in the version shown)")
+        head = f"<b>{names.person(pid, with_id=True)}</b>" + (
+            "" if names.tag(pid) is not None or person is not None
+            else " (not in the version shown)")
         joints = self.canvas.selected_joints
         if not joints or person is None:
             labelled = 0 if person is None else person.num_labelled
@@ -1023,7 +1077,7 @@ class MainWindow(QMainWindow):
             return f"{head}: {count(len(joints), 'joint')} selected"
         j = joints[0][1]
         x, y, v = person.keypoints[j]
-        name = self.skeleton.joints[j]
+        name = names.joint(j)
         if not np.isfinite([x, y]).all():
             return f"{head} \u00b7 {name}: not placed (P places it at the pointer)"
         score = person.scores[j]
@@ -1119,13 +1173,13 @@ class MainWindow(QMainWindow):
                 self._message("select a joint that differs first (J walks them)")
                 return None
             return self.frame_id, joint[0], joint[1], \
-                f"{self.skeleton.joints[joint[1]]} of person {joint[0]}"
+                self.session.names.whose(joint[0], joint[1])
         if scope == "person":
             pid = self.canvas.selected_person
             if pid is None or self.dispute.person(pid) is None:
                 self._message("select a person whose joints differ first")
                 return None
-            return self.frame_id, pid, None, f"person {pid}"
+            return self.frame_id, pid, None, self.session.names.person(pid, with_id=True)
         return self.frame_id, None, None, "the whole frame"
 
     def take_theirs(self, scope: str) -> None:
@@ -1296,8 +1350,14 @@ class MainWindow(QMainWindow):
         for name in ("give_best", "mark_visible", "mark_occluded", "mark_unlabeled",
                      "place_joint", "split_person"):
             a[name].setEnabled(editable and joints)
-        a["give_best"].setEnabled(editable and joints
-                                  and self.owners.candidates_model.rowCount() > 0)
+        a["give_best"].setEnabled(editable and joints and self.owner_ranking is not None
+                                  and self.owner_ranking.best is not None)
+        for name in ("next_finding", "prev_finding"):
+            a[name].setEnabled(self.frame_id is not None)
+        stop = self.session.current
+        here = stop is not None and stop.frame_id == self.frame_id
+        a["accept_fix"].setEnabled(editable and here and stop.fix is not None)
+        a["dismiss_finding"].setEnabled(editable and here and bool(stop.findings))
         a["new_person"].setEnabled(editable)
         for name in ("swap_sides", "merge_people", "delete_person"):
             a[name].setEnabled(editable and person)
@@ -1424,8 +1484,11 @@ class MainWindow(QMainWindow):
         self.status_people.setText(count(len(self.canvas.ours), "people") + (
             f" \u00b7 {count(regions, 'ignore regions')}" if regions else ""))
         flagged = sum(1 for v in self.canvas.flags.values() if v)
-        self.status_flags.setText(f"flags on {count(flagged, 'people')}" if flagged
-                                  else "no flags")
+        stops = None if self.frame_id is None else self.session.known_stops(self.frame_id)
+        self.status_flags.setText((f"flags on {count(flagged, 'people')}" if flagged
+                                   else "no flags")
+                                  + ("" if stops is None else
+                                     f" \u00b7 {count(len(stops), 'open findings')}"))
         frame = self.canvas.frame
         state = STATE_TEXT[frame.state] if frame is not None else ""
         if self.review_mode and frame is not None:
@@ -1744,20 +1807,9 @@ class MainWindow(QMainWindow):
         self.run_long("Opening project", build, opened)
 
     def select_first_flag(self) -> None:
-        """Select the joint of the frame's weightiest triage reason (for a first look)."""
-        if self.frame_id is None:
-            return
-        triage = self.project.triage(self.frame_id)
-        reasons = sorted(triage[1] if triage else [], key=lambda r: -float(r.get("weight") or 0))
-        ids = {p.id for p in self.canvas.people}
-        for r in reasons:
-            pid, joints = r.get("person"), r.get("joints") or []
-            if pid in ids and joints:
-                self.canvas.select_joint(int(pid), int(joints[0]))
-                return
-            if pid in ids:
-                self.canvas.select_person(int(pid))
-                return
+        """Walk to the frame's first finding (for a first look): what W does."""
+        if self.frame_id is not None:
+            self.session.step(1)
 
 
 class _MenuEscape(QObject):

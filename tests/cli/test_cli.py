@@ -29,6 +29,26 @@ def test_new_import_export_history(tmp_path, image_dir, coco_file, capsys):
     assert json.loads(out)["people"] == 18
 
 
+def test_history_names_people_by_tag_and_number_and_joints_by_name(tmp_path, image_dir,
+                                                                   coco_file, capsys):
+    """The ledger records ids and joint indices; `history` writes them as the app shows them
+    (the 17 COCO joint names, Lin et al., ECCV 2014: index 9 is the left wrist). The labels are
+    the suite's synthetic COCO file."""
+    from app.model.edits import SetVisibility
+    from app.store.project import Project
+
+    proj = tmp_path / "p"
+    _run(capsys, "new", proj, "--images", image_dir, "-q")
+    _run(capsys, "import", proj, coco_file, "-q")
+    with Project.open(proj, author="ana") as project:
+        frame = project.frames()[0]
+        people = project.people(frame.id)
+        project.apply(SetVisibility(frame.id, people[1].id, 9, 1))
+    code, out, _ = _run(capsys, "history", proj)
+    assert code == 0
+    assert f"mark person 2 (#{people[1].id})'s left wrist occluded" in out.splitlines()[0]
+
+
 @pytest.mark.parametrize("argv_tail, words", [
     (["import", "{p}", "{missing}"], "cannot read the file"),
     (["import", "{p}", "{bad}"], "bad.json: annotations[0] (id 1): field keypoints"),

@@ -85,6 +85,28 @@ def test_open_builds_a_review_project_with_the_same_ids(labelled, tmp_path):
         open_packet(path, reviewer="cleo")
 
 
+def test_the_reviewer_sees_why_each_frame_was_sent(labelled, tmp_path):
+    """Triage's scores and reasons and the findings travel with the packet and stand in the
+    review as they stood when it was sent (the findings current there, so the walk offers
+    them); a packet whose findings cannot be read is refused."""
+    from app.jobs_analysis import run_triage
+    from app.jobs_findings import current_findings
+
+    run_triage(labelled)
+    f1, f2 = labelled.frames()[:2]
+    sent = current_findings(labelled, [f1.id, f2.id])
+    path = send(labelled, tmp_path / "p.zip")
+    with open_packet(path) as reviewed:
+        assert reviewed.triage(f1.id) == labelled.triage(f1.id)
+        got = current_findings(reviewed, [f1.id, f2.id])
+        assert {fid: [f.id for f in fs] for fid, fs in got.items()} == \
+            {fid: [f.id for f in fs] for fid, fs in sent.items()}
+    bad = rewrite_json(path, tmp_path / "bad.zip", "triage.json",
+                       lambda d: d["frames"][0]["findings"].append({"id": "x"}))
+    with pytest.raises(BadInput, match="not a finding"):
+        read_packet(bad)
+
+
 def _valid(labelled: Project, tmp_path: Path) -> Path:
     return send(labelled, tmp_path / "p.zip", images="full")
 

@@ -22,7 +22,7 @@ def test_click_on_a_joint_selects_it(qtbot, window):
     qtbot.mouseClick(window.canvas, Qt.MouseButton.LeftButton, pos=screen_point(window, pid, 9))
     assert window.canvas.selected_joints == [(pid, 9)]
     assert window.canvas.selected_person == pid
-    assert "left_wrist" in window.owners.selection.text()
+    assert "left wrist" in window.owners.selection.text()
 
 
 def test_click_near_but_outside_the_hit_radius_selects_nothing(qtbot, window):

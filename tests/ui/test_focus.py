@@ -117,12 +117,11 @@ def test_walking_the_menus_with_arrows_still_works(qtbot, window):
     assert QApplication.activePopupWidget() is None
 
 
-def test_a_click_on_a_candidate_in_owners_gives_the_keys_back(qtbot, window):
+def test_a_click_on_an_owner_beside_the_joint_keeps_the_keys(qtbot, window):
     _select_shoulder(qtbot, window)
-    taker = person_id(window, 2)
-    view = window.owners.candidates
-    rect = view.visualRect(view.model().index(window.owners.candidate_row(taker), 1))
-    qtbot.mouseClick(view.viewport(), Qt.MouseButton.LeftButton, pos=rect.center())
+    window.canvas.repaint()
+    rect, taker = window.canvas.owner_rows[0]
+    qtbot.mouseClick(window.canvas, Qt.MouseButton.LeftButton, pos=rect.center().toPoint())
     assert window.canvas.selected_joint == (taker, 5)
     _tab_walks_joints(qtbot, window, taker)
 

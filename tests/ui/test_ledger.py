@@ -53,8 +53,9 @@ def test_ledger_lists_the_frame_edits_newest_first_with_author(qtbot, window):
     qtbot.keyClick(window.canvas, Qt.Key.Key_U)
     model = window.ledger_model
     assert model.rowCount() == 2
-    assert model.index(0, 3).data() == f"mark joint 9 of person {pid} unlabelled"
-    assert model.index(1, 3).data() == f"mark joint 9 of person {pid} occluded"
+    # People by tag and stable number, joints by name (never a 0-based index).
+    assert model.index(0, 3).data() == f"mark person 2 (#{pid})'s left wrist unlabelled"
+    assert model.index(1, 3).data() == f"mark person 2 (#{pid})'s left wrist occluded"
     assert model.index(0, 1).data() == "ana"
     assert model.index(0, 0).data().count(":") == 2  # today: the clock time
 
@@ -91,7 +92,7 @@ def test_whole_project_scope_lists_every_frame(qtbot, window):
     qtbot.waitUntil(lambda: window.ledger_model.rowCount() == 0, timeout=WAIT_MS)
     window.ledger.scope.setCurrentIndex(1)
     rows = [window.ledger_model.index(r, 3).data() for r in range(window.ledger_model.rowCount())]
-    assert rows[0] == f"mark joint 9 of person {pid} occluded"
+    assert rows[0] == f"mark person 2 (#{pid})'s left wrist occluded"
     assert any(r == "synthetic people" for r in rows), "imports show in the project's ledger"
 
 

@@ -31,21 +31,23 @@ def _select(qtbot, window, tag, joint, add=False):
     return pid
 
 
-def test_give_a_joint_to_another_person_by_clicking_a_candidate(qtbot, window, ui_project):
+def test_give_a_joint_by_clicking_an_owner_listed_beside_it(qtbot, window, ui_project):
     giver = _select(qtbot, window, 1, 9)  # person A's left wrist
-    taker = person_id(window, 2)
-    view = window.owners.candidates
-    row = window.owners.candidate_row(taker)
-    assert row is not None, "every other person of the frame is a candidate"
+    window.canvas.repaint()
+    rows = window.canvas.owner_rows
+    assert rows, "the ranked owners are listed beside the joint on the Canvas"
+    rect, taker = rows[0]
+    assert taker == window.owner_ranking.best.person_id, "the best candidate comes first"
     before = _people(ui_project, window.frame_id)
     n = _groups(ui_project)
-    rect = view.visualRect(view.model().index(row, 1))
-    qtbot.mouseClick(view.viewport(), Qt.MouseButton.LeftButton, pos=rect.center())
+    qtbot.mouseClick(window.canvas, Qt.MouseButton.LeftButton, pos=rect.center().toPoint())
 
     after = _people(ui_project, window.frame_id)
     np.testing.assert_array_equal(after[taker].keypoints[9, :2], before[giver].keypoints[9, :2])
-    # The receiver had its own left wrist: the two are swapped, so no label is lost.
+    # The receiver had its own left wrist: the two are swapped, so no label is lost, and the
+    # status bar says so.
     np.testing.assert_array_equal(after[giver].keypoints[9, :2], before[taker].keypoints[9, :2])
+    assert "swapped:" in window.status_log
     assert _groups(ui_project) == n + 1
     assert window.canvas.selected_joint == (taker, 9), "the selection follows the joint"
 
@@ -61,8 +63,11 @@ def test_give_a_joint_by_the_number_key(qtbot, window, ui_project):
 
 def test_candidates_are_the_other_people(qtbot, window):
     giver = _select(qtbot, window, 2, 7)
-    ids = [c.person_id for c in window.owners.candidates_model.choices()]
+    ranking = window.owner_ranking
+    ids = [c.person_id for c in ranking.candidates]
     assert sorted(ids) == sorted(p.id for p in window.canvas.people if p.id != giver)
+    assert ranking.owner.person_id == giver and ranking.owner.is_owner
+    assert ranking.verdict, "the verdict says who fits better, or that nobody does"
 
 
 def test_mark_unlabeled_occluded_and_visible_by_keys(qtbot, window, ui_project):
@@ -170,15 +175,15 @@ def test_new_empty_person_then_place_a_joint(qtbot, window, ui_project):
 def test_people_table_lists_tags_and_counts(qtbot, window):
     model = window.owners.people_model
     assert model.rowCount() == 3
-    assert model.index(0, 0).data() == "1"
-    assert model.index(0, 2).data() == "16/17"  # person A: the knee is unlabeled
-    assert model.index(0, 3).data() == "1"  # one occluded joint
-    assert model.index(1, 4).data() == "2"  # triage flagged two joints of person 2
+    assert model.index(0, 0).data() == f"1 (#{person_id(window, 1)})"
+    assert model.index(0, 1).data() == "16/17"  # person A: the knee is unlabelled
+    assert model.index(0, 2).data() == "1"  # one occluded joint
+    assert model.index(1, 3).data() == "2"  # triage flagged two joints of person 2
 
 
 def test_give_to_the_top_suggestion_with_g(qtbot, window, ui_project):
     giver = _select(qtbot, window, 2, 9)
-    best = window.owners.candidates_model.choices()[0].person_id
+    best = window.owner_ranking.best.person_id
     moved = _people(ui_project, window.frame_id)[giver].keypoints[9].copy()
     qtbot.keyClick(window.canvas, Qt.Key.Key_G)
     np.testing.assert_array_equal(_people(ui_project, window.frame_id)[best].keypoints[9], moved)
@@ -215,4 +220,4 @@ def test_two_digit_tags(qtbot, window, ui_project):
 def test_hovering_a_joint_names_it(qtbot, window):
     pid = person_id(window, 2)
     qtbot.mouseMove(window.canvas, screen_point(window, pid, 9))
-    assert window.canvas.toolTip().startswith(f"left_wrist of person {pid} (tag 2)")
+    assert window.canvas.toolTip().startswith(f"person 2's left wrist (#{pid})")

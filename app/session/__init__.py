@@ -1,0 +1,17 @@
+"""Qt-free application state: what the annotator is looking at and walking through.
+
+- :mod:`app.session.session`: :class:`Session`, the frame on screen, its people and their
+  names, the walk through the findings; intents in, edits and messages out, plain events.
+- :mod:`app.session.walk`: the cursor from one problem to the next across frames.
+- :mod:`app.session.owners`: who a selected joint could belong to, the owner's own fit beside
+  the candidates', and what a give would swap.
+- :mod:`app.session.settling`: a disputed frame's differences, their order and their words.
+
+The window (``app/ui``) shows what the session says and turns gestures into its intents;
+everything here is tested without a window.
+"""
+
+from app.session.session import Events, Session
+from app.session.walk import Stop, Walk
+
+__all__ = ["Events", "Session", "Stop", "Walk"]

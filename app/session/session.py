@@ -1,0 +1,314 @@
+"""One annotator's session over an open project, without Qt.
+
+:class:`Session` holds what the window used to keep in widget attributes for the walk: the
+frame on screen and its people, how they are named, the stops of the walk and the cursor over
+them. It turns the annotator's intents (next finding, accept, dismiss, skip) into edits
+applied through the store and into messages, and tells whoever listens through plain
+:class:`Events`. The window shows what it says; tests drive it without a window.
+
+Speed: stepping to the next stop reads nothing but the frame's cached stops. Accepting a fix
+keeps the frame's other stops that are about other people (their fixes still apply: the store
+refuses an edit whose labels moved) and computes the frame's findings again only when the walk
+reaches the end of that frame's list, so that fixes an earlier one held back are offered
+before the walk moves on.
+"""
+
+from __future__ import annotations
+
+import logging
+from collections import defaultdict
+from collections.abc import Callable, Sequence
+from functools import partial
+from typing import Any
+
+from app.analysis.triage.findings import Finding, labels_digest
+from app.errors import EditRefused, PosewrightError
+from app.jobs_findings import accept_label
+from app.model.edits import DismissFinding, Edit, EditGroup
+from app.model.labels import Frame, FrameState, Person
+from app.model.naming import Names
+from app.session.selection import Selection
+from app.session.settling import Dispute, load_dispute
+from app.session.walk import Stop, Walk, group_findings
+from app.store.project import Project
+
+log = logging.getLogger(__name__)
+
+
+class Events:
+    """Plain events: callbacks by name, called in the order they were connected.
+
+    Examples
+    --------
+    >>> seen = []
+    >>> ev = Events(); ev.connect("stop", seen.append); ev.emit("stop", 3); seen
+    [3]
+    """
+
+    def __init__(self) -> None:
+        self._subscribers: dict[str, list[Callable[..., Any]]] = defaultdict(list)
+
+    def connect(self, name: str, fn: Callable[..., Any]) -> None:
+        self._subscribers[name].append(fn)
+
+    def emit(self, name: str, *args: Any) -> None:
+        for fn in list(self._subscribers.get(name, ())):
+            fn(*args)
+
+
+class Session:
+    """The walk and the frame it shows, over one project.
+
+    Parameters
+    ----------
+    project
+        The open project.
+    order
+        Gives the frame ids in Worklist order (filters applied); default: by suspicion, as
+        the stored triage ranks them, then by id.
+    apply
+        Applies an edit and returns what the store did, or None when it was not done (the
+        window passes its own, which reports refusals); default: the project's.
+
+    Events
+    ------
+    ``stop(Stop | None)``
+        The walk moved (None: it reached the end and the stop it was on is gone).
+    ``message(str)``
+        Something to tell the annotator.
+    """
+
+    def __init__(self, project: Project, order: Callable[[], Sequence[int]] | None = None,
+                 apply: Callable[[Edit], Any] | None = None):
+        self.project = project
+        self.skeleton = project.skeleton
+        self.events = Events()
+        self.frame_id: int | None = None
+        self.people: list[Person] = []
+        self.names = Names.of_frame(self.skeleton, [])
+        #: What is selected in the frame (the Canvas shows and changes it).
+        self.selection = Selection()
+        #: The open differences of the frame shown, when it is disputed.
+        self.dispute: Dispute | None = None
+        self._order = order or self._suspicion_order
+        self._apply = apply or project.apply
+        self.walk = Walk(lambda: self._order(), self.stops)
+        self._stops: dict[int, list[Stop]] = {}
+        #: Frames changed by the walk's own accepts since their findings were computed.
+        self._dirty: set[int] = set()
+        #: Per frame, the stops the walk went past (not offered again after a recompute).
+        self._passed: dict[int, set[str]] = defaultdict(set)
+        #: Per frame, the labels digest right after the walk's own last edit there.
+        self._own: dict[int, str] = {}
+        #: Frames the walk is editing right now (their change notices are its own).
+        self._applying: set[int] = set()
+
+    # ------------------------------------------------------------------ frame
+
+    def open_frame(self, frame_id: int, people: Sequence[Person] | None = None) -> None:
+        """Show a frame: its people in tag order (read from the project unless given)."""
+        self.frame_id = int(frame_id)
+        self.people = list(self.project.people(frame_id) if people is None else people)
+        self.names = Names.of_frame(self.skeleton, [p.id for p in self.people])
+
+    def read_dispute(self, frame: Frame, ours: Sequence[Person],
+                     settles: bool = True) -> Dispute | None:
+        """Read the shown frame's open differences when it is disputed and ``settles`` (the
+        main project settles; a reviewer does not). A damaged alternative is logged and
+        read as none: it must not stop the annotator."""
+        dispute = None
+        if settles and frame.state is FrameState.DISPUTED:
+            try:
+                dispute = load_dispute(self.project, frame.id, ours)
+            except PosewrightError:
+                log.exception("reading the differences of frame %s failed", frame.id)
+        self.dispute = dispute
+        return dispute
+
+    def _suspicion_order(self) -> list[int]:
+        scores = {fid: t[0] for fid, t in self.project.triage_all().items()}
+        return sorted((f.id for f in self.project.frames()),
+                      key=lambda fid: (-scores.get(fid, float("-inf")), fid))
+
+    # ------------------------------------------------------------------ stops
+
+    def stops(self, frame_id: int) -> list[Stop]:
+        """The frame's stops, worst first: its findings, or in a project without findings
+        triage's reasons about people."""
+        if frame_id not in self._stops:
+            self._stops[frame_id] = self._read_stops(frame_id)
+        return self._stops[frame_id]
+
+    def _read_stops(self, frame_id: int) -> list[Stop]:
+        digests = self.project.findings_digests()
+        if not digests:
+            return self._reason_stops(frame_id)
+        labels = self.project.labels(frame_id)
+        stored = self.project.findings(frame_id).get(frame_id)
+        if stored is not None and digests.get(frame_id) == labels_digest(labels):
+            found = [Finding.from_dict(d) for d in stored]
+        else:
+            from app.jobs_findings import current_findings
+
+            found = current_findings(self.project, [frame_id]).get(frame_id, [])
+        return group_findings(frame_id, found)
+
+    def _reason_stops(self, frame_id: int) -> list[Stop]:
+        triage = self.project.triage(frame_id)
+        if not triage:
+            return []
+        names = Names.of_frame(self.skeleton, [p.id for p in self.project.people(frame_id)])
+        out = []
+        for n, r in enumerate(triage[1]):
+            pid = r.get("person")
+            if pid is None or names.tag(int(pid)) is None:
+                continue
+            joints = tuple(int(j) for j in r.get("joints") or ())
+            out.append(Stop(frame_id, f"R{n}", int(pid), joints,
+                            f"{names.person(int(pid))}: {r.get('text', r.get('kind', ''))}"))
+        return out
+
+    def known_stops(self, frame_id: int) -> list[Stop] | None:
+        """The frame's stops if they have been read (None: not yet; reading can take a
+        frame's triage)."""
+        return self._stops.get(frame_id)
+
+    # ------------------------------------------------------------------ walking
+
+    @property
+    def current(self) -> Stop | None:
+        return self.walk.current
+
+    def step(self, step: int = 1) -> Stop | None:
+        """Go to the next (1) or previous (-1) stop; tell the listeners."""
+        was = self.walk.current
+        if step > 0 and was is not None and was.frame_id == self.frame_id:
+            self._passed[was.frame_id].add(was.key)
+            self._refresh_at_end(was.frame_id)
+        stop = self.walk.step(step, self.frame_id)
+        if stop is None:
+            self.events.emit("message", "no more findings in the Worklist" if step > 0 else
+                             "this is the first finding of the Worklist")
+            here = self.walk.current
+            if here is not None and here.key not in {s.key for s in self.stops(here.frame_id)}:
+                self.walk.forget()  # its fix was accepted or it was dismissed: nothing to show
+                self.events.emit("stop", None)
+        else:
+            self.events.emit("stop", stop)
+        return stop
+
+    def skip(self) -> Stop | None:
+        """Leave the current stop as it is and go to the next."""
+        return self.step(1)
+
+    def _refresh_at_end(self, frame_id: int) -> None:
+        """At the end of a frame the walk changed, compute its findings again and offer the
+        ones not yet passed, before moving on."""
+        if frame_id not in self._dirty:
+            return
+        left = self._stops.get(frame_id, [])
+        current = self.walk.current
+        keys = [s.key for s in left]
+        if current is not None and current.key in keys and keys.index(current.key) < len(keys) - 1:
+            return
+        if current is not None and current.key not in keys and self.walk._index < len(keys):
+            return
+        self._dirty.discard(frame_id)
+        self._stops.pop(frame_id, None)
+        fresh = [s for s in self.stops(frame_id) if s.key not in self._passed[frame_id]]
+        self._stops[frame_id] = fresh
+        if fresh:
+            self.walk.forget()
+
+    def accept(self) -> Stop | None:
+        """Accept the current stop's fix (one ledger group, one undo step), then move on."""
+        stop = self.walk.current
+        if stop is None or stop.frame_id != self.frame_id:
+            self.events.emit("message", "no finding chosen: W goes to the next one")
+            return None
+        fix = stop.fix
+        if fix is None:
+            self.events.emit("message", "this finding proposes no fix: correct it by hand, or "
+                             "dismiss it as not a problem")
+            return None
+        label = accept_label(stop.key, fix.edits)
+        if len({e.frame_id for e in fix.edits}) > 1:
+            # A fix over several frames (along a track) is one batch, one undo step.
+            run: Callable[[], Any] = partial(self.project.apply_batch, fix.edits, label,
+                                             action="AcceptFinding")
+        else:
+            run = partial(self._apply, EditGroup(stop.frame_id, fix.edits, label))
+        if self._edited(stop, run, changes_labels=True) is None:
+            return None
+        self.events.emit("message", f"done: {fix.summary} (Ctrl+Z takes it back)")
+        return self.step(1)
+
+    def dismiss(self) -> Stop | None:
+        """Record the current finding as not a problem (undoable), then move on."""
+        stop = self.walk.current
+        if stop is None or stop.frame_id != self.frame_id:
+            self.events.emit("message", "no finding chosen: W goes to the next one")
+            return None
+        if not stop.findings:
+            self.events.emit("message", "a triage reason cannot be dismissed; run triage to "
+                             "get findings")
+            return None
+        marks = tuple(DismissFinding(f.frame_id, f.fingerprint, f.kind, f.id, f.text)
+                      for f in stop.findings)
+        edit = marks[0] if len(marks) == 1 else EditGroup(stop.frame_id, marks)
+        if self._edited(stop, partial(self._apply, edit), changes_labels=False) is None:
+            return None
+        self.events.emit("message", "dismissed as not a problem (Ctrl+Z takes it back)")
+        return self.step(1)
+
+    def _edited(self, stop: Stop, run: Callable[[], Any], changes_labels: bool) -> Any:
+        """Run the edit of a stop; keep the frame's stops about other people."""
+        touched = set(stop.people)
+        fix = stop.fix
+        if fix is not None and changes_labels:
+            p = fix.preview
+            touched |= {a for a, *_ in p.placed} | {a for a, _ in p.unlabeled} \
+                | {a for a, _ in p.occluded} | set(p.deleted) | {a for m in p.merged for a in m}
+        fid = stop.frame_id
+        kept = [s for s in self.stops(fid) if s.key != stop.key and not touched & set(s.people)]
+        self._applying.add(fid)
+        try:
+            done = run()
+        except EditRefused as exc:
+            self.events.emit("message", f"not done: {exc}")
+            return None
+        finally:
+            self._applying.discard(fid)
+        if done is None:
+            return None
+        self._stops[fid] = kept
+        self._dirty.add(fid)
+        try:
+            self._own[fid] = labels_digest(self.project.labels(fid))
+        except PosewrightError:
+            log.exception("reading frame %s after an edit failed", fid)
+        if fid == self.frame_id:
+            self.open_frame(fid)
+        return done
+
+    # ------------------------------------------------------------------ outside changes
+
+    def labels_changed(self, frame_ids: Sequence[int]) -> None:
+        """Labels changed outside the walk (an edit by hand, undo, a colleague): the stops of
+        those frames are read again when next needed."""
+        for fid in frame_ids:
+            if fid in self._applying:
+                continue
+            own = self._own.get(fid)
+            if own is not None and own == labels_digest(self.project.labels(fid)):
+                continue
+            self._own.pop(fid, None)
+            self._stops.pop(fid, None)
+            self._dirty.discard(fid)
+
+    def findings_changed(self) -> None:
+        """Triage ran again: read every frame's stops again, except those the walk holds
+        back for its own recompute."""
+        for fid in list(self._stops):
+            if fid not in self._dirty:
+                self._stops.pop(fid)

@@ -1,0 +1,227 @@
+"""The walk: from one problem to the next, across frames in Worklist order.
+
+A :class:`Stop` is one place the walk stops at: a finding (with its proposed fix, if any), or,
+in a project whose frames have no findings, one of triage's reasons about a person. A
+:class:`Walk` is the cursor: :meth:`Walk.step` goes to the next (or previous) stop, within the
+frame first and then through the frames in the order the Worklist shows them. The stops of a
+frame come from a function the owner of the walk gives (:class:`app.session.Session` reads
+them from the project), so the walk itself knows nothing of the store.
+
+When the stop under the cursor goes away (its fix was accepted, or it was dismissed), the
+cursor keeps its place in the frame's list: the next step forward lands on the stop that came
+after it.
+
+Examples
+--------
+Synthetic stops in two frames (frame 7 shown first in the Worklist, then frame 3):
+
+>>> stops = {7: [Stop(7, "a", 1, (9,), "one"), Stop(7, "b", 2, (), "two")],
+...          3: [Stop(3, "c", 5, (0,), "three")]}
+>>> walk = Walk(lambda: [7, 3], lambda f: stops[f])
+>>> [walk.step(1, 7).key for _ in range(3)], walk.step(1, 3)
+(['a', 'b', 'c'], None)
+>>> walk.step(-1, 3).key
+'b'
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+
+from app.analysis.triage.findings import Finding, Fix, FixPreview
+from app.model.naming import join_words
+from app.wording import count
+
+
+@dataclass(frozen=True)
+class Stop:
+    """One place the walk stops at.
+
+    Attributes
+    ----------
+    frame_id
+        The frame.
+    key
+        Unique within the frame: the finding's id, or ``R<n>`` for triage's n-th reason.
+    person_id
+        The person concerned (None for one nobody labelled yet, e.g. a missed person).
+    joints
+        The joints concerned (skeleton indices; empty for the whole person).
+    text
+        One sentence naming the person by tag and the joints by name.
+    finding
+        The finding, when the stop is one (None for a triage reason or a group).
+    group
+        Several findings shown and accepted as one stop (see :func:`group_findings`).
+    """
+
+    frame_id: int
+    key: str
+    person_id: int | None
+    joints: tuple[int, ...]
+    text: str
+    finding: Finding | None = None
+    group: tuple[Finding, ...] = ()
+
+    @property
+    def fix(self) -> Fix | None:
+        """The proposed fix (a group's fixes as one), or None."""
+        if self.group:
+            return _joined(self.group)
+        return None if self.finding is None else self.finding.fix
+
+    @property
+    def findings(self) -> tuple[Finding, ...]:
+        """The findings the stop stands for (none for a triage reason)."""
+        return self.group or (() if self.finding is None else (self.finding,))
+
+    @property
+    def people(self) -> tuple[int, ...]:
+        """Every person the stop is about (the fix's people for a finding)."""
+        if self.findings:
+            return tuple(sorted({p for f in self.findings for p in f.people}))
+        return () if self.person_id is None else (self.person_id,)
+
+
+#: Kinds found joint by joint without a fix, and how a person's several are said at once.
+PER_PERSON_KINDS = {"invented": "lie inside nearer people's bodies yet the model scores "
+                                "them as seen: invented spots"}
+
+#: Kinds whose fixes only change visibility: many per frame, a quarter of a joint's worth
+#: each (:attr:`Finding.worth`); a frame's are one stop, judged together from their preview.
+GROUPED_KINDS = ("hidden",)
+
+
+def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
+    """A frame's findings as stops, worst first; two or more of a :data:`GROUPED_KINDS` kind
+    with fixes become one stop where the first of them was.
+
+    Examples
+    --------
+    >>> from app.analysis.triage.findings import FixPreview
+    >>> def f(i, kind, person):
+    ...     fix = Fix(f"mark person {person}'s knees occluded", (), FixPreview())
+    ...     return Finding(i, 1, kind, person, person, (13, 14), ("left knee", "right knee"),
+    ...                    "t", (), 1.0, 0.9, fix, (person,), i)
+    >>> [s.key for s in group_findings(1, [f("a", "split", 1), f("b", "hidden", 2),
+    ...                                    f("c", "duplicate", 3), f("d", "hidden", 4)])]
+    ['a', 'G:hidden', 'c']
+    """
+    stops: list[Stop] = []
+    for kind in GROUPED_KINDS:
+        members = tuple(f for f in found if f.kind == kind and f.fix is not None)
+        if len(members) < 2:
+            continue
+        found = [f for f in found if f not in members or f is members[0]]
+        text = (f"joints the model sees as hidden, on {count(len(members), 'people')}: "
+                + "; ".join(m.fix.summary.removeprefix("mark ") for m in members[:4] if m.fix)
+                + (f"; and {count(len(members) - 4, 'more person')}"
+                   if len(members) > 4 else ""))
+        stops.append(Stop(frame_id, f"G:{kind}", None, (), text, None, members))
+    by_person: dict[int, list[Finding]] = {}
+    for f in found:
+        if f.kind in PER_PERSON_KINDS and f.fix is None and f.person_id is not None:
+            by_person.setdefault(f.person_id, []).append(f)
+    for pid, items in by_person.items():
+        if len(items) < 2:
+            continue
+        members = tuple(items)
+        found = [f for f in found if f not in members or f is members[0]]
+        joints = tuple(j for m in members for j in m.joints)
+        names = join_words([n for m in members for n in m.joint_names])
+        text = (f"person {members[0].tag}'s {names} {PER_PERSON_KINDS[members[0].kind]} "
+                f"({count(len(members), 'findings')})")
+        stops.append(Stop(frame_id, f"G:{members[0].kind}:{pid}", pid, joints, text, None,
+                          members))
+    out = []
+    for f in found:
+        grouped = next((g for g in stops if g.group[0] is f), None)
+        out.append(grouped or Stop(f.frame_id, f.id, f.person_id, f.joints, f.text, f))
+    return out
+
+
+def _joined(findings: Sequence[Finding]) -> Fix | None:
+    fixes = [f.fix for f in findings if f.fix is not None]
+    if not fixes:
+        return None
+    p = [x.preview for x in fixes]
+    preview = FixPreview(
+        tuple(v for x in p for v in x.placed), tuple(v for x in p for v in x.unlabeled),
+        tuple(v for x in p for v in x.occluded), tuple(v for x in p for v in x.deleted),
+        tuple(v for x in p for v in x.merged), tuple(v for x in p for v in x.created))
+    return Fix(f"{count(len(fixes), 'fixes')}: " + "; ".join(x.summary for x in fixes),
+               tuple(e for x in fixes for e in x.edits), preview)
+
+
+class Walk:
+    """A cursor over the stops of every frame.
+
+    Parameters
+    ----------
+    order
+        Gives the frame ids in the order the Worklist shows them (filters applied).
+    stops
+        Gives one frame's stops, worst first.
+    """
+
+    def __init__(self, order: Callable[[], Sequence[int]],
+                 stops: Callable[[int], Sequence[Stop]]):
+        self._order = order
+        self._stops = stops
+        self.current: Stop | None = None
+        self._snapshot: list[int] | None = None
+        #: Where the cursor is in its frame's list (kept when its stop goes away).
+        self._index = 0
+
+    def step(self, step: int, shown: int | None) -> Stop | None:
+        """Go to the next (``step`` 1) or previous (-1) stop and return it; None at the end
+        (the cursor then stays where it was).
+
+        ``shown`` is the frame on screen: when the annotator has gone to another frame than
+        the cursor's, the walk starts there (at its first stop going forward, at the stop
+        before it going back).
+        """
+        moved_by_hand = self.current is not None and self.current.frame_id != shown
+        if self._snapshot is None or moved_by_hand:
+            # The order is taken once per walk: frames that get corrected sink in the
+            # Worklist, and following them there would skip the frames they pass.
+            self._snapshot = list(self._order())
+        order = self._snapshot
+        if not order:
+            return None
+        if self.current is not None and self.current.frame_id == shown:
+            frame = shown
+            keys = [s.key for s in self._stops(frame)]
+            if self.current.key in keys:
+                index = keys.index(self.current.key) + step
+            else:  # gone: the next one forward is the one that took its place
+                index = self._index if step > 0 else self._index - 1
+        else:
+            frame = shown if shown in order else order[0 if step > 0 else -1]
+            index = 0 if step > 0 else -1
+            if step < 0 and frame in order:
+                # Going back from a frame: its own stops come first, from its last.
+                index = len(self._stops(frame)) - 1
+        for _ in range(len(order) + 1):
+            found = list(self._stops(frame))
+            if 0 <= index < len(found):
+                self.current, self._index = found[index], index
+                return self.current
+            at = order.index(frame) if frame in order else -1
+            nxt = at + (1 if step > 0 else -1)
+            if not 0 <= nxt < len(order):
+                return None
+            frame = order[nxt]
+            index = 0 if step > 0 else len(self._stops(frame)) - 1
+        return None
+
+    def forget(self) -> None:
+        """Let the next step start from the frame on screen (in the same order)."""
+        self.current = None
+        self._index = 0
+
+    def restart(self) -> None:
+        """Start again from the frame on screen, in the order the Worklist shows now."""
+        self.forget()
+        self._snapshot = None

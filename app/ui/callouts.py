@@ -1,0 +1,334 @@
+"""What the Canvas says beside the people: the walk's finding with its fix previewed, and the
+ranked owners of the selected joint. Drawn over the overlay (:mod:`app.ui.overlay`), in screen
+pixels like it.
+
+The fix preview speaks our visual language:
+
+- where a joint would go: a *ghost* (a white ring with a dot in the receiving person's colour)
+  at the new place, reached from the joint's present place by a dotted white arrow on a dark
+  line; a joint that stays put but changes hands gets the ghost ring around it;
+- a joint that would become unlabelled: a white cross, outlined dark, over the joint;
+- a joint that would become occluded: a dashed white ring around it;
+- a person who would be deleted (or merged away): a white diagonal cross over their box;
+- a person who would be added: their joints as small ghosts joined by dotted limbs.
+
+The finding's sentence sits in a card beside the box of what it is about, never in a tooltip;
+the ranked owners sit in a small list beside the selected joint, one row per person (tag
+colour, tag number, fit, one reason), each row a click target.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from PySide6.QtCore import QLineF, QPointF, QRectF, Qt
+from PySide6.QtGui import QColor, QFont, QFontMetrics, QPainter, QPen, QPolygonF
+
+from app.analysis.triage.findings import FixPreview
+from app.model.labels import Person
+from app.model.naming import Names
+from app.model.skeleton import Skeleton
+from app.session.owners import OwnerRanking
+from app.session.walk import Stop
+from app.ui.overlay import OUTLINE, palette_colour
+
+CARD = QColor(24, 24, 28, 228)
+CARD_TEXT = QColor("#f4f4f4")
+CARD_DIM = QColor("#b8b8b8")
+ACCENT = QColor("#f2c14e")
+GHOST = QColor("#ffffff")
+#: Widest a card gets before its text wraps (screen pixels).
+CARD_WIDTH = 380
+#: The owner list's last line: what its numbers mean.
+FIT_NOTE = ("fit 0-1: how well the joint would attach (the model's field, or limb lengths); "
+            "click to give")
+#: How many candidates the owner list shows (the rest have no chance worth a look).
+OWNER_ROWS = 3
+
+
+@dataclass(frozen=True)
+class WalkCard:
+    """A stop of the walk as the Canvas shows it: the stop and where it is in its frame's
+    list (``"2 of 5"``)."""
+
+    stop: Stop
+    where: str = ""
+
+
+def stop_points(stop: Stop, people: Sequence[Person]) -> np.ndarray:
+    """``(N, 2)`` image points a stop is about: its joints (the whole person when it names
+    none), and where its fix would put joints. Empty when nothing is placed."""
+    by_id = {p.id: p for p in people}
+    about: list[tuple[int, tuple[int, ...]]] = []
+    for f in stop.findings:
+        about += [(pid, f.joints if pid == f.person_id else ()) for pid in f.people]
+    if not stop.findings and stop.person_id is not None:
+        about.append((stop.person_id, stop.joints))
+    pts: list[np.ndarray] = []
+    for pid, joints in about:
+        person = by_id.get(pid)
+        if person is None:
+            continue
+        kp = person.keypoints
+        sel = kp[list(joints)] if joints else kp
+        pts.append(sel[(sel[:, 2] > 0) & np.isfinite(sel[:, :2]).all(axis=1), :2])
+    fix = stop.fix
+    if fix is not None:
+        placed = np.array([[x, y] for _, _, x, y, _ in fix.preview.placed], dtype=float)
+        pts.append(placed.reshape(-1, 2))
+        for kp in fix.preview.created:
+            made = np.array([[x, y] for x, y, v in kp if v > 0], dtype=float).reshape(-1, 2)
+            pts.append(made[np.isfinite(made).all(axis=1)])
+    return np.concatenate(pts) if pts else np.zeros((0, 2))
+
+
+def paint_preview(painter: QPainter, preview: FixPreview, people: Sequence[Person],
+                  skeleton: Skeleton, colours: Mapping[int, int],
+                  to_screen: Callable[[float, float], QPointF]) -> None:
+    """Draw what a fix would do (see the module docstring). ``to_screen(x, y)`` maps image
+    pixels to a screen ``QPointF``."""
+    by_id = {p.id: p for p in people}
+    painter.save()
+    painter.setRenderHint(QPainter.RenderHint.Antialiasing, True)
+    owner_of: dict[int, list[tuple[int, np.ndarray]]] = {}
+    for p in people:
+        for j in range(len(p.keypoints)):
+            owner_of.setdefault(j, []).append((p.id, p.keypoints[j]))
+    for pid, j, x, y, _v in preview.placed:
+        to = to_screen(x, y)
+        here = by_id.get(pid)
+        start = None
+        if here is not None and here.keypoints[j, 2] > 0 and \
+                np.isfinite(here.keypoints[j, :2]).all():
+            start = here.keypoints[j, :2]
+        else:  # the joint comes from someone else: the nearest of their joints of this kind
+            near = [kp[:2] for other, kp in owner_of.get(j, ()) if other != pid and kp[2] > 0
+                    and np.isfinite(kp[:2]).all()]
+            if near:
+                d = [float(np.hypot(*(np.asarray(n) - (x, y)))) for n in near]
+                start = near[int(np.argmin(d))]
+        if start is not None:
+            fro = to_screen(*start)
+            if QLineF(fro, to).length() > 6:
+                _arrow(painter, fro, to)
+        _ghost(painter, to, palette_colour(colours.get(pid, 0)))
+    for pid, j in preview.unlabeled:
+        person = by_id.get(pid)
+        if person is not None and np.isfinite(person.keypoints[j, :2]).all():
+            _cross(painter, to_screen(*person.keypoints[j, :2]), 7.0)
+    for pid, j in preview.occluded:
+        person = by_id.get(pid)
+        if person is not None and np.isfinite(person.keypoints[j, :2]).all():
+            c = to_screen(*person.keypoints[j, :2])
+            pen = QPen(GHOST, 2.0, Qt.PenStyle.DashLine)
+            painter.setPen(pen)
+            painter.setBrush(Qt.BrushStyle.NoBrush)
+            painter.drawEllipse(c, 10.0, 10.0)
+    for pid in preview.deleted:
+        person = by_id.get(pid)
+        if person is None:
+            continue
+        kp = person.keypoints
+        ok = (kp[:, 2] > 0) & np.isfinite(kp[:, :2]).all(axis=1)
+        if not ok.any():
+            continue
+        pts = [to_screen(*xy) for xy in kp[ok, :2]]
+        xs, ys = [p.x() for p in pts], [p.y() for p in pts]
+        box = QRectF(QPointF(min(xs), min(ys)), QPointF(max(xs), max(ys))).adjusted(-6, -6,
+                                                                                    6, 6)
+        for line in (QLineF(box.topLeft(), box.bottomRight()),
+                     QLineF(box.topRight(), box.bottomLeft())):
+            painter.setPen(QPen(QColor(OUTLINE), 5.0, Qt.PenStyle.SolidLine,
+                                Qt.PenCapStyle.RoundCap))
+            painter.drawLine(line)
+            painter.setPen(QPen(GHOST, 2.5, Qt.PenStyle.SolidLine, Qt.PenCapStyle.RoundCap))
+            painter.drawLine(line)
+    for kp in preview.created:
+        arr = np.array(kp, dtype=float).reshape(-1, 3)
+        ok = (arr[:, 2] > 0) & np.isfinite(arr[:, :2]).all(axis=1)
+        painter.setPen(QPen(GHOST, 1.5, Qt.PenStyle.DotLine))
+        for a, b in skeleton.limbs:
+            if ok[a] and ok[b]:
+                painter.drawLine(to_screen(*arr[a, :2]), to_screen(*arr[b, :2]))
+        for xy in arr[ok, :2]:
+            _ghost(painter, to_screen(*xy), ACCENT, 4.0)
+    painter.restore()
+
+
+def _ghost(painter: QPainter, c: QPointF, colour: QColor, r: float = 7.0) -> None:
+    painter.setBrush(Qt.BrushStyle.NoBrush)
+    painter.setPen(QPen(QColor(OUTLINE), 4.0))
+    painter.drawEllipse(c, r, r)
+    painter.setPen(QPen(GHOST, 2.0))
+    painter.drawEllipse(c, r, r)
+    painter.setPen(QPen(QColor(OUTLINE), 1.0))
+    painter.setBrush(colour)
+    painter.drawEllipse(c, 2.5, 2.5)
+
+
+def _cross(painter: QPainter, c: QPointF, r: float) -> None:
+    for d in ((r, r), (r, -r)):
+        line = QLineF(c - QPointF(*d), c + QPointF(*d))
+        painter.setPen(QPen(QColor(OUTLINE), 5.0, Qt.PenStyle.SolidLine, Qt.PenCapStyle.RoundCap))
+        painter.drawLine(line)
+        painter.setPen(QPen(GHOST, 2.5, Qt.PenStyle.SolidLine, Qt.PenCapStyle.RoundCap))
+        painter.drawLine(line)
+
+
+def _arrow(painter: QPainter, a: QPointF, b: QPointF) -> None:
+    line = QLineF(a, b)
+    line.setLength(max(line.length() - 8.0, 0.0))
+    painter.setPen(QPen(QColor(OUTLINE), 4.0, Qt.PenStyle.SolidLine, Qt.PenCapStyle.RoundCap))
+    painter.drawLine(line)
+    painter.setPen(QPen(GHOST, 2.0, Qt.PenStyle.DotLine, Qt.PenCapStyle.RoundCap))
+    painter.drawLine(line)
+    tip = line.p2()
+    back = QLineF(tip, line.p1())
+    back.setLength(8.0)
+    left, right = QLineF(back), QLineF(back)
+    left.setAngle(back.angle() + 28)
+    right.setAngle(back.angle() - 28)
+    painter.setPen(QPen(QColor(OUTLINE), 1.0))
+    painter.setBrush(GHOST)
+    painter.drawPolygon(QPolygonF([tip, left.p2(), right.p2()]))
+
+
+def _font(base: QFont, px: int, bold: bool = False) -> QFont:
+    f = QFont(base)
+    f.setPixelSize(px)
+    f.setBold(bold)
+    return f
+
+
+def _place(box: QRectF, size: tuple[float, float], bounds: QRectF, below: bool) -> QRectF:
+    """A card of ``size`` beside ``box``: to its right, else its left, above (or below) its
+    middle, kept inside ``bounds``."""
+    w, h = size
+    x = box.right() + 14 if box.right() + 14 + w <= bounds.right() - 4 else box.left() - 14 - w
+    y = box.top() - h - 10 if not below else box.bottom() + 10
+    if not below and y < bounds.top() + 4:
+        y = box.bottom() + 10
+    x = min(max(x, bounds.left() + 4), bounds.right() - w - 4)
+    y = min(max(y, bounds.top() + 4), bounds.bottom() - h - 4)
+    return QRectF(x, y, w, h)
+
+
+def paint_walk_card(painter: QPainter, card: WalkCard, box: QRectF, bounds: QRectF,
+                    base: QFont) -> QRectF:
+    """The finding's sentence and what the keys do, in a card beside ``box`` (screen
+    pixels). Returns where the card went."""
+    stop = card.stop
+    fix = stop.fix
+    where = f" {card.where}" if card.where else ""
+    head = ("Findings" if stop.group else "Finding" if stop.finding is not None
+            else "Triage") + where
+    if fix is not None:
+        sure = [f.confidence for f in stop.findings]
+        conf = f" (each at least {min(sure):.0%} sure)" if stop.group else \
+            f" ({sure[0]:.0%} sure)" if sure else ""
+        summary = "mark them occluded" if stop.group else fix.summary
+        tail = f"Fix{conf}: {summary}.  Y accepts \u00b7 I not a problem \u00b7 W skips"
+    elif stop.findings:
+        tail = "No fix proposed: correct it by hand.  I not a problem \u00b7 W next"
+    else:
+        tail = "W next \u00b7 Shift+W back"
+    f_head, f_body = _font(base, 11, True), _font(base, 12)
+    m_head, m_body = QFontMetrics(f_head), QFontMetrics(f_body)
+    flags = int(Qt.TextFlag.TextWordWrap)
+    inner = CARD_WIDTH - 16
+    r_text = m_body.boundingRect(0, 0, inner, 1000, flags, stop.text)
+    r_tail = m_head.boundingRect(0, 0, inner, 1000, flags, tail)
+    width = max(r_text.width(), r_tail.width(), m_head.horizontalAdvance(head)) + 16
+    height = m_head.height() + r_text.height() + r_tail.height() + 20
+    rect = _place(box, (width, height), bounds, below=False)
+    painter.save()
+    painter.setRenderHint(QPainter.RenderHint.Antialiasing, True)
+    painter.setPen(QPen(ACCENT, 1.5))
+    painter.setBrush(CARD)
+    painter.drawRoundedRect(rect, 5, 5)
+    painter.setPen(QPen(ACCENT, 1.0, Qt.PenStyle.DotLine))
+    painter.drawLine(_nearest_edge(rect, box.center()), box.center())
+    y = rect.top() + 6
+    painter.setFont(f_head)
+    painter.setPen(ACCENT)
+    painter.drawText(QRectF(rect.left() + 8, y, inner, m_head.height()), 0, head)
+    y += m_head.height() + 3
+    painter.setFont(f_body)
+    painter.setPen(CARD_TEXT)
+    painter.drawText(QRectF(rect.left() + 8, y, inner, r_text.height()), flags, stop.text)
+    y += r_text.height() + 5
+    painter.setFont(f_head)
+    painter.setPen(CARD_DIM)
+    painter.drawText(QRectF(rect.left() + 8, y, inner, r_tail.height()), flags, tail)
+    painter.restore()
+    return rect
+
+
+def _nearest_edge(rect: QRectF, p: QPointF) -> QPointF:
+    return QPointF(min(max(p.x(), rect.left()), rect.right()),
+                   min(max(p.y(), rect.top()), rect.bottom()))
+
+
+def paint_owner_list(painter: QPainter, ranking: OwnerRanking, names: Names,
+                     colours: Mapping[int, int], joint_at: QPointF, bounds: QRectF,
+                     base: QFont, avoid: QRectF | None = None) -> list[tuple[QRectF, int]]:
+    """The ranked owners of the selected joint in a small list beside it: the verdict, the
+    owner's row, then the best candidates (tag colour, ``person N``, fit, reason). Returns
+    each candidate row's rectangle with its person id (click targets)."""
+    rows = ([ranking.owner] if ranking.owner is not None else []) + \
+        list(ranking.candidates[:OWNER_ROWS])
+    f_head, f_row = _font(base, 11, True), _font(base, 11)
+    m_head, m_row = QFontMetrics(f_head), QFontMetrics(f_row)
+    lines = []
+    for c in rows:
+        who = names.person(c.person_id) + (" (owner)" if c.is_owner else "")
+        lines.append((c, who, f"{c.score:.2f}", c.reason))
+    who_w = max((m_row.horizontalAdvance(w) for _, w, _, _ in lines), default=60)
+    fit_w = m_row.horizontalAdvance("fit 0.00")
+    reason_w = min(max((m_row.horizontalAdvance(r) for *_, r in lines), default=80), 250)
+    width = 14 + 12 + who_w + 10 + fit_w + 10 + reason_w + 8
+    row_h = m_row.height() + 4
+    head = ranking.verdict
+    foot = FIT_NOTE
+    width = max(width, m_head.horizontalAdvance(head) + 16, m_row.horizontalAdvance(foot) + 16)
+    height = m_head.height() + 8 + row_h * len(lines) + m_row.height() + 10
+    anchor = QRectF(joint_at - QPointF(8, 8), joint_at + QPointF(8, 8))
+    rect = _place(anchor, (width, height), bounds, below=True)
+    if avoid is not None and rect.intersects(avoid):
+        rect.moveTop(min(avoid.bottom() + 6, bounds.bottom() - height - 4))
+    painter.save()
+    painter.setRenderHint(QPainter.RenderHint.Antialiasing, True)
+    painter.setPen(QPen(QColor("#9a9a9a"), 1.0))
+    painter.setBrush(CARD)
+    painter.drawRoundedRect(rect, 5, 5)
+    painter.setFont(f_head)
+    painter.setPen(ACCENT if ranking.better else CARD_TEXT)
+    painter.drawText(QRectF(rect.left() + 8, rect.top() + 4, width - 16, m_head.height()), 0,
+                     head)
+    y = rect.top() + m_head.height() + 8
+    targets = []
+    painter.setFont(f_row)
+    for c, who, fit, reason in lines:
+        row = QRectF(rect.left() + 4, y, width - 8, row_h)
+        if not c.is_owner:
+            targets.append((row, c.person_id))
+        painter.setPen(QPen(QColor(OUTLINE), 1.0))
+        painter.setBrush(palette_colour(colours.get(c.person_id, c.number - 1)))
+        painter.drawEllipse(QPointF(row.left() + 10, row.center().y()), 5, 5)
+        painter.setPen(CARD_DIM if c.is_owner else CARD_TEXT)
+        x = row.left() + 20
+        painter.drawText(QRectF(x, y, who_w, row_h), int(Qt.AlignmentFlag.AlignVCenter), who)
+        x += who_w + 10
+        painter.drawText(QRectF(x, y, fit_w, row_h), int(Qt.AlignmentFlag.AlignVCenter),
+                         f"fit {fit}")
+        x += fit_w + 10
+        painter.setPen(CARD_DIM)
+        painter.drawText(QRectF(x, y, reason_w, row_h), int(Qt.AlignmentFlag.AlignVCenter),
+                         m_row.elidedText(reason, Qt.TextElideMode.ElideRight, int(reason_w)))
+        y += row_h
+    painter.setPen(CARD_DIM)
+    painter.drawText(QRectF(rect.left() + 8, y + 2, width - 16, m_row.height()), 0, foot)
+    painter.restore()
+    return targets

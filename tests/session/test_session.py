@@ -1,0 +1,120 @@
+"""The session's walk over a real (folder) project, without a window: it goes from finding to
+finding across frames, accepts a fix as one undo step and moves on by itself, dismisses, and
+falls back to triage's reasons when a project has no findings.
+
+The people are synthetic (tests/analysis/synth.py, invented): a body found twice (a faint
+copy of its upper body) on frame 1, a body cut into upper and lower halves on frame 2, a
+plain body on frame 3. That a duplicate is deleted and a split merged is the findings' own
+rule (app/analysis/triage/fixes.py); one action, one undo step is the command pattern's rule
+(common practice, no source).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from app.jobs_analysis import run_triage
+from app.model.labels import Person
+from app.session import Session
+from tests.analysis.synth import person
+
+
+def _person(pid, kp, score):
+    return Person(pid, kp, np.where(kp[:, 2] > 0, score, np.nan), ("auto",) * 17)
+
+
+@pytest.fixture
+def scene(project):
+    rng = np.random.default_rng(5)
+    frames = project.frames()
+    body = person(rng, (110.0, 120.0), 120.0)
+    copy = body.copy()
+    copy[:, :2] += (6.0, 5.0)
+    copy[11:, 2] = 0
+    whole = person(rng, (220.0, 120.0), 120.0)
+    upper, lower = whole.copy(), whole.copy()
+    upper[11:, 2] = 0
+    lower[:11, 2] = 0
+    with project.bulk("SyntheticPeople", "synthetic people", "test") as b:
+        first = b.allocate_person_ids(5)
+        b.add_people([(frames[0].id, _person(first, body, 0.9)),
+                      (frames[0].id, _person(first + 1, copy, 0.5)),
+                      (frames[1].id, _person(first + 2, upper, 0.9)),
+                      (frames[1].id, _person(first + 3, lower, 0.9)),
+                      (frames[2].id, _person(first + 4, person(rng, (160.0, 120.0), 120.0),
+                                             0.9))])
+    return project, [f.id for f in frames[:3]], first
+
+
+def _session(project, order):
+    s = Session(project, order=lambda: order)
+    seen, said = [], []
+    s.events.connect("stop", seen.append)
+    s.events.connect("message", said.append)
+    s.open_frame(order[0])
+    return s, seen, said
+
+
+def _follow(s, stop):
+    if stop is not None and stop.frame_id != s.frame_id:
+        s.open_frame(stop.frame_id)
+    return stop
+
+
+def test_the_walk_visits_every_frames_findings_in_worklist_order(scene):
+    project, fids, _ = scene
+    run_triage(project)
+    order = [fids[1], fids[0], fids[2]]
+    s, seen, said = _session(project, order)
+    frames = []
+    while _follow(s, s.step(1)) is not None:
+        frames.append(s.frame_id)
+    assert frames == sorted(frames, key=order.index), "frames in the order given"
+    assert {fids[0], fids[1]} <= set(frames)
+    assert len(seen) == len(frames) and "no more findings" in said[-1]
+
+
+def test_accept_applies_the_fix_as_one_undo_step_and_walks_on(scene):
+    project, fids, _first = scene
+    run_triage(project)
+    s, _seen, said = _session(project, [fids[0], fids[1], fids[2]])
+    stop = s.step(1)
+    while stop is not None and (stop.fix is None or stop.finding.kind != "duplicate"):
+        stop = _follow(s, s.step(1))
+    assert stop is not None and stop.frame_id == fids[0]
+    before = {p.id for p in project.people(fids[0])}
+    groups = len({e.group_id for e in project.history()})
+    nxt = s.accept()
+    after = {p.id for p in project.people(fids[0])}
+    assert after < before, "the duplicate was deleted"
+    assert len({e.group_id for e in project.history()}) == groups + 1, "one ledger group"
+    assert nxt is None or nxt.key != stop.key, "the walk moved on by itself"
+    assert any(m.startswith("done:") for m in said)
+    project.undo()
+    assert {p.id for p in project.people(fids[0])} == before, "one undo step takes it back"
+
+
+def test_dismiss_records_not_a_problem_and_the_finding_is_not_raised_again(scene):
+    project, fids, _ = scene
+    run_triage(project)
+    s, _, _ = _session(project, [fids[1]])
+    stop = s.step(1)
+    assert stop is not None
+    s.dismiss()
+    fresh = Session(project, order=lambda: [fids[1]])
+    assert stop.key not in [x.key for x in fresh.stops(fids[1])]
+
+
+def test_without_findings_the_walk_stops_at_triage_reasons_about_people(scene):
+    project, fids, first = scene
+    reasons = [{"kind": "long limb", "person": first, "joints": [7, 9], "weight": 1.0,
+                "text": "left forearm 2.1x as long as the torso allows"},
+               {"kind": "crowded", "person": None, "joints": [], "weight": 1.0, "text": "x"}]
+    project.store_triage({fids[0]: (3.0, reasons)})
+    s, _, said = _session(project, [fids[0]])
+    stop = s.step(1)
+    assert stop.person_id == first and stop.joints == (7, 9) and stop.fix is None
+    assert stop.text.startswith("person 1: ")
+    assert s.step(1) is None, "the frame-level reason is not a stop"
+    assert s.accept() is None and "no fix" in said[-1]

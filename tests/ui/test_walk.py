@@ -1,0 +1,59 @@
+"""The walk end to end in the window: W goes to a finding, selects its joints and says it on
+the Canvas beside them; Y accepts its fix as one undo step and the walk moves on; with triage
+reasons alone the walk stops at them.
+
+Data: the synthetic project of tests/ui/conftest.py and a finding invented here. The visibility
+values follow the COCO keypoint convention (v = 1 occluded, 2 visible; Lin et al., ECCV 2014);
+one action, one undo step is the command pattern's rule (common practice, no source).
+"""
+
+from __future__ import annotations
+
+from PySide6.QtCore import Qt
+
+from app.analysis.triage.findings import Finding, Fix, FixPreview, labels_digest
+from app.model.edits import SetVisibility
+from tests.ui.conftest import person_id
+
+
+def _store_finding(project, fid, pid):
+    fix = Fix("mark person 2's left wrist occluded", (SetVisibility(fid, pid, 9, 1),),
+              FixPreview(occluded=((pid, 9),)))
+    finding = Finding("Ftest", fid, "hidden", pid, 2, (9,), ("left wrist",),
+                      "person 2's left wrist is hidden behind person 3", (), 1.0, 0.9, fix,
+                      (pid,), "0123456789abcdef")
+    project.store_findings({fid: (labels_digest(project.labels(fid)), [finding.to_dict()])})
+
+
+def _wrist(project, fid, pid):
+    return next(p for p in project.people(fid) if p.id == pid).keypoints[9].copy()
+
+
+def test_w_shows_the_finding_and_y_accepts_its_fix_as_one_undo_step(qtbot, window, ui_project):
+    fid, pid = window.frame_id, person_id(window, 2)
+    _store_finding(ui_project, fid, pid)
+    window.session.findings_changed()
+    qtbot.keyClick(window.canvas, Qt.Key.Key_W)
+    card = window.canvas.walk_card
+    assert card is not None and card.stop.key == "Ftest"
+    assert window.canvas.selected_joints == [(pid, 9)]
+    assert window.actions_by_name["accept_fix"].isEnabled()
+    groups = len({e.group_id for e in ui_project.history()})
+    qtbot.keyClick(window.canvas, Qt.Key.Key_Y)
+    assert _wrist(ui_project, fid, pid)[2] == 1
+    assert len({e.group_id for e in ui_project.history()}) == groups + 1
+    assert window.session.current is None or window.session.current.key != "Ftest", \
+        "the walk moved on by itself"
+    assert "accept finding Ftest" in window.ledger_model.index(0, 3).data()
+    window.undo()
+    assert _wrist(ui_project, fid, pid)[2] == 2
+
+
+def test_without_findings_the_walk_stops_at_triage_reasons(qtbot, window):
+    pid = person_id(window, 2)
+    qtbot.keyClick(window.canvas, Qt.Key.Key_W)
+    stop = window.canvas.walk_card.stop
+    assert stop.person_id == pid and stop.fix is None
+    assert stop.text.startswith("person 2: ")
+    assert window.canvas.selected_joints == [(pid, 7), (pid, 9)]
+    assert not window.actions_by_name["accept_fix"].isEnabled()
