@@ -1039,7 +1039,8 @@ class MainWindow(QMainWindow):
             self.canvas.select_person(None)
         stops = self.session.stops(stop.frame_id)
         keys = [s.key for s in stops]
-        where = f"{keys.index(stop.key) + 1} of {len(stops)}" if stop.key in keys else ""
+        where = (f"\u00b7 stop {keys.index(stop.key) + 1} of {len(stops)}" if stop.key in keys
+                 else "")
         self.canvas.show_stop(stop, where)
         self._update_actions()
         self._update_status()
@@ -1487,8 +1488,7 @@ class MainWindow(QMainWindow):
         stops = None if self.frame_id is None else self.session.known_stops(self.frame_id)
         self.status_flags.setText((f"flags on {count(flagged, 'people')}" if flagged
                                    else "no flags")
-                                  + ("" if stops is None else
-                                     f" \u00b7 {count(len(stops), 'open findings')}"))
+                                  + ("" if stops is None else _stops_text(stops)))
         frame = self.canvas.frame
         state = STATE_TEXT[frame.state] if frame is not None else ""
         if self.review_mode and frame is not None:
@@ -1843,3 +1843,14 @@ def keep_open(window: MainWindow) -> None:
     _OPEN_WINDOWS.add(window)
     window.destroyed.connect(lambda *_: _OPEN_WINDOWS.discard(window))
     window.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
+
+
+def _stops_text(stops: list) -> str:
+    """The frame's open findings for the status bar, and the walk's stops when findings are
+    grouped (a frame's visibility-only fixes are one stop), so the Worklist's count of
+    findings and the card's "stop 4 of 11" agree."""
+    found = sum(len(s.findings) for s in stops)
+    text = f" \u00b7 {count(found, 'open findings')}"
+    if len(stops) != found:
+        text += f" at {count(len(stops), 'stops')}"
+    return text

@@ -162,10 +162,13 @@ def test_a_jpeg_shown_small_is_decoded_reduced_then_whole(qtbot, tmp_path):
     np.testing.assert_array_equal(better.pixels[..., :3], whole)
     np.testing.assert_array_equal(
         better.scaled[..., :3], cv2.resize(whole, (80, 51), interpolation=cv2.INTER_AREA))
-    # Prefetched frames, and PNGs, are decoded whole at once.
-    loader.request(2, path)
+    # Prefetched frames, and PNGs, are decoded whole at once. The prefetch is awaited before
+    # the urgent request: an urgent request withdraws prefetches that have not started yet,
+    # which on a busy machine would be this one.
+    with qtbot.waitSignal(loader.ready, timeout=WAIT_MS):
+        loader.request(2, path)
     cv2.imwrite(str(tmp_path / "e.png"), img)
-    loader.request(3, tmp_path / "e.png", urgent=True)
-    qtbot.waitUntil(lambda: 2 in loader.cache and 3 in loader.cache, timeout=WAIT_MS)
+    with qtbot.waitSignal(loader.ready, timeout=WAIT_MS):
+        loader.request(3, tmp_path / "e.png", urgent=True)
     assert loader.cache.get(2).reduction == 1 and loader.cache.get(3).reduction == 1
     loader.shutdown()
