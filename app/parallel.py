@@ -8,7 +8,11 @@ single writer and every job stays all or nothing. Results come back in the order
 items, whatever the number of workers, so a job's output is the same with one worker or
 many.
 
-One worker runs everything in the calling process, without a pool. Workers are started by a
+One worker runs everything in the calling process, without a pool. So does a short job:
+starting a pool costs a second or more (the fork server and each worker import the app), more
+than a job of a few seconds saves on two cores. The first items run here, timed, and the rest
+go to a pool only once the time the other workers would save on them exceeds that start-up
+cost (see :data:`POOL_START_SECONDS`). Workers are started by a
 fork server (a fresh interpreter that forks them, so the threads of the app or of a database
 pool are never copied) where the system has one, else spawned.
 """
@@ -17,21 +21,33 @@ from __future__ import annotations
 
 import multiprocessing
 import os
+import time
 from collections import deque
-from collections.abc import Callable, Iterable, Iterator
+from collections.abc import Callable, Generator, Iterable, Iterator
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
 from typing import Any, TypeVar
 
 from app.errors import BadInput
 from app.progress import Progress
 
-__all__ = ["WORKERS_ENV", "check_workers", "default_workers", "ordered_map"]
+__all__ = ["POOL_START_SECONDS", "WORKERS_ENV", "check_workers", "default_workers", "ordered_map"]
 
 #: Environment variable giving the number of workers when ``--workers`` does not.
 WORKERS_ENV = "POSEWRIGHT_WORKERS"
 
 T = TypeVar("T")
 R = TypeVar("R")
+
+#: What starting a pool costs before its first result, in seconds: the fork server and the
+#: workers importing the app. Measured on the 2-core development machine: 1.6-2.5 s at load 3
+#: for two workers (``ordered_map`` over four trivial items); the lower figure is used, so a
+#: job is moved to a pool only when that pays even on a quiet machine.
+POOL_START_SECONDS = 1.5
+
+#: How long the first items run in this process, timed, before a pool is considered, in
+#: seconds. Two items at least are timed and the first is left out of the estimate when
+#: there are more, since it pays for imports and caches the others reuse.
+_PROBE_SECONDS = 0.2
 
 #: How long to wait for a result before looking at the cancel request again, in seconds.
 _POLL_SECONDS = 0.1
@@ -84,7 +100,9 @@ def check_workers(workers: int | None) -> int:
 def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
                 progress: Progress | None = None, label: str = "",
                 initializer: Callable[..., Any] | None = None,
-                initargs: Iterable[Any] = (), total: int | None = None) -> Iterator[R]:
+                initargs: Iterable[Any] = (), total: int | None = None,
+                here: tuple[Callable[..., Any], tuple[Any, ...]] | None = None
+                ) -> Generator[R, None, None]:
     """``fn(item)`` for every item, yielded in the order of ``items``.
 
     Parameters
@@ -96,17 +114,25 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
         Taken lazily, a few ahead of the results, so a generator that reads each frame's
         labels only when its turn comes keeps memory flat.
     workers
-        Processes to use; 1 runs in this process.
+        Processes to use at most; 1 runs in this process. With more, the first items still
+        run here, timed for at least :data:`_PROBE_SECONDS`, and the rest go to a pool only
+        when the workers would save more than :data:`POOL_START_SECONDS` on them (the
+        results are the same either way).
     progress
         Told ``(n, len(items), label)`` before the n-th result is taken; a cancel request
         stops the work within a tenth of a second of the longest item (items not yet started
         are dropped, running ones end and are thrown away) by raising
         :class:`~app.errors.Cancelled` from the generator.
     initializer, initargs
-        Called once in each worker before its first item (and once here with one worker), to
-        set up what every item needs (a loaded model, a pixel limit).
+        Called once in each worker before its first item, and once here unless ``here``
+        is given, to set up what every item needs (a loaded model, a pixel limit); its time
+        here is added to the pool's start-up cost, since every worker pays it again.
     total
         The number of items, for the progress (default ``len(items)``).
+    here
+        A function and its arguments that set this process up for the items run here,
+        instead of ``initializer`` (which may, say, load a model this process already has, or
+        share out threads it should keep).
 
     Notes
     -----
@@ -122,25 +148,72 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
     progress = progress or Progress()
     if total is None:
         total = len(items)  # type: ignore[arg-type]
-    if workers <= 1 or total <= 1:
-        if initializer is not None:
-            initializer(*initargs)
-        for n, item in enumerate(items):
-            progress.step(n, total, label)
-            yield fn(item)
+    initargs = tuple(initargs)
+    t0 = time.perf_counter()
+    if here is not None:
+        here[0](*here[1])
+    elif initializer is not None:
+        initializer(*initargs)
+    start_cost = POOL_START_SECONDS + (time.perf_counter() - t0)  # workers set up too
+    upcoming = iter(items)
+    done = 0
+    first = 0.0  # the time of the first item
+    t0 = time.perf_counter()
+    while done < total:
+        if workers > 1 and done >= 2:
+            spent = time.perf_counter() - t0
+            if spent >= _PROBE_SECONDS and _pool_pays(
+                    (spent - first) / (done - 1), total - done, workers, start_cost):
+                break
+        item = next(upcoming, _END)
+        if item is _END:
+            return
+        progress.step(done, total, label)
+        yield fn(item)  # type: ignore[arg-type]
+        done += 1
+        if done == 1:
+            first = time.perf_counter() - t0
+    else:
         return
+    yield from _pooled(fn, upcoming, done, total, min(workers, total - done), progress, label,
+                       initializer, initargs)
+
+
+def _pool_pays(per_item: float, left: int, workers: int, start_cost: float) -> bool:
+    """Whether ``left`` items of ``per_item`` seconds each end sooner on ``workers`` pool
+    processes than here, the pool's ``start_cost`` included.
+
+    Examples
+    --------
+    >>> _pool_pays(0.016, 94, 2, 1.5)  # 96 frames of maps: 0.75 s saved, 1.5 s to start
+    False
+    >>> _pool_pays(0.2, 94, 2, 1.5)  # 96 frames of triage: 9.4 s saved
+    True
+    """
+    workers = min(workers, left)
+    if workers <= 1:
+        return False
+    return left * per_item * (1.0 - 1.0 / workers) > start_cost
+
+
+_END = object()
+
+
+def _pooled(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: int, workers: int,
+            progress: Progress, label: str, initializer: Callable[..., Any] | None,
+            initargs: tuple[Any, ...]) -> Iterator[R]:
+    """The items left in ``upcoming`` (``done`` of ``total`` already taken) on a pool."""
     context = multiprocessing.get_context(
         "forkserver" if "forkserver" in multiprocessing.get_all_start_methods() else "spawn")
-    pool = ProcessPoolExecutor(min(workers, total), mp_context=context,
-                               initializer=initializer, initargs=tuple(initargs))
+    pool = ProcessPoolExecutor(workers, mp_context=context,
+                               initializer=initializer, initargs=initargs)
     pending: deque[Future[R]] = deque()
-    upcoming = iter(items)
     try:
         for item in upcoming:
             pending.append(pool.submit(fn, item))
             if len(pending) >= 2 * workers:
                 break
-        for n in range(total):
+        for n in range(done, total):
             progress.step(n, total, label)
             head = pending.popleft()
             while not wait([head], timeout=_POLL_SECONDS, return_when=FIRST_COMPLETED).done:

@@ -20,7 +20,7 @@ from app.store import Project
 from tests import pg, synthetic
 
 # Batch commands compute on every core unless told otherwise; the suite already runs one test
-# per core, so they use one process here, and tests/test_parallel_jobs.py checks that more
+# per core, so they use one process here, and tests/test_parallel.py checks that more
 # workers give the same results.
 os.environ["POSEWRIGHT_WORKERS"] = "1"
 
@@ -101,3 +101,14 @@ def coco_file(tmp_path: Path, image_dir: Path) -> Path:
     path = tmp_path / "labels.json"
     path.write_text(json.dumps(synthetic.coco_dataset(names)))
     return path
+
+
+@pytest.fixture
+def free_pool(monkeypatch: pytest.MonkeyPatch) -> None:
+    """Worker pools cost nothing to start and the first items are not timed for long, so
+    even a test's tiny job goes to the workers (app/parallel.py runs short jobs in the
+    calling process)."""
+    from app import parallel
+
+    monkeypatch.setattr(parallel, "POOL_START_SECONDS", 0.0)
+    monkeypatch.setattr(parallel, "_PROBE_SECONDS", 0.0)

@@ -4,12 +4,15 @@
 tests/cli/test_analysis_commands.py (people drawn with the Cao et al. 2017 target formulas; no
 real data), once with one worker and once with two, and must store and write the same
 numbers. Pre-labelling is checked the same way in tests/inference/test_prelabel.py. Each pool
-costs a second or so to start, so the jobs share one test.
+costs a second or so to start, so the jobs share one test. Jobs this small would run in the
+calling process (a pool would not pay), so the tests that check the pool tell ``ordered_map``
+that a pool costs nothing to start.
 """
 
 from __future__ import annotations
 
 import json
+import os
 import threading
 
 import numpy as np
@@ -30,6 +33,10 @@ def _cube(n: int) -> int:
     return n**3
 
 
+def _pid(_item) -> int:
+    return os.getpid()
+
+
 def _snapshot(proj):
     """Every person, triage score, reason and finding the project holds, in a fixed order."""
     with Project.open(proj) as p:
@@ -41,7 +48,8 @@ def _snapshot(proj):
     return people, triage, findings
 
 
-def test_two_workers_store_and_write_what_one_does(tmp_path, image_dir, maps_dir, capsys):  # noqa: F811
+def test_two_workers_store_and_write_what_one_does(tmp_path, image_dir, maps_dir, capsys,  # noqa: F811
+                                                   free_pool):
     folder, _ = maps_dir
     outputs = []
     for workers in ("1", "2"):
@@ -80,7 +88,7 @@ def test_two_workers_store_and_write_what_one_does(tmp_path, image_dir, maps_dir
             np.testing.assert_array_equal(value, arrays1[fid][key])
 
 
-def test_results_come_in_order_and_errors_keep_their_place():
+def test_results_come_in_order_and_errors_keep_their_place(free_pool):
     """Order of the items whatever the finishing order; an error of a worker is raised again
     here with its message intact, after every earlier result."""
     got = list(ordered_map(_cube, range(7), workers=2))
@@ -94,7 +102,7 @@ def test_results_come_in_order_and_errors_keep_their_place():
     assert raised.value.where == "item 7"
 
 
-def test_cancel_stops_the_workers():
+def test_cancel_stops_the_workers(free_pool):
     """A cancel request set while results come in raises Cancelled at the next result."""
     stop = threading.Event()
     seen = []
@@ -108,6 +116,20 @@ def test_cancel_stops_the_workers():
         list(ordered_map(_cube, range(100), workers=2, progress=Progress(tell, stop),
                          label="cubes"))
     assert seen[:4] == [0, 1, 2, 3] and max(seen) == 3
+
+
+def test_a_short_job_stays_in_this_process():
+    """Forty instant items save less on two workers than a pool costs to start: all run
+    here (common practice: do not pay a pool's start-up for a job shorter than it)."""
+    assert set(ordered_map(_pid, range(40), workers=2)) == {os.getpid()}
+
+
+def test_a_long_job_moves_to_the_workers_after_the_first_items(free_pool):
+    """When a pool pays, the first items (timed here) run in this process and the rest on
+    the workers, still in order."""
+    pids = list(ordered_map(_pid, range(20), workers=2))
+    assert pids[:2] == [os.getpid()] * 2
+    assert os.getpid() not in pids[2:]
 
 
 def test_worker_counts_are_checked(monkeypatch):

@@ -167,19 +167,17 @@ def prelabel(project: Project, model: str | Path, config: str | Path | None = No
     run = project.new_map_run(RUN_KIND)
     items = [(frame, str(project.image_path(frame)), str(run / f"{frame.id}.npz"),
               frame.id not in has_people, grouping) for frame in every]
-    if workers > 1:
-        start: Any = _start_worker
-        start_args: tuple[Any, ...] = (model, cfg, project.skeleton, where, limit,
-                                       max(1, default_workers() // workers))
-    else:
-        start, start_args = _use_network, (network,)
+    # A worker loads the model and shares out OpenCV's threads; frames run here (one worker,
+    # or a job too short for a pool) use the network already loaded.
+    start_args = (model, cfg, project.skeleton, where, limit, max(1, default_workers() // workers))
     try:
         found: list[tuple[int, Person]] = []
         strides: dict[int, int] = {}
         unreadable = kept = 0
         # closing: no worker may still be writing maps when a failure drops the run.
         with contextlib.closing(ordered_map(_prelabel_one, items, workers, progress,
-                                            "pre-labelling", start, start_args)) as results:
+                                            "pre-labelling", _start_worker, start_args,
+                                            here=(_use_network, (network,)))) as results:
             for frame, (stride, people) in zip(every, results, strict=True):
                 if stride is None:
                     unreadable += 1

@@ -163,7 +163,7 @@ def test_frame_lists():
             parse_frames(bad, frames)
 
 
-def test_two_workers_store_what_one_does(setup, tmp_path):
+def test_two_workers_store_what_one_does(setup, tmp_path, free_pool):
     """Pre-labelling in two worker processes stores the same people and writes the same maps
     as in one (synthetic frames and model, as above)."""
     project, model, config, _ = setup
