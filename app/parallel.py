@@ -12,13 +12,14 @@ One worker runs everything in the calling process, without a pool. So does a sho
 starting a pool costs a second or more (the fork server and each worker import the app), more
 than a job of a few seconds saves on two cores. The first items run here, timed, and the rest
 go to a pool only once the time the other workers would save on them exceeds that start-up
-cost (see :data:`POOL_START_SECONDS`). Workers are started by a
+cost (see :data:`POOL_START_SECONDS`), which the log tells at debug level. Workers are started by a
 fork server (a fresh interpreter that forks them, so the threads of the app or of a database
 pool are never copied) where the system has one, else spawned.
 """
 
 from __future__ import annotations
 
+import logging
 import multiprocessing
 import os
 import time
@@ -32,17 +33,21 @@ from app.progress import Progress
 
 __all__ = ["POOL_START_SECONDS", "WORKERS_ENV", "check_workers", "default_workers", "ordered_map"]
 
+log = logging.getLogger(__name__)
+
 #: Environment variable giving the number of workers when ``--workers`` does not.
 WORKERS_ENV = "POSEWRIGHT_WORKERS"
 
 T = TypeVar("T")
 R = TypeVar("R")
 
-#: What starting a pool costs before its first result, in seconds: the fork server and the
-#: workers importing the app. Measured on the 2-core development machine: 1.6-2.5 s at load 3
-#: for two workers (``ordered_map`` over four trivial items); the lower figure is used, so a
-#: job is moved to a pool only when that pays even on a quiet machine.
-POOL_START_SECONDS = 1.5
+#: What starting a pool costs before its first result, in seconds: the workers importing the
+#: app (and, for a process's first pool, the fork server starting). Measured on the 2-core
+#: development machine with ``ordered_map`` over six trivial items on two workers: 0.74-0.84 s
+#: quiet (load 1.4, fork server already up), 1.6-2.5 s for a first pool at load 3. One second
+#: sits between: 96 frames of maps (16 ms each, 0.75 s to save) stay here, 96 frames of
+#: training targets (28 ms each, 1.3 s to save) go to the workers.
+POOL_START_SECONDS = 1.0
 
 #: How long the first items run in this process, timed, before a pool is considered, in
 #: seconds. Two items at least are timed and the first is left out of the estimate when
@@ -164,6 +169,8 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
             spent = time.perf_counter() - t0
             if spent >= _PROBE_SECONDS and _pool_pays(
                     (spent - first) / (done - 1), total - done, workers, start_cost):
+                log.debug("%s: %d of %d items on %d workers after %.2f s here", label or "job",
+                          total - done, total, min(workers, total - done), spent)
                 break
         item = next(upcoming, _END)
         if item is _END:
@@ -174,6 +181,8 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
         if done == 1:
             first = time.perf_counter() - t0
     else:
+        if workers > 1:
+            log.debug("%s: all %d items here, a pool would not pay", label or "job", total)
         return
     yield from _pooled(fn, upcoming, done, total, min(workers, total - done), progress, label,
                        initializer, initargs)
@@ -185,9 +194,9 @@ def _pool_pays(per_item: float, left: int, workers: int, start_cost: float) -> b
 
     Examples
     --------
-    >>> _pool_pays(0.016, 94, 2, 1.5)  # 96 frames of maps: 0.75 s saved, 1.5 s to start
+    >>> _pool_pays(0.016, 94, 2, 1.0)  # 96 frames of maps: 0.75 s saved, 1 s to start
     False
-    >>> _pool_pays(0.2, 94, 2, 1.5)  # 96 frames of triage: 9.4 s saved
+    >>> _pool_pays(0.2, 94, 2, 1.0)  # 96 frames of triage: 9.4 s saved
     True
     """
     workers = min(workers, left)
