@@ -4,7 +4,9 @@ against one, in the same run.
 The frames are the shipped demo's (a synthetic rehearsal, 24 frames with their simulated
 network maps) copied four times over, 96 frames. Each figure is the wall time with one worker
 divided by the time with two (pool start-up included); on a machine shared with other work the
-second core is not always free, so the detail gives both times and the load average.
+second core is not always free, so the detail gives both times and the load average. A job
+whose items would not repay the pool's start runs in the calling process on "2 workers"
+(app/parallel.py), so its figure is near 1x, or above it, since it runs second, warm.
 """
 
 from __future__ import annotations
