@@ -89,20 +89,20 @@ class FramesGateway:
         return [_frame(r) for r in rows]
 
     def page(self, query: FrameQuery) -> list[Frame]:
-        """The frames of one Worklist page (see :class:`FrameQuery`)."""
+        """The frames of one Worklist page (see :class:`FrameQuery`).
+
+        A page in suspicion order is read in two parts: the triaged frames, most suspicious
+        first, walking the index on the triage score, then the frames never triaged, by id.
+        One query sorting the whole join (score NULL last) reads and sorts every frame for
+        each page: for 100 of 100,000 frames in SQLite, 20 ms against 0.3 ms at the top and
+        56 ms against 12 ms half way down (``make bench``).
+        """
+        if query.order == "suspicion" and query.limit is not None:
+            return self._suspicion_page(query)
         sql = f"SELECT {_COLUMNS} FROM {_FROM}"
-        where: list[str] = []
-        args: list[Any] = []
-        if query.states is not None:
-            states = [FrameState(s).value for s in query.states]
-            if not states:
-                return []
-            where.append(f"state IN ({', '.join('?' * len(states))})")
-            args += states
-        if query.reason is not None:
-            # Reasons are a JSON list of objects; their kind is matched as JSON text.
-            where.append("triage.reasons LIKE ?")
-            args.append("%" + json.dumps({"kind": query.reason})[1:-1] + "%")
+        where, args = self._filters(query)
+        if where is None:
+            return []
         if where:
             sql += " WHERE " + " AND ".join(where)
         if query.order == "suspicion":
@@ -114,6 +114,49 @@ class FramesGateway:
             sql += " LIMIT ? OFFSET ?"
             args += [int(query.limit), int(query.offset)]
         return [_frame(r) for r in self._tx.rows(sql, args)]
+
+    def _suspicion_page(self, query: FrameQuery) -> list[Frame]:
+        where, args = self._filters(query)
+        limit, offset = int(query.limit or 0), max(0, int(query.offset))
+        if where is None or limit <= 0:
+            return []
+        cond = "".join(f" AND {w}" for w in where)
+        # The frames' rows are joined only where a condition (the state) needs them, so that
+        # the rows skipped by the offset are read from the triage index alone.
+        source = "triage" if query.states is None else \
+            "triage JOIN frames ON frames.id = triage.frame_id"
+        triaged = f"FROM {source} WHERE 1 = 1{cond}"
+        ranked = (f"SELECT triage.frame_id AS frame_id, triage.score AS score {triaged} "
+                  "ORDER BY triage.score DESC, triage.frame_id LIMIT ? OFFSET ?")
+        rows = list(self._tx.rows(
+            f"SELECT {_COLUMNS} FROM ({ranked}) ranked JOIN frames ON frames.id = ranked.frame_id "
+            "JOIN triage ON triage.frame_id = ranked.frame_id "
+            "ORDER BY ranked.score DESC, ranked.frame_id", [*args, limit, offset]))
+        if len(rows) < limit:
+            # The page runs past the triaged frames into those never triaged.
+            skip = 0 if rows else offset - int(self._tx.value(f"SELECT count(*) {triaged}",
+                                                              args, default=0))
+            rows += self._tx.rows(f"SELECT {_COLUMNS} FROM {_FROM} WHERE triage.frame_id IS NULL"
+                                  f"{cond} ORDER BY frames.id LIMIT ? OFFSET ?",
+                                  [*args, limit - len(rows), max(0, skip)])
+        return [_frame(r) for r in rows]
+
+    @staticmethod
+    def _filters(query: FrameQuery) -> tuple[list[str] | None, list[Any]]:
+        """The query's conditions and their arguments; None when nothing can match."""
+        where: list[str] = []
+        args: list[Any] = []
+        if query.states is not None:
+            states = [FrameState(s).value for s in query.states]
+            if not states:
+                return None, []
+            where.append(f"state IN ({', '.join('?' * len(states))})")
+            args += states
+        if query.reason is not None:
+            # Reasons are a JSON list of objects; their kind is matched as JSON text.
+            where.append("triage.reasons LIKE ?")
+            args.append("%" + json.dumps({"kind": query.reason})[1:-1] + "%")
+        return where, args
 
     def ids(self) -> list[int]:
         return [r[0] for r in self._tx.rows("SELECT id FROM frames ORDER BY id")]

@@ -33,6 +33,7 @@ from app.model import (
     SwapSides,
 )
 from app.store import Project
+from app.store.frames import FrameQuery, NewFrame
 from app.store.schema import SCHEMA_VERSION
 from tests.conftest import place
 
@@ -291,6 +292,40 @@ def test_ledger_rows_record_author_time_target_before_after(project):
     assert entry.target == JointTarget(pid, 4) and str(entry.target) == f"person:{pid}/joint:4"
     assert entry.before[:3] == [None, None, 0] and entry.after[:3] == [5.0, 6.0, 2]
     assert json.loads(json.dumps(entry.after)) == entry.after
+
+
+def test_worklist_pages_follow_one_sort_of_every_frame(project):
+    """Pages of the Worklist in suspicion order, at any offset and with filters, are slices
+    of every frame sorted in Python (most suspicious first, ties and frames never triaged by
+    id; a plain sort, common practice). Synthetic frames and scores, with ties at 0 and 0.5."""
+    project.add_frames([NewFrame(f"extra/{n}.jpg", f"{n}.jpg", 64, 48, status="missing")
+                        for n in range(40)])
+    ids = [f.id for f in project.frames()]
+    rng = np.random.default_rng(0)
+    scores = {}
+    for fid in ids[::3] + ids[1::3]:  # a third of the frames never triaged
+        scores[fid] = float(rng.choice([0.0, 0.5, rng.random()]))
+    project.store_triage({fid: (s, [{"kind": "odd" if fid % 2 else "even"}])
+                          for fid, s in scores.items()})
+    for fid in ids[::4]:
+        project.apply(SetFrameState(fid, FrameState.DISPUTED))
+
+    def expected(keep):
+        frames = [f for f in project.frames() if keep(f)]
+        return [f.id for f in sorted(frames, key=lambda f: (f.suspicion is None,
+                                                             -(f.suspicion or 0.0), f.id))]
+
+    cases = [(FrameQuery(), lambda f: True),
+             (FrameQuery(states=(FrameState.DISPUTED,)), lambda f: f.state is FrameState.DISPUTED),
+             (FrameQuery(reason="odd"), lambda f: f.id in scores and f.id % 2 == 1)]
+    for query, keep in cases:
+        want = expected(keep)
+        assert [f.id for f in project.frame_page(query)] == want
+        for offset in (0, 5, len([i for i in want if i in scores]) - 2, len(want) - 3, 100):
+            page = FrameQuery(query.order, query.states, query.reason, offset, 7)
+            assert [f.id for f in project.frame_page(page)] == want[offset:offset + 7]
+    assert project.frame_page(FrameQuery(states=(), limit=5)) == []
+    assert len(want) >= 10
 
 
 def test_older_project_is_migrated_forward(tmp_path, image_dir):
