@@ -89,3 +89,22 @@ def test_a_frames_visibility_fixes_are_one_stop_accepted_and_undone_together(
     window.undo()
     assert _wrist(ui_project, fid, b)[2] == 2
     assert next(p for p in ui_project.people(fid) if p.id == c).keypoints[10][2] == 2
+
+
+def test_the_owner_list_goes_where_it_covers_fewest_connector_points():
+    """The owner list's place beside a joint: the first side that covers the fewest points of
+    the dispute connectors, never over the walk's card if another side is free (synthetic
+    rectangles and points, invented here; our own rule, no outside source)."""
+    from PySide6.QtCore import QPointF, QRectF
+
+    from app.ui.callouts import _beside, least_covering
+
+    bounds, joint = QRectF(0, 0, 800, 600), QRectF(392, 292, 16, 16)
+    options = _beside(joint, (200, 100), bounds)
+    assert least_covering(options, []) == options[0], "the usual place when nothing is in the way"
+    below_right = [QPointF(450, 340), QPointF(500, 360)]
+    chosen = least_covering(options, below_right)
+    assert not any(chosen.contains(q) for q in below_right)
+    card = QRectF(100, 320, 300, 200)
+    chosen = least_covering(options, below_right, avoid=card)
+    assert not chosen.intersects(card) and not any(chosen.contains(q) for q in below_right)
