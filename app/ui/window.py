@@ -1815,8 +1815,10 @@ class MainWindow(QMainWindow):
         self.run_long("Opening project", build, opened)
 
     def select_first_flag(self) -> None:
-        """Walk to the frame's first finding (for a first look): what W does."""
-        if self.frame_id is not None:
+        """Walk to the frame's first finding (for a first look): what W does. On a disputed
+        frame the first difference stays selected instead, as opening it leaves it: settling
+        comes first there."""
+        if self.frame_id is not None and self.dispute is None:
             self.session.step(1)
 
 
