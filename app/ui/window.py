@@ -355,8 +355,8 @@ class MainWindow(QMainWindow):
                             ("region_mode", "Leave region mode (R)"),
                             ("decide_agree", "Looks right (Ctrl+1)"),
                             ("decide_needs_change", "Query (Ctrl+2)"),
-                            ("decide_signed_off", "Ready for training (Ctrl+3)"),
-                            ("return_packet", "Send the packet back\u2026")):
+                            ("decide_signed_off", "Ready (Ctrl+3)"),
+                            ("return_packet", "Send back\u2026")):
             self.actions_by_name[name].setIconText(short)
 
     def _build_menus(self) -> None:
@@ -1425,7 +1425,11 @@ class MainWindow(QMainWindow):
             word = f"<b>{DECISION_TEXT[decided]}</b>" if decided else "none yet"
             packet = self.project.folder.name.removesuffix(".review") + ".zip"
             self.strips["review"].say(
-                f"<b>Reviewing</b> {packet} \u00b7 your decision on this frame: {word}")
+                f"<b>Reviewing</b> {packet} \u00b7 decision: {word}",
+                f"Reviewing {packet}: your decision on this frame is "
+                f"{DECISION_TEXT[decided] if decided else 'none yet'}. Ctrl+1 looks right, "
+                "Ctrl+2 queries it, Ctrl+3 makes it ready for training; the same key again "
+                "withdraws")
         else:
             self.strips["review"].say("")
         self.strips["dispute"].say(*self._dispute_strip_text())
