@@ -215,6 +215,30 @@ def _place(box: QRectF, size: tuple[float, float], bounds: QRectF, below: bool) 
     return QRectF(x, y, w, h)
 
 
+def _beside(box: QRectF, size: tuple[float, float], bounds: QRectF) -> list[QRectF]:
+    """The places a card of ``size`` can go beside ``box``, in order of preference: where
+    :func:`_place` puts it below, then right and left, below and above, all inside ``bounds``."""
+    w, h = size
+    out = [_place(box, size, bounds, below=True)]
+    for below in (True, False):
+        for x in (box.right() + 14, box.left() - 14 - w):
+            y = box.bottom() + 10 if below else box.top() - 10 - h
+            x = min(max(x, bounds.left() + 4), bounds.right() - w - 4)
+            y = min(max(y, bounds.top() + 4), bounds.bottom() - h - 4)
+            out.append(QRectF(x, y, w, h))
+    return out
+
+
+def least_covering(options: Sequence[QRectF], keep_clear: Sequence[QPointF],
+                   avoid: QRectF | None = None) -> QRectF:
+    """The first of ``options`` that covers the fewest ``keep_clear`` points, never one that
+    overlaps ``avoid`` (the walk's card) while another does not."""
+    def cost(r: QRectF) -> tuple[bool, int]:
+        return (avoid is not None and r.intersects(avoid),
+                sum(r.contains(q) for q in keep_clear))
+    return min(options, key=cost)
+
+
 def paint_walk_card(painter: QPainter, card: WalkCard, box: QRectF, bounds: QRectF,
                     base: QFont) -> QRectF:
     """The finding's sentence and what the keys do, in a card beside ``box`` (screen
@@ -273,10 +297,13 @@ def _nearest_edge(rect: QRectF, p: QPointF) -> QPointF:
 
 def paint_owner_list(painter: QPainter, ranking: OwnerRanking, names: Names,
                      colours: Mapping[int, int], joint_at: QPointF, bounds: QRectF,
-                     base: QFont, avoid: QRectF | None = None) -> list[tuple[QRectF, int]]:
+                     base: QFont, avoid: QRectF | None = None,
+                     keep_clear: Sequence[QPointF] = ()) -> list[tuple[QRectF, int]]:
     """The ranked owners of the selected joint in a small list beside it: the verdict, the
-    owner's row, then the best candidates (tag colour, ``person N``, fit, reason). Returns
-    each candidate row's rectangle with its person id (click targets)."""
+    owner's row, then the best candidates (tag colour, ``person N``, fit, reason). The list
+    goes on the side of the joint that covers the fewest ``keep_clear`` points (e.g. along a
+    dispute's connectors) and not over ``avoid``. Returns each candidate row's rectangle with
+    its person id (click targets)."""
     rows = ([ranking.owner] if ranking.owner is not None else []) + \
         list(ranking.candidates[:OWNER_ROWS])
     f_head, f_row = _font(base, 11, True), _font(base, 11)
@@ -295,7 +322,7 @@ def paint_owner_list(painter: QPainter, ranking: OwnerRanking, names: Names,
     width = max(width, m_head.horizontalAdvance(head) + 16, m_row.horizontalAdvance(foot) + 16)
     height = m_head.height() + 8 + row_h * len(lines) + m_row.height() + 10
     anchor = QRectF(joint_at - QPointF(8, 8), joint_at + QPointF(8, 8))
-    rect = _place(anchor, (width, height), bounds, below=True)
+    rect = least_covering(_beside(anchor, (width, height), bounds), keep_clear, avoid)
     if avoid is not None and rect.intersects(avoid):
         rect.moveTop(min(avoid.bottom() + 6, bounds.bottom() - height - 4))
     painter.save()

@@ -747,7 +747,21 @@ class Canvas(QWidget):
             if person is not None and np.isfinite(person.keypoints[joint[1], :2]).all():
                 at = self.image_to_screen(*person.keypoints[joint[1], :2])
                 self.owner_rows = paint_owner_list(p, self.owners, names, self.colours, at,
-                                                    QRectF(self.rect()), self.font(), card)
+                                                    QRectF(self.rect()), self.font(), card,
+                                                    self._connector_points())
+
+    def _connector_points(self) -> list[QPointF]:
+        """Screen points along each dispute connector (both ends and between), which the owner
+        list should leave visible."""
+        out = []
+        for (pid, j), there in self.marks.items():
+            person = self.person(pid)
+            if person is None or not np.isfinite(person.keypoints[j, :2]).all():
+                continue
+            a = self.image_to_screen(*person.keypoints[j, :2])
+            b = self.image_to_screen(*there[:2])
+            out += [a + (b - a) * (k / 4) for k in range(5)]
+        return out
 
     def _paint_banner(self, p: QPainter) -> None:
         """Say plainly that the reviewer's version is on screen, not ours."""

@@ -47,7 +47,9 @@ class Strip(QFrame):
             self.buttons.append(button)
         self.hide()
 
-    def say(self, html: str) -> None:
-        """Show the strip with this text (empty text hides it)."""
+    def say(self, html: str, full: str = "") -> None:
+        """Show the strip with this text (empty text hides it); ``full``, when given, is the
+        whole sentence, shown as the line's tooltip so the line itself can stay short."""
         self.text.setText(html)
+        self.text.setToolTip(full)
         self.setVisible(bool(html))

@@ -347,16 +347,16 @@ class MainWindow(QMainWindow):
                             ("mark_unlabeled", "Unlabelled (U)"), ("swap_sides", "Swap L/R (S)"),
                             ("merge_people", "Merge\u2026 (M)"),
                             ("delete_person", "Delete person"),
-                            ("show_theirs", "Reviewer's version (B)"),
+                            ("show_theirs", "Reviewer's (B)"),
                             ("next_difference", "Next (J)"),
-                            ("take_theirs_joint", "Take the reviewer's (A)"),
+                            ("take_theirs_joint", "Take (A)"),
                             ("keep_ours_joint", "Keep mine (K)"),
-                            ("settle_frame", "Settle (Shift+Return)"),
+                            ("settle_frame", "Settle (Shift+\u21b5)"),
                             ("region_mode", "Leave region mode (R)"),
                             ("decide_agree", "Looks right (Ctrl+1)"),
                             ("decide_needs_change", "Query (Ctrl+2)"),
-                            ("decide_signed_off", "Ready for training (Ctrl+3)"),
-                            ("return_packet", "Send the packet back\u2026")):
+                            ("decide_signed_off", "Ready (Ctrl+3)"),
+                            ("return_packet", "Send back\u2026")):
             self.actions_by_name[name].setIconText(short)
 
     def _build_menus(self) -> None:
@@ -1425,29 +1425,41 @@ class MainWindow(QMainWindow):
             word = f"<b>{DECISION_TEXT[decided]}</b>" if decided else "none yet"
             packet = self.project.folder.name.removesuffix(".review") + ".zip"
             self.strips["review"].say(
-                f"<b>Reviewing</b> {packet} \u00b7 your decision on this frame: {word}")
+                f"<b>Reviewing</b> {packet} \u00b7 decision: {word}",
+                f"Reviewing {packet}: your decision on this frame is "
+                f"{DECISION_TEXT[decided] if decided else 'none yet'}. Ctrl+1 looks right, "
+                "Ctrl+2 queries it, Ctrl+3 makes it ready for training; the same key again "
+                "withdraws")
         else:
             self.strips["review"].say("")
-        self.strips["dispute"].say(self._dispute_strip_text())
+        self.strips["dispute"].say(*self._dispute_strip_text())
         self.strips["regions"].say(self._region_strip_text())
 
-    def _dispute_strip_text(self) -> str:
+    def _dispute_strip_text(self) -> tuple[str, str]:
+        """The dispute strip's one short line, and the full sentence for its tooltip (the
+        keys are on the strip's buttons, so the line need not say them)."""
         frame = self.canvas.frame
         if self.review_mode or frame is None or frame.state is not FrameState.DISPUTED:
-            return ""
+            return "", ""
         d = self.dispute
         if d is None:
-            return ("<b>Disputed</b> \u00b7 no open differences with a reviewer's version "
-                    "\u00b7 Shift+Return settles the frame (marks it corrected)")
+            return ("<b>Disputed</b> \u00b7 no open differences \u00b7 Shift+Return settles it",
+                    "No open differences with a reviewer's version: Shift+Return settles the "
+                    "frame (marks it corrected)")
         joints, people = len(d.joints), len(d.people)
         if self.canvas.showing_theirs:
-            return (f"<b>Showing {d.who}'s version</b> (read-only) \u00b7 squares mark "
+            return (f"<b>{d.who}'s version</b> (read-only) \u00b7 squares: "
+                    f"{count(joints, 'joint')} that {plural(joints, 'differs', 'differ')} "
+                    "\u00b7 dashed lines lead to mine",
+                    f"Showing {d.who}'s version (read-only): squares mark "
                     f"{count(joints, 'joint')} that {plural(joints, 'differs', 'differ')}; "
-                    "dashed lines lead to mine \u00b7 A takes the reviewer's, K keeps mine, "
+                    "dashed lines lead to mine. A takes the reviewer's, K keeps mine, "
                     "B shows mine")
-        return (f"<b>Disputed</b> \u00b7 {d.who}'s review differs on {count(joints, 'joint')} "
-                f"of {count(people, 'person')}: white squares mark mine, dashed lines lead to "
-                f"{d.who}'s \u00b7 A takes the reviewer's, K keeps mine (Shift: the person, "
+        return (f"<b>Disputed</b> \u00b7 {d.who} differs on {count(joints, 'joint')} of "
+                f"{count(people, 'person')} \u00b7 squares: mine, dashed lines: {d.who}'s",
+                f"{d.who}'s review differs on {count(joints, 'joint')} of "
+                f"{count(people, 'person')}: white squares mark mine, dashed lines lead to "
+                f"{d.who}'s. A takes the reviewer's, K keeps mine (Shift: the person, "
                 "Ctrl+Shift: the frame)")
 
     def _region_strip_text(self) -> str:
@@ -1807,8 +1819,10 @@ class MainWindow(QMainWindow):
         self.run_long("Opening project", build, opened)
 
     def select_first_flag(self) -> None:
-        """Walk to the frame's first finding (for a first look): what W does."""
-        if self.frame_id is not None:
+        """Walk to the frame's first finding (for a first look): what W does. On a disputed
+        frame the first difference stays selected instead, as opening it leaves it: settling
+        comes first there."""
+        if self.frame_id is not None and self.dispute is None:
             self.session.step(1)
 
 

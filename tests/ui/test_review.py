@@ -85,6 +85,8 @@ def test_settle_a_disputed_frame_joint_by_joint(qtbot, dispute, ui_project):
     np.testing.assert_allclose(marks[(b, 9)], theirs[9])
     assert window.strips["dispute"].isVisible()
     assert "bea" in window.strips["dispute"].text.text()
+    # The strip's line is short (its buttons carry the keys); the whole sentence is its tooltip.
+    assert "A takes the reviewer's" in window.strips["dispute"].text.toolTip()
     assert canvas.selected_joint == (b, 9)
     assert "differs" in window.owners.selection.text()
 

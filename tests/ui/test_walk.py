@@ -25,6 +25,14 @@ def _store_finding(project, fid, pid):
     project.store_findings({fid: (labels_digest(project.labels(fid)), [finding.to_dict()])})
 
 
+def _hidden(fid, pid, tag, joint, name, key):
+    fix = Fix(f"mark person {tag}'s {name} occluded", (SetVisibility(fid, pid, joint, 1),),
+              FixPreview(occluded=((pid, joint),)))
+    return Finding(key, fid, "hidden", pid, tag, (joint,), (name,),
+                   f"person {tag}'s {name} is hidden", (), 1.0, 0.9, fix, (pid,),
+                   "0123456789abcdef")
+
+
 def _wrist(project, fid, pid):
     return next(p for p in project.people(fid) if p.id == pid).keypoints[9].copy()
 
@@ -57,3 +65,46 @@ def test_without_findings_the_walk_stops_at_triage_reasons(qtbot, window):
     assert stop.text.startswith("person 2: ")
     assert window.canvas.selected_joints == [(pid, 7), (pid, 9)]
     assert not window.actions_by_name["accept_fix"].isEnabled()
+
+
+def test_a_frames_visibility_fixes_are_one_stop_accepted_and_undone_together(
+        qtbot, window, ui_project):
+    """Two 'hidden' findings of one frame (synthetic, invented here) are walked as one stop:
+    W shows both joints, Y accepts both fixes as one undo step, one undo takes both back."""
+    fid = window.frame_id
+    b, c = person_id(window, 2), person_id(window, 3)
+    found = [_hidden(fid, b, 2, 9, "left wrist", "Fb"), _hidden(fid, c, 3, 10, "right wrist", "Fc")]
+    ui_project.store_findings({fid: (labels_digest(ui_project.labels(fid)),
+                                     [f.to_dict() for f in found])})
+    window.session.findings_changed()
+    qtbot.keyClick(window.canvas, Qt.Key.Key_W)
+    stop = window.canvas.walk_card.stop
+    assert stop.key == "G:hidden" and [f.id for f in stop.group] == ["Fb", "Fc"]
+    assert window.actions_by_name["accept_fix"].isEnabled()
+    groups = len({e.group_id for e in ui_project.history()})
+    qtbot.keyClick(window.canvas, Qt.Key.Key_Y)
+    assert _wrist(ui_project, fid, b)[2] == 1
+    assert next(p for p in ui_project.people(fid) if p.id == c).keypoints[10][2] == 1
+    assert len({e.group_id for e in ui_project.history()}) == groups + 1, "one undo step"
+    window.undo()
+    assert _wrist(ui_project, fid, b)[2] == 2
+    assert next(p for p in ui_project.people(fid) if p.id == c).keypoints[10][2] == 2
+
+
+def test_the_owner_list_goes_where_it_covers_fewest_connector_points():
+    """The owner list's place beside a joint: the first side that covers the fewest points of
+    the dispute connectors, never over the walk's card if another side is free (synthetic
+    rectangles and points, invented here; our own rule, no outside source)."""
+    from PySide6.QtCore import QPointF, QRectF
+
+    from app.ui.callouts import _beside, least_covering
+
+    bounds, joint = QRectF(0, 0, 800, 600), QRectF(392, 292, 16, 16)
+    options = _beside(joint, (200, 100), bounds)
+    assert least_covering(options, []) == options[0], "the usual place when nothing is in the way"
+    below_right = [QPointF(450, 340), QPointF(500, 360)]
+    chosen = least_covering(options, below_right)
+    assert not any(chosen.contains(q) for q in below_right)
+    card = QRectF(100, 320, 300, 200)
+    chosen = least_covering(options, below_right, avoid=card)
+    assert not chosen.intersects(card) and not any(chosen.contains(q) for q in below_right)
