@@ -49,18 +49,14 @@ from app.demo.camera import Camera
 from app.demo.maps import ErrorRuns, NetworkPerson, run_lengths
 from app.demo.maps import perceive as perceive_crowd
 from app.demo.poses import (
-    _HEAD_ABOVE_NECK,
-    _HIP_HALF,
-    _NECK_ABOVE_SHOULDER,
-    _SHOULDER_HALF,
     NUM_BODY_JOINTS,
-    POINTS,
     STATURE_FRACTIONS,
     BodyPose,
     P,
     _frame_facing,
     _rotation,
     _unit,
+    trunk_and_head,
     two_link,
 )
 from app.demo.render import Costume, Prop, Rendered, hall, render
@@ -295,26 +291,8 @@ def singer_pose(singer: Singer, t: float) -> tuple[BodyPose, np.ndarray | None]:
     head_frame = (_rotation(c_up, singer.look * (1 - abs(turn)) + 0.75 * turn)
                   @ _rotation(c_right, -0.06 + 0.04 * np.sin(2 * np.pi * t / 1.7))
                   @ chest_frame)
-    h_right, h_fwd, h_up = head_frame.T
 
-    pts = np.zeros((len(POINTS), 3))
-    pts[P["pelvis"]] = pelvis
-    pts[P["waist"]] = pelvis + up * (0.07 * h)
-    trunk = STATURE_FRACTIONS["shoulder_height"] + _NECK_ABOVE_SHOULDER - STATURE_FRACTIONS[
-        "hip_height"]
-    pts[P["chest"]] = pts[P["waist"]] + c_up * (0.12 * h)
-    neck = pts[P["waist"]] + c_up * ((trunk - 0.07) * h)
-    pts[P["neck"]] = neck
-    for side, sign in (("left", -1.0), ("right", 1.0)):
-        pts[P[f"{side}_shoulder"]] = (neck + c_right * (sign * _SHOULDER_HALF * h)
-                                      - c_up * (_NECK_ABOVE_SHOULDER * h))
-        pts[P[f"{side}_hip"]] = pelvis + right * (sign * _HIP_HALF * h)
-    head = neck + h_up * (_HEAD_ABOVE_NECK * h)
-    pts[P["head"]] = head
-    pts[P["nose"]] = head + h * (0.062 * h_fwd - 0.018 * h_up)
-    for side, sign in (("left", -1.0), ("right", 1.0)):
-        pts[P[f"{side}_eye"]] = head + h * (0.051 * h_fwd + 0.004 * h_up + sign * 0.019 * h_right)
-        pts[P[f"{side}_ear"]] = head + h * (-0.005 * h_fwd + sign * 0.046 * h_right)
+    pts = trunk_and_head(pelvis, pelvis_frame, chest_frame, head_frame, h)
 
     thigh = h * STATURE_FRACTIONS["thigh"]
     shank = h * STATURE_FRACTIONS["shank"]

@@ -390,26 +390,8 @@ def core_pose(body: DancerBody, ring: Ring, count: float) -> BodyPose:
         @ _rotation(c_right, -0.12)
         @ chest_frame
     )
-    h_right, h_fwd, h_up = head_frame.T
 
-    pts = np.zeros((len(POINTS), 3))
-    pts[P["pelvis"]] = pelvis
-    pts[P["waist"]] = pelvis + up * (0.07 * h)
-    trunk = STATURE_FRACTIONS["shoulder_height"] + _NECK_ABOVE_SHOULDER - STATURE_FRACTIONS[
-        "hip_height"]
-    pts[P["chest"]] = pts[P["waist"]] + c_up * (0.12 * h)
-    neck = pts[P["waist"]] + c_up * ((trunk - 0.07) * h)
-    pts[P["neck"]] = neck
-    for side, sign in (("left", -1.0), ("right", 1.0)):
-        pts[P[f"{side}_shoulder"]] = (neck + c_right * (sign * _SHOULDER_HALF * h)
-                                      - c_up * (_NECK_ABOVE_SHOULDER * h))
-        pts[P[f"{side}_hip"]] = pelvis + right * (sign * _HIP_HALF * h)
-    head = neck + h_up * (_HEAD_ABOVE_NECK * h)
-    pts[P["head"]] = head
-    pts[P["nose"]] = head + h * (0.062 * h_fwd - 0.018 * h_up)
-    for side, sign in (("left", -1.0), ("right", 1.0)):
-        pts[P[f"{side}_eye"]] = head + h * (0.051 * h_fwd + 0.004 * h_up + sign * 0.019 * h_right)
-        pts[P[f"{side}_ear"]] = head + h * (-0.005 * h_fwd + sign * HEAD_AXES[0] * h_right)
+    pts = trunk_and_head(pelvis, pelvis_frame, chest_frame, head_frame, h)
 
     for i, side in enumerate(("left", "right")):
         sign = -1.0 if side == "left" else 1.0
@@ -438,6 +420,35 @@ def core_pose(body: DancerBody, ring: Ring, count: float) -> BodyPose:
         hand = 0.8 * STATURE_FRACTIONS["hand"] * h
         pts[P[f"{side}_hand"]] = wrist + _unit(wrist - elbow) * hand
     return BodyPose(pts, pelvis_frame, chest_frame, head_frame, h, body.girth)
+
+
+def trunk_and_head(pelvis: np.ndarray, pelvis_frame: np.ndarray, chest_frame: np.ndarray,
+                   head_frame: np.ndarray, h: float) -> np.ndarray:
+    """The body's points ``(len(POINTS), 3)`` with the pelvis, trunk, shoulders, hips and head
+    placed from the three body frames (columns right, forward, up) and stature ``h``; legs and
+    arms are left at zero for the caller. Shared by the dance and the choir."""
+    right, _, up = pelvis_frame.T
+    c_right, _, c_up = chest_frame.T
+    h_right, h_fwd, h_up = head_frame.T
+    pts = np.zeros((len(POINTS), 3))
+    pts[P["pelvis"]] = pelvis
+    pts[P["waist"]] = pelvis + up * (0.07 * h)
+    trunk = STATURE_FRACTIONS["shoulder_height"] + _NECK_ABOVE_SHOULDER - STATURE_FRACTIONS[
+        "hip_height"]
+    pts[P["chest"]] = pts[P["waist"]] + c_up * (0.12 * h)
+    neck = pts[P["waist"]] + c_up * ((trunk - 0.07) * h)
+    pts[P["neck"]] = neck
+    for side, sign in (("left", -1.0), ("right", 1.0)):
+        pts[P[f"{side}_shoulder"]] = (neck + c_right * (sign * _SHOULDER_HALF * h)
+                                      - c_up * (_NECK_ABOVE_SHOULDER * h))
+        pts[P[f"{side}_hip"]] = pelvis + right * (sign * _HIP_HALF * h)
+    head = neck + h_up * (_HEAD_ABOVE_NECK * h)
+    pts[P["head"]] = head
+    pts[P["nose"]] = head + h * (0.062 * h_fwd - 0.018 * h_up)
+    for side, sign in (("left", -1.0), ("right", 1.0)):
+        pts[P[f"{side}_eye"]] = head + h * (0.051 * h_fwd + 0.004 * h_up + sign * 0.019 * h_right)
+        pts[P[f"{side}_ear"]] = head + h * (-0.005 * h_fwd + sign * HEAD_AXES[0] * h_right)
+    return pts
 
 
 def _place_arm(pose: BodyPose, side: str, target: np.ndarray, pole: np.ndarray,
