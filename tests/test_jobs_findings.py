@@ -13,38 +13,15 @@ import pytest
 
 from app.errors import EditRefused, NotFound
 from app.jobs_findings import accept_fixes, current_findings, dismiss, parse_kinds
-from app.model import EditGroup, MoveJoint, Person, ReassignJoint
+from app.model import EditGroup, MoveJoint, ReassignJoint
 from app.model.edits import DismissFinding
-from tests.analysis.synth import person
-
-
-def _person(pid: int, kp: np.ndarray, score: float) -> Person:
-    scores = np.where(kp[:, 2] > 0, score, np.nan)
-    return Person(pid, kp, scores, ("auto",) * 17)
+from tests.analysis.synth import store_duplicate_and_split
 
 
 @pytest.fixture
 def scene(project):
     """Frame 1: a body and its faint copy; frame 2: a body in two halves; frame 3: a body."""
-    rng = np.random.default_rng(5)
-    frames = project.frames()
-    body = person(rng, (110.0, 120.0), 120.0)
-    copy = body.copy()
-    copy[:, :2] += (6.0, 5.0)
-    copy[11:, 2] = 0
-    whole = person(rng, (220.0, 120.0), 120.0)
-    upper, lower = whole.copy(), whole.copy()
-    upper[11:, 2] = 0
-    lower[:11, 2] = 0
-    alone = person(rng, (160.0, 120.0), 120.0)
-    with project.bulk("SyntheticPeople", "synthetic people", "test") as b:
-        first = b.allocate_person_ids(5)
-        b.add_people([(frames[0].id, _person(first, body, 0.9)),
-                      (frames[0].id, _person(first + 1, copy, 0.5)),
-                      (frames[1].id, _person(first + 2, upper, 0.9)),
-                      (frames[1].id, _person(first + 3, lower, 0.9)),
-                      (frames[2].id, _person(first + 4, alone, 0.9))])
-    return project, frames, {"body": body, "whole": whole, "ids": list(range(first, first + 5))}
+    return project, project.frames(), store_duplicate_and_split(project)
 
 
 def _labels(project, frame_id):

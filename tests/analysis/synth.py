@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from app.model.labels import Person
 from app.model.skeleton import coco_body
 
 SKELETON = coco_body()
@@ -171,3 +172,33 @@ def walkers(
         people.append(frame[order])
         identities.append(order)
     return people, identities
+
+
+def store_duplicate_and_split(project, lone_frames: int | None = 1) -> dict:
+    """Store synthetic people that triage finds fault with, in the project's first frames.
+
+    Frame 1: a body and a faint copy of it (shifted 6, 5 px, legs unlabelled, score 0.5);
+    frame 2: a body labelled as two people, its upper and its lower half; the next
+    ``lone_frames`` frames (None: all the rest): one body each. Returns the first person id
+    (``"ids"``, in that order), the doubled ``"body"`` and the split ``"whole"``.
+    """
+    rng = np.random.default_rng(5)
+    frames = project.frames()
+    body = person(rng, (110.0, 120.0), 120.0)
+    copy = body.copy()
+    copy[:, :2] += (6.0, 5.0)
+    copy[11:, 2] = 0
+    whole = person(rng, (220.0, 120.0), 120.0)
+    upper, lower = whole.copy(), whole.copy()
+    upper[11:, 2] = 0
+    lower[:11, 2] = 0
+    rows = [(frames[0].id, body, 0.9), (frames[0].id, copy, 0.5),
+            (frames[1].id, upper, 0.9), (frames[1].id, lower, 0.9)]
+    lone = frames[2:] if lone_frames is None else frames[2:2 + lone_frames]
+    rows += [(f.id, person(rng, (160.0, 120.0), 120.0), 0.9) for f in lone]
+    with project.bulk("SyntheticPeople", "synthetic people", "test") as b:
+        first = b.allocate_person_ids(len(rows))
+        b.add_people([(fid, Person(first + n, kp, np.where(kp[:, 2] > 0, score, np.nan),
+                                   ("auto",) * K))
+                      for n, (fid, kp, score) in enumerate(rows)])
+    return {"ids": list(range(first, first + len(rows))), "body": body, "whole": whole}

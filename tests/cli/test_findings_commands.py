@@ -14,9 +14,8 @@ import pytest
 
 from app.cli import main
 from app.jobs import new_project
-from app.model import Person
 from app.store import Project
-from tests.analysis.synth import person
+from tests.analysis.synth import store_duplicate_and_split
 
 KEYS = {"id", "frame_id", "file_name", "kind", "person_id", "tag", "joints", "text",
         "confidence", "fix"}
@@ -24,25 +23,9 @@ KEYS = {"id", "frame_id", "file_name", "kind", "person_id", "tag", "joints", "te
 
 @pytest.fixture
 def proj(tmp_path, image_dir):
-    rng = np.random.default_rng(5)
     folder = tmp_path / "p"
     with new_project(folder, images=image_dir, author="ana") as project:
-        frames = project.frames()
-        body = person(rng, (110.0, 120.0), 120.0)
-        copy = body.copy()
-        copy[:, :2] += (6.0, 5.0)
-        copy[11:, 2] = 0
-        whole = person(rng, (220.0, 120.0), 120.0)
-        upper, lower = whole.copy(), whole.copy()
-        upper[11:, 2] = 0
-        lower[:11, 2] = 0
-        rows = [(frames[0].id, body, 0.9), (frames[0].id, copy, 0.5),
-                (frames[1].id, upper, 0.9), (frames[1].id, lower, 0.9)]
-        rows += [(f.id, person(rng, (160.0, 120.0), 120.0), 0.9) for f in frames[2:]]
-        with project.bulk("SyntheticPeople", "synthetic people", "test") as b:
-            first = b.allocate_person_ids(len(rows))
-            b.add_people([(fid, Person(first + n, kp, np.where(kp[:, 2] > 0, s, np.nan),
-                                       ("auto",) * 17)) for n, (fid, kp, s) in enumerate(rows)])
+        store_duplicate_and_split(project, lone_frames=None)
     return folder
 
 

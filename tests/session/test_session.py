@@ -11,40 +11,17 @@ rule (app/analysis/triage/fixes.py); one action, one undo step is the command pa
 
 from __future__ import annotations
 
-import numpy as np
 import pytest
 
 from app.jobs_analysis import run_triage
-from app.model.labels import Person
 from app.session import Session
-from tests.analysis.synth import person
-
-
-def _person(pid, kp, score):
-    return Person(pid, kp, np.where(kp[:, 2] > 0, score, np.nan), ("auto",) * 17)
+from tests.analysis.synth import store_duplicate_and_split
 
 
 @pytest.fixture
 def scene(project):
-    rng = np.random.default_rng(5)
-    frames = project.frames()
-    body = person(rng, (110.0, 120.0), 120.0)
-    copy = body.copy()
-    copy[:, :2] += (6.0, 5.0)
-    copy[11:, 2] = 0
-    whole = person(rng, (220.0, 120.0), 120.0)
-    upper, lower = whole.copy(), whole.copy()
-    upper[11:, 2] = 0
-    lower[:11, 2] = 0
-    with project.bulk("SyntheticPeople", "synthetic people", "test") as b:
-        first = b.allocate_person_ids(5)
-        b.add_people([(frames[0].id, _person(first, body, 0.9)),
-                      (frames[0].id, _person(first + 1, copy, 0.5)),
-                      (frames[1].id, _person(first + 2, upper, 0.9)),
-                      (frames[1].id, _person(first + 3, lower, 0.9)),
-                      (frames[2].id, _person(first + 4, person(rng, (160.0, 120.0), 120.0),
-                                             0.9))])
-    return project, [f.id for f in frames[:3]], first
+    made = store_duplicate_and_split(project)
+    return project, [f.id for f in project.frames()[:3]], made["ids"][0]
 
 
 def _session(project, order):
