@@ -31,6 +31,14 @@ class FindingsGateway:
             out.setdefault(int(f), []).append(json.loads(data))
         return out
 
+    def counts(self) -> dict[int, int]:
+        """How many findings each frame has stored (0 for a frame whose findings were
+        computed and found none; frames never computed are absent)."""
+        out = {int(r[0]): 0 for r in self._tx.rows("SELECT frame_id FROM findings_state")}
+        out.update({int(f): int(n) for f, n in self._tx.rows(
+            "SELECT frame_id, COUNT(*) FROM findings GROUP BY frame_id")})
+        return out
+
     def digests(self) -> dict[int, str]:
         return {int(r[0]): str(r[1]) for r in self._tx.rows(
             "SELECT frame_id, digest FROM findings_state")}

@@ -465,6 +465,12 @@ class Project:
         with self._read() as tx:
             return tx.findings.of_frames(frame_id)
 
+    def finding_counts(self) -> dict[int, int]:
+        """Per frame, how many findings are stored, without reading them (the Worklist
+        counts them on every triage change); frames never computed are absent."""
+        with self._read() as tx:
+            return tx.findings.counts()
+
     def findings_digests(self) -> dict[int, str]:
         """Per frame, the digest of the labels its stored findings were computed from."""
         with self._read() as tx:

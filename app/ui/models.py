@@ -165,7 +165,7 @@ class WorklistModel(_TableModel):
             from app.review.review import decisions
 
             decided = {fid: d.decision for fid, d in decisions(self._project).items()}
-        found = {fid: len(items) for fid, items in self._project.findings().items()}
+        found = self._project.finding_counts()
         rows = []
         for f in frames:
             score, reasons = triage.get(f.id, (None, []))

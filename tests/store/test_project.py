@@ -377,6 +377,18 @@ def test_a_schema_4_project_gains_findings_and_dismissals(tmp_path, image_dir):
     conn.close()
 
 
+def test_finding_counts_agree_with_the_stored_findings(project):
+    """The Worklist's per-frame count, read without the findings themselves, is what reading
+    them gives: a frame computed with none counts 0, a frame never computed is absent."""
+    project.store_findings({1: ("d1", [{"id": "F1", "kind": "split"},
+                                       {"id": "F2", "kind": "hidden"}]),
+                            2: ("d2", [])})
+    assert project.finding_counts() == {1: 2, 2: 0}
+    assert project.finding_counts() == {f: len(v) for f, v in project.findings().items()}
+    project.store_findings({1: ("d3", [{"id": "F3", "kind": "split"}])})
+    assert project.finding_counts() == {1: 1, 2: 0}
+
+
 def test_ignore_regions_are_undoable_edits_and_export_as_crowd(project, tmp_path):
     """COCO keypoints format: an ignore region leaves as an ``iscrowd: 1`` annotation."""
     from app.jobs import export_coco
