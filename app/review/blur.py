@@ -42,8 +42,7 @@ from app.wording import count
 
 __all__ = ["MODES", "SOURCES", "BlurPlan", "Region", "blur_frame", "blur_regions",
            "face_ellipses", "head_ellipses", "label_head_ellipses", "local_stature",
-           "map_head_ellipses",
-           "place_regions", "region_mask"]
+           "map_head_ellipses", "place_regions", "region_mask", "unexplained_peaks"]
 
 #: What a blurred image hides: heads, or whole people.
 MODES = ("heads", "people")
@@ -85,6 +84,9 @@ HEAD_SUM = 0.2
 #: A peak of the face sum is owned by a person with any face joint within this share of
 #: their stature (the sum peaks between a head's landmarks).
 OWNED_SUM = 0.08
+#: Least and largest width (standard deviation, in cells) of a bump taken away as explained
+#: by a label (see :func:`unexplained_peaks`).
+BUMP_CELLS = (0.5, 4.0)
 #: Stature assumed, as a share of the image height, when a frame has no labelled person.
 DEFAULT_STATURE = 0.5
 #: Widest plausible face box, as a fraction of the local stature: three heads' widths.
@@ -500,6 +502,24 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
     xy = np.array([p[:2] for _, p in found])
     score = np.array([p[2] for _, p in found])
     centres, statures = _people_scale(people, skeleton, image_size)
+    owned = _owned(kinds, xy, people, statures, face)
+    xy, score = xy[~owned], score[~owned]
+    if not len(xy):
+        return np.zeros((0, 4))
+    scale = local_stature(xy, centres, statures, image_size)
+    floor = _floor(image_size)
+    out = []
+    for members in _heads(xy, score, SAME_HEAD * scale):
+        out.append(_group_ellipse(xy[members], float(np.median(scale[members])), floor))
+    return np.array(out, dtype=np.float64).reshape(-1, 4)
+
+
+def _owned(kinds: np.ndarray, xy: np.ndarray, people: Sequence[np.ndarray],
+           statures: np.ndarray, face: list[int]) -> np.ndarray:
+    """``(n,)`` bool: which peaks a labelled person owns (see :func:`map_head_ellipses`):
+    a peak of joint ``j`` (``kinds >= 0``) when the person has ``j`` labelled within
+    :data:`OWNED` of their stature, a peak of the face sum (``kinds == -1``) when any labelled
+    face joint lies within :data:`OWNED_SUM`."""
     owned = np.zeros(len(xy), dtype=bool)
     for person, stature in zip(people, statures):
         kp = np.asarray(person, dtype=np.float64)
@@ -513,15 +533,95 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
                     (np.hypot(*(face_xy - xy[i]).T) <= OWNED_SUM * stature).any())
             elif on[j] and np.hypot(*(kp[j, :2] - xy[i])) <= OWNED * stature:
                 owned[i] = True
-    xy, score = xy[~owned], score[~owned]
-    if not len(xy):
-        return np.zeros((0, 4))
-    scale = local_stature(xy, centres, statures, image_size)
-    floor = _floor(image_size)
-    out = []
-    for members in _heads(xy, score, SAME_HEAD * scale):
-        out.append(_group_ellipse(xy[members], float(np.median(scale[members])), floor))
-    return np.array(out, dtype=np.float64).reshape(-1, 4)
+    return owned
+
+
+def _peak_width(grid: np.ndarray, r: int, c: int) -> float:
+    """The standard deviation in cells of the bump at cell ``(r, c)``, from the second
+    difference of the map's logarithm along each axis (a Gaussian's logarithm is a parabola
+    whose second difference is ``-1 / sigma^2``); the narrower axis, as the wider is more
+    often widened by a neighbour's bump; 1 cell where neither axis gives one, and kept
+    within :data:`BUMP_CELLS`."""
+    height, width = grid.shape
+    found = []
+    for dr, dc in ((0, 1), (1, 0)):
+        if r >= dr and r + dr < height and c >= dc and c + dc < width:
+            values = np.array([grid[r - dr, c - dc], grid[r, c], grid[r + dr, c + dc]])
+            if (values > 0).all():
+                d2 = float(np.log(values[0]) - 2 * np.log(values[1]) + np.log(values[2]))
+                if d2 < 0:
+                    found.append(float(np.sqrt(-1.0 / d2)))
+    return float(np.clip(min(found, default=1.0), *BUMP_CELLS))
+
+
+def unexplained_peaks(confidence_maps: np.ndarray, stride: int, peaks: Sequence[np.ndarray],
+                      people: Sequence[np.ndarray], skeleton: Skeleton,
+                      image_size: tuple[int, int]) -> tuple[list[np.ndarray], np.ndarray]:
+    """Head evidence that the labelled people's peaks hide: peaks of the face maps once the
+    bumps the labels explain are taken away.
+
+    Parameters
+    ----------
+    confidence_maps
+        ``(K, rows, cols)`` the frame's maps (the grid of :mod:`app.analysis.targets`).
+    stride
+        Image pixels per cell.
+    peaks
+        Per joint, ``(n_j, 3)`` the maps' own peaks (:func:`app.analysis.association.find_peaks`
+        above :data:`PEAK_THRESHOLD`).
+    people
+        The labelled people, ``(K, 3)`` ``x, y, v`` each.
+    skeleton
+        The joint layout.
+    image_size
+        ``(width, height)``.
+
+    Returns
+    -------
+    tuple of (list of numpy.ndarray, numpy.ndarray)
+        Per joint, the peaks above :data:`PEAK_THRESHOLD` of the face channels' residual that
+        are not already among ``peaks`` (more than a cell from every one of them; empty for
+        the other joints), and the peaks above :data:`HEAD_SUM` of the sum of the residual
+        face channels, in image pixels, ``x, y, score``.
+
+    Notes
+    -----
+    A faint head beside a labelled one is often no peak of its own: its bump lies on the
+    slope of the neighbour's, so non-maximum suppression (which keeps one peak per hill)
+    keeps only the neighbour's. Each peak a labelled person owns (:func:`map_head_ellipses`)
+    is explained by that person: a Gaussian of the peak's height, centred on it, with the
+    width the map shows there (:func:`_peak_width`), is taken away from its channel (a
+    network's confidence map is trained towards such Gaussians, Cao et al. CVPR 2017,
+    Sec. 2.2), and what remains is searched again. Explaining away a peak by the model of
+    its own bump, rather than a disc around the labelled joint, keeps the evidence a few
+    cells off.
+    """
+    from app.analysis.association import find_peaks
+
+    face = _indices(skeleton, FACE_JOINTS)
+    maps = np.asarray(confidence_maps, dtype=np.float64)
+    rows, cols = maps.shape[1:]
+    _, statures = _people_scale(people, skeleton, image_size)
+    rr, cc = np.mgrid[0:rows, 0:cols]
+    residual = maps[face].copy()
+    for n, j in enumerate(face):
+        found = np.asarray(peaks[j]).reshape(-1, 3)
+        owned = _owned(np.full(len(found), j), found[:, :2], people, statures, face)
+        for x, y, height in found[owned]:
+            u, v = (x - (stride - 1) / 2) / stride, (y - (stride - 1) / 2) / stride
+            r, c = int(np.clip(round(v), 0, rows - 1)), int(np.clip(round(u), 0, cols - 1))
+            sigma = _peak_width(maps[j], r, c)
+            residual[n] -= height * np.exp(-((cc - u) ** 2 + (rr - v) ** 2) / (2 * sigma ** 2))
+    np.clip(residual, 0.0, None, out=residual)
+    extra = [np.zeros((0, 3)) for _ in range(len(peaks))]
+    for n, found in enumerate(find_peaks(residual, PEAK_THRESHOLD, stride)):
+        known = np.asarray(peaks[face[n]]).reshape(-1, 3)
+        if len(known) and len(found):
+            d = np.hypot(found[:, None, 0] - known[None, :, 0],
+                         found[:, None, 1] - known[None, :, 1])
+            found = found[d.min(axis=1) > stride]
+        extra[face[n]] = found
+    return extra, find_peaks(residual.sum(axis=0)[None], HEAD_SUM, stride)[0]
 
 
 def _people_scale(people: Sequence[np.ndarray], skeleton: Skeleton,
@@ -921,6 +1021,10 @@ def blur_frame(image: np.ndarray, people: Sequence[np.ndarray], skeleton: Skelet
         face = _indices(skeleton, FACE_JOINTS)
         head_peaks = find_peaks(maps.confidence_maps[face].sum(axis=0)[None], HEAD_SUM,
                                 maps.stride)[0]
+        hidden, hidden_sum = unexplained_peaks(maps.confidence_maps, maps.stride, peaks,
+                                               people, skeleton, (w, h))
+        peaks = [np.concatenate([p, q]) for p, q in zip(peaks, hidden)]
+        head_peaks = np.concatenate([head_peaks, hidden_sum])
         if mode == "people":
             map_people = group_people(maps.confidence_maps, maps.pafs, skeleton.limb_array,
                                       stride=maps.stride)

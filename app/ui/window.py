@@ -320,13 +320,14 @@ class MainWindow(QMainWindow):
             "decide_needs_change": lambda: self.decide("query"),
             "decide_signed_off": lambda: self.decide("ready"),
             "return_packet": self._return_packet,
+            "show_blurred": self._toggle_blurred,
             "shortcuts": self.show_shortcuts,
             "quit": self.close,
         }
         for n in range(1, 10):
             handlers[f"give_{n}"] = lambda n=n: self._type_digit(str(n))
         checkable = {"focus_mode", "show_unlabeled", "show_tags", "region_mode", "show_theirs",
-                     "decide_agree", "decide_needs_change", "decide_signed_off"}
+                     "show_blurred", "decide_agree", "decide_needs_change", "decide_signed_off"}
         for key in KEYS:
             if not key.name:
                 continue
@@ -342,6 +343,7 @@ class MainWindow(QMainWindow):
             self.addAction(action)
             self.actions_by_name[key.name] = action
         self.actions_by_name["show_tags"].setChecked(True)
+        self.actions_by_name["show_blurred"].setChecked(True)
         for name, short in (("new_person", "New person (N)"), ("split_person", "Split off (X)"),
                             ("mark_visible", "Visible (V)"), ("mark_occluded", "Occluded (O)"),
                             ("mark_unlabeled", "Unlabelled (U)"), ("swap_sides", "Swap L/R (S)"),
@@ -363,7 +365,7 @@ class MainWindow(QMainWindow):
         a = self.actions_by_name
         bar = self.menuBar()
         review = (["decide_agree", "decide_needs_change", "decide_signed_off", None,
-                   "return_packet"] if self.review_mode else
+                   "show_blurred", None, "return_packet"] if self.review_mode else
                   ["show_theirs", "next_difference", "prev_difference", None,
                    "take_theirs_joint", "take_theirs_person", "take_theirs_frame", None,
                    "keep_ours_joint", "keep_ours_person", "keep_ours_frame", None,
@@ -598,6 +600,7 @@ class MainWindow(QMainWindow):
             self.canvas.set_dispute(dispute.ours_marks, list(dispute.theirs),
                                     dispute.theirs_marks, dispute.who)
         self.actions_by_name["show_theirs"].setChecked(self.canvas.showing_theirs)
+        self.canvas.blurred = self.session.read_blurred(frame.id) if self.review_mode else None
         self._update_strips()
 
     def _image_ready(self, frame_id: int) -> None:
@@ -1310,6 +1313,14 @@ class MainWindow(QMainWindow):
         self.canvas.show_tags = self.actions_by_name["show_tags"].isChecked()
         self.canvas.update()
 
+    def _toggle_blurred(self) -> None:
+        self.canvas.show_blurred = self.actions_by_name["show_blurred"].isChecked()
+        blurred = self.canvas.blurred
+        if self.canvas.show_blurred:
+            self._message(blurred.line() if blurred is not None else
+                          "the packet's image of this frame was not blurred")
+        self.canvas.update()
+
     def _focus_note(self) -> None:
         self.docks["notes"].show()
         self.docks["notes"].raise_()
@@ -1408,6 +1419,7 @@ class MainWindow(QMainWindow):
                                and self.frame_id is not None)
             a[name].setChecked(decided == value)
         a["return_packet"].setEnabled(self.review_mode)
+        a["show_blurred"].setEnabled(self.review_mode)
 
     def _decision(self) -> str | None:
         """The reviewer's decision on the frame shown (review mode), else None."""
