@@ -40,7 +40,7 @@ from app.analysis.anthropometry import person_scale
 from app.model.skeleton import Skeleton
 from app.wording import count
 
-__all__ = ["MODES", "SOURCES", "BlurPlan", "Region", "blur_frame", "blur_regions",
+__all__ = ["MODES", "SOURCES", "BlurPlan", "Region", "Unexplained", "blur_frame", "blur_regions",
            "face_ellipses", "head_ellipses", "label_head_ellipses", "local_stature",
            "map_head_ellipses", "place_regions", "region_mask", "unexplained_peaks"]
 
@@ -84,6 +84,10 @@ HEAD_SUM = 0.2
 #: A peak of the face sum is owned by a person with any face joint within this share of
 #: their stature (the sum peaks between a head's landmarks).
 OWNED_SUM = 0.08
+#: A head found in the maps reaches over the cells near its strongest evidence where the
+#: residual face sum is at least this share of its value there (half the maximum: the usual
+#: width of a bump, common practice, no source; see :meth:`Unexplained.extent`).
+EXTENT_LEVEL = 0.5
 #: Least and largest width (standard deviation, in cells) of a bump taken away as explained
 #: by a label (see :func:`unexplained_peaks`).
 BUMP_CELLS = (0.5, 4.0)
@@ -299,11 +303,18 @@ def label_head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
     return out, extra
 
 
-def _group_ellipse(xy: np.ndarray, stature: float, floor: float) -> np.ndarray:
-    """The ellipse of one head from its landmarks (see :func:`head_ellipses`)."""
+def _group_ellipse(xy: np.ndarray, stature: float, floor: float,
+                   extent: np.ndarray | None = None) -> np.ndarray:
+    """The ellipse of one head from its landmarks (see :func:`head_ellipses`); ``extent``:
+    more points the head reaches (:meth:`Unexplained.extent`), which move its centre and
+    widen it but, being no landmarks, do not raise its scale."""
     if len(xy) >= 2:
         stature = max(stature, min(float(np.ptp(xy, axis=0).max()) / 0.1, 1.5 * stature))
-    centre = xy.mean(axis=0) - [0.0, FACE_LIFT * stature]
+    if extent is not None and len(extent):
+        xy = np.concatenate([xy, extent])
+        centre = (xy.min(axis=0) + xy.max(axis=0)) / 2 - [0.0, FACE_LIFT * stature]
+    else:
+        centre = xy.mean(axis=0) - [0.0, FACE_LIFT * stature]
     reach = np.abs(xy - centre).max(axis=0) + REACH_MARGIN * stature
     return np.array([*centre, max(floor, HALF_WIDTH * stature, reach[0]),
                      max(floor, HALF_HEIGHT * stature, reach[1])])
@@ -448,7 +459,8 @@ def local_stature(points: np.ndarray, centres: np.ndarray, statures: np.ndarray,
 
 def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
                       skeleton: Skeleton, image_size: tuple[int, int],
-                      head_peaks: np.ndarray | None = None) -> np.ndarray:
+                      head_peaks: np.ndarray | None = None,
+                      unexplained: Unexplained | None = None) -> np.ndarray:
     """Heads the network sees that no labelled person owns, as ellipses.
 
     Parameters
@@ -465,6 +477,9 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
     head_peaks
         ``(n, 3)`` ``x, y, score``: peaks of the sum of the face joints' confidence maps
         above :data:`HEAD_SUM`, or None.
+    unexplained
+        What the labels leave unexplained in the maps (:func:`unexplained_peaks`), whose
+        residual face sum sets each head's extent; None: the peaks alone set it.
 
     Returns
     -------
@@ -482,7 +497,10 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
     along a chain of peaks. Each head gets the ellipse the labels
     would give it (:func:`head_ellipses`: centre the peaks' mean lifted by ``0.02 H``,
     half-axes ``0.085 H`` and ``0.115 H``, widened to hold every peak with a margin of
-    ``0.05 H``).
+    ``0.05 H``). With ``unexplained``, the head's points also include the edges of its
+    extent in the residual face sum (:meth:`Unexplained.extent`, within ``0.12 H`` of its
+    strongest peak): the landmarks of a faint head, each too weak to be a peak, still show
+    where the head reaches (a face seen side on spans from the nose to the far ear).
 
     Examples
     --------
@@ -510,7 +528,11 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
     floor = _floor(image_size)
     out = []
     for members in _heads(xy, score, SAME_HEAD * scale):
-        out.append(_group_ellipse(xy[members], float(np.median(scale[members])), floor))
+        seed = members[0]
+        extent = (unexplained.extent(xy[seed], SAME_HEAD * scale[seed])
+                  if unexplained is not None else None)
+        out.append(_group_ellipse(xy[members], float(np.median(scale[members])), floor,
+                                  extent))
     return np.array(out, dtype=np.float64).reshape(-1, 4)
 
 
@@ -556,7 +578,7 @@ def _peak_width(grid: np.ndarray, r: int, c: int) -> float:
 
 def unexplained_peaks(confidence_maps: np.ndarray, stride: int, peaks: Sequence[np.ndarray],
                       people: Sequence[np.ndarray], skeleton: Skeleton,
-                      image_size: tuple[int, int]) -> tuple[list[np.ndarray], np.ndarray]:
+                      image_size: tuple[int, int]) -> Unexplained:
     """Head evidence that the labelled people's peaks hide: peaks of the face maps once the
     bumps the labels explain are taken away.
 
@@ -578,11 +600,13 @@ def unexplained_peaks(confidence_maps: np.ndarray, stride: int, peaks: Sequence[
 
     Returns
     -------
-    tuple of (list of numpy.ndarray, numpy.ndarray)
-        Per joint, the peaks above :data:`PEAK_THRESHOLD` of the face channels' residual that
-        are not already among ``peaks`` (more than a cell from every one of them; empty for
-        the other joints), and the peaks above :data:`HEAD_SUM` of the sum of the residual
-        face channels, in image pixels, ``x, y, score``.
+    Unexplained
+        ``peaks``: per joint, the peaks above :data:`PEAK_THRESHOLD` of the face channels'
+        residual that are not already among ``peaks`` (more than a cell from every one of
+        them; empty for the other joints); ``head_peaks``: the peaks above :data:`HEAD_SUM` of
+        the sum of the residual face channels, in image pixels, ``x, y, score``; ``face_sum``
+        that sum itself (what sets the extent of a head found in the maps, see
+        :func:`map_head_ellipses`).
 
     Notes
     -----
@@ -621,7 +645,54 @@ def unexplained_peaks(confidence_maps: np.ndarray, stride: int, peaks: Sequence[
                          found[:, None, 1] - known[None, :, 1])
             found = found[d.min(axis=1) > stride]
         extra[face[n]] = found
-    return extra, find_peaks(residual.sum(axis=0)[None], HEAD_SUM, stride)[0]
+    face_sum = residual.sum(axis=0)
+    return Unexplained(extra, find_peaks(face_sum[None], HEAD_SUM, stride)[0], face_sum,
+                       stride)
+
+
+@dataclass(frozen=True)
+class Unexplained:
+    """What :func:`unexplained_peaks` finds: extra peaks per joint, peaks of the residual
+    face sum, and that sum on the maps' grid of ``stride`` pixels."""
+
+    peaks: list[np.ndarray]
+    head_peaks: np.ndarray
+    face_sum: np.ndarray
+    stride: int
+
+    def extent(self, xy: np.ndarray, reach: float) -> np.ndarray:
+        """The edges of the head whose strongest evidence lies at ``xy``: the four middles of
+        the sides of the box around the cells within ``reach`` pixels of ``xy`` where the
+        residual face sum is at least half its value there (:data:`EXTENT_LEVEL`); ``(0, 2)``
+        when that cell holds nothing. The cells need not touch: a faint head's landmarks are
+        faint bumps with dips of noise between them.
+
+        Examples
+        --------
+        >>> grid = np.zeros((5, 8)); grid[2, 2:6] = [0.4, 0.3, 0.25, 0.1]
+        >>> Unexplained([], np.zeros((0, 3)), grid, 4).extent(np.array([9.5, 9.5]), 40)
+        array([[ 9.5,  9.5],
+               [17.5,  9.5],
+               [13.5,  9.5],
+               [13.5,  9.5]])
+        """
+        s = self.stride
+        rows, cols = self.face_sum.shape
+        r = int(np.clip(round((xy[1] - (s - 1) / 2) / s), 0, rows - 1))
+        c = int(np.clip(round((xy[0] - (s - 1) / 2) / s), 0, cols - 1))
+        level = EXTENT_LEVEL * float(self.face_sum[r, c])
+        if level <= 0:
+            return np.zeros((0, 2))
+        k = int(np.ceil(reach / s))
+        r0, c0 = max(0, r - k), max(0, c - k)
+        window = self.face_sum[r0:r + k + 1, c0:c + k + 1]
+        rr, cc = np.mgrid[r0:r0 + window.shape[0], c0:c0 + window.shape[1]]
+        px, py = cc * s + (s - 1) / 2, rr * s + (s - 1) / 2
+        mine = (window >= level) & (np.hypot(px - xy[0], py - xy[1]) <= reach)
+        mine[r - r0, c - c0] = True
+        x0, x1, y0, y1 = px[mine].min(), px[mine].max(), py[mine].min(), py[mine].max()
+        cx, cy = (x0 + x1) / 2, (y0 + y1) / 2
+        return np.array([[x0, cy], [x1, cy], [cx, y0], [cx, y1]])
 
 
 def _people_scale(people: Sequence[np.ndarray], skeleton: Skeleton,
@@ -760,6 +831,7 @@ def place_regions(people: Sequence[np.ndarray], skeleton: Skeleton,
                   image_size: tuple[int, int], *, ids: Sequence[int] | None = None,
                   peaks: Sequence[np.ndarray] | None = None,
                   head_peaks: np.ndarray | None = None,
+                  unexplained: Unexplained | None = None,
                   map_people: Sequence[np.ndarray] | None = None,
                   faces: np.ndarray | None = None, mode: str = "heads") -> BlurPlan:
     """Where to blur a frame, from every source of evidence.
@@ -779,6 +851,9 @@ def place_regions(people: Sequence[np.ndarray], skeleton: Skeleton,
         (:func:`app.analysis.association.find_peaks`); None when the frame has no maps.
     head_peaks
         Peaks of the sum of the face joints' maps (see :func:`map_head_ellipses`).
+    unexplained
+        What the labels leave unexplained in the maps (:func:`unexplained_peaks`); sets the
+        extent of the heads the maps find.
     map_people
         The people the maps group into (:func:`app.analysis.association.group_people`),
         ``(K, 3)`` ``x, y, score`` with NaN for a missing joint; read in ``people`` mode.
@@ -837,7 +912,8 @@ def place_regions(people: Sequence[np.ndarray], skeleton: Skeleton,
     for n, e in extra_heads:
         pieces.append(_Piece(e, None, min(e[2], e[3]) / 2, "labels", ids[n]))
     if peaks is not None:
-        for e in map_head_ellipses(peaks, people, skeleton, image_size, head_peaks):
+        for e in map_head_ellipses(peaks, people, skeleton, image_size, head_peaks,
+                                   unexplained):
             pieces.append(_Piece(e, None, min(e[2], e[3]) / 2, "maps", None))
         if mode == "people":
             for kp in map_people or ():
@@ -1015,21 +1091,22 @@ def blur_frame(image: np.ndarray, people: Sequence[np.ndarray], skeleton: Skelet
     from app.analysis.association import find_peaks, group_people
 
     h, w = image.shape[:2]
-    peaks = head_peaks = map_people = faces = None
+    peaks = head_peaks = map_people = faces = unexplained = None
     if maps is not None:
         peaks = find_peaks(maps.confidence_maps, PEAK_THRESHOLD, maps.stride)
         face = _indices(skeleton, FACE_JOINTS)
         head_peaks = find_peaks(maps.confidence_maps[face].sum(axis=0)[None], HEAD_SUM,
                                 maps.stride)[0]
-        hidden, hidden_sum = unexplained_peaks(maps.confidence_maps, maps.stride, peaks,
-                                               people, skeleton, (w, h))
-        peaks = [np.concatenate([p, q]) for p, q in zip(peaks, hidden)]
-        head_peaks = np.concatenate([head_peaks, hidden_sum])
+        unexplained = unexplained_peaks(maps.confidence_maps, maps.stride, peaks, people,
+                                        skeleton, (w, h))
+        peaks = [np.concatenate([p, q]) for p, q in zip(peaks, unexplained.peaks)]
+        head_peaks = np.concatenate([head_peaks, unexplained.head_peaks])
         if mode == "people":
             map_people = group_people(maps.confidence_maps, maps.pafs, skeleton.limb_array,
                                       stride=maps.stride)
     if detector is not None:
         faces = detector(image, max(12, int(0.02 * min(w, h))))
     plan = place_regions(people, skeleton, (w, h), ids=ids, peaks=peaks,
-                         head_peaks=head_peaks, map_people=map_people, faces=faces, mode=mode)
+                         head_peaks=head_peaks, unexplained=unexplained,
+                         map_people=map_people, faces=faces, mode=mode)
     return blur_regions(image, plan.regions), plan
