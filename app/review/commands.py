@@ -81,7 +81,8 @@ def register(sub: Any, command: Command) -> None:
 
     q = action("show", cmd_show, "check a packet and say what it holds (for blurred images: "
                                  "regions by what placed them, the largest share of a frame "
-                                 "blurred, frames sent at risk)")
+                                 "blurred, frames sent at risk, and per frame its regions "
+                                 "and share)")
     q.add_argument("packet", metavar="FILE.zip")
     q.add_argument("--json", action="store_true")
 
@@ -190,6 +191,11 @@ def cmd_show(args: argparse.Namespace) -> int:
         info["blur_risks"] = [f"frame {f['id']}: {f['blur']['risk']}"
                               for f in packet.manifest["frames"]
                               if f.get("blur") and f["blur"]["risk"]]
+        # Where each frame was blurred, as the reviewer's window outlines it.
+        from app.session.blurred import BlurredFrame
+
+        info["blurred_frames"] = {str(f["id"]): BlurredFrame.from_record(f["blur"]).summary()
+                                  for f in packet.manifest["frames"] if f.get("blur")}
     if packet.returned is not None:
         info["returned_by"] = packet.returned.reviewer
         info["decisions"] = {str(d.frame_id): d.decision
@@ -198,6 +204,10 @@ def cmd_show(args: argparse.Namespace) -> int:
         print_json(info)
     else:
         for key, value in info.items():
+            if key == "blurred_frames":
+                for fid, line in value.items():
+                    print(f"{'frame ' + fid:>12}: {shown(line)}")
+                continue
             print(f"{key:>12}: {shown(value)}")
     return 0
 

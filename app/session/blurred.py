@@ -132,12 +132,16 @@ class BlurredFrame:
         return {s: sum(s in r.sources for r in self.regions) for s in SOURCES}
 
     def line(self) -> str:
-        """One line for the status bar or a summary: how many regions, placed by what, and
-        how much of the image."""
+        """One line for the status bar: ``blurred in the packet:`` and :meth:`summary`."""
+        return f"blurred in the packet: {self.summary()}"
+
+    def summary(self) -> str:
+        """How many regions, placed by what, and how much of the image (``packet show``
+        prints it per frame)."""
         placed = [(s, n) for s, n in self.placed_by().items() if n]
         by = ", ".join(f"{n} {'placed by ' if i == 0 else 'by '}{SOURCE_WORDS[s]}"
                        for i, (s, n) in enumerate(placed))
-        text = f"blurred in the packet: {count(len(self.regions), 'region')}"
+        text = count(len(self.regions), "region")
         if by:
             text += f" ({by})"
         text += f", {100 * self.share:.1f} % of the image"
