@@ -84,10 +84,12 @@ HEAD_SUM = 0.2
 #: A peak of the face sum is owned by a person with any face joint within this share of
 #: their stature (the sum peaks between a head's landmarks).
 OWNED_SUM = 0.08
-#: A head found in the maps reaches over the cells near its strongest evidence where the
-#: residual face sum is at least this share of its value there (half the maximum: the usual
-#: width of a bump, common practice, no source; see :meth:`Unexplained.extent`).
-EXTENT_LEVEL = 0.5
+#: Least value of a faint landmark: a local maximum of a face channel, once the labels' bumps
+#: are taken away, that widens a head found by the face sum alone but never makes one (see
+#: :meth:`Unexplained.extent`). Chosen on the misses of demo seeds 43 and 46: 0.05 let what
+#: is left of labelled heads' bumps widen heads until 19 % of a frame was blurred; fresh
+#: seeds measure it (app/demo/blurcheck.py).
+FAINT = 0.07
 #: Least and largest width (standard deviation, in cells) of a bump taken away as explained
 #: by a label (see :func:`unexplained_peaks`).
 BUMP_CELLS = (0.5, 4.0)
@@ -306,18 +308,18 @@ def label_head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
 def _group_ellipse(xy: np.ndarray, stature: float, floor: float,
                    extent: np.ndarray | None = None) -> np.ndarray:
     """The ellipse of one head from its landmarks (see :func:`head_ellipses`); ``extent``:
-    more points the head reaches (:meth:`Unexplained.extent`), which move its centre and
-    widen it but, being no landmarks, do not raise its scale."""
+    faint landmarks (:meth:`Unexplained.extent`), which widen each half-axis to reach them
+    with the margin but neither move the centre nor raise the scale."""
     if len(xy) >= 2:
         stature = max(stature, min(float(np.ptp(xy, axis=0).max()) / 0.1, 1.5 * stature))
-    if extent is not None and len(extent):
-        xy = np.concatenate([xy, extent])
-        centre = (xy.min(axis=0) + xy.max(axis=0)) / 2 - [0.0, FACE_LIFT * stature]
-    else:
-        centre = xy.mean(axis=0) - [0.0, FACE_LIFT * stature]
-    reach = np.abs(xy - centre).max(axis=0) + REACH_MARGIN * stature
-    return np.array([*centre, max(floor, HALF_WIDTH * stature, reach[0]),
+    centre = xy.mean(axis=0) - [0.0, FACE_LIFT * stature]
+    margin = REACH_MARGIN * stature
+    reach = np.abs(xy - centre).max(axis=0) + margin
+    axes = np.array([max(floor, HALF_WIDTH * stature, reach[0]),
                      max(floor, HALF_HEIGHT * stature, reach[1])])
+    if extent is not None and len(extent):
+        axes = np.maximum(axes, np.abs(extent - centre).max(axis=0) + margin)
+    return np.array([*centre, *axes])
 
 
 def _statures(people: Sequence[np.ndarray], skeleton: Skeleton) -> np.ndarray:
@@ -479,7 +481,7 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
         above :data:`HEAD_SUM`, or None.
     unexplained
         What the labels leave unexplained in the maps (:func:`unexplained_peaks`), whose
-        residual face sum sets each head's extent; None: the peaks alone set it.
+        faint landmarks widen each head; None: the peaks alone set it.
 
     Returns
     -------
@@ -497,10 +499,12 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
     along a chain of peaks. Each head gets the ellipse the labels
     would give it (:func:`head_ellipses`: centre the peaks' mean lifted by ``0.02 H``,
     half-axes ``0.085 H`` and ``0.115 H``, widened to hold every peak with a margin of
-    ``0.05 H``). With ``unexplained``, the head's points also include the edges of its
-    extent in the residual face sum (:meth:`Unexplained.extent`, within ``0.12 H`` of its
-    strongest peak): the landmarks of a faint head, each too weak to be a peak, still show
-    where the head reaches (a face seen side on spans from the nose to the far ear).
+    ``0.05 H``). With ``unexplained``, the ellipse also holds the faint landmarks within
+    ``0.12 H`` of the head's strongest peak (:meth:`Unexplained.extent`): the landmarks of a
+    faint head, each too weak to be a peak, still show where the head reaches (a face seen
+    side on spans from the nose to the far ear). Only a head found by the face sum alone is
+    widened so (none of its landmarks a peak of its own channel): a head whose landmarks show
+    on their own is placed by them.
 
     Examples
     --------
@@ -521,7 +525,7 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
     score = np.array([p[2] for _, p in found])
     centres, statures = _people_scale(people, skeleton, image_size)
     owned = _owned(kinds, xy, people, statures, face)
-    xy, score = xy[~owned], score[~owned]
+    xy, score, kinds = xy[~owned], score[~owned], kinds[~owned]
     if not len(xy):
         return np.zeros((0, 4))
     scale = local_stature(xy, centres, statures, image_size)
@@ -529,8 +533,9 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
     out = []
     for members in _heads(xy, score, SAME_HEAD * scale):
         seed = members[0]
+        faint = not (kinds[members] >= 0).any()  # no landmark seen on its own
         extent = (unexplained.extent(xy[seed], SAME_HEAD * scale[seed])
-                  if unexplained is not None else None)
+                  if unexplained is not None and faint else None)
         out.append(_group_ellipse(xy[members], float(np.median(scale[members])), floor,
                                   extent))
     return np.array(out, dtype=np.float64).reshape(-1, 4)
@@ -604,9 +609,11 @@ def unexplained_peaks(confidence_maps: np.ndarray, stride: int, peaks: Sequence[
         ``peaks``: per joint, the peaks above :data:`PEAK_THRESHOLD` of the face channels'
         residual that are not already among ``peaks`` (more than a cell from every one of
         them; empty for the other joints); ``head_peaks``: the peaks above :data:`HEAD_SUM` of
-        the sum of the residual face channels, in image pixels, ``x, y, score``; ``face_sum``
-        that sum itself (what sets the extent of a head found in the maps, see
-        :func:`map_head_ellipses`).
+        the sum of the residual face channels, in image pixels, ``x, y, score``; ``faint``:
+        the residual face channels' local maxima above :data:`FAINT` with no labelled face
+        joint as near as a peak of the face sum's owner (:data:`OWNED_SUM`),
+        ``(n, 2)`` image points (what widens a head found in the maps, see
+        :meth:`Unexplained.extent`).
 
     Notes
     -----
@@ -645,54 +652,39 @@ def unexplained_peaks(confidence_maps: np.ndarray, stride: int, peaks: Sequence[
                          found[:, None, 1] - known[None, :, 1])
             found = found[d.min(axis=1) > stride]
         extra[face[n]] = found
-    face_sum = residual.sum(axis=0)
-    return Unexplained(extra, find_peaks(face_sum[None], HEAD_SUM, stride)[0], face_sum,
-                       stride)
+    faint = []
+    for found in find_peaks(residual, FAINT, stride):
+        # Weak evidence near a labelled face is most likely what is left of its bumps: any
+        # labelled face joint owns it, as it owns a peak of the face sum.
+        owned = _owned(np.full(len(found), -1), found[:, :2], people, statures, face)
+        faint.append(found[~owned, :2])
+    return Unexplained(extra, find_peaks(residual.sum(axis=0)[None], HEAD_SUM, stride)[0],
+                       np.concatenate(faint).reshape(-1, 2))
 
 
 @dataclass(frozen=True)
 class Unexplained:
     """What :func:`unexplained_peaks` finds: extra peaks per joint, peaks of the residual
-    face sum, and that sum on the maps' grid of ``stride`` pixels."""
+    face sum, and the faint landmarks no label owns."""
 
     peaks: list[np.ndarray]
     head_peaks: np.ndarray
-    face_sum: np.ndarray
-    stride: int
+    faint: np.ndarray
 
     def extent(self, xy: np.ndarray, reach: float) -> np.ndarray:
-        """The edges of the head whose strongest evidence lies at ``xy``: the four middles of
-        the sides of the box around the cells within ``reach`` pixels of ``xy`` where the
-        residual face sum is at least half its value there (:data:`EXTENT_LEVEL`); ``(0, 2)``
-        when that cell holds nothing. The cells need not touch: a faint head's landmarks are
-        faint bumps with dips of noise between them.
+        """``(n, 2)`` the faint landmarks within ``reach`` pixels of a head's strongest
+        evidence at ``xy``: a faint head's nose, eyes and far ear are each too weak to be a
+        peak, yet show where the head reaches (a face seen side on spans from the nose to the
+        far ear). They widen the head; being this weak, they never make one.
 
         Examples
         --------
-        >>> grid = np.zeros((5, 8)); grid[2, 2:6] = [0.4, 0.3, 0.25, 0.1]
-        >>> Unexplained([], np.zeros((0, 3)), grid, 4).extent(np.array([9.5, 9.5]), 40)
-        array([[ 9.5,  9.5],
-               [17.5,  9.5],
-               [13.5,  9.5],
-               [13.5,  9.5]])
+        >>> u = Unexplained([], np.zeros((0, 3)), np.array([[10.0, 5.0], [60.0, 5.0]]))
+        >>> u.extent(np.array([0.0, 0.0]), 20.0)
+        array([[10.,  5.]])
         """
-        s = self.stride
-        rows, cols = self.face_sum.shape
-        r = int(np.clip(round((xy[1] - (s - 1) / 2) / s), 0, rows - 1))
-        c = int(np.clip(round((xy[0] - (s - 1) / 2) / s), 0, cols - 1))
-        level = EXTENT_LEVEL * float(self.face_sum[r, c])
-        if level <= 0:
-            return np.zeros((0, 2))
-        k = int(np.ceil(reach / s))
-        r0, c0 = max(0, r - k), max(0, c - k)
-        window = self.face_sum[r0:r + k + 1, c0:c + k + 1]
-        rr, cc = np.mgrid[r0:r0 + window.shape[0], c0:c0 + window.shape[1]]
-        px, py = cc * s + (s - 1) / 2, rr * s + (s - 1) / 2
-        mine = (window >= level) & (np.hypot(px - xy[0], py - xy[1]) <= reach)
-        mine[r - r0, c - c0] = True
-        x0, x1, y0, y1 = px[mine].min(), px[mine].max(), py[mine].min(), py[mine].max()
-        cx, cy = (x0 + x1) / 2, (y0 + y1) / 2
-        return np.array([[x0, cy], [x1, cy], [cx, y0], [cx, y1]])
+        near = np.hypot(self.faint[:, 0] - xy[0], self.faint[:, 1] - xy[1]) <= reach
+        return self.faint[near]
 
 
 def _people_scale(people: Sequence[np.ndarray], skeleton: Skeleton,
