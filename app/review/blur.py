@@ -11,7 +11,9 @@ source of evidence, each recorded as a *source* of the region it places:
     The network's confidence maps kept with the frame: every head-joint peak (nose, eyes, ears)
     that no labelled person owns, grouped into heads and sized from the local scale of the
     labelled people nearby or, away from them, from the frame's floor in perspective
-    (:func:`map_head_ellipses`).
+    (:func:`map_head_ellipses`); and the peaks left once the bumps the labels explain are
+    taken away, where a faint head lay on a labelled neighbour's slope
+    (:func:`unexplained_peaks`).
 ``detector``
     A general-purpose face detector (:mod:`app.review.faces`) as the last net
     (:func:`face_ellipses`).
