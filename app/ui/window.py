@@ -1775,7 +1775,9 @@ class MainWindow(QMainWindow):
             return
         text = (f"Merged the review by {report.reviewer}: {count(report.frames, 'frames')}, "
                 f"{count(report.joints_taken, 'joints')} taken, "
-                f"{count(report.people_added, 'people')} added, "
+                + (f"{count(report.tracks_taken, 'tracks')} taken, " if report.tracks_taken
+                   else "")
+                + f"{count(report.people_added, 'people')} added, "
                 f"{report.people_deleted} deleted, {count(report.notes_added, 'notes')}.")
         if report.disputed:
             n = len(report.disputed)
@@ -1785,6 +1787,11 @@ class MainWindow(QMainWindow):
                      + ". The first is shown; B flips between mine and the reviewer's, A "
                        "takes the reviewer's, K keeps mine, Shift+Return settles.")
             self.show_frame(report.disputed[0])
+        tracks = [c for c in report.conflicts if c["kind"] == "track"]
+        if tracks:
+            text += (f"\n\n{count(len(tracks), 'person', 'people')} kept my track where the "
+                     "reviewer set another ("
+                     + ("frame " if len(tracks) == 1 else "frames ") + ", ".join(str(c["frame"]) for c in tracks[:12]) + ").")
         if not report.base_checked:
             text += ("\n\nThe packet was not recorded when it was sent, so its base labels "
                      "could not be checked.")
