@@ -1791,7 +1791,8 @@ class MainWindow(QMainWindow):
         if tracks:
             text += (f"\n\n{count(len(tracks), 'person', 'people')} kept my track where the "
                      "reviewer set another ("
-                     + ("frame " if len(tracks) == 1 else "frames ") + ", ".join(str(c["frame"]) for c in tracks[:12]) + ").")
+                     + ("frame " if len(tracks) == 1 else "frames ")
+                     + ", ".join(str(c["frame"]) for c in tracks[:12]) + ").")
         if not report.base_checked:
             text += ("\n\nThe packet was not recorded when it was sent, so its base labels "
                      "could not be checked.")
