@@ -248,7 +248,7 @@ def cmd_merge(args: argparse.Namespace) -> int:
         what = c["kind"] if c["kind"] != "joints" else "joints " + ", ".join(map(str,
                                                                                 c["joints"]))
         if c["kind"] == "track":
-            what = (f"track: kept ours, {shown(report.reviewer)} put them on track "
+            what = (f"track: kept mine, {shown(report.reviewer)} put them on track "
                     f"{c.get('theirs_track')}")
         print(f"  conflict: frame {c['frame']}, person {c['person']}: {what}")
     if report.disputed:

@@ -49,6 +49,7 @@ from app.analysis.carry import MAX_FRAMES, CarriedBatch, carry_changes
 from app.analysis.triage.findings import labels_digest
 from app.errors import PosewrightError
 from app.model.edits import Change
+from app.model.naming import person_text, tags
 from app.model.sequences import NOT_SEQUENCES, parse_not_sequences, sequences
 from app.model.sequences import Sequence as FrameSequence
 from app.model.targets import StateTarget
@@ -81,11 +82,42 @@ class Cell:
     corrected: bool
     current: bool
     batch: str = ""
+    #: The person's number tag in that frame (:mod:`app.model.naming`).
+    tag: int | None = None
 
     @property
     def present(self) -> bool:
         """Whether the track has someone in this frame."""
         return self.person_id is not None
+
+    def describe(self, length: int) -> str:
+        """What the cell says, as its tooltip.
+
+        Examples
+        --------
+        >>> for part in Cell(7, 7, 7001, 2, True, False, "last", tag=2).describe(12).split(
+        ...         " \u00b7 "):
+        ...     print(part)
+        frame 7 (7 of 12): person 2 (#7001)
+        2 open findings
+        corrected
+        the carried correction ends here
+        >>> Cell(10, 10, None, 0, False, True).describe(12)
+        'frame 10 (10 of 12, shown): the track has no one here'
+        """
+        head = f"frame {self.frame_id} ({self.place} of {length}" + \
+            (", shown)" if self.current else ")")
+        if self.person_id is None:
+            parts = [f"{head}: the track has no one here"]
+        else:
+            parts = [f"{head}: {person_text(self.tag, self.person_id)}"]
+            if self.findings:
+                parts.append(count(self.findings, "open finding"))
+            if self.corrected:
+                parts.append("corrected")
+        if self.batch:
+            parts.append(ROLE_TEXT[self.batch])
+        return " \u00b7 ".join(parts)
 
 
 @dataclass(frozen=True)
@@ -192,6 +224,7 @@ class _FrameRow:
     tracks: dict[int, int] = field(default_factory=dict)
     findings: dict[int, int] = field(default_factory=dict)
     corrected: frozenset[int] = frozenset()
+    tags: dict[int, int] = field(default_factory=dict)
 
 
 class Timeline:
@@ -266,19 +299,22 @@ class Timeline:
                     about.add(int(d["person_id"]))
                 for pid in about:
                     findings[pid] = findings.get(pid, 0) + 1
-        return _FrameRow(tracks, findings, corrected_people(self.project.history(frame_id)))
+        return _FrameRow(tracks, findings, corrected_people(self.project.history(frame_id)),
+                         tags(sorted(labels.people)))
 
     def strip(self, frame_id: int | None, person_id: int | None,
-              span: int = SPAN) -> TrackStrip | None:
-        """The cells for ``person_id`` of ``frame_id``; None when no one is selected, the
-        person is on no track, or the frame belongs to no sequence. Choosing another frame
-        or person centres the window again."""
-        if frame_id is None or person_id is None:
+              span: int = SPAN, track: int | None = None) -> TrackStrip | None:
+        """The cells for ``person_id``'s track around ``frame_id`` (or for ``track``, when
+        no one is selected: the track followed into a frame where it has no one); None when
+        no one is selected and no track given, the person is on no track, or the frame
+        belongs to no sequence. Choosing another frame or track centres the window again."""
+        if frame_id is None or (person_id is None and track is None):
             return None
         seq = self.sequence_of(frame_id)
         if seq is None:
             return None
-        track = self._row(frame_id).tracks.get(person_id)
+        if person_id is not None:
+            track = self._row(frame_id).tracks.get(person_id)
         if track is None:
             return None
         if self._centre != (frame_id, track):
@@ -297,7 +333,7 @@ class Timeline:
             cells.append(Cell(fid, k + 1, there,
                               row.findings.get(there, 0) if there is not None else 0,
                               there is not None and there in row.corrected, fid == frame_id,
-                              roles.get(fid, "")))
+                              roles.get(fid, ""), row.tags.get(there) if there else None))
         return TrackStrip(track, seq.key, len(ids), tuple(cells), self.carry.taken,
                           self._text(track, at + 1, len(ids), cells))
 
