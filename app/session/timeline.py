@@ -42,6 +42,7 @@ The roles of a carried batch, backward and forward of the corrected frame 5 (syn
 from __future__ import annotations
 
 import logging
+from collections import abc
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 
@@ -49,6 +50,7 @@ from app.analysis.carry import MAX_FRAMES, CarriedBatch, carry_changes
 from app.analysis.triage.findings import labels_digest
 from app.errors import PosewrightError
 from app.model.edits import Change
+from app.model.labels import FrameLabels
 from app.model.naming import person_text, tags
 from app.model.sequences import NOT_SEQUENCES, parse_not_sequences, sequences
 from app.model.sequences import Sequence as FrameSequence
@@ -244,7 +246,6 @@ class Timeline:
         self.offset = 0
         self._sequences: dict[int, FrameSequence] | None = None
         self._rows: dict[int, _FrameRow] = {}
-        self._digests: dict[int, str] | None = None
         self._centre: tuple[int, int | None] | None = None
 
     # ------------------------------------------------------------------ changes
@@ -253,13 +254,11 @@ class Timeline:
         """The labels, findings or Ledger of these frames changed: read them again."""
         for fid in frame_ids:
             self._rows.pop(int(fid), None)
-        self._digests = None
 
     def forget_all(self) -> None:
         """Frames were added, imported or triaged: read everything again."""
         self._sequences = None
         self._rows.clear()
-        self._digests = None
 
     def scroll(self, cells: int) -> None:
         """Shift the window by ``cells`` (negative: towards the start); the next
@@ -290,9 +289,8 @@ class Timeline:
             return _FrameRow()
         tracks = {p.id: p.track for p in labels.people.values() if p.track is not None}
         findings: dict[int, int] = {}
-        if self._digests is None:
-            self._digests = self.project.findings_digests()
-        if self._digests.get(frame_id) == labels_digest(labels):
+        digest = self.project.findings_digests(frame_id).get(frame_id)
+        if digest is not None and digest == labels_digest(labels):
             for d in self.project.findings(frame_id).get(frame_id, []):
                 about = {int(p) for p in d.get("people") or ()}
                 if d.get("person_id") is not None:
@@ -359,20 +357,48 @@ class Timeline:
         """Carry a correction just made in ``frame_id`` (its changes, as applied) to the
         frames around it, nothing changed, and mark the batch as proposed; None (and no
         marks) when the frame is in no sequence or the correction shows nowhere else. Reads
-        only the frames the batch can reach (``max_frames`` each way); the frame's state
+        only the frames the batch reaches, and nothing when the people corrected are on no
+        track (:func:`app.analysis.carry.carry_changes` carries nothing then); the frame's state
         is not carried (as :func:`app.jobs_tracks.last_correction` leaves it out)."""
         seq = self.sequence_of(frame_id)
-        if seq is None:
+        changes = [c for c in changes if not isinstance(c.target, StateTarget)]
+        touched = {getattr(c.target, "person", None) for c in changes} - {None}
+        tracks = self._row(frame_id).tracks
+        if seq is None or not touched & set(tracks):
+            # nothing to follow: no sequence, or the people corrected are on no track
             self.carry.clear()
             return None
         ids = seq.frame_ids
         at = ids.index(frame_id)
         lo, hi = max(0, at - max_frames - 1), min(len(ids), at + max_frames + 2)
-        frames = [self.project.labels(f) for f in ids[lo:hi]]
-        changes = [c for c in changes if not isinstance(c.target, StateTarget)]
-        batch = carry_changes(changes, frames, at - lo, max_frames)
+        batch = carry_changes(changes, _LazyLabels(self.project, ids[lo:hi]), at - lo,
+                              max_frames)
         self.carry.show(batch, taken=False)
         return self.carry.batch
+
+
+class _LazyLabels(abc.Sequence):  # type: ignore[type-arg]
+    """A sequence's frames' labels, read when first asked for: carrying walks out from the
+    corrected frame and stops at the first frame without the error."""
+
+    def __init__(self, project: Project, frame_ids: Sequence[int]):
+        self._project = project
+        self._ids = list(frame_ids)
+        self._read: dict[int, FrameLabels] = {}
+
+    def __len__(self) -> int:
+        return len(self._ids)
+
+    def __getitem__(self, k):  # type: ignore[no-untyped-def]
+        if isinstance(k, slice):
+            return [self[i] for i in range(*k.indices(len(self)))]
+        if k < 0:
+            k += len(self)
+        if not 0 <= k < len(self):
+            raise IndexError(k)
+        if k not in self._read:
+            self._read[k] = self._project.labels(self._ids[k])
+        return self._read[k]
 
 
 def corrected_people(entries: Iterable[LedgerEntry]) -> frozenset[int]:
