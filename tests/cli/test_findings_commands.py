@@ -104,7 +104,7 @@ def test_dismiss_from_the_command_line(proj, capsys):
 @pytest.mark.parametrize("argv, says", [
     (["--kinds", "nonsense"], "--kinds: nonsense is not a kind of finding"),
     (["--accept", "all", "--min-confidence", "2"], "--min-confidence: 2.0 is not between"),
-    (["--dry-run"], "--dry-run and --min-confidence go with --accept"),
+    (["--dry-run"], "--dry-run, --min-confidence and --carry go with --accept"),
     (["--dismiss", "F0000000000"], "no current finding 'F0000000000'"),
 ])
 def test_bad_input_is_one_line_and_status_2(proj, capsys, argv, says):
