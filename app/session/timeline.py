@@ -43,7 +43,7 @@ from __future__ import annotations
 
 import logging
 from collections import abc
-from collections.abc import Iterable, Sequence
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field
 
 from app.analysis.carry import MAX_FRAMES, CarriedBatch, carry_changes
@@ -247,6 +247,7 @@ class Timeline:
         self._sequences: dict[int, FrameSequence] | None = None
         self._rows: dict[int, _FrameRow] = {}
         self._centre: tuple[int, int | None] | None = None
+        self._proposal = 0
 
     # ------------------------------------------------------------------ changes
 
@@ -356,25 +357,57 @@ class Timeline:
                 max_frames: int = MAX_FRAMES) -> CarriedBatch | None:
         """Carry a correction just made in ``frame_id`` (its changes, as applied) to the
         frames around it, nothing changed, and mark the batch as proposed; None (and no
-        marks) when the frame is in no sequence or the correction shows nowhere else. Reads
-        only the frames the batch reaches, and nothing when the people corrected are on no
-        track (:func:`app.analysis.carry.carry_changes` carries nothing then); the frame's state
-        is not carried (as :func:`app.jobs_tracks.last_correction` leaves it out)."""
+        marks) when the frame is in no sequence or the correction shows nowhere else. What
+        :meth:`propose_work`, :meth:`begin_proposal` and :meth:`offer` do in turn."""
+        work = self.propose_work(frame_id, changes, max_frames)
+        if work is None:
+            return None
+        token = self.begin_proposal()
+        self.offer(token, work())
+        return self.carry.batch
+
+    def propose_work(self, frame_id: int, changes: Sequence[Change],
+                     max_frames: int = MAX_FRAMES) -> Callable[[], CarriedBatch] | None:
+        """The work of proposing, to run on any thread (it reads the project and changes
+        nothing); None, with the marks cleared, when there is nothing to carry: the frame is
+        in no sequence, or the people corrected are on no track. The work reads only the
+        frames the batch reaches (``max_frames`` each way); the frame's state is not carried
+        (as :func:`app.jobs_tracks.last_correction` leaves it out)."""
         seq = self.sequence_of(frame_id)
         changes = [c for c in changes if not isinstance(c.target, StateTarget)]
         touched = {getattr(c.target, "person", None) for c in changes} - {None}
-        tracks = self._row(frame_id).tracks
-        if seq is None or not touched & set(tracks):
-            # nothing to follow: no sequence, or the people corrected are on no track
-            self.carry.clear()
+        if seq is None or not touched & set(self._row(frame_id).tracks):
+            self.drop_carry()
             return None
         ids = seq.frame_ids
         at = ids.index(frame_id)
         lo, hi = max(0, at - max_frames - 1), min(len(ids), at + max_frames + 2)
-        batch = carry_changes(changes, _LazyLabels(self.project, ids[lo:hi]), at - lo,
-                              max_frames)
+        window = ids[lo:hi]
+        project = self.project
+
+        def work() -> CarriedBatch:
+            return carry_changes(changes, _LazyLabels(project, window), at - lo, max_frames)
+
+        return work
+
+    def begin_proposal(self) -> int:
+        """A token for a proposal about to be worked out; a later one, or a change
+        (:meth:`drop_carry`), makes it stale."""
+        self._proposal += 1
+        return self._proposal
+
+    def offer(self, token: int, batch: CarriedBatch | None) -> bool:
+        """Mark a proposed batch, unless its token is stale (the labels changed since it was
+        begun); returns whether it was marked."""
+        if token != self._proposal:
+            return False
         self.carry.show(batch, taken=False)
-        return self.carry.batch
+        return True
+
+    def drop_carry(self) -> None:
+        """The labels changed: clear the marks, and make any proposal under way stale."""
+        self._proposal += 1
+        self.carry.clear()
 
 
 class _LazyLabels(abc.Sequence):  # type: ignore[type-arg]

@@ -87,7 +87,7 @@ from app.ui.panels import LedgerPanel, NotesPanel, OwnersPanel, WorklistPanel
 from app.ui.settings import cache_bytes, settings
 from app.ui.strips import Strip
 from app.ui.timeline import TrackTimeline
-from app.ui.work import describe_error, run_job
+from app.ui.work import Job, describe_error, run_job
 from app.wording import count, plural
 
 log = logging.getLogger(__name__)
@@ -1025,22 +1025,36 @@ class MainWindow(QMainWindow):
             self.timeline.forget_all()
         else:
             self.timeline.forget(frame_ids)
-        if kind not in ("triage",) and self.timeline.carry.batch is not None:
-            self.timeline.carry.clear()
+        if kind != "triage":
+            self.timeline.drop_carry()
         self._update_timeline()
 
     def _propose_carry(self, done: Applied | None) -> None:
-        """After a correction of one frame, mark where carrying it would go (Ctrl+Shift+C
-        takes it) and say so."""
+        """After a correction of one frame, work out where carrying it would go on a worker
+        thread (a batch can reach a hundred frames), then mark it and say so (Ctrl+Shift+C
+        takes it); an edit made meanwhile makes the answer stale."""
         if done is None or done.group_id is None or not done.edit.changes_labels:
             return
         try:
-            batch = self.timeline.propose(done.edit.frame_id, done.changes)
+            work = self.timeline.propose_work(done.edit.frame_id, done.changes)
         except PosewrightError:
             log.exception("proposing to carry a correction failed")
             return
-        if batch is not None:
-            self._show_carry(batch, taken=False)
+        if work is None:
+            return
+        token = self.timeline.begin_proposal()
+        job = Job(lambda _progress: work(), self)
+        job.succeeded.connect(lambda batch: self._carry_proposed(token, batch))
+        job.failed.connect(lambda exc: log.warning("proposing to carry failed: %s", exc))
+        self._jobs.append(job)
+        job.finished.connect(lambda: self._jobs.remove(job) if job in self._jobs else None)
+        job.finished.connect(job.deleteLater)
+        job.start()
+
+    def _carry_proposed(self, token: int, batch: Any) -> None:
+        if not self._closed and self.timeline.offer(token, batch) and \
+                self.timeline.carry.batch is not None:
+            self._show_carry(self.timeline.carry.batch, taken=False)
 
     def _show_carry(self, batch: Any, taken: bool) -> None:
         self.timeline.carry.show(batch, taken)

@@ -7,7 +7,9 @@ folder project and linked into tracks; then, for one walker in the middle frame:
   Ledger), what selecting a person costs the first time;
 - the strip one frame further along the track, as Alt+Right shows it (the frames are kept);
 - proposing to carry a correction (a side swap of that walker, as the app does after each
-  correction) and the strip after it (the corrected frame read again).
+  correction): the part on the UI thread (which frames to read) and the rest, on a worker
+  thread (reading the frames and carrying; the walkers keep their pose, so the swap carries
+  to the limit, 50 frames each way: the worst case), and the strip after it.
 
 Wall times are medians; the machine may be shared. No goal was set by the issue; 100 ms is
 ours for what follows a key press.
@@ -76,23 +78,30 @@ def run() -> list[dict]:
             there = next(p.id for p in project.people(nxt)
                          if p.track == project.people(mid)[0].track)
             step = common.median_seconds(lambda: timeline.strip(nxt, there, SPAN), repeat=9)
-            proposes, afters = [], []
+            proposes, afters, starts = [], [], []
             for _ in range(5):
                 applied = project.apply(SwapSides(mid, person))
                 timeline.forget([mid])
-                proposes.append(_once(lambda a=applied: timeline.propose(mid, a.changes)))
+                t0 = time.perf_counter()
+                work = timeline.propose_work(mid, applied.changes)
+                starts.append(time.perf_counter() - t0)
+                proposes.append(_once(work))
                 afters.append(_once(lambda: timeline.strip(mid, person, SPAN)))
                 project.undo()
                 timeline.forget([mid])
     where = f"{FRAMES} frames x {PEOPLE} synthetic walkers, a window of {SPAN} cells"
     ms = {k: 1000 * float(np.median(v)) for k, v in
-          (("first", [first]), ("step", [step]), ("propose", proposes), ("after", afters))}
+          (("first", [first]), ("step", [step]), ("propose", proposes), ("after", afters),
+           ("start", starts))}
     return [
         common.row("timeline: first strip of a track", ms["first"], "ms", "<= 100 ms (ours)",
                    ms["first"] <= 100, f"{where}; every frame of the window read"),
         common.row("timeline: strip one frame along the track", ms["step"], "ms",
                    "<= 100 ms (ours)", ms["step"] <= 100, "the frames of the window kept"),
-        common.row("timeline: propose carrying a correction", ms["propose"], "ms",
-                   "<= 100 ms (ours)", ms["propose"] <= 100,
+        common.row("timeline: propose carrying, on the UI thread", ms["start"], "ms",
+                   "<= 100 ms (ours)", ms["start"] <= 100,
                    f"a side swap of one walker; then the strip {ms['after']:.1f} ms"),
+        common.row("timeline: propose carrying, on a worker thread", ms["propose"], "ms",
+                   "none (off the UI thread)", True,
+                   "carried to 100 frames, the most a batch reaches"),
     ]

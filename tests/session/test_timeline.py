@@ -143,3 +143,23 @@ def test_nothing_is_proposed_or_shown_outside_a_sequence(walk):
     timeline = Timeline(walk)
     assert timeline.propose(6, applied.changes) is None
     assert timeline.carry.roles() == {} and timeline.strip(6, pid(5, 0)) is None
+
+
+def test_a_proposal_worked_out_before_a_change_is_dropped(walk):
+    """The window works a proposal out on a worker: an edit made meanwhile (which clears the
+    marks) makes its answer stale, and a later proposal's answer is the one kept."""
+    timeline = Timeline(walk)
+    applied = walk.apply(ReassignJoint(6, pid(5, 0), WRIST, pid(5, 1)))
+    work = timeline.propose_work(6, applied.changes)
+    token = timeline.begin_proposal()
+    batch = work()
+    timeline.drop_carry()  # an edit arrived before the answer
+    assert not timeline.offer(token, batch) and timeline.carry.batch is None
+    newer = timeline.begin_proposal()
+    assert timeline.offer(newer, work()) and timeline.carry.worklist_marks() == {4: "last",
+                                                                              7: "last"}
+    # the people corrected on no track: nothing to work out, and the marks go
+    walk.apply(SetTrack(6, pid(5, 2), None))
+    timeline.forget([6])
+    moved = walk.apply(MoveJoint(6, pid(5, 2), 0, 500.0, 90.0))
+    assert timeline.propose_work(6, moved.changes) is None and timeline.carry.batch is None
