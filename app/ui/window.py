@@ -978,8 +978,8 @@ class MainWindow(QMainWindow):
 
     def _update_timeline(self) -> None:
         """Show the selected person's track (or the track followed) around the frame."""
-        if not hasattr(self, "track_timeline") or self._closed:
-            return
+        if not hasattr(self, "worklist_model") or self._closed:
+            return  # still being built
         pid = self.canvas.selected_person
         span = self.track_timeline.cells_that_fit()
         strip = None
