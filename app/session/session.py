@@ -183,7 +183,7 @@ class Session:
         """Go to the next (1) or previous (-1) stop; tell the listeners."""
         was = self.walk.current
         if step > 0 and was is not None and was.frame_id == self.frame_id:
-            self._passed[was.frame_id].add(was.key)
+            self._passed[was.frame_id].update([was.key, *(f.id for f in was.findings)])
             self._refresh_at_end(was.frame_id)
         stop = self.walk.step(step, self.frame_id)
         if stop is None:
@@ -215,7 +215,9 @@ class Session:
             return
         self._dirty.discard(frame_id)
         self._stops.pop(frame_id, None)
-        fresh = [s for s in self.stops(frame_id) if s.key not in self._passed[frame_id]]
+        passed = self._passed[frame_id]
+        fresh = [s for s in self.stops(frame_id) if s.key not in passed
+                 and not (s.findings and all(f.id in passed for f in s.findings))]
         self._stops[frame_id] = fresh
         if fresh:
             self.walk.forget()

@@ -246,13 +246,16 @@ def paint_walk_card(painter: QPainter, card: WalkCard, box: QRectF, bounds: QRec
     stop = card.stop
     fix = stop.fix
     where = f" {card.where}" if card.where else ""
-    head = ("Findings" if stop.group else "Finding" if stop.finding is not None
+    head = ("Findings" if len(stop.findings) > 1 else "Finding" if stop.findings
             else "Triage") + where
     if fix is not None:
-        sure = [f.confidence for f in stop.findings]
-        conf = f" (each at least {min(sure):.0%} sure)" if stop.group else \
+        # A frame's visibility fixes are one stop of several fixes; a person's stop has one
+        # fix, with notes that propose none.
+        several = stop.finding is None and len(stop.findings) > 1
+        sure = [f.confidence for f in stop.findings if f.fix is not None]
+        conf = f" (each at least {min(sure):.0%} sure)" if several else \
             f" ({sure[0]:.0%} sure)" if sure else ""
-        summary = "mark them occluded" if stop.group else fix.summary
+        summary = "mark them occluded" if several else fix.summary
         tail = f"Fix{conf}: {summary}.  Y accepts \u00b7 I not a problem \u00b7 W skips"
     elif stop.findings:
         tail = "No fix proposed: correct it by hand.  I not a problem \u00b7 W next"

@@ -95,3 +95,36 @@ def test_without_findings_the_walk_stops_at_triage_reasons_about_people(scene):
     assert stop.text.startswith("person 1: ")
     assert s.step(1) is None, "the frame-level reason is not a stop"
     assert s.accept() is None and "no fix" in said[-1]
+
+
+def _note(fid, pid, key, kind, joint, name, fix=None):
+    """An invented finding about one joint of one person (synthetic)."""
+    from app.analysis.triage.findings import Finding
+
+    return Finding(key, fid, kind, pid, 1, (joint,), (name,), f"person 1's {name}: {kind}",
+                   (), 1.0, 0.9, fix, (pid,), key * 2)
+
+
+def test_a_persons_findings_without_a_fix_ride_on_their_stop_with_one(scene):
+    """One key passes a person's findings: the notes that propose nothing are read on the
+    card of that person's fix, and dismissing the stop dismisses them all."""
+    from app.analysis.triage.findings import Fix, FixPreview, labels_digest
+    from app.model.edits import SetVisibility
+
+    project, fids, first = scene
+    fid = fids[0]
+    fix = Fix("mark person 1's left wrist occluded", (SetVisibility(fid, first, 9, 1),),
+              FixPreview(occluded=((first, 9),)))
+    found = [_note(fid, first, "Fa", "wrong-owner", 9, "left wrist", fix),
+             _note(fid, first + 1, "Fb", "mirrored", 5, "left shoulder"),
+             _note(fid, first, "Fc", "missing-joint", 10, "right wrist"),
+             _note(fid, first, "Fd", "invented", 1, "left eye")]
+    project.store_findings({fid: (labels_digest(project.labels(fid)),
+                                  [f.to_dict() for f in found])})
+    s, _, _ = _session(project, [fid])
+    stops = s.stops(fid)
+    assert [[f.id for f in x.findings] for x in stops] == [["Fa", "Fc", "Fd"], ["Fb"]]
+    assert stops[0].fix == fix and "also person 1's right wrist" in stops[0].text
+    assert s.step(1).key == stops[0].key
+    assert s.dismiss().key == "Fb", "one key, and the walk is on the other person"
+    assert project.dismissed()[fid] == {"FaFa", "FcFc", "FdFd"}, "its notes went with it"
