@@ -32,34 +32,15 @@ from app.jobs_findings import accept_label
 from app.model.edits import DismissFinding, Edit, EditGroup
 from app.model.labels import Frame, FrameState, Person
 from app.model.naming import Names
+from app.session.events import Events
 from app.session.selection import Selection
 from app.session.settling import Dispute, load_dispute
+from app.session.view import View
 from app.session.walk import Stop, Walk, group_findings
 from app.store.project import Project
 from app.wording import count
 
 log = logging.getLogger(__name__)
-
-
-class Events:
-    """Plain events: callbacks by name, called in the order they were connected.
-
-    Examples
-    --------
-    >>> seen = []
-    >>> ev = Events(); ev.connect("stop", seen.append); ev.emit("stop", 3); seen
-    [3]
-    """
-
-    def __init__(self) -> None:
-        self._subscribers: dict[str, list[Callable[..., Any]]] = defaultdict(list)
-
-    def connect(self, name: str, fn: Callable[..., Any]) -> None:
-        self._subscribers[name].append(fn)
-
-    def emit(self, name: str, *args: Any) -> None:
-        for fn in list(self._subscribers.get(name, ())):
-            fn(*args)
 
 
 #: Runs ``job()`` away from the caller's thread and later calls ``deliver(result)`` on the
@@ -111,6 +92,9 @@ class Session:
         self.names = Names.of_frame(self.skeleton, [])
         #: What is selected in the frame (the Canvas shows and changes it).
         self.selection = Selection()
+        #: The people the Canvas shows, their colours, and its modes (the Canvas is a view
+        #: of this and turns gestures into its calls).
+        self.view = View()
         #: The open differences of the frame shown, when it is disputed.
         self.dispute: Dispute | None = None
         self._order = order or self._suspicion_order

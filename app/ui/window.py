@@ -191,6 +191,7 @@ class MainWindow(QMainWindow):
         self.session.events.connect("message", self._message)
         self.session.events.connect("refreshed", self._refreshed)
         self.canvas.selection = self.session.selection
+        self.canvas.use_view(self.session.view)
         #: The selected joint's owner and candidates (None without one selected joint).
         self.owner_ranking: OwnerRanking | None = None
         self.ledger = LedgerPanel(self.ledger_model, self.actions_by_name)
