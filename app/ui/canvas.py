@@ -804,6 +804,26 @@ class Canvas(QWidget):
         p.drawRoundedRect(QRectF(rect), 4, 4)
         p.drawText(rect, Qt.AlignmentFlag.AlignCenter, text)
 
+    def _paint_placeholder_text(self, p: QPainter, image: QRectF) -> None:
+        """Why no image shows, in one line where it hides nothing: in the margin below the
+        image when there is room, else along the Canvas's bottom edge, under the people
+        (they are painted after it)."""
+        metrics = p.fontMetrics()
+        text = metrics.elidedText(self.message or "loading image\u2026",
+                                  Qt.TextElideMode.ElideMiddle, max(self.width() - 32, 40))
+        h = metrics.height() + 6
+        y = image.bottom() + 4 if image.bottom() + 4 + h <= self.height() else self.height() - h - 2
+        x = max(image.left(), 8.0)
+        box = QRectF(x, y, metrics.horizontalAdvance(text) + 14, h)
+        p.save()
+        p.setRenderHint(QPainter.RenderHint.Antialiasing, True)
+        p.setPen(Qt.PenStyle.NoPen)
+        p.setBrush(QColor(20, 20, 20, 170))
+        p.drawRoundedRect(box, 4, 4)
+        p.setPen(QColor("#d0d0d0"))
+        p.drawText(box, Qt.AlignmentFlag.AlignCenter, text)
+        p.restore()
+
     def _paint_image(self, p: QPainter) -> None:
         assert self.frame is not None
         s = self._scale
@@ -812,8 +832,7 @@ class Canvas(QWidget):
         target = QRectF(top_left, QSizeF(w * s, h * s))
         if self._decoded is None:
             p.fillRect(target, PLACEHOLDER)
-            p.setPen(QColor("#d0d0d0"))
-            p.drawText(target, Qt.AlignmentFlag.AlignCenter, self.message or "loading image\u2026")
+            self._paint_placeholder_text(p, target)
             return
         if s < 0.999:
             # Zoomed out: draw a copy shrunk once per zoom level rather than rescaling on every
