@@ -13,9 +13,9 @@ background (the ``background`` runner the window gives: a worker thread whose re
 back on the UI thread). Each walk edit of a frame raises its revision; a result computed for
 an older revision is dropped. When the walk reaches the end of a frame it changed, the fresh
 findings not yet passed are offered before it moves on, if they are in; if they are not, the
-walk moves on at once and the ones that arrive later wait in that frame's list (Shift+W goes
-back to them; the ``refreshed`` event says so). Without a runner the recompute runs at once,
-in the caller's thread (the command line, the tests).
+walk moves on at once and the ones that arrive later join that frame's list, and the walk
+comes back to the frame after the last frame of its order (:meth:`Walk.revisit`). Without a
+runner the recompute runs at once, in the caller's thread (the command line, the tests).
 """
 
 from __future__ import annotations
@@ -264,7 +264,7 @@ class Session:
     def recomputed(self, frame_id: int, token: int, stops: list[Stop] | None) -> bool:
         """A recompute's result, delivered on the session's thread; dropped (False) when the
         frame was edited since it started. When the walk has already left the frame, its
-        stops not yet passed join the frame's list."""
+        stops not yet passed join the frame's list and the walk comes back to it at the end."""
         if stops is None or token != self._revision[frame_id] or frame_id not in self._dirty:
             return False
         self.pending.discard(frame_id)
@@ -278,8 +278,10 @@ class Session:
                     name = self.project.frame(frame_id).file_name
                 except PosewrightError:
                     name = "a frame the walk left"
+                back = "the walk comes back to them after the last frame" \
+                    if self.walk.revisit(frame_id) else "W goes to them from there"
                 self.events.emit("message", f"{name}: {count(len(fresh), 'more finding')} "
-                                 "after its fixes (Shift+W goes back to them)")
+                                 f"after its fixes ({back})")
         else:
             self._fresh[frame_id] = stops
         self.events.emit("refreshed", frame_id)

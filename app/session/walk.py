@@ -277,6 +277,29 @@ class Walk:
             index = 0 if step > 0 else len(self._stops(frame)) - 1
         return None
 
+    def revisit(self, frame_id: int) -> bool:
+        """Come back to a frame the walk has left, after the last frame of its order (the
+        frame's findings changed after the walk left it); False when the walk is there, or
+        the frame is not in its order.
+
+        Examples
+        --------
+        >>> stops = {7: [Stop(7, "a", 1, (), "one")], 3: [Stop(3, "c", 5, (), "three")]}
+        >>> walk = Walk(lambda: [7, 3], lambda f: stops[f])
+        >>> walk.step(1, 7).key, walk.step(1, 7).key
+        ('a', 'c')
+        >>> stops[7] = [Stop(7, "z", 1, (), "came later")]
+        >>> walk.revisit(7), walk.step(1, 3).key
+        (True, 'z')
+        """
+        order = self._snapshot
+        if order is None or frame_id not in order or (
+                self.current is not None and self.current.frame_id == frame_id):
+            return False
+        order.remove(frame_id)
+        order.append(frame_id)
+        return True
+
     def forget(self) -> None:
         """Let the next step start from the frame on screen (in the same order)."""
         self.current = None

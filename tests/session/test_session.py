@@ -150,7 +150,8 @@ def _two_frames_of_fixes(project, fids, first):
 def test_the_walk_does_not_wait_for_a_changed_frames_recompute(scene):
     """The recompute runs in the background (a runner held by the test, synchronous): at the
     end of the frame the walk moves on at once; a result for an older revision is dropped;
-    the fresh findings that arrive later join the frame's list, without those passed."""
+    the fresh findings that arrive later join the frame's list, without those passed, and
+    the walk comes back to that frame after the last one."""
     from app.session import Stop
 
     project, fids, first = scene
@@ -173,7 +174,7 @@ def test_the_walk_does_not_wait_for_a_changed_frames_recompute(scene):
     assert held[1][1]([passed, late]) is True and not s.pending
     assert [x.key for x in s.stops(fids[0])] == ["Fz"], "fresh, without the ones passed"
     assert "1 more finding after its fixes" in said[-1]
-    assert s.step(-1).key == "Fz", "Shift+W goes back to it"
+    assert _follow(s, s.step(1)).key == "Fz", "the walk comes back to it after the last frame"
 
 
 def test_a_recompute_in_before_the_frames_end_is_offered_before_the_walk_moves_on(scene):
