@@ -118,6 +118,8 @@ class Session:
         self.pending: set[int] = set()
         #: Frames the walk left before their recompute came in.
         self._left: set[int] = set()
+        #: Frames the walk comes back to after its last: their stops passed stay passed.
+        self._revisits: set[int] = set()
 
     # ------------------------------------------------------------------ frame
 
@@ -152,7 +154,10 @@ class Session:
         """The frame's stops, worst first: its findings, or in a project without findings
         triage's reasons about people."""
         if frame_id not in self._stops:
-            self._stops[frame_id] = self._read_stops(frame_id)
+            read = self._read_stops(frame_id)
+            if frame_id in self._revisits:  # read again: still without the stops passed
+                read = self._unpassed(frame_id, read)
+            self._stops[frame_id] = read
         return self._stops[frame_id]
 
     def _read_stops(self, frame_id: int) -> list[Stop]:
@@ -278,8 +283,11 @@ class Session:
                     name = self.project.frame(frame_id).file_name
                 except PosewrightError:
                     name = "a frame the walk left"
-                back = "the walk comes back to them after the last frame" \
-                    if self.walk.revisit(frame_id) else "W goes to them from there"
+                if self.walk.revisit(frame_id):
+                    self._revisits.add(frame_id)
+                    back = "the walk comes back to them after the last frame"
+                else:
+                    back = "W goes to them from there"
                 self.events.emit("message", f"{name}: {count(len(fresh), 'more finding')} "
                                  f"after its fixes ({back})")
         else:

@@ -174,6 +174,9 @@ def test_the_walk_does_not_wait_for_a_changed_frames_recompute(scene):
     assert held[1][1]([passed, late]) is True and not s.pending
     assert [x.key for x in s.stops(fids[0])] == ["Fz"], "fresh, without the ones passed"
     assert "1 more finding after its fixes" in said[-1]
+    s.findings_changed()  # triage stored again elsewhere: the frame is read anew ...
+    s._read_stops = lambda fid: [passed, late] if fid == fids[0] else []
+    assert [x.key for x in s.stops(fids[0])] == ["Fz"], "... and what was passed stays so"
     assert _follow(s, s.step(1)).key == "Fz", "the walk comes back to it after the last frame"
 
 
