@@ -6,12 +6,17 @@
 - :mod:`app.session.owners`: who a selected joint could belong to, the owner's own fit beside
   the candidates', and what a give would swap.
 - :mod:`app.session.settling`: a disputed frame's differences, their order and their words.
+- :mod:`app.session.view`: what the Canvas shows: the people in tag order, their flags and
+  colours, and its modes (region, pick, focus).
+- :mod:`app.session.selection`: what is selected; :mod:`app.session.events`: plain events.
 
 The window (``app/ui``) shows what the session says and turns gestures into its intents;
 everything here is tested without a window.
 """
 
-from app.session.session import Events, Session
+from app.session.events import Events
+from app.session.session import Session
+from app.session.view import View
 from app.session.walk import Stop, Walk
 
-__all__ = ["Events", "Session", "Stop", "Walk"]
+__all__ = ["Events", "Session", "Stop", "View", "Walk"]

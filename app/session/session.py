@@ -8,9 +8,14 @@ applied through the store and into messages, and tells whoever listens through p
 
 Speed: stepping to the next stop reads nothing but the frame's cached stops. Accepting a fix
 keeps the frame's other stops that are about other people (their fixes still apply: the store
-refuses an edit whose labels moved) and computes the frame's findings again only when the walk
-reaches the end of that frame's list, so that fixes an earlier one held back are offered
-before the walk moves on.
+refuses an edit whose labels moved) and starts computing the frame's findings again in the
+background (the ``background`` runner the window gives: a worker thread whose result comes
+back on the UI thread). Each walk edit of a frame raises its revision; a result computed for
+an older revision is dropped. When the walk reaches the end of a frame it changed, the fresh
+findings not yet passed are offered before it moves on, if they are in; if they are not, the
+walk moves on at once and the ones that arrive later join that frame's list, and the walk
+comes back to the frame after the last frame of its order (:meth:`Walk.revisit`). Without a
+runner the recompute runs at once, in the caller's thread (the command line, the tests).
 """
 
 from __future__ import annotations
@@ -28,33 +33,25 @@ from app.model.edits import DismissFinding, Edit, EditGroup
 from app.model.labels import Frame, FrameState, Person
 from app.model.naming import Names
 from app.session.blurred import BlurredFrame, load_blurred
+from app.session.events import Events
 from app.session.selection import Selection
 from app.session.settling import Dispute, load_dispute
+from app.session.view import View
 from app.session.walk import Stop, Walk, group_findings
 from app.store.project import Project
+from app.wording import count
 
 log = logging.getLogger(__name__)
 
 
-class Events:
-    """Plain events: callbacks by name, called in the order they were connected.
+#: Runs ``job()`` away from the caller's thread and later calls ``deliver(result)`` on the
+#: caller's thread (the window's event loop): the session's only way to work in the background.
+Background = Callable[[Callable[[], Any], Callable[[Any], None]], None]
 
-    Examples
-    --------
-    >>> seen = []
-    >>> ev = Events(); ev.connect("stop", seen.append); ev.emit("stop", 3); seen
-    [3]
-    """
 
-    def __init__(self) -> None:
-        self._subscribers: dict[str, list[Callable[..., Any]]] = defaultdict(list)
-
-    def connect(self, name: str, fn: Callable[..., Any]) -> None:
-        self._subscribers[name].append(fn)
-
-    def emit(self, name: str, *args: Any) -> None:
-        for fn in list(self._subscribers.get(name, ())):
-            fn(*args)
+def run_here(job: Callable[[], Any], deliver: Callable[[Any], None]) -> None:
+    """The default :data:`Background`: run the job now and deliver its result at once."""
+    deliver(job())
 
 
 class Session:
@@ -70,6 +67,9 @@ class Session:
     apply
         Applies an edit and returns what the store did, or None when it was not done (the
         window passes its own, which reports refusals); default: the project's.
+    background
+        Where a changed frame's findings are computed again (:data:`Background`); default:
+        at once, in the caller's thread (:func:`run_here`).
 
     Events
     ------
@@ -77,10 +77,14 @@ class Session:
         The walk moved (None: it reached the end and the stop it was on is gone).
     ``message(str)``
         Something to tell the annotator.
+    ``refreshed(int)``
+        A frame the walk changed has its findings computed again (the result is in; its
+        stops may have changed).
     """
 
     def __init__(self, project: Project, order: Callable[[], Sequence[int]] | None = None,
-                 apply: Callable[[Edit], Any] | None = None):
+                 apply: Callable[[Edit], Any] | None = None,
+                 background: Background | None = None):
         self.project = project
         self.skeleton = project.skeleton
         self.events = Events()
@@ -89,6 +93,9 @@ class Session:
         self.names = Names.of_frame(self.skeleton, [])
         #: What is selected in the frame (the Canvas shows and changes it).
         self.selection = Selection()
+        #: The people the Canvas shows, their colours, and its modes (the Canvas is a view
+        #: of this and turns gestures into its calls).
+        self.view = View()
         #: The open differences of the frame shown, when it is disputed.
         self.dispute: Dispute | None = None
         self._order = order or self._suspicion_order
@@ -103,6 +110,17 @@ class Session:
         self._own: dict[int, str] = {}
         #: Frames the walk is editing right now (their change notices are its own).
         self._applying: set[int] = set()
+        self._background = background or run_here
+        #: Per frame, raised by every edit: a recompute's result for an older one is stale.
+        self._revision: dict[int, int] = defaultdict(int)
+        #: Per frame the walk changed, its stops computed again for the current revision.
+        self._fresh: dict[int, list[Stop]] = {}
+        #: Frames whose findings are being computed again for their current revision.
+        self.pending: set[int] = set()
+        #: Frames the walk left before their recompute came in.
+        self._left: set[int] = set()
+        #: Frames the walk comes back to after its last: their stops passed stay passed.
+        self._revisits: set[int] = set()
 
     # ------------------------------------------------------------------ frame
 
@@ -147,7 +165,10 @@ class Session:
         """The frame's stops, worst first: its findings, or in a project without findings
         triage's reasons about people."""
         if frame_id not in self._stops:
-            self._stops[frame_id] = self._read_stops(frame_id)
+            read = self._read_stops(frame_id)
+            if frame_id in self._revisits:  # read again: still without the stops passed
+                read = self._unpassed(frame_id, read)
+            self._stops[frame_id] = read
         return self._stops[frame_id]
 
     def _read_stops(self, frame_id: int) -> list[Stop]:
@@ -194,7 +215,7 @@ class Session:
         """Go to the next (1) or previous (-1) stop; tell the listeners."""
         was = self.walk.current
         if step > 0 and was is not None and was.frame_id == self.frame_id:
-            self._passed[was.frame_id].add(was.key)
+            self._passed[was.frame_id].update([was.key, *(f.id for f in was.findings)])
             self._refresh_at_end(was.frame_id)
         stop = self.walk.step(step, self.frame_id)
         if stop is None:
@@ -213,8 +234,9 @@ class Session:
         return self.step(1)
 
     def _refresh_at_end(self, frame_id: int) -> None:
-        """At the end of a frame the walk changed, compute its findings again and offer the
-        ones not yet passed, before moving on."""
+        """At the end of a frame the walk changed, offer its fresh findings not yet passed
+        before moving on, if their recompute is in; if it is not, move on and let them
+        join the frame's list when they arrive."""
         if frame_id not in self._dirty:
             return
         left = self._stops.get(frame_id, [])
@@ -224,12 +246,65 @@ class Session:
             return
         if current is not None and current.key not in keys and self.walk._index < len(keys):
             return
+        if frame_id not in self._fresh:
+            self._left.add(frame_id)  # still computing: the walk does not wait
+            return
         self._dirty.discard(frame_id)
-        self._stops.pop(frame_id, None)
-        fresh = [s for s in self.stops(frame_id) if s.key not in self._passed[frame_id]]
+        fresh = self._unpassed(frame_id, self._fresh.pop(frame_id))
         self._stops[frame_id] = fresh
         if fresh:
             self.walk.forget()
+
+    def _unpassed(self, frame_id: int, stops: Sequence[Stop]) -> list[Stop]:
+        passed = self._passed[frame_id]
+        return [s for s in stops if s.key not in passed
+                and not (s.findings and all(f.id in passed for f in s.findings))]
+
+    def _recompute(self, frame_id: int) -> None:
+        """Compute a changed frame's stops again in the background, for its revision now."""
+        token = self._revision[frame_id]
+        self.pending.add(frame_id)
+        self._fresh.pop(frame_id, None)
+
+        def job() -> list[Stop] | None:
+            if self._revision[frame_id] != token:
+                return None  # edited again before this started: a newer one follows
+            try:
+                return self._read_stops(frame_id)
+            except Exception:  # the walk goes on without them; the log says why
+                log.exception("computing the findings of frame %s again failed", frame_id)
+                return []
+
+        self._background(job, partial(self.recomputed, frame_id, token))
+
+    def recomputed(self, frame_id: int, token: int, stops: list[Stop] | None) -> bool:
+        """A recompute's result, delivered on the session's thread; dropped (False) when the
+        frame was edited since it started. When the walk has already left the frame, its
+        stops not yet passed join the frame's list and the walk comes back to it at the end."""
+        if stops is None or token != self._revision[frame_id] or frame_id not in self._dirty:
+            return False
+        self.pending.discard(frame_id)
+        if frame_id in self._left:
+            self._left.discard(frame_id)
+            self._dirty.discard(frame_id)
+            fresh = self._unpassed(frame_id, stops)
+            self._stops[frame_id] = fresh
+            if fresh:
+                try:
+                    name = self.project.frame(frame_id).file_name
+                except PosewrightError:
+                    name = "a frame the walk left"
+                if self.walk.revisit(frame_id):
+                    self._revisits.add(frame_id)
+                    back = "the walk comes back to them after the last frame"
+                else:
+                    back = "W goes to them from there"
+                self.events.emit("message", f"{name}: {count(len(fresh), 'more finding')} "
+                                 f"after its fixes ({back})")
+        else:
+            self._fresh[frame_id] = stops
+        self.events.emit("refreshed", frame_id)
+        return True
 
     def accept(self) -> Stop | None:
         """Accept the current stop's fix (one ledger group, one undo step), then move on."""
@@ -294,6 +369,9 @@ class Session:
             return None
         self._stops[fid] = kept
         self._dirty.add(fid)
+        self._left.discard(fid)
+        self._revision[fid] += 1
+        self._recompute(fid)
         try:
             self._own[fid] = labels_digest(self.project.labels(fid))
         except PosewrightError:
@@ -316,6 +394,10 @@ class Session:
             self._own.pop(fid, None)
             self._stops.pop(fid, None)
             self._dirty.discard(fid)
+            self._revision[fid] += 1  # a recompute under way is stale now
+            self._fresh.pop(fid, None)
+            self._left.discard(fid)
+            self.pending.discard(fid)
 
     def findings_changed(self) -> None:
         """Triage ran again: read every frame's stops again, except those the walk holds

@@ -53,7 +53,9 @@ class Stop:
     finding
         The finding, when the stop is one (None for a triage reason or a group).
     group
-        Several findings shown and accepted as one stop (see :func:`group_findings`).
+        Several findings shown and accepted as one stop (see :func:`group_findings`); when
+        ``finding`` is set too, the stop is that finding with notes about the same person
+        (the group's other members, without a fix), and its fix is that finding's alone.
     """
 
     frame_id: int
@@ -67,7 +69,7 @@ class Stop:
     @property
     def fix(self) -> Fix | None:
         """The proposed fix (a group's fixes as one), or None."""
-        if self.group:
+        if self.group and self.finding is None:
             return _joined(self.group)
         return None if self.finding is None else self.finding.fix
 
@@ -138,6 +140,65 @@ def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
     for f in found:
         grouped = next((g for g in stops if g.group[0] is f), None)
         out.append(grouped or Stop(f.frame_id, f.id, f.person_id, f.joints, f.text, f))
+    return _with_notes(out)
+
+
+#: At most this many notes' sentences are written out on a person's stop.
+NOTES_SHOWN = 2
+
+
+def _with_notes(stops: list[Stop]) -> list[Stop]:
+    """Gather a person's stops without a fix into one place, read on one card: on that
+    person's first stop with a fix (not a frame-wide group) as notes, else on their first
+    stop without one. One key passes them all.
+
+    A note proposes nothing to accept, so it costs the annotator a look, not a key of its
+    own; the fix it rides with is unchanged (a stop never carries two fixes, which could
+    disagree).
+
+    Examples
+    --------
+    >>> from app.analysis.triage.findings import FixPreview
+    >>> def f(i, kind, person, fix=True):
+    ...     x = Fix(f"give it to person {person + 1}", (), FixPreview()) if fix else None
+    ...     return Finding(i, 1, kind, person, person, (9,), ("left wrist",), f"t{i}", (),
+    ...                    1.0, 0.9, x, (person,), i)
+    >>> out = group_findings(1, [f("a", "wrong-owner", 1), f("b", "mirrored", 2, False),
+    ...                          f("c", "missing-joint", 1, False), f("d", "invented", 2, False)])
+    >>> [(s.key, [m.id for m in s.findings]) for s in out]
+    [('P:a', ['a', 'c']), ('P:b', ['b', 'd'])]
+    >>> out[0].fix.summary, out[0].text, out[1].fix, out[1].text
+    ('give it to person 2', 'ta; also tc', None, 'tb; also td')
+    """
+    host: dict[int, int] = {}
+    for i, s in enumerate(stops):
+        if s.fix is not None and s.finding is not None and s.person_id is not None:
+            host.setdefault(s.person_id, i)
+    for i, s in enumerate(stops):
+        if s.fix is None and s.findings and s.person_id is not None:
+            host.setdefault(s.person_id, i)
+    notes: dict[int, list[Stop]] = {}
+    keep: list[int] = []
+    for i, s in enumerate(stops):
+        at = host.get(s.person_id) if s.person_id is not None else None
+        if s.fix is None and s.findings and at is not None and at != i:
+            notes.setdefault(at, []).append(s)
+        else:
+            keep.append(i)
+    out = []
+    for i in keep:
+        s, extra = stops[i], notes.get(i)
+        if not extra:
+            out.append(s)
+            continue
+        said = [n.text for n in extra[:NOTES_SHOWN]]
+        more = sum(len(n.findings) for n in extra[NOTES_SHOWN:])
+        text = s.text + "; also " + "; ".join(said) + (
+            f"; and {count(more, 'more finding')} about this person" if more else "")
+        members = s.findings + tuple(m for n in extra for m in n.findings)
+        joints = tuple(dict.fromkeys(s.joints + tuple(j for n in extra for j in n.joints)))
+        out.append(Stop(s.frame_id, f"P:{s.key}", s.person_id, joints, text, s.finding,
+                        members))
     return out
 
 
@@ -215,6 +276,29 @@ class Walk:
             frame = order[nxt]
             index = 0 if step > 0 else len(self._stops(frame)) - 1
         return None
+
+    def revisit(self, frame_id: int) -> bool:
+        """Come back to a frame the walk has left, after the last frame of its order (the
+        frame's findings changed after the walk left it); False when the walk is there, or
+        the frame is not in its order.
+
+        Examples
+        --------
+        >>> stops = {7: [Stop(7, "a", 1, (), "one")], 3: [Stop(3, "c", 5, (), "three")]}
+        >>> walk = Walk(lambda: [7, 3], lambda f: stops[f])
+        >>> walk.step(1, 7).key, walk.step(1, 7).key
+        ('a', 'c')
+        >>> stops[7] = [Stop(7, "z", 1, (), "came later")]
+        >>> walk.revisit(7), walk.step(1, 3).key
+        (True, 'z')
+        """
+        order = self._snapshot
+        if order is None or frame_id not in order or (
+                self.current is not None and self.current.frame_id == frame_id):
+            return False
+        order.remove(frame_id)
+        order.append(frame_id)
+        return True
 
     def forget(self) -> None:
         """Let the next step start from the frame on screen (in the same order)."""

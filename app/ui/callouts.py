@@ -44,6 +44,8 @@ CARD_WIDTH = 380
 #: The owner list's last line: what its numbers mean.
 FIT_NOTE = ("fit 0-1: how well the joint would attach (the model's field, or limb lengths); "
             "click to give")
+#: How wide the owner list is (screen pixels): the reasons wrap below their rows.
+OWNER_WIDTH = 250
 #: How many candidates the owner list shows (the rest have no chance worth a look).
 OWNER_ROWS = 3
 
@@ -246,13 +248,16 @@ def paint_walk_card(painter: QPainter, card: WalkCard, box: QRectF, bounds: QRec
     stop = card.stop
     fix = stop.fix
     where = f" {card.where}" if card.where else ""
-    head = ("Findings" if stop.group else "Finding" if stop.finding is not None
+    head = ("Findings" if len(stop.findings) > 1 else "Finding" if stop.findings
             else "Triage") + where
     if fix is not None:
-        sure = [f.confidence for f in stop.findings]
-        conf = f" (each at least {min(sure):.0%} sure)" if stop.group else \
+        # A frame's visibility fixes are one stop of several fixes; a person's stop has one
+        # fix, with notes that propose none.
+        several = stop.finding is None and len(stop.findings) > 1
+        sure = [f.confidence for f in stop.findings if f.fix is not None]
+        conf = f" (each at least {min(sure):.0%} sure)" if several else \
             f" ({sure[0]:.0%} sure)" if sure else ""
-        summary = "mark them occluded" if stop.group else fix.summary
+        summary = "mark them occluded" if several else fix.summary
         tail = f"Fix{conf}: {summary}.  Y accepts \u00b7 I not a problem \u00b7 W skips"
     elif stop.findings:
         tail = "No fix proposed: correct it by hand.  I not a problem \u00b7 W next"
@@ -300,27 +305,29 @@ def paint_owner_list(painter: QPainter, ranking: OwnerRanking, names: Names,
                      base: QFont, avoid: QRectF | None = None,
                      keep_clear: Sequence[QPointF] = ()) -> list[tuple[QRectF, int]]:
     """The ranked owners of the selected joint in a small list beside it: the verdict, the
-    owner's row, then the best candidates (tag colour, ``person N``, fit, reason). The list
-    goes on the side of the joint that covers the fewest ``keep_clear`` points (e.g. along a
-    dispute's connectors) and not over ``avoid``. Returns each candidate row's rectangle with
-    its person id (click targets)."""
+    owner's row, then the best candidates, each on two lines (tag colour, ``person N``, fit;
+    below it, dimmer, its reason), at most :data:`OWNER_WIDTH` pixels wide. The list goes on
+    the side of the joint that covers the fewest ``keep_clear`` points (e.g. along a
+    dispute's connectors) and not over ``avoid``. Returns each candidate row's rectangle
+    with its person id (click targets)."""
     rows = ([ranking.owner] if ranking.owner is not None else []) + \
         list(ranking.candidates[:OWNER_ROWS])
-    f_head, f_row = _font(base, 11, True), _font(base, 11)
-    m_head, m_row = QFontMetrics(f_head), QFontMetrics(f_row)
+    f_head, f_row, f_why = _font(base, 11, True), _font(base, 11), _font(base, 10)
+    m_head, m_row, m_why = QFontMetrics(f_head), QFontMetrics(f_row), QFontMetrics(f_why)
+    flags = int(Qt.TextFlag.TextWordWrap)
+    inner = OWNER_WIDTH - 16
     lines = []
     for c in rows:
         who = names.person(c.person_id) + (" (owner)" if c.is_owner else "")
-        lines.append((c, who, f"{c.score:.2f}", c.reason))
-    who_w = max((m_row.horizontalAdvance(w) for _, w, _, _ in lines), default=60)
+        why = _two_lines(m_why, c.reason, inner - 20)
+        lines.append((c, who, f"fit {c.score:.2f}", why,
+                      m_why.boundingRect(0, 0, inner - 20, 1000, flags, why).height()))
     fit_w = m_row.horizontalAdvance("fit 0.00")
-    reason_w = min(max((m_row.horizontalAdvance(r) for *_, r in lines), default=80), 250)
-    width = 14 + 12 + who_w + 10 + fit_w + 10 + reason_w + 8
-    row_h = m_row.height() + 4
-    head = ranking.verdict
-    foot = FIT_NOTE
-    width = max(width, m_head.horizontalAdvance(head) + 16, m_row.horizontalAdvance(foot) + 16)
-    height = m_head.height() + 8 + row_h * len(lines) + m_row.height() + 10
+    r_head = m_head.boundingRect(0, 0, inner, 1000, flags, ranking.verdict)
+    r_foot = m_why.boundingRect(0, 0, inner, 1000, flags, FIT_NOTE)
+    row_h = m_row.height() + 2
+    height = r_head.height() + 8 + sum(row_h + h + 4 for *_, h in lines) + r_foot.height() + 8
+    width = OWNER_WIDTH
     anchor = QRectF(joint_at - QPointF(8, 8), joint_at + QPointF(8, 8))
     rect = least_covering(_beside(anchor, (width, height), bounds), keep_clear, avoid)
     if avoid is not None and rect.intersects(avoid):
@@ -332,30 +339,40 @@ def paint_owner_list(painter: QPainter, ranking: OwnerRanking, names: Names,
     painter.drawRoundedRect(rect, 5, 5)
     painter.setFont(f_head)
     painter.setPen(ACCENT if ranking.better else CARD_TEXT)
-    painter.drawText(QRectF(rect.left() + 8, rect.top() + 4, width - 16, m_head.height()), 0,
-                     head)
-    y = rect.top() + m_head.height() + 8
+    painter.drawText(QRectF(rect.left() + 8, rect.top() + 4, inner, r_head.height()), flags,
+                     ranking.verdict)
+    y = rect.top() + r_head.height() + 8
     targets = []
-    painter.setFont(f_row)
-    for c, who, fit, reason in lines:
-        row = QRectF(rect.left() + 4, y, width - 8, row_h)
+    for c, who, fit, why, why_h in lines:
+        row = QRectF(rect.left() + 4, y, width - 8, row_h + why_h + 2)
         if not c.is_owner:
             targets.append((row, c.person_id))
         painter.setPen(QPen(QColor(OUTLINE), 1.0))
         painter.setBrush(palette_colour(colours.get(c.person_id, c.number - 1)))
-        painter.drawEllipse(QPointF(row.left() + 10, row.center().y()), 5, 5)
+        painter.drawEllipse(QPointF(row.left() + 10, y + row_h / 2), 5, 5)
+        painter.setFont(f_row)
         painter.setPen(CARD_DIM if c.is_owner else CARD_TEXT)
         x = row.left() + 20
-        painter.drawText(QRectF(x, y, who_w, row_h), int(Qt.AlignmentFlag.AlignVCenter), who)
-        x += who_w + 10
-        painter.drawText(QRectF(x, y, fit_w, row_h), int(Qt.AlignmentFlag.AlignVCenter),
-                         f"fit {fit}")
-        x += fit_w + 10
+        centred = int(Qt.AlignmentFlag.AlignVCenter)
+        painter.drawText(QRectF(x, y, inner - 20 - fit_w - 6, row_h), centred,
+                         m_row.elidedText(who, Qt.TextElideMode.ElideRight,
+                                          int(inner - 26 - fit_w)))
+        painter.drawText(QRectF(row.right() - fit_w - 6, y, fit_w, row_h),
+                         centred | int(Qt.AlignmentFlag.AlignRight), fit)
+        painter.setFont(f_why)
         painter.setPen(CARD_DIM)
-        painter.drawText(QRectF(x, y, reason_w, row_h), int(Qt.AlignmentFlag.AlignVCenter),
-                         m_row.elidedText(reason, Qt.TextElideMode.ElideRight, int(reason_w)))
-        y += row_h
+        painter.drawText(QRectF(x, y + row_h, inner - 20, why_h), flags, why)
+        y += row_h + why_h + 4
+    painter.setFont(f_why)
     painter.setPen(CARD_DIM)
-    painter.drawText(QRectF(rect.left() + 8, y + 2, width - 16, m_row.height()), 0, foot)
+    painter.drawText(QRectF(rect.left() + 8, y + 2, inner, r_foot.height()), flags, FIT_NOTE)
     painter.restore()
     return targets
+
+
+def _two_lines(metrics: QFontMetrics, text: str, width: int) -> str:
+    """``text`` cut to what two lines of ``width`` pixels hold, ending in an ellipsis when
+    cut (the word-wrapped draw then shows at most two lines)."""
+    if metrics.horizontalAdvance(text) <= 2 * width - metrics.averageCharWidth() * 4:
+        return text
+    return metrics.elidedText(text, Qt.TextElideMode.ElideRight, int(2 * width * 0.9))

@@ -52,12 +52,13 @@ from app.model.skeleton import Skeleton
 from app.session.blurred import BlurredFrame
 from app.session.owners import OwnerRanking
 from app.session.selection import Selection
+from app.session.view import View
 from app.session.walk import Stop
 from app.ui import regions as geometry
 from app.ui.blurred import paint_blurred
 from app.ui.callouts import WalkCard, paint_owner_list, paint_preview, paint_walk_card, stop_points
 from app.ui.images import Decoded, qimage_view, shrink
-from app.ui.overlay import OverlayLayout, OverlayStyle, assign_colours, paint_overlay
+from app.ui.overlay import OverlayLayout, OverlayStyle, paint_overlay
 
 BACKGROUND = QColor("#262626")
 PLACEHOLDER = QColor("#3a3a3a")
@@ -171,10 +172,10 @@ class Canvas(QWidget):
         self.setMinimumSize(200, 150)
 
         self.frame: Frame | None = None
-        self.people: list[Person] = []
-        self.flags: dict[int, frozenset[int]] = {}
-        #: Person id -> palette index; kept while the frame is edited so colours do not jump.
-        self.colours: dict[int, int] = {}
+        #: The people shown, their flags and colours, and the modes (Qt-free,
+        #: app/session/view.py; the window shares its session's through :meth:`use_view`).
+        self.view = View()
+        self.view.events.connect("mode", self.update)
         self.read_only = False
         self.show_unlabeled = False
         self.show_tags = True
@@ -182,11 +183,9 @@ class Canvas(QWidget):
         #: outline it (:mod:`app.ui.blurred`).
         self.blurred: BlurredFrame | None = None
         self.show_blurred = True
-        self.focus_mode = False
         self.message = ""  # shown instead of the image when it cannot be shown
-        #: The frame's ignore regions ``(id, polygons)`` and region mode.
+        #: The frame's ignore regions ``(id, polygons)``.
         self.regions: list[tuple[int, geometry.Polygons]] = []
-        self.region_mode = False
         self._region: int | None = None
         self._draft: list[tuple[float, float]] = []
         self._region_drag: _RegionDrag | None = None
@@ -218,7 +217,6 @@ class Canvas(QWidget):
         self._drag: _Drag | None = None
         self._pan: QPointF | None = None
         self._pan_moved = False
-        self._pick: str | None = None
         self._layout: OverlayLayout | None = None
         self._hit_pts = np.zeros((0, 2))
         self._hit_pid = np.zeros(0, int)
@@ -237,6 +235,42 @@ class Canvas(QWidget):
         self.owners: OwnerRanking | None = None
         self.owner_rows: list[tuple[QRectF, int]] = []
 
+    # ------------------------------------------------------------------ the view's state
+
+    def use_view(self, view: View) -> None:
+        """Show this view's people and modes (the window's session's)."""
+        self.view = view
+        view.events.connect("mode", self.update)
+
+    @property
+    def people(self) -> list[Any]:
+        """The people shown, in tag order (the view's)."""
+        return self.view.people
+
+    @property
+    def flags(self) -> dict[int, frozenset[int]]:
+        """Person id -> flagged joints (the view's)."""
+        return self.view.flags
+
+    @property
+    def colours(self) -> dict[int, int]:
+        """Person id -> palette index (the view's)."""
+        return self.view.colours
+
+    @property
+    def region_mode(self) -> bool:
+        """Whether the mouse works on ignore regions (the view's mode)."""
+        return self.view.region_mode
+
+    @property
+    def focus_mode(self) -> bool:
+        """Whether the selected person is shown in full and the others dimmed (the view's)."""
+        return self.view.focus
+
+    @focus_mode.setter
+    def focus_mode(self, on: bool) -> None:
+        self.view.set_focus(on)
+
     # ------------------------------------------------------------------ content
 
     def set_frame(self, frame: Frame, people: list[Person], flags: dict[int, frozenset[int]],
@@ -252,11 +286,10 @@ class Canvas(QWidget):
         self.selection.select_person(None)
         self._hover = None
         self._drag = None
-        self._pick = None
+        self.view.set_pick(None)
         self.walk_card = None
         self.owners = None
         self.owner_rows = []
-        self.colours = {}
         self.regions = []
         self._region = None
         self._draft = []
@@ -267,7 +300,7 @@ class Canvas(QWidget):
         self.blurred = None
         self._ours = list(people)
         self._flags_in = dict(flags)
-        self._set_people(people, flags)
+        self._set_people(people, flags, keep_colours=False)
         if decoded is not None:
             self.set_image(decoded)
         if not keep_view:
@@ -381,9 +414,8 @@ class Canvas(QWidget):
     def set_region_mode(self, on: bool) -> None:
         """Enter or leave region mode (leaving drops a polygon being drawn)."""
         on = bool(on)
-        if on == self.region_mode:
+        if not self.view.set_region_mode(on):
             return
-        self.region_mode = on
         self._draft = []
         self._region_drag = None
         self._drag = None
@@ -433,12 +465,9 @@ class Canvas(QWidget):
         assert self.frame is not None
         return (-0.5, -0.5, self.frame.width - 0.5, self.frame.height - 0.5)
 
-    def _set_people(self, people: list[Person], flags: dict[int, frozenset[int]]) -> None:
-        self.people = list(people)
-        self.flags = dict(flags)
-        ids = {p.id for p in self.people}
-        self.colours = assign_colours(
-            self.people, {p: c for p, c in self.colours.items() if p in ids})
+    def _set_people(self, people: list[Person], flags: dict[int, frozenset[int]],
+                    keep_colours: bool = True) -> None:
+        self.view.show(people, flags, keep_colours)
         # Hit-testing arrays for all people at once: placed joints, and labelled limbs.
         k = self.skeleton.num_joints
         n = len(self.people)
@@ -463,14 +492,11 @@ class Canvas(QWidget):
             self._seg_pid = np.zeros(0, int)
 
     def person(self, person_id: int) -> Person | None:
-        return next((p for p in self.people if p.id == person_id), None)
+        return self.view.person(person_id)
 
     def number_of(self, person_id: int) -> int | None:
         """The tag number of a person in this frame (1-based)."""
-        for n, p in enumerate(self.people):
-            if p.id == person_id:
-                return n + 1
-        return None
+        return self.view.number_of(person_id)
 
     # ------------------------------------------------------------------ selection
 
@@ -506,7 +532,7 @@ class Canvas(QWidget):
         self.selectionChanged.emit()
 
     def clear_selection(self) -> None:
-        self._pick = None
+        self.view.set_pick(None)
         self.select_person(None)
 
     def cycle_joint(self, step: int) -> bool:
@@ -520,12 +546,12 @@ class Canvas(QWidget):
 
     def set_pick_mode(self, mode: str | None) -> None:
         """``"merge"``: the next click on a person emits :attr:`personPicked`."""
-        self._pick = mode
+        self.view.set_pick(mode)
         self.setCursor(Qt.CursorShape.CrossCursor if mode else Qt.CursorShape.ArrowCursor)
 
     @property
     def pick_mode(self) -> str | None:
-        return self._pick
+        return self.view.pick
 
     # ------------------------------------------------------------------ view
 
@@ -787,6 +813,26 @@ class Canvas(QWidget):
         p.drawRoundedRect(QRectF(rect), 4, 4)
         p.drawText(rect, Qt.AlignmentFlag.AlignCenter, text)
 
+    def _paint_placeholder_text(self, p: QPainter, image: QRectF) -> None:
+        """Why no image shows, in one line where it hides nothing: in the margin below the
+        image when there is room, else along the Canvas's bottom edge, under the people
+        (they are painted after it)."""
+        metrics = p.fontMetrics()
+        text = metrics.elidedText(self.message or "loading image\u2026",
+                                  Qt.TextElideMode.ElideMiddle, max(self.width() - 32, 40))
+        h = metrics.height() + 6
+        y = image.bottom() + 4 if image.bottom() + 4 + h <= self.height() else self.height() - h - 2
+        x = max(image.left(), 8.0)
+        box = QRectF(x, y, metrics.horizontalAdvance(text) + 14, h)
+        p.save()
+        p.setRenderHint(QPainter.RenderHint.Antialiasing, True)
+        p.setPen(Qt.PenStyle.NoPen)
+        p.setBrush(QColor(20, 20, 20, 170))
+        p.drawRoundedRect(box, 4, 4)
+        p.setPen(QColor("#d0d0d0"))
+        p.drawText(box, Qt.AlignmentFlag.AlignCenter, text)
+        p.restore()
+
     def _paint_image(self, p: QPainter) -> None:
         assert self.frame is not None
         s = self._scale
@@ -795,8 +841,7 @@ class Canvas(QWidget):
         target = QRectF(top_left, QSizeF(w * s, h * s))
         if self._decoded is None:
             p.fillRect(target, PLACEHOLDER)
-            p.setPen(QColor("#d0d0d0"))
-            p.drawText(target, Qt.AlignmentFlag.AlignCenter, self.message or "loading image\u2026")
+            self._paint_placeholder_text(p, target)
             return
         if s < 0.999:
             # Zoomed out: draw a copy shrunk once per zoom level rather than rescaling on every
@@ -849,13 +894,13 @@ class Canvas(QWidget):
             self._region_press(pos)
             return
         chosen = self.owner_row_at(pos)
-        if chosen is not None and self._pick is None:
+        if chosen is not None and self.view.pick is None:
             self.ownerChosen.emit(chosen)
             return
-        if self._pick is not None:
+        if self.view.pick is not None:
             pid = self.person_at(pos)
             if pid is not None:
-                self._pick = None
+                self.view.set_pick(None)
                 self.setCursor(Qt.CursorShape.ArrowCursor)
                 self.personPicked.emit(pid)
             return
@@ -918,7 +963,7 @@ class Canvas(QWidget):
         hover = (hit[0], hit[1]) if hit is not None else None
         if hover != self._hover:
             self._hover = hover
-            if self._pick is None:
+            if self.view.pick is None:
                 self.setCursor(Qt.CursorShape.PointingHandCursor if hover
                                else Qt.CursorShape.ArrowCursor)
             self.setToolTip(self._describe(hover) if hover else "")
@@ -941,10 +986,10 @@ class Canvas(QWidget):
             return
         if self._pan is not None:
             self._pan = None
-            self.setCursor(Qt.CursorShape.CrossCursor if self._pick
+            self.setCursor(Qt.CursorShape.CrossCursor if self.view.pick
                            else Qt.CursorShape.ArrowCursor)
             if not self._pan_moved and event.button() == Qt.MouseButton.LeftButton \
-                    and self._pick is None and not self.region_mode and not (
+                    and self.view.pick is None and not self.region_mode and not (
                     event.modifiers() & Qt.KeyboardModifier.ControlModifier):
                 self.select_person(None)
 

@@ -51,6 +51,7 @@ from PySide6.QtGui import (
 )
 
 from app.model.skeleton import Side, Skeleton
+from app.session.view import assign_colours as _assign_colours
 
 #: The eight colours of Okabe and Ito (2008), in the paper's order: black, orange, sky blue,
 #: bluish green, yellow, blue, vermillion, reddish purple.
@@ -99,28 +100,8 @@ def palette_colour(index: int) -> QColor:
 
 def assign_colours(people: Sequence[_PersonLike],
                    keep: Mapping[int, int] | None = None) -> dict[int, int]:
-    """Give each person a palette index so that people close together differ in colour.
-
-    Parameters
-    ----------
-    people
-        The frame's people in tag order.
-    keep
-        Indices to keep (people already on screen keep their colour while the frame is
-        edited); only the others are assigned.
-
-    Returns
-    -------
-    dict
-        Person id to an index into :data:`PERSON_COLOURS`.
-
-    Notes
-    -----
-    Greedy in tag order. The distance between two people is the gap between the boxes around
-    their placed joints (0 when the boxes overlap), ties broken by the distance between the box
-    centres. Each person takes the colour whose nearest holder is farthest away (an unused
-    colour first, the lowest index among equals), so with seven people or fewer everyone differs
-    and in a crowd the repeats land far apart. Common practice for map colouring, no source.
+    """Palette indices into :data:`PERSON_COLOURS` that set people close together apart
+    (:func:`app.session.view.assign_colours`, the session's rule, with this palette's size).
 
     Examples
     --------
@@ -130,47 +111,7 @@ def assign_colours(people: Sequence[_PersonLike],
     >>> assign_colours([far, near])
     {1: 0, 2: 1}
     """
-    n_colours = len(PERSON_COLOURS)
-    n = len(people)
-    if n == 0:
-        return {}
-    xy = np.stack([p.keypoints[:, :2] for p in people])
-    placed = np.isfinite(xy).all(axis=2, keepdims=True)
-    with np.errstate(invalid="ignore"):
-        lo = np.where(placed, xy, np.inf).min(axis=1)
-        hi = np.where(placed, xy, -np.inf).max(axis=1)
-    boxes = np.hstack([lo, hi])
-    boxes[~placed.any(axis=1)[:, 0]] = np.nan
-    # Pairwise box gap and centre distance, as whole arrays; unknown boxes are infinitely far.
-    lo, hi = boxes[:, None, :2], boxes[:, None, 2:]
-    gap_xy = np.maximum(np.maximum(lo - boxes[None, :, 2:], boxes[None, :, :2] - hi), 0)
-    centres = (boxes[:, :2] + boxes[:, 2:]) / 2
-    gap = np.hypot(gap_xy[..., 0], gap_xy[..., 1])
-    centre = np.hypot(*(centres[:, None, :] - centres[None, :, :]).transpose(2, 0, 1))
-    gap = np.where(np.isnan(gap), np.inf, gap)
-    centre = np.where(np.isnan(centre), np.inf, centre)
-    colour = np.full(n, -1)
-    keep = keep or {}
-    for i, p in enumerate(people):
-        if p.id in keep:
-            colour[i] = int(keep[p.id]) % n_colours
-    for i in range(n):
-        if colour[i] >= 0:
-            continue
-        held = np.flatnonzero(colour >= 0)
-        # For each colour, its nearest holder (by gap, ties by centre distance) ...
-        best = np.full((n_colours, 2), np.inf)
-        if len(held):
-            order = np.lexsort((centre[i, held], gap[i, held], colour[held]))
-            ranked = held[order]
-            first = np.ones(len(ranked), dtype=bool)
-            first[1:] = colour[ranked][1:] != colour[ranked][:-1]
-            winners = ranked[first]
-            best[colour[winners]] = np.column_stack([gap[i, winners], centre[i, winners]])
-        # ... and the colour whose nearest holder is farthest wins (lowest index among equals).
-        order = np.lexsort((np.arange(n_colours), -best[:, 1], -best[:, 0]))
-        colour[i] = int(order[0])
-    return {p.id: int(colour[i]) for i, p in enumerate(people)}
+    return _assign_colours(people, keep, len(PERSON_COLOURS))
 
 
 def relative_luminance(colour: QColor) -> float:

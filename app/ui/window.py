@@ -87,7 +87,7 @@ from app.ui.panels import LedgerPanel, NotesPanel, OwnersPanel, WorklistPanel
 from app.ui.settings import cache_bytes, settings
 from app.ui.strips import Strip
 from app.ui.timeline import TrackTimeline
-from app.ui.work import Job, describe_error, run_job
+from app.ui.work import Background, Job, describe_error, run_job
 from app.wording import count, plural
 
 log = logging.getLogger(__name__)
@@ -186,10 +186,15 @@ class MainWindow(QMainWindow):
         self.owners = OwnersPanel(self.actions_by_name)
         #: The Qt-free state (app/session): the frame's names, the selection the Canvas
         #: shows, the walk.
-        self.session = Session(project, order=self.worklist.ordered_ids, apply=self.apply)
+        #: Where the session computes a changed frame's findings again (a worker thread).
+        self.background = Background(self)
+        self.session = Session(project, order=self.worklist.ordered_ids, apply=self.apply,
+                               background=self.background)
         self.session.events.connect("stop", self._show_stop)
         self.session.events.connect("message", self._message)
+        self.session.events.connect("refreshed", self._refreshed)
         self.canvas.selection = self.session.selection
+        self.canvas.use_view(self.session.view)
         #: The selected joint's owner and candidates (None without one selected joint).
         self.owner_ranking: OwnerRanking | None = None
         self.ledger = LedgerPanel(self.ledger_model, self.actions_by_name)
@@ -485,6 +490,7 @@ class MainWindow(QMainWindow):
         self.save_layout()
         self.events.detach()
         self.loader.shutdown()
+        self.background.shutdown()
         for job in list(self._jobs):
             if not shiboken_is_valid(job):  # finished and already deleted by Qt
                 continue
@@ -1132,6 +1138,12 @@ class MainWindow(QMainWindow):
     def session_dismiss(self) -> None:
         self._cancel_typing()
         self.session.dismiss()
+
+    def _refreshed(self, frame_id: int) -> None:
+        """A changed frame's findings came back from the worker: say the shown frame's
+        count again."""
+        if frame_id == self.frame_id and not self._closed:
+            self._update_status()
 
     def _show_stop(self, stop: Stop | None) -> None:
         """The walk arrived at a stop: show its frame, select what it is about, centre on it

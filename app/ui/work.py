@@ -1,4 +1,5 @@
-"""Long work off the UI thread: a worker thread, a progress dialog, and Cancel.
+"""Long work off the UI thread: a worker thread, a progress dialog, and Cancel; and the
+session's quiet background work (:class:`Background`: no dialog, results on the UI thread).
 
 A job is a function ``fn(progress) -> result`` from :mod:`app.jobs` or
 :mod:`app.jobs_analysis`. It runs in a :class:`~PySide6.QtCore.QThread`; its
@@ -15,7 +16,7 @@ import threading
 from collections.abc import Callable
 from typing import Any
 
-from PySide6.QtCore import QObject, Qt, QThread, Signal
+from PySide6.QtCore import QObject, QRunnable, Qt, QThread, QThreadPool, Signal
 from PySide6.QtWidgets import QProgressDialog, QWidget
 
 from app.errors import Cancelled, PosewrightError
@@ -51,6 +52,58 @@ class Job(QThread):
 
     def cancel(self) -> None:
         self.cancel_event.set()
+
+
+class _Task(QRunnable):
+    def __init__(self, runner: Background, job: Callable[[], Any],
+                 deliver: Callable[[Any], None]):
+        super().__init__()
+        self._runner, self._job, self._deliver = runner, job, deliver
+
+    def run(self) -> None:
+        try:
+            result = self._job()
+        except Exception:  # report, never lose the worker silently
+            log.exception("background work failed")
+            result = None
+        self._runner.finished.emit(self._deliver, result)
+
+
+class Background(QObject):
+    """The session's background runner (:data:`app.session.session.Background`): jobs run
+    one at a time on a worker thread, in the order given, and each result is delivered on
+    the UI thread by a queued signal. ``delivered`` tells when a result has been handed
+    over (tests wait on it, never on a time)."""
+
+    finished = Signal(object, object)
+    delivered = Signal()
+
+    def __init__(self, parent: QObject | None = None):
+        super().__init__(parent)
+        self._pool = QThreadPool(self)
+        self._pool.setMaxThreadCount(1)
+        self.finished.connect(self._hand_over, Qt.ConnectionType.QueuedConnection)
+        self._closed = False
+
+    def __call__(self, job: Callable[[], Any], deliver: Callable[[Any], None]) -> None:
+        """Run ``job()`` on the worker; call ``deliver(result)`` on the UI thread after."""
+        if not self._closed:
+            self._pool.start(_Task(self, job, deliver))
+
+    def _hand_over(self, deliver: Callable[[Any], None], result: Any) -> None:
+        if not self._closed:
+            deliver(result)
+        self.delivered.emit()
+
+    def idle(self) -> bool:
+        """True when no job is queued or running."""
+        return self._pool.activeThreadCount() == 0
+
+    def shutdown(self) -> None:
+        """Take no more jobs and wait for the one running (results are no longer delivered)."""
+        self._closed = True
+        self._pool.clear()
+        self._pool.waitForDone()
 
 
 def run_job(parent: QWidget, title: str, fn: Callable[[Progress], Any],

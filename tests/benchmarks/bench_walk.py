@@ -11,11 +11,13 @@ end of the Worklist. Figures:
   2.5.
 - Time per step: from the key's action to the next finding painted on the Canvas (the
   window's own work: the edit committed, the frame shown, the callouts drawn), median and
-  95th percentile over the walk, apart for steps that stay in a frame and steps that end one
-  (the frame's findings computed again once, before the walk leaves it). Goal: the next
-  finding shown within 50 ms. Wall clock, and the process's CPU time beside it, since a
-  shared machine's load inflates the wall clock (the load average is reported); no baseline
-  exists.
+  95th percentile over the walk, apart for steps that stay in a frame and steps that end one.
+  Goal: the next finding shown within 50 ms. A frame the walk changed has its findings
+  computed again on a worker thread after each accept (:mod:`app.session.session`); the
+  scripted annotator waits for that result before the next key, as a person reading the card
+  would give it time, and that wait is reported apart (it is not the UI thread's time).
+  Wall clock, and the process's CPU time beside it, since a shared machine's load inflates
+  the wall clock (the load average is reported); no baseline exists.
 """
 
 from __future__ import annotations
@@ -73,6 +75,7 @@ def walk_demo(folder: Path) -> dict:
     ends: list[float] = []
     cpu_inside: list[float] = []
     cpu_ends: list[float] = []
+    waits: list[float] = []
     press = "next_finding"
     for _ in range(5000):
         stop_was = window.session.current
@@ -91,6 +94,15 @@ def walk_demo(folder: Path) -> dict:
         (cpu_inside if same else cpu_ends).append(dc)
         if stop is None:
             break
+        # A changed frame's findings are computed again on a worker thread while the
+        # annotator reads the card; a person takes longer to read it than the recompute
+        # takes, so the scripted one waits for it (timed apart) before the next key.
+        w0 = time.perf_counter()
+        while window.session.pending:
+            app.processEvents()
+            time.sleep(0.002)
+        if press == "accept_fix":
+            waits.append(time.perf_counter() - w0)
         if stop.fix is not None and actions["accept_fix"].isEnabled() and not (
                 stop is stop_was and press == "accept_fix"):  # refused: skip it
             press = "accept_fix"
@@ -105,7 +117,7 @@ def walk_demo(folder: Path) -> dict:
     project.close()
     return {"presses": presses, "accepted": accepted, "skipped": skipped, "before": before,
             "after": after, "inside": inside, "ends": ends,
-            "cpu_inside": cpu_inside, "cpu_ends": cpu_ends}
+            "cpu_inside": cpu_inside, "cpu_ends": cpu_ends, "waits": waits}
 
 
 def _p95(xs: list[float]) -> float:
@@ -123,7 +135,7 @@ def run() -> list[dict]:
               f"{got['skipped']} skips, the first W), wrong people {got['before']} -> "
               f"{got['after']} (OKS 0.8 against the truth)")
     ms = {k: 1000 * statistics.median(got[k]) if got[k] else float("nan")
-          for k in ("inside", "ends", "cpu_inside", "cpu_ends")}
+          for k in ("inside", "ends", "cpu_inside", "cpu_ends", "waits")}
     load = os.getloadavg()[0]
     where = f"load average {load:.1f} on {os.cpu_count()} cores"
     return [
@@ -139,6 +151,9 @@ def run() -> list[dict]:
         row("walk: next finding shown, next frame (median wall)", ms["ends"], "ms",
             "<= 50 ms", ms["ends"] <= 50,
             f"95th percentile {1000 * _p95(got['ends']):.0f} ms over {len(got['ends'])} "
-            f"steps; includes the left frame's findings computed again; CPU median "
-            f"{ms['cpu_ends']:.0f} ms"),
+            f"steps; CPU median {ms['cpu_ends']:.0f} ms"),
+        row("walk: changed frame's findings back from the worker (median)", ms["waits"],
+            "ms", "(none)", True,
+            f"95th percentile {1000 * _p95(got['waits']):.0f} ms over {len(got['waits'])} "
+            f"accepts, counted from the next finding shown; the UI thread is free meanwhile"),
     ]

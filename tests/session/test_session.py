@@ -95,3 +95,103 @@ def test_without_findings_the_walk_stops_at_triage_reasons_about_people(scene):
     assert stop.text.startswith("person 1: ")
     assert s.step(1) is None, "the frame-level reason is not a stop"
     assert s.accept() is None and "no fix" in said[-1]
+
+
+def _note(fid, pid, key, kind, joint, name, fix=None):
+    """An invented finding about one joint of one person (synthetic)."""
+    from app.analysis.triage.findings import Finding
+
+    return Finding(key, fid, kind, pid, 1, (joint,), (name,), f"person 1's {name}: {kind}",
+                   (), 1.0, 0.9, fix, (pid,), key * 2)
+
+
+def test_a_persons_findings_without_a_fix_ride_on_their_stop_with_one(scene):
+    """One key passes a person's findings: the notes that propose nothing are read on the
+    card of that person's fix, and dismissing the stop dismisses them all."""
+    from app.analysis.triage.findings import Fix, FixPreview, labels_digest
+    from app.model.edits import SetVisibility
+
+    project, fids, first = scene
+    fid = fids[0]
+    fix = Fix("mark person 1's left wrist occluded", (SetVisibility(fid, first, 9, 1),),
+              FixPreview(occluded=((first, 9),)))
+    found = [_note(fid, first, "Fa", "wrong-owner", 9, "left wrist", fix),
+             _note(fid, first + 1, "Fb", "mirrored", 5, "left shoulder"),
+             _note(fid, first, "Fc", "missing-joint", 10, "right wrist"),
+             _note(fid, first, "Fd", "invented", 1, "left eye")]
+    project.store_findings({fid: (labels_digest(project.labels(fid)),
+                                  [f.to_dict() for f in found])})
+    s, _, _ = _session(project, [fid])
+    stops = s.stops(fid)
+    assert [[f.id for f in x.findings] for x in stops] == [["Fa", "Fc", "Fd"], ["Fb"]]
+    assert stops[0].fix == fix and "also person 1's right wrist" in stops[0].text
+    assert s.step(1).key == stops[0].key
+    assert s.dismiss().key == "Fb", "one key, and the walk is on the other person"
+    assert project.dismissed()[fid] == {"FaFa", "FcFc", "FdFd"}, "its notes went with it"
+
+
+def _two_frames_of_fixes(project, fids, first):
+    """Stored findings (invented): two fixes about the two people of the first frame, one
+    about the first person of the second."""
+    from app.analysis.triage.findings import Fix, FixPreview, labels_digest
+    from app.model.edits import SetVisibility
+
+    def fixed(fid, pid, key):
+        fix = Fix(f"mark {key}'s wrist occluded", (SetVisibility(fid, pid, 9, 1),),
+                  FixPreview(occluded=((pid, 9),)))
+        return _note(fid, pid, key, "wrong-owner", 9, "left wrist", fix)
+
+    per = {fids[0]: [fixed(fids[0], first, "Fa"), fixed(fids[0], first + 1, "Fb")],
+           fids[1]: [fixed(fids[1], first + 2, "Fc")]}
+    project.store_findings({fid: (labels_digest(project.labels(fid)), [f.to_dict() for f in fs])
+                            for fid, fs in per.items()})
+
+
+def test_the_walk_does_not_wait_for_a_changed_frames_recompute(scene):
+    """The recompute runs in the background (a runner held by the test, synchronous): at the
+    end of the frame the walk moves on at once; a result for an older revision is dropped;
+    the fresh findings that arrive later join the frame's list, without those passed, and
+    the walk comes back to that frame after the last one."""
+    from app.session import Stop
+
+    project, fids, first = scene
+    _two_frames_of_fixes(project, fids, first)
+    held = []
+    s = Session(project, order=lambda: fids[:2],
+                background=lambda job, deliver: held.append((job, deliver)))
+    said = []
+    s.events.connect("message", said.append)
+    s.open_frame(fids[0])
+    assert s.step(1).key == "Fa"
+    assert s.accept().key == "Fb", "the walk moved on by itself"
+    assert s.pending == {fids[0]} and len(held) == 1
+    nxt = _follow(s, s.accept())
+    assert nxt.key == "Fc" and nxt.frame_id == fids[1], "it did not wait for the recompute"
+    assert len(held) == 2 and held[0][0]() is None, "the older job knows it is stale"
+    late = Stop(fids[0], "Fz", first, (9,), "person 1's left wrist: still wrong")
+    passed = Stop(fids[0], "Fa", first, (9,), "passed already")
+    assert held[0][1]([late]) is False, "a result for an older revision is dropped"
+    assert held[1][1]([passed, late]) is True and not s.pending
+    assert [x.key for x in s.stops(fids[0])] == ["Fz"], "fresh, without the ones passed"
+    assert "1 more finding after its fixes" in said[-1]
+    s.findings_changed()  # triage stored again elsewhere: the frame is read anew ...
+    s._read_stops = lambda fid: [passed, late] if fid == fids[0] else []
+    assert [x.key for x in s.stops(fids[0])] == ["Fz"], "... and what was passed stays so"
+    assert _follow(s, s.step(1)).key == "Fz", "the walk comes back to it after the last frame"
+
+
+def test_a_recompute_in_before_the_frames_end_is_offered_before_the_walk_moves_on(scene):
+    from app.session import Stop
+
+    project, fids, first = scene
+    _two_frames_of_fixes(project, fids, first)
+    held = []
+    s = Session(project, order=lambda: fids[:2],
+                background=lambda job, deliver: held.append((job, deliver)))
+    s.open_frame(fids[0])
+    s.step(1)
+    assert s.accept().key == "Fb"
+    held[0][1]([Stop(fids[0], "Fa", first, (9,), "passed"),
+                Stop(fids[0], "Fy", first, (9,), "held back by Fa")])
+    assert s.skip().key == "Fy", "offered before the walk leaves the frame"
+    assert s.skip().key == "Fc"

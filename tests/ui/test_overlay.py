@@ -196,3 +196,11 @@ def test_tags_do_not_overlap_when_people_crowd():
             ox = min(boxes[i, 2], boxes[k, 2]) - max(boxes[i, 0], boxes[k, 0])
             oy = min(boxes[i, 3], boxes[k, 3]) - max(boxes[i, 1], boxes[k, 1])
             assert ox <= 0 or oy <= 0, (i, k)
+
+
+def test_the_sessions_palette_size_is_the_canvass():
+    """app/session/view.py colours people without Qt; its palette size must be this one's."""
+    from app.session.view import PALETTE_SIZE
+    from app.ui.overlay import PERSON_COLOURS
+
+    assert len(PERSON_COLOURS) == PALETTE_SIZE

@@ -36,6 +36,9 @@ def test_give_a_joint_by_clicking_an_owner_listed_beside_it(qtbot, window, ui_pr
     window.canvas.repaint()
     rows = window.canvas.owner_rows
     assert rows, "the ranked owners are listed beside the joint on the Canvas"
+    from app.ui.callouts import OWNER_WIDTH
+
+    assert all(r.width() <= OWNER_WIDTH for r, _ in rows), "a compact list"
     rect, taker = rows[0]
     assert taker == window.owner_ranking.best.person_id, "the best candidate comes first"
     before = _people(ui_project, window.frame_id)
