@@ -251,11 +251,15 @@ def cmd_merge(args: argparse.Namespace) -> int:
         return 0
     print(f"merged {shown(args.returned)} from {shown(report.reviewer)}: "
           f"{count(report.frames, 'frames')}, {count(report.joints_taken, 'joints')} taken, "
-          f"{count(report.people_added, 'people')} added, {report.people_deleted} deleted, "
+          + (f"{count(report.tracks_taken, 'tracks')} taken, " if report.tracks_taken else "")
+          + f"{count(report.people_added, 'people')} added, {report.people_deleted} deleted, "
           f"{count(report.notes_added, 'notes')}, {count(len(report.conflicts), 'conflicts')}")
     for c in report.conflicts:
         what = c["kind"] if c["kind"] != "joints" else "joints " + ", ".join(map(str,
                                                                                 c["joints"]))
+        if c["kind"] == "track":
+            what = (f"track: kept mine, {shown(report.reviewer)} put them on track "
+                    f"{c.get('theirs_track')}")
         print(f"  conflict: frame {c['frame']}, person {c['person']}: {what}")
     if report.disputed:
         print("  disputed: frames " + ", ".join(map(str, report.disputed)))
