@@ -96,6 +96,7 @@ MEAN_RUN: dict[str, float] = {
     "spurious": 4.0,
     "split": 3.0,
     "echo": 3.0,
+    "held": 4.0,
 }
 
 _FACE = (0, 1, 2, 3, 4)
@@ -156,6 +157,9 @@ class ErrorRuns:
         ``track id -> (2,)`` the echo's offset, in units of the person's height.
     spurious
         ``(track id, joint) -> (frames left, the neighbour's track id)``.
+    held
+        ``key -> ((N,) frames left, (N, D) values)``: a dancer's draws held over frames
+        (:meth:`hold`; key the track id for the joints, minus it for the limbs).
 
     Examples
     --------
@@ -169,6 +173,24 @@ class ErrorRuns:
     invent: dict[int, tuple[np.ndarray, np.ndarray]] = field(default_factory=dict)
     echo_shift: dict[int, np.ndarray] = field(default_factory=dict)
     spurious: dict[tuple[int, int], tuple[int, int]] = field(default_factory=dict)
+    held: dict[int, tuple[np.ndarray, np.ndarray]] = field(default_factory=dict)
+
+    def hold(self, key: int, draws: np.ndarray, fresh: bool,
+             rng: np.random.Generator) -> np.ndarray:
+        """Hold a dancer's draws (one row per joint or limb) over runs of frames.
+
+        ``draws`` are this frame's fresh draws; a row whose hold has run out (or that is met
+        for the first time) takes them and is held for a geometric number of frames of mean
+        ``MEAN_RUN["held"]``; the other rows keep the values they hold. Each row's value on
+        any frame is therefore distributed as one fresh draw is. Consumes one geometric draw
+        per row.
+        """
+        length = rng.geometric(1.0 / MEAN_RUN["held"], len(draws))
+        left, values = self.held.get(key, (np.zeros(len(draws), np.int64), draws))
+        renew = (left <= 0) | fresh
+        values = np.where(renew[:, None], draws, values)
+        self.held[key] = (np.where(renew, length, left) - 1, values)
+        return values
 
     def step(self, key: tuple[int, str], share: float, fresh: bool,
              rng: np.random.Generator) -> int:
@@ -343,19 +365,24 @@ def perceive(keypoints: np.ndarray, occlusion: np.ndarray, height: np.ndarray,
             swapped = flip[legs]
             kp[legs], occ[legs] = kp[swapped], occ[swapped]
         labelled = kp[:, 2] > 0
-        noise = rng.normal(size=(num_joints, 2)) * (h * (_JITTER + _JITTER_OCCLUDED * occ))[:, None]
+        # The network's answer to each joint and limb (the offset of its peak, how high the
+        # peak is, whether it is missed, how strong the field is) is held over runs of frames.
+        held = runs.hold(tid, np.column_stack([
+            rng.normal(size=(num_joints, 2)), rng.random((num_joints, 3))]), fresh, rng)
+        held_gain = runs.hold(-tid, rng.random((len(limbs), 1)), fresh, rng)[:, 0]
+        noise = held[:, :2] * (h * (_JITTER + _JITTER_OCCLUDED * occ))[:, None]
         kp[:, :2] += noise * labelled[:, None]
         invented = _invent(runs, tid, kp, occ, h, fresh, rng)
         visible = kp[:, 2] == 2
-        peak = np.where(visible, rng.uniform(0.75, 1.0, num_joints) * (1 - 0.35 * occ),
-                        rng.uniform(0.3, 0.75, num_joints) * (1 - 0.4 * occ))
+        peak = np.where(visible, (0.75 + 0.25 * held[:, 2]) * (1 - 0.35 * occ),
+                        (0.3 + 0.45 * held[:, 2]) * (1 - 0.4 * occ))
         # An invented spot is a confident guess: the network answers as if it saw the joint.
-        peak = np.where(invented, rng.uniform(0.75, 1.0, num_joints), peak)
-        missed = rng.random(num_joints) < _MISS + _MISS_OCCLUDED * occ**2
+        peak = np.where(invented, 0.75 + 0.25 * held[:, 3], peak)
+        missed = held[:, 4] < _MISS + _MISS_OCCLUDED * occ**2
         if lost:
             peak *= rng.uniform(0.1, 0.35)
         end_occ = np.maximum(occ[limbs[:, 0]], occ[limbs[:, 1]])
-        gain = rng.uniform(0.7, 1.0, len(limbs)) * (1 - 0.6 * end_occ)
+        gain = (0.7 + 0.3 * held_gain) * (1 - 0.6 * end_occ)
         gain *= np.where(missed[limbs[:, 0]] | missed[limbs[:, 1]], 0.5, 1.0)
         if lost:
             gain *= 0.3
