@@ -3,7 +3,9 @@
 A real bottom-up estimator run on a crowded picture does not output the clean training targets
 of its labels. Its peaks wander for joints it cannot see, and are weaker there; it places some
 hidden joints at a confident but invented spot; it mistakes left for right on people seen from
-behind or side-on; it answers to a neighbour's hand in the wrong channel; it misses joints of
+behind or side-on; it answers a hand, elbow or ankle at a neighbour's (the peak there, and
+the field of the limb leading there, so the grouping gives the joint the neighbour's place);
+it misses joints of
 people mostly hidden or small, sometimes whole people; it sees a faint second copy of someone
 or loses the link between someone's shoulders and hips; its fields weaken where limbs are
 covered and blend where people overlap. We simulate that by drawing the ordinary targets
@@ -31,6 +33,9 @@ dancer's track id (and the joint, and for a neighbour's hand the neighbour's tra
   mean ``1 / q`` given per kind in :data:`MEAN_RUN`: the run length of a two-state chain that
   clears with the same chance every frame, the simplest model of an error that persists, and
   memoryless, so a sequence can start anywhere.
+- A run is the same error on every frame it lasts: the same joint, answered at the same
+  neighbour's joint (the neighbour kept by track id, the place following that neighbour), an
+  invented spot at the same place on the body (moving with it), the same echo offset.
 - A run ends early when its cause goes: the joint comes into view, the neighbour moves away,
   the dancer turns. Otherwise runs are independent of each other.
 - Between runs an error starts with the chance ``h = s / (m (1 - s) + s)`` per frame, for a
@@ -42,8 +47,19 @@ dancer's track id (and the joint, and for a neighbour's hand the neighbour's tra
 The mean runs are our choice, about half a second of footage: the dance moves four frames to
 a count, and at a moderate tempo of two counts a second a frame lasts about an eighth of a
 second. A back seen from behind stays a back for longer (6 frames), a crossing step crosses
-the legs for about a count (3). Jitter of the peaks and joints missed by a hair flicker from
-frame to frame (drawn afresh), as a network's do.
+the legs for about a count (3).
+
+The network's answer to each joint and limb of a dancer is held too: the offset of a peak
+from the joint (its jitter), the peak's height, whether a joint is missed, and how strongly
+each limb's field shows are drawn per dancer and joint (or limb) and kept for a run of frames
+(geometric, mean :data:`MEAN_RUN` ``["held"]`` = 4 frames, half a second, as above) before
+being drawn afresh (:meth:`ErrorRuns.hold`). The picture barely changes from one frame to the
+next, and neither does a network's confidence in it; drawn afresh every frame, these values
+made the grouping pair the peaks of two overlapping dancers one way on one frame and another
+way on the next, so that a hidden wrist put on a neighbour's wrist came and went frame by
+frame instead of staying there while the dancers stayed tangled. On any one frame each held
+value is distributed as a fresh draw is, so the share of frames showing each error, the
+calibrated rates below, is unchanged.
 
 The error model is our own (no published source); it is meant to look like network output to
 the grouping and to a person reading the maps, not to reproduce a particular network.
@@ -76,8 +92,9 @@ _MISS_OCCLUDED = 0.02
 # someone side-on (the crossing step makes legs hard to tell apart).
 _FLIP_BODY = 0.15
 _FLIP_LEGS = 0.06
-# Share per wrist, elbow and ankle of an extra peak in its channel at a neighbour's joint of
-# the other side, while that joint is within reach (linked arms and crossing legs invite it).
+# Share per wrist, elbow and ankle of the network answering it at a neighbour's joint of the
+# other side (its peak there, and the field of the limb that ends at it leading there), while
+# that joint is within reach (linked arms and crossing legs invite it).
 _SPURIOUS = 0.02
 # Share of frames on which the fields joining shoulders to hips fail (more so when the hips are
 # covered): the person falls apart into an upper and a lower body.
@@ -303,7 +320,7 @@ def perceive(keypoints: np.ndarray, occlusion: np.ndarray, height: np.ndarray,
     Returns
     -------
     list of NetworkPerson
-        One per true person, then any echoes (faint duplicates) and spurious single peaks.
+        One per true person, then any echoes (faint duplicates).
 
     Notes
     -----
@@ -313,7 +330,8 @@ def perceive(keypoints: np.ndarray, occlusion: np.ndarray, height: np.ndarray,
     (1 - 0.4 occ)`` for hidden ones, ``U(0.75, 1)`` for invented spots: a confident guess),
     missed joints; per limb, a field gain
     ``U(0.7, 1)(1 - 0.6 max occ)`` of its ends, halved when an end was missed. Loss, left-right
-    confusion, invented spots, the split trunk, the echo and the neighbour's peak are runs
+    confusion, invented spots, the split trunk, the echo and a joint answered at a neighbour's
+    are runs
     (:func:`run_lengths`, see the module docstring) with the module's constants as shares.
 
     References
@@ -333,7 +351,7 @@ def perceive(keypoints: np.ndarray, occlusion: np.ndarray, height: np.ndarray,
     ...                     coco_body(), rng, runs=runs)[0].keypoints[5, 0] > 55
     ...            for _ in range(40)]
     >>> "".join("x" if s else "." for s in swapped)
-    '...xxx..............................xxxx'
+    '.....xxxxxxxxxxxxxxxxxx.................'
     """
     runs = ErrorRuns() if runs is None else runs
     out: list[NetworkPerson] = []
@@ -391,6 +409,12 @@ def perceive(keypoints: np.ndarray, occlusion: np.ndarray, height: np.ndarray,
         peak = np.where(missed | ~labelled, 0.0, peak)
         sigma = float(np.clip(0.03 * h, 5.0, 12.0))
         width = float(np.clip(0.035 * h, 6.0, 14.0))
+        for joint, other in _taken(runs, keypoints, tracks, p, kp, labelled, h, fresh, flip,
+                                   rng):
+            # The network answers this joint at the neighbour's: its peak and the field of
+            # the limb that ends there lead to the neighbour's joint of the other side.
+            kp[joint, :2] = keypoints[other, flip[joint], :2]
+            peak[joint] = max(peak[joint], 0.75 + 0.25 * held[joint, 3])
         out.append(NetworkPerson(kp, peak, gain, sigma, width))
 
         shift = rng.normal(0, 0.08, 2)
@@ -407,8 +431,6 @@ def perceive(keypoints: np.ndarray, occlusion: np.ndarray, height: np.ndarray,
                 np.where(upper[limbs[:, 0]] & upper[limbs[:, 1]], 0.6, 0.0), sigma, width))
         else:
             runs.echo_shift.pop(tid, None)
-        extras.extend(_spurious(runs, keypoints, tracks, p, kp, labelled, h, fresh, sigma,
-                                width, flip, len(limbs), rng))
     return out + extras
 
 
@@ -429,12 +451,12 @@ def _invent(runs: ErrorRuns, tid: int, kp: np.ndarray, occ: np.ndarray, h: float
     return active > 0
 
 
-def _spurious(runs: ErrorRuns, keypoints: np.ndarray, tracks: np.ndarray, p: int,
-              kp: np.ndarray, labelled: np.ndarray, h: float, fresh: bool, sigma: float,
-              width: float, flip: np.ndarray, num_limbs: int, rng: np.random.Generator
-              ) -> list[NetworkPerson]:
-    """Single peaks in person ``p``'s wrist, elbow and ankle channels at a neighbour's joint of
-    the other side, in runs that last while that neighbour's joint stays within reach."""
+def _taken(runs: ErrorRuns, keypoints: np.ndarray, tracks: np.ndarray, p: int,
+           kp: np.ndarray, labelled: np.ndarray, h: float, fresh: bool, flip: np.ndarray,
+           rng: np.random.Generator) -> list[tuple[int, int]]:
+    """Person ``p``'s wrists, elbows and ankles that the network answers at a neighbour's
+    joint of the other side, in runs that last while that neighbour's joint stays within
+    reach: ``(joint, the neighbour's row)`` for each run in progress."""
     tid = int(tracks[p])
     reach = 0.35 * h
     out = []
@@ -454,13 +476,8 @@ def _spurious(runs: ErrorRuns, keypoints: np.ndarray, tracks: np.ndarray, p: int
         active = int(run_lengths(left, share, MEAN_RUN["spurious"], fresh, rng))
         runs.spurious[(tid, joint)] = (max(active - 1, 0),
                                        -1 if other is None else int(tracks[other]))
-        if not active or other is None:
-            continue
-        fake = np.zeros((len(kp), 3))
-        fake[joint] = (*keypoints[other, theirs, :2], 2)
-        amp = np.zeros(len(kp))
-        amp[joint] = rng.uniform(0.35, 0.7)
-        out.append(NetworkPerson(fake, amp, np.zeros(num_limbs), sigma, width))
+        if active and other is not None:
+            out.append((joint, other))
     return out
 
 
