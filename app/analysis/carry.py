@@ -20,11 +20,15 @@ Each changed joint ``(P, j)`` of the correction is one of
 - a person deleted: carried as deleting the same track's person.
 
 The error is present in a frame when every changed joint of ``P'`` (and every copied-from
-joint of ``Q'``) lies within :data:`TOLERANCE` of a body of where it stood before the
-correction, moved along with its body, is labelled as it was and, for a joint that got a new
-place, lies nearer its old place than its new one. An exchange of :data:`WHOLE` joints or more
-(a side swap) is judged on the mean of its joints' offsets instead, so that one joint near the
-middle of the body, where both sides are close, does not decide for all. A body's move from one
+joint of ``Q'``) is labelled as it was and lies within :data:`TOLERANCE` of a body of where it
+stood before the correction, moved along with its body (or, for a joint the correction moved,
+within :data:`FAR` of the distance it moved, when that is more; or on the same joint of the
+same neighbour when it stood on a neighbour's joint, :data:`ON_JOINT`) and, for a joint that
+got a new place, lies nearer its old place than its new one. A person whose track does not go
+on is followed to the most alike person of the next frame (:data:`FOLLOW_OKS`). An exchange
+of :data:`WHOLE` joints or more (a side swap) is judged on the mean of its joints' offsets
+instead, so that one joint near the middle of the body, where both sides are close, does not
+decide for all. A body's move from one
 frame to the next is the median over its joints of their displacement, taking each changed
 joint where it stood before the correction.
 
@@ -82,6 +86,10 @@ from app.model.targets import JointTarget, PersonTarget
 #: joint stood, moved along with the body (a tenth of a body: our choice, no source; on demo
 #: seeds 1-3 a twentieth gave the same counts of :mod:`app.demo.carrying`).
 TOLERANCE = 0.1
+#: A joint the correction moved far may have wandered further and still be the same error:
+#: it stands where it stood when within this share of the correction's distance (and nearer
+#: there than where the correction put it; our choice).
+FAR = 0.5
 #: A moved joint stood *on* another person's joint when within this share of its body's size
 #: of it (our choice: about the spread of a peak; the error is then "the joint taken from
 #: that neighbour", judged against the neighbour in the frames around).
@@ -305,9 +313,11 @@ def _carry_once(steps: list[_Step], deleted: list[int], before: FrameLabels,
         if neighbour is not None and neighbour.keypoints[holder[1], 2] > 0:
             hx, hy = neighbour.keypoints[holder[1], :2]
             off = min(off, float(np.hypot(x - hx, y - hy)))
-        if off > TOLERANCE * size:
+        moved = 0.0 if new is None or not np.isfinite(new[0]) or new[2] <= 0 else float(
+            np.hypot(new[0] - old[0], new[1] - old[1]))
+        if off > max(TOLERANCE * size, FAR * moved):
             return False
-        if new is None or not np.isfinite(new[0]) or new[2] <= 0:
+        if not moved:
             return True
         return bool(off < np.hypot(x - new[0] - u[0], y - new[1] - u[1]))
 
