@@ -43,6 +43,7 @@ WEIGHTS: dict[str, float] = {
     "split": 3.5,
     "weak-limb": 3.0,
     "low-score": 0.5,
+    "invented": 3.0,
 }
 #: The frame's score adds this times its crowd index.
 CROWD_WEIGHT = 0.5
