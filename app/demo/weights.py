@@ -149,6 +149,23 @@ def measure(judged: Judged, prior: float = PRIOR, weights: dict[str, float] | No
                   int((flagged & judged.wrong).sum()))
 
 
+#: The flagging thresholds considered (suspicion), from the highest.
+FLAG_CANDIDATES: tuple[float, ...] = (1 / 2, 1 / 3, 1 / 4, 1 / 5)
+#: The least recall every fitted demo must reach at the chosen threshold.
+LEAST_RECALL = 0.9
+
+
+def choose_flag_at(judged: dict[str, Judged], prior: float, weights: dict[str, float],
+                   least: float = LEAST_RECALL) -> float:
+    """The highest of :data:`FLAG_CANDIDATES` at which every demo's recall reaches
+    ``least`` (else the lowest candidate): a miss teaches the network the error, a needless
+    look costs a glance, so recall comes first and precision decides among the rest."""
+    for flag_at in FLAG_CANDIDATES:
+        if all(measure(j, prior, weights, flag_at).recall >= least for j in judged.values()):
+            return flag_at
+    return FLAG_CANDIDATES[-1]
+
+
 def _judged(cache: str, demos: Sequence[tuple[str, int]]) -> dict[str, Judged]:
     out = {}
     for scene, seed in demos:
@@ -169,7 +186,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser.add_argument("--cache", metavar="DIR", required=True,
                         help="where generated demos are kept")
     args = parser.parse_args(argv)
-    prior, weights = PRIOR, dict(WEIGHTS)
+    prior, weights, flag_at = PRIOR, dict(WEIGHTS), FLAG_AT
     if args.fit:
         fitted = _judged(args.cache, parse_demos(args.fit))
         pooled = sum(list(fitted.values())[1:], next(iter(fitted.values())))
@@ -179,14 +196,19 @@ def main(argv: Sequence[str] | None = None) -> int:
         for k in KINDS:
             print(f"    {k!r}: {weights[k]},")
         print("}")
-        for name, j in fitted.items():
-            r = measure(j, prior, weights)
-            print(f"fit {name}: recall {r.recall:.3f}, precision {r.precision:.3f}")
+        for flag_at in FLAG_CANDIDATES:
+            for name, j in fitted.items():
+                r = measure(j, prior, weights, flag_at)
+                print(f"fit {name}, flagged from {flag_at:.2f}: recall {r.recall:.3f}, "
+                      f"precision {r.precision:.3f}")
+        flag_at = choose_flag_at(fitted, prior, weights)
+        print(f"FLAG_AT = {flag_at:.3f} (every fitted demo at recall {LEAST_RECALL} or more, "
+              "else the lowest)")
     if args.measure:
         print("| demo | people | wrong | flagged | recall | precision |")
         print("|---|---:|---:|---:|---:|---:|")
         for name, j in _judged(args.cache, parse_demos(args.measure)).items():
-            r = measure(j, prior, weights)
+            r = measure(j, prior, weights, flag_at)
             print(f"| {name} | {r.people} | {r.wrong} | {r.flagged} | {r.recall:.3f} "
                   f"| {r.precision:.3f} |")
     return 0

@@ -453,6 +453,15 @@ def _inside(points: np.ndarray, a: np.ndarray, b: np.ndarray, radius: float) -> 
     return np.hypot(*(points - a - t[:, None] * d).T) < radius
 
 
+def _one_body(a: np.ndarray, b: np.ndarray, scale: float) -> bool:
+    """Whether two labels lie on one body (their like joints a median of less than
+    ``TANGLE_FROM`` of stature apart): a body found twice does not hide itself."""
+    both = (a[:, 2] > 0) & (b[:, 2] > 0)
+    if both.sum() < 3 or not scale > 0:
+        return False
+    return float(np.median(np.hypot(*(a[both, :2] - b[both, :2]).T))) / scale < TANGLE_FROM
+
+
 def covers(people: Mapping[int, np.ndarray], skeleton: Skeleton,
            scales: Mapping[int, float],
            rows: Mapping[int, float]) -> dict[int, list[tuple[int, int]]]:
@@ -474,7 +483,8 @@ def covers(people: Mapping[int, np.ndarray], skeleton: Skeleton,
     A person standing lower in the image is nearer the camera (Hoiem et al. 2006; on risers
     too: each row stands both higher and farther). A labelled joint of a farther person (by
     more than ``NEARER_BY`` of their stature) inside the nearer one's :func:`body_regions`
-    cannot be seen.
+    cannot be seen. Two labels of one body (like joints a median of less than ``TANGLE_FROM``
+    of stature apart: found twice, or tangled) do not hide each other.
 
     Examples
     --------
@@ -495,7 +505,8 @@ def covers(people: Mapping[int, np.ndarray], skeleton: Skeleton,
         if not (np.isfinite(row) and np.isfinite(scale)):
             continue
         nearer = [q for q in people if q != p and regions[q]
-                  and rows.get(q, float("nan")) > row + NEARER_BY * scale]
+                  and rows.get(q, float("nan")) > row + NEARER_BY * scale
+                  and not _one_body(kp, people[q], max(scale, scales.get(q, 0.0)))]
         joints = np.flatnonzero(kp[:, 2] > 0)
         cover = np.full(len(joints), -1)
         for q in nearer:
@@ -564,7 +575,8 @@ def invented(pid: int, kp: np.ndarray, skeleton: Skeleton, covered: list[tuple[i
     Notes
     -----
     A network scores what it sees; a joint behind someone nearer that it scores like the
-    frame's typical labelled joint is a guess, usually at a wrong spot. Per covered joint,
+    frame's typical labelled joint is a guess, usually at a wrong spot. Per covered joint
+    labelled visible (one labelled occluded was placed knowing it is hidden),
     ``ratio = score / typical`` ramped from ``INVENTED_FROM`` (0.85) to ``INVENTED_SURE``
     (1.1); the strength is the sum over the covered joints over ``INVENTED_FULL`` (2), at
     most 1. When the scores say nothing (none, or no typical score), the check is silent.
@@ -573,7 +585,7 @@ def invented(pid: int, kp: np.ndarray, skeleton: Skeleton, covered: list[tuple[i
     if scores is None or not (np.isfinite(typical) and typical > 0) or not covered:
         return []
     ramps = {j: ramp(float(scores[j]) / typical, INVENTED_FROM, INVENTED_SURE)
-             for j, _ in covered if np.isfinite(scores[j])}
+             for j, _ in covered if np.isfinite(scores[j]) and kp[j, 2] == 2}
     confident = sorted(j for j, r in ramps.items() if r > 0)
     if not confident:
         return []

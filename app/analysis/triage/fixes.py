@@ -624,7 +624,10 @@ def crossed(view: FrameView) -> list[Proposal]:
             joints = tuple(sorted(j for pair in pairs for j in pair))
             done.update(joints)
             n = view.names
-            strength = float(np.clip((before - after) / WEIGHTS["crossed-sides"], 0.0, 1.0))
+            # The drop in body evidence over the weight of one crossed pair (at least 0.5, should
+            # a fit weigh crossed sides at nothing).
+            strength = float(np.clip((before - after) / max(WEIGHTS["crossed-sides"], 0.5),
+                                     0.0, 1.0))
             parts = join_words([_part(sk, j) for j, _ in pairs])
             text = (f"{n.person(p)}'s left and right {parts} are the other way round from the "
                     "rest of the body")
