@@ -391,6 +391,8 @@ def main(argv: Sequence[str] | None = None) -> int:
                         help="the scenario of the seeds to measure (default: the dance)")
     parser.add_argument("--cache", metavar="DIR", required=True,
                         help="where generated demos are kept")
+    parser.add_argument("--calibrate-frames", metavar="N", type=int, default=None,
+                        help="frames of each demo generated to fit on (default: the usual 24)")
     parser.add_argument("--json", metavar="FILE", help="write every figure to FILE")
     args = parser.parse_args(argv)
     logging.basicConfig(level=logging.WARNING)
@@ -400,7 +402,8 @@ def main(argv: Sequence[str] | None = None) -> int:
         fit_demos = parse_demos(args.calibrate)
         effects = []
         for scene, seed in fit_demos:
-            effects += fix_effects(demo_frames(demo_folder(args.cache, seed, scene)),
+            effects += fix_effects(demo_frames(demo_folder(args.cache, seed, scene,
+                                                              args.calibrate_frames)),
                                    f"{scene} seed {seed}")
             print(f"{scene} seed {seed}: {count(len(effects), 'fix')} so far", file=sys.stderr,
                   flush=True)

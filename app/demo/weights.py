@@ -166,11 +166,12 @@ def choose_flag_at(judged: dict[str, Judged], prior: float, weights: dict[str, f
     return FLAG_CANDIDATES[-1]
 
 
-def _judged(cache: str, demos: Sequence[tuple[str, int]]) -> dict[str, Judged]:
+def _judged(cache: str, demos: Sequence[tuple[str, int]],
+            frames: int | None = None) -> dict[str, Judged]:
     out = {}
     for scene, seed in demos:
         name = f"{scene} seed {seed}"
-        out[name] = judge(demo_frames(demo_folder(cache, seed, scene)))
+        out[name] = judge(demo_frames(demo_folder(cache, seed, scene, frames)))
         print(f"{name}: judged", file=sys.stderr, flush=True)
     return out
 
@@ -185,10 +186,13 @@ def main(argv: Sequence[str] | None = None) -> int:
                         help="demos to measure on, e.g. 20-22,choir:21-23")
     parser.add_argument("--cache", metavar="DIR", required=True,
                         help="where generated demos are kept")
+    parser.add_argument("--fit-frames", metavar="N", type=int, default=12,
+                        help="frames of each demo generated to fit on (default 12; demos to "
+                             "measure on have the usual 24)")
     args = parser.parse_args(argv)
     prior, weights, flag_at = PRIOR, dict(WEIGHTS), FLAG_AT
     if args.fit:
-        fitted = _judged(args.cache, parse_demos(args.fit))
+        fitted = _judged(args.cache, parse_demos(args.fit), args.fit_frames)
         pooled = sum(list(fitted.values())[1:], next(iter(fitted.values())))
         prior, weights = fit_weights(pooled)
         print(f"PRIOR = {prior}")

@@ -526,7 +526,7 @@ def _behind(score: float, v: int = 2) -> tuple[dict[int, np.ndarray], dict[int, 
     back = person(rng, (740.0, 520.0 - 0.49 * 300.0), 300.0)     # staggered, a step up
     legs = [J["left_knee"], J["right_knee"], J["left_ankle"], J["right_ankle"]]
     hips = front[[J["left_hip"], J["right_hip"]], :2].mean(axis=0)
-    back[legs, :2] = hips + [[-8.0, -30.0], [8.0, -30.0], [-8.0, 20.0], [8.0, 20.0]]
+    back[legs, :2] = hips + np.array([[-8.0, -30.0], [8.0, -30.0], [-8.0, 20.0], [8.0, 20.0]])
     back[legs, 2] = v
     scores = {1: np.full(17, 0.8), 2: np.full(17, 0.8)}
     scores[2][legs] = score

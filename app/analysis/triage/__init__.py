@@ -26,6 +26,8 @@ kind                 evidence
 ``weak-limb``        the model's own field supports this person's limbs less than it supports
                      the other people's in the frame (line integral ``E`` of Cao et al. 2017)
 ``low-score``        the model scored this person's joints lower than the frame's other people
+``invented``         joints labelled visible inside the body of someone standing nearer, yet
+                     scored as confidently as the frame's typical joint: guessed, not seen
 ``crowded``          frame level: the crowd index of Li et al. (CVPR 2019)
 ===================  =========================================================================
 
