@@ -20,11 +20,15 @@ Each changed joint ``(P, j)`` of the correction is one of
 - a person deleted: carried as deleting the same track's person.
 
 The error is present in a frame when every changed joint of ``P'`` (and every copied-from
-joint of ``Q'``) lies within :data:`TOLERANCE` of a body of where it stood before the
-correction, moved along with its body, is labelled as it was and, for a joint that got a new
-place, lies nearer its old place than its new one. An exchange of :data:`WHOLE` joints or more
-(a side swap) is judged on the mean of its joints' offsets instead, so that one joint near the
-middle of the body, where both sides are close, does not decide for all. A body's move from one
+joint of ``Q'``) is labelled as it was and lies within :data:`TOLERANCE` of a body of where it
+stood before the correction, moved along with its body (or, for a joint the correction moved,
+within :data:`FAR` of the distance it moved, when that is more; or on the same joint of the
+same neighbour when it stood on a neighbour's joint, :data:`ON_JOINT`) and, for a joint that
+got a new place, lies nearer its old place than its new one. A person whose track does not go
+on is followed to the most alike person of the next frame (:data:`FOLLOW_OKS`). An exchange
+of :data:`WHOLE` joints or more (a side swap) is judged on the mean of its joints' offsets
+instead, so that one joint near the middle of the body, where both sides are close, does not
+decide for all. A body's move from one
 frame to the next is the median over its joints of their displacement, taking each changed
 joint where it stood before the correction.
 
@@ -60,7 +64,7 @@ the same mistake in frame 3 but not in frame 4, and frame 1 was already right.
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -82,6 +86,18 @@ from app.model.targets import JointTarget, PersonTarget
 #: joint stood, moved along with the body (a tenth of a body: our choice, no source; on demo
 #: seeds 1-3 a twentieth gave the same counts of :mod:`app.demo.carrying`).
 TOLERANCE = 0.1
+#: A joint the correction moved far may have wandered further and still be the same error:
+#: it stands where it stood when within this share of the correction's distance (and nearer
+#: there than where the correction put it; our choice).
+FAR = 0.5
+#: A moved joint stood *on* another person's joint when within this share of its body's size
+#: of it (our choice: about the spread of a peak; the error is then "the joint taken from
+#: that neighbour", judged against the neighbour in the frames around).
+ON_JOINT = 0.04
+#: A person whose track does not go on is followed to the person of the next frame that is
+#: most like it (OKS, :func:`app.analysis.similarity.oks_matrix`) when at least this alike and
+#: not on a track of its own that the frame before already has (our choice).
+FOLLOW_OKS = 0.5
 #: The most frames a correction is carried in each direction.
 MAX_FRAMES = 50
 #: An exchange of at least this many joints is judged as a whole (their mean offsets).
@@ -151,6 +167,9 @@ class _Step:
     before: tuple[float, float, int]
     after: tuple[float, float, int]
     source: tuple[int, int] | None = None
+    #: For a move: the joint ``(person, joint)`` of another person the moved joint stood on
+    #: before the correction (a joint given to a neighbour's joint), if any.
+    holder: tuple[int, int] | None = None
 
 
 def _xyv(value: Any) -> tuple[float, float, int]:
@@ -188,6 +207,25 @@ def _plan(changes: Sequence[Change]) -> tuple[list[_Step], list[int]] | None:
     return steps, deleted
 
 
+def _with_holder(step: _Step, before: FrameLabels) -> _Step:
+    """A move's step with the other person's joint its old place stood on (see
+    :data:`ON_JOINT`), if any."""
+    if step.kind != "move" or step.before[2] <= 0 or step.person not in before.people:
+        return step
+    size = _size(before.people[step.person].keypoints)
+    best, where = ON_JOINT * size, None
+    for q in before.people.values():
+        if q.id == step.person:
+            continue
+        on = q.keypoints[:, 2] > 0
+        d = np.hypot(q.keypoints[:, 0] - step.before[0], q.keypoints[:, 1] - step.before[1])
+        d = np.where(on & np.isfinite(d), d, np.inf)
+        k = int(np.argmin(d))
+        if d[k] <= best:
+            best, where = float(d[k]), (q.id, k)
+    return step if where is None else replace(step, holder=where)
+
+
 def _close(a: Sequence[float], b: Sequence[float]) -> bool:
     if any(np.isnan(v) for v in (*a, *b)):
         return all(np.isnan(v) for v in (*a, *b))
@@ -221,14 +259,23 @@ def _carry_once(steps: list[_Step], deleted: list[int], before: FrameLabels,
     """The correction's edits in ``there`` when it shows the same error, with the steps and
     deletions as they are there (for carrying on); None when the error is absent."""
     people = _by_track(there)
+    going_on = {p.track for p in after.people.values() if p.track is not None}
     who: dict[int, Person] = {}
-    for pid in {s.person for s in steps} | {s.source[0] for s in steps if s.source} \
-            | set(deleted):
+    for pid in sorted({s.person for s in steps} | {s.source[0] for s in steps if s.source}
+                      | set(deleted)):
         known = after.people.get(pid) or before.people.get(pid)
-        found = None if known is None or known.track is None else people.get(known.track)
+        if known is None or known.track is None:
+            return None
+        found = people.get(known.track) or _follow(known, there, going_on, who.values())
         if found is None:
             return None
         who[pid] = found
+    holders: dict[int, Person] = {}
+    for s in steps:
+        if s.holder is not None and s.holder[0] not in who:
+            known = after.people.get(s.holder[0]) or before.people.get(s.holder[0])
+            if known is not None and known.track in people:
+                holders[s.holder[0]] = people[known.track]
     changed: dict[int, set[int]] = {}
     for s in steps:
         changed.setdefault(s.person, set()).add(s.joint)
@@ -249,9 +296,11 @@ def _carry_once(steps: list[_Step], deleted: list[int], before: FrameLabels,
         motion[pid] = (u, size)
 
     def stands(pid: int, j: int, old: tuple[float, float, int],
-               new: tuple[float, float, int] | None = None) -> bool:
+               new: tuple[float, float, int] | None = None,
+               holder: tuple[int, int] | None = None) -> bool:
         """Joint ``j`` of ``pid``'s person there stands where ``old`` stood (moved with the
-        body), labelled as it was, and nearer there than where ``new`` stands."""
+        body; on the same joint of the same neighbour when ``holder`` says it stood on one),
+        labelled as it was, and nearer there than where ``new`` stands."""
         p = who[pid]
         x, y, v = p.keypoints[j]
         if (v > 0) != (old[2] > 0):
@@ -260,9 +309,15 @@ def _carry_once(steps: list[_Step], deleted: list[int], before: FrameLabels,
             return True
         u, size = motion[pid]
         off = np.hypot(x - old[0] - u[0], y - old[1] - u[1])
-        if off > TOLERANCE * size:
+        neighbour = None if holder is None else (who.get(holder[0]) or holders.get(holder[0]))
+        if neighbour is not None and neighbour.keypoints[holder[1], 2] > 0:
+            hx, hy = neighbour.keypoints[holder[1], :2]
+            off = min(off, float(np.hypot(x - hx, y - hy)))
+        moved = 0.0 if new is None or not np.isfinite(new[0]) or new[2] <= 0 else float(
+            np.hypot(new[0] - old[0], new[1] - old[1]))
+        if off > max(TOLERANCE * size, FAR * moved):
             return False
-        if new is None or not np.isfinite(new[0]) or new[2] <= 0:
+        if not moved:
             return True
         return bool(off < np.hypot(x - new[0] - u[0], y - new[1] - u[1]))
 
@@ -278,7 +333,7 @@ def _carry_once(steps: list[_Step], deleted: list[int], before: FrameLabels,
         steps_alone = steps
     for s in steps_alone:
         if not stands(s.person, s.joint, s.before,
-                      s.after if s.kind in ("move", "copy") else None):
+                      s.after if s.kind in ("move", "copy") else None, s.holder):
             return None
         if s.source and not stands(s.source[0], s.source[1], olds[s.source]):
             return None
@@ -301,10 +356,40 @@ def _carry_once(steps: list[_Step], deleted: list[int], before: FrameLabels,
         if nv != int(v) or (nv > 0 and int(v) == 0):
             edits.append(SetVisibility(there.frame_id, p.id, s.joint, nv))
         source = None if s.source is None else (who[s.source[0]].id, s.source[1])
-        new_steps.append(_Step(p.id, s.joint, s.kind, (x, y, int(v)), (nx, ny, nv), source))
+        holder = None
+        if s.holder is not None:
+            neighbour = who.get(s.holder[0]) or holders.get(s.holder[0])
+            holder = None if neighbour is None else (neighbour.id, s.holder[1])
+        new_steps.append(_Step(p.id, s.joint, s.kind, (x, y, int(v)), (nx, ny, nv), source,
+                               holder))
     for pid in deleted:
         edits.append(DeletePerson(there.frame_id, who[pid].id))
     return edits, new_steps, [who[pid].id for pid in deleted]
+
+
+def _follow(known: Person, there: FrameLabels, going_on: set[int],
+            taken: Any) -> Person | None:
+    """The person of ``there`` that ``known`` (a person of the frame before, whose track does
+    not reach ``there``) most likely is: the most alike by OKS, at least :data:`FOLLOW_OKS`,
+    among those whose track the frame before does not have (a track broken by the linking
+    goes on under a new number)."""
+    from app.analysis.similarity import oks_matrix
+
+    busy = {p.id for p in taken}
+    free = [p for p in there.people.values()
+            if p.id not in busy and (p.track is None or p.track not in going_on)]
+    ref = known.keypoints
+    on = (ref[:, 2] > 0) & np.isfinite(ref[:, :2]).all(axis=1)
+    if not free or on.sum() < 2:
+        return None
+    lo, hi = ref[on, :2].min(axis=0), ref[on, :2].max(axis=0)
+    area = float(np.prod(np.maximum(hi - lo, 1.0)))
+    cand = np.array([p.keypoints for p in free])
+    xy = np.where(cand[:, :, 2:] > 0, cand[:, :, :2], np.nan)
+    sim = oks_matrix(np.concatenate([xy, cand[:, :, 2:]], axis=2), ref[None], np.array([area]),
+                     there.skeleton.sigma_array)[:, 0]
+    best = int(np.argmax(sim))
+    return free[best] if sim[best] >= FOLLOW_OKS else None
 
 
 def _stand_together(copies: Sequence[_Step], who: dict[int, Person],
@@ -355,6 +440,7 @@ def carry_changes(changes: Sequence[Change], frames: Sequence[FrameLabels], at: 
         return empty
     undo = [c.inverted() for c in reversed(changes)]
     start_before = apply_changes(frames[at], undo)
+    plan = ([_with_holder(s, start_before) for s in plan[0]], plan[1])
     found: dict[int, tuple[list[EditGroup], int | None, int | None]] = {}
     for step in (1, -1):
         steps, deleted = plan

@@ -22,7 +22,7 @@ trimmed), which is one more action, when it spans at least :data:`MIN_BATCH` fra
 of one frame spares nothing; it is left alone and the frame fixed when its turn comes). Frames
 later in the dance then start with fewer errors.
 
-``python -m app.demo.carrying --seeds 26-28 --shipped --cache /tmp/demos`` prints the table
+``python -m app.demo.carrying --seeds 31-33 --shipped --cache /tmp/demos`` prints the table
 of the README's "Sequences" section.
 """
 
@@ -271,6 +271,87 @@ def _helps(group: EditGroup, labels: FrameLabels, truth: np.ndarray,
     return None
 
 
+#: Why a frame-by-frame action is not carried to the next frame (:func:`why_not_carried`).
+WHY = ("carried", "same action next frame, carrying did not match it",
+       "same action next frame, carried but did not help", "error absent next frame",
+       "error absent next frame, other joints of the person wrong",
+       "same joint wrong next frame, fixed another way", "person not in the next frame")
+
+
+def _kind(edit: Edit) -> str:
+    first = edit.edits[0] if isinstance(edit, EditGroup) else edit
+    if isinstance(first, SetVisibility):
+        return "unlabel"
+    return {ReassignJoint: "give", SwapSides: "swap", DeletePerson: "delete",
+            MoveJoint: "drag"}.get(type(first), type(first).__name__)
+
+
+def _fixes(edit: Edit, labels: FrameLabels) -> tuple[int | None, set[int]]:
+    """The track of the person an action corrects and the joints it corrects there."""
+    edits = edit.edits if isinstance(edit, EditGroup) else (edit,)
+    first = edits[0]
+    if isinstance(first, ReassignJoint):
+        return labels.people[first.to_person_id].track, {e.joint for e in edits}
+    joints = {getattr(e, "joint", None) for e in edits} - {None}
+    return labels.people[first.person_id].track, joints
+
+
+def _walk(labels: FrameLabels, truth: np.ndarray,
+          areas: np.ndarray) -> list[tuple[Edit, FrameLabels, FrameLabels, list[Any]]]:
+    """The oracle's actions on one frame: (edit, labels before, labels after, changes)."""
+    out: list[tuple[Edit, FrameLabels, FrameLabels, list[Any]]] = []
+    while len(out) < MAX_ACTIONS:
+        edit = next_action(labels, truth, areas)
+        if edit is None:
+            break
+        after, changes = edit.apply(labels)
+        out.append((edit, labels, after, changes))
+        labels = after
+    return out
+
+
+def why_not_carried(frames: Sequence[FrameLabels], truth: Sequence[np.ndarray],
+                    areas: Sequence[np.ndarray]) -> dict[tuple[str, str], int]:
+    """Why each frame-by-frame action is, or is not, carried to the next frame.
+
+    Every action of the oracle on frame ``t`` (frames fixed one by one from the auto-labels)
+    is carried alone to frame ``t + 1`` (:func:`app.analysis.carry.carry_changes`) and sorted
+    into one of :data:`WHY`: carried (and it helps there); the next frame needs the same
+    action on the same tracks and carrying did not propose it, or proposed it and it did not
+    help; the joints it corrects are right next frame (the rest of that person right too, or
+    not); the same joint is wrong next frame but the oracle fixes it with another action; the
+    person's track does not reach the next frame. Returns ``(action kind, why) -> count``.
+    """
+    tracked = with_tracks(frames)
+    acts = [_walk(f, t, a) for f, t, a in zip(tracked, truth, areas, strict=True)]
+    out: dict[tuple[str, str], int] = {}
+    for i in range(len(tracked) - 1):
+        nxt, t1, a1 = tracked[i + 1], truth[i + 1], areas[i + 1]
+        gestures = {_gesture(e, lab) for e, lab, _, _ in acts[i + 1]}
+        order, verdict = _judge(nxt, t1, a1)
+        wrong = {nxt.people[p].track: set(np.flatnonzero(verdict[n] == -1).tolist())
+                 for n, p in enumerate(order)}
+        for edit, before, after, changes in acts[i]:
+            seq = list(tracked)
+            seq[i] = after
+            batch = carry_changes(changes, seq, i, max_frames=1)
+            group = [g for g in batch.edits if g.frame_id == nxt.frame_id]
+            track, joints = _fixes(edit, before)
+            if group and _helps(group[0], nxt, t1, a1) is not None:
+                why = WHY[0]
+            elif _gesture(edit, before) in gestures:
+                why = WHY[2] if group else WHY[1]
+            elif track not in wrong:
+                why = WHY[6]
+            elif not joints or not wrong[track] & joints:
+                why = WHY[4] if wrong[track] and joints else WHY[3]
+            else:
+                why = WHY[5]
+            key = (_kind(edit), why)
+            out[key] = out.get(key, 0) + 1
+    return out
+
+
 def demo_count(folder: str | Path, demo: str = "") -> ActionCount:
     """:func:`count_actions` on a generated demo (built into a project the first time)."""
     from app.demo.calibrate import demo_frames
@@ -297,15 +378,34 @@ def main(argv: Sequence[str] | None = None) -> int:
 
     parser = argparse.ArgumentParser(prog="python -m app.demo.carrying",
                                      description=__doc__.split("\n\n")[0])
-    parser.add_argument("--seeds", default="26-28", help="demo seeds (1-3,7)")
+    parser.add_argument("--seeds", default="31-33", help="demo seeds (1-3,7)")
     parser.add_argument("--shipped", action="store_true", help="also the shipped demo")
     parser.add_argument("--cache", default="/tmp/posewright-demos",
                         help="where demos are generated (once)")
     parser.add_argument("--json", action="store_true")
+    parser.add_argument("--why", action="store_true",
+                        help="instead, why each frame-by-frame action is or is not carried")
     args = parser.parse_args(argv)
     targets: list[tuple[str, int | None]] = [(f"seed {s}", s) for s in _seeds(args.seeds)]
     if args.shipped:
         targets.insert(0, ("shipped (seed 1966)", None))
+    if args.why:
+        from app.demo.calibrate import demo_frames
+
+        why: dict[tuple[str, str], int] = {}
+        for _, seed in targets:
+            frames = demo_frames(demo_folder(args.cache, seed))
+            found = why_not_carried([f.labels for f in frames], [f.truth for f in frames],
+                                    [f.areas for f in frames])
+            for key, n in found.items():
+                why[key] = why.get(key, 0) + n
+        total = sum(why.values())
+        print("| why | actions | share |\n|---|---:|---:|")
+        for reason in WHY:
+            n = sum(v for (_, w), v in why.items() if w == reason)
+            print(f"| {reason} | {n:,} | {n / max(total, 1):.0%} |")
+        print(f"| all | {total:,} | |")
+        return 0
     rows = [demo_count(demo_folder(args.cache, seed), name) for name, seed in targets]
     seeds = [r for r, (_, seed) in zip(rows, targets, strict=True) if seed is not None]
     total = ActionCount(f"**seeds {args.seeds}**", *(sum(getattr(r, f) for r in seeds) for f in (

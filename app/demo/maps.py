@@ -3,7 +3,9 @@
 A real bottom-up estimator run on a crowded picture does not output the clean training targets
 of its labels. Its peaks wander for joints it cannot see, and are weaker there; it places some
 hidden joints at a confident but invented spot; it mistakes left for right on people seen from
-behind or side-on; it answers to a neighbour's hand in the wrong channel; it misses joints of
+behind or side-on; it answers a hand, elbow or ankle at a neighbour's (the peak there, and
+the field of the limb leading there, so the grouping gives the joint the neighbour's place);
+it misses joints of
 people mostly hidden or small, sometimes whole people; it sees a faint second copy of someone
 or loses the link between someone's shoulders and hips; its fields weaken where limbs are
 covered and blend where people overlap. We simulate that by drawing the ordinary targets
@@ -31,6 +33,9 @@ dancer's track id (and the joint, and for a neighbour's hand the neighbour's tra
   mean ``1 / q`` given per kind in :data:`MEAN_RUN`: the run length of a two-state chain that
   clears with the same chance every frame, the simplest model of an error that persists, and
   memoryless, so a sequence can start anywhere.
+- A run is the same error on every frame it lasts: the same joint, answered at the same
+  neighbour's joint (the neighbour kept by track id, the place following that neighbour), an
+  invented spot at the same place on the body (moving with it), the same echo offset.
 - A run ends early when its cause goes: the joint comes into view, the neighbour moves away,
   the dancer turns. Otherwise runs are independent of each other.
 - Between runs an error starts with the chance ``h = s / (m (1 - s) + s)`` per frame, for a
@@ -42,8 +47,19 @@ dancer's track id (and the joint, and for a neighbour's hand the neighbour's tra
 The mean runs are our choice, about half a second of footage: the dance moves four frames to
 a count, and at a moderate tempo of two counts a second a frame lasts about an eighth of a
 second. A back seen from behind stays a back for longer (6 frames), a crossing step crosses
-the legs for about a count (3). Jitter of the peaks and joints missed by a hair flicker from
-frame to frame (drawn afresh), as a network's do.
+the legs for about a count (3).
+
+The network's answer to each joint and limb of a dancer is held too: the offset of a peak
+from the joint (its jitter), the peak's height, whether a joint is missed, and how strongly
+each limb's field shows are drawn per dancer and joint (or limb) and kept for a run of frames
+(geometric, mean :data:`MEAN_RUN` ``["held"]`` = 4 frames, half a second, as above) before
+being drawn afresh (:meth:`ErrorRuns.hold`). The picture barely changes from one frame to the
+next, and neither does a network's confidence in it; drawn afresh every frame, these values
+made the grouping pair the peaks of two overlapping dancers one way on one frame and another
+way on the next, so that a hidden wrist put on a neighbour's wrist came and went frame by
+frame instead of staying there while the dancers stayed tangled. On any one frame each held
+value is distributed as a fresh draw is, so the share of frames showing each error, the
+calibrated rates below, is unchanged.
 
 The error model is our own (no published source); it is meant to look like network output to
 the grouping and to a person reading the maps, not to reproduce a particular network.
@@ -76,8 +92,9 @@ _MISS_OCCLUDED = 0.02
 # someone side-on (the crossing step makes legs hard to tell apart).
 _FLIP_BODY = 0.15
 _FLIP_LEGS = 0.06
-# Share per wrist, elbow and ankle of an extra peak in its channel at a neighbour's joint of
-# the other side, while that joint is within reach (linked arms and crossing legs invite it).
+# Share per wrist, elbow and ankle of the network answering it at a neighbour's joint of the
+# other side (its peak there, and the field of the limb that ends at it leading there), while
+# that joint is within reach (linked arms and crossing legs invite it).
 _SPURIOUS = 0.02
 # Share of frames on which the fields joining shoulders to hips fail (more so when the hips are
 # covered): the person falls apart into an upper and a lower body.
@@ -96,6 +113,7 @@ MEAN_RUN: dict[str, float] = {
     "spurious": 4.0,
     "split": 3.0,
     "echo": 3.0,
+    "held": 4.0,
 }
 
 _FACE = (0, 1, 2, 3, 4)
@@ -156,6 +174,9 @@ class ErrorRuns:
         ``track id -> (2,)`` the echo's offset, in units of the person's height.
     spurious
         ``(track id, joint) -> (frames left, the neighbour's track id)``.
+    held
+        ``key -> ((N,) frames left, (N, D) values)``: a dancer's draws held over frames
+        (:meth:`hold`; key the track id for the joints, minus it for the limbs).
 
     Examples
     --------
@@ -169,6 +190,24 @@ class ErrorRuns:
     invent: dict[int, tuple[np.ndarray, np.ndarray]] = field(default_factory=dict)
     echo_shift: dict[int, np.ndarray] = field(default_factory=dict)
     spurious: dict[tuple[int, int], tuple[int, int]] = field(default_factory=dict)
+    held: dict[int, tuple[np.ndarray, np.ndarray]] = field(default_factory=dict)
+
+    def hold(self, key: int, draws: np.ndarray, fresh: bool,
+             rng: np.random.Generator) -> np.ndarray:
+        """Hold a dancer's draws (one row per joint or limb) over runs of frames.
+
+        ``draws`` are this frame's fresh draws; a row whose hold has run out (or that is met
+        for the first time) takes them and is held for a geometric number of frames of mean
+        ``MEAN_RUN["held"]``; the other rows keep the values they hold. Each row's value on
+        any frame is therefore distributed as one fresh draw is. Consumes one geometric draw
+        per row.
+        """
+        length = rng.geometric(1.0 / MEAN_RUN["held"], len(draws))
+        left, values = self.held.get(key, (np.zeros(len(draws), np.int64), draws))
+        renew = (left <= 0) | fresh
+        values = np.where(renew[:, None], draws, values)
+        self.held[key] = (np.where(renew, length, left) - 1, values)
+        return values
 
     def step(self, key: tuple[int, str], share: float, fresh: bool,
              rng: np.random.Generator) -> int:
@@ -281,7 +320,7 @@ def perceive(keypoints: np.ndarray, occlusion: np.ndarray, height: np.ndarray,
     Returns
     -------
     list of NetworkPerson
-        One per true person, then any echoes (faint duplicates) and spurious single peaks.
+        One per true person, then any echoes (faint duplicates).
 
     Notes
     -----
@@ -291,7 +330,8 @@ def perceive(keypoints: np.ndarray, occlusion: np.ndarray, height: np.ndarray,
     (1 - 0.4 occ)`` for hidden ones, ``U(0.75, 1)`` for invented spots: a confident guess),
     missed joints; per limb, a field gain
     ``U(0.7, 1)(1 - 0.6 max occ)`` of its ends, halved when an end was missed. Loss, left-right
-    confusion, invented spots, the split trunk, the echo and the neighbour's peak are runs
+    confusion, invented spots, the split trunk, the echo and a joint answered at a neighbour's
+    are runs
     (:func:`run_lengths`, see the module docstring) with the module's constants as shares.
 
     References
@@ -311,7 +351,7 @@ def perceive(keypoints: np.ndarray, occlusion: np.ndarray, height: np.ndarray,
     ...                     coco_body(), rng, runs=runs)[0].keypoints[5, 0] > 55
     ...            for _ in range(40)]
     >>> "".join("x" if s else "." for s in swapped)
-    '...xxx..............................xxxx'
+    '.....xxxxxxxxxxxxxxxxxx.................'
     """
     runs = ErrorRuns() if runs is None else runs
     out: list[NetworkPerson] = []
@@ -343,19 +383,24 @@ def perceive(keypoints: np.ndarray, occlusion: np.ndarray, height: np.ndarray,
             swapped = flip[legs]
             kp[legs], occ[legs] = kp[swapped], occ[swapped]
         labelled = kp[:, 2] > 0
-        noise = rng.normal(size=(num_joints, 2)) * (h * (_JITTER + _JITTER_OCCLUDED * occ))[:, None]
+        # The network's answer to each joint and limb (the offset of its peak, how high the
+        # peak is, whether it is missed, how strong the field is) is held over runs of frames.
+        held = runs.hold(tid, np.column_stack([
+            rng.normal(size=(num_joints, 2)), rng.random((num_joints, 3))]), fresh, rng)
+        held_gain = runs.hold(-tid, rng.random((len(limbs), 1)), fresh, rng)[:, 0]
+        noise = held[:, :2] * (h * (_JITTER + _JITTER_OCCLUDED * occ))[:, None]
         kp[:, :2] += noise * labelled[:, None]
         invented = _invent(runs, tid, kp, occ, h, fresh, rng)
         visible = kp[:, 2] == 2
-        peak = np.where(visible, rng.uniform(0.75, 1.0, num_joints) * (1 - 0.35 * occ),
-                        rng.uniform(0.3, 0.75, num_joints) * (1 - 0.4 * occ))
+        peak = np.where(visible, (0.75 + 0.25 * held[:, 2]) * (1 - 0.35 * occ),
+                        (0.3 + 0.45 * held[:, 2]) * (1 - 0.4 * occ))
         # An invented spot is a confident guess: the network answers as if it saw the joint.
-        peak = np.where(invented, rng.uniform(0.75, 1.0, num_joints), peak)
-        missed = rng.random(num_joints) < _MISS + _MISS_OCCLUDED * occ**2
+        peak = np.where(invented, 0.75 + 0.25 * held[:, 3], peak)
+        missed = held[:, 4] < _MISS + _MISS_OCCLUDED * occ**2
         if lost:
             peak *= rng.uniform(0.1, 0.35)
         end_occ = np.maximum(occ[limbs[:, 0]], occ[limbs[:, 1]])
-        gain = rng.uniform(0.7, 1.0, len(limbs)) * (1 - 0.6 * end_occ)
+        gain = (0.7 + 0.3 * held_gain) * (1 - 0.6 * end_occ)
         gain *= np.where(missed[limbs[:, 0]] | missed[limbs[:, 1]], 0.5, 1.0)
         if lost:
             gain *= 0.3
@@ -364,6 +409,12 @@ def perceive(keypoints: np.ndarray, occlusion: np.ndarray, height: np.ndarray,
         peak = np.where(missed | ~labelled, 0.0, peak)
         sigma = float(np.clip(0.03 * h, 5.0, 12.0))
         width = float(np.clip(0.035 * h, 6.0, 14.0))
+        for joint, other in _taken(runs, keypoints, tracks, p, kp, labelled, h, fresh, flip,
+                                   rng):
+            # The network answers this joint at the neighbour's: its peak and the field of
+            # the limb that ends there lead to the neighbour's joint of the other side.
+            kp[joint, :2] = keypoints[other, flip[joint], :2]
+            peak[joint] = max(peak[joint], 0.75 + 0.25 * held[joint, 3])
         out.append(NetworkPerson(kp, peak, gain, sigma, width))
 
         shift = rng.normal(0, 0.08, 2)
@@ -380,8 +431,6 @@ def perceive(keypoints: np.ndarray, occlusion: np.ndarray, height: np.ndarray,
                 np.where(upper[limbs[:, 0]] & upper[limbs[:, 1]], 0.6, 0.0), sigma, width))
         else:
             runs.echo_shift.pop(tid, None)
-        extras.extend(_spurious(runs, keypoints, tracks, p, kp, labelled, h, fresh, sigma,
-                                width, flip, len(limbs), rng))
     return out + extras
 
 
@@ -402,12 +451,12 @@ def _invent(runs: ErrorRuns, tid: int, kp: np.ndarray, occ: np.ndarray, h: float
     return active > 0
 
 
-def _spurious(runs: ErrorRuns, keypoints: np.ndarray, tracks: np.ndarray, p: int,
-              kp: np.ndarray, labelled: np.ndarray, h: float, fresh: bool, sigma: float,
-              width: float, flip: np.ndarray, num_limbs: int, rng: np.random.Generator
-              ) -> list[NetworkPerson]:
-    """Single peaks in person ``p``'s wrist, elbow and ankle channels at a neighbour's joint of
-    the other side, in runs that last while that neighbour's joint stays within reach."""
+def _taken(runs: ErrorRuns, keypoints: np.ndarray, tracks: np.ndarray, p: int,
+           kp: np.ndarray, labelled: np.ndarray, h: float, fresh: bool, flip: np.ndarray,
+           rng: np.random.Generator) -> list[tuple[int, int]]:
+    """Person ``p``'s wrists, elbows and ankles that the network answers at a neighbour's
+    joint of the other side, in runs that last while that neighbour's joint stays within
+    reach: ``(joint, the neighbour's row)`` for each run in progress."""
     tid = int(tracks[p])
     reach = 0.35 * h
     out = []
@@ -427,13 +476,8 @@ def _spurious(runs: ErrorRuns, keypoints: np.ndarray, tracks: np.ndarray, p: int
         active = int(run_lengths(left, share, MEAN_RUN["spurious"], fresh, rng))
         runs.spurious[(tid, joint)] = (max(active - 1, 0),
                                        -1 if other is None else int(tracks[other]))
-        if not active or other is None:
-            continue
-        fake = np.zeros((len(kp), 3))
-        fake[joint] = (*keypoints[other, theirs, :2], 2)
-        amp = np.zeros(len(kp))
-        amp[joint] = rng.uniform(0.35, 0.7)
-        out.append(NetworkPerson(fake, amp, np.zeros(num_limbs), sigma, width))
+        if active and other is not None:
+            out.append((joint, other))
     return out
 
 

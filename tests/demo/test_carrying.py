@@ -5,7 +5,7 @@ similarity, pycocotools' formula). Data synthetic."""
 
 import numpy as np
 
-from app.demo.carrying import count_actions, next_action
+from app.demo.carrying import WHY, count_actions, next_action, why_not_carried
 from app.model.edits import ReassignJoint
 from app.model.labels import FrameLabels, Person
 from app.model.skeleton import coco_body
@@ -42,3 +42,15 @@ def test_nothing_wrong_takes_no_action():
     truth = sequences.dancers(frames=4)
     count = count_actions(_labels(truth), list(truth), [np.full(3, 0.5 * 150.0**2)] * 4)
     assert (count.frame_by_frame, count.carrying, count.wrong_before) == (0, 0, 0)
+
+
+def test_why_an_action_is_carried_or_not():
+    """The exchange of frames 4-7 is carried from frames 4, 5 and 6 to the next; from frame
+    7 it is not, the error being absent in frame 8 (and the dancers right there)."""
+    truth = sequences.dancers(frames=9)
+    wrong = truth.copy()
+    for t in range(3, 7):
+        wrong[t, [0, 1], WRIST] = wrong[t, [1, 0], WRIST]
+    areas = [np.full(3, 0.5 * 150.0**2)] * 9
+    why = why_not_carried(_labels(wrong), list(truth), areas)
+    assert why == {("give", WHY[0]): 3, ("give", WHY[3]): 1}
