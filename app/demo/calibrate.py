@@ -298,10 +298,12 @@ def accept_all(frames: Iterable[DemoFrame], calibration: Calibration = SHIPPED,
     return figure
 
 
-def demo_folder(cache: str | Path, seed: int | None, scene: str = "dance") -> Path:
+def demo_folder(cache: str | Path, seed: int | None, scene: str = "dance",
+                frames: int | None = None) -> Path:
     """The demo of ``seed`` in the cache folder, generated the first time (None: the shipped
     ``demo_project``, copied without its database); ``scene`` ``"choir"`` for the choir on
-    risers (:mod:`app.demo.choir`)."""
+    risers (:mod:`app.demo.choir`); ``frames`` for fewer frames than the default (a folder
+    already in the cache is used as it is)."""
     import shutil
 
     from app.demo import generate
@@ -315,7 +317,7 @@ def demo_folder(cache: str | Path, seed: int | None, scene: str = "dance") -> Pa
         return folder
     folder = cache / (f"seed-{seed}" if scene == "dance" else f"{scene}-seed-{seed}")
     if not (folder / "truth.json").exists():
-        generate(folder, seed=seed, scene=scene)
+        generate(folder, seed=seed, scene=scene, **({"frames": frames} if frames else {}))
     return folder
 
 
