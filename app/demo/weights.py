@@ -168,6 +168,7 @@ def choose_flag_at(judged: dict[str, Judged], prior: float, weights: dict[str, f
 
 def _judged(cache: str, demos: Sequence[tuple[str, int]],
             frames: int | None = None) -> dict[str, Judged]:
+    """:func:`judge` of each demo, generated into ``cache`` the first time."""
     out = {}
     for scene, seed in demos:
         name = f"{scene} seed {seed}"
@@ -177,6 +178,8 @@ def _judged(cache: str, demos: Sequence[tuple[str, int]],
 
 
 def main(argv: Sequence[str] | None = None) -> int:
+    """The command line: fit on some demos, print the prior, the weights and the threshold,
+    and measure on others."""
     parser = argparse.ArgumentParser(
         prog="python -m app.demo.weights",
         description="fit triage's prior and weights on demo seeds and measure on others")

@@ -172,7 +172,9 @@ def test_triage_finds_the_wrong_people_of_the_demo(tmp_path):
     against wrong (no pairing at OKS >= 0.8 by pycocotools' OKS and scipy's assignment).
     Measured on the demo with errors that last over frames: 384 people, 121 wrong, 143
     flagged, 117 of them wrong: recall 0.967, precision 0.818 (0.796 before the floor and
-    short-leg checks learnt to notice several floor levels and seated people)."""
+    short-leg checks learnt to notice several floor levels and seated people). Those figures
+    are of the weights fitted on the dance alone and of the earlier shipped demo; the weights
+    fitted on both scenarios flag from 1/5 (app.analysis.triage)."""
     if not (DEMO / "truth.json").exists():
         pytest.fail("demo_project/ is missing: regenerate it with app.demo.generate")
     fig = measure(_copy(DEMO, tmp_path / "demo"))
@@ -187,7 +189,8 @@ def test_triage_holds_on_a_held_out_seed(tmp_path):
     """The same measurement on a rehearsal the weights never saw: seed 9, first 12 frames
     (synthetic; the weights were fitted on seeds 1-4). Measured on the demo with errors that
     last over frames: 191 people, 47 wrong, 52 flagged, 44 of them wrong: recall 0.936,
-    precision 0.846."""
+    precision 0.846 (with the weights fitted on the dance alone; seed 9 took no part in the
+    fit on both scenarios either)."""
     folder = tmp_path / "seed9"
     generate(folder, seed=9, frames=12)
     fig = measure(folder)
@@ -199,14 +202,12 @@ def test_triage_holds_on_a_held_out_seed(tmp_path):
 @pytest.mark.slow
 def test_triage_and_fixes_on_the_choir(tmp_path):
     """The same measurement on the second scenario, a choir on stepped risers (synthetic;
-    app.demo.choir, seed 21, first 8 frames), which no weight, threshold or calibration was
-    fitted on; and the findings' accept-all figure there (judged joint by joint as in
-    tests/demo/test_calibrate.py). The issue's goal (recall >= 0.85, precision >= 0.7; fixes
-    losing <= 2 % of correct joints and removing >= 40 % of wrong ones) is not met yet; the
-    thresholds sit a little below the figures measured when written: 273 people, 127 wrong,
-    134 flagged, 95 of them wrong (recall 0.748, precision 0.709); accepting every fix took
-    wrong labelled joints from 603 to 475 (21.2 % removed) and correct ones from 3,567 to
-    3,547 (-0.6 %)."""
+    app.demo.choir, seed 21, first 8 frames), kept out of every fit (triage's weights and the
+    findings' calibration were fitted on dance and choir seeds 1-4); and the findings'
+    accept-all figure there (judged joint by joint as in tests/demo/test_calibrate.py). The
+    thresholds are the issue's goals (recall >= 0.85, precision >= 0.7; fixes losing <= 2 %
+    of correct joints and removing >= 40 % of wrong ones) or a little below what was measured:
+    CHOIR_TEST_FIGURES."""
     from app.demo.calibrate import accept_all, demo_frames
 
     folder = tmp_path / "choir21"
@@ -214,12 +215,12 @@ def test_triage_and_fixes_on_the_choir(tmp_path):
     fig = measure(folder)
     print(fig.report("choir seed 21, 8 frames"))
     assert fig.ours_agree
-    assert fig.recall >= 0.72
-    assert fig.precision >= 0.68
+    assert fig.recall >= 0.85
+    assert fig.precision >= 0.7
     figure = accept_all(demo_frames(folder), demo="choir seed 21")
     print(json.dumps(figure.to_dict(), indent=1))
-    assert figure.removed_share >= 0.18
-    assert figure.correct_change >= -0.015
+    assert figure.removed_share >= 0.4
+    assert figure.correct_change >= -0.02
 
 
 # ------------------------------------------------------------------ crafted people
