@@ -56,13 +56,13 @@ proportions of :mod:`app.analysis.anthropometry`). ``PRIOR`` and ``WEIGHTS`` are
 0.8) on the strongest strength of each kind, weights bounded to [0, 8], the prior then rounded
 to 0.1 and the weights to 0.5, over both synthetic scenarios together: dance seeds 1-3 and
 choir seeds 1-4, 12 frames each, generated with the dance's earlier error model (before its
-error runs held a dancer's network answer; there was no time to fit again after that change). ``FLAG_AT`` is the largest of 1/2, 1/3, 1/4
-and 1/5 at which every fitted demo had at least 90 % of its wrong people flagged, else the
-lowest (the rule the first fit, on the dance alone, used): dance seed 1 reached 0.84 at 1/4
-and 0.88 at 1/5, so 1/5. The fit
-gives no weight to ``weak-limb`` and ``low-score`` (what they see, the others see better),
-and weighs short legs, a tilted torso and crossed sides at the cap. These are defaults for
-crowds of upright people, standing or seated, fitted on invented scenes, not truths.
+error runs held a dancer's network answer; there was no time to fit again after that change).
+``FLAG_AT`` is the largest of 1/2, 1/3, 1/4 and 1/5 at which every fitted demo had at least
+90 % of its wrong people flagged, else the lowest (the rule the first fit, on the dance alone,
+used): dance seed 1 reached 0.84 at 1/4 and 0.88 at 1/5, so 1/5. The fit gives no weight
+to ``weak-limb`` and ``low-score`` (what they see, the others see better), and weighs short
+legs, a tilted torso and crossed sides at the cap. These are defaults for crowds of upright
+people, standing or seated, fitted on invented scenes, not truths.
 
 The choir on stepped risers (:mod:`app.demo.choir`: several floor levels, the legs of the
 rows behind hidden, a seated front row in some casts, folders hiding wrists, a conductor seen
@@ -103,8 +103,9 @@ With the weights fitted on the dance alone (flagging from 1/3), the choir's seed
 recall 0.721 and precision 0.677 (earlier errors, 24 frames each), the shipped dance 0.967 and
 0.818. The issue's goal for the choir (recall at least 0.85 with precision at least 0.7) is
 met on every choir seed measured; on the dance, recall at the new threshold stays near 0.9
-(0.88-0.95) with precision 0.71-0.83, where the dance-only fit gave 0.90-0.97 and 0.75-0.93 on seeds 5-11 and the shipped demo:
-flagging from 1/5 buys the dance's recall back at some precision.
+(0.88-0.95) with precision 0.71-0.83, where the dance-only fit gave 0.90-0.97 and
+0.75-0.93 on seeds 5-11 and the shipped demo: flagging from 1/5 buys the dance's recall back
+at some precision.
 
 References
 ----------
