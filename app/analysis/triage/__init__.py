@@ -91,6 +91,7 @@ demo                     errors    frames  recall  precision
 =======================  ========  ======  ======  =========
 choir, seed 41           current   12      0.981   0.765
 choir, seed 42           current   12      0.917   0.835
+choir, seed 21           current   8       0.898   0.820
 dance, seed 41           current   12      0.918   0.709
 choir, seed 41           earlier   24      0.964   0.764
 choir, seed 42           earlier   24      0.929   0.801
