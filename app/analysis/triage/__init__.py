@@ -105,9 +105,9 @@ With the weights fitted on the dance alone (flagging from 1/3), the choir's seed
 recall 0.721 and precision 0.677 (earlier errors, 24 frames each), the shipped dance 0.967 and
 0.818. The issue's goal for the choir (recall at least 0.85 with precision at least 0.7) is
 met on every choir seed measured; on the dance, recall at the new threshold stays near 0.9
-(0.88-0.95) with precision 0.61-0.83 (seed 9 below issue 3's 0.7), where the dance-only fit gave 0.90-0.97 and
-0.75-0.93 on seeds 5-11 and the shipped demo: flagging from 1/5 buys the dance's recall back
-at some precision.
+(0.88-0.95) with precision 0.61-0.83 (seed 9 below issue 3's 0.7), where the dance-only fit
+gave 0.90-0.97 and 0.75-0.93 on seeds 5-11 and the shipped demo: flagging from 1/5 buys the
+dance's recall back at some precision.
 
 References
 ----------
