@@ -230,7 +230,7 @@ def fix_effects(frames: Iterable[DemoFrame], demo: str = "") -> list[FixEffect]:
     return out
 
 
-def fit_calibration(effects: Sequence[FixEffect], fitted_on: Sequence[int] = (),
+def fit_calibration(effects: Sequence[FixEffect], fitted_on: Sequence[str] = (),
                     propose_at: float = PROPOSE_AT) -> Calibration:
     """Per kind, :func:`~app.analysis.triage.calibration.fit_logistic` of helped on strength
     (kinds with fewer than :data:`MIN_FIXES` fixes are left out and propose nothing)."""
@@ -241,7 +241,7 @@ def fit_calibration(effects: Sequence[FixEffect], fitted_on: Sequence[int] = (),
             continue
         a, b = fit_logistic([e.strength for e in mine], [e.helped for e in mine])
         coefficients[kind] = (round(a, 3), round(b, 3))
-    return Calibration(coefficients, propose_at, tuple(int(s) for s in fitted_on))
+    return Calibration(coefficients, propose_at, tuple(str(s) for s in fitted_on))
 
 
 def reliability(effects: Sequence[FixEffect], calibration: Calibration,
@@ -298,10 +298,12 @@ def accept_all(frames: Iterable[DemoFrame], calibration: Calibration = SHIPPED,
     return figure
 
 
-def demo_folder(cache: str | Path, seed: int | None, scene: str = "dance") -> Path:
+def demo_folder(cache: str | Path, seed: int | None, scene: str = "dance",
+                frames: int | None = None) -> Path:
     """The demo of ``seed`` in the cache folder, generated the first time (None: the shipped
     ``demo_project``, copied without its database); ``scene`` ``"choir"`` for the choir on
-    risers (:mod:`app.demo.choir`)."""
+    risers (:mod:`app.demo.choir`); ``frames`` for fewer frames than the default (a folder
+    already in the cache is used as it is)."""
     import shutil
 
     from app.demo import generate
@@ -315,7 +317,7 @@ def demo_folder(cache: str | Path, seed: int | None, scene: str = "dance") -> Pa
         return folder
     folder = cache / (f"seed-{seed}" if scene == "dance" else f"{scene}-seed-{seed}")
     if not (folder / "truth.json").exists():
-        generate(folder, seed=seed, scene=scene)
+        generate(folder, seed=seed, scene=scene, **({"frames": frames} if frames else {}))
     return folder
 
 
@@ -324,6 +326,25 @@ def _seeds(text: str) -> list[int]:
     for part in text.split(","):
         first, dash, last = part.strip().partition("-")
         out += list(range(int(first), int(last) + 1)) if dash else [int(first)]
+    return out
+
+
+def parse_demos(text: str, scene: str = "dance") -> list[tuple[str, int]]:
+    """``(scene, seed)`` pairs from text such as ``1-8,choir:1-8``: each comma-separated part
+    a seed or a range of seeds, after ``SCENE:`` for a scene other than ``scene``; a scene
+    named holds for the parts that follow until another is named.
+
+    Examples
+    --------
+    >>> parse_demos("1-2,choir:5,7")
+    [('dance', 1), ('dance', 2), ('choir', 5), ('choir', 7)]
+    """
+    out: list[tuple[str, int]] = []
+    for part in text.split(","):
+        name, colon, seeds = part.strip().rpartition(":")
+        if colon:
+            scene = name.strip()
+        out += [(scene, s) for s in _seeds(seeds)]
     return out
 
 
@@ -361,30 +382,34 @@ def main(argv: Sequence[str] | None = None) -> int:
         prog="python -m app.demo.calibrate",
         description="fit the findings' confidence on some demo seeds and measure on others")
     parser.add_argument("--calibrate", metavar="SEEDS", default="",
-                        help="seeds to fit the confidence on (e.g. 1-6); none: use the "
-                             "shipped calibration")
+                        help="demos to fit the confidence on (e.g. 1-8,choir:1-8: dance "
+                             "seeds 1-8 and choir seeds 1-8); none: use the shipped "
+                             "calibration")
     parser.add_argument("--measure", metavar="SEEDS", default="",
                         help="seeds to measure on (e.g. 20-22); the reliability table is "
                              "measured on them")
     parser.add_argument("--shipped", action="store_true", help="also measure the shipped demo")
     parser.add_argument("--scene", choices=("dance", "choir"), default="dance",
-                        help="the scenario of the seeds to measure (default: the dance; "
-                             "calibration seeds are always the dance's)")
+                        help="the scenario of the seeds to measure (default: the dance)")
     parser.add_argument("--cache", metavar="DIR", required=True,
                         help="where generated demos are kept")
+    parser.add_argument("--calibrate-frames", metavar="N", type=int, default=None,
+                        help="frames of each demo generated to fit on (default: the usual 24)")
     parser.add_argument("--json", metavar="FILE", help="write every figure to FILE")
     args = parser.parse_args(argv)
     logging.basicConfig(level=logging.WARNING)
     calibration = SHIPPED
     report: dict[str, Any] = {}
     if args.calibrate:
-        seeds = _seeds(args.calibrate)
+        fit_demos = parse_demos(args.calibrate)
         effects = []
-        for seed in seeds:
-            effects += fix_effects(demo_frames(demo_folder(args.cache, seed)), f"seed {seed}")
-            print(f"seed {seed}: {count(len(effects), 'fix')} so far", file=sys.stderr,
+        for scene, seed in fit_demos:
+            effects += fix_effects(demo_frames(demo_folder(args.cache, seed, scene,
+                                                              args.calibrate_frames)),
+                                   f"{scene} seed {seed}")
+            print(f"{scene} seed {seed}: {count(len(effects), 'fix')} so far", file=sys.stderr,
                   flush=True)
-        calibration = fit_calibration(effects, seeds)
+        calibration = fit_calibration(effects, [f"{scene} {seed}" for scene, seed in fit_demos])
         report["calibration"] = {"coefficients": dict(calibration.coefficients),
                                  "fitted_on": list(calibration.fitted_on),
                                  "propose_at": calibration.propose_at}

@@ -26,6 +26,8 @@ kind                 evidence
 ``weak-limb``        the model's own field supports this person's limbs less than it supports
                      the other people's in the frame (line integral ``E`` of Cao et al. 2017)
 ``low-score``        the model scored this person's joints lower than the frame's other people
+``invented``         joints labelled visible inside the body of someone standing nearer, yet
+                     scored as confidently as the frame's typical joint: guessed, not seen
 ``crowded``          frame level: the crowd index of Li et al. (CVPR 2019)
 ===================  =========================================================================
 
@@ -49,63 +51,63 @@ the fix (:mod:`~app.analysis.triage.fixes`), with a calibrated confidence
 (:mod:`~app.analysis.triage.calibration`).
 
 The thresholds of each check come from the principle stated beside it (mostly the body
-proportions of :mod:`app.analysis.anthropometry`). ``PRIOR`` and ``WEIGHTS`` were fitted by
-logistic regression of "wrong" on the strongest strength of each kind (weights constrained to
-[0, 8]; then the prior rounded to 0.1 and the weights to 0.5) over the synthetic demo
-generated with seeds 1, 2, 3 and 4 (:func:`app.demo.generate`, 24 frames each, 1457 people,
-617 of them wrong by the acceptance measure of ``tests/analysis/test_triage.py``), when the
-demo drew its simulated network errors afresh for every frame. ``FLAG_AT`` is the largest of
-1/2, 1/3, 1/4 and 1/5 at which every calibration seed had at least 90 % of its wrong people
-flagged (at 1/2, seed 4 had 88 %). Since then the demo's errors last over frames, as a
-network's do on video (:mod:`app.demo.maps`); with the weights unchanged, triage measures on
-the regenerated demos (recall, precision):
+proportions of :mod:`app.analysis.anthropometry`). ``PRIOR`` and ``WEIGHTS`` are fitted by
+:mod:`app.demo.weights`: a logistic regression of "wrong" (no pairing with the truth at OKS
+0.8) on the strongest strength of each kind, weights bounded to [0, 8], the prior then rounded
+to 0.1 and the weights to 0.5, over both synthetic scenarios together: dance seeds 1-3 and
+choir seeds 1-4, 12 frames each, generated with the dance's earlier error model (before its
+error runs held a dancer's network answer; there was no time to fit again after that change).
+``FLAG_AT`` is the largest of 1/2, 1/3, 1/4 and 1/5 at which every fitted demo had at least
+90 % of its wrong people flagged, else the lowest (the rule the first fit, on the dance alone,
+used): dance seed 1 reached 0.84 at 1/4 and 0.88 at 1/5, so 1/5. The fit gives no weight
+to ``weak-limb`` and ``low-score`` (what they see, the others see better), and weighs short
+legs, a tilted torso and crossed sides at the cap. These are defaults for crowds of upright
+people, standing or seated, fitted on invented scenes, not truths.
 
-======================  ======  =========
-demo                    recall  precision
-======================  ======  =========
-shipped (seed 1966)     0.967   0.796
-seed 5                  0.959   0.928
-seed 6                  0.897   0.812
-seed 7                  0.899   0.748
-seed 8                  0.958   0.760
-seed 9                  0.959   0.831
-seed 10                 0.931   0.840
-seed 11                 0.938   0.855
-======================  ======  =========
-
-(calibration seeds 1-4: recall 0.905-0.960, precision 0.856-0.914; with errors drawn per
-frame the table read 0.945/0.819 for the shipped demo and recall 0.897-0.978, precision
-0.776-0.905 for seeds 5-11). The checks and their thresholds were chosen while looking at
-the shipped demo and seeds 1-8, so only seeds 9, 10 and 11, generated once they were
-settled, are truly unseen. These are defaults for crowds of upright people on one floor, not
-truths.
-
-A second scenario, built afterwards and never tuned on, tests that: a choir on stepped risers
-(:mod:`app.demo.choir`: several floor levels, the legs of the rows behind hidden, a seated
-front row in some casts, folders hiding wrists, a conductor seen from behind). Two checks now
-notice when their assumption fails and stay silent: :func:`ground_line` returns no floor when
-it explains fewer than 3/4 of the people (so ``off-ground`` says nothing), and ``short-legs``
+The choir on stepped risers (:mod:`app.demo.choir`: several floor levels, the legs of the
+rows behind hidden, a seated front row in some casts, folders hiding wrists, a conductor seen
+from behind) was built to break what the dance lets a check assume. Three checks notice
+when their assumption fails and stay silent: :func:`ground_line` returns no floor when it
+explains fewer than 3/4 of the people (so ``off-ground`` says nothing), ``short-legs``
 needs the legs' own thigh or shank to be short as well as the span (a seated body's shanks
-keep their length). With the weights unchanged (recall, precision; the choir's seeds 21-23,
-24 frames each, took part in no choice):
+keep their length), and where a person stands
+(:func:`~app.analysis.triage.crowd.stand_rows`) no longer trusts ankles labelled farther
+below the shoulders than an upright body reaches (legs guessed behind the row in front are
+drawn too long, and would put a back-row singer in front of the row that hides them). The
+choir taught one new sign, ``invented``: a network scores what it sees, so joints it scores
+confidently inside the trunk or legs of someone standing nearer were guessed
+(:func:`~app.analysis.triage.crowd.invented`; silent without scores, on joints labelled
+occluded and on two labels of one body). Before it, what triage missed on the choir was
+almost all such legs (on choir seed 1, 37 of 38 missed wrong people had their knees or
+ankles wrong, and only weak ``stretched-limb`` evidence).
 
-======================  ======================  ======================
-demo                    before these changes    now
-======================  ======================  ======================
-dance, shipped          0.967  0.796            0.967  0.818
-choir, seed 21          0.743  0.735            0.738  0.735
-choir, seed 22          0.647  0.624            0.643  0.634
-choir, seed 23          0.818  0.631            0.818  0.637
-======================  ======================  ======================
+Triage against the truth (recall, precision) on seeds that took no part in any fit or choice
+(:mod:`app.demo.weights`, ``--measure``; the measure of ``tests/analysis/test_triage.py``).
+"Earlier" is the dance's error model the weights were fitted under, "current" the one whose
+runs hold a dancer's network answer (it reaches the choir too, whose singers it also moves):
 
-On the choir the two checks were rarely wrong to begin with (a line fits rows of risers well
-enough; ``off-ground`` flagged 55 people on seed 21, 95 % of them wrong), so the figures
-barely move: a few true flags are lost with the false ones. The choir falls short of recall
-0.85 mostly on legs its network invents behind the row in front, a little too long (see
-:mod:`app.demo.choir`): a stretch of a quarter to three fifths is weak ``stretched-limb``
-evidence and nothing else shows. Much of the lost precision is people with one wrong joint (a
-wrist given to the folder's neighbour) whom the measure counts right at OKS 0.8. The weights
-were not refitted.
+=======================  ========  ======  ======  =========
+demo                     errors    frames  recall  precision
+=======================  ========  ======  ======  =========
+choir, seed 41           current   12      0.981   0.765
+choir, seed 42           current   12      0.917   0.835
+choir, seed 21           current   8       0.898   0.820
+dance, seed 41           current   12      0.918   0.709
+dance, seed 9            current   12      0.952   0.606
+choir, seed 41           earlier   24      0.964   0.764
+choir, seed 42           earlier   24      0.929   0.801
+choir, seed 43           earlier   24      0.928   0.714
+dance, seed 41           earlier   24      0.880   0.830
+dance, seed 42           earlier   24      0.949   0.819
+=======================  ========  ======  ======  =========
+
+With the weights fitted on the dance alone (flagging from 1/3), the choir's seeds 21-23 gave
+recall 0.721 and precision 0.677 (earlier errors, 24 frames each), the shipped dance 0.967 and
+0.818. The issue's goal for the choir (recall at least 0.85 with precision at least 0.7) is
+met on every choir seed measured; on the dance, recall at the new threshold stays near 0.9
+(0.88-0.95) with precision 0.61-0.83 (seed 9 below issue 3's 0.7), where the dance-only fit
+gave 0.90-0.97 and 0.75-0.93 on seeds 5-11 and the shipped demo: flagging from 1/5 buys the
+dance's recall back at some precision.
 
 References
 ----------

@@ -22,8 +22,9 @@ from scipy.stats import theilslopes
 from app.analysis.anthropometry import limb_fractions, person_scale
 from app.analysis.triage.body import feet_y, pair_index, stretched_limbs
 from app.analysis.triage.combine import Reason, make_reason, ramp
-from app.model.naming import Names
+from app.model.naming import Names, joint_name
 from app.model.skeleton import Skeleton
+from app.wording import count
 
 #: Two people whose shared joints lie a median of less than this fraction of stature apart
 #: are tangled (0.15: sure at 0.05); below 0.1 the weaker is a duplicate (sure at 0.04).
@@ -347,3 +348,252 @@ def crowd_index(people: Mapping[int, np.ndarray]) -> float:
         inside = ((xy >= lo) & (xy <= hi)).all(axis=1).sum()
         ratios.append(float(inside) / counts[pid])
     return float(np.mean(ratios))
+
+
+# ------------------------------------------------------------------ who hides whom
+
+#: Upright, the ankles stand this fraction of stature below the shoulders (Drillis and Contini
+#: landmark heights via Winter, Fig. 4.1, from memory: 0.818 - 0.039).
+_SHOULDER_TO_ANKLE = 0.779
+#: Half the width of a thigh or a shank, as a fraction of stature (a mid-thigh of about 0.1
+#: of stature across, a calf a little less; from memory): the legs' capsules of :func:`covers`.
+LEG_HALF_WIDTH = 0.045
+#: A person counts as nearer than another when their feet stand this fraction of the
+#: other's stature lower in the image.
+NEARER_BY = 0.02
+
+
+def stand_rows(people: Mapping[int, np.ndarray], skeleton: Skeleton,
+               torso: Mapping[int, float],
+               line: tuple[float, float] | None = None) -> dict[int, float]:
+    """Where each person stands: the image row of their feet; lower (larger) is nearer.
+
+    Parameters
+    ----------
+    people
+        Person id -> ``(K, 3)`` ``x, y, v``.
+    skeleton
+        The project's skeleton.
+    torso
+        Person id -> stature in pixels from the torso (:func:`person_scale`; NaN where none).
+    line
+        The frame's floor (:func:`ground_line`), or None.
+
+    Returns
+    -------
+    dict
+        Person id -> row (NaN when it cannot be told).
+
+    Notes
+    -----
+    The labelled ankles give the row, but a projection only shortens: ankles labelled farther
+    below the shoulders than an upright body of this torso reaches (``0.779`` of stature) are
+    not where the feet stand (a network guessing legs that the row in front hides tends to
+    draw them too long). The row is therefore the smaller of the lower labelled ankle and the
+    shoulders' row plus ``0.779 * torso``; seated or crouching people, whose ankles are
+    higher, keep their ankles' row. Without ankles, the shoulders' estimate; without
+    shoulders either, where the fitted floor puts the feet of a body of this torso.
+
+    Examples
+    --------
+    >>> from app.model.skeleton import coco_body
+    >>> kp = np.zeros((17, 3)); kp[[5, 6], :] = [[90, 100, 2], [110, 100, 2]]
+    >>> kp[[15, 16], :] = [[95, 400, 2], [105, 395, 2]]       # ankles far too low
+    >>> stand_rows({1: kp}, coco_body(), {1: 200.0})
+    {1: 255.8}
+    """
+    shoulders = pair_index(skeleton, "shoulder")
+    out = {}
+    for p, kp in people.items():
+        y = feet_y(kp, skeleton)
+        scale = torso.get(p, float("nan"))
+        top = [j for pair in shoulders for j in pair if kp[j, 2] > 0]
+        if top and np.isfinite(scale) and scale > 0:
+            upright = float(kp[top, 1].mean()) + _SHOULDER_TO_ANKLE * scale
+            y = upright if not y <= upright else y
+        if not np.isfinite(y) and line is not None and np.isfinite(scale):
+            y = (scale - line[1]) / line[0]
+        out[p] = float(y)
+    return out
+
+
+def body_regions(kp: np.ndarray, skeleton: Skeleton,
+                 scale: float) -> list[tuple[np.ndarray, np.ndarray, float]]:
+    """Capsules ``(a, b, radius)`` that the person's trunk and legs cover, image pixels.
+
+    Notes
+    -----
+    The trunk: from the shoulder centre to the hip centre, as wide as 0.8 of the wider of the
+    shoulders and the hips. Each labelled thigh and shank: ``LEG_HALF_WIDTH`` of stature
+    about the segment. Arms and head are left out (they are thin, and often before the body
+    rather than beside it).
+    """
+    out: list[tuple[np.ndarray, np.ndarray, float]] = []
+    if not (np.isfinite(scale) and scale > 0):
+        return out
+    shoulders, hips = pair_index(skeleton, "shoulder"), pair_index(skeleton, "hip")
+    for (ls, rs), (lh, rh) in zip(shoulders, hips):
+        if (kp[[ls, rs, lh, rh], 2] > 0).all():
+            top = kp[[ls, rs], :2].mean(axis=0)
+            bottom = kp[[lh, rh], :2].mean(axis=0)
+            half = 0.5 * max(np.hypot(*(kp[ls, :2] - kp[rs, :2])),
+                             np.hypot(*(kp[lh, :2] - kp[rh, :2])))
+            out.append((top, bottom, 0.8 * half))
+    for parent, child in (("hip", "knee"), ("knee", "ankle")):
+        for a, b in zip(*pair_index(skeleton, parent, child)):
+            if kp[a, 2] > 0 and kp[b, 2] > 0:
+                out.append((kp[a, :2], kp[b, :2], LEG_HALF_WIDTH * scale))
+    return out
+
+
+def _inside(points: np.ndarray, a: np.ndarray, b: np.ndarray, radius: float) -> np.ndarray:
+    """``(n,)`` whether each point ``(n, 2)`` lies within ``radius`` of the segment a-b."""
+    d = b - a
+    t = np.clip((points - a) @ d / max(float(d @ d), 1e-9), 0.0, 1.0)
+    return np.hypot(*(points - a - t[:, None] * d).T) < radius
+
+
+def _one_body(a: np.ndarray, b: np.ndarray, scale: float) -> bool:
+    """Whether two labels lie on one body (their like joints a median of less than
+    ``TANGLE_FROM`` of stature apart): a body found twice does not hide itself."""
+    both = (a[:, 2] > 0) & (b[:, 2] > 0)
+    if both.sum() < 3 or not scale > 0:
+        return False
+    return float(np.median(np.hypot(*(a[both, :2] - b[both, :2]).T))) / scale < TANGLE_FROM
+
+
+def covers(people: Mapping[int, np.ndarray], skeleton: Skeleton,
+           scales: Mapping[int, float],
+           rows: Mapping[int, float]) -> dict[int, list[tuple[int, int]]]:
+    """Joints that a nearer person's body hides: person id -> ``[(joint, coverer), ...]``.
+
+    Parameters
+    ----------
+    people
+        Person id -> ``(K, 3)`` ``x, y, v``.
+    skeleton
+        The project's skeleton.
+    scales
+        Person id -> stature in pixels.
+    rows
+        Person id -> where they stand (:func:`stand_rows`).
+
+    Notes
+    -----
+    A person standing lower in the image is nearer the camera (Hoiem et al. 2006; on risers
+    too: each row stands both higher and farther). A labelled joint of a farther person (by
+    more than ``NEARER_BY`` of their stature) inside the nearer one's :func:`body_regions`
+    cannot be seen. Two labels of one body (like joints a median of less than ``TANGLE_FROM``
+    of stature apart: found twice, or tangled) do not hide each other.
+
+    Examples
+    --------
+    >>> from app.model.skeleton import coco_body
+    >>> sk = coco_body()
+    >>> front = np.zeros((17, 3)); front[[5, 6, 11, 12], :] = [[90, 100, 2], [110, 100, 2],
+    ...     [92, 160, 2], [108, 160, 2]]
+    >>> back = np.zeros((17, 3)); back[9] = (100, 130, 2)        # a wrist behind the trunk
+    >>> covers({1: front, 2: back}, sk, {1: 200.0, 2: 200.0}, {1: 300.0, 2: 250.0})
+    {2: [(9, 1)]}
+    """
+    regions = {p: body_regions(kp, skeleton, scales.get(p, float("nan")))
+               for p, kp in people.items()}
+    out: dict[int, list[tuple[int, int]]] = {}
+    for p, kp in people.items():
+        row = rows.get(p, float("nan"))
+        scale = scales.get(p, float("nan"))
+        if not (np.isfinite(row) and np.isfinite(scale)):
+            continue
+        nearer = [q for q in people if q != p and regions[q]
+                  and rows.get(q, float("nan")) > row + NEARER_BY * scale
+                  and not _one_body(kp, people[q], max(scale, scales.get(q, 0.0)))]
+        joints = np.flatnonzero(kp[:, 2] > 0)
+        cover = np.full(len(joints), -1)
+        for q in nearer:
+            for a, b, radius in regions[q]:
+                inside = _inside(kp[joints, :2], a, b, radius) & (cover < 0)
+                cover[inside] = q
+        found = [(int(j), int(q)) for j, q in zip(joints.tolist(), cover.tolist()) if q >= 0]
+        if found:
+            out[p] = found
+    return out
+
+
+def typical_joint_score(people: Mapping[int, np.ndarray],
+                        scores: Mapping[int, np.ndarray] | None) -> float:
+    """The frame's median model score of a labelled joint (NaN without scores).
+
+    Examples
+    --------
+    >>> kp = np.zeros((17, 3)); kp[:3, 2] = 2
+    >>> typical_joint_score({1: kp}, {1: np.array([0.2, 0.8, 0.9] + [np.nan] * 14)})
+    0.8
+    """
+    if scores is None:
+        return float("nan")
+    values = [scores[p][kp[:, 2] > 0] for p, kp in people.items() if p in scores]
+    pooled = np.concatenate(values) if values else np.zeros(0)
+    pooled = pooled[np.isfinite(pooled)]
+    return float(np.median(pooled)) if pooled.size else float("nan")
+
+
+#: Invented: a covered joint scored at least this fraction of the frame's typical score for a
+#: labelled joint is a confident guess at a spot the model cannot see (sure at the second).
+INVENTED_FROM, INVENTED_SURE = 0.85, 1.1
+#: Invented joints a person needs for full strength (one wrong joint of 17 rarely makes a
+#: label wrong by OKS; two or more usually do).
+INVENTED_FULL = 2.0
+
+
+def invented(pid: int, kp: np.ndarray, skeleton: Skeleton, covered: list[tuple[int, int]],
+             scores: np.ndarray | None, typical: float,
+             names: Names | None = None) -> list[Reason]:
+    """Joints hidden by a nearer person that the model scores as confidently as seen joints.
+
+    Parameters
+    ----------
+    pid
+        The person's id.
+    kp
+        ``(K, 3)`` ``x, y, v``.
+    skeleton
+        The project's skeleton.
+    covered
+        ``[(joint, coverer), ...]`` of :func:`covers` for this person.
+    scores
+        ``(K,)`` model scores (NaN where none), or None (no check).
+    typical
+        :func:`typical_joint_score` of the frame.
+    names
+        How the frame's people are named in the text.
+
+    Returns
+    -------
+    list of Reason
+        At most one ``invented`` reason naming those joints.
+
+    Notes
+    -----
+    A network scores what it sees; a joint behind someone nearer that it scores like the
+    frame's typical labelled joint is a guess, usually at a wrong spot. Per covered joint
+    labelled visible (one labelled occluded was placed knowing it is hidden),
+    ``ratio = score / typical`` ramped from ``INVENTED_FROM`` (0.85) to ``INVENTED_SURE``
+    (1.1); the strength is the sum over the covered joints over ``INVENTED_FULL`` (2), at
+    most 1. When the scores say nothing (none, or no typical score), the check is silent.
+    Common practice, no source.
+    """
+    if scores is None or not (np.isfinite(typical) and typical > 0) or not covered:
+        return []
+    ramps = {j: ramp(float(scores[j]) / typical, INVENTED_FROM, INVENTED_SURE)
+             for j, _ in covered if np.isfinite(scores[j]) and kp[j, 2] == 2}
+    confident = sorted(j for j, r in ramps.items() if r > 0)
+    if not confident:
+        return []
+    strength = min(1.0, sum(ramps.values()) / INVENTED_FULL)
+    by = sorted({q for j, q in covered if j in confident})
+    who = ", ".join(names.person(q) for q in by) if names is not None else \
+        count(len(by), "person", "people")
+    listed = ", ".join(joint_name(skeleton, j) for j in confident)
+    return [make_reason("invented",
+                        f"{listed} behind {who}, who stands nearer, yet scored as if seen: "
+                        "guessed, likely at a wrong spot", pid, confident, strength)]

@@ -57,7 +57,15 @@ from app.analysis.triage.body import (
     upright_body,
 )
 from app.analysis.triage.combine import WEIGHTS, FrameTriage, Reason, ramp
-from app.analysis.triage.crowd import ground_line, off_ground
+from app.analysis.triage.crowd import (
+    INVENTED_FROM,
+    INVENTED_SURE,
+    covers,
+    ground_line,
+    off_ground,
+    stand_rows,
+    typical_joint_score,
+)
 from app.analysis.triage.model_evidence import (
     FieldMemo,
     limb_support,
@@ -111,9 +119,6 @@ BALANCE_FROM, BALANCE_SURE = 0.2, 0.45
 #: Split: the union of two halves is one body when triage's body evidence against it falls
 #: from ``SPLIT_FROM`` to ``SPLIT_SURE`` (log-odds).
 SPLIT_FROM, SPLIT_SURE = 4.0, 0.5
-#: Invented: a joint inside a nearer person's body scored at least this fraction of the
-#: frame's typical score for a visible joint is a confident guess at a spot it cannot see.
-INVENTED_FROM, INVENTED_SURE = 0.85, 1.1
 #: Missing joint and missed person: a peak counts as used when a labelled joint of its type
 #: lies within this fraction of the nearest person's stature.
 USED_WITHIN = 0.04
@@ -232,26 +237,21 @@ class FrameView:
     @cached_property
     def typical_score(self) -> float:
         """The frame's median score of a labelled joint (NaN without scores)."""
-        if self.scores is None:
-            return float("nan")
-        values = [self.scores[p][self.people[p][:, 2] > 0] for p in self.present
-                  if p in self.scores]
-        pooled = np.concatenate(values) if values else np.zeros(0)
-        pooled = pooled[np.isfinite(pooled)]
-        return float(np.median(pooled)) if pooled.size else float("nan")
+        return typical_joint_score({p: self.people[p] for p in self.present}, self.scores)
 
     @cached_property
     def depth(self) -> dict[int, float]:
-        """Where each person stands on the floor: the image row of their feet, read from the
-        ankles, else from their size on the fitted floor; NaN when neither is known. Lower in
-        the image (larger) is nearer the camera."""
-        out = {}
-        for p in self.present:
-            y = feet_y(self.people[p], self.skeleton)
-            if not np.isfinite(y) and self.line is not None and np.isfinite(self.torso[p]):
-                y = (self.torso[p] - self.line[1]) / self.line[0]
-            out[p] = float(y)
-        return out
+        """Where each person stands: the image row of their feet
+        (:func:`~app.analysis.triage.crowd.stand_rows`); lower in the image (larger) is
+        nearer the camera, NaN when it cannot be told."""
+        return stand_rows({p: self.people[p] for p in self.present}, self.skeleton,
+                          self.torso, self.line)
+
+    @cached_property
+    def covered(self) -> dict[int, list[tuple[int, int]]]:
+        """Joints a nearer person hides (:func:`~app.analysis.triage.crowd.covers`)."""
+        return covers({p: self.people[p] for p in self.present}, self.skeleton,
+                      {p: self.scale(p) for p in self.present}, self.depth)
 
     @cached_property
     def chains(self) -> list[tuple[int, ...]]:
@@ -624,7 +624,10 @@ def crossed(view: FrameView) -> list[Proposal]:
             joints = tuple(sorted(j for pair in pairs for j in pair))
             done.update(joints)
             n = view.names
-            strength = float(np.clip((before - after) / WEIGHTS["crossed-sides"], 0.0, 1.0))
+            # The drop in body evidence over the weight of one crossed pair (at least 0.5, should
+            # a fit weigh crossed sides at nothing).
+            strength = float(np.clip((before - after) / max(WEIGHTS["crossed-sides"], 0.5),
+                                     0.0, 1.0))
             parts = join_words([_part(sk, j) for j, _ in pairs])
             text = (f"{n.person(p)}'s left and right {parts} are the other way round from the "
                     "rest of the body")
@@ -811,61 +814,10 @@ def _exchange(giver: np.ndarray, taker: np.ndarray,
     return new_giver, new_taker
 
 
-def _body_regions(view: FrameView, pid: int) -> list[tuple[np.ndarray, np.ndarray, float]]:
-    """Capsules ``(a, b, radius)`` covering the person's trunk and thighs, image pixels."""
-    sk = view.skeleton
-    kp = view.people[pid]
-    scale = view.scale(pid)
-    out: list[tuple[np.ndarray, np.ndarray, float]] = []
-    if not np.isfinite(scale):
-        return out
-    shoulders, hips = pair_index(sk, "shoulder"), pair_index(sk, "hip")
-    for (ls, rs), (lh, rh) in zip(shoulders, hips):
-        if (kp[[ls, rs, lh, rh], 2] > 0).all():
-            top = kp[[ls, rs], :2].mean(axis=0)
-            bottom = kp[[lh, rh], :2].mean(axis=0)
-            half = 0.5 * max(np.hypot(*(kp[ls, :2] - kp[rs, :2])),
-                             np.hypot(*(kp[lh, :2] - kp[rh, :2])))
-            out.append((top, bottom, 0.8 * half))
-    return out
-
-
-def _inside(points: np.ndarray, a: np.ndarray, b: np.ndarray, radius: float) -> np.ndarray:
-    """``(n,)`` whether each point ``(n, 2)`` lies within ``radius`` of the segment a-b."""
-    d = b - a
-    t = np.clip((points - a) @ d / max(float(d @ d), 1e-9), 0.0, 1.0)
-    return np.hypot(*(points - a - t[:, None] * d).T) < radius
-
-
 def covered_joints(view: FrameView) -> dict[int, list[tuple[int, int]]]:
-    """Joints that a nearer person's trunk hides: person id -> ``[(joint, coverer), ...]``.
-
-    Notes
-    -----
-    A person standing lower on the frame's floor is nearer the camera (their feet, or where
-    the fitted floor puts the feet of a body of their size; Hoiem et al. 2006). A labelled
-    joint of a farther person (by more than 0.02 of their stature) that falls inside the
-    nearer one's trunk (the capsule from the shoulder centre to the hip centre, as wide as
-    0.8 of the wider of the shoulders and the hips) cannot be seen.
-    """
-    regions = {p: _body_regions(view, p) for p in view.present}
-    out: dict[int, list[tuple[int, int]]] = {}
-    for p in view.present:
-        kp = view.people[p]
-        if not np.isfinite(view.depth.get(p, np.nan)):
-            continue
-        nearer = [q for q in view.present if q != p and regions[q]
-                  and view.depth.get(q, np.nan) > view.depth[p] + 0.02 * view.scale(p)]
-        joints = np.flatnonzero(kp[:, 2] > 0)
-        cover = np.full(len(joints), -1)
-        for q in nearer:
-            for a, b, radius in regions[q]:
-                inside = _inside(kp[joints, :2], a, b, radius) & (cover < 0)
-                cover[inside] = q
-        found = [(int(j), int(q)) for j, q in zip(joints.tolist(), cover.tolist()) if q >= 0]
-        if found:
-            out[p] = found
-    return out
+    """Joints that a nearer person's body hides: person id -> ``[(joint, coverer), ...]``
+    (:func:`app.analysis.triage.crowd.covers` on the frame's people and where they stand)."""
+    return view.covered
 
 
 def invented_joints(view: FrameView,

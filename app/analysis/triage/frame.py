@@ -25,7 +25,16 @@ from app.analysis.triage.combine import (
     Reason,
     combine,
 )
-from app.analysis.triage.crowd import crowd_index, duplicates_and_splits, ground_line, off_ground
+from app.analysis.triage.crowd import (
+    covers,
+    crowd_index,
+    duplicates_and_splits,
+    ground_line,
+    invented,
+    off_ground,
+    stand_rows,
+    typical_joint_score,
+)
 from app.analysis.triage.model_evidence import limb_support, low_scores, typical_support, weak_limbs
 from app.model.naming import Names
 from app.model.skeleton import Skeleton
@@ -97,6 +106,10 @@ def triage_frame(
                  and np.isfinite(score_arrays[p][arrays[p][:, 2] > 0]).any()]
         if len(means) >= 3:
             typical_score = float(np.median(means))
+    shown = {p: arrays[p] for p in present}
+    covered = covers(shown, skeleton, scales, stand_rows(shown, skeleton, torso, line))
+    joint_score = typical_joint_score(shown, score_arrays)
+    names = Names.of_frame(skeleton, arrays)
     reasons: list[Reason] = []
     for n, pid in enumerate(present):
         kp = arrays[pid]
@@ -110,8 +123,8 @@ def triage_frame(
         if support is not None and typical is not None:
             reasons += weak_limbs(pid, kp, skeleton, support[n], typical)
         reasons += low_scores(pid, kp, own, typical_score)
-    reasons += duplicates_and_splits({p: arrays[p] for p in present}, skeleton, scales,
-                                     score_arrays, Names.of_frame(skeleton, arrays))
+        reasons += invented(pid, kp, skeleton, covered.get(pid, []), own, joint_score, names)
+    reasons += duplicates_and_splits(shown, skeleton, scales, score_arrays, names)
     reasons = [r for r in reasons if r.strength >= MIN_STRENGTH]
     suspicion = combine(reasons, arrays)
     ci = crowd_index(arrays)
