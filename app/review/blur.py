@@ -654,7 +654,7 @@ def unexplained_peaks(confidence_maps: np.ndarray, stride: int, peaks: Sequence[
                          found[:, None, 1] - known[None, :, 1])
             found = found[d.min(axis=1) > stride]
         extra[face[n]] = found
-    faint = []
+    faint = [np.zeros((0, 2))]  # a skeleton without face joints has no faint evidence
     for found in find_peaks(residual, FAINT, stride):
         # Weak evidence near a labelled face is most likely what is left of its bumps: any
         # labelled face joint owns it, as it owns a peak of the face sum.
