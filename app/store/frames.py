@@ -200,8 +200,19 @@ class FramesGateway:
 
     def count(self, query: FrameQuery) -> int:
         """How many frames the query keeps (its offset and limit aside)."""
-        triaged, untriaged = self._triaged(query), self._untriaged(query)
-        return self._count(triaged) + self._count(untriaged)
+        if query.reason is not None:
+            return self._count(self._triaged(query))
+        return self._count(self._in_states(query))
+
+    @staticmethod
+    def _in_states(query: FrameQuery) -> tuple[str, list[Any]] | None:
+        """``FROM ... WHERE ...`` of every frame in the query's states, triaged or not."""
+        if query.states is None:
+            return "FROM frames WHERE 1 = 1", []
+        states = [FrameState(s).value for s in query.states]
+        if not states:
+            return None
+        return f"FROM frames WHERE frames.state IN ({', '.join('?' * len(states))})", states
 
     def position(self, query: FrameQuery, frame_id: int) -> int | None:
         """Where the frame stands (0-based) among those the query keeps, in its order; None
@@ -226,7 +237,11 @@ class FramesGateway:
                                       (score, fid)))
         if untriaged is None or not self._count(untriaged, " AND frames.id = ?", (fid,)):
             return None
-        return self._count(triaged) + self._count(untriaged, " AND frames.id < ?", (fid,))
+        # The frames never triaged before it: those in its states before it, less the triaged
+        # ones (two counts of index ranges, not a scan of the frames for the ones untriaged).
+        before = self._count(self._in_states(query), " AND frames.id < ?", (fid,)) \
+            - self._count(triaged, " AND triage.frame_id < ?", (fid,))
+        return self._count(triaged) + before
 
     def ordered_ids(self, query: FrameQuery) -> list[int]:
         """The ids of every frame the query keeps, in its order (offset and limit aside)."""
