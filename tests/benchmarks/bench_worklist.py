@@ -55,6 +55,8 @@ _OPEN_WINDOW = _PEAK + textwrap.dedent("""
     w.worklist.view.viewport().repaint()
     took = time.perf_counter() - t0
     print(took, peak_mb(), w.worklist_model.rowCount(), len(w.worklist_model.fetched))
+    w.shutdown()
+    p.close()
 """)
 
 _EAGER_READS = _PEAK + textwrap.dedent("""
@@ -66,6 +68,7 @@ _EAGER_READS = _PEAK + textwrap.dedent("""
     frames, triage, found = p.frames(), p.triage_all(), p.finding_counts()
     took = time.perf_counter() - t0
     print(took, peak_mb(), len(frames))
+    p.close()
 """)
 
 
