@@ -45,6 +45,10 @@ def register(sub: Any, command: Command) -> None:
                    help="with --accept: only fixes at least this confident (0 to 1)")
     p.add_argument("--dry-run", action="store_true",
                    help="with --accept: list the fixes that would be applied; change nothing")
+    p.add_argument("--carry", action="store_true",
+                   help="with --accept: carry each fix of one frame to the frames around it "
+                        "where the same tracks show the same error, as one more action each "
+                        "(see `posewright carry`)")
     p.add_argument("--dismiss", metavar="ID,ID",
                    help="record these findings as not a problem (undoable); they are not "
                         "raised again while the labels they are about stay the same")
@@ -79,8 +83,12 @@ def cmd_findings(args: argparse.Namespace) -> int:
     from app.parallel import check_workers
 
     kinds = parse_kinds(args.kinds)
-    if args.accept is None and (args.dry_run or args.min_confidence != 0.0):
-        raise BadInput("--dry-run and --min-confidence go with --accept", where="findings")
+    if args.accept is None and (args.dry_run or args.min_confidence != 0.0 or args.carry):
+        raise BadInput("--dry-run, --min-confidence and --carry go with --accept",
+                       where="findings")
+    if args.carry and args.dry_run:
+        raise BadInput("--carry follows each fix as it is applied, which --dry-run does not "
+                       "do; give one of them", where="findings")
     if args.accept is not None and args.dismiss is not None:
         raise BadInput("give --accept or --dismiss, not both", where="findings")
     if not 0.0 <= args.min_confidence <= 1.0:
@@ -129,7 +137,7 @@ def _accept(args: argparse.Namespace, kinds: set[str] | None) -> int:
     with _open(args, write=not args.dry_run) as project:
         frame_ids = _frame_ids(project, args.frames)
         report = accept_fixes(project, chosen, args.min_confidence, frame_ids,
-                              dry_run=args.dry_run, progress=_progress(args))
+                              dry_run=args.dry_run, progress=_progress(args), carry=args.carry)
         names = {f.id: f.file_name for f in project.frames()}
     for f in report.fixes:
         print(f"{f.confidence:4.2f}  {f.id}  frame {f.frame_id} {shown(names[f.frame_id])}  "
@@ -141,6 +149,9 @@ def _accept(args: argparse.Namespace, kinds: set[str] | None) -> int:
         extra.append(f"{report.held_back} held back by an overlapping fix")
     if report.refused:
         extra.append(f"{report.refused} refused: the labels had changed")
+    if report.carried:
+        extra.append(f"{count(report.carried, 'fix')} carried to "
+                     f"{count(report.carried_frames, 'more frame')}")
     print(line + (f" ({'; '.join(extra)})" if extra else "")
           + ("" if args.dry_run or not report.fixes else
              "; `posewright undo PROJECT --steps N` takes them back"))

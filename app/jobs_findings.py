@@ -27,6 +27,7 @@ from app.errors import BadInput, EditRefused, NotFound
 from app.model.edits import DismissFinding, EditGroup
 from app.model.labels import Frame, FrameLabels
 from app.model.skeleton import Skeleton
+from app.model.targets import StateTarget
 from app.progress import Progress
 from app.store.project import Project
 
@@ -155,6 +156,9 @@ class Accepted:
     held_back: int = 0
     #: Fixes the store refused (the labels had moved on); nothing of them was applied.
     refused: int = 0
+    #: With carrying: the batches taken (one action each) and the frames they changed.
+    carried: int = 0
+    carried_frames: int = 0
 
     @property
     def frames(self) -> list[int]:
@@ -190,7 +194,7 @@ def select_fixes(findings: Sequence[Finding], kinds: set[str] | None = None,
 
 def accept_fixes(project: Project, kinds: set[str] | None = None, min_confidence: float = 0.0,
                  frame_ids: Iterable[int] | None = None, dry_run: bool = False,
-                 progress: Progress | None = None) -> Accepted:
+                 progress: Progress | None = None, carry: bool = False) -> Accepted:
     """Apply the proposed fixes of the given kinds, each as one ledger group.
 
     Parameters
@@ -207,6 +211,10 @@ def accept_fixes(project: Project, kinds: set[str] | None = None, min_confidence
         List what would be accepted in the first round and change nothing.
     progress
         Told about each frame.
+    carry
+        Carry each fix of one frame to the frames around it where the same tracks show the
+        same error (:func:`app.jobs_tracks.propose_carry`), as one more action; not with
+        ``dry_run``.
 
     Returns
     -------
@@ -218,7 +226,8 @@ def accept_fixes(project: Project, kinds: set[str] | None = None, min_confidence
     which the store refuses whole when the labels have moved on. Per frame the fixes are
     chosen by :func:`select_fixes`; after a round the changed frames are triaged again and up
     to :data:`ACCEPT_ROUNDS` rounds accept what is still proposed. A project without triage
-    results is triaged first.
+    results is triaged first. A carried batch changes people of other frames: their own fixes
+    wait for the next round, computed from the labels as carried.
     """
     from app.jobs_analysis import run_triage
 
@@ -242,14 +251,17 @@ def accept_fixes(project: Project, kinds: set[str] | None = None, min_confidence
                     out.fixes.append(finding)
                     continue
                 try:
-                    _apply_fix(project, finding)
+                    applied = _apply_fix(project, finding)
                 except EditRefused as exc:
                     log.warning("fix of finding %s not applied: %s", finding.id, exc)
                     out.refused += 1
                     continue
                 out.fixes.append(finding)
                 claimed.update(finding.people)
-                for frame in fix_frames(finding):
+                frames = fix_frames(finding)
+                if carry and len(frames) == 1:
+                    frames += _carry_fix(project, fid, applied, claimed, out)
+                for frame in frames:
                     if frame not in changed:
                         changed.append(frame)
         progress.step(len(todo), len(todo), "accepting fixes")
@@ -259,6 +271,31 @@ def accept_fixes(project: Project, kinds: set[str] | None = None, min_confidence
         found = {fid: verdict.findings for fid, verdict in again.items()}
         todo = changed
     return out
+
+
+def _carry_fix(project: Project, frame_id: int, applied: Any, claimed: set[int],
+               out: Accepted) -> list[int]:
+    """Carry a fix just applied in ``frame_id`` and take the batch; the frames it changed
+    (their people join ``claimed``). A frame in no sequence carries nothing."""
+    from app.jobs_tracks import propose_carry, take_batch
+
+    changes = [c for c in applied.changes if not isinstance(c.target, StateTarget)]
+    try:
+        batch = propose_carry(project, frame_id, changes)
+    except BadInput:
+        return []
+    if not batch.edits:
+        return []
+    try:
+        taken = take_batch(project, batch)
+    except EditRefused as exc:
+        log.warning("carrying the fix of frame %s not done: %s", frame_id, exc)
+        return []
+    out.carried += 1
+    out.carried_frames += len(batch.edits)
+    claimed.update(int(c.target.person) for c in taken.changes
+                   if getattr(c.target, "person", None) is not None)
+    return [g.frame_id for g in batch.edits]
 
 
 def accept_finding(project: Project, finding: Finding) -> Any:

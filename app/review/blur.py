@@ -11,7 +11,9 @@ source of evidence, each recorded as a *source* of the region it places:
     The network's confidence maps kept with the frame: every head-joint peak (nose, eyes, ears)
     that no labelled person owns, grouped into heads and sized from the local scale of the
     labelled people nearby or, away from them, from the frame's floor in perspective
-    (:func:`map_head_ellipses`).
+    (:func:`map_head_ellipses`); and the peaks left once the bumps the labels explain are
+    taken away, where a faint head lay on a labelled neighbour's slope
+    (:func:`unexplained_peaks`).
 ``detector``
     A general-purpose face detector (:mod:`app.review.faces`) as the last net
     (:func:`face_ellipses`).
@@ -40,10 +42,9 @@ from app.analysis.anthropometry import person_scale
 from app.model.skeleton import Skeleton
 from app.wording import count
 
-__all__ = ["MODES", "SOURCES", "BlurPlan", "Region", "blur_frame", "blur_regions",
+__all__ = ["MODES", "SOURCES", "BlurPlan", "Region", "Unexplained", "blur_frame", "blur_regions",
            "face_ellipses", "head_ellipses", "label_head_ellipses", "local_stature",
-           "map_head_ellipses",
-           "place_regions", "region_mask"]
+           "map_head_ellipses", "place_regions", "region_mask", "unexplained_peaks"]
 
 #: What a blurred image hides: heads, or whole people.
 MODES = ("heads", "people")
@@ -85,6 +86,15 @@ HEAD_SUM = 0.2
 #: A peak of the face sum is owned by a person with any face joint within this share of
 #: their stature (the sum peaks between a head's landmarks).
 OWNED_SUM = 0.08
+#: Least value of a faint landmark: a local maximum of a face channel, once the labels' bumps
+#: are taken away, that widens a head found by the face sum alone but never makes one (see
+#: :meth:`Unexplained.extent`). Chosen on the misses of demo seeds 43 and 46: 0.05 let what
+#: is left of labelled heads' bumps widen heads until 19 % of a frame was blurred; fresh
+#: seeds measure it (app/demo/blurcheck.py).
+FAINT = 0.07
+#: Least and largest width (standard deviation, in cells) of a bump taken away as explained
+#: by a label (see :func:`unexplained_peaks`).
+BUMP_CELLS = (0.5, 4.0)
 #: Stature assumed, as a share of the image height, when a frame has no labelled person.
 DEFAULT_STATURE = 0.5
 #: Widest plausible face box, as a fraction of the local stature: three heads' widths.
@@ -297,14 +307,21 @@ def label_head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
     return out, extra
 
 
-def _group_ellipse(xy: np.ndarray, stature: float, floor: float) -> np.ndarray:
-    """The ellipse of one head from its landmarks (see :func:`head_ellipses`)."""
+def _group_ellipse(xy: np.ndarray, stature: float, floor: float,
+                   extent: np.ndarray | None = None) -> np.ndarray:
+    """The ellipse of one head from its landmarks (see :func:`head_ellipses`); ``extent``:
+    faint landmarks (:meth:`Unexplained.extent`), which widen each half-axis to reach them
+    with the margin but neither move the centre nor raise the scale."""
     if len(xy) >= 2:
         stature = max(stature, min(float(np.ptp(xy, axis=0).max()) / 0.1, 1.5 * stature))
     centre = xy.mean(axis=0) - [0.0, FACE_LIFT * stature]
-    reach = np.abs(xy - centre).max(axis=0) + REACH_MARGIN * stature
-    return np.array([*centre, max(floor, HALF_WIDTH * stature, reach[0]),
+    margin = REACH_MARGIN * stature
+    reach = np.abs(xy - centre).max(axis=0) + margin
+    axes = np.array([max(floor, HALF_WIDTH * stature, reach[0]),
                      max(floor, HALF_HEIGHT * stature, reach[1])])
+    if extent is not None and len(extent):
+        axes = np.maximum(axes, np.abs(extent - centre).max(axis=0) + margin)
+    return np.array([*centre, *axes])
 
 
 def _statures(people: Sequence[np.ndarray], skeleton: Skeleton) -> np.ndarray:
@@ -446,7 +463,8 @@ def local_stature(points: np.ndarray, centres: np.ndarray, statures: np.ndarray,
 
 def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
                       skeleton: Skeleton, image_size: tuple[int, int],
-                      head_peaks: np.ndarray | None = None) -> np.ndarray:
+                      head_peaks: np.ndarray | None = None,
+                      unexplained: Unexplained | None = None) -> np.ndarray:
     """Heads the network sees that no labelled person owns, as ellipses.
 
     Parameters
@@ -463,6 +481,9 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
     head_peaks
         ``(n, 3)`` ``x, y, score``: peaks of the sum of the face joints' confidence maps
         above :data:`HEAD_SUM`, or None.
+    unexplained
+        What the labels leave unexplained in the maps (:func:`unexplained_peaks`), whose
+        faint landmarks widen each head; None: the peaks alone set it.
 
     Returns
     -------
@@ -480,7 +501,12 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
     along a chain of peaks. Each head gets the ellipse the labels
     would give it (:func:`head_ellipses`: centre the peaks' mean lifted by ``0.02 H``,
     half-axes ``0.085 H`` and ``0.115 H``, widened to hold every peak with a margin of
-    ``0.05 H``).
+    ``0.05 H``). With ``unexplained``, the ellipse also holds the faint landmarks within
+    ``0.12 H`` of the head's strongest peak (:meth:`Unexplained.extent`): the landmarks of a
+    faint head, each too weak to be a peak, still show where the head reaches (a face seen
+    side on spans from the nose to the far ear). Only a head found by the face sum alone is
+    widened so (none of its landmarks a peak of its own channel): a head whose landmarks show
+    on their own is placed by them.
 
     Examples
     --------
@@ -500,6 +526,29 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
     xy = np.array([p[:2] for _, p in found])
     score = np.array([p[2] for _, p in found])
     centres, statures = _people_scale(people, skeleton, image_size)
+    owned = _owned(kinds, xy, people, statures, face)
+    xy, score, kinds = xy[~owned], score[~owned], kinds[~owned]
+    if not len(xy):
+        return np.zeros((0, 4))
+    scale = local_stature(xy, centres, statures, image_size)
+    floor = _floor(image_size)
+    out = []
+    for members in _heads(xy, score, SAME_HEAD * scale):
+        seed = members[0]
+        faint = not (kinds[members] >= 0).any()  # no landmark seen on its own
+        extent = (unexplained.extent(xy[seed], SAME_HEAD * scale[seed])
+                  if unexplained is not None and faint else None)
+        out.append(_group_ellipse(xy[members], float(np.median(scale[members])), floor,
+                                  extent))
+    return np.array(out, dtype=np.float64).reshape(-1, 4)
+
+
+def _owned(kinds: np.ndarray, xy: np.ndarray, people: Sequence[np.ndarray],
+           statures: np.ndarray, face: list[int]) -> np.ndarray:
+    """``(n,)`` bool: which peaks a labelled person owns (see :func:`map_head_ellipses`):
+    a peak of joint ``j`` (``kinds >= 0``) when the person has ``j`` labelled within
+    :data:`OWNED` of their stature, a peak of the face sum (``kinds == -1``) when any labelled
+    face joint lies within :data:`OWNED_SUM`."""
     owned = np.zeros(len(xy), dtype=bool)
     for person, stature in zip(people, statures):
         kp = np.asarray(person, dtype=np.float64)
@@ -513,15 +562,131 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
                     (np.hypot(*(face_xy - xy[i]).T) <= OWNED_SUM * stature).any())
             elif on[j] and np.hypot(*(kp[j, :2] - xy[i])) <= OWNED * stature:
                 owned[i] = True
-    xy, score = xy[~owned], score[~owned]
-    if not len(xy):
-        return np.zeros((0, 4))
-    scale = local_stature(xy, centres, statures, image_size)
-    floor = _floor(image_size)
-    out = []
-    for members in _heads(xy, score, SAME_HEAD * scale):
-        out.append(_group_ellipse(xy[members], float(np.median(scale[members])), floor))
-    return np.array(out, dtype=np.float64).reshape(-1, 4)
+    return owned
+
+
+def _peak_width(grid: np.ndarray, r: int, c: int) -> float:
+    """The standard deviation in cells of the bump at cell ``(r, c)``, from the second
+    difference of the map's logarithm along each axis (a Gaussian's logarithm is a parabola
+    whose second difference is ``-1 / sigma^2``); the narrower axis, as the wider is more
+    often widened by a neighbour's bump; 1 cell where neither axis gives one, and kept
+    within :data:`BUMP_CELLS`."""
+    height, width = grid.shape
+    found = []
+    for dr, dc in ((0, 1), (1, 0)):
+        if r >= dr and r + dr < height and c >= dc and c + dc < width:
+            values = np.array([grid[r - dr, c - dc], grid[r, c], grid[r + dr, c + dc]])
+            if (values > 0).all():
+                d2 = float(np.log(values[0]) - 2 * np.log(values[1]) + np.log(values[2]))
+                if d2 < 0:
+                    found.append(float(np.sqrt(-1.0 / d2)))
+    return float(np.clip(min(found, default=1.0), *BUMP_CELLS))
+
+
+def unexplained_peaks(confidence_maps: np.ndarray, stride: int, peaks: Sequence[np.ndarray],
+                      people: Sequence[np.ndarray], skeleton: Skeleton,
+                      image_size: tuple[int, int]) -> Unexplained:
+    """Head evidence that the labelled people's peaks hide: peaks of the face maps once the
+    bumps the labels explain are taken away.
+
+    Parameters
+    ----------
+    confidence_maps
+        ``(K, rows, cols)`` the frame's maps (the grid of :mod:`app.analysis.targets`).
+    stride
+        Image pixels per cell.
+    peaks
+        Per joint, ``(n_j, 3)`` the maps' own peaks (:func:`app.analysis.association.find_peaks`
+        above :data:`PEAK_THRESHOLD`).
+    people
+        The labelled people, ``(K, 3)`` ``x, y, v`` each.
+    skeleton
+        The joint layout.
+    image_size
+        ``(width, height)``.
+
+    Returns
+    -------
+    Unexplained
+        ``peaks``: per joint, the peaks above :data:`PEAK_THRESHOLD` of the face channels'
+        residual that are not already among ``peaks`` (more than a cell from every one of
+        them; empty for the other joints); ``head_peaks``: the peaks above :data:`HEAD_SUM` of
+        the sum of the residual face channels, in image pixels, ``x, y, score``; ``faint``:
+        the residual face channels' local maxima above :data:`FAINT` with no labelled face
+        joint as near as a peak of the face sum's owner (:data:`OWNED_SUM`),
+        ``(n, 2)`` image points (what widens a head found in the maps, see
+        :meth:`Unexplained.extent`).
+
+    Notes
+    -----
+    A faint head beside a labelled one is often no peak of its own: its bump lies on the
+    slope of the neighbour's, so non-maximum suppression (which keeps one peak per hill)
+    keeps only the neighbour's. Each peak a labelled person owns (:func:`map_head_ellipses`)
+    is explained by that person: a Gaussian of the peak's height, centred on it, with the
+    width the map shows there (:func:`_peak_width`), is taken away from its channel (a
+    network's confidence map is trained towards such Gaussians, Cao et al. CVPR 2017,
+    Sec. 2.2), and what remains is searched again. Explaining away a peak by the model of
+    its own bump, rather than a disc around the labelled joint, keeps the evidence a few
+    cells off.
+    """
+    from app.analysis.association import find_peaks
+
+    face = _indices(skeleton, FACE_JOINTS)
+    maps = np.asarray(confidence_maps, dtype=np.float64)
+    rows, cols = maps.shape[1:]
+    _, statures = _people_scale(people, skeleton, image_size)
+    rr, cc = np.mgrid[0:rows, 0:cols]
+    residual = maps[face].copy()
+    for n, j in enumerate(face):
+        found = np.asarray(peaks[j]).reshape(-1, 3)
+        owned = _owned(np.full(len(found), j), found[:, :2], people, statures, face)
+        for x, y, height in found[owned]:
+            u, v = (x - (stride - 1) / 2) / stride, (y - (stride - 1) / 2) / stride
+            r, c = int(np.clip(round(v), 0, rows - 1)), int(np.clip(round(u), 0, cols - 1))
+            sigma = _peak_width(maps[j], r, c)
+            residual[n] -= height * np.exp(-((cc - u) ** 2 + (rr - v) ** 2) / (2 * sigma ** 2))
+    np.clip(residual, 0.0, None, out=residual)
+    extra = [np.zeros((0, 3)) for _ in range(len(peaks))]
+    for n, found in enumerate(find_peaks(residual, PEAK_THRESHOLD, stride)):
+        known = np.asarray(peaks[face[n]]).reshape(-1, 3)
+        if len(known) and len(found):
+            d = np.hypot(found[:, None, 0] - known[None, :, 0],
+                         found[:, None, 1] - known[None, :, 1])
+            found = found[d.min(axis=1) > stride]
+        extra[face[n]] = found
+    faint = []
+    for found in find_peaks(residual, FAINT, stride):
+        # Weak evidence near a labelled face is most likely what is left of its bumps: any
+        # labelled face joint owns it, as it owns a peak of the face sum.
+        owned = _owned(np.full(len(found), -1), found[:, :2], people, statures, face)
+        faint.append(found[~owned, :2])
+    return Unexplained(extra, find_peaks(residual.sum(axis=0)[None], HEAD_SUM, stride)[0],
+                       np.concatenate(faint).reshape(-1, 2))
+
+
+@dataclass(frozen=True)
+class Unexplained:
+    """What :func:`unexplained_peaks` finds: extra peaks per joint, peaks of the residual
+    face sum, and the faint landmarks no label owns."""
+
+    peaks: list[np.ndarray]
+    head_peaks: np.ndarray
+    faint: np.ndarray
+
+    def extent(self, xy: np.ndarray, reach: float) -> np.ndarray:
+        """``(n, 2)`` the faint landmarks within ``reach`` pixels of a head's strongest
+        evidence at ``xy``: a faint head's nose, eyes and far ear are each too weak to be a
+        peak, yet show where the head reaches (a face seen side on spans from the nose to the
+        far ear). They widen the head; being this weak, they never make one.
+
+        Examples
+        --------
+        >>> u = Unexplained([], np.zeros((0, 3)), np.array([[10.0, 5.0], [60.0, 5.0]]))
+        >>> u.extent(np.array([0.0, 0.0]), 20.0)
+        array([[10.,  5.]])
+        """
+        near = np.hypot(self.faint[:, 0] - xy[0], self.faint[:, 1] - xy[1]) <= reach
+        return self.faint[near]
 
 
 def _people_scale(people: Sequence[np.ndarray], skeleton: Skeleton,
@@ -660,6 +825,7 @@ def place_regions(people: Sequence[np.ndarray], skeleton: Skeleton,
                   image_size: tuple[int, int], *, ids: Sequence[int] | None = None,
                   peaks: Sequence[np.ndarray] | None = None,
                   head_peaks: np.ndarray | None = None,
+                  unexplained: Unexplained | None = None,
                   map_people: Sequence[np.ndarray] | None = None,
                   faces: np.ndarray | None = None, mode: str = "heads") -> BlurPlan:
     """Where to blur a frame, from every source of evidence.
@@ -679,6 +845,9 @@ def place_regions(people: Sequence[np.ndarray], skeleton: Skeleton,
         (:func:`app.analysis.association.find_peaks`); None when the frame has no maps.
     head_peaks
         Peaks of the sum of the face joints' maps (see :func:`map_head_ellipses`).
+    unexplained
+        What the labels leave unexplained in the maps (:func:`unexplained_peaks`); sets the
+        extent of the heads the maps find.
     map_people
         The people the maps group into (:func:`app.analysis.association.group_people`),
         ``(K, 3)`` ``x, y, score`` with NaN for a missing joint; read in ``people`` mode.
@@ -737,7 +906,8 @@ def place_regions(people: Sequence[np.ndarray], skeleton: Skeleton,
     for n, e in extra_heads:
         pieces.append(_Piece(e, None, min(e[2], e[3]) / 2, "labels", ids[n]))
     if peaks is not None:
-        for e in map_head_ellipses(peaks, people, skeleton, image_size, head_peaks):
+        for e in map_head_ellipses(peaks, people, skeleton, image_size, head_peaks,
+                                   unexplained):
             pieces.append(_Piece(e, None, min(e[2], e[3]) / 2, "maps", None))
         if mode == "people":
             for kp in map_people or ():
@@ -915,17 +1085,22 @@ def blur_frame(image: np.ndarray, people: Sequence[np.ndarray], skeleton: Skelet
     from app.analysis.association import find_peaks, group_people
 
     h, w = image.shape[:2]
-    peaks = head_peaks = map_people = faces = None
+    peaks = head_peaks = map_people = faces = unexplained = None
     if maps is not None:
         peaks = find_peaks(maps.confidence_maps, PEAK_THRESHOLD, maps.stride)
         face = _indices(skeleton, FACE_JOINTS)
         head_peaks = find_peaks(maps.confidence_maps[face].sum(axis=0)[None], HEAD_SUM,
                                 maps.stride)[0]
+        unexplained = unexplained_peaks(maps.confidence_maps, maps.stride, peaks, people,
+                                        skeleton, (w, h))
+        peaks = [np.concatenate([p, q]) for p, q in zip(peaks, unexplained.peaks)]
+        head_peaks = np.concatenate([head_peaks, unexplained.head_peaks])
         if mode == "people":
             map_people = group_people(maps.confidence_maps, maps.pafs, skeleton.limb_array,
                                       stride=maps.stride)
     if detector is not None:
         faces = detector(image, max(12, int(0.02 * min(w, h))))
     plan = place_regions(people, skeleton, (w, h), ids=ids, peaks=peaks,
-                         head_peaks=head_peaks, map_people=map_people, faces=faces, mode=mode)
+                         head_peaks=head_peaks, unexplained=unexplained,
+                         map_people=map_people, faces=faces, mode=mode)
     return blur_regions(image, plan.regions), plan

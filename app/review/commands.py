@@ -81,7 +81,8 @@ def register(sub: Any, command: Command) -> None:
 
     q = action("show", cmd_show, "check a packet and say what it holds (for blurred images: "
                                  "regions by what placed them, the largest share of a frame "
-                                 "blurred, frames sent at risk)")
+                                 "blurred, frames sent at risk, and per frame its regions "
+                                 "and share)")
     q.add_argument("packet", metavar="FILE.zip")
     q.add_argument("--json", action="store_true")
 
@@ -190,6 +191,11 @@ def cmd_show(args: argparse.Namespace) -> int:
         info["blur_risks"] = [f"frame {f['id']}: {f['blur']['risk']}"
                               for f in packet.manifest["frames"]
                               if f.get("blur") and f["blur"]["risk"]]
+        # Where each frame was blurred, as the reviewer's window outlines it.
+        from app.session.blurred import BlurredFrame
+
+        info["blurred_frames"] = {str(f["id"]): BlurredFrame.from_record(f["blur"]).summary()
+                                  for f in packet.manifest["frames"] if f.get("blur")}
     if packet.returned is not None:
         info["returned_by"] = packet.returned.reviewer
         info["decisions"] = {str(d.frame_id): d.decision
@@ -198,6 +204,10 @@ def cmd_show(args: argparse.Namespace) -> int:
         print_json(info)
     else:
         for key, value in info.items():
+            if key == "blurred_frames":
+                for fid, line in value.items():
+                    print(f"{'frame ' + fid:>12}: {shown(line)}")
+                continue
             print(f"{key:>12}: {shown(value)}")
     return 0
 
@@ -241,11 +251,15 @@ def cmd_merge(args: argparse.Namespace) -> int:
         return 0
     print(f"merged {shown(args.returned)} from {shown(report.reviewer)}: "
           f"{count(report.frames, 'frames')}, {count(report.joints_taken, 'joints')} taken, "
-          f"{count(report.people_added, 'people')} added, {report.people_deleted} deleted, "
+          + (f"{count(report.tracks_taken, 'tracks')} taken, " if report.tracks_taken else "")
+          + f"{count(report.people_added, 'people')} added, {report.people_deleted} deleted, "
           f"{count(report.notes_added, 'notes')}, {count(len(report.conflicts), 'conflicts')}")
     for c in report.conflicts:
         what = c["kind"] if c["kind"] != "joints" else "joints " + ", ".join(map(str,
                                                                                 c["joints"]))
+        if c["kind"] == "track":
+            what = (f"track: kept mine, {shown(report.reviewer)} put them on track "
+                    f"{c.get('theirs_track')}")
         print(f"  conflict: frame {c['frame']}, person {c['person']}: {what}")
     if report.disputed:
         print("  disputed: frames " + ", ".join(map(str, report.disputed)))

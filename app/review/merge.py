@@ -16,6 +16,15 @@ position remembered for an unlabeled joint, a score or a provenance is not a lab
   side and untouched on the other: the deletion is taken.
 - People the reviewer added come over with fresh ids of the project; notes the reviewer added
   come over with their author and time. Notes are never removed.
+- A person's **track** (who they are across the frames of a sequence, set by linking or by an
+  edit: :class:`~app.model.edits.SetTrack`, joining, splitting or exchanging tracks) merges
+  by the same rule, compared by track id: the reviewer's track is taken when only they changed
+  it (credited to them), ours stays otherwise. Both changed it to different tracks: ours stays
+  and the report lists a ``track`` conflict with both ids. Tracks are not what training sees,
+  so that conflict does not make the frame disputed, and a track change alone does not keep a
+  deletion from being taken nor counts as the frame changed here. A join or split in the
+  reviewer's packet reaches the packet's frames only; the frames it did not carry keep their
+  tracks.
 
 The reviewer's decision on a frame: ``query`` makes it disputed; ``ready`` (for training)
 signs it off when nothing conflicts and the frame has not changed here since the packet was
@@ -59,7 +68,7 @@ from app.errors import BadInput, EditRefused, NotFound
 from app.model.edits import AddNote, Change, EditContext, NewPerson, Restore, SetFrameState
 from app.model.labels import FrameLabels, FrameState, Note, Person
 from app.model.records import OLD_DECISIONS, PacketRecord
-from app.model.targets import JointTarget, PersonTarget
+from app.model.targets import JointTarget, PersonTarget, TrackTarget
 from app.progress import Progress
 from app.review import safezip
 from app.review.packet import FrameContent, Packet, read_packet
@@ -140,6 +149,7 @@ class FramePlan:
     was_disputed: bool = False
     changed_here: bool = False
     joints_taken: int = 0
+    tracks_taken: int = 0
     people_deleted: int = 0
     #: People of the reviewer's, by their id in the review, to their id here.
     person_ids: dict[int, int] = field(default_factory=dict)
@@ -165,7 +175,9 @@ def plan_frame(base: FrameContent, ours: FrameLabels, theirs: FrameContent,
     FramePlan
         ``changes`` (joint changes and deletions, to apply as one step), ``new_people`` (the
         reviewer's, with the reviewer's ids; the store gives fresh ones), ``notes`` to add,
-        ``conflicts`` and the frame ``state`` to set (None: leave it).
+        ``conflicts`` and the frame ``state`` to set (None: leave it). Changes include the
+        people's tracks taken from the reviewer (``track`` conflicts never dispute the
+        frame).
 
     Notes
     -----
@@ -225,11 +237,12 @@ def plan_frame(base: FrameContent, ours: FrameLabels, theirs: FrameContent,
         if nid not in base.notes and (note.author, note.time, note.text) not in seen:
             plan.notes.append(note)
     decision = OLD_DECISIONS.get(decision or "", decision)
-    if plan.conflicts or decision == "query":
+    if any(c.kind != "track" for c in plan.conflicts) or decision == "query":
         plan.state = FrameState.DISPUTED
-    elif decision == "ready" and not plan.changed_here:
+    elif decision == "ready" and not plan.changed_here and not plan.conflicts:
         plan.state = FrameState.SIGNED_OFF
-    elif decision == "looks-right" and plan.was_disputed and not plan.changed_here:
+    elif decision == "looks-right" and plan.was_disputed and not plan.changed_here \
+            and not plan.conflicts:
         plan.state = FrameState.CORRECTED
     if plan.state is ours.state:
         plan.state = None
@@ -254,6 +267,17 @@ def _plan_person(plan: FramePlan, b: Person, o: Person, t: Person) -> None:
             alternative = alternative.with_joint(j, t.joint_value(j))
         plan.conflicts.append(Conflict(plan.frame_id, o.id, "joints",
                                        tuple(np.flatnonzero(clash).tolist()), b, alternative))
+    _plan_track(plan, b, o, t)
+
+
+def _plan_track(plan: FramePlan, b: Person, o: Person, t: Person) -> None:
+    """The person's track, three ways by track id (see the module docstring)."""
+    if o.track == b.track and t.track != b.track:
+        plan.changes.append(Change(TrackTarget(o.id), o.track_value(), t.track_value()))
+        plan.tracks_taken += 1
+    elif b.track not in (o.track, t.track) and o.track != t.track:
+        plan.conflicts.append(Conflict(plan.frame_id, o.id, "track", (), b,
+                                       o.with_track(t.track_value())))
 
 
 def _changed(p: Person, b: Person) -> tuple[int, ...]:
@@ -416,6 +440,7 @@ class MergeReport:
     base_checked: bool = False
     frames: int = 0
     joints_taken: int = 0
+    tracks_taken: int = 0
     people_added: int = 0
     people_deleted: int = 0
     notes_added: int = 0
@@ -529,7 +554,9 @@ def _apply_plan(project: Project, packet: Packet, plan: FramePlan,
         project.apply(MergeReview(fid, tuple(plan.changes),
                                   label=f"take {reviewer}'s review: "
                                         f"{count(plan.joints_taken, 'joint')}, "
-                                        f"{count(plan.people_deleted, 'person')} deleted"),
+                                        + (f"{count(plan.tracks_taken, 'track')}, "
+                                           if plan.tracks_taken else "")
+                                        + f"{count(plan.people_deleted, 'person')} deleted"),
                       author=reviewer)
     ids = plan.person_ids
     for person in plan.new_people:
@@ -549,6 +576,7 @@ def _apply_plan(project: Project, packet: Packet, plan: FramePlan,
     if plan.state is not None:
         project.apply(SetFrameState(fid, plan.state), author=reviewer)
     report.joints_taken += plan.joints_taken
+    report.tracks_taken += plan.tracks_taken
     report.people_deleted += plan.people_deleted
     report.people_added += len(plan.new_people)
     report.notes_added += len(plan.notes)
@@ -558,8 +586,16 @@ def _apply_plan(project: Project, packet: Packet, plan: FramePlan,
         report.disputed.append(fid)
     if plan.state is FrameState.SIGNED_OFF:
         report.signed_off.append(fid)
-    report.conflicts += [{"frame": c.frame_id, "person": c.person_id, "kind": c.kind,
-                          "joints": list(c.joints)} for c in plan.conflicts]
+    report.conflicts += [_conflict_record(c) for c in plan.conflicts]
+
+
+def _conflict_record(c: Conflict) -> dict[str, Any]:
+    """A conflict as the report lists it (a track conflict with both track ids)."""
+    out: dict[str, Any] = {"frame": c.frame_id, "person": c.person_id, "kind": c.kind,
+                           "joints": list(c.joints)}
+    if c.kind == "track" and c.theirs is not None:
+        out["theirs_track"] = c.theirs.track
+    return out
 
 
 def _record(project: Project, packet: Packet, plans: Sequence[FramePlan],
@@ -590,9 +626,11 @@ def _record(project: Project, packet: Packet, plans: Sequence[FramePlan],
             if again:
                 b.alternatives.retire(plan.frame_id, now, packet_id=packet.packet_id,
                                       reviewer=reviewer)
-            if plan.conflicts and not plan.was_disputed:
+            if any(c.kind != "track" for c in plan.conflicts) and not plan.was_disputed:
                 b.alternatives.retire(plan.frame_id, now, other_packets_than=packet.packet_id)
             for c in plan.conflicts:
+                if c.kind == "track":
+                    continue  # ours stays; the report names it (the frame is not disputed)
                 b.alternatives.put(c.frame_id, c.person_id, packet.packet_id, reviewer, now,
                                    c.kind, c.base, c.theirs)
         b.packets.add(PacketRecord(packet.packet_id, "merged", packet.sha256, reviewer, now,

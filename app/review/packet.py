@@ -295,6 +295,9 @@ class _PersonModel(_Strict):
     sources: list[Name]
     score: Number | None = None
     extra: dict[str, Any] = Field(default_factory=dict)
+    #: ``[track id, who set it]`` (:meth:`app.model.labels.Person.to_value`), absent when the
+    #: person is on no track.
+    track: tuple[Annotated[StrictInt, Field(ge=0, le=MAX_ID)], Name] | None = None
 
 
 class _NoteModel(_Strict):

@@ -59,8 +59,8 @@ _META_MANIFEST = "review_manifest"
 _META_BASE = "review_base_labels"
 _META_REVIEWER = "review_reviewer"
 
-__all__ = ["REVIEW_ID_BASE", "decisions", "is_review", "open_packet", "return_packet",
-           "returned_path", "review_folder", "reviewer_of", "set_decision"]
+__all__ = ["REVIEW_ID_BASE", "blur_record", "decisions", "is_review", "open_packet",
+           "return_packet", "returned_path", "review_folder", "reviewer_of", "set_decision"]
 
 
 def review_folder(path: str | Path) -> Path:
@@ -163,6 +163,20 @@ def _recorded_reviewer(folder: Path) -> str:
         if peek.meta(_META_PACKET) is None:
             raise BadInput("the folder holds a project that is not a review", where=str(folder))
         return reviewer_of(peek)
+
+
+def blur_record(project: Project, frame_id: int) -> dict[str, Any] | None:
+    """What the packet a review was opened from records of a frame's blur (the manifest's
+    ``blur``, see :mod:`app.review.packet`), or None: not a review, or the frame's image was
+    not blurred."""
+    if not is_review(project):
+        return None
+    manifest = json.loads(project.meta(_META_MANIFEST) or "{}")
+    for entry in manifest.get("frames") or ():
+        if isinstance(entry, dict) and entry.get("id") == frame_id:
+            blur = entry.get("blur")
+            return blur if isinstance(blur, dict) else None
+    return None
 
 
 def reviewer_of(project: Project) -> str:

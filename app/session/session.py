@@ -27,6 +27,7 @@ from app.jobs_findings import accept_label
 from app.model.edits import DismissFinding, Edit, EditGroup
 from app.model.labels import Frame, FrameState, Person
 from app.model.naming import Names
+from app.session.blurred import BlurredFrame, load_blurred
 from app.session.selection import Selection
 from app.session.settling import Dispute, load_dispute
 from app.session.walk import Stop, Walk, group_findings
@@ -124,6 +125,16 @@ class Session:
                 log.exception("reading the differences of frame %s failed", frame.id)
         self.dispute = dispute
         return dispute
+
+    def read_blurred(self, frame_id: int) -> BlurredFrame | None:
+        """Where the packet a review was opened from blurred a frame's image, and what placed
+        each region (:mod:`app.session.blurred`); None outside a review or for an image not
+        blurred. A record that does not read is logged and read as none."""
+        try:
+            return load_blurred(self.project, frame_id)
+        except (PosewrightError, ValueError, TypeError):
+            log.exception("reading the blurred regions of frame %s failed", frame_id)
+            return None
 
     def _suspicion_order(self) -> list[int]:
         scores = {fid: t[0] for fid, t in self.project.triage_all().items()}

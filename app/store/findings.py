@@ -46,9 +46,12 @@ class FindingsGateway:
             f"SELECT frame_id, COUNT(*) FROM findings{where} GROUP BY frame_id", args)})
         return out
 
-    def digests(self) -> dict[int, str]:
+    def digests(self, frame_id: int | None = None) -> dict[int, str]:
+        """Per frame (one frame's with ``frame_id``), the digest of the labels its stored
+        findings were computed from."""
+        where, args = ("", ()) if frame_id is None else (" WHERE frame_id = ?", (int(frame_id),))
         return {int(r[0]): str(r[1]) for r in self._tx.rows(
-            "SELECT frame_id, digest FROM findings_state")}
+            "SELECT frame_id, digest FROM findings_state" + where, args)}
 
     def store(self, results: Mapping[int, tuple[str, Sequence[Mapping[str, Any]]]],
               computed: float) -> None:

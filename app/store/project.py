@@ -506,10 +506,11 @@ class Project:
         with self._read() as tx:
             return tx.findings.counts()
 
-    def findings_digests(self) -> dict[int, str]:
-        """Per frame, the digest of the labels its stored findings were computed from."""
+    def findings_digests(self, frame_id: int | None = None) -> dict[int, str]:
+        """Per frame, the digest of the labels its stored findings were computed from; only
+        one frame's with ``frame_id``."""
         with self._read() as tx:
-            return tx.findings.digests()
+            return tx.findings.digests(frame_id)
 
     def store_findings(self, results: dict[int, tuple[str, list[dict[str, Any]]]]) -> None:
         """Replace the findings of the given frames, each with the digest of the labels they

@@ -49,10 +49,12 @@ from app.model.edits import AddRegion, DeleteRegion, MoveJoint, ReshapeRegion
 from app.model.labels import Frame, Person
 from app.model.naming import Names
 from app.model.skeleton import Skeleton
+from app.session.blurred import BlurredFrame
 from app.session.owners import OwnerRanking
 from app.session.selection import Selection
 from app.session.walk import Stop
 from app.ui import regions as geometry
+from app.ui.blurred import paint_blurred
 from app.ui.callouts import WalkCard, paint_owner_list, paint_preview, paint_walk_card, stop_points
 from app.ui.images import Decoded, qimage_view, shrink
 from app.ui.overlay import OverlayLayout, OverlayStyle, assign_colours, paint_overlay
@@ -225,6 +227,10 @@ class Canvas(QWidget):
         self.read_only = False
         self.show_unlabeled = False
         self.show_tags = True
+        #: Reviewing a packet: where its image of the frame was blurred, and whether to
+        #: outline it (:mod:`app.ui.blurred`).
+        self.blurred: BlurredFrame | None = None
+        self.show_blurred = True
         self.focus_mode = False
         self.message = ""  # shown instead of the image when it cannot be shown
         #: The frame's ignore regions ``(id, polygons)`` and region mode.
@@ -309,6 +315,7 @@ class Canvas(QWidget):
         self._theirs = None
         self._marks, self._theirs_marks = {}, {}
         self.showing_theirs = False
+        self.blurred = None
         self._ours = list(people)
         self._flags_in = dict(flags)
         self._set_people(people, flags)
@@ -768,6 +775,8 @@ class Canvas(QWidget):
                 moving = self._drag.person_id
             dirty = event.rect() if event.rect() != self.rect() else None
             self._layout = self._overlay.paint(p, self, people, dirty, moving)
+            if self.show_blurred and self.blurred is not None and not self.showing_theirs:
+                paint_blurred(p, self.blurred, self.image_to_screen, self.font())
             self._paint_callouts(p)
             if self.showing_theirs:
                 self._paint_banner(p)

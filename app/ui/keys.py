@@ -180,6 +180,9 @@ KEYS: tuple[Key, ...] = (
     Key("Review", "decide_signed_off", "Ready for training",
         "Reviewing a packet: the frame is ready for training (it comes back signed off); "
         "again: withdraw", ("Ctrl+3",)),
+    Key("Review", "show_blurred", "Show blurred regions",
+        "Reviewing a packet: outline where the packet's image was blurred, captioned with "
+        "what placed each region (labels, maps, detector)", ("L",)),
     Key("Review", "return_packet", "Send the packet back\u2026",
         "Reviewing a packet: write FILE-returned.zip to send back", ("Ctrl+Shift+R",)),
     # Ledger

@@ -44,8 +44,16 @@ FontRole = Qt.ItemDataRole.FontRole
 AlignRole = Qt.ItemDataRole.TextAlignmentRole
 #: The role that carries each row's key (frame id, person id, ledger seq, note id).
 KeyRole = Qt.ItemDataRole.UserRole + 1
+#: The Worklist role that carries a row's mark from the session (``"last"``: a carried
+#: batch ends on that frame, :meth:`app.session.timeline.CarryMarks.worklist_marks`).
+MarkRole = Qt.ItemDataRole.UserRole + 2
+#: What a Worklist mark says, on the row and in its tooltip.
+MARK_TEXT = {"last": "carry ends"}
+#: The same, in the row's tooltip.
+MARK_TIP = {"last": "the carried correction ends on this frame"}
 #: The roles the Worklist answers (the others are answered without reading a row).
-_WORK_ROLES = frozenset({KeyRole, DisplayRole, ToolTipRole, AlignRole, FontRole, ForegroundRole})
+_WORK_ROLES = frozenset({KeyRole, DisplayRole, ToolTipRole, AlignRole, FontRole, ForegroundRole,
+                         MarkRole})
 
 log = logging.getLogger(__name__)
 
@@ -181,6 +189,8 @@ class WorklistModel(_TableModel):
         #: Every page read from the store since the last reload, as (first row, rows read):
         #: what the view made the model fetch.
         self.fetched: list[tuple[int, int]] = []
+        #: Frame id -> mark, given by the session (:meth:`set_marks`).
+        self._marks: dict[int, str] = {}
         self.reload()
 
     # -- filters
@@ -204,6 +214,18 @@ class WorklistModel(_TableModel):
         """The store query of the rows shown (filters applied), in Worklist order."""
         states = None if self._state is None else (self._state,)
         return FrameQuery("suspicion", states, self._kind, offset, limit)
+
+    def set_marks(self, marks: dict[int, str]) -> None:
+        """Mark frames (frame id -> a key of :data:`MARK_TEXT`); the rows whose mark changed
+        are repainted."""
+        if marks == self._marks:
+            return
+        changed = set(marks) | set(self._marks)
+        self._marks = dict(marks)
+        for fid in changed:
+            i = self._row_of.get(fid)
+            if i is not None:
+                self.dataChanged.emit(self.index(i, 0), self.index(i, 0))
 
     # -- loading
     def reload(self) -> None:
@@ -366,6 +388,9 @@ class WorklistModel(_TableModel):
         col = index.column()
         if role == KeyRole:
             return r.frame_id
+        mark = self._marks.get(r.frame_id)
+        if role == MarkRole:
+            return mark
         if role == DisplayRole:
             if col == 0:
                 # Two lines: the frame, then why it is suspicious (the reasons are what the
@@ -374,6 +399,8 @@ class WorklistModel(_TableModel):
                 if r.findings:
                     line = f"{count(r.findings, 'findings')} \u00b7 {line}" if line else \
                         count(r.findings, "findings")
+                if mark in MARK_TEXT:
+                    line = f"{MARK_TEXT[mark]} \u00b7 {line}" if line else MARK_TEXT[mark]
                 return f"{r.name}\n{line}" if line else r.name
             if col == 1:
                 return "" if r.score is None else f"{r.score:.2f}"
@@ -391,6 +418,8 @@ class WorklistModel(_TableModel):
                 head += f"\nyour decision: {r.decision or 'none yet'}"
             if r.findings is not None:
                 head += f"\n{count(r.findings, 'open findings')} (W walks them)"
+            if mark in MARK_TIP:
+                head += f"\n{MARK_TIP[mark]}"
             details = self._people_summary(r)
             return f"{head}\n{details}" if details else head
         if role == AlignRole and col == 1:
@@ -401,6 +430,8 @@ class WorklistModel(_TableModel):
             font = QFont()
             font.setBold(True)
             return font
+        if role == ForegroundRole and col == 0 and mark in MARK_TEXT:
+            return QColor("#1f5fb4")
         if role == ForegroundRole and col == 2 and r.claimed_by:
             return QColor("#8a4f00")
         if role == ForegroundRole and col == 2 and r.state is FrameState.SIGNED_OFF:

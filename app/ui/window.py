@@ -69,6 +69,7 @@ from app.review.review import is_review
 from app.session import Session, Stop
 from app.session.owners import FIT_MEANING, OwnerRanking, rank_owners, swap_warning
 from app.session.settling import Dispute, describe_difference, step_difference
+from app.session.timeline import Timeline
 from app.store.project import Applied, Project
 from app.ui.canvas import Canvas
 from app.ui.images import ImageCache, ImageLoader
@@ -81,11 +82,12 @@ from app.ui.models import (
     WorklistModel,
     video_position,
 )
-from app.ui.overlay import WHOLE_PERSON, flags_from_reasons
+from app.ui.overlay import WHOLE_PERSON, flags_from_reasons, palette_colour
 from app.ui.panels import LedgerPanel, NotesPanel, OwnersPanel, WorklistPanel
 from app.ui.settings import cache_bytes, settings
 from app.ui.strips import Strip
-from app.ui.work import describe_error, run_job
+from app.ui.timeline import TrackTimeline
+from app.ui.work import Job, describe_error, run_job
 from app.wording import count, plural
 
 log = logging.getLogger(__name__)
@@ -169,6 +171,7 @@ class MainWindow(QMainWindow):
         for strip in self.strips.values():
             column.addWidget(strip)
         column.addWidget(self.canvas, 1)
+        column.addWidget(self._build_timeline())
         self.setCentralWidget(centre)
         self.worklist_model = WorklistModel(project, self, review=self.review_mode)
         self.ledger_model = LedgerModel(project, self)
@@ -320,13 +323,14 @@ class MainWindow(QMainWindow):
             "decide_needs_change": lambda: self.decide("query"),
             "decide_signed_off": lambda: self.decide("ready"),
             "return_packet": self._return_packet,
+            "show_blurred": self._toggle_blurred,
             "shortcuts": self.show_shortcuts,
             "quit": self.close,
         }
         for n in range(1, 10):
             handlers[f"give_{n}"] = lambda n=n: self._type_digit(str(n))
         checkable = {"focus_mode", "show_unlabeled", "show_tags", "region_mode", "show_theirs",
-                     "decide_agree", "decide_needs_change", "decide_signed_off"}
+                     "show_blurred", "decide_agree", "decide_needs_change", "decide_signed_off"}
         for key in KEYS:
             if not key.name:
                 continue
@@ -342,6 +346,7 @@ class MainWindow(QMainWindow):
             self.addAction(action)
             self.actions_by_name[key.name] = action
         self.actions_by_name["show_tags"].setChecked(True)
+        self.actions_by_name["show_blurred"].setChecked(True)
         for name, short in (("new_person", "New person (N)"), ("split_person", "Split off (X)"),
                             ("mark_visible", "Visible (V)"), ("mark_occluded", "Occluded (O)"),
                             ("mark_unlabeled", "Unlabelled (U)"), ("swap_sides", "Swap L/R (S)"),
@@ -363,7 +368,7 @@ class MainWindow(QMainWindow):
         a = self.actions_by_name
         bar = self.menuBar()
         review = (["decide_agree", "decide_needs_change", "decide_signed_off", None,
-                   "return_packet"] if self.review_mode else
+                   "show_blurred", None, "return_packet"] if self.review_mode else
                   ["show_theirs", "next_difference", "prev_difference", None,
                    "take_theirs_joint", "take_theirs_person", "take_theirs_frame", None,
                    "keep_ours_joint", "keep_ours_person", "keep_ours_frame", None,
@@ -598,6 +603,7 @@ class MainWindow(QMainWindow):
             self.canvas.set_dispute(dispute.ours_marks, list(dispute.theirs),
                                     dispute.theirs_marks, dispute.who)
         self.actions_by_name["show_theirs"].setChecked(self.canvas.showing_theirs)
+        self.canvas.blurred = self.session.read_blurred(frame.id) if self.review_mode else None
         self._update_strips()
 
     def _image_ready(self, frame_id: int) -> None:
@@ -668,7 +674,9 @@ class MainWindow(QMainWindow):
                           "here: B goes back to mine")
             return None
         try:
-            return self.project.apply(edit, seen=self._seen)
+            done = self.project.apply(edit, seen=self._seen)
+            self._propose_carry(done)
+            return done
         except EditRefused as exc:
             self._message(f"not done: {exc}")
         except PosewrightError as exc:
@@ -946,12 +954,117 @@ class MainWindow(QMainWindow):
             return
         ok, _ = self._attempt(lambda: take_batch(self.project, batch))
         if ok:
+            self._show_carry(batch, taken=True)
             ends = [str(f) for f in (batch.stopped_backward, batch.stopped_forward)
                     if f is not None]
             self._message(f"carried the correction of frame {batch.origin} to "
                           f"{count(len(batch.edits), 'frames')}"
                           + (f"; the error is absent from frame {' and '.join(ends)}"
                              if ends else ""))
+
+    # ------------------------------------------------------------------ the timeline
+
+    def _build_timeline(self) -> TrackTimeline:
+        """The timeline under the Canvas (:mod:`app.ui.timeline`) over its Qt-free state
+        (:mod:`app.session.timeline`), and its wiring: a click goes to a frame of the track,
+        the wheel and the chevrons scroll, the store's changes are read again."""
+        self.timeline = Timeline(self.project)
+        self.track_timeline = TrackTimeline(self)
+        #: The track the timeline follows while no one is selected (a frame where the track
+        #: has no one, reached from the timeline).
+        self._followed_track: int | None = None
+        self.track_timeline.cellChosen.connect(self._timeline_chosen)
+        self.track_timeline.scrollRequested.connect(self._timeline_scrolled)
+        self.track_timeline.resized.connect(self._update_timeline)
+        self.events.changed.connect(self._timeline_changed)
+        return self.track_timeline
+
+    def _update_timeline(self) -> None:
+        """Show the selected person's track (or the track followed) around the frame."""
+        if not hasattr(self, "worklist_model") or self._closed:
+            return  # still being built
+        pid = self.canvas.selected_person
+        span = self.track_timeline.cells_that_fit()
+        strip = None
+        try:
+            if pid is not None:
+                strip = self.timeline.strip(self.frame_id, pid, span)
+            elif self._followed_track is not None and self.frame_id is not None:
+                strip = self.timeline.strip(self.frame_id, None, span,
+                                            track=self._followed_track)
+        except PosewrightError:
+            log.exception("building the timeline failed")
+        if strip is not None:
+            self._followed_track = strip.track
+        colour = None
+        if pid is not None and pid in self.canvas.colours:
+            colour = palette_colour(self.canvas.colours[pid])
+        hint = ("select a person to see their track here (Alt+Left and Alt+Right step "
+                "along it)" if pid is None else
+                "this person is on no track (the command posewright track links them)")
+        self.track_timeline.show_strip(strip, colour, hint)
+        self.worklist_model.set_marks(self.timeline.carry.worklist_marks())
+
+    def _timeline_chosen(self, frame_id: int, person_id: int) -> None:
+        """A cell was clicked: show its frame, with the track's person there selected."""
+        if frame_id != self.frame_id:
+            self.show_frame(frame_id)
+        if person_id >= 0:
+            self.canvas.select_person(person_id)
+        else:
+            self.canvas.clear_selection()
+            self._message(f"track {self._followed_track} has no one in frame {frame_id}")
+
+    def _timeline_scrolled(self, cells: int) -> None:
+        self.timeline.scroll(cells)
+        self._update_timeline()
+
+    def _timeline_changed(self, kind: str, frame_ids: frozenset[int]) -> None:
+        """The store changed: read the frames again; an edit ends the marks of a carried
+        batch (the next correction proposes its own)."""
+        if self._closed or kind == "claims":
+            return
+        if kind in ("import", "frames", "meta"):
+            self.timeline.forget_all()
+        else:
+            self.timeline.forget(frame_ids)
+        if kind != "triage":
+            self.timeline.drop_carry()
+        self._update_timeline()
+
+    def _propose_carry(self, done: Applied | None) -> None:
+        """After a correction of one frame, work out where carrying it would go on a worker
+        thread (a batch can reach a hundred frames), then mark it and say so (Ctrl+Shift+C
+        takes it); an edit made meanwhile makes the answer stale."""
+        if done is None or done.group_id is None or not done.edit.changes_labels:
+            return
+        try:
+            work = self.timeline.propose_work(done.edit.frame_id, done.changes)
+        except PosewrightError:
+            log.exception("proposing to carry a correction failed")
+            return
+        if work is None:
+            return
+        token = self.timeline.begin_proposal()
+        job = Job(lambda _progress: work(), self)
+        job.succeeded.connect(lambda batch: self._carry_proposed(token, batch))
+        job.failed.connect(lambda exc: log.warning("proposing to carry failed: %s", exc))
+        self._jobs.append(job)
+        job.finished.connect(lambda: self._jobs.remove(job) if job in self._jobs else None)
+        job.finished.connect(job.deleteLater)
+        job.start()
+
+    def _carry_proposed(self, token: int, batch: Any) -> None:
+        if not self._closed and self.timeline.offer(token, batch) and \
+                self.timeline.carry.batch is not None:
+            self._show_carry(self.timeline.carry.batch, taken=False)
+
+    def _show_carry(self, batch: Any, taken: bool) -> None:
+        self.timeline.carry.show(batch, taken)
+        text = self.timeline.carry.text()
+        if text and not taken:
+            self._message(text)
+        self._update_timeline()
 
     def step_person(self, step: int) -> None:
         people = self.canvas.people
@@ -1008,6 +1121,7 @@ class MainWindow(QMainWindow):
             text += f"<br><span style='color:#8a4b00'><b>differs</b> \u2014 {differs}</span>"
         self.owners.selection.setText(text)
         self._update_actions()
+        self._update_timeline()
 
     # ------------------------------------------------------------------ the walk
 
@@ -1310,6 +1424,14 @@ class MainWindow(QMainWindow):
         self.canvas.show_tags = self.actions_by_name["show_tags"].isChecked()
         self.canvas.update()
 
+    def _toggle_blurred(self) -> None:
+        self.canvas.show_blurred = self.actions_by_name["show_blurred"].isChecked()
+        blurred = self.canvas.blurred
+        if self.canvas.show_blurred:
+            self._message(blurred.line() if blurred is not None else
+                          "the packet's image of this frame was not blurred")
+        self.canvas.update()
+
     def _focus_note(self) -> None:
         self.docks["notes"].show()
         self.docks["notes"].raise_()
@@ -1408,6 +1530,7 @@ class MainWindow(QMainWindow):
                                and self.frame_id is not None)
             a[name].setChecked(decided == value)
         a["return_packet"].setEnabled(self.review_mode)
+        a["show_blurred"].setEnabled(self.review_mode)
 
     def _decision(self) -> str | None:
         """The reviewer's decision on the frame shown (review mode), else None."""
@@ -1775,7 +1898,9 @@ class MainWindow(QMainWindow):
             return
         text = (f"Merged the review by {report.reviewer}: {count(report.frames, 'frames')}, "
                 f"{count(report.joints_taken, 'joints')} taken, "
-                f"{count(report.people_added, 'people')} added, "
+                + (f"{count(report.tracks_taken, 'tracks')} taken, " if report.tracks_taken
+                   else "")
+                + f"{count(report.people_added, 'people')} added, "
                 f"{report.people_deleted} deleted, {count(report.notes_added, 'notes')}.")
         if report.disputed:
             n = len(report.disputed)
@@ -1785,6 +1910,12 @@ class MainWindow(QMainWindow):
                      + ". The first is shown; B flips between mine and the reviewer's, A "
                        "takes the reviewer's, K keeps mine, Shift+Return settles.")
             self.show_frame(report.disputed[0])
+        tracks = [c for c in report.conflicts if c["kind"] == "track"]
+        if tracks:
+            text += (f"\n\n{count(len(tracks), 'person', 'people')} kept my track where the "
+                     "reviewer set another ("
+                     + ("frame " if len(tracks) == 1 else "frames ")
+                     + ", ".join(str(c["frame"]) for c in tracks[:12]) + ").")
         if not report.base_checked:
             text += ("\n\nThe packet was not recorded when it was sent, so its base labels "
                      "could not be checked.")

@@ -104,7 +104,7 @@ def test_dismiss_from_the_command_line(proj, capsys):
 @pytest.mark.parametrize("argv, says", [
     (["--kinds", "nonsense"], "--kinds: nonsense is not a kind of finding"),
     (["--accept", "all", "--min-confidence", "2"], "--min-confidence: 2.0 is not between"),
-    (["--dry-run"], "--dry-run and --min-confidence go with --accept"),
+    (["--dry-run"], "--dry-run, --min-confidence and --carry go with --accept"),
     (["--dismiss", "F0000000000"], "no current finding 'F0000000000'"),
 ])
 def test_bad_input_is_one_line_and_status_2(proj, capsys, argv, says):
@@ -123,3 +123,46 @@ def test_undo_steps_must_be_positive_and_stop_when_nothing_is_left(proj, capsys)
     assert len(err) == 1 and "--steps: 0 is not between 1" in err[0]
     assert main(["undo", str(proj), "-q"]) == 0
     assert "nothing more to undo" in capsys.readouterr().out
+
+
+def _doubled_sequence(tmp_path):
+    """Three synthetic dancers walking over eight frames (tests/sequences.py) and a copy of
+    dancer 0 (shifted 6, 5 px, legs unlabelled) in frame ids 3-6: one error that lasts four
+    frames, on one track once linked."""
+    from app.jobs_tracks import link_project
+    from tests import sequences
+
+    people = sequences.dancers(frames=8, n=3)
+    dup = np.full((8, 1, 17, 3), np.nan)
+    for t in range(2, 6):
+        dup[t, 0] = people[t, 0]
+        dup[t, 0, :, :2] += (6.0, 5.0)
+        dup[t, 0, 11:, 2] = 0
+    project, _ = sequences.make_project(tmp_path, np.concatenate([people, dup], axis=1))
+    with project:
+        link_project(project)
+        return project.folder
+
+
+@pytest.mark.parametrize("carry, groups", [(False, 4), (True, 2)])
+def test_accept_with_carry_takes_a_fix_to_the_frames_with_the_same_error(tmp_path, capsys,
+                                                                         carry, groups):
+    """Frame by frame each copy is deleted by its own fix (four actions); with --carry the
+    first fix is carried to the three frames after it (two actions), with the same result."""
+    folder = _doubled_sequence(tmp_path)
+    args = ["findings", str(folder), "--accept", "duplicate", "-q"] + (["--carry"] if carry
+                                                                       else [])
+    assert main(args) == 0
+    out = capsys.readouterr().out
+    assert ("1 fix carried to 3 more frames" in out) is carry
+    with Project.open(folder, read_only=True) as p:
+        assert [len(p.people(f.id)) for f in p.frames()] == [3] * 8
+        edits = {e.group_id for e in p.history() if e.kind == "edit"}
+    assert len(edits) == groups
+
+
+def test_carry_goes_with_accept_and_not_with_dry_run(proj, capsys):
+    assert main(["findings", str(proj), "--carry", "-q"]) == 2
+    assert "--carry go with --accept" in capsys.readouterr().err
+    assert main(["findings", str(proj), "--accept", "all", "--carry", "--dry-run", "-q"]) == 2
+    assert "give one of them" in capsys.readouterr().err

@@ -93,6 +93,12 @@ def test_blurred_images_of_frames_without_maps_need_the_risk_accepted(folder, tm
     assert info["blurred_regions"]["labels"] >= 1 and info["blurred_regions"]["maps"] == 0
     assert info["blur_risks"] == ["frame 100: people the labels miss may be unblurred: no maps"]
     assert 0 < info["blurred_share"] < 1
+    n = sum(info["blurred_regions"].values())  # one source each here: the labels
+    assert info["blurred_frames"]["100"].startswith(
+        f"{n} region{'s' if n != 1 else ''} (") and "placed by the labels" in \
+        info["blurred_frames"]["100"]
+    code, out, _ = _run(capsys, "packet", "show", packet)
+    assert code == 0 and "   frame 100: " + info["blurred_frames"]["100"] in out
 
 
 def test_a_hostile_returned_packet_is_refused_in_one_line_and_nothing_changes(folder, tmp_path,

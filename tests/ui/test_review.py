@@ -13,7 +13,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from PySide6.QtCore import Qt
-from PySide6.QtGui import QKeySequence
+from PySide6.QtGui import QImage, QKeySequence, QPainter
 from PySide6.QtTest import QTest
 from PySide6.QtWidgets import QDialog, QFileDialog, QMessageBox
 
@@ -24,6 +24,7 @@ from app.review.merge import merge_packet
 from app.review.packet import export_packet, read_packet
 from app.review.review import decisions, open_packet, return_packet, review_folder
 from app.review.settle import differences
+from app.ui.blurred import paint_blurred
 from app.ui.keys import KEYS, sequences
 from tests.ui.conftest import WAIT_MS, person_id, show_window
 
@@ -260,5 +261,44 @@ def test_review_mode_opens_a_zip_decides_and_returns_it(qtbot, ui_project, tmp_p
         assert back.returned.reviewer == "bea"
         assert back.returned.decisions[fid].decision == "query"
         _close_boxes(window)
+    finally:
+        window.shutdown()
+
+
+def test_the_reviewer_sees_where_the_packet_blurred_and_can_hide_it(qtbot, ui_project,
+                                                                     tmp_path):
+    """Issue 17: the regions a blurred packet records are outlined on the reviewer's Canvas,
+    each captioned with what placed it; L hides and shows them (our own drawing)."""
+    packet = tmp_path / "blurred.zip"
+    export_packet(ui_project, packet, [ui_project.frame(2)], images="blurred-heads",
+                  accept_risk=True, reviewer="bea")
+    recorded = read_packet(packet).manifest["frames"][0]["blur"]["regions"]
+    project = open_packet(packet, reviewer="bea")
+    window = show_window(qtbot, project, owns_project=True)
+    try:
+        canvas = window.canvas
+        assert canvas.blurred is not None and canvas.show_blurred
+        assert len(canvas.blurred.regions) == len(recorded) >= 1
+        assert [list(r.sources) for r in canvas.blurred.regions] == \
+            [r["sources"] for r in recorded]
+        # The painter outlines each region where the Canvas maps it (an image of its own:
+        # the Canvas's picture changes when the whole image replaces the reduced one).
+        sheet = QImage(canvas.size(), QImage.Format.Format_ARGB32)
+        sheet.fill(0)
+        painter = QPainter(sheet)
+        paint_blurred(painter, canvas.blurred, canvas.image_to_screen, canvas.font())
+        painter.end()
+        cx, cy, ax, _ay = canvas.blurred.regions[0].ellipses[0]
+        edge = canvas.image_to_screen(cx - ax, cy)
+        near = [sheet.pixelColor(int(edge.x()) + dx, int(edge.y()) + dy).alpha()
+                for dx in range(-3, 4) for dy in range(-6, 7)]
+        assert max(near) > 0, "an outline on the region's edge"
+        inside = canvas.image_to_screen(cx, cy)
+        assert sheet.pixelColor(int(inside.x()), int(inside.y())).alpha() == 0, "no fill"
+        _press(canvas, "show_blurred")
+        assert not canvas.show_blurred
+        assert not window.actions_by_name["show_blurred"].isChecked()
+        _press(canvas, "show_blurred")
+        assert canvas.show_blurred and "blurred in the packet: " in window.status_log
     finally:
         window.shutdown()
