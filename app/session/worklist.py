@@ -3,7 +3,7 @@ per-person summary of a frame's reasons (the kinds' names are :mod:`app.wording`
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from typing import Any
 
 from app.model.naming import Names, person_text
@@ -23,7 +23,19 @@ def separating_kinds(kinds: Sequence[frozenset[str]]) -> list[tuple[str, int]]:
     for ks in kinds:
         for k in ks:
             counts[k] = counts.get(k, 0) + 1
-    kept = {k: n for k, n in counts.items() if n < len(kinds)}
+    return separating_counts(counts, len(kinds))
+
+
+def separating_counts(counts: Mapping[str, int], frames: int) -> list[tuple[str, int]]:
+    """Of the frame counts per kind (as the store counts them) among ``frames`` frames, the
+    kinds found in some frames but not all, most frequent first.
+
+    Examples
+    --------
+    >>> separating_counts({"crowded": 2, "weak": 1, "none": 0}, 2)
+    [('weak', 1)]
+    """
+    kept = {k: n for k, n in counts.items() if 0 < n < frames}
     return sorted(kept.items(), key=lambda kv: (-kv[1], kv[0]))
 
 

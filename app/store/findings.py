@@ -31,12 +31,19 @@ class FindingsGateway:
             out.setdefault(int(f), []).append(json.loads(data))
         return out
 
-    def counts(self) -> dict[int, int]:
-        """How many findings each frame has stored (0 for a frame whose findings were
-        computed and found none; frames never computed are absent)."""
-        out = {int(r[0]): 0 for r in self._tx.rows("SELECT frame_id FROM findings_state")}
+    def counts(self, frame_ids: Sequence[int] | None = None) -> dict[int, int]:
+        """How many findings each frame (of ``frame_ids``; None: every frame) has stored (0
+        for a frame whose findings were computed and found none; frames never computed are
+        absent)."""
+        where, args = "", [int(f) for f in frame_ids or ()]
+        if frame_ids is not None:
+            if not args:
+                return {}
+            where = f" WHERE frame_id IN ({', '.join('?' * len(args))})"
+        out = {int(r[0]): 0 for r in self._tx.rows(
+            f"SELECT frame_id FROM findings_state{where}", args)}
         out.update({int(f): int(n) for f, n in self._tx.rows(
-            "SELECT frame_id, COUNT(*) FROM findings GROUP BY frame_id")})
+            f"SELECT frame_id, COUNT(*) FROM findings{where} GROUP BY frame_id", args)})
         return out
 
     def digests(self, frame_id: int | None = None) -> dict[int, str]:

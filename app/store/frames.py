@@ -5,7 +5,7 @@ from __future__ import annotations
 import json
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, NamedTuple
 
 from app.model.labels import Frame, FrameState
 from app.store.db import Tx
@@ -45,6 +45,15 @@ class FrameQuery:
     reason: str | None = None
     offset: int = 0
     limit: int | None = None
+
+
+class WorklistEntry(NamedTuple):
+    """One frame of a Worklist page: the frame, its triage result (score and reasons; None:
+    never triaged) and how many findings are stored for it (None: never computed)."""
+
+    frame: Frame
+    triage: tuple[float, list[dict[str, Any]]] | None
+    findings: int | None
 
 
 def _frame(row: Sequence[Any]) -> Frame:
@@ -92,10 +101,11 @@ class FramesGateway:
         """The frames of one Worklist page (see :class:`FrameQuery`).
 
         A page in suspicion order is read in two parts: the triaged frames, most suspicious
-        first, walking the index on the triage score, then the frames never triaged, by id.
-        One query sorting the whole join (score NULL last) reads and sorts every frame for
-        each page: for 100 of 100,000 frames in SQLite, 20 ms against 0.3 ms at the top and
-        56 ms against 12 ms half way down (``make bench``).
+        first, walking the index on the triage score (on ``triage_kinds``' index on kind and
+        score when a reason kind is asked for), then the frames never triaged, by id. One query
+        sorting the whole join (score NULL last) reads and sorts every frame for each page: for
+        100 of 100,000 frames in SQLite, 20 ms against 0.3 ms at the top and 56 ms against
+        12 ms half way down (``make bench``).
         """
         if query.order == "suspicion" and query.limit is not None:
             return self._suspicion_page(query)
@@ -115,35 +125,152 @@ class FramesGateway:
             args += [int(query.limit), int(query.offset)]
         return [_frame(r) for r in self._tx.rows(sql, args)]
 
+    @staticmethod
+    def _triaged(query: FrameQuery) -> tuple[str, list[Any]] | None:
+        """``FROM ... WHERE ...`` of the triaged frames the query keeps (their score and id as
+        ``triage.score`` and ``triage.frame_id``); None when nothing can match."""
+        conds: list[str] = []
+        args: list[Any] = []
+        source = "triage"
+        if query.reason is not None:
+            source = "triage_kinds triage"
+            conds.append("triage.kind = ?")
+            args.append(str(query.reason))
+        if query.states is not None:
+            states = [FrameState(s).value for s in query.states]
+            if not states:
+                return None
+            # The frames' rows are joined only where the state needs them, so that the rows
+            # skipped by an offset are read from the index alone.
+            source += " JOIN frames ON frames.id = triage.frame_id"
+            conds.append(f"frames.state IN ({', '.join('?' * len(states))})")
+            args += states
+        return f"FROM {source} WHERE " + (" AND ".join(conds) or "1 = 1"), args
+
+    @staticmethod
+    def _untriaged(query: FrameQuery) -> tuple[str, list[Any]] | None:
+        """``FROM ... WHERE ...`` of the frames never triaged that the query keeps (none when
+        it asks for a reason kind: only triage finds reasons)."""
+        if query.reason is not None:
+            return None
+        sql = "FROM frames WHERE NOT EXISTS (SELECT 1 FROM triage WHERE triage.frame_id = " \
+              "frames.id)"
+        args: list[Any] = []
+        if query.states is not None:
+            states = [FrameState(s).value for s in query.states]
+            if not states:
+                return None
+            sql += f" AND frames.state IN ({', '.join('?' * len(states))})"
+            args += states
+        return sql, args
+
+    def _count(self, part: tuple[str, list[Any]] | None, cond: str = "",
+               extra: Sequence[Any] = ()) -> int:
+        if part is None:
+            return 0
+        return int(self._tx.value(f"SELECT count(*) {part[0]}{cond}", [*part[1], *extra],
+                                  default=0))
+
     def _suspicion_page(self, query: FrameQuery) -> list[Frame]:
-        where, args = self._filters(query)
         limit, offset = int(query.limit or 0), max(0, int(query.offset))
-        if where is None or limit <= 0:
+        if limit <= 0:
             return []
-        cond = "".join(f" AND {w}" for w in where)
-        # The frames' rows are joined only where a condition (the state) needs them, so that
-        # the rows skipped by the offset are read from the triage index alone.
-        source = "triage" if query.states is None else \
-            "triage JOIN frames ON frames.id = triage.frame_id"
-        triaged = f"FROM {source} WHERE 1 = 1{cond}"
-        ranked = (f"SELECT triage.frame_id AS frame_id, triage.score AS score {triaged} "
-                  "ORDER BY triage.score DESC, triage.frame_id LIMIT ? OFFSET ?")
-        rows = list(self._tx.rows(
-            f"SELECT {_COLUMNS} FROM ({ranked}) ranked JOIN frames ON frames.id = ranked.frame_id "
-            "JOIN triage ON triage.frame_id = ranked.frame_id "
-            "ORDER BY ranked.score DESC, ranked.frame_id", [*args, limit, offset]))
-        if len(rows) < limit:
+        rows: list[Any] = []
+        triaged = self._triaged(query)
+        if triaged is not None:
+            ranked = (f"SELECT triage.frame_id AS frame_id, triage.score AS score {triaged[0]} "
+                      "ORDER BY triage.score DESC, triage.frame_id LIMIT ? OFFSET ?")
+            rows = list(self._tx.rows(
+                f"SELECT {_COLUMNS} FROM ({ranked}) ranked JOIN frames ON frames.id = "
+                "ranked.frame_id JOIN triage ON triage.frame_id = ranked.frame_id "
+                "ORDER BY ranked.score DESC, ranked.frame_id", [*triaged[1], limit, offset]))
+        untriaged = self._untriaged(query)
+        if len(rows) < limit and untriaged is not None:
             # The page runs past the triaged frames into those never triaged.
-            skip = 0 if rows else offset - int(self._tx.value(f"SELECT count(*) {triaged}",
-                                                              args, default=0))
-            rows += self._tx.rows(f"SELECT {_COLUMNS} FROM {_FROM} WHERE triage.frame_id IS NULL"
-                                  f"{cond} ORDER BY frames.id LIMIT ? OFFSET ?",
-                                  [*args, limit - len(rows), max(0, skip)])
+            skip = 0 if rows else offset - self._count(triaged)
+            ids = [r[0] for r in self._tx.rows(
+                f"SELECT frames.id {untriaged[0]} ORDER BY frames.id LIMIT ? OFFSET ?",
+                [*untriaged[1], limit - len(rows), max(0, skip)])]
+            if ids:
+                found = {r[0]: r for r in self._tx.rows(
+                    f"SELECT {_COLUMNS} FROM {_FROM} WHERE frames.id IN "
+                    f"({', '.join('?' * len(ids))})", ids)}
+                rows += [found[i] for i in ids]
         return [_frame(r) for r in rows]
+
+    def count(self, query: FrameQuery) -> int:
+        """How many frames the query keeps (its offset and limit aside)."""
+        if query.reason is not None:
+            return self._count(self._triaged(query))
+        return self._count(self._in_states(query))
+
+    @staticmethod
+    def _in_states(query: FrameQuery) -> tuple[str, list[Any]] | None:
+        """``FROM ... WHERE ...`` of every frame in the query's states, triaged or not."""
+        if query.states is None:
+            return "FROM frames WHERE 1 = 1", []
+        states = [FrameState(s).value for s in query.states]
+        if not states:
+            return None
+        return f"FROM frames WHERE frames.state IN ({', '.join('?' * len(states))})", states
+
+    def position(self, query: FrameQuery, frame_id: int) -> int | None:
+        """Where the frame stands (0-based) among those the query keeps, in its order; None
+        when the query does not keep it. Counted through the same indexes as a page."""
+        fid = int(frame_id)
+        if query.order != "suspicion":
+            where, args = self._filters(query)
+            if where is None:
+                return None
+            cond = "".join(f" AND {w}" for w in where)
+            part = (f"FROM {_FROM} WHERE 1 = 1{cond}", args)
+            if not self._count(part, " AND frames.id = ?", (fid,)):
+                return None
+            return self._count(part, " AND frames.id < ?", (fid,))
+        triaged, untriaged = self._triaged(query), self._untriaged(query)
+        if triaged is not None:
+            score = self._tx.value(f"SELECT triage.score {triaged[0]} AND triage.frame_id = ?",
+                                   [*triaged[1], fid])
+            if score is not None:
+                return (self._count(triaged, " AND triage.score > ?", (score,))
+                        + self._count(triaged, " AND triage.score = ? AND triage.frame_id < ?",
+                                      (score, fid)))
+        if untriaged is None or not self._count(untriaged, " AND frames.id = ?", (fid,)):
+            return None
+        # The frames never triaged before it: those in its states before it, less the triaged
+        # ones (two counts of index ranges, not a scan of the frames for the ones untriaged).
+        before = self._count(self._in_states(query), " AND frames.id < ?", (fid,)) \
+            - self._count(triaged, " AND triage.frame_id < ?", (fid,))
+        return self._count(triaged) + before
+
+    def ordered_ids(self, query: FrameQuery) -> list[int]:
+        """The ids of every frame the query keeps, in its order (offset and limit aside)."""
+        if query.order != "suspicion":
+            return [f.id for f in self.page(FrameQuery("id", query.states, query.reason))]
+        out: list[int] = []
+        triaged, untriaged = self._triaged(query), self._untriaged(query)
+        if triaged is not None:
+            out += [int(r[0]) for r in self._tx.rows(
+                f"SELECT triage.frame_id {triaged[0]} ORDER BY triage.score DESC, "
+                "triage.frame_id", triaged[1])]
+        if untriaged is not None:
+            out += [int(r[0]) for r in self._tx.rows(
+                f"SELECT frames.id {untriaged[0]} ORDER BY frames.id", untriaged[1])]
+        return out
+
+    def kind_counts(self) -> dict[str, int]:
+        """How many frames have a triage reason of each kind (through ``triage_kinds``)."""
+        return {str(k): int(n) for k, n in self._tx.rows(
+            "SELECT kind, count(*) FROM triage_kinds GROUP BY kind")}
+
+    def any_triaged(self) -> bool:
+        """Whether any frame has a triage result."""
+        return self._tx.value("SELECT 1 FROM triage LIMIT 1") is not None
 
     @staticmethod
     def _filters(query: FrameQuery) -> tuple[list[str] | None, list[Any]]:
-        """The query's conditions and their arguments; None when nothing can match."""
+        """The query's conditions on ``frames LEFT JOIN triage`` and their arguments; None
+        when nothing can match."""
         where: list[str] = []
         args: list[Any] = []
         if query.states is not None:
@@ -153,9 +280,8 @@ class FramesGateway:
             where.append(f"state IN ({', '.join('?' * len(states))})")
             args += states
         if query.reason is not None:
-            # Reasons are a JSON list of objects; their kind is matched as JSON text.
-            where.append("triage.reasons LIKE ?")
-            args.append("%" + json.dumps({"kind": query.reason})[1:-1] + "%")
+            where.append("frames.id IN (SELECT frame_id FROM triage_kinds WHERE kind = ?)")
+            args.append(str(query.reason))
         return where, args
 
     def ids(self) -> list[int]:

@@ -55,6 +55,11 @@ def host(folder: str | Path, url: str, progress: Progress | None = None) -> dict
                 for n in range(1, SCHEMA_VERSION + 1):
                     apply_migration(tx, n)
                 counts = _copy(source, tx, progress)
+            with db.write() as tx:
+                # The planner's statistics of the tables just filled (PostgreSQL's manual
+                # advises ANALYZE after loading a database; from memory, "Populating a
+                # Database"): without them a Worklist page may sort a table, not walk an index.
+                tx.run("ANALYZE")
         finally:
             db.close()
     return counts

@@ -25,7 +25,7 @@ def encode_person(p: Person) -> tuple[Any, ...]:
     kp = np.ascontiguousarray(p.keypoints, dtype="<f8")
     scores = None if np.isnan(p.scores).all() else np.ascontiguousarray(p.scores, "<f8").tobytes()
     origin = p.sources[0] if p.sources else ""
-    sources = None if all(s == origin for s in p.sources) else json.dumps(list(p.sources))
+    sources = None if p.sources.count(origin) == len(p.sources) else json.dumps(list(p.sources))
     extra = json.dumps(dict(p.extra)) if p.extra else None
     return (p.id, kp.tobytes(), scores, sources, origin, p.score, extra,
             None if p.track is None else int(p.track), p.track_source or None)

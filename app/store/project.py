@@ -55,7 +55,7 @@ from app.store import ledger, recovery
 from app.store.claims import Claim
 from app.store.db import SQLITE, Database, SqliteDatabase, Tx, storage_failed_text
 from app.store.derived import TriageResult
-from app.store.frames import FrameQuery, NewFrame
+from app.store.frames import FrameQuery, NewFrame, WorklistEntry
 from app.store.ledger import Applied, LedgerEntry
 from app.store.notes import RegionRow
 from app.store.schema import SCHEMA_VERSION, migrate_sqlite, schema_version
@@ -386,6 +386,41 @@ class Project:
         :class:`~app.store.frames.FrameQuery`)."""
         with self._read() as tx:
             return tx.frames.page(query)
+
+    def worklist_page(self, query: FrameQuery) -> list[WorklistEntry]:
+        """One page of the Worklist in one read: each frame with its triage result (None:
+        never triaged) and its count of stored findings (None: never computed)."""
+        with self._read() as tx:
+            frames = tx.frames.page(query)
+            ids = [f.id for f in frames]
+            triage = tx.triage.of_frames(ids)
+            found = tx.findings.counts(ids)
+        return [WorklistEntry(f, triage.get(f.id), found.get(f.id)) for f in frames]
+
+    def frame_count(self, query: FrameQuery | None = None) -> int:
+        """How many frames the query keeps (None: every frame)."""
+        with self._read() as tx:
+            return tx.frames.count(query or FrameQuery())
+
+    def frame_position(self, query: FrameQuery, frame_id: int) -> int | None:
+        """Where a frame stands (0-based) in the query's order; None if it does not keep it."""
+        with self._read() as tx:
+            return tx.frames.position(query, frame_id)
+
+    def frame_ids(self, query: FrameQuery) -> list[int]:
+        """The ids of the frames the query keeps, in its order (offset and limit aside)."""
+        with self._read() as tx:
+            return tx.frames.ordered_ids(query)
+
+    def reason_counts(self) -> dict[str, int]:
+        """How many frames triage found a reason of each kind in."""
+        with self._read() as tx:
+            return tx.frames.kind_counts()
+
+    def has_triage(self) -> bool:
+        """Whether triage has scored any frame."""
+        with self._read() as tx:
+            return tx.frames.any_triaged()
 
     def frame(self, frame_id: int) -> Frame:
         if not _INT64[0] <= int(frame_id) <= _INT64[1]:

@@ -38,6 +38,9 @@ Layout:
 - ``notes``: the review thread of each frame.
 - ``triage`` (v2): each frame's suspicion score and its reasons (a JSON list), from
   ``posewright triage``.
+- ``triage_kinds`` (v7): one row per frame and kind of reason its triage found, with the
+  frame's score again, so that the Worklist filters by kind and counts the frames of each kind
+  through an index (rewritten with the frame's ``triage`` row; derived, like it).
 - ``maps`` (v2): where each frame's network maps (``.npz``) are, relative to the project folder,
   and their stride.
 - ``regions``: ignore regions (people too small or too packed to label), polygons in image
@@ -76,6 +79,7 @@ from dataclasses import dataclass
 
 from app.model.targets import parse_target, to_columns
 from app.store.db import SQLITE, Dialect, Tx
+from app.store.derived import kind_rows
 
 
 @dataclass(frozen=True)
@@ -148,6 +152,9 @@ REGIONS = Table("regions", (
 TRIAGE = Table("triage", (
     _c("frame_id", "int", False, ref=_FRAME_REF), _c("score", "real", False),
     _c("reasons", "text", False), _c("computed", "real", False)), key=("frame_id",))
+TRIAGE_KINDS = Table("triage_kinds", (
+    _c("frame_id", "int", False, ref=_FRAME_REF), _c("kind", "text", False),
+    _c("score", "real", False)), key=("frame_id", "kind"))
 MAPS = Table("maps", (
     _c("frame_id", "int", False, ref=_FRAME_REF), _c("path", "text", False),
     _c("stride", "int", False)), key=("frame_id",))
@@ -183,7 +190,8 @@ DISMISSALS = Table("dismissals", (
 #: The tables of the current schema whose ``frame_id`` column names a frame (besides
 #: ``frames.id``), for giving frames new ids.
 FRAME_COLUMNS = ("people", "ledger", "notes", "regions", "triage", "maps", "alternatives",
-                 "review_decisions", "claims", "findings", "findings_state", "dismissals")
+                 "review_decisions", "claims", "findings", "findings_state", "dismissals",
+                 "triage_kinds")
 
 
 # ---------------------------------------------------------------------- migration steps
@@ -332,8 +340,27 @@ _V6 = [
     _index(Index("people_track", "people", ("track",))),
 ]
 
+
+
+def _fill_triage_kinds(tx: Tx) -> None:
+    """Version 7: the kinds of every stored triage result, read once from its reasons."""
+    tx.run("DELETE FROM triage_kinds")
+    tx.run_many("INSERT INTO triage_kinds (frame_id, kind, score) VALUES (?, ?, ?)",
+                kind_rows(tx.rows("SELECT frame_id, score, reasons FROM triage")))
+
+
+# Version 7: a Worklist that reads only the rows in view filters by reason kind and counts the
+# frames of each kind in the database. Its order (score descending, then frame id) is the
+# order of two indexes, so that both databases walk a page straight off them, with no sort.
+_V7 = [
+    _create(TRIAGE_KINDS, if_not_exists=True),
+    _index(Index("triage_kinds_rank", "triage_kinds", ("kind", "score DESC", "frame_id")),
+           Index("triage_rank", "triage", ("score DESC", "frame_id"))),
+    _fill_triage_kinds,
+]
+
 #: ``MIGRATIONS[n]`` takes the schema from version ``n - 1`` to ``n``.
-MIGRATIONS: dict[int, list[Step]] = {1: _V1, 2: _V2, 3: _V3, 4: _V4, 5: _V5, 6: _V6}
+MIGRATIONS: dict[int, list[Step]] = {1: _V1, 2: _V2, 3: _V3, 4: _V4, 5: _V5, 6: _V6, 7: _V7}
 SCHEMA_VERSION = max(MIGRATIONS)
 
 

@@ -8,7 +8,9 @@ the store's change notifications); none of them writes.
 from __future__ import annotations
 
 import contextlib
+import logging
 import time
+from collections import OrderedDict
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -19,7 +21,6 @@ from PySide6.QtCore import (
     QAbstractTableModel,
     QModelIndex,
     QPersistentModelIndex,
-    QSortFilterProxyModel,
     Qt,
 )
 from PySide6.QtGui import QColor, QFont
@@ -27,7 +28,8 @@ from PySide6.QtGui import QColor, QFont
 from app.errors import PosewrightError
 from app.model.labels import Frame, FrameState, Note, Person
 from app.model.naming import Names, ledger_names, person_text
-from app.session.worklist import people_summary, separating_kinds
+from app.session.worklist import people_summary, separating_counts
+from app.store.frames import FrameQuery, WorklistEntry
 from app.store.project import LedgerEntry, Project
 from app.ui.overlay import WHOLE_PERSON, palette_colour
 from app.wording import DECISION_WORDS, count, ledger_text, reason_count
@@ -49,6 +51,11 @@ MarkRole = Qt.ItemDataRole.UserRole + 2
 MARK_TEXT = {"last": "carry ends"}
 #: The same, in the row's tooltip.
 MARK_TIP = {"last": "the carried correction ends on this frame"}
+#: The roles the Worklist answers (the others are answered without reading a row).
+_WORK_ROLES = frozenset({KeyRole, DisplayRole, ToolTipRole, AlignRole, FontRole, ForegroundRole,
+                         MarkRole})
+
+log = logging.getLogger(__name__)
 
 STATE_TEXT = {
     FrameState.UNTOUCHED: "untouched",
@@ -148,22 +155,65 @@ class WorkRow:
 
 
 class WorklistModel(_TableModel):
-    """Every frame, most suspicious first (frames without a triage score last, by id), with
-    its score, state and reasons."""
+    """The frames, most suspicious first (frames without a triage score last, by id), with
+    their score, state and reasons; kept to one state and/or one reason kind when asked.
+
+    The model holds no list of every frame: it counts the frames its filters keep and reads
+    the rows the view asks for a page at a time (:meth:`Project.worklist_page
+    <app.store.project.Project.worklist_page>`), the database sorting and filtering through
+    its indexes. At most :data:`KEEP_PAGES` pages stay in memory.
+    """
 
     COLUMNS = ("frame and reasons", "score", "state")
+    #: Rows read from the store at a time.
+    PAGE = 100
+    #: Pages kept in memory, the most recently used (the rows in view and those near them).
+    KEEP_PAGES = 40
 
     def __init__(self, project: Project, parent: Any = None, review: bool = False):
         super().__init__(parent)
         self._project = project
         #: A review project: each frame also shows the reviewer's decision.
         self._review = review
-        self._rows: list[WorkRow] = []
+        self._state: FrameState | None = None
+        self._kind: str | None = None
+        self._count = 0
+        self._total = 0
+        self._kinds: list[tuple[str, int]] = []
+        self._has_triage = False
+        self._decided: dict[int, str] = {}
+        self._pages: OrderedDict[int, list[WorkRow]] = OrderedDict()
         self._row_of: dict[int, int] = {}
         self._claims: dict[int, Any] = {}
+        self._claimed: dict[int, str] = {}
+        #: Every page read from the store since the last reload, as (first row, rows read):
+        #: what the view made the model fetch.
+        self.fetched: list[tuple[int, int]] = []
         #: Frame id -> mark, given by the session (:meth:`set_marks`).
         self._marks: dict[int, str] = {}
         self.reload()
+
+    # -- filters
+    @property
+    def state(self) -> FrameState | None:
+        """The state the rows are kept to (None: any)."""
+        return self._state
+
+    @property
+    def kind(self) -> str | None:
+        """The reason kind the rows are kept to (None: any)."""
+        return self._kind
+
+    def set_filters(self, state: FrameState | None, kind: str | None) -> None:
+        """Keep the frames in ``state`` whose triage found a reason of ``kind`` (None: any)."""
+        if (state, kind) != (self._state, self._kind):
+            self._state, self._kind = state, kind
+            self.reload()
+
+    def frame_query(self, offset: int = 0, limit: int | None = None) -> FrameQuery:
+        """The store query of the rows shown (filters applied), in Worklist order."""
+        states = None if self._state is None else (self._state,)
+        return FrameQuery("suspicion", states, self._kind, offset, limit)
 
     def set_marks(self, marks: dict[int, str]) -> None:
         """Mark frames (frame id -> a key of :data:`MARK_TEXT`); the rows whose mark changed
@@ -179,30 +229,62 @@ class WorklistModel(_TableModel):
 
     # -- loading
     def reload(self) -> None:
-        frames = self._project.frames()
-        triage = self._project.triage_all()
-        decided = {}
+        """Count the frames again and forget the rows read (they are read again when shown)."""
+        project = self._project
+        total = project.frame_count()
+        shown = total if self._state is None and self._kind is None else \
+            project.frame_count(self.frame_query())
+        kinds = separating_counts(project.reason_counts(), total)
+        decided: dict[int, str] = {}
         if self._review:
             from app.review.review import decisions
 
-            decided = {fid: d.decision for fid, d in decisions(self._project).items()}
-        found = self._project.finding_counts()
-        rows = []
-        for f in frames:
-            score, reasons = triage.get(f.id, (None, []))
-            row = _work_row(f.id, f.file_name or f.path, score, f.state, reasons)
-            row.findings = found.get(f.id)
-            row.video = video_position(f)
-            row.decision = DECISION_TEXT.get(decided.get(f.id, ""), "")
-            rows.append(row)
-        rows.sort(key=lambda r: (r.score is None, -(r.score or 0.0), r.frame_id))
-        claims = self._others_claims()
-        for row in rows:
-            row.claimed_by = claims.get(row.frame_id, "")
+            decided = {fid: d.decision for fid, d in decisions(project).items()}
+        claimed = self._others_claims()
         self.beginResetModel()
-        self._rows = rows
-        self._row_of = {r.frame_id: i for i, r in enumerate(rows)}
+        self._total, self._count, self._kinds = total, shown, kinds
+        self._has_triage = project.has_triage()
+        self._decided, self._claimed = decided, claimed
+        self._pages.clear()
+        self._row_of.clear()
+        self.fetched = []
         self.endResetModel()
+
+    def _page(self, page: int) -> list[WorkRow]:
+        """The rows of one page, read from the store unless kept."""
+        rows = self._pages.get(page)
+        if rows is not None:
+            self._pages.move_to_end(page)
+            return rows
+        first = page * self.PAGE
+        try:
+            entries = self._project.worklist_page(self.frame_query(first, self.PAGE))
+        except PosewrightError:  # closed, or the server gone for a moment: blank rows
+            log.warning("the Worklist could not read rows %d-%d", first, first + self.PAGE)
+            return []
+        self.fetched.append((first, len(entries)))
+        rows = [self._work_row(e) for e in entries]
+        self._pages[page] = rows
+        self._row_of.update({r.frame_id: first + i for i, r in enumerate(rows)})
+        while len(self._pages) > self.KEEP_PAGES:
+            _, dropped = self._pages.popitem(last=False)
+            for r in dropped:
+                self._row_of.pop(r.frame_id, None)
+        return rows
+
+    def _work_row(self, entry: WorklistEntry) -> WorkRow:
+        f = entry.frame
+        score, reasons = entry.triage if entry.triage is not None else (None, [])
+        row = _work_row(f.id, f.file_name or f.path, score, f.state, reasons)
+        row.findings = entry.findings
+        row.video = video_position(f)
+        row.decision = DECISION_TEXT.get(self._decided.get(f.id, ""), "")
+        row.claimed_by = self._claimed.get(f.id, "")
+        return row
+
+    def _kept_rows(self) -> list[tuple[int, WorkRow]]:
+        return [(p * self.PAGE + i, r) for p, rows in self._pages.items()
+                for i, r in enumerate(rows)]
 
     def _others_claims(self) -> dict[int, str]:
         """Who else is working on which frame (a hosted project's claims, ours left out)."""
@@ -214,42 +296,76 @@ class WorklistModel(_TableModel):
 
     def reload_claims(self) -> None:
         """Re-read the claims and mark the rows whose claim changed."""
-        claims = self._others_claims()
-        for i, row in enumerate(self._rows):
-            who = claims.get(row.frame_id, "")
+        self._claimed = self._others_claims()
+        for i, row in self._kept_rows():
+            who = self._claimed.get(row.frame_id, "")
             if who != row.claimed_by:
                 row.claimed_by = who
                 self.dataChanged.emit(self.index(i, 0), self.index(i, 2))
 
     def refresh_states(self, frame_ids: Sequence[int]) -> None:
-        """Re-read the state of the given frames (after edits) without reordering."""
+        """Re-read the state of the given frames (after edits) without reordering; with a
+        state filter the rows are counted and read again (a frame may have left it)."""
+        if self._state is not None:
+            self.reload()
+            return
         for fid in frame_ids:
             i = self._row_of.get(fid)
             if i is None:
+                continue  # not read yet: read with its new state when shown
+            row = self._page(i // self.PAGE)[i % self.PAGE]
+            try:
+                state = self._project.frame(fid).state
+            except PosewrightError:
                 continue
-            state = self._project.frame(fid).state
-            if state != self._rows[i].state:
-                self._rows[i].state = state
+            if state != row.state:
+                row.state = state
                 idx = self.index(i, 2)
                 self.dataChanged.emit(idx, idx)
 
     # -- queries
+    def rowCount(self, parent: Index = _ROOT) -> int:
+        return 0 if parent.isValid() else self._count
+
+    def total(self) -> int:
+        """How many frames the project has, whatever the filters."""
+        return self._total
+
     def frame_ids(self) -> list[int]:
-        return [r.frame_id for r in self._rows]
+        """Every frame id shown, in order (read from the store: for a walk, not a view)."""
+        return self._project.frame_ids(self.frame_query())
+
+    def frame_id_at(self, row: int) -> int | None:
+        """The frame on a row (None past the ends)."""
+        if not 0 <= row < self._count:
+            return None
+        rows = self._page(row // self.PAGE)
+        k = row % self.PAGE
+        return rows[k].frame_id if k < len(rows) else None
 
     def row_of(self, frame_id: int) -> int | None:
-        return self._row_of.get(frame_id)
+        """The row showing a frame (None when the filters leave it out)."""
+        row = self._row_of.get(frame_id)
+        if row is None:
+            row = self._project.frame_position(self.frame_query(), frame_id)
+        return row
+
+    def position_in_all(self, frame_id: int) -> int | None:
+        """Where a frame stands in the whole Worklist, filters aside (0-based)."""
+        if self._state is None and self._kind is None:
+            return self.row_of(frame_id)
+        return self._project.frame_position(FrameQuery(), frame_id)
 
     def work_row(self, row: int) -> WorkRow:
-        return self._rows[row]
+        return self._page(row // self.PAGE)[row % self.PAGE]
 
     def has_triage(self) -> bool:
-        return any(r.score is not None for r in self._rows)
+        return self._has_triage
 
     def reason_kinds(self) -> list[tuple[str, int]]:
         """The reason kinds that tell frames apart, with the number of frames that have each,
         most frequent first: a kind every frame has would filter nothing out."""
-        return separating_kinds([r.kinds for r in self._rows])
+        return list(self._kinds)
 
     def _people_summary(self, row: WorkRow) -> str:
         """The tooltip's per-person lines (people named by their tags now)."""
@@ -262,9 +378,13 @@ class WorklistModel(_TableModel):
 
     # -- Qt model
     def data(self, index: Index, role: int = DisplayRole) -> Any:
-        if not index.isValid():
+        if not index.isValid() or role not in _WORK_ROLES:
             return None
-        r = self._rows[index.row()]
+        rows = self._page(index.row() // self.PAGE)
+        k = index.row() % self.PAGE
+        if k >= len(rows):
+            return None
+        r = rows[k]
         col = index.column()
         if role == KeyRole:
             return r.frame_id
@@ -349,40 +469,6 @@ def summarise_reasons(reasons: Sequence[dict[str, Any]]) -> str:
     order = sorted(kinds, key=lambda k: (kinds[k][2], -kinds[k][0], -kinds[k][1], k))
     parts = [reason_count(k, int(kinds[k][1])) for k in order]
     return " \u00b7 ".join(parts)
-
-
-class WorklistFilter(QSortFilterProxyModel):
-    """Keeps the Worklist rows of one state and/or one reason kind (None: any)."""
-
-    def __init__(self, parent: Any = None):
-        super().__init__(parent)
-        self._state: FrameState | None = None
-        self._kind: str | None = None
-
-    def set_state(self, state: FrameState | None) -> None:
-        self._change_filter(lambda: setattr(self, "_state", state))
-
-    def set_kind(self, kind: str | None) -> None:
-        self._change_filter(lambda: setattr(self, "_kind", kind))
-
-    def _change_filter(self, change: Any) -> None:
-        # Qt 6.9 added begin/endFilterChange; older Qt re-filters with invalidateFilter.
-        if hasattr(self, "beginFilterChange"):
-            self.beginFilterChange()
-            change()
-            self.endFilterChange()
-        else:
-            change()
-            self.invalidateFilter()
-
-    def filterAcceptsRow(self, source_row: int, source_parent: Index) -> bool:
-        model = self.sourceModel()
-        if not isinstance(model, WorklistModel):
-            return True
-        r = model.work_row(source_row)
-        if self._state is not None and r.state is not self._state:
-            return False
-        return self._kind is None or self._kind in r.kinds
 
 
 # ---------------------------------------------------------------------------------- Owners

@@ -31,6 +31,7 @@ Only QtGui is used: the headless render runs under a bare ``QGuiApplication``.
 
 from __future__ import annotations
 
+import warnings
 from collections import OrderedDict
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
@@ -354,7 +355,8 @@ def tag_anchor(points: np.ndarray, labelled: np.ndarray) -> np.ndarray | None:
 
 def paint_overlay(painter: QPainter, people: Sequence[_PersonLike], skeleton: Skeleton,
                   transform: QTransform, style: OverlayStyle | None = None,
-                  image_size: tuple[int, int] | None = None) -> OverlayLayout:
+                  image_size: tuple[int, int] | None = None,
+                  within: QRectF | None = None) -> OverlayLayout:
     """Draw every person of a frame onto ``painter``.
 
     Parameters
@@ -373,6 +375,10 @@ def paint_overlay(painter: QPainter, people: Sequence[_PersonLike], skeleton: Sk
         Sizes, toggles, focus, flags, selection, hover and colours.
     image_size
         ``(width, height)`` of the image, for dimming it in focus mode.
+    within
+        Where the painter is clipped to (screen pixels), when only part is painted again:
+        the people drawn wholly outside it are left out (their tags are still placed, so
+        that every tag lands where a whole paint puts it).
 
     Returns
     -------
@@ -425,8 +431,9 @@ def paint_overlay(painter: QPainter, people: Sequence[_PersonLike], skeleton: Sk
         _paint_regions(painter, transform, style)
 
     top = style.focus if style.focus is not None else style.selected_person
-    rest = [i for i, p in enumerate(people) if p.id != top]
-    first = [i for i, p in enumerate(people) if p.id == top]
+    shown = range(len(people)) if within is None else _people_within(geo, within, style)
+    rest = [i for i in shown if people[i].id != top]
+    first = [i for i in shown if people[i].id == top]
     dimmed = style.dim_others if style.focus is not None else 1.0
     dpr = painter.device().devicePixelRatioF() if painter.device() is not None else 1.0
     for group, opacity in ((rest, dimmed), (first, 1.0)):
@@ -448,9 +455,22 @@ def paint_overlay(painter: QPainter, people: Sequence[_PersonLike], skeleton: Sk
 
     tags: dict[int, QRectF] = {}
     if style.show_tags and people:
-        tags = _paint_tags(painter, geo, people, numbers, colours, transform, style, dpr)
+        tags = _paint_tags(painter, geo, people, numbers, colours, transform, style, dpr,
+                           within)
     painter.restore()
     return OverlayLayout(numbers, colours, tags)
+
+
+def _people_within(geo: _Geometry, within: QRectF, style: OverlayStyle) -> list[int]:
+    """The people some of whose drawing (joints, limbs, rings, halos) reaches into ``within``."""
+    pad = 4 * style.joint_radius + 2 * style.limb_width + 4
+    pts = np.where(geo.placed[..., None], geo.pts, np.nan)
+    with np.errstate(invalid="ignore"), warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # a person with no joint placed
+        lo, hi = np.nanmin(pts, axis=1) - pad, np.nanmax(pts, axis=1) + pad
+    near = (lo[:, 0] <= within.right()) & (hi[:, 0] >= within.left()) \
+        & (lo[:, 1] <= within.bottom()) & (hi[:, 1] >= within.top())
+    return np.flatnonzero(near).tolist()
 
 
 class _Geometry:
@@ -894,7 +914,8 @@ def _cached_layout(anchors: np.ndarray, sizes: np.ndarray, gap: float, obstacles
 
 def _paint_tags(painter: QPainter, geo: _Geometry, people: list[_PersonLike],
                 numbers: dict[int, int], colours: dict[int, int], transform: QTransform,
-                style: OverlayStyle, dpr: float) -> dict[int, QRectF]:
+                style: OverlayStyle, dpr: float, within: QRectF | None = None
+                ) -> dict[int, QRectF]:
     metrics = _tag_metrics(style.tag_font_px)
     h = metrics.height() + 2
     all_anchors, has = geo.anchors()
@@ -913,6 +934,10 @@ def _paint_tags(painter: QPainter, geo: _Geometry, people: list[_PersonLike],
         pid = people[i].id
         rect = QRectF(cx - w / 2, cy - hh / 2, w, hh)
         rects[pid] = rect
+        if within is not None and not within.intersects(
+                rect.united(QRectF(float(anchor[0]), float(anchor[1]), 1.0, 1.0))
+                .adjusted(-4, -4, 4, 4)):
+            continue  # placed, but drawn wholly outside the part painted again
         dimmed = style.focus is not None and pid != style.focus
         painter.setOpacity(style.dim_others if dimmed else 1.0)
         default_cy = anchor[1] - gap - hh / 2

@@ -32,7 +32,6 @@ from app.ui.models import (
     LedgerModel,
     NotesModel,
     PeopleModel,
-    WorklistFilter,
     WorklistModel,
 )
 from app.wording import count, reason_label
@@ -72,16 +71,19 @@ def _tight(layout: QVBoxLayout | QHBoxLayout | QGridLayout) -> None:
 # ---------------------------------------------------------------------------------- Worklist
 
 class WorklistPanel(QWidget):
-    """Frames by suspicion with filters; emits :attr:`frameChosen` when the user picks one."""
+    """Frames by suspicion with filters; emits :attr:`frameChosen` when the user picks one.
+
+    The filters are the model's (the database filters); the view asks the model only for the
+    rows it shows."""
 
     frameChosen = Signal(int)
 
     def __init__(self, model: WorklistModel, parent: QWidget | None = None):
         super().__init__(parent)
         self.model = model
-        self.proxy = WorklistFilter(self)
-        self.proxy.setSourceModel(model)
         self._quiet = False
+        #: The frame highlighted (kept over a reload, which forgets the rows read).
+        self._current: int | None = None
 
         self.state_filter = QComboBox()
         self.state_filter.addItem("all states", None)
@@ -94,7 +96,7 @@ class WorklistPanel(QWidget):
         self.hint = QLabel("No triage yet: Project \u25b8 Run triage (Ctrl+T) ranks the frames "
                            "by suspicion.")
         self.hint.setWordWrap(True)
-        self.view = _table(self.proxy, 0, (200, 46, 70))
+        self.view = _table(model, 0, (200, 46, 70))
         self.view.setObjectName("WorklistView")
         self.view.setTextElideMode(Qt.TextElideMode.ElideRight)
         self.view.verticalHeader().setDefaultSectionSize(2 * self.view.fontMetrics().height()
@@ -111,8 +113,8 @@ class WorklistPanel(QWidget):
         layout.addWidget(self.view, 1)
         layout.addWidget(self.count)
 
-        self.state_filter.currentIndexChanged.connect(self._filter_state)
-        self.reason_filter.currentIndexChanged.connect(self._filter_reason)
+        self.state_filter.currentIndexChanged.connect(self._filter)
+        self.reason_filter.currentIndexChanged.connect(self._filter)
         self.view.selectionModel().currentRowChanged.connect(self._current_changed)
         model.modelReset.connect(self._after_reset)
         self._after_reset()
@@ -127,62 +129,63 @@ class WorklistPanel(QWidget):
         i = self.reason_filter.findData(current)
         self.reason_filter.setCurrentIndex(max(i, 0))
         self.reason_filter.blockSignals(False)
-        if i < 0 and current is not None:
-            self.proxy.set_kind(None)
         self.hint.setVisible(not self.model.has_triage())
         self._update_count()
+        if i < 0 and current is not None:
+            self._filter()  # the kind is gone: every reason again
+        elif self._current is not None:
+            self.show_frame(self._current)
 
-    def _filter_state(self) -> None:
+    def _filter(self) -> None:
         value = self.state_filter.currentData()
-        self.proxy.set_state(None if value is None else FrameState(value))
-        self._update_count()
-
-    def _filter_reason(self) -> None:
-        self.proxy.set_kind(self.reason_filter.currentData())
-        self._update_count()
+        self.model.set_filters(None if value is None else FrameState(value),
+                               self.reason_filter.currentData())
 
     def _update_count(self) -> None:
-        shown, total = self.proxy.rowCount(), self.model.rowCount()
+        shown, total = self.model.rowCount(), self.model.total()
         self.count.setText(f"{shown} of {count(total, 'frames')}" if shown != total
                            else count(total, "frames"))
 
     def _current_changed(self, current: QModelIndex, _previous: QModelIndex) -> None:
-        if self._quiet or not current.isValid():
+        key = current.data(KeyRole) if current.isValid() else None
+        if self._quiet or key is None:
             return
-        self.frameChosen.emit(int(current.data(KeyRole)))
+        self._current = int(key)
+        self.frameChosen.emit(self._current)
 
     def ordered_ids(self) -> list[int]:
-        """Frame ids in the order shown (filters applied)."""
-        return [int(self.proxy.index(r, 0).data(KeyRole)) for r in range(self.proxy.rowCount())]
+        """Frame ids in the order shown (filters applied), read from the store."""
+        return self.model.frame_ids()
+
+    def first_id(self) -> int | None:
+        """The frame on the first row (None: no row)."""
+        return self.model.frame_id_at(0)
 
     def neighbour(self, frame_id: int | None, step: int) -> int | None:
         """The frame ``step`` rows after (or before) ``frame_id`` in the shown order."""
-        n = self.proxy.rowCount()
+        n = self.model.rowCount()
         if n == 0:
             return None
         row = self.model.row_of(frame_id) if frame_id is not None else None
         if row is not None:
-            pos = self.proxy.mapFromSource(self.model.index(row, 0)).row()
-            if pos >= 0:
-                nxt = pos + step
-                return int(self.proxy.index(nxt, 0).data(KeyRole)) if 0 <= nxt < n else None
-        return int(self.proxy.index(0 if step > 0 else n - 1, 0).data(KeyRole))
+            return self.model.frame_id_at(row + step)
+        return self.model.frame_id_at(0 if step > 0 else n - 1)
 
     def show_frame(self, frame_id: int) -> None:
         """Highlight a frame's row without emitting :attr:`frameChosen`."""
+        self._current = frame_id
         row = self.model.row_of(frame_id)
-        if row is None:
-            return
-        idx = self.proxy.mapFromSource(self.model.index(row, 0))
         self._quiet = True
         try:
-            if idx.isValid():
+            if row is not None:
+                idx = self.model.index(row, 0)
                 self.view.selectionModel().setCurrentIndex(
                     idx, QItemSelectionModel.SelectionFlag.ClearAndSelect
                     | QItemSelectionModel.SelectionFlag.Rows)
                 self.view.scrollTo(idx)
-            else:
+            else:  # filtered out: the list from its top
                 self.view.clearSelection()
+                self.view.scrollToTop()
         finally:
             self._quiet = False
 

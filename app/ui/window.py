@@ -242,9 +242,9 @@ class MainWindow(QMainWindow):
             self._claims_timer.start()
         self._restore_layout(restore_layout)
         self._apply_read_only()
-        ids = self.worklist.ordered_ids()
-        if ids:
-            self.show_frame(ids[0])
+        first = self.worklist.first_id()
+        if first is not None:
+            self.show_frame(first)
         else:
             self._selection_changed()
             self._update_status()
@@ -654,9 +654,9 @@ class MainWindow(QMainWindow):
             self.session.labels_changed(sorted(frame_ids))
             self.worklist_model.refresh_states(sorted(frame_ids))
         if self.frame_id is None:
-            ids = self.worklist.ordered_ids()
-            if ids:
-                self.show_frame(ids[0])
+            first = self.worklist.first_id()
+            if first is not None:
+                self.show_frame(first)
                 return
         current = self.frame_id in frame_ids or kind in ("import", "frames")
         if current:
@@ -1507,7 +1507,7 @@ class MainWindow(QMainWindow):
         for name in ("add_images", "add_video", "prelabel", "merge_packet"):
             a[name].setEnabled(main)
         a["export_packet"].setEnabled(not self.review_mode and bool(self.worklist_model
-                                                                    .rowCount()))
+                                                                    .total()))
         a["region_mode"].setEnabled(self.frame_id is not None)
         a["region_mode"].setChecked(self.canvas.region_mode)
         self._update_settling_actions()
@@ -1613,13 +1613,13 @@ class MainWindow(QMainWindow):
                 "\u00b7 " + held)
 
     def _update_status(self) -> None:
-        shown = self.worklist.proxy.rowCount()
-        total = self.worklist_model.rowCount()
+        shown = self.worklist_model.rowCount()
+        total = self.worklist_model.total()
         if self.frame_id is None:
             self.status_frame.setText(f"no frame (0 of {total})")
         else:
             frame = self.canvas.frame
-            row = self.worklist_model.row_of(self.frame_id)
+            row = self.worklist_model.position_in_all(self.frame_id)
             pos = (row + 1) if row is not None else 0
             name = frame.file_name if frame is not None else ""
             video = video_position(frame) if frame is not None else ""

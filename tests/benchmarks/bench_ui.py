@@ -151,6 +151,72 @@ def _bench_paint() -> list[dict]:
     return rows
 
 
+def _bench_drag() -> list[dict]:
+    """Dragging a joint of one of 40 (and 100) people: the CPU time of each move's paint,
+    repainting the dragged person's old and new places, against the same drag repainting the
+    whole Canvas (the baseline, in the same run)."""
+    from PySide6.QtCore import QEvent, QPointF, Qt
+    from PySide6.QtGui import QMouseEvent
+    from PySide6.QtWidgets import QApplication
+
+    from app.model.labels import Frame, Person
+    from app.model.skeleton import coco_body
+    from app.ui.canvas import Canvas
+    from app.ui.images import decode_for_display
+
+    app = QApplication.instance() or QApplication(["bench"])
+    with tempfile.TemporaryDirectory() as tmp:
+        path = Path(tmp) / "f.jpg"
+        write_frame_jpeg(path, 1)
+        decoded = decode_for_display(1, path)
+    left, none = Qt.MouseButton.LeftButton, Qt.MouseButton.NoButton
+    plain = Qt.KeyboardModifier.NoModifier
+    out = []
+    for n, limit in ((40, 8e-3), (100, 16e-3)):
+        people = []
+        for k, kp in enumerate(synthetic_people(n, seed=n)):
+            q = Person.blank(k + 1, 17)
+            q.keypoints[:] = kp
+            people.append(q)
+        canvas = Canvas(coco_body())
+        canvas.resize(1400, 800)
+        canvas.show()
+        app.processEvents()
+        canvas.set_frame(Frame(1, "f.jpg", "f.jpg", W, H), people, {}, decoded)
+        canvas.repaint()
+        times = {}
+        for partial in (True, False):
+            Canvas.PARTIAL_DRAG = partial
+            start = canvas.image_to_screen(*people[3].keypoints[9, :2])
+            canvas.mousePressEvent(QMouseEvent(QEvent.Type.MouseButtonPress, start, start,
+                                               left, left, plain))
+            canvas.repaint()
+            steps = []
+            for k in range(1, 41):
+                at = start + QPointF(2.0 * k, -1.0 * k)
+                canvas.mouseMoveEvent(QMouseEvent(QEvent.Type.MouseMove, at, at, none,
+                                                  left, plain))
+                t0 = time.thread_time()
+                if partial:
+                    canvas.repaint(canvas.drag_dirty)
+                else:
+                    canvas.repaint()
+                steps.append(time.thread_time() - t0)
+            canvas.mouseReleaseEvent(QMouseEvent(QEvent.Type.MouseButtonRelease, at, at,
+                                                 left, none, plain))
+            app.processEvents()
+            times[partial] = statistics.median(steps[5:])
+        Canvas.PARTIAL_DRAG = True
+        canvas.close()
+        part, whole = times[True], times[False]
+        out.append(row(f"Canvas paint while dragging a joint, {n} people", part * 1e3, "ms",
+                       f"<= {limit * 1e3:.0f} ms", part <= limit,
+                       f"CPU time of the painting thread per move, the dragged person's old "
+                       f"and new places repainted; the whole Canvas repainted on each move "
+                       f"(baseline) {whole * 1e3:.2f} ms: {whole / part:.1f}x; {_load()}"))
+    return out
+
+
 def _median_thread_time(fn: Callable[[], object], repeat: int) -> float:
     """Median CPU time of the calling thread per call: what the paint costs, whatever else
     the machine is doing (the wall time above also counts waiting for a core)."""
@@ -342,7 +408,7 @@ def _bench_memory() -> list[dict]:
 
 
 def run() -> list[dict]:
-    return _bench_paint() + _bench_switch() + _bench_memory()
+    return _bench_paint() + _bench_drag() + _bench_switch() + _bench_memory()
 
 
 if __name__ == "__main__":

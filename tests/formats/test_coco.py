@@ -546,3 +546,33 @@ def test_a_track_id_that_is_not_a_whole_number_is_refused(project, coco_file, tm
     with pytest.raises(BadInput, match=r"annotations\[4\].*field track_id"):
         import_coco(project, _write(tmp_path, ds, "bad.json"))
     assert project.counts()["people"] == 0
+
+
+_FIELD_VALUES = st.one_of(
+    st.none(), st.booleans(), st.integers(-2**60, 2**60), st.sampled_from([2**53 - 1, 2**53]),
+    st.floats(allow_nan=False, allow_infinity=False), st.text(max_size=3),
+    st.lists(st.one_of(st.integers(-5, 5), st.floats(-1e3, 1e3), st.booleans(), st.none(),
+                       st.text(max_size=1)), max_size=6))
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.lists(st.fixed_dictionaries(
+    {}, optional={k: _FIELD_VALUES for k in ("id", "image_id", "category_id", "keypoints",
+                                             "iscrowd", "score", "area")}), max_size=3))
+def test_the_quick_reading_of_annotations_agrees_with_pydantic(records):
+    """Synthetic records of every field type: whatever the quick reading accepts, the
+    pydantic model accepts with the same values, and whatever pydantic refuses, the quick
+    reading leaves to it (pydantic's strict types are the reference)."""
+    from pydantic import ValidationError
+
+    from app.formats.coco import _ANNOTATIONS, plain_annotations
+
+    quick = plain_annotations(records)
+    try:
+        full = _ANNOTATIONS.validate_python(records)
+    except ValidationError:
+        assert quick is None
+        return
+    if quick is not None:
+        assert [(a.id, a.image_id, a.category_id, a.keypoints, a.iscrowd, a.score)
+                for a in full] == [tuple(a) for a in quick]

@@ -315,17 +315,32 @@ def test_worklist_pages_follow_one_sort_of_every_frame(project):
         return [f.id for f in sorted(frames, key=lambda f: (f.suspicion is None,
                                                              -(f.suspicion or 0.0), f.id))]
 
+    disputed = (FrameState.DISPUTED,)
     cases = [(FrameQuery(), lambda f: True),
-             (FrameQuery(states=(FrameState.DISPUTED,)), lambda f: f.state is FrameState.DISPUTED),
-             (FrameQuery(reason="odd"), lambda f: f.id in scores and f.id % 2 == 1)]
+             (FrameQuery(states=disputed), lambda f: f.state is FrameState.DISPUTED),
+             (FrameQuery(reason="odd"), lambda f: f.id in scores and f.id % 2 == 1),
+             (FrameQuery(states=disputed, reason="odd"),
+              lambda f: f.state is FrameState.DISPUTED and f.id in scores and f.id % 2 == 1)]
     for query, keep in cases:
         want = expected(keep)
+        assert len(want) >= 3, query
         assert [f.id for f in project.frame_page(query)] == want
+        assert project.frame_ids(query) == want
+        assert project.frame_count(query) == len(want)
         for offset in (0, 5, len([i for i in want if i in scores]) - 2, len(want) - 3, 100):
             page = FrameQuery(query.order, query.states, query.reason, offset, 7)
             assert [f.id for f in project.frame_page(page)] == want[offset:offset + 7]
+            entries = project.worklist_page(page)
+            assert [e.frame.id for e in entries] == want[offset:offset + 7]
+            assert all((e.triage is None) == (e.frame.id not in scores) for e in entries)
+        for fid in ids:
+            assert project.frame_position(query, fid) == (want.index(fid) if fid in want
+                                                          else None), fid
     assert project.frame_page(FrameQuery(states=(), limit=5)) == []
-    assert len(want) >= 10
+    assert project.frame_count(FrameQuery(states=())) == 0
+    odd = sum(1 for f in scores if f % 2)
+    assert project.reason_counts() == {"odd": odd, "even": len(scores) - odd}
+    assert project.has_triage()
 
 
 def test_older_project_is_migrated_forward(tmp_path, image_dir):
@@ -345,6 +360,26 @@ def test_older_project_is_migrated_forward(tmp_path, image_dir):
         assert p.frame(1).suspicion == 0.5
     conn = sqlite3.connect(db)
     assert conn.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION
+    conn.close()
+
+
+@pytest.mark.folder_only
+def test_a_schema_6_project_gains_its_reason_kinds(tmp_path, image_dir):
+    """A project written at schema 6 (before ``triage_kinds``) opens, migrates to 7 and
+    filters and counts by reason kind from the triage results it had (synthetic reasons)."""
+    with new_project(tmp_path / "old", images=image_dir, author="ana") as p:
+        p.store_triage({1: (0.5, [{"kind": "crowded"}, {"kind": "weak-limb"}]),
+                        2: (0.9, [{"kind": "crowded"}])})
+    db = tmp_path / "old" / "project.db"
+    conn = sqlite3.connect(db, isolation_level=None)
+    conn.execute("DROP TABLE triage_kinds")
+    conn.execute("PRAGMA user_version = 6")
+    conn.close()
+    with Project.open(tmp_path / "old", author="ana") as p:
+        assert p.reason_counts() == {"crowded": 2, "weak-limb": 1}
+        assert p.frame_ids(FrameQuery(reason="crowded")) == [2, 1]
+    conn = sqlite3.connect(db)
+    assert conn.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION >= 7
     conn.close()
 
 

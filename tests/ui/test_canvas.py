@@ -166,3 +166,31 @@ def test_the_remembered_overlay_layer_shows_what_painting_anew_shows(qtbot, wind
     selected = pixels(grab(False))
     assert np.abs(selected.astype(int) - pixels(grab(True))).max() <= 1
     assert np.abs(selected.astype(int) - painted).max() > 50  # the selection ring shows
+
+
+def test_a_drag_repaints_only_the_dragged_person_and_shows_what_a_whole_paint_shows(
+        qtbot, window):
+    """While a joint is dragged each move repaints a rectangle around the dragged person's
+    old and new places only; the Canvas then shows, pixel for pixel, what painting its whole
+    overlay again shows (the whole paint is the reference)."""
+    canvas = window.canvas
+    pid = person_id(window, 3)
+    start = screen_point(window, pid, 10)
+    layer = canvas._overlay
+    parts = []
+    paint_part = layer._paint_part
+    layer._paint_part = lambda *a: parts.append(paint_part(*a)) or parts[-1]
+    qtbot.mousePress(canvas, Qt.MouseButton.LeftButton, pos=start)
+    for k in range(1, 5):
+        qtbot.mouseMove(canvas, start + QPoint(9 * k, -5 * k))
+        dirty = canvas.drag_dirty
+        assert dirty is not None and dirty.width() < canvas.width() \
+            and dirty.height() < canvas.height(), "a rectangle, not the whole Canvas"
+        canvas.repaint(dirty)  # the move's own paint, now rather than when Qt gets to it
+        canvas.repaint(dirty)
+        shown = canvas.grab().toImage()
+        canvas._overlay._key = None  # forget the layer: everything painted again
+        whole = canvas.grab().toImage()
+        assert shown == whole, f"move {k}: the partial paint differs from the whole one"
+    assert len(parts) >= 3 and all(p is not None for p in parts), "painted in part each time"
+    qtbot.mouseRelease(canvas, Qt.MouseButton.LeftButton, pos=start + QPoint(36, -20))

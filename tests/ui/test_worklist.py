@@ -7,6 +7,7 @@ highest first, unscored last (our own rule).
 
 from __future__ import annotations
 
+import numpy as np
 from PySide6.QtCore import Qt
 
 from app.model.labels import FrameState
@@ -103,4 +104,68 @@ def test_counts_of_one_read_in_the_singular(qtbot, tmp_path):
         assert w.status_flags.text() == "flags on 1 person"
     finally:
         w.shutdown()
+        project.close()
+
+
+def test_a_large_worklist_reads_only_the_rows_in_view(qtbot, tmp_path):
+    """5,000 synthetic frames (registered without images; every other frame triaged with
+    random scores, seed 0): the Worklist reads the page in view, then only the last page when
+    the view scrolls to the end, and its rows follow one sort in Python of every frame (most
+    suspicious first, then the frames never triaged by id: a plain sort, common practice).
+    Filtering asks the store again and reads one page; Ctrl+End walks to the last row."""
+    from app.store import NewFrame, Project
+    from app.ui.models import KeyRole, WorklistModel
+    from app.ui.panels import WorklistPanel
+
+    n = 5000
+    project = Project.create(tmp_path / "big", author="ana")
+    with project.bulk("Test", "register synthetic frames", "test") as b:
+        b.frames.insert([NewFrame(f"images/f{i}.jpg", f"f{i}.jpg", 64, 48) for i in range(n)],
+                        first_id=1)
+    rng = np.random.default_rng(0)
+    scores = {fid: float(rng.random()) for fid in range(1, n + 1, 2)}
+    project.store_triage({fid: (s, [{"kind": "weak-limb" if fid % 3 == 0 else "crowded",
+                                     "person": None}]) for fid, s in scores.items()})
+    want = sorted(range(1, n + 1), key=lambda f: (f not in scores, -scores.get(f, 0.0), f))
+    model = WorklistModel(project)
+    panel = WorklistPanel(model)
+    qtbot.addWidget(panel)
+    chosen: list[int] = []
+    panel.frameChosen.connect(chosen.append)
+    try:
+        panel.resize(360, 500)
+        panel.show()
+        qtbot.waitExposed(panel)
+        panel.view.viewport().grab()  # paints the rows in view, now
+        assert model.rowCount() == n and panel.count.text() == "5000 frames"
+        assert model.fetched == [(0, model.PAGE)], "only the first page was read"
+        assert [model.index(r, 0).data(KeyRole) for r in range(5)] == want[:5]
+
+        panel.view.scrollToBottom()
+        panel.view.viewport().grab()
+        assert [first for first, _ in model.fetched] == [0, n - model.PAGE]
+        assert model.index(n - 1, 0).data(KeyRole) == want[-1] == n
+        assert model.index(n - 1, 1).data() == "", "never triaged: no score"
+
+        panel.view.setFocus()
+        ctrl = Qt.KeyboardModifier.ControlModifier
+        qtbot.keyClick(panel.view, Qt.Key.Key_Home, ctrl)
+        assert chosen[-1] == want[0]
+        qtbot.keyClick(panel.view, Qt.Key.Key_Down)
+        assert chosen[-1] == want[1]
+        qtbot.keyClick(panel.view, Qt.Key.Key_End, ctrl)
+        assert chosen[-1] == n, "Ctrl+End reaches the last frame"
+        assert panel.neighbour(want[0], 1) == want[1]
+        assert panel.neighbour(n, -1) == want[-2]
+
+        panel.reason_filter.setCurrentIndex(panel.reason_filter.findData("weak-limb"))
+        weak = [f for f in want if f in scores and f % 3 == 0]
+        panel.view.viewport().grab()
+        assert model.rowCount() == len(weak)
+        assert panel.count.text() == f"{len(weak)} of 5000 frames"
+        assert [first for first, _ in model.fetched] == [0]
+        assert model.index(0, 0).data(KeyRole) == weak[0]
+        assert panel.ordered_ids() == weak
+        assert model.row_of(weak[-1]) == len(weak) - 1 and model.row_of(2) is None
+    finally:
         project.close()
