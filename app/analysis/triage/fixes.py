@@ -281,7 +281,9 @@ class FrameView:
         reasons += upright_body(pid, kp, sk, scale)
         reasons += off_ground(pid, kp, sk, scale, self.line)
         reasons += crossed_sides(pid, kp, sk, scale, self.maps)
-        if self.typical is not None:
+        # A weak limb weighs nothing in the present fit (app.analysis.triage.combine): its
+        # line integrals, most of this function's cost, would only add zeros.
+        if self.typical is not None and WEIGHTS["weak-limb"] != 0.0:
             support = limb_support(kp[None], sk, self.maps)[0]
             reasons += weak_limbs(pid, kp, sk, support, self.typical)
         best: dict[str, float] = {}
