@@ -208,27 +208,28 @@ def test_triage_holds_on_a_held_out_seed(tmp_path):
 @pytest.mark.slow
 def test_triage_and_fixes_on_the_choir(tmp_path):
     """The same measurement on the second scenario, a choir on stepped risers (synthetic;
-    app.demo.choir, seed 21, first 8 frames), kept out of every fit (triage's weights and the
+    app.demo.choir, seed 21, first 5 frames), kept out of every fit (triage's weights and the
     findings' calibration were fitted on dance and choir seeds 1-4); and the findings'
     accept-all figure there (judged joint by joint as in tests/demo/test_calibrate.py). The
     thresholds are the issue's goals (recall >= 0.85, precision >= 0.7; fixes losing <= 2 %
     of correct joints and removing >= 40 % of wrong ones) or, where the goal is missed, a
-    little below what was measured: 281 people, 157 wrong, 172 flagged, 141 of them wrong
-    (recall 0.898, precision 0.820); accepting every fix took wrong labelled joints from 661
-    to 417 (36.9 % removed: short of the goal on these frames) and correct ones from 3,350 to
-    3,369 (+0.6 %)."""
+    little below what was measured: 175 people, 100 wrong, 108 flagged, 88 of them wrong
+    (recall 0.880, precision 0.815); accepting every fix took wrong labelled joints from 419
+    to 276 (34.1 % removed: short of the goal on these frames) and correct ones from 2,067 to
+    2,088 (+1.0 %). On the first 8 frames (the test's length until it had to be shorter for
+    the suite's time): recall 0.898, precision 0.820, 36.9 % removed, +0.6 %."""
     from app.demo.calibrate import accept_all, demo_frames
 
     folder = tmp_path / "choir21"
-    generate(folder, seed=21, frames=8, scene="choir")
+    generate(folder, seed=21, frames=5, scene="choir")
     fig = measure(folder)
-    print(fig.report("choir seed 21, 8 frames"))
+    print(fig.report("choir seed 21, 5 frames"))
     assert fig.ours_agree
     assert fig.recall >= 0.85
     assert fig.precision >= 0.7
     figure = accept_all(demo_frames(folder), demo="choir seed 21")
     print(json.dumps(figure.to_dict(), indent=1))
-    assert figure.removed_share >= 0.35
+    assert figure.removed_share >= 0.32
     assert figure.correct_change >= -0.02
 
 

@@ -79,6 +79,7 @@ def test_judging_joints_agrees_with_pycocotools_and_scipy(frames, shipped):
         assert (ours == -1).any() and (ours == 1).any()
 
 
+@pytest.mark.slow
 def test_accepting_every_fix_removes_half_the_wrong_joints(frames):
     """The acceptance figure on the shipped demo (synthetic, seed 1966, not among the
     calibration seeds 1-8). Measured when written (README, "Findings"): 727 wrong labelled
