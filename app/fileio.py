@@ -260,8 +260,8 @@ def _plainly_finite(value: Any) -> bool:
             try:
                 if not isfinite(sum(v)):
                     return False
-            except TypeError:  # not all numbers: the full scan looks
-                return False
+            except (TypeError, OverflowError):  # not all numbers, or an integer beyond any
+                return False                     # float: the full scan looks
         elif kind is float:
             if not isfinite(v):
                 return False

@@ -158,3 +158,11 @@ def test_json_stream_reads_what_json_reads(tmp_path, monkeypatch):
         for key in stream.members():
             got[key] = list(stream.items(key)) if stream.is_array() else stream.value(key)
     assert got == data
+
+
+def test_an_integer_beyond_any_float_inside_a_list_is_left_to_the_full_scan():
+    """A list holding an integer too large for a float (JSON allows any length of digits)
+    must not raise out of the quick check of streamed records (hypothesis found it)."""
+    from app.fileio import _plainly_finite
+
+    assert _plainly_finite({"description": [10 ** 400]}) is False
