@@ -132,6 +132,8 @@ class _OverlayLayer:
         key = (canvas.frame.id, canvas.width(), canvas.height(), dpr,
                (t.m11(), t.m22(), t.dx(), t.dy()), repr(style), id(canvas.skeleton),
                tuple((q.id, np.asarray(q.keypoints).tobytes()) for q in people))
+        if moving is None:
+            self._under = self._under_key = None  # no drag: free what lay under the last one
         if key != self._key or self._image is None or self._layout is None:
             layout = None
             if dirty is not None and moving is not None and style.focus is None \
