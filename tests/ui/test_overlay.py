@@ -220,7 +220,7 @@ def _painted(people, style, **kw) -> bytes:
 
 
 @pytest.mark.parametrize("focused", [False, True])
-def test_painting_under_then_over_the_person_on_top_is_painting_it_whole(focused):
+def test_painting_under_then_over_the_person_on_top_is_painting_it_whole(qapp, focused):
     """The Canvas keeps what lies under a dragged person in a layer and paints the rest per
     move: the two parts together give the whole paint's pixels exactly, with regions, flags,
     a selection, difference marks and focus (synthetic people)."""
@@ -234,7 +234,7 @@ def test_painting_under_then_over_the_person_on_top_is_painting_it_whole(focused
     assert _painted(people, style, parts=("under", "over")) == _painted(people, style)
 
 
-def test_held_tags_stay_and_the_others_are_placed_around_them():
+def test_held_tags_stay_and_the_others_are_placed_around_them(qapp):
     """While a joint is dragged everybody else's tag keeps its place (given as
     ``held_tags``), and the dragged person's tag goes where it covers none of them
     (synthetic people)."""
