@@ -39,11 +39,12 @@ from typing import Any
 import numpy as np
 from scipy.optimize import linear_sum_assignment
 
-from app.analysis.carry import carry_changes
+from app.analysis.carry import CarriedBatch, by_person, carry_changes
 from app.analysis.similarity import oks_matrix
 from app.analysis.tracks import link_tracks
 from app.demo.evaluate import KS_CORRECT, judge_joints
 from app.model.edits import (
+    Change,
     DeletePerson,
     Edit,
     EditGroup,
@@ -206,7 +207,8 @@ def with_tracks(frames: Sequence[FrameLabels]) -> list[FrameLabels]:
 
 
 def count_actions(frames: Sequence[FrameLabels], truth: Sequence[np.ndarray],
-                  areas: Sequence[np.ndarray], demo: str = "") -> ActionCount:
+                  areas: Sequence[np.ndarray], demo: str = "",
+                  per: str = "person") -> ActionCount:
     """Actions to fix every wrong labelled joint of a sequence, frame by frame and with
     carrying forward (see the module docstring).
 
@@ -218,6 +220,11 @@ def count_actions(frames: Sequence[FrameLabels], truth: Sequence[np.ndarray],
         Per frame, the true poses ``(M, K, 3)`` and their areas ``(M,)``.
     demo
         A name for the row.
+    per
+        ``"person"``: once a frame is fixed, each person's corrections are carried as one
+        batch, each joint as far as its own error lasts (:func:`app.analysis.carry.by_person`);
+        ``"action"``: each action is carried alone, right after it, as far as all of it
+        lasts (the earlier way, kept for comparison).
     """
     wrong_before = sum(_wrong(f, t, a) for f, t, a in zip(frames, truth, areas, strict=True))
     plain = repeated = 0
@@ -233,31 +240,55 @@ def count_actions(frames: Sequence[FrameLabels], truth: Sequence[np.ndarray],
     corrections = batches = carried = 0
     for i in range(len(labels)):
         t, a = truth[i], areas[i]
+        made: list[Change] = []
         while corrections < MAX_ACTIONS * len(labels):
             edit = next_action(labels[i], t, a)
             if edit is None:
                 break
             labels[i], changes = edit.apply(labels[i])
             corrections += 1
-            batch = carry_changes(changes, labels, i)
-            staged: dict[int, FrameLabels] = {}
-            for group in batch.edits:
-                k = next(n for n, f in enumerate(labels) if f.frame_id == group.frame_id)
-                if k < i:
-                    continue  # frames already fixed: the error is absent there
-                after = _helps(group, labels[k], truth[k], areas[k])
-                if after is None:
-                    break
-                staged[k] = after
-            # A batch of one frame spares nothing (taking it is an action too): left alone.
-            if len(staged) >= MIN_BATCH:
-                for k, after in staged.items():
-                    labels[k] = after
-                batches += 1
-                carried += len(staged)
+            if per == "action":
+                taken = _take(carry_changes(changes, labels, i), labels, i, truth, areas)
+                batches += taken > 0
+                carried += taken
+            else:
+                made.extend(changes)
+        for relation in by_person(made) if per == "person" else ():
+            taken = _take(carry_changes(relation, labels, i, each_joint=True), labels, i,
+                          truth, areas)
+            batches += taken > 0
+            carried += taken
     left_carry = sum(_wrong(f, t, a) for f, t, a in zip(labels, truth, areas, strict=True))
     return ActionCount(demo, wrong_before, plain, corrections + batches, corrections, batches,
                        carried, left_plain, left_carry, repeated)
+
+
+def _take(batch: CarriedBatch, labels: list[FrameLabels], i: int,
+          truth: Sequence[np.ndarray], areas: Sequence[np.ndarray]) -> int:
+    """The annotator's look at a batch proposed from frame ``i``: its later frames taken in
+    order as far as each helps (:func:`_helps`), when that spares actions: at least
+    :data:`MIN_BATCH` frames, or one frame whose carried edits spare at least two of the
+    oracle's actions there (counted by fixing that frame with and without them). Applies
+    what is taken to ``labels``; returns the number of frames taken (0: left alone)."""
+    staged: dict[int, FrameLabels] = {}
+    for group in batch.edits:
+        k = next(n for n, f in enumerate(labels) if f.frame_id == group.frame_id)
+        if k < i:
+            continue  # frames already fixed: the error is absent there
+        after = _helps(group, labels[k], truth[k], areas[k])
+        if after is None:
+            break
+        staged[k] = after
+    if len(staged) < MIN_BATCH:
+        # Taking a batch is an action too: a short one is left alone unless it spares more.
+        spared = sum(len(_fix_frame(labels[k], truth[k], areas[k])[1])
+                     - len(_fix_frame(after, truth[k], areas[k])[1])
+                     for k, after in staged.items())
+        if spared < 2:
+            return 0
+    for k, after in staged.items():
+        labels[k] = after
+    return len(staged)
 
 
 def _helps(group: EditGroup, labels: FrameLabels, truth: np.ndarray,
@@ -352,13 +383,13 @@ def why_not_carried(frames: Sequence[FrameLabels], truth: Sequence[np.ndarray],
     return out
 
 
-def demo_count(folder: str | Path, demo: str = "") -> ActionCount:
+def demo_count(folder: str | Path, demo: str = "", per: str = "person") -> ActionCount:
     """:func:`count_actions` on a generated demo (built into a project the first time)."""
     from app.demo.calibrate import demo_frames
 
     frames = demo_frames(folder)
     return count_actions([f.labels for f in frames], [f.truth for f in frames],
-                         [f.areas for f in frames], demo)
+                         [f.areas for f in frames], demo, per)
 
 
 def format_table(rows: Sequence[ActionCount]) -> str:
@@ -383,6 +414,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser.add_argument("--cache", default="/tmp/posewright-demos",
                         help="where demos are generated (once)")
     parser.add_argument("--json", action="store_true")
+    parser.add_argument("--per", choices=("person", "action"), default="person",
+                        help="carry each person's corrections once a frame is fixed (the "
+                             "default), or each action alone as it is made")
     parser.add_argument("--why", action="store_true",
                         help="instead, why each frame-by-frame action is or is not carried")
     args = parser.parse_args(argv)
@@ -406,7 +440,8 @@ def main(argv: Sequence[str] | None = None) -> int:
             print(f"| {reason} | {n:,} | {n / max(total, 1):.0%} |")
         print(f"| all | {total:,} | |")
         return 0
-    rows = [demo_count(demo_folder(args.cache, seed), name) for name, seed in targets]
+    rows = [demo_count(demo_folder(args.cache, seed), name, args.per)
+            for name, seed in targets]
     seeds = [r for r, (_, seed) in zip(rows, targets, strict=True) if seed is not None]
     total = ActionCount(f"**seeds {args.seeds}**", *(sum(getattr(r, f) for r in seeds) for f in (
         "wrong_before", "frame_by_frame", "carrying", "corrections", "batches",
