@@ -9,7 +9,13 @@ import pytest
 
 from app.analysis.carry import by_person, carry_changes
 from app.cli import main
-from app.jobs_tracks import link_project, propose_carry, sequence_labels, take_batch
+from app.jobs_tracks import (
+    link_project,
+    person_changes,
+    propose_carry,
+    sequence_labels,
+    take_batch,
+)
 from app.model import MoveJoint, ReassignJoint, SwapSides
 from app.model.skeleton import coco_body
 from app.store import Project
@@ -188,3 +194,25 @@ def test_people_corrected_apart_are_separate_relations():
     truth = sequences.dancers()
     frames[3], more = MoveJoint(4, pid(3, 2), 0, *(truth[3, 2, 0, :2] + 1)).apply(frames[3])
     assert [len(r) for r in by_person(made + more)] == [len(made), len(more)]
+
+
+def test_the_app_carries_a_persons_whole_correction_in_the_frame(tmp_path):
+    """In a project: after the wrist is given back and then the elbow put back in frame 4,
+    the proposal from the newest correction (the elbow) carries both, each joint as far as
+    its error lasts; an undone correction is no longer part of it; the earlier way (the
+    action alone) stops where the elbow comes right."""
+    project, _ = sequences.make_project(tmp_path, _one_person_two_errors())
+    truth = sequences.dancers()
+    with project:
+        link_project(project)
+        project.apply(ReassignJoint(4, pid(3, 1), WRIST, pid(3, 0)))
+        elbow = project.apply(MoveJoint(4, pid(3, 0), ELBOW, *truth[3, 0, ELBOW, :2]))
+        batch = propose_carry(project, 4, elbow.changes)
+        assert ([g.frame_id for g in batch.edits], batch.stopped_forward) == ([5, 6, 7], 8)
+        alone = propose_carry(project, 4, elbow.changes, whole_person=False)
+        assert [g.frame_id for g in alone.edits] == [5]
+        project.undo()  # the elbow
+        project.apply(MoveJoint(4, pid(3, 2), 0, *truth[3, 2, 0, :2]))  # another person
+        wrist = person_changes(project, 4, [pid(3, 0)])
+        assert {(c.target.person, c.target.joint) for c in wrist} == {
+            (pid(3, 0), WRIST), (pid(3, 1), WRIST)}
