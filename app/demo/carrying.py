@@ -392,6 +392,84 @@ def demo_count(folder: str | Path, demo: str = "", per: str = "person") -> Actio
                          [f.areas for f in frames], demo, per)
 
 
+@dataclass(frozen=True)
+class Persistence:
+    """How long the auto-labels' wrong joints last on a demo (:func:`persistence`)."""
+
+    demo: str
+    #: Wrong labelled joints whose dancer is labelled in the next frame too.
+    wrong: int
+    #: Of those, the same joint of the same dancer wrong in the next frame.
+    same_joint_next: int
+    #: Of those, some joint of the same dancer wrong in the next frame.
+    same_dancer_next: int
+    #: Runs of consecutive frames a dancer's joint is wrong, and their frames in all.
+    runs: int
+    run_frames: int
+
+    @property
+    def joint_share(self) -> float:
+        return self.same_joint_next / max(self.wrong, 1)
+
+    @property
+    def dancer_share(self) -> float:
+        return self.same_dancer_next / max(self.wrong, 1)
+
+    @property
+    def mean_run(self) -> float:
+        return self.run_frames / max(self.runs, 1)
+
+
+def _truth_tracks(folder: Path) -> list[list[int]]:
+    """Per frame of :func:`app.demo.calibrate.demo_frames`, the true poses' ``track_id``s in
+    the order of its truth arrays."""
+    from app.fileio import read_json
+    from app.jobs import SOURCES_NAME
+    from app.store.project import Project
+
+    sources = read_json(folder / SOURCES_NAME, "the project sources")
+    truth = read_json(folder / sources["truth"], "the true poses")
+    image_of = {im["file_name"]: im["id"] for im in truth["images"]}
+    by_image: dict[int, list[int]] = {}
+    for ann in truth["annotations"]:
+        by_image.setdefault(ann["image_id"], []).append(int(ann.get("track_id", -1)))
+    with Project.open(folder, read_only=True) as project:
+        return [by_image.get(image_of[Path(f.file_name).name], []) for f in project.frames()]
+
+
+def persistence(folder: str | Path, demo: str = "") -> Persistence:
+    """How the wrong joints of a demo's auto-labels last from frame to frame, per true dancer
+    (``track_id``) and joint, wrong as :func:`app.demo.evaluate.judge_joints` judges: what
+    bounds carrying, since a correction is carried only to frames where its error shows."""
+    from app.demo.calibrate import demo_frames
+
+    folder = Path(folder)
+    frames = demo_frames(folder)
+    ids = _truth_tracks(folder)
+    wrong_at: list[dict[int, set[int]]] = []
+    for f, tracks in zip(frames, ids, strict=True):
+        order, verdict = _judge(f.labels, f.truth, f.areas)
+        pairs = _pairs(f.labels, order, f.truth, f.areas)
+        here: dict[int, set[int]] = {tid: set() for tid in tracks}
+        for n, p in enumerate(order):
+            if p in pairs:
+                here[tracks[pairs[p]]] |= set(np.flatnonzero(verdict[n] == -1).tolist())
+        wrong_at.append(here)
+    wrong = joint = dancer = runs = run_frames = 0
+    for t, here in enumerate(wrong_at):
+        after = wrong_at[t + 1] if t + 1 < len(wrong_at) else {}
+        before = wrong_at[t - 1] if t else {}
+        for tid, joints in here.items():
+            run_frames += len(joints)
+            runs += len(joints - before.get(tid, set()))
+            if tid not in after:
+                continue
+            wrong += len(joints)
+            joint += len(joints & after[tid])
+            dancer += len(joints) if after[tid] else 0
+    return Persistence(demo, wrong, joint, dancer, runs, run_frames)
+
+
 def format_table(rows: Sequence[ActionCount]) -> str:
     """The README's table, as Markdown."""
     lines = ["| demo | wrong joints | actions frame by frame | of which repeat the frame "
@@ -417,12 +495,23 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser.add_argument("--per", choices=("person", "action"), default="person",
                         help="carry each person's corrections once a frame is fixed (the "
                              "default), or each action alone as it is made")
+    parser.add_argument("--persistence", action="store_true",
+                        help="instead, how long the auto-labels' wrong joints last")
     parser.add_argument("--why", action="store_true",
                         help="instead, why each frame-by-frame action is or is not carried")
     args = parser.parse_args(argv)
     targets: list[tuple[str, int | None]] = [(f"seed {s}", s) for s in _seeds(args.seeds)]
     if args.shipped:
         targets.insert(0, ("shipped (seed 1966)", None))
+    if args.persistence:
+        print("| demo | wrong joints (dancer seen next frame) | same joint wrong next frame | "
+              "some joint of the dancer wrong next frame | mean run of a wrong joint |\n"
+              "|---|---:|---:|---:|---:|")
+        for name, seed in targets:
+            r = persistence(demo_folder(args.cache, seed), name)
+            print(f"| {name} | {r.wrong:,} | {r.joint_share:.0%} | {r.dancer_share:.0%} | "
+                  f"{r.mean_run:.2f} frames |")
+        return 0
     if args.why:
         from app.demo.calibrate import demo_frames
 
