@@ -13,14 +13,24 @@ takes one action at a time (:func:`next_action`), each one edit of the app:
    :class:`~app.model.edits.ReassignJoint`, which hands the wrong one back), else place it at
    the dancer's joint, or mark it unlabeled when the dancer's joint is not labelled.
 
-*Frame by frame* counts every such action. *With carrying*, after each action the
-correction is carried forward (:func:`app.analysis.carry.carry_changes`, the people linked
-into tracks by :func:`app.analysis.tracks.link_tracks` first); the annotator looks at the
-batch and takes it as far as it helps (each carried frame's edits remove a wrong joint, add
-none and lose no correct one; the first frame where they do not is where the batch is
-trimmed), which is one more action, when it spans at least :data:`MIN_BATCH` frames (a batch
-of one frame spares nothing; it is left alone and the frame fixed when its turn comes). Frames
-later in the dance then start with fewer errors.
+*Frame by frame* counts every such action. *With carrying*, once the oracle has fixed a
+frame, each person's corrections there (:func:`app.analysis.carry.by_person`: every change
+made to a person, with those of the people it exchanged joints with) are carried forward as
+one batch (:func:`app.analysis.carry.carry_changes` with ``each_joint``: each joint as far as
+its own error lasts), the people linked into tracks by :func:`app.analysis.tracks.link_tracks`
+first, as the app proposes them (:func:`app.jobs_tracks.propose_carry`). The annotator looks
+at the batch and takes it as far as it helps (each carried frame's edits remove a wrong
+joint, add none and lose no correct one; the first frame where they do not is where the batch
+is trimmed), which is one more action, when that spares actions: a batch over at least
+:data:`MIN_BATCH` frames, or over one frame whose edits spare at least two of the oracle's
+actions there (a batch that spares one action costs one; it is left alone and the frame fixed
+when its turn comes). Frames later in the dance then start with fewer errors. With
+``per="action"`` (``--per action``) each action is carried alone right after it, as far as
+all of it lasts: the earlier way, kept for comparison.
+
+:func:`persistence` (``--persistence``) says how long the auto-labels' wrong joints last from
+frame to frame, which bounds what any carrying can spare: a correction is carried only to
+frames where its error shows.
 
 ``python -m app.demo.carrying --seeds 31-33 --shipped --cache /tmp/demos`` prints the table
 of the README's "Sequences" section.
