@@ -61,6 +61,19 @@ frame instead of staying there while the dancers stayed tangled. On any one fram
 value is distributed as a fresh draw is, so the share of frames showing each error, the
 calibrated rates below, is unchanged.
 
+What the runs become in the labels. The grouping of these maps does not keep an error for as
+long as the network holds it: the dancers move between frames, and a held wrong peak wins
+the grouping on some frames and loses to the right one on others. On demo seeds 61-66 a wrong
+labelled joint (:func:`app.demo.evaluate.judge_joints`) is wrong again on the next frame, on
+the same dancer, in 28-51 % of cases, and its runs last 1.4-2.0 frames on average, against
+the 4 frames the network holds each error; a dancer with a wrong joint has some wrong joint on
+the next frame in 70-81 % of cases (``python -m app.demo.carrying --persistence``). That is
+what bounds carrying a correction forward (the README's "Sequences"). We have measured no real
+network on real footage, so whether a real model's labelled errors last longer is not known
+here; the mean runs were chosen before carrying was measured and were not changed to meet its
+goal (with every mean run doubled, as a check only, wrong joints were wrong again on the next
+frame in 57-62 % of cases).
+
 The error model is our own (no published source); it is meant to look like network output to
 the grouping and to a person reading the maps, not to reproduce a particular network.
 """
