@@ -465,6 +465,17 @@ def persistence(folder: str | Path, demo: str = "") -> Persistence:
             if p in pairs:
                 here[tracks[pairs[p]]] |= set(np.flatnonzero(verdict[n] == -1).tolist())
         wrong_at.append(here)
+    return runs_of(wrong_at, demo)
+
+
+def runs_of(wrong_at: Sequence[dict[int, set[int]]], demo: str = "") -> Persistence:
+    """:class:`Persistence` from, per frame, each dancer's wrong joints (dancer -> joints;
+    a dancer absent from a frame has no entry).
+
+    >>> r = runs_of([{1: {9}}, {1: {9, 10}}, {1: set()}, {1: {9}}])
+    >>> (r.wrong, r.same_joint_next, r.same_dancer_next, r.runs, r.run_frames)
+    (3, 1, 1, 3, 4)
+    """
     wrong = joint = dancer = runs = run_frames = 0
     for t, here in enumerate(wrong_at):
         after = wrong_at[t + 1] if t + 1 < len(wrong_at) else {}
