@@ -10,6 +10,13 @@ on, stopping at the first frame where the error is absent. The same runs backwar
 ``t - 1``. What is proposed is one batch, for the annotator to take, trim or leave with one
 key (:meth:`app.store.project.Project.apply_batch` applies it as one undo step).
 
+What the app and ``posewright carry`` carry is a person's whole correction: every change in
+effect made in that frame to the people the newest correction touched (and to the people they
+exchanged joints with; :func:`by_person` splits a frame's changes so), with ``each_joint``:
+each joint, with the joint it was exchanged with, and a side swap as a whole, is carried as
+far as its own error lasts, since a person's wrong joints seldom come right on the same frame;
+the batch ends at the first frame where none of them shows.
+
 Each changed joint ``(P, j)`` of the correction is one of
 
 - a *copy*: its new value is the old value of a joint ``(Q, k)`` the correction also changed
