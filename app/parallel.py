@@ -22,6 +22,7 @@ from __future__ import annotations
 import logging
 import multiprocessing
 import os
+import threading
 import time
 from collections import deque
 from collections.abc import Callable, Generator, Iterable, Iterator
@@ -31,7 +32,8 @@ from typing import Any, TypeVar
 from app.errors import BadInput
 from app.progress import Progress
 
-__all__ = ["POOL_START_SECONDS", "WORKERS_ENV", "check_workers", "default_workers", "ordered_map"]
+__all__ = ["POOL_START_SECONDS", "PRELOAD", "WORKERS_ENV", "check_workers", "default_workers",
+           "ordered_map"]
 
 log = logging.getLogger(__name__)
 
@@ -48,6 +50,13 @@ R = TypeVar("R")
 #: sits between: 96 frames of maps (16 ms each, 0.75 s to save) stay here, 96 frames of
 #: training targets (28 ms each, 1.3 s to save) go to the workers.
 POOL_START_SECONDS = 1.0
+
+#: What a pool costs to start once this process's fork server is up, in seconds (MEASURE).
+_WARM_START_SECONDS = 0.2
+
+#: Modules the fork server imports once, before it forks any worker, so that no worker
+#: imports the app again: those whose functions the batch jobs hand to the workers.
+PRELOAD = ("app.jobs_analysis", "app.inference.prelabel")
 
 #: How long the first items run in this process, timed, before a pool is considered, in
 #: seconds. Two items at least are timed and the first is left out of the estimate when
@@ -159,7 +168,7 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
         here[0](*here[1])
     elif initializer is not None:
         initializer(*initargs)
-    start_cost = POOL_START_SECONDS + (time.perf_counter() - t0)  # workers set up too
+    start_cost = _start_cost() + (time.perf_counter() - t0)  # workers set up too
     upcoming = iter(items)
     done = 0
     first = 0.0  # the time of the first item
@@ -184,54 +193,176 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
         if workers > 1:
             log.debug("%s: all %d items here, a pool would not pay", label or "job", total)
         return
-    yield from _pooled(fn, upcoming, done, total, min(workers, total - done), progress, label,
-                       initializer, initargs)
+    yield from _alongside(fn, upcoming, done, total, min(workers, total - done), progress,
+                          label, initializer, initargs)
 
 
 def _pool_pays(per_item: float, left: int, workers: int, start_cost: float) -> bool:
-    """Whether ``left`` items of ``per_item`` seconds each end sooner on ``workers`` pool
-    processes than here, the pool's ``start_cost`` included.
+    """Whether a pool started now, while this process goes on with the items, gets any of
+    the ``left`` items of ``per_item`` seconds each: they must outlast the pool's
+    ``start_cost``, and there must be more than one to share.
+
+    The pool starts on a thread of this process and this process keeps working meanwhile,
+    so the start costs the job no time of its own (only a core that would otherwise be idle
+    on it); what the workers save is half (on two) of what is left once they are up.
 
     Examples
     --------
-    >>> _pool_pays(0.016, 94, 2, 1.0)  # 96 frames of maps: 0.75 s saved, 1 s to start
+    >>> _pool_pays(0.016, 94, 2, 1.0)  # 96 frames of maps, first pool: 1.5 s of work left
+    True
+    >>> _pool_pays(0.016, 40, 2, 1.0)  # 0.64 s left: done before the pool is up
     False
-    >>> _pool_pays(0.2, 94, 2, 1.0)  # 96 frames of triage: 9.4 s saved
+    >>> _pool_pays(0.2, 94, 2, 0.2)  # 96 frames of triage, the fork server already up
     True
     """
-    workers = min(workers, left)
-    if workers <= 1:
+    if min(workers, left) <= 1:
         return False
-    return left * per_item * (1.0 - 1.0 / workers) > start_cost
+    return left * per_item > start_cost
 
 
 _END = object()
 
 
-def _pooled(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: int, workers: int,
-            progress: Progress, label: str, initializer: Callable[..., Any] | None,
-            initargs: tuple[Any, ...]) -> Iterator[R]:
-    """The items left in ``upcoming`` (``done`` of ``total`` already taken) on a pool."""
-    context = multiprocessing.get_context(
-        "forkserver" if "forkserver" in multiprocessing.get_all_start_methods() else "spawn")
-    pool = ProcessPoolExecutor(workers, mp_context=context,
-                               initializer=initializer, initargs=initargs)
-    pending: deque[Future[R]] = deque()
+def _ready() -> int:
+    """Nothing, run once by each new worker so that the pool counts as up once it returns."""
+    return os.getpid()
+
+
+def _context() -> multiprocessing.context.BaseContext:
+    """The fork server's context, with :data:`PRELOAD` imported by the server (only the
+    server pays the imports; each worker forks from it with them done), else spawn's."""
+    if "forkserver" not in multiprocessing.get_all_start_methods():
+        return multiprocessing.get_context("spawn")
+    context = multiprocessing.get_context("forkserver")
+    context.set_forkserver_preload(list(PRELOAD))  # taken when the server starts
+    return context
+
+
+class _Pool:
+    """A process pool started on a thread of its own, so the caller keeps working meanwhile.
+
+    Each process is warmed by one call of :func:`_ready` (which waits for its
+    ``initializer`` too); :attr:`up` is set once they have all answered, or once starting
+    failed (:attr:`error`), in which case the caller does the work itself.
+    """
+
+    def __init__(self, workers: int, initializer: Callable[..., Any] | None,
+                 initargs: tuple[Any, ...]):
+        self.workers = workers
+        self.executor: ProcessPoolExecutor | None = None
+        self.error: BaseException | None = None
+        self.up = threading.Event()
+        self.seconds = 0.0  # from the request to the last warm-up answer
+        self._lock = threading.Lock()
+        self._dropped = False
+        self._t0 = time.perf_counter()
+        self._thread = threading.Thread(target=self._start, args=(initializer, initargs),
+                                        name="posewright-pool-start")
+        self._thread.start()
+        if not _START_ALONGSIDE:
+            self._thread.join()
+
+    def _start(self, initializer: Callable[..., Any] | None, initargs: tuple[Any, ...]) -> None:
+        global _server_started
+        try:
+            self.executor = ProcessPoolExecutor(self.workers, mp_context=_context(),
+                                                initializer=initializer, initargs=initargs)
+            warm = [self.executor.submit(_ready) for _ in range(self.workers)]
+            _server_started = True
+            for future in warm:
+                future.result()
+        except BaseException as exc:  # told to the caller, who then works alone
+            self.error = exc
+        with self._lock:
+            self.seconds = time.perf_counter() - self._t0
+            self.up.set()
+            dropped = self._dropped
+        if dropped:
+            self._shutdown()
+
+    def close(self) -> None:
+        """Stop the workers (items not started are dropped, running ones end); a pool still
+        starting is stopped by its own thread once up, so this never waits for a start."""
+        with self._lock:
+            if not self.up.is_set():
+                self._dropped = True
+                return
+        self._shutdown()
+
+    def _shutdown(self) -> None:
+        if self.executor is not None:
+            self.executor.shutdown(wait=True, cancel_futures=True)
+
+
+#: Whether the caller works while the pool starts; tests turn it off so that the pool is up
+#: before the first item is shared out, whatever the machine's load.
+_START_ALONGSIDE = True
+
+#: Whether this process has started a fork server (it then lives as long as the process).
+_server_started = False
+
+
+def _start_cost() -> float:
+    """What a pool started now would take to answer, by what this process has done before."""
+    return _WARM_START_SECONDS if _server_started else POOL_START_SECONDS
+
+
+def _alongside(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: int, workers: int,
+               progress: Progress, label: str, initializer: Callable[..., Any] | None,
+               initargs: tuple[Any, ...]) -> Iterator[R]:
+    """The items left in ``upcoming`` (``done`` of ``total`` already taken): this process
+    goes on with them while a pool of ``workers - 1`` processes starts, then shares them
+    with it, so ``workers`` processes compute in all."""
+    pool = _Pool(workers - 1, initializer, initargs)
+    pending: deque[tuple[Future[R], bool]] = deque()  # in the items' order; True: on the pool
+    on_pool = 0
+    told = False
+    ahead = 2 * workers  # items taken and not yet yielded, at most (besides the pool's)
+    exhausted = False
     try:
-        for item in upcoming:
-            pending.append(pool.submit(fn, item))
-            if len(pending) >= 2 * workers:
-                break
-        for n in range(done, total):
-            progress.step(n, total, label)
-            head = pending.popleft()
-            while not wait([head], timeout=_POLL_SECONDS, return_when=FIRST_COMPLETED).done:
+        while True:
+            if pool.up.is_set() and pool.error is None and pool.executor is not None:
+                if not told:
+                    told = True
+                    log.debug("%s: pool of %d up after %.2f s, at item %d of %d", label or "job",
+                              pool.workers, pool.seconds, done + len(pending), total)
+                while not exhausted and on_pool < 2 * pool.workers:
+                    item = next(upcoming, _END)
+                    if item is _END:
+                        exhausted = True
+                        break
+                    pending.append((pool.executor.submit(fn, item), True))
+                    on_pool += 1
+            elif pool.up.is_set() and not told:
+                told = True
+                log.warning("%s: the worker processes did not start (%s); going on in this one",
+                            label or "job", pool.error)
+            if pending and pending[0][0].done():
+                head, remote = pending.popleft()
+                on_pool -= remote
+                progress.step(done, total, label)
+                result = head.result()
+                done += 1
+                yield result
+                continue
+            if not exhausted and len(pending) - on_pool < ahead:
                 if progress.cancelled:
-                    progress.step(n, total, label)  # raises Cancelled
-            result = head.result()
-            for item in upcoming:
-                pending.append(pool.submit(fn, item))
-                break
-            yield result
+                    progress.step(done, total, label)  # raises Cancelled
+                item = next(upcoming, _END)
+                if item is _END:
+                    exhausted = True
+                    continue
+                here: Future[R] = Future()
+                try:
+                    here.set_result(fn(item))  # type: ignore[arg-type]
+                except Exception as exc:  # raised again at its turn, after earlier results
+                    here.set_exception(exc)
+                pending.append((here, False))
+                continue
+            if not pending:
+                return
+            wait([pending[0][0]], timeout=_POLL_SECONDS, return_when=FIRST_COMPLETED)
+            if progress.cancelled:
+                progress.step(done, total, label)  # raises Cancelled
     finally:
-        pool.shutdown(wait=True, cancel_futures=True)
+        pool.close()

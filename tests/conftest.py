@@ -105,10 +105,12 @@ def coco_file(tmp_path: Path, image_dir: Path) -> Path:
 
 @pytest.fixture
 def free_pool(monkeypatch: pytest.MonkeyPatch) -> None:
-    """Worker pools cost nothing to start and the first items are not timed for long, so
-    even a test's tiny job goes to the workers (app/parallel.py runs short jobs in the
-    calling process)."""
+    """Worker pools cost nothing to start, the first items are not timed for long and a pool
+    is up before any item is shared out, so even a test's tiny job goes to the workers
+    (app/parallel.py runs short jobs in the calling process, and works while a pool starts)."""
     from app import parallel
 
     monkeypatch.setattr(parallel, "POOL_START_SECONDS", 0.0)
+    monkeypatch.setattr(parallel, "_WARM_START_SECONDS", 0.0)
+    monkeypatch.setattr(parallel, "_START_ALONGSIDE", False)
     monkeypatch.setattr(parallel, "_PROBE_SECONDS", 0.0)

@@ -125,11 +125,13 @@ def test_a_short_job_stays_in_this_process():
 
 
 def test_a_long_job_moves_to_the_workers_after_the_first_items(free_pool):
-    """When a pool pays, the first items (timed here) run in this process and the rest on
-    the workers, still in order."""
+    """When a pool pays, the first items (timed here) run in this process and the rest are
+    shared between it and the pool's one process (two workers: this one and one more), the
+    pool's first two before any run here, still in order."""
     pids = list(ordered_map(_pid, range(20), workers=2))
     assert pids[:2] == [os.getpid()] * 2
-    assert os.getpid() not in pids[2:]
+    assert os.getpid() not in pids[2:4]
+    assert len(set(pids)) == 2
 
 
 def test_worker_counts_are_checked(monkeypatch):
