@@ -8,13 +8,21 @@ single writer and every job stays all or nothing. Results come back in the order
 items, whatever the number of workers, so a job's output is the same with one worker or
 many.
 
-One worker runs everything in the calling process, without a pool. So does a short job:
-starting a pool costs a second or more (the fork server and each worker import the app), more
-than a job of a few seconds saves on two cores. The first items run here, timed, and the rest
-go to a pool only once the time the other workers would save on them exceeds that start-up
-cost (see :data:`POOL_START_SECONDS`), which the log tells at debug level. Workers are started by a
-fork server (a fresh interpreter that forks them, so the threads of the app or of a database
-pool are never copied) where the system has one, else spawned.
+One worker runs everything in the calling process, without a pool. With more, the first
+items still run here, timed (see :data:`_PROBE_SECONDS`); once the items left would outlast
+starting a pool (see :data:`POOL_START_SECONDS`), a thread of this process starts one of
+``workers - 1`` processes while this process goes on with the items, and as soon as the pool
+has answered, the items are shared: the pool gets a few at a time, this process computes the
+next ones itself while it waits, and the results still come out in order. So N workers are
+this process and N - 1 others, starting them costs the job no time of its own, and a job
+that ends before the pool is up simply ends (the pool, once up, is stopped by its thread).
+The log tells at debug level where a job ran and when the pool was up.
+
+Workers are started by a fork server (a fresh interpreter that forks them, so the threads
+of the app or of a database pool are never copied) where the system has one, else spawned.
+The fork server imports :data:`PRELOAD` (the batch jobs' modules, hence the app, numpy and
+OpenCV) once, when this process starts its first pool; every worker is then a fork of it
+that imports nothing more, so a later pool is up in a fraction of a second.
 """
 
 from __future__ import annotations

@@ -142,3 +142,48 @@ def test_worker_counts_are_checked(monkeypatch):
         check_workers(None)
     monkeypatch.delenv("POSEWRIGHT_WORKERS")
     assert check_workers(None) >= 1
+
+
+def test_the_fork_server_preloads_every_batch_jobs_module():
+    """Each function the batch jobs hand to the workers lives in a module the fork server
+    imports before forking them, so no worker imports the app again."""
+    from app.inference.prelabel import _prelabel_one
+    from app.jobs_analysis import _group_maps, _triage_one, _write_targets
+    from app.parallel import PRELOAD
+
+    for fn in (_group_maps, _triage_one, _write_targets, _prelabel_one):
+        assert fn.__module__ in PRELOAD
+
+
+def test_a_cancel_while_the_pool_starts_stops_at_once(monkeypatch):
+    """A cancel request that comes while the pool is still starting (or just up: either way)
+    raises Cancelled at the next item; the pool's own thread stops it once it is up."""
+    from app import parallel
+
+    monkeypatch.setattr(parallel, "POOL_START_SECONDS", 0.0)
+    monkeypatch.setattr(parallel, "_WARM_START_SECONDS", 0.0)
+    monkeypatch.setattr(parallel, "_PROBE_SECONDS", 0.0)
+    stop = threading.Event()
+    seen = []
+
+    def tell(done, total, label):
+        seen.append(done)
+        if done == 3:
+            stop.set()
+
+    with pytest.raises(Cancelled):
+        list(ordered_map(_cube, range(100), workers=2, progress=Progress(tell, stop)))
+    assert seen[:4] == [0, 1, 2, 3] and max(seen) == 3
+
+
+def test_a_pool_that_cannot_start_leaves_the_work_here(free_pool, monkeypatch, caplog):
+    """When the worker processes cannot be started, this process does every item, in order,
+    and says so in the log."""
+    from app import parallel
+
+    def refuse():
+        raise OSError("no processes to be had")
+
+    monkeypatch.setattr(parallel, "_context", refuse)
+    assert list(ordered_map(_pid, range(10), workers=2)) == [os.getpid()] * 10
+    assert "did not start" in caplog.text
