@@ -171,6 +171,8 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
     if total is None:
         total = len(items)  # type: ignore[arg-type]
     initargs = tuple(initargs)
+    if workers > 1 and total > 2 * workers:
+        _start_server()  # imports while this process sets up and times the first items
     t0 = time.perf_counter()
     if here is not None:
         here[0](*here[1])
@@ -271,12 +273,13 @@ class _Pool:
             self._thread.join()
 
     def _start(self, initializer: Callable[..., Any] | None, initargs: tuple[Any, ...]) -> None:
-        global _server_started
+        global _server_since
         try:
             self.executor = ProcessPoolExecutor(self.workers, mp_context=_context(),
                                                 initializer=initializer, initargs=initargs)
             warm = [self.executor.submit(_ready) for _ in range(self.workers)]
-            _server_started = True
+            if _server_since is None:
+                _server_since = self._t0
             for future in warm:
                 future.result()
         except BaseException as exc:  # told to the caller, who then works alone
@@ -306,13 +309,36 @@ class _Pool:
 #: before the first item is shared out, whatever the machine's load.
 _START_ALONGSIDE = True
 
-#: Whether this process has started a fork server (it then lives as long as the process).
-_server_started = False
+#: When this process started its fork server (``time.perf_counter()``), if it has: the server
+#: lives as long as the process, and is ready about :data:`POOL_START_SECONDS` after its start.
+_server_since: float | None = None
+
+
+def _start_server() -> None:
+    """Start this process's fork server now, if it has none, without waiting for it: it
+    imports :data:`PRELOAD` on a core of its own while the job begins here."""
+    global _server_since
+    if _server_since is not None:
+        return
+    context = _context()
+    if context.get_start_method() != "forkserver":
+        return
+    try:
+        from multiprocessing import forkserver
+
+        forkserver.ensure_running()
+    except OSError as exc:  # the pool will try again, and say so if it fails
+        log.debug("fork server not started: %s", exc)
+        return
+    _server_since = time.perf_counter()
 
 
 def _start_cost() -> float:
-    """What a pool started now would take to answer, by what this process has done before."""
-    return _WARM_START_SECONDS if _server_started else POOL_START_SECONDS
+    """What a pool started now would take to answer, by what this process has done before:
+    the rest of its fork server's start, or at least :data:`_WARM_START_SECONDS`."""
+    if _server_since is None:
+        return POOL_START_SECONDS
+    return max(_WARM_START_SECONDS, POOL_START_SECONDS - (time.perf_counter() - _server_since))
 
 
 def _alongside(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: int, workers: int,
