@@ -51,16 +51,19 @@ WORKERS_ENV = "POSEWRIGHT_WORKERS"
 T = TypeVar("T")
 R = TypeVar("R")
 
-#: What starting a pool costs before its first result, in seconds: the workers importing the
-#: app (and, for a process's first pool, the fork server starting). Measured on the 2-core
-#: development machine with ``ordered_map`` over six trivial items on two workers: 0.74-0.84 s
-#: quiet (load 1.4, fork server already up), 1.6-2.5 s for a first pool at load 3. One second
-#: sits between: 96 frames of maps (16 ms each, 0.75 s to save) stay here, 96 frames of
-#: training targets (28 ms each, 1.3 s to save) go to the workers.
+#: What a process's first pool costs before its first result, in seconds: the fork server
+#: starting and importing :data:`PRELOAD`. From asking for a pool of one to its first result
+#: (a function of the batch jobs' module): 0.80-1.25 s at load 7.7 (2 December 2026), as
+#: before the preload (0.80-0.94 s, when each worker imported the app itself). A pool pays
+#: when the items left take twice this (:func:`_pool_pays`): 96 frames of maps (16 ms each)
+#: stay here, 96 frames of training targets (about 30 ms each) and of triage go to a pool.
 POOL_START_SECONDS = 1.0
 
-#: What a pool costs to start once this process's fork server is up, in seconds (MEASURE).
-_WARM_START_SECONDS = 0.2
+#: What a pool costs to start once this process's fork server is up, in seconds: the fork
+#: server forks a worker that imports nothing. From asking for a pool of one to that worker's
+#: first result, 0.01-0.03 s at load 7.7 (2 December 2026; a first pool: 0.80-1.25 s, and
+#: before the fork server preloaded the app, 0.66-0.79 s for every pool after the first).
+_WARM_START_SECONDS = 0.1
 
 #: Modules the fork server imports once, before it forks any worker, so that no worker
 #: imports the app again: those whose functions the batch jobs hand to the workers.
@@ -171,8 +174,6 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
     if total is None:
         total = len(items)  # type: ignore[arg-type]
     initargs = tuple(initargs)
-    if workers > 1 and total > 2 * workers:
-        _start_server()  # imports while this process sets up and times the first items
     t0 = time.perf_counter()
     if here is not None:
         here[0](*here[1])
@@ -208,26 +209,28 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
 
 
 def _pool_pays(per_item: float, left: int, workers: int, start_cost: float) -> bool:
-    """Whether a pool started now, while this process goes on with the items, gets any of
-    the ``left`` items of ``per_item`` seconds each: they must outlast the pool's
+    """Whether a pool started now, while this process goes on with the items, pays: the
+    ``left`` items of ``per_item`` seconds each must take at least twice the pool's
     ``start_cost``, and there must be more than one to share.
 
     The pool starts on a thread of this process and this process keeps working meanwhile,
-    so the start costs the job no time of its own (only a core that would otherwise be idle
-    on it); what the workers save is half (on two) of what is left once they are up.
+    so the start costs the job little time of its own; but the start takes CPU (the fork
+    server importing the app), which on a busy machine is taken from this process, and the
+    workers only save a share of what is left once they are up. Twice the start leaves at
+    least half the work to share.
 
     Examples
     --------
     >>> _pool_pays(0.016, 94, 2, 1.0)  # 96 frames of maps, first pool: 1.5 s of work left
-    True
-    >>> _pool_pays(0.016, 40, 2, 1.0)  # 0.64 s left: done before the pool is up
     False
-    >>> _pool_pays(0.2, 94, 2, 0.2)  # 96 frames of triage, the fork server already up
+    >>> _pool_pays(0.03, 94, 2, 1.0)  # 96 frames of training targets, first pool: 2.8 s
+    True
+    >>> _pool_pays(0.016, 94, 2, 0.1)  # 96 frames of maps, the fork server already up
     True
     """
     if min(workers, left) <= 1:
         return False
-    return left * per_item > start_cost
+    return left * per_item > 2.0 * start_cost
 
 
 _END = object()
@@ -310,27 +313,8 @@ class _Pool:
 _START_ALONGSIDE = True
 
 #: When this process started its fork server (``time.perf_counter()``), if it has: the server
-#: lives as long as the process, and is ready about :data:`POOL_START_SECONDS` after its start.
+#: lives as long as the process, and is up about :data:`POOL_START_SECONDS` after its start.
 _server_since: float | None = None
-
-
-def _start_server() -> None:
-    """Start this process's fork server now, if it has none, without waiting for it: it
-    imports :data:`PRELOAD` on a core of its own while the job begins here."""
-    global _server_since
-    if _server_since is not None:
-        return
-    context = _context()
-    if context.get_start_method() != "forkserver":
-        return
-    try:
-        from multiprocessing import forkserver
-
-        forkserver.ensure_running()
-    except OSError as exc:  # the pool will try again, and say so if it fails
-        log.debug("fork server not started: %s", exc)
-        return
-    _server_since = time.perf_counter()
 
 
 def _start_cost() -> float:
