@@ -601,13 +601,8 @@ class MainWindow(QMainWindow):
             return
         self.canvas.set_regions([(rid, polys) for rid, polys, _ in
                                  self.project.regions(frame.id)])
-        dispute = self.session.read_dispute(frame, self.canvas.ours,
-                                            settles=not self.review_mode)
-        if dispute is None:
-            self.canvas.set_dispute({}, None, {})
-        else:
-            self.canvas.set_dispute(dispute.ours_marks, list(dispute.theirs),
-                                    dispute.theirs_marks, dispute.who)
+        # The session hands the dispute to the view the Canvas draws (app/session/view.py).
+        self.session.read_dispute(frame, self.canvas.ours, settles=not self.review_mode)
         self.actions_by_name["show_theirs"].setChecked(self.canvas.showing_theirs)
         self.canvas.blurred = self.session.read_blurred(frame.id) if self.review_mode else None
         self._update_strips()
