@@ -179,7 +179,9 @@ def test_triage_finds_the_wrong_people_of_the_demo(tmp_path):
     regenerated with the network's answer held over runs of frames, the dance-only weights
     gave 343 people, 91 wrong, 93 flagged, 81 of them wrong (recall 0.890, precision 0.871);
     the weights fitted on both scenarios, flagging from 1/5 (app.analysis.triage): 122
-    flagged, 86 of them wrong: recall 0.945, precision 0.705."""
+    flagged, 86 of them wrong: recall 0.945, precision 0.705; fitted again on dance and
+    choir seeds 1-8 generated with the current error model: 106 flagged, 83 of them wrong:
+    recall 0.912, precision 0.783."""
     if not (DEMO / "truth.json").exists():
         pytest.fail("demo_project/ is missing: regenerate it with app.demo.generate")
     fig = measure(_copy(DEMO, tmp_path / "demo"))
@@ -192,26 +194,28 @@ def test_triage_finds_the_wrong_people_of_the_demo(tmp_path):
 @pytest.mark.slow
 def test_triage_holds_on_a_held_out_seed(tmp_path):
     """The same measurement on a rehearsal the weights never saw: seed 9, first 12 frames
-    (synthetic; the weights were fitted on seeds 1-4). Measured on the demo with errors that
+    (synthetic; seed 9 took part in no fit). Measured on the demo with errors that
     last over frames: 191 people, 47 wrong, 52 flagged, 44 of them wrong: recall 0.936,
     precision 0.846 (with the weights fitted on the dance alone; seed 9 took no part in the
     fit on both scenarios either). With the weights fitted on both scenarios, flagging from
     1/5, and the current error model: 189 people, 42 wrong, 66 flagged, 40 of them wrong:
-    recall 0.952, precision 0.606, below issue 3's 0.7; the precision threshold sits a little
-    below what was measured."""
+    recall 0.952, precision 0.606, below issue 3's 0.7. With the weights fitted again on
+    dance and choir seeds 1-8 generated with the current error model: 57 flagged, 40 of them
+    wrong: recall 0.952, precision 0.702; the precision threshold sits a little below what was
+    measured."""
     folder = tmp_path / "seed9"
     generate(folder, seed=9, frames=12)
     fig = measure(folder)
     print(fig.report("held-out seed 9, 12 frames"))
     assert fig.recall >= 0.9
-    assert fig.precision >= 0.58
+    assert fig.precision >= 0.68
 
 
 @pytest.mark.slow
 def test_triage_and_fixes_on_the_choir(tmp_path):
     """The same measurement on the second scenario, a choir on stepped risers (synthetic;
     app.demo.choir, seed 21, first 5 frames), kept out of every fit (triage's weights and the
-    findings' calibration were fitted on dance and choir seeds 1-4); and the findings'
+    findings' calibration were fitted on dance and choir seeds 1-8); and the findings'
     accept-all figure there (judged joint by joint as in tests/demo/test_calibrate.py). The
     thresholds are the issue's goals (recall >= 0.85, precision >= 0.7; fixes losing <= 2 %
     of correct joints and removing >= 40 % of wrong ones) or, where the goal is missed, a
@@ -219,7 +223,11 @@ def test_triage_and_fixes_on_the_choir(tmp_path):
     (recall 0.880, precision 0.815); accepting every fix took wrong labelled joints from 419
     to 276 (34.1 % removed: short of the goal on these frames) and correct ones from 2,067 to
     2,088 (+1.0 %). On the first 8 frames (the test's length until it had to be shorter for
-    the suite's time): recall 0.898, precision 0.820, 36.9 % removed, +0.6 %."""
+    the suite's time): recall 0.898, precision 0.820, 36.9 % removed, +0.6 %. Those figures
+    are of the weights and calibration fitted on seeds generated with the dance's earlier
+    error model; fitted again on dance and choir seeds 1-8 generated with the current one:
+    105 flagged, 89 of them wrong (recall 0.890, precision 0.848); 419 wrong joints to 278
+    (33.6 % removed), 2,067 correct to 2,085 (+0.9 %)."""
     from app.demo.calibrate import accept_all, demo_frames
 
     folder = tmp_path / "choir21"

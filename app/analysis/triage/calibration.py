@@ -60,18 +60,17 @@ class Calibration:
 
 #: The calibration the findings use, fitted by :mod:`app.demo.calibrate` on the seeds named.
 SHIPPED = Calibration({
-    "crossed-sides": (-4.828, -2.53),
-    "duplicate": (-1.033, 3.797),
-    "hidden": (7.5, -1.685),
-    "invented": (-0.347, 1.666),
-    "mirrored": (-1.34, 6.36),
-    # Too rare in the last fit (3 fixes): kept from the fit on dance seeds 1-8.
-    "missed-person": (5.585, 0.835),
-    "missing-joint": (-1.634, -0.211),
-    "phantom": (5.138, 1.892),
-    "split": (-2.711, 4.957),
-    "wrong-owner": (0.425, 1.207),
-}, PROPOSE_AT, ("dance 1", "dance 2", "choir 1"))
+    "crossed-sides": (-2.378, -0.735),
+    "duplicate": (-2.968, 7.261),
+    "hidden": (5.112, 0.478),
+    "invented": (0.945, 0.515),
+    "mirrored": (-1.499, 6.095),
+    "missed-person": (5.532, 0.841),
+    "missing-joint": (-0.876, 0.219),
+    "phantom": (6.758, -5.531),
+    "split": (-3.163, 5.465),
+    "wrong-owner": (1.178, -0.093),
+}, PROPOSE_AT, tuple(f"{scene} {seed}" for scene in ("dance", "choir") for seed in range(1, 9)))
 
 
 def confidence(kind: str, strength: float) -> float:
