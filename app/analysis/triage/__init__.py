@@ -61,7 +61,10 @@ which every fitted demo had at least 90 % of its wrong people flagged, else the 
 rule the first fit, on the dance alone, used): dance seed 6 reached 0.78 at 1/4 and 0.80 at
 1/5, so 1/5. The fit gives no weight to ``weak-limb`` (what it sees, the others see better)
 nor to ``duplicate`` (``tangled``, which both people of the pair carry, takes its part),
-little to ``low-score``, and weighs short legs and a tilted torso at the cap. Fits on fewer
+little to ``low-score``, and weighs short legs and a tilted torso at the cap. One sign alone
+at full strength flags a person when ``PRIOR`` plus its weight reaches the log-odds of
+``FLAG_AT`` (-1.39): a stretched limb alone (3.0) now stops just short (suspicion 0.198), and
+needs another sign beside it. Fits on fewer
 of these seeds weighed ``off-ground`` anywhere from 2 to 8 and ``crossed-sides`` from 5 to 8:
 with a few invented scenes the weights of rare signs move from fit to fit. These are defaults
 for crowds of upright people, standing or seated, fitted on invented scenes, not truths.
