@@ -329,11 +329,14 @@ def _triage_one(item: tuple[Frame, FrameLabels, str | None, Skeleton, bool]) -> 
     was computed from; run in a worker process (:func:`run_triage`)."""
     from app.analysis.triage import triage_frame
     from app.analysis.triage.findings import labels_digest
+    from app.analysis.triage.model_evidence import FieldMemo
     from app.jobs_findings import findings_from_labels
 
     frame, labels, maps_path, skeleton, findings = item
     ps = list(labels.people.values())
     maps = _usable_maps(maps_path, frame, skeleton)
+    if maps is not None:  # triage and the findings share one memo of line integrals
+        maps = FieldMemo(maps)
     verdict = triage_frame(
         {p.id: p.keypoints for p in ps}, skeleton,
         scores={p.id: p.scores for p in ps}, maps=maps,
