@@ -82,7 +82,7 @@ def test_a_frames_visibility_fixes_are_one_stop_accepted_and_undone_together(
     window.session.findings_changed()
     qtbot.keyClick(window.canvas, Qt.Key.Key_W)
     stop = window.canvas.walk_card.stop
-    assert stop.key == "G:hidden" and [f.id for f in stop.group] == ["Fb", "Fc"]
+    assert stop.key == "G:covered" and [f.id for f in stop.group] == ["Fb", "Fc"]
     assert window.actions_by_name["accept_fix"].isEnabled()
     groups = len({e.group_id for e in ui_project.history()})
     qtbot.keyClick(window.canvas, Qt.Key.Key_Y)
