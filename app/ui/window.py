@@ -660,7 +660,8 @@ class MainWindow(QMainWindow):
                 return
         current = self.frame_id in frame_ids or kind in ("import", "frames")
         if current:
-            self._maps = None
+            if kind not in ("edit", "undo", "redo"):  # an edit of labels leaves the maps be
+                self._maps = None
             self._reload_frame()
         if current or self.ledger_model.whole_project or kind == "import":
             self.ledger_model.reload()

@@ -16,7 +16,16 @@ import threading
 from collections.abc import Callable
 from typing import Any
 
-from PySide6.QtCore import QObject, QRunnable, Qt, QThread, QThreadPool, Signal
+from PySide6.QtCore import (
+    QCoreApplication,
+    QEvent,
+    QObject,
+    QRunnable,
+    Qt,
+    QThread,
+    QThreadPool,
+    Signal,
+)
 from PySide6.QtWidgets import QProgressDialog, QWidget
 
 from app.errors import Cancelled, PosewrightError
@@ -69,6 +78,17 @@ class _Task(QRunnable):
         self._runner.finished.emit(self._deliver, result)
 
 
+_START = QEvent.Type(QEvent.registerEventType())
+
+
+class _Start(QEvent):
+    """Starts a session job on the worker once the event loop reaches it."""
+
+    def __init__(self, task: _Task):
+        super().__init__(_START)
+        self.task = task
+
+
 class Background(QObject):
     """The session's background runner (:data:`app.session.session.Background`): jobs run
     one at a time on a worker thread, in the order given, and each result is delivered on
@@ -83,12 +103,29 @@ class Background(QObject):
         self._pool = QThreadPool(self)
         self._pool.setMaxThreadCount(1)
         self.finished.connect(self._hand_over, Qt.ConnectionType.QueuedConnection)
+        self._queued = 0
         self._closed = False
 
     def __call__(self, job: Callable[[], Any], deliver: Callable[[Any], None]) -> None:
-        """Run ``job()`` on the worker; call ``deliver(result)`` on the UI thread after."""
+        """Run ``job()`` on the worker; call ``deliver(result)`` on the UI thread after.
+
+        The job starts once the event loop turns again, after the events already posted
+        (the repaint that shows the walk's next finding among them): a worker running
+        Python shares the interpreter's lock with this thread, and started at once it
+        would slow the very step that asked for it."""
         if not self._closed:
-            self._pool.start(_Task(self, job, deliver))
+            self._queued += 1
+            # Below the priority of Qt's own repaint requests (low): after the paint.
+            QCoreApplication.postEvent(self, _Start(_Task(self, job, deliver)),
+                                       Qt.EventPriority.LowEventPriority.value - 1)
+
+    def event(self, event: QEvent) -> bool:
+        if isinstance(event, _Start) or event.type() == _START:
+            self._queued -= 1
+            if not self._closed and isinstance(event, _Start):
+                self._pool.start(event.task)
+            return True
+        return super().event(event)
 
     def _hand_over(self, deliver: Callable[[Any], None], result: Any) -> None:
         if not self._closed:
@@ -97,7 +134,7 @@ class Background(QObject):
 
     def idle(self) -> bool:
         """True when no job is queued or running."""
-        return self._pool.activeThreadCount() == 0
+        return self._queued == 0 and self._pool.activeThreadCount() == 0
 
     def shutdown(self) -> None:
         """Take no more jobs and wait for the one running (results are no longer delivered)."""
