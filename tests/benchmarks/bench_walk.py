@@ -136,7 +136,8 @@ def walk_demo(folder: Path) -> dict:
     window.shutdown()
     project.close()
     return {"presses": presses, "accepted": accepted, "skipped": skipped, "before": before,
-            "after": after, "joints_before": joints_before, "joints_after": joints_after, "inside": inside, "ends": ends,
+            "after": after, "joints_before": joints_before, "joints_after": joints_after,
+            "inside": inside, "ends": ends,
             "cpu_inside": cpu_inside, "cpu_ends": cpu_ends, "waits": waits}
 
 
