@@ -159,7 +159,7 @@ def covered_text(members: Sequence[Finding]) -> str:
     ...                    (person,), "x")
     >>> covered_text([f("hidden", 2, (13, 14), "mark person 2's knees occluded"),
     ...               f("invented", 5, (9,), "mark person 5's left wrist unlabelled")])
-    "3 joints nearer people hide, on 2 people (2 to mark occluded, 1 invented spot to \
+    "nearer people hide 3 joints of 2 people (2 to mark occluded, 1 invented spot to \
 unlabel): person 2's knees occluded; person 5's left wrist unlabelled"
     """
     hidden = sum(len(m.joints) for m in members if m.kind == "hidden")
@@ -172,7 +172,7 @@ unlabel): person 2's knees occluded; person 5's left wrist unlabelled"
         parts.append(f"{count(invented, 'invented spot')} to unlabel")
     said = [m.fix.summary.removeprefix("mark ") for m in members[:GROUP_SHOWN] if m.fix]
     more = len(members) - len(said)
-    return (f"{count(hidden + invented, 'joint')} nearer people hide, on "
+    return (f"nearer people hide {count(hidden + invented, 'joint')} of "
             f"{count(len(people), 'person', 'people')} ({', '.join(parts)}): "
             + "; ".join(said) + (f"; and {count(more, 'more fix', 'more fixes')}"
                                  if more > 0 else ""))

@@ -237,7 +237,7 @@ def test_a_frames_hidden_and_invented_fixes_are_one_stop_and_one_undo_step(scene
     assert [x.key for x in stops] == ["Fo", "G:covered"]
     group = stops[1]
     assert [f.id for f in group.findings] == ["Fh", "Fi"]
-    assert group.text.startswith("3 joints nearer people hide, on 2 people (2 to mark "
+    assert group.text.startswith("nearer people hide 3 joints of 2 people (2 to mark "
                                  "occluded, 1 invented spot to unlabel)")
     assert "person 1's knees occluded" in group.text
     assert "person 2's left wrist unlabelled" in group.text
