@@ -178,6 +178,24 @@ unlabel): person 2's knees occluded; person 5's left wrist unlabelled"
                                  if more > 0 else ""))
 
 
+def group_action(fix: Fix) -> str:
+    """What a grouped stop's fix does, in a few words, from its preview.
+
+    Examples
+    --------
+    >>> from app.analysis.triage.findings import FixPreview
+    >>> group_action(Fix("", (), FixPreview(unlabeled=((2, 9),), occluded=((1, 13), (1, 14)))))
+    'mark 2 joints occluded and unlabel 1 joint'
+    """
+    p = fix.preview
+    parts = []
+    if p.occluded:
+        parts.append(f"mark {count(len(p.occluded), 'joint')} occluded")
+    if p.unlabeled:
+        parts.append(f"unlabel {count(len(p.unlabeled), 'joint')}")
+    return " and ".join(parts) or fix.summary
+
+
 #: At most this many notes' sentences are written out on a person's stop.
 NOTES_SHOWN = 2
 
