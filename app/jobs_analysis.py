@@ -327,7 +327,7 @@ def run_triage(project: Project, progress: Progress | None = None,
 
 
 #: How many frames' maps (with their memo of line integrals) :func:`_memo_maps` keeps.
-MEMO_FRAMES = 8
+MEMO_FRAMES = 4
 _memos: OrderedDict[tuple[Any, ...], Any] = OrderedDict()
 _memos_lock = threading.Lock()
 
