@@ -353,6 +353,22 @@ class Walk:
         order.append(frame_id)
         return True
 
+    def following(self, frame_id: int) -> int | None:
+        """The frame after ``frame_id`` in the walk's order (None: the last, or not in it,
+        or no walk yet).
+
+        Examples
+        --------
+        >>> walk = Walk(lambda: [7, 3], lambda f: [Stop(f, "a", 1, (), "one")])
+        >>> walk.following(7), walk.step(1, 7).key, walk.following(7), walk.following(3)
+        (None, 'a', 3, None)
+        """
+        order = self._snapshot
+        if order is None or frame_id not in order:
+            return None
+        at = order.index(frame_id) + 1
+        return order[at] if at < len(order) else None
+
     def forget(self) -> None:
         """Let the next step start from the frame on screen (in the same order)."""
         self.current = None
