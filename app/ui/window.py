@@ -663,7 +663,7 @@ class MainWindow(QMainWindow):
                 return
         current = self.frame_id in frame_ids or kind in ("import", "frames")
         if current:
-            if kind not in ("edit", "undo", "redo"):  # an edit of labels leaves the maps be
+            if kind in ("import", "frames"):  # maps come only with an import
                 self.maps_shelf.clear()
             self._reload_frame()
         if current or self.ledger_model.whole_project or kind == "import":
