@@ -251,8 +251,8 @@ def paint_walk_card(painter: QPainter, card: WalkCard, box: QRectF, bounds: QRec
     head = ("Findings" if len(stop.findings) > 1 else "Finding" if stop.findings
             else "Triage") + where
     if fix is not None:
-        # A frame's visibility fixes are one stop of several fixes; a person's stop has one
-        # fix, with notes that propose none.
+        # A frame's hidden-joint and invented-spot fixes are one stop of several; a
+        # person's stop has one fix, with notes that propose none.
         several = stop.finding is None and len(stop.findings) > 1
         sure = [f.confidence for f in stop.findings if f.fix is not None]
         conf = f" (each at least {min(sure):.0%} sure)" if several else \

@@ -2023,7 +2023,7 @@ def keep_open(window: MainWindow) -> None:
 
 def _stops_text(stops: list) -> str:
     """The frame's open findings for the status bar, and the walk's stops when findings are
-    grouped (a frame's visibility-only fixes are one stop), so the Worklist's count of
+    grouped (a frame's hidden-joint and invented-spot fixes are one stop), so the count of
     findings and the card's "stop 4 of 11" agree."""
     found = sum(len(s.findings) for s in stops)
     text = f" \u00b7 {count(found, 'open findings')}"
