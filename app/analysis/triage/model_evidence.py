@@ -116,8 +116,8 @@ class _LimbTable:
                 d[:-1] = v[1:] - v[:-1]
             if v.dtype == np.float16:  # no memoryview format: float32 holds each exactly
                 v, d = v.astype(np.float32), d.astype(np.float32)
-            self.values.append(memoryview(v))
-            self.next_x.append(memoryview(d))
+            self.values.append(v.data)
+            self.next_x.append(d.data)
 
 
 def _segment_e(t: _LimbTable, ax: float, ay: float, bx: float, by: float) -> float:
