@@ -74,6 +74,10 @@ class _Drag:
     start_xy: tuple[float, float]
     xy: tuple[float, float]
     moved: bool = False
+    #: Everybody else's tag where it was when the drag began (screen pixels), and the view
+    #: (scale, origin, size) those places hold for: the tags stay put while the joint moves.
+    held_tags: dict[int, QRectF] | None = None
+    held_view: tuple[float, ...] = ()
 
 
 @dataclass
@@ -95,21 +99,31 @@ class _OverlayLayer:
     """The overlay of the frame on screen, painted once into a transparent image and copied
     onto the Canvas while nothing it shows changes (people, selection, hover, zoom, size,
     style): a repaint for any other reason (an exposed window, the picture refined, the
-    status of a neighbour) then costs one copy instead of painting every person again."""
+    status of a neighbour) then costs one copy instead of painting every person again.
+
+    While a joint of the selected person is dragged, what lies under that person (everybody
+    else, the regions) is painted once into a second image, ``_under``; each move then copies
+    the repainted rectangle from it and paints only the dragged person and the tags over it
+    (``paint_overlay``'s ``part``)."""
 
     def __init__(self) -> None:
         self._key: tuple[Any, ...] | None = None
         self._image: QImage | None = None
         self._layout: OverlayLayout | None = None
+        self._under: QImage | None = None
+        self._under_key: tuple[Any, ...] | None = None
 
     def paint(self, p: QPainter, canvas: Canvas, people: list[Any], dirty: QRect | None = None,
-              moving: int | None = None) -> OverlayLayout:
+              moving: int | None = None,
+              held_tags: dict[int, QRectF] | None = None) -> OverlayLayout:
         """Copy the layer onto ``p``, painting it again first if what it shows changed.
 
         While person ``moving`` is dragged and only the rectangle ``dirty`` is repainted, only
         that rectangle of the layer is painted again (clipped), when nothing but that
         person changed; should a tag of anybody else have moved, or theirs have left the
-        rectangle, the whole layer is painted again and the Canvas updated whole."""
+        rectangle, the whole layer is painted again and the Canvas updated whole.
+        ``held_tags`` (everybody else's tag during a drag) keeps those tags where they are,
+        so only the dragged person's tag is placed again (``paint_overlay``)."""
         assert canvas.frame is not None
         style = canvas.style()
         t = canvas.transform()
@@ -117,11 +131,14 @@ class _OverlayLayer:
         key = (canvas.frame.id, canvas.width(), canvas.height(), dpr,
                (t.m11(), t.m22(), t.dx(), t.dy()), repr(style), id(canvas.skeleton),
                tuple((q.id, np.asarray(q.keypoints).tobytes()) for q in people))
+        if moving is None:
+            self._under = self._under_key = None  # no drag: free what lay under the last one
         if key != self._key or self._image is None or self._layout is None:
             layout = None
             if dirty is not None and moving is not None and style.focus is None \
                     and self._only_moved(key, moving):
-                layout = self._paint_part(canvas, people, t, style, QRectF(dirty), moving)
+                layout = self._paint_part(canvas, people, t, style, QRectF(dirty), moving,
+                                          held_tags)
                 if layout is None:
                     canvas.update()  # the layer is painted whole below; show all of it
             if layout is None:
@@ -131,7 +148,8 @@ class _OverlayLayer:
                 image.fill(Qt.GlobalColor.transparent)
                 painter = QPainter(image)
                 layout = paint_overlay(painter, people, canvas.skeleton, t, style,
-                                       (canvas.frame.width, canvas.frame.height))
+                                       (canvas.frame.width, canvas.frame.height),
+                                       held_tags=held_tags)
                 painter.end()
                 self._image = image
             self._layout, self._key = layout, key
@@ -148,17 +166,24 @@ class _OverlayLayer:
         return all(a == b or (a[0] == b[0] == moving) for a, b in zip(old[-1], key[-1]))
 
     def _paint_part(self, canvas: Canvas, people: list[Any], t: QTransform,
-                    style: OverlayStyle, dirty: QRectF, moving: int) -> OverlayLayout | None:
+                    style: OverlayStyle, dirty: QRectF, moving: int,
+                    held_tags: dict[int, QRectF] | None = None) -> OverlayLayout | None:
         """Paint the layer again within ``dirty`` only; None if more than that changed."""
         assert self._image is not None and self._layout is not None and canvas.frame
         before = self._layout.tags
+        under = self._under_layer(canvas, people, t, style, moving) \
+            if style.selected_person == moving and style.focus is None else None
         painter = QPainter(self._image)
         painter.setClipRect(dirty)
         painter.setCompositionMode(QPainter.CompositionMode.CompositionMode_Source)
-        painter.fillRect(dirty, Qt.GlobalColor.transparent)
+        if under is None:
+            painter.fillRect(dirty, Qt.GlobalColor.transparent)
+        else:
+            painter.drawImage(dirty, under, _device_rect(dirty, under.devicePixelRatio()))
         painter.setCompositionMode(QPainter.CompositionMode.CompositionMode_SourceOver)
         layout = paint_overlay(painter, people, canvas.skeleton, t, style,
-                               (canvas.frame.width, canvas.frame.height), within=dirty)
+                               (canvas.frame.width, canvas.frame.height), within=dirty,
+                               held_tags=held_tags, part="whole" if under is None else "over")
         painter.end()
         after = layout.tags
         if set(before) != set(after) or any(after[k] != r for k, r in before.items()
@@ -168,6 +193,29 @@ class _OverlayLayer:
                                     and dirty.contains(before[moving])):
             return None
         return layout
+
+    def _under_layer(self, canvas: Canvas, people: list[Any], t: QTransform,
+                     style: OverlayStyle, moving: int) -> QImage:
+        """What lies under person ``moving`` (``paint_overlay(part="under")``), painted once
+        while nothing but that person changes."""
+        assert self._image is not None and canvas.frame is not None
+        assert self._key is not None
+        key = (*self._key[:-1], moving, tuple(e for e in self._key[-1] if e[0] != moving))
+        if key != self._under_key or self._under is None:
+            image = QImage(self._image.size(), QImage.Format.Format_ARGB32_Premultiplied)
+            image.setDevicePixelRatio(self._image.devicePixelRatio())
+            image.fill(Qt.GlobalColor.transparent)
+            painter = QPainter(image)
+            paint_overlay(painter, people, canvas.skeleton, t, style,
+                          (canvas.frame.width, canvas.frame.height), part="under")
+            painter.end()
+            self._under, self._under_key = image, key
+        return self._under
+
+
+def _device_rect(rect: QRectF, dpr: float) -> QRectF:
+    """``rect`` (logical pixels) in the device pixels of an image of that pixel ratio."""
+    return QRectF(rect.x() * dpr, rect.y() * dpr, rect.width() * dpr, rect.height() * dpr)
 
 
 class Canvas(QWidget):
@@ -775,11 +823,15 @@ class Canvas(QWidget):
             self._paint_image(p)
             people: list[Any] = self.people
             moving = None
-            if self._drag is not None and self._drag.moved:
-                people = self._with_drag(people, self._drag)
-                moving = self._drag.person_id
+            held = None
+            d = self._drag
+            if d is not None and d.moved:
+                people = self._with_drag(people, d)
+                moving = d.person_id
+                if d.held_view == self._view_key():
+                    held = d.held_tags
             dirty = event.rect() if event.rect() != self.rect() else None
-            self._layout = self._overlay.paint(p, self, people, dirty, moving)
+            self._layout = self._overlay.paint(p, self, people, dirty, moving, held)
             if self.show_blurred and self.blurred is not None and not self.showing_theirs:
                 paint_blurred(p, self.blurred, self.image_to_screen, self.font())
             self._paint_callouts(p)
@@ -896,6 +948,10 @@ class Canvas(QWidget):
             # Zoomed in: nearest neighbour, so the annotator sees the real pixels.
             p.drawImage(target, self._decoded.image)
 
+    def _view_key(self) -> tuple[float, ...]:
+        """The zoom, origin and size the screen places of tags hold for."""
+        return (self._scale, self._ox, self._oy, float(self.width()), float(self.height()))
+
     def _drag_bounds(self, d: _Drag) -> QRectF:
         """Where the dragged person is drawn now, on screen: their joints (the dragged one
         where the drag has it), the tag above them, rings and halos around them, and the
@@ -1004,6 +1060,11 @@ class Canvas(QWidget):
             dx = (pos.x() - d.press.x()) / self._scale
             dy = (pos.y() - d.press.y()) / self._scale
             before = self._drag_bounds(d) if d.moved else None
+            if not d.moved and self._layout is not None:
+                # The other tags keep their places while this joint moves.
+                d.held_tags = {pid: QRectF(r) for pid, r in self._layout.tags.items()
+                               if pid != d.person_id}
+                d.held_view = self._view_key()
             d.moved = True
             d.xy = self._clamp(x0 + dx, y0 + dy)
             after = self._drag_bounds(d)
