@@ -20,6 +20,8 @@ Two more things it shows:
   inside it moves it (one edit on release), Del deletes it.
 - On a *disputed* frame, the marks where ours and the reviewer's version differ, and on request
   the reviewer's version itself in place of ours (read-only: nothing is edited while it shows).
+  Which version shows, both versions' people, the marks and the reviewer's name are the view's
+  (:class:`app.session.view.View`); the Canvas only draws them.
 """
 
 from __future__ import annotations
@@ -52,7 +54,7 @@ from app.model.skeleton import Skeleton
 from app.session.blurred import BlurredFrame
 from app.session.owners import OwnerRanking
 from app.session.selection import Selection
-from app.session.view import View
+from app.session.view import Marks, View
 from app.session.walk import Stop
 from app.ui import regions as geometry
 from app.ui.blurred import paint_blurred
@@ -91,9 +93,6 @@ class _RegionDrag:
     polygons: geometry.Polygons = ()
     corner: tuple[int, int] = (0, 0)
     moved: bool = False
-
-
-Marks = dict[tuple[int, int], tuple[float, float] | None]
 
 
 class _OverlayLayer:
@@ -269,10 +268,10 @@ class Canvas(QWidget):
         self.setMinimumSize(200, 150)
 
         self.frame: Frame | None = None
-        #: The people shown, their flags and colours, and the modes (Qt-free,
-        #: app/session/view.py; the window shares its session's through :meth:`use_view`).
+        #: The people shown, their flags and colours, the modes and a disputed frame's two
+        #: versions (Qt-free, app/session/view.py; the window shares its session's through
+        #: :meth:`use_view`).
         self.view = View()
-        self.view.events.connect("mode", self.update)
         self.read_only = False
         self.show_unlabeled = False
         self.show_tags = True
@@ -287,17 +286,6 @@ class Canvas(QWidget):
         self._draft: list[tuple[float, float]] = []
         self._region_drag: _RegionDrag | None = None
         self._double_clicked = False
-        #: A disputed frame: our people, the reviewer's version (people in our tag order;
-        #: someone they deleted is an empty placeholder), the difference marks of each, and
-        #: whether the reviewer's version is the one shown.
-        self._ours: list[Person] = []
-        self._flags_in: dict[int, frozenset[int]] = {}
-        self._theirs: list[Any] | None = None
-        self._marks: Marks = {}
-        self._theirs_marks: Marks = {}
-        self.theirs_name = ""
-        self.showing_theirs = False
-
         self._overlay = _OverlayLayer()
         self._decoded: Decoded | None = None
         # A quick shrunk copy for a zoom the decoder did not prepare: (for which decoded
@@ -333,13 +321,23 @@ class Canvas(QWidget):
         #: The ranked owners of the selected joint, listed beside it, and the rows' rectangles.
         self.owners: OwnerRanking | None = None
         self.owner_rows: list[tuple[QRectF, int]] = []
+        self._listen(self.view)
 
     # ------------------------------------------------------------------ the view's state
 
     def use_view(self, view: View) -> None:
-        """Show this view's people and modes (the window's session's)."""
+        """Show this view's people, modes and dispute (the window's session's)."""
         self.view = view
+        self._listen(view)
+
+    def _listen(self, view: View) -> None:
+        def people() -> None:
+            if view is self.view:
+                self._people_shown()
+
         view.events.connect("mode", self.update)
+        view.events.connect("people", people)
+        view.events.connect("dispute", self.update)
 
     @property
     def people(self) -> list[Any]:
@@ -393,13 +391,8 @@ class Canvas(QWidget):
         self._region = None
         self._draft = []
         self._region_drag = None
-        self._theirs = None
-        self._marks, self._theirs_marks = {}, {}
-        self.showing_theirs = False
         self.blurred = None
-        self._ours = list(people)
-        self._flags_in = dict(flags)
-        self._set_people(people, flags, keep_colours=False)
+        self.view.open(people, flags)  # no dispute until the window reads it
         if decoded is not None:
             self.set_image(decoded)
         if not keep_view:
@@ -409,16 +402,13 @@ class Canvas(QWidget):
 
     def set_people(self, people: list[Person], flags: dict[int, frozenset[int]]) -> None:
         """New labels of the same frame (after an edit); keeps what is still selectable."""
-        self._ours = list(people)
-        self._flags_in = dict(flags)
-        self._show_people()
+        self.view.show(people, flags)
 
-    def _show_people(self) -> None:
-        """Show ours, or the reviewer's version when asked, keeping the selection."""
-        people: list[Any] = self._theirs if self.showing_theirs and self._theirs is not None \
-            else self._ours
-        self._set_people(people, self._flags_in)
-        ids = {p.id for p in people}
+    def _people_shown(self) -> None:
+        """The view shows other people (ours, or the reviewer's version when asked): new hit
+        tests, and keep what is still selectable."""
+        self._hit_test_arrays()
+        ids = {p.id for p in self.people}
         changed = self.selection.keep_only(ids)
         if self._hover is not None and self._hover[0] not in ids:
             self._hover = None
@@ -439,44 +429,35 @@ class Canvas(QWidget):
 
     # ------------------------------------------------------------------ disputes
 
-    def set_dispute(self, marks: Marks, theirs: list[Any] | None, theirs_marks: Marks,
-                    who: str = "") -> None:
-        """The differences of a disputed frame: ``marks`` on our people (joint -> where the
-        reviewer has it), the reviewer's people ``theirs`` and their marks (joint -> where we
-        have it); ``theirs`` None when the frame is not in dispute."""
-        self._marks = dict(marks)
-        self._theirs = None if theirs is None else list(theirs)
-        self._theirs_marks = dict(theirs_marks)
-        self.theirs_name = who
-        if self.showing_theirs:
-            # Their people changed, or they are gone (then ours come back).
-            self.showing_theirs = self._theirs is not None
-            self._show_people()
-        else:
-            self.update()  # ours are on screen already; only the marks changed
+    @property
+    def showing_theirs(self) -> bool:
+        """Whether the reviewer's version is the one shown (the view's)."""
+        return self.view.showing_theirs
 
     @property
     def has_theirs(self) -> bool:
-        return self._theirs is not None
+        """Whether the frame has a reviewer's version to show (the view's)."""
+        return self.view.has_theirs
+
+    @property
+    def theirs_name(self) -> str:
+        """Who reviewed the disputed frame, as a sentence names them (the view's)."""
+        return self.view.reviewer
 
     @property
     def ours(self) -> list[Person]:
         """Our people of the frame (what :attr:`people` holds unless the reviewer's version
-        is shown)."""
-        return list(self._ours)
+        is shown; the view's)."""
+        return list(self.view.ours)
 
     @property
     def marks(self) -> Marks:
-        """The difference marks as drawn now (on whichever version is shown)."""
-        return dict(self._theirs_marks if self.showing_theirs else self._marks)
+        """The difference marks as drawn now, on whichever version is shown (the view's)."""
+        return self.view.marks
 
     def show_theirs(self, on: bool) -> bool:
         """Show the reviewer's version (or ours again); False when there is none."""
-        on = bool(on) and self._theirs is not None
-        if on != self.showing_theirs:
-            self.showing_theirs = on
-            self._show_people()
-        return on
+        return self.view.show_theirs(on)
 
     @property
     def editable(self) -> bool:
@@ -564,10 +545,8 @@ class Canvas(QWidget):
         assert self.frame is not None
         return (-0.5, -0.5, self.frame.width - 0.5, self.frame.height - 0.5)
 
-    def _set_people(self, people: list[Person], flags: dict[int, frozenset[int]],
-                    keep_colours: bool = True) -> None:
-        self.view.show(people, flags, keep_colours)
-        # Hit-testing arrays for all people at once: placed joints, and labelled limbs.
+    def _hit_test_arrays(self) -> None:
+        """Hit-testing arrays for all people shown at once: placed joints, labelled limbs."""
         k = self.skeleton.num_joints
         n = len(self.people)
         kp = np.stack([p.keypoints for p in self.people]) if n else np.zeros((0, k, 3))
