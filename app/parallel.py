@@ -66,8 +66,14 @@ POOL_START_SECONDS = 1.0
 _WARM_START_SECONDS = 0.1
 
 #: Modules the fork server imports once, before it forks any worker, so that no worker
-#: imports the app again: those whose functions the batch jobs hand to the workers.
-PRELOAD = ("app.jobs_analysis", "app.inference.prelabel")
+#: imports the app again: those whose functions the batch jobs hand to the workers, and the
+#: ones those functions import when first called. The server only imports them, so no
+#: thread of the app or of a database pool is ever copied into a worker; numpy and OpenCV
+#: start native thread pools on import (one thread each here), which, as in any fork of a
+#: numpy process (common practice), the libraries handle at fork.
+PRELOAD = ("app.jobs_analysis", "app.inference.prelabel", "app.jobs_findings",
+           "app.analysis.triage", "app.analysis.triage.findings",
+           "app.analysis.triage.model_evidence")
 
 #: How long the first items run in this process, timed, before a pool is considered, in
 #: seconds. Two items at least are timed and the first is left out of the estimate when
