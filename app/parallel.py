@@ -40,8 +40,8 @@ from typing import Any, TypeVar
 from app.errors import BadInput
 from app.progress import Progress
 
-__all__ = ["POOL_START_SECONDS", "PRELOAD", "WORKERS_ENV", "check_workers", "default_workers",
-           "ordered_map"]
+__all__ = ["POOL_START_SECONDS", "PRELOAD", "PRELOAD_FOR", "WORKERS_ENV", "check_workers",
+           "default_workers", "ordered_map"]
 
 log = logging.getLogger(__name__)
 
@@ -66,14 +66,20 @@ POOL_START_SECONDS = 1.0
 _WARM_START_SECONDS = 0.1
 
 #: Modules the fork server imports once, before it forks any worker, so that no worker
-#: imports the app again: those whose functions the batch jobs hand to the workers, and the
-#: ones those functions import when first called. The server only imports them, so no
-#: thread of the app or of a database pool is ever copied into a worker; numpy and OpenCV
-#: start native thread pools on import (one thread each here), which, as in any fork of a
-#: numpy process (common practice), the libraries handle at fork.
-PRELOAD = ("app.jobs_analysis", "app.inference.prelabel", "app.jobs_findings",
-           "app.analysis.triage", "app.analysis.triage.findings",
-           "app.analysis.triage.model_evidence")
+#: imports the app again: those whose functions the batch jobs hand to the workers. The
+#: server only imports, so no thread of the app or of a database pool is ever copied into a
+#: worker; numpy and OpenCV start native thread pools on import (one thread each here),
+#: which, as in any fork of a numpy process (common practice), the libraries handle at fork.
+PRELOAD = ("app.jobs_analysis", "app.inference.prelabel")
+
+#: What the fork server imports besides :data:`PRELOAD` when the job that starts it hands
+#: the workers this function (by module and name): the modules the function imports when
+#: first called. Triage's take 0.5 s to import, which a job of maps or targets does not need.
+PRELOAD_FOR = {
+    "app.jobs_analysis._triage_one": ("app.jobs_findings", "app.analysis.triage",
+                                      "app.analysis.triage.findings",
+                                      "app.analysis.triage.model_evidence"),
+}
 
 #: How long the first items run in this process, timed, before a pool is considered, in
 #: seconds. Two items at least are timed and the first is left out of the estimate when
@@ -247,13 +253,15 @@ def _ready() -> int:
     return os.getpid()
 
 
-def _context() -> multiprocessing.context.BaseContext:
-    """The fork server's context, with :data:`PRELOAD` imported by the server (only the
-    server pays the imports; each worker forks from it with them done), else spawn's."""
+def _context(fn: Callable[..., Any] | None = None) -> multiprocessing.context.BaseContext:
+    """The fork server's context, with :data:`PRELOAD` (and what :data:`PRELOAD_FOR` adds
+    for ``fn``) imported by the server when it starts (only the server pays the imports;
+    each worker forks from it with them done), else spawn's."""
     if "forkserver" not in multiprocessing.get_all_start_methods():
         return multiprocessing.get_context("spawn")
     context = multiprocessing.get_context("forkserver")
-    context.set_forkserver_preload(list(PRELOAD))  # taken when the server starts
+    name = f"{getattr(fn, '__module__', '')}.{getattr(fn, '__qualname__', '')}"
+    context.set_forkserver_preload([*PRELOAD, *PRELOAD_FOR.get(name, ())])
     return context
 
 
@@ -266,7 +274,7 @@ class _Pool:
     """
 
     def __init__(self, workers: int, initializer: Callable[..., Any] | None,
-                 initargs: tuple[Any, ...]):
+                 initargs: tuple[Any, ...], fn: Callable[..., Any] | None = None):
         self.workers = workers
         self.executor: ProcessPoolExecutor | None = None
         self.error: BaseException | None = None
@@ -275,16 +283,17 @@ class _Pool:
         self._lock = threading.Lock()
         self._dropped = False
         self._t0 = time.perf_counter()
-        self._thread = threading.Thread(target=self._start, args=(initializer, initargs),
+        self._thread = threading.Thread(target=self._start, args=(initializer, initargs, fn),
                                         name="posewright-pool-start")
         self._thread.start()
         if not _START_ALONGSIDE:
             self._thread.join()
 
-    def _start(self, initializer: Callable[..., Any] | None, initargs: tuple[Any, ...]) -> None:
+    def _start(self, initializer: Callable[..., Any] | None, initargs: tuple[Any, ...],
+               fn: Callable[..., Any] | None) -> None:
         global _server_since
         try:
-            self.executor = ProcessPoolExecutor(self.workers, mp_context=_context(),
+            self.executor = ProcessPoolExecutor(self.workers, mp_context=_context(fn),
                                                 initializer=initializer, initargs=initargs)
             warm = [self.executor.submit(_ready) for _ in range(self.workers)]
             if _server_since is None:
@@ -337,7 +346,7 @@ def _alongside(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: in
     """The items left in ``upcoming`` (``done`` of ``total`` already taken): this process
     goes on with them while a pool of ``workers - 1`` processes starts, then shares them
     with it, so ``workers`` processes compute in all."""
-    pool = _Pool(workers - 1, initializer, initargs)
+    pool = _Pool(workers - 1, initializer, initargs, fn)
     pending: deque[tuple[Future[R], bool]] = deque()  # in the items' order; True: on the pool
     on_pool = 0
     told = False

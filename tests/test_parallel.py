@@ -11,6 +11,7 @@ that a pool costs nothing to start.
 
 from __future__ import annotations
 
+import importlib
 import json
 import os
 import threading
@@ -149,10 +150,13 @@ def test_the_fork_server_preloads_every_batch_jobs_module():
     imports before forking them, so no worker imports the app again."""
     from app.inference.prelabel import _prelabel_one
     from app.jobs_analysis import _group_maps, _triage_one, _write_targets
-    from app.parallel import PRELOAD
+    from app.parallel import PRELOAD, PRELOAD_FOR
 
     for fn in (_group_maps, _triage_one, _write_targets, _prelabel_one):
         assert fn.__module__ in PRELOAD
+    for modules in PRELOAD_FOR.values():  # every name listed is a module that imports
+        for name in modules:
+            importlib.import_module(name)
 
 
 def test_a_cancel_while_the_pool_starts_stops_at_once(monkeypatch):
@@ -181,7 +185,7 @@ def test_a_pool_that_cannot_start_leaves_the_work_here(free_pool, monkeypatch, c
     and says so in the log."""
     from app import parallel
 
-    def refuse():
+    def refuse(fn=None):
         raise OSError("no processes to be had")
 
     monkeypatch.setattr(parallel, "_context", refuse)
