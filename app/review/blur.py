@@ -52,6 +52,8 @@ MODES = ("heads", "people")
 SOURCES = ("labels", "maps", "detector")
 
 FACE_JOINTS = ("nose", "left_eye", "right_eye", "left_ear", "right_ear")
+#: The ears, left first (see :func:`_past_ears`).
+EARS = ("left_ear", "right_ear")
 
 #: Ellipse half-width and half-height as fractions of stature H (see :func:`head_ellipses`).
 HALF_WIDTH = 0.085
@@ -59,6 +61,9 @@ HALF_HEIGHT = 0.115
 #: How far above the face landmarks' mean the head's centre lies, and above the shoulders.
 FACE_LIFT = 0.02
 NECK_LIFT = 0.117
+#: A head's width as a fraction of stature (common practice, no source; the ellipse above is
+#: wider to hold hair and labels a few pixels off).
+HEAD_WIDTH = 0.1
 #: Margin around the face joints an ellipse holds, as a fraction of stature (half a head's
 #: width).
 REACH_MARGIN = 0.05
@@ -266,11 +271,12 @@ def label_head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
     >>> from app.model.skeleton import coco_body
     >>> kp = np.zeros((17, 3))
     >>> kp[[0, 1, 2], :] = [[100, 50, 2], [95, 45, 2], [105, 45, 2]]    # a face
-    >>> kp[[3], :] = [[200, 48, 2]]                                     # an ear of another
+    >>> kp[[3], :] = [[200, 48, 2]]                     # a left ear of another, alone: the
+    >>> # head reaches a head's width (20 px) on the right of it (see _past_ears)
     >>> kp[[5, 6], :] = [[74.1, 90, 2], [125.9, 90, 2]]                 # H = 200
     >>> main, extra = label_head_ellipses([kp], coco_body(), (640, 480))
     >>> main.round(1), [(n, e.round(1)) for n, e in extra]
-    (array([[100. ,  42.7,  17. ,  23. ]]), [(0, array([200.,  44.,  17.,  23.]))])
+    (array([[100. ,  42.7,  17. ,  23. ]]), [(0, array([206.5,  44. ,  23.5,  23. ]))])
     """
     floor = _floor(image_size)
     face = _indices(skeleton, FACE_JOINTS)
@@ -294,9 +300,19 @@ def label_head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
             groups = _heads(xy, -np.arange(len(xy), dtype=np.float64),
                             np.full(len(xy), OTHER_HEAD * max(stature, typical)))
             groups.sort(key=len, reverse=True)  # stable: of equal groups, the nose's first
-            ellipses = [_group_ellipse(xy[g], stature, floor) for g in groups]
+            lateral = _lateral(kp, on, skeleton)
+            ellipses = [_group_ellipse(xy[g], stature, floor, beyond=_past_ears(
+                [face_on[i] for i in g], xy[g], lateral, stature, skeleton)) for g in groups]
             out[n] = ellipses[0]
             extra += [(n, e) for e in ellipses[1:]]
+            if shoulders_on and set(face_on) <= set(_indices(skeleton, EARS)):
+                # Ears alone (a back, a profile) are the labels a crowd gets wrong most
+                # easily, and a far ear is often missing: the head is also placed from the
+                # shoulders, as for a person with no face joint.
+                centre = _above_shoulders(kp, shoulders_on, [j for j in hips if on[j]],
+                                          stature)
+                extra.append((n, np.array([*centre, max(floor, HALF_WIDTH * stature),
+                                           max(floor, HALF_HEIGHT * stature)])))
             continue
         if shoulders_on:
             centre = _above_shoulders(kp, shoulders_on, [j for j in hips if on[j]], stature)
@@ -308,10 +324,14 @@ def label_head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
 
 
 def _group_ellipse(xy: np.ndarray, stature: float, floor: float,
-                   extent: np.ndarray | None = None) -> np.ndarray:
+                   extent: np.ndarray | None = None,
+                   beyond: np.ndarray | None = None) -> np.ndarray:
     """The ellipse of one head from its landmarks (see :func:`head_ellipses`); ``extent``:
     faint landmarks (:meth:`Unexplained.extent`), which widen each half-axis to reach them
-    with the margin but neither move the centre nor raise the scale."""
+    with the margin but neither move the centre nor raise the scale; ``beyond``: where the
+    rest of a head seen by its ears alone may reach (:func:`_past_ears`): the ellipse
+    becomes the one inscribed in the box around the landmarks' ellipse and those points with
+    the margin, so it keeps the landmarks' side and reaches the other."""
     if len(xy) >= 2:
         stature = max(stature, min(float(np.ptp(xy, axis=0).max()) / 0.1, 1.5 * stature))
     centre = xy.mean(axis=0) - [0.0, FACE_LIFT * stature]
@@ -321,7 +341,55 @@ def _group_ellipse(xy: np.ndarray, stature: float, floor: float,
                      max(floor, HALF_HEIGHT * stature, reach[1])])
     if extent is not None and len(extent):
         axes = np.maximum(axes, np.abs(extent - centre).max(axis=0) + margin)
+    if beyond is not None and len(beyond):
+        low = np.minimum(centre - axes, (beyond - margin).min(axis=0))
+        high = np.maximum(centre + axes, (beyond + margin).max(axis=0))
+        centre, axes = (low + high) / 2, (high - low) / 2
     return np.array([*centre, *axes])
+
+
+def _lateral(kp: np.ndarray, on: np.ndarray, skeleton: Skeleton) -> np.ndarray | None:
+    """The unit image direction from a person's left shoulder to their right one, or None
+    when not both are labelled (or they coincide): the body's left-to-right axis, whichever
+    way the person faces."""
+    shoulders = _indices(skeleton, ("left_shoulder", "right_shoulder"))
+    if len(shoulders) != 2 or not on[shoulders].all():
+        return None
+    left, right = shoulders
+    along = kp[right, :2] - kp[left, :2]
+    length = float(np.hypot(*along))
+    return along / length if length > 0 else None
+
+
+def _past_ears(joints: Sequence[int], xy: np.ndarray, lateral: np.ndarray | None,
+               stature: float, skeleton: Skeleton) -> np.ndarray | None:
+    """Where the rest of a head seen by one ear alone may reach, ``(n, 2)``, or None.
+
+    An ear lies at the side of the head, so a head known by a single ear (a back whose far
+    ear is hidden or unlabelled, a profile) reaches up to a head's width, :data:`HEAD_WIDTH`
+    of stature, past it: towards the other ear, i.e. along the body's left-to-right axis
+    from the left ear and against it from the right one (``lateral``, from the shoulders; the
+    head turns on the neck by less than a right angle, so it stays on that side). Without
+    both shoulders, the side is unknown and the head reaches a head's width either way.
+    Two ears (or any eye or the nose) already span the head: None.
+
+    Examples
+    --------
+    >>> from app.model.skeleton import coco_body
+    >>> _past_ears([3], np.array([[100.0, 50.0]]), np.array([1.0, 0.0]), 200.0, coco_body())
+    array([[120.,  50.]])
+    >>> _past_ears([4], np.array([[100.0, 50.0]]), None, 200.0, coco_body())
+    array([[ 80.,  50.],
+           [120.,  50.]])
+    """
+    ears = _indices(skeleton, EARS)
+    if len(joints) != 1 or joints[0] not in ears:
+        return None
+    step = HEAD_WIDTH * stature
+    if lateral is None:
+        return xy[0] + np.array([[-step, 0.0], [step, 0.0]])
+    sign = 1.0 if joints[0] == ears[0] else -1.0
+    return xy[:1] + sign * step * lateral[None]
 
 
 def _statures(people: Sequence[np.ndarray], skeleton: Skeleton) -> np.ndarray:
@@ -506,7 +574,9 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
     faint head, each too weak to be a peak, still show where the head reaches (a face seen
     side on spans from the nose to the far ear). Only a head found by the face sum alone is
     widened so (none of its landmarks a peak of its own channel): a head whose landmarks show
-    on their own is placed by them.
+    on their own is placed by them. A head whose only landmark peak is an ear reaches a
+    head's width past it on both sides (:func:`_past_ears`: nothing here says on which side
+    of the ear the head lies).
 
     Examples
     --------
@@ -538,8 +608,10 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
         faint = not (kinds[members] >= 0).any()  # no landmark seen on its own
         extent = (unexplained.extent(xy[seed], SAME_HEAD * scale[seed])
                   if unexplained is not None and faint else None)
-        out.append(_group_ellipse(xy[members], float(np.median(scale[members])), floor,
-                                  extent))
+        stature = float(np.median(scale[members]))
+        seen = members[kinds[members] >= 0]  # the peaks of a landmark's own channel
+        beyond = _past_ears(kinds[seen].tolist(), xy[seen], None, stature, skeleton)
+        out.append(_group_ellipse(xy[members], stature, floor, extent, beyond))
     return np.array(out, dtype=np.float64).reshape(-1, 4)
 
 
