@@ -286,12 +286,15 @@ def label_head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
     extra: list[tuple[int, np.ndarray]] = []
     statures = _statures(people, skeleton)
     low, high = _bounds(statures)
+    turned = _turned_statures(people, statures, skeleton, image_size)
     for n, person in enumerate(people):
         kp = np.asarray(person, dtype=np.float64)
         on = _labelled(kp)
         if not on.any():
             continue
         stature = float(np.clip(statures[n], low, high))
+        if np.isfinite(turned[n]):
+            stature = max(stature, float(turned[n]))
         face_on = [j for j in face if on[j]]
         shoulders_on = [j for j in shoulders if on[j]]
         if face_on:
@@ -401,6 +404,38 @@ def _statures(people: Sequence[np.ndarray], skeleton: Skeleton) -> np.ndarray:
         on = _labelled(kp)
         if on.any():
             out[n] = _stature(kp, on, face, skeleton)
+    return out
+
+
+def _turned_statures(people: Sequence[np.ndarray], statures: np.ndarray, skeleton: Skeleton,
+                     image_size: tuple[int, int]) -> np.ndarray:
+    """``(N,)`` the stature of the people standing where each person whose scale rests on the
+    widths of the torso alone stands (:func:`local_stature` of the others), NaN for the rest.
+
+    A torso's widths (shoulders, hips) shorten as a person turns side on, and a dancer turns
+    often; its sides (shoulder to hip) do not. When no side of the torso is labelled, the
+    person's own scale is a lower bound of their stature (a projection only shortens), and
+    the people around, who stand at about the same depth, tell it better; the head is sized
+    by the larger of the two (:func:`head_ellipses`).
+    """
+    names = {n: i for i, n in enumerate(skeleton.joints)}
+    sides = [(names[a], names[b]) for a, b in (("left_shoulder", "left_hip"),
+                                               ("right_shoulder", "right_hip"))
+             if a in names and b in names]
+    out = np.full(len(people), np.nan)
+    places = np.full((len(people), 2), np.nan)
+    widths_only = np.zeros(len(people), dtype=bool)
+    for n, person in enumerate(people):
+        kp = np.asarray(person, dtype=np.float64)
+        on = _labelled(kp)
+        if on.any():
+            places[n] = kp[on, :2].mean(axis=0)
+            widths_only[n] = np.isfinite(statures[n]) and not any(on[a] and on[b]
+                                                                  for a, b in sides)
+    for n in np.flatnonzero(widths_only):
+        others = np.arange(len(people)) != n
+        out[n] = local_stature(places[n][None], places[others], statures[others],
+                               image_size)[0] if np.isfinite(statures[others]).any() else np.nan
     return out
 
 
