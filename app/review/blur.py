@@ -44,7 +44,8 @@ from app.wording import count
 
 __all__ = ["MODES", "SOURCES", "BlurPlan", "Region", "Unexplained", "blur_frame", "blur_regions",
            "face_ellipses", "head_ellipses", "label_head_ellipses", "local_stature",
-           "map_head_ellipses", "place_regions", "region_mask", "unexplained_peaks"]
+           "map_head_ellipses", "place_regions", "region_mask", "shoulder_head_ellipses",
+           "unexplained_peaks"]
 
 #: What a blurred image hides: heads, or whole people.
 MODES = ("heads", "people")
@@ -650,6 +651,80 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
     return np.array(out, dtype=np.float64).reshape(-1, 4)
 
 
+def shoulder_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
+                           skeleton: Skeleton, image_size: tuple[int, int]) -> np.ndarray:
+    """Heads above the shoulders the network sees and no labelled person owns, as ellipses.
+
+    Parameters
+    ----------
+    peaks
+        Per joint of the skeleton, ``(n_j, 3)`` ``x, y, score`` in image pixels.
+    people
+        The labelled people, ``(K, 3)`` ``x, y, v`` each.
+    skeleton
+        The joint layout.
+    image_size
+        ``(width, height)``.
+
+    Returns
+    -------
+    numpy.ndarray
+        ``(M, 4)`` ``cx, cy, half_width, half_height``.
+
+    Notes
+    -----
+    A person the labels miss, seen from behind or with the face covered, may show no face
+    landmark above even a faint threshold while the network still sees their shoulders. A
+    shoulder peak is owned as a face peak is (:func:`map_head_ellipses`: the same joint of a
+    labelled person within ``0.05 H``). Unowned left and right shoulders are paired, strongest
+    first, when they lie at most one and a half shoulder widths (``1.5 * 0.259 H``, H the
+    local stature, :func:`local_stature`) apart; a pair's head is placed as a labelled
+    person's with no face joint (:func:`head_ellipses`: ``0.117 H`` above the middle of the
+    shoulders, perpendicular to them, image up). A shoulder with no partner places nothing:
+    in the demo such peaks are mostly the network's stray answers, and a head over each
+    (reaching half a shoulder width either way, where the neck may be) blurred 16.9 % of a
+    frame of demo seed 2 (the limit is 15 %, app/demo/blurcheck.py).
+
+    Examples
+    --------
+    >>> from app.model.skeleton import coco_body
+    >>> peaks = [np.zeros((0, 3)) for _ in range(17)]
+    >>> peaks[5] = np.array([[326.0, 200.0, 0.5]]); peaks[6] = np.array([[274.0, 200.0, 0.5]])
+    >>> shoulder_head_ellipses(peaks, [], coco_body(), (640, 480)).round(1)
+    array([[300. , 171.9,  20.4,  27.6]])
+    """
+    shoulders = _indices(skeleton, ("left_shoulder", "right_shoulder"))
+    if len(shoulders) != 2:
+        return np.zeros((0, 4))
+    centres, statures = _people_scale(people, skeleton, image_size)
+    face = _indices(skeleton, FACE_JOINTS)
+    found = []
+    for j in shoulders:
+        p = np.asarray(peaks[j], dtype=np.float64).reshape(-1, 3)
+        found.append(p[~_owned(np.full(len(p), j), p[:, :2], people, statures, face)])
+    left, right = found
+    floor = _floor(image_size)
+    if not len(left) or not len(right):
+        return np.zeros((0, 4))
+    scale_l = local_stature(left[:, :2], centres, statures, image_size)
+    scale_r = local_stature(right[:, :2], centres, statures, image_size)
+    free = np.ones(len(right), dtype=bool)
+    out = []
+    for i in np.argsort(-left[:, 2], kind="stable"):
+        h = float(scale_l[i])
+        d = np.hypot(*(right[:, :2] - left[i, :2]).T) if len(right) else np.zeros(0)
+        near = np.flatnonzero(free & (d <= 1.5 * SHOULDER_WIDTH * h))
+        if not len(near):
+            continue
+        k = near[np.argmax(right[near, 2])]
+        free[k] = False
+        pair = np.array([left[i, :2], right[k, :2]])
+        h = float(np.mean([h, scale_r[k]]))
+        centre = _above_shoulders(np.column_stack([pair, [2.0, 2.0]]), [0, 1], [], h)
+        out.append([*centre, max(floor, HALF_WIDTH * h), max(floor, HALF_HEIGHT * h)])
+    return np.array(out, dtype=np.float64).reshape(-1, 4)
+
+
 def _owned(kinds: np.ndarray, xy: np.ndarray, people: Sequence[np.ndarray],
            statures: np.ndarray, face: list[int]) -> np.ndarray:
     """``(n,)`` bool: which peaks a labelled person owns (see :func:`map_head_ellipses`):
@@ -1015,6 +1090,8 @@ def place_regions(people: Sequence[np.ndarray], skeleton: Skeleton,
     if peaks is not None:
         for e in map_head_ellipses(peaks, people, skeleton, image_size, head_peaks,
                                    unexplained):
+            pieces.append(_Piece(e, None, min(e[2], e[3]) / 2, "maps", None))
+        for e in shoulder_head_ellipses(peaks, people, skeleton, image_size):
             pieces.append(_Piece(e, None, min(e[2], e[3]) / 2, "maps", None))
         if mode == "people":
             for kp in map_people or ():
