@@ -610,9 +610,14 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
     faint head, each too weak to be a peak, still show where the head reaches (a face seen
     side on spans from the nose to the far ear). Only a head found by the face sum alone is
     widened so (none of its landmarks a peak of its own channel): a head whose landmarks show
-    on their own is placed by them. A head whose only landmark peak is an ear reaches a
-    head's width past it on both sides (:func:`_past_ears`: nothing here says on which side
-    of the ear the head lies).
+    on their own is placed by them. A head found by the face sum alone whose strongest peak
+    lies within a labelled person's legs (the convex hull of their labelled hips, knees and
+    ankles) is no head: people stand on one floor, so a visible head never lies among the
+    legs of a person in front (in the demo such peaks are the sum of five channels' noise,
+    and sized by the floor below the people's heads they blurred up to 5 % of a frame; a
+    face the camera sees there is still the detector's). A head whose only landmark peak is
+    an ear reaches a head's width past it on both sides (:func:`_past_ears`: nothing here
+    says on which side of the ear the head lies).
 
     Examples
     --------
@@ -639,9 +644,13 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
     scale = local_stature(xy, centres, statures, image_size)
     floor = _floor(image_size)
     out = []
+    legs = _legs(people, skeleton)
     for members in _heads(xy, score, SAME_HEAD * scale):
         seed = members[0]
         faint = not (kinds[members] >= 0).any()  # no landmark seen on its own
+        if faint and any(cv2.pointPolygonTest(leg, (float(xy[seed, 0]), float(xy[seed, 1])),
+                                              False) >= 0 for leg in legs):
+            continue
         extent = (unexplained.extent(xy[seed], SAME_HEAD * scale[seed])
                   if unexplained is not None and faint else None)
         stature = float(np.median(scale[members]))
@@ -723,6 +732,20 @@ def shoulder_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndar
         centre = _above_shoulders(np.column_stack([pair, [2.0, 2.0]]), [0, 1], [], h)
         out.append([*centre, max(floor, HALF_WIDTH * h), max(floor, HALF_HEIGHT * h)])
     return np.array(out, dtype=np.float64).reshape(-1, 4)
+
+
+def _legs(people: Sequence[np.ndarray], skeleton: Skeleton) -> list[np.ndarray]:
+    """Each labelled person's legs: the convex hull of their labelled hips, knees and ankles
+    (three at least), ``(m, 1, 2)`` float32 as OpenCV takes it."""
+    legs = _indices(skeleton, ("left_hip", "right_hip", "left_knee", "right_knee",
+                               "left_ankle", "right_ankle"))
+    out = []
+    for person in people:
+        kp = np.asarray(person, dtype=np.float64)
+        on = [j for j in legs if _labelled(kp)[j]]
+        if len(on) >= 3:
+            out.append(cv2.convexHull(kp[on, :2].astype(np.float32)))
+    return out
 
 
 def _owned(kinds: np.ndarray, xy: np.ndarray, people: Sequence[np.ndarray],

@@ -416,3 +416,20 @@ def test_a_person_the_labels_miss_whose_face_the_maps_lack_is_blurred_above_the_
     out, plan = blur_frame(img, [labelled], SK, maps=_maps([labelled, shown]))
     assert _blurred(img, out, [labelled, missed]).min() == 1.0
     assert any(r.sources == {"maps"} for r in plan.regions)
+
+
+def test_a_faint_face_sum_among_a_labelled_persons_legs_is_no_head():
+    """People stand on one floor, so no visible head lies among the legs of the person in
+    front: a peak of the face sum alone there places nothing; the same peak beside the legs,
+    and a landmark's own peak among them, still do."""
+    from app.review.blur import map_head_ellipses
+
+    person = _standing(200, 60, 300)
+    knee = person[SK.index("left_knee"), :2] + np.array([-10.0, 0.0])
+    peaks = [np.zeros((0, 3))] * 17
+    assert len(map_head_ellipses(peaks, [person], SK, SIZE, np.array([[*knee, 0.25]]))) == 0
+    aside = knee + np.array([120.0, 0.0])
+    assert len(map_head_ellipses(peaks, [person], SK, SIZE, np.array([[*aside, 0.25]]))) == 1
+    peaks = list(peaks)
+    peaks[SK.index("nose")] = np.array([[*knee, 0.5]])
+    assert len(map_head_ellipses(peaks, [person], SK, SIZE)) == 1
