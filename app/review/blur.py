@@ -367,15 +367,16 @@ def _lateral(kp: np.ndarray, on: np.ndarray, skeleton: Skeleton) -> np.ndarray |
 
 def _past_ears(joints: Sequence[int], xy: np.ndarray, lateral: np.ndarray | None,
                stature: float, skeleton: Skeleton) -> np.ndarray | None:
-    """Where the rest of a head seen by one ear alone may reach, ``(n, 2)``, or None.
+    """Where the rest of a head seen by one of its ears may reach, ``(n, 2)``, or None.
 
-    An ear lies at the side of the head, so a head known by a single ear (a back whose far
-    ear is hidden or unlabelled, a profile) reaches up to a head's width, :data:`HEAD_WIDTH`
-    of stature, past it: towards the other ear, i.e. along the body's left-to-right axis
-    from the left ear and against it from the right one (``lateral``, from the shoulders; the
-    head turns on the neck by less than a right angle, so it stays on that side). Without
-    both shoulders, the side is unknown and the head reaches a head's width either way.
-    Two ears (or any eye or the nose) already span the head: None.
+    An ear lies at the side of the head, so a head whose landmarks hold one ear and not the
+    other (a back whose far ear is hidden or unlabelled, a face whose far ear the network
+    missed, a profile) reaches up to a head's width, :data:`HEAD_WIDTH` of stature, past
+    that ear: towards the other ear, i.e. along the body's left-to-right axis from the left
+    ear and against it from the right one (``lateral``, from the shoulders; the head turns on
+    the neck by less than a right angle, so it stays on that side). Without both shoulders,
+    towards the mean of the head's other landmarks (the nose and eyes lie between the ears),
+    and with none, either way along the image's rows. Both ears or none: None.
 
     Examples
     --------
@@ -385,15 +386,25 @@ def _past_ears(joints: Sequence[int], xy: np.ndarray, lateral: np.ndarray | None
     >>> _past_ears([4], np.array([[100.0, 50.0]]), None, 200.0, coco_body())
     array([[ 80.,  50.],
            [120.,  50.]])
+    >>> _past_ears([0, 4], np.array([[110.0, 60.0], [100.0, 60.0]]), None, 200.0, coco_body())
+    array([[120.,  60.]])
     """
     ears = _indices(skeleton, EARS)
-    if len(joints) != 1 or joints[0] not in ears:
+    held = [i for i, j in enumerate(joints) if j in ears]
+    if len(held) != 1:
         return None
+    ear = xy[held[0]]
     step = HEAD_WIDTH * stature
-    if lateral is None:
-        return xy[0] + np.array([[-step, 0.0], [step, 0.0]])
-    sign = 1.0 if joints[0] == ears[0] else -1.0
-    return xy[:1] + sign * step * lateral[None]
+    if lateral is not None:
+        sign = 1.0 if joints[held[0]] == ears[0] else -1.0
+        return (ear + sign * step * lateral)[None]
+    others = np.delete(np.asarray(xy, dtype=np.float64).reshape(-1, 2), held[0], axis=0)
+    if len(others):
+        towards = others.mean(axis=0) - ear
+        length = float(np.hypot(*towards))
+        if length > 0:
+            return (ear + step * towards / length)[None]
+    return ear + np.array([[-step, 0.0], [step, 0.0]])
 
 
 def _statures(people: Sequence[np.ndarray], skeleton: Skeleton) -> np.ndarray:

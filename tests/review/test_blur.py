@@ -433,3 +433,15 @@ def test_a_faint_face_sum_among_a_labelled_persons_legs_is_no_head():
     peaks = list(peaks)
     peaks[SK.index("nose")] = np.array([[*knee, 0.5]])
     assert len(map_head_ellipses(peaks, [person], SK, SIZE)) == 1
+
+
+def test_a_face_whose_far_ear_the_labels_miss_is_blurred_to_that_ear():
+    """Seed 75's miss, synthetic: a dancer facing the camera whose labels hold the nose, the
+    eyes and one ear, not the other ear (which the maps missed): the head reaches a head's
+    width past the labelled ear towards the other shoulder, so the far ear is blurred."""
+    img = _noise(8)
+    truth = _standing(320, 90, 200)
+    labels = truth.copy()
+    labels[SK.index("right_ear"), 2] = 0
+    out, _ = blur_frame(img, [labels], SK)
+    assert _blurred(img, out, [truth])[0] == 1.0
