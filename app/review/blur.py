@@ -287,15 +287,15 @@ def label_head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
     extra: list[tuple[int, np.ndarray]] = []
     statures = _statures(people, skeleton)
     low, high = _bounds(statures)
-    turned = _turned_statures(people, statures, skeleton, image_size)
+    around, widths_only = _around_statures(people, statures, skeleton, image_size)
     for n, person in enumerate(people):
         kp = np.asarray(person, dtype=np.float64)
         on = _labelled(kp)
         if not on.any():
             continue
         stature = float(np.clip(statures[n], low, high))
-        if np.isfinite(turned[n]):
-            stature = max(stature, float(turned[n]))
+        if widths_only[n] and np.isfinite(around[n]):
+            stature = max(stature, float(around[n]))
         face_on = [j for j in face if on[j]]
         shoulders_on = [j for j in shoulders if on[j]]
         if face_on:
@@ -306,7 +306,8 @@ def label_head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
             groups.sort(key=len, reverse=True)  # stable: of equal groups, the nose's first
             lateral = _lateral(kp, on, skeleton)
             ellipses = [_group_ellipse(xy[g], stature, floor, beyond=_past_ears(
-                [face_on[i] for i in g], xy[g], lateral, stature, skeleton)) for g in groups]
+                [face_on[i] for i in g], xy[g], lateral, stature, skeleton),
+                ceiling=around[n]) for g in groups]
             out[n] = ellipses[0]
             extra += [(n, e) for e in ellipses[1:]]
             if shoulders_on and set(face_on) <= set(_indices(skeleton, EARS)):
@@ -329,15 +330,18 @@ def label_head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
 
 def _group_ellipse(xy: np.ndarray, stature: float, floor: float,
                    extent: np.ndarray | None = None,
-                   beyond: np.ndarray | None = None) -> np.ndarray:
+                   beyond: np.ndarray | None = None, ceiling: float = np.nan) -> np.ndarray:
     """The ellipse of one head from its landmarks (see :func:`head_ellipses`); ``extent``:
     faint landmarks (:meth:`Unexplained.extent`), which widen each half-axis to reach them
     with the margin but neither move the centre nor raise the scale; ``beyond``: where the
     rest of a head seen by its ears alone may reach (:func:`_past_ears`): the ellipse
     becomes the one inscribed in the box around the landmarks' ellipse and those points with
-    the margin, so it keeps the landmarks' side and reaches the other."""
+    the margin, so it keeps the landmarks' side and reaches the other. The landmarks' spread
+    over 0.1 raises the scale up to half again, or up to ``ceiling`` (the stature of the
+    people around, :func:`_around_statures`) when that is more."""
     if len(xy) >= 2:
-        stature = max(stature, min(float(np.ptp(xy, axis=0).max()) / 0.1, 1.5 * stature))
+        most = max(1.5 * stature, ceiling) if np.isfinite(ceiling) else 1.5 * stature
+        stature = max(stature, min(float(np.ptp(xy, axis=0).max()) / 0.1, most))
     centre = xy.mean(axis=0) - [0.0, FACE_LIFT * stature]
     margin = REACH_MARGIN * stature
     reach = np.abs(xy - centre).max(axis=0) + margin
@@ -419,22 +423,25 @@ def _statures(people: Sequence[np.ndarray], skeleton: Skeleton) -> np.ndarray:
     return out
 
 
-def _turned_statures(people: Sequence[np.ndarray], statures: np.ndarray, skeleton: Skeleton,
-                     image_size: tuple[int, int]) -> np.ndarray:
-    """``(N,)`` the stature of the people standing where each person whose scale rests on the
-    widths of the torso alone stands (:func:`local_stature` of the others), NaN for the rest.
+def _around_statures(people: Sequence[np.ndarray], statures: np.ndarray, skeleton: Skeleton,
+                     image_size: tuple[int, int]) -> tuple[np.ndarray, np.ndarray]:
+    """``(N,)`` twice: the stature of the people around each person (:func:`local_stature`
+    of the others, NaN with no one else or no labelled joint), and whether the person's own
+    scale rests on the widths of the torso alone.
 
     A torso's widths (shoulders, hips) shorten as a person turns side on, and a dancer turns
     often; its sides (shoulder to hip) do not. When no side of the torso is labelled, the
     person's own scale is a lower bound of their stature (a projection only shortens), and
-    the people around, who stand at about the same depth, tell it better; the head is sized
-    by the larger of the two (:func:`head_ellipses`).
+    the people around, who stand at about the same depth, tell it better: the head is sized
+    by the larger of the two (:func:`head_ellipses`). The people around also bound how far a
+    wide spread of face landmarks may raise a person's scale (a wrong hip or shoulder
+    shrinks a torso, :func:`_group_ellipse`).
     """
     names = {n: i for i, n in enumerate(skeleton.joints)}
     sides = [(names[a], names[b]) for a, b in (("left_shoulder", "left_hip"),
                                                ("right_shoulder", "right_hip"))
              if a in names and b in names]
-    out = np.full(len(people), np.nan)
+    around = np.full(len(people), np.nan)
     places = np.full((len(people), 2), np.nan)
     widths_only = np.zeros(len(people), dtype=bool)
     for n, person in enumerate(people):
@@ -444,11 +451,12 @@ def _turned_statures(people: Sequence[np.ndarray], statures: np.ndarray, skeleto
             places[n] = kp[on, :2].mean(axis=0)
             widths_only[n] = np.isfinite(statures[n]) and not any(on[a] and on[b]
                                                                   for a, b in sides)
-    for n in np.flatnonzero(widths_only):
+    for n in np.flatnonzero(np.isfinite(places).all(axis=1)):
         others = np.arange(len(people)) != n
-        out[n] = local_stature(places[n][None], places[others], statures[others],
-                               image_size)[0] if np.isfinite(statures[others]).any() else np.nan
-    return out
+        if (np.isfinite(statures[others]) & (statures[others] > 0)).any():
+            around[n] = local_stature(places[n][None], places[others], statures[others],
+                                      image_size)[0]
+    return around, widths_only
 
 
 def _bounds(statures: np.ndarray) -> tuple[float, float]:

@@ -445,3 +445,19 @@ def test_a_face_whose_far_ear_the_labels_miss_is_blurred_to_that_ear():
     labels[SK.index("right_ear"), 2] = 0
     out, _ = blur_frame(img, [labels], SK)
     assert _blurred(img, out, [truth])[0] == 1.0
+
+
+def test_a_face_wider_than_a_shrunken_torso_allows_is_sized_by_the_people_around():
+    """Seed 76's miss, synthetic: hips labelled close together just under the shoulders (wrong
+    joints) shrink a dancer's torso to well under half their stature; the face landmarks'
+    spread (0.09 of stature, ear to ear) raises the scale only by half, unless the people
+    around say more."""
+    row = [_standing(x, 100, 200) for x in (120, 220, 420, 520)]
+    shrunk = _standing(320, 100, 200)
+    middle = shrunk[[SK.index("left_shoulder"), SK.index("right_shoulder")], :2].mean(axis=0)
+    shrunk[SK.index("left_hip"), :2] = middle + np.array([3.0, 8.0])
+    shrunk[SK.index("right_hip"), :2] = middle + np.array([-3.0, 8.0])
+    alone = head_ellipses([shrunk], SK, SIZE)[0]
+    among = head_ellipses([*row, shrunk], SK, SIZE)[-1]
+    assert alone[3] < 0.8 * 0.115 * 200
+    assert among[3] == pytest.approx(0.115 * 180, abs=0.5)  # the spread says 18 / 0.1
