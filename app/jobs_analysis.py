@@ -13,7 +13,9 @@ import math
 import os
 import shutil
 import tempfile
+import threading
 import time
+from collections import OrderedDict
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -324,6 +326,47 @@ def run_triage(project: Project, progress: Progress | None = None,
     return results
 
 
+#: How many frames' maps (with their memo of line integrals) :func:`_memo_maps` keeps.
+MEMO_FRAMES = 4
+_memos: OrderedDict[tuple[Any, ...], Any] = OrderedDict()
+_memos_lock = threading.Lock()
+
+
+def _memo_maps(path: str | None, frame: Frame, skeleton: Skeleton) -> Any:
+    """The frame's maps in a :class:`~app.analysis.triage.model_evidence.FieldMemo` (None
+    without usable maps), kept for the last :data:`MEMO_FRAMES` frames of this process.
+
+    Triage and the findings share the memo; and when a frame is triaged again after an edit
+    (the walk recomputes its findings after every accept) the maps are not read again and
+    every limb of a person the edit left alone is a line integral already known. The memo's
+    values are those computed from the maps (the maps file is part of the key: a new file,
+    or the same one rewritten, is read afresh), so the results are those of a fresh read."""
+    from app.analysis.triage.model_evidence import FieldMemo
+
+    if path is None or frame.status != "ok":
+        return None
+    try:
+        stat = os.stat(path)
+    except OSError:
+        return _usable_maps(path, frame, skeleton)
+    key = (str(path), stat.st_mtime_ns, stat.st_size, frame.width, frame.height,
+           tuple(skeleton.joints), tuple(map(tuple, skeleton.limbs)))
+    with _memos_lock:
+        memo = _memos.get(key)
+        if memo is not None:
+            _memos.move_to_end(key)
+            return memo
+    maps = _usable_maps(path, frame, skeleton)
+    if maps is None:
+        return None
+    memo = FieldMemo(maps)
+    with _memos_lock:
+        _memos[key] = memo
+        while len(_memos) > MEMO_FRAMES:
+            _memos.popitem(last=False)
+    return memo
+
+
 def _triage_one(item: tuple[Frame, FrameLabels, str | None, Skeleton, bool]) -> tuple[Any, str]:
     """One frame's verdict (with its findings when asked) and the digest of the labels it
     was computed from; run in a worker process (:func:`run_triage`)."""
@@ -333,7 +376,7 @@ def _triage_one(item: tuple[Frame, FrameLabels, str | None, Skeleton, bool]) -> 
 
     frame, labels, maps_path, skeleton, findings = item
     ps = list(labels.people.values())
-    maps = _usable_maps(maps_path, frame, skeleton)
+    maps = _memo_maps(maps_path, frame, skeleton)
     verdict = triage_frame(
         {p.id: p.keypoints for p in ps}, skeleton,
         scores={p.id: p.scores for p in ps}, maps=maps,

@@ -281,7 +281,9 @@ def _carry_fix(project: Project, frame_id: int, applied: Any, claimed: set[int],
 
     changes = [c for c in applied.changes if not isinstance(c.target, StateTarget)]
     try:
-        batch = propose_carry(project, frame_id, changes)
+        # The fix alone (each fix of the frame is carried in turn, as it is accepted), as
+        # far as all of it shows: the batch is taken unseen, without a person to trim it.
+        batch = propose_carry(project, frame_id, changes, whole_person=False)
     except BadInput:
         return []
     if not batch.edits:

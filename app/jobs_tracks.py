@@ -22,7 +22,7 @@ from typing import Any
 
 import numpy as np
 
-from app.analysis.carry import MAX_FRAMES, CarriedBatch, carry_changes
+from app.analysis.carry import MAX_FRAMES, CarriedBatch, by_person, carry_changes
 from app.analysis.tracks import link_tracks
 from app.errors import BadInput
 from app.model.edits import Change
@@ -185,12 +185,39 @@ def sequence_labels(project: Project, frame_id: int) -> tuple[list[FrameLabels],
 
 
 def propose_carry(project: Project, frame_id: int, changes: Seq[Change],
-                  max_frames: int = MAX_FRAMES) -> CarriedBatch:
+                  max_frames: int = MAX_FRAMES, whole_person: bool = True) -> CarriedBatch:
     """The batch that carries a correction of ``frame_id`` (its changes, as applied) to the
     frames around it that show the same error; nothing is changed. What the app calls after
-    each correction, to show where the batch would end."""
+    each correction, to show where the batch would end.
+
+    With ``whole_person`` (the default) what is carried is every correction in effect of the
+    people the correction touched in that frame (:func:`person_changes`), each joint as far
+    as its own error lasts; else the correction alone, as far as all of it lasts."""
+    if whole_person:
+        touched = {getattr(c.target, "person", None) for c in changes} - {None}
+        changes = person_changes(project, frame_id, touched) or list(changes)
     frames, at = sequence_labels(project, frame_id)
-    return carry_changes(changes, frames, at, max_frames)
+    return carry_changes(changes, frames, at, max_frames, each_joint=whole_person)
+
+
+def person_changes(project: Project, frame_id: int, people: Iterable[int]) -> list[Change]:
+    """Every change in effect that the edits of ``frame_id`` made to ``people`` and to the
+    people they exchanged joints with (:func:`app.analysis.carry.by_person`), oldest first:
+    a person's whole correction in that frame, what carrying per person carries. Edits undone
+    are left out, and so are carried batches (they came from another frame) and bulk work."""
+    live: dict[int, list[Any]] = {}
+    for e in sorted(project.history(frame_id), key=lambda e: e.seq):
+        if e.kind in ("edit", "redo") and e.action not in ("Batch", "CarryForward"):
+            live.setdefault(e.group_id, []).append(e)
+        elif e.kind == "undo" and e.reverts is not None:
+            live.pop(e.reverts, None)
+    entries = sorted((e for group in live.values() for e in group), key=lambda e: e.seq)
+    changes = [Change(e.target, e.before, e.after) for e in entries
+               if not isinstance(e.target, StateTarget)]
+    wanted = set(people)
+    return [c for relation in by_person(changes)
+            if wanted & {getattr(c.target, "person", None) for c in relation}
+            for c in relation]
 
 
 def last_correction(project: Project, group: int | None = None) -> tuple[int, int,

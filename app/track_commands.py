@@ -30,14 +30,19 @@ def register(sub: Any, command: Command) -> None:
     from app.cli import whole_number
 
     p = command("carry", cmd_carry,
-                "carry your newest correction (or --action G) to the frames before and after "
-                "it where the same tracks show the same error, as one action")
+                "carry your newest correction (or --action G), with every other correction "
+                "in effect of the same people in that frame, to the frames before and after "
+                "it where the same tracks show the same error, each joint as far as its "
+                "error lasts, as one action")
     p.add_argument("--action", metavar="G", type=whole_number(1),
                    help="the ledger group of the correction (default: your newest edit)")
     p.add_argument("--until", metavar="FRAME", type=whole_number(),
                    help="take the batch only as far as this frame (in its direction)")
     p.add_argument("--dry-run", action="store_true",
                    help="list the frames the batch would change; change nothing")
+    p.add_argument("--this-action-only", action="store_true",
+                   help="carry only that correction, as far as all of it shows, not the "
+                        "people's whole correction in the frame")
     p.add_argument("--json", action="store_true", help="print the batch as JSON")
 
 
@@ -73,7 +78,8 @@ def cmd_carry(args: argparse.Namespace) -> int:
 
     with _open(args, write=not args.dry_run) as project:
         group, frame, changes = last_correction(project, args.action)
-        batch = propose_carry(project, frame, changes).until(args.until)
+        batch = propose_carry(project, frame, changes,
+                              whole_person=not args.this_action_only).until(args.until)
         applied = None if args.dry_run else take_batch(project, batch)
     frames = [g.frame_id for g in batch.edits]
     if args.json:

@@ -65,3 +65,15 @@ def make_project(folder: Path, people: np.ndarray, author: str = "ana"):
 def pid(t: int, p: int) -> int:
     """The person id :func:`make_project` gives dancer ``p`` in frame index ``t``."""
     return 1000 * (t + 1) + p
+
+
+def tracked_frames(people: np.ndarray) -> list:
+    """The frames of ``people`` as in-memory labels (no project: fast), each dancer ``p`` on
+    track ``p + 1`` with the person ids of :func:`make_project`."""
+    from app.model.labels import FrameLabels, Person
+
+    k = people.shape[2]
+    return [FrameLabels(t + 1, coco_body(), {
+        pid(t, p): Person(pid(t, p), people[t, p].copy(), np.full(k, np.nan), ("auto",) * k,
+                          track=p + 1)
+        for p in range(people.shape[1])}) for t in range(len(people))]

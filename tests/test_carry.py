@@ -7,10 +7,16 @@ import json
 import numpy as np
 import pytest
 
-from app.analysis.carry import carry_changes
+from app.analysis.carry import by_person, carry_changes
 from app.cli import main
-from app.jobs_tracks import link_project, propose_carry, sequence_labels, take_batch
-from app.model import ReassignJoint, SwapSides
+from app.jobs_tracks import (
+    link_project,
+    person_changes,
+    propose_carry,
+    sequence_labels,
+    take_batch,
+)
+from app.model import MoveJoint, ReassignJoint, SwapSides
 from app.model.skeleton import coco_body
 from app.store import Project
 from tests import sequences
@@ -118,3 +124,95 @@ def test_carrying_needs_tracks():
     frames[4], changes = Give(5, pid(4, 0), WRIST, pid(4, 1)).apply(frames[4])
     assert carry_changes(changes, frames, 4).edits == ()
     _ = sequence_labels  # the job reads the same frames from a project
+
+
+ELBOW = 7
+
+
+def _one_person_two_errors():
+    """Dancer 0's left wrist exchanged with dancer 1's in frames 4-7 (indices 3-6), and its
+    left elbow dragged a fifth of a body to the left in frames 4-5 only (synthetic)."""
+    people = _people()
+    people[3:5, 0, ELBOW, 0] -= 30.0
+    return people
+
+
+def _correct_frame_4(frames):
+    """Both of dancer 0's errors corrected in frame 4: the wrist given back, the elbow put
+    back; the frame's changes, in order."""
+    truth = sequences.dancers()
+    made = []
+    for edit in (ReassignJoint(4, pid(3, 1), WRIST, pid(3, 0)),
+                 MoveJoint(4, pid(3, 0), ELBOW, *truth[3, 0, ELBOW, :2])):
+        frames[3], changes = edit.apply(frames[3])
+        made.extend(changes)
+    return made
+
+
+def test_a_persons_corrections_are_one_relation_carried_each_joint_as_far_as_it_lasts():
+    """Per person: one batch holds the elbow for frame 5 only (its error ends there) and the
+    wrist for frames 5-7; the batch stops at frame 8, where neither error shows. Carried as a
+    whole instead, the correction stops at frame 6, where the elbow is already right."""
+    frames = sequences.tracked_frames(_one_person_two_errors())
+    made = _correct_frame_4(frames)
+    relations = by_person(made)
+    assert len(relations) == 1  # the wrist's giver is joined to dancer 0's relation
+    whole = carry_changes(relations[0], frames, 3)
+    assert ([g.frame_id for g in whole.edits], whole.stopped_forward) == ([5], 6)
+    batch = carry_changes(relations[0], frames, 3, each_joint=True)
+    assert [g.frame_id for g in batch.edits] == [5, 6, 7]
+    assert (batch.last_forward, batch.stopped_forward, batch.stopped_backward) == (7, 8, 3)
+    for group in batch.edits:
+        k = group.frame_id - 1
+        frames[k], _ = group.apply(frames[k])
+    truth = sequences.dancers()
+    for k in range(12):
+        for p in range(3):
+            # a dragged joint is carried moved along with the body (the dancers' joints
+            # jitter by half a pixel): right within a few pixels
+            assert np.allclose(frames[k].people[pid(k, p)].keypoints[:, :2],
+                               truth[k, p, :, :2], atol=3.0), (k, p)
+    edited = {(k, e.person_id, e.joint) for k, g in enumerate(batch.edits)
+              for e in g.edits}
+    assert (0, pid(4, 0), ELBOW) in edited and (1, pid(5, 0), ELBOW) not in edited
+
+
+def test_each_joint_carrying_stops_at_the_first_frame_where_no_error_shows():
+    """The wrist alone, each joint on its own: still frames 5-7, stopped at 8 (not carried
+    on past the gap to a later frame)."""
+    people = _one_person_two_errors()
+    people[8, [0, 1], WRIST] = people[8, [1, 0], WRIST]  # the exchange again in frame 9
+    frames = sequences.tracked_frames(people)
+    frames[3], changes = ReassignJoint(4, pid(3, 1), WRIST, pid(3, 0)).apply(frames[3])
+    batch = carry_changes(changes, frames, 3, each_joint=True)
+    assert ([g.frame_id for g in batch.edits], batch.stopped_forward) == ([5, 6, 7], 8)
+
+
+def test_people_corrected_apart_are_separate_relations():
+    frames = sequences.tracked_frames(_one_person_two_errors())
+    made = _correct_frame_4(frames)
+    truth = sequences.dancers()
+    frames[3], more = MoveJoint(4, pid(3, 2), 0, *(truth[3, 2, 0, :2] + 1)).apply(frames[3])
+    assert [len(r) for r in by_person(made + more)] == [len(made), len(more)]
+
+
+def test_the_app_carries_a_persons_whole_correction_in_the_frame(tmp_path):
+    """In a project: after the wrist is given back and then the elbow put back in frame 4,
+    the proposal from the newest correction (the elbow) carries both, each joint as far as
+    its error lasts; an undone correction is no longer part of it; the earlier way (the
+    action alone) stops where the elbow comes right."""
+    project, _ = sequences.make_project(tmp_path, _one_person_two_errors())
+    truth = sequences.dancers()
+    with project:
+        link_project(project)
+        project.apply(ReassignJoint(4, pid(3, 1), WRIST, pid(3, 0)))
+        elbow = project.apply(MoveJoint(4, pid(3, 0), ELBOW, *truth[3, 0, ELBOW, :2]))
+        batch = propose_carry(project, 4, elbow.changes)
+        assert ([g.frame_id for g in batch.edits], batch.stopped_forward) == ([5, 6, 7], 8)
+        alone = propose_carry(project, 4, elbow.changes, whole_person=False)
+        assert [g.frame_id for g in alone.edits] == [5]
+        project.undo()  # the elbow
+        project.apply(MoveJoint(4, pid(3, 2), 0, *truth[3, 2, 0, :2]))  # another person
+        wrist = person_changes(project, 4, [pid(3, 0)])
+        assert {(c.target.person, c.target.joint) for c in wrist} == {
+            (pid(3, 0), WRIST), (pid(3, 1), WRIST)}

@@ -10,6 +10,13 @@ on, stopping at the first frame where the error is absent. The same runs backwar
 ``t - 1``. What is proposed is one batch, for the annotator to take, trim or leave with one
 key (:meth:`app.store.project.Project.apply_batch` applies it as one undo step).
 
+What the app and ``posewright carry`` carry is a person's whole correction: every change in
+effect made in that frame to the people the newest correction touched (and to the people they
+exchanged joints with; :func:`by_person` splits a frame's changes so), with ``each_joint``:
+each joint, with the joint it was exchanged with, and a side swap as a whole, is carried as
+far as its own error lasts, since a person's wrong joints seldom come right on the same frame;
+the batch ends at the first frame where none of them shows.
+
 Each changed joint ``(P, j)`` of the correction is one of
 
 - a *copy*: its new value is the old value of a joint ``(Q, k)`` the correction also changed
@@ -253,23 +260,58 @@ def _by_track(labels: FrameLabels) -> dict[int, Person]:
     return {p.track: p for p in labels.people.values() if p.track is not None}
 
 
+def _units(steps: Sequence[_Step]) -> list[list[_Step]]:
+    """The steps in units that carry together: a joint and the joint it was copied from (a
+    joint given over and the one handed back), so that half of an exchange is never carried
+    alone, and every exchange within one body (a side swap) as one unit, judged as a whole
+    (:data:`WHOLE`). Units keep the steps' order."""
+    parent = {(s.person, s.joint): (s.person, s.joint) for s in steps}
+    parent.update({(s.person, -1): (s.person, -1) for s in steps})
+
+    def root(key: tuple[int, int]) -> tuple[int, int]:
+        while parent[key] != key:
+            key = parent[key]
+        return key
+
+    for s in steps:
+        if s.source is not None and s.source in parent:
+            parent[root((s.person, s.joint))] = root(s.source)
+            if s.source[0] == s.person:
+                parent[root((s.person, s.joint))] = root((s.person, -1))
+    out: dict[tuple[int, int], list[_Step]] = {}
+    for s in steps:
+        out.setdefault(root((s.person, s.joint)), []).append(s)
+    return list(out.values())
+
+
 def _carry_once(steps: list[_Step], deleted: list[int], before: FrameLabels,
-                after: FrameLabels, there: FrameLabels) -> tuple[list[Edit], list[_Step],
-                                                                  list[int]] | None:
+                after: FrameLabels, there: FrameLabels, each_joint: bool = False
+                ) -> tuple[list[Edit], list[_Step], list[int]] | None:
     """The correction's edits in ``there`` when it shows the same error, with the steps and
-    deletions as they are there (for carrying on); None when the error is absent."""
+    deletions as they are there (for carrying on); None when the error is absent.
+
+    With ``each_joint``, each unit of the correction (:func:`_units`; a deleted person) is
+    judged alone: the units whose error shows there are carried, the others dropped (their
+    error ended); None only when no unit's error shows."""
     people = _by_track(there)
     going_on = {p.track for p in after.people.values() if p.track is not None}
     who: dict[int, Person] = {}
     for pid in sorted({s.person for s in steps} | {s.source[0] for s in steps if s.source}
                       | set(deleted)):
         known = after.people.get(pid) or before.people.get(pid)
-        if known is None or known.track is None:
-            return None
-        found = people.get(known.track) or _follow(known, there, going_on, who.values())
+        found = None
+        if known is not None and known.track is not None:
+            found = people.get(known.track) or _follow(known, there, going_on, who.values())
         if found is None:
-            return None
+            if not each_joint:
+                return None
+            continue
         who[pid] = found
+    if each_joint:
+        steps = [s for unit in _units(steps)
+                 if all(s.person in who and (s.source is None or s.source[0] in who)
+                        for s in unit) for s in unit]
+        deleted = [pid for pid in deleted if pid in who]
     holders: dict[int, Person] = {}
     for s in steps:
         if s.holder is not None and s.holder[0] not in who:
@@ -292,8 +334,14 @@ def _carry_once(steps: list[_Step], deleted: list[int], before: FrameLabels,
         u = _motion(ref, p.keypoints, set())
         size = _size(before.people[pid].keypoints) if pid in before.people else 0.0
         if u is None or size <= 0:
-            return None
+            if not each_joint:
+                return None
+            continue
         motion[pid] = (u, size)
+    if each_joint:
+        steps = [s for unit in _units(steps)
+                 if all(s.person in motion and (s.source is None or s.source[0] in motion)
+                        for s in unit) for s in unit]
 
     def stands(pid: int, j: int, old: tuple[float, float, int],
                new: tuple[float, float, int] | None = None,
@@ -322,21 +370,33 @@ def _carry_once(steps: list[_Step], deleted: list[int], before: FrameLabels,
         return bool(off < np.hypot(x - new[0] - u[0], y - new[1] - u[1]))
 
     olds = {(s.person, s.joint): s.before for s in steps}
-    copies = [s for s in steps if s.kind == "copy"]
-    if len(copies) >= WHOLE:
-        # Many joints exchanged at once (a side swap, a chain given over): judged together,
-        # so that one joint near the body's middle does not decide for all.
-        if not _stand_together(copies, who, motion):
+
+    def shows(group: list[_Step]) -> bool:
+        """Whether the error these steps corrected shows there."""
+        copies = [s for s in group if s.kind == "copy"]
+        if len(copies) >= WHOLE:
+            # Many joints exchanged at once (a side swap, a chain given over): judged
+            # together, so that one joint near the body's middle does not decide for all.
+            if not _stand_together(copies, who, motion):
+                return False
+            alone = [s for s in group if s.kind != "copy"]
+        else:
+            alone = group
+        for s in alone:
+            if not stands(s.person, s.joint, s.before,
+                          s.after if s.kind in ("move", "copy") else None, s.holder):
+                return False
+            if s.source and s.source in olds and not stands(s.source[0], s.source[1],
+                                                            olds[s.source]):
+                return False
+        return True
+
+    if each_joint:
+        steps = [s for unit in _units(steps) if shows(unit) for s in unit]
+        if not steps and not deleted:
             return None
-        steps_alone = [s for s in steps if s.kind != "copy"]
-    else:
-        steps_alone = steps
-    for s in steps_alone:
-        if not stands(s.person, s.joint, s.before,
-                      s.after if s.kind in ("move", "copy") else None, s.holder):
-            return None
-        if s.source and not stands(s.source[0], s.source[1], olds[s.source]):
-            return None
+    elif not shows(steps):
+        return None
     edits: list[Edit] = []
     new_steps = []
     for s in steps:
@@ -411,7 +471,7 @@ def _stand_together(copies: Sequence[_Step], who: dict[int, Person],
 
 
 def carry_changes(changes: Sequence[Change], frames: Sequence[FrameLabels], at: int,
-                  max_frames: int = MAX_FRAMES) -> CarriedBatch:
+                  max_frames: int = MAX_FRAMES, each_joint: bool = False) -> CarriedBatch:
     """Carry a correction of ``frames[at]`` to the frames around it that show the same error.
 
     Parameters
@@ -426,6 +486,12 @@ def carry_changes(changes: Sequence[Change], frames: Sequence[FrameLabels], at: 
         The index of the corrected frame.
     max_frames
         The most frames carried to in each direction.
+    each_joint
+        Carry each joint (with the joint it was exchanged with, if any) as far as its own
+        error lasts, rather than the whole correction as far as all of it lasts: what
+        carrying a person's corrections (:func:`by_person`) does, since a person's wrong
+        joints rarely come right on the same frame. The batch then ends at the first frame
+        where none of the errors shows.
 
     Returns
     -------
@@ -450,7 +516,7 @@ def carry_changes(changes: Sequence[Change], frames: Sequence[FrameLabels], at: 
         k = at + step
         while 0 <= k < len(frames) and len(groups) < max_frames:
             there = frames[k]
-            carried = _carry_once(steps, deleted, before, after, there)
+            carried = _carry_once(steps, deleted, before, after, there, each_joint)
             if carried is None:
                 stopped = there.frame_id
                 break
@@ -472,3 +538,49 @@ def carry_changes(changes: Sequence[Change], frames: Sequence[FrameLabels], at: 
     back, last_back, stop_back = found[-1]
     fwd, last_fwd, stop_fwd = found[1]
     return CarriedBatch(origin, tuple(back + fwd), last_fwd, last_back, stop_fwd, stop_back)
+
+
+def by_person(changes: Sequence[Change]) -> list[list[Change]]:
+    """A frame's corrections split into one relation per person: every change made to a
+    person's joints (or the person deleted), in order, together with the changes of the
+    people it exchanged joints with (a joint given over changes the giver too). What is
+    carried as one batch per person (``carry_changes(..., each_joint=True)``) once a person
+    is corrected. Changes of neither joints nor people (notes, regions) are left out.
+
+    >>> from app.model.targets import JointTarget
+    >>> give = [Change(JointTarget(1, 9), (5, 5, 2), (9, 9, 2)),
+    ...         Change(JointTarget(2, 9), (9, 9, 2), (5, 5, 2))]
+    >>> drag = [Change(JointTarget(3, 7), (0, 0, 2), (1, 1, 2))]
+    >>> [len(r) for r in by_person(give + drag + [Change(JointTarget(1, 10), (4, 4, 2),
+    ...                                                  (4, 4, 0))])]
+    [3, 1]
+    """
+    firsts: dict[tuple[int, int], tuple[float, float]] = {}
+    for ch in changes:
+        t = ch.target
+        if isinstance(t, JointTarget) and (t.person, t.joint) not in firsts:
+            firsts[(t.person, t.joint)] = _xyv(ch.before)[:2]
+    parent: dict[int, int] = {}
+
+    def root(p: int) -> int:
+        parent.setdefault(p, p)
+        while parent[p] != p:
+            p = parent[p]
+        return p
+
+    for ch in changes:
+        t = ch.target
+        if not isinstance(t, (JointTarget, PersonTarget)):
+            continue
+        root(t.person)
+        if isinstance(t, JointTarget) and ch.after is not None:
+            new = _xyv(ch.after)[:2]
+            for (q, _), old in firsts.items():
+                if q != t.person and not any(np.isnan(new)) and _close(old, new):
+                    parent[root(t.person)] = root(q)
+    out: dict[int, list[Change]] = {}
+    for ch in changes:
+        t = ch.target
+        if isinstance(t, (JointTarget, PersonTarget)):
+            out.setdefault(root(t.person), []).append(ch)
+    return list(out.values())

@@ -13,14 +13,24 @@ takes one action at a time (:func:`next_action`), each one edit of the app:
    :class:`~app.model.edits.ReassignJoint`, which hands the wrong one back), else place it at
    the dancer's joint, or mark it unlabeled when the dancer's joint is not labelled.
 
-*Frame by frame* counts every such action. *With carrying*, after each action the
-correction is carried forward (:func:`app.analysis.carry.carry_changes`, the people linked
-into tracks by :func:`app.analysis.tracks.link_tracks` first); the annotator looks at the
-batch and takes it as far as it helps (each carried frame's edits remove a wrong joint, add
-none and lose no correct one; the first frame where they do not is where the batch is
-trimmed), which is one more action, when it spans at least :data:`MIN_BATCH` frames (a batch
-of one frame spares nothing; it is left alone and the frame fixed when its turn comes). Frames
-later in the dance then start with fewer errors.
+*Frame by frame* counts every such action. *With carrying*, once the oracle has fixed a
+frame, each person's corrections there (:func:`app.analysis.carry.by_person`: every change
+made to a person, with those of the people it exchanged joints with) are carried forward as
+one batch (:func:`app.analysis.carry.carry_changes` with ``each_joint``: each joint as far as
+its own error lasts), the people linked into tracks by :func:`app.analysis.tracks.link_tracks`
+first, as the app proposes them (:func:`app.jobs_tracks.propose_carry`). The annotator looks
+at the batch and takes it as far as it helps (each carried frame's edits remove a wrong
+joint, add none and lose no correct one; the first frame where they do not is where the batch
+is trimmed), which is one more action, when that spares actions: a batch over at least
+:data:`MIN_BATCH` frames, or over one frame whose edits spare at least two of the oracle's
+actions there (a batch that spares one action costs one; it is left alone and the frame fixed
+when its turn comes). Frames later in the dance then start with fewer errors. With
+``per="action"`` (``--per action``) each action is carried alone right after it, as far as
+all of it lasts: the earlier way, kept for comparison.
+
+:func:`persistence` (``--persistence``) says how long the auto-labels' wrong joints last from
+frame to frame, which bounds what any carrying can spare: a correction is carried only to
+frames where its error shows.
 
 ``python -m app.demo.carrying --seeds 31-33 --shipped --cache /tmp/demos`` prints the table
 of the README's "Sequences" section.
@@ -39,11 +49,12 @@ from typing import Any
 import numpy as np
 from scipy.optimize import linear_sum_assignment
 
-from app.analysis.carry import carry_changes
+from app.analysis.carry import CarriedBatch, by_person, carry_changes
 from app.analysis.similarity import oks_matrix
 from app.analysis.tracks import link_tracks
 from app.demo.evaluate import KS_CORRECT, judge_joints
 from app.model.edits import (
+    Change,
     DeletePerson,
     Edit,
     EditGroup,
@@ -206,7 +217,8 @@ def with_tracks(frames: Sequence[FrameLabels]) -> list[FrameLabels]:
 
 
 def count_actions(frames: Sequence[FrameLabels], truth: Sequence[np.ndarray],
-                  areas: Sequence[np.ndarray], demo: str = "") -> ActionCount:
+                  areas: Sequence[np.ndarray], demo: str = "",
+                  per: str = "person") -> ActionCount:
     """Actions to fix every wrong labelled joint of a sequence, frame by frame and with
     carrying forward (see the module docstring).
 
@@ -218,6 +230,11 @@ def count_actions(frames: Sequence[FrameLabels], truth: Sequence[np.ndarray],
         Per frame, the true poses ``(M, K, 3)`` and their areas ``(M,)``.
     demo
         A name for the row.
+    per
+        ``"person"``: once a frame is fixed, each person's corrections are carried as one
+        batch, each joint as far as its own error lasts (:func:`app.analysis.carry.by_person`);
+        ``"action"``: each action is carried alone, right after it, as far as all of it
+        lasts (the earlier way, kept for comparison).
     """
     wrong_before = sum(_wrong(f, t, a) for f, t, a in zip(frames, truth, areas, strict=True))
     plain = repeated = 0
@@ -233,31 +250,55 @@ def count_actions(frames: Sequence[FrameLabels], truth: Sequence[np.ndarray],
     corrections = batches = carried = 0
     for i in range(len(labels)):
         t, a = truth[i], areas[i]
+        made: list[Change] = []
         while corrections < MAX_ACTIONS * len(labels):
             edit = next_action(labels[i], t, a)
             if edit is None:
                 break
             labels[i], changes = edit.apply(labels[i])
             corrections += 1
-            batch = carry_changes(changes, labels, i)
-            staged: dict[int, FrameLabels] = {}
-            for group in batch.edits:
-                k = next(n for n, f in enumerate(labels) if f.frame_id == group.frame_id)
-                if k < i:
-                    continue  # frames already fixed: the error is absent there
-                after = _helps(group, labels[k], truth[k], areas[k])
-                if after is None:
-                    break
-                staged[k] = after
-            # A batch of one frame spares nothing (taking it is an action too): left alone.
-            if len(staged) >= MIN_BATCH:
-                for k, after in staged.items():
-                    labels[k] = after
-                batches += 1
-                carried += len(staged)
+            if per == "action":
+                taken = _take(carry_changes(changes, labels, i), labels, i, truth, areas)
+                batches += taken > 0
+                carried += taken
+            else:
+                made.extend(changes)
+        for relation in by_person(made) if per == "person" else ():
+            taken = _take(carry_changes(relation, labels, i, each_joint=True), labels, i,
+                          truth, areas)
+            batches += taken > 0
+            carried += taken
     left_carry = sum(_wrong(f, t, a) for f, t, a in zip(labels, truth, areas, strict=True))
     return ActionCount(demo, wrong_before, plain, corrections + batches, corrections, batches,
                        carried, left_plain, left_carry, repeated)
+
+
+def _take(batch: CarriedBatch, labels: list[FrameLabels], i: int,
+          truth: Sequence[np.ndarray], areas: Sequence[np.ndarray]) -> int:
+    """The annotator's look at a batch proposed from frame ``i``: its later frames taken in
+    order as far as each helps (:func:`_helps`), when that spares actions: at least
+    :data:`MIN_BATCH` frames, or one frame whose carried edits spare at least two of the
+    oracle's actions there (counted by fixing that frame with and without them). Applies
+    what is taken to ``labels``; returns the number of frames taken (0: left alone)."""
+    staged: dict[int, FrameLabels] = {}
+    for group in batch.edits:
+        k = next(n for n, f in enumerate(labels) if f.frame_id == group.frame_id)
+        if k < i:
+            continue  # frames already fixed: the error is absent there
+        after = _helps(group, labels[k], truth[k], areas[k])
+        if after is None:
+            break
+        staged[k] = after
+    if len(staged) < MIN_BATCH:
+        # Taking a batch is an action too: a short one is left alone unless it spares more.
+        spared = sum(len(_fix_frame(labels[k], truth[k], areas[k])[1])
+                     - len(_fix_frame(after, truth[k], areas[k])[1])
+                     for k, after in staged.items())
+        if spared < 2:
+            return 0
+    for k, after in staged.items():
+        labels[k] = after
+    return len(staged)
 
 
 def _helps(group: EditGroup, labels: FrameLabels, truth: np.ndarray,
@@ -352,13 +393,102 @@ def why_not_carried(frames: Sequence[FrameLabels], truth: Sequence[np.ndarray],
     return out
 
 
-def demo_count(folder: str | Path, demo: str = "") -> ActionCount:
+def demo_count(folder: str | Path, demo: str = "", per: str = "person") -> ActionCount:
     """:func:`count_actions` on a generated demo (built into a project the first time)."""
     from app.demo.calibrate import demo_frames
 
     frames = demo_frames(folder)
     return count_actions([f.labels for f in frames], [f.truth for f in frames],
-                         [f.areas for f in frames], demo)
+                         [f.areas for f in frames], demo, per)
+
+
+@dataclass(frozen=True)
+class Persistence:
+    """How long the auto-labels' wrong joints last on a demo (:func:`persistence`)."""
+
+    demo: str
+    #: Wrong labelled joints whose dancer is labelled in the next frame too.
+    wrong: int
+    #: Of those, the same joint of the same dancer wrong in the next frame.
+    same_joint_next: int
+    #: Of those, some joint of the same dancer wrong in the next frame.
+    same_dancer_next: int
+    #: Runs of consecutive frames a dancer's joint is wrong, and their frames in all.
+    runs: int
+    run_frames: int
+
+    @property
+    def joint_share(self) -> float:
+        return self.same_joint_next / max(self.wrong, 1)
+
+    @property
+    def dancer_share(self) -> float:
+        return self.same_dancer_next / max(self.wrong, 1)
+
+    @property
+    def mean_run(self) -> float:
+        return self.run_frames / max(self.runs, 1)
+
+
+def _truth_tracks(folder: Path) -> list[list[int]]:
+    """Per frame of :func:`app.demo.calibrate.demo_frames`, the true poses' ``track_id``s in
+    the order of its truth arrays."""
+    from app.fileio import read_json
+    from app.jobs import SOURCES_NAME
+    from app.store.project import Project
+
+    sources = read_json(folder / SOURCES_NAME, "the project sources")
+    truth = read_json(folder / sources["truth"], "the true poses")
+    image_of = {im["file_name"]: im["id"] for im in truth["images"]}
+    by_image: dict[int, list[int]] = {}
+    for ann in truth["annotations"]:
+        by_image.setdefault(ann["image_id"], []).append(int(ann.get("track_id", -1)))
+    with Project.open(folder, read_only=True) as project:
+        return [by_image.get(image_of[Path(f.file_name).name], []) for f in project.frames()]
+
+
+def persistence(folder: str | Path, demo: str = "") -> Persistence:
+    """How the wrong joints of a demo's auto-labels last from frame to frame, per true dancer
+    (``track_id``) and joint, wrong as :func:`app.demo.evaluate.judge_joints` judges: what
+    bounds carrying, since a correction is carried only to frames where its error shows."""
+    from app.demo.calibrate import demo_frames
+
+    folder = Path(folder)
+    frames = demo_frames(folder)
+    ids = _truth_tracks(folder)
+    wrong_at: list[dict[int, set[int]]] = []
+    for f, tracks in zip(frames, ids, strict=True):
+        order, verdict = _judge(f.labels, f.truth, f.areas)
+        pairs = _pairs(f.labels, order, f.truth, f.areas)
+        here: dict[int, set[int]] = {tid: set() for tid in tracks}
+        for n, p in enumerate(order):
+            if p in pairs:
+                here[tracks[pairs[p]]] |= set(np.flatnonzero(verdict[n] == -1).tolist())
+        wrong_at.append(here)
+    return runs_of(wrong_at, demo)
+
+
+def runs_of(wrong_at: Sequence[dict[int, set[int]]], demo: str = "") -> Persistence:
+    """:class:`Persistence` from, per frame, each dancer's wrong joints (dancer -> joints;
+    a dancer absent from a frame has no entry).
+
+    >>> r = runs_of([{1: {9}}, {1: {9, 10}}, {1: set()}, {1: {9}}])
+    >>> (r.wrong, r.same_joint_next, r.same_dancer_next, r.runs, r.run_frames)
+    (3, 1, 1, 3, 4)
+    """
+    wrong = joint = dancer = runs = run_frames = 0
+    for t, here in enumerate(wrong_at):
+        after = wrong_at[t + 1] if t + 1 < len(wrong_at) else {}
+        before = wrong_at[t - 1] if t else {}
+        for tid, joints in here.items():
+            run_frames += len(joints)
+            runs += len(joints - before.get(tid, set()))
+            if tid not in after:
+                continue
+            wrong += len(joints)
+            joint += len(joints & after[tid])
+            dancer += len(joints) if after[tid] else 0
+    return Persistence(demo, wrong, joint, dancer, runs, run_frames)
 
 
 def format_table(rows: Sequence[ActionCount]) -> str:
@@ -383,12 +513,26 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser.add_argument("--cache", default="/tmp/posewright-demos",
                         help="where demos are generated (once)")
     parser.add_argument("--json", action="store_true")
+    parser.add_argument("--per", choices=("person", "action"), default="person",
+                        help="carry each person's corrections once a frame is fixed (the "
+                             "default), or each action alone as it is made")
+    parser.add_argument("--persistence", action="store_true",
+                        help="instead, how long the auto-labels' wrong joints last")
     parser.add_argument("--why", action="store_true",
                         help="instead, why each frame-by-frame action is or is not carried")
     args = parser.parse_args(argv)
     targets: list[tuple[str, int | None]] = [(f"seed {s}", s) for s in _seeds(args.seeds)]
     if args.shipped:
         targets.insert(0, ("shipped (seed 1966)", None))
+    if args.persistence:
+        print("| demo | wrong joints (dancer seen next frame) | same joint wrong next frame | "
+              "some joint of the dancer wrong next frame | mean run of a wrong joint |\n"
+              "|---|---:|---:|---:|---:|")
+        for name, seed in targets:
+            r = persistence(demo_folder(args.cache, seed), name)
+            print(f"| {name} | {r.wrong:,} | {r.joint_share:.0%} | {r.dancer_share:.0%} | "
+                  f"{r.mean_run:.2f} frames |")
+        return 0
     if args.why:
         from app.demo.calibrate import demo_frames
 
@@ -406,7 +550,8 @@ def main(argv: Sequence[str] | None = None) -> int:
             print(f"| {reason} | {n:,} | {n / max(total, 1):.0%} |")
         print(f"| all | {total:,} | |")
         return 0
-    rows = [demo_count(demo_folder(args.cache, seed), name) for name, seed in targets]
+    rows = [demo_count(demo_folder(args.cache, seed), name, args.per)
+            for name, seed in targets]
     seeds = [r for r, (_, seed) in zip(rows, targets, strict=True) if seed is not None]
     total = ActionCount(f"**seeds {args.seeds}**", *(sum(getattr(r, f) for r in seeds) for f in (
         "wrong_before", "frame_by_frame", "carrying", "corrections", "batches",

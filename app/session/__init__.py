@@ -7,7 +7,8 @@
   the candidates', and what a give would swap.
 - :mod:`app.session.settling`: a disputed frame's differences, their order and their words.
 - :mod:`app.session.view`: what the Canvas shows: the people in tag order, their flags and
-  colours, and its modes (region, pick, focus).
+  colours, its modes (region, pick, focus), and on a disputed frame ours or the reviewer's
+  version with the marks where they differ.
 - :mod:`app.session.selection`: what is selected; :mod:`app.session.events`: plain events.
 
 The window (``app/ui``) shows what the session says and turns gestures into its intents;

@@ -133,8 +133,9 @@ class Session:
     def read_dispute(self, frame: Frame, ours: Sequence[Person],
                      settles: bool = True) -> Dispute | None:
         """Read the shown frame's open differences when it is disputed and ``settles`` (the
-        main project settles; a reviewer does not). A damaged alternative is logged and
-        read as none: it must not stop the annotator."""
+        main project settles; a reviewer does not), and give the view the reviewer's version
+        and the marks (:meth:`app.session.view.View.set_dispute`). A damaged alternative is
+        logged and read as none: it must not stop the annotator."""
         dispute = None
         if settles and frame.state is FrameState.DISPUTED:
             try:
@@ -142,6 +143,11 @@ class Session:
             except PosewrightError:
                 log.exception("reading the differences of frame %s failed", frame.id)
         self.dispute = dispute
+        if dispute is None:
+            self.view.set_dispute(None)
+        else:
+            self.view.set_dispute(dispute.theirs, dispute.ours_marks, dispute.theirs_marks,
+                                  dispute.who)
         return dispute
 
     def read_blurred(self, frame_id: int) -> BlurredFrame | None:

@@ -2,8 +2,9 @@
 the joints that differ, the order to walk them in, and the words for each difference.
 
 Built on :mod:`app.review.settle` (which finds the differences and makes the settling edits);
-no Qt here. The window turns a :class:`Dispute` into Canvas marks and routes the settling
-actions to the back end.
+no Qt here. :meth:`app.session.session.Session.read_dispute` hands a :class:`Dispute`'s
+versions and marks to the view (:meth:`app.session.view.View.set_dispute`), which the Canvas
+draws; the window routes the settling actions to the back end.
 """
 
 from __future__ import annotations
@@ -15,11 +16,10 @@ import numpy as np
 
 from app.model.labels import Person
 from app.review.settle import JointDifference, PersonDifference, differences, theirs_labels
+from app.session.view import Marks
 from app.store import Project
 
 __all__ = ["Dispute", "describe_difference", "load_dispute", "step_difference"]
-
-Marks = dict[tuple[int, int], tuple[float, float] | None]
 
 _WORD = {0: "unlabelled", 1: "occluded", 2: "visible"}
 

@@ -357,7 +357,9 @@ class Timeline:
                 max_frames: int = MAX_FRAMES) -> CarriedBatch | None:
         """Carry a correction just made in ``frame_id`` (its changes, as applied) to the
         frames around it, nothing changed, and mark the batch as proposed; None (and no
-        marks) when the frame is in no sequence or the correction shows nowhere else. What
+        marks) when the frame is in no sequence or the correction shows nowhere else. What is
+        carried is the whole correction of the people it touched in that frame, each joint as
+        far as its own error lasts (:func:`app.jobs_tracks.person_changes`). What
         :meth:`propose_work`, :meth:`begin_proposal` and :meth:`offer` do in turn."""
         work = self.propose_work(frame_id, changes, max_frames)
         if work is None:
@@ -386,7 +388,13 @@ class Timeline:
         project = self.project
 
         def work() -> CarriedBatch:
-            return carry_changes(changes, _LazyLabels(project, window), at - lo, max_frames)
+            # The person's whole correction in this frame, each joint as far as its error
+            # lasts (as app.jobs_tracks.propose_carry does).
+            from app.jobs_tracks import person_changes
+
+            whole = person_changes(project, frame_id, touched) or changes
+            return carry_changes(whole, _LazyLabels(project, window), at - lo, max_frames,
+                                 each_joint=True)
 
         return work
 

@@ -1,10 +1,17 @@
 """What the Canvas shows of a frame, without Qt: its people in tag order, their flags and
-colours, and the Canvas's modes.
+colours, the Canvas's modes, and on a disputed frame which version is shown.
 
 The Canvas is a view of a :class:`View` plus gestures: it paints what the view holds and turns
 clicks and keys into the view's calls (and the selection's, :mod:`app.session.selection`);
 the window reads and sets the modes here. Events (:class:`app.session.events.Events`):
-``people()`` when the people shown changed, ``mode()`` when a mode did.
+``people()`` when the people shown changed (another frame, an edit, the other version of a
+disputed frame), ``mode()`` when a mode did, ``dispute()`` when a disputed frame's marks, its
+reviewer or the version shown did.
+
+A *disputed* frame has two versions: ours (the project's labels) and the reviewer's
+(:attr:`View.theirs`, read by :meth:`app.session.session.Session.read_dispute`). The view
+holds both with their difference marks, shows ours unless asked for the reviewer's
+(:meth:`View.show_theirs`), and shows ours again by itself when the dispute goes away.
 
 The modes:
 
@@ -26,6 +33,15 @@ True
 >>> a.keypoints[0] = (0, 0, 2); b.keypoints[0] = (5, 5, 2)
 >>> v.show([a, b], {}); v.colours, v.number_of(9), v.person(4) is a
 ({4: 0, 9: 1}, 2, True)
+
+A disputed frame: the reviewer moved person 9's first joint.
+
+>>> b2 = Person.blank(9, 17); b2.keypoints[0] = (8, 5, 2)
+>>> v.set_dispute([a, b2], {(9, 0): (8.0, 5.0)}, {(9, 0): (5.0, 5.0)}, "bea")
+>>> v.show_theirs(True), v.person(9) is b2, v.marks, v.ours[1] is b
+(True, True, {(9, 0): (5.0, 5.0)}, True)
+>>> v.set_dispute(None); v.showing_theirs, v.person(9) is b, v.marks
+(False, True, {})
 """
 
 from __future__ import annotations
@@ -43,6 +59,10 @@ PALETTE_SIZE = 7
 
 #: What a pick waits for: ``"merge"`` (the person to merge the selected one into).
 PICKS = ("merge",)
+
+#: Difference marks of a disputed frame: ``(person id, joint)`` of a joint that differs ->
+#: where the other version has it (image pixels), None when it is not labelled there.
+Marks = dict[tuple[int, int], tuple[float, float] | None]
 
 
 class _PersonLike(Protocol):
@@ -129,7 +149,7 @@ def assign_colours(people: Sequence[_PersonLike], keep: Mapping[int, int] | None
 
 class View:
     """The people the Canvas shows (ours, or the reviewer's version of a disputed frame),
-    their triage flags and colours, and its modes."""
+    their triage flags and colours, its modes, and a disputed frame's two versions."""
 
     def __init__(self, palette_size: int = PALETTE_SIZE) -> None:
         self.events = Events()
@@ -143,15 +163,45 @@ class View:
         self.region_mode = False
         self.pick: str | None = None
         self.focus = False
+        #: Our people of the frame, in tag order (what :attr:`people` holds unless the
+        #: reviewer's version is shown).
+        self.ours: list[Any] = []
+        #: A disputed frame: the reviewer's people (in our tag order; someone they deleted is
+        #: an empty placeholder, so tags stay put), None when the frame is not in dispute.
+        self.theirs: list[Any] | None = None
+        #: The marks on our joints that differ (where the reviewer has each) ...
+        self.ours_marks: Marks = {}
+        #: ... and on the reviewer's (where we have each).
+        self.theirs_marks: Marks = {}
+        #: Who reviewed it, as a sentence names them ("" when not in dispute).
+        self.reviewer = ""
+        #: Whether the reviewer's version is the one shown (read-only: nothing is edited).
+        self.showing_theirs = False
 
     # ------------------------------------------------------------------ people
 
+    def open(self, people: Sequence[Any], flags: Mapping[int, frozenset[int]]) -> None:
+        """Another frame: its people, colours given anew, no dispute (until
+        :meth:`set_dispute`), ours shown."""
+        disputed = self.theirs is not None or bool(self.ours_marks)
+        self.theirs, self.ours_marks, self.theirs_marks = None, {}, {}
+        self.reviewer, self.showing_theirs = "", False
+        self.show(people, flags, keep_colours=False)
+        if disputed:
+            self.events.emit("dispute")
+
     def show(self, people: Sequence[Any], flags: Mapping[int, frozenset[int]],
              keep_colours: bool = True) -> None:
-        """Show these people; those already shown keep their colours unless
-        ``keep_colours`` is False (another frame)."""
-        self.people = list(people)
+        """Our people of the frame (after an edit): shown unless the reviewer's version is;
+        those already shown keep their colours unless ``keep_colours`` is False."""
+        self.ours = list(people)
         self.flags = dict(flags)
+        self._present(keep_colours)
+
+    def _present(self, keep_colours: bool = True) -> None:
+        """Show ours, or the reviewer's version when asked."""
+        shown = self.theirs if self.showing_theirs and self.theirs is not None else self.ours
+        self.people = list(shown)
         ids = {p.id for p in self.people}
         keep = {p: c for p, c in self.colours.items() if p in ids} if keep_colours else {}
         self.colours = assign_colours(self.people, keep, self.palette_size)
@@ -195,3 +245,52 @@ class View:
         if bool(on) != self.focus:
             self.focus = bool(on)
             self.events.emit("mode")
+
+    # ------------------------------------------------------------------ a disputed frame
+
+    def set_dispute(self, theirs: Sequence[Any] | None, ours_marks: Marks | None = None,
+                    theirs_marks: Marks | None = None, reviewer: str = "") -> None:
+        """The differences of the frame shown (after any change), or None for ``theirs`` when
+        it is not in dispute.
+
+        Parameters
+        ----------
+        theirs
+            The reviewer's people in our tag order, then anyone only they have
+            (:attr:`app.session.settling.Dispute.theirs`); None: no dispute.
+        ours_marks, theirs_marks
+            The marks on each version (:data:`Marks`).
+        reviewer
+            Who reviewed it, as a sentence names them.
+
+        While the reviewer's version is shown, their new people are shown; when the dispute
+        went away, ours come back.
+        """
+        self.theirs = None if theirs is None else list(theirs)
+        self.ours_marks = dict(ours_marks or {})
+        self.theirs_marks = dict(theirs_marks or {})
+        self.reviewer = reviewer
+        if self.showing_theirs:
+            # Their people changed, or they are gone (then ours come back).
+            self.showing_theirs = self.theirs is not None
+            self._present()
+        self.events.emit("dispute")
+
+    @property
+    def has_theirs(self) -> bool:
+        """Whether the frame shown has a reviewer's version to show."""
+        return self.theirs is not None
+
+    @property
+    def marks(self) -> Marks:
+        """The difference marks on the version shown."""
+        return dict(self.theirs_marks if self.showing_theirs else self.ours_marks)
+
+    def show_theirs(self, on: bool) -> bool:
+        """Show the reviewer's version (or ours again); False when there is none to show."""
+        on = bool(on) and self.theirs is not None
+        if on != self.showing_theirs:
+            self.showing_theirs = on
+            self._present()
+            self.events.emit("dispute")
+        return on

@@ -90,14 +90,22 @@ class Stop:
 PER_PERSON_KINDS = {"invented": "lie inside nearer people's bodies yet the model scores "
                                 "them as seen: invented spots"}
 
-#: Kinds whose fixes only change visibility: many per frame, a quarter of a joint's worth
-#: each (:attr:`Finding.worth`); a frame's are one stop, judged together from their preview.
-GROUPED_KINDS = ("hidden",)
+#: Kinds whose fixes mend a joint a nearer person hides, by its visibility alone: many per
+#: frame, each worth little alone (:attr:`Finding.worth`); a frame's are one stop, judged
+#: together from their preview and accepted as one undo step. ``hidden`` marks a joint
+#: occluded where it is; ``invented`` unlabels a joint placed at an invented spot.
+GROUPED_KINDS = ("hidden", "invented")
+
+#: The key of a frame's stop that holds its :data:`GROUPED_KINDS` fixes.
+COVERED_KEY = "G:covered"
+
+#: At most this many people's fixes are written out on the grouped stop's card.
+GROUP_SHOWN = 4
 
 
 def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
-    """A frame's findings as stops, worst first; two or more of a :data:`GROUPED_KINDS` kind
-    with fixes become one stop where the first of them was.
+    """A frame's findings as stops, worst first; two or more of the :data:`GROUPED_KINDS`
+    with fixes become one stop (:data:`COVERED_KEY`) where the first of them was.
 
     Examples
     --------
@@ -107,20 +115,15 @@ def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
     ...     return Finding(i, 1, kind, person, person, (13, 14), ("left knee", "right knee"),
     ...                    "t", (), 1.0, 0.9, fix, (person,), i)
     >>> [s.key for s in group_findings(1, [f("a", "split", 1), f("b", "hidden", 2),
-    ...                                    f("c", "duplicate", 3), f("d", "hidden", 4)])]
-    ['a', 'G:hidden', 'c']
+    ...                                    f("c", "duplicate", 3), f("d", "invented", 4)])]
+    ['a', 'G:covered', 'c']
     """
     stops: list[Stop] = []
-    for kind in GROUPED_KINDS:
-        members = tuple(f for f in found if f.kind == kind and f.fix is not None)
-        if len(members) < 2:
-            continue
+    members = tuple(f for f in found if f.kind in GROUPED_KINDS and f.fix is not None)
+    if len(members) >= 2:
         found = [f for f in found if f not in members or f is members[0]]
-        text = (f"joints the model sees as hidden, on {count(len(members), 'people')}: "
-                + "; ".join(m.fix.summary.removeprefix("mark ") for m in members[:4] if m.fix)
-                + (f"; and {count(len(members) - 4, 'more person')}"
-                   if len(members) > 4 else ""))
-        stops.append(Stop(frame_id, f"G:{kind}", None, (), text, None, members))
+        stops.append(Stop(frame_id, COVERED_KEY, None, (), covered_text(members), None,
+                          members))
     by_person: dict[int, list[Finding]] = {}
     for f in found:
         if f.kind in PER_PERSON_KINDS and f.fix is None and f.person_id is not None:
@@ -141,6 +144,56 @@ def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
         grouped = next((g for g in stops if g.group[0] is f), None)
         out.append(grouped or Stop(f.frame_id, f.id, f.person_id, f.joints, f.text, f))
     return _with_notes(out)
+
+
+def covered_text(members: Sequence[Finding]) -> str:
+    """The grouped stop's sentence: how many joints, on how many people, and each person's
+    fixes by tag and joint names (the fixes' own summaries, :mod:`app.model.naming`).
+
+    Examples
+    --------
+    >>> from app.analysis.triage.findings import FixPreview
+    >>> def f(kind, person, joints, summary):
+    ...     fix = Fix(summary, (), FixPreview())
+    ...     return Finding("x", 1, kind, person, person, joints, (), "t", (), 1.0, 0.9, fix,
+    ...                    (person,), "x")
+    >>> covered_text([f("hidden", 2, (13, 14), "mark person 2's knees occluded"),
+    ...               f("invented", 5, (9,), "mark person 5's left wrist unlabelled")])
+    "nearer people hide 3 joints of 2 people (2 to mark occluded, 1 invented spot to \
+unlabel): person 2's knees occluded; person 5's left wrist unlabelled"
+    """
+    hidden = sum(len(m.joints) for m in members if m.kind == "hidden")
+    invented = sum(len(m.joints) for m in members if m.kind == "invented")
+    people = {m.person_id for m in members}
+    parts = []
+    if hidden:
+        parts.append(f"{hidden} to mark occluded")
+    if invented:
+        parts.append(f"{count(invented, 'invented spot')} to unlabel")
+    said = [m.fix.summary.removeprefix("mark ") for m in members[:GROUP_SHOWN] if m.fix]
+    more = len(members) - len(said)
+    return (f"nearer people hide {count(hidden + invented, 'joint')} of "
+            f"{count(len(people), 'person', 'people')} ({', '.join(parts)}): "
+            + "; ".join(said) + (f"; and {count(more, 'more fix', 'more fixes')}"
+                                 if more > 0 else ""))
+
+
+def group_action(fix: Fix) -> str:
+    """What a grouped stop's fix does, in a few words, from its preview.
+
+    Examples
+    --------
+    >>> from app.analysis.triage.findings import FixPreview
+    >>> group_action(Fix("", (), FixPreview(unlabeled=((2, 9),), occluded=((1, 13), (1, 14)))))
+    'mark 2 joints occluded and unlabel 1 joint'
+    """
+    p = fix.preview
+    parts = []
+    if p.occluded:
+        parts.append(f"mark {count(len(p.occluded), 'joint')} occluded")
+    if p.unlabeled:
+        parts.append(f"unlabel {count(len(p.unlabeled), 'joint')}")
+    return " and ".join(parts) or fix.summary
 
 
 #: At most this many notes' sentences are written out on a person's stop.
@@ -299,6 +352,22 @@ class Walk:
         order.remove(frame_id)
         order.append(frame_id)
         return True
+
+    def following(self, frame_id: int) -> int | None:
+        """The frame after ``frame_id`` in the walk's order (None: the last, or not in it,
+        or no walk yet).
+
+        Examples
+        --------
+        >>> walk = Walk(lambda: [7, 3], lambda f: [Stop(f, "a", 1, (), "one")])
+        >>> walk.following(7), walk.step(1, 7).key, walk.following(7), walk.following(3)
+        (None, 'a', 3, None)
+        """
+        order = self._snapshot
+        if order is None or frame_id not in order:
+            return None
+        at = order.index(frame_id) + 1
+        return order[at] if at < len(order) else None
 
     def forget(self) -> None:
         """Let the next step start from the frame on screen (in the same order)."""

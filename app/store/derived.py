@@ -31,6 +31,11 @@ def kind_rows(rows: Iterable[Sequence[Any]]) -> list[tuple[int, str, float]]:
     return out
 
 
+#: A triage row keeps its frame's state (schema 8; :meth:`FramesGateway.set_state
+#: <app.store.frames.FramesGateway.set_state>` keeps it up to date), read from the frame.
+_STATE = "(SELECT state FROM frames WHERE frames.id = ?)"
+
+
 class TriageGateway:
     def __init__(self, tx: Tx):
         self._tx = tx
@@ -56,10 +61,11 @@ class TriageGateway:
     def store(self, results: dict[int, TriageResult], computed: float) -> None:
         """Replace the results of the given frames."""
         self._tx.run_many(
-            "INSERT INTO triage (frame_id, score, reasons, computed) VALUES (?, ?, ?, ?) "
-            "ON CONFLICT (frame_id) DO UPDATE SET score = excluded.score, "
-            "reasons = excluded.reasons, computed = excluded.computed",
-            [(int(f), float(score), json.dumps(reasons), computed)
+            f"INSERT INTO triage (frame_id, score, reasons, computed, state) VALUES "
+            f"(?, ?, ?, ?, {_STATE}) ON CONFLICT (frame_id) DO UPDATE SET "
+            "score = excluded.score, reasons = excluded.reasons, computed = excluded.computed, "
+            "state = excluded.state",
+            [(int(f), float(score), json.dumps(reasons), computed, int(f))
              for f, (score, reasons) in results.items()])
         self._store_kinds([(f, score, reasons) for f, (score, reasons) in results.items()])
         self._tx.event("triage", results)
@@ -76,8 +82,9 @@ class TriageGateway:
                              "ORDER BY frame_id")
 
     def insert_copied(self, rows: Sequence[Sequence[Any]]) -> None:
-        self._tx.run_many("INSERT INTO triage (frame_id, score, reasons, computed) "
-                          "VALUES (?, ?, ?, ?)", rows)
+        """Copy triage rows ``(frame id, score, reasons, computed)`` in, after the frames."""
+        self._tx.run_many("INSERT INTO triage (frame_id, score, reasons, computed, state) "
+                          f"VALUES (?, ?, ?, ?, {_STATE})", [(*r, r[0]) for r in rows])
         self._store_kinds([r[:3] for r in rows])
 
 

@@ -11,7 +11,7 @@ from app.model.labels import Frame, FrameState
 from app.store.db import Tx
 from app.store.schema import FRAME_COLUMNS
 
-_COLUMNS = ("frames.id, path, file_name, width, height, state, status, video_index, "
+_COLUMNS = ("frames.id, path, file_name, width, height, frames.state, status, video_index, "
             "timestamp, triage.score")
 _FROM = "frames LEFT JOIN triage ON triage.frame_id = frames.id"
 
@@ -45,6 +45,13 @@ class FrameQuery:
     reason: str | None = None
     offset: int = 0
     limit: int | None = None
+
+
+#: Beside a frame's columns, what a Worklist row shows: its triage reasons (JSON text), how
+#: many findings are stored for it and whether its findings were ever computed.
+_WORKLIST_COLUMNS = (
+    ", triage.reasons, (SELECT count(*) FROM findings WHERE findings.frame_id = frames.id), "
+    "(SELECT count(*) FROM findings_state WHERE findings_state.frame_id = frames.id)")
 
 
 class WorklistEntry(NamedTuple):
@@ -101,14 +108,14 @@ class FramesGateway:
         """The frames of one Worklist page (see :class:`FrameQuery`).
 
         A page in suspicion order is read in two parts: the triaged frames, most suspicious
-        first, walking the index on the triage score (on ``triage_kinds``' index on kind and
-        score when a reason kind is asked for), then the frames never triaged, by id. One query
-        sorting the whole join (score NULL last) reads and sorts every frame for each page: for
-        100 of 100,000 frames in SQLite, 20 ms against 0.3 ms at the top and 56 ms against
-        12 ms half way down (``make bench``).
+        first, walking the index on the triage score (``triage_rank``; ``triage_state_rank``
+        for a state, ``triage_kinds_rank`` for a reason kind), then the frames never triaged,
+        by id. One query sorting the whole join (score NULL last) reads and sorts every frame
+        for each page: for 100 of 100,000 frames in SQLite, 20 ms against 0.3 ms at the top
+        and 56 ms against 12 ms half way down (``make bench``).
         """
         if query.order == "suspicion" and query.limit is not None:
-            return self._suspicion_page(query)
+            return [_frame(r) for r in self._suspicion_page(query)]
         sql = f"SELECT {_COLUMNS} FROM {_FROM}"
         where, args = self._filters(query)
         if where is None:
@@ -125,6 +132,23 @@ class FramesGateway:
             args += [int(query.limit), int(query.offset)]
         return [_frame(r) for r in self._tx.rows(sql, args)]
 
+    def worklist(self, query: FrameQuery) -> list[WorklistEntry]:
+        """One Worklist page: the frames of :meth:`page`, each with its triage result and
+        its count of stored findings (see :class:`WorklistEntry`), in one query on the
+        triaged frames (and one more where the page runs on into the frames never triaged):
+        the frames, their triage rows and the counts joined to the page's rows only."""
+        if query.order == "suspicion" and query.limit is not None:
+            rows = self._suspicion_page(query, _WORKLIST_COLUMNS)
+        else:
+            ids = [f.id for f in self.page(query)]
+            found = {r[0]: r for r in self._tx.rows(
+                f"SELECT {_COLUMNS}{_WORKLIST_COLUMNS} FROM {_FROM} WHERE frames.id IN "
+                f"({', '.join('?' * len(ids))})", ids)} if ids else {}
+            rows = [found[i] for i in ids]
+        return [WorklistEntry(
+            _frame(r), None if r[10] is None else (r[9], json.loads(r[10])),
+            int(r[11]) if r[11] or r[12] else None) for r in rows]
+
     @staticmethod
     def _triaged(query: FrameQuery) -> tuple[str, list[Any]] | None:
         """``FROM ... WHERE ...`` of the triaged frames the query keeps (their score and id as
@@ -140,10 +164,16 @@ class FramesGateway:
             states = [FrameState(s).value for s in query.states]
             if not states:
                 return None
-            # The frames' rows are joined only where the state needs them, so that the rows
-            # skipped by an offset are read from the index alone.
-            source += " JOIN frames ON frames.id = triage.frame_id"
-            conds.append(f"frames.state IN ({', '.join('?' * len(states))})")
+            marks = ", ".join("?" * len(states))
+            if query.reason is None:
+                # The frame's state is kept on its triage row (schema 8), so that a state's
+                # frames are walked in order off the index ``triage_state_rank``.
+                conds.append(f"triage.state IN ({marks})")
+            else:
+                # The frames' rows are joined only where the state needs them, so that the
+                # rows skipped by an offset are read from the index alone.
+                source += " JOIN frames ON frames.id = triage.frame_id"
+                conds.append(f"frames.state IN ({marks})")
             args += states
         return f"FROM {source} WHERE " + (" AND ".join(conds) or "1 = 1"), args
 
@@ -171,7 +201,11 @@ class FramesGateway:
         return int(self._tx.value(f"SELECT count(*) {part[0]}{cond}", [*part[1], *extra],
                                   default=0))
 
-    def _suspicion_page(self, query: FrameQuery) -> list[Frame]:
+    def _suspicion_page(self, query: FrameQuery, extra: str = "") -> list[Any]:
+        """The rows (:data:`_COLUMNS`, then ``extra``) of one page in suspicion order. The
+        page's ids are picked off an index in a subquery, and only its rows are joined to
+        the frames and triage rows and given ``extra`` (so that the rows an offset skips
+        cost an index entry each)."""
         limit, offset = int(query.limit or 0), max(0, int(query.offset))
         if limit <= 0:
             return []
@@ -181,22 +215,20 @@ class FramesGateway:
             ranked = (f"SELECT triage.frame_id AS frame_id, triage.score AS score {triaged[0]} "
                       "ORDER BY triage.score DESC, triage.frame_id LIMIT ? OFFSET ?")
             rows = list(self._tx.rows(
-                f"SELECT {_COLUMNS} FROM ({ranked}) ranked JOIN frames ON frames.id = "
+                f"SELECT {_COLUMNS}{extra} FROM ({ranked}) ranked JOIN frames ON frames.id = "
                 "ranked.frame_id JOIN triage ON triage.frame_id = ranked.frame_id "
                 "ORDER BY ranked.score DESC, ranked.frame_id", [*triaged[1], limit, offset]))
         untriaged = self._untriaged(query)
         if len(rows) < limit and untriaged is not None:
             # The page runs past the triaged frames into those never triaged.
             skip = 0 if rows else offset - self._count(triaged)
-            ids = [r[0] for r in self._tx.rows(
-                f"SELECT frames.id {untriaged[0]} ORDER BY frames.id LIMIT ? OFFSET ?",
-                [*untriaged[1], limit - len(rows), max(0, skip)])]
-            if ids:
-                found = {r[0]: r for r in self._tx.rows(
-                    f"SELECT {_COLUMNS} FROM {_FROM} WHERE frames.id IN "
-                    f"({', '.join('?' * len(ids))})", ids)}
-                rows += [found[i] for i in ids]
-        return [_frame(r) for r in rows]
+            picked = (f"SELECT frames.id AS id {untriaged[0]} ORDER BY frames.id "
+                      "LIMIT ? OFFSET ?")
+            rows += self._tx.rows(
+                f"SELECT {_COLUMNS}{extra} FROM ({picked}) picked JOIN frames ON frames.id = "
+                "picked.id LEFT JOIN triage ON triage.frame_id = frames.id ORDER BY frames.id",
+                [*untriaged[1], limit - len(rows), max(0, skip)])
+        return rows
 
     def count(self, query: FrameQuery) -> int:
         """How many frames the query keeps (its offset and limit aside)."""
@@ -277,7 +309,7 @@ class FramesGateway:
             states = [FrameState(s).value for s in query.states]
             if not states:
                 return None, []
-            where.append(f"state IN ({', '.join('?' * len(states))})")
+            where.append(f"frames.state IN ({', '.join('?' * len(states))})")
             args += states
         if query.reason is not None:
             where.append("frames.id IN (SELECT frame_id FROM triage_kinds WHERE kind = ?)")
@@ -314,7 +346,10 @@ class FramesGateway:
         self._tx.event("frames", [i for i, _ in frames])
 
     def set_state(self, frame_id: int, state: FrameState) -> None:
+        """Set the frame's state, on its triage row too (kept there for the index)."""
         self._tx.run("UPDATE frames SET state = ? WHERE id = ?", (state.value, int(frame_id)))
+        self._tx.run("UPDATE triage SET state = ? WHERE frame_id = ?",
+                     (state.value, int(frame_id)))
 
     def set_status(self, frame_id: int, status: str) -> None:
         self._tx.run("UPDATE frames SET status = ? WHERE id = ?", (status, int(frame_id)))

@@ -389,13 +389,11 @@ class Project:
 
     def worklist_page(self, query: FrameQuery) -> list[WorklistEntry]:
         """One page of the Worklist in one read: each frame with its triage result (None:
-        never triaged) and its count of stored findings (None: never computed)."""
+        never triaged) and its count of stored findings (None: never computed); one query
+        for a page of triaged frames (:meth:`FramesGateway.worklist
+        <app.store.frames.FramesGateway.worklist>`)."""
         with self._read() as tx:
-            frames = tx.frames.page(query)
-            ids = [f.id for f in frames]
-            triage = tx.triage.of_frames(ids)
-            found = tx.findings.counts(ids)
-        return [WorklistEntry(f, triage.get(f.id), found.get(f.id)) for f in frames]
+            return tx.frames.worklist(query)
 
     def frame_count(self, query: FrameQuery | None = None) -> int:
         """How many frames the query keeps (None: every frame)."""

@@ -37,7 +37,8 @@ Layout:
   their own actions).
 - ``notes``: the review thread of each frame.
 - ``triage`` (v2): each frame's suspicion score and its reasons (a JSON list), from
-  ``posewright triage``.
+  ``posewright triage``; ``state`` (v8) the frame's state again, kept equal to it, so that
+  the Worklist kept to one state walks an index (``triage_state_rank``).
 - ``triage_kinds`` (v7): one row per frame and kind of reason its triage found, with the
   frame's score again, so that the Worklist filters by kind and counts the frames of each kind
   through an index (rewritten with the frame's ``triage`` row; derived, like it).
@@ -359,8 +360,27 @@ _V7 = [
     _fill_triage_kinds,
 ]
 
+
+
+def _triage_state(tx: Tx) -> None:
+    """Version 8: each triage row keeps its frame's state."""
+    if "state" not in columns(tx, "triage"):
+        tx.run("ALTER TABLE triage ADD COLUMN state " + tx.dialect.type_name("text")
+               + " NOT NULL DEFAULT 'untouched'")
+    tx.run("UPDATE triage SET state = (SELECT state FROM frames WHERE frames.id = "
+           "triage.frame_id)")
+
+
+# Version 8: the Worklist kept to one state walks that state's triaged frames in suspicion
+# order off an index, rather than joining the frames and sorting nearly all of them.
+_V8 = [
+    _triage_state,
+    _index(Index("triage_state_rank", "triage", ("state", "score DESC", "frame_id"))),
+]
+
 #: ``MIGRATIONS[n]`` takes the schema from version ``n - 1`` to ``n``.
-MIGRATIONS: dict[int, list[Step]] = {1: _V1, 2: _V2, 3: _V3, 4: _V4, 5: _V5, 6: _V6, 7: _V7}
+MIGRATIONS: dict[int, list[Step]] = {1: _V1, 2: _V2, 3: _V3, 4: _V4, 5: _V5, 6: _V6, 7: _V7,
+                                     8: _V8}
 SCHEMA_VERSION = max(MIGRATIONS)
 
 

@@ -31,7 +31,7 @@ from app.model.labels import Person
 from app.model.naming import Names
 from app.model.skeleton import Skeleton
 from app.session.owners import OwnerRanking
-from app.session.walk import Stop
+from app.session.walk import Stop, group_action
 from app.ui.overlay import OUTLINE, palette_colour
 
 CARD = QColor(24, 24, 28, 228)
@@ -251,13 +251,13 @@ def paint_walk_card(painter: QPainter, card: WalkCard, box: QRectF, bounds: QRec
     head = ("Findings" if len(stop.findings) > 1 else "Finding" if stop.findings
             else "Triage") + where
     if fix is not None:
-        # A frame's visibility fixes are one stop of several fixes; a person's stop has one
-        # fix, with notes that propose none.
+        # A frame's hidden-joint and invented-spot fixes are one stop of several; a
+        # person's stop has one fix, with notes that propose none.
         several = stop.finding is None and len(stop.findings) > 1
         sure = [f.confidence for f in stop.findings if f.fix is not None]
         conf = f" (each at least {min(sure):.0%} sure)" if several else \
             f" ({sure[0]:.0%} sure)" if sure else ""
-        summary = "mark them occluded" if several else fix.summary
+        summary = group_action(fix) if several else fix.summary
         tail = f"Fix{conf}: {summary}.  Y accepts \u00b7 I not a problem \u00b7 W skips"
     elif stop.findings:
         tail = "No fix proposed: correct it by hand.  I not a problem \u00b7 W next"

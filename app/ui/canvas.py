@@ -20,6 +20,8 @@ Two more things it shows:
   inside it moves it (one edit on release), Del deletes it.
 - On a *disputed* frame, the marks where ours and the reviewer's version differ, and on request
   the reviewer's version itself in place of ours (read-only: nothing is edited while it shows).
+  Which version shows, both versions' people, the marks and the reviewer's name are the view's
+  (:class:`app.session.view.View`); the Canvas only draws them.
 """
 
 from __future__ import annotations
@@ -52,7 +54,7 @@ from app.model.skeleton import Skeleton
 from app.session.blurred import BlurredFrame
 from app.session.owners import OwnerRanking
 from app.session.selection import Selection
-from app.session.view import View
+from app.session.view import Marks, View
 from app.session.walk import Stop
 from app.ui import regions as geometry
 from app.ui.blurred import paint_blurred
@@ -72,6 +74,10 @@ class _Drag:
     start_xy: tuple[float, float]
     xy: tuple[float, float]
     moved: bool = False
+    #: Everybody else's tag where it was when the drag began (screen pixels), and the view
+    #: (scale, origin, size) those places hold for: the tags stay put while the joint moves.
+    held_tags: dict[int, QRectF] | None = None
+    held_view: tuple[float, ...] = ()
 
 
 @dataclass
@@ -89,28 +95,35 @@ class _RegionDrag:
     moved: bool = False
 
 
-Marks = dict[tuple[int, int], tuple[float, float] | None]
-
-
 class _OverlayLayer:
     """The overlay of the frame on screen, painted once into a transparent image and copied
     onto the Canvas while nothing it shows changes (people, selection, hover, zoom, size,
     style): a repaint for any other reason (an exposed window, the picture refined, the
-    status of a neighbour) then costs one copy instead of painting every person again."""
+    status of a neighbour) then costs one copy instead of painting every person again.
+
+    While a joint of the selected person is dragged, what lies under that person (everybody
+    else, the regions) is painted once into a second image, ``_under``; each move then copies
+    the repainted rectangle from it and paints only the dragged person and the tags over it
+    (``paint_overlay``'s ``part``)."""
 
     def __init__(self) -> None:
         self._key: tuple[Any, ...] | None = None
         self._image: QImage | None = None
         self._layout: OverlayLayout | None = None
+        self._under: QImage | None = None
+        self._under_key: tuple[Any, ...] | None = None
 
     def paint(self, p: QPainter, canvas: Canvas, people: list[Any], dirty: QRect | None = None,
-              moving: int | None = None) -> OverlayLayout:
+              moving: int | None = None,
+              held_tags: dict[int, QRectF] | None = None) -> OverlayLayout:
         """Copy the layer onto ``p``, painting it again first if what it shows changed.
 
         While person ``moving`` is dragged and only the rectangle ``dirty`` is repainted, only
         that rectangle of the layer is painted again (clipped), when nothing but that
         person changed; should a tag of anybody else have moved, or theirs have left the
-        rectangle, the whole layer is painted again and the Canvas updated whole."""
+        rectangle, the whole layer is painted again and the Canvas updated whole.
+        ``held_tags`` (everybody else's tag during a drag) keeps those tags where they are,
+        so only the dragged person's tag is placed again (``paint_overlay``)."""
         assert canvas.frame is not None
         style = canvas.style()
         t = canvas.transform()
@@ -118,11 +131,14 @@ class _OverlayLayer:
         key = (canvas.frame.id, canvas.width(), canvas.height(), dpr,
                (t.m11(), t.m22(), t.dx(), t.dy()), repr(style), id(canvas.skeleton),
                tuple((q.id, np.asarray(q.keypoints).tobytes()) for q in people))
+        if moving is None:
+            self._under = self._under_key = None  # no drag: free what lay under the last one
         if key != self._key or self._image is None or self._layout is None:
             layout = None
             if dirty is not None and moving is not None and style.focus is None \
                     and self._only_moved(key, moving):
-                layout = self._paint_part(canvas, people, t, style, QRectF(dirty), moving)
+                layout = self._paint_part(canvas, people, t, style, QRectF(dirty), moving,
+                                          held_tags)
                 if layout is None:
                     canvas.update()  # the layer is painted whole below; show all of it
             if layout is None:
@@ -132,7 +148,8 @@ class _OverlayLayer:
                 image.fill(Qt.GlobalColor.transparent)
                 painter = QPainter(image)
                 layout = paint_overlay(painter, people, canvas.skeleton, t, style,
-                                       (canvas.frame.width, canvas.frame.height))
+                                       (canvas.frame.width, canvas.frame.height),
+                                       held_tags=held_tags)
                 painter.end()
                 self._image = image
             self._layout, self._key = layout, key
@@ -149,17 +166,24 @@ class _OverlayLayer:
         return all(a == b or (a[0] == b[0] == moving) for a, b in zip(old[-1], key[-1]))
 
     def _paint_part(self, canvas: Canvas, people: list[Any], t: QTransform,
-                    style: OverlayStyle, dirty: QRectF, moving: int) -> OverlayLayout | None:
+                    style: OverlayStyle, dirty: QRectF, moving: int,
+                    held_tags: dict[int, QRectF] | None = None) -> OverlayLayout | None:
         """Paint the layer again within ``dirty`` only; None if more than that changed."""
         assert self._image is not None and self._layout is not None and canvas.frame
         before = self._layout.tags
+        under = self._under_layer(canvas, people, t, style, moving) \
+            if style.selected_person == moving and style.focus is None else None
         painter = QPainter(self._image)
         painter.setClipRect(dirty)
         painter.setCompositionMode(QPainter.CompositionMode.CompositionMode_Source)
-        painter.fillRect(dirty, Qt.GlobalColor.transparent)
+        if under is None:
+            painter.fillRect(dirty, Qt.GlobalColor.transparent)
+        else:
+            painter.drawImage(dirty, under, _device_rect(dirty, under.devicePixelRatio()))
         painter.setCompositionMode(QPainter.CompositionMode.CompositionMode_SourceOver)
         layout = paint_overlay(painter, people, canvas.skeleton, t, style,
-                               (canvas.frame.width, canvas.frame.height), within=dirty)
+                               (canvas.frame.width, canvas.frame.height), within=dirty,
+                               held_tags=held_tags, part="whole" if under is None else "over")
         painter.end()
         after = layout.tags
         if set(before) != set(after) or any(after[k] != r for k, r in before.items()
@@ -169,6 +193,29 @@ class _OverlayLayer:
                                     and dirty.contains(before[moving])):
             return None
         return layout
+
+    def _under_layer(self, canvas: Canvas, people: list[Any], t: QTransform,
+                     style: OverlayStyle, moving: int) -> QImage:
+        """What lies under person ``moving`` (``paint_overlay(part="under")``), painted once
+        while nothing but that person changes."""
+        assert self._image is not None and canvas.frame is not None
+        assert self._key is not None
+        key = (*self._key[:-1], moving, tuple(e for e in self._key[-1] if e[0] != moving))
+        if key != self._under_key or self._under is None:
+            image = QImage(self._image.size(), QImage.Format.Format_ARGB32_Premultiplied)
+            image.setDevicePixelRatio(self._image.devicePixelRatio())
+            image.fill(Qt.GlobalColor.transparent)
+            painter = QPainter(image)
+            paint_overlay(painter, people, canvas.skeleton, t, style,
+                          (canvas.frame.width, canvas.frame.height), part="under")
+            painter.end()
+            self._under, self._under_key = image, key
+        return self._under
+
+
+def _device_rect(rect: QRectF, dpr: float) -> QRectF:
+    """``rect`` (logical pixels) in the device pixels of an image of that pixel ratio."""
+    return QRectF(rect.x() * dpr, rect.y() * dpr, rect.width() * dpr, rect.height() * dpr)
 
 
 class Canvas(QWidget):
@@ -221,10 +268,10 @@ class Canvas(QWidget):
         self.setMinimumSize(200, 150)
 
         self.frame: Frame | None = None
-        #: The people shown, their flags and colours, and the modes (Qt-free,
-        #: app/session/view.py; the window shares its session's through :meth:`use_view`).
+        #: The people shown, their flags and colours, the modes and a disputed frame's two
+        #: versions (Qt-free, app/session/view.py; the window shares its session's through
+        #: :meth:`use_view`).
         self.view = View()
-        self.view.events.connect("mode", self.update)
         self.read_only = False
         self.show_unlabeled = False
         self.show_tags = True
@@ -239,17 +286,6 @@ class Canvas(QWidget):
         self._draft: list[tuple[float, float]] = []
         self._region_drag: _RegionDrag | None = None
         self._double_clicked = False
-        #: A disputed frame: our people, the reviewer's version (people in our tag order;
-        #: someone they deleted is an empty placeholder), the difference marks of each, and
-        #: whether the reviewer's version is the one shown.
-        self._ours: list[Person] = []
-        self._flags_in: dict[int, frozenset[int]] = {}
-        self._theirs: list[Any] | None = None
-        self._marks: Marks = {}
-        self._theirs_marks: Marks = {}
-        self.theirs_name = ""
-        self.showing_theirs = False
-
         self._overlay = _OverlayLayer()
         self._decoded: Decoded | None = None
         # A quick shrunk copy for a zoom the decoder did not prepare: (for which decoded
@@ -285,13 +321,23 @@ class Canvas(QWidget):
         #: The ranked owners of the selected joint, listed beside it, and the rows' rectangles.
         self.owners: OwnerRanking | None = None
         self.owner_rows: list[tuple[QRectF, int]] = []
+        self._listen(self.view)
 
     # ------------------------------------------------------------------ the view's state
 
     def use_view(self, view: View) -> None:
-        """Show this view's people and modes (the window's session's)."""
+        """Show this view's people, modes and dispute (the window's session's)."""
         self.view = view
+        self._listen(view)
+
+    def _listen(self, view: View) -> None:
+        def people() -> None:
+            if view is self.view:
+                self._people_shown()
+
         view.events.connect("mode", self.update)
+        view.events.connect("people", people)
+        view.events.connect("dispute", self.update)
 
     @property
     def people(self) -> list[Any]:
@@ -345,13 +391,8 @@ class Canvas(QWidget):
         self._region = None
         self._draft = []
         self._region_drag = None
-        self._theirs = None
-        self._marks, self._theirs_marks = {}, {}
-        self.showing_theirs = False
         self.blurred = None
-        self._ours = list(people)
-        self._flags_in = dict(flags)
-        self._set_people(people, flags, keep_colours=False)
+        self.view.open(people, flags)  # no dispute until the window reads it
         if decoded is not None:
             self.set_image(decoded)
         if not keep_view:
@@ -361,16 +402,13 @@ class Canvas(QWidget):
 
     def set_people(self, people: list[Person], flags: dict[int, frozenset[int]]) -> None:
         """New labels of the same frame (after an edit); keeps what is still selectable."""
-        self._ours = list(people)
-        self._flags_in = dict(flags)
-        self._show_people()
+        self.view.show(people, flags)
 
-    def _show_people(self) -> None:
-        """Show ours, or the reviewer's version when asked, keeping the selection."""
-        people: list[Any] = self._theirs if self.showing_theirs and self._theirs is not None \
-            else self._ours
-        self._set_people(people, self._flags_in)
-        ids = {p.id for p in people}
+    def _people_shown(self) -> None:
+        """The view shows other people (ours, or the reviewer's version when asked): new hit
+        tests, and keep what is still selectable."""
+        self._hit_test_arrays()
+        ids = {p.id for p in self.people}
         changed = self.selection.keep_only(ids)
         if self._hover is not None and self._hover[0] not in ids:
             self._hover = None
@@ -391,44 +429,35 @@ class Canvas(QWidget):
 
     # ------------------------------------------------------------------ disputes
 
-    def set_dispute(self, marks: Marks, theirs: list[Any] | None, theirs_marks: Marks,
-                    who: str = "") -> None:
-        """The differences of a disputed frame: ``marks`` on our people (joint -> where the
-        reviewer has it), the reviewer's people ``theirs`` and their marks (joint -> where we
-        have it); ``theirs`` None when the frame is not in dispute."""
-        self._marks = dict(marks)
-        self._theirs = None if theirs is None else list(theirs)
-        self._theirs_marks = dict(theirs_marks)
-        self.theirs_name = who
-        if self.showing_theirs:
-            # Their people changed, or they are gone (then ours come back).
-            self.showing_theirs = self._theirs is not None
-            self._show_people()
-        else:
-            self.update()  # ours are on screen already; only the marks changed
+    @property
+    def showing_theirs(self) -> bool:
+        """Whether the reviewer's version is the one shown (the view's)."""
+        return self.view.showing_theirs
 
     @property
     def has_theirs(self) -> bool:
-        return self._theirs is not None
+        """Whether the frame has a reviewer's version to show (the view's)."""
+        return self.view.has_theirs
+
+    @property
+    def theirs_name(self) -> str:
+        """Who reviewed the disputed frame, as a sentence names them (the view's)."""
+        return self.view.reviewer
 
     @property
     def ours(self) -> list[Person]:
         """Our people of the frame (what :attr:`people` holds unless the reviewer's version
-        is shown)."""
-        return list(self._ours)
+        is shown; the view's)."""
+        return list(self.view.ours)
 
     @property
     def marks(self) -> Marks:
-        """The difference marks as drawn now (on whichever version is shown)."""
-        return dict(self._theirs_marks if self.showing_theirs else self._marks)
+        """The difference marks as drawn now, on whichever version is shown (the view's)."""
+        return self.view.marks
 
     def show_theirs(self, on: bool) -> bool:
         """Show the reviewer's version (or ours again); False when there is none."""
-        on = bool(on) and self._theirs is not None
-        if on != self.showing_theirs:
-            self.showing_theirs = on
-            self._show_people()
-        return on
+        return self.view.show_theirs(on)
 
     @property
     def editable(self) -> bool:
@@ -516,10 +545,8 @@ class Canvas(QWidget):
         assert self.frame is not None
         return (-0.5, -0.5, self.frame.width - 0.5, self.frame.height - 0.5)
 
-    def _set_people(self, people: list[Person], flags: dict[int, frozenset[int]],
-                    keep_colours: bool = True) -> None:
-        self.view.show(people, flags, keep_colours)
-        # Hit-testing arrays for all people at once: placed joints, and labelled limbs.
+    def _hit_test_arrays(self) -> None:
+        """Hit-testing arrays for all people shown at once: placed joints, labelled limbs."""
         k = self.skeleton.num_joints
         n = len(self.people)
         kp = np.stack([p.keypoints for p in self.people]) if n else np.zeros((0, k, 3))
@@ -796,11 +823,15 @@ class Canvas(QWidget):
             self._paint_image(p)
             people: list[Any] = self.people
             moving = None
-            if self._drag is not None and self._drag.moved:
-                people = self._with_drag(people, self._drag)
-                moving = self._drag.person_id
+            held = None
+            d = self._drag
+            if d is not None and d.moved:
+                people = self._with_drag(people, d)
+                moving = d.person_id
+                if d.held_view == self._view_key():
+                    held = d.held_tags
             dirty = event.rect() if event.rect() != self.rect() else None
-            self._layout = self._overlay.paint(p, self, people, dirty, moving)
+            self._layout = self._overlay.paint(p, self, people, dirty, moving, held)
             if self.show_blurred and self.blurred is not None and not self.showing_theirs:
                 paint_blurred(p, self.blurred, self.image_to_screen, self.font())
             self._paint_callouts(p)
@@ -917,6 +948,10 @@ class Canvas(QWidget):
             # Zoomed in: nearest neighbour, so the annotator sees the real pixels.
             p.drawImage(target, self._decoded.image)
 
+    def _view_key(self) -> tuple[float, ...]:
+        """The zoom, origin and size the screen places of tags hold for."""
+        return (self._scale, self._ox, self._oy, float(self.width()), float(self.height()))
+
     def _drag_bounds(self, d: _Drag) -> QRectF:
         """Where the dragged person is drawn now, on screen: their joints (the dragged one
         where the drag has it), the tag above them, rings and halos around them, and the
@@ -1025,6 +1060,11 @@ class Canvas(QWidget):
             dx = (pos.x() - d.press.x()) / self._scale
             dy = (pos.y() - d.press.y()) / self._scale
             before = self._drag_bounds(d) if d.moved else None
+            if not d.moved and self._layout is not None:
+                # The other tags keep their places while this joint moves.
+                d.held_tags = {pid: QRectF(r) for pid, r in self._layout.tags.items()
+                               if pid != d.person_id}
+                d.held_view = self._view_key()
             d.moved = True
             d.xy = self._clamp(x0 + dx, y0 + dy)
             after = self._drag_bounds(d)

@@ -233,7 +233,8 @@ def map_points(transform: QTransform, xy: np.ndarray) -> np.ndarray:
 
 
 def layout_tags(anchors: np.ndarray, sizes: np.ndarray, gap: float,
-                obstacles: np.ndarray | None = None) -> np.ndarray:
+                obstacles: np.ndarray | None = None,
+                taken: np.ndarray | None = None) -> np.ndarray:
     """Place one tag above each anchor, moving tags aside so that they do not overlap.
 
     Parameters
@@ -246,6 +247,9 @@ def layout_tags(anchors: np.ndarray, sizes: np.ndarray, gap: float,
         Distance between an anchor and the bottom of its tag in the preferred place.
     obstacles
         ``(P, 2)`` points a tag should rather not cover (the joints), or None.
+    taken
+        ``(M, 4)`` boxes ``x0, y0, x1, y1`` of tags already placed, which stay where they are
+        (the other people's tags while one person is dragged), or None.
 
     Returns
     -------
@@ -264,6 +268,11 @@ def layout_tags(anchors: np.ndarray, sizes: np.ndarray, gap: float,
     >>> c = layout_tags(np.array([[50.0, 50.0], [52.0, 50.0]]), np.full((2, 2), 10.0), 4.0)
     >>> bool(abs(c[0, 0] - c[1, 0]) >= 10 or abs(c[0, 1] - c[1, 1]) >= 10)
     True
+    >>> layout_tags(np.array([[50.0, 50.0]]), np.full((1, 2), 10.0), 4.0)  # above its anchor
+    array([[50., 41.]])
+    >>> layout_tags(np.array([[50.0, 50.0]]), np.full((1, 2), 10.0), 4.0,
+    ...             taken=np.array([[45.0, 36.0, 55.0, 46.0]]))  # that place taken: higher
+    array([[50., 29.]])
     """
     anchors = np.asarray(anchors, dtype=np.float64).reshape(-1, 2)
     sizes = np.asarray(sizes, dtype=np.float64).reshape(-1, 2)
@@ -286,8 +295,10 @@ def layout_tags(anchors: np.ndarray, sizes: np.ndarray, gap: float,
     boxes = np.stack([cx - w / 2, cy - h / 2, cx + w / 2, cy + h / 2], axis=2)  # (N, 12, 4)
     covered = _points_in_boxes(pts, boxes)
     preference = np.arange(boxes.shape[1]) * 1e-3
-    placed = np.zeros((n, 4))  # x0, y0, x1, y1 of the tags placed so far
-    for m, i in enumerate(np.argsort(anchors[:, 1], kind="stable")):
+    fixed = np.zeros((0, 4)) if taken is None else np.asarray(taken, float).reshape(-1, 4)
+    placed = np.zeros((len(fixed) + n, 4))  # x0, y0, x1, y1 of the tags placed so far
+    placed[:len(fixed)] = fixed
+    for m, i in enumerate(np.argsort(anchors[:, 1], kind="stable"), start=len(fixed)):
         b = boxes[i]
         if m:
             q = placed[:m]
@@ -356,7 +367,9 @@ def tag_anchor(points: np.ndarray, labelled: np.ndarray) -> np.ndarray | None:
 def paint_overlay(painter: QPainter, people: Sequence[_PersonLike], skeleton: Skeleton,
                   transform: QTransform, style: OverlayStyle | None = None,
                   image_size: tuple[int, int] | None = None,
-                  within: QRectF | None = None) -> OverlayLayout:
+                  within: QRectF | None = None,
+                  held_tags: Mapping[int, QRectF] | None = None,
+                  part: str = "whole") -> OverlayLayout:
     """Draw every person of a frame onto ``painter``.
 
     Parameters
@@ -379,6 +392,17 @@ def paint_overlay(painter: QPainter, people: Sequence[_PersonLike], skeleton: Sk
         Where the painter is clipped to (screen pixels), when only part is painted again:
         the people drawn wholly outside it are left out (their tags are still placed, so
         that every tag lands where a whole paint puts it).
+    held_tags
+        Person id -> tag rectangle (screen pixels) of tags that stay where they are: while a
+        joint is dragged, everybody else's tag keeps its place and only the dragged person's
+        tag is placed again, around them (:func:`layout_tags` with ``taken``), so a move
+        neither lays out every tag again nor makes other tags jump. None: every tag placed.
+    part
+        ``"whole"``: everything. ``"under"``: what lies under the person drawn last (the
+        focused, else the selected person): the veil, the regions and everybody else, no
+        tags. ``"over"``: the rest, that person, the difference marks and the tags. Painting
+        ``"under"`` then ``"over"`` is painting ``"whole"``, so while that person's joint is
+        dragged the Canvas keeps ``"under"`` in a layer and paints only ``"over"`` per move.
 
     Returns
     -------
@@ -423,17 +447,18 @@ def paint_overlay(painter: QPainter, people: Sequence[_PersonLike], skeleton: Sk
     painter.setWorldTransform(QTransform())
     painter.setRenderHint(QPainter.RenderHint.Antialiasing, True)
     painter.setRenderHint(QPainter.RenderHint.TextAntialiasing, True)
-    if style.focus is not None and image_size is not None and style.dim_image > 0:
+    under, over = part in ("whole", "under"), part in ("whole", "over")
+    if under and style.focus is not None and image_size is not None and style.dim_image > 0:
         w, h = image_size
         veil = transform.mapRect(QRectF(-0.5, -0.5, float(w), float(h)))
         painter.fillRect(veil, QColor(0, 0, 0, round(255 * style.dim_image)))
-    if style.regions or style.region_draft:
+    if under and (style.regions or style.region_draft):
         _paint_regions(painter, transform, style)
 
     top = style.focus if style.focus is not None else style.selected_person
     shown = range(len(people)) if within is None else _people_within(geo, within, style)
-    rest = [i for i in shown if people[i].id != top]
-    first = [i for i in shown if people[i].id == top]
+    rest = [i for i in shown if people[i].id != top] if under else []
+    first = [i for i in shown if people[i].id == top] if over else []
     dimmed = style.dim_others if style.focus is not None else 1.0
     dpr = painter.device().devicePixelRatioF() if painter.device() is not None else 1.0
     for group, opacity in ((rest, dimmed), (first, 1.0)):
@@ -450,13 +475,13 @@ def paint_overlay(painter: QPainter, people: Sequence[_PersonLike], skeleton: Sk
         for i in group:
             _paint_marks(painter, geo, i, people[i].id, style)
     painter.setOpacity(1.0)
-    if style.differences:
+    if over and style.differences:
         _paint_differences(painter, geo, people, colours, transform, style)
 
     tags: dict[int, QRectF] = {}
-    if style.show_tags and people:
+    if over and style.show_tags and people:
         tags = _paint_tags(painter, geo, people, numbers, colours, transform, style, dpr,
-                           within)
+                           within, held_tags)
     painter.restore()
     return OverlayLayout(numbers, colours, tags)
 
@@ -912,10 +937,34 @@ def _cached_layout(anchors: np.ndarray, sizes: np.ndarray, gap: float, obstacles
     return hit + origin
 
 
+_HELD: list[Any] = [None, None]  # the held tags last seen and their arrays
+
+
+def _held_layout(ids: list[int], anchors: np.ndarray, sizes: np.ndarray, gap: float,
+                 obstacles: np.ndarray, held: Mapping[int, QRectF]) -> np.ndarray:
+    """Tag centres with the tags in ``held`` kept where they are and the others placed
+    around them, among the joints near them (the obstacles farther away than any place a
+    tag tries cannot count)."""
+    if _HELD[0] is not held:  # the same held tags on every move of a drag: read them once
+        boxes = {pid: (r.left(), r.top(), r.right(), r.bottom()) for pid, r in held.items()}
+        _HELD[:] = [held, boxes]
+    boxes = _HELD[1]
+    kept = np.array([pid in boxes for pid in ids], dtype=bool)
+    taken = np.array([boxes[pid] for pid in ids if pid in boxes], dtype=float).reshape(-1, 4)
+    centres = np.zeros((len(ids), 2))
+    centres[kept] = (taken[:, :2] + taken[:, 2:]) / 2
+    if not kept.all():
+        a, size = anchors[~kept], sizes[~kept]
+        reach = np.column_stack([2 * size[:, 0] + gap + 8, 3 * size[:, 1] + gap + 8])
+        near = (np.abs(obstacles[:, None, :] - a[None]) <= reach[None]).all(axis=2).any(axis=1)
+        centres[~kept] = layout_tags(a, size, gap, obstacles[near], taken)
+    return centres
+
+
 def _paint_tags(painter: QPainter, geo: _Geometry, people: list[_PersonLike],
                 numbers: dict[int, int], colours: dict[int, int], transform: QTransform,
-                style: OverlayStyle, dpr: float, within: QRectF | None = None
-                ) -> dict[int, QRectF]:
+                style: OverlayStyle, dpr: float, within: QRectF | None = None,
+                held: Mapping[int, QRectF] | None = None) -> dict[int, QRectF]:
     metrics = _tag_metrics(style.tag_font_px)
     h = metrics.height() + 2
     all_anchors, has = geo.anchors()
@@ -928,12 +977,27 @@ def _paint_tags(painter: QPainter, geo: _Geometry, people: list[_PersonLike],
     obstacles = geo.pts[geo.labelled]
     gap = style.joint_radius + 4
     origin = np.array([transform.dx(), transform.dy()])
-    centres = _cached_layout(anchors, sizes, gap, obstacles, origin)
+    if held is None:
+        centres = _cached_layout(anchors, sizes, gap, obstacles, origin)
+    else:
+        centres = _held_layout([people[i].id for i, _ in with_anchor], anchors, sizes, gap,
+                               obstacles, held)
     rects: dict[int, QRectF] = {}
-    for (i, anchor), (cx, cy), (w, hh) in zip(with_anchor, centres.tolist(), sizes.tolist()):
+    if within is not None:
+        # Which tags may reach into ``within`` (the exact test below decides), as arrays.
+        lo = np.minimum(centres - sizes / 2, anchors) - 5
+        hi = np.maximum(centres + sizes / 2, anchors + 1) + 5
+        maybe = ((lo[:, 0] <= within.right()) & (hi[:, 0] >= within.left())
+                 & (lo[:, 1] <= within.bottom()) & (hi[:, 1] >= within.top())).tolist()
+    else:
+        maybe = [True] * len(with_anchor)
+    for (i, anchor), (cx, cy), (w, hh), near in zip(with_anchor, centres.tolist(),
+                                                    sizes.tolist(), maybe):
         pid = people[i].id
         rect = QRectF(cx - w / 2, cy - hh / 2, w, hh)
         rects[pid] = rect
+        if not near:
+            continue  # placed, but drawn wholly outside the part painted again
         if within is not None and not within.intersects(
                 rect.united(QRectF(float(anchor[0]), float(anchor[1]), 1.0, 1.0))
                 .adjusted(-4, -4, 4, 4)):

@@ -23,6 +23,7 @@ import html
 import logging
 import time
 from collections.abc import Callable
+from functools import partial
 from pathlib import Path
 from typing import Any
 
@@ -87,7 +88,7 @@ from app.ui.panels import LedgerPanel, NotesPanel, OwnersPanel, WorklistPanel
 from app.ui.settings import cache_bytes, settings
 from app.ui.strips import Strip
 from app.ui.timeline import TrackTimeline
-from app.ui.work import Background, Job, describe_error, run_job
+from app.ui.work import Background, Job, MapsShelf, describe_error, run_job
 from app.wording import count, plural
 
 log = logging.getLogger(__name__)
@@ -145,7 +146,8 @@ class MainWindow(QMainWindow):
         self._typed_timer.setSingleShot(True)
         self._typed_timer.setInterval(DIGIT_WAIT_MS)
         self._typed_timer.timeout.connect(self._commit_typed)
-        self._maps: tuple[int, Any] | None = None
+        #: The maps of the frames shown last and of the walk's next frame (read ahead).
+        self.maps_shelf = MapsShelf(parent=self)
         #: The shown frame's labels as read (hosted projects), and the frame claimed.
         self._seen: FrameLabels | None = None
         self._claimed: int | None = None
@@ -491,6 +493,7 @@ class MainWindow(QMainWindow):
         self.events.detach()
         self.loader.shutdown()
         self.background.shutdown()
+        self.maps_shelf.shutdown()
         for job in list(self._jobs):
             if not shiboken_is_valid(job):  # finished and already deleted by Qt
                 continue
@@ -601,13 +604,8 @@ class MainWindow(QMainWindow):
             return
         self.canvas.set_regions([(rid, polys) for rid, polys, _ in
                                  self.project.regions(frame.id)])
-        dispute = self.session.read_dispute(frame, self.canvas.ours,
-                                            settles=not self.review_mode)
-        if dispute is None:
-            self.canvas.set_dispute({}, None, {})
-        else:
-            self.canvas.set_dispute(dispute.ours_marks, list(dispute.theirs),
-                                    dispute.theirs_marks, dispute.who)
+        # The session hands the dispute to the view the Canvas draws (app/session/view.py).
+        self.session.read_dispute(frame, self.canvas.ours, settles=not self.review_mode)
         self.actions_by_name["show_theirs"].setChecked(self.canvas.showing_theirs)
         self.canvas.blurred = self.session.read_blurred(frame.id) if self.review_mode else None
         self._update_strips()
@@ -660,7 +658,8 @@ class MainWindow(QMainWindow):
                 return
         current = self.frame_id in frame_ids or kind in ("import", "frames")
         if current:
-            self._maps = None
+            if kind in ("import", "frames"):  # maps come only with an import
+                self.maps_shelf.clear()
             self._reload_frame()
         if current or self.ledger_model.whole_project or kind == "import":
             self.ledger_model.reload()
@@ -1170,22 +1169,37 @@ class MainWindow(QMainWindow):
         self.canvas.show_stop(stop, where)
         self._update_actions()
         self._update_status()
+        self._read_ahead(stop.frame_id)
 
     def _frame_maps(self) -> Any:
         if self.frame_id is None:
             return None
-        if self._maps is not None and self._maps[0] == self.frame_id:
-            return self._maps[1]
-        maps = None
-        if self.project.maps_path(self.frame_id) is not None:
-            try:
-                from app.jobs_analysis import load_maps
+        return self.maps_shelf.get(self.frame_id, partial(self._read_maps, self.frame_id))
 
-                maps = load_maps(self.project, self.project.frame(self.frame_id))
-            except ImportError:
-                maps = None
-        self._maps = (self.frame_id, maps)
-        return maps
+    def _read_maps(self, frame_id: int) -> Any:
+        if self.project.maps_path(frame_id) is None:
+            return None
+        try:
+            from app.jobs_analysis import load_maps
+        except ImportError:
+            return None
+        return load_maps(self.project, self.project.frame(frame_id))
+
+    def _read_ahead(self, frame_id: int) -> None:
+        """Read the maps of the frame the walk goes to next on a worker, so that its Owners
+        ranking finds them in memory (the paths are read here, the file there)."""
+        nxt = self.session.walk.following(frame_id)
+        if nxt is None or not self.maps_shelf.wants(nxt):
+            return
+        where = self.project.maps_path(nxt)
+        if where is None:
+            return
+        try:
+            from app.jobs_analysis import _usable_maps
+        except ImportError:
+            return
+        self.maps_shelf.ahead(nxt, partial(_usable_maps, str(where[0]),
+                                           self.project.frame(nxt), self.skeleton))
 
     def _selection_text(self) -> str:
         pid = self.canvas.selected_person
@@ -2004,7 +2018,7 @@ def keep_open(window: MainWindow) -> None:
 
 def _stops_text(stops: list) -> str:
     """The frame's open findings for the status bar, and the walk's stops when findings are
-    grouped (a frame's visibility-only fixes are one stop), so the Worklist's count of
+    grouped (a frame's hidden-joint and invented-spot fixes are one stop), so the count of
     findings and the card's "stop 4 of 11" agree."""
     found = sum(len(s.findings) for s in stops)
     text = f" \u00b7 {count(found, 'open findings')}"

@@ -411,3 +411,32 @@ def test_findings_whose_fixes_rarely_help_are_listed_without_one():
     assert len(invented) == 1 and invented[0].fix is not None
     assert invented[0].joint_names == ("left wrist",)
     assert invented[0].fix.preview.unlabeled == ((far, J["left_wrist"]),)
+
+
+def test_findings_again_after_a_fix_with_the_kept_memo_equal_a_fresh_computation():
+    """After an accept the frame's findings are computed again with the line integrals known
+    from before (app.jobs_analysis keeps each frame's FieldMemo): the same findings as
+    computed from scratch. Synthetic crowd (a neighbour holds person 5's forearm) and fields
+    drawn with our target functions after Cao et al. 2017, Sec. 2.3."""
+    from app.analysis.triage.model_evidence import FieldMemo
+
+    people = _floor_crowd()
+    arm = [J["left_elbow"], J["left_wrist"]]
+    people[4] = people[4].copy()
+    people[4][arm] = people[5][arm]
+    people[5] = people[5].copy()
+    people[5][arm] = (np.nan, np.nan, 0)
+    stack = np.stack(list(people.values()))
+    size = (1280, 600)
+    maps = SimpleNamespace(confidence_maps=confidence_maps(stack, size, 8, 7.0),
+                           pafs=part_affinity_fields(stack, SK.limbs, size, 8, 8.0), stride=8)
+    kept = FieldMemo(maps)
+    labels = _labels(people)
+    found = frame_findings(1, people, SK, maps=kept, image_size=size, calibration=OPEN)
+    assert found and found[0].fix is not None
+    after = _accept(labels, found[0])
+    moved = {p: v.keypoints for p, v in after.people.items()}
+    again = frame_findings(1, moved, SK, maps=kept, image_size=size, calibration=OPEN)
+    fresh = frame_findings(1, moved, SK, maps=FieldMemo(maps), image_size=size,
+                           calibration=OPEN)
+    assert [f.to_dict() for f in again] == [f.to_dict() for f in fresh]

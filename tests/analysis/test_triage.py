@@ -30,6 +30,8 @@ from app.analysis.anthropometry import person_scale
 from app.analysis.targets import part_affinity_fields
 from app.analysis.triage import (
     FLAG_AT,
+    PRIOR,
+    WEIGHTS,
     Reason,
     crowd_index,
     ground_line,
@@ -177,7 +179,9 @@ def test_triage_finds_the_wrong_people_of_the_demo(tmp_path):
     regenerated with the network's answer held over runs of frames, the dance-only weights
     gave 343 people, 91 wrong, 93 flagged, 81 of them wrong (recall 0.890, precision 0.871);
     the weights fitted on both scenarios, flagging from 1/5 (app.analysis.triage): 122
-    flagged, 86 of them wrong: recall 0.945, precision 0.705."""
+    flagged, 86 of them wrong: recall 0.945, precision 0.705; fitted again on dance and
+    choir seeds 1-8 generated with the current error model: 106 flagged, 83 of them wrong:
+    recall 0.912, precision 0.783."""
     if not (DEMO / "truth.json").exists():
         pytest.fail("demo_project/ is missing: regenerate it with app.demo.generate")
     fig = measure(_copy(DEMO, tmp_path / "demo"))
@@ -190,26 +194,28 @@ def test_triage_finds_the_wrong_people_of_the_demo(tmp_path):
 @pytest.mark.slow
 def test_triage_holds_on_a_held_out_seed(tmp_path):
     """The same measurement on a rehearsal the weights never saw: seed 9, first 12 frames
-    (synthetic; the weights were fitted on seeds 1-4). Measured on the demo with errors that
+    (synthetic; seed 9 took part in no fit). Measured on the demo with errors that
     last over frames: 191 people, 47 wrong, 52 flagged, 44 of them wrong: recall 0.936,
     precision 0.846 (with the weights fitted on the dance alone; seed 9 took no part in the
     fit on both scenarios either). With the weights fitted on both scenarios, flagging from
     1/5, and the current error model: 189 people, 42 wrong, 66 flagged, 40 of them wrong:
-    recall 0.952, precision 0.606, below issue 3's 0.7; the precision threshold sits a little
-    below what was measured."""
+    recall 0.952, precision 0.606, below issue 3's 0.7. With the weights fitted again on
+    dance and choir seeds 1-8 generated with the current error model: 57 flagged, 40 of them
+    wrong: recall 0.952, precision 0.702; the precision threshold sits a little below what was
+    measured."""
     folder = tmp_path / "seed9"
     generate(folder, seed=9, frames=12)
     fig = measure(folder)
     print(fig.report("held-out seed 9, 12 frames"))
     assert fig.recall >= 0.9
-    assert fig.precision >= 0.58
+    assert fig.precision >= 0.68
 
 
 @pytest.mark.slow
 def test_triage_and_fixes_on_the_choir(tmp_path):
     """The same measurement on the second scenario, a choir on stepped risers (synthetic;
     app.demo.choir, seed 21, first 5 frames), kept out of every fit (triage's weights and the
-    findings' calibration were fitted on dance and choir seeds 1-4); and the findings'
+    findings' calibration were fitted on dance and choir seeds 1-8); and the findings'
     accept-all figure there (judged joint by joint as in tests/demo/test_calibrate.py). The
     thresholds are the issue's goals (recall >= 0.85, precision >= 0.7; fixes losing <= 2 %
     of correct joints and removing >= 40 % of wrong ones) or, where the goal is missed, a
@@ -217,7 +223,11 @@ def test_triage_and_fixes_on_the_choir(tmp_path):
     (recall 0.880, precision 0.815); accepting every fix took wrong labelled joints from 419
     to 276 (34.1 % removed: short of the goal on these frames) and correct ones from 2,067 to
     2,088 (+1.0 %). On the first 8 frames (the test's length until it had to be shorter for
-    the suite's time): recall 0.898, precision 0.820, 36.9 % removed, +0.6 %."""
+    the suite's time): recall 0.898, precision 0.820, 36.9 % removed, +0.6 %. Those figures
+    are of the weights and calibration fitted on seeds generated with the dance's earlier
+    error model; fitted again on dance and choir seeds 1-8 generated with the current one:
+    105 flagged, 89 of them wrong (recall 0.890, precision 0.848); 419 wrong joints to 278
+    (33.6 % removed), 2,067 correct to 2,085 (+0.9 %)."""
     from app.demo.calibrate import accept_all, demo_frames
 
     folder = tmp_path / "choir21"
@@ -291,8 +301,11 @@ def test_a_limb_longer_than_winters_table_allows_is_stretched():
     """Winter's table (Drillis and Contini): forearm 0.146 of stature (from memory). A forearm
     drawn 1.6x the table's length gives a stretched-limb reason on the elbow and wrist with
     strength (1.6 - 1.2) / (1.8 - 1.2), as documented; at 2x (a wrist on a neighbour) the
-    person is flagged. The lengths come from the handbook's figure, not from our table, so a
-    table that disagreed with the handbook would fail here."""
+    reason is at full strength and the person's suspicion is the prior plus the kind's whole
+    weight (whether that alone flags the person depends on the fitted weights: with the prior
+    at -4.4 and the weight at 3.0, 0.198, just under 1/5). The lengths come from the
+    handbook's figure, not from our table, so a table that disagreed with the handbook would
+    fail here."""
     body = _body()
     scale = person_scale(body, SK)
     assert scale == pytest.approx(300.0, rel=0.01)  # the synthetic torso: the table's
@@ -307,7 +320,8 @@ def test_a_limb_longer_than_winters_table_allows_is_stretched():
         assert len(limb) == 1
         assert limb[0].strength == pytest.approx(min((factor - 1.2) / 0.6, 1.0), abs=1e-6)
         if flagged:
-            assert t.flagged == [1]
+            whole = PRIOR + WEIGHTS["stretched-limb"]
+            assert t.suspicion[1] == pytest.approx(1 / (1 + np.exp(-whole)), abs=1e-6)
 
 
 def test_crowd_index_is_li_et_als_formula():
@@ -343,7 +357,8 @@ def test_frame_score_is_the_expected_number_of_wrong_people_plus_crowding():
             if r.person == pid:
                 added[r.kind] = max(added.get(r.kind, 0.0), logit(r.weight) - base)
         assert logit(t.suspicion[pid]) == pytest.approx(base + sum(added.values()), abs=1e-6)
-    assert t.flagged == [3]
+    # Only person 3 has evidence (whether it alone flags them depends on the fitted weights).
+    assert [p for p in people if t.suspicion[p] > t.suspicion[clean[0]] + 1e-9] == [3]
     sparse = triage_frame({p: people[p] for p in (1, 4, 7)}, SK, image_size=(1280, 720))
     crowded = dict(people)
     crowded[8] = people[2].copy()
@@ -360,15 +375,17 @@ def test_frame_score_is_the_expected_number_of_wrong_people_plus_crowding():
 def test_a_person_found_twice_is_a_duplicate():
     """A faint copy of a body shifted by 0.08 of its stature (OKS to the original about 0.3,
     which a rule of OKS >= 0.5 would miss) is the duplicate; the original is not flagged and
-    the copy is the more suspect (whether the copy alone is flagged depends on the fitted
-    weights: with duplicate and tangled weighed at 1.5 each, a full-bodied copy is not)."""
+    the copy at least as suspect (how much more depends on the fitted weights: with
+    duplicate and tangled weighed at 1.5 each the copy was the more suspect; the fit on the
+    current errors weighs duplicate at 0 and tangled, which both of the pair carry, at 3.5,
+    so the two are equally suspect and the finding's fix names the copy)."""
     body = _body()
     echo = body.copy()
     echo[:, :2] += (0.08 * 300.0 / np.sqrt(2), 0.08 * 300.0 / np.sqrt(2))
     t = triage_frame({1: body, 2: echo}, SK,
                      scores={1: np.full(17, 0.9), 2: np.full(17, 0.55)}, image_size=(1280, 720))
     assert "duplicate" in _kinds(t, 2) and "duplicate" not in _kinds(t, 1)
-    assert 1 not in t.flagged and t.suspicion[2] > t.suspicion[1]
+    assert 1 not in t.flagged and t.suspicion[2] >= t.suspicion[1]
 
 
 def test_a_body_cut_in_two_is_a_split():
@@ -426,7 +443,8 @@ def test_missing_joints_count_only_inside_the_picture():
 def test_feet_off_the_floor_of_the_others():
     """People on one floor (Hoiem et al., CVPR 2006: image height proportional to the feet's
     distance below the horizon): a person drawn 1.6x too large for where their feet stand is
-    off the ground with strength (ln 1.6 - 0.2) / 0.3, and flagged."""
+    off the ground with strength (ln 1.6 - 0.2) / 0.3, and the most suspect of the frame
+    (whether that alone flags the person depends on the fitted weights)."""
     people = _floor_crowd()
     big = people[4].copy()
     feet = big[[J["left_ankle"], J["right_ankle"]], :2].mean(axis=0)
@@ -436,7 +454,8 @@ def test_feet_off_the_floor_of_the_others():
     off = [r for r in t.reasons if r.kind == "off-ground"]
     assert [r.person for r in off] == [4]
     assert off[0].strength == pytest.approx((np.log(1.6) - 0.2) / 0.3, abs=0.05)
-    assert 4 in t.flagged
+    assert max(t.suspicion, key=t.suspicion.get) == 4
+    assert t.suspicion[4] > t.suspicion[1]
 
 
 def test_hips_beside_the_shoulders_and_short_legs():

@@ -1,7 +1,7 @@
 """Carrying corrections forward: annotator actions to fix every wrong labelled joint, frame
-by frame and with carrying (:mod:`app.demo.carrying`), on the shipped demo and on demo seeds
-that no threshold was chosen on (:data:`UNSEEN`, generated here); the time to carry one
-correction over a sequence."""
+by frame and with carrying each person's corrections (:mod:`app.demo.carrying`), on the
+shipped demo and on demo seeds that no threshold was chosen on (:data:`UNSEEN`, generated
+here); the time to carry one person's correction over a sequence."""
 
 from __future__ import annotations
 
@@ -10,32 +10,35 @@ import tempfile
 import time
 from pathlib import Path
 
-from app.analysis.carry import carry_changes
+from app.analysis.carry import by_person, carry_changes
 from app.demo.calibrate import demo_folder
 from app.demo.carrying import ActionCount, demo_count, next_action, with_tracks
 from tests.benchmarks import common
 
-#: Seeds the carrying was not developed or diagnosed on (see the README's "Sequences").
-UNSEEN = (31, 32, 33)
+#: Seeds the carrying was not developed or diagnosed on (see the README's "Sequences"):
+#: generated after the last change to the carrying (31-33, the earlier held-out seeds, were
+#: looked at while carrying per person was built).
+UNSEEN = (61, 62, 63)
 
 
 def _carry_speed(folder: Path) -> float:
-    """Mean CPU seconds to carry one of the oracle's corrections over the sequence."""
+    """Mean CPU seconds to carry one person's corrections (the oracle's, once a frame is
+    fixed) over the sequence."""
     from app.demo.calibrate import demo_frames
 
     frames = demo_frames(folder)
     labels = with_tracks([f.labels for f in frames])
     spent, n = 0.0, 0
     for i, f in enumerate(frames):
-        edit = next_action(labels[i], f.truth, f.areas)
-        if edit is None:
-            continue
-        after, changes = edit.apply(labels[i])
-        labels[i] = after
-        start = time.process_time()
-        carry_changes(changes, labels, i)
-        spent += time.process_time() - start
-        n += 1
+        made = []
+        while (edit := next_action(labels[i], f.truth, f.areas)) is not None:
+            labels[i], changes = edit.apply(labels[i])
+            made.extend(changes)
+        for relation in by_person(made):
+            start = time.process_time()
+            carry_changes(relation, labels, i, each_joint=True)
+            spent += time.process_time() - start
+            n += 1
     return spent / max(n, 1)
 
 
@@ -60,7 +63,7 @@ def run() -> list[dict]:
             f"batches over {c.carried_frames} frames) against {c.frame_by_frame} frame by "
             f"frame, of which {c.repeated} repeat the frame before on the same tracks; "
             f"{c.wrong_before} wrong joints"))
-    rows.append(common.row("carry one correction over a 24-frame demo", 1000 * speed, "ms",
-                           "-", True, "CPU time per correction, mean over the oracle's first "
-                           "correction of each frame"))
+    rows.append(common.row("carry one person's correction over a 24-frame demo",
+                           1000 * speed, "ms", "-", True, "CPU time per person corrected, mean "
+                           "over every person the oracle corrects"))
     return rows

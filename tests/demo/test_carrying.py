@@ -54,3 +54,23 @@ def test_why_an_action_is_carried_or_not():
     areas = [np.full(3, 0.5 * 150.0**2)] * 9
     why = why_not_carried(_labels(wrong), list(truth), areas)
     assert why == {("give", WHY[0]): 3, ("give", WHY[3]): 1}
+
+
+def test_a_persons_corrections_carried_as_one_batch_each_joint_as_far_as_its_error_lasts():
+    """Dancer 0's wrist exchanged in frames 4-7 and its elbow dragged off in frames 4-5
+    (synthetic): six actions frame by frame (two, two, one, one); per person, the two of
+    frame 4 and one batch over frames 5-7 (three); per action, the wrist's batch over
+    frames 5-7 is taken, but the elbow's batch of one frame spares nothing and is left, so
+    the elbow is dragged again in frame 5 (four)."""
+    truth = sequences.dancers(frames=9)
+    wrong = truth.copy()
+    for t in range(3, 7):
+        wrong[t, [0, 1], WRIST] = wrong[t, [1, 0], WRIST]
+    wrong[3:5, 0, 7, 0] -= 30.0
+    areas = [np.full(3, 0.5 * 150.0**2)] * 9
+    person = count_actions(_labels(wrong), list(truth), areas, "synthetic")
+    action = count_actions(_labels(wrong), list(truth), areas, "synthetic", per="action")
+    assert person.frame_by_frame == action.frame_by_frame == 6
+    assert (person.corrections, person.batches, person.carried_frames) == (2, 1, 3)
+    assert (action.corrections, action.batches, action.carried_frames) == (3, 1, 3)
+    assert person.wrong_left_carrying == action.wrong_left_carrying == 0

@@ -195,3 +195,74 @@ def test_a_recompute_in_before_the_frames_end_is_offered_before_the_walk_moves_o
                 Stop(fids[0], "Fy", first, (9,), "held back by Fa")])
     assert s.skip().key == "Fy", "offered before the walk leaves the frame"
     assert s.skip().key == "Fc"
+
+
+def _covered_frame(project, fid, first):
+    """Stored findings (invented): person 1's knees marked occluded, person 2's left wrist
+    an invented spot to unlabel, and a wrong owner about person 1 on its own stop."""
+    from app.analysis.triage.findings import Finding, Fix, FixPreview, labels_digest
+    from app.model.edits import SetVisibility
+
+    a, b = first, first + 1
+    hidden = Fix("mark person 1's knees occluded",
+                 (SetVisibility(fid, a, 13, 1), SetVisibility(fid, a, 14, 1)),
+                 FixPreview(occluded=((a, 13), (a, 14))))
+    invented = Fix("mark person 2's left wrist unlabelled", (SetVisibility(fid, b, 9, 0),),
+                   FixPreview(unlabeled=((b, 9),)))
+    owner = Fix("mark person 1's nose occluded", (SetVisibility(fid, a, 0, 1),),
+                FixPreview(occluded=((a, 0),)))
+    found = [_note(fid, a, "Fo", "wrong-owner", 0, "nose", owner),
+             Finding("Fh", fid, "hidden", a, 1, (13, 14), ("left knee", "right knee"),
+                     "person 1's knees are hidden", (), 1.0, 0.9, hidden, (a,), "FhFh"),
+             Finding("Fi", fid, "invented", b, 2, (9,), ("left wrist",),
+                     "person 2's left wrist is invented", (), 1.0, 0.9, invented, (b,), "FiFi")]
+    project.store_findings({fid: (labels_digest(project.labels(fid)),
+                                  [f.to_dict() for f in found])})
+
+
+def _v(project, fid, pid, joint):
+    return int(next(p for p in project.people(fid) if p.id == pid).keypoints[joint][2])
+
+
+def test_a_frames_hidden_and_invented_fixes_are_one_stop_and_one_undo_step(scene):
+    """The occluded-marking and invented-spot fixes of a frame are one stop: its sentence
+    counts them and names people by tag and joints by name; one accept applies them all as
+    one ledger group, and one undo takes them all back (common practice: one action, one
+    undo step)."""
+    project, fids, first = scene
+    fid = fids[0]
+    _covered_frame(project, fid, first)
+    s, _, _ = _session(project, [fid])
+    stops = s.stops(fid)
+    assert [x.key for x in stops] == ["Fo", "G:covered"]
+    group = stops[1]
+    assert [f.id for f in group.findings] == ["Fh", "Fi"]
+    assert group.text.startswith("nearer people hide 3 joints of 2 people (2 to mark "
+                                 "occluded, 1 invented spot to unlabel)")
+    assert "person 1's knees occluded" in group.text
+    assert "person 2's left wrist unlabelled" in group.text
+    assert set(group.fix.preview.occluded) == {(first, 13), (first, 14)}
+    assert group.fix.preview.unlabeled == ((first + 1, 9),)
+    assert s.step(1).key == "Fo" and s.skip().key == "G:covered", "skip passes the other stop"
+    groups = len({e.group_id for e in project.history()})
+    s.accept()
+    assert (_v(project, fid, first, 13), _v(project, fid, first, 14),
+            _v(project, fid, first + 1, 9)) == (1, 1, 0)
+    assert len({e.group_id for e in project.history()}) == groups + 1, "one ledger group"
+    project.undo()
+    assert (_v(project, fid, first, 13), _v(project, fid, first, 14),
+            _v(project, fid, first + 1, 9)) == (2, 2, 2), "one undo step takes all back"
+
+
+def test_dismissing_the_grouped_stop_dismisses_each_of_its_findings(scene):
+    project, fids, first = scene
+    fid = fids[0]
+    _covered_frame(project, fid, first)
+    s, _, said = _session(project, [fid])
+    s.step(1)
+    s.skip()
+    assert s.current.key == "G:covered"
+    s.dismiss()
+    assert project.dismissed()[fid] == {"FhFh", "FiFi"}
+    assert _v(project, fid, first, 13) == 2, "nothing was changed"
+    assert "dismissed as not a problem" in " ".join(said)

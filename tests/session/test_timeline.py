@@ -163,3 +163,23 @@ def test_a_proposal_worked_out_before_a_change_is_dropped(walk):
     timeline.forget([6])
     moved = walk.apply(MoveJoint(6, pid(5, 2), 0, 500.0, 90.0))
     assert timeline.propose_work(6, moved.changes) is None and timeline.carry.batch is None
+
+
+def test_the_proposal_after_a_correction_holds_the_persons_whole_correction(tmp_path):
+    """Dancer 0's wrist exchanged in frames 4-7 and its elbow dragged off in frames 4-5
+    (synthetic): after the wrist is given back and then the elbow put back in frame 4, the
+    proposal made after the elbow carries both, each as far as its error lasts (to frame 7,
+    ending at 8), not the elbow alone (frame 5)."""
+    people = sequences.dancers()
+    for t in range(3, 7):
+        people[t, [0, 1], WRIST] = people[t, [1, 0], WRIST]
+    people[3:5, 0, 7, 0] -= 30.0
+    truth = sequences.dancers()
+    project, _ = sequences.make_project(tmp_path, people)
+    with project:
+        link_project(project)
+        project.apply(ReassignJoint(4, pid(3, 1), WRIST, pid(3, 0)))
+        elbow = project.apply(MoveJoint(4, pid(3, 0), 7, *truth[3, 0, 7, :2]))
+        batch = Timeline(project).propose(4, elbow.changes)
+    assert [g.frame_id for g in batch.edits] == [5, 6, 7]
+    assert batch.stopped_forward == 8

@@ -297,7 +297,8 @@ def test_ledger_rows_record_author_time_target_before_after(project):
 def test_worklist_pages_follow_one_sort_of_every_frame(project):
     """Pages of the Worklist in suspicion order, at any offset and with filters, are slices
     of every frame sorted in Python (most suspicious first, ties and frames never triaged by
-    id; a plain sort, common practice). Synthetic frames and scores, with ties at 0 and 0.5."""
+    id; a plain sort, common practice), each with the triage result and findings count read
+    on their own. Synthetic frames, scores and findings, with ties at 0 and 0.5."""
     project.add_frames([NewFrame(f"extra/{n}.jpg", f"{n}.jpg", 64, 48, status="missing")
                         for n in range(40)])
     ids = [f.id for f in project.frames()]
@@ -309,6 +310,11 @@ def test_worklist_pages_follow_one_sort_of_every_frame(project):
                           for fid, s in scores.items()})
     for fid in ids[::4]:
         project.apply(SetFrameState(fid, FrameState.DISPUTED))
+    project.apply(SetFrameState(ids[1], FrameState.DISPUTED))
+    project.undo()  # a state set and taken back: the frame is untouched again everywhere
+    project.store_findings({fid: (f"d{fid}", [{"id": f"F{k}", "kind": "split"}
+                                              for k in range(fid % 3)]) for fid in ids[::5]})
+    triage, found = project.triage_all(), project.finding_counts()
 
     def expected(keep):
         frames = [f for f in project.frames() if keep(f)]
@@ -318,6 +324,8 @@ def test_worklist_pages_follow_one_sort_of_every_frame(project):
     disputed = (FrameState.DISPUTED,)
     cases = [(FrameQuery(), lambda f: True),
              (FrameQuery(states=disputed), lambda f: f.state is FrameState.DISPUTED),
+             (FrameQuery(states=(FrameState.UNTOUCHED,)),
+              lambda f: f.state is FrameState.UNTOUCHED),
              (FrameQuery(reason="odd"), lambda f: f.id in scores and f.id % 2 == 1),
              (FrameQuery(states=disputed, reason="odd"),
               lambda f: f.state is FrameState.DISPUTED and f.id in scores and f.id % 2 == 1)]
@@ -332,7 +340,8 @@ def test_worklist_pages_follow_one_sort_of_every_frame(project):
             assert [f.id for f in project.frame_page(page)] == want[offset:offset + 7]
             entries = project.worklist_page(page)
             assert [e.frame.id for e in entries] == want[offset:offset + 7]
-            assert all((e.triage is None) == (e.frame.id not in scores) for e in entries)
+            assert [(e.triage, e.findings) for e in entries] == \
+                [(triage.get(e.frame.id), found.get(e.frame.id)) for e in entries]
         for fid in ids:
             assert project.frame_position(query, fid) == (want.index(fid) if fid in want
                                                           else None), fid
@@ -380,6 +389,27 @@ def test_a_schema_6_project_gains_its_reason_kinds(tmp_path, image_dir):
         assert p.frame_ids(FrameQuery(reason="crowded")) == [2, 1]
     conn = sqlite3.connect(db)
     assert conn.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION >= 7
+    conn.close()
+
+
+@pytest.mark.folder_only
+def test_a_schema_7_project_keeps_each_frames_state_on_its_triage_row(tmp_path, image_dir):
+    """A project written at schema 7 (triage rows without the frame's state) opens, migrates
+    to 8 and keeps a state's frames in suspicion order (synthetic scores)."""
+    with new_project(tmp_path / "old", images=image_dir, author="ana") as p:
+        p.store_triage({1: (0.5, [{"kind": "crowded"}]), 2: (0.9, [{"kind": "crowded"}])})
+        p.apply(SetFrameState(2, FrameState.DISPUTED))
+    db = tmp_path / "old" / "project.db"
+    conn = sqlite3.connect(db, isolation_level=None)
+    conn.execute("DROP INDEX triage_state_rank")
+    conn.execute("ALTER TABLE triage DROP COLUMN state")  # SQLite 3.35 or later
+    conn.execute("PRAGMA user_version = 7")
+    conn.close()
+    with Project.open(tmp_path / "old", author="ana") as p:
+        assert p.frame_ids(FrameQuery(states=(FrameState.DISPUTED,))) == [2]
+        assert p.frame_ids(FrameQuery(states=(FrameState.UNTOUCHED,)))[0] == 1
+    conn = sqlite3.connect(db)
+    assert conn.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION >= 8
     conn.close()
 
 

@@ -193,4 +193,23 @@ def test_a_drag_repaints_only_the_dragged_person_and_shows_what_a_whole_paint_sh
         whole = canvas.grab().toImage()
         assert shown == whole, f"move {k}: the partial paint differs from the whole one"
     assert len(parts) >= 3 and all(p is not None for p in parts), "painted in part each time"
+    assert layer._under is not None, "what lies under the dragged person kept in a layer"
     qtbot.mouseRelease(canvas, Qt.MouseButton.LeftButton, pos=start + QPoint(36, -20))
+
+
+def test_other_tags_stay_put_while_a_joint_is_dragged(qtbot, window):
+    """A drag places only the dragged person's tag again; everybody else's stays where it
+    was when the drag began (synthetic project)."""
+    canvas = window.canvas
+    pid = person_id(window, 3)
+    start = screen_point(window, pid, 0)
+    qtbot.mousePress(canvas, Qt.MouseButton.LeftButton, pos=start)
+    canvas.repaint()
+    before = dict(canvas._layout.tags)
+    for k in range(1, 4):
+        qtbot.mouseMove(canvas, start + QPoint(-12 * k, 10 * k))
+        canvas.repaint()
+        assert {q: r for q, r in canvas._layout.tags.items() if q != pid} == \
+            {q: r for q, r in before.items() if q != pid}
+    assert canvas._drag.held_tags is not None
+    qtbot.mouseRelease(canvas, Qt.MouseButton.LeftButton, pos=start + QPoint(-36, 30))

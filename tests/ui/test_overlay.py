@@ -11,6 +11,8 @@ tests).
 
 from __future__ import annotations
 
+from types import SimpleNamespace
+
 import cv2
 import numpy as np
 import pytest
@@ -204,3 +206,48 @@ def test_the_sessions_palette_size_is_the_canvass():
     from app.ui.overlay import PERSON_COLOURS
 
     assert len(PERSON_COLOURS) == PALETTE_SIZE
+
+
+def _painted(people, style, **kw) -> bytes:
+    image = QImage(320, 240, QImage.Format.Format_ARGB32_Premultiplied)
+    image.fill(0)
+    qp = QPainter(image)
+    for part in kw.pop("parts", ("whole",)):
+        paint_overlay(qp, people, coco_body(), QTransform.fromTranslate(0.5, 0.5), style,
+                      (320, 240), part=part, **kw)
+    qp.end()
+    return bytes(image.constBits())
+
+
+@pytest.mark.parametrize("focused", [False, True])
+def test_painting_under_then_over_the_person_on_top_is_painting_it_whole(qapp, focused):
+    """The Canvas keeps what lies under a dragged person in a layer and paints the rest per
+    move: the two parts together give the whole paint's pixels exactly, with regions, flags,
+    a selection, difference marks and focus (synthetic people)."""
+    people = _people()
+    top = people[1].id
+    style = OverlayStyle(
+        selected_person=top, selected_joints=frozenset({(top, 9)}), focus=top if focused
+        else None, flags={people[0].id: frozenset({7, 9})},
+        regions=((1, ((10.0, 10.0, 90.0, 10.0, 90.0, 60.0),)),),
+        differences={(top, 5): (150.0, 40.0), (people[2].id, 9): None})
+    assert _painted(people, style, parts=("under", "over")) == _painted(people, style)
+
+
+def test_held_tags_stay_and_the_others_are_placed_around_them(qapp):
+    """While a joint is dragged everybody else's tag keeps its place (given as
+    ``held_tags``), and the dragged person's tag goes where it covers none of them
+    (synthetic people)."""
+    people = _people()
+    image = QImage(320, 240, QImage.Format.Format_ARGB32_Premultiplied)
+    qp = QPainter(image)
+    before = paint_overlay(qp, people, coco_body(), QTransform()).tags
+    moving = people[0].id
+    held = {pid: r.translated(3, 0) for pid, r in before.items() if pid != moving}
+    moved = people[0].keypoints + np.array([25.0, 0.0, 0.0])  # towards the others
+    dragged = [SimpleNamespace(id=moving, keypoints=moved) if p.id == moving else p
+               for p in people]
+    after = paint_overlay(qp, dragged, coco_body(), QTransform(), held_tags=held).tags
+    qp.end()
+    assert {pid: after[pid] for pid in held} == held
+    assert not any(after[moving].intersects(r) for r in held.values())

@@ -82,7 +82,7 @@ def test_a_frames_visibility_fixes_are_one_stop_accepted_and_undone_together(
     window.session.findings_changed()
     qtbot.keyClick(window.canvas, Qt.Key.Key_W)
     stop = window.canvas.walk_card.stop
-    assert stop.key == "G:hidden" and [f.id for f in stop.group] == ["Fb", "Fc"]
+    assert stop.key == "G:covered" and [f.id for f in stop.group] == ["Fb", "Fc"]
     assert window.actions_by_name["accept_fix"].isEnabled()
     groups = len({e.group_id for e in ui_project.history()})
     qtbot.keyClick(window.canvas, Qt.Key.Key_Y)
@@ -111,3 +111,47 @@ def test_the_owner_list_goes_where_it_covers_fewest_connector_points():
     card = QRectF(100, 320, 300, 200)
     chosen = least_covering(options, below_right, avoid=card)
     assert not chosen.intersects(card) and not any(chosen.contains(q) for q in below_right)
+
+
+def test_work_posted_after_paint_runs_after_the_repaint_under_way(qtbot):
+    """The recompute and the maps read ahead start below Qt's repaint priority: a repaint
+    asked for before or after the post is painted first (Qt's posted-event priorities)."""
+    from PySide6.QtWidgets import QWidget
+
+    from app.ui.work import MapsShelf, after_paint
+
+    order = []
+
+    class Painted(QWidget):
+        def paintEvent(self, event):
+            order.append("paint")
+
+    widget = Painted()
+    qtbot.addWidget(widget)
+    widget.show()
+    qtbot.waitUntil(lambda: "paint" in order, timeout=WAIT_MS)
+    order.clear()
+    shelf = MapsShelf()
+    after_paint(shelf, lambda: order.append("work"))
+    widget.update()
+    qtbot.waitUntil(lambda: "work" in order, timeout=WAIT_MS)
+    assert order == ["paint", "work"]
+
+
+def test_the_maps_shelf_reads_ahead_and_forgets_on_clear(qtbot):
+    """Maps read ahead land on the shelf and are not read again; after clear() a read that
+    was under way lands nowhere. The 'maps' are stand-ins (synthetic)."""
+    from app.ui.work import MapsShelf
+
+    shelf = MapsShelf(keep=2)
+    reads = []
+    shelf.ahead(5, lambda: reads.append(5) or "maps of 5")
+    qtbot.waitUntil(lambda: not shelf.wants(5) and 5 in shelf._held, timeout=WAIT_MS)
+    assert shelf.get(5, lambda: "read again") == "maps of 5"
+    assert shelf.get(6, lambda: "maps of 6") == "maps of 6"
+    with qtbot.waitSignal(shelf.fetched, timeout=WAIT_MS):  # the read is done, and landed
+        shelf.ahead(7, lambda: "maps of 7")
+        shelf.clear()
+    assert 7 not in shelf._held and shelf.get(7, lambda: "fresh") == "fresh"
+    assert reads == [5]
+    shelf.shutdown()

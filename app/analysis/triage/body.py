@@ -14,6 +14,7 @@ Segment lengths and landmark heights: Drillis and Contini (1966) as tabulated in
 
 from __future__ import annotations
 
+from functools import lru_cache
 from typing import Any
 
 import numpy as np
@@ -58,9 +59,15 @@ _SHOULDER_TO_ANKLE = LANDMARK_HEIGHTS["shoulder"] - LANDMARK_HEIGHTS["ankle"]
 
 def pair_index(skeleton: Skeleton, *parts: str) -> list[tuple[int, int]]:
     """``(left, right)`` joint indices of the named parts the skeleton has."""
-    idx = {n: i for i, n in enumerate(skeleton.joints)}
-    return [(idx["left_" + p], idx["right_" + p]) for p in parts
-            if "left_" + p in idx and "right_" + p in idx]
+    return list(_pairs(tuple(skeleton.joints), parts))
+
+
+@lru_cache(maxsize=256)
+def _pairs(joints: tuple[str, ...], parts: tuple[str, ...]) -> tuple[tuple[int, int], ...]:
+    # Asked for on every hypothesis the fixes try: looked up once per skeleton and parts.
+    idx = {n: i for i, n in enumerate(joints)}
+    return tuple((idx["left_" + p], idx["right_" + p]) for p in parts
+                 if "left_" + p in idx and "right_" + p in idx)
 
 
 def body_scale(kp: np.ndarray, skeleton: Skeleton, fractions: np.ndarray) -> float:

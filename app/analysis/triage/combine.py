@@ -28,7 +28,7 @@ import numpy as np
 #: error, is taken to cost four times a needless look at a right label.
 FLAG_AT = 1.0 / 5.0
 #: Log-odds that a person is wrong before any evidence (fitted, see the module docstring).
-PRIOR = -4.1
+PRIOR = -4.4
 #: Evidence of each kind at full strength, in log-odds (fitted, see the module docstring;
 #: capped at 8 in the fit: no single sign is taken as more certain than 98 %).
 WEIGHTS: dict[str, float] = {
@@ -36,15 +36,15 @@ WEIGHTS: dict[str, float] = {
     "stretched-limb": 3.0,
     "short-legs": 8.0,
     "tilted-torso": 8.0,
-    "off-ground": 3.5,
+    "off-ground": 2.5,
     "mirrored": 5.5,
-    "crossed-sides": 8.0,
-    "duplicate": 1.5,
-    "tangled": 1.5,
-    "split": 6.5,
+    "crossed-sides": 5.0,
+    "duplicate": 0.0,
+    "tangled": 3.5,
+    "split": 7.5,
     "weak-limb": 0.0,
-    "low-score": 0.0,
-    "invented": 3.5,
+    "low-score": 0.5,
+    "invented": 4.5,
 }
 #: The frame's score adds this times its crowd index.
 CROWD_WEIGHT = 0.5
@@ -149,7 +149,7 @@ def combine(reasons: list[Reason], people: Any) -> dict[int, float]:
     >>> r = [Reason("stretched-limb", "", 1, evidence=3.0), Reason("stretched-limb", "", 1,
     ...      evidence=4.0), Reason("tangled", "", 1, evidence=1.0)]
     >>> {p: round(s, 3) for p, s in combine(r, [1, 2]).items()}   # PRIOR + 4 + 1, PRIOR
-    {1: 0.711, 2: 0.016}
+    {1: 0.646, 2: 0.012}
     """
     best: dict[int, dict[str, float]] = {int(p): {} for p in people}
     for r in reasons:
@@ -184,7 +184,7 @@ def stored_suspicion(reasons: Any) -> dict[int, float]:
     ...           {"kind": "tangled", "person": 3, "evidence": 1.0, "weight": 0.04},
     ...           {"kind": "crowded", "person": None, "evidence": 0.0, "weight": 0.8}]
     >>> {p: round(v, 3) for p, v in stored_suspicion(stored).items()}
-    {3: 0.711}
+    {3: 0.646}
     """
     rebuilt = [Reason(str(r.get("kind", "")), "", int(r["person"]),
                       evidence=float(r.get("evidence") or 0.0))

@@ -45,6 +45,7 @@ from app.analysis.triage.calibration import SHIPPED, Calibration
 from app.analysis.triage.combine import FrameTriage
 from app.analysis.triage.fixes import KINDS, FrameView, Proposal, propose
 from app.analysis.triage.frame import triage_frame
+from app.analysis.triage.model_evidence import FieldMemo
 from app.model.edits import (
     Edit,
     MergePeople,
@@ -404,6 +405,8 @@ def frame_findings(
     arrays = {int(p): np.asarray(v, dtype=np.float64) for p, v in people.items()}
     score_arrays = None if scores is None else {int(p): np.asarray(v, dtype=np.float64)
                                                  for p, v in scores.items()}
+    if maps is not None and not isinstance(maps, FieldMemo):
+        maps = FieldMemo(maps)  # triage and the proposers ask for many of the same E
     if triage is None:
         triage = triage_frame(arrays, skeleton, score_arrays, maps, image_size)
     view = FrameView(frame_id, arrays, skeleton, score_arrays, maps, image_size, triage)

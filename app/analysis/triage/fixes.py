@@ -97,6 +97,9 @@ _BODY_KINDS = ("stretched-limb", "short-legs", "tilted-torso", "off-ground", "cr
 #: Wrong owner: a hypothesis must lower the people's summed body evidence by this much (log
 #: odds: the labels become at least e^1.5 = 4.5 times as likely by triage's weights).
 OWNER_GAIN = 1.5
+#: Wrong owner: a hypothesis whose drop cannot reach this is not evaluated (``OWNER_GAIN``
+#: less a margin wider than the rounding that orders hypotheses).
+_HOPELESS = OWNER_GAIN - 1e-5
 #: Wrong owner: unlabeling a joint rather than giving it away costs this much evidence per
 #: joint (the prior that a labelled joint is right: most are).
 UNLABEL_COST = 0.75
@@ -715,11 +718,16 @@ def wrong_owners(view: FrameView, people: Sequence[int] | None = None) -> list[P
             mine = tuple(j for j in chain if on[j])
             if not mine or len(mine) == on.sum() or not named & set(mine):
                 continue
-            without = kp.copy()
-            without[list(mine), 2] = 0
-            after = view.body_evidence(p, without)
-            drop = base_p - after - UNLABEL_COST * len(mine)
-            hypotheses.append((drop, p, mine, None, base_p, after))
+            # Evidence is never below 0, so a hypothesis whose evidence before (less the
+            # cost of unlabeling) is under OWNER_GAIN cannot reach it: it is not evaluated
+            # (it would be dropped below; the proposals are the same without it). The
+            # margin keeps out only drops that also sort below every one that reaches it.
+            if base_p - UNLABEL_COST * len(mine) >= _HOPELESS:
+                without = kp.copy()
+                without[list(mine), 2] = 0
+                after = view.body_evidence(p, without)
+                drop = base_p - after - UNLABEL_COST * len(mine)
+                hypotheses.append((drop, p, mine, None, base_p, after))
             for q in view.present:
                 if q == p:
                     continue
@@ -727,9 +735,14 @@ def wrong_owners(view: FrameView, people: Sequence[int] | None = None) -> list[P
                 if not links or max(links) > LINK_SLACK:
                     continue
                 taker = view.people[q]
-                new_p, new_q = _exchange(kp, taker, chain)
                 before = base_p + view.body_evidence(q, taker)
-                after = view.body_evidence(p, new_p) + view.body_evidence(q, new_q)
+                if before < _HOPELESS:
+                    continue
+                new_p, new_q = _exchange(kp, taker, chain)
+                after_p = view.body_evidence(p, new_p)
+                if before - after_p < _HOPELESS:
+                    continue
+                after = after_p + view.body_evidence(q, new_q)
                 hypotheses.append((before - after, p, tuple(chain), q, before, after))
     # The best hypotheses of the frame that leave each other's people alone.
     # Best first; of hypotheses that explain the labels as well, the one that moves less.

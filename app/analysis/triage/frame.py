@@ -82,8 +82,11 @@ def triage_frame(
     []
     >>> wrong = body.copy(); wrong[9, :2] = (160, 72)      # left wrist on a neighbour
     >>> t = triage_frame({1: wrong}, sk)
-    >>> t.flagged, sorted({r.kind for r in t.reasons})
-    ([1], ['stretched-limb'])
+    >>> sorted({r.kind for r in t.reasons}), round(t.suspicion[1], 3)  # PRIOR + its weight
+    (['stretched-limb'], 0.198)
+    >>> tilted = wrong.copy(); tilted[11:, 0] += 25       # and the hips and legs to the side
+    >>> triage_frame({1: tilted}, sk).flagged
+    [1]
     """
     arrays = {int(p): np.asarray(v, dtype=np.float64) for p, v in people.items()}
     score_arrays = None if scores is None else \

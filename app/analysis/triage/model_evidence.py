@@ -13,6 +13,7 @@ CVPR 2017, Sec. 2.4.
 
 from __future__ import annotations
 
+import math
 from typing import Any
 
 import numpy as np
@@ -63,18 +64,94 @@ class FieldMemo:
         self.stride = maps.stride
         self.confidence_maps = getattr(maps, "confidence_maps", None)
         self._known: dict[tuple[Any, ...], float] = {}
+        self._tables: dict[int, _LimbTable] = {}
 
     def e(self, limb: int, start: np.ndarray, end: np.ndarray) -> float:
         """``E`` of limb ``limb`` from ``start`` to ``end`` (image pixels), as
-        :func:`app.analysis.association.limb_scores` computes it."""
-        key = (limb, round(float(start[0]), 3), round(float(start[1]), 3),
-               round(float(end[0]), 3), round(float(end[1]), 3))
+        :func:`app.analysis.association.limb_scores` computes it (to the last bit: see
+        :func:`_segment_e`)."""
+        ax, ay, bx, by = float(start[0]), float(start[1]), float(end[0]), float(end[1])
+        key = (limb, round(ax, 3), round(ay, 3), round(bx, 3), round(by, 3))
         value = self._known.get(key)
         if value is None:
-            mean, _ = limb_scores(self.pafs[limb], np.asarray(start, dtype=np.float64)[None, :2],
-                                  np.asarray(end, dtype=np.float64)[None, :2], self.stride)
-            value = self._known[key] = float(mean[0, 0])
+            table = self._tables.get(limb)
+            if table is None:
+                table = self._tables[limb] = _LimbTable(self.pafs[limb], self.stride)
+            if math.isfinite(ax + ay + bx + by) and table.usable:
+                value = _segment_e(table, ax, ay, bx, by)
+            else:
+                mean, _ = limb_scores(self.pafs[limb], np.array([[ax, ay]]),
+                                      np.array([[bx, by]]), self.stride)
+                value = float(mean[0, 0])
+            self._known[key] = value
         return value
+
+
+#: The sample positions ``u`` of :func:`app.analysis.association.limb_scores` (10 samples).
+_SAMPLES = np.linspace(0.0, 1.0, 10).tolist()
+
+
+class _LimbTable:
+    """One limb's field read as Python floats, for :func:`_segment_e`: each channel's values
+    and the difference to the next cell of its row, computed in the field's own dtype as
+    :func:`app.analysis.association._field_dots` computes it."""
+
+    def __init__(self, field: Any, stride: int):
+        field = np.asarray(field)
+        self.usable = field.ndim == 3 and field.shape[0] == 2 and field.size > 0 \
+            and field.dtype in (np.float16, np.float32, np.float64) and stride >= 1
+        if not self.usable:
+            return
+        self.height, self.width = field.shape[1:]
+        self.stride = stride
+        self.step_y = self.width if self.height > 1 else 0
+        # Read through memoryviews: an item comes out as a Python float, exactly, without
+        # converting the whole field (most of its cells are never read).
+        self.values: list[Any] = []
+        self.next_x: list[Any] = []
+        for ch in range(2):
+            v = np.ascontiguousarray(field[ch]).reshape(-1)
+            d = np.zeros_like(v)
+            if self.width > 1:
+                d[:-1] = v[1:] - v[:-1]
+            if v.dtype == np.float16:  # no memoryview format: float32 holds each exactly
+                v, d = v.astype(np.float32), d.astype(np.float32)
+            self.values.append(v.data)
+            self.next_x.append(d.data)
+
+
+def _segment_e(t: _LimbTable, ax: float, ay: float, bx: float, by: float) -> float:
+    """``E`` of one segment, in plain Python floats, with the very operations (and their
+    order) of :func:`app.analysis.association.limb_scores` on a ``(1, 2)`` start and end:
+    the same IEEE results, some six times faster than numpy on ten samples. The mean adds
+    the samples as numpy's pairwise sum does for ten (eight partial sums paired, then the
+    last two). ``tests/analysis/test_model_evidence.py`` checks the equality bit for bit."""
+    dx, dy = bx - ax, by - ay
+    norm = float(np.hypot(dx, dy))
+    ux, uy = (dx / norm, dy / norm) if norm > 0 else (0.0, 0.0)
+    s = t.stride
+    off = (s - 1) / 2.0
+    wm, hm = t.width - 1, t.height - 1
+    xcap, ycap = max(t.width - 2, 0), max(t.height - 2, 0)
+    width, step_y = t.width, t.step_y
+    v0, v1 = t.values
+    d0, d1 = t.next_x
+    a = []
+    for u in _SAMPLES:
+        gx = (ax + u * dx - off) / s
+        gx = 0.0 if gx < 0 else (wm if gx > wm else gx)
+        gy = (ay + u * dy - off) / s
+        gy = 0.0 if gy < 0 else (hm if gy > hm else gy)
+        x0, y0 = min(int(gx), xcap), min(int(gy), ycap)
+        fx, fy = gx - x0, gy - y0
+        i00 = y0 * width + x0
+        i10 = i00 + step_y
+        top, bottom = v0[i00] + d0[i00] * fx, v0[i10] + d0[i10] * fx
+        total = 0.0 + (top + (bottom - top) * fy) * ux
+        top, bottom = v1[i00] + d1[i00] * fx, v1[i10] + d1[i10] * fx
+        a.append(total + (top + (bottom - top) * fy) * uy)
+    summed = ((a[0] + a[1]) + (a[2] + a[3])) + ((a[4] + a[5]) + (a[6] + a[7]))
+    return (summed + a[8] + a[9]) / 10
 
 
 def limb_e(maps: Any, limb: tuple[int, bool], first: np.ndarray, second: np.ndarray) -> float:
