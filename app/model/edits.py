@@ -780,7 +780,10 @@ def edit_from_value(value: Any) -> Edit:
     if cls is EditGroup:
         fields["edits"] = tuple(edit_from_value(e) for e in fields.get("edits", ()))
     elif cls is NewPerson and fields.get("keypoints") is not None:
-        fields["keypoints"] = tuple(tuple(row) for row in fields["keypoints"])
+        # JSON has no NaN: an unlabelled joint's coordinates travel as null (a packet's
+        # findings) and come back as NaN.
+        fields["keypoints"] = tuple(tuple(float("nan") if x is None else x for x in row)
+                                    for row in fields["keypoints"])
     elif cls is SplitPerson:
         fields["joints"] = tuple(fields.get("joints", ()))
     elif cls is SetFrameState:

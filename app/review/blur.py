@@ -44,7 +44,8 @@ from app.wording import count
 
 __all__ = ["MODES", "SOURCES", "BlurPlan", "Region", "Unexplained", "blur_frame", "blur_regions",
            "face_ellipses", "head_ellipses", "label_head_ellipses", "local_stature",
-           "map_head_ellipses", "place_regions", "region_mask", "unexplained_peaks"]
+           "map_head_ellipses", "place_regions", "region_mask", "shoulder_head_ellipses",
+           "unexplained_peaks"]
 
 #: What a blurred image hides: heads, or whole people.
 MODES = ("heads", "people")
@@ -52,6 +53,8 @@ MODES = ("heads", "people")
 SOURCES = ("labels", "maps", "detector")
 
 FACE_JOINTS = ("nose", "left_eye", "right_eye", "left_ear", "right_ear")
+#: The ears, left first (see :func:`_past_ears`).
+EARS = ("left_ear", "right_ear")
 
 #: Ellipse half-width and half-height as fractions of stature H (see :func:`head_ellipses`).
 HALF_WIDTH = 0.085
@@ -59,6 +62,9 @@ HALF_HEIGHT = 0.115
 #: How far above the face landmarks' mean the head's centre lies, and above the shoulders.
 FACE_LIFT = 0.02
 NECK_LIFT = 0.117
+#: A head's width as a fraction of stature (common practice, no source; the ellipse above is
+#: wider to hold hair and labels a few pixels off).
+HEAD_WIDTH = 0.1
 #: Margin around the face joints an ellipse holds, as a fraction of stature (half a head's
 #: width).
 REACH_MARGIN = 0.05
@@ -266,11 +272,12 @@ def label_head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
     >>> from app.model.skeleton import coco_body
     >>> kp = np.zeros((17, 3))
     >>> kp[[0, 1, 2], :] = [[100, 50, 2], [95, 45, 2], [105, 45, 2]]    # a face
-    >>> kp[[3], :] = [[200, 48, 2]]                                     # an ear of another
+    >>> kp[[3], :] = [[200, 48, 2]]                     # a left ear of another, alone: the
+    >>> # head reaches a head's width (20 px) on the right of it (see _past_ears)
     >>> kp[[5, 6], :] = [[74.1, 90, 2], [125.9, 90, 2]]                 # H = 200
     >>> main, extra = label_head_ellipses([kp], coco_body(), (640, 480))
     >>> main.round(1), [(n, e.round(1)) for n, e in extra]
-    (array([[100. ,  42.7,  17. ,  23. ]]), [(0, array([200.,  44.,  17.,  23.]))])
+    (array([[100. ,  42.7,  17. ,  23. ]]), [(0, array([206.5,  44. ,  23.5,  23. ]))])
     """
     floor = _floor(image_size)
     face = _indices(skeleton, FACE_JOINTS)
@@ -280,12 +287,15 @@ def label_head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
     extra: list[tuple[int, np.ndarray]] = []
     statures = _statures(people, skeleton)
     low, high = _bounds(statures)
+    around, widths_only = _around_statures(people, statures, skeleton, image_size)
     for n, person in enumerate(people):
         kp = np.asarray(person, dtype=np.float64)
         on = _labelled(kp)
         if not on.any():
             continue
         stature = float(np.clip(statures[n], low, high))
+        if widths_only[n] and np.isfinite(around[n]):
+            stature = max(stature, float(around[n]))
         face_on = [j for j in face if on[j]]
         shoulders_on = [j for j in shoulders if on[j]]
         if face_on:
@@ -294,9 +304,20 @@ def label_head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
             groups = _heads(xy, -np.arange(len(xy), dtype=np.float64),
                             np.full(len(xy), OTHER_HEAD * max(stature, typical)))
             groups.sort(key=len, reverse=True)  # stable: of equal groups, the nose's first
-            ellipses = [_group_ellipse(xy[g], stature, floor) for g in groups]
+            lateral = _lateral(kp, on, skeleton)
+            ellipses = [_group_ellipse(xy[g], stature, floor, beyond=_past_ears(
+                [face_on[i] for i in g], xy[g], lateral, stature, skeleton),
+                ceiling=around[n]) for g in groups]
             out[n] = ellipses[0]
             extra += [(n, e) for e in ellipses[1:]]
+            if shoulders_on and set(face_on) <= set(_indices(skeleton, EARS)):
+                # Ears alone (a back, a profile) are the labels a crowd gets wrong most
+                # easily, and a far ear is often missing: the head is also placed from the
+                # shoulders, as for a person with no face joint.
+                centre = _above_shoulders(kp, shoulders_on, [j for j in hips if on[j]],
+                                          stature)
+                extra.append((n, np.array([*centre, max(floor, HALF_WIDTH * stature),
+                                           max(floor, HALF_HEIGHT * stature)])))
             continue
         if shoulders_on:
             centre = _above_shoulders(kp, shoulders_on, [j for j in hips if on[j]], stature)
@@ -308,12 +329,19 @@ def label_head_ellipses(people: Sequence[np.ndarray], skeleton: Skeleton,
 
 
 def _group_ellipse(xy: np.ndarray, stature: float, floor: float,
-                   extent: np.ndarray | None = None) -> np.ndarray:
+                   extent: np.ndarray | None = None,
+                   beyond: np.ndarray | None = None, ceiling: float = np.nan) -> np.ndarray:
     """The ellipse of one head from its landmarks (see :func:`head_ellipses`); ``extent``:
     faint landmarks (:meth:`Unexplained.extent`), which widen each half-axis to reach them
-    with the margin but neither move the centre nor raise the scale."""
+    with the margin but neither move the centre nor raise the scale; ``beyond``: where the
+    rest of a head seen by its ears alone may reach (:func:`_past_ears`): the ellipse
+    becomes the one inscribed in the box around the landmarks' ellipse and those points with
+    the margin, so it keeps the landmarks' side and reaches the other. The landmarks' spread
+    over 0.1 raises the scale up to half again, or up to ``ceiling`` (the stature of the
+    people around, :func:`_around_statures`) when that is more."""
     if len(xy) >= 2:
-        stature = max(stature, min(float(np.ptp(xy, axis=0).max()) / 0.1, 1.5 * stature))
+        most = max(1.5 * stature, ceiling) if np.isfinite(ceiling) else 1.5 * stature
+        stature = max(stature, min(float(np.ptp(xy, axis=0).max()) / 0.1, most))
     centre = xy.mean(axis=0) - [0.0, FACE_LIFT * stature]
     margin = REACH_MARGIN * stature
     reach = np.abs(xy - centre).max(axis=0) + margin
@@ -321,7 +349,66 @@ def _group_ellipse(xy: np.ndarray, stature: float, floor: float,
                      max(floor, HALF_HEIGHT * stature, reach[1])])
     if extent is not None and len(extent):
         axes = np.maximum(axes, np.abs(extent - centre).max(axis=0) + margin)
+    if beyond is not None and len(beyond):
+        low = np.minimum(centre - axes, (beyond - margin).min(axis=0))
+        high = np.maximum(centre + axes, (beyond + margin).max(axis=0))
+        centre, axes = (low + high) / 2, (high - low) / 2
     return np.array([*centre, *axes])
+
+
+def _lateral(kp: np.ndarray, on: np.ndarray, skeleton: Skeleton) -> np.ndarray | None:
+    """The unit image direction from a person's left shoulder to their right one, or None
+    when not both are labelled (or they coincide): the body's left-to-right axis, whichever
+    way the person faces."""
+    shoulders = _indices(skeleton, ("left_shoulder", "right_shoulder"))
+    if len(shoulders) != 2 or not on[shoulders].all():
+        return None
+    left, right = shoulders
+    along = kp[right, :2] - kp[left, :2]
+    length = float(np.hypot(*along))
+    return along / length if length > 0 else None
+
+
+def _past_ears(joints: Sequence[int], xy: np.ndarray, lateral: np.ndarray | None,
+               stature: float, skeleton: Skeleton) -> np.ndarray | None:
+    """Where the rest of a head seen by one of its ears may reach, ``(n, 2)``, or None.
+
+    An ear lies at the side of the head, so a head whose landmarks hold one ear and not the
+    other (a back whose far ear is hidden or unlabelled, a face whose far ear the network
+    missed, a profile) reaches up to a head's width, :data:`HEAD_WIDTH` of stature, past
+    that ear: towards the other ear, i.e. along the body's left-to-right axis from the left
+    ear and against it from the right one (``lateral``, from the shoulders; the head turns on
+    the neck by less than a right angle, so it stays on that side). Without both shoulders,
+    towards the mean of the head's other landmarks (the nose and eyes lie between the ears),
+    and with none, either way along the image's rows. Both ears or none: None.
+
+    Examples
+    --------
+    >>> from app.model.skeleton import coco_body
+    >>> _past_ears([3], np.array([[100.0, 50.0]]), np.array([1.0, 0.0]), 200.0, coco_body())
+    array([[120.,  50.]])
+    >>> _past_ears([4], np.array([[100.0, 50.0]]), None, 200.0, coco_body())
+    array([[ 80.,  50.],
+           [120.,  50.]])
+    >>> _past_ears([0, 4], np.array([[110.0, 60.0], [100.0, 60.0]]), None, 200.0, coco_body())
+    array([[120.,  60.]])
+    """
+    ears = _indices(skeleton, EARS)
+    held = [i for i, j in enumerate(joints) if j in ears]
+    if len(held) != 1:
+        return None
+    ear = xy[held[0]]
+    step = HEAD_WIDTH * stature
+    if lateral is not None:
+        sign = 1.0 if joints[held[0]] == ears[0] else -1.0
+        return (ear + sign * step * lateral)[None]
+    others = np.delete(np.asarray(xy, dtype=np.float64).reshape(-1, 2), held[0], axis=0)
+    if len(others):
+        towards = others.mean(axis=0) - ear
+        length = float(np.hypot(*towards))
+        if length > 0:
+            return (ear + step * towards / length)[None]
+    return ear + np.array([[-step, 0.0], [step, 0.0]])
 
 
 def _statures(people: Sequence[np.ndarray], skeleton: Skeleton) -> np.ndarray:
@@ -334,6 +421,42 @@ def _statures(people: Sequence[np.ndarray], skeleton: Skeleton) -> np.ndarray:
         if on.any():
             out[n] = _stature(kp, on, face, skeleton)
     return out
+
+
+def _around_statures(people: Sequence[np.ndarray], statures: np.ndarray, skeleton: Skeleton,
+                     image_size: tuple[int, int]) -> tuple[np.ndarray, np.ndarray]:
+    """``(N,)`` twice: the stature of the people around each person (:func:`local_stature`
+    of the others, NaN with no one else or no labelled joint), and whether the person's own
+    scale rests on the widths of the torso alone.
+
+    A torso's widths (shoulders, hips) shorten as a person turns side on, and a dancer turns
+    often; its sides (shoulder to hip) do not. When no side of the torso is labelled, the
+    person's own scale is a lower bound of their stature (a projection only shortens), and
+    the people around, who stand at about the same depth, tell it better: the head is sized
+    by the larger of the two (:func:`head_ellipses`). The people around also bound how far a
+    wide spread of face landmarks may raise a person's scale (a wrong hip or shoulder
+    shrinks a torso, :func:`_group_ellipse`).
+    """
+    names = {n: i for i, n in enumerate(skeleton.joints)}
+    sides = [(names[a], names[b]) for a, b in (("left_shoulder", "left_hip"),
+                                               ("right_shoulder", "right_hip"))
+             if a in names and b in names]
+    around = np.full(len(people), np.nan)
+    places = np.full((len(people), 2), np.nan)
+    widths_only = np.zeros(len(people), dtype=bool)
+    for n, person in enumerate(people):
+        kp = np.asarray(person, dtype=np.float64)
+        on = _labelled(kp)
+        if on.any():
+            places[n] = kp[on, :2].mean(axis=0)
+            widths_only[n] = np.isfinite(statures[n]) and not any(on[a] and on[b]
+                                                                  for a, b in sides)
+    for n in np.flatnonzero(np.isfinite(places).all(axis=1)):
+        others = np.arange(len(people)) != n
+        if (np.isfinite(statures[others]) & (statures[others] > 0)).any():
+            around[n] = local_stature(places[n][None], places[others], statures[others],
+                                      image_size)[0]
+    return around, widths_only
 
 
 def _bounds(statures: np.ndarray) -> tuple[float, float]:
@@ -506,7 +629,14 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
     faint head, each too weak to be a peak, still show where the head reaches (a face seen
     side on spans from the nose to the far ear). Only a head found by the face sum alone is
     widened so (none of its landmarks a peak of its own channel): a head whose landmarks show
-    on their own is placed by them.
+    on their own is placed by them. A head found by the face sum alone whose strongest peak
+    lies within a labelled person's legs (the convex hull of their labelled hips, knees and
+    ankles) is no head: people stand on one floor, so a visible head never lies among the
+    legs of a person in front (in the demo such peaks are the sum of five channels' noise,
+    and sized by the floor below the people's heads they blurred up to 5 % of a frame; a
+    face the camera sees there is still the detector's). A head whose only landmark peak is
+    an ear reaches a head's width past it on both sides (:func:`_past_ears`: nothing here
+    says on which side of the ear the head lies).
 
     Examples
     --------
@@ -533,14 +663,108 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
     scale = local_stature(xy, centres, statures, image_size)
     floor = _floor(image_size)
     out = []
+    legs = _legs(people, skeleton)
     for members in _heads(xy, score, SAME_HEAD * scale):
         seed = members[0]
         faint = not (kinds[members] >= 0).any()  # no landmark seen on its own
+        if faint and any(cv2.pointPolygonTest(leg, (float(xy[seed, 0]), float(xy[seed, 1])),
+                                              False) >= 0 for leg in legs):
+            continue
         extent = (unexplained.extent(xy[seed], SAME_HEAD * scale[seed])
                   if unexplained is not None and faint else None)
-        out.append(_group_ellipse(xy[members], float(np.median(scale[members])), floor,
-                                  extent))
+        stature = float(np.median(scale[members]))
+        seen = members[kinds[members] >= 0]  # the peaks of a landmark's own channel
+        beyond = _past_ears(kinds[seen].tolist(), xy[seen], None, stature, skeleton)
+        out.append(_group_ellipse(xy[members], stature, floor, extent, beyond))
     return np.array(out, dtype=np.float64).reshape(-1, 4)
+
+
+def shoulder_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
+                           skeleton: Skeleton, image_size: tuple[int, int]) -> np.ndarray:
+    """Heads above the shoulders the network sees and no labelled person owns, as ellipses.
+
+    Parameters
+    ----------
+    peaks
+        Per joint of the skeleton, ``(n_j, 3)`` ``x, y, score`` in image pixels.
+    people
+        The labelled people, ``(K, 3)`` ``x, y, v`` each.
+    skeleton
+        The joint layout.
+    image_size
+        ``(width, height)``.
+
+    Returns
+    -------
+    numpy.ndarray
+        ``(M, 4)`` ``cx, cy, half_width, half_height``.
+
+    Notes
+    -----
+    A person the labels miss, seen from behind or with the face covered, may show no face
+    landmark above even a faint threshold while the network still sees their shoulders. A
+    shoulder peak is owned as a face peak is (:func:`map_head_ellipses`: the same joint of a
+    labelled person within ``0.05 H``). Unowned left and right shoulders are paired, strongest
+    first, when they lie at most one and a half shoulder widths (``1.5 * 0.259 H``, H the
+    local stature, :func:`local_stature`) apart; a pair's head is placed as a labelled
+    person's with no face joint (:func:`head_ellipses`: ``0.117 H`` above the middle of the
+    shoulders, perpendicular to them, image up). A shoulder with no partner places nothing:
+    in the demo such peaks are mostly the network's stray answers, and a head over each
+    (reaching half a shoulder width either way, where the neck may be) blurred 16.9 % of a
+    frame of demo seed 2 (the limit is 15 %, app/demo/blurcheck.py).
+
+    Examples
+    --------
+    >>> from app.model.skeleton import coco_body
+    >>> peaks = [np.zeros((0, 3)) for _ in range(17)]
+    >>> peaks[5] = np.array([[326.0, 200.0, 0.5]]); peaks[6] = np.array([[274.0, 200.0, 0.5]])
+    >>> shoulder_head_ellipses(peaks, [], coco_body(), (640, 480)).round(1)
+    array([[300. , 171.9,  20.4,  27.6]])
+    """
+    shoulders = _indices(skeleton, ("left_shoulder", "right_shoulder"))
+    if len(shoulders) != 2:
+        return np.zeros((0, 4))
+    centres, statures = _people_scale(people, skeleton, image_size)
+    face = _indices(skeleton, FACE_JOINTS)
+    found = []
+    for j in shoulders:
+        p = np.asarray(peaks[j], dtype=np.float64).reshape(-1, 3)
+        found.append(p[~_owned(np.full(len(p), j), p[:, :2], people, statures, face)])
+    left, right = found
+    floor = _floor(image_size)
+    if not len(left) or not len(right):
+        return np.zeros((0, 4))
+    scale_l = local_stature(left[:, :2], centres, statures, image_size)
+    scale_r = local_stature(right[:, :2], centres, statures, image_size)
+    free = np.ones(len(right), dtype=bool)
+    out = []
+    for i in np.argsort(-left[:, 2], kind="stable"):
+        h = float(scale_l[i])
+        d = np.hypot(*(right[:, :2] - left[i, :2]).T) if len(right) else np.zeros(0)
+        near = np.flatnonzero(free & (d <= 1.5 * SHOULDER_WIDTH * h))
+        if not len(near):
+            continue
+        k = near[np.argmax(right[near, 2])]
+        free[k] = False
+        pair = np.array([left[i, :2], right[k, :2]])
+        h = float(np.mean([h, scale_r[k]]))
+        centre = _above_shoulders(np.column_stack([pair, [2.0, 2.0]]), [0, 1], [], h)
+        out.append([*centre, max(floor, HALF_WIDTH * h), max(floor, HALF_HEIGHT * h)])
+    return np.array(out, dtype=np.float64).reshape(-1, 4)
+
+
+def _legs(people: Sequence[np.ndarray], skeleton: Skeleton) -> list[np.ndarray]:
+    """Each labelled person's legs: the convex hull of their labelled hips, knees and ankles
+    (three at least), ``(m, 1, 2)`` float32 as OpenCV takes it."""
+    legs = _indices(skeleton, ("left_hip", "right_hip", "left_knee", "right_knee",
+                               "left_ankle", "right_ankle"))
+    out = []
+    for person in people:
+        kp = np.asarray(person, dtype=np.float64)
+        on = [j for j in legs if _labelled(kp)[j]]
+        if len(on) >= 3:
+            out.append(cv2.convexHull(kp[on, :2].astype(np.float32)))
+    return out
 
 
 def _owned(kinds: np.ndarray, xy: np.ndarray, people: Sequence[np.ndarray],
@@ -908,6 +1132,8 @@ def place_regions(people: Sequence[np.ndarray], skeleton: Skeleton,
     if peaks is not None:
         for e in map_head_ellipses(peaks, people, skeleton, image_size, head_peaks,
                                    unexplained):
+            pieces.append(_Piece(e, None, min(e[2], e[3]) / 2, "maps", None))
+        for e in shoulder_head_ellipses(peaks, people, skeleton, image_size):
             pieces.append(_Piece(e, None, min(e[2], e[3]) / 2, "maps", None))
         if mode == "people":
             for kp in map_people or ():

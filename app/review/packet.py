@@ -788,7 +788,9 @@ def _triage_of(project: Project, frames: Sequence[Frame]) -> list[dict[str, Any]
             continue
         score, reasons = triage if triage is not None else (None, [])
         out.append({"id": frame.id, "score": score, "reasons": list(reasons),
-                    "findings": list(found.get(frame.id, []))})
+                    # A fix's unlabelled joints are NaN: null in JSON, by design, so not
+                    # warned of as the stray non-finite numbers of an old import are.
+                    "findings": [json_ready(f)[0] for f in found.get(frame.id, [])]})
     return out
 
 

@@ -14,9 +14,10 @@ The regions come from :class:`app.session.blurred.BlurredFrame`; this module onl
 from __future__ import annotations
 
 from collections.abc import Callable
+from functools import lru_cache
 
 from PySide6.QtCore import QPointF, QRectF, Qt
-from PySide6.QtGui import QColor, QFont, QFontMetricsF, QPainter, QPainterPath, QPen
+from PySide6.QtGui import QColor, QFont, QFontMetricsF, QPainter, QPainterPath, QPen, QTransform
 
 from app.session.blurred import BlurredFrame, BlurredRegion
 
@@ -36,32 +37,49 @@ CAPTION_MIN_PX = 28.0
 ToScreen = Callable[[float, float], QPointF]
 
 
-def _path(region: BlurredRegion, to_screen: ToScreen) -> QPainterPath:
-    """The region's outline in screen pixels: the union of its ellipses and polygons."""
+def _path(region: BlurredRegion) -> QPainterPath:
+    """The region's outline in image pixels: the union of its ellipses and polygons."""
     path = QPainterPath()
     path.setFillRule(Qt.FillRule.WindingFill)
     for cx, cy, ax, ay in region.ellipses:
-        a, b = to_screen(cx - ax, cy - ay), to_screen(cx + ax, cy + ay)
         piece = QPainterPath()
-        piece.addEllipse(QRectF(a, b))
+        piece.addEllipse(QRectF(cx - ax, cy - ay, 2 * ax, 2 * ay))
         path = path.united(piece)
     for poly in region.polygons:
         if len(poly) >= 3:
             piece = QPainterPath()
-            piece.moveTo(to_screen(*poly[0]))
+            piece.moveTo(QPointF(*poly[0]))
             for x, y in poly[1:]:
-                piece.lineTo(to_screen(x, y))
+                piece.lineTo(QPointF(x, y))
             piece.closeSubpath()
             path = path.united(piece)
     return path
+
+
+@lru_cache(maxsize=8)
+def _outlines(blurred: BlurredFrame) -> tuple[QPainterPath, ...]:
+    """Each region's outline in image pixels, built once per frame's blur: uniting the
+    shapes is the costly part of a paint, and a frame's regions never change while shown (a
+    paint maps the outlines to the screen, :func:`paint_blurred`). Kept for the last few
+    frames (``BlurredFrame`` is frozen, so equal records share their outlines)."""
+    return tuple(_path(region) for region in blurred.regions)
+
+
+def _transform(to_screen: ToScreen) -> QTransform:
+    """The affine map ``to_screen`` is (the Canvas's scale and offset), read off three
+    points."""
+    o, u, v = to_screen(0.0, 0.0), to_screen(1.0, 0.0), to_screen(0.0, 1.0)
+    return QTransform(u.x() - o.x(), u.y() - o.y(), v.x() - o.x(), v.y() - o.y(), o.x(), o.y())
 
 
 def paint_blurred(painter: QPainter, blurred: BlurredFrame, to_screen: ToScreen,
                   font: QFont) -> None:
     """Outline every blurred region of ``blurred`` and caption it with its sources.
 
-    ``to_screen`` maps image pixels to the painter's (screen) pixels; sizes are in screen
-    pixels, independent of zoom, as everywhere in the overlay.
+    ``to_screen`` maps image pixels to the painter's (screen) pixels, an affine map (the
+    Canvas's zoom and offset); sizes are in screen pixels, independent of zoom, as everywhere
+    in the overlay. The outlines are built in image pixels once per frame's blur
+    (:func:`_outlines`) and only mapped to the screen here.
     """
     painter.save()
     painter.setRenderHint(QPainter.RenderHint.Antialiasing, True)
@@ -70,10 +88,11 @@ def paint_blurred(painter: QPainter, blurred: BlurredFrame, to_screen: ToScreen,
     small.setPointSizeF(max(6.5, font.pointSizeF() * 0.8))
     metrics = QFontMetricsF(small)
     captions = []
-    for region in blurred.regions:
-        path = _path(region, to_screen)
-        if path.isEmpty():
+    transform = _transform(to_screen)
+    for region, outline in zip(blurred.regions, _outlines(blurred), strict=True):
+        if outline.isEmpty():
             continue
+        path = transform.map(outline)
         beyond = region.beyond_labels
         painter.setPen(QPen(SHADOW, 3.0))
         painter.drawPath(path)

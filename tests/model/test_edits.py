@@ -223,3 +223,19 @@ def test_edits_round_trip_through_their_values():
         edit_to_value(AddNote(3, "a note"))
     with pytest.raises(EditRefused):
         edit_from_value({"op": "Nothing"})
+
+
+def test_a_new_persons_unlabelled_joints_survive_json_null():
+    """JSON (RFC 8259) has no NaN: a packet writes a fix's unlabelled joints as null, and
+    they read back as NaN."""
+    import json
+
+    from app.fileio import json_ready
+
+    kp = ((1.0, 2.0, 2),) + ((float("nan"), float("nan"), 0),) * 16
+    value, found = json_ready(edit_to_value(NewPerson(3, None, kp)))
+    assert len(found) == 32
+    back = edit_from_value(json.loads(json.dumps(value, allow_nan=False)))
+    assert isinstance(back, NewPerson) and back.keypoints is not None
+    assert back.keypoints[0] == (1.0, 2.0, 2)
+    assert all(np.isnan(x) and np.isnan(y) and v == 0 for x, y, v in back.keypoints[1:])

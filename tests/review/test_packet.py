@@ -85,6 +85,33 @@ def test_open_builds_a_review_project_with_the_same_ids(labelled, tmp_path):
         open_packet(path, reviewer="cleo")
 
 
+def test_a_fix_with_unlabelled_joints_travels_without_warnings(labelled, tmp_path, caplog):
+    """A stored finding whose fix adds a person with unlabelled (NaN) joints is written as
+    JSON null (RFC 8259 has no NaN) without a warning per number, and the reviewer's copy of
+    the fix reads the NaN back."""
+    import logging
+
+    from app.analysis.triage.findings import Finding, Fix, FixPreview
+    from app.model import NewPerson
+
+    f1 = labelled.frames()[0]
+    kp = ((10.0, 20.0, 2),) + ((float("nan"), float("nan"), 0),) * 16
+    fix = Fix("add them", (NewPerson(f1.id, None, kp),), FixPreview(created=(kp,)))
+    finding = Finding("f-missed", f1.id, "missed", None, None, (), (), "someone is missing",
+                      (), 0.5, 0.9, fix, (), "fp")
+    labelled.store_findings({f1.id: ("digest", [finding.to_dict()])})
+    with caplog.at_level(logging.WARNING):
+        path = send(labelled, tmp_path / "p.zip")
+    assert not [r for r in caplog.records if "not a finite number" in r.getMessage()]
+    with open_packet(path) as reviewed:
+        got = Finding.from_dict(reviewed.findings()[f1.id][0])
+    assert got.fix is not None
+    (made,) = got.fix.edits
+    assert isinstance(made, NewPerson) and made.keypoints is not None
+    assert made.keypoints[0] == (10.0, 20.0, 2)
+    assert all(np.isnan(x) and np.isnan(y) for x, y, _ in made.keypoints[1:])
+
+
 def test_the_reviewer_sees_why_each_frame_was_sent(labelled, tmp_path):
     """Triage's scores and reasons and the findings travel with the packet and stand in the
     review as they stood when it was sent (the findings current there, so the walk offers
