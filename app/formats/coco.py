@@ -41,6 +41,7 @@ from __future__ import annotations
 
 import json
 import math
+import sys
 from collections.abc import Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path, PurePosixPath
@@ -580,7 +581,16 @@ def _keypoint_block(values: Sequence[Sequence[float]], k: int, where: str,
     lengths = np.fromiter((len(v) for v in values), dtype=np.int64, count=n)
     for i in np.flatnonzero(lengths != 3 * k)[:1]:
         _check_keypoints(values[i], k, where, records[i], visibility)
-    block = np.array(values, dtype=np.float64).reshape(n, k, 3)
+    try:
+        block = np.array(values, dtype=np.float64).reshape(n, k, 3)
+    except OverflowError:  # an integer past a float's range (JSON allows any size)
+        for i, row in enumerate(values):
+            for j, x in enumerate(row):
+                if isinstance(x, int) and abs(x) > sys.float_info.max:
+                    raise BadInput(f"{records[i]}: field keypoints.{j}: an integer past "
+                                   "±1.8e308 is too large for a coordinate", where=where
+                                   ) from None
+        raise
     if visibility:
         for i in np.flatnonzero(~np.isin(block[:, :, 2], (0, 1, 2)).all(axis=1))[:1]:
             _check_keypoints(values[i], k, where, records[i], visibility)

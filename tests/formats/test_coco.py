@@ -426,6 +426,21 @@ def test_random_malformed_input_never_crashes_and_never_half_imports(
             json.loads((folder / "out.json").read_text(), parse_constant=_refuse_constant)
 
 
+def test_an_integer_past_a_floats_range_in_keypoints_is_refused_in_one_line(
+        image_dir, coco_file, tmp_path):
+    """JSON (RFC 8259) allows integers of any size; one past the largest IEEE 754 double
+    (about 1.8e308) is refused in one line naming the record, and nothing is written (found
+    by the fuzz test above)."""
+    ds = _load(coco_file)
+    ds["annotations"][2]["keypoints"][0] = 10**400
+    path = tmp_path / "big.json"
+    path.write_text(json.dumps(ds))
+    with new_project(tmp_path / "proj", images=image_dir) as project:
+        with pytest.raises(BadInput, match=r"annotations\[2\].*keypoints\.0: an integer past"):
+            import_coco(project, path)
+        assert project.counts()["people"] == 0 and project.history() == []
+
+
 def _refuse_constant(token):
     raise AssertionError(f"{token} in a file that must be strict JSON")
 
