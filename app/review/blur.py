@@ -42,10 +42,10 @@ from app.analysis.anthropometry import person_scale
 from app.model.skeleton import Skeleton
 from app.wording import count
 
-__all__ = ["MODES", "SOURCES", "BlurPlan", "Region", "Unexplained", "blur_frame", "blur_regions",
-           "face_ellipses", "head_ellipses", "label_head_ellipses", "local_stature",
-           "map_head_ellipses", "place_regions", "region_mask", "shoulder_head_ellipses",
-           "unexplained_peaks"]
+__all__ = ["MODES", "SOURCES", "BlurPlan", "HeadBand", "Region", "Unexplained", "blur_frame",
+           "blur_regions", "face_ellipses", "head_band", "head_ellipses", "label_head_ellipses",
+           "local_stature", "map_head_ellipses", "place_regions", "region_mask",
+           "shoulder_head_ellipses", "unexplained_peaks"]
 
 #: What a blurred image hides: heads, or whole people.
 MODES = ("heads", "people")
@@ -105,6 +105,10 @@ BUMP_CELLS = (0.5, 4.0)
 DEFAULT_STATURE = 0.5
 #: Widest plausible face box, as a fraction of the local stature: three heads' widths.
 MAX_FACE = 0.3
+#: How many robust spreads (1.4826 median absolute deviations, the standard deviation of a
+#: normal sample) past the median of the labelled heads' sizes and heights a head may lie and
+#: still be among them (see :func:`head_band`; three is the common outlier rule, no source).
+BAND_SPREADS = 3.0
 #: Two pieces merge when the overlap of their boxes covers this share of the smaller box.
 MERGE_OVERLAP = 0.3
 #: In ``people`` mode, how far a person's region reaches beyond their joints (share of
@@ -584,6 +588,79 @@ def local_stature(points: np.ndarray, centres: np.ndarray, statures: np.ndarray,
     return out
 
 
+@dataclass(frozen=True)
+class HeadBand:
+    """Where and how large the frame's labelled heads are (:func:`head_band`): the lowest
+    place a head may lie (``bottom``, image y of a centre), the largest half-axes
+    (``half_width``, ``half_height``) and a body's height (``body``), in pixels."""
+
+    bottom: float
+    half_width: float
+    half_height: float
+    body: float
+
+    def below(self, y: float) -> bool:
+        """Whether a head centred at image row ``y`` lies more than a body's height below
+        the band (at the feet of the nearest row or lower: no head stands there)."""
+        return y > self.bottom + self.body
+
+    def shrink(self, ellipse: np.ndarray) -> np.ndarray:
+        """The ellipse with each half-axis cut to the band's largest, same centre."""
+        cx, cy, ax, ay = ellipse
+        return np.array([cx, cy, min(ax, self.half_width), min(ay, self.half_height)])
+
+    def too_big(self, ellipse: np.ndarray) -> bool:
+        """Whether an ellipse is wider or taller than any head of the band."""
+        return bool(ellipse[2] > self.half_width or ellipse[3] > self.half_height)
+
+
+def head_band(heads: np.ndarray, statures: np.ndarray) -> HeadBand | None:
+    """The band of image heights and sizes where a frame's labelled heads lie, or None with
+    fewer than three placed heads.
+
+    Parameters
+    ----------
+    heads
+        ``(N, 4)`` the labelled people's head ellipses (:func:`head_ellipses`, NaN rows
+        ignored).
+    statures
+        ``(N,)`` their statures in pixels (NaN or 0 where unknown).
+
+    Notes
+    -----
+    Robust, so that a few wrong joints do not stretch it: each of the centres' image row
+    and the two half-axes is bounded by its median plus :data:`BAND_SPREADS` robust spreads
+    (1.4826 times the median absolute deviation, a normal sample's standard deviation;
+    common practice, no source); a body's height is the median stature. A person the labels
+    miss stands among the labelled ones on one floor, so their head lies in that band: the
+    nearest people are no guide to it, as a wrong hip or shoulder may make them look twice
+    their size (:func:`place_regions` and :func:`map_head_ellipses` judge the heads that only
+    the detector or the summed face maps see against it).
+
+    Examples
+    --------
+    >>> heads = np.array([[100.0, 200, 30, 40], [300, 210, 32, 42], [500, 190, 28, 38],
+    ...                   [700, 205, 31, 41]])
+    >>> b = head_band(heads, np.array([300.0, 320, 280, 310]))
+    >>> [round(float(v), 1) for v in (b.bottom, b.half_width, b.half_height, b.body)]
+    [224.7, 34.9, 44.9, 305.0]
+    """
+    heads = np.asarray(heads, dtype=np.float64).reshape(-1, 4)
+    placed = np.isfinite(heads).all(axis=1)
+    if placed.sum() < 3:
+        return None
+    h = heads[placed]
+    known = np.asarray(statures, dtype=np.float64)
+    known = known[np.isfinite(known) & (known > 0)]
+
+    def upper(values: np.ndarray) -> float:
+        median = float(np.median(values))
+        return median + BAND_SPREADS * 1.4826 * float(np.median(np.abs(values - median)))
+
+    body = float(np.median(known)) if len(known) else float(np.median(h[:, 3])) / HALF_HEIGHT
+    return HeadBand(upper(h[:, 1]), upper(h[:, 2]), upper(h[:, 3]), body)
+
+
 def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
                       skeleton: Skeleton, image_size: tuple[int, int],
                       head_peaks: np.ndarray | None = None,
@@ -636,7 +713,13 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
     and sized by the floor below the people's heads they blurred up to 5 % of a frame; a
     face the camera sees there is still the detector's). A head whose only landmark peak is
     an ear reaches a head's width past it on both sides (:func:`_past_ears`: nothing here
-    says on which side of the ear the head lies).
+    says on which side of the ear the head lies). A head found by the face sum alone is
+    also judged against the band of the labelled heads (:func:`head_band`, three or more
+    placed): more than a body's height below it, it is dropped (no head stands there; in
+    the demo such peaks lie among knees and ankles), and larger than any head of the band
+    it is shrunk to the band's size (the floor's perspective below the heads, or neighbours
+    made tall by a wrong joint, size it large). A head the labels miss stands among the
+    labelled ones, inside the band, so this drops none.
 
     Examples
     --------
@@ -664,18 +747,22 @@ def map_head_ellipses(peaks: Sequence[np.ndarray], people: Sequence[np.ndarray],
     floor = _floor(image_size)
     out = []
     legs = _legs(people, skeleton)
+    band = head_band(head_ellipses(people, skeleton, image_size), statures)
     for members in _heads(xy, score, SAME_HEAD * scale):
         seed = members[0]
         faint = not (kinds[members] >= 0).any()  # no landmark seen on its own
         if faint and any(cv2.pointPolygonTest(leg, (float(xy[seed, 0]), float(xy[seed, 1])),
                                               False) >= 0 for leg in legs):
             continue
+        if faint and band is not None and band.below(float(xy[seed, 1])):
+            continue
         extent = (unexplained.extent(xy[seed], SAME_HEAD * scale[seed])
                   if unexplained is not None and faint else None)
         stature = float(np.median(scale[members]))
         seen = members[kinds[members] >= 0]  # the peaks of a landmark's own channel
         beyond = _past_ears(kinds[seen].tolist(), xy[seen], None, stature, skeleton)
-        out.append(_group_ellipse(xy[members], stature, floor, extent, beyond))
+        ellipse = _group_ellipse(xy[members], stature, floor, extent, beyond)
+        out.append(band.shrink(ellipse) if faint and band is not None else ellipse)
     return np.array(out, dtype=np.float64).reshape(-1, 4)
 
 
@@ -1097,7 +1184,10 @@ def place_regions(people: Sequence[np.ndarray], skeleton: Skeleton,
     :data:`SIGMA` of their stature.
 
     A face box wider than :data:`MAX_FACE` of the local stature (:func:`local_stature`, when
-    any labelled person gives a scale) is taken for a false detection and dropped.
+    any labelled person gives a scale) is taken for a false detection and dropped, and so is
+    one whose head ellipse is larger than any head of the frame's band of labelled heads or
+    lies more than a body's height below it (:func:`head_band`: a wrong joint can make the
+    people nearest a false face look twice their size, the band is robust to it).
 
     Without maps, a labelled person whose head the labels place by a guess (no face joint
     labelled) is counted in :attr:`BlurPlan.unsure`.
@@ -1151,6 +1241,10 @@ def place_regions(people: Sequence[np.ndarray], skeleton: Skeleton,
     if len(boxes) and np.isfinite(statures).any():
         expected = local_stature(face_heads[:, :2], heads[:, :2], statures, image_size)
         plausible = boxes[:, 2] <= MAX_FACE * expected
+        band = head_band(heads, statures)
+        if band is not None:
+            plausible &= np.array([not band.too_big(e) and not band.below(e[1])
+                                   for e in face_heads], dtype=bool)
         boxes, face_heads = boxes[plausible], face_heads[plausible]
     for box, e in zip(boxes, face_heads):
         pieces.append(_Piece(e, None, min(e[2], e[3]) / 2, "detector", None))
