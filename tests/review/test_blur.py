@@ -461,3 +461,40 @@ def test_a_face_wider_than_a_shrunken_torso_allows_is_sized_by_the_people_around
     among = head_ellipses([*row, shrunk], SK, SIZE)[-1]
     assert alone[3] < 0.8 * 0.115 * 200
     assert among[3] == pytest.approx(0.115 * 180, abs=0.5)  # the spread says 18 / 0.1
+
+
+def test_a_face_or_face_sum_head_is_judged_against_the_band_of_the_labelled_heads():
+    """Seed 74's excess, synthetic: a row of labelled dancers, two of them with a wrong hip
+    far below that makes them look twice their stature. Judged against the band where the
+    labelled heads lie (median plus three robust spreads, app.review.blur.head_band), not
+    against those neighbours: a detector's face two heads wide above them is dropped and a
+    head-sized one beside them kept; a peak of the face sum alone more than a body's height
+    below the heads places nothing; one inside the band, where a dancer the labels miss
+    stands, is blurred whole, and no larger than the band's largest head."""
+    from app.review.blur import head_band, head_ellipses, region_mask
+
+    row = [_standing(x, 60, 150) for x in (80, 180, 280, 480, 580)]
+    for person in row[1:3]:  # a wrong hip far below: the torso says twice the stature
+        person[SK.index("left_hip"), 1] += 150
+    missed = _standing(380, 62, 150)  # the labels miss this dancer
+    band = head_band(head_ellipses(row, SK, SIZE), np.full(len(row), 150.0))
+    assert band is not None
+    face_w = 0.1 * 150  # a frontal face box about a head wide
+    big = [160.0, 0.0, 40.0, 40.0]  # its head ellipse 24 px wide each way: two heads' widths
+    fair = [380 - face_w / 2, 50.0, face_w, face_w]
+    plan = place_regions(row, SK, SIZE, faces=np.array([big, fair]))
+    detected = [r for r in plan.regions if "detector" in r.sources]
+    assert len(detected) == 1 and detected[0].bounds()[0] > 300  # the fair face alone
+
+    peaks = [np.zeros((0, 3))] * 17
+    low = [200.0, band.bottom + band.body + 10]  # below the heads by more than a body
+    nose = missed[SK.index("nose"), :2]
+    plan = place_regions(row, SK, SIZE, peaks=peaks,
+                         head_peaks=np.array([[*low, 0.25], [*nose, 0.25]]))
+    maps_only = [r for r in plan.regions if r.sources == {"maps"}]
+    assert len(maps_only) == 1
+    (cx, _, ax, ay), = maps_only[0].ellipses
+    assert abs(cx - nose[0]) < 1 and ax <= band.half_width and ay <= band.half_height
+    x0, y0, x1, y1 = face_boxes(missed[None], np.array([[0.0, 0.0, 0.0, 150.0]]), SK)[0]
+    mask = region_mask(plan.regions, SIZE)
+    assert mask[int(np.ceil(y0)):int(y1) + 1, int(np.ceil(x0)):int(x1) + 1].all()
