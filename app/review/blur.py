@@ -18,6 +18,10 @@ source of evidence, each recorded as a *source* of the region it places:
     A general-purpose face detector (:mod:`app.review.faces`) as the last net
     (:func:`face_ellipses`).
 
+A detector's face and a head only the summed face maps show are judged against the band where
+the frame's labelled heads lie (:func:`head_band`), not against the people nearest them, whose
+size a wrong joint may double.
+
 Pieces that overlap merge into one region, which remembers its sources
 and the labelled people behind it; :func:`blur_regions` blurs the union of each region's
 shapes. With ``mode="people"`` every person's whole region is blurred instead: the hull of a
