@@ -311,6 +311,62 @@ def test_an_unused_peak_the_field_joins_is_added():
     assert np.hypot(*(placed[:2] - truth[1, J["left_wrist"], :2])) < 2.0
 
 
+def test_a_missing_forearm_is_placed_in_one_fix_the_wrist_joined_to_the_placed_elbow():
+    """Person 2's left elbow and wrist are both unlabelled: the elbow's peak is joined to the
+    shoulder by the upper arm's field and the wrist's to that peak by the forearm's (Cao et
+    al. 2017, Eq. 10): one finding places both, each within 2 pixels of the truth."""
+    truth = _three()
+    people = {i + 1: truth[i].copy() for i in range(3)}
+    for name in ("left_elbow", "left_wrist"):
+        people[2][J[name]] = (np.nan, np.nan, 0)
+    found = _find(people, "missing-joint", maps=_maps(truth))
+    assert [(f.person_id, f.joints) for f in found] == [
+        (2, (J["left_elbow"], J["left_wrist"]))]
+    after = _accept(_labels(people), found[0]).people[2].keypoints
+    for name in ("left_elbow", "left_wrist"):
+        assert after[J[name], 2] == 2
+        assert np.hypot(*(after[J[name], :2] - truth[1, J[name], :2])) < 2.0
+
+
+def test_a_joint_unlabelled_at_the_peak_is_not_placed_there_again():
+    """Person 2's left wrist was unlabelled where the model's peak is (it remembers that
+    position, v = 0): no finding puts it back."""
+    truth = _three()
+    people = {i + 1: truth[i].copy() for i in range(3)}
+    people[2][J["left_wrist"], 2] = 0
+    assert _find(people, "missing-joint", maps=_maps(truth)) == []
+
+
+def _covered_forearm(truth: np.ndarray, height: float) -> SimpleNamespace:
+    """Maps with person 2's left wrist peak scaled to ``height`` and no field along its left
+    forearm (a covered limb), the others as drawn."""
+    maps = _maps(truth)
+    wrist, limb = J["left_wrist"], SK.limbs.index((J["left_elbow"], J["left_wrist"]))
+    others = np.delete(truth, 1, axis=0)
+    alone = _maps(others)
+    maps.confidence_maps[wrist] = np.maximum(alone.confidence_maps[wrist],
+                                             height * _maps(truth[1:2]).confidence_maps[wrist])
+    maps.pafs[limb] = alone.pafs[limb]
+    return maps
+
+
+def test_a_faint_peak_without_field_is_placed_occluded_and_a_bright_one_is_not():
+    """A hidden wrist: its peak faint (0.3, a third of the typical labelled joint's 0.9) and
+    no field along the covered forearm: placed at the peak and marked occluded (COCO v = 1).
+    The same peak as bright as the labelled joints, with no field joining it, is left alone
+    (more often someone else's joint)."""
+    truth = _three()
+    people = {i + 1: truth[i].copy() for i in range(3)}
+    people[2][J["left_wrist"]] = (np.nan, np.nan, 0)
+    scores = {p: np.full(17, 0.9) for p in people}
+    found = _find(people, "missing-joint", scores, maps=_covered_forearm(truth, 0.3))
+    assert [(f.person_id, f.joints) for f in found] == [(2, (J["left_wrist"],))]
+    placed = _accept(_labels(people, scores), found[0]).people[2].keypoints[J["left_wrist"]]
+    assert placed[2] == 1
+    assert np.hypot(*(placed[:2] - truth[1, J["left_wrist"], :2])) < 2.0
+    assert _find(people, "missing-joint", scores, maps=_covered_forearm(truth, 0.9)) == []
+
+
 def test_a_missed_person_made_of_unused_peaks_is_added():
     """The maps show three people, the labels two: a new person with the third's joints
     (within 2 pixels of each, the peaks being found to below a cell)."""
@@ -322,6 +378,18 @@ def test_a_missed_person_made_of_unused_peaks_is_added():
     (new,) = [p for pid, p in after.people.items() if pid not in people]
     assert new.num_labelled == 17
     assert np.hypot(*(new.keypoints[:, :2] - truth[2, :, :2]).T).max() < 2.0
+
+
+def test_a_partial_missed_person_is_found_without_a_fix():
+    """The maps show a third person with only 9 of 17 joints: a finding says someone is not
+    labelled there, but proposes no new person (it would match no true person at OKS 0.8)."""
+    truth = _three()
+    part = truth.copy()
+    part[2, 9:, 2] = 0
+    people = {1: truth[0].copy(), 2: truth[1].copy()}
+    found = _find(people, "missed-person", maps=_maps(part))
+    assert len(found) == 1 and found[0].fix is None
+    assert "too few (9 of 17)" in found[0].text
 
 
 def test_ids_are_stable_and_fingerprints_follow_the_labels():

@@ -7,7 +7,8 @@ end of the Worklist. Figures:
 
 - Key presses per wrong person fixed: the presses over the number of wrong people removed,
   judged against the demo's true poses (a person is wrong when no true person matches it at
-  OKS 0.8, :func:`app.demo.evaluate.wrong_people`, as pycocotools computes OKS). Goal: at most
+  OKS 0.8, :func:`app.demo.evaluate.wrong_people`, as pycocotools computes OKS; an
+  unlabelled joint counts as not placed, even where it remembers a position). Goal: at most
   2.5.
 - Key presses per wrong labelled joint fixed: the presses over the number of labelled joints
   that are wrong no more (:func:`app.demo.evaluate.judge_joints`: a joint is wrong when its
@@ -47,7 +48,11 @@ def _wrong(project, truth) -> int:
     sigmas = project.skeleton.sigmas
     n = 0
     for fid, (t, areas) in truth.items():
-        people = [p.keypoints for p in project.people(fid)]
+        # An unlabelled joint may remember a position (``v = 0``); it is no prediction (the
+        # COCO export writes ``0, 0, 0``), so it is NaN here: infinitely far, as pycocotools
+        # scores a detection's joint at (0, 0) against a true one.
+        people = [np.where(p.keypoints[:, 2:] > 0, p.keypoints, np.nan)
+                  for p in project.people(fid)]
         if people:
             n += int(wrong_people(np.stack(people), t, areas, sigmas).sum())
     return n
