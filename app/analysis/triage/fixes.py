@@ -135,6 +135,11 @@ JOIN_FROM, JOIN_SURE = 0.6, 1.0
 #: not join is more often someone else's joint (about 4 in 10 right, against 8 in 10 for a
 #: faint one, on the shipped demo and dance and choir seeds 1-2, looked at while choosing).
 PEAK_FROM, PEAK_SURE, PEAK_TO = 0.25, 0.45, 0.6
+#: Missing joint: a peak below this share of the frame's typical labelled joint score is the
+#: maps' noise, whatever the field says (a field joins noise as readily as a joint: on the
+#: shipped demo and dance and choir seeds 2-3, 70 % of the fixes helped with this floor,
+#: 54 % without).
+PEAK_FLOOR = 0.15
 #: Missed person: at least this many unused parts that group into one plausible body.
 MISSED_PARTS = 5
 #: Missed person: a fix (a new person) is proposed only for a body this complete (share of the
@@ -958,15 +963,21 @@ def missing_joints(view: FrameView, peaks: _Peaks | None = None) -> list[Proposa
     neighbour and every unused peak of ``j``: each limb from ``j`` to those neighbours must
     fit (length at most ``LINK_SLACK`` times expected) and its ``E`` (Cao et al. 2017,
     Eq. 10, along the limb's field) must reach ``JOIN_FROM`` (0.6) of the frame's typical
-    ``E`` of that limb; the weakest limb's share is the offer. Offers are granted best first,
+    ``E`` of that limb; or, for a hidden joint whose covered limbs show no field, the peak
+    must be faint (from ``PEAK_FROM`` to below ``PEAK_TO`` of the frame's typical labelled
+    joint score), the limbs only fitting in length. A peak below ``PEAK_FLOOR`` of that score
+    is noise and never offered. The offer is how sure each way makes it (the share ramped
+    from ``JOIN_FROM`` to ``JOIN_SURE``, the faint peak's height from ``PEAK_FROM`` to
+    ``PEAK_SURE``), the larger of the two. Offers are granted best first,
     each peak and each person's joint once (a peak goes to the person whose field joins it
     best, Cao et al.'s greedy matching per limb, Sec. 2.4). The joints placed in a round are
     the neighbours of the next: a missing elbow and wrist are placed together, the wrist
     joined to the elbow's peak. A peak where the person's joint was unlabeled (the position
     it remembers) is not offered: someone, or a fix, took it away there.
 
-    Strength: the weakest placed joint's share of the typical ``E``, ramped from
-    ``JOIN_FROM`` to ``JOIN_SURE`` (1). Fix: place the joints at their peaks (visible).
+    Strength: the least sure placed joint's offer. Fix: place the joints at their peaks,
+    visible, or occluded (COCO ``v = 1``) where the peak is fainter than ``INVENTED_FROM`` of
+    the typical score (the model barely sees it).
     """
     out: list[Proposal] = []
     if view.maps is None or view.typical is None:
@@ -997,7 +1008,10 @@ def missing_joints(view: FrameView, peaks: _Peaks | None = None) -> list[Proposa
                     share = _join_share(view, p, j, np.array([x, y]), at)
                     if share is None:
                         continue
-                    height = score / typical_score if np.isfinite(typical_score) else 0.0
+                    # Without scores there is no typical height: the field alone decides.
+                    height = score / typical_score if np.isfinite(typical_score) else np.nan
+                    if height < PEAK_FLOOR:
+                        continue
                     if share >= JOIN_FROM or PEAK_FROM <= height < PEAK_TO:
                         sure = max(ramp(share, JOIN_FROM, JOIN_SURE) if share >= JOIN_FROM
                                    else 0.0, ramp(height, PEAK_FROM, PEAK_SURE)
