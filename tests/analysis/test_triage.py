@@ -227,7 +227,9 @@ def test_triage_and_fixes_on_the_choir(tmp_path):
     are of the weights and calibration fitted on seeds generated with the dance's earlier
     error model; fitted again on dance and choir seeds 1-8 generated with the current one:
     105 flagged, 89 of them wrong (recall 0.890, precision 0.848); 419 wrong joints to 278
-    (33.6 % removed), 2,067 correct to 2,085 (+0.9 %)."""
+    (33.6 % removed), 2,067 correct to 2,085 (+0.9 %). With a person's missing joints placed
+    together and the calibration fitted again: 419 to 275 (34.4 %), 2,067 to 2,097 (+1.5 %);
+    triage's figures are unchanged (the fixes do not enter them)."""
     from app.demo.calibrate import accept_all, demo_frames
 
     folder = tmp_path / "choir21"
@@ -239,7 +241,7 @@ def test_triage_and_fixes_on_the_choir(tmp_path):
     assert fig.precision >= 0.7
     figure = accept_all(demo_frames(folder), demo="choir seed 21")
     print(json.dumps(figure.to_dict(), indent=1))
-    assert figure.removed_share >= 0.32
+    assert figure.removed_share >= 0.33
     assert figure.correct_change >= -0.02
 
 

@@ -9,7 +9,8 @@ end of the Worklist. Figures:
   judged against the demo's true poses (a person is wrong when no true person matches it at
   OKS 0.8, :func:`app.demo.evaluate.wrong_people`, as pycocotools computes OKS; an
   unlabelled joint counts as not placed, even where it remembers a position). Goal: at most
-  2.5.
+  2.5. Where the presses go: per kind of stop accepted or skipped, the stops and the wrong
+  people they removed from their frame (counted outside the timed step).
 - Key presses per wrong labelled joint fixed: the presses over the number of labelled joints
   that are wrong no more (:func:`app.demo.evaluate.judge_joints`: a joint is wrong when its
   person's OKS partner in the truth has no such joint or it lies farther than COCO's
@@ -42,12 +43,14 @@ os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 from tests.benchmarks.common import row
 
 
-def _wrong(project, truth) -> int:
+def _wrong(project, truth, frames=None) -> int:
     from app.demo.evaluate import wrong_people
 
     sigmas = project.skeleton.sigmas
     n = 0
     for fid, (t, areas) in truth.items():
+        if frames is not None and fid not in frames:
+            continue
         # An unlabelled joint may remember a position (``v = 0``); it is no prediction (the
         # COCO export writes ``0, 0, 0``), so it is NaN here: infinitely far, as pycocotools
         # scores a detection's joint at (0, 0) against a true one.
@@ -101,9 +104,18 @@ def walk_demo(folder: Path) -> dict:
     cpu_ends: list[float] = []
     waits: list[float] = []
     press = "next_finding"
+    #: Per stop kind (what was accepted, or what was skipped): stops and wrong people removed
+    #: in the stop's frame (negative: added).
+    by_kind: dict[str, list[int]] = {}
     for _ in range(5000):
         stop_was = window.session.current
         frame_was = window.frame_id
+        if stop_was is not None:
+            act = "accept" if press == "accept_fix" else "skip"
+            kinds = "+".join(sorted({f.kind for f in stop_was.findings
+                                     if act == "skip" or f.fix is not None})) or "reason"
+            kind_key = f"{act} {kinds}"
+            wrong_was = _wrong(project, truth, {stop_was.frame_id})
         t0, c0 = time.perf_counter(), time.process_time()
         actions[press].trigger()
         window.canvas.repaint()
@@ -127,6 +139,10 @@ def walk_demo(folder: Path) -> dict:
             time.sleep(0.002)
         if press == "accept_fix":
             waits.append(time.perf_counter() - w0)
+        if stop_was is not None:
+            tally = by_kind.setdefault(kind_key, [0, 0])
+            tally[0] += 1
+            tally[1] += wrong_was - _wrong(project, truth, {stop_was.frame_id})
         if stop.fix is not None and actions["accept_fix"].isEnabled() and not (
                 stop is stop_was and press == "accept_fix"):  # refused: skip it
             press = "accept_fix"
@@ -142,7 +158,7 @@ def walk_demo(folder: Path) -> dict:
     project.close()
     return {"presses": presses, "accepted": accepted, "skipped": skipped, "before": before,
             "after": after, "joints_before": joints_before, "joints_after": joints_after,
-            "inside": inside, "ends": ends,
+            "inside": inside, "ends": ends, "by_kind": by_kind,
             "cpu_inside": cpu_inside, "cpu_ends": cpu_ends, "waits": waits}
 
 
@@ -166,6 +182,9 @@ def run() -> list[dict]:
                     "(placement against the truth, app.demo.evaluate.judge_joints: COCO's "
                     "per-joint similarity below 0.5, or no true joint; a changed visibility "
                     "alone is not counted)")
+    where_presses = "; ".join(
+        f"{kind} {n} ({fixed:+d})" for kind, (n, fixed) in
+        sorted(got["by_kind"].items(), key=lambda kv: -kv[1][0]))
     ms = {k: 1000 * statistics.median(got[k]) if got[k] else float("nan")
           for k in ("inside", "ends", "cpu_inside", "cpu_ends", "waits")}
     load = os.getloadavg()[0]
@@ -175,6 +194,9 @@ def run() -> list[dict]:
             detail),
         row("walk: key presses per wrong labelled joint fixed", per_joint, "keys", "(none)",
             True, joint_detail),
+        row("walk: stops by kind", sum(n for n, _ in got["by_kind"].values()), "stops",
+            "(none)", True, "what each press after the first did, and in brackets the wrong "
+            f"people it removed from its frame: {where_presses}"),
         row("walk: next finding shown, same frame (median wall)", ms["inside"], "ms",
             "<= 50 ms", ms["inside"] <= 50,
             f"95th percentile {1000 * _p95(got['inside']):.0f} ms over {len(got['inside'])} "

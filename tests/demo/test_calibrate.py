@@ -93,11 +93,15 @@ def test_accepting_every_fix_removes_half_the_wrong_joints(frames):
     fit proposes a duplicate fix from strength 0.27 on). With triage's weights and the
     calibration fitted again on dance and choir seeds 1-8 generated with the current error
     model: 553 down to 315 (43.0 %), 4,913 up to 5,115 (+4.1 %), 189 of 225 helped (0.84;
-    38 invented fixes, 15 of which helped). Below the goal of half; the thresholds sit a
-    little below what was measured."""
+    38 invented fixes, 15 of which helped). With a person's missing joints placed together
+    (a faint peak too), a missed person added only when complete, invented spots other than
+    knees and ankles weighed at half, and the calibration fitted again: 553 down to 299
+    (45.9 %), 4,913 up to 5,103 (+3.9 %), 189 of 223 helped (0.85; 7 missing-joint fixes, 3
+    of which helped). Below the goal of half; the thresholds sit a little below what was
+    measured."""
     figure = accept_all(frames, demo="shipped")
     print(json.dumps(figure.to_dict(), indent=1))
-    assert figure.removed_share >= 0.41
+    assert figure.removed_share >= 0.44
     assert figure.correct_change >= 0.03
     helped = sum(figure.helped.values()) / sum(figure.fixes.values())
     assert helped >= 0.82
