@@ -12,9 +12,10 @@ The coefficients of :data:`SHIPPED` were fitted on both scenarios together: danc
 and choir seeds 1-8, 12 frames each, generated with the current error model, after triage's
 weights had been fitted again on the same seeds (the wrong-owner, split and crossed-sides
 fixes judge hypotheses by triage's weighted evidence, so the calibration follows the weights).
-Every kind was fitted again (6,401 fixes tried) after the ``invented`` and ``missing-joint``
-fixes changed; the kinds whose fixes did not change came out as before (a missing joint's placement grown from the labelled joints, with a faint peak
-placed occluded where a covered limb shows no field; an invented spot's strength lowered for
+Every kind was fitted again (6,401 fixes tried) after the ``invented`` and
+``missing-joint`` fixes changed; the kinds whose fixes did not change came out as before (a
+missing joint's placement is grown from the labelled joints, with a faint peak placed
+occluded where a covered limb shows no field; an invented spot's strength is lowered for
 joints other than knees and ankles and where the field joins the spot); ``missed-person``
 keeps its earlier coefficients (its fix is proposed now only for a complete body, and the
 fit seeds have fewer than 8 of those). On seeds that took part in no fit (12 frames each),

@@ -1025,43 +1025,45 @@ def missing_joints(view: FrameView, peaks: _Peaks | None = None) -> list[Proposa
     typical_score = view.typical_score
     known = {p: view.people[p][:, 2] > 0 for p in view.present}
     taken: set[tuple[int, int]] = set()
-    reach = {p: set(np.flatnonzero(known[p]).tolist()) for p in view.present}
+    # The joints that joined each person last round: the first round starts from the
+    # labelled ones; later rounds look only at joints next to those just placed (an offer
+    # that lost once loses again: its peak or its joint is taken).
+    new = {p: set(np.flatnonzero(known[p]).tolist()) for p in view.present}
     for _ in range(view.skeleton.num_joints):
-        offers: list[tuple[float, int, int, int]] = []
+        offers: list[tuple[float, float, int, int, int]] = []
         for p in view.present:
+            if not new[p]:
+                continue
             kp = view.people[p]
             mine = placed.get(p, {})
             at = _placed_view(kp, mine)
             for j in range(view.skeleton.num_joints):
-                if known[p][j] or j in mine or not any(o in reach[p] for _, o in limbs_of[j]):
+                if known[p][j] or j in mine or not any(o in new[p] for _, o in limbs_of[j]):
                     continue
                 for n, (x, y, score) in enumerate(peaks.unused[j].tolist()):
-                    if (j, n) in taken or _unlabeled_here(view, kp, j, x, y):
+                    # Without scores there is no typical height: the field alone decides.
+                    height = score / typical_score if np.isfinite(typical_score) else np.nan
+                    if (height < PEAK_FLOOR or (j, n) in taken
+                            or _unlabeled_here(view, kp, j, x, y)):
                         continue
                     share = _join_share(view, p, j, np.array([x, y]), at)
                     if share is None:
-                        continue
-                    # Without scores there is no typical height: the field alone decides.
-                    height = score / typical_score if np.isfinite(typical_score) else np.nan
-                    if height < PEAK_FLOOR:
                         continue
                     if share >= JOIN_FROM or PEAK_FROM <= height < PEAK_TO:
                         sure = max(ramp(share, JOIN_FROM, JOIN_SURE) if share >= JOIN_FROM
                                    else 0.0, ramp(height, PEAK_FROM, PEAK_SURE)
                                    if height < PEAK_TO else 0.0)
                         offers.append((sure, share, p, j, n))
-        granted = False
+        new = {p: set() for p in view.present}
         for sure, share, p, j, n in sorted(offers, reverse=True):
             if (j, n) in taken or j in placed.get(p, {}):
                 continue
             taken.add((j, n))
             x, y, score = peaks.unused[j][n]
             placed.setdefault(p, {})[j] = (float(x), float(y), float(score), share, sure)
-            granted = True
-        if not granted:
+            new[p].add(j)
+        if not any(new.values()):
             break
-        for p, mine in placed.items():
-            reach[p] |= set(mine)
     names = view.names
     for p, mine in placed.items():
         joints = tuple(sorted(mine))
