@@ -361,6 +361,7 @@ def test_a_faint_peak_without_field_is_placed_occluded_and_a_bright_one_is_not()
     scores = {p: np.full(17, 0.9) for p in people}
     found = _find(people, "missing-joint", scores, maps=_covered_forearm(truth, 0.3))
     assert [(f.person_id, f.joints) for f in found] == [(2, (J["left_wrist"],))]
+    assert "faint peak" in found[0].text and "a covered limb" in found[0].text
     placed = _accept(_labels(people, scores), found[0]).people[2].keypoints[J["left_wrist"]]
     assert placed[2] == 1
     assert np.hypot(*(placed[:2] - truth[1, J["left_wrist"], :2])) < 2.0

@@ -133,7 +133,7 @@ JOIN_FROM, JOIN_SURE = 0.6, 1.0
 #: ``PEAK_FROM`` of the frame's typical labelled joint score (sure at ``PEAK_SURE``) to below
 #: ``PEAK_TO``. The demo's noise peaks stay below a fifth of it; a bright peak the field does
 #: not join is more often someone else's joint (about 4 in 10 right, against 8 in 10 for a
-#: faint one, on the shipped demo and dance and choir seeds 1-2, looked at while choosing).
+#: faint one, on the shipped demo, dance seed 1 and choir seed 1, looked at while choosing).
 PEAK_FROM, PEAK_SURE, PEAK_TO = 0.25, 0.45, 0.6
 #: Missing joint: a peak below this share of the frame's typical labelled joint score is the
 #: maps' noise, whatever the field says (a field joins noise as readily as a joint: on the
@@ -987,7 +987,8 @@ def _e(view: FrameView, limb: int, start: np.ndarray, end: np.ndarray) -> float:
 
 def missing_joints(view: FrameView, peaks: _Peaks | None = None) -> list[Proposal]:
     """A person's unlabeled joints where the model has unused peaks that its field joins to
-    the person: one proposal per person, placing all of them.
+    the person (or, for a hidden joint, a faint peak within reach): one proposal per person,
+    placing all of them.
 
     Notes
     -----
@@ -1073,15 +1074,21 @@ def missing_joints(view: FrameView, peaks: _Peaks | None = None) -> list[Proposa
         if len(joints) == 1:
             j = joints[0]
             x, y, score, share, _ = mine[j]
-            text = (f"{names.whose(p, j)} is not labelled, but the model has a peak "
-                    f"({score:.2f}) there, within reach of {names.person(p)}, that its field "
-                    f"joins to {names.person(p)} at {share:.0%} of the frame's typical support")
+            if share >= JOIN_FROM:
+                text = (f"{names.whose(p, j)} is not labelled, but the model has a peak "
+                        f"({score:.2f}) that its field joins to {names.person(p)} at "
+                        f"{share:.0%} of the frame's typical support")
+            else:
+                text = (f"{names.whose(p, j)} is not labelled, but the model has a faint "
+                        f"peak ({score:.2f}) within reach of {names.person(p)}, as it gives a "
+                        f"hidden joint; its field there is {share:.0%} of the frame's typical "
+                        "support (a covered limb)")
             summary = f"place {names.whose(p, j)} at ({x:.0f}, {y:.0f})"
         else:
             text = (f"{names.person(p)}'s {names.joints(joints)} are not labelled, but the "
-                    f"model has peaks there, within reach of {names.person(p)} (the faintest "
-                    f"{faintest:.2f}), that its field joins to {names.person(p)} at "
-                    f"{weakest:.0%} of the frame's typical support at least")
+                    f"model has peaks there within reach of {names.person(p)} (the faintest "
+                    f"{faintest:.2f}), each joined by its field or faint as a hidden joint's "
+                    f"(the weakest field {weakest:.0%} of the frame's typical support)")
             summary = f"place {names.person(p)}'s {names.joints(joints)} at the model's peaks"
         edits: list[Edit] = []
         for j in joints:
