@@ -22,7 +22,7 @@ from __future__ import annotations
 
 import logging
 from collections import defaultdict
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from functools import partial
 from typing import Any
 
@@ -89,7 +89,6 @@ class Session:
         self.skeleton = project.skeleton
         self.events = Events()
         self.frame_id: int | None = None
-        self.people: list[Person] = []
         self.names = Names.of_frame(self.skeleton, [])
         #: What is selected in the frame (the Canvas shows and changes it).
         self.selection = Selection()
@@ -124,11 +123,34 @@ class Session:
 
     # ------------------------------------------------------------------ frame
 
-    def open_frame(self, frame_id: int, people: Sequence[Person] | None = None) -> None:
-        """Show a frame: its people in tag order (read from the project unless given)."""
+    @property
+    def people(self) -> list[Person]:
+        """Our people of the frame shown, in tag order: the view holds them
+        (:attr:`app.session.view.View.ours`; the people it shows may be the reviewer's)."""
+        return self.view.ours
+
+    def open_frame(self, frame_id: int, people: Sequence[Person] | None = None,
+                   flags: Mapping[int, frozenset[int]] | None = None) -> None:
+        """Show a frame: its people in tag order (read from the project unless given) with
+        their triage flags (none unless given), nothing selected, no pick, colours given
+        anew (:meth:`app.session.view.View.open`)."""
         self.frame_id = int(frame_id)
-        self.people = list(self.project.people(frame_id) if people is None else people)
-        self.names = Names.of_frame(self.skeleton, [p.id for p in self.people])
+        people = list(self.project.people(frame_id) if people is None else people)
+        self.names = Names.of_frame(self.skeleton, [p.id for p in people])
+        self.selection.select_person(None)
+        self.view.set_pick(None)
+        self.view.open(people, flags or {})
+
+    def reload_frame(self, people: Sequence[Person] | None = None,
+                     flags: Mapping[int, frozenset[int]] | None = None) -> None:
+        """The shown frame's labels changed (an edit, undo, a colleague): its people again
+        (read from the project unless given), the flags kept unless given; those still shown
+        keep their colours (:meth:`app.session.view.View.show`)."""
+        if self.frame_id is None:
+            return
+        people = list(self.project.people(self.frame_id) if people is None else people)
+        self.names = Names.of_frame(self.skeleton, [p.id for p in people])
+        self.view.show(people, self.view.flags if flags is None else flags)
 
     def read_dispute(self, frame: Frame, ours: Sequence[Person],
                      settles: bool = True) -> Dispute | None:
@@ -383,7 +405,7 @@ class Session:
         except PosewrightError:
             log.exception("reading frame %s after an edit failed", fid)
         if fid == self.frame_id:
-            self.open_frame(fid)
+            self.reload_frame()
         return done
 
     # ------------------------------------------------------------------ outside changes

@@ -370,9 +370,12 @@ class Canvas(QWidget):
 
     # ------------------------------------------------------------------ content
 
-    def set_frame(self, frame: Frame, people: list[Person], flags: dict[int, frozenset[int]],
+    def set_frame(self, frame: Frame, people: list[Person] | None = None,
+                  flags: dict[int, frozenset[int]] | None = None,
                   decoded: Decoded | None = None) -> None:
-        """Show another frame: new people, no selection, the image if already decoded."""
+        """Show another frame: no selection, the image if already decoded, and its people
+        (given here, or already in the view: the window's session opens the frame first,
+        :meth:`app.session.session.Session.open_frame`)."""
         keep_view = self.frame is not None and (self.frame.width, self.frame.height) == \
             (frame.width, frame.height) and not self._fit_mode
         self.frame = frame
@@ -392,17 +395,14 @@ class Canvas(QWidget):
         self._draft = []
         self._region_drag = None
         self.blurred = None
-        self.view.open(people, flags)  # no dispute until the window reads it
+        if people is not None:
+            self.view.open(people, flags or {})  # no dispute until the window reads it
         if decoded is not None:
             self.set_image(decoded)
         if not keep_view:
             self.fit()
         self.update()
         self.selectionChanged.emit()
-
-    def set_people(self, people: list[Person], flags: dict[int, frozenset[int]]) -> None:
-        """New labels of the same frame (after an edit); keeps what is still selectable."""
-        self.view.show(people, flags)
 
     def _people_shown(self) -> None:
         """The view shows other people (ours, or the reviewer's version when asked): new hit

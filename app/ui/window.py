@@ -140,7 +140,6 @@ class MainWindow(QMainWindow):
 
         self.events = ProjectEvents(project, self)
         self.loader = ImageLoader(cache or ImageCache(cache_bytes()), parent=self)
-        self.frame_id: int | None = None
         self._typed = ""
         self._typed_timer = QTimer(self)
         self._typed_timer.setSingleShot(True)
@@ -250,6 +249,12 @@ class MainWindow(QMainWindow):
         else:
             self._selection_changed()
             self._update_status()
+
+    @property
+    def frame_id(self) -> int | None:
+        """The frame shown (the session's; None before one is, and while being built)."""
+        session = self.__dict__.get("session")
+        return None if session is None else session.frame_id
 
     @property
     def dispute(self) -> Dispute | None:
@@ -516,12 +521,12 @@ class MainWindow(QMainWindow):
             self._message(str(exc))
             return
         self._cancel_typing()
-        self.frame_id = frame.id
         people = self._read_people(frame.id)
-        self.session.open_frame(frame.id, people)
         flags = self._flags(frame.id)
+        # The session holds the frame, its people and the selection; the Canvas shows them.
+        self.session.open_frame(frame.id, people, flags)
         decoded = self.loader.request(frame.id, self.project.image_path(frame), urgent=True)
-        self.canvas.set_frame(frame, people, flags, decoded)
+        self.canvas.set_frame(frame, decoded=decoded)
         self._load_frame_extras()
         # The neighbours are decoded once this frame is on screen (framePainted): on a busy
         # machine their decoding would compete with the frame the annotator is waiting for.
@@ -587,10 +592,9 @@ class MainWindow(QMainWindow):
             return
         frame = self.project.frame(self.frame_id)
         people = self._read_people(frame.id)
-        self.session.open_frame(frame.id, people)
         flags = self._flags(frame.id)
         self.canvas.frame = frame
-        self.canvas.set_people(people, flags)
+        self.session.reload_frame(people, flags)
         self._load_frame_extras()
         self.owners.people_model.set_people(self.canvas.people, flags, self.canvas.colours)
         self.notes_model.set_frame(frame.id, {p.id: n + 1 for n, p in enumerate(people)})
