@@ -15,7 +15,8 @@ holds both with their difference marks, shows ours unless asked for the reviewer
 
 The modes:
 
-- *region mode*: the mouse works on ignore regions instead of joints;
+- *region mode*: the mouse works on ignore regions instead of joints; it and the reviewer's
+  version exclude each other (entering one leaves the other);
 - *pick*: the next click on a person picks them for an action (``"merge"``); entering region
   mode leaves it;
 - *focus*: the selected person is shown in full and everyone else dimmed.
@@ -222,10 +223,13 @@ class View:
         return {"region": self.region_mode, "pick": self.pick, "focus": self.focus}
 
     def set_region_mode(self, on: bool) -> bool:
-        """Enter or leave region mode (entering leaves a pick); True when it changed."""
+        """Enter or leave region mode; True when it changed. Entering leaves a pick, and
+        shows ours if the reviewer's version was shown (regions are drawn on ours)."""
         on = bool(on)
         if on == self.region_mode:
             return False
+        if on and self.showing_theirs:
+            self.show_theirs(False)
         self.region_mode = on
         if on:
             self.pick = None
@@ -287,7 +291,10 @@ class View:
         return dict(self.theirs_marks if self.showing_theirs else self.ours_marks)
 
     def show_theirs(self, on: bool) -> bool:
-        """Show the reviewer's version (or ours again); False when there is none to show."""
+        """Show the reviewer's version (or ours again); False when there is none to show.
+        Showing theirs leaves region mode (their version is read-only)."""
+        if on and self.region_mode:
+            self.set_region_mode(False)
         on = bool(on) and self.theirs is not None
         if on != self.showing_theirs:
             self.showing_theirs = on

@@ -331,11 +331,17 @@ class Canvas(QWidget):
         self._listen(view)
 
     def _listen(self, view: View) -> None:
+        self._region_mode_was = view.region_mode
+
         def people() -> None:
             if view is self.view:
                 self._people_shown()
 
-        view.events.connect("mode", self.update)
+        def modes() -> None:
+            if view is self.view:
+                self._modes_changed()
+
+        view.events.connect("mode", modes)
         view.events.connect("people", people)
         view.events.connect("dispute", self.update)
 
@@ -492,22 +498,30 @@ class Canvas(QWidget):
         self.regionChanged.emit()
 
     def set_region_mode(self, on: bool) -> None:
-        """Enter or leave region mode (leaving drops a polygon being drawn)."""
-        on = bool(on)
-        if not self.view.set_region_mode(on):
-            return
-        self._draft = []
-        self._region_drag = None
-        self._drag = None
-        if on:
-            self.selection.joints = []
-            self._hover = None
-            self.selectionChanged.emit()
-        else:
-            self._region = None
-        self.setCursor(Qt.CursorShape.CrossCursor if on else Qt.CursorShape.ArrowCursor)
+        """Enter or leave region mode (the view's rule: entering shows ours and leaves a
+        pick; :meth:`app.session.view.View.set_region_mode`)."""
+        self.view.set_region_mode(on)
+
+    def _modes_changed(self) -> None:
+        """The view's modes changed: entering region mode drops the selected joints, leaving
+        it the selected region; either drops a polygon being drawn and a drag. The cursor is
+        a cross while a click places a corner or picks a person."""
+        on = self.view.region_mode
+        if on != self._region_mode_was:
+            self._region_mode_was = on
+            self._draft = []
+            self._region_drag = None
+            self._drag = None
+            if on:
+                self.selection.joints = []
+                self._hover = None
+                self.selectionChanged.emit()
+            else:
+                self._region = None
+            self.regionChanged.emit()
+        cross = on or self.view.pick is not None
+        self.setCursor(Qt.CursorShape.CrossCursor if cross else Qt.CursorShape.ArrowCursor)
         self.update()
-        self.regionChanged.emit()
 
     def region_escape(self) -> None:
         """Esc in region mode: cancel the polygon, else drop the selection, else leave."""
@@ -625,7 +639,6 @@ class Canvas(QWidget):
     def set_pick_mode(self, mode: str | None) -> None:
         """``"merge"``: the next click on a person emits :attr:`personPicked`."""
         self.view.set_pick(mode)
-        self.setCursor(Qt.CursorShape.CrossCursor if mode else Qt.CursorShape.ArrowCursor)
 
     @property
     def pick_mode(self) -> str | None:

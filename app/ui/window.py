@@ -1258,8 +1258,6 @@ class MainWindow(QMainWindow):
 
     def _toggle_region_mode(self) -> None:
         on = self.actions_by_name["region_mode"].isChecked()
-        if on and self.canvas.showing_theirs:
-            self.canvas.show_theirs(False)
         self._cancel_typing()
         self.canvas.set_region_mode(on)
         if on:
@@ -1274,9 +1272,7 @@ class MainWindow(QMainWindow):
 
     def _toggle_theirs(self) -> None:
         want = self.actions_by_name["show_theirs"].isChecked()
-        if want and self.canvas.region_mode:
-            self.canvas.set_region_mode(False)
-        shown = self.canvas.show_theirs(want)
+        shown = self.canvas.show_theirs(want)  # leaves region mode (the view's rule)
         if want and not shown:
             self._message("this frame has no reviewer's version to show")
         self.owners.people_model.set_people(self.canvas.people, self.canvas.flags,

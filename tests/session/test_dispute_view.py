@@ -142,3 +142,21 @@ def test_the_session_gives_the_view_a_real_dispute_and_takes_it_back(labelled, t
     s.read_dispute(labelled.frame(frame.id), s.view.ours)
     assert s.dispute is None and not s.view.showing_theirs
     np.testing.assert_allclose(s.view.person(a.id).keypoints[3, :2], (30.0, 30.0))
+
+
+def test_region_mode_and_the_reviewers_version_exclude_each_other(disputed):
+    """Regions are drawn on ours and the reviewer's version is read-only (our rule, README
+    "Settling a disputed frame"): entering one leaves the other, and says so by events."""
+    v, ours, theirs = disputed
+    heard = _heard(v)
+    v.events.connect("mode", lambda: heard.append(("mode", v.region_mode)))
+    assert v.show_theirs(True)
+    heard.clear()
+    assert v.set_region_mode(True) and v.region_mode and not v.showing_theirs
+    assert v.people == ours
+    assert heard == [("people", [10, 11, 12]), ("dispute", False), ("mode", True)]
+    heard.clear()
+    assert v.show_theirs(True) and not v.region_mode and v.people == theirs
+    assert heard[0] == ("mode", False), "region mode is left first"
+    v.show_theirs(False)
+    assert not v.region_mode, "showing ours again does not bring region mode back"
