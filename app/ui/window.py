@@ -68,6 +68,7 @@ from app.parallel import check_workers
 from app.progress import Progress
 from app.review.review import is_review
 from app.session import Session, Stop
+from app.session.actions import Circumstances, action_states
 from app.session.owners import FIT_MEANING, OwnerRanking, rank_owners, swap_warning
 from app.session.settling import Dispute, describe_difference, step_difference
 from app.session.timeline import Timeline
@@ -1418,7 +1419,7 @@ class MainWindow(QMainWindow):
             self._message(f"frame {fid}: " + (
                 f"{DECISION_TEXT[decision]} (the same key again withdraws it)" if value
                 else "decision withdrawn"))
-        self._update_review_actions()
+        self._update_actions()
         self._update_status()
 
     def _return_packet(self) -> None:
@@ -1490,73 +1491,24 @@ class MainWindow(QMainWindow):
         self._update_actions()
 
     def _update_actions(self) -> None:
-        a = self.actions_by_name
-        editable = not self.project.read_only and self.frame_id is not None
-        joints = bool(self.canvas.selected_joints)
-        person = self.canvas.selected_person is not None
-        for n in range(1, 10):
-            a[f"give_{n}"].setEnabled(editable and joints)
-        for name in ("give_best", "mark_visible", "mark_occluded", "mark_unlabeled",
-                     "place_joint", "split_person"):
-            a[name].setEnabled(editable and joints)
-        a["give_best"].setEnabled(editable and joints and self.owner_ranking is not None
-                                  and self.owner_ranking.best is not None)
-        for name in ("next_finding", "prev_finding"):
-            a[name].setEnabled(self.frame_id is not None)
-        stop = self.session.current
-        here = stop is not None and stop.frame_id == self.frame_id
-        a["accept_fix"].setEnabled(editable and here and stop.fix is not None)
-        a["dismiss_finding"].setEnabled(editable and here and bool(stop.findings))
-        a["new_person"].setEnabled(editable)
-        for name in ("swap_sides", "merge_people", "delete_person"):
-            a[name].setEnabled(editable and person)
-        for name in ("mark_disputed", "sign_off", "write_note"):
-            a[name].setEnabled(editable)
-        writable = not self.project.read_only
-        a["undo"].setEnabled(writable and self.project.can_undo())
-        a["redo"].setEnabled(writable and self.project.can_redo())
-        for name in ("import_labels", "import_maps", "run_triage"):
-            a[name].setEnabled(writable)
-        main = writable and not self.review_mode
-        for name in ("add_images", "add_video", "prelabel", "merge_packet"):
-            a[name].setEnabled(main)
-        a["export_packet"].setEnabled(not self.review_mode and bool(self.worklist_model
-                                                                    .total()))
-        a["region_mode"].setEnabled(self.frame_id is not None)
-        a["region_mode"].setChecked(self.canvas.region_mode)
-        self._update_settling_actions()
-        self._update_review_actions()
-
-    def _update_settling_actions(self) -> None:
-        a = self.actions_by_name
-        d = self.dispute
-        writable = not self.project.read_only
-        joint = self.canvas.selected_joint
-        pid = self.canvas.selected_person
-        a["show_theirs"].setEnabled(self.canvas.has_theirs)
-        a["show_theirs"].setChecked(self.canvas.showing_theirs)
-        for name in ("next_difference", "prev_difference"):
-            a[name].setEnabled(d is not None)
-        on_joint = d is not None and joint is not None and d.joint(*joint) is not None
-        on_person = d is not None and pid is not None and d.person(pid) is not None
-        for side in ("take_theirs", "keep_ours"):
-            a[f"{side}_joint"].setEnabled(writable and on_joint)
-            a[f"{side}_person"].setEnabled(writable and on_person)
-            a[f"{side}_frame"].setEnabled(writable and d is not None)
+        """Enable the actions and set the toggles as the session's rules say
+        (:func:`app.session.actions.action_states`)."""
+        ranking = self.owner_ranking
         frame = self.canvas.frame
-        a["settle_frame"].setEnabled(writable and not self.review_mode and frame is not None
-                                     and frame.state is FrameState.DISPUTED)
-
-    def _update_review_actions(self) -> None:
+        states = action_states(self.session, Circumstances(
+            read_only=self.project.read_only, review=self.review_mode,
+            can_undo=not self.project.read_only and self.project.can_undo(),
+            can_redo=not self.project.read_only and self.project.can_redo(),
+            has_frames=bool(self.worklist_model.total()),
+            best_owner=ranking is not None and ranking.best is not None,
+            frame_state=frame.state if frame is not None and self.frame_id is not None
+            else None,
+            decision=self._decision()))
         a = self.actions_by_name
-        decided = self._decision()
-        for name, value in (("decide_agree", "looks-right"), ("decide_needs_change", "query"),
-                            ("decide_signed_off", "ready")):
-            a[name].setEnabled(self.review_mode and not self.project.read_only
-                               and self.frame_id is not None)
-            a[name].setChecked(decided == value)
-        a["return_packet"].setEnabled(self.review_mode)
-        a["show_blurred"].setEnabled(self.review_mode)
+        for name, on in states.enabled.items():
+            a[name].setEnabled(on)
+        for name, on in states.checked.items():
+            a[name].setChecked(on)
 
     def _decision(self) -> str | None:
         """The reviewer's decision on the frame shown (review mode), else None."""
