@@ -58,6 +58,10 @@ from app.session.events import Events
 #: :data:`app.ui.overlay.PERSON_COLOURS`; tests/ui/test_overlay.py checks they agree).
 PALETTE_SIZE = 7
 
+#: The joint index that stands for "the whole person" in :attr:`View.flags` (and in the
+#: painter's flags, :attr:`app.ui.overlay.OverlayStyle.flags`).
+WHOLE_PERSON = -1
+
 #: What a pick waits for: ``"merge"`` (the person to merge the selected one into).
 PICKS = ("merge",)
 
@@ -157,7 +161,7 @@ class View:
         self.palette_size = palette_size
         #: The people shown, in tag order (a person's tag is its place here, from 1).
         self.people: list[Any] = []
-        #: Person id -> flagged joints (``app.ui.overlay.WHOLE_PERSON`` for the whole body).
+        #: Person id -> flagged joints (:data:`WHOLE_PERSON` for the whole body).
         self.flags: dict[int, frozenset[int]] = {}
         #: Person id -> palette index; kept while the frame is edited so colours do not jump.
         self.colours: dict[int, int] = {}

@@ -70,7 +70,18 @@ from app.review.review import is_review
 from app.session import Session, Stop
 from app.session.actions import Circumstances, action_states
 from app.session.owners import FIT_MEANING, OwnerRanking, rank_owners, swap_warning
-from app.session.settling import Dispute, describe_difference, step_difference
+from app.session.settling import Dispute, step_difference
+from app.session.status import (
+    VISIBILITY_WORDS,
+    difference_text,
+    dispute_strip,
+    flags_text,
+    people_text,
+    region_strip,
+    review_strip,
+    selection_text,
+    state_text,
+)
 from app.session.timeline import Timeline
 from app.store.project import Applied, Project
 from app.ui.canvas import Canvas
@@ -84,7 +95,7 @@ from app.ui.models import (
     WorklistModel,
     video_position,
 )
-from app.ui.overlay import WHOLE_PERSON, flags_from_reasons, palette_colour
+from app.ui.overlay import flags_from_reasons, palette_colour
 from app.ui.panels import LedgerPanel, NotesPanel, OwnersPanel, WorklistPanel
 from app.ui.settings import cache_bytes, settings
 from app.ui.strips import Strip
@@ -94,7 +105,6 @@ from app.wording import count, plural
 
 log = logging.getLogger(__name__)
 
-_VISIBILITY_WORD = {0: "unlabelled", 1: "occluded", 2: "visible"}
 #: How long a first digit waits for a second one when there are ten or more people (ms).
 DIGIT_WAIT_MS = 700
 #: How often a hosted project's Worklist looks again at the claims, some of which run out (ms).
@@ -756,7 +766,7 @@ class MainWindow(QMainWindow):
             self._message("select a joint first")
             return
         edits = [SetVisibility(frame_id, p, j, v) for p, j in joints]
-        word = _VISIBILITY_WORD[v]
+        word = VISIBILITY_WORDS[v]
         edit: Edit = edits[0] if len(edits) == 1 else EditGroup(
             frame_id, tuple(edits), f"mark {count(len(edits), 'joint')} {word}")
         self.apply(edit)
@@ -1125,8 +1135,8 @@ class MainWindow(QMainWindow):
                 f"<b>{html.escape(self.owner_ranking.verdict)}</b><br>"
                 f"<span style='color:#555'>{html.escape(FIT_MEANING)}; click a row "
                 "beside the joint or press its tag number to give the joint</span>")
-        text = self._selection_text()
-        differs = self._difference_text()
+        text = selection_text(self.session)
+        differs = difference_text(self.session)
         if differs:
             text += f"<br><span style='color:#8a4b00'><b>differs</b> \u2014 {differs}</span>"
         self.owners.selection.setText(text)
@@ -1205,55 +1215,6 @@ class MainWindow(QMainWindow):
             return
         self.maps_shelf.ahead(nxt, partial(_usable_maps, str(where[0]),
                                            self.project.frame(nxt), self.skeleton))
-
-    def _selection_text(self) -> str:
-        pid = self.canvas.selected_person
-        if pid is None:
-            return "Nothing selected."
-        names = self.session.names
-        person = self.canvas.person(pid)
-        head = f"<b>{names.person(pid, with_id=True)}</b>" + (
-            "" if names.tag(pid) is not None or person is not None
-            else " (not in the version shown)")
-        joints = self.canvas.selected_joints
-        if not joints or person is None:
-            labelled = 0 if person is None else person.num_labelled
-            return f"{head}: {count(labelled, 'labelled joint')}"
-        if len(joints) > 1:
-            return f"{head}: {count(len(joints), 'joint')} selected"
-        j = joints[0][1]
-        x, y, v = person.keypoints[j]
-        name = names.joint(j)
-        if not np.isfinite([x, y]).all():
-            return f"{head} \u00b7 {name}: not placed (P places it at the pointer)"
-        score = person.scores[j]
-        extra = f", model score {score:.2f}" if np.isfinite(score) else ""
-        flagged = j in self.canvas.flags.get(pid, ()) or \
-            WHOLE_PERSON in self.canvas.flags.get(pid, ())
-        flag = ", <b>flagged by triage</b>" if flagged else ""
-        return (f"{head} \u00b7 {name} \u00b7 {_VISIBILITY_WORD[int(v)]} at ({x:.1f}, {y:.1f})"
-                f"{extra}, by {person.sources[j] or 'unknown'}{flag}")
-
-    def _difference_text(self) -> str:
-        """What mine and the reviewer's version say about the selection ("" if they agree)."""
-        joint = self.canvas.selected_joint
-        pid = self.canvas.selected_person
-        if self.dispute is None or pid is None:
-            return ""
-        if joint is not None:
-            found = self.dispute.joint(*joint)
-            if found is not None:
-                return describe_difference(found[1], found[0].reviewer)
-            return ""
-        person = self.dispute.person(pid)
-        if person is None:
-            return ""
-        if person.alternative.kind == "deleted-there":
-            return f"{person.reviewer} deleted this person; it was edited here since"
-        if person.alternative.kind == "deleted-here":
-            return f"deleted here; {person.reviewer} kept editing this person"
-        n = len(person.joints)
-        return f"{count(n, 'joint')} {plural(n, 'differs', 'differ')} from {person.reviewer}'s"
 
     # ------------------------------------------------------------------ ignore regions
 
@@ -1520,63 +1481,18 @@ class MainWindow(QMainWindow):
         return made.decision if made is not None else None
 
     def _update_strips(self) -> None:
+        """The strips over the Canvas say what the session says (:mod:`app.session.status`)."""
         frame = self.canvas.frame
         if self.review_mode and frame is not None:
-            decided = self._decision()
-            word = f"<b>{DECISION_TEXT[decided]}</b>" if decided else "none yet"
             packet = self.project.folder.name.removesuffix(".review") + ".zip"
-            self.strips["review"].say(
-                f"<b>Reviewing</b> {packet} \u00b7 decision: {word}",
-                f"Reviewing {packet}: your decision on this frame is "
-                f"{DECISION_TEXT[decided] if decided else 'none yet'}. Ctrl+1 looks right, "
-                "Ctrl+2 queries it, Ctrl+3 makes it ready for training; the same key again "
-                "withdraws")
+            self.strips["review"].say(*review_strip(packet, self._decision()))
         else:
             self.strips["review"].say("")
-        self.strips["dispute"].say(*self._dispute_strip_text())
-        self.strips["regions"].say(self._region_strip_text())
-
-    def _dispute_strip_text(self) -> tuple[str, str]:
-        """The dispute strip's one short line, and the full sentence for its tooltip (the
-        keys are on the strip's buttons, so the line need not say them)."""
-        frame = self.canvas.frame
-        if self.review_mode or frame is None or frame.state is not FrameState.DISPUTED:
-            return "", ""
-        d = self.dispute
-        if d is None:
-            return ("<b>Disputed</b> \u00b7 no open differences \u00b7 Shift+Return settles it",
-                    "No open differences with a reviewer's version: Shift+Return settles the "
-                    "frame (marks it corrected)")
-        joints, people = len(d.joints), len(d.people)
-        if self.canvas.showing_theirs:
-            return (f"<b>{d.who}'s version</b> (read-only) \u00b7 squares: "
-                    f"{count(joints, 'joint')} that {plural(joints, 'differs', 'differ')} "
-                    "\u00b7 dashed lines lead to mine",
-                    f"Showing {d.who}'s version (read-only): squares mark "
-                    f"{count(joints, 'joint')} that {plural(joints, 'differs', 'differ')}; "
-                    "dashed lines lead to mine. A takes the reviewer's, K keeps mine, "
-                    "B shows mine")
-        return (f"<b>Disputed</b> \u00b7 {d.who} differs on {count(joints, 'joint')} of "
-                f"{count(people, 'person')} \u00b7 squares: mine, dashed lines: {d.who}'s",
-                f"{d.who}'s review differs on {count(joints, 'joint')} of "
-                f"{count(people, 'person')}: white squares mark mine, dashed lines lead to "
-                f"{d.who}'s. A takes the reviewer's, K keeps mine (Shift: the person, "
-                "Ctrl+Shift: the frame)")
-
-    def _region_strip_text(self) -> str:
-        if not self.canvas.region_mode:
-            return ""
-        held = f"{count(len(self.canvas.regions), 'ignore regions')} in this frame"
-        if self.canvas.drafting:
-            return ("<b>Drawing a polygon</b>: click the next corner \u00b7 Return or a double "
-                    "click closes it \u00b7 Backspace takes back a corner \u00b7 Esc cancels")
-        rid = self.canvas.selected_region
-        if rid is not None:
-            return (f"<b>Region {rid}</b> selected: drag a corner to reshape it, drag inside "
-                    "to move it \u00b7 Del deletes it \u00b7 Esc lets go \u00b7 " + held)
-        return ("<b>Region mode</b>: drag a rectangle, or click the corners of a polygon "
-                "\u00b7 click a region to select it \u00b7 training ignores these areas "
-                "\u00b7 " + held)
+        self.strips["dispute"].say(*dispute_strip(
+            self.session, frame.state if frame is not None else None, self.review_mode))
+        c = self.canvas
+        self.strips["regions"].say(region_strip(c.region_mode, len(c.regions), c.drafting,
+                                                c.selected_region))
 
     def _update_status(self) -> None:
         shown = self.worklist_model.rowCount()
@@ -1594,20 +1510,14 @@ class MainWindow(QMainWindow):
             self.status_frame.setToolTip(
                 f"{count(shown, 'frames')} shown by the Worklist filters" if shown != total
                 else "")
-        regions = len(self.canvas.regions)
-        self.status_people.setText(count(len(self.canvas.ours), "people") + (
-            f" \u00b7 {count(regions, 'ignore regions')}" if regions else ""))
-        flagged = sum(1 for v in self.canvas.flags.values() if v)
+        self.status_people.setText(people_text(len(self.session.people),
+                                               len(self.canvas.regions)))
         stops = None if self.frame_id is None else self.session.known_stops(self.frame_id)
-        self.status_flags.setText((f"flags on {count(flagged, 'people')}" if flagged
-                                   else "no flags")
-                                  + ("" if stops is None else _stops_text(stops)))
+        self.status_flags.setText(flags_text(self.session.view.flags, stops))
         frame = self.canvas.frame
-        state = STATE_TEXT[frame.state] if frame is not None else ""
-        if self.review_mode and frame is not None:
-            decided = self._decision()
-            state += f" \u00b7 decision: {DECISION_TEXT[decided] if decided else 'none'}"
-        self.status_state.setText(state)
+        self.status_state.setText(state_text(
+            frame.state if frame is not None else None, self.review_mode,
+            self._decision() if self.review_mode and frame is not None else None))
         self._update_strips()
         self.status_author.setText(f"author: {self.project.author}")
         self._update_zoom()
@@ -1967,13 +1877,3 @@ def keep_open(window: MainWindow) -> None:
     window.destroyed.connect(lambda *_: _OPEN_WINDOWS.discard(window))
     window.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
 
-
-def _stops_text(stops: list) -> str:
-    """The frame's open findings for the status bar, and the walk's stops when findings are
-    grouped (a frame's hidden-joint and invented-spot fixes are one stop), so the count of
-    findings and the card's "stop 4 of 11" agree."""
-    found = sum(len(s.findings) for s in stops)
-    text = f" \u00b7 {count(found, 'open findings')}"
-    if len(stops) != found:
-        text += f" at {count(len(stops), 'stops')}"
-    return text
