@@ -33,6 +33,7 @@ from app.model.edits import DismissFinding, Edit, EditGroup
 from app.model.labels import Frame, FrameState, Person
 from app.model.naming import Names
 from app.session.blurred import BlurredFrame, load_blurred
+from app.session.editing import Editing
 from app.session.events import Events
 from app.session.selection import Selection
 from app.session.settling import Dispute, load_dispute
@@ -80,6 +81,10 @@ class Session:
     ``refreshed(int)``
         A frame the walk changed has its findings computed again (the result is in; its
         stops may have changed).
+    ``selection()``
+        An intent moved the selection (after an edit: onto a person split off, a joint
+        given away, ...), or it forgot people no longer shown; the Canvas's own clicks
+        change it without this event.
     """
 
     def __init__(self, project: Project, order: Callable[[], Sequence[int]] | None = None,
@@ -97,6 +102,9 @@ class Session:
         self.view = View()
         #: The open differences of the frame shown, when it is disputed.
         self.dispute: Dispute | None = None
+        #: What the editing keys do (app/session/editing.py).
+        self.editing = Editing(self)
+        self.view.events.connect("people", self._forget_unshown)
         self._order = order or self._suspicion_order
         self._apply = apply or project.apply
         self.walk = Walk(lambda: self._order(), self.stops)
@@ -151,6 +159,22 @@ class Session:
         people = list(self.project.people(self.frame_id) if people is None else people)
         self.names = Names.of_frame(self.skeleton, [p.id for p in people])
         self.view.show(people, self.view.flags if flags is None else flags)
+
+    def _forget_unshown(self) -> None:
+        """The view shows other people: the selection forgets those no longer shown."""
+        if self.selection.keep_only(p.id for p in self.view.people):
+            self.events.emit("selection")
+
+    def select_joints(self, pairs: Sequence[tuple[int, int]]) -> None:
+        """Select these joints (none: leave the selection) and tell the listeners."""
+        if pairs:
+            self.selection.select_joints(pairs)
+            self.events.emit("selection")
+
+    def select_person(self, person_id: int | None) -> None:
+        """Select a person alone (None: nothing) and tell the listeners."""
+        self.selection.select_person(person_id)
+        self.events.emit("selection")
 
     def read_dispute(self, frame: Frame, ours: Sequence[Person],
                      settles: bool = True) -> Dispute | None:

@@ -623,6 +623,11 @@ class Canvas(QWidget):
         self.update()
         self.selectionChanged.emit()
 
+    def selection_moved(self) -> None:
+        """The session moved the selection (an intent, after its edit): show it."""
+        self.update()
+        self.selectionChanged.emit()
+
     def clear_selection(self) -> None:
         self.view.set_pick(None)
         self.select_person(None)

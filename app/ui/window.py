@@ -50,17 +50,8 @@ from app.jobs import add_images, add_video_frames
 from app.model.edits import (
     AddNote,
     AddRegion,
-    DeletePerson,
     Edit,
-    EditGroup,
-    MergePeople,
-    MoveJoint,
-    NewPerson,
-    ReassignJoint,
     SetFrameState,
-    SetVisibility,
-    SplitPerson,
-    SwapSides,
 )
 from app.model.labels import FrameLabels, FrameState, Person
 from app.model.skeleton import Skeleton
@@ -69,10 +60,9 @@ from app.progress import Progress
 from app.review.review import is_review
 from app.session import Session, Stop
 from app.session.actions import Circumstances, action_states
-from app.session.owners import FIT_MEANING, OwnerRanking, rank_owners, swap_warning
+from app.session.owners import FIT_MEANING, OwnerRanking, rank_owners
 from app.session.settling import Dispute, step_difference
 from app.session.status import (
-    VISIBILITY_WORDS,
     difference_text,
     dispute_strip,
     flags_text,
@@ -89,7 +79,6 @@ from app.ui.images import ImageCache, ImageLoader
 from app.ui.keys import KEYS, sequences, sheet_html
 from app.ui.models import (
     DECISION_TEXT,
-    STATE_TEXT,
     LedgerModel,
     NotesModel,
     WorklistModel,
@@ -205,6 +194,7 @@ class MainWindow(QMainWindow):
         self.session.events.connect("stop", self._show_stop)
         self.session.events.connect("message", self._message)
         self.session.events.connect("refreshed", self._refreshed)
+        self.session.events.connect("selection", self.canvas.selection_moved)
         self.canvas.selection = self.session.selection
         self.canvas.use_view(self.session.view)
         #: The selected joint's owner and candidates (None without one selected joint).
@@ -727,31 +717,11 @@ class MainWindow(QMainWindow):
         return self.frame_id, self.canvas.selected_joints, self.canvas.selected_person
 
     def give_to_person(self, target: int) -> None:
-        """Give the selected joint(s) to person ``target``; the selection follows them."""
-        frame_id, joints, _ = self._selection()
-        if frame_id is None or not joints:
-            self._message("select a joint first (click it on the Canvas)")
-            return
-        edits = [ReassignJoint(frame_id, p, j, target) for p, j in joints if p != target]
-        if not edits:
-            self._message(f"the selected joint already belongs to "
-                          f"{self.session.names.person(target)}")
-            return
-        # The group's summary is its edits' (ids and joint indices): the Ledger names them.
-        edit: Edit = edits[0] if len(edits) == 1 else EditGroup(frame_id, tuple(edits))
-        swaps = swap_warning(self.canvas.people, joints, target, self.skeleton)
-        if self.apply(edit) is not None:
-            if swaps:
-                self._message(f"swapped: {swaps.split(': ', 1)[0]}, so the two were exchanged "
-                              "(Ctrl+Z takes it back)")
-            self.canvas.select_joints([(target, e.joint) for e in edits])
+        """Give the selected joint(s) to person ``target`` (the session's intent)."""
+        self.session.editing.give_to(target)
 
     def give_to_number(self, number: int) -> None:
-        people = self.canvas.people
-        if not 1 <= number <= len(people):
-            self._message(f"there is no person {number} in this frame")
-            return
-        self.give_to_person(people[number - 1].id)
+        self.session.editing.give_to_number(number)
 
     def give_to_best(self) -> None:
         best = None if self.owner_ranking is None else self.owner_ranking.best
@@ -760,98 +730,36 @@ class MainWindow(QMainWindow):
             return
         self.give_to_person(best.person_id)
 
+    # The editing intents are the session's (app/session/editing.py); the window gives
+    # them what only it knows (the pointer) and cancels a tag number being typed.
+
     def set_visibility(self, v: int) -> None:
-        frame_id, joints, _ = self._selection()
-        if frame_id is None or not joints:
-            self._message("select a joint first")
-            return
-        edits = [SetVisibility(frame_id, p, j, v) for p, j in joints]
-        word = VISIBILITY_WORDS[v]
-        edit: Edit = edits[0] if len(edits) == 1 else EditGroup(
-            frame_id, tuple(edits), f"mark {count(len(edits), 'joint')} {word}")
-        self.apply(edit)
+        self.session.editing.set_visibility(v)
 
     def place_joint(self) -> None:
-        frame_id, _, _ = self._selection()
-        joint = self.canvas.selected_joint
-        xy = self.canvas.pointer_image_position()
-        if frame_id is None or joint is None:
-            self._message("select a joint first (Tab walks a person's joints)")
-            return
-        if xy is None:
-            self._message("point at the place on the Canvas, then press P")
-            return
-        self.apply(MoveJoint(frame_id, joint[0], joint[1], round(xy[0], 2), round(xy[1], 2)))
+        self.session.editing.place_joint(self.canvas.pointer_image_position())
 
     def new_person(self) -> None:
-        frame_id, joints, _ = self._selection()
-        if frame_id is None:
-            return
-        if not joints:
-            done = self.apply(NewPerson(frame_id))
-            if done is not None:
-                self.canvas.select_person(done.edit.person_id)  # type: ignore[attr-defined]
-            return
-        self.split_person()
+        self.session.editing.new_person()
 
     def split_person(self) -> None:
-        frame_id, joints, _ = self._selection()
-        if frame_id is None or not joints:
-            self._message("select the joints to split off (Ctrl+click adds joints)")
-            return
-        owners = {p for p, _ in joints}
-        if len(owners) != 1:
-            self._message("the selected joints belong to different people; select joints of "
-                          "one person")
-            return
-        pid = owners.pop()
-        done = self.apply(SplitPerson(frame_id, pid, tuple(j for _, j in joints)))
-        if done is not None:
-            new_id = done.edit.new_person_id  # type: ignore[attr-defined]
-            for n, (_, j) in enumerate(joints):
-                self.canvas.select_joint(new_id, j, add=n > 0)
+        self.session.editing.split_person()
 
     def swap_sides(self) -> None:
-        frame_id, _, pid = self._selection()
-        if frame_id is None or pid is None:
-            self._message("select a person first")
-            return
-        self.apply(SwapSides(frame_id, pid))
+        self.session.editing.swap_sides()
 
     def start_merge(self) -> None:
-        frame_id, _, pid = self._selection()
-        if frame_id is None or pid is None:
-            self._message("select the person to keep first, then press M")
-            return
-        self.canvas.set_pick_mode("merge")
-        self._message(f"merge: click the person (on the Canvas or in Owners) to merge into "
-                      f"{self.session.names.person(pid, with_id=True)}; Esc cancels", 0)
+        self.session.editing.start_merge()
 
     def _merge_picked(self, other: int) -> None:
-        frame_id, _, keep = self._selection()
         self.statusBar().clearMessage()
-        if frame_id is None or keep is None:
-            return
-        if other == keep:
-            self._message("that is the same person; merge cancelled")
-            return
-        if self.apply(MergePeople(frame_id, keep, other)) is not None:
-            self.canvas.select_person(keep)
+        self.session.editing.merge_with(other)
 
     def delete_person(self) -> None:
-        frame_id, _, pid = self._selection()
-        if frame_id is None or pid is None:
-            self._message("select a person first")
-            return
-        self.apply(DeletePerson(frame_id, pid))
+        self.session.editing.delete_person()
 
     def toggle_state(self, state: FrameState) -> None:
-        if self.frame_id is None:
-            return
-        now = self.project.frame(self.frame_id).state
-        target = FrameState.CORRECTED if now is state else state
-        if self.apply(SetFrameState(self.frame_id, target)) is not None:
-            self._message(f"frame marked {STATE_TEXT[target]}")
+        self.session.editing.toggle_state(state)
 
     def _add_note(self, text: str) -> None:
         if self.frame_id is None:
@@ -1087,13 +995,7 @@ class MainWindow(QMainWindow):
         self._update_timeline()
 
     def step_person(self, step: int) -> None:
-        people = self.canvas.people
-        if not people:
-            return
-        ids = [p.id for p in people]
-        pid = self.canvas.selected_person
-        i = ids.index(pid) if pid in ids else (-1 if step > 0 else 0)
-        self.canvas.select_person(ids[(i + step) % len(ids)])
+        self.session.editing.step_person(step)
 
     def _escape(self) -> None:
         self._cancel_typing()

@@ -1,0 +1,131 @@
+"""The editing intents on the session without a window (app/session/editing.py): several
+joints marked in one undo step, joints split off into a new person that stays selected, a
+refused merge that changes nothing and says why, swapping sides and deleting, giving a joint
+to another person by tag, stepping through the people. The window's keys and clicks reach
+these intents in tests/ui/test_owners.py (end to end, a smaller set).
+
+Data: three synthetic upright people on frame 1 (invented; the shape of tests/synthetic.py's
+template). The visibility values follow the COCO keypoints format (v = 2 visible, 1 occluded,
+0 unlabelled); the edit rules are our own (app/model/edits.py); one action, one undo step is
+the command pattern's rule (common practice, no source).
+"""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+import numpy as np
+import pytest
+
+from app.model.labels import AUTO, Person
+from app.session import Session
+
+
+@pytest.fixture
+def session(project):
+    """A session on frame 1 with people of tags 1, 2, 3 standing apart, every joint visible;
+    it reads the frame again on the project's change notice, as the window does."""
+    with project.bulk("ImportTest", "synthetic people", "test") as b:
+        first = b.allocate_person_ids(3)
+        rows = []
+        for n in range(3):
+            kp = np.column_stack([40.0 + 90 * n + np.arange(17.0), np.arange(17.0) * 10 + 20,
+                                  np.full(17, 2.0)])
+            rows.append((1, replace(Person.blank(first + n, 17, AUTO), keypoints=kp)))
+        b.add_people(rows)
+    s = Session(project)
+    s.open_frame(1)
+    project.subscribe(lambda kind, ids: s.reload_frame() if s.frame_id in ids else None)
+    s.said = []
+    s.events.connect("message", lambda text, *_: s.said.append(text))
+    return s
+
+
+def _people(s):
+    return {p.id: p for p in s.project.people(s.frame_id)}
+
+
+def _groups(project):
+    return len({e.group_id for e in project.history()})
+
+
+def test_several_selected_joints_change_in_one_undo_step(session):
+    s = session
+    pid = s.people[1].id
+    for j in (5, 6, 11):
+        s.selection.select_joint(pid, j, add=True)
+    n = _groups(s.project)
+    s.editing.set_visibility(1)
+    assert _people(s)[pid].keypoints[[5, 6, 11], 2].tolist() == [1] * 3
+    assert _groups(s.project) == n + 1
+    s.project.undo()
+    assert _people(s)[pid].keypoints[[5, 6, 11], 2].tolist() == [2] * 3
+    s.selection.select_person(None)
+    s.editing.set_visibility(0)
+    assert s.said[-1] == "select a joint first"
+
+
+def test_split_selected_joints_into_a_new_person_who_stays_selected(session):
+    s = session
+    pid = s.people[2].id
+    s.selection.select_joint(pid, 9)
+    s.selection.select_joint(pid, 7, add=True)
+    moved = []
+    s.events.connect("selection", lambda: moved.append(list(s.selection.joints)))
+    before = set(_people(s))
+    s.editing.split_person()
+    after = _people(s)
+    (new,) = set(after) - before
+    assert after[new].keypoints[[7, 9], 2].tolist() == [2, 2]
+    assert int(after[new].keypoints[:, 2].astype(bool).sum()) == 2
+    assert after[pid].keypoints[[7, 9], 2].tolist() == [0, 0]
+    assert moved == [[(new, 9), (new, 7)]], "one selection event, on the new person"
+    assert s.view.person(new) is not None, "the view shows them"
+
+
+def test_a_refused_merge_changes_nothing_and_says_why(session):
+    s = session
+    keep, other = s.people[0].id, s.people[1].id
+    s.selection.select_person(keep)
+    n = len(s.project.history())
+    s.editing.start_merge()
+    assert s.view.pick == "merge" and s.said[-1].startswith("merge: click the person")
+    s.view.set_pick(None)
+    s.editing.merge_with(other)
+    assert len(s.project.history()) == n
+    assert {keep, other} <= set(_people(s))
+    assert "both have" in s.said[-1]
+    s.editing.merge_with(keep)
+    assert s.said[-1] == "that is the same person; merge cancelled"
+
+
+def test_swap_sides_and_delete_person(session):
+    s = session
+    pid = s.people[1].id
+    s.selection.select_joint(pid, 5)
+    before = _people(s)[pid].keypoints.copy()
+    s.editing.swap_sides()
+    after = _people(s)[pid].keypoints
+    np.testing.assert_array_equal(after[5], before[6])
+    np.testing.assert_array_equal(after[6], before[5])
+    s.editing.delete_person()
+    assert pid not in _people(s) and s.view.person(pid) is None
+    assert s.selection.person is None, "the deleted person is no longer selected"
+
+
+def test_give_by_tag_and_step_through_the_people(session):
+    s = session
+    a, b, c = (p.id for p in s.people)
+    s.editing.step_person(-1)
+    assert s.selection.person == c, "backwards from nothing: the last person"
+    s.editing.step_person(1)
+    assert s.selection.person == a
+    s.selection.select_joint(a, 3)
+    s.editing.give_to_number(4)
+    assert s.said[-1] == "there is no person 4 in this frame"
+    was = _people(s)[a].keypoints[3].copy()
+    s.editing.give_to_number(2)
+    np.testing.assert_array_equal(_people(s)[b].keypoints[3], was)
+    assert s.selection.joints == [(b, 3)], "the selection follows the joint"
+    s.editing.give_to(b)
+    assert s.said[-1] == "the selected joint already belongs to person 2"
