@@ -36,7 +36,7 @@ from app.session.blurred import BlurredFrame, load_blurred
 from app.session.editing import Editing
 from app.session.events import Events
 from app.session.selection import Selection
-from app.session.settling import Dispute, load_dispute
+from app.session.settling import Dispute, Settling, load_dispute
 from app.session.view import View
 from app.session.walk import Stop, Walk, group_findings
 from app.store.project import Project
@@ -71,6 +71,10 @@ class Session:
     background
         Where a changed frame's findings are computed again (:data:`Background`); default:
         at once, in the caller's thread (:func:`run_here`).
+    attempt
+        Runs a back-end call that changes the project other than by an edit (settling):
+        returns ``(done, result)``; default :meth:`attempt`'s own (refusals said as
+        messages). The window passes its own, which shows other errors in a box.
 
     Events
     ------
@@ -81,6 +85,8 @@ class Session:
     ``refreshed(int)``
         A frame the walk changed has its findings computed again (the result is in; its
         stops may have changed).
+    ``reveal(x, y)``
+        Bring this image point into view (a difference selected by the settling keys).
     ``selection()``
         An intent moved the selection (after an edit: onto a person split off, a joint
         given away, ...), or it forgot people no longer shown; the Canvas's own clicks
@@ -89,7 +95,8 @@ class Session:
 
     def __init__(self, project: Project, order: Callable[[], Sequence[int]] | None = None,
                  apply: Callable[[Edit], Any] | None = None,
-                 background: Background | None = None):
+                 background: Background | None = None,
+                 attempt: Callable[[Callable[[], Any]], tuple[bool, Any]] | None = None):
         self.project = project
         self.skeleton = project.skeleton
         self.events = Events()
@@ -102,8 +109,11 @@ class Session:
         self.view = View()
         #: The open differences of the frame shown, when it is disputed.
         self.dispute: Dispute | None = None
-        #: What the editing keys do (app/session/editing.py).
+        #: What the editing keys do (app/session/editing.py) and the settling keys
+        #: (app/session/settling.py).
         self.editing = Editing(self)
+        self.settling = Settling(self)
+        self._attempt = attempt
         self.view.events.connect("people", self._forget_unshown)
         self._order = order or self._suspicion_order
         self._apply = apply or project.apply
@@ -159,6 +169,21 @@ class Session:
         people = list(self.project.people(self.frame_id) if people is None else people)
         self.names = Names.of_frame(self.skeleton, [p.id for p in people])
         self.view.show(people, self.view.flags if flags is None else flags)
+
+    def attempt(self, fn: Callable[[], Any]) -> tuple[bool, Any]:
+        """Run a back-end call that changes the project (settling): ``(True, its result)``,
+        or ``(False, None)`` when the project is read-only or the store refused it (said as
+        a message)."""
+        if self._attempt is not None:
+            return self._attempt(fn)
+        if self.project.read_only:
+            self.events.emit("message", f"read-only: {self.project.read_only_reason}")
+            return False, None
+        try:
+            return True, fn()
+        except EditRefused as exc:
+            self.events.emit("message", f"not done: {exc}")
+            return False, None
 
     def _forget_unshown(self) -> None:
         """The view shows other people: the selection forgets those no longer shown."""

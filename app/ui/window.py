@@ -27,7 +27,6 @@ from functools import partial
 from pathlib import Path
 from typing import Any
 
-import numpy as np
 from PySide6.QtCore import QEvent, QObject, Qt, QTimer, Signal
 from PySide6.QtGui import QAction, QCloseEvent, QKeyEvent, QKeySequence
 from PySide6.QtWidgets import (
@@ -61,7 +60,7 @@ from app.review.review import is_review
 from app.session import Session, Stop
 from app.session.actions import Circumstances, action_states
 from app.session.owners import FIT_MEANING, OwnerRanking, rank_owners
-from app.session.settling import Dispute, step_difference
+from app.session.settling import Dispute
 from app.session.status import (
     difference_text,
     dispute_strip,
@@ -190,11 +189,12 @@ class MainWindow(QMainWindow):
         #: Where the session computes a changed frame's findings again (a worker thread).
         self.background = Background(self)
         self.session = Session(project, order=self.worklist.ordered_ids, apply=self.apply,
-                               background=self.background)
+                               background=self.background, attempt=self._attempt)
         self.session.events.connect("stop", self._show_stop)
         self.session.events.connect("message", self._message)
         self.session.events.connect("refreshed", self._refreshed)
         self.session.events.connect("selection", self.canvas.selection_moved)
+        self.session.events.connect("reveal", self.canvas.ensure_visible)
         self.canvas.selection = self.session.selection
         self.canvas.use_view(self.session.view)
         #: The selected joint's owner and candidates (None without one selected joint).
@@ -1144,126 +1144,19 @@ class MainWindow(QMainWindow):
         self._selection_changed()
         self._update_strips()
 
+    # The settling keys are the session's (app/session/settling.py, Settling).
+
     def step_difference(self, step: int) -> None:
-        """Select the next (1) or previous (-1) joint where ours and theirs differ."""
-        if self.dispute is None:
-            self._message("no differences to walk in this frame")
-            return
-        target = step_difference(self.dispute.joints, self.canvas.selected_joint, step)
-        if target is not None:
-            self._select_difference(target)
-
-    def _select_difference(self, target: tuple[int, int]) -> None:
-        """Select a differing joint and bring it into view (ours, or theirs if ours has no
-        position for it)."""
-        self.canvas.select_joint(*target)
-        marks = self.canvas.marks
-        person = self.canvas.person(target[0])
-        xy = None
-        if person is not None and np.isfinite(person.keypoints[target[1], :2]).all():
-            xy = tuple(person.keypoints[target[1], :2])
-        elif marks.get(target) is not None:
-            xy = marks[target]
-        if xy is not None:
-            self.canvas.ensure_visible(*xy)
-
-    def _settling_scope(self, scope: str) -> tuple[int, int | None, int | None, str] | None:
-        """The frame, person and joint an action settles, and how to name them."""
-        if self.frame_id is None or self.dispute is None:
-            self._message("this frame has no differences with a reviewer's version")
-            return None
-        if scope == "joint":
-            joint = self.canvas.selected_joint
-            if joint is None or self.dispute.joint(*joint) is None:
-                self._message("select a joint that differs first (J walks them)")
-                return None
-            return self.frame_id, joint[0], joint[1], \
-                self.session.names.whose(joint[0], joint[1])
-        if scope == "person":
-            pid = self.canvas.selected_person
-            if pid is None or self.dispute.person(pid) is None:
-                self._message("select a person whose joints differ first")
-                return None
-            return self.frame_id, pid, None, self.session.names.person(pid, with_id=True)
-        return self.frame_id, None, None, "the whole frame"
+        self.session.settling.step(step)
 
     def take_theirs(self, scope: str) -> None:
-        """Take the reviewer's version of the selected joint, person, or the frame: one
-        edit, one undo step."""
-        from app.review.settle import take_theirs
-
-        found = self._settling_scope(scope)
-        if found is None:
-            return
-        fid, pid, joint, what = found
-        who, was = self.dispute.who if self.dispute else "", self._current_difference()
-        ok, _ = self._attempt(lambda: take_theirs(self.project, fid, pid, joint))
-        if ok:
-            self._after_settling(was, f"took {who}'s version of {what} (Ctrl+Z takes it back)")
+        self.session.settling.take_theirs(scope)
 
     def keep_ours(self, scope: str) -> None:
-        """Keep our version of the selected joint, person, or the frame (the labels stay;
-        the choice is one undo step)."""
-        from app.review.settle import keep_ours
-
-        found = self._settling_scope(scope)
-        if found is None:
-            return
-        fid, pid, joint, what = found
-        was = self._current_difference()
-        ok, settled = self._attempt(lambda: keep_ours(self.project, fid, pid, joint))
-        if ok:
-            self._after_settling(was, f"kept mine for {what} ({count(settled, 'joint')}; "
-                                      "Ctrl+Z takes it back)")
-
-    def _current_difference(self) -> tuple[int, int] | None:
-        joint = self.canvas.selected_joint
-        if joint is None and self.dispute is not None:
-            pid = self.canvas.selected_person
-            return next((pj for pj in self.dispute.joints if pj[0] == pid), None)
-        return joint
-
-    def _after_settling(self, was: tuple[int, int] | None, said: str) -> None:
-        """After a take or a keep (the frame has reloaded): select the next open difference,
-        or say that the frame can be settled."""
-        d = self.dispute
-        if d is None:
-            self._message(f"{said}; no differences left: Shift+Return settles the frame", 10000)
-            return
-        self._message(said)
-        joint = self.canvas.selected_joint
-        if joint is not None and d.joint(*joint) is not None:
-            return
-        self._select_difference(self._following(was, d.joints))
-
-    @staticmethod
-    def _following(was: tuple[int, int] | None,
-                   joints: tuple[tuple[int, int], ...]) -> tuple[int, int]:
-        """The first open difference after ``was`` in walking order (wrapping around)."""
-        if was is not None:
-            later = [pj for pj in joints if pj > was]
-            if later:
-                return later[0]
-        return joints[0]
+        self.session.settling.keep_ours(scope)
 
     def settle(self) -> None:
-        """End the dispute: the frame becomes corrected (undo makes it disputed again)."""
-        from app.review.settle import settle_frame
-
-        frame = self.canvas.frame
-        if frame is None or self.frame_id is None:
-            return
-        if frame.state is not FrameState.DISPUTED:
-            self._message("this frame is not disputed")
-            return
-        left = len(self.dispute.joints) if self.dispute is not None else 0
-        fid = self.frame_id
-        ok, _ = self._attempt(lambda: settle_frame(self.project, fid))
-        if ok:
-            self._message("settled: the frame is corrected" + (
-                f"; {count(left, 'open difference')} {plural(left, 'keeps', 'keep')} mine"
-                if left else "")
-                + " (Ctrl+Z takes it back)")
+        self.session.settling.settle()
 
     # ------------------------------------------------------------------ reviewing a packet
 
