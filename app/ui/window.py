@@ -275,14 +275,22 @@ class MainWindow(QMainWindow):
         return dock
 
     def _build_actions(self) -> None:
+        # What an editing or settling key does is the session's (app/session/editing.py,
+        # app/session/settling.py); the session exists once the actions are triggered.
+        def editing(name: str, *args: Any) -> Callable[[], Any]:
+            return lambda: getattr(self.session.editing, name)(*args)
+
+        def settling(name: str, *args: Any) -> Callable[[], Any]:
+            return lambda: getattr(self.session.settling, name)(*args)
+
         handlers: dict[str, Callable[[], Any]] = {
             "next_frame": lambda: self.step_frame(1),
             "prev_frame": lambda: self.step_frame(-1),
-            "mark_disputed": lambda: self.toggle_state(FrameState.DISPUTED),
-            "sign_off": lambda: self.toggle_state(FrameState.SIGNED_OFF),
+            "mark_disputed": editing("toggle_state", FrameState.DISPUTED),
+            "sign_off": editing("toggle_state", FrameState.SIGNED_OFF),
             "write_note": self._focus_note,
-            "next_person": lambda: self.step_person(1),
-            "prev_person": lambda: self.step_person(-1),
+            "next_person": editing("step_person", 1),
+            "prev_person": editing("step_person", -1),
             "next_in_track": lambda: self.step_track(1),
             "prev_in_track": lambda: self.step_track(-1),
             "carry_forward": self.carry_forward,
@@ -292,15 +300,16 @@ class MainWindow(QMainWindow):
             "prev_finding": lambda: self.session.step(-1),
             "accept_fix": self.session_accept,
             "dismiss_finding": self.session_dismiss,
-            "mark_visible": lambda: self.set_visibility(2),
-            "mark_occluded": lambda: self.set_visibility(1),
-            "mark_unlabeled": lambda: self.set_visibility(0),
-            "place_joint": self.place_joint,
-            "new_person": self.new_person,
-            "split_person": self.split_person,
-            "swap_sides": self.swap_sides,
-            "merge_people": self.start_merge,
-            "delete_person": self.delete_person,
+            "mark_visible": editing("set_visibility", 2),
+            "mark_occluded": editing("set_visibility", 1),
+            "mark_unlabeled": editing("set_visibility", 0),
+            "place_joint": lambda: self.session.editing.place_joint(
+                self.canvas.pointer_image_position()),
+            "new_person": editing("new_person"),
+            "split_person": editing("split_person"),
+            "swap_sides": editing("swap_sides"),
+            "merge_people": editing("start_merge"),
+            "delete_person": editing("delete_person"),
             "focus_mode": self._toggle_focus,
             "show_unlabeled": self._toggle_unlabeled,
             "show_tags": self._toggle_tags,
@@ -323,15 +332,15 @@ class MainWindow(QMainWindow):
             "merge_packet": self._merge_packet,
             "region_mode": self._toggle_region_mode,
             "show_theirs": self._toggle_theirs,
-            "next_difference": lambda: self.step_difference(1),
-            "prev_difference": lambda: self.step_difference(-1),
-            "take_theirs_joint": lambda: self.take_theirs("joint"),
-            "take_theirs_person": lambda: self.take_theirs("person"),
-            "take_theirs_frame": lambda: self.take_theirs("frame"),
-            "keep_ours_joint": lambda: self.keep_ours("joint"),
-            "keep_ours_person": lambda: self.keep_ours("person"),
-            "keep_ours_frame": lambda: self.keep_ours("frame"),
-            "settle_frame": self.settle,
+            "next_difference": settling("step", 1),
+            "prev_difference": settling("step", -1),
+            "take_theirs_joint": settling("take_theirs", "joint"),
+            "take_theirs_person": settling("take_theirs", "person"),
+            "take_theirs_frame": settling("take_theirs", "frame"),
+            "keep_ours_joint": settling("keep_ours", "joint"),
+            "keep_ours_person": settling("keep_ours", "person"),
+            "keep_ours_frame": settling("keep_ours", "frame"),
+            "settle_frame": settling("settle"),
             "decide_agree": lambda: self.decide("looks-right"),
             "decide_needs_change": lambda: self.decide("query"),
             "decide_signed_off": lambda: self.decide("ready"),
@@ -720,9 +729,6 @@ class MainWindow(QMainWindow):
         """Give the selected joint(s) to person ``target`` (the session's intent)."""
         self.session.editing.give_to(target)
 
-    def give_to_number(self, number: int) -> None:
-        self.session.editing.give_to_number(number)
-
     def give_to_best(self) -> None:
         best = None if self.owner_ranking is None else self.owner_ranking.best
         if best is None:
@@ -730,36 +736,9 @@ class MainWindow(QMainWindow):
             return
         self.give_to_person(best.person_id)
 
-    # The editing intents are the session's (app/session/editing.py); the window gives
-    # them what only it knows (the pointer) and cancels a tag number being typed.
-
-    def set_visibility(self, v: int) -> None:
-        self.session.editing.set_visibility(v)
-
-    def place_joint(self) -> None:
-        self.session.editing.place_joint(self.canvas.pointer_image_position())
-
-    def new_person(self) -> None:
-        self.session.editing.new_person()
-
-    def split_person(self) -> None:
-        self.session.editing.split_person()
-
-    def swap_sides(self) -> None:
-        self.session.editing.swap_sides()
-
-    def start_merge(self) -> None:
-        self.session.editing.start_merge()
-
     def _merge_picked(self, other: int) -> None:
         self.statusBar().clearMessage()
         self.session.editing.merge_with(other)
-
-    def delete_person(self) -> None:
-        self.session.editing.delete_person()
-
-    def toggle_state(self, state: FrameState) -> None:
-        self.session.editing.toggle_state(state)
 
     def _add_note(self, text: str) -> None:
         if self.frame_id is None:
@@ -834,7 +813,7 @@ class MainWindow(QMainWindow):
         self._typed_timer.stop()
         typed, self._typed = self._typed, ""
         if typed:
-            self.give_to_number(int(typed))
+            self.session.editing.give_to_number(int(typed))
 
     def _cancel_typing(self) -> None:
         self._typed_timer.stop()
@@ -994,9 +973,6 @@ class MainWindow(QMainWindow):
             self._message(text)
         self._update_timeline()
 
-    def step_person(self, step: int) -> None:
-        self.session.editing.step_person(step)
-
     def _escape(self) -> None:
         self._cancel_typing()
         if self.canvas.pick_mode:
@@ -1143,20 +1119,6 @@ class MainWindow(QMainWindow):
                                             self.canvas.colours)
         self._selection_changed()
         self._update_strips()
-
-    # The settling keys are the session's (app/session/settling.py, Settling).
-
-    def step_difference(self, step: int) -> None:
-        self.session.settling.step(step)
-
-    def take_theirs(self, scope: str) -> None:
-        self.session.settling.take_theirs(scope)
-
-    def keep_ours(self, scope: str) -> None:
-        self.session.settling.keep_ours(scope)
-
-    def settle(self) -> None:
-        self.session.settling.settle()
 
     # ------------------------------------------------------------------ reviewing a packet
 
