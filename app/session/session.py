@@ -306,6 +306,26 @@ class Session:
             self.events.emit("stop", stop)
         return stop
 
+    def select_stop(self, stop: Stop) -> None:
+        """Select what a stop on the frame shown is about: its labelled joints, else its
+        person; a frame's group of findings selects nobody (what they are about is marked,
+        not selected). Tells the listeners (``selection``)."""
+        person = None if stop.person_id is None else self.view.person(stop.person_id)
+        if person is not None:
+            joints = [j for j in stop.joints if person.keypoints[j, 2] > 0]
+            if joints:
+                self.select_joints([(stop.person_id, j) for j in joints])
+            else:
+                self.select_person(stop.person_id)
+        else:
+            self.select_person(None)
+
+    def stop_place(self, stop: Stop) -> str:
+        """Where a stop is among its frame's: ``· stop 2 of 5`` ("" once it is gone)."""
+        keys = [s.key for s in self.stops(stop.frame_id)]
+        return (f"\u00b7 stop {keys.index(stop.key) + 1} of {len(keys)}" if stop.key in keys
+                else "")
+
     def skip(self) -> Stop | None:
         """Leave the current stop as it is and go to the next."""
         return self.step(1)

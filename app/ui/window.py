@@ -1046,20 +1046,8 @@ class MainWindow(QMainWindow):
             return
         if stop.frame_id != self.frame_id:
             self.show_frame(stop.frame_id)
-        if stop.person_id is not None and self.canvas.person(stop.person_id) is not None:
-            joints = [j for j in stop.joints
-                      if self.canvas.person(stop.person_id).keypoints[j, 2] > 0]
-            if joints:
-                self.canvas.select_joints([(stop.person_id, j) for j in joints])
-            else:
-                self.canvas.select_person(stop.person_id)
-        else:  # a frame's group of findings: what they are about is marked, not selected
-            self.canvas.select_person(None)
-        stops = self.session.stops(stop.frame_id)
-        keys = [s.key for s in stops]
-        where = (f"\u00b7 stop {keys.index(stop.key) + 1} of {len(stops)}" if stop.key in keys
-                 else "")
-        self.canvas.show_stop(stop, where)
+        self.session.select_stop(stop)
+        self.canvas.show_stop(stop, self.session.stop_place(stop))
         self._update_actions()
         self._update_status()
         self._read_ahead(stop.frame_id)

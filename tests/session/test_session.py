@@ -286,3 +286,18 @@ def test_the_frames_people_are_held_once_by_the_view(scene):
     s.reload_frame()
     assert tuple(s.view.person(first.id).keypoints[0, :2]) == (12.0, 34.0)
     assert s.view.colours == colours
+
+
+def test_a_stop_selects_what_it_is_about_and_says_its_place(scene):
+    project, fids, _ = scene
+    run_triage(project)
+    s, _seen, _said = _session(project, [fids[0], fids[1], fids[2]])
+    moved = []
+    s.events.connect("selection", lambda: moved.append(s.selection.person))
+    stop = _follow(s, s.step(1))
+    s.select_stop(stop)
+    assert moved and s.selection.person == stop.person_id
+    labelled = [j for j in stop.joints if s.view.person(stop.person_id).keypoints[j, 2] > 0]
+    assert [j for _, j in s.selection.joints] == labelled
+    n = len(s.stops(stop.frame_id))
+    assert s.stop_place(stop) == f"\u00b7 stop 1 of {n}"
