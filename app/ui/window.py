@@ -1,9 +1,14 @@
 """The main window: Worklist (left), Canvas (centre), Owners (right), Ledger and Notes (bottom).
 
-The window is the one place that turns what the user asked for into edits and hands them to
-:meth:`app.store.Project.apply` (or undo, redo, return-to). It learns about every committed
-change through :class:`ProjectEvents`, which turns the store's listener calls into a Qt signal,
-and then refreshes the models and the Canvas; nothing polls.
+The window keeps the docks, menus, dialogs, long jobs and the wiring. What the user asked for
+becomes edits in the Qt-free session (:mod:`app.session`: the editing and settling keys, the
+walk), which applies them through the window's :meth:`MainWindow.apply` (read-only and the
+reviewer's version refuse; errors are shown) to :meth:`app.store.Project.apply`; undo, redo and
+return-to stay here. Which actions are enabled and what the status bar and the strips say are
+the session's too (:mod:`app.session.actions`, :mod:`app.session.status`); the window copies
+them into its widgets. It learns about every committed change through :class:`ProjectEvents`,
+which turns the store's listener calls into a Qt signal, and then refreshes the session, the
+models and the Canvas; nothing polls. DEVELOPERS.md, "Where a behaviour lives", maps it all.
 
 The same window serves three situations, each with a strip above the Canvas
 (:mod:`app.ui.strips`) that names it and offers its actions:
