@@ -178,6 +178,25 @@ class Editing:
         if self._apply(MergePeople(s.frame_id, keep, other)) is not None:
             s.select_person(keep)
 
+    def choose_person(self, person_id: int) -> None:
+        """A person chosen outside the Canvas (a row of Owners): the one to merge while a
+        merge waits for it, else selected alone (unless already so)."""
+        s = self.session
+        if s.view.pick == "merge":
+            s.view.set_pick(None)
+            self.merge_with(person_id)
+            return
+        if person_id != s.selection.person or s.selection.joints:
+            s.select_person(person_id)
+
+    def cancel_pick(self) -> bool:
+        """Esc while a merge waits for a person: stop waiting (True), else nothing (False)."""
+        if self.session.view.pick is None:
+            return False
+        self.session.view.set_pick(None)
+        self._say("merge cancelled")
+        return True
+
     def delete_person(self) -> None:
         """Delete the selected person."""
         s = self.session

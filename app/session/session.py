@@ -29,7 +29,7 @@ from typing import Any
 from app.analysis.triage.findings import Finding, labels_digest
 from app.errors import EditRefused, PosewrightError
 from app.jobs_findings import accept_label
-from app.model.edits import DismissFinding, Edit, EditGroup
+from app.model.edits import AddNote, DismissFinding, Edit, EditGroup, SetFrameState
 from app.model.labels import Frame, FrameState, Person
 from app.model.naming import Names
 from app.session.blurred import BlurredFrame, load_blurred
@@ -169,6 +169,16 @@ class Session:
         people = list(self.project.people(self.frame_id) if people is None else people)
         self.names = Names.of_frame(self.skeleton, [p.id for p in people])
         self.view.show(people, self.view.flags if flags is None else flags)
+
+    def refuses(self, edit: Edit) -> str | None:
+        """Why an edit is not made here, or None: a read-only project takes none, and while
+        the reviewer's version is shown only notes and the frame's state are edited."""
+        if self.project.read_only:
+            return f"read-only: {self.project.read_only_reason}"
+        if self.view.showing_theirs and not isinstance(edit, (AddNote, SetFrameState)):
+            return (f"showing {self.view.reviewer}'s version, which is not edited here: "
+                    "B goes back to mine")
+        return None
 
     def attempt(self, fn: Callable[[], Any]) -> tuple[bool, Any]:
         """Run a back-end call that changes the project (settling): ``(True, its result)``,

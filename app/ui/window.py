@@ -55,7 +55,6 @@ from app.model.edits import (
     AddNote,
     AddRegion,
     Edit,
-    SetFrameState,
 )
 from app.model.labels import FrameLabels, FrameState, Person
 from app.model.skeleton import Skeleton
@@ -690,12 +689,9 @@ class MainWindow(QMainWindow):
     def apply(self, edit: Edit) -> Applied | None:
         """Apply an edit through the store; a refusal goes to the status bar, any other error
         to a message box. Returns what the store did, or None."""
-        if self.project.read_only:
-            self._message(f"read-only: {self.project.read_only_reason}")
-            return None
-        if self.canvas.showing_theirs and not isinstance(edit, (AddNote, SetFrameState)):
-            self._message(f"showing {self.canvas.theirs_name}'s version, which is not edited "
-                          "here: B goes back to mine")
+        refused = self.session.refuses(edit)  # read-only, or the reviewer's version shown
+        if refused:
+            self._message(refused)
             return None
         try:
             done = self.project.apply(edit, seen=self._seen)
@@ -980,9 +976,7 @@ class MainWindow(QMainWindow):
 
     def _escape(self) -> None:
         self._cancel_typing()
-        if self.canvas.pick_mode:
-            self.canvas.set_pick_mode(None)
-            self._message("merge cancelled")
+        if self.session.editing.cancel_pick():
             return
         if self.canvas.region_mode:
             self.canvas.region_escape()
@@ -991,11 +985,8 @@ class MainWindow(QMainWindow):
 
     def _owner_person_chosen(self, pid: int) -> None:
         if self.canvas.pick_mode == "merge":
-            self.canvas.set_pick_mode(None)
-            self._merge_picked(pid)
-            return
-        if pid != self.canvas.selected_person or self.canvas.selected_joints:
-            self.canvas.select_person(pid)
+            self.statusBar().clearMessage()
+        self.session.editing.choose_person(pid)
 
     def _selection_changed(self) -> None:
         pid = self.canvas.selected_person

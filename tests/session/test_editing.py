@@ -17,7 +17,8 @@ from dataclasses import replace
 import numpy as np
 import pytest
 
-from app.model.labels import AUTO, Person
+from app.model.edits import AddNote, MoveJoint, SetFrameState
+from app.model.labels import AUTO, FrameState, Person
 from app.session import Session
 
 
@@ -129,3 +130,34 @@ def test_give_by_tag_and_step_through_the_people(session):
     assert s.selection.joints == [(b, 3)], "the selection follows the joint"
     s.editing.give_to(b)
     assert s.said[-1] == "the selected joint already belongs to person 2"
+
+
+def test_the_reviewers_version_is_not_edited_but_takes_notes(session):
+    """While the reviewer's version shows, an edit of the labels is refused with a word
+    why; a note and the frame's state are still taken (our rule, README "Settling a disputed
+    frame")."""
+    s = session
+    s.view.set_dispute(list(s.people), {}, {}, "bea")
+    assert s.view.show_theirs(True)
+    why = s.refuses(MoveJoint(1, s.people[0].id, 0, 5.0, 5.0))
+    assert why == "showing bea's version, which is not edited here: B goes back to mine"
+    assert s.refuses(AddNote(1, "looks odd")) is None
+    assert s.refuses(SetFrameState(1, FrameState.DISPUTED)) is None
+    s.view.show_theirs(False)
+    assert s.refuses(MoveJoint(1, s.people[0].id, 0, 5.0, 5.0)) is None
+
+
+def test_a_person_chosen_in_owners_is_merged_while_a_merge_waits(session):
+    s = session
+    a, b, _c = (p.id for p in s.people)
+    s.editing.choose_person(b)
+    assert s.selection.person == b and not s.selection.joints
+    s.selection.select_person(a)
+    s.editing.start_merge()
+    assert s.editing.cancel_pick() and s.view.pick is None and s.said[-1] == "merge cancelled"
+    assert not s.editing.cancel_pick()
+    s.editing.start_merge()
+    n = len(s.project.history())
+    s.editing.choose_person(b)
+    assert s.view.pick is None and len(s.project.history()) == n, "refused: both have joints"
+    assert s.selection.person == a
