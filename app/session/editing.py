@@ -89,6 +89,16 @@ class Editing:
             return
         self.give_to(people[number - 1].id)
 
+    def give_to_best(self) -> None:
+        """Give the selected joint to the best candidate Owners ranks
+        (:attr:`app.session.session.Session.owner_ranking`)."""
+        ranking = self.session.owner_ranking
+        best = None if ranking is None else ranking.best
+        if best is None:
+            self._say("no suggestion for the selection")
+            return
+        self.give_to(best.person_id)
+
     def set_visibility(self, v: int) -> None:
         """Mark the selected joints visible (2), occluded (1) or unlabelled (0): one edit."""
         s = self.session

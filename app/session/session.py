@@ -35,6 +35,7 @@ from app.model.naming import Names
 from app.session.blurred import BlurredFrame, load_blurred
 from app.session.editing import Editing
 from app.session.events import Events
+from app.session.owners import OwnerRanking, rank_owners
 from app.session.selection import Selection
 from app.session.settling import Dispute, Settling, load_dispute
 from app.session.view import View
@@ -114,6 +115,9 @@ class Session:
         self.editing = Editing(self)
         self.settling = Settling(self)
         self._attempt = attempt
+        #: The selected joint's owner and candidates (None without one joint selected, or
+        #: while the reviewer's version shows): :meth:`rank_owners`.
+        self.owner_ranking: OwnerRanking | None = None
         self.view.events.connect("people", self._forget_unshown)
         self._order = order or self._suspicion_order
         self._apply = apply or project.apply
@@ -169,6 +173,24 @@ class Session:
         people = list(self.project.people(self.frame_id) if people is None else people)
         self.names = Names.of_frame(self.skeleton, [p.id for p in people])
         self.view.show(people, self.view.flags if flags is None else flags)
+
+    def rank_owners(self, maps: Callable[[], Any] = lambda: None) -> OwnerRanking | None:
+        """Rank the candidate owners of the joint selected last (:mod:`app.session.owners`),
+        keep the ranking in :attr:`owner_ranking` and return it; ``maps`` gives the frame's
+        network maps when a ranking needs them (None: judged by limb lengths). None without
+        a joint, while the reviewer's version shows, or when the joint has no position; a
+        failure is logged and gives None (it must not stop the annotator)."""
+        joint = self.selection.joint
+        ranking = None
+        if joint is not None and self.frame_id is not None and not self.view.showing_theirs:
+            try:
+                ranking = rank_owners(self.view.people, joint[0], joint[1], self.skeleton,
+                                      maps())
+            except Exception:
+                log.exception("ranking candidate owners failed")
+        self.owner_ranking = ranking if ranking is not None and ranking.owner is not None \
+            else None
+        return self.owner_ranking
 
     def refuses(self, edit: Edit) -> str | None:
         """Why an edit is not made here, or None: a read-only project takes none, and while

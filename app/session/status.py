@@ -1,4 +1,5 @@
-"""What the window says about the session, without Qt: the selection line of Owners, what a
+"""What the window says about the session, without Qt: the selection line of Owners and its
+note on the candidate owners, what a
 disputed frame's versions say about it, the strips over the Canvas (a dispute, region mode, a
 review) and the status bar's counts.
 
@@ -11,12 +12,14 @@ session's :class:`app.model.naming.Names`. Tests read the words without a window
 
 from __future__ import annotations
 
+import html
 from collections.abc import Mapping, Sequence
 from typing import TYPE_CHECKING
 
 import numpy as np
 
 from app.model.labels import FrameState
+from app.session.owners import FIT_MEANING
 from app.session.settling import describe_difference
 from app.session.view import WHOLE_PERSON
 from app.wording import DECISION_WORDS, count, plural
@@ -67,6 +70,19 @@ def selection_text(session: Session) -> str:
     flag = ", <b>flagged by triage</b>" if j in flags or WHOLE_PERSON in flags else ""
     return (f"{head} \u00b7 {name} \u00b7 {VISIBILITY_WORDS[int(v)]} at ({x:.1f}, {y:.1f})"
             f"{extra}, by {person.sources[j] or 'unknown'}{flag}")
+
+
+def owners_note(session: Session) -> str:
+    """Owners' note under the selection: what the ranking of the selected joint's owners
+    says (:attr:`app.session.session.Session.owner_ranking`) and how to read and use it; a
+    hint when nothing is selected; "" for several joints or no ranking."""
+    ranking = session.owner_ranking
+    if ranking is None or len(session.selection.joints) != 1:
+        return ("Select a joint to see who it could belong to."
+                if session.selection.joint is None else "")
+    return (f"<b>{html.escape(ranking.verdict)}</b><br>"
+            f"<span style='color:#555'>{html.escape(FIT_MEANING)}; click a row "
+            "beside the joint or press its tag number to give the joint</span>")
 
 
 def difference_text(session: Session) -> str:

@@ -24,7 +24,6 @@ The same window serves three situations, each with a strip above the Canvas
 
 from __future__ import annotations
 
-import html
 import logging
 import time
 from collections.abc import Callable
@@ -63,12 +62,13 @@ from app.progress import Progress
 from app.review.review import is_review
 from app.session import Session, Stop
 from app.session.actions import Circumstances, action_states
-from app.session.owners import FIT_MEANING, OwnerRanking, rank_owners
+from app.session.owners import OwnerRanking
 from app.session.settling import Dispute
 from app.session.status import (
     difference_text,
     dispute_strip,
     flags_text,
+    owners_note,
     people_text,
     region_strip,
     review_strip,
@@ -201,8 +201,6 @@ class MainWindow(QMainWindow):
         self.session.events.connect("reveal", self.canvas.ensure_visible)
         self.canvas.selection = self.session.selection
         self.canvas.use_view(self.session.view)
-        #: The selected joint's owner and candidates (None without one selected joint).
-        self.owner_ranking: OwnerRanking | None = None
         self.ledger = LedgerPanel(self.ledger_model, self.actions_by_name)
         self.notes = NotesPanel(self.notes_model)
         self.docks = {
@@ -262,6 +260,11 @@ class MainWindow(QMainWindow):
         return None if session is None else session.frame_id
 
     @property
+    def owner_ranking(self) -> OwnerRanking | None:
+        """The selected joint's owner and candidates (the session's)."""
+        return self.session.owner_ranking
+
+    @property
     def dispute(self) -> Dispute | None:
         """The open differences of the frame shown, when it is disputed (the session's)."""
         return self.session.dispute
@@ -299,7 +302,7 @@ class MainWindow(QMainWindow):
             "prev_in_track": lambda: self.step_track(-1),
             "carry_forward": self.carry_forward,
             "clear_selection": self._escape,
-            "give_best": self.give_to_best,
+            "give_best": editing("give_to_best"),
             "next_finding": lambda: self.session.step(1),
             "prev_finding": lambda: self.session.step(-1),
             "accept_fix": self.session_accept,
@@ -730,13 +733,6 @@ class MainWindow(QMainWindow):
         """Give the selected joint(s) to person ``target`` (the session's intent)."""
         self.session.editing.give_to(target)
 
-    def give_to_best(self) -> None:
-        best = None if self.owner_ranking is None else self.owner_ranking.best
-        if best is None:
-            self._message("no suggestion for the selection")
-            return
-        self.give_to_person(best.person_id)
-
     def _merge_picked(self, other: int) -> None:
         self.statusBar().clearMessage()
         self.session.editing.merge_with(other)
@@ -990,25 +986,9 @@ class MainWindow(QMainWindow):
 
     def _selection_changed(self) -> None:
         pid = self.canvas.selected_person
-        joint = self.canvas.selected_joint
         self.owners.show_person(pid)
-        ranking = None
-        if joint is not None and self.frame_id is not None and not self.canvas.showing_theirs:
-            try:
-                ranking = rank_owners(self.canvas.people, joint[0], joint[1], self.skeleton,
-                                      self._frame_maps())
-            except Exception:  # a ranking failure must not stop the annotator
-                log.exception("ranking candidate owners failed")
-        self.owner_ranking = ranking if ranking is not None and ranking.owner is not None else None
-        self.canvas.set_owners(self.owner_ranking)
-        if self.owner_ranking is None or len(self.canvas.selected_joints) != 1:
-            self.owners.note.setText("Select a joint to see who it could belong to."
-                                     if joint is None else "")
-        else:
-            self.owners.note.setText(
-                f"<b>{html.escape(self.owner_ranking.verdict)}</b><br>"
-                f"<span style='color:#555'>{html.escape(FIT_MEANING)}; click a row "
-                "beside the joint or press its tag number to give the joint</span>")
+        self.canvas.set_owners(self.session.rank_owners(self._frame_maps))
+        self.owners.note.setText(owners_note(self.session))
         text = selection_text(self.session)
         differs = difference_text(self.session)
         if differs:
@@ -1195,7 +1175,7 @@ class MainWindow(QMainWindow):
     def _update_actions(self) -> None:
         """Enable the actions and set the toggles as the session's rules say
         (:func:`app.session.actions.action_states`)."""
-        ranking = self.owner_ranking
+        ranking = self.session.owner_ranking
         frame = self.canvas.frame
         states = action_states(self.session, Circumstances(
             read_only=self.project.read_only, review=self.review_mode,

@@ -20,6 +20,7 @@ import pytest
 from app.model.edits import AddNote, MoveJoint, SetFrameState
 from app.model.labels import AUTO, FrameState, Person
 from app.session import Session
+from app.session.status import owners_note
 
 
 @pytest.fixture
@@ -161,3 +162,29 @@ def test_a_person_chosen_in_owners_is_merged_while_a_merge_waits(session):
     s.editing.choose_person(b)
     assert s.view.pick is None and len(s.project.history()) == n, "refused: both have joints"
     assert s.selection.person == a
+
+
+def test_owners_are_ranked_for_one_joint_and_the_note_says_so(session):
+    """The ranking itself is tested in tests/session/test_owners.py; here, when the session
+    ranks and what Owners' note says (our wording)."""
+    s = session
+    a = s.people[0].id
+    assert s.rank_owners() is None
+    assert owners_note(s) == "Select a joint to see who it could belong to."
+    s.selection.select_joint(a, 9)
+    ranking = s.rank_owners()
+    assert ranking is s.owner_ranking and ranking.owner.person_id == a
+    assert owners_note(s).startswith(f"<b>{ranking.verdict}</b>")
+    s.selection.select_joint(a, 7, add=True)
+    assert owners_note(s) == "", "no note for several joints"
+    s.selection.select_joint(a, 9)
+    best = s.rank_owners().best.person_id  # the first candidate after the owner
+    s.editing.give_to_best()
+    assert s.selection.joints == [(best, 9)], "given, and the selection follows"
+    s.selection.select_person(None)
+    s.rank_owners()
+    s.editing.give_to_best()
+    assert s.said[-1] == "no suggestion for the selection"
+    s.view.set_dispute(list(s.people), {}, {}, "bea")
+    s.view.show_theirs(True)
+    assert s.rank_owners() is None, "not on the reviewer's version"
