@@ -19,7 +19,9 @@ The modes:
   version exclude each other (entering one leaves the other);
 - *pick*: the next click on a person picks them for an action (``"merge"``); entering region
   mode leaves it;
-- *focus*: the selected person is shown in full and everyone else dimmed.
+- *focus*: the selected person is shown in full and everyone else dimmed;
+- what else is drawn: joints not labelled, the tags, a review packet's blurred regions
+  (:meth:`View.set_shown`).
 
 Examples
 --------
@@ -61,6 +63,9 @@ PALETTE_SIZE = 7
 #: The joint index that stands for "the whole person" in :attr:`View.flags` (and in the
 #: painter's flags, :attr:`app.ui.overlay.OverlayStyle.flags`).
 WHOLE_PERSON = -1
+
+#: What the Canvas can draw or not besides the people (:meth:`View.set_shown`).
+SHOWN = ("unlabeled", "tags", "blurred")
 
 #: What a pick waits for: ``"merge"`` (the person to merge the selected one into).
 PICKS = ("merge",)
@@ -168,6 +173,11 @@ class View:
         self.region_mode = False
         self.pick: str | None = None
         self.focus = False
+        #: What else is drawn (:data:`SHOWN`, :meth:`set_shown`): joints not labelled (at
+        #: their remembered place), the people's tags, a review packet's blurred regions.
+        self.show_unlabeled = False
+        self.show_tags = True
+        self.show_blurred = True
         #: Our people of the frame, in tag order (what :attr:`people` holds unless the
         #: reviewer's version is shown).
         self.ours: list[Any] = []
@@ -246,6 +256,16 @@ class View:
             raise ValueError(f"unknown pick {pick!r}")
         if pick != self.pick:
             self.pick = pick
+            self.events.emit("mode")
+
+    def set_shown(self, what: str, on: bool) -> None:
+        """Draw ``what`` (one of :data:`SHOWN`) or stop drawing it; a ``mode`` event when it
+        changed."""
+        if what not in SHOWN:
+            raise ValueError(f"unknown thing to show {what!r}")
+        name = f"show_{what}"
+        if bool(on) != getattr(self, name):
+            setattr(self, name, bool(on))
             self.events.emit("mode")
 
     def set_focus(self, on: bool) -> None:

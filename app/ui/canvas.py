@@ -273,12 +273,9 @@ class Canvas(QWidget):
         #: :meth:`use_view`).
         self.view = View()
         self.read_only = False
-        self.show_unlabeled = False
-        self.show_tags = True
         #: Reviewing a packet: where its image of the frame was blurred, and whether to
         #: outline it (:mod:`app.ui.blurred`).
         self.blurred: BlurredFrame | None = None
-        self.show_blurred = True
         self.message = ""  # shown instead of the image when it cannot be shown
         #: The frame's ignore regions ``(id, polygons)``.
         self.regions: list[tuple[int, geometry.Polygons]] = []
@@ -373,6 +370,33 @@ class Canvas(QWidget):
     @focus_mode.setter
     def focus_mode(self, on: bool) -> None:
         self.view.set_focus(on)
+
+    @property
+    def show_unlabeled(self) -> bool:
+        """Whether joints not labelled are drawn (and can be clicked); the view's."""
+        return self.view.show_unlabeled
+
+    @show_unlabeled.setter
+    def show_unlabeled(self, on: bool) -> None:
+        self.view.set_shown("unlabeled", on)
+
+    @property
+    def show_tags(self) -> bool:
+        """Whether the people's tags are drawn (the view's)."""
+        return self.view.show_tags
+
+    @show_tags.setter
+    def show_tags(self, on: bool) -> None:
+        self.view.set_shown("tags", on)
+
+    @property
+    def show_blurred(self) -> bool:
+        """Whether a review packet's blurred regions are outlined (the view's)."""
+        return self.view.show_blurred
+
+    @show_blurred.setter
+    def show_blurred(self, on: bool) -> None:
+        self.view.set_shown("blurred", on)
 
     # ------------------------------------------------------------------ content
 
