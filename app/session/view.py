@@ -15,8 +15,10 @@ holds both with their difference marks, shows ours unless asked for the reviewer
 
 The modes:
 
-- *region mode*: the mouse works on ignore regions instead of joints; it and the reviewer's
-  version exclude each other (entering one leaves the other);
+- *region mode*: the mouse works on ignore regions instead of joints (the frame's regions
+  and the one selected are the view's: :meth:`View.set_regions`; leaving drops the
+  selection); it and the reviewer's version exclude each other (entering one leaves the
+  other);
 - *pick*: the next click on a person picks them for an action (``"merge"``); entering region
   mode leaves it;
 - *focus*: the selected person is shown in full and everyone else dimmed;
@@ -171,6 +173,10 @@ class View:
         #: Person id -> palette index; kept while the frame is edited so colours do not jump.
         self.colours: dict[int, int] = {}
         self.region_mode = False
+        #: The frame's ignore regions ``(id, polygons)`` in image pixels
+        #: (:meth:`set_regions`), and the one selected in region mode.
+        self.regions: list[tuple[int, Any]] = []
+        self.selected_region: int | None = None
         self.pick: str | None = None
         self.focus = False
         #: What else is drawn (:data:`SHOWN`, :meth:`set_shown`): joints not labelled (at
@@ -196,9 +202,10 @@ class View:
     # ------------------------------------------------------------------ people
 
     def open(self, people: Sequence[Any], flags: Mapping[int, frozenset[int]]) -> None:
-        """Another frame: its people, colours given anew, no dispute (until
-        :meth:`set_dispute`), ours shown."""
+        """Another frame: its people, colours given anew, no regions (until
+        :meth:`set_regions`), no dispute (until :meth:`set_dispute`), ours shown."""
         disputed = self.theirs is not None or bool(self.ours_marks)
+        self.regions, self.selected_region = [], None
         self.theirs, self.ours_marks, self.theirs_marks = None, {}, {}
         self.reviewer, self.showing_theirs = "", False
         self.show(people, flags, keep_colours=False)
@@ -247,8 +254,27 @@ class View:
         self.region_mode = on
         if on:
             self.pick = None
+        else:
+            self.selected_region = None
         self.events.emit("mode")
         return True
+
+    def set_regions(self, regions: Sequence[tuple[int, Any]]) -> bool:
+        """The frame's ignore regions ``(id, polygons)`` (after any change); the selected one
+        stays selected while it is there. True when the selected one went away.
+
+        >>> v = View(); v.set_regions([(3, [[0, 0, 4, 0, 4, 4]])]); v.selected_region = 3
+        False
+        >>> v.set_regions([]), v.selected_region
+        (True, None)
+        """
+        self.regions = [(int(r), tuple(tuple(float(x) for x in p) for p in polys))
+                        for r, polys in regions]
+        if self.selected_region is not None and \
+                self.selected_region not in {r for r, _ in self.regions}:
+            self.selected_region = None
+            return True
+        return False
 
     def set_pick(self, pick: str | None) -> None:
         """Wait for a click on a person (one of :data:`PICKS`), or stop waiting (None)."""

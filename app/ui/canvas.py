@@ -277,9 +277,6 @@ class Canvas(QWidget):
         #: outline it (:mod:`app.ui.blurred`).
         self.blurred: BlurredFrame | None = None
         self.message = ""  # shown instead of the image when it cannot be shown
-        #: The frame's ignore regions ``(id, polygons)``.
-        self.regions: list[tuple[int, geometry.Polygons]] = []
-        self._region: int | None = None
         self._draft: list[tuple[float, float]] = []
         self._region_drag: _RegionDrag | None = None
         self._double_clicked = False
@@ -496,13 +493,28 @@ class Canvas(QWidget):
 
     # ------------------------------------------------------------------ ignore regions
 
+    @property
+    def regions(self) -> list[tuple[int, geometry.Polygons]]:
+        """The frame's ignore regions ``(id, polygons)`` (the view's)."""
+        return self.view.regions
+
+    @regions.setter
+    def regions(self, regions: list[tuple[int, geometry.Polygons]]) -> None:
+        self.view.regions = list(regions)
+
+    @property
+    def _region(self) -> int | None:
+        """The region selected in region mode (the view's)."""
+        return self.view.selected_region
+
+    @_region.setter
+    def _region(self, region_id: int | None) -> None:
+        self.view.selected_region = region_id
+
     def set_regions(self, regions: list[tuple[int, geometry.Polygons]]) -> None:
         """The frame's ignore regions (after any change); keeps the selection if it is still
-        there."""
-        self.regions = [(int(r), tuple(tuple(float(v) for v in p) for p in polys))
-                        for r, polys in regions]
-        if self._region is not None and self._region not in {r for r, _ in self.regions}:
-            self._region = None
+        there (:meth:`app.session.view.View.set_regions`)."""
+        if self.view.set_regions(regions):
             self.regionChanged.emit()
         self._region_drag = None
         self.update()
