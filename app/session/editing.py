@@ -38,11 +38,18 @@ if TYPE_CHECKING:
     from app.session.session import Session
 
 
+#: How long a typed tag waits for another digit when the frame has ten people or more (ms):
+#: the window's timer then calls :meth:`Editing.commit_typed`.
+TAG_WAIT_MS = 700
+
+
 class Editing:
     """The editing intents over one session (``session.editing``)."""
 
     def __init__(self, session: Session):
         self.session = session
+        #: The digits of a tag typed so far (a joint is given to that person once typed).
+        self.typed = ""
 
     # ------------------------------------------------------------------ helpers
 
@@ -80,6 +87,33 @@ class Editing:
                 self._say(f"swapped: {swaps.split(': ', 1)[0]}, so the two were exchanged "
                           "(Ctrl+Z takes it back)")
             s.select_joints([(target, e.joint) for e in edits])
+
+    def type_digit(self, digit: str) -> bool:
+        """A digit of the tag of the person to give the selected joints to. True while
+        another digit could still name a person (tag 1 of a frame of twelve: 1 or 10 to 12);
+        the window waits :data:`TAG_WAIT_MS` for it, then calls :meth:`commit_typed`. Else
+        the joints are given at once (False)."""
+        s = self.session
+        if not s.selection.joints:
+            self._say("select a joint first, then press the number of its owner")
+            return False
+        self.typed += digit
+        value = int(self.typed)
+        if value * 10 <= len(s.view.people) and len(self.typed) < 3:
+            self._say(f"give to person {value}\u2026", TAG_WAIT_MS)
+            return True
+        self.commit_typed()
+        return False
+
+    def commit_typed(self) -> None:
+        """Give the selected joints to the person whose tag was typed (if any)."""
+        typed, self.typed = self.typed, ""
+        if typed:
+            self.give_to_number(int(typed))
+
+    def cancel_typing(self) -> None:
+        """Forget a tag being typed."""
+        self.typed = ""
 
     def give_to_number(self, number: int) -> None:
         """Give the selected joint(s) to the person tagged ``number`` (from 1)."""

@@ -62,6 +62,7 @@ from app.progress import Progress
 from app.review.review import is_review
 from app.session import Session, Stop
 from app.session.actions import Circumstances, action_states
+from app.session.editing import TAG_WAIT_MS
 from app.session.owners import OwnerRanking
 from app.session.settling import Dispute
 from app.session.status import (
@@ -98,7 +99,7 @@ from app.wording import count, plural
 log = logging.getLogger(__name__)
 
 #: How long a first digit waits for a second one when there are ten or more people (ms).
-DIGIT_WAIT_MS = 700
+DIGIT_WAIT_MS = TAG_WAIT_MS
 #: How often a hosted project's Worklist looks again at the claims, some of which run out (ms).
 CLAIMS_REFRESH_MS = 30_000
 
@@ -143,7 +144,6 @@ class MainWindow(QMainWindow):
 
         self.events = ProjectEvents(project, self)
         self.loader = ImageLoader(cache or ImageCache(cache_bytes()), parent=self)
-        self._typed = ""
         self._typed_timer = QTimer(self)
         self._typed_timer.setSingleShot(True)
         self._typed_timer.setInterval(DIGIT_WAIT_MS)
@@ -795,29 +795,23 @@ class MainWindow(QMainWindow):
     # ------------------------------------------------------------------ digits
 
     def _type_digit(self, digit: str) -> None:
-        if not self.canvas.selected_joints:
-            self._message("select a joint first, then press the number of its owner")
-            return
-        self._typed += digit
-        value = int(self._typed)
-        if value * 10 <= len(self.canvas.people) and len(self._typed) < 3:
+        """A tag's digit (the session's rule, :meth:`app.session.editing.Editing.type_digit`);
+        the window's timer waits for the next one."""
+        if self.session.editing.type_digit(digit):
             self._typed_timer.start()
-            self._message(f"give to person {value}\u2026", DIGIT_WAIT_MS)
-            return
-        self._commit_typed()
+        else:
+            self._typed_timer.stop()
 
     def _commit_typed(self) -> None:
         self._typed_timer.stop()
-        typed, self._typed = self._typed, ""
-        if typed:
-            self.session.editing.give_to_number(int(typed))
+        self.session.editing.commit_typed()
 
     def _cancel_typing(self) -> None:
         self._typed_timer.stop()
-        self._typed = ""
+        self.session.editing.cancel_typing()
 
     def _fit_or_digit(self) -> None:
-        if self._typed:
+        if self.session.editing.typed:
             self._type_digit("0")
         else:
             self.canvas.fit()

@@ -188,3 +188,20 @@ def test_owners_are_ranked_for_one_joint_and_the_note_says_so(session):
     s.view.set_dispute(list(s.people), {}, {}, "bea")
     s.view.show_theirs(True)
     assert s.rank_owners() is None, "not on the reviewer's version"
+
+
+def test_a_typed_tag_waits_for_a_second_digit_only_when_one_could_follow(session):
+    s = session
+    a, b, _c = (p.id for p in s.people)
+    assert not s.editing.type_digit("2")
+    assert s.said[-1] == "select a joint first, then press the number of its owner"
+    s.selection.select_joint(a, 4)
+    assert not s.editing.type_digit("2"), "three people: 2 cannot grow, given at once"
+    assert s.selection.joints == [(b, 4)] and s.editing.typed == ""
+    crowd = [Person.blank(900 + n, 17) for n in range(12)]
+    s.view.show(crowd, {})  # a view of twelve (stand-ins): tag 1 may become 10 to 12
+    s.selection.select_joint(900, 0)
+    assert s.editing.type_digit("1") and s.editing.typed == "1"
+    assert s.said[-1] == "give to person 1\u2026"
+    s.editing.cancel_typing()
+    assert s.editing.typed == ""
