@@ -32,6 +32,7 @@ from app.jobs_findings import accept_label
 from app.model.edits import AddNote, DismissFinding, Edit, EditGroup, SetFrameState
 from app.model.labels import Frame, FrameState, Person
 from app.model.naming import Names
+from app.review.review import is_review
 from app.session.blurred import BlurredFrame, load_blurred
 from app.session.editing import Editing
 from app.session.events import Events
@@ -41,7 +42,7 @@ from app.session.settling import Dispute, Settling, load_dispute
 from app.session.view import View
 from app.session.walk import Stop, Walk, group_findings
 from app.store.project import Project
-from app.wording import count
+from app.wording import DECISION_WORDS, count
 
 log = logging.getLogger(__name__)
 
@@ -100,6 +101,8 @@ class Session:
                  attempt: Callable[[Callable[[], Any]], tuple[bool, Any]] | None = None):
         self.project = project
         self.skeleton = project.skeleton
+        #: Opened from a review packet: the reviewer's side (decisions; no settling).
+        self.review = is_review(project)
         self.events = Events()
         self.frame_id: int | None = None
         self.names = Names.of_frame(self.skeleton, [])
@@ -191,6 +194,31 @@ class Session:
         self.owner_ranking = ranking if ranking is not None and ranking.owner is not None \
             else None
         return self.owner_ranking
+
+    def decision(self) -> str | None:
+        """The reviewer's decision on the frame shown (a review only; else None): one of
+        :data:`app.wording.DECISION_WORDS`' keys."""
+        if not self.review or self.frame_id is None:
+            return None
+        from app.review.review import decisions
+
+        made = decisions(self.project).get(self.frame_id)
+        return made.decision if made is not None else None
+
+    def decide(self, decision: str) -> None:
+        """Record the reviewer's decision on the frame shown (``looks-right``, ``query``,
+        ``ready``); the same decision again withdraws it. Said as a message."""
+        from app.review.review import set_decision
+
+        if not self.review or self.frame_id is None:
+            return
+        fid = self.frame_id
+        value = None if self.decision() == decision else decision
+        ok, _ = self.attempt(lambda: set_decision(self.project, fid, value))
+        if ok:
+            self.events.emit("message", f"frame {fid}: " + (
+                f"{DECISION_WORDS[decision]} (the same key again withdraws it)" if value
+                else "decision withdrawn"))
 
     def refuses(self, edit: Edit) -> str | None:
         """Why an edit is not made here, or None: a read-only project takes none, and while

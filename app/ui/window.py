@@ -82,7 +82,6 @@ from app.ui.canvas import Canvas
 from app.ui.images import ImageCache, ImageLoader
 from app.ui.keys import KEYS, sequences, sheet_html
 from app.ui.models import (
-    DECISION_TEXT,
     LedgerModel,
     NotesModel,
     WorklistModel,
@@ -1081,20 +1080,8 @@ class MainWindow(QMainWindow):
     # ------------------------------------------------------------------ reviewing a packet
 
     def decide(self, decision: str) -> None:
-        """Record the reviewer's decision on the frame; the same decision again withdraws
-        it."""
-        from app.review.review import set_decision
-
-        if not self.review_mode or self.frame_id is None:
-            return
-        fid = self.frame_id
-        now = self._decision()
-        value = None if now == decision else decision
-        ok, _ = self._attempt(lambda: set_decision(self.project, fid, value))
-        if ok:
-            self._message(f"frame {fid}: " + (
-                f"{DECISION_TEXT[decision]} (the same key again withdraws it)" if value
-                else "decision withdrawn"))
+        """Record the reviewer's decision on the frame (the session's), then show it."""
+        self.session.decide(decision)
         self._update_actions()
         self._update_status()
 
@@ -1188,12 +1175,7 @@ class MainWindow(QMainWindow):
 
     def _decision(self) -> str | None:
         """The reviewer's decision on the frame shown (review mode), else None."""
-        if not self.review_mode or self.frame_id is None:
-            return None
-        from app.review.review import decisions
-
-        made = decisions(self.project).get(self.frame_id)
-        return made.decision if made is not None else None
+        return self.session.decision()
 
     def _update_strips(self) -> None:
         """The strips over the Canvas say what the session says (:mod:`app.session.status`)."""

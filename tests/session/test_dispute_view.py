@@ -207,3 +207,27 @@ def test_the_settling_keys_walk_take_keep_and_settle_without_a_window(labelled, 
     assert labelled.frame(frame.id).state is FrameState.CORRECTED
     s.settling.settle()
     assert said[-1] == "this frame is not disputed"
+
+
+def test_the_reviewer_decides_and_the_same_decision_again_withdraws_it(labelled, tmp_path):
+    """The reviewer's side of a real packet (our rule, README "Reviewing a packet"): a
+    decision is recorded on the frame shown and read back; the same one again withdraws it;
+    the main project takes no decisions."""
+    from app.review.review import decisions, open_packet
+
+    frame = labelled.frames()[0]
+    packet = send(labelled, tmp_path / "p.zip", frames=[frame.id])
+    main = Session(labelled)
+    main.open_frame(frame.id)
+    assert not main.review and main.decision() is None
+    with open_packet(packet, reviewer="bea") as reviewed:
+        s = Session(reviewed)
+        said = []
+        s.events.connect("message", lambda text, *_: said.append(text))
+        s.open_frame(frame.id)
+        assert s.review and s.decision() is None
+        s.decide("query")
+        assert s.decision() == "query" == decisions(reviewed)[frame.id].decision
+        assert said[-1] == f"frame {frame.id}: queried (the same key again withdraws it)"
+        s.decide("query")
+        assert s.decision() is None and said[-1] == f"frame {frame.id}: decision withdrawn"
