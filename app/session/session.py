@@ -87,6 +87,8 @@ class Session:
     ``refreshed(int)``
         A frame the walk changed has its findings computed again (the result is in; its
         stops may have changed).
+    ``show(int)``
+        Show this frame (undo or redo changed a frame other than the one shown).
     ``reveal(x, y)``
         Bring this image point into view (a difference selected by the settling keys).
     ``selection()``
@@ -194,6 +196,32 @@ class Session:
         self.owner_ranking = ranking if ranking is not None and ranking.owner is not None \
             else None
         return self.owner_ranking
+
+    def undo(self) -> int | None:
+        """Undo the author's last action (one ledger group); see :meth:`_unwind`."""
+        return self._unwind(self.project.undo, "undone", "nothing to undo")
+
+    def redo(self) -> int | None:
+        """Redo the action undone last; see :meth:`_unwind`."""
+        return self._unwind(self.project.redo, "redone", "nothing to redo")
+
+    def _unwind(self, fn: Callable[[], int | None], done: str, nothing: str) -> int | None:
+        """Run undo or redo through :meth:`attempt`; when it changed a frame other than the
+        one shown, ask for that frame (``show``), then say what was undone or redone. The
+        ledger group, or None when nothing was done."""
+        ok, group = self.attempt(fn)
+        if not ok:
+            return None
+        if group is None:
+            self.events.emit("message", nothing)
+            return None
+        entries = [e for e in self.project.history(limit=512) if e.group_id == group]
+        frames = sorted({e.frame_id for e in entries if e.frame_id is not None})
+        if frames and self.frame_id not in frames:
+            self.events.emit("show", frames[0])  # show the annotator what just changed
+        if entries:
+            self.events.emit("message", f"{done}: {entries[0].summary.split(': ', 1)[-1]}")
+        return group
 
     def decision(self) -> str | None:
         """The reviewer's decision on the frame shown (a review only; else None): one of

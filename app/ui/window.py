@@ -198,6 +198,7 @@ class MainWindow(QMainWindow):
         self.session.events.connect("refreshed", self._refreshed)
         self.session.events.connect("selection", self.canvas.selection_moved)
         self.session.events.connect("reveal", self.canvas.ensure_visible)
+        self.session.events.connect("show", self.show_frame)
         self.canvas.selection = self.session.selection
         self.canvas.use_view(self.session.view)
         self.ledger = LedgerPanel(self.ledger_model, self.actions_by_name)
@@ -749,32 +750,11 @@ class MainWindow(QMainWindow):
         self.canvas.setFocus(Qt.FocusReason.OtherFocusReason)
 
     def undo(self) -> None:
-        self._unwind(self.project.undo, "undone", "nothing to undo")
+        self.session.undo()  # shows the frame it changed (the session's show event)
+        self._update_actions()
 
     def redo(self) -> None:
-        self._unwind(self.project.redo, "redone", "nothing to redo")
-
-    def _unwind(self, fn: Callable[[], int | None], done: str, nothing: str) -> None:
-        if self.project.read_only:
-            self._message(f"read-only: {self.project.read_only_reason}")
-            return
-        try:
-            group = fn()
-        except EditRefused as exc:
-            self._message(f"not done: {exc}")
-            return
-        except PosewrightError as exc:
-            self._error(str(exc))
-            return
-        if group is None:
-            self._message(nothing)
-            return
-        entries = [e for e in self.project.history(limit=512) if e.group_id == group]
-        frames = sorted({e.frame_id for e in entries if e.frame_id is not None})
-        if frames and self.frame_id not in frames:
-            self.show_frame(frames[0])  # show the annotator what just changed
-        if entries:
-            self._message(f"{done}: {entries[0].summary.split(': ', 1)[-1]}")
+        self.session.redo()
         self._update_actions()
 
     def _return_to(self, seq: int, whole_project: bool) -> None:

@@ -205,3 +205,21 @@ def test_a_typed_tag_waits_for_a_second_digit_only_when_one_could_follow(session
     assert s.said[-1] == "give to person 1\u2026"
     s.editing.cancel_typing()
     assert s.editing.typed == ""
+
+
+def test_undo_and_redo_say_what_they_did_and_ask_for_the_frame_they_changed(session):
+    s = session
+    pid = s.people[0].id
+    shown = []
+    s.events.connect("show", shown.append)
+    s.selection.select_joint(pid, 2)
+    s.editing.set_visibility(1)
+    assert s.undo() is not None and s.said[-1].startswith("undone: ")
+    assert shown == [], "the frame changed is the one shown"
+    assert s.redo() is not None and s.said[-1].startswith("redone: ")
+    s.project.undo()
+    s.open_frame(2)  # the annotator moved on to another frame
+    s.redo()
+    assert shown == [1]
+    s.redo()
+    assert s.said[-1] == "nothing to redo"
