@@ -1,10 +1,15 @@
 """One annotator's session over an open project, without Qt.
 
-:class:`Session` holds what the window used to keep in widget attributes for the walk: the
-frame on screen and its people, how they are named, the stops of the walk and the cursor over
-them. It turns the annotator's intents (next finding, accept, dismiss, skip) into edits
-applied through the store and into messages, and tells whoever listens through plain
-:class:`Events`. The window shows what it says; tests drive it without a window.
+:class:`Session` holds what the window used to keep in widget attributes: the frame on
+screen, its people (held once, by its :class:`~app.session.view.View`) and how they are named,
+the selection, the owner ranking of the selected joint, the disputed frame's differences, the
+stops of the walk and the cursor over them. It turns the annotator's intents into edits applied
+through the store and into messages: the walk's (next finding, accept, dismiss, skip) here,
+undo and redo, a reviewer's decision, the editing keys in :attr:`Session.editing`
+(:mod:`app.session.editing`) and the settling keys in :attr:`Session.settling`
+(:mod:`app.session.settling`); it tells whoever listens through plain :class:`Events`. The
+window shows what it says; tests drive it without a window. DEVELOPERS.md, "Where a behaviour
+lives", maps it all.
 
 Speed: stepping to the next stop reads nothing but the frame's cached stops. Accepting a fix
 keeps the frame's other stops that are about other people (their fixes still apply: the store
