@@ -1,10 +1,15 @@
 """One annotator's session over an open project, without Qt.
 
-:class:`Session` holds what the window used to keep in widget attributes for the walk: the
-frame on screen and its people, how they are named, the stops of the walk and the cursor over
-them. It turns the annotator's intents (next finding, accept, dismiss, skip) into edits
-applied through the store and into messages, and tells whoever listens through plain
-:class:`Events`. The window shows what it says; tests drive it without a window.
+:class:`Session` holds what the window used to keep in widget attributes: the frame on
+screen, its people (held once, by its :class:`~app.session.view.View`) and how they are named,
+the selection, the owner ranking of the selected joint, the disputed frame's differences, the
+stops of the walk and the cursor over them. It turns the annotator's intents into edits applied
+through the store and into messages: the walk's (next finding, accept, dismiss, skip) here,
+undo and redo, a reviewer's decision, the editing keys in :attr:`Session.editing`
+(:mod:`app.session.editing`) and the settling keys in :attr:`Session.settling`
+(:mod:`app.session.settling`); it tells whoever listens through plain :class:`Events`. The
+window shows what it says; tests drive it without a window. DEVELOPERS.md, "Where a behaviour
+lives", maps it all.
 
 Speed: stepping to the next stop reads nothing but the frame's cached stops. Accepting a fix
 keeps the frame's other stops that are about other people (their fixes still apply: the store
@@ -22,24 +27,27 @@ from __future__ import annotations
 
 import logging
 from collections import defaultdict
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from functools import partial
 from typing import Any
 
 from app.analysis.triage.findings import Finding, labels_digest
 from app.errors import EditRefused, PosewrightError
 from app.jobs_findings import accept_label
-from app.model.edits import DismissFinding, Edit, EditGroup
+from app.model.edits import AddNote, DismissFinding, Edit, EditGroup, SetFrameState
 from app.model.labels import Frame, FrameState, Person
 from app.model.naming import Names
+from app.review.review import is_review
 from app.session.blurred import BlurredFrame, load_blurred
+from app.session.editing import Editing
 from app.session.events import Events
+from app.session.owners import OwnerRanking, rank_owners
 from app.session.selection import Selection
-from app.session.settling import Dispute, load_dispute
+from app.session.settling import Dispute, Settling, load_dispute
 from app.session.view import View
 from app.session.walk import Stop, Walk, group_findings
 from app.store.project import Project
-from app.wording import count
+from app.wording import DECISION_WORDS, count
 
 log = logging.getLogger(__name__)
 
@@ -70,6 +78,10 @@ class Session:
     background
         Where a changed frame's findings are computed again (:data:`Background`); default:
         at once, in the caller's thread (:func:`run_here`).
+    attempt
+        Runs a back-end call that changes the project other than by an edit (settling):
+        returns ``(done, result)``; default :meth:`attempt`'s own (refusals said as
+        messages). The window passes its own, which shows other errors in a box.
 
     Events
     ------
@@ -80,16 +92,26 @@ class Session:
     ``refreshed(int)``
         A frame the walk changed has its findings computed again (the result is in; its
         stops may have changed).
+    ``show(int)``
+        Show this frame (undo or redo changed a frame other than the one shown).
+    ``reveal(x, y)``
+        Bring this image point into view (a difference selected by the settling keys).
+    ``selection()``
+        An intent moved the selection (after an edit: onto a person split off, a joint
+        given away, ...), or it forgot people no longer shown; the Canvas's own clicks
+        change it without this event.
     """
 
     def __init__(self, project: Project, order: Callable[[], Sequence[int]] | None = None,
                  apply: Callable[[Edit], Any] | None = None,
-                 background: Background | None = None):
+                 background: Background | None = None,
+                 attempt: Callable[[Callable[[], Any]], tuple[bool, Any]] | None = None):
         self.project = project
         self.skeleton = project.skeleton
+        #: Opened from a review packet: the reviewer's side (decisions; no settling).
+        self.review = is_review(project)
         self.events = Events()
         self.frame_id: int | None = None
-        self.people: list[Person] = []
         self.names = Names.of_frame(self.skeleton, [])
         #: What is selected in the frame (the Canvas shows and changes it).
         self.selection = Selection()
@@ -98,6 +120,15 @@ class Session:
         self.view = View()
         #: The open differences of the frame shown, when it is disputed.
         self.dispute: Dispute | None = None
+        #: What the editing keys do (app/session/editing.py) and the settling keys
+        #: (app/session/settling.py).
+        self.editing = Editing(self)
+        self.settling = Settling(self)
+        self._attempt = attempt
+        #: The selected joint's owner and candidates (None without one joint selected, or
+        #: while the reviewer's version shows): :meth:`rank_owners`.
+        self.owner_ranking: OwnerRanking | None = None
+        self.view.events.connect("people", self._forget_unshown)
         self._order = order or self._suspicion_order
         self._apply = apply or project.apply
         self.walk = Walk(lambda: self._order(), self.stops)
@@ -124,11 +155,144 @@ class Session:
 
     # ------------------------------------------------------------------ frame
 
-    def open_frame(self, frame_id: int, people: Sequence[Person] | None = None) -> None:
-        """Show a frame: its people in tag order (read from the project unless given)."""
+    @property
+    def people(self) -> list[Person]:
+        """Our people of the frame shown, in tag order: the view holds them
+        (:attr:`app.session.view.View.ours`; the people it shows may be the reviewer's)."""
+        return self.view.ours
+
+    def open_frame(self, frame_id: int, people: Sequence[Person] | None = None,
+                   flags: Mapping[int, frozenset[int]] | None = None) -> None:
+        """Show a frame: its people in tag order (read from the project unless given) with
+        their triage flags (none unless given), nothing selected, no pick, colours given
+        anew (:meth:`app.session.view.View.open`)."""
         self.frame_id = int(frame_id)
-        self.people = list(self.project.people(frame_id) if people is None else people)
-        self.names = Names.of_frame(self.skeleton, [p.id for p in self.people])
+        people = list(self.project.people(frame_id) if people is None else people)
+        self.names = Names.of_frame(self.skeleton, [p.id for p in people])
+        self.selection.select_person(None)
+        self.view.set_pick(None)
+        self.view.open(people, flags or {})
+
+    def reload_frame(self, people: Sequence[Person] | None = None,
+                     flags: Mapping[int, frozenset[int]] | None = None) -> None:
+        """The shown frame's labels changed (an edit, undo, a colleague): its people again
+        (read from the project unless given), the flags kept unless given; those still shown
+        keep their colours (:meth:`app.session.view.View.show`)."""
+        if self.frame_id is None:
+            return
+        people = list(self.project.people(self.frame_id) if people is None else people)
+        self.names = Names.of_frame(self.skeleton, [p.id for p in people])
+        self.view.show(people, self.view.flags if flags is None else flags)
+
+    def rank_owners(self, maps: Callable[[], Any] = lambda: None) -> OwnerRanking | None:
+        """Rank the candidate owners of the joint selected last (:mod:`app.session.owners`),
+        keep the ranking in :attr:`owner_ranking` and return it; ``maps`` gives the frame's
+        network maps when a ranking needs them (None: judged by limb lengths). None without
+        a joint, while the reviewer's version shows, or when the joint has no position; a
+        failure is logged and gives None (it must not stop the annotator)."""
+        joint = self.selection.joint
+        ranking = None
+        if joint is not None and self.frame_id is not None and not self.view.showing_theirs:
+            try:
+                ranking = rank_owners(self.view.people, joint[0], joint[1], self.skeleton,
+                                      maps())
+            except Exception:
+                log.exception("ranking candidate owners failed")
+        self.owner_ranking = ranking if ranking is not None and ranking.owner is not None \
+            else None
+        return self.owner_ranking
+
+    def undo(self) -> int | None:
+        """Undo the author's last action (one ledger group); see :meth:`_unwind`."""
+        return self._unwind(self.project.undo, "undone", "nothing to undo")
+
+    def redo(self) -> int | None:
+        """Redo the action undone last; see :meth:`_unwind`."""
+        return self._unwind(self.project.redo, "redone", "nothing to redo")
+
+    def _unwind(self, fn: Callable[[], int | None], done: str, nothing: str) -> int | None:
+        """Run undo or redo through :meth:`attempt`; when it changed a frame other than the
+        one shown, ask for that frame (``show``), then say what was undone or redone. The
+        ledger group, or None when nothing was done."""
+        ok, group = self.attempt(fn)
+        if not ok:
+            return None
+        if group is None:
+            self.events.emit("message", nothing)
+            return None
+        entries = [e for e in self.project.history(limit=512) if e.group_id == group]
+        frames = sorted({e.frame_id for e in entries if e.frame_id is not None})
+        if frames and self.frame_id not in frames:
+            self.events.emit("show", frames[0])  # show the annotator what just changed
+        if entries:
+            self.events.emit("message", f"{done}: {entries[0].summary.split(': ', 1)[-1]}")
+        return group
+
+    def decision(self) -> str | None:
+        """The reviewer's decision on the frame shown (a review only; else None): one of
+        :data:`app.wording.DECISION_WORDS`' keys."""
+        if not self.review or self.frame_id is None:
+            return None
+        from app.review.review import decisions
+
+        made = decisions(self.project).get(self.frame_id)
+        return made.decision if made is not None else None
+
+    def decide(self, decision: str) -> None:
+        """Record the reviewer's decision on the frame shown (``looks-right``, ``query``,
+        ``ready``); the same decision again withdraws it. Said as a message."""
+        from app.review.review import set_decision
+
+        if not self.review or self.frame_id is None:
+            return
+        fid = self.frame_id
+        value = None if self.decision() == decision else decision
+        ok, _ = self.attempt(lambda: set_decision(self.project, fid, value))
+        if ok:
+            self.events.emit("message", f"frame {fid}: " + (
+                f"{DECISION_WORDS[decision]} (the same key again withdraws it)" if value
+                else "decision withdrawn"))
+
+    def refuses(self, edit: Edit) -> str | None:
+        """Why an edit is not made here, or None: a read-only project takes none, and while
+        the reviewer's version is shown only notes and the frame's state are edited."""
+        if self.project.read_only:
+            return f"read-only: {self.project.read_only_reason}"
+        if self.view.showing_theirs and not isinstance(edit, (AddNote, SetFrameState)):
+            return (f"showing {self.view.reviewer}'s version, which is not edited here: "
+                    "B goes back to mine")
+        return None
+
+    def attempt(self, fn: Callable[[], Any]) -> tuple[bool, Any]:
+        """Run a back-end call that changes the project (settling): ``(True, its result)``,
+        or ``(False, None)`` when the project is read-only or the store refused it (said as
+        a message)."""
+        if self._attempt is not None:
+            return self._attempt(fn)
+        if self.project.read_only:
+            self.events.emit("message", f"read-only: {self.project.read_only_reason}")
+            return False, None
+        try:
+            return True, fn()
+        except EditRefused as exc:
+            self.events.emit("message", f"not done: {exc}")
+            return False, None
+
+    def _forget_unshown(self) -> None:
+        """The view shows other people: the selection forgets those no longer shown."""
+        if self.selection.keep_only(p.id for p in self.view.people):
+            self.events.emit("selection")
+
+    def select_joints(self, pairs: Sequence[tuple[int, int]]) -> None:
+        """Select these joints (none: leave the selection) and tell the listeners."""
+        if pairs:
+            self.selection.select_joints(pairs)
+            self.events.emit("selection")
+
+    def select_person(self, person_id: int | None) -> None:
+        """Select a person alone (None: nothing) and tell the listeners."""
+        self.selection.select_person(person_id)
+        self.events.emit("selection")
 
     def read_dispute(self, frame: Frame, ours: Sequence[Person],
                      settles: bool = True) -> Dispute | None:
@@ -234,6 +398,26 @@ class Session:
         else:
             self.events.emit("stop", stop)
         return stop
+
+    def select_stop(self, stop: Stop) -> None:
+        """Select what a stop on the frame shown is about: its labelled joints, else its
+        person; a frame's group of findings selects nobody (what they are about is marked,
+        not selected). Tells the listeners (``selection``)."""
+        person = None if stop.person_id is None else self.view.person(stop.person_id)
+        if person is not None:
+            joints = [j for j in stop.joints if person.keypoints[j, 2] > 0]
+            if joints:
+                self.select_joints([(stop.person_id, j) for j in joints])
+            else:
+                self.select_person(stop.person_id)
+        else:
+            self.select_person(None)
+
+    def stop_place(self, stop: Stop) -> str:
+        """Where a stop is among its frame's: ``· stop 2 of 5`` ("" once it is gone)."""
+        keys = [s.key for s in self.stops(stop.frame_id)]
+        return (f"\u00b7 stop {keys.index(stop.key) + 1} of {len(keys)}" if stop.key in keys
+                else "")
 
     def skip(self) -> Stop | None:
         """Leave the current stop as it is and go to the next."""
@@ -383,7 +567,7 @@ class Session:
         except PosewrightError:
             log.exception("reading frame %s after an edit failed", fid)
         if fid == self.frame_id:
-            self.open_frame(fid)
+            self.reload_frame()
         return done
 
     # ------------------------------------------------------------------ outside changes

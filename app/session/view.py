@@ -15,10 +15,15 @@ holds both with their difference marks, shows ours unless asked for the reviewer
 
 The modes:
 
-- *region mode*: the mouse works on ignore regions instead of joints;
+- *region mode*: the mouse works on ignore regions instead of joints (the frame's regions
+  and the one selected are the view's: :meth:`View.set_regions`; leaving drops the
+  selection); it and the reviewer's version exclude each other (entering one leaves the
+  other);
 - *pick*: the next click on a person picks them for an action (``"merge"``); entering region
   mode leaves it;
-- *focus*: the selected person is shown in full and everyone else dimmed.
+- *focus*: the selected person is shown in full and everyone else dimmed;
+- what else is drawn: joints not labelled, the tags, a review packet's blurred regions
+  (:meth:`View.set_shown`).
 
 Examples
 --------
@@ -56,6 +61,13 @@ from app.session.events import Events
 #: How many people colours the Canvas has (the Okabe and Ito palette without black,
 #: :data:`app.ui.overlay.PERSON_COLOURS`; tests/ui/test_overlay.py checks they agree).
 PALETTE_SIZE = 7
+
+#: The joint index that stands for "the whole person" in :attr:`View.flags` (and in the
+#: painter's flags, :attr:`app.ui.overlay.OverlayStyle.flags`).
+WHOLE_PERSON = -1
+
+#: What the Canvas can draw or not besides the people (:meth:`View.set_shown`).
+SHOWN = ("unlabeled", "tags", "blurred")
 
 #: What a pick waits for: ``"merge"`` (the person to merge the selected one into).
 PICKS = ("merge",)
@@ -156,13 +168,22 @@ class View:
         self.palette_size = palette_size
         #: The people shown, in tag order (a person's tag is its place here, from 1).
         self.people: list[Any] = []
-        #: Person id -> flagged joints (``app.ui.overlay.WHOLE_PERSON`` for the whole body).
+        #: Person id -> flagged joints (:data:`WHOLE_PERSON` for the whole body).
         self.flags: dict[int, frozenset[int]] = {}
         #: Person id -> palette index; kept while the frame is edited so colours do not jump.
         self.colours: dict[int, int] = {}
         self.region_mode = False
+        #: The frame's ignore regions ``(id, polygons)`` in image pixels
+        #: (:meth:`set_regions`), and the one selected in region mode.
+        self.regions: list[tuple[int, Any]] = []
+        self.selected_region: int | None = None
         self.pick: str | None = None
         self.focus = False
+        #: What else is drawn (:data:`SHOWN`, :meth:`set_shown`): joints not labelled (at
+        #: their remembered place), the people's tags, a review packet's blurred regions.
+        self.show_unlabeled = False
+        self.show_tags = True
+        self.show_blurred = True
         #: Our people of the frame, in tag order (what :attr:`people` holds unless the
         #: reviewer's version is shown).
         self.ours: list[Any] = []
@@ -181,9 +202,10 @@ class View:
     # ------------------------------------------------------------------ people
 
     def open(self, people: Sequence[Any], flags: Mapping[int, frozenset[int]]) -> None:
-        """Another frame: its people, colours given anew, no dispute (until
-        :meth:`set_dispute`), ours shown."""
+        """Another frame: its people, colours given anew, no regions (until
+        :meth:`set_regions`), no dispute (until :meth:`set_dispute`), ours shown."""
         disputed = self.theirs is not None or bool(self.ours_marks)
+        self.regions, self.selected_region = [], None
         self.theirs, self.ours_marks, self.theirs_marks = None, {}, {}
         self.reviewer, self.showing_theirs = "", False
         self.show(people, flags, keep_colours=False)
@@ -222,15 +244,37 @@ class View:
         return {"region": self.region_mode, "pick": self.pick, "focus": self.focus}
 
     def set_region_mode(self, on: bool) -> bool:
-        """Enter or leave region mode (entering leaves a pick); True when it changed."""
+        """Enter or leave region mode; True when it changed. Entering leaves a pick, and
+        shows ours if the reviewer's version was shown (regions are drawn on ours)."""
         on = bool(on)
         if on == self.region_mode:
             return False
+        if on and self.showing_theirs:
+            self.show_theirs(False)
         self.region_mode = on
         if on:
             self.pick = None
+        else:
+            self.selected_region = None
         self.events.emit("mode")
         return True
+
+    def set_regions(self, regions: Sequence[tuple[int, Any]]) -> bool:
+        """The frame's ignore regions ``(id, polygons)`` (after any change); the selected one
+        stays selected while it is there. True when the selected one went away.
+
+        >>> v = View(); v.set_regions([(3, [[0, 0, 4, 0, 4, 4]])]); v.selected_region = 3
+        False
+        >>> v.set_regions([]), v.selected_region
+        (True, None)
+        """
+        self.regions = [(int(r), tuple(tuple(float(x) for x in p) for p in polys))
+                        for r, polys in regions]
+        if self.selected_region is not None and \
+                self.selected_region not in {r for r, _ in self.regions}:
+            self.selected_region = None
+            return True
+        return False
 
     def set_pick(self, pick: str | None) -> None:
         """Wait for a click on a person (one of :data:`PICKS`), or stop waiting (None)."""
@@ -238,6 +282,16 @@ class View:
             raise ValueError(f"unknown pick {pick!r}")
         if pick != self.pick:
             self.pick = pick
+            self.events.emit("mode")
+
+    def set_shown(self, what: str, on: bool) -> None:
+        """Draw ``what`` (one of :data:`SHOWN`) or stop drawing it; a ``mode`` event when it
+        changed."""
+        if what not in SHOWN:
+            raise ValueError(f"unknown thing to show {what!r}")
+        name = f"show_{what}"
+        if bool(on) != getattr(self, name):
+            setattr(self, name, bool(on))
             self.events.emit("mode")
 
     def set_focus(self, on: bool) -> None:
@@ -287,7 +341,10 @@ class View:
         return dict(self.theirs_marks if self.showing_theirs else self.ours_marks)
 
     def show_theirs(self, on: bool) -> bool:
-        """Show the reviewer's version (or ours again); False when there is none to show."""
+        """Show the reviewer's version (or ours again); False when there is none to show.
+        Showing theirs leaves region mode (their version is read-only)."""
+        if on and self.region_mode:
+            self.set_region_mode(False)
         on = bool(on) and self.theirs is not None
         if on != self.showing_theirs:
             self.showing_theirs = on

@@ -273,16 +273,10 @@ class Canvas(QWidget):
         #: :meth:`use_view`).
         self.view = View()
         self.read_only = False
-        self.show_unlabeled = False
-        self.show_tags = True
         #: Reviewing a packet: where its image of the frame was blurred, and whether to
         #: outline it (:mod:`app.ui.blurred`).
         self.blurred: BlurredFrame | None = None
-        self.show_blurred = True
         self.message = ""  # shown instead of the image when it cannot be shown
-        #: The frame's ignore regions ``(id, polygons)``.
-        self.regions: list[tuple[int, geometry.Polygons]] = []
-        self._region: int | None = None
         self._draft: list[tuple[float, float]] = []
         self._region_drag: _RegionDrag | None = None
         self._double_clicked = False
@@ -331,11 +325,17 @@ class Canvas(QWidget):
         self._listen(view)
 
     def _listen(self, view: View) -> None:
+        self._region_mode_was = view.region_mode
+
         def people() -> None:
             if view is self.view:
                 self._people_shown()
 
-        view.events.connect("mode", self.update)
+        def modes() -> None:
+            if view is self.view:
+                self._modes_changed()
+
+        view.events.connect("mode", modes)
         view.events.connect("people", people)
         view.events.connect("dispute", self.update)
 
@@ -368,11 +368,41 @@ class Canvas(QWidget):
     def focus_mode(self, on: bool) -> None:
         self.view.set_focus(on)
 
+    @property
+    def show_unlabeled(self) -> bool:
+        """Whether joints not labelled are drawn (and can be clicked); the view's."""
+        return self.view.show_unlabeled
+
+    @show_unlabeled.setter
+    def show_unlabeled(self, on: bool) -> None:
+        self.view.set_shown("unlabeled", on)
+
+    @property
+    def show_tags(self) -> bool:
+        """Whether the people's tags are drawn (the view's)."""
+        return self.view.show_tags
+
+    @show_tags.setter
+    def show_tags(self, on: bool) -> None:
+        self.view.set_shown("tags", on)
+
+    @property
+    def show_blurred(self) -> bool:
+        """Whether a review packet's blurred regions are outlined (the view's)."""
+        return self.view.show_blurred
+
+    @show_blurred.setter
+    def show_blurred(self, on: bool) -> None:
+        self.view.set_shown("blurred", on)
+
     # ------------------------------------------------------------------ content
 
-    def set_frame(self, frame: Frame, people: list[Person], flags: dict[int, frozenset[int]],
+    def set_frame(self, frame: Frame, people: list[Person] | None = None,
+                  flags: dict[int, frozenset[int]] | None = None,
                   decoded: Decoded | None = None) -> None:
-        """Show another frame: new people, no selection, the image if already decoded."""
+        """Show another frame: no selection, the image if already decoded, and its people
+        (given here, or already in the view: the window's session opens the frame first,
+        :meth:`app.session.session.Session.open_frame`)."""
         keep_view = self.frame is not None and (self.frame.width, self.frame.height) == \
             (frame.width, frame.height) and not self._fit_mode
         self.frame = frame
@@ -392,17 +422,14 @@ class Canvas(QWidget):
         self._draft = []
         self._region_drag = None
         self.blurred = None
-        self.view.open(people, flags)  # no dispute until the window reads it
+        if people is not None:
+            self.view.open(people, flags or {})  # no dispute until the window reads it
         if decoded is not None:
             self.set_image(decoded)
         if not keep_view:
             self.fit()
         self.update()
         self.selectionChanged.emit()
-
-    def set_people(self, people: list[Person], flags: dict[int, frozenset[int]]) -> None:
-        """New labels of the same frame (after an edit); keeps what is still selectable."""
-        self.view.show(people, flags)
 
     def _people_shown(self) -> None:
         """The view shows other people (ours, or the reviewer's version when asked): new hit
@@ -466,13 +493,28 @@ class Canvas(QWidget):
 
     # ------------------------------------------------------------------ ignore regions
 
+    @property
+    def regions(self) -> list[tuple[int, geometry.Polygons]]:
+        """The frame's ignore regions ``(id, polygons)`` (the view's)."""
+        return self.view.regions
+
+    @regions.setter
+    def regions(self, regions: list[tuple[int, geometry.Polygons]]) -> None:
+        self.view.regions = list(regions)
+
+    @property
+    def _region(self) -> int | None:
+        """The region selected in region mode (the view's)."""
+        return self.view.selected_region
+
+    @_region.setter
+    def _region(self, region_id: int | None) -> None:
+        self.view.selected_region = region_id
+
     def set_regions(self, regions: list[tuple[int, geometry.Polygons]]) -> None:
         """The frame's ignore regions (after any change); keeps the selection if it is still
-        there."""
-        self.regions = [(int(r), tuple(tuple(float(v) for v in p) for p in polys))
-                        for r, polys in regions]
-        if self._region is not None and self._region not in {r for r, _ in self.regions}:
-            self._region = None
+        there (:meth:`app.session.view.View.set_regions`)."""
+        if self.view.set_regions(regions):
             self.regionChanged.emit()
         self._region_drag = None
         self.update()
@@ -492,22 +534,30 @@ class Canvas(QWidget):
         self.regionChanged.emit()
 
     def set_region_mode(self, on: bool) -> None:
-        """Enter or leave region mode (leaving drops a polygon being drawn)."""
-        on = bool(on)
-        if not self.view.set_region_mode(on):
-            return
-        self._draft = []
-        self._region_drag = None
-        self._drag = None
-        if on:
-            self.selection.joints = []
-            self._hover = None
-            self.selectionChanged.emit()
-        else:
-            self._region = None
-        self.setCursor(Qt.CursorShape.CrossCursor if on else Qt.CursorShape.ArrowCursor)
+        """Enter or leave region mode (the view's rule: entering shows ours and leaves a
+        pick; :meth:`app.session.view.View.set_region_mode`)."""
+        self.view.set_region_mode(on)
+
+    def _modes_changed(self) -> None:
+        """The view's modes changed: entering region mode drops the selected joints, leaving
+        it the selected region; either drops a polygon being drawn and a drag. The cursor is
+        a cross while a click places a corner or picks a person."""
+        on = self.view.region_mode
+        if on != self._region_mode_was:
+            self._region_mode_was = on
+            self._draft = []
+            self._region_drag = None
+            self._drag = None
+            if on:
+                self.selection.joints = []
+                self._hover = None
+                self.selectionChanged.emit()
+            else:
+                self._region = None
+            self.regionChanged.emit()
+        cross = on or self.view.pick is not None
+        self.setCursor(Qt.CursorShape.CrossCursor if cross else Qt.CursorShape.ArrowCursor)
         self.update()
-        self.regionChanged.emit()
 
     def region_escape(self) -> None:
         """Esc in region mode: cancel the polygon, else drop the selection, else leave."""
@@ -609,6 +659,11 @@ class Canvas(QWidget):
         self.update()
         self.selectionChanged.emit()
 
+    def selection_moved(self) -> None:
+        """The session moved the selection (an intent, after its edit): show it."""
+        self.update()
+        self.selectionChanged.emit()
+
     def clear_selection(self) -> None:
         self.view.set_pick(None)
         self.select_person(None)
@@ -625,7 +680,6 @@ class Canvas(QWidget):
     def set_pick_mode(self, mode: str | None) -> None:
         """``"merge"``: the next click on a person emits :attr:`personPicked`."""
         self.view.set_pick(mode)
-        self.setCursor(Qt.CursorShape.CrossCursor if mode else Qt.CursorShape.ArrowCursor)
 
     @property
     def pick_mode(self) -> str | None:

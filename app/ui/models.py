@@ -28,6 +28,7 @@ from PySide6.QtGui import QColor, QFont
 from app.errors import PosewrightError
 from app.model.labels import Frame, FrameState, Note, Person
 from app.model.naming import Names, ledger_names, person_text
+from app.session.status import STATE_WORDS
 from app.session.worklist import people_summary, separating_counts
 from app.store.frames import FrameQuery, WorklistEntry
 from app.store.project import LedgerEntry, Project
@@ -57,12 +58,7 @@ _WORK_ROLES = frozenset({KeyRole, DisplayRole, ToolTipRole, AlignRole, FontRole,
 
 log = logging.getLogger(__name__)
 
-STATE_TEXT = {
-    FrameState.UNTOUCHED: "untouched",
-    FrameState.CORRECTED: "corrected",
-    FrameState.DISPUTED: "disputed",
-    FrameState.SIGNED_OFF: "signed off",
-}
+STATE_TEXT = STATE_WORDS
 
 
 #: A reviewer's decision on a frame, as the Worklist and the status bar say it.

@@ -52,6 +52,7 @@ from PySide6.QtGui import (
 )
 
 from app.model.skeleton import Side, Skeleton
+from app.session.view import WHOLE_PERSON as _WHOLE_PERSON
 from app.session.view import assign_colours as _assign_colours
 
 #: The eight colours of Okabe and Ito (2008), in the paper's order: black, orange, sky blue,
@@ -66,8 +67,9 @@ OKABE_ITO: tuple[str, ...] = (
 #: Person colours: the palette without black, which is kept for outlines.
 PERSON_COLOURS: tuple[str, ...] = OKABE_ITO[1:]
 
-#: The joint index that stands for "the whole person" in :attr:`OverlayStyle.flags`.
-WHOLE_PERSON = -1
+#: The joint index that stands for "the whole person" in :attr:`OverlayStyle.flags`
+#: (defined with the view's flags, :data:`app.session.view.WHOLE_PERSON`).
+WHOLE_PERSON = _WHOLE_PERSON
 
 #: A person flagged at this many joints or more is flagged as a whole (ring on the tag).
 WHOLE_BODY_JOINTS = 8

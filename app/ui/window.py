@@ -1,9 +1,14 @@
 """The main window: Worklist (left), Canvas (centre), Owners (right), Ledger and Notes (bottom).
 
-The window is the one place that turns what the user asked for into edits and hands them to
-:meth:`app.store.Project.apply` (or undo, redo, return-to). It learns about every committed
-change through :class:`ProjectEvents`, which turns the store's listener calls into a Qt signal,
-and then refreshes the models and the Canvas; nothing polls.
+The window keeps the docks, menus, dialogs, long jobs and the wiring. What the user asked for
+becomes edits in the Qt-free session (:mod:`app.session`: the editing and settling keys, the
+walk), which applies them through the window's :meth:`MainWindow.apply` (read-only and the
+reviewer's version refuse; errors are shown) to :meth:`app.store.Project.apply`; undo, redo and
+return-to stay here. Which actions are enabled and what the status bar and the strips say are
+the session's too (:mod:`app.session.actions`, :mod:`app.session.status`); the window copies
+them into its widgets. It learns about every committed change through :class:`ProjectEvents`,
+which turns the store's listener calls into a Qt signal, and then refreshes the session, the
+models and the Canvas; nothing polls. DEVELOPERS.md, "Where a behaviour lives", maps it all.
 
 The same window serves three situations, each with a strip above the Canvas
 (:mod:`app.ui.strips`) that names it and offers its actions:
@@ -19,7 +24,6 @@ The same window serves three situations, each with a strip above the Canvas
 
 from __future__ import annotations
 
-import html
 import logging
 import time
 from collections.abc import Callable
@@ -27,7 +31,6 @@ from functools import partial
 from pathlib import Path
 from typing import Any
 
-import numpy as np
 from PySide6.QtCore import QEvent, QObject, Qt, QTimer, Signal
 from PySide6.QtGui import QAction, QCloseEvent, QKeyEvent, QKeySequence
 from PySide6.QtWidgets import (
@@ -50,17 +53,7 @@ from app.jobs import add_images, add_video_frames
 from app.model.edits import (
     AddNote,
     AddRegion,
-    DeletePerson,
     Edit,
-    EditGroup,
-    MergePeople,
-    MoveJoint,
-    NewPerson,
-    ReassignJoint,
-    SetFrameState,
-    SetVisibility,
-    SplitPerson,
-    SwapSides,
 )
 from app.model.labels import FrameLabels, FrameState, Person
 from app.model.skeleton import Skeleton
@@ -68,22 +61,33 @@ from app.parallel import check_workers
 from app.progress import Progress
 from app.review.review import is_review
 from app.session import Session, Stop
-from app.session.owners import FIT_MEANING, OwnerRanking, rank_owners, swap_warning
-from app.session.settling import Dispute, describe_difference, step_difference
+from app.session.actions import Circumstances, action_states
+from app.session.editing import TAG_WAIT_MS
+from app.session.owners import OwnerRanking
+from app.session.settling import Dispute
+from app.session.status import (
+    difference_text,
+    dispute_strip,
+    flags_text,
+    owners_note,
+    people_text,
+    region_strip,
+    review_strip,
+    selection_text,
+    state_text,
+)
 from app.session.timeline import Timeline
 from app.store.project import Applied, Project
 from app.ui.canvas import Canvas
 from app.ui.images import ImageCache, ImageLoader
 from app.ui.keys import KEYS, sequences, sheet_html
 from app.ui.models import (
-    DECISION_TEXT,
-    STATE_TEXT,
     LedgerModel,
     NotesModel,
     WorklistModel,
     video_position,
 )
-from app.ui.overlay import WHOLE_PERSON, flags_from_reasons, palette_colour
+from app.ui.overlay import flags_from_reasons, palette_colour
 from app.ui.panels import LedgerPanel, NotesPanel, OwnersPanel, WorklistPanel
 from app.ui.settings import cache_bytes, settings
 from app.ui.strips import Strip
@@ -93,9 +97,8 @@ from app.wording import count, plural
 
 log = logging.getLogger(__name__)
 
-_VISIBILITY_WORD = {0: "unlabelled", 1: "occluded", 2: "visible"}
 #: How long a first digit waits for a second one when there are ten or more people (ms).
-DIGIT_WAIT_MS = 700
+DIGIT_WAIT_MS = TAG_WAIT_MS
 #: How often a hosted project's Worklist looks again at the claims, some of which run out (ms).
 CLAIMS_REFRESH_MS = 30_000
 
@@ -140,8 +143,6 @@ class MainWindow(QMainWindow):
 
         self.events = ProjectEvents(project, self)
         self.loader = ImageLoader(cache or ImageCache(cache_bytes()), parent=self)
-        self.frame_id: int | None = None
-        self._typed = ""
         self._typed_timer = QTimer(self)
         self._typed_timer.setSingleShot(True)
         self._typed_timer.setInterval(DIGIT_WAIT_MS)
@@ -191,14 +192,15 @@ class MainWindow(QMainWindow):
         #: Where the session computes a changed frame's findings again (a worker thread).
         self.background = Background(self)
         self.session = Session(project, order=self.worklist.ordered_ids, apply=self.apply,
-                               background=self.background)
+                               background=self.background, attempt=self._attempt)
         self.session.events.connect("stop", self._show_stop)
         self.session.events.connect("message", self._message)
         self.session.events.connect("refreshed", self._refreshed)
+        self.session.events.connect("selection", self.canvas.selection_moved)
+        self.session.events.connect("reveal", self.canvas.ensure_visible)
+        self.session.events.connect("show", self.show_frame)
         self.canvas.selection = self.session.selection
         self.canvas.use_view(self.session.view)
-        #: The selected joint's owner and candidates (None without one selected joint).
-        self.owner_ranking: OwnerRanking | None = None
         self.ledger = LedgerPanel(self.ledger_model, self.actions_by_name)
         self.notes = NotesPanel(self.notes_model)
         self.docks = {
@@ -252,6 +254,17 @@ class MainWindow(QMainWindow):
             self._update_status()
 
     @property
+    def frame_id(self) -> int | None:
+        """The frame shown (the session's; None before one is, and while being built)."""
+        session = self.__dict__.get("session")
+        return None if session is None else session.frame_id
+
+    @property
+    def owner_ranking(self) -> OwnerRanking | None:
+        """The selected joint's owner and candidates (the session's)."""
+        return self.session.owner_ranking
+
+    @property
     def dispute(self) -> Dispute | None:
         """The open differences of the frame shown, when it is disputed (the session's)."""
         return self.session.dispute
@@ -269,32 +282,41 @@ class MainWindow(QMainWindow):
         return dock
 
     def _build_actions(self) -> None:
+        # What an editing or settling key does is the session's (app/session/editing.py,
+        # app/session/settling.py); the session exists once the actions are triggered.
+        def editing(name: str, *args: Any) -> Callable[[], Any]:
+            return lambda: getattr(self.session.editing, name)(*args)
+
+        def settling(name: str, *args: Any) -> Callable[[], Any]:
+            return lambda: getattr(self.session.settling, name)(*args)
+
         handlers: dict[str, Callable[[], Any]] = {
             "next_frame": lambda: self.step_frame(1),
             "prev_frame": lambda: self.step_frame(-1),
-            "mark_disputed": lambda: self.toggle_state(FrameState.DISPUTED),
-            "sign_off": lambda: self.toggle_state(FrameState.SIGNED_OFF),
+            "mark_disputed": editing("toggle_state", FrameState.DISPUTED),
+            "sign_off": editing("toggle_state", FrameState.SIGNED_OFF),
             "write_note": self._focus_note,
-            "next_person": lambda: self.step_person(1),
-            "prev_person": lambda: self.step_person(-1),
+            "next_person": editing("step_person", 1),
+            "prev_person": editing("step_person", -1),
             "next_in_track": lambda: self.step_track(1),
             "prev_in_track": lambda: self.step_track(-1),
             "carry_forward": self.carry_forward,
             "clear_selection": self._escape,
-            "give_best": self.give_to_best,
+            "give_best": editing("give_to_best"),
             "next_finding": lambda: self.session.step(1),
             "prev_finding": lambda: self.session.step(-1),
             "accept_fix": self.session_accept,
             "dismiss_finding": self.session_dismiss,
-            "mark_visible": lambda: self.set_visibility(2),
-            "mark_occluded": lambda: self.set_visibility(1),
-            "mark_unlabeled": lambda: self.set_visibility(0),
-            "place_joint": self.place_joint,
-            "new_person": self.new_person,
-            "split_person": self.split_person,
-            "swap_sides": self.swap_sides,
-            "merge_people": self.start_merge,
-            "delete_person": self.delete_person,
+            "mark_visible": editing("set_visibility", 2),
+            "mark_occluded": editing("set_visibility", 1),
+            "mark_unlabeled": editing("set_visibility", 0),
+            "place_joint": lambda: self.session.editing.place_joint(
+                self.canvas.pointer_image_position()),
+            "new_person": editing("new_person"),
+            "split_person": editing("split_person"),
+            "swap_sides": editing("swap_sides"),
+            "merge_people": editing("start_merge"),
+            "delete_person": editing("delete_person"),
             "focus_mode": self._toggle_focus,
             "show_unlabeled": self._toggle_unlabeled,
             "show_tags": self._toggle_tags,
@@ -317,15 +339,15 @@ class MainWindow(QMainWindow):
             "merge_packet": self._merge_packet,
             "region_mode": self._toggle_region_mode,
             "show_theirs": self._toggle_theirs,
-            "next_difference": lambda: self.step_difference(1),
-            "prev_difference": lambda: self.step_difference(-1),
-            "take_theirs_joint": lambda: self.take_theirs("joint"),
-            "take_theirs_person": lambda: self.take_theirs("person"),
-            "take_theirs_frame": lambda: self.take_theirs("frame"),
-            "keep_ours_joint": lambda: self.keep_ours("joint"),
-            "keep_ours_person": lambda: self.keep_ours("person"),
-            "keep_ours_frame": lambda: self.keep_ours("frame"),
-            "settle_frame": self.settle,
+            "next_difference": settling("step", 1),
+            "prev_difference": settling("step", -1),
+            "take_theirs_joint": settling("take_theirs", "joint"),
+            "take_theirs_person": settling("take_theirs", "person"),
+            "take_theirs_frame": settling("take_theirs", "frame"),
+            "keep_ours_joint": settling("keep_ours", "joint"),
+            "keep_ours_person": settling("keep_ours", "person"),
+            "keep_ours_frame": settling("keep_ours", "frame"),
+            "settle_frame": settling("settle"),
             "decide_agree": lambda: self.decide("looks-right"),
             "decide_needs_change": lambda: self.decide("query"),
             "decide_signed_off": lambda: self.decide("ready"),
@@ -516,12 +538,12 @@ class MainWindow(QMainWindow):
             self._message(str(exc))
             return
         self._cancel_typing()
-        self.frame_id = frame.id
         people = self._read_people(frame.id)
-        self.session.open_frame(frame.id, people)
         flags = self._flags(frame.id)
+        # The session holds the frame, its people and the selection; the Canvas shows them.
+        self.session.open_frame(frame.id, people, flags)
         decoded = self.loader.request(frame.id, self.project.image_path(frame), urgent=True)
-        self.canvas.set_frame(frame, people, flags, decoded)
+        self.canvas.set_frame(frame, decoded=decoded)
         self._load_frame_extras()
         # The neighbours are decoded once this frame is on screen (framePainted): on a busy
         # machine their decoding would compete with the frame the annotator is waiting for.
@@ -587,10 +609,9 @@ class MainWindow(QMainWindow):
             return
         frame = self.project.frame(self.frame_id)
         people = self._read_people(frame.id)
-        self.session.open_frame(frame.id, people)
         flags = self._flags(frame.id)
         self.canvas.frame = frame
-        self.canvas.set_people(people, flags)
+        self.session.reload_frame(people, flags)
         self._load_frame_extras()
         self.owners.people_model.set_people(self.canvas.people, flags, self.canvas.colours)
         self.notes_model.set_frame(frame.id, {p.id: n + 1 for n, p in enumerate(people)})
@@ -671,12 +692,9 @@ class MainWindow(QMainWindow):
     def apply(self, edit: Edit) -> Applied | None:
         """Apply an edit through the store; a refusal goes to the status bar, any other error
         to a message box. Returns what the store did, or None."""
-        if self.project.read_only:
-            self._message(f"read-only: {self.project.read_only_reason}")
-            return None
-        if self.canvas.showing_theirs and not isinstance(edit, (AddNote, SetFrameState)):
-            self._message(f"showing {self.canvas.theirs_name}'s version, which is not edited "
-                          "here: B goes back to mine")
+        refused = self.session.refuses(edit)  # read-only, or the reviewer's version shown
+        if refused:
+            self._message(refused)
             return None
         try:
             done = self.project.apply(edit, seen=self._seen)
@@ -712,131 +730,12 @@ class MainWindow(QMainWindow):
         return self.frame_id, self.canvas.selected_joints, self.canvas.selected_person
 
     def give_to_person(self, target: int) -> None:
-        """Give the selected joint(s) to person ``target``; the selection follows them."""
-        frame_id, joints, _ = self._selection()
-        if frame_id is None or not joints:
-            self._message("select a joint first (click it on the Canvas)")
-            return
-        edits = [ReassignJoint(frame_id, p, j, target) for p, j in joints if p != target]
-        if not edits:
-            self._message(f"the selected joint already belongs to "
-                          f"{self.session.names.person(target)}")
-            return
-        # The group's summary is its edits' (ids and joint indices): the Ledger names them.
-        edit: Edit = edits[0] if len(edits) == 1 else EditGroup(frame_id, tuple(edits))
-        swaps = swap_warning(self.canvas.people, joints, target, self.skeleton)
-        if self.apply(edit) is not None:
-            if swaps:
-                self._message(f"swapped: {swaps.split(': ', 1)[0]}, so the two were exchanged "
-                              "(Ctrl+Z takes it back)")
-            self.canvas.select_joints([(target, e.joint) for e in edits])
-
-    def give_to_number(self, number: int) -> None:
-        people = self.canvas.people
-        if not 1 <= number <= len(people):
-            self._message(f"there is no person {number} in this frame")
-            return
-        self.give_to_person(people[number - 1].id)
-
-    def give_to_best(self) -> None:
-        best = None if self.owner_ranking is None else self.owner_ranking.best
-        if best is None:
-            self._message("no suggestion for the selection")
-            return
-        self.give_to_person(best.person_id)
-
-    def set_visibility(self, v: int) -> None:
-        frame_id, joints, _ = self._selection()
-        if frame_id is None or not joints:
-            self._message("select a joint first")
-            return
-        edits = [SetVisibility(frame_id, p, j, v) for p, j in joints]
-        word = _VISIBILITY_WORD[v]
-        edit: Edit = edits[0] if len(edits) == 1 else EditGroup(
-            frame_id, tuple(edits), f"mark {count(len(edits), 'joint')} {word}")
-        self.apply(edit)
-
-    def place_joint(self) -> None:
-        frame_id, _, _ = self._selection()
-        joint = self.canvas.selected_joint
-        xy = self.canvas.pointer_image_position()
-        if frame_id is None or joint is None:
-            self._message("select a joint first (Tab walks a person's joints)")
-            return
-        if xy is None:
-            self._message("point at the place on the Canvas, then press P")
-            return
-        self.apply(MoveJoint(frame_id, joint[0], joint[1], round(xy[0], 2), round(xy[1], 2)))
-
-    def new_person(self) -> None:
-        frame_id, joints, _ = self._selection()
-        if frame_id is None:
-            return
-        if not joints:
-            done = self.apply(NewPerson(frame_id))
-            if done is not None:
-                self.canvas.select_person(done.edit.person_id)  # type: ignore[attr-defined]
-            return
-        self.split_person()
-
-    def split_person(self) -> None:
-        frame_id, joints, _ = self._selection()
-        if frame_id is None or not joints:
-            self._message("select the joints to split off (Ctrl+click adds joints)")
-            return
-        owners = {p for p, _ in joints}
-        if len(owners) != 1:
-            self._message("the selected joints belong to different people; select joints of "
-                          "one person")
-            return
-        pid = owners.pop()
-        done = self.apply(SplitPerson(frame_id, pid, tuple(j for _, j in joints)))
-        if done is not None:
-            new_id = done.edit.new_person_id  # type: ignore[attr-defined]
-            for n, (_, j) in enumerate(joints):
-                self.canvas.select_joint(new_id, j, add=n > 0)
-
-    def swap_sides(self) -> None:
-        frame_id, _, pid = self._selection()
-        if frame_id is None or pid is None:
-            self._message("select a person first")
-            return
-        self.apply(SwapSides(frame_id, pid))
-
-    def start_merge(self) -> None:
-        frame_id, _, pid = self._selection()
-        if frame_id is None or pid is None:
-            self._message("select the person to keep first, then press M")
-            return
-        self.canvas.set_pick_mode("merge")
-        self._message(f"merge: click the person (on the Canvas or in Owners) to merge into "
-                      f"{self.session.names.person(pid, with_id=True)}; Esc cancels", 0)
+        """Give the selected joint(s) to person ``target`` (the session's intent)."""
+        self.session.editing.give_to(target)
 
     def _merge_picked(self, other: int) -> None:
-        frame_id, _, keep = self._selection()
         self.statusBar().clearMessage()
-        if frame_id is None or keep is None:
-            return
-        if other == keep:
-            self._message("that is the same person; merge cancelled")
-            return
-        if self.apply(MergePeople(frame_id, keep, other)) is not None:
-            self.canvas.select_person(keep)
-
-    def delete_person(self) -> None:
-        frame_id, _, pid = self._selection()
-        if frame_id is None or pid is None:
-            self._message("select a person first")
-            return
-        self.apply(DeletePerson(frame_id, pid))
-
-    def toggle_state(self, state: FrameState) -> None:
-        if self.frame_id is None:
-            return
-        now = self.project.frame(self.frame_id).state
-        target = FrameState.CORRECTED if now is state else state
-        if self.apply(SetFrameState(self.frame_id, target)) is not None:
-            self._message(f"frame marked {STATE_TEXT[target]}")
+        self.session.editing.merge_with(other)
 
     def _add_note(self, text: str) -> None:
         if self.frame_id is None:
@@ -851,32 +750,11 @@ class MainWindow(QMainWindow):
         self.canvas.setFocus(Qt.FocusReason.OtherFocusReason)
 
     def undo(self) -> None:
-        self._unwind(self.project.undo, "undone", "nothing to undo")
+        self.session.undo()  # shows the frame it changed (the session's show event)
+        self._update_actions()
 
     def redo(self) -> None:
-        self._unwind(self.project.redo, "redone", "nothing to redo")
-
-    def _unwind(self, fn: Callable[[], int | None], done: str, nothing: str) -> None:
-        if self.project.read_only:
-            self._message(f"read-only: {self.project.read_only_reason}")
-            return
-        try:
-            group = fn()
-        except EditRefused as exc:
-            self._message(f"not done: {exc}")
-            return
-        except PosewrightError as exc:
-            self._error(str(exc))
-            return
-        if group is None:
-            self._message(nothing)
-            return
-        entries = [e for e in self.project.history(limit=512) if e.group_id == group]
-        frames = sorted({e.frame_id for e in entries if e.frame_id is not None})
-        if frames and self.frame_id not in frames:
-            self.show_frame(frames[0])  # show the annotator what just changed
-        if entries:
-            self._message(f"{done}: {entries[0].summary.split(': ', 1)[-1]}")
+        self.session.redo()
         self._update_actions()
 
     def _return_to(self, seq: int, whole_project: bool) -> None:
@@ -896,29 +774,23 @@ class MainWindow(QMainWindow):
     # ------------------------------------------------------------------ digits
 
     def _type_digit(self, digit: str) -> None:
-        if not self.canvas.selected_joints:
-            self._message("select a joint first, then press the number of its owner")
-            return
-        self._typed += digit
-        value = int(self._typed)
-        if value * 10 <= len(self.canvas.people) and len(self._typed) < 3:
+        """A tag's digit (the session's rule, :meth:`app.session.editing.Editing.type_digit`);
+        the window's timer waits for the next one."""
+        if self.session.editing.type_digit(digit):
             self._typed_timer.start()
-            self._message(f"give to person {value}\u2026", DIGIT_WAIT_MS)
-            return
-        self._commit_typed()
+        else:
+            self._typed_timer.stop()
 
     def _commit_typed(self) -> None:
         self._typed_timer.stop()
-        typed, self._typed = self._typed, ""
-        if typed:
-            self.give_to_number(int(typed))
+        self.session.editing.commit_typed()
 
     def _cancel_typing(self) -> None:
         self._typed_timer.stop()
-        self._typed = ""
+        self.session.editing.cancel_typing()
 
     def _fit_or_digit(self) -> None:
-        if self._typed:
+        if self.session.editing.typed:
             self._type_digit("0")
         else:
             self.canvas.fit()
@@ -1071,20 +943,9 @@ class MainWindow(QMainWindow):
             self._message(text)
         self._update_timeline()
 
-    def step_person(self, step: int) -> None:
-        people = self.canvas.people
-        if not people:
-            return
-        ids = [p.id for p in people]
-        pid = self.canvas.selected_person
-        i = ids.index(pid) if pid in ids else (-1 if step > 0 else 0)
-        self.canvas.select_person(ids[(i + step) % len(ids)])
-
     def _escape(self) -> None:
         self._cancel_typing()
-        if self.canvas.pick_mode:
-            self.canvas.set_pick_mode(None)
-            self._message("merge cancelled")
+        if self.session.editing.cancel_pick():
             return
         if self.canvas.region_mode:
             self.canvas.region_escape()
@@ -1093,35 +954,16 @@ class MainWindow(QMainWindow):
 
     def _owner_person_chosen(self, pid: int) -> None:
         if self.canvas.pick_mode == "merge":
-            self.canvas.set_pick_mode(None)
-            self._merge_picked(pid)
-            return
-        if pid != self.canvas.selected_person or self.canvas.selected_joints:
-            self.canvas.select_person(pid)
+            self.statusBar().clearMessage()
+        self.session.editing.choose_person(pid)
 
     def _selection_changed(self) -> None:
         pid = self.canvas.selected_person
-        joint = self.canvas.selected_joint
         self.owners.show_person(pid)
-        ranking = None
-        if joint is not None and self.frame_id is not None and not self.canvas.showing_theirs:
-            try:
-                ranking = rank_owners(self.canvas.people, joint[0], joint[1], self.skeleton,
-                                      self._frame_maps())
-            except Exception:  # a ranking failure must not stop the annotator
-                log.exception("ranking candidate owners failed")
-        self.owner_ranking = ranking if ranking is not None and ranking.owner is not None else None
-        self.canvas.set_owners(self.owner_ranking)
-        if self.owner_ranking is None or len(self.canvas.selected_joints) != 1:
-            self.owners.note.setText("Select a joint to see who it could belong to."
-                                     if joint is None else "")
-        else:
-            self.owners.note.setText(
-                f"<b>{html.escape(self.owner_ranking.verdict)}</b><br>"
-                f"<span style='color:#555'>{html.escape(FIT_MEANING)}; click a row "
-                "beside the joint or press its tag number to give the joint</span>")
-        text = self._selection_text()
-        differs = self._difference_text()
+        self.canvas.set_owners(self.session.rank_owners(self._frame_maps))
+        self.owners.note.setText(owners_note(self.session))
+        text = selection_text(self.session)
+        differs = difference_text(self.session)
         if differs:
             text += f"<br><span style='color:#8a4b00'><b>differs</b> \u2014 {differs}</span>"
         self.owners.selection.setText(text)
@@ -1153,20 +995,8 @@ class MainWindow(QMainWindow):
             return
         if stop.frame_id != self.frame_id:
             self.show_frame(stop.frame_id)
-        if stop.person_id is not None and self.canvas.person(stop.person_id) is not None:
-            joints = [j for j in stop.joints
-                      if self.canvas.person(stop.person_id).keypoints[j, 2] > 0]
-            if joints:
-                self.canvas.select_joints([(stop.person_id, j) for j in joints])
-            else:
-                self.canvas.select_person(stop.person_id)
-        else:  # a frame's group of findings: what they are about is marked, not selected
-            self.canvas.select_person(None)
-        stops = self.session.stops(stop.frame_id)
-        keys = [s.key for s in stops]
-        where = (f"\u00b7 stop {keys.index(stop.key) + 1} of {len(stops)}" if stop.key in keys
-                 else "")
-        self.canvas.show_stop(stop, where)
+        self.session.select_stop(stop)
+        self.canvas.show_stop(stop, self.session.stop_place(stop))
         self._update_actions()
         self._update_status()
         self._read_ahead(stop.frame_id)
@@ -1201,61 +1031,10 @@ class MainWindow(QMainWindow):
         self.maps_shelf.ahead(nxt, partial(_usable_maps, str(where[0]),
                                            self.project.frame(nxt), self.skeleton))
 
-    def _selection_text(self) -> str:
-        pid = self.canvas.selected_person
-        if pid is None:
-            return "Nothing selected."
-        names = self.session.names
-        person = self.canvas.person(pid)
-        head = f"<b>{names.person(pid, with_id=True)}</b>" + (
-            "" if names.tag(pid) is not None or person is not None
-            else " (not in the version shown)")
-        joints = self.canvas.selected_joints
-        if not joints or person is None:
-            labelled = 0 if person is None else person.num_labelled
-            return f"{head}: {count(labelled, 'labelled joint')}"
-        if len(joints) > 1:
-            return f"{head}: {count(len(joints), 'joint')} selected"
-        j = joints[0][1]
-        x, y, v = person.keypoints[j]
-        name = names.joint(j)
-        if not np.isfinite([x, y]).all():
-            return f"{head} \u00b7 {name}: not placed (P places it at the pointer)"
-        score = person.scores[j]
-        extra = f", model score {score:.2f}" if np.isfinite(score) else ""
-        flagged = j in self.canvas.flags.get(pid, ()) or \
-            WHOLE_PERSON in self.canvas.flags.get(pid, ())
-        flag = ", <b>flagged by triage</b>" if flagged else ""
-        return (f"{head} \u00b7 {name} \u00b7 {_VISIBILITY_WORD[int(v)]} at ({x:.1f}, {y:.1f})"
-                f"{extra}, by {person.sources[j] or 'unknown'}{flag}")
-
-    def _difference_text(self) -> str:
-        """What mine and the reviewer's version say about the selection ("" if they agree)."""
-        joint = self.canvas.selected_joint
-        pid = self.canvas.selected_person
-        if self.dispute is None or pid is None:
-            return ""
-        if joint is not None:
-            found = self.dispute.joint(*joint)
-            if found is not None:
-                return describe_difference(found[1], found[0].reviewer)
-            return ""
-        person = self.dispute.person(pid)
-        if person is None:
-            return ""
-        if person.alternative.kind == "deleted-there":
-            return f"{person.reviewer} deleted this person; it was edited here since"
-        if person.alternative.kind == "deleted-here":
-            return f"deleted here; {person.reviewer} kept editing this person"
-        n = len(person.joints)
-        return f"{count(n, 'joint')} {plural(n, 'differs', 'differ')} from {person.reviewer}'s"
-
     # ------------------------------------------------------------------ ignore regions
 
     def _toggle_region_mode(self) -> None:
         on = self.actions_by_name["region_mode"].isChecked()
-        if on and self.canvas.showing_theirs:
-            self.canvas.show_theirs(False)
         self._cancel_typing()
         self.canvas.set_region_mode(on)
         if on:
@@ -1270,9 +1049,7 @@ class MainWindow(QMainWindow):
 
     def _toggle_theirs(self) -> None:
         want = self.actions_by_name["show_theirs"].isChecked()
-        if want and self.canvas.region_mode:
-            self.canvas.set_region_mode(False)
-        shown = self.canvas.show_theirs(want)
+        shown = self.canvas.show_theirs(want)  # leaves region mode (the view's rule)
         if want and not shown:
             self._message("this frame has no reviewer's version to show")
         self.owners.people_model.set_people(self.canvas.people, self.canvas.flags,
@@ -1280,145 +1057,12 @@ class MainWindow(QMainWindow):
         self._selection_changed()
         self._update_strips()
 
-    def step_difference(self, step: int) -> None:
-        """Select the next (1) or previous (-1) joint where ours and theirs differ."""
-        if self.dispute is None:
-            self._message("no differences to walk in this frame")
-            return
-        target = step_difference(self.dispute.joints, self.canvas.selected_joint, step)
-        if target is not None:
-            self._select_difference(target)
-
-    def _select_difference(self, target: tuple[int, int]) -> None:
-        """Select a differing joint and bring it into view (ours, or theirs if ours has no
-        position for it)."""
-        self.canvas.select_joint(*target)
-        marks = self.canvas.marks
-        person = self.canvas.person(target[0])
-        xy = None
-        if person is not None and np.isfinite(person.keypoints[target[1], :2]).all():
-            xy = tuple(person.keypoints[target[1], :2])
-        elif marks.get(target) is not None:
-            xy = marks[target]
-        if xy is not None:
-            self.canvas.ensure_visible(*xy)
-
-    def _settling_scope(self, scope: str) -> tuple[int, int | None, int | None, str] | None:
-        """The frame, person and joint an action settles, and how to name them."""
-        if self.frame_id is None or self.dispute is None:
-            self._message("this frame has no differences with a reviewer's version")
-            return None
-        if scope == "joint":
-            joint = self.canvas.selected_joint
-            if joint is None or self.dispute.joint(*joint) is None:
-                self._message("select a joint that differs first (J walks them)")
-                return None
-            return self.frame_id, joint[0], joint[1], \
-                self.session.names.whose(joint[0], joint[1])
-        if scope == "person":
-            pid = self.canvas.selected_person
-            if pid is None or self.dispute.person(pid) is None:
-                self._message("select a person whose joints differ first")
-                return None
-            return self.frame_id, pid, None, self.session.names.person(pid, with_id=True)
-        return self.frame_id, None, None, "the whole frame"
-
-    def take_theirs(self, scope: str) -> None:
-        """Take the reviewer's version of the selected joint, person, or the frame: one
-        edit, one undo step."""
-        from app.review.settle import take_theirs
-
-        found = self._settling_scope(scope)
-        if found is None:
-            return
-        fid, pid, joint, what = found
-        who, was = self.dispute.who if self.dispute else "", self._current_difference()
-        ok, _ = self._attempt(lambda: take_theirs(self.project, fid, pid, joint))
-        if ok:
-            self._after_settling(was, f"took {who}'s version of {what} (Ctrl+Z takes it back)")
-
-    def keep_ours(self, scope: str) -> None:
-        """Keep our version of the selected joint, person, or the frame (the labels stay;
-        the choice is one undo step)."""
-        from app.review.settle import keep_ours
-
-        found = self._settling_scope(scope)
-        if found is None:
-            return
-        fid, pid, joint, what = found
-        was = self._current_difference()
-        ok, settled = self._attempt(lambda: keep_ours(self.project, fid, pid, joint))
-        if ok:
-            self._after_settling(was, f"kept mine for {what} ({count(settled, 'joint')}; "
-                                      "Ctrl+Z takes it back)")
-
-    def _current_difference(self) -> tuple[int, int] | None:
-        joint = self.canvas.selected_joint
-        if joint is None and self.dispute is not None:
-            pid = self.canvas.selected_person
-            return next((pj for pj in self.dispute.joints if pj[0] == pid), None)
-        return joint
-
-    def _after_settling(self, was: tuple[int, int] | None, said: str) -> None:
-        """After a take or a keep (the frame has reloaded): select the next open difference,
-        or say that the frame can be settled."""
-        d = self.dispute
-        if d is None:
-            self._message(f"{said}; no differences left: Shift+Return settles the frame", 10000)
-            return
-        self._message(said)
-        joint = self.canvas.selected_joint
-        if joint is not None and d.joint(*joint) is not None:
-            return
-        self._select_difference(self._following(was, d.joints))
-
-    @staticmethod
-    def _following(was: tuple[int, int] | None,
-                   joints: tuple[tuple[int, int], ...]) -> tuple[int, int]:
-        """The first open difference after ``was`` in walking order (wrapping around)."""
-        if was is not None:
-            later = [pj for pj in joints if pj > was]
-            if later:
-                return later[0]
-        return joints[0]
-
-    def settle(self) -> None:
-        """End the dispute: the frame becomes corrected (undo makes it disputed again)."""
-        from app.review.settle import settle_frame
-
-        frame = self.canvas.frame
-        if frame is None or self.frame_id is None:
-            return
-        if frame.state is not FrameState.DISPUTED:
-            self._message("this frame is not disputed")
-            return
-        left = len(self.dispute.joints) if self.dispute is not None else 0
-        fid = self.frame_id
-        ok, _ = self._attempt(lambda: settle_frame(self.project, fid))
-        if ok:
-            self._message("settled: the frame is corrected" + (
-                f"; {count(left, 'open difference')} {plural(left, 'keeps', 'keep')} mine"
-                if left else "")
-                + " (Ctrl+Z takes it back)")
-
     # ------------------------------------------------------------------ reviewing a packet
 
     def decide(self, decision: str) -> None:
-        """Record the reviewer's decision on the frame; the same decision again withdraws
-        it."""
-        from app.review.review import set_decision
-
-        if not self.review_mode or self.frame_id is None:
-            return
-        fid = self.frame_id
-        now = self._decision()
-        value = None if now == decision else decision
-        ok, _ = self._attempt(lambda: set_decision(self.project, fid, value))
-        if ok:
-            self._message(f"frame {fid}: " + (
-                f"{DECISION_TEXT[decision]} (the same key again withdraws it)" if value
-                else "decision withdrawn"))
-        self._update_review_actions()
+        """Record the reviewer's decision on the frame (the session's), then show it."""
+        self.session.decide(decision)
+        self._update_actions()
         self._update_status()
 
     def _return_packet(self) -> None:
@@ -1490,141 +1134,42 @@ class MainWindow(QMainWindow):
         self._update_actions()
 
     def _update_actions(self) -> None:
-        a = self.actions_by_name
-        editable = not self.project.read_only and self.frame_id is not None
-        joints = bool(self.canvas.selected_joints)
-        person = self.canvas.selected_person is not None
-        for n in range(1, 10):
-            a[f"give_{n}"].setEnabled(editable and joints)
-        for name in ("give_best", "mark_visible", "mark_occluded", "mark_unlabeled",
-                     "place_joint", "split_person"):
-            a[name].setEnabled(editable and joints)
-        a["give_best"].setEnabled(editable and joints and self.owner_ranking is not None
-                                  and self.owner_ranking.best is not None)
-        for name in ("next_finding", "prev_finding"):
-            a[name].setEnabled(self.frame_id is not None)
-        stop = self.session.current
-        here = stop is not None and stop.frame_id == self.frame_id
-        a["accept_fix"].setEnabled(editable and here and stop.fix is not None)
-        a["dismiss_finding"].setEnabled(editable and here and bool(stop.findings))
-        a["new_person"].setEnabled(editable)
-        for name in ("swap_sides", "merge_people", "delete_person"):
-            a[name].setEnabled(editable and person)
-        for name in ("mark_disputed", "sign_off", "write_note"):
-            a[name].setEnabled(editable)
-        writable = not self.project.read_only
-        a["undo"].setEnabled(writable and self.project.can_undo())
-        a["redo"].setEnabled(writable and self.project.can_redo())
-        for name in ("import_labels", "import_maps", "run_triage"):
-            a[name].setEnabled(writable)
-        main = writable and not self.review_mode
-        for name in ("add_images", "add_video", "prelabel", "merge_packet"):
-            a[name].setEnabled(main)
-        a["export_packet"].setEnabled(not self.review_mode and bool(self.worklist_model
-                                                                    .total()))
-        a["region_mode"].setEnabled(self.frame_id is not None)
-        a["region_mode"].setChecked(self.canvas.region_mode)
-        self._update_settling_actions()
-        self._update_review_actions()
-
-    def _update_settling_actions(self) -> None:
-        a = self.actions_by_name
-        d = self.dispute
-        writable = not self.project.read_only
-        joint = self.canvas.selected_joint
-        pid = self.canvas.selected_person
-        a["show_theirs"].setEnabled(self.canvas.has_theirs)
-        a["show_theirs"].setChecked(self.canvas.showing_theirs)
-        for name in ("next_difference", "prev_difference"):
-            a[name].setEnabled(d is not None)
-        on_joint = d is not None and joint is not None and d.joint(*joint) is not None
-        on_person = d is not None and pid is not None and d.person(pid) is not None
-        for side in ("take_theirs", "keep_ours"):
-            a[f"{side}_joint"].setEnabled(writable and on_joint)
-            a[f"{side}_person"].setEnabled(writable and on_person)
-            a[f"{side}_frame"].setEnabled(writable and d is not None)
+        """Enable the actions and set the toggles as the session's rules say
+        (:func:`app.session.actions.action_states`)."""
+        ranking = self.session.owner_ranking
         frame = self.canvas.frame
-        a["settle_frame"].setEnabled(writable and not self.review_mode and frame is not None
-                                     and frame.state is FrameState.DISPUTED)
-
-    def _update_review_actions(self) -> None:
+        states = action_states(self.session, Circumstances(
+            read_only=self.project.read_only, review=self.review_mode,
+            can_undo=not self.project.read_only and self.project.can_undo(),
+            can_redo=not self.project.read_only and self.project.can_redo(),
+            has_frames=bool(self.worklist_model.total()),
+            best_owner=ranking is not None and ranking.best is not None,
+            frame_state=frame.state if frame is not None and self.frame_id is not None
+            else None,
+            decision=self._decision()))
         a = self.actions_by_name
-        decided = self._decision()
-        for name, value in (("decide_agree", "looks-right"), ("decide_needs_change", "query"),
-                            ("decide_signed_off", "ready")):
-            a[name].setEnabled(self.review_mode and not self.project.read_only
-                               and self.frame_id is not None)
-            a[name].setChecked(decided == value)
-        a["return_packet"].setEnabled(self.review_mode)
-        a["show_blurred"].setEnabled(self.review_mode)
+        for name, on in states.enabled.items():
+            a[name].setEnabled(on)
+        for name, on in states.checked.items():
+            a[name].setChecked(on)
 
     def _decision(self) -> str | None:
         """The reviewer's decision on the frame shown (review mode), else None."""
-        if not self.review_mode or self.frame_id is None:
-            return None
-        from app.review.review import decisions
-
-        made = decisions(self.project).get(self.frame_id)
-        return made.decision if made is not None else None
+        return self.session.decision()
 
     def _update_strips(self) -> None:
+        """The strips over the Canvas say what the session says (:mod:`app.session.status`)."""
         frame = self.canvas.frame
         if self.review_mode and frame is not None:
-            decided = self._decision()
-            word = f"<b>{DECISION_TEXT[decided]}</b>" if decided else "none yet"
             packet = self.project.folder.name.removesuffix(".review") + ".zip"
-            self.strips["review"].say(
-                f"<b>Reviewing</b> {packet} \u00b7 decision: {word}",
-                f"Reviewing {packet}: your decision on this frame is "
-                f"{DECISION_TEXT[decided] if decided else 'none yet'}. Ctrl+1 looks right, "
-                "Ctrl+2 queries it, Ctrl+3 makes it ready for training; the same key again "
-                "withdraws")
+            self.strips["review"].say(*review_strip(packet, self._decision()))
         else:
             self.strips["review"].say("")
-        self.strips["dispute"].say(*self._dispute_strip_text())
-        self.strips["regions"].say(self._region_strip_text())
-
-    def _dispute_strip_text(self) -> tuple[str, str]:
-        """The dispute strip's one short line, and the full sentence for its tooltip (the
-        keys are on the strip's buttons, so the line need not say them)."""
-        frame = self.canvas.frame
-        if self.review_mode or frame is None or frame.state is not FrameState.DISPUTED:
-            return "", ""
-        d = self.dispute
-        if d is None:
-            return ("<b>Disputed</b> \u00b7 no open differences \u00b7 Shift+Return settles it",
-                    "No open differences with a reviewer's version: Shift+Return settles the "
-                    "frame (marks it corrected)")
-        joints, people = len(d.joints), len(d.people)
-        if self.canvas.showing_theirs:
-            return (f"<b>{d.who}'s version</b> (read-only) \u00b7 squares: "
-                    f"{count(joints, 'joint')} that {plural(joints, 'differs', 'differ')} "
-                    "\u00b7 dashed lines lead to mine",
-                    f"Showing {d.who}'s version (read-only): squares mark "
-                    f"{count(joints, 'joint')} that {plural(joints, 'differs', 'differ')}; "
-                    "dashed lines lead to mine. A takes the reviewer's, K keeps mine, "
-                    "B shows mine")
-        return (f"<b>Disputed</b> \u00b7 {d.who} differs on {count(joints, 'joint')} of "
-                f"{count(people, 'person')} \u00b7 squares: mine, dashed lines: {d.who}'s",
-                f"{d.who}'s review differs on {count(joints, 'joint')} of "
-                f"{count(people, 'person')}: white squares mark mine, dashed lines lead to "
-                f"{d.who}'s. A takes the reviewer's, K keeps mine (Shift: the person, "
-                "Ctrl+Shift: the frame)")
-
-    def _region_strip_text(self) -> str:
-        if not self.canvas.region_mode:
-            return ""
-        held = f"{count(len(self.canvas.regions), 'ignore regions')} in this frame"
-        if self.canvas.drafting:
-            return ("<b>Drawing a polygon</b>: click the next corner \u00b7 Return or a double "
-                    "click closes it \u00b7 Backspace takes back a corner \u00b7 Esc cancels")
-        rid = self.canvas.selected_region
-        if rid is not None:
-            return (f"<b>Region {rid}</b> selected: drag a corner to reshape it, drag inside "
-                    "to move it \u00b7 Del deletes it \u00b7 Esc lets go \u00b7 " + held)
-        return ("<b>Region mode</b>: drag a rectangle, or click the corners of a polygon "
-                "\u00b7 click a region to select it \u00b7 training ignores these areas "
-                "\u00b7 " + held)
+        self.strips["dispute"].say(*dispute_strip(
+            self.session, frame.state if frame is not None else None, self.review_mode))
+        c = self.canvas
+        self.strips["regions"].say(region_strip(c.region_mode, len(c.regions), c.drafting,
+                                                c.selected_region))
 
     def _update_status(self) -> None:
         shown = self.worklist_model.rowCount()
@@ -1642,20 +1187,14 @@ class MainWindow(QMainWindow):
             self.status_frame.setToolTip(
                 f"{count(shown, 'frames')} shown by the Worklist filters" if shown != total
                 else "")
-        regions = len(self.canvas.regions)
-        self.status_people.setText(count(len(self.canvas.ours), "people") + (
-            f" \u00b7 {count(regions, 'ignore regions')}" if regions else ""))
-        flagged = sum(1 for v in self.canvas.flags.values() if v)
+        self.status_people.setText(people_text(len(self.session.people),
+                                               len(self.canvas.regions)))
         stops = None if self.frame_id is None else self.session.known_stops(self.frame_id)
-        self.status_flags.setText((f"flags on {count(flagged, 'people')}" if flagged
-                                   else "no flags")
-                                  + ("" if stops is None else _stops_text(stops)))
+        self.status_flags.setText(flags_text(self.session.view.flags, stops))
         frame = self.canvas.frame
-        state = STATE_TEXT[frame.state] if frame is not None else ""
-        if self.review_mode and frame is not None:
-            decided = self._decision()
-            state += f" \u00b7 decision: {DECISION_TEXT[decided] if decided else 'none'}"
-        self.status_state.setText(state)
+        self.status_state.setText(state_text(
+            frame.state if frame is not None else None, self.review_mode,
+            self._decision() if self.review_mode and frame is not None else None))
         self._update_strips()
         self.status_author.setText(f"author: {self.project.author}")
         self._update_zoom()
@@ -2015,13 +1554,3 @@ def keep_open(window: MainWindow) -> None:
     window.destroyed.connect(lambda *_: _OPEN_WINDOWS.discard(window))
     window.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
 
-
-def _stops_text(stops: list) -> str:
-    """The frame's open findings for the status bar, and the walk's stops when findings are
-    grouped (a frame's hidden-joint and invented-spot fixes are one stop), so the count of
-    findings and the card's "stop 4 of 11" agree."""
-    found = sum(len(s.findings) for s in stops)
-    text = f" \u00b7 {count(found, 'open findings')}"
-    if len(stops) != found:
-        text += f" at {count(len(stops), 'stops')}"
-    return text

@@ -142,3 +142,92 @@ def test_the_session_gives_the_view_a_real_dispute_and_takes_it_back(labelled, t
     s.read_dispute(labelled.frame(frame.id), s.view.ours)
     assert s.dispute is None and not s.view.showing_theirs
     np.testing.assert_allclose(s.view.person(a.id).keypoints[3, :2], (30.0, 30.0))
+
+
+def test_region_mode_and_the_reviewers_version_exclude_each_other(disputed):
+    """Regions are drawn on ours and the reviewer's version is read-only (our rule, README
+    "Settling a disputed frame"): entering one leaves the other, and says so by events."""
+    v, ours, theirs = disputed
+    heard = _heard(v)
+    v.events.connect("mode", lambda: heard.append(("mode", v.region_mode)))
+    assert v.show_theirs(True)
+    heard.clear()
+    assert v.set_region_mode(True) and v.region_mode and not v.showing_theirs
+    assert v.people == ours
+    assert heard == [("people", [10, 11, 12]), ("dispute", False), ("mode", True)]
+    heard.clear()
+    assert v.show_theirs(True) and not v.region_mode and v.people == theirs
+    assert heard[0] == ("mode", False), "region mode is left first"
+    v.show_theirs(False)
+    assert not v.region_mode, "showing ours again does not bring region mode back"
+
+
+def test_the_settling_keys_walk_take_keep_and_settle_without_a_window(labelled, tmp_path):
+    """Through the real back end: bea and we moved joints 3 and 4 of one person differently.
+    J selects a difference and brings it into view, A takes bea's joint and the selection
+    moves on to the next open one, Ctrl+Shift+K keeps mine for the rest, Shift+Return
+    settles; each step says what it did."""
+    frame = labelled.frames()[0]
+    a = labelled.people(frame.id)[0]
+    packet = send(labelled, tmp_path / "p.zip", frames=[frame.id])
+    for j in (3, 4):
+        labelled.apply(MoveJoint(frame.id, a.id, j, 30.0 + j, 30.0))
+
+    def bea(r):
+        for j in (3, 4):
+            r.apply(MoveJoint(frame.id, a.id, j, 40.0 + j, 40.0))
+
+    merge_packet(labelled, review(packet, bea))
+    s = Session(labelled)
+    said, seen = [], []
+    s.events.connect("message", lambda text, *_: said.append(text))
+    s.events.connect("reveal", lambda x, y: seen.append((x, y)))
+
+    def reread(kind, ids):  # what the window does on the project's change notice
+        if s.frame_id in ids:
+            s.reload_frame()
+            s.read_dispute(labelled.frame(s.frame_id), s.people)
+
+    labelled.subscribe(reread)
+    s.open_frame(frame.id)
+    s.read_dispute(labelled.frame(frame.id), s.people)
+    s.settling.take_theirs("joint")
+    assert said[-1] == "select a joint that differs first (J walks them)"
+    s.settling.step(1)
+    assert s.selection.joint == (a.id, 3) and seen == [(33.0, 30.0)]
+    s.settling.take_theirs("joint")
+    assert said[-1] == f"took bea's version of {s.names.whose(a.id, 3)} (Ctrl+Z takes it back)"
+    assert tuple(labelled.people(frame.id)[0].keypoints[3, :2]) == (43.0, 40.0)
+    assert s.selection.joint == (a.id, 4), "on to the next open difference"
+    s.settling.keep_ours("frame")
+    assert said[-1].endswith("no differences left: Shift+Return settles the frame")
+    assert s.dispute is None
+    s.settling.settle()
+    assert said[-1] == "settled: the frame is corrected (Ctrl+Z takes it back)"
+    assert labelled.frame(frame.id).state is FrameState.CORRECTED
+    s.settling.settle()
+    assert said[-1] == "this frame is not disputed"
+
+
+def test_the_reviewer_decides_and_the_same_decision_again_withdraws_it(labelled, tmp_path):
+    """The reviewer's side of a real packet (our rule, README "Reviewing a packet"): a
+    decision is recorded on the frame shown and read back; the same one again withdraws it;
+    the main project takes no decisions."""
+    from app.review.review import decisions, open_packet
+
+    frame = labelled.frames()[0]
+    packet = send(labelled, tmp_path / "p.zip", frames=[frame.id])
+    main = Session(labelled)
+    main.open_frame(frame.id)
+    assert not main.review and main.decision() is None
+    with open_packet(packet, reviewer="bea") as reviewed:
+        s = Session(reviewed)
+        said = []
+        s.events.connect("message", lambda text, *_: said.append(text))
+        s.open_frame(frame.id)
+        assert s.review and s.decision() is None
+        s.decide("query")
+        assert s.decision() == "query" == decisions(reviewed)[frame.id].decision
+        assert said[-1] == f"frame {frame.id}: queried (the same key again withdraws it)"
+        s.decide("query")
+        assert s.decision() is None and said[-1] == f"frame {frame.id}: decision withdrawn"

@@ -14,6 +14,7 @@ from __future__ import annotations
 import pytest
 
 from app.jobs_analysis import run_triage
+from app.model.edits import MoveJoint
 from app.session import Session
 from tests.analysis.synth import store_duplicate_and_split
 
@@ -266,3 +267,37 @@ def test_dismissing_the_grouped_stop_dismisses_each_of_its_findings(scene):
     assert project.dismissed()[fid] == {"FhFh", "FiFi"}
     assert _v(project, fid, first, 13) == 2, "nothing was changed"
     assert "dismissed as not a problem" in " ".join(said)
+
+
+def test_the_frames_people_are_held_once_by_the_view(scene):
+    """The session's people are the view's (one holding): opening a frame clears the
+    selection and a pick; an edit read again keeps the colours of those still shown."""
+    project, fids, _ = scene
+    s = Session(project)
+    s.selection.select_joint(999, 1)
+    s.view.set_pick("merge")
+    s.open_frame(fids[0])
+    assert s.people is s.view.ours and s.view.people == s.view.ours
+    assert [p.id for p in s.people] == [p.id for p in project.people(fids[0])]
+    assert s.selection.person is None and s.view.pick is None
+    colours = dict(s.view.colours)
+    first = s.people[0]
+    project.apply(MoveJoint(fids[0], first.id, 0, 12.0, 34.0))
+    s.reload_frame()
+    assert tuple(s.view.person(first.id).keypoints[0, :2]) == (12.0, 34.0)
+    assert s.view.colours == colours
+
+
+def test_a_stop_selects_what_it_is_about_and_says_its_place(scene):
+    project, fids, _ = scene
+    run_triage(project)
+    s, _seen, _said = _session(project, [fids[0], fids[1], fids[2]])
+    moved = []
+    s.events.connect("selection", lambda: moved.append(s.selection.person))
+    stop = _follow(s, s.step(1))
+    s.select_stop(stop)
+    assert moved and s.selection.person == stop.person_id
+    labelled = [j for j in stop.joints if s.view.person(stop.person_id).keypoints[j, 2] > 0]
+    assert [j for _, j in s.selection.joints] == labelled
+    n = len(s.stops(stop.frame_id))
+    assert s.stop_place(stop) == f"\u00b7 stop 1 of {n}"

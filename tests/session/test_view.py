@@ -63,3 +63,16 @@ def test_the_session_holds_the_view_the_canvas_shows(project):
 
     s = Session(project)
     assert isinstance(s.view, View) and s.view.people == [] and not s.view.region_mode
+
+
+def test_what_else_is_drawn_is_the_views_and_says_so_once():
+    v = View()
+    heard = []
+    v.events.connect("mode", lambda: heard.append((v.show_unlabeled, v.show_tags)))
+    assert (v.show_unlabeled, v.show_tags, v.show_blurred) == (False, True, True)
+    v.set_shown("unlabeled", True)
+    v.set_shown("unlabeled", True)
+    v.set_shown("tags", False)
+    assert heard == [(True, True), (True, False)], "one event per change"
+    with pytest.raises(ValueError):
+        v.set_shown("faces", True)

@@ -1,5 +1,7 @@
-"""Owners: giving joints to people, visibility, new person, merge, split, swap, delete; each one
-undo step. Driven through the real widgets and keys; checked in the store.
+"""Owners: giving joints to people, visibility, new person, merge; each one undo step. Driven
+through the real widgets and keys; checked in the store. What the intents do (several joints in
+one step, split, a refused merge, swap, delete) is tested on the session without a window, in
+tests/session/test_editing.py; these keep the keys and clicks that reach them.
 
 Data: the synthetic project of tests/ui/conftest.py (invented for these tests). The expected
 results follow the COCO keypoint visibility convention (v = 2 visible, 1 occluded, 0 unlabeled;
@@ -86,31 +88,6 @@ def test_mark_unlabeled_occluded_and_visible_by_keys(qtbot, window, ui_project):
     assert _people(ui_project, fid)[pid].keypoints[14, 2] == 2
 
 
-def test_several_selected_joints_change_in_one_undo_step(qtbot, window, ui_project):
-    pid = _select(qtbot, window, 2, 5)
-    _select(qtbot, window, 2, 6, add=True)
-    _select(qtbot, window, 2, 11, add=True)
-    n = _groups(ui_project)
-    qtbot.keyClick(window.canvas, Qt.Key.Key_O)
-    assert _people(ui_project, window.frame_id)[pid].keypoints[[5, 6, 11], 2].tolist() == [1] * 3
-    assert _groups(ui_project) == n + 1
-    ui_project.undo()
-    assert _people(ui_project, window.frame_id)[pid].keypoints[[5, 6, 11], 2].tolist() == [2] * 3
-
-
-def test_split_selected_joints_into_a_new_person(qtbot, window, ui_project):
-    pid = _select(qtbot, window, 3, 9)
-    _select(qtbot, window, 3, 7, add=True)
-    before = set(_people(ui_project, window.frame_id))
-    qtbot.keyClick(window.canvas, Qt.Key.Key_X)
-    after = _people(ui_project, window.frame_id)
-    (new,) = set(after) - before
-    assert after[new].keypoints[[7, 9], 2].tolist() == [2, 2]
-    assert int(after[new].keypoints[:, 2].astype(bool).sum()) == 2
-    assert after[pid].keypoints[[7, 9], 2].tolist() == [0, 0]
-    assert {p for p, _ in window.canvas.selected_joints} == {new}
-
-
 def test_merge_by_key_then_click(qtbot, window, ui_project):
     fid = window.frame_id
     keep = _select(qtbot, window, 2, 0)
@@ -134,29 +111,6 @@ def test_merge_by_key_then_click(qtbot, window, ui_project):
     np.testing.assert_array_equal(after[keep].keypoints[11:, :2], legs)
     assert (after[keep].keypoints[:, 2] > 0).all()
     assert window.canvas.selected_person == keep
-
-
-def test_refused_merge_changes_nothing_and_says_why(qtbot, window, ui_project):
-    keep = _select(qtbot, window, 1, 0)
-    n = len(ui_project.history())
-    qtbot.keyClick(window.canvas, Qt.Key.Key_M)
-    other = person_id(window, 2)
-    qtbot.mouseClick(window.canvas, Qt.MouseButton.LeftButton, pos=screen_point(window, other, 0))
-    assert len(ui_project.history()) == n
-    assert {keep, other} <= set(_people(ui_project, window.frame_id))
-    assert "both have" in window.status_log.last
-
-
-def test_swap_sides_and_delete_person(qtbot, window, ui_project):
-    fid = window.frame_id
-    pid = _select(qtbot, window, 2, 5)
-    before = _people(ui_project, fid)[pid].keypoints.copy()
-    qtbot.keyClick(window.canvas, Qt.Key.Key_S)
-    after = _people(ui_project, fid)[pid].keypoints
-    np.testing.assert_array_equal(after[5], before[6])
-    np.testing.assert_array_equal(after[6], before[5])
-    qtbot.keyClick(window.canvas, Qt.Key.Key_Delete, Qt.KeyboardModifier.ShiftModifier)
-    assert pid not in _people(ui_project, fid)
 
 
 def test_new_empty_person_then_place_a_joint(qtbot, window, ui_project):
