@@ -23,8 +23,10 @@ The log tells at debug level where a job ran and when the pool was up.
 Workers are started by a fork server (a fresh interpreter that forks them, so the threads
 of the app or of a database pool are never copied) where the system has one, else spawned.
 The fork server imports :data:`PRELOAD` (the batch jobs' modules, hence the app, numpy and
-OpenCV) once, when this process starts its first pool; every worker is then a fork of it
-that imports nothing more, so a later pool is up in a fraction of a second.
+OpenCV) once, when this process starts its first pool (or, for a job of so many items that
+a pool pays whatever they take, as soon as the job starts: :data:`_LEAST_ITEM_SECONDS`);
+every worker is then a fork of it that imports nothing more, so a later pool is up in a
+fraction of a second.
 """
 
 from __future__ import annotations
@@ -82,6 +84,13 @@ PRELOAD_FOR = {
                                       "app.analysis.triage.findings",
                                       "app.analysis.triage.model_evidence"),
 }
+
+#: The least an item of a batch job takes, in seconds, for judging by their number alone,
+#: before any is timed: reading and grouping one demo frame's maps, the cheapest item of the
+#: batch jobs, takes 16 ms on a quiet machine; half that, to be safe. A job of so many items
+#: that they would repay a pool even at this pace has its fork server started at once
+#: (:func:`_start_server`), while its first items are timed, rather than after.
+_LEAST_ITEM_SECONDS = 0.008
 
 #: How long the first items run in this process, timed, before a pool is considered, in
 #: seconds. Two items at least are timed and the first is left out of the estimate when
@@ -209,6 +218,8 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
         here[0](*here[1])
     elif initializer is not None:
         initializer(*initargs)
+    if workers > 1 and total * _LEAST_ITEM_SECONDS > 2.0 * _start_cost():
+        _start_server(fn)  # so many items that a pool pays whatever they take
     start_cost = _start_cost() + (time.perf_counter() - t0)  # workers set up too
     upcoming = iter(items)
     done = 0
@@ -375,6 +386,27 @@ _START_ALONGSIDE = True
 #: When this process started its fork server (``time.perf_counter()``), if it has: the server
 #: lives as long as the process, and is up about :data:`POOL_START_SECONDS` after its start.
 _server_since: float | None = None
+
+
+def _start_server(fn: Callable[..., Any]) -> None:
+    """Start this process's fork server now, with what ``fn`` needs preloaded (see
+    :func:`_context`), unless it is already up; a pool started later forks its workers from
+    it. Spawning the server takes a few milliseconds here; its imports run in its own
+    process, on another core while this one works."""
+    global _server_since
+    if _server_since is not None:
+        return
+    try:
+        context = _context(fn)
+        if context.get_start_method() != "forkserver":
+            return
+        from multiprocessing import forkserver
+
+        forkserver.ensure_running()
+    except Exception as exc:  # the pool tries again when it starts, and says so
+        log.debug("the fork server did not start early: %s", exc)
+        return
+    _server_since = time.perf_counter()
 
 
 def _start_cost() -> float:

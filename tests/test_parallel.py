@@ -225,3 +225,25 @@ def test_items_the_pool_has_not_started_are_taken_back_in_their_place():
     assert _take_back(seven, _cube)
     with pytest.raises(BadInput, match="seven is refused"):  # raised at its turn
         seven[0][0].result()
+
+
+def test_so_many_items_start_the_fork_server_before_any_is_timed(monkeypatch):
+    """Enough items to repay a pool even at the least an item takes: the fork server is
+    asked for at once (its imports run while the first items are timed); fewer: not until
+    the timing says a pool pays (here never: the items are instant)."""
+    from multiprocessing import forkserver
+
+    from app import parallel
+
+    asked = []
+    monkeypatch.setattr(parallel, "_server_since", None)
+    monkeypatch.setattr(forkserver, "ensure_running", lambda: asked.append(1))
+    many = int(2 * parallel.POOL_START_SECONDS / parallel._LEAST_ITEM_SECONDS) + 1
+    assert list(ordered_map(abs, range(many - 1), workers=2)) == list(range(many - 1))
+    assert asked == []
+    assert list(ordered_map(abs, range(many), workers=1)) == list(range(many))
+    assert asked == []
+    assert list(ordered_map(abs, range(many), workers=2)) == list(range(many))
+    assert asked == [1] and parallel._server_since is not None
+    list(ordered_map(abs, range(many), workers=2))
+    assert asked == [1]  # once per process
