@@ -213,13 +213,13 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
     if total is None:
         total = len(items)  # type: ignore[arg-type]
     initargs = tuple(initargs)
+    if workers > 1 and total * _LEAST_ITEM_SECONDS > 2.0 * _start_cost():
+        _start_server(fn)  # so many items that a pool pays whatever they take
     t0 = time.perf_counter()
     if here is not None:
         here[0](*here[1])
     elif initializer is not None:
         initializer(*initargs)
-    if workers > 1 and total * _LEAST_ITEM_SECONDS > 2.0 * _start_cost():
-        _start_server(fn)  # so many items that a pool pays whatever they take
     start_cost = _start_cost() + (time.perf_counter() - t0)  # workers set up too
     upcoming = iter(items)
     done = 0
