@@ -26,8 +26,8 @@ def register(sub: Any, command: Command) -> None:
     ``sub`` is the top-level subparsers object, ``command`` app/cli.py's helper that adds a
     command with ``PROJECT``, ``--author`` and ``-q``.
     """
+    from app.analysis.kinds import ALL_KINDS
     from app.cli import whole_number
-    from app.jobs_findings import ALL_KINDS
 
     p = command("findings", cmd_findings,
                 "each problem triage found, where it is and the fix it proposes, worst first; "

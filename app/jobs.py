@@ -298,8 +298,9 @@ def choose_frames(project: Project,
     frames = project.frames()
     wanted = set(FrameState) if states is None else set(states)
     chosen = [f for f in frames if f.state in wanted]
-    readable = [f for f in chosen if f.status == "ok" and f.width > 0 and f.height > 0]
-    unreadable = [f for f in chosen if f not in readable]
+    readable, unreadable = [], []
+    for f in chosen:  # one pass: a search of the readable list for each frame was quadratic
+        (readable if f.status == "ok" and f.width > 0 and f.height > 0 else unreadable).append(f)
     return ExportChoice(readable, unreadable, len(frames) - len(chosen))
 
 

@@ -202,6 +202,7 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
             yield (str(work / f"{f.id}.npz"), (f.width, f.height), kp, polys, limbs, settings,
                    min_margin)
 
+    out_real = out.resolve()  # once, not for every frame
     try:
         # closing: no worker may still be writing when a failure removes the folder.
         with contextlib.closing(ordered_map(_write_targets, items(), workers, progress,
@@ -209,7 +210,7 @@ def export_targets(project: Project, out_dir: str | Path, settings: TargetSettin
                                             total=len(frames))) as grids:
             for f, grid in zip(frames, grids, strict=True):
                 entries.append({"id": f.id, "file_name": f.file_name,
-                                "image": _relative_to(project.image_path(f), out),
+                                "image": _relative_to(project.image_path(f), out_real, True),
                                 "width": f.width, "height": f.height, "state": f.state.value,
                                 "targets": f"{f.id}.npz", "people": len(people.get(f.id, [])),
                                 "grid": list(grid)})
@@ -273,12 +274,13 @@ def _write_targets(item: tuple[Any, ...]) -> tuple[int, int]:
     return cm.shape[1], cm.shape[2]
 
 
-def _relative_to(path: Path, folder: Path) -> str:
+def _relative_to(path: Path, folder: Path, resolved: bool = False) -> str:
     """``path`` relative to ``folder`` (POSIX separators), so that the manifest names no home
     folder and survives moving the export together with the project; absolute only when no
-    relative path exists (another drive)."""
+    relative path exists (another drive). ``resolved``: ``folder`` is resolved already."""
     try:
-        return Path(os.path.relpath(path.resolve(), folder.resolve())).as_posix()
+        return Path(os.path.relpath(path.resolve(), folder if resolved else folder.resolve())
+                    ).as_posix()
     except ValueError:
         return path.resolve().as_posix()
 

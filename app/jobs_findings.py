@@ -20,8 +20,8 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
+from app.analysis.kinds import ALL_KINDS
 from app.analysis.triage.findings import Finding, frame_findings, labels_digest
-from app.analysis.triage.fixes import KINDS
 from app.analysis.triage.temporal import TIME_KINDS, TrackedFrame, sequence_findings
 from app.errors import BadInput, EditRefused, NotFound
 from app.model.edits import DismissFinding, EditGroup
@@ -36,9 +36,6 @@ log = logging.getLogger(__name__)
 #: Rounds of accepting: after each, the frames that changed are triaged again and the fixes
 #: that are still proposed (those an earlier fix of the round kept back) are accepted next.
 ACCEPT_ROUNDS = 3
-#: Every kind of finding, in the order fixes are accepted: a frame's own kinds, then those
-#: over time.
-ALL_KINDS: tuple[str, ...] = KINDS + TIME_KINDS
 
 
 def findings_of_frame(project: Project, frame: Frame, labels: FrameLabels | None = None,

@@ -12,8 +12,10 @@ One worker runs everything in the calling process, without a pool. With more, th
 items still run here, timed (see :data:`_PROBE_SECONDS`); once the items left would outlast
 starting a pool (see :data:`POOL_START_SECONDS`), a thread of this process starts one of
 ``workers - 1`` processes while this process goes on with the items, and as soon as the pool
-has answered, the items are shared: the pool gets a few at a time, this process computes the
-next ones itself while it waits, and the results still come out in order. So N workers are
+has answered, the items are shared: the pool gets a few at a time (:data:`_POOL_AHEAD` per
+process), this process computes the next ones itself while it waits, and once no item is
+left it takes back those the pool has not started, so nobody waits at the end; the results
+still come out in order. So N workers are
 this process and N - 1 others, starting them costs the job no time of its own, and a job
 that ends before the pool is up simply ends (the pool, once up, is stopped by its thread).
 The log tells at debug level where a job ran and when the pool was up.
@@ -21,8 +23,10 @@ The log tells at debug level where a job ran and when the pool was up.
 Workers are started by a fork server (a fresh interpreter that forks them, so the threads
 of the app or of a database pool are never copied) where the system has one, else spawned.
 The fork server imports :data:`PRELOAD` (the batch jobs' modules, hence the app, numpy and
-OpenCV) once, when this process starts its first pool; every worker is then a fork of it
-that imports nothing more, so a later pool is up in a fraction of a second.
+OpenCV) once, when this process starts its first pool (or, for a job of so many items that
+a pool pays whatever they take, as soon as the job starts: :data:`_LEAST_ITEM_SECONDS`);
+every worker is then a fork of it that imports nothing more, so a later pool is up in a
+fraction of a second.
 """
 
 from __future__ import annotations
@@ -81,6 +85,13 @@ PRELOAD_FOR = {
                                       "app.analysis.triage.model_evidence"),
 }
 
+#: The least an item of a batch job takes, in seconds, for judging by their number alone,
+#: before any is timed: reading and grouping one demo frame's maps, the cheapest item of the
+#: batch jobs, takes 16 ms on a quiet machine; half that, to be safe. A job of so many items
+#: that they would repay a pool even at this pace has its fork server started at once
+#: (:func:`_start_server`), while its first items are timed, rather than after.
+_LEAST_ITEM_SECONDS = 0.008
+
 #: How long the first items run in this process, timed, before a pool is considered, in
 #: seconds. Two items at least are timed and the first is left out of the estimate when
 #: there are more, since it pays for imports and caches the others reuse.
@@ -88,6 +99,20 @@ _PROBE_SECONDS = 0.2
 
 #: How long to wait for a result before looking at the cancel request again, in seconds.
 _POLL_SECONDS = 0.1
+
+#: Items each pool process holds at most (the one it computes and those queued for it). More
+#: than two, so that a process whose turn comes late (another program took the core) still
+#: finds work when it runs again; the items it has not started when the others run out are
+#: taken back and computed here (:func:`_alongside`), so a deep queue costs no wait at the
+#: end. Items and results cross by pickle, a few kilobytes each (0.25 ms for a frame of
+#: triage), so a few more in flight cost nothing measurable.
+_POOL_AHEAD = 4
+
+#: Results this process computes ahead of the next one to yield, per worker, besides twice
+#: the items the pool holds: its own items wait for the pool's earlier ones, so that the
+#: results come out in order, and while the pool works through its queue this process
+#: computes about as many.
+_HERE_AHEAD = 4
 
 
 def default_workers() -> int:
@@ -173,9 +198,11 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
 
     Notes
     -----
-    At most two items per worker are in flight, so a long job holds only a few results that
-    the caller has not taken yet. An error raised by ``fn`` is raised again here, for the
-    first item (in order) that raised it; nothing after it is yielded.
+    At most :data:`_POOL_AHEAD` items per pool process are in flight and
+    :data:`_HERE_AHEAD` per worker computed here ahead of the next result, so a long job
+    holds only a few results that the caller has not taken yet. An error raised by ``fn``
+    is raised again here, for the first item (in order) that raised it; nothing after it is
+    yielded.
 
     Examples
     --------
@@ -186,6 +213,8 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
     if total is None:
         total = len(items)  # type: ignore[arg-type]
     initargs = tuple(initargs)
+    if workers > 1 and total * _LEAST_ITEM_SECONDS > 2.0 * _start_cost():
+        _start_server(fn)  # so many items that a pool pays whatever they take
     t0 = time.perf_counter()
     if here is not None:
         here[0](*here[1])
@@ -265,6 +294,33 @@ def _context(fn: Callable[..., Any] | None = None) -> multiprocessing.context.Ba
     return context
 
 
+def _here(fn: Callable[[T], R], item: T) -> Future[R]:
+    """``fn(item)`` computed in this process, as a finished future (its error kept in it, to
+    be raised again at its turn, after the earlier results)."""
+    here: Future[R] = Future()
+    try:
+        here.set_result(fn(item))
+    except Exception as exc:
+        here.set_exception(exc)
+    return here
+
+
+def _take_back(pending: deque[tuple[Future[R], bool, T]], fn: Callable[[T], R]) -> bool:
+    """Compute here the last item of ``pending`` that the pool has not started, if any (its
+    future is cancelled on the pool first, so it runs once); whether there was one.
+
+    Run when no items are left to take: this process would otherwise wait while the pool
+    works through its queue, so the job ends when the last item does, not :data:`_POOL_AHEAD`
+    items later. The item's place in the order is kept, so the results are the same.
+    """
+    for n in range(len(pending) - 1, -1, -1):
+        future, remote, item = pending[n]
+        if remote and future.cancel():
+            pending[n] = (_here(fn, item), False, item)
+            return True
+    return False
+
+
 class _Pool:
     """A process pool started on a thread of its own, so the caller keeps working meanwhile.
 
@@ -332,6 +388,27 @@ _START_ALONGSIDE = True
 _server_since: float | None = None
 
 
+def _start_server(fn: Callable[..., Any]) -> None:
+    """Start this process's fork server now, with what ``fn`` needs preloaded (see
+    :func:`_context`), unless it is already up; a pool started later forks its workers from
+    it. Spawning the server takes a few milliseconds here; its imports run in its own
+    process, on another core while this one works."""
+    global _server_since
+    if _server_since is not None:
+        return
+    try:
+        context = _context(fn)
+        if context.get_start_method() != "forkserver":
+            return
+        from multiprocessing import forkserver
+
+        forkserver.ensure_running()
+    except Exception as exc:  # the pool tries again when it starts, and says so
+        log.debug("the fork server did not start early: %s", exc)
+        return
+    _server_since = time.perf_counter()
+
+
 def _start_cost() -> float:
     """What a pool started now would take to answer, by what this process has done before:
     the rest of its fork server's start, or at least :data:`_WARM_START_SECONDS`."""
@@ -347,10 +424,14 @@ def _alongside(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: in
     goes on with them while a pool of ``workers - 1`` processes starts, then shares them
     with it, so ``workers`` processes compute in all."""
     pool = _Pool(workers - 1, initializer, initargs, fn)
-    pending: deque[tuple[Future[R], bool]] = deque()  # in the items' order; True: on the pool
+    # In the items' order: the result to come, whether the pool computes it, and the item
+    # (so that an item the pool has not started can be taken back).
+    pending: deque[tuple[Future[R], bool, T]] = deque()
     on_pool = 0
     told = False
-    ahead = 2 * workers  # items taken and not yet yielded, at most (besides the pool's)
+    # Results computed here and not yet yielded, at most: those computed while the pool
+    # works through its queue, twice over, and a few more.
+    ahead = _HERE_AHEAD * workers + 2 * _POOL_AHEAD * (workers - 1)
     exhausted = False
     try:
         while True:
@@ -359,19 +440,19 @@ def _alongside(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: in
                     told = True
                     log.debug("%s: pool of %d up after %.2f s, at item %d of %d", label or "job",
                               pool.workers, pool.seconds, done + len(pending), total)
-                while not exhausted and on_pool < 2 * pool.workers:
+                while not exhausted and on_pool < _POOL_AHEAD * pool.workers:
                     item = next(upcoming, _END)
                     if item is _END:
                         exhausted = True
                         break
-                    pending.append((pool.executor.submit(fn, item), True))
+                    pending.append((pool.executor.submit(fn, item), True, item))
                     on_pool += 1
             elif pool.up.is_set() and not told:
                 told = True
                 log.warning("%s: the worker processes did not start (%s); going on in this one",
                             label or "job", pool.error)
             if pending and pending[0][0].done():
-                head, remote = pending.popleft()
+                head, remote, _ = pending.popleft()
                 on_pool -= remote
                 progress.step(done, total, label)
                 result = head.result()
@@ -385,12 +466,12 @@ def _alongside(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: in
                 if item is _END:
                     exhausted = True
                     continue
-                here: Future[R] = Future()
-                try:
-                    here.set_result(fn(item))  # type: ignore[arg-type]
-                except Exception as exc:  # raised again at its turn, after earlier results
-                    here.set_exception(exc)
-                pending.append((here, False))
+                pending.append((_here(fn, item), False, item))
+                continue
+            if exhausted and on_pool and _take_back(pending, fn):
+                on_pool -= 1
+                if progress.cancelled:
+                    progress.step(done, total, label)  # raises Cancelled
                 continue
             if not pending:
                 return

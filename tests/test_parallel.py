@@ -125,13 +125,18 @@ def test_a_short_job_stays_in_this_process():
     assert set(ordered_map(_pid, range(40), workers=2)) == {os.getpid()}
 
 
-def test_a_long_job_moves_to_the_workers_after_the_first_items(free_pool):
+def test_a_long_job_moves_to_the_workers_after_the_first_items(free_pool, monkeypatch):
     """When a pool pays, the first items (timed here) run in this process and the rest are
     shared between it and the pool's one process (two workers: this one and one more), the
-    pool's first two before any run here, still in order."""
+    pool's first four before any run here, still in order. (Instant items: this process
+    would take back at the end those the pool has not started, which the next test checks,
+    so here it does not.)"""
+    from app import parallel
+
+    monkeypatch.setattr(parallel, "_take_back", lambda pending, fn: False)
     pids = list(ordered_map(_pid, range(20), workers=2))
     assert pids[:2] == [os.getpid()] * 2
-    assert os.getpid() not in pids[2:4]
+    assert os.getpid() not in pids[2:6]
     assert len(set(pids)) == 2
 
 
@@ -191,3 +196,54 @@ def test_a_pool_that_cannot_start_leaves_the_work_here(free_pool, monkeypatch, c
     monkeypatch.setattr(parallel, "_context", refuse)
     assert list(ordered_map(_pid, range(10), workers=2)) == [os.getpid()] * 10
     assert "did not start" in caplog.text
+
+
+def test_items_the_pool_has_not_started_are_taken_back_in_their_place():
+    """Once no item is left to hand out, this process computes the last queued item that
+    the pool has not started (its future cancelled there first, as concurrent.futures
+    allows only before a call starts), in the same place of the order; a running one stays;
+    an error is kept for its turn."""
+    from collections import deque
+    from concurrent.futures import Future
+
+    from app.parallel import _take_back
+
+    running, queued, later = Future(), Future(), Future()
+    assert running.set_running_or_notify_cancel()  # what the pool does when a call starts
+    done_here = Future()
+    done_here.set_result(1)
+    pending = deque([(running, True, 2), (done_here, False, 1), (queued, True, 3),
+                     (later, True, 4)])
+    assert _take_back(pending, _cube)
+    assert later.cancelled() and not queued.cancelled()
+    assert [remote for _, remote, _ in pending] == [True, False, True, False]
+    assert pending[3][0].result() == 64
+    assert _take_back(pending, _cube) and queued.cancelled()
+    assert pending[2][0].result() == 27
+    assert not _take_back(pending, _cube)  # only the running one is on the pool
+    seven = deque([(Future(), True, 7)])
+    assert _take_back(seven, _cube)
+    with pytest.raises(BadInput, match="seven is refused"):  # raised at its turn
+        seven[0][0].result()
+
+
+def test_so_many_items_start_the_fork_server_before_any_is_timed(monkeypatch):
+    """Enough items to repay a pool even at the least an item takes: the fork server is
+    asked for at once (its imports run while the first items are timed); fewer: not until
+    the timing says a pool pays (here never: the items are instant)."""
+    from multiprocessing import forkserver
+
+    from app import parallel
+
+    asked = []
+    monkeypatch.setattr(parallel, "_server_since", None)
+    monkeypatch.setattr(forkserver, "ensure_running", lambda: asked.append(1))
+    many = int(2 * parallel.POOL_START_SECONDS / parallel._LEAST_ITEM_SECONDS) + 1
+    assert list(ordered_map(abs, range(many - 1), workers=2)) == list(range(many - 1))
+    assert asked == []
+    assert list(ordered_map(abs, range(many), workers=1)) == list(range(many))
+    assert asked == []
+    assert list(ordered_map(abs, range(many), workers=2)) == list(range(many))
+    assert asked == [1] and parallel._server_since is not None
+    list(ordered_map(abs, range(many), workers=2))
+    assert asked == [1]  # once per process

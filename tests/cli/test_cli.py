@@ -293,3 +293,15 @@ def test_json_output_is_strict(tmp_path, image_dir, capsys):
     code, out, _ = _run(capsys, "history", proj, "--json")
     (row,) = [r for r in json.loads(out, parse_constant=_refuse) if r["target"] == "person:77"]
     assert code == 0 and row["before"]["extra"]["area"] is None
+
+
+def test_building_the_parser_imports_no_triage():
+    """Every command's start: the parser (``findings --help`` lists the kinds of finding)
+    is built without importing triage or scipy.stats, which took most of a second of every
+    command's start, the batch jobs' included (app/analysis/kinds.py)."""
+    code = ("import sys; from app.cli import build_parser; build_parser(); "
+            "print(sorted(m for m in sys.modules if m.startswith(('app.analysis.triage', "
+            "'scipy.stats', 'app.jobs_findings'))))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True)
+    assert out.stdout.strip() == "[]"

@@ -48,6 +48,7 @@ import numpy as np
 
 from app.analysis.anthropometry import limb_fractions, person_scale, reach_matrix
 from app.analysis.association import find_peaks, group_people
+from app.analysis.kinds import KINDS as _KINDS
 from app.analysis.triage.body import (
     body_scale,
     crossed_sides,
@@ -86,10 +87,9 @@ from app.model.naming import Names, join_words
 from app.model.skeleton import Skeleton
 from app.wording import count
 
-#: The kinds of finding, in the order they are proposed (and accepted) within a frame: first
-#: whole people (duplicates, fragments, phantoms), then sides, then joints, then additions.
-KINDS: tuple[str, ...] = ("duplicate", "split", "phantom", "mirrored", "crossed-sides",
-                          "wrong-owner", "invented", "hidden", "missing-joint", "missed-person")
+#: The kinds of finding, in the order they are proposed (and accepted) within a frame
+#: (named in :mod:`app.analysis.kinds`, which the command line reads without importing this).
+KINDS = _KINDS
 
 #: Body evidence a hypothesis is judged by (triage's geometric and field checks, in log-odds).
 _BODY_KINDS = ("stretched-limb", "short-legs", "tilted-torso", "off-ground", "crossed-sides",

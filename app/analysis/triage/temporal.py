@@ -50,6 +50,7 @@ from typing import Any
 
 import numpy as np
 
+from app.analysis.kinds import TIME_KINDS as _TIME_KINDS
 from app.analysis.similarity import oks_matrix
 from app.analysis.triage.findings import Finding, Fix, FixPreview, _labels, fingerprint, preview
 from app.model.edits import (
@@ -65,9 +66,9 @@ from app.model.naming import Names
 from app.model.skeleton import Skeleton
 from app.wording import count
 
-#: The kinds of finding over time, in the order their fixes are accepted.
-TIME_KINDS: tuple[str, ...] = ("exchanged-tracks", "flipped-stretch", "missing-frames",
-                               "jumping-joint")
+#: The kinds of finding over time, in the order their fixes are accepted (named in
+#: :mod:`app.analysis.kinds`).
+TIME_KINDS = _TIME_KINDS
 #: Exchanged tracks: how much more the exchanged pairing must score than the kept one
 #: (summed OKS of the two people against the two tracks' predicted poses).
 EXCHANGE_GAIN = 0.4
