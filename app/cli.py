@@ -31,7 +31,7 @@ from app.model.naming import Names, ledger_names
 from app.parallel import check_workers
 from app.progress import Progress
 from app.safetext import shown
-from app.wording import count, ledger_text
+from app.wording import count, count_phrase, ledger_text
 
 #: Exit status when the reader of our output went away (128 + SIGPIPE).
 BROKEN_PIPE_STATUS = 141
@@ -145,7 +145,7 @@ def _report_counts(args: argparse.Namespace, stats: dict[str, Any]) -> int:
     if args.json:
         print_json(stats)
     else:
-        print("imported " + ", ".join(count(v, k) for k, v in stats.items()))
+        print("imported " + ", ".join(count_phrase(v, k) for k, v in stats.items()))
     return 0
 
 

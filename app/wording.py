@@ -55,6 +55,29 @@ def count(n: int, noun: str, plural_form: str | None = None) -> str:
     return f"{n} {plural(n, noun, plural_form)}"
 
 
+#: Words that, placed after a noun, describe it rather than name it: in a phrase such as
+#: "frames grouped" or "frames with maps" the FIRST word takes the number.
+_AFTER_NOUN = re.compile(r"^\S+ (?:\S+ed|kept|with\b.*|without\b.*)$")
+
+
+def count_phrase(n: int, phrase: str) -> str:
+    """``n`` and a counted phrase from a job's counts ("frames grouped", "ignore regions"),
+    the number given to the phrase's noun: the first word when the rest describes it, else the
+    last.
+
+    Examples
+    --------
+    >>> count_phrase(480, "frames grouped"), count_phrase(1, "frames with maps")
+    ('480 frames grouped', '1 frame with maps')
+    >>> count_phrase(1, "fields mended"), count_phrase(2, "ignore regions")
+    ('1 field mended', '2 ignore regions')
+    """
+    if _AFTER_NOUN.match(phrase):
+        noun, _, rest = phrase.partition(" ")
+        return f"{count(n, noun)} {rest}"
+    return count(n, phrase)
+
+
 def plural(n: int, noun: str, plural_form: str | None = None) -> str:
     """The form of ``noun`` that goes with the number ``n``, without the number.
 

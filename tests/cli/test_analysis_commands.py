@@ -47,7 +47,11 @@ def test_import_maps_groups_auto_labels_and_keeps_maps(tmp_path, image_dir, maps
             assert all(q.sources[5] == "auto" and np.isfinite(q.scores[5]) for q in people)
             assert p.maps_path(f.id) is not None
     # Importing again adds no people: frames that have people keep them.
+    capsys.readouterr()
     assert main(["import-maps", str(proj), str(folder), "-q"]) == 0
+    line = capsys.readouterr().out
+    assert "frames grouped" in line or "frame grouped" in line
+    assert "groupeds" not in line and "mapss" not in line
     with Project.open(proj) as p:
         assert p.counts()["people"] == sum(len(t) for t in truth.values())
 
