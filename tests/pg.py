@@ -13,6 +13,7 @@ import os
 import shutil
 import subprocess
 import tempfile
+import time
 from pathlib import Path
 from urllib.parse import quote
 
@@ -69,12 +70,35 @@ class Server:
             raise RuntimeError(f"{program} failed: {out.stderr.strip() or out.stdout.strip()}")
         return out.stdout
 
-    def start(self) -> None:
-        self._run("pg_ctl", "-D", str(self.data), "-l", str(self.root / "log"), "-w",
-                  "-o", self._options, "start")
+    def start(self, attempts: int = 3) -> None:
+        """Start the server and wait until it takes connections. Right after an immediate
+        stop, a start on a loaded machine now and then fails before the server writes its
+        PID file; it is tried again (at most ``attempts`` times), and a last failure says
+        what the server's log ends with."""
+        for attempt in range(attempts):
+            try:
+                self._run("pg_ctl", "-D", str(self.data), "-l", str(self.root / "log"), "-w",
+                          "-o", self._options, "start")
+                return
+            except RuntimeError as e:
+                if attempt == attempts - 1:
+                    raise RuntimeError(f"{e}\nserver log ends:\n{self._log_tail()}") from e
+                time.sleep(0.5 * (attempt + 1))
+
+    def _log_tail(self, lines: int = 20) -> str:
+        try:
+            return "\n".join((self.root / "log").read_text().splitlines()[-lines:])
+        except OSError:
+            return "(no log)"
 
     def restart(self, mode: str = "fast") -> None:
-        self._run("pg_ctl", "-D", str(self.data), "-m", mode, "-w", "stop")
+        """Stop the server (``mode`` as pg_ctl's ``-m``) and start it again; a server that
+        has already gone counts as stopped."""
+        try:
+            self._run("pg_ctl", "-D", str(self.data), "-m", mode, "-w", "stop")
+        except RuntimeError as e:
+            if "PID file" not in str(e) and "not running" not in str(e):
+                raise
         self.start()
 
     def stop(self) -> None:
