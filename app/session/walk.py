@@ -29,6 +29,7 @@ from __future__ import annotations
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
+from app.analysis.triage.calibration import PROPOSE_AT
 from app.analysis.triage.findings import Finding, Fix, FixPreview
 from app.model.naming import join_words
 from app.wording import count
@@ -143,7 +144,7 @@ def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
     for f in found:
         grouped = next((g for g in stops if g.group[0] is f), None)
         out.append(grouped or Stop(f.frame_id, f.id, f.person_id, f.joints, f.text, f))
-    return _with_notes(out)
+    return _frame_notes(_with_notes(out))
 
 
 def covered_text(members: Sequence[Finding]) -> str:
@@ -253,6 +254,76 @@ def _with_notes(stops: list[Stop]) -> list[Stop]:
         out.append(Stop(s.frame_id, f"P:{s.key}", s.person_id, joints, text, s.finding,
                         members))
     return out
+
+
+#: A finding without a fix is *weak* below this confidence (a fix of its kind would more
+#: likely not help, :data:`app.analysis.triage.calibration.PROPOSE_AT`).
+WEAK_BELOW = PROPOSE_AT
+
+
+def _frame_notes(stops: list[Stop]) -> list[Stop]:
+    """The frame's notes left without a card of their person's fix (:func:`_with_notes`)
+    cost at most one key together: weak ones (every finding below :data:`WEAK_BELOW`) ride
+    on the frame's last stop with a fix, after its sentence ("also on this frame, no fix:
+    ..."); the others (a missed person's partial body, a sure finding nobody could build a
+    fix for), and the weak ones of a frame without a fix, share one card of notes where the
+    first of them was, when there are two or more. Nothing is dropped: every finding stays
+    on a card (and in the Worklist's counts), and I dismisses a card's findings together.
+
+    The rider's fix is the host's alone; its key says which findings it holds, so a card
+    with a note raised after the walk passed the host is shown again.
+
+    Examples
+    --------
+    >>> from app.analysis.triage.findings import FixPreview
+    >>> def f(i, kind, person, fix=True, sure=0.9):
+    ...     x = Fix(f"give it to person {person + 1}", (), FixPreview()) if fix else None
+    ...     return Finding(i, 1, kind, person, person, (9,), ("left wrist",), f"t{i}", (),
+    ...                    1.0, sure, x, (person,), i)
+    >>> out = group_findings(1, [f("a", "wrong-owner", 1), f("b", "mirrored", 2, False, 0.2),
+    ...                          f("c", "mirrored", 3, False, 0.3)])
+    >>> [(s.key, [m.id for m in s.findings], s.fix.summary) for s in out]
+    [('a|b,c', ['a', 'b', 'c'], 'give it to person 2')]
+    >>> out[0].text
+    'ta; also on this frame, no fix proposed: tb; tc'
+    >>> out = group_findings(1, [f("m", "missed-person", None, False, 1.0),
+    ...                          f("b", "mirrored", 2, False, 0.2)])
+    >>> [(s.key, s.person_id, s.fix, s.text) for s in out]
+    [('N:m,b', None, None, '2 findings without a fix on this frame: tm; tb')]
+    """
+    hosts = [i for i, s in enumerate(stops) if s.fix is not None]
+    loose = [i for i, s in enumerate(stops) if s.fix is None and s.findings]
+    if not loose:
+        return stops
+    riders = [i for i in loose if all(f.confidence < WEAK_BELOW for f in stops[i].findings)
+              ] if hosts else []
+    own = [i for i in loose if i not in riders]
+    if len(own) < 2:
+        own = []
+    changed: dict[int, Stop] = {}
+    if riders:
+        at = hosts[-1]
+        host, extra = stops[at], [stops[i] for i in riders]
+        members = tuple(m for n in extra for m in n.findings)
+        text = host.text + "; also on this frame, no fix proposed: " + _said(extra)
+        changed[at] = Stop(host.frame_id, f"{host.key}|{','.join(m.id for m in members)}",
+                           host.person_id, host.joints, text, host.finding,
+                           host.findings + members)
+    if own:
+        extra = [stops[i] for i in own]
+        members = tuple(m for n in extra for m in n.findings)
+        text = (f"{count(len(members), 'finding')} without a fix on this frame: "
+                + _said(extra, NOTES_SHOWN + 1))
+        changed[own[0]] = Stop(extra[0].frame_id, f"N:{','.join(m.id for m in members)}",
+                               None, (), text, None, members)
+    gone = set(riders) | set(own[1:])
+    return [changed.get(i, s) for i, s in enumerate(stops) if i not in gone]
+
+
+def _said(notes: Sequence[Stop], shown: int = NOTES_SHOWN) -> str:
+    said = [n.text for n in notes[:shown]]
+    more = sum(len(n.findings) for n in notes[shown:])
+    return "; ".join(said) + (f"; and {count(more, 'more finding')}" if more else "")
 
 
 def _joined(findings: Sequence[Finding]) -> Fix | None:
