@@ -33,7 +33,7 @@ from typing import Any
 
 from app.analysis.triage.findings import Finding, labels_digest
 from app.errors import EditRefused, PosewrightError
-from app.jobs_findings import accept_label
+from app.jobs_findings import accept_label, finding_order, time_findings
 from app.model.edits import AddNote, DismissFinding, Edit, EditGroup, SetFrameState
 from app.model.labels import Frame, FrameState, Person
 from app.model.naming import Names
@@ -152,6 +152,9 @@ class Session:
         self._left: set[int] = set()
         #: Frames the walk comes back to after its last: their stops passed stay passed.
         self._revisits: set[int] = set()
+        #: Whether anyone in the project is on a track (None: not read since the labels
+        #: changed); without tracks there are no findings over time to read.
+        self._tracked: bool | None = None
 
     # ------------------------------------------------------------------ frame
 
@@ -349,6 +352,15 @@ class Session:
         stored = self.project.findings(frame_id).get(frame_id)
         if stored is not None and digests.get(frame_id) == labels_digest(labels):
             found = [Finding.from_dict(d) for d in stored]
+            if self._tracked is None:
+                self._tracked = any(p.track is not None for ps in
+                                    self.project.people_by_frame().values() for p in ps)
+            if self._tracked:
+                # Findings over time are not stored (they depend on the frames around):
+                # computed here for this frame alone, as current_findings adds them.
+                over_time = time_findings(self.project, [frame_id]).get(frame_id)
+                if over_time:
+                    found = sorted(found + over_time, key=finding_order)
         else:
             from app.jobs_findings import current_findings
 
@@ -588,6 +600,8 @@ class Session:
             self._fresh.pop(fid, None)
             self._left.discard(fid)
             self.pending.discard(fid)
+        if self._tracked is False:
+            self._tracked = None  # a track may have been set
 
     def findings_changed(self) -> None:
         """Triage ran again: read every frame's stops again, except those the walk holds

@@ -103,6 +103,14 @@ COVERED_KEY = "G:covered"
 #: At most this many people's fixes are written out on the grouped stop's card.
 GROUP_SHOWN = 4
 
+#: Kinds whose fixes place a joint left unlabelled here where the same track's frames around
+#: agree it is (:mod:`app.analysis.triage.temporal`): one joint each, many per frame in a
+#: video; a frame's are one stop (:data:`GAP_KEY`), accepted as one undo step.
+GAP_KINDS = ("joint-gap",)
+
+#: The key of a frame's stop that holds its :data:`GAP_KINDS` fixes.
+GAP_KEY = "G:gaps"
+
 
 def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
     """A frame's findings as stops, worst first; two or more of the :data:`GROUPED_KINDS`
@@ -120,11 +128,12 @@ def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
     ['a', 'G:covered', 'c']
     """
     stops: list[Stop] = []
-    members = tuple(f for f in found if f.kind in GROUPED_KINDS and f.fix is not None)
-    if len(members) >= 2:
-        found = [f for f in found if f not in members or f is members[0]]
-        stops.append(Stop(frame_id, COVERED_KEY, None, (), covered_text(members), None,
-                          members))
+    for key, kinds, say in ((COVERED_KEY, GROUPED_KINDS, covered_text),
+                            (GAP_KEY, GAP_KINDS, gap_text)):
+        members = tuple(f for f in found if f.kind in kinds and f.fix is not None)
+        if len(members) >= 2:
+            found = [f for f in found if f not in members or f is members[0]]
+            stops.append(Stop(frame_id, key, None, (), say(members), None, members))
     by_person: dict[int, list[Finding]] = {}
     for f in found:
         if f.kind in PER_PERSON_KINDS and f.fix is None and f.person_id is not None:
@@ -179,6 +188,33 @@ unlabel): person 2's knees occluded; person 5's left wrist unlabelled"
                                  if more > 0 else ""))
 
 
+def gap_text(members: Sequence[Finding]) -> str:
+    """The sentence of a frame's stop of joints the frames around place: how many, on how
+    many people, and each person's joints by tag and name.
+
+    Examples
+    --------
+    >>> from app.analysis.triage.findings import FixPreview
+    >>> def f(person, joint):
+    ...     return Finding("x", 1, "joint-gap", person, person, (9,), (joint,), "t", (), 1.0,
+    ...                    0.7, Fix("place", (), FixPreview()), (person,), "x")
+    >>> import textwrap
+    >>> print(textwrap.fill(gap_text([f(2, "left wrist"), f(2, "left elbow"),
+    ...                               f(5, "right knee")]), 80))
+    the frames around place 3 joints unlabelled here, of 2 people: person 2's left
+    wrist and left elbow; person 5's right knee
+    """
+    by: dict[int | None, list[str]] = {}
+    for m in members:
+        by.setdefault(m.tag, []).extend(m.joint_names)
+    said = [f"person {tag}'s {join_words(names)}" for tag, names in
+            list(by.items())[:GROUP_SHOWN]]
+    more = sum(len(v) for v in list(by.values())[GROUP_SHOWN:])
+    return (f"the frames around place {count(len(members), 'joint')} unlabelled here, of "
+            f"{count(len(by), 'person', 'people')}: " + "; ".join(said)
+            + (f"; and {count(more, 'more joint')}" if more else ""))
+
+
 def group_action(fix: Fix) -> str:
     """What a grouped stop's fix does, in a few words, from its preview.
 
@@ -190,6 +226,8 @@ def group_action(fix: Fix) -> str:
     """
     p = fix.preview
     parts = []
+    if p.placed:
+        parts.append(f"place {count(len(p.placed), 'joint')}")
     if p.occluded:
         parts.append(f"mark {count(len(p.occluded), 'joint')} occluded")
     if p.unlabeled:

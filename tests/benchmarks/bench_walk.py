@@ -92,8 +92,11 @@ def _wrong_joints(project, truth) -> int:
     return n
 
 
-def walk_demo(folder: Path) -> dict:
-    """Walk the demo in ``folder`` accepting every fix; presses, wrong people, step times."""
+def walk_demo(folder: Path, tracks: bool = False) -> dict:
+    """Walk the demo in ``folder`` accepting every fix; presses, wrong people, step times.
+    With ``tracks`` its people are linked into tracks first (:func:`app.jobs_tracks.
+    link_project`, as ``posewright track link`` does), so the walk also stops at the
+    findings over time (:mod:`app.analysis.triage.temporal`)."""
     from PySide6.QtWidgets import QApplication
 
     from app.demo.calibrate import demo_frames
@@ -109,6 +112,10 @@ def walk_demo(folder: Path) -> dict:
     app = QApplication.instance()
     project = Project.open(folder, author="bench")
     run_triage(project)
+    if tracks:
+        from app.jobs_tracks import link_project
+
+        link_project(project)
     before = _wrong(project, truth)
     training_before = _wrong_training(project, truth)
     joints_before = _wrong_joints(project, truth)
@@ -194,11 +201,19 @@ def _p95(xs: list[float]) -> float:
 def run() -> list[dict]:
     from app.demo.calibrate import demo_folder
 
-    with tempfile.TemporaryDirectory(prefix="posewright-walk-bench-") as tmp:
-        got = walk_demo(demo_folder(Path(tmp), None))
+    out = []
+    for tracks in (False, True):
+        with tempfile.TemporaryDirectory(prefix="posewright-walk-bench-") as tmp:
+            got = walk_demo(demo_folder(Path(tmp), None), tracks)
+        out += _rows(got, "walk, tracks linked" if tracks else "walk")
+    return out
+
+
+def _rows(got: dict, name: str) -> list[dict]:
     fixed = got["before"] - got["after"]
     per = got["presses"] / fixed if fixed > 0 else float("inf")
-    detail = (f"shipped demo: {got['presses']} presses ({got['accepted']} accepts, "
+    detail = (f"shipped demo{' (people linked into tracks first)' if 'tracks' in name else ''}"
+              f": {got['presses']} presses ({got['accepted']} accepts, "
               f"{got['skipped']} skips, the first W), wrong people {got['before']} -> "
               f"{got['after']} (OKS 0.8 against the truth)")
     fixed_training = got["training_before"] - got["training_after"]
@@ -222,28 +237,28 @@ def run() -> list[dict]:
     load = os.getloadavg()[0]
     where = f"load average {load:.1f} on {os.cpu_count()} cores"
     return [
-        row("walk: key presses per wrong person fixed", per, "keys", "<= 2.5", per <= 2.5,
+        row(f"{name}: key presses per wrong person fixed", per, "keys", "<= 2.5", per <= 2.5,
             detail),
-        row("walk: key presses per wrong person fixed, as training sees them", per_training,
+        row(f"{name}: key presses per wrong person fixed, as training sees them", per_training,
             "keys", "<= 2.5", per_training <= 2.5, training_detail),
-        row("walk: key presses per wrong labelled joint fixed", per_joint, "keys", "(none)",
+        row(f"{name}: key presses per wrong labelled joint fixed", per_joint, "keys", "(none)",
             True, joint_detail),
-        row("walk: stops by kind", sum(n for n, *_ in got["by_kind"].values()), "stops",
+        row(f"{name}: stops by kind", sum(n for n, *_ in got["by_kind"].values()), "stops",
             "(none)", True, "what each press after the first did, and in brackets the wrong "
             "people it removed from its frame, strictly (OKS 0.8) / as training sees them: "
             f"{where_presses}"),
-        row("walk: next finding shown, same frame (median wall)", ms["inside"], "ms",
+        row(f"{name}: next finding shown, same frame (median wall)", ms["inside"], "ms",
             "<= 50 ms", ms["inside"] <= 50,
             f"95th percentile {1000 * _p95(got['inside']):.0f} ms over {len(got['inside'])} "
             f"steps (accept or skip: edit committed, Canvas painted); {where}"),
-        row("walk: same frame, CPU time of the step (median)", ms["cpu_inside"], "ms",
+        row(f"{name}: same frame, CPU time of the step (median)", ms["cpu_inside"], "ms",
             "<= 50 ms", ms["cpu_inside"] <= 50,
             "the process's CPU seconds, which a shared machine's load does not inflate"),
-        row("walk: next finding shown, next frame (median wall)", ms["ends"], "ms",
+        row(f"{name}: next finding shown, next frame (median wall)", ms["ends"], "ms",
             "<= 50 ms", ms["ends"] <= 50,
             f"95th percentile {1000 * _p95(got['ends']):.0f} ms over {len(got['ends'])} "
             f"steps; CPU median {ms['cpu_ends']:.0f} ms"),
-        row("walk: changed frame's findings back from the worker (median)", ms["waits"],
+        row(f"{name}: changed frame's findings back from the worker (median)", ms["waits"],
             "ms", "(none)", True,
             f"95th percentile {1000 * _p95(got['waits']):.0f} ms over {len(got['waits'])} "
             f"accepts, counted from the next finding shown; the UI thread is free meanwhile"),
