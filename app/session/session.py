@@ -155,6 +155,10 @@ class Session:
         #: Whether anyone in the project is on a track (None: not read since the labels
         #: changed); without tracks there are no findings over time to read.
         self._tracked: bool | None = None
+        #: Per frame, its findings over time as last computed; they depend on the labels of
+        #: the frames around, so any change of labels forgets them all (triage run again,
+        #: which changes no labels, keeps them).
+        self._over_time: dict[int, list[Finding]] = {}
 
     # ------------------------------------------------------------------ frame
 
@@ -358,7 +362,10 @@ class Session:
             if self._tracked:
                 # Findings over time are not stored (they depend on the frames around):
                 # computed here for this frame alone, as current_findings adds them.
-                over_time = time_findings(self.project, [frame_id]).get(frame_id)
+                if frame_id not in self._over_time:
+                    self._over_time[frame_id] = time_findings(
+                        self.project, [frame_id]).get(frame_id, [])
+                over_time = self._over_time[frame_id]
                 if over_time:
                     found = sorted(found + over_time, key=finding_order)
         else:
@@ -570,6 +577,7 @@ class Session:
         if done is None:
             return None
         self._stops[fid] = kept
+        self._over_time.clear()  # the frames around this one see its new labels
         self._dirty.add(fid)
         self._left.discard(fid)
         self._revision[fid] += 1
@@ -600,6 +608,7 @@ class Session:
             self._fresh.pop(fid, None)
             self._left.discard(fid)
             self.pending.discard(fid)
+        self._over_time.clear()
         if self._tracked is False:
             self._tracked = None  # a track may have been set
 
