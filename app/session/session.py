@@ -159,6 +159,9 @@ class Session:
         #: the frames around, so any change of labels forgets them all (triage run again,
         #: which changes no labels, keeps them).
         self._over_time: dict[int, list[Finding]] = {}
+        #: Raised each time :attr:`_over_time` is forgotten: a read ahead computed before
+        #: is stale.
+        self._over_time_gen = 0
 
     # ------------------------------------------------------------------ frame
 
@@ -479,12 +482,34 @@ class Session:
             if self._revision[frame_id] != token:
                 return None  # edited again before this started: a newer one follows
             try:
-                return self._read_stops(frame_id)
+                stops = self._read_stops(frame_id)
             except Exception:  # the walk goes on without them; the log says why
                 log.exception("computing the findings of frame %s again failed", frame_id)
                 return []
+            self._read_ahead_over_time(frame_id)
+            return stops
 
         self._background(job, partial(self.recomputed, frame_id, token))
+
+    def _forget_over_time(self) -> None:
+        self._over_time.clear()
+        self._over_time_gen += 1
+
+    def _read_ahead_over_time(self, frame_id: int) -> None:
+        """In a project with tracks, compute the findings over time of the frame the walk
+        goes to after ``frame_id`` (on the recompute's worker, so the step that shows that
+        frame does not); dropped if labels change meanwhile."""
+        nxt = self.walk.following(frame_id)
+        if not self._tracked or nxt is None or nxt in self._over_time:
+            return
+        gen = self._over_time_gen
+        try:
+            found = time_findings(self.project, [nxt]).get(nxt, [])
+        except Exception:  # the step computes them itself; the log says why
+            log.exception("reading ahead the findings over time of frame %s failed", nxt)
+            return
+        if gen == self._over_time_gen:
+            self._over_time.setdefault(nxt, found)
 
     def recomputed(self, frame_id: int, token: int, stops: list[Stop] | None) -> bool:
         """A recompute's result, delivered on the session's thread; dropped (False) when the
@@ -577,7 +602,7 @@ class Session:
         if done is None:
             return None
         self._stops[fid] = kept
-        self._over_time.clear()  # the frames around this one see its new labels
+        self._forget_over_time()  # the frames around this one see its new labels
         self._dirty.add(fid)
         self._left.discard(fid)
         self._revision[fid] += 1
@@ -595,12 +620,14 @@ class Session:
     def labels_changed(self, frame_ids: Sequence[int]) -> None:
         """Labels changed outside the walk (an edit by hand, undo, a colleague): the stops of
         those frames are read again when next needed."""
+        outside = False
         for fid in frame_ids:
             if fid in self._applying:
                 continue
             own = self._own.get(fid)
             if own is not None and own == labels_digest(self.project.labels(fid)):
                 continue
+            outside = True
             self._own.pop(fid, None)
             self._stops.pop(fid, None)
             self._dirty.discard(fid)
@@ -608,9 +635,10 @@ class Session:
             self._fresh.pop(fid, None)
             self._left.discard(fid)
             self.pending.discard(fid)
-        self._over_time.clear()
-        if self._tracked is False:
-            self._tracked = None  # a track may have been set
+        if outside:
+            self._forget_over_time()
+            if self._tracked is False:
+                self._tracked = None  # a track may have been set
 
     def findings_changed(self) -> None:
         """Triage ran again: read every frame's stops again, except those the walk holds
