@@ -119,7 +119,7 @@ def test_a_joint_unlabelled_here_is_placed_where_the_frames_around_put_it():
         (sequences.pid(5, 1), LEFT_WRIST)
     assert np.hypot(move.x - true_place[0], move.y - true_place[1]) < 2.0
     assert occlude == SetVisibility(6, sequences.pid(5, 1), LEFT_WRIST, 1)
-    assert finding.confidence >= 0.5 and "frames 5 and 7" in finding.text
+    assert finding.confidence >= 0.5 and "frames 5 and 7 of track 2" in finding.text
 
 
 def test_a_joint_unlabelled_where_the_frames_around_disagree_stays_unlabelled():

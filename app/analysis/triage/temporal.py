@@ -492,10 +492,10 @@ class _Sequence:
         if v == 1:
             edits.append(SetVisibility(frame, pid, j, 1))
         how = "occluded" if v == 1 else "visible"
-        fix = f"place {names.person(pid)}'s {joint} where frames {fa} and {fb} put it ({how})"
-        text = (f"{names.person(pid)}'s {joint} is unlabelled here but labelled in frames "
-                f"{fa} and {fb} of track {t}, which agree where it is ({apart:.2f} of a body "
-                "apart)")
+        whose = f"{names.person(pid)}'s {joint}"
+        fix = f"place {whose} where the frames around put it ({how})"
+        text = (f"{whose}: unlabelled here, but frames {fa} and {fb} of track {t} label it and "
+                f"agree where it is ({apart:.2f} of a body apart)")
         return self.finding(i, "joint-gap", pid, (j,), text,
                             (("neighbours apart", apart), ("frames away", abs(ka - kb))),
                             float(np.clip(1.0 - apart / AGREE, 0.0, 1.0)), edits, (pid,),
