@@ -152,8 +152,9 @@ class Session:
         self._left: set[int] = set()
         #: Frames the walk comes back to after its last: their stops passed stay passed.
         self._revisits: set[int] = set()
-        #: Whether anyone in the project is on a track (None: not read since the labels
-        #: changed); without tracks there are no findings over time to read.
+        #: Whether anyone in the project is on a track (None: not read yet; read once, then
+        #: set when a change of labels outside the walk puts someone on one); without
+        #: tracks there are no findings over time to read.
         self._tracked: bool | None = None
         #: Per frame, its findings over time as last computed; they depend on the labels of
         #: the frames around, so any change of labels forgets them all (triage run again,
@@ -628,6 +629,9 @@ class Session:
             if own is not None and own == labels_digest(self.project.labels(fid)):
                 continue
             outside = True
+            if self._tracked is False and any(p.track is not None
+                                              for p in self.project.people(fid)):
+                self._tracked = True  # a track was set here
             self._own.pop(fid, None)
             self._stops.pop(fid, None)
             self._dirty.discard(fid)
@@ -637,12 +641,15 @@ class Session:
             self.pending.discard(fid)
         if outside:
             self._forget_over_time()
-            if self._tracked is False:
-                self._tracked = None  # a track may have been set
 
-    def findings_changed(self) -> None:
-        """Triage ran again: read every frame's stops again, except those the walk holds
-        back for its own recompute."""
+    def findings_changed(self, labels: bool = False) -> None:
+        """Triage ran again (``labels``: or an import or new frames changed labels too):
+        read every frame's stops again, except those the walk holds back for its own
+        recompute."""
+        if labels:
+            self._forget_over_time()
+            if self._tracked is False:
+                self._tracked = None  # an import may bring tracks
         for fid in list(self._stops):
             if fid not in self._dirty:
                 self._stops.pop(fid)
