@@ -465,7 +465,7 @@ class _Sequence:
         """The two nearest frames of the track within :data:`GAP_REACH` that label joint
         ``j`` (nearer first, the earlier first at equal distance), each as ``(index, the
         joint carried here along with the body, its visibility)``."""
-        near = []
+        near: list[tuple[int, np.ndarray, int]] = []
         for d in range(1, GAP_REACH + 1):
             for k in (i - d, i + d):
                 if k not in at or len(near) == 2:
