@@ -142,3 +142,77 @@ def test_findings_asked_for_at_some_frames_are_those_of_the_whole_sequence_there
     assert {6, 9, 4} <= set(whole)
     for fid in whole:
         assert sequence_findings(frames, SKELETON, at=[fid]) == {fid: whole[fid]}
+
+
+def _plain_flip_gain(prev, now):
+    """The flipped-stretch measure written out plainly, as the check computed it before it
+    was remembered (a reference for :func:`temporal._flip_gain_memo`)."""
+    flip = np.asarray(SKELETON.flip_index)
+    side = flip != np.arange(len(flip))
+    on = (now[:, 2] > 0) & np.isfinite(now[:, :2]).all(axis=1)
+    if on.sum() < 2:
+        return None
+    size = float((now[on, :2].max(axis=0) - now[on, :2].min(axis=0)).max())
+    if size <= 0:
+        return None
+    both = (prev[:, 2] > 0) & (now[:, 2] > 0)
+    motion = np.median(now[both, :2] - prev[both, :2], axis=0) if both.any() else np.zeros(2)
+    moved = now.copy()
+    moved[:, :2] -= motion
+    flipped = moved[flip]
+    ok = side & (prev[:, 2] > 0) & (moved[:, 2] > 0) & (flipped[:, 2] > 0)
+    if ok.sum() < 4:
+        return None
+    keep = np.linalg.norm(moved[ok, :2] - prev[ok, :2], axis=1).mean()
+    swap = np.linalg.norm(flipped[ok, :2] - prev[ok, :2], axis=1).mean()
+    return (keep - swap) / size
+
+
+def test_the_remembered_flip_measure_is_the_plain_one_bit_for_bit():
+    """The flipped-stretch check remembers its measure per pair of poses (by their bytes);
+    asked cold and again warm it gives the very float the plain computation gives, and None
+    where too few side joints are labelled. Synthetic dancers, a flipped stretch and some
+    joints unlabelled put in by hand."""
+    from app.analysis.triage import temporal
+
+    people = sequences.dancers(frames=8, n=2, seed=3)
+    people[2:4, 0] = people[2:4, 0][:, SKELETON.flip_index]
+    people[5, 1, 3:, 2] = 0  # too few side joints left: no measure
+    people[6, 0, [1, 3, 9], 2] = 0
+    flip = np.asarray(SKELETON.flip_index)
+    side = flip != np.arange(len(flip))
+    temporal._FLIP_MEMO.clear()
+    seen = []
+    for _ in ("cold", "warm"):
+        for t in range(1, len(people)):
+            for p in range(people.shape[1]):
+                prev, now = people[t - 1, p].copy(), people[t, p].copy()
+                got = temporal._flip_gain_memo(prev, now, flip, side)
+                want = _plain_flip_gain(prev, now)
+                assert (got is None) == (want is None)
+                if want is not None:
+                    assert got == float(want)
+                seen.append(got)
+    assert any(g is None for g in seen) and any(g is not None and g > temporal.FLIP
+                                                for g in seen)
+
+
+def test_a_fix_previewed_on_its_own_people_is_the_preview_over_the_whole_frame():
+    """A finding over time previews its fix on the people its edits name alone; that
+    preview is the one over all the frame's people (``findings.preview``). Synthetic: a
+    flipped stretch, a jump and an unlabelled joint put in by hand."""
+    from app.analysis.triage.findings import _labels, preview
+
+    people = sequences.dancers()
+    people[3:5, 0] = people[3:5, 0][:, SKELETON.flip_index]
+    people[5, 1, LEFT_WRIST] = (0.0, 0.0, 0)
+    people[8, 2, LEFT_WRIST, 0] += 60.0
+    frames = _frames(people)
+    found = [f for f in _all(sequence_findings(frames, SKELETON)) if f.fix is not None]
+    assert {f.kind for f in found} >= {"flipped-stretch", "joint-gap", "jumping-joint"}
+    for f in found:
+        frame = frames[f.frame_id - 1]
+        arrays = {p: np.asarray(v, dtype=np.float64) for p, v in frame.people.items()}
+        here = [e for e in f.fix.edits if e.frame_id == f.frame_id]
+        whole = preview(_labels(f.frame_id, SKELETON, arrays, None), here)
+        assert repr(f.fix.preview) == repr(whole)  # repr: NaN in both reads the same

@@ -182,6 +182,51 @@ def _motion(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     return np.median(b[both, :2] - a[both, :2], axis=0)
 
 
+def _flip_gain(prev: np.ndarray, now: np.ndarray, flip: np.ndarray,
+               side: np.ndarray) -> float | None:
+    """How much nearer to ``prev`` the side joints of ``now`` lie swapped than as they are,
+    after taking out the body's motion, in shares of the body (None: too few side joints
+    labelled in both, or no body)."""
+    size = _size(now)
+    if size <= 0:
+        return None
+    moved = now.copy()
+    moved[:, :2] -= _motion(prev, now)
+    flipped = moved[flip]
+    ok = side & (prev[:, 2] > 0) & (moved[:, 2] > 0) & (flipped[:, 2] > 0)
+    if ok.sum() < 4:
+        return None
+    keep = np.linalg.norm(moved[ok, :2] - prev[ok, :2], axis=1).mean()
+    swap = np.linalg.norm(flipped[ok, :2] - prev[ok, :2], axis=1).mean()
+    return float((keep - swap) / size)
+
+
+#: Edits that read and change only the person they name (a fix's preview needs no other).
+_ONE_PERSON = (MoveJoint, SetVisibility, SwapSides, SetTrack)
+
+#: :func:`_flip_gain` by the exact bytes of its two poses and the flip pairs: the flipped
+#: stretch check reads every pair of neighbouring frames of every track, and between two
+#: calls (the walk's steps) all but the few an edit touched are the same. Forgotten whole
+#: when it holds :data:`_FLIP_MEMO_SIZE` entries.
+_FLIP_MEMO: dict[bytes, float | None] = {}
+_FLIP_MEMO_SIZE = 200_000
+
+
+def _flip_gain_memo(prev: np.ndarray, now: np.ndarray, flip: np.ndarray,
+                    side: np.ndarray) -> float | None:
+    """:func:`_flip_gain`, remembered: the same bytes in give the very same float out."""
+    key = b"".join((prev.dtype.str.encode(), str(prev.shape).encode(), prev.tobytes(),
+                    now.tobytes(), flip.tobytes()))
+    try:
+        return _FLIP_MEMO[key]
+    except KeyError:
+        pass
+    if len(_FLIP_MEMO) >= _FLIP_MEMO_SIZE:
+        _FLIP_MEMO.clear()
+    out = _FLIP_MEMO[key] = _flip_gain(prev, now, flip, side)
+    return out
+
+
 class _Sequence:
     def __init__(self, frames: Sequence[TrackedFrame], skeleton: Skeleton,
                  at: Iterable[int] | None = None):
@@ -210,7 +255,13 @@ class _Sequence:
         names = Names.of_frame(self.skeleton, frame.people)
         arrays = {p: np.asarray(v, dtype=np.float64) for p, v in frame.people.items()}
         here = [e for e in edits if e.frame_id == frame.frame_id]
-        effect = preview(_labels(frame.frame_id, self.skeleton, arrays, None), here) \
+        shown: Mapping[int, np.ndarray] = arrays
+        if all(isinstance(e, _ONE_PERSON) for e in here):
+            # These edits read and change their own person alone: the preview of the frame
+            # is that of those people (the others show no difference; same order).
+            named = {e.person_id for e in here}  # type: ignore[attr-defined]
+            shown = {p: v for p, v in arrays.items() if p in named}
+        effect = preview(_labels(frame.frame_id, self.skeleton, shown, None), here) \
             if here else FixPreview()
         conf = _confidence(kind, strength)
         fix = Fix(summary, tuple(edits), effect) if edits and conf >= 0.5 else None
@@ -300,19 +351,9 @@ class _Sequence:
             for i in idx:
                 if i - 1 not in at:
                     continue
-                prev, now = self.kp(i - 1, at[i - 1]), self.kp(i, at[i])
-                size = _size(now)
-                if size <= 0:
-                    continue
-                moved = now.copy()
-                moved[:, :2] -= _motion(prev, now)
-                flipped = moved[flip]
-                ok = side & (prev[:, 2] > 0) & (moved[:, 2] > 0) & (flipped[:, 2] > 0)
-                if ok.sum() < 4:
-                    continue
-                keep = np.linalg.norm(moved[ok, :2] - prev[ok, :2], axis=1).mean()
-                swap = np.linalg.norm(flipped[ok, :2] - prev[ok, :2], axis=1).mean()
-                rel[i] = (keep - swap) / size
+                r = _flip_gain_memo(self.kp(i - 1, at[i - 1]), self.kp(i, at[i]), flip, side)
+                if r is not None:
+                    rel[i] = r
             starts = [i for i, r in rel.items() if r > FLIP]
             for s in starts:
                 ends = [e for e in starts if s < e <= s + MAX_FLIP]
