@@ -27,11 +27,12 @@ from __future__ import annotations
 
 import logging
 from collections import defaultdict
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from functools import partial
 from typing import Any
 
 from app.analysis.triage.findings import Finding, labels_digest
+from app.analysis.triage.temporal import within_reach
 from app.errors import EditRefused, PosewrightError
 from app.jobs_findings import accept_label, finding_order, time_findings
 from app.model.edits import AddNote, DismissFinding, Edit, EditGroup, SetFrameState
@@ -157,9 +158,13 @@ class Session:
         #: tracks there are no findings over time to read.
         self._tracked: bool | None = None
         #: Per frame, its findings over time as last computed; they depend on the labels of
-        #: the frames around, so any change of labels forgets them all (triage run again,
-        #: which changes no labels, keeps them).
+        #: the frames around, so the walk's own edit forgets those of the frames within its
+        #: reach (:func:`app.analysis.triage.temporal.within_reach`) and any other change of
+        #: labels forgets them all (triage run again, which changes no labels, keeps them).
         self._over_time: dict[int, list[Finding]] = {}
+        #: The frame ids of each sequence in order, read when first needed (an import or
+        #: new frames forget them).
+        self._sequences: list[list[int]] | None = None
         #: Raised each time :attr:`_over_time` is forgotten: a read ahead computed before
         #: is stale.
         self._over_time_gen = 0
@@ -492,8 +497,24 @@ class Session:
 
         self._background(job, partial(self.recomputed, frame_id, token))
 
-    def _forget_over_time(self) -> None:
-        self._over_time.clear()
+    def _forget_over_time(self, edits: Sequence[Edit] | None = None,
+                          frames: Iterable[int] = ()) -> None:
+        """Forget the findings over time kept: of the frames within reach of ``edits``
+        (:func:`~app.analysis.triage.temporal.within_reach`) and of ``frames``, or, given
+        neither, of every frame. A read ahead under way is stale either way."""
+        frames = set(frames)
+        if edits is None and not frames:
+            self._over_time.clear()
+        elif self._over_time:
+            if edits is not None:
+                if self._sequences is None:
+                    from app.jobs_tracks import project_sequences
+
+                    self._sequences = [list(q.frame_ids)
+                                       for q in project_sequences(self.project)]
+                frames |= within_reach(self._sequences, edits)
+            for fid in frames:
+                self._over_time.pop(fid, None)
         self._over_time_gen += 1
 
     def _read_ahead_over_time(self, frame_id: int) -> None:
@@ -603,7 +624,13 @@ class Session:
         if done is None:
             return None
         self._stops[fid] = kept
-        self._forget_over_time()  # the frames around this one see its new labels
+        # The frames around this one see its new labels: those within the edit's reach.
+        if not changes_labels:
+            self._forget_over_time(frames={fid})
+        elif fix is not None:  # the stop's fix is what was applied
+            self._forget_over_time(edits=fix.edits)
+        else:
+            self._forget_over_time()
         self._dirty.add(fid)
         self._left.discard(fid)
         self._revision[fid] += 1
@@ -648,6 +675,7 @@ class Session:
         recompute."""
         if labels:
             self._forget_over_time()
+            self._sequences = None
             if self._tracked is False:
                 self._tracked = None  # an import may bring tracks
         for fid in list(self._stops):

@@ -216,3 +216,41 @@ def test_a_fix_previewed_on_its_own_people_is_the_preview_over_the_whole_frame()
         here = [e for e in f.fix.edits if e.frame_id == f.frame_id]
         whole = preview(_labels(f.frame_id, SKELETON, arrays, None), here)
         assert repr(f.fix.preview) == repr(whole)  # repr: NaN in both reads the same
+
+
+def test_an_edit_of_joints_changes_no_finding_over_time_beyond_its_reach():
+    """``within_reach`` bounds where an edit of joints can change the findings over time:
+    edits put in one at a time (a joint moved far, hidden, the sides swapped) on a sequence
+    with a flipped stretch, a jump, a gap and an unlabelled joint; every frame whose
+    findings differ from before lies within the reach of the edited frame. Synthetic; the
+    edits are drawn at random (seed 5)."""
+    from app.analysis.triage.temporal import within_reach
+    from app.model.edits import MoveJoint
+
+    people = sequences.dancers(frames=16)
+    people[4:6, 0] = people[4:6, 0][:, SKELETON.flip_index]
+    people[9, 1, LEFT_WRIST] = (0.0, 0.0, 0)
+    people[11, 2, LEFT_WRIST, 0] += 60.0
+    missing = {(13, 1)}
+    before = {k: repr(v) for k, v in sequence_findings(_frames(people, missing=missing),
+                                                        SKELETON).items()}
+    ids = list(range(1, len(people) + 1))
+    rng = np.random.default_rng(5)
+    moved = 0
+    for _ in range(12):
+        t, p, j = int(rng.integers(len(people))), int(rng.integers(3)), int(rng.integers(17))
+        edited = people.copy()
+        how = rng.integers(3)
+        if how == 0:
+            edited[t, p, j, :2] += rng.normal(0, 40, 2)
+        elif how == 1:
+            edited[t, p, j, 2] = 0
+        else:
+            edited[t, p] = edited[t, p][SKELETON.flip_index]
+        after = {k: repr(v) for k, v in sequence_findings(_frames(edited, missing=missing),
+                                                           SKELETON).items()}
+        changed = {k for k in set(before) | set(after) if before.get(k) != after.get(k)}
+        reach = within_reach([ids], [MoveJoint(t + 1, sequences.pid(t, p), j, 0.0, 0.0)])
+        assert changed <= reach, (t, p, j, how)
+        moved += bool(changed)
+    assert moved >= 3, "the edits change some findings"

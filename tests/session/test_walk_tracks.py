@@ -43,3 +43,33 @@ def test_the_joints_the_frames_around_place_are_one_stop_of_the_walk(tmp_path):
         project.undo()
         back = next(p for p in project.people(3) if p.id == sequences.pid(2, 1)).keypoints
         assert (back[[LEFT_ELBOW, LEFT_WRIST], 2] == 0).all()
+
+
+def test_an_accepted_fix_forgets_the_findings_over_time_within_its_reach_only(tmp_path):
+    """Accepting a fix of joints forgets the findings over time kept for the frames within
+    its reach (``temporal.REACH``) and keeps those of the frames beyond, which equal a fresh
+    computation. Synthetic dancers, joints unlabelled by hand in frames 3 and 12."""
+    from app.analysis.triage.temporal import REACH
+    from app.jobs_findings import time_findings
+
+    people = sequences.dancers(frames=12, n=2)
+    people[2, 1, [LEFT_ELBOW, LEFT_WRIST]] = (0.0, 0.0, 0)
+    people[11, 0, LEFT_WRIST] = (0.0, 0.0, 0)
+    project, fids = sequences.make_project(tmp_path, people)
+    with project:
+        link_project(project)
+        project.store_findings({fid: (labels_digest(project.labels(fid)), [])
+                                for fid in fids})
+        s = Session(project, order=lambda: [3, 12, *range(1, 3), *range(4, 12)])
+        for fid in fids:
+            s.stops(fid)
+        s.open_frame(3)
+        assert s.step(1).key == GAP_KEY
+        before = s._over_time[12]
+        s.accept()
+        assert 3 + REACH < 12
+        assert all(fid not in s._over_time for fid in fids if abs(fid - 3) <= REACH)
+        kept = s._over_time[12]
+        assert kept is before, "kept, not computed again"
+        assert [f.kind for f in kept] == ["joint-gap"]
+        assert repr(kept) == repr(time_findings(project, [12])[12])

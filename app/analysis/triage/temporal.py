@@ -64,9 +64,12 @@ from app.analysis.similarity import oks_matrix
 from app.analysis.triage.findings import Finding, Fix, FixPreview, _labels, fingerprint, preview
 from app.model.edits import (
     INTERPOLATED,
+    DismissFinding,
     Edit,
+    EditGroup,
     MoveJoint,
     NewPerson,
+    ReassignJoint,
     SetTrack,
     SetVisibility,
     SwapSides,
@@ -158,6 +161,61 @@ def sequence_findings(frames: Sequence[TrackedFrame], skeleton: Skeleton,
     for f in found:
         if f.fingerprint not in dismissed.get(f.frame_id, frozenset()):
             out.setdefault(f.frame_id, []).append(f)
+    return out
+
+
+#: How far, in frames of its sequence, an edit that only places, hides or swaps joints of
+#: people already there (:data:`JOINT_EDITS`) can change findings over time: a flipped
+#: stretch reads up to :data:`MAX_FLIP` frames on, and a jump at frame ``i`` is not raised
+#: where a stretch covers ``i``, which depends on the frames up to :data:`MAX_FLIP` either
+#: side; a joint gap reads :data:`GAP_REACH` frames either side, missing frames
+#: ``MAX_MISSING + 1``, exchanged tracks the two frames before.
+REACH = max(MAX_FLIP, GAP_REACH, MAX_MISSING + 1, 2)
+#: Edits that keep every person and their track: which person is on which track in which
+#: frame, which an exchange's fix reads over the whole sequence, stays as it was.
+JOINT_EDITS = (MoveJoint, SetVisibility, SwapSides, ReassignJoint)
+
+
+def within_reach(sequences: Iterable[Sequence[int]], edits: Iterable[Edit]) -> set[int]:
+    """The frames whose findings over time ``edits`` may change: for an edit of
+    :data:`JOINT_EDITS`, the frames of its sequence at most :data:`REACH` frames away; for a
+    dismissal its own frame (a frame's dismissals filter only its own findings); for any
+    other edit (a person added, deleted, merged or split, a track set) every frame of its
+    sequence. Sequences do not read each other; an edited frame is always in the result.
+
+    ``sequences`` are the frame ids of each sequence in order
+    (:func:`app.jobs_tracks.project_sequences`).
+
+    Examples
+    --------
+    >>> sorted(within_reach([list(range(1, 21))], [MoveJoint(10, 7, 3, 1.0, 2.0)]))
+    [5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15]
+    >>> len(within_reach([list(range(1, 21)), [30, 31]], [SetTrack(10, 7, 2)]))
+    20
+    """
+    flat: list[Edit] = []
+    todo = list(edits)
+    while todo:
+        e = todo.pop()
+        if isinstance(e, EditGroup):
+            todo += e.edits
+        else:
+            flat.append(e)
+    where: dict[int, tuple[list[int], int]] = {}
+    for seq in sequences:
+        ids = list(seq)
+        for n, fid in enumerate(ids):
+            where[fid] = (ids, n)
+    out: set[int] = set()
+    for e in flat:
+        out.add(e.frame_id)
+        if e.frame_id not in where or isinstance(e, DismissFinding):
+            continue
+        ids, n = where[e.frame_id]
+        if isinstance(e, JOINT_EDITS):
+            out.update(ids[max(n - REACH, 0):n + REACH + 1])
+        else:
+            out.update(ids)
     return out
 
 
