@@ -31,8 +31,9 @@ actions there (a batch that spares one action costs one; it is left alone and th
 when its turn comes). Frames later in the dance then start with fewer errors. Both sides use
 the same oracle, the same frames and the same judge, and every wrong joint ends fixed both
 ways. ``take="joints"`` (``--take joints``) judges a carried frame by the earlier, stricter
-rule (it removes a wrong joint and loses no correct one), which refused frames that spare
-actions (three joints set right and one dragged wrong); ``frame_batch=False``
+rule (fewer wrong joints and no fewer right ones), which refused frames that spare actions
+all the same (two dragged joints set right while two neighbours' wrists end exchanged, which
+one give puts back); ``frame_batch=False``
 (``--no-frame-batch``) carries per person only. With ``per="action"`` (``--per action``)
 each action is carried alone right after it, as far as all of it lasts: the earlier way,
 kept for comparison.
@@ -333,9 +334,9 @@ def _helps(group: EditGroup, labels: FrameLabels, truth: np.ndarray,
 
     ``take="actions"`` (the default): the group spares actions there, that is, the oracle
     needs fewer actions to fix the frame with the group's edits than without (what the
-    measure counts; a group that puts one joint wrong but sets three right helps, the one
-    joint being fixed afterwards and counted). ``take="joints"``: it removes a wrong joint
-    and loses no correct one (the earlier, stricter rule, kept for comparison)."""
+    measure counts; what the group puts wrong is fixed afterwards and counted).
+    ``take="joints"``: it leaves fewer wrong joints and no fewer right ones (the earlier
+    rule, kept for comparison)."""
     after, _ = group.apply(labels)
     if take == "actions":
         spared = len(_fix_frame(labels, truth, areas)[1]) - len(_fix_frame(after, truth,
