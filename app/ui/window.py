@@ -667,7 +667,7 @@ class MainWindow(QMainWindow):
             self.worklist_model.reload_claims()
             return
         if kind in ("import", "frames", "triage"):
-            self.session.findings_changed()
+            self.session.findings_changed(labels=kind != "triage")
             self.worklist_model.reload()
             if self.frame_id is not None:
                 self.worklist.show_frame(self.frame_id)
