@@ -358,14 +358,15 @@ def _carry_once(steps: list[_Step], deleted: list[int], before: FrameLabels,
         u, size = motion[pid]
         off = np.hypot(x - old[0] - u[0], y - old[1] - u[1])
         neighbour = None if holder is None else (who.get(holder[0]) or holders.get(holder[0]))
-        if neighbour is not None and neighbour.keypoints[holder[1], 2] > 0:
+        if holder is not None and neighbour is not None and \
+                neighbour.keypoints[holder[1], 2] > 0:
             hx, hy = neighbour.keypoints[holder[1], :2]
             off = min(off, float(np.hypot(x - hx, y - hy)))
         moved = 0.0 if new is None or not np.isfinite(new[0]) or new[2] <= 0 else float(
             np.hypot(new[0] - old[0], new[1] - old[1]))
         if off > max(TOLERANCE * size, FAR * moved):
             return False
-        if not moved:
+        if not moved or new is None:
             return True
         return bool(off < np.hypot(x - new[0] - u[0], y - new[1] - u[1]))
 

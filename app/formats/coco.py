@@ -443,7 +443,7 @@ class _Records(Sequence[str]):
     def __len__(self) -> int:
         return len(self._items)
 
-    def __getitem__(self, n):  # type: ignore[override]
+    def __getitem__(self, n):
         return _record(*self._items[n])
 
 
@@ -596,10 +596,10 @@ def _keypoint_block(values: Sequence[Sequence[float]], k: int, where: str,
             _check_keypoints(values[i], k, where, records[i], visibility)
     sizes = np.array([(f.width, f.height) if f.status == "ok" and f.width > 0 else (np.inf, np.inf)
                       for f in frames], dtype=np.float64).reshape(n, 2)
-    w, h = sizes[:, :1], sizes[:, 1:]
+    widths, heights = sizes[:, :1], sizes[:, 1:]
     on = block[:, :, 2] > 0
-    x, y = block[:, :, 0], block[:, :, 1]
-    far = on & ((x < -w) | (x > 2 * w) | (y < -h) | (y > 2 * h))
+    xs, ys = block[:, :, 0], block[:, :, 1]
+    far = on & ((xs < -widths) | (xs > 2 * widths) | (ys < -heights) | (ys > 2 * heights))
     for i in np.flatnonzero(far.any(axis=1))[:1]:
         _check_range(block[i], frames[i], where, records[i])
     block[~on] = np.where(np.arange(3) == 2, block[~on], np.nan)
