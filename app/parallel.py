@@ -45,7 +45,7 @@ from app.errors import BadInput
 from app.progress import Progress
 
 __all__ = ["POOL_START_SECONDS", "PRELOAD", "PRELOAD_FOR", "WORKERS_ENV", "check_workers",
-           "default_workers", "ordered_map"]
+           "default_workers", "head_start", "ordered_map"]
 
 log = logging.getLogger(__name__)
 
@@ -163,7 +163,8 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
                 progress: Progress | None = None, label: str = "",
                 initializer: Callable[..., Any] | None = None,
                 initargs: Iterable[Any] = (), total: int | None = None,
-                here: tuple[Callable[..., Any], tuple[Any, ...]] | None = None
+                here: tuple[Callable[..., Any], tuple[Any, ...]] | None = None,
+                sharing: Callable[[], Any] | None = None
                 ) -> Generator[R, None, None]:
     """``fn(item)`` for every item, yielded in the order of ``items``.
 
@@ -195,6 +196,10 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
         A function and its arguments that set this process up for the items run here,
         instead of ``initializer`` (which may, say, load a model this process already has, or
         share out threads it should keep).
+    sharing
+        Called in this process once a pool is up, before this process shares the items with
+        it (pre-labelling gives OpenCV's second thread back to the cores then, see
+        :func:`app.inference.prelabel.prelabel`); not called when no pool starts.
 
     Notes
     -----
@@ -246,7 +251,7 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
             log.debug("%s: all %d items here, a pool would not pay", label or "job", total)
         return
     yield from _alongside(fn, upcoming, done, total, min(workers, total - done), progress,
-                          label, initializer, initargs)
+                          label, initializer, initargs, sharing)
 
 
 def _pool_pays(per_item: float, left: int, workers: int, start_cost: float) -> bool:
@@ -282,15 +287,22 @@ def _ready() -> int:
     return os.getpid()
 
 
-def _context(fn: Callable[..., Any] | None = None) -> multiprocessing.context.BaseContext:
+def _name(fn: Callable[..., Any] | str | None) -> str:
+    """``module.qualname`` of a function (a name given as text stays as it is)."""
+    if isinstance(fn, str):
+        return fn
+    return f"{getattr(fn, '__module__', '')}.{getattr(fn, '__qualname__', '')}"
+
+
+def _context(fn: Callable[..., Any] | str | None = None) -> multiprocessing.context.BaseContext:
     """The fork server's context, with :data:`PRELOAD` (and what :data:`PRELOAD_FOR` adds
-    for ``fn``) imported by the server when it starts (only the server pays the imports;
-    each worker forks from it with them done), else spawn's."""
+    for ``fn``, a function or its ``module.qualname``) imported by the server when it starts
+    (only the server pays the imports; each worker forks from it with them done), else
+    spawn's."""
     if "forkserver" not in multiprocessing.get_all_start_methods():
         return multiprocessing.get_context("spawn")
     context = multiprocessing.get_context("forkserver")
-    name = f"{getattr(fn, '__module__', '')}.{getattr(fn, '__qualname__', '')}"
-    context.set_forkserver_preload([*PRELOAD, *PRELOAD_FOR.get(name, ())])
+    context.set_forkserver_preload([*PRELOAD, *PRELOAD_FOR.get(_name(fn), ())])
     return context
 
 
@@ -388,11 +400,37 @@ _START_ALONGSIDE = True
 _server_since: float | None = None
 
 
-def _start_server(fn: Callable[..., Any]) -> None:
-    """Start this process's fork server now, with what ``fn`` needs preloaded (see
-    :func:`_context`), unless it is already up; a pool started later forks its workers from
-    it. Spawning the server takes a few milliseconds here; its imports run in its own
-    process, on another core while this one works."""
+def head_start(job: str, items: int, workers: int) -> bool:
+    """Start this process's fork server now for a job that will hand ``job`` (the
+    ``module.qualname`` of its function) about ``items`` items on ``workers`` workers, when
+    so many items would repay a pool even at the least an item takes
+    (:data:`_LEAST_ITEM_SECONDS`), the rule :func:`ordered_map` applies when it starts;
+    whether the job is that large (the server then starts, unless it is up already).
+
+    A command calls it as soon as it knows the job's size, before it imports the job or
+    reads the project: the server's imports (about a second of one core) then run beside the
+    command's own, rather than after them, and its pool answers that much sooner. Changes no
+    result: the job runs as it would without it.
+
+    Examples
+    --------
+    >>> head_start("app.jobs_analysis._group_maps", 10, 2)  # too few items to pay
+    False
+    >>> head_start("app.jobs_analysis._group_maps", 10_000, 1)  # one worker: never a pool
+    False
+    """
+    large = workers > 1 and items * _LEAST_ITEM_SECONDS > 2.0 * _start_cost()
+    if large:
+        _start_server(job)
+    return large
+
+
+def _start_server(fn: Callable[..., Any] | str) -> None:
+    """Start this process's fork server now, with what ``fn`` (a function or its
+    ``module.qualname``) needs preloaded (see :func:`_context`), unless it is already up; a
+    pool started later forks its workers from it. Spawning the server takes a few
+    milliseconds here; its imports run in its own process, on another core while this one
+    works."""
     global _server_since
     if _server_since is not None:
         return
@@ -419,10 +457,11 @@ def _start_cost() -> float:
 
 def _alongside(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: int, workers: int,
                progress: Progress, label: str, initializer: Callable[..., Any] | None,
-               initargs: tuple[Any, ...]) -> Iterator[R]:
+               initargs: tuple[Any, ...], sharing: Callable[[], Any] | None = None
+               ) -> Iterator[R]:
     """The items left in ``upcoming`` (``done`` of ``total`` already taken): this process
     goes on with them while a pool of ``workers - 1`` processes starts, then shares them
-    with it, so ``workers`` processes compute in all."""
+    with it (calling ``sharing`` first), so ``workers`` processes compute in all."""
     pool = _Pool(workers - 1, initializer, initargs, fn)
     # In the items' order: the result to come, whether the pool computes it, and the item
     # (so that an item the pool has not started can be taken back).
@@ -440,6 +479,8 @@ def _alongside(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: in
                     told = True
                     log.debug("%s: pool of %d up after %.2f s, at item %d of %d", label or "job",
                               pool.workers, pool.seconds, done + len(pending), total)
+                    if sharing is not None:
+                        sharing()
                 while not exhausted and on_pool < _POOL_AHEAD * pool.workers:
                     item = next(upcoming, _END)
                     if item is _END:
