@@ -218,8 +218,11 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
     if total is None:
         total = len(items)  # type: ignore[arg-type]
     initargs = tuple(initargs)
-    if workers > 1 and total * _LEAST_ITEM_SECONDS > 2.0 * _start_cost():
-        _start_server(fn)  # so many items that a pool pays whatever they take
+    # So many items that a pool pays whatever they take: the fork server starts now, and the
+    # pool once two items have run here (not after timing them for _PROBE_SECONDS).
+    large = workers > 1 and total * _LEAST_ITEM_SECONDS > 2.0 * _start_cost()
+    if large:
+        _start_server(fn)
     t0 = time.perf_counter()
     if here is not None:
         here[0](*here[1])
@@ -233,8 +236,9 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
     while done < total:
         if workers > 1 and done >= 2:
             spent = time.perf_counter() - t0
-            if spent >= _PROBE_SECONDS and _pool_pays(
-                    (spent - first) / (done - 1), total - done, workers, start_cost):
+            paid = large and min(workers, total - done) > 1
+            if paid or (spent >= _PROBE_SECONDS and _pool_pays(
+                    (spent - first) / (done - 1), total - done, workers, start_cost)):
                 log.debug("%s: %d of %d items on %d workers after %.2f s here", label or "job",
                           total - done, total, min(workers, total - done), spent)
                 break

@@ -289,3 +289,27 @@ def test_so_many_items_start_the_fork_server_before_any_is_timed(monkeypatch):
     assert asked == [1] and parallel._server_since is not None
     list(ordered_map(abs, range(many), workers=2))
     assert asked == [1]  # once per process
+
+
+def test_a_job_that_pays_at_any_pace_shares_its_items_after_two(monkeypatch):
+    """Items enough to repay a pool even at the least an item takes are shared out after two
+    have run here, however long the timing would otherwise last; fewer items wait for the
+    timing (here never over, so they all run here). The pool itself is not started: the
+    test records where the items would be shared."""
+    from app import parallel
+
+    switched = []
+
+    def alongside(fn, upcoming, done, total, *rest):
+        switched.append(done)
+        yield from map(fn, upcoming)
+
+    monkeypatch.setattr(parallel, "_alongside", alongside)
+    monkeypatch.setattr(parallel, "_start_server", lambda fn: None)
+    monkeypatch.setattr(parallel, "_server_since", None)  # a first pool's start, fixed
+    monkeypatch.setattr(parallel, "_PROBE_SECONDS", 3600.0)
+    many = int(2 * parallel._start_cost() / parallel._LEAST_ITEM_SECONDS) + 1
+    assert list(ordered_map(abs, range(many), workers=2)) == list(range(many))
+    assert switched == [2]
+    assert list(ordered_map(abs, range(many - 1), workers=2)) == list(range(many - 1))
+    assert switched == [2]
