@@ -24,7 +24,9 @@ Workers are started by a fork server (a fresh interpreter that forks them, so th
 of the app or of a database pool are never copied) where the system has one, else spawned.
 The fork server imports :data:`PRELOAD` (the batch jobs' modules, hence the app, numpy and
 OpenCV) once, when this process starts its first pool (or, for a job of so many items that
-a pool pays whatever they take, as soon as the job starts: :data:`_LEAST_ITEM_SECONDS`);
+a pool pays whatever they take, as soon as the job starts, or earlier, when the command
+calls :func:`head_start`: :data:`_LEAST_ITEM_SECONDS`; such a job asks for its pool once two
+items have run, without timing them for :data:`_PROBE_SECONDS`);
 every worker is then a fork of it that imports nothing more, so a later pool is up in a
 fraction of a second.
 """
@@ -180,7 +182,8 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
         Processes to use at most; 1 runs in this process. With more, the first items still
         run here, timed for at least :data:`_PROBE_SECONDS`, and the rest go to a pool only
         when the workers would save more than :data:`POOL_START_SECONDS` on them (the
-        results are the same either way).
+        results are the same either way); a job so large that they would at any pace
+        (:data:`_LEAST_ITEM_SECONDS`) goes to the pool after two items.
     progress
         Told ``(n, len(items), label)`` before the n-th result is taken; a cancel request
         stops the work within a tenth of a second of the longest item (items not yet started
