@@ -28,7 +28,7 @@ from app.errors import BadInput, Cancelled, PosewrightError, ProjectLocked
 from app.fileio import MAX_ID, json_ready, read_json
 from app.model.labels import FrameState
 from app.model.naming import Names, ledger_names
-from app.parallel import check_workers, head_start
+from app.parallel import check_workers, head_start, keep_freed_memory
 from app.progress import Progress
 from app.safetext import shown
 from app.wording import count, count_phrase, ledger_text
@@ -343,6 +343,7 @@ def _check_demo_target(out: Path, force: bool) -> None:
 
 def cmd_import_maps(args: argparse.Namespace) -> int:
     workers = check_workers(args.workers)
+    keep_freed_memory()  # this process ends with the job (app/parallel.py)
     # Before the job's imports: the workers' own start runs beside them (app/parallel.py).
     head_start("app.jobs_analysis._group_maps", _files_ending(args.dir, ".npz"), workers)
     from app.jobs_analysis import import_maps
@@ -365,6 +366,7 @@ def _files_ending(folder: str | Path, suffix: str) -> int:
 
 def cmd_triage(args: argparse.Namespace) -> int:
     workers = check_workers(args.workers)
+    keep_freed_memory()
     with _open(args) as project:
         head_start("app.jobs_analysis._triage_one", project.frame_count(), workers)
         from app.jobs_analysis import run_triage
@@ -405,6 +407,7 @@ def cmd_targets(args: argparse.Namespace) -> int:
     from app.store.frames import FrameQuery
 
     workers = check_workers(args.workers)
+    keep_freed_memory()
     states = _states(args.states)
     with _open(args, write=False) as project:
         head_start("app.jobs_analysis._write_targets",
@@ -447,6 +450,7 @@ def _check_targets(args: argparse.Namespace) -> int:
 
 def cmd_prelabel(args: argparse.Namespace) -> int:
     workers = check_workers(args.workers)
+    keep_freed_memory()
     with _open(args) as project:
         head_start("app.inference.prelabel._prelabel_one", project.frame_count(), workers)
         from app.inference.prelabel import parse_frames, prelabel

@@ -313,3 +313,17 @@ def test_a_job_that_pays_at_any_pace_shares_its_items_after_two(monkeypatch):
     assert switched == [2]
     assert list(ordered_map(abs, range(many - 1), workers=2)) == list(range(many - 1))
     assert switched == [2]
+
+
+def test_a_batch_process_keeps_the_memory_it_frees():
+    """glibc accepts the thresholds keep_freed_memory asks for (its mallopt answers 1 when a
+    value is within the documented range: the mmap threshold at most 32 MB on 64-bit
+    systems); another C library is left alone and answers False."""
+    import platform
+
+    from app.parallel import keep_freed_memory
+
+    if platform.libc_ver()[0] != "glibc":
+        assert keep_freed_memory() in (True, False)
+        return
+    assert keep_freed_memory() is True
