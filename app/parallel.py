@@ -303,13 +303,14 @@ def keep_freed_memory() -> bool:
 
     A frame's arrays are a few megabytes (the maps read or computed, their float32 copies),
     which glibc maps afresh for each frame and unmaps when freed, so every frame faults its
-    pages in again: 1.2-1.4 s of system time in 480 frames of ``import-maps`` (of 8.3 s), 2.8 s
-    of ``prelabel``, and, with two processes faulting at once, each frame took 15-16 ms of
-    CPU in place of 13 ms alone. Kept, they are reused: 0.1-0.3 s of system time, and 12.5-13.4
-    ms a frame with two processes as with one (3 December 2026, load 4-5; the same effect as
-    glibc's ``MALLOC_MMAP_THRESHOLD_`` and ``MALLOC_TRIM_THRESHOLD_`` variables, common
-    practice for numerical batch work). For processes that end with their job only (a command
-    of a batch job, a worker): the memory stays with the process until it ends.
+    pages in again: 1.2-1.5 s of system time in 480 frames of ``import-maps`` (of 8-9 s), 2.8 s
+    of ``prelabel``, and, with two processes faulting at once, a frame of maps took 15-16 ms
+    of CPU in place of 13 ms alone. Kept, they are reused: 0.2-0.4 s of system time, and
+    12.5-13.4 ms a frame of maps with two processes, as with one (3 December 2026, load 4-5;
+    glibc's ``MALLOC_MMAP_THRESHOLD_`` and ``MALLOC_TRIM_THRESHOLD_`` variables do the same
+    from outside, common practice for numerical batch work). For processes that end with
+    their job only (a batch command, a worker): the memory stays with the process until it
+    ends, so the window does not call it for itself.
     """
     try:
         import ctypes
