@@ -135,8 +135,8 @@ def prelabel(project: Project, model: str | Path, config: str | Path | None = No
         (the model, the image's resizing) on one thread, except this one while it works
         alone (a short job, or before the pool is up), which takes ``workers`` threads (at
         most one a core) and gives them back once the pool shares the frames. On two cores
-        a second thread saved one process about a sixth of its time (480 frames: 17.4 s
-        against 20.6 s, load 4-5), a second process about half.
+        a second thread saved one process 7-19 % of its time (480 frames, seven pairs at
+        load 2-5: 13.7-19.0 s against 15.9-22.5 s), a second process 33-48 %.
 
     Returns
     -------
