@@ -93,9 +93,13 @@ def current_findings(project: Project, frame_ids: Iterable[int] | None = None,
     out = {f.id: fresh[f.id] if f.id in fresh else
            [Finding.from_dict(d) for d in stored.get(f.id, [])] for f in frames}
     for fid, more in time_findings(project, out).items():
-        out[fid] = sorted(out[fid] + more, key=lambda f: (-f.worth, ALL_KINDS.index(f.kind),
-                                                           f.id))
+        out[fid] = sorted(out[fid] + more, key=finding_order)
     return out
+
+
+def finding_order(f: Finding) -> tuple[float, int, str]:
+    """A frame's findings, worst first: by worth, then kind (:data:`ALL_KINDS`), then id."""
+    return (-f.worth, ALL_KINDS.index(f.kind), f.id)
 
 
 def time_findings(project: Project, frame_ids: Iterable[int] | None = None
@@ -118,7 +122,7 @@ def time_findings(project: Project, frame_ids: Iterable[int] | None = None
                                 if p.track is not None},
                                frozenset(dismissed.get(fid, ())))
                   for fid in seq.frame_ids]
-        for fid, found in sequence_findings(frames, project.skeleton).items():
+        for fid, found in sequence_findings(frames, project.skeleton, at=wanted).items():
             if wanted is None or fid in wanted:
                 out[fid] = found
     return out

@@ -185,26 +185,38 @@ def sequence_labels(project: Project, frame_id: int) -> tuple[list[FrameLabels],
 
 
 def propose_carry(project: Project, frame_id: int, changes: Seq[Change],
-                  max_frames: int = MAX_FRAMES, whole_person: bool = True) -> CarriedBatch:
+                  max_frames: int = MAX_FRAMES, whole_person: bool = True,
+                  whole_frame: bool = False) -> CarriedBatch:
     """The batch that carries a correction of ``frame_id`` (its changes, as applied) to the
     frames around it that show the same error; nothing is changed. What the app calls after
     each correction, to show where the batch would end.
 
     With ``whole_person`` (the default) what is carried is every correction in effect of the
     people the correction touched in that frame (:func:`person_changes`), each joint as far
-    as its own error lasts; else the correction alone, as far as all of it lasts."""
-    if whole_person:
+    as its own error lasts; else the correction alone, as far as all of it lasts. With
+    ``whole_frame``, every correction in effect in that frame, of every person, each joint as
+    far as its own error lasts (:func:`frame_changes`): errors that last one more frame on
+    several people are taken with one key rather than one per person."""
+    if whole_frame:
+        changes = frame_changes(project, frame_id) or list(changes)
+    elif whole_person:
         touched = {getattr(c.target, "person", None) for c in changes} - {None}
         changes = person_changes(project, frame_id, touched) or list(changes)
     frames, at = sequence_labels(project, frame_id)
-    return carry_changes(changes, frames, at, max_frames, each_joint=whole_person)
+    return carry_changes(changes, frames, at, max_frames,
+                         each_joint=whole_person or whole_frame)
 
 
-def person_changes(project: Project, frame_id: int, people: Iterable[int]) -> list[Change]:
-    """Every change in effect that the edits of ``frame_id`` made to ``people`` and to the
-    people they exchanged joints with (:func:`app.analysis.carry.by_person`), oldest first:
-    a person's whole correction in that frame, what carrying per person carries. Edits undone
-    are left out, and so are carried batches (they came from another frame) and bulk work."""
+def frame_changes(project: Project, frame_id: int) -> list[Change]:
+    """Every change in effect that the edits of ``frame_id`` made to its people's joints and
+    to its people (deleted), one person after another (:func:`app.analysis.carry.by_person`),
+    oldest first within each: the frame's whole correction, what ``carry --whole-frame``
+    carries. Edits undone, carried batches and bulk work are left out, as in
+    :func:`person_changes`."""
+    return [c for relation in by_person(_live_changes(project, frame_id)) for c in relation]
+
+
+def _live_changes(project: Project, frame_id: int) -> list[Change]:
     live: dict[int, list[Any]] = {}
     for e in sorted(project.history(frame_id), key=lambda e: e.seq):
         if e.kind in ("edit", "redo") and e.action not in ("Batch", "CarryForward"):
@@ -212,8 +224,16 @@ def person_changes(project: Project, frame_id: int, people: Iterable[int]) -> li
         elif e.kind == "undo" and e.reverts is not None:
             live.pop(e.reverts, None)
     entries = sorted((e for group in live.values() for e in group), key=lambda e: e.seq)
-    changes = [Change(e.target, e.before, e.after) for e in entries
-               if not isinstance(e.target, StateTarget)]
+    return [Change(e.target, e.before, e.after) for e in entries
+            if not isinstance(e.target, StateTarget)]
+
+
+def person_changes(project: Project, frame_id: int, people: Iterable[int]) -> list[Change]:
+    """Every change in effect that the edits of ``frame_id`` made to ``people`` and to the
+    people they exchanged joints with (:func:`app.analysis.carry.by_person`), oldest first:
+    a person's whole correction in that frame, what carrying per person carries. Edits undone
+    are left out, and so are carried batches (they came from another frame) and bulk work."""
+    changes = _live_changes(project, frame_id)
     wanted = set(people)
     return [c for relation in by_person(changes)
             if wanted & {getattr(c.target, "person", None) for c in relation}

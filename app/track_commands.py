@@ -43,6 +43,9 @@ def register(sub: Any, command: Command) -> None:
     p.add_argument("--this-action-only", action="store_true",
                    help="carry only that correction, as far as all of it shows, not the "
                         "people's whole correction in the frame")
+    p.add_argument("--whole-frame", action="store_true",
+                   help="carry every correction in effect in that frame, of every person, "
+                        "each joint as far as its error lasts, as one action")
     p.add_argument("--json", action="store_true", help="print the batch as JSON")
 
 
@@ -79,7 +82,8 @@ def cmd_carry(args: argparse.Namespace) -> int:
     with _open(args, write=not args.dry_run) as project:
         group, frame, changes = last_correction(project, args.action)
         batch = propose_carry(project, frame, changes,
-                              whole_person=not args.this_action_only).until(args.until)
+                              whole_person=not args.this_action_only,
+                              whole_frame=args.whole_frame).until(args.until)
         applied = None if args.dry_run else take_batch(project, batch)
     frames = [g.frame_id for g in batch.edits]
     if args.json:

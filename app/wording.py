@@ -169,6 +169,7 @@ REASONS: dict[str, tuple[str, str]] = {
     "flipped-stretch": ("stretch flipped left to right", "stretches flipped left to right"),
     "missing-frames": ("track missing for a while", "tracks missing for a while"),
     "jumping-joint": ("jumping joint", "jumping joints"),
+    "joint-gap": ("joint the frames around place", "joints the frames around place"),
 }
 
 

@@ -10,6 +10,7 @@ import pytest
 from app.analysis.carry import by_person, carry_changes
 from app.cli import main
 from app.jobs_tracks import (
+    frame_changes,
     link_project,
     person_changes,
     propose_carry,
@@ -216,3 +217,33 @@ def test_the_app_carries_a_persons_whole_correction_in_the_frame(tmp_path):
         wrist = person_changes(project, 4, [pid(3, 0)])
         assert {(c.target.person, c.target.joint) for c in wrist} == {
             (pid(3, 0), WRIST), (pid(3, 1), WRIST)}
+
+
+def test_the_whole_frame_is_carried_with_one_key(tmp_path, capsys):
+    """Dancer 0's wrist exchanged in frames 4-7 and dancer 2's nose dragged off in frames 4-5
+    (synthetic): after both are corrected in frame 4, the newest correction's person alone
+    carries the nose to frame 5; the whole frame (``carry --whole-frame``, Ctrl+Alt+C)
+    carries both, each as far as its error lasts, and stops at frame 8 where neither shows."""
+    people = _people()
+    people[3:5, 2, 0, 0] -= 30.0
+    project, _ = sequences.make_project(tmp_path, people)
+    truth = sequences.dancers()
+    with project:
+        link_project(project)
+        project.apply(ReassignJoint(4, pid(3, 1), WRIST, pid(3, 0)))
+        nose = project.apply(MoveJoint(4, pid(3, 2), 0, *truth[3, 2, 0, :2]))
+        alone = propose_carry(project, 4, nose.changes)
+        assert [g.frame_id for g in alone.edits] == [5]
+        assert {c.target.person for c in frame_changes(project, 4)} == {
+            pid(3, 0), pid(3, 1), pid(3, 2)}
+        where = str(project.folder)
+    assert main(["carry", where, "--whole-frame", "--dry-run", "--json", "-q"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert (out["frames"], out["stopped_forward"]) == ([5, 6, 7], 8)
+    with Project.open(where) as p:
+        batch = propose_carry(p, 4, nose.changes, whole_frame=True)
+        take_batch(p, batch)
+        for t in range(12):
+            for d in range(3):
+                assert np.allclose(p.labels(t + 1).people[pid(t, d)].keypoints[:, :2],
+                                   truth[t, d, :, :2], atol=3.0), (t, d)

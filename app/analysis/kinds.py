@@ -16,7 +16,7 @@ KINDS: tuple[str, ...] = ("duplicate", "split", "phantom", "mirrored", "crossed-
 
 #: The kinds of finding over time, in the order their fixes are accepted.
 TIME_KINDS: tuple[str, ...] = ("exchanged-tracks", "flipped-stretch", "missing-frames",
-                               "jumping-joint")
+                               "jumping-joint", "joint-gap")
 
 #: Every kind of finding, in the order fixes are accepted: a frame's own kinds, then those
 #: over time.

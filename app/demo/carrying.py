@@ -18,15 +18,25 @@ frame, each person's corrections there (:func:`app.analysis.carry.by_person`: ev
 made to a person, with those of the people it exchanged joints with) are carried forward as
 one batch (:func:`app.analysis.carry.carry_changes` with ``each_joint``: each joint as far as
 its own error lasts), the people linked into tracks by :func:`app.analysis.tracks.link_tracks`
-first, as the app proposes them (:func:`app.jobs_tracks.propose_carry`). The annotator looks
-at the batch and takes it as far as it helps (each carried frame's edits remove a wrong
-joint, add none and lose no correct one; the first frame where they do not is where the batch
-is trimmed), which is one more action, when that spares actions: a batch over at least
+first, as the app proposes them (:func:`app.jobs_tracks.propose_carry`); then, when more than
+one person was corrected, the frame's corrections together as one more batch (the app's
+Ctrl+Shift+F, ``posewright carry --whole-frame``): errors that last one more frame on
+several people spare one action each, too few to pay for a key per person, but together
+they do. The annotator looks at each batch and takes it as far as it helps (a carried frame
+helps when the oracle needs fewer actions to fix it with the carried edits than without
+them, the count this measure makes; the first frame where it does not is where the batch is
+trimmed), which is one more action, when that spares actions: a batch over at least
 :data:`MIN_BATCH` frames, or over one frame whose edits spare at least two of the oracle's
 actions there (a batch that spares one action costs one; it is left alone and the frame fixed
-when its turn comes). Frames later in the dance then start with fewer errors. With
-``per="action"`` (``--per action``) each action is carried alone right after it, as far as
-all of it lasts: the earlier way, kept for comparison.
+when its turn comes). Frames later in the dance then start with fewer errors. Both sides use
+the same oracle, the same frames and the same judge, and every wrong joint ends fixed both
+ways. ``take="joints"`` (``--take joints``) judges a carried frame by the earlier, stricter
+rule (fewer wrong joints and no fewer right ones), which refused frames that spare actions
+all the same (two dragged joints set right while two neighbours' wrists end exchanged, which
+one give puts back); ``frame_batch=False``
+(``--no-frame-batch``) carries per person only. With ``per="action"`` (``--per action``)
+each action is carried alone right after it, as far as all of it lasts: the earlier way,
+kept for comparison.
 
 :func:`persistence` (``--persistence``) says how long the auto-labels' wrong joints last from
 frame to frame, which bounds what any carrying can spare: a correction is carried only to
@@ -218,7 +228,8 @@ def with_tracks(frames: Sequence[FrameLabels]) -> list[FrameLabels]:
 
 def count_actions(frames: Sequence[FrameLabels], truth: Sequence[np.ndarray],
                   areas: Sequence[np.ndarray], demo: str = "",
-                  per: str = "person") -> ActionCount:
+                  per: str = "person", take: str = "actions",
+                  frame_batch: bool = True) -> ActionCount:
     """Actions to fix every wrong labelled joint of a sequence, frame by frame and with
     carrying forward (see the module docstring).
 
@@ -235,6 +246,16 @@ def count_actions(frames: Sequence[FrameLabels], truth: Sequence[np.ndarray],
         batch, each joint as far as its own error lasts (:func:`app.analysis.carry.by_person`);
         ``"action"``: each action is carried alone, right after it, as far as all of it
         lasts (the earlier way, kept for comparison).
+    take
+        How the annotator judges where a batch stops helping (:func:`_helps`): ``"actions"``
+        (a carried frame is taken while it spares actions there) or ``"joints"`` (while it
+        removes a wrong joint and loses no correct one; the earlier rule).
+    frame_batch
+        With ``per="person"``: once each person's batch is taken or left alone, the frame's
+        corrections together are carried as one more batch
+        (``posewright carry --whole-frame``, Ctrl+Shift+F in the app), each joint as far as
+        its error lasts, and taken when it spares actions: it gathers the errors that last
+        one more frame on several people, each too short to pay for a key of its own.
     """
     wrong_before = sum(_wrong(f, t, a) for f, t, a in zip(frames, truth, areas, strict=True))
     plain = repeated = 0
@@ -258,14 +279,18 @@ def count_actions(frames: Sequence[FrameLabels], truth: Sequence[np.ndarray],
             labels[i], changes = edit.apply(labels[i])
             corrections += 1
             if per == "action":
-                taken = _take(carry_changes(changes, labels, i), labels, i, truth, areas)
+                taken = _take(carry_changes(changes, labels, i), labels, i, truth, areas,
+                              take)
                 batches += taken > 0
                 carried += taken
             else:
                 made.extend(changes)
-        for relation in by_person(made) if per == "person" else ():
+        relations = by_person(made) if per == "person" else []
+        if frame_batch and len(relations) > 1:
+            relations.append([c for r in relations for c in r])
+        for relation in relations:
             taken = _take(carry_changes(relation, labels, i, each_joint=True), labels, i,
-                          truth, areas)
+                          truth, areas, take)
             batches += taken > 0
             carried += taken
     left_carry = sum(_wrong(f, t, a) for f, t, a in zip(labels, truth, areas, strict=True))
@@ -274,9 +299,10 @@ def count_actions(frames: Sequence[FrameLabels], truth: Sequence[np.ndarray],
 
 
 def _take(batch: CarriedBatch, labels: list[FrameLabels], i: int,
-          truth: Sequence[np.ndarray], areas: Sequence[np.ndarray]) -> int:
+          truth: Sequence[np.ndarray], areas: Sequence[np.ndarray],
+          take: str = "actions") -> int:
     """The annotator's look at a batch proposed from frame ``i``: its later frames taken in
-    order as far as each helps (:func:`_helps`), when that spares actions: at least
+    order as far as each helps (:func:`_helps` with ``take``), when that spares actions: at least
     :data:`MIN_BATCH` frames, or one frame whose carried edits spare at least two of the
     oracle's actions there (counted by fixing that frame with and without them). Applies
     what is taken to ``labels``; returns the number of frames taken (0: left alone)."""
@@ -285,7 +311,7 @@ def _take(batch: CarriedBatch, labels: list[FrameLabels], i: int,
         k = next(n for n, f in enumerate(labels) if f.frame_id == group.frame_id)
         if k < i:
             continue  # frames already fixed: the error is absent there
-        after = _helps(group, labels[k], truth[k], areas[k])
+        after = _helps(group, labels[k], truth[k], areas[k], take)
         if after is None:
             break
         staged[k] = after
@@ -302,10 +328,20 @@ def _take(batch: CarriedBatch, labels: list[FrameLabels], i: int,
 
 
 def _helps(group: EditGroup, labels: FrameLabels, truth: np.ndarray,
-           areas: np.ndarray) -> FrameLabels | None:
-    """The frame after a carried group when it removes a wrong joint and adds none, and
-    loses no correct one; else None (where the annotator trims the batch)."""
+           areas: np.ndarray, take: str = "actions") -> FrameLabels | None:
+    """The frame after a carried group when taking it there helps; else None (where the
+    annotator trims the batch).
+
+    ``take="actions"`` (the default): the group spares actions there, that is, the oracle
+    needs fewer actions to fix the frame with the group's edits than without (what the
+    measure counts; what the group puts wrong is fixed afterwards and counted).
+    ``take="joints"``: it leaves fewer wrong joints and no fewer right ones (the earlier
+    rule, kept for comparison)."""
     after, _ = group.apply(labels)
+    if take == "actions":
+        spared = len(_fix_frame(labels, truth, areas)[1]) - len(_fix_frame(after, truth,
+                                                                            areas)[1])
+        return after if spared > 0 else None
     w0, w1 = _wrong(labels, truth, areas), _wrong(after, truth, areas)
     if w1 < w0 and _correct(after, truth, areas) >= _correct(labels, truth, areas):
         return after
@@ -393,13 +429,14 @@ def why_not_carried(frames: Sequence[FrameLabels], truth: Sequence[np.ndarray],
     return out
 
 
-def demo_count(folder: str | Path, demo: str = "", per: str = "person") -> ActionCount:
+def demo_count(folder: str | Path, demo: str = "", per: str = "person",
+               take: str = "actions", frame_batch: bool = True) -> ActionCount:
     """:func:`count_actions` on a generated demo (built into a project the first time)."""
     from app.demo.calibrate import demo_frames
 
     frames = demo_frames(folder)
     return count_actions([f.labels for f in frames], [f.truth for f in frames],
-                         [f.areas for f in frames], demo, per)
+                         [f.areas for f in frames], demo, per, take, frame_batch)
 
 
 @dataclass(frozen=True)
@@ -516,6 +553,12 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser.add_argument("--per", choices=("person", "action"), default="person",
                         help="carry each person's corrections once a frame is fixed (the "
                              "default), or each action alone as it is made")
+    parser.add_argument("--take", choices=("actions", "joints"), default="actions",
+                        help="a carried frame is taken while it spares actions there (the "
+                             "default), or while it removes a wrong joint and loses no "
+                             "correct one (the earlier rule)")
+    parser.add_argument("--no-frame-batch", action="store_true",
+                        help="carry per person only, without the whole frame's batch after")
     parser.add_argument("--persistence", action="store_true",
                         help="instead, how long the auto-labels' wrong joints last")
     parser.add_argument("--why", action="store_true",
@@ -550,8 +593,8 @@ def main(argv: Sequence[str] | None = None) -> int:
             print(f"| {reason} | {n:,} | {n / max(total, 1):.0%} |")
         print(f"| all | {total:,} | |")
         return 0
-    rows = [demo_count(demo_folder(args.cache, seed), name, args.per)
-            for name, seed in targets]
+    rows = [demo_count(demo_folder(args.cache, seed), name, args.per, args.take,
+                       not args.no_frame_batch) for name, seed in targets]
     seeds = [r for r, (_, seed) in zip(rows, targets, strict=True) if seed is not None]
     total = ActionCount(f"**seeds {args.seeds}**", *(sum(getattr(r, f) for r in seeds) for f in (
         "wrong_before", "frame_by_frame", "carrying", "corrections", "batches",

@@ -2,7 +2,9 @@
 
 :func:`wrong_people` calibrates the simulated network maps (:mod:`app.demo.maps`) and reports
 how many auto-labels in the demo need correcting; :func:`judge_joints` judges every labelled
-joint, which is what retraining sees (wrong labelled joints are what hurt it): it measures the
+joint, which is what retraining sees (wrong labelled joints are what hurt it), and
+:func:`wrong_for_training` counts the people wrong as training sees them (an unsure joint
+unlabelled is masked out, not wrong): they measure the
 findings and their fixes (:mod:`app.demo.calibrate`, the findings' acceptance test and ``make
 bench``); :func:`demo_sequence` and :func:`linking_accuracy` measure
 :func:`app.analysis.tracks.link_tracks` on a generated demo, on its true poses and on the
@@ -134,14 +136,22 @@ def judge_joints(labelled_people: Any, truth_people: Any, truth_areas: Any,
     >>> judge_joints(labels, truth, [400.0, 400.0], [0.1, 0.1]).tolist()
     [[1, -1], [1, -1], [-1, 0]]
     """
+    return _judged(labelled_people, truth_people, truth_areas, sigmas)[0]
+
+
+def _judged(labelled_people: Any, truth_people: Any, truth_areas: Any,
+            sigmas: Any) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """:func:`judge_joints`'s verdicts, each labelled person's true partner (-1: none) and
+    the true people stacked."""
     labels = _stack(labelled_people)
     truth = _stack(truth_people)
+    partner = np.full(len(labels), -1, dtype=np.int64)
     if labels.size == 0:
-        return np.zeros(labels.shape[:2], dtype=np.int8)
+        return np.zeros(labels.shape[:2], dtype=np.int8), partner, truth
     on = labels[:, :, 2] > 0
     out = np.where(on, -1, 0).astype(np.int8)
     if truth.size == 0:
-        return out
+        return out, partner, truth
     xy = np.where(on[:, :, None], labels[:, :, :2], np.nan)
     areas = np.asarray(truth_areas, dtype=np.float64).reshape(-1)
     sig = np.asarray(sigmas, dtype=np.float64).reshape(-1)
@@ -150,12 +160,77 @@ def judge_joints(labelled_people: Any, truth_people: Any, truth_areas: Any,
     for i, j in zip(rows.tolist(), cols.tolist()):
         if similarity[i, j] <= 0:
             continue
+        partner[i] = j
         d2 = ((xy[i] - truth[j, :, :2]) ** 2).sum(axis=1)
         with np.errstate(invalid="ignore"):
             ks = np.exp(-d2 / (2.0 * areas[j] * (2.0 * sig) ** 2 + np.spacing(1)))
         right = on[i] & (truth[j, :, 2] > 0) & (ks >= KS_CORRECT)
         out[i] = np.where(right, 1, out[i])
-    return out
+    return out, partner, truth
+
+
+def wrong_for_training(labelled_people: Any, truth_people: Any, truth_areas: Any,
+                       sigmas: Any) -> np.ndarray:
+    """Which labelled people are wrong as training sees them.
+
+    Training reads a labelled joint as a target and an unlabelled one not at all: its loss
+    mask is zero there (:mod:`app.analysis.targets`, after Cao et al., CVPR 2017). So the
+    product's rule for a joint nobody can place is to *unlabel* it, and a person whose
+    unsure joints were unlabelled teaches the network nothing false. :func:`wrong_people`
+    (OKS 0.8, an unlabelled joint counted as not placed, as the COCO export writes it
+    ``0,0,0``) counts such a person as wrong, since OKS divides by the joints the truth
+    labels; that count stays the strict one, and this is the second one, from the rule.
+
+    Parameters
+    ----------
+    labelled_people, truth_people, truth_areas, sigmas
+        As for :func:`judge_joints` (a joint with ``v > 0`` is labelled).
+
+    Returns
+    -------
+    numpy.ndarray
+        ``(N,)`` bool: True where the labelled person is wrong.
+
+    Notes
+    -----
+    People are paired as :func:`judge_joints` pairs them (the assignment maximising summed
+    OKS over pairs with OKS above 0). A labelled person is *right* when it has a true partner,
+    every joint it labels is correct (:func:`judge_joints`: the partner labels it and the COCO
+    per-joint similarity ``ks`` is at least :data:`KS_CORRECT`), and no joint the partner
+    shows visible (``v = 2``) is left unlabelled. A true occluded joint (``v = 1``) left
+    unlabelled is not wrong: it is masked out of training, which is what the rule asks. A
+    person with no joint labelled, or with no partner (a duplicate, a fragment, a phantom),
+    is wrong. True people nobody labelled are not counted here (as in :func:`wrong_people`).
+    Whether a labelled joint is marked occluded or visible is not judged.
+
+    References
+    ----------
+    Per-joint similarity ``ks`` and the visibility flags: the COCO keypoint standard and
+    ``pycocotools.cocoeval.COCOeval.computeOks``; the loss mask: Cao et al., "Realtime
+    Multi-Person 2D Pose Estimation using Part Affinity Fields", CVPR 2017.
+
+    Examples
+    --------
+    Synthetic: two true people of two joints, the second's second joint occluded.
+
+    >>> truth = np.array([[[10.0, 10.0, 2], [20.0, 30.0, 2]], [[60.0, 10.0, 2], [70.0, 30.0, 1]]])
+    >>> labels = np.array([[[10.5, 10.0, 2], [0.0, 0.0, 0]],      # a visible joint unlabelled
+    ...                    [[60.0, 10.0, 2], [0.0, 0.0, 0]],      # the occluded one unlabelled
+    ...                    [[10.0, 11.0, 2], [20.0, 30.0, 2]]])   # right, all placed
+    >>> wrong_for_training(labels, truth, [400.0, 400.0], [0.1, 0.1]).tolist()
+    [True, False, False]
+    >>> wrong_people(np.where(labels[:, :, 2:] > 0, labels, np.nan), truth, [400.0, 400.0],
+    ...              [0.1, 0.1]).tolist()
+    [True, True, False]
+    """
+    verdict, partner, truth = _judged(labelled_people, truth_people, truth_areas, sigmas)
+    wrong = np.ones(len(verdict), dtype=bool)
+    for i, j in enumerate(partner.tolist()):
+        if j < 0 or not (verdict[i] != 0).any() or (verdict[i] < 0).any():
+            continue
+        shown = truth[j, :, 2] == 2
+        wrong[i] = bool((shown & (verdict[i] == 0)).any())
+    return wrong
 
 
 @dataclass(frozen=True)

@@ -67,13 +67,16 @@ the grouping on some frames and loses to the right one on others. On demo seeds 
 labelled joint (:func:`app.demo.evaluate.judge_joints`) is wrong again on the next frame, on
 the same dancer, in 28-51 % of cases, and its runs last 1.4-2.0 frames on average, against
 the 4 frames the network holds each error; a dancer with a wrong joint has some wrong joint on
-the next frame in 70-81 % of cases (``python -m app.demo.carrying --persistence``). That is
+the next frame in 70-81 % of cases (``python -m app.demo.carrying --persistence``). On seeds
+81-86: 41-62 % wrong again on the next frame, runs of 1.7-2.6 frames, 67-80 %. That is
 what bounds carrying a correction forward (the README's "Sequences"). We have measured no real
 network on real footage, so whether a real model's labelled errors last longer is not known
 here; the mean runs were chosen before carrying was measured and were not changed to meet its
 goal. As a check only (the demo is not generated so): with every mean run doubled, seeds
 61-63 gave wrong joints wrong again on the next frame in 53-62 % of cases, runs of 2.1-2.5
-frames, and carrying per person then saved 33.4 % of the actions.
+frames, and carrying per person then saved 33.4 % of the actions (measured before the
+whole-frame batch and the taking judged in actions; with them the held-out seeds 81-86 as
+generated give 23.3 %).
 
 The error model is our own (no published source); it is meant to look like network output to
 the grouping and to a person reading the maps, not to reproduce a particular network.

@@ -33,7 +33,7 @@ from typing import Any
 
 from app.analysis.triage.findings import Finding, labels_digest
 from app.errors import EditRefused, PosewrightError
-from app.jobs_findings import accept_label
+from app.jobs_findings import accept_label, finding_order, time_findings
 from app.model.edits import AddNote, DismissFinding, Edit, EditGroup, SetFrameState
 from app.model.labels import Frame, FrameState, Person
 from app.model.naming import Names
@@ -152,6 +152,17 @@ class Session:
         self._left: set[int] = set()
         #: Frames the walk comes back to after its last: their stops passed stay passed.
         self._revisits: set[int] = set()
+        #: Whether anyone in the project is on a track (None: not read yet; read once, then
+        #: set when a change of labels outside the walk puts someone on one); without
+        #: tracks there are no findings over time to read.
+        self._tracked: bool | None = None
+        #: Per frame, its findings over time as last computed; they depend on the labels of
+        #: the frames around, so any change of labels forgets them all (triage run again,
+        #: which changes no labels, keeps them).
+        self._over_time: dict[int, list[Finding]] = {}
+        #: Raised each time :attr:`_over_time` is forgotten: a read ahead computed before
+        #: is stale.
+        self._over_time_gen = 0
 
     # ------------------------------------------------------------------ frame
 
@@ -349,6 +360,18 @@ class Session:
         stored = self.project.findings(frame_id).get(frame_id)
         if stored is not None and digests.get(frame_id) == labels_digest(labels):
             found = [Finding.from_dict(d) for d in stored]
+            if self._tracked is None:
+                self._tracked = any(p.track is not None for ps in
+                                    self.project.people_by_frame().values() for p in ps)
+            if self._tracked:
+                # Findings over time are not stored (they depend on the frames around):
+                # computed here for this frame alone, as current_findings adds them.
+                if frame_id not in self._over_time:
+                    self._over_time[frame_id] = time_findings(
+                        self.project, [frame_id]).get(frame_id, [])
+                over_time = self._over_time[frame_id]
+                if over_time:
+                    found = sorted(found + over_time, key=finding_order)
         else:
             from app.jobs_findings import current_findings
 
@@ -460,12 +483,34 @@ class Session:
             if self._revision[frame_id] != token:
                 return None  # edited again before this started: a newer one follows
             try:
-                return self._read_stops(frame_id)
+                stops = self._read_stops(frame_id)
             except Exception:  # the walk goes on without them; the log says why
                 log.exception("computing the findings of frame %s again failed", frame_id)
                 return []
+            self._read_ahead_over_time(frame_id)
+            return stops
 
         self._background(job, partial(self.recomputed, frame_id, token))
+
+    def _forget_over_time(self) -> None:
+        self._over_time.clear()
+        self._over_time_gen += 1
+
+    def _read_ahead_over_time(self, frame_id: int) -> None:
+        """In a project with tracks, compute the findings over time of the frame the walk
+        goes to after ``frame_id`` (on the recompute's worker, so the step that shows that
+        frame does not); dropped if labels change meanwhile."""
+        nxt = self.walk.following(frame_id)
+        if not self._tracked or nxt is None or nxt in self._over_time:
+            return
+        gen = self._over_time_gen
+        try:
+            found = time_findings(self.project, [nxt]).get(nxt, [])
+        except Exception:  # the step computes them itself; the log says why
+            log.exception("reading ahead the findings over time of frame %s failed", nxt)
+            return
+        if gen == self._over_time_gen:
+            self._over_time.setdefault(nxt, found)
 
     def recomputed(self, frame_id: int, token: int, stops: list[Stop] | None) -> bool:
         """A recompute's result, delivered on the session's thread; dropped (False) when the
@@ -558,6 +603,7 @@ class Session:
         if done is None:
             return None
         self._stops[fid] = kept
+        self._forget_over_time()  # the frames around this one see its new labels
         self._dirty.add(fid)
         self._left.discard(fid)
         self._revision[fid] += 1
@@ -575,12 +621,17 @@ class Session:
     def labels_changed(self, frame_ids: Sequence[int]) -> None:
         """Labels changed outside the walk (an edit by hand, undo, a colleague): the stops of
         those frames are read again when next needed."""
+        outside = False
         for fid in frame_ids:
             if fid in self._applying:
                 continue
             own = self._own.get(fid)
             if own is not None and own == labels_digest(self.project.labels(fid)):
                 continue
+            outside = True
+            if self._tracked is False and any(p.track is not None
+                                              for p in self.project.people(fid)):
+                self._tracked = True  # a track was set here
             self._own.pop(fid, None)
             self._stops.pop(fid, None)
             self._dirty.discard(fid)
@@ -588,10 +639,17 @@ class Session:
             self._fresh.pop(fid, None)
             self._left.discard(fid)
             self.pending.discard(fid)
+        if outside:
+            self._forget_over_time()
 
-    def findings_changed(self) -> None:
-        """Triage ran again: read every frame's stops again, except those the walk holds
-        back for its own recompute."""
+    def findings_changed(self, labels: bool = False) -> None:
+        """Triage ran again (``labels``: or an import or new frames changed labels too):
+        read every frame's stops again, except those the walk holds back for its own
+        recompute."""
+        if labels:
+            self._forget_over_time()
+            if self._tracked is False:
+                self._tracked = None  # an import may bring tracks
         for fid in list(self._stops):
             if fid not in self._dirty:
                 self._stops.pop(fid)

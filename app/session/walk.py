@@ -29,6 +29,7 @@ from __future__ import annotations
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
+from app.analysis.triage.calibration import PROPOSE_AT
 from app.analysis.triage.findings import Finding, Fix, FixPreview
 from app.model.naming import join_words
 from app.wording import count
@@ -102,6 +103,14 @@ COVERED_KEY = "G:covered"
 #: At most this many people's fixes are written out on the grouped stop's card.
 GROUP_SHOWN = 4
 
+#: Kinds whose fixes place a joint left unlabelled here where the same track's frames around
+#: agree it is (:mod:`app.analysis.triage.temporal`): one joint each, many per frame in a
+#: video; a frame's are one stop (:data:`GAP_KEY`), accepted as one undo step.
+GAP_KINDS = ("joint-gap",)
+
+#: The key of a frame's stop that holds its :data:`GAP_KINDS` fixes.
+GAP_KEY = "G:gaps"
+
 
 def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
     """A frame's findings as stops, worst first; two or more of the :data:`GROUPED_KINDS`
@@ -119,11 +128,12 @@ def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
     ['a', 'G:covered', 'c']
     """
     stops: list[Stop] = []
-    members = tuple(f for f in found if f.kind in GROUPED_KINDS and f.fix is not None)
-    if len(members) >= 2:
-        found = [f for f in found if f not in members or f is members[0]]
-        stops.append(Stop(frame_id, COVERED_KEY, None, (), covered_text(members), None,
-                          members))
+    for key, kinds, say in ((COVERED_KEY, GROUPED_KINDS, covered_text),
+                            (GAP_KEY, GAP_KINDS, gap_text)):
+        members = tuple(f for f in found if f.kind in kinds and f.fix is not None)
+        if len(members) >= 2:
+            found = [f for f in found if f not in members or f is members[0]]
+            stops.append(Stop(frame_id, key, None, (), say(members), None, members))
     by_person: dict[int, list[Finding]] = {}
     for f in found:
         if f.kind in PER_PERSON_KINDS and f.fix is None and f.person_id is not None:
@@ -143,7 +153,7 @@ def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
     for f in found:
         grouped = next((g for g in stops if g.group[0] is f), None)
         out.append(grouped or Stop(f.frame_id, f.id, f.person_id, f.joints, f.text, f))
-    return _with_notes(out)
+    return _frame_notes(_with_notes(out))
 
 
 def covered_text(members: Sequence[Finding]) -> str:
@@ -178,6 +188,33 @@ unlabel): person 2's knees occluded; person 5's left wrist unlabelled"
                                  if more > 0 else ""))
 
 
+def gap_text(members: Sequence[Finding]) -> str:
+    """The sentence of a frame's stop of joints the frames around place: how many, on how
+    many people, and each person's joints by tag and name.
+
+    Examples
+    --------
+    >>> from app.analysis.triage.findings import FixPreview
+    >>> def f(person, joint):
+    ...     return Finding("x", 1, "joint-gap", person, person, (9,), (joint,), "t", (), 1.0,
+    ...                    0.7, Fix("place", (), FixPreview()), (person,), "x")
+    >>> import textwrap
+    >>> print(textwrap.fill(gap_text([f(2, "left wrist"), f(2, "left elbow"),
+    ...                               f(5, "right knee")]), 80))
+    the frames around place 3 joints unlabelled here, of 2 people: person 2's left
+    wrist and left elbow; person 5's right knee
+    """
+    by: dict[int | None, list[str]] = {}
+    for m in members:
+        by.setdefault(m.tag, []).extend(m.joint_names)
+    said = [f"person {tag}'s {join_words(names)}" for tag, names in
+            list(by.items())[:GROUP_SHOWN]]
+    more = sum(len(v) for v in list(by.values())[GROUP_SHOWN:])
+    return (f"the frames around place {count(len(members), 'joint')} unlabelled here, of "
+            f"{count(len(by), 'person', 'people')}: " + "; ".join(said)
+            + (f"; and {count(more, 'more joint')}" if more else ""))
+
+
 def group_action(fix: Fix) -> str:
     """What a grouped stop's fix does, in a few words, from its preview.
 
@@ -189,6 +226,8 @@ def group_action(fix: Fix) -> str:
     """
     p = fix.preview
     parts = []
+    if p.placed:
+        parts.append(f"place {count(len(p.placed), 'joint')}")
     if p.occluded:
         parts.append(f"mark {count(len(p.occluded), 'joint')} occluded")
     if p.unlabeled:
@@ -253,6 +292,76 @@ def _with_notes(stops: list[Stop]) -> list[Stop]:
         out.append(Stop(s.frame_id, f"P:{s.key}", s.person_id, joints, text, s.finding,
                         members))
     return out
+
+
+#: A finding without a fix is *weak* below this confidence (a fix of its kind would more
+#: likely not help, :data:`app.analysis.triage.calibration.PROPOSE_AT`).
+WEAK_BELOW = PROPOSE_AT
+
+
+def _frame_notes(stops: list[Stop]) -> list[Stop]:
+    """The frame's notes left without a card of their person's fix (:func:`_with_notes`)
+    cost at most one key together: weak ones (every finding below :data:`WEAK_BELOW`) ride
+    on the frame's last stop with a fix, after its sentence ("also on this frame, no fix:
+    ..."); the others (a missed person's partial body, a sure finding nobody could build a
+    fix for), and the weak ones of a frame without a fix, share one card of notes where the
+    first of them was, when there are two or more. Nothing is dropped: every finding stays
+    on a card (and in the Worklist's counts), and I dismisses a card's findings together.
+
+    The rider's fix is the host's alone; its key says which findings it holds, so a card
+    with a note raised after the walk passed the host is shown again.
+
+    Examples
+    --------
+    >>> from app.analysis.triage.findings import FixPreview
+    >>> def f(i, kind, person, fix=True, sure=0.9):
+    ...     x = Fix(f"give it to person {person + 1}", (), FixPreview()) if fix else None
+    ...     return Finding(i, 1, kind, person, person, (9,), ("left wrist",), f"t{i}", (),
+    ...                    1.0, sure, x, (person,), i)
+    >>> out = group_findings(1, [f("a", "wrong-owner", 1), f("b", "mirrored", 2, False, 0.2),
+    ...                          f("c", "mirrored", 3, False, 0.3)])
+    >>> [(s.key, [m.id for m in s.findings], s.fix.summary) for s in out]
+    [('a|b,c', ['a', 'b', 'c'], 'give it to person 2')]
+    >>> out[0].text
+    'ta; also on this frame, no fix proposed: tb; tc'
+    >>> out = group_findings(1, [f("m", "missed-person", None, False, 1.0),
+    ...                          f("b", "mirrored", 2, False, 0.2)])
+    >>> [(s.key, s.person_id, s.fix, s.text) for s in out]
+    [('N:m,b', None, None, '2 findings without a fix on this frame: tm; tb')]
+    """
+    hosts = [i for i, s in enumerate(stops) if s.fix is not None]
+    loose = [i for i, s in enumerate(stops) if s.fix is None and s.findings]
+    if not loose:
+        return stops
+    riders = [i for i in loose if all(f.confidence < WEAK_BELOW for f in stops[i].findings)
+              ] if hosts else []
+    own = [i for i in loose if i not in riders]
+    if len(own) < 2:
+        own = []
+    changed: dict[int, Stop] = {}
+    if riders:
+        at = hosts[-1]
+        host, extra = stops[at], [stops[i] for i in riders]
+        members = tuple(m for n in extra for m in n.findings)
+        text = host.text + "; also on this frame, no fix proposed: " + _said(extra)
+        changed[at] = Stop(host.frame_id, f"{host.key}|{','.join(m.id for m in members)}",
+                           host.person_id, host.joints, text, host.finding,
+                           host.findings + members)
+    if own:
+        extra = [stops[i] for i in own]
+        members = tuple(m for n in extra for m in n.findings)
+        text = (f"{count(len(members), 'finding')} without a fix on this frame: "
+                + _said(extra, NOTES_SHOWN + 1))
+        changed[own[0]] = Stop(extra[0].frame_id, f"N:{','.join(m.id for m in members)}",
+                               None, (), text, None, members)
+    gone = set(riders) | set(own[1:])
+    return [changed.get(i, s) for i, s in enumerate(stops) if i not in gone]
+
+
+def _said(notes: Sequence[Stop], shown: int = NOTES_SHOWN) -> str:
+    said = [n.text for n in notes[:shown]]
+    more = sum(len(n.findings) for n in notes[shown:])
+    return "; ".join(said) + (f"; and {count(more, 'more finding')}" if more else "")
 
 
 def _joined(findings: Sequence[Finding]) -> Fix | None:

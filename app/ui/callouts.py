@@ -231,6 +231,23 @@ def _beside(box: QRectF, size: tuple[float, float], bounds: QRectF) -> list[QRec
     return out
 
 
+def _corners(size: tuple[float, float], bounds: QRectF) -> list[QRectF]:
+    """A card of ``size`` in each corner of ``bounds``: top left, top right, bottom left,
+    bottom right."""
+    w, h = size
+    left, right = bounds.left() + 4, bounds.right() - w - 4
+    top, bottom = bounds.top() + 4, bounds.bottom() - h - 4
+    return [QRectF(x, y, w, h) for y in (top, bottom) for x in (left, right)]
+
+
+def card_places(box: QRectF, size: tuple[float, float], bounds: QRectF) -> list[QRectF]:
+    """Where the walk's card may go, in order of preference: above (else below) ``box`` to
+    its side (:func:`_place`), then beside it (:func:`_beside`), then the view's corners. When
+    the people concerned fill the view, a place beside them covers them; a corner may not."""
+    return [_place(box, size, bounds, below=False), *_beside(box, size, bounds),
+            *_corners(size, bounds)]
+
+
 def least_covering(options: Sequence[QRectF], keep_clear: Sequence[QPointF],
                    avoid: QRectF | None = None) -> QRectF:
     """The first of ``options`` that covers the fewest ``keep_clear`` points, never one that
@@ -242,9 +259,11 @@ def least_covering(options: Sequence[QRectF], keep_clear: Sequence[QPointF],
 
 
 def paint_walk_card(painter: QPainter, card: WalkCard, box: QRectF, bounds: QRectF,
-                    base: QFont) -> QRectF:
+                    base: QFont, keep_clear: Sequence[QPointF] = ()) -> QRectF:
     """The finding's sentence and what the keys do, in a card beside ``box`` (screen
-    pixels). Returns where the card went."""
+    pixels), at the first of :func:`card_places` that covers the fewest ``keep_clear``
+    points (the joints the stop is about and where its fix would put them, so the preview
+    stays in sight). Returns where the card went."""
     stop = card.stop
     fix = stop.fix
     where = f" {card.where}" if card.where else ""
@@ -271,7 +290,7 @@ def paint_walk_card(painter: QPainter, card: WalkCard, box: QRectF, bounds: QRec
     r_tail = m_head.boundingRect(0, 0, inner, 1000, flags, tail)
     width = max(r_text.width(), r_tail.width(), m_head.horizontalAdvance(head)) + 16
     height = m_head.height() + r_text.height() + r_tail.height() + 20
-    rect = _place(box, (width, height), bounds, below=False)
+    rect = least_covering(card_places(box, (width, height), bounds), keep_clear)
     painter.save()
     painter.setRenderHint(QPainter.RenderHint.Antialiasing, True)
     painter.setPen(QPen(ACCENT, 1.5))

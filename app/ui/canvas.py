@@ -900,6 +900,7 @@ class Canvas(QWidget):
     def _paint_callouts(self, p: QPainter) -> None:
         """The walk's card with its fix previewed, and the owner list beside the joint."""
         card = None
+        about: list[QPointF] = []
         names = Names.of_frame(self.skeleton, [q.id for q in self.people])
         if self.walk_card is not None and not self.showing_theirs:
             stop = self.walk_card.stop
@@ -913,7 +914,9 @@ class Canvas(QWidget):
                 box = QRectF(a, b).adjusted(-8, -8, 8, 8)
             else:
                 box = QRectF(self.width() / 2 - 1, 40.0, 2.0, 2.0)
-            card = paint_walk_card(p, self.walk_card, box, QRectF(self.rect()), self.font())
+            about = [self.image_to_screen(*q) for q in pts]
+            card = paint_walk_card(p, self.walk_card, box, QRectF(self.rect()), self.font(),
+                                   about)
         self.owner_rows = []
         joint = self.selected_joint
         if self.owners is not None and joint is not None and len(self.selection.joints) == 1:
@@ -922,7 +925,7 @@ class Canvas(QWidget):
                 at = self.image_to_screen(*person.keypoints[joint[1], :2])
                 self.owner_rows = paint_owner_list(p, self.owners, names, self.colours, at,
                                                     QRectF(self.rect()), self.font(), card,
-                                                    self._connector_points())
+                                                    self._connector_points() + about)
 
     def _connector_points(self) -> list[QPointF]:
         """Screen points along each dispute connector (both ends and between), which the owner

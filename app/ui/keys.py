@@ -66,6 +66,9 @@ KEYS: tuple[Key, ...] = (
     Key("Frames", "carry_forward", "Carry the correction",
         "Carry your newest correction to the frames around it where the same tracks show "
         "the same error (one undo step)", ("Ctrl+Shift+C",)),
+    Key("Frames", "carry_frame", "Carry the frame's corrections",
+        "Carry every correction of the frame, of every person, to the frames around it where "
+        "the same tracks show the same error (one undo step)", ("Ctrl+Alt+C",)),
     Key("Frames", "write_note", "Write a note",
         "Write a note in this frame's thread: Return adds it, Esc keeps it as a draft; either "
         "way the keys go back to the Canvas", ("C",)),

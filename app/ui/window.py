@@ -301,6 +301,7 @@ class MainWindow(QMainWindow):
             "next_in_track": lambda: self.step_track(1),
             "prev_in_track": lambda: self.step_track(-1),
             "carry_forward": self.carry_forward,
+            "carry_frame": lambda: self.carry_forward(whole_frame=True),
             "clear_selection": self._escape,
             "give_best": editing("give_to_best"),
             "next_finding": lambda: self.session.step(1),
@@ -410,7 +411,8 @@ class MainWindow(QMainWindow):
                       "mark_unlabeled", "place_joint", None, "new_person", "split_person",
                       "swap_sides", "merge_people", "delete_person", None, "region_mode"],
             "&Frame": ["next_frame", "prev_frame", "next_in_track", "prev_in_track", None,
-                       "mark_disputed", "sign_off", "write_note", "carry_forward", None,
+                       "mark_disputed", "sign_off", "write_note", "carry_forward",
+                       "carry_frame", None,
                        "next_person", "prev_person", "clear_selection"],
             "&View": ["focus_mode", "show_unlabeled", "show_tags", None, "fit", "actual_size",
                       "zoom_in", "zoom_out"],
@@ -665,7 +667,7 @@ class MainWindow(QMainWindow):
             self.worklist_model.reload_claims()
             return
         if kind in ("import", "frames", "triage"):
-            self.session.findings_changed()
+            self.session.findings_changed(labels=kind != "triage")
             self.worklist_model.reload()
             if self.frame_id is not None:
                 self.worklist.show_frame(self.frame_id)
@@ -817,24 +819,27 @@ class MainWindow(QMainWindow):
         track = next((p.track for p in self.canvas.people if p.id == there), None)
         self._message(f"track {track}: frame {place} of {length}")
 
-    def carry_forward(self) -> None:
-        """Carry the newest correction to the frames around it that show the same error, as
-        one undo step, and say where the batch ends."""
+    def carry_forward(self, whole_frame: bool = False) -> None:
+        """Carry the newest correction (with ``whole_frame``: every correction of its frame)
+        to the frames around it that show the same error, as one undo step, and say where
+        the batch ends."""
         from app.jobs_tracks import last_correction, propose_carry, take_batch
 
         ok, batch = self._attempt(lambda: propose_carry(
-            self.project, *last_correction(self.project)[1:]))
+            self.project, *last_correction(self.project)[1:], whole_frame=whole_frame))
         if not ok:
             return
+        what = "corrections" if whole_frame else "correction"
         if not batch.edits:
-            self._message(f"the correction of frame {batch.origin} shows in no frame around it")
+            self._message(f"the {what} of frame {batch.origin} "
+                          f"{'show' if whole_frame else 'shows'} in no frame around it")
             return
         ok, _ = self._attempt(lambda: take_batch(self.project, batch))
         if ok:
             self._show_carry(batch, taken=True)
             ends = [str(f) for f in (batch.stopped_backward, batch.stopped_forward)
                     if f is not None]
-            self._message(f"carried the correction of frame {batch.origin} to "
+            self._message(f"carried the {what} of frame {batch.origin} to "
                           f"{count(len(batch.edits), 'frames')}"
                           + (f"; the error is absent from frame {' and '.join(ends)}"
                              if ends else ""))

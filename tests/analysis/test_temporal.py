@@ -102,3 +102,43 @@ def test_a_dismissed_finding_over_time_is_not_raised_again():
     frames[5] = TrackedFrame(6, frames[5].people, frames[5].tracks,
                              frozenset({finding.fingerprint}))
     assert sequence_findings(frames, SKELETON) == {}
+
+
+def test_a_joint_unlabelled_here_is_placed_where_the_frames_around_put_it():
+    """A hidden joint unlabelled in one frame of a track that labels it around: placed at
+    the two nearest frames' joint carried along with the body (for dancers walking at a
+    steady pace, the true place), occluded when they label it occluded."""
+    people = sequences.dancers()
+    true_place = people[5, 1, LEFT_WRIST, :2].copy()
+    people[5, 1, LEFT_WRIST] = (0.0, 0.0, 0)
+    people[4, 1, LEFT_WRIST, 2] = 1  # occluded in the frame before
+    (finding,) = _all(sequence_findings(_frames(people), SKELETON))
+    assert (finding.kind, finding.frame_id, finding.joints) == ("joint-gap", 6, (LEFT_WRIST,))
+    move, occlude = finding.fix.edits
+    assert isinstance(move, MoveJoint) and (move.person_id, move.joint) == \
+        (sequences.pid(5, 1), LEFT_WRIST)
+    assert np.hypot(move.x - true_place[0], move.y - true_place[1]) < 2.0
+    assert occlude == SetVisibility(6, sequences.pid(5, 1), LEFT_WRIST, 1)
+    assert finding.confidence >= 0.5 and "frames 5 and 7 of track 2" in finding.text
+
+
+def test_a_joint_unlabelled_where_the_frames_around_disagree_stays_unlabelled():
+    """The nearest frames put the joint 0.13 of a body apart (more than AGREE): nothing is
+    proposed; the joint stays unlabelled, which training ignores (synthetic)."""
+    people = sequences.dancers()
+    people[5, 1, LEFT_WRIST] = (0.0, 0.0, 0)
+    people[6:, 1, LEFT_WRIST, 1] -= 20.0
+    assert sequence_findings(_frames(people), SKELETON) == {}
+
+
+def test_findings_asked_for_at_some_frames_are_those_of_the_whole_sequence_there():
+    """``at`` builds only the findings at the frames asked for, the same as computed for
+    the whole sequence (a gap, a jump and an unlabelled joint put in by hand)."""
+    people = sequences.dancers()
+    people[5, 1, LEFT_WRIST] = (0.0, 0.0, 0)
+    people[8, 0, LEFT_WRIST, 0] += 60.0
+    frames = _frames(people, missing={(3, 2)})
+    whole = sequence_findings(frames, SKELETON)
+    assert {6, 9, 4} <= set(whole)
+    for fid in whole:
+        assert sequence_findings(frames, SKELETON, at=[fid]) == {fid: whole[fid]}

@@ -15,7 +15,7 @@ from scipy.optimize import linear_sum_assignment
 
 from app.analysis.association import group_people
 from app.analysis.similarity import match_people
-from app.demo.evaluate import wrong_people
+from app.demo.evaluate import KS_CORRECT, wrong_for_training, wrong_people
 from app.model.skeleton import coco_body
 
 SIGMAS = coco_body().sigma_array
@@ -72,6 +72,49 @@ def test_agrees_with_pycocotools_and_scipy() -> None:
     got = wrong_people(auto, truth, areas, SIGMAS)
     np.testing.assert_array_equal(got, expected)
     assert 2 <= got.sum() <= 5
+
+
+def test_wrong_for_training_follows_the_loss_mask_rule() -> None:
+    """The count of people wrong as training sees them: an occluded true joint (COCO v=1)
+    left unlabelled is masked out of the loss and not wrong; a visible one (v=2) left
+    unlabelled is; a labelled joint farther than per-joint similarity 0.5 is, that
+    similarity checked against pycocotools' computeOks on a one-joint truth (where OKS is
+    that joint's similarity). Synthetic people; the rule is the product's (unlabel what
+    cannot be seen), the loss mask after Cao et al., CVPR 2017."""
+    rng = np.random.default_rng(3)
+    truth = np.zeros((2, 17, 3))
+    truth[:, :, :2] = rng.uniform(50, 150, (2, 17, 2)) + np.array([[[0.0, 0.0]], [[300.0, 0.0]]])
+    truth[:, :, 2] = 2
+    hidden = [9, 10, 15, 16]
+    truth[1, hidden, 2] = 1  # the second person's wrists and ankles are occluded
+    areas = np.array([6000.0, 6000.0])
+    right = truth.copy()
+    occluded_unlabelled = truth[1].copy()
+    occluded_unlabelled[hidden] = (0.0, 0.0, 0)
+    visible_unlabelled = truth[0].copy()
+    visible_unlabelled[9] = (0.0, 0.0, 0)
+    far = truth[0].copy()
+    # A shift whose similarity for the left wrist (sigma 0.062) is just under 0.5:
+    # ks = exp(-d^2 / (2 area (2 sigma)^2)) < 0.5 when d^2 > 2 ln 2 area (2 sigma)^2.
+    d = 1.05 * np.sqrt(2 * np.log(2) * areas[0] * (2 * SIGMAS[9]) ** 2)
+    far[9, 0] += d
+    one = np.zeros((1, 17, 3))
+    one[0, 9] = truth[0, 9]
+    ks = _pycocotools_oks(far[None], one, areas[:1])[0, 0]
+    assert ks < KS_CORRECT < _pycocotools_oks(truth[:1], one, areas[:1])[0, 0]
+
+    def verdict(person, other):
+        return wrong_for_training(np.stack([person, other]), truth, areas, SIGMAS).tolist()
+
+    assert verdict(right[0], right[1]) == [False, False]
+    assert verdict(right[0], occluded_unlabelled) == [False, False]
+    assert verdict(visible_unlabelled, right[1]) == [True, False]
+    assert verdict(far, right[1]) == [True, False]
+    strict = np.where(occluded_unlabelled[:, 2:] > 0, occluded_unlabelled, np.nan)
+    assert wrong_people(np.stack([right[0], strict]), truth, areas, SIGMAS).tolist() == [
+        False, True], "the strict count (OKS 13/17 < 0.8) counts the unlabelled joints as missed"
+    twice = np.stack([right[0], right[1], right[1] + np.array([1.0, 0.0, 0.0])])
+    assert wrong_for_training(twice, truth, areas, SIGMAS).tolist() == [False, False, True]
 
 
 def test_empty_sides() -> None:

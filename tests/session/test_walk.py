@@ -49,3 +49,38 @@ def test_going_to_another_frame_by_hand_restarts_the_walk_there():
     walk = Walk(lambda: [5, 8, 2], lambda f: stops[f])
     walk.step(1, 5)
     assert walk.step(1, 2).key == "c"
+
+
+def _finding(i, kind, person, fix, sure):
+    """An invented finding about one joint (synthetic)."""
+    from app.analysis.triage.findings import Finding, Fix, FixPreview
+
+    made = Fix(f"fix {i}", (), FixPreview()) if fix else None
+    return Finding(i, 1, kind, person, person, (9,), ("left wrist",), f"t{i}", (), 1.0, sure,
+                   made, () if person is None else (person,), i)
+
+
+def test_a_frames_notes_without_a_fix_cost_at_most_one_key_and_none_is_dropped():
+    """Our own rule (app/session/walk.py, _frame_notes): a person's notes ride on their fix;
+    other weak notes (below PROPOSE_AT) ride on the frame's last stop with a fix; the rest
+    share one card; every finding stays on exactly one stop. Synthetic findings."""
+    from app.session.walk import WEAK_BELOW, group_findings
+
+    found = [_finding("a", "wrong-owner", 1, True, 0.9),
+             _finding("b", "mirrored", 2, False, WEAK_BELOW - 0.3),
+             _finding("c", "missed-person", None, False, 1.0),
+             _finding("d", "duplicate", 3, True, 0.8),
+             _finding("e", "crossed-sides", 4, False, 0.05),
+             _finding("f", "missing-joint", 1, False, 0.9),
+             _finding("g", "missed-person", None, False, 0.95)]
+    stops = group_findings(1, found)
+    held = [f.id for s in stops for f in s.findings]
+    assert sorted(held) == sorted(f.id for f in found), "each finding on one stop"
+    assert sum(s.fix is None for s in stops) == 1, "one card of notes for the frame"
+    by = {s.findings[0].id: s for s in stops}
+    assert [f.id for f in by["a"].findings] == ["a", "f"], "the person's note on their fix"
+    assert [f.id for f in by["d"].findings] == ["d", "b", "e"], "weak notes on the last fix"
+    assert by["d"].fix.summary == "fix d" and "also on this frame" in by["d"].text
+    assert [f.id for f in by["c"].findings] == ["c", "g"] and by["c"].person_id is None
+    without = group_findings(1, [found[1], found[4]])
+    assert len(without) == 1 and without[0].fix is None, "weak notes alone share one card"

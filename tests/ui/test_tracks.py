@@ -36,3 +36,13 @@ def test_alt_arrows_step_along_the_selected_track_and_ctrl_shift_c_carries(qtbot
     project.undo()
     assert all(p.sources[5] == "auto" for f in (1, 3, 4) for p in project.people(f)
                if p.track == track)
+    # Another person swapped too: Ctrl+Alt+C carries both of the frame's corrections, one
+    # action over the three other frames.
+    other = next(p for p in window.canvas.people if p.id != chosen)
+    window.apply(SwapSides(2, other.id))
+    qtbot.keyClick(window.canvas, Qt.Key.Key_C, Qt.KeyboardModifier.ControlModifier
+                   | Qt.KeyboardModifier.AltModifier)
+    qtbot.waitUntil(lambda: "carried the corrections of frame 2 to 3 frames" in
+                    window.status_log, timeout=WAIT_MS)
+    assert all(p.sources[5] == "ana" for f in (1, 3, 4) for p in project.people(f)
+               if p.track in (track, other.track))

@@ -113,6 +113,26 @@ def test_the_owner_list_goes_where_it_covers_fewest_connector_points():
     assert not chosen.intersects(card) and not any(chosen.contains(q) for q in below_right)
 
 
+def test_the_walk_card_leaves_the_people_it_is_about_in_sight():
+    """When the people concerned fill the view, every place beside them covers them; the card
+    then goes to the view's corner that covers the fewest of their joints (synthetic points,
+    invented here; our own rule, no outside source)."""
+    from PySide6.QtCore import QPointF, QRectF
+
+    from app.ui.callouts import card_places, least_covering
+
+    bounds = QRectF(0, 0, 730, 470)
+    # Joints spread over the view except its top-left corner.
+    about = [QPointF(x, y) for x in range(400, 720, 40) for y in range(20, 460, 40)]
+    about += [QPointF(x, y) for x in range(20, 400, 40) for y in range(220, 460, 40)]
+    box = QRectF(10, 10, 710, 450)
+    places = card_places(box, (380, 150), bounds)
+    assert least_covering(places, []) == places[0], "the usual place when nothing is covered"
+    chosen = least_covering(places, about)
+    assert not any(chosen.contains(q) for q in about)
+    assert chosen.left() < 10 and chosen.top() < 10, "the top-left corner is the free one"
+
+
 def test_work_posted_after_paint_runs_after_the_repaint_under_way(qtbot):
     """The recompute and the maps read ahead start below Qt's repaint priority: a repaint
     asked for before or after the post is painted first (Qt's posted-event priorities)."""

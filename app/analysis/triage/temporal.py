@@ -20,6 +20,15 @@ a proposed fix:
 ``flipped-stretch``
     Left and right flip for a few frames (at most :data:`MAX_FLIP`) and flip back. Fix: swap
     the person's sides in every frame of the stretch.
+``joint-gap``
+    A joint is unlabelled here (often a hidden joint, or an invented spot that was
+    unlabelled) while the same track labels it in the frames around: the two nearest such
+    frames within :data:`GAP_REACH`, each carried along with the body (the median motion
+    of the joints both frames label). Fix, when the two agree within :data:`AGREE` of the
+    body: place the joint between them, with the lower of their two visibilities (a joint
+    hidden around stays occluded). When they do not agree nothing is raised: the joint
+    stays unlabelled, which training ignores. Strength: how well they agree (1 when they
+    put it at one spot, 0 at :data:`AGREE` apart).
 
 Fixes of the first and last kinds name more than one frame; the store applies them as one
 action (:meth:`app.store.project.Project.apply_batch`).
@@ -84,13 +93,15 @@ FLIP = 0.05
 MAX_FLIP = 5
 #: The most frames a track may miss for the gap to be filled.
 MAX_MISSING = 2
+#: A joint gap is filled from the nearest frames at most this far (in frames) on either side.
+GAP_REACH = 3
 #: A person already in a missing frame where the interpolated one would go (OKS at least
 #: this) means the track is not missing there, only unlinked.
 PRESENT_OKS = 0.5
 #: Confidence by kind: ``(at strength 0, at strength 1)``, linear in between (set by hand).
 CONFIDENCE: dict[str, tuple[float, float]] = {
     "exchanged-tracks": (0.55, 0.95), "flipped-stretch": (0.5, 0.9),
-    "missing-frames": (0.55, 0.8), "jumping-joint": (0.5, 0.9)}
+    "missing-frames": (0.55, 0.8), "jumping-joint": (0.5, 0.9), "joint-gap": (0.5, 0.8)}
 
 
 @dataclass(frozen=True)
@@ -105,7 +116,8 @@ class TrackedFrame:
 
 
 def sequence_findings(frames: Sequence[TrackedFrame], skeleton: Skeleton,
-                      kinds: Iterable[str] | None = None) -> dict[int, list[Finding]]:
+                      kinds: Iterable[str] | None = None,
+                      at: Iterable[int] | None = None) -> dict[int, list[Finding]]:
     """The findings over time of one sequence, by the frame each is found at.
 
     Parameters
@@ -116,6 +128,9 @@ def sequence_findings(frames: Sequence[TrackedFrame], skeleton: Skeleton,
         The project's skeleton (sigmas, flip pairs, joint names).
     kinds
         Only these kinds (default all of :data:`TIME_KINDS`).
+    at
+        Only the findings found at these frame ids (default every frame's); the others are
+        not built, which is most of the cost, and those asked for are the same either way.
 
     Returns
     -------
@@ -124,7 +139,7 @@ def sequence_findings(frames: Sequence[TrackedFrame], skeleton: Skeleton,
         dismissed in its frame is left out.
     """
     wanted = set(TIME_KINDS if kinds is None else kinds)
-    seq = _Sequence(frames, skeleton)
+    seq = _Sequence(frames, skeleton, at)
     found: list[Finding] = []
     if "exchanged-tracks" in wanted:
         found += seq.exchanges()
@@ -136,6 +151,8 @@ def sequence_findings(frames: Sequence[TrackedFrame], skeleton: Skeleton,
         found += seq.gaps()
     if "jumping-joint" in wanted:
         found += seq.jumps(flipped)
+    if "joint-gap" in wanted:
+        found += seq.joint_gaps()
     out: dict[int, list[Finding]] = {}
     dismissed = {f.frame_id: f.dismissed for f in frames}
     for f in found:
@@ -166,8 +183,12 @@ def _motion(a: np.ndarray, b: np.ndarray) -> np.ndarray:
 
 
 class _Sequence:
-    def __init__(self, frames: Sequence[TrackedFrame], skeleton: Skeleton):
+    def __init__(self, frames: Sequence[TrackedFrame], skeleton: Skeleton,
+                 at: Iterable[int] | None = None):
         self.frames = list(frames)
+        wanted = None if at is None else set(at)
+        #: Whether findings at each index are built (:func:`sequence_findings`' ``at``).
+        self.wanted = [wanted is None or f.frame_id in wanted for f in self.frames]
         self.skeleton = skeleton
         self.sigmas = np.asarray(skeleton.sigmas, dtype=np.float64)
         #: track -> {index in the sequence: person id}
@@ -212,6 +233,8 @@ class _Sequence:
     def exchanges(self) -> list[Finding]:
         out = []
         for i in range(1, len(self.frames)):
+            if not self.wanted[i]:
+                continue
             both = sorted(t for t, at in self.tracks.items() if i in at and i - 1 in at)
             if len(both) < 2:
                 continue
@@ -300,7 +323,8 @@ class _Sequence:
                 if any((t, k) in covered for k in stretch):
                     continue
                 covered |= {(t, k) for k in stretch}
-                out.append(self._flip(t, s, e, rel[s], rel[e + 1]))
+                if self.wanted[s]:
+                    out.append(self._flip(t, s, e, rel[s], rel[e + 1]))
         return out, covered
 
     def _flip(self, t: int, s: int, e: int, into: float, back: float) -> Finding:
@@ -333,6 +357,8 @@ class _Sequence:
                 if both.sum() < 3:
                     continue
                 for m in range(i0 + 1, i1):
+                    if not self.wanted[m]:
+                        continue
                     w = (m - i0) / (i1 - i0)
                     kp = np.zeros_like(a)
                     kp[:, :2] = np.nan
@@ -372,7 +398,7 @@ class _Sequence:
         out = []
         for t, at in sorted(self.tracks.items()):
             for i in sorted(at):
-                if i - 1 not in at or i + 1 not in at or (t, i) in skip:
+                if i - 1 not in at or i + 1 not in at or (t, i) in skip or not self.wanted[i]:
                     continue
                 before, now, after = (self.kp(k, at[k]) for k in (i - 1, i, i + 1))
                 size = _size(now)
@@ -413,4 +439,64 @@ class _Sequence:
         return self.finding(i, "jumping-joint", pid, (j,), text,
                             (("jump", jump / size), ("neighbours apart", apart)),
                             min((jump / size - JUMP) / (2 * JUMP), 1.0), edits, (pid,),
+                            [t, j], fix)
+
+    # ------------------------------------------------------------------ joint gaps
+
+    def joint_gaps(self) -> list[Finding]:
+        out = []
+        for t, at in sorted(self.tracks.items()):
+            for i in sorted(at):
+                if not self.wanted[i]:
+                    continue
+                now = self.kp(i, at[i])
+                size = _size(now)
+                if size <= 0 or (now[:, 2] > 0).sum() < 3:
+                    continue
+                for j in np.flatnonzero(now[:, 2] <= 0).tolist():
+                    near = self._carried(at, i, j, now)
+                    if len(near) == 2 and np.linalg.norm(near[0][1] - near[1][1]) <= \
+                            AGREE * size:  # frames that disagree: it stays unlabelled
+                        out.append(self._joint_gap(t, i, j, size, near))
+        return out
+
+    def _carried(self, at: Mapping[int, int], i: int, j: int,
+                 now: np.ndarray) -> list[tuple[int, np.ndarray, int]]:
+        """The two nearest frames of the track within :data:`GAP_REACH` that label joint
+        ``j`` (nearer first, the earlier first at equal distance), each as ``(index, the
+        joint carried here along with the body, its visibility)``."""
+        near: list[tuple[int, np.ndarray, int]] = []
+        for d in range(1, GAP_REACH + 1):
+            for k in (i - d, i + d):
+                if k not in at or len(near) == 2:
+                    continue
+                other = self.kp(k, at[k])
+                both = (other[:, 2] > 0) & (now[:, 2] > 0)
+                if other[j, 2] <= 0 or both.sum() < 3 or not np.isfinite(other[j, :2]).all():
+                    continue
+                near.append((k, other[j, :2] + _motion(other, now), int(other[j, 2])))
+        return near
+
+    def _joint_gap(self, t: int, i: int, j: int, size: float,
+                   near: Sequence[tuple[int, np.ndarray, int]]) -> Finding:
+        pid = self.tracks[t][i]
+        frame = self.frames[i].frame_id
+        (ka, a, va), (kb, b, vb) = near
+        apart = float(np.linalg.norm(a - b)) / size
+        names = self.names(i)
+        joint = names.joint(j)
+        fa, fb = self.frames[ka].frame_id, self.frames[kb].frame_id
+        x, y = (0.5 * (a + b)).tolist()
+        v = min(va, vb)
+        edits: list[Edit] = [MoveJoint(frame, pid, j, x, y)]
+        if v == 1:
+            edits.append(SetVisibility(frame, pid, j, 1))
+        how = "occluded" if v == 1 else "visible"
+        whose = f"{names.person(pid)}'s {joint}"
+        fix = f"place {whose} where the frames around put it ({how})"
+        text = (f"{whose}: unlabelled here, but frames {fa} and {fb} of track {t} label it and "
+                f"agree where it is ({apart:.2f} of a body apart)")
+        return self.finding(i, "joint-gap", pid, (j,), text,
+                            (("neighbours apart", apart), ("frames away", abs(ka - kb))),
+                            float(np.clip(1.0 - apart / AGREE, 0.0, 1.0)), edits, (pid,),
                             [t, j], fix)
