@@ -28,7 +28,7 @@ from app.errors import BadInput, Cancelled, PosewrightError, ProjectLocked
 from app.fileio import MAX_ID, json_ready, read_json
 from app.model.labels import FrameState
 from app.model.naming import Names, ledger_names
-from app.parallel import check_workers
+from app.parallel import check_workers, head_start, keep_freed_memory
 from app.progress import Progress
 from app.safetext import shown
 from app.wording import count, count_phrase, ledger_text
@@ -342,21 +342,37 @@ def _check_demo_target(out: Path, force: bool) -> None:
 
 
 def cmd_import_maps(args: argparse.Namespace) -> int:
+    workers = check_workers(args.workers)
+    keep_freed_memory()  # this process ends with the job (app/parallel.py)
+    # Before the job's imports: the workers' own start runs beside them (app/parallel.py).
+    head_start("app.jobs_analysis._group_maps", _files_ending(args.dir, ".npz"), workers)
     from app.jobs_analysis import import_maps
 
     with _open(args) as project:
         stats = import_maps(project, args.dir, progress=_stderr_progress(args.quiet),
-                            workers=check_workers(args.workers))
+                            workers=workers)
     return _report_counts(args, stats)
 
 
-def cmd_triage(args: argparse.Namespace) -> int:
-    from app.jobs_analysis import run_triage
-    from app.jobs_findings import time_findings
+def _files_ending(folder: str | Path, suffix: str) -> int:
+    """How many entries of ``folder`` end with ``suffix`` (0 when it does not read): a job's
+    size, told before the job reads anything."""
+    try:
+        with os.scandir(folder) as entries:
+            return sum(1 for e in entries if e.name.endswith(suffix))
+    except OSError:
+        return 0
 
+
+def cmd_triage(args: argparse.Namespace) -> int:
+    workers = check_workers(args.workers)
+    keep_freed_memory()
     with _open(args) as project:
-        results = run_triage(project, progress=_stderr_progress(args.quiet),
-                             workers=check_workers(args.workers))
+        head_start("app.jobs_analysis._triage_one", project.frame_count(), workers)
+        from app.jobs_analysis import run_triage
+        from app.jobs_findings import time_findings
+
+        results = run_triage(project, progress=_stderr_progress(args.quiet), workers=workers)
         frames = {f.id: f for f in project.frames()}
         over_time = time_findings(project)
     ranked = sorted(results.items(), key=lambda kv: (-kv[1].score, kv[0]))
@@ -388,10 +404,17 @@ def cmd_targets(args: argparse.Namespace) -> int:
     settings = TargetSettings(stride=args.stride, sigma=args.sigma, limb_width=args.limb_width,
                               dtype=args.dtype)
     settings.check()
+    from app.store.frames import FrameQuery
+
+    workers = check_workers(args.workers)
+    keep_freed_memory()
+    states = _states(args.states)
     with _open(args, write=False) as project:
-        stats = export_targets(project, args.out_dir, settings, states=_states(args.states),
-                               progress=_stderr_progress(args.quiet),
-                               workers=check_workers(args.workers))
+        head_start("app.jobs_analysis._write_targets",
+                   project.frame_count(FrameQuery(states=None if states is None
+                                                  else tuple(states))), workers)
+        stats = export_targets(project, args.out_dir, settings, states=states,
+                               progress=_stderr_progress(args.quiet), workers=workers)
     _warn_export(stats)
     note = left_out_note(stats)
     print(f"wrote {count(stats['frames'], 'frames')} of training targets to "
@@ -426,15 +449,17 @@ def _check_targets(args: argparse.Namespace) -> int:
 
 
 def cmd_prelabel(args: argparse.Namespace) -> int:
-    from app.inference.prelabel import parse_frames, prelabel
-
+    workers = check_workers(args.workers)
+    keep_freed_memory()
     with _open(args) as project:
+        head_start("app.inference.prelabel._prelabel_one", project.frame_count(), workers)
+        from app.inference.prelabel import parse_frames, prelabel
+
         frames = None
         if args.frames is not None:
             frames = [f.id for f in parse_frames(args.frames, project.frames())]
         stats = prelabel(project, args.model, args.config, frames=frames,
-                         progress=_stderr_progress(args.quiet),
-                         workers=check_workers(args.workers))
+                         progress=_stderr_progress(args.quiet), workers=workers)
     if args.json:
         print_json(stats)
     else:

@@ -24,7 +24,9 @@ Workers are started by a fork server (a fresh interpreter that forks them, so th
 of the app or of a database pool are never copied) where the system has one, else spawned.
 The fork server imports :data:`PRELOAD` (the batch jobs' modules, hence the app, numpy and
 OpenCV) once, when this process starts its first pool (or, for a job of so many items that
-a pool pays whatever they take, as soon as the job starts: :data:`_LEAST_ITEM_SECONDS`);
+a pool pays whatever they take, as soon as the job starts, or earlier, when the command
+calls :func:`head_start`: :data:`_LEAST_ITEM_SECONDS`; such a job asks for its pool once two
+items have run, without timing them for :data:`_PROBE_SECONDS`);
 every worker is then a fork of it that imports nothing more, so a later pool is up in a
 fraction of a second.
 """
@@ -45,7 +47,7 @@ from app.errors import BadInput
 from app.progress import Progress
 
 __all__ = ["POOL_START_SECONDS", "PRELOAD", "PRELOAD_FOR", "WORKERS_ENV", "check_workers",
-           "default_workers", "ordered_map"]
+           "default_workers", "head_start", "keep_freed_memory", "ordered_map"]
 
 log = logging.getLogger(__name__)
 
@@ -163,7 +165,8 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
                 progress: Progress | None = None, label: str = "",
                 initializer: Callable[..., Any] | None = None,
                 initargs: Iterable[Any] = (), total: int | None = None,
-                here: tuple[Callable[..., Any], tuple[Any, ...]] | None = None
+                here: tuple[Callable[..., Any], tuple[Any, ...]] | None = None,
+                sharing: Callable[[], Any] | None = None
                 ) -> Generator[R, None, None]:
     """``fn(item)`` for every item, yielded in the order of ``items``.
 
@@ -179,7 +182,8 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
         Processes to use at most; 1 runs in this process. With more, the first items still
         run here, timed for at least :data:`_PROBE_SECONDS`, and the rest go to a pool only
         when the workers would save more than :data:`POOL_START_SECONDS` on them (the
-        results are the same either way).
+        results are the same either way); a job so large that they would at any pace
+        (:data:`_LEAST_ITEM_SECONDS`) goes to the pool after two items.
     progress
         Told ``(n, len(items), label)`` before the n-th result is taken; a cancel request
         stops the work within a tenth of a second of the longest item (items not yet started
@@ -195,6 +199,10 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
         A function and its arguments that set this process up for the items run here,
         instead of ``initializer`` (which may, say, load a model this process already has, or
         share out threads it should keep).
+    sharing
+        Called in this process once a pool is up, before this process shares the items with
+        it (pre-labelling gives OpenCV's second thread back to the cores then, see
+        :func:`app.inference.prelabel.prelabel`); not called when no pool starts.
 
     Notes
     -----
@@ -213,8 +221,11 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
     if total is None:
         total = len(items)  # type: ignore[arg-type]
     initargs = tuple(initargs)
-    if workers > 1 and total * _LEAST_ITEM_SECONDS > 2.0 * _start_cost():
-        _start_server(fn)  # so many items that a pool pays whatever they take
+    # So many items that a pool pays whatever they take: the fork server starts now, and the
+    # pool once two items have run here (not after timing them for _PROBE_SECONDS).
+    large = workers > 1 and total * _LEAST_ITEM_SECONDS > 2.0 * _start_cost()
+    if large:
+        _start_server(fn)
     t0 = time.perf_counter()
     if here is not None:
         here[0](*here[1])
@@ -228,8 +239,9 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
     while done < total:
         if workers > 1 and done >= 2:
             spent = time.perf_counter() - t0
-            if spent >= _PROBE_SECONDS and _pool_pays(
-                    (spent - first) / (done - 1), total - done, workers, start_cost):
+            paid = large and min(workers, total - done) > 1
+            if paid or (spent >= _PROBE_SECONDS and _pool_pays(
+                    (spent - first) / (done - 1), total - done, workers, start_cost)):
                 log.debug("%s: %d of %d items on %d workers after %.2f s here", label or "job",
                           total - done, total, min(workers, total - done), spent)
                 break
@@ -246,7 +258,7 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
             log.debug("%s: all %d items here, a pool would not pay", label or "job", total)
         return
     yield from _alongside(fn, upcoming, done, total, min(workers, total - done), progress,
-                          label, initializer, initargs)
+                          label, initializer, initargs, sharing)
 
 
 def _pool_pays(per_item: float, left: int, workers: int, start_cost: float) -> bool:
@@ -277,20 +289,70 @@ def _pool_pays(per_item: float, left: int, workers: int, start_cost: float) -> b
 _END = object()
 
 
+#: glibc's ``mallopt`` parameters (``malloc.h``) and what :func:`keep_freed_memory` sets: blocks
+#: up to 32 MB (glibc's largest mmap threshold on 64-bit systems) come from the heap, and up to
+#: 512 MB freed at its top stay there.
+_M_TRIM_THRESHOLD, _M_MMAP_THRESHOLD = -1, -3
+_MMAP_THRESHOLD_BYTES = 32 << 20
+_TRIM_THRESHOLD_BYTES = 512 << 20
+
+
+def keep_freed_memory() -> bool:
+    """Let this process reuse the memory it frees instead of handing it back to the system at
+    once; whether the C library allowed it (glibc's ``mallopt``; elsewhere nothing changes).
+
+    A frame's arrays are a few megabytes (the maps read or computed, their float32 copies),
+    which glibc maps afresh for each frame and unmaps when freed, so every frame faults its
+    pages in again: 1.2-1.5 s of system time in 480 frames of ``import-maps`` (of 8-9 s), 2.8 s
+    of ``prelabel``, and, with two processes faulting at once, a frame of maps took 15-16 ms
+    of CPU in place of 13 ms alone. Kept, they are reused: 0.2-0.4 s of system time, and
+    12.5-13.4 ms a frame of maps with two processes, as with one (3 December 2026, load 4-5;
+    glibc's ``MALLOC_MMAP_THRESHOLD_`` and ``MALLOC_TRIM_THRESHOLD_`` variables do the same
+    from outside, common practice for numerical batch work). For processes that end with
+    their job only (a batch command, a worker): the memory stays with the process until it
+    ends, so the window does not call it for itself.
+    """
+    try:
+        import ctypes
+
+        mallopt = ctypes.CDLL(None).mallopt
+    except (AttributeError, OSError):  # not glibc (or no C library to ask)
+        return False
+    mallopt.argtypes = (ctypes.c_int, ctypes.c_int)
+    mallopt.restype = ctypes.c_int
+    return bool(mallopt(_M_MMAP_THRESHOLD, _MMAP_THRESHOLD_BYTES)
+                and mallopt(_M_TRIM_THRESHOLD, _TRIM_THRESHOLD_BYTES))
+
+
+def _start_worker(initializer: Callable[..., Any] | None, initargs: tuple[Any, ...]) -> None:
+    """Set up a worker process: its memory kept (:func:`keep_freed_memory`), then the job's
+    ``initializer``."""
+    keep_freed_memory()
+    if initializer is not None:
+        initializer(*initargs)
+
+
 def _ready() -> int:
     """Nothing, run once by each new worker so that the pool counts as up once it returns."""
     return os.getpid()
 
 
-def _context(fn: Callable[..., Any] | None = None) -> multiprocessing.context.BaseContext:
+def _name(fn: Callable[..., Any] | str | None) -> str:
+    """``module.qualname`` of a function (a name given as text stays as it is)."""
+    if isinstance(fn, str):
+        return fn
+    return f"{getattr(fn, '__module__', '')}.{getattr(fn, '__qualname__', '')}"
+
+
+def _context(fn: Callable[..., Any] | str | None = None) -> multiprocessing.context.BaseContext:
     """The fork server's context, with :data:`PRELOAD` (and what :data:`PRELOAD_FOR` adds
-    for ``fn``) imported by the server when it starts (only the server pays the imports;
-    each worker forks from it with them done), else spawn's."""
+    for ``fn``, a function or its ``module.qualname``) imported by the server when it starts
+    (only the server pays the imports; each worker forks from it with them done), else
+    spawn's."""
     if "forkserver" not in multiprocessing.get_all_start_methods():
         return multiprocessing.get_context("spawn")
     context = multiprocessing.get_context("forkserver")
-    name = f"{getattr(fn, '__module__', '')}.{getattr(fn, '__qualname__', '')}"
-    context.set_forkserver_preload([*PRELOAD, *PRELOAD_FOR.get(name, ())])
+    context.set_forkserver_preload([*PRELOAD, *PRELOAD_FOR.get(_name(fn), ())])
     return context
 
 
@@ -350,7 +412,8 @@ class _Pool:
         global _server_since
         try:
             self.executor = ProcessPoolExecutor(self.workers, mp_context=_context(fn),
-                                                initializer=initializer, initargs=initargs)
+                                                initializer=_start_worker,
+                                                initargs=(initializer, initargs))
             warm = [self.executor.submit(_ready) for _ in range(self.workers)]
             if _server_since is None:
                 _server_since = self._t0
@@ -388,11 +451,37 @@ _START_ALONGSIDE = True
 _server_since: float | None = None
 
 
-def _start_server(fn: Callable[..., Any]) -> None:
-    """Start this process's fork server now, with what ``fn`` needs preloaded (see
-    :func:`_context`), unless it is already up; a pool started later forks its workers from
-    it. Spawning the server takes a few milliseconds here; its imports run in its own
-    process, on another core while this one works."""
+def head_start(job: str, items: int, workers: int) -> bool:
+    """Start this process's fork server now for a job that will hand ``job`` (the
+    ``module.qualname`` of its function) about ``items`` items on ``workers`` workers, when
+    so many items would repay a pool even at the least an item takes
+    (:data:`_LEAST_ITEM_SECONDS`), the rule :func:`ordered_map` applies when it starts;
+    whether the job is that large (the server then starts, unless it is up already).
+
+    A command calls it as soon as it knows the job's size, before it imports the job or
+    reads the project: the server's imports (about a second of one core) then run beside the
+    command's own, rather than after them, and its pool answers that much sooner. Changes no
+    result: the job runs as it would without it.
+
+    Examples
+    --------
+    >>> head_start("app.jobs_analysis._group_maps", 10, 2)  # too few items to pay
+    False
+    >>> head_start("app.jobs_analysis._group_maps", 10_000, 1)  # one worker: never a pool
+    False
+    """
+    large = workers > 1 and items * _LEAST_ITEM_SECONDS > 2.0 * _start_cost()
+    if large:
+        _start_server(job)
+    return large
+
+
+def _start_server(fn: Callable[..., Any] | str) -> None:
+    """Start this process's fork server now, with what ``fn`` (a function or its
+    ``module.qualname``) needs preloaded (see :func:`_context`), unless it is already up; a
+    pool started later forks its workers from it. Spawning the server takes a few
+    milliseconds here; its imports run in its own process, on another core while this one
+    works."""
     global _server_since
     if _server_since is not None:
         return
@@ -419,10 +508,11 @@ def _start_cost() -> float:
 
 def _alongside(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: int, workers: int,
                progress: Progress, label: str, initializer: Callable[..., Any] | None,
-               initargs: tuple[Any, ...]) -> Iterator[R]:
+               initargs: tuple[Any, ...], sharing: Callable[[], Any] | None = None
+               ) -> Iterator[R]:
     """The items left in ``upcoming`` (``done`` of ``total`` already taken): this process
     goes on with them while a pool of ``workers - 1`` processes starts, then shares them
-    with it, so ``workers`` processes compute in all."""
+    with it (calling ``sharing`` first), so ``workers`` processes compute in all."""
     pool = _Pool(workers - 1, initializer, initargs, fn)
     # In the items' order: the result to come, whether the pool computes it, and the item
     # (so that an item the pool has not started can be taken back).
@@ -440,6 +530,8 @@ def _alongside(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: in
                     told = True
                     log.debug("%s: pool of %d up after %.2f s, at item %d of %d", label or "job",
                               pool.workers, pool.seconds, done + len(pending), total)
+                    if sharing is not None:
+                        sharing()
                 while not exhausted and on_pool < _POOL_AHEAD * pool.workers:
                     item = next(upcoming, _END)
                     if item is _END:

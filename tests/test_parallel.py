@@ -50,8 +50,16 @@ def _snapshot(proj):
 
 
 def test_two_workers_store_and_write_what_one_does(tmp_path, image_dir, maps_dir, capsys,  # noqa: F811
-                                                   free_pool):
+                                                   free_pool, monkeypatch):
+    """... and each command tells app.parallel the job's size and function before it starts
+    the job (head_start), by a name that is the function the job hands to its workers."""
+    from app import cli, parallel
+
     folder, _ = maps_dir
+    told = []
+    monkeypatch.setattr(cli, "head_start",
+                        lambda job, items, workers: told.append((job, items, workers))
+                        or parallel.head_start(job, items, workers))
     outputs = []
     for workers in ("1", "2"):
         proj = tmp_path / f"p{workers}"
@@ -76,6 +84,14 @@ def test_two_workers_store_and_write_what_one_does(tmp_path, image_dir, maps_dir
         for volatile in ("created", "project_id"):
             manifest.pop(volatile)
         outputs.append((_snapshot(proj), ranked, manifest, arrays))
+    frames = len(list(image_dir.iterdir()))
+    for job, items, workers in told:
+        module, _, name = job.rpartition(".")
+        assert module in parallel.PRELOAD and callable(getattr(importlib.import_module(module),
+                                                               name))
+        assert items == frames and workers in (1, 2)
+    assert sorted({job.rpartition("._")[2] for job, _, _ in told}) == [
+        "group_maps", "triage_one", "write_targets"]
     (people1, triage1, findings1), ranked1, manifest1, arrays1 = outputs[0]
     (people2, triage2, findings2), ranked2, manifest2, arrays2 = outputs[1]
     assert sum(len(v) for v in people1.values()) >= 12
@@ -134,10 +150,15 @@ def test_a_long_job_moves_to_the_workers_after_the_first_items(free_pool, monkey
     from app import parallel
 
     monkeypatch.setattr(parallel, "_take_back", lambda pending, fn: False)
-    pids = list(ordered_map(_pid, range(20), workers=2))
+    shared = []
+    pids = list(ordered_map(_pid, range(20), workers=2, sharing=lambda: shared.append(1)))
     assert pids[:2] == [os.getpid()] * 2
     assert os.getpid() not in pids[2:6]
     assert len(set(pids)) == 2
+    assert shared == [1]  # told once, when the pool took its first items
+    assert list(ordered_map(abs, range(20), workers=1, sharing=lambda: shared.append(2))) \
+        == list(range(20))
+    assert shared == [1]  # no pool, nothing shared
 
 
 def test_worker_counts_are_checked(monkeypatch):
@@ -227,6 +248,27 @@ def test_items_the_pool_has_not_started_are_taken_back_in_their_place():
         seven[0][0].result()
 
 
+def test_a_command_starts_the_fork_server_as_soon_as_it_knows_the_jobs_size(monkeypatch):
+    """head_start, by the same rule as ordered_map: enough items on more than one worker
+    start the fork server at once (with the job's function's modules preloaded), once."""
+    from multiprocessing import forkserver
+
+    from app import parallel
+
+    asked = []
+    monkeypatch.setattr(parallel, "_server_since", None)
+    monkeypatch.setattr(forkserver, "ensure_running",
+                        lambda: asked.append(set(forkserver._forkserver._preload_modules)))
+    many = int(2 * parallel.POOL_START_SECONDS / parallel._LEAST_ITEM_SECONDS) + 1
+    job = "app.jobs_analysis._triage_one"
+    assert not parallel.head_start(job, many - 1, 2) and not parallel.head_start(job, many, 1)
+    assert asked == []
+    assert parallel.head_start(job, many, 2) and len(asked) == 1
+    assert {*parallel.PRELOAD, *parallel.PRELOAD_FOR[job]} <= asked[0]
+    parallel.head_start(job, many, 2)
+    assert len(asked) == 1  # once per process
+
+
 def test_so_many_items_start_the_fork_server_before_any_is_timed(monkeypatch):
     """Enough items to repay a pool even at the least an item takes: the fork server is
     asked for at once (its imports run while the first items are timed); fewer: not until
@@ -247,3 +289,41 @@ def test_so_many_items_start_the_fork_server_before_any_is_timed(monkeypatch):
     assert asked == [1] and parallel._server_since is not None
     list(ordered_map(abs, range(many), workers=2))
     assert asked == [1]  # once per process
+
+
+def test_a_job_that_pays_at_any_pace_shares_its_items_after_two(monkeypatch):
+    """Items enough to repay a pool even at the least an item takes are shared out after two
+    have run here, however long the timing would otherwise last; fewer items wait for the
+    timing (here never over, so they all run here). The pool itself is not started: the
+    test records where the items would be shared."""
+    from app import parallel
+
+    switched = []
+
+    def alongside(fn, upcoming, done, total, *rest):
+        switched.append(done)
+        yield from map(fn, upcoming)
+
+    monkeypatch.setattr(parallel, "_alongside", alongside)
+    monkeypatch.setattr(parallel, "_start_server", lambda fn: None)
+    monkeypatch.setattr(parallel, "_server_since", None)  # a first pool's start, fixed
+    monkeypatch.setattr(parallel, "_PROBE_SECONDS", 3600.0)
+    many = int(2 * parallel._start_cost() / parallel._LEAST_ITEM_SECONDS) + 1
+    assert list(ordered_map(abs, range(many), workers=2)) == list(range(many))
+    assert switched == [2]
+    assert list(ordered_map(abs, range(many - 1), workers=2)) == list(range(many - 1))
+    assert switched == [2]
+
+
+def test_a_batch_process_keeps_the_memory_it_frees():
+    """glibc accepts the thresholds keep_freed_memory asks for (its mallopt answers 1 when a
+    value is within the documented range: the mmap threshold at most 32 MB on 64-bit
+    systems); another C library is left alone and answers False."""
+    import platform
+
+    from app.parallel import keep_freed_memory
+
+    if platform.libc_ver()[0] != "glibc":
+        assert keep_freed_memory() in (True, False)
+        return
+    assert keep_freed_memory() is True

@@ -163,6 +163,23 @@ def test_frame_lists():
             parse_frames(bad, frames)
 
 
+def test_one_worker_runs_opencv_on_one_thread_and_gives_the_threads_back(setup, monkeypatch):
+    """--workers 1 keeps the job to one core: OpenCV runs on one thread while the frames
+    run, and the process has its threads back afterwards (the window's decoding uses them)."""
+    import importlib
+
+    job = importlib.import_module("app.inference.prelabel")
+    project, model, config, _ = setup
+    seen = []
+    real = job._prelabel_one
+    monkeypatch.setattr(job, "_prelabel_one",
+                        lambda item: seen.append(cv2.getNumThreads()) or real(item))
+    before = cv2.getNumThreads()
+    assert prelabel(project, model, config, workers=1)["frames"] == 3
+    assert seen == [1, 1, 1]
+    assert cv2.getNumThreads() == before
+
+
 def test_two_workers_store_what_one_does(setup, tmp_path, free_pool):
     """Pre-labelling in two worker processes stores the same people and writes the same maps
     as in one (synthetic frames and model, as above)."""
