@@ -22,7 +22,13 @@ from typing import Any
 
 from app.analysis.kinds import ALL_KINDS
 from app.analysis.triage.findings import Finding, frame_findings, labels_digest
-from app.analysis.triage.temporal import TIME_KINDS, TrackedFrame, sequence_findings
+from app.analysis.triage.temporal import (
+    TIME_KINDS,
+    TrackedFrame,
+    frames_read,
+    sequence_findings,
+    tracks_only,
+)
 from app.errors import BadInput, EditRefused, NotFound
 from app.model.edits import DismissFinding, EditGroup
 from app.model.labels import Frame, FrameLabels
@@ -105,26 +111,60 @@ def finding_order(f: Finding) -> tuple[float, int, str]:
 def time_findings(project: Project, frame_ids: Iterable[int] | None = None
                   ) -> dict[int, list[Finding]]:
     """The findings over time of the sequences that hold the given frames (None: all), for
-    those frames; empty until someone in the project is on a track."""
+    those frames; empty until someone in the project is on a track.
+
+    Given frames, only the frames their findings read are read from the project (their
+    sequence's frames within :data:`~app.analysis.triage.temporal.REACH` whole, the later
+    ones for their tracks: :func:`~app.analysis.triage.temporal.frames_read`), and the
+    findings are those of the whole computation.
+    """
+    from app.jobs_tracks import project_sequences
+
+    if frame_ids is None:
+        return _all_time_findings(project)
+    wanted = set(frame_ids)
+    tracks = project.tracks_by_frame()
+    if not tracks:
+        return {}
+    k = project.skeleton.num_joints
+    out: dict[int, list[Finding]] = {}
+    for seq in project_sequences(project):
+        asked = wanted & set(seq.frame_ids)
+        if not asked:
+            continue
+        whole, later = frames_read(seq.frame_ids, asked)
+        people = project.people_of_frames(whole)
+        dismissed = project.dismissed_of_frames(asked)
+        whole_set, read = set(whole), set(whole) | set(later)
+        frames = [TrackedFrame(fid, {p.id: p.keypoints for p in people.get(fid, [])},
+                               {p.id: p.track for p in people.get(fid, [])
+                                if p.track is not None},
+                               frozenset(dismissed.get(fid, ())))
+                  if fid in whole_set else
+                  tracks_only(fid, tracks.get(fid, {}), k)
+                  for fid in seq.frame_ids if fid in read]
+        for fid, found in sequence_findings(frames, project.skeleton, at=asked).items():
+            if fid in asked:
+                out[fid] = found
+    return out
+
+
+def _all_time_findings(project: Project) -> dict[int, list[Finding]]:
+    """:func:`time_findings` of every frame, from every frame's people."""
     from app.jobs_tracks import project_sequences
 
     people = project.people_by_frame()
     if not any(p.track is not None for ps in people.values() for p in ps):
         return {}
-    wanted = None if frame_ids is None else set(frame_ids)
     dismissed = project.dismissed()
     out: dict[int, list[Finding]] = {}
     for seq in project_sequences(project):
-        if wanted is not None and not wanted & set(seq.frame_ids):
-            continue
         frames = [TrackedFrame(fid, {p.id: p.keypoints for p in people.get(fid, [])},
                                {p.id: p.track for p in people.get(fid, [])
                                 if p.track is not None},
                                frozenset(dismissed.get(fid, ())))
                   for fid in seq.frame_ids]
-        for fid, found in sequence_findings(frames, project.skeleton, at=wanted).items():
-            if wanted is None or fid in wanted:
-                out[fid] = found
+        out.update(sequence_findings(frames, project.skeleton))
     return out
 
 

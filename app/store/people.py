@@ -64,6 +64,27 @@ class PeopleGateway:
             out.setdefault(row[0], []).append(decode_person(row[1:], num_joints))
         return out
 
+    def of_frames(self, frame_ids: Iterable[int], num_joints: int) -> dict[int, list[Person]]:
+        """The people of the given frames grouped by frame id (frames without any left
+        out), each frame's by id as :meth:`by_frame` gives them."""
+        ids = sorted({int(f) for f in frame_ids})
+        out: dict[int, list[Person]] = {}
+        for i in range(0, len(ids), 900):
+            chunk = ids[i:i + 900]
+            for row in self._tx.rows(f"SELECT frame_id, {COLUMNS} FROM people WHERE frame_id "
+                                     f"IN ({','.join('?' * len(chunk))}) ORDER BY frame_id, id",
+                                     chunk):
+                out.setdefault(row[0], []).append(decode_person(row[1:], num_joints))
+        return out
+
+    def tracks(self) -> dict[int, dict[int, int]]:
+        """Frame id -> {person id: track} of every person on a track (no joints read)."""
+        out: dict[int, dict[int, int]] = {}
+        for f, pid, t in self._tx.rows("SELECT frame_id, id, track FROM people "
+                                       "WHERE track IS NOT NULL ORDER BY frame_id, id"):
+            out.setdefault(int(f), {})[int(pid)] = int(t)
+        return out
+
     def frames_with_people(self) -> set[int]:
         return {r[0] for r in self._tx.rows("SELECT DISTINCT frame_id FROM people")}
 

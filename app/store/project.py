@@ -460,6 +460,17 @@ class Project:
         with self._read() as tx:
             return tx.people.by_frame(self.skeleton.num_joints)
 
+    def people_of_frames(self, frame_ids: Iterable[int]) -> dict[int, list[Person]]:
+        """The people of the given frames grouped by frame id (frames without people left
+        out): :meth:`people_by_frame` for a few frames."""
+        with self._read() as tx:
+            return tx.people.of_frames(frame_ids, self.skeleton.num_joints)
+
+    def tracks_by_frame(self) -> dict[int, dict[int, int]]:
+        """Frame id -> {person id: track} of every person on a track (joints not read)."""
+        with self._read() as tx:
+            return tx.people.tracks()
+
     def regions(self, frame_id: int) -> list[RegionRow]:
         """The frame's ignore regions: ``(region_id, polygons, extra)``."""
         with self._read() as tx:
@@ -522,6 +533,11 @@ class Project:
         """The fingerprints of the dismissed findings, by frame id."""
         with self._read() as tx:
             return tx.dismissals.keys()
+
+    def dismissed_of_frames(self, frame_ids: Iterable[int]) -> dict[int, set[str]]:
+        """:meth:`dismissed` of the given frames only."""
+        with self._read() as tx:
+            return tx.dismissals.keys_of_frames(frame_ids)
 
     def maps_path(self, frame_id: int) -> tuple[Path, int] | None:
         """Where the frame's network maps are (absolute path) and their stride, or None."""

@@ -73,3 +73,28 @@ def test_an_accepted_fix_forgets_the_findings_over_time_within_its_reach_only(tm
         assert kept is before, "kept, not computed again"
         assert [f.kind for f in kept] == ["joint-gap"]
         assert repr(kept) == repr(time_findings(project, [12])[12])
+
+
+def test_the_findings_over_time_of_a_few_frames_are_those_of_all_frames(tmp_path):
+    """``time_findings`` of one frame reads only the frames within reach and the later
+    frames' tracks from the project; the findings equal those of all frames computed
+    together (repr: every field). Synthetic dancers over 14 frames, one joint unlabelled by
+    hand in frames 2 and 13 and one dismissed."""
+    from app.jobs_findings import time_findings
+    from app.model.edits import DismissFinding
+
+    people = sequences.dancers(frames=14, n=2)
+    people[1, 1, LEFT_WRIST] = (0.0, 0.0, 0)
+    people[12, 0, LEFT_WRIST] = (0.0, 0.0, 0)
+    people[12, 1, LEFT_ELBOW] = (0.0, 0.0, 0)
+    project, fids = sequences.make_project(tmp_path, people)
+    with project:
+        link_project(project)
+        every = time_findings(project)
+        assert len(every[13]) == 2
+        project.apply(DismissFinding(13, every[13][0].fingerprint, every[13][0].kind))
+        every = time_findings(project)
+        assert sorted(every) == [2, 13] and len(every[13]) == 1
+        for fid in fids:
+            assert repr(time_findings(project, [fid]).get(fid)) == repr(every.get(fid)), fid
+        assert repr(time_findings(project, [2, 13])) == repr(every)
