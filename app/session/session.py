@@ -613,14 +613,17 @@ class Session:
                 | {a for a, _ in p.occluded} | set(p.deleted) | {a for m in p.merged for a in m}
         fid = stop.frame_id
         kept = [s for s in self.stops(fid) if s.key != stop.key and not touched & set(s.people)]
-        self._applying.add(fid)
+        # A fix along a track also changes other frames (:meth:`_read_ahead` reads them).
+        others = sorted({e.frame_id for e in fix.edits} - {fid}) \
+            if fix is not None and changes_labels else []
+        self._applying.update([fid, *others])
         try:
             done = run()
         except EditRefused as exc:
             self.events.emit("message", f"not done: {exc}")
             return None
         finally:
-            self._applying.discard(fid)
+            self._applying.difference_update([fid, *others])
         if done is None:
             return None
         self._stops[fid] = kept
@@ -639,9 +642,61 @@ class Session:
             self._own[fid] = labels_digest(self.project.labels(fid))
         except PosewrightError:
             log.exception("reading frame %s after an edit failed", fid)
+        for other in others:
+            self._read_ahead(other)
         if fid == self.frame_id:
             self.reload_frame()
         return done
+
+    def _read_ahead(self, frame_id: int) -> None:
+        """A frame the walk's fix changed besides its own (a fix along a track): forget its
+        stops and compute them again in the background, so that the step into it reads
+        them ready instead of triaging it on the spot; the result is dropped if the frame
+        or its findings over time change meanwhile (the step then computes them itself)."""
+        try:
+            self._own[frame_id] = labels_digest(self.project.labels(frame_id))
+        except PosewrightError:
+            log.exception("reading frame %s after an edit failed", frame_id)
+            self._own.pop(frame_id, None)
+        self._stops.pop(frame_id, None)
+        self._dirty.discard(frame_id)
+        self._fresh.pop(frame_id, None)
+        self._left.discard(frame_id)
+        self._revision[frame_id] += 1  # a recompute under way is stale now
+        token = self._revision[frame_id]
+        self.pending.add(frame_id)
+
+        def job() -> tuple[list[Stop], int] | None:
+            if self._revision[frame_id] != token:
+                return None
+            gen = self._over_time_gen  # read before the labels around are
+            try:
+                stops = self._read_stops(frame_id)
+            except Exception:  # the step computes them itself; the log says why
+                log.exception("computing the findings of frame %s again failed", frame_id)
+                return None
+            return stops, gen
+
+        self._background(job, partial(self.read_ahead_in, frame_id, token))
+
+    def read_ahead_in(self, frame_id: int, token: int,
+                      result: tuple[list[Stop], int] | None) -> bool:
+        """:meth:`_read_ahead`'s result, delivered on the session's thread: kept as the
+        frame's stops (True) unless the frame was edited since, findings over time were
+        forgotten since it started (labels changed around), or its stops were read
+        meanwhile."""
+        if token != self._revision[frame_id]:
+            return False
+        self.pending.discard(frame_id)
+        if result is None or frame_id in self._stops:
+            return False
+        stops, gen = result
+        if gen != self._over_time_gen:
+            return False
+        if frame_id in self._revisits:
+            stops = self._unpassed(frame_id, stops)
+        self._stops[frame_id] = stops
+        return True
 
     # ------------------------------------------------------------------ outside changes
 

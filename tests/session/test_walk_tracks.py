@@ -98,3 +98,46 @@ def test_the_findings_over_time_of_a_few_frames_are_those_of_all_frames(tmp_path
         for fid in fids:
             assert repr(time_findings(project, [fid]).get(fid)) == repr(every.get(fid)), fid
         assert repr(time_findings(project, [2, 13])) == repr(every)
+
+
+def test_the_other_frames_a_fix_along_a_track_changes_are_read_ahead_in_the_background(
+        tmp_path):
+    """Accepting a fix over several frames (a flipped stretch swapped back in frames 4-6)
+    leaves frames 5 and 6 with stale stored findings: their stops are computed in the
+    background while the walk is at its next stop (frame 8), so the step into frame 5 reads
+    them ready; they equal the stops a fresh session reads (repr: every field). An edit of
+    frame 6 before its result comes in drops that result. Synthetic dancers; the stretch
+    flipped and a joint moved by hand."""
+    from app.model.edits import MoveJoint
+    from app.model.skeleton import coco_body
+
+    people = sequences.dancers(frames=9, n=2)
+    people[3:6, 0] = people[3:6, 0][:, coco_body().flip_index]
+    people[7, 1, LEFT_WRIST, 0] += 60.0  # a jump in frame 8, the walk's next stop
+    people[4, 1, LEFT_WRIST] = (0.0, 0.0, 0)  # frame 5 keeps a stop of its own
+    project, fids = sequences.make_project(tmp_path, people)
+    order = [4, 8, 5, 6, 1, 2, 3, 7, 9]
+    with project:  # each dancer on a track of its own (the linker would break the stretch)
+        project.set_tracks([(sequences.pid(t, p), p + 1, "hand") for t in range(9)
+                            for p in range(2)], "tracks by hand")
+        project.store_findings({fid: (labels_digest(project.labels(fid)), [])
+                                for fid in fids})
+        jobs = []
+        s = Session(project, order=lambda: order,
+                    background=lambda job, deliver: jobs.append((job, deliver)))
+        s.open_frame(4)
+        stop = s.step(1)
+        assert {f.kind for f in stop.findings} == {"flipped-stretch"}
+        assert s.accept().frame_id == 8
+        assert {5, 6} <= s.pending and 5 not in s._stops and 6 not in s._stops
+        ahead = {deliver.args[0]: (job(), deliver) for job, deliver in jobs
+                 if getattr(deliver, "func", None) == s.read_ahead_in}
+        assert sorted(ahead) == [5, 6]
+        result, deliver = ahead[5]
+        assert deliver(result) and 5 not in s.pending
+        fresh = Session(project, order=lambda: order)
+        assert s._stops[5] and repr(s._stops[5]) == repr(fresh.stops(5))
+        s.project.apply(MoveJoint(6, sequences.pid(5, 1), LEFT_WRIST, 300.0, 200.0))
+        s.labels_changed([6])
+        result, deliver = ahead[6]
+        assert not deliver(result) and 6 not in s._stops
