@@ -223,7 +223,7 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
     initargs = tuple(initargs)
     # So many items that a pool pays whatever they take: the fork server starts now, and the
     # pool once two items have run here (not after timing them for _PROBE_SECONDS).
-    large = workers > 1 and total * _LEAST_ITEM_SECONDS > 2.0 * _start_cost()
+    large = _pays_at_any_pace(total, workers)
     if large:
         _start_server(fn)
     t0 = time.perf_counter()
@@ -470,10 +470,16 @@ def head_start(job: str, items: int, workers: int) -> bool:
     >>> head_start("app.jobs_analysis._group_maps", 10_000, 1)  # one worker: never a pool
     False
     """
-    large = workers > 1 and items * _LEAST_ITEM_SECONDS > 2.0 * _start_cost()
+    large = _pays_at_any_pace(items, workers)
     if large:
         _start_server(job)
     return large
+
+
+def _pays_at_any_pace(items: int, workers: int) -> bool:
+    """Whether a pool repays its start on ``items`` items even at the least an item takes
+    (:data:`_LEAST_ITEM_SECONDS`)."""
+    return workers > 1 and items * _LEAST_ITEM_SECONDS > 2.0 * _start_cost()
 
 
 def _start_server(fn: Callable[..., Any] | str) -> None:

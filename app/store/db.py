@@ -99,6 +99,10 @@ POSTGRES = Dialect("postgresql", {
     "int": "BIGINT", "real": "DOUBLE PRECISION", "text": "TEXT", "blob": "BYTEA"}, "%s")
 
 
+#: Values bound in one ``IN (...)`` list at most (:meth:`Tx.rows_in`).
+IN_CHUNK = 900
+
+
 class Tx:
     """Statements inside one transaction (or, for reads, one connection), and the gateways
     bound to it.
@@ -121,6 +125,16 @@ class Tx:
     def rows(self, sql: str, args: Sequence[Any] = ()) -> list[tuple[Any, ...]]:
         self._cur.execute(self.dialect.sql(sql), tuple(args))
         return self._cur.fetchall()  # tuples from both drivers
+
+    def rows_in(self, sql: str, values: Sequence[Any]) -> list[tuple[Any, ...]]:
+        """:meth:`rows` of ``sql`` whose ``{values}`` stands for a list of ``?`` marks, run for
+        ``values`` :data:`IN_CHUNK` at a time (SQLite long allowed at most 999 marks a
+        statement) and the rows joined in that order."""
+        out: list[tuple[Any, ...]] = []
+        for i in range(0, len(values), IN_CHUNK):
+            chunk = values[i:i + IN_CHUNK]
+            out += self.rows(sql.format(values=",".join("?" * len(chunk))), chunk)
+        return out
 
     def row(self, sql: str, args: Sequence[Any] = ()) -> tuple[Any, ...] | None:
         self._cur.execute(self.dialect.sql(sql), tuple(args))

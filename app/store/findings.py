@@ -102,13 +102,10 @@ class DismissalsGateway:
 
     def keys_of_frames(self, frame_ids: Iterable[int]) -> dict[int, set[str]]:
         """:meth:`keys` of the given frames only."""
-        ids = sorted({int(f) for f in frame_ids})
         out: dict[int, set[str]] = {}
-        for i in range(0, len(ids), 900):
-            chunk = ids[i:i + 900]
-            for f, key in self._tx.rows("SELECT frame_id, key FROM dismissals WHERE frame_id "
-                                        f"IN ({','.join('?' * len(chunk))})", chunk):
-                out.setdefault(int(f), set()).add(str(key))
+        for f, key in self._tx.rows_in("SELECT frame_id, key FROM dismissals WHERE frame_id "
+                                       "IN ({values})", sorted({int(f) for f in frame_ids})):
+            out.setdefault(int(f), set()).add(str(key))
         return out
 
     def put(self, frame_id: int, key: str, value: Mapping[str, Any]) -> None:

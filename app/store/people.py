@@ -67,14 +67,11 @@ class PeopleGateway:
     def of_frames(self, frame_ids: Iterable[int], num_joints: int) -> dict[int, list[Person]]:
         """The people of the given frames grouped by frame id (frames without any left
         out), each frame's by id as :meth:`by_frame` gives them."""
-        ids = sorted({int(f) for f in frame_ids})
         out: dict[int, list[Person]] = {}
-        for i in range(0, len(ids), 900):
-            chunk = ids[i:i + 900]
-            for row in self._tx.rows(f"SELECT frame_id, {COLUMNS} FROM people WHERE frame_id "
-                                     f"IN ({','.join('?' * len(chunk))}) ORDER BY frame_id, id",
-                                     chunk):
-                out.setdefault(row[0], []).append(decode_person(row[1:], num_joints))
+        for row in self._tx.rows_in(f"SELECT frame_id, {COLUMNS} FROM people WHERE frame_id "
+                                    "IN ({values}) ORDER BY frame_id, id",
+                                    sorted({int(f) for f in frame_ids})):
+            out.setdefault(row[0], []).append(decode_person(row[1:], num_joints))
         return out
 
     def tracks(self) -> dict[int, dict[int, int]]:
@@ -92,13 +89,8 @@ class PeopleGateway:
         return int(self._tx.value("SELECT count(*) FROM people", default=0))
 
     def existing_ids(self, ids: Iterable[int]) -> set[int]:
-        ids = [int(i) for i in ids]
-        found: set[int] = set()
-        for i in range(0, len(ids), 900):
-            chunk = ids[i:i + 900]
-            found.update(r[0] for r in self._tx.rows(
-                f"SELECT id FROM people WHERE id IN ({','.join('?' * len(chunk))})", chunk))
-        return found
+        return {r[0] for r in self._tx.rows_in("SELECT id FROM people WHERE id IN ({values})",
+                                                [int(i) for i in ids])}
 
     def insert(self, rows: Iterable[tuple[int, Person]]) -> int:
         """Insert people ``(frame_id, person)`` whose ids are new, in batches; returns how
