@@ -153,9 +153,9 @@ def _all_time_findings(project: Project) -> dict[int, list[Finding]]:
     """:func:`time_findings` of every frame, from every frame's people."""
     from app.jobs_tracks import project_sequences
 
-    people = project.people_by_frame()
-    if not any(p.track is not None for ps in people.values() for p in ps):
+    if not project.tracks_by_frame():
         return {}
+    people = project.people_by_frame()
     dismissed = project.dismissed()
     out: dict[int, list[Finding]] = {}
     for seq in project_sequences(project):

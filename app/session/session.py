@@ -366,8 +366,7 @@ class Session:
         if stored is not None and digests.get(frame_id) == labels_digest(labels):
             found = [Finding.from_dict(d) for d in stored]
             if self._tracked is None:
-                self._tracked = any(p.track is not None for ps in
-                                    self.project.people_by_frame().values() for p in ps)
+                self._tracked = bool(self.project.tracks_by_frame())
             if self._tracked:
                 # Findings over time are not stored (they depend on the frames around):
                 # computed here for this frame alone, as current_findings adds them.
@@ -658,11 +657,7 @@ class Session:
         except PosewrightError:
             log.exception("reading frame %s after an edit failed", frame_id)
             self._own.pop(frame_id, None)
-        self._stops.pop(frame_id, None)
-        self._dirty.discard(frame_id)
-        self._fresh.pop(frame_id, None)
-        self._left.discard(frame_id)
-        self._revision[frame_id] += 1  # a recompute under way is stale now
+        self._forget_stops(frame_id)
         token = self._revision[frame_id]
         self.pending.add(frame_id)
 
@@ -678,6 +673,15 @@ class Session:
             return stops, gen
 
         self._background(job, partial(self.read_ahead_in, frame_id, token))
+
+    def _forget_stops(self, frame_id: int) -> None:
+        """A frame's stops are read again when next needed; a recompute of them under way is
+        stale now."""
+        self._stops.pop(frame_id, None)
+        self._dirty.discard(frame_id)
+        self._fresh.pop(frame_id, None)
+        self._left.discard(frame_id)
+        self._revision[frame_id] += 1
 
     def read_ahead_in(self, frame_id: int, token: int,
                       result: tuple[list[Stop], int] | None) -> bool:
@@ -715,11 +719,7 @@ class Session:
                                               for p in self.project.people(fid)):
                 self._tracked = True  # a track was set here
             self._own.pop(fid, None)
-            self._stops.pop(fid, None)
-            self._dirty.discard(fid)
-            self._revision[fid] += 1  # a recompute under way is stale now
-            self._fresh.pop(fid, None)
-            self._left.discard(fid)
+            self._forget_stops(fid)
             self.pending.discard(fid)
         if outside:
             self._forget_over_time()
