@@ -28,6 +28,7 @@ from __future__ import annotations
 import logging
 from collections import defaultdict
 from collections.abc import Callable, Iterable, Mapping, Sequence
+from dataclasses import replace
 from functools import partial
 from typing import Any
 
@@ -46,7 +47,7 @@ from app.session.owners import OwnerRanking, rank_owners
 from app.session.selection import Selection
 from app.session.settling import Dispute, Settling, load_dispute
 from app.session.view import View
-from app.session.walk import Stop, Walk, group_findings
+from app.session.walk import Stop, Walk, card_text, group_findings
 from app.store.project import Project
 from app.wording import DECISION_WORDS, count
 
@@ -427,9 +428,21 @@ class Session:
         return stop
 
     def select_stop(self, stop: Stop) -> None:
-        """Select what a stop on the frame shown is about: its labelled joints, else its
-        person; a frame's group of findings selects nobody (what they are about is marked,
-        not selected). Tells the listeners (``selection``)."""
+        """Select what a stop on the frame shown is about: its labelled joints (a card's part
+        under focus: that part's), else its person; a frame's group of findings selects
+        nobody (what they are about is marked, not selected). Tells the listeners
+        (``selection``)."""
+        part = stop.focused
+        pid = stop.person_id if part is None else part.person_id
+        person = None if pid is None else self.view.person(pid)
+        if person is not None:
+            joints = [j for j in (stop.joints if part is None else part.joints)
+                      if person.keypoints[j, 2] > 0]
+            if joints:
+                self.select_joints([(pid, j) for j in joints])
+            else:
+                self.select_person(pid)
+            return
         person = None if stop.person_id is None else self.view.person(stop.person_id)
         if person is not None:
             joints = [j for j in stop.joints if person.keypoints[j, 2] > 0]
@@ -449,6 +462,65 @@ class Session:
     def skip(self) -> Stop | None:
         """Leave the current stop as it is and go to the next."""
         return self.step(1)
+
+    # ------------------------------------------------------------------ a card of fixes
+
+    def _card_here(self) -> Stop | None:
+        stop = self.walk.current
+        if stop is None or stop.frame_id != self.frame_id or len(stop.parts) < 2:
+            self.events.emit("message", "the card shown holds one fix: Y accepts it, W skips")
+            return None
+        return stop
+
+    def _replace_current(self, stop: Stop) -> Stop:
+        """The current stop changed in place (a part under focus, left out or dismissed):
+        keep it in its frame's list under its key, and show it again (``stop``)."""
+        held = self._stops.get(stop.frame_id)
+        if held is not None:
+            keys = [s.key for s in held]
+            if stop.key in keys:
+                held[keys.index(stop.key)] = stop
+            else:
+                held.insert(min(self.walk._index, len(held)), stop)
+        self.walk.current = stop
+        self.events.emit("stop", stop)
+        return stop
+
+    def focus_part(self, step: int = 1) -> Stop | None:
+        """Put the focus on the next (1) or previous (-1) fix of the card shown, through the
+        card as a whole; the Canvas selects that fix's joints. Said as a message."""
+        stop = self._card_here()
+        if stop is None:
+            return None
+        stop = self._replace_current(stop.refocus(step))
+        part = stop.focused
+        if part is None:
+            self.events.emit("message", f"the whole card: Y takes "
+                             f"{count(len(stop.taken), 'fix', 'fixes')}")
+        else:
+            state = "left out" if part.id in stop.left_out else "taken"
+            self.events.emit("message", f"fix {stop.focus + 1} of {len(stop.parts)} ({state}): "
+                             f"{part.fix.summary if part.fix else part.text}; D leaves it out "
+                             "or puts it back, I says it is not a problem")
+        return stop
+
+    def leave_out(self) -> Stop | None:
+        """Leave the fix under focus out of the card shown (or put it back): Y then takes the
+        others. Without a focus, E chooses one first."""
+        stop = self._card_here()
+        if stop is None:
+            return None
+        part = stop.focused
+        if part is None:
+            self.events.emit("message", "E chooses a fix of the card first, then D leaves it "
+                             "out")
+            return None
+        stop = self._replace_current(stop.leave_out())
+        out = part.id in stop.left_out
+        self.events.emit("message", f"{'left out' if out else 'put back'}: "
+                         f"{part.fix.summary if part.fix else part.text}; Y takes "
+                         f"{count(len(stop.taken), 'fix', 'fixes')}")
+        return stop
 
     def _refresh_at_end(self, frame_id: int) -> None:
         """At the end of a frame the walk changed, offer its fresh findings not yet passed
@@ -568,6 +640,10 @@ class Session:
             self.events.emit("message", "no finding chosen: W goes to the next one")
             return None
         fix = stop.fix
+        if fix is None and stop.parts:
+            self.events.emit("message", "every fix of this card is left out: D puts the one "
+                             "under focus back, W skips the card")
+            return None
         if fix is None:
             self.events.emit("message", "this finding proposes no fix: correct it by hand, or "
                              "dismiss it as not a problem")
@@ -594,6 +670,8 @@ class Session:
             self.events.emit("message", "a triage reason cannot be dismissed; run triage to "
                              "get findings")
             return None
+        if stop.focused is not None:
+            return self._dismiss_part(stop)
         marks = tuple(DismissFinding(f.frame_id, f.fingerprint, f.kind, f.id, f.text)
                       for f in stop.findings)
         edit = marks[0] if len(marks) == 1 else EditGroup(stop.frame_id, marks)
@@ -601,6 +679,24 @@ class Session:
             return None
         self.events.emit("message", "dismissed as not a problem (Ctrl+Z takes it back)")
         return self.step(1)
+
+    def _dismiss_part(self, stop: Stop) -> Stop | None:
+        """Dismiss the card's fix under focus alone (undoable); the card stays, without it."""
+        part = stop.focused
+        assert part is not None
+        mark = DismissFinding(part.frame_id, part.fingerprint, part.kind, part.id, part.text)
+        at = self.walk._index
+        if self._edited(stop, partial(self._apply, mark), changes_labels=False) is None:
+            return None
+        parts = tuple(p for p in stop.parts if p is not part)
+        rest = replace(stop, parts=parts, group=tuple(g for g in stop.group if g is not part),
+                       left_out=stop.left_out - {part.id}, focus=None,
+                       finding=parts[0], person_id=parts[0].person_id,
+                       text=card_text(parts) if len(parts) > 1 else parts[0].text)
+        self.walk._index = at
+        self.events.emit("message", f"dismissed as not a problem: {part.text} (Ctrl+Z takes "
+                         "it back); the card keeps the other fixes")
+        return self._replace_current(rest)
 
     def _edited(self, stop: Stop, run: Callable[[], Any], changes_labels: bool) -> Any:
         """Run the edit of a stop; keep the frame's stops about other people."""
