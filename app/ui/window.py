@@ -310,7 +310,7 @@ class MainWindow(QMainWindow):
             "dismiss_finding": self.session_dismiss,
             "next_part": lambda: self.session.focus_part(1),
             "prev_part": lambda: self.session.focus_part(-1),
-            "leave_out_part": self.session.leave_out,
+            "leave_out_part": lambda: self.session.leave_out(),
             "mark_visible": editing("set_visibility", 2),
             "mark_occluded": editing("set_visibility", 1),
             "mark_unlabeled": editing("set_visibility", 0),
