@@ -169,10 +169,12 @@ COVERED_KEY = "G:covered"
 #: At most this many people's fixes are written out on the grouped stop's card.
 GROUP_SHOWN = 4
 
-#: Kinds whose fixes place a joint left unlabelled here where the same track's frames around
-#: agree it is (:mod:`app.analysis.triage.temporal`): one joint each, many per frame in a
-#: video; a frame's are one stop (:data:`GAP_KEY`), accepted as one undo step.
-GAP_KINDS = ("joint-gap",)
+#: Kinds whose fixes mend one joint from the same track's frames around
+#: (:mod:`app.analysis.triage.temporal`): ``joint-gap`` places a joint left unlabelled here
+#: where they agree it is, ``jumping-joint`` puts back (or unlabels) a joint that jumps away
+#: and comes back. One joint each, many per frame in a video; a frame's are one stop
+#: (:data:`GAP_KEY`), accepted as one undo step, unless they join a person's card.
+GAP_KINDS = ("joint-gap", "jumping-joint")
 
 #: The key of a frame's stop that holds its :data:`GAP_KINDS` fixes.
 GAP_KEY = "G:gaps"
@@ -450,29 +452,41 @@ unlabel): person 2's knees occluded; person 5's left wrist unlabelled"
 
 
 def gap_text(members: Sequence[Finding]) -> str:
-    """The sentence of a frame's stop of joints the frames around place: how many, on how
-    many people, and each person's joints by tag and name.
+    """The sentence of a frame's stop of joints the frames around mend: how many, on how
+    many people, and each person's joints by tag and name (a joint that jumps marked so).
 
     Examples
     --------
     >>> from app.analysis.triage.findings import FixPreview
-    >>> def f(person, joint):
-    ...     return Finding("x", 1, "joint-gap", person, person, (9,), (joint,), "t", (), 1.0,
+    >>> def f(person, joint, kind="joint-gap"):
+    ...     return Finding("x", 1, kind, person, person, (9,), (joint,), "t", (), 1.0,
     ...                    0.7, Fix("place", (), FixPreview()), (person,), "x")
     >>> import textwrap
     >>> print(textwrap.fill(gap_text([f(2, "left wrist"), f(2, "left elbow"),
     ...                               f(5, "right knee")]), 80))
     the frames around place 3 joints unlabelled here, of 2 people: person 2's left
     wrist and left elbow; person 5's right knee
+    >>> print(textwrap.fill(gap_text([f(2, "left wrist"), f(5, "nose", "jumping-joint")]), 80))
+    the frames around mend 2 joints of 2 people (1 unlabelled here, 1 that jumps):
+    person 2's left wrist; person 5's nose (jumps)
     """
     by: dict[int | None, list[str]] = {}
     for m in members:
-        by.setdefault(m.tag, []).extend(m.joint_names)
+        mark = " (jumps)" if m.kind == "jumping-joint" else ""
+        by.setdefault(m.tag, []).extend(n + mark for n in m.joint_names)
     said = [f"person {tag}'s {join_words(names)}" for tag, names in
             list(by.items())[:GROUP_SHOWN]]
     more = sum(len(v) for v in list(by.values())[GROUP_SHOWN:])
-    return (f"the frames around place {count(len(members), 'joint')} unlabelled here, of "
-            f"{count(len(by), 'person', 'people')}: " + "; ".join(said)
+    jumps = sum(m.kind == "jumping-joint" for m in members)
+    people = count(len(by), 'person', 'people')
+    if not jumps:
+        head = (f"the frames around place {count(len(members), 'joint')} unlabelled here, "
+                f"of {people}")
+    else:
+        head = (f"the frames around mend {count(len(members), 'joint')} of {people} "
+                f"({len(members) - jumps} unlabelled here, {jumps} that "
+                f"{'jumps' if jumps == 1 else 'jump'})")
+    return (head + ": " + "; ".join(said)
             + (f"; and {count(more, 'more joint')}" if more else ""))
 
 
