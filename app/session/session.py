@@ -141,6 +141,9 @@ class Session:
         self._passed: dict[int, set[str]] = defaultdict(set)
         #: Per frame, the labels digest right after the walk's own last edit there.
         self._own: dict[int, str] = {}
+        #: The frame shown, when an accept changed its labels and the step that follows
+        #: reads them again only if it stays there (:meth:`_edited`).
+        self._stale: int | None = None
         #: Frames the walk is editing right now (their change notices are its own).
         self._applying: set[int] = set()
         self._background = background or run_here
@@ -169,6 +172,13 @@ class Session:
         #: Raised each time :attr:`_over_time` is forgotten: a read ahead computed before
         #: is stale.
         self._over_time_gen = 0
+        #: The next frame's findings over time as they would be once the stop shown is
+        #: accepted, read ahead on the worker (:meth:`_read_ahead_accept`): ``(token,
+        #: findings)``, used by that accept if nothing changed meanwhile.
+        self._ahead: tuple[tuple[Any, ...], list[Finding]] | None = None
+        #: How many such reads ahead are under way (the walk bench waits for them as for
+        #: :attr:`pending`: a person reads the card meanwhile).
+        self.reading_ahead = 0
 
     # ------------------------------------------------------------------ frame
 
@@ -416,6 +426,10 @@ class Session:
             self._passed[was.frame_id].update([was.key, *(f.id for f in was.findings)])
             self._refresh_at_end(was.frame_id)
         stop = self.walk.step(step, self.frame_id)
+        stale, self._stale = self._stale, None
+        if stale is not None and stale == self.frame_id and (
+                stop is None or stop.frame_id == stale):
+            self.reload_frame()  # an accept's labels, read once the walk stays here
         if stop is None:
             self.events.emit("message", "no more findings in the Worklist" if step > 0 else
                              "this is the first finding of the Worklist")
@@ -425,6 +439,9 @@ class Session:
                 self.events.emit("stop", None)
         else:
             self.events.emit("stop", stop)
+            if stale is not None and stale == self.frame_id:
+                self.reload_frame()  # nobody followed the walk to its frame
+            self._read_ahead_accept(stop)
         return stop
 
     def select_stop(self, stop: Stop) -> None:
@@ -484,6 +501,7 @@ class Session:
                 held.insert(min(self.walk._index, len(held)), stop)
         self.walk.current = stop
         self.events.emit("stop", stop)
+        self._read_ahead_accept(stop)
         return stop
 
     def focus_part(self, step: int = 1) -> Stop | None:
@@ -588,6 +606,52 @@ class Session:
                 self._over_time.pop(fid, None)
         self._over_time_gen += 1
 
+    def _ahead_token(self, stop: Stop) -> tuple[Any, ...]:
+        fid = stop.frame_id
+        return (fid, stop.key, stop.left_out, self._revision[fid], self._over_time_gen)
+
+    def _read_ahead_accept(self, stop: Stop) -> None:
+        """In a project with tracks, when the stop shown is its frame's last, compute on the
+        worker the findings over time of the frame the walk goes to next as they would be
+        once the stop's fix is accepted (its edits applied to the frame's labels in memory),
+        so that the accept's step into that frame finds them ready instead of computing
+        them on the spot. Only a fix of joints of people already there (which keeps every
+        person and track, :data:`~app.analysis.triage.temporal.JOINT_EDITS`) in one frame;
+        the result is used only if that very fix is accepted on the labels it was read
+        from with nothing else changed around (:meth:`_edited`)."""
+        from app.analysis.triage.temporal import JOINT_EDITS
+
+        self._ahead = None
+        fix, fid = stop.fix, stop.frame_id
+        if not self._tracked or fix is None or not fix.edits or fid != self.frame_id \
+                or any(not isinstance(e, JOINT_EDITS) or e.frame_id != fid
+                       for e in fix.edits):
+            return
+        held = self._stops.get(fid)
+        nxt = self.walk.following(fid)
+        if not held or held[-1].key != stop.key or nxt is None:
+            return
+        token = (*self._ahead_token(stop), nxt)
+        edits = fix.edits
+        self.reading_ahead += 1
+
+        def job() -> list[Finding] | None:
+            try:
+                after, _ = EditGroup(fid, edits).apply(self.project.labels(fid))
+                return time_findings(self.project, [nxt], instead={
+                    fid: list(after.people.values())}).get(nxt, [])
+            except Exception:  # the step computes them itself; the log says why
+                log.exception("reading ahead the findings over time of frame %s failed", nxt)
+                return None
+
+        def deliver(found: list[Finding] | None) -> None:
+            self.reading_ahead -= 1
+            if found is not None and self._revision[fid] == token[3] \
+                    and self._over_time_gen == token[4]:
+                self._ahead = (token, found)
+
+        self._background(job, deliver)
+
     def _read_ahead_over_time(self, frame_id: int) -> None:
         """In a project with tracks, compute the findings over time of the frame the walk
         goes to after ``frame_id`` (on the recompute's worker, so the step that shows that
@@ -655,7 +719,7 @@ class Session:
                                              action="AcceptFinding")
         else:
             run = partial(self._apply, EditGroup(stop.frame_id, fix.edits, label))
-        if self._edited(stop, run, changes_labels=True) is None:
+        if self._edited(stop, run, changes_labels=True, reload=False) is None:
             return None
         self.events.emit("message", f"done: {fix.summary} (Ctrl+Z takes it back)")
         return self.step(1)
@@ -698,8 +762,11 @@ class Session:
                          "it back); the card keeps the other fixes")
         return self._replace_current(rest)
 
-    def _edited(self, stop: Stop, run: Callable[[], Any], changes_labels: bool) -> Any:
-        """Run the edit of a stop; keep the frame's stops about other people."""
+    def _edited(self, stop: Stop, run: Callable[[], Any], changes_labels: bool,
+                reload: bool = True) -> Any:
+        """Run the edit of a stop; keep the frame's stops about other people. The frame
+        shown is read again now, or (``reload`` False) by the step that follows, only if
+        that step stays in it (:meth:`step`)."""
         touched = set(stop.people)
         fix = stop.fix
         if fix is not None and changes_labels:
@@ -722,11 +789,15 @@ class Session:
         if done is None:
             return None
         self._stops[fid] = kept
+        ahead, self._ahead = self._ahead, None
         # The frames around this one see its new labels: those within the edit's reach.
         if not changes_labels:
             self._forget_over_time(frames={fid})
         elif fix is not None:  # the stop's fix is what was applied
+            fits = ahead is not None and ahead[0][:5] == self._ahead_token(stop)
             self._forget_over_time(edits=fix.edits)
+            if fits:  # read ahead for exactly this accept (:meth:`_read_ahead_accept`)
+                self._over_time.setdefault(ahead[0][5], ahead[1])
         else:
             self._forget_over_time()
         self._dirty.add(fid)
@@ -740,7 +811,10 @@ class Session:
         for other in others:
             self._read_ahead(other)
         if fid == self.frame_id:
-            self.reload_frame()
+            if reload:
+                self.reload_frame()
+            else:
+                self._stale = fid
         return done
 
     def _read_ahead(self, frame_id: int) -> None:

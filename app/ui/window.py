@@ -154,6 +154,10 @@ class MainWindow(QMainWindow):
         self._claimed: int | None = None
         self._jobs: list[Any] = []
         self._closed = False
+        #: The walk's own accept is being applied (:meth:`session_accept`), and the frame's
+        #: reading that it deferred is still to do.
+        self._walk_accepting = False
+        self._deferred_reload = False
         self._remember_layout = restore_layout
         self._layout_restored = True
         self._panels_for: int | None = None
@@ -683,6 +687,13 @@ class MainWindow(QMainWindow):
                 self.show_frame(first)
                 return
         current = self.frame_id in frame_ids or kind in ("import", "frames")
+        if current and self._walk_accepting and kind == "edit":
+            # The walk's own accept: the step that follows shows the next stop, in this
+            # frame (then it is read again, :meth:`_show_stop`) or in another (which is
+            # read instead); reading this one now would be work thrown away.
+            self._deferred_reload = True
+            self._update_actions()
+            return
         if current:
             if kind in ("import", "frames"):  # maps come only with an import
                 self.maps_shelf.clear()
@@ -915,7 +926,8 @@ class MainWindow(QMainWindow):
             self.timeline.forget(frame_ids)
         if kind != "triage":
             self.timeline.drop_carry()
-        self._update_timeline()
+        if not self._walk_accepting:  # else the step that follows shows it
+            self._update_timeline()
 
     def _propose_carry(self, done: Applied | None) -> None:
         """After a correction of one frame, work out where carrying it would go on a worker
@@ -981,8 +993,23 @@ class MainWindow(QMainWindow):
     # ------------------------------------------------------------------ the walk
 
     def session_accept(self) -> None:
+        """Accept the shown card; the frame's labels are read again once, by the step that
+        follows (:meth:`_on_changed` defers it), or here when the walk did not move."""
         self._cancel_typing()
-        self.session.accept()
+        self._walk_accepting, self._deferred_reload = True, False
+        try:
+            self.session.accept()
+        finally:
+            self._walk_accepting = False
+            self._catch_up()
+
+    def _catch_up(self) -> None:
+        """Read the frame shown again after the walk's own accept, if it is still shown
+        (:meth:`_on_changed` deferred it); the Ledger too."""
+        if self._deferred_reload and not self._closed:
+            self._deferred_reload = False
+            self._reload_frame()
+            self.ledger_model.reload()
 
     def session_dismiss(self) -> None:
         self._cancel_typing()
@@ -1001,7 +1028,10 @@ class MainWindow(QMainWindow):
             self.canvas.show_stop(None)
             self._update_actions()
             return
-        if stop.frame_id != self.frame_id:
+        if stop.frame_id == self.frame_id:
+            self._catch_up()
+        else:
+            self._deferred_reload = False  # the frame accepted in is left: nothing to read
             self.show_frame(stop.frame_id)
         self.session.select_stop(stop)
         self.canvas.show_stop(stop, self.session.stop_place(stop))
