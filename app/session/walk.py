@@ -283,7 +283,8 @@ def person_cards(frame_id: int, found: Sequence[Finding]) -> tuple[list[Stop], l
             fp = prints.get(f.id)
             if fp is None or f.confidence < TOGETHER_AT or (f.kind in late_kinds) != late:
                 continue
-            people = set(f.people) | {p for p, _ in fp}
+            # Linked by whom the fix changes (not by whom the finding reads, e.g. a hider).
+            people = {p for p, _ in fp}
             if f.person_id is not None:
                 people.add(f.person_id)
             at = sorted({owner[p] for p in people if p in owner})
