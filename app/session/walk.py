@@ -1,7 +1,10 @@
 """The walk: from one problem to the next, across frames in Worklist order.
 
-A :class:`Stop` is one place the walk stops at: a finding (with its proposed fix, if any), or,
-in a project whose frames have no findings, one of triage's reasons about a person. A
+A :class:`Stop` is one place the walk stops at: a finding (with its proposed fix, if any), a
+person's card of several fixes that agree (:func:`person_cards`, taken with one key and
+trimmed before: :meth:`Stop.refocus`, :meth:`Stop.leave_out`), a frame's group of one kind's
+fixes, or, in a project whose frames have no findings, one of triage's reasons about a
+person. A
 :class:`Walk` is the cursor: :meth:`Walk.step` goes to the next (or previous) stop, within the
 frame first and then through the frames in the order the Worklist shows them. The stops of a
 frame come from a function the owner of the walk gives (:class:`app.session.Session` reads

@@ -12,7 +12,11 @@ The fix preview speaks our visual language:
 - a person who would be deleted (or merged away): a white diagonal cross over their box;
 - a person who would be added: their joints as small ghosts joined by dotted limbs.
 
-The finding's sentence sits in a card beside the box of what it is about, never in a tooltip;
+The finding's sentence sits in a card beside the box of what it is about, never in a tooltip.
+A card of several fixes (a person's, :func:`app.session.walk.person_cards`) says why (its
+first finding's sentence) and lists the fixes one a line: a filled square and bright text for
+a fix taken, a hollow square and dim struck-through text for one left out, an accent bar at
+the left edge for the fix under focus;
 the ranked owners sit in a small list beside the selected joint, one row per person (tag
 colour, tag number, fit, one reason), each row a click target.
 """
