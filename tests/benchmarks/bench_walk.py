@@ -136,6 +136,11 @@ def walk_demo(folder: Path, tracks: bool = False) -> dict:
     #: Per stop kind (what was accepted, or what was skipped): stops and wrong people removed
     #: in the stop's frame (negative: added).
     by_kind: dict[str, list[int]] = {}
+    #: Per frame, the keys of its stops when the walk first came to it; a press on another
+    #: stop there is on one raised later (a recompute after an accept, or findings over
+    #: time read again after an accept in a frame within reach).
+    first_keys: dict[int, set[str]] = {}
+    late = 0
     for _ in range(5000):
         stop_was = window.session.current
         frame_was = window.frame_id
@@ -169,7 +174,10 @@ def walk_demo(folder: Path, tracks: bool = False) -> dict:
             time.sleep(0.002)
         if press == "accept_fix":
             waits.append(time.perf_counter() - w0)
+        first_keys.setdefault(stop.frame_id,
+                              {x.key for x in window.session.stops(stop.frame_id)})
         if stop_was is not None:
+            late += stop_was.key not in first_keys.get(stop_was.frame_id, set())
             tally = by_kind.setdefault(kind_key, [0, 0, 0])
             tally[0] += 1
             tally[1] += wrong_was - _wrong(project, truth, {stop_was.frame_id})
@@ -192,7 +200,8 @@ def walk_demo(folder: Path, tracks: bool = False) -> dict:
             "after": after, "training_before": training_before,
             "training_after": training_after, "joints_before": joints_before,
             "joints_after": joints_after,
-            "inside": inside, "ends": ends, "by_kind": by_kind,
+            "inside": inside, "ends": ends, "by_kind": by_kind, "late": late,
+            "first": sum(len(k) for k in first_keys.values()),
             "cpu_inside": cpu_inside, "cpu_ends": cpu_ends, "waits": waits}
 
 
@@ -246,9 +255,10 @@ def _rows(got: dict, name: str) -> list[dict]:
         row(f"{name}: key presses per wrong labelled joint fixed", per_joint, "keys", "(none)",
             True, joint_detail),
         row(f"{name}: stops by kind", sum(n for n, *_ in got["by_kind"].values()), "stops",
-            "(none)", True, "what each press after the first did, and in brackets the wrong "
-            "people it removed from its frame, strictly (OKS 0.8) / as training sees them: "
-            f"{where_presses}"),
+            "(none)", True, f"{got['late']} of them on stops raised after the walk came to "
+            f"their frame (its {got['first']} stops then); what each press after the first "
+            "did, and in brackets the wrong people it removed from its frame, strictly "
+            f"(OKS 0.8) / as training sees them: {where_presses}"),
         row(f"{name}: next finding shown, same frame (median wall)", ms["inside"], "ms",
             "<= 50 ms", ms["inside"] <= 50,
             f"95th percentile {1000 * _p95(got['inside']):.0f} ms over {len(got['inside'])} "
