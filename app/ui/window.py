@@ -158,6 +158,8 @@ class MainWindow(QMainWindow):
         #: reading that it deferred is still to do.
         self._walk_accepting = False
         self._deferred_reload = False
+        #: The walk is showing its stop's frame: the selection's panels wait for the stop's.
+        self._holding_selection = False
         self._remember_layout = restore_layout
         self._layout_restored = True
         self._panels_for: int | None = None
@@ -978,6 +980,8 @@ class MainWindow(QMainWindow):
         self.session.editing.choose_person(pid)
 
     def _selection_changed(self) -> None:
+        if self._holding_selection:
+            return  # the walk selects its stop next (_show_stop)
         pid = self.canvas.selected_person
         self.owners.show_person(pid)
         self.canvas.set_owners(self.session.rank_owners(self._frame_maps))
@@ -1032,7 +1036,13 @@ class MainWindow(QMainWindow):
             self._catch_up()
         else:
             self._deferred_reload = False  # the frame accepted in is left: nothing to read
-            self.show_frame(stop.frame_id)
+            # The stop's selection follows at once (select_stop): the panels that show the
+            # selection are updated once, then, not for the new frame's empty one before.
+            self._holding_selection = True
+            try:
+                self.show_frame(stop.frame_id)
+            finally:
+                self._holding_selection = False
         self.session.select_stop(stop)
         self.canvas.show_stop(stop, self.session.stop_place(stop))
         self._update_actions()

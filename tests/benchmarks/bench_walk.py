@@ -141,6 +141,7 @@ def walk_demo(folder: Path, tracks: bool = False) -> dict:
     #: time read again after an accept in a frame within reach).
     first_keys: dict[int, set[str]] = {}
     late = 0
+    late_kinds: dict[str, int] = {}
     for _ in range(5000):
         stop_was = window.session.current
         frame_was = window.frame_id
@@ -177,7 +178,9 @@ def walk_demo(folder: Path, tracks: bool = False) -> dict:
         first_keys.setdefault(stop.frame_id,
                               {x.key for x in window.session.stops(stop.frame_id)})
         if stop_was is not None:
-            late += stop_was.key not in first_keys.get(stop_was.frame_id, set())
+            if stop_was.key not in first_keys.get(stop_was.frame_id, set()):
+                late += 1
+                late_kinds[kind_key] = late_kinds.get(kind_key, 0) + 1
             tally = by_kind.setdefault(kind_key, [0, 0, 0])
             tally[0] += 1
             tally[1] += wrong_was - _wrong(project, truth, {stop_was.frame_id})
@@ -201,6 +204,7 @@ def walk_demo(folder: Path, tracks: bool = False) -> dict:
             "training_after": training_after, "joints_before": joints_before,
             "joints_after": joints_after,
             "inside": inside, "ends": ends, "by_kind": by_kind, "late": late,
+            "late_kinds": late_kinds,
             "first": sum(len(k) for k in first_keys.values()),
             "cpu_inside": cpu_inside, "cpu_ends": cpu_ends, "waits": waits}
 
@@ -256,7 +260,10 @@ def _rows(got: dict, name: str) -> list[dict]:
             True, joint_detail),
         row(f"{name}: stops by kind", sum(n for n, *_ in got["by_kind"].values()), "stops",
             "(none)", True, f"{got['late']} of them on stops raised after the walk came to "
-            f"their frame (its {got['first']} stops then); what each press after the first "
+            f"their frame (its {got['first']} stops then: "
+            + ", ".join(f"{k} {n}" for k, n in sorted(got["late_kinds"].items(),
+                                                      key=lambda kv: -kv[1]))
+            + "); what each press after the first "
             "did, and in brackets the wrong people it removed from its frame, strictly "
             f"(OKS 0.8) / as training sees them: {where_presses}"),
         row(f"{name}: next finding shown, same frame (median wall)", ms["inside"], "ms",
