@@ -84,10 +84,11 @@ with the network's runs recorded alongside). Of the 1,993 wrong labelled joints 
 is seen on the next frame, 720 (36 %) come with none of that dancer's simulated errors in
 progress: mostly hidden joints (three in four) given a neighbour's same joint where two
 overlapping dancers' peaks and fields compete; they make about half of the wrong joints that
-are not wrong again on the next frame, and most of the other half are runs that end (the
-joint comes into view, the dancer turns). Nothing that the simulation draws afresh per frame
-explains it. With every draw held for the whole sequence (each joint's and limb's answer
-never drawn again, no noise in the maps, a lost dancer's faintness and an echo's heights kept
+are not wrong again on the next frame (499 of 1,026). Of the other half, half are runs that
+end (the joint comes into view, the dancer turns) and most of the rest belong to a lost
+dancer's faint peaks, grouped on one frame and not on the next. Nothing that the simulation
+draws afresh per frame explains the flicker. With every draw held for the whole sequence
+(each joint's and limb's answer never drawn again, no noise in the maps, a lost dancer's faintness and an echo's heights kept
 for their run: more than any network would hold), a wrong joint is wrong again on the next
 frame in 36-57 % of cases on seeds 61-66 (46.5 % on average, against 28-51 % and 44.8 % as
 generated) and its runs last 1.6-2.3 frames (against 1.4-2.0). Letting the held answers and
