@@ -21,17 +21,26 @@ import sys
 import time
 from collections.abc import Callable, Sequence
 from pathlib import Path
-from typing import Any, NoReturn
+from typing import TYPE_CHECKING, Any, NoReturn
 
 from app import __version__
 from app.errors import BadInput, Cancelled, PosewrightError, ProjectLocked
-from app.fileio import MAX_ID, json_ready, read_json
-from app.model.labels import FrameState
-from app.model.naming import Names, ledger_names
 from app.parallel import check_workers, head_start, keep_freed_memory
 from app.progress import Progress
 from app.safetext import shown
 from app.wording import count, count_phrase, ledger_text
+
+if TYPE_CHECKING:
+    from app.model.labels import FrameState
+
+# Nothing above imports numpy, pydantic or the model: a batch command tells its workers' fork
+# server to start (app.parallel.head_start) within a tenth of a second of its own start, so the
+# server's imports run beside the command's rather than after them. What a command needs it
+# imports in its own function.
+
+#: :data:`app.fileio.MAX_ID`, without importing app.fileio (pydantic, numpy) to build the parser
+#: (tests/test_cli.py checks that the two agree).
+MAX_ID = 2**53 - 1
 
 #: Exit status when the reader of our output went away (128 + SIGPIPE).
 BROKEN_PIPE_STATUS = 141
@@ -136,6 +145,8 @@ def _open(args: argparse.Namespace, write: bool = True, say_why: bool = True):  
 def print_json(data: Any) -> None:
     """``data`` as JSON on stdout for a program to read: a number that is not defined (a NaN,
     such as the mean of nothing) or not finite is ``null``."""
+    from app.fileio import json_ready
+
     json.dump(json_ready(data)[0], sys.stdout, indent=2, default=str, allow_nan=False)
     sys.stdout.write("\n")
 
@@ -262,6 +273,8 @@ def _warn_export(stats: dict[str, Any]) -> None:
 
 
 def cmd_ledger(args: argparse.Namespace) -> int:
+    from app.model.naming import Names, ledger_names
+
     with _open(args, write=False) as project:
         frame_id = project.find_frame(args.frame).id if args.frame is not None else None
         entries = project.history(frame_id=frame_id, limit=args.limit)
@@ -426,6 +439,7 @@ def cmd_targets(args: argparse.Namespace) -> int:
 def _check_targets(args: argparse.Namespace) -> int:
     """``targets --check OUT_DIR``, or ``targets PROJECT OUT_DIR --check``, which also checks
     that the export was made from PROJECT with its skeleton. Writes nothing."""
+    from app.fileio import read_json
     from app.jobs_analysis import check_targets
 
     out = Path(args.project if args.out_dir is None else args.out_dir)
@@ -497,6 +511,8 @@ def cmd_render(args: argparse.Namespace) -> int:
 
 def _states(text: str) -> list[FrameState] | None:
     """The states an export takes: ``all`` (None), or a comma-separated list."""
+    from app.model.labels import FrameState
+
     if text.strip().lower() == "all":
         return None
     try:
