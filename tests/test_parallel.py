@@ -155,7 +155,7 @@ def test_a_long_job_moves_to_the_workers_after_the_first_items(free_pool, monkey
     assert pids[:2] == [os.getpid()] * 2
     assert os.getpid() not in pids[2:6]
     assert len(set(pids)) == 2
-    assert shared == [1]  # told once, when the pool took its first items
+    assert shared == [1]  # told once, when the pool was asked for
     assert list(ordered_map(abs, range(20), workers=1, sharing=lambda: shared.append(2))) \
         == list(range(20))
     assert shared == [1]  # no pool, nothing shared
