@@ -33,7 +33,7 @@ def _load() -> Callable[..., Any]:
     file twice), else from ``scipy.optimize``."""
     loaded = sys.modules.get(_MODULE)
     if loaded is not None:
-        return loaded.linear_sum_assignment  # type: ignore[no-any-return]
+        return loaded.linear_sum_assignment
     try:
         import scipy
 
@@ -49,12 +49,12 @@ def _load() -> Callable[..., Any]:
             module = importlib.util.module_from_spec(spec)
             loader.exec_module(module)
             sys.modules[_MODULE] = module
-            return module.linear_sum_assignment  # type: ignore[no-any-return]
+            return module.linear_sum_assignment
     except Exception:  # any surprise: the usual import below
         sys.modules.pop(_MODULE, None)
     from scipy.optimize import linear_sum_assignment as usual
 
-    return usual  # type: ignore[no-any-return]
+    return usual
 
 
 #: ``linear_sum_assignment(cost, maximize=False) -> (rows, cols)``, scipy's (see the module's
