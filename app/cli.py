@@ -377,9 +377,23 @@ def _files_ending(folder: str | Path, suffix: str) -> int:
         return 0
 
 
+def _early_start(job: str, args: argparse.Namespace, workers: int) -> None:
+    """Ask for the workers' fork server before the project is even opened, when the folder
+    project's frames make the job large (:func:`app.store.peek.frame_count_hint`, read without
+    importing the store): opening it imports most of the app, and the server's own imports
+    then run beside that rather than after it. The command asks again, with the frames the
+    job takes, once the project is open (a server already asked for is not started twice)."""
+    from app.store.peek import frame_count_hint
+
+    frames = frame_count_hint(args.project)
+    if frames:
+        head_start(job, frames, workers)
+
+
 def cmd_triage(args: argparse.Namespace) -> int:
     workers = check_workers(args.workers)
     keep_freed_memory()
+    _early_start("app.jobs_analysis._triage_one", args, workers)
     with _open(args) as project:
         head_start("app.jobs_analysis._triage_one", project.frame_count(), workers)
         from app.jobs_analysis import run_triage
@@ -465,6 +479,7 @@ def _check_targets(args: argparse.Namespace) -> int:
 def cmd_prelabel(args: argparse.Namespace) -> int:
     workers = check_workers(args.workers)
     keep_freed_memory()
+    _early_start("app.inference.prelabel._prelabel_one", args, workers)
     with _open(args) as project:
         head_start("app.inference.prelabel._prelabel_one", project.frame_count(), workers)
         from app.inference.prelabel import parse_frames, prelabel
