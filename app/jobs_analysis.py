@@ -102,7 +102,7 @@ def import_maps(project: Project, folder: str | Path,
 
 
 def _grouping_runs(sequences: Sequence[Sequence[int]], files: dict[int, Any],
-                   length: int = GROUPING_RUN) -> list[list[int]]:
+                   length: int | None = None) -> list[list[int]]:
     """The frames with maps (``files``) cut into runs grouped in order (see
     :func:`import_maps`): consecutive frames of one sequence, at most ``length``, then every
     other frame alone, by id.
@@ -110,6 +110,7 @@ def _grouping_runs(sequences: Sequence[Sequence[int]], files: dict[int, Any],
     >>> _grouping_runs([(5, 1, 2, 3, 4)], dict.fromkeys([1, 2, 4, 5, 9]), length=2)
     [[5, 1], [2], [4], [9]]
     """
+    length = GROUPING_RUN if length is None else length
     runs: list[list[int]] = []
     placed: set[int] = set()
     for frame_ids in sequences:
