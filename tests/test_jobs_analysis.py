@@ -242,7 +242,7 @@ def test_check_reads_the_manifest_strictly(export, tmp_path, capsys):
 
 
 def test_import_maps_groups_a_sequence_in_runs_with_the_frame_before(tmp_path, image_dir,
-                                                                     maps_dir, monkeypatch):
+                                                                     maps_dir, monkeypatch):  # noqa: F811
     """The six synthetic frames are one image folder, so one sequence: each frame is grouped
     with the people of the frame before (grouped just now, or kept there), in runs of
     GROUPING_RUN frames whose first has none; once the folder is marked not a sequence, no

@@ -365,7 +365,7 @@ def test_the_frame_before_decides_a_near_tie_but_not_a_clear_choice():
     moved = true.copy()
     moved[..., :2] += 3.0
     assert _pairings(group_people(maps, fields, limbs, previous=moved, **kw)) == _pairings(true)
-    assert _pairings(group_people(maps, fields, limbs, previous=crossed + [3.0, -2.0, 0],
+    assert _pairings(group_people(maps, fields, limbs, previous=crossed + np.array([3.0, -2.0, 0]),
                                   **kw)) == _pairings(crossed)
     far = true.copy()
     far[..., 0] += 30.0
@@ -382,7 +382,7 @@ def test_without_a_frame_before_grouping_is_unchanged():
     maps, fields = draw(truth, rng, noise=0.02, jitter=2.0)
     plain = group_people(maps, fields, synth.LIMBS, stride=STRIDE)
     assert len(plain) >= 10
-    shifted = [p + [0.0, 5000.0, 0.0] for p in plain]
+    shifted = [p + np.array([0.0, 5000.0, 0.0]) for p in plain]
     for kw in ({"previous": None}, {"previous": []}, {"previous": shifted},
                {"previous": truth, "prior_bonus": 0.0}):
         again = group_people(maps, fields, synth.LIMBS, stride=STRIDE, **kw)
