@@ -48,9 +48,14 @@ TARGETS_VERSION = 1
 #: grouped without one. Fixed, so the auto-labels are the same whatever the number of workers.
 GROUPING_RUN = 16
 
+#: Whether :func:`import_maps` groups the frames of a sequence with the frame before by
+#: default (each frame alone when False, as before 3 December 2026).
+FRAME_BEFORE = True
+
 
 def import_maps(project: Project, folder: str | Path,
-                progress: Progress | None = None, workers: int = 1) -> dict[str, int]:
+                progress: Progress | None = None, workers: int = 1,
+                frame_before: bool | None = None) -> dict[str, int]:
     """Import one ``.npz`` of network maps per image from ``folder`` (see
     :mod:`app.formats.maps`), all or nothing.
 
@@ -67,7 +72,8 @@ def import_maps(project: Project, folder: str | Path,
     keeps its people, those. They go to the workers in runs of :data:`GROUPING_RUN`
     consecutive frames that have maps in ``folder``; the first frame of a run, a frame whose
     neighbour before it has no maps here, and a frame in no sequence (a folder marked not a
-    sequence) are grouped without a frame before.
+    sequence) are grouped without a frame before. ``frame_before=False`` groups every frame
+    alone (default :data:`FRAME_BEFORE`).
     """
     progress = progress or Progress()
     frames = {f.id: f for f in project.frames()}
@@ -79,7 +85,9 @@ def import_maps(project: Project, folder: str | Path,
             raise BadInput(f"the image of frame {frame_id} is {frames[frame_id].status}; its "
                            "size is unknown", where=str(path))
     marked = parse_not_sequences(project.meta(NOT_SEQUENCES))
-    runs = _grouping_runs([s.frame_ids for s in sequences(frames.values(), marked)], files)
+    in_order = FRAME_BEFORE if frame_before is None else frame_before
+    runs = _grouping_runs([s.frame_ids for s in sequences(frames.values(), marked)]
+                          if in_order else [], files)
     items = [(project.skeleton,
               [(str(files[f]), frames[f], [p.keypoints for p in kept[f]] if f in kept else None)
                for f in run])
