@@ -16,7 +16,7 @@ applied as one action over all of them (:meth:`~app.store.project.Project.apply_
 from __future__ import annotations
 
 import logging
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -31,7 +31,7 @@ from app.analysis.triage.temporal import (
 )
 from app.errors import BadInput, EditRefused, NotFound
 from app.model.edits import DismissFinding, EditGroup
-from app.model.labels import Frame, FrameLabels
+from app.model.labels import Frame, FrameLabels, Person
 from app.model.skeleton import Skeleton
 from app.model.targets import StateTarget
 from app.progress import Progress
@@ -108,7 +108,8 @@ def finding_order(f: Finding) -> tuple[float, int, str]:
     return (-f.worth, ALL_KINDS.index(f.kind), f.id)
 
 
-def time_findings(project: Project, frame_ids: Iterable[int] | None = None
+def time_findings(project: Project, frame_ids: Iterable[int] | None = None,
+                  instead: Mapping[int, Sequence[Person]] | None = None
                   ) -> dict[int, list[Finding]]:
     """The findings over time of the sequences that hold the given frames (None: all), for
     those frames; empty until someone in the project is on a track.
@@ -116,7 +117,9 @@ def time_findings(project: Project, frame_ids: Iterable[int] | None = None
     Given frames, only the frames their findings read are read from the project (their
     sequence's frames within :data:`~app.analysis.triage.temporal.REACH` whole, the later
     ones for their tracks: :func:`~app.analysis.triage.temporal.frames_read`), and the
-    findings are those of the whole computation.
+    findings are those of the whole computation. ``instead`` gives some frames' people to
+    read in place of the project's (a change of their joints not applied yet, which keeps
+    every person and track: the walk reads ahead what an accept would leave).
     """
     from app.jobs_tracks import project_sequences
 
@@ -134,6 +137,8 @@ def time_findings(project: Project, frame_ids: Iterable[int] | None = None
             continue
         whole, later = frames_read(seq.frame_ids, asked)
         people = project.people_of_frames(whole)
+        if instead:
+            people.update({fid: list(v) for fid, v in instead.items() if fid in people})
         dismissed = project.dismissed_of_frames(asked)
         whole_set, read = set(whole), set(whole) | set(later)
         frames = [TrackedFrame(fid, {p.id: p.keypoints for p in people.get(fid, [])},

@@ -124,6 +124,9 @@ def action_states(session: Session, c: Circumstances) -> ActionStates:
     here = stop is not None and stop.frame_id == session.frame_id
     e["accept_fix"] = editable and here and stop.fix is not None
     e["dismiss_finding"] = editable and here and bool(stop.findings)
+    card = here and len(stop.parts) > 1
+    for name in ("next_part", "prev_part", "leave_out_part"):
+        e[name] = editable and card
     e["new_person"] = editable
     for name in ("swap_sides", "merge_people", "delete_person"):
         e[name] = editable and person

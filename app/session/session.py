@@ -28,6 +28,7 @@ from __future__ import annotations
 import logging
 from collections import defaultdict
 from collections.abc import Callable, Iterable, Mapping, Sequence
+from dataclasses import replace
 from functools import partial
 from typing import Any
 
@@ -46,7 +47,7 @@ from app.session.owners import OwnerRanking, rank_owners
 from app.session.selection import Selection
 from app.session.settling import Dispute, Settling, load_dispute
 from app.session.view import View
-from app.session.walk import Stop, Walk, group_findings
+from app.session.walk import Stop, Walk, card_text, group_findings
 from app.store.project import Project
 from app.wording import DECISION_WORDS, count
 
@@ -140,6 +141,9 @@ class Session:
         self._passed: dict[int, set[str]] = defaultdict(set)
         #: Per frame, the labels digest right after the walk's own last edit there.
         self._own: dict[int, str] = {}
+        #: The frame shown, when an accept changed its labels and the step that follows
+        #: reads them again only if it stays there (:meth:`_edited`).
+        self._stale: int | None = None
         #: Frames the walk is editing right now (their change notices are its own).
         self._applying: set[int] = set()
         self._background = background or run_here
@@ -168,6 +172,13 @@ class Session:
         #: Raised each time :attr:`_over_time` is forgotten: a read ahead computed before
         #: is stale.
         self._over_time_gen = 0
+        #: The next frame's findings over time as they would be once the stop shown is
+        #: accepted, read ahead on the worker (:meth:`_read_ahead_accept`): ``(token,
+        #: findings)``, used by that accept if nothing changed meanwhile.
+        self._ahead: tuple[tuple[Any, ...], list[Finding]] | None = None
+        #: How many such reads ahead are under way (the walk bench waits for them as for
+        #: :attr:`pending`: a person reads the card meanwhile).
+        self.reading_ahead = 0
 
     # ------------------------------------------------------------------ frame
 
@@ -415,6 +426,10 @@ class Session:
             self._passed[was.frame_id].update([was.key, *(f.id for f in was.findings)])
             self._refresh_at_end(was.frame_id)
         stop = self.walk.step(step, self.frame_id)
+        stale, self._stale = self._stale, None
+        if stale is not None and stale == self.frame_id and (
+                stop is None or stop.frame_id == stale):
+            self.reload_frame()  # an accept's labels, read once the walk stays here
         if stop is None:
             self.events.emit("message", "no more findings in the Worklist" if step > 0 else
                              "this is the first finding of the Worklist")
@@ -424,12 +439,27 @@ class Session:
                 self.events.emit("stop", None)
         else:
             self.events.emit("stop", stop)
+            if stale is not None and stale == self.frame_id:
+                self.reload_frame()  # nobody followed the walk to its frame
+            self._read_ahead_accept(stop)
         return stop
 
     def select_stop(self, stop: Stop) -> None:
-        """Select what a stop on the frame shown is about: its labelled joints, else its
-        person; a frame's group of findings selects nobody (what they are about is marked,
-        not selected). Tells the listeners (``selection``)."""
+        """Select what a stop on the frame shown is about: its labelled joints (a card's part
+        under focus: that part's), else its person; a frame's group of findings selects
+        nobody (what they are about is marked, not selected). Tells the listeners
+        (``selection``)."""
+        part = stop.focused
+        pid = stop.person_id if part is None else part.person_id
+        person = None if pid is None else self.view.person(pid)
+        if person is not None:
+            joints = [j for j in (stop.joints if part is None else part.joints)
+                      if person.keypoints[j, 2] > 0]
+            if joints:
+                self.select_joints([(pid, j) for j in joints])
+            else:
+                self.select_person(pid)
+            return
         person = None if stop.person_id is None else self.view.person(stop.person_id)
         if person is not None:
             joints = [j for j in stop.joints if person.keypoints[j, 2] > 0]
@@ -449,6 +479,66 @@ class Session:
     def skip(self) -> Stop | None:
         """Leave the current stop as it is and go to the next."""
         return self.step(1)
+
+    # ------------------------------------------------------------------ a card of fixes
+
+    def _card_here(self) -> Stop | None:
+        stop = self.walk.current
+        if stop is None or stop.frame_id != self.frame_id or len(stop.parts) < 2:
+            self.events.emit("message", "the card shown holds one fix: Y accepts it, W skips")
+            return None
+        return stop
+
+    def _replace_current(self, stop: Stop) -> Stop:
+        """The current stop changed in place (a part under focus, left out or dismissed):
+        keep it in its frame's list under its key, and show it again (``stop``)."""
+        held = self._stops.get(stop.frame_id)
+        if held is not None:
+            keys = [s.key for s in held]
+            if stop.key in keys:
+                held[keys.index(stop.key)] = stop
+            else:
+                held.insert(min(self.walk._index, len(held)), stop)
+        self.walk.current = stop
+        self.events.emit("stop", stop)
+        self._read_ahead_accept(stop)
+        return stop
+
+    def focus_part(self, step: int = 1) -> Stop | None:
+        """Put the focus on the next (1) or previous (-1) fix of the card shown, through the
+        card as a whole; the Canvas selects that fix's joints. Said as a message."""
+        stop = self._card_here()
+        if stop is None:
+            return None
+        stop = self._replace_current(stop.refocus(step))
+        part = stop.focused
+        if part is None:
+            self.events.emit("message", f"the whole card: Y takes "
+                             f"{count(len(stop.taken), 'fix', 'fixes')}")
+        else:
+            state = "left out" if part.id in stop.left_out else "taken"
+            self.events.emit("message", f"fix {stop.focus + 1} of {len(stop.parts)} ({state}): "
+                             f"{part.fix.summary if part.fix else part.text}; D leaves it out "
+                             "or puts it back, I says it is not a problem")
+        return stop
+
+    def leave_out(self) -> Stop | None:
+        """Leave the fix under focus out of the card shown (or put it back): Y then takes the
+        others. Without a focus, E chooses one first."""
+        stop = self._card_here()
+        if stop is None:
+            return None
+        part = stop.focused
+        if part is None:
+            self.events.emit("message", "E chooses a fix of the card first, then D leaves it "
+                             "out")
+            return None
+        stop = self._replace_current(stop.leave_out())
+        out = part.id in stop.left_out
+        self.events.emit("message", f"{'left out' if out else 'put back'}: "
+                         f"{part.fix.summary if part.fix else part.text}; Y takes "
+                         f"{count(len(stop.taken), 'fix', 'fixes')}")
+        return stop
 
     def _refresh_at_end(self, frame_id: int) -> None:
         """At the end of a frame the walk changed, offer its fresh findings not yet passed
@@ -516,6 +606,52 @@ class Session:
                 self._over_time.pop(fid, None)
         self._over_time_gen += 1
 
+    def _ahead_token(self, stop: Stop) -> tuple[Any, ...]:
+        fid = stop.frame_id
+        return (fid, stop.key, stop.left_out, self._revision[fid], self._over_time_gen)
+
+    def _read_ahead_accept(self, stop: Stop) -> None:
+        """In a project with tracks, when the stop shown is its frame's last, compute on the
+        worker the findings over time of the frame the walk goes to next as they would be
+        once the stop's fix is accepted (its edits applied to the frame's labels in memory),
+        so that the accept's step into that frame finds them ready instead of computing
+        them on the spot. Only a fix of joints of people already there (which keeps every
+        person and track, :data:`~app.analysis.triage.temporal.JOINT_EDITS`) in one frame;
+        the result is used only if that very fix is accepted on the labels it was read
+        from with nothing else changed around (:meth:`_edited`)."""
+        from app.analysis.triage.temporal import JOINT_EDITS
+
+        self._ahead = None
+        fix, fid = stop.fix, stop.frame_id
+        if not self._tracked or fix is None or not fix.edits or fid != self.frame_id \
+                or any(not isinstance(e, JOINT_EDITS) or e.frame_id != fid
+                       for e in fix.edits):
+            return
+        held = self._stops.get(fid)
+        nxt = self.walk.following(fid)
+        if not held or held[-1].key != stop.key or nxt is None:
+            return
+        token = (*self._ahead_token(stop), nxt)
+        edits = fix.edits
+        self.reading_ahead += 1
+
+        def job() -> list[Finding] | None:
+            try:
+                after, _ = EditGroup(fid, edits).apply(self.project.labels(fid))
+                return time_findings(self.project, [nxt], instead={
+                    fid: list(after.people.values())}).get(nxt, [])
+            except Exception:  # the step computes them itself; the log says why
+                log.exception("reading ahead the findings over time of frame %s failed", nxt)
+                return None
+
+        def deliver(found: list[Finding] | None) -> None:
+            self.reading_ahead -= 1
+            if found is not None and self._revision[fid] == token[3] \
+                    and self._over_time_gen == token[4]:
+                self._ahead = (token, found)
+
+        self._background(job, deliver)
+
     def _read_ahead_over_time(self, frame_id: int) -> None:
         """In a project with tracks, compute the findings over time of the frame the walk
         goes to after ``frame_id`` (on the recompute's worker, so the step that shows that
@@ -568,6 +704,10 @@ class Session:
             self.events.emit("message", "no finding chosen: W goes to the next one")
             return None
         fix = stop.fix
+        if fix is None and stop.parts:
+            self.events.emit("message", "every fix of this card is left out: D puts the one "
+                             "under focus back, W skips the card")
+            return None
         if fix is None:
             self.events.emit("message", "this finding proposes no fix: correct it by hand, or "
                              "dismiss it as not a problem")
@@ -579,7 +719,7 @@ class Session:
                                              action="AcceptFinding")
         else:
             run = partial(self._apply, EditGroup(stop.frame_id, fix.edits, label))
-        if self._edited(stop, run, changes_labels=True) is None:
+        if self._edited(stop, run, changes_labels=True, reload=False) is None:
             return None
         self.events.emit("message", f"done: {fix.summary} (Ctrl+Z takes it back)")
         return self.step(1)
@@ -594,6 +734,8 @@ class Session:
             self.events.emit("message", "a triage reason cannot be dismissed; run triage to "
                              "get findings")
             return None
+        if stop.focused is not None:
+            return self._dismiss_part(stop)
         marks = tuple(DismissFinding(f.frame_id, f.fingerprint, f.kind, f.id, f.text)
                       for f in stop.findings)
         edit = marks[0] if len(marks) == 1 else EditGroup(stop.frame_id, marks)
@@ -602,8 +744,29 @@ class Session:
         self.events.emit("message", "dismissed as not a problem (Ctrl+Z takes it back)")
         return self.step(1)
 
-    def _edited(self, stop: Stop, run: Callable[[], Any], changes_labels: bool) -> Any:
-        """Run the edit of a stop; keep the frame's stops about other people."""
+    def _dismiss_part(self, stop: Stop) -> Stop | None:
+        """Dismiss the card's fix under focus alone (undoable); the card stays, without it."""
+        part = stop.focused
+        assert part is not None
+        mark = DismissFinding(part.frame_id, part.fingerprint, part.kind, part.id, part.text)
+        at = self.walk._index
+        if self._edited(stop, partial(self._apply, mark), changes_labels=False) is None:
+            return None
+        parts = tuple(p for p in stop.parts if p is not part)
+        rest = replace(stop, parts=parts, group=tuple(g for g in stop.group if g is not part),
+                       left_out=stop.left_out - {part.id}, focus=None,
+                       finding=parts[0], person_id=parts[0].person_id,
+                       text=card_text(parts) if len(parts) > 1 else parts[0].text)
+        self.walk._index = at
+        self.events.emit("message", f"dismissed as not a problem: {part.text} (Ctrl+Z takes "
+                         "it back); the card keeps the other fixes")
+        return self._replace_current(rest)
+
+    def _edited(self, stop: Stop, run: Callable[[], Any], changes_labels: bool,
+                reload: bool = True) -> Any:
+        """Run the edit of a stop; keep the frame's stops about other people. The frame
+        shown is read again now, or (``reload`` False) by the step that follows, only if
+        that step stays in it (:meth:`step`)."""
         touched = set(stop.people)
         fix = stop.fix
         if fix is not None and changes_labels:
@@ -626,11 +789,15 @@ class Session:
         if done is None:
             return None
         self._stops[fid] = kept
+        ahead, self._ahead = self._ahead, None
         # The frames around this one see its new labels: those within the edit's reach.
         if not changes_labels:
             self._forget_over_time(frames={fid})
         elif fix is not None:  # the stop's fix is what was applied
+            fits = ahead is not None and ahead[0][:5] == self._ahead_token(stop)
             self._forget_over_time(edits=fix.edits)
+            if fits:  # read ahead for exactly this accept (:meth:`_read_ahead_accept`)
+                self._over_time.setdefault(ahead[0][5], ahead[1])
         else:
             self._forget_over_time()
         self._dirty.add(fid)
@@ -644,7 +811,10 @@ class Session:
         for other in others:
             self._read_ahead(other)
         if fid == self.frame_id:
-            self.reload_frame()
+            if reload:
+                self.reload_frame()
+            else:
+                self._stale = fid
         return done
 
     def _read_ahead(self, frame_id: int) -> None:

@@ -1,7 +1,10 @@
 """The walk: from one problem to the next, across frames in Worklist order.
 
-A :class:`Stop` is one place the walk stops at: a finding (with its proposed fix, if any), or,
-in a project whose frames have no findings, one of triage's reasons about a person. A
+A :class:`Stop` is one place the walk stops at: a finding (with its proposed fix, if any), a
+person's card of several fixes that agree (:func:`person_cards`, taken with one key and
+trimmed before: :meth:`Stop.refocus`, :meth:`Stop.leave_out`), a frame's group of one kind's
+fixes, or, in a project whose frames have no findings, one of triage's reasons about a
+person. A
 :class:`Walk` is the cursor: :meth:`Walk.step` goes to the next (or previous) stop, within the
 frame first and then through the frames in the order the Worklist shows them. The stops of a
 frame come from a function the owner of the walk gives (:class:`app.session.Session` reads
@@ -27,10 +30,20 @@ Synthetic stops in two frames (frame 7 shown first in the Worklist, then frame 3
 from __future__ import annotations
 
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 from app.analysis.triage.calibration import PROPOSE_AT
 from app.analysis.triage.findings import Finding, Fix, FixPreview
+from app.model.edits import (
+    DeletePerson,
+    MergePeople,
+    MoveJoint,
+    NewPerson,
+    ReassignJoint,
+    SetVisibility,
+    SplitPerson,
+    SwapSides,
+)
 from app.model.naming import join_words
 from app.wording import count
 
@@ -54,9 +67,17 @@ class Stop:
     finding
         The finding, when the stop is one (None for a triage reason or a group).
     group
-        Several findings shown and accepted as one stop (see :func:`group_findings`); when
-        ``finding`` is set too, the stop is that finding with notes about the same person
-        (the group's other members, without a fix), and its fix is that finding's alone.
+        Several findings shown on one card (see :func:`group_findings`): the fixes taken
+        together (``parts``) and notes that propose none.
+    parts
+        The findings whose fixes the stop takes together, as one undo step (a person's card,
+        a frame's hidden joints); empty: the stop's fix is ``finding``'s alone.
+    left_out
+        The ids of the parts the annotator left out before taking the card
+        (:meth:`Stop.leave_out`): their fixes are not taken.
+    focus
+        The part under focus (an index into ``parts``; None: the card as a whole), which
+        :meth:`Stop.leave_out` leaves out or puts back.
     """
 
     frame_id: int
@@ -66,13 +87,61 @@ class Stop:
     text: str
     finding: Finding | None = None
     group: tuple[Finding, ...] = ()
+    parts: tuple[Finding, ...] = ()
+    left_out: frozenset[str] = frozenset()
+    focus: int | None = None
 
     @property
     def fix(self) -> Fix | None:
-        """The proposed fix (a group's fixes as one), or None."""
+        """The proposed fix (the parts' fixes not left out, as one), or None."""
+        if self.parts:
+            return _joined(self.taken)
         if self.group and self.finding is None:
             return _joined(self.group)
         return None if self.finding is None else self.finding.fix
+
+    @property
+    def taken(self) -> tuple[Finding, ...]:
+        """The parts whose fixes accepting the stop applies (not left out)."""
+        return tuple(f for f in self.parts if f.id not in self.left_out)
+
+    @property
+    def focused(self) -> Finding | None:
+        """The part under focus, or None."""
+        return None if self.focus is None else self.parts[self.focus]
+
+    def refocus(self, step: int) -> Stop:
+        """The stop with the focus on the next (``step`` 1) or previous (-1) part, through
+        "the card as a whole" (None) between the last part and the first.
+
+        Examples
+        --------
+        >>> s = Stop(1, "k", 2, (), "t", parts=_demo_parts(2))
+        >>> [s := s.refocus(1) for _ in range(3)][-1].focus is None, s.refocus(-1).focus
+        (True, 1)
+        """
+        if len(self.parts) < 2:
+            return self
+        spots = [None, *range(len(self.parts))]
+        at = spots.index(self.focus)
+        return replace(self, focus=spots[(at + step) % len(spots)])
+
+    def leave_out(self) -> Stop:
+        """The stop with the part under focus left out (or put back when it was left out);
+        unchanged without a focus.
+
+        Examples
+        --------
+        >>> s = Stop(1, "k", 2, (), "t", parts=_demo_parts(2)).refocus(1).leave_out()
+        >>> sorted(s.left_out), [f.id for f in s.taken], s.fix.summary
+        (['p0'], ['p1'], 'fix p1')
+        >>> s.leave_out().fix.summary
+        '2 fixes: fix p0; fix p1'
+        """
+        part = self.focused
+        if part is None:
+            return self
+        return replace(self, left_out=self.left_out ^ {part.id})
 
     @property
     def findings(self) -> tuple[Finding, ...]:
@@ -103,18 +172,213 @@ COVERED_KEY = "G:covered"
 #: At most this many people's fixes are written out on the grouped stop's card.
 GROUP_SHOWN = 4
 
-#: Kinds whose fixes place a joint left unlabelled here where the same track's frames around
-#: agree it is (:mod:`app.analysis.triage.temporal`): one joint each, many per frame in a
-#: video; a frame's are one stop (:data:`GAP_KEY`), accepted as one undo step.
-GAP_KINDS = ("joint-gap",)
+#: Kinds whose fixes mend one joint from the same track's frames around
+#: (:mod:`app.analysis.triage.temporal`): ``joint-gap`` places a joint left unlabelled here
+#: where they agree it is, ``jumping-joint`` puts back (or unlabels) a joint that jumps away
+#: and comes back. One joint each, many per frame in a video; a frame's are one stop
+#: (:data:`GAP_KEY`), accepted as one undo step, unless they join a person's card.
+GAP_KINDS = ("joint-gap", "jumping-joint")
 
 #: The key of a frame's stop that holds its :data:`GAP_KINDS` fixes.
 GAP_KEY = "G:gaps"
 
 
+#: A fix joins a card from this confidence on; one below stays a stop of its own, judged
+#: alone (ours: every proposed fix is at least :data:`PROPOSE_AT` sure, so all join today;
+#: raise it to keep the less sure ones apart).
+TOGETHER_AT = PROPOSE_AT
+
+#: At most this many people on one card (ours: a card stays readable; a fix that would link
+#: more stays a stop of its own).
+CARD_PEOPLE = 4
+
+#: At most this many parts of a card are listed one a line; the rest are counted.
+CARD_LINES = 6
+
+#: In a footprint, the whole person (a deletion, a merge, sides swapped).
+WHOLE = -1
+
+
+def footprint(fix: Fix) -> frozenset[tuple[int, int]] | None:
+    """The ``(person id, joint)`` pairs a fix's edits change (joint :data:`WHOLE`: the whole
+    person); None when the fix cannot join a card: it spans several frames (along a track),
+    or holds an edit whose reach is not read here.
+
+    Examples
+    --------
+    >>> from app.model.edits import DeletePerson, ReassignJoint
+    >>> sorted(footprint(Fix("", (ReassignJoint(1, 4, 9, 7),), FixPreview())))
+    [(4, 9), (7, 9)]
+    >>> footprint(Fix("", (DeletePerson(1, 4), DeletePerson(2, 4)), FixPreview())) is None
+    True
+    """
+    if len({e.frame_id for e in fix.edits}) > 1:
+        return None
+    out: set[tuple[int, int]] = set()
+    for e in fix.edits:
+        if isinstance(e, (MoveJoint, SetVisibility)):
+            out.add((e.person_id, e.joint))
+        elif isinstance(e, ReassignJoint):
+            out |= {(e.person_id, e.joint), (e.to_person_id, e.joint)}
+        elif isinstance(e, SplitPerson):
+            out |= {(e.person_id, int(j)) for j in e.joints}
+        elif isinstance(e, (DeletePerson, SwapSides)):
+            out.add((e.person_id, WHOLE))
+        elif isinstance(e, MergePeople):
+            out |= {(e.person_id, WHOLE), (e.other_id, WHOLE)}
+        elif not isinstance(e, NewPerson):
+            return None
+    return frozenset(out)
+
+
+def conflict(a: frozenset[tuple[int, int]] | set[tuple[int, int]],
+             b: frozenset[tuple[int, int]] | set[tuple[int, int]]) -> bool:
+    """Whether two footprints (:func:`footprint`) touch the same joint, or one touches a
+    person the other changes whole: their fixes would move a joint two ways.
+
+    Examples
+    --------
+    >>> conflict({(4, 9)}, {(4, 10)}), conflict({(4, 9)}, {(4, 9)}), conflict({(4, -1)}, {(4, 2)})
+    (False, True, True)
+    """
+    if a & b:
+        return True
+    whole_a = {p for p, j in a if j == WHOLE}
+    whole_b = {p for p, j in b if j == WHOLE}
+    return bool(whole_a & {p for p, _ in b} or whole_b & {p for p, _ in a})
+
+
+def person_cards(frame_id: int, found: Sequence[Finding]) -> tuple[list[Stop], list[Finding]]:
+    """A frame's fixes gathered per person: every fix about a person (and the people it
+    gives joints to or takes them from) that does not conflict with the ones before it
+    (:func:`conflict`) joins one card, taken with one key as one undo step. The card holds
+    first the fixes of the person's own kinds, worst first, then their hidden, invented and
+    joint-gap fixes (which otherwise go to the frame's stop of them). A fix below
+    :data:`TOGETHER_AT`, along a track, in conflict, or linking more than
+    :data:`CARD_PEOPLE` people stays a stop of its own. Returns the cards of two or more
+    fixes and ``found`` with each card's members but the first taken out (the card goes
+    where its first member was).
+
+    Examples
+    --------
+    >>> from app.model.edits import ReassignJoint, SetVisibility
+    >>> def f(i, kind, person, edit):
+    ...     fix = Fix(f"fix {i}", (edit,), FixPreview())
+    ...     return Finding(i, 1, kind, person, person, (edit.joint,), ("x",), f"t{i}", (), 1.0,
+    ...                    0.9, fix, (person,), i)
+    >>> found = [f("a", "wrong-owner", 3, ReassignJoint(1, 3, 9, 5)),
+    ...          f("b", "mirrored", 8, SetVisibility(1, 8, 2, 0)),
+    ...          f("c", "missing-joint", 5, SetVisibility(1, 5, 10, 2)),
+    ...          f("d", "hidden", 3, SetVisibility(1, 3, 13, 1)),
+    ...          f("e", "hidden", 3, SetVisibility(1, 3, 9, 1))]     # moves a wrist two ways
+    >>> cards, rest = person_cards(1, found)
+    >>> [[m.id for m in c.parts] for c in cards], [m.id for m in rest]
+    ([['a', 'c', 'd']], ['a', 'b', 'e'])
+    """
+    index = {f.id: n for n, f in enumerate(found)}
+    prints = {f.id: footprint(f.fix) for f in found if f.fix is not None}
+    late_kinds = GROUPED_KINDS + GAP_KINDS
+    cards: list[list[Finding]] = []
+    covers: list[set[tuple[int, int]]] = []
+    owner: dict[int, int] = {}
+    for late in (False, True):
+        for f in found:
+            fp = prints.get(f.id)
+            if fp is None or f.confidence < TOGETHER_AT or (f.kind in late_kinds) != late:
+                continue
+            # Linked by whom the fix changes (not by whom the finding reads, e.g. a hider).
+            people = {p for p, _ in fp}
+            if f.person_id is not None:
+                people.add(f.person_id)
+            at = sorted({owner[p] for p in people if p in owner})
+            if not at:
+                if late:
+                    continue  # nobody's card: it stays with the frame's stop of its kind
+                cards.append([f])
+                covers.append(set(fp))
+                for p in people:
+                    owner[p] = len(cards) - 1
+                continue
+            cover = set().union(*(covers[i] for i in at))
+            joined = people | {p for p, c in owner.items() if c in at}
+            if conflict(cover, fp) or len(joined) > CARD_PEOPLE:
+                continue
+            keep = at[0]
+            for i in at[1:]:
+                cards[keep] += cards[i]
+                cards[i] = []
+            cards[keep].append(f)
+            covers[keep] = cover | fp
+            for p in joined:
+                owner[p] = keep
+    out: list[Stop] = []
+    rest = list(found)
+    for members in cards:
+        if len(members) < 2:
+            continue
+        members.sort(key=lambda m: index[m.id])
+        parts = tuple(members)
+        rest = [f for f in rest if f not in parts[1:]]
+        joints = tuple(dict.fromkeys(j for m in parts if m.person_id == parts[0].person_id
+                                     for j in m.joints))
+        out.append(Stop(frame_id, "C:" + "+".join(m.id for m in parts), parts[0].person_id,
+                        joints, card_text(parts), parts[0], parts, parts))
+    return out, rest
+
+
+def card_text(parts: Sequence[Finding]) -> str:
+    """A person's card in one sentence: its first finding's, then what the other fixes do.
+
+    Examples
+    --------
+    >>> def f(i, summary):
+    ...     return Finding(i, 1, "k", 3, 3, (), (), f"person 3's {i} is odd", (), 1.0, 0.9,
+    ...                    Fix(summary, (), FixPreview()), (3,), i)
+    >>> card_text([f("a", "give it to person 5"), f("b", "mark it occluded")])
+    "person 3's a is odd; with it, 2 fixes together: mark it occluded"
+    """
+    said = [p.fix.summary for p in parts[1:CARD_LINES] if p.fix is not None]
+    more = len(parts) - 1 - len(said)
+    return (f"{parts[0].text}; with it, {count(len(parts), 'fix', 'fixes')} together: "
+            + "; ".join(said) + (f"; and {count(more, 'more fix', 'more fixes')}"
+                                 if more > 0 else ""))
+
+
+def card_lines(stop: Stop) -> list[tuple[str, bool, bool]]:
+    """A card's parts one a line, as the Canvas lists them: ``(text, left out, under
+    focus)``; the text is the fix in tag numbers and joint names, and how sure it is. At
+    most :data:`CARD_LINES` lines, the last counting the rest (and keeping the focus).
+
+    Examples
+    --------
+    >>> s = Stop(1, "k", 2, (), "t", parts=_demo_parts(2)).refocus(1).leave_out()
+    >>> card_lines(s)
+    [('fix p0 (90% sure)', True, True), ('fix p1 (90% sure)', False, False)]
+    """
+    if len(stop.parts) < 2:
+        return []
+    lines = [(f"{p.fix.summary if p.fix else p.text} ({p.confidence:.0%} sure)",
+              p.id in stop.left_out, n == stop.focus) for n, p in enumerate(stop.parts)]
+    if len(lines) <= CARD_LINES:
+        return lines
+    rest = lines[CARD_LINES - 1:]
+    off = sum(o for _, o, _ in rest)
+    text = (f"and {count(len(rest), 'more fix', 'more fixes')}"
+            + (f" ({off} left out)" if off else ""))
+    return [*lines[:CARD_LINES - 1], (text, off == len(rest), any(c for *_, c in rest))]
+
+
+def _demo_parts(n: int) -> tuple[Finding, ...]:
+    """Synthetic parts for the examples."""
+    return tuple(Finding(f"p{i}", 1, "k", 2, 2, (i,), ("x",), f"t{i}", (), 1.0, 0.9,
+                         Fix(f"fix p{i}", (), FixPreview()), (2,), f"p{i}")
+                 for i in range(n))
+
+
 def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
-    """A frame's findings as stops, worst first; two or more of the :data:`GROUPED_KINDS`
-    with fixes become one stop (:data:`COVERED_KEY`) where the first of them was.
+    """A frame's findings as stops, worst first: a person's fixes that agree are one card
+    (:func:`person_cards`); two or more of the :data:`GROUPED_KINDS` with fixes left off
+    the cards become one stop (:data:`COVERED_KEY`) where the first of them was.
 
     Examples
     --------
@@ -127,13 +391,16 @@ def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
     ...                                    f("c", "duplicate", 3), f("d", "invented", 4)])]
     ['a', 'G:covered', 'c']
     """
-    stops: list[Stop] = []
+    stops, found = person_cards(frame_id, found)
+    heads = {id(c.parts[0]) for c in stops}
     for key, kinds, say in ((COVERED_KEY, GROUPED_KINDS, covered_text),
                             (GAP_KEY, GAP_KINDS, gap_text)):
-        members = tuple(f for f in found if f.kind in kinds and f.fix is not None)
+        members = tuple(f for f in found if f.kind in kinds and f.fix is not None
+                        and id(f) not in heads)
         if len(members) >= 2:
             found = [f for f in found if f not in members or f is members[0]]
-            stops.append(Stop(frame_id, key, None, (), say(members), None, members))
+            stops.append(Stop(frame_id, key, None, (), say(members), None, members,
+                              members))
     by_person: dict[int, list[Finding]] = {}
     for f in found:
         if f.kind in PER_PERSON_KINDS and f.fix is None and f.person_id is not None:
@@ -151,7 +418,7 @@ def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
                           members))
     out = []
     for f in found:
-        grouped = next((g for g in stops if g.group[0] is f), None)
+        grouped = next((g for g in stops if g.findings[0] is f), None)
         out.append(grouped or Stop(f.frame_id, f.id, f.person_id, f.joints, f.text, f))
     return _frame_notes(_with_notes(out))
 
@@ -189,29 +456,41 @@ unlabel): person 2's knees occluded; person 5's left wrist unlabelled"
 
 
 def gap_text(members: Sequence[Finding]) -> str:
-    """The sentence of a frame's stop of joints the frames around place: how many, on how
-    many people, and each person's joints by tag and name.
+    """The sentence of a frame's stop of joints the frames around mend: how many, on how
+    many people, and each person's joints by tag and name (a joint that jumps marked so).
 
     Examples
     --------
     >>> from app.analysis.triage.findings import FixPreview
-    >>> def f(person, joint):
-    ...     return Finding("x", 1, "joint-gap", person, person, (9,), (joint,), "t", (), 1.0,
+    >>> def f(person, joint, kind="joint-gap"):
+    ...     return Finding("x", 1, kind, person, person, (9,), (joint,), "t", (), 1.0,
     ...                    0.7, Fix("place", (), FixPreview()), (person,), "x")
     >>> import textwrap
     >>> print(textwrap.fill(gap_text([f(2, "left wrist"), f(2, "left elbow"),
     ...                               f(5, "right knee")]), 80))
     the frames around place 3 joints unlabelled here, of 2 people: person 2's left
     wrist and left elbow; person 5's right knee
+    >>> print(textwrap.fill(gap_text([f(2, "left wrist"), f(5, "nose", "jumping-joint")]), 80))
+    the frames around mend 2 joints of 2 people (1 unlabelled here, 1 that jumps):
+    person 2's left wrist; person 5's nose (jumps)
     """
     by: dict[int | None, list[str]] = {}
     for m in members:
-        by.setdefault(m.tag, []).extend(m.joint_names)
+        mark = " (jumps)" if m.kind == "jumping-joint" else ""
+        by.setdefault(m.tag, []).extend(n + mark for n in m.joint_names)
     said = [f"person {tag}'s {join_words(names)}" for tag, names in
             list(by.items())[:GROUP_SHOWN]]
     more = sum(len(v) for v in list(by.values())[GROUP_SHOWN:])
-    return (f"the frames around place {count(len(members), 'joint')} unlabelled here, of "
-            f"{count(len(by), 'person', 'people')}: " + "; ".join(said)
+    jumps = sum(m.kind == "jumping-joint" for m in members)
+    people = count(len(by), 'person', 'people')
+    if not jumps:
+        head = (f"the frames around place {count(len(members), 'joint')} unlabelled here, "
+                f"of {people}")
+    else:
+        head = (f"the frames around mend {count(len(members), 'joint')} of {people} "
+                f"({len(members) - jumps} unlabelled here, {jumps} that "
+                f"{'jumps' if jumps == 1 else 'jump'})")
+    return (head + ": " + "; ".join(said)
             + (f"; and {count(more, 'more joint')}" if more else ""))
 
 
@@ -266,6 +545,9 @@ def _with_notes(stops: list[Stop]) -> list[Stop]:
     for i, s in enumerate(stops):
         if s.fix is not None and s.finding is not None and s.person_id is not None:
             host.setdefault(s.person_id, i)
+            for m in s.parts:  # a card hosts the notes of every person it mends
+                if m.person_id is not None:
+                    host.setdefault(m.person_id, i)
     for i, s in enumerate(stops):
         if s.fix is None and s.findings and s.person_id is not None:
             host.setdefault(s.person_id, i)
@@ -289,8 +571,7 @@ def _with_notes(stops: list[Stop]) -> list[Stop]:
             f"; and {count(more, 'more finding')} about this person" if more else "")
         members = s.findings + tuple(m for n in extra for m in n.findings)
         joints = tuple(dict.fromkeys(s.joints + tuple(j for n in extra for j in n.joints)))
-        out.append(Stop(s.frame_id, f"P:{s.key}", s.person_id, joints, text, s.finding,
-                        members))
+        out.append(replace(s, key=f"P:{s.key}", joints=joints, text=text, group=members))
     return out
 
 
@@ -344,9 +625,8 @@ def _frame_notes(stops: list[Stop]) -> list[Stop]:
         host, extra = stops[at], [stops[i] for i in riders]
         members = tuple(m for n in extra for m in n.findings)
         text = host.text + "; also on this frame, no fix proposed: " + _said(extra)
-        changed[at] = Stop(host.frame_id, f"{host.key}|{','.join(m.id for m in members)}",
-                           host.person_id, host.joints, text, host.finding,
-                           host.findings + members)
+        changed[at] = replace(host, key=f"{host.key}|{','.join(m.id for m in members)}",
+                              text=text, group=host.findings + members)
     if own:
         extra = [stops[i] for i in own]
         members = tuple(m for n in extra for m in n.findings)
@@ -368,6 +648,8 @@ def _joined(findings: Sequence[Finding]) -> Fix | None:
     fixes = [f.fix for f in findings if f.fix is not None]
     if not fixes:
         return None
+    if len(fixes) == 1:
+        return fixes[0]
     p = [x.preview for x in fixes]
     preview = FixPreview(
         tuple(v for x in p for v in x.placed), tuple(v for x in p for v in x.unlabeled),

@@ -12,7 +12,11 @@ The fix preview speaks our visual language:
 - a person who would be deleted (or merged away): a white diagonal cross over their box;
 - a person who would be added: their joints as small ghosts joined by dotted limbs.
 
-The finding's sentence sits in a card beside the box of what it is about, never in a tooltip;
+The finding's sentence sits in a card beside the box of what it is about, never in a tooltip.
+A card of several fixes (a person's, :func:`app.session.walk.person_cards`) says why (its
+first finding's sentence) and lists the fixes one a line: a filled square and bright text for
+a fix taken, a hollow square and dim struck-through text for one left out, an accent bar at
+the left edge for the fix under focus;
 the ranked owners sit in a small list beside the selected joint, one row per person (tag
 colour, tag number, fit, one reason), each row a click target.
 """
@@ -31,8 +35,9 @@ from app.model.labels import Person
 from app.model.naming import Names
 from app.model.skeleton import Skeleton
 from app.session.owners import OwnerRanking
-from app.session.walk import Stop, group_action
+from app.session.walk import Stop, card_lines, card_text, group_action
 from app.ui.overlay import OUTLINE, palette_colour
+from app.wording import count
 
 CARD = QColor(24, 24, 28, 228)
 CARD_TEXT = QColor("#f4f4f4")
@@ -269,7 +274,19 @@ def paint_walk_card(painter: QPainter, card: WalkCard, box: QRectF, bounds: QRec
     where = f" {card.where}" if card.where else ""
     head = ("Findings" if len(stop.findings) > 1 else "Finding" if stop.findings
             else "Triage") + where
-    if fix is not None:
+    lines = card_lines(stop)
+    body = stop.text
+    if lines:
+        # A card of several fixes: why (its first finding's sentence, and the notes riding
+        # on it), then the fixes one a line, each taken or left out.
+        said = card_text(stop.parts)
+        body = stop.parts[0].text + (stop.text[len(said):] if stop.text.startswith(said)
+                                     else "")
+        head = f"{count(len(stop.parts), 'fix', 'fixes')} together" + where
+        n = len(stop.taken)
+        tail = (f"Y takes {count(n, 'fix', 'fixes')} (one undo step) \u00b7 E next fix \u00b7 "
+                "D leaves it out \u00b7 I not a problem \u00b7 W skips")
+    elif fix is not None:
         # A frame's hidden-joint and invented-spot fixes are one stop of several; a
         # person's stop has one fix, with notes that propose none.
         several = stop.finding is None and len(stop.findings) > 1
@@ -286,10 +303,14 @@ def paint_walk_card(painter: QPainter, card: WalkCard, box: QRectF, bounds: QRec
     m_head, m_body = QFontMetrics(f_head), QFontMetrics(f_body)
     flags = int(Qt.TextFlag.TextWordWrap)
     inner = CARD_WIDTH - 16
-    r_text = m_body.boundingRect(0, 0, inner, 1000, flags, stop.text)
+    r_text = m_body.boundingRect(0, 0, inner, 1000, flags, body)
     r_tail = m_head.boundingRect(0, 0, inner, 1000, flags, tail)
-    width = max(r_text.width(), r_tail.width(), m_head.horizontalAdvance(head)) + 16
-    height = m_head.height() + r_text.height() + r_tail.height() + 20
+    rows = [(m_body.boundingRect(0, 0, inner - 18, 1000, flags, t), t, off, at)
+            for t, off, at in lines]
+    width = max([r_text.width(), r_tail.width(), m_head.horizontalAdvance(head),
+                 *(r.width() + 18 for r, *_ in rows)]) + 16
+    height = (m_head.height() + r_text.height() + r_tail.height() + 20
+              + sum(r.height() + 3 for r, *_ in rows) + (4 if rows else 0))
     rect = least_covering(card_places(box, (width, height), bounds), keep_clear)
     painter.save()
     painter.setRenderHint(QPainter.RenderHint.Antialiasing, True)
@@ -305,8 +326,30 @@ def paint_walk_card(painter: QPainter, card: WalkCard, box: QRectF, bounds: QRec
     y += m_head.height() + 3
     painter.setFont(f_body)
     painter.setPen(CARD_TEXT)
-    painter.drawText(QRectF(rect.left() + 8, y, inner, r_text.height()), flags, stop.text)
+    painter.drawText(QRectF(rect.left() + 8, y, inner, r_text.height()), flags, body)
     y += r_text.height() + 5
+    if rows:
+        y += 2
+    for r, t, off, at in rows:
+        # Taken: a filled mark and bright text; left out: a hollow mark, dim struck text;
+        # under focus: the accent's bar at the left edge.
+        mark = QPointF(rect.left() + 14, y + m_body.height() / 2)
+        painter.setPen(QPen(ACCENT if not off else CARD_DIM, 1.5))
+        painter.setBrush(Qt.BrushStyle.NoBrush if off else ACCENT)
+        painter.drawRect(QRectF(mark - QPointF(3.5, 3.5), mark + QPointF(3.5, 3.5)))
+        if at:
+            painter.setPen(QPen(ACCENT, 3.0))
+            painter.drawLine(QPointF(rect.left() + 3, y), QPointF(rect.left() + 3,
+                                                                  y + r.height()))
+        font = QFont(f_body)
+        font.setStrikeOut(off)
+        font.setBold(at)
+        painter.setFont(font)
+        painter.setPen(CARD_DIM if off else CARD_TEXT)
+        painter.drawText(QRectF(rect.left() + 26, y, inner - 18, r.height()), flags, t)
+        y += r.height() + 3
+    if rows:
+        y += 4
     painter.setFont(f_head)
     painter.setPen(CARD_DIM)
     painter.drawText(QRectF(rect.left() + 8, y, inner, r_tail.height()), flags, tail)

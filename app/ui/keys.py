@@ -81,7 +81,16 @@ KEYS: tuple[Key, ...] = (
     Key("Walk", "accept_fix", "Accept the fix",
         "Accept the shown finding's proposed fix (one undo step), then walk on", ("Y",)),
     Key("Walk", "dismiss_finding", "Not a problem",
-        "Dismiss the shown finding as not a problem (undoable), then walk on", ("I",)),
+        "Dismiss the shown finding as not a problem (undoable), then walk on; with a fix of "
+        "the card under focus, that finding alone", ("I",)),
+    Key("Walk", "next_part", "Next fix of the card",
+        "Put the focus on the next fix of a card of several (Shift: the previous), through "
+        "the card as a whole", ("E",)),
+    Key("Walk", "prev_part", "Previous fix of the card",
+        "Put the focus on the previous fix of a card of several", ("Shift+E",)),
+    Key("Walk", "leave_out_part", "Leave the fix out",
+        "Leave the fix under focus out of the card, or put it back: Y takes the others",
+        ("D",)),
     # Selection
     Key("Selection", "", "", "Select a joint; on a limb or a tag, select the person",
         gesture="Click"),

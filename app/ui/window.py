@@ -154,6 +154,12 @@ class MainWindow(QMainWindow):
         self._claimed: int | None = None
         self._jobs: list[Any] = []
         self._closed = False
+        #: The walk's own accept is being applied (:meth:`session_accept`), and the frame's
+        #: reading that it deferred is still to do.
+        self._walk_accepting = False
+        self._deferred_reload = False
+        #: The walk is showing its stop's frame: the selection's panels wait for the stop's.
+        self._holding_selection = False
         self._remember_layout = restore_layout
         self._layout_restored = True
         self._panels_for: int | None = None
@@ -308,6 +314,9 @@ class MainWindow(QMainWindow):
             "prev_finding": lambda: self.session.step(-1),
             "accept_fix": self.session_accept,
             "dismiss_finding": self.session_dismiss,
+            "next_part": lambda: self.session.focus_part(1),
+            "prev_part": lambda: self.session.focus_part(-1),
+            "leave_out_part": lambda: self.session.leave_out(),
             "mark_visible": editing("set_visibility", 2),
             "mark_occluded": editing("set_visibility", 1),
             "mark_unlabeled": editing("set_visibility", 0),
@@ -680,6 +689,13 @@ class MainWindow(QMainWindow):
                 self.show_frame(first)
                 return
         current = self.frame_id in frame_ids or kind in ("import", "frames")
+        if current and self._walk_accepting and kind == "edit":
+            # The walk's own accept: the step that follows shows the next stop, in this
+            # frame (then it is read again, :meth:`_show_stop`) or in another (which is
+            # read instead); reading this one now would be work thrown away.
+            self._deferred_reload = True
+            self._update_actions()
+            return
         if current:
             if kind in ("import", "frames"):  # maps come only with an import
                 self.maps_shelf.clear()
@@ -912,7 +928,8 @@ class MainWindow(QMainWindow):
             self.timeline.forget(frame_ids)
         if kind != "triage":
             self.timeline.drop_carry()
-        self._update_timeline()
+        if not self._walk_accepting:  # else the step that follows shows it
+            self._update_timeline()
 
     def _propose_carry(self, done: Applied | None) -> None:
         """After a correction of one frame, work out where carrying it would go on a worker
@@ -963,6 +980,8 @@ class MainWindow(QMainWindow):
         self.session.editing.choose_person(pid)
 
     def _selection_changed(self) -> None:
+        if self._holding_selection:
+            return  # the walk selects its stop next (_show_stop)
         pid = self.canvas.selected_person
         self.owners.show_person(pid)
         self.canvas.set_owners(self.session.rank_owners(self._frame_maps))
@@ -978,8 +997,23 @@ class MainWindow(QMainWindow):
     # ------------------------------------------------------------------ the walk
 
     def session_accept(self) -> None:
+        """Accept the shown card; the frame's labels are read again once, by the step that
+        follows (:meth:`_on_changed` defers it), or here when the walk did not move."""
         self._cancel_typing()
-        self.session.accept()
+        self._walk_accepting, self._deferred_reload = True, False
+        try:
+            self.session.accept()
+        finally:
+            self._walk_accepting = False
+            self._catch_up()
+
+    def _catch_up(self) -> None:
+        """Read the frame shown again after the walk's own accept, if it is still shown
+        (:meth:`_on_changed` deferred it); the Ledger too."""
+        if self._deferred_reload and not self._closed:
+            self._deferred_reload = False
+            self._reload_frame()
+            self.ledger_model.reload()
 
     def session_dismiss(self) -> None:
         self._cancel_typing()
@@ -998,8 +1032,17 @@ class MainWindow(QMainWindow):
             self.canvas.show_stop(None)
             self._update_actions()
             return
-        if stop.frame_id != self.frame_id:
-            self.show_frame(stop.frame_id)
+        if stop.frame_id == self.frame_id:
+            self._catch_up()
+        else:
+            self._deferred_reload = False  # the frame accepted in is left: nothing to read
+            # The stop's selection follows at once (select_stop): the panels that show the
+            # selection are updated once, then, not for the new frame's empty one before.
+            self._holding_selection = True
+            try:
+                self.show_frame(stop.frame_id)
+            finally:
+                self._holding_selection = False
         self.session.select_stop(stop)
         self.canvas.show_stop(stop, self.session.stop_place(stop))
         self._update_actions()

@@ -27,8 +27,10 @@ end of the Worklist. Figures:
   Goal: the next finding shown within 50 ms. A frame the walk changed has its findings
   computed again on a worker thread after each accept (:mod:`app.session.session`), started
   after the repaint that shows the next finding (:class:`app.ui.work.Background`); the
-  scripted annotator waits for that result before the next key, as a person reading the card
-  would give it time, and that wait is reported apart (it is not the UI thread's time).
+  scripted annotator waits for that result (and for the next frame's findings over time,
+  read ahead as the card's accept would leave them) before the next key, as a person
+  reading the card would give it time, and that wait is reported apart (it is not the UI
+  thread's time).
   Wall clock, and the process's CPU time beside it, since a shared machine's load inflates
   the wall clock (the load average is reported); no baseline exists.
 """
@@ -134,6 +136,12 @@ def walk_demo(folder: Path, tracks: bool = False) -> dict:
     #: Per stop kind (what was accepted, or what was skipped): stops and wrong people removed
     #: in the stop's frame (negative: added).
     by_kind: dict[str, list[int]] = {}
+    #: Per frame, the keys of its stops when the walk first came to it; a press on another
+    #: stop there is on one raised later (a recompute after an accept, or findings over
+    #: time read again after an accept in a frame within reach).
+    first_keys: dict[int, set[str]] = {}
+    late = 0
+    late_kinds: dict[str, int] = {}
     for _ in range(5000):
         stop_was = window.session.current
         frame_was = window.frame_id
@@ -162,12 +170,17 @@ def walk_demo(folder: Path, tracks: bool = False) -> dict:
         # annotator reads the card; a person takes longer to read it than the recompute
         # takes, so the scripted one waits for it (timed apart) before the next key.
         w0 = time.perf_counter()
-        while window.session.pending:
+        while window.session.pending or window.session.reading_ahead:
             app.processEvents()
             time.sleep(0.002)
         if press == "accept_fix":
             waits.append(time.perf_counter() - w0)
+        first_keys.setdefault(stop.frame_id,
+                              {x.key for x in window.session.stops(stop.frame_id)})
         if stop_was is not None:
+            if stop_was.key not in first_keys.get(stop_was.frame_id, set()):
+                late += 1
+                late_kinds[kind_key] = late_kinds.get(kind_key, 0) + 1
             tally = by_kind.setdefault(kind_key, [0, 0, 0])
             tally[0] += 1
             tally[1] += wrong_was - _wrong(project, truth, {stop_was.frame_id})
@@ -190,7 +203,9 @@ def walk_demo(folder: Path, tracks: bool = False) -> dict:
             "after": after, "training_before": training_before,
             "training_after": training_after, "joints_before": joints_before,
             "joints_after": joints_after,
-            "inside": inside, "ends": ends, "by_kind": by_kind,
+            "inside": inside, "ends": ends, "by_kind": by_kind, "late": late,
+            "late_kinds": late_kinds,
+            "first": sum(len(k) for k in first_keys.values()),
             "cpu_inside": cpu_inside, "cpu_ends": cpu_ends, "waits": waits}
 
 
@@ -244,9 +259,13 @@ def _rows(got: dict, name: str) -> list[dict]:
         row(f"{name}: key presses per wrong labelled joint fixed", per_joint, "keys", "(none)",
             True, joint_detail),
         row(f"{name}: stops by kind", sum(n for n, *_ in got["by_kind"].values()), "stops",
-            "(none)", True, "what each press after the first did, and in brackets the wrong "
-            "people it removed from its frame, strictly (OKS 0.8) / as training sees them: "
-            f"{where_presses}"),
+            "(none)", True, f"{got['late']} of them on stops raised after the walk came to "
+            f"their frame (its {got['first']} stops then: "
+            + ", ".join(f"{k} {n}" for k, n in sorted(got["late_kinds"].items(),
+                                                      key=lambda kv: -kv[1]))
+            + "); what each press after the first "
+            "did, and in brackets the wrong people it removed from its frame, strictly "
+            f"(OKS 0.8) / as training sees them: {where_presses}"),
         row(f"{name}: next finding shown, same frame (median wall)", ms["inside"], "ms",
             "<= 50 ms", ms["inside"] <= 50,
             f"95th percentile {1000 * _p95(got['inside']):.0f} ms over {len(got['inside'])} "

@@ -198,9 +198,9 @@ def test_a_recompute_in_before_the_frames_end_is_offered_before_the_walk_moves_o
     assert s.skip().key == "Fc"
 
 
-def _covered_frame(project, fid, first):
+def _covered_frame(project, fid, first, owner_too=True):
     """Stored findings (invented): person 1's knees marked occluded, person 2's left wrist
-    an invented spot to unlabel, and a wrong owner about person 1 on its own stop."""
+    an invented spot to unlabel, and (``owner_too``) a wrong owner about person 1."""
     from app.analysis.triage.findings import Finding, Fix, FixPreview, labels_digest
     from app.model.edits import SetVisibility
 
@@ -212,8 +212,8 @@ def _covered_frame(project, fid, first):
                    FixPreview(unlabeled=((b, 9),)))
     owner = Fix("mark person 1's nose occluded", (SetVisibility(fid, a, 0, 1),),
                 FixPreview(occluded=((a, 0),)))
-    found = [_note(fid, a, "Fo", "wrong-owner", 0, "nose", owner),
-             Finding("Fh", fid, "hidden", a, 1, (13, 14), ("left knee", "right knee"),
+    found = [_note(fid, a, "Fo", "wrong-owner", 0, "nose", owner)] if owner_too else []
+    found += [Finding("Fh", fid, "hidden", a, 1, (13, 14), ("left knee", "right knee"),
                      "person 1's knees are hidden", (), 1.0, 0.9, hidden, (a,), "FhFh"),
              Finding("Fi", fid, "invented", b, 2, (9,), ("left wrist",),
                      "person 2's left wrist is invented", (), 1.0, 0.9, invented, (b,), "FiFi")]
@@ -232,11 +232,11 @@ def test_a_frames_hidden_and_invented_fixes_are_one_stop_and_one_undo_step(scene
     undo step)."""
     project, fids, first = scene
     fid = fids[0]
-    _covered_frame(project, fid, first)
+    _covered_frame(project, fid, first, owner_too=False)
     s, _, _ = _session(project, [fid])
     stops = s.stops(fid)
-    assert [x.key for x in stops] == ["Fo", "G:covered"]
-    group = stops[1]
+    assert [x.key for x in stops] == ["G:covered"]
+    group = stops[0]
     assert [f.id for f in group.findings] == ["Fh", "Fi"]
     assert group.text.startswith("nearer people hide 3 joints of 2 people (2 to mark "
                                  "occluded, 1 invented spot to unlabel)")
@@ -244,7 +244,7 @@ def test_a_frames_hidden_and_invented_fixes_are_one_stop_and_one_undo_step(scene
     assert "person 2's left wrist unlabelled" in group.text
     assert set(group.fix.preview.occluded) == {(first, 13), (first, 14)}
     assert group.fix.preview.unlabeled == ((first + 1, 9),)
-    assert s.step(1).key == "Fo" and s.skip().key == "G:covered", "skip passes the other stop"
+    assert s.step(1).key == "G:covered"
     groups = len({e.group_id for e in project.history()})
     s.accept()
     assert (_v(project, fid, first, 13), _v(project, fid, first, 14),
@@ -258,15 +258,71 @@ def test_a_frames_hidden_and_invented_fixes_are_one_stop_and_one_undo_step(scene
 def test_dismissing_the_grouped_stop_dismisses_each_of_its_findings(scene):
     project, fids, first = scene
     fid = fids[0]
-    _covered_frame(project, fid, first)
+    _covered_frame(project, fid, first, owner_too=False)
     s, _, said = _session(project, [fid])
     s.step(1)
-    s.skip()
     assert s.current.key == "G:covered"
     s.dismiss()
     assert project.dismissed()[fid] == {"FhFh", "FiFi"}
     assert _v(project, fid, first, 13) == 2, "nothing was changed"
     assert "dismissed as not a problem" in " ".join(said)
+
+
+def test_a_persons_fixes_are_one_card_taken_with_one_key_as_one_undo_step(scene):
+    """Person 1's wrong owner and hidden knees are one card (person 2's invented wrist,
+    about nobody on it, stays its own stop); one accept applies both fixes as one ledger
+    group and one undo takes both back (common practice: one action, one undo step)."""
+    project, fids, first = scene
+    fid = fids[0]
+    _covered_frame(project, fid, first)
+    s, _, _ = _session(project, [fid])
+    assert [x.key for x in s.stops(fid)] == ["C:Fo+Fh", "Fi"]
+    card = s.step(1)
+    assert [f.id for f in card.parts] == ["Fo", "Fh"] and card.person_id == first
+    assert set(card.fix.preview.occluded) == {(first, 0), (first, 13), (first, 14)}
+    assert "person 1's knees occluded" in card.text, "named by tag and joint names"
+    groups = len({e.group_id for e in project.history()})
+    s.accept()
+    assert [_v(project, fid, first, j) for j in (0, 13, 14)] == [1, 1, 1]
+    assert len({e.group_id for e in project.history()}) == groups + 1, "one ledger group"
+    project.undo()
+    assert [_v(project, fid, first, j) for j in (0, 13, 14)] == [2, 2, 2], "one undo step"
+
+
+def test_a_card_is_trimmed_by_key_before_it_is_taken(scene):
+    """E puts the focus on a fix of the card (and selects its joints), D leaves it out, Y
+    takes the others alone; the card stays in its place while it is trimmed."""
+    project, fids, first = scene
+    fid = fids[0]
+    _covered_frame(project, fid, first)
+    s, seen, said = _session(project, [fid])
+    s.step(1)
+    assert s.leave_out() is None and "E chooses a fix" in said[-1], "nothing under focus"
+    s.focus_part(1)
+    s.focus_part(1)
+    assert s.current.focused.id == "Fh"
+    s.select_stop(s.current)  # as the window does when a stop is shown
+    assert set(s.selection.joints) == {(first, 13), (first, 14)}, "the part's joints selected"
+    card = s.leave_out()
+    assert seen[-1] is card and [f.id for f in card.taken] == ["Fo"]
+    assert s.stop_place(card) == "\u00b7 stop 1 of 2", "kept in its place"
+    s.accept()
+    assert [_v(project, fid, first, j) for j in (0, 13, 14)] == [1, 2, 2], "knees left alone"
+
+
+def test_a_cards_fix_under_focus_is_dismissed_alone(scene):
+    """I with a fix under focus dismisses that finding only; the card keeps the others."""
+    project, fids, first = scene
+    fid = fids[0]
+    _covered_frame(project, fid, first)
+    s, _, _ = _session(project, [fid])
+    s.step(1)
+    s.focus_part(1)
+    card = s.dismiss()
+    assert project.dismissed()[fid] == {"FoFo"}
+    assert [f.id for f in card.parts] == ["Fh"] and s.current is card
+    s.accept()
+    assert [_v(project, fid, first, j) for j in (0, 13, 14)] == [2, 1, 1]
 
 
 def test_the_frames_people_are_held_once_by_the_view(scene):

@@ -141,3 +141,29 @@ def test_the_other_frames_a_fix_along_a_track_changes_are_read_ahead_in_the_back
         s.labels_changed([6])
         result, deliver = ahead[6]
         assert not deliver(result) and 6 not in s._stops
+
+
+def test_the_next_frames_findings_over_time_read_ahead_for_an_accept_equal_a_fresh_read(
+        tmp_path):
+    """While the last stop of a frame is shown, the next frame's findings over time are
+    read ahead as that stop's accept would leave them; the accept uses them, and they equal
+    a computation after it. Synthetic dancers, joints unlabelled by hand in frames 3 and 4
+    (within each other's reach)."""
+    from app.jobs_findings import time_findings
+
+    people = sequences.dancers(frames=6, n=2)
+    people[2, 1, [LEFT_ELBOW, LEFT_WRIST]] = (0.0, 0.0, 0)
+    people[3, 0, LEFT_WRIST] = (0.0, 0.0, 0)
+    project, fids = sequences.make_project(tmp_path, people)
+    with project:
+        link_project(project)
+        project.store_findings({fid: (labels_digest(project.labels(fid)), [])
+                                for fid in fids})
+        s = Session(project, order=lambda: [3, 4, 1, 2, 5, 6])
+        s.open_frame(3)
+        assert s.step(1).key == GAP_KEY and [x.key for x in s.stops(3)] == [GAP_KEY]
+        ahead = s._ahead[1]
+        assert ahead and s._ahead[0][5] == 4
+        s.accept()
+        assert s.current.frame_id == 4 and s._over_time[4] is ahead, "used, not computed"
+        assert repr(ahead) == repr(time_findings(project, [4])[4])

@@ -9,6 +9,8 @@ one action, one undo step is the command pattern's rule (common practice, no sou
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 from PySide6.QtCore import Qt
 
 from app.analysis.triage.findings import Finding, Fix, FixPreview, labels_digest
@@ -175,3 +177,25 @@ def test_the_maps_shelf_reads_ahead_and_forgets_on_clear(qtbot):
     assert 7 not in shelf._held and shelf.get(7, lambda: "fresh") == "fresh"
     assert reads == [5]
     shelf.shutdown()
+
+
+def test_a_persons_card_is_trimmed_with_e_and_d_and_taken_with_y(qtbot, window, ui_project):
+    """Two fixes of person 2 are one card; E E puts the focus on the second, D leaves it out,
+    Y takes the first alone (synthetic findings)."""
+    fid, pid = window.frame_id, person_id(window, 2)
+    first = replace(_hidden(fid, pid, 2, 9, "left wrist", "Fa"), kind="wrong-owner",
+                    fingerprint="fedcba9876543210")
+    second = _hidden(fid, pid, 2, 7, "left elbow", "Fb")
+    ui_project.store_findings({fid: (labels_digest(ui_project.labels(fid)),
+                                     [first.to_dict(), second.to_dict()])})
+    window.session.findings_changed()
+    qtbot.keyClick(window.canvas, Qt.Key.Key_W)
+    assert [f.id for f in window.canvas.walk_card.stop.parts] == ["Fa", "Fb"]
+    for key in (Qt.Key.Key_E, Qt.Key.Key_E, Qt.Key.Key_D):
+        qtbot.keyClick(window.canvas, key)
+    card = window.canvas.walk_card.stop
+    assert card.left_out == {"Fb"} and window.canvas.selected_joints == [(pid, 7)]
+    with qtbot.waitSignal(window.background.delivered, timeout=WAIT_MS):
+        qtbot.keyClick(window.canvas, Qt.Key.Key_Y)
+    person = next(p for p in ui_project.people(fid) if p.id == pid)
+    assert (person.keypoints[9, 2], person.keypoints[7, 2]) == (1, 2)
