@@ -243,11 +243,11 @@ def test_check_reads_the_manifest_strictly(export, tmp_path, capsys):
 
 def test_import_maps_groups_a_sequence_in_runs_with_the_frame_before(tmp_path, image_dir,
                                                                      maps_dir, monkeypatch):  # noqa: F811
-    """The six synthetic frames are one image folder, so one sequence: each frame is grouped
-    with the people of the frame before (grouped just now, or kept there), in runs of
-    GROUPING_RUN frames whose first has none; once the folder is marked not a sequence, no
-    frame has a frame before. (Our own rule; group_people's prior is tested in
-    tests/analysis/test_association.py.)"""
+    """With frame_before, the six synthetic frames (one image folder, so one sequence) are
+    each grouped with the people of the frame before (grouped just now, or kept there), in
+    runs of GROUPING_RUN frames whose first has none; once the folder is marked not a
+    sequence, or by default (FRAME_BEFORE off), no frame has a frame before. (Our own rule;
+    group_people's prior is tested in tests/analysis/test_association.py.)"""
     from app import jobs_analysis
     from app.jobs_analysis import import_maps
     from app.jobs_tracks import mark_not_sequence
@@ -268,7 +268,7 @@ def test_import_maps_groups_a_sequence_in_runs_with_the_frame_before(tmp_path, i
     with new_project(tmp_path / "p", images=image_dir, author="ana") as p:
         third = p.frames()[2]
         p.apply(NewPerson(third.id, None, tuple(map(tuple, kept))))
-        import_maps(p, folder)
+        import_maps(p, folder, frame_before=True)
     # Frames 1-4 are a run (frame 3 kept its person, so is not grouped), 5-6 the next.
     assert len(calls) == 5
     assert calls[0][0] is None and calls[1][0] is calls[0][1]
@@ -277,5 +277,9 @@ def test_import_maps_groups_a_sequence_in_runs_with_the_frame_before(tmp_path, i
     calls.clear()
     with new_project(tmp_path / "q", images=image_dir, author="ana") as p:
         mark_not_sequence(p, [""])
-        import_maps(p, folder)
+        import_maps(p, folder, frame_before=True)
+    assert len(calls) == 6 and all(previous is None for previous, _ in calls)
+    calls.clear()
+    with new_project(tmp_path / "r", images=image_dir, author="ana") as p:
+        import_maps(p, folder)  # the default (FRAME_BEFORE off): each frame alone
     assert len(calls) == 6 and all(previous is None for previous, _ in calls)
