@@ -70,14 +70,15 @@ def import_maps(project: Project, folder: str | Path,
     the maps (:mod:`app.parallel`); this one stores them, with the same result whatever the
     number.
 
-    The frames of a sequence (:mod:`app.model.sequences`) are grouped in order, each with the
-    people of the frame before it as ``previous``, so that near ties between overlapping
-    people are decided as on that frame: the people just grouped there, or, where that frame
-    keeps its people, those. They go to the workers in runs of :data:`GROUPING_RUN`
-    consecutive frames that have maps in ``folder``; the first frame of a run, a frame whose
-    neighbour before it has no maps here, and a frame in no sequence (a folder marked not a
-    sequence) are grouped without a frame before. ``frame_before=False`` groups every frame
-    alone (default :data:`FRAME_BEFORE`).
+    With ``frame_before`` (default :data:`FRAME_BEFORE`, off; ``import-maps
+    --frame-before``), the frames of a sequence (:mod:`app.model.sequences`) are grouped in
+    order, each with the people of the frame before it as ``previous``, so that near ties
+    between overlapping people are decided as on that frame: the people just grouped there,
+    or, where that frame keeps its people, those. They go to the workers in runs of
+    :data:`GROUPING_RUN` consecutive frames that have maps in ``folder``; the first frame of a
+    run, a frame whose neighbour before it has no maps here, and a frame in no sequence (a
+    folder marked not a sequence) are grouped without a frame before. Without it, every frame
+    is grouped alone.
     """
     progress = progress or Progress()
     frames = {f.id: f for f in project.frames()}
@@ -93,7 +94,8 @@ def import_maps(project: Project, folder: str | Path,
     runs = _grouping_runs([s.frame_ids for s in sequences(frames.values(), marked)]
                           if in_order else [], files)
     items = [(project.skeleton,
-              [(str(files[f]), frames[f], [p.keypoints for p in kept[f]] if f in kept else None)
+              [(str(files[f]), frames[f],
+                None if f not in kept else [p.keypoints for p in kept[f]] if in_order else [])
                for f in run])
              for run in runs]
     results: dict[int, tuple[int, list[Person]]] = {}

@@ -477,10 +477,12 @@ def group_people(
     while the dancers stay tangled (see :mod:`app.demo.maps`). The bonus makes the pairing
     keep the frame before's choice unless the fields clearly favour another. The bonus 0.2
     and radius 12 px are our own choice (no published source), set on the development demo
-    seeds 61-66 in one trial: wrong joints wrong again on the next frame 44.8 % -> 56 %,
-    annotator actions to fix every wrong joint frame by frame 2,257 -> 2,108 (fewer wrong
-    joints). A wrong choice is carried on as much as a right one; the first frame of a
-    sequence, or of a run of frames grouped apart, has no frame before.
+    seeds 61-66: there a wrong labelled joint is wrong again on the next frame in 56.6 % of
+    cases (44.8 % grouped frame by frame), and the annotator actions to fix every wrong joint
+    frame by frame fall from 2,257 to 2,112 (fewer wrong joints); on the held-out seeds 91-96,
+    61.8 % (51.6 %) and 2,266 -> 1,969 (README "Sequences", ``import-maps --frame-before``). A
+    wrong choice is carried on as much as a right one; the first frame of a sequence, or of a
+    run of frames grouped apart, has no frame before.
 
     Limitations: two parts of one type closer than about a grid cell give a single peak, so
     one person loses that part and the parts beyond it. Parts are joined only through labelled
