@@ -19,8 +19,8 @@ from collections.abc import Sequence
 from typing import Any
 
 import numpy as np
-from scipy.optimize import linear_sum_assignment
 
+from app.analysis.assignment import linear_sum_assignment
 from app.errors import BadInput
 
 log = logging.getLogger(__name__)
