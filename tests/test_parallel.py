@@ -53,9 +53,12 @@ def test_two_workers_store_and_write_what_one_does(tmp_path, image_dir, maps_dir
                                                    free_pool, monkeypatch):
     """... and each command tells app.parallel the job's size and function before it starts
     the job (head_start), by a name that is the function the job hands to its workers."""
-    from app import cli, parallel
+    from app import cli, jobs_analysis, parallel
 
     folder, _ = maps_dir
+    # The six frames are one sequence: with --frame-before, runs of two frames (each grouped
+    # with the frame before but the first) make three items for the workers.
+    monkeypatch.setattr(jobs_analysis, "GROUPING_RUN", 2)
     told = []
     monkeypatch.setattr(cli, "head_start",
                         lambda job, items, workers: told.append((job, items, workers))
@@ -64,7 +67,8 @@ def test_two_workers_store_and_write_what_one_does(tmp_path, image_dir, maps_dir
     for workers in ("1", "2"):
         proj = tmp_path / f"p{workers}"
         assert main(["new", str(proj), "--images", str(image_dir), "-q"]) == 0
-        assert main(["import-maps", str(proj), str(folder), "-q", "--workers", workers]) == 0
+        assert main(["import-maps", str(proj), str(folder), "-q", "--workers", workers,
+                     "--frame-before"]) == 0
         with Project.open(proj, author="ana") as p:
             f = p.frames()[1]
             q = p.people(f.id)[0]
