@@ -353,9 +353,9 @@ FOLD_ROUNDS = 3
 
 def fold_hosts(stops: Sequence[Stop]) -> list[int]:
     """Which stops :func:`fold` applies together (indices into ``stops``): every stop with a
-    fix about a person (a card, or a lone fix) in one frame whose footprint does not
-    conflict with the ones before it (:func:`conflict`); a frame's group of one kind's fixes
-    is none.
+    fix about a person (a card, or a lone fix) or a frame's group of one kind's fixes
+    (:data:`COVERED_KEY`, :data:`GAP_KEY`), in one frame, whose footprint does not conflict
+    with the ones before it (:func:`conflict`).
 
     Examples
     --------
@@ -372,9 +372,9 @@ def fold_hosts(stops: Sequence[Stop]) -> list[int]:
     cover: set[tuple[int, int]] = set()
     for i, s in enumerate(stops):
         fix = s.fix
-        if fix is None or not fix.edits or s.person_id is None or s.key.startswith("G:") \
+        if fix is None or not fix.edits or (s.person_id is None and not _is_group(s)) \
                 or any(isinstance(e, (NewPerson, SplitPerson)) for e in fix.edits):
-            continue  # a frame's group, or a fix that makes a person (its id is the store's)
+            continue  # about nobody yet, or it makes a person (its id is the store's)
         fp = footprint(fix)
         if fp is None or conflict(cover, fp):
             continue
@@ -394,8 +394,11 @@ def fold(stops: Sequence[Stop], find: Callable[[tuple], Sequence[Finding]],
     A new finding joins a host when: its id and fingerprint were not found before; it has a
     fix of one frame at or above :data:`TOGETHER_AT`; the people it reads or changes
     include one the host's fix changes and none another host's fix changes (it follows
-    from that host's fix alone); its fix conflicts neither with the card's fixes nor with
-    any other stop's; and the card links at most :data:`CARD_PEOPLE` people. Every other
+    from that host's fix alone); its fix conflicts (:func:`conflict`) neither with another
+    fix folded in the same round nor with any other stop's (it may change again a joint the
+    card's fixes changed: it comes after them in the card's one undo step); and a person's
+    card links at most :data:`CARD_PEOPLE` people (a frame's group of one kind's fixes is
+    a host too, without that bound). Every other
     new finding is left for the frame's recompute after the accept (shown then, as
     before); nothing found before is dropped.
 
@@ -428,6 +431,7 @@ def fold(stops: Sequence[Stop], find: Callable[[tuple], Sequence[Finding]],
         elsewhere = [(i, footprint(f.fix)) for i, s in enumerate(stops) for f in
                      (s.taken if s.parts else s.findings) if f.fix is not None]
         more: dict[int, list[Finding]] = {}
+        added: dict[int, set[tuple[int, int]]] = {}
         for f in found:
             if f.id in seen or f.fingerprint in seen:
                 continue
@@ -441,12 +445,16 @@ def fold(stops: Sequence[Stop], find: Callable[[tuple], Sequence[Finding]],
             if len(owners) != 1:
                 continue
             i = owners.pop()
-            if len({p for p, _ in covers[i]} | {p for p, _ in fp}) > CARD_PEOPLE:
-                continue
-            if conflict(covers[i], fp) or any(
+            if not _is_group(stops[i]) and len(
+                    {p for p, _ in covers[i]} | {p for p, _ in fp}) > CARD_PEOPLE:
+                continue  # a frame's group holds many people by design
+            # It may change again a joint the card's fixes change (it was found on the labels
+            # they leave and comes after them in the card's one group), not one another
+            # fix of this round or another stop changes.
+            if conflict(added.get(i, set()), fp) or any(
                     j != i and o is not None and conflict(o, fp) for j, o in elsewhere):
                 continue
-            covers[i] |= fp
+            added.setdefault(i, set()).update(fp)
             more.setdefault(i, []).append(f)
         if not more:
             break
@@ -455,11 +463,22 @@ def fold(stops: Sequence[Stop], find: Callable[[tuple], Sequence[Finding]],
     return stops
 
 
+def _is_group(s: Stop) -> bool:
+    """A frame's stop of one kind's fixes (:data:`COVERED_KEY`, :data:`GAP_KEY`)."""
+    return s.key.split("+", 1)[0] in (COVERED_KEY, GAP_KEY)
+
+
 def _folded(s: Stop, more: tuple[Finding, ...], r: int) -> Stop:
     """A stop with parts of fold round ``r`` added (a lone fix becomes a card)."""
     parts = s.parts or ((s.finding,) if s.finding is not None else ())
     rounds = (s.rounds or (0,) * len(parts)) + (r,) * len(more)
     new = parts + more
+    if _is_group(s):
+        said = "; ".join(m.fix.summary for m in more if m.fix is not None)
+        return replace(s, key=s.key + "+" + "+".join(m.id for m in more),
+                       text=f"{s.text}; then {count(len(more), 'fix', 'fixes')} they "
+                            f"expose: {said}", group=s.findings + more, parts=new,
+                       rounds=rounds)
     head = card_text(parts) if len(parts) > 1 else (parts[0].text if parts else "")
     tail = s.text[len(head):] if s.text.startswith(head) else ""
     joints = tuple(dict.fromkeys(s.joints + tuple(j for m in more if m.person_id == s.person_id

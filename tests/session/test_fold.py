@@ -58,10 +58,20 @@ def test_a_new_fix_about_another_hosts_person_or_too_unsure_or_conflicting_stays
     d = _finding(1, 4, "d", 9, 1)
     shared = _finding(1, 3, "s", 7, 1, people=(3, 4))  # reads person 4, whom d changes
     unsure = _finding(1, 3, "u", 6, 1, sure=0.01)
-    clash = _finding(1, 3, "x", 9, 0)                    # the wrist a already moves
-    stops = [Stop(1, "a", 3, (9,), "ta", a), Stop(1, "d", 4, (9,), "td", d)]
+    e = _finding(1, 3, "e", 9, 0)       # a stop of its own (it moves a's wrist another way)
+    clash = _finding(1, 3, "x", 9, 1)   # the wrist stop e changes too
+    e_stop = Stop(1, "e", 3, (9,), "te", e)
+    stops = [Stop(1, "a", 3, (9,), "ta", a), Stop(1, "d", 4, (9,), "td", d), e_stop]
     out = fold(stops, _exposes([a.fix.edits[0]], [shared, unsure, clash]))
     assert out == stops
+
+
+def test_a_new_fix_may_change_again_a_joint_the_card_changed():
+    """Found on the labels the card leaves, it follows the card's fix in one group."""
+    a = _finding(1, 3, "a", 9, 2)
+    again = _finding(1, 3, "g", 9, 1)   # the wrist, placed, is then found hidden
+    out = fold([Stop(1, "a", 3, (9,), "ta", a)], _exposes([a.fix.edits[0]], [again]))
+    assert [e.v for e in out[0].fix.edits] == [2, 1]
 
 
 def test_leaving_out_an_early_fix_drops_the_fixes_found_after_it():
