@@ -438,16 +438,25 @@ class Session:
         that the step into that frame shows them folded; a card whose key changed meanwhile
         (findings over time read again) is shown as found."""
         nxt = self.walk.following(frame_id)
-        if nxt is None or nxt in self._folds or nxt in self._folding \
-                or not self.project.findings_digests():
+        if nxt is not None:
+            self.fold_frame(nxt)
+
+    def fold_frame(self, nxt: int) -> None:
+        """Fold a frame's cards on the worker (:meth:`_fold`) for the step that shows it
+        (its findings over time read first, as :meth:`_read_ahead_over_time` does). The
+        window asks it for a frame it shows before the walk starts there."""
+        if nxt in self._folds or nxt in self._folding or not self.project.findings_digests():
             return
+        current = self.walk.current
+        if current is not None and current.frame_id == nxt:
+            return  # shown already: its cards stay as they are until an accept
         self._folding.add(nxt)
         self.reading_ahead += 1
         token = self._revision[nxt]
 
         def job() -> tuple[str, dict[str, Stop]] | None:
             try:
-                self._read_ahead_over_time(frame_id)  # kept only if nothing changed since
+                self._over_time_ahead(nxt)  # kept only if nothing changed since
                 labels = self.project.labels(nxt)
                 found = self._read_stops(nxt, over_time=False)
                 folded = self._fold(nxt, found, labels)
@@ -735,7 +744,13 @@ class Session:
         goes to after ``frame_id`` (on the recompute's worker, so the step that shows that
         frame does not); dropped if labels change meanwhile."""
         nxt = self.walk.following(frame_id)
-        if not self._tracked or nxt is None or nxt in self._over_time:
+        if nxt is not None:
+            self._over_time_ahead(nxt)
+
+    def _over_time_ahead(self, nxt: int) -> None:
+        """In a project with tracks, compute a frame's findings over time now (on the
+        worker); kept only if no findings over time were forgotten meanwhile."""
+        if not self._tracked or nxt in self._over_time:
             return
         gen = self._over_time_gen
         try:
