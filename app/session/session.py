@@ -407,17 +407,22 @@ class Session:
             found = current_findings(self.project, [frame_id]).get(frame_id, [])
         stops = group_findings(frame_id, found)
         if fold:
-            return self._fold(frame_id, stops, labels)
+            return self._fold(frame_id, stops, labels,
+                              over_time=bool(self._tracked) and frame_id in self._over_time)
         memo = self._folds.get(frame_id)
         if memo is not None and memo[0] == digest:
             stops = [memo[1].get(s.key, s) for s in stops]
         return stops
 
-    def _fold(self, frame_id: int, stops: list[Stop], labels: Any) -> list[Stop]:
+    def _fold(self, frame_id: int, stops: list[Stop], labels: Any,
+              over_time: bool = False) -> list[Stop]:
         """:func:`~app.session.walk.fold` on a frame's labels: each round applies the hosts'
-        fixes to a copy of ``labels`` in memory and finds the frame's problems on it (its
-        own findings, not those over time). A failure is logged and leaves the stops as
-        they are."""
+        fixes to a copy of ``labels`` in memory and finds the frame's problems on it: its
+        own findings, and (``over_time``: the stops hold the frame's findings over time)
+        those over time when every edit keeps each person and track
+        (:data:`~app.analysis.triage.temporal.JOINT_EDITS`; ``time_findings(...,
+        instead=)``). A failure is logged and leaves the stops as they are."""
+        from app.analysis.triage.temporal import JOINT_EDITS
         from app.jobs_findings import findings_of_frame
 
         try:
@@ -425,9 +430,17 @@ class Session:
 
             def find(edits: tuple[Edit, ...]) -> list[Finding]:
                 after, _ = EditGroup(frame_id, edits).apply(labels)
-                return findings_of_frame(self.project, frame, after)
+                found = findings_of_frame(self.project, frame, after)
+                if over_time and all(isinstance(e, JOINT_EDITS) for e in edits):
+                    found += time_findings(self.project, [frame_id], instead={
+                        frame_id: list(after.people.values())}).get(frame_id, [])
+                return found
 
-            return fold(stops, find)
+            known: list[Finding] = []
+            if over_time:  # found before, whether or not the stops were read with them
+                known = self._over_time.get(frame_id) or time_findings(
+                    self.project, [frame_id]).get(frame_id, [])
+            return fold(stops, find, known=known)
         except Exception:  # the cards stay as found; the log says why
             log.exception("folding the cards of frame %s failed", frame_id)
             return stops
@@ -459,7 +472,8 @@ class Session:
                 self._over_time_ahead(nxt)  # kept only if nothing changed since
                 labels = self.project.labels(nxt)
                 found = self._read_stops(nxt, over_time=False)
-                folded = self._fold(nxt, found, labels)
+                folded = self._fold(nxt, found, labels, over_time=bool(self._tracked)
+                                    and nxt in self._over_time)
             except Exception:  # the step reads them unfolded; the log says why
                 log.exception("folding the cards of frame %s failed", nxt)
                 return None

@@ -384,10 +384,11 @@ def fold_hosts(stops: Sequence[Stop]) -> list[int]:
 
 
 def fold(stops: Sequence[Stop], find: Callable[[tuple], Sequence[Finding]],
-         rounds: int = FOLD_ROUNDS) -> list[Stop]:
+         rounds: int = FOLD_ROUNDS, known: Sequence[Finding] = ()) -> list[Stop]:
     """Finish people in one card: the frame's problems found again on its labels with the
     fixes of every host (:func:`fold_hosts`) applied (``find(edits)``: the findings of the
-    labels those edits leave), and each new fix that only a host's own fix exposed joins
+    labels those edits leave; ``known``: findings found before besides the stops'), and
+    each new fix that only a host's own fix exposed joins
     that host's card, as a part of this round (:attr:`Stop.rounds`); repeated while new
     fixes appear, at most ``rounds`` times.
 
@@ -419,7 +420,8 @@ def fold(stops: Sequence[Stop], find: Callable[[tuple], Sequence[Finding]],
     ('a+b', ['a', 'b'], (0, 1), '2 fixes: fix a; fix b')
     """
     stops = list(stops)
-    seen = {x for s in stops for f in s.findings for x in (f.id, f.fingerprint)}
+    seen = {x for f in (*(f for s in stops for f in s.findings), *known)
+            for x in (f.id, f.fingerprint)}
     for r in range(1, rounds + 1):
         hosts = fold_hosts(stops)
         if not hosts:

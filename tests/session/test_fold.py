@@ -119,3 +119,11 @@ def test_a_folded_card_is_taken_with_one_key_as_one_undo_step(project, monkeypat
     project.undo()
     v = {j: int(project.labels(f1).people[first].keypoints[j][2]) for j in (7, 9)}
     assert v == {7: 2, 9: 2}, "one undo step takes both back"
+
+
+def test_a_finding_known_before_is_not_taken_for_one_a_fix_exposed():
+    """Findings over time read apart from the stops (``known``) are not new."""
+    a = _finding(1, 3, "a", 9, 1)
+    b = _finding(1, 3, "b", 7, 1)
+    out = fold([Stop(1, "a", 3, (9,), "ta", a)], _exposes([a.fix.edits[0]], [b]), known=[b])
+    assert out[0].parts == ()
