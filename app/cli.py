@@ -21,17 +21,26 @@ import sys
 import time
 from collections.abc import Callable, Sequence
 from pathlib import Path
-from typing import Any, NoReturn
+from typing import TYPE_CHECKING, Any, NoReturn
 
 from app import __version__
 from app.errors import BadInput, Cancelled, PosewrightError, ProjectLocked
-from app.fileio import MAX_ID, json_ready, read_json
-from app.model.labels import FrameState
-from app.model.naming import Names, ledger_names
 from app.parallel import check_workers, head_start, keep_freed_memory
 from app.progress import Progress
 from app.safetext import shown
 from app.wording import count, count_phrase, ledger_text
+
+if TYPE_CHECKING:
+    from app.model.labels import FrameState
+
+# Nothing above imports numpy, pydantic or the model: a batch command tells its workers' fork
+# server to start (app.parallel.head_start) within a tenth of a second of its own start, so the
+# server's imports run beside the command's rather than after them. What a command needs it
+# imports in its own function.
+
+#: :data:`app.fileio.MAX_ID`, without importing app.fileio (pydantic, numpy) to build the parser
+#: (tests/test_cli.py checks that the two agree).
+MAX_ID = 2**53 - 1
 
 #: Exit status when the reader of our output went away (128 + SIGPIPE).
 BROKEN_PIPE_STATUS = 141
@@ -136,6 +145,8 @@ def _open(args: argparse.Namespace, write: bool = True, say_why: bool = True):  
 def print_json(data: Any) -> None:
     """``data`` as JSON on stdout for a program to read: a number that is not defined (a NaN,
     such as the mean of nothing) or not finite is ``null``."""
+    from app.fileio import json_ready
+
     json.dump(json_ready(data)[0], sys.stdout, indent=2, default=str, allow_nan=False)
     sys.stdout.write("\n")
 
@@ -262,6 +273,8 @@ def _warn_export(stats: dict[str, Any]) -> None:
 
 
 def cmd_ledger(args: argparse.Namespace) -> int:
+    from app.model.naming import Names, ledger_names
+
     with _open(args, write=False) as project:
         frame_id = project.find_frame(args.frame).id if args.frame is not None else None
         entries = project.history(frame_id=frame_id, limit=args.limit)
@@ -364,9 +377,23 @@ def _files_ending(folder: str | Path, suffix: str) -> int:
         return 0
 
 
+def _early_start(job: str, args: argparse.Namespace, workers: int) -> None:
+    """Ask for the workers' fork server before the project is even opened, when the folder
+    project's frames make the job large (:func:`app.store.peek.frame_count_hint`, read without
+    importing the store): opening it imports most of the app, and the server's own imports
+    then run beside that rather than after it. The command asks again, with the frames the
+    job takes, once the project is open (a server already asked for is not started twice)."""
+    from app.store.peek import frame_count_hint
+
+    frames = frame_count_hint(args.project)
+    if frames:
+        head_start(job, frames, workers)
+
+
 def cmd_triage(args: argparse.Namespace) -> int:
     workers = check_workers(args.workers)
     keep_freed_memory()
+    _early_start("app.jobs_analysis._triage_one", args, workers)
     with _open(args) as project:
         head_start("app.jobs_analysis._triage_one", project.frame_count(), workers)
         from app.jobs_analysis import run_triage
@@ -426,6 +453,7 @@ def cmd_targets(args: argparse.Namespace) -> int:
 def _check_targets(args: argparse.Namespace) -> int:
     """``targets --check OUT_DIR``, or ``targets PROJECT OUT_DIR --check``, which also checks
     that the export was made from PROJECT with its skeleton. Writes nothing."""
+    from app.fileio import read_json
     from app.jobs_analysis import check_targets
 
     out = Path(args.project if args.out_dir is None else args.out_dir)
@@ -451,6 +479,7 @@ def _check_targets(args: argparse.Namespace) -> int:
 def cmd_prelabel(args: argparse.Namespace) -> int:
     workers = check_workers(args.workers)
     keep_freed_memory()
+    _early_start("app.inference.prelabel._prelabel_one", args, workers)
     with _open(args) as project:
         head_start("app.inference.prelabel._prelabel_one", project.frame_count(), workers)
         from app.inference.prelabel import parse_frames, prelabel
@@ -497,6 +526,8 @@ def cmd_render(args: argparse.Namespace) -> int:
 
 def _states(text: str) -> list[FrameState] | None:
     """The states an export takes: ``all`` (None), or a comma-separated list."""
+    from app.model.labels import FrameState
+
     if text.strip().lower() == "all":
         return None
     try:

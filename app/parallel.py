@@ -200,9 +200,10 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
         instead of ``initializer`` (which may, say, load a model this process already has, or
         share out threads it should keep).
     sharing
-        Called in this process once a pool is up, before this process shares the items with
-        it (pre-labelling gives OpenCV's second thread back to the cores then, see
-        :func:`app.inference.prelabel.prelabel`); not called when no pool starts.
+        Called in this process when it asks for a pool, before the pool starts (pre-labelling
+        gives OpenCV's second thread back to the cores then, see
+        :func:`app.inference.prelabel.prelabel`: the pool's start, and then its workers, need
+        that core); not called when no pool is asked for.
 
     Notes
     -----
@@ -517,8 +518,13 @@ def _alongside(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: in
                initargs: tuple[Any, ...], sharing: Callable[[], Any] | None = None
                ) -> Iterator[R]:
     """The items left in ``upcoming`` (``done`` of ``total`` already taken): this process
-    goes on with them while a pool of ``workers - 1`` processes starts, then shares them
-    with it (calling ``sharing`` first), so ``workers`` processes compute in all."""
+    calls ``sharing`` and goes on with them while a pool of ``workers - 1`` processes starts,
+    then shares them with it, so ``workers`` processes compute in all."""
+    if sharing is not None:
+        # Now, not once the pool is up: the fork server's imports and the workers' set-up
+        # run on the cores this process would otherwise keep busy with threads of its own
+        # (with pre-labelling's second OpenCV thread, the pool took longer to come up).
+        sharing()
     pool = _Pool(workers - 1, initializer, initargs, fn)
     # In the items' order: the result to come, whether the pool computes it, and the item
     # (so that an item the pool has not started can be taken back).
@@ -536,8 +542,6 @@ def _alongside(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: in
                     told = True
                     log.debug("%s: pool of %d up after %.2f s, at item %d of %d", label or "job",
                               pool.workers, pool.seconds, done + len(pending), total)
-                    if sharing is not None:
-                        sharing()
                 while not exhausted and on_pool < _POOL_AHEAD * pool.workers:
                     item = next(upcoming, _END)
                     if item is _END:

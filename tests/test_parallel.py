@@ -155,10 +155,30 @@ def test_a_long_job_moves_to_the_workers_after_the_first_items(free_pool, monkey
     assert pids[:2] == [os.getpid()] * 2
     assert os.getpid() not in pids[2:6]
     assert len(set(pids)) == 2
-    assert shared == [1]  # told once, when the pool took its first items
+    assert shared == [1]  # told once, when the pool was asked for
     assert list(ordered_map(abs, range(20), workers=1, sharing=lambda: shared.append(2))) \
         == list(range(20))
     assert shared == [1]  # no pool, nothing shared
+
+
+def test_sharing_is_called_before_the_pool_starts(free_pool, monkeypatch):
+    """``sharing`` runs when this process asks for its pool, before the pool's start (the
+    fork server's imports, the workers' set-up) needs the cores: pre-labelling drops
+    OpenCV's second thread then, not once the pool is up."""
+    from app import parallel
+
+    order = []
+    real = parallel._Pool
+
+    def pool(*args, **kwargs):
+        order.append("pool")
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(parallel, "_Pool", pool)
+    assert list(ordered_map(abs, range(-10, 10), workers=2,
+                            sharing=lambda: order.append("sharing"))) == list(range(10, 0, -1)) \
+        + list(range(10))
+    assert order == ["sharing", "pool"]
 
 
 def test_worker_counts_are_checked(monkeypatch):

@@ -18,8 +18,8 @@ from collections import deque
 from typing import Any
 
 import numpy as np
-from scipy.optimize import linear_sum_assignment
 
+from app.analysis.assignment import linear_sum_assignment
 from app.errors import BadInput
 
 log = logging.getLogger(__name__)

@@ -133,8 +133,9 @@ def prelabel(project: Project, model: str | Path, config: str | Path | None = No
         them (:mod:`app.parallel`); this one stores the people. The result is the same
         whatever the number. The job keeps to that many cores: each process runs OpenCV
         (the model, the image's resizing) on one thread, except this one while it works
-        alone (a short job, or before the pool is up), which takes ``workers`` threads (at
-        most one a core) and gives them back once the pool shares the frames. On two cores
+        alone (a short job, or before it asks for a pool), which takes ``workers`` threads
+        (at most one a core) and gives them back when it asks for the pool, whose start
+        needs the other core (:func:`app.parallel.ordered_map`'s ``sharing``). On two cores
         a second thread saved one process 7-19 % of its time (480 frames, seven pairs at
         load 2-5: 13.7-19.0 s against 15.9-22.5 s), a second process 33-48 %.
 
@@ -218,7 +219,7 @@ def _use_network(network: PoseNetwork | None, threads: int | None = None) -> Non
 
 
 def _one_thread() -> None:
-    """OpenCV on one thread in this process: run once the pool shares the frames with it."""
+    """OpenCV on one thread in this process: run when it asks for a pool."""
     cv2.setNumThreads(1)
 
 

@@ -191,18 +191,22 @@ class PostgresDatabase(Database):
     def _connection(self, begin: bool = False) -> Iterator[Any]:
         """A pooled connection, the driver's errors turned into ours. ``begin`` starts a
         transaction on it; a connection the server dropped (a restart) fails right there,
-        before anything of the transaction was sent, and is replaced by a fresh one."""
+        before anything of the transaction was sent, and is replaced by the next one. Every
+        pooled connection may have been dropped at once, so as many are tried as the pool
+        holds and one more, which the pool makes afresh: a server that is down then reads
+        "cannot reach the database server", whichever connection was asked first."""
         psycopg = self._psycopg
         from psycopg_pool import PoolTimeout
 
+        tries = self.pool.max_size + 1
         try:
-            for attempt in range(2):
+            for attempt in range(tries):
                 with self.pool.connection(timeout=CONNECT_SECONDS) as conn:
                     if begin:
                         try:
                             conn.execute("BEGIN")
                         except psycopg.OperationalError:
-                            if attempt:
+                            if attempt == tries - 1:
                                 raise
                             continue  # the pool drops the broken connection on its return
                     yield conn

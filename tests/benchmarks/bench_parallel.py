@@ -75,23 +75,81 @@ def _timed(fn) -> float:
     return time.perf_counter() - t0
 
 
-def _command(*args: str | Path) -> tuple[float, float]:
-    """Wall time of ``python -m app ARGS`` (quiet), run from the repository, and the CPU
-    time of the command's own process (its workers are the fork server's children, not
-    counted): what it leaves to its workers shows there whatever the machine's load."""
+def _command(*args: str | Path) -> tuple[float, float, float]:
+    """Wall time of ``python -m app ARGS`` (quiet), run from the repository, the CPU time of
+    the command's own process, and that of its pool (the fork server and its workers, which
+    are the server's children, so not counted in the command's): what the command left to
+    its workers shows there whatever the machine's load. The pool's CPU is read from
+    ``/proc`` (Linux; 0 elsewhere) every 50 ms, so a worker's last 50 ms may be missed."""
     env = dict(os.environ, PYTHONPATH=str(ROOT), POSEWRIGHT_AUTHOR="bench")
     env.pop("POSEWRIGHT_WORKERS", None)
+    pool: dict[int, float] = {}
     with tempfile.TemporaryFile("w+") as err:
         t0 = time.perf_counter()
         proc = subprocess.Popen([sys.executable, "-m", "app", *map(str, args)], env=env,
                                 cwd=ROOT, stdout=subprocess.DEVNULL, stderr=err)
-        _, status, usage = os.wait4(proc.pid, 0)
+        polls = 0
+        family: list[int] = []
+        while True:
+            pid, status, usage = os.wait4(proc.pid, os.WNOHANG)
+            if pid:
+                break
+            if polls % 10 == 0:
+                family = _descendants(proc.pid)
+            polls += 1
+            for child in family:
+                cpu = _cpu_seconds(child)
+                if cpu is not None:
+                    pool[child] = cpu
+            time.sleep(0.05)
         seconds = time.perf_counter() - t0
         proc.returncode = os.waitstatus_to_exitcode(status)
         if proc.returncode != 0:
             err.seek(0)
             raise RuntimeError(f"{' '.join(map(str, args))}: {err.read()}")
-    return seconds, usage.ru_utime + usage.ru_stime
+    return seconds, usage.ru_utime + usage.ru_stime, sum(pool.values())
+
+
+def _descendants(root: int) -> list[int]:
+    """The processes below ``root`` (read from ``/proc``; none where there is no such
+    folder)."""
+    children: dict[int, list[int]] = {}
+    try:
+        names = os.listdir("/proc")
+    except OSError:
+        return []
+    for name in names:
+        if not name.isdigit():
+            continue
+        try:
+            with open(f"/proc/{name}/stat") as fh:
+                parent = int(fh.read().rsplit(")", 1)[1].split()[1])
+        except (OSError, ValueError, IndexError):
+            continue
+        children.setdefault(parent, []).append(int(name))
+    out, n = list(children.get(root, [])), 0
+    while n < len(out):
+        out += children.get(out[n], [])
+        n += 1
+    return out
+
+
+def _cpu_seconds(pid: int) -> float | None:
+    """User and system CPU time of a running process so far (``/proc/PID/stat``)."""
+    try:
+        with open(f"/proc/{pid}/stat") as fh:
+            fields = fh.read().rsplit(")", 1)[1].split()
+    except OSError:
+        return None
+    return (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")
+
+
+def _free_ratio(one: float, command: float, pool: float) -> float:
+    """The ratio "if the cores were free", from CPU times alone: one worker's command
+    (``one``, all the job's work) against two workers' command (``command``) or half of all
+    their CPU (``command + pool``), whichever is longer. Off-core waits, which only the
+    machine's load makes, drop out; so do the command's waits on the disk (its fsyncs)."""
+    return one / max(command, (command + pool) / 2)
 
 
 # ---------------------------------------------------------------------- identity
@@ -181,7 +239,9 @@ def _many(root: Path) -> list[dict]:
         t = {w: run[w][0] for w in run}
         rows.append(_row(job, MANY, t, (before, os.getloadavg()[0]), check(),
                          "each a command of its own, its first pool's start included; the "
-                         f"command's own CPU {run[1][1]:.2f} s and {run[2][1]:.2f} s"))
+                         f"command's own CPU {run[1][1]:.2f} s and {run[2][1]:.2f} s, its "
+                         f"pool's {run[2][2]:.2f} s: {_free_ratio(run[1][1], *run[2][1:]):.2f}x"
+                         " if the cores were free"))
     return rows
 
 
