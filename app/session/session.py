@@ -59,6 +59,11 @@ log = logging.getLogger(__name__)
 Background = Callable[[Callable[[], Any], Callable[[Any], None]], None]
 
 
+#: At most this many frames' findings over time are read ahead past frames without findings
+#: (ours: the walk's order seldom holds more empty frames in a row).
+AHEAD = 4
+
+
 def run_here(job: Callable[[], Any], deliver: Callable[[Any], None]) -> None:
     """The default :data:`Background`: run the job now and deliver its result at once."""
     deliver(job())
@@ -474,6 +479,8 @@ class Session:
                 found = self._read_stops(nxt, over_time=False)
                 folded = self._fold(nxt, found, labels, over_time=bool(self._tracked)
                                     and nxt in self._over_time)
+                if not found:  # the walk passes it: read the frames after it ahead
+                    self._read_ahead_over_time(nxt)
             except Exception:  # the step reads them unfolded; the log says why
                 log.exception("folding the cards of frame %s failed", nxt)
                 return None
@@ -712,7 +719,8 @@ class Session:
         return (fid, stop.key, stop.left_out, self._revision[fid], self._over_time_gen)
 
     def _read_ahead_accept(self, stop: Stop) -> None:
-        """In a project with tracks, when the stop shown is its frame's last, compute on the
+        """In a project with tracks, when the stop shown is its frame's last (or every stop
+        after it is about people its accept touches, which the accept drops), compute on the
         worker the findings over time of the frame the walk goes to next as they would be
         once the stop's fix is accepted (its edits applied to the frame's labels in memory),
         so that the accept's step into that frame finds them ready instead of computing
@@ -730,8 +738,12 @@ class Session:
             return
         held = self._stops.get(fid)
         nxt = self.walk.following(fid)
-        if not held or held[-1].key != stop.key or nxt is None:
+        keys = [s.key for s in held or ()]
+        if stop.key not in keys or nxt is None:
             return
+        touched = self._touched(stop, changes_labels=True)
+        if any(not touched & set(s.people) for s in held[keys.index(stop.key) + 1:]):
+            return  # the accept leaves a stop of this frame to show next
         token = (*self._ahead_token(stop), nxt)
         edits = fix.edits
         self.reading_ahead += 1
@@ -756,10 +768,17 @@ class Session:
     def _read_ahead_over_time(self, frame_id: int) -> None:
         """In a project with tracks, compute the findings over time of the frame the walk
         goes to after ``frame_id`` (on the recompute's worker, so the step that shows that
-        frame does not); dropped if labels change meanwhile."""
+        frame does not); dropped if labels change meanwhile. A frame without findings is
+        passed by that step, which reads the one after it too: up to :data:`AHEAD` frames
+        are read ahead so."""
         nxt = self.walk.following(frame_id)
-        if nxt is not None:
+        for _ in range(AHEAD):
+            if nxt is None:
+                return
             self._over_time_ahead(nxt)
+            if self._over_time.get(nxt) or self.project.findings(nxt).get(nxt):
+                return  # the step stops there (or reads its stops again, stale)
+            nxt = self.walk.following(nxt)
 
     def _over_time_ahead(self, nxt: int) -> None:
         """In a project with tracks, compute a frame's findings over time now (on the
@@ -877,12 +896,8 @@ class Session:
         """Run the edit of a stop; keep the frame's stops about other people. The frame
         shown is read again now, or (``reload`` False) by the step that follows, only if
         that step stays in it (:meth:`step`)."""
-        touched = set(stop.people)
+        touched = self._touched(stop, changes_labels)
         fix = stop.fix
-        if fix is not None and changes_labels:
-            p = fix.preview
-            touched |= {a for a, *_ in p.placed} | {a for a, _ in p.unlabeled} \
-                | {a for a, _ in p.occluded} | set(p.deleted) | {a for m in p.merged for a in m}
         fid = stop.frame_id
         kept = [s for s in self.stops(fid) if s.key != stop.key and not touched & set(s.people)]
         # A fix along a track also changes other frames (:meth:`_read_ahead` reads them).
@@ -926,6 +941,18 @@ class Session:
             else:
                 self._stale = fid
         return done
+
+    @staticmethod
+    def _touched(stop: Stop, changes_labels: bool) -> set[int]:
+        """The people a stop's edit concerns: the frame's other stops about them are read
+        again after it (:meth:`_edited`)."""
+        touched = set(stop.people)
+        fix = stop.fix
+        if fix is not None and changes_labels:
+            p = fix.preview
+            touched |= {a for a, *_ in p.placed} | {a for a, _ in p.unlabeled} \
+                | {a for a, _ in p.occluded} | set(p.deleted) | {a for m in p.merged for a in m}
+        return touched
 
     def _read_ahead(self, frame_id: int) -> None:
         """A frame the walk's fix changed besides its own (a fix along a track): forget its
