@@ -363,7 +363,7 @@ def cmd_import_maps(args: argparse.Namespace) -> int:
 
     with _open(args) as project:
         stats = import_maps(project, args.dir, progress=_stderr_progress(args.quiet),
-                            workers=workers)
+                            workers=workers, frame_before=args.frame_before or None)
     return _report_counts(args, stats)
 
 
@@ -635,6 +635,9 @@ def build_parser() -> argparse.ArgumentParser:
                 "import network maps (.npz per image) and group them into auto-labels")
     p.add_argument("dir", metavar="DIR")
     p.add_argument("--json", action="store_true")
+    p.add_argument("--frame-before", action="store_true",
+                   help="group the frames of each sequence in order, near ties between "
+                        "overlapping people decided as on the frame before")
     workers(p)
 
     p = command("triage", cmd_triage, "rank frames by suspicion, with reasons (stored)")

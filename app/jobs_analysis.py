@@ -30,6 +30,7 @@ from app.fileio import read_json
 from app.formats.maps import NetworkMaps, match_map_files, read_maps, read_npz
 from app.jobs import EXPORT_STATES, choose_frames
 from app.model.labels import AUTO, Frame, FrameLabels, FrameState, Person
+from app.model.sequences import NOT_SEQUENCES, parse_not_sequences, sequences
 from app.model.skeleton import Skeleton
 from app.parallel import ordered_map
 from app.progress import Progress
@@ -42,8 +43,23 @@ TARGETS_FORMAT = "posewright-training-targets"
 TARGETS_VERSION = 1
 
 
+#: Frames of one sequence grouped in order, each with the frame before as a prior, go to
+#: the workers in runs of at most this many consecutive frames; the first frame of a run is
+#: grouped without one. Fixed, so the auto-labels are the same whatever the number of workers.
+GROUPING_RUN = 16
+
+#: Whether :func:`import_maps` groups the frames of a sequence with the frame before by
+#: default (``import-maps --frame-before`` asks for it). Off: with it, the demo's labelled
+#: errors last longer and carrying spares more, but triage, whose weights were fitted on
+#: frames grouped alone, flags the shipped demo's wrong people less well (README
+#: "Sequences"); to be turned on once triage's weights and the findings' calibration are
+#: fitted again on demos grouped this way.
+FRAME_BEFORE = False
+
+
 def import_maps(project: Project, folder: str | Path,
-                progress: Progress | None = None, workers: int = 1) -> dict[str, int]:
+                progress: Progress | None = None, workers: int = 1,
+                frame_before: bool | None = None) -> dict[str, int]:
     """Import one ``.npz`` of network maps per image from ``folder`` (see
     :mod:`app.formats.maps`), all or nothing.
 
@@ -53,30 +69,45 @@ def import_maps(project: Project, folder: str | Path,
     (re-importing maps never overwrites a correction). ``workers`` processes read and group
     the maps (:mod:`app.parallel`); this one stores them, with the same result whatever the
     number.
+
+    With ``frame_before`` (default :data:`FRAME_BEFORE`, off; ``import-maps
+    --frame-before``), the frames of a sequence (:mod:`app.model.sequences`) are grouped in
+    order, each with the people of the frame before it as ``previous``, so that near ties
+    between overlapping people are decided as on that frame: the people just grouped there,
+    or, where that frame keeps its people, those. They go to the workers in runs of
+    :data:`GROUPING_RUN` consecutive frames that have maps in ``folder``; the first frame of a
+    run, a frame whose neighbour before it has no maps here, and a frame in no sequence (a
+    folder marked not a sequence) are grouped without a frame before. Without it, every frame
+    is grouped alone.
     """
     progress = progress or Progress()
     frames = {f.id: f for f in project.frames()}
     files = match_map_files(folder, list(frames.values()))
-    has_people = set(project.people_by_frame())
+    kept = project.people_by_frame()
     order = sorted(files.items())
     for frame_id, path in order:
         if frames[frame_id].status != "ok":
             raise BadInput(f"the image of frame {frame_id} is {frames[frame_id].status}; its "
                            "size is unknown", where=str(path))
-    items = [(str(path), frames[frame_id], project.skeleton, frame_id not in has_people)
-             for frame_id, path in order]
-    grouped: list[tuple[int, Person]] = []
-    strides: dict[int, int] = {}
-    for (frame_id, _), (stride, found) in zip(
-            order, ordered_map(_group_maps, items, workers, progress, "reading maps"),
-            strict=True):
-        strides[frame_id] = stride
-        grouped.extend((frame_id, person) for person in found)
-    progress.step(len(files), len(files), "reading maps")
+    marked = parse_not_sequences(project.meta(NOT_SEQUENCES))
+    in_order = FRAME_BEFORE if frame_before is None else frame_before
+    runs = _grouping_runs([s.frame_ids for s in sequences(frames.values(), marked)]
+                          if in_order else [], files)
+    items = [(project.skeleton,
+              [(str(files[f]), frames[f],
+                None if f not in kept else [p.keypoints for p in kept[f]] if in_order else [])
+               for f in run])
+             for run in runs]
+    results: dict[int, tuple[int, list[Person]]] = {}
+    for run, found in zip(runs, ordered_map(_group_maps, items, workers, progress,
+                                            "reading maps"), strict=True):
+        results.update(zip(run, found, strict=True))
+    progress.step(len(runs), len(runs), "reading maps")
+    grouped = [(frame_id, person) for frame_id, _ in order for person in results[frame_id][1]]
     with project.bulk("ImportMaps", f"import maps from {Path(folder).name}",
                       f"folder:{Path(folder).name}") as b:
         for frame_id, path in files.items():
-            b.set_maps(frame_id, path, strides[frame_id])
+            b.set_maps(frame_id, path, results[frame_id][0])
         first = b.allocate_person_ids(len(grouped))
         b.add_people((f, _with_id(p, first + n)) for n, (f, p) in enumerate(grouped))
         b.count("frames with maps", len(files))
@@ -84,16 +115,53 @@ def import_maps(project: Project, folder: str | Path,
     return b.stats
 
 
-def _group_maps(item: tuple[str, Frame, Skeleton, bool]) -> tuple[int, list[Person]]:
-    """Read one frame's maps and (when ``group``) the people grouped from them: the stride
-    and the people without ids; run in a worker process (:func:`import_maps`)."""
-    path, frame, skeleton, group = item
-    maps = read_maps(path, skeleton, (frame.width, frame.height))
-    if not group:
-        return maps.stride, []
-    found = group_people(maps.confidence_maps, maps.pafs, skeleton.limb_array,
-                         stride=maps.stride)
-    return maps.stride, [_auto_person(f, skeleton.num_joints) for f in found]
+def _grouping_runs(sequences: Sequence[Sequence[int]], files: dict[int, Any],
+                   length: int | None = None) -> list[list[int]]:
+    """The frames with maps (``files``) cut into runs grouped in order (see
+    :func:`import_maps`): consecutive frames of one sequence, at most ``length``, then every
+    other frame alone, by id.
+
+    >>> _grouping_runs([(5, 1, 2, 3, 4)], dict.fromkeys([1, 2, 4, 5, 9]), length=2)
+    [[5, 1], [2], [4], [9]]
+    """
+    length = GROUPING_RUN if length is None else length
+    runs: list[list[int]] = []
+    placed: set[int] = set()
+    for frame_ids in sequences:
+        run: list[int] = []
+        for f in frame_ids:
+            if f not in files or len(run) == length:
+                if run:
+                    runs.append(run)
+                run = []
+            if f in files:
+                run.append(f)
+                placed.add(f)
+        if run:
+            runs.append(run)
+    runs.extend([f] for f in sorted(files) if f not in placed)
+    return runs
+
+
+def _group_maps(item: tuple[Skeleton, list[tuple[str, Frame, list[np.ndarray] | None]]]
+               ) -> list[tuple[int, list[Person]]]:
+    """Read the maps of a run of frames (see :func:`import_maps`) and group, in order, those
+    without people (``None``), each with the frame before's people as ``previous``: per frame
+    the stride and the people without ids; run in a worker process."""
+    skeleton, run = item
+    out: list[tuple[int, list[Person]]] = []
+    before: list[np.ndarray] | None = None
+    for path, frame, people in run:
+        maps = read_maps(path, skeleton, (frame.width, frame.height))
+        if people is not None:
+            out.append((maps.stride, []))
+            before = people
+            continue
+        found = group_people(maps.confidence_maps, maps.pafs, skeleton.limb_array,
+                             stride=maps.stride, previous=before)
+        out.append((maps.stride, [_auto_person(f, skeleton.num_joints) for f in found]))
+        before = found
+    return out
 
 
 def _auto_person(found: np.ndarray, k: int) -> Person:

@@ -21,6 +21,7 @@ from app.cli import main
 from app.jobs import import_coco, new_project
 from app.jobs_analysis import check_targets
 from app.model import coco_body
+from tests.cli.test_analysis_commands import maps_dir  # noqa: F401  (a fixture)
 
 SK = coco_body()
 W, H, STRIDE, SIGMA, WIDTH = 160, 120, 4, 3.0, 4.0
@@ -238,3 +239,47 @@ def test_check_reads_the_manifest_strictly(export, tmp_path, capsys):
     assert main(["targets", str(other), str(out), "--check", "-q"]) == 2
     assert "field project_id: the export was made from another project" in \
         capsys.readouterr().err
+
+
+def test_import_maps_groups_a_sequence_in_runs_with_the_frame_before(tmp_path, image_dir,
+                                                                     maps_dir, monkeypatch):  # noqa: F811
+    """With frame_before, the six synthetic frames (one image folder, so one sequence) are
+    each grouped with the people of the frame before (grouped just now, or kept there), in
+    runs of GROUPING_RUN frames whose first has none; once the folder is marked not a
+    sequence, or by default (FRAME_BEFORE off), no frame has a frame before. (Our own rule;
+    group_people's prior is tested in tests/analysis/test_association.py.)"""
+    from app import jobs_analysis
+    from app.jobs_analysis import import_maps
+    from app.jobs_tracks import mark_not_sequence
+    from app.model import NewPerson
+
+    folder, _ = maps_dir
+    calls = []
+
+    def recording(*args, previous=None, **kw):
+        found = real(*args, previous=previous, **kw)
+        calls.append((previous, found))
+        return found
+
+    real = jobs_analysis.group_people
+    monkeypatch.setattr(jobs_analysis, "group_people", recording)
+    monkeypatch.setattr(jobs_analysis, "GROUPING_RUN", 4)
+    kept = np.array([(10.0 + k, 20.0 + k, 2) for k in range(17)])
+    with new_project(tmp_path / "p", images=image_dir, author="ana") as p:
+        third = p.frames()[2]
+        p.apply(NewPerson(third.id, None, tuple(map(tuple, kept))))
+        import_maps(p, folder, frame_before=True)
+    # Frames 1-4 are a run (frame 3 kept its person, so is not grouped), 5-6 the next.
+    assert len(calls) == 5
+    assert calls[0][0] is None and calls[1][0] is calls[0][1]
+    np.testing.assert_array_equal(np.stack(calls[2][0]), kept[None])
+    assert calls[3][0] is None and calls[4][0] is calls[3][1]
+    calls.clear()
+    with new_project(tmp_path / "q", images=image_dir, author="ana") as p:
+        mark_not_sequence(p, [""])
+        import_maps(p, folder, frame_before=True)
+    assert len(calls) == 6 and all(previous is None for previous, _ in calls)
+    calls.clear()
+    with new_project(tmp_path / "r", images=image_dir, author="ana") as p:
+        import_maps(p, folder)  # the default (FRAME_BEFORE off): each frame alone
+    assert len(calls) == 6 and all(previous is None for previous, _ in calls)

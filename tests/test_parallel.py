@@ -53,9 +53,12 @@ def test_two_workers_store_and_write_what_one_does(tmp_path, image_dir, maps_dir
                                                    free_pool, monkeypatch):
     """... and each command tells app.parallel the job's size and function before it starts
     the job (head_start), by a name that is the function the job hands to its workers."""
-    from app import cli, parallel
+    from app import cli, jobs_analysis, parallel
 
     folder, _ = maps_dir
+    # The six frames are one sequence: with --frame-before, runs of two frames (each grouped
+    # with the frame before but the first) make three items for the workers.
+    monkeypatch.setattr(jobs_analysis, "GROUPING_RUN", 2)
     told = []
     monkeypatch.setattr(cli, "head_start",
                         lambda job, items, workers: told.append((job, items, workers))
@@ -64,7 +67,8 @@ def test_two_workers_store_and_write_what_one_does(tmp_path, image_dir, maps_dir
     for workers in ("1", "2"):
         proj = tmp_path / f"p{workers}"
         assert main(["new", str(proj), "--images", str(image_dir), "-q"]) == 0
-        assert main(["import-maps", str(proj), str(folder), "-q", "--workers", workers]) == 0
+        assert main(["import-maps", str(proj), str(folder), "-q", "--workers", workers,
+                     "--frame-before"]) == 0
         with Project.open(proj, author="ana") as p:
             f = p.frames()[1]
             q = p.people(f.id)[0]
@@ -326,9 +330,12 @@ def test_a_job_that_pays_at_any_pace_shares_its_items_after_two(monkeypatch):
 
     monkeypatch.setattr(parallel, "_alongside", alongside)
     monkeypatch.setattr(parallel, "_start_server", lambda fn: None)
-    monkeypatch.setattr(parallel, "_server_since", None)  # a first pool's start, fixed
+    # A first pool's start, fixed: not read from _server_since, which a pool thread of an
+    # earlier test in this process may still set while this one runs.
+    cost = parallel.POOL_START_SECONDS
+    monkeypatch.setattr(parallel, "_start_cost", lambda: cost)
     monkeypatch.setattr(parallel, "_PROBE_SECONDS", 3600.0)
-    many = int(2 * parallel._start_cost() / parallel._LEAST_ITEM_SECONDS) + 1
+    many = int(2 * cost / parallel._LEAST_ITEM_SECONDS) + 1
     assert list(ordered_map(abs, range(many), workers=2)) == list(range(many))
     assert switched == [2]
     assert list(ordered_map(abs, range(many - 1), workers=2)) == list(range(many - 1))

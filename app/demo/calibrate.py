@@ -396,8 +396,15 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser.add_argument("--calibrate-frames", metavar="N", type=int, default=None,
                         help="frames of each demo generated to fit on (default: the usual 24)")
     parser.add_argument("--json", metavar="FILE", help="write every figure to FILE")
+    parser.add_argument("--frame-before", action="store_true",
+                        help="demos grouped with the frame before (import-maps "
+                             "--frame-before); give a cache of its own")
     args = parser.parse_args(argv)
     logging.basicConfig(level=logging.WARNING)
+    if args.frame_before:
+        import app.jobs_analysis
+
+        app.jobs_analysis.FRAME_BEFORE = True
     calibration = SHIPPED
     report: dict[str, Any] = {}
     if args.calibrate:

@@ -43,7 +43,9 @@ frame to frame, which bounds what any carrying can spare: a correction is carrie
 frames where its error shows.
 
 ``python -m app.demo.carrying --seeds 31-33 --shipped --cache /tmp/demos`` prints the table
-of the README's "Sequences" section.
+of the README's "Sequences" section; ``--frame-before`` measures demos grouped with the frame
+before (``import-maps --frame-before``), in a cache of their own (a demo's project, with its
+auto-labels, is built in the cache once).
 """
 
 from __future__ import annotations
@@ -561,9 +563,16 @@ def main(argv: Sequence[str] | None = None) -> int:
                         help="carry per person only, without the whole frame's batch after")
     parser.add_argument("--persistence", action="store_true",
                         help="instead, how long the auto-labels' wrong joints last")
+    parser.add_argument("--frame-before", action="store_true",
+                        help="demos grouped with the frame before (import-maps "
+                             "--frame-before); give a cache of its own")
     parser.add_argument("--why", action="store_true",
                         help="instead, why each frame-by-frame action is or is not carried")
     args = parser.parse_args(argv)
+    if args.frame_before:
+        import app.jobs_analysis
+
+        app.jobs_analysis.FRAME_BEFORE = True
     targets: list[tuple[str, int | None]] = [(f"seed {s}", s) for s in _seeds(args.seeds)]
     if args.shipped:
         targets.insert(0, ("shipped (seed 1966)", None))

@@ -301,9 +301,14 @@ def demo_sequence(folder: str | Path, skeleton: Skeleton | None = None) -> DemoS
     Returns
     -------
     DemoSequence
-        Frames in the order of their image ids (the order of the dance); people grouped with
-        :func:`app.analysis.association.group_people` at its defaults.
+        Frames in the order of their image ids (the order of the dance, and of their file
+        names); people grouped with :func:`app.analysis.association.group_people` at its
+        defaults, as ``import-maps`` groups them: in order with the frame before as
+        ``previous``, in runs of :data:`app.jobs_analysis.GROUPING_RUN` frames (each frame
+        alone when :data:`app.jobs_analysis.FRAME_BEFORE` is False).
     """
+    from app.jobs_analysis import FRAME_BEFORE, GROUPING_RUN
+
     folder = Path(folder)
     skeleton = skeleton or coco_body()
     truth = read_json(folder / "truth.json", "the demo's truth")
@@ -312,12 +317,14 @@ def demo_sequence(folder: str | Path, skeleton: Skeleton | None = None) -> DemoS
         per_image[ann["image_id"]].append(ann)
     k = skeleton.num_joints
     out = DemoSequence([], [], [], [])
-    for image in sorted(truth["images"], key=lambda im: im["id"]):
+    found: list[np.ndarray] = []
+    for n, image in enumerate(sorted(truth["images"], key=lambda im: im["id"])):
         anns = per_image[image["id"]]
         maps = read_maps(folder / "maps" / f"{Path(image['file_name']).stem}.npz", skeleton,
                          (image["width"], image["height"]))
+        before = found if FRAME_BEFORE and n % GROUPING_RUN else None
         found = group_people(maps.confidence_maps, maps.pafs, skeleton.limb_array,
-                             stride=maps.stride)
+                             stride=maps.stride, previous=before)
         out.truth.append(np.array([a["keypoints"] for a in anns], float).reshape(-1, k, 3))
         out.areas.append(np.array([a["area"] for a in anns], float))
         out.dancers.append(np.array([a["track_id"] for a in anns], dtype=np.int64))

@@ -103,12 +103,15 @@ limb's matching pairs the other way), else it is no longer found as a peak. A re
 output moves with the picture as the simulated one does, so its grouping would meet the same
 near ties; the simulation was therefore left as it is, and what would make the labels' errors
 last is on the grouping's side (deciding a near tie as on the frame before), not the network's.
-A trial of that outside the app (not kept): each limb's candidate pair whose two ends lie
-within 12 pixels of the two ends of one person grouped on the frame before scored 0.2 higher in
-the matching, nothing else changed; on seeds 61-66 a wrong joint was then wrong again on the
-next frame in 48-64 % of cases (56 % on average), its runs lasted 1.9-2.7 frames, the
-frame-by-frame actions fell from 2,257 to 2,108 and carrying saved 33.7 % of them (26.8 % as
-grouped by the app).
+That is ``import-maps --frame-before`` (``previous`` of
+:func:`app.analysis.association.group_people`: each limb's candidate pair whose two ends lie
+within 12 pixels of the two ends of one person grouped on the frame before weighs 0.2 more in
+the pairing; first tried outside the app). On seeds 61-66 a wrong joint is then wrong again on
+the next frame in 51-64 % of cases (56.6 % in all), its runs last 2.0-2.7 frames, the
+frame-by-frame actions fall from 2,257 to 2,112 and carrying saves 33.2 % of them (26.8 %
+with each frame grouped alone); on the held-out seeds 91-96, 61.8 % and 34.2 % (README
+"Sequences"). It is not yet the default, so the demo's auto-labels are still grouped frame by
+frame.
 
 The error model is our own (no published source); it is meant to look like network output to
 the grouping and to a person reading the maps, not to reproduce a particular network.

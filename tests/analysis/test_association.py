@@ -330,3 +330,64 @@ def test_default_matching_is_not_worse_than_the_alternative():
     print(counts)
     assert counts[default] >= counts[other]
     assert counts[default] >= 0.9 * 600
+
+
+def _near_tie(weight):
+    """Two synthetic three-joint people whose first limbs could pair either way: the fields
+    hold the true limbs and, ``weight`` times as strong, the first limbs crossed (drawn with
+    the Cao et al. 2017 target formulas), so the crossed pairing may score a little higher."""
+    limbs = [(0, 1), (1, 2)]
+    true = np.array([[[20, 16, 2], [60, 18, 2], [88, 10, 2]],
+                     [[20, 40, 2], [60, 36, 2], [88, 46, 2]]], float)
+    crossed = true.copy()
+    crossed[[0, 1], 0] = true[[1, 0], 0]
+    size, stride = (96, 64), 2
+    maps = confidence_maps(true, size, stride, 3.0)
+    fields = part_affinity_fields(true, limbs, size, stride, 3.0)
+    fields[0] += weight * part_affinity_fields(crossed, limbs, size, stride, 3.0)[0]
+    return maps, fields, limbs, true, crossed
+
+
+def _pairings(people):
+    """The people as sets of rounded joint positions, in no order."""
+    return sorted(tuple(map(tuple, p[:, :2].round().astype(int).tolist())) for p in people)
+
+
+def test_the_frame_before_decides_a_near_tie_but_not_a_clear_choice():
+    """With the people of the frame before (moved 3 px, as dancers move), a near tie between
+    pairings is decided as on that frame, either way; a pairing the fields clearly prefer is
+    kept whatever came before; people further than the radius change nothing. The bonus and
+    radius are our own choice (no published source); the scene is synthetic."""
+    kw = {"stride": 2, "min_parts": 2, "min_mean_score": 0.0}
+    maps, fields, limbs, true, crossed = _near_tie(1.5)
+    alone = group_people(maps, fields, limbs, **kw)
+    assert _pairings(alone) == _pairings(crossed)  # the fields alone slightly prefer crossed
+    moved = true.copy()
+    moved[..., :2] += 3.0
+    assert _pairings(group_people(maps, fields, limbs, previous=moved, **kw)) == _pairings(true)
+    assert _pairings(group_people(maps, fields, limbs, previous=crossed + np.array([3.0, -2.0, 0]),
+                                  **kw)) == _pairings(crossed)
+    far = true.copy()
+    far[..., 0] += 30.0
+    assert _pairings(group_people(maps, fields, limbs, previous=far, **kw)) == _pairings(crossed)
+    maps, fields, limbs, true, crossed = _near_tie(2.0)
+    assert _pairings(group_people(maps, fields, limbs, previous=true, **kw)) == \
+        _pairings(crossed)
+
+
+def test_without_a_frame_before_grouping_is_unchanged():
+    """previous=None, no people before, people before with no joint near, or a zero bonus:
+    the very same arrays (the grouping of a frame alone is what it always was)."""
+    rng, truth = crowd_scene(5, n=12)
+    maps, fields = draw(truth, rng, noise=0.02, jitter=2.0)
+    plain = group_people(maps, fields, synth.LIMBS, stride=STRIDE)
+    assert len(plain) >= 10
+    shifted = [p + np.array([0.0, 5000.0, 0.0]) for p in plain]
+    for kw in ({"previous": None}, {"previous": []}, {"previous": shifted},
+               {"previous": truth, "prior_bonus": 0.0}):
+        again = group_people(maps, fields, synth.LIMBS, stride=STRIDE, **kw)
+        assert len(again) == len(plain)
+        for a, b in zip(again, plain, strict=True):
+            assert a.tobytes() == b.tobytes()
+    with pytest.raises(BadInput):
+        group_people(maps, fields, synth.LIMBS, stride=STRIDE, previous=[np.zeros((3, 3))])
