@@ -47,7 +47,7 @@ from app.session.owners import OwnerRanking, rank_owners
 from app.session.selection import Selection
 from app.session.settling import Dispute, Settling, load_dispute
 from app.session.view import View
-from app.session.walk import Stop, Walk, card_text, group_findings
+from app.session.walk import Stop, Walk, card_text, fold, group_findings
 from app.store.project import Project
 from app.wording import DECISION_WORDS, count
 
@@ -57,6 +57,11 @@ log = logging.getLogger(__name__)
 #: Runs ``job()`` away from the caller's thread and later calls ``deliver(result)`` on the
 #: caller's thread (the window's event loop): the session's only way to work in the background.
 Background = Callable[[Callable[[], Any], Callable[[Any], None]], None]
+
+
+#: At most this many frames' findings over time are read ahead past frames without findings
+#: (ours: the walk's order seldom holds more empty frames in a row).
+AHEAD = 4
 
 
 def run_here(job: Callable[[], Any], deliver: Callable[[Any], None]) -> None:
@@ -176,6 +181,11 @@ class Session:
         #: accepted, read ahead on the worker (:meth:`_read_ahead_accept`): ``(token,
         #: findings)``, used by that accept if nothing changed meanwhile.
         self._ahead: tuple[tuple[Any, ...], list[Finding]] | None = None
+        #: Per frame, cards folded ahead (:meth:`_fold_ahead`): ``(labels digest, {key of
+        #: the card as found: the card folded})``.
+        self._folds: dict[int, tuple[str, dict[str, Stop]]] = {}
+        #: Frames whose cards are being folded ahead.
+        self._folding: set[int] = set()
         #: How many such reads ahead are under way (the walk bench waits for them as for
         #: :attr:`pending`: a person reads the card meanwhile).
         self.reading_ahead = 0
@@ -368,30 +378,127 @@ class Session:
             self._stops[frame_id] = read
         return self._stops[frame_id]
 
-    def _read_stops(self, frame_id: int) -> list[Stop]:
+    def _read_stops(self, frame_id: int, fold: bool = False,
+                    over_time: bool = True) -> list[Stop]:
+        """The frame's stops read from the project: its stored findings (computed again when
+        stale) and, in a project with tracks, its findings over time, grouped into stops.
+        ``fold`` (on the worker only: it finds the frame's problems again up to
+        :data:`~app.session.walk.FOLD_ROUNDS` times) folds into each person's card the
+        fixes its own fixes expose (:func:`~app.session.walk.fold`); without it, the
+        cards a fold read ahead for these very labels are used (:meth:`_fold_ahead`).
+        ``over_time`` False uses only the findings over time already kept (computes none)."""
         digests = self.project.findings_digests()
         if not digests:
             return self._reason_stops(frame_id)
         labels = self.project.labels(frame_id)
+        digest = labels_digest(labels)
         stored = self.project.findings(frame_id).get(frame_id)
-        if stored is not None and digests.get(frame_id) == labels_digest(labels):
+        if stored is not None and digests.get(frame_id) == digest:
             found = [Finding.from_dict(d) for d in stored]
             if self._tracked is None:
                 self._tracked = bool(self.project.tracks_by_frame())
             if self._tracked:
                 # Findings over time are not stored (they depend on the frames around):
                 # computed here for this frame alone, as current_findings adds them.
-                if frame_id not in self._over_time:
+                if frame_id not in self._over_time and over_time:
                     self._over_time[frame_id] = time_findings(
                         self.project, [frame_id]).get(frame_id, [])
-                over_time = self._over_time[frame_id]
-                if over_time:
-                    found = sorted(found + over_time, key=finding_order)
+                kept = self._over_time.get(frame_id, [])
+                if kept:
+                    found = sorted(found + kept, key=finding_order)
         else:
             from app.jobs_findings import current_findings
 
             found = current_findings(self.project, [frame_id]).get(frame_id, [])
-        return group_findings(frame_id, found)
+        stops = group_findings(frame_id, found)
+        if fold:
+            return self._fold(frame_id, stops, labels,
+                              over_time=bool(self._tracked) and frame_id in self._over_time)
+        memo = self._folds.get(frame_id)
+        if memo is not None and memo[0] == digest:
+            stops = [memo[1].get(s.key, s) for s in stops]
+        return stops
+
+    def _fold(self, frame_id: int, stops: list[Stop], labels: Any,
+              over_time: bool = False) -> list[Stop]:
+        """:func:`~app.session.walk.fold` on a frame's labels: each round applies the hosts'
+        fixes to a copy of ``labels`` in memory and finds the frame's problems on it: its
+        own findings, and (``over_time``: the stops hold the frame's findings over time)
+        those over time when every edit keeps each person and track
+        (:data:`~app.analysis.triage.temporal.JOINT_EDITS`; ``time_findings(...,
+        instead=)``). A failure is logged and leaves the stops as they are."""
+        from app.analysis.triage.temporal import JOINT_EDITS
+        from app.jobs_findings import findings_of_frame
+
+        try:
+            frame = self.project.frame(frame_id)
+
+            def find(edits: tuple[Edit, ...]) -> list[Finding]:
+                after, _ = EditGroup(frame_id, edits).apply(labels)
+                found = findings_of_frame(self.project, frame, after)
+                if over_time and all(isinstance(e, JOINT_EDITS) for e in edits):
+                    found += time_findings(self.project, [frame_id], instead={
+                        frame_id: list(after.people.values())}).get(frame_id, [])
+                return found
+
+            known: list[Finding] = []
+            if over_time:  # found before, whether or not the stops were read with them
+                known = self._over_time.get(frame_id) or time_findings(
+                    self.project, [frame_id]).get(frame_id, [])
+            return fold(stops, find, known=known)
+        except Exception:  # the cards stay as found; the log says why
+            log.exception("folding the cards of frame %s failed", frame_id)
+            return stops
+
+    def _fold_ahead(self, frame_id: int) -> None:
+        """Fold on the worker the cards of the frame the walk goes to after ``frame_id``
+        (:meth:`_fold`), kept by the labels they were read from and by each card's key, so
+        that the step into that frame shows them folded; a card whose key changed meanwhile
+        (findings over time read again) is shown as found."""
+        nxt = self.walk.following(frame_id)
+        if nxt is not None:
+            self.fold_frame(nxt)
+
+    def fold_frame(self, nxt: int) -> None:
+        """Fold a frame's cards on the worker (:meth:`_fold`) for the step that shows it
+        (its findings over time read first, as :meth:`_read_ahead_over_time` does). The
+        window asks it for a frame it shows before the walk starts there."""
+        if nxt in self._folds or nxt in self._folding or not self.project.findings_digests():
+            return
+        current = self.walk.current
+        if current is not None and current.frame_id == nxt:
+            return  # shown already: its cards stay as they are until an accept
+        self._folding.add(nxt)
+        self.reading_ahead += 1
+        token = self._revision[nxt]
+
+        def job() -> tuple[str, dict[str, Stop]] | None:
+            try:
+                self._over_time_ahead(nxt)  # kept only if nothing changed since
+                labels = self.project.labels(nxt)
+                found = self._read_stops(nxt, over_time=False)
+                folded = self._fold(nxt, found, labels, over_time=bool(self._tracked)
+                                    and nxt in self._over_time)
+                if not found:  # the walk passes it: read the frames after it ahead
+                    self._read_ahead_over_time(nxt)
+            except Exception:  # the step reads them unfolded; the log says why
+                log.exception("folding the cards of frame %s failed", nxt)
+                return None
+            return labels_digest(labels), {a.key: b for a, b in zip(found, folded)
+                                           if a is not b}
+
+        def deliver(result: tuple[str, dict[str, Stop]] | None) -> None:
+            self.reading_ahead -= 1
+            self._folding.discard(nxt)
+            if result is None or token != self._revision[nxt]:
+                return
+            self._folds[nxt] = result
+            current = self.walk.current
+            if nxt in self._stops and nxt not in self._dirty and (
+                    current is None or current.frame_id != nxt):
+                self._stops.pop(nxt)  # read again, folded, when the walk gets there
+
+        self._background(job, deliver)
 
     def _reason_stops(self, frame_id: int) -> list[Stop]:
         triage = self.project.triage(frame_id)
@@ -442,6 +549,7 @@ class Session:
             if stale is not None and stale == self.frame_id:
                 self.reload_frame()  # nobody followed the walk to its frame
             self._read_ahead_accept(stop)
+            self._fold_ahead(stop.frame_id)
         return stop
 
     def select_stop(self, stop: Stop) -> None:
@@ -577,7 +685,7 @@ class Session:
             if self._revision[frame_id] != token:
                 return None  # edited again before this started: a newer one follows
             try:
-                stops = self._read_stops(frame_id)
+                stops = self._read_stops(frame_id, fold=True)
             except Exception:  # the walk goes on without them; the log says why
                 log.exception("computing the findings of frame %s again failed", frame_id)
                 return []
@@ -611,7 +719,8 @@ class Session:
         return (fid, stop.key, stop.left_out, self._revision[fid], self._over_time_gen)
 
     def _read_ahead_accept(self, stop: Stop) -> None:
-        """In a project with tracks, when the stop shown is its frame's last, compute on the
+        """In a project with tracks, when the stop shown is its frame's last (or every stop
+        after it is about people its accept touches, which the accept drops), compute on the
         worker the findings over time of the frame the walk goes to next as they would be
         once the stop's fix is accepted (its edits applied to the frame's labels in memory),
         so that the accept's step into that frame finds them ready instead of computing
@@ -629,8 +738,12 @@ class Session:
             return
         held = self._stops.get(fid)
         nxt = self.walk.following(fid)
-        if not held or held[-1].key != stop.key or nxt is None:
+        keys = [s.key for s in held or ()]
+        if stop.key not in keys or nxt is None:
             return
+        touched = self._touched(stop, changes_labels=True)
+        if any(not touched & set(s.people) for s in held[keys.index(stop.key) + 1:]):
+            return  # the accept leaves a stop of this frame to show next
         token = (*self._ahead_token(stop), nxt)
         edits = fix.edits
         self.reading_ahead += 1
@@ -655,9 +768,22 @@ class Session:
     def _read_ahead_over_time(self, frame_id: int) -> None:
         """In a project with tracks, compute the findings over time of the frame the walk
         goes to after ``frame_id`` (on the recompute's worker, so the step that shows that
-        frame does not); dropped if labels change meanwhile."""
+        frame does not); dropped if labels change meanwhile. A frame without findings is
+        passed by that step, which reads the one after it too: up to :data:`AHEAD` frames
+        are read ahead so."""
         nxt = self.walk.following(frame_id)
-        if not self._tracked or nxt is None or nxt in self._over_time:
+        for _ in range(AHEAD):
+            if nxt is None:
+                return
+            self._over_time_ahead(nxt)
+            if self._over_time.get(nxt) or self.project.findings(nxt).get(nxt):
+                return  # the step stops there (or reads its stops again, stale)
+            nxt = self.walk.following(nxt)
+
+    def _over_time_ahead(self, nxt: int) -> None:
+        """In a project with tracks, compute a frame's findings over time now (on the
+        worker); kept only if no findings over time were forgotten meanwhile."""
+        if not self._tracked or nxt in self._over_time:
             return
         gen = self._over_time_gen
         try:
@@ -752,8 +878,11 @@ class Session:
         at = self.walk._index
         if self._edited(stop, partial(self._apply, mark), changes_labels=False) is None:
             return None
-        parts = tuple(p for p in stop.parts if p is not part)
-        rest = replace(stop, parts=parts, group=tuple(g for g in stop.group if g is not part),
+        keep = [n for n, p in enumerate(stop.parts) if p is not part]
+        parts = tuple(stop.parts[n] for n in keep)
+        rounds = tuple(stop.rounds[n] for n in keep) if stop.rounds else ()
+        rest = replace(stop, parts=parts, rounds=rounds,
+                       group=tuple(g for g in stop.group if g is not part),
                        left_out=stop.left_out - {part.id}, focus=None,
                        finding=parts[0], person_id=parts[0].person_id,
                        text=card_text(parts) if len(parts) > 1 else parts[0].text)
@@ -767,12 +896,8 @@ class Session:
         """Run the edit of a stop; keep the frame's stops about other people. The frame
         shown is read again now, or (``reload`` False) by the step that follows, only if
         that step stays in it (:meth:`step`)."""
-        touched = set(stop.people)
+        touched = self._touched(stop, changes_labels)
         fix = stop.fix
-        if fix is not None and changes_labels:
-            p = fix.preview
-            touched |= {a for a, *_ in p.placed} | {a for a, _ in p.unlabeled} \
-                | {a for a, _ in p.occluded} | set(p.deleted) | {a for m in p.merged for a in m}
         fid = stop.frame_id
         kept = [s for s in self.stops(fid) if s.key != stop.key and not touched & set(s.people)]
         # A fix along a track also changes other frames (:meth:`_read_ahead` reads them).
@@ -817,6 +942,18 @@ class Session:
                 self._stale = fid
         return done
 
+    @staticmethod
+    def _touched(stop: Stop, changes_labels: bool) -> set[int]:
+        """The people a stop's edit concerns: the frame's other stops about them are read
+        again after it (:meth:`_edited`)."""
+        touched = set(stop.people)
+        fix = stop.fix
+        if fix is not None and changes_labels:
+            p = fix.preview
+            touched |= {a for a, *_ in p.placed} | {a for a, _ in p.unlabeled} \
+                | {a for a, _ in p.occluded} | set(p.deleted) | {a for m in p.merged for a in m}
+        return touched
+
     def _read_ahead(self, frame_id: int) -> None:
         """A frame the walk's fix changed besides its own (a fix along a track): forget its
         stops and compute them again in the background, so that the step into it reads
@@ -836,7 +973,7 @@ class Session:
                 return None
             gen = self._over_time_gen  # read before the labels around are
             try:
-                stops = self._read_stops(frame_id)
+                stops = self._read_stops(frame_id, fold=True)
             except Exception:  # the step computes them itself; the log says why
                 log.exception("computing the findings of frame %s again failed", frame_id)
                 return None

@@ -78,6 +78,10 @@ class Stop:
     focus
         The part under focus (an index into ``parts``; None: the card as a whole), which
         :meth:`Stop.leave_out` leaves out or puts back.
+    rounds
+        Per part, the round of :func:`fold` that added it (0: found on the labels as they
+        are; empty: all 0). A part of round ``r`` was found on the labels the parts of the
+        rounds before it leave, so it is taken only while none of those is left out.
     """
 
     frame_id: int
@@ -90,6 +94,7 @@ class Stop:
     parts: tuple[Finding, ...] = ()
     left_out: frozenset[str] = frozenset()
     focus: int | None = None
+    rounds: tuple[int, ...] = ()
 
     @property
     def fix(self) -> Fix | None:
@@ -102,8 +107,23 @@ class Stop:
 
     @property
     def taken(self) -> tuple[Finding, ...]:
-        """The parts whose fixes accepting the stop applies (not left out)."""
-        return tuple(f for f in self.parts if f.id not in self.left_out)
+        """The parts whose fixes accepting the stop applies: not left out, and not found
+        after a part left out (a part folded in round ``r`` follows every part of the
+        rounds before it, :func:`fold`).
+
+        Examples
+        --------
+        >>> s = Stop(1, "k", 2, (), "t", parts=_demo_parts(3), rounds=(0, 0, 1))
+        >>> [f.id for f in s.refocus(1).leave_out().taken]    # leave out p0: p2 follows it
+        ['p1']
+        >>> [f.id for f in s.refocus(-1).leave_out().taken]   # leave out p2 alone
+        ['p0', 'p1']
+        """
+        rounds = self.rounds or (0,) * len(self.parts)
+        out = [r for f, r in zip(self.parts, rounds) if f.id in self.left_out]
+        upto = min(out) if out else None
+        return tuple(f for f, r in zip(self.parts, rounds) if f.id not in self.left_out
+                     and (upto is None or r <= upto))
 
     @property
     def focused(self) -> Finding | None:
@@ -326,6 +346,150 @@ def person_cards(frame_id: int, found: Sequence[Finding]) -> tuple[list[Stop], l
     return out, rest
 
 
+#: At most this many rounds of :func:`fold` (ours: each round finds the frame's problems
+#: once more; three reach every consequence the demo shows, and bound the worker's time).
+FOLD_ROUNDS = 3
+
+
+def fold_hosts(stops: Sequence[Stop]) -> list[int]:
+    """Which stops :func:`fold` applies together (indices into ``stops``): every stop with a
+    fix about a person (a card, or a lone fix) or a frame's group of one kind's fixes
+    (:data:`COVERED_KEY`, :data:`GAP_KEY`), in one frame, whose footprint does not conflict
+    with the ones before it (:func:`conflict`).
+
+    Examples
+    --------
+    >>> from app.model.edits import SetVisibility
+    >>> def s(key, person, joint):
+    ...     fix = Fix("f", (SetVisibility(1, person, joint, 1),), FixPreview())
+    ...     f = Finding(key, 1, "k", person, person, (joint,), ("x",), "t", (), 1.0, 0.9, fix,
+    ...                 (person,), key)
+    ...     return Stop(1, key, person, (joint,), "t", f)
+    >>> fold_hosts([s("a", 3, 9), s("b", 3, 9), s("c", 4, 9), Stop(1, "n", 5, (), "note")])
+    [0, 2]
+    """
+    out: list[int] = []
+    cover: set[tuple[int, int]] = set()
+    for i, s in enumerate(stops):
+        fix = s.fix
+        if fix is None or not fix.edits or (s.person_id is None and not _is_group(s)) \
+                or any(isinstance(e, (NewPerson, SplitPerson)) for e in fix.edits):
+            continue  # about nobody yet, or it makes a person (its id is the store's)
+        fp = footprint(fix)
+        if fp is None or conflict(cover, fp):
+            continue
+        out.append(i)
+        cover |= fp
+    return out
+
+
+def fold(stops: Sequence[Stop], find: Callable[[tuple], Sequence[Finding]],
+         rounds: int = FOLD_ROUNDS, known: Sequence[Finding] = ()) -> list[Stop]:
+    """Finish people in one card: the frame's problems found again on its labels with the
+    fixes of every host (:func:`fold_hosts`) applied (``find(edits)``: the findings of the
+    labels those edits leave; ``known``: findings found before besides the stops'), and
+    each new fix that only a host's own fix exposed joins
+    that host's card, as a part of this round (:attr:`Stop.rounds`); repeated while new
+    fixes appear, at most ``rounds`` times.
+
+    A new finding joins a host when: its id and fingerprint were not found before; it has a
+    fix of one frame at or above :data:`TOGETHER_AT`; the people it reads or changes
+    include one the host's fix changes and none another host's fix changes (it follows
+    from that host's fix alone); its fix conflicts (:func:`conflict`) neither with another
+    fix folded in the same round nor with any other stop's (it may change again a joint the
+    card's fixes changed: it comes after them in the card's one undo step); and a person's
+    card links at most :data:`CARD_PEOPLE` people (a frame's group of one kind's fixes is
+    a host too, without that bound). Every other
+    new finding is left for the frame's recompute after the accept (shown then, as
+    before); nothing found before is dropped.
+
+    Examples
+    --------
+    A synthetic person 3 whose wrist, once given back, shows their elbow unlabelled:
+
+    >>> from app.model.edits import MoveJoint, SetVisibility
+    >>> def f(key, person, joint, edit):
+    ...     return Finding(key, 1, "k", person, person, (joint,), ("x",), f"t{key}", (),
+    ...                    1.0, 0.9, Fix(f"fix {key}", (edit,), FixPreview()), (person,), key)
+    >>> a = f("a", 3, 9, MoveJoint(1, 3, 9, 5.0, 5.0))
+    >>> b = f("b", 3, 7, SetVisibility(1, 3, 7, 2))
+    >>> def find(edits):  # the elbow shows once the wrist moved
+    ...     return [b] if any(isinstance(e, MoveJoint) for e in edits) else []
+    >>> out = fold([Stop(1, "a", 3, (9,), "ta", a)], find)
+    >>> out[0].key, [p.id for p in out[0].parts], out[0].rounds, out[0].fix.summary
+    ('a+b', ['a', 'b'], (0, 1), '2 fixes: fix a; fix b')
+    """
+    stops = list(stops)
+    seen = {x for f in (*(f for s in stops for f in s.findings), *known)
+            for x in (f.id, f.fingerprint)}
+    for r in range(1, rounds + 1):
+        hosts = fold_hosts(stops)
+        if not hosts:
+            break
+        edits = tuple(e for i in hosts for e in stops[i].fix.edits)  # type: ignore[union-attr]
+        found = find(edits)
+        covers = {i: set(footprint(stops[i].fix) or ()) for i in hosts}  # type: ignore[arg-type]
+        changed_by = {p: i for i in hosts for p, _ in covers[i]}
+        elsewhere = [(i, footprint(f.fix)) for i, s in enumerate(stops) for f in
+                     (s.taken if s.parts else s.findings) if f.fix is not None]
+        more: dict[int, list[Finding]] = {}
+        added: dict[int, set[tuple[int, int]]] = {}
+        for f in found:
+            if f.id in seen or f.fingerprint in seen:
+                continue
+            seen |= {f.id, f.fingerprint}
+            fp = None if f.fix is None or f.confidence < TOGETHER_AT else footprint(f.fix)
+            if not fp:
+                continue
+            people = {p for p, _ in fp} | set(f.people) | (
+                set() if f.person_id is None else {f.person_id})
+            owners = {changed_by[p] for p in people if p in changed_by}
+            if len(owners) != 1:
+                continue
+            i = owners.pop()
+            if not _is_group(stops[i]) and len(
+                    {p for p, _ in covers[i]} | {p for p, _ in fp}) > CARD_PEOPLE:
+                continue  # a frame's group holds many people by design
+            # It may change again a joint the card's fixes change (it was found on the labels
+            # they leave and comes after them in the card's one group), not one another
+            # fix of this round or another stop changes.
+            if conflict(added.get(i, set()), fp) or any(
+                    j != i and o is not None and conflict(o, fp) for j, o in elsewhere):
+                continue
+            added.setdefault(i, set()).update(fp)
+            more.setdefault(i, []).append(f)
+        if not more:
+            break
+        for i, extra in more.items():
+            stops[i] = _folded(stops[i], tuple(extra), r)
+    return stops
+
+
+def _is_group(s: Stop) -> bool:
+    """A frame's stop of one kind's fixes (:data:`COVERED_KEY`, :data:`GAP_KEY`)."""
+    return s.key.split("+", 1)[0] in (COVERED_KEY, GAP_KEY)
+
+
+def _folded(s: Stop, more: tuple[Finding, ...], r: int) -> Stop:
+    """A stop with parts of fold round ``r`` added (a lone fix becomes a card)."""
+    parts = s.parts or ((s.finding,) if s.finding is not None else ())
+    rounds = (s.rounds or (0,) * len(parts)) + (r,) * len(more)
+    new = parts + more
+    if _is_group(s):
+        said = "; ".join(m.fix.summary for m in more if m.fix is not None)
+        return replace(s, key=s.key + "+" + "+".join(m.id for m in more),
+                       text=f"{s.text}; then {count(len(more), 'fix', 'fixes')} they "
+                            f"expose: {said}", group=s.findings + more, parts=new,
+                       rounds=rounds)
+    head = card_text(parts) if len(parts) > 1 else (parts[0].text if parts else "")
+    tail = s.text[len(head):] if s.text.startswith(head) else ""
+    joints = tuple(dict.fromkeys(s.joints + tuple(j for m in more if m.person_id == s.person_id
+                                                  for j in m.joints)))
+    return replace(s, key=s.key + "+" + "+".join(m.id for m in more), joints=joints,
+                   text=card_text(new) + tail, finding=new[0], group=s.findings + more,
+                   parts=new, rounds=rounds)
+
+
 def card_text(parts: Sequence[Finding]) -> str:
     """A person's card in one sentence: its first finding's, then what the other fixes do.
 
@@ -357,8 +521,9 @@ def card_lines(stop: Stop) -> list[tuple[str, bool, bool]]:
     """
     if len(stop.parts) < 2:
         return []
+    taken = {id(p) for p in stop.taken}
     lines = [(f"{p.fix.summary if p.fix else p.text} ({p.confidence:.0%} sure)",
-              p.id in stop.left_out, n == stop.focus) for n, p in enumerate(stop.parts)]
+              id(p) not in taken, n == stop.focus) for n, p in enumerate(stop.parts)]
     if len(lines) <= CARD_LINES:
         return lines
     rest = lines[CARD_LINES - 1:]

@@ -553,6 +553,8 @@ class MainWindow(QMainWindow):
         flags = self._flags(frame.id)
         # The session holds the frame, its people and the selection; the Canvas shows them.
         self.session.open_frame(frame.id, people, flags)
+        if self.session.current is None:
+            self.session.fold_frame(frame.id)  # for the walk's first card here, on the worker
         decoded = self.loader.request(frame.id, self.project.image_path(frame), urgent=True)
         self.canvas.set_frame(frame, decoded=decoded)
         self._load_frame_extras()

@@ -125,6 +125,9 @@ def walk_demo(folder: Path, tracks: bool = False) -> dict:
     window.resize(1600, 1000)
     window.show()
     app.processEvents()
+    while window.session.reading_ahead:  # the first frame's cards fold as the window opens
+        app.processEvents()
+        time.sleep(0.002)
     actions = window.actions_by_name
     presses = accepted = skipped = 0
     inside: list[float] = []

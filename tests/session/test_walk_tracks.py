@@ -61,6 +61,9 @@ def test_an_accepted_fix_forgets_the_findings_over_time_within_its_reach_only(tm
         project.store_findings({fid: (labels_digest(project.labels(fid)), [])
                                 for fid in fids})
         s = Session(project, order=lambda: [3, 12, *range(1, 3), *range(4, 12)])
+        # The fold ahead of the next frame (run at once here, without a worker) would read
+        # the findings over time of a frame within reach again.
+        s._fold_ahead = lambda fid: None
         for fid in fids:
             s.stops(fid)
         s.open_frame(3)
@@ -167,3 +170,33 @@ def test_the_next_frames_findings_over_time_read_ahead_for_an_accept_equal_a_fre
         s.accept()
         assert s.current.frame_id == 4 and s._over_time[4] is ahead, "used, not computed"
         assert repr(ahead) == repr(time_findings(project, [4])[4])
+
+
+def test_the_read_ahead_also_serves_an_accept_that_drops_the_stops_after_it(tmp_path):
+    """A stop that is not its frame's last, whose accept drops every stop after it (they are
+    about the person it mends), reads the next frame's findings over time ahead too.
+    Synthetic dancers as above; a stored finding (invented here) about dancer 2's left
+    wrist, which the frames around place too (a stop of its own: the two would change the
+    wrist two ways)."""
+    from app.analysis.triage.findings import Finding, Fix, FixPreview
+    from app.model.edits import SetVisibility
+
+    people = sequences.dancers(frames=6, n=2)
+    people[2, 1, [LEFT_ELBOW, LEFT_WRIST]] = (0.0, 0.0, 0)
+    people[3, 0, LEFT_WRIST] = (0.0, 0.0, 0)
+    project, fids = sequences.make_project(tmp_path, people)
+    with project:
+        link_project(project)
+        pid = project.people(3)[1].id
+        fix = Fix("unlabel it", (SetVisibility(3, pid, LEFT_WRIST, 0),),
+                  FixPreview(unlabeled=((pid, LEFT_WRIST),)))
+        mine = Finding("Fm", 3, "wrong-owner", pid, 2, (LEFT_WRIST,), ("left wrist",),
+                       "person 2's left wrist", (), 1.0, 0.99, fix, (pid,), "FmFm")
+        project.store_findings({fid: (labels_digest(project.labels(fid)),
+                                      [mine.to_dict()] if fid == 3 else []) for fid in fids})
+        s = Session(project, order=lambda: [3, 4, 1, 2, 5, 6])
+        s.open_frame(3)
+        first = s.step(1)
+        keys = [x.key for x in s.stops(3)]
+        assert len(keys) == 2 and keys.index(first.key) == 0, keys
+        assert s._ahead is not None and s._ahead[0][5] == 4, "read ahead though not last"

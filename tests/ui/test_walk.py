@@ -49,10 +49,10 @@ def test_w_shows_the_finding_and_y_accepts_its_fix_as_one_undo_step(qtbot, windo
     assert window.canvas.selected_joints == [(pid, 9)]
     assert window.actions_by_name["accept_fix"].isEnabled()
     groups = len({e.group_id for e in ui_project.history()})
-    with qtbot.waitSignal(window.background.delivered, timeout=WAIT_MS):
-        qtbot.keyClick(window.canvas, Qt.Key.Key_Y)
-        assert window.session.pending == {fid}, "the frame is computed again off the UI thread"
-    assert not window.session.pending, "its result came back on the UI thread"
+    qtbot.keyClick(window.canvas, Qt.Key.Key_Y)
+    assert window.session.pending == {fid}, "the frame is computed again off the UI thread"
+    # Other jobs (the next frame's cards folded ahead) may deliver first.
+    qtbot.waitUntil(lambda: not window.session.pending, timeout=WAIT_MS)
     assert _wrist(ui_project, fid, pid)[2] == 1
     assert len({e.group_id for e in ui_project.history()}) == groups + 1
     assert window.session.current is None or window.session.current.key != "Ftest", \
