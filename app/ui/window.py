@@ -92,7 +92,7 @@ from app.ui.panels import LedgerPanel, NotesPanel, OwnersPanel, WorklistPanel
 from app.ui.settings import cache_bytes, settings
 from app.ui.strips import Strip
 from app.ui.timeline import TrackTimeline
-from app.ui.work import Background, Job, MapsShelf, describe_error, run_job
+from app.ui.work import Background, Job, MapsShelf, after_paint, describe_error, run_job
 from app.wording import count, plural
 
 log = logging.getLogger(__name__)
@@ -936,7 +936,11 @@ class MainWindow(QMainWindow):
     def _propose_carry(self, done: Applied | None) -> None:
         """After a correction of one frame, work out where carrying it would go on a worker
         thread (a batch can reach a hundred frames), then mark it and say so (Ctrl+Shift+C
-        takes it); an edit made meanwhile makes the answer stale."""
+        takes it); an edit made meanwhile makes the answer stale. The thread starts once the
+        event loop turns again, after the repaint that shows the edit (:func:`after_paint`):
+        running Python beside the UI thread, it shares the interpreter's lock, and started
+        at once it slowed the walk's step that accepted a fix (into the next frame, tracks
+        linked: 39 ms of the process's CPU, median, against 21 ms deferred)."""
         if done is None or done.group_id is None or not done.edit.changes_labels:
             return
         try:
@@ -953,7 +957,7 @@ class MainWindow(QMainWindow):
         self._jobs.append(job)
         job.finished.connect(lambda: self._jobs.remove(job) if job in self._jobs else None)
         job.finished.connect(job.deleteLater)
-        job.start()
+        after_paint(self.background, lambda: None if self._closed else job.start())
 
     def _carry_proposed(self, token: int, batch: Any) -> None:
         if not self._closed and self.timeline.offer(token, batch) and \

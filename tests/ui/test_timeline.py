@@ -58,6 +58,9 @@ def test_a_correction_marks_its_carried_batch_on_the_timeline_and_the_worklist(q
                   if p.track == _track_of(window.project, 1, pid))
     window.canvas.select_person(chosen)
     window.apply(SwapSides(2, chosen))
+    # The proposal's thread starts only once the event loop turns again, after the repaint
+    # that shows the edit (a thread running Python beside the UI thread would slow it).
+    assert window._jobs and not any(j.isRunning() or j.isFinished() for j in window._jobs)
     strip = window.track_timeline
     qtbot.waitUntil(lambda: strip.strip is not None and any(c.batch for c in strip.strip.cells),
                     timeout=WAIT_MS)
