@@ -83,7 +83,7 @@ def import_maps(project: Project, folder: str | Path,
     progress = progress or Progress()
     frames = {f.id: f for f in project.frames()}
     files = match_map_files(folder, list(frames.values()))
-    kept = project.people_by_frame()
+    has_people = project.frames_with_people()
     order = sorted(files.items())
     for frame_id, path in order:
         if frames[frame_id].status != "ok":
@@ -93,9 +93,12 @@ def import_maps(project: Project, folder: str | Path,
     in_order = FRAME_BEFORE if frame_before is None else frame_before
     runs = _grouping_runs([s.frame_ids for s in sequences(frames.values(), marked)]
                           if in_order else [], files)
+    # A frame that keeps its people is not grouped; in order, they are the next frame's
+    # frame before (read only then: alone, each frame is a run of its own).
+    kept = project.people_of_frames(has_people & files.keys()) if in_order else {}
     items = [(project.skeleton,
               [(str(files[f]), frames[f],
-                None if f not in kept else [p.keypoints for p in kept[f]] if in_order else [])
+                None if f not in has_people else [p.keypoints for p in kept.get(f, [])])
                for f in run])
              for run in runs]
     results: dict[int, tuple[int, list[Person]]] = {}

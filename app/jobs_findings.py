@@ -141,11 +141,7 @@ def time_findings(project: Project, frame_ids: Iterable[int] | None = None,
             people.update({fid: list(v) for fid, v in instead.items() if fid in people})
         dismissed = project.dismissed_of_frames(asked)
         whole_set, read = set(whole), set(whole) | set(later)
-        frames = [TrackedFrame(fid, {p.id: p.keypoints for p in people.get(fid, [])},
-                               {p.id: p.track for p in people.get(fid, [])
-                                if p.track is not None},
-                               frozenset(dismissed.get(fid, ())))
-                  if fid in whole_set else
+        frames = [_tracked(fid, people, dismissed) if fid in whole_set else
                   tracks_only(fid, tracks.get(fid, {}), k)
                   for fid in seq.frame_ids if fid in read]
         for fid, found in sequence_findings(frames, project.skeleton, at=asked).items():
@@ -164,13 +160,19 @@ def _all_time_findings(project: Project) -> dict[int, list[Finding]]:
     dismissed = project.dismissed()
     out: dict[int, list[Finding]] = {}
     for seq in project_sequences(project):
-        frames = [TrackedFrame(fid, {p.id: p.keypoints for p in people.get(fid, [])},
-                               {p.id: p.track for p in people.get(fid, [])
-                                if p.track is not None},
-                               frozenset(dismissed.get(fid, ())))
-                  for fid in seq.frame_ids]
+        frames = [_tracked(fid, people, dismissed) for fid in seq.frame_ids]
         out.update(sequence_findings(frames, project.skeleton))
     return out
+
+
+def _tracked(fid: int, people: Mapping[int, Sequence[Person]],
+             dismissed: Mapping[int, Iterable[str]]) -> TrackedFrame:
+    """A frame as the findings over time read it: its people's joints and tracks, and the
+    findings dismissed there."""
+    here = people.get(fid, ())
+    return TrackedFrame(fid, {p.id: p.keypoints for p in here},
+                        {p.id: p.track for p in here if p.track is not None},
+                        frozenset(dismissed.get(fid, ())))
 
 
 def parse_kinds(text: str | None, where: str = "--kinds") -> set[str] | None:

@@ -558,25 +558,20 @@ class Session:
         nobody (what they are about is marked, not selected). Tells the listeners
         (``selection``)."""
         part = stop.focused
-        pid = stop.person_id if part is None else part.person_id
-        person = None if pid is None else self.view.person(pid)
-        if person is not None:
-            joints = [j for j in (stop.joints if part is None else part.joints)
-                      if person.keypoints[j, 2] > 0]
-            if joints:
-                self.select_joints([(pid, j) for j in joints])
+        about = [(stop.person_id, stop.joints)]
+        if part is not None:  # the part's person first, else the card's
+            about.insert(0, (part.person_id, part.joints))
+        for pid, joints in about:
+            person = None if pid is None else self.view.person(pid)
+            if person is None:
+                continue
+            shown = [j for j in joints if person.keypoints[j, 2] > 0]
+            if shown:
+                self.select_joints([(pid, j) for j in shown])
             else:
                 self.select_person(pid)
             return
-        person = None if stop.person_id is None else self.view.person(stop.person_id)
-        if person is not None:
-            joints = [j for j in stop.joints if person.keypoints[j, 2] > 0]
-            if joints:
-                self.select_joints([(stop.person_id, j) for j in joints])
-            else:
-                self.select_person(stop.person_id)
-        else:
-            self.select_person(None)
+        self.select_person(None)
 
     def stop_place(self, stop: Stop) -> str:
         """Where a stop is among its frame's: ``· stop 2 of 5`` ("" once it is gone)."""

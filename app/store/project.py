@@ -460,6 +460,11 @@ class Project:
         with self._read() as tx:
             return tx.people.by_frame(self.skeleton.num_joints)
 
+    def frames_with_people(self) -> set[int]:
+        """The ids of the frames that have at least one person (no person read)."""
+        with self._read() as tx:
+            return tx.people.frames_with_people()
+
     def people_of_frames(self, frame_ids: Iterable[int]) -> dict[int, list[Person]]:
         """The people of the given frames grouped by frame id (frames without people left
         out): :meth:`people_by_frame` for a few frames."""
