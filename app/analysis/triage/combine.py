@@ -28,23 +28,23 @@ import numpy as np
 #: error, is taken to cost four times a needless look at a right label.
 FLAG_AT = 1.0 / 5.0
 #: Log-odds that a person is wrong before any evidence (fitted, see the module docstring).
-PRIOR = -4.4
+PRIOR = -4.1
 #: Evidence of each kind at full strength, in log-odds (fitted, see the module docstring;
 #: capped at 8 in the fit: no single sign is taken as more certain than 98 %).
 WEIGHTS: dict[str, float] = {
-    "missing-joints": 5.5,
-    "stretched-limb": 3.0,
+    "missing-joints": 7.0,
+    "stretched-limb": 2.5,
     "short-legs": 8.0,
     "tilted-torso": 8.0,
-    "off-ground": 2.5,
+    "off-ground": 2.0,
     "mirrored": 5.5,
-    "crossed-sides": 5.0,
+    "crossed-sides": 4.5,
     "duplicate": 0.0,
     "tangled": 3.5,
     "split": 7.5,
-    "weak-limb": 0.0,
+    "weak-limb": 0.5,
     "low-score": 0.5,
-    "invented": 4.5,
+    "invented": 4.0,
 }
 #: The frame's score adds this times its crowd index.
 CROWD_WEIGHT = 0.5

@@ -117,7 +117,7 @@ def triage_frame(
     for n, pid in enumerate(present):
         kp = arrays[pid]
         own = None if score_arrays is None else score_arrays.get(pid)
-        reasons += missing_joints(pid, kp, skeleton, image_size, scales[pid], reach)
+        reasons += missing_joints(pid, kp, skeleton, image_size, scales[pid], reach, maps)
         reasons += stretched_limbs(pid, kp, skeleton, torso[pid], reach)
         reasons += upright_body(pid, kp, skeleton, torso[pid])
         reasons += off_ground(pid, kp, skeleton, torso[pid], line)

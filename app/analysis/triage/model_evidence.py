@@ -366,3 +366,52 @@ def low_scores(pid: int, kp: np.ndarray, scores: np.ndarray | None,
     weakest = np.flatnonzero(on & (scores < reference))
     return [make_reason("low-score", f"the model scored this person's joints {mean:.2f} on average "
                     f"(the frame's people: {reference:.2f})", pid, weakest, strength)]
+
+
+def field_near(maps: Any, limb: int, at: np.ndarray, radius: float) -> float:
+    """The longest vector of ``limb``'s part affinity field within ``radius`` of ``at``.
+
+    Parameters
+    ----------
+    maps
+        Network maps with ``pafs`` ``(L, 2, H, W)`` and ``stride``.
+    limb
+        The limb's index in the skeleton.
+    at
+        ``(x, y)`` in image pixels.
+    radius
+        Image pixels.
+
+    Returns
+    -------
+    float
+        The largest ``|(field_x, field_y)|`` over the grid cells whose centres lie within
+        ``radius`` of ``at`` (the cell nearest ``at`` when none does); 0 off the grid. A limb
+        the model sees carries unit vectors along it (Cao et al. 2017, Eq. 8), so its field
+        near one end is close to 1; a limb it cannot see shows little.
+
+    Examples
+    --------
+    >>> from types import SimpleNamespace
+    >>> fields = np.zeros((1, 2, 10, 10)); fields[0, 0, 2, 3:8] = 1.0     # a limb along row 2
+    >>> maps = SimpleNamespace(pafs=fields, stride=1)
+    >>> on, off = np.array([3.0, 2.0]), np.array([3.0, 7.0])
+    >>> field_near(maps, 0, on, 1.5), field_near(maps, 0, off, 1.5)
+    (1.0, 0.0)
+    """
+    field = maps.pafs[limb]
+    s = float(maps.stride)
+    h, w = field.shape[1:]
+    # cell (r, c) stands for the pixel (c * s + (s - 1) / 2, r * s + (s - 1) / 2)
+    cx, cy = (float(at[0]) - (s - 1) / 2) / s, (float(at[1]) - (s - 1) / 2) / s
+    rc = max(radius / s, 0.5)
+    c0, c1 = max(int(np.floor(cx - rc)), 0), min(int(np.ceil(cx + rc)), w - 1)
+    r0, r1 = max(int(np.floor(cy - rc)), 0), min(int(np.ceil(cy + rc)), h - 1)
+    if c0 > c1 or r0 > r1:
+        return 0.0
+    rows, cols = np.mgrid[r0:r1 + 1, c0:c1 + 1]
+    near = np.hypot(cols - cx, rows - cy) <= rc
+    if not near.any():
+        return 0.0
+    patch = np.asarray(field[:, r0:r1 + 1, c0:c1 + 1], dtype=np.float64)
+    return float(np.hypot(patch[0], patch[1])[near].max())
