@@ -442,6 +442,36 @@ def test_missing_joints_count_only_inside_the_picture():
     assert "missing-joints" not in _kinds(t, 1)
 
 
+def test_a_missing_arm_the_field_does_not_show_counts_half():
+    """Left elbow and wrist unlabelled on one synthetic person. With fields drawn from the
+    true pose by our target function (the published definition, Cao et al. 2017, Sec. 2.3)
+    the upper arm's field leaves the shoulder: the two joints count fully (two of 17: strength
+    0.53, as the docstring's table says). With the arm's limbs left out of the drawn fields
+    (the model did not see the arm) they count as one joint (strength 0.25), and the reason
+    says so. Our own heuristic (app/analysis/triage/body.py, ``missing_joints``)."""
+    body = _body(centre=(240.0, 200.0))
+    arm = [J["left_elbow"], J["left_wrist"]]
+    cut = body.copy()
+    cut[arm, 2] = 0
+    fields = part_affinity_fields(body[None], SK.limbs, (480, 400), 4, 8.0)
+    seen = NetworkMaps(np.zeros((17, 100, 120), np.float32), fields, 4)
+    hidden = fields.copy()
+    for c, (a, b) in enumerate(SK.limbs):
+        if a in arm or b in arm:
+            hidden[c] = 0.0
+    unseen = NetworkMaps(np.zeros((17, 100, 120), np.float32), hidden, 4)
+
+    def missing(maps):
+        t = triage_frame({1: cut}, SK, maps=maps, image_size=(480, 400))
+        return [r for r in t.reasons if r.kind == "missing-joints"]
+
+    shown, not_shown = missing(seen), missing(unseen)
+    assert sorted(shown[0].joints) == sorted(not_shown[0].joints) == sorted(arm)
+    assert shown[0].strength == pytest.approx(0.8 * 17 / 15 / 0.2 - 4.0)
+    assert not_shown[0].strength == pytest.approx(0.8 * 16 / 15 / 0.2 - 4.0)
+    assert "hidden" not in shown[0].text and "more likely hidden" in not_shown[0].text
+
+
 def test_feet_off_the_floor_of_the_others():
     """People on one floor (Hoiem et al., CVPR 2006: image height proportional to the feet's
     distance below the horizon): a person drawn 1.6x too large for where their feet stand is
