@@ -305,7 +305,7 @@ def test_a_limb_longer_than_winters_table_allows_is_stretched():
     strength (1.6 - 1.2) / (1.8 - 1.2), as documented; at 2x (a wrist on a neighbour) the
     reason is at full strength and the person's suspicion is the prior plus the kind's whole
     weight (whether that alone flags the person depends on the fitted weights: with the prior
-    at -4.4 and the weight at 3.0, 0.198, just under 1/5). The lengths come from the
+    at -4.1 and the weight at 2.5, 0.168, under 1/5). The lengths come from the
     handbook's figure, not from our table, so a table that disagreed with the handbook would
     fail here."""
     body = _body()

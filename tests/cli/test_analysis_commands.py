@@ -72,7 +72,7 @@ def test_triage_ranks_and_stores_reasons(tmp_path, image_dir, maps_dir, capsys):
     assert main(["triage", str(proj), "-q", "--json"]) == 0
     ranked = json.loads(capsys.readouterr().out)
     # The frame comes first; whether one stretched limb alone flags the person depends on
-    # the fitted weights (prior -4.4 and weight 3.0: suspicion 0.198, just under 1/5).
+    # the fitted weights (prior -4.1 and weight 2.5: suspicion 0.168, under 1/5).
     assert ranked[0]["frame"] == f.id
     assert set(ranked[0]["flagged_people"]) <= {r["person"] for r in ranked[0]["reasons"]}
     assert any(r["kind"] == "stretched-limb" and r["person"] == q.id

@@ -149,7 +149,7 @@ def combine(reasons: list[Reason], people: Any) -> dict[int, float]:
     >>> r = [Reason("stretched-limb", "", 1, evidence=3.0), Reason("stretched-limb", "", 1,
     ...      evidence=4.0), Reason("tangled", "", 1, evidence=1.0)]
     >>> {p: round(s, 3) for p, s in combine(r, [1, 2]).items()}   # PRIOR + 4 + 1, PRIOR
-    {1: 0.646, 2: 0.012}
+    {1: 0.711, 2: 0.016}
     """
     best: dict[int, dict[str, float]] = {int(p): {} for p in people}
     for r in reasons:
@@ -184,7 +184,7 @@ def stored_suspicion(reasons: Any) -> dict[int, float]:
     ...           {"kind": "tangled", "person": 3, "evidence": 1.0, "weight": 0.04},
     ...           {"kind": "crowded", "person": None, "evidence": 0.0, "weight": 0.8}]
     >>> {p: round(v, 3) for p, v in stored_suspicion(stored).items()}
-    {3: 0.646}
+    {3: 0.711}
     """
     rebuilt = [Reason(str(r.get("kind", "")), "", int(r["person"]),
                       evidence=float(r.get("evidence") or 0.0))

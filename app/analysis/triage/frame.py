@@ -83,7 +83,7 @@ def triage_frame(
     >>> wrong = body.copy(); wrong[9, :2] = (160, 72)      # left wrist on a neighbour
     >>> t = triage_frame({1: wrong}, sk)
     >>> sorted({r.kind for r in t.reasons}), round(t.suspicion[1], 3)  # PRIOR + its weight
-    (['stretched-limb'], 0.198)
+    (['stretched-limb'], 0.168)
     >>> tilted = wrong.copy(); tilted[11:, 0] += 25       # and the hips and legs to the side
     >>> triage_frame({1: tilted}, sk).flagged
     [1]
