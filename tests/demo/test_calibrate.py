@@ -97,11 +97,13 @@ def test_accepting_every_fix_removes_half_the_wrong_joints(frames):
     (a faint peak too), a missed person added only when complete, invented spots other than
     knees and ankles weighed at half, and the calibration fitted again: 553 down to 299
     (45.9 %), 4,913 up to 5,103 (+3.9 %), 189 of 223 helped (0.85; 7 missing-joint fixes, 3
-    of which helped). Below the goal of half; the thresholds sit a little below what was
-    measured."""
+    of which helped). With ``missing-joints`` counting a joint whose limb the field does not
+    show as half, and triage's weights and the calibration fitted again (3 December 2026):
+    553 down to 310 (43.9 %), 4,913 up to 5,099 (+3.8 %), 186 of 220 helped (0.85). Below
+    the goal of half; the thresholds sit a little below what was measured."""
     figure = accept_all(frames, demo="shipped")
     print(json.dumps(figure.to_dict(), indent=1))
-    assert figure.removed_share >= 0.44
+    assert figure.removed_share >= 0.43
     assert figure.correct_change >= 0.03
     helped = sum(figure.helped.values()) / sum(figure.fixes.values())
     assert helped >= 0.82
