@@ -50,10 +50,10 @@ GROUPING_RUN = 16
 
 #: Whether :func:`import_maps` groups the frames of a sequence with the frame before by
 #: default (``import-maps --frame-before`` asks for it). Off: with it, the demo's labelled
-#: errors last longer and carrying spares more, but triage, whose weights were fitted on
-#: frames grouped alone, flags the shipped demo's wrong people less well (README
-#: "Sequences"); to be turned on once triage's weights and the findings' calibration are
-#: fitted again on demos grouped this way.
+#: errors last longer and carrying spares more (25.6 % against 23.1 % on fresh seeds
+#: 101-103, short of issue 14's 30 %), but triage flags the dance's wrong people less well,
+#: even with its weights and the findings' calibration fitted again on demos grouped this
+#: way (tried twice on 3 December 2026; README "Sequences", DEVELOPERS.md).
 FRAME_BEFORE = False
 
 
