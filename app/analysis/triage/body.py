@@ -26,7 +26,7 @@ from app.analysis.anthropometry import (
     reach_matrix,
 )
 from app.analysis.triage.combine import Reason, make_reason, ramp
-from app.analysis.triage.model_evidence import limb_e, limb_index
+from app.analysis.triage.model_evidence import field_near, limb_e, limb_index
 from app.model.naming import joint_name
 from app.model.skeleton import Skeleton
 from app.wording import count
@@ -37,9 +37,9 @@ OKS_RIGHT = 0.8
 #: labelled``, counts from ``OKS_RIGHT`` (nothing missing) and is sure at 1 (unreachable); one
 #: of 17 missing needs 0.85, two 0.91, three 0.97.
 NEED_FROM, NEED_SURE = 0.8, 1.0
-#: Missing joints: a joint counts only when the field of the limb leaving the labelled body
-#: toward it has a vector of at least ``SEEN_FIELD`` within ``FIELD_NEAR`` of that limb's
-#: expected length of the labelled end (see :func:`missing_joints`).
+#: Missing joints: the network shows a missing joint's limb when the field of the limb leaving
+#: the labelled body toward it has a vector of at least ``SEEN_FIELD`` within ``FIELD_NEAR`` of
+#: that limb's expected length of the labelled end (see :func:`missing_joints`).
 SEEN_FIELD, FIELD_NEAR = 0.5, 0.4
 #: Missing joints: a missing joint whose limb the field does not show (hidden, most likely)
 #: counts as this much of one that it shows (lost, most likely); see :func:`missing_joints`.
@@ -129,8 +129,8 @@ def body_scale(kp: np.ndarray, skeleton: Skeleton, fractions: np.ndarray) -> flo
 def missing_joints(pid: int, kp: np.ndarray, skeleton: Skeleton,
                    image_size: tuple[int, int] | None, scale: float,
                    reach: np.ndarray | None = None, maps: Any = None) -> list[Reason]:
-    """Joints that should be in the picture, that the model may have seen, but are not
-    labelled.
+    """Joints that should be in the picture but are not labelled (those whose limb the
+    network's field does not show counting half).
 
     Parameters
     ----------
@@ -153,8 +153,8 @@ def missing_joints(pid: int, kp: np.ndarray, skeleton: Skeleton,
     Returns
     -------
     list of Reason
-        At most one ``missing-joints`` reason naming the missing joints in the picture that
-        the model's field does not show hidden.
+        At most one ``missing-joints`` reason naming the missing joints in the picture (and
+        which of them are more likely hidden than lost).
 
     Notes
     -----
@@ -177,8 +177,8 @@ def missing_joints(pid: int, kp: np.ndarray, skeleton: Skeleton,
     the labelled end (:func:`app.analysis.triage.model_evidence.field_near`). A joint whose
     limb is not shown counts ``HIDDEN_COUNTS`` (0.5) of a joint in ``need`` (it still counts
     fully in the OKS ceiling the text gives: OKS counts a hidden joint that the truth labels).
-    Measured on demo seeds 1-8 of both scenes (12 frames each, 3 December 2026): among the
-    missing joints in the picture, the field shows no limb toward 67 % of those the truth has
+    Measured on demo seeds 1-8 of both scenes (12 frames each, grouped with the frame before,
+    3 December 2026): among the missing joints in the picture, the field shows no limb toward 67 % of those the truth has
     occluded against 43 % of those it has visible on the dance (61 % and 36 % on the choir).
     Not counting them at all was tried and not kept: right and wrong people lack hidden
     joints alike (on the shipped demo the wrong people whose only sign it was lacked the
@@ -261,8 +261,6 @@ def _limb_seen(j: int, on: np.ndarray, skeleton: Skeleton, kp: np.ndarray,
     joint ``j``: of the labelled joints fewest limbs away from ``j``, one whose limb on the
     way to ``j`` has a field vector of at least :data:`SEEN_FIELD` within :data:`FIELD_NEAR`
     of that limb's expected length (``reach * scale``) of the labelled end."""
-    from app.analysis.triage.model_evidence import field_near
-
     for limb, k, toward in _first_limbs(skeleton, j, on):
         radius = FIELD_NEAR * reach[k, toward] * scale
         if np.isfinite(radius) and field_near(maps, limb, kp[k, :2], radius) >= SEEN_FIELD:
