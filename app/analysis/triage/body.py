@@ -178,8 +178,9 @@ def missing_joints(pid: int, kp: np.ndarray, skeleton: Skeleton,
     limb is not shown counts ``HIDDEN_COUNTS`` (0.5) of a joint in ``need`` (it still counts
     fully in the OKS ceiling the text gives: OKS counts a hidden joint that the truth labels).
     Measured on demo seeds 1-8 of both scenes (12 frames each, grouped with the frame before,
-    3 December 2026): among the missing joints in the picture, the field shows no limb toward 67 % of those the truth has
-    occluded against 43 % of those it has visible on the dance (61 % and 36 % on the choir).
+    3 December 2026): among the missing joints in the picture, the field shows no limb toward
+    67 % of those the truth has occluded against 43 % of those it has visible on the dance
+    (61 % and 36 % on the choir).
     Not counting them at all was tried and not kept: right and wrong people lack hidden
     joints alike (on the shipped demo the wrong people whose only sign it was lacked the
     same hidden elbow and wrist, or knee and ankle, as the right ones, at OKS 0.68-0.79
