@@ -647,7 +647,11 @@ def _demo_parts(n: int) -> tuple[Finding, ...]:
 def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
     """A frame's findings as stops, worst first: a person's fixes that agree are one card
     (:func:`person_cards`); two or more of the :data:`GROUPED_KINDS` with fixes left off
-    the cards become one stop (:data:`COVERED_KEY`) where the first of them was.
+    the cards become one stop (:data:`COVERED_KEY`), and two or more of the
+    :data:`GAP_KINDS` another (:data:`GAP_KEY`), after the people's stops: when a card
+    taken before touched the group's people, the group is read again after it with what
+    it exposed (:meth:`app.session.Session.accept`), rather than taken first and followed
+    by a second group at the frame's end.
 
     Examples
     --------
@@ -658,7 +662,7 @@ def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
     ...                    "t", (), 1.0, 0.9, fix, (person,), i)
     >>> [s.key for s in group_findings(1, [f("a", "split", 1), f("b", "hidden", 2),
     ...                                    f("c", "duplicate", 3), f("d", "invented", 4)])]
-    ['a', 'G:covered', 'c']
+    ['a', 'c', 'G:covered']
     """
     stops, found = person_cards(frame_id, found)
     heads = {id(c.parts[0]) for c in stops}
@@ -689,6 +693,8 @@ def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
     for f in found:
         grouped = next((g for g in stops if g.findings[0] is f), None)
         out.append(grouped or Stop(f.frame_id, f.id, f.person_id, f.joints, f.text, f))
+    # The frame's groups come after its people's cards (see above).
+    out = [s for s in out if not _is_group(s)] + [s for s in out if _is_group(s)]
     return _frame_notes(_with_notes(out))
 
 
