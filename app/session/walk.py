@@ -194,6 +194,10 @@ GROUPED_KINDS = ("hidden", "invented")
 #: The key of a frame's stop that holds its :data:`GROUPED_KINDS` fixes.
 COVERED_KEY = "G:covered"
 
+#: The key of a frame's one stop that holds both its :data:`GROUPED_KINDS` and its
+#: :data:`GAP_KINDS` fixes (:func:`group_findings`).
+JOINTS_KEY = "G:joints"
+
 #: At most this many people's fixes are written out on the grouped stop's card.
 GROUP_SHOWN = 4
 
@@ -571,7 +575,7 @@ def _merged(s: Stop, others: Sequence[Stop], keys: tuple[str, ...]) -> Stop:
 
 def _is_group(s: Stop) -> bool:
     """A frame's stop of one kind's fixes (:data:`COVERED_KEY`, :data:`GAP_KEY`)."""
-    return s.key.split("+", 1)[0] in (COVERED_KEY, GAP_KEY)
+    return s.key.split("+", 1)[0] in (COVERED_KEY, GAP_KEY, JOINTS_KEY)
 
 
 def _folded(s: Stop, more: tuple[Finding, ...], r: int) -> Stop:
@@ -666,10 +670,16 @@ def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
     """
     stops, found = person_cards(frame_id, found)
     heads = {id(c.parts[0]) for c in stops}
-    for key, kinds, say in ((COVERED_KEY, GROUPED_KINDS, covered_text),
-                            (GAP_KEY, GAP_KINDS, gap_text)):
-        members = tuple(f for f in found if f.kind in kinds and f.fix is not None
-                        and id(f) not in heads)
+    kinds_of = {COVERED_KEY: GROUPED_KINDS, GAP_KEY: GAP_KINDS}
+    loose = {key: tuple(f for f in found if f.kind in kinds and f.fix is not None
+                        and id(f) not in heads) for key, kinds in kinds_of.items()}
+    both = _joints_group(loose[COVERED_KEY], loose[GAP_KEY])
+    order = {id(f): n for n, f in enumerate(found)}
+    for key, members, say in (
+            ((JOINTS_KEY, both, joints_text),) if both else
+            ((COVERED_KEY, loose[COVERED_KEY], covered_text),
+             (GAP_KEY, loose[GAP_KEY], gap_text))):
+        members = tuple(sorted(members, key=lambda f: order[id(f)]))
         if len(members) >= 2:
             found = [f for f in found if f not in members or f is members[0]]
             stops.append(Stop(frame_id, key, None, (), say(members), None, members,
@@ -696,6 +706,44 @@ def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
     # The frame's groups come after its people's cards (see above).
     out = [s for s in out if not _is_group(s)] + [s for s in out if _is_group(s)]
     return _frame_notes(_with_notes(out))
+
+
+def _joints_group(covered: Sequence[Finding], gaps: Sequence[Finding]) -> tuple[Finding, ...]:
+    """A frame's hidden/invented fixes and its joint-gap fixes left off the cards as one
+    group, when it has both and no fix of one conflicts with a fix of the other
+    (:func:`conflict`: a joint the frames around place that a nearer body hides, say);
+    else none.
+
+    Examples
+    --------
+    >>> from app.model.edits import MoveJoint, SetVisibility
+    >>> def f(i, kind, person, edit):
+    ...     return Finding(i, 1, kind, person, person, (edit.joint,), ("x",), "t", (), 1.0,
+    ...                    0.9, Fix("f", (edit,), FixPreview()), (person,), i)
+    >>> hid = f("h", "hidden", 2, SetVisibility(1, 2, 13, 1))
+    >>> gap = f("g", "joint-gap", 5, MoveJoint(1, 5, 9, 3.0, 4.0))
+    >>> [m.id for m in _joints_group([hid], [gap])]
+    ['h', 'g']
+    >>> _joints_group([hid], [f("x", "joint-gap", 2, MoveJoint(1, 2, 13, 3.0, 4.0))])
+    ()
+    """
+    if not covered or not gaps:
+        return ()
+    prints = [footprint(f.fix) for f in (*covered, *gaps) if f.fix is not None]
+    if any(p is None for p in prints):
+        return ()
+    one = set().union(*prints[:len(covered)])
+    other = set().union(*prints[len(covered):])
+    return () if conflict(one, other) else (*covered, *gaps)
+
+
+def joints_text(members: Sequence[Finding]) -> str:
+    """The sentence of a frame's one stop of joints mended one by one: those a nearer
+    person hides (:func:`covered_text`), then those the frames around mend
+    (:func:`gap_text`)."""
+    covered = [m for m in members if m.kind in GROUPED_KINDS]
+    gaps = [m for m in members if m.kind in GAP_KINDS]
+    return f"{covered_text(covered)}; and {gap_text(gaps)}"
 
 
 def covered_text(members: Sequence[Finding]) -> str:
