@@ -47,7 +47,7 @@ from app.session.owners import OwnerRanking, rank_owners
 from app.session.selection import Selection
 from app.session.settling import Dispute, Settling, load_dispute
 from app.session.view import View
-from app.session.walk import Stop, Walk, card_text, fold, group_findings
+from app.session.walk import Stop, Walk, card_text, fold, folded_ahead, group_findings
 from app.store.project import Project
 from app.wording import DECISION_WORDS, count
 
@@ -183,7 +183,7 @@ class Session:
         self._ahead: tuple[tuple[Any, ...], list[Finding]] | None = None
         #: Per frame, cards folded ahead (:meth:`_fold_ahead`): ``(labels digest, {key of
         #: the card as found: the card folded})``.
-        self._folds: dict[int, tuple[str, dict[str, Stop]]] = {}
+        self._folds: dict[int, tuple[str, dict[str, Stop | None]]] = {}
         #: Frames whose cards are being folded ahead.
         self._folding: set[int] = set()
         #: How many such reads ahead are under way (the walk bench waits for them as for
@@ -416,17 +416,18 @@ class Session:
                               over_time=bool(self._tracked) and frame_id in self._over_time)
         memo = self._folds.get(frame_id)
         if memo is not None and memo[0] == digest:
-            stops = [memo[1].get(s.key, s) for s in stops]
+            stops = folded_ahead(stops, memo[1])
         return stops
 
     def _fold(self, frame_id: int, stops: list[Stop], labels: Any,
-              over_time: bool = False) -> list[Stop]:
+              over_time: bool = False, places: bool = False) -> list[Stop]:
         """:func:`~app.session.walk.fold` on a frame's labels: each round applies the hosts'
         fixes to a copy of ``labels`` in memory and finds the frame's problems on it: its
         own findings, and (``over_time``: the stops hold the frame's findings over time)
         those over time when every edit keeps each person and track
         (:data:`~app.analysis.triage.temporal.JOINT_EDITS`; ``time_findings(...,
-        instead=)``). A failure is logged and leaves the stops as they are."""
+        instead=)``). ``places``: as :func:`~app.session.walk.fold` (None where a stop was
+        merged into a card). A failure is logged and leaves the stops as they are."""
         from app.analysis.triage.temporal import JOINT_EDITS
         from app.jobs_findings import findings_of_frame
 
@@ -445,7 +446,7 @@ class Session:
             if over_time:  # found before, whether or not the stops were read with them
                 known = self._over_time.get(frame_id) or time_findings(
                     self.project, [frame_id]).get(frame_id, [])
-            return fold(stops, find, known=known)
+            return fold(stops, find, known=known, places=places)
         except Exception:  # the cards stay as found; the log says why
             log.exception("folding the cards of frame %s failed", frame_id)
             return stops
@@ -472,13 +473,13 @@ class Session:
         self.reading_ahead += 1
         token = self._revision[nxt]
 
-        def job() -> tuple[str, dict[str, Stop]] | None:
+        def job() -> tuple[str, dict[str, Stop | None]] | None:
             try:
                 self._over_time_ahead(nxt)  # kept only if nothing changed since
                 labels = self.project.labels(nxt)
                 found = self._read_stops(nxt, over_time=False)
                 folded = self._fold(nxt, found, labels, over_time=bool(self._tracked)
-                                    and nxt in self._over_time)
+                                    and nxt in self._over_time, places=True)
                 if not found:  # the walk passes it: read the frames after it ahead
                     self._read_ahead_over_time(nxt)
             except Exception:  # the step reads them unfolded; the log says why
@@ -487,7 +488,7 @@ class Session:
             return labels_digest(labels), {a.key: b for a, b in zip(found, folded)
                                            if a is not b}
 
-        def deliver(result: tuple[str, dict[str, Stop]] | None) -> None:
+        def deliver(result: tuple[str, dict[str, Stop | None]] | None) -> None:
             self.reading_ahead -= 1
             self._folding.discard(nxt)
             if result is None or token != self._revision[nxt]:

@@ -82,6 +82,10 @@ class Stop:
         Per part, the round of :func:`fold` that added it (0: found on the labels as they
         are; empty: all 0). A part of round ``r`` was found on the labels the parts of the
         rounds before it leave, so it is taken only while none of those is left out.
+    merged
+        The keys (as found) of the frame's other stops that :func:`fold` took into this
+        card, because a fix exposed by the two cards' fixes together reads both cards'
+        people; those stops are not shown apart.
     """
 
     frame_id: int
@@ -95,6 +99,7 @@ class Stop:
     left_out: frozenset[str] = frozenset()
     focus: int | None = None
     rounds: tuple[int, ...] = ()
+    merged: tuple[str, ...] = ()
 
     @property
     def fix(self) -> Fix | None:
@@ -188,6 +193,10 @@ GROUPED_KINDS = ("hidden", "invented")
 
 #: The key of a frame's stop that holds its :data:`GROUPED_KINDS` fixes.
 COVERED_KEY = "G:covered"
+
+#: The key of a frame's one stop that holds both its :data:`GROUPED_KINDS` and its
+#: :data:`GAP_KINDS` fixes (:func:`group_findings`).
+JOINTS_KEY = "G:joints"
 
 #: At most this many people's fixes are written out on the grouped stop's card.
 GROUP_SHOWN = 4
@@ -351,7 +360,7 @@ def person_cards(frame_id: int, found: Sequence[Finding]) -> tuple[list[Stop], l
 FOLD_ROUNDS = 3
 
 
-def fold_hosts(stops: Sequence[Stop]) -> list[int]:
+def fold_hosts(stops: Sequence[Stop | None]) -> list[int]:
     """Which stops :func:`fold` applies together (indices into ``stops``): every stop with a
     fix about a person (a card, or a lone fix) or a frame's group of one kind's fixes
     (:data:`COVERED_KEY`, :data:`GAP_KEY`), in one frame, whose footprint does not conflict
@@ -371,9 +380,10 @@ def fold_hosts(stops: Sequence[Stop]) -> list[int]:
     out: list[int] = []
     cover: set[tuple[int, int]] = set()
     for i, s in enumerate(stops):
-        fix = s.fix
-        if fix is None or not fix.edits or (s.person_id is None and not _is_group(s)) \
-                or any(isinstance(e, (NewPerson, SplitPerson)) for e in fix.edits):
+        fix = None if s is None else s.fix
+        if s is None or fix is None or not fix.edits or (
+                s.person_id is None and not _is_group(s)) or any(
+                isinstance(e, (NewPerson, SplitPerson)) for e in fix.edits):
             continue  # about nobody yet, or it makes a person (its id is the store's)
         fp = footprint(fix)
         if fp is None or conflict(cover, fp):
@@ -384,7 +394,8 @@ def fold_hosts(stops: Sequence[Stop]) -> list[int]:
 
 
 def fold(stops: Sequence[Stop], find: Callable[[tuple], Sequence[Finding]],
-         rounds: int = FOLD_ROUNDS, known: Sequence[Finding] = ()) -> list[Stop]:
+         rounds: int = FOLD_ROUNDS, known: Sequence[Finding] = (),
+         places: bool = False) -> list[Stop]:
     """Finish people in one card: the frame's problems found again on its labels with the
     fixes of every host (:func:`fold_hosts`) applied (``find(edits)``: the findings of the
     labels those edits leave; ``known``: findings found before besides the stops'), and
@@ -399,7 +410,13 @@ def fold(stops: Sequence[Stop], find: Callable[[tuple], Sequence[Finding]],
     fix folded in the same round nor with any other stop's (it may change again a joint the
     card's fixes changed: it comes after them in the card's one undo step); and a person's
     card links at most :data:`CARD_PEOPLE` people (a frame's group of one kind's fixes is
-    a host too, without that bound). Every other
+    a host too, without that bound). A new finding that follows from two person hosts'
+    fixes together (it reads or changes people of both, e.g. a joint one person's fix
+    leaves inside the body of a person another fix moved) merges the two into one card
+    when they link at most :data:`CARD_PEOPLE` people together and its fix conflicts with
+    no other stop's: the later host's parts follow the earlier's (same rounds), then the new
+    fix, and the later host is not shown apart (:attr:`Stop.merged`; with ``places`` the
+    list keeps its length, None where a stop was merged). Every other
     new finding is left for the frame's recompute after the accept (shown then, as
     before); nothing found before is dropped.
 
@@ -408,9 +425,10 @@ def fold(stops: Sequence[Stop], find: Callable[[tuple], Sequence[Finding]],
     A synthetic person 3 whose wrist, once given back, shows their elbow unlabelled:
 
     >>> from app.model.edits import MoveJoint, SetVisibility
-    >>> def f(key, person, joint, edit):
+    >>> def f(key, person, joint, edit, people=None):
     ...     return Finding(key, 1, "k", person, person, (joint,), ("x",), f"t{key}", (),
-    ...                    1.0, 0.9, Fix(f"fix {key}", (edit,), FixPreview()), (person,), key)
+    ...                    1.0, 0.9, Fix(f"fix {key}", (edit,), FixPreview()),
+    ...                    people or (person,), key)
     >>> a = f("a", 3, 9, MoveJoint(1, 3, 9, 5.0, 5.0))
     >>> b = f("b", 3, 7, SetVisibility(1, 3, 7, 2))
     >>> def find(edits):  # the elbow shows once the wrist moved
@@ -418,22 +436,40 @@ def fold(stops: Sequence[Stop], find: Callable[[tuple], Sequence[Finding]],
     >>> out = fold([Stop(1, "a", 3, (9,), "ta", a)], find)
     >>> out[0].key, [p.id for p in out[0].parts], out[0].rounds, out[0].fix.summary
     ('a+b', ['a', 'b'], (0, 1), '2 fixes: fix a; fix b')
+
+    Person 5's knee, once person 3's wrist moved, lies inside person 3's body: a finding
+    about both people's fixes merges their two cards.
+
+    >>> c = f("c", 5, 13, MoveJoint(1, 5, 13, 6.0, 6.0))
+    >>> d = f("d", 5, 13, SetVisibility(1, 5, 13, 1), people=(5, 3))
+    >>> out = fold([Stop(1, "a", 3, (9,), "ta", a), Stop(1, "c", 5, (13,), "tc", c)],
+    ...            lambda edits: [d], places=True)
+    >>> out[0].key, [p.id for p in out[0].parts], out[0].rounds, out[0].merged, out[1]
+    ('a+c+d', ['a', 'c', 'd'], (0, 0, 1), ('c',), None)
     """
-    stops = list(stops)
+    held: list[Stop | None] = list(stops)
+    found_keys = [s.key for s in stops]
     seen = {x for f in (*(f for s in stops for f in s.findings), *known)
             for x in (f.id, f.fingerprint)}
     for r in range(1, rounds + 1):
-        hosts = fold_hosts(stops)
+        hosts = fold_hosts(held)
         if not hosts:
             break
-        edits = tuple(e for i in hosts for e in stops[i].fix.edits)  # type: ignore[union-attr]
+        edits = tuple(e for i in hosts for e in held[i].fix.edits)  # type: ignore[union-attr]
         found = find(edits)
-        covers = {i: set(footprint(stops[i].fix) or ()) for i in hosts}  # type: ignore[arg-type]
+        covers = {i: set(footprint(held[i].fix) or ()) for i in hosts}  # type: ignore[union-attr,arg-type]
         changed_by = {p: i for i in hosts for p, _ in covers[i]}
-        elsewhere = [(i, footprint(f.fix)) for i, s in enumerate(stops) for f in
-                     (s.taken if s.parts else s.findings) if f.fix is not None]
+        elsewhere = [(i, footprint(f.fix)) for i, s in enumerate(held) if s is not None
+                     for f in (s.taken if s.parts else s.findings) if f.fix is not None]
         more: dict[int, list[Finding]] = {}
         added: dict[int, set[tuple[int, int]]] = {}
+        into: dict[int, int] = {}  # a host merged this round -> the host it joined
+
+        def root(i: int, into: dict[int, int] = into) -> int:
+            while i in into:
+                i = into[i]
+            return i
+
         for f in found:
             if f.id in seen or f.fingerprint in seen:
                 continue
@@ -443,31 +479,103 @@ def fold(stops: Sequence[Stop], find: Callable[[tuple], Sequence[Finding]],
                 continue
             people = {p for p, _ in fp} | set(f.people) | (
                 set() if f.person_id is None else {f.person_id})
-            owners = {changed_by[p] for p in people if p in changed_by}
+            owners = {root(changed_by[p]) for p in people if p in changed_by}
+            both = sorted(owners)
+            if len(both) == 2 and not any(_is_group(held[i]) for i in both):  # type: ignore[arg-type]
+                i, j = both
+                linked = {p for p, _ in covers[i] | covers[j] | fp}
+                if len(linked) > CARD_PEOPLE or conflict(
+                        added.get(i, set()) | added.get(j, set()), fp) or any(
+                        root(k) not in both and o is not None and conflict(o, fp)
+                        for k, o in elsewhere):
+                    continue
+                into[j] = i
+                covers[i] |= covers.pop(j)
+                added[i] = added.get(i, set()) | added.pop(j, set())
+                more[i] = more.get(i, []) + more.pop(j, [])
+                owners = {i}
             if len(owners) != 1:
                 continue
             i = owners.pop()
-            if not _is_group(stops[i]) and len(
+            if not _is_group(held[i]) and len(  # type: ignore[arg-type]
                     {p for p, _ in covers[i]} | {p for p, _ in fp}) > CARD_PEOPLE:
                 continue  # a frame's group holds many people by design
             # It may change again a joint the card's fixes change (it was found on the labels
             # they leave and comes after them in the card's one group), not one another
             # fix of this round or another stop changes.
             if conflict(added.get(i, set()), fp) or any(
-                    j != i and o is not None and conflict(o, fp) for j, o in elsewhere):
+                    root(j) != i and o is not None and conflict(o, fp) for j, o in elsewhere):
                 continue
             added.setdefault(i, set()).update(fp)
             more.setdefault(i, []).append(f)
-        if not more:
+        if not more and not into:
             break
+        for h in sorted({root(j) for j in into}):
+            js = sorted(j for j in into if root(j) == h)
+            held[h] = _merged(held[h], [held[j] for j in js],  # type: ignore[arg-type,misc]
+                              tuple(found_keys[j] for j in js))
+            for j in js:
+                held[j] = None
         for i, extra in more.items():
-            stops[i] = _folded(stops[i], tuple(extra), r)
-    return stops
+            held[i] = _folded(held[i], tuple(extra), r)  # type: ignore[arg-type]
+    return held if places else [s for s in held if s is not None]  # type: ignore[return-value]
+
+
+def folded_ahead(stops: Sequence[Stop], folds: dict[str, Stop | None]) -> list[Stop]:
+    """A frame's stops as found, with the cards :func:`fold` made of them ahead (``folds``:
+    the key of a stop as found -> its card, None where it was merged into another card). A
+    card that merged stops is used only when every stop it took in is still found as it
+    was (a stop whose key changed meanwhile, e.g. findings over time read again, is shown
+    as found, and so is the card's first stop), and a stop merged away is dropped only
+    when that card is used: every finding stays on exactly one stop.
+
+    Examples
+    --------
+    >>> a, b, c = (Stop(1, k, 3, (), k) for k in "abc")
+    >>> ab = Stop(1, "a+b", 3, (), "ab", merged=("b",))
+    >>> [s.key for s in folded_ahead([a, b, c], {"a": ab, "b": None})]
+    ['a+b', 'c']
+    >>> [s.key for s in folded_ahead([a, c], {"a": ab, "b": None})]   # b is not found now
+    ['a', 'c']
+    """
+    keys = {s.key for s in stops}
+    cards = {s.key: folds.get(s.key, s) for s in stops}
+    for key, card in cards.items():
+        if card is not None and card.merged and not set(card.merged) <= keys:
+            cards[key] = None  # shown as found, below
+    taken = {k for card in cards.values() if card is not None for k in card.merged}
+    out = []
+    for s in stops:
+        if s.key in taken:
+            continue
+        card = cards[s.key]
+        out.append(s if card is None else card)
+    return out
+
+
+def _merged(s: Stop, others: Sequence[Stop], keys: tuple[str, ...]) -> Stop:
+    """A host of :func:`fold` with other hosts of its frame merged into it (``keys``: theirs
+    as found): their parts follow its own, each keeping its round, and their notes too."""
+    stops = (s, *others)
+    parts = tuple(p for x in stops for p in (x.parts or ((x.finding,) if x.finding else ())))
+    rounds = tuple(r for x in stops for r in (x.rounds or (0,) * len(
+        x.parts or ((x.finding,) if x.finding else ()))))
+
+    def tail(x: Stop) -> str:
+        own = x.parts or ((x.finding,) if x.finding else ())
+        head = card_text(own) if len(own) > 1 else (own[0].text if own else "")
+        return x.text[len(head):] if x.text.startswith(head) else ""
+
+    return replace(s, key="+".join(x.key for x in stops), text=card_text(parts) + "".join(
+        tail(x) for x in stops), finding=parts[0], group=tuple(
+        f for x in stops for f in x.findings), parts=parts, rounds=rounds,
+        left_out=frozenset().union(*(x.left_out for x in stops)), focus=None,
+        merged=s.merged + tuple(y for x, k in zip(others, keys) for y in (k, *x.merged)))
 
 
 def _is_group(s: Stop) -> bool:
     """A frame's stop of one kind's fixes (:data:`COVERED_KEY`, :data:`GAP_KEY`)."""
-    return s.key.split("+", 1)[0] in (COVERED_KEY, GAP_KEY)
+    return s.key.split("+", 1)[0] in (COVERED_KEY, GAP_KEY, JOINTS_KEY)
 
 
 def _folded(s: Stop, more: tuple[Finding, ...], r: int) -> Stop:
@@ -543,7 +651,11 @@ def _demo_parts(n: int) -> tuple[Finding, ...]:
 def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
     """A frame's findings as stops, worst first: a person's fixes that agree are one card
     (:func:`person_cards`); two or more of the :data:`GROUPED_KINDS` with fixes left off
-    the cards become one stop (:data:`COVERED_KEY`) where the first of them was.
+    the cards become one stop (:data:`COVERED_KEY`), and two or more of the
+    :data:`GAP_KINDS` another (:data:`GAP_KEY`), after the people's stops: when a card
+    taken before touched the group's people, the group is read again after it with what
+    it exposed (:meth:`app.session.Session.accept`), rather than taken first and followed
+    by a second group at the frame's end.
 
     Examples
     --------
@@ -554,14 +666,20 @@ def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
     ...                    "t", (), 1.0, 0.9, fix, (person,), i)
     >>> [s.key for s in group_findings(1, [f("a", "split", 1), f("b", "hidden", 2),
     ...                                    f("c", "duplicate", 3), f("d", "invented", 4)])]
-    ['a', 'G:covered', 'c']
+    ['a', 'c', 'G:covered']
     """
     stops, found = person_cards(frame_id, found)
     heads = {id(c.parts[0]) for c in stops}
-    for key, kinds, say in ((COVERED_KEY, GROUPED_KINDS, covered_text),
-                            (GAP_KEY, GAP_KINDS, gap_text)):
-        members = tuple(f for f in found if f.kind in kinds and f.fix is not None
-                        and id(f) not in heads)
+    kinds_of = {COVERED_KEY: GROUPED_KINDS, GAP_KEY: GAP_KINDS}
+    loose = {key: tuple(f for f in found if f.kind in kinds and f.fix is not None
+                        and id(f) not in heads) for key, kinds in kinds_of.items()}
+    both = _joints_group(loose[COVERED_KEY], loose[GAP_KEY])
+    order = {id(f): n for n, f in enumerate(found)}
+    for key, members, say in (
+            ((JOINTS_KEY, both, joints_text),) if both else
+            ((COVERED_KEY, loose[COVERED_KEY], covered_text),
+             (GAP_KEY, loose[GAP_KEY], gap_text))):
+        members = tuple(sorted(members, key=lambda f: order[id(f)]))
         if len(members) >= 2:
             found = [f for f in found if f not in members or f is members[0]]
             stops.append(Stop(frame_id, key, None, (), say(members), None, members,
@@ -585,7 +703,47 @@ def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
     for f in found:
         grouped = next((g for g in stops if g.findings[0] is f), None)
         out.append(grouped or Stop(f.frame_id, f.id, f.person_id, f.joints, f.text, f))
+    # The frame's groups come after its people's cards (see above).
+    out = [s for s in out if not _is_group(s)] + [s for s in out if _is_group(s)]
     return _frame_notes(_with_notes(out))
+
+
+def _joints_group(covered: Sequence[Finding], gaps: Sequence[Finding]) -> tuple[Finding, ...]:
+    """A frame's hidden/invented fixes and its joint-gap fixes left off the cards as one
+    group, when it has both and no fix of one conflicts with a fix of the other
+    (:func:`conflict`: a joint the frames around place that a nearer body hides, say);
+    else none.
+
+    Examples
+    --------
+    >>> from app.model.edits import MoveJoint, SetVisibility
+    >>> def f(i, kind, person, edit):
+    ...     return Finding(i, 1, kind, person, person, (edit.joint,), ("x",), "t", (), 1.0,
+    ...                    0.9, Fix("f", (edit,), FixPreview()), (person,), i)
+    >>> hid = f("h", "hidden", 2, SetVisibility(1, 2, 13, 1))
+    >>> gap = f("g", "joint-gap", 5, MoveJoint(1, 5, 9, 3.0, 4.0))
+    >>> [m.id for m in _joints_group([hid], [gap])]
+    ['h', 'g']
+    >>> _joints_group([hid], [f("x", "joint-gap", 2, MoveJoint(1, 2, 13, 3.0, 4.0))])
+    ()
+    """
+    if not covered or not gaps:
+        return ()
+    prints = [footprint(f.fix) for f in (*covered, *gaps) if f.fix is not None]
+    if any(p is None for p in prints):
+        return ()
+    one = set().union(*prints[:len(covered)])
+    other = set().union(*prints[len(covered):])
+    return () if conflict(one, other) else (*covered, *gaps)
+
+
+def joints_text(members: Sequence[Finding]) -> str:
+    """The sentence of a frame's one stop of joints mended one by one: those a nearer
+    person hides (:func:`covered_text`), then those the frames around mend
+    (:func:`gap_text`)."""
+    covered = [m for m in members if m.kind in GROUPED_KINDS]
+    gaps = [m for m in members if m.kind in GAP_KINDS]
+    return f"{covered_text(covered)}; and {gap_text(gaps)}"
 
 
 def covered_text(members: Sequence[Finding]) -> str:

@@ -53,17 +53,45 @@ def test_a_fix_exposed_by_the_first_joins_its_card_round_by_round():
     assert out[1] is stops[1], "another person's stop, found before, stays as it was"
 
 
-def test_a_new_fix_about_another_hosts_person_or_too_unsure_or_conflicting_stays_out():
+def test_a_new_fix_too_unsure_or_conflicting_stays_out():
     a = _finding(1, 3, "a", 9, 1)
     d = _finding(1, 4, "d", 9, 1)
-    shared = _finding(1, 3, "s", 7, 1, people=(3, 4))  # reads person 4, whom d changes
     unsure = _finding(1, 3, "u", 6, 1, sure=0.01)
     e = _finding(1, 3, "e", 9, 0)       # a stop of its own (it moves a's wrist another way)
     clash = _finding(1, 3, "x", 9, 1)   # the wrist stop e changes too
     e_stop = Stop(1, "e", 3, (9,), "te", e)
     stops = [Stop(1, "a", 3, (9,), "ta", a), Stop(1, "d", 4, (9,), "td", d), e_stop]
-    out = fold(stops, _exposes([a.fix.edits[0]], [shared, unsure, clash]))
+    out = fold(stops, _exposes([a.fix.edits[0]], [unsure, clash]))
     assert out == stops
+
+
+def test_a_fix_two_cards_expose_together_merges_them_into_one():
+    """A fix that reads both hosts' people (person 3's fix leaves a joint of person 4's
+    inside person 3's body) follows from neither alone: the two cards become one, the
+    later's parts after the earlier's, then the new fix; one key instead of three stops."""
+    a = _finding(1, 3, "a", 9, 1)
+    d = _finding(1, 4, "d", 9, 1)
+    shared = _finding(1, 3, "s", 7, 1, people=(3, 4))  # reads person 4, whom d changes
+    e_stop = Stop(1, "e", 3, (9,), "te", _finding(1, 3, "e", 9, 0))
+    stops = [Stop(1, "a", 3, (9,), "ta", a), Stop(1, "d", 4, (9,), "td", d), e_stop]
+    out = fold(stops, _exposes([a.fix.edits[0]], [shared]), places=True)
+    card = out[0]
+    assert out[1:] == [None, e_stop], "d is on the card now; e (a conflict) stays apart"
+    assert [p.id for p in card.parts] == ["a", "d", "s"] and card.rounds == (0, 0, 1)
+    assert card.merged == ("d",) and card.key == "a+d+s"
+    assert [f.id for f in card.findings] == ["a", "d", "s"], "every finding stays on a card"
+    trimmed = card.refocus(2).leave_out()  # leave out d: s was found on the labels d leaves
+    assert [f.id for f in trimmed.taken] == ["a"]
+
+
+def test_two_cards_stay_apart_when_together_they_would_link_too_many_people():
+    """CARD_PEOPLE (4) people at most on a card, counted by whom the fixes change."""
+    one = tuple(_finding(1, p, f"h{p}", 9, 1) for p in (3, 5, 6))
+    two = tuple(_finding(1, p, f"h{p}", 9, 1) for p in (4, 7))
+    stops = [Stop(1, "c1", 3, (9,), "t", one[0], one, one),
+             Stop(1, "c2", 4, (9,), "t", two[0], two, two)]
+    shared = _finding(1, 3, "s", 7, 1, people=(3, 4))
+    assert fold(stops, _exposes([one[0].fix.edits[0]], [shared])) == stops
 
 
 def test_a_new_fix_may_change_again_a_joint_the_card_changed():

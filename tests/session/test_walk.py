@@ -84,3 +84,33 @@ def test_a_frames_notes_without_a_fix_cost_at_most_one_key_and_none_is_dropped()
     assert [f.id for f in by["c"].findings] == ["c", "g"] and by["c"].person_id is None
     without = group_findings(1, [found[1], found[4]])
     assert len(without) == 1 and without[0].fix is None, "weak notes alone share one card"
+
+
+def _joint_fix(i, kind, person, edit):
+    """An invented finding whose fix is one edit of one joint (synthetic)."""
+    from app.analysis.triage.findings import Finding, Fix, FixPreview
+
+    return Finding(i, 1, kind, person, person, (edit.joint,), ("x",), f"t{i}", (), 1.0, 0.9,
+                   Fix(f"fix {i}", (edit,), FixPreview()), (person,), i)
+
+
+def test_a_frames_hidden_and_gap_fixes_are_one_stop_after_the_peoples_cards():
+    """Our own rule (app/session/walk.py, group_findings): the joints a nearer body hides and
+    those the frames around place, of people without a card, are one stop for the frame
+    (one key, one undo step), after the people's stops; a fix of one that conflicts with a
+    fix of the other keeps the two groups apart. Synthetic findings."""
+    from app.model.edits import MoveJoint, SetVisibility
+    from app.session.walk import COVERED_KEY, GAP_KEY, JOINTS_KEY, group_findings
+
+    hidden = [_joint_fix("h1", "hidden", 2, SetVisibility(1, 2, 13, 1)),
+              _joint_fix("h2", "invented", 3, SetVisibility(1, 3, 14, 0))]
+    gaps = [_joint_fix("g1", "joint-gap", 5, MoveJoint(1, 5, 9, 3.0, 4.0)),
+            _joint_fix("g2", "jumping-joint", 6, MoveJoint(1, 6, 10, 5.0, 6.0))]
+    owner = _joint_fix("w", "wrong-owner", 7, SetVisibility(1, 7, 9, 0))
+    stops = group_findings(1, [hidden[0], gaps[0], owner, hidden[1], gaps[1]])
+    assert [s.key for s in stops] == ["w", JOINTS_KEY]
+    assert [f.id for f in stops[1].parts] == ["h1", "g1", "h2", "g2"]
+    assert "nearer people hide" in stops[1].text and "the frames around" in stops[1].text
+    clash = _joint_fix("g3", "joint-gap", 2, MoveJoint(1, 2, 13, 3.0, 4.0))  # h1's knee
+    apart = group_findings(1, [*hidden, gaps[0], clash])
+    assert [s.key for s in apart] == [COVERED_KEY, GAP_KEY]
