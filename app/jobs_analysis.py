@@ -23,12 +23,12 @@ from typing import Any
 
 import numpy as np
 
-from app.analysis.association import group_people
 from app.analysis.targets import confidence_maps, loss_mask, part_affinity_fields
 from app.errors import BadInput, NotFound
 from app.fileio import read_json
 from app.formats.maps import NetworkMaps, match_map_files, read_maps, read_npz
 from app.jobs import EXPORT_STATES, choose_frames
+from app.map_runs import Found, found_person, group_run
 from app.model.labels import AUTO, Frame, FrameLabels, FrameState, Person
 from app.model.sequences import NOT_SEQUENCES, parse_not_sequences, sequences
 from app.model.skeleton import Skeleton
@@ -96,23 +96,27 @@ def import_maps(project: Project, folder: str | Path,
     # A frame that keeps its people is not grouped; in order, they are the next frame's
     # frame before (read only then: alone, each frame is a run of its own).
     kept = project.people_of_frames(has_people & files.keys()) if in_order else {}
-    items = [(project.skeleton,
-              [(str(files[f]), frames[f],
+    # Plain numbers and arrays, so that the workers need not import the model (app.map_runs).
+    k, limbs = project.skeleton.num_joints, project.skeleton.limb_array
+    items = [(k, limbs,
+              [(str(files[f]), frames[f].width, frames[f].height,
                 None if f not in has_people else [p.keypoints for p in kept.get(f, [])])
                for f in run])
              for run in runs]
-    results: dict[int, tuple[int, list[Person]]] = {}
-    for run, found in zip(runs, ordered_map(_group_maps, items, workers, progress,
+    results: dict[int, tuple[int, list[Found]]] = {}
+    for run, found in zip(runs, ordered_map(group_run, items, workers, progress,
                                             "reading maps"), strict=True):
         results.update(zip(run, found, strict=True))
     progress.step(len(runs), len(runs), "reading maps")
-    grouped = [(frame_id, person) for frame_id, _ in order for person in results[frame_id][1]]
+    grouped = [(frame_id, found) for frame_id, _ in order for found in results[frame_id][1]]
+    sources = (AUTO,) * k
     with project.bulk("ImportMaps", f"import maps from {Path(folder).name}",
                       f"folder:{Path(folder).name}") as b:
         for frame_id, path in files.items():
             b.set_maps(frame_id, path, results[frame_id][0])
         first = b.allocate_person_ids(len(grouped))
-        b.add_people((f, _with_id(p, first + n)) for n, (f, p) in enumerate(grouped))
+        b.add_people((f, Person(first + n, kp, scores, sources, score))
+                     for n, (f, (kp, scores, score)) in enumerate(grouped))
         b.count("frames with maps", len(files))
         b.count("frames grouped", len({f for f, _ in grouped}))
     return b.stats
@@ -146,39 +150,11 @@ def _grouping_runs(sequences: Sequence[Sequence[int]], files: dict[int, Any],
     return runs
 
 
-def _group_maps(item: tuple[Skeleton, list[tuple[str, Frame, list[np.ndarray] | None]]]
-               ) -> list[tuple[int, list[Person]]]:
-    """Read the maps of a run of frames (see :func:`import_maps`) and group, in order, those
-    without people (``None``), each with the frame before's people as ``previous``: per frame
-    the stride and the people without ids; run in a worker process."""
-    skeleton, run = item
-    out: list[tuple[int, list[Person]]] = []
-    before: list[np.ndarray] | None = None
-    for path, frame, people in run:
-        maps = read_maps(path, skeleton, (frame.width, frame.height))
-        if people is not None:
-            out.append((maps.stride, []))
-            before = people
-            continue
-        found = group_people(maps.confidence_maps, maps.pafs, skeleton.limb_array,
-                             stride=maps.stride, previous=before)
-        out.append((maps.stride, [_auto_person(f, skeleton.num_joints) for f in found]))
-        before = found
-    return out
-
-
 def _auto_person(found: np.ndarray, k: int) -> Person:
-    kp = np.full((k, 3), np.nan)
-    on = found[:, 2] > 0
-    kp[:, 2] = 0
-    kp[on, :2] = found[on, :2]
-    kp[on, 2] = 2
-    scores = np.where(on, found[:, 2], np.nan)
-    return Person(0, kp, scores, (AUTO,) * k, float(found[on, 2].mean()) if on.any() else 0.0)
-
-
-def _with_id(p: Person, pid: int) -> Person:
-    return Person(pid, p.keypoints, p.scores, p.sources, p.score, p.extra)
+    """A person grouped from maps (``found``: ``(K, 3)`` rows of ``x, y, score``), without an
+    id, its joints all :data:`~app.model.labels.AUTO`."""
+    kp, scores, score = found_person(found, k)
+    return Person(0, kp, scores, (AUTO,) * k, score)
 
 
 def load_maps(project: Project, frame: Frame) -> NetworkMaps | None:

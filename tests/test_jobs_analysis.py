@@ -248,7 +248,7 @@ def test_import_maps_groups_a_sequence_in_runs_with_the_frame_before(tmp_path, i
     runs of GROUPING_RUN frames whose first has none; once the folder is marked not a
     sequence, or by default (FRAME_BEFORE off), no frame has a frame before. (Our own rule;
     group_people's prior is tested in tests/analysis/test_association.py.)"""
-    from app import jobs_analysis
+    from app import jobs_analysis, map_runs
     from app.jobs_analysis import import_maps
     from app.jobs_tracks import mark_not_sequence
     from app.model import NewPerson
@@ -261,8 +261,8 @@ def test_import_maps_groups_a_sequence_in_runs_with_the_frame_before(tmp_path, i
         calls.append((previous, found))
         return found
 
-    real = jobs_analysis.group_people
-    monkeypatch.setattr(jobs_analysis, "group_people", recording)
+    real = map_runs.group_people  # what the workers (here, this process) call
+    monkeypatch.setattr(map_runs, "group_people", recording)
     monkeypatch.setattr(jobs_analysis, "GROUPING_RUN", 4)
     kept = np.array([(10.0 + k, 20.0 + k, 2) for k in range(17)])
     with new_project(tmp_path / "p", images=image_dir, author="ana") as p:

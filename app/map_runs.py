@@ -1,0 +1,72 @@
+"""The work ``import-maps`` hands to its workers: read runs of frames' network maps and group
+their people (:func:`app.analysis.association.group_people`).
+
+Imports numpy, the grouping and the maps reader and nothing else of the app (no pydantic, no
+model, no store, no OpenCV): a command that imports maps starts its fork server with this
+module alone (:data:`app.parallel.ONLY_FOR`), which takes about a third of the CPU of
+importing :mod:`app.jobs_analysis` (0.15 against 0.5 s, 3 December 2026), so its worker is
+grouping frames while the command is still importing the store. Items and results are
+therefore plain numbers and arrays: :func:`app.jobs_analysis.import_maps` builds them from
+the project's frames and turns the results into people.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from app.analysis.association import group_people
+from app.formats.maps import read_map_arrays
+
+__all__ = ["Found", "Run", "found_person", "group_run"]
+
+#: A run of frames to group in order: the skeleton's number of joints, its limbs as
+#: ``(L, 2)`` joint indices, then per frame the maps file, the image's width and height, and
+#: the frame's people's ``(K, 3)`` keypoints when it keeps them (None: group it).
+Run = tuple[int, np.ndarray, list[tuple[str, int, int, "list[np.ndarray] | None"]]]
+
+#: One grouped person: ``(K, 3)`` keypoints (``x, y, v``: v 2 where found, 0 elsewhere, x
+#: and y NaN there), ``(K,)`` per-joint scores (NaN where not found) and the person's score
+#: (the mean over found joints, 0 when none).
+Found = tuple[np.ndarray, np.ndarray, float]
+
+
+def group_run(item: Run) -> list[tuple[int, list[Found]]]:
+    """Read the maps of a run of frames and group, in order, those without people, each with
+    the frame before's people as ``previous``: per frame the stride and the people found
+    (none for a frame that keeps its people); run in a worker process.
+
+    Examples
+    --------
+    >>> import os, tempfile
+    >>> path = os.path.join(tempfile.mkdtemp(), "f.npz")
+    >>> np.savez(path, stride=np.array(8), confidence_maps=np.zeros((2, 3, 4), np.float32),
+    ...          pafs=np.zeros((1, 2, 3, 4), np.float32))
+    >>> group_run((2, np.array([[0, 1]]), [(path, 32, 24, None)]))
+    [(8, [])]
+    """
+    joints, limbs, run = item
+    out: list[tuple[int, list[Found]]] = []
+    before: list[np.ndarray] | None = None
+    for path, width, height, people in run:
+        maps = read_map_arrays(path, joints, len(limbs), (width, height))
+        if people is not None:
+            out.append((maps.stride, []))
+            before = people
+            continue
+        found = group_people(maps.confidence_maps, maps.pafs, limbs, stride=maps.stride,
+                             previous=before)
+        out.append((maps.stride, [found_person(f, joints) for f in found]))
+        before = found
+    return out
+
+
+def found_person(found: np.ndarray, k: int) -> Found:
+    """A grouped person's ``(K, 3)`` rows of ``x, y, score`` (score 0: not found) as
+    keypoints, scores and the person's score."""
+    kp = np.full((k, 3), np.nan)
+    on = found[:, 2] > 0
+    kp[:, 2] = 0
+    kp[on, :2] = found[on, :2]
+    kp[on, 2] = 2
+    scores = np.where(on, found[:, 2], np.nan)
+    return kp, scores, float(found[on, 2].mean()) if on.any() else 0.0
