@@ -97,18 +97,19 @@ def import_maps(project: Project, folder: str | Path,
     # frame before (read only then: alone, each frame is a run of its own).
     kept = project.people_of_frames(has_people & files.keys()) if in_order else {}
     # Plain numbers and arrays, so that the workers need not import the model (app.map_runs).
-    k, limbs = project.skeleton.num_joints, project.skeleton.limb_array
+    k, limbs = project.skeleton.num_joints, [(int(a), int(b)) for a, b in project.skeleton.limbs]
     items = [(k, limbs,
               [(str(files[f]), frames[f].width, frames[f].height,
                 None if f not in has_people else [p.keypoints for p in kept.get(f, [])])
                for f in run])
              for run in runs]
-    results: dict[int, tuple[int, list[Found]]] = {}
+    results: dict[int, tuple[int, Found | None]] = {}
     for run, found in zip(runs, ordered_map(group_run, items, workers, progress,
                                             "reading maps"), strict=True):
         results.update(zip(run, found, strict=True))
     progress.step(len(runs), len(runs), "reading maps")
-    grouped = [(frame_id, found) for frame_id, _ in order for found in results[frame_id][1]]
+    grouped = [(frame_id, found) for frame_id, _ in order
+               for found in _people_found(results[frame_id][1])]
     sources = (AUTO,) * k
     with project.bulk("ImportMaps", f"import maps from {Path(folder).name}",
                       f"folder:{Path(folder).name}") as b:
@@ -148,6 +149,12 @@ def _grouping_runs(sequences: Sequence[Sequence[int]], files: dict[int, Any],
             runs.append(run)
     runs.extend([f] for f in sorted(files) if f not in placed)
     return runs
+
+
+def _people_found(found: Found | None) -> Iterator[tuple[np.ndarray, np.ndarray, float]]:
+    """Each person of a frame's :data:`~app.map_runs.Found`: keypoints, scores, score."""
+    if found is not None:
+        yield from zip(found[0], found[1], found[2], strict=True)
 
 
 def _auto_person(found: np.ndarray, k: int) -> Person:
