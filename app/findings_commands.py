@@ -167,6 +167,9 @@ def _frame_ids(project: Any, spec: str | None) -> list[int] | None:
 
 
 def _unwind(args: argparse.Namespace, redo: bool) -> int:
+    from app.model.naming import Names, ledger_names
+    from app.wording import ledger_text
+
     steps = int(args.steps)
     word = "redid" if redo else "undid"
     done = 0
@@ -177,8 +180,11 @@ def _unwind(args: argparse.Namespace, redo: bool) -> int:
                 break
             done += 1
             entry = next(e for e in project.history(limit=50) if e.group_id == group)
-            summary = entry.summary.partition(": ")[2] or entry.summary
+            summary = ledger_text(entry.summary.partition(": ")[2] or entry.summary)
             frame = "" if entry.frame_id is None else f" (frame {entry.frame_id})"
+            if entry.frame_id is not None:  # people by tag and stable number, joints by name
+                ids = [p.id for p in project.people(entry.frame_id)]
+                summary = ledger_names(summary, Names.of_frame(project.skeleton, ids))
             print(f"{word}{frame}: {shown(summary)}")
     if done < steps:
         print(f"nothing more to {'redo' if redo else 'undo'}"

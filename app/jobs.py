@@ -432,7 +432,7 @@ def mend_numbers(project: Project) -> list[str]:
             for path in found:
                 if path[0] in ("bbox", "area"):
                     extra.pop(path[0], None)
-                notes.append(f"frame {frame_id}: person {p.id}: {_field(path)}: "
+                notes.append(f"frame {frame_id}: person #{p.id}: {_field(path)}: "
                              + ("dropped" if path[0] in ("bbox", "area") else "null"))
             if found:
                 edits.setdefault(frame_id, []).append(Change(

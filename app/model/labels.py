@@ -260,7 +260,7 @@ class FrameLabels:
         try:
             return self.people[person_id]
         except KeyError:
-            raise EditRefused(f"frame {self.frame_id} has no person {person_id}") from None
+            raise EditRefused(f"frame {self.frame_id} has no person #{person_id}") from None
 
     def same_as(self, other: FrameLabels) -> bool:
         return (

@@ -398,7 +398,7 @@ class ReviewPerson(NewPerson):
         if self.person_id is None:
             raise EditRefused("a new person needs an id (the store assigns one)")
         if self.person_id in labels.people:
-            raise EditRefused(f"person {self.person_id} already exists")
+            raise EditRefused(f"person #{self.person_id} already exists")
         if self.value is None:
             raise EditRefused("no person to add")
         person = Person.from_value(self.person_id, self.value)
@@ -570,7 +570,7 @@ def _apply_plan(project: Project, packet: Packet, plan: FramePlan,
         pid = ids.get(note.person_id, note.person_id) if note.person_id is not None else None
         text = note.text
         if pid is not None and pid not in present:
-            text, pid = f"(about person {note.person_id}) {text}", None
+            text, pid = f"(about person #{note.person_id}) {text}", None
         project.apply(ReviewNote(fid, text, person_id=pid, note_author=note.author,
                                  note_time=note.time), author=note.author or reviewer)
     if plan.state is not None:

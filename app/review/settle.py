@@ -26,6 +26,7 @@ import numpy as np
 from app.errors import EditRefused
 from app.model.edits import Change, KeepOurs, Restore, SetFrameState
 from app.model.labels import FrameLabels, FrameState, Person
+from app.model.naming import Names
 from app.model.records import Alternative
 from app.model.targets import JointTarget, PersonTarget
 from app.review.merge import same_joints
@@ -207,14 +208,16 @@ def take_theirs_changes(labels: FrameLabels, alts: Sequence[Alternative],
     """
     if joint is not None and person_id is None:
         raise EditRefused("name the person whose joint to take")
+    names = Names.of_frame(labels.skeleton, sorted(labels.people))
     chosen = [a for a in alts if person_id is None or a.person_id == person_id]
     if person_id is not None and not chosen:
-        raise EditRefused(f"frame {labels.frame_id}: person {person_id} has no reviewer's "
-                          "version to take")
+        raise EditRefused(f"frame {labels.frame_id}: {names.person(person_id, with_id=True)} "
+                          "has no reviewer's version to take")
     by_person: dict[int, Alternative] = {}
     for alt in chosen:
         if alt.person_id in by_person:
-            raise EditRefused(f"frame {labels.frame_id}: person {alt.person_id} has versions "
+            raise EditRefused(f"frame {labels.frame_id}: "
+                              f"{names.person(alt.person_id, with_id=True)} has versions "
                               "from more than one review; take one of them")
         by_person[alt.person_id] = alt
     changes: list[Change] = []
@@ -223,7 +226,8 @@ def take_theirs_changes(labels: FrameLabels, alts: Sequence[Alternative],
         theirs = alt.theirs
         if ours is None or theirs is None:
             if joint is not None:
-                raise EditRefused(f"person {pid} is deleted on one side; take the whole person")
+                raise EditRefused(f"{names.person(pid, with_id=True)} is deleted on one side; "
+                                  "take the whole person")
             if not person_differences(ours, alt, labels.skeleton.joints):
                 continue
             changes.append(Change(PersonTarget(pid), None if ours is None else ours.to_value(),
@@ -257,7 +261,7 @@ def take_theirs_edit(project: Project, frame_id: int, person_id: int | None = No
                         if person_id is None or a.person_id == person_id})
     what = ("the frame" if person_id is None else
             f"person {person_id}" if joint is None else
-            f"joint {labels.skeleton.joints[joint]} of person {person_id}")
+            f"joint {joint} of person {person_id}")  # the ledger's form: ledger_names reads it
     return TakeTheirs(frame_id, tuple(changes),
                       label=f"take {', '.join(reviewers)}'s version of {what}")
 

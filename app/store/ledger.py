@@ -40,6 +40,7 @@ from app.model.edits import (
     with_person_id,
 )
 from app.model.labels import FrameLabels, FrameState, Region
+from app.model.naming import Names, ledger_names
 from app.model.skeleton import Skeleton
 from app.model.targets import (
     DismissalTarget,
@@ -271,7 +272,7 @@ def apply_edit(tx: Tx, edit: Edit, skeleton: Skeleton, author: str, owner: str,
         for ch in changes:
             if not same_value(current_value(now, ch.target), ch.before):
                 raise refusal(tx, now.frame_id, ch.target, "your edit was not applied",
-                              "; the frame shows their change now")
+                              "; the frame shows their change now", skeleton)
     new = apply_changes(now, changes)
     if (type(edit).changes_labels and now.state is FrameState.UNTOUCHED
             and labels_changed(changes)):
@@ -356,7 +357,8 @@ def unwind(tx: Tx, source: str, dest: str, kind: str, skeleton: Skeleton, author
         restore(tx, inverse, skeleton, ctx)
     except ChangedMeanwhile as exc:
         raise refusal(tx, exc.frame_id, exc.target, f"cannot {kind} {rows[0].summary!r}"
-                      if rows else f"cannot {kind}", "; nothing was changed") from None
+                      if rows else f"cannot {kind}", "; nothing was changed",
+                      skeleton) from None
     action, summary = (rows[0].action, rows[0].summary) if rows else ("", "")
     new_group = record(tx, kind, action, f"{kind}: {summary}", inverse, ctx, reverts=group)
     tx.ledger.pop(source, pos)
@@ -378,7 +380,7 @@ def return_to(tx: Tx, seq: int, frame_id: int | None, skeleton: Skeleton, author
         restore(tx, inverse, skeleton, ctx)
     except ChangedMeanwhile as exc:
         raise refusal(tx, exc.frame_id, exc.target, f"cannot rewind to ledger entry {seq}",
-                      "; nothing was changed") from None
+                      "; nothing was changed", skeleton) from None
     group = record(tx, "edit", "ReturnTo", f"rewind to ledger entry {seq}", inverse, ctx)
     tx.ledger.push("undo_stack", group, owner)
     tx.ledger.clear("redo_stack", owner)
@@ -453,8 +455,12 @@ def record_bulk(tx: Tx, kind: str, action: str, summary: str, ctx: EditContext,
 
 
 def refusal(tx: Tx, frame_id: int | None, target: Any, what: str,
-            outcome: str) -> ChangedMeanwhile:
-    """A one-line refusal naming who changed ``target`` and when (from the ledger)."""
+            outcome: str, skeleton: Skeleton | None = None) -> ChangedMeanwhile:
+    """A one-line refusal naming who changed ``target`` and when (from the ledger).
+
+    With the ``skeleton``, people and joints are written as the annotator reads them
+    (:func:`app.model.naming.ledger_names`: the frame's tag and the stable number, joint
+    names), the tags from the frame's people as they are now."""
     name = describe_target(target)
     entry = None
     if frame_id is not None and target is not None:
@@ -467,8 +473,11 @@ def refusal(tx: Tx, frame_id: int | None, target: Any, what: str,
         who = (f"changed by {by} at {when}" if entry.kind in LABEL_KINDS
                else f"changed by {by}'s {entry.action} at {when}")
     where = f"frame {frame_id}: " if frame_id is not None else ""
-    return ChangedMeanwhile(f"{where}{what}: {name} was {who}{outcome}", frame_id=frame_id,
-                            target=target)
+    text = f"{where}{what}: {name} was {who}{outcome}"
+    if skeleton is not None and frame_id is not None:
+        ids = [p.id for p in tx.people.of_frame(frame_id, skeleton.num_joints)]
+        text = ledger_names(text, Names.of_frame(skeleton, ids))
+    return ChangedMeanwhile(text, frame_id=frame_id, target=target)
 
 
 def describe_target(target: Any) -> str:

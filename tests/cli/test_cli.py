@@ -266,7 +266,7 @@ def test_a_project_holding_infinity_exports_says_where_and_mends(tmp_path, image
                         tmp_path / "r.zip", "--images", "none", "-q")
     assert code == 0 and "field people.0.extra.area: not a finite number" in err
     code, out_text, _ = _run(capsys, "mend", proj)
-    assert code == 0 and out_text == ("mended frame 1: person 77: field area: dropped\n"
+    assert code == 0 and out_text == ("mended frame 1: person #77: field area: dropped\n"
                                       f"{proj}: mended 1 field\n")
     code, _, err = _run(capsys, "export", proj, "--out", out, "--states", "all")
     assert code == 0 and err == unchecked

@@ -166,3 +166,17 @@ def test_carry_goes_with_accept_and_not_with_dry_run(proj, capsys):
     assert "--carry go with --accept" in capsys.readouterr().err
     assert main(["findings", str(proj), "--accept", "all", "--carry", "--dry-run", "-q"]) == 2
     assert "give one of them" in capsys.readouterr().err
+
+
+def test_undo_names_people_by_tag_and_joints_by_name(proj, capsys):
+    """The ledger records ``joint 9 of person 49`` (index, stable id); what `undo` prints
+    names the joint and the person as the Canvas does (our own naming rule, README)."""
+    from app.model.edits import MoveJoint
+
+    with Project.open(proj, author="ana") as p:
+        frame = p.frames()[0].id
+        first = p.people(frame)[0].id
+        p.apply(MoveJoint(frame, first, 9, 12.0, 34.0))
+    assert main(["undo", str(proj), "-q"]) == 0
+    out = capsys.readouterr().out
+    assert f"move person 1 (#{first})'s left wrist to (12.0, 34.0)" in out, out

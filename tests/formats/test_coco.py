@@ -312,8 +312,8 @@ def test_mend_replaces_them_for_good_and_the_export_does_not_change(project, tmp
     export_coco(project, before, states=None)  # every state, untouched frames included
     notes = mend_numbers(project)
     assert sorted(notes) == sorted([
-        "frame 1: person 41: field bbox.2: dropped", "frame 1: person 41: field area: dropped",
-        "frame 1: person 41: field attributes.weight: null",
+        "frame 1: person #41: field bbox.2: dropped", "frame 1: person #41: field area: dropped",
+        "frame 1: person #41: field attributes.weight: null",
         "image 2: field taken: null", "dataset: field info.year: null"])
     assert project.frame(1).state.value == "untouched"
     caplog.clear()

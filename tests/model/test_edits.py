@@ -120,7 +120,7 @@ def test_state_and_note():
 
 
 def test_unknown_person_is_refused():
-    with pytest.raises(EditRefused, match="no person 9"):
+    with pytest.raises(EditRefused, match="no person #9"):
         DeletePerson(1, 9).apply(_frame(), CTX)
 
 
