@@ -19,25 +19,26 @@ import numpy as np
 from app.analysis.association import group_people
 from app.formats.maps import read_map_arrays
 
-__all__ = ["Found", "Run", "found_person", "group_run"]
+__all__ = ["Found", "Runs", "found_person", "group_runs"]
 
-#: A run of frames to group in order: the skeleton's number of joints, its limbs as pairs of
-#: joint indices, then per frame the maps file, the image's width and height, and the
-#: frame's people's ``(K, 3)`` keypoints when it keeps them (None: group it).
-Run = tuple[int, Sequence[tuple[int, int]],
-            list[tuple[str, int, int, "list[np.ndarray] | None"]]]
+#: Runs of frames to group, each in order: the skeleton's number of joints, its limbs as
+#: pairs of joint indices, then the runs, each a list of frames: the maps file, the image's
+#: width and height, and the frame's people's ``(K, 3)`` keypoints when it keeps them (None:
+#: group it). The first frame of each run is grouped without a frame before.
+Runs = tuple[int, Sequence[tuple[int, int]],
+             list[list[tuple[str, int, int, "list[np.ndarray] | None"]]]]
 
 #: The people grouped in one frame, stacked (three arrays cross between processes faster than
-#: two per person: unpickling a frame's people took the calling process 0.6 ms, traced at
-#: load 2): ``(P, K, 3)`` keypoints and ``(P, K)`` scores as :func:`found_person` gives
-#: them, and the P people's scores.
+#: two per person): ``(P, K, 3)`` keypoints and ``(P, K)`` scores as :func:`found_person`
+#: gives them, and the P people's scores.
 Found = tuple[np.ndarray, np.ndarray, list[float]]
 
 
-def group_run(item: Run) -> list[tuple[int, Found | None]]:
-    """Read the maps of a run of frames and group, in order, those without people, each with
-    the frame before's people as ``previous``: per frame the stride and the people found
-    (None for a frame that keeps its people); run in a worker process.
+def group_runs(item: Runs) -> list[tuple[int, Found | None]]:
+    """Read the maps of runs of frames and group, in order, those without people, each with
+    the frame before's people (in its run) as ``previous``: per frame, runs one after the
+    other, the stride and the people found (None for a frame that keeps its people); run in
+    a worker process.
 
     Examples
     --------
@@ -46,26 +47,27 @@ def group_run(item: Run) -> list[tuple[int, Found | None]]:
     >>> np.savez(path, stride=np.array(8), confidence_maps=np.zeros((2, 3, 4), np.float32),
     ...          pafs=np.zeros((1, 2, 3, 4), np.float32))
     >>> [(stride, found[0].shape) for stride, found in
-    ...  group_run((2, [(0, 1)], [(path, 32, 24, None)]))]
-    [(8, (0, 2, 3))]
+    ...  group_runs((2, [(0, 1)], [[(path, 32, 24, None)], [(path, 32, 24, None)]]))]
+    [(8, (0, 2, 3)), (8, (0, 2, 3))]
     """
-    joints, limbs, run = item
+    joints, limbs, runs = item
     out: list[tuple[int, Found | None]] = []
-    before: list[np.ndarray] | None = None
-    for path, width, height, people in run:
-        maps = read_map_arrays(path, joints, len(limbs), (width, height))
-        if people is not None:
-            out.append((maps.stride, None))
-            before = people
-            continue
-        found = group_people(maps.confidence_maps, maps.pafs, limbs, stride=maps.stride,
-                             previous=before)
-        each = [found_person(f, joints) for f in found]
-        out.append((maps.stride, (
-            np.stack([kp for kp, _, _ in each]) if each else np.zeros((0, joints, 3)),
-            np.stack([sc for _, sc, _ in each]) if each else np.zeros((0, joints)),
-            [score for _, _, score in each])))
-        before = found
+    for run in runs:
+        before: list[np.ndarray] | None = None
+        for path, width, height, people in run:
+            maps = read_map_arrays(path, joints, len(limbs), (width, height))
+            if people is not None:
+                out.append((maps.stride, None))
+                before = people
+                continue
+            found = group_people(maps.confidence_maps, maps.pafs, limbs, stride=maps.stride,
+                                 previous=before)
+            each = [found_person(f, joints) for f in found]
+            out.append((maps.stride, (
+                np.stack([kp for kp, _, _ in each]) if each else np.zeros((0, joints, 3)),
+                np.stack([sc for _, sc, _ in each]) if each else np.zeros((0, joints)),
+                [score for _, _, score in each])))
+            before = found
     return out
 
 

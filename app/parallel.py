@@ -95,7 +95,7 @@ PRELOAD_FOR = {
 #: 0.5 s for :data:`PRELOAD`, 3 December 2026). Used by :func:`head_start` only; a server
 #: started in the window's process always imports :data:`PRELOAD`.
 ONLY_FOR = {
-    "app.map_runs.group_run": ("app.parallel", "app.map_runs"),
+    "app.map_runs.group_runs": ("app.parallel", "app.map_runs"),
 }
 
 #: The least an item of a batch job takes, in seconds, for judging by their number alone,
@@ -482,9 +482,9 @@ def head_start(job: str, items: int, workers: int) -> bool:
 
     Examples
     --------
-    >>> head_start("app.map_runs.group_run", 10, 2)  # too few items to pay
+    >>> head_start("app.map_runs.group_runs", 10, 2)  # too few items to pay
     False
-    >>> head_start("app.map_runs.group_run", 10_000, 1)  # one worker: never a pool
+    >>> head_start("app.map_runs.group_runs", 10_000, 1)  # one worker: never a pool
     False
     """
     large = _pays_at_any_pace(items, workers)

@@ -97,7 +97,7 @@ def test_two_workers_store_and_write_what_one_does(tmp_path, image_dir, maps_dir
                                                                name))
         assert items == frames and workers in (1, 2)
     assert sorted({job.rpartition(".")[2] for job, _, _ in told}) == [
-        "_triage_one", "_write_targets", "group_run"]
+        "_triage_one", "_write_targets", "group_runs"]
     (people1, triage1, findings1), ranked1, manifest1, arrays1 = outputs[0]
     (people2, triage2, findings2), ranked2, manifest2, arrays2 = outputs[1]
     assert sum(len(v) for v in people1.values()) >= 12
@@ -202,10 +202,10 @@ def test_the_fork_server_preloads_every_batch_jobs_module():
     imports before forking them, so no worker imports the app again."""
     from app.inference.prelabel import _prelabel_one
     from app.jobs_analysis import _triage_one, _write_targets
-    from app.map_runs import group_run
+    from app.map_runs import group_runs
     from app.parallel import ONLY_FOR, PRELOAD, PRELOAD_FOR
 
-    for fn in (group_run, _triage_one, _write_targets, _prelabel_one):
+    for fn in (group_runs, _triage_one, _write_targets, _prelabel_one):
         assert fn.__module__ in PRELOAD
     for modules in (*PRELOAD_FOR.values(), *ONLY_FOR.values()):  # each name imports
         for name in modules:
@@ -298,8 +298,8 @@ def test_a_command_starts_the_fork_server_as_soon_as_it_knows_the_jobs_size(monk
     assert len(asked) == 1  # once per process
     # A command that runs only import-maps: its server imports that job's module alone.
     monkeypatch.setattr(parallel, "_server_since", None)
-    assert parallel.head_start("app.map_runs.group_run", many, 2) and len(asked) == 2
-    assert asked[1] == set(parallel.ONLY_FOR["app.map_runs.group_run"])
+    assert parallel.head_start("app.map_runs.group_runs", many, 2) and len(asked) == 2
+    assert asked[1] == set(parallel.ONLY_FOR["app.map_runs.group_runs"])
 
 
 def test_import_maps_workers_import_neither_the_model_nor_opencv():
