@@ -28,7 +28,9 @@ a pool pays whatever they take, as soon as the job starts, or earlier, when the 
 calls :func:`head_start`: :data:`_LEAST_ITEM_SECONDS`; such a job asks for its pool once two
 items have run, without timing them for :data:`_PROBE_SECONDS`);
 every worker is then a fork of it that imports nothing more, so a later pool is up in a
-fraction of a second.
+fraction of a second. A command, which runs one job and ends, has its server import only what
+that job's function needs where :data:`ONLY_FOR` names it (``import-maps``: numpy and the
+grouping, not the model, the store or OpenCV).
 """
 
 from __future__ import annotations
