@@ -358,7 +358,7 @@ def cmd_import_maps(args: argparse.Namespace) -> int:
     workers = check_workers(args.workers)
     keep_freed_memory()  # this process ends with the job (app/parallel.py)
     # Before the job's imports: the workers' own start runs beside them (app/parallel.py).
-    head_start("app.jobs_analysis._group_maps", _files_ending(args.dir, ".npz"), workers)
+    head_start("app.map_runs.group_runs", _files_ending(args.dir, ".npz"), workers)
     from app.jobs_analysis import import_maps
 
     with _open(args) as project:

@@ -23,12 +23,12 @@ from typing import Any
 
 import numpy as np
 
-from app.analysis.association import group_people
 from app.analysis.targets import confidence_maps, loss_mask, part_affinity_fields
 from app.errors import BadInput, NotFound
 from app.fileio import read_json
 from app.formats.maps import NetworkMaps, match_map_files, read_maps, read_npz
 from app.jobs import EXPORT_STATES, choose_frames
+from app.map_runs import Found, found_person, group_runs
 from app.model.labels import AUTO, Frame, FrameLabels, FrameState, Person
 from app.model.sequences import NOT_SEQUENCES, parse_not_sequences, sequences
 from app.model.skeleton import Skeleton
@@ -47,6 +47,10 @@ TARGETS_VERSION = 1
 #: the workers in runs of at most this many consecutive frames; the first frame of a run is
 #: grouped without one. Fixed, so the auto-labels are the same whatever the number of workers.
 GROUPING_RUN = 16
+
+#: Frames of maps at most in one item handed to the workers, in runs grouped alone or in
+#: order (see :func:`_packed`); fixed, so the results are the same whatever the workers.
+PACK_FRAMES = 4
 
 #: Whether :func:`import_maps` groups the frames of a sequence with the frame before by
 #: default (``import-maps --frame-before`` asks for it). Off: with it, the demo's labelled
@@ -96,26 +100,68 @@ def import_maps(project: Project, folder: str | Path,
     # A frame that keeps its people is not grouped; in order, they are the next frame's
     # frame before (read only then: alone, each frame is a run of its own).
     kept = project.people_of_frames(has_people & files.keys()) if in_order else {}
-    items = [(project.skeleton,
-              [(str(files[f]), frames[f],
-                None if f not in has_people else [p.keypoints for p in kept.get(f, [])])
-               for f in run])
-             for run in runs]
-    results: dict[int, tuple[int, list[Person]]] = {}
-    for run, found in zip(runs, ordered_map(_group_maps, items, workers, progress,
-                                            "reading maps"), strict=True):
-        results.update(zip(run, found, strict=True))
-    progress.step(len(runs), len(runs), "reading maps")
-    grouped = [(frame_id, person) for frame_id, _ in order for person in results[frame_id][1]]
+    # Plain numbers and arrays, so that the workers need not import the model (app.map_runs).
+    k, limbs = project.skeleton.num_joints, [(int(a), int(b)) for a, b in project.skeleton.limbs]
+    packs = _packed(runs)
+    items = [(k, limbs,
+              [[(str(files[f]), frames[f].width, frames[f].height,
+                 None if f not in has_people else [p.keypoints for p in kept.get(f, [])])
+                for f in run]
+               for run in pack])
+             for pack in packs]
+    results: dict[int, tuple[int, Found | None]] = {}
+    for pack, found in zip(packs, ordered_map(group_runs, items, workers, progress,
+                                              "reading maps"), strict=True):
+        results.update(zip((f for run in pack for f in run), found, strict=True))
+    progress.step(len(packs), len(packs), "reading maps")
+    grouped = [(frame_id, found) for frame_id, _ in order
+               for found in _people_found(results[frame_id][1])]
+    sources = (AUTO,) * k
     with project.bulk("ImportMaps", f"import maps from {Path(folder).name}",
                       f"folder:{Path(folder).name}") as b:
         for frame_id, path in files.items():
             b.set_maps(frame_id, path, results[frame_id][0])
         first = b.allocate_person_ids(len(grouped))
-        b.add_people((f, _with_id(p, first + n)) for n, (f, p) in enumerate(grouped))
+        b.add_people((f, Person(first + n, kp, scores, sources, score))
+                     for n, (f, (kp, scores, score)) in enumerate(grouped))
         b.count("frames with maps", len(files))
         b.count("frames grouped", len({f for f, _ in grouped}))
     return b.stats
+
+
+def _packed(runs: list[list[int]], frames: int | None = None,
+            alone: int = 2) -> list[list[list[int]]]:
+    """``runs`` (see :func:`_grouping_runs`) packed into the items :func:`import_maps` hands
+    the workers: consecutive runs of at most ``frames`` frames in all (default
+    :data:`PACK_FRAMES`; a longer run is an item of its own), but the first ``alone`` runs
+    and those of the last ``2 * frames`` frames each alone. Fixed, whatever the number of
+    workers, so the results are the same.
+
+    A frame of maps takes about 11-12 ms of CPU on a quiet machine, and each item crossing to
+    a worker and back cost the calling process about 0.6 ms of its threads' time besides
+    (traced at load 2-3, 3 December 2026): four frames an item cost a quarter of that. The
+    first items stay single, since :func:`app.parallel.ordered_map` asks for the pool once
+    two have run, and so do the last ones, so that the process that finishes first waits at
+    most one frame for the other.
+
+    >>> _packed([[1], [2], [3], [4], [5], [6], [7], [8], [9], [10, 11, 12], [13]], 2)
+    [[[1]], [[2]], [[3], [4]], [[5], [6]], [[7], [8]], [[9]], [[10, 11, 12]], [[13]]]
+    """
+    frames = PACK_FRAMES if frames is None else frames
+    total = sum(len(r) for r in runs)
+    packs: list[list[list[int]]] = []
+    size = 0
+    seen = 0
+    for n, run in enumerate(runs):
+        single = n < alone or seen + len(run) > total - 2 * frames
+        seen += len(run)
+        if single or not packs or size + len(run) > frames:
+            packs.append([run])
+            size = frames if single else len(run)  # nothing joins a run kept alone
+        else:
+            packs[-1].append(run)
+            size += len(run)
+    return packs
 
 
 def _grouping_runs(sequences: Sequence[Sequence[int]], files: dict[int, Any],
@@ -146,39 +192,17 @@ def _grouping_runs(sequences: Sequence[Sequence[int]], files: dict[int, Any],
     return runs
 
 
-def _group_maps(item: tuple[Skeleton, list[tuple[str, Frame, list[np.ndarray] | None]]]
-               ) -> list[tuple[int, list[Person]]]:
-    """Read the maps of a run of frames (see :func:`import_maps`) and group, in order, those
-    without people (``None``), each with the frame before's people as ``previous``: per frame
-    the stride and the people without ids; run in a worker process."""
-    skeleton, run = item
-    out: list[tuple[int, list[Person]]] = []
-    before: list[np.ndarray] | None = None
-    for path, frame, people in run:
-        maps = read_maps(path, skeleton, (frame.width, frame.height))
-        if people is not None:
-            out.append((maps.stride, []))
-            before = people
-            continue
-        found = group_people(maps.confidence_maps, maps.pafs, skeleton.limb_array,
-                             stride=maps.stride, previous=before)
-        out.append((maps.stride, [_auto_person(f, skeleton.num_joints) for f in found]))
-        before = found
-    return out
+def _people_found(found: Found | None) -> Iterator[tuple[np.ndarray, np.ndarray, float]]:
+    """Each person of a frame's :data:`~app.map_runs.Found`: keypoints, scores, score."""
+    if found is not None:
+        yield from zip(found[0], found[1], found[2], strict=True)
 
 
 def _auto_person(found: np.ndarray, k: int) -> Person:
-    kp = np.full((k, 3), np.nan)
-    on = found[:, 2] > 0
-    kp[:, 2] = 0
-    kp[on, :2] = found[on, :2]
-    kp[on, 2] = 2
-    scores = np.where(on, found[:, 2], np.nan)
-    return Person(0, kp, scores, (AUTO,) * k, float(found[on, 2].mean()) if on.any() else 0.0)
-
-
-def _with_id(p: Person, pid: int) -> Person:
-    return Person(pid, p.keypoints, p.scores, p.sources, p.score, p.extra)
+    """A person grouped from maps (``found``: ``(K, 3)`` rows of ``x, y, score``), without an
+    id, its joints all :data:`~app.model.labels.AUTO`."""
+    kp, scores, score = found_person(found, k)
+    return Person(0, kp, scores, (AUTO,) * k, score)
 
 
 def load_maps(project: Project, frame: Frame) -> NetworkMaps | None:

@@ -248,7 +248,7 @@ def test_import_maps_groups_a_sequence_in_runs_with_the_frame_before(tmp_path, i
     runs of GROUPING_RUN frames whose first has none; once the folder is marked not a
     sequence, or by default (FRAME_BEFORE off), no frame has a frame before. (Our own rule;
     group_people's prior is tested in tests/analysis/test_association.py.)"""
-    from app import jobs_analysis
+    from app import jobs_analysis, map_runs
     from app.jobs_analysis import import_maps
     from app.jobs_tracks import mark_not_sequence
     from app.model import NewPerson
@@ -261,8 +261,8 @@ def test_import_maps_groups_a_sequence_in_runs_with_the_frame_before(tmp_path, i
         calls.append((previous, found))
         return found
 
-    real = jobs_analysis.group_people
-    monkeypatch.setattr(jobs_analysis, "group_people", recording)
+    real = map_runs.group_people  # what the workers (here, this process) call
+    monkeypatch.setattr(map_runs, "group_people", recording)
     monkeypatch.setattr(jobs_analysis, "GROUPING_RUN", 4)
     kept = np.array([(10.0 + k, 20.0 + k, 2) for k in range(17)])
     with new_project(tmp_path / "p", images=image_dir, author="ana") as p:
@@ -283,3 +283,26 @@ def test_import_maps_groups_a_sequence_in_runs_with_the_frame_before(tmp_path, i
     with new_project(tmp_path / "r", images=image_dir, author="ana") as p:
         import_maps(p, folder)  # the default (FRAME_BEFORE off): each frame alone
     assert len(calls) == 6 and all(previous is None for previous, _ in calls)
+
+
+def test_packing_frames_into_the_workers_items_changes_no_person(
+        tmp_path, image_dir, maps_dir, monkeypatch):  # noqa: F811
+    """However import-maps packs runs of frames into the items it hands the workers (here
+    each run an item, or all three runs of two frames in one), every frame gets the same
+    people with the same ids: each run is still grouped in order from its own first frame.
+    Packing is fixed whatever the workers (tests/test_parallel.py compares 1 and 2). (Our
+    own rule; the synthetic frames of tests/cli/test_analysis_commands.py.)"""
+    from app import jobs_analysis
+    from app.jobs_analysis import import_maps
+
+    folder, _ = maps_dir
+    monkeypatch.setattr(jobs_analysis, "GROUPING_RUN", 2)
+    stored = []
+    for n, packed in enumerate([jobs_analysis._packed, lambda runs: [runs]]):
+        monkeypatch.setattr(jobs_analysis, "_packed", packed)
+        with new_project(tmp_path / f"p{n}", images=image_dir, author="ana") as p:
+            import_maps(p, folder, frame_before=True)
+            stored.append({f: [(q.id, q.keypoints.tobytes(), q.scores.tobytes(), q.score)
+                               for q in people] for f, people in p.people_by_frame().items()})
+    assert sum(len(v) for v in stored[0].values()) >= 12
+    assert stored[0] == stored[1]

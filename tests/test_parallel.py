@@ -14,6 +14,8 @@ from __future__ import annotations
 import importlib
 import json
 import os
+import subprocess
+import sys
 import threading
 
 import numpy as np
@@ -94,8 +96,8 @@ def test_two_workers_store_and_write_what_one_does(tmp_path, image_dir, maps_dir
         assert module in parallel.PRELOAD and callable(getattr(importlib.import_module(module),
                                                                name))
         assert items == frames and workers in (1, 2)
-    assert sorted({job.rpartition("._")[2] for job, _, _ in told}) == [
-        "group_maps", "triage_one", "write_targets"]
+    assert sorted({job.rpartition(".")[2] for job, _, _ in told}) == [
+        "_triage_one", "_write_targets", "group_runs"]
     (people1, triage1, findings1), ranked1, manifest1, arrays1 = outputs[0]
     (people2, triage2, findings2), ranked2, manifest2, arrays2 = outputs[1]
     assert sum(len(v) for v in people1.values()) >= 12
@@ -199,14 +201,17 @@ def test_the_fork_server_preloads_every_batch_jobs_module():
     """Each function the batch jobs hand to the workers lives in a module the fork server
     imports before forking them, so no worker imports the app again."""
     from app.inference.prelabel import _prelabel_one
-    from app.jobs_analysis import _group_maps, _triage_one, _write_targets
-    from app.parallel import PRELOAD, PRELOAD_FOR
+    from app.jobs_analysis import _triage_one, _write_targets
+    from app.map_runs import group_runs
+    from app.parallel import ONLY_FOR, PRELOAD, PRELOAD_FOR
 
-    for fn in (_group_maps, _triage_one, _write_targets, _prelabel_one):
+    for fn in (group_runs, _triage_one, _write_targets, _prelabel_one):
         assert fn.__module__ in PRELOAD
-    for modules in PRELOAD_FOR.values():  # every name listed is a module that imports
+    for modules in (*PRELOAD_FOR.values(), *ONLY_FOR.values()):  # each name imports
         for name in modules:
             importlib.import_module(name)
+    for job, modules in ONLY_FOR.items():  # a command's server alone has the job's module
+        assert job.rpartition(".")[0] in modules
 
 
 def test_a_cancel_while_the_pool_starts_stops_at_once(monkeypatch):
@@ -291,6 +296,25 @@ def test_a_command_starts_the_fork_server_as_soon_as_it_knows_the_jobs_size(monk
     assert {*parallel.PRELOAD, *parallel.PRELOAD_FOR[job]} <= asked[0]
     parallel.head_start(job, many, 2)
     assert len(asked) == 1  # once per process
+    # A command that runs only import-maps: its server imports that job's module alone.
+    monkeypatch.setattr(parallel, "_server_since", None)
+    assert parallel.head_start("app.map_runs.group_runs", many, 2) and len(asked) == 2
+    assert asked[1] == set(parallel.ONLY_FOR["app.map_runs.group_runs"])
+
+
+def test_import_maps_workers_import_neither_the_model_nor_opencv():
+    """What import-maps' workers import (app.map_runs, the server's only preload for that
+    command) holds no pydantic, model, store or OpenCV, and the command's own job module
+    (app.jobs_analysis, with app.jobs) no OpenCV or Pillow: both start sooner (app/parallel.py
+    ONLY_FOR, app/jobs.py)."""
+    code = ("import sys; import app.map_runs; "
+            "print(sorted({m.split('.')[0] for m in sys.modules} & {'pydantic', 'cv2', 'PIL'}),"
+            " sorted(m for m in sys.modules if m.startswith(('app.model', 'app.store')))); "
+            "import app.jobs_analysis; "
+            "print(sorted({m.split('.')[0] for m in sys.modules} & {'cv2', 'PIL'}))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True)
+    assert out.stdout.split() == ["[]", "[]", "[]"]
 
 
 def test_so_many_items_start_the_fork_server_before_any_is_timed(monkeypatch):

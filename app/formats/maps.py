@@ -8,6 +8,10 @@ targets (:mod:`app.analysis.targets`): ``H = ceil(height / stride)``,
 :func:`read_npz`: never a pickle, and a file whose arrays would inflate past :data:`MAX_BYTES`,
 or whose headers declare more than the file holds, is refused before anything is decompressed
 or allocated.
+
+This module imports numpy and nothing of the app's model (its types only for the checker), so
+that ``import-maps``'s workers, which read maps and nothing else, start without pydantic or
+the model (:mod:`app.map_runs`).
 """
 
 from __future__ import annotations
@@ -16,13 +20,16 @@ import math
 import zipfile
 from dataclasses import dataclass
 from pathlib import Path, PurePosixPath
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from app.errors import BadInput
-from app.model.labels import Frame
-from app.model.skeleton import Skeleton
 from app.wording import count
+
+if TYPE_CHECKING:
+    from app.model.labels import Frame
+    from app.model.skeleton import Skeleton
 
 #: Largest uncompressed size of one file's arrays (2 GiB).
 MAX_BYTES = 2 * 2**30
@@ -47,6 +54,13 @@ def read_maps(path: str | Path, skeleton: Skeleton, image_size: tuple[int, int])
         not fit the skeleton or the image, the stride is not a positive integer, or a value is
         not finite.
     """
+    return read_map_arrays(path, skeleton.num_joints, len(skeleton.limbs), image_size)
+
+
+def read_map_arrays(path: str | Path, joints: int, limbs: int,
+                    image_size: tuple[int, int]) -> NetworkMaps:
+    """:func:`read_maps` for a skeleton of ``joints`` joints and ``limbs`` limbs, given as
+    numbers (a worker that has not imported the model calls this one)."""
     path = Path(path)
     where = str(path)
     arrays = read_npz(path)
@@ -63,7 +77,7 @@ def read_maps(path: str | Path, skeleton: Skeleton, image_size: tuple[int, int])
     stride = int(stride_value)
     width, height = image_size
     grid = (math.ceil(height / stride), math.ceil(width / stride))
-    k, n_limbs = skeleton.num_joints, len(skeleton.limbs)
+    k, n_limbs = joints, limbs
     for key, arr, want in (("confidence_maps", cmaps, (k, *grid)),
                            ("pafs", pafs, (n_limbs, 2, *grid))):
         if not np.issubdtype(arr.dtype, np.floating):
