@@ -179,14 +179,38 @@ def test_a_persons_corrections_are_one_relation_carried_each_joint_as_far_as_it_
 
 
 def test_each_joint_carrying_stops_at_the_first_frame_where_no_error_shows():
-    """The wrist alone, each joint on its own: still frames 5-7, stopped at 8 (not carried
-    on past the gap to a later frame)."""
+    """The wrist alone, each joint on its own, the exchange back in frame 10 after two
+    frames without it (synthetic): frames 5-7, stopped at 8, not carried past a gap of two
+    frames; with ``gap=0`` the same."""
+    people = _one_person_two_errors()
+    people[9, [0, 1], WRIST] = people[9, [1, 0], WRIST]  # the exchange again in frame 10
+    frames = sequences.tracked_frames(people)
+    frames[3], changes = ReassignJoint(4, pid(3, 1), WRIST, pid(3, 0)).apply(frames[3])
+    for gap in (0, 1):
+        batch = carry_changes(changes, frames, 3, each_joint=True, gap=gap)
+        assert ([g.frame_id for g in batch.edits], batch.stopped_forward,
+                batch.skipped) == ([5, 6, 7], 8, ())
+
+
+def test_a_one_frame_gap_is_stepped_over_and_left_as_it_is():
+    """The exchange absent in frame 8 only and back in frame 9 (a grouping's flicker;
+    synthetic): the batch steps over frame 8, leaving it unchanged, gives the wrist back in
+    frame 9 and stops at frame 10 where the error is gone for good; ``gap=0`` stops at 8;
+    trimmed at frame 7 the gap is no longer inside the batch."""
     people = _one_person_two_errors()
     people[8, [0, 1], WRIST] = people[8, [1, 0], WRIST]  # the exchange again in frame 9
     frames = sequences.tracked_frames(people)
     frames[3], changes = ReassignJoint(4, pid(3, 1), WRIST, pid(3, 0)).apply(frames[3])
     batch = carry_changes(changes, frames, 3, each_joint=True)
-    assert ([g.frame_id for g in batch.edits], batch.stopped_forward) == ([5, 6, 7], 8)
+    assert ([g.frame_id for g in batch.edits], batch.stopped_forward, batch.skipped) == (
+        [5, 6, 7, 9], 10, (8,))
+    assert batch.until(7).skipped == ()
+    truth = sequences.dancers()
+    nine, _ = batch.edits[-1].apply(frames[8])
+    assert np.allclose(nine.people[pid(8, 0)].keypoints[WRIST, :2], truth[8, 0, WRIST, :2])
+    assert np.allclose(nine.people[pid(8, 1)].keypoints[WRIST, :2], truth[8, 1, WRIST, :2])
+    none = carry_changes(changes, frames, 3, each_joint=True, gap=0)
+    assert ([g.frame_id for g in none.edits], none.stopped_forward) == ([5, 6, 7], 8)
 
 
 def test_people_corrected_apart_are_separate_relations():

@@ -109,6 +109,12 @@ FOLLOW_OKS = 0.5
 MAX_FRAMES = 50
 #: An exchange of at least this many joints is judged as a whole (their mean offsets).
 WHOLE = 4
+#: The most frames in a row where the error is absent that a batch steps over when the
+#: error is back on the frame after them (our choice): a crowd's grouping flickers, so a
+#: wrong pairing often comes right for one frame and back the next. The frame stepped over
+#: gets no edit (:attr:`CarriedBatch.skipped`); the batch ends at the first frame where the
+#: error is absent and not back on the frame after. 0 stops at the first such frame.
+GAP = 1
 
 
 @dataclass(frozen=True)
@@ -125,8 +131,12 @@ class CarriedBatch:
     last_forward, last_backward
         The last frame carried to in each direction (None when none).
     stopped_forward, stopped_backward
-        The first frame in each direction where the error is absent (None when the
-        sequence, or the track, ended first): where the batch ends.
+        The first frame in each direction where the error is absent and not back on the
+        frame after (None when the sequence, or the track, ended first): where the batch
+        ends.
+    skipped
+        Frames inside the batch where the error is absent for :data:`GAP` frames or fewer
+        and back after them: the batch steps over them and leaves them as they are.
     """
 
     origin: int
@@ -135,6 +145,7 @@ class CarriedBatch:
     last_backward: int | None
     stopped_forward: int | None
     stopped_backward: int | None
+    skipped: tuple[int, ...] = ()
 
     def until(self, frame_id: int | None) -> CarriedBatch:
         """The batch trimmed to the frames up to ``frame_id`` in each direction (None: the
@@ -152,10 +163,14 @@ class CarriedBatch:
             backward = backward[:backward.index(self.edits[keep_to]) + 1]
         else:
             forward = forward[:forward.index(self.edits[keep_to]) + 1]
-        return CarriedBatch(self.origin, tuple(backward + forward),
+        kept = backward + forward
+        lo = min([self.origin, *(e.frame_id for e in kept)])
+        hi = max([self.origin, *(e.frame_id for e in kept)])
+        return CarriedBatch(self.origin, tuple(kept),
                             forward[-1].frame_id if forward else None,
                             backward[-1].frame_id if backward else None,
-                            self.stopped_forward, self.stopped_backward)
+                            self.stopped_forward, self.stopped_backward,
+                            tuple(f for f in self.skipped if lo < f < hi))
 
     def _backward_ids(self) -> set[int]:
         ids = [e.frame_id for e in self.edits]
@@ -472,7 +487,8 @@ def _stand_together(copies: Sequence[_Step], who: dict[int, Person],
 
 
 def carry_changes(changes: Sequence[Change], frames: Sequence[FrameLabels], at: int,
-                  max_frames: int = MAX_FRAMES, each_joint: bool = False) -> CarriedBatch:
+                  max_frames: int = MAX_FRAMES, each_joint: bool = False,
+                  gap: int = GAP) -> CarriedBatch:
     """Carry a correction of ``frames[at]`` to the frames around it that show the same error.
 
     Parameters
@@ -493,6 +509,11 @@ def carry_changes(changes: Sequence[Change], frames: Sequence[FrameLabels], at: 
         carrying a person's corrections (:func:`by_person`) does, since a person's wrong
         joints rarely come right on the same frame. The batch then ends at the first frame
         where none of the errors shows.
+    gap
+        The most frames in a row where the error is absent that the batch steps over when
+        it is back on the frame after them (:data:`GAP`); the error there is judged against
+        the last frame carried to, with the body's motion over the frames between. The
+        frames stepped over get no edit (:attr:`CarriedBatch.skipped`).
 
     Returns
     -------
@@ -508,37 +529,54 @@ def carry_changes(changes: Sequence[Change], frames: Sequence[FrameLabels], at: 
     undo = [c.inverted() for c in reversed(changes)]
     start_before = apply_changes(frames[at], undo)
     plan = ([_with_holder(s, start_before) for s in plan[0]], plan[1])
-    found: dict[int, tuple[list[EditGroup], int | None, int | None]] = {}
+    found: dict[int, tuple[list[EditGroup], int | None, int | None, list[int]]] = {}
     for step in (1, -1):
         steps, deleted = plan
         before, after = start_before, frames[at]
         groups: list[EditGroup] = []
+        skipped: list[int] = []
         stopped = None
         k = at + step
         while 0 <= k < len(frames) and len(groups) < max_frames:
-            there = frames[k]
-            carried = _carry_once(steps, deleted, before, after, there, each_joint)
-            if carried is None:
-                stopped = there.frame_id
+            taken = None
+            for ahead in range(gap + 1):
+                n = k + step * ahead
+                if not 0 <= n < len(frames):
+                    break
+                taken = _carry_there(steps, deleted, before, after, frames[n], each_joint,
+                                     origin)
+                if taken is not None:
+                    break
+            if taken is None:
+                stopped = frames[k].frame_id
                 break
-            edits, steps, deleted = carried
-            if not edits:
-                stopped = there.frame_id
-                break
-            group = EditGroup(there.frame_id, tuple(edits), "carried from frame "
-                              f"{origin}")
-            try:
-                new, _ = group.apply(there)
-            except EditRefused:  # a proposal that cannot apply there ends the batch
-                stopped = there.frame_id
-                break
+            group, new, steps, deleted = taken
+            skipped.extend(frames[m].frame_id for m in range(k, n, step))
             groups.append(group)
-            before, after = there, new
-            k += step
-        found[step] = (groups, groups[-1].frame_id if groups else None, stopped)
-    back, last_back, stop_back = found[-1]
-    fwd, last_fwd, stop_fwd = found[1]
-    return CarriedBatch(origin, tuple(back + fwd), last_fwd, last_back, stop_fwd, stop_back)
+            before, after = frames[n], new
+            k = n + step
+        found[step] = (groups, groups[-1].frame_id if groups else None, stopped, skipped)
+    back, last_back, stop_back, skip_back = found[-1]
+    fwd, last_fwd, stop_fwd, skip_fwd = found[1]
+    return CarriedBatch(origin, tuple(back + fwd), last_fwd, last_back, stop_fwd, stop_back,
+                        tuple(skip_back + skip_fwd))
+
+
+def _carry_there(steps: list[_Step], deleted: list[int], before: FrameLabels,
+                 after: FrameLabels, there: FrameLabels, each_joint: bool, origin: int
+                 ) -> tuple[EditGroup, FrameLabels, list[_Step], list[int]] | None:
+    """The carried group in ``there`` and the frame after it, with the steps and deletions
+    as they are there; None when the error is absent there (or the proposal cannot apply)."""
+    carried = _carry_once(steps, deleted, before, after, there, each_joint)
+    if carried is None or not carried[0]:
+        return None
+    edits, steps, deleted = carried
+    group = EditGroup(there.frame_id, tuple(edits), f"carried from frame {origin}")
+    try:
+        new, _ = group.apply(there)
+    except EditRefused:  # a proposal that cannot apply there ends the batch
+        return None
+    return group, new, steps, deleted
 
 
 def by_person(changes: Sequence[Change]) -> list[list[Change]]:

@@ -354,7 +354,8 @@ def _helps(group: EditGroup, labels: FrameLabels, truth: np.ndarray,
 WHY = ("carried", "same action next frame, carrying did not match it",
        "same action next frame, carried but did not help", "error absent next frame",
        "error absent next frame, other joints of the person wrong",
-       "same joint wrong next frame, fixed another way", "person not in the next frame")
+       "same joint wrong next frame, fixed another way", "person not in the next frame",
+       "error absent next frame, back the frame after: carried across the gap")
 
 
 def _kind(edit: Edit) -> str:
@@ -399,7 +400,10 @@ def why_not_carried(frames: Sequence[FrameLabels], truth: Sequence[np.ndarray],
     action on the same tracks and carrying did not propose it, or proposed it and it did not
     help; the joints it corrects are right next frame (the rest of that person right too, or
     not); the same joint is wrong next frame but the oracle fixes it with another action; the
-    person's track does not reach the next frame. Returns ``(action kind, why) -> count``.
+    person's track does not reach the next frame; or, of those whose error is absent next
+    frame, the error is back the frame after and the carrying steps over the gap
+    (:data:`app.analysis.carry.GAP`) and helps there. Returns ``(action kind, why) ->
+    count``.
     """
     tracked = with_tracks(frames)
     acts = [_walk(f, t, a) for f, t, a in zip(tracked, truth, areas, strict=True)]
@@ -416,6 +420,8 @@ def why_not_carried(frames: Sequence[FrameLabels], truth: Sequence[np.ndarray],
             batch = carry_changes(changes, seq, i, max_frames=1)
             group = [g for g in batch.edits if g.frame_id == nxt.frame_id]
             track, joints = _fixes(edit, before)
+            across = [g for g in batch.edits if i + 2 < len(tracked)
+                      and g.frame_id == tracked[i + 2].frame_id]
             if group and _helps(group[0], nxt, t1, a1) is not None:
                 why = WHY[0]
             elif _gesture(edit, before) in gestures:
@@ -426,6 +432,9 @@ def why_not_carried(frames: Sequence[FrameLabels], truth: Sequence[np.ndarray],
                 why = WHY[4] if wrong[track] and joints else WHY[3]
             else:
                 why = WHY[5]
+            if why in WHY[3:5] and across and _helps(across[0], tracked[i + 2], truth[i + 2],
+                                                    areas[i + 2]) is not None:
+                why = WHY[7]
             key = (_kind(edit), why)
             out[key] = out.get(key, 0) + 1
     return out
@@ -596,11 +605,16 @@ def main(argv: Sequence[str] | None = None) -> int:
             for key, n in found.items():
                 why[key] = why.get(key, 0) + n
         total = sum(why.values())
-        print("| why | actions | share |\n|---|---:|---:|")
+        kinds = sorted({k for k, _ in why})
+        print("| why | actions | share | " + " | ".join(kinds) + " |\n|---|---:|---:|"
+              + "---:|" * len(kinds))
         for reason in WHY:
             n = sum(v for (_, w), v in why.items() if w == reason)
-            print(f"| {reason} | {n:,} | {n / max(total, 1):.0%} |")
-        print(f"| all | {total:,} | |")
+            each = " | ".join(f"{why.get((k, reason), 0):,}" for k in kinds)
+            print(f"| {reason} | {n:,} | {n / max(total, 1):.0%} | {each} |")
+        each = " | ".join(f"{sum(v for (k2, _), v in why.items() if k2 == k):,}"
+                          for k in kinds)
+        print(f"| all | {total:,} | | {each} |")
         return 0
     rows = [demo_count(demo_folder(args.cache, seed), name, args.per, args.take,
                        not args.no_frame_batch) for name, seed in targets]
