@@ -115,6 +115,11 @@ WHOLE = 4
 #: gets no edit (:attr:`CarriedBatch.skipped`); the batch ends at the first frame where the
 #: error is absent and not back on the frame after. 0 stops at the first such frame.
 GAP = 1
+#: With ``each_joint``, carry each unit of a correction (:func:`_units`: a joint with the
+#: joint it was exchanged with, a side swap, a person deleted) along on its own, each with
+#: its own gaps, and gather their edits per frame: a joint whose error is absent for a frame
+#: while another's lasts comes back into the batch when its error does.
+APART = True
 
 
 @dataclass(frozen=True)
@@ -529,37 +534,79 @@ def carry_changes(changes: Sequence[Change], frames: Sequence[FrameLabels], at: 
     undo = [c.inverted() for c in reversed(changes)]
     start_before = apply_changes(frames[at], undo)
     plan = ([_with_holder(s, start_before) for s in plan[0]], plan[1])
+    steps, deleted = plan
+    if each_joint and APART:
+        parts = [(unit, []) for unit in _units(steps)] + [([], [d]) for d in deleted]
+    else:
+        parts = [(steps, deleted)]
     found: dict[int, tuple[list[EditGroup], int | None, int | None, list[int]]] = {}
     for step in (1, -1):
-        steps, deleted = plan
-        before, after = start_before, frames[at]
-        groups: list[EditGroup] = []
-        skipped: list[int] = []
-        stopped = None
-        k = at + step
-        while 0 <= k < len(frames) and len(groups) < max_frames:
-            taken = None
-            for ahead in range(gap + 1):
-                n = k + step * ahead
-                if not 0 <= n < len(frames):
-                    break
-                taken = _carry_there(steps, deleted, before, after, frames[n], each_joint,
-                                     origin)
-                if taken is not None:
-                    break
-            if taken is None:
-                stopped = frames[k].frame_id
-                break
-            group, new, steps, deleted = taken
-            skipped.extend(frames[m].frame_id for m in range(k, n, step))
-            groups.append(group)
-            before, after = frames[n], new
-            k = n + step
-        found[step] = (groups, groups[-1].frame_id if groups else None, stopped, skipped)
+        walks = [_walk(part, start_before, frames, at, step, max_frames, each_joint, gap)
+                 for part in parts]
+        found[step] = _merge(walks, frames, at, step, max_frames, origin)
     back, last_back, stop_back, skip_back = found[-1]
     fwd, last_fwd, stop_fwd, skip_fwd = found[1]
     return CarriedBatch(origin, tuple(back + fwd), last_fwd, last_back, stop_fwd, stop_back,
                         tuple(skip_back + skip_fwd))
+
+
+def _walk(plan: tuple[list[_Step], list[int]], start_before: FrameLabels,
+          frames: Sequence[FrameLabels], at: int, step: int, max_frames: int,
+          each_joint: bool, gap: int) -> tuple[dict[int, list[Edit]], int | None]:
+    """One part of a correction carried in one direction: its edits per frame index, and
+    the index of the frame where its error is absent (and not back within ``gap``; None
+    when the sequence or ``max_frames`` ended first)."""
+    steps, deleted = plan
+    before, after = start_before, frames[at]
+    out: dict[int, list[Edit]] = {}
+    k = at + step
+    while 0 <= k < len(frames) and len(out) < max_frames:
+        taken = None
+        for ahead in range(gap + 1):
+            n = k + step * ahead
+            if not 0 <= n < len(frames):
+                break
+            taken = _carry_there(steps, deleted, before, after, frames[n], each_joint,
+                                 frames[at].frame_id)
+            if taken is not None:
+                break
+        if taken is None:
+            return out, k
+        group, new, steps, deleted = taken
+        out[n] = list(group.edits)
+        before, after = frames[n], new
+        k = n + step
+    return out, None
+
+
+def _merge(walks: Sequence[tuple[dict[int, list[Edit]], int | None]],
+           frames: Sequence[FrameLabels], at: int, step: int, max_frames: int,
+           origin: int) -> tuple[list[EditGroup], int | None, int | None, list[int]]:
+    """The parts' walks in one direction as one batch's groups (one per frame, the parts'
+    edits together, people deleted last), the last frame carried to, the frame where the
+    batch ends and the frames it steps over."""
+    reach = [k for out, _ in walks for k in out]
+    if not reach:
+        ends = [stop for _, stop in walks if stop is not None]
+        return [], None, (frames[at + step].frame_id if ends else None), []
+    last = max(reach, key=lambda k: step * k)
+    groups: list[EditGroup] = []
+    skipped: list[int] = []
+    for k in range(at + step, last + step, step):
+        edits = [e for out, _ in walks for e in out.get(k, [])]
+        if not edits:
+            skipped.append(frames[k].frame_id)
+            continue
+        edits.sort(key=lambda e: isinstance(e, DeletePerson))
+        groups.append(EditGroup(frames[k].frame_id, tuple(edits),
+                                f"carried from frame {origin}"))
+        if len(groups) == max_frames:
+            last = k
+            break
+    stops = [stop for out, stop in walks if out and max(out, key=lambda k: step * k) == last]
+    stopped = None if last + step < 0 or last + step >= len(frames) or None in stops else \
+        frames[last + step].frame_id
+    return groups, frames[last].frame_id, stopped, skipped
 
 
 def _carry_there(steps: list[_Step], deleted: list[int], before: FrameLabels,
