@@ -7,6 +7,7 @@ import json
 import numpy as np
 import pytest
 
+from app.analysis import carry
 from app.analysis.carry import by_person, carry_changes
 from app.cli import main
 from app.jobs_tracks import (
@@ -211,6 +212,29 @@ def test_a_one_frame_gap_is_stepped_over_and_left_as_it_is():
     assert np.allclose(nine.people[pid(8, 1)].keypoints[WRIST, :2], truth[8, 1, WRIST, :2])
     none = carry_changes(changes, frames, 3, each_joint=True, gap=0)
     assert ([g.frame_id for g in none.edits], none.stopped_forward) == ([5, 6, 7], 8)
+
+
+def test_each_joint_of_a_person_steps_over_its_own_gap(monkeypatch):
+    """Dancer 0's wrist exchanged in frames 4-7 and its elbow dragged in frames 4-5 and 7,
+    not 6 (synthetic): after both are corrected in frame 4, the person's batch carries the
+    elbow again to frame 7 while the wrist's error holds the batch open; carried as one
+    walk (``APART`` off) the elbow ends at frame 6 for good."""
+    people = _one_person_two_errors()
+    people[6, 0, ELBOW, 0] -= 30.0
+    frames = sequences.tracked_frames(people)
+    made = _correct_frame_4(frames)
+
+    def edited(batch):
+        return {(g.frame_id, e.joint) for g in batch.edits for e in g.edits
+                if isinstance(e, MoveJoint) and e.person_id == pid(g.frame_id - 1, 0)}
+
+    batch = carry_changes(made, frames, 3, each_joint=True)
+    assert ([g.frame_id for g in batch.edits], batch.stopped_forward) == ([5, 6, 7], 8)
+    assert {(7, ELBOW), (7, WRIST), (5, ELBOW)} <= edited(batch)
+    assert (6, ELBOW) not in edited(batch)
+    monkeypatch.setattr(carry, "APART", False)
+    joined = carry_changes(made, frames, 3, each_joint=True)
+    assert (7, ELBOW) not in edited(joined) and (7, WRIST) in edited(joined)
 
 
 def test_people_corrected_apart_are_separate_relations():
