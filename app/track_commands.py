@@ -90,6 +90,7 @@ def cmd_carry(args: argparse.Namespace) -> int:
         print_json({"action": group, "frame": frame, "frames": frames,
                     "stopped_forward": batch.stopped_forward,
                     "stopped_backward": batch.stopped_backward,
+                    "skipped": list(batch.skipped),
                     "applied": None if applied is None else applied.group_id,
                     "edits": [edit_to_value(g) for g in batch.edits]})
         return 0
@@ -100,5 +101,8 @@ def cmd_carry(args: argparse.Namespace) -> int:
     ends = [str(f) for f in (batch.stopped_backward, batch.stopped_forward) if f is not None]
     print(f"{verb} the correction of frame {frame} to {count(len(frames), 'frames')} "
           f"({', '.join(map(str, frames))})"
+          + (f", stepping over {count(len(batch.skipped), 'frame')} where the error is "
+             f"absent and back after ({', '.join(map(str, batch.skipped))})"
+             if batch.skipped else "")
           + (f"; the error is absent from frame {' and '.join(ends)}" if ends else ""))
     return 0

@@ -214,6 +214,24 @@ def test_a_one_frame_gap_is_stepped_over_and_left_as_it_is():
     assert ([g.frame_id for g in none.edits], none.stopped_forward) == ([5, 6, 7], 8)
 
 
+def test_the_carry_command_says_which_frames_it_steps_over(tmp_path, capsys):
+    """The wrist exchange of frames 4-7 back in frame 9 (synthetic): ``carry`` names frame
+    8, stepped over, in its sentence and its JSON."""
+    people = _people()
+    people[8, [0, 1], WRIST] = people[8, [1, 0], WRIST]
+    project, _ = sequences.make_project(tmp_path, people)
+    with project:
+        link_project(project)
+        project.apply(ReassignJoint(4, pid(3, 1), WRIST, pid(3, 0)))
+        where = str(project.folder)
+    assert main(["carry", where, "--dry-run", "--json", "-q"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert (out["frames"], out["skipped"], out["stopped_forward"]) == ([5, 6, 7, 9], [8], 10)
+    assert main(["carry", where, "--dry-run"]) == 0
+    assert "stepping over 1 frame where the error is absent and back after (8)" in \
+        capsys.readouterr().out
+
+
 def test_each_joint_of_a_person_steps_over_its_own_gap(monkeypatch):
     """Dancer 0's wrist exchanged in frames 4-7 and its elbow dragged in frames 4-5 and 7,
     not 6 (synthetic): after both are corrected in frame 4, the person's batch carries the
