@@ -541,7 +541,8 @@ def carry_changes(changes: Sequence[Change], frames: Sequence[FrameLabels], at: 
         parts = [(steps, deleted)]
     found: dict[int, tuple[list[EditGroup], int | None, int | None, list[int]]] = {}
     for step in (1, -1):
-        walks = [_walk(part, start_before, frames, at, step, max_frames, each_joint, gap)
+        walks = [_walk(part, start_before, frames, at, step, max_frames, each_joint, gap,
+                       frames[at] if len(parts) == 1 else _only(part, start_before))
                  for part in parts]
         found[step] = _merge(walks, frames, at, step, max_frames, origin)
     back, last_back, stop_back, skip_back = found[-1]
@@ -550,14 +551,31 @@ def carry_changes(changes: Sequence[Change], frames: Sequence[FrameLabels], at: 
                         tuple(skip_back + skip_fwd))
 
 
+def _only(plan: tuple[list[_Step], list[int]], start_before: FrameLabels) -> FrameLabels:
+    """The corrected frame as it would be with only this part of the correction made: what
+    a part carried on its own starts from, so that the other parts' joints count, like the
+    frames around, as they were before the correction."""
+    steps, deleted = plan
+    people = dict(start_before.people)
+    for s in steps:
+        kp = people[s.person].keypoints.copy()
+        kp[s.joint] = s.after
+        people[s.person] = replace(people[s.person], keypoints=kp)
+    for pid in deleted:
+        people.pop(pid, None)
+    return replace(start_before, people=people)
+
+
 def _walk(plan: tuple[list[_Step], list[int]], start_before: FrameLabels,
           frames: Sequence[FrameLabels], at: int, step: int, max_frames: int,
-          each_joint: bool, gap: int) -> tuple[dict[int, list[Edit]], int | None]:
-    """One part of a correction carried in one direction: its edits per frame index, and
-    the index of the frame where its error is absent (and not back within ``gap``; None
-    when the sequence or ``max_frames`` ended first)."""
+          each_joint: bool, gap: int, start_after: FrameLabels
+          ) -> tuple[dict[int, list[Edit]], int | None]:
+    """One part of a correction carried in one direction from ``start_after`` (the frame
+    corrected by it): its edits per frame index, and the index of the frame where its error
+    is absent (and not back within ``gap``; None when the sequence or ``max_frames`` ended
+    first)."""
     steps, deleted = plan
-    before, after = start_before, frames[at]
+    before, after = start_before, start_after
     out: dict[int, list[Edit]] = {}
     k = at + step
     while 0 <= k < len(frames) and len(out) < max_frames:
