@@ -18,9 +18,11 @@ frame, each person's corrections there (:func:`app.analysis.carry.by_person`: ev
 made to a person, with those of the people it exchanged joints with) are carried forward as
 one batch (:func:`app.analysis.carry.carry_changes` with ``each_joint``: each joint as far as
 its own error lasts), the people linked into tracks by :func:`app.analysis.tracks.link_tracks`
-first, as the app proposes them (:func:`app.jobs_tracks.propose_carry`); then, when more than
+first, as the app proposes them (:func:`app.jobs_tracks.propose_carry`: a batch steps over
+a frame where an error is absent for one frame and back the next,
+:data:`app.analysis.carry.GAP`); then, when more than
 one person was corrected, the frame's corrections together as one more batch (the app's
-Ctrl+Shift+F, ``posewright carry --whole-frame``): errors that last one more frame on
+Ctrl+Alt+C, ``posewright carry --whole-frame``): errors that last one more frame on
 several people spare one action each, too few to pay for a key per person, but together
 they do. The annotator looks at each batch and takes it as far as it helps (a carried frame
 helps when the oracle needs fewer actions to fix it with the carried edits than without
@@ -255,7 +257,7 @@ def count_actions(frames: Sequence[FrameLabels], truth: Sequence[np.ndarray],
     frame_batch
         With ``per="person"``: once each person's batch is taken or left alone, the frame's
         corrections together are carried as one more batch
-        (``posewright carry --whole-frame``, Ctrl+Shift+F in the app), each joint as far as
+        (``posewright carry --whole-frame``, Ctrl+Alt+C in the app), each joint as far as
         its error lasts, and taken when it spares actions: it gathers the errors that last
         one more frame on several people, each too short to pay for a key of its own.
     """
