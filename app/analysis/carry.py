@@ -618,9 +618,8 @@ def _merge(walks: Sequence[tuple[dict[int, list[Edit]], int | None]],
         edits.sort(key=lambda e: isinstance(e, DeletePerson))
         groups.append(EditGroup(frames[k].frame_id, tuple(edits),
                                 f"carried from frame {origin}"))
-        if len(groups) == max_frames:
-            last = k
-            break
+        if len(groups) == max_frames and k != last:
+            return groups, frames[k].frame_id, None, skipped  # cut at max_frames
     stops = [stop for out, stop in walks if out and max(out, key=lambda k: step * k) == last]
     stopped = None if last + step < 0 or last + step >= len(frames) or None in stops else \
         frames[last + step].frame_id
