@@ -535,6 +535,7 @@ def carry_changes(changes: Sequence[Change], frames: Sequence[FrameLabels], at: 
     start_before = apply_changes(frames[at], undo)
     plan = ([_with_holder(s, start_before) for s in plan[0]], plan[1])
     steps, deleted = plan
+    parts: list[tuple[list[_Step], list[int]]]
     if each_joint and APART:
         parts = [(unit, []) for unit in _units(steps)] + [([], [d]) for d in deleted]
     else:
