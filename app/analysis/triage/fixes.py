@@ -203,6 +203,9 @@ class FrameView:
         ``(width, height)`` or None.
     triage
         The frame's :class:`~app.analysis.triage.combine.FrameTriage`.
+    placed
+        Person id -> joints a person placed or marked (not the model, not an import):
+        :func:`invented_joints` proposes no unlabelling of those (their score is stale).
     """
 
     frame_id: int
@@ -212,6 +215,7 @@ class FrameView:
     maps: Any
     image_size: tuple[int, int] | None
     triage: FrameTriage
+    placed: Mapping[int, frozenset[int]] = field(default_factory=dict)
     names: Names = field(init=False)
     _evidence: dict[tuple[int, bytes], float] = field(init=False, default_factory=dict)
 
@@ -893,8 +897,9 @@ def invented_joints(view: FrameView,
         mine = view.scores.get(p)
         if mine is None:
             continue
+        placed = view.placed.get(p, frozenset())
         for j, cover in joints:
-            if not np.isfinite(mine[j]):
+            if not np.isfinite(mine[j]) or j in placed:
                 continue
             ratio = float(mine[j]) / view.typical_score
             strength = ramp(ratio, INVENTED_FROM, INVENTED_SURE)
