@@ -318,8 +318,10 @@ class FrameView:
         reasons += upright_body(pid, kp, sk, scale)
         reasons += off_ground(pid, kp, sk, scale, self.line)
         reasons += crossed_sides(pid, kp, sk, scale, self.maps)
-        # A weak limb weighs nothing in the present fit (app.analysis.triage.combine): its
-        # line integrals, most of this function's cost, would only add zeros.
+        # A weak limb counts (WEIGHTS["weak-limb"] is 0.5 since the refit of
+        # app.analysis.triage.combine): its line integrals are most of this function's cost,
+        # kept down by the view's FieldMemo (each limb's E at the same spots is asked once)
+        # and by the cache above; a weight of zero would skip them.
         if self.typical is not None and WEIGHTS["weak-limb"] != 0.0:
             support = limb_support(kp[None], sk, self.maps)[0]
             reasons += weak_limbs(pid, kp, sk, support, self.typical)
