@@ -205,7 +205,8 @@ class FrameView:
         The frame's :class:`~app.analysis.triage.combine.FrameTriage`.
     placed
         Person id -> joints a person placed or marked (not the model, not an import):
-        :func:`invented_joints` proposes no unlabelling of those (their score is stale).
+        :func:`invented_joints` proposes no unlabelling of those (their score is stale),
+        and :func:`missing_joints` places none of them that a person unlabelled.
     """
 
     frame_id: int
@@ -1014,7 +1015,9 @@ def missing_joints(view: FrameView, peaks: _Peaks | None = None) -> list[Proposa
     best, Cao et al.'s greedy matching per limb, Sec. 2.4). The joints placed in a round are
     the neighbours of the next: a missing elbow and wrist are placed together, the wrist
     joined to the elbow's peak. A peak where the person's joint was unlabeled (the position
-    it remembers) is not offered: someone, or a fix, took it away there.
+    it remembers) is not offered: someone, or a fix, took it away there; nor is any peak for
+    a joint a person unlabelled (:attr:`FrameView.placed`: its provenance is an author), so
+    that a joint a fix took away as an invented spot is not offered back at a peak nearby.
 
     Strength: the least sure placed joint's offer. Fix: place the joints at their peaks,
     visible, or occluded (COCO ``v = 1``) where the peak is fainter than ``INVENTED_FROM`` of
@@ -1046,7 +1049,8 @@ def missing_joints(view: FrameView, peaks: _Peaks | None = None) -> list[Proposa
             mine = placed.get(p, {})
             at = _placed_view(kp, mine)
             for j in range(view.skeleton.num_joints):
-                if known[p][j] or j in mine or not any(o in new[p] for _, o in limbs_of[j]):
+                if (known[p][j] or j in mine or j in view.placed.get(p, ())
+                        or not any(o in new[p] for _, o in limbs_of[j])):
                     continue
                 for n, (x, y, score) in enumerate(peaks.unused[j].tolist()):
                     # Without scores there is no typical height: the field alone decides.
