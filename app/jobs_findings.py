@@ -26,7 +26,6 @@ from app.analysis.triage.findings import (
     frame_findings,
     labels_digest,
     placed_by_people,
-    placed_joints,
 )
 from app.analysis.triage.temporal import (
     TIME_KINDS,
@@ -176,10 +175,9 @@ def _tracked(fid: int, people: Mapping[int, Sequence[Person]],
     """A frame as the findings over time read it: its people's joints and tracks, and the
     findings dismissed there."""
     here = people.get(fid, ())
-    placed = {p.id: mine for p in here if (mine := placed_joints(p))}
     return TrackedFrame(fid, {p.id: p.keypoints for p in here},
                         {p.id: p.track for p in here if p.track is not None},
-                        frozenset(dismissed.get(fid, ())), placed)
+                        frozenset(dismissed.get(fid, ())))
 
 
 def parse_kinds(text: str | None, where: str = "--kinds") -> set[str] | None:

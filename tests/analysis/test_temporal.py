@@ -122,19 +122,6 @@ def test_a_joint_unlabelled_here_is_placed_where_the_frames_around_put_it():
     assert finding.confidence >= 0.5 and "frames 5 and 7 of track 2" in finding.text
 
 
-def test_a_joint_a_person_unlabelled_is_not_placed_back_from_the_frames_around():
-    """The same gap, but a person (or a fix they accepted, e.g. one that took the joint away
-    as an invented spot) unlabelled it here (``placed``: its provenance is an author): the
-    frames around do not put it back, so no card undoes another (our own rule; synthetic)."""
-    people = sequences.dancers()
-    people[5, 1, LEFT_WRIST] = (0.0, 0.0, 0)
-    frames = _frames(people)
-    pid = sequences.pid(5, 1)
-    frames[5] = TrackedFrame(6, frames[5].people, frames[5].tracks, frames[5].dismissed,
-                             {pid: frozenset({LEFT_WRIST})})
-    assert sequence_findings(frames, SKELETON) == {}
-
-
 def test_a_joint_unlabelled_where_the_frames_around_disagree_stays_unlabelled():
     """The nearest frames put the joint 0.13 of a body apart (more than AGREE): nothing is
     proposed; the joint stays unlabelled, which training ignores (synthetic)."""

@@ -371,15 +371,10 @@ def placed_by_people(labels: FrameLabels) -> dict[int, frozenset[int]]:
     """
     out = {}
     for p in labels.people.values():
-        mine = placed_joints(p)
+        mine = frozenset(j for j, s in enumerate(p.sources) if s not in (AUTO, IMPORTED))
         if mine:
             out[p.id] = mine
     return out
-
-
-def placed_joints(person: Person) -> frozenset[int]:
-    """The joints of one person whose provenance is an author (:func:`placed_by_people`)."""
-    return frozenset(j for j, s in enumerate(person.sources) if s not in (AUTO, IMPORTED))
 
 
 def frame_findings(

@@ -110,16 +110,12 @@ CONFIDENCE: dict[str, tuple[float, float]] = {
 @dataclass(frozen=True)
 class TrackedFrame:
     """One frame of a sequence: its people ``(K, 3)`` ``x, y, v`` by id (in the project's
-    order, which the tags follow) and each linked person's track; ``placed``: person id ->
-    the joints a person placed or marked
-    (:func:`~app.analysis.triage.findings.placed_by_people`), of which one unlabelled is not
-    offered back by ``joint-gap``."""
+    order, which the tags follow) and each linked person's track."""
 
     frame_id: int
     people: Mapping[int, np.ndarray]
     tracks: Mapping[int, int]
     dismissed: frozenset[str] = field(default_factory=frozenset)
-    placed: Mapping[int, frozenset[int]] = field(default_factory=dict)
 
 
 def sequence_findings(frames: Sequence[TrackedFrame], skeleton: Skeleton,
@@ -606,10 +602,7 @@ class _Sequence:
                 size = _size(now)
                 if size <= 0 or (now[:, 2] > 0).sum() < 3:
                     continue
-                unlabelled_by_people = self.frames[i].placed.get(at[i], frozenset())
                 for j in np.flatnonzero(now[:, 2] <= 0).tolist():
-                    if j in unlabelled_by_people:  # a person (or a fix) took it away here
-                        continue
                     near = self._carried(at, i, j, now)
                     if len(near) == 2 and np.linalg.norm(near[0][1] - near[1][1]) <= \
                             AGREE * size:  # frames that disagree: it stays unlabelled
