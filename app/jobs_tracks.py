@@ -186,7 +186,7 @@ def sequence_labels(project: Project, frame_id: int) -> tuple[list[FrameLabels],
 
 def propose_carry(project: Project, frame_id: int, changes: Seq[Change],
                   max_frames: int = MAX_FRAMES, whole_person: bool = True,
-                  whole_frame: bool = False) -> CarriedBatch:
+                  whole_frame: bool = False, step_over: int | None = None) -> CarriedBatch:
     """The batch that carries a correction of ``frame_id`` (its changes, as applied) to the
     frames around it that show the same error; nothing is changed. What the app calls after
     each correction, to show where the batch would end.
@@ -196,7 +196,10 @@ def propose_carry(project: Project, frame_id: int, changes: Seq[Change],
     as its own error lasts; else the correction alone, as far as all of it lasts. With
     ``whole_frame``, every correction in effect in that frame, of every person, each joint as
     far as its own error lasts (:func:`frame_changes`): errors that last one more frame on
-    several people are taken with one key rather than one per person."""
+    several people are taken with one key rather than one per person. ``step_over`` frames
+    where the error is absent and back after are stepped over (default
+    :data:`app.analysis.carry.GAP`, 0: the batch stops at the first frame without the
+    error)."""
     if whole_frame:
         changes = frame_changes(project, frame_id) or list(changes)
     elif whole_person:
@@ -204,7 +207,7 @@ def propose_carry(project: Project, frame_id: int, changes: Seq[Change],
         changes = person_changes(project, frame_id, touched) or list(changes)
     frames, at = sequence_labels(project, frame_id)
     return carry_changes(changes, frames, at, max_frames,
-                         each_joint=whole_person or whole_frame)
+                         each_joint=whole_person or whole_frame, gap=step_over)
 
 
 def frame_changes(project: Project, frame_id: int) -> list[Change]:

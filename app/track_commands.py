@@ -46,6 +46,10 @@ def register(sub: Any, command: Command) -> None:
     p.add_argument("--whole-frame", action="store_true",
                    help="carry every correction in effect in that frame, of every person, "
                         "each joint as far as its error lasts, as one action")
+    p.add_argument("--step-over", metavar="N", type=whole_number(), default=0,
+                   help="step over up to N frames in a row where the error is absent when "
+                        "it is back on the frame after them, leaving them unchanged "
+                        "(default 0: stop at the first frame without the error)")
     p.add_argument("--json", action="store_true", help="print the batch as JSON")
 
 
@@ -83,7 +87,8 @@ def cmd_carry(args: argparse.Namespace) -> int:
         group, frame, changes = last_correction(project, args.action)
         batch = propose_carry(project, frame, changes,
                               whole_person=not args.this_action_only,
-                              whole_frame=args.whole_frame).until(args.until)
+                              whole_frame=args.whole_frame,
+                              step_over=args.step_over).until(args.until)
         applied = None if args.dry_run else take_batch(project, batch)
     frames = [g.frame_id for g in batch.edits]
     if args.json:

@@ -180,17 +180,23 @@ def test_a_persons_corrections_are_one_relation_carried_each_joint_as_far_as_it_
 
 
 def test_each_joint_carrying_stops_at_the_first_frame_where_no_error_shows():
-    """The wrist alone, each joint on its own, the exchange back in frame 10 after two
-    frames without it (synthetic): frames 5-7, stopped at 8, not carried past a gap of two
-    frames; with ``gap=0`` the same."""
+    """The wrist alone, each joint on its own (synthetic): still frames 5-7, stopped at 8,
+    not carried on past the frame without the error to frame 9 where it is back (the
+    default); stepping over one such frame (``gap=1``) still stops where the error is absent
+    for two frames in a row (frames 8 and 9, back in 10)."""
+    people = _one_person_two_errors()
+    people[8, [0, 1], WRIST] = people[8, [1, 0], WRIST]  # the exchange again in frame 9
+    frames = sequences.tracked_frames(people)
+    frames[3], changes = ReassignJoint(4, pid(3, 1), WRIST, pid(3, 0)).apply(frames[3])
+    batch = carry_changes(changes, frames, 3, each_joint=True)
+    assert ([g.frame_id for g in batch.edits], batch.stopped_forward) == ([5, 6, 7], 8)
     people = _one_person_two_errors()
     people[9, [0, 1], WRIST] = people[9, [1, 0], WRIST]  # the exchange again in frame 10
     frames = sequences.tracked_frames(people)
     frames[3], changes = ReassignJoint(4, pid(3, 1), WRIST, pid(3, 0)).apply(frames[3])
-    for gap in (0, 1):
-        batch = carry_changes(changes, frames, 3, each_joint=True, gap=gap)
-        assert ([g.frame_id for g in batch.edits], batch.stopped_forward,
-                batch.skipped) == ([5, 6, 7], 8, ())
+    batch = carry_changes(changes, frames, 3, each_joint=True, gap=1)
+    assert ([g.frame_id for g in batch.edits], batch.stopped_forward,
+            batch.skipped) == ([5, 6, 7], 8, ())
 
 
 def test_a_one_frame_gap_is_stepped_over_and_left_as_it_is():
@@ -202,7 +208,7 @@ def test_a_one_frame_gap_is_stepped_over_and_left_as_it_is():
     people[8, [0, 1], WRIST] = people[8, [1, 0], WRIST]  # the exchange again in frame 9
     frames = sequences.tracked_frames(people)
     frames[3], changes = ReassignJoint(4, pid(3, 1), WRIST, pid(3, 0)).apply(frames[3])
-    batch = carry_changes(changes, frames, 3, each_joint=True)
+    batch = carry_changes(changes, frames, 3, each_joint=True, gap=1)
     assert ([g.frame_id for g in batch.edits], batch.stopped_forward, batch.skipped) == (
         [5, 6, 7, 9], 10, (8,))
     assert batch.until(7).skipped == ()
@@ -210,7 +216,7 @@ def test_a_one_frame_gap_is_stepped_over_and_left_as_it_is():
     nine, _ = batch.edits[-1].apply(frames[8])
     assert np.allclose(nine.people[pid(8, 0)].keypoints[WRIST, :2], truth[8, 0, WRIST, :2])
     assert np.allclose(nine.people[pid(8, 1)].keypoints[WRIST, :2], truth[8, 1, WRIST, :2])
-    none = carry_changes(changes, frames, 3, each_joint=True, gap=0)
+    none = carry_changes(changes, frames, 3, each_joint=True)  # the default stops there
     assert ([g.frame_id for g in none.edits], none.stopped_forward) == ([5, 6, 7], 8)
 
 
@@ -225,18 +231,21 @@ def test_the_carry_command_says_which_frames_it_steps_over(tmp_path, capsys):
         project.apply(ReassignJoint(4, pid(3, 1), WRIST, pid(3, 0)))
         where = str(project.folder)
     assert main(["carry", where, "--dry-run", "--json", "-q"]) == 0
+    out = json.loads(capsys.readouterr().out)  # by default the batch stops at frame 8
+    assert (out["frames"], out["skipped"], out["stopped_forward"]) == ([5, 6, 7], [], 8)
+    assert main(["carry", where, "--dry-run", "--json", "-q", "--step-over", "1"]) == 0
     out = json.loads(capsys.readouterr().out)
     assert (out["frames"], out["skipped"], out["stopped_forward"]) == ([5, 6, 7, 9], [8], 10)
-    assert main(["carry", where, "--dry-run"]) == 0
+    assert main(["carry", where, "--dry-run", "--step-over", "1"]) == 0
     assert "stepping over 1 frame where the error is absent and back after (8)" in \
         capsys.readouterr().out
 
 
 def test_each_joint_of_a_person_steps_over_its_own_gap(monkeypatch):
     """Dancer 0's wrist exchanged in frames 4-7 and its elbow dragged in frames 4-5 and 7,
-    not 6 (synthetic): after both are corrected in frame 4, the person's batch carries the
-    elbow again to frame 7 while the wrist's error holds the batch open; carried as one
-    walk (``APART`` off) the elbow ends at frame 6 for good."""
+    not 6 (synthetic): after both are corrected in frame 4, the person's batch stepping
+    over one frame (``gap=1``) carries the elbow again to frame 7 while the wrist's error
+    holds the batch open; carried as one walk (``APART`` off) the elbow ends at frame 6."""
     people = _one_person_two_errors()
     people[6, 0, ELBOW, 0] -= 30.0
     frames = sequences.tracked_frames(people)
@@ -246,12 +255,12 @@ def test_each_joint_of_a_person_steps_over_its_own_gap(monkeypatch):
         return {(g.frame_id, e.joint) for g in batch.edits for e in g.edits
                 if isinstance(e, MoveJoint) and e.person_id == pid(g.frame_id - 1, 0)}
 
-    batch = carry_changes(made, frames, 3, each_joint=True)
+    batch = carry_changes(made, frames, 3, each_joint=True, gap=1)
     assert ([g.frame_id for g in batch.edits], batch.stopped_forward) == ([5, 6, 7], 8)
     assert {(7, ELBOW), (7, WRIST), (5, ELBOW)} <= edited(batch)
     assert (6, ELBOW) not in edited(batch)
     monkeypatch.setattr(carry, "APART", False)
-    joined = carry_changes(made, frames, 3, each_joint=True)
+    joined = carry_changes(made, frames, 3, each_joint=True, gap=1)
     assert (7, ELBOW) not in edited(joined) and (7, WRIST) in edited(joined)
 
 

@@ -18,9 +18,9 @@ frame, each person's corrections there (:func:`app.analysis.carry.by_person`: ev
 made to a person, with those of the people it exchanged joints with) are carried forward as
 one batch (:func:`app.analysis.carry.carry_changes` with ``each_joint``: each joint as far as
 its own error lasts), the people linked into tracks by :func:`app.analysis.tracks.link_tracks`
-first, as the app proposes them (:func:`app.jobs_tracks.propose_carry`: a batch steps over
-a frame where an error is absent for one frame and back the next,
-:data:`app.analysis.carry.GAP`); then, when more than
+first, as the app proposes them (:func:`app.jobs_tracks.propose_carry`; with
+``--step-over N`` a batch steps over up to N frames where an error is absent and back
+after, :data:`app.analysis.carry.GAP`, 0 by default); then, when more than
 one person was corrected, the frame's corrections together as one more batch (the app's
 Ctrl+Alt+C, ``posewright carry --whole-frame``): errors that last one more frame on
 several people spare one action each, too few to pay for a key per person, but together
@@ -577,9 +577,16 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser.add_argument("--frame-before", action="store_true",
                         help="demos grouped with the frame before (import-maps "
                              "--frame-before); give a cache of its own")
+    parser.add_argument("--step-over", metavar="N", type=int, default=None,
+                        help="carry across up to N frames where the error is absent and "
+                             "back after (app.analysis.carry.GAP; default 0)")
     parser.add_argument("--why", action="store_true",
                         help="instead, why each frame-by-frame action is or is not carried")
     args = parser.parse_args(argv)
+    if args.step_over is not None:
+        import app.analysis.carry
+
+        app.analysis.carry.GAP = args.step_over
     if args.frame_before:
         import app.jobs_analysis
 
