@@ -29,11 +29,12 @@ __all__ = ["PACK_FRAMES", "Found", "Runs", "first_items", "found_person", "group
 #: order (see :func:`pack_runs`); fixed, so the results are the same whatever the workers.
 PACK_FRAMES = 4
 
-#: How many items :func:`first_items` gives (the first two a frame each, then up to
-#: :data:`PACK_FRAMES`): 58 frames, 0.7 s of one worker at 12 ms a frame, for the 0.3-0.5 s the
-#: command takes to import the store and open the project on a quiet machine (3 December 2026)
-#: and more under load; the pool idles if it finishes them first.
-FIRST_ITEMS = 16
+#: How many items :func:`first_items` gives at most (the first two a frame each, then up to
+#: :data:`PACK_FRAMES`): the pool computes them a few at a time until the job takes it, which
+#: the command reaches 0.3-0.5 s after its start on a quiet machine and 1.5 s at load 5
+#: (3 December 2026), so 40-130 frames in; far more than that, to keep the pool busy however
+#: long opening the project takes (the items are a few numbers and a file name each).
+FIRST_ITEMS = 1000
 
 #: Runs of frames to group, each in order: the skeleton's number of joints, its limbs as
 #: pairs of joint indices, then the runs, each a list of frames: the maps file, the image's

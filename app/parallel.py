@@ -30,7 +30,9 @@ items have run, without timing them for :data:`_PROBE_SECONDS`);
 every worker is then a fork of it that imports nothing more, so a later pool is up in a
 fraction of a second. A command, which runs one job and ends, has its server import only what
 that job's function needs where :data:`ONLY_FOR` names it (``import-maps``: numpy and the
-grouping, not the model, the store or OpenCV).
+grouping, not the model, the store or OpenCV). A command that can tell its job's first items
+before it opens the project hands them to a pool at once (:func:`early_pool`): the job then
+takes that pool and those of its results whose items are equal to its own first ones.
 """
 
 from __future__ import annotations
@@ -522,16 +524,24 @@ class _Early:
         self.pool = _Pool(workers - 1, None, (), fn, then=self._send)
 
     def _send(self, pool: _Pool) -> None:
-        """Hand every item to ``pool``, now up (on its start thread), unless a job or
-        :func:`drop_early` took the pool first."""
-        with self._lock:
-            if self._taken or pool.executor is None:
-                return
-            try:
-                for item in self.items:
-                    self.sent.append(pool.executor.submit(self.fn, item))
-            except RuntimeError:  # the pool is being shut down
-                pass
+        """Keep ``pool``, now up, busy with the items (on its start thread): at most
+        :data:`_POOL_AHEAD` per process in flight, as a job keeps it, until a job or
+        :func:`drop_early` takes the pool or no item is left."""
+        ahead = _POOL_AHEAD * pool.workers
+        while True:
+            with self._lock:
+                if self._taken or pool.executor is None:
+                    return
+                flight = [f for f in self.sent[-ahead:] if not f.done()]
+                try:
+                    while len(flight) < ahead and len(self.sent) < len(self.items):
+                        flight.append(pool.executor.submit(self.fn, self.items[len(self.sent)]))
+                        self.sent.append(flight[-1])
+                except RuntimeError:  # the pool is being shut down
+                    return
+                if len(self.sent) == len(self.items):
+                    return
+            wait(flight[:1], timeout=_POLL_SECONDS, return_when=FIRST_COMPLETED)
 
     def take(self) -> list[tuple[Future[Any], Any]]:
         """The items handed to the pool so far with their futures; none are handed after."""
@@ -547,7 +557,8 @@ _early: _Early | None = None
 def early_pool(fn: Callable[[T], R], items: Iterable[T], workers: int) -> bool:
     """Start a pool of ``workers - 1`` processes now and hand it ``items``, the first items of
     a job that will call :func:`ordered_map` with ``fn`` soon (the first ones it would
-    compute); whether a pool was started (one worker: none).
+    compute); whether a pool was started (one worker: none). The pool gets them a few at a time,
+    as a job's pool does, until the job takes it.
 
     A command that can tell its job's first items before it opens the project (``import-maps``
     reads them with :mod:`sqlite3` alone, :func:`app.store.peek.map_frames_hint`) calls it
@@ -555,8 +566,8 @@ def early_pool(fn: Callable[[T], R], items: Iterable[T], workers: int) -> bool:
     store and opens the project, instead of waiting for it. :func:`ordered_map` then takes the
     pool and those results for as many of its items as are equal to these, in order, and
     computes anything else as usual (a first item that differs, and every item after it, is
-    computed again), so the results are the same with or without. Give a few, for what the
-    command takes to reach the job (the pool computes only these until then); call
+    computed again), so the results are the same with or without. Give enough for what the
+    command takes to reach the job (the pool idles once it has computed them all); call
     :func:`drop_early` when the job may not run (an error on the way), so the pool stops.
     """
     global _early
