@@ -21,7 +21,12 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from app.analysis.kinds import ALL_KINDS
-from app.analysis.triage.findings import Finding, frame_findings, labels_digest
+from app.analysis.triage.findings import (
+    Finding,
+    frame_findings,
+    labels_digest,
+    placed_by_people,
+)
 from app.analysis.triage.temporal import (
     TIME_KINDS,
     TrackedFrame,
@@ -67,7 +72,7 @@ def findings_from_labels(frame: Frame, labels: FrameLabels, skeleton: Skeleton, 
         frame.id, {p.id: p.keypoints for p in labels.people.values()}, skeleton,
         scores={p.id: p.scores for p in labels.people.values()}, maps=maps,
         image_size=(frame.width, frame.height) if frame.width > 0 else None, triage=triage,
-        dismissed=labels.dismissed)
+        dismissed=labels.dismissed, placed=placed_by_people(labels))
 
 
 def current_findings(project: Project, frame_ids: Iterable[int] | None = None,

@@ -43,7 +43,7 @@ from app.analysis.triage.calibration import (
     fit_logistic,
     reliability_table,
 )
-from app.analysis.triage.findings import frame_findings
+from app.analysis.triage.findings import frame_findings, placed_by_people
 from app.analysis.triage.fixes import KINDS, FrameView, propose
 from app.analysis.triage.frame import triage_frame
 from app.analysis.triage.model_evidence import FieldMemo
@@ -272,7 +272,8 @@ def accept_all(frames: Iterable[DemoFrame], calibration: Calibration = SHIPPED,
             view = _view(frame, labels, labels.skeleton)
             found = frame_findings(frame.frame.id, view.people, labels.skeleton, view.scores,
                                    frame.maps, view.image_size, view.triage,
-                                   labels.dismissed, calibration=calibration)
+                                   labels.dismissed, calibration=calibration,
+                                   placed=placed_by_people(labels))
             chosen, _ = select_fixes(found)
             if not chosen:
                 break

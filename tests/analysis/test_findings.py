@@ -19,9 +19,9 @@ import numpy as np
 
 from app.analysis.targets import confidence_maps, part_affinity_fields
 from app.analysis.triage.calibration import Calibration
-from app.analysis.triage.findings import Finding, frame_findings, preview
+from app.analysis.triage.findings import Finding, frame_findings, placed_by_people, preview
 from app.analysis.triage.fixes import KINDS, body_chains
-from app.model.edits import EditGroup, needs_person_id, with_person_id
+from app.model.edits import EditContext, EditGroup, MoveJoint, needs_person_id, with_person_id
 from app.model.labels import FrameLabels, Person
 from app.model.skeleton import coco_body
 from tests.analysis.synth import person
@@ -269,6 +269,25 @@ def test_a_confident_joint_behind_a_nearer_trunk_is_unlabeled():
     np.testing.assert_array_equal(after.people[far].keypoints[:9], people[far][:9])
 
 
+def test_a_joint_a_person_placed_behind_a_nearer_trunk_is_not_unlabeled():
+    """The same confident wrist, but placed by a person (its provenance an author, e.g. a
+    fix they accepted): the score it carries is the model's at its old spot
+    (:class:`MoveJoint` keeps it), not a word on where it is now, so the ``invented`` check
+    leaves it alone. ``placed_by_people`` reads that provenance. Our own rule (synthetic)."""
+    people, far, near = _near_and_far()
+    people[far] = people[far].copy()
+    people[far][J["left_wrist"], :2] = _trunk_point(people[near])
+    scores = {p: np.full(17, 0.8) for p in people}
+    scores[far] = np.full(17, 0.5)
+    scores[far][J["left_wrist"]] = 0.98
+    labels = _labels(people, scores)
+    moved = MoveJoint(1, far, J["left_wrist"], *people[far][J["left_wrist"], :2])
+    placed = placed_by_people(moved.apply(labels, EditContext("ann"))[0])
+    assert placed == {far: frozenset({J["left_wrist"]})}
+    assert [f for f in _find(people, "invented", scores, placed=placed)
+            if f.person_id == far] == []
+
+
 def test_a_faint_joint_behind_a_nearer_trunk_is_marked_occluded():
     """The same place scored 0.3 (the model agrees it is hidden) and labelled visible: it is
     marked occluded where it is (COCO v = 1), its position kept."""
@@ -335,6 +354,20 @@ def test_a_joint_unlabelled_at_the_peak_is_not_placed_there_again():
     people = {i + 1: truth[i].copy() for i in range(3)}
     people[2][J["left_wrist"], 2] = 0
     assert _find(people, "missing-joint", maps=_maps(truth)) == []
+
+
+def test_a_joint_a_person_unlabelled_is_not_offered_back_elsewhere():
+    """Person 2's left wrist remembers a spot far from the model's peak, so the peak alone
+    would be offered back; but a person (or a fix they accepted) unlabelled it (its
+    provenance is an author, ``placed``): the person's decision stands, nothing is offered.
+    Our own rule, against the place-then-unlabel round trip (synthetic)."""
+    truth = _three()
+    people = {i + 1: truth[i].copy() for i in range(3)}
+    people[2][J["left_wrist"]] = (truth[1, J["left_wrist"], 0] + 120.0,
+                                  truth[1, J["left_wrist"], 1], 0)
+    assert len(_find(people, "missing-joint", maps=_maps(truth))) == 1
+    assert _find(people, "missing-joint", maps=_maps(truth),
+                 placed={2: {J["left_wrist"]}}) == []
 
 
 def _covered_forearm(truth: np.ndarray, height: float) -> SimpleNamespace:

@@ -54,7 +54,7 @@ from app.model.edits import (
     needs_person_id,
     with_person_id,
 )
-from app.model.labels import FrameLabels, Person
+from app.model.labels import AUTO, IMPORTED, FrameLabels, Person
 from app.model.naming import Names
 from app.model.skeleton import Skeleton
 
@@ -352,6 +352,31 @@ def preview(labels: FrameLabels, edits: Sequence[Edit]) -> FixPreview:
                       tuple(merged), tuple(created))
 
 
+def placed_by_people(labels: FrameLabels) -> dict[int, frozenset[int]]:
+    """Person id -> the joints whose provenance is an author (a person placed or marked them,
+    or accepted a fix that did), not the model (``auto``) nor an import.
+
+    A joint a person moved keeps the model's score of its old spot (:class:`MoveJoint`
+    keeps it), so a check that reads that score as the model's word on the joint's present
+    place (``invented``) must leave these joints alone.
+
+    Examples
+    --------
+    >>> from app.model.skeleton import coco_body
+    >>> kp = np.zeros((17, 3)); kp[:, 2] = 2
+    >>> src = ("auto",) * 16 + ("ann",)
+    >>> labels = FrameLabels(1, coco_body(), {3: Person(3, kp, np.ones(17), src)})
+    >>> placed_by_people(labels)
+    {3: frozenset({16})}
+    """
+    out = {}
+    for p in labels.people.values():
+        mine = frozenset(j for j, s in enumerate(p.sources) if s not in (AUTO, IMPORTED))
+        if mine:
+            out[p.id] = mine
+    return out
+
+
 def frame_findings(
     frame_id: int,
     people: Mapping[int, Any],
@@ -363,6 +388,7 @@ def frame_findings(
     dismissed: Iterable[str] = (),
     kinds: Iterable[str] | None = None,
     calibration: Calibration = SHIPPED,
+    placed: Mapping[int, Iterable[int]] | None = None,
 ) -> list[Finding]:
     """A frame's findings, worst first.
 
@@ -390,6 +416,10 @@ def frame_findings(
     calibration
         Turns a finding's strength into its confidence (default: the shipped one, see
         :mod:`app.analysis.triage.calibration`).
+    placed
+        Person id -> the joints a person placed or marked (their provenance is an author,
+        not the model or an import; :func:`placed_by_people`): the ``invented`` check
+        leaves them alone, since their model score belongs to the model's old spot.
 
     Returns
     -------
@@ -409,7 +439,8 @@ def frame_findings(
         maps = FieldMemo(maps)  # triage and the proposers ask for many of the same E
     if triage is None:
         triage = triage_frame(arrays, skeleton, score_arrays, maps, image_size)
-    view = FrameView(frame_id, arrays, skeleton, score_arrays, maps, image_size, triage)
+    view = FrameView(frame_id, arrays, skeleton, score_arrays, maps, image_size, triage,
+                     {int(p): frozenset(int(j) for j in js) for p, js in (placed or {}).items()})
     wanted = set(KINDS if kinds is None else kinds)
     labels = _labels(frame_id, skeleton, arrays, score_arrays)
     skip = set(dismissed)

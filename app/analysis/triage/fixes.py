@@ -203,6 +203,10 @@ class FrameView:
         ``(width, height)`` or None.
     triage
         The frame's :class:`~app.analysis.triage.combine.FrameTriage`.
+    placed
+        Person id -> joints a person placed or marked (not the model, not an import):
+        :func:`invented_joints` proposes no unlabelling of those (their score is stale),
+        and :func:`missing_joints` places none of them that a person unlabelled.
     """
 
     frame_id: int
@@ -212,6 +216,7 @@ class FrameView:
     maps: Any
     image_size: tuple[int, int] | None
     triage: FrameTriage
+    placed: Mapping[int, frozenset[int]] = field(default_factory=dict)
     names: Names = field(init=False)
     _evidence: dict[tuple[int, bytes], float] = field(init=False, default_factory=dict)
 
@@ -314,8 +319,10 @@ class FrameView:
         reasons += upright_body(pid, kp, sk, scale)
         reasons += off_ground(pid, kp, sk, scale, self.line)
         reasons += crossed_sides(pid, kp, sk, scale, self.maps)
-        # A weak limb weighs nothing in the present fit (app.analysis.triage.combine): its
-        # line integrals, most of this function's cost, would only add zeros.
+        # A weak limb counts (WEIGHTS["weak-limb"] is 0.5 since the refit of
+        # app.analysis.triage.combine): its line integrals are most of this function's cost,
+        # kept down by the view's FieldMemo (each limb's E at the same spots is asked once)
+        # and by the cache above; a weight of zero would skip them.
         if self.typical is not None and WEIGHTS["weak-limb"] != 0.0:
             support = limb_support(kp[None], sk, self.maps)[0]
             reasons += weak_limbs(pid, kp, sk, support, self.typical)
@@ -893,8 +900,9 @@ def invented_joints(view: FrameView,
         mine = view.scores.get(p)
         if mine is None:
             continue
+        placed = view.placed.get(p, frozenset())
         for j, cover in joints:
-            if not np.isfinite(mine[j]):
+            if not np.isfinite(mine[j]) or j in placed:
                 continue
             ratio = float(mine[j]) / view.typical_score
             strength = ramp(ratio, INVENTED_FROM, INVENTED_SURE)
@@ -1007,7 +1015,9 @@ def missing_joints(view: FrameView, peaks: _Peaks | None = None) -> list[Proposa
     best, Cao et al.'s greedy matching per limb, Sec. 2.4). The joints placed in a round are
     the neighbours of the next: a missing elbow and wrist are placed together, the wrist
     joined to the elbow's peak. A peak where the person's joint was unlabeled (the position
-    it remembers) is not offered: someone, or a fix, took it away there.
+    it remembers) is not offered: someone, or a fix, took it away there; nor is any peak for
+    a joint a person unlabelled (:attr:`FrameView.placed`: its provenance is an author), so
+    that a joint a fix took away as an invented spot is not offered back at a peak nearby.
 
     Strength: the least sure placed joint's offer. Fix: place the joints at their peaks,
     visible, or occluded (COCO ``v = 1``) where the peak is fainter than ``INVENTED_FROM`` of
@@ -1039,7 +1049,8 @@ def missing_joints(view: FrameView, peaks: _Peaks | None = None) -> list[Proposa
             mine = placed.get(p, {})
             at = _placed_view(kp, mine)
             for j in range(view.skeleton.num_joints):
-                if known[p][j] or j in mine or not any(o in new[p] for _, o in limbs_of[j]):
+                if (known[p][j] or j in mine or j in view.placed.get(p, ())
+                        or not any(o in new[p] for _, o in limbs_of[j])):
                     continue
                 for n, (x, y, score) in enumerate(peaks.unused[j].tolist()):
                     # Without scores there is no typical height: the field alone decides.
