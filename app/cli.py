@@ -25,7 +25,7 @@ from typing import TYPE_CHECKING, Any, NoReturn
 
 from app import __version__
 from app.errors import BadInput, Cancelled, PosewrightError, ProjectLocked
-from app.parallel import check_workers, head_start, keep_freed_memory
+from app.parallel import check_workers, drop_early, early_pool, head_start, keep_freed_memory
 from app.progress import Progress
 from app.safetext import shown
 from app.wording import count, count_phrase, ledger_text
@@ -358,13 +358,37 @@ def cmd_import_maps(args: argparse.Namespace) -> int:
     workers = check_workers(args.workers)
     keep_freed_memory()  # this process ends with the job (app/parallel.py)
     # Before the job's imports: the workers' own start runs beside them (app/parallel.py).
-    head_start("app.map_runs.group_runs", _files_ending(args.dir, ".npz"), workers)
-    from app.jobs_analysis import import_maps
+    if head_start("app.map_runs.group_runs", _files_ending(args.dir, ".npz"), workers):
+        _first_maps(args, workers)
+    try:
+        from app.jobs_analysis import import_maps
 
-    with _open(args) as project:
-        stats = import_maps(project, args.dir, progress=_stderr_progress(args.quiet),
-                            workers=workers, frame_before=args.frame_before or None)
+        with _open(args) as project:
+            stats = import_maps(project, args.dir, progress=_stderr_progress(args.quiet),
+                                workers=workers, frame_before=args.frame_before or None)
+    finally:
+        drop_early()  # the job did not take it (an error on the way)
     return _report_counts(args, stats)
+
+
+def _first_maps(args: argparse.Namespace, workers: int) -> None:
+    """Hand the workers the first frames to group before the project is open
+    (:func:`app.parallel.early_pool`), when a folder project tells them
+    (:func:`app.store.peek.map_frames_hint`, :func:`app.map_runs.first_items`) and each frame
+    is grouped alone (the default, ``FRAME_BEFORE`` off, and no ``--frame-before``). The job
+    checks them against its own and computes again any that differ."""
+    if args.frame_before:
+        return
+    from app.store.peek import map_frames_hint
+
+    hint = map_frames_hint(args.project)
+    if hint is None:
+        return
+    from app.map_runs import first_items, group_runs
+
+    items = first_items(*hint, args.dir)
+    if items:
+        early_pool(group_runs, items, workers)
 
 
 def _files_ending(folder: str | Path, suffix: str) -> int:

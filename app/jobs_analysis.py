@@ -28,7 +28,8 @@ from app.errors import BadInput, NotFound
 from app.fileio import read_json
 from app.formats.maps import NetworkMaps, match_map_files, read_maps, read_npz
 from app.jobs import EXPORT_STATES, choose_frames
-from app.map_runs import Found, found_person, group_runs
+from app.map_runs import Found, found_person, group_runs, map_items
+from app.map_runs import pack_runs as _packed
 from app.model.labels import AUTO, Frame, FrameLabels, FrameState, Person
 from app.model.sequences import NOT_SEQUENCES, parse_not_sequences, sequences
 from app.model.skeleton import Skeleton
@@ -47,10 +48,6 @@ TARGETS_VERSION = 1
 #: the workers in runs of at most this many consecutive frames; the first frame of a run is
 #: grouped without one. Fixed, so the auto-labels are the same whatever the number of workers.
 GROUPING_RUN = 16
-
-#: Frames of maps at most in one item handed to the workers, in runs grouped alone or in
-#: order (see :func:`_packed`); fixed, so the results are the same whatever the workers.
-PACK_FRAMES = 4
 
 #: Whether :func:`import_maps` groups the frames of a sequence with the frame before by
 #: default (``import-maps --frame-before`` asks for it). Off: with it, the demo's labelled
@@ -101,14 +98,11 @@ def import_maps(project: Project, folder: str | Path,
     # frame before (read only then: alone, each frame is a run of its own).
     kept = project.people_of_frames(has_people & files.keys()) if in_order else {}
     # Plain numbers and arrays, so that the workers need not import the model (app.map_runs).
-    k, limbs = project.skeleton.num_joints, [(int(a), int(b)) for a, b in project.skeleton.limbs]
+    k = project.skeleton.num_joints
     packs = _packed(runs)
-    items = [(k, limbs,
-              [[(str(files[f]), frames[f].width, frames[f].height,
-                 None if f not in has_people else [p.keypoints for p in kept.get(f, [])])
-                for f in run]
-               for run in pack])
-             for pack in packs]
+    items = map_items(k, project.skeleton.limbs, packs, files, {
+        f: (frames[f].width, frames[f].height) for f in files},
+        {f: [p.keypoints for p in kept.get(f, [])] for f in has_people & files.keys()})
     results: dict[int, tuple[int, Found | None]] = {}
     for pack, found in zip(packs, ordered_map(group_runs, items, workers, progress,
                                               "reading maps"), strict=True):
@@ -127,41 +121,6 @@ def import_maps(project: Project, folder: str | Path,
         b.count("frames with maps", len(files))
         b.count("frames grouped", len({f for f, _ in grouped}))
     return b.stats
-
-
-def _packed(runs: list[list[int]], frames: int | None = None,
-            alone: int = 2) -> list[list[list[int]]]:
-    """``runs`` (see :func:`_grouping_runs`) packed into the items :func:`import_maps` hands
-    the workers: consecutive runs of at most ``frames`` frames in all (default
-    :data:`PACK_FRAMES`; a longer run is an item of its own), but the first ``alone`` runs
-    and those of the last ``2 * frames`` frames each alone. Fixed, whatever the number of
-    workers, so the results are the same.
-
-    A frame of maps takes about 11-12 ms of CPU on a quiet machine, and each item crossing to
-    a worker and back cost the calling process about 0.6 ms of its threads' time besides
-    (traced at load 2-3, 3 December 2026): four frames an item cost a quarter of that. The
-    first items stay single, since :func:`app.parallel.ordered_map` asks for the pool once
-    two have run, and so do the last ones, so that the process that finishes first waits at
-    most one frame for the other.
-
-    >>> _packed([[1], [2], [3], [4], [5], [6], [7], [8], [9], [10, 11, 12], [13]], 2)
-    [[[1]], [[2]], [[3], [4]], [[5], [6]], [[7], [8]], [[9]], [[10, 11, 12]], [[13]]]
-    """
-    frames = PACK_FRAMES if frames is None else frames
-    total = sum(len(r) for r in runs)
-    packs: list[list[list[int]]] = []
-    size = 0
-    seen = 0
-    for n, run in enumerate(runs):
-        single = n < alone or seen + len(run) > total - 2 * frames
-        seen += len(run)
-        if single or not packs or size + len(run) > frames:
-            packs.append([run])
-            size = frames if single else len(run)  # nothing joins a run kept alone
-        else:
-            packs[-1].append(run)
-            size += len(run)
-    return packs
 
 
 def _grouping_runs(sequences: Sequence[Sequence[int]], files: dict[int, Any],

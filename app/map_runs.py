@@ -12,14 +12,29 @@ the project's frames and turns the results into people.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Iterable, Mapping, Sequence
+from pathlib import Path
+from typing import Any
 
 import numpy as np
 
 from app.analysis.association import group_people
-from app.formats.maps import read_map_arrays
+from app.errors import BadInput
+from app.formats.maps import match_map_files, read_map_arrays
 
-__all__ = ["Found", "Runs", "found_person", "group_runs"]
+__all__ = ["PACK_FRAMES", "Found", "Runs", "first_items", "found_person", "group_runs",
+           "map_items", "pack_runs"]
+
+#: Frames of maps at most in one item handed to the workers, in runs grouped alone or in
+#: order (see :func:`pack_runs`); fixed, so the results are the same whatever the workers.
+PACK_FRAMES = 4
+
+#: How many items :func:`first_items` gives at most (the first two a frame each, then up to
+#: :data:`PACK_FRAMES`): the pool computes them a few at a time until the job takes it, which
+#: the command reaches 0.3-0.5 s after its start on a quiet machine and 1.5 s at load 5
+#: (3 December 2026), so 40-130 frames in; far more than that, to keep the pool busy however
+#: long opening the project takes (the items are a few numbers and a file name each).
+FIRST_ITEMS = 1000
 
 #: Runs of frames to group, each in order: the skeleton's number of joints, its limbs as
 #: pairs of joint indices, then the runs, each a list of frames: the maps file, the image's
@@ -81,3 +96,85 @@ def found_person(found: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray, flo
     kp[on, 2] = 2
     scores = np.where(on, found[:, 2], np.nan)
     return kp, scores, float(found[on, 2].mean()) if on.any() else 0.0
+
+
+def map_items(joints: int, limbs: Iterable[Sequence[int]], packs: list[list[list[int]]],
+              files: Mapping[int, str | Path], sizes: Mapping[int, tuple[int, int]],
+              kept: Mapping[int, list[np.ndarray]]) -> list[Runs]:
+    """The items :func:`group_runs` takes for ``packs`` of runs of frame ids (see
+    :func:`pack_runs`): each frame's maps file, its image's width and height, and the
+    keypoints of the people of the frames that keep theirs (``kept``; any other frame is
+    grouped)."""
+    pairs = [(int(a), int(b)) for a, b in limbs]
+    return [(joints, pairs,
+             [[(str(files[f]), sizes[f][0], sizes[f][1], kept.get(f)) for f in run]
+              for run in pack])
+            for pack in packs]
+
+
+def first_items(skeleton: dict[str, Any], frames: Sequence[tuple[int, str, int, int, str]],
+                with_people: set[int], folder: str | Path,
+                count: int | None = None) -> list[Runs]:
+    """The first ``count`` (default :data:`FIRST_ITEMS`) items that
+    :func:`app.jobs_analysis.import_maps` hands its workers when each frame is grouped alone,
+    told from :func:`app.store.peek.map_frames_hint` (the stored skeleton, the frames, those
+    with people) before the project is open; none when anything does not fit, since the job
+    tells its own items anyway and computes again any that differ
+    (:func:`app.parallel.early_pool`)."""
+    try:
+        names = [str(j["name"]) for j in skeleton["joints"]]
+        index = {n: i for i, n in enumerate(names)}
+        limbs = [tuple(end if isinstance(end, int) else index[end] for end in limb)
+                 for limb in skeleton["limbs"]]
+        files = match_map_files(folder, [_Named(f[0], f[1]) for f in frames])  # type: ignore[misc]
+    except (BadInput, KeyError, TypeError, ValueError, OSError):
+        return []
+    rows = {f[0]: f for f in frames}
+    if any(rows[f][4] != "ok" for f in files):
+        return []  # the job stops on it
+    packs = pack_runs([[f] for f in sorted(files)])[:FIRST_ITEMS if count is None else count]
+    return map_items(len(names), limbs, packs, files, {f: (rows[f][2], rows[f][3]) for f in files},
+                     {f: [] for f in with_people})
+
+
+class _Named:
+    """A frame's id and file name, all :func:`match_map_files` reads of a frame."""
+
+    def __init__(self, id: int, file_name: str):
+        self.id = id
+        self.file_name = file_name
+
+
+def pack_runs(runs: list[list[int]], frames: int | None = None,
+              alone: int = 2) -> list[list[list[int]]]:
+    """``runs`` (see :func:`app.jobs_analysis._grouping_runs`) packed into the items
+    :func:`app.jobs_analysis.import_maps` hands the workers: consecutive runs of at most
+    ``frames`` frames in all (default :data:`PACK_FRAMES`; a longer run is an item of its own),
+    but the first ``alone`` runs and those of the last ``2 * frames`` frames each alone. Fixed,
+    whatever the number of workers, so the results are the same.
+
+    A frame of maps takes about 11-12 ms of CPU on a quiet machine, and each item crossing to
+    a worker and back cost the calling process about 0.6 ms of its threads' time besides
+    (traced at load 2-3, 3 December 2026): four frames an item cost a quarter of that. The
+    first items stay single, since :func:`app.parallel.ordered_map` asks for the pool once
+    two have run, and so do the last ones, so that the process that finishes first waits at
+    most one frame for the other.
+
+    >>> pack_runs([[1], [2], [3], [4], [5], [6], [7], [8], [9], [10, 11, 12], [13]], 2)
+    [[[1]], [[2]], [[3], [4]], [[5], [6]], [[7], [8]], [[9]], [[10, 11, 12]], [[13]]]
+    """
+    frames = PACK_FRAMES if frames is None else frames
+    total = sum(len(r) for r in runs)
+    packs: list[list[list[int]]] = []
+    size = 0
+    seen = 0
+    for n, run in enumerate(runs):
+        single = n < alone or seen + len(run) > total - 2 * frames
+        seen += len(run)
+        if single or not packs or size + len(run) > frames:
+            packs.append([run])
+            size = frames if single else len(run)  # nothing joins a run kept alone
+        else:
+            packs[-1].append(run)
+            size += len(run)
+    return packs

@@ -30,11 +30,14 @@ items have run, without timing them for :data:`_PROBE_SECONDS`);
 every worker is then a fork of it that imports nothing more, so a later pool is up in a
 fraction of a second. A command, which runs one job and ends, has its server import only what
 that job's function needs where :data:`ONLY_FOR` names it (``import-maps``: numpy and the
-grouping, not the model, the store or OpenCV).
+grouping, not the model, the store or OpenCV). A command that can tell its job's first items
+before it opens the project hands them to a pool at once (:func:`early_pool`): the job then
+takes that pool and those of its results whose items are equal to its own first ones.
 """
 
 from __future__ import annotations
 
+import itertools
 import logging
 import multiprocessing
 import os
@@ -49,7 +52,8 @@ from app.errors import BadInput
 from app.progress import Progress
 
 __all__ = ["ONLY_FOR", "POOL_START_SECONDS", "PRELOAD", "PRELOAD_FOR", "WORKERS_ENV",
-           "check_workers", "default_workers", "head_start", "keep_freed_memory", "ordered_map"]
+           "check_workers", "default_workers", "drop_early", "early_pool", "head_start",
+           "keep_freed_memory", "ordered_map"]
 
 log = logging.getLogger(__name__)
 
@@ -235,6 +239,15 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
     if total is None:
         total = len(items)  # type: ignore[arg-type]
     initargs = tuple(initargs)
+    if _early is not None:
+        early = (_take_early(fn, iter(items), workers)
+                 if initializer is None and here is None else drop_early())
+        if early is not None:
+            log.debug("%s: %d of %d items handed to the pool before the job", label or "job",
+                      len(early[1]), total)
+            yield from _alongside(fn, early[2], 0, total, workers, progress, label, None, (),
+                                  early=(early[0], early[1]))
+            return
     # So many items that a pool pays whatever they take: the fork server starts now, and the
     # pool once two items have run here (not after timing them for _PROBE_SECONDS).
     large = _pays_at_any_pace(total, workers)
@@ -411,8 +424,10 @@ class _Pool:
     """
 
     def __init__(self, workers: int, initializer: Callable[..., Any] | None,
-                 initargs: tuple[Any, ...], fn: Callable[..., Any] | None = None):
+                 initargs: tuple[Any, ...], fn: Callable[..., Any] | str | None = None,
+                 then: Callable[[_Pool], Any] | None = None):
         self.workers = workers
+        self._then = then  # given this pool on its start thread once up, if the start went well
         self.executor: ProcessPoolExecutor | None = None
         self.error: BaseException | None = None
         self.up = threading.Event()
@@ -427,7 +442,7 @@ class _Pool:
             self._thread.join()
 
     def _start(self, initializer: Callable[..., Any] | None, initargs: tuple[Any, ...],
-               fn: Callable[..., Any] | None) -> None:
+               fn: Callable[..., Any] | str | None) -> None:
         global _server_since
         try:
             self.executor = ProcessPoolExecutor(self.workers, mp_context=_context(fn),
@@ -446,6 +461,8 @@ class _Pool:
             dropped = self._dropped
         if dropped:
             self._shutdown()
+        elif self.error is None and self._then is not None:
+            self._then(self)
 
     def close(self) -> None:
         """Stop the workers (items not started are dropped, running ones end); a pool still
@@ -495,6 +512,116 @@ def head_start(job: str, items: int, workers: int) -> bool:
     return large
 
 
+class _Early:
+    """A pool started by :func:`early_pool` and the futures of the items handed to it."""
+
+    def __init__(self, fn: Callable[..., Any], items: list[Any], workers: int):
+        self.fn = fn
+        self.items = items
+        self.sent: list[Future[Any]] = []
+        self._lock = threading.Lock()
+        self._taken = False
+        self.pool = _Pool(workers - 1, None, (), fn, then=self._send)
+
+    def _send(self, pool: _Pool) -> None:
+        """Keep ``pool``, now up, busy with the items (on its start thread): at most
+        :data:`_POOL_AHEAD` per process in flight, as a job keeps it, until a job or
+        :func:`drop_early` takes the pool or no item is left."""
+        ahead = _POOL_AHEAD * pool.workers
+        while True:
+            with self._lock:
+                if self._taken or pool.executor is None:
+                    return
+                flight = [f for f in self.sent[-ahead:] if not f.done()]
+                try:
+                    while len(flight) < ahead and len(self.sent) < len(self.items):
+                        flight.append(pool.executor.submit(self.fn, self.items[len(self.sent)]))
+                        self.sent.append(flight[-1])
+                except RuntimeError:  # the pool is being shut down
+                    return
+                if len(self.sent) == len(self.items):
+                    return
+            wait(flight[:1], timeout=_POLL_SECONDS, return_when=FIRST_COMPLETED)
+
+    def take(self) -> list[tuple[Future[Any], Any]]:
+        """The items handed to the pool so far with their futures; none are handed after."""
+        with self._lock:
+            self._taken = True
+            return list(zip(self.sent, self.items, strict=False))
+
+
+#: The pool :func:`early_pool` started and that no job has taken yet.
+_early: _Early | None = None
+
+
+def early_pool(fn: Callable[[T], R], items: Iterable[T], workers: int) -> bool:
+    """Start a pool of ``workers - 1`` processes now and hand it ``items``, the first items of
+    a job that will call :func:`ordered_map` with ``fn`` soon (the first ones it would
+    compute); whether a pool was started (one worker: none). The pool gets them a few at a time,
+    as a job's pool does, until the job takes it.
+
+    A command that can tell its job's first items before it opens the project (``import-maps``
+    reads them with :mod:`sqlite3` alone, :func:`app.store.peek.map_frames_hint`) calls it
+    after :func:`head_start`, so the second core computes them while the command imports the
+    store and opens the project, instead of waiting for it. :func:`ordered_map` then takes the
+    pool and those results for as many of its items as are equal to these, in order, and
+    computes anything else as usual (a first item that differs, and every item after it, is
+    computed again), so the results are the same with or without. Give enough for what the
+    command takes to reach the job (the pool idles once it has computed them all); call
+    :func:`drop_early` when the job may not run (an error on the way), so the pool stops.
+    """
+    global _early
+    drop_early()
+    if workers <= 1:
+        return False
+    _early = _Early(fn, list(items), workers)
+    return True
+
+
+def drop_early() -> None:
+    """Stop the pool of :func:`early_pool` if no job has taken it (nothing otherwise)."""
+    global _early
+    early, _early = _early, None
+    if early is not None:
+        early.take()
+        for future in early.sent:
+            future.cancel()
+        early.pool.close()
+
+
+def _take_early(fn: Callable[[T], R], upcoming: Iterator[T], workers: int
+                ) -> tuple[_Pool, list[tuple[Future[R], bool, T]], Iterator[T]] | None:
+    """The pool of :func:`early_pool` if it was started for ``fn`` on ``workers`` workers,
+    with the futures of the first items of ``upcoming`` that are equal to those handed to it,
+    and the rest of ``upcoming``; None (and that pool stopped) otherwise."""
+    global _early
+    early = _early
+    if early is None or early.fn is not fn or early.pool.workers != workers - 1:
+        drop_early()
+        return None
+    _early = None
+    pending: list[tuple[Future[R], bool, T]] = []
+    sent = early.take()
+    for n, (future, given) in enumerate(sent):
+        item = next(upcoming, _END)
+        if item is _END or not _same(item, given):
+            for later, _ in sent[n:]:
+                later.cancel()  # one already running ends, and is thrown away
+            if item is not _END:
+                upcoming = itertools.chain([item], upcoming)  # type: ignore[list-item]
+            break
+        pending.append((future, True, item))  # type: ignore[arg-type]
+    return early.pool, pending, upcoming
+
+
+def _same(a: Any, b: Any) -> bool:
+    """Whether two items are equal (items holding arrays count as different)."""
+    try:
+        return bool(a == b)
+    except Exception:  # an array's truth is ambiguous: computed again
+        return False
+
+
 def _pays_at_any_pace(items: int, workers: int) -> bool:
     """Whether a pool repays its start on ``items`` items even at the least an item takes
     (:data:`_LEAST_ITEM_SECONDS`)."""
@@ -533,21 +660,36 @@ def _start_cost() -> float:
 
 def _alongside(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: int, workers: int,
                progress: Progress, label: str, initializer: Callable[..., Any] | None,
-               initargs: tuple[Any, ...], sharing: Callable[[], Any] | None = None
+               initargs: tuple[Any, ...], sharing: Callable[[], Any] | None = None,
+               early: tuple[_Pool, list[tuple[Future[R], bool, T]]] | None = None
                ) -> Iterator[R]:
     """The items left in ``upcoming`` (``done`` of ``total`` already taken): this process
     calls ``sharing`` and goes on with them while a pool of ``workers - 1`` processes starts,
-    then shares them with it, so ``workers`` processes compute in all."""
+    then shares them with it, so ``workers`` processes compute in all. ``early``: the pool
+    that :func:`early_pool` started and the futures of the first items, handed to it before
+    the job began (``upcoming`` then starts after them)."""
+    if early is not None:
+        pool, sent = early
+        yield from _shared(fn, upcoming, done, total, progress, label, pool, deque(sent))
+        return
     if sharing is not None:
         # Now, not once the pool is up: the fork server's imports and the workers' set-up
         # run on the cores this process would otherwise keep busy with threads of its own
         # (with pre-labelling's second OpenCV thread, the pool took longer to come up).
         sharing()
     pool = _Pool(workers - 1, initializer, initargs, fn)
-    # In the items' order: the result to come, whether the pool computes it, and the item
-    # (so that an item the pool has not started can be taken back).
-    pending: deque[tuple[Future[R], bool, T]] = deque()
-    on_pool = 0
+    yield from _shared(fn, upcoming, done, total, progress, label, pool, deque())
+
+
+def _shared(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: int,
+            progress: Progress, label: str, pool: _Pool,
+            pending: deque[tuple[Future[R], bool, T]]) -> Iterator[R]:
+    """The items left in ``upcoming``, shared between this process and ``pool`` (up or
+    starting) once it is up, after those in ``pending``: in the items' order, the result to
+    come, whether the pool computes it, and the item (so that an item the pool has not
+    started can be taken back). The pool is closed at the end."""
+    workers = pool.workers + 1
+    on_pool = sum(remote for _, remote, _ in pending)
     told = False
     # Results computed here and not yet yielded, at most: those computed while the pool
     # works through its queue, twice over, and a few more.

@@ -378,3 +378,49 @@ def test_a_batch_process_keeps_the_memory_it_frees():
         assert keep_freed_memory() in (True, False)
         return
     assert keep_freed_memory() is True
+
+
+def test_items_handed_to_a_pool_before_the_job_are_taken_if_equal(free_pool, monkeypatch):
+    """early_pool: the job takes the pool's results for its first items that are equal to
+    those handed early, in order, and computes the first that differs and the rest itself or
+    on the pool as usual; a job of another function drops the early pool. The results are
+    what one process gives."""
+    from app import parallel
+
+    taken = []
+    take = parallel._take_early
+    monkeypatch.setattr(parallel, "_take_early", lambda *a: taken.append(take(*a)) or taken[-1])
+    assert parallel.early_pool(_cube, [1, 2, 5, 4], 2)
+    assert list(ordered_map(_cube, [1, 2, 3, 4, 6], workers=2)) == [1, 8, 27, 64, 216]
+    assert parallel._early is None
+    assert [item for _, _, item in taken[0][1]] == [1, 2]  # taken up to the first that differs
+    assert parallel.early_pool(_pid, [0, 1], 2)
+    assert list(ordered_map(_cube, [1, 2, 3], workers=2)) == [1, 8, 27]
+    assert parallel._early is None
+    assert not parallel.early_pool(_cube, [1, 2], 1)  # one worker: no pool
+    assert parallel.early_pool(_cube, [1, 2], 2)
+    parallel.drop_early()
+    assert parallel._early is None
+
+
+def test_import_maps_with_frames_handed_early_stores_what_one_worker_does(
+        tmp_path, image_dir, maps_dir, free_pool, monkeypatch):  # noqa: F811
+    """The command hands its pool the first frames (read with sqlite3 alone, before it opens
+    the project) and the job takes those results: the people stored are those of one worker."""
+    from app import cli, map_runs, parallel
+
+    folder, _ = maps_dir
+    monkeypatch.setattr(cli, "head_start", lambda job, items, workers: workers > 1)
+    monkeypatch.setattr(map_runs, "FIRST_ITEMS", 3)
+    taken = []
+    take = parallel._take_early
+    monkeypatch.setattr(parallel, "_take_early", lambda *a: taken.append(take(*a)) or taken[-1])
+    snapshots = []
+    for workers in ("1", "2"):
+        proj = tmp_path / f"p{workers}"
+        assert main(["new", str(proj), "--images", str(image_dir), "-q"]) == 0
+        assert main(["import-maps", str(proj), str(folder), "-q", "--workers", workers]) == 0
+        snapshots.append(_snapshot(proj)[0])
+    assert len(taken) == 1 and len(taken[0][1]) == 3  # the three early frames were taken
+    assert sum(len(v) for v in snapshots[0].values()) >= 12
+    assert snapshots[0] == snapshots[1]

@@ -5,6 +5,7 @@ from __future__ import annotations
 import subprocess
 import sys
 
+import numpy as np
 import pytest
 
 from app.store import peek
@@ -21,7 +22,27 @@ def test_the_hint_is_the_projects_frame_count(project):
     assert peek.frame_count_hint("postgresql://localhost/posewright") is None
 
 
+@pytest.mark.folder_only
+def test_the_maps_hint_is_what_the_store_reads(project):
+    """import-maps' hint (read with sqlite3 alone, while the project is open): the skeleton as
+    the store keeps it, every frame's id, file name, size and status, and the frames with
+    people, as the store reads them."""
+    from app.model.labels import AUTO, Person
+
+    frame = project.frames()[2]
+    k = project.skeleton.num_joints
+    with project.bulk("Test", "a person", "test") as b:
+        b.add_people([(frame.id, Person(b.allocate_person_ids(1), np.zeros((k, 3)),
+                                        np.full(k, np.nan), (AUTO,) * k, 0.5))])
+    skeleton, frames, people = peek.map_frames_hint(place(project))
+    assert skeleton == project.skeleton.to_dict()
+    assert frames == [(f.id, f.file_name, f.width, f.height, f.status)
+                      for f in project.frames()]
+    assert people == project.frames_with_people() == {frame.id}
+
+
 def test_no_project_no_hint(tmp_path):
+    assert peek.map_frames_hint(tmp_path) is None
     assert peek.frame_count_hint(tmp_path) is None
     assert peek.frame_count_hint(tmp_path / "missing") is None
     (tmp_path / peek.DB_NAME).write_bytes(b"not a database")
