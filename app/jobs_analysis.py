@@ -427,7 +427,7 @@ def _triage_one(item: tuple[Frame, FrameLabels, str | None, Skeleton, bool]) -> 
     """One frame's verdict (with its findings when asked) and the digest of the labels it
     was computed from; run in a worker process (:func:`run_triage`)."""
     from app.analysis.triage import triage_frame
-    from app.analysis.triage.findings import labels_digest
+    from app.analysis.triage.findings import labels_digest, placed_by_people
     from app.jobs_findings import findings_from_labels
 
     frame, labels, maps_path, skeleton, findings = item
@@ -436,7 +436,8 @@ def _triage_one(item: tuple[Frame, FrameLabels, str | None, Skeleton, bool]) -> 
     verdict = triage_frame(
         {p.id: p.keypoints for p in ps}, skeleton,
         scores={p.id: p.scores for p in ps}, maps=maps,
-        image_size=(frame.width, frame.height) if frame.width > 0 else None)
+        image_size=(frame.width, frame.height) if frame.width > 0 else None,
+        placed=placed_by_people(labels))
     if findings:
         verdict.findings = findings_from_labels(frame, labels, skeleton, maps, verdict)
     return verdict, labels_digest(labels)

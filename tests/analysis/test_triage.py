@@ -623,6 +623,21 @@ def test_joints_behind_a_nearer_person_scored_as_seen_are_invented(score, v, fir
     assert all(r.kind != "invented" for r in unscored.reasons)     # no scores: silent
 
 
+def test_joints_a_person_placed_behind_a_nearer_person_are_not_invented():
+    """The same confident knees and ankles behind the singer in front, but placed by a
+    person (a moved joint keeps the model's score of its old spot): ``invented`` names only
+    the joints the model placed (our own rule; synthetic)."""
+    people, scores = _behind(0.8, 2)
+    knees = {J["left_knee"], J["right_knee"]}
+    t = triage_frame(people, SK, scores=scores, image_size=(1280, 720),
+                     placed={2: frozenset(knees)})
+    (r,) = [r for r in t.reasons if r.kind == "invented"]
+    assert set(r.joints) == {J["left_ankle"], J["right_ankle"]}
+    t = triage_frame(people, SK, scores=scores, image_size=(1280, 720),
+                     placed={2: frozenset(knees | {J["left_ankle"], J["right_ankle"]})})
+    assert all(r.kind != "invented" for r in t.reasons)
+
+
 def test_a_seated_person_has_no_short_legs():
     """Seated facing the camera, the thighs point at it (foreshortened to a fifth) and the
     shanks hang at full length (0.246 of stature, Winter's table, from memory): shoulders

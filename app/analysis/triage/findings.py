@@ -437,10 +437,10 @@ def frame_findings(
                                                  for p, v in scores.items()}
     if maps is not None and not isinstance(maps, FieldMemo):
         maps = FieldMemo(maps)  # triage and the proposers ask for many of the same E
+    mine = {int(p): frozenset(int(j) for j in js) for p, js in (placed or {}).items()}
     if triage is None:
-        triage = triage_frame(arrays, skeleton, score_arrays, maps, image_size)
-    view = FrameView(frame_id, arrays, skeleton, score_arrays, maps, image_size, triage,
-                     {int(p): frozenset(int(j) for j in js) for p, js in (placed or {}).items()})
+        triage = triage_frame(arrays, skeleton, score_arrays, maps, image_size, mine)
+    view = FrameView(frame_id, arrays, skeleton, score_arrays, maps, image_size, triage, mine)
     wanted = set(KINDS if kinds is None else kinds)
     labels = _labels(frame_id, skeleton, arrays, score_arrays)
     skip = set(dismissed)

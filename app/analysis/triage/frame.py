@@ -46,6 +46,7 @@ def triage_frame(
     scores: Mapping[int, Any] | None = None,
     maps: Any = None,
     image_size: tuple[int, int] | None = None,
+    placed: Mapping[int, Any] | None = None,
 ) -> FrameTriage:
     """Every check on one frame; the frame's score, its reasons and each person's suspicion.
 
@@ -61,6 +62,10 @@ def triage_frame(
         Optional network maps (``.pafs`` ``(L, 2, H, W)``, ``.stride``) for the field checks.
     image_size
         ``(width, height)``, so that joints beyond the border are not counted missing.
+    placed
+        Person id -> the joints a person placed or marked
+        (:func:`app.analysis.triage.findings.placed_by_people`): ``invented`` leaves them
+        alone, since a moved joint keeps the model's score of its old spot.
 
     Returns
     -------
@@ -126,7 +131,10 @@ def triage_frame(
         if support is not None and typical is not None:
             reasons += weak_limbs(pid, kp, skeleton, support[n], typical)
         reasons += low_scores(pid, kp, own, typical_score)
-        reasons += invented(pid, kp, skeleton, covered.get(pid, []), own, joint_score, names)
+        mine = frozenset() if placed is None else frozenset(placed.get(pid, ()))
+        reasons += invented(pid, kp, skeleton,
+                            [(j, q) for j, q in covered.get(pid, []) if j not in mine],
+                            own, joint_score, names)
     reasons += duplicates_and_splits(shown, skeleton, scales, score_arrays, names)
     reasons = [r for r in reasons if r.strength >= MIN_STRENGTH]
     suspicion = combine(reasons, arrays)
