@@ -252,16 +252,24 @@ def _trunk_point(kp: np.ndarray) -> np.ndarray:
     return (kp[[5, 6], :2].mean(axis=0) + kp[[11, 12], :2].mean(axis=0)) / 2
 
 
-def test_a_confident_joint_behind_a_nearer_trunk_is_unlabeled():
-    """Person 1's left wrist sits in the middle of person 8's trunk, and person 8 stands
-    lower on the floor, so nearer (Hoiem et al. 2006): it cannot be seen, yet the model
-    scores it 0.98 against a typical 0.8: an invented spot, marked unlabeled."""
+def _wrist_on_trunk(score: float = 0.98, others: float | None = 0.5):
+    """Person 1's left wrist moved to the middle of person 8's trunk and scored ``score``
+    (the frame's typical joint 0.8; person 1's other joints ``others``, None: 0.8)."""
     people, far, near = _near_and_far()
     people[far] = people[far].copy()
     people[far][J["left_wrist"], :2] = _trunk_point(people[near])
     scores = {p: np.full(17, 0.8) for p in people}
-    scores[far] = np.full(17, 0.5)                     # its other hidden joints: faint
-    scores[far][J["left_wrist"]] = 0.98
+    if others is not None:
+        scores[far] = np.full(17, others)
+    scores[far][J["left_wrist"]] = score
+    return people, far, scores
+
+
+def test_a_confident_joint_behind_a_nearer_trunk_is_unlabeled():
+    """Person 1's left wrist sits in the middle of person 8's trunk, and person 8 stands
+    lower on the floor, so nearer (Hoiem et al. 2006): it cannot be seen, yet the model
+    scores it 0.98 against a typical 0.8: an invented spot, marked unlabeled."""
+    people, far, scores = _wrist_on_trunk()           # its other hidden joints: faint
     found = [f for f in _find(people, "invented", scores) if f.person_id == far]
     assert [f.joints for f in found] == [(J["left_wrist"],)]
     after = _accept(_labels(people, scores), found[0])
@@ -274,12 +282,7 @@ def test_a_joint_a_person_placed_behind_a_nearer_trunk_is_not_unlabeled():
     fix they accepted): the score it carries is the model's at its old spot
     (:class:`MoveJoint` keeps it), not a word on where it is now, so the ``invented`` check
     leaves it alone. ``placed_by_people`` reads that provenance. Our own rule (synthetic)."""
-    people, far, near = _near_and_far()
-    people[far] = people[far].copy()
-    people[far][J["left_wrist"], :2] = _trunk_point(people[near])
-    scores = {p: np.full(17, 0.8) for p in people}
-    scores[far] = np.full(17, 0.5)
-    scores[far][J["left_wrist"]] = 0.98
+    people, far, scores = _wrist_on_trunk()
     labels = _labels(people, scores)
     moved = MoveJoint(1, far, J["left_wrist"], *people[far][J["left_wrist"], :2])
     placed = placed_by_people(moved.apply(labels, EditContext("ann"))[0])
@@ -291,11 +294,7 @@ def test_a_joint_a_person_placed_behind_a_nearer_trunk_is_not_unlabeled():
 def test_a_faint_joint_behind_a_nearer_trunk_is_marked_occluded():
     """The same place scored 0.3 (the model agrees it is hidden) and labelled visible: it is
     marked occluded where it is (COCO v = 1), its position kept."""
-    people, far, near = _near_and_far()
-    people[far] = people[far].copy()
-    people[far][J["left_wrist"], :2] = _trunk_point(people[near])
-    scores = {p: np.full(17, 0.8) for p in people}
-    scores[far][J["left_wrist"]] = 0.3
+    people, far, scores = _wrist_on_trunk(0.3, others=None)
     found = [f for f in _find(people, "hidden", scores) if f.person_id == far]
     assert len(found) == 1 and J["left_wrist"] in found[0].joints
     after = _accept(_labels(people, scores), found[0])
@@ -502,12 +501,7 @@ def test_findings_whose_fixes_rarely_help_are_listed_without_one():
     found = frame_findings(1, {6: crossed}, SK, image_size=SIZE)
     sides = [f for f in found if f.kind == "crossed-sides"]
     assert len(sides) == 1 and sides[0].fix is None and "hip" in sides[0].text
-    people, far, near = _near_and_far()
-    people[far] = people[far].copy()
-    people[far][J["left_wrist"], :2] = _trunk_point(people[near])
-    scores = {p: np.full(17, 0.8) for p in people}
-    scores[far] = np.full(17, 0.5)
-    scores[far][J["left_wrist"]] = 0.98
+    people, far, scores = _wrist_on_trunk()
     found = frame_findings(1, people, SK, scores=scores, image_size=SIZE)
     invented = [f for f in found if f.kind == "invented" and f.person_id == far]
     assert len(invented) == 1 and invented[0].fix is not None
