@@ -21,15 +21,21 @@ from tests import sequences
 LEFT_ELBOW, LEFT_WRIST = 7, 9
 
 
+def _linked(tmp_path, people):
+    """A project of ``people`` (synthetic dancers) linked into tracks, every frame's own
+    findings stored as none, so that the walk's stops are the findings over time."""
+    project, fids = sequences.make_project(tmp_path, people)
+    link_project(project)
+    project.store_findings({fid: (labels_digest(project.labels(fid)), []) for fid in fids})
+    return project, fids
+
+
 def test_the_joints_the_frames_around_place_are_one_stop_of_the_walk(tmp_path):
     people = sequences.dancers(frames=5, n=2)
     truth = people[2, 1, [LEFT_ELBOW, LEFT_WRIST], :2].copy()
     people[2, 1, [LEFT_ELBOW, LEFT_WRIST]] = (0.0, 0.0, 0)
-    project, fids = sequences.make_project(tmp_path, people)
+    project, _ = _linked(tmp_path, people)
     with project:
-        link_project(project)
-        project.store_findings({fid: (labels_digest(project.labels(fid)), [])
-                                for fid in fids})
         s = Session(project, order=lambda: [3, 1, 2, 4, 5])
         s.open_frame(3)
         stop = s.step(1)
@@ -55,11 +61,8 @@ def test_an_accepted_fix_forgets_the_findings_over_time_within_its_reach_only(tm
     people = sequences.dancers(frames=12, n=2)
     people[2, 1, [LEFT_ELBOW, LEFT_WRIST]] = (0.0, 0.0, 0)
     people[11, 0, LEFT_WRIST] = (0.0, 0.0, 0)
-    project, fids = sequences.make_project(tmp_path, people)
+    project, fids = _linked(tmp_path, people)
     with project:
-        link_project(project)
-        project.store_findings({fid: (labels_digest(project.labels(fid)), [])
-                                for fid in fids})
         s = Session(project, order=lambda: [3, 12, *range(1, 3), *range(4, 12)])
         # The fold ahead of the next frame (run at once here, without a worker) would read
         # the findings over time of a frame within reach again.
@@ -157,11 +160,8 @@ def test_the_next_frames_findings_over_time_read_ahead_for_an_accept_equal_a_fre
     people = sequences.dancers(frames=6, n=2)
     people[2, 1, [LEFT_ELBOW, LEFT_WRIST]] = (0.0, 0.0, 0)
     people[3, 0, LEFT_WRIST] = (0.0, 0.0, 0)
-    project, fids = sequences.make_project(tmp_path, people)
+    project, _ = _linked(tmp_path, people)
     with project:
-        link_project(project)
-        project.store_findings({fid: (labels_digest(project.labels(fid)), [])
-                                for fid in fids})
         s = Session(project, order=lambda: [3, 4, 1, 2, 5, 6])
         s.open_frame(3)
         assert s.step(1).key == GAP_KEY and [x.key for x in s.stops(3)] == [GAP_KEY]
