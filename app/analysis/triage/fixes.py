@@ -582,7 +582,8 @@ def mirrored_people(view: FrameView,
     stands behind someone nearer (joints inside the nearer one's trunk,
     :func:`covered_joints`) may owe a faint face to the people in front: ``exposed``, the
     number of such joints ramped from 2 down to 0. Strength: the product of the three ramps.
-    Fix: swap the person's left and right joints. Common practice, no source.
+    Fix: swap the person's left and right joints. Common practice, no source. A joint a
+    person placed is scored where it is now (:func:`scores_now`).
     """
     out: list[Proposal] = []
     if view.scores is None:
@@ -594,7 +595,7 @@ def mirrored_people(view: FrameView,
     covered = covered if covered is not None else covered_joints(view)
     for p in view.present:
         found = [r for r in view.reasons.get(p, []) if r.kind == "mirrored"]
-        mine = view.scores.get(p)
+        mine = scores_now(view, p)
         if not found or mine is None:
             continue
         on = (view.people[p][:, 2] > 0) & np.isfinite(mine)
@@ -872,6 +873,44 @@ def covered_joints(view: FrameView) -> dict[int, list[tuple[int, int]]]:
     return view.covered
 
 
+def scores_now(view: FrameView, pid: int) -> np.ndarray | None:
+    """The person's joint scores, each the model's word on the joint where it is now: a
+    joint a person placed or marked (:attr:`FrameView.placed`) keeps the model's score of
+    the spot it was moved from (:class:`MoveJoint` keeps it), so its score is read again
+    from its confidence map at the map cell under it, as :func:`find_peaks` scores a peak
+    (NaN without maps); the others' as labelled. None without scores.
+
+    Examples
+    --------
+    >>> from types import SimpleNamespace
+    >>> maps = SimpleNamespace(confidence_maps=np.zeros((2, 4, 4)), stride=2)
+    >>> maps.confidence_maps[1, 2, 3] = 0.7          # cell (row 2, column 3): pixel (6.5, 4.5)
+    >>> view = SimpleNamespace(scores={5: np.array([0.9, 0.2])}, maps=maps,
+    ...                        people={5: np.array([[1.0, 1.0, 2], [6.4, 4.6, 2]])},
+    ...                        placed={5: frozenset({1})})
+    >>> scores_now(view, 5).tolist()
+    [0.9, 0.7]
+    """
+    mine = view.scores.get(pid) if view.scores is not None else None
+    placed = view.placed.get(pid, ())
+    if mine is None or not placed:
+        return mine
+    out = np.array(mine, dtype=np.float64)
+    maps = view.maps
+    kp = view.people[pid]
+    for j in placed:
+        if maps is None or not np.isfinite(kp[j, :2]).all():
+            out[j] = np.nan
+            continue
+        cm = maps.confidence_maps[j]
+        s = maps.stride
+        r = round((float(kp[j, 1]) - (s - 1) / 2) / s)
+        c = round((float(kp[j, 0]) - (s - 1) / 2) / s)
+        inside = 0 <= r < cm.shape[0] and 0 <= c < cm.shape[1]
+        out[j] = float(cm[r, c]) if inside else 0.0
+    return out
+
+
 def invented_joints(view: FrameView,
                     covered: dict[int, list[tuple[int, int]]] | None = None) -> list[Proposal]:
     """Hidden joints at an invented spot: covered by a nearer person, yet scored as seen.
@@ -938,14 +977,15 @@ def hidden_joints(view: FrameView,
     -----
     The joints of :func:`covered_joints` labelled visible (``v = 2``) that the model scores
     below ``INVENTED_FROM`` of the frame's typical joint, one finding per person. Strength:
-    the share of the person's covered joints that the model scores that low.
+    the share of the person's covered joints that the model scores that low. A joint a
+    person placed is scored where it is now (:func:`scores_now`).
     """
     out: list[Proposal] = []
     covered = covered if covered is not None else covered_joints(view)
     n = view.names
     for p, joints in covered.items():
         kp = view.people[p]
-        mine = view.scores.get(p) if view.scores is not None else None
+        mine = scores_now(view, p)
         faint = [(j, q) for j, q in joints if kp[j, 2] == 2 and (
             mine is None or not np.isfinite(view.typical_score) or not np.isfinite(mine[j])
             or mine[j] / view.typical_score < INVENTED_FROM)]
