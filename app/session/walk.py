@@ -739,11 +739,18 @@ def occluding_only(fix: Fix | None) -> bool:
         isinstance(e, SetVisibility) and e.v == 1 for e in fix.edits)
 
 
+#: Kinds whose stops may ride on another stop of their frame (:func:`ride`): ``hidden``
+#: marks joints a nearer person hides occluded where they are.
+RIDING_KINDS = ("hidden",)
+
+
 def can_ride(s: Stop) -> bool:
-    """A stop that may ride on another (:func:`ride`): it only marks joints occluded, as
-    found (no fold round, nothing merged into it, nothing riding on it)."""
+    """A stop that may ride on another (:func:`ride`): its fixes are all of
+    :data:`RIDING_KINDS` and only mark joints occluded, as found (no fold round, nothing
+    merged into it, nothing riding on it)."""
     return (occluding_only(s.fix) and not s.riders and not s.merged
-            and not any(s.rounds) and bool(s.parts or s.finding))
+            and not any(s.rounds) and bool(s.parts or s.finding)
+            and all(f.kind in RIDING_KINDS for f in s.findings if f.fix is not None))
 
 
 def ride(stops: Sequence[Stop]) -> list[Stop]:
