@@ -186,6 +186,18 @@ def test_a_body_seen_from_behind_gets_its_sides_swapped():
     np.testing.assert_array_equal(after.people[5].keypoints, body[SK.flip_index])
 
 
+def test_a_face_a_person_placed_is_not_read_by_its_old_scores():
+    """The same body, but its nose and eyes placed by a person: the faint scores they carry
+    are the model's at their old spots (:class:`MoveJoint` keeps them), and without maps to
+    score them where they are now (``scores_now``) they are not read, so no swap is proposed
+    on them. Our own rule (synthetic)."""
+    body = _body(front=True)
+    scores = np.full(17, 0.9)
+    face = [J["nose"], J["left_eye"], J["right_eye"]]
+    scores[face] = 0.3
+    assert _find({5: body}, "mirrored", {5: scores}, placed={5: frozenset(face)}) == []
+
+
 def test_legs_on_the_wrong_sides_are_swapped_back():
     """Hips, knees and ankles each given the other side's label on a body facing the camera:
     the fix swaps the legs back (not the hips alone)."""
