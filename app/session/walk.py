@@ -92,6 +92,10 @@ class Stop:
         like the others (listed, previewed, taken by the same key, left out or dismissed one
         by one under focus); dismissing the whole card leaves them for the frame's next
         stop (:meth:`own`).
+    notes
+        The ids of the frame's findings without a fix that ride on this card
+        (:func:`_frame_notes`): read on it, passed with it, and not dismissed with it
+        (:meth:`own`).
     """
 
     frame_id: int
@@ -107,6 +111,7 @@ class Stop:
     rounds: tuple[int, ...] = ()
     merged: tuple[str, ...] = ()
     riders: tuple[str, ...] = ()
+    notes: tuple[str, ...] = ()
 
     @property
     def fix(self) -> Fix | None:
@@ -139,9 +144,10 @@ class Stop:
 
     @property
     def own(self) -> tuple[Finding, ...]:
-        """The findings the stop is about, without its riders (:func:`ride`): what
-        dismissing the whole card dismisses."""
-        return tuple(f for f in self.findings if f.id not in self.riders)
+        """The findings the stop is about, without its riders (:func:`ride`) and the frame's
+        notes it carries (:func:`_frame_notes`): what dismissing the whole card dismisses."""
+        return tuple(f for f in self.findings if f.id not in self.riders
+                     and f.id not in self.notes)
 
     @property
     def focused(self) -> Finding | None:
@@ -966,12 +972,16 @@ def _with_notes(stops: list[Stop]) -> list[Stop]:
     ...     x = Fix(f"give it to person {person + 1}", (), FixPreview()) if fix else None
     ...     return Finding(i, 1, kind, person, person, (9,), ("left wrist",), f"t{i}", (),
     ...                    1.0, 0.9, x, (person,), i)
-    >>> out = group_findings(1, [f("a", "wrong-owner", 1), f("b", "mirrored", 2, False),
-    ...                          f("c", "missing-joint", 1, False), f("d", "invented", 2, False)])
+    >>> stops = [Stop(1, x.id, x.person_id, x.joints, x.text, x) for x in (
+    ...     f("a", "wrong-owner", 1), f("b", "mirrored", 2, False),
+    ...     f("c", "missing-joint", 1, False), f("d", "invented", 2, False))]
+    >>> out = _with_notes(stops)
     >>> [(s.key, [m.id for m in s.findings]) for s in out]
     [('P:a', ['a', 'c']), ('P:b', ['b', 'd'])]
     >>> out[0].fix.summary, out[0].text, out[1].fix, out[1].text
     ('give it to person 2', 'ta; also tc', None, 'tb; also td')
+
+    (:func:`_frame_notes` then lets person 2's notes ride on the frame's last fix.)
     """
     host: dict[int, int] = {}
     for i, s in enumerate(stops):
@@ -1007,19 +1017,19 @@ def _with_notes(stops: list[Stop]) -> list[Stop]:
     return out
 
 
-#: A finding without a fix is *weak* below this confidence (a fix of its kind would more
-#: likely not help, :data:`app.analysis.triage.calibration.PROPOSE_AT`).
-WEAK_BELOW = PROPOSE_AT
-
-
 def _frame_notes(stops: list[Stop]) -> list[Stop]:
     """The frame's notes left without a card of their person's fix (:func:`_with_notes`)
-    cost at most one key together: weak ones (every finding below :data:`WEAK_BELOW`) ride
-    on the frame's last stop with a fix, after its sentence ("also on this frame, no fix:
-    ..."); the others (a missed person's partial body, a sure finding nobody could build a
-    fix for), and the weak ones of a frame without a fix, share one card of notes where the
-    first of them was, when there are two or more. Nothing is dropped: every finding stays
-    on a card (and in the Worklist's counts), and I dismisses a card's findings together.
+    cost no key of their own when the frame has a stop with a fix: they ride on its last
+    one, after its sentence ("also on this frame, no fix proposed: ..."), the surest first
+    (a missed person's partial body, a sure finding nobody could build a fix for, then the
+    weak ones). A frame without a fix shows them on one card of notes, where the first of
+    them was. Nothing is dropped: every finding stays on a card (and in the Worklist's
+    counts), next and previous reach it there; I on a card of notes dismisses them
+    together, and on a card with a fix only the card's own findings (:attr:`Stop.notes`).
+
+    A note proposes nothing to accept: on a card of its own it cost the annotator a key to
+    pass (on the shipped demo, 5 of the walk's 68 presses, 3 December 2026), where on the
+    frame's last card it costs a look.
 
     The rider's fix is the host's alone; its key says which findings it holds, so a card
     with a note raised after the walk passed the host is shown again.
@@ -1032,11 +1042,11 @@ def _frame_notes(stops: list[Stop]) -> list[Stop]:
     ...     return Finding(i, 1, kind, person, person, (9,), ("left wrist",), f"t{i}", (),
     ...                    1.0, sure, x, (person,), i)
     >>> out = group_findings(1, [f("a", "wrong-owner", 1), f("b", "mirrored", 2, False, 0.2),
-    ...                          f("c", "mirrored", 3, False, 0.3)])
+    ...                          f("m", "missed-person", None, False, 1.0)])
     >>> [(s.key, [m.id for m in s.findings], s.fix.summary) for s in out]
-    [('a|b,c', ['a', 'b', 'c'], 'give it to person 2')]
+    [('a|m,b', ['a', 'm', 'b'], 'give it to person 2')]
     >>> out[0].text
-    'ta; also on this frame, no fix proposed: tb; tc'
+    'ta; also on this frame, no fix proposed: tm; tb'
     >>> out = group_findings(1, [f("m", "missed-person", None, False, 1.0),
     ...                          f("b", "mirrored", 2, False, 0.2)])
     >>> [(s.key, s.person_id, s.fix, s.text) for s in out]
@@ -1046,27 +1056,28 @@ def _frame_notes(stops: list[Stop]) -> list[Stop]:
     loose = [i for i, s in enumerate(stops) if s.fix is None and s.findings]
     if not loose:
         return stops
-    riders = [i for i in loose if all(f.confidence < WEAK_BELOW for f in stops[i].findings)
-              ] if hosts else []
-    own = [i for i in loose if i not in riders]
-    if len(own) < 2:
-        own = []
     changed: dict[int, Stop] = {}
-    if riders:
+    if hosts:
         at = hosts[-1]
-        host, extra = stops[at], [stops[i] for i in riders]
+        host = stops[at]
+        extra = sorted((stops[i] for i in loose),
+                       key=lambda n: -max(f.confidence for f in n.findings))
         members = tuple(m for n in extra for m in n.findings)
         text = host.text + "; also on this frame, no fix proposed: " + _said(extra)
         changed[at] = replace(host, key=f"{host.key}|{','.join(m.id for m in members)}",
-                              text=text, group=host.findings + members)
-    if own:
-        extra = [stops[i] for i in own]
+                              text=text, group=host.findings + members,
+                              notes=host.notes + tuple(m.id for m in members))
+        gone = set(loose)
+    else:
+        if len(loose) < 2:
+            return stops
+        extra = [stops[i] for i in loose]
         members = tuple(m for n in extra for m in n.findings)
         text = (f"{count(len(members), 'finding')} without a fix on this frame: "
                 + _said(extra, NOTES_SHOWN + 1))
-        changed[own[0]] = Stop(extra[0].frame_id, f"N:{','.join(m.id for m in members)}",
-                               None, (), text, None, members)
-    gone = set(riders) | set(own[1:])
+        changed[loose[0]] = Stop(extra[0].frame_id, f"N:{','.join(m.id for m in members)}",
+                                 None, (), text, None, members)
+        gone = set(loose[1:])
     return [changed.get(i, s) for i, s in enumerate(stops) if i not in gone]
 
 

@@ -60,14 +60,15 @@ def _finding(i, kind, person, fix, sure):
                    made, () if person is None else (person,), i)
 
 
-def test_a_frames_notes_without_a_fix_cost_at_most_one_key_and_none_is_dropped():
+def test_a_frames_notes_without_a_fix_ride_on_its_last_fix_and_none_is_dropped():
     """Our own rule (app/session/walk.py, _frame_notes): a person's notes ride on their fix;
-    other weak notes (below PROPOSE_AT) ride on the frame's last stop with a fix; the rest
-    share one card; every finding stays on exactly one stop. Synthetic findings."""
-    from app.session.walk import WEAK_BELOW, group_findings
+    the frame's other notes, weak or sure, ride on its last stop with a fix, the surest
+    first; a frame without a fix shows them on one card; every finding stays on exactly one
+    stop. Synthetic findings."""
+    from app.session.walk import group_findings
 
     found = [_finding("a", "wrong-owner", 1, True, 0.9),
-             _finding("b", "mirrored", 2, False, WEAK_BELOW - 0.3),
+             _finding("b", "mirrored", 2, False, 0.2),
              _finding("c", "missed-person", None, False, 1.0),
              _finding("d", "duplicate", 3, True, 0.8),
              _finding("e", "crossed-sides", 4, False, 0.05),
@@ -76,14 +77,14 @@ def test_a_frames_notes_without_a_fix_cost_at_most_one_key_and_none_is_dropped()
     stops = group_findings(1, found)
     held = [f.id for s in stops for f in s.findings]
     assert sorted(held) == sorted(f.id for f in found), "each finding on one stop"
-    assert sum(s.fix is None for s in stops) == 1, "one card of notes for the frame"
+    assert all(s.fix is not None for s in stops), "no key spent on a card without a fix"
     by = {s.findings[0].id: s for s in stops}
     assert [f.id for f in by["a"].findings] == ["a", "f"], "the person's note on their fix"
-    assert [f.id for f in by["d"].findings] == ["d", "b", "e"], "weak notes on the last fix"
+    assert [f.id for f in by["d"].findings] == ["d", "c", "g", "b", "e"], "notes on the last"
     assert by["d"].fix.summary == "fix d" and "also on this frame" in by["d"].text
-    assert [f.id for f in by["c"].findings] == ["c", "g"] and by["c"].person_id is None
-    without = group_findings(1, [found[1], found[4]])
-    assert len(without) == 1 and without[0].fix is None, "weak notes alone share one card"
+    without = group_findings(1, [found[1], found[2], found[4]])
+    assert len(without) == 1 and without[0].fix is None, "without a fix: one card of notes"
+    assert [f.id for f in without[0].findings] == ["b", "c", "e"]
 
 
 def _joint_fix(i, kind, person, edit):

@@ -77,7 +77,7 @@ SHIPPED = Calibration({
     "crossed-sides": (-1.928, -1.248),
     "duplicate": (-2.968, 7.261),
     "hidden": (5.112, 0.478),
-    "invented": (-0.281, 3.459),
+    "invented": (0.442, 2.924),
     "mirrored": (-1.499, 6.095),
     "missed-person": (5.532, 0.841),
     "missing-joint": (1.369, 0.059),

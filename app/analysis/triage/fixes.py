@@ -153,12 +153,19 @@ AGAINST_BELOW = 0.0
 #: the time on the dance (well joined) against 56 % (limbs too long to join); on the choir 40-70
 #: % against 100 %.
 HELD_FROM, HELD_WEIGHT = 0.3, 0.5
-#: Invented spot: the joints whose hidden spot is most often a guess (by name); the others'
-#: strength is weighed by ``PARTLY_WEIGHT``. On dance seeds 5-7 and choir seeds 5-6 (12 frames
-#: each), unlabelling a knee or ankle helped 68 % (dance, 41 fixes) and 88 % (choir, 388) of
-#: the time, an arm 16 % and 66 % (25, 74), a hip 7 % and 17 % (28, 6), a head 50 % and 0 %
-#: (8, 3).
+#: Invented spot: the joints whose hidden spot is most often a guess (by name); a wrist's
+#: strength (``PARTLY_PARTS``) is weighed by ``PARTLY_WEIGHT``, and the other joints (the
+#: face, shoulders, elbows, hips) are not proposed: inside a nearer body they are often only
+#: partly covered, and the model's spot there is right more often than not. On dance seeds 5-7
+#: and choir seeds 5-6 (12 frames each), unlabelling a knee or ankle helped 68 % (dance, 41
+#: fixes) and 88 % (choir, 388) of the time, an arm 16 % and 66 % (25, 74), a hip 7 % and 17 %
+#: (28, 6), a head 50 % and 0 % (8, 3). On the fit seeds (dance and choir 1-8, 12 frames each,
+#: 3 December 2026), of the fixes proposed before this gate, unlabelling a knee or an ankle
+#: helped 55 % on the dance (105 fixes) and 91 % on the choir (1,598), a wrist 33 % and 84 %
+#: (45, 137), an elbow 18 % and 31 % (22, 70), a shoulder 25 % and 13 % (16, 23), a hip 17 %
+#: and 12 % (42, 26), a face joint 17 % and 35 % (18, 17): below a half on both scenes.
 GUESSED_PARTS = ("knee", "ankle")
+PARTLY_PARTS = ("wrist",)
 PARTLY_WEIGHT = 0.5
 #: Missed person: at least this many unused parts that group into one plausible body.
 MISSED_PARTS = 5
@@ -931,11 +938,12 @@ def invented_joints(view: FrameView,
     neighbours as a typical limb is joined (the least share of the frame's typical ``E``,
     ramped from ``HELD_FROM`` to ``JOIN_SURE``) is less likely a guess: the nearer body may
     hide only part of the limb. And a knee or an ankle behind someone nearer is most often a
-    guess (the whole leg is behind their legs or trunk), while a hip, an arm or a head inside
-    a nearer body is often only partly covered, and the model's spot there right as often as
-    not: other joints count ``PARTLY_WEIGHT`` (a half). Strength: the ratio's ramp, times
-    ``1 - HELD_WEIGHT`` times the share's ramp, times that weight. Fix: mark it unlabeled (the
-    place is a guess).
+    guess (the whole leg is behind their legs or trunk), a wrist less often (it counts
+    ``PARTLY_WEIGHT``, a half), while a hip, a shoulder, an elbow or a face joint inside a
+    nearer body is often only partly covered and the model's spot there right more often
+    than not: those are not proposed (:data:`GUESSED_PARTS` has the figures). Strength: the
+    ratio's ramp, times ``1 - HELD_WEIGHT`` times the share's ramp, times that weight. Fix:
+    mark it unlabeled (the place is a guess).
     """
     out: list[Proposal] = []
     if view.scores is None or not np.isfinite(view.typical_score):
@@ -948,7 +956,10 @@ def invented_joints(view: FrameView,
             continue
         placed = view.placed.get(p, frozenset())
         for j, cover in joints:
-            if not np.isfinite(mine[j]) or j in placed:
+            name = view.skeleton.joints[j]
+            guessed = any(part in name for part in GUESSED_PARTS)
+            if not np.isfinite(mine[j]) or j in placed or not (
+                    guessed or any(part in name for part in PARTLY_PARTS)):
                 continue
             ratio = float(mine[j]) / view.typical_score
             strength = ramp(ratio, INVENTED_FROM, INVENTED_SURE)
@@ -963,8 +974,7 @@ def invented_joints(view: FrameView,
                 if held is not None:
                     evidence += (("field_share", held),)
                     strength *= 1.0 - HELD_WEIGHT * ramp(held, HELD_FROM, JOIN_SURE)
-            name = view.skeleton.joints[j]
-            if not any(part in name for part in GUESSED_PARTS):
+            if not guessed:
                 strength *= PARTLY_WEIGHT
             text = (f"{n.whose(p, j)} lies inside the body of {n.person(cover)}, who stands "
                     f"nearer, yet the model scores it {mine[j]:.2f}, as if seen: an invented "
