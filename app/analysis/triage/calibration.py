@@ -21,6 +21,11 @@ fitted again the same day on the same seeds, after a faint peak whose limb's fie
 other way stopped being offered (``AGAINST_BELOW`` in :mod:`app.analysis.triage.fixes`):
 143 fixes, 115 helped (19 of 35 on the dance, 96 of 108 on the choir; before, 19 of 45 and
 96 of 117); every other kind's fit on those seeds gave its coefficients below unchanged.
+``invented`` alone was fitted again after it stopped unlabelling a hidden shoulder, elbow,
+hip or face joint (``GUESSED_PARTS`` in :mod:`app.analysis.triage.fixes`): 6,069 fixes on
+the same seeds, the other kinds' coefficients unchanged; its proposed fixes there helped 47 %
+of the time on the dance (165) and 91 % on the choir (1,792), against 38 % (248) and 86 %
+(1,867) before.
 Accepting every proposed fix on seeds that took part in no fit (12 frames each) removed
 62.5 %, 48.5 % and 44.9 % of the wrong labelled joints on choir seeds 41-43, and 35.7 %,
 47.4 % and 49.8 % on the fresh choir seeds 44-46 (measured once), while the correct ones
