@@ -1017,6 +1017,10 @@ def _with_notes(stops: list[Stop]) -> list[Stop]:
     return out
 
 
+#: Between a card's own sentence and the frame's notes riding on it (:func:`_frame_notes`).
+NOTES_SAID = "; also on this frame, no fix proposed: "
+
+
 def _frame_notes(stops: list[Stop]) -> list[Stop]:
     """The frame's notes left without a card of their person's fix (:func:`_with_notes`)
     cost no key of their own when the frame has a stop with a fix: they ride on its last
@@ -1063,7 +1067,7 @@ def _frame_notes(stops: list[Stop]) -> list[Stop]:
         extra = sorted((stops[i] for i in loose),
                        key=lambda n: -max(f.confidence for f in n.findings))
         members = tuple(m for n in extra for m in n.findings)
-        text = host.text + "; also on this frame, no fix proposed: " + _said(extra)
+        text = host.text + NOTES_SAID + _said(extra)
         changed[at] = replace(host, key=f"{host.key}|{','.join(m.id for m in members)}",
                               text=text, group=host.findings + members,
                               notes=host.notes + tuple(m.id for m in members))

@@ -241,7 +241,9 @@ def test_triage_and_fixes_on_the_choir(tmp_path):
     ``missing-joint`` no longer offering a faint peak whose limb's field runs the other way
     (refitted alone, same day): 419 to 281 (32.9 %), 2,067 to 2,103 (+1.7 %): one
     missing-joint fix fewer, and in the later rounds one phantom deletion and one wrong-owner
-    fix fewer (4 wrong joints), hence 0.32 below."""
+    fix fewer (4 wrong joints), hence 0.32 below. With ``invented`` no longer unlabelling a
+    hidden shoulder, elbow, hip or face joint (refitted alone, same day): 419 to 282
+    (32.7 %), 2,067 to 2,103 (+1.7 %)."""
     from app.demo.calibrate import accept_all, demo_frames
 
     folder = tmp_path / "choir21"
