@@ -635,6 +635,27 @@ def card_text(parts: Sequence[Finding]) -> str:
                                  if more > 0 else ""))
 
 
+def card_why(stop: Stop) -> str:
+    """Why a card of several fixes stops: its first finding's sentence, then the notes that
+    ride on it (a person's "also ...", the frame's :data:`NOTES_SAID`), without the fixes
+    :func:`card_lines` lists one a line.
+
+    Examples
+    --------
+    >>> s = Stop(1, "G:covered", None, (), "nearer people hide 2 joints" + NOTES_SAID + "tm",
+    ...          parts=_demo_parts(2))
+    >>> card_why(s)
+    't0; also on this frame, no fix proposed: tm'
+    >>> card_why(replace(s, text=card_text(s.parts) + "; also t9"))
+    't0; also t9'
+    """
+    said = card_text(stop.parts)
+    extra = stop.text[len(said):] if stop.text.startswith(said) else ""
+    if not extra and NOTES_SAID in stop.text:  # a frame's group: its notes alone
+        extra = stop.text[stop.text.index(NOTES_SAID):]
+    return stop.parts[0].text + extra
+
+
 def card_lines(stop: Stop) -> list[tuple[str, bool, bool]]:
     """A card's parts one a line, as the Canvas lists them: ``(text, left out, under
     focus)``; the text is the fix in tag numbers and joint names, and how sure it is. At

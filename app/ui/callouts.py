@@ -35,7 +35,7 @@ from app.model.labels import Person
 from app.model.naming import Names
 from app.model.skeleton import Skeleton
 from app.session.owners import OwnerRanking
-from app.session.walk import NOTES_SAID, Stop, card_lines, card_text, group_action
+from app.session.walk import Stop, card_lines, card_why, group_action
 from app.ui.overlay import OUTLINE, palette_colour
 from app.wording import count
 
@@ -279,11 +279,7 @@ def paint_walk_card(painter: QPainter, card: WalkCard, box: QRectF, bounds: QRec
     if lines:
         # A card of several fixes: why (its first finding's sentence, and the notes riding
         # on it), then the fixes one a line, each taken or left out.
-        said = card_text(stop.parts)
-        extra = stop.text[len(said):] if stop.text.startswith(said) else ""
-        if not extra and NOTES_SAID in stop.text:  # a frame's group: its notes alone
-            extra = stop.text[stop.text.index(NOTES_SAID):]
-        body = stop.parts[0].text + extra
+        body = card_why(stop)
         head = f"{count(len(stop.parts), 'fix', 'fixes')} together" + where
         n = len(stop.taken)
         tail = (f"Y takes {count(n, 'fix', 'fixes')} (one undo step) \u00b7 E next fix \u00b7 "
