@@ -236,7 +236,9 @@ def test_triage_and_fixes_on_the_choir(tmp_path):
     triage's figures are unchanged (the fixes do not enter them). With missing-joints
     counting a joint whose limb the field does not show as half, and the weights and the
     calibration fitted again (3 December 2026): 104 flagged, 88 of them wrong (recall 0.880,
-    precision 0.846); 419 to 278 (33.7 %), 2,067 to 2,100 (+1.6 %)."""
+    precision 0.846); 419 to 278 (33.7 %), 2,067 to 2,100 (+1.6 %). With the reasons
+    held-tie, opposed-field and neighbour-face (weights 1.5, 1.5, 0): 105 flagged, 88 of them
+    wrong (precision 0.838)."""
     from app.demo.calibrate import accept_all, demo_frames
 
     folder = tmp_path / "choir21"
