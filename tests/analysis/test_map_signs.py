@@ -75,6 +75,10 @@ def test_held_tie_counts_joints_the_grouping_alone_places_elsewhere() -> None:
     assert _strengths(moved, "held-tie") == {1: 0.0, 2: pytest.approx(1 / HELD_FULL)}
     # a joint a person placed is theirs, not the grouping's question
     assert _strengths(moved, "held-tie", placed={2: frozenset({9})}) == {1: 0.0, 2: 0.0}
+    # labels of another origin (every joint 3 pixels off the maps' peaks, as a person's
+    # clicks or an import would be) are not the grouping's: nothing to say of them
+    drawn = {p: kp + np.array([3.0, 0.0, 0.0]) for p, kp in people.items()}
+    assert _strengths(drawn, "held-tie") == {1: 0.0, 2: 0.0}
 
 
 def test_opposed_field_counts_limbs_labelled_against_the_field() -> None:

@@ -34,6 +34,9 @@ LOW_SCORE = 0.45
 #: the check is at full strength; a joint within ``SAME_SPOT`` pixels is the same.
 HELD_FULL = 3
 SAME_SPOT = 1.0
+#: A person with fewer joints than this on a spot of the grouping alone is not that grouping's
+#: (labels a person drew or imported from elsewhere): ``held-tie`` says nothing of it.
+HELD_SHARED = 2
 #: Opposed field: labelled limbs whose ``E`` is negative, at which the check is at full
 #: strength (our choice).
 OPPOSED_FULL = 2
@@ -446,9 +449,10 @@ def field_near(maps: Any, limb: int, at: np.ndarray, radius: float) -> float:
 
 
 def elsewhere_alone(kp: np.ndarray, alone: list[np.ndarray],
-                    skip: frozenset[int] = frozenset()) -> list[int]:
+                    skip: frozenset[int] = frozenset(), shared: int = 0) -> list[int]:
     """The labelled joints of ``kp`` that the maps grouped alone place elsewhere or not at
-    all, on the person of ``alone`` who shares most of them (``skip``: joints left out).
+    all, on the person of ``alone`` who shares most of them (``skip``: joints left out);
+    none when that person shares fewer than ``shared`` of them.
 
     Parameters
     ----------
@@ -474,8 +478,8 @@ def elsewhere_alone(kp: np.ndarray, alone: list[np.ndarray],
     >>> moved = same.copy(); moved[2, 0] = 45; moved[1, 2] = 0   # one elsewhere, one missing
     >>> elsewhere_alone(kp, [moved]), elsewhere_alone(kp, [moved], frozenset({2}))
     ([1, 2], [1])
-    >>> elsewhere_alone(kp, [])
-    [0, 1, 2]
+    >>> elsewhere_alone(kp, []), elsewhere_alone(kp, [], shared=2)
+    ([0, 1, 2], [])
     """
     on = kp[:, 2] > 0
     if skip:
@@ -486,6 +490,8 @@ def elsewhere_alone(kp: np.ndarray, alone: list[np.ndarray],
             (np.hypot(person[:, 0] - kp[:, 0], person[:, 1] - kp[:, 1]) < SAME_SPOT)
         if int(same.sum()) > int(best.sum()):
             best = same
+    if int(best.sum()) < shared:
+        return []
     return np.flatnonzero(on & ~best).tolist()
 
 
@@ -518,7 +524,10 @@ def held_tie(pid: int, kp: np.ndarray, alone: list[np.ndarray] | None,
     (``import-maps --frame-before``), a joint whose two owners were nearly tied in this frame
     goes where the frame before had it; the joints this frame's maps alone would give another
     owner (or none) are those near ties, and a wrong label is most often made of them. The
-    strength is their count over ``HELD_FULL`` (3), at most 1. Under the default grouping
+    strength is their count over ``HELD_FULL`` (3), at most 1. Labels that are not that
+    grouping's at all (fewer than ``HELD_SHARED`` joints on its spots: drawn by a person or
+    imported from elsewhere, never within a pixel of the maps' peaks) get nothing. Under the
+    default grouping
     (each frame alone) the auto-labels are that grouping, so the check is silent until a
     person's edit (whose joints it skips) or an import makes labels of another origin.
 
@@ -534,7 +543,7 @@ def held_tie(pid: int, kp: np.ndarray, alone: list[np.ndarray] | None,
     """
     if alone is None:
         return []
-    joints = elsewhere_alone(kp, alone, placed)
+    joints = elsewhere_alone(kp, alone, placed, HELD_SHARED)
     if not joints:
         return []
     listed = names.joints(joints) if names is not None else \
