@@ -664,17 +664,20 @@ def neighbour_face(pid: int, kp: np.ndarray, skeleton: Skeleton,
     others = [(q, o[nose, :2]) for q, o in people.items() if q != pid and o[nose, 2] > 0]
     if not others:
         return []
-    best, side, owner = 0.0, (), None
+    best: float = 0.0
+    side: tuple[int, ...] = ()
+    owner: int | None = None
     for eye, ear in _FACE_SIDES:
         pair = (joints.index(eye), joints.index(ear))
         if any(kp[j, 2] <= 0 for j in pair):
             continue
         ratio = math.inf
-        near = None
+        near: int | None = None
         for j in pair:
-            own = math.hypot(*(kp[j, :2] - kp[nose, :2]))
-            q, spot = min(others, key=lambda o: math.hypot(*(kp[j, :2] - o[1])))
-            ratio = min(ratio, own / max(math.hypot(*(kp[j, :2] - spot)), 1e-6))
+            here = kp[j, :2]
+            own = math.hypot(*(here - kp[nose, :2]))
+            q, spot = min(others, key=lambda o: math.hypot(*(here - o[1])))
+            ratio = min(ratio, own / max(math.hypot(*(here - spot)), 1e-6))
             near = q if near is None else near
         if ratio > best:
             best, side, owner = ratio, pair, near
