@@ -22,8 +22,9 @@ Seeds are written as for :mod:`app.demo.calibrate`, each list optionally after a
 
 ``--frame-before`` measures demos grouped with the frame before (``import-maps
 --frame-before``; give a cache of its own, as for :mod:`app.demo.calibrate`), and
-``--trial-signs held-tie,opposed-field`` adds signs that triage does not have yet
-(:mod:`app.demo.trial_signs`) as extra kinds, fitted and measured with the others.
+``--trial-signs NAME,...`` adds signs that triage does not have yet
+(:mod:`app.demo.trial_signs`; none at present: those tried last are triage's reasons now) as
+extra kinds, fitted and measured with the others.
 
 Each scenario's demos are synthetic (:mod:`app.demo`, :mod:`app.demo.choir`).
 """
@@ -211,7 +212,8 @@ def main(argv: Sequence[str] | None = None) -> int:
                              "--frame-before); give a cache of its own")
     parser.add_argument("--trial-signs", metavar="NAMES", default="",
                         help="signs triage does not have yet, fitted and measured as extra "
-                             f"kinds: any of {', '.join(TRIAL_SIGNS)}, separated by commas")
+                             f"kinds: any of {', '.join(TRIAL_SIGNS) or '(none at present)'}, "
+                             "separated by commas")
     args = parser.parse_args(argv)
     if args.frame_before:
         import app.jobs_analysis
@@ -220,7 +222,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     trial = [name for name in args.trial_signs.split(",") if name]
     unknown = [name for name in trial if name not in TRIAL_SIGNS]
     if unknown:
-        parser.error(f"no trial sign {unknown[0]!r} (there are {', '.join(TRIAL_SIGNS)})")
+        parser.error(f"no trial sign {unknown[0]!r} (there are "
+                     f"{', '.join(TRIAL_SIGNS) or 'none at present'})")
     prior, weights, flag_at = PRIOR, dict(WEIGHTS), FLAG_AT
     if args.fit:
         fitted = _judged(args.cache, parse_demos(args.fit), args.fit_frames, trial)

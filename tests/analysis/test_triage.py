@@ -241,9 +241,11 @@ def test_triage_and_fixes_on_the_choir(tmp_path):
     ``missing-joint`` no longer offering a faint peak whose limb's field runs the other way
     (refitted alone, same day): 419 to 281 (32.9 %), 2,067 to 2,103 (+1.7 %): one
     missing-joint fix fewer, and in the later rounds one phantom deletion and one wrong-owner
-    fix fewer (4 wrong joints), hence 0.32 below. With ``invented`` no longer unlabelling a
-    hidden shoulder, elbow, hip or face joint (refitted alone, same day): 419 to 282
-    (32.7 %), 2,067 to 2,103 (+1.7 %)."""
+    fix fewer (4 wrong joints), hence 0.32 below. With the reasons held-tie,
+    opposed-field and neighbour-face (weights 1.5, 1.5, 0): 105 flagged, 88 of them wrong
+    (precision 0.838). With ``invented`` no longer unlabelling a hidden shoulder, elbow, hip
+    or face joint (refitted alone, same day, before those reasons): 419 to 282 (32.7 %),
+    2,067 to 2,103 (+1.7 %)."""
     from app.demo.calibrate import accept_all, demo_frames
 
     folder = tmp_path / "choir21"
