@@ -162,6 +162,7 @@ REASONS: dict[str, tuple[str, str]] = {
     "crowded": ("crowded frame", "crowded frames"),
     "phantom": ("phantom", "phantoms"),
     "wrong-owner": ("joint with a wrong owner", "joints with a wrong owner"),
+    "shared-spot": ("joint labelled on two people", "joints labelled on two people"),
     "invented": ("invented joint", "invented joints"),
     "hidden": ("hidden joint labelled visible", "hidden joints labelled visible"),
     "missed-person": ("missed person", "missed people"),

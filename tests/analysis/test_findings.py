@@ -536,3 +536,48 @@ def test_findings_again_after_a_fix_with_the_kept_memo_equal_a_fresh_computation
     fresh = frame_findings(1, moved, SK, maps=FieldMemo(maps), image_size=size,
                            calibration=OPEN)
     assert [f.to_dict() for f in again] == [f.to_dict() for f in fresh]
+
+
+def _hand_on_neighbour() -> tuple[dict[int, np.ndarray], int]:
+    """A synthetic floor crowd where person 4's left wrist is put on person 5's right wrist:
+    person 4's forearm stretched to several times its length to reach it."""
+    people = _floor_crowd()
+    people[4] = people[4].copy()
+    people[4][J["left_wrist"], :2] = people[5][J["right_wrist"], :2] + 1.0
+    return people, J["left_wrist"]
+
+
+def test_a_hand_labelled_on_two_people_is_let_go_by_the_stretched_arm():
+    """Person 4's left wrist lies on person 5's right wrist (one hand labelled on two people;
+    synthetic): the person whose forearm must stretch to reach it (person 4) lets go of it,
+    person 5 keeps its own (our own rule, ``shared_spots``)."""
+    people, wrist = _hand_on_neighbour()
+    found = _find(people, "shared-spot")
+    assert [(f.person_id, f.joints) for f in found] == [(4, (wrist,))]
+    assert "person 4's left wrist lies on person 5's right wrist" in found[0].text
+    assert found[0].strength == 1.0
+    after = _accept(_labels(people), found[0])
+    assert after.people[4].keypoints[wrist, 2] == 0
+    np.testing.assert_array_equal(after.people[5].keypoints, people[5])
+    np.testing.assert_array_equal(np.delete(after.people[4].keypoints, wrist, axis=0),
+                                  np.delete(people[4], wrist, axis=0))
+    # A wrist a person placed there is not proposed for unlabelling again.
+    found = _find(people, "shared-spot", placed={4: frozenset({wrist})})
+    assert len(found) == 1 and found[0].fix is None
+
+
+def test_hands_held_with_neither_arm_stretched_are_no_shared_spot_fix():
+    """Two synthetic people side by side holding hands: both wrists on one spot, neither
+    forearm longer than its share of stature (Drillis and Contini via Winter, from memory):
+    the finding's strength is 0 and at the shipped calibration no fix is proposed."""
+    a, b = _body(centre=(560.0, 400.0)), _body(centre=(700.0, 400.0))
+    ends = [(float(np.hypot(*(a[ja, :2] - b[jb, :2]))), ja, jb)
+            for ja in (J["left_elbow"], J["right_elbow"])
+            for jb in (J["left_elbow"], J["right_elbow"])]
+    _, ja, jb = min(ends)
+    a[ja + 2, :2] = b[jb + 2, :2] = (a[ja, :2] + b[jb, :2]) / 2   # wrists held between
+    people = {1: a, 2: b}
+    found = _find(people, "shared-spot")
+    assert len(found) == 1 and found[0].strength == 0.0
+    assert [f.fix for f in frame_findings(1, people, SK, image_size=SIZE)
+            if f.kind == "shared-spot"] == [None]
