@@ -968,9 +968,12 @@ def hidden_joints(view: FrameView,
 
 # ---------------------------------------------------------------------- one spot, two labels
 
-#: Shared spot: the parts of a limb that two people may be given at one spot (a hand, an
-#: elbow, a foot or a knee answered for both).
-SPOT_PARTS = ("wrist", "elbow", "knee", "ankle")
+#: Shared spot: the parts of a limb that two people may be given at one spot (a hand or a
+#: foot answered for both). Elbows are left out: on the dance's fit seeds two people's elbows
+#: at one spot were nearly always both right (arms linked), and unlabelling the stretched
+#: one helped 1 time in 21 even at strength 0.5 or more (on the choir 49 in 53); knees too
+#: rarely share a spot to tell (3 pairs).
+SPOT_PARTS = ("wrist", "ankle")
 #: Shared spot: two people's labels of one part (either side) closer than this share of the
 #: smaller one's stature lie on one spot.
 SPOT_WITHIN = 0.03
@@ -1000,22 +1003,23 @@ def _reach(view: FrameView, pid: int, joint: int) -> float:
 
 
 def shared_spots(view: FrameView) -> list[Proposal]:
-    """One hand (elbow, foot, knee) labelled on two people at one spot: the one whose limb
-    is stretched to reach it lets go of it.
+    """One hand or foot labelled on two people at one spot: the one whose limb is stretched
+    to reach it lets go of it.
 
     Notes
     -----
-    Two people's wrists (elbows, knees, ankles; either side) within :data:`SPOT_WITHIN` of
+    Two people's wrists or ankles (either side; :data:`SPOT_PARTS`) within :data:`SPOT_WITHIN` of
     the smaller stature lie on one spot: two hands held (right on both), or one hand given
     to two people (the network answered a hidden hand at the neighbour's visible one, or the
     grouping gave one peak to both). The maps cannot tell whose it is (one peak, and the
     field joins it to both), but the bodies can: the person whose limb reaches the spot only
     by stretching past its expected length (:func:`_reach`, the limb's share of stature,
     :func:`app.analysis.anthropometry.limb_fractions`) is the borrower. On the fit seeds
-    (dance and choir 1-8, 12 frames each, auto-labels), of the pairs where one label was
-    right and the other wrong, the more stretched one was the wrong one 380 times, the right
-    one 83 times; held hands (both right) are common on the dance (273 pairs) and are told
-    by neither limb being stretched. Strength: the borrower's stretch ramped from
+    (dance and choir 1-8, 12 frames each, auto-labels; wrists and ankles within 0.03), of
+    the pairs where one label was right and the other wrong, the more stretched one was the
+    wrong one 326 times, the right one 85 times; held hands (both right) are common on the
+    dance (268 of its 335 pairs, against 35 of the choir's 431) and are told, where they
+    are, by neither limb being stretched. Strength: the borrower's stretch ramped from
     :data:`REACH_FROM` to :data:`REACH_SURE`, times how much more it is stretched than the
     keeper's (the ratio ramped from 1 to 1.5). Two people sharing :data:`SPOT_MOST` spots or
     more are left to the duplicate check. Fix: unlabel the borrower's joint, unless a person
@@ -1030,38 +1034,51 @@ def shared_spots(view: FrameView) -> list[Proposal]:
     part_of = {j: _part(sk, j) for j in parts}
     people = view.present
     n = view.names
-    for index, p in enumerate(people):
-        kp = view.people[p]
-        for q in people[index + 1:]:
-            kq = view.people[q]
-            scale = float(np.nanmin([view.scale(p), view.scale(q)]))
-            if not (np.isfinite(scale) and scale > 0):
+    if len(people) < 2:
+        return out
+    kp = np.stack([view.people[p] for p in people])
+    scales = np.array([view.scale(p) for p in people], dtype=np.float64)
+    with np.errstate(invalid="ignore"):
+        limit = SPOT_WITHIN * np.fmin.outer(scales, scales)
+    upper = np.triu(np.ones((len(people), len(people)), dtype=bool), 1)
+    found: dict[tuple[int, int], list[tuple[int, int]]] = {}
+    for j in parts:
+        for k in parts:
+            if part_of[j] != part_of[k]:
                 continue
-            pairs = [(j, k) for j in parts for k in parts
-                     if part_of[j] == part_of[k] and kp[j, 2] > 0 and kq[k, 2] > 0
-                     and np.hypot(*(kp[j, :2] - kq[k, :2])) < SPOT_WITHIN * scale]
-            if not pairs or len(pairs) >= SPOT_MOST:
+            gap = np.hypot(kp[:, None, j, 0] - kp[None, :, k, 0],
+                           kp[:, None, j, 1] - kp[None, :, k, 1])
+            on = (kp[:, None, j, 2] > 0) & (kp[None, :, k, 2] > 0) & upper
+            with np.errstate(invalid="ignore"):
+                near = on & (gap < limit)
+            for a, b in zip(*np.nonzero(near), strict=True):
+                found.setdefault((int(a), int(b)), []).append((j, k))
+    for (a, b), pairs in sorted(found.items()):
+        p, q = people[a], people[b]
+        kp_, kq = kp[a], kp[b]
+        scale = float(np.nanmin([scales[a], scales[b]]))
+        if len(pairs) >= SPOT_MOST:
+            continue
+        for j, k in pairs:
+            reach_p, reach_q = _reach(view, p, j), _reach(view, q, k)
+            if not (np.isfinite(reach_p) and np.isfinite(reach_q)):
                 continue
-            for j, k in pairs:
-                reach_p, reach_q = _reach(view, p, j), _reach(view, q, k)
-                if not (np.isfinite(reach_p) and np.isfinite(reach_q)):
-                    continue
-                (loser, lj, lr), (keeper, kj, kr) = sorted(
-                    ((p, j, reach_p), (q, k, reach_q)), key=lambda x: (-x[2], x[0]))
-                strength = (ramp(lr, REACH_FROM, REACH_SURE)
-                            * ramp(lr / max(kr, 1e-9), 1.0, 1.5))
-                apart = float(np.hypot(*(kp[j, :2] - kq[k, :2]))) / scale
-                edits: tuple[Edit, ...] = ()
-                if lj not in view.placed.get(loser, frozenset()):
-                    edits = (SetVisibility(view.frame_id, loser, lj, 0),)
-                text = (f"{n.whose(loser, lj)} lies on {n.whose(keeper, kj)} "
-                        f"({apart:.2f} of a body height apart): one joint labelled on two "
-                        f"people; {n.person(loser)}'s limb reaches it at {lr:.2f} of its "
-                        f"length, {n.person(keeper)}'s at {kr:.2f}")
-                out.append(Proposal(
-                    "shared-spot", loser, (lj,), text, strength,
-                    (("apart", apart), ("reach", lr), ("reach_keeper", kr)), edits,
-                    (loser, keeper), f"mark {n.whose(loser, lj)} unlabelled"))
+            (loser, lj, lr), (keeper, kj, kr) = sorted(
+                ((p, j, reach_p), (q, k, reach_q)), key=lambda x: (-x[2], x[0]))
+            strength = (ramp(lr, REACH_FROM, REACH_SURE)
+                        * ramp(lr / max(kr, 1e-9), 1.0, 1.5))
+            apart = float(np.hypot(*(kp_[j, :2] - kq[k, :2]))) / scale
+            edits: tuple[Edit, ...] = ()
+            if lj not in view.placed.get(loser, frozenset()):
+                edits = (SetVisibility(view.frame_id, loser, lj, 0),)
+            text = (f"{n.whose(loser, lj)} lies on {n.whose(keeper, kj)} "
+                    f"({apart:.2f} of a body height apart): one joint labelled on two "
+                    f"people; {n.person(loser)}'s limb reaches it at {lr:.2f} of its "
+                    f"length, {n.person(keeper)}'s at {kr:.2f}")
+            out.append(Proposal(
+                "shared-spot", loser, (lj,), text, strength,
+                (("apart", apart), ("reach", lr), ("reach_keeper", kr)), edits,
+                (loser, keeper), f"mark {n.whose(loser, lj)} unlabelled"))
     return out
 
 
