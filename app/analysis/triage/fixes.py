@@ -981,8 +981,8 @@ SPOT_WITHIN = 0.03
 #: expected length on the person's stature, surely at ``REACH_SURE``. Within 30 % of it a
 #: forearm is not told from a right one by its length (the stature is read from a torso that
 #: turns and bends): on the dance's fit seeds, the 24 proposed fixes that unlabelled a right
-#: wrist had forearms of 1.11-1.29 of their length, and every one from 1.68 on was wrong;
-#: on the choir's, from 1.0 on 9 in 10 were wrong.
+#: wrist had forearms of 1.11-1.29 of their length, and every one from 1.68 on unlabelled a
+#: wrong one; on the choir's, 9 in 10 from 1.0 on did.
 REACH_FROM, REACH_SURE = 1.3, 1.8
 #: Shared spot: a hand is shared with a neighbour within reach, who stands about as far from
 #: the camera, so about as tall in the picture (Hoiem et al.: the image height of a person is
