@@ -14,6 +14,8 @@ kind               the problem                                    the fix
                                                                   evidence supports (swapping
                                                                   with the receiver's), or
                                                                   unlabel them
+``shared-spot``    one hand or foot labelled on two people        unlabel it on the person
+                                                                  whose limb stretches to it
 ``invented``       a hidden joint placed at an invented spot      unlabel it
 ``hidden``         joints labelled visible that a nearer person   mark them occluded (their
                    hides                                          place is known)
