@@ -51,10 +51,11 @@ GROUPING_RUN = 16
 
 #: Whether :func:`import_maps` groups the frames of a sequence with the frame before by
 #: default (``import-maps --frame-before`` asks for it). Off: with it, the demo's labelled
-#: errors last longer and carrying spares more (25.6 % against 23.1 % on fresh seeds
-#: 101-103, short of issue 14's 30 %), but triage flags the dance's wrong people less well,
+#: errors last longer and carrying spares more (33.8 % against 26.5 % on fresh seeds
+#: 110-115, where issue 14 asks 30 %), but triage flags the dance's wrong people less well,
 #: even with its weights and the findings' calibration fitted again on demos grouped this
-#: way (tried twice on 3 December 2026; README "Sequences", DEVELOPERS.md).
+#: way (tried three times on 3 December 2026: the shipped demo's recall stays at 0.76-0.84;
+#: README "Sequences", DEVELOPERS.md "The demo").
 FRAME_BEFORE = False
 
 

@@ -20,6 +20,12 @@ Seeds are written as for :mod:`app.demo.calibrate`, each list optionally after a
 
     python -m app.demo.weights --fit 1-8,choir:1-8 --measure choir:21-23 --cache DIR
 
+``--frame-before`` measures demos grouped with the frame before (``import-maps
+--frame-before``; give a cache of its own, as for :mod:`app.demo.calibrate`), and
+``--trial-signs NAME,...`` adds signs that triage does not have yet
+(:mod:`app.demo.trial_signs`; none at present: those tried last are triage's reasons now) as
+extra kinds, fitted and measured with the others.
+
 Each scenario's demos are synthetic (:mod:`app.demo`, :mod:`app.demo.choir`).
 """
 
@@ -36,6 +42,7 @@ from scipy.optimize import minimize
 from app.analysis.triage.combine import FLAG_AT, PRIOR, WEIGHTS
 from app.demo.calibrate import DemoFrame, _view, demo_folder, demo_frames, parse_demos
 from app.demo.evaluate import wrong_people
+from app.demo.trial_signs import TRIAL_SIGNS
 
 #: Upper bound of a fitted weight (log-odds): at most about 98 % from one sign alone.
 MAX_WEIGHT = 8.0
@@ -45,19 +52,21 @@ KINDS: tuple[str, ...] = tuple(WEIGHTS)
 
 @dataclass
 class Judged:
-    """The people of some frames: each one's strongest strength per kind and whether it is
-    wrong against the truth."""
+    """The people of some frames: each one's strongest strength per kind (the columns, named
+    by ``kinds``) and whether it is wrong against the truth."""
 
     strengths: np.ndarray
     wrong: np.ndarray
+    kinds: tuple[str, ...] = KINDS
 
     def __add__(self, other: Judged) -> Judged:
         return Judged(np.concatenate([self.strengths, other.strengths]),
-                      np.concatenate([self.wrong, other.wrong]))
+                      np.concatenate([self.wrong, other.wrong]), self.kinds)
 
 
-def judge(frames: Iterable[DemoFrame]) -> Judged:
-    """Triage each frame's labels and judge each person against the frame's truth."""
+def judge(frames: Iterable[DemoFrame], trial: Sequence[str] = ()) -> Judged:
+    """Triage each frame's labels and judge each person against the frame's truth; each sign
+    named in ``trial`` (:data:`app.demo.trial_signs.TRIAL_SIGNS`) adds a column."""
     rows: list[np.ndarray] = []
     wrong: list[bool] = []
     for frame in frames:
@@ -71,18 +80,20 @@ def judge(frames: Iterable[DemoFrame]) -> Judged:
             if r.person in best and r.kind in KINDS:
                 k = KINDS.index(r.kind)
                 best[r.person][k] = max(best[r.person][k], r.strength)
+        signs = [TRIAL_SIGNS[name](frame) for name in trial]
         kps = [labels.people[p].keypoints for p in pids]
         truth = list(frame.truth)
         judged = wrong_people(kps, truth, list(frame.areas), labels.skeleton.sigma_array)
-        rows += [best[p] for p in pids]
+        rows += [np.concatenate([best[p], [sign[p] for sign in signs]]) for p in pids]
         wrong += [bool(w) for w in judged]
-    return Judged(np.array(rows).reshape(-1, len(KINDS)), np.array(wrong, dtype=bool))
+    kinds = KINDS + tuple(trial)
+    return Judged(np.array(rows).reshape(-1, len(kinds)), np.array(wrong, dtype=bool), kinds)
 
 
 def fit_weights(judged: Judged, max_weight: float = MAX_WEIGHT,
                 ridge: float = 1e-3) -> tuple[float, dict[str, float]]:
     """Maximum-likelihood ``(PRIOR, WEIGHTS)`` with the weights bounded to ``[0, max_weight]``,
-    rounded (prior to 0.1, weights to 0.5).
+    rounded (prior to 0.1, weights to 0.5), one weight per kind of ``judged.kinds``.
 
     Notes
     -----
@@ -112,14 +123,15 @@ def fit_weights(judged: Judged, max_weight: float = MAX_WEIGHT,
         grad = np.concatenate([[np.sum(p - y)], x.T @ (p - y) + 2 * ridge * theta[1:]])
         return nll, grad
 
-    start = np.concatenate([[PRIOR], [WEIGHTS[k] for k in KINDS]])
-    bounds = [(None, None)] + [(0.0, max_weight)] * len(KINDS)
+    kinds = judged.kinds
+    start = np.concatenate([[PRIOR], [WEIGHTS.get(k, 0.0) for k in kinds]])
+    bounds = [(None, None)] + [(0.0, max_weight)] * len(kinds)
     # Tight tolerances: with the defaults L-BFGS-B stopped early from some starting points
     # (the shipped weights), on the example below at a prior of -5.9 instead of -3.6.
     result = minimize(loss, start, jac=True, method="L-BFGS-B", bounds=bounds,
                       options={"ftol": 1e-14, "gtol": 1e-9, "maxiter": 10000})
     prior = round(float(result.x[0]), 1)
-    weights = {k: round(float(w) * 2) / 2 for k, w in zip(KINDS, result.x[1:])}
+    weights = {k: round(float(w) * 2) / 2 for k, w in zip(kinds, result.x[1:])}
     return prior, weights
 
 
@@ -144,8 +156,8 @@ class Recall:
 def measure(judged: Judged, prior: float = PRIOR, weights: dict[str, float] | None = None,
             flag_at: float = FLAG_AT) -> Recall:
     """Recall and precision of the people flagged at ``flag_at`` by ``prior`` and
-    ``weights`` (default: the shipped ones)."""
-    w = np.array([(weights or WEIGHTS)[k] for k in KINDS])
+    ``weights`` (default: the shipped ones; a kind they lack weighs 0)."""
+    w = np.array([(weights or WEIGHTS).get(k, 0.0) for k in judged.kinds])
     z = prior + judged.strengths @ w
     flagged = 1.0 / (1.0 + np.exp(-z)) >= flag_at
     return Recall(len(flagged), int(judged.wrong.sum()), int(flagged.sum()),
@@ -170,12 +182,12 @@ def choose_flag_at(judged: dict[str, Judged], prior: float, weights: dict[str, f
 
 
 def _judged(cache: str, demos: Sequence[tuple[str, int]],
-            frames: int | None = None) -> dict[str, Judged]:
+            frames: int | None = None, trial: Sequence[str] = ()) -> dict[str, Judged]:
     """:func:`judge` of each demo, generated into ``cache`` the first time."""
     out = {}
     for scene, seed in demos:
         name = f"{scene} seed {seed}"
-        out[name] = judge(demo_frames(demo_folder(cache, seed, scene, frames)))
+        out[name] = judge(demo_frames(demo_folder(cache, seed, scene, frames)), trial)
         print(f"{name}: judged", file=sys.stderr, flush=True)
     return out
 
@@ -195,15 +207,31 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser.add_argument("--fit-frames", metavar="N", type=int, default=12,
                         help="frames of each demo generated to fit on (default 12; demos to "
                              "measure on have the usual 24)")
+    parser.add_argument("--frame-before", action="store_true",
+                        help="demos grouped with the frame before (import-maps "
+                             "--frame-before); give a cache of its own")
+    parser.add_argument("--trial-signs", metavar="NAMES", default="",
+                        help="signs triage does not have yet, fitted and measured as extra "
+                             f"kinds: any of {', '.join(TRIAL_SIGNS) or '(none at present)'}, "
+                             "separated by commas")
     args = parser.parse_args(argv)
+    if args.frame_before:
+        import app.jobs_analysis
+
+        app.jobs_analysis.FRAME_BEFORE = True
+    trial = [name for name in args.trial_signs.split(",") if name]
+    unknown = [name for name in trial if name not in TRIAL_SIGNS]
+    if unknown:
+        parser.error(f"no trial sign {unknown[0]!r} (there are "
+                     f"{', '.join(TRIAL_SIGNS) or 'none at present'})")
     prior, weights, flag_at = PRIOR, dict(WEIGHTS), FLAG_AT
     if args.fit:
-        fitted = _judged(args.cache, parse_demos(args.fit), args.fit_frames)
+        fitted = _judged(args.cache, parse_demos(args.fit), args.fit_frames, trial)
         pooled = sum(list(fitted.values())[1:], next(iter(fitted.values())))
         prior, weights = fit_weights(pooled)
         print(f"PRIOR = {prior}")
         print("WEIGHTS = {")
-        for k in KINDS:
+        for k in pooled.kinds:
             print(f"    {k!r}: {weights[k]},")
         print("}")
         for flag_at in FLAG_CANDIDATES:
@@ -217,7 +245,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     if args.measure:
         print("| demo | people | wrong | flagged | recall | precision |")
         print("|---|---:|---:|---:|---:|---:|")
-        for name, j in _judged(args.cache, parse_demos(args.measure)).items():
+        for name, j in _judged(args.cache, parse_demos(args.measure), trial=trial).items():
             r = measure(j, prior, weights, flag_at)
             print(f"| {name} | {r.people} | {r.wrong} | {r.flagged} | {r.recall:.3f} "
                   f"| {r.precision:.3f} |")

@@ -47,7 +47,7 @@ from app.session.owners import OwnerRanking, rank_owners
 from app.session.selection import Selection
 from app.session.settling import Dispute, Settling, load_dispute
 from app.session.view import View
-from app.session.walk import Stop, Walk, card_text, fold, folded_ahead, group_findings
+from app.session.walk import Stop, Walk, card_text, fold, folded_ahead, group_findings, ride
 from app.store.project import Project
 from app.wording import DECISION_WORDS, count
 
@@ -379,14 +379,17 @@ class Session:
         return self._stops[frame_id]
 
     def _read_stops(self, frame_id: int, fold: bool = False,
-                    over_time: bool = True) -> list[Stop]:
+                    over_time: bool = True, riding: bool = True) -> list[Stop]:
         """The frame's stops read from the project: its stored findings (computed again when
         stale) and, in a project with tracks, its findings over time, grouped into stops.
         ``fold`` (on the worker only: it finds the frame's problems again up to
         :data:`~app.session.walk.FOLD_ROUNDS` times) folds into each person's card the
         fixes its own fixes expose (:func:`~app.session.walk.fold`); without it, the
         cards a fold read ahead for these very labels are used (:meth:`_fold_ahead`).
-        ``over_time`` False uses only the findings over time already kept (computes none)."""
+        ``over_time`` False uses only the findings over time already kept (computes none).
+        ``riding`` (False: the stops as folded, keyed as :meth:`fold_frame` keeps them) lets
+        a stop that only marks joints occluded ride on the frame's last card
+        (:func:`~app.session.walk.ride`)."""
         digests = self.project.findings_digests()
         if not digests:
             return self._reason_stops(frame_id)
@@ -412,12 +415,13 @@ class Session:
             found = current_findings(self.project, [frame_id]).get(frame_id, [])
         stops = group_findings(frame_id, found)
         if fold:
-            return self._fold(frame_id, stops, labels,
-                              over_time=bool(self._tracked) and frame_id in self._over_time)
-        memo = self._folds.get(frame_id)
-        if memo is not None and memo[0] == digest:
-            stops = folded_ahead(stops, memo[1])
-        return stops
+            stops = self._fold(frame_id, stops, labels,
+                               over_time=bool(self._tracked) and frame_id in self._over_time)
+        else:
+            memo = self._folds.get(frame_id)
+            if memo is not None and memo[0] == digest:
+                stops = folded_ahead(stops, memo[1])
+        return ride(stops) if riding else stops
 
     def _fold(self, frame_id: int, stops: list[Stop], labels: Any,
               over_time: bool = False, places: bool = False) -> list[Stop]:
@@ -477,7 +481,7 @@ class Session:
             try:
                 self._over_time_ahead(nxt)  # kept only if nothing changed since
                 labels = self.project.labels(nxt)
-                found = self._read_stops(nxt, over_time=False)
+                found = self._read_stops(nxt, over_time=False, riding=False)
                 folded = self._fold(nxt, found, labels, over_time=bool(self._tracked)
                                     and nxt in self._over_time, places=True)
                 if not found:  # the walk passes it: read the frames after it ahead
@@ -858,8 +862,10 @@ class Session:
             return None
         if stop.focused is not None:
             return self._dismiss_part(stop)
+        # A card's riders (fixes that only mark joints occluded, walk.ride) are not what
+        # it is about: they stay, for the frame's next stop.
         marks = tuple(DismissFinding(f.frame_id, f.fingerprint, f.kind, f.id, f.text)
-                      for f in stop.findings)
+                      for f in stop.own)
         edit = marks[0] if len(marks) == 1 else EditGroup(stop.frame_id, marks)
         if self._edited(stop, partial(self._apply, edit), changes_labels=False) is None:
             return None

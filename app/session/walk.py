@@ -86,6 +86,12 @@ class Stop:
         The keys (as found) of the frame's other stops that :func:`fold` took into this
         card, because a fix exposed by the two cards' fixes together reads both cards'
         people; those stops are not shown apart.
+    riders
+        The ids of the parts that ride on this stop (:func:`ride`): fixes that only mark
+        joints occluded, which nobody has to judge on a stop of their own. They are parts
+        like the others (listed, previewed, taken by the same key, left out or dismissed one
+        by one under focus); dismissing the whole card leaves them for the frame's next
+        stop (:meth:`own`).
     """
 
     frame_id: int
@@ -100,6 +106,7 @@ class Stop:
     focus: int | None = None
     rounds: tuple[int, ...] = ()
     merged: tuple[str, ...] = ()
+    riders: tuple[str, ...] = ()
 
     @property
     def fix(self) -> Fix | None:
@@ -129,6 +136,12 @@ class Stop:
         upto = min(out) if out else None
         return tuple(f for f, r in zip(self.parts, rounds) if f.id not in self.left_out
                      and (upto is None or r <= upto))
+
+    @property
+    def own(self) -> tuple[Finding, ...]:
+        """The findings the stop is about, without its riders (:func:`ride`): what
+        dismissing the whole card dismisses."""
+        return tuple(f for f in self.findings if f.id not in self.riders)
 
     @property
     def focused(self) -> Finding | None:
@@ -706,6 +719,102 @@ def group_findings(frame_id: int, found: Sequence[Finding]) -> list[Stop]:
     # The frame's groups come after its people's cards (see above).
     out = [s for s in out if not _is_group(s)] + [s for s in out if _is_group(s)]
     return _frame_notes(_with_notes(out))
+
+
+def occluding_only(fix: Fix | None) -> bool:
+    """Whether a fix does nothing but mark labelled joints occluded (COCO ``v`` 2 to 1): the
+    joints stay where they are and stay labelled, so it changes neither what training
+    learns from them nor whether their person is wrong, by either count of
+    :mod:`app.demo.evaluate` (both read a labelled joint alike, whatever its visibility).
+
+    Examples
+    --------
+    >>> from app.model.edits import SetVisibility
+    >>> occluding_only(Fix("", (SetVisibility(1, 3, 13, 1),), FixPreview()))
+    True
+    >>> occluding_only(Fix("", (SetVisibility(1, 3, 13, 0),), FixPreview()))
+    False
+    """
+    return fix is not None and bool(fix.edits) and all(
+        isinstance(e, SetVisibility) and e.v == 1 for e in fix.edits)
+
+
+#: Kinds whose stops may ride on another stop of their frame (:func:`ride`): ``hidden``
+#: marks joints a nearer person hides occluded where they are.
+RIDING_KINDS = ("hidden",)
+
+
+def can_ride(s: Stop) -> bool:
+    """A stop that may ride on another (:func:`ride`): its fixes are all of
+    :data:`RIDING_KINDS` and only mark joints occluded, as found (no fold round, nothing
+    merged into it, nothing riding on it)."""
+    return (occluding_only(s.fix) and not s.riders and not s.merged
+            and not any(s.rounds) and bool(s.parts or s.finding)
+            and all(f.kind in RIDING_KINDS for f in s.findings if f.fix is not None))
+
+
+def ride(stops: Sequence[Stop]) -> list[Stop]:
+    """A frame's stops with each stop whose fix only marks joints occluded
+    (:func:`occluding_only`: the frame's group of hidden joints, or one person's) riding on
+    the frame's last other stop with a fix whose fix it does not conflict with
+    (:func:`conflict`): that card lists its fixes after its own, previews them with its
+    own, and the same key takes them all as one undo step. Such a fix changes nothing the
+    annotator has to weigh against the card's (no joint moves, none is unlabelled), so it
+    costs no key of its own. A frame with no other stop with a fix keeps it as a stop of its
+    own, at the end as before. Nothing is dropped: the rider's findings are the card's
+    (:attr:`Stop.riders`), reached by the same steps, counted on the same frame; leaving
+    one out or dismissing it works under focus as for any part, and dismissing the whole
+    card leaves the riders for the frame's next stop.
+
+    Examples
+    --------
+    >>> from app.model.edits import ReassignJoint, SetVisibility
+    >>> def f(key, kind, person, edit):
+    ...     return Finding(key, 1, kind, person, person, (edit.joint,), ("x",), f"t{key}", (),
+    ...                    1.0, 0.9, Fix(f"fix {key}", (edit,), FixPreview()), (person,), key)
+    >>> owner = f("a", "wrong-owner", 3, ReassignJoint(1, 3, 9, 5))
+    >>> hid = [f("h", "hidden", 7, SetVisibility(1, 7, 13, 1)),
+    ...        f("k", "hidden", 8, SetVisibility(1, 8, 14, 1))]
+    >>> out = ride(group_findings(1, [owner, *hid]))
+    >>> [(s.key, [p.id for p in s.parts], s.riders) for s in out]
+    [('a&G:covered', ['a', 'h', 'k'], ('h', 'k'))]
+    >>> out[0].fix.summary, [f.id for f in out[0].own]
+    ('3 fixes: fix a; fix h; fix k', ['a'])
+    >>> [s.key for s in ride(group_findings(1, hid))]     # nothing else on the frame
+    ['G:covered']
+    """
+    out = list(stops)
+    for rider in [s for s in out if can_ride(s)]:
+        fp = footprint(rider.fix)  # type: ignore[arg-type]
+        if fp is None:
+            continue
+        for h in range(len(out) - 1, -1, -1):
+            host = out[h]
+            if host is rider or host.fix is None or can_ride(host):
+                continue
+            hp = footprint(host.fix)
+            if hp is None or conflict(hp, fp) or not (host.parts or host.finding):
+                continue
+            out[h] = _carrying(host, rider)
+            out.remove(rider)
+            break
+    return out
+
+
+#: Between a card's own sentence and its riders' (:func:`ride`).
+RIDERS_SAID = "; taken with it, "
+
+
+def _carrying(host: Stop, rider: Stop) -> Stop:
+    """A stop with a rider's fixes and notes after its own (:func:`ride`)."""
+    own = host.parts or ((host.finding,) if host.finding is not None else ())
+    rparts = rider.parts or ((rider.finding,) if rider.finding is not None else ())
+    return replace(host, key=f"{host.key}&{rider.key}", text=host.text + RIDERS_SAID + rider.text,
+                   finding=own[0] if host.finding is None else host.finding,
+                   group=host.findings + rider.findings, parts=own + rparts,
+                   rounds=(host.rounds or (0,) * len(own)) + (0,) * len(rparts),
+                   left_out=host.left_out | rider.left_out, focus=None,
+                   riders=host.riders + tuple(f.id for f in rider.findings))
 
 
 def _joints_group(covered: Sequence[Finding], gaps: Sequence[Finding]) -> tuple[Finding, ...]:

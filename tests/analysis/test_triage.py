@@ -236,7 +236,14 @@ def test_triage_and_fixes_on_the_choir(tmp_path):
     triage's figures are unchanged (the fixes do not enter them). With missing-joints
     counting a joint whose limb the field does not show as half, and the weights and the
     calibration fitted again (3 December 2026): 104 flagged, 88 of them wrong (recall 0.880,
-    precision 0.846); 419 to 278 (33.7 %), 2,067 to 2,100 (+1.6 %)."""
+    precision 0.846); 419 to 278 (33.7 %), 2,067 to 2,100 (+1.6 %). With a placed joint scored
+    on its map where it is now (``scores_now``): 419 to 277 (33.9 %), +1.9 %; and with
+    ``missing-joint`` no longer offering a faint peak whose limb's field runs the other way
+    (refitted alone, same day): 419 to 281 (32.9 %), 2,067 to 2,103 (+1.7 %): one
+    missing-joint fix fewer, and in the later rounds one phantom deletion and one wrong-owner
+    fix fewer (4 wrong joints), hence 0.32 below. With the reasons held-tie,
+    opposed-field and neighbour-face (weights 1.5, 1.5, 0): 105 flagged, 88 of them wrong
+    (precision 0.838)."""
     from app.demo.calibrate import accept_all, demo_frames
 
     folder = tmp_path / "choir21"
@@ -248,7 +255,7 @@ def test_triage_and_fixes_on_the_choir(tmp_path):
     assert fig.precision >= 0.7
     figure = accept_all(demo_frames(folder), demo="choir seed 21")
     print(json.dumps(figure.to_dict(), indent=1))
-    assert figure.removed_share >= 0.33
+    assert figure.removed_share >= 0.32
     assert figure.correct_change >= -0.02
 
 

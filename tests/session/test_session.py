@@ -392,3 +392,54 @@ def test_a_hand_on_two_people_is_a_card_whose_accept_unlabels_the_stretched_ones
     s.accept()
     assert _v(project, fid, first, 9) == 0
     assert len({e.group_id for e in project.history()}) == groups + 1, "one undo step"
+
+
+def _riding_frame(project, fid, first):
+    """Stored findings (invented): person 1's nose to unlabel (a wrong owner), and person 2's
+    knees and ankles, which a nearer person hides, to mark occluded (two findings)."""
+    from app.analysis.triage.findings import Finding, Fix, FixPreview, labels_digest
+    from app.model.edits import SetVisibility
+
+    a, b = first, first + 1
+    owner = Fix("mark person 1's nose unlabelled", (SetVisibility(fid, a, 0, 0),),
+                FixPreview(unlabeled=((a, 0),)))
+    found = [_note(fid, a, "Fo", "wrong-owner", 0, "nose", owner)]
+    for key, joints, names in (("Fh", (13, 14), ("left knee", "right knee")),
+                               ("Fk", (15, 16), ("left ankle", "right ankle"))):
+        fix = Fix(f"mark person 2's {names[0]} and {names[1]} occluded",
+                  tuple(SetVisibility(fid, b, j, 1) for j in joints),
+                  FixPreview(occluded=tuple((b, j) for j in joints)))
+        found.append(Finding(key, fid, "hidden", b, 2, joints, names, f"person 2's {key}",
+                             (), 1.0, 0.9, fix, (b,), key * 2))
+    project.store_findings({fid: (labels_digest(project.labels(fid)),
+                                  [f.to_dict() for f in found])})
+
+
+def test_the_frames_hidden_joints_ride_on_its_card_one_key_one_undo_step(scene):
+    """The frame's joints to mark occluded ride on its other card (app/session/walk.py,
+    ride): one stop, one accept applies every fix as one ledger group, one undo takes them
+    back (common practice: one action, one undo step); dismissing the card dismisses its
+    own finding and leaves the riders (found again by the frame's recompute). Synthetic."""
+    project, fids, first = scene
+    fid = fids[0]
+    _riding_frame(project, fid, first)
+    s, _, _ = _session(project, [fid])
+    (card,) = s.stops(fid)
+    assert card.key == "Fo&G:covered" and card.riders == ("Fh", "Fk")
+    assert set(card.fix.preview.occluded) == {(first + 1, j) for j in (13, 14, 15, 16)}
+    assert s.step(1).key == card.key
+    groups = len({e.group_id for e in project.history()})
+    before = [_v(project, fid, first, 0)] + [_v(project, fid, first + 1, j)
+                                             for j in (13, 14, 15, 16)]
+    s.accept()
+    assert [_v(project, fid, first, 0)] + [_v(project, fid, first + 1, j)
+                                           for j in (13, 14, 15, 16)] == [0, 1, 1, 1, 1]
+    assert len({e.group_id for e in project.history()}) == groups + 1, "one ledger group"
+    project.undo()
+    assert [_v(project, fid, first, 0)] + [_v(project, fid, first + 1, j)
+                                           for j in (13, 14, 15, 16)] == before
+    _riding_frame(project, fid, first)
+    s, _, _ = _session(project, [fid])
+    s.step(1)
+    s.dismiss()
+    assert project.dismissed()[fid] == {"FoFo"}, "the riders are not dismissed"

@@ -114,3 +114,34 @@ def test_a_frames_hidden_and_gap_fixes_are_one_stop_after_the_peoples_cards():
     clash = _joint_fix("g3", "joint-gap", 2, MoveJoint(1, 2, 13, 3.0, 4.0))  # h1's knee
     apart = group_findings(1, [*hidden, gaps[0], clash])
     assert [s.key for s in apart] == [COVERED_KEY, GAP_KEY]
+
+
+def test_a_frames_hidden_joints_ride_on_its_last_card_and_stand_alone_without_one():
+    """Our own rule (app/session/walk.py, ride): a frame's stop that only marks joints
+    occluded (its hidden joints: neither count of wrong people changes, app.demo.evaluate)
+    rides on the frame's last other stop with a fix it does not conflict with, taken by the
+    same key; with an invented spot to unlabel, or alone on the frame, it stays a stop of its
+    own. Every finding stays on exactly one stop. Synthetic findings."""
+    from app.model.edits import ReassignJoint, SetVisibility
+    from app.session.walk import COVERED_KEY, group_findings, ride
+
+    hidden = [_joint_fix("h1", "hidden", 2, SetVisibility(1, 2, 13, 1)),
+              _joint_fix("h2", "hidden", 3, SetVisibility(1, 3, 14, 1))]
+    owner = _joint_fix("w", "wrong-owner", 7, ReassignJoint(1, 7, 9, 8))
+    other = _joint_fix("x", "wrong-owner", 2, SetVisibility(1, 2, 13, 0))  # h1's knee
+    found = [owner, *hidden]
+    stops = ride(group_findings(1, found))
+    assert [s.key for s in stops] == [f"w&{COVERED_KEY}"]
+    card = stops[0]
+    assert [f.id for f in card.parts] == ["w", "h1", "h2"] and card.riders == ("h1", "h2")
+    assert [f.id for f in card.own] == ["w"], "dismissing the card leaves the riders"
+    assert len(card.fix.edits) == 3 and "nearer people hide" in card.text
+    assert sorted(f.id for s in stops for f in s.findings) == sorted(f.id for f in found)
+    # The last stop's fix marks h1's knee unlabelled: the riders go on the card before it.
+    stops = ride(group_findings(1, [owner, other, *hidden]))
+    assert [s.key for s in stops] == [f"w&{COVERED_KEY}", "x"]
+    # Alone on the frame, or with an invented spot in the group: a stop of its own.
+    assert [s.key for s in ride(group_findings(1, hidden))] == [COVERED_KEY]
+    spot = _joint_fix("i", "invented", 4, SetVisibility(1, 4, 9, 0))
+    assert [s.key for s in ride(group_findings(1, [owner, *hidden, spot]))] == ["w",
+                                                                               COVERED_KEY]

@@ -28,6 +28,12 @@ kind                 evidence
 ``low-score``        the model scored this person's joints lower than the frame's other people
 ``invented``         joints labelled visible inside the body of someone standing nearer, yet
                      scored as confidently as the frame's typical joint: guessed, not seen
+``held-tie``         labelled joints that the maps of this frame, grouped alone, give another
+                     owner or none (near ties the frame before decided; joints a person placed
+                     left out); silent on auto-labels grouped each frame alone
+``opposed-field``    labelled limbs whose line integral ``E`` is negative: the field runs from
+                     the second joint to the first (Cao et al. 2017)
+``neighbour-face``   one side's eye and ear both nearer another person's nose than their own
 ``crowded``          frame level: the crowd index of Li et al. (CVPR 2019)
 ===================  =========================================================================
 

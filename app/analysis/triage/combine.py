@@ -45,6 +45,9 @@ WEIGHTS: dict[str, float] = {
     "weak-limb": 0.5,
     "low-score": 0.5,
     "invented": 4.0,
+    "held-tie": 1.5,
+    "opposed-field": 1.5,
+    "neighbour-face": 0.0,
 }
 #: The frame's score adds this times its crowd index.
 CROWD_WEIGHT = 0.5

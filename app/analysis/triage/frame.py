@@ -31,11 +31,20 @@ from app.analysis.triage.crowd import (
     duplicates_and_splits,
     ground_line,
     invented,
+    neighbour_face,
     off_ground,
     stand_rows,
     typical_joint_score,
 )
-from app.analysis.triage.model_evidence import limb_support, low_scores, typical_support, weak_limbs
+from app.analysis.triage.model_evidence import (
+    grouped_alone,
+    held_tie,
+    limb_support,
+    low_scores,
+    opposed_field,
+    typical_support,
+    weak_limbs,
+)
 from app.model.naming import Names
 from app.model.skeleton import Skeleton
 
@@ -65,7 +74,8 @@ def triage_frame(
     placed
         Person id -> the joints a person placed or marked
         (:func:`app.analysis.triage.findings.placed_by_people`): ``invented`` leaves them
-        alone, since a moved joint keeps the model's score of its old spot.
+        alone, since a moved joint keeps the model's score of its old spot, and so does
+        ``held-tie`` (the maps' grouping is not the question for a joint a person placed).
 
     Returns
     -------
@@ -101,10 +111,11 @@ def triage_frame(
     present = [p for p, kp in arrays.items() if (kp[:, 2] > 0).any()]
     torso = {p: person_scale(arrays[p], skeleton) for p in present}
     scales = {p: body_scale(arrays[p], skeleton, fractions) for p in present}
-    support = typical = None
+    support = typical = alone = None
     if maps is not None and present:
         support = limb_support(np.stack([arrays[p] for p in present]), skeleton, maps)
         typical = typical_support(support)
+        alone = grouped_alone(maps, skeleton)
     line = ground_line(np.array([feet_y(arrays[p], skeleton) for p in present]),
                        np.array([torso[p] for p in present]))
     typical_score = None
@@ -128,10 +139,13 @@ def triage_frame(
         reasons += off_ground(pid, kp, skeleton, torso[pid], line)
         reasons += mirrored(pid, kp, skeleton, own, torso[pid])
         reasons += crossed_sides(pid, kp, skeleton, torso[pid], maps)
+        mine = frozenset() if placed is None else frozenset(placed.get(pid, ()))
         if support is not None and typical is not None:
             reasons += weak_limbs(pid, kp, skeleton, support[n], typical)
+            reasons += opposed_field(pid, kp, skeleton, support[n])
+        reasons += held_tie(pid, kp, alone, mine, names)
+        reasons += neighbour_face(pid, kp, skeleton, shown, names)
         reasons += low_scores(pid, kp, own, typical_score)
-        mine = frozenset() if placed is None else frozenset(placed.get(pid, ()))
         reasons += invented(pid, kp, skeleton,
                             [(j, q) for j, q in covered.get(pid, []) if j not in mine],
                             own, joint_score, names)

@@ -18,9 +18,9 @@ from typing import Any
 
 import numpy as np
 
-from app.analysis.association import limb_scores
+from app.analysis.association import group_people, limb_scores
 from app.analysis.triage.combine import Reason, make_reason, ramp
-from app.model.naming import joint_name
+from app.model.naming import Names, joint_name
 from app.model.skeleton import Skeleton
 
 #: Weak limbs: the mean shortfall of the person's ``E`` below the frame's typical ``E`` for
@@ -30,6 +30,16 @@ WEAK_FROM, WEAK_SURE = 0.0, 0.12
 #: is sure at 0.15; with fewer than three people, below the absolute ``LOW_SCORE``.
 LOW_FROM, LOW_SURE = 0.0, 0.15
 LOW_SCORE = 0.45
+#: Held tie: labelled joints that the maps grouped each frame alone place elsewhere, at which
+#: the check is at full strength; a joint within ``SAME_SPOT`` pixels is the same.
+HELD_FULL = 3
+SAME_SPOT = 1.0
+#: A person with fewer joints than this on a spot of the grouping alone is not that grouping's
+#: (labels a person drew or imported from elsewhere): ``held-tie`` says nothing of it.
+HELD_SHARED = 2
+#: Opposed field: labelled limbs whose ``E`` is negative, at which the check is at full
+#: strength (our choice).
+OPPOSED_FULL = 2
 
 
 def limb_index(skeleton: Skeleton, a: int, b: int) -> tuple[int, bool] | None:
@@ -65,6 +75,14 @@ class FieldMemo:
         self.confidence_maps = getattr(maps, "confidence_maps", None)
         self._known: dict[tuple[Any, ...], float] = {}
         self._tables: dict[int, _LimbTable] = {}
+        self._alone: list[np.ndarray] | None = None
+
+    def alone(self, skeleton: Skeleton) -> list[np.ndarray] | None:
+        """The people the maps give grouped on their own (:func:`grouped_alone`), computed
+        once per frame (about 10 ms for a crowded frame); None without confidence maps."""
+        if self._alone is None and self.confidence_maps is not None:
+            self._alone = grouped_alone(self.maps, skeleton)
+        return self._alone
 
     def e(self, limb: int, start: np.ndarray, end: np.ndarray) -> float:
         """``E`` of limb ``limb`` from ``start`` to ``end`` (image pixels), as
@@ -85,6 +103,19 @@ class FieldMemo:
                 value = float(mean[0, 0])
             self._known[key] = value
         return value
+
+
+def grouped_alone(maps: Any, skeleton: Skeleton) -> list[np.ndarray] | None:
+    """The people of one frame's maps grouped without the frame before: what ``import-maps``
+    gives each frame alone (:func:`app.analysis.association.group_people`), ``(K, 3)`` rows
+    of ``x, y, score`` in image pixels; None when the maps have no confidence maps. A
+    :class:`FieldMemo` keeps it (:meth:`FieldMemo.alone`)."""
+    if isinstance(maps, FieldMemo):
+        return maps.alone(skeleton)
+    heat = getattr(maps, "confidence_maps", None)
+    if heat is None:
+        return None
+    return group_people(heat, maps.pafs, np.asarray(skeleton.limbs), stride=maps.stride)
 
 
 #: The sample positions ``u`` of :func:`app.analysis.association.limb_scores` (10 samples).
@@ -415,3 +446,159 @@ def field_near(maps: Any, limb: int, at: np.ndarray, radius: float) -> float:
         return 0.0
     patch = np.asarray(field[:, r0:r1 + 1, c0:c1 + 1], dtype=np.float64)
     return float(np.hypot(patch[0], patch[1])[near].max())
+
+
+def elsewhere_alone(kp: np.ndarray, alone: list[np.ndarray],
+                    skip: frozenset[int] = frozenset(), shared: int = 0) -> list[int]:
+    """The labelled joints of ``kp`` that the maps grouped alone place elsewhere or not at
+    all, on the person of ``alone`` who shares most of them (``skip``: joints left out);
+    none when that person shares fewer than ``shared`` of them.
+
+    Parameters
+    ----------
+    kp
+        ``(K, 3)`` ``x, y, v`` (``v > 0`` labelled).
+    alone
+        People grouped alone (:func:`grouped_alone`), ``(K, 3)`` ``x, y, score``, score 0
+        where missing.
+    skip
+        Joints not to count (a person placed them).
+
+    Returns
+    -------
+    list of int
+        The joints, in order.
+
+    Examples
+    --------
+    >>> kp = np.array([[10.0, 10, 2], [20, 10, 2], [30, 10, 2], [0, 0, 0]])
+    >>> same = np.array([[10.0, 10, 0.9], [20, 10, 0.9], [30, 10, 0.9], [40, 10, 0.9]])
+    >>> elsewhere_alone(kp, [same])
+    []
+    >>> moved = same.copy(); moved[2, 0] = 45; moved[1, 2] = 0   # one elsewhere, one missing
+    >>> elsewhere_alone(kp, [moved]), elsewhere_alone(kp, [moved], frozenset({2}))
+    ([1, 2], [1])
+    >>> elsewhere_alone(kp, []), elsewhere_alone(kp, [], shared=2)
+    ([0, 1, 2], [])
+    """
+    on = kp[:, 2] > 0
+    if skip:
+        on[list(skip)] = False
+    best = np.zeros(len(kp), dtype=bool)
+    for person in alone:
+        same = on & (person[:, 2] > 0) & \
+            (np.hypot(person[:, 0] - kp[:, 0], person[:, 1] - kp[:, 1]) < SAME_SPOT)
+        if int(same.sum()) > int(best.sum()):
+            best = same
+    if int(best.sum()) < shared:
+        return []
+    return np.flatnonzero(on & ~best).tolist()
+
+
+def held_tie(pid: int, kp: np.ndarray, alone: list[np.ndarray] | None,
+             placed: frozenset[int] = frozenset(), names: Names | None = None) -> list[Reason]:
+    """Labelled joints that the model's maps, grouped for this frame alone, put elsewhere.
+
+    Parameters
+    ----------
+    pid
+        The person's id.
+    kp
+        ``(K, 3)`` ``x, y, v``.
+    alone
+        The frame's people grouped alone (:func:`grouped_alone`), or None (no check).
+    placed
+        Joints a person placed or marked: left alone (the grouping's word on them is not the
+        question).
+    names
+        How the joints are named in the text.
+
+    Returns
+    -------
+    list of Reason
+        At most one ``held-tie`` reason naming those joints.
+
+    Notes
+    -----
+    Our own heuristic, no published source. Grouped with the frame before
+    (``import-maps --frame-before``), a joint whose two owners were nearly tied in this frame
+    goes where the frame before had it; the joints this frame's maps alone would give another
+    owner (or none) are those near ties, and a wrong label is most often made of them. The
+    strength is their count over ``HELD_FULL`` (3), at most 1. Labels that are not that
+    grouping's at all (fewer than ``HELD_SHARED`` joints on its spots: drawn by a person or
+    imported from elsewhere, never within a pixel of the maps' peaks) get nothing. Under the
+    default grouping
+    (each frame alone) the auto-labels are that grouping, so the check is silent until a
+    person's edit (whose joints it skips) or an import makes labels of another origin.
+
+    Examples
+    --------
+    >>> kp = np.array([[10.0, 10, 2], [20, 10, 2], [30, 10, 2]])
+    >>> alone = [np.array([[10.0, 10, 0.9], [20, 10, 0.9], [50, 10, 0.9]])]
+    >>> r = held_tie(1, kp, alone)
+    >>> r[0].kind, r[0].joints, round(r[0].strength, 3)
+    ('held-tie', (2,), 0.333)
+    >>> held_tie(1, kp, alone, frozenset({2})), held_tie(1, kp, None)
+    ([], [])
+    """
+    if alone is None:
+        return []
+    joints = elsewhere_alone(kp, alone, placed, HELD_SHARED)
+    if not joints:
+        return []
+    listed = names.joints(joints) if names is not None else \
+        ", ".join(str(j) for j in joints)
+    return [make_reason("held-tie",
+                        f"{listed} nearly as likely elsewhere: the model's maps of this frame "
+                        "alone group them differently", pid, joints,
+                        ramp(len(joints), 0, HELD_FULL))]
+
+
+def opposed_field(pid: int, kp: np.ndarray, skeleton: Skeleton,
+                  support: np.ndarray) -> list[Reason]:
+    """Labelled limbs whose part affinity field runs the other way.
+
+    Parameters
+    ----------
+    pid
+        The person's id.
+    kp
+        ``(K, 3)`` ``x, y, v``.
+    skeleton
+        The project's skeleton.
+    support
+        ``(L,)`` the person's ``E`` per limb (a row of :func:`limb_support`, NaN where a limb
+        is not labelled).
+
+    Returns
+    -------
+    list of Reason
+        At most one ``opposed-field`` reason naming the ends of those limbs.
+
+    Notes
+    -----
+    ``E`` (Cao et al., CVPR 2017, Sec. 2.4) is the mean of the field along the limb dotted
+    with the limb's direction; a negative ``E`` means the field runs from the second joint to
+    the first: the ends are likely exchanged or one is someone else's. The strength is the
+    count of such limbs over ``OPPOSED_FULL`` (2), at most 1 (our choice).
+
+    Examples
+    --------
+    >>> from app.model.skeleton import coco_body
+    >>> sk = coco_body()
+    >>> kp = np.zeros((17, 3)); kp[:, 2] = 2
+    >>> support = np.full(19, 0.8); support[0] = -0.3
+    >>> r = opposed_field(1, kp, sk, support)
+    >>> r[0].kind, r[0].joints, r[0].strength
+    ('opposed-field', (13, 15), 0.5)
+    """
+    against = [c for c in np.flatnonzero(np.isfinite(support) & (support < 0)).tolist()]
+    if not against:
+        return []
+    joints = sorted({j for c in against for j in skeleton.limbs[c]})
+    listed = ", ".join(f"{joint_name(skeleton, skeleton.limbs[c][0])} to "
+                       f"{joint_name(skeleton, skeleton.limbs[c][1])}" for c in against[:3]) + \
+        (" ..." if len(against) > 3 else "")
+    return [make_reason("opposed-field",
+                        f"the model's field runs against {listed}: ends likely exchanged or "
+                        "someone else's", pid, joints, ramp(len(against), 0, OPPOSED_FULL))]
