@@ -162,6 +162,7 @@ REASONS: dict[str, tuple[str, str]] = {
     "crowded": ("crowded frame", "crowded frames"),
     "phantom": ("phantom", "phantoms"),
     "wrong-owner": ("joint with a wrong owner", "joints with a wrong owner"),
+    "shared-spot": ("joint labelled on two people", "joints labelled on two people"),
     "invented": ("invented joint", "invented joints"),
     "held-tie": ("person held on a near tie", "people held on a near tie"),
     "opposed-field": ("person against the field", "people against the field"),

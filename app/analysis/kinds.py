@@ -12,7 +12,8 @@ from __future__ import annotations
 #: The kinds of finding, in the order they are proposed (and accepted) within a frame: first
 #: whole people (duplicates, fragments, phantoms), then sides, then joints, then additions.
 KINDS: tuple[str, ...] = ("duplicate", "split", "phantom", "mirrored", "crossed-sides",
-                          "wrong-owner", "invented", "hidden", "missing-joint", "missed-person")
+                          "wrong-owner", "shared-spot", "invented", "hidden", "missing-joint",
+                          "missed-person")
 
 #: The kinds of finding over time, in the order their fixes are accepted.
 TIME_KINDS: tuple[str, ...] = ("exchanged-tracks", "flipped-stretch", "missing-frames",

@@ -566,6 +566,55 @@ def test_findings_again_after_a_fix_with_the_kept_memo_equal_a_fresh_computation
     assert [f.to_dict() for f in again] == [f.to_dict() for f in fresh]
 
 
+def _hand_on_neighbour() -> tuple[dict[int, np.ndarray], int]:
+    """A synthetic floor crowd where person 2's left wrist is put on person 3's right wrist
+    (neighbours of about one stature, 208 and 240 px): person 2's forearm stretched to
+    several times its length to reach it."""
+    people = _floor_crowd()
+    people[2] = people[2].copy()
+    people[2][J["left_wrist"], :2] = people[3][J["right_wrist"], :2] + 1.0
+    return people, J["left_wrist"]
+
+
+def test_a_hand_labelled_on_two_people_is_let_go_by_the_stretched_arm():
+    """Person 2's left wrist lies on person 3's right wrist (one hand labelled on two people;
+    synthetic): the person whose forearm must stretch to reach it (person 2) lets go of it,
+    person 3 keeps its own (our own rule, ``shared_spots``). A neighbour far shorter in the
+    picture (person 4's 272 px against person 5's 176 px: standing at other depths, after
+    Hoiem et al. 2006) shares no hand however stretched the arm: nothing is found."""
+    people, wrist = _hand_on_neighbour()
+    found = _find(people, "shared-spot")
+    assert [(f.person_id, f.joints) for f in found] == [(2, (wrist,))]
+    assert "person 2's left wrist lies on person 3's right wrist" in found[0].text
+    assert found[0].strength == 1.0
+    after = _accept(_labels(people), found[0])
+    assert after.people[2].keypoints[wrist, 2] == 0
+    np.testing.assert_array_equal(after.people[3].keypoints, people[3])
+    np.testing.assert_array_equal(np.delete(after.people[2].keypoints, wrist, axis=0),
+                                  np.delete(people[2], wrist, axis=0))
+    # A wrist a person placed there is not proposed for unlabelling again.
+    found = _find(people, "shared-spot", placed={2: frozenset({wrist})})
+    assert len(found) == 1 and found[0].fix is None
+    people = _floor_crowd()
+    people[4] = people[4].copy()
+    people[4][J["left_wrist"], :2] = people[5][J["right_wrist"], :2] + 1.0
+    assert _find(people, "shared-spot") == []
+
+
+def test_hands_held_with_neither_arm_stretched_are_no_finding():
+    """Two synthetic people side by side holding hands: both wrists on one spot, neither
+    forearm longer than its share of stature (Drillis and Contini via Winter, from memory):
+    no problem, so no finding (our own rule)."""
+    a, b = _body(centre=(560.0, 400.0)), _body(centre=(700.0, 400.0))
+    ends = [(float(np.hypot(*(a[ja, :2] - b[jb, :2]))), ja, jb)
+            for ja in (J["left_elbow"], J["right_elbow"])
+            for jb in (J["left_elbow"], J["right_elbow"])]
+    _, ja, jb = min(ends)
+    a[ja + 2, :2] = b[jb + 2, :2] = (a[ja, :2] + b[jb, :2]) / 2   # wrists held between
+    people = {1: a, 2: b}
+    assert _find(people, "shared-spot") == []
+
+
 def test_a_faint_peak_whose_limb_field_runs_the_other_way_is_not_placed():
     """The hidden wrist of the test above, its peak as faint, but the field along its
     forearm runs from the wrist back to the elbow (Cao et al. 2017, Eq. 10: ``E`` < 0):

@@ -367,6 +367,39 @@ def test_a_stop_selects_what_it_is_about_and_says_its_place(scene):
     assert s.stop_place(stop) == f"\u00b7 stop 1 of {n}"
 
 
+def test_a_hand_on_two_people_is_a_card_whose_accept_unlabels_the_stretched_ones(project):
+    """A synthetic frame (tests/analysis/synth.py, invented bodies): person 1's left wrist
+    put on person 2's nearest wrist, its forearm stretched to reach it. The walk stops at the
+    ``shared-spot`` finding on a card like any other (its sentence in tag numbers and joint
+    names), and one accept unlabels that wrist as one undo step (our own rule,
+    app/analysis/triage/fixes.py ``shared_spots``)."""
+    import numpy as np
+
+    from app.model.labels import Person
+    from tests.analysis.synth import person
+
+    rng = np.random.default_rng(5)
+    fid = project.frames()[0].id
+    a, b = person(rng, (100.0, 120.0), 120.0), person(rng, (175.0, 120.0), 120.0)
+    near = min((9, 10), key=lambda k: np.hypot(*(b[k, :2] - a[9, :2])))
+    a[9, :2] = b[near, :2] + 0.5
+    with project.bulk("SyntheticPeople", "synthetic people", "test") as bulk:
+        first = bulk.allocate_person_ids(2)
+        bulk.add_people([(fid, Person(first + n, kp, np.full(17, 0.9), ("auto",) * 17))
+                         for n, kp in enumerate((a, b))])
+    run_triage(project)
+    s, _, _ = _session(project, [fid])
+    stop = next(x for x in s.stops(fid) if any(f.kind == "shared-spot" for f in x.findings))
+    assert "person 1's left wrist lies on person 2's" in stop.text
+    assert stop.fix is not None and (first, 9) in stop.fix.preview.unlabeled
+    while (shown := s.step(1)) is not None and shown.key != stop.key:
+        pass
+    groups = len({e.group_id for e in project.history()})
+    s.accept()
+    assert _v(project, fid, first, 9) == 0
+    assert len({e.group_id for e in project.history()}) == groups + 1, "one undo step"
+
+
 def _riding_frame(project, fid, first):
     """Stored findings (invented): person 1's nose to unlabel (a wrong owner), and person 2's
     knees and ankles, which a nearer person hides, to mark occluded (two findings)."""
