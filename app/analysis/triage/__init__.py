@@ -34,6 +34,8 @@ kind                 evidence
 ``opposed-field``    labelled limbs whose line integral ``E`` is negative: the field runs from
                      the second joint to the first (Cao et al. 2017)
 ``neighbour-face``   one side's eye and ear both nearer another person's nose than their own
+``far-side``         a body turned side on whose eye and ear on the side the labels turn away
+                     from the camera the model scores above the near side's: mirrored whole
 ``crowded``          frame level: the crowd index of Li et al. (CVPR 2019)
 ===================  =========================================================================
 

@@ -11,6 +11,7 @@ from app.analysis.anthropometry import limb_fractions, person_scale, reach_matri
 from app.analysis.triage.body import (
     body_scale,
     crossed_sides,
+    far_side,
     feet_y,
     mirrored,
     missing_joints,
@@ -138,6 +139,7 @@ def triage_frame(
         reasons += upright_body(pid, kp, skeleton, torso[pid])
         reasons += off_ground(pid, kp, skeleton, torso[pid], line)
         reasons += mirrored(pid, kp, skeleton, own, torso[pid])
+        reasons += far_side(pid, kp, skeleton, own, torso[pid])
         reasons += crossed_sides(pid, kp, skeleton, torso[pid], maps)
         mine = frozenset() if placed is None else frozenset(placed.get(pid, ()))
         if support is not None and typical is not None:
