@@ -431,6 +431,51 @@ def test_a_mirrored_body_is_flagged():
     assert "mirrored" not in _kinds(t, 1) and t.flagged == []
 
 
+def _side_on() -> np.ndarray:
+    """A synthetic upright body turned side on, nose to the image's right (invented
+    coordinates, about 300 pixels tall): its left side is the far one."""
+    kp = np.zeros((17, 3))
+    kp[:, 2] = 2
+    kp[:, 0] = [730, 721, 718, 694, 688, 706, 694, 712, 700, 724, 712, 703, 697, 709, 697,
+                706, 694]
+    kp[:, 1] = [280, 271, 271, 274, 274, 316, 316, 370, 370, 415, 415, 403, 403, 475, 475,
+                550, 550]
+    return kp
+
+
+def test_a_side_on_body_mirrored_whole_is_far_side():
+    """Side on, nose to the right: the model scoring the left (far) eye and ear 0.8 and the
+    right (near) ones 0.3 says left and right are swapped (strength 1: a gap of 0.5, above
+    SIDE_SURE); the right scores the other way round are what a side-on face shows, and say
+    nothing; so do a nose in the middle of the ears and a frame without scores. The same body
+    flipped across the image (nose to the left) turns the check around. Our own heuristic
+    (app.analysis.triage.body.far_side); synthetic body."""
+    from app.analysis.triage.body import SIDE_SURE, far_side
+
+    body = _side_on()
+    far, near = [J["left_eye"], J["left_ear"]], [J["right_eye"], J["right_ear"]]
+    seen = np.full(17, 0.8)
+    seen[near] = 0.3
+    right = np.full(17, 0.8)
+    right[far] = 0.3
+    found = far_side(1, body, SK, seen, 300.0)
+    assert [(r.kind, r.strength) for r in found] == [("far-side", 1.0)] and SIDE_SURE < 0.5
+    assert set(found[0].joints) == {j for pair in SK.flip_pairs for j in pair}
+    assert far_side(1, body, SK, right, 300.0) == []
+    assert far_side(1, body, SK, None, 300.0) == []
+    ahead = body.copy()
+    ahead[J["nose"], 0] = body[[J["left_ear"], J["right_ear"]], 0].mean()
+    assert far_side(1, ahead, SK, seen, 300.0) == []
+    flipped = body.copy()
+    flipped[:, 0] = 1400.0 - body[:, 0]
+    assert far_side(1, flipped, SK, right, 300.0)[0].strength == 1.0
+    assert far_side(1, flipped, SK, seen, 300.0) == []
+    t = triage_frame({1: body}, SK, scores={1: seen}, image_size=(1280, 720))
+    assert "far-side" in _kinds(t, 1)
+    assert "far-side" not in _kinds(triage_frame({1: body}, SK, scores={1: right},
+                                                 image_size=(1280, 720)), 1)
+
+
 def test_crossed_hips_are_crossed_sides():
     """Left and right hip swapped on a body facing the camera: the hips' side disagrees with
     the shoulders' and the face's."""
