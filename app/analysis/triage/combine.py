@@ -48,7 +48,7 @@ WEIGHTS: dict[str, float] = {
     "held-tie": 1.5,
     "opposed-field": 1.5,
     "neighbour-face": 0.0,
-    "far-side": 0.0,
+    "far-side": 4.5,
 }
 #: The frame's score adds this times its crowd index.
 CROWD_WEIGHT = 0.5
