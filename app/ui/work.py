@@ -36,20 +36,45 @@ log = logging.getLogger(__name__)
 
 
 class Job(QThread):
-    """Run ``fn(progress)`` on a worker thread."""
+    """Run ``fn(progress)`` on a worker thread.
+
+    Progress reaches the UI thread coalesced: however often the work steps, at most one
+    update waits in the event queue, and it carries the latest step when the UI thread
+    takes it (``progressed``). A job stepping every millisecond on a loaded machine would
+    otherwise queue updates faster than the dialog draws them, and its end (and a cancel's
+    report) would wait behind all of them.
+    """
 
     progressed = Signal(int, int, str)
     succeeded = Signal(object)
     failed = Signal(object)
+    _stepped = Signal()
 
     def __init__(self, fn: Callable[[Progress], Any], parent: QObject | None = None):
         super().__init__(parent)
         self._fn = fn
         self.cancel_event = threading.Event()
+        self._lock = threading.Lock()
+        self._latest: tuple[int, int, str] | None = None
+        # The Job lives on the UI thread: a queued call of its own slot runs there.
+        self._stepped.connect(self._show_latest, Qt.ConnectionType.QueuedConnection)
+
+    def _step(self, done: int, total: int, label: str) -> None:
+        """On the worker: keep the latest step; post an update unless one is waiting."""
+        with self._lock:
+            waiting = self._latest is not None
+            self._latest = (int(done), int(total), label)
+        if not waiting:
+            self._stepped.emit()
+
+    def _show_latest(self) -> None:
+        with self._lock:
+            latest, self._latest = self._latest, None
+        if latest is not None:
+            self.progressed.emit(*latest)
 
     def run(self) -> None:
-        progress = Progress(lambda d, t, label: self.progressed.emit(int(d), int(t), label),
-                            self.cancel_event)
+        progress = Progress(self._step, self.cancel_event)
         try:
             result = self._fn(progress)
         except PosewrightError as exc:

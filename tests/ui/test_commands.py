@@ -123,6 +123,29 @@ def test_long_work_runs_off_the_ui_thread_and_cancels(qtbot, window):
     assert ran_on and ran_on[0] != ui_thread
 
 
+def test_progress_reaches_the_ui_coalesced_with_its_latest_step(qapp):
+    """However often a job steps, at most one update waits for the UI thread, and it carries
+    the latest step: a job stepping every millisecond must not bury its own end (and a
+    cancel's report) under queued updates on a loaded machine. The UI thread here does not
+    turn its event loop until the job has ended (``wait``), so nothing depends on timing."""
+    from app.ui.work import Job
+
+    def job(progress):
+        for i in range(5000):
+            progress.step(i, 5000, "frames")
+        return "done"
+
+    shown, results = [], []
+    running = Job(job)
+    running.progressed.connect(lambda d, t, label: shown.append((d, t, label)))
+    running.succeeded.connect(results.append)
+    running.start()
+    assert running.wait(WAIT_MS)
+    qapp.processEvents()
+    assert shown == [(4999, 5000, "frames")]
+    assert results == ["done"]
+
+
 def test_an_import_in_the_background_reaches_the_worklist(qtbot, window, tmp_path):
     """A job's store notifications arrive on the UI thread (queued) and refresh the views."""
     from app.model.labels import AUTO, Person
