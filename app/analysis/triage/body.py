@@ -492,20 +492,27 @@ def feet_y(kp: np.ndarray, skeleton: Skeleton) -> float:
     return float(kp[ankles, 1].max()) if ankles else float("nan")
 
 
+def body_up(kp: np.ndarray, skeleton: Skeleton) -> np.ndarray:
+    """The body's unit ``up`` in the image, from the hip centre to the shoulder centre when
+    both pairs are labelled; the image's up ``(0, -1)`` otherwise (upright)."""
+    shoulders = pair_index(skeleton, "shoulder")
+    hips = pair_index(skeleton, "hip")
+    if shoulders and hips and (kp[list(shoulders[0] + hips[0]), 2] > 0).all():
+        axis = kp[list(shoulders[0]), :2].mean(axis=0) - kp[list(hips[0]), :2].mean(axis=0)
+        norm = float(np.hypot(*axis))
+        if norm > 0:
+            return axis / norm
+    return np.array([0.0, -1.0])
+
+
 def facing(kp: np.ndarray, skeleton: Skeleton, scale: float) -> float:
     """``cross(up, left shoulder - right shoulder) / scale``: positive when the body faces the
     camera (its left on the image's right), NaN when it cannot be told."""
     shoulders = pair_index(skeleton, "shoulder")
-    hips = pair_index(skeleton, "hip")
     if not shoulders or not (kp[list(shoulders[0]), 2] > 0).all():
         return float("nan")
     ls, rs = shoulders[0]
-    up = np.array([0.0, -1.0])
-    if hips and (kp[list(hips[0]), 2] > 0).all():
-        axis = kp[[ls, rs], :2].mean(axis=0) - kp[list(hips[0]), :2].mean(axis=0)
-        norm = float(np.hypot(*axis))
-        if norm > 0:
-            up = axis / norm
+    up = body_up(kp, skeleton)
     d = kp[ls, :2] - kp[rs, :2]
     return float(up[0] * d[1] - up[1] * d[0]) / scale
 
@@ -662,14 +669,8 @@ def far_side(pid: int, kp: np.ndarray, skeleton: Skeleton, scores: np.ndarray | 
     nose = idx["nose"]
     if not on[nose]:
         return []
-    up = np.array([0.0, -1.0])
+    up = body_up(kp, skeleton)
     shoulders = pair_index(skeleton, "shoulder")
-    hips = pair_index(skeleton, "hip")
-    if shoulders and hips and on[list(shoulders[0] + hips[0])].all():
-        axis = kp[list(shoulders[0]), :2].mean(axis=0) - kp[list(hips[0]), :2].mean(axis=0)
-        norm = float(np.hypot(*axis))
-        if norm > 0:
-            up = axis / norm
     across = np.array([-up[1], up[0]])
     middle = [j for j in parts[1] if on[j]] or \
         [j for pair in shoulders[:1] for j in pair if on[j]]

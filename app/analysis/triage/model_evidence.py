@@ -14,6 +14,7 @@ CVPR 2017, Sec. 2.4.
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from typing import Any
 
 import numpy as np
@@ -342,9 +343,7 @@ def weak_limbs(pid: int, kp: np.ndarray, skeleton: Skeleton, support: np.ndarray
         return []
     limbs = [c for c in np.flatnonzero(ok & (gap > WEAK_SURE)).tolist()]
     joints = sorted({j for c in limbs for j in skeleton.limbs[c]})
-    names = ", ".join(f"{joint_name(skeleton, skeleton.limbs[c][0])} to "
-                      f"{joint_name(skeleton, skeleton.limbs[c][1])}" for c in limbs[:3]) + \
-        (" ..." if len(limbs) > 3 else "")
+    names = limbs_text(skeleton, limbs)
     return [make_reason("weak-limb",
                     f"the model's fields support this body {shortfall:.2f} less than the "
                     f"frame's others" + (f" (weakest: {names})" if limbs else ""),
@@ -554,6 +553,21 @@ def held_tie(pid: int, kp: np.ndarray, alone: list[np.ndarray] | None,
                         ramp(len(joints), 0, HELD_FULL))]
 
 
+def limbs_text(skeleton: Skeleton, limbs: Sequence[int], most: int = 3) -> str:
+    """The first ``most`` limbs by their ends' names ("left elbow to left wrist, ..."),
+    `` ...`` when there are more.
+
+    Examples
+    --------
+    >>> from app.model.skeleton import coco_body
+    >>> limbs_text(coco_body(), [0])
+    'left ankle to left knee'
+    """
+    return ", ".join(f"{joint_name(skeleton, skeleton.limbs[c][0])} to "
+                     f"{joint_name(skeleton, skeleton.limbs[c][1])}" for c in limbs[:most]) + \
+        (" ..." if len(limbs) > most else "")
+
+
 def opposed_field(pid: int, kp: np.ndarray, skeleton: Skeleton,
                   support: np.ndarray) -> list[Reason]:
     """Labelled limbs whose part affinity field runs the other way.
@@ -596,9 +610,7 @@ def opposed_field(pid: int, kp: np.ndarray, skeleton: Skeleton,
     if not against:
         return []
     joints = sorted({j for c in against for j in skeleton.limbs[c]})
-    listed = ", ".join(f"{joint_name(skeleton, skeleton.limbs[c][0])} to "
-                       f"{joint_name(skeleton, skeleton.limbs[c][1])}" for c in against[:3]) + \
-        (" ..." if len(against) > 3 else "")
+    listed = limbs_text(skeleton, against)
     return [make_reason("opposed-field",
                         f"the model's field runs against {listed}: ends likely exchanged or "
                         "someone else's", pid, joints, ramp(len(against), 0, OPPOSED_FULL))]
