@@ -12,7 +12,7 @@ from app.store.db import Tx
 from app.store.schema import FRAME_COLUMNS
 
 _COLUMNS = ("frames.id, path, file_name, width, height, frames.state, status, video_index, "
-            "timestamp, triage.score")
+            "timestamp, triage.score, frames.grouping")
 _FROM = "frames LEFT JOIN triage ON triage.frame_id = frames.id"
 
 
@@ -65,7 +65,7 @@ class WorklistEntry(NamedTuple):
 
 def _frame(row: Sequence[Any]) -> Frame:
     return Frame(row[0], row[1], row[2], row[3], row[4], FrameState(row[5]), row[6], row[7],
-                 row[8], row[9])
+                 row[8], row[9], row[10])
 
 
 class FramesGateway:
@@ -146,8 +146,8 @@ class FramesGateway:
                 f"({', '.join('?' * len(ids))})", ids)} if ids else {}
             rows = [found[i] for i in ids]
         return [WorklistEntry(
-            _frame(r), None if r[10] is None else (r[9], json.loads(r[10])),
-            int(r[11]) if r[11] or r[12] else None) for r in rows]
+            _frame(r), None if r[11] is None else (r[9], json.loads(r[11])),
+            int(r[12]) if r[12] or r[13] else None) for r in rows]
 
     @staticmethod
     def _triaged(query: FrameQuery) -> tuple[str, list[Any]] | None:
@@ -364,6 +364,17 @@ class FramesGateway:
         self._tx.run("UPDATE frames SET extra = ? WHERE id = ?",
                      (json.dumps(extra, allow_nan=False), int(frame_id)))
 
+    def set_grouping(self, frame_ids: Iterable[int], grouping: str | None) -> None:
+        """Record how the auto-labels of ``frame_ids`` were grouped (``alone``,
+        ``frame-before``; None: no record, for labels from elsewhere)."""
+        self._tx.run_many("UPDATE frames SET grouping = ? WHERE id = ?",
+                          [(grouping, int(f)) for f in frame_ids])
+
+    def groupings(self) -> dict[int, str]:
+        """How each frame's auto-labels were grouped, for the frames that record it."""
+        return {int(r[0]): str(r[1]) for r in self._tx.rows(
+            "SELECT id, grouping FROM frames WHERE grouping IS NOT NULL")}
+
     def extras(self) -> dict[int, dict[str, Any]]:
         """Fields of imported COCO image records kept for the round trip, by frame id."""
         return {r[0]: json.loads(r[1]) for r in self._tx.rows(
@@ -372,12 +383,12 @@ class FramesGateway:
     def rows_for_copy(self) -> list[tuple[Any, ...]]:
         """Every column of every frame, for copying the project elsewhere."""
         return self._tx.rows("SELECT id, path, file_name, width, height, state, status, "
-                             "video_index, timestamp, extra FROM frames ORDER BY id")
+                             "video_index, timestamp, extra, grouping FROM frames ORDER BY id")
 
     def insert_copied(self, rows: Sequence[Sequence[Any]]) -> None:
         self._tx.run_many("INSERT INTO frames (id, path, file_name, width, height, state, "
-                          "status, video_index, timestamp, extra) "
-                          "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)", rows)
+                          "status, video_index, timestamp, extra, grouping) "
+                          "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)", rows)
 
     def rekey(self, mapping: dict[int, int]) -> None:
         """Give frames new ids (``old -> new``), everywhere they are referenced."""

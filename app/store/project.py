@@ -460,6 +460,12 @@ class Project:
         with self._read() as tx:
             return tx.people.by_frame(self.skeleton.num_joints)
 
+    def groupings(self) -> dict[int, str]:
+        """How each frame's auto-labels were grouped (:attr:`Frame.grouping`), for the frames
+        that record it."""
+        with self._read() as tx:
+            return tx.frames.groupings()
+
     def frames_with_people(self) -> set[int]:
         """The ids of the frames that have at least one person (no person read)."""
         with self._read() as tx:
@@ -916,6 +922,11 @@ class Bulk:
         if self.superseded:
             pending = set(json.loads(self._p.meta(recovery.SWEEP_KEY) or "[]"))
             self.set_meta(recovery.SWEEP_KEY, json.dumps(sorted(pending | self.superseded)))
+
+    def set_grouping(self, frame_ids: Iterable[int], grouping: str | None) -> None:
+        """Record how the auto-labels of ``frame_ids`` were grouped (``"alone"``,
+        ``"frame-before"``), or None: no record (labels from elsewhere)."""
+        self._tx.frames.set_grouping(frame_ids, grouping)
 
     def set_file_name(self, frame_id: int, file_name: str) -> None:
         self._tx.frames.set_file_name(frame_id, file_name)

@@ -78,6 +78,14 @@ weight reaches the log-odds of ``FLAG_AT`` (-1.39): a stretched limb alone (2.5)
 ``off-ground`` anywhere from 2 to 8 and ``crossed-sides`` from 4.5 to 8: with a few invented
 scenes the weights of rare signs move from fit to fit. These are defaults
 for crowds of upright people, standing or seated, fitted on invented scenes, not truths.
+
+Labels grouped with the frame before (``import-maps --frame-before``) err differently, so
+they have a weight set of their own, ``FRAME_BEFORE_PRIOR``, ``FRAME_BEFORE_WEIGHTS`` and
+``FRAME_BEFORE_FLAG_AT``, fitted the same way on demos grouped that way. Each frame records how
+its auto-labels were grouped (:attr:`app.model.labels.Frame.grouping`); ``triage_frame(...,
+grouping=...)`` weighs by that grouping's set (:func:`~app.analysis.triage.combine.weight_set`;
+no record: the default set), and, for labels grouped alone, skips the maps' grouping alone
+that only ``held-tie`` reads.
 ``far-side`` (added later on 3 December 2026) was fitted alone on the same demos with every
 other weight held at its value here (4.5; a full refit gives it 5.0 and moves five others).
 
@@ -157,8 +165,10 @@ from app.analysis.triage.combine import (
     WEIGHTS,
     FrameTriage,
     Reason,
+    WeightSet,
     combine,
     stored_suspicion,
+    weight_set,
 )
 from app.analysis.triage.crowd import crowd_index, duplicates_and_splits, ground_line, off_ground
 from app.analysis.triage.frame import triage_frame
@@ -171,6 +181,7 @@ __all__ = [
     "WEIGHTS",
     "FrameTriage",
     "Reason",
+    "WeightSet",
     "body_scale",
     "combine",
     "crossed_sides",
@@ -188,4 +199,5 @@ __all__ = [
     "typical_support",
     "upright_body",
     "weak_limbs",
+    "weight_set",
 ]
