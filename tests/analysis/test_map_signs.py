@@ -81,6 +81,27 @@ def test_held_tie_counts_joints_the_grouping_alone_places_elsewhere() -> None:
     assert _strengths(drawn, "held-tie") == {1: 0.0, 2: 0.0}
 
 
+def test_held_tie_is_not_computed_for_labels_recorded_as_grouped_alone(monkeypatch) -> None:
+    """Labels recorded as grouped each frame alone are the maps' grouping alone, which
+    held-tie compares them with: triage does not group the maps alone for them (a moved wrist
+    that held-tie would name otherwise, as a person's edit it did not see, stays unnamed);
+    with no record, or grouped with the frame before, it does (our own rule)."""
+    import app.analysis.triage.frame as frame_module
+
+    calls = []
+    real = frame_module.grouped_alone
+    monkeypatch.setattr(frame_module, "grouped_alone",
+                        lambda *args: calls.append(1) or real(*args))
+    moved = {p: kp.copy() for p, kp in _grouped().items()}
+    moved[2][9, :2] += (0.0, 25.0)
+    for grouping, computed in (("alone", False), (None, True), ("frame-before", True)):
+        calls.clear()
+        memo = FieldMemo(MAPS.maps)   # fresh: nothing grouped yet
+        verdict = triage_frame(moved, SK, maps=memo, grouping=grouping)
+        held = [r for r in verdict.reasons if r.kind == "held-tie"]
+        assert (len(calls), memo._alone is not None, bool(held)) == (computed,) * 3, grouping
+
+
 def test_opposed_field_counts_limbs_labelled_against_the_field() -> None:
     people = _grouped()
     assert _strengths(people, "opposed-field") == {1: 0.0, 2: 0.0}
