@@ -302,6 +302,31 @@ def test_import_maps_groups_a_sequence_in_runs_with_the_frame_before(tmp_path, i
     assert recorded(tmp_path / "r") == [None] * 6
 
 
+def test_triage_weighs_each_frame_by_its_recorded_grouping(tmp_path, image_dir, maps_dir,  # noqa: F811
+                                                           monkeypatch):
+    """The triage job weighs each frame by the grouping its project records
+    (FrameTriage.grouping, which chooses the weight set) and, for frames grouped alone, does
+    not group the maps alone again (held-tie could not speak there). Our own rule; the
+    synthetic frames of tests/cli/test_analysis_commands.py."""
+    import app.analysis.triage.frame as frame_module
+    from app.jobs_analysis import import_maps, run_triage
+
+    folder, _ = maps_dir
+    calls = []
+    real = frame_module.grouped_alone
+    monkeypatch.setattr(frame_module, "grouped_alone",
+                        lambda maps, sk: calls.append(1) or real(maps, sk))
+    with new_project(tmp_path / "p", images=image_dir, author="ana") as p:
+        import_maps(p, folder)
+        ids = [f.id for f in p.frames()]
+        with p.bulk("Test", "record groupings", "test") as b:
+            b.set_grouping(ids[:2], "frame-before")
+            b.set_grouping(ids[2:3], None)
+        results = run_triage(p, findings=False)
+    assert [results[f].grouping for f in ids] == ["frame-before"] * 2 + [None] + ["alone"] * 3
+    assert len(calls) == 3   # the two frames grouped with the frame before, the unknown one
+
+
 def test_packing_frames_into_the_workers_items_changes_no_person(
         tmp_path, image_dir, maps_dir, monkeypatch):  # noqa: F811
     """However import-maps packs runs of frames into the items it hands the workers (here
