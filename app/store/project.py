@@ -58,7 +58,7 @@ from app.store.derived import TriageResult
 from app.store.frames import FrameQuery, NewFrame, WorklistEntry
 from app.store.ledger import Applied, LedgerEntry
 from app.store.notes import RegionRow
-from app.store.schema import SCHEMA_VERSION, migrate_sqlite, schema_version
+from app.store.schema import SCHEMA_VERSION, columns, migrate_sqlite, schema_version
 from app.wording import count
 
 log = logging.getLogger(__name__)
@@ -967,7 +967,10 @@ def _read_only_db(folder: Path) -> SqliteDatabase:
         conn.close()
         conn = SqliteDatabase.connect(path, read_only=True, immutable=True)
     _check_version(conn, folder)
-    return SqliteDatabase(conn, path)
+    db = SqliteDatabase(conn, path)
+    with db.read() as tx:  # not migrated: an older project's frames record no grouping
+        db.frames_grouping = "grouping" in columns(tx, "frames")
+    return db
 
 
 def _unread_changes(folder: Path) -> str:

@@ -168,6 +168,10 @@ def _old_project(folder):
 def test_a_schema_3_project_migrates_its_ledger_to_structured_targets(tmp_path):
     folder = tmp_path / "old"
     _old_project(folder)
+    # opened read-only it is not migrated, and its frames still read (no grouping recorded)
+    with Project.open(folder, read_only=True) as p:
+        assert p.frames() and all(f.grouping is None for f in p.frames())
+        assert p.groupings() == {}
     with Project.open(folder, author="ben") as p:
         entries = list(reversed(p.history()))
         assert [e.target for e in entries] == [
