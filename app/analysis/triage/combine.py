@@ -49,6 +49,7 @@ WEIGHTS: dict[str, float] = {
     "opposed-field": 1.5,
     "neighbour-face": 0.0,
     "far-side": 4.5,
+    "long-legs": 0.0,
 }
 #: The frame's score adds this times its crowd index.
 CROWD_WEIGHT = 0.5
