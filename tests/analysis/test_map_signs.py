@@ -1,5 +1,5 @@
 """Triage's reasons read from the maps and the neighbours (held-tie, opposed-field,
-neighbour-face) on synthetic maps, and fitting a trial sign as an extra kind.
+neighbour-face, long-legs) on synthetic maps and bodies, and fitting a trial sign as an extra kind.
 
 The maps are the training targets of two synthetic bodies (app.analysis.targets, the
 published definitions of Cao et al., CVPR 2017: a limb's field is its unit direction from its
@@ -124,6 +124,26 @@ def test_neighbour_face_finds_an_eye_and_ear_on_the_next_face() -> None:
     found = [r for r in verdict.reasons if r.kind == "neighbour-face"]
     assert [(r.person, r.joints, r.other) for r in found] == [(1, (2, 4), 2)]
     assert "person 2's nose" in found[0].text
+
+
+def test_long_legs_finds_the_knees_and_ankles_of_the_person_below() -> None:
+    """Three synthetic bodies side by side (invented for the test; our own heuristic, no
+    published source): person 1's knees and ankles drawn 20 and 40 pixels lower, as the legs
+    of someone standing below would be, make its legs 1.7 times the others' for the torso."""
+    people = {}
+    for p in (1, 2, 3):
+        body = np.zeros((17, 3))
+        body[:, :2], body[:, 2] = BODY + np.array([60.0 * p, 0.0]), 2
+        people[p] = body
+    assert _strengths(people, "long-legs") == {1: 0.0, 2: 0.0, 3: 0.0}
+    people[1][[13, 14], 1] += 20
+    people[1][[15, 16], 1] += 40
+    verdict = triage_frame(people, SK)
+    found = [r for r in verdict.reasons if r.kind == "long-legs"]
+    assert [(r.person, r.joints, r.strength) for r in found] == [(1, (13, 14, 15, 16), 1.0)]
+    assert "knees and ankles" in found[0].text
+    # With fewer than two others to compare with, the sign stays silent.
+    assert _strengths({1: people[1], 2: people[2]}, "long-legs") == {1: 0.0, 2: 0.0}
 
 
 def test_a_frame_without_maps_gives_no_map_signs() -> None:

@@ -36,6 +36,8 @@ from app.analysis.triage.crowd import (
     duplicates_and_splits,
     ground_line,
     invented,
+    leg_ratio,
+    long_legs,
     neighbour_face,
     off_ground,
     stand_rows,
@@ -143,6 +145,7 @@ def triage_frame(
     covered = covers(shown, skeleton, scales, stand_rows(shown, skeleton, torso, line))
     joint_score = typical_joint_score(shown, score_arrays)
     names = Names.of_frame(skeleton, arrays)
+    leg_ratios = {p: leg_ratio(arrays[p], skeleton) for p in present}
     reasons: list[Reason] = []
     for n, pid in enumerate(present):
         kp = arrays[pid]
@@ -160,6 +163,7 @@ def triage_frame(
             reasons += opposed_field(pid, kp, skeleton, support[n])
         reasons += held_tie(pid, kp, alone, mine, names)
         reasons += neighbour_face(pid, kp, skeleton, shown, names)
+        reasons += long_legs(pid, kp, skeleton, leg_ratios, names)
         reasons += low_scores(pid, kp, own, typical_score)
         reasons += invented(pid, kp, skeleton,
                             [(j, q) for j, q in covered.get(pid, []) if j not in mine],
