@@ -382,7 +382,6 @@ _V8 = [
 ]
 
 
-
 def _grouping_column(tx: Tx) -> None:
     """Version 9: each frame records how its auto-labels were grouped (NULL: no record)."""
     if "grouping" not in columns(tx, "frames"):
@@ -391,7 +390,7 @@ def _grouping_column(tx: Tx) -> None:
 
 # Version 9: triage weighs labels grouped each frame alone and labels grouped with the frame
 # before by different weights, and skips what cannot speak on the former.
-_V9 = [_grouping_column]
+_V9: list[Step] = [_grouping_column]
 
 #: ``MIGRATIONS[n]`` takes the schema from version ``n - 1`` to ``n``.
 MIGRATIONS: dict[int, list[Step]] = {1: _V1, 2: _V2, 3: _V3, 4: _V4, 5: _V5, 6: _V6, 7: _V7,
