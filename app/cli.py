@@ -365,19 +365,30 @@ def cmd_import_maps(args: argparse.Namespace) -> int:
 
         with _open(args) as project:
             stats = import_maps(project, args.dir, progress=_stderr_progress(args.quiet),
-                                workers=workers, frame_before=args.frame_before or None)
+                                workers=workers, frame_before=_frame_before(args))
     finally:
         drop_early()  # the job did not take it (an error on the way)
     return _report_counts(args, stats)
+
+
+def _frame_before(args: argparse.Namespace) -> bool:
+    """Whether import-maps groups each sequence with the frame before: the default
+    (:data:`app.jobs_analysis.FRAME_BEFORE`) unless a flag says otherwise."""
+    if args.frame_before or args.each_frame_alone:
+        return bool(args.frame_before)
+    from app.jobs_analysis import FRAME_BEFORE
+
+    return FRAME_BEFORE
 
 
 def _first_maps(args: argparse.Namespace, workers: int) -> None:
     """Hand the workers the first frames to group before the project is open
     (:func:`app.parallel.early_pool`), when a folder project tells them
     (:func:`app.store.peek.map_frames_hint`, :func:`app.map_runs.first_items`) and each frame
-    is grouped alone (the default, ``FRAME_BEFORE`` off, and no ``--frame-before``). The job
-    checks them against its own and computes again any that differ."""
-    if args.frame_before:
+    is grouped alone (``--each-frame-alone``, or ``FRAME_BEFORE`` off and no
+    ``--frame-before``): grouped with the frame before, a frame waits for the one before it.
+    The job checks them against its own and computes again any that differ."""
+    if _frame_before(args):
         return
     from app.store.peek import map_frames_hint
 
@@ -659,10 +670,14 @@ def build_parser() -> argparse.ArgumentParser:
                 "import network maps (.npz per image) and group them into auto-labels")
     p.add_argument("dir", metavar="DIR")
     p.add_argument("--json", action="store_true")
-    p.add_argument("--frame-before", action="store_true",
-                   help="group the frames of each sequence in order, near ties between "
-                        "overlapping people decided as on the frame before (each frame "
-                        "records how it was grouped; triage weighs it by that)")
+    grouping = p.add_mutually_exclusive_group()
+    grouping.add_argument("--frame-before", action="store_true",
+                          help="group the frames of each sequence in order, near ties between "
+                               "overlapping people decided as on the frame before (the "
+                               "default; each frame records how it was grouped, and triage "
+                               "weighs it by that)")
+    grouping.add_argument("--each-frame-alone", action="store_true",
+                          help="group every frame on its own, as for unrelated pictures")
     workers(p)
 
     p = command("triage", cmd_triage, "rank frames by suspicion, with reasons (stored)")

@@ -58,13 +58,15 @@ TARGETS_VERSION = 1
 GROUPING_RUN = 16
 
 #: Whether :func:`import_maps` groups the frames of a sequence with the frame before by
-#: default (``import-maps --frame-before`` asks for it). Off: with it, the demo's labelled
-#: errors last longer and carrying spares more (33.8 % against 26.5 % on fresh seeds
-#: 110-115, where issue 14 asks 30 %), but triage flags the dance's wrong people less well,
-#: even with its weights and the findings' calibration fitted again on demos grouped this
-#: way (tried three times on 3 December 2026: the shipped demo's recall stays at 0.76-0.84;
-#: README "Sequences", DEVELOPERS.md "The demo").
-FRAME_BEFORE = False
+#: default (``import-maps --each-frame-alone`` asks for each frame alone, ``--frame-before``
+#: for this). On since 3 December 2026: grouped so, the labels of a video hold fewer wrong
+#: joints, their errors last as a model's do, and carrying a correction forward spares 35.0 %
+#: of the actions on fresh dance seeds 116-121 (29.2 % grouped alone; issue 14 asks 30 %);
+#: triage weighs such frames by weights fitted on demos grouped this way (the frame-before
+#: set of :mod:`app.analysis.triage.combine`), which keep issue 3's goals on the shipped
+#: demo but flag a few more of the dance's wrong people late on fresh seeds (README
+#: "Sequences", DEVELOPERS.md "The demo").
+FRAME_BEFORE = True
 
 
 def import_maps(project: Project, folder: str | Path,
@@ -80,8 +82,8 @@ def import_maps(project: Project, folder: str | Path,
     the maps (:mod:`app.parallel`); this one stores them, with the same result whatever the
     number.
 
-    With ``frame_before`` (default :data:`FRAME_BEFORE`, off; ``import-maps
-    --frame-before``), the frames of a sequence (:mod:`app.model.sequences`) are grouped in
+    With ``frame_before`` (default :data:`FRAME_BEFORE`, on; ``import-maps
+    --each-frame-alone`` turns it off), the frames of a sequence (:mod:`app.model.sequences`) are grouped in
     order, each with the people of the frame before it as ``previous``, so that near ties
     between overlapping people are decided as on that frame: the people just grouped there,
     or, where that frame keeps its people, those. They go to the workers in runs of

@@ -247,7 +247,8 @@ def test_import_maps_groups_a_sequence_in_runs_with_the_frame_before(tmp_path, i
     """With frame_before, the six synthetic frames (one image folder, so one sequence) are
     each grouped with the people of the frame before (grouped just now, or kept there), in
     runs of GROUPING_RUN frames whose first has none; once the folder is marked not a
-    sequence, or by default (FRAME_BEFORE off), no frame has a frame before. (Our own rule;
+    sequence, or with frame_before=False, no frame has a frame before; the default is
+    FRAME_BEFORE (on). (Our own rule;
     group_people's prior is tested in tests/analysis/test_association.py.)
 
     Each grouped frame records how, read back after reopening (Frame.grouping, for triage's
@@ -274,6 +275,7 @@ def test_import_maps_groups_a_sequence_in_runs_with_the_frame_before(tmp_path, i
     real = map_runs.group_people  # what the workers (here, this process) call
     monkeypatch.setattr(map_runs, "group_people", recording)
     monkeypatch.setattr(jobs_analysis, "GROUPING_RUN", 4)
+    assert jobs_analysis.FRAME_BEFORE  # the default since 3 December 2026
     kept = np.array([(10.0 + k, 20.0 + k, 2) for k in range(17)])
     with new_project(tmp_path / "p", images=image_dir, author="ana") as p:
         third = p.frames()[2]
@@ -294,7 +296,7 @@ def test_import_maps_groups_a_sequence_in_runs_with_the_frame_before(tmp_path, i
     assert recorded(tmp_path / "q") == ["alone"] * 6
     calls.clear()
     with new_project(tmp_path / "r", images=image_dir, author="ana") as p:
-        import_maps(p, folder)  # the default (FRAME_BEFORE off): each frame alone
+        import_maps(p, folder, frame_before=False)  # each frame alone
     assert len(calls) == 6 and all(previous is None for previous, _ in calls)
     assert recorded(tmp_path / "r") == ["alone"] * 6
     with Project.open(tmp_path / "r", author="ana") as p:

@@ -405,8 +405,10 @@ def test_items_handed_to_a_pool_before_the_job_are_taken_if_equal(free_pool, mon
 
 def test_import_maps_with_frames_handed_early_stores_what_one_worker_does(
         tmp_path, image_dir, maps_dir, free_pool, monkeypatch):  # noqa: F811
-    """The command hands its pool the first frames (read with sqlite3 alone, before it opens
-    the project) and the job takes those results: the people stored are those of one worker."""
+    """Grouping each frame alone, the command hands its pool the first frames (read with
+    sqlite3 alone, before it opens the project) and the job takes those results: the people
+    stored are those of one worker. (Grouped with the frame before, the default, a frame
+    waits for the one before it, so nothing is handed early.)"""
     from app import cli, map_runs, parallel
 
     folder, _ = maps_dir
@@ -419,7 +421,8 @@ def test_import_maps_with_frames_handed_early_stores_what_one_worker_does(
     for workers in ("1", "2"):
         proj = tmp_path / f"p{workers}"
         assert main(["new", str(proj), "--images", str(image_dir), "-q"]) == 0
-        assert main(["import-maps", str(proj), str(folder), "-q", "--workers", workers]) == 0
+        assert main(["import-maps", str(proj), str(folder), "-q", "--workers", workers,
+                     "--each-frame-alone"]) == 0
         snapshots.append(_snapshot(proj)[0])
     assert len(taken) == 1 and len(taken[0][1]) == 3  # the three early frames were taken
     assert sum(len(v) for v in snapshots[0].values()) >= 12
