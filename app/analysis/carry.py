@@ -105,6 +105,12 @@ ON_JOINT = 0.04
 #: most like it (OKS, :func:`app.analysis.similarity.oks_matrix`) when at least this alike and
 #: not on a track of its own that the frame before already has (our choice).
 FOLLOW_OKS = 0.5
+#: A joint the correction moved shows the same error, too, when it stands farther from where
+#: the correction put it (moved along with the body) than this share of the correction's own
+#: distance (and than :data:`TOLERANCE` of a body), wherever it stands: the model got the
+#: joint wrong again, in another way, and the correction's place is what it needs (our
+#: choice, set on development demo seeds 104-109; 0 turns it off).
+STRAY = 1.0
 #: The most frames a correction is carried in each direction.
 MAX_FRAMES = 50
 #: An exchange of at least this many joints is judged as a whole (their mean offsets).
@@ -387,11 +393,17 @@ def _carry_once(steps: list[_Step], deleted: list[int], before: FrameLabels,
             off = min(off, float(np.hypot(x - hx, y - hy)))
         moved = 0.0 if new is None or not np.isfinite(new[0]) or new[2] <= 0 else float(
             np.hypot(new[0] - old[0], new[1] - old[1]))
+        away = 0.0 if not moved or new is None else float(
+            np.hypot(x - new[0] - u[0], y - new[1] - u[1]))
+        if STRAY and moved and away > max(TOLERANCE * size, STRAY * moved):
+            # Wrong again another way: farther from where the correction put it (moved with
+            # the body) than the correction itself moved it.
+            return True
         if off > max(TOLERANCE * size, FAR * moved):
             return False
         if not moved or new is None:
             return True
-        return bool(off < np.hypot(x - new[0] - u[0], y - new[1] - u[1]))
+        return bool(off < away)
 
     olds = {(s.person, s.joint): s.before for s in steps}
 
