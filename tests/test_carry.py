@@ -365,3 +365,31 @@ def test_a_dragged_joint_off_by_less_than_the_drag_is_not_the_same_error(monkeyp
     frames = sequences.tracked_frames(_elbow_wrong_two_ways(45.0))
     batch = carry_changes(_drag_back_frame_4(frames), frames, 3, each_joint=True)
     assert (batch.edits, batch.stopped_forward) == ((), 5)
+
+
+def test_a_give_the_neighbour_no_longer_fits_places_the_joint_where_it_was_given(monkeypatch):
+    """Dancer 0's and dancer 1's left wrists exchanged in frame 4; in frame 5 dancer 1's
+    wrist is right again but dancer 0's still stands on it (synthetic). The give no longer
+    fits frame 5 (dancer 1 does not hold dancer 0's wrist's place), so dancer 0's wrist is
+    carried as a drag to where the give put it, moved with the body (``PLACE_GIVEN``), and
+    dancer 1's, right, is left alone; the batch stops at frame 6. With ``PLACE_GIVEN`` off
+    nothing is carried."""
+    people = sequences.dancers()
+    people[3, [0, 1], WRIST] = people[3, [1, 0], WRIST]
+    people[4, 0, WRIST] = people[4, 1, WRIST]
+
+    def carried():
+        frames = sequences.tracked_frames(people)
+        frames[3], changes = ReassignJoint(4, pid(3, 1), WRIST, pid(3, 0)).apply(frames[3])
+        return frames, carry_changes(changes, frames, 3, each_joint=True)
+
+    frames, batch = carried()
+    assert ([g.frame_id for g in batch.edits], batch.stopped_forward) == ([5], 6)
+    assert [(type(e), e.person_id) for e in batch.edits[0].edits] == [(MoveJoint, pid(4, 0))]
+    five, _ = batch.edits[0].apply(frames[4])
+    truth = sequences.dancers()
+    for p in (0, 1):
+        assert np.allclose(five.people[pid(4, p)].keypoints[WRIST, :2], truth[4, p, WRIST, :2],
+                           atol=3.0)
+    monkeypatch.setattr(carry, "PLACE_GIVEN", False)
+    assert carried()[1].edits == ()

@@ -111,6 +111,11 @@ FOLLOW_OKS = 0.5
 #: joint wrong again, in another way, and the correction's place is what it needs (our
 #: choice, set on development demo seeds 104-109; 0 turns it off).
 STRAY = 1.0
+#: With ``each_joint``, a joint given over (with the joint handed back) whose give no longer
+#: fits a frame, because the neighbour does not hold the joint's place there any more, is
+#: carried as a move to where the give put it (moved along with its body) while it shows the
+#: error a move would (our choice, set on development demo seeds 104-109).
+PLACE_GIVEN = True
 #: The most frames a correction is carried in each direction.
 MAX_FRAMES = 50
 #: An exchange of at least this many joints is judged as a whole (their mean offsets).
@@ -428,7 +433,17 @@ def _carry_once(steps: list[_Step], deleted: list[int], before: FrameLabels,
         return True
 
     if each_joint:
-        steps = [s for unit in _units(steps) if shows(unit) for s in unit]
+        kept = []
+        for unit in _units(steps):
+            if shows(unit):
+                kept.extend(unit)
+            elif PLACE_GIVEN and len(unit) < WHOLE and all(s.kind == "copy" for s in unit):
+                # The neighbour no longer holds the joint's place: each joint of the give
+                # still wrong (where it stood, or wrong another way) goes where the give put
+                # it, moved with its body, as a drag would.
+                kept.extend(m for m in (replace(s, kind="move", source=None) for s in unit)
+                            if shows([m]))
+        steps = kept
         if not steps and not deleted:
             return None
     elif not shows(steps):
