@@ -116,10 +116,6 @@ STRAY = 1.0
 #: carried as a move to where the give put it (moved along with its body) while it shows the
 #: error a move would (our choice, set on development demo seeds 104-109).
 PLACE_GIVEN = True
-#: A person whose track does not go on is followed to the person most like it as corrected
-#: or as it was before the correction (the next frame may hold the same error), not only as
-#: corrected (our choice, tried on development demo seeds 104-109).
-FOLLOW_BEFORE = True
 #: The most frames a correction is carried in each direction.
 MAX_FRAMES = 50
 #: An exchange of at least this many joints is judged as a whole (their mean offsets).
@@ -339,9 +335,7 @@ def _carry_once(steps: list[_Step], deleted: list[int], before: FrameLabels,
         known = after.people.get(pid) or before.people.get(pid)
         found = None
         if known is not None and known.track is not None:
-            found = people.get(known.track) or _follow(
-                known, there, going_on, who.values(),
-                before.people.get(pid) if FOLLOW_BEFORE else None)
+            found = people.get(known.track) or _follow(known, there, going_on, who.values())
         if found is None:
             if not each_joint:
                 return None
@@ -485,7 +479,7 @@ def _carry_once(steps: list[_Step], deleted: list[int], before: FrameLabels,
 
 
 def _follow(known: Person, there: FrameLabels, going_on: set[int],
-            taken: Any, also: Person | None = None) -> Person | None:
+            taken: Any) -> Person | None:
     """The person of ``there`` that ``known`` (a person of the frame before, whose track does
     not reach ``there``) most likely is: the most alike by OKS, at least :data:`FOLLOW_OKS`,
     among those whose track the frame before does not have (a track broken by the linking
@@ -495,19 +489,16 @@ def _follow(known: Person, there: FrameLabels, going_on: set[int],
     busy = {p.id for p in taken}
     free = [p for p in there.people.values()
             if p.id not in busy and (p.track is None or p.track not in going_on)]
-    if not free:
+    ref = known.keypoints
+    on = (ref[:, 2] > 0) & np.isfinite(ref[:, :2]).all(axis=1)
+    if not free or on.sum() < 2:
         return None
+    lo, hi = ref[on, :2].min(axis=0), ref[on, :2].max(axis=0)
+    area = float(np.prod(np.maximum(hi - lo, 1.0)))
     cand = np.array([p.keypoints for p in free])
     xy = np.where(cand[:, :, 2:] > 0, cand[:, :, :2], np.nan)
-    sim = np.zeros(len(free))
-    for ref in [known.keypoints] + ([] if also is None else [also.keypoints]):
-        on = (ref[:, 2] > 0) & np.isfinite(ref[:, :2]).all(axis=1)
-        if on.sum() < 2:
-            continue
-        lo, hi = ref[on, :2].min(axis=0), ref[on, :2].max(axis=0)
-        area = float(np.prod(np.maximum(hi - lo, 1.0)))
-        sim = np.maximum(sim, oks_matrix(np.concatenate([xy, cand[:, :, 2:]], axis=2), ref[None],
-                                         np.array([area]), there.skeleton.sigma_array)[:, 0])
+    sim = oks_matrix(np.concatenate([xy, cand[:, :, 2:]], axis=2), ref[None], np.array([area]),
+                     there.skeleton.sigma_array)[:, 0]
     best = int(np.argmax(sim))
     return free[best] if sim[best] >= FOLLOW_OKS else None
 
