@@ -661,7 +661,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--json", action="store_true")
     p.add_argument("--frame-before", action="store_true",
                    help="group the frames of each sequence in order, near ties between "
-                        "overlapping people decided as on the frame before")
+                        "overlapping people decided as on the frame before (each frame "
+                        "records how it was grouped; triage weighs it by that)")
     workers(p)
 
     p = command("triage", cmd_triage, "rank frames by suspicion, with reasons (stored)")

@@ -273,6 +273,8 @@ def import_coco(project: Project, path: str | Path,
                 b.add_people((f, replace(p, id=start + n))
                              for n, (f, p) in enumerate(part.people))
             frames.update(f for f, _ in part.people)
+        # Labels from elsewhere: how they were grouped is not known (triage's default weights).
+        b.set_grouping(sorted(frames), None)
         if first.kind == "dataset":
             if extra:
                 b.set_meta("coco_dataset_extra", json.dumps(extra))

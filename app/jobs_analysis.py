@@ -30,7 +30,15 @@ from app.formats.maps import NetworkMaps, match_map_files, read_maps, read_npz
 from app.jobs import EXPORT_STATES, choose_frames
 from app.map_runs import Found, found_person, group_runs, map_items
 from app.map_runs import pack_runs as _packed
-from app.model.labels import AUTO, Frame, FrameLabels, FrameState, Person
+from app.model.labels import (
+    AUTO,
+    GROUPED_ALONE,
+    GROUPED_FRAME_BEFORE,
+    Frame,
+    FrameLabels,
+    FrameState,
+    Person,
+)
 from app.model.sequences import NOT_SEQUENCES, parse_not_sequences, sequences
 from app.model.skeleton import Skeleton
 from app.parallel import ordered_map
@@ -81,6 +89,12 @@ def import_maps(project: Project, folder: str | Path,
     run, a frame whose neighbour before it has no maps here, and a frame in no sequence (a
     folder marked not a sequence) are grouped without a frame before. Without it, every frame
     is grouped alone.
+
+    Each frame grouped here records how (:attr:`app.model.labels.Frame.grouping`, for
+    triage's weights): ``frame-before`` for the frames of a run of two or more, the run's
+    first (grouped without a frame before) included, since triage's frame-before weights were
+    fitted on whole runs; ``alone`` for every other frame. A frame that keeps its people keeps
+    its record.
     """
     progress = progress or Progress()
     frames = {f.id: f for f in project.frames()}
@@ -112,10 +126,14 @@ def import_maps(project: Project, folder: str | Path,
     grouped = [(frame_id, found) for frame_id, _ in order
                for found in _people_found(results[frame_id][1])]
     sources = (AUTO,) * k
+    in_runs = {f for run in runs if len(run) > 1 for f in run}
+    new = sorted(files.keys() - has_people)  # the frames grouped here (the rest keep theirs)
     with project.bulk("ImportMaps", f"import maps from {Path(folder).name}",
                       f"folder:{Path(folder).name}") as b:
         for frame_id, path in files.items():
             b.set_maps(frame_id, path, results[frame_id][0])
+        b.set_grouping([f for f in new if f not in in_runs], GROUPED_ALONE)
+        b.set_grouping([f for f in new if f in in_runs], GROUPED_FRAME_BEFORE)
         first = b.allocate_person_ids(len(grouped))
         b.add_people((f, Person(first + n, kp, scores, sources, score))
                      for n, (f, (kp, scores, score)) in enumerate(grouped))
@@ -438,7 +456,7 @@ def _triage_one(item: tuple[Frame, FrameLabels, str | None, Skeleton, bool]) -> 
         {p.id: p.keypoints for p in ps}, skeleton,
         scores={p.id: p.scores for p in ps}, maps=maps,
         image_size=(frame.width, frame.height) if frame.width > 0 else None,
-        placed=placed_by_people(labels))
+        placed=placed_by_people(labels), grouping=frame.grouping)
     if findings:
         verdict.findings = findings_from_labels(frame, labels, skeleton, maps, verdict)
     return verdict, labels_digest(labels)

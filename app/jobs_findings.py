@@ -67,12 +67,13 @@ def findings_of_frame(project: Project, frame: Frame, labels: FrameLabels | None
 def findings_from_labels(frame: Frame, labels: FrameLabels, skeleton: Skeleton, maps: Any,
                          triage: Any = None) -> list[Finding]:
     """One frame's findings from what :func:`findings_of_frame` reads from the project (no
-    project needed: triage's worker processes call it)."""
+    project needed: triage's worker processes call it); weighed by how the frame's
+    auto-labels were grouped (``frame.grouping``)."""
     return frame_findings(
         frame.id, {p.id: p.keypoints for p in labels.people.values()}, skeleton,
         scores={p.id: p.scores for p in labels.people.values()}, maps=maps,
         image_size=(frame.width, frame.height) if frame.width > 0 else None, triage=triage,
-        dismissed=labels.dismissed, placed=placed_by_people(labels))
+        dismissed=labels.dismissed, placed=placed_by_people(labels), grouping=frame.grouping)
 
 
 def current_findings(project: Project, frame_ids: Iterable[int] | None = None,

@@ -168,6 +168,7 @@ REASONS: dict[str, tuple[str, str]] = {
     "opposed-field": ("person against the field", "people against the field"),
     "neighbour-face": ("eye and ear on a neighbour's face", "eyes and ears on a neighbour's face"),
     "far-side": ("side-on person mirrored", "side-on people mirrored"),
+    "long-legs": ("person with another's legs", "people with another's legs"),
     "hidden": ("hidden joint labelled visible", "hidden joints labelled visible"),
     "missed-person": ("missed person", "missed people"),
     "exchanged-tracks": ("exchanged pair of tracks", "exchanged pairs of tracks"),

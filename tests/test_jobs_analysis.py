@@ -242,16 +242,26 @@ def test_check_reads_the_manifest_strictly(export, tmp_path, capsys):
 
 
 def test_import_maps_groups_a_sequence_in_runs_with_the_frame_before(tmp_path, image_dir,
-                                                                     maps_dir, monkeypatch):  # noqa: F811
+                                                                     maps_dir,  # noqa: F811
+                                                                     coco_file, monkeypatch):
     """With frame_before, the six synthetic frames (one image folder, so one sequence) are
     each grouped with the people of the frame before (grouped just now, or kept there), in
     runs of GROUPING_RUN frames whose first has none; once the folder is marked not a
     sequence, or by default (FRAME_BEFORE off), no frame has a frame before. (Our own rule;
-    group_people's prior is tested in tests/analysis/test_association.py.)"""
+    group_people's prior is tested in tests/analysis/test_association.py.)
+
+    Each grouped frame records how, read back after reopening (Frame.grouping, for triage's
+    weights): ``frame-before`` in a run of two or more, ``alone`` otherwise; a frame that
+    kept its people has no record, and labels imported from COCO clear it (our own rule)."""
     from app import jobs_analysis, map_runs
     from app.jobs_analysis import import_maps
     from app.jobs_tracks import mark_not_sequence
     from app.model import NewPerson
+    from app.store import Project
+
+    def recorded(folder):
+        with Project.open(folder, read_only=True) as again:
+            return [f.grouping for f in again.frames()]
 
     folder, _ = maps_dir
     calls = []
@@ -274,15 +284,47 @@ def test_import_maps_groups_a_sequence_in_runs_with_the_frame_before(tmp_path, i
     assert calls[0][0] is None and calls[1][0] is calls[0][1]
     np.testing.assert_array_equal(np.stack(calls[2][0]), kept[None])
     assert calls[3][0] is None and calls[4][0] is calls[3][1]
+    run = "frame-before"
+    assert recorded(tmp_path / "p") == [run, run, None, run, run, run]
     calls.clear()
     with new_project(tmp_path / "q", images=image_dir, author="ana") as p:
         mark_not_sequence(p, [""])
         import_maps(p, folder, frame_before=True)
     assert len(calls) == 6 and all(previous is None for previous, _ in calls)
+    assert recorded(tmp_path / "q") == ["alone"] * 6
     calls.clear()
     with new_project(tmp_path / "r", images=image_dir, author="ana") as p:
         import_maps(p, folder)  # the default (FRAME_BEFORE off): each frame alone
     assert len(calls) == 6 and all(previous is None for previous, _ in calls)
+    assert recorded(tmp_path / "r") == ["alone"] * 6
+    with Project.open(tmp_path / "r", author="ana") as p:
+        import_coco(p, coco_file)   # labels from elsewhere on every frame
+    assert recorded(tmp_path / "r") == [None] * 6
+
+
+def test_triage_weighs_each_frame_by_its_recorded_grouping(tmp_path, image_dir, maps_dir,  # noqa: F811
+                                                           monkeypatch):
+    """The triage job weighs each frame by the grouping its project records
+    (FrameTriage.grouping, which chooses the weight set) and, for frames grouped alone, does
+    not group the maps alone again (held-tie could not speak there). Our own rule; the
+    synthetic frames of tests/cli/test_analysis_commands.py."""
+    import app.analysis.triage.frame as frame_module
+    from app.jobs_analysis import import_maps, run_triage
+
+    folder, _ = maps_dir
+    calls = []
+    real = frame_module.grouped_alone
+    monkeypatch.setattr(frame_module, "grouped_alone",
+                        lambda maps, sk: calls.append(1) or real(maps, sk))
+    with new_project(tmp_path / "p", images=image_dir, author="ana") as p:
+        import_maps(p, folder)
+        ids = [f.id for f in p.frames()]
+        with p.bulk("Test", "record groupings", "test") as b:
+            b.set_grouping(ids[:2], "frame-before")
+            b.set_grouping(ids[2:3], None)
+        results = run_triage(p, findings=False)
+    assert [results[f].grouping for f in ids] == ["frame-before"] * 2 + [None] + ["alone"] * 3
+    assert len(calls) == 3   # the two frames grouped with the frame before, the unknown one
 
 
 def test_packing_frames_into_the_workers_items_changes_no_person(

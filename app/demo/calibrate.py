@@ -30,7 +30,7 @@ import logging
 import sys
 from collections import Counter
 from collections.abc import Iterable, Sequence
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
@@ -132,10 +132,16 @@ class AcceptFigure:
 def demo_frames(folder: str | Path) -> list[DemoFrame]:
     """A demo folder's frames with their auto-labels (grouped from its maps) and true poses.
 
-    The project is built in ``folder`` the first time (images and maps imported, no triage).
+    The project is built in ``folder`` the first time (images and maps imported, no triage),
+    grouped as ``import-maps`` groups by default (:data:`app.jobs_analysis.FRAME_BEFORE`,
+    which the demo tools' ``--frame-before`` turns on); each frame's ``grouping`` is the one
+    its project records, and a frame without a record (a project built before the record
+    existed) is taken as grouped that default way, so that triage weighs it by that
+    grouping's weights.
     """
     from app.jobs import SOURCES_NAME, new_project
-    from app.jobs_analysis import import_maps, load_maps
+    from app.jobs_analysis import FRAME_BEFORE, import_maps, load_maps
+    from app.model.labels import GROUPED_ALONE, GROUPED_FRAME_BEFORE
     from app.model.skeleton import skeleton_from_dict
     from app.store.project import DB_NAME, Project
 
@@ -155,6 +161,8 @@ def demo_frames(folder: str | Path) -> list[DemoFrame]:
     with Project.open(folder, read_only=True) as project:
         k = project.skeleton.num_joints
         for f in project.frames():
+            if f.grouping is None:
+                f = replace(f, grouping=GROUPED_FRAME_BEFORE if FRAME_BEFORE else GROUPED_ALONE)
             anns = by_image.get(image_of[Path(f.file_name).name], [])
             maps = load_maps(project, f)
             out.append(DemoFrame(
@@ -201,7 +209,8 @@ def _view(frame: DemoFrame, labels: FrameLabels, skeleton: Skeleton) -> FrameVie
     people = {p: x.keypoints for p, x in labels.people.items()}
     scores = {p: x.scores for p, x in labels.people.items()}
     size = (frame.frame.width, frame.frame.height)
-    verdict = triage_frame(people, skeleton, scores, frame.maps, size)
+    verdict = triage_frame(people, skeleton, scores, frame.maps, size,
+                           grouping=frame.frame.grouping)
     return FrameView(frame.frame.id, people, skeleton, scores, frame.maps, size, verdict)
 
 

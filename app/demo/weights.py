@@ -21,7 +21,9 @@ Seeds are written as for :mod:`app.demo.calibrate`, each list optionally after a
     python -m app.demo.weights --fit 1-8,choir:1-8 --measure choir:21-23 --cache DIR
 
 ``--frame-before`` measures demos grouped with the frame before (``import-maps
---frame-before``; give a cache of its own, as for :mod:`app.demo.calibrate`), and
+--frame-before``; give a cache of its own, as for :mod:`app.demo.calibrate`) with the weights
+of that grouping (``FRAME_BEFORE_PRIOR``, ``FRAME_BEFORE_WEIGHTS`` and ``FRAME_BEFORE_FLAG_AT``
+of :mod:`app.analysis.triage.combine`, which a fit with it prints), and
 ``--trial-signs NAME,...`` adds signs that triage does not have yet
 (:mod:`app.demo.trial_signs`; none at present: those tried last are triage's reasons now) as
 extra kinds, fitted and measured with the others.
@@ -39,10 +41,11 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.optimize import minimize
 
-from app.analysis.triage.combine import FLAG_AT, PRIOR, WEIGHTS
+from app.analysis.triage.combine import FLAG_AT, PRIOR, WEIGHTS, weight_set
 from app.demo.calibrate import DemoFrame, _view, demo_folder, demo_frames, parse_demos
 from app.demo.evaluate import wrong_people
 from app.demo.trial_signs import TRIAL_SIGNS
+from app.model.labels import GROUPED_ALONE, GROUPED_FRAME_BEFORE
 
 #: Upper bound of a fitted weight (log-odds): at most about 98 % from one sign alone.
 MAX_WEIGHT = 8.0
@@ -224,13 +227,17 @@ def main(argv: Sequence[str] | None = None) -> int:
     if unknown:
         parser.error(f"no trial sign {unknown[0]!r} (there are "
                      f"{', '.join(TRIAL_SIGNS) or 'none at present'})")
-    prior, weights, flag_at = PRIOR, dict(WEIGHTS), FLAG_AT
+    # The weights of the grouping measured (its own set with --frame-before: no need to
+    # put them in WEIGHTS to measure them), and the start of a fit.
+    shipped = weight_set(GROUPED_FRAME_BEFORE if args.frame_before else GROUPED_ALONE)
+    prior, weights, flag_at = shipped.prior, dict(shipped.weights), shipped.flag_at
     if args.fit:
         fitted = _judged(args.cache, parse_demos(args.fit), args.fit_frames, trial)
         pooled = sum(list(fitted.values())[1:], next(iter(fitted.values())))
         prior, weights = fit_weights(pooled)
-        print(f"PRIOR = {prior}")
-        print("WEIGHTS = {")
+        name = "FRAME_BEFORE_" if args.frame_before else ""
+        print(f"{name}PRIOR = {prior}")
+        print(f"{name}WEIGHTS = {{")
         for k in pooled.kinds:
             print(f"    {k!r}: {weights[k]},")
         print("}")
@@ -240,7 +247,7 @@ def main(argv: Sequence[str] | None = None) -> int:
                 print(f"fit {name}, flagged from {flag_at:.2f}: recall {r.recall:.3f}, "
                       f"precision {r.precision:.3f}")
         flag_at = choose_flag_at(fitted, prior, weights)
-        print(f"FLAG_AT = {flag_at:.3f} (every fitted demo at recall {LEAST_RECALL} or more, "
+        print(f"{name}FLAG_AT = {flag_at:.3f} (every fitted demo at recall {LEAST_RECALL} or more, "
               "else the lowest)")
     if args.measure:
         print("| demo | people | wrong | flagged | recall | precision |")

@@ -39,7 +39,7 @@ from app.inference.budget import check_budget
 from app.inference.config import PrelabelConfig, default_config, load_config
 from app.inference.network import PoseNetwork
 from app.jobs_analysis import _auto_person
-from app.model.labels import Frame, FrameState, Person
+from app.model.labels import GROUPED_ALONE, Frame, FrameState, Person
 from app.model.skeleton import Skeleton
 from app.parallel import default_workers, ordered_map
 from app.progress import Progress
@@ -198,7 +198,8 @@ def prelabel(project: Project, model: str | Path, config: str | Path | None = No
                 found.extend((frame.id, person) for person in people)
         progress.step(len(every), len(every), "pre-labelling")
         _sync_folder(run)
-        stats = _store(project, Path(model), cfg, run, strides, found, kept)
+        stats = _store(project, Path(model), cfg, run, strides, found, kept,
+                       [f for f in strides if f not in has_people])
     finally:
         _use_network(None, threads)
         project.drop_map_run(run)
@@ -281,9 +282,10 @@ def _sync_folder(folder: Path) -> None:
 
 def _store(project: Project, model: Path, cfg: PrelabelConfig, run: Path,
            strides: dict[int, int], found: list[tuple[int, Person]],
-           kept: int) -> dict[str, Any]:
+           kept: int, grouped: Sequence[int]) -> dict[str, Any]:
     """One transaction: the people, each frame's maps row pointing into the run's folder,
-    and the run's record (which names the folder)."""
+    the run's record (which names the folder) and, for the frames ``grouped`` here, that
+    their auto-labels were grouped each frame alone (:attr:`Frame.grouping`)."""
     record = {"model": str(model.resolve()), "model_sha256": _sha256(model),
               "config": cfg.model_dump(mode="json"),
               "maps": run.relative_to(project.folder).as_posix() if strides else None}
@@ -293,6 +295,7 @@ def _store(project: Project, model: Path, cfg: PrelabelConfig, run: Path,
         b.add_people((f, _with_id(p, first + n)) for n, (f, p) in enumerate(found))
         for frame_id, stride in strides.items():
             b.set_maps(frame_id, run / f"{frame_id}.npz", stride)
+        b.set_grouping(grouped, GROUPED_ALONE)
         b.set_meta("last_prelabel", json.dumps(record))
         b.count("frames", len(strides))
         b.count("frames grouped", len({f for f, _ in found}))

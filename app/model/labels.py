@@ -213,6 +213,13 @@ class Region:
                       dict(value.get("extra") or {}))
 
 
+#: How a frame's auto-labels were grouped from the network's maps (:attr:`Frame.grouping`):
+#: each frame on its own, or each sequence in order with the frame before.
+GROUPED_ALONE = "alone"
+GROUPED_FRAME_BEFORE = "frame-before"
+GROUPINGS = (GROUPED_ALONE, GROUPED_FRAME_BEFORE)
+
+
 @dataclass(frozen=True)
 class Frame:
     """One image of the project.
@@ -220,7 +227,7 @@ class Frame:
     ``path`` is relative to the project folder (or absolute); ``file_name`` is the name the
     frame has in COCO files (relative to the images folder it was registered from). ``status``
     is ``"ok"``, ``"missing"``, ``"corrupt"`` or ``"oversized"`` (over the pixel limit). Video
-    frames carry their index and time (s).
+    frames carry their index and time (s); ``grouping`` says how the auto-labels were grouped.
     """
 
     id: int
@@ -233,6 +240,13 @@ class Frame:
     video_index: int | None = None
     timestamp: float | None = None
     suspicion: float | None = None
+    #: How the frame's auto-labels were grouped from the network's maps: ``"alone"`` (each
+    #: frame on its own: ``import-maps``, ``prelabel``), ``"frame-before"`` (``import-maps
+    #: --frame-before``: in order with the frame before, in runs, see
+    #: :func:`app.jobs_analysis.import_maps`), or None: no record (labels imported from COCO,
+    #: drawn by hand, or grouped before the record existed). Triage weighs by it
+    #: (:func:`app.analysis.triage.combine.weight_set`).
+    grouping: str | None = None
 
 
 @dataclass(frozen=True)

@@ -111,10 +111,15 @@ class Tx:
     reads that plan a write lock their rows, and ids come from sequences.
     """
 
-    def __init__(self, cursor: Any, dialect: Dialect, writing: bool):
+    def __init__(self, cursor: Any, dialect: Dialect, writing: bool,
+                 frames_grouping: bool = True):
         self._cur = cursor
         self.dialect = dialect
         self.writing = writing
+        #: Whether ``frames`` has its ``grouping`` column (schema 9): not in an older folder
+        #: project opened read-only (which is not migrated), whose frames then read as
+        #: recording none.
+        self.frames_grouping = frames_grouping
         #: What the transaction changed, for the listeners: ``(kind, frame ids)``.
         self.events: list[tuple[str, frozenset[int]]] = []
 
@@ -304,6 +309,8 @@ class SqliteDatabase(Database):
         self.path = path
         self.where = str(path)
         self.mutex = threading.RLock()
+        #: False for an older project opened read-only (see :attr:`Tx.frames_grouping`).
+        self.frames_grouping = True
 
     @staticmethod
     def connect(path: Path, read_only: bool, immutable: bool = False) -> sqlite3.Connection:
@@ -326,7 +333,7 @@ class SqliteDatabase(Database):
         with self.mutex:
             cursor = self.conn.cursor()
             try:
-                yield Tx(cursor, SQLITE, writing=False)
+                yield Tx(cursor, SQLITE, writing=False, frames_grouping=self.frames_grouping)
             finally:
                 cursor.close()
 
@@ -340,7 +347,8 @@ class SqliteDatabase(Database):
                 self.conn.execute("BEGIN IMMEDIATE")
                 cursor = self.conn.cursor()
                 try:
-                    yield Tx(cursor, SQLITE, writing=True)
+                    yield Tx(cursor, SQLITE, writing=True,
+                             frames_grouping=self.frames_grouping)
                     cursor.close()
                     self.conn.execute("COMMIT")
                 except BaseException:

@@ -12,7 +12,9 @@ from app.store.db import Tx
 from app.store.schema import FRAME_COLUMNS
 
 _COLUMNS = ("frames.id, path, file_name, width, height, frames.state, status, video_index, "
-            "timestamp, triage.score")
+            "timestamp, triage.score, frames.grouping")
+#: The same for an older project opened read-only, whose frames have no ``grouping`` yet.
+_COLUMNS_BEFORE_9 = _COLUMNS.replace("frames.grouping", "NULL")
 _FROM = "frames LEFT JOIN triage ON triage.frame_id = frames.id"
 
 
@@ -65,23 +67,24 @@ class WorklistEntry(NamedTuple):
 
 def _frame(row: Sequence[Any]) -> Frame:
     return Frame(row[0], row[1], row[2], row[3], row[4], FrameState(row[5]), row[6], row[7],
-                 row[8], row[9])
+                 row[8], row[9], row[10])
 
 
 class FramesGateway:
     def __init__(self, tx: Tx):
         self._tx = tx
+        self._columns = _COLUMNS if tx.frames_grouping else _COLUMNS_BEFORE_9
 
     def all(self) -> list[Frame]:
         """Every frame, by id."""
         return [_frame(r) for r in self._tx.rows(
-            f"SELECT {_COLUMNS} FROM {_FROM} ORDER BY frames.id")]
+            f"SELECT {self._columns} FROM {_FROM} ORDER BY frames.id")]
 
     def get(self, frame_id: int, lock: bool = False) -> Frame | None:
         """The frame; ``lock`` keeps other writers off its row until the transaction ends
         (on a server)."""
         lock_sql = " FOR UPDATE OF frames" if lock and self._tx.hosted else ""
-        row = self._tx.row(f"SELECT {_COLUMNS} FROM {_FROM} WHERE frames.id = ?" + lock_sql,
+        row = self._tx.row(f"SELECT {self._columns} FROM {_FROM} WHERE frames.id = ?" + lock_sql,
                            (int(frame_id),))
         return None if row is None else _frame(row)
 
@@ -96,11 +99,11 @@ class FramesGateway:
     def by_name(self, text: str) -> list[Frame]:
         """Frames whose file name or path is ``text``, else whose file name ends in
         ``/text``."""
-        rows = self._tx.rows(f"SELECT {_COLUMNS} FROM {_FROM} WHERE file_name = ? OR path = ?",
+        rows = self._tx.rows(f"SELECT {self._columns} FROM {_FROM} WHERE file_name = ? OR path = ?",
                              (text, text))
         if not rows:
             like = "%/" + text.replace("\\", "\\\\").replace("%", "\\%").replace("_", "\\_")
-            rows = self._tx.rows(f"SELECT {_COLUMNS} FROM {_FROM} "
+            rows = self._tx.rows(f"SELECT {self._columns} FROM {_FROM} "
                                  "WHERE file_name LIKE ? ESCAPE '\\'", (like,))
         return [_frame(r) for r in rows]
 
@@ -116,7 +119,7 @@ class FramesGateway:
         """
         if query.order == "suspicion" and query.limit is not None:
             return [_frame(r) for r in self._suspicion_page(query)]
-        sql = f"SELECT {_COLUMNS} FROM {_FROM}"
+        sql = f"SELECT {self._columns} FROM {_FROM}"
         where, args = self._filters(query)
         if where is None:
             return []
@@ -142,12 +145,12 @@ class FramesGateway:
         else:
             ids = [f.id for f in self.page(query)]
             found = {r[0]: r for r in self._tx.rows(
-                f"SELECT {_COLUMNS}{_WORKLIST_COLUMNS} FROM {_FROM} WHERE frames.id IN "
+                f"SELECT {self._columns}{_WORKLIST_COLUMNS} FROM {_FROM} WHERE frames.id IN "
                 f"({', '.join('?' * len(ids))})", ids)} if ids else {}
             rows = [found[i] for i in ids]
         return [WorklistEntry(
-            _frame(r), None if r[10] is None else (r[9], json.loads(r[10])),
-            int(r[11]) if r[11] or r[12] else None) for r in rows]
+            _frame(r), None if r[11] is None else (r[9], json.loads(r[11])),
+            int(r[12]) if r[12] or r[13] else None) for r in rows]
 
     @staticmethod
     def _triaged(query: FrameQuery) -> tuple[str, list[Any]] | None:
@@ -215,7 +218,7 @@ class FramesGateway:
             ranked = (f"SELECT triage.frame_id AS frame_id, triage.score AS score {triaged[0]} "
                       "ORDER BY triage.score DESC, triage.frame_id LIMIT ? OFFSET ?")
             rows = list(self._tx.rows(
-                f"SELECT {_COLUMNS}{extra} FROM ({ranked}) ranked JOIN frames ON frames.id = "
+                f"SELECT {self._columns}{extra} FROM ({ranked}) ranked JOIN frames ON frames.id = "
                 "ranked.frame_id JOIN triage ON triage.frame_id = ranked.frame_id "
                 "ORDER BY ranked.score DESC, ranked.frame_id", [*triaged[1], limit, offset]))
         untriaged = self._untriaged(query)
@@ -225,7 +228,7 @@ class FramesGateway:
             picked = (f"SELECT frames.id AS id {untriaged[0]} ORDER BY frames.id "
                       "LIMIT ? OFFSET ?")
             rows += self._tx.rows(
-                f"SELECT {_COLUMNS}{extra} FROM ({picked}) picked JOIN frames ON frames.id = "
+                f"SELECT {self._columns}{extra} FROM ({picked}) picked JOIN frames ON frames.id = "
                 "picked.id LEFT JOIN triage ON triage.frame_id = frames.id ORDER BY frames.id",
                 [*untriaged[1], limit - len(rows), max(0, skip)])
         return rows
@@ -364,6 +367,18 @@ class FramesGateway:
         self._tx.run("UPDATE frames SET extra = ? WHERE id = ?",
                      (json.dumps(extra, allow_nan=False), int(frame_id)))
 
+    def set_grouping(self, frame_ids: Iterable[int], grouping: str | None) -> None:
+        """Record how the auto-labels of ``frame_ids`` were grouped (``alone``,
+        ``frame-before``; None: no record, for labels from elsewhere)."""
+        self._tx.run_many("UPDATE frames SET grouping = ? WHERE id = ?",
+                          [(grouping, int(f)) for f in frame_ids])
+
+    def groupings(self) -> dict[int, str]:
+        """How each frame's auto-labels were grouped, for the frames that record it."""
+        return {int(r[0]): str(r[1]) for r in self._tx.rows(
+            "SELECT id, grouping FROM frames WHERE grouping IS NOT NULL")} \
+            if self._tx.frames_grouping else {}
+
     def extras(self) -> dict[int, dict[str, Any]]:
         """Fields of imported COCO image records kept for the round trip, by frame id."""
         return {r[0]: json.loads(r[1]) for r in self._tx.rows(
@@ -372,12 +387,14 @@ class FramesGateway:
     def rows_for_copy(self) -> list[tuple[Any, ...]]:
         """Every column of every frame, for copying the project elsewhere."""
         return self._tx.rows("SELECT id, path, file_name, width, height, state, status, "
-                             "video_index, timestamp, extra FROM frames ORDER BY id")
+                             "video_index, timestamp, extra, "
+                             + ("grouping" if self._tx.frames_grouping else "NULL")
+                             + " FROM frames ORDER BY id")
 
     def insert_copied(self, rows: Sequence[Sequence[Any]]) -> None:
         self._tx.run_many("INSERT INTO frames (id, path, file_name, width, height, state, "
-                          "status, video_index, timestamp, extra) "
-                          "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)", rows)
+                          "status, video_index, timestamp, extra, grouping) "
+                          "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)", rows)
 
     def rekey(self, mapping: dict[int, int]) -> None:
         """Give frames new ids (``old -> new``), everywhere they are referenced."""

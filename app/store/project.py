@@ -58,7 +58,7 @@ from app.store.derived import TriageResult
 from app.store.frames import FrameQuery, NewFrame, WorklistEntry
 from app.store.ledger import Applied, LedgerEntry
 from app.store.notes import RegionRow
-from app.store.schema import SCHEMA_VERSION, migrate_sqlite, schema_version
+from app.store.schema import SCHEMA_VERSION, columns, migrate_sqlite, schema_version
 from app.wording import count
 
 log = logging.getLogger(__name__)
@@ -459,6 +459,12 @@ class Project:
         """Every person of the project grouped by frame id (for export and batch analysis)."""
         with self._read() as tx:
             return tx.people.by_frame(self.skeleton.num_joints)
+
+    def groupings(self) -> dict[int, str]:
+        """How each frame's auto-labels were grouped (:attr:`Frame.grouping`), for the frames
+        that record it."""
+        with self._read() as tx:
+            return tx.frames.groupings()
 
     def frames_with_people(self) -> set[int]:
         """The ids of the frames that have at least one person (no person read)."""
@@ -917,6 +923,11 @@ class Bulk:
             pending = set(json.loads(self._p.meta(recovery.SWEEP_KEY) or "[]"))
             self.set_meta(recovery.SWEEP_KEY, json.dumps(sorted(pending | self.superseded)))
 
+    def set_grouping(self, frame_ids: Iterable[int], grouping: str | None) -> None:
+        """Record how the auto-labels of ``frame_ids`` were grouped (``"alone"``,
+        ``"frame-before"``), or None: no record (labels from elsewhere)."""
+        self._tx.frames.set_grouping(frame_ids, grouping)
+
     def set_file_name(self, frame_id: int, file_name: str) -> None:
         self._tx.frames.set_file_name(frame_id, file_name)
 
@@ -956,7 +967,10 @@ def _read_only_db(folder: Path) -> SqliteDatabase:
         conn.close()
         conn = SqliteDatabase.connect(path, read_only=True, immutable=True)
     _check_version(conn, folder)
-    return SqliteDatabase(conn, path)
+    db = SqliteDatabase(conn, path)
+    with db.read() as tx:  # not migrated: an older project's frames record no grouping
+        db.frames_grouping = "grouping" in columns(tx, "frames")
+    return db
 
 
 def _unread_changes(folder: Path) -> str:

@@ -18,7 +18,10 @@ Layout:
 - ``frames``: one row per image; ``path`` relative to the project folder (or absolute; for a
   hosted project, relative to the images root), ``file_name`` as it appears in COCO files,
   ``state`` in the correction loop, ``status`` of the image file (ok / missing / corrupt /
-  oversized).
+  oversized); ``grouping`` (v9) how the frame's auto-labels were grouped from the network's
+  maps (``alone`` by ``import-maps`` and ``prelabel``, ``frame-before`` by ``import-maps
+  --frame-before``; NULL when unknown: labels imported from COCO or drawn by hand), which
+  chooses triage's weights.
 - ``people``: one row per person; ``keypoints`` is the ``(K, 3)`` float64 array ``x, y, v`` as
   little-endian bytes (exact round trip of any JSON number), ``scores`` the ``(K,)`` float64
   model scores (NULL when none), ``sources`` a JSON list of per-joint provenance (NULL when every
@@ -378,9 +381,20 @@ _V8 = [
     _index(Index("triage_state_rank", "triage", ("state", "score DESC", "frame_id"))),
 ]
 
+
+def _grouping_column(tx: Tx) -> None:
+    """Version 9: each frame records how its auto-labels were grouped (NULL: no record)."""
+    if "grouping" not in columns(tx, "frames"):
+        tx.run("ALTER TABLE frames ADD COLUMN grouping " + tx.dialect.type_name("text"))
+
+
+# Version 9: triage weighs labels grouped each frame alone and labels grouped with the frame
+# before by different weights, and skips what cannot speak on the former.
+_V9: list[Step] = [_grouping_column]
+
 #: ``MIGRATIONS[n]`` takes the schema from version ``n - 1`` to ``n``.
 MIGRATIONS: dict[int, list[Step]] = {1: _V1, 2: _V2, 3: _V3, 4: _V4, 5: _V5, 6: _V6, 7: _V7,
-                                     8: _V8}
+                                     8: _V8, 9: _V9}
 SCHEMA_VERSION = max(MIGRATIONS)
 
 

@@ -1091,7 +1091,8 @@ def _tag(text: str, colour_index: int, w: int, h: int, selected: bool, flagged: 
 
 
 def flags_from_reasons(reasons: Sequence[Mapping[str, Any]] | None,
-                       min_weight: float = FLAG_WEIGHT) -> dict[int, frozenset[int]]:
+                       min_weight: float = FLAG_WEIGHT,
+                       grouping: str | None = None) -> dict[int, frozenset[int]]:
     """Which joints of which people to halo, from the triage reasons of one frame.
 
     Parameters
@@ -1102,12 +1103,17 @@ def flags_from_reasons(reasons: Sequence[Mapping[str, Any]] | None,
     min_weight
         Within a flagged person, reasons weaker than this draw no halo on their joints, so
         that the halos point at the few places worth a look.
+    grouping
+        How the frame's auto-labels were grouped (:attr:`app.model.labels.Frame.grouping`):
+        triage weighed the reasons by that grouping's weights
+        (:func:`app.analysis.triage.weight_set`), and flags by its prior and threshold.
 
     Returns
     -------
     dict
         Person id to flagged joints. A person is flagged exactly when triage flags them (their
-        suspicion reaches :data:`app.analysis.triage.FLAG_AT`); their halos go on the joints of
+        suspicion reaches the weight set's ``flag_at``, :data:`app.analysis.triage.FLAG_AT`
+        for labels grouped alone); their halos go on the joints of
         their strong reasons, or, when none is strong on its own (several weak signs together)
         or the reason names no joint, on the whole person (the joint ``WHOLE_PERSON``, -1), as
         does a person flagged at ``WHOLE_BODY_JOINTS`` joints or more. Reasons stored without
@@ -1125,11 +1131,12 @@ def flags_from_reasons(reasons: Sequence[Mapping[str, Any]] | None,
     ...                      "weight": 0.3, "evidence": 1.2}])
     {3: frozenset({-1})}
     """
-    from app.analysis.triage import FLAG_AT, stored_suspicion
+    from app.analysis.triage import stored_suspicion, weight_set
 
     reasons = [r for r in reasons or () if r.get("person") is not None]
     if reasons and all("evidence" in r for r in reasons):
-        flagged = {p for p, s in stored_suspicion(reasons).items() if s >= FLAG_AT}
+        flag_at = weight_set(grouping).flag_at
+        flagged = {p for p, s in stored_suspicion(reasons, grouping).items() if s >= flag_at}
     else:
         flagged = {int(r["person"]) for r in reasons
                    if r.get("weight") is None or float(r["weight"]) >= min_weight}

@@ -95,6 +95,7 @@ def render_frame_image(project: Project, frame: Frame, focus: int | None = None)
     triage = project.triage(frame.id)
     regions = tuple((rid, tuple(tuple(p) for p in polys))
                     for rid, polys, _ in project.regions(frame.id))
-    style = OverlayStyle(focus=focus, flags=flags_from_reasons(triage[1] if triage else None),
+    style = OverlayStyle(focus=focus, flags=flags_from_reasons(triage[1] if triage else None,
+                                                                grouping=frame.grouping),
                          regions=regions)
     return render_overlay(bgr, people, project.skeleton, style)

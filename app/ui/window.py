@@ -614,7 +614,9 @@ class MainWindow(QMainWindow):
 
     def _flags(self, frame_id: int) -> dict[int, frozenset[int]]:
         triage = self.project.triage(frame_id)
-        return flags_from_reasons(triage[1] if triage else None)
+        if not triage:
+            return {}
+        return flags_from_reasons(triage[1], grouping=self.project.frame(frame_id).grouping)
 
     def _reload_frame(self) -> None:
         """The current frame's labels changed: refresh the Canvas, Owners and Notes."""

@@ -1,5 +1,5 @@
 """Triage's reasons read from the maps and the neighbours (held-tie, opposed-field,
-neighbour-face) on synthetic maps, and fitting a trial sign as an extra kind.
+neighbour-face, long-legs) on synthetic maps and bodies, and fitting a trial sign as an extra kind.
 
 The maps are the training targets of two synthetic bodies (app.analysis.targets, the
 published definitions of Cao et al., CVPR 2017: a limb's field is its unit direction from its
@@ -81,6 +81,27 @@ def test_held_tie_counts_joints_the_grouping_alone_places_elsewhere() -> None:
     assert _strengths(drawn, "held-tie") == {1: 0.0, 2: 0.0}
 
 
+def test_held_tie_is_not_computed_for_labels_recorded_as_grouped_alone(monkeypatch) -> None:
+    """Labels recorded as grouped each frame alone are the maps' grouping alone, which
+    held-tie compares them with: triage does not group the maps alone for them (a moved wrist
+    that held-tie would name otherwise, as a person's edit it did not see, stays unnamed);
+    with no record, or grouped with the frame before, it does (our own rule)."""
+    import app.analysis.triage.frame as frame_module
+
+    calls = []
+    real = frame_module.grouped_alone
+    monkeypatch.setattr(frame_module, "grouped_alone",
+                        lambda *args: calls.append(1) or real(*args))
+    moved = {p: kp.copy() for p, kp in _grouped().items()}
+    moved[2][9, :2] += (0.0, 25.0)
+    for grouping, computed in (("alone", False), (None, True), ("frame-before", True)):
+        calls.clear()
+        memo = FieldMemo(MAPS.maps)   # fresh: nothing grouped yet
+        verdict = triage_frame(moved, SK, maps=memo, grouping=grouping)
+        held = [r for r in verdict.reasons if r.kind == "held-tie"]
+        assert (len(calls), memo._alone is not None, bool(held)) == (computed,) * 3, grouping
+
+
 def test_opposed_field_counts_limbs_labelled_against_the_field() -> None:
     people = _grouped()
     assert _strengths(people, "opposed-field") == {1: 0.0, 2: 0.0}
@@ -103,6 +124,26 @@ def test_neighbour_face_finds_an_eye_and_ear_on_the_next_face() -> None:
     found = [r for r in verdict.reasons if r.kind == "neighbour-face"]
     assert [(r.person, r.joints, r.other) for r in found] == [(1, (2, 4), 2)]
     assert "person 2's nose" in found[0].text
+
+
+def test_long_legs_finds_the_knees_and_ankles_of_the_person_below() -> None:
+    """Three synthetic bodies side by side (invented for the test; our own heuristic, no
+    published source): person 1's knees and ankles drawn 20 and 40 pixels lower, as the legs
+    of someone standing below would be, make its legs 1.7 times the others' for the torso."""
+    people = {}
+    for p in (1, 2, 3):
+        body = np.zeros((17, 3))
+        body[:, :2], body[:, 2] = BODY + np.array([60.0 * p, 0.0]), 2
+        people[p] = body
+    assert _strengths(people, "long-legs") == {1: 0.0, 2: 0.0, 3: 0.0}
+    people[1][[13, 14], 1] += 20
+    people[1][[15, 16], 1] += 40
+    verdict = triage_frame(people, SK)
+    found = [r for r in verdict.reasons if r.kind == "long-legs"]
+    assert [(r.person, r.joints, r.strength) for r in found] == [(1, (13, 14, 15, 16), 1.0)]
+    assert "knees and ankles" in found[0].text
+    # With fewer than two others to compare with, the sign stays silent.
+    assert _strengths({1: people[1], 2: people[2]}, "long-legs") == {1: 0.0, 2: 0.0}
 
 
 def test_a_frame_without_maps_gives_no_map_signs() -> None:

@@ -15,6 +15,7 @@ of Human Movement" (from memory), so that a correct body has exactly the table's
 from __future__ import annotations
 
 import json
+import math
 import shutil
 from collections import Counter
 from dataclasses import dataclass, field
@@ -760,3 +761,40 @@ def test_reasons_serialise_for_the_store():
     assert sorted(back) == [2, 5]
     for pid, value in back.items():
         assert value == pytest.approx(t.suspicion[pid], abs=1e-3)
+
+
+def test_triage_weighs_labels_by_how_they_were_grouped():
+    """Each person's suspicion is the logistic of the prior plus the weighted strengths
+    (log-odds that add: I. J. Good, "Probability and the Weighing of Evidence", 1950, from
+    memory), with the weight set of the labels' grouping: the frame before's for labels
+    grouped with it, the default one for labels grouped alone or of unknown grouping. The
+    stored reasons give the same suspicion back. The body is synthetic (a left wrist on a
+    neighbour, one stretched limb)."""
+    from app.analysis.triage.combine import (
+        FRAME_BEFORE_PRIOR,
+        FRAME_BEFORE_WEIGHTS,
+        PRIOR,
+        WEIGHTS,
+        weight_set,
+    )
+
+    body = np.zeros((17, 3))
+    body[:, 2] = 2
+    body[:, :2] = [[50, 20], [52, 18], [48, 18], [55, 19], [45, 19], [60, 35], [40, 35],
+                   [63, 55], [37, 55], [160, 72], [36, 72], [56, 68], [44, 68], [57, 95],
+                   [43, 95], [57, 120], [43, 120]]
+    assert FRAME_BEFORE_WEIGHTS["stretched-limb"] != WEIGHTS["stretched-limb"]
+    for grouping, prior, weights in ((None, PRIOR, WEIGHTS), ("alone", PRIOR, WEIGHTS),
+                                     ("frame-before", FRAME_BEFORE_PRIOR,
+                                      FRAME_BEFORE_WEIGHTS)):
+        t = triage_frame({1: body}, SK, grouping=grouping)
+        (r,) = [x for x in t.reasons if x.person == 1]
+        assert r.kind == "stretched-limb" and t.grouping == grouping
+        assert r.evidence == pytest.approx(weights["stretched-limb"] * r.strength)
+        expected = 1 / (1 + math.exp(-(prior + weights["stretched-limb"] * r.strength)))
+        assert t.suspicion[1] == pytest.approx(expected)
+        assert r.weight == pytest.approx(expected)   # the one reason alone
+        back = stored_suspicion([x.to_dict() for x in t.reasons], grouping)
+        assert back[1] == pytest.approx(expected, abs=1e-3)
+        assert t.flagged == ([1] if expected >= weight_set(grouping).flag_at else [])
+

@@ -15,6 +15,7 @@ from app.jobs import new_project
 from app.jobs_analysis import load_maps
 from app.model import MoveJoint
 from app.progress import Progress
+from app.store import Project
 from tests.inference.onnx_models import colour_dot_model
 from tests.inference.test_network import FIELDS, MAPS_FROM, SK, _config, _people_at
 
@@ -52,6 +53,10 @@ def test_auto_labels_are_stored_with_scores_provenance_and_maps(setup):
     run = project.folder / json.loads(project.meta("last_prelabel"))["maps"]
     assert stats == {"people": 9, "frames": 3, "frames grouped": 3, "frames kept": 0,
                      "unreadable": 0}
+    # each frame grouped alone, recorded for triage's weights (Frame.grouping), read back
+    # from a second opening of the project
+    with Project.open(project.folder, read_only=True) as again:
+        assert [f.grouping for f in again.frames()] == ["alone"] * 3
     for f in project.frames():
         people = project.people(f.id)
         assert len(people) == len(truth[f.file_name])

@@ -127,6 +127,28 @@ def test_claims_mark_the_frame_someone_works_on_and_run_out(hosted):
         assert set(bea.claims()) == {frames[0]}
 
 
+def test_how_auto_labels_were_grouped_is_copied_written_and_read_back(tmp_path, image_dir,
+                                                                       pg_url):
+    """Frame.grouping (schema v9) goes with the project to the server, and a hosted
+    project writes and reads it like a folder one, after reopening (synthetic frames)."""
+    with new_project(tmp_path / "proj", images=image_dir, author="ana") as p:
+        ids = [f.id for f in p.frames()]
+        with p.bulk("Test", "record groupings", "test") as b:
+            b.set_grouping(ids[:2], "frame-before")
+            b.set_grouping(ids[2:4], "alone")
+    host(tmp_path / "proj", pg_url)
+    with Project.open(pg_url, author="ana") as p:
+        assert [f.grouping for f in p.frames()] == ["frame-before"] * 2 + ["alone"] * 2 + \
+            [None] * 2
+        with p.bulk("Test", "record groupings", "test") as b:
+            b.set_grouping(ids[:1], None)
+            b.set_grouping(ids[4:], "alone")
+    with Project.open(pg_url, author="ana") as p:
+        assert p.groupings() == {ids[1]: "frame-before", ids[2]: "alone", ids[3]: "alone",
+                                 ids[4]: "alone", ids[5]: "alone"}
+        assert p.frame(ids[1]).grouping == "frame-before"
+
+
 def test_a_read_only_role_opens_the_project_read_only_and_says_so(hosted, pg_server):
     dbname = hosted.rpartition("/")[2]
     pg_server.admin("CREATE ROLE reader LOGIN")

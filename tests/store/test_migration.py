@@ -168,6 +168,10 @@ def _old_project(folder):
 def test_a_schema_3_project_migrates_its_ledger_to_structured_targets(tmp_path):
     folder = tmp_path / "old"
     _old_project(folder)
+    # opened read-only it is not migrated, and its frames still read (no grouping recorded)
+    with Project.open(folder, read_only=True) as p:
+        assert p.frames() and all(f.grouping is None for f in p.frames())
+        assert p.groupings() == {}
     with Project.open(folder, author="ben") as p:
         entries = list(reversed(p.history()))
         assert [e.target for e in entries] == [
@@ -182,6 +186,8 @@ def test_a_schema_3_project_migrates_its_ledger_to_structured_targets(tmp_path):
         p.apply(MoveJoint(1, 1, 9, 41.0, 31.0))
         assert p.history(limit=1)[0].target == JointTarget(1, 9)
         export_coco(p, tmp_path / "out.json", states=None)
+        # schema 9: no frame of an old project records how its labels were grouped
+        assert [f.grouping for f in p.frames()] == [None] * len(p.frames())
     conn = sqlite3.connect(folder / "project.db")
     columns = [r[1] for r in conn.execute("PRAGMA table_info(ledger)")]
     assert conn.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION

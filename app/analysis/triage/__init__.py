@@ -36,6 +36,8 @@ kind                 evidence
 ``neighbour-face``   one side's eye and ear both nearer another person's nose than their own
 ``far-side``         a body turned side on whose eye and ear on the side the labels turn away
                      from the camera the model scores above the near side's: mirrored whole
+``long-legs``        knees and ankles further below the hips, for the torso, than the frame's
+                     other people's: another body's legs (weight 0 grouped alone)
 ``crowded``          frame level: the crowd index of Li et al. (CVPR 2019)
 ===================  =========================================================================
 
@@ -78,8 +80,20 @@ weight reaches the log-odds of ``FLAG_AT`` (-1.39): a stretched limb alone (2.5)
 ``off-ground`` anywhere from 2 to 8 and ``crossed-sides`` from 4.5 to 8: with a few invented
 scenes the weights of rare signs move from fit to fit. These are defaults
 for crowds of upright people, standing or seated, fitted on invented scenes, not truths.
+
+Labels grouped with the frame before (``import-maps --frame-before``) err differently, so
+they have a weight set of their own, ``FRAME_BEFORE_PRIOR``, ``FRAME_BEFORE_WEIGHTS`` and
+``FRAME_BEFORE_FLAG_AT``, fitted the same way on demos grouped that way. Each frame records how
+its auto-labels were grouped (:attr:`app.model.labels.Frame.grouping`); ``triage_frame(...,
+grouping=...)`` weighs by that grouping's set (:func:`~app.analysis.triage.combine.weight_set`;
+no record: the default set), and, for labels grouped alone, skips the maps' grouping alone
+that only ``held-tie`` reads.
 ``far-side`` (added later on 3 December 2026) was fitted alone on the same demos with every
 other weight held at its value here (4.5; a full refit gives it 5.0 and moves five others).
+``long-legs`` (added later the same day, for labels grouped with the frame before) weighs 0
+here: fitted alone on these demos with every other weight held it gets 1.5, which costs the
+shipped demo precision (0.817 -> 0.796); a full refit gives it 4.0 but moves ten others and
+lowers seed 9's recall (DEVELOPERS.md, "The sixth refit").
 
 The choir on stepped risers (:mod:`app.demo.choir`: several floor levels, the legs of the
 rows behind hidden, a seated front row in some casts, folders hiding wrists, a conductor seen
@@ -157,8 +171,10 @@ from app.analysis.triage.combine import (
     WEIGHTS,
     FrameTriage,
     Reason,
+    WeightSet,
     combine,
     stored_suspicion,
+    weight_set,
 )
 from app.analysis.triage.crowd import crowd_index, duplicates_and_splits, ground_line, off_ground
 from app.analysis.triage.frame import triage_frame
@@ -171,6 +187,7 @@ __all__ = [
     "WEIGHTS",
     "FrameTriage",
     "Reason",
+    "WeightSet",
     "body_scale",
     "combine",
     "crossed_sides",
@@ -188,4 +205,5 @@ __all__ = [
     "typical_support",
     "upright_body",
     "weak_limbs",
+    "weight_set",
 ]

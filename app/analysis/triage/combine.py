@@ -22,6 +22,8 @@ from typing import Any
 
 import numpy as np
 
+from app.model.labels import GROUPED_ALONE, GROUPED_FRAME_BEFORE
+
 #: A person is flagged at this suspicion (chosen on the calibration seeds, see the module
 #: docstring: the highest of 1/2, 1/3, 1/4 and 1/5 at which every one of them had at least
 #: 90 % of its wrong people flagged). Read as costs: a miss, which teaches the network the
@@ -49,7 +51,69 @@ WEIGHTS: dict[str, float] = {
     "opposed-field": 1.5,
     "neighbour-face": 0.0,
     "far-side": 4.5,
+    "long-legs": 0.0,
 }
+#: How a frame's auto-labels were grouped (:attr:`app.model.labels.Frame.grouping`, written
+#: by ``import-maps`` and ``prelabel``): each frame alone, or each sequence in order with the
+#: frame before (``import-maps --frame-before``). Labels with no record (imported, drawn by
+#: hand, or from a project made before the record) are weighed as grouped alone.
+ALONE = GROUPED_ALONE
+FRAME_BEFORE = GROUPED_FRAME_BEFORE
+
+#: The weights of labels grouped with the frame before: fitted on demos grouped that way
+#: (the sixth refit, 3 December 2026, dance and choir seeds 1-8, 12 frames; DEVELOPERS.md
+#: "The demo"), as ``PRIOR``, ``WEIGHTS`` and ``FLAG_AT`` are on demos grouped alone. Their
+#: errors differ: the frame before fills in joints that the grouping alone leaves out and
+#: keeps a wrong pairing over several frames (``held-tie`` speaks only here).
+FRAME_BEFORE_FLAG_AT = 1.0 / 5.0
+FRAME_BEFORE_PRIOR = -4.8
+FRAME_BEFORE_WEIGHTS: dict[str, float] = {
+    "missing-joints": 7.0,
+    "stretched-limb": 0.5,
+    "short-legs": 8.0,
+    "tilted-torso": 8.0,
+    "off-ground": 4.5,
+    "mirrored": 5.0,
+    "crossed-sides": 4.5,
+    "duplicate": 7.0,
+    "tangled": 2.5,
+    "split": 8.0,
+    "weak-limb": 0.5,
+    "low-score": 1.0,
+    "invented": 2.5,
+    "held-tie": 1.5,
+    "opposed-field": 2.5,
+    "neighbour-face": 3.0,
+    "far-side": 4.5,
+    "long-legs": 4.0,
+}
+
+
+@dataclass(frozen=True)
+class WeightSet:
+    """The prior, the weights and the flagging threshold triage weighs one kind of label by."""
+
+    prior: float
+    weights: dict[str, float]
+    flag_at: float
+
+    def evidence(self, kind: str, strength: float) -> float:
+        """``weights[kind] * strength`` (a kind the set lacks weighs 0)."""
+        return self.weights.get(kind, 0.0) * strength
+
+
+def weight_set(grouping: str | None = None) -> WeightSet:
+    """The weights for labels grouped ``grouping`` (:data:`ALONE`, :data:`FRAME_BEFORE`, or
+    None: no record, weighed as grouped alone). The module's constants are read at each call.
+
+    >>> weight_set().prior == PRIOR, weight_set(FRAME_BEFORE).prior == FRAME_BEFORE_PRIOR
+    (True, True)
+    """
+    if grouping == FRAME_BEFORE:
+        return WeightSet(FRAME_BEFORE_PRIOR, FRAME_BEFORE_WEIGHTS, FRAME_BEFORE_FLAG_AT)
+    return WeightSet(PRIOR, WEIGHTS, FLAG_AT)
+
+
 #: The frame's score adds this times its crowd index.
 CROWD_WEIGHT = 0.5
 #: Reasons weaker than this are dropped, so that the list shows signs rather than noise (the
@@ -97,11 +161,21 @@ class FrameTriage:
     crowd_index: float = 0.0
     #: The frame's findings (:class:`app.analysis.triage.findings.Finding`), when computed.
     findings: list[Any] = field(default_factory=list)
+    #: How the frame's labels were grouped (:data:`ALONE`, :data:`FRAME_BEFORE`, None: no
+    #: record), which chose the weights (:func:`weight_set`).
+    grouping: str | None = None
+
+    @property
+    def weights(self) -> WeightSet:
+        """The weights this verdict was weighed by."""
+        return weight_set(self.grouping)
 
     @property
     def flagged(self) -> list[int]:
-        """Ids of the people whose suspicion reaches :data:`FLAG_AT`, most suspicious first."""
-        return sorted((p for p, s in self.suspicion.items() if s >= FLAG_AT),
+        """Ids of the people whose suspicion reaches the weight set's ``flag_at``
+        (:data:`FLAG_AT` for labels grouped alone), most suspicious first."""
+        flag_at = self.weights.flag_at
+        return sorted((p for p, s in self.suspicion.items() if s >= flag_at),
                       key=lambda p: -self.suspicion[p])
 
 
@@ -122,7 +196,26 @@ def make_reason(kind: str, text: str, pid: int, joints: Any, strength: float,
                   sigmoid(PRIOR + evidence), strength, evidence, other)
 
 
-def combine(reasons: list[Reason], people: Any) -> dict[int, float]:
+def reweigh(reasons: list[Reason], weights: WeightSet) -> list[Reason]:
+    """``reasons`` (made with the default weights by :func:`make_reason`) with their evidence
+    and weight taken from ``weights`` instead; frame-level reasons are kept as they are.
+
+    >>> r = make_reason("duplicate", "", 1, (), 0.5)
+    >>> r.evidence, reweigh([r], weight_set(FRAME_BEFORE))[0].evidence
+    (0.0, 3.5)
+    """
+    out = []
+    for r in reasons:
+        if r.person is None:
+            out.append(r)
+            continue
+        evidence = weights.evidence(r.kind, r.strength)
+        out.append(Reason(r.kind, r.text, r.person, r.joints,
+                          sigmoid(weights.prior + evidence), r.strength, evidence, r.other))
+    return out
+
+
+def combine(reasons: list[Reason], people: Any, prior: float | None = None) -> dict[int, float]:
     """Each person's suspicion from their reasons.
 
     Parameters
@@ -131,6 +224,9 @@ def combine(reasons: list[Reason], people: Any) -> dict[int, float]:
         The frame's reasons (frame-level ones, with no person, are ignored).
     people
         The ids of the frame's people (an iterable of ints).
+    prior
+        The log-odds before any evidence (default :data:`PRIOR`; :func:`weight_set` gives
+        the one of each grouping).
 
     Returns
     -------
@@ -160,10 +256,11 @@ def combine(reasons: list[Reason], people: Any) -> dict[int, float]:
         if r.person in best:
             kinds = best[r.person]
             kinds[r.kind] = max(kinds.get(r.kind, 0.0), r.evidence)
-    return {p: sigmoid(PRIOR + sum(kinds.values())) for p, kinds in best.items()}
+    start = PRIOR if prior is None else prior
+    return {p: sigmoid(start + sum(kinds.values())) for p, kinds in best.items()}
 
 
-def stored_suspicion(reasons: Any) -> dict[int, float]:
+def stored_suspicion(reasons: Any, grouping: str | None = None) -> dict[int, float]:
     """Each person's suspicion from a frame's reasons as stored (:meth:`Reason.to_dict`).
 
     Parameters
@@ -171,12 +268,16 @@ def stored_suspicion(reasons: Any) -> dict[int, float]:
     reasons
         A list of dicts with ``kind``, ``person`` and ``evidence`` (what
         :func:`app.jobs_analysis.run_triage` keeps in the project).
+    grouping
+        How the frame's labels were grouped (:attr:`app.model.labels.Frame.grouping`): the
+        stored evidence was weighed by that grouping's weights, and so is the prior.
 
     Returns
     -------
     dict
         Person id -> suspicion, for every person named by a reason; a person is flagged when
-        it reaches :data:`FLAG_AT`. People without reasons are at ``1 / (1 + exp(-PRIOR))``.
+        it reaches the weight set's ``flag_at`` (:data:`FLAG_AT` grouped alone). People
+        without reasons are at ``1 / (1 + exp(-PRIOR))``.
 
     Notes
     -----
@@ -193,4 +294,5 @@ def stored_suspicion(reasons: Any) -> dict[int, float]:
     rebuilt = [Reason(str(r.get("kind", "")), "", int(r["person"]),
                       evidence=float(r.get("evidence") or 0.0))
                for r in reasons or () if r.get("person") is not None]
-    return combine(rebuilt, sorted({r.person for r in rebuilt if r.person is not None}))
+    return combine(rebuilt, sorted({r.person for r in rebuilt if r.person is not None}),
+                   weight_set(grouping).prior)

@@ -389,6 +389,7 @@ def frame_findings(
     kinds: Iterable[str] | None = None,
     calibration: Calibration = SHIPPED,
     placed: Mapping[int, Iterable[int]] | None = None,
+    grouping: str | None = None,
 ) -> list[Finding]:
     """A frame's findings, worst first.
 
@@ -420,6 +421,10 @@ def frame_findings(
         Person id -> the joints a person placed or marked (their provenance is an author,
         not the model or an import; :func:`placed_by_people`): the ``invented`` check
         leaves them alone, since their model score belongs to the model's old spot.
+    grouping
+        How the frame's auto-labels were grouped (:attr:`app.model.labels.Frame.grouping`),
+        for the triage computed here (:func:`~app.analysis.triage.frame.triage_frame`); a
+        given ``triage`` carries its own.
 
     Returns
     -------
@@ -439,7 +444,7 @@ def frame_findings(
         maps = FieldMemo(maps)  # triage and the proposers ask for many of the same E
     mine = {int(p): frozenset(int(j) for j in js) for p, js in (placed or {}).items()}
     if triage is None:
-        triage = triage_frame(arrays, skeleton, score_arrays, maps, image_size, mine)
+        triage = triage_frame(arrays, skeleton, score_arrays, maps, image_size, mine, grouping)
     view = FrameView(frame_id, arrays, skeleton, score_arrays, maps, image_size, triage, mine)
     wanted = set(KINDS if kinds is None else kinds)
     labels = _labels(frame_id, skeleton, arrays, score_arrays)

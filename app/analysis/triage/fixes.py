@@ -59,7 +59,7 @@ from app.analysis.triage.body import (
     stretched_limbs,
     upright_body,
 )
-from app.analysis.triage.combine import WEIGHTS, FrameTriage, Reason, ramp
+from app.analysis.triage.combine import FrameTriage, Reason, ramp
 from app.analysis.triage.crowd import (
     INVENTED_FROM,
     INVENTED_SURE,
@@ -335,17 +335,19 @@ class FrameView:
         reasons += upright_body(pid, kp, sk, scale)
         reasons += off_ground(pid, kp, sk, scale, self.line)
         reasons += crossed_sides(pid, kp, sk, scale, self.maps)
-        # A weak limb counts (WEIGHTS["weak-limb"] is 0.5 since the refit of
+        # Weighed as triage weighed the frame (its grouping's weight set). A weak limb counts
+        # where it weighs (WEIGHTS["weak-limb"] is 0.5 since the refit of
         # app.analysis.triage.combine): its line integrals are most of this function's cost,
         # kept down by the view's FieldMemo (each limb's E at the same spots is asked once)
-        # and by the cache above; a weight of zero would skip them.
-        if self.typical is not None and WEIGHTS["weak-limb"] != 0.0:
+        # and by the cache above; a weight of zero skips them.
+        weights = self.triage.weights
+        if self.typical is not None and weights.evidence("weak-limb", 1.0) != 0.0:
             support = limb_support(kp[None], sk, self.maps)[0]
             reasons += weak_limbs(pid, kp, sk, support, self.typical)
         best: dict[str, float] = {}
         for r in reasons:
             if r.kind in _BODY_KINDS:
-                best[r.kind] = max(best.get(r.kind, 0.0), r.evidence)
+                best[r.kind] = max(best.get(r.kind, 0.0), weights.evidence(r.kind, r.strength))
         return float(sum(best.values()))
 
 
@@ -685,7 +687,8 @@ def crossed(view: FrameView) -> list[Proposal]:
             n = view.names
             # The drop in body evidence over the weight of one crossed pair (at least 0.5, should
             # a fit weigh crossed sides at nothing).
-            strength = float(np.clip((before - after) / max(WEIGHTS["crossed-sides"], 0.5),
+            strength = float(np.clip((before - after) / max(
+                view.triage.weights.evidence("crossed-sides", 1.0), 0.5),
                                      0.0, 1.0))
             parts = join_words([_part(sk, j) for j, _ in pairs])
             text = (f"{n.person(p)}'s left and right {parts} are the other way round from the "

@@ -19,12 +19,16 @@ from app.analysis.triage.body import (
     upright_body,
 )
 from app.analysis.triage.combine import (
+    ALONE,
     CROWD_WEIGHT,
     CROWDED_FROM,
+    FRAME_BEFORE,
     MIN_STRENGTH,
     FrameTriage,
     Reason,
     combine,
+    reweigh,
+    weight_set,
 )
 from app.analysis.triage.crowd import (
     covers,
@@ -32,6 +36,8 @@ from app.analysis.triage.crowd import (
     duplicates_and_splits,
     ground_line,
     invented,
+    leg_ratio,
+    long_legs,
     neighbour_face,
     off_ground,
     stand_rows,
@@ -57,6 +63,7 @@ def triage_frame(
     maps: Any = None,
     image_size: tuple[int, int] | None = None,
     placed: Mapping[int, Any] | None = None,
+    grouping: str | None = None,
 ) -> FrameTriage:
     """Every check on one frame; the frame's score, its reasons and each person's suspicion.
 
@@ -77,6 +84,13 @@ def triage_frame(
         (:func:`app.analysis.triage.findings.placed_by_people`): ``invented`` leaves them
         alone, since a moved joint keeps the model's score of its old spot, and so does
         ``held-tie`` (the maps' grouping is not the question for a joint a person placed).
+    grouping
+        How the labels were grouped (:attr:`app.model.labels.Frame.grouping`): ``"alone"``,
+        ``"frame-before"`` or None (no record). It chooses the weights
+        (:func:`app.analysis.triage.combine.weight_set`: the frame before's set for
+        ``"frame-before"``, the default one otherwise); and for labels grouped alone the
+        maps' grouping alone is not computed (``held-tie`` compares the labels with it, and
+        they are it, so it could not speak: about 11 ms a frame of the shipped demo saved).
 
     Returns
     -------
@@ -116,7 +130,8 @@ def triage_frame(
     if maps is not None and present:
         support = limb_support(np.stack([arrays[p] for p in present]), skeleton, maps)
         typical = typical_support(support)
-        alone = grouped_alone(maps, skeleton)
+        if grouping != ALONE:
+            alone = grouped_alone(maps, skeleton)
     line = ground_line(np.array([feet_y(arrays[p], skeleton) for p in present]),
                        np.array([torso[p] for p in present]))
     typical_score = None
@@ -130,6 +145,7 @@ def triage_frame(
     covered = covers(shown, skeleton, scales, stand_rows(shown, skeleton, torso, line))
     joint_score = typical_joint_score(shown, score_arrays)
     names = Names.of_frame(skeleton, arrays)
+    leg_ratios = {p: leg_ratio(arrays[p], skeleton) for p in present}
     reasons: list[Reason] = []
     for n, pid in enumerate(present):
         kp = arrays[pid]
@@ -147,17 +163,21 @@ def triage_frame(
             reasons += opposed_field(pid, kp, skeleton, support[n])
         reasons += held_tie(pid, kp, alone, mine, names)
         reasons += neighbour_face(pid, kp, skeleton, shown, names)
+        reasons += long_legs(pid, kp, skeleton, leg_ratios, names)
         reasons += low_scores(pid, kp, own, typical_score)
         reasons += invented(pid, kp, skeleton,
                             [(j, q) for j, q in covered.get(pid, []) if j not in mine],
                             own, joint_score, names)
     reasons += duplicates_and_splits(shown, skeleton, scales, score_arrays, names)
     reasons = [r for r in reasons if r.strength >= MIN_STRENGTH]
-    suspicion = combine(reasons, arrays)
+    weights = weight_set(grouping)
+    if grouping == FRAME_BEFORE:  # the checks weigh by the default set (make_reason)
+        reasons = reweigh(reasons, weights)
+    suspicion = combine(reasons, arrays, weights.prior)
     ci = crowd_index(arrays)
     if ci > CROWDED_FROM:
         reasons.append(Reason("crowded", f"crowded frame (crowd index {ci:.2f})", None, (),
                               min(ci, 1.0), min(ci, 1.0), 0.0))
     score = float(sum(suspicion.values()) + CROWD_WEIGHT * ci)
     reasons.sort(key=lambda r: (-r.weight, r.person if r.person is not None else -1))
-    return FrameTriage(score, reasons, suspicion, ci)
+    return FrameTriage(score, reasons, suspicion, ci, grouping=grouping)
