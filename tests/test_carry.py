@@ -322,3 +322,75 @@ def test_the_whole_frame_is_carried_with_one_key(tmp_path, capsys):
             for d in range(3):
                 assert np.allclose(p.labels(t + 1).people[pid(t, d)].keypoints[:, :2],
                                    truth[t, d, :, :2], atol=3.0), (t, d)
+
+
+def _elbow_wrong_two_ways(shift: float):
+    """Dancer 0's left elbow dragged 30 pixels to the left in frame 4 (index 3) and, in
+    frame 5, ``shift`` pixels to the right of its place instead: wrong again, another way;
+    right from frame 6 on (synthetic)."""
+    people = sequences.dancers()
+    people[3, 0, ELBOW, 0] -= 30.0
+    people[4, 0, ELBOW, 0] += shift
+    return people
+
+
+def _drag_back_frame_4(frames):
+    truth = sequences.dancers()
+    frames[3], changes = MoveJoint(4, pid(3, 0), ELBOW, *truth[3, 0, ELBOW, :2]).apply(frames[3])
+    return changes
+
+
+def test_a_dragged_joint_wrong_again_another_way_is_carried_to_the_corrections_place():
+    """The elbow 45 pixels right of its place in frame 5, farther from where the drag of
+    frame 4 put it than half the drag's 30 pixels (``STRAY``), is the same error, the model's
+    joint wrong again: carried there, to the drag's place moved with the body, and the batch
+    stops at frame 6 where the elbow is right (synthetic)."""
+    frames = sequences.tracked_frames(_elbow_wrong_two_ways(45.0))
+    batch = carry_changes(_drag_back_frame_4(frames), frames, 3, each_joint=True)
+    assert ([g.frame_id for g in batch.edits], batch.stopped_forward) == ([5], 6)
+    five, _ = batch.edits[0].apply(frames[4])
+    truth = sequences.dancers()
+    assert np.allclose(five.people[pid(4, 0)].keypoints[ELBOW, :2], truth[4, 0, ELBOW, :2],
+                       atol=3.0)
+
+
+def test_a_dragged_joint_near_where_the_drag_put_it_is_not_the_same_error(monkeypatch):
+    """Off by 12 pixels in frame 5, within half the drag's 30 pixels (and a tenth of the
+    150-pixel body) of where the drag put it, on the other side of where the joint stood: a
+    smaller error of its own, not carried; nor the 45 pixels with ``STRAY`` off
+    (synthetic)."""
+    frames = sequences.tracked_frames(_elbow_wrong_two_ways(12.0))
+    batch = carry_changes(_drag_back_frame_4(frames), frames, 3, each_joint=True)
+    assert (batch.edits, batch.stopped_forward) == ((), 5)
+    monkeypatch.setattr(carry, "STRAY", 0.0)
+    frames = sequences.tracked_frames(_elbow_wrong_two_ways(45.0))
+    batch = carry_changes(_drag_back_frame_4(frames), frames, 3, each_joint=True)
+    assert (batch.edits, batch.stopped_forward) == ((), 5)
+
+
+def test_a_give_the_neighbour_no_longer_fits_places_the_joint_where_it_was_given(monkeypatch):
+    """Dancer 0's and dancer 1's left wrists exchanged in frame 4; in frame 5 dancer 1's
+    wrist is right again but dancer 0's still stands on it (synthetic). The give no longer
+    fits frame 5 (dancer 1 does not hold dancer 0's wrist's place), so dancer 0's wrist is
+    carried as a drag to where the give put it, moved with the body (``PLACE_GIVEN``), and
+    dancer 1's, right, is left alone; the batch stops at frame 6. With ``PLACE_GIVEN`` off
+    nothing is carried."""
+    people = sequences.dancers()
+    people[3, [0, 1], WRIST] = people[3, [1, 0], WRIST]
+    people[4, 0, WRIST] = people[4, 1, WRIST]
+
+    def carried():
+        frames = sequences.tracked_frames(people)
+        frames[3], changes = ReassignJoint(4, pid(3, 1), WRIST, pid(3, 0)).apply(frames[3])
+        return frames, carry_changes(changes, frames, 3, each_joint=True)
+
+    frames, batch = carried()
+    assert ([g.frame_id for g in batch.edits], batch.stopped_forward) == ([5], 6)
+    assert [(type(e), e.person_id) for e in batch.edits[0].edits] == [(MoveJoint, pid(4, 0))]
+    five, _ = batch.edits[0].apply(frames[4])
+    truth = sequences.dancers()
+    for p in (0, 1):
+        assert np.allclose(five.people[pid(4, p)].keypoints[WRIST, :2], truth[4, p, WRIST, :2],
+                           atol=3.0)
+    monkeypatch.setattr(carry, "PLACE_GIVEN", False)
+    assert carried()[1].edits == ()
