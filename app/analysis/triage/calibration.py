@@ -81,17 +81,17 @@ class Calibration:
 
 #: The calibration the findings use, fitted by :mod:`app.demo.calibrate` on the seeds named.
 SHIPPED = Calibration({
-    "crossed-sides": (-1.928, -1.248),
-    "duplicate": (-2.968, 7.261),
-    "hidden": (5.112, 0.478),
-    "invented": (0.442, 2.924),
-    "mirrored": (-1.499, 6.095),
+    "crossed-sides": (-2.131, -0.885),
+    "duplicate": (-3.064, 9.892),
+    "hidden": (3.985, 2.029),
+    "invented": (0.498, 3.07),
+    "mirrored": (-1.421, 7.683),
     "missed-person": (5.532, 0.841),
-    "missing-joint": (1.369, 0.059),
-    "phantom": (6.758, -5.531),
-    "shared-spot": (1.848, 5.049),
-    "split": (-3.176, 5.44),
-    "wrong-owner": (1.65, -0.722),
+    "missing-joint": (1.573, -0.056),
+    "phantom": (7.08, -5.272),
+    "shared-spot": (1.395, 6.14),
+    "split": (-2.899, 6.205),
+    "wrong-owner": (1.128, -0.251),
 }, PROPOSE_AT, tuple(f"{scene} {seed}" for scene in ("dance", "choir") for seed in range(1, 9)))
 
 
