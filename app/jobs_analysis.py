@@ -83,10 +83,11 @@ def import_maps(project: Project, folder: str | Path,
     number.
 
     With ``frame_before`` (default :data:`FRAME_BEFORE`, on; ``import-maps
-    --each-frame-alone`` turns it off), the frames of a sequence (:mod:`app.model.sequences`) are grouped in
-    order, each with the people of the frame before it as ``previous``, so that near ties
-    between overlapping people are decided as on that frame: the people just grouped there,
-    or, where that frame keeps its people, those. They go to the workers in runs of
+    --each-frame-alone`` turns it off), the frames of a sequence
+    (:mod:`app.model.sequences`) are grouped in order, each with the people of the frame
+    before it as ``previous``, so that near ties between overlapping people are decided as
+    on that frame: the people just grouped there, or, where that frame keeps its people,
+    those. They go to the workers in runs of
     :data:`GROUPING_RUN` consecutive frames that have maps in ``folder``; the first frame of a
     run, a frame whose neighbour before it has no maps here, and a frame in no sequence (a
     folder marked not a sequence) are grouped without a frame before. Without it, every frame

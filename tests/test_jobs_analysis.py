@@ -319,7 +319,7 @@ def test_triage_weighs_each_frame_by_its_recorded_grouping(tmp_path, image_dir, 
     monkeypatch.setattr(frame_module, "grouped_alone",
                         lambda maps, sk: calls.append(1) or real(maps, sk))
     with new_project(tmp_path / "p", images=image_dir, author="ana") as p:
-        import_maps(p, folder)
+        import_maps(p, folder, frame_before=False)  # each frame alone
         ids = [f.id for f in p.frames()]
         with p.bulk("Test", "record groupings", "test") as b:
             b.set_grouping(ids[:2], "frame-before")

