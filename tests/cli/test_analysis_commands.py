@@ -56,6 +56,26 @@ def test_import_maps_groups_auto_labels_and_keeps_maps(tmp_path, image_dir, maps
         assert p.counts()["people"] == sum(len(t) for t in truth.values())
 
 
+def test_import_maps_groups_with_the_frame_before_unless_told_each_frame_alone(
+        tmp_path, image_dir, maps_dir):
+    """The six synthetic frames are one sequence (one image folder): by default each is
+    grouped with the frame before and records so; --each-frame-alone groups and records each
+    alone; the two flags together are refused (our own rule)."""
+    folder, _ = maps_dir
+    recorded = {}
+    for flags in ((), ("--each-frame-alone",)):
+        proj = tmp_path / f"p{len(flags)}"
+        assert main(["new", str(proj), "--images", str(image_dir), "-q"]) == 0
+        assert main(["import-maps", str(proj), str(folder), "-q", *flags]) == 0
+        with Project.open(proj, read_only=True) as p:
+            recorded[flags] = {f.grouping for f in p.frames()}
+    assert recorded[()] == {"frame-before"}
+    assert recorded[("--each-frame-alone",)] == {"alone"}
+    with pytest.raises(SystemExit):
+        main(["import-maps", str(tmp_path / "p0"), str(folder), "--frame-before",
+              "--each-frame-alone"])
+
+
 def test_triage_ranks_and_stores_reasons(tmp_path, image_dir, maps_dir, capsys):
     folder, _ = maps_dir
     proj = tmp_path / "p"
