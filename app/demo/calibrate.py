@@ -47,7 +47,7 @@ from app.analysis.triage.findings import frame_findings, placed_by_people
 from app.analysis.triage.fixes import KINDS, FrameView, propose
 from app.analysis.triage.frame import triage_frame
 from app.analysis.triage.model_evidence import FieldMemo
-from app.demo.evaluate import JointTally, judge_joints
+from app.demo.evaluate import JointTally, add_grouping_flags, judge_joints, use_grouping
 from app.errors import EditRefused
 from app.fileio import read_json
 from app.model.edits import Edit, EditGroup, SetVisibility, needs_person_id, with_person_id
@@ -406,15 +406,10 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser.add_argument("--calibrate-frames", metavar="N", type=int, default=None,
                         help="frames of each demo generated to fit on (default: the usual 24)")
     parser.add_argument("--json", metavar="FILE", help="write every figure to FILE")
-    parser.add_argument("--frame-before", action="store_true",
-                        help="demos grouped with the frame before (import-maps "
-                             "--frame-before); give a cache of its own")
+    add_grouping_flags(parser)
     args = parser.parse_args(argv)
     logging.basicConfig(level=logging.WARNING)
-    if args.frame_before:
-        import app.jobs_analysis
-
-        app.jobs_analysis.FRAME_BEFORE = True
+    use_grouping(args)
     calibration = SHIPPED
     report: dict[str, Any] = {}
     if args.calibrate:

@@ -66,7 +66,7 @@ from scipy.optimize import linear_sum_assignment
 from app.analysis.carry import CarriedBatch, by_person, carry_changes
 from app.analysis.similarity import oks_matrix
 from app.analysis.tracks import link_tracks
-from app.demo.evaluate import KS_CORRECT, judge_joints
+from app.demo.evaluate import KS_CORRECT, add_grouping_flags, judge_joints, use_grouping
 from app.model.edits import (
     Change,
     DeletePerson,
@@ -574,9 +574,7 @@ def main(argv: Sequence[str] | None = None) -> int:
                         help="carry per person only, without the whole frame's batch after")
     parser.add_argument("--persistence", action="store_true",
                         help="instead, how long the auto-labels' wrong joints last")
-    parser.add_argument("--frame-before", action="store_true",
-                        help="demos grouped with the frame before (import-maps "
-                             "--frame-before); give a cache of its own")
+    add_grouping_flags(parser)
     parser.add_argument("--step-over", metavar="N", type=int, default=None,
                         help="carry across up to N frames where the error is absent and "
                              "back after (app.analysis.carry.GAP; default 0)")
@@ -587,10 +585,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         import app.analysis.carry
 
         app.analysis.carry.GAP = args.step_over
-    if args.frame_before:
-        import app.jobs_analysis
-
-        app.jobs_analysis.FRAME_BEFORE = True
+    use_grouping(args)
     targets: list[tuple[str, int | None]] = [(f"seed {s}", s) for s in _seeds(args.seeds)]
     if args.shipped:
         targets.insert(0, ("shipped (seed 1966)", None))

@@ -371,3 +371,26 @@ def linking_accuracy(sequence: DemoSequence, sigmas: Any, pair_at: float = 0.5,
             known[i] = dancers[j]
         who.append(known)
     return (link_accuracy(truth_ids, sequence.dancers), link_accuracy(auto_ids, who))
+
+
+def add_grouping_flags(parser: Any) -> None:
+    """The demo tools' ``--frame-before`` and ``--each-frame-alone`` (one or neither): how the
+    demos a tool builds group their auto-labels, as ``import-maps`` takes them."""
+    group = parser.add_mutually_exclusive_group()
+    group.add_argument("--frame-before", action="store_true",
+                       help="demos grouped with the frame before (import-maps' default); "
+                            "give a cache of its own")
+    group.add_argument("--each-frame-alone", action="store_true",
+                       help="demos grouped each frame alone (import-maps "
+                            "--each-frame-alone); give a cache of its own")
+
+
+def use_grouping(args: Any) -> bool:
+    """Set :data:`app.jobs_analysis.FRAME_BEFORE` for this process from the flags of
+    :func:`add_grouping_flags` (unchanged without either) and return it: the demos built,
+    and those of an older cache that recorded no grouping, count as grouped that way."""
+    import app.jobs_analysis
+
+    if args.frame_before or args.each_frame_alone:
+        app.jobs_analysis.FRAME_BEFORE = bool(args.frame_before)
+    return app.jobs_analysis.FRAME_BEFORE

@@ -43,7 +43,7 @@ from scipy.optimize import minimize
 
 from app.analysis.triage.combine import FLAG_AT, PRIOR, WEIGHTS, weight_set
 from app.demo.calibrate import DemoFrame, _view, demo_folder, demo_frames, parse_demos
-from app.demo.evaluate import wrong_people
+from app.demo.evaluate import add_grouping_flags, use_grouping, wrong_people
 from app.demo.trial_signs import TRIAL_SIGNS
 from app.model.labels import GROUPED_ALONE, GROUPED_FRAME_BEFORE
 
@@ -210,18 +210,13 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser.add_argument("--fit-frames", metavar="N", type=int, default=12,
                         help="frames of each demo generated to fit on (default 12; demos to "
                              "measure on have the usual 24)")
-    parser.add_argument("--frame-before", action="store_true",
-                        help="demos grouped with the frame before (import-maps "
-                             "--frame-before); give a cache of its own")
+    add_grouping_flags(parser)
     parser.add_argument("--trial-signs", metavar="NAMES", default="",
                         help="signs triage does not have yet, fitted and measured as extra "
                              f"kinds: any of {', '.join(TRIAL_SIGNS) or '(none at present)'}, "
                              "separated by commas")
     args = parser.parse_args(argv)
-    if args.frame_before:
-        import app.jobs_analysis
-
-        app.jobs_analysis.FRAME_BEFORE = True
+    frame_before = use_grouping(args)
     trial = [name for name in args.trial_signs.split(",") if name]
     unknown = [name for name in trial if name not in TRIAL_SIGNS]
     if unknown:
@@ -229,13 +224,13 @@ def main(argv: Sequence[str] | None = None) -> int:
                      f"{', '.join(TRIAL_SIGNS) or 'none at present'})")
     # The weights of the grouping measured (its own set with --frame-before: no need to
     # put them in WEIGHTS to measure them), and the start of a fit.
-    shipped = weight_set(GROUPED_FRAME_BEFORE if args.frame_before else GROUPED_ALONE)
+    shipped = weight_set(GROUPED_FRAME_BEFORE if frame_before else GROUPED_ALONE)
     prior, weights, flag_at = shipped.prior, dict(shipped.weights), shipped.flag_at
     if args.fit:
         fitted = _judged(args.cache, parse_demos(args.fit), args.fit_frames, trial)
         pooled = sum(list(fitted.values())[1:], next(iter(fitted.values())))
         prior, weights = fit_weights(pooled)
-        name = "FRAME_BEFORE_" if args.frame_before else ""
+        name = "FRAME_BEFORE_" if frame_before else ""
         print(f"{name}PRIOR = {prior}")
         print(f"{name}WEIGHTS = {{")
         for k in pooled.kinds:
