@@ -373,23 +373,26 @@ def cmd_import_maps(args: argparse.Namespace) -> int:
 
 def _frame_before(args: argparse.Namespace) -> bool:
     """Whether import-maps groups each sequence with the frame before: the default
-    (:data:`app.jobs_analysis.FRAME_BEFORE`) unless a flag says otherwise."""
+    (:data:`app.jobs_analysis.FRAME_BEFORE`; before the job is imported, its value as
+    shipped, :data:`app.map_runs.FRAME_BEFORE`, which imports far less) unless a flag says
+    otherwise."""
     if args.frame_before or args.each_frame_alone:
         return bool(args.frame_before)
-    from app.jobs_analysis import FRAME_BEFORE
+    job = sys.modules.get("app.jobs_analysis")
+    if job is not None:
+        return bool(job.FRAME_BEFORE)
+    from app.map_runs import FRAME_BEFORE
 
     return FRAME_BEFORE
 
 
 def _first_maps(args: argparse.Namespace, workers: int) -> None:
-    """Hand the workers the first frames to group before the project is open
+    """Hand the workers the first items to group before the project is open
     (:func:`app.parallel.early_pool`), when a folder project tells them
-    (:func:`app.store.peek.map_frames_hint`, :func:`app.map_runs.first_items`) and each frame
-    is grouped alone (``--each-frame-alone``, or ``FRAME_BEFORE`` off and no
-    ``--frame-before``): grouped with the frame before, a frame waits for the one before it.
-    The job checks them against its own and computes again any that differ."""
-    if _frame_before(args):
-        return
+    (:func:`app.store.peek.map_frames_hint`, :func:`app.map_runs.first_items`): frames
+    grouped alone, or, grouped with the frame before (the default), the first runs of
+    consecutive frames, which are independent of each other. The job checks them against its
+    own and computes again any that differ."""
     from app.store.peek import map_frames_hint
 
     hint = map_frames_hint(args.project)
@@ -397,7 +400,7 @@ def _first_maps(args: argparse.Namespace, workers: int) -> None:
         return
     from app.map_runs import first_items, group_runs
 
-    items = first_items(*hint, args.dir)
+    items = first_items(*hint, args.dir, frame_before=_frame_before(args))
     if items:
         early_pool(group_runs, items, workers)
 

@@ -28,8 +28,9 @@ from app.errors import BadInput, NotFound
 from app.fileio import read_json
 from app.formats.maps import NetworkMaps, match_map_files, read_maps, read_npz
 from app.jobs import EXPORT_STATES, choose_frames
-from app.map_runs import Found, found_person, group_runs, map_items
-from app.map_runs import pack_runs as _packed
+from app.map_runs import FRAME_BEFORE as _IN_ORDER
+from app.map_runs import GROUPING_RUN as _RUN
+from app.map_runs import Found, found_person, group_runs, grouping_runs, map_items, packed_runs
 from app.model.labels import (
     AUTO,
     GROUPED_ALONE,
@@ -54,8 +55,10 @@ TARGETS_VERSION = 1
 
 #: Frames of one sequence grouped in order, each with the frame before as a prior, go to
 #: the workers in runs of at most this many consecutive frames; the first frame of a run is
-#: grouped without one. Fixed, so the auto-labels are the same whatever the number of workers.
-GROUPING_RUN = 16
+#: grouped without one. Fixed, so the auto-labels are the same whatever the number of workers
+#: (:data:`app.map_runs.GROUPING_RUN`, which the command's first items before the project is
+#: open follow).
+GROUPING_RUN = _RUN
 
 #: Whether :func:`import_maps` groups the frames of a sequence with the frame before by
 #: default (``import-maps --each-frame-alone`` asks for each frame alone, ``--frame-before``
@@ -66,7 +69,7 @@ GROUPING_RUN = 16
 #: set of :mod:`app.analysis.triage.combine`), which keep issue 3's goals on the shipped
 #: demo but flag a few more of the dance's wrong people late on fresh seeds (README
 #: "Sequences", DEVELOPERS.md "The demo").
-FRAME_BEFORE = True
+FRAME_BEFORE = _IN_ORDER  # kept in app.map_runs, which import-maps reads before the project
 
 
 def import_maps(project: Project, folder: str | Path,
@@ -117,7 +120,7 @@ def import_maps(project: Project, folder: str | Path,
     kept = project.people_of_frames(has_people & files.keys()) if in_order else {}
     # Plain numbers and arrays, so that the workers need not import the model (app.map_runs).
     k = project.skeleton.num_joints
-    packs = _packed(runs)
+    packs = packed_runs(runs)  # the longest runs first: the results are kept by frame
     items = map_items(k, project.skeleton.limbs, packs, files, {
         f: (frames[f].width, frames[f].height) for f in files},
         {f: [p.keypoints for p in kept.get(f, [])] for f in has_people & files.keys()})
@@ -148,29 +151,14 @@ def import_maps(project: Project, folder: str | Path,
 def _grouping_runs(sequences: Sequence[Sequence[int]], files: dict[int, Any],
                    length: int | None = None) -> list[list[int]]:
     """The frames with maps (``files``) cut into runs grouped in order (see
-    :func:`import_maps`): consecutive frames of one sequence, at most ``length``, then every
-    other frame alone, by id.
+    :func:`import_maps`): consecutive frames of one sequence, at most ``length`` (default
+    :data:`GROUPING_RUN`), then every other frame alone, by id
+    (:func:`app.map_runs.grouping_runs`).
 
     >>> _grouping_runs([(5, 1, 2, 3, 4)], dict.fromkeys([1, 2, 4, 5, 9]), length=2)
     [[5, 1], [2], [4], [9]]
     """
-    length = GROUPING_RUN if length is None else length
-    runs: list[list[int]] = []
-    placed: set[int] = set()
-    for frame_ids in sequences:
-        run: list[int] = []
-        for f in frame_ids:
-            if f not in files or len(run) == length:
-                if run:
-                    runs.append(run)
-                run = []
-            if f in files:
-                run.append(f)
-                placed.add(f)
-        if run:
-            runs.append(run)
-    runs.extend([f] for f in sorted(files) if f not in placed)
-    return runs
+    return grouping_runs(sequences, files, GROUPING_RUN if length is None else length)
 
 
 def _people_found(found: Found | None) -> Iterator[tuple[np.ndarray, np.ndarray, float]]:

@@ -22,8 +22,20 @@ from app.analysis.association import group_people
 from app.errors import BadInput
 from app.formats.maps import match_map_files, read_map_arrays
 
-__all__ = ["PACK_FRAMES", "Found", "Runs", "first_items", "found_person", "group_runs",
-           "map_items", "pack_runs"]
+__all__ = ["FRAME_BEFORE", "GROUPING_RUN", "PACK_FRAMES", "Found", "Runs", "first_items",
+           "found_person", "group_runs", "grouping_runs", "map_items", "pack_runs", "packed_runs"]
+
+#: Frames of one sequence grouped in order, each with the frame before as a prior, go to
+#: the workers in runs of at most this many consecutive frames; the first frame of a run is
+#: grouped without one. Fixed, so the auto-labels are the same whatever the number of workers
+#: (:data:`app.jobs_analysis.GROUPING_RUN` is this value; triage's frame-before weights were
+#: fitted on these runs).
+GROUPING_RUN = 16
+
+#: Whether ``import-maps`` groups the frames of a sequence with the frame before by default:
+#: the value of :data:`app.jobs_analysis.FRAME_BEFORE` (documented there), kept here so that
+#: the command can tell its first items before it imports the job (:func:`first_items`).
+FRAME_BEFORE = True
 
 #: Frames of maps at most in one item handed to the workers, in runs grouped alone or in
 #: order (see :func:`pack_runs`); fixed, so the results are the same whatever the workers.
@@ -112,37 +124,97 @@ def map_items(joints: int, limbs: Iterable[Sequence[int]], packs: list[list[list
             for pack in packs]
 
 
-def first_items(skeleton: dict[str, Any], frames: Sequence[tuple[int, str, int, int, str]],
-                with_people: set[int], folder: str | Path,
-                count: int | None = None) -> list[Runs]:
+def first_items(skeleton: dict[str, Any],
+                frames: Sequence[tuple[int, str, int, int, str, str, int | None]],
+                with_people: set[int], not_sequences: str | None, folder: str | Path,
+                frame_before: bool = False, count: int | None = None) -> list[Runs]:
     """The first ``count`` (default :data:`FIRST_ITEMS`) items that
-    :func:`app.jobs_analysis.import_maps` hands its workers when each frame is grouped alone,
-    told from :func:`app.store.peek.map_frames_hint` (the stored skeleton, the frames, those
-    with people) before the project is open; none when anything does not fit, since the job
-    tells its own items anyway and computes again any that differ
-    (:func:`app.parallel.early_pool`)."""
+    :func:`app.jobs_analysis.import_maps` hands its workers, grouping each frame alone or,
+    with ``frame_before``, each sequence in runs of :data:`GROUPING_RUN` frames
+    (:func:`grouping_runs`), told from :func:`app.store.peek.map_frames_hint` (the stored
+    skeleton, the frames, those with people, the folders marked not a sequence) before the
+    project is open; none when anything does not fit, since the job tells its own items
+    anyway and computes again any that differ (:func:`app.parallel.early_pool`). With
+    ``frame_before`` they stop before the first item holding a frame that has people: such a
+    frame is the frame before of the next one, and its people are not in the hint."""
     try:
         names = [str(j["name"]) for j in skeleton["joints"]]
         index = {n: i for i, n in enumerate(names)}
         limbs = [tuple(end if isinstance(end, int) else index[end] for end in limb)
                  for limb in skeleton["limbs"]]
-        files = match_map_files(folder, [_Named(f[0], f[1]) for f in frames])  # type: ignore[misc]
+        files = match_map_files(folder, [_Named(f) for f in frames])  # type: ignore[misc]
+        if frame_before:
+            from app.model.sequences import parse_not_sequences, sequences
+
+            marked = parse_not_sequences(not_sequences)
+            runs = grouping_runs([s.frame_ids for s in sequences(
+                [_Named(f) for f in frames], marked)], files)  # type: ignore[misc]
+        else:
+            runs = [[f] for f in sorted(files)]
     except (BadInput, KeyError, TypeError, ValueError, OSError):
         return []
     rows = {f[0]: f for f in frames}
     if any(rows[f][4] != "ok" for f in files):
         return []  # the job stops on it
-    packs = pack_runs([[f] for f in sorted(files)])[:FIRST_ITEMS if count is None else count]
+    packs = packed_runs(runs)[:FIRST_ITEMS if count is None else count]
+    if frame_before:
+        kept = next((n for n, pack in enumerate(packs)
+                     if any(f in with_people for run in pack for f in run)), len(packs))
+        packs = packs[:kept]
     return map_items(len(names), limbs, packs, files, {f: (rows[f][2], rows[f][3]) for f in files},
                      {f: [] for f in with_people})
 
 
 class _Named:
-    """A frame's id and file name, all :func:`match_map_files` reads of a frame."""
+    """A frame as :func:`match_map_files` and :func:`app.model.sequences.sequences` read it:
+    its id, file name, path and index in its video, from a row of
+    :func:`app.store.peek.map_frames_hint`."""
 
-    def __init__(self, id: int, file_name: str):
-        self.id = id
-        self.file_name = file_name
+    def __init__(self, row: tuple[int, str, int, int, str, str, int | None]):
+        self.id = row[0]
+        self.file_name = row[1]
+        self.path = row[5]
+        self.video_index = row[6]
+
+
+def grouping_runs(sequences: Sequence[Sequence[int]], files: Mapping[int, Any],
+                  length: int | None = None) -> list[list[int]]:
+    """The frames with maps (``files``) cut into runs grouped in order (see
+    :func:`app.jobs_analysis.import_maps`): consecutive frames of one sequence, at most
+    ``length`` (default :data:`GROUPING_RUN`), then every other frame alone, by id.
+
+    >>> grouping_runs([(5, 1, 2, 3, 4)], dict.fromkeys([1, 2, 4, 5, 9]), length=2)
+    [[5, 1], [2], [4], [9]]
+    """
+    length = GROUPING_RUN if length is None else length
+    runs: list[list[int]] = []
+    placed: set[int] = set()
+    for frame_ids in sequences:
+        run: list[int] = []
+        for f in frame_ids:
+            if f not in files or len(run) == length:
+                if run:
+                    runs.append(run)
+                run = []
+            if f in files:
+                run.append(f)
+                placed.add(f)
+        if run:
+            runs.append(run)
+    runs.extend([f] for f in sorted(files) if f not in placed)
+    return runs
+
+
+def packed_runs(runs: list[list[int]]) -> list[list[list[int]]]:
+    """The items :func:`app.jobs_analysis.import_maps` hands the workers for ``runs``, by
+    :func:`pack_runs`, the longest runs first (in their order among equals): the results are
+    kept by frame, so the order changes no auto-label, and the items that end the job are
+    the shortest, so that the process that finishes first waits the least for the other.
+
+    >>> packed_runs([[1], [2, 3], [4, 5, 6], [7]])
+    [[[4, 5, 6]], [[2, 3]], [[1]], [[7]]]
+    """
+    return pack_runs(sorted(runs, key=len, reverse=True))
 
 
 def pack_runs(runs: list[list[int]], frames: int | None = None,

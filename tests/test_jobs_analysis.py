@@ -332,7 +332,8 @@ def test_triage_weighs_each_frame_by_its_recorded_grouping(tmp_path, image_dir, 
 def test_packing_frames_into_the_workers_items_changes_no_person(
         tmp_path, image_dir, maps_dir, monkeypatch):  # noqa: F811
     """However import-maps packs runs of frames into the items it hands the workers (here
-    each run an item, or all three runs of two frames in one), every frame gets the same
+    each run an item, all three runs of two frames in one, or each run an item in the
+    reverse order, as the longest runs go first), every frame gets the same
     people with the same ids: each run is still grouped in order from its own first frame.
     Packing is fixed whatever the workers (tests/test_parallel.py compares 1 and 2). (Our
     own rule; the synthetic frames of tests/cli/test_analysis_commands.py.)"""
@@ -342,11 +343,12 @@ def test_packing_frames_into_the_workers_items_changes_no_person(
     folder, _ = maps_dir
     monkeypatch.setattr(jobs_analysis, "GROUPING_RUN", 2)
     stored = []
-    for n, packed in enumerate([jobs_analysis._packed, lambda runs: [runs]]):
-        monkeypatch.setattr(jobs_analysis, "_packed", packed)
+    for n, packed in enumerate([jobs_analysis.packed_runs, lambda runs: [runs],
+                                lambda runs: [[run] for run in reversed(runs)]]):
+        monkeypatch.setattr(jobs_analysis, "packed_runs", packed)
         with new_project(tmp_path / f"p{n}", images=image_dir, author="ana") as p:
             import_maps(p, folder, frame_before=True)
             stored.append({f: [(q.id, q.keypoints.tobytes(), q.scores.tobytes(), q.score)
                                for q in people] for f, people in p.people_by_frame().items()})
     assert sum(len(v) for v in stored[0].values()) >= 12
-    assert stored[0] == stored[1]
+    assert stored[0] == stored[1] == stored[2]

@@ -403,17 +403,21 @@ def test_items_handed_to_a_pool_before_the_job_are_taken_if_equal(free_pool, mon
     assert parallel._early is None
 
 
+@pytest.mark.parametrize("grouping", ["--each-frame-alone", "--frame-before"])
 def test_import_maps_with_frames_handed_early_stores_what_one_worker_does(
-        tmp_path, image_dir, maps_dir, free_pool, monkeypatch):  # noqa: F811
-    """Grouping each frame alone, the command hands its pool the first frames (read with
-    sqlite3 alone, before it opens the project) and the job takes those results: the people
-    stored are those of one worker. (Grouped with the frame before, the default, a frame
-    waits for the one before it, so nothing is handed early.)"""
-    from app import cli, map_runs, parallel
+        tmp_path, image_dir, maps_dir, free_pool, monkeypatch, grouping):  # noqa: F811
+    """The command hands its pool the first items (read with sqlite3 alone, before it opens
+    the project) and the job takes those results: the people stored are those of one worker.
+    Grouped each frame alone, an item is a frame; grouped with the frame before (the default),
+    a run of consecutive frames of the sequence, here runs of two (runs are independent of
+    each other). (Our own rule; the synthetic frames of tests/cli/test_analysis_commands.py.)"""
+    from app import cli, jobs_analysis, map_runs, parallel
 
     folder, _ = maps_dir
     monkeypatch.setattr(cli, "head_start", lambda job, items, workers: workers > 1)
     monkeypatch.setattr(map_runs, "FIRST_ITEMS", 3)
+    monkeypatch.setattr(map_runs, "GROUPING_RUN", 2)
+    monkeypatch.setattr(jobs_analysis, "GROUPING_RUN", 2)
     taken = []
     take = parallel._take_early
     monkeypatch.setattr(parallel, "_take_early", lambda *a: taken.append(take(*a)) or taken[-1])
@@ -422,8 +426,54 @@ def test_import_maps_with_frames_handed_early_stores_what_one_worker_does(
         proj = tmp_path / f"p{workers}"
         assert main(["new", str(proj), "--images", str(image_dir), "-q"]) == 0
         assert main(["import-maps", str(proj), str(folder), "-q", "--workers", workers,
-                     "--each-frame-alone"]) == 0
+                     grouping]) == 0
         snapshots.append(_snapshot(proj)[0])
-    assert len(taken) == 1 and len(taken[0][1]) == 3  # the three early frames were taken
+    assert len(taken) == 1 and len(taken[0][1]) == 3  # the three early items were taken
+    frames = [[f for run in item[2] for f, *_ in run] for _, _, item in taken[0][1]]
+    assert [len(f) for f in frames] == ([1, 1, 1] if grouping == "--each-frame-alone"
+                                        else [2, 2, 2])
     assert sum(len(v) for v in snapshots[0].values()) >= 12
     assert snapshots[0] == snapshots[1]
+
+
+def test_the_first_runs_told_before_the_project_opens_are_the_jobs(
+        tmp_path, image_dir, maps_dir, monkeypatch):  # noqa: F811
+    """Grouped with the frame before, the items told from the hint
+    (app.store.peek.map_frames_hint) are the job's first items, in the sequence's order
+    (natural file-name order, app/model/sequences.py), and stop before the first item that
+    holds a frame with people (its people are the next frame's frame before, not in the
+    hint); a folder marked not a sequence makes each frame a run of its own. (Our own rule;
+    the synthetic frames of tests/cli/test_analysis_commands.py.)"""
+    from app import jobs_analysis, map_runs
+    from app.jobs_analysis import import_maps
+    from app.model.labels import AUTO, Person
+    from app.model.sequences import NOT_SEQUENCES
+    from app.store.peek import map_frames_hint
+
+    folder, _ = maps_dir
+    monkeypatch.setattr(map_runs, "GROUPING_RUN", 2)
+    monkeypatch.setattr(jobs_analysis, "GROUPING_RUN", 2)
+    handed = []
+    monkeypatch.setattr(jobs_analysis, "ordered_map",
+                        lambda fn, items, *a, **k: handed.append(list(items)) or map(fn, items))
+    proj = tmp_path / "p"
+    assert main(["new", str(proj), "--images", str(image_dir), "-q"]) == 0
+    told = map_runs.first_items(*map_frames_hint(proj), folder, frame_before=True)
+    with Project.open(proj, author="ana") as p:
+        import_maps(p, folder, frame_before=True)
+        assert told == handed[0] and len(told) == 3
+    proj = tmp_path / "q"
+    assert main(["new", str(proj), "--images", str(image_dir), "-q"]) == 0
+    with Project.open(proj, author="ana") as p:
+        frames = [f.id for f in p.frames()]
+        k = p.skeleton.num_joints
+        with p.bulk("Test", "a person", "test") as b:
+            b.add_people([(frames[3], Person(b.allocate_person_ids(1), np.zeros((k, 3)),
+                                             np.full(k, np.nan), (AUTO,) * k, 0.5))])
+    told = map_runs.first_items(*map_frames_hint(proj), folder, frame_before=True)
+    assert [[f for run in item[2] for f, *_ in run] for item in told] == [
+        [str(folder / n) for n in sorted(os.listdir(folder))[:2]]]
+    with Project.open(proj, author="ana") as p:
+        p.set_meta(NOT_SEQUENCES, '[""]')
+    told = map_runs.first_items(*map_frames_hint(proj), folder, frame_before=True)
+    assert [[len(run) for run in item[2]] for item in told] == [[1], [1], [1]]  # runs of one

@@ -38,27 +38,37 @@ def frame_count_hint(place: str | Path) -> int | None:
     return int(row[0]) if row and isinstance(row[0], int) else None
 
 
-#: A frame as :func:`map_frames_hint` reads it: id, file name, width, height, status.
-FrameRow = tuple[int, str, int, int, str]
+#: A frame as :func:`map_frames_hint` reads it: id, file name, width, height, status, path and
+#: index in its video (None for an image): what a frame's sequence and place in it need
+#: (:mod:`app.model.sequences`).
+FrameRow = tuple[int, str, int, int, str, str, "int | None"]
 
 
 def map_frames_hint(place: str | Path
-                    ) -> tuple[dict[str, Any], list[FrameRow], set[int]] | None:
+                    ) -> tuple[dict[str, Any], list[FrameRow], set[int], str | None] | None:
     """What ``import-maps`` needs to tell its first items before it opens the folder project
     at ``place`` (:func:`app.parallel.early_pool`), read-only: the skeleton as stored (the
-    shape of :meth:`app.model.skeleton.Skeleton.to_dict`), every frame by id, and the ids of
-    the frames that have people; None as for :func:`frame_count_hint`. A guess only: the job
-    checks its items against the project it opens."""
+    shape of :meth:`app.model.skeleton.Skeleton.to_dict`), every frame by id, the ids of
+    the frames that have people, and the folders marked not a sequence as stored (the
+    setting :data:`app.model.sequences.NOT_SEQUENCES`; None when unset); None as for
+    :func:`frame_count_hint`. A guess only: the job checks its items against the project it
+    opens."""
     try:
         with _reading(place) as con:
             row = con.execute("SELECT value FROM meta WHERE key = 'skeleton'").fetchone()
-            frames = [(int(r[0]), str(r[1]), int(r[2]), int(r[3]), str(r[4])) for r in con.execute(
-                "SELECT id, file_name, width, height, status FROM frames ORDER BY id")]
+            frames: list[FrameRow] = [
+                (int(r[0]), str(r[1]), int(r[2]), int(r[3]), str(r[4]), str(r[5]),
+                 None if r[6] is None else int(r[6])) for r in con.execute(
+                    "SELECT id, file_name, width, height, status, path, video_index FROM frames "
+                    "ORDER BY id")]
             people = {int(r[0]) for r in con.execute("SELECT DISTINCT frame_id FROM people")}
+            marked = con.execute("SELECT value FROM meta WHERE key = 'not_sequences'").fetchone()
         skeleton = json.loads(row[0]) if row else None
     except (sqlite3.Error, OSError, ValueError, TypeError):
         return None
-    return (skeleton, frames, people) if isinstance(skeleton, dict) else None
+    if not isinstance(skeleton, dict):
+        return None
+    return skeleton, frames, people, None if marked is None else str(marked[0])
 
 
 @contextlib.contextmanager

@@ -25,20 +25,24 @@ def test_the_hint_is_the_projects_frame_count(project):
 @pytest.mark.folder_only
 def test_the_maps_hint_is_what_the_store_reads(project):
     """import-maps' hint (read with sqlite3 alone, while the project is open): the skeleton as
-    the store keeps it, every frame's id, file name, size and status, and the frames with
-    people, as the store reads them."""
+    the store keeps it, every frame's id, file name, size, status, path and video index, the
+    frames with people, and the folders marked not a sequence, as the store reads them."""
     from app.model.labels import AUTO, Person
+    from app.model.sequences import NOT_SEQUENCES
 
     frame = project.frames()[2]
     k = project.skeleton.num_joints
     with project.bulk("Test", "a person", "test") as b:
         b.add_people([(frame.id, Person(b.allocate_person_ids(1), np.zeros((k, 3)),
                                         np.full(k, np.nan), (AUTO,) * k, 0.5))])
-    skeleton, frames, people = peek.map_frames_hint(place(project))
+    skeleton, frames, people, marked = peek.map_frames_hint(place(project))
     assert skeleton == project.skeleton.to_dict()
-    assert frames == [(f.id, f.file_name, f.width, f.height, f.status)
+    assert frames == [(f.id, f.file_name, f.width, f.height, f.status, f.path, f.video_index)
                       for f in project.frames()]
     assert people == project.frames_with_people() == {frame.id}
+    assert marked is None
+    project.set_meta(NOT_SEQUENCES, '["a"]')
+    assert peek.map_frames_hint(place(project))[3] == project.meta(NOT_SEQUENCES) == '["a"]'
 
 
 def test_no_project_no_hint(tmp_path):
