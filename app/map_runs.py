@@ -41,11 +41,13 @@ FRAME_BEFORE = True
 #: order (see :func:`pack_runs`); fixed, so the results are the same whatever the workers.
 PACK_FRAMES = 4
 
-#: How many items :func:`first_items` gives at most (the first two a frame each, then up to
-#: :data:`PACK_FRAMES`): the pool computes them a few at a time until the job takes it, which
-#: the command reaches 0.3-0.5 s after its start on a quiet machine and 1.5 s at load 5
-#: (3 December 2026), so 40-130 frames in; far more than that, to keep the pool busy however
-#: long opening the project takes (the items are a few numbers and a file name each).
+#: How many items :func:`first_items` gives at most (grouped alone, the first two a frame
+#: each, then up to :data:`PACK_FRAMES`; grouped with the frame before, a run of up to
+#: :data:`GROUPING_RUN` frames each): the pool computes them a few at a time until the job
+#: takes it, which the command reaches 0.3-0.5 s after its start on a quiet machine and
+#: 1.5 s at load 5 (3 December 2026), so 40-130 frames in; far more than that, to keep the
+#: pool busy however long opening the project takes (the items are a few numbers and a file
+#: name each).
 FIRST_ITEMS = 1000
 
 #: Runs of frames to group, each in order: the skeleton's number of joints, its limbs as
