@@ -415,6 +415,29 @@ def _take_back(pending: deque[tuple[Future[R], bool, T]], fn: Callable[[T], R]) 
     return False
 
 
+def _take_over(pending: deque[tuple[Future[R], bool, T]], fn: Callable[[T], R],
+               processes: int) -> bool:
+    """Compute here the last item of ``pending`` still on the pool while it holds more
+    unfinished items than its ``processes`` can run at once (so that item has not started);
+    whether there was one.
+
+    Run when no items are left to take and none the pool holds can be cancelled: a
+    :class:`~concurrent.futures.ProcessPoolExecutor` moves each process's next item or two
+    to its processes' queue, where they can no longer be cancelled, so with items of a
+    quarter of a second (runs of frames grouped with the frame before) this process would
+    otherwise wait up to two items while the pool works through them. The pool still
+    computes it later, and its result is thrown away; the item's place in the order is
+    kept, and the result is the same function of the same item, so the output is too.
+    """
+    unfinished = [n for n, (future, remote, _) in enumerate(pending)
+                  if remote and not future.done()]
+    if len(unfinished) <= processes:
+        return False
+    n = unfinished[-1]
+    pending[n] = (_here(fn, pending[n][2]), False, pending[n][2])
+    return True
+
+
 class _Pool:
     """A process pool started on a thread of its own, so the caller keeps working meanwhile.
 
@@ -464,18 +487,19 @@ class _Pool:
         elif self.error is None and self._then is not None:
             self._then(self)
 
-    def close(self) -> None:
-        """Stop the workers (items not started are dropped, running ones end); a pool still
-        starting is stopped by its own thread once up, so this never waits for a start."""
+    def close(self, wait: bool = True) -> None:
+        """Stop the workers (items not started are dropped, running ones end; without
+        ``wait``, this returns before they have); a pool still starting is stopped by its
+        own thread once up, so this never waits for a start."""
         with self._lock:
             if not self.up.is_set():
                 self._dropped = True
                 return
-        self._shutdown()
+        self._shutdown(wait)
 
-    def _shutdown(self) -> None:
+    def _shutdown(self, wait: bool = True) -> None:
         if self.executor is not None:
-            self.executor.shutdown(wait=True, cancel_futures=True)
+            self.executor.shutdown(wait=wait, cancel_futures=True)
 
 
 #: Whether the caller works while the pool starts; tests turn it off so that the pool is up
@@ -695,6 +719,7 @@ def _shared(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: int,
     # works through its queue, twice over, and a few more.
     ahead = _HERE_AHEAD * workers + 2 * _POOL_AHEAD * (workers - 1)
     exhausted = False
+    overtaken = False  # whether items the pool holds were computed here in their place
     try:
         while True:
             if pool.up.is_set() and pool.error is None and pool.executor is not None:
@@ -730,8 +755,10 @@ def _shared(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: int,
                     continue
                 pending.append((_here(fn, item), False, item))
                 continue
-            if exhausted and on_pool and _take_back(pending, fn):
+            if exhausted and on_pool and (_take_back(pending, fn)
+                                          or _take_over(pending, fn, pool.workers)):
                 on_pool -= 1
+                overtaken = True
                 if progress.cancelled:
                     progress.step(done, total, label)  # raises Cancelled
                 continue
@@ -741,4 +768,6 @@ def _shared(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: int,
             if progress.cancelled:
                 progress.step(done, total, label)  # raises Cancelled
     finally:
-        pool.close()
+        # An item taken over may still run on the pool: its result is not needed, so the job
+        # does not wait for it (the pool's processes end once it is done).
+        pool.close(wait=not overtaken)

@@ -151,11 +151,12 @@ def test_a_long_job_moves_to_the_workers_after_the_first_items(free_pool, monkey
     """When a pool pays, the first items (timed here) run in this process and the rest are
     shared between it and the pool's one process (two workers: this one and one more), the
     pool's first four before any run here, still in order. (Instant items: this process
-    would take back at the end those the pool has not started, which the next test checks,
-    so here it does not.)"""
+    would take back or over at the end those the pool has not started, which other tests
+    check, so here it does not.)"""
     from app import parallel
 
     monkeypatch.setattr(parallel, "_take_back", lambda pending, fn: False)
+    monkeypatch.setattr(parallel, "_take_over", lambda pending, fn, processes: False)
     shared = []
     pids = list(ordered_map(_pid, range(20), workers=2, sharing=lambda: shared.append(1)))
     assert pids[:2] == [os.getpid()] * 2
@@ -477,3 +478,26 @@ def test_the_first_runs_told_before_the_project_opens_are_the_jobs(
         p.set_meta(NOT_SEQUENCES, '[""]')
     told = map_runs.first_items(*map_frames_hint(proj), folder, frame_before=True)
     assert [[len(run) for run in item[2]] for item in told] == [[1], [1], [1]]  # runs of one
+
+
+def test_at_the_end_this_process_takes_over_the_items_the_pool_has_not_started():
+    """Once no item is left, this process computes the last item the pool holds while the
+    pool holds more unfinished items than it has processes (that one has not started: the
+    pool runs them in order), keeping its place in the order; never one the pool may be
+    running. (Our own rule; futures of concurrent.futures stand in for the pool's.)"""
+    from collections import deque
+    from concurrent.futures import Future
+
+    from app import parallel
+
+    finished: Future = Future()
+    finished.set_result(-1)
+    pending = deque([(Future(), True, 2), (finished, True, 3), (Future(), False, 4),
+                     (Future(), True, 5)])
+    assert parallel._take_over(pending, _cube, processes=1)
+    assert [(remote, item) for _, remote, item in pending] == [
+        (True, 2), (True, 3), (False, 4), (False, 5)]
+    assert pending[3][0].result() == 125
+    assert not parallel._take_over(pending, _cube, processes=1)  # item 2 may be running
+    assert not parallel._take_over(deque([(Future(), True, 2), (Future(), True, 3)]), _cube,
+                                   processes=2)
