@@ -14,10 +14,12 @@ starting a pool (see :data:`POOL_START_SECONDS`), a thread of this process start
 ``workers - 1`` processes while this process goes on with the items, and as soon as the pool
 has answered, the items are shared: the pool gets a few at a time (:data:`_POOL_AHEAD` per
 process), this process computes the next ones itself while it waits, and once no item is
-left it takes back those the pool has not started, so nobody waits at the end; the results
-still come out in order. So N workers are
-this process and N - 1 others, starting them costs the job no time of its own, and a job
-that ends before the pool is up simply ends (the pool, once up, is stopped by its thread).
+left it takes back those the pool has not started (or, when the pool has queued them where
+they can no longer be cancelled, computes them in their place and lets the pool's copy go,
+:func:`_take_over`), so nobody waits at the end; the results still come out in order. So
+N workers are this process and N - 1 others, starting them costs the job no time of its
+own, and a job that ends before the pool is up simply ends (the pool, once up, is stopped by
+its thread).
 The log tells at debug level where a job ran and when the pool was up.
 
 Workers are started by a fork server (a fresh interpreter that forks them, so the threads
