@@ -126,7 +126,7 @@ def import_maps(project: Project, folder: str | Path,
         {f: [p.keypoints for p in kept.get(f, [])] for f in has_people & files.keys()})
     results: dict[int, tuple[int, Found | None]] = {}
     for pack, found in zip(packs, ordered_map(group_runs, items, workers, progress,
-                                              "reading maps"), strict=True):
+                                              "reading maps", reads_only=True), strict=True):
         results.update(zip((f for run in pack for f in run), found, strict=True))
     progress.step(len(packs), len(packs), "reading maps")
     grouped = [(frame_id, found) for frame_id, _ in order

@@ -185,7 +185,7 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
                 initializer: Callable[..., Any] | None = None,
                 initargs: Iterable[Any] = (), total: int | None = None,
                 here: tuple[Callable[..., Any], tuple[Any, ...]] | None = None,
-                sharing: Callable[[], Any] | None = None
+                sharing: Callable[[], Any] | None = None, reads_only: bool = False
                 ) -> Generator[R, None, None]:
     """``fn(item)`` for every item, yielded in the order of ``items``.
 
@@ -223,6 +223,12 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
         gives OpenCV's second thread back to the cores then, see
         :func:`app.inference.prelabel.prelabel`: the pool's start, and then its workers, need
         that core); not called when no pool is asked for.
+    reads_only
+        Whether ``fn`` does nothing but return its result (it writes no file): then, once no
+        item is left, this process may compute an item the pool has queued but not started
+        while the pool's copy still runs later, its result thrown away (:func:`_take_over`;
+        ``import-maps`` says so, training targets and pre-labelling, which write files, do
+        not).
 
     Notes
     -----
@@ -248,7 +254,7 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
             log.debug("%s: %d of %d items handed to the pool before the job", label or "job",
                       len(early[1]), total)
             yield from _alongside(fn, early[2], 0, total, workers, progress, label, None, (),
-                                  early=(early[0], early[1]))
+                                  early=(early[0], early[1]), reads_only=reads_only)
             return
     # So many items that a pool pays whatever they take: the fork server starts now, and the
     # pool once two items have run here (not after timing them for _PROBE_SECONDS).
@@ -287,7 +293,7 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], workers: int = 1,
             log.debug("%s: all %d items here, a pool would not pay", label or "job", total)
         return
     yield from _alongside(fn, upcoming, done, total, min(workers, total - done), progress,
-                          label, initializer, initargs, sharing)
+                          label, initializer, initargs, sharing, reads_only=reads_only)
 
 
 def _pool_pays(per_item: float, left: int, workers: int, start_cost: float) -> bool:
@@ -687,16 +693,18 @@ def _start_cost() -> float:
 def _alongside(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: int, workers: int,
                progress: Progress, label: str, initializer: Callable[..., Any] | None,
                initargs: tuple[Any, ...], sharing: Callable[[], Any] | None = None,
-               early: tuple[_Pool, list[tuple[Future[R], bool, T]]] | None = None
-               ) -> Iterator[R]:
+               early: tuple[_Pool, list[tuple[Future[R], bool, T]]] | None = None,
+               reads_only: bool = False) -> Iterator[R]:
     """The items left in ``upcoming`` (``done`` of ``total`` already taken): this process
     calls ``sharing`` and goes on with them while a pool of ``workers - 1`` processes starts,
     then shares them with it, so ``workers`` processes compute in all. ``early``: the pool
     that :func:`early_pool` started and the futures of the first items, handed to it before
-    the job began (``upcoming`` then starts after them)."""
+    the job began (``upcoming`` then starts after them). ``reads_only``: as for
+    :func:`ordered_map`."""
     if early is not None:
         pool, sent = early
-        yield from _shared(fn, upcoming, done, total, progress, label, pool, deque(sent))
+        yield from _shared(fn, upcoming, done, total, progress, label, pool, deque(sent),
+                           reads_only)
         return
     if sharing is not None:
         # Now, not once the pool is up: the fork server's imports and the workers' set-up
@@ -704,16 +712,18 @@ def _alongside(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: in
         # (with pre-labelling's second OpenCV thread, the pool took longer to come up).
         sharing()
     pool = _Pool(workers - 1, initializer, initargs, fn)
-    yield from _shared(fn, upcoming, done, total, progress, label, pool, deque())
+    yield from _shared(fn, upcoming, done, total, progress, label, pool, deque(), reads_only)
 
 
 def _shared(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: int,
             progress: Progress, label: str, pool: _Pool,
-            pending: deque[tuple[Future[R], bool, T]]) -> Iterator[R]:
+            pending: deque[tuple[Future[R], bool, T]], reads_only: bool = False
+            ) -> Iterator[R]:
     """The items left in ``upcoming``, shared between this process and ``pool`` (up or
     starting) once it is up, after those in ``pending``: in the items' order, the result to
     come, whether the pool computes it, and the item (so that an item the pool has not
-    started can be taken back). The pool is closed at the end."""
+    started can be taken back). The pool is closed at the end. ``reads_only``: as for
+    :func:`ordered_map`."""
     workers = pool.workers + 1
     on_pool = sum(remote for _, remote, _ in pending)
     told = False
@@ -757,10 +767,11 @@ def _shared(fn: Callable[[T], R], upcoming: Iterator[T], done: int, total: int,
                     continue
                 pending.append((_here(fn, item), False, item))
                 continue
-            if exhausted and on_pool and (_take_back(pending, fn)
-                                          or _take_over(pending, fn, pool.workers)):
+            if exhausted and on_pool and (
+                    _take_back(pending, fn)
+                    or (reads_only and _take_over(pending, fn, pool.workers))):
                 on_pool -= 1
-                overtaken = True
+                overtaken = overtaken or reads_only
                 if progress.cancelled:
                     progress.step(done, total, label)  # raises Cancelled
                 continue

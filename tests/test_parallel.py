@@ -349,7 +349,7 @@ def test_a_job_that_pays_at_any_pace_shares_its_items_after_two(monkeypatch):
 
     switched = []
 
-    def alongside(fn, upcoming, done, total, *rest):
+    def alongside(fn, upcoming, done, total, *rest, **named):
         switched.append(done)
         yield from map(fn, upcoming)
 
@@ -480,11 +480,13 @@ def test_the_first_runs_told_before_the_project_opens_are_the_jobs(
     assert [[len(run) for run in item[2]] for item in told] == [[1], [1], [1]]  # runs of one
 
 
-def test_at_the_end_this_process_takes_over_the_items_the_pool_has_not_started():
+def test_at_the_end_this_process_takes_over_the_items_the_pool_has_not_started(
+        free_pool, monkeypatch):
     """Once no item is left, this process computes the last item the pool holds while the
     pool holds more unfinished items than it has processes (that one has not started: the
     pool runs them in order), keeping its place in the order; never one the pool may be
-    running. (Our own rule; futures of concurrent.futures stand in for the pool's.)"""
+    running, and only for a function that writes nothing (``reads_only``), since the pool's
+    copy still runs. (Our own rule; futures of concurrent.futures stand in for the pool's.)"""
     from collections import deque
     from concurrent.futures import Future
 
@@ -501,3 +503,7 @@ def test_at_the_end_this_process_takes_over_the_items_the_pool_has_not_started()
     assert not parallel._take_over(pending, _cube, processes=1)  # item 2 may be running
     assert not parallel._take_over(deque([(Future(), True, 2), (Future(), True, 3)]), _cube,
                                    processes=2)
+    asked = []
+    monkeypatch.setattr(parallel, "_take_over", lambda *a: asked.append(a) and False)
+    assert list(ordered_map(_cube, range(7), workers=2)) == [n**3 for n in range(7)]
+    assert not asked  # a job's function may write files: never computed twice
