@@ -6,10 +6,17 @@ A packet is a zip archive holding:
     ``{"format": "posewright-review-packet", "version": 1, "packet_id", "project_id",
     "skeleton", "created", "exported_by", "reviewer", "images": "none" | "full" |
     "blurred-heads" | "blurred-people", "frames": [{"id", "file_name", "width", "height",
-    "state", "base_seq", "image", "blur"}], "members": {name: sha256}}``. ``base_seq`` is the
-    newest ledger entry touching the frame when the packet was made (0 when none); ``image`` is
-    ``images/<id>.<ext>`` or null. ``members`` lists every other member with its SHA-256; a
-    member not listed is refused.
+    "state", "base_seq", "image", "blur", "grouping"}], "members": {name: sha256}}``.
+    ``base_seq`` is the newest ledger entry touching the frame when the packet was made (0
+    when none); ``image`` is ``images/<id>.<ext>`` or null. ``members`` lists every other
+    member with its SHA-256; a member not listed is refused.
+
+    ``grouping`` (optional) is how the frame's auto-labels were grouped
+    (:attr:`app.model.labels.Frame.grouping`): ``"alone"`` or ``"frame-before"``; absent
+    when the frame records none (and in packets written before the field existed, which
+    still open: like ``blur`` it was added within version 1, as an optional field). The
+    reviewer's project records it on its frames, so its triage weighs each frame by the
+    weights of that grouping (:func:`app.analysis.triage.combine.weight_set`).
 
     ``blur`` (blurred images only, else absent) records where the image was blurred and what
     placed each region, for a reviewer's tool to show and an audit to check: ``{"sources":
@@ -80,7 +87,7 @@ from app.errors import BadInput, NotFound, PosewrightError
 from app.fileio import MAX_ID, JsonId, atomic_write, describe, json_ready, parse_json
 from app.formats.images import IMAGE_SUFFIXES, MAX_SIDE, read_image
 from app.formats.maps import NetworkMaps, read_maps
-from app.model.labels import Frame, FrameState, Note, Person
+from app.model.labels import GROUPINGS, Frame, FrameState, Note, Person
 from app.model.records import DECISIONS, OLD_DECISIONS, FrameDecision, PacketRecord
 from app.model.skeleton import Skeleton, skeleton_from_dict
 from app.progress import Progress
@@ -111,6 +118,9 @@ Number = StrictInt | StrictFloat
 ImageMode = Literal["none", "full", "blurred-heads", "blurred-people"]
 #: A decision as a returned packet holds it: today's, or as version 0.1.0 wrote it.
 Decision = Literal["looks-right", "query", "ready", "agree", "needs-change", "signed-off"]
+#: How a frame's auto-labels were grouped, as a manifest's frame entry may record it: the
+#: values of :data:`app.model.labels.GROUPINGS`.
+Grouping = Literal["alone", "frame-before"]
 
 
 # ---------------------------------------------------------------------- what a packet holds
@@ -126,6 +136,9 @@ class PacketFrame:
     state: FrameState
     base_seq: int
     image: str | None
+    #: How the frame's auto-labels were grouped (:attr:`app.model.labels.Frame.grouping`);
+    #: None when the packet records nothing.
+    grouping: str | None = None
 
 
 @dataclass(frozen=True)
@@ -243,6 +256,7 @@ class _FrameModel(_Strict):
     base_seq: StrictInt = Field(ge=0, le=MAX_ID)
     image: StrictStr | None
     blur: _BlurModel | None = None
+    grouping: Grouping | None = None
 
 
 class _DecisionModel(_Strict):
@@ -498,7 +512,7 @@ def _frames(manifest: _ManifestModel, where: str) -> list[PacketFrame]:
                 raise BadInput(f"{record}.image: {f.image!r} is not images/{f.id}.<image "
                                "suffix>", where=where)
         frames.append(PacketFrame(f.id, f.file_name, f.width, f.height, state, f.base_seq,
-                                  f.image))
+                                  f.image, f.grouping))
     return frames
 
 
@@ -731,6 +745,8 @@ def export_packet(project: Project, out: str | Path, frames: Sequence[Frame],
             entry = {"id": frame.id, "file_name": frame.file_name, "width": frame.width,
                      "height": frame.height, "state": frame.state.value,
                      "base_seq": history[0].seq if history else 0, "image": image}
+            if frame.grouping in GROUPINGS:
+                entry["grouping"] = frame.grouping
             if plan is not None:
                 entry["blur"] = _blur_record(plan)
                 risk = plan.risk()

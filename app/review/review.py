@@ -1,8 +1,9 @@
 """The reviewer's side: open a packet as a small project, decide on frames, return it.
 
 ``open_packet("rehearsal.zip")`` checks the packet and builds ``rehearsal.review/`` beside it:
-a real project (``project.db``) holding the packet's frames (with their ids and file names),
-people (with their ids), notes, and images when the packet has them. The desktop app opens it
+a real project (``project.db``) holding the packet's frames (with their ids, file names and
+how their auto-labels were grouped, when the packet records it), people (with their ids),
+notes, and images when the packet has them. The desktop app opens it
 with the same window and edits it with the same ledger; every edit is credited to the
 reviewer. Opening the same packet again reopens that folder, for the same reviewer: the one
 named when it was first opened (else the reviewer the packet names, else the default author),
@@ -218,6 +219,10 @@ def _fill(project: Project, packet: Packet) -> None:
             frames.append((f.id, NewFrame(f"images/{name}", f.file_name, f.width, f.height,
                                           "ok" if f.image else "missing", state=f.state)))
         b.frames.insert_with_ids(frames)
+        # How each frame's auto-labels were grouped, as the sender's project records it, so
+        # the reviewer's triage weighs the frame by the same weights.
+        for grouping in sorted({f.grouping for f in packet.frames if f.grouping is not None}):
+            b.set_grouping([f.id for f in packet.frames if f.grouping == grouping], grouping)
         people = [(fid, p) for fid, c in packet.base.items() for p in c.people.values()]
         b.add_people(people)
         notes = [n for c in packet.base.values() for n in c.notes.values()]

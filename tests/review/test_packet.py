@@ -525,3 +525,89 @@ def test_a_review_project_that_holds_decisions_of_version_0_1_0_reads_them_as_to
         assert set_decision(reviewed, fid, "needs change").decision == "query"
         set_decision(reviewed, fid, None)
         assert fid not in decisions(reviewed)
+
+
+# ---------------------------------------------------------------------- how frames were grouped
+
+def _grouped(project: Project) -> tuple[int, int, int]:
+    """Mark the first frame's (synthetic) labels as grouped with the frame before and the
+    second's as grouped alone; the third records nothing (as after a COCO import)."""
+    f1, f2, f3 = (f.id for f in project.frames()[:3])
+    with project.bulk("ImportMaps", "group", "frames", kind="import") as b:
+        b.set_grouping([f1], "frame-before")
+        b.set_grouping([f2], "alone")
+    return f1, f2, f3
+
+
+def test_how_each_frame_was_grouped_travels_to_the_reviewer(labelled, tmp_path):
+    """Issue 14 follow-up: the manifest records each frame's grouping (absent when there is
+    none), the reviewer's project records it on its frames, and the reviewer's triage weighs a
+    frame-before frame by the frame-before weights (the same choice as the sender's:
+    app.analysis.triage.combine.weight_set)."""
+    from app.analysis.triage.combine import weight_set
+    from app.jobs_analysis import run_triage
+
+    f1, f2, f3 = _grouped(labelled)
+    path = send(labelled, tmp_path / "p.zip", frames=[f1, f2, f3])
+    with zipfile.ZipFile(path) as z:
+        entries = {f["id"]: f for f in json.loads(z.read("manifest.json"))["frames"]}
+    assert entries[f1]["grouping"] == "frame-before" and entries[f2]["grouping"] == "alone"
+    assert "grouping" not in entries[f3]
+    assert [f.grouping for f in read_packet(path).frames] == ["frame-before", "alone", None]
+    with open_packet(path) as reviewed:
+        assert reviewed.groupings() == {f1: "frame-before", f2: "alone"}
+        assert reviewed.frame(f3).grouping is None
+        verdicts = run_triage(reviewed, frame_ids=[f1, f2], findings=False)
+    assert verdicts[f1].grouping == "frame-before"
+    assert verdicts[f1].weights == weight_set("frame-before") != weight_set("alone")
+    assert verdicts[f2].grouping == "alone" and verdicts[f2].weights == weight_set("alone")
+
+
+@pytest.mark.folder_only  # the packet's format: no backend changes it
+def test_a_packet_from_before_the_grouping_record_still_opens(labelled, tmp_path):
+    """A manifest written before the field existed (no ``grouping``, still version 1)."""
+    f1, f2, _ = _grouped(labelled)
+    path = send(labelled, tmp_path / "p.zip", frames=[f1, f2])
+
+    def drop(manifest: Any) -> None:
+        for entry in manifest["frames"]:
+            del entry["grouping"]
+
+    old = rewrite_json(path, tmp_path / "old.zip", "manifest.json", drop)
+    assert [f.grouping for f in read_packet(old).frames] == [None, None]
+    with open_packet(old) as reviewed:
+        assert reviewed.groupings() == {}
+        assert [f.id for f in reviewed.frames()] == [f1, f2]
+
+
+@pytest.mark.folder_only  # the packet's format: no backend changes it
+@pytest.mark.parametrize("value", ["frame_before", "Alone", "", 1, ["alone"]])
+def test_a_bad_grouping_is_refused_and_nothing_is_written(labelled, tmp_path, value):
+    f1, f2, _ = _grouped(labelled)
+    path = send(labelled, tmp_path / "p.zip", frames=[f1, f2])
+    bad = rewrite_json(path, tmp_path / "bad.zip", "manifest.json",
+                       _put(["frames", 1, "grouping"], value))
+    there = sorted(tmp_path.iterdir())
+    with pytest.raises(BadInput, match=r"bad.zip: member 'manifest.json'.*field "
+                                       r"frames\.1\.grouping"):
+        open_packet(bad)
+    assert not review_folder(bad).exists()
+    assert sorted(tmp_path.iterdir()) == there
+
+
+def test_bringing_a_packet_back_keeps_the_senders_groupings(labelled, tmp_path):
+    """Merging reads the packet's groupings but writes none: the sender's records stay as
+    they are now, even one changed since the packet was sent."""
+    f1, f2, f3 = _grouped(labelled)
+    path = send(labelled, tmp_path / "p.zip", frames=[f1, f2, f3])
+    with labelled.bulk("ImportMaps", "group again", "frames", kind="import") as b:
+        b.set_grouping([f1], "alone")
+    before = labelled.groupings()
+    pid = labelled.people(f1)[0].id
+    from tests.review.conftest import review
+
+    returned = review(path, lambda r: r.apply(MoveJoint(f1, pid, 0, 31.0, 32.0)),
+                      decisions={f2: "looks-right"})
+    merge_packet(labelled, returned)
+    assert labelled.people(f1)[0].keypoints[0, :2].tolist() == [31.0, 32.0]
+    assert labelled.groupings() == before == {f1: "alone", f2: "alone"}
