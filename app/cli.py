@@ -373,17 +373,13 @@ def cmd_import_maps(args: argparse.Namespace) -> int:
 
 def _frame_before(args: argparse.Namespace) -> bool:
     """Whether import-maps groups each sequence with the frame before: the default
-    (:data:`app.jobs_analysis.FRAME_BEFORE`; before the job is imported, its value as
-    shipped, :data:`app.map_runs.FRAME_BEFORE`, which imports far less) unless a flag says
+    (:data:`app.map_runs.FRAME_BEFORE`, read without importing the job) unless a flag says
     otherwise."""
     if args.frame_before or args.each_frame_alone:
         return bool(args.frame_before)
-    job = sys.modules.get("app.jobs_analysis")
-    if job is not None:
-        return bool(job.FRAME_BEFORE)
-    from app.map_runs import FRAME_BEFORE
+    from app import map_runs
 
-    return FRAME_BEFORE
+    return map_runs.FRAME_BEFORE
 
 
 def _first_maps(args: argparse.Namespace, workers: int) -> None:

@@ -23,13 +23,12 @@ from typing import Any
 
 import numpy as np
 
+from app import map_runs
 from app.analysis.targets import confidence_maps, loss_mask, part_affinity_fields
 from app.errors import BadInput, NotFound
 from app.fileio import read_json
 from app.formats.maps import NetworkMaps, match_map_files, read_maps, read_npz
 from app.jobs import EXPORT_STATES, choose_frames
-from app.map_runs import FRAME_BEFORE as _IN_ORDER
-from app.map_runs import GROUPING_RUN as _RUN
 from app.map_runs import Found, found_person, group_runs, grouping_runs, map_items, packed_runs
 from app.model.labels import (
     AUTO,
@@ -53,25 +52,6 @@ TARGETS_FORMAT = "posewright-training-targets"
 TARGETS_VERSION = 1
 
 
-#: Frames of one sequence grouped in order, each with the frame before as a prior, go to
-#: the workers in runs of at most this many consecutive frames; the first frame of a run is
-#: grouped without one. Fixed, so the auto-labels are the same whatever the number of workers
-#: (:data:`app.map_runs.GROUPING_RUN`, which the command's first items before the project is
-#: open follow).
-GROUPING_RUN = _RUN
-
-#: Whether :func:`import_maps` groups the frames of a sequence with the frame before by
-#: default (``import-maps --each-frame-alone`` asks for each frame alone, ``--frame-before``
-#: for this). On since 3 December 2026: grouped so, the labels of a video hold fewer wrong
-#: joints, their errors last as a model's do, and carrying a correction forward spares 35.0 %
-#: of the actions on fresh dance seeds 116-121 (29.2 % grouped alone; issue 14 asks 30 %);
-#: triage weighs such frames by weights fitted on demos grouped this way (the frame-before
-#: set of :mod:`app.analysis.triage.combine`), which keep issue 3's goals on the shipped
-#: demo but flag a few more of the dance's wrong people late on fresh seeds (README
-#: "Sequences", DEVELOPERS.md "The demo").
-FRAME_BEFORE = _IN_ORDER  # kept in app.map_runs, which import-maps reads before the project
-
-
 def import_maps(project: Project, folder: str | Path,
                 progress: Progress | None = None, workers: int = 1,
                 frame_before: bool | None = None) -> dict[str, int]:
@@ -85,16 +65,15 @@ def import_maps(project: Project, folder: str | Path,
     the maps (:mod:`app.parallel`); this one stores them, with the same result whatever the
     number.
 
-    With ``frame_before`` (default :data:`FRAME_BEFORE`, on; ``import-maps
+    With ``frame_before`` (default :data:`app.map_runs.FRAME_BEFORE`, on; ``import-maps
     --each-frame-alone`` turns it off), the frames of a sequence
     (:mod:`app.model.sequences`) are grouped in order, each with the people of the frame
     before it as ``previous``, so that near ties between overlapping people are decided as
     on that frame: the people just grouped there, or, where that frame keeps its people,
-    those. They go to the workers in runs of
-    :data:`GROUPING_RUN` consecutive frames that have maps in ``folder``; the first frame of a
-    run, a frame whose neighbour before it has no maps here, and a frame in no sequence (a
-    folder marked not a sequence) are grouped without a frame before. Without it, every frame
-    is grouped alone.
+    those. They go to the workers in runs of :data:`app.map_runs.GROUPING_RUN` consecutive
+    frames that have maps in ``folder``; the first frame of a run, a frame whose neighbour
+    before it has no maps here, and a frame in no sequence (a folder marked not a sequence)
+    are grouped without a frame before. Without it, every frame is grouped alone.
 
     Each frame grouped here records how (:attr:`app.model.labels.Frame.grouping`, for
     triage's weights): ``frame-before`` for the frames of a run of two or more, the run's
@@ -112,9 +91,9 @@ def import_maps(project: Project, folder: str | Path,
             raise BadInput(f"the image of frame {frame_id} is {frames[frame_id].status}; its "
                            "size is unknown", where=str(path))
     marked = parse_not_sequences(project.meta(NOT_SEQUENCES))
-    in_order = FRAME_BEFORE if frame_before is None else frame_before
-    runs = _grouping_runs([s.frame_ids for s in sequences(frames.values(), marked)]
-                          if in_order else [], files)
+    in_order = map_runs.FRAME_BEFORE if frame_before is None else frame_before
+    runs = grouping_runs([s.frame_ids for s in sequences(frames.values(), marked)]
+                         if in_order else [], files)
     # A frame that keeps its people is not grouped; in order, they are the next frame's
     # frame before (read only then: alone, each frame is a run of its own).
     kept = project.people_of_frames(has_people & files.keys()) if in_order else {}
@@ -146,19 +125,6 @@ def import_maps(project: Project, folder: str | Path,
         b.count("frames with maps", len(files))
         b.count("frames grouped", len({f for f, _ in grouped}))
     return b.stats
-
-
-def _grouping_runs(sequences: Sequence[Sequence[int]], files: dict[int, Any],
-                   length: int | None = None) -> list[list[int]]:
-    """The frames with maps (``files``) cut into runs grouped in order (see
-    :func:`import_maps`): consecutive frames of one sequence, at most ``length`` (default
-    :data:`GROUPING_RUN`), then every other frame alone, by id
-    (:func:`app.map_runs.grouping_runs`).
-
-    >>> _grouping_runs([(5, 1, 2, 3, 4)], dict.fromkeys([1, 2, 4, 5, 9]), length=2)
-    [[5, 1], [2], [4], [9]]
-    """
-    return grouping_runs(sequences, files, GROUPING_RUN if length is None else length)
 
 
 def _people_found(found: Found | None) -> Iterator[tuple[np.ndarray, np.ndarray, float]]:

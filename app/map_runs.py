@@ -28,13 +28,21 @@ __all__ = ["FRAME_BEFORE", "GROUPING_RUN", "PACK_FRAMES", "Found", "Runs", "firs
 #: Frames of one sequence grouped in order, each with the frame before as a prior, go to
 #: the workers in runs of at most this many consecutive frames; the first frame of a run is
 #: grouped without one. Fixed, so the auto-labels are the same whatever the number of workers
-#: (:data:`app.jobs_analysis.GROUPING_RUN` is this value; triage's frame-before weights were
-#: fitted on these runs).
+#: (triage's frame-before weights were fitted on these runs). Kept here, not in
+#: :mod:`app.jobs_analysis`, so that the command can tell its first items before it imports
+#: the job (:func:`first_items`); everything that groups reads it here.
 GROUPING_RUN = 16
 
-#: Whether ``import-maps`` groups the frames of a sequence with the frame before by default:
-#: the value of :data:`app.jobs_analysis.FRAME_BEFORE` (documented there), kept here so that
-#: the command can tell its first items before it imports the job (:func:`first_items`).
+#: Whether :func:`app.jobs_analysis.import_maps` groups the frames of a sequence with the
+#: frame before by default (``import-maps --each-frame-alone`` asks for each frame alone,
+#: ``--frame-before`` for this; kept here for the same reason as :data:`GROUPING_RUN`). On
+#: since 3 December 2026: grouped so, the labels of a video hold fewer wrong joints, their
+#: errors last as a model's do, and carrying a correction forward spares 35.0 % of the
+#: actions on fresh dance seeds 116-121 (29.2 % grouped alone; issue 14 asks 30 %); triage
+#: weighs such frames by weights fitted on demos grouped this way (the frame-before set of
+#: :mod:`app.analysis.triage.combine`), which keep issue 3's goals on the shipped demo but
+#: leave a few more of the dance's wrong people unflagged on fresh seeds (README
+#: "Sequences", DEVELOPERS.md "The demo").
 FRAME_BEFORE = True
 
 #: Frames of maps at most in one item handed to the workers, in runs grouped alone or in
@@ -221,7 +229,7 @@ def packed_runs(runs: list[list[int]]) -> list[list[list[int]]]:
 
 def pack_runs(runs: list[list[int]], frames: int | None = None,
               alone: int = 2) -> list[list[list[int]]]:
-    """``runs`` (see :func:`app.jobs_analysis._grouping_runs`) packed into the items
+    """``runs`` (see :func:`grouping_runs`) packed into the items
     :func:`app.jobs_analysis.import_maps` hands the workers: consecutive runs of at most
     ``frames`` frames in all (default :data:`PACK_FRAMES`; a longer run is an item of its own),
     but the first ``alone`` runs and those of the last ``2 * frames`` frames each alone. Fixed,

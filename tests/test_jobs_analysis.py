@@ -254,7 +254,7 @@ def test_import_maps_groups_a_sequence_in_runs_with_the_frame_before(tmp_path, i
     Each grouped frame records how, read back after reopening (Frame.grouping, for triage's
     weights): ``frame-before`` in a run of two or more, ``alone`` otherwise; a frame that
     kept its people has no record, and labels imported from COCO clear it (our own rule)."""
-    from app import jobs_analysis, map_runs
+    from app import map_runs
     from app.jobs_analysis import import_maps
     from app.jobs_tracks import mark_not_sequence
     from app.model import NewPerson
@@ -274,8 +274,8 @@ def test_import_maps_groups_a_sequence_in_runs_with_the_frame_before(tmp_path, i
 
     real = map_runs.group_people  # what the workers (here, this process) call
     monkeypatch.setattr(map_runs, "group_people", recording)
-    monkeypatch.setattr(jobs_analysis, "GROUPING_RUN", 4)
-    assert jobs_analysis.FRAME_BEFORE  # the default since 3 December 2026
+    monkeypatch.setattr(map_runs, "GROUPING_RUN", 4)
+    assert map_runs.FRAME_BEFORE  # the default since 3 December 2026
     kept = np.array([(10.0 + k, 20.0 + k, 2) for k in range(17)])
     with new_project(tmp_path / "p", images=image_dir, author="ana") as p:
         third = p.frames()[2]
@@ -337,11 +337,11 @@ def test_packing_frames_into_the_workers_items_changes_no_person(
     people with the same ids: each run is still grouped in order from its own first frame.
     Packing is fixed whatever the workers (tests/test_parallel.py compares 1 and 2). (Our
     own rule; the synthetic frames of tests/cli/test_analysis_commands.py.)"""
-    from app import jobs_analysis
+    from app import jobs_analysis, map_runs
     from app.jobs_analysis import import_maps
 
     folder, _ = maps_dir
-    monkeypatch.setattr(jobs_analysis, "GROUPING_RUN", 2)
+    monkeypatch.setattr(map_runs, "GROUPING_RUN", 2)
     stored = []
     for n, packed in enumerate([jobs_analysis.packed_runs, lambda runs: [runs],
                                 lambda runs: [[run] for run in reversed(runs)]]):

@@ -55,12 +55,12 @@ def test_two_workers_store_and_write_what_one_does(tmp_path, image_dir, maps_dir
                                                    free_pool, monkeypatch):
     """... and each command tells app.parallel the job's size and function before it starts
     the job (head_start), by a name that is the function the job hands to its workers."""
-    from app import cli, jobs_analysis, parallel
+    from app import cli, map_runs, parallel
 
     folder, _ = maps_dir
     # The six frames are one sequence: with --frame-before, runs of two frames (each grouped
     # with the frame before but the first) make three items for the workers.
-    monkeypatch.setattr(jobs_analysis, "GROUPING_RUN", 2)
+    monkeypatch.setattr(map_runs, "GROUPING_RUN", 2)
     told = []
     monkeypatch.setattr(cli, "head_start",
                         lambda job, items, workers: told.append((job, items, workers))
@@ -412,13 +412,12 @@ def test_import_maps_with_frames_handed_early_stores_what_one_worker_does(
     Grouped each frame alone, an item is a frame; grouped with the frame before (the default),
     a run of consecutive frames of the sequence, here runs of two (runs are independent of
     each other). (Our own rule; the synthetic frames of tests/cli/test_analysis_commands.py.)"""
-    from app import cli, jobs_analysis, map_runs, parallel
+    from app import cli, map_runs, parallel
 
     folder, _ = maps_dir
     monkeypatch.setattr(cli, "head_start", lambda job, items, workers: workers > 1)
     monkeypatch.setattr(map_runs, "FIRST_ITEMS", 3)
     monkeypatch.setattr(map_runs, "GROUPING_RUN", 2)
-    monkeypatch.setattr(jobs_analysis, "GROUPING_RUN", 2)
     taken = []
     take = parallel._take_early
     monkeypatch.setattr(parallel, "_take_early", lambda *a: taken.append(take(*a)) or taken[-1])
@@ -453,7 +452,6 @@ def test_the_first_runs_told_before_the_project_opens_are_the_jobs(
 
     folder, _ = maps_dir
     monkeypatch.setattr(map_runs, "GROUPING_RUN", 2)
-    monkeypatch.setattr(jobs_analysis, "GROUPING_RUN", 2)
     handed = []
     monkeypatch.setattr(jobs_analysis, "ordered_map",
                         lambda fn, items, *a, **k: handed.append(list(items)) or map(fn, items))

@@ -133,14 +133,15 @@ def demo_frames(folder: str | Path) -> list[DemoFrame]:
     """A demo folder's frames with their auto-labels (grouped from its maps) and true poses.
 
     The project is built in ``folder`` the first time (images and maps imported, no triage),
-    grouped as ``import-maps`` groups by default (:data:`app.jobs_analysis.FRAME_BEFORE`,
-    which the demo tools' ``--frame-before`` turns on); each frame's ``grouping`` is the one
-    its project records, and a frame without a record (a project built before the record
-    existed) is taken as grouped that default way, so that triage weighs it by that
-    grouping's weights.
+    grouped as ``import-maps`` groups by default (:data:`app.map_runs.FRAME_BEFORE`, which
+    the demo tools' ``--frame-before`` and ``--each-frame-alone`` set); each frame's
+    ``grouping`` is the one its project records, and a frame without a record (a project
+    built before the record existed) is taken as grouped that default way, so that triage
+    weighs it by that grouping's weights.
     """
+    from app import map_runs
     from app.jobs import SOURCES_NAME, new_project
-    from app.jobs_analysis import FRAME_BEFORE, import_maps, load_maps
+    from app.jobs_analysis import import_maps, load_maps
     from app.model.labels import GROUPED_ALONE, GROUPED_FRAME_BEFORE
     from app.model.skeleton import skeleton_from_dict
     from app.store.project import DB_NAME, Project
@@ -162,7 +163,8 @@ def demo_frames(folder: str | Path) -> list[DemoFrame]:
         k = project.skeleton.num_joints
         for f in project.frames():
             if f.grouping is None:
-                f = replace(f, grouping=GROUPED_FRAME_BEFORE if FRAME_BEFORE else GROUPED_ALONE)
+                f = replace(f, grouping=GROUPED_FRAME_BEFORE if map_runs.FRAME_BEFORE
+                              else GROUPED_ALONE)
             anns = by_image.get(image_of[Path(f.file_name).name], [])
             maps = load_maps(project, f)
             out.append(DemoFrame(

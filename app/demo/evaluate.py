@@ -304,10 +304,10 @@ def demo_sequence(folder: str | Path, skeleton: Skeleton | None = None) -> DemoS
         Frames in the order of their image ids (the order of the dance, and of their file
         names); people grouped with :func:`app.analysis.association.group_people` at its
         defaults, as ``import-maps`` groups them: in order with the frame before as
-        ``previous``, in runs of :data:`app.jobs_analysis.GROUPING_RUN` frames (each frame
-        alone when :data:`app.jobs_analysis.FRAME_BEFORE` is False).
+        ``previous``, in runs of :data:`app.map_runs.GROUPING_RUN` frames (each frame
+        alone when :data:`app.map_runs.FRAME_BEFORE` is False).
     """
-    from app.jobs_analysis import FRAME_BEFORE, GROUPING_RUN
+    from app import map_runs
 
     folder = Path(folder)
     skeleton = skeleton or coco_body()
@@ -322,7 +322,7 @@ def demo_sequence(folder: str | Path, skeleton: Skeleton | None = None) -> DemoS
         anns = per_image[image["id"]]
         maps = read_maps(folder / "maps" / f"{Path(image['file_name']).stem}.npz", skeleton,
                          (image["width"], image["height"]))
-        before = found if FRAME_BEFORE and n % GROUPING_RUN else None
+        before = found if map_runs.FRAME_BEFORE and n % map_runs.GROUPING_RUN else None
         found = group_people(maps.confidence_maps, maps.pafs, skeleton.limb_array,
                              stride=maps.stride, previous=before)
         out.truth.append(np.array([a["keypoints"] for a in anns], float).reshape(-1, k, 3))
@@ -386,11 +386,11 @@ def add_grouping_flags(parser: Any) -> None:
 
 
 def use_grouping(args: Any) -> bool:
-    """Set :data:`app.jobs_analysis.FRAME_BEFORE` for this process from the flags of
+    """Set :data:`app.map_runs.FRAME_BEFORE` for this process from the flags of
     :func:`add_grouping_flags` (unchanged without either) and return it: the demos built,
     and those of an older cache that recorded no grouping, count as grouped that way."""
-    import app.jobs_analysis
+    from app import map_runs
 
     if args.frame_before or args.each_frame_alone:
-        app.jobs_analysis.FRAME_BEFORE = bool(args.frame_before)
-    return app.jobs_analysis.FRAME_BEFORE
+        map_runs.FRAME_BEFORE = bool(args.frame_before)
+    return map_runs.FRAME_BEFORE
